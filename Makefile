@@ -1,0 +1,38 @@
+# drivecase: two commands for a fresh machine (see README.md).
+PYTHON ?= python3
+VENV   ?= .venv
+BIN    := $(VENV)/bin
+CASE   ?= data/demo
+PORT   ?= 8050
+
+.PHONY: demo test venv venv-test check run clean
+
+$(BIN)/activate:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+
+# Runtime environment (editable install: the tool reads its data/ folder in place).
+$(VENV)/.installed: pyproject.toml | $(BIN)/activate
+	$(BIN)/pip install --quiet -e .
+	touch $@
+
+# Environment with the test extras.
+$(VENV)/.installed-test: pyproject.toml | $(BIN)/activate
+	$(BIN)/pip install --quiet -e ".[test,scale]"
+	touch $@ $(VENV)/.installed
+
+venv: $(VENV)/.installed
+venv-test: $(VENV)/.installed-test
+
+demo: $(VENV)/.installed
+	$(BIN)/drivecase check $(CASE)
+	$(BIN)/drivecase demo $(CASE) --port $(PORT)
+
+test: $(VENV)/.installed-test
+	$(BIN)/python -m pytest
+
+check: $(VENV)/.installed
+	$(BIN)/drivecase check $(CASE)
+
+clean:
+	rm -rf $(VENV) .pytest_cache build *.egg-info

@@ -1,0 +1,100 @@
+"""Problems found in user input: what is wrong, where, and what to do about it.
+
+Every loader and validator in drivecase reports problems as :class:`Problem` records instead of raising
+on the first one, so a user sees the whole list at once. Errors stop a run; warnings do not.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Iterable, Literal
+
+Severity = Literal["error", "warning"]
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One problem in the user's input.
+
+    Parameters
+    ----------
+    severity : {"error", "warning"}
+        Errors stop a run; warnings are shown and the run goes on.
+    file : str
+        File name (or workbook sheet, as ``book.xlsx:assets``) as the user sees it.
+    row : int or None
+        Row number as the user sees it in a spreadsheet: the header is row 1, so the first data row
+        is row 2. ``None`` when the problem concerns the whole file or column.
+    column : str or None
+        Column header as written in the user's file.
+    value : object
+        The offending value, as read.
+    rule : str
+        The rule that was broken, in plain words.
+    hint : str
+        What to do about it.
+    """
+
+    severity: Severity
+    file: str
+    row: int | None
+    column: str | None
+    value: object
+    rule: str
+    hint: str = ""
+
+    def location(self) -> str:
+        """Return ``file, row R, column C`` as far as known."""
+        parts = [self.file]
+        if self.row is not None:
+            parts.append(f"row {self.row}")
+        if self.column is not None:
+            parts.append(f"column '{self.column}'")
+        return ", ".join(parts)
+
+    def __str__(self) -> str:
+        value = "" if self.value is None or self.value == "" else f" (value: {self.value!r})"
+        hint = f" Hint: {self.hint}" if self.hint else ""
+        return f"{self.severity.upper()} {self.location()}: {self.rule}{value}.{hint}"
+
+    def as_dict(self) -> dict[str, object]:
+        """Return the problem as a flat dict for tables and CSV export."""
+        return {
+            "severity": self.severity,
+            "file": self.file,
+            "row": self.row,
+            "column": self.column,
+            "value": None if self.value is None else str(self.value),
+            "rule": self.rule,
+            "hint": self.hint,
+        }
+
+
+def error(file: str, row: int | None, column: str | None, value: object, rule: str, hint: str = "") -> Problem:
+    """Build an error-severity :class:`Problem`."""
+    return Problem("error", file, row, column, value, rule, hint)
+
+
+def warning(file: str, row: int | None, column: str | None, value: object, rule: str, hint: str = "") -> Problem:
+    """Build a warning-severity :class:`Problem`."""
+    return Problem("warning", file, row, column, value, rule, hint)
+
+
+@dataclass
+class CaseError(ValueError):
+    """Raised in strict mode when input has errors; carries every problem found."""
+
+    problems: list[Problem] = field(default_factory=list)
+
+    def __post_init__(self) -> None:
+        super().__init__(self.__str__())
+
+    def __str__(self) -> str:
+        errors = [p for p in self.problems if p.severity == "error"]
+        head = f"{len(errors)} error(s) in the input"
+        return head + ("\n" + "\n".join(str(p) for p in errors) if errors else "")
+
+
+def has_errors(problems: Iterable[Problem]) -> bool:
+    """Return True when any problem is an error."""
+    return any(p.severity == "error" for p in problems)
