@@ -1,0 +1,1 @@
+"""drivecase command line: the terminal front of the drivecase engine (``models``)."""

@@ -1,0 +1,206 @@
+"""Minimum full-load efficiency of line-operated induction motors by IEC efficiency class.
+
+50 Hz values come from the IEC 60034-30-1 interpolation formula with the coefficients published in EU
+Regulation 2019/1781 (IE2-IE4; IE1 coefficients are from memory and flagged in the reference table).
+60 Hz values come from the US federal tables (10 CFR 431.25) with their midpoint rule: the IE2 level is
+the EPAct 1992 table and the IE3 level the premium table. Levels the published tables do not give (IE1
+and IE4 at 60 Hz, IE5 everywhere, 8-pole IE1) are derived from a neighbouring class by the class-to-class
+loss ratio and are marked as derived.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from models import io
+
+#: Efficiency classes known to the lookup, lowest first.
+CLASSES: tuple[str, ...] = ("IE1", "IE2", "IE3", "IE4", "IE5")
+#: IE5 has about 20 % fewer losses than IE4 (IEC TS 60034-30-2 level, value from memory).
+IE5_LOSS_RATIO_TO_IE4 = 0.8
+#: Above this rating the IEC classes are flat (IEC 60034-30-1 table row 200-1000 kW) [kW].
+FLAT_ABOVE_KW = 200.0
+#: Upper end of the IEC 60034-30-1 scope [kW].
+MAX_CLASS_KW = 1000.0
+#: Lower end of the IEC 60034-30-1 scope [kW].
+MIN_CLASS_KW = 0.12
+
+
+def _formula_50hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: str) -> np.ndarray:
+    """Evaluate the IEC 60034-30-1 cubic for one class (NaN where no coefficients exist)."""
+    table = io.read_reference("iec_60034_30_1_coefficients_50hz")
+    table = table[table["efficiency_class"] == efficiency_class]
+    p = np.clip(rated_p_kw, MIN_CLASS_KW, FLAT_ABOVE_KW)
+    out = np.full(np.broadcast(p, poles).shape, np.nan)
+    p_b, poles_b = np.broadcast_arrays(p, poles)
+    for row in table.itertuples(index=False):
+        if row.min_rated_p_kw >= 0.75:
+            band = p_b >= 0.75
+        else:
+            band = p_b < 0.75
+        mask = band & (poles_b == row.poles)
+        x = np.log10(p_b[mask])
+        out[mask] = ((row.coef_a * x + row.coef_b) * x + row.coef_c) * x + row.coef_d
+    return out
+
+
+def _table_60hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: str) -> np.ndarray:
+    """Look up the federal 60 Hz table with its midpoint rule (NaN where the table has no column)."""
+    table = io.read_reference("us_10cfr431_min_efficiency_60hz")
+    table = table[table["efficiency_class"] == efficiency_class]
+    p_b, poles_b = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), poles)
+    out = np.full(p_b.shape, np.nan)
+    for pole_count, group in table.groupby("poles"):
+        ratings = group["rated_p_kw"].to_numpy(dtype=float)
+        values = group["min_efficiency_pct"].to_numpy(dtype=float)
+        order = np.argsort(ratings)
+        ratings, values = ratings[order], values[order]
+        mask = poles_b == pole_count
+        p = p_b[mask]
+        # midpoint rule: at or above the midpoint between two ratings take the higher rating's value
+        midpoints = (ratings[:-1] + ratings[1:]) / 2.0
+        idx = np.searchsorted(midpoints, p, side="right")
+        out[mask] = values[idx]
+    return out
+
+
+def _from_loss_ratio(eta_pct: np.ndarray, ratio: np.ndarray | float) -> np.ndarray:
+    """Scale losses (100 - eta) by a ratio and return the new efficiency [%]."""
+    return 100.0 - ratio * (100.0 - eta_pct)
+
+
+def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
+    """Return the minimum full-load efficiency of an efficiency class.
+
+    Parameters
+    ----------
+    rated_p_kw : array_like
+        Rated output power [kW], 0.12-1000 kW (outside it the result is NaN).
+    poles : array_like of int
+        Number of poles: 2, 4, 6 or 8 (others give NaN).
+    f_hz : array_like of int
+        Supply frequency [Hz], 50 or 60.
+    efficiency_class : array_like of str
+        ``IE1`` to ``IE5``; anything else gives NaN.
+
+    Returns
+    -------
+    numpy.ndarray
+        Minimum efficiency [%], rounded to 0.1 point as the standard tabulates it.
+
+    Notes
+    -----
+    50 Hz: eta = A x^3 + B x^2 + C x + D with x = log10(P / 1 kW) [1], Table 27 below 0.75 kW and Table 28
+    from 0.75 kW; from 200 kW to 1000 kW the 200 kW value applies [2]. 60 Hz: the federal tables with the
+    midpoint rule between listed ratings [3]; ratings above the largest listed row take its value.
+    Derived levels: IE5 = 100 - 0.8 (100 - eta_IE4) (from memory); IE1 and IE4 at 60 Hz and IE1 8-pole
+    at 50 Hz scale the neighbouring class's losses by the 50 Hz loss ratio at the same rating and poles.
+
+    References
+    ----------
+    .. [1] European Commission, "Commission Regulation (EU) 2019/1781 laying down ecodesign requirements for
+       electric motors and variable speed drives," OJ L 272, 2019, Annex I, Tables 1-2.
+    .. [2] IEC 60034-30-1:2014, Rotating electrical machines - Part 30-1: Efficiency classes of line operated
+       AC motors (IE code), Table 2.
+    .. [3] U.S. Code of Federal Regulations, 10 CFR 431.25, Energy conservation standards for electric
+       motors, Table 1 (2010) and paragraph (a) (EPAct 1992 levels).
+
+    Examples
+    --------
+    >>> float(min_efficiency_pct(15, 4, 50, "IE3"))
+    92.1
+    >>> float(min_efficiency_pct(15, 4, 60, "IE3"))
+    93.0
+    """
+    p, n_poles, f, cls = np.broadcast_arrays(
+        np.asarray(rated_p_kw, dtype=float), np.asarray(poles), np.asarray(f_hz), np.asarray(efficiency_class, dtype=object)
+    )
+    n_poles = n_poles.astype(float)
+    f = f.astype(float)
+    out = np.full(p.shape, np.nan)
+    in_scope = (p >= MIN_CLASS_KW - 1e-9) & (p <= MAX_CLASS_KW + 1e-9)
+    cache: dict[tuple[float, str], np.ndarray] = {}
+
+    def level(freq: float, name: str) -> np.ndarray:
+        key = (freq, name)
+        if key in cache:
+            return cache[key]
+        if name == "IE5":
+            value = _from_loss_ratio(level(freq, "IE4"), IE5_LOSS_RATIO_TO_IE4)
+        elif freq == 50.0:
+            value = _formula_50hz(p, n_poles, name)
+            if name == "IE1":
+                derived = _from_loss_ratio(_formula_50hz(p, n_poles, "IE2"), _ie1_ie2_loss_ratio(p))
+                value = np.where(np.isnan(value), derived, value)
+        else:
+            if name in ("IE2", "IE3"):
+                value = _table_60hz(np.clip(p, 0.75, None), n_poles, name)
+            elif name == "IE1":
+                ratio = (100 - level(50.0, "IE1")) / (100 - level(50.0, "IE2"))
+                value = _from_loss_ratio(level(60.0, "IE2"), ratio)
+            else:  # IE4
+                ratio = (100 - level(50.0, "IE4")) / (100 - level(50.0, "IE3"))
+                value = _from_loss_ratio(level(60.0, "IE3"), ratio)
+        cache[key] = value
+        return value
+
+    for name in CLASSES:
+        for freq in (50.0, 60.0):
+            mask = (cls == name) & (f == freq) & in_scope
+            if mask.any():
+                out[mask] = level(freq, name)[mask]
+    return np.round(out, 1)
+
+
+def _ie1_ie2_loss_ratio(rated_p_kw: np.ndarray) -> np.ndarray:
+    """IE1/IE2 loss ratio of 4-pole motors at 50 Hz, used to derive IE1 where no coefficients exist."""
+    p4 = np.full(np.shape(rated_p_kw), 4)
+    return (100 - _formula_50hz(rated_p_kw, p4, "IE1")) / (100 - _formula_50hz(rated_p_kw, p4, "IE2"))
+
+
+def efficiency_basis(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
+    """Say where a :func:`min_efficiency_pct` value comes from, for the data-quality log.
+
+    Returns
+    -------
+    numpy.ndarray of str
+        ``published`` (from a published table or formula), ``derived`` (scaled from a neighbouring class)
+        or ``out of scope`` (no class value: rating outside 0.12-1000 kW, other poles, unknown class).
+    """
+    p, n_poles, f, cls = np.broadcast_arrays(
+        np.asarray(rated_p_kw, dtype=float), np.asarray(poles), np.asarray(f_hz), np.asarray(efficiency_class, dtype=object)
+    )
+    value = min_efficiency_pct(p, n_poles, f, cls)
+    published = (
+        ((f == 50) & np.isin(cls, ["IE2", "IE3", "IE4"]))
+        | ((f == 50) & (cls == "IE1") & (n_poles != 8))
+        | ((f == 60) & np.isin(cls, ["IE2", "IE3"]))
+    )
+    return np.where(np.isnan(value), "out of scope", np.where(published, "published", "derived"))
+
+
+def class_of_efficiency(rated_p_kw, poles, f_hz, efficiency_pct) -> np.ndarray:
+    """Return the highest class whose minimum a given full-load efficiency meets (``below IE1`` if none).
+
+    Examples
+    --------
+    >>> str(class_of_efficiency(15, 4, 50, 92.5))
+    'IE3'
+    """
+    eff = np.asarray(efficiency_pct, dtype=float)
+    shape = np.broadcast(np.asarray(rated_p_kw), np.asarray(poles), np.asarray(f_hz), eff).shape
+    out = np.full(shape, "below IE1", dtype=object)
+    for name in CLASSES:
+        floor = min_efficiency_pct(rated_p_kw, poles, f_hz, np.full(shape, name, dtype=object))
+        out = np.where(eff >= floor - 1e-9, name, out)
+    out = np.where(np.isnan(min_efficiency_pct(rated_p_kw, poles, f_hz, np.full(shape, "IE1", dtype=object))),
+                   "out of scope", out)
+    return out if out.shape else out.item()
+
+
+def class_table(poles: int = 4, f_hz: int = 50) -> pd.DataFrame:
+    """Return a rating x class table of minimum efficiencies for display [%]."""
+    ratings = np.array([0.75, 1.1, 1.5, 2.2, 3, 4, 5.5, 7.5, 11, 15, 18.5, 22, 30, 37, 45, 55, 75, 90, 110, 132, 160, 200])
+    data = {name: min_efficiency_pct(ratings, poles, f_hz, name) for name in CLASSES}
+    return pd.DataFrame(data, index=pd.Index(ratings, name="rated_p_kw"))
