@@ -1,0 +1,84 @@
+"""IEC 60034-30-1 and US federal minimum efficiencies: the lookup against the published tables."""
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+from models.efficiency_classes import class_of_efficiency, efficiency_basis, min_efficiency_pct
+
+TABLE_50HZ = Path(__file__).parent / "data" / "iec_60034_30_1_table_50hz.csv"
+
+
+class TestMinEfficiency50Hz:
+    def test_whole_published_table(self):
+        # published: IEC 60034-30-1:2014 Table 2 as in EU Reg. 2019/1781 Annex I (tests/data/README.md);
+        # table values are rounded to 0.1 point, so 0.05 is the tolerance the source allows.
+        table = pd.read_csv(TABLE_50HZ)
+        got = min_efficiency_pct(table["rated_p_kw"], table["poles"], 50, table["efficiency_class"].to_numpy(dtype=object))
+        assert_allclose(got, table["min_efficiency_pct"], atol=0.05 + 1e-9)
+
+    @pytest.mark.parametrize(("kw", "poles", "cls", "expected"), [
+        (15, 4, "IE3", 92.1),   # published: IEC 60034-30-1 Table 2 (REFERENCES spot check)
+        (75, 4, "IE4", 96.0),   # published: IEC 60034-30-1 Table 2
+        (15, 4, "IE2", 90.6),   # published: IEC 60034-30-1 Table 2 (also bauergears.com: EFF1 91.8 % ~ IE2 90.6 %)
+        (200, 2, "IE2", 95.0),  # published: IEC 60034-30-1 Table 2 (a web page wrongly gives 95.3)
+    ])
+    def test_spot_values(self, kw, poles, cls, expected):
+        assert_allclose(min_efficiency_pct(kw, poles, 50, cls), expected, atol=0.05)
+
+    @pytest.mark.parametrize(("kw", "expected"), [
+        # formula values at unlisted ratings, IE3 4-pole: computed from the Table 28 coefficients (REFERENCES 1b)
+        (5.0, 89.302), (9.0, 90.917), (12.5, 91.724), (20.0, 92.762), (100.0, 95.337), (150.0, 95.759),
+    ])
+    def test_interpolation_between_rows(self, kw, expected):
+        # the lookup rounds to 0.1 as the standard tabulates; 0.05 covers the rounding
+        assert_allclose(min_efficiency_pct(kw, 4, 50, "IE3"), expected, atol=0.05)
+
+    def test_flat_from_200_to_1000_kw(self):
+        # published: IEC 60034-30-1 lists 200-1000 kW as one row (IE3 4-pole 96.0)
+        assert_allclose(min_efficiency_pct([200, 500, 1000], 4, 50, "IE3"), [96.0, 96.0, 96.0], atol=0.05)
+
+    def test_small_motor_table_27(self):
+        # formula check: EU 2019/1781 Table 27 IE3 4-pole at 0.37 kW: x = log10(0.37) = -0.43180;
+        # 7.6356 x^3 + 4.8236 x^2 + 21.0903 x + 86.0998 = -0.6148 + 0.8994 - 9.1070 + 86.0998 = 77.28 (hand calculation)
+        assert_allclose(min_efficiency_pct(0.37, 4, 50, "IE3"), 77.3, atol=0.05)
+
+    def test_out_of_scope_gives_nan(self):
+        got = min_efficiency_pct([0.05, 1500, 15], [4, 4, 10], 50, "IE3")
+        assert np.isnan(got).all()
+
+    def test_ie5_from_ie4_loss_ratio(self):
+        # from memory (REFERENCES 1e): IE5 has ~20 % fewer losses than IE4; 4-pole 15 kW -> 95.1, 75 kW -> 96.8
+        assert_allclose(min_efficiency_pct([15, 75], 4, 50, "IE5"), [95.1, 96.8], atol=0.05)
+
+
+class TestMinEfficiency60Hz:
+    @pytest.mark.parametrize(("kw", "poles", "cls", "expected"), [
+        (15, 4, "IE3", 93.0),    # published: 10 CFR 431.25 Table 1, 20 hp enclosed 4-pole
+        (75, 2, "IE3", 94.1),    # published: 10 CFR 431.25 Table 1, 100 hp enclosed 2-pole
+        (0.75, 6, "IE3", 82.5),  # published: 10 CFR 431.25 Table 1, 1 hp enclosed 6-pole
+        (11, 4, "IE2", 91.0),    # published: 10 CFR 431.25(a) EPAct, 15 hp enclosed 4-pole
+        (150, 6, "IE2", 95.0),   # published: 10 CFR 431.25(a) EPAct, 200 hp enclosed 6-pole
+    ])
+    def test_listed_ratings(self, kw, poles, cls, expected):
+        assert_allclose(min_efficiency_pct(kw, poles, 60, cls), expected, atol=1e-9)
+
+    def test_midpoint_rule(self):
+        # published rule (10 CFR 431.25(b); EU 2019/1781): at or above the midpoint between two listed ratings
+        # take the higher one. 11 and 15 kW (4-pole IE3: 92.4 and 93.0) have midpoint 13 kW.
+        assert_allclose(min_efficiency_pct([12.9, 13.0, 14.0], 4, 60, "IE3"), [92.4, 93.0, 93.0], atol=1e-9)
+
+    def test_derived_levels_are_flagged(self):
+        basis = efficiency_basis([15, 15, 15], [4, 4, 4], [60, 60, 50], ["IE4", "IE3", "IE3"])
+        assert list(basis) == ["derived", "published", "published"]
+
+
+class TestClassOfEfficiency:
+    def test_class_from_value(self):
+        # published: IE3 4-pole 15 kW minimum 92.1, IE4 93.9 (IEC 60034-30-1 Table 2)
+        assert class_of_efficiency(15, 4, 50, 92.5) == "IE3"
+        assert class_of_efficiency(15, 4, 50, 93.9) == "IE4"
+        assert class_of_efficiency(15, 4, 50, 80.0) == "below IE1"
