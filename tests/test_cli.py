@@ -1,0 +1,99 @@
+"""The drivecase command: new, check, exit codes and messages a user sees."""
+
+from __future__ import annotations
+
+import csv
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from drivecase.cli import main
+
+REPO = Path(__file__).resolve().parents[1]
+DEMO = REPO / "data" / "demo"
+
+
+def _edit_csv(path: Path, row_index: int, column: str, value: str) -> None:
+    """Change one cell of a CSV (row_index 0 = first data row)."""
+    with open(path, newline="", encoding="utf-8") as handle:
+        rows = list(csv.reader(handle))
+    header = rows[0]
+    rows[row_index + 1][header.index(column)] = value
+    with open(path, "w", newline="", encoding="utf-8") as handle:
+        csv.writer(handle, lineterminator="\n").writerows(rows)
+
+
+def test_check_demo_succeeds(capsys):
+    assert main(["check", str(DEMO)]) == 0
+    out = capsys.readouterr().out
+    assert "invented" in out and "Installed power by site" in out and "qualified persons" in out
+
+
+def test_broken_demo_copy_names_both_problems(tmp_path, capsys):
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    _edit_csv(case / "assets.csv", 4, "rated_p_kw", "-200")      # sheet row 6
+    _edit_csv(case / "assets.csv", 9, "profile_id", "NO-SUCH")   # sheet row 11
+    assert main(["check", str(case)]) == 1
+    out = capsys.readouterr().out
+    assert "assets.csv, row 6, column 'rated_p_kw'" in out
+    assert "assets.csv, row 11, column 'profile_id'" in out and "NO-SUCH" in out
+
+
+def test_new_then_fill_then_check(tmp_path, capsys):
+    case = tmp_path / "mycase"
+    assert main(["new", str(case)]) == 0
+    assert (case / "assets.csv").read_text(encoding="utf-8").startswith("#")
+    # an empty template is not a valid case yet: the register has no rows
+    assert main(["check", str(case)]) == 1
+    with open(case / "sites.csv", "a", encoding="utf-8") as handle:
+        handle.write("S1,Main works,,,150,0.9,,\n")
+    with open(case / "assets.csv", "a", encoding="utf-8") as handle:
+        header = [h for h in (case / "assets.csv").read_text(encoding="utf-8").splitlines() if not h.startswith("#")][0].split(",")
+        rows = [
+            {"asset_id": "M1", "site_id": "S1", "application": "pump", "rated_p_kw": "22", "poles": "4", "supply_f_hz": "50",
+             "rated_v_v": "400", "operating_h_per_yr": "6000", "mean_load_pct": "70"},
+            {"asset_id": "M2", "site_id": "S1", "application": "fan", "rated_p_hp": "40", "poles": "2", "supply_f_hz": "60",
+             "rated_v_v": "460", "efficiency_class": "IE3", "operating_h_per_yr": "3000", "mean_load_pct": "55"},
+        ]
+        for row in rows:
+            handle.write(",".join(row.get(h, "") for h in header) + "\n")
+    capsys.readouterr()
+    assert main(["check", str(case)]) == 0, capsys.readouterr().out
+
+
+def test_new_workbook_then_check_reports_empty_register(tmp_path, capsys):
+    book = tmp_path / "case.xlsx"
+    assert main(["new", str(book)]) == 0
+    assert book.is_file()
+    assert main(["check", str(book)]) == 1
+    assert "no rows" in capsys.readouterr().out
+
+
+def test_new_never_overwrites(tmp_path, capsys):
+    target = tmp_path / "existing"
+    target.mkdir()
+    (target / "keep.txt").write_text("mine", encoding="utf-8")
+    assert main(["new", str(target)]) == 1
+    assert (target / "keep.txt").read_text(encoding="utf-8") == "mine"
+    assert "never overwrites" in capsys.readouterr().err
+
+
+def test_check_missing_case(tmp_path, capsys):
+    assert main(["check", str(tmp_path / "nope")]) == 1
+    assert "does not exist" in capsys.readouterr().out
+
+
+def test_console_command_runs():
+    result = subprocess.run([sys.executable, "-m", "drivecase", "check", str(DEMO)], capture_output=True, text=True,
+                            cwd=REPO, timeout=120)
+    assert result.returncode == 0, result.stdout + result.stderr
+
+
+def test_bad_arguments_exit_2():
+    with pytest.raises(SystemExit) as info:
+        main(["frobnicate"])
+    assert info.value.code == 2
