@@ -1,0 +1,1214 @@
+"""Electricity tariffs: the data model, reading one from a parsed TOML table, validation, time-of-use periods.
+
+Scope: a tariff is a frozen :class:`Tariff` built from the plain dict that ``tomllib`` returns for a
+tariff file (reading the file is the job of ``models.io``). It covers fixed monthly charges; energy
+charges per kWh or per kVAh by time-of-use period (seasons of months × day types × clock windows,
+including windows across midnight and public holidays); demand charges on kW or kVA over 15/30/60-minute
+windows, optionally limited to some periods, with a ratchet and a power-factor adjustment; charges for
+lagging kVArh above a free allowance; charges or bans on leading kVArh; and taxes as percentages of a
+documented base. The file format, every key, its unit and default are documented in
+``docs/tariffs.md``. :func:`tariff_from_dict` never stops at the first problem: it returns every
+:class:`~models.problems.Problem` found, each naming the file and the key path (``periods[2].hours``,
+entries counted from 1). :func:`assign_periods` maps a tz-aware time index to period codes. The bill
+itself is computed in ``models.billing``.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import functools
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from models.problems import Problem, error, warning
+from models.site import tan_phi_from_power_factor
+
+__all__ = [
+    "DAY_TYPES",
+    "DemandCharge",
+    "EnergyCharge",
+    "FixedCharge",
+    "HourWindow",
+    "LeadingCharge",
+    "PeriodRule",
+    "PowerFactorAdjustment",
+    "ReactiveCharge",
+    "Season",
+    "Tariff",
+    "Tax",
+    "TAX_BASES",
+    "assign_periods",
+    "assign_seasons",
+    "check_tariff",
+    "day_types",
+    "period_index",
+    "tariff_from_dict",
+]
+
+DayType = Literal["weekday", "saturday", "sunday", "holiday"]
+DAY_TYPES: tuple[str, ...] = ("weekday", "saturday", "sunday", "holiday")
+TAX_BASES: tuple[str, ...] = (
+    "all_charges",
+    "energy_charges",
+    "demand_charges",
+    "reactive_charges",
+    "fixed_charges",
+    "all_charges_and_earlier_taxes",
+)
+ALLOWANCE_SCOPES: tuple[str, ...] = ("interval", "period", "month")
+DEMAND_WINDOWS_MIN: tuple[int, ...] = (15, 30, 60)
+MINUTES_PER_DAY = 1440
+_MAX_RATCHET_MONTHS = 36
+
+
+# --------------------------------------------------------------------------------------------------
+# Data model (layer 2: frozen parameter sets)
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Season:
+    """A named set of calendar months.
+
+    Parameters
+    ----------
+    name : str
+        Season name, referenced by period rules and clauses.
+    months : tuple of int
+        Calendar months 1-12 in this season.
+    """
+
+    name: str
+    months: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class HourWindow:
+    """A clock-time window within a day, start included, end excluded.
+
+    Parameters
+    ----------
+    start_min : int
+        Start, minutes after midnight [min], 0-1439.
+    end_min : int
+        End, minutes after midnight [min], 0-1440. An end at or before the start means the window
+        crosses midnight: ``22:00-06:00`` covers 22:00-24:00 and 00:00-06:00 of the same day type.
+    """
+
+    start_min: int
+    end_min: int
+
+    @property
+    def crosses_midnight(self) -> bool:
+        """True when the window wraps past 24:00."""
+        return self.end_min <= self.start_min
+
+    def mask(self) -> np.ndarray:
+        """Return a boolean array over the 1440 minutes of a day, True inside the window."""
+        minute = np.arange(MINUTES_PER_DAY)
+        if self.crosses_midnight:
+            return (minute >= self.start_min) | (minute < self.end_min)
+        return (minute >= self.start_min) & (minute < self.end_min)
+
+    def __str__(self) -> str:
+        return f"{_hhmm(self.start_min)}-{_hhmm(self.end_min)}"
+
+
+@dataclass(frozen=True)
+class PeriodRule:
+    """One rule mapping seasons × day types × clock windows to a time-of-use period code.
+
+    Parameters
+    ----------
+    code : str
+        Period code (e.g. ``"peak"``). Several rules may share a code.
+    seasons : tuple of str
+        Season names the rule applies in.
+    day_types : tuple of str
+        Day types, from ``DAY_TYPES``.
+    windows : tuple of HourWindow
+        Clock windows; their union is the rule's time of day.
+    """
+
+    code: str
+    seasons: tuple[str, ...]
+    day_types: tuple[str, ...]
+    windows: tuple[HourWindow, ...]
+
+    def minute_mask(self) -> np.ndarray:
+        """Return the union of the windows as a boolean array over the minutes of a day."""
+        mask = np.zeros(MINUTES_PER_DAY, dtype=bool)
+        for w in self.windows:
+            mask |= w.mask()
+        return mask
+
+
+@dataclass(frozen=True)
+class EnergyCharge:
+    """Energy prices by period, per kWh or per kVAh.
+
+    Parameters
+    ----------
+    basis : {"kWh", "kVAh"}
+        Billed energy quantity. kVAh per interval is sqrt(kWh² + kVArh²).
+    prices : tuple of (str, float)
+        (period code, price per unit of ``basis``) pairs [currency/kWh or currency/kVAh].
+    """
+
+    basis: Literal["kWh", "kVAh"]
+    prices: tuple[tuple[str, float], ...]
+
+    def price(self, code: str) -> float:
+        """Return the price of a period [currency per unit of ``basis``]."""
+        return dict(self.prices)[code]
+
+
+@dataclass(frozen=True)
+class PowerFactorAdjustment:
+    """Raising a kW billing demand for a low power factor.
+
+    Parameters
+    ----------
+    method : {"ratio", "percent_per_point"}
+        ``ratio``: billed = kW × target / PF when PF < target. ``percent_per_point``: billed = kW ×
+        (1 + percent_per_point/100 × points), points = (target − PF) / 0.01.
+    target_power_factor : float
+        Power factor below which the adjustment applies [-], in (0, 1].
+    percent_per_point : float
+        Increase per 0.01 of power factor below target [%], in (0, 100]; ``percent_per_point`` only.
+    round_points_up : bool
+        Count a part of a point as a whole point ("or fraction thereof"); ``percent_per_point`` only.
+    power_factor_from : {"month_average", "peak_window"}
+        The PF used: the month's average lagging PF (from kWh and lagging kVArh) or the PF of the
+        demand window that set the month's maximum.
+    """
+
+    method: Literal["ratio", "percent_per_point"]
+    target_power_factor: float
+    percent_per_point: float = 1.0
+    round_points_up: bool = False
+    power_factor_from: Literal["month_average", "peak_window"] = "month_average"
+
+
+@dataclass(frozen=True)
+class DemandCharge:
+    """A charge on the month's highest windowed demand, in kW or kVA.
+
+    Parameters
+    ----------
+    name : str
+        Label; line items are ``demand:<name>``, ``pf adjustment:<name>``, ``ratchet:<name>``.
+    basis : {"kW", "kVA"}
+        Demand quantity.
+    price_per_unit_month : float
+        Price [currency per kW per month or per kVA per month].
+    window_min : int
+        Demand window [min]: 15, 30 or 60. Finer interval data are averaged to the window.
+    periods : tuple of str or None
+        Only windows starting in these periods count; None = all.
+    seasons : tuple of str or None
+        Only windows in these seasons count (the charge is zero in other months); None = all.
+    ratchet_frac : float or None
+        Share of the highest demand of the previous ``ratchet_months`` months that is billed at least
+        [-], in (0, 1]; None = no ratchet.
+    ratchet_months : int
+        Look-back of the ratchet [months], 1-36.
+    power_factor_adjustment : PowerFactorAdjustment or None
+        Adjustment of a kW demand for low power factor.
+    """
+
+    name: str
+    basis: Literal["kW", "kVA"]
+    price_per_unit_month: float
+    window_min: int = 15
+    periods: tuple[str, ...] | None = None
+    seasons: tuple[str, ...] | None = None
+    ratchet_frac: float | None = None
+    ratchet_months: int = 0
+    power_factor_adjustment: PowerFactorAdjustment | None = None
+
+
+@dataclass(frozen=True)
+class ReactiveCharge:
+    """A charge on lagging kVArh above a free allowance proportional to kWh.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``reactive:<name>``.
+    price_per_kvarh : float
+        Price of each excess kVArh [currency/kVArh].
+    free_kvarh_per_kwh : float
+        Free lagging kVArh per kWh imported [-] (= tan φ threshold), >= 0.
+    allowance_per : {"interval", "period", "month"}
+        Where the allowance is netted: in each interval, per period per month, or over the month.
+    periods, seasons : tuple of str or None
+        Limit the charge to these periods / seasons; None = all.
+    """
+
+    name: str
+    price_per_kvarh: float
+    free_kvarh_per_kwh: float
+    allowance_per: Literal["interval", "period", "month"] = "month"
+    periods: tuple[str, ...] | None = None
+    seasons: tuple[str, ...] | None = None
+
+
+@dataclass(frozen=True)
+class LeadingCharge:
+    """A charge on, or a ban of, leading (capacitive) kVArh.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``leading:<name>``.
+    price_per_kvarh : float
+        Price of each leading kVArh above the allowance [currency/kVArh], >= 0.
+    free_kvarh_per_kwh : float
+        Free leading kVArh per kWh imported [-], >= 0.
+    banned : bool
+        Leading kVArh above the allowance is not allowed: the line item is flagged.
+    allowance_per : {"interval", "period", "month"}
+        Where the allowance is netted.
+    periods, seasons : tuple of str or None
+        Limit the clause to these periods / seasons; None = all.
+    """
+
+    name: str
+    price_per_kvarh: float = 0.0
+    free_kvarh_per_kwh: float = 0.0
+    banned: bool = False
+    allowance_per: Literal["interval", "period", "month"] = "month"
+    periods: tuple[str, ...] | None = None
+    seasons: tuple[str, ...] | None = None
+
+
+@dataclass(frozen=True)
+class FixedCharge:
+    """A fixed charge per billing month.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``fixed:<name>``.
+    charge_per_month : float
+        Amount [currency per month].
+    """
+
+    name: str
+    charge_per_month: float
+
+
+@dataclass(frozen=True)
+class Tax:
+    """A tax or levy as a percentage of a base.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``tax:<name>``.
+    rate_pct : float
+        Rate [%], 0-100.
+    base : str
+        One of ``TAX_BASES`` (see ``docs/tariffs.md``).
+    """
+
+    name: str
+    rate_pct: float
+    base: str = "all_charges"
+
+
+@dataclass(frozen=True)
+class Tariff:
+    """A complete tariff. Hashable: every field is immutable.
+
+    Parameters
+    ----------
+    name : str
+        Tariff name.
+    currency : str
+        ISO 4217 code of every amount (e.g. ``"EUR"``).
+    seasons : tuple of Season
+        Seasons covering the 12 months once each.
+    periods : tuple of PeriodRule
+        Time-of-use rules covering every minute of every day type in every season exactly once.
+    holidays : tuple of datetime.date
+        Public holidays (day type ``holiday``).
+    energy : EnergyCharge or None
+        Energy charge.
+    demand, reactive, leading, fixed, taxes : tuples of the clause types
+        Clauses, in file order.
+    time_zone : str or None
+        IANA zone the tariff's clock times are in; None = the meter index's own zone.
+    allow_negative_prices : bool
+        Accept negative prices (otherwise they are errors).
+    notes : str
+        Free text (source, effective date).
+    """
+
+    name: str
+    currency: str
+    seasons: tuple[Season, ...]
+    periods: tuple[PeriodRule, ...]
+    holidays: tuple[dt.date, ...] = ()
+    energy: EnergyCharge | None = None
+    demand: tuple[DemandCharge, ...] = ()
+    reactive: tuple[ReactiveCharge, ...] = ()
+    leading: tuple[LeadingCharge, ...] = ()
+    fixed: tuple[FixedCharge, ...] = ()
+    taxes: tuple[Tax, ...] = ()
+    time_zone: str | None = None
+    allow_negative_prices: bool = False
+    notes: str = field(default="", compare=True)
+
+    @property
+    def period_codes(self) -> tuple[str, ...]:
+        """Period codes in order of first appearance in ``periods``."""
+        return tuple(dict.fromkeys(r.code for r in self.periods))
+
+    @property
+    def season_names(self) -> tuple[str, ...]:
+        """Season names in file order."""
+        return tuple(s.name for s in self.seasons)
+
+
+# --------------------------------------------------------------------------------------------------
+# Time-of-use assignment (layer 1)
+# --------------------------------------------------------------------------------------------------
+
+
+@functools.lru_cache(maxsize=64)
+def _period_table(tariff: Tariff) -> np.ndarray:
+    """Return period indices as an int16 array (12 months, 4 day types, 1440 minutes); −1 = none."""
+    table = np.full((12, len(DAY_TYPES), MINUTES_PER_DAY), -1, dtype=np.int16)
+    codes = tariff.period_codes
+    for rule in tariff.periods:
+        cell = _rule_cells(tariff, rule)
+        table[cell & (table < 0)] = codes.index(rule.code)
+    return table
+
+
+@functools.lru_cache(maxsize=64)
+def _season_of_month(tariff: Tariff) -> np.ndarray:
+    """Return the season index of each month 1-12 (array position month − 1); −1 = none."""
+    out = np.full(12, -1, dtype=np.int16)
+    for i, s in enumerate(tariff.seasons):
+        for m in s.months:
+            if 1 <= m <= 12 and out[m - 1] < 0:
+                out[m - 1] = i
+    return out
+
+
+def _rule_cells(tariff: Tariff, rule: PeriodRule) -> np.ndarray:
+    """Return the (12, 4, 1440) boolean cells a rule covers."""
+    months = np.zeros(12, dtype=bool)
+    season_of_month = _season_of_month(tariff)
+    names = tariff.season_names
+    for s in rule.seasons:
+        if s in names:
+            months |= season_of_month == names.index(s)
+    days = np.array([d in rule.day_types for d in DAY_TYPES])
+    return months[:, None, None] & days[None, :, None] & rule.minute_mask()[None, None, :]
+
+
+def _local_wall(tariff: Tariff, index: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    """Return the index as naive wall-clock time in the tariff's zone (or the index's own zone)."""
+    if not isinstance(index, pd.DatetimeIndex):
+        raise ValueError("index must be a pandas DatetimeIndex")
+    if index.tz is None:
+        raise ValueError("index must be tz-aware (see docs/conventions.md: time series carry a time zone)")
+    local = index.tz_convert(tariff.time_zone) if tariff.time_zone else index
+    return local.tz_localize(None)
+
+
+def day_types(tariff: Tariff, index: pd.DatetimeIndex) -> np.ndarray:
+    """Return the day-type number (0 weekday, 1 saturday, 2 sunday, 3 holiday) of each timestamp.
+
+    Parameters
+    ----------
+    tariff : Tariff
+        Supplies the holiday list and the time zone.
+    index : pandas.DatetimeIndex
+        Tz-aware interval start times.
+
+    Returns
+    -------
+    ndarray of int8
+        Positions in ``DAY_TYPES``. A holiday overrides the weekday.
+    """
+    wall = _local_wall(tariff, index)
+    dow = np.asarray(wall.day_of_week)
+    out = np.where(dow < 5, 0, np.where(dow == 5, 1, 2)).astype(np.int8)
+    if tariff.holidays:
+        dates = wall.to_numpy().astype("datetime64[D]")
+        out[np.isin(dates, np.array(tariff.holidays, dtype="datetime64[D]"))] = 3
+    return out
+
+
+def period_index(tariff: Tariff, index: pd.DatetimeIndex) -> np.ndarray:
+    """Return the position in ``tariff.period_codes`` of each interval's period.
+
+    Parameters
+    ----------
+    tariff : Tariff
+        A valid tariff.
+    index : pandas.DatetimeIndex
+        Tz-aware interval start times.
+
+    Returns
+    -------
+    ndarray of int16
+        Period positions; −1 where the tariff leaves a time uncovered (a validation error).
+
+    Notes
+    -----
+    Vectorised lookup ``table[month − 1, day type, minute of day]`` in a precomputed table.
+    """
+    wall = _local_wall(tariff, index)
+    month = np.asarray(wall.month) - 1
+    minute = np.asarray(wall.hour) * 60 + np.asarray(wall.minute)
+    return _period_table(tariff)[month, day_types(tariff, index), minute]
+
+
+def assign_periods(tariff: Tariff, index: pd.DatetimeIndex) -> np.ndarray:
+    """Return the time-of-use period code of each interval.
+
+    Parameters
+    ----------
+    tariff : Tariff
+        A valid tariff (see :func:`check_tariff`).
+    index : pandas.DatetimeIndex
+        Tz-aware interval **start** times.
+
+    Returns
+    -------
+    ndarray of str
+        Period code per interval.
+
+    Raises
+    ------
+    ValueError
+        If the index is not a tz-aware DatetimeIndex, or a time falls in no period.
+
+    Warnings
+    --------
+    An interval belongs to the period of its start time. With hourly data and a period boundary at
+    half past, the whole hour goes to the period in force at its start. A window across midnight
+    (``22:00-06:00``) applies to clock time on each day of its day types: on a weekday rule, Saturday
+    00:00-06:00 belongs to Saturday's rules, not to Friday night's.
+
+    Examples
+    --------
+    >>> t = tariff_from_dict({
+    ...     "tariff": {"name": "demo", "currency": "EUR"},
+    ...     "periods": [{"code": "night", "hours": ["22:00-06:00"]},
+    ...                 {"code": "day", "hours": ["06:00-22:00"]}],
+    ... })[0]
+    >>> idx = pd.date_range("2025-03-03 21:00", periods=3, freq="h", tz="Europe/Madrid")
+    >>> assign_periods(t, idx).tolist()
+    ['day', 'night', 'night']
+    """
+    idx = period_index(tariff, index)
+    if np.any(idx < 0):
+        first = index[np.argmax(idx < 0)]
+        raise ValueError(f"time {first} falls in no time-of-use period of tariff {tariff.name!r}")
+    return np.asarray(tariff.period_codes, dtype=str)[idx]
+
+
+def assign_seasons(tariff: Tariff, index: pd.DatetimeIndex) -> np.ndarray:
+    """Return the season name of each interval (by the month of its local start time).
+
+    Parameters
+    ----------
+    tariff : Tariff
+        A valid tariff.
+    index : pandas.DatetimeIndex
+        Tz-aware interval start times.
+
+    Returns
+    -------
+    ndarray of str
+        Season names.
+    """
+    wall = _local_wall(tariff, index)
+    return np.asarray(tariff.season_names, dtype=str)[_season_of_month(tariff)[np.asarray(wall.month) - 1]]
+
+
+# --------------------------------------------------------------------------------------------------
+# Semantic validation of a Tariff (works on tariffs built in code too)
+# --------------------------------------------------------------------------------------------------
+
+
+def check_tariff(tariff: Tariff, source: str = "") -> list[Problem]:
+    """Return every semantic problem of a tariff: coverage, references, signs and ranges.
+
+    Parameters
+    ----------
+    tariff : Tariff
+        The tariff to check.
+    source : str
+        File name used in the problems.
+
+    Returns
+    -------
+    list of Problem
+        Errors and warnings; the ``column`` field holds the key path (entries counted from 1).
+
+    Notes
+    -----
+    Rules: seasons cover the 12 months exactly once; every minute of every day type (``holiday`` only
+    when holidays are listed) in every season belongs to exactly one period rule; every referenced
+    period and season exists; every period has an energy price when an energy charge exists; prices
+    are >= 0 unless ``allow_negative_prices``; power factors lie in (0, 1]; shares and percentages
+    are in range; names of line items are unique.
+    """
+    return _check(tariff, source or tariff.name, None, report_gaps=True)
+
+
+def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, report_gaps: bool) -> list[Problem]:
+    """Semantic checks; ``positions`` maps a table name to the file position of each built entry."""
+    out: list[Problem] = []
+
+    def at(table: str, i: int) -> str:
+        """Key of the i-th (from 1) built entry of a table, as numbered in the file."""
+        n = positions[table][i - 1] if positions and table in positions else i
+        return f"{table}[{n}]"
+
+    def err(key: str, value: object, rule: str, hint: str = "") -> None:
+        out.append(error(src, None, key, value, rule, hint))
+
+    def warn(key: str, value: object, rule: str, hint: str = "") -> None:
+        out.append(warning(src, None, key, value, rule, hint))
+
+    # Seasons: each month in exactly one season.
+    owner: dict[int, int] = {}
+    for i, s in enumerate(tariff.seasons, start=1):
+        for m in s.months:
+            if not (isinstance(m, int) and 1 <= m <= 12):
+                err(at("seasons", i) + ".months", m, "months are whole numbers 1-12")
+            elif m in owner:
+                err(
+                    at("seasons", i) + ".months",
+                    m,
+                    f"month {m} is already in season '{tariff.seasons[owner[m] - 1].name}' (seasons[{owner[m]}])",
+                    "put each month in exactly one season",
+                )
+            else:
+                owner[m] = i
+    missing_months = [m for m in range(1, 13) if m not in owner]
+    if missing_months:
+        err("seasons", missing_months, "months not in any season", "add them to a season; every month needs one")
+    _check_unique([s.name for s in tariff.seasons], "seasons", "name", err, at)
+
+    season_names = set(tariff.season_names)
+    codes = tariff.period_codes
+
+    # Period rules: references, then coverage and overlap.
+    for i, r in enumerate(tariff.periods, start=1):
+        for s in r.seasons:
+            if s not in season_names:
+                err(at("periods", i) + ".seasons", s, "unknown season", f"seasons are: {', '.join(sorted(season_names))}")
+        for d in r.day_types:
+            if d not in DAY_TYPES:
+                err(at("periods", i) + ".days", d, "unknown day type", f"day types are: {', '.join(DAY_TYPES)}")
+        if not r.windows and report_gaps:
+            err(at("periods", i) + ".hours", [], "no hour window", "omit 'hours' for the whole day, or list windows")
+    if not tariff.periods:
+        err("periods", None, "the tariff defines no time-of-use period", "add at least one [[periods]] entry")
+    else:
+        out.extend(_coverage_problems(tariff, src, at, report_gaps=report_gaps))
+
+    # Clauses.
+    neg_ok = tariff.allow_negative_prices
+
+    def price(key: str, value: float) -> None:
+        if not math.isfinite(value):
+            err(key, value, "price must be a finite number")
+        elif value < 0.0 and not neg_ok:
+            err(key, value, "negative price", "set tariff.allow_negative_prices = true if this is intended")
+
+    def refs(key: str, items: tuple[str, ...] | None, known, kind: str) -> None:
+        for x in items or ():
+            if x not in known:
+                err(key, x, f"unknown {kind}", f"{kind}s are: {', '.join(sorted(known))}")
+
+    if tariff.energy is not None:
+        priced = dict(tariff.energy.prices)
+        key = "energy.price_per_" + tariff.energy.basis.lower()
+        for code, value in tariff.energy.prices:
+            if code not in codes:
+                err(f"{key}.{code}", value, "price for a period that no rule defines", f"periods are: {', '.join(codes)}")
+            price(f"{key}.{code}", value)
+        for code in codes:
+            if code not in priced:
+                err(key, code, f"period '{code}' has no energy price", "give every period a price (0 if free)")
+
+    _check_unique([d.name for d in tariff.demand], "demand", "name", err, at)
+    for i, d in enumerate(tariff.demand, start=1):
+        k = at("demand", i)
+        price(f"{k}.price_per_{d.basis.lower()}_month", d.price_per_unit_month)
+        if d.window_min not in DEMAND_WINDOWS_MIN:
+            err(f"{k}.window_min", d.window_min, f"demand window must be one of {DEMAND_WINDOWS_MIN} minutes")
+        refs(f"{k}.periods", d.periods, codes, "period")
+        refs(f"{k}.seasons", d.seasons, season_names, "season")
+        if d.ratchet_frac is not None:
+            if not 0.0 < d.ratchet_frac <= 1.0:
+                err(f"{k}.ratchet_frac", d.ratchet_frac, "ratchet share must lie in (0, 1]", "write 80 % as 0.8")
+            if d.ratchet_months == 0:
+                err(f"{k}.ratchet_months", None, "ratchet_frac needs ratchet_months", "e.g. ratchet_months = 11")
+            elif not (isinstance(d.ratchet_months, int) and 1 <= d.ratchet_months <= _MAX_RATCHET_MONTHS):
+                err(f"{k}.ratchet_months", d.ratchet_months, f"ratchet look-back must be 1-{_MAX_RATCHET_MONTHS} months")
+        elif d.ratchet_months:
+            err(f"{k}.ratchet_frac", None, "ratchet_months needs ratchet_frac", "e.g. ratchet_frac = 0.8")
+        a = d.power_factor_adjustment
+        if a is not None:
+            ka = f"{k}.power_factor_adjustment"
+            if d.basis == "kVA":
+                err(ka, d.name, "a power-factor adjustment applies to kW demand only", "a kVA demand already carries the power factor")
+            if a.method not in ("ratio", "percent_per_point"):
+                err(f"{ka}.method", a.method, "unknown method", "use 'ratio' or 'percent_per_point'")
+            if not 0.0 < a.target_power_factor <= 1.0:
+                err(f"{ka}.target_power_factor", a.target_power_factor, "power factor must lie in (0, 1]")
+            if a.method == "percent_per_point" and not 0.0 < a.percent_per_point <= 100.0:
+                err(f"{ka}.percent_per_point", a.percent_per_point, "percent per 0.01 PF must lie in (0, 100]")
+            if a.power_factor_from not in ("month_average", "peak_window"):
+                err(f"{ka}.power_factor_from", a.power_factor_from, "unknown value", "use 'month_average' or 'peak_window'")
+
+    _check_unique([r.name for r in tariff.reactive], "reactive", "name", err, at)
+    for i, r in enumerate(tariff.reactive, start=1):
+        k = at("reactive", i)
+        price(f"{k}.price_per_kvarh", r.price_per_kvarh)
+        if not r.free_kvarh_per_kwh >= 0.0:
+            err(f"{k}.free_kvarh_per_kwh", r.free_kvarh_per_kwh, "free kVArh per kWh must be >= 0")
+        elif r.free_kvarh_per_kwh > 5.0:
+            warn(f"{k}.free_kvarh_per_kwh", r.free_kvarh_per_kwh, "allowance above 5 kVArh/kWh (PF < 0.2) is unusual", "check the value")
+        if r.allowance_per not in ALLOWANCE_SCOPES:
+            err(f"{k}.allowance_per", r.allowance_per, "unknown value", f"use one of {', '.join(ALLOWANCE_SCOPES)}")
+        refs(f"{k}.periods", r.periods, codes, "period")
+        refs(f"{k}.seasons", r.seasons, season_names, "season")
+
+    _check_unique([r.name for r in tariff.leading], "leading", "name", err, at)
+    for i, r in enumerate(tariff.leading, start=1):
+        k = at("leading", i)
+        price(f"{k}.price_per_kvarh", r.price_per_kvarh)
+        if not r.free_kvarh_per_kwh >= 0.0:
+            err(f"{k}.free_kvarh_per_kwh", r.free_kvarh_per_kwh, "free kVArh per kWh must be >= 0")
+        if r.allowance_per not in ALLOWANCE_SCOPES:
+            err(f"{k}.allowance_per", r.allowance_per, "unknown value", f"use one of {', '.join(ALLOWANCE_SCOPES)}")
+        if r.price_per_kvarh == 0.0 and not r.banned:
+            warn(k, r.name, "leading clause with no price and no ban has no effect", "set price_per_kvarh or banned = true")
+        refs(f"{k}.periods", r.periods, codes, "period")
+        refs(f"{k}.seasons", r.seasons, season_names, "season")
+
+    _check_unique([f.name for f in tariff.fixed], "fixed", "name", err, at)
+    for i, f in enumerate(tariff.fixed, start=1):
+        price(at("fixed", i) + ".charge_per_month", f.charge_per_month)
+
+    _check_unique([t.name for t in tariff.taxes], "taxes", "name", err, at)
+    for i, t in enumerate(tariff.taxes, start=1):
+        if not 0.0 <= t.rate_pct <= 100.0:
+            err(at("taxes", i) + ".rate_pct", t.rate_pct, "rate must lie in 0-100 %", "write 20 % as 20, not 0.2")
+        elif 0.0 < t.rate_pct < 1.0:
+            warn(at("taxes", i) + ".rate_pct", t.rate_pct, "rate below 1 %: is this a fraction written in place of a percentage?", "write 20 % as 20")
+        if t.base not in TAX_BASES:
+            err(at("taxes", i) + ".base", t.base, "unknown tax base", f"use one of {', '.join(TAX_BASES)}")
+    return out
+
+
+def _check_unique(names: list[str], table: str, key: str, err, at) -> None:
+    seen: dict[str, int] = {}
+    for i, n in enumerate(names, start=1):
+        if n in seen:
+            err(f"{at(table, i)}.{key}", n, f"duplicate name (also {at(table, seen[n])})", "names label bill line items and must be unique")
+        else:
+            seen[n] = i
+
+
+def _coverage_problems(tariff: Tariff, src: str, at, *, report_gaps: bool) -> list[Problem]:
+    """Return overlap and gap problems of the period rules, per season and day type."""
+    out: list[Problem] = []
+    season_of_month = _season_of_month(tariff)
+    cells = [_rule_cells(tariff, r) for r in tariff.periods]
+    # Overlaps, pairwise, reported once per pair with the first place they meet.
+    for i in range(len(cells)):
+        for j in range(i + 1, len(cells)):
+            both = cells[i] & cells[j]
+            if both.any():
+                m, d, minute = (int(x[0]) for x in np.nonzero(both))
+                where = _describe(tariff, season_of_month[m], d, both[m, d])
+                out.append(
+                    error(
+                        src,
+                        None,
+                        at("periods", j + 1) + ".hours",
+                        [str(w) for w in tariff.periods[j].windows],
+                        f"overlaps {at('periods', i + 1)} ('{tariff.periods[i].code}') in {where}",
+                        "every minute of every day type in every season must belong to exactly one period",
+                    )
+                )
+    if not report_gaps:
+        return out
+    # Gaps, reported per season and day type (holidays only when the tariff lists some).
+    count = np.sum(cells, axis=0) if cells else np.zeros((12, 4, MINUTES_PER_DAY), dtype=int)
+    needed_days = [0, 1, 2] + ([3] if tariff.holidays else [])
+    for si, season in enumerate(tariff.seasons):
+        months = np.nonzero(season_of_month == si)[0]
+        if months.size == 0:
+            continue
+        m = months[0]
+        for d in needed_days:
+            gap = count[m, d] == 0
+            if gap.any():
+                out.append(
+                    error(
+                        src,
+                        None,
+                        "periods",
+                        None,
+                        f"no period covers {_describe(tariff, si, d, gap)}",
+                        "add a [[periods]] rule for these times",
+                    )
+                )
+    return out
+
+
+def _describe(tariff: Tariff, season_idx: int, day: int, minute_mask: np.ndarray) -> str:
+    """Describe a set of minutes of one season and day type as clock ranges."""
+    season = tariff.seasons[season_idx].name if season_idx >= 0 else "(no season)"
+    return f"season '{season}', {DAY_TYPES[day]}, {', '.join(_ranges(minute_mask))}"
+
+
+def _ranges(mask: np.ndarray) -> list[str]:
+    """Return the runs of True minutes in a day as ``HH:MM-HH:MM`` strings."""
+    edges = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
+    starts = np.nonzero(edges == 1)[0]
+    ends = np.nonzero(edges == -1)[0]
+    return [f"{_hhmm(int(a))}-{_hhmm(int(b))}" for a, b in zip(starts, ends)]
+
+
+def _hhmm(minute: int) -> str:
+    return f"{minute // 60:02d}:{minute % 60:02d}"
+
+
+# --------------------------------------------------------------------------------------------------
+# Reading a parsed TOML table
+# --------------------------------------------------------------------------------------------------
+
+_MISSING = object()
+_HOURS_RE = re.compile(r"^\s*(\d{1,2}):(\d{2})\s*-\s*(\d{1,2}):(\d{2})\s*$")
+_CURRENCY_RE = re.compile(r"^[A-Z]{3}$")
+
+_TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "reactive", "leading", "taxes")
+_TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes")
+_CALENDAR_KEYS = ("holidays",)
+_SEASON_KEYS = ("name", "months")
+_PERIOD_KEYS = ("code", "seasons", "days", "hours")
+_ENERGY_KEYS = ("price_per_kwh", "price_per_kvah")
+_FIXED_KEYS = ("name", "charge_per_month")
+_DEMAND_KEYS = (
+    "name",
+    "price_per_kw_month",
+    "price_per_kva_month",
+    "window_min",
+    "periods",
+    "seasons",
+    "ratchet_frac",
+    "ratchet_months",
+    "power_factor_adjustment",
+)
+_PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
+_REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons")
+_LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
+_TAX_KEYS = ("name", "rate_pct", "base")
+
+
+class _Reader:
+    """Collects problems while pulling typed values out of nested dicts."""
+
+    def __init__(self, source: str) -> None:
+        self.source = source
+        self.problems: list[Problem] = []
+
+    def err(self, key: str, value: object, rule: str, hint: str = "") -> None:
+        self.problems.append(error(self.source, None, key, value, rule, hint))
+
+    def warn(self, key: str, value: object, rule: str, hint: str = "") -> None:
+        self.problems.append(warning(self.source, None, key, value, rule, hint))
+
+    def known(self, table: dict, allowed: tuple[str, ...], path: str) -> None:
+        for k in table:
+            if k not in allowed:
+                self.warn(_join(path, k), table[k], "unknown key, ignored", f"allowed keys here: {', '.join(allowed)}")
+
+    def table(self, data: dict, key: str, path: str) -> dict | None:
+        v = data.get(key, _MISSING)
+        if v is _MISSING:
+            return None
+        if not isinstance(v, dict):
+            self.err(_join(path, key), v, "expected a table", f"write it as [{_join(path, key)}]")
+            return None
+        return v
+
+    def tables(self, data: dict, key: str) -> list[dict]:
+        v = data.get(key, _MISSING)
+        if v is _MISSING:
+            return []
+        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
+            self.err(key, v, "expected an array of tables", f"write each entry as [[{key}]]")
+            return []
+        return v
+
+    def get(self, table: dict, key: str, path: str, kind: str, default: object = _MISSING) -> object:
+        """Return a typed value; record an error and return ``default`` (or None) when it is wrong."""
+        full = _join(path, key)
+        v = table.get(key, _MISSING)
+        if v is _MISSING:
+            if default is _MISSING:
+                self.err(full, None, "required key is missing")
+                return None
+            return default
+        ok, value = _coerce(v, kind)
+        if not ok:
+            self.err(full, v, f"expected {_KIND_WORDS[kind]}")
+            return None if default is _MISSING else default
+        return value
+
+
+_KIND_WORDS = {
+    "str": "a text string",
+    "number": "a number",
+    "int": "a whole number",
+    "bool": "true or false",
+    "str_list": "a list of text strings",
+    "int_list": "a list of whole numbers",
+    "number_table": "a table of numbers, e.g. { peak = 0.2, offpeak = 0.1 }",
+    "date_list": "a list of dates (2025-12-25 or \"2025-12-25\")",
+}
+
+
+def _coerce(v: object, kind: str) -> tuple[bool, object]:
+    def is_num(x: object) -> bool:
+        return isinstance(x, (int, float)) and not isinstance(x, bool)
+
+    if kind == "str":
+        return (isinstance(v, str) and v.strip() != "", v.strip() if isinstance(v, str) else v)
+    if kind == "number":
+        return (is_num(v), float(v) if is_num(v) else v)
+    if kind == "int":
+        if isinstance(v, int) and not isinstance(v, bool):
+            return True, v
+        if isinstance(v, float) and v.is_integer():
+            return True, int(v)
+        return False, v
+    if kind == "bool":
+        return isinstance(v, bool), v
+    if kind == "str_list":
+        ok = isinstance(v, list) and all(isinstance(x, str) and x.strip() for x in v)
+        return ok, tuple(x.strip() for x in v) if ok else v
+    if kind == "int_list":
+        ok = isinstance(v, list) and all(isinstance(x, int) and not isinstance(x, bool) for x in v)
+        return ok, tuple(v) if ok else v
+    if kind == "number_table":
+        ok = isinstance(v, dict) and all(is_num(x) for x in v.values())
+        return ok, tuple((str(k), float(x)) for k, x in v.items()) if ok else v
+    if kind == "date_list":
+        if not isinstance(v, list):
+            return False, v
+        dates = []
+        for x in v:
+            if isinstance(x, dt.datetime):
+                return False, v
+            if isinstance(x, dt.date):
+                dates.append(x)
+            elif isinstance(x, str):
+                try:
+                    dates.append(dt.date.fromisoformat(x.strip()))
+                except ValueError:
+                    return False, v
+            else:
+                return False, v
+        return True, tuple(dates)
+    raise AssertionError(kind)
+
+
+def _join(path: str, key: str) -> str:
+    return f"{path}.{key}" if path else key
+
+
+def _parse_window(text: str) -> HourWindow | None:
+    m = _HOURS_RE.match(text)
+    if not m:
+        return None
+    h1, m1, h2, m2 = (int(x) for x in m.groups())
+    if not (0 <= h1 <= 23 and 0 <= m1 <= 59 and 0 <= m2 <= 59 and (0 <= h2 <= 23 or (h2 == 24 and m2 == 0))):
+        return None
+    start, end = h1 * 60 + m1, h2 * 60 + m2
+    if start == end:
+        return None
+    return HourWindow(start, end)
+
+
+def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | None, list[Problem]]:
+    """Build a :class:`Tariff` from a parsed TOML table and return it with every problem found.
+
+    Parameters
+    ----------
+    data : dict
+        The table ``tomllib.load`` returns for a tariff file (format in ``docs/tariffs.md``).
+    source : str
+        File name to name in the problems.
+
+    Returns
+    -------
+    tariff : Tariff or None
+        None when any error was found.
+    problems : list of Problem
+        Errors and warnings, each naming the key path in ``column`` (array entries counted from 1,
+        e.g. ``periods[2].hours`` is the ``hours`` of the second ``[[periods]]`` entry), the value,
+        the rule broken and a hint. Unknown keys are warnings.
+
+    Examples
+    --------
+    >>> t, problems = tariff_from_dict({"tariff": {"name": "flat", "currency": "EUR"},
+    ...                                 "periods": [{"code": "all"}],
+    ...                                 "energy": {"price_per_kwh": {"all": 0.15}}})
+    >>> t.energy.price("all"), problems
+    (0.15, [])
+    """
+    r = _Reader(source)
+    if not isinstance(data, dict):
+        r.err("", type(data).__name__, "a tariff file must hold a TOML table")
+        return None, r.problems
+    r.known(data, _TOP_KEYS, "")
+
+    head = r.table(data, "tariff", "") or {}
+    if "tariff" not in data:
+        r.err("tariff", None, "missing [tariff] table", "start the file with [tariff] name = ... currency = ...")
+    r.known(head, _TARIFF_KEYS, "tariff")
+    name = r.get(head, "name", "tariff", "str", default=source) or source
+    currency = r.get(head, "currency", "tariff", "str")
+    if isinstance(currency, str) and not _CURRENCY_RE.match(currency):
+        r.err("tariff.currency", currency, "currency must be a 3-letter ISO 4217 code in capitals", "e.g. EUR, USD, GBP")
+    time_zone = r.get(head, "time_zone", "tariff", "str", default=None)
+    if time_zone is not None:
+        try:
+            pd.Timestamp("2000-01-01", tz=time_zone)
+        except Exception:  # noqa: BLE001 - any failure means the zone name is unusable
+            r.err("tariff.time_zone", time_zone, "unknown time zone", "use an IANA name such as Europe/Berlin")
+            time_zone = None
+    allow_negative = r.get(head, "allow_negative_prices", "tariff", "bool", default=False)
+    notes = r.get(head, "notes", "tariff", "str", default="")
+
+    cal = r.table(data, "calendar", "") or {}
+    r.known(cal, _CALENDAR_KEYS, "calendar")
+    holidays = r.get(cal, "holidays", "calendar", "date_list", default=())
+    if len(set(holidays)) != len(holidays):
+        r.warn("calendar.holidays", [str(d) for d in holidays], "a date is listed twice")
+
+    pos: dict[str, list[int]] = {t: [] for t in ("seasons", "periods", "fixed", "demand", "reactive", "leading", "taxes")}
+    seasons: list[Season] = []
+    for i, s in enumerate(r.tables(data, "seasons"), start=1):
+        p = f"seasons[{i}]"
+        r.known(s, _SEASON_KEYS, p)
+        sname = r.get(s, "name", p, "str")
+        months = r.get(s, "months", p, "int_list")
+        if sname is not None and months is not None:
+            seasons.append(Season(sname, months))
+            pos["seasons"].append(i)
+    if "seasons" not in data:
+        seasons = [Season("all year", tuple(range(1, 13)))]
+    all_seasons = tuple(s.name for s in seasons)
+
+    periods: list[PeriodRule] = []
+    n_before = len(r.problems)
+    for i, e in enumerate(r.tables(data, "periods"), start=1):
+        p = f"periods[{i}]"
+        r.known(e, _PERIOD_KEYS, p)
+        code = r.get(e, "code", p, "str")
+        pseasons = r.get(e, "seasons", p, "str_list", default=all_seasons)
+        days = r.get(e, "days", p, "str_list", default=DAY_TYPES)
+        hours = r.get(e, "hours", p, "str_list", default=("00:00-24:00",))
+        windows = []
+        for text in hours or ():
+            w = _parse_window(text)
+            if w is None:
+                r.err(
+                    f"{p}.hours",
+                    text,
+                    "not a clock window HH:MM-HH:MM (start 00:00-23:59, end up to 24:00, start != end)",
+                    "e.g. \"07:00-11:00\", \"22:00-06:00\" across midnight, \"00:00-24:00\" for the whole day",
+                )
+            else:
+                windows.append(w)
+        if code is not None and pseasons is not None and days is not None and hours is not None:
+            if windows and len(windows) == len(hours):
+                mask_sum = sum(w.mask().astype(int) for w in windows)
+                if np.any(mask_sum > 1):
+                    r.warn(f"{p}.hours", list(hours), "windows of one rule overlap each other", "merge them")
+            periods.append(PeriodRule(code, pseasons, days, tuple(windows)))
+            pos["periods"].append(i)
+    periods_complete = not any(pr.severity == "error" for pr in r.problems[n_before:])
+
+    energy = None
+    et = r.table(data, "energy", "")
+    if et is not None:
+        r.known(et, _ENERGY_KEYS, "energy")
+        has_kwh, has_kvah = "price_per_kwh" in et, "price_per_kvah" in et
+        if has_kwh and has_kvah:
+            r.err("energy", None, "give price_per_kwh or price_per_kvah, not both")
+        elif not (has_kwh or has_kvah):
+            r.err("energy", None, "[energy] needs price_per_kwh or price_per_kvah")
+        else:
+            key = "price_per_kwh" if has_kwh else "price_per_kvah"
+            prices = r.get(et, key, "energy", "number_table")
+            if prices is not None:
+                energy = EnergyCharge("kWh" if has_kwh else "kVAh", prices)
+
+    fixed = []
+    for i, f in enumerate(r.tables(data, "fixed"), start=1):
+        p = f"fixed[{i}]"
+        r.known(f, _FIXED_KEYS, p)
+        fname = r.get(f, "name", p, "str", default=f"fixed {i}")
+        amount = r.get(f, "charge_per_month", p, "number")
+        if amount is not None:
+            fixed.append(FixedCharge(fname, amount))
+            pos["fixed"].append(i)
+
+    demand = []
+    for i, d in enumerate(r.tables(data, "demand"), start=1):
+        p = f"demand[{i}]"
+        r.known(d, _DEMAND_KEYS, p)
+        dname = r.get(d, "name", p, "str", default=f"demand {i}")
+        has_kw, has_kva = "price_per_kw_month" in d, "price_per_kva_month" in d
+        basis, dprice = None, None
+        if has_kw and has_kva:
+            r.err(p, dname, "give price_per_kw_month or price_per_kva_month, not both")
+        elif not (has_kw or has_kva):
+            r.err(p, dname, "a demand charge needs price_per_kw_month or price_per_kva_month")
+        else:
+            basis = "kW" if has_kw else "kVA"
+            dprice = r.get(d, "price_per_kw_month" if has_kw else "price_per_kva_month", p, "number")
+        window = r.get(d, "window_min", p, "int", default=15)
+        dperiods = r.get(d, "periods", p, "str_list", default=None)
+        dseasons = r.get(d, "seasons", p, "str_list", default=None)
+        share = r.get(d, "ratchet_frac", p, "number", default=None)
+        months = r.get(d, "ratchet_months", p, "int", default=None)
+        pfa = None
+        at = r.table(d, "power_factor_adjustment", p)
+        if at is not None:
+            pa = f"{p}.power_factor_adjustment"
+            r.known(at, _PFA_KEYS, pa)
+            method = r.get(at, "method", pa, "str")
+            target = r.get(at, "target_power_factor", pa, "number")
+            pct = r.get(at, "percent_per_point", pa, "number", default=None)
+            if method == "percent_per_point" and pct is None and "percent_per_point" not in at:
+                r.err(f"{pa}.percent_per_point", None, "method 'percent_per_point' needs percent_per_point", "e.g. 1.0 for 1 % per 0.01 PF")
+            if method == "ratio" and "percent_per_point" in at:
+                r.warn(f"{pa}.percent_per_point", pct, "ignored with method 'ratio'")
+            round_up = r.get(at, "round_points_up", pa, "bool", default=False)
+            pf_from = r.get(at, "power_factor_from", pa, "str", default="month_average")
+            if method is not None and target is not None:
+                pfa = PowerFactorAdjustment(method, target, 1.0 if pct is None else pct, round_up, pf_from)
+        if basis is not None and dprice is not None and window is not None:
+            demand.append(
+                DemandCharge(
+                    name=dname,
+                    basis=basis,
+                    price_per_unit_month=dprice,
+                    window_min=window,
+                    periods=dperiods,
+                    seasons=dseasons,
+                    ratchet_frac=share,
+                    ratchet_months=months if months is not None else 0,
+                    power_factor_adjustment=pfa,
+                )
+            )
+            pos["demand"].append(i)
+
+    reactive = []
+    for i, e in enumerate(r.tables(data, "reactive"), start=1):
+        p = f"reactive[{i}]"
+        r.known(e, _REACTIVE_KEYS, p)
+        rname = r.get(e, "name", p, "str", default=f"reactive {i}")
+        rprice = r.get(e, "price_per_kvarh", p, "number")
+        ratio = _allowance(r, e, p, required=True)
+        scope = r.get(e, "allowance_per", p, "str", default="month")
+        rperiods = r.get(e, "periods", p, "str_list", default=None)
+        rseasons = r.get(e, "seasons", p, "str_list", default=None)
+        if rprice is not None and ratio is not None:
+            reactive.append(ReactiveCharge(rname, rprice, ratio, scope, rperiods, rseasons))
+            pos["reactive"].append(i)
+
+    leading = []
+    for i, e in enumerate(r.tables(data, "leading"), start=1):
+        p = f"leading[{i}]"
+        r.known(e, _LEADING_KEYS, p)
+        lname = r.get(e, "name", p, "str", default=f"leading {i}")
+        lprice = r.get(e, "price_per_kvarh", p, "number", default=0.0)
+        ratio = _allowance(r, e, p, required=False)
+        banned = r.get(e, "banned", p, "bool", default=False)
+        scope = r.get(e, "allowance_per", p, "str", default="month")
+        lperiods = r.get(e, "periods", p, "str_list", default=None)
+        lseasons = r.get(e, "seasons", p, "str_list", default=None)
+        if ratio is not None:
+            leading.append(LeadingCharge(lname, lprice, ratio, banned, scope, lperiods, lseasons))
+            pos["leading"].append(i)
+
+    taxes = []
+    for i, e in enumerate(r.tables(data, "taxes"), start=1):
+        p = f"taxes[{i}]"
+        r.known(e, _TAX_KEYS, p)
+        tname = r.get(e, "name", p, "str", default=f"tax {i}")
+        rate = r.get(e, "rate_pct", p, "number")
+        base = r.get(e, "base", p, "str", default="all_charges")
+        if rate is not None:
+            taxes.append(Tax(tname, rate, base))
+            pos["taxes"].append(i)
+
+    tariff = Tariff(
+        name=name,
+        currency=currency or "",
+        seasons=tuple(seasons),
+        periods=tuple(periods),
+        holidays=tuple(sorted(set(holidays))),
+        energy=energy,
+        demand=tuple(demand),
+        reactive=tuple(reactive),
+        leading=tuple(leading),
+        fixed=tuple(fixed),
+        taxes=tuple(taxes),
+        time_zone=time_zone,
+        allow_negative_prices=allow_negative,
+        notes=notes,
+    )
+    problems = r.problems + _check(tariff, source, pos, report_gaps=periods_complete)
+    if any(pr.severity == "error" for pr in problems):
+        return None, problems
+    return tariff, problems
+
+
+def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | None:
+    """Read a free allowance given as kVArh per kWh or as a power factor; return kVArh per kWh."""
+    has_ratio, has_pf = "free_kvarh_per_kwh" in e, "free_power_factor" in e
+    if has_ratio and has_pf:
+        r.err(path, None, "give free_kvarh_per_kwh or free_power_factor, not both")
+        return None
+    if has_pf:
+        pf = r.get(e, "free_power_factor", path, "number")
+        if pf is None:
+            return None
+        if not 0.0 < pf <= 1.0:
+            r.err(f"{path}.free_power_factor", pf, "power factor must lie in (0, 1]")
+            return None
+        return float(tan_phi_from_power_factor(pf))
+    if has_ratio:
+        return r.get(e, "free_kvarh_per_kwh", path, "number")
+    if required:
+        r.err(path, None, "needs free_kvarh_per_kwh or free_power_factor", "use free_kvarh_per_kwh = 0 to charge every kVArh")
+        return None
+    return 0.0
