@@ -19,12 +19,15 @@ import pandas as pd
 
 from models import defaults as nameplate_defaults
 from models import io
+from models import options as options_module
 from models.problems import CaseError, Problem, error, has_errors, warning
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
 MAX_HOURS_PER_YR = 8784.0  # hours in a leap year
 MAX_LOAD_PCT = 125.0
 ALLOWED_RESOLUTIONS_MIN = (15, 30, 60)
+#: Regions whose minimum-efficiency rules drivecase knows (data/reference/minimum_efficiency_rules.csv).
+REGIONS = ("EU", "US", "CN", "OTHER")
 
 #: Synonyms users write for our category values (normalised text -> value).
 CATEGORY_SYNONYMS: dict[str, dict[str, str]] = {
@@ -50,6 +53,7 @@ class CaseSettings:
     power_unit: str = "kW"
     time_zone: str = "UTC"
     invented: bool = False
+    region: str = "EU"
 
 
 @dataclass(frozen=True)
@@ -67,6 +71,8 @@ class Case:
         plus ``sync_speed_rpm`` [rpm] and ``data_quality_pct`` [%].
     sites, capacitors, duty : pandas.DataFrame
         Typed tables (possibly empty).
+    options : pandas.DataFrame
+        The options catalogue (the case's own, or the default catalogue when the case has none).
     profiles : dict of str -> pandas.Series
         Interval profiles by id, indexed by tz-aware interval-start timestamps in the case time zone.
     profile_info : pandas.DataFrame
@@ -86,6 +92,7 @@ class Case:
     sites: pd.DataFrame
     capacitors: pd.DataFrame
     duty: pd.DataFrame
+    options: pd.DataFrame
     profiles: dict[str, pd.Series]
     profile_info: pd.DataFrame
     defaults: pd.DataFrame
@@ -223,6 +230,21 @@ class _TableChecker:
                 for i in np.flatnonzero(~np.isnan(numbers) & ~np.isin(numbers, allowed)):
                     self.err(i, name, values[i], f"'{name}' must be one of {spec['allowed'].replace('|', ', ')}")
             return pd.Series(numbers, dtype="float64")
+        if dtype == "bool":
+            flags: list[object] = []
+            for i, value in enumerate(values):
+                if _blank(value):
+                    flags.append(None)
+                    continue
+                text = str(value).strip().lower()
+                if text in ("true", "yes", "1", "y", "1.0"):
+                    flags.append(True)
+                elif text in ("false", "no", "0", "n", "0.0"):
+                    flags.append(False)
+                else:
+                    self.err(i, name, value, f"'{name}' must be true or false")
+                    flags.append(None)
+            return pd.Series(flags, dtype=object)
         if dtype == "category":
             allowed = spec["allowed"].split("|")
             synonyms = CATEGORY_SYNONYMS.get(f"{self.raw.name}.{name}", CATEGORY_SYNONYMS.get(name, {}))
@@ -272,7 +294,7 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
     data = raw.settings.get("case", {}) if isinstance(raw.settings, dict) else {}
     source = raw.settings_source
     default_name = raw.path.stem if raw.kind == "workbook" else raw.path.name
-    known = {"name", "description", "currency", "power_unit", "time_zone", "invented"}
+    known = {"name", "description", "currency", "power_unit", "time_zone", "invented", "region"}
     for key in data:
         if key not in known:
             problems.append(warning(source, None, key, data[key], f"unknown setting '{key}' was ignored",
@@ -300,7 +322,13 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
                               "for example Europe/Berlin, America/Chicago, Asia/Kolkata"))
         zone = "UTC"
     invented = data.get("invented", False)
+    region = str(data.get("region", "EU")).strip().upper()
+    if region not in REGIONS:
+        problems.append(error(source, None, "region", region, f"region must be one of {', '.join(REGIONS)}",
+                              "it selects the minimum-efficiency rules that apply to new motors"))
+        region = "EU"
     return CaseSettings(
+        region=region,
         name=str(data.get("name", default_name)),
         description=str(data.get("description", "")),
         currency=currency,
@@ -740,6 +768,9 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     if raw.kind == "missing":
         return _finish(None, problems, mode)
     settings = _settings(raw, problems)
+    if "options" not in raw.tables:
+        raw.tables["options"], option_problems = io.read_default_options()
+        problems += option_problems
     checkers = {name: _TableChecker(table) for name, table in raw.tables.items() if name != "profiles"}
     frames = {}
     for name, checker in checkers.items():
@@ -757,6 +788,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True)
     if "capacitors" in checkers:
         _check_capacitors(checkers["capacitors"], site_ids)
+    options_frame = options_module.check_options(checkers["options"])
     if "assets" in checkers:
         _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year)
         if frames["assets"].empty:
@@ -777,6 +809,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         sites=frames["sites"],
         capacitors=frames.get("capacitors", empty_caps),
         duty=frames.get("duty", empty_duty),
+        options=options_frame,
         profiles=profiles,
         profile_info=profile_info,
         defaults=defaults,

@@ -29,7 +29,9 @@ REFERENCE_DIR = DATA_DIR / "reference"
 DEMO_DIR = DATA_DIR / "demo"
 
 #: Tables of the case format, in the order they are read and documented.
-CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty")
+CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty", "options")
+#: Where the default options catalogue lives (used when a case has no options table).
+DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.
 REQUIRED_TABLES: tuple[str, ...] = ("assets", "sites")
 #: Largest file drivecase reads, to keep a stray file from exhausting memory [bytes].
@@ -396,11 +398,17 @@ def read_folder(path: Path) -> RawCase:
             case.problems += problems
             if data:
                 case.tariffs[tariff_path.name] = data
-    for extra in ("options.csv", "finance.toml"):
+    for extra in ("finance.toml",):
         extra_path = path / extra
         if extra_path.is_file():
             case.extra[extra] = extra_path
     return case
+
+
+def read_default_options() -> tuple[RawTable, list[Problem]]:
+    """Read the default options catalogue shipped in ``data/defaults/options.csv`` (illustrative prices)."""
+    raw, problems = read_csv_table(DEFAULT_OPTIONS_PATH, "options")
+    return RawTable("options", "default options catalogue", raw.frame, raw.rows, raw.headers), problems
 
 
 def read_case_files(path: str | Path) -> RawCase:
@@ -457,6 +465,7 @@ TABLE_NOTES: dict[str, str] = {
     "capacitors": "Existing capacitor banks (optional).",
     "profiles": "Interval load profiles (optional), long format: one row per profile and interval; 15, 30 or 60 min.",
     "duty": "Duty tables (optional): load points and hours per year.",
+    "options": "Options catalogue (optional; without it the default catalogue is used): technologies and cost models.",
 }
 
 

@@ -9,7 +9,8 @@ from models import io
 DOC = Path(__file__).resolve().parents[1] / "docs" / "case-format.md"
 SUFFIX_UNITS = {
     "_kw": "kW", "_hp": "hp", "_hz": "Hz", "_v": "V", "_pct": "%", "_rpm": "rpm", "_kvar": "kVAr",
-    "_h_per_yr": "h/yr", "_frac": "-", "_per_h": "currency/h",
+    "_h_per_yr": "h/yr", "_frac": "-", "_per_h": "currency/h", "_per_kvar": "currency/kVAr",
+    "_per_kw_yr": "currency/kW/yr", "_yr": "yr",
 }
 
 

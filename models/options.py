@@ -1,0 +1,208 @@
+"""The options catalogue: candidate technologies per motor, where each applies, and what each costs.
+
+A catalogue row is one option (keep, rewind, new induction IE3/IE4, line-start PM with or without a speed
+remedy, PM or reluctance motor on a drive, add a drive, wound-field synchronous, motor-terminal capacitor)
+with a cost model by rating: each capital component is ``coef x rated_p_kw ** exp``, then installation,
+engineering and contingency as shares. Prices in the default catalogue are illustrative only.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+#: Capital components, in the order they are reported.
+CAPEX_COMPONENTS: tuple[str, ...] = (
+    "equipment", "drive", "remedy", "capacitor", "installation", "engineering", "contingency",
+)
+#: Default efficiency class of new machines by technology when the catalogue leaves it blank.
+DEFAULT_CLASS: dict[str, str] = {
+    "induction": "IE3", "line_start_pm": "IE4", "pm_drive": "IE5", "reluctance_drive": "IE4", "wound_field": "",
+}
+#: Technologies that put a drive between the supply and the motor.
+DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
+#: Technologies that replace the machine (and so change its speed, losses and power factor).
+NEW_MACHINE_TECHNOLOGIES = ("induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
+
+
+def check_options(checker) -> pd.DataFrame:
+    """Type an options table with its schema checker, apply defaults and cross-check it.
+
+    Parameters
+    ----------
+    checker : models.case._TableChecker
+        Checker holding the raw options table; its problem list receives every problem found.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per option, every schema column filled.
+    """
+    frame = checker.run()
+    _duplicate_ids(checker, frame)
+    schema = checker.schema
+    for name, spec in schema.iterrows():
+        default = spec["default"]
+        if spec["dtype"] in ("float", "int") and default not in ("", None):
+            try:
+                frame[name] = frame[name].fillna(float(default))
+            except ValueError:
+                pass
+    frame["label"] = frame["label"].where(frame["label"].notna(), frame["option_id"])
+    tech = frame["technology"].to_numpy(dtype=object)
+    default_class = np.array([DEFAULT_CLASS.get(t, "") if t is not None else "" for t in tech], dtype=object)
+    frame["efficiency_class"] = frame["efficiency_class"].where(frame["efficiency_class"].notna(), default_class)
+    frame["speed_remedy"] = frame["speed_remedy"].fillna("none")
+    frame["wfsm_mode"] = frame["wfsm_mode"].fillna("power_factor")
+    frame["applications"] = frame["applications"].fillna("")
+    frame["illustrative"] = frame["illustrative"].fillna(False)
+    lo, hi = frame["min_rated_p_kw"].to_numpy(), frame["max_rated_p_kw"].to_numpy()
+    for i in np.flatnonzero(lo > hi):
+        checker.err(i, "min_rated_p_kw", lo[i], "min_rated_p_kw is above max_rated_p_kw")
+    known_apps = {"pump", "fan", "compressor", "conveyor", "crusher", "mixer", "other"}
+    for i, apps in enumerate(frame["applications"]):
+        unknown = [a for a in str(apps).split("|") if a and a not in known_apps]
+        if unknown:
+            checker.err(i, "applications", apps, f"unknown application(s): {', '.join(unknown)}",
+                        f"use {', '.join(sorted(known_apps))} separated by |")
+    for i in np.flatnonzero((tech == "induction") & ~frame["efficiency_class"].isin(["IE2", "IE3", "IE4", "IE5"]).to_numpy()):
+        checker.err(i, "efficiency_class", frame["efficiency_class"].iloc[i], "a new induction motor needs an efficiency class")
+    for i in np.flatnonzero(np.isin(tech, DRIVE_TECHNOLOGIES) & (frame["drive_cost_coef"].to_numpy() <= 0)):
+        checker.warn(i, "drive_cost_coef", frame["drive_cost_coef"].iloc[i], "a drive option with no drive cost")
+    for i in np.flatnonzero((tech == "capacitor") & (frame["capacitor_cost_per_kvar"].to_numpy() <= 0)):
+        checker.warn(i, "capacitor_cost_per_kvar", frame["capacitor_cost_per_kvar"].iloc[i],
+                     "a capacitor option with no cost per kVAr")
+    if len(frame) and "existing" not in set(tech):
+        checker.warn(None, "technology", None, "the catalogue has no 'existing' (keep as is) option",
+                     "the baseline is always today's motor; add a keep row to see it in tables")
+    return frame
+
+
+def _duplicate_ids(checker, frame: pd.DataFrame) -> None:
+    seen: dict[object, int] = {}
+    for i, value in enumerate(frame["option_id"]):
+        if value is None:
+            continue
+        if value in seen:
+            checker.err(i, "option_id", value, f"duplicate option_id (first seen on row {seen[value]})")
+        else:
+            seen[value] = int(checker.rows[i])
+
+
+@dataclass(frozen=True)
+class CapitalCost:
+    """Capital cost of every option for every asset, by component.
+
+    Attributes
+    ----------
+    components : tuple of str
+        Component names (:data:`CAPEX_COMPONENTS`).
+    amount : numpy.ndarray
+        Cost [currency], shape (n_assets, n_options, n_components).
+    """
+
+    components: tuple[str, ...]
+    amount: np.ndarray
+
+    @property
+    def total(self) -> np.ndarray:
+        """Total capital [currency], shape (n_assets, n_options)."""
+        return self.amount.sum(axis=-1)
+
+
+def capital_cost(options: pd.DataFrame, rated_p_kw, capacitor_q_kvar=None) -> CapitalCost:
+    """Return the capital cost of each option for each motor, by component.
+
+    Parameters
+    ----------
+    options : pandas.DataFrame
+        Checked options catalogue (n_options rows).
+    rated_p_kw : array_like
+        Motor ratings [kW], shape (n_assets,).
+    capacitor_q_kvar : array_like, optional
+        Capacitor size per motor and option [kVAr], shape (n_assets, n_options); zero when omitted.
+
+    Returns
+    -------
+    CapitalCost
+        Costs [currency] by component.
+
+    Notes
+    -----
+    Component c of option o for a motor of rating P: ``coef_c,o * P ** exp_c,o``; capacitor: kVAr x cost
+    per kVAr; installation and engineering: shares of the sum of those; contingency: a share of all.
+
+    Examples
+    --------
+    >>> opts = pd.DataFrame({"equipment_cost_coef": [100.0], "equipment_cost_exp": [1.0], "drive_cost_coef": [0.0],
+    ...     "drive_cost_exp": [1.0], "remedy_cost_coef": [0.0], "remedy_cost_exp": [1.0], "capacitor_cost_per_kvar": [0.0],
+    ...     "installation_frac": [0.2], "engineering_frac": [0.0], "contingency_frac": [0.1]})
+    >>> float(capital_cost(opts, [10.0]).total[0, 0])
+    1320.0
+    """
+    p = np.asarray(rated_p_kw, dtype=float)[:, None]
+    col = lambda name: options[name].to_numpy(dtype=float)[None, :]  # noqa: E731
+    equipment = col("equipment_cost_coef") * p ** col("equipment_cost_exp")
+    drive = col("drive_cost_coef") * p ** col("drive_cost_exp")
+    remedy = col("remedy_cost_coef") * p ** col("remedy_cost_exp")
+    q = np.zeros_like(equipment) if capacitor_q_kvar is None else np.asarray(capacitor_q_kvar, dtype=float)
+    capacitor = q * col("capacitor_cost_per_kvar")
+    hardware = equipment + drive + remedy + capacitor
+    installation = hardware * col("installation_frac")
+    engineering = hardware * col("engineering_frac")
+    contingency = (hardware + installation + engineering) * col("contingency_frac")
+    amount = np.stack([equipment, drive, remedy, capacitor, installation, engineering, contingency], axis=-1)
+    return CapitalCost(CAPEX_COMPONENTS, amount)
+
+
+def applicability(options: pd.DataFrame, assets: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Say which options apply to which motors, and why not where they do not.
+
+    Parameters
+    ----------
+    options : pandas.DataFrame
+        Checked options catalogue.
+    assets : pandas.DataFrame
+        Checked asset register (columns rated_p_kw, application, load_type, speed_control, machine_type).
+
+    Returns
+    -------
+    applies : numpy.ndarray of bool, shape (n_assets, n_options)
+    reason : numpy.ndarray of str, shape (n_assets, n_options)
+        Empty where the option applies; otherwise the first rule that excludes it.
+
+    Notes
+    -----
+    Rules: rating within the option's range; application in its list; a drive cannot be added where one
+    is already fitted, nor to a constant-torque load at fixed speed (it would add losses); a line-start PM
+    motor is not offered where a drive already controls the speed; rewinds and terminal capacitors apply
+    to induction motors only, and capacitors never to a motor fed by a drive (capacitors on a drive output
+    are forbidden).
+    """
+    n_a, n_o = len(assets), len(options)
+    p = assets["rated_p_kw"].to_numpy(dtype=float)[:, None]
+    app = assets["application"].to_numpy(dtype=object)[:, None]
+    load_type = assets["load_type"].to_numpy(dtype=object)[:, None]
+    control = assets["speed_control"].to_numpy(dtype=object)[:, None]
+    machine = assets["machine_type"].to_numpy(dtype=object)[:, None]
+    tech = options["technology"].to_numpy(dtype=object)[None, :]
+    reason = np.full((n_a, n_o), "", dtype=object)
+
+    def exclude(mask: np.ndarray, why: str) -> None:
+        mask = np.broadcast_to(mask, (n_a, n_o))
+        reason[(reason == "") & mask] = why
+
+    exclude(p < options["min_rated_p_kw"].to_numpy(dtype=float)[None, :] - 1e-9, "rating below the option's range")
+    exclude(p > options["max_rated_p_kw"].to_numpy(dtype=float)[None, :] + 1e-9, "rating above the option's range")
+    apps = [set(filter(None, str(a).split("|"))) for a in options["applications"]]
+    app_ok = np.array([[not allowed or a in allowed for allowed in apps] for a in app[:, 0]], dtype=bool).reshape(n_a, n_o)
+    exclude(~app_ok, "not offered for this application")
+    exclude((tech == "add_drive") & (control == "drive"), "a drive is already fitted")
+    exclude((tech == "add_drive") & (load_type == "constant_torque") & (control == "fixed"),
+            "a drive on a fixed-speed constant-torque load only adds losses")
+    exclude((tech == "line_start_pm") & (control == "drive"), "speed is drive-controlled: a PM motor on the drive fits better")
+    exclude(np.isin(tech, ["rewind", "capacitor"]) & (machine != "induction"), "applies to induction motors only")
+    exclude((tech == "capacitor") & (control == "drive"), "never fit capacitors on a drive output")
+    return reason == "", reason

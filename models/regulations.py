@@ -1,0 +1,65 @@
+"""Minimum-efficiency rules for new motors placed on the market, by region.
+
+A like-for-like replacement may no longer be legal to buy: when a motor is replaced at failure, the
+baseline is the cheapest replacement the rules still allow, not the old motor. Rules apply to new motors,
+not to repairs, so a rewind stays legal. The rule table is ``data/reference/minimum_efficiency_rules.csv``
+(each row names its regulation); verify current scope and exemptions locally.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from models import io
+
+_CLASS_RANK = {"IE1": 1, "IE2": 2, "IE3": 3, "IE4": 4, "IE5": 5}
+
+
+def minimum_class(region: str, rated_p_kw, poles, on_date: str = "2026-12-01") -> np.ndarray:
+    """Return the lowest efficiency class a new motor may have, per motor.
+
+    Parameters
+    ----------
+    region : str
+        ``EU``, ``US``, ``CN`` or ``OTHER``.
+    rated_p_kw : array_like
+        Rating [kW].
+    poles : array_like
+        Number of poles.
+    on_date : str
+        ISO date at which the rules are read (rules that take effect later are ignored).
+
+    Returns
+    -------
+    numpy.ndarray of str
+        ``IE2``...``IE4``, or ``none`` where no rule covers the motor (e.g. above 1000 kW).
+
+    Notes
+    -----
+    Where several rows cover a motor the strictest class applies (e.g. EU 75-200 kW: IE4).
+
+    References
+    ----------
+    .. [1] European Commission, Regulation (EU) 2019/1781, Annex I, 2019.
+    .. [2] U.S. Code of Federal Regulations, 10 CFR 431.25, 2014.
+
+    Examples
+    --------
+    >>> minimum_class("EU", [15, 110, 1600], [4, 4, 6]).tolist()
+    ['IE3', 'IE4', 'none']
+    """
+    rules = io.read_reference("minimum_efficiency_rules")
+    rules = rules[(rules["region"] == region.upper()) & (rules["effective_from"] <= on_date)]
+    p, n = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), np.asarray(poles, dtype=float))
+    rank = np.zeros(p.shape, dtype=int)
+    for row in rules.itertuples(index=False):
+        allowed_poles = [float(x) for x in str(row.poles).split("|")]
+        covered = (p >= row.min_rated_p_kw - 1e-9) & (p <= row.max_rated_p_kw + 1e-9) & np.isin(n, allowed_poles)
+        rank = np.where(covered, np.maximum(rank, _CLASS_RANK[row.min_class]), rank)
+    names = np.array(["none", "IE1", "IE2", "IE3", "IE4", "IE5"], dtype=object)
+    return names[rank]
+
+
+def class_rank(efficiency_class) -> np.ndarray:
+    """Return 1-5 for IE1-IE5 and 0 for anything else (for comparing classes)."""
+    return np.vectorize(lambda c: _CLASS_RANK.get(str(c), 0), otypes=[int])(np.asarray(efficiency_class, dtype=object))
