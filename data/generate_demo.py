@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -26,8 +27,8 @@ HOLIDAYS = ["2025-01-01", "2025-04-18", "2025-04-21", "2025-05-01", "2025-05-29"
 
 SITES = [
     # site_id, site_name, meter_id, tariff_file, base_p_kw, base_power_factor, base_profile_id, supply_v_v
-    ("HRW", "Haldane Ridge Water Treatment Works", "M-HRW-01", "tou_kw_demand_kvarh.toml", "", 0.88, "BASE-HRW", 20000),
-    ("KGQ", "Kestrel Gorge Quarry and Crushing Plant", "M-KGQ-01", "kva_demand.toml", 180, 0.82, "", 20000),
+    ("HRW", "Haldane Ridge Water Treatment Works", "M-HRW-01", "example_tou_kw_reactive_ratchet.toml", "", 0.88, "BASE-HRW", 20000),
+    ("KGQ", "Kestrel Gorge Quarry and Crushing Plant", "M-KGQ-01", "example_kva_demand.toml", 180, 0.82, "", 20000),
 ]
 
 CAPACITORS = [
@@ -271,6 +272,7 @@ motors, the profiles and the prices. Any likeness to a real company or plant is 
 - `sites.csv`, `capacitors.csv`: meters, non-motor load and existing capacitor banks.
 - `profiles.parquet`: one year of hourly shaft-load profiles (and one measured base-load profile).
 - `duty.csv`: a duty table for cycling pumps.
+- `tariffs/`: the two sites' tariffs (copies of invented example tariffs from `data/tariffs/`).
 
 Regenerate with `python data/generate_demo.py` (seeded: the output is identical on every run).
 """
@@ -291,6 +293,9 @@ def write_demo(target: Path = HERE) -> None:
     (target / "duty.csv").write_text(_csv(DUTY, ["profile_id", "shaft_load_pct", "duration_h_per_yr"]), encoding="utf-8")
     (target / "case.toml").write_text(CASE_TOML, encoding="utf-8")
     (target / "README.md").write_text(README, encoding="utf-8")
+    (target / "tariffs").mkdir(exist_ok=True)
+    for site in SITES:
+        shutil.copyfile(HERE.parent / "tariffs" / site[3], target / "tariffs" / site[3])
     profiles = _profiles(rng)
     profiles.to_parquet(target / "profiles.parquet", index=False, compression="zstd")
 
