@@ -529,7 +529,8 @@ def induction_operating_point(params: InductionParams, shaft_p_kw) -> InductionP
     # In-place arithmetic keeps a fleet-year (1,000 x 8,760) to about a dozen array allocations.
     s_r = get("rated_slip_frac")
     p_ag_r = get("rated_airgap_p_kw")
-    y = np.add(p, get("friction_windage_kw"))
+    shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
+    y = np.atleast_1d(np.add(p, get("friction_windage_kw")))  # 1-D at least, so out= works for one value
     y /= p_ag_r
     work = np.multiply(y, -4.0 * s_r)
     work += 1.0
@@ -541,7 +542,7 @@ def induction_operating_point(params: InductionParams, shaft_p_kw) -> InductionP
     s = np.multiply(y, s_r)
     p_ag = np.multiply(y, p_ag_r)
     loss_rcu = np.multiply(s, p_ag)
-    core_fw = np.broadcast_to(get("loss_constant_kw"), y.shape).copy()
+    core_fw = np.broadcast_to(get("loss_constant_kw"), y.shape).copy()  # constant, one value per step
     _power(y, get("loss_exponent"), out=work)
     work *= get("loss_load_kw")  # stator copper + stray
     loss_stray = np.multiply(work, STRAY_SHARE_OF_STATOR_AND_STRAY)
@@ -557,18 +558,21 @@ def induction_operating_point(params: InductionParams, shaft_p_kw) -> InductionP
     eff = np.divide(p, p_in)
     speed = np.multiply(s, -get("sync_speed_rpm"))
     speed += get("sync_speed_rpm")
+    def out(a: np.ndarray) -> Any:
+        return wrap(a.reshape(shape))
+
     return InductionPoint(
-        p_in_kw=wrap(p_in),
-        q_kvar=wrap(q),
-        efficiency_frac=wrap(eff),
-        power_factor=wrap(pf),
-        slip_frac=wrap(s),
-        speed_rpm=wrap(speed),
-        p_airgap_kw=wrap(p_ag),
-        loss_core_fw_kw=wrap(core_fw),
-        loss_stator_cu_kw=wrap(loss_scu),
-        loss_rotor_cu_kw=wrap(loss_rcu),
-        loss_stray_kw=wrap(loss_stray),
+        p_in_kw=out(p_in),
+        q_kvar=out(q),
+        efficiency_frac=out(eff),
+        power_factor=out(pf),
+        slip_frac=out(s),
+        speed_rpm=out(speed),
+        p_airgap_kw=out(p_ag),
+        loss_core_fw_kw=out(core_fw),
+        loss_stator_cu_kw=out(loss_scu),
+        loss_rotor_cu_kw=out(loss_rcu),
+        loss_stray_kw=out(loss_stray),
     )
 
 
