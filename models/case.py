@@ -80,8 +80,8 @@ class Case:
         start, end, coverage_days.
     defaults : pandas.DataFrame
         Every defaulted field: asset_id, column, value, basis.
-    tariffs : dict
-        Tariff files by name, as parsed TOML dicts (checked by :mod:`models.tariff`).
+    tariffs : dict of str -> models.tariff.Tariff
+        Checked tariffs by file name.
     problems : list of Problem
         Errors and warnings found.
     """
@@ -720,6 +720,25 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str]) -> None:
     c["target_power_factor"] = c["target_power_factor"].fillna(0.95)
 
 
+def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]) -> dict:
+    """Parse and check every tariff of the case; a tariff's currency must be the case's."""
+    from models.tariff import tariff_from_dict
+
+    parsed = {}
+    for name, data in raw.tariffs.items():
+        source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
+        tariff, tariff_problems = tariff_from_dict(data, source=source)
+        problems.extend(tariff_problems)
+        if tariff is None:
+            continue
+        if tariff.currency != settings.currency:
+            problems.append(error(source, None, "tariff.currency", tariff.currency,
+                                  f"the tariff's currency differs from the case currency {settings.currency}",
+                                  "one case prices everything in one currency"))
+        parsed[name] = tariff
+    return parsed
+
+
 def _check_duty(checker: _TableChecker) -> None:
     d = checker.frame
     totals = d.groupby("profile_id")["duration_h_per_yr"].sum()
@@ -784,6 +803,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         for pid in sorted(overlap):
             problems.append(error(checkers["duty"].raw.source, None, "profile_id", pid,
                                   "the same profile_id is used in profiles and in duty", "rename one of them"))
+    tariffs = _check_tariffs(raw, settings, problems)
     if "sites" in checkers:
         _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True)
     if "capacitors" in checkers:
@@ -813,7 +833,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         profiles=profiles,
         profile_info=profile_info,
         defaults=defaults,
-        tariffs=dict(raw.tariffs),
+        tariffs=tariffs,
         extra=dict(raw.extra),
         problems=tuple(problems),
     )
