@@ -345,11 +345,13 @@ def solve_speed_coupled_load(
         return n
 
     p = p_ref.copy()
+    known = ~np.isnan(p_ref)  # missing data propagates as NaN and does not block convergence
     for _ in range(MAX_COUPLING_ITERATIONS):
-        p_next = p_ref * (new_speed(p) / n_ref) ** k
-        err = np.abs(p_next - p)
+        with np.errstate(over="ignore", invalid="ignore"):
+            p_next = p_ref * (new_speed(p) / n_ref) ** k
+            err = np.abs(p_next - p)
         p = p_next
-        if not np.any(err > tol_kw * scale):
+        if not np.any(known & ~(err <= tol_kw * scale)):
             break
     else:
         raise ValueError(
