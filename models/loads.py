@@ -168,9 +168,9 @@ def affinity_flow_ratio(speed_ratio):
     .. [1] ANSI/HI 14.3-2019, *Rotodynamic Pumps for Design and Application*, Hydraulic Institute,
        2019 (affinity rules).
     """
-    r, _, _ = _unwrap(speed_ratio)
+    r, wrap, _ = _unwrap(speed_ratio)
     _require(r > 0, "speed_ratio must be positive")
-    return speed_ratio * 1.0
+    return wrap(r * 1.0)
 
 
 def affinity_head_ratio(speed_ratio):
@@ -190,9 +190,9 @@ def affinity_head_ratio(speed_ratio):
     -----
     ANSI/HI 14.3-2019 affinity rules; same validity as :func:`affinity_flow_ratio`.
     """
-    r, _, _ = _unwrap(speed_ratio)
+    r, wrap, _ = _unwrap(speed_ratio)
     _require(r > 0, "speed_ratio must be positive")
-    return speed_ratio**2
+    return wrap(r**2)
 
 
 def affinity_power_ratio(speed_ratio, speed_exponent=3.0):
@@ -223,9 +223,9 @@ def affinity_power_ratio(speed_ratio, speed_exponent=3.0):
     >>> round(affinity_power_ratio(0.8), 3)
     0.512
     """
-    r, _, _ = _unwrap(speed_ratio)
+    r, wrap, _ = _unwrap(speed_ratio)
     _require(r > 0, "speed_ratio must be positive")
-    return speed_ratio**speed_exponent
+    return wrap(r ** np.asarray(speed_exponent, dtype=float))
 
 
 # --------------------------------------------------------------------------------------------------
@@ -474,8 +474,10 @@ def system_head_frac(flow_frac, static_head_frac):
     System curve: static head plus friction head growing with the square of flow (US DOE,
     *Improving Pumping System Performance: A Sourcebook for Industry*, 2nd ed., 2006).
     """
-    _require(np.asarray((np.asarray(static_head_frac) >= 0) & (np.asarray(static_head_frac) <= 1)), "static_head_frac must lie in [0, 1]")
-    return static_head_frac + (1.0 - static_head_frac) * flow_frac**2
+    q, wrap, _ = _unwrap(flow_frac)
+    h_s = np.asarray(static_head_frac, dtype=float)
+    _require((h_s >= 0) & (h_s <= 1), "static_head_frac must lie in [0, 1]")
+    return wrap(h_s + (1.0 - h_s) * q**2)
 
 
 def speed_frac_for_flow(flow_frac, static_head_frac, shutoff_head_pu=DEFAULT_SHUTOFF_HEAD_PU):
@@ -501,10 +503,12 @@ def speed_frac_for_flow(flow_frac, static_head_frac, shutoff_head_pu=DEFAULT_SHU
     laws give r^2 h0 - (h0 - 1) q^2. Equating with the system curve h_s + (1 - h_s) q^2 gives r
     (Karassik et al., *Pump Handbook*, 4th ed., sec. 2.1 and ch. 13). Without static head r = q.
     """
-    h0 = shutoff_head_pu
-    _require(np.asarray(np.asarray(h0) >= 1), "shutoff_head_pu must be >= 1")
-    _require(np.asarray((np.asarray(static_head_frac) >= 0) & (np.asarray(static_head_frac) <= 1)), "static_head_frac must lie in [0, 1]")
-    return np.sqrt((static_head_frac + (h0 - static_head_frac) * flow_frac**2) / h0)
+    q, wrap, _ = _unwrap(flow_frac)
+    h0 = np.asarray(shutoff_head_pu, dtype=float)
+    h_s = np.asarray(static_head_frac, dtype=float)
+    _require(h0 >= 1, "shutoff_head_pu must be >= 1")
+    _require((h_s >= 0) & (h_s <= 1), "static_head_frac must lie in [0, 1]")
+    return wrap(np.sqrt((h_s + (h0 - h_s) * q**2) / h0))
 
 
 def pump_efficiency_ratio(flow_frac, speed_frac):
@@ -531,8 +535,11 @@ def pump_efficiency_ratio(flow_frac, speed_frac):
     efficiency with speed itself (Reynolds-number effects), so on a pure-friction system (x = 1) it
     reproduces the cube law.
     """
-    x = flow_frac / speed_frac
-    return x * (2.0 - x)
+    q, wrap, _ = _unwrap(flow_frac)
+    r = np.asarray(speed_frac, dtype=float)
+    _require(r > 0, "speed_frac must be positive")
+    x = q / r
+    return wrap(x * (2.0 - x))
 
 
 def speed_controlled_shaft_frac(flow_frac, static_head_frac, shutoff_head_pu=DEFAULT_SHUTOFF_HEAD_PU):
@@ -670,7 +677,8 @@ def speed_rise_effect(ref_shaft_p_kw, new_shaft_p_kw, interval_h=1.0) -> SpeedRi
     p_new, _, _ = _unwrap(new_shaft_p_kw)
     dt, _, _ = _unwrap(interval_h)
     _require(dt > 0, "interval_h must be positive")
-    _require(np.asarray(p_ref.shape == p_new.shape), "ref_shaft_p_kw and new_shaft_p_kw must have the same shape")
+    if p_ref.shape != p_new.shape:
+        raise ValueError(f"ref_shaft_p_kw and new_shaft_p_kw must have the same shape, got {p_ref.shape} and {p_new.shape}.")
     extra = p_new - p_ref
     axis = None if p_ref.ndim == 0 else (0 if kind == "frame" else -1)
     energy_extra = np.sum(extra * dt, axis=axis)
