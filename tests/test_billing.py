@@ -1,0 +1,474 @@
+"""Tests for models.billing: hand-calculated bills for each clause, equivalences, invariants, input kinds.
+
+Sources: hand calculations in docs/derivations/billing-energy.md, billing-demand.md, billing-reactive.md,
+billing-fixed-taxes.md and billing-equivalences.md (published values from REFERENCES §11).
+Tolerances: hand calculations are exact to the cent unless a square root is involved; amounts are
+compared to 1e-9 (floating-point summation only) unless stated otherwise.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from numpy.testing import assert_allclose
+
+from models.billing import (
+    bill,
+    bill_many,
+    bill_total,
+    excess_kvarh,
+    interval_hours,
+    pf_adjusted_demand_kw,
+    percent_adjusted_demand_kw,
+)
+from models.tariff import tariff_from_dict
+
+from test_tariff import TARIFF_E
+
+TARIFF_DIR = Path(__file__).resolve().parents[1] / "data" / "tariffs"
+EXACT = dict(rtol=0, atol=1e-9)  # sums of a few products of exact decimals: only float rounding
+
+
+def load(text: str):
+    t, problems = tariff_from_dict(tomllib.loads(text), source="test.toml")
+    assert t is not None, [str(p) for p in problems]
+    return t
+
+
+def example(name: str):
+    with open(TARIFF_DIR / name, "rb") as f:
+        t, problems = tariff_from_dict(tomllib.load(f), source=name)
+    assert t is not None, problems
+    return t
+
+
+def amounts(b: pd.DataFrame) -> dict[str, float]:
+    return b.groupby("line_item", sort=False)["amount"].sum().to_dict()
+
+
+def quantity(b: pd.DataFrame, item: str, month: str | None = None) -> float:
+    rows = b[(b["line_item"] == item) & ((b["month"] == month) if month else True)]
+    assert len(rows) >= 1, f"{item} not in bill"
+    return float(rows["quantity"].sum())
+
+
+HEAD = '[tariff]\nname = "t"\ncurrency = "EUR"\n'
+FLAT = HEAD + '[[periods]]\ncode = "all"\n'
+
+
+# --------------------------------------------------------------------------------------------------
+# Energy
+# --------------------------------------------------------------------------------------------------
+
+
+class TestEnergy:
+    def test_tou_window_crossing_midnight(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E1
+        idx = pd.date_range("2025-01-03 20:00", periods=8, freq="h", tz="Europe/Berlin")
+        b = bill(load(TARIFF_E), idx, np.arange(1, 9) * 100.0, np.zeros(8))
+        a = amounts(b)
+        assert_allclose([a["energy:day-w"], a["energy:night"], a["energy:weekend"]], [60.0, 70.0, 208.0], **EXACT)
+        assert_allclose(bill_total(b), 338.0, **EXACT)
+
+    def test_holiday_priced_as_weekend(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E2
+        idx = pd.date_range("2025-01-01 22:00", periods=4, freq="h", tz="Europe/Berlin")
+        a = amounts(bill(load(TARIFF_E), idx, np.full(4, 100.0), np.zeros(4)))
+        assert_allclose([a["energy:weekend"], a["energy:night"]], [16.0, 20.0], **EXACT)
+
+    def test_season_boundary_splits_months(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E3
+        idx = pd.date_range("2025-03-31 20:00", periods=12, freq="h", tz="Europe/Berlin")
+        b = bill(load(TARIFF_E), idx, np.full(12, 100.0), np.zeros(12))
+        by_month = b.groupby("month")["amount"].sum()
+        assert list(by_month.index) == ["2025-03", "2025-04"]
+        assert_allclose(by_month.to_numpy(), [60.0, 110.0], **EXACT)
+        assert_allclose(quantity(b, "energy:day-s", "2025-04"), 200.0, **EXACT)
+        # a period with no interval in a month is not listed in that month
+        assert b[(b["month"] == "2025-03") & (b["line_item"] == "energy:day-s")].empty
+
+    def test_kvah_energy(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E4
+        t = load(FLAT + "[energy]\nprice_per_kvah = { all = 0.10 }")
+        idx = pd.date_range("2025-01-06", periods=4, freq="15min", tz="UTC")
+        b = bill(t, idx, [300.0, 300.0, 400.0, 0.0], [400.0, -400.0, 300.0, 100.0])
+        assert b["unit"].tolist() == ["kVAh"]
+        assert_allclose(quantity(b, "energy:all"), 400.0, **EXACT)
+        assert_allclose(bill_total(b), 40.0, **EXACT)
+
+    def test_spring_forward_day_has_23_hours(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E5
+        idx = pd.date_range("2025-03-30", "2025-03-31", freq="15min", tz="Europe/Berlin", inclusive="left")
+        b = bill(load(TARIFF_E), idx, np.full(len(idx), 100.0), np.zeros(len(idx)))
+        assert_allclose(quantity(b, "energy:weekend"), 2300.0, **EXACT)
+        assert_allclose(bill_total(b), 184.0, **EXACT)
+
+    def test_export_is_not_credited(self):
+        # format rule (docs/tariffs.md): only import is billed; 100 kW for 1 h then −100 kW for 1 h = 100 kWh
+        t = load(FLAT + "[energy]\nprice_per_kwh = { all = 0.10 }")
+        idx = pd.date_range("2025-01-06", periods=2, freq="h", tz="UTC")
+        assert_allclose(bill_total(bill(t, idx, [100.0, -100.0], [0.0, 0.0])), 10.0, **EXACT)
+
+
+# --------------------------------------------------------------------------------------------------
+# Demand
+# --------------------------------------------------------------------------------------------------
+
+D1_P = [100.0, 300.0, 260.0, 220.0, 400.0, 100.0, 250.0, 150.0]
+D1_Q = [0.0, 0.0, 0.0, 0.0, 300.0, 300.0, 0.0, 0.0]
+D1_PERIODS = HEAD + """
+[[periods]]
+code = "peak"
+days = ["weekday"]
+hours = ["08:00-09:00"]
+[[periods]]
+code = "off"
+days = ["weekday"]
+hours = ["09:00-08:00"]
+[[periods]]
+code = "off"
+days = ["saturday", "sunday"]
+"""
+
+
+def d1_index():
+    return pd.date_range("2025-01-06 08:00", periods=8, freq="15min", tz="UTC")
+
+
+class TestDemand:
+    @pytest.mark.parametrize(
+        "clause, expected_qty, expected_amount",
+        [
+            # hand calculation, see docs/derivations/billing-demand.md, case D1
+            ("price_per_kw_month = 10.0\nwindow_min = 30", 250.0, 2500.0),
+            ("price_per_kw_month = 10.0\nwindow_min = 30\nperiods = [\"peak\"]", 240.0, 2400.0),
+            ("price_per_kw_month = 10.0\nwindow_min = 15", 400.0, 4000.0),
+        ],
+    )
+    def test_windows_and_periods(self, clause, expected_qty, expected_amount):
+        t = load(D1_PERIODS + '[[demand]]\nname = "d"\n' + clause)
+        b = bill(t, d1_index(), D1_P, D1_Q)
+        assert_allclose(quantity(b, "demand:d"), expected_qty, **EXACT)
+        assert_allclose(bill_total(b), expected_amount, **EXACT)
+
+    def test_kva_demand(self):
+        # hand calculation, see docs/derivations/billing-demand.md, case D1: sqrt(152 500) = 390.5125 kVA;
+        # the derivation rounds to 4 decimals, hence atol 1e-4 kVA and 1e-3 EUR
+        t = load(D1_PERIODS + '[[demand]]\nname = "d"\nprice_per_kva_month = 8.0\nwindow_min = 30')
+        b = bill(t, d1_index(), D1_P, D1_Q)
+        assert b["unit"].tolist() == ["kVA"]
+        assert_allclose(quantity(b, "demand:d"), 390.5125, atol=1e-4)
+        assert_allclose(bill_total(b), 3124.10, atol=1e-3)
+
+    def test_pf_adjustment_ratio_800_kw_at_0_80(self):
+        # hand calculation, see docs/derivations/billing-demand.md, case D2 (REFERENCES §11: 800 kW at PF 0.80 → 900 kW)
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\n'
+                 '[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 0.90')
+        idx = pd.date_range("2025-01-06", periods=4, freq="h", tz="UTC")
+        a = amounts(bill(t, idx, np.full(4, 800.0), np.full(4, 600.0)))
+        assert_allclose([a["demand:d"], a["pf adjustment:d"]], [8000.0, 1000.0], atol=1e-9)
+
+    @pytest.mark.parametrize(
+        "round_up, expected_kw",
+        [
+            (False, 810.937),  # hand calculation, docs/derivations/billing-demand.md, case D3 (3 decimals shown)
+            (True, 816.0),  # hand calculation, same case, 2 whole points
+        ],
+    )
+    def test_pf_adjustment_percent_per_point(self, round_up, expected_kw):
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nwindow_min = 60\n'
+                 '[demand.power_factor_adjustment]\nmethod = "percent_per_point"\ntarget_power_factor = 0.95\n'
+                 f'percent_per_point = 1.0\nround_points_up = {"true" if round_up else "false"}')
+        idx = pd.date_range("2025-01-06", periods=2, freq="h", tz="UTC")
+        b = bill(t, idx, [800.0, 800.0], [600.0, 0.0])
+        billed = quantity(b, "demand:d") + quantity(b, "pf adjustment:d")
+        assert_allclose(billed, expected_kw, atol=5e-4)  # derivation shows 3 decimals
+
+    @pytest.mark.parametrize(
+        "source, expected_kw",
+        [
+            ("peak_window", 900.0),  # hand calculation, docs/derivations/billing-demand.md, case D4
+            ("month_average", 906.690),  # same case, 3 decimals shown
+        ],
+    )
+    def test_pf_from_peak_window_or_month_average(self, source, expected_kw):
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nwindow_min = 60\n'
+                 '[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 0.95\n'
+                 f'power_factor_from = "{source}"')
+        idx = pd.date_range("2025-01-06", periods=2, freq="h", tz="UTC")
+        b = bill(t, idx, [900.0, 800.0], [0.0, 600.0])
+        assert_allclose(quantity(b, "demand:d") + quantity(b, "pf adjustment:d"), expected_kw, atol=5e-4)
+
+    def test_ratchet(self):
+        # hand calculation, see docs/derivations/billing-demand.md, case D5
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\nratchet_frac = 0.8\nratchet_months = 2')
+        idx = pd.date_range("2025-01-01", "2025-05-01", freq="h", tz="UTC", inclusive="left")
+        p = pd.Series(100.0, index=idx)
+        for stamp, peak in [("2025-01-15 10:00", 1000.0), ("2025-02-15 10:00", 500.0), ("2025-03-15 10:00", 700.0), ("2025-04-15 10:00", 300.0)]:
+            p[pd.Timestamp(stamp, tz="UTC")] = peak
+        b = bill(t, idx, p, np.zeros(len(idx)))
+        ratchet = b[b["line_item"] == "ratchet:d"].set_index("month")
+        assert_allclose(ratchet["quantity"].to_numpy(), [0.0, 300.0, 100.0, 260.0], **EXACT)
+        assert_allclose(ratchet["amount"].to_numpy(), [0.0, 3000.0, 1000.0, 2600.0], **EXACT)
+        assert list(ratchet.index) == ["2025-01", "2025-02", "2025-03", "2025-04"]
+
+    @pytest.mark.parametrize("repeat_year, expected_jan_kw", [(False, 100.0), (True, 800.0)])
+    def test_ratchet_of_a_repeated_year(self, repeat_year, expected_jan_kw):
+        # hand calculation, see docs/derivations/billing-demand.md, case D6
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nwindow_min = 60\nratchet_frac = 0.8\nratchet_months = 11')
+        idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        p = np.full(len(idx), 100.0)
+        p[idx.get_loc(pd.Timestamp("2025-12-10 12:00", tz="UTC"))] = 1000.0
+        b = bill(t, idx, p, np.zeros(len(idx)), repeat_year=repeat_year)
+        jan = b[b["month"] == "2025-01"]
+        assert_allclose(jan["quantity"].sum(), expected_jan_kw, **EXACT)
+
+    def test_repeat_year_needs_twelve_months(self):
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nratchet_frac = 0.8\nratchet_months = 11')
+        idx = pd.date_range("2025-01-01", periods=48, freq="h", tz="UTC")
+        with pytest.raises(ValueError, match="12 billing months"):
+            bill(t, idx, np.ones(48), np.zeros(48), repeat_year=True)
+
+    def test_seasonal_demand_charge_only_in_its_months(self):
+        t = load(
+            HEAD
+            + '[[seasons]]\nname = "w"\nmonths = [1,2,3,10,11,12]\n[[seasons]]\nname = "s"\nmonths = [4,5,6,7,8,9]\n'
+            + '[[periods]]\ncode = "all"\n[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nseasons = ["s"]'
+        )
+        idx = pd.date_range("2025-03-31 23:00", periods=2, freq="h", tz="UTC")
+        b = bill(t, idx, [500.0, 100.0], [0.0, 0.0])
+        # March is outside the season: no line; April's only interval is 100 kW
+        assert b["month"].tolist() == ["2025-04"]
+        assert_allclose(quantity(b, "demand:d"), 100.0, **EXACT)
+
+
+class TestDemandEquations:
+    def test_480_kw_at_0_82(self):
+        # REFERENCES §11: 480 kW at PF 0.82 with 0.90/PF → 526.8 kW (billing-equivalences.md: 526.83)
+        assert_allclose(pf_adjusted_demand_kw(480.0, 0.82, 0.90), 526.83, atol=5e-3)
+
+    def test_800_kw_at_0_80(self):
+        # REFERENCES §11: 800 kW at PF 0.80 → 900 kW
+        assert_allclose(pf_adjusted_demand_kw(800.0, 0.80, 0.90), 900.0, rtol=1e-12)
+
+    def test_no_adjustment_at_or_above_target(self):
+        # hand calculation, billing-equivalences.md: 500 kW at PF 0.95 → 500 kW
+        assert_allclose(pf_adjusted_demand_kw(np.array([500.0, 500.0]), np.array([0.95, 0.90]), 0.90), [500.0, 500.0], rtol=1e-12)
+
+    def test_percent_per_point(self):
+        # hand calculation, billing-equivalences.md: 1 000 kW at PF 0.905, 1 %/point below 0.95 → 1 045 / 1 050 kW
+        assert_allclose(percent_adjusted_demand_kw(1000.0, 0.905, 0.95, 1.0), 1045.0, atol=1e-9)
+        assert_allclose(percent_adjusted_demand_kw(1000.0, 0.905, 0.95, 1.0, round_points_up=True), 1050.0, atol=1e-9)
+
+    def test_excess_kvarh(self):
+        # hand calculation, billing-reactive.md, R1 (month): 160 − 0.33 × 400 = 28
+        assert_allclose(excess_kvarh(160.0, 400.0, 0.33), 28.0, atol=1e-12)
+        assert_allclose(excess_kvarh(100.0, 400.0, 0.33), 0.0, atol=0)
+
+
+# --------------------------------------------------------------------------------------------------
+# Reactive and leading
+# --------------------------------------------------------------------------------------------------
+
+AB_PERIODS = HEAD + '[[periods]]\ncode = "A"\nhours = ["00:00-12:00"]\n[[periods]]\ncode = "B"\nhours = ["12:00-24:00"]\n'
+
+
+def r_index():
+    return pd.date_range("2025-01-06 10:00", periods=4, freq="h", tz="UTC")
+
+
+class TestReactive:
+    @pytest.mark.parametrize(
+        "scope, expected_kvarh",
+        [("month", 28.0), ("interval", 84.0), ("period", 34.0)],  # hand calculation, billing-reactive.md, case R1
+    )
+    def test_allowance_netting(self, scope, expected_kvarh):
+        t = load(AB_PERIODS + f'[[reactive]]\nname = "r"\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\nallowance_per = "{scope}"')
+        b = bill(t, r_index(), np.full(4, 100.0), [0.0, 100.0, 50.0, 10.0])
+        assert_allclose(quantity(b, "reactive:r"), expected_kvarh, atol=1e-9)
+        assert_allclose(bill_total(b), expected_kvarh * 0.01, atol=1e-12)
+
+    def test_allowance_as_power_factor(self):
+        # hand calculation, billing-reactive.md, case R1: free_power_factor 0.9496 → 27.96 kVArh (2 decimals shown)
+        t = load(AB_PERIODS + '[[reactive]]\nname = "r"\nprice_per_kvarh = 0.01\nfree_power_factor = 0.9496')
+        b = bill(t, r_index(), np.full(4, 100.0), [0.0, 100.0, 50.0, 10.0])
+        assert_allclose(quantity(b, "reactive:r"), 27.96, atol=5e-3)
+
+    def test_leading_does_not_offset_lagging(self):
+        # hand calculation, billing-reactive.md, case R2
+        t = load(AB_PERIODS + '[[reactive]]\nname = "r"\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33')
+        b = bill(t, r_index(), np.full(4, 100.0), [0.0, 100.0, 50.0, -40.0])
+        assert_allclose(quantity(b, "reactive:r"), 18.0, atol=1e-9)
+        assert_allclose(bill_total(b), 0.18, atol=1e-12)
+
+    def test_leading_charge_and_ban_in_one_period(self):
+        # hand calculation, billing-reactive.md, case R3
+        t = load(
+            AB_PERIODS
+            + '[[reactive]]\nname = "r"\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\n'
+            + '[[leading]]\nname = "night"\nprice_per_kvarh = 0.02\nbanned = true\nperiods = ["B"]'
+        )
+        b = bill(t, r_index(), np.full(4, 100.0), [-30.0, 100.0, -50.0, -40.0])
+        row = b[b["line_item"] == "leading:night"].iloc[0]
+        assert_allclose([row["quantity"], row["amount"]], [90.0, 1.80], atol=1e-9)
+        assert bool(row["flag"]) and row["unit"] == "kVArh"
+        assert_allclose(quantity(b, "reactive:r"), 0.0, atol=0)
+        assert not b.loc[b["line_item"] != "leading:night", "flag"].any()
+
+    def test_ban_not_flagged_without_leading(self):
+        t = load(AB_PERIODS + '[[leading]]\nname = "n"\nbanned = true\nperiods = ["B"]')
+        b = bill(t, r_index(), np.full(4, 100.0), [-30.0, 10.0, 10.0, 10.0])  # leading only in period A
+        assert not b["flag"].any()
+
+    def test_example_c_flags_leading_at_night(self):
+        t = example("example_pf_adjusted_demand.toml")
+        idx = pd.date_range("2025-01-07 20:00", periods=4, freq="h", tz="America/Chicago")  # Tuesday, night from 21:00
+        b = bill(t, idx, np.full(4, 500.0), [-100.0, -100.0, 50.0, 50.0])
+        row = b[b["line_item"] == "leading:night leading kVArh"].iloc[0]
+        # hand count: only the 21:00 interval is leading and at night: 100 kVArh × 0.02 USD
+        assert_allclose([row["quantity"], row["amount"]], [100.0, 2.0], atol=1e-9)
+        assert bool(row["flag"])
+
+
+# --------------------------------------------------------------------------------------------------
+# Fixed charges and taxes
+# --------------------------------------------------------------------------------------------------
+
+
+class TestFixedAndTaxes:
+    TEXT = FLAT + (
+        '[energy]\nprice_per_kwh = { all = 0.10 }\n[[fixed]]\nname = "standing"\ncharge_per_month = 50.0\n'
+        '[[taxes]]\nname = "levy"\nrate_pct = 5.0\nbase = "energy_charges"\n'
+        '[[taxes]]\nname = "VAT"\nrate_pct = 20.0\nbase = "{base}"\n'
+    )
+
+    def test_fixed_levy_and_vat_on_earlier_taxes(self):
+        # hand calculation, see docs/derivations/billing-fixed-taxes.md
+        t = load(self.TEXT.replace("{base}", "all_charges_and_earlier_taxes"))
+        idx = pd.date_range("2025-01-31 23:00", periods=2, freq="h", tz="UTC")
+        b = bill(t, idx, [1000.0, 1000.0], [0.0, 0.0])
+        by_month = b.groupby("month")["amount"].sum()
+        assert_allclose(by_month.to_numpy(), [186.0, 186.0], **EXACT)
+        jan = b[b["month"] == "2025-01"].set_index("line_item")
+        assert_allclose(jan.loc["tax:VAT", ["quantity", "rate", "amount"]].to_numpy(dtype=float), [155.0, 0.20, 31.0], **EXACT)
+        assert jan.loc["tax:VAT", "unit"] == "EUR"
+
+    def test_vat_on_charges_only(self):
+        # hand calculation, billing-fixed-taxes.md: VAT on all_charges → 185.00 per month
+        t = load(self.TEXT.replace("{base}", "all_charges"))
+        idx = pd.date_range("2025-01-31 23:00", periods=2, freq="h", tz="UTC")
+        assert_allclose(bill_total(bill(t, idx, [1000.0, 1000.0], [0.0, 0.0])), 370.0, **EXACT)
+
+
+# --------------------------------------------------------------------------------------------------
+# Invariants
+# --------------------------------------------------------------------------------------------------
+
+EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml"]
+
+
+@st.composite
+def meter_series(draw):
+    n = draw(st.integers(min_value=4, max_value=96 * 3))
+    start = draw(st.datetimes(min_value=pd.Timestamp("2025-01-01").to_pydatetime(), max_value=pd.Timestamp("2025-12-20").to_pydatetime()))
+    freq = draw(st.sampled_from(["15min", "30min", "h"]))
+    seed = draw(st.integers(min_value=0, max_value=2**32 - 1))
+    rng = np.random.default_rng(seed)
+    p = rng.uniform(-50.0, 2000.0, n)
+    q = rng.uniform(-800.0, 1500.0, n)
+    return pd.Timestamp(start).floor("h"), freq, p, q
+
+
+class TestInvariants:
+    @settings(max_examples=40, deadline=None)
+    @given(series=meter_series(), name=st.sampled_from(EXAMPLES))
+    def test_total_is_sum_of_items_and_amount_is_quantity_times_rate(self, series, name):
+        start, freq, p, q = series
+        t = example(name)
+        idx = pd.date_range(start, periods=len(p), freq=freq, tz=t.time_zone)
+        b = bill(t, idx, p, q)
+        assert_allclose(b["amount"].to_numpy(), (b["quantity"] * b["rate"]).to_numpy(), rtol=1e-12, atol=1e-9)
+        many = bill_many(t, idx, np.vstack([p, 0.5 * p]), np.vstack([q, 0.5 * q]))
+        # bill_many row 0 is the same series: same total, and its items sum to its total
+        assert_allclose(many["total"].iloc[0], bill_total(b), rtol=1e-10)
+        items = many.drop(columns="total")
+        assert_allclose(items.sum(axis=1).to_numpy(), many["total"].to_numpy(), rtol=1e-12)
+        assert (b["amount"] >= -1e-9).all()  # prices >= 0 give charges >= 0
+
+    def test_scenarios_are_priced_independently(self):
+        t = example(EXAMPLES[0])
+        idx = pd.date_range("2025-01-01", periods=96 * 40, freq="15min", tz=t.time_zone)
+        rng = np.random.default_rng(7)
+        p = rng.uniform(100, 900, (5, len(idx)))
+        q = rng.uniform(0, 600, (5, len(idx)))
+        order = [3, 0, 4, 1, 2]
+        a = bill_many(t, idx, p, q)
+        b = bill_many(t, idx, p[order], q[order])
+        assert_allclose(b.to_numpy(), a.to_numpy()[order], rtol=1e-12)
+
+
+# --------------------------------------------------------------------------------------------------
+# Input kinds and invalid input
+# --------------------------------------------------------------------------------------------------
+
+
+class TestInputs:
+    def flat(self):
+        return load(FLAT + '[energy]\nprice_per_kwh = { all = 0.10 }')
+
+    @pytest.mark.parametrize("freq, hours", [("15min", 0.25), ("30min", 0.5), ("h", 1.0)])
+    def test_interval_length_is_inferred(self, freq, hours):
+        idx = pd.date_range("2025-01-06", periods=4, freq=freq, tz="UTC")
+        assert interval_hours(idx) == hours
+        # 100 kW for 4 intervals: 400 × hours kWh at 0.10 EUR
+        assert_allclose(bill_total(bill(self.flat(), idx, np.full(4, 100.0), np.zeros(4))), 40.0 * hours, **EXACT)
+
+    def test_series_inputs(self):
+        idx = pd.date_range("2025-01-06", periods=4, freq="h", tz="UTC")
+        b = bill(self.flat(), idx, pd.Series(100.0, index=idx), pd.Series(0.0, index=idx))
+        assert_allclose(bill_total(b), 40.0, **EXACT)
+
+    def test_single_interval_needs_interval_h(self):
+        idx = pd.date_range("2025-01-06", periods=1, freq="h", tz="UTC")
+        with pytest.raises(ValueError, match="interval_h"):
+            bill(self.flat(), idx, [100.0], [0.0])
+        assert_allclose(bill_total(bill(self.flat(), idx, [100.0], [0.0], interval_h=0.5)), 5.0, **EXACT)
+
+    @pytest.mark.parametrize(
+        "idx, match",
+        [
+            (pd.date_range("2025-01-06", periods=3, freq="h"), "tz-aware"),
+            (pd.DatetimeIndex(["2025-01-06 00:00", "2025-01-06 01:00", "2025-01-06 03:00"]).tz_localize("UTC"), "regular"),
+            (pd.DatetimeIndex(["2025-01-06 02:00", "2025-01-06 01:00", "2025-01-06 00:00"]).tz_localize("UTC"), "increasing"),
+        ],
+    )
+    def test_bad_index_raises(self, idx, match):
+        with pytest.raises(ValueError, match=match):
+            bill(self.flat(), idx, np.ones(3), np.zeros(3))
+
+    def test_wrong_length_and_nan_raise(self):
+        idx = pd.date_range("2025-01-06", periods=3, freq="h", tz="UTC")
+        with pytest.raises(ValueError, match="3 values"):
+            bill(self.flat(), idx, np.ones(4), np.zeros(4))
+        with pytest.raises(ValueError, match="NaN"):
+            bill(self.flat(), idx, [1.0, np.nan, 1.0], np.zeros(3))
+
+    def test_bill_refuses_several_scenarios(self):
+        idx = pd.date_range("2025-01-06", periods=3, freq="h", tz="UTC")
+        with pytest.raises(ValueError, match="bill_many"):
+            bill(self.flat(), idx, np.ones((2, 3)), np.zeros((2, 3)))
+
+    def test_zero_load_gives_fixed_charges_only(self):
+        t = load(FLAT + '[energy]\nprice_per_kwh = { all = 0.10 }\n[[fixed]]\nname = "f"\ncharge_per_month = 12.5\n'
+                 '[[demand]]\nname = "d"\nprice_per_kw_month = 9.0\n'
+                 '[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 0.9')
+        idx = pd.date_range("2025-01-06", periods=8, freq="15min", tz="UTC")
+        b = bill(t, idx, np.zeros(8), np.zeros(8))
+        # hand calculation: nothing drawn, PF taken as 1 (no adjustment), only the fixed 12.50
+        assert_allclose(bill_total(b), 12.5, **EXACT)

@@ -1,0 +1,426 @@
+"""Tests for models.tariff: reading, validation and time-of-use period assignment.
+
+Expected period codes come from the hand-worked tables in docs/derivations/billing-energy.md.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+from models.tariff import (
+    HourWindow,
+    PeriodRule,
+    Season,
+    Tariff,
+    assign_periods,
+    assign_seasons,
+    check_tariff,
+    day_types,
+    tariff_from_dict,
+)
+
+TARIFF_DIR = Path(__file__).resolve().parents[1] / "data" / "tariffs"
+
+# Tariff E of docs/derivations/billing-energy.md.
+TARIFF_E = """
+[tariff]
+name = "E"
+currency = "EUR"
+time_zone = "Europe/Berlin"
+
+[calendar]
+holidays = [2025-01-01]
+
+[[seasons]]
+name = "winter"
+months = [1, 2, 3, 10, 11, 12]
+
+[[seasons]]
+name = "summer"
+months = [4, 5, 6, 7, 8, 9]
+
+[[periods]]
+code = "day-w"
+seasons = ["winter"]
+days = ["weekday"]
+hours = ["06:00-22:00"]
+
+[[periods]]
+code = "day-s"
+seasons = ["summer"]
+days = ["weekday"]
+hours = ["06:00-22:00"]
+
+[[periods]]
+code = "night"
+days = ["weekday"]
+hours = ["22:00-06:00"]
+
+[[periods]]
+code = "weekend"
+days = ["saturday", "sunday", "holiday"]
+
+[energy]
+price_per_kwh = { day-w = 0.20, day-s = 0.25, night = 0.10, weekend = 0.08 }
+"""
+
+
+def load(text: str, source: str = "test.toml"):
+    return tariff_from_dict(tomllib.loads(text), source=source)
+
+
+def tariff_e() -> Tariff:
+    t, problems = load(TARIFF_E)
+    assert problems == []
+    return t
+
+
+def columns(problems) -> list[str]:
+    return [p.column for p in problems]
+
+
+class TestExampleFiles:
+    @pytest.mark.parametrize("name", sorted(p.name for p in TARIFF_DIR.glob("*.toml")))
+    def test_example_tariff_is_valid(self, name):
+        with open(TARIFF_DIR / name, "rb") as f:
+            t, problems = tariff_from_dict(tomllib.load(f), source=name)
+        assert problems == []
+        assert t is not None
+
+    def test_there_are_three_examples_marked_invented(self):
+        files = sorted(TARIFF_DIR.glob("*.toml"))
+        assert len(files) == 3
+        for f in files:
+            head = f.read_text(encoding="utf-8").splitlines()[0]
+            assert head.startswith("#") and "INVENTED" in head.upper()
+
+    def test_examples_cover_required_clauses(self):
+        def read(name):
+            with open(TARIFF_DIR / name, "rb") as f:
+                return tariff_from_dict(tomllib.load(f), source=name)[0]
+
+        a = read("example_tou_kw_reactive_ratchet.toml")
+        assert a.currency == "EUR" and a.demand[0].basis == "kW" and a.demand[0].ratchet_frac is not None
+        assert_allclose(a.reactive[0].free_kvarh_per_kwh, 0.33, rtol=0, atol=0)  # value as written in the file
+        b = read("example_kva_demand.toml")
+        assert b.demand[0].basis == "kVA"
+        c = read("example_pf_adjusted_demand.toml")
+        assert c.currency == "USD" and c.demand[0].power_factor_adjustment.target_power_factor == 0.90
+        assert c.leading[0].banned and c.leading[0].periods == ("night",)
+
+
+class TestAssignPeriods:
+    def test_window_crossing_midnight_friday_into_saturday(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E1
+        idx = pd.date_range("2025-01-03 20:00", periods=8, freq="h", tz="Europe/Berlin")
+        expected = ["day-w", "day-w", "night", "night", "weekend", "weekend", "weekend", "weekend"]
+        assert assign_periods(tariff_e(), idx).tolist() == expected
+
+    def test_holiday_overrides_weekday(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E2
+        idx = pd.date_range("2025-01-01 22:00", periods=4, freq="h", tz="Europe/Berlin")
+        assert assign_periods(tariff_e(), idx).tolist() == ["weekend", "weekend", "night", "night"]
+        assert day_types(tariff_e(), idx).tolist() == [3, 3, 0, 0]
+
+    def test_season_boundary_at_month_change(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E3
+        idx = pd.date_range("2025-03-31 20:00", periods=12, freq="h", tz="Europe/Berlin")
+        expected = ["day-w"] * 2 + ["night"] * 8 + ["day-s"] * 2
+        assert assign_periods(tariff_e(), idx).tolist() == expected
+        assert assign_seasons(tariff_e(), idx).tolist() == ["winter"] * 4 + ["summer"] * 8
+
+    def test_index_in_another_zone_is_converted_to_the_tariff_zone(self):
+        # 2025-01-06 (Monday) 05:00 UTC = 06:00 Berlin (day-w); 04:45 UTC = 05:45 Berlin (night)
+        idx = pd.DatetimeIndex(["2025-01-06 04:45", "2025-01-06 05:00"]).tz_localize("UTC")
+        assert assign_periods(tariff_e(), idx).tolist() == ["night", "day-w"]
+
+    def test_spring_forward_day(self):
+        # hand calculation, see docs/derivations/billing-energy.md, case E5: 23 h = 92 quarter hours
+        idx = pd.date_range("2025-03-30 00:00", "2025-03-31 00:00", freq="15min", tz="Europe/Berlin", inclusive="left")
+        assert len(idx) == 92
+        assert set(assign_periods(tariff_e(), idx).tolist()) == {"weekend"}
+
+    def test_half_hour_window_edges(self):
+        t, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            [[periods]]
+            code = "peak"
+            hours = ["07:30-09:15"]
+            [[periods]]
+            code = "off"
+            hours = ["09:15-07:30"]
+            """
+        )
+        assert problems == []
+        idx = pd.date_range("2025-01-06 07:15", periods=9, freq="15min", tz="UTC")
+        # start included, end excluded: 07:30..09:00 are peak
+        assert assign_periods(t, idx).tolist() == ["off"] + ["peak"] * 7 + ["off"]
+
+    def test_naive_index_raises(self):
+        with pytest.raises(ValueError, match="tz-aware"):
+            assign_periods(tariff_e(), pd.date_range("2025-01-01", periods=3, freq="h"))
+
+    def test_uncovered_time_raises(self):
+        rule = PeriodRule("day", ("all",), ("weekday", "saturday", "sunday"), (HourWindow(360, 1320),))
+        t = Tariff(name="gap", currency="EUR", seasons=(Season("all", tuple(range(1, 13))),), periods=(rule,))
+        with pytest.raises(ValueError, match="falls in no time-of-use period"):
+            assign_periods(t, pd.date_range("2025-01-06 05:00", periods=2, freq="h", tz="UTC"))
+
+
+class TestHourWindow:
+    def test_crossing_midnight_mask(self):
+        w = HourWindow(22 * 60, 6 * 60)
+        mask = w.mask()
+        assert w.crosses_midnight
+        # 2 h before midnight + 6 h after = 8 h = 480 minutes
+        assert mask.sum() == 480
+        assert mask[0] and mask[359] and not mask[360] and mask[1320] and not mask[1319]
+
+    def test_whole_day(self):
+        assert HourWindow(0, 1440).mask().all()
+
+
+class TestValidation:
+    def test_overlap_names_both_rules_and_the_time(self):
+        _, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            [[periods]]
+            code = "peak"
+            days = ["weekday"]
+            hours = ["07:00-11:00"]
+            [[periods]]
+            code = "off"
+            days = ["weekday"]
+            hours = ["10:00-07:00"]
+            [[periods]]
+            code = "off"
+            days = ["saturday", "sunday"]
+            """
+        )
+        overlaps = [p for p in problems if "overlaps" in p.rule]
+        assert len(overlaps) == 1
+        p = overlaps[0]
+        assert p.severity == "error" and p.column == "periods[2].hours" and p.file == "test.toml"
+        assert "periods[1]" in p.rule and "weekday" in p.rule and "10:00-11:00" in p.rule
+
+    def test_missing_hours_are_reported_per_season_and_day_type(self):
+        t, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            [[seasons]]
+            name = "winter"
+            months = [1, 2, 3, 10, 11, 12]
+            [[seasons]]
+            name = "summer"
+            months = [4, 5, 6, 7, 8, 9]
+            [[periods]]
+            code = "peak"
+            days = ["weekday"]
+            hours = ["07:00-11:00"]
+            [[periods]]
+            code = "off"
+            days = ["weekday"]
+            hours = ["11:00-06:00"]
+            [[periods]]
+            code = "off"
+            seasons = ["winter"]
+            days = ["saturday", "sunday"]
+            """
+        )
+        assert t is None
+        gaps = sorted(p.rule for p in problems if p.rule.startswith("no period covers"))
+        assert gaps == [
+            "no period covers season 'summer', saturday, 00:00-24:00",
+            "no period covers season 'summer', sunday, 00:00-24:00",
+            "no period covers season 'summer', weekday, 06:00-07:00",
+            "no period covers season 'winter', weekday, 06:00-07:00",
+        ]
+        assert all(p.column == "periods" for p in problems if p.rule.startswith("no period covers"))
+
+    def test_holiday_day_type_must_be_covered_once_holidays_are_listed(self):
+        _, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            [calendar]
+            holidays = ["2025-12-25"]
+            [[periods]]
+            code = "all"
+            days = ["weekday", "saturday", "sunday"]
+            """
+        )
+        assert [p.rule for p in problems] == ["no period covers season 'all year', holiday, 00:00-24:00"]
+
+    def test_all_problems_are_collected(self):
+        t, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "eur"
+            colour = "blue"
+            [[seasons]]
+            name = "w"
+            months = [1, 2, 3]
+            [[seasons]]
+            name = "s"
+            months = [3, 4, 5, 6, 7, 8, 9, 10, 11]
+            [[periods]]
+            code = "all"
+            days = ["weekday", "funday"]
+            hours = ["25:00-01:00"]
+            [energy]
+            price_per_kwh = { all = -0.2, ghost = 0.1 }
+            [[demand]]
+            price_per_kw_month = 5
+            window_min = 20
+            ratchet_frac = 80
+            ratchet_months = 11
+            [[taxes]]
+            name = "VAT"
+            rate_pct = 120
+            """
+        )
+        assert t is None
+        by_column = {p.column: p for p in problems}
+        assert by_column["tariff.colour"].severity == "warning"
+        for key in (
+            "tariff.currency",
+            "seasons[2].months",
+            "seasons",
+            "periods[1].days",
+            "periods[1].hours",
+            "energy.price_per_kwh.all",
+            "energy.price_per_kwh.ghost",
+            "demand[1].window_min",
+            "demand[1].ratchet_frac",
+            "taxes[1].rate_pct",
+        ):
+            assert by_column[key].severity == "error", key
+        assert "already in season 'w'" in by_column["seasons[2].months"].rule
+        assert by_column["seasons"].value == [12]
+        assert by_column["energy.price_per_kwh.all"].value == -0.2
+        assert by_column["energy.price_per_kwh.all"].hint  # every error carries a hint here
+
+    def test_negative_price_allowed_when_declared(self):
+        _, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            allow_negative_prices = true
+            [[periods]]
+            code = "all"
+            [energy]
+            price_per_kwh = { all = -0.02 }
+            """
+        )
+        assert problems == []
+
+    def test_unknown_keys_warn_with_their_path_and_tariff_still_builds(self):
+        t, problems = load(
+            """
+            [tariff]
+            name = "x"
+            currency = "EUR"
+            [[periods]]
+            code = "all"
+            hour = ["00:00-24:00"]
+            [[demand]]
+            price_per_kw_month = 5.0
+            [demand.power_factor_adjustment]
+            method = "ratio"
+            target_power_factor = 0.9
+            targt = 0.95
+            """
+        )
+        assert t is not None
+        assert [(p.severity, p.column) for p in problems] == [
+            ("warning", "periods[1].hour"),
+            ("warning", "demand[1].power_factor_adjustment.targt"),
+        ]
+
+    @pytest.mark.parametrize(
+        "clause, key, rule_part",
+        [
+            ('[[demand]]\nprice_per_kva_month = 5.0\n[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 0.9',
+             "demand[1].power_factor_adjustment", "kW demand only"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\n[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 1.2',
+             "demand[1].power_factor_adjustment.target_power_factor", "(0, 1]"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\nprice_per_kva_month = 5.0', "demand[1]", "not both"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\nratchet_months = 11', "demand[1].ratchet_frac", "needs ratchet_frac"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\nperiods = ["peak"]', "demand[1].periods", "unknown period"),
+            ('[[reactive]]\nprice_per_kvarh = 0.01', "reactive[1]", "free_kvarh_per_kwh or free_power_factor"),
+            ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 1.5', "reactive[1].free_power_factor", "(0, 1]"),
+            ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\nallowance_per = "week"', "reactive[1].allowance_per", "unknown value"),
+            ('[[taxes]]\nname = "VAT"\nrate_pct = 20\nbase = "everything"', "taxes[1].base", "unknown tax base"),
+            ('[[fixed]]\nname = "a"\ncharge_per_month = 1.0\n[[fixed]]\nname = "a"\ncharge_per_month = 2.0', "fixed[2].name", "duplicate name"),
+            ('[energy]\nprice_per_kwh = { all = "cheap" }', "energy.price_per_kwh", "expected a table of numbers"),
+        ],
+    )
+    def test_clause_errors_name_the_key(self, clause, key, rule_part):
+        text = '[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n' + clause
+        t, problems = load(text)
+        assert t is None
+        match = [p for p in problems if p.column == key and rule_part in p.rule and p.severity == "error"]
+        assert match, [str(p) for p in problems]
+
+    def test_missing_tariff_table_and_currency(self):
+        _, problems = load('[[periods]]\ncode = "all"')
+        assert {"tariff", "tariff.currency"} <= set(columns(problems))
+
+    def test_tax_rate_written_as_fraction_warns(self):
+        t, problems = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n[[taxes]]\nname = "VAT"\nrate_pct = 0.2')
+        assert t is not None and [p.severity for p in problems] == ["warning"]
+
+    def test_check_tariff_on_a_tariff_built_in_code(self):
+        day = PeriodRule("day", ("all",), ("weekday", "saturday", "sunday"), (HourWindow(360, 1320),))
+        night = PeriodRule("night", ("all",), ("weekday",), (HourWindow(1260, 360),))
+        t = Tariff(name="code", currency="EUR", seasons=(Season("all", tuple(range(1, 13))),), periods=(day, night))
+        problems = check_tariff(t, "code")
+        rules = [p.rule for p in problems]
+        assert any("overlaps periods[1]" in r and "21:00-22:00" in r for r in rules)
+        assert "no period covers season 'all', saturday, 22:00-06:00" not in rules  # ranges are runs of the day
+        assert "no period covers season 'all', saturday, 00:00-06:00, 22:00-24:00" in rules
+
+
+class TestAllowanceEquivalences:
+    def test_free_power_factor_0_9285_is_tan_phi_0_4(self):
+        # REFERENCES §11: tan φ = 0.4 ⇔ PF 0.9285 (hand calculation, docs/derivations/billing-equivalences.md);
+        # the PF is published to 4 decimals, so the ratio is good to about 1e-3
+        t, _ = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
+                    '[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 0.9285')
+        assert_allclose(t.reactive[0].free_kvarh_per_kwh, 0.4, atol=1e-3)
+
+    def test_free_power_factor_0_9496_is_0_33_kvarh_per_kwh(self):
+        # REFERENCES §11: 0.33 kVArh/kWh ⇔ PF 0.9496; tan(acos 0.9496) = 0.330101 (billing-reactive.md, R1)
+        t, _ = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
+                    '[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 0.9496')
+        assert_allclose(t.reactive[0].free_kvarh_per_kwh, 0.330101, atol=5e-7)
+
+
+def test_tariff_is_hashable_and_equal_when_read_twice():
+    assert hash(tariff_e()) == hash(tariff_e())
+    assert tariff_e() == tariff_e()
+
+
+def test_holidays_accept_strings_and_dates():
+    a, pa = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[calendar]\nholidays = ["2025-12-25"]\n[[periods]]\ncode = "all"')
+    b, pb = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[calendar]\nholidays = [2025-12-25]\n[[periods]]\ncode = "all"')
+    assert pa == pb == [] and a.holidays == b.holidays
+    idx = pd.DatetimeIndex(["2025-12-25 12:00"]).tz_localize("UTC")
+    assert np.asarray(day_types(a, idx)).tolist() == [3]
