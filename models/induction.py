@@ -452,6 +452,23 @@ def _torque_pu(internal_p_kw, rated_airgap_p_kw, rated_slip_frac):
     return 2.0 * u / (1.0 + np.sqrt(disc))
 
 
+def _torque_pu_fresh(p, p_fw, p_ag_r, s_r) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_torque_pu` of shaft power ``p`` computed in place in two new arrays (y, scratch).
+
+    Both are at least 1-D so that ``out=`` arithmetic works for a single value; callers reshape.
+    """
+    y = np.atleast_1d(np.add(p, p_fw))
+    y /= p_ag_r
+    work = np.multiply(y, -4.0 * s_r)
+    work += 1.0
+    np.maximum(work, 0.0, out=work)
+    np.sqrt(work, out=work)
+    work += 1.0
+    y *= 2.0
+    y /= work
+    return y, work
+
+
 def _aligned(params: InductionParams, kind: str, ndim: int) -> Callable[[str], np.ndarray]:
     """Return a getter that shapes a parameter field to broadcast against a load of ``kind``.
 
@@ -530,15 +547,7 @@ def induction_operating_point(params: InductionParams, shaft_p_kw) -> InductionP
     s_r = get("rated_slip_frac")
     p_ag_r = get("rated_airgap_p_kw")
     shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
-    y = np.atleast_1d(np.add(p, get("friction_windage_kw")))  # 1-D at least, so out= works for one value
-    y /= p_ag_r
-    work = np.multiply(y, -4.0 * s_r)
-    work += 1.0
-    np.maximum(work, 0.0, out=work)
-    np.sqrt(work, out=work)
-    work += 1.0
-    y *= 2.0
-    y /= work  # y = per-unit air-gap power (torque), see _torque_pu
+    y, work = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, s_r)
     s = np.multiply(y, s_r)
     p_ag = np.multiply(y, p_ag_r)
     loss_rcu = np.multiply(s, p_ag)
@@ -600,8 +609,13 @@ def induction_speed_rpm(params: InductionParams, shaft_p_kw):
     p, wrap, kind = _unwrap(shaft_p_kw)
     get = _aligned(params, kind, p.ndim)
     _forbid(p < 0, "shaft_p_kw must not be negative")
-    y = _torque_pu(p + get("friction_windage_kw"), get("rated_airgap_p_kw"), get("rated_slip_frac"))
-    return wrap(get("sync_speed_rpm") * (1.0 - get("rated_slip_frac") * y))
+    p_ag_r = get("rated_airgap_p_kw")
+    shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
+    y, _ = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"))
+    y *= -get("rated_slip_frac")
+    y += 1.0
+    y *= get("sync_speed_rpm")  # n = n_s (1 - s_r y)
+    return wrap(y.reshape(shape))
 
 
 def shaft_from_input_kw(params: InductionParams, p_in_kw):

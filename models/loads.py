@@ -337,32 +337,39 @@ def solve_speed_coupled_load(
     _forbid(p_ref < 0, "ref_shaft_p_kw must not be negative")
     _require(n_ref > 0, "ref_speed_rpm must be positive")
     scale = max(1.0, float(np.nanmax(p_ref, initial=0.0)))
+    shape = np.broadcast_shapes(p_ref.shape, n_ref.shape, np.shape(k))
+    # Work at least 1-D so the in-place passes below also work for a single value; reshape at the end.
+    p_target = np.array(np.broadcast_to(p_ref, shape), dtype=float, ndmin=1)
 
     def new_speed(p: np.ndarray) -> np.ndarray:
-        n = speed_of_new(wrap(p))
+        n = speed_of_new(wrap(p.reshape(shape)))
         n = np.asarray(n.to_numpy() if hasattr(n, "to_numpy") else n, dtype=float)
         _require(~(n <= 0), "speed_of_new returned a non-positive speed")
-        return n
+        return np.broadcast_to(n.reshape(n.shape if n.ndim else (1,) * p.ndim), p.shape)
 
-    p = p_ref.copy()
-    known = ~np.isnan(p_ref)  # missing data propagates as NaN and does not block convergence
+    p = p_target.copy()
+    known = ~np.isnan(p_target)  # missing data propagates as NaN and does not block convergence
     for _ in range(MAX_COUPLING_ITERATIONS):
         with np.errstate(over="ignore", invalid="ignore"):
-            p_next = p_ref * (new_speed(p) / n_ref) ** k
-            err = np.abs(p_next - p)
+            p_next = np.divide(new_speed(p), n_ref)  # in place below: one fleet-sized allocation per pass
+            np.power(p_next, k, out=p_next)
+            p_next *= p_target
+            np.subtract(p_next, p, out=p)
+            np.abs(p, out=p)  # p now holds the change of this pass
+            converged = not np.any(known & ~(p <= tol_kw * scale))
         p = p_next
-        if not np.any(known & ~(err <= tol_kw * scale)):
+        if converged:
             break
     else:
         raise ValueError(
             "speed-coupled load did not converge; the new machine's speed-vs-load relation is far "
             "steeper than a motor's slip (check speed_of_new)"
         )
-    n_final = np.broadcast_to(new_speed(p), p.shape)
+    n_final = np.array(new_speed(p))
     return SpeedCoupledLoad(
-        shaft_p_kw=wrap(p),
-        speed_rpm=wrap(np.array(n_final)),
-        speed_ratio=wrap(np.broadcast_to(n_final / n_ref, p.shape).copy()),
+        shaft_p_kw=wrap(p.reshape(shape)),
+        speed_rpm=wrap(n_final.reshape(shape)),
+        speed_ratio=wrap(np.divide(n_final, n_ref).reshape(shape)),
     )
 
 
