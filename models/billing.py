@@ -426,8 +426,9 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     h = cal.interval_h
     p_imp = np.maximum(p, 0.0)
     kwh = p_imp * h
-    lag = np.maximum(q, 0.0) * h
-    lead = np.maximum(-q, 0.0) * h
+    needs_lag = bool(tariff.reactive) or any(d.power_factor_adjustment is not None for d in tariff.demand)
+    lag = np.maximum(q, 0.0) * h if needs_lag else None
+    lead = np.maximum(-q, 0.0) * h if tariff.leading else None
     every_month = np.ones(n_m, dtype=bool)
     no_flag = np.zeros((n_s, n_m), dtype=bool)
     items: list[_Item] = []
@@ -456,7 +457,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
 
     if tariff.demand:
         kwh_month = _by_month(cal, kwh)
-        lag_month = _by_month(cal, lag)
+        lag_month = _by_month(cal, lag) if lag is not None else None
         for d in tariff.demand:
             items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year))
 
