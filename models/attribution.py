@@ -88,16 +88,23 @@ def _deltas(x, n_steps: int, name: str) -> np.ndarray:
 def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, interval_h, repeat_year) -> pd.DataFrame:
     """Bill the site with asset totals p0 + dp[s], q0 + dq[s] for every scenario s, in memory-bounded blocks."""
     n = dp.shape[0]
+    h = interval_h if interval_h is not None else interval_hours(index)
     chunk = max(1, _CHUNK_ELEMENTS // max(len(p0), 1))
     frames = []
     flags: list = []
+    lagging, leading = [], []
     for start in range(0, n, chunk):
         meter = site.meter_from_totals(p0 + dp[start : start + chunk], q0 + dq[start : start + chunk], base_p_kw_profile=base_p_kw_profile)
         f = bill_many(tariff, index, meter.p_kw, meter.q_kvar, interval_h=interval_h, repeat_year=repeat_year)
         flags.extend(f.attrs["flags"])
+        q = np.asarray(meter.q_kvar, dtype=float)
+        lagging.append(np.maximum(q, 0.0).sum(axis=-1) * h)
+        leading.append(np.maximum(-q, 0.0).sum(axis=-1) * h)
         frames.append(f)
     out = pd.concat(frames, ignore_index=True)
     out.attrs["flags"] = flags
+    out.attrs["lagging_kvarh"] = np.concatenate(lagging)
+    out.attrs["leading_kvarh"] = np.concatenate(leading)
     return out
 
 
@@ -150,7 +157,9 @@ def option_savings(
         Indexed by option name: ``baseline_bill``, ``option_bill``, ``saving`` and ``saving_<category>``
         [currency over the series]; ``reactive_saving`` (the saving when only the option's kVAr
         change is applied) and ``other_saving`` (= saving − reactive_saving) [currency];
-        ``max_q_reduction_kvar`` (largest kVAr reduction in any interval) [kVAr]; ``flags`` (line items
+        ``max_q_reduction_kvar`` (largest kVAr reduction in any interval) [kVAr];
+        ``lagging_kvarh_change`` and ``leading_kvarh_change`` (the site meter's kVArh registers, after −
+        before, banks re-switched) [kVArh]; ``flags`` (line items
         flagged with the option in place, e.g. a leading-kVArh ban); and, with a capacitor cost,
         ``equivalent_bank_q_kvar`` [kVAr] and ``equivalent_bank_cost`` [currency].
 
@@ -185,6 +194,8 @@ def option_savings(
     out["reactive_saving"] = float(base["total"].iloc[0]) - reactive_only["total"].to_numpy()
     out["other_saving"] = out["saving"] - out["reactive_saving"]
     out["max_q_reduction_kvar"] = np.maximum((-dq).max(axis=1), 0.0)
+    out["lagging_kvarh_change"] = full.attrs["lagging_kvarh"] - base.attrs["lagging_kvarh"][0]
+    out["leading_kvarh_change"] = full.attrs["leading_kvarh"] - base.attrs["leading_kvarh"][0]
     out["flags"] = full.attrs["flags"]
     if capacitor_cost_per_kvar is not None:
         q_bank = equivalent_capacitor_bank_q_kvar(
@@ -413,7 +424,7 @@ def equivalent_capacitor_bank_q_kvar(
     reactive_saving,
     *,
     site: Site = Site(),
-    n_grid: int = 128,
+    n_grid: int = 256,
     base_p_kw_profile=None,
     interval_h: float | None = None,
     repeat_year: bool = False,

@@ -75,6 +75,9 @@ class TestOptionSavings:
         assert_allclose(r["saving_energy"].to_numpy(), [2.00, 0.0], **EXACT)
         assert_allclose(r["saving_reactive"].to_numpy(), [5.34, 5.40], **EXACT)
         assert_allclose(r["max_q_reduction_kvar"].to_numpy(), [30.0, 30.0], **EXACT)
+        # hand calculation, A1: lagging kVArh 120 → 60 for either option; nothing leads
+        assert_allclose(r["lagging_kvarh_change"].to_numpy(), [-60.0, -60.0], **EXACT)
+        assert_allclose(r["leading_kvarh_change"].to_numpy(), [0.0, 0.0], **EXACT)
 
     def test_equivalent_bank(self):
         # hand calculation, A1: option 2's 5.40 EUR needs a 27 kVAr bank (810 EUR at 30 EUR/kVAr); the grid
