@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from models.efficiency_classes import min_efficiency_pct
+from models.induction import default_rated_slip_frac
 
 #: Starting duty by application (common practice): centrifugal pumps start light, crushers and loaded
 #: conveyors heavy; fans vary with inertia and are taken as normal.
@@ -53,13 +54,6 @@ POWER_FACTOR_4POLE: tuple[tuple[float, float], ...] = (
 )
 POWER_FACTOR_POLE_SHIFT: dict[int, float] = {2: 0.03, 4: 0.0, 6: -0.04, 8: -0.07}
 
-#: Typical full-load slip by rating (Engineering ToolBox, "Slip in electrical induction motors":
-#: 0.5 hp 5 %, 5 hp 3 %, 15 hp 2.5 %, 50 hp 1.7 %, 250 hp 0.8 %), interpolated on log rating.
-TYPICAL_SLIP: tuple[tuple[float, float], ...] = (
-    (0.5 * 0.745699872, 0.05), (5 * 0.745699872, 0.03), (15 * 0.745699872, 0.025),
-    (50 * 0.745699872, 0.017), (250 * 0.745699872, 0.008),
-)
-
 #: Data-quality penalty [points of 100] for each defaulted field.
 QUALITY_PENALTY_PCT: dict[str, float] = {
     "rated_efficiency_pct": 25.0, "rated_power_factor": 10.0, "rated_speed_rpm": 10.0,
@@ -76,29 +70,16 @@ def _interp_log(x: np.ndarray, table: tuple[tuple[float, float], ...]) -> np.nda
 
 
 def typical_slip_frac(rated_p_kw) -> np.ndarray:
-    """Return a typical full-load slip of an induction motor by rating.
+    """Return a typical full-load slip of an induction motor by rating [-].
 
-    Parameters
-    ----------
-    rated_p_kw : array_like
-        Rated output [kW], > 0.
-
-    Returns
-    -------
-    numpy.ndarray
-        Slip [-], interpolated on log rating in the table :data:`TYPICAL_SLIP` and held flat outside it.
-
-    References
-    ----------
-    .. [1] The Engineering ToolBox, "Electrical motors - slip," typical full-load slip by size,
-       retrieved 2026-12-01.
+    Delegates to :func:`models.induction.default_rated_slip_frac` (Engineering ToolBox slip table).
 
     Examples
     --------
     >>> round(float(typical_slip_frac(15 * 0.745699872)), 4)
     0.025
     """
-    return _interp_log(rated_p_kw, TYPICAL_SLIP)
+    return np.asarray(default_rated_slip_frac(np.asarray(rated_p_kw, dtype=float)), dtype=float)
 
 
 def default_power_factor(rated_p_kw, poles) -> np.ndarray:

@@ -1,0 +1,200 @@
+"""Putting every asset's load on one analysis year: interval profiles, duty tables and annual hours.
+
+The machines, the site meter and the bill all work on one time axis: a calendar year in the case's time
+zone at the finest resolution the case's profiles use (15, 30 or 60 min). An interval profile is
+resampled to that resolution (finer data averaged, coarser data held over the interval) and placed on
+the year; intervals it does not cover (gaps, or a profile shorter than a year) take the profile's own
+mean for the same weekday and time of day. A profile from another year is moved by whole weeks so
+weekdays line up. Assets without interval data are described by load states with hours per year (a duty
+table, or annual hours at a mean load) and reach the meter as their expected power in every interval,
+which keeps their energy exact but assumes their demand is spread evenly (flagged).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+#: Analysis year used when the case has no interval profiles.
+DEFAULT_YEAR = 2025
+
+
+@dataclass(frozen=True)
+class LoadStates:
+    """Load of assets without interval data, as states with hours per year.
+
+    Attributes
+    ----------
+    shaft_load_frac : numpy.ndarray
+        Shaft load of each state [-] (fraction of rating), shape (n_assets, n_states), zero-padded.
+    duration_h_per_yr : numpy.ndarray
+        Hours per year in each state [h], same shape; padding states have 0 h.
+    """
+
+    shaft_load_frac: np.ndarray
+    duration_h_per_yr: np.ndarray
+
+
+def analysis_index(profiles: dict[str, pd.Series], time_zone: str, used: set[str] | None = None) -> pd.DatetimeIndex:
+    """Return the analysis year: interval starts over one calendar year in the case zone.
+
+    Parameters
+    ----------
+    profiles : dict of str -> pandas.Series
+        Interval profiles with tz-aware indexes.
+    time_zone : str
+        IANA zone of the case.
+    used : set of str, optional
+        Profile ids that matter (referenced by an asset or site); default all.
+
+    Returns
+    -------
+    pandas.DatetimeIndex
+        Start of each interval, tz-aware, from 1 January 00:00 to 31 December, at the finest resolution
+        of the used profiles (60 min when there are none); the year is the one most intervals fall in.
+
+    Examples
+    --------
+    >>> idx = analysis_index({}, "Europe/Berlin")
+    >>> len(idx), str(idx[0])
+    (8760, '2025-01-01 00:00:00+01:00')
+    """
+    chosen = [s for k, s in profiles.items() if used is None or k in used]
+    if chosen:
+        steps = [int(round(np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index))) for s in chosen]
+        resolution = min(steps)
+        years = np.concatenate([s.index.tz_convert(time_zone).year.to_numpy() for s in chosen])
+        values, counts = np.unique(years, return_counts=True)
+        year = int(values[np.argmax(counts)])
+    else:
+        resolution, year = 60, DEFAULT_YEAR
+    start = pd.Timestamp(year=year, month=1, day=1, tz=time_zone)
+    end = pd.Timestamp(year=year + 1, month=1, day=1, tz=time_zone)
+    return pd.date_range(start, end, freq=f"{resolution}min", inclusive="left")
+
+
+def _unit_per_minute(index: pd.DatetimeIndex) -> float:
+    unit = getattr(index, "unit", "ns")
+    return {"ns": 60e9, "us": 60e6, "ms": 60e3, "s": 60.0}[unit]
+
+
+def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, float]:
+    """Place one interval profile on the analysis index.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Mean values per interval (tz-aware index of interval starts).
+    index : pandas.DatetimeIndex
+        Analysis index (regular, tz-aware).
+
+    Returns
+    -------
+    values : numpy.ndarray
+        Values on ``index``.
+    filled_frac : float
+        Share of the analysis intervals filled from the typical week [-].
+
+    Notes
+    -----
+    Finer data are averaged into each analysis interval; coarser data are held over their interval
+    (a mean power is constant over it). A profile centred on another year is moved by whole weeks
+    (52-week steps, 364 days) to the analysis year so that weekdays line up.
+
+    Examples
+    --------
+    >>> idx = pd.date_range("2025-01-06", periods=4, freq="30min", tz="UTC")
+    >>> s = pd.Series([1.0, 3.0], index=pd.date_range("2025-01-06", periods=2, freq="h", tz="UTC"))
+    >>> conform(s, idx)[0].tolist()
+    [1.0, 1.0, 3.0, 3.0]
+    """
+    zone = index.tz
+    s = series.copy()
+    s.index = s.index.tz_convert(zone)
+    step_min = (index[1] - index[0]).total_seconds() / 60 if len(index) > 1 else 60.0
+    target_year = index[0].year
+    mid = s.index[len(s) // 2]
+    year_shift = target_year - mid.year
+    if year_shift:
+        s.index = s.index + pd.Timedelta(days=364 * year_shift)
+    own_step = np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index)
+    if own_step < step_min - 1e-9:
+        s = s.resample(f"{int(step_min)}min").mean()
+    elif own_step > step_min + 1e-9:
+        fine = pd.date_range(s.index[0], s.index[-1] + pd.Timedelta(minutes=own_step - step_min), freq=f"{int(step_min)}min")
+        s = s.reindex(fine, method="ffill", limit=int(round(own_step / step_min)) - 1)
+    values = s.reindex(index).to_numpy(dtype=float).copy()
+    missing = np.isnan(values)
+    if missing.any():
+        slot = (index.day_of_week.to_numpy() * 1440 + index.hour.to_numpy() * 60 + index.minute.to_numpy())
+        own = s.dropna()
+        own_slot = own.index.day_of_week.to_numpy() * 1440 + own.index.hour.to_numpy() * 60 + own.index.minute.to_numpy()
+        table = pd.Series(own.to_numpy(dtype=float)).groupby(own_slot).mean()
+        fill = table.reindex(slot[missing]).to_numpy()
+        fill = np.where(np.isnan(fill), float(own.mean()) if len(own) else 0.0, fill)
+        values[missing] = fill
+    return values, float(missing.mean())
+
+
+def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, np.ndarray, LoadStates, pd.DataFrame]:
+    """Split a case's assets into interval-profile assets and load-state assets, on the analysis index.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    index : pandas.DatetimeIndex
+        Analysis index from :func:`analysis_index`.
+
+    Returns
+    -------
+    interval_rows : numpy.ndarray of int
+        Positions (in ``case.assets``) of assets with an interval profile.
+    interval_values : numpy.ndarray
+        Their profile values on the index, shape (n_interval, n_steps): shaft load [-] (fraction of
+        rating) or measured input [kW], see ``interval_is_input_kw``.
+    interval_is_input_kw : numpy.ndarray of bool
+        True where the profile is measured input kW (to be turned into shaft load by the existing motor's model).
+    states : LoadStates
+        Load states of every asset (zero hours for interval-profile assets), shape (n_assets, n_states).
+    notes : pandas.DataFrame
+        asset_id, note: data-quality notes (filled intervals, uniform demand assumption).
+    """
+    a = case.assets
+    profile_id = a["profile_id"].to_numpy(dtype=object)
+    is_interval = np.array([p is not None and p in case.profiles for p in profile_id], dtype=bool)
+    interval_rows = np.flatnonzero(is_interval)
+    values = np.zeros((len(interval_rows), len(index)))
+    is_input = np.zeros(len(interval_rows), dtype=bool)
+    notes: list[dict] = []
+    cache: dict[str, tuple[np.ndarray, float]] = {}
+    for k, row in enumerate(interval_rows):
+        pid = profile_id[row]
+        if pid not in cache:
+            cache[pid] = conform(case.profiles[pid], index)
+        v, filled = cache[pid]
+        is_input[k] = case.profiles[pid].name == "input_kw"
+        values[k] = v if is_input[k] else v / 100.0
+        if filled > 0.001:
+            notes.append({"asset_id": a["asset_id"].iloc[row],
+                          "note": f"{100 * filled:.1f} % of the year filled from the profile's typical week"})
+    # load states for the others
+    duty = case.duty
+    n_states = max([1] + [int((duty["profile_id"] == p).sum()) for p in set(duty["profile_id"].dropna())])
+    load = np.zeros((len(a), n_states))
+    hours = np.zeros((len(a), n_states))
+    for row in np.flatnonzero(~is_interval):
+        pid = profile_id[row]
+        if pid is not None and (duty["profile_id"] == pid).any():
+            table = duty[duty["profile_id"] == pid]
+            m = len(table)
+            load[row, :m] = table["shaft_load_pct"].to_numpy(dtype=float) / 100.0
+            hours[row, :m] = table["duration_h_per_yr"].to_numpy(dtype=float)
+        else:
+            load[row, 0] = float(a["mean_load_pct"].iloc[row]) / 100.0
+            hours[row, 0] = float(a["operating_h_per_yr"].iloc[row])
+        notes.append({"asset_id": a["asset_id"].iloc[row],
+                      "note": "no interval data: its demand is spread evenly over the year at the meter"})
+    return interval_rows, values, is_input, LoadStates(load, hours), pd.DataFrame(notes, columns=["asset_id", "note"])
