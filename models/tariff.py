@@ -19,7 +19,7 @@ import datetime as dt
 import functools
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
@@ -364,7 +364,7 @@ class Tariff:
     taxes: tuple[Tax, ...] = ()
     time_zone: str | None = None
     allow_negative_prices: bool = False
-    notes: str = field(default="", compare=True)
+    notes: str = ""
 
     @property
     def period_codes(self) -> tuple[str, ...]:
