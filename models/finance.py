@@ -683,7 +683,8 @@ def irr(cash_flows: Any) -> IrrResult:
     inflows to discounted outflows, whose slope is at least 1 in magnitude, so the root is bracketed from
     the first evaluation. Rows with several sign changes are solved from the eigenvalues of their
     companion matrices (batched), polished by Newton steps; distinct real roots with x > 0 are counted.
-    Zero flows between non-zero ones are allowed; leading zeros (a deferred start) are handled.
+    Zero flows between non-zero ones are allowed; leading zeros (a deferred start) are handled. Flows
+    smaller than 1e-12 of the row's largest are treated as zero.
 
     References
     ----------
@@ -703,6 +704,10 @@ def irr(cash_flows: Any) -> IrrResult:
     c, wrap = _flows(cash_flows)
     shape = c.shape[:-1]
     flat = c.reshape(-1, c.shape[-1])
+    # Flows below 1e-12 of a row's largest cannot move its NPV at working precision (typically residue of
+    # a capital and a credit that cancel); as zeros they cannot fake extra sign changes.
+    scale = np.max(np.abs(flat), axis=1, keepdims=True) if flat.size else np.zeros((0, 1))
+    flat = np.where(np.abs(flat) <= 1e-12 * scale, 0.0, flat)
     rows = flat.shape[0]
     value = np.zeros(rows)
     status = np.full(rows, IRR_UNIQUE, dtype="<U8")
