@@ -1061,9 +1061,19 @@ def _wfsm_kernel(p, v, v_r, r, x, i_ag, r_f, sat, inv_eta_x, fixed, s_max, s_max
     """Elementwise body of :func:`wfsm_operating_point` (SI units inside: W, var, V, A)."""
     p = p * 1e3
     pm = p + fixed
-    p_st = pm
-    p_exc = 0.0
     k_lin = i_ag / v_r
+    # starting point: copper and excitation at the unclipped request (current capped at its ceiling)
+    if all_pf:
+        q0 = tan_set * pm
+    elif all_kvar:
+        q0 = q_set + 0.0 * pm
+    else:
+        q0 = np.where(is_pf, tan_set * pm, np.where(is_kvar, q_set, np.minimum((site_p + pm) * tan_t - site_q, 0.0)))
+    p_st = pm + a * np.minimum(pm * pm + q0 * q0, s_max2)
+    re3 = v3 - r * p_st - x * q0
+    im3 = x * p_st - r * q0
+    i_f = np.sqrt(re3 * re3 + im3 * im3) * inv3v * k_lin
+    p_exc = i_f * i_f * r_f * inv_eta_x
     for _ in range(_WFSM_ITERATIONS):  # fixed point on copper and excitation losses
         p_tot = p_st + p_exc
         if all_pf:
