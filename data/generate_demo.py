@@ -79,6 +79,9 @@ def _assets() -> list[dict]:
             application="pump" if n < 3 else "fan", rated_p_kw=kw, poles=4, rated_v_v=400, efficiency_class="IE1",
             year_installed=2003, rewind_count=1, speed_control="throttled" if n < 3 else "fixed", profile_id=prof,
             criticality="medium")
+    add(asset_id="HRW-P21", site_id="HRW", description="Wash-water recovery pump (globe valve throttled)", application="pump",
+        rated_p_kw=30, poles=4, rated_v_v=400, efficiency_class="IE1", year_installed=2006, rewind_count=1,
+        speed_control="throttled", profile_id="RW-PUMP", criticality="medium", static_head_frac=0.4)
     for n in range(1, 7):
         add(asset_id=f"HRW-D0{n}", site_id="HRW", description=f"Chemical dosing pump {n}", application="pump",
             rated_p_kw=0.75 if n < 4 else 1.5, poles=4, rated_v_v=400, efficiency_class="IE2", year_installed=2014,

@@ -1,0 +1,671 @@
+"""Every asset under every option: shaft power, speed, input kW and kVAr at the supply, per time step.
+
+This module couples the case (assets, load profiles, options) to the machine models. For each option it
+finds the shaft power the driven machine draws (the speed change of a lower-slip or synchronous machine
+raises it on centrifugal loads unless a remedy holds the speed; a throttled load moved to speed control
+follows its system curve), runs the machine model (induction, line-start PM, PM or reluctance on a
+drive, an added drive, wound-field synchronous, or the existing motor with a terminal capacitor), and
+returns what the site meter sees. Assets with interval profiles are evaluated per interval; assets with
+a duty table or annual hours are evaluated per load state and reach the meter as their expected power.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from models import drives, induction, loads, synchronous
+from models.defaults import CLASS_MARGIN_LOSS_FRAC, default_power_factor
+from models.efficiency_classes import min_efficiency_pct
+from models.profiles import LoadStates, analysis_index, asset_loads
+
+#: Loss kinds reported per asset and option.
+LOSS_KINDS: tuple[str, ...] = ("motor", "drive", "excitation")
+#: Start duty -> (load inertia / rotor inertia, start load torque / rated torque) for the line-start screen
+#: (common practice: centrifugal pumps start light with little inertia; fans carry inertia; crushers,
+#: loaded conveyors and mixers start heavy).
+START_DUTY_SCREEN: dict[str, tuple[float, float]] = {"light": (2.0, 0.2), "normal": (8.0, 0.5), "heavy": (30.0, 1.0)}
+#: Starts per hour and supply dip assumed for the line-start screen (common practice).
+SCREEN_STARTS_PER_HOUR = 2.0
+SCREEN_VOLTAGE_DIP_FRAC = 0.10
+#: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
+#: (rotor copper loss = slip x air-gap power; common practice).
+SLIP_SCALING_BOUNDS = (0.6, 1.0)
+#: Power-factor gain of an IE4 over an IE3 induction motor of the same rating (common practice, small).
+IE4_POWER_FACTOR_GAIN = 0.01
+#: Losses of a wound-field synchronous motor relative to an induction motor of the same rating
+#: (common practice, from memory: large synchronous machines reach 97-98 %).
+WFSM_LOSS_RATIO_TO_INDUCTION = 0.8
+#: A capacitor at the motor terminals is sized to at most this share of the no-load magnetising kVAr,
+#: to avoid self-excitation (common practice, NEMA MG 1 Part 14 guidance).
+CAPACITOR_MAX_NO_LOAD_SHARE = 0.9
+#: Shaft power of a pump or fan at its design point (valve or damper fully open) as a share of the motor
+#: rating when the profile never goes higher: motors are usually sized 10-15 % above the duty point
+#: (common practice).
+DESIGN_SHAFT_LOAD_FRAC = 0.9
+#: Shaft load, as a share of rating, that a speed-coupled replacement is allowed to reach before the
+#: result is flagged (the motor would be overloaded).
+OVERLOAD_FLAG_FRAC = 1.0
+
+
+@dataclass(frozen=True)
+class OperatingResult:
+    """Per-step power at the supply and yearly totals for every asset and option.
+
+    Attributes
+    ----------
+    index : pandas.DatetimeIndex
+        Analysis year (interval starts, tz-aware).
+    interval_h : float
+        Interval length [h].
+    asset_ids, site_ids : numpy.ndarray of str
+        One per asset, in case order.
+    option_ids : numpy.ndarray of str
+        One per option, in catalogue order (the first is today's motor).
+    technologies : numpy.ndarray of str
+        Technology of each option.
+    applies : numpy.ndarray of bool, shape (n_assets, n_options)
+    reason : numpy.ndarray of str, shape (n_assets, n_options)
+        Why an option does not apply ("" where it does).
+    p_kw, q_kvar : numpy.ndarray, shape (n_options, n_assets, n_steps)
+        Active and reactive power at the supply per interval [kW], [kVAr] (mean over the interval;
+        reactive positive lagging). Where an option does not apply, today's values are repeated.
+    energy_kwh : numpy.ndarray, shape (n_assets, n_options)
+        Yearly input energy [kWh].
+    shaft_energy_kwh : numpy.ndarray, shape (n_assets, n_options)
+        Yearly shaft energy [kWh].
+    losses_kwh : numpy.ndarray, shape (n_assets, n_options, len(LOSS_KINDS))
+        Yearly losses by kind [kWh].
+    lagging_kvarh, leading_kvarh : numpy.ndarray, shape (n_assets, n_options)
+        Yearly reactive energy drawn (lagging) and supplied (leading) at the motor [kVArh].
+    running_h : numpy.ndarray, shape (n_assets,)
+        Hours per year the asset runs [h].
+    mean_speed_rpm : numpy.ndarray, shape (n_assets, n_options)
+        Running-hour mean speed of the driven shaft [rpm].
+    capacitor_q_kvar : numpy.ndarray, shape (n_assets, n_options)
+        Terminal capacitor size of capacitor options [kVAr].
+    interval_data : numpy.ndarray of bool, shape (n_assets,)
+        True where the asset has an interval profile.
+    flags : pandas.DataFrame
+        asset_id, option_id, flag: cautions (starting screen, overload, excitation limits, data notes).
+    """
+
+    index: pd.DatetimeIndex
+    interval_h: float
+    asset_ids: np.ndarray
+    site_ids: np.ndarray
+    option_ids: np.ndarray
+    technologies: np.ndarray
+    applies: np.ndarray
+    reason: np.ndarray
+    p_kw: np.ndarray
+    q_kvar: np.ndarray
+    energy_kwh: np.ndarray
+    shaft_energy_kwh: np.ndarray
+    losses_kwh: np.ndarray
+    lagging_kvarh: np.ndarray
+    leading_kvarh: np.ndarray
+    running_h: np.ndarray
+    mean_speed_rpm: np.ndarray
+    capacitor_q_kvar: np.ndarray
+    interval_data: np.ndarray
+    flags: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=["asset_id", "option_id", "flag"]))
+
+    def option_position(self, option_id: str) -> int:
+        """Return the position of an option id."""
+        hits = np.flatnonzero(self.option_ids == option_id)
+        if not len(hits):
+            raise ValueError(f"unknown option '{option_id}'")
+        return int(hits[0])
+
+    def asset_position(self, asset_id: str) -> int:
+        """Return the position of an asset id."""
+        hits = np.flatnonzero(self.asset_ids == asset_id)
+        if not len(hits):
+            raise ValueError(f"unknown asset '{asset_id}'")
+        return int(hits[0])
+
+
+# ---------------------------------------------------------------------------------------------------
+# Per-asset parameters
+# ---------------------------------------------------------------------------------------------------
+def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
+    """Return the per-asset numbers the machine models need, as arrays of shape (n_assets,)."""
+    a = assets
+    speed_control = a["speed_control"].to_numpy(dtype=object)
+    return {
+        "rated_p_kw": a["rated_p_kw"].to_numpy(dtype=float),
+        "poles": a["poles"].to_numpy(dtype=float),
+        "f_hz": a["supply_f_hz"].to_numpy(dtype=float),
+        "v_v": a["rated_v_v"].to_numpy(dtype=float),
+        "sync_rpm": a["sync_speed_rpm"].to_numpy(dtype=float),
+        "eff_frac": a["rated_efficiency_pct"].to_numpy(dtype=float) / 100.0,
+        "pf": a["rated_power_factor"].to_numpy(dtype=float),
+        "speed_rpm": a["rated_speed_rpm"].to_numpy(dtype=float),
+        "eff75_frac": a["efficiency_75_pct"].to_numpy(dtype=float) / 100.0,
+        "eff50_frac": a["efficiency_50_pct"].to_numpy(dtype=float) / 100.0,
+        "pf75": a["power_factor_75"].to_numpy(dtype=float),
+        "pf50": a["power_factor_50"].to_numpy(dtype=float),
+        "rewinds": a["rewind_count"].to_numpy(dtype=float),
+        "exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0, 1.0),
+        "throttled": speed_control == "throttled",
+        "has_drive": speed_control == "drive",
+        "static_head": a["static_head_frac"].to_numpy(dtype=float),
+        "start_duty": a["start_duty"].to_numpy(dtype=object),
+    }
+
+
+def _take(arrays: dict[str, np.ndarray], rows: np.ndarray) -> dict[str, np.ndarray]:
+    return {k: v[rows] for k, v in arrays.items()}
+
+
+def existing_motor(arr: dict[str, np.ndarray], extra_rewinds: int = 0) -> induction.InductionParams:
+    """Calibrate today's induction motors (optionally after one more rewind)."""
+    speed = np.minimum(arr["speed_rpm"], arr["sync_rpm"] * (1 - 1e-3))
+    return induction.calibrate_induction(
+        arr["rated_p_kw"], arr["eff_frac"], arr["pf"], speed, arr["sync_rpm"],
+        efficiency_75_frac=arr["eff75_frac"], efficiency_50_frac=arr["eff50_frac"],
+        power_factor_75=arr["pf75"], power_factor_50=arr["pf50"], rewind_count=arr["rewinds"] + extra_rewinds)
+
+
+def class_efficiency_frac(arr: dict[str, np.ndarray], efficiency_class: str) -> np.ndarray:
+    """Full-load efficiency of a new catalogue machine of a class: class minimum less 10 % of its losses.
+
+    Above the class scope (over 1000 kW) the existing motor's losses are scaled by the class-to-class
+    loss ratio of a 1000 kW motor instead.
+    """
+    p_in_scope = np.clip(arr["rated_p_kw"], 0.12, 1000.0)
+    poles = np.where(np.isin(arr["poles"], [2, 4, 6, 8]), arr["poles"], 8.0)
+    floor = min_efficiency_pct(p_in_scope, poles, np.where(arr["f_hz"] == 60, 60, 50), efficiency_class)
+    eta = (100.0 - (1.0 - CLASS_MARGIN_LOSS_FRAC) * (100.0 - floor)) / 100.0
+    # above 1000 kW: the class step at 1000 kW applied to today's losses
+    ratio = (100.0 - floor) / (100.0 - min_efficiency_pct(1000.0, poles, np.where(arr["f_hz"] == 60, 60, 50), "IE2"))
+    large = arr["rated_p_kw"] > 1000.0
+    eta_large = 1.0 - np.minimum(ratio, 1.0) * (1.0 - arr["eff_frac"])
+    return np.where(large, np.maximum(eta_large, arr["eff_frac"]), eta)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Load coupling
+# ---------------------------------------------------------------------------------------------------
+@dataclass
+class _Load:
+    """The reference load of a group of assets on a (n, m) grid of steps or states."""
+
+    p_ref_kw: np.ndarray      # shaft power with today's motor [kW]
+    n_ref_rpm: np.ndarray     # today's shaft speed [rpm]
+    running: np.ndarray       # bool
+    weight_h: np.ndarray      # hours each column stands for, (n, m)
+    p_design_kw: np.ndarray   # design (valve-open) shaft power per asset [kW], (n, 1)
+
+
+def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray, is_input_kw: np.ndarray,
+                    weight_h: np.ndarray) -> _Load:
+    rated = arr["rated_p_kw"][:, None]
+    p_ref = np.where(is_input_kw[:, None], 0.0, values * rated)
+    if is_input_kw.any():
+        shaft = induction.shaft_from_input_kw(existing, np.where(is_input_kw[:, None], values, 0.0))
+        p_ref = np.where(is_input_kw[:, None], shaft, p_ref)
+    running = p_ref > 0.0
+    n_ref = induction.induction_speed_rpm(existing, p_ref)
+    weight = np.broadcast_to(weight_h, p_ref.shape)
+    on = running & (weight > 0)
+    peak = np.where(on, p_ref, 0.0).max(axis=1, keepdims=True)
+    p_design = np.maximum(peak, DESIGN_SHAFT_LOAD_FRAC * rated)
+    return _Load(p_ref, n_ref, running, weight, p_design)
+
+
+def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:
+    """Shaft power and speed fraction once a drive controls the flow (throttle removed where there was one)."""
+    p = load.p_ref_kw
+    sync = arr["sync_rpm"][:, None]
+    throttled = arr["throttled"][:, None] & (arr["exponent"][:, None] == 3.0)
+    exponent = arr["exponent"][:, None]
+    if throttled.any():
+        moved = loads.throttled_to_speed_control(np.where(throttled, p, 0.0), load.p_design_kw,
+                                                 np.broadcast_to(arr["static_head"][:, None], p.shape))
+        p_thr = np.asarray(moved.shaft_p_kw, dtype=float)
+        speed_thr = np.asarray(moved.speed_frac, dtype=float) * (load.n_ref_rpm / sync)
+    else:
+        p_thr, speed_thr = p, load.n_ref_rpm / sync
+    # existing drive or unthrottled load: the drive keeps today's flow; a variable-torque load already on a
+    # drive runs at the speed its power implies on the affinity law (design power at today's rated speed)
+    ratio = np.clip(np.where(load.p_design_kw > 0, p / load.p_design_kw, 0.0), 0.0, None)
+    speed_drive = np.where(arr["has_drive"][:, None], ratio ** (1.0 / exponent), 1.0) * (load.n_ref_rpm / sync)
+    p_new = np.where(throttled, p_thr, p)
+    speed_frac = np.where(throttled, speed_thr, speed_drive)
+    speed_frac = np.where(load.running, np.clip(speed_frac, 0.05, 1.2), 0.0)
+    return np.where(load.running, p_new, 0.0), speed_frac
+
+
+def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None) -> tuple[np.ndarray, np.ndarray]:
+    """Shaft power and speed of a replacement machine on the same driven machine."""
+    if remedy in ("trim_or_pulley", "speed_control"):
+        speed = fixed_speed_rpm if fixed_speed_rpm is not None else speed_of_new(load.p_ref_kw)
+        return load.p_ref_kw, np.broadcast_to(speed, load.p_ref_kw.shape) * load.running
+    exponent = arr["exponent"][:, None]
+    if fixed_speed_rpm is not None:
+        p_new = loads.shaft_power_at_speed_kw(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
+                                              np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape), exponent)
+        speed = np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape)
+    else:
+        solved = loads.solve_speed_coupled_load(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
+                                                speed_of_new, np.broadcast_to(exponent, load.p_ref_kw.shape))
+        p_new, speed = np.asarray(solved.shaft_p_kw, dtype=float), np.asarray(solved.speed_rpm, dtype=float)
+    held = arr["has_drive"][:, None]  # an existing drive keeps holding the process speed
+    p_new = np.where(held, load.p_ref_kw, p_new)
+    speed = np.where(held, load.n_ref_rpm, speed)
+    return np.where(load.running, p_new, 0.0), np.where(load.running, speed, 0.0)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Machines
+# ---------------------------------------------------------------------------------------------------
+@dataclass
+class _Point:
+    p_kw: np.ndarray
+    q_kvar: np.ndarray
+    shaft_kw: np.ndarray
+    speed_rpm: np.ndarray
+    loss_motor_kw: np.ndarray
+    loss_drive_kw: np.ndarray
+    loss_excitation_kw: np.ndarray
+    flags: list[tuple[int, str]] = field(default_factory=list)  # (row in group, text)
+
+
+def _zeros(shape) -> np.ndarray:
+    return np.zeros(shape)
+
+
+def _induction_on_line(params, shaft_kw, running) -> _Point:
+    pt = induction.induction_operating_point(params, shaft_kw)
+    p = np.where(running, pt.p_in_kw, 0.0)
+    q = np.where(running, pt.q_kvar, 0.0)
+    loss = np.where(running, pt.p_in_kw - shaft_kw, 0.0)
+    return _Point(p, q, shaft_kw, np.where(running, pt.speed_rpm, 0.0), loss, _zeros(p.shape), _zeros(p.shape))
+
+
+def _induction_on_drive(arr, params, shaft_kw, speed_frac, running) -> _Point:
+    """An induction motor fed by a drive (today's drive, or one added)."""
+    pt = induction.induction_operating_point(params, shaft_kw)
+    safe_speed = np.where(speed_frac > 0.05, speed_frac, 0.05)
+    torque_frac = np.where(running, shaft_kw / arr["rated_p_kw"][:, None] / safe_speed, 0.0)
+    s_kva = drives.drive_rated_s_kva_for_motor(arr["rated_p_kw"], arr["eff_frac"], arr["pf"])
+    motor_loss = pt.p_in_kw - shaft_kw
+    fed = drives.induction_motor_with_added_drive(np.where(running, pt.p_in_kw, 0.0), np.clip(speed_frac, 0.0, 1.5),
+                                                  np.clip(torque_frac, 0.0, 2.0), s_kva[:, None],
+                                                  motor_losses_kw=np.where(running, motor_loss, 0.0))
+    p = np.where(running, fed.p_kw, 0.0)
+    q = np.where(running, fed.q_kvar, 0.0)
+    loss_drive = np.where(running, fed.drive_loss_kw, 0.0)
+    loss_motor = np.where(running, motor_loss + fed.pwm_extra_loss_kw, 0.0)
+    speed = np.where(running, speed_frac * arr["sync_rpm"][:, None], 0.0)
+    return _Point(p, q, shaft_kw, speed, loss_motor, loss_drive, _zeros(p.shape))
+
+
+def _today(arr, existing, load: _Load) -> _Point:
+    """Today's motor, on the line or on its existing drive."""
+    line = _induction_on_line(existing, load.p_ref_kw, load.running)
+    if not arr["has_drive"].any():
+        return line
+    _, speed_frac = _speed_controlled(arr, load)
+    on_drive = _induction_on_drive(arr, existing, load.p_ref_kw, speed_frac, load.running)
+    held = arr["has_drive"][:, None]
+    return _Point(*(np.where(held, getattr(on_drive, f), getattr(line, f)) for f in
+                    ("p_kw", "q_kvar", "shaft_kw", "speed_rpm", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw")))
+
+
+def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
+    eff = class_efficiency_frac(arr, option["efficiency_class"])
+    old_loss = 1.0 - arr["eff_frac"]
+    scale = np.clip((1.0 - eff) / np.where(old_loss > 0, old_loss, 1.0), *SLIP_SCALING_BOUNDS)
+    slip = existing.rated_slip_frac * scale
+    pf = np.clip(default_power_factor(arr["rated_p_kw"], arr["poles"])
+                 + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
+    new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])
+    shaft, _ = _coupled(arr, load, lambda p: induction.induction_speed_rpm(new, p), option["speed_remedy"])
+    if arr["has_drive"].any():
+        _, speed_frac = _speed_controlled(arr, load)
+        line = _induction_on_line(new, shaft, load.running)
+        fed = _induction_on_drive(arr, new, shaft, speed_frac, load.running)
+        held = arr["has_drive"][:, None]
+        return _Point(*(np.where(held, getattr(fed, f), getattr(line, f)) for f in
+                        ("p_kw", "q_kvar", "shaft_kw", "speed_rpm", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw")))
+    return _induction_on_line(new, shaft, load.running)
+
+
+def _line_start_pm(arr, load: _Load, option: pd.Series) -> _Point:
+    eff = class_efficiency_frac(arr, option["efficiency_class"])
+    sync = arr["sync_rpm"][:, None]
+    shaft, speed = _coupled(arr, load, None, option["speed_remedy"], fixed_speed_rpm=sync)
+    rated = arr["rated_p_kw"][:, None]
+    flags: list[tuple[int, str]] = []
+    over = np.flatnonzero((shaft > OVERLOAD_FLAG_FRAC * rated + 1e-9).any(axis=1))
+    for i in over:
+        flags.append((int(i), "at synchronous speed the load exceeds the motor rating in some intervals: size up or remedy the speed"))
+    shaft_eval = np.minimum(shaft, 1.2 * rated)
+    pt = synchronous.lspm_operating_point(shaft_eval, arr["rated_p_kw"], eff, arr["poles"], arr["f_hz"])
+    run = load.running
+    p = np.where(run, pt.p_in_kw, 0.0)
+    inertia, start_torque = (np.array([START_DUTY_SCREEN.get(d, START_DUTY_SCREEN["normal"])[k] for d in arr["start_duty"]])
+                             for k in (0, 1))
+    screen = synchronous.lspm_starting_screen(inertia, start_torque, SCREEN_STARTS_PER_HOUR, SCREEN_VOLTAGE_DIP_FRAC)
+    for i in np.flatnonzero(np.asarray(screen.status) != "ok"):
+        flags.append((int(i), f"line-start screen: {screen.status[i]} ({screen.reasons[i]})"))
+    return _Point(p, np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
+                  np.where(run, pt.p_in_kw - shaft_eval, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
+
+
+def _synchronous_on_drive(arr, load: _Load, option: pd.Series, kind: str) -> _Point:
+    eff = class_efficiency_frac(arr, option["efficiency_class"])
+    shaft, speed_frac = _speed_controlled(arr, load)
+    safe = np.where(speed_frac > 0.05, speed_frac, 0.05)
+    torque = np.where(load.running, shaft / arr["rated_p_kw"][:, None] / safe, 0.0)
+    pt = synchronous.drive_fed_synchronous_operating_point(np.clip(speed_frac, 0.0, 1.0), np.clip(torque, 0.0, 1.5),
+                                                           arr["rated_p_kw"], eff, kind)
+    run = load.running
+    shaft_out = np.where(run, np.asarray(pt.p_shaft_kw, dtype=float), 0.0)
+    motor_loss = (np.asarray(pt.motor_copper_loss_kw) + np.asarray(pt.motor_iron_loss_kw)
+                  + np.asarray(pt.motor_friction_loss_kw) + np.asarray(pt.motor_stray_loss_kw))
+    return _Point(np.where(run, pt.p_in_kw, 0.0), np.where(run, pt.q_kvar, 0.0), shaft_out,
+                  np.where(run, speed_frac * arr["sync_rpm"][:, None], 0.0), np.where(run, motor_loss, 0.0),
+                  np.where(run, pt.drive_loss_kw, 0.0), _zeros(shaft.shape))
+
+
+def _added_drive(arr, existing, load: _Load) -> _Point:
+    shaft, speed_frac = _speed_controlled(arr, load)
+    return _induction_on_drive(arr, existing, shaft, speed_frac, load.running)
+
+
+def _wound_field(arr, load: _Load, option: pd.Series, site_other=None) -> _Point:
+    """A wound-field synchronous motor replacing today's machine; site_other = (p_kw, q_kvar) without it."""
+    rated = arr["rated_p_kw"]
+    eff = 1.0 - WFSM_LOSS_RATIO_TO_INDUCTION * (1.0 - np.maximum(arr["eff_frac"], class_efficiency_frac(arr, "IE3")))
+    design_pf = float(option["wfsm_power_factor"]) if np.isfinite(option["wfsm_power_factor"]) else 0.9
+    params = synchronous.wfsm_parameters_from_rating(rated, arr["v_v"], rated_efficiency_frac=eff,
+                                                     rated_power_factor=design_pf, rated_leading=True)
+    sync = arr["sync_rpm"][:, None]
+    shaft, speed = _coupled(arr, load, None, option["speed_remedy"], fixed_speed_rpm=sync)
+    shaft_eval = np.minimum(shaft, 1.1 * rated[:, None])
+    mode = option["wfsm_mode"]
+    kwargs = {}
+    if mode == "follow_site" and site_other is not None:
+        kwargs = {"mode": "follow_site", "site_p_kw_other": site_other[0], "site_q_kvar_other": site_other[1],
+                  "site_target_power_factor": float(option["site_target_power_factor"])}
+    elif mode == "fixed_kvar":
+        kwargs = {"mode": "kvar", "q_setpoint_kvar": float(option["wfsm_q_kvar"])}
+    else:
+        kwargs = {"mode": "power_factor", "power_factor_setpoint": design_pf, "setpoint_leading": True}
+    pt = synchronous.wfsm_operating_point(shaft_eval, **params, **kwargs)
+    run = load.running
+    flags: list[tuple[int, str]] = []
+    for name, text in (("limited_by_field_current", "field-current ceiling"), ("limited_by_stator_current", "stator-current rating"),
+                       ("limited_by_load_angle", "load-angle limit")):
+        hit = np.asarray(getattr(pt, name), dtype=bool) & run
+        share = hit.sum(axis=1) / np.maximum(run.sum(axis=1), 1)
+        for i in np.flatnonzero(share > 0.0005):
+            flags.append((int(i), f"reactive output held back by the {text} in {100 * share[i]:.1f} % of running intervals"))
+    if mode == "follow_site" and site_other is None:
+        for i in range(len(rated)):
+            flags.append((i, "no interval data: runs at its power-factor setpoint instead of following the site"))
+    loss_exc = np.asarray(pt.field_copper_loss_kw) + np.asarray(pt.exciter_loss_kw)
+    loss_motor = np.asarray(pt.p_in_kw) - shaft_eval - loss_exc
+    return _Point(np.where(run, pt.p_in_kw, 0.0), np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
+                  np.where(run, loss_motor, 0.0), _zeros(shaft.shape), np.where(run, loss_exc, 0.0), flags)
+
+
+def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor) -> np.ndarray:
+    """Size a motor-terminal capacitor: what full load needs to reach the target, at most 90 % of no-load kVAr.
+
+    Notes
+    -----
+    Q_c = min(P_in,r (tan phi_r - tan phi_target), 0.9 Q_0), with Q_0 the no-load magnetising kVAr: a larger
+    capacitor switched with the motor can self-excite it after disconnection (common practice).
+    """
+    p_in = existing.rated_p_kw / existing.rated_efficiency_frac
+    tan_r = np.tan(np.arccos(existing.rated_power_factor))
+    tan_t = np.tan(np.arccos(np.asarray(target_power_factor, dtype=float)))
+    need = np.maximum(p_in * (tan_r - tan_t), 0.0)
+    return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
+
+
+def _evaluate(option: pd.Series, arr, existing, load: _Load, site_other=None) -> _Point:
+    tech = option["technology"]
+    if tech == "existing":
+        return _today(arr, existing, load)
+    if tech == "rewind":
+        return _today(arr, existing_motor(arr, extra_rewinds=1), load)
+    if tech == "induction":
+        return _new_induction(arr, existing, load, option)
+    if tech == "line_start_pm":
+        return _line_start_pm(arr, load, option)
+    if tech in ("pm_drive", "reluctance_drive"):
+        return _synchronous_on_drive(arr, load, option, "pm" if tech == "pm_drive" else "synrm")
+    if tech == "add_drive":
+        return _added_drive(arr, existing, load)
+    if tech == "wound_field":
+        return _wound_field(arr, load, option, site_other)
+    if tech == "capacitor":
+        base = _today(arr, existing, load)
+        q_cap = capacitor_size_kvar(existing, option["target_power_factor"])[:, None]
+        base.q_kvar = np.where(load.running, base.q_kvar - q_cap, 0.0)
+        return base
+    raise ValueError(f"unknown technology '{tech}'")
+
+
+# ---------------------------------------------------------------------------------------------------
+# Orchestration over a case
+# ---------------------------------------------------------------------------------------------------
+def _site_other(case, baseline_p: np.ndarray, baseline_q: np.ndarray, site_ids: np.ndarray, rows: np.ndarray,
+                index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray]:
+    """Site meter without each asset in ``rows`` (today's fleet, base load and fixed banks) [kW], [kVAr]."""
+    from models.profiles import conform
+
+    p_other = np.zeros((len(rows), baseline_p.shape[1]))
+    q_other = np.zeros_like(p_other)
+    sites = case.sites.set_index("site_id")
+    caps = case.capacitors
+    for site in np.unique(site_ids[rows]):
+        members = site_ids == site
+        total_p = baseline_p[members].sum(axis=0)
+        total_q = baseline_q[members].sum(axis=0)
+        row = sites.loc[site]
+        if row["base_profile_id"] is not None and row["base_profile_id"] in case.profiles:
+            base_p = conform(case.profiles[row["base_profile_id"]], index)[0]
+        else:
+            base_p = np.full(baseline_p.shape[1], float(row["base_p_kw"]))
+        base_q = base_p * np.tan(np.arccos(float(row["base_power_factor"])))
+        fixed = caps[(caps["site_id"] == site) & (caps["control"] == "fixed")]["rated_q_kvar"].sum()
+        for k in np.flatnonzero(site_ids[rows] == site):
+            j = rows[k]
+            p_other[k] = total_p - baseline_p[j] + base_p
+            q_other[k] = total_q - baseline_q[j] + base_q - fixed
+    return p_other, q_other
+
+
+def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
+    """Run every applicable option of the case's catalogue on every asset.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    index : pandas.DatetimeIndex, optional
+        Analysis index; default :func:`models.profiles.analysis_index` of the case.
+
+    Returns
+    -------
+    OperatingResult
+        Power at the supply per interval and yearly totals for every asset and option.
+
+    Notes
+    -----
+    Order of work: today's motors first (all assets), which gives the site meter without each asset for
+    wound-field machines that follow the site's reactive needs; then each option on the assets it
+    applies to. Shaft load 0 means the motor is stopped (it draws nothing).
+    """
+    from models.options import applicability, capital_cost  # noqa: F401  (capital cost lives with finance)
+
+    a = case.assets
+    options = _with_baseline(case.options)
+    if index is None:
+        used = set(a["profile_id"].dropna()) | set(case.sites["base_profile_id"].dropna())
+        index = analysis_index(case.profiles, case.settings.time_zone, used)
+    interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
+    year_h = len(index) * interval_h
+    arr_all = asset_arrays(a)
+    n_a, n_o, n_t = len(a), len(options), len(index)
+    applies, reason = applicability(options, a)
+    applies[:, 0] = True
+    reason[:, 0] = ""
+    interval_rows, values, is_input, states, notes = asset_loads(case, index)
+    state_rows = np.setdiff1d(np.arange(n_a), interval_rows)
+    groups = []
+    if len(interval_rows):
+        arr = _take(arr_all, interval_rows)
+        existing = existing_motor(arr)
+        load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
+        groups.append(("interval", interval_rows, arr, existing, load))
+    if len(state_rows):
+        arr = _take(arr_all, state_rows)
+        existing = existing_motor(arr)
+        load = _reference_load(arr, existing, states.shaft_load_frac[state_rows],
+                               np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
+        groups.append(("states", state_rows, arr, existing, load))
+
+    p_kw = np.zeros((n_o, n_a, n_t))
+    q_kvar = np.zeros((n_o, n_a, n_t))
+    energy = np.zeros((n_a, n_o))
+    shaft_energy = np.zeros((n_a, n_o))
+    losses = np.zeros((n_a, n_o, len(LOSS_KINDS)))
+    lag = np.zeros((n_a, n_o))
+    lead = np.zeros((n_a, n_o))
+    speed = np.zeros((n_a, n_o))
+    running_h = np.zeros(n_a)
+    cap_q = np.zeros((n_a, n_o))
+    flags: list[dict] = [{"asset_id": r.asset_id, "option_id": "", "flag": r.note} for r in notes.itertuples(index=False)]
+    asset_ids = a["asset_id"].to_numpy(dtype=object)
+    site_ids = a["site_id"].to_numpy(dtype=object)
+    option_ids = options["option_id"].to_numpy(dtype=object)
+
+    def store(o: int, kind: str, rows: np.ndarray, sub: np.ndarray, pt: _Point, load: _Load) -> None:
+        idx = rows[sub]
+        w = load.weight_h
+        if kind == "interval":
+            p_kw[o, idx] = pt.p_kw
+            q_kvar[o, idx] = pt.q_kvar
+        else:
+            p_kw[o, idx] = ((pt.p_kw * w).sum(axis=1) / year_h)[:, None]
+            q_kvar[o, idx] = ((pt.q_kvar * w).sum(axis=1) / year_h)[:, None]
+        energy[idx, o] = (pt.p_kw * w).sum(axis=1)
+        shaft_energy[idx, o] = (pt.shaft_kw * w).sum(axis=1)
+        losses[idx, o, 0] = (pt.loss_motor_kw * w).sum(axis=1)
+        losses[idx, o, 1] = (pt.loss_drive_kw * w).sum(axis=1)
+        losses[idx, o, 2] = (pt.loss_excitation_kw * w).sum(axis=1)
+        lag[idx, o] = (np.maximum(pt.q_kvar, 0.0) * w).sum(axis=1)
+        lead[idx, o] = (np.maximum(-pt.q_kvar, 0.0) * w).sum(axis=1)
+        run_w = np.where(load.running, w, 0.0)
+        speed[idx, o] = (pt.speed_rpm * run_w).sum(axis=1) / np.maximum(run_w.sum(axis=1), 1e-12)
+        for i, text in pt.flags:
+            flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
+
+    # today's motors first
+    for kind, rows, arr, existing, load in groups:
+        pt = _evaluate(options.iloc[0], arr, existing, load)
+        store(0, kind, rows, np.arange(len(rows)), pt, load)
+        running_h[rows] = np.where(load.running, load.weight_h, 0.0).sum(axis=1)
+    for o in range(1, n_o):
+        option = options.iloc[o]
+        for kind, rows, arr, existing, load in groups:
+            sub = np.flatnonzero(applies[rows, o])
+            if not len(sub):
+                continue
+            arr_s = _take(arr, sub)
+            load_s = _Load(load.p_ref_kw[sub], load.n_ref_rpm[sub], load.running[sub], load.weight_h[sub],
+                           load.p_design_kw[sub])
+            existing_s = existing_motor(arr_s)
+            site_other = None
+            if option["technology"] == "wound_field" and kind == "interval":
+                site_other = _site_other(case, p_kw[0], q_kvar[0], site_ids, rows[sub], index)
+            pt = _evaluate(option, arr_s, existing_s, load_s, site_other)
+            store(o, kind, rows, sub, pt, load_s)
+            if option["technology"] == "capacitor":
+                cap_q[rows[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
+    # options that do not apply repeat today's values
+    for o in range(1, n_o):
+        off = ~applies[:, o]
+        p_kw[o, off] = p_kw[0, off]
+        q_kvar[o, off] = q_kvar[0, off]
+        for target, source in ((energy, energy), (shaft_energy, shaft_energy), (lag, lag), (lead, lead), (speed, speed)):
+            target[off, o] = source[off, 0]
+        losses[off, o] = losses[off, 0]
+    return OperatingResult(
+        index=index, interval_h=interval_h, asset_ids=asset_ids, site_ids=site_ids, option_ids=option_ids,
+        technologies=options["technology"].to_numpy(dtype=object), applies=applies, reason=reason,
+        p_kw=p_kw, q_kvar=q_kvar, energy_kwh=energy, shaft_energy_kwh=shaft_energy, losses_kwh=losses,
+        lagging_kvarh=lag, leading_kvarh=lead, running_h=running_h, mean_speed_rpm=speed, capacitor_q_kvar=cap_q,
+        interval_data=np.isin(np.arange(n_a), interval_rows),
+        flags=pd.DataFrame(flags, columns=["asset_id", "option_id", "flag"]),
+    )
+
+
+def _with_baseline(options: pd.DataFrame) -> pd.DataFrame:
+    """Put today's motor ('existing') first, adding an implicit row when the catalogue has none."""
+    tech = options["technology"].to_numpy(dtype=object)
+    if (tech == "existing").any():
+        first = int(np.flatnonzero(tech == "existing")[0])
+        order = [first] + [i for i in range(len(options)) if i != first]
+        return options.iloc[order].reset_index(drop=True)
+    keep = {c: np.nan for c in options.columns}
+    keep.update(option_id="keep", technology="existing", label="Keep as is", speed_remedy="none", applications="",
+                min_rated_p_kw=0.0, max_rated_p_kw=1e6, life_yr=15.0, illustrative=True)
+    for c in options.columns:
+        if c.endswith(("_coef", "_frac", "_per_kvar", "_per_kw_yr")):
+            keep[c] = 0.0
+        if c.endswith("_exp"):
+            keep[c] = 1.0
+    return pd.concat([pd.DataFrame([keep]), options], ignore_index=True)
+
+
+def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
+    """Efficiency, power factor and kVAr against shaft load for every option of one asset.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    asset_id : str
+    load_frac : array_like, optional
+        Shaft loads of today's machine [-]; default 0.05 to 1.25.
+
+    Returns
+    -------
+    pandas.DataFrame
+        option_id, load_frac, shaft_p_kw, p_in_kw, q_kvar, efficiency_frac, power_factor (supply side),
+        for the options that apply to the asset.
+    """
+    from models.options import applicability
+
+    load_frac = np.linspace(0.05, 1.25, 49) if load_frac is None else np.asarray(load_frac, dtype=float)
+    a = case.assets
+    pos = np.flatnonzero(a["asset_id"].to_numpy(dtype=object) == asset_id)
+    if not len(pos):
+        raise ValueError(f"unknown asset '{asset_id}'")
+    options = _with_baseline(case.options)
+    ok, _ = applicability(options, a.iloc[pos])
+    ok[:, 0] = True
+    arr = _take(asset_arrays(a), pos)
+    existing = existing_motor(arr)
+    load = _reference_load(arr, existing, load_frac[None, :], np.zeros(1, dtype=bool), np.ones((1, len(load_frac))))
+    frames = []
+    for o in np.flatnonzero(ok[0]):
+        option = options.iloc[o]
+        pt = _evaluate(option, arr, existing, load)
+        p, q = pt.p_kw[0], pt.q_kvar[0]
+        s = np.hypot(p, q)
+        frames.append(pd.DataFrame({
+            "option_id": option["option_id"], "load_frac": load_frac, "shaft_p_kw": pt.shaft_kw[0], "p_in_kw": p,
+            "q_kvar": q, "efficiency_frac": np.where(p > 0, pt.shaft_kw[0] / np.where(p > 0, p, 1.0), np.nan),
+            "power_factor": np.where(s > 0, p / np.where(s > 0, s, 1.0), np.nan)}))
+    return pd.concat(frames, ignore_index=True)
