@@ -263,7 +263,8 @@ def mean_residual_life_yr(age_yr: Any, shape: Any, scale_yr: Any) -> np.ndarray:
         out = eta * gamma(1.0 + 1.0 / beta) * gammaincc(1.0 / beta, z) * np.exp(z)
     # Far in the tail, R(a) underflows: use the asymptotic m(a) ~ eta^beta a^(1 - beta) / beta.
     tail = ~np.isfinite(out) | (z > 500)
-    return np.where(tail, np.power(eta, beta) * np.power(np.maximum(a, 1e-300), 1.0 - beta) / beta, out)
+    base = np.where(tail, a, 1.0)
+    return np.where(tail, np.power(eta, beta) * np.power(base, 1.0 - beta) / beta, out)
 
 
 # ---------------------------------------------------------------------------------------------------

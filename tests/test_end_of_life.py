@@ -1,0 +1,177 @@
+"""Validation record for models.end_of_life: Weibull failure law, strategy costs, fleet rules.
+
+Hand calculations are in docs/derivations/finance-end-of-life.md.
+"""
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from numpy.testing import assert_allclose
+
+from models import end_of_life as eol
+
+# Half a unit of the 6th decimal written in the derivation.
+SIX_DECIMALS = 5e-7
+# Failure law with yearly survival 1/2 at any age (beta = 1, eta = 1/ln 2), finance-end-of-life.md section 4.
+HALF_LIFE_SCALE_YR = 1.0 / math.log(2.0)
+
+
+class TestWeibull:
+    def test_survival_at_scale(self):
+        # Hand calculation, finance-end-of-life.md section 1: R(eta) = e^-1.
+        assert_allclose(eol.weibull_survival(10.0, 2.0, 10.0), 0.367879, atol=SIX_DECIMALS)
+
+    def test_conditional_probability(self):
+        # Hand calculation, finance-end-of-life.md section 1: 1 - e^-1.25 = 0.713495.
+        assert_allclose(eol.conditional_failure_probability(10.0, 5.0, 2.0, 10.0), 0.713495, atol=SIX_DECIMALS)
+
+    @settings(max_examples=40, deadline=None)
+    @given(st.floats(0, 50), st.floats(0, 20), st.floats(1, 40))
+    def test_exponential_is_memoryless(self, age, within, scale):
+        # Hand calculation, finance-end-of-life.md section 1: beta = 1 -> 1 - exp(-x/eta), whatever the age.
+        assert_allclose(eol.conditional_failure_probability(age, within, 1.0, scale),
+                        1.0 - math.exp(-within / scale), atol=1e-12)
+
+    @settings(max_examples=40, deadline=None)
+    @given(st.floats(0, 40), st.floats(0.5, 5), st.floats(2, 40))
+    def test_probability_grows_with_window(self, age, shape, scale):
+        # Invariant: F(x | a) is non-decreasing in x and within [0, 1].
+        p = eol.conditional_failure_probability(age, np.array([0.0, 1.0, 5.0, 50.0]), shape, scale)
+        assert np.all(np.diff(p) >= -1e-15) and p[0] == 0.0 and np.all((p >= 0) & (p <= 1))
+
+    def test_failure_year_probabilities(self):
+        p = eol.failure_year_probabilities(5.0, 3, 1.0, 10.0)
+        # Hand calculation, finance-end-of-life.md section 2.
+        assert_allclose(p, [0.0, 0.095163, 0.086107, 0.077913], atol=SIX_DECIMALS)
+        assert_allclose(p.sum(), 1 - math.exp(-0.3), rtol=1e-12)
+
+    def test_failure_year_probabilities_vectorised(self):
+        p = eol.failure_year_probabilities(np.array([0.0, 10.0, 30.0]), 15, 2.5, 20.0)
+        assert p.shape == (3, 16)
+        # Invariant: rows sum to the conditional probability of failing within the horizon.
+        assert_allclose(p.sum(axis=1), eol.conditional_failure_probability([0.0, 10.0, 30.0], 15, 2.5, 20.0),
+                        rtol=1e-12)
+
+    def test_mean_residual_life(self):
+        # Hand calculation, finance-end-of-life.md section 3.
+        assert_allclose(eol.mean_residual_life_yr(7.0, 1.0, 10.0), 10.0, rtol=1e-10)
+        assert_allclose(eol.mean_residual_life_yr(0.0, 2.0, 10.0), 8.86227, atol=5e-6)
+
+    def test_mean_residual_life_shrinks_with_age_for_wear_out(self):
+        # Invariant: beta > 1 (wear-out) -> older motors have less life left; finite deep in the tail.
+        m = eol.mean_residual_life_yr(np.array([0.0, 10.0, 20.0, 40.0, 400.0]), 2.5, 20.0)
+        assert np.all(np.diff(m) < 0) and np.all(np.isfinite(m)) and m[-1] > 0
+
+    def test_life_classes(self):
+        shape, scale = eol.life_class_parameters([5.5, 7.5, 7.6, 75.0, 200.0])
+        # DEFAULT_LIFE_CLASSES (common practice, documented in the module): 14, 20, 28 yr scales.
+        assert scale.tolist() == [14.0, 14.0, 20.0, 20.0, 28.0]
+        assert shape.tolist() == [2.5] * 5
+
+    def test_default_mean_lives_inside_common_practice_bands(self):
+        # DOMAIN.md section 3 (common practice): <7.5 kW 10-15 yr, 7.5-75 kW 15-20 yr, >75 kW 20-30 yr.
+        bands = [(10, 15), (15, 20), (20, 30)]
+        for life_class, (low, high) in zip(eol.DEFAULT_LIFE_CLASSES, bands):
+            assert low <= life_class.mean_life_yr <= high
+
+    @pytest.mark.parametrize("call", [
+        lambda: eol.weibull_survival(-1.0, 2.0, 10.0),
+        lambda: eol.conditional_failure_probability(1.0, 1.0, 0.0, 10.0),
+        lambda: eol.life_class_parameters([0.0]),
+        lambda: eol.failure_year_probabilities(1.0, 0, 2.0, 10.0),
+        lambda: eol.LifeClass(10.0, -1.0, 5.0, "bad"),
+    ])
+    def test_invalid_raises(self, call):
+        with pytest.raises(ValueError):
+            call()
+
+
+def two_year_case(**overrides):
+    kwargs = dict(age_yr=3.0, shape=1.0, scale_yr=HALF_LIFE_SCALE_YR, new_capex=100.0, rewind_capex=40.0,
+                  energy_cost_existing_per_yr=50.0, energy_cost_new_per_yr=40.0, energy_cost_rewound_per_yr=55.0,
+                  downtime_cost_per_h=2.0, new_lead_time_h=10.0, rewind_lead_time_h=20.0, planned_swap_h=0.0,
+                  new_life_yr=10.0, rewind_life_yr=10.0, discount_rate_frac=0.0, horizon_yr=2)
+    kwargs.update(overrides)
+    return eol.strategy_costs(**kwargs)
+
+
+class TestStrategyCosts:
+    def test_hand_example(self):
+        row = two_year_case().iloc[0]
+        # Hand calculation, finance-end-of-life.md section 4: 100, 115, 134.5.
+        assert_allclose([row.cost_replace_now, row.cost_replace_at_failure, row.cost_rewind_at_failure],
+                        [100.0, 115.0, 134.5], rtol=1e-12)
+        assert row.best_strategy == "replace_now"
+        assert_allclose(row.advantage_over_next, 15.0, rtol=1e-12)
+        assert_allclose(row.failure_probability_in_horizon_frac, 0.75, rtol=1e-12)
+
+    def test_spare_on_hand(self):
+        row = two_year_case(spare_on_hand=True, spare_swap_h=1.0).iloc[0]
+        # Hand calculation, finance-end-of-life.md section 4 (spare on hand): 101.5 and 106.
+        assert_allclose([row.cost_replace_at_failure, row.cost_rewind_at_failure], [101.5, 106.0], rtol=1e-12)
+
+    def test_discounted(self):
+        row = two_year_case(discount_rate_frac=0.1, horizon_yr=1).iloc[0]
+        # Hand calculation, finance-end-of-life.md section 4 (with discounting): 54.545455.
+        assert_allclose(row.cost_replace_now, 54.545455, atol=SIX_DECIMALS)
+
+    def test_vectorised_and_indexed(self):
+        out = eol.strategy_costs([2.0, 20.0], 2.5, 20.0, [1000.0, 1000.0], 400.0, 900.0, 850.0, 920.0,
+                                 asset_id=["P-1", "P-2"])
+        assert list(out.index) == ["P-1", "P-2"]
+        assert set(out["best_strategy"]) <= set(eol.STRATEGIES)
+        # Invariant: an older wear-out motor is more likely to fail within the horizon.
+        assert out["failure_probability_in_horizon_frac"].iloc[1] > out["failure_probability_in_horizon_frac"].iloc[0]
+
+    def test_free_downtime_and_equal_running_cost_prefers_waiting(self):
+        # Invariant: with no downtime cost, no efficiency gain and d > 0, delaying the purchase is cheaper.
+        row = eol.strategy_costs(10.0, 2.5, 20.0, 1000.0, 400.0, 900.0, 900.0, 900.0,
+                                 discount_rate_frac=0.08, horizon_yr=15).iloc[0]
+        assert row.cost_replace_at_failure < row.cost_replace_now
+
+    def test_negative_capex_raises(self):
+        with pytest.raises(ValueError, match="new_capex"):
+            two_year_case(new_capex=-1.0)
+
+
+class TestFailedMotor:
+    def test_hand_example(self):
+        out = eol.failed_motor_costs(1000.0, 400.0, 900.0, 1000.0, discount_rate_frac=0.0, horizon_yr=10,
+                                     new_life_yr=20.0, rewind_life_yr=10.0)
+        # Hand calculation, finance-end-of-life.md section 5: 9500 and 10400.
+        assert_allclose(out[["cost_replace", "cost_rewind"]].to_numpy()[0], [9500.0, 10400.0], rtol=1e-12)
+        assert out["best"].iloc[0] == "replace"
+
+
+class TestFleetRules:
+    def test_hand_thresholds(self):
+        rules = eol.fleet_rules(
+            [5.0, 10.0, 100.0], [100.0, 200.0, 300.0, 400.0, 500.0],
+            new_capex=[600.0, 2000.0, 1_000_000.0], rewind_capex=500.0, efficiency_new_frac=0.9,
+            efficiency_rewound_frac=0.8, price_per_kwh=0.1, load_frac=1.0, discount_rate_frac=0.0,
+            horizon_yr=10, new_life_yr=20.0, rewind_life_yr=10.0)
+        # Hand calculation, finance-end-of-life.md section 6: always replace, above 360 h (grid 400), never.
+        assert rules["min_hours_to_replace_h_per_yr"].tolist() == [0.0, 400.0, np.inf]
+        assert rules["decision"].tolist() == ["replace", "replace_above_hours", "rewind"]
+        assert "400 h/yr" in rules["rule"].iloc[1] and "10 kW" in rules["rule"].iloc[1]
+
+    def test_sizes_with_same_threshold_merge(self):
+        rules = eol.fleet_rules(
+            [1.0, 2.0, 3.0], [1000.0, 2000.0], new_capex=0.0, rewind_capex=100.0, efficiency_new_frac=0.9,
+            efficiency_rewound_frac=0.8, price_per_kwh=0.1)
+        # A free new motor that also runs better always wins: one merged row.
+        assert len(rules) == 1 and rules["min_rated_p_kw"].iloc[0] == 1.0 and rules["max_rated_p_kw"].iloc[0] == 3.0
+        assert isinstance(rules, pd.DataFrame) and rules["decision"].iloc[0] == "replace"
+
+    def test_unsorted_grid_raises(self):
+        with pytest.raises(ValueError, match="ascending"):
+            eol.fleet_rules([10.0, 5.0], [1000.0], new_capex=1.0, rewind_capex=1.0, efficiency_new_frac=0.9,
+                            efficiency_rewound_frac=0.8, price_per_kwh=0.1)
+
+    def test_efficiency_in_percent_raises(self):
+        with pytest.raises(ValueError, match="fraction"):
+            eol.energy_cost_per_yr(10.0, 0.75, 4000.0, 91.0, 0.1)

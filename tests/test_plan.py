@@ -1,0 +1,178 @@
+"""Validation record for models.plan: exact plan vs brute force, greedy shortfall, budgets, MAC curve.
+
+Hand calculations are in docs/derivations/finance-plan.md; the brute force below enumerates every
+feasible plan of small random fleets (an independent check, no solver).
+"""
+
+import itertools
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from models import plan
+
+# The exact plan stops at a relative gap of 1e-4 by default; tests ask for a proof (gap 0).
+EXACT = dict(mip_rel_gap=0.0)
+
+
+def brute_force(assets, value, spend, budget, rate):
+    """Best total NPV over every choice of (no project) or (one project, one start year) per asset."""
+    years = len(budget)
+    by_asset = {}
+    for i, a in enumerate(assets):
+        by_asset.setdefault(a, []).append(i)
+    choices = [[None] + [(i, s) for i in members for s in range(years)] for members in by_asset.values()]
+    best = 0.0
+    for combo in itertools.product(*choices):
+        used = np.zeros(years)
+        total = 0.0
+        for pick in combo:
+            if pick is None:
+                continue
+            i, s = pick
+            for k in range(spend.shape[1]):
+                if s + k < years:
+                    used[s + k] += spend[i, k]
+            total += value[i] / (1 + rate) ** s
+        if np.all(used <= budget + 1e-9) and total > best:
+            best = total
+    return best
+
+
+class TestExactPlan:
+    def test_options_exclude_each_other(self):
+        result = plan.plan_exact(["a/1", "a/2", "b/1"], ["a", "a", "b"], [60.0, 90.0, 50.0],
+                                 [50.0, 100.0, 50.0], [100.0], 0.08, **EXACT)
+        # Hand calculation, finance-plan.md section 2: {a/1, b/1} = 110.
+        assert sorted(result.chosen["project_id"]) == ["a/1", "b/1"]
+        assert_allclose(result.total_npv, 110.0, rtol=1e-12)
+        assert result.status == "optimal" and result.method == "exact"
+
+    def test_delayed_start_discounted(self):
+        result = plan.plan_exact(["p"], ["a"], [100.0], [100.0], [0.0, 100.0], 0.08, **EXACT)
+        # Hand calculation, finance-plan.md section 3: 100/1.08.
+        assert result.chosen["start_yr"].tolist() == [1]
+        assert_allclose(result.total_npv, 92.592593, atol=5e-7)
+        assert_allclose(result.spend_by_year, [0.0, 100.0])
+
+    def test_capital_spread_over_years(self):
+        spend = np.array([[60.0, 60.0], [60.0, 60.0]])
+        result = plan.plan_exact(["p", "q"], ["a", "b"], [10.0, 10.0], spend, [100.0, 100.0], 0.08, **EXACT)
+        # Hand calculation, finance-plan.md section 4: only one fits; it starts in year 0.
+        assert len(result.chosen) == 1 and result.chosen["start_yr"].tolist() == [0]
+        assert_allclose(result.spend_by_year, [60.0, 60.0])
+        assert_allclose(result.total_npv, 10.0)
+
+    def test_zero_budget(self):
+        result = plan.plan_exact(["p", "free"], ["a", "b"], [10.0, 5.0], [100.0, 0.0], [0.0, 0.0], 0.08, **EXACT)
+        # Hand calculation, finance-plan.md section 5: only the zero-capital project fits.
+        assert result.chosen["project_id"].tolist() == ["free"]
+        assert_allclose(result.total_npv, 5.0)
+
+    def test_zero_budget_nothing_fits(self):
+        result = plan.plan_exact(["p"], ["a"], [10.0], [100.0], [0.0], 0.08, **EXACT)
+        assert result.status == "empty" and result.chosen.empty and result.total_npv == 0.0
+        assert_allclose(result.spend_by_year, [0.0])
+
+    def test_no_budget_takes_best_positive_option_per_asset(self):
+        result = plan.plan_exact(["a/1", "a/2", "b/1"], ["a", "a", "b"], [60.0, 90.0, -5.0], [50.0, 100.0, 1.0],
+                                 None, 0.08)
+        assert result.status == "unconstrained" and result.chosen["project_id"].tolist() == ["a/2"]
+
+    def test_empty_inputs(self):
+        result = plan.plan_exact([], [], [], np.zeros((0, 3)), [100.0], 0.08)
+        assert result.chosen.empty and result.total_npv == 0.0 and result.status == "empty"
+
+    def test_all_negative_npv(self):
+        result = plan.plan_exact(["p"], ["a"], [-1.0], [1.0], [100.0], 0.08)
+        assert result.status == "empty" and result.chosen.empty
+
+    @pytest.mark.parametrize("kwargs, message", [
+        (dict(budget_per_yr=[-1.0]), "budget"),
+        (dict(npv=[1.0, 2.0]), "one entry per project"),
+        (dict(project_id=["p", "p", "q"]), "unique"),
+        (dict(capital_by_year=[1.0, np.nan, 1.0]), "finite"),
+    ])
+    def test_invalid_raises(self, kwargs, message):
+        args = dict(project_id=["p", "q", "r"], asset_id=["a", "b", "c"], npv=[1.0, 2.0, 3.0],
+                    capital_by_year=[1.0, 1.0, 1.0], budget_per_yr=[10.0], discount_rate_frac=0.08)
+        args.update(kwargs)
+        with pytest.raises(ValueError, match=message):
+            plan.plan_exact(**args)
+
+
+class TestAgainstBruteForce:
+    def test_random_small_fleets(self):
+        # Independent check: exhaustive enumeration (brute_force above) on seeded random fleets of up to
+        # 5 assets x 3 options x 2 plan years, capital spread over two years after the start.
+        rng = np.random.default_rng(2024)
+        for trial in range(25):
+            n_assets = int(rng.integers(1, 6))
+            options = rng.integers(1, 4, n_assets)
+            assets = np.repeat([f"a{k}" for k in range(n_assets)], options)
+            n = assets.size
+            ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+            value = np.round(rng.normal(40, 40, n), 2)
+            spend = np.round(rng.uniform(0, 60, (n, 2)) * (rng.random((n, 2)) < 0.8), 2)
+            budget = np.round(rng.uniform(0, 150, 2), 2)
+            rate = 0.08
+            exact = plan.plan_exact(ids, assets, value, spend, budget, rate, **EXACT)
+            greedy = plan.plan_greedy(ids, assets, value, spend, budget, rate)
+            best = brute_force(assets, value, spend, budget, rate)
+            # Exact arithmetic on a handful of terms: 1e-9 relative covers rounding only.
+            assert_allclose(exact.total_npv, best, rtol=1e-9, atol=1e-9, err_msg=f"trial {trial}")
+            # Invariants: budgets never exceeded; greedy never beats the optimum; one project per asset.
+            for result in (exact, greedy):
+                assert np.all(result.spend_by_year <= budget + 1e-6)
+                assert result.chosen["asset_id"].is_unique
+            assert greedy.total_npv <= exact.total_npv + 1e-9
+
+    def test_six_assets_three_options_two_years(self):
+        # Largest size asked for: 6 assets x 3 options x 2 years (7^6 = 117,649 plans enumerated).
+        rng = np.random.default_rng(7)
+        assets = np.repeat([f"a{k}" for k in range(6)], 3)
+        ids = [f"p{i}" for i in range(18)]
+        value = np.round(rng.normal(50, 30, 18), 2)
+        spend = np.round(rng.uniform(10, 80, (18, 1)), 2)
+        budget = np.array([120.0, 90.0])
+        exact = plan.plan_exact(ids, assets, value, spend, budget, 0.1, **EXACT)
+        assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.1), rtol=1e-9)
+
+
+class TestGreedy:
+    def test_shortfall_hand_example(self):
+        args = (["a", "b", "c"], ["a", "b", "c"], [66.0, 50.0, 50.0], [60.0, 50.0, 50.0], [100.0], 0.08)
+        greedy = plan.plan_greedy(*args)
+        exact = plan.plan_exact(*args, **EXACT)
+        # Hand calculation, finance-plan.md section 1: greedy 66, exact 100, shortfall 34 (34 %).
+        assert greedy.chosen["project_id"].tolist() == ["a"]
+        comparison = plan.compare_plans(exact, greedy)
+        assert_allclose(comparison[["npv_exact", "npv_greedy", "shortfall", "shortfall_frac"]].to_numpy(),
+                        [100.0, 66.0, 34.0, 0.34], rtol=1e-12)
+
+    def test_greedy_delays_when_year_zero_is_full(self):
+        result = plan.plan_greedy(["p", "q"], ["a", "b"], [20.0, 10.0], [100.0, 100.0], [100.0, 100.0], 0.1)
+        # Hand: p (PI 0.2) takes year 0; q (PI 0.1) fits only in year 1, NPV 10/1.1.
+        assert result.chosen.sort_values("project_id")["start_yr"].tolist() == [0, 1]
+        assert_allclose(result.total_npv, 20.0 + 10.0 / 1.1, rtol=1e-12)
+
+
+class TestAbatementCurve:
+    def test_hand_example(self):
+        curve = plan.abatement_curve(["a/1", "a/2", "b/1"], ["a", "a", "b"], [10.0, 30.0, -5.0],
+                                     [2.0, 1.0, 4.0], [-5.0, -30.0, 1.25])
+        # Hand calculation, finance-plan.md section 6.
+        assert curve["project_id"].tolist() == ["a/2", "b/1"]
+        assert_allclose(curve["bar_start_t_per_yr"], [0.0, 1.0])
+        assert_allclose(curve["cumulative_co2_avoided_t_per_yr"], [1.0, 5.0])
+
+    def test_sorted_and_skips_no_abatement(self):
+        curve = plan.abatement_curve(["p", "q", "r"], ["a", "b", "c"], [1.0, 2.0, 3.0], [1.0, 0.0, 2.0],
+                                     [40.0, -10.0, -20.0])
+        assert curve["project_id"].tolist() == ["r", "p"]
+        assert curve["abatement_cost_per_t"].is_monotonic_increasing
+
+    def test_nan_raises(self):
+        with pytest.raises(ValueError, match="NaN"):
+            plan.abatement_curve(["p"], ["a"], [1.0], [np.nan], [1.0])

@@ -1,0 +1,215 @@
+"""Validation record for models.risk: tornado, break-even, seeded draws, Monte Carlo re-pricing.
+
+Hand calculations are in docs/derivations/finance-risk.md.
+"""
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from models import risk
+from models.cashflows import COMPONENTS, ProjectInputs, build_cash_flows
+from models.finance import FinanceAssumptions
+
+
+def single_project(n_years=2, capital=150.0, energy=100.0, tax=0.0):
+    """Flows (1, n_years + 1, n_components): capital at year 0, energy savings in every later year."""
+    amounts = np.zeros((1, n_years + 1, len(COMPONENTS)))
+    amounts[0, 0, COMPONENTS.index("capital_equipment")] = -capital
+    amounts[0, 1:, COMPONENTS.index("savings_energy")] = energy
+    if tax:
+        amounts[0, 1:, COMPONENTS.index("tax_savings")] = -tax * energy
+    return amounts
+
+
+def fixed(n=1, **values):
+    """Factors with every multiplier at 1 and every delta at 0, except those given."""
+    base = {name: np.full(n, 1.0 if name.endswith("_mult") else 0.0) for name in risk.DEFAULT_FACTORS}
+    base.update({k: np.full(n, v) for k, v in values.items()})
+    return base
+
+
+RESPONSE = risk.default_response(FinanceAssumptions())
+
+
+class TestTornado:
+    def test_hand_example(self):
+        rows = risk.tornado(lambda v: v["price"] * 100.0 - v["capex"], {"price": 1.0, "capex": 50.0},
+                            {"price": (0.8, 1.2), "capex": (40.0, 70.0)})
+        # Hand calculation, finance-risk.md section 1.
+        assert rows["variable"].tolist() == ["price", "capex"]
+        assert_allclose(rows[["npv_at_low", "npv_at_high", "swing"]].to_numpy(), [[30, 70, 40], [60, 30, 30]])
+        assert_allclose(rows["base_npv"], 50.0)
+
+    def test_reduce_picks_one_project(self):
+        f = lambda v: np.array([v["x"], 10.0 * v["x"]])  # noqa: E731
+        rows = risk.tornado(f, {"x": 1.0}, {"x": (0.0, 2.0)}, reduce=lambda a: a[1])
+        assert_allclose(rows["swing"], 20.0)
+
+    def test_unknown_variable_raises(self):
+        with pytest.raises(ValueError, match="missing from base"):
+            risk.tornado(lambda v: 0.0, {"a": 1.0}, {"b": (0.0, 1.0)})
+
+    def test_break_even(self):
+        # Hand calculation, finance-risk.md section 1: 0.5 h - 1000 = 0 at 2000 h.
+        value = risk.break_even(lambda v: v["hours"] * 0.5 - 1000.0, {"hours": 4000.0}, "hours", 0.0, 8760.0)
+        assert_allclose(value, 2000.0, rtol=1e-10)
+
+    def test_break_even_outside_range_is_none(self):
+        assert risk.break_even(lambda v: v["hours"] + 1.0, {"hours": 1.0}, "hours", 0.0, 10.0) is None
+
+
+class TestDraws:
+    def test_reproducible_by_seed(self):
+        a = risk.draw_factors(500, seed=42)
+        b = risk.draw_factors(500, seed=42)
+        c = risk.draw_factors(500, seed=43)
+        for name in risk.DEFAULT_FACTORS:
+            assert np.array_equal(a[name], b[name])
+            assert not np.array_equal(a[name], c[name])
+
+    def test_sample_means_near_distribution_means(self):
+        draws = risk.draw_factors(40_000, seed=1)
+        for name, dist in risk.DEFAULT_FACTORS.items():
+            spread = draws[name].std()
+            # Mean of 40,000 draws: 5 standard errors (spread / 200) is a loose but real bound.
+            assert abs(draws[name].mean() - dist.mean) <= 5 * spread / 200 + 1e-12, name
+
+    def test_triangular_bounds_respected(self):
+        draws = risk.draw_factors(10_000, seed=3)["capital_mult"]
+        assert draws.min() >= 0.9 and draws.max() <= 1.3
+
+    @pytest.mark.parametrize("kwargs", [dict(kind="normal", a=0.0, b=-1.0), dict(kind="lognormal", a=0.0, b=0.1),
+                                        dict(kind="triangular", a=1.0, b=0.5, c=2.0), dict(kind="beta", a=1.0)])
+    def test_invalid_distribution_raises(self, kwargs):
+        with pytest.raises(ValueError):
+            risk.Distribution(**kwargs)
+
+    def test_invalid_draw_count_raises(self):
+        with pytest.raises(ValueError, match="n_draws"):
+            risk.draw_factors(0, seed=1)
+
+    def test_loss_tolerance_multiplier(self):
+        # Hand: 1 - 0.1 x 1.0 / 0.5 = 0.8; no saving -> 1.
+        out = risk.savings_multiplier_from_loss_tolerance([0.1], [1.0, 1.0], [0.5, 0.0])
+        assert_allclose(out, [[0.8, 1.0]], rtol=1e-14)
+
+
+class TestMonteCarlo:
+    def test_one_draw_by_hand(self):
+        factors = fixed(energy_price_mult=1.2, capital_mult=1.1, discount_rate_delta_frac=0.02)
+        result = risk.monte_carlo(single_project(), COMPONENTS, factors, RESPONSE, 0.08)
+        # Hand calculation, finance-risk.md section 2: 43.264463.
+        assert_allclose(result.npv[0, 0], 43.264463, atol=5e-7)
+        # Hand: payback 1 + (165 - 120)/120 = 1.375 yr.
+        assert_allclose(result.payback_yr[0, 0], 1.375, rtol=1e-12)
+
+    def test_re_escalation(self):
+        amounts = single_project(capital=0.0)
+        factors = fixed(escalation_delta_frac=0.1, discount_rate_delta_frac=0.02)
+        result = risk.monte_carlo(amounts, COMPONENTS, factors, RESPONSE, 0.08)
+        # Hand calculation, finance-risk.md section 3: 110/1.1 + 121/1.21 = 200.
+        assert_allclose(result.npv[0, 0], 200.0, rtol=1e-12)
+
+    def test_tax_recomputed(self):
+        amounts = single_project(n_years=1, capital=0.0, tax=0.25)
+        result = risk.monte_carlo(amounts, COMPONENTS, fixed(energy_price_mult=2.0), RESPONSE, 0.0,
+                                  tax_rate_frac=0.25)
+        # Hand calculation, finance-risk.md section 4: 2 x 100 x 0.75 = 150.
+        assert_allclose(result.npv[0, 0], 150.0, rtol=1e-12)
+
+    def test_base_factors_reproduce_cash_flow_npv(self):
+        a = FinanceAssumptions(horizon_yr=12, tax_rate_frac=0.3, escalation_energy_frac=0.02,
+                               replacement_mode="replace_at_failure")
+        flows = build_cash_flows(ProjectInputs(
+            project_id=["p", "q"], capex_equipment=[1000.0, 4000.0], savings_energy_per_yr=[300.0, 500.0],
+            savings_demand_per_yr=40.0, option_life_yr=[5.0, 15.0], baseline_capex=200.0,
+            existing_remaining_life_yr=[0.0, 3.0], midlife_cost=50.0, midlife_year_yr=3.0), a)
+        result = risk.monte_carlo(flows.amounts, flows.component_names, fixed(3), risk.default_response(a),
+                                  a.discount_rate_frac, tax_rate_frac=a.tax_rate_frac)
+        # Invariant: factors at their base values re-price nothing (identity recombination).
+        t = np.arange(13)
+        expected = (flows.net() / 1.08 ** t).sum(axis=1)
+        assert_allclose(result.npv, np.tile(expected, (3, 1)), rtol=1e-12)
+
+    def test_chunking_does_not_change_results(self):
+        amounts = np.repeat(single_project(n_years=10), 7, axis=0) * np.arange(1, 8)[:, None, None]
+        factors = risk.draw_factors(300, seed=5)
+        big = risk.monte_carlo(amounts, COMPONENTS, factors, RESPONSE, 0.08)
+        small = risk.monte_carlo(amounts, COMPONENTS, factors, RESPONSE, 0.08, max_chunk_elements=100)
+        assert_allclose(big.npv, small.npv, rtol=1e-13)
+        assert np.array_equal(big.payback_yr, small.payback_yr)
+
+    def test_reproducible_by_seed(self):
+        amounts = single_project(n_years=5)
+        one = risk.monte_carlo(amounts, COMPONENTS, risk.draw_factors(200, seed=9), RESPONSE, 0.08)
+        two = risk.monte_carlo(amounts, COMPONENTS, risk.draw_factors(200, seed=9), RESPONSE, 0.08)
+        assert np.array_equal(one.npv, two.npv)
+
+    def test_converges_to_analytic_mean(self):
+        # Hand calculation, finance-risk.md section 6: E[NPV] = 313.537486, sd 198.144.
+        amounts = np.zeros((1, 6, len(COMPONENTS)))
+        amounts[0, 0, COMPONENTS.index("capital_equipment")] = -1000.0
+        amounts[0, 1:, COMPONENTS.index("savings_energy")] = 300.0
+        only_price = {"energy_price_mult": risk.DEFAULT_FACTORS["energy_price_mult"]}
+        response = {"savings_energy": risk.ComponentResponse(("energy_price_mult",))}
+        errors = {}
+        for n in (400, 6400):
+            result = risk.monte_carlo(amounts, COMPONENTS, risk.draw_factors(n, 11, only_price), response, 0.05,
+                                      rate_delta=None)
+            summary = result.summary()
+            # Sample mean within 4 standard errors of the exact mean (fails by chance ~6e-5 of the time).
+            assert abs(summary["npv_mean"].iloc[0] - 313.537486) <= 4 * 198.144 / np.sqrt(n)
+            errors[n] = summary["npv_standard_error"].iloc[0]
+        # Standard error shrinks as 1/sqrt(n): 16x the draws -> 1/4; 15 % covers the spread of the sd estimate.
+        assert_allclose(errors[400] / errors[6400], 4.0, rtol=0.15)
+
+    def test_spread_across_seeds_shrinks(self):
+        amounts = single_project(n_years=5)
+        only_price = {"energy_price_mult": risk.DEFAULT_FACTORS["energy_price_mult"]}
+        response = {"savings_energy": risk.ComponentResponse(("energy_price_mult",))}
+        spread = {}
+        for n in (50, 800):
+            means = [risk.monte_carlo(amounts, COMPONENTS, risk.draw_factors(n, seed, only_price), response, 0.05,
+                                      rate_delta=None).npv.mean() for seed in range(40)]
+            spread[n] = np.std(means, ddof=1)
+        # Expected ratio sqrt(800/50) = 4; with 40 seeds the sd of each spread estimate is ~11 %: allow 35 %.
+        assert_allclose(spread[50] / spread[800], 4.0, rtol=0.35)
+
+    def test_per_project_multiplier(self):
+        amounts = np.repeat(single_project(capital=0.0, n_years=1), 2, axis=0)
+        factors = fixed(2)
+        factors["efficiency_savings_mult"] = np.array([[0.5, 1.0], [1.0, 0.0]])
+        response = {"savings_energy": risk.ComponentResponse(("efficiency_savings_mult",))}
+        result = risk.monte_carlo(amounts, COMPONENTS, factors, response, 0.0)
+        # Hand: savings 100 x multiplier per draw and project.
+        assert_allclose(result.npv, [[50.0, 100.0], [100.0, 0.0]])
+
+    def test_missing_factor_raises(self):
+        response = {"savings_energy": risk.ComponentResponse(("wind_mult",))}
+        with pytest.raises(ValueError, match="wind_mult"):
+            risk.monte_carlo(single_project(), COMPONENTS, fixed(), response, 0.08)
+
+    def test_shape_mismatch_raises(self):
+        with pytest.raises(ValueError, match="shape"):
+            risk.monte_carlo(np.zeros((1, 3, 2)), COMPONENTS, fixed(), RESPONSE, 0.08)
+
+
+class TestSummary:
+    def test_percentiles_by_hand(self):
+        result = risk.MonteCarloResult(project_id=np.array(["p"]), npv=np.arange(1.0, 101.0)[:, None],
+                                       payback_yr=np.ones((100, 1)), discount_rate_frac=np.zeros(100))
+        row = result.summary().iloc[0]
+        # Hand calculation, finance-risk.md section 5: 10.9, 50.5, 90.1.
+        assert_allclose([row.npv_p10, row.npv_p50, row.npv_p90], [10.9, 50.5, 90.1], rtol=1e-12)
+
+    def test_payback_percentiles_keep_inf(self):
+        result = risk.MonteCarloResult(project_id=np.array(["p"]), npv=np.array([[-1.0], [2.0], [3.0], [-4.0]]),
+                                       payback_yr=np.array([[1.0], [2.0], [np.inf], [np.inf]]),
+                                       discount_rate_frac=np.zeros(4))
+        row = result.summary(target_payback_yr=1.5).iloc[0]
+        # Hand calculation, finance-risk.md section 5: P50 = 2, P90 = inf, P(NPV > 0) = 0.5.
+        assert row.payback_p50_yr == 2.0 and row.payback_p90_yr == np.inf
+        assert_allclose(row.prob_npv_positive_frac, 0.5)
+        assert_allclose(row.prob_payback_within_target_frac, 0.25)
+        assert not np.isnan(result.summary().to_numpy(dtype=float)).any()
