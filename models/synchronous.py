@@ -362,6 +362,11 @@ def lspm_operating_point(p_shaft_kw, rated_p_kw, rated_efficiency_frac, poles, f
     fw = loss_r * _split_array(loss_split, "friction_windage", nd)
     stray_r = loss_r * _split_array(loss_split, "stray_load", nd)
     q_r = np.where(lead, -1.0, 1.0) * np.sqrt(1.0 - pf * pf)
+    if np.any(1.0 - x * q_r <= 0.0):
+        raise ValueError(
+            "rated point lies beyond 90 degrees load angle (synchronous_reactance_pu x sin(phi_rated) >= 1): "
+            "lower synchronous_reactance_pu or raise rated_power_factor"
+        )
     e0 = np.sqrt((1.0 - x * q_r) ** 2 + (x * pf) ** 2)
     shape = np.broadcast_shapes(p.shape, pr.shape, eta.shape, pf.shape, x.shape, v.shape, lead.shape, speed.shape)
     r = _blockwise(_lspm_kernel, shape, p=p, pr=pr, s_b=s_b, cu_r=cu_r, core=core, fw=fw, stray_r=stray_r, x=x,

@@ -166,6 +166,19 @@ class TestLspm:
         # 2-5 points for a standard IE3 motor); hand value 0.91832 vs 0.939
         assert 0.939 - r.efficiency_frac < 0.025
 
+    def test_flatter_than_induction_curve_built_in_test(self):
+        # An induction-motor-like curve built here by hand (an assumption, not a published curve): IE3 4-pole
+        # 15 kW, 92.1 % (IEC 60034-30-1, REFERENCES §1a); rated loss split 35 % constant, 35 % stator copper
+        # with magnetising current 0.4 (I² = 0.16 + 0.84 τ²), 30 % rotor copper + stray ∝ τ².
+        tau = np.array([0.25, 0.4, 0.5, 0.6, 0.75, 0.9])
+        loss_r = 15.0 * (1.0 / 0.921 - 1.0)
+        im_loss = loss_r * (0.35 + 0.35 * (0.16 + 0.84 * tau ** 2) + 0.30 * tau ** 2)
+        im_ratio = (15.0 * tau / (15.0 * tau + im_loss)) / 0.921
+        lspm_ratio = lspm_operating_point(15.0 * tau, **LSPM).efficiency_frac / 0.939
+        assert np.all(lspm_ratio > im_ratio)
+        # flatness: the LSPM's spread of eta/eta_rated over 25-90 % load is smaller
+        assert np.ptp(lspm_ratio) < np.ptp(im_ratio)
+
     def test_power_factor_falls_at_light_load(self):
         r = lspm_operating_point(np.array([0.0, 1.5, 15.0]), **LSPM)
         assert r.power_factor[0] < r.power_factor[2] < r.power_factor[1]
@@ -213,6 +226,11 @@ class TestLspm:
         with pytest.raises(ValueError, match="p_shaft_kw"):
             lspm_operating_point(-1.0, **LSPM)
 
+    def test_rated_point_beyond_90_degrees_raises(self):
+        # x · sin(phi) = 2.0 · 0.6 = 1.2 >= 1: the stated rated point would sit on the unstable branch
+        with pytest.raises(ValueError, match="beyond 90 degrees"):
+            lspm_operating_point(5.0, **LSPM, rated_power_factor=0.8, synchronous_reactance_pu=2.0)
+
     def test_efficiency_above_one_raises(self):
         with pytest.raises(ValueError, match="rated_efficiency_frac"):
             lspm_operating_point(10.0, 15.0, 1.02, 4)
@@ -222,7 +240,7 @@ class TestLspm:
             LossSplit(0.5, 0.5, 0.5, 0.0)
 
     @settings(max_examples=60, deadline=None)
-    @given(load=st.floats(0.0, 1.2), eta=st.floats(0.85, 0.975), pf=st.floats(0.8, 1.0), x=st.floats(0.3, 1.0),
+    @given(load=st.floats(0.0, 1.0), eta=st.floats(0.85, 0.975), pf=st.floats(0.8, 1.0), x=st.floats(0.3, 1.0),
            leading=st.booleans())
     def test_input_equals_shaft_plus_losses(self, load, eta, pf, x, leading):
         r = lspm_operating_point(20.0 * load, 20.0, eta, 4, rated_power_factor=pf, rated_leading=leading,
@@ -511,6 +529,22 @@ class TestWfsmFollowSite:
         assert_allclose(-r.q_kvar, 55.3233, rtol=HAND_RTOL)
         assert_allclose(-r.q_kvar, 55.30, atol=0.05)
         assert not r.limited_by_stator_current and not r.limited_by_field_current
+
+    @pytest.mark.parametrize(
+        "pf1, pf2, multiplier",
+        # published multiplier table, REFERENCES §5 (cells [C]; 0.75->0.90 and 0.65->1.00 verified [V])
+        [(0.60, 0.95, 1.005), (0.65, 1.00, 1.169), (0.75, 0.90, 0.398), (0.80, 0.92, 0.324), (0.85, 0.98, 0.417)],
+    )
+    def test_multiplier_table_cells(self, pf1, pf2, multiplier):
+        # unloaded lossless machine (stator rating raised to 400 A = 277 kVA so that no limit binds; field
+        # allows 160 kvar, docs/derivations/synchronous-wfsm-limits-and-follow-site.md case C), rest of the
+        # site 100 kW at pf1: the machine must supply 100 · multiplier
+        machine = {**LOSSLESS_BIG_FIELD, "max_stator_current_a": 400.0}
+        r = wfsm_operating_point(0.0, **machine, mode="follow_site", site_p_kw_other=100.0,
+                                 site_q_kvar_other=100.0 * np.tan(np.arccos(pf1)), site_target_power_factor=pf2)
+        # the table is rounded to 3 decimals: 0.0005 · 100 kW = 0.05 kvar
+        assert_allclose(-r.q_kvar, 100.0 * multiplier, atol=0.06)
+        assert not (r.limited_by_stator_current or r.limited_by_field_current or r.limited_by_load_angle)
 
     def test_loaded_machine_reaches_target(self):
         r = wfsm_operating_point(30.0, **LOSSLESS_BIG_FIELD, mode="follow_site", site_p_kw_other=70.0,
