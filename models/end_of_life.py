@@ -615,8 +615,9 @@ def fleet_rules(
     Notes
     -----
     For a motor that has just failed, :func:`failed_motor_costs` gives the present cost of replacing and
-    of rewinding for every size x hours pair. Replacing wins where its cost is lower. Because the running-cost gap grows linearly with hours, the winning side switches at
-    most once along the hours axis.
+    of rewinding for every size x hours pair. Replacing wins where its cost is lower. Because the
+    running-cost gap grows linearly with hours, the winning side switches at most once along the hours
+    axis.
     """
     sizes = _positive(rated_p_kw, "rated_p_kw").ravel()
     hours = _nonnegative(hours_per_yr, "hours_per_yr").ravel()

@@ -355,8 +355,9 @@ def npv(cash_flows: Any, discount_rate_frac: Any) -> Any:
     cash_flows : array_like, pandas.Series or pandas.DataFrame
         Cash flows, last axis (or columns) = year 0..n_years; negative = money out [currency].
     discount_rate_frac : float or array_like
-        Discount rate per year [frac], > -1; an array broadcasts against the leading axes
-        (one rate per project or per Monte Carlo draw).
+        Discount rate per year [frac], > -1; an array must broadcast against ``cash_flows.shape[:-1]``
+        (shape (n_projects,) for one rate per project; (n_draws, 1) for one rate per draw of an
+        (n_draws, n_projects, n_years + 1) array).
 
     Returns
     -------
@@ -865,7 +866,7 @@ def discounted_payback(cash_flows: Any, discount_rate_frac: Any) -> PaybackResul
     cash_flows : array_like, pandas.Series or pandas.DataFrame
         Cash flows, last axis = year 0..n_years; negative = money out [currency].
     discount_rate_frac : float or array_like
-        Discount rate per year [frac], > -1; broadcasts against the leading axes.
+        Discount rate per year [frac], > -1; an array must broadcast against ``cash_flows.shape[:-1]``.
 
     Returns
     -------

@@ -45,6 +45,8 @@ class FleetPlan:
         given), "empty" (no project with a positive NPV) or "failed" (solver error; no project chosen).
     message : str
         Plain-words note on the status.
+    selection : numpy.ndarray
+        0-1 matrix x[i, s] (project i starts in plan year s), shape (n_projects, n_plan_years).
     """
 
     chosen: pd.DataFrame
