@@ -72,6 +72,59 @@ def cmd_check(args: argparse.Namespace) -> int:
     return 0
 
 
+def _load_or_report(path: str):
+    from models.case import load_case
+
+    case, problems = load_case(path)
+    if case is None:
+        print(f"Case {path}: NOT VALID")
+        _print_problems(problems)
+    return case
+
+
+def cmd_bill(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from models.bill_savings import meter_and_bills, monthly_bill_table, reactive_value_curve, site_setups
+    from models.operation import operate
+
+    case = _load_or_report(args.case)
+    if case is None:
+        return 1
+    sites = list(case.sites["site_id"]) if not args.site else [args.site]
+    unknown = [s for s in sites if s not in set(case.sites["site_id"])]
+    if unknown:
+        print(f"drivecase bill: unknown site {unknown[0]!r}; sites are {', '.join(case.sites['site_id'])}", file=sys.stderr)
+        return 1
+    op = operate(case)
+    try:
+        setups = site_setups(case, op.index)
+    except ValueError as exc:
+        print(f"drivecase bill: {exc}", file=sys.stderr)
+        return 1
+    meters, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int), setups)
+    currency = case.settings.currency
+    for site_id in sites:
+        table = monthly_bill_table(bills, site_id)
+        table.index = [str(m)[:7] for m in table.index]
+        meter = meters[site_id]
+        energy = float(np.sum(meter.p_kw) * op.interval_h)
+        lag = float(np.sum(np.maximum(meter.q_kvar, 0)) * op.interval_h)
+        print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}]")
+        print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW, "
+              f"mean power factor {energy / np.hypot(energy, lag):.3f}")
+        print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
+    if args.reactive_sweep:
+        curve = reactive_value_curve(case, op, args.reactive_sweep, args.capacitor_cost)
+        print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows, "
+              f"beside a capacitor bank at {args.capacitor_cost:g} {currency}/kVAr")
+        shown = curve[["supplied_q_kvar", "saving", "marginal_saving_per_kvar", "capacitor_bank_cost"]]
+        print("\n".join("  " + line for line in shown.to_string(index=False, float_format=lambda v: f"{v:,.1f}").splitlines()))
+        print("  The saving flattens once the site passes the tariff's threshold: kVAr beyond it is worth nothing.")
+    print(f"\n{CAUTION}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -82,6 +135,14 @@ def build_parser() -> argparse.ArgumentParser:
     p_check = sub.add_parser("check", help="validate a case and print a fleet summary")
     p_check.add_argument("case", help="case folder or .xlsx workbook")
     p_check.set_defaults(func=cmd_check)
+    p_bill = sub.add_parser("bill", help="print each site's monthly bill by line item for today's fleet")
+    p_bill.add_argument("case", help="case folder or .xlsx workbook")
+    p_bill.add_argument("--site", help="only this site")
+    p_bill.add_argument("--reactive-sweep", metavar="ASSET",
+                        help="also show how the bill saving of leading kVAr on this asset's site saturates")
+    p_bill.add_argument("--capacitor-cost", type=float, default=35.0,
+                        help="capacitor bank cost per kVAr for the comparison (default 35)")
+    p_bill.set_defaults(func=cmd_bill)
     return parser
 
 

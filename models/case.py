@@ -735,6 +735,10 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
             problems.append(error(source, None, "tariff.currency", tariff.currency,
                                   f"the tariff's currency differs from the case currency {settings.currency}",
                                   "one case prices everything in one currency"))
+        if tariff.time_zone and tariff.time_zone != settings.time_zone:
+            problems.append(error(source, None, "tariff.time_zone", tariff.time_zone,
+                                  f"the tariff's time zone differs from the case time zone {settings.time_zone}",
+                                  "periods and billing months are read on the site's clock: use the case zone"))
         parsed[name] = tariff
     return parsed
 

@@ -1,0 +1,280 @@
+"""What each option is worth on the utility bill: site meters, monthly bills and attributed savings.
+
+For every site the assets' power under today's motors, the non-motor base load and the existing
+capacitor banks make the meter; the site's tariff turns it into a bill by line item and month. Each
+asset-option is then priced by the bill change when only that asset changes, so demand savings count
+only where the asset runs in the billing peak and reactive savings stop once the site passes the
+tariff's threshold. A plan (one option per asset) is priced with all its changes together, and the
+difference from the sum of the singles is reported as interaction.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from models import attribution, billing
+from models.profiles import conform
+from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank
+
+#: Components the finance engine escalates separately, and the bill line-item categories each gathers.
+COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
+    "energy": ("energy",),
+    "demand": ("demand", "pf adjustment", "ratchet"),
+    "reactive": ("reactive", "leading"),
+    "fixed": ("fixed",),
+}
+SAVING_COMPONENTS: tuple[str, ...] = tuple(COMPONENT_CATEGORIES)
+#: Technologies whose value is mainly reactive power: they are compared with a capacitor bank.
+REACTIVE_TECHNOLOGIES = ("wound_field", "capacitor")
+
+
+@dataclass(frozen=True)
+class SiteSetup:
+    """One site's tariff, equipment and base-load profile, ready for billing."""
+
+    site_id: str
+    tariff: object
+    site: Site
+    base_p_kw_profile: np.ndarray | None
+
+
+@dataclass(frozen=True)
+class BillSavings:
+    """Yearly bill savings of every asset-option, by component.
+
+    Attributes
+    ----------
+    components : tuple of str
+        :data:`SAVING_COMPONENTS`.
+    saving : numpy.ndarray, shape (n_assets, n_options, n_components)
+        Yearly saving on the site bill when only this asset changes to this option [currency/yr],
+        taxes spread over the components in proportion.
+    reactive_saving : numpy.ndarray, shape (n_assets, n_options)
+        Saving from the kVAr change alone [currency/yr].
+    equivalent_bank_q_kvar, equivalent_bank_cost : numpy.ndarray, shape (n_assets, n_options)
+        For reactive options: the capacitor bank that buys the same reactive saving [kVAr], [currency]
+        (NaN for the other options).
+    baseline_bills : pandas.DataFrame
+        site_id, month, line_item, quantity, unit, rate, amount: today's bills.
+    """
+
+    components: tuple[str, ...]
+    saving: np.ndarray
+    reactive_saving: np.ndarray
+    equivalent_bank_q_kvar: np.ndarray
+    equivalent_bank_cost: np.ndarray
+    baseline_bills: pd.DataFrame
+
+    @property
+    def total(self) -> np.ndarray:
+        """Total yearly saving [currency/yr], shape (n_assets, n_options)."""
+        return self.saving.sum(axis=-1)
+
+
+def site_setups(case, index: pd.DatetimeIndex) -> dict[str, SiteSetup]:
+    """Build each site's billing set-up from the case.
+
+    Raises
+    ------
+    ValueError
+        When a site has no tariff (a run needs one per site).
+    """
+    setups = {}
+    caps = case.capacitors
+    for row in case.sites.itertuples(index=False):
+        if row.tariff_file is None or row.tariff_file not in case.tariffs:
+            raise ValueError(f"sites.csv: site '{row.site_id}' has no tariff_file; pricing the site needs its tariff")
+        banks = caps[caps["site_id"] == row.site_id]
+        fixed = tuple(FixedCapacitorBank(float(b.rated_q_kvar), str(b.bank_id))
+                      for b in banks.itertuples(index=False) if b.control == "fixed")
+        stepped = tuple(SteppedCapacitorBank(float(b.rated_q_kvar), float(b.step_q_kvar), float(b.target_power_factor),
+                                             str(b.bank_id)) for b in banks.itertuples(index=False) if b.control == "stepped")
+        profile = None
+        if row.base_profile_id is not None and row.base_profile_id in case.profiles:
+            profile = conform(case.profiles[row.base_profile_id], index)[0]
+        site = Site(base_p_kw=float(row.base_p_kw) if profile is None else 0.0,
+                    base_power_factor=float(row.base_power_factor), fixed_banks=fixed, stepped_banks=stepped)
+        setups[row.site_id] = SiteSetup(row.site_id, case.tariffs[row.tariff_file], site, profile)
+    return setups
+
+
+def _components(frame: pd.DataFrame) -> np.ndarray:
+    """Gather ``saving_<category>`` columns into components, spreading taxes in proportion."""
+    out = np.zeros((len(frame), len(SAVING_COMPONENTS)))
+    for k, cats in enumerate(COMPONENT_CATEGORIES.values()):
+        for cat in cats:
+            column = f"saving_{cat}"
+            if column in frame:
+                out[:, k] += frame[column].to_numpy(dtype=float)
+    total = frame["saving"].to_numpy(dtype=float)
+    untaxed = out.sum(axis=1)
+    rest = total - untaxed  # taxes and levies move with the charges they are levied on
+    share = np.divide(out, untaxed[:, None], out=np.full_like(out, 1.0 / out.shape[1]), where=np.abs(untaxed[:, None]) > 1e-12)
+    return out + share * rest[:, None]
+
+
+def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] | None = None):
+    """Site meters and bills for one choice of option per asset.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    op : models.operation.OperatingResult
+    choice : numpy.ndarray of int, shape (n_assets,)
+        Position of the chosen option per asset (0 = today's motor).
+
+    Returns
+    -------
+    meters : dict of str -> models.site.SiteMeter
+    bills : pandas.DataFrame
+        site_id, month, line_item, quantity, unit, rate, amount [currency].
+    """
+    setups = setups or site_setups(case, op.index)
+    rows = np.arange(len(op.asset_ids))
+    p = op.p_kw[choice, rows]
+    q = op.q_kvar[choice, rows]
+    meters, frames = {}, []
+    for site_id, setup in setups.items():
+        members = op.site_ids == site_id
+        meter = setup.site.meter(p[members], q[members], base_p_kw_profile=setup.base_p_kw_profile)
+        meters[site_id] = meter
+        frame = billing.bill(setup.tariff, op.index, meter.p_kw, meter.q_kvar, interval_h=op.interval_h)
+        frames.append(frame.assign(site_id=site_id))
+    bills = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    cols = ["site_id"] + [c for c in bills.columns if c != "site_id"]
+    return meters, bills[cols]
+
+
+def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None) -> BillSavings:
+    """Price every asset-option by the bill change when only that asset changes.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    op : models.operation.OperatingResult
+    capacitor_cost_per_kvar : float
+        Installed cost of an automatic capacitor bank [currency/kVAr], for the equivalent-bank comparison.
+
+    Returns
+    -------
+    BillSavings
+    """
+    setups = setups or site_setups(case, op.index)
+    n_a, n_o = len(op.asset_ids), len(op.option_ids)
+    saving = np.zeros((n_a, n_o, len(SAVING_COMPONENTS)))
+    reactive = np.zeros((n_a, n_o))
+    bank_q = np.full((n_a, n_o), np.nan)
+    bank_cost = np.full((n_a, n_o), np.nan)
+    reactive_options = np.isin(op.technologies, REACTIVE_TECHNOLOGIES)
+    _, baseline_bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
+    for site_id, setup in setups.items():
+        members = np.flatnonzero(op.site_ids == site_id)
+        p0 = op.p_kw[0, members]
+        q0 = op.q_kvar[0, members]
+        for j in members:
+            opts = np.flatnonzero(op.applies[j] & (np.arange(n_o) > 0))
+            if not len(opts):
+                continue
+            changed = opts[(np.abs(op.p_kw[opts, j] - op.p_kw[0, j]).max(axis=1) > 0)
+                           | (np.abs(op.q_kvar[opts, j] - op.q_kvar[0, j]).max(axis=1) > 0)]
+            for group, cost in ((changed[~reactive_options[changed]], None), (changed[reactive_options[changed]], capacitor_cost_per_kvar)):
+                if not len(group):
+                    continue
+                frame = attribution.option_savings(
+                    setup.tariff, op.index, p0, q0, op.p_kw[group, j] - op.p_kw[0, j], op.q_kvar[group, j] - op.q_kvar[0, j],
+                    site=setup.site, option_names=[str(x) for x in op.option_ids[group]],
+                    capacitor_cost_per_kvar=cost, base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+                saving[j, group] = _components(frame)
+                reactive[j, group] = frame["reactive_saving"].to_numpy(dtype=float)
+                if cost is not None:
+                    bank_q[j, group] = frame["equivalent_bank_q_kvar"].to_numpy(dtype=float)
+                    bank_cost[j, group] = frame["equivalent_bank_cost"].to_numpy(dtype=float)
+    return BillSavings(SAVING_COMPONENTS, saving, reactive, bank_q, bank_cost, baseline_bills)
+
+
+def plan_bill_savings(case, op, choice: np.ndarray, capacitor_cost_per_kvar: float | None = None,
+                      setups: dict[str, SiteSetup] | None = None) -> dict[str, attribution.PlanSavings]:
+    """Price a plan (one option per asset) per site, with the interaction against the single savings."""
+    setups = setups or site_setups(case, op.index)
+    out = {}
+    for site_id, setup in setups.items():
+        members = np.flatnonzero(op.site_ids == site_id)
+        chosen = members[choice[members] > 0]
+        if not len(chosen):
+            continue
+        p0, q0 = op.p_kw[0, members], op.q_kvar[0, members]
+        dp = op.p_kw[choice[chosen], chosen] - op.p_kw[0, chosen]
+        dq = op.q_kvar[choice[chosen], chosen] - op.q_kvar[0, chosen]
+        names = [f"{op.asset_ids[j]}:{op.option_ids[choice[j]]}" for j in chosen]
+        out[site_id] = attribution.plan_savings(setup.tariff, op.index, p0, q0, dp, dq, site=setup.site, option_names=names,
+                                                asset_ids=list(op.asset_ids[chosen]),
+                                                capacitor_cost_per_kvar=capacitor_cost_per_kvar,
+                                                base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+    return out
+
+
+def monthly_bill_table(bills: pd.DataFrame, site_id: str) -> pd.DataFrame:
+    """Pivot one site's bills to months x line items (plus a total column) [currency]."""
+    frame = bills[bills["site_id"] == site_id]
+    table = frame.pivot_table(index="month", columns="line_item", values="amount", aggfunc="sum", sort=True).fillna(0.0)
+    table["total"] = table.sum(axis=1)
+    return table
+
+
+def reactive_value_curve(case, op, asset_id: str, capacitor_cost_per_kvar: float, n_points: int = 11,
+                         max_q_kvar: float | None = None, setups: dict[str, SiteSetup] | None = None) -> pd.DataFrame:
+    """Yearly bill saving as leading kVAr supplied on an asset's site grows, beside a capacitor bank's cost.
+
+    Parameters
+    ----------
+    case, op
+        The case and its operating result.
+    asset_id : str
+        The asset whose site is swept (typically a wound-field synchronous candidate).
+    capacitor_cost_per_kvar : float
+        Installed cost of a capacitor bank [currency/kVAr].
+    n_points : int
+        Number of sweep points from 0 to ``max_q_kvar``.
+    max_q_kvar : float, optional
+        Largest leading kVAr [kVAr]; default the asset's rated kVA at 0.9 leading (its reactive capability).
+
+    Returns
+    -------
+    pandas.DataFrame
+        supplied_q_kvar [kVAr], saving [currency/yr], marginal_saving_per_kvar [currency/kVAr/yr],
+        capacitor_bank_cost [currency], leading_kvarh [kVArh], flags.
+
+    Notes
+    -----
+    The saving flattens once the site passes the tariff's threshold (and falls where leading kVArh is
+    charged): past that point extra kVAr is worth nothing, which is why a capacitor bank sized to the
+    threshold is the yardstick for any reactive-power claim.
+    """
+    setups = setups or site_setups(case, op.index)
+    j = op.asset_position(asset_id)
+    site_id = op.site_ids[j]
+    setup = setups[site_id]
+    members = np.flatnonzero(op.site_ids == site_id)
+    if max_q_kvar is None:
+        # up to the larger of the asset's capability at 0.9 leading and 1.2 x the site's peak lagging kVAr
+        # before correction, so the sweep reaches the point where the value saturates
+        rated = float(case.assets["rated_p_kw"].iloc[j])
+        capability = rated / 0.97 / 0.9 * np.sin(np.arccos(0.9))
+        base_q = setup.site.base_p_kw * np.tan(np.arccos(setup.site.base_power_factor))
+        if setup.base_p_kw_profile is not None:
+            base_q = np.asarray(setup.base_p_kw_profile) * np.tan(np.arccos(setup.site.base_power_factor))
+        site_q = op.q_kvar[0, members].sum(axis=0) + base_q
+        max_q_kvar = float(max(capability, 1.2 * np.max(site_q)))
+    supplied = np.linspace(0.0, max_q_kvar, n_points)
+    frame = attribution.reactive_saving_sweep(setup.tariff, op.index, op.p_kw[0, members], op.q_kvar[0, members],
+                                              supplied, site=setup.site, base_p_kw_profile=setup.base_p_kw_profile,
+                                              interval_h=op.interval_h)
+    out = pd.DataFrame({"supplied_q_kvar": supplied, "saving": frame["saving"].to_numpy(dtype=float)})
+    out["marginal_saving_per_kvar"] = np.concatenate([[np.nan], np.diff(out["saving"]) / np.diff(supplied)])
+    out["capacitor_bank_cost"] = supplied * capacitor_cost_per_kvar
+    out["leading_kvarh"] = frame["leading_kvarh"].to_numpy(dtype=float)
+    out["flags"] = frame["flags"].to_numpy(dtype=object)
+    return out

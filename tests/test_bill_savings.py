@@ -1,0 +1,115 @@
+"""Bill savings of asset-options at the site meter: zero for no change, order-independent, plan interaction."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+import casebuilder as cb
+from drivecase.cli import main
+from models.bill_savings import bill_savings, meter_and_bills, monthly_bill_table, plan_bill_savings, reactive_value_curve
+from models.case import load_case
+from models.operation import operate
+
+TARIFF = Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_tou_kw_reactive_ratchet.toml"
+HEADER = cb.ASSET_HEADER
+ASSETS = [
+    ["P1", "S1", "Throttled pump", "pump", "30", "4", "50", "400", "IE1", "", "", "1460", "2006", "0", "throttled", "LP1", "", "", "high"],
+    ["F1", "S1", "Fan", "fan", "15", "4", "50", "400", "IE2", "", "", "1455", "2010", "0", "fixed", "LP1", "", "", "low"],
+    ["C1", "S1", "Compressor", "compressor", "55", "2", "50", "400", "unknown", "", "", "", "1999", "1", "fixed", "", "5000", "80", "low"],
+]
+
+
+def _case(folder: Path, assets, capacitors=None):
+    cb.write_case(folder, assets=assets, sites=[["S1", "Works", "40", "0.8"]], duty=[], capacitors=capacitors,
+                  profiles=[["LP1", f"2025-01-{1 + d:02d} {h:02d}:00", f"{55 + 10 * (h % 3)}"] for d in range(28) for h in range(24)])
+    (folder / "tariffs").mkdir()
+    shutil.copyfile(TARIFF, folder / "tariffs" / TARIFF.name)
+    text = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    text[0] += ",tariff_file"
+    text[1] += f",{TARIFF.name}"
+    (folder / "sites.csv").write_text("\n".join(text) + "\n", encoding="utf-8")
+    case, problems = load_case(folder, mode="strict")
+    return case
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    case = _case(tmp_path_factory.mktemp("s"), ASSETS)
+    op = operate(case)
+    return case, op, bill_savings(case, op, 35.0)
+
+
+def test_keeping_everything_saves_nothing(small):
+    _, op, savings = small
+    assert_allclose(savings.total[:, 0], 0.0, atol=1e-9)
+
+
+def test_results_do_not_depend_on_row_order(small, tmp_path):
+    case, op, savings = small
+    case2 = _case(tmp_path / "r", [ASSETS[2], ASSETS[0], ASSETS[1]])
+    op2 = operate(case2)
+    savings2 = bill_savings(case2, op2, 35.0)
+    for k, asset in enumerate(op.asset_ids):
+        j = op2.asset_position(asset)
+        assert_allclose(savings2.total[j], savings.total[k], rtol=1e-9, atol=1e-6)
+
+
+def test_savings_never_exceed_the_bill(small):
+    case, op, savings = small
+    assert (savings.total <= savings.baseline_bills["amount"].sum() + 1e-9).all()
+
+
+def test_drive_on_the_throttled_pump_saves_energy_and_demand(small):
+    _, op, savings = small
+    j, o = op.asset_position("P1"), op.option_position("pm_drive")
+    energy, demand = savings.saving[j, o, 0], savings.saving[j, o, 1]
+    assert energy > 0 and demand > 0
+
+
+def test_plan_rows_and_interaction_add_up(small):
+    case, op, savings = small
+    choice = np.array([op.option_position("pm_drive"), op.option_position("ie4"), op.option_position("capacitor")])
+    plans = plan_bill_savings(case, op, choice, 35.0)
+    plan = plans["S1"]
+    rows = plan.by_option["saving"]
+    assert_allclose(rows.drop("plan").sum(), rows["plan"], rtol=1e-9)
+    assert_allclose(rows["plan"], plan.baseline_bill - plan.plan_bill, rtol=1e-9)
+
+
+def test_monthly_table_totals(small):
+    case, op, savings = small
+    _, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))
+    table = monthly_bill_table(bills, "S1")
+    assert_allclose(table["total"].sum(), bills["amount"].sum(), rtol=1e-12)
+    # a four-week profile is extended to the analysis year, so the bill has twelve months
+    assert list(table.index) == [f"2025-{m:02d}" for m in range(1, 13)]
+
+
+def test_existing_automatic_bank_leaves_no_reactive_value(small):
+    case, op, _ = small
+    # the case's stepped 60 kVAr bank already holds the site at its target: extra kVAr is worth nothing
+    curve = reactive_value_curve(case, op, "C1", 35.0, n_points=5)
+    assert_allclose(curve["saving"], 0.0, atol=1e-9)
+
+
+def test_reactive_value_saturates(tmp_path):
+    case = _case(tmp_path / "nobank", ASSETS, capacitors=[])
+    op = operate(case)
+    curve = reactive_value_curve(case, op, "C1", 35.0, n_points=9)
+    marginal = curve["marginal_saving_per_kvar"].to_numpy()[1:]
+    # the first kVAr are worth more than the last: value falls once the reactive allowance is met
+    assert marginal[0] > 0 and marginal[-1] < 0.5 * marginal[0]
+    assert_allclose(curve["capacitor_bank_cost"], curve["supplied_q_kvar"] * 35.0)
+
+
+def test_bill_command_prints_months_by_line_item(capsys):
+    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+    assert main(["bill", str(demo), "--site", "KGQ", "--reactive-sweep", "KGQ-CR01"]) == 0
+    out = capsys.readouterr().out
+    assert "Site KGQ" in out and "2025-01" in out and "2025-12" in out and "2024-12" not in out
+    assert "capacitor bank" in out and "qualified persons" in out
