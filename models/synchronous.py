@@ -346,7 +346,8 @@ def lspm_operating_point(p_shaft_kw, rated_p_kw, rated_efficiency_frac, poles, f
     eta = _per_asset(rated_efficiency_frac, nd)
     pf = _per_asset(rated_power_factor, nd)
     x = _per_asset(synchronous_reactance_pu, nd)
-    v = _per_asset(supply_voltage_pu, nd) if not isinstance(supply_voltage_pu, pd.DataFrame) else kind.arr(supply_voltage_pu)
+    v = (kind.arr(supply_voltage_pu) if isinstance(supply_voltage_pu, pd.DataFrame)
+         else _per_asset(supply_voltage_pu, nd))
     lead = _per_asset(np.asarray(rated_leading, dtype=bool), nd)
     _check_range("rated_p_kw", pr, 0.0, np.inf, lo_open=True, unit="kW")
     _check_range("rated_efficiency_frac", eta, 0.0, 1.0, lo_open=True, hi_open=True)
@@ -484,8 +485,10 @@ def lspm_starting_screen(load_inertia_ratio, start_load_torque_frac, starts_per_
         Starts per hour [1/h], >= 0.
     supply_voltage_dip_frac : float or array_like
         Terminal-voltage dip during the start [-], 0-1 (0.1 = 10 %).
-    max_load_inertia_ratio, max_start_load_torque_frac, max_starts_per_hour, max_supply_voltage_dip_frac : float, optional
-        Thresholds; defaults are the module constants (common practice, from memory).
+    max_load_inertia_ratio, max_start_load_torque_frac : float, optional
+        Inertia-ratio and start-torque thresholds; defaults are the module constants (common practice).
+    max_starts_per_hour, max_supply_voltage_dip_frac : float, optional
+        Starts-per-hour and voltage-dip thresholds; defaults are the module constants (common practice).
 
     Returns
     -------
@@ -1009,10 +1012,12 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
         return a
 
     vr_ll = asset("rated_v_ll_v", rated_v_ll_v, 0.0, np.inf, lo_open=True, unit="V")
-    v_ll = vr_ll if supply_v_ll_v is None else asset("supply_v_ll_v", supply_v_ll_v, 0.0, np.inf, lo_open=True, unit="V")
+    v_ll = (vr_ll if supply_v_ll_v is None
+            else asset("supply_v_ll_v", supply_v_ll_v, 0.0, np.inf, lo_open=True, unit="V"))
     x = asset("synchronous_reactance_ohm", synchronous_reactance_ohm, 0.0, np.inf, lo_open=True, unit="ohm")
     r = asset("armature_resistance_ohm", armature_resistance_ohm, 0.0, np.inf, unit="ohm")
-    i_ag = asset("field_current_at_rated_voltage_a", field_current_at_rated_voltage_a, 0.0, np.inf, lo_open=True, unit="A")
+    i_ag = asset("field_current_at_rated_voltage_a", field_current_at_rated_voltage_a, 0.0, np.inf, lo_open=True,
+                 unit="A")
     r_f = asset("field_resistance_ohm", field_resistance_ohm, 0.0, np.inf, unit="ohm")
     core_r = asset("core_loss_kw", core_loss_kw, 0.0, np.inf, unit="kW") * 1e3
     fw = asset("friction_windage_loss_kw", friction_windage_loss_kw, 0.0, np.inf, unit="kW") * 1e3
@@ -1093,10 +1098,11 @@ def _wfsm_kernel(p, v, v_r, r, x, i_ag, r_f, sat, inv_eta_x, fixed, s_max, s_max
         h2 = rad2 - dp * dp
         h = np.sqrt(np.maximum(h2, 0.0))
         q_lo_f = cq - h
-        q_hi_f = cq + h
         q_hi_d = qd0 - qd1 * p_st
         lo = np.maximum(-q_i, q_lo_f)
-        hi = np.minimum(np.minimum(q_i, q_hi_f), q_hi_d)
+        # upper side of the field circle (cq + h) lies above the load-angle line for delta_max < 90 deg
+        # wherever the band is not empty, so the upper bound is stator current or load angle
+        hi = np.minimum(q_i, q_hi_d)
         q = np.minimum(np.maximum(q_des, lo), hi)
         c = pm + a * q * q
         disc = 1.0 - 4.0 * a * c
@@ -1119,9 +1125,9 @@ def _wfsm_kernel(p, v, v_r, r, x, i_ag, r_f, sat, inv_eta_x, fixed, s_max, s_max
         "load_angle_deg": np.degrees(np.arctan2(im3, re3)), "q_desired_kvar": q_des * k,
         "stator_copper_loss_kw": (3.0 * i_line * i_line * r) * k, "field_copper_loss_kw": p_fcu * k,
         "exciter_loss_kw": (p_exc - p_fcu) * k,
-        "limited_by_stator_current": (low & (-q_i >= q_lo_f)) | (high & (q_i <= np.minimum(q_hi_f, q_hi_d))),
-        "limited_by_field_current": (low & (q_lo_f > -q_i)) | (high & (q_hi_f < np.minimum(q_i, q_hi_d))),
-        "limited_by_load_angle": high & (q_hi_d < np.minimum(q_i, q_hi_f)),
+        "limited_by_stator_current": (low & (-q_i >= q_lo_f)) | (high & (q_i <= q_hi_d)),
+        "limited_by_field_current": low & (q_lo_f > -q_i),
+        "limited_by_load_angle": high & (q_hi_d < q_i),
         "infeasible": (p_st > s_max) | (h2 < 0.0) | (lo > hi + tol) | (disc < 0.0),
     }
 
