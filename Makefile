@@ -26,7 +26,7 @@ venv-test: $(VENV)/.installed-test
 
 demo: $(VENV)/.installed
 	$(BIN)/drivecase check $(CASE)
-	$(BIN)/drivecase demo $(CASE) --port $(PORT)
+	$(BIN)/drivecase run $(CASE) --out out/demo
 
 test: $(VENV)/.installed-test
 	$(BIN)/python -m pytest

@@ -265,6 +265,25 @@ time_zone = "Europe/Berlin"
 invented = true
 '''
 
+FINANCE_TOML = '''# INVENTED DEMO CASE: finance assumptions for illustration (see docs/finance.md for every key).
+currency = "EUR"
+discount_rate_frac = 0.08
+rate_basis = "real"
+inflation_frac = 0.02
+horizon_yr = 15
+escalation_energy_frac = 0.01
+escalation_demand_frac = 0.01
+escalation_reactive_frac = 0.0
+grid_co2_kg_per_kwh = 0.35
+grid_co2_decline_frac = 0.03
+replacement_mode = "replace_now"
+downtime_cost_per_h = 0.0
+capacitor_cost_per_kvar = 35.0
+budget_per_yr = [250000, 250000, 150000]
+monte_carlo_draws = 1000
+monte_carlo_seed = 20261201
+'''
+
 README = """# Demo case (invented)
 
 Everything in this folder is **invented** for illustration: the utility, the quarry, the sites, the
@@ -275,6 +294,7 @@ motors, the profiles and the prices. Any likeness to a real company or plant is 
 - `sites.csv`, `capacitors.csv`: meters, non-motor load and existing capacitor banks.
 - `profiles.parquet`: one year of hourly shaft-load profiles (and one measured base-load profile).
 - `duty.csv`: a duty table for cycling pumps.
+- `finance.toml`: discount rate, horizon, escalation, CO2 factor and capital budgets (illustrative).
 - `tariffs/`: the two sites' tariffs (copies of invented example tariffs from `data/tariffs/`).
 
 Regenerate with `python data/generate_demo.py` (seeded: the output is identical on every run).
@@ -295,6 +315,7 @@ def write_demo(target: Path = HERE) -> None:
                                                              "target_power_factor"]), encoding="utf-8")
     (target / "duty.csv").write_text(_csv(DUTY, ["profile_id", "shaft_load_pct", "duration_h_per_yr"]), encoding="utf-8")
     (target / "case.toml").write_text(CASE_TOML, encoding="utf-8")
+    (target / "finance.toml").write_text(FINANCE_TOML, encoding="utf-8")
     (target / "README.md").write_text(README, encoding="utf-8")
     (target / "tariffs").mkdir(exist_ok=True)
     for site in SITES:

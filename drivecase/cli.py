@@ -125,6 +125,66 @@ def cmd_bill(args: argparse.Namespace) -> int:
     return 0
 
 
+STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    from dataclasses import replace
+
+    from tqdm import tqdm
+
+    from models import scenario
+    from models.exports import write_run
+
+    case = _load_or_report(args.case)
+    if case is None:
+        return 1
+    assumptions = case.finance
+    if args.seed is not None:
+        assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
+    bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)
+
+    def progress(stage: str) -> None:
+        bar.set_postfix_str(stage)
+        if stage != STAGES[0]:
+            bar.update(1)
+
+    try:
+        result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk)
+    except ValueError as exc:
+        bar.close()
+        print(f"drivecase run: {exc}", file=sys.stderr)
+        return 1
+    bar.update(bar.total - bar.n)
+    bar.close()
+    written = write_run(result, args.out)
+    _print_run_summary(case, result)
+    print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
+    print(f"\n{CAUTION}")
+    return 0
+
+
+def _print_run_summary(case, result) -> None:
+    currency = case.settings.currency
+    r = result.results
+    best = r[r["best_for_asset"] & (r["capital"] > 0)]
+    plan = result.plan
+    chosen = r.set_index(["asset_id", "option_id"]).loc[list(zip(plan["asset_id"], plan["option_id"]))] if len(plan) else r.iloc[:0]
+    print(f"\nCase: {case.settings.name}")
+    print(f"  {len(case.assets)} assets; best option differs from today's motor for {len(best)} of them")
+    print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
+          f"yearly bill saving {chosen['bill_saving_per_yr'].sum():,.0f} {currency}/yr, "
+          f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
+    comparison = result.plan_comparison
+    if "shortfall" in comparison:
+        print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")
+    top = best.sort_values("npv", ascending=False).head(10)
+    table = top[["asset_id", "option_id", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr"]].rename(
+        columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"saving [{currency}/yr]",
+                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]"})
+    _print_table(table, "Ten best projects by NPV")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -143,6 +203,13 @@ def build_parser() -> argparse.ArgumentParser:
     p_bill.add_argument("--capacitor-cost", type=float, default=35.0,
                         help="capacitor bank cost per kVAr for the comparison (default 35)")
     p_bill.set_defaults(func=cmd_bill)
+    p_run = sub.add_parser("run", help="run the whole analysis and write the result files")
+    p_run.add_argument("case", help="case folder or .xlsx workbook")
+    p_run.add_argument("--out", required=True, help="folder for the result files (created if needed)")
+    p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: finance.toml's)")
+    p_run.add_argument("--no-risk", action="store_true", help="skip the tornado and Monte Carlo")
+    p_run.add_argument("--quiet", action="store_true", help="no progress bar")
+    p_run.set_defaults(func=cmd_run)
     return parser
 
 

@@ -82,6 +82,8 @@ class Case:
         Every defaulted field: asset_id, column, value, basis.
     tariffs : dict of str -> models.tariff.Tariff
         Checked tariffs by file name.
+    finance : models.finance.FinanceAssumptions
+        Finance assumptions from ``finance.toml`` (defaults where the case has none).
     problems : list of Problem
         Errors and warnings found.
     """
@@ -98,6 +100,7 @@ class Case:
     defaults: pd.DataFrame
     tariffs: dict[str, dict] = field(default_factory=dict)
     extra: dict[str, object] = field(default_factory=dict)
+    finance: object = None
     problems: tuple[Problem, ...] = ()
 
     @property
@@ -743,6 +746,24 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     return parsed
 
 
+def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]):
+    """Read the finance assumptions (defaults where absent); the currency must be the case's."""
+    from models.finance import FinanceAssumptions
+
+    data, source, read_problems = io.read_finance_settings(raw)
+    problems.extend(read_problems)
+    flat = data.get("finance", data) if isinstance(data, dict) else {}
+    if "currency" not in flat:
+        flat = {**flat, "currency": settings.currency}
+    assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
+    problems.extend(finance_problems)
+    if assumptions is not None and assumptions.currency != settings.currency:
+        problems.append(error(source, None, "currency", assumptions.currency,
+                              f"the finance currency differs from the case currency {settings.currency}",
+                              "one case prices everything in one currency"))
+    return assumptions
+
+
 def _check_duty(checker: _TableChecker) -> None:
     d = checker.frame
     totals = d.groupby("profile_id")["duration_h_per_yr"].sum()
@@ -808,6 +829,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
             problems.append(error(checkers["duty"].raw.source, None, "profile_id", pid,
                                   "the same profile_id is used in profiles and in duty", "rename one of them"))
     tariffs = _check_tariffs(raw, settings, problems)
+    finance_assumptions = _check_finance(raw, settings, problems)
     if "sites" in checkers:
         _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True)
     if "capacitors" in checkers:
@@ -838,6 +860,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         profile_info=profile_info,
         defaults=defaults,
         tariffs=tariffs,
+        finance=finance_assumptions,
         extra=dict(raw.extra),
         problems=tuple(problems),
     )

@@ -291,7 +291,7 @@ def read_workbook(path: Path) -> RawCase:
                                    "save it again from a spreadsheet program as .xlsx"))
         return case
     sheets = _sheet_lookup(book.sheetnames)
-    known = set(CASE_TABLES) | {"case", "instructions", "read me", "readme"}
+    known = set(CASE_TABLES) | {"case", "finance", "instructions", "read me", "readme"}
     for key, name in sheets.items():
         if key not in known and not key.startswith("tariff"):
             case.problems.append(warning(f"{path.name}:{name}", None, None, None,
@@ -311,6 +311,15 @@ def read_workbook(path: Path) -> RawCase:
         case.problems += problems
     if "case" in sheets:
         case.settings = _settings_sheet(book[sheets["case"]])
+    if "finance" in sheets:
+        values = _settings_sheet(book[sheets["finance"]])["case"]
+        for key, value in list(values.items()):
+            if isinstance(value, str) and value.strip().startswith("["):
+                try:
+                    values[key] = tomllib.loads(f"v = {value}")["v"]
+                except tomllib.TOMLDecodeError:
+                    pass
+        case.extra["finance"] = values
     for key, name in sheets.items():
         if key.startswith("tariff"):
             text = "\n".join(str(r[0]) for r in book[name].iter_rows(values_only=True) if r and r[0] is not None)
@@ -403,6 +412,28 @@ def read_folder(path: Path) -> RawCase:
         if extra_path.is_file():
             case.extra[extra] = extra_path
     return case
+
+
+def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:
+    """Return the finance settings of a case as a dict (``finance.toml``, or a workbook ``finance`` sheet).
+
+    Returns
+    -------
+    data : dict
+        Flat keys as written (empty when the case has none: the defaults apply).
+    source : str
+        File or sheet name for problem messages.
+    problems : list of Problem
+    """
+    if raw.kind == "folder":
+        path = raw.path / "finance.toml"
+        if not path.is_file():
+            return {}, "finance.toml", []
+        data, problems = read_toml_file(path)
+        return data, "finance.toml", problems
+    if raw.kind == "workbook":
+        return dict(raw.extra.get("finance", {})), f"{raw.path.name}:finance", []
+    return {}, "finance.toml", []
 
 
 def read_default_options() -> tuple[RawTable, list[Problem]]:

@@ -1,0 +1,526 @@
+"""The one orchestrator: case -> machines -> site meters and bills -> cash flows -> metrics -> plan and risk.
+
+:func:`run` takes a validated case and its finance assumptions and returns a :class:`ScenarioResult`
+whose tables carry units in their column names. The physics (operating result and bill savings) is the
+slow part and can be computed once and reused with other finance assumptions through
+:func:`physics` and :func:`economics`, which is how the dashboard re-prices live.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import sys
+from dataclasses import dataclass, replace
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from models import cashflows as cf
+from models import end_of_life, finance, plan, risk
+from models.bill_savings import BillSavings, bill_savings, meter_and_bills, site_setups
+from models.operation import OperatingResult, operate
+from models.options import capital_cost
+from models.regulations import class_rank, minimum_class
+
+#: Technologies that replace today's motor (and so avoid the spend its failure would force).
+REPLACING_TECHNOLOGIES = ("rewind", "induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
+#: Planning horizon of the fleet plan when the budget list is empty [yr].
+DEFAULT_PLAN_YEARS = 3
+#: Downtime after a failure until a new motor runs, and until a rewound one does [h] (common practice).
+NEW_LEAD_TIME_H = 72.0
+REWIND_LEAD_TIME_H = 168.0
+#: Downtime cost by criticality when neither the asset nor the finance assumptions give one
+#: [currency/h] (common practice placeholders; set real figures per site).
+DOWNTIME_COST_BY_CRITICALITY = {"low": 0.0, "medium": 200.0, "high": 2000.0}
+#: Tornado ranges (low, high) of the one-at-a-time sensitivity (common practice).
+TORNADO_RANGES = {
+    "energy_price_mult": (0.8, 1.2), "hours_mult": (0.8, 1.1), "load_mult": (0.85, 1.15),
+    "capital_mult": (0.9, 1.3), "discount_rate_delta_frac": (-0.02, 0.02), "escalation_delta_frac": (-0.01, 0.01),
+}
+
+
+@dataclass(frozen=True)
+class Physics:
+    """The slow, finance-independent part of a run: machines and bill savings."""
+
+    operation: OperatingResult
+    savings: BillSavings
+    capacitor_cost_per_kvar: float
+
+
+@dataclass(frozen=True)
+class ScenarioResult:
+    """Everything a run produces.
+
+    Attributes
+    ----------
+    physics : Physics
+    assumptions : models.finance.FinanceAssumptions
+    results : pandas.DataFrame
+        One row per applicable asset x option (today's motor included, with zero increments): energy,
+        savings by component [currency/yr], capital [currency], NPV, IRR, MIRR, paybacks, LCC, SIR,
+        AIRR, EAC, cost of saved energy, CO2, abatement cost, flags.
+    cashflows : pandas.DataFrame
+        asset_id, option_id, year, component, amount [currency] (non-zero rows).
+    lcc : pandas.DataFrame
+        asset_id, option_id, component, pv [currency]: life-cycle cost stacked by component.
+    plan : pandas.DataFrame
+        The exact plan: asset_id, option_id, start_year, capital, npv.
+    plan_greedy : pandas.DataFrame
+        The rank-by-profitability-index plan, same columns.
+    plan_comparison : pandas.Series
+        Exact vs greedy totals and the shortfall.
+    abatement : pandas.DataFrame
+        Marginal abatement cost curve data (one best option per asset).
+    end_of_life : pandas.DataFrame
+        Expected PV cost of replace-now / replace-at-failure / rewind-at-failure per asset.
+    fleet_rules : pandas.DataFrame
+        Repair-or-replace policy rows in plain words.
+    tornado : pandas.DataFrame
+        One-at-a-time sensitivity of the fleet NPV of the best options.
+    risk : pandas.DataFrame
+        Monte Carlo summary per project (P10/P50/P90 of NPV and payback, P(NPV > 0)).
+    bills : pandas.DataFrame
+        site_id, month, scenario (baseline or plan), line_item, amount [currency].
+    """
+
+    physics: Physics
+    assumptions: finance.FinanceAssumptions
+    results: pd.DataFrame
+    cashflows: pd.DataFrame
+    lcc: pd.DataFrame
+    plan: pd.DataFrame
+    plan_greedy: pd.DataFrame
+    plan_comparison: pd.Series
+    abatement: pd.DataFrame
+    end_of_life: pd.DataFrame
+    fleet_rules: pd.DataFrame
+    tornado: pd.DataFrame
+    risk: pd.DataFrame
+    bills: pd.DataFrame
+
+
+def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None) -> Physics:
+    """Run the machines on every option and price each asset-option on its site's bill."""
+    step = progress or (lambda _msg: None)
+    step("machines")
+    op = operate(case)
+    step("site bills")
+    savings = bill_savings(case, op, capacitor_cost_per_kvar)
+    return Physics(op, savings, capacitor_cost_per_kvar)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Projects
+# ---------------------------------------------------------------------------------------------------
+def _analysis_year(op: OperatingResult) -> int:
+    return int(op.index[len(op.index) // 2].year)
+
+
+def _must_spend(case, options: pd.DataFrame, capital_total: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Capital that must be spent anyway when today's motor fails: the cheaper of a rewind and the
+    cheapest new induction motor the regional rules allow. Returns (capex, life_yr, option position)."""
+    a = case.assets
+    tech = options["technology"].to_numpy(dtype=object)
+    min_class = minimum_class(case.settings.region, a["rated_p_kw"].to_numpy(dtype=float), a["poles"].to_numpy(dtype=float))
+    allowed_new = (tech[None, :] == "induction") & (class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
+                                                     >= class_rank(min_class)[:, None])
+    allowed = applies & (allowed_new | (tech[None, :] == "rewind"))
+    cost = np.where(allowed, capital_total, np.inf)
+    pos = np.argmin(cost, axis=1)
+    capex = cost[np.arange(len(a)), pos]
+    capex = np.where(np.isfinite(capex), capex, 0.0)
+    life = options["life_yr"].to_numpy(dtype=float)[pos]
+    return capex, life, pos
+
+
+def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Age, Weibull parameters and mean residual life of today's motors."""
+    a = case.assets
+    rated = a["rated_p_kw"].to_numpy(dtype=float)
+    shape, scale = end_of_life.life_class_parameters(rated)
+    installed = a["year_installed"].to_numpy(dtype=float)
+    # unknown year: assume the motor is at half its characteristic life (common practice placeholder)
+    age = np.where(np.isnan(installed), 0.5 * scale, np.maximum(year - installed, 0.0))
+    # each rewind shortens the expected life (repaired motors fail sooner; common practice: 10 % per rewind)
+    scale_eff = scale * (0.9 ** a["rewind_count"].to_numpy(dtype=float))
+    residual = end_of_life.mean_residual_life_yr(age, shape, scale_eff)
+    return age, shape, scale_eff, residual
+
+
+def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
+              progress: Callable[[str], None] | None = None, with_risk: bool = True) -> ScenarioResult:
+    """Turn the physics into cash flows, metrics, the fleet plan, end-of-life strategy and risk."""
+    step = progress or (lambda _msg: None)
+    op, sav = phys.operation, phys.savings
+    a = case.assets
+    options = _options_in_order(case, op)
+    n_a, n_o = len(op.asset_ids), len(op.option_ids)
+    d = float(assumptions.discount_rate_frac)
+    horizon = int(assumptions.horizon_yr)
+    year = _analysis_year(op)
+    rated = a["rated_p_kw"].to_numpy(dtype=float)
+
+    step("cash flows")
+    capex = capital_cost(options, rated, op.capacitor_q_kvar)
+    comp = {name: capex.amount[..., k] for k, name in enumerate(capex.components)}
+    must_capex, must_life, _ = _must_spend(case, options, capex.total, op.applies)
+    age, shape, scale, residual_life = _remaining_life(case, year)
+    maint = options["maintenance_cost_per_kw_yr"].to_numpy(dtype=float)[None, :] * rated[:, None]
+    maint_saving = maint[:, [0]] - maint
+    midlife_base = np.where(comp["drive"] > 0, comp["drive"], comp["equipment"])
+    midlife = options["midlife_cost_frac"].to_numpy(dtype=float)[None, :] * midlife_base
+    midyear = np.broadcast_to(options["midlife_year"].to_numpy(dtype=float)[None, :], (n_a, n_o))
+    life = np.broadcast_to(options["life_yr"].to_numpy(dtype=float)[None, :], (n_a, n_o))
+    energy_saved = op.energy_kwh[:, [0]] - op.energy_kwh
+
+    rows, cols = np.nonzero(op.applies)
+    project_ids = np.array([f"{op.asset_ids[i]}/{op.option_ids[o]}" for i, o in zip(rows, cols)], dtype=object)
+    is_keep = cols == 0
+    # only options that replace today's motor avoid the spend its failure would force; a drive or a
+    # capacitor added to the running motor leaves that spend where it was (it cancels out)
+    replaces = np.isin(op.technologies[cols], REPLACING_TECHNOLOGIES)
+    inputs = cf.ProjectInputs(
+        project_id=project_ids,
+        capex_equipment=(comp["equipment"] + comp["remedy"] + comp["capacitor"])[rows, cols],
+        capex_drive=comp["drive"][rows, cols],
+        capex_installation=comp["installation"][rows, cols],
+        capex_engineering=comp["engineering"][rows, cols],
+        capex_contingency=comp["contingency"][rows, cols],
+        savings_energy_per_yr=sav.saving[rows, cols, 0],
+        savings_demand_per_yr=sav.saving[rows, cols, 1],
+        savings_reactive_per_yr=sav.saving[rows, cols, 2],
+        savings_fixed_per_yr=sav.saving[rows, cols, 3],
+        savings_maintenance_per_yr=maint_saving[rows, cols],
+        energy_saved_kwh_per_yr=energy_saved[rows, cols],
+        option_life_yr=life[rows, cols],
+        baseline_capex=np.where(replaces, must_capex[rows], 0.0),
+        baseline_life_yr=must_life[rows],
+        existing_remaining_life_yr=np.where(replaces, residual_life[rows], np.inf),
+        midlife_cost=midlife[rows, cols],
+        midlife_year_yr=midyear[rows, cols],
+    )
+    flows = cf.build_cash_flows(inputs, assumptions)
+    # today's motor is the reference: its increment is zero by definition
+    amounts = flows.amounts.copy()
+    amounts[is_keep] = 0.0
+    flows = replace(flows, amounts=amounts)
+    net = flows.net()
+
+    step("metrics")
+    npv_v = finance.npv(net, d)
+    irr_res = finance.irr(net)
+    mirr_v = finance.mirr(net, d, d)
+    simple = finance.simple_payback(net)
+    disc = finance.discounted_payback(net, d)
+    savings_flows, investment_flows = flows.savings_and_investment()
+    sir = finance.savings_to_investment_ratio(savings_flows, investment_flows, d)
+    airr = finance.airr(sir, d, horizon)
+    capital_spend = flows.capital_spend_by_year()
+    capital_pv = (capital_spend * finance.discount_factors(d, horizon)[None, :]).sum(axis=1)
+    co2_by_year = finance.co2_avoided_t(energy_saved[rows, cols], assumptions.grid_co2_kg_per_kwh,
+                                        assumptions.grid_co2_decline_frac, horizon)
+    co2_by_year = np.asarray(co2_by_year, dtype=float).reshape(len(rows), -1)
+    abatement = np.where(np.abs(energy_saved[rows, cols]) > 1e-9,
+                         finance.abatement_cost_per_t(npv_v, co2_by_year, d), np.nan)
+    cse = np.where(energy_saved[rows, cols] > 1e-9,
+                   finance.cost_of_saved_energy_per_mwh(np.maximum(capital_pv, 0.0),
+                                                        np.maximum(energy_saved[rows, cols], 1e-9) / 1000.0, d, horizon),
+                   np.nan)
+    lcc_frame, lcc_total = _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, project_ids, assumptions)
+    eac = finance.equivalent_annual_cost(lcc_total, d, horizon)
+    flag_text = _flags_by_project(op, rows, cols)
+    results = pd.DataFrame({
+        "asset_id": op.asset_ids[rows], "site_id": op.site_ids[rows], "option_id": op.option_ids[cols],
+        "technology": op.technologies[cols], "label": options["label"].to_numpy(dtype=object)[cols],
+        "rated_p_kw": rated[rows], "running_h_per_yr": op.running_h[rows],
+        "energy_kwh_per_yr": op.energy_kwh[rows, cols], "energy_saved_kwh_per_yr": energy_saved[rows, cols],
+        "mean_speed_rpm": op.mean_speed_rpm[rows, cols],
+        "saving_energy_per_yr": sav.saving[rows, cols, 0], "saving_demand_per_yr": sav.saving[rows, cols, 1],
+        "saving_reactive_per_yr": sav.saving[rows, cols, 2], "saving_fixed_per_yr": sav.saving[rows, cols, 3],
+        "saving_maintenance_per_yr": maint_saving[rows, cols],
+        "bill_saving_per_yr": sav.total[rows, cols],
+        "capital": np.where(is_keep, 0.0, capex.total[rows, cols]),
+        "must_spend_capital": np.where(replaces, must_capex[rows], 0.0),
+        "existing_remaining_life_yr": residual_life[rows],
+        "npv": npv_v, "irr_frac": np.asarray(irr_res.irr_frac, dtype=float), "irr_status": np.asarray(irr_res.status),
+        "mirr_frac": mirr_v,
+        "simple_payback_yr": np.asarray(simple.payback_yr, dtype=float),
+        "discounted_payback_yr": np.asarray(disc.payback_yr, dtype=float),
+        "payback_within_horizon": np.asarray(disc.within_horizon, dtype=bool),
+        "life_cycle_cost": lcc_total, "equivalent_annual_cost": eac,
+        "sir": sir, "airr_frac": airr,
+        "profitability_index": np.where(capital_pv > 0, npv_v / np.where(capital_pv > 0, capital_pv, 1.0), np.nan),
+        "cost_of_saved_energy_per_mwh": cse,
+        "co2_avoided_t_per_yr": co2_by_year[:, 1] if co2_by_year.shape[1] > 1 else 0.0,
+        "abatement_cost_per_t": abatement,
+        "equivalent_capacitor_q_kvar": sav.equivalent_bank_q_kvar[rows, cols],
+        "equivalent_capacitor_cost": sav.equivalent_bank_cost[rows, cols],
+        "capacitor_q_kvar": op.capacitor_q_kvar[rows, cols],
+        "flags": flag_text,
+    })
+    results.loc[is_keep, ["irr_frac", "mirr_frac", "sir", "airr_frac"]] = np.nan
+    results.loc[is_keep, "irr_status"] = "none"
+    results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = 0.0
+    results["best_for_asset"] = _best_flags(results)
+    cash = flows.to_frame(drop_zero=True)
+    split = cash["project"].str.split("/", n=1, expand=True)
+    cash = pd.DataFrame({"asset_id": split[0], "option_id": split[1], "year": cash["year"].astype(int),
+                         "component": cash["component"], "amount": cash["amount"]})
+
+    step("fleet plan")
+    plan_frames = _plan(results, capital_spend, project_ids, assumptions, d)
+
+    step("end of life")
+    eol = _end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon)
+    rules = _fleet_rules(case, options, assumptions, d, horizon, sav, op)
+
+    tornado_rows = pd.DataFrame()
+    risk_rows = pd.DataFrame()
+    if with_risk:
+        step("risk")
+        tornado_rows, risk_rows = _risk(flows, assumptions, results, d)
+
+    step("bills")
+    bills = _bills(case, op, plan_frames[0])
+    return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
+                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills)
+
+
+def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
+        with_risk: bool = True) -> ScenarioResult:
+    """Run the whole analysis of a case.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    assumptions : models.finance.FinanceAssumptions
+        Finance assumptions (discount rate, horizon, escalation, budgets...).
+    progress : callable, optional
+        Called with the name of each stage as it starts.
+    with_risk : bool
+        Include the tornado and Monte Carlo.
+
+    Returns
+    -------
+    ScenarioResult
+    """
+    phys = physics(case, float(assumptions.capacitor_cost_per_kvar), progress)
+    return economics(case, phys, assumptions, progress, with_risk)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Pieces
+# ---------------------------------------------------------------------------------------------------
+def _options_in_order(case, op: OperatingResult) -> pd.DataFrame:
+    from models.operation import _with_baseline
+
+    options = _with_baseline(case.options)
+    assert list(options["option_id"]) == list(op.option_ids)
+    return options
+
+
+def _best_flags(results: pd.DataFrame) -> np.ndarray:
+    """True on the option with the highest NPV of each asset (today's motor when nothing beats it)."""
+    best = results.groupby("asset_id", sort=False)["npv"].idxmax()
+    flags = np.zeros(len(results), dtype=bool)
+    flags[best.to_numpy()] = True
+    return flags
+
+
+def _flags_by_project(op: OperatingResult, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    if op.flags.empty:
+        return np.full(len(rows), "", dtype=object)
+    by_key: dict[tuple[str, str], list[str]] = {}
+    for r in op.flags.itertuples(index=False):
+        by_key.setdefault((r.asset_id, r.option_id), []).append(r.flag)
+    out = []
+    for i, o in zip(rows, cols):
+        texts = by_key.get((op.asset_ids[i], op.option_ids[o]), []) + (by_key.get((op.asset_ids[i], ""), []) if o == 0 else [])
+        out.append("; ".join(texts))
+    return np.array(out, dtype=object)
+
+
+def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, project_ids, assumptions):
+    """Life-cycle cost of every asset-option, stacked by component, consistent with the NPV.
+
+    Notes
+    -----
+    Today's motor's running cost is its share of the site bill: its input energy times the site's mean
+    bill per kWh. An option's running cost is that less its bill saving, so LCC(keep) - LCC(option) is
+    the option's NPV whenever the capital components match (common convention, NIST Handbook 135).
+    """
+    _, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))
+    site_total = bills.groupby("site_id")["amount"].sum()
+    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
+    price = (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+    years = np.arange(horizon + 1)
+    disc = 1.0 / (1.0 + d) ** years
+
+    def upv_star(component: str) -> float:
+        e = assumptions.escalation_frac(component)
+        return float((((1.0 + e) / (1.0 + d)) ** years[1:]).sum())
+
+    # running cost of today's motor escalates with energy; each saving with its own component's rate
+    running_keep = op.energy_kwh[rows, 0] * price[rows]
+    pv_running = running_keep * upv_star("energy") - sum(
+        sav.saving[rows, cols, k] * upv_star(name) for k, name in enumerate(sav.components))
+    pv_maint = maint[rows, cols] * upv_star("maintenance")
+    names = flows.component_names
+    amounts = flows.amounts
+    capital_like = [k for k, n in enumerate(names) if n.startswith("capital") or n in ("midlife", "baseline_credit", "incentive")]
+    pv_capital = -(amounts[:, :, capital_like].sum(axis=2) * disc[None, :]).sum(axis=1)
+    residual_k = [k for k, n in enumerate(names) if n == "residual"]
+    pv_residual = -(amounts[:, :, residual_k].sum(axis=2) * disc[None, :]).sum(axis=1)
+    total = pv_capital + pv_residual + pv_running + pv_maint
+    frame = pd.DataFrame({
+        "asset_id": np.repeat(op.asset_ids[rows], 4), "option_id": np.repeat(op.option_ids[cols], 4),
+        "component": np.tile(["capital", "residual", "running", "maintenance"], len(rows)),
+        "pv": np.column_stack([pv_capital, pv_residual, pv_running, pv_maint]).ravel(),
+    })
+    return frame, total
+
+
+def _plan(results, capital_spend, project_ids, assumptions, d):
+    candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
+    candidates &= results["npv"].to_numpy() > 0
+    budgets = list(assumptions.budget_per_yr) or None
+    n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
+    capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
+    sel = np.flatnonzero(candidates)
+    args = (project_ids[sel], results["asset_id"].to_numpy()[sel], results["npv"].to_numpy()[sel], capital_by_year[sel])
+    with _quiet_native_stdout():
+        exact = plan.plan_exact(*args, budgets, d)
+    greedy = plan.plan_greedy(*args, budgets, d)
+    comparison = plan.compare_plans(exact, greedy)
+    # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)
+    co2 = results["co2_avoided_t_per_yr"].to_numpy(dtype=float)
+    cost_t = results["abatement_cost_per_t"].to_numpy(dtype=float)
+    macc = np.flatnonzero((results["capital"].to_numpy() > 0) & (co2 > 1e-9) & np.isfinite(cost_t))
+    curve = plan.abatement_curve(project_ids[macc], results["asset_id"].to_numpy()[macc], results["npv"].to_numpy()[macc],
+                                 co2[macc], cost_t[macc])
+    return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve
+
+
+@contextlib.contextmanager
+def _quiet_native_stdout():
+    """Silence the solver library's own diagnostic lines (printed by native code to file descriptor 1)."""
+    try:
+        sys.stdout.flush()
+        saved = os.dup(1)
+    except (OSError, ValueError):  # no real stdout (e.g. captured): nothing to silence
+        yield
+        return
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 1)
+            yield
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+
+
+def _plan_frame(fleet_plan, results: pd.DataFrame) -> pd.DataFrame:
+    frame = fleet_plan.chosen
+    columns = ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"]
+    if frame.empty:
+        return pd.DataFrame(columns=columns)
+    split = frame["project_id"].str.split("/", n=1, expand=True)
+    capital = results.set_index(results["asset_id"] + "/" + results["option_id"])["capital"]
+    frame = frame.assign(asset_id=split[0].to_numpy(), option_id=split[1].to_numpy(),
+                         capital=capital.reindex(frame["project_id"]).to_numpy())
+    return frame[columns].reset_index(drop=True)
+
+
+def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumptions, d, horizon):
+    a = case.assets
+    tech = options["technology"].to_numpy(dtype=object)
+    n_a = len(a)
+    rewind = np.flatnonzero(tech == "rewind")
+    new_candidates = np.flatnonzero(tech == "induction")
+    if not len(rewind) or not len(new_candidates):
+        return pd.DataFrame()
+    r = rewind[0]
+    new_pos = np.where(op.applies[:, new_candidates], capex_total[:, new_candidates], np.inf).argmin(axis=1)
+    new_o = new_candidates[new_pos]
+    rows = np.arange(n_a)
+    setups = site_setups(case, op.index)
+    _, bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
+    site_total = bills.groupby("site_id")["amount"].sum()
+    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
+    price = (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+    running_old = op.energy_kwh[:, 0] * price
+    downtime = a["downtime_cost_per_h"].to_numpy(dtype=float)
+    default_dt = a["criticality"].map(DOWNTIME_COST_BY_CRITICALITY).to_numpy(dtype=float)
+    downtime = np.where(np.isnan(downtime), np.where(assumptions.downtime_cost_per_h > 0, assumptions.downtime_cost_per_h,
+                                                     default_dt), downtime)
+    frame = end_of_life.strategy_costs(
+        age, shape, scale, capex_total[rows, new_o], capex_total[rows, r], running_old,
+        running_old - sav.total[rows, new_o], running_old - sav.total[rows, r],
+        downtime_cost_per_h=downtime, new_lead_time_h=NEW_LEAD_TIME_H, rewind_lead_time_h=REWIND_LEAD_TIME_H,
+        new_life_yr=options["life_yr"].to_numpy(dtype=float)[new_o], rewind_life_yr=float(options["life_yr"].iloc[r]),
+        discount_rate_frac=d, horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
+        asset_id=op.asset_ids)
+    frame.insert(0, "new_option_id", op.option_ids[new_o])
+    frame.insert(0, "age_yr", age)
+    frame.index.name = "asset_id"
+    return frame.reset_index()
+
+
+def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
+    tech = options["technology"].to_numpy(dtype=object)
+    if not ((tech == "rewind").any() and (tech == "induction").any()):
+        return pd.DataFrame()
+    sizes = np.array([0.75, 2.2, 5.5, 11, 22, 37, 55, 90, 132, 200, 315])
+    hours = np.array([1000, 2000, 4000, 6000, 8000])
+    new_row = options[tech == "induction"].iloc[0]
+    rewind_row = options[tech == "rewind"].iloc[0]
+    cost = lambda row: capital_cost(pd.DataFrame([row]), sizes).total[:, 0]  # noqa: E731
+    from models.efficiency_classes import min_efficiency_pct
+
+    eff_new = min_efficiency_pct(sizes, 4, 50, new_row["efficiency_class"]) / 100.0
+    eff_rewound = min_efficiency_pct(sizes, 4, 50, "IE2") / 100.0 - 0.001
+    price = float((sav.baseline_bills["amount"].sum()) / max(op.energy_kwh[:, 0].sum(), 1.0))
+    return end_of_life.fleet_rules(sizes, hours, new_capex=cost(new_row), rewind_capex=cost(rewind_row),
+                                   efficiency_new_frac=eff_new, efficiency_rewound_frac=eff_rewound, price_per_kwh=price,
+                                   downtime_cost_per_h=assumptions.downtime_cost_per_h, discount_rate_frac=d,
+                                   horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac)
+
+
+def _risk(flows, assumptions, results, d):
+    """Tornado of the fleet NPV of each asset's best option, and a seeded Monte Carlo per best project."""
+    best = np.flatnonzero(results["best_for_asset"].to_numpy() & (results["capital"].to_numpy() > 0))
+    if not len(best):
+        return pd.DataFrame(), pd.DataFrame()
+    amounts = flows.amounts[best]
+    names = flows.component_names
+    response = risk.default_response(assumptions)
+    base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
+
+    def fleet_npv(values: dict[str, float]) -> np.ndarray:
+        factors = {k: np.array([float(v)]) for k, v in values.items()}
+        out = risk.monte_carlo(amounts, names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
+        return np.asarray(out.npv)[0]
+
+    tornado_rows = risk.tornado(fleet_npv, base, TORNADO_RANGES)
+    factors = risk.draw_factors(int(assumptions.monte_carlo_draws), int(assumptions.monte_carlo_seed))
+    mc = risk.monte_carlo(amounts, names, factors, response, d, project_id=flows.project_id[best],
+                          tax_rate_frac=assumptions.tax_rate_frac)
+    summary = mc.summary(target_payback_yr=3.0)
+    summary = summary.reset_index() if "project" not in summary.columns else summary
+    return tornado_rows, summary
+
+
+def _bills(case, op, plan_frame: pd.DataFrame) -> pd.DataFrame:
+    """Monthly bills of today's fleet and of the fleet with the exact plan in place."""
+    setups = site_setups(case, op.index)
+    baseline_choice = np.zeros(len(op.asset_ids), dtype=int)
+    _, base = meter_and_bills(case, op, baseline_choice, setups)
+    choice = baseline_choice.copy()
+    for r in plan_frame.itertuples(index=False):
+        choice[op.asset_position(r.asset_id)] = op.option_position(r.option_id)
+    _, after = meter_and_bills(case, op, choice, setups)
+    return pd.concat([base.assign(scenario="baseline"), after.assign(scenario="plan")], ignore_index=True)

@@ -1,0 +1,144 @@
+"""The whole analysis: one asset worked by hand, invariants of the fleet run, and the run command."""
+
+from __future__ import annotations
+
+import filecmp
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+import casebuilder as cb
+from drivecase.cli import main
+from models.case import load_case
+from models.finance import FinanceAssumptions
+from models import scenario
+
+REPO = Path(__file__).resolve().parents[1]
+FLAT_TARIFF = '''[tariff]
+name = "flat test tariff (invented)"
+currency = "EUR"
+time_zone = "Europe/Berlin"
+
+[[periods]]
+code = "all"
+
+[energy]
+price_per_kwh = { all = 0.10 }
+'''
+OPTIONS = ("option_id,technology,efficiency_class,speed_remedy,equipment_cost_coef,equipment_cost_exp,life_yr,"
+           "maintenance_cost_per_kw_yr\n"
+           "keep,existing,,none,0,1,20,0\n"
+           "ie3,induction,IE3,trim_or_pulley,100,1,20,0\n")
+
+
+@pytest.fixture(scope="module")
+def one_asset(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("one")
+    assets = [["M1", "S1", "Conveyor drive", "other", "15", "4", "50", "400", "IE1", "88.7", "0.82", "1460", "2025", "0",
+               "fixed", "", "6000", "100", "medium"]]
+    cb.write_case(folder, assets=assets, sites=[["S1", "Works", "0", "0.9"]], capacitors=[], duty=[], profiles=[])
+    (folder / "profiles.csv").unlink()
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    (folder / "options.csv").write_text(OPTIONS, encoding="utf-8")
+    (folder / "finance.toml").write_text('discount_rate_frac = 0.03\nhorizon_yr = 10\nrate_basis = "real"\n'
+                                         'replacement_mode = "replace_now"\n', encoding="utf-8")
+    case, problems = load_case(folder, mode="strict")
+    return case
+
+
+@pytest.fixture(scope="module")
+def row(one_asset):
+    result = scenario.run(one_asset, one_asset.finance, with_risk=False)
+    r = result.results
+    return r[r["option_id"] == "ie3"].iloc[0]
+
+
+@pytest.fixture(scope="module")
+def result(demo_case):
+    return scenario.run(demo_case, demo_case.finance)
+
+
+class TestOneAssetByHand:
+    """Hand calculation, see docs/derivations/scenario-one-asset.md."""
+
+    def test_energy_saved(self, row):
+        # 15/0.887*6000 - 15/0.9289*6000 = 4576.821 kWh/yr (IEC 60034-30-1 IE1 and IE3 minima; hand calculation)
+        assert_allclose(row["energy_saved_kwh_per_yr"], 4576.821, rtol=1e-5)
+
+    def test_bill_saving(self, row):
+        assert_allclose(row["bill_saving_per_yr"], 457.682, rtol=1e-5)
+
+    def test_npv_from_nist_factors(self, row):
+        # NIST Handbook 135: UPV(3 %, 10) = 8.530203, SPV(3 %, 10) = 0.744094 -> NPV = 2962.19 (hand calculation)
+        assert_allclose(row["npv"], 2962.19, rtol=1e-5)
+
+    def test_simple_payback(self, row):
+        assert_allclose(row["simple_payback_yr"], 3.2774, rtol=1e-4)
+
+    def test_capital(self, row):
+        assert_allclose(row["capital"], 1500.0, rtol=1e-12)
+
+
+class TestDemoRun:
+    def test_plan_respects_the_budget(self, result, demo_case):
+        budget = np.array(demo_case.finance.budget_per_yr)
+        plan = result.plan
+        spend = plan.groupby("start_yr")["capital"].sum()
+        for year, amount in spend.items():
+            assert amount <= budget[int(year)] * (1 + 1e-9)
+
+    def test_exact_plan_is_not_beaten_by_rank_order(self, result):
+        assert result.plan["npv_at_plan_start"].sum() >= result.plan_greedy["npv_at_plan_start"].sum() - 1e-6
+
+    def test_one_best_option_per_asset(self, result, demo_case):
+        best = result.results[result.results["best_for_asset"]]
+        assert sorted(best["asset_id"]) == sorted(demo_case.assets["asset_id"])
+
+    def test_discounted_payback_not_before_simple(self, result):
+        r = result.results
+        ok = r["capital"] > 0
+        assert (r.loc[ok, "discounted_payback_yr"] >= r.loc[ok, "simple_payback_yr"] - 1e-9).all()
+
+    def test_keep_has_zero_npv_and_others_are_increments(self, result):
+        keep = result.results[result.results["option_id"] == "keep"]
+        assert_allclose(keep["npv"], 0.0, atol=1e-9)
+
+    def test_lcc_difference_is_the_npv_for_options_without_must_spend(self, result):
+        lcc = result.lcc.groupby(["asset_id", "option_id"])["pv"].sum()
+        r = result.results.set_index(["asset_id", "option_id"])
+        rows = r[(r["must_spend_capital"] == 0) & (r["capital"] > 0)].index[:20]
+        for asset, option in rows:
+            assert_allclose(lcc[(asset, "keep")] - lcc[(asset, option)], r.loc[(asset, option), "npv"], rtol=1e-6, atol=1e-3)
+
+    def test_monthly_bills_fall_with_the_plan(self, result):
+        totals = result.bills.groupby(["site_id", "scenario"])["amount"].sum().unstack()
+        assert (totals["plan"] <= totals["baseline"] + 1e-6).all()
+
+    def test_monte_carlo_summary_is_sane(self, result):
+        risk = result.risk
+        assert (risk["npv_p10"] <= risk["npv_p50"] + 1e-9).all() and (risk["npv_p50"] <= risk["npv_p90"] + 1e-9).all()
+        assert risk["prob_npv_positive_frac"].between(0, 1).all()
+
+    def test_tornado_sorted_by_swing(self, result):
+        swing = result.tornado["swing"].to_numpy()
+        assert (np.diff(swing) <= 1e-9).all()
+
+
+def test_run_command_writes_identical_files(tmp_path, capsys):
+    demo = REPO / "data" / "demo"
+    assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet"]) == 0
+    assert main(["run", str(demo), "--out", str(tmp_path / "b"), "--quiet"]) == 0
+    out = capsys.readouterr().out
+    assert "Plan under the budget" in out and "qualified persons" in out
+    names = sorted(p.name for p in (tmp_path / "a").iterdir())
+    assert {"results.csv", "cashflows.csv", "bills.csv", "plan.csv", "risk.csv"} <= set(names)
+    match, mismatch, errors = filecmp.cmpfiles(tmp_path / "a", tmp_path / "b", names, shallow=False)
+    assert not mismatch and not errors
+    results = pd.read_csv(tmp_path / "a" / "results.csv")
+    assert {"npv", "irr_frac", "simple_payback_yr", "life_cycle_cost", "co2_avoided_t_per_yr"} <= set(results.columns)
