@@ -150,7 +150,13 @@ def cmd_run(args: argparse.Namespace) -> int:
             bar.update(1)
 
     try:
-        result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk)
+        if args.engine == "dask":
+            from models.distributed import run_distributed
+
+            result = run_distributed(case, assumptions, scheduler=args.scheduler, progress=progress,
+                                     with_risk=not args.no_risk)
+        else:
+            result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk)
     except ValueError as exc:
         bar.close()
         print(f"drivecase run: {exc}", file=sys.stderr)
@@ -185,6 +191,38 @@ def _print_run_summary(case, result) -> None:
     _print_table(table, "Ten best projects by NPV")
 
 
+def cmd_serve(args: argparse.Namespace) -> int:
+    from dashboard.server import serve
+
+    return int(serve(args.case, host=args.host, port=args.port, debug=args.debug, open_browser=not args.no_browser))
+
+
+def cmd_report(args: argparse.Namespace) -> int:
+    from models import scenario
+    from models.pack import write_pack
+
+    case = _load_or_report(args.case)
+    if case is None:
+        return 1
+    assets = [a.strip() for a in args.assets.split(",")] if args.assets else None
+    if assets:
+        unknown = sorted(set(assets) - set(case.assets["asset_id"]))
+        if unknown:
+            print(f"drivecase report: unknown asset(s): {', '.join(unknown)}", file=sys.stderr)
+            return 1
+    try:
+        result = scenario.run(case, case.finance)
+    except ValueError as exc:
+        print(f"drivecase report: {exc}", file=sys.stderr)
+        return 1
+    written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf)
+    print(f"Capital-request pack written to {args.out}:")
+    for path in written:
+        print(f"  {path}")
+    print(f"\n{CAUTION}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -209,7 +247,27 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: finance.toml's)")
     p_run.add_argument("--no-risk", action="store_true", help="skip the tornado and Monte Carlo")
     p_run.add_argument("--quiet", action="store_true", help="no progress bar")
+    p_run.add_argument("--engine", choices=("local", "dask"), default="local",
+                       help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
+    p_run.add_argument("--scheduler", help="address of a running Dask scheduler (default: start a local cluster)")
     p_run.set_defaults(func=cmd_run)
+    p_serve = sub.add_parser("serve", help="open the dashboard on a case (the demo case by default)")
+    p_serve.add_argument("case", nargs="?", default=None, help="case folder or .xlsx workbook (default: the demo case)")
+    p_serve.add_argument("--port", type=int, default=8050, help="port (default 8050)")
+    p_serve.add_argument("--host", default="127.0.0.1",
+                         help="address to bind (default 127.0.0.1, this computer only); another address shares the "
+                              "dashboard on the network and prints a warning")
+    p_serve.add_argument("--debug", action="store_true", help="Dash debug mode (development only)")
+    p_serve.add_argument("--no-browser", action="store_true", help="do not open a browser window")
+    p_serve.set_defaults(func=cmd_serve)
+    p_report = sub.add_parser("report", help="write the capital-request pack (workbook, HTML report, decision records)")
+    p_report.add_argument("case", help="case folder or .xlsx workbook")
+    p_report.add_argument("--out", required=True, help="folder for the pack (created if needed)")
+    group = p_report.add_mutually_exclusive_group()
+    group.add_argument("--assets", help="comma-separated asset ids to report on")
+    group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
+    p_report.add_argument("--pdf", action="store_true", help="also print the report to PDF with headless Chromium")
+    p_report.set_defaults(func=cmd_report)
     return parser
 
 
