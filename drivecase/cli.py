@@ -85,6 +85,7 @@ def _load_or_report(path: str):
 def cmd_bill(args: argparse.Namespace) -> int:
     import numpy as np
 
+    from models.attribution import reactive_balance
     from models.bill_savings import meter_and_bills, monthly_bill_table, reactive_value_curve, site_setups
     from models.operation import operate
 
@@ -109,11 +110,13 @@ def cmd_bill(args: argparse.Namespace) -> int:
         table.index = [str(m)[:7] for m in table.index]
         meter = meters[site_id]
         energy = float(np.sum(meter.p_kw) * op.interval_h)
-        lag = float(np.sum(np.maximum(meter.q_kvar, 0)) * op.interval_h)
         print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}]")
-        print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW, "
-              f"mean power factor {energy / np.hypot(energy, lag):.3f}")
+        print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW")
         print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
+        balance = reactive_balance(meter, op.interval_h)
+        print(f"  Reactive balance: lagging {balance['lagging_kvarh'] / 1000:,.0f} MVArh, leading "
+              f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
+              f"{balance['capacitor_kvarh'] / 1000:,.0f} MVArh; average power factor {balance['average_power_factor']:.3f}")
     if args.reactive_sweep:
         curve = reactive_value_curve(case, op, args.reactive_sweep, args.capacitor_cost)
         print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows, "

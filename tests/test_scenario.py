@@ -34,15 +34,14 @@ OPTIONS = ("option_id,technology,efficiency_class,speed_remedy,equipment_cost_co
            "ie3,induction,IE3,trim_or_pulley,100,1,20,0\n")
 
 
-@pytest.fixture(scope="module")
-def one_asset(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("one")
+def _one_asset_case(folder, price_per_kwh: float = 0.10):
+    """Write and load the one-motor case of docs/derivations/scenario-one-asset.md."""
     assets = [["M1", "S1", "Conveyor drive", "other", "15", "4", "50", "400", "IE1", "88.7", "0.82", "1460", "2025", "0",
                "fixed", "", "6000", "100", "medium"]]
     cb.write_case(folder, assets=assets, sites=[["S1", "Works", "0", "0.9"]], capacitors=[], duty=[], profiles=[])
     (folder / "profiles.csv").unlink()
     (folder / "tariffs").mkdir()
-    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF.replace("0.10", f"{price_per_kwh}"), encoding="utf-8")
     sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
     (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
     (folder / "options.csv").write_text(OPTIONS, encoding="utf-8")
