@@ -52,6 +52,19 @@ def _one_asset_case(folder, price_per_kwh: float = 0.10):
 
 
 @pytest.fixture(scope="module")
+def one_asset(tmp_path_factory):
+    return _one_asset_case(tmp_path_factory.mktemp("one"))
+
+
+def test_doubling_prices_doubles_bill_savings(one_asset, tmp_path):
+    dear = _one_asset_case(tmp_path / "dear", price_per_kwh=0.20)
+    base = scenario.run(one_asset, one_asset.finance, with_risk=False).results
+    twice = scenario.run(dear, dear.finance, with_risk=False).results
+    # invariant: a bill linear in price gives savings linear in price
+    assert_allclose(twice["bill_saving_per_yr"].to_numpy(), 2.0 * base["bill_saving_per_yr"].to_numpy(), rtol=1e-9)
+
+
+@pytest.fixture(scope="module")
 def row(one_asset):
     result = scenario.run(one_asset, one_asset.finance, with_risk=False)
     r = result.results
