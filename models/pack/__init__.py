@@ -1,0 +1,117 @@
+"""The capital-request pack: an auditable workbook, a self-contained HTML report and decision records.
+
+:func:`write_pack` is the one entry point (the command line's ``drivecase report`` and the dashboard's
+download both call it). It covers either the assets asked for (every option of each) or the exact fleet
+plan's projects, and writes into one folder:
+
+* ``capital-request.xlsx``: assumptions, options compared, cash flows with live NPV/IRR/payback formulas,
+  checks against the engine, plan, bills, data quality, end of life, risk (:mod:`models.pack.workbook`);
+* ``capital-request.html``: the report, plotly.js inlined once, no network (:mod:`models.pack.report_html`);
+* ``capital-request.pdf``: the report printed by headless Chromium, when asked and available (:mod:`models.pack.pdf`);
+* ``decision-records/<asset>.html``: one printable page per asset (:mod:`models.pack.decision_record`).
+
+Every file is written atomically and only inside the output folder. docs/pack.md describes the contents.
+"""
+
+from __future__ import annotations
+
+import warnings
+from pathlib import Path
+
+from models.exports import atomic_write_bytes
+from models.pack.content import Scope, select_scope
+from models.pack.decision_record import record_file_name, render_decision_record
+from models.pack.report_html import render_report
+from models.pack.workbook import build_workbook
+
+__all__ = ["write_pack", "select_scope", "Scope", "PackWarning", "WORKBOOK_NAME", "REPORT_NAME", "PDF_NAME", "RECORDS_DIR"]
+
+WORKBOOK_NAME = "capital-request.xlsx"
+REPORT_NAME = "capital-request.html"
+PDF_NAME = "capital-request.pdf"
+RECORDS_DIR = "decision-records"
+
+
+class PackWarning(UserWarning):
+    """A part of the pack was skipped (e.g. the PDF without a browser); the rest was written."""
+
+
+def _inside(out: Path, path: Path) -> Path:
+    """Return ``path`` after checking it stays inside ``out``."""
+    if not path.resolve().is_relative_to(out.resolve()):
+        raise ValueError(f"refusing to write outside the output folder: {path}")
+    return path
+
+
+def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: bool = True, pdf: bool = False,
+               messages: list[str] | None = None) -> list[Path]:
+    """Write the capital-request pack of a finished run.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        The case the run was made from.
+    result : models.scenario.ScenarioResult
+        The run (``models.scenario.run(case, case.finance)``); the tornado and Monte Carlo appear when it
+        was run with risk.
+    out_dir : str or pathlib.Path
+        Folder for the pack, created if needed. Nothing is written outside it.
+    assets : list of str, optional
+        Asset ids to cover, each with all its options.
+    plan : bool
+        Cover the exact fleet plan's projects (used alone when no assets are given).
+    pdf : bool
+        Also print the report to PDF with headless Chromium; skipped with a message when unavailable.
+    messages : list of str, optional
+        Receives notes for the user (e.g. whether the PDF was printed). A skipped PDF also raises a
+        :class:`PackWarning`.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files written.
+
+    Raises
+    ------
+    ValueError
+        For unknown asset ids or an empty selection.
+    """
+    notes = messages if messages is not None else []
+    scope = select_scope(case, result, assets, plan if assets else True)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    written: list[Path] = []
+
+    taken: set[str] = set()
+    record_names = {}
+    for asset_id in scope.asset_ids:
+        name = record_file_name(asset_id, taken)
+        taken.add(name.lower())
+        record_names[asset_id] = name
+    listed = [WORKBOOK_NAME, REPORT_NAME] + ([PDF_NAME] if pdf else []) + [f"{RECORDS_DIR}/{n}" for n in record_names.values()]
+
+    path = _inside(out, out / WORKBOOK_NAME)
+    atomic_write_bytes(path, build_workbook(case, result, scope))
+    written.append(path)
+
+    report = _inside(out, out / REPORT_NAME)
+    atomic_write_bytes(report, render_report(case, result, scope, listed).encode("utf-8"))
+    written.append(report)
+
+    for asset_id, name in record_names.items():
+        path = _inside(out, out / RECORDS_DIR / name)
+        atomic_write_bytes(path, render_decision_record(case, result, scope, asset_id).encode("utf-8"))
+        written.append(path)
+
+    if pdf:
+        from models.pack.pdf import pdf_bytes
+
+        data, message = pdf_bytes(report)
+        notes.append(message)
+        if data is not None:
+            path = _inside(out, out / PDF_NAME)
+            atomic_write_bytes(path, data)
+            written.insert(2, path)
+        else:
+            warnings.warn(message, PackWarning, stacklevel=2)
+    return written

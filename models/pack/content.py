@@ -1,0 +1,535 @@
+"""What the capital-request pack says: the scope, the recommended projects and the tables every file shares.
+
+The workbook, the HTML report and the decision records all draw from the functions here, so the three
+show the same numbers. Everything is computed from a finished :class:`models.scenario.ScenarioResult`
+and its case; nothing here reads or writes files.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, fields
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from models import finance
+from models.cashflows import COMPONENTS
+
+#: The cautions every file of the pack shows, in plain words.
+CAUTIONS: tuple[str, ...] = (
+    "Planning estimates only, not a design: confirm ratings, frame sizes and prices with the manufacturers "
+    "and suppliers before ordering.",
+    "All electrical work by qualified persons under lockout/tagout, arc-flash rules and the local electrical "
+    "codes; agree metering, reactive-power and export matters with the utility under its rules.",
+    "Permanent-magnet motors generate voltage at their terminals whenever the shaft turns (a windmilling pump "
+    "or fan), even when isolated: lock the shaft or prove dead before touching the terminals.",
+    "Capacitors store charge after disconnection: discharge and prove dead before work. Never connect "
+    "capacitors on a drive output or between a soft starter and its motor; size motor-terminal capacitors "
+    "below the motor's no-load magnetising kVAr to avoid self-excitation.",
+    "A faster machine (lower slip, synchronous speed, a drive set above the old speed) raises pump and fan "
+    "power roughly with the cube of speed and can overload the driven machine: re-check process limits.",
+    "Drives inject harmonics and stress motor insulation and bearings: check voltage distortion limits, use "
+    "inverter-duty motors and bearing-current mitigation.",
+)
+
+#: Friendly names of the cash-flow components (docs/finance.md explains each one).
+COMPONENT_LABELS: dict[str, str] = {
+    "capital_equipment": "Capital: equipment, remedy and capacitors",
+    "capital_drive": "Capital: drive",
+    "capital_installation": "Capital: installation",
+    "capital_engineering": "Capital: engineering",
+    "capital_contingency": "Capital: contingency",
+    "incentive": "Incentive",
+    "baseline_credit": "Avoided must-spend (credit)",
+    "midlife": "Mid-life item",
+    "savings_energy": "Saving: energy",
+    "savings_demand": "Saving: demand",
+    "savings_reactive": "Saving: reactive",
+    "savings_fixed": "Saving: fixed charges",
+    "savings_maintenance": "Saving: maintenance",
+    "residual": "Residual value at horizon end",
+    "tax_savings": "Tax on savings",
+    "tax_depreciation": "Depreciation tax shield",
+}
+
+#: Yearly saving components of results.csv and their labels.
+SAVING_COLUMNS: dict[str, str] = {
+    "saving_energy_per_yr": "Energy",
+    "saving_demand_per_yr": "Demand",
+    "saving_reactive_per_yr": "Reactive",
+    "saving_fixed_per_yr": "Fixed charges",
+    "saving_maintenance_per_yr": "Maintenance",
+}
+
+#: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
+FINANCE_FIELDS: dict[str, tuple[str, str]] = {
+    "currency": ("ISO 4217", "currency of every amount"),
+    "discount_rate_frac": ("frac/yr", "discount rate on the rate basis below"),
+    "rate_basis": ("-", "real (excludes inflation) or nominal"),
+    "inflation_frac": ("frac/yr", "general inflation, used only to convert between bases"),
+    "horizon_yr": ("yr", "study period"),
+    "escalation_energy_frac": ("frac/yr", "yearly escalation of energy prices"),
+    "escalation_demand_frac": ("frac/yr", "yearly escalation of demand charges"),
+    "escalation_reactive_frac": ("frac/yr", "yearly escalation of reactive charges"),
+    "escalation_fixed_frac": ("frac/yr", "yearly escalation of fixed charges"),
+    "escalation_maintenance_frac": ("frac/yr", "yearly escalation of maintenance costs"),
+    "grid_co2_kg_per_kwh": ("kg/kWh", "base-year grid emission factor"),
+    "grid_co2_decline_frac": ("frac/yr", "yearly relative decline of the grid factor"),
+    "incentive_per_kwh_saved": ("currency/kWh", "incentive per first-year kWh saved"),
+    "incentive_capital_share_frac": ("frac", "incentive as a share of capital"),
+    "incentive_max": ("currency", "cap on the incentive per project"),
+    "tax_rate_frac": ("frac", "profit tax rate (0 = no tax effects)"),
+    "depreciation_yr": ("yr", "straight-line tax depreciation period"),
+    "replacement_mode": ("-", "replace now, or replace when today's motor fails"),
+    "downtime_cost_per_h": ("currency/h", "default cost of an unplanned stop per hour"),
+    "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of capacitor banks"),
+    "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
+    "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
+    "monte_carlo_seed": ("-", "seed of the random draws"),
+}
+
+#: Technologies that put the motor on a drive (speed changes, so the M&V logs a whole duty cycle).
+DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
+
+
+@dataclass(frozen=True)
+class Scope:
+    """The assets and projects a pack covers.
+
+    Attributes
+    ----------
+    mode : {"plan", "assets", "plan and assets"}
+        How the scope was chosen.
+    asset_ids : tuple of str
+        Assets in scope, in case order.
+    projects : pandas.DataFrame
+        One row per project in scope (an asset x option that is not today's motor): the columns of
+        ``result.results`` plus ``plan_start_yr`` (plan year, 0 outside the plan), ``in_plan`` and
+        ``recommended`` (bool).
+    recommended : pandas.DataFrame
+        One row per asset in scope: the recommended option (the exact plan's choice, else the highest-NPV
+        option, which may be today's motor), with the ``result.results`` columns, ``plan_start_yr``,
+        ``in_plan``, ``keep_option_id``, ``reason`` (a sentence) and ``reason_short``.
+    """
+
+    mode: str
+    asset_ids: tuple[str, ...]
+    projects: pd.DataFrame
+    recommended: pd.DataFrame
+
+    @property
+    def chosen(self) -> pd.DataFrame:
+        """Recommended projects that spend capital (today's motor left out)."""
+        rec = self.recommended
+        return rec[rec["option_id"] != rec["keep_option_id"]].reset_index(drop=True)
+
+
+def keep_option_ids(result) -> pd.Series:
+    """Return today's-motor option id of each asset (the first option of its rows), indexed by asset id."""
+    return result.results.groupby("asset_id", sort=False)["option_id"].first()
+
+
+def select_scope(case, result, assets: list[str] | None = None, plan: bool = True) -> Scope:
+    """Choose what a pack covers: given assets (all their options), the exact plan's projects, or both.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    result : models.scenario.ScenarioResult
+    assets : list of str or None
+        Asset ids; each one brings all its options into scope.
+    plan : bool
+        Bring the exact fleet plan's projects into scope.
+
+    Returns
+    -------
+    Scope
+
+    Raises
+    ------
+    ValueError
+        For unknown asset ids, or when nothing is selected.
+    """
+    res = result.results
+    known = list(case.assets["asset_id"])
+    keep = keep_option_ids(result)
+    wanted: list[str] = []
+    if assets:
+        unknown = [a for a in assets if a not in set(known)]
+        if unknown:
+            raise ValueError(f"unknown asset(s): {', '.join(map(str, unknown))}")
+        wanted = list(dict.fromkeys(str(a) for a in assets))
+    if not wanted and not plan:
+        raise ValueError("nothing to report: give asset ids or ask for the plan")
+    plan_rows = result.plan if plan else result.plan.iloc[0:0]
+    plan_key = dict(zip(plan_rows["asset_id"] + "/" + plan_rows["option_id"], plan_rows["start_yr"].astype(int)))
+    plan_choice = dict(zip(plan_rows["asset_id"], plan_rows["option_id"]))
+    fleet_choice = dict(zip(result.plan["asset_id"], result.plan["option_id"]))
+    fleet_start = dict(zip(result.plan["asset_id"], result.plan["start_yr"].astype(int)))
+    in_scope = set(wanted) | set(plan_rows["asset_id"])
+    asset_ids = tuple(a for a in known if a in in_scope)
+
+    key = res["asset_id"] + "/" + res["option_id"]
+    not_keep = res["option_id"].to_numpy() != keep.reindex(res["asset_id"]).to_numpy()
+    take = not_keep & (res["asset_id"].isin(wanted).to_numpy() | key.isin(list(plan_key)).to_numpy())
+    projects = res[take].copy()
+    projects["in_plan"] = [fleet_choice.get(a) == o for a, o in zip(projects["asset_id"], projects["option_id"])]
+    projects["plan_start_yr"] = [fleet_start.get(a, 0) if p else 0 for a, p in zip(projects["asset_id"], projects["in_plan"])]
+
+    rec_rows = []
+    for asset_id in asset_ids:
+        rows = res[res["asset_id"] == asset_id]
+        if asset_id in fleet_choice:
+            pick = rows[rows["option_id"] == fleet_choice[asset_id]].iloc[0].copy()
+            start = fleet_start[asset_id]
+            best = bool(pick["best_for_asset"])
+            reason = (f"chosen by the budget-constrained fleet plan for plan year {start}"
+                      + (" (highest NPV of its options)" if best else
+                         " (the plan trades some NPV for capital that fits the budget)"))
+            short = f"plan year {start}; " + ("highest NPV" if best else "fits the budget better than the top NPV")
+            pick["in_plan"], pick["plan_start_yr"] = True, start
+        else:
+            pick = rows[rows["best_for_asset"]].iloc[0].copy()
+            if pick["option_id"] == keep[asset_id]:
+                reason = "no option beats keeping today's motor on NPV"
+                short = "nothing beats today's motor"
+            elif float(pick["npv"]) > 0:
+                reason = "highest NPV of its options (not in the fleet plan: the budget is spent on better projects)"
+                short = "highest NPV; outside the budgeted plan"
+            else:
+                reason = "highest NPV of its options"
+                short = "highest NPV"
+            pick["in_plan"], pick["plan_start_yr"] = False, 0
+        pick["reason"] = reason
+        pick["reason_short"] = short
+        pick["keep_option_id"] = keep[asset_id]
+        rec_rows.append(pick)
+    recommended = pd.DataFrame(rec_rows).reset_index(drop=True) if rec_rows else res.iloc[0:0].assign(
+        in_plan=[], plan_start_yr=[], reason=[], reason_short=[], keep_option_id=[])
+    rec_key = set(recommended["asset_id"] + "/" + recommended["option_id"])
+    projects["recommended"] = (projects["asset_id"] + "/" + projects["option_id"]).isin(list(rec_key)).to_numpy()
+    order = {a: i for i, a in enumerate(asset_ids)}
+    projects = projects.assign(_o=projects["asset_id"].map(order)).sort_values(["_o"], kind="stable").drop(columns="_o")
+    if wanted and plan:
+        mode = "plan and assets"
+    elif wanted:
+        mode = "assets"
+    else:
+        mode = "plan"
+    return Scope(mode=mode, asset_ids=asset_ids, projects=projects.reset_index(drop=True), recommended=recommended)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Cash flows
+# ---------------------------------------------------------------------------------------------------
+def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
+    """Return one project's flows as a component x year table (zero-filled) [currency].
+
+    Rows are the components with a non-zero flow, in the engine's component order; columns are years
+    0..horizon. The column sums are the engine's net flows (zero components add nothing).
+    """
+    horizon = int(result.assumptions.horizon_yr)
+    cf = result.cashflows
+    rows = cf[(cf["asset_id"] == asset_id) & (cf["option_id"] == option_id)]
+    table = pd.DataFrame(0.0, index=pd.Index([c for c in COMPONENTS if c in set(rows["component"].astype(str))],
+                                             name="component"), columns=range(horizon + 1))
+    for r in rows.itertuples(index=False):
+        table.loc[str(r.component), int(r.year)] += float(r.amount)
+    return table
+
+
+def net_flows(result, asset_id: str, option_id: str) -> np.ndarray:
+    """Return one project's net flow per year 0..horizon [currency]."""
+    table = project_flow_table(result, asset_id, option_id)
+    horizon = int(result.assumptions.horizon_yr)
+    return table.sum(axis=0).to_numpy(dtype=float) if len(table) else np.zeros(horizon + 1)
+
+
+def portfolio_flows(result, projects: pd.DataFrame) -> pd.DataFrame:
+    """Return the yearly net flow of a set of projects, each shifted to its plan start year.
+
+    Returns
+    -------
+    pandas.DataFrame
+        year (plan year) [yr], net, cumulative, discounted, cumulative_discounted [currency].
+    """
+    d = float(result.assumptions.discount_rate_frac)
+    horizon = int(result.assumptions.horizon_yr)
+    last = horizon + (int(projects["plan_start_yr"].max()) if len(projects) else 0)
+    total = np.zeros(last + 1)
+    for r in projects.itertuples(index=False):
+        start = int(r.plan_start_yr)
+        total[start:start + horizon + 1] += net_flows(result, r.asset_id, r.option_id)
+    years = np.arange(last + 1)
+    disc = total / (1.0 + d) ** years
+    return pd.DataFrame({"year": years, "net": total, "cumulative": np.cumsum(total), "discounted": disc,
+                         "cumulative_discounted": np.cumsum(disc)})
+
+
+@dataclass(frozen=True)
+class Headline:
+    """The executive summary's numbers for the recommended projects in scope.
+
+    Attributes
+    ----------
+    n_projects : int
+    capital : float
+        Capital of the recommended projects [currency].
+    yearly_saving : float
+        Bill and maintenance saving per year at base-year prices [currency/yr].
+    npv : float
+        NPV at the start of plan year 0 [currency].
+    payback_yr : float
+        Simple payback of the combined flows [yr] (``inf`` when not within the flows).
+    co2_t_per_yr : float
+        First-year CO2 avoided [t/yr].
+    energy_saved_kwh_per_yr : float
+        Energy saved per year [kWh/yr].
+    """
+
+    n_projects: int
+    capital: float
+    yearly_saving: float
+    npv: float
+    payback_yr: float
+    co2_t_per_yr: float
+    energy_saved_kwh_per_yr: float
+
+
+def yearly_saving(frame: pd.DataFrame) -> pd.Series:
+    """Return bill saving plus maintenance saving per year of each row [currency/yr]."""
+    return frame["bill_saving_per_yr"] + frame["saving_maintenance_per_yr"]
+
+
+def headline(result, scope: Scope) -> Headline:
+    """Return the executive summary's headline numbers for the recommended projects."""
+    chosen = scope.chosen
+    d = float(result.assumptions.discount_rate_frac)
+    flows = portfolio_flows(result, chosen)
+    payback = float(finance.simple_payback(flows["net"].to_numpy()).payback_yr) if len(chosen) else math.inf
+    npv_start = float((chosen["npv"] / (1.0 + d) ** chosen["plan_start_yr"].astype(float)).sum())
+    return Headline(n_projects=len(chosen), capital=float(chosen["capital"].sum()),
+                    yearly_saving=float(yearly_saving(chosen).sum()), npv=npv_start, payback_yr=payback,
+                    co2_t_per_yr=float(chosen["co2_avoided_t_per_yr"].sum()),
+                    energy_saved_kwh_per_yr=float(chosen["energy_saved_kwh_per_yr"].sum()))
+
+
+# ---------------------------------------------------------------------------------------------------
+# Measurement and verification
+# ---------------------------------------------------------------------------------------------------
+def _power_factor(p_kwh: np.ndarray, q_kvarh: np.ndarray) -> np.ndarray:
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(p_kwh > 0, p_kwh / np.hypot(p_kwh, q_kvarh), np.nan)
+
+
+def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
+    """Return the measurement-and-verification plan of each project: what to log, for how long, baselines.
+
+    Returns
+    -------
+    pandas.DataFrame
+        asset_id, option_id, ipmvp_option ("A" or "B"), duration_weeks [week], measure (text),
+        baseline_energy_kwh_per_yr, baseline_mean_p_kw, baseline_power_factor, baseline_speed_rpm,
+        running_h_per_yr, expected_energy_kwh_per_yr, expected_mean_p_kw, expected_power_factor,
+        expected_speed_rpm.
+
+    Notes
+    -----
+    Mean kW is the running-hour mean: kWh / running hours. The power factor is energy-weighted,
+    kWh / sqrt(kWh^2 + kVArh^2) with the net (lagging - leading) kVArh at the motor terminals. IPMVP
+    Option A (key parameter measured, hours logged) suits a like-for-like swap at unchanged duty; Option B
+    (all parameters metered) suits a speed-control change whose kW follows the process [1].
+
+    References
+    ----------
+    .. [1] Efficiency Valuation Organization, "International Performance Measurement and Verification
+       Protocol: Core Concepts," EVO 10000-1:2022.
+    """
+    op = result.physics.operation
+    res = result.results.set_index(["asset_id", "option_id"])
+    keep = keep_option_ids(result)
+    rows = []
+    for r in projects.itertuples(index=False):
+        i = op.asset_position(r.asset_id)
+        o = op.option_position(r.option_id)
+        keep_o = 0
+        hours = float(op.running_h[i])
+        kwh = op.energy_kwh[i, [keep_o, o]]
+        kvarh = op.lagging_kvarh[i, [keep_o, o]] - op.leading_kvarh[i, [keep_o, o]]
+        pf = _power_factor(kwh, kvarh)
+        mean_kw = kwh / hours if hours > 0 else np.array([np.nan, np.nan])
+        tech = str(r.technology)
+        option = "B" if tech in DRIVE_TECHNOLOGIES or tech == "wound_field" else "A"
+        # a whole duty cycle for metered savings; two weeks when only the key parameter is measured
+        weeks = 4 if option == "B" else 2
+        what = ["true kW (3-phase power analyser, 1-15 min averages)", "power factor and kVAr",
+                "running hours (logger on the contactor or current)"]
+        what.append("shaft speed (optical tachometer) to confirm slip and speed change")
+        if tech in DRIVE_TECHNOLOGIES:
+            what.append("process variable (flow or pressure) to normalise for production")
+        if tech == "capacitor":
+            what = ["kVAr and power factor at the motor and at the site meter", "kVArh on the bill before and after",
+                    "running hours"]
+        if tech == "wound_field":
+            what.append("field current and site power factor (over-excitation setpoint)")
+        rows.append({
+            "asset_id": r.asset_id, "option_id": r.option_id, "ipmvp_option": option, "duration_weeks": weeks,
+            "measure": "; ".join(what),
+            "running_h_per_yr": hours,
+            "baseline_energy_kwh_per_yr": float(kwh[0]), "baseline_mean_p_kw": float(mean_kw[0]),
+            "baseline_power_factor": float(pf[0]),
+            "baseline_speed_rpm": float(res.loc[(r.asset_id, keep[r.asset_id]), "mean_speed_rpm"]),
+            "expected_energy_kwh_per_yr": float(kwh[1]), "expected_mean_p_kw": float(mean_kw[1]),
+            "expected_power_factor": float(pf[1]), "expected_speed_rpm": float(r.mean_speed_rpm),
+        })
+    columns = ["asset_id", "option_id", "ipmvp_option", "duration_weeks", "measure",
+               "running_h_per_yr", "baseline_energy_kwh_per_yr", "baseline_mean_p_kw", "baseline_power_factor",
+               "baseline_speed_rpm", "expected_energy_kwh_per_yr", "expected_mean_p_kw", "expected_power_factor",
+               "expected_speed_rpm"]
+    return pd.DataFrame(rows, columns=columns)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Assumptions, data quality and the risk register
+# ---------------------------------------------------------------------------------------------------
+def finance_rows(assumptions: finance.FinanceAssumptions) -> list[dict[str, Any]]:
+    """Return one row per finance assumption: key, value, unit, meaning, and whether it is the program default."""
+    default = finance.FinanceAssumptions()
+    out = []
+    for f in fields(assumptions):
+        value = getattr(assumptions, f.name)
+        unit, meaning = FINANCE_FIELDS.get(f.name, ("", ""))
+        out.append({"key": f.name, "value": value, "unit": unit, "meaning": meaning,
+                    "program_default": value == getattr(default, f.name)})
+    return out
+
+
+def scope_flags(result, asset_ids: tuple[str, ...]) -> pd.DataFrame:
+    """Return the machine models' flags (asset_id, option_id, flag) of the assets in scope."""
+    flags = result.physics.operation.flags
+    if flags.empty:
+        return pd.DataFrame(columns=["asset_id", "option_id", "flag"])
+    return flags[flags["asset_id"].isin(list(asset_ids))].reset_index(drop=True)
+
+
+def scope_defaults(case, asset_ids: tuple[str, ...]) -> pd.DataFrame:
+    """Return every defaulted input (asset_id, column, value, basis) of the assets in scope."""
+    d = case.defaults
+    if d is None or d.empty:
+        return pd.DataFrame(columns=["asset_id", "column", "value", "basis"])
+    return d[d["asset_id"].isin(list(asset_ids))].reset_index(drop=True)
+
+
+def asset_list_text(ids: list[str], limit: int = 8) -> str:
+    """Return up to ``limit`` ids joined by commas, then 'and N more'."""
+    ids = list(dict.fromkeys(ids))
+    text = ", ".join(ids[:limit])
+    return text + (f" and {len(ids) - limit} more" if len(ids) > limit else "")
+
+
+def risk_register(case, result, scope: Scope) -> pd.DataFrame:
+    """Return the risks and assumptions register: category, item, detail, assets, response.
+
+    Rows come from the finance assumptions, the options catalogue, the defaulted inputs, the machine
+    models' flags, data quality and the Monte Carlo summary, for the assets and projects in scope.
+    """
+    a = result.assumptions
+    rows: list[dict[str, str]] = []
+
+    def add(category: str, item: str, detail: str, assets: str, response: str) -> None:
+        rows.append({"category": category, "item": item, "detail": detail, "assets": assets, "response": response})
+
+    add("assumption", "Discount rate and horizon",
+        f"{a.discount_rate_frac:.1%} per year ({a.rate_basis}) over {a.horizon_yr} years", "all",
+        "Use the company's hurdle rate; see the tornado for the NPV swing of +/- 2 points.")
+    add("assumption", "Energy price escalation",
+        f"energy {a.escalation_energy_frac:.1%}/yr, demand {a.escalation_demand_frac:.1%}/yr, "
+        f"reactive {a.escalation_reactive_frac:.1%}/yr ({a.rate_basis})", "all",
+        "Run low/base/high price cases; keep real or nominal consistent with the discount rate.")
+    add("assumption", "Grid emission factor",
+        f"{a.grid_co2_kg_per_kwh:g} kg CO2/kWh in the base year, declining {a.grid_co2_decline_frac:.1%}/yr", "all",
+        "State whether the factor is location- or market-based and average or marginal.")
+    add("assumption", "Replacement timing", a.replacement_mode.replace("_", " "), "all",
+        "Replace-now projects assume an outage window in the plan year; book it with operations.")
+    if a.downtime_cost_per_h == 0:
+        add("assumption", "Downtime cost", "no case-wide downtime cost set; placeholders by criticality are used "
+            "for the end-of-life comparison", "all", "Set downtime_cost_per_h per asset or case-wide.")
+    if "illustrative" in case.options.columns and case.options["illustrative"].fillna(False).astype(bool).any():
+        add("assumption", "Capital costs", "the options catalogue prices are illustrative cost curves, not quotes",
+            "all", "Replace them with supplier quotes before approval; contingency covers part of the spread.")
+    defaults = scope_defaults(case, scope.asset_ids)
+    if not defaults.empty:
+        for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
+            add("defaulted input", f"{column}", f"{basis} ({len(grp)} asset(s))", asset_list_text(list(grp["asset_id"])),
+                "Read the nameplate or measure, then re-run.")
+    assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
+    low = assets[assets["data_quality_pct"] < 70]
+    if len(low):
+        add("data quality", "Low data-quality score", f"{len(low)} asset(s) below 70 % of nameplate fields known",
+            asset_list_text(list(low["asset_id"])), "Measure these first: kW, PF, speed and hours over 1-4 weeks.")
+    flags = scope_flags(result, scope.asset_ids)
+    if not flags.empty:
+        chosen = set(scope.recommended["asset_id"] + "/" + scope.recommended["option_id"])
+        relevant = flags[(flags["option_id"] == "") | (flags["asset_id"] + "/" + flags["option_id"]).isin(list(chosen))]
+        for text, grp in relevant.groupby("flag", sort=True):
+            add("engineering flag", text.split(":")[0][:60] if ":" in text else "model note", text, asset_list_text(list(grp["asset_id"])),
+                "Check with the supplier or on site before ordering.")
+    if not result.risk.empty and "project_id" in result.risk:
+        keys = set(scope.chosen["asset_id"] + "/" + scope.chosen["option_id"])
+        mc = result.risk[result.risk["project_id"].isin(list(keys))]
+        weak = mc[mc["prob_npv_positive_frac"] < 0.9]
+        if len(weak):
+            add("uncertainty", "NPV may be negative",
+                f"{len(weak)} recommended project(s) with P(NPV > 0) below 90 % in the Monte Carlo",
+                asset_list_text([p.split("/")[0] for p in weak["project_id"]]),
+                "Measure the load and hours before committing; consider replace-at-failure.")
+    return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
+
+
+def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:
+    """Return the cautions that apply to one option's technology and speed change."""
+    out = []
+    if technology in ("line_start_pm", "pm_drive"):
+        out.append(CAUTIONS[2])
+    if technology == "line_start_pm":
+        out.append("Line-start PM motors can fail to pull into step under high inertia, heavy start load or a "
+                   "voltage dip: confirm the start with the supplier.")
+    if technology == "capacitor":
+        out.append(CAUTIONS[3])
+    if technology in DRIVE_TECHNOLOGIES:
+        out.append(CAUTIONS[5])
+    if technology == "wound_field":
+        out.append("Synchronous motors need loss-of-excitation and pull-out protection, and over-excitation raises "
+                   "site voltage: coordinate the reactive export with the utility.")
+    if speed_change_rpm > 1.0:
+        out.append(f"Runs about {speed_change_rpm:.0f} rpm faster than today: " + CAUTIONS[4])
+    return out
+
+
+# ---------------------------------------------------------------------------------------------------
+# Formatting shared by the report and the decision records
+# ---------------------------------------------------------------------------------------------------
+def money(value: float, currency: str) -> str:
+    """Format an amount with thousands separators and the currency code."""
+    if value is None or not np.isfinite(value):
+        return "-"
+    return f"{value:,.0f} {currency}"
+
+
+def years_text(value: float, horizon_yr: int) -> str:
+    """Format a payback [yr]; ``inf`` reads as not within the horizon."""
+    if value is None or np.isnan(value):
+        return "-"
+    if not np.isfinite(value):
+        return f"not within {horizon_yr} yr"
+    return f"{value:.1f} yr"
+
+
+def rate_text(value: float, status: str = "unique") -> str:
+    """Format an IRR or other rate [frac] as percent; missing or infinite rates read as 'none'."""
+    if value is None or not np.isfinite(value):
+        return "none"
+    text = f"{value * 100:.1f} %"
+    return text + " (several)" if status == "multiple" else text

@@ -1,0 +1,168 @@
+"""One-page repair-or-replace decision record per asset (printable HTML, A4).
+
+The record shows the asset's nameplate and age, every option with its capital, yearly saving, NPV and
+payback, the expected present cost of the end-of-life strategies (replace now, replace at failure,
+rewind at failure), the recommended choice with its reasons and cautions, and a sign-off block.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+import pandas as pd
+from markupsafe import Markup
+
+from models.pack import content, templates
+from models.pack.report_html import cell, num, row
+
+_STRATEGY_TEXT = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
+                  "rewind_at_failure": "rewind at failure"}
+
+
+def record_file_name(asset_id: str, taken: set[str] | None = None) -> str:
+    """Return a safe file name for an asset's record: letters, digits, '-', '_' and '.', never hidden or a path.
+
+    Examples
+    --------
+    >>> record_file_name("../P 101")
+    'P_101.html'
+    """
+    stem = re.sub(r"[^A-Za-z0-9_.-]+", "_", str(asset_id)).strip("._") or "asset"
+    stem = stem[:80]
+    name = f"{stem}.html"
+    k = 2
+    while taken is not None and name.lower() in taken:
+        name = f"{stem}-{k}.html"
+        k += 1
+    return name
+
+
+def _value(x, fmt: str = "{}", missing: str = "unknown") -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)) or x is pd.NA or x == "":
+        return missing
+    return fmt.format(x)
+
+
+def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
+    """Return what one asset's decision record shows (plain values; the template escapes them)."""
+    s = case.settings
+    a = result.assumptions
+    cur = s.currency
+    horizon = int(a.horizon_yr)
+    x = case.assets.set_index("asset_id").loc[asset_id]
+    res = result.results[result.results["asset_id"] == asset_id]
+    keep_id = content.keep_option_ids(result)[asset_id]
+    rec = scope.recommended.set_index("asset_id").loc[asset_id]
+    year = int(result.physics.operation.index[len(result.physics.operation.index) // 2].year)
+    installed = x["year_installed"]
+    age = year - int(installed) if isinstance(installed, (int, float)) and not math.isnan(installed) else None
+    defaulted = content.scope_defaults(case, (asset_id,))
+    filled = set(defaulted["column"])
+    plate = [
+        ("Rated power", "rated_p_kw", _value(float(x["rated_p_kw"]), "{:,.1f} kW")),
+        ("Poles", "poles", _value(x["poles"], "{:.0f}")),
+        ("Voltage", "rated_v_v", _value(x["rated_v_v"], "{:,.0f} V")),
+        ("Frequency", "supply_f_hz", _value(x["supply_f_hz"], "{:.0f} Hz")),
+        ("Efficiency class", "efficiency_class", _value(x["efficiency_class"])),
+        ("Rated efficiency", "rated_efficiency_pct", _value(x["rated_efficiency_pct"], "{:.1f} %")),
+        ("Rated power factor", "rated_power_factor", _value(x["rated_power_factor"], "{:.2f}")),
+        ("Rated speed", "rated_speed_rpm", _value(x["rated_speed_rpm"], "{:,.0f} rpm")),
+        ("Installed", "year_installed", _value(installed, "{:.0f}")), ("Age", "year_installed", _value(age, "{} yr")),
+        ("Rewinds", "rewind_count", _value(x["rewind_count"], "{:.0f}")),
+        ("Application", "application", _value(x["application"])),
+        ("Speed control", "speed_control", _value(x["speed_control"])),
+        ("Criticality", "criticality", _value(x["criticality"])),
+        ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
+        ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %") + (f" ({len(defaulted)} defaulted)" if len(defaulted) else "")),
+    ]
+    nameplate = [(label, value, column in filled) for label, column, value in plate]
+    rec_key = f"{asset_id}/{rec['option_id']}"
+    option_rows = []
+    for r in res.itertuples(index=False):
+        is_keep = r.option_id == keep_id
+        option_rows.append(row([
+            cell(r.label), cell(r.technology.replace("_", " ")),
+            num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr), num(r.npv),
+            cell("-" if is_keep else content.rate_text(r.irr_frac, r.irr_status), "num"),
+            cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon), "num"),
+            num(r.co2_avoided_t_per_yr, "{:,.1f}")], pick=f"{r.asset_id}/{r.option_id}" == rec_key))
+
+    eol = result.end_of_life
+    eol_rows, eol_note = [], ""
+    best_strategy = None
+    if not eol.empty and asset_id in set(eol["asset_id"]):
+        e = eol.set_index("asset_id").loc[asset_id]
+        best_strategy = str(e["best_strategy"])
+        for key, column in (("replace_now", "cost_replace_now"), ("replace_at_failure", "cost_replace_at_failure"),
+                            ("rewind_at_failure", "cost_rewind_at_failure")):
+            eol_rows.append(row([cell(_STRATEGY_TEXT[key]), num(float(e[column]))], pick=key == best_strategy))
+        eol_note = (f"New motor compared: option '{e['new_option_id']}'. Probability that today's motor fails within "
+                    f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
+                    f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime.")
+    else:
+        eol_note = "Not available: the options catalogue needs a rewind option and a new induction motor option."
+
+    is_keep = rec["option_id"] == keep_id
+    reason = str(rec["reason"])
+    reasons = [reason[:1].upper() + reason[1:] + "."]
+    if not is_keep:
+        reasons.append(f"NPV {content.money(float(rec['npv']), cur)} at {a.discount_rate_frac:.1%}, capital "
+                       f"{content.money(float(rec['capital']), cur)}, saving {content.money(float(rec['bill_saving_per_yr'] + rec['saving_maintenance_per_yr']), cur)}/yr, "
+                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon)}.")
+        others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
+        if len(others):
+            o = others.iloc[0]
+            reasons.append(f"Next best: {o['label']} (NPV {content.money(float(o['npv']), cur)}).")
+    if best_strategy:
+        new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
+        reasons.append(f"For the motor itself (new '{new_id}' motor vs rewind), the cheapest end-of-life strategy is to "
+                       f"{_STRATEGY_TEXT[best_strategy]} (by {content.money(float(eol.set_index('asset_id').loc[asset_id, 'advantage_over_next']), cur)}"
+                       f" over the next).")
+    if float(rec["must_spend_capital"]) > 0 and not is_keep:
+        reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
+                       f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
+    cautions = []
+    flags = content.scope_flags(result, (asset_id,))
+    if not flags.empty:
+        cautions += list(flags.loc[(flags["option_id"] == "") | (flags["option_id"] == rec["option_id"]), "flag"])
+    if not is_keep:
+        keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
+        cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
+    cautions += [content.CAUTIONS[0], content.CAUTIONS[1]]
+    return {
+        "asset_id": asset_id, "description": _value(x["description"], missing=""), "site": x["site_id"],
+        "case_name": s.name, "currency": cur, "invented": bool(s.invented),
+        "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})", "horizon": horizon, "nameplate": nameplate,
+        "option_headers": ["Option", "Technology", "Capital", "Saving/yr", "NPV", "IRR", "Payback", "CO2 t/yr"],
+        "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
+        "eol_headers": ["Strategy", "Expected present cost"], "eol_rows": eol_rows, "eol_numeric": (1,),
+        "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),
+        "reasons": reasons, "cautions": list(dict.fromkeys(cautions)),
+    }
+
+
+def render_decision_record(case, result, scope: content.Scope, asset_id: str) -> str:
+    """Render one asset's one-page decision record as a complete HTML document.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    result : models.scenario.ScenarioResult
+    scope : models.pack.content.Scope
+        The asset must be in ``scope.asset_ids``.
+    asset_id : str
+
+    Returns
+    -------
+    str
+
+    Raises
+    ------
+    ValueError
+        When the asset is not in scope.
+    """
+    if asset_id not in scope.asset_ids:
+        raise ValueError(f"asset '{asset_id}' is not in the pack's scope")
+    values = record_context(case, result, scope, asset_id)
+    return templates.render(templates.DECISION, css=Markup(templates.DECISION_CSS), **values)

@@ -1,0 +1,274 @@
+"""The capital-request report: one self-contained HTML page (plotly.js embedded once, no network).
+
+:func:`render_report` returns the page as text. plotly.js is inlined once in ``<head>`` and each chart
+is a fragment written with ``include_plotlyjs=False`` and a fixed element id, so the same run gives
+the same page. All user text is escaped by the template engine.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import plotly.io as pio
+from markupsafe import Markup
+from plotly.offline import get_plotlyjs
+
+from models.pack import content, figures, templates
+
+#: Sections of the report: (anchor, title).
+SECTIONS: tuple[tuple[str, str], ...] = (
+    ("summary", "Executive summary"), ("scope", "Scope and assets"), ("options", "Options compared"),
+    ("savings", "Savings by component"), ("cashflow", "Cash flow"), ("risk", "Sensitivity and Monte Carlo"),
+    ("plan", "Fleet plan by year"), ("register", "Risks and assumptions register"),
+    ("mv", "Measurement and verification plan"), ("emissions", "Emissions"), ("cautions", "Cautions"),
+    ("appendix", "Appendix"),
+)
+
+
+def cell(text: Any, cls: str = "") -> dict[str, str]:
+    """One table cell: its text and CSS class."""
+    return {"text": "" if text is None else str(text), "cls": cls}
+
+
+def num(value: float, fmt: str = "{:,.0f}", suffix: str = "", signed: bool = True) -> dict[str, str]:
+    """A right-aligned numeric cell; missing values show a dash, negatives in red unless ``signed`` is False."""
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return cell("-", "num na")
+    return cell(fmt.format(value) + suffix, "num neg" if (signed and value < 0) else "num")
+
+
+def row(cells: list[dict[str, str]], pick: bool = False) -> dict[str, Any]:
+    """One table row."""
+    return {"cells": cells, "pick": pick}
+
+
+def chart(fig, name: str) -> Markup:
+    """Return a chart fragment (plotly writes its own JSON with ``<`` escaped)."""
+    return Markup(pio.to_html(fig, full_html=False, include_plotlyjs=False, div_id=f"chart-{name}",
+                              config={"displaylogo": False, "responsive": True}, default_width="100%"))
+
+
+def _payback_cell(value: float, horizon: int) -> dict[str, str]:
+    text = content.years_text(value, horizon)
+    return cell(text, "num" if math.isfinite(value) else "num na")
+
+
+def _option_rows(frame: pd.DataFrame, cur: str, horizon: int, recommended: set[str]) -> list[dict[str, Any]]:
+    rows = []
+    for r in frame.itertuples(index=False):
+        rows.append(row([cell(r.option_id), cell(r.label), num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr),
+                         num(r.npv), cell(content.rate_text(r.irr_frac, r.irr_status), "num"),
+                         _payback_cell(r.simple_payback_yr, horizon), num(r.co2_avoided_t_per_yr, "{:,.1f}"),
+                         cell(r.flags or "", "small")],
+                        pick=f"{r.asset_id}/{r.option_id}" in recommended))
+    return rows
+
+
+def report_context(case, result, scope: content.Scope, files: list[str]) -> dict[str, Any]:
+    """Return everything the report template shows (plain values; the template escapes them)."""
+    s = case.settings
+    a = result.assumptions
+    cur = s.currency
+    horizon = int(a.horizon_yr)
+    h = content.headline(result, scope)
+    chosen = scope.chosen
+    rec = scope.recommended
+    rec_keys = set(rec["asset_id"] + "/" + rec["option_id"])
+    assets = case.assets.set_index("asset_id")
+
+    cards = [
+        {"label": "Capital", "value": content.money(h.capital, cur), "note": f"{h.n_projects} project(s)"},
+        {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices"},
+        {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
+        {"label": "Payback", "value": content.years_text(h.payback_yr, horizon), "note": "simple, combined cash flow"},
+        {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"at {a.grid_co2_kg_per_kwh:g} kg/kWh"},
+    ]
+    keep_count = int((rec["option_id"] == rec["keep_option_id"]).sum())
+    summary = (f"{h.n_projects} project(s) on {len(scope.asset_ids)} asset(s) are recommended for "
+               f"{content.money(h.capital, cur)} of capital. They save about {content.money(h.yearly_saving, cur)} a year "
+               f"({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), pay back in {content.years_text(h.payback_yr, horizon)} and add "
+               f"{content.money(h.npv, cur)} of value at a {a.discount_rate_frac:.1%} discount rate.")
+    if keep_count:
+        summary += f" For {keep_count} asset(s) no option beats keeping today's motor."
+
+    decision_rows = []
+    for r in rec.itertuples(index=False):
+        is_keep = r.option_id == r.keep_option_id
+        decision_rows.append(row([
+            cell(r.asset_id, "id"), cell(assets.loc[r.asset_id, "description"] or ""), cell(r.label),
+            cell(int(r.plan_start_yr) if r.in_plan else "-", "num"),
+            num(0.0 if is_keep else r.capital), num(0.0 if is_keep else r.bill_saving_per_yr + r.saving_maintenance_per_yr),
+            num(0.0 if is_keep else r.npv),
+            cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon),
+            num(0.0 if is_keep else r.co2_avoided_t_per_yr, "{:,.1f}"), cell(r.reason_short, "small")]))
+
+    asset_rows = []
+    for asset_id in scope.asset_ids:
+        x = assets.loc[asset_id]
+        asset_rows.append(row([
+            cell(asset_id, "id"), cell(x["description"] or ""), cell(x["site_id"]), cell(x["application"] or ""),
+            num(float(x["rated_p_kw"]), "{:,.1f}"), num(float(x["poles"]), "{:.0f}"), cell(x["efficiency_class"] or ""),
+            num(float(x["year_installed"]), "{:.0f}"), num(float(x["rewind_count"]), "{:.0f}"),
+            cell(x["speed_control"] or ""), cell(x["criticality"] or ""), num(float(x["data_quality_pct"]), "{:.0f}", " %")]))
+
+    res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))]
+    keep_ids = content.keep_option_ids(result)
+    option_ids = [o for o in dict.fromkeys(res["option_id"]) if o not in set(keep_ids)]
+    npv = res.set_index(["asset_id", "option_id"])["npv"]
+    matrix_rows = []
+    for asset_id in scope.asset_ids:
+        cells = [cell(asset_id, "id")]
+        for o in option_ids:
+            if (asset_id, o) in npv.index:
+                c = num(float(npv[(asset_id, o)]))
+                if f"{asset_id}/{o}" in rec_keys:
+                    c["cls"] += " pick"
+                cells.append(c)
+            else:
+                cells.append(cell("-", "num na"))
+        matrix_rows.append(row(cells))
+
+    flows = content.portfolio_flows(result, chosen)
+    flow_rows = [row([cell(int(r.year), "num"), num(r.net), num(r.cumulative), num(r.discounted), num(r.cumulative_discounted)])
+                 for r in flows.itertuples(index=False)]
+
+    mc = result.risk
+    if not mc.empty and "project_id" in mc:
+        mc = mc[mc["project_id"].isin(list(set(chosen["asset_id"] + "/" + chosen["option_id"])))]
+    simulated = len(mc)
+    mc_note = (f"{simulated} of the {len(chosen)} recommended project(s) were simulated: the Monte Carlo draws hours, load, "
+               "prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget are not simulated.")
+    mc_rows = [row([cell(r.project_id, "id"), num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
+                    num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
+                    num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
+
+    budgets = tuple(a.budget_per_yr)
+    plan_rows = []
+    years = sorted(set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int)) | set(range(len(budgets))))
+    for year in years:
+        e = result.plan[result.plan["start_yr"].astype(int) == year]
+        g = result.plan_greedy[result.plan_greedy["start_yr"].astype(int) == year]
+        plan_rows.append(row([cell(year, "num"), num(budgets[year]) if year < len(budgets) else cell("no limit", "num na"),
+                              num(float(e["capital"].sum())), cell(len(e), "num"), num(float(e["npv_at_plan_start"].sum())),
+                              num(float(g["capital"].sum())), cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))
+    comp = result.plan_comparison
+    plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
+                 f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
+                 f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
+                 f"this pack covers {len(scope.asset_ids)} asset(s).")
+
+    register = content.risk_register(case, result, scope)
+    register_rows = [row([cell(r.category), cell(r.item), cell(r.detail), cell(r.assets, "small"), cell(r.response, "small")])
+                     for r in register.itertuples(index=False)]
+    finance_rows = []
+    for item in content.finance_rows(a):
+        value = item["value"]
+        if isinstance(value, float) and math.isinf(value):
+            value = "no cap"
+        elif isinstance(value, tuple):
+            value = ", ".join(f"{v:,.0f}" for v in value) or "no limit"
+        finance_rows.append(row([cell(item["key"]), cell(value), cell(item["unit"]), cell(item["meaning"]),
+                                 cell("same as the program default" if item["program_default"] else "differs from the program default",
+                                      "small")]))
+
+    mv = content.mv_plan(result, chosen)
+    mv_protocol_rows = []
+    for (option, weeks, measure), grp in mv.groupby(["ipmvp_option", "duration_weeks", "measure"], sort=True):
+        projects = [f"{a_} / {o_}" for a_, o_ in zip(grp["asset_id"], grp["option_id"])]
+        mv_protocol_rows.append(row([cell(f"Option {option}"), cell(f"{weeks} weeks before and {weeks} after"), cell(measure),
+                                     cell(content.asset_list_text(projects, 12), "small")]))
+    mv_rows = [row([cell(f"{r.asset_id} / {r.option_id}", "id"), cell(f"{r.ipmvp_option}, {r.duration_weeks} wk"),
+                    num(r.baseline_energy_kwh_per_yr), num(r.baseline_mean_p_kw, "{:,.1f}"),
+                    num(r.baseline_power_factor, "{:.2f}"), num(r.baseline_speed_rpm, "{:,.0f}"), num(r.running_h_per_yr),
+                    num(r.expected_energy_kwh_per_yr), num(r.expected_mean_p_kw, "{:,.1f}"), num(r.expected_power_factor, "{:.2f}"),
+                    num(r.expected_speed_rpm, "{:,.0f}")]) for r in mv.itertuples(index=False)]
+    mv_text = ("Log each recommended project before and after the change with the same instruments and at the same "
+               "production: IPMVP Option A (key parameter measured: kW and PF, hours logged) for a like-for-like swap at "
+               "unchanged duty, two weeks each side; Option B (all parameters metered) for a change in speed control, a "
+               "full duty cycle of about four weeks each side. Compare with the modelled baselines below; a measured "
+               "baseline more than about 10 % away from the model calls for a re-run before the purchase order.")
+
+    em_rows = [row([cell(f"{r.asset_id} / {r.option_id}"), num(r.energy_saved_kwh_per_yr), num(r.co2_avoided_t_per_yr, "{:,.2f}"),
+                    num(r.abatement_cost_per_t, "{:,.0f}", signed=False)]) for r in chosen.itertuples(index=False)]
+    em_rows.append(row([cell("Total"), num(h.energy_saved_kwh_per_yr), num(h.co2_t_per_yr, "{:,.2f}"), cell("")], pick=True))
+    emissions_text = (f"CO2 avoided in the first year at a grid emission factor of {a.grid_co2_kg_per_kwh:g} kg CO2 per kWh "
+                      f"(the case's base-year factor, declining {a.grid_co2_decline_frac:.1%} a year; state whether it is "
+                      f"location- or market-based and average or marginal). Tonnes = kWh saved x factor / 1000; only "
+                      f"electricity saved at the meter counts. Total: {h.co2_t_per_yr:,.1f} t CO2 per year.")
+
+    appendix = []
+    for asset_id in scope.asset_ids:
+        frame = res[(res["asset_id"] == asset_id) & (res["option_id"] != keep_ids[asset_id])]
+        appendix.append({"title": f"{asset_id}: {assets.loc[asset_id, 'description'] or ''}",
+                         "rows": _option_rows(frame, cur, horizon, rec_keys)})
+
+    figs = {
+        "waterfall": chart(figures.savings_waterfall(chosen, cur), "waterfall"),
+        "by_project": chart(figures.savings_by_project(chosen, cur), "by-project"),
+        "cumulative": chart(figures.cumulative_cash_flow(flows, cur), "cumulative"),
+        "tornado": chart(figures.tornado(result.tornado, cur), "tornado"),
+        "monte_carlo": chart(figures.monte_carlo(mc, cur), "monte-carlo"),
+        "plan": chart(figures.plan_by_year(result.plan, result.plan_greedy, budgets, cur), "plan"),
+        "bills": chart(figures.bills_before_after(result.bills, cur), "bills"),
+    }
+    scope_text = {"plan": f"the exact fleet plan ({len(scope.projects)} project(s) on {len(scope.asset_ids)} asset(s))",
+                  "assets": f"{len(scope.asset_ids)} requested asset(s), every option compared",
+                  "plan and assets": f"the exact fleet plan and {len(scope.asset_ids)} asset(s)"}[scope.mode]
+    return {
+        "case_name": s.name, "description": getattr(s, "description", "") or "", "invented": bool(s.invented),
+        "currency": cur, "scope_text": scope_text, "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})",
+        "horizon": horizon, "sections": SECTIONS, "cards": cards, "summary_text": summary,
+        "decision_headers": ["Asset", "Description", "Recommended", "Plan year", "Capital", "Saving/yr", "NPV", "Payback",
+                             "CO2 t/yr", "Why"],
+        "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
+        "asset_headers": ["Asset", "Description", "Site", "Application", "kW", "Poles", "Class", "Installed", "Rewinds",
+                          "Control", "Criticality", "Data quality"],
+        "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),
+        "matrix_headers": ["Asset"] + option_ids, "matrix_rows": matrix_rows,
+        "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
+        "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
+        "flow_numeric": (0, 1, 2, 3, 4),
+        "mc_headers": ["Project", "NPV P10", "NPV P50", "NPV P90", "P(NPV > 0)", "Payback P10", "P50", "P90 [yr]"],
+        "mc_rows": mc_rows, "mc_note": mc_note, "mc_numeric": (1, 2, 3, 4, 5, 6, 7),
+        "plan_headers": ["Plan year", "Budget", "Exact: capital", "projects", "NPV at plan start", "Rank-order: capital",
+                         "projects", "NPV at plan start"],
+        "plan_rows": plan_rows, "plan_numeric": tuple(range(8)), "plan_note": plan_note,
+        "register_headers": ["Category", "Item", "Detail", "Assets", "Response"], "register_rows": register_rows,
+        "finance_headers": ["Assumption", "Value", "Unit", "Meaning", "Source"], "finance_rows": finance_rows,
+        "mv_text": mv_text,
+        "mv_protocol_headers": ["IPMVP", "Logging", "What to measure", "Projects"], "mv_protocol_rows": mv_protocol_rows,
+        "mv_headers": ["Project", "IPMVP", "Baseline kWh/yr", "Baseline mean kW", "Baseline PF", "Baseline rpm",
+                       "Running h/yr", "Expected kWh/yr", "Expected mean kW", "Expected PF", "Expected rpm"],
+        "mv_rows": mv_rows, "mv_numeric": tuple(range(2, 11)),
+        "emissions_text": emissions_text,
+        "emission_headers": ["Project", "Energy saved kWh/yr", "CO2 avoided t/yr", f"Abatement cost {cur}/t"],
+        "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
+        "cautions": list(content.CAUTIONS),
+        "appendix": appendix,
+        "appendix_headers": ["Option", "Label", "Capital", "Saving/yr", "NPV", "IRR", "Payback", "CO2 t/yr", "Flags"],
+        "appendix_numeric": (2, 3, 4, 5, 6, 7),
+        "files": files, "figures": figs,
+    }
+
+
+def render_report(case, result, scope: content.Scope, files: list[str] | None = None) -> str:
+    """Render the capital-request report.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    result : models.scenario.ScenarioResult
+    scope : models.pack.content.Scope
+    files : list of str, optional
+        Names of the pack's other files, listed in the appendix.
+
+    Returns
+    -------
+    str
+        A complete HTML document with plotly.js inlined once; it loads nothing from the network.
+    """
+    values = report_context(case, result, scope, list(files or []))
+    return templates.render(templates.REPORT, css=Markup(templates.BASE_CSS), plotlyjs=Markup(get_plotlyjs()), **values)

@@ -1,0 +1,676 @@
+"""The capital-request workbook: assumptions, options compared, cash flows with live formulas, plan, bills.
+
+:func:`build_workbook` returns the bytes of an .xlsx file (openpyxl). Each project in scope gets a block on
+the "Cash flows" sheet: its yearly flows by component as the engine computed them, a net row that adds
+them up with ``SUM``, cumulative and discounted rows, and live formulas for NPV, IRR and the simple and
+discounted paybacks that reference the discount rate on the "Assumptions" sheet. The engine's own
+figures sit beside each formula, and the "Checks" sheet compares the two, so a reviewer can audit every
+number in a spreadsheet program without this tool (docs/pack.md explains the formulas).
+
+Every text cell goes through :func:`put_text`, the one guard against formula injection: text is stored
+as a string (never as a formula, whatever its first character) and text starting with ``=``, ``+``,
+``-`` or ``@`` carries the quote-prefix style, so a spreadsheet keeps it as text even when edited.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE, Cell
+from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.utils import get_column_letter
+from openpyxl.worksheet.worksheet import Worksheet
+
+from models.exports import FORMULA_STARTS
+from models.pack import content
+
+#: Sheet names, in workbook order.
+SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills",
+                           "Data quality", "End of life", "Risk")
+#: Longest text a spreadsheet cell holds [characters].
+MAX_CELL_TEXT = 32_767
+#: Relative tolerance of the "Checks" sheet: workbook formula vs engine (0.01 %).
+CHECK_REL_TOL = 1e-4
+
+_BOLD = Font(bold=True)
+_TITLE = Font(bold=True, size=14)
+_HEADER_FILL = PatternFill("solid", fgColor="DDE4EE")
+_BLOCK_FILL = PatternFill("solid", fgColor="F2F2F2")
+
+
+# ---------------------------------------------------------------------------------------------------
+# Cell writers: the only places that put values into the workbook
+# ---------------------------------------------------------------------------------------------------
+def put_text(ws: Worksheet, row: int, col: int, value: str) -> Cell:
+    """Write text that can never become a formula.
+
+    Parameters
+    ----------
+    ws : openpyxl.worksheet.worksheet.Worksheet
+    row, col : int
+        1-based cell position.
+    value : str
+        Any text (user input included).
+
+    Returns
+    -------
+    openpyxl.cell.cell.Cell
+
+    Notes
+    -----
+    openpyxl stores a string starting with "=" as a formula unless told otherwise, so the data type is
+    forced to string after assignment. Control characters that XML cannot hold are dropped and the text
+    is cut to the cell limit.
+    """
+    text = ILLEGAL_CHARACTERS_RE.sub("", str(value))[:MAX_CELL_TEXT]
+    cell = ws.cell(row=row, column=col)
+    cell.value = text
+    cell.data_type = "s"
+    if text.startswith(FORMULA_STARTS):
+        cell.quotePrefix = True
+    return cell
+
+
+def put(ws: Worksheet, row: int, col: int, value: Any, number_format: str | None = None) -> Cell:
+    """Write a value: text through :func:`put_text`, numbers as numbers, missing or infinite as blank."""
+    if isinstance(value, str):
+        return put_text(ws, row, col, value)
+    cell = ws.cell(row=row, column=col)
+    if value is None or value is pd.NA:
+        return cell
+    if isinstance(value, (bool, np.bool_)):
+        cell.value = bool(value)
+        return cell
+    if isinstance(value, (int, np.integer)):
+        cell.value = int(value)
+    elif isinstance(value, (float, np.floating)):
+        if not math.isfinite(float(value)):
+            return cell
+        cell.value = float(value)
+    else:
+        return put_text(ws, row, col, str(value))
+    if number_format:
+        cell.number_format = number_format
+    return cell
+
+
+def put_formula(ws: Worksheet, row: int, col: int, expression: str, number_format: str | None = None) -> Cell:
+    """Write a spreadsheet formula built by this module (never from user text)."""
+    if not expression.startswith("="):
+        raise ValueError(f"a formula starts with '=': {expression!r}")
+    cell = ws.cell(row=row, column=col)
+    cell.value = expression
+    if number_format:
+        cell.number_format = number_format
+    return cell
+
+
+def _ref(col: int, row: int, absolute: bool = False) -> str:
+    letter = get_column_letter(col)
+    return f"${letter}${row}" if absolute else f"{letter}{row}"
+
+
+def _sheet_ref(sheet: str, col: int, row: int) -> str:
+    return f"'{sheet}'!{_ref(col, row, absolute=True)}"
+
+
+class _Formats:
+    """Number formats carrying the case currency."""
+
+    def __init__(self, currency: str):
+        code = re.sub(r"[^A-Za-z]", "", currency)[:8] or "CUR"
+        self.money = f'#,##0 "{code}";-#,##0 "{code}"'
+        self.money2 = f'#,##0.00 "{code}";-#,##0.00 "{code}"'
+        self.frac = "0.0%"
+        self.years = "0.00"
+        self.number = "#,##0.00"
+        self.whole = "#,##0"
+        self.factor = "0.000000"
+
+
+def _title(ws: Worksheet, text: str, row: int = 1) -> None:
+    put_text(ws, row, 1, text).font = _TITLE
+
+
+def _header(ws: Worksheet, row: int, labels: list[str], col: int = 1) -> None:
+    for k, label in enumerate(labels):
+        cell = put_text(ws, row, col + k, label)
+        cell.font = _BOLD
+        cell.fill = _HEADER_FILL
+        cell.alignment = Alignment(wrap_text=True, vertical="top")
+
+
+def _table(ws: Worksheet, top: int, frame: pd.DataFrame, columns: list[tuple[str, str, str | None]]) -> int:
+    """Write a header and rows of ``frame``; columns are (frame column, header, number format). Return next free row."""
+    _header(ws, top, [h for _, h, _ in columns])
+    row = top + 1
+    for values in frame.to_dict("records"):
+        for k, (name, _, fmt) in enumerate(columns):
+            put(ws, row, k + 1, values.get(name), fmt)
+        row += 1
+    if frame.empty:
+        put_text(ws, row, 1, "(none)")
+        row += 1
+    return row + 1
+
+
+def _widths(ws: Worksheet, widths: dict[int, float]) -> None:
+    for col, width in widths.items():
+        ws.column_dimensions[get_column_letter(col)].width = width
+
+
+# ---------------------------------------------------------------------------------------------------
+# Sheets
+# ---------------------------------------------------------------------------------------------------
+def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
+    """Write the assumptions sheet; return references to the cells formulas use."""
+    _title(ws, "Assumptions")
+    refs: dict[str, str] = {}
+    s = case.settings
+    op = result.physics.operation
+    row = 3
+    _header(ws, row, ["Case setting", "Value"])
+    settings = [("name", s.name), ("description", getattr(s, "description", "") or ""), ("currency", s.currency),
+                ("power unit shown", s.power_unit), ("time zone", s.time_zone), ("region (efficiency rules)", s.region),
+                ("invented demo data", "yes" if s.invented else "no"),
+                ("analysis year", int(op.index[len(op.index) // 2].year)), ("interval [h]", float(op.interval_h)),
+                ("assets in the case", len(case.assets)), ("options in the catalogue", len(case.options))]
+    for k, (label, value) in enumerate(settings):
+        put_text(ws, row + 1 + k, 1, label)
+        put(ws, row + 1 + k, 2, value)
+    row += len(settings) + 2
+
+    _header(ws, row, ["Finance assumption", "Value", "Unit", "Meaning", "Program default?"])
+    row += 1
+    for item in content.finance_rows(result.assumptions):
+        key, value = item["key"], item["value"]
+        if key == "budget_per_yr":
+            budgets = list(value)
+            if not budgets:
+                put_text(ws, row, 1, "budget_per_yr")
+                put_text(ws, row, 2, "no limit")
+                put_text(ws, row, 3, item["unit"])
+                put_text(ws, row, 4, item["meaning"])
+                put_text(ws, row, 5, "yes" if item["program_default"] else "no")
+                row += 1
+            for year, budget in enumerate(budgets):
+                put_text(ws, row, 1, f"budget_per_yr, plan year {year}")
+                put(ws, row, 2, float(budget), f.money)
+                put_text(ws, row, 3, item["unit"])
+                put_text(ws, row, 4, item["meaning"])
+                put_text(ws, row, 5, "no")
+                refs[f"budget_{year}"] = _sheet_ref("Assumptions", 2, row)
+                row += 1
+            continue
+        put_text(ws, row, 1, key)
+        if isinstance(value, float) and math.isinf(value):
+            put_text(ws, row, 2, "no cap")
+        else:
+            fmt = f.frac if key.endswith("_frac") else None
+            put(ws, row, 2, value, fmt)
+        put_text(ws, row, 3, item["unit"])
+        put_text(ws, row, 4, item["meaning"])
+        put_text(ws, row, 5, "yes" if item["program_default"] else "no")
+        refs[key] = _sheet_ref("Assumptions", 2, row)
+        row += 1
+    row += 1
+
+    put_text(ws, row, 1, "Options catalogue (capital = coefficient x rated kW ^ exponent, then the fractions)").font = _BOLD
+    row += 1
+    options = case.options.copy()
+    row = _table(ws, row, options, [(c, c, None) for c in options.columns])
+
+    put_text(ws, row, 1, "Cautions").font = _BOLD
+    row += 1
+    for text in content.CAUTIONS:
+        put_text(ws, row, 1, text)
+        row += 1
+    _widths(ws, {1: 34, 2: 22, 3: 14, 4: 50, 5: 16})
+    return refs
+
+
+_RESULT_COLUMNS = [
+    ("asset_id", "Asset", None), ("option_id", "Option", None), ("label", "Option label", None),
+    ("technology", "Technology", None), ("recommended", "Recommended", None), ("in_plan", "In the exact plan", None),
+    ("rated_p_kw", "Rated [kW]", "number"), ("running_h_per_yr", "Running [h/yr]", "whole"),
+    ("energy_kwh_per_yr", "Energy [kWh/yr]", "whole"), ("energy_saved_kwh_per_yr", "Energy saved [kWh/yr]", "whole"),
+    ("mean_speed_rpm", "Mean speed [rpm]", "whole"),
+    ("saving_energy_per_yr", "Saving: energy [/yr]", "money"), ("saving_demand_per_yr", "Saving: demand [/yr]", "money"),
+    ("saving_reactive_per_yr", "Saving: reactive [/yr]", "money"), ("saving_fixed_per_yr", "Saving: fixed [/yr]", "money"),
+    ("saving_maintenance_per_yr", "Saving: maintenance [/yr]", "money"),
+    ("bill_saving_per_yr", "Bill saving [/yr]", "money"), ("capital", "Capital", "money"),
+    ("must_spend_capital", "Must-spend capital avoided", "money"), ("npv", "NPV", "money"),
+    ("irr_text", "IRR", "frac"), ("irr_status", "IRR status", None), ("mirr_frac", "MIRR", "frac"),
+    ("simple_payback_text", "Simple payback [yr]", "years"),
+    ("discounted_payback_text", "Discounted payback [yr]", "years"),
+    ("life_cycle_cost", "Life-cycle cost", "money"), ("profitability_index", "Profitability index [-]", "number"),
+    ("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", "number"), ("abatement_cost_per_t", "Abatement cost [/t]", "money"),
+    ("flags", "Flags", None),
+]
+
+
+def _engine_payback(value: float) -> Any:
+    return value if math.isfinite(value) else "not within horizon"
+
+
+def _engine_irr(value: float, status: str) -> Any:
+    return value if (status != "none" and math.isfinite(value)) else "none"
+
+
+def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
+    _title(ws, "Options compared, per asset in scope (one row per asset x option; money per year at base-year prices)")
+    res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))].copy()
+    order = {a: i for i, a in enumerate(scope.asset_ids)}
+    res = res.assign(_o=res["asset_id"].map(order)).sort_values("_o", kind="stable").drop(columns="_o")
+    rec = set(scope.recommended["asset_id"] + "/" + scope.recommended["option_id"])
+    plan = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
+    key = res["asset_id"] + "/" + res["option_id"]
+    res["recommended"] = key.isin(list(rec)).to_numpy()
+    res["in_plan"] = key.isin(list(plan)).to_numpy()
+    res["irr_text"] = [_engine_irr(v, s) for v, s in zip(res["irr_frac"], res["irr_status"])]
+    res["simple_payback_text"] = [_engine_payback(v) for v in res["simple_payback_yr"]]
+    res["discounted_payback_text"] = [_engine_payback(v) for v in res["discounted_payback_yr"]]
+    fmt = {"money": f.money, "frac": f.frac, "years": f.years, "number": f.number, "whole": f.whole, None: None}
+    cols = [(c, h, fmt[k]) for c, h, k in _RESULT_COLUMNS]
+    _table(ws, 3, res, cols)
+    ws.freeze_panes = "C4"
+    _widths(ws, {1: 12, 2: 12, 3: 34, 4: 16} | {k: 14 for k in range(5, len(cols) + 1)} | {len(cols): 60})
+
+
+def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats) -> list[dict]:
+    """Write one block per project; return the cells of its metrics for the checks sheet."""
+    _title(ws, "Yearly cash flows by component, with live formulas for NPV, IRR and paybacks")
+    put_text(ws, 2, 1, "Year 0 = investment, later flows at each year end; negative = money out. The discount rate "
+                       "is read from the Assumptions sheet. Project years count from the project's own start.")
+    rate = refs["discount_rate_frac"]
+    horizon = int(result.assumptions.horizon_yr)
+    first_col, last_col = 2, 2 + horizon
+    out = []
+    row = 4
+    for p in scope.projects.itertuples(index=False):
+        table = content.project_flow_table(result, p.asset_id, p.option_id)
+        title = f"{p.asset_id} / {p.option_id}: {p.label}"
+        if p.in_plan:
+            title += f" (exact plan, plan year {int(p.plan_start_yr)})"
+        cell = put_text(ws, row, 1, title)
+        cell.font = _BOLD
+        for col in range(1, last_col + 1):
+            ws.cell(row=row, column=col).fill = _BLOCK_FILL
+        year_row = row + 1
+        put_text(ws, year_row, 1, "Project year").font = _BOLD
+        for t in range(horizon + 1):
+            put(ws, year_row, first_col + t, t).font = _BOLD
+        comp_first = year_row + 1
+        r = comp_first
+        for component, values in table.iterrows():
+            put_text(ws, r, 1, content.COMPONENT_LABELS.get(str(component), str(component)))
+            for t in range(horizon + 1):
+                put(ws, r, first_col + t, float(values[t]), f.money2)
+            r += 1
+        comp_last = r - 1
+        net = r
+        cum, factor, disc, dcum, cross, dcross = net + 1, net + 2, net + 3, net + 4, net + 5, net + 6
+        labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
+                  disc: "Discounted net cash flow", dcum: "Cumulative discounted cash flow",
+                  cross: "Payback crossing, simple [yr]", dcross: "Payback crossing, discounted [yr]"}
+        for rr, label in labels.items():
+            put_text(ws, rr, 1, label).font = _BOLD if rr == net else Font()
+        for t in range(horizon + 1):
+            c = first_col + t
+            col = get_column_letter(c)
+            prev = get_column_letter(c - 1)
+            if comp_last >= comp_first:
+                put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2)
+            else:
+                put(ws, net, c, 0.0, f.money2)
+            put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2)
+            put_formula(ws, factor, c, f"=1/(1+{rate})^{col}${year_row}", f.factor)
+            put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2)
+            put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2)
+            for target, running, flow in ((cross, cum, net), (dcross, dcum, disc)):
+                if t == 0:
+                    expr = f'=IF({col}{running}>=0,0,"")'
+                else:
+                    expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
+                            f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
+                put_formula(ws, target, c, expr, f.years)
+        net_range = f"{_ref(first_col, net)}:{_ref(last_col, net)}"
+        later = f"{_ref(first_col + 1, net)}:{_ref(last_col, net)}"
+        m = dcross + 2
+        _header(ws, m, ["Metric", "Workbook formula", "Engine", "Difference"])
+        guess = m + 5
+        metrics = {
+            "npv": (m + 1, "NPV at the discount rate", f"={_ref(first_col, net)}+NPV({rate},{later})", float(p.npv), f.money2),
+            "irr": (m + 2, "IRR", f'=IFERROR(IRR({net_range},{_ref(2, guess)}),"none")',
+                    _engine_irr(float(p.irr_frac), str(p.irr_status)), f.frac),
+            "payback": (m + 3, "Simple payback [yr]",
+                        f'=IF(COUNT({_ref(first_col, cross)}:{_ref(last_col, cross)})=0,"not within horizon",'
+                        f'MIN({_ref(first_col, cross)}:{_ref(last_col, cross)}))',
+                        _engine_payback(float(p.simple_payback_yr)), f.years),
+            "discounted_payback": (m + 4, "Discounted payback [yr]",
+                                   f'=IF(COUNT({_ref(first_col, dcross)}:{_ref(last_col, dcross)})=0,"not within horizon",'
+                                   f'MIN({_ref(first_col, dcross)}:{_ref(last_col, dcross)}))',
+                                   _engine_payback(float(p.discounted_payback_yr)), f.years),
+        }
+        cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended)}
+        for name, (mr, label, expr, engine, fmt) in metrics.items():
+            put_text(ws, mr, 1, label)
+            put_formula(ws, mr, 2, expr, fmt)
+            put(ws, mr, 3, engine, fmt)
+            put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt)
+            cells[name] = _sheet_ref("Cash flows", 2, mr)
+            cells[f"{name}_engine"] = _sheet_ref("Cash flows", 3, mr)
+            cells[f"{name}_row"] = mr
+        put_text(ws, guess, 1, "IRR search start (year-1 flow / investment)")
+        put_formula(ws, guess, 2, f"=IF(AND({_ref(first_col, net)}<0,{_ref(first_col + 1, net)}>0),"
+                                  f"{_ref(first_col + 1, net)}/-{_ref(first_col, net)},0.1)", f.frac)
+        if str(p.irr_status) == "multiple":
+            put_text(ws, guess, 3, "the flows have several IRRs: the engine reports the one closest to 0")
+        out.append(cells)
+        row = guess + 3
+    ws.freeze_panes = "B4"
+    _widths(ws, {1: 42} | {c: 13 for c in range(first_col, last_col + 1)})
+    return out
+
+
+def _match(workbook: str, engine: str) -> str:
+    """Spreadsheet test: both numbers within the relative tolerance, or both the same text."""
+    return (f"IF(ISNUMBER({workbook}),IF(ISNUMBER({engine}),ABS({workbook}-{engine})<={CHECK_REL_TOL}*MAX(1,ABS({engine})),"
+            f"FALSE),{workbook}={engine})")
+
+
+def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
+    _title(ws, "Checks: the workbook's formulas against the engine's figures")
+    put_text(ws, 2, 1, f"OK when every formula matches the engine within {CHECK_REL_TOL:.2%} (relative, at least "
+                       "1 currency unit or 0.0001 yr); 'none' and 'not within horizon' must match as text.")
+    headers = ["Asset", "Option", "Label", "Recommended", "NPV (workbook)", "NPV (engine)", "IRR (workbook)",
+               "IRR (engine)", "Simple payback (workbook) [yr]", "Simple payback (engine) [yr]",
+               "Discounted payback (workbook) [yr]", "Discounted payback (engine) [yr]", "Status"]
+    _header(ws, 4, headers)
+    row = 5
+    for b in blocks:
+        put_text(ws, row, 1, b["asset_id"])
+        put_text(ws, row, 2, b["option_id"])
+        put_text(ws, row, 3, str(b["label"]))
+        put(ws, row, 4, b["recommended"])
+        pairs = []
+        for k, (name, fmt) in enumerate((("npv", f.money2), ("irr", f.frac), ("payback", f.years),
+                                         ("discounted_payback", f.years))):
+            c = 5 + 2 * k
+            put_formula(ws, row, c, f"={b[name]}", fmt)
+            put_formula(ws, row, c + 1, f"={b[name + '_engine']}", fmt)
+            pairs.append(_match(_ref(c, row), _ref(c + 1, row)))
+        put_formula(ws, row, 13, f'=IF(AND({",".join(pairs)}),"OK","CHECK")')
+        row += 1
+    if not blocks:
+        put_text(ws, row, 1, "(no projects in scope)")
+    ws.freeze_panes = "C5"
+    _widths(ws, {1: 12, 2: 12, 3: 34} | {c: 15 for c in range(4, 14)})
+
+
+def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats) -> None:
+    _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
+    rate = refs["discount_rate_frac"]
+    in_scope = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
+    row = 3
+    ranges = {}
+    for name, frame in (("Exact plan", result.plan), ("Rank-order plan", result.plan_greedy)):
+        put_text(ws, row, 1, name).font = _BOLD
+        row += 1
+        _header(ws, row, ["Plan year", "Asset", "Option", "Label", "Capital", "NPV at its own start",
+                          "NPV at plan start (engine)", "NPV at plan start (formula)", "In this pack"])
+        first = row + 1
+        labels = result.results.set_index(["asset_id", "option_id"])["label"]
+        for r in frame.sort_values(["start_yr", "asset_id"], kind="stable").itertuples(index=False):
+            row += 1
+            put(ws, row, 1, int(r.start_yr))
+            put_text(ws, row, 2, r.asset_id)
+            put_text(ws, row, 3, r.option_id)
+            put_text(ws, row, 4, str(labels.get((r.asset_id, r.option_id), "")))
+            put(ws, row, 5, float(r.capital), f.money)
+            put(ws, row, 6, float(r.npv), f.money)
+            put(ws, row, 7, float(r.npv_at_plan_start), f.money)
+            put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money)
+            put_text(ws, row, 9, "yes" if f"{r.asset_id}/{r.option_id}" in in_scope else "no")
+        last = max(row, first)
+        ranges[name] = (first, last)
+        row += 2
+    years = sorted(set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int))
+                   | set(range(len(result.assumptions.budget_per_yr))))
+    put_text(ws, row, 1, "By plan year").font = _BOLD
+    row += 1
+    _header(ws, row, ["Plan year", "Budget", "Exact: capital", "Exact: projects", "Exact: NPV at plan start",
+                      "Rank-order: capital", "Rank-order: projects", "Rank-order: NPV at plan start",
+                      "Exact: budget left"])
+    top = row + 1
+    for year in years:
+        row += 1
+        put(ws, row, 1, int(year))
+        budget = refs.get(f"budget_{year}")
+        if budget:
+            put_formula(ws, row, 2, f"={budget}", f.money)
+        else:
+            put_text(ws, row, 2, "no limit")
+        for k, name in enumerate(("Exact plan", "Rank-order plan")):
+            a, b = ranges[name]
+            base = 3 + 3 * k
+            put_formula(ws, row, base, f"=SUMIF($A${a}:$A${b},A{row},$E${a}:$E${b})", f.money)
+            put_formula(ws, row, base + 1, f"=COUNTIF($A${a}:$A${b},A{row})")
+            put_formula(ws, row, base + 2, f"=SUMIF($A${a}:$A${b},A{row},$H${a}:$H${b})", f.money)
+        put_formula(ws, row, 9, f'=IF(ISNUMBER(B{row}),B{row}-C{row},"")', f.money)
+    if years:
+        row += 1
+        put_text(ws, row, 1, "Total").font = _BOLD
+        for c in (3, 4, 5, 6, 7, 8):
+            col = get_column_letter(c)
+            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.whole if c in (4, 7) else f.money)
+    row += 2
+    put_text(ws, row, 1, "Exact vs rank-order (engine)").font = _BOLD
+    for k, (key, value) in enumerate(result.plan_comparison.items()):
+        put_text(ws, row + 1 + k, 1, str(key))
+        put(ws, row + 1 + k, 2, float(value), f.frac if str(key).endswith("_frac") else f.money)
+    ws.freeze_panes = "A3"
+    _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
+
+
+def _bills(ws: Worksheet, result, f: _Formats) -> None:
+    _title(ws, "Monthly bills before (today's fleet) and after (the exact fleet plan in place)")
+    put_text(ws, 2, 1, "'After' prices the whole exact plan, whatever the scope of this pack.")
+    bills = result.bills
+    row = 4
+    _header(ws, row, ["Site", "Month", "Before", "After", "Saving"])
+    top = row + 1
+    if not bills.empty:
+        pivot = bills.pivot_table(index=["site_id", "month"], columns="scenario", values="amount", aggfunc="sum",
+                                  sort=True).reset_index()
+        for r in pivot.itertuples(index=False):
+            row += 1
+            put_text(ws, row, 1, str(r.site_id))
+            put_text(ws, row, 2, str(r.month))
+            put(ws, row, 3, float(getattr(r, "baseline", 0.0)), f.money)
+            put(ws, row, 4, float(getattr(r, "plan", 0.0)), f.money)
+            put_formula(ws, row, 5, f"=C{row}-D{row}", f.money)
+        row += 1
+        put_text(ws, row, 1, "Total").font = _BOLD
+        for c in (3, 4, 5):
+            col = get_column_letter(c)
+            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.money)
+    row += 3
+    put_text(ws, row, 1, "Bill line items").font = _BOLD
+    cols = [("site_id", "Site", None), ("month", "Month", None), ("scenario", "Scenario", None),
+            ("line_item", "Line item", None), ("quantity", "Quantity", f.number), ("unit", "Unit", None),
+            ("rate", "Rate", "0.0000"), ("amount", "Amount", f.money2)]
+    frame = bills.assign(scenario=bills["scenario"].map({"baseline": "before", "plan": "after"})) if not bills.empty else bills
+    _table(ws, row + 1, frame, cols)
+    ws.freeze_panes = "A5"
+    _widths(ws, {1: 12, 2: 12, 3: 16, 4: 28, 5: 16, 6: 10, 7: 10, 8: 16})
+
+
+def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
+    _title(ws, "Data quality: defaulted inputs, model flags and input problems (assets in scope)")
+    assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
+    defaults = content.scope_defaults(case, scope.asset_ids)
+    counts = defaults.groupby("asset_id").size() if not defaults.empty else pd.Series(dtype=int)
+    assets = assets.assign(n_defaulted=assets["asset_id"].map(counts).fillna(0).astype(int))
+    row = 3
+    put_text(ws, row, 1, "Assets").font = _BOLD
+    row = _table(ws, row + 1, assets, [("asset_id", "Asset", None), ("description", "Description", None),
+                                       ("site_id", "Site", None), ("rated_p_kw", "Rated [kW]", "#,##0.00"),
+                                       ("data_quality_pct", "Data quality [%]", "0"),
+                                       ("n_defaulted", "Defaulted fields", "0")])
+    put_text(ws, row, 1, "Every defaulted input").font = _BOLD
+    row = _table(ws, row + 1, defaults.astype({"value": str}) if not defaults.empty else defaults,
+                 [("asset_id", "Asset", None), ("column", "Field", None), ("value", "Value used", None),
+                  ("basis", "Basis", None)])
+    put_text(ws, row, 1, "Flags raised by the machine models").font = _BOLD
+    row = _table(ws, row + 1, content.scope_flags(result, scope.asset_ids),
+                 [("asset_id", "Asset", None), ("option_id", "Option (blank = the asset)", None), ("flag", "Flag", None)])
+    put_text(ws, row, 1, "Problems found in the case files").font = _BOLD
+    problems = pd.DataFrame([{"severity": p.severity, "file": p.file, "row": p.row, "column": p.column or "",
+                              "value": "" if p.value is None else str(p.value), "rule": p.rule, "hint": p.hint}
+                             for p in (case.problems or [])],
+                            columns=["severity", "file", "row", "column", "value", "rule", "hint"])
+    _table(ws, row + 1, problems, [(c, c.capitalize(), None) for c in problems.columns])
+    _widths(ws, {1: 14, 2: 34, 3: 24, 4: 60, 5: 16, 6: 50, 7: 40})
+
+
+def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
+    _title(ws, "End of life: expected present cost of replace now, replace at failure and rewind at failure")
+    eol = result.end_of_life
+    row = 3
+    if eol.empty:
+        put_text(ws, row, 1, "Not available: the options catalogue needs a rewind and a new induction motor option.")
+        row += 2
+    else:
+        frame = eol[eol["asset_id"].isin(list(scope.asset_ids))]
+        cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None),
+                ("failure_probability_in_horizon_frac", "Failure probability in horizon", f.frac),
+                ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
+                ("cost_replace_now", "Replace now", f.money), ("cost_replace_at_failure", "Replace at failure", f.money),
+                ("cost_rewind_at_failure", "Rewind at failure", f.money), ("best_strategy", "Cheapest", None),
+                ("advantage_over_next", "Advantage over the next", f.money)]
+        row = _table(ws, row, frame, cols)
+    put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
+    rules = result.fleet_rules
+    _table(ws, row + 1, rules, [(c, c, None) for c in rules.columns])
+    _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18})
+
+
+def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
+    _title(ws, "Sensitivity, Monte Carlo and the risks and assumptions register")
+    row = 3
+    put_text(ws, row, 1, "One-at-a-time sensitivity of the fleet NPV of each asset's best option").font = _BOLD
+    cols = [("variable", "Variable", None), ("low_value", "Low", f.number), ("high_value", "High", f.number),
+            ("npv_at_low", "NPV at low", f.money), ("npv_at_high", "NPV at high", f.money),
+            ("base_npv", "Base NPV", f.money), ("swing", "Swing", f.money)]
+    row = _table(ws, row + 1, result.tornado, cols)
+    put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
+    mc = result.risk
+    if not mc.empty and "project_id" in mc:
+        keys = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
+        mc = mc[mc["project_id"].isin(list(keys))]
+    cols = [("project_id", "Project", None), ("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
+            ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
+            ("payback_p10_yr", "Payback P10 [yr]", f.years), ("payback_p50_yr", "Payback P50 [yr]", f.years),
+            ("payback_p90_yr", "Payback P90 [yr]", f.years),
+            ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)]
+    row = _table(ws, row + 1, mc, cols)
+    put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD
+    register = content.risk_register(case, result, scope)
+    _table(ws, row + 1, register, [("category", "Category", None), ("item", "Item", None), ("detail", "Detail", None),
+                                   ("assets", "Assets", None), ("response", "Response", None)])
+    _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18})
+
+
+def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
+    s = case.settings
+    h = content.headline(result, scope)
+    cur = s.currency
+    _title(ws, f"Capital request workbook: {s.name}")
+    lines = [
+        f"Scope: {scope.mode}; {len(scope.asset_ids)} asset(s), {len(scope.projects)} project(s) with workbook formulas, "
+        f"{h.n_projects} recommended.",
+        f"Recommended projects: capital {content.money(h.capital, cur)}, yearly saving {content.money(h.yearly_saving, cur)}, "
+        f"NPV at plan start {content.money(h.npv, cur)}, payback {content.years_text(h.payback_yr, result.assumptions.horizon_yr)}, "
+        f"CO2 avoided {h.co2_t_per_yr:,.1f} t/yr.",
+        "All amounts in " + cur + "; discount rate, horizon and escalation on the Assumptions sheet.",
+    ]
+    if s.invented:
+        lines.insert(0, "INVENTED DEMO DATA: every name and number in this case is made up.")
+    row = 3
+    for text in lines:
+        put_text(ws, row, 1, text)
+        row += 1
+    row += 1
+    put_text(ws, row, 1, "Sheets").font = _BOLD
+    guide = {
+        "Assumptions": "case settings, every finance assumption, the options catalogue, cautions",
+        "Results": "every option of every asset in scope, compared (savings by component, capital, NPV, IRR, paybacks, CO2)",
+        "Cash flows": "per project: yearly flows by component and live formulas for NPV, IRR and paybacks",
+        "Checks": "each formula's value beside the engine's, with an OK/CHECK status",
+        "Plan": "exact and rank-order fleet plans, capital per plan year against the budget",
+        "Bills": "monthly bills before and after the plan, with line items",
+        "Data quality": "defaulted inputs, model flags and input problems",
+        "End of life": "replace now vs at failure vs rewind, and the repair-or-replace policy",
+        "Risk": "tornado, Monte Carlo and the risks and assumptions register",
+    }
+    for k, (sheet, text) in enumerate(guide.items()):
+        put_text(ws, row + 1 + k, 1, sheet)
+        put_text(ws, row + 1 + k, 2, text)
+    row += len(guide) + 2
+    put_text(ws, row, 1, "How to audit").font = _BOLD
+    audit = [
+        "1. On 'Cash flows', each net row is =SUM of the component rows above it; the components are the engine's flows.",
+        "2. NPV = year-0 flow + NPV(rate, years 1..N): spreadsheet NPV discounts its first value, so year 0 stays outside.",
+        "3. IRR = IRR(years 0..N); simple payback = first year the cumulative row turns >= 0, interpolated inside that year.",
+        "4. Change the discount rate on 'Assumptions' and every NPV and discounted payback recalculates.",
+        "5. 'Checks' shows OK when every formula matches the engine within 0.01 %.",
+    ]
+    for k, text in enumerate(audit):
+        put_text(ws, row + 1 + k, 1, text)
+    row += len(audit) + 2
+    put_text(ws, row, 1, "Cautions").font = _BOLD
+    for k, text in enumerate(content.CAUTIONS):
+        put_text(ws, row + 1 + k, 1, text)
+    _widths(ws, {1: 28, 2: 100})
+
+
+def build_workbook(case, result, scope: content.Scope) -> bytes:
+    """Build the capital-request workbook.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    result : models.scenario.ScenarioResult
+    scope : models.pack.content.Scope
+        What the pack covers (see :func:`models.pack.content.select_scope`).
+
+    Returns
+    -------
+    bytes
+        The .xlsx file. Sheets: see :data:`SHEETS`.
+    """
+    f = _Formats(case.settings.currency)
+    book = Workbook()
+    sheets = {name: (book.active if k == 0 else book.create_sheet()) for k, name in enumerate(SHEETS)}
+    for name, ws in sheets.items():
+        ws.title = name
+    refs = _assumptions(sheets["Assumptions"], case, result, f)
+    _results(sheets["Results"], result, scope, f)
+    blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, f)
+    _checks(sheets["Checks"], blocks, f)
+    _plan(sheets["Plan"], result, scope, refs, f)
+    _bills(sheets["Bills"], result, f)
+    _data_quality(sheets["Data quality"], case, result, scope)
+    _end_of_life(sheets["End of life"], result, scope, f)
+    _risk(sheets["Risk"], case, result, scope, f)
+    _read_me(sheets["Read me"], case, result, scope, f)
+    buffer = io.BytesIO()
+    book.save(buffer)
+    return buffer.getvalue()
