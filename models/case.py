@@ -9,8 +9,10 @@ data-quality score. Input files are never written to.
 from __future__ import annotations
 
 import datetime as _dt
+import difflib
 import re
 import zoneinfo
+from functools import lru_cache
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -119,6 +121,15 @@ class Case:
 # ---------------------------------------------------------------------------------------------------
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
 _THOUSANDS = re.compile(r"^[-+]?\d{1,3}(,\d{3})+(\.\d+)?$")
+_DOT_THOUSANDS_DECIMAL_COMMA = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+,\d+$")
+#: Notes of :func:`_to_number` that describe a repair (a warning) rather than a failure (an error).
+REPAIR_NOTES = ("decimal comma read as a decimal point",
+                "decimal comma read as a decimal point and '.' as a thousands separator",
+                "a date was given; its year was used")
+#: Largest plausible line current of a motor [A], for the kW-versus-W check: P / (sqrt(3) V) above it
+#: means the rating or the voltage is off by a factor of 1000. Common practice: low-voltage motors are
+#: rarely built above about 1.5 MW (about 1,500 A at 690 V); 6,000 A leaves a wide margin.
+MAX_PLAUSIBLE_CURRENT_A = 6000.0
 
 
 def _blank(value: object) -> bool:
@@ -130,26 +141,61 @@ def _blank(value: object) -> bool:
     return isinstance(value, str) and not value.strip()
 
 
-def _to_number(value: object) -> tuple[float, str | None]:
-    """Parse one cell as a number; return (value, note) where note explains a repair or failure."""
+def _to_number(value: object, year: bool = False) -> tuple[float, str | None]:
+    """Parse one cell as a finite number; return (value, note) where note explains a repair or failure.
+
+    Parameters
+    ----------
+    value : object
+        Cell as read (text, number, date or blank).
+    year : bool
+        The column holds a year: a date cell gives its year (a flagged repair).
+
+    Returns
+    -------
+    number : float
+        The number, NaN when blank or unreadable.
+    note : str or None
+        None when read as is; one of :data:`REPAIR_NOTES` for a repair; otherwise why it failed.
+    """
     if _blank(value):
         return np.nan, None
     if isinstance(value, bool):
-        return np.nan, "not a number"
+        return np.nan, "true/false is not a number"
+    if isinstance(value, (_dt.date, _dt.time, np.datetime64)):
+        if year and isinstance(value, _dt.date):
+            return float(value.year), "a date was given; its year was used"
+        return np.nan, "a date or time, not a number: the spreadsheet cell is formatted as a date"
     if isinstance(value, (int, float, np.integer, np.floating)):
-        return float(value), None
-    text = str(value).strip().replace("\u00a0", "").replace(" ", "")
+        try:
+            number = float(value)
+        except OverflowError:
+            return np.nan, "not a finite number"
+        return (number, None) if np.isfinite(number) else (np.nan, "not a finite number")
+    text = str(value).strip().replace("\u00a0", "").replace("\u202f", "").replace(" ", "")
+    if text.upper() in io.SPREADSHEET_ERRORS:
+        return np.nan, f"the spreadsheet formula gave the error {text.upper()}"
     if text.endswith("%"):
         text = text[:-1]
     try:
-        return float(text), None
+        number = float(text)
     except ValueError:
-        pass
+        number = None
+    if number is not None:
+        return (number, None) if np.isfinite(number) else (np.nan, "not a finite number")
     if _THOUSANDS.match(text):
         return np.nan, "ambiguous: a comma as thousands separator or decimal mark"
     if _DECIMAL_COMMA.match(text):
         return float(text.replace(",", ".")), "decimal comma read as a decimal point"
+    if _DOT_THOUSANDS_DECIMAL_COMMA.match(text):
+        return (float(text.replace(".", "").replace(",", ".")),
+                "decimal comma read as a decimal point and '.' as a thousands separator")
     return np.nan, "not a number"
+
+
+def _plain(value: object) -> object:
+    """Return numpy scalars as Python numbers, so problem messages show ``7.5`` rather than a numpy repr."""
+    return value.item() if isinstance(value, np.generic) else value
 
 
 def _normalise_category(value: object) -> str:
@@ -172,19 +218,21 @@ class _TableChecker:
 
     def err(self, i: int | None, column: str | None, value: object, rule: str, hint: str = "") -> None:
         row = None if i is None else int(self.rows[i])
-        self.problems.append(error(self.raw.source, row, None if column is None else self.header(column), value, rule, hint))
+        self.problems.append(error(self.raw.source, row, None if column is None else self.header(column),
+                                   _plain(value), rule, hint))
 
     def warn(self, i: int | None, column: str | None, value: object, rule: str, hint: str = "") -> None:
         row = None if i is None else int(self.rows[i])
-        self.problems.append(warning(self.raw.source, row, None if column is None else self.header(column), value, rule, hint))
+        self.problems.append(warning(self.raw.source, row, None if column is None else self.header(column),
+                                     _plain(value), rule, hint))
 
     def run(self) -> pd.DataFrame:
         source = self.raw.frame
         known = set(self.schema.index)
-        for column in source.columns:
-            if column not in known:
-                self.warn(None, column, None, f"unknown column '{column}' was ignored",
-                          f"known columns: {', '.join(self.schema.index)}")
+        unknown = [c for c in source.columns if c not in known]
+        for column in unknown:
+            self.warn(None, column, None, f"unknown column '{column}' was ignored",
+                      f"known columns: {', '.join(self.schema.index)}")
         for name, spec in self.schema.iterrows():
             if name in source.columns:
                 self.frame[name] = self._typed(name, spec, source[name].tolist())
@@ -192,8 +240,7 @@ class _TableChecker:
                 self.frame[name] = self._empty(spec["dtype"])
             if spec["required"] == "yes":
                 if name not in source.columns:
-                    self.err(None, name, None, f"required column '{name}' is missing",
-                             f"add a column headed '{name}'")
+                    self.err(None, name, None, f"required column '{name}' is missing", _missing_column_hint(name, unknown))
                 else:
                     missing = self.frame[name].isna().to_numpy()
                     for i in np.flatnonzero(missing):
@@ -209,11 +256,14 @@ class _TableChecker:
         dtype = spec["dtype"]
         if dtype in ("float", "int"):
             numbers = np.empty(len(values))
+            is_year = name.startswith("year")
             for i, value in enumerate(values):
-                number, note = _to_number(value)
+                number, note = _to_number(value, year=is_year)
                 numbers[i] = number
-                if note == "decimal comma read as a decimal point":
-                    self.warn(i, name, value, note, "use a point as decimal mark to avoid this repair")
+                if note in REPAIR_NOTES:
+                    hint = ("format the cell as a number" if note.startswith("a date")
+                            else "use a point as decimal mark to avoid this repair")
+                    self.warn(i, name, value, note, hint)
                 elif note is not None:
                     self.err(i, name, value, f"'{name}' must be a number ({note})",
                              f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number")
@@ -278,9 +328,20 @@ class _TableChecker:
         return pd.Series(out_text, dtype=object)
 
 
+def _missing_column_hint(name: str, unknown: list[str]) -> str:
+    """Suggest which unrecognised header may be the missing column."""
+    candidates = {io.normalise_header(c): c for c in unknown if not str(c).startswith("(blank header")}
+    close = difflib.get_close_matches(io.normalise_header(name), list(candidates), n=1, cutoff=0.6)
+    if close:
+        return f"the column '{candidates[close[0]]}' was not recognised: if it is {name}, head it '{name}'"
+    return f"add a column headed '{name}'"
+
+
 def _range_hint(name: str, value: float) -> str:
     if name.endswith("_kw") and value > 1000:
         return "is this in W rather than kW? divide by 1000"
+    if name.endswith("_v_v") and 0 < value < 100:
+        return "is this in kV rather than V? multiply by 1000"
     if name.endswith("_pct") and 0 < value <= 1.25 and name != "rated_efficiency_pct":
         return "percent columns take 0-100; was a fraction entered?"
     if name.endswith("_pct") and value < 0:
@@ -293,9 +354,21 @@ def _range_hint(name: str, value: float) -> str:
 # ---------------------------------------------------------------------------------------------------
 # Settings
 # ---------------------------------------------------------------------------------------------------
+@lru_cache(maxsize=1)
+def _known_zones() -> frozenset[str]:
+    """IANA zone names of the installed time-zone database (never ``localtime``, which varies by machine)."""
+    return frozenset(zoneinfo.available_timezones()) - {"localtime", "Factory"}
+
+
 def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
-    data = raw.settings.get("case", {}) if isinstance(raw.settings, dict) else {}
     source = raw.settings_source
+    if not isinstance(raw.settings, dict):
+        raw.settings = {}
+    data = raw.settings.get("case", {})
+    if not isinstance(data, dict):
+        problems.append(error(source, None, "case", data, "'case' must be a table of settings",
+                              "write [case] on a line of its own, then one key = value per line"))
+        data = {}
     default_name = raw.path.stem if raw.kind == "workbook" else raw.path.name
     known = {"name", "description", "currency", "power_unit", "time_zone", "invented", "region"}
     for key in data:
@@ -303,7 +376,7 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
             problems.append(warning(source, None, key, data[key], f"unknown setting '{key}' was ignored",
                                     f"known settings: {', '.join(sorted(known))}"))
     for key in raw.settings:
-        if key != "case" and isinstance(raw.settings, dict):
+        if key != "case":
             problems.append(warning(source, None, key, None, f"unknown table [{key}] was ignored",
                                     "case.toml holds a [case] table only"))
     currency = str(data.get("currency", "EUR")).strip().upper()
@@ -320,7 +393,9 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
                                 "set time_zone to the site's IANA zone, e.g. Europe/Berlin"))
     try:
         zoneinfo.ZoneInfo(zone)
-    except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        if zone not in _known_zones() and zone != "UTC":
+            raise ValueError(zone)
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError, OSError, TypeError):
         problems.append(error(source, None, "time_zone", zone, "time_zone must be an IANA time-zone name",
                               "for example Europe/Berlin, America/Chicago, Asia/Kolkata"))
         zone = "UTC"
@@ -344,196 +419,299 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
 # ---------------------------------------------------------------------------------------------------
 # Profiles
 # ---------------------------------------------------------------------------------------------------
+#: Most problems of one kind reported per profile; the rest are counted in one summary line.
+MAX_LISTED = 20
+#: Spreadsheet date serials accepted from workbook cells: days since 1899-12-30 for the years
+#: 1954-2119 (the 1900 leap-year bug of the spreadsheet epoch only affects dates before March 1900).
+SERIAL_DAYS_RANGE = (20000.0, 80000.0)
+_SPREADSHEET_EPOCH = np.datetime64("1899-12-30T00:00:00", "us")
+_NAT = np.iinfo(np.int64).min
+
+
+def _listed(problems: list[Problem], items, make, summary) -> None:
+    """Append a problem for each of the first :data:`MAX_LISTED` items and one line for the rest."""
+    items = list(items)
+    for item in items[:MAX_LISTED]:
+        problems.append(make(item))
+    if len(items) > MAX_LISTED:
+        problems.append(summary(len(items) - MAX_LISTED))
+
+
+def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Return (codes, ids): an integer code per row (-1 when blank) and the ids in order of appearance."""
+    if column.dtype == object:
+        column = column.map(lambda v: None if _blank(v) else
+                            (str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()))
+    codes, uniques = pd.factorize(column, use_na_sentinel=True)
+    return np.asarray(codes), np.asarray(uniques, dtype=object)
+
+
+def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarray, header: str,
+                    problems: list[Problem]) -> np.ndarray:
+    """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired."""
+    numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
+    given = series.notna().to_numpy()
+    bad = np.flatnonzero(np.isnan(numeric) & given)
+    if len(bad):
+        cells = series.iloc[bad].map(lambda v: str(v).strip())
+        comma = cells.str.match(r"^[-+]?\d+,\d+$").to_numpy(dtype=bool)
+        if comma.any():
+            numeric[bad[comma]] = pd.to_numeric(cells[comma].str.replace(",", ".", regex=False)).to_numpy(dtype=float)
+            problems.append(warning(source, int(rows[bad[comma][0]]), header, None,
+                                    f"decimal commas were read as decimal points ({int(comma.sum())} cell(s))",
+                                    "use a point as decimal mark"))
+        _listed(problems, bad[~comma],
+                lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a number",
+                                "write a plain number; spreadsheet error values (#N/A, #DIV/0!) are not numbers"),
+                lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not numbers"))
+    infinite = np.flatnonzero(np.isinf(numeric))
+    _listed(problems, infinite,
+            lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a finite number"),
+            lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not finite"))
+    numeric[infinite] = np.nan
+    return numeric
+
+
 def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem]) -> tuple[dict[str, pd.Series], pd.DataFrame]:
     """Type and check long-format interval profiles; return series by id and a summary table."""
     info_columns = ["profile_id", "quantity", "resolution_min", "n_intervals", "start", "end", "coverage_days"]
-    if raw is None or raw.frame.empty:
-        return {}, pd.DataFrame(columns=info_columns)
+    empty_info = pd.DataFrame(columns=info_columns)
+    if raw is None or not raw.readable:
+        return {}, empty_info
     source = raw.source
     frame = raw.frame
+    if frame.empty:  # a header-only template: no profiles
+        return {}, empty_info
     rows = np.asarray(raw.rows, dtype=int)
     for column in ("profile_id", "timestamp"):
         if column not in frame.columns:
             problems.append(error(source, None, column, None, f"required column '{column}' is missing",
                                   "profiles are long tables: profile_id, timestamp, shaft_load_pct or input_kw"))
-            return {}, pd.DataFrame(columns=info_columns)
+            return {}, empty_info
     value_columns = [c for c in ("shaft_load_pct", "input_kw") if c in frame.columns]
     if not value_columns:
         problems.append(error(source, None, None, None, "no value column: give shaft_load_pct or input_kw",
                               "add a column headed shaft_load_pct (% of rated) or input_kw (measured)"))
-        return {}, pd.DataFrame(columns=info_columns)
-    header = raw.headers.get
-    ids = frame["profile_id"].astype(object).where(frame["profile_id"].notna(), None)
-    ids = ids.map(lambda v: None if _blank(v) else (str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()))
-    for i in np.flatnonzero(ids.isna().to_numpy()):
-        problems.append(error(source, int(rows[i]), header("profile_id", "profile_id"), None, "'profile_id' is required"))
-    values = {}
-    for column in value_columns:
-        series = frame[column]
-        numeric = pd.to_numeric(series, errors="coerce")
-        bad = numeric.isna() & series.notna()
-        if bad.any():
-            # second chance for decimal commas, cell by cell (rare path)
-            for i in np.flatnonzero(bad.to_numpy()):
-                number, note = _to_number(series.iloc[i])
-                if note == "decimal comma read as a decimal point":
-                    numeric.iloc[i] = number
-                else:
-                    problems.append(error(source, int(rows[i]), header(column, column), series.iloc[i],
-                                          f"'{column}' must be a number"))
-            if (numeric.notna() & bad).any():
-                problems.append(warning(source, None, header(column, column), None,
-                                        "decimal commas were read as decimal points", "use a point as decimal mark"))
-        values[column] = numeric.to_numpy(dtype=float)
-    # timestamps
-    stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp", "timestamp"), problems)
+        return {}, empty_info
+
+    def header(column: str) -> str:
+        return raw.headers.get(column, column)
+
+    codes, uniques = _profile_ids(frame["profile_id"])
+    _listed(problems, np.flatnonzero(codes < 0),
+            lambda i: error(source, int(rows[i]), header("profile_id"), None, "'profile_id' is required"),
+            lambda n: error(source, None, header("profile_id"), None, f"{n} more rows have no profile_id"))
+    values = {c: _profile_values(frame[c], c, source, rows, header(c), problems) for c in value_columns}
+    order = np.argsort(codes, kind="stable")
+    bounds = np.searchsorted(codes[order], np.arange(len(uniques) + 1))
+    groups = [order[bounds[k]:bounds[k + 1]] for k in range(len(uniques))]
+    stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
     profiles: dict[str, pd.Series] = {}
     info: list[dict] = []
-    ids_arr = ids.to_numpy(dtype=object)
-    for profile_id in pd.unique(ids_arr[pd.notna(ids_arr)]):
-        idx = np.flatnonzero(ids_arr == profile_id)
+    for profile_id, idx in zip(uniques, groups):
+        profile_id = str(profile_id)
         has = {c: np.isfinite(values[c][idx]) for c in value_columns}
         present = [c for c in value_columns if has[c].any()]
         if len(present) != 1:
             rule = ("profile has values in both shaft_load_pct and input_kw" if len(present) > 1
                     else "profile has no values")
-            problems.append(error(source, int(rows[idx[0]]), "profile_id", profile_id, rule,
+            problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id, rule,
                                   "each profile gives one quantity: shaft_load_pct or input_kw"))
             continue
         quantity = present[0]
+        qh = header(quantity)
         v = values[quantity][idx]
-        missing_value = np.flatnonzero(~np.isfinite(v))
-        for j in missing_value[:20]:
-            problems.append(error(source, int(rows[idx[j]]), header(quantity, quantity), None,
-                                  f"profile '{profile_id}' has a blank value", "fill the gap or delete the row"))
-        negative = np.flatnonzero(v < 0)
-        for j in negative[:20]:
-            problems.append(error(source, int(rows[idx[j]]), header(quantity, quantity), v[j], "values must not be negative"))
+        _listed(problems, np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy()),
+                lambda j: error(source, int(rows[idx[j]]), qh, None, f"profile '{profile_id}' has a blank value",
+                                "fill the gap or delete the row"),
+                lambda n: error(source, None, qh, None, f"{n} more blank values in '{profile_id}'"))
+        _listed(problems, np.flatnonzero(v < 0),
+                lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), "values must not be negative"),
+                lambda n: error(source, None, qh, None, f"{n} more negative values in '{profile_id}'"))
         if quantity == "shaft_load_pct":
-            over = np.flatnonzero(v > MAX_LOAD_PCT)
-            for j in over[:20]:
-                problems.append(error(source, int(rows[idx[j]]), header(quantity, quantity), v[j],
-                                      f"shaft load above {MAX_LOAD_PCT:.0f} % of rating",
-                                      "check the unit (percent of rated power) or the rated power of the motor"))
-            if len(over) > 20:
-                problems.append(error(source, None, header(quantity, quantity), None,
-                                      f"{len(over) - 20} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
+            _listed(problems, np.flatnonzero(v > MAX_LOAD_PCT),
+                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"shaft load above {MAX_LOAD_PCT:.0f} % of rating",
+                                    "check the unit (percent of rated power) or the rated power of the motor"),
+                    lambda n: error(source, None, qh, None,
+                                    f"{n} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
+            peak = np.nanmax(v) if np.isfinite(v).any() else np.nan
+            if 0 < peak <= 1.0:
+                problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
+                                        f"profile '{profile_id}' never exceeds {peak:g} % load",
+                                        "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
+        else:
+            limit = float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])
+            _listed(problems, np.flatnonzero(v > limit),
+                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"input above {limit:g} kW",
+                                    "is this in W rather than kW? divide by 1000"),
+                    lambda n: error(source, None, qh, None, f"{n} more intervals of '{profile_id}' above {limit:g} kW"))
         t = stamps[idx]
-        ok = ~pd.isna(t)
+        ok = ~t.isna()
         if not ok.any():
             continue
-        t_ok = pd.DatetimeIndex(t[ok])
+        t_ok = t[ok]
         v_ok = v[ok]
-        order = np.argsort(t_ok.asi8, kind="stable")
-        t_sorted = t_ok[order]
-        rows_sorted = rows[idx][ok][order]
+        order_t = np.argsort(t_ok.asi8, kind="stable")
+        t_sorted = t_ok[order_t]
+        rows_sorted = rows[idx][ok][order_t]
         dup = t_sorted.duplicated(keep="first")
-        for j in np.flatnonzero(dup)[:20]:
-            problems.append(error(source, int(rows_sorted[j]), header("timestamp", "timestamp"), str(t_sorted[j]),
-                                  f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"))
-        if dup.sum() > 20:
-            problems.append(error(source, None, header("timestamp", "timestamp"), None,
-                                  f"{int(dup.sum()) - 20} more repeated timestamps in '{profile_id}'"))
+        _listed(problems, np.flatnonzero(dup),
+                lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
+                                f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"),
+                lambda n: error(source, None, header("timestamp"), None, f"{n} more repeated timestamps in '{profile_id}'"))
         t_unique = t_sorted[~dup]
-        v_unique = v_ok[order][~dup]
+        v_unique = v_ok[order_t][~dup]
         if len(t_unique) < 2:
-            problems.append(error(source, int(rows[idx[0]]), "profile_id", profile_id, "a profile needs at least two intervals"))
+            problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id,
+                                  "a profile needs at least two intervals"))
             continue
-        step = np.diff(t_unique.asi8) / 60e6  # microsecond or nanosecond resolution handled below
-        unit_scale = {"ns": 1e9, "us": 1e6, "ms": 1e3, "s": 1.0}[t_unique.unit] if hasattr(t_unique, "unit") else 1e9
-        step = np.diff(t_unique.asi8) / (60.0 * unit_scale)
+        step = np.diff(t_unique.asi8) / (60.0 * 1e6)  # microseconds to minutes
         resolution = float(np.median(step))
         if not any(abs(resolution - r) < 1e-6 for r in ALLOWED_RESOLUTIONS_MIN):
-            problems.append(error(source, int(rows[idx[0]]), header("timestamp", "timestamp"), f"{resolution:g} min",
+            problems.append(error(source, int(rows[idx[0]]), header("timestamp"), f"{resolution:g} min",
                                   f"profile '{profile_id}' has an interval of {resolution:g} min; allowed are 15, 30 or 60 min",
                                   "resample the data to 15-min, 30-min or hourly means"))
             continue
+        rows_unique = rows_sorted[~dup]
         gaps = np.flatnonzero(step > resolution + 1e-6)
         if len(gaps):
             n_missing = int(np.sum(np.round(step[gaps] / resolution) - 1))
             first = t_unique[gaps[0]] + pd.Timedelta(minutes=resolution)
-            problems.append(warning(source, int(rows_sorted[~dup][gaps[0] + 1]), header("timestamp", "timestamp"), str(first),
+            problems.append(warning(source, int(rows_unique[gaps[0] + 1]), header("timestamp"), str(first),
                                     f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}",
                                     "missing intervals are filled from the same weekday and time of day"))
-        odd = np.flatnonzero((step < resolution - 1e-6))
+        odd = np.flatnonzero(step < resolution - 1e-6)
         for j in odd[:5]:
-            problems.append(error(source, int(rows_sorted[~dup][j + 1]), header("timestamp", "timestamp"), str(t_unique[j + 1]),
+            problems.append(error(source, int(rows_unique[j + 1]), header("timestamp"), str(t_unique[j + 1]),
                                   f"irregular interval in profile '{profile_id}'", "keep one resolution per profile"))
         coverage_days = (t_unique[-1] - t_unique[0]).total_seconds() / 86400 + resolution / 1440
         if coverage_days < 364.5:
-            problems.append(warning(source, None, "profile_id", profile_id,
+            problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, less than a year",
                                     "it is extended to a year by repeating its typical week; log a full year where it matters"))
         series = pd.Series(v_unique, index=t_unique, name=quantity)
-        profiles[str(profile_id)] = series
-        info.append({"profile_id": str(profile_id), "quantity": quantity, "resolution_min": int(round(resolution)),
+        profiles[profile_id] = series
+        info.append({"profile_id": profile_id, "quantity": quantity, "resolution_min": int(round(resolution)),
                      "n_intervals": len(series), "start": t_unique[0], "end": t_unique[-1],
                      "coverage_days": round(coverage_days, 3)})
     return profiles, pd.DataFrame(info, columns=info_columns)
 
 
+_OFFSET = r"(?:[+-]\d{2}:?\d{2}|Z)$"
+_SERIAL_TEXT = re.compile(r"^\d{5}(\.\d+)?$")
+
+
+def _cell_text(value: object) -> str | None:
+    """Return a timestamp cell as ISO text (None when blank)."""
+    if _blank(value):
+        return None
+    if isinstance(value, (_dt.datetime, pd.Timestamp, _dt.date, _dt.time)):
+        return value.isoformat()
+    return str(value).strip()
+
+
+def _is_serial(value: object) -> bool:
+    return (isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+            and SERIAL_DAYS_RANGE[0] <= float(value) <= SERIAL_DAYS_RANGE[1])
+
+
 def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarray, header: str,
-                      problems: list[Problem]) -> np.ndarray:
-    """Parse interval-start timestamps into the case zone; DST gaps and unreadable cells are errors."""
+                      problems: list[Problem], groups: list[np.ndarray]) -> pd.DatetimeIndex:
+    """Parse interval-start timestamps into the case zone, NaT where unusable (each reported).
+
+    Cells with a UTC offset are converted to the zone; naive cells are local times in the zone,
+    localised profile by profile in file order (so a repeated autumn hour is told apart by its
+    order); a local time in a daylight-saving gap, an unreadable cell and a blank are errors. Workbook
+    cells holding a spreadsheet date serial are read as dates (a flagged repair).
+
+    Returns
+    -------
+    pandas.DatetimeIndex
+        One tz-aware timestamp per row (microsecond unit), NaT where unusable.
+    """
+    n = len(column)
+    utc = np.full(n, _NAT, dtype=np.int64)
+    naive = np.full(n, _NAT, dtype=np.int64)
+    if not (pd.api.types.is_datetime64_any_dtype(column.dtype) or pd.api.types.is_string_dtype(column.dtype)):
+        column = column.astype(object)  # numbers or mixed cells (Parquet, workbooks)
     if pd.api.types.is_datetime64_any_dtype(column.dtype):
-        parsed = pd.DatetimeIndex(column)
-        if parsed.tz is None:
-            return _localise(parsed, zone, source, rows, header, problems)
-        return parsed.tz_convert(zone).to_numpy(dtype=object)
-    text = column.map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else
-                      (v.isoformat() if isinstance(v, (_dt.datetime, pd.Timestamp)) else str(v).strip()))
-    has_offset = text.str.contains(r"(?:[+-]\d{2}:?\d{2}|Z)$", regex=True, na=False)
-    out = np.full(len(column), pd.NaT, dtype=object)
-    if has_offset.any():
-        parsed = pd.to_datetime(text[has_offset], utc=True, errors="coerce", format="ISO8601")
-        out[has_offset.to_numpy()] = parsed.dt.tz_convert(zone).to_numpy(dtype=object)
-    naive = ~has_offset & text.notna()
-    if naive.any():
-        parsed = pd.to_datetime(text[naive], errors="coerce", format="ISO8601")
-        bad_parse = parsed.isna().to_numpy()
-        good_idx = np.flatnonzero(naive.to_numpy())
-        for j in np.flatnonzero(bad_parse)[:20]:
-            i = good_idx[j]
-            problems.append(error(source, int(rows[i]), header, column.iloc[i], "timestamp not readable",
-                                  "write ISO 8601, e.g. 2025-01-31 13:15 or 2025-01-31T13:15+01:00"))
-        if bad_parse.sum() > 20:
-            problems.append(error(source, None, header, None, f"{int(bad_parse.sum()) - 20} more unreadable timestamps"))
-        localised = _localise(pd.DatetimeIndex(parsed), zone, source, rows[good_idx], header, problems)
-        out[good_idx] = localised
-    bad_offset = np.flatnonzero(has_offset.to_numpy() & pd.isna(out))
-    for i in bad_offset[:20]:
-        problems.append(error(source, int(rows[i]), header, column.iloc[i], "timestamp not readable"))
-    for i in np.flatnonzero(text.isna().to_numpy())[:20]:
-        problems.append(error(source, int(rows[i]), header, None, "timestamp is blank"))
-    return out
+        parsed = pd.DatetimeIndex(column).as_unit("us")
+        if parsed.tz is not None:
+            utc[:] = parsed.tz_convert("UTC").asi8
+        else:
+            naive[:] = parsed.asi8
+        blank = np.asarray(parsed.isna())
+    else:
+        if column.dtype == object:
+            serial = column.map(_is_serial).to_numpy(dtype=bool)
+            if serial.any():
+                days = column[serial].astype(float).to_numpy()
+                stamps = _SPREADSHEET_EPOCH + np.round(days * 86400.0).astype(np.int64) * np.timedelta64(1, "s")
+                naive[serial] = stamps.astype("datetime64[us]").astype(np.int64)
+                first = int(np.flatnonzero(serial)[0])
+                problems.append(warning(source, int(rows[first]), header, column.iloc[first],
+                                        f"{int(serial.sum())} timestamp(s) were spreadsheet date numbers; they were read as dates and times",
+                                        "format the timestamp column as date and time in the spreadsheet"))
+            text = column.map(_cell_text).where(~serial, None)
+        else:
+            serial = np.zeros(n, dtype=bool)
+            text = column.str.strip()
+        blank = text.isna().to_numpy() & ~serial
+        has_offset = text.str.contains(_OFFSET, regex=True, na=False).to_numpy(dtype=bool)
+        if has_offset.any():
+            parsed = pd.to_datetime(text[has_offset], utc=True, errors="coerce", format="ISO8601")
+            utc[has_offset] = pd.DatetimeIndex(parsed).as_unit("us").asi8
+        plain = ~has_offset & ~blank & ~serial
+        if plain.any():
+            parsed = pd.to_datetime(text[plain], errors="coerce", format="ISO8601")
+            naive[plain] = pd.DatetimeIndex(parsed).as_unit("us").asi8
+        unreadable = np.flatnonzero(~blank & ~serial & (np.where(has_offset, utc, naive) == _NAT))
+
+        def bad(i: int) -> Problem:
+            value = column.iloc[i]
+            hint = ("a number like this is a spreadsheet date serial: format the column as date and time before saving"
+                    if _SERIAL_TEXT.match(str(value).strip()) else
+                    "write ISO 8601, e.g. 2025-01-31 13:15 or 2025-01-31T13:15+01:00")
+            return error(source, int(rows[i]), header, value, "timestamp not readable", hint)
+
+        _listed(problems, unreadable, bad,
+                lambda k: error(source, None, header, None, f"{k} more unreadable timestamps"))
+    _listed(problems, np.flatnonzero(blank),
+            lambda i: error(source, int(rows[i]), header, None, "timestamp is blank"),
+            lambda k: error(source, None, header, None, f"{k} more blank timestamps"))
+    for idx in groups:
+        local = idx[naive[idx] != _NAT]
+        if len(local):
+            utc[local] = _localise(naive[local], zone, source, rows[local], header, problems)
+    return pd.DatetimeIndex(utc.view("datetime64[us]")).tz_localize("UTC").tz_convert(zone)
 
 
-def _localise(naive: pd.DatetimeIndex, zone: str, source: str, rows: np.ndarray, header: str,
+def _localise(naive_us: np.ndarray, zone: str, source: str, rows: np.ndarray, header: str,
               problems: list[Problem]) -> np.ndarray:
-    """Attach the case zone to naive local times; times inside a daylight-saving gap are errors."""
-    result = np.full(len(naive), pd.NaT, dtype=object)
-    valid = ~naive.isna()
-    if not valid.any():
-        return result
-    local = naive[valid]
+    """Attach the case zone to naive local times of one profile (in file order); return UTC microseconds.
+
+    Times inside a daylight-saving gap, and repeated autumn times whose order does not tell them apart,
+    are errors (NaT).
+    """
+    local = pd.DatetimeIndex(naive_us.view("datetime64[us]"))
+    ambiguous = np.zeros(len(local), dtype=bool)
     try:
         aware = local.tz_localize(zone, ambiguous="infer", nonexistent="NaT")
-    except Exception:  # ambiguity cannot be inferred (e.g. the repeated autumn hour appears once)
+    except Exception:  # pandas raises for a repeated hour it cannot order (e.g. given once); mark those
         aware = local.tz_localize(zone, ambiguous="NaT", nonexistent="NaT")
-        ambiguous = aware.isna() & ~local.tz_localize(zone, ambiguous=False, nonexistent="NaT").isna()
-        positions = np.flatnonzero(valid)[np.flatnonzero(np.asarray(ambiguous))]
-        for i in positions[:10]:
-            problems.append(error(source, int(rows[i]), header, str(naive[i]),
-                                  f"local time occurs twice when clocks go back in {zone}; its order cannot be inferred",
-                                  "give timestamps with a UTC offset, or both repeated hours in order"))
-    gap = np.asarray(aware.isna())
-    positions = np.flatnonzero(valid)[np.flatnonzero(gap)]
-    for i in positions[:20]:
-        problems.append(error(source, int(rows[i]), header, str(naive[i]),
-                              f"local time does not exist in {zone} (clocks go forward)",
-                              "daylight-saving gap: give timestamps with a UTC offset or drop this row"))
-    result[np.flatnonzero(valid)] = aware.to_numpy(dtype=object)
-    return result
+        ambiguous = np.asarray(aware.isna()) & ~np.asarray(local.tz_localize(zone, ambiguous=False, nonexistent="NaT").isna())
+        _listed(problems, np.flatnonzero(ambiguous),
+                lambda i: error(source, int(rows[i]), header, str(local[i]),
+                                f"local time occurs twice when clocks go back in {zone}; its order cannot be inferred",
+                                "give timestamps with a UTC offset, or both repeated hours in order"),
+                lambda k: error(source, None, header, None, f"{k} more local times that occur twice"))
+    gap = np.asarray(aware.isna()) & ~ambiguous
+    _listed(problems, np.flatnonzero(gap),
+            lambda i: error(source, int(rows[i]), header, str(local[i]),
+                            f"local time does not exist in {zone} (clocks go forward)",
+                            "daylight-saving gap: give timestamps with a UTC offset or drop this row"),
+            lambda k: error(source, None, header, None, f"{k} more local times in a daylight-saving gap"))
+    return aware.tz_convert("UTC").as_unit("us").asi8
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -570,6 +748,19 @@ def _check_assets(checker: _TableChecker, site_ids: set[str], profile_ids: set[s
                     "give one of the two")
     rated_kw = np.where(np.isnan(kw), hp * HP_TO_KW, kw)
     a["rated_p_kw"] = rated_kw
+    volts = a["rated_v_v"].to_numpy()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        current_a = rated_kw * 1000.0 / (np.sqrt(3.0) * volts)
+    for i in np.flatnonzero(np.isfinite(current_a) & (current_a > MAX_PLAUSIBLE_CURRENT_A)):
+        column = "rated_p_kw" if not np.isnan(kw[i]) else "rated_p_hp"
+        checker.err(i, column, kw[i] if column == "rated_p_kw" else hp[i],
+                    f"a {rated_kw[i]:,.0f} kW motor at {volts[i]:,.0f} V would draw about {current_a[i]:,.0f} A, "
+                    f"more than any motor of that voltage (plausible up to {MAX_PLAUSIBLE_CURRENT_A:,.0f} A)",
+                    "is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?")
+    mean_load = a["mean_load_pct"].to_numpy()
+    for i in np.flatnonzero((mean_load > 0) & (mean_load <= 1.0)):
+        checker.warn(i, "mean_load_pct", mean_load[i], f"a mean load of {mean_load[i]:g} % of rating is implausibly low",
+                     "mean_load_pct takes 0-100 % of rated power: was a fraction (0-1) entered?")
     poles = a["poles"].to_numpy()
     for i in np.flatnonzero(~np.isnan(poles) & (poles % 2 != 0)):
         checker.err(i, "poles", poles[i], "poles must be an even number", "a 4-pole motor has 2 pole pairs: write 4")
@@ -690,12 +881,15 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
 
 
 def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dict[str, pd.Series],
-                 tariffs_expected: bool) -> None:
+                 tariffs_expected: bool, unreadable: set[str] = frozenset()) -> None:
     s = checker.frame
     _duplicates(checker, "site_id", "site_id")
     for i in np.flatnonzero(s["tariff_file"].notna().to_numpy()):
         name = s["tariff_file"].iloc[i]
-        if tariffs_expected and name not in tariffs:
+        if name in unreadable:
+            checker.err(i, "tariff_file", name, "the tariff file named here could not be read (see its own problems)",
+                        "fix the tariff file first")
+        elif tariffs_expected and name not in tariffs:
             checker.err(i, "tariff_file", name, "tariff file not found in the case's tariffs",
                         "put the file in the tariffs/ folder (or a 'tariff <name>' sheet)")
     for i in np.flatnonzero(s["base_profile_id"].notna().to_numpy()):
@@ -752,7 +946,22 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
 
     data, source, read_problems = io.read_finance_settings(raw)
     problems.extend(read_problems)
-    flat = data.get("finance", data) if isinstance(data, dict) else {}
+    if has_errors(read_problems):
+        return None
+    flat = data if isinstance(data, dict) else {}
+    if "finance" in flat:
+        nested = flat["finance"]
+        if not isinstance(nested, dict):
+            problems.append(error(source, None, "finance", nested, "'finance' must be a table of key = value",
+                                  "write the keys at the top of the file, or under a [finance] line"))
+            return None
+        others = sorted(k for k in flat if k != "finance")
+        if others:
+            problems.append(error(source, None, "finance", None,
+                                  f"keys at the top ({', '.join(others[:5])}) and a [finance] table are both given",
+                                  "write every key at the top of the file, or every key under [finance]"))
+            return None
+        flat = nested
     if "currency" not in flat:
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
@@ -803,19 +1012,44 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         In strict mode, when any error was found.
     ValueError
         When ``mode`` is not ``warn`` or ``strict``.
+
+    Notes
+    -----
+    Bad input never raises in ``warn`` mode: every defect found while reading or checking becomes a
+    :class:`~models.problems.Problem`. Should a defect slip past every check and make the checking
+    code itself fail, that failure is also returned as an error problem (rule starting "internal
+    error") rather than raised; the tests assert it never happens on their corpus.
     """
     if mode not in ("warn", "strict"):
         raise ValueError(f"mode must be 'warn' or 'strict', got {mode!r}")
     this_year = (today or _dt.date.today()).year
+    try:
+        case, problems = _load(path, this_year)
+    except Exception as exc:  # last line of defence: a bad file must never end in a traceback
+        case, problems = None, [error(str(path), None, None, None,
+                                      f"internal error while checking the case ({exc.__class__.__name__}: {exc})",
+                                      "please report this with the case files; nothing was written to them")]
+    return _finish(case, problems, mode)
+
+
+def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]:
+    """Read and check a case; return it (None when any error was found) and every problem."""
     raw = io.read_case_files(path)
     problems = list(raw.problems)
     if raw.kind == "missing":
-        return _finish(None, problems, mode)
+        return None, problems
     settings = _settings(raw, problems)
+    own_options = raw.tables.get("options")
+    if own_options is not None and own_options.readable and own_options.frame.empty:
+        problems.append(warning(own_options.source, None, None, None,
+                                "the options table has no rows; the default catalogue (illustrative prices) is used",
+                                "add one row per option to compare your own"))
+        del raw.tables["options"]
     if "options" not in raw.tables:
         raw.tables["options"], option_problems = io.read_default_options()
         problems += option_problems
-    checkers = {name: _TableChecker(table) for name, table in raw.tables.items() if name != "profiles"}
+    checkers = {name: _TableChecker(table) for name, table in raw.tables.items()
+                if name != "profiles" and table.readable}
     frames = {}
     for name, checker in checkers.items():
         frames[name] = checker.run()
@@ -831,10 +1065,16 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     tariffs = _check_tariffs(raw, settings, problems)
     finance_assumptions = _check_finance(raw, settings, problems)
     if "sites" in checkers:
-        _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True)
+        _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True,
+                     unreadable=raw.unreadable_tariffs)
     if "capacitors" in checkers:
         _check_capacitors(checkers["capacitors"], site_ids)
-    options_frame = options_module.check_options(checkers["options"])
+    options_frame = None
+    if "options" in checkers:
+        options_frame = options_module.check_options(checkers["options"])
+    if "sites" in checkers and frames["sites"].empty:
+        problems.append(error(checkers["sites"].raw.source, None, None, None, "the sites table has no rows",
+                              "add one row per site (utility meter)"))
     if "assets" in checkers:
         _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year)
         if frames["assets"].empty:
@@ -843,8 +1083,8 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     for checker in checkers.values():
         problems.extend(checker.problems)
     problems = _ordered(problems)
-    if has_errors(problems) or "assets" not in frames or "sites" not in frames:
-        return _finish(None, problems, mode)
+    if has_errors(problems) or "assets" not in frames or "sites" not in frames or options_frame is None:
+        return None, problems
     assets, defaults = _fill_defaults(frames["assets"], duty_ids)
     empty_caps = _TableChecker(io.RawTable("capacitors", "capacitors.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_duty = _TableChecker(io.RawTable("duty", "duty.csv", pd.DataFrame(), np.array([], dtype=int))).run()
@@ -864,7 +1104,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         extra=dict(raw.extra),
         problems=tuple(problems),
     )
-    return _finish(case, problems, mode)
+    return case, problems
 
 
 def _ordered(problems: list[Problem]) -> list[Problem]:

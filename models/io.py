@@ -3,24 +3,29 @@
 A case is a folder (CSV and TOML files, Parquet allowed for long profiles) or one ``.xlsx`` workbook with
 one sheet per table. This module turns either into :class:`RawTable` records of text cells with our
 column names, the row numbers the user sees and every problem met while reading. It never writes to,
-renames or locks a user's file: files are read into memory in one pass and closed.
-Typing, ranges and cross-checks happen in :mod:`models.case`.
+renames or locks a user's file: files are read into memory in one pass and closed. Whatever the bytes
+hold (another encoding, a workbook renamed ``.csv``, binary garbage, a quote left open), reading ends
+in a problem list, never an exception. Typing, ranges and cross-checks happen in :mod:`models.case`.
 """
 
 from __future__ import annotations
 
 import csv
+import datetime as _dt
+import difflib
 import io
 import re
 import tomllib
 import unicodedata
+import zipfile
 from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
-from models.problems import Problem, error, warning
+from models.problems import Problem, error, has_errors, warning
 
 PACKAGE_DIR = Path(__file__).resolve().parent
 DATA_DIR = PACKAGE_DIR.parent / "data"
@@ -34,8 +39,43 @@ CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "du
 DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.
 REQUIRED_TABLES: tuple[str, ...] = ("assets", "sites")
-#: Largest file drivecase reads, to keep a stray file from exhausting memory [bytes].
+#: Largest file drivecase reads (Parquet profiles), to keep a stray file from exhausting memory [bytes].
 MAX_FILE_BYTES = 512 * 1024 * 1024
+#: Largest text file (CSV, TOML) [bytes]: parsed text takes several times its size in memory, so longer
+#: profiles belong in Parquet.
+MAX_TEXT_BYTES = 128 * 1024 * 1024
+#: Largest workbook [bytes]: a spreadsheet library holds every cell as an object, tens of times the
+#: compressed file size.
+MAX_WORKBOOK_BYTES = 64 * 1024 * 1024
+#: CSV files from this size on are parsed by pandas' C reader when they are plain (no quotes, comments
+#: or blank lines); smaller or irregular files go through the line-by-line reader [bytes].
+FAST_CSV_BYTES = 2 * 1024 * 1024
+#: Workbook suffixes read as a case (macros in ``.xlsm`` files are never run: only cell values are read).
+WORKBOOK_SUFFIXES: tuple[str, ...] = (".xlsx", ".xlsm")
+
+#: Leading bytes of file kinds users save under a wrong name, and what to say about each.
+_SIGNATURES: tuple[tuple[bytes, str], ...] = (
+    (b"PK\x03\x04", "a zip archive (often an .xlsx workbook saved under another name)"),
+    (b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1", "an old-format Excel (.xls) or other Office file"),
+    (b"PAR1", "a Parquet file"),
+    (b"%PDF", "a PDF document"),
+    (b"\x1f\x8b", "a gzip archive"),
+    (b"\x89PNG", "a PNG image"),
+    (b"\xff\xd8\xff", "a JPEG image"),
+    (b"SQLite format 3\x00", "an SQLite database"),
+)
+#: Byte-order marks, longest first (a UTF-32 LE mark starts with the UTF-16 LE one).
+_BOMS: tuple[tuple[bytes, str, str], ...] = (
+    (b"\xff\xfe\x00\x00", "utf-32-le", "UTF-32"),
+    (b"\x00\x00\xfe\xff", "utf-32-be", "UTF-32"),
+    (b"\xef\xbb\xbf", "utf-8", "UTF-8"),
+    (b"\xff\xfe", "utf-16-le", "UTF-16"),
+    (b"\xfe\xff", "utf-16-be", "UTF-16"),
+)
+#: Control characters that never occur in text files (tab, line feed, form feed and carriage return
+#: excepted); C1 controls appear when binary bytes are read as Latin-1.
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f-\x9f]")
+_TOML_LINE = re.compile(r"at line (\d+)")
 
 
 @dataclass(frozen=True)
@@ -55,6 +95,9 @@ class RawTable:
         Row number of each frame row as the user sees it (header row = 1 for a plain file).
     headers : dict
         Our column name -> the header as written in the user's file.
+    readable : bool
+        False when the file could not be read at all (empty, binary, unreadable); its problems say why,
+        and the table is not checked further.
     """
 
     name: str
@@ -62,6 +105,7 @@ class RawTable:
     frame: pd.DataFrame
     rows: object
     headers: dict[str, str] = field(default_factory=dict)
+    readable: bool = True
 
 
 @dataclass
@@ -69,13 +113,20 @@ class RawCase:
     """Everything read from a case before validation."""
 
     path: Path
-    kind: str  # "folder" or "workbook"
+    kind: str  # "folder", "workbook" or "missing"
     settings: dict = field(default_factory=dict)
     settings_source: str = "case.toml"
     tables: dict[str, RawTable] = field(default_factory=dict)
     tariffs: dict[str, dict] = field(default_factory=dict)
     extra: dict[str, object] = field(default_factory=dict)
     problems: list[Problem] = field(default_factory=list)
+    #: Tariff files present but unreadable (syntax or encoding errors already reported).
+    unreadable_tariffs: set[str] = field(default_factory=set)
+
+
+def _empty_table(table: str, source: str) -> RawTable:
+    """A table that could not be read: no rows, flagged unreadable."""
+    return RawTable(table, source, pd.DataFrame(), np.array([], dtype=np.int64), {}, readable=False)
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -139,8 +190,28 @@ def header_map(table: str) -> dict[str, str]:
     return mapping
 
 
+_WATT_TOKEN = re.compile(r"(?<![a-z])(w|watts?)(?![a-z])")
+
+
+def watt_header_target(table: str, header: object) -> str | None:
+    """Return our kW column a header would name if its unit were kW instead of W, else None.
+
+    Examples
+    --------
+    >>> watt_header_target("assets", "Rated power (W)")
+    'rated_p_kw'
+    >>> watt_header_target("assets", "Rated power (kW)") is None
+    True
+    """
+    text = normalise_header(header)
+    if not _WATT_TOKEN.search(text):
+        return None
+    target = header_map(table).get(_WATT_TOKEN.sub("kw", text))
+    return target if target is not None and target.endswith("_kw") else None
+
+
 def _rename(table: str, source: str, headers: list[object]) -> tuple[list[str], dict[str, str], list[Problem]]:
-    """Map the user's headers to our names; report duplicates and blanks."""
+    """Map the user's headers to our names; report duplicates, blanks and headers in W."""
     mapping = header_map(table)
     names: list[str] = []
     shown: dict[str, str] = {}
@@ -152,6 +223,11 @@ def _rename(table: str, source: str, headers: list[object]) -> tuple[list[str], 
             names.append(text)
             continue
         ours = mapping.get(normalise_header(text), text)
+        if ours == text and ours not in mapping.values():
+            target = watt_header_target(table, text)
+            if target is not None:
+                problems.append(error(source, 1, text, text, f"the column '{text}' is in W; drivecase reads '{target}' in kW",
+                                      f"divide the values by 1000 and head the column '{target}'"))
         if ours in shown:
             problems.append(error(source, 1, text, text, f"column '{ours}' appears twice",
                                   f"keep one of '{shown[ours]}' and '{text}'"))
@@ -161,136 +237,490 @@ def _rename(table: str, source: str, headers: list[object]) -> tuple[list[str], 
     return names, shown, problems
 
 
+def _drop_blank_header_columns(frame: pd.DataFrame) -> pd.DataFrame:
+    """Drop columns with no header and no values (trailing delimiters left by spreadsheet exports)."""
+    drop = [c for c in frame.columns if str(c).startswith("(blank header ") and frame[c].isna().all()]
+    return frame.drop(columns=drop) if drop else frame
+
+
 # ---------------------------------------------------------------------------------------------------
 # Plain files
 # ---------------------------------------------------------------------------------------------------
-def read_bytes(path: Path) -> bytes:
-    """Read a whole file in one pass (read-only) after checking its size."""
+def read_bytes(path: Path, limit: int = MAX_FILE_BYTES) -> bytes:
+    """Read a whole file in one pass (read-only) after checking its size.
+
+    Raises
+    ------
+    ValueError
+        When the file is larger than ``limit`` [bytes].
+    OSError
+        When the file cannot be opened.
+    """
     size = path.stat().st_size
-    if size > MAX_FILE_BYTES:
-        raise ValueError(f"{path.name} is {size / 1e6:.0f} MB, above the {MAX_FILE_BYTES / 1e6:.0f} MB limit")
+    if size > limit:
+        raise ValueError(f"{path.name} is {size / 1e6:.0f} MB, above the {limit / 1e6:.0f} MB limit")
     with open(path, "rb") as handle:
         return handle.read()
 
 
-def decode_text(data: bytes, source: str) -> tuple[str, list[Problem]]:
-    """Decode file bytes as UTF-8 (with or without byte-order mark), falling back to Windows-1252."""
+def read_file(path: Path, source: str, limit: int = MAX_FILE_BYTES,
+              hint: str = "split the file, or save long profiles as profiles.parquet") -> tuple[bytes | None, list[Problem]]:
+    """Read a whole file read-only; a file too large or unreadable becomes a problem instead of an error.
+
+    Parameters
+    ----------
+    path : pathlib.Path
+        File to read.
+    source : str
+        Name shown in problems.
+    limit : int
+        Largest size accepted [bytes].
+    hint : str
+        What to suggest when the file is too large.
+
+    Returns
+    -------
+    data : bytes or None
+        The file's bytes, or None when it could not be read.
+    problems : list of Problem
+    """
     try:
-        return data.decode("utf-8-sig"), []
-    except UnicodeDecodeError as exc:
-        text = data.decode("cp1252", errors="replace")
-        return text, [warning(source, None, None, None,
-                              f"the file is not UTF-8 (byte {exc.start}); it was read as Windows-1252",
-                              "save it as UTF-8 CSV to be sure accented text is read as intended")]
+        size = path.stat().st_size
+        if size > limit:
+            return None, [error(source, None, None, f"{size / 1e6:,.0f} MB",
+                                f"the file is larger than the {limit / 1e6:,.0f} MB drivecase reads", hint)]
+        with open(path, "rb") as handle:
+            return handle.read(), []
+    except OSError as exc:
+        return None, [error(source, None, None, None, f"the file cannot be read ({exc.strerror or exc.__class__.__name__})",
+                            "check that the file exists and that you may read it")]
 
 
-def _sniff_delimiter(lines: list[str]) -> str:
+def _signature(data: bytes) -> str | None:
+    return next((kind for magic, kind in _SIGNATURES if data.startswith(magic)), None)
+
+
+def _utf16_without_bom(head: bytes) -> str | None:
+    """Guess UTF-16 without a byte-order mark from the zero bytes of ASCII text (every other byte)."""
+    if len(head) < 8:
+        return None
+    even, odd = head[0::2], head[1::2]
+    zeros_even, zeros_odd = even.count(0) / len(even), odd.count(0) / len(odd)
+    if zeros_odd > 0.4 and zeros_even < 0.05:
+        return "utf-16-le"
+    if zeros_even > 0.4 and zeros_odd < 0.05:
+        return "utf-16-be"
+    return None
+
+
+def _decode(data: bytes, source: str) -> tuple[str | None, list[Problem], str]:
+    """Decode file bytes into text, or report why they are not text.
+
+    Returns
+    -------
+    text : str or None
+        None when the bytes are not text (a known binary format, or control characters).
+    problems : list of Problem
+    encoding : str
+        Codec used (for the fast CSV path).
+
+    Notes
+    -----
+    Order: a byte-order mark (UTF-8, UTF-16, UTF-32) decides; else UTF-8; else UTF-16 without a mark
+    when every other byte of ASCII text is zero; else Windows-1252; else Latin-1 (which maps every byte).
+    A non-UTF-8 decode is a warning, binary content an error.
+    """
+    kind = _signature(data)
+    if kind is not None:
+        return None, [error(source, None, None, None, f"the file is {kind}, not a text (CSV or TOML) file",
+                            "save the table as CSV (comma- or semicolon-separated text), or give the workbook itself as the case")], ""
+    problems: list[Problem] = []
+    text: str | None = None
+    encoding = "utf-8"
+    for bom, codec, label in _BOMS:
+        if data.startswith(bom):
+            try:
+                text, encoding = data[len(bom):].decode(codec), codec
+            except UnicodeDecodeError as exc:
+                return None, [error(source, None, None, None,
+                                    f"the file starts with a {label} byte-order mark but is not valid {label} (byte {exc.start})",
+                                    "save it again as UTF-8 CSV")], ""
+            if label != "UTF-8":
+                problems.append(warning(source, None, None, None, f"the file is {label} text; it was decoded as such",
+                                        "UTF-8 is the expected encoding; save it as UTF-8 CSV to be sure"))
+            break
+    if text is None:
+        try:
+            text = data.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            codec = _utf16_without_bom(data[:4096])
+            decoded = None
+            if codec is not None:
+                try:
+                    decoded, encoding = data.decode(codec), codec
+                    label = "UTF-16 without a byte-order mark"
+                except UnicodeDecodeError:
+                    decoded = None
+            if decoded is None:
+                try:
+                    decoded, encoding, label = data.decode("cp1252"), "cp1252", "Windows-1252"
+                except UnicodeDecodeError:
+                    decoded, encoding, label = data.decode("latin-1"), "latin-1", "Latin-1 (ISO 8859-1)"
+            text = decoded
+            problems.append(warning(source, None, None, None,
+                                    f"the file is not UTF-8 (byte {exc.start}); it was read as {label}",
+                                    "save it as UTF-8 CSV to be sure accented text is read as intended"))
+    sample = text[:65536]
+    controls = len(_CONTROL.findall(sample))
+    if "\x00" in text or controls > max(2, 0.001 * len(sample)):
+        return None, [error(source, None, None, None, "the file holds binary data, not text",
+                            "is it a renamed spreadsheet or archive? Save the table as CSV text")], ""
+    return text, problems, encoding
+
+
+def decode_text(data: bytes, source: str) -> tuple[str, list[Problem]]:
+    """Decode file bytes as text (BOM, UTF-8, UTF-16, Windows-1252 or Latin-1); binary data gives an error.
+
+    Returns
+    -------
+    text : str
+        Decoded text; empty when the bytes are not text.
+    problems : list of Problem
+        A warning for any encoding other than UTF-8, an error for binary content.
+
+    Examples
+    --------
+    >>> decode_text("Kühl".encode("cp1252"), "a.csv")[0]
+    'Kühl'
+    >>> decode_text(b"PK\\x03\\x04rest", "a.csv")[1][0].severity
+    'error'
+    """
+    text, problems, _ = _decode(data, source)
+    return ("" if text is None else text), problems
+
+
+_LINE = re.compile(r"[^\r\n]+")
+
+
+def _header_line(text: str) -> str:
+    """Return the first line that is neither blank nor a comment."""
+    for match in _LINE.finditer(text):
+        line = match.group(0)
+        if line.strip() and not line.lstrip().startswith("#"):
+            return line
+    return ""
+
+
+def _sniff_delimiter(header: str) -> str:
     """Pick the delimiter among comma, semicolon and tab that splits the header best."""
-    header = next((ln for ln in lines if ln.strip() and not ln.lstrip().startswith("#")), "")
     counts = {d: header.count(d) for d in (",", ";", "\t")}
     return max(counts, key=lambda d: (counts[d], d == ","))
+
+
+def _csv_error_problem(source: str, line: int | None, exc: Exception) -> Problem:
+    message = str(exc)
+    if "field larger than field limit" in message:
+        return error(source, line, None, None, f"a cell is longer than {csv.field_size_limit():,} characters",
+                     "usually a quote (\") opened further up and never closed; close or remove it")
+    return error(source, line, None, None, f"the line cannot be read as CSV ({message})",
+                 "check quotes and delimiters on this line")
 
 
 def parse_csv_text(text: str, table: str, source: str) -> tuple[RawTable, list[Problem]]:
     """Parse CSV text into a :class:`RawTable` keeping the user's line numbers.
 
     Lines starting with ``#`` before or between rows are comments; blank lines are skipped. The
-    delimiter (comma, semicolon or tab) is detected from the header line.
+    delimiter (comma, semicolon or tab) is detected from the header line. Line ends may be LF, CRLF or
+    CR. A row is numbered by the line it starts on. A quote left open (the rest of the file read as one
+    cell) is an error; a quoted cell running over several lines is a warning.
     """
     problems: list[Problem] = []
-    lines = text.splitlines()
-    delimiter = _sniff_delimiter(lines)
-    reader = csv.reader(io.StringIO(text), delimiter=delimiter)
+    delimiter = _sniff_delimiter(_header_line(text))
+    reader = csv.reader(io.StringIO(text, newline=None), delimiter=delimiter)
     header: list[str] | None = None
     records: list[list[str]] = []
     rows: list[int] = []
-    for record in reader:
-        line_no = reader.line_num
-        if not record or all(not c.strip() for c in record):
-            continue
-        if record[0].lstrip().startswith("#"):
-            continue
-        if header is None:
-            header = record
-            continue
-        if len(record) > len(header):
-            extra = [c for c in record[len(header):] if c.strip()]
-            if extra:
-                problems.append(error(source, line_no, None, delimiter.join(extra),
-                                      f"the row has {len(record)} cells but the header has {len(header)}",
-                                      "check for a stray delimiter or a missing header"))
-            record = record[: len(header)]
-        records.append(record + [""] * (len(header) - len(record)))
-        rows.append(line_no)
+    spans: list[tuple[int, int, bool]] = []
+    last_line = 0
+    try:
+        for record in reader:
+            start, last_line = last_line + 1, reader.line_num
+            if not record or all(not c.strip() for c in record):
+                continue
+            if record[0].lstrip().startswith("#"):
+                continue
+            if last_line > start:
+                width = max(2, (len(header) if header else len(record)) - 1)
+                rowlike = any(cell.count(delimiter) >= width for c in record if "\n" in c for cell in c.split("\n"))
+                spans.append((start, last_line, rowlike))
+            if header is None:
+                header = record
+                continue
+            if len(record) > len(header):
+                extra = [c for c in record[len(header):] if c.strip()]
+                if extra:
+                    problems.append(error(source, start, f"(no header, column {len(header) + 1})", delimiter.join(extra),
+                                          f"the row has {len(record)} cells but the header has {len(header)}",
+                                          "check for a stray delimiter in this row or a missing header"))
+                record = record[: len(header)]
+            records.append(record + [""] * (len(header) - len(record)))
+            rows.append(start)
+    except csv.Error as exc:
+        problems.append(_csv_error_problem(source, reader.line_num or None, exc))
+    if spans:
+        odd_quotes = text.count('"') % 2 == 1
+        for k, (first, end, rowlike) in enumerate(spans):
+            if k == len(spans) - 1 and end == last_line and odd_quotes:
+                problems.append(error(source, first, None, None,
+                                      f"a quote opened on line {first} is never closed: lines {first}-{end} were read as one cell",
+                                      "close the quote (\") or remove it"))
+            elif rowlike:
+                problems.append(error(source, first, None, None,
+                                      f"a quoted cell runs over lines {first}-{end} and swallows what look like rows",
+                                      "a quote (\") is probably left open on this line; close or remove it"))
+            else:
+                problems.append(warning(source, first, None, None, f"a quoted cell runs over lines {first}-{end}",
+                                        "line breaks inside a cell are kept; check that no quote was left open"))
     if header is None:
         problems.append(error(source, None, None, None, "the file is empty (no header row)",
                               "start from the template written by 'drivecase new'"))
-        return RawTable(table, source, pd.DataFrame(), pd.Series(dtype=int).to_numpy()), problems
+        return _empty_table(table, source), problems
     names, shown, rename_problems = _rename(table, source, header)
     problems += rename_problems
     frame = pd.DataFrame(records, columns=names, dtype=object)
     frame = frame.map(lambda c: None if c is None or str(c).strip() == "" else str(c).strip())
+    frame = _drop_blank_header_columns(frame)
     if delimiter != ",":
         problems.append(warning(source, None, None, repr(delimiter),
                                 "the file uses a non-comma delimiter; it was detected and read",
                                 "decimal commas in numbers are read as decimal points"))
-    raw = RawTable(table, source, frame, pd.array(rows, dtype="int64").to_numpy(), shown)
+    raw = RawTable(table, source, frame, np.asarray(rows, dtype=np.int64), shown)
     return raw, problems
 
 
-def read_csv_table(path: Path, table: str) -> tuple[RawTable, list[Problem]]:
-    """Read one CSV table of a case folder."""
-    text, problems = decode_text(read_bytes(path), path.name)
-    raw, more = parse_csv_text(text, table, path.name)
+_COMMENT_OR_BLANK = re.compile(r"(?m)^[ \t]*(#|\r?$)")
+_LONE_CR = re.compile(r"\r(?!\n)")
+
+
+def _parse_plain_csv(data: bytes, text: str, encoding: str, table: str,
+                     source: str) -> tuple[RawTable | None, list[Problem]]:
+    """Parse a large, plain CSV (no quotes, comments, blank lines or lone CR) with pandas' C reader.
+
+    Returns ``(None, [])`` when the file is not plain or a row has more cells than the header, so the
+    line-by-line reader (which names the offending line) takes over.
+    """
+    body = text.rstrip("\r\n")
+    if '"' in text or _COMMENT_OR_BLANK.search(body) or _LONE_CR.search(text) or not body:
+        return None, []
+    delimiter = _sniff_delimiter(_header_line(text))
+    codec = "utf-8-sig" if encoding == "utf-8" else encoding
+    try:
+        cells = pd.read_csv(io.BytesIO(data), sep=delimiter, header=None, dtype=str, keep_default_na=False,
+                            na_filter=False, encoding=codec, engine="c", skip_blank_lines=False)
+    except (pd.errors.ParserError, ValueError, UnicodeDecodeError):
+        return None, []
+    header = [str(h) for h in cells.iloc[0].tolist()]
+    names, shown, problems = _rename(table, source, header)
+    frame = cells.iloc[1:].reset_index(drop=True)
+    frame.columns = names
+    for column in frame.columns:
+        stripped = frame[column].str.strip()
+        frame[column] = stripped.mask(stripped == "")
+    frame = _drop_blank_header_columns(frame)
+    if delimiter != ",":
+        problems.append(warning(source, None, None, repr(delimiter),
+                                "the file uses a non-comma delimiter; it was detected and read",
+                                "decimal commas in numbers are read as decimal points"))
+    rows = np.arange(2, len(frame) + 2, dtype=np.int64)
+    return RawTable(table, source, frame, rows, shown), problems
+
+
+def read_csv_table(path: Path, table: str, source: str | None = None) -> tuple[RawTable, list[Problem]]:
+    """Read one CSV table of a case folder; every failure is a problem (the table is then unreadable)."""
+    source = source or path.name
+    data, problems = read_file(path, source, MAX_TEXT_BYTES,
+                               "save long profiles as profiles.parquet, or split the case")
+    if data is None:
+        return _empty_table(table, source), problems
+    if not data.strip():
+        return _empty_table(table, source), problems + [
+            error(source, None, None, None, "the file is empty (no header row)",
+                  "start from the template written by 'drivecase new'")]
+    text, more, encoding = _decode(data, source)
+    problems += more
+    if text is None:
+        return _empty_table(table, source), problems
+    if len(data) >= FAST_CSV_BYTES:
+        raw, more = _parse_plain_csv(data, text, encoding, table, source)
+        if raw is not None:
+            return raw, problems + more
+    raw, more = parse_csv_text(text, table, source)
     return raw, problems + more
 
 
-def read_parquet_table(path: Path, table: str) -> tuple[RawTable, list[Problem]]:
-    """Read one Parquet table (long profiles) of a case folder."""
+def read_parquet_table(path: Path, table: str, source: str | None = None) -> tuple[RawTable, list[Problem]]:
+    """Read one Parquet table (long profiles) of a case folder; a damaged file is a problem."""
+    source = source or path.name
+    data, problems = read_file(path, source, MAX_FILE_BYTES, "split the profiles over fewer years or assets")
+    if data is None:
+        return _empty_table(table, source), problems
     try:
-        frame = pd.read_parquet(path)
+        frame = pd.read_parquet(io.BytesIO(data))
     except Exception as exc:  # pyarrow raises several unrelated types for a damaged file
-        return (RawTable(table, path.name, pd.DataFrame(), pd.array([], dtype="int64").to_numpy()),
-                [error(path.name, None, None, None, f"the file cannot be read as Parquet ({exc.__class__.__name__})",
-                       "export it again, or save it as CSV")])
-    names, shown, problems = _rename(table, path.name, list(frame.columns))
+        return (_empty_table(table, source),
+                problems + [error(source, None, None, None, f"the file cannot be read as Parquet ({exc.__class__.__name__})",
+                                  "export it again, or save it as CSV")])
+    if not isinstance(frame.index, pd.RangeIndex) or any(n is not None for n in frame.index.names):
+        frame = frame.reset_index()  # a timestamp or id saved as the index is a column to us
+    names, shown, more = _rename(table, source, list(frame.columns))
     frame.columns = names
-    rows = pd.RangeIndex(2, len(frame) + 2).to_numpy()
-    return RawTable(table, path.name, frame.reset_index(drop=True), rows, shown), problems
+    rows = np.arange(2, len(frame) + 2, dtype=np.int64)
+    return RawTable(table, source, frame.reset_index(drop=True), rows, shown), problems + more
 
 
-def read_toml_file(path: Path) -> tuple[dict, list[Problem]]:
+def read_toml_file(path: Path, source: str | None = None) -> tuple[dict, list[Problem]]:
     """Read a TOML file into a dict; a syntax error becomes a problem naming the line."""
-    text, problems = decode_text(read_bytes(path), path.name)
+    source = source or path.name
+    data, problems = read_file(path, source, MAX_TEXT_BYTES, "a settings or tariff file is a few kB: is this the right file?")
+    if data is None:
+        return {}, problems
+    text, more, _ = _decode(data, source)
+    problems += more
+    if text is None:
+        return {}, problems
+    return parse_toml_text(text, source, problems)
+
+
+def parse_toml_text(text: str, source: str, problems: list[Problem] | None = None,
+                    hint: str = "check quotes, brackets and '=' signs on that line") -> tuple[dict, list[Problem]]:
+    """Parse TOML text; a syntax error becomes a problem naming the line (row = line number)."""
+    problems = list(problems or [])
     try:
         return tomllib.loads(text), problems
     except tomllib.TOMLDecodeError as exc:
+        message = getattr(exc, "msg", None) or str(exc)
         line = getattr(exc, "lineno", None)
-        return {}, problems + [error(path.name, line, None, None, f"TOML syntax error: {exc.msg if hasattr(exc, 'msg') else exc}",
-                                     "check quotes, brackets and '=' signs on that line")]
+        if line is None:
+            found = _TOML_LINE.search(str(exc))
+            line = int(found.group(1)) if found else None
+        return {}, problems + [error(source, line, None, None, f"TOML syntax error: {message}", hint)]
 
 
 # ---------------------------------------------------------------------------------------------------
 # Workbook
 # ---------------------------------------------------------------------------------------------------
+#: Error values a spreadsheet stores as a formula's result.
+SPREADSHEET_ERRORS: tuple[str, ...] = ("#DIV/0!", "#N/A", "#NAME?", "#NULL!", "#NUM!", "#REF!", "#VALUE!",
+                                       "#GETTING_DATA", "#SPILL!", "#CALC!")
+
+
 def _sheet_lookup(names: list[str]) -> dict[str, str]:
-    return {normalise_header(n): n for n in names}
+    lookup: dict[str, str] = {}
+    for name in names:
+        lookup.setdefault(normalise_header(name), name)
+    return lookup
+
+
+def _has_formulas(data: bytes) -> bool:
+    """True when any worksheet of an .xlsx package holds a formula (an ``<f>`` element)."""
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as package:
+            for name in package.namelist():
+                if name.startswith("xl/worksheets/") and name.endswith(".xml"):
+                    body = package.read(name)
+                    if b"<f>" in body or b"<f " in body or b":f>" in body or b":f " in body:
+                        return True
+    except (zipfile.BadZipFile, OSError, KeyError, ValueError):
+        return False
+    return False
+
+
+def _merged_fill(sheet, source: str, problems: list[Problem], max_cells: int = 1_000_000) -> dict[tuple[int, int], object]:
+    """Spread each merged block's value over its cells (a flagged repair); return (row, col) -> value."""
+    fill: dict[tuple[int, int], object] = {}
+    ranges = list(sheet.merged_cells.ranges)
+    if not ranges:
+        return fill
+    max_row, max_col = sheet.max_row, sheet.max_column
+    for block in ranges:
+        value = sheet.cell(block.min_row, block.min_col).value
+        for r in range(block.min_row, min(block.max_row, max_row) + 1):
+            for c in range(block.min_col, min(block.max_col, max_col) + 1):
+                if (r, c) != (block.min_row, block.min_col) and len(fill) < max_cells:
+                    fill[(r, c)] = value
+    shown = ", ".join(str(r) for r in ranges[:5]) + (f" and {len(ranges) - 5} more" if len(ranges) > 5 else "")
+    problems.append(warning(source, None, None, shown,
+                            "merged cells were found; below the header, every cell of a merged block was given the block's value",
+                            "unmerge the cells so each row carries its own value, and check the result"))
+    return fill
+
+
+def _formula_cells(formula_sheet, value_sheet) -> dict[tuple[int, int], bool]:
+    """Return (row, col) -> whether a saved result exists, for every formula cell of a sheet."""
+    out: dict[tuple[int, int], bool] = {}
+    if formula_sheet is None:
+        return out
+    for row in formula_sheet.iter_rows():
+        for cell in row:
+            if cell.data_type == "f" or (isinstance(cell.value, str) and cell.value.startswith("=")):
+                cached = value_sheet.cell(cell.row, cell.column).value
+                out[(cell.row, cell.column)] = cached is not None
+    return out
+
+
+def _hidden_rows(sheet) -> set[int]:
+    return {int(r) for r, dim in sheet.row_dimensions.items() if getattr(dim, "hidden", False)}
 
 
 def read_workbook(path: Path) -> RawCase:
-    """Read a case workbook: one sheet per table, plus an optional ``case`` sheet of settings."""
+    """Read a case workbook: one sheet per table, plus an optional ``case`` sheet of settings.
+
+    Cell values are read, never formulas evaluated or macros run: a formula cell gives its last saved
+    result (with a warning), or a blank (with a warning) when the file holds none. Merged blocks give
+    every cell the block's value, hidden rows and sheets are read, and sheets outside the format are
+    ignored, each with a warning.
+    """
     from openpyxl import load_workbook  # imported here: only workbook cases need it
 
     case = RawCase(path=path, kind="workbook", settings_source=f"{path.name}:case")
-    data = read_bytes(path)
+    data, problems = read_file(path, path.name, MAX_WORKBOOK_BYTES,
+                               "use a case folder with profiles.parquet for long profiles")
+    case.problems += problems
+    if data is None:
+        return case
+    if not data.startswith(b"PK\x03\x04"):
+        kind = _signature(data)
+        what = (f"is {kind}" if kind else "is not an .xlsx workbook (no zip package inside)")
+        what = f"cannot be opened: it {what}"
+        hint = ("open it in a spreadsheet program and save it as .xlsx" if kind and "xls" in kind
+                else "save the workbook again from a spreadsheet program as .xlsx")
+        case.problems.append(error(path.name, None, None, None, f"the workbook {what}", hint))
+        return case
     try:
         book = load_workbook(io.BytesIO(data), read_only=False, data_only=True)
+        formula_book = (load_workbook(io.BytesIO(data), read_only=False, data_only=False)
+                        if _has_formulas(data) else None)
     except Exception as exc:  # openpyxl raises zipfile, KeyError or its own errors for a damaged book
         case.problems.append(error(path.name, None, None, None,
                                    f"the workbook cannot be opened ({exc.__class__.__name__})",
                                    "save it again from a spreadsheet program as .xlsx"))
         return case
+    try:
+        _read_sheets(book, formula_book, path, case)
+    finally:
+        book.close()
+        if formula_book is not None:
+            formula_book.close()
+    return case
+
+
+def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
     sheets = _sheet_lookup(book.sheetnames)
+    for name in book.sheetnames:
+        if sheets[normalise_header(name)] != name:
+            case.problems.append(warning(f"{path.name}:{name}", None, None, None,
+                                         f"two sheets are named '{name}' apart from case or spaces; only '{sheets[normalise_header(name)]}' was read",
+                                         "delete or rename one of them"))
     known = set(CASE_TABLES) | {"case", "finance", "instructions", "read me", "readme"}
     for key, name in sheets.items():
         if key not in known and not key.startswith("tariff"):
@@ -302,11 +732,12 @@ def read_workbook(path: Path) -> RawCase:
             continue
         sheet = book[sheets[table]]
         source = f"{path.name}:{sheets[table]}"
-        if sheet.merged_cells.ranges:
-            case.problems.append(warning(source, None, None, ", ".join(str(r) for r in list(sheet.merged_cells.ranges)[:5]),
-                                         "merged cells were found; only the top-left cell of each keeps its value",
-                                         "unmerge the cells so each row carries its own value"))
-        raw, problems = _sheet_table(sheet, table, source)
+        if sheet.sheet_state != "visible":
+            case.problems.append(warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
+                                         "unhide it to check what it holds"))
+        fill = _merged_fill(sheet, source, case.problems)
+        formulas = _formula_cells(formula_book[sheets[table]] if formula_book is not None else None, sheet)
+        raw, problems = _sheet_table(sheet, table, source, fill, formulas, _hidden_rows(sheet))
         case.tables[table] = raw
         case.problems += problems
     if "case" in sheets:
@@ -324,21 +755,31 @@ def read_workbook(path: Path) -> RawCase:
         if key.startswith("tariff"):
             text = "\n".join(str(r[0]) for r in book[name].iter_rows(values_only=True) if r and r[0] is not None)
             file_name = name.split(" ", 1)[1].strip() if " " in name else f"{name}.toml"
-            try:
-                case.tariffs[file_name] = tomllib.loads(text)
-            except tomllib.TOMLDecodeError as exc:
-                case.problems.append(error(f"{path.name}:{name}", None, None, None, f"TOML syntax error: {exc}",
-                                           "each row of column A holds one line of the tariff file"))
-    book.close()
-    return case
+            data, problems = parse_toml_text(text, f"{path.name}:{name}", hint="each row of column A holds one line of the tariff file")
+            case.problems += problems
+            if has_errors(problems):
+                case.unreadable_tariffs.add(file_name)
+            else:
+                case.tariffs[file_name] = data
 
 
-def _sheet_table(sheet, table: str, source: str) -> tuple[RawTable, list[Problem]]:
+def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formulas: dict | None = None,
+                 hidden: set[int] | None = None) -> tuple[RawTable, list[Problem]]:
     """Turn one worksheet into a RawTable; comment rows (first cell starting with #) are skipped."""
+    fill, formulas, hidden = fill or {}, formulas or {}, hidden or set()
+    fill_by_row: dict[int, list[tuple[int, object]]] = {}
+    for (r, c), value in fill.items():
+        fill_by_row.setdefault(r, []).append((c, value))
     header: list[object] | None = None
+    header_row = 0
     records: list[list[object]] = []
     rows: list[int] = []
     for row_no, values in enumerate(sheet.iter_rows(values_only=True), start=1):
+        if header is not None and row_no in fill_by_row:  # a merged header spans columns: not spread
+            values = list(values)
+            for c, value in fill_by_row[row_no]:
+                if c <= len(values):
+                    values[c - 1] = value
         if values is None or all(v is None or (isinstance(v, str) and not v.strip()) for v in values):
             continue
         first = values[0]
@@ -348,17 +789,41 @@ def _sheet_table(sheet, table: str, source: str) -> tuple[RawTable, list[Problem
             header = list(values)
             while header and (header[-1] is None or str(header[-1]).strip() == ""):
                 header.pop()
+            header_row = row_no
             continue
         cells = list(values[: len(header)]) + [None] * max(0, len(header) - len(values))
         records.append([None if (isinstance(v, str) and not v.strip()) else (v.strip() if isinstance(v, str) else v) for v in cells])
         rows.append(row_no)
     if header is None:
-        return (RawTable(table, source, pd.DataFrame(), pd.array([], dtype="int64").to_numpy()),
+        return (_empty_table(table, source),
                 [error(source, None, None, None, "the sheet is empty (no header row)",
                        "start from the workbook written by 'drivecase new --workbook'")])
     names, shown, problems = _rename(table, source, header)
     frame = pd.DataFrame(records, columns=names, dtype=object)
-    return RawTable(table, source, frame, pd.array(rows, dtype="int64").to_numpy(), shown), problems
+    frame = _drop_blank_header_columns(frame)
+    header_text = {c: ("" if h is None else str(h).strip()) or f"(blank header {c})" for c, h in enumerate(header, start=1)}
+    data_rows = set(rows)
+    blank_formulas = sorted((r, c) for (r, c), cached in formulas.items() if not cached and r in data_rows and c in header_text)
+    for r, c in blank_formulas[:20]:
+        problems.append(warning(source, r, header_text[c], None,
+                                "the cell holds a formula with no saved result; it was read as blank",
+                                "drivecase never recalculates formulas: open and save the workbook in a spreadsheet "
+                                "program, or paste the values"))
+    if len(blank_formulas) > 20:
+        problems.append(warning(source, None, None, None,
+                                f"{len(blank_formulas) - 20} more formula cells with no saved result were read as blank"))
+    cached = sum(1 for (r, c), has in formulas.items() if has and (r in data_rows or r == header_row) and c in header_text)
+    if cached:
+        problems.append(warning(source, None, None, cached,
+                                f"{cached} cell(s) hold formulas; their last saved results were used",
+                                "drivecase never recalculates formulas: save the workbook after editing"))
+    hidden_data = sorted(data_rows & hidden)
+    if hidden_data:
+        shown_rows = ", ".join(str(r) for r in hidden_data[:10]) + (" ..." if len(hidden_data) > 10 else "")
+        problems.append(warning(source, hidden_data[0], None, shown_rows,
+                                f"{len(hidden_data)} hidden row(s) were read like the others (rows {shown_rows})",
+                                "delete rows that should not count; hiding or filtering does not remove them"))
+    return RawTable(table, source, frame, np.asarray(rows, dtype=np.int64), shown), problems
 
 
 def _settings_sheet(sheet) -> dict:
@@ -377,40 +842,98 @@ def _settings_sheet(sheet) -> dict:
 # ---------------------------------------------------------------------------------------------------
 # Folder
 # ---------------------------------------------------------------------------------------------------
+#: File kinds in a case folder that look like case input; others (README, notes) are passed over.
+_CASE_LIKE_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".toml", ".xlsx", ".xlsm", ".xls", ".ods", ".json")
+
+
+def _folder_files(path: Path) -> tuple[dict[str, Path], list[Problem]]:
+    """Return lower-case file name -> path for the files of a folder (exact-case names win)."""
+    try:
+        entries = sorted(path.iterdir())
+    except OSError as exc:
+        return {}, [error(str(path), None, None, None, f"the case folder cannot be listed ({exc.strerror or exc.__class__.__name__})",
+                          "check that you may read the folder")]
+    files: dict[str, Path] = {}
+    for entry in entries:
+        try:
+            if not entry.is_file():
+                continue
+        except OSError:
+            continue
+        key = entry.name.lower()
+        if key not in files or entry.name == key:
+            files[key] = entry
+    return files, []
+
+
 def read_folder(path: Path) -> RawCase:
-    """Read a case folder: ``case.toml``, one CSV per table (Parquet allowed for profiles), ``tariffs/``."""
+    """Read a case folder: ``case.toml``, one CSV per table (Parquet allowed), ``tariffs/``, ``finance.toml``.
+
+    File names are matched without regard to case (``Assets.CSV`` is the asset register). Files that
+    look like case input but are not part of the format are reported as warnings, with the closest
+    expected name.
+    """
     case = RawCase(path=path, kind="folder")
-    settings_path = path / "case.toml"
-    if settings_path.is_file():
-        case.settings, problems = read_toml_file(settings_path)
+    files, problems = _folder_files(path)
+    case.problems += problems
+    used: set[str] = set()
+    if "case.toml" in files:
+        used.add("case.toml")
+        case.settings, problems = read_toml_file(files["case.toml"], files["case.toml"].name)
         case.problems += problems
     for table in CASE_TABLES:
-        csv_path = path / f"{table}.csv"
-        parquet_path = path / f"{table}.parquet"
-        if csv_path.is_file() and parquet_path.is_file():
-            case.problems.append(error(f"{table}.csv", None, None, None,
-                                       f"both {table}.csv and {table}.parquet are present",
+        csv_path, parquet_path = files.get(f"{table}.csv"), files.get(f"{table}.parquet")
+        used |= {f"{table}.csv", f"{table}.parquet"}
+        if csv_path is not None and parquet_path is not None:
+            case.problems.append(error(csv_path.name, None, None, None,
+                                       f"both {csv_path.name} and {parquet_path.name} are present",
                                        "keep one of them"))
+            case.tables[table] = _empty_table(table, csv_path.name)
             continue
-        if csv_path.is_file():
-            raw, problems = read_csv_table(csv_path, table)
-        elif parquet_path.is_file():
-            raw, problems = read_parquet_table(parquet_path, table)
+        if csv_path is not None:
+            raw, problems = read_csv_table(csv_path, table, csv_path.name)
+        elif parquet_path is not None:
+            raw, problems = read_parquet_table(parquet_path, table, parquet_path.name)
         else:
             continue
         case.tables[table] = raw
         case.problems += problems
     tariff_dir = path / "tariffs"
     if tariff_dir.is_dir():
-        for tariff_path in sorted(tariff_dir.glob("*.toml")):
-            data, problems = read_toml_file(tariff_path)
+        tariff_files, problems = _folder_files(tariff_dir)
+        case.problems += problems
+        for key in sorted(tariff_files):
+            tariff_path = tariff_files[key]
+            source = f"tariffs/{tariff_path.name}"
+            if tariff_path.suffix.lower() != ".toml":
+                if not tariff_path.name.startswith((".", "~$")):
+                    case.problems.append(warning(source, None, None, None, "not a .toml file; it was ignored",
+                                                 "tariff files are TOML text ending in .toml (see docs/tariffs.md)"))
+                continue
+            data, problems = read_toml_file(tariff_path, source)
             case.problems += problems
-            if data:
+            if has_errors(problems):
+                case.unreadable_tariffs.add(tariff_path.name)
+            else:
                 case.tariffs[tariff_path.name] = data
-    for extra in ("finance.toml",):
-        extra_path = path / extra
-        if extra_path.is_file():
-            case.extra[extra] = extra_path
+    elif tariff_dir.exists():
+        case.problems.append(warning("tariffs", None, None, None, "'tariffs' is not a folder; it was ignored",
+                                     "put tariff files in a folder named tariffs"))
+    if "finance.toml" in files:
+        used.add("finance.toml")
+        case.extra["finance.toml"] = files["finance.toml"]
+    expected = sorted(used | {f"{t}.csv" for t in CASE_TABLES})
+    for key, file_path in files.items():
+        if key in used or file_path.name.startswith((".", "~$")) or file_path.suffix.lower() not in _CASE_LIKE_SUFFIXES:
+            continue
+        close = difflib.get_close_matches(key, expected, n=1, cutoff=0.6)
+        if file_path.suffix.lower() in WORKBOOK_SUFFIXES:
+            hint = f"a workbook is read as a case when you give its path: drivecase check {file_path}"
+        elif close:
+            hint = f"did you mean {close[0]}?"
+        else:
+            hint = f"case files are: {', '.join(f'{t}.csv' for t in CASE_TABLES)}, case.toml, finance.toml"
+        case.problems.append(warning(file_path.name, None, None, None, "file not part of the case format; it was ignored", hint))
     return case
 
 
@@ -426,11 +949,11 @@ def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:
     problems : list of Problem
     """
     if raw.kind == "folder":
-        path = raw.path / "finance.toml"
-        if not path.is_file():
+        path = raw.extra.get("finance.toml")
+        if not isinstance(path, Path) or not path.is_file():
             return {}, "finance.toml", []
-        data, problems = read_toml_file(path)
-        return data, "finance.toml", problems
+        data, problems = read_toml_file(path, path.name)
+        return data, path.name, problems
     if raw.kind == "workbook":
         return dict(raw.extra.get("finance", {})), f"{raw.path.name}:finance", []
     return {}, "finance.toml", []
@@ -439,7 +962,23 @@ def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:
 def read_default_options() -> tuple[RawTable, list[Problem]]:
     """Read the default options catalogue shipped in ``data/defaults/options.csv`` (illustrative prices)."""
     raw, problems = read_csv_table(DEFAULT_OPTIONS_PATH, "options")
-    return RawTable("options", "default options catalogue", raw.frame, raw.rows, raw.headers), problems
+    return RawTable("options", "default options catalogue", raw.frame, raw.rows, raw.headers, raw.readable), problems
+
+
+def _not_a_case(path: Path) -> str:
+    """Explain why a path is not a case, by what it is."""
+    suffix = path.suffix.lower()
+    if suffix in (".csv", ".tsv", ".txt", ".parquet"):
+        return f"is one file, not a case; give the folder that holds the case's tables ({path.parent})"
+    if suffix == ".xls":
+        return "is an old-format Excel workbook (.xls); open it in a spreadsheet program and save it as .xlsx"
+    if suffix == ".ods":
+        return "is an OpenDocument spreadsheet; save it as .xlsx"
+    if suffix == ".zip":
+        return "is a zip archive; unpack it and give the folder"
+    if suffix == ".toml":
+        return f"is a settings file; give the folder that holds it ({path.parent})"
+    return "is neither a folder nor an .xlsx workbook"
 
 
 def read_case_files(path: str | Path) -> RawCase:
@@ -448,27 +987,46 @@ def read_case_files(path: str | Path) -> RawCase:
     Parameters
     ----------
     path : str or pathlib.Path
-        A case folder, or a workbook file ending in ``.xlsx``.
+        A case folder, or a workbook file ending in ``.xlsx`` (or ``.xlsm``; macros are never run).
 
     Returns
     -------
     RawCase
         The tables as read plus any problems met while reading (a missing case, an unreadable file,
-        a missing required table).
+        a missing required table). Reading never raises for bad input.
     """
-    path = Path(path)
-    if path.is_dir():
+    try:
+        path = Path(path)
+        is_dir, is_file = path.is_dir(), path.is_file()
+    except (OSError, ValueError, TypeError) as exc:
+        case = RawCase(path=Path("."), kind="missing")
+        case.problems.append(error(str(path), None, None, None, f"the case path cannot be used ({exc.__class__.__name__}: {exc})",
+                                   "give a case folder or a .xlsx workbook"))
+        return case
+    if is_dir:
         case = read_folder(path)
-    elif path.is_file() and path.suffix.lower() == ".xlsx":
+    elif is_file and path.suffix.lower() in WORKBOOK_SUFFIXES:
         case = read_workbook(path)
     else:
         case = RawCase(path=path, kind="missing")
-        what = "does not exist" if not path.exists() else "is neither a folder nor an .xlsx workbook"
+        what = "does not exist" if not path.exists() else _not_a_case(path)
         case.problems.append(error(str(path), None, None, None, f"the case {what}",
                                    "give a case folder or a .xlsx workbook; 'drivecase new DIR' writes a blank one"))
         return case
+    if case.kind == "folder" and not case.tables and not has_errors(case.problems):
+        try:
+            held = sorted(p.name for p in path.iterdir())
+        except OSError:
+            held = []
+        books = [n for n in held if n.lower().endswith(WORKBOOK_SUFFIXES)]
+        hint = (f"the folder holds the workbook {books[0]}: give its path as the case" if books else
+                f"the folder holds {', '.join(held[:6]) + (' ...' if len(held) > 6 else '') if held else 'nothing'}; "
+                "'drivecase new DIR' writes a blank case")
+        case.problems.append(error(str(path), None, None, None,
+                                   "the folder holds no case tables (no assets.csv, sites.csv ...)", hint))
+        return case
     for table in REQUIRED_TABLES:
-        if table not in case.tables:
+        if table not in case.tables and not (case.kind == "workbook" and has_errors(case.problems) and not case.tables):
             where = f"{table}.csv" if case.kind == "folder" else f"{path.name}:{table}"
             case.problems.append(error(where, None, None, None, f"the required table '{table}' is missing",
                                        f"add {table}.csv (or a sheet '{table}'); 'drivecase new' writes a template"))
