@@ -148,7 +148,88 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
     return meters, bills[cols]
 
 
-def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None) -> BillSavings:
+def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr."""
+    n_o = p_site.shape[0]
+    js, os_ = [], []
+    for j in range(p_site.shape[1]):
+        opts = np.flatnonzero(applies[j] & (np.arange(n_o) > 0))
+        if not len(opts):
+            continue
+        changed = opts[(np.abs(p_site[opts, j] - p_site[0, j]).max(axis=1) > 0)
+                       | (np.abs(q_site[opts, j] - q_site[0, j]).max(axis=1) > 0)]
+        js.append(np.full(len(changed), j))
+        os_.append(changed)
+    if not js:
+        return np.zeros(0, dtype=int), np.zeros(0, dtype=int)
+    return np.concatenate(js), np.concatenate(os_)
+
+
+def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_site, q_site, applies: np.ndarray,
+                 technologies: np.ndarray, capacitor_cost_per_kvar: float, block_scenarios: int | None = None) -> dict:
+    """Price every asset-option of one site by the bill change when only that asset changes.
+
+    Parameters
+    ----------
+    setup : SiteSetup
+        The site's tariff, banks and base load.
+    index : pandas.DatetimeIndex
+        Analysis index; ``interval_h`` its interval [h].
+    p_site, q_site : numpy.ndarray, shape (n_options, n_site_assets, n_steps)
+        Power of the site's assets under every option [kW], [kVAr] (option 0 = today's motors).
+    applies : numpy.ndarray of bool, shape (n_site_assets, n_options)
+    technologies : numpy.ndarray of str, shape (n_options,)
+    capacitor_cost_per_kvar : float
+        Installed cost of an automatic capacitor bank [currency/kVAr].
+    block_scenarios : int, optional
+        Asset-options billed together; default ``billing._CHUNK_ELEMENTS // n_steps`` (memory bound of
+        about 8 x 8 bytes x 2**22 per block whatever the site size).
+
+    Returns
+    -------
+    dict
+        ``saving`` (n, n_options, n_components), ``reactive_saving``, ``equivalent_bank_q_kvar``,
+        ``equivalent_bank_cost`` (n, n_options), as in :class:`BillSavings`.
+
+    Notes
+    -----
+    Same prices as :func:`models.attribution.option_savings` asset by asset (each scenario row of a bill
+    is priced on its own), but every changed asset-option of the site is billed in blocks of
+    ``block_scenarios`` rows, and the equivalent capacitor bank's saving curve, which depends only on the
+    site's baseline meter, is built once per site and read for every reactive option.
+    """
+    n_s, n_o = p_site.shape[1], p_site.shape[0]
+    saving = np.zeros((n_s, n_o, len(SAVING_COMPONENTS)))
+    reactive = np.zeros((n_s, n_o))
+    bank_q = np.full((n_s, n_o), np.nan)
+    bank_cost = np.full((n_s, n_o), np.nan)
+    js, os_ = _changed_pairs(p_site, q_site, applies)
+    if not len(js):
+        return dict(saving=saving, reactive_saving=reactive, equivalent_bank_q_kvar=bank_q, equivalent_bank_cost=bank_cost)
+    p0 = p_site[0].sum(axis=0)
+    q0 = q_site[0].sum(axis=0)
+    n_t = p_site.shape[2]
+    block = int(block_scenarios) if block_scenarios else max(1, billing._CHUNK_ELEMENTS // max(n_t, 1))
+    for start in range(0, len(js), block):
+        j, o = js[start:start + block], os_[start:start + block]
+        dp = p_site[o, j] - p_site[0, j]
+        dq = q_site[o, j] - q_site[0, j]
+        frame = attribution.option_savings(setup.tariff, index, p0, q0, dp, dq, site=setup.site,
+                                           base_p_kw_profile=setup.base_p_kw_profile, interval_h=interval_h)
+        saving[j, o] = _components(frame)
+        reactive[j, o] = frame["reactive_saving"].to_numpy(dtype=float)
+    is_reactive = np.isin(technologies[os_], REACTIVE_TECHNOLOGIES)
+    if is_reactive.any():
+        j, o = js[is_reactive], os_[is_reactive]
+        q_bank = attribution.equivalent_capacitor_bank_q_kvar(setup.tariff, index, p0, q0, reactive[j, o], site=setup.site,
+                                                              base_p_kw_profile=setup.base_p_kw_profile, interval_h=interval_h)
+        bank_q[j, o] = q_bank
+        bank_cost[j, o] = q_bank * capacitor_cost_per_kvar
+    return dict(saving=saving, reactive_saving=reactive, equivalent_bank_q_kvar=bank_q, equivalent_bank_cost=bank_cost)
+
+
+def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None,
+                 block_scenarios: int | None = None) -> BillSavings:
     """Price every asset-option by the bill change when only that asset changes.
 
     Parameters
@@ -157,6 +238,8 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
     op : models.operation.OperatingResult
     capacitor_cost_per_kvar : float
         Installed cost of an automatic capacitor bank [currency/kVAr], for the equivalent-bank comparison.
+    block_scenarios : int, optional
+        Asset-options billed together (see :func:`site_savings`).
 
     Returns
     -------
@@ -168,30 +251,17 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
     reactive = np.zeros((n_a, n_o))
     bank_q = np.full((n_a, n_o), np.nan)
     bank_cost = np.full((n_a, n_o), np.nan)
-    reactive_options = np.isin(op.technologies, REACTIVE_TECHNOLOGIES)
-    _, baseline_bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
     for site_id, setup in setups.items():
         members = np.flatnonzero(op.site_ids == site_id)
-        p0 = op.p_kw[0, members]
-        q0 = op.q_kvar[0, members]
-        for j in members:
-            opts = np.flatnonzero(op.applies[j] & (np.arange(n_o) > 0))
-            if not len(opts):
-                continue
-            changed = opts[(np.abs(op.p_kw[opts, j] - op.p_kw[0, j]).max(axis=1) > 0)
-                           | (np.abs(op.q_kvar[opts, j] - op.q_kvar[0, j]).max(axis=1) > 0)]
-            for group, cost in ((changed[~reactive_options[changed]], None), (changed[reactive_options[changed]], capacitor_cost_per_kvar)):
-                if not len(group):
-                    continue
-                frame = attribution.option_savings(
-                    setup.tariff, op.index, p0, q0, op.p_kw[group, j] - op.p_kw[0, j], op.q_kvar[group, j] - op.q_kvar[0, j],
-                    site=setup.site, option_names=[str(x) for x in op.option_ids[group]],
-                    capacitor_cost_per_kvar=cost, base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
-                saving[j, group] = _components(frame)
-                reactive[j, group] = frame["reactive_saving"].to_numpy(dtype=float)
-                if cost is not None:
-                    bank_q[j, group] = frame["equivalent_bank_q_kvar"].to_numpy(dtype=float)
-                    bank_cost[j, group] = frame["equivalent_bank_cost"].to_numpy(dtype=float)
+        if not len(members):
+            continue
+        part = site_savings(setup, op.index, op.interval_h, op.p_kw[:, members], op.q_kvar[:, members],
+                            op.applies[members], op.technologies, capacitor_cost_per_kvar, block_scenarios)
+        saving[members] = part["saving"]
+        reactive[members] = part["reactive_saving"]
+        bank_q[members] = part["equivalent_bank_q_kvar"]
+        bank_cost[members] = part["equivalent_bank_cost"]
+    _, baseline_bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
     return BillSavings(SAVING_COMPONENTS, saving, reactive, bank_q, bank_cost, baseline_bills)
 
 

@@ -456,63 +456,110 @@ def _evaluate(option: pd.Series, arr, existing, load: _Load, site_other=None) ->
 
 
 # ---------------------------------------------------------------------------------------------------
-# Orchestration over a case
+# Orchestration over a case: by site, in blocks of assets
 # ---------------------------------------------------------------------------------------------------
-def _site_other(case, baseline_p: np.ndarray, baseline_q: np.ndarray, site_ids: np.ndarray, rows: np.ndarray,
-                index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray]:
-    """Site meter without each asset in ``rows`` (today's fleet, base load and fixed banks) [kW], [kVAr]."""
-    from models.profiles import conform
-
-    p_other = np.zeros((len(rows), baseline_p.shape[1]))
-    q_other = np.zeros_like(p_other)
-    sites = case.sites.set_index("site_id")
-    caps = case.capacitors
-    for site in np.unique(site_ids[rows]):
-        members = site_ids == site
-        total_p = baseline_p[members].sum(axis=0)
-        total_q = baseline_q[members].sum(axis=0)
-        row = sites.loc[site]
-        if row["base_profile_id"] is not None and row["base_profile_id"] in case.profiles:
-            base_p = conform(case.profiles[row["base_profile_id"]], index)[0]
-        else:
-            base_p = np.full(baseline_p.shape[1], float(row["base_p_kw"]))
-        base_q = base_p * np.tan(np.arccos(float(row["base_power_factor"])))
-        fixed = caps[(caps["site_id"] == site) & (caps["control"] == "fixed")]["rated_q_kvar"].sum()
-        for k in np.flatnonzero(site_ids[rows] == site):
-            j = rows[k]
-            p_other[k] = total_p - baseline_p[j] + base_p
-            q_other[k] = total_q - baseline_q[j] + base_q - fixed
-    return p_other, q_other
+#: Largest block of assets the machine models evaluate together, in asset-steps (n_assets x n_steps).
+#: The models' temporaries are each about 8 bytes x this (32 MiB at the default), which bounds memory
+#: whatever the fleet size; 479 assets per block on an hourly year.
+CHUNK_ELEMENTS = 2**22
+#: Keep every option's per-interval power in memory when p_kw and q_kvar together take at most this many
+#: bytes (2 GiB: a 1,000-asset fleet of 11 options on an hourly year takes 1.5 GiB). Above it, today's
+#: motors are kept per interval and the other options are recomputed site by site when asked for
+#: (:class:`SiteIntervalStore`).
+DENSE_INTERVAL_BUDGET_BYTES = 2 * 2**30
 
 
-def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
-    """Run every applicable option of the case's catalogue on every asset.
+def case_index(case) -> pd.DatetimeIndex:
+    """Return the analysis index of a case (:func:`models.profiles.analysis_index` over the profiles in use)."""
+    used = set(case.assets["profile_id"].dropna()) | set(case.sites["base_profile_id"].dropna())
+    return analysis_index(case.profiles, case.settings.time_zone, used)
+
+
+def site_partition(case) -> list[tuple[str, np.ndarray]]:
+    """Return the sites in order of first appearance in the asset register, each with its assets' positions.
+
+    Each site's meter and tariff are independent of the others', so the analysis runs site by site; the
+    positions are in case order, so results merge back into the asset register's order.
+    """
+    site_ids = case.assets["site_id"].to_numpy(dtype=object)
+    order: dict[str, list[int]] = {}
+    for i, s in enumerate(site_ids):
+        order.setdefault(s, []).append(i)
+    return [(s, np.asarray(rows, dtype=int)) for s, rows in order.items()]
+
+
+def asset_blocks(n_assets: int, n_steps: int, chunk_assets: int | None = None) -> list[np.ndarray]:
+    """Split positions 0..n_assets-1 into consecutive blocks of at most ``chunk_assets`` assets.
 
     Parameters
     ----------
-    case : models.case.Case
-        A validated case.
-    index : pandas.DatetimeIndex, optional
-        Analysis index; default :func:`models.profiles.analysis_index` of the case.
-
-    Returns
-    -------
-    OperatingResult
-        Power at the supply per interval and yearly totals for every asset and option.
-
-    Notes
-    -----
-    Order of work: today's motors first (all assets), which gives the site meter without each asset for
-    wound-field machines that follow the site's reactive needs; then each option on the assets it
-    applies to. Shaft load 0 means the motor is stopped (it draws nothing).
+    n_assets, n_steps : int
+        Assets of one site and steps of the analysis year.
+    chunk_assets : int, optional
+        Block size [assets], >= 1; default ``CHUNK_ELEMENTS // n_steps`` (at least 1).
     """
-    from models.options import applicability, capital_cost  # noqa: F401  (capital cost lives with finance)
+    size = int(chunk_assets) if chunk_assets is not None else max(1, CHUNK_ELEMENTS // max(n_steps, 1))
+    if size < 1:
+        raise ValueError("chunk_assets must be >= 1")
+    return [np.arange(start, min(start + size, n_assets)) for start in range(0, n_assets, size)]
 
-    a = case.assets
+
+def site_case(case, site_id: str):
+    """Return the case cut down to one site: its assets, site row, banks, tariff and the profiles they use."""
+    from dataclasses import replace
+
+    assets = case.assets[case.assets["site_id"] == site_id].reset_index(drop=True)
+    sites = case.sites[case.sites["site_id"] == site_id].reset_index(drop=True)
+    used = set(assets["profile_id"].dropna()) | set(sites["base_profile_id"].dropna())
+    info = case.profile_info
+    if isinstance(info, pd.DataFrame) and "profile_id" in info.columns:
+        info = info[info["profile_id"].isin(used)].reset_index(drop=True)
+    defaults = case.defaults
+    if isinstance(defaults, pd.DataFrame) and "asset_id" in defaults.columns:
+        defaults = defaults[defaults["asset_id"].isin(set(assets["asset_id"]))].reset_index(drop=True)
+    tariff_files = set(sites["tariff_file"].dropna()) if "tariff_file" in sites else set()
+    return replace(case, assets=assets, sites=sites,
+                   capacitors=case.capacitors[case.capacitors["site_id"] == site_id].reset_index(drop=True),
+                   profiles={k: v for k, v in case.profiles.items() if k in used}, profile_info=info, defaults=defaults,
+                   tariffs={k: v for k, v in case.tariffs.items() if k in tariff_files})
+
+
+def _site_other(case, site_id: str, total_p: np.ndarray, total_q: np.ndarray, own_p: np.ndarray, own_q: np.ndarray,
+                index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray]:
+    """Site meter without each of some assets of one site (today's fleet, base load, fixed banks) [kW], [kVAr].
+
+    ``total_p``, ``total_q`` are the site's today's totals over all its assets (n_steps,); ``own_p``,
+    ``own_q`` each asset's own today's power (n, n_steps).
+    """
+    from models.profiles import conform
+
+    row = case.sites.set_index("site_id").loc[site_id]
+    if row["base_profile_id"] is not None and row["base_profile_id"] in case.profiles:
+        base_p = conform(case.profiles[row["base_profile_id"]], index)[0]
+    else:
+        base_p = np.full(len(total_p), float(row["base_p_kw"]))
+    base_q = base_p * np.tan(np.arccos(float(row["base_power_factor"])))
+    caps = case.capacitors
+    fixed = caps[(caps["site_id"] == site_id) & (caps["control"] == "fixed")]["rated_q_kvar"].sum()
+    p_other = total_p[None, :] - own_p + base_p
+    q_other = total_q[None, :] - own_q + base_q - fixed
+    return p_other, q_other
+
+
+def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
+                   only_today: bool = False) -> OperatingResult:
+    """Run the options on a block of assets of a one-site case.
+
+    ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
+    block's own totals (the block is the whole site). With ``only_today`` only today's motors run.
+    """
+    from dataclasses import replace
+
+    from models.options import applicability
+
+    a = case.assets.iloc[rows].reset_index(drop=True)
+    block = replace(case, assets=a)
     options = _with_baseline(case.options)
-    if index is None:
-        used = set(a["profile_id"].dropna()) | set(case.sites["base_profile_id"].dropna())
-        index = analysis_index(case.profiles, case.settings.time_zone, used)
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
     arr_all = asset_arrays(a)
@@ -520,7 +567,7 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
     applies, reason = applicability(options, a)
     applies[:, 0] = True
     reason[:, 0] = ""
-    interval_rows, values, is_input, states, notes = asset_loads(case, index)
+    interval_rows, values, is_input, states, notes = asset_loads(block, index)
     state_rows = np.setdiff1d(np.arange(n_a), interval_rows)
     groups = []
     if len(interval_rows):
@@ -528,6 +575,7 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
         existing = existing_motor(arr)
         load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
         groups.append(("interval", interval_rows, arr, existing, load))
+    del values
     if len(state_rows):
         arr = _take(arr_all, state_rows)
         existing = existing_motor(arr)
@@ -550,8 +598,8 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
     site_ids = a["site_id"].to_numpy(dtype=object)
     option_ids = options["option_id"].to_numpy(dtype=object)
 
-    def store(o: int, kind: str, rows: np.ndarray, sub: np.ndarray, pt: _Point, load: _Load) -> None:
-        idx = rows[sub]
+    def store(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt: _Point, load: _Load) -> None:
+        idx = rows_[sub]
         w = load.weight_h
         if kind == "interval":
             p_kw[o, idx] = pt.p_kw
@@ -572,14 +620,16 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
             flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
 
     # today's motors first
-    for kind, rows, arr, existing, load in groups:
+    for kind, rows_, arr, existing, load in groups:
         pt = _evaluate(options.iloc[0], arr, existing, load)
-        store(0, kind, rows, np.arange(len(rows)), pt, load)
-        running_h[rows] = np.where(load.running, load.weight_h, 0.0).sum(axis=1)
-    for o in range(1, n_o):
+        store(0, kind, rows_, np.arange(len(rows_)), pt, load)
+        running_h[rows_] = np.where(load.running, load.weight_h, 0.0).sum(axis=1)
+    if site_totals is None:
+        site_totals = (p_kw[0].sum(axis=0), q_kvar[0].sum(axis=0))
+    for o in range(1, 1 if only_today else n_o):
         option = options.iloc[o]
-        for kind, rows, arr, existing, load in groups:
-            sub = np.flatnonzero(applies[rows, o])
+        for kind, rows_, arr, existing, load in groups:
+            sub = np.flatnonzero(applies[rows_, o])
             if not len(sub):
                 continue
             arr_s = _take(arr, sub)
@@ -588,18 +638,20 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
             existing_s = existing_motor(arr_s)
             site_other = None
             if option["technology"] == "wound_field" and kind == "interval":
-                site_other = _site_other(case, p_kw[0], q_kvar[0], site_ids, rows[sub], index)
+                idx = rows_[sub]
+                site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
+                                         q_kvar[0, idx], index)
             pt = _evaluate(option, arr_s, existing_s, load_s, site_other)
-            store(o, kind, rows, sub, pt, load_s)
+            store(o, kind, rows_, sub, pt, load_s)
             if option["technology"] == "capacitor":
-                cap_q[rows[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
+                cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values
     for o in range(1, n_o):
         off = ~applies[:, o]
         p_kw[o, off] = p_kw[0, off]
         q_kvar[o, off] = q_kvar[0, off]
-        for target, source in ((energy, energy), (shaft_energy, shaft_energy), (lag, lag), (lead, lead), (speed, speed)):
-            target[off, o] = source[off, 0]
+        for target in (energy, shaft_energy, lag, lead, speed):
+            target[off, o] = target[off, 0]
         losses[off, o] = losses[off, 0]
     return OperatingResult(
         index=index, interval_h=interval_h, asset_ids=asset_ids, site_ids=site_ids, option_ids=option_ids,
@@ -609,6 +661,245 @@ def operate(case, index: pd.DatetimeIndex | None = None) -> OperatingResult:
         interval_data=np.isin(np.arange(n_a), interval_rows),
         flags=pd.DataFrame(flags, columns=["asset_id", "option_id", "flag"]),
     )
+
+
+def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None) -> OperatingResult:
+    """Run every option on every asset of a one-site case, in blocks of bounded size.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A case whose assets all belong to one site (:func:`site_case`).
+    index : pandas.DatetimeIndex
+        The analysis index of the whole case (:func:`case_index`), so every site shares one time axis.
+    chunk_assets : int, optional
+        Block size [assets]; see :func:`asset_blocks`.
+
+    Returns
+    -------
+    OperatingResult
+        For the site's assets, in the case's order; per-interval arrays always dense.
+
+    Notes
+    -----
+    A site larger than one block runs twice over its blocks: first today's motors only, which gives the
+    site's meter totals that wound-field machines following the site need, then every option. The
+    result does not depend on the number of blocks except through the solvers' batch-wide tolerances
+    (the speed-coupling fixed point stops when its largest change is below 1e-9 of the largest load of
+    the batch), i.e. to about 1e-9 relative.
+    """
+    sites = case.assets["site_id"].unique()
+    if len(sites) > 1:
+        raise ValueError(f"operate_site takes a one-site case; this one has sites {', '.join(map(str, sites))}")
+    n = len(case.assets)
+    blocks = asset_blocks(n, len(index), chunk_assets)
+    if len(blocks) <= 1:
+        return _operate_block(case, index, np.arange(n))
+    today = [_operate_block(case, index, rows, only_today=True) for rows in blocks]
+    base_p = np.concatenate([part.p_kw[0] for part in today], axis=0)
+    base_q = np.concatenate([part.q_kvar[0] for part in today], axis=0)
+    totals = (base_p.sum(axis=0), base_q.sum(axis=0))
+    del today, base_p, base_q
+    merger = _Merger(n, len(index), dense=True)
+    for rows in blocks:
+        merger.add(rows, _operate_block(case, index, rows, site_totals=totals))
+    return merger.result()
+
+
+class _Merger:
+    """Gathers OperatingResult parts (disjoint sets of asset positions) into one, part by part."""
+
+    def __init__(self, n_assets: int, n_steps: int, dense: bool = True, recompute=None):
+        self.n_a, self.n_t = n_assets, n_steps
+        self.dense = dense
+        self.recompute = recompute
+        self.first: OperatingResult | None = None
+        self.fields: dict[str, np.ndarray] = {}
+        self.flags: list[pd.DataFrame] = []
+        self.flag_pos: list[np.ndarray] = []
+
+    def add(self, rows: np.ndarray, part: OperatingResult) -> None:
+        if self.first is None:
+            self.first = part
+            n_o = len(part.option_ids)
+            shape = (n_o, self.n_a, self.n_t) if self.dense else (self.n_a, self.n_t)
+            self.fields["p_kw"] = np.zeros(shape)
+            self.fields["q_kvar"] = np.zeros(shape)
+            for name in _PER_ASSET_FIELDS:
+                value = getattr(part, name)
+                self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
+        if self.dense:
+            self.fields["p_kw"][:, rows] = part.p_kw
+            self.fields["q_kvar"][:, rows] = part.q_kvar
+        else:
+            self.fields["p_kw"][rows] = part.p_kw[0]
+            self.fields["q_kvar"][rows] = part.q_kvar[0]
+        for name in _PER_ASSET_FIELDS:
+            self.fields[name][rows] = getattr(part, name)
+        if len(part.flags):
+            positions = {aid: int(r) for aid, r in zip(part.asset_ids, rows)}
+            self.flags.append(part.flags)
+            self.flag_pos.append(part.flags["asset_id"].map(positions).to_numpy(dtype=int))
+
+    def result(self) -> OperatingResult:
+        first = self.first
+        f = self.fields
+        flags = pd.DataFrame(columns=["asset_id", "option_id", "flag"])
+        if self.flags:
+            flags = pd.concat(self.flags, ignore_index=True)
+            order = np.argsort(np.concatenate(self.flag_pos), kind="stable")
+            flags = flags.iloc[order].reset_index(drop=True)
+        p, q = f["p_kw"], f["q_kvar"]
+        if not self.dense:
+            n_o = len(first.option_ids)
+            p = SiteIntervalStore(p, n_o, self.recompute, "p_kw")
+            q = SiteIntervalStore(q, n_o, self.recompute, "q_kvar")
+        return OperatingResult(
+            index=first.index, interval_h=first.interval_h, asset_ids=f["asset_ids"], site_ids=f["site_ids"],
+            option_ids=first.option_ids, technologies=first.technologies, applies=f["applies"], reason=f["reason"],
+            p_kw=p, q_kvar=q, energy_kwh=f["energy_kwh"], shaft_energy_kwh=f["shaft_energy_kwh"],
+            losses_kwh=f["losses_kwh"], lagging_kvarh=f["lagging_kvarh"], leading_kvarh=f["leading_kvarh"],
+            running_h=f["running_h"], mean_speed_rpm=f["mean_speed_rpm"], capacitor_q_kvar=f["capacitor_q_kvar"],
+            interval_data=f["interval_data"], flags=flags)
+
+
+_PER_ASSET_FIELDS = ("asset_ids", "site_ids", "applies", "reason", "energy_kwh", "shaft_energy_kwh", "losses_kwh",
+                     "lagging_kvarh", "leading_kvarh", "running_h", "mean_speed_rpm", "capacitor_q_kvar", "interval_data")
+
+
+class _SiteRecompute:
+    """Recomputes one site's per-interval power on demand (the most recent site is kept)."""
+
+    def __init__(self, case, index: pd.DatetimeIndex, chunk_assets: int | None):
+        self.case, self.index, self.chunk_assets = case, index, chunk_assets
+        self.partition = site_partition(case)
+        self.site_of = np.zeros(len(case.assets), dtype=int)
+        self.local = np.zeros(len(case.assets), dtype=int)
+        for k, (_, rows) in enumerate(self.partition):
+            self.site_of[rows] = k
+            self.local[rows] = np.arange(len(rows))
+        self._cached: tuple[int, np.ndarray, np.ndarray] | None = None
+
+    def arrays(self, k: int) -> tuple[np.ndarray, np.ndarray]:
+        if self._cached is None or self._cached[0] != k:
+            self._cached = None
+            op = operate_site(site_case(self.case, self.partition[k][0]), self.index, self.chunk_assets)
+            self._cached = (k, op.p_kw, op.q_kvar)
+        return self._cached[1], self._cached[2]
+
+    def __getstate__(self):
+        state = dict(self.__dict__)
+        state["_cached"] = None
+        return state
+
+
+class SiteIntervalStore:
+    """Per-interval power of every option, shape (n_options, n_assets, n_steps), kept compact for large fleets.
+
+    Today's motors (option 0) are held in memory; any other option is recomputed for its whole site when
+    indexed (the same calculation, so the same numbers), one site at a time. Indexing follows numpy's
+    rules for integer, slice, boolean and integer-array keys on the first two axes (two index arrays are
+    paired, as in ``p_kw[choice, rows]``); ``numpy.asarray`` materialises the whole array.
+    """
+
+    def __init__(self, today: np.ndarray, n_options: int, recompute: _SiteRecompute, quantity: str):
+        self._today = today
+        self._recompute = recompute
+        self._k = 0 if quantity == "p_kw" else 1
+        self.shape = (n_options,) + today.shape
+        self.dtype = today.dtype
+        self.ndim = 3
+
+    def __len__(self) -> int:
+        return self.shape[0]
+
+    @property
+    def nbytes(self) -> int:
+        """Bytes held in memory (today's motors only)."""
+        return int(self._today.nbytes)
+
+    def _rows(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
+        """Values for each (option, asset) pair, shape (len(pairs), n_steps)."""
+        out = np.empty((len(options), self.shape[2]), dtype=self.dtype)
+        today = options == 0
+        out[today] = self._today[assets[today]]
+        rest = np.flatnonzero(~today)
+        if len(rest):
+            sites = self._recompute.site_of[assets[rest]]
+            for k in np.unique(sites):
+                sel = rest[sites == k]
+                arrays = self._recompute.arrays(int(k))
+                out[sel] = arrays[self._k][options[sel], self._recompute.local[assets[sel]]]
+        return out
+
+    def __getitem__(self, key):
+        if not isinstance(key, tuple):
+            key = (key,)
+        if len(key) > 3 or any(k is Ellipsis or k is None for k in key):
+            raise IndexError("SiteIntervalStore takes up to three keys (option, asset, step), without ... or None")
+        ko, ka, kt = key + (slice(None),) * (3 - len(key))
+        o_sel = np.arange(self.shape[0])[ko]
+        a_sel = np.arange(self.shape[1])[ka]
+        if not isinstance(ko, slice) and not isinstance(ka, slice) and np.ndim(o_sel) and np.ndim(a_sel):
+            o_b, a_b = np.broadcast_arrays(o_sel, a_sel)  # paired advanced indexing
+            values = self._rows(o_b.ravel(), a_b.ravel()).reshape(o_b.shape + (self.shape[2],))
+        else:
+            o_flat, a_flat = np.ravel(o_sel), np.ravel(a_sel)
+            o_pair = np.repeat(o_flat, len(a_flat))
+            a_pair = np.tile(a_flat, len(o_flat))
+            values = self._rows(o_pair, a_pair).reshape(np.shape(o_sel) + np.shape(a_sel) + (self.shape[2],))
+        return values[..., kt]
+
+    def __array__(self, dtype=None, copy=None):
+        full = self[:, :]
+        return full if dtype is None else full.astype(dtype)
+
+
+def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | None = None,
+            dense: bool | None = None) -> OperatingResult:
+    """Run every applicable option of the case's catalogue on every asset.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    index : pandas.DatetimeIndex, optional
+        Analysis index; default :func:`case_index`.
+    chunk_assets : int, optional
+        Largest block of assets evaluated together; default from :data:`CHUNK_ELEMENTS`.
+    dense : bool, optional
+        Keep every option's per-interval power in memory (True) or only today's, recomputing the others
+        site by site when indexed (False, :class:`SiteIntervalStore`); default True while p_kw and q_kvar
+        fit in :data:`DENSE_INTERVAL_BUDGET_BYTES`.
+
+    Returns
+    -------
+    OperatingResult
+        Power at the supply per interval and yearly totals for every asset and option.
+
+    Notes
+    -----
+    The fleet is worked site by site (:func:`site_partition`; a site's meter and tariff are its own) and
+    within a site in blocks of at most ``chunk_assets`` assets (:func:`operate_site`). Order of work in a
+    site: today's motors first, which gives the site meter without each asset for wound-field machines
+    that follow the site's reactive needs; then each option on the assets it applies to. Shaft load 0
+    means the motor is stopped (it draws nothing).
+    """
+    index = case_index(case) if index is None else index
+    partition = site_partition(case)
+    n_o = len(_with_baseline(case.options))
+    if dense is None:
+        dense = interval_bytes(len(case.assets), n_o, len(index)) <= DENSE_INTERVAL_BUDGET_BYTES
+    merger = _Merger(len(case.assets), len(index), dense=dense,
+                     recompute=None if dense else _SiteRecompute(case, index, chunk_assets))
+    for site_id, rows in partition:
+        merger.add(rows, operate_site(site_case(case, site_id), index, chunk_assets))
+    return merger.result()
+
+
+def interval_bytes(n_assets: int, n_options: int, n_steps: int) -> int:
+    """Bytes that dense per-interval p_kw and q_kvar take (two float64 arrays)."""
+    return 2 * 8 * int(n_assets) * int(n_options) * int(n_steps)
 
 
 def _with_baseline(options: pd.DataFrame) -> pd.DataFrame:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import contextlib
 import os
 import sys
+import time
 from dataclasses import dataclass, replace
 from typing import Callable
 
@@ -19,8 +20,9 @@ import pandas as pd
 
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
-from models.bill_savings import BillSavings, bill_savings, meter_and_bills, site_setups
-from models.operation import OperatingResult, operate
+from models.bill_savings import SAVING_COMPONENTS, BillSavings, meter_and_bills, site_savings, site_setups
+from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, OperatingResult, _Merger, _SiteRecompute, _with_baseline,
+                              case_index, interval_bytes, operate_site, site_case, site_partition)
 from models.options import capital_cost
 from models.regulations import class_rank, minimum_class
 
@@ -102,14 +104,120 @@ class ScenarioResult:
     bills: pd.DataFrame
 
 
-def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None) -> Physics:
-    """Run the machines on every option and price each asset-option on its site's bill."""
+def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
+                 timer: dict | None = None, today_only: bool = False) -> tuple[OperatingResult, dict]:
+    """Machines and bill savings of a one-site case (:func:`models.operation.site_case`).
+
+    Parameters
+    ----------
+    case : models.case.Case
+        One site's case.
+    index : pandas.DatetimeIndex
+        The whole case's analysis index (:func:`models.operation.case_index`).
+    capacitor_cost_per_kvar : float
+        Installed cost of a capacitor bank [currency/kVAr].
+    chunk_assets : int, optional
+        Block size of the machine models [assets] (:func:`models.operation.asset_blocks`).
+    timer : dict, optional
+        Wall time is added under ``"machines"`` and ``"site bills"`` [s].
+    today_only : bool
+        Return today's motors only in the per-interval arrays (shape (1, n, n_steps)); what a fleet too
+        large to keep every option per interval needs, and a smaller message from a worker.
+
+    Returns
+    -------
+    (OperatingResult, dict)
+        The site's operating result and its :func:`models.bill_savings.site_savings` arrays.
+    """
+    t0 = time.perf_counter()
+    op = operate_site(case, index, chunk_assets)
+    t1 = time.perf_counter()
+    setups = site_setups(case, index)
+    site_id = str(op.site_ids[0])
+    part = site_savings(setups[site_id], index, op.interval_h, op.p_kw, op.q_kvar, op.applies, op.technologies,
+                        capacitor_cost_per_kvar)
+    if timer is not None:
+        timer["machines"] = timer.get("machines", 0.0) + (t1 - t0)
+        timer["site bills"] = timer.get("site bills", 0.0) + (time.perf_counter() - t1)
+    if today_only:
+        op = replace(op, p_kw=op.p_kw[:1].copy(), q_kvar=op.q_kvar[:1].copy())
+    return op, part
+
+
+class PhysicsMerger:
+    """Gathers the per-site physics (any order) into one :class:`Physics` in the asset register's order.
+
+    Memory: one site's dense arrays at a time, plus the fleet's per-interval arrays when they fit
+    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES` (else today's motors only, the other options
+    being recomputed by site when indexed; see :class:`models.operation.SiteIntervalStore`).
+    """
+
+    def __init__(self, case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
+                 dense: bool | None = None):
+        self.case, self.index, self.cost = case, index, float(capacitor_cost_per_kvar)
+        self.partition = site_partition(case)
+        n_a, n_o = len(case.assets), len(_with_baseline(case.options))
+        if dense is None:
+            dense = interval_bytes(n_a, n_o, len(index)) <= DENSE_INTERVAL_BUDGET_BYTES
+        self.ops = _Merger(n_a, len(index), dense=dense,
+                           recompute=None if dense else _SiteRecompute(case, index, chunk_assets))
+        self.arrays = {"saving": np.zeros((n_a, n_o, len(SAVING_COMPONENTS))), "reactive_saving": np.zeros((n_a, n_o)),
+                       "equivalent_bank_q_kvar": np.full((n_a, n_o), np.nan),
+                       "equivalent_bank_cost": np.full((n_a, n_o), np.nan)}
+        self.rows = dict(self.partition)
+
+    def add(self, site_id: str, op: OperatingResult, part: dict) -> None:
+        rows = self.rows[site_id]
+        self.ops.add(rows, op)
+        for name, values in part.items():
+            self.arrays[name][rows] = values
+
+    def result(self) -> Physics:
+        op = self.ops.result()
+        _, baseline_bills = meter_and_bills(self.case, op, np.zeros(len(op.asset_ids), dtype=int))
+        a = self.arrays
+        savings = BillSavings(SAVING_COMPONENTS, a["saving"], a["reactive_saving"], a["equivalent_bank_q_kvar"],
+                              a["equivalent_bank_cost"], baseline_bills)
+        return Physics(op, savings, self.cost)
+
+
+def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None, *,
+            chunk_assets: int | None = None, dense: bool | None = None, timer: dict | None = None) -> Physics:
+    """Run the machines on every option and price each asset-option on its site's bill.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    capacitor_cost_per_kvar : float
+        Installed cost of a capacitor bank [currency/kVAr].
+    progress : callable, optional
+        Called with "machines", then "site bills" once the first site reaches its bills (the two run
+        site by site, interleaved).
+    chunk_assets : int, optional
+        Block size of the machine models [assets]; default from :data:`models.operation.CHUNK_ELEMENTS`.
+    dense : bool, optional
+        Keep every option's per-interval power (see :func:`models.operation.operate`).
+    timer : dict, optional
+        Wall time of the machines and of the site bills is added under those names [s].
+
+    Notes
+    -----
+    Site by site (:func:`site_physics`): a site's meter and tariff are independent of the others', so
+    memory holds one site's per-option arrays at a time, and the Dask engine
+    (:mod:`models.distributed`) runs the same function per site on its workers.
+    """
     step = progress or (lambda _msg: None)
     step("machines")
-    op = operate(case)
-    step("site bills")
-    savings = bill_savings(case, op, capacitor_cost_per_kvar)
-    return Physics(op, savings, capacitor_cost_per_kvar)
+    index = case_index(case)
+    merger = PhysicsMerger(case, index, capacitor_cost_per_kvar, chunk_assets, dense)
+    for k, (site_id, _) in enumerate(merger.partition):
+        op, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, timer,
+                                not merger.ops.dense)
+        if k == 0:
+            step("site bills")
+        merger.add(site_id, op, part)
+        del op, part
+    return merger.result()
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -1,0 +1,176 @@
+"""Write a synthetic (invented) fleet case of any size, for benchmarks and scale tests.
+
+Everything written here is made up: sites, motors, profiles. The generator is seeded, so a given
+(n_assets, n_sites, seed) always gives the same files. What it writes:
+
+- ``case.toml`` (Europe/Berlin, EUR, flagged as invented) and ``finance.toml`` (the demo's assumptions);
+- ``sites.csv``: ``n_sites`` meters, each with a constant non-motor base load at 0.85 PF;
+- ``tariffs/``: one tariff per site, copied in turn from ``data/tariffs/``. Copies are rewritten to the
+  case's zone and currency where they differ (the originals are left untouched), so every example tariff
+  can price a site of the one case;
+- ``capacitors.csv``: a fixed bank on every third site, a stepped bank on every third site;
+- ``assets.csv``: a seeded mix of applications, sizes 0.75 kW to 2 MW (log-uniform), control modes,
+  classes and ages; about 5 % of assets use annual hours and a mean load instead of a profile;
+- ``profiles.parquet``: hourly shaft-load profiles for one year, shared in groups (about one profile per
+  25 assets, each with its own daily and seasonal shape), so the machines see varied loads;
+- no ``options.csv``: the default catalogue applies, every option of it.
+
+Run ``python benchmarks/synthetic_fleet.py OUT --assets 1000`` to write one case folder.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import io
+import re
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[1]
+YEAR = 2025
+ZONE = "Europe/Berlin"
+CURRENCY = "EUR"
+TARIFFS = ("example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml")
+#: (application, load type, share of the fleet, allowed speed controls)
+APPLICATIONS = (
+    ("pump", "variable_torque", 0.35, ("fixed", "throttled", "drive")),
+    ("fan", "variable_torque", 0.20, ("fixed", "throttled", "drive")),
+    ("compressor", "constant_torque", 0.12, ("fixed",)),
+    ("conveyor", "constant_torque", 0.10, ("fixed",)),
+    ("crusher", "constant_torque", 0.05, ("fixed",)),
+    ("mixer", "constant_torque", 0.08, ("fixed",)),
+    ("other", "constant_torque", 0.10, ("fixed", "drive")),
+)
+ASSET_COLUMNS = ["asset_id", "site_id", "description", "application", "load_type", "rated_p_kw", "poles", "supply_f_hz",
+                 "rated_v_v", "efficiency_class", "year_installed", "rewind_count", "speed_control", "profile_id",
+                 "operating_h_per_yr", "mean_load_pct", "criticality"]
+ASSETS_PER_PROFILE = 25
+
+CASE_TOML = '''# INVENTED SYNTHETIC FLEET for benchmarks: every name and number is made up.
+[case]
+name = "Synthetic fleet ({n} assets, {s} sites, invented)"
+description = "Seeded synthetic fleet written by benchmarks/synthetic_fleet.py."
+currency = "EUR"
+power_unit = "kW"
+time_zone = "Europe/Berlin"
+invented = true
+'''
+
+
+def _csv(rows: list[list], columns: list[str]) -> str:
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(columns)
+    writer.writerows([["" if v is None else v for v in row] for row in rows])
+    return buffer.getvalue()
+
+
+def _profiles(rng: np.random.Generator, n_profiles: int) -> pd.DataFrame:
+    index = pd.date_range(f"{YEAR}-01-01", f"{YEAR + 1}-01-01", freq="h", inclusive="left", tz=ZONE)
+    hour = index.hour.to_numpy()
+    weekday = index.day_of_week.to_numpy()
+    season = np.cos(2 * np.pi * (index.day_of_year.to_numpy() - 200) / 365.0)
+    frames = []
+    for k in range(n_profiles):
+        kind = k % 4
+        level = rng.uniform(0.45, 0.85)
+        phase = rng.uniform(0, 24)
+        diurnal = 0.5 * (1 - np.cos(2 * np.pi * (hour - phase) / 24))
+        load = level + rng.uniform(0.0, 0.15) * diurnal + rng.uniform(-0.08, 0.08) * season
+        load = load + rng.normal(0.0, 0.03, len(index))
+        if kind == 1:  # day shifts on weekdays
+            load = np.where((weekday < 5) & (hour >= 6) & (hour < 22), load, 0.0)
+        elif kind == 2:  # cycling on and off
+            load = np.where(rng.random(len(index)) < 0.6, load, 0.0)
+        values = np.where(load > 0, np.clip(load, 0.15, 1.05), 0.0)
+        frames.append(pd.DataFrame({"profile_id": f"P{k:04d}", "timestamp": index,
+                                    "shaft_load_pct": np.round(100 * values, 2), "input_kw": np.nan}))
+    return pd.concat(frames, ignore_index=True)
+
+
+def _tariff_text(name: str) -> str:
+    text = (ROOT / "data" / "tariffs" / name).read_text(encoding="utf-8")
+    text = re.sub(r'(?m)^time_zone = ".*"$', f'time_zone = "{ZONE}"', text)
+    return re.sub(r'(?m)^currency = ".*"$', f'currency = "{CURRENCY}"', text)
+
+
+def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int = 20260601) -> Path:
+    """Write a synthetic case folder with ``n_assets`` motors on ``n_sites`` sites; return its path.
+
+    Parameters
+    ----------
+    target : str or Path
+        Folder to write (created; existing files of the same names are replaced).
+    n_assets : int
+        Number of motors, >= 1.
+    n_sites : int
+        Number of site meters, 1 <= n_sites <= n_assets.
+    seed : int
+        Seed of every random draw.
+    """
+    if n_assets < 1 or not 1 <= n_sites <= n_assets:
+        raise ValueError("need n_assets >= 1 and 1 <= n_sites <= n_assets")
+    rng = np.random.default_rng(seed)
+    out = Path(target)
+    (out / "tariffs").mkdir(parents=True, exist_ok=True)
+    n_profiles = max(1, n_assets // ASSETS_PER_PROFILE)
+    sites, caps = [], []
+    for s in range(n_sites):
+        tariff = TARIFFS[s % len(TARIFFS)]
+        file_name = f"site{s:02d}_{tariff}"
+        (out / "tariffs" / file_name).write_text(_tariff_text(tariff), encoding="utf-8")
+        site_id = f"S{s:02d}"
+        sites.append([site_id, f"Synthetic site {s}", f"M-{s:02d}", file_name, 50.0 + 20.0 * (n_assets / n_sites) ** 0.5, 0.85])
+        if s % 3 == 1:
+            caps.append([site_id, f"{site_id}-C1", 100.0, "fixed", "", ""])
+        elif s % 3 == 2:
+            caps.append([site_id, f"{site_id}-C1", 400.0, "stepped", 50.0, 0.95])
+    shares = np.array([a[2] for a in APPLICATIONS])
+    app_pos = rng.choice(len(APPLICATIONS), size=n_assets, p=shares / shares.sum())
+    rated = np.exp(rng.uniform(np.log(0.75), np.log(2000.0), n_assets)).round(2)
+    site_of = np.sort(rng.integers(0, n_sites, n_assets))
+    site_of[:n_sites] = np.arange(n_sites) if n_assets >= n_sites else site_of[:n_sites]
+    site_of = np.sort(site_of)
+    rows = []
+    for i in range(n_assets):
+        app, load_type, _, controls = APPLICATIONS[app_pos[i]]
+        p = float(rated[i])
+        control = controls[rng.integers(len(controls))]
+        year = int(rng.integers(1985, 2024))
+        cls = "unknown" if year < 2000 else ("IE1" if year < 2011 else ("IE2" if year < 2017 else "IE3"))
+        poles = int(rng.choice([2, 4, 4, 4, 6]))
+        volts = 400 if p < 200 else (690 if p < 1000 else 6600)
+        on_profile = rng.random() > 0.05
+        profile = f"P{rng.integers(n_profiles):04d}" if on_profile else ""
+        hours = "" if on_profile else int(rng.integers(1000, 8000))
+        mean_load = "" if on_profile else int(rng.integers(40, 90))
+        rows.append([f"A{i:05d}", f"S{site_of[i]:02d}", f"Synthetic {app} {i}", app, load_type, p, poles, 50, volts, cls,
+                     year, int(rng.integers(0, 3)), control, profile, hours, mean_load,
+                     ["low", "medium", "high"][int(rng.integers(3))]])
+    (out / "assets.csv").write_text(_csv(rows, ASSET_COLUMNS), encoding="utf-8")
+    (out / "sites.csv").write_text(_csv(sites, ["site_id", "site_name", "meter_id", "tariff_file", "base_p_kw",
+                                                "base_power_factor"]), encoding="utf-8")
+    (out / "capacitors.csv").write_text(_csv(caps, ["site_id", "bank_id", "rated_q_kvar", "control", "step_q_kvar",
+                                                    "target_power_factor"]), encoding="utf-8")
+    (out / "duty.csv").write_text("profile_id,shaft_load_pct,duration_h_per_yr\n", encoding="utf-8")
+    (out / "case.toml").write_text(CASE_TOML.format(n=n_assets, s=n_sites), encoding="utf-8")
+    (out / "finance.toml").write_text((ROOT / "data" / "demo" / "finance.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    _profiles(rng, n_profiles).to_parquet(out / "profiles.parquet", index=False)
+    return out
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("out", help="folder to write")
+    parser.add_argument("--assets", type=int, default=1000)
+    parser.add_argument("--sites", type=int, default=20)
+    parser.add_argument("--seed", type=int, default=20260601)
+    args = parser.parse_args(argv)
+    print(write_fleet(args.out, args.assets, args.sites, args.seed))
+
+
+if __name__ == "__main__":
+    main()

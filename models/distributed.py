@@ -1,0 +1,109 @@
+"""The whole analysis on a Dask cluster: the physics partitioned by site, the economics once.
+
+A site's meter and tariff are independent of every other site's, so the slow part of a run (the
+machines on every option and the bill change of every asset-option, :func:`models.scenario.site_physics`)
+runs as one task per site, on a sub-case holding that site's assets, profiles, capacitor banks and
+tariff (:func:`models.operation.site_case`). The results are merged back into the asset register's
+order and the economics (cash flows, metrics, plan, end of life, risk, bills) runs once on the merged
+physics, in this process. Each task runs exactly the code the local engine runs for that site, on the
+same analysis index, so the result tables are identical to :func:`models.scenario.run`'s.
+
+Without a scheduler address a :class:`distributed.LocalCluster` of worker processes is started on this
+machine and closed afterwards; with an address (``tcp://host:8786``) the run connects to that
+scheduler, whose workers must have this package installed (``pip install -e .[scale]``).
+Only our own plain data goes to the workers (the case dataclass and numpy arrays).
+"""
+
+from __future__ import annotations
+
+import logging
+from typing import Callable
+
+from models import finance
+from models.operation import case_index, site_case
+from models.scenario import PhysicsMerger, ScenarioResult, economics, site_physics
+
+#: Worker processes of the local cluster (one per core of the 2-core reference machine).
+LOCAL_WORKERS = 2
+
+
+def _client(scheduler: str | None, n_workers: int, processes: bool):
+    """Return (client, cluster or None): a client of the given scheduler, or of a new local cluster."""
+    from distributed import Client, LocalCluster
+
+    if scheduler:
+        return Client(scheduler), None
+    cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes, dashboard_address=None,
+                           silence_logs=logging.ERROR)
+    return Client(cluster), cluster
+
+
+def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: str | None = None,
+                    progress: Callable[[str], None] | None = None, with_risk: bool = True, *,
+                    site_progress: Callable[[str, int, int], None] | None = None, n_workers: int = LOCAL_WORKERS,
+                    processes: bool = True, chunk_assets: int | None = None,
+                    dense: bool | None = None) -> ScenarioResult:
+    """Run the whole analysis with the physics of each site as one Dask task.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    assumptions : models.finance.FinanceAssumptions
+        Finance assumptions.
+    scheduler : str, optional
+        Address of a running Dask scheduler (e.g. ``tcp://10.0.0.5:8786``); default: start a local
+        cluster of ``n_workers`` worker processes and close it at the end.
+    progress : callable, optional
+        Called with each stage name, as :func:`models.scenario.run` does ("machines", "site bills" when the
+        first site is back, then the economics stages).
+    with_risk : bool
+        Include the tornado and Monte Carlo.
+    site_progress : callable, optional
+        Called as ``site_progress(site_id, done, total)`` as each site's task completes.
+    n_workers : int
+        Workers of the local cluster (ignored with ``scheduler``).
+    processes : bool
+        Local cluster of processes (True) or threads (False).
+    chunk_assets, dense
+        As in :func:`models.scenario.physics`.
+
+    Returns
+    -------
+    models.scenario.ScenarioResult
+        The same result as :func:`models.scenario.run` with the same arguments.
+
+    Raises
+    ------
+    ValueError
+        As :func:`models.scenario.run` (raised in a worker, re-raised here).
+    """
+    step = progress or (lambda _msg: None)
+    step("machines")
+    cost = float(assumptions.capacitor_cost_per_kvar)
+    index = case_index(case)
+    merger = PhysicsMerger(case, index, cost, chunk_assets, dense)
+    today_only = not merger.ops.dense
+    client, cluster = _client(scheduler, n_workers, processes)
+    try:
+        from distributed import as_completed
+
+        futures = {}
+        for k, (site_id, _) in enumerate(merger.partition):
+            future = client.submit(site_physics, site_case(case, site_id), index, cost, chunk_assets, None, today_only,
+                                   key=f"drivecase-site-physics-{k}", pure=False)
+            futures[future] = site_id
+        for done, future in enumerate(as_completed(futures), start=1):
+            op, part = future.result()
+            if done == 1:
+                step("site bills")
+            merger.add(futures[future], op, part)
+            future.release()
+            del op, part
+            if site_progress is not None:
+                site_progress(futures[future], done, len(futures))
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+    return economics(case, merger.result(), assumptions, progress, with_risk)
