@@ -265,8 +265,10 @@ class _TableChecker:
                             else "use a point as decimal mark to avoid this repair")
                     self.warn(i, name, value, note, hint)
                 elif note is not None:
-                    self.err(i, name, value, f"'{name}' must be a number ({note})",
-                             f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number")
+                    hint = f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number"
+                    if note.startswith("a date"):
+                        hint = f"format the cell as a number in the spreadsheet ({hint})"
+                    self.err(i, name, value, f"'{name}' must be a number ({note})", hint)
             lo = float(spec["min"]) if spec["min"] else -np.inf
             hi = float(spec["max"]) if spec["max"] else np.inf
             bad = np.flatnonzero(~np.isnan(numbers) & ((numbers < lo) | (numbers > hi)))
@@ -729,11 +731,18 @@ def _duplicates(checker: _TableChecker, column: str, what: str) -> None:
             first[key] = int(checker.rows[i])
 
 
-def _check_assets(checker: _TableChecker, site_ids: set[str], profile_ids: set[str], duty_ids: set[str],
-                  profiles: dict[str, pd.Series], this_year: int) -> None:
+def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids: set[str], duty_ids: set[str],
+                  profiles: dict[str, pd.Series], this_year: int, rejected_profiles: set[str] | None = frozenset()) -> None:
+    """Cross-check the asset register.
+
+    ``site_ids`` None means the sites table could not be read, and ``rejected_profiles`` None that the
+    profiles table could not be read: references to them are then not checked (the unreadable file is
+    already an error). Profiles listed in ``rejected_profiles`` exist but failed their own checks.
+    """
     a = checker.frame
     _duplicates(checker, "asset_id", "asset_id")
-    for i in np.flatnonzero(a["site_id"].notna().to_numpy() & ~a["site_id"].isin(site_ids).to_numpy()):
+    site_given = a["site_id"].notna().to_numpy() & (site_ids is not None)
+    for i in np.flatnonzero(site_given & ~a["site_id"].isin(site_ids or set()).to_numpy()):
         checker.err(i, "site_id", a["site_id"].iloc[i], "unknown site_id (not in sites)", "add the site or correct the id")
     kw, hp = a["rated_p_kw"].to_numpy(), a["rated_p_hp"].to_numpy()
     both_missing = np.isnan(kw) & np.isnan(hp)
@@ -754,7 +763,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str], profile_ids: set[s
     for i in np.flatnonzero(np.isfinite(current_a) & (current_a > MAX_PLAUSIBLE_CURRENT_A)):
         column = "rated_p_kw" if not np.isnan(kw[i]) else "rated_p_hp"
         checker.err(i, column, kw[i] if column == "rated_p_kw" else hp[i],
-                    f"a {rated_kw[i]:,.0f} kW motor at {volts[i]:,.0f} V would draw about {current_a[i]:,.0f} A, "
+                    f"a {rated_kw[i]:,.6g} kW motor at {volts[i]:,.6g} V would draw about {current_a[i]:,.0f} A, "
                     f"more than any motor of that voltage (plausible up to {MAX_PLAUSIBLE_CURRENT_A:,.0f} A)",
                     "is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?")
     mean_load = a["mean_load_pct"].to_numpy()
@@ -798,8 +807,9 @@ def _check_assets(checker: _TableChecker, site_ids: set[str], profile_ids: set[s
     load = a["mean_load_pct"].to_numpy()
     has_profile = prof.notna().to_numpy()
     has_hours = ~np.isnan(hours) & ~np.isnan(load)
-    known_profiles = profile_ids | duty_ids
-    for i in np.flatnonzero(has_profile & ~prof.isin(known_profiles).to_numpy()):
+    known_profiles = profile_ids | duty_ids | (rejected_profiles or set())
+    checkable = has_profile & (rejected_profiles is not None)
+    for i in np.flatnonzero(checkable & ~prof.isin(known_profiles).to_numpy()):
         checker.err(i, "profile_id", prof.iloc[i], "unknown profile reference (not in profiles or duty)",
                     "add the profile or correct the reference")
     for i in np.flatnonzero(~has_profile & ~has_hours):
@@ -903,10 +913,11 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
     s["base_power_factor"] = s["base_power_factor"].fillna(0.9)
 
 
-def _check_capacitors(checker: _TableChecker, site_ids: set[str]) -> None:
+def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:
     c = checker.frame
     _duplicates(checker, "bank_id", "bank_id")
-    for i in np.flatnonzero(c["site_id"].notna().to_numpy() & ~c["site_id"].isin(site_ids).to_numpy()):
+    site_given = c["site_id"].notna().to_numpy() & (site_ids is not None)
+    for i in np.flatnonzero(site_given & ~c["site_id"].isin(site_ids or set()).to_numpy()):
         checker.err(i, "site_id", c["site_id"].iloc[i], "unknown site_id (not in sites)")
     c["control"] = c["control"].fillna("fixed")
     rated = c["rated_q_kvar"].to_numpy()
@@ -928,7 +939,7 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         problems.extend(tariff_problems)
         if tariff is None:
             continue
-        if tariff.currency != settings.currency:
+        if tariff.currency != settings.currency and _valid_currency(settings.currency):
             problems.append(error(source, None, "tariff.currency", tariff.currency,
                                   f"the tariff's currency differs from the case currency {settings.currency}",
                                   "one case prices everything in one currency"))
@@ -938,6 +949,11 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                                   "periods and billing months are read on the site's clock: use the case zone"))
         parsed[name] = tariff
     return parsed
+
+
+def _valid_currency(code: str) -> bool:
+    """True for a well-formed ISO 4217 code (an invalid one is reported once, in case.toml)."""
+    return bool(re.fullmatch(r"[A-Z]{3}", code))
 
 
 def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]):
@@ -962,11 +978,11 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                                   "write every key at the top of the file, or every key under [finance]"))
             return None
         flat = nested
-    if "currency" not in flat:
+    if "currency" not in flat and _valid_currency(settings.currency):
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
-    if assumptions is not None and assumptions.currency != settings.currency:
+    if assumptions is not None and assumptions.currency != settings.currency and _valid_currency(settings.currency):
         problems.append(error(source, None, "currency", assumptions.currency,
                               f"the finance currency differs from the case currency {settings.currency}",
                               "one case prices everything in one currency"))
@@ -1036,8 +1052,8 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
     """Read and check a case; return it (None when any error was found) and every problem."""
     raw = io.read_case_files(path)
     problems = list(raw.problems)
-    if raw.kind == "missing":
-        return None, problems
+    if raw.kind == "missing" or (not raw.tables and has_errors(problems)):
+        return None, problems  # nothing readable: settings warnings would only add noise
     settings = _settings(raw, problems)
     own_options = raw.tables.get("options")
     if own_options is not None and own_options.readable and own_options.frame.empty:
@@ -1052,9 +1068,19 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
                 if name != "profiles" and table.readable}
     frames = {}
     for name, checker in checkers.items():
-        frames[name] = checker.run()
+        if name != "options":  # check_options runs its own checker
+            frames[name] = checker.run()
     profiles, profile_info = _check_profiles(raw.tables.get("profiles"), settings.time_zone, problems)
+    profile_table = raw.tables.get("profiles")
+    if profile_table is not None and not profile_table.readable:
+        rejected_profiles = None
+    elif profile_table is not None and "profile_id" in profile_table.frame.columns:
+        rejected_profiles = set(_profile_ids(profile_table.frame["profile_id"])[1].astype(str)) - set(profiles)
+    else:
+        rejected_profiles = set()
     site_ids = set(frames.get("sites", pd.DataFrame({"site_id": []}))["site_id"].dropna())
+    if "sites" in raw.tables and not raw.tables["sites"].readable:
+        site_ids = None
     duty_ids = set(frames.get("duty", pd.DataFrame({"profile_id": []}))["profile_id"].dropna())
     if "duty" in checkers:
         _check_duty(checkers["duty"])
@@ -1076,7 +1102,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         problems.append(error(checkers["sites"].raw.source, None, None, None, "the sites table has no rows",
                               "add one row per site (utility meter)"))
     if "assets" in checkers:
-        _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year)
+        _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year, rejected_profiles)
         if frames["assets"].empty:
             problems.append(error(checkers["assets"].raw.source, None, None, None, "the asset register has no rows",
                                   "add one row per motor"))

@@ -450,7 +450,7 @@ def parse_csv_text(text: str, table: str, source: str) -> tuple[RawTable, list[P
             if record[0].lstrip().startswith("#"):
                 continue
             if last_line > start:
-                width = max(2, (len(header) if header else len(record)) - 1)
+                width = max(2, ((len(header) if header else len(record)) - 1) // 2)
                 rowlike = any(cell.count(delimiter) >= width for c in record if "\n" in c for cell in c.split("\n"))
                 spans.append((start, last_line, rowlike))
             if header is None:
