@@ -20,21 +20,22 @@ CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networki
 RENDER_TIMEOUT_MS = 60_000
 
 
-def pdf_bytes(html_path: Path, executable_path: str = CHROMIUM_PATH) -> tuple[bytes | None, str]:
+def pdf_bytes(html_path: Path, executable_path: str | None = None) -> tuple[bytes | None, str]:
     """Return the PDF of an HTML file printed on A4, or ``(None, reason)`` when it cannot be printed.
 
     Parameters
     ----------
     html_path : pathlib.Path
         A self-contained HTML file (it is opened as a file:// URL; network requests are blocked).
-    executable_path : str
-        Chromium executable.
+    executable_path : str, optional
+        Chromium executable; default :data:`CHROMIUM_PATH`.
 
     Returns
     -------
     tuple
         ``(pdf, message)``: the PDF bytes (or None) and a one-line message.
     """
+    executable_path = executable_path or CHROMIUM_PATH
     if not os.path.exists(executable_path):
         return None, f"PDF skipped: no Chromium at {executable_path} (install the 'chromium' package)"
     try:
@@ -63,7 +64,7 @@ def pdf_bytes(html_path: Path, executable_path: str = CHROMIUM_PATH) -> tuple[by
                 data = page.pdf(format="A4", print_background=True, prefer_css_page_size=True)
             finally:
                 browser.close()
-    except PlaywrightError as exc:
+    except (PlaywrightError, OSError, RuntimeError) as exc:  # a browser problem must not sink the pack
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         return None, f"PDF skipped: the browser failed ({first})"
     return data, f"PDF printed with {executable_path}"

@@ -56,8 +56,7 @@ footer { margin-top: 40px; font-size: 12px; color: var(--muted); }
 }
 """
 
-_MACROS = """
-{%- macro table(headers, rows, numeric=()) -%}
+_MACROS = """{%- macro table(headers, rows, numeric=()) -%}
 <table>
 <thead><tr>{% for h in headers %}<th{% if loop.index0 in numeric %} class="num"{% endif %}>{{ h }}</th>{% endfor %}</tr></thead>
 <tbody>
@@ -68,7 +67,7 @@ _MACROS = """
 {%- endfor %}
 </tbody>
 </table>
-{%- endmacro %}
+{%- endmacro -%}
 """
 
 REPORT = _MACROS + """<!DOCTYPE html>

@@ -283,14 +283,136 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
     _widths(ws, {1: 12, 2: 12, 3: 34, 4: 16} | {k: 14 for k in range(5, len(cols) + 1)} | {len(cols): 60})
 
 
-def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats) -> list[dict]:
+def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame, rate_ref: str,
+                        engine: dict[str, Any], currency: str = "EUR", note: str = "") -> tuple[int, dict[str, int]]:
+    """Write one project's cash-flow block with live formulas; return the next free row and the metric rows.
+
+    Parameters
+    ----------
+    ws : openpyxl.worksheet.worksheet.Worksheet
+    row : int
+        First row of the block.
+    title : str
+        Block title (user text is allowed: it goes through :func:`put_text`).
+    table : pandas.DataFrame
+        Flows [currency]: one row per component (index = component name), columns = years 0..N.
+    rate_ref : str
+        Absolute reference of the discount-rate cell [frac/yr], e.g. ``'Assumptions'!$B$16``.
+    engine : dict
+        The engine's ``npv``, ``irr``, ``payback`` and ``discounted_payback`` shown beside the formulas
+        (numbers, or the text ``"none"`` / ``"not within horizon"``).
+    currency : str
+        Currency code for the number formats.
+    note : str
+        Optional note beside the IRR search start.
+
+    Returns
+    -------
+    tuple
+        ``(next_row, rows)`` where ``rows`` maps "npv", "irr", "payback", "discounted_payback" and "net"
+        to their row numbers (the formula is in column B, the engine's figure in column C).
+
+    Notes
+    -----
+    With flows CF_t in columns B (t = 0) onwards and the rate d on the Assumptions sheet:
+
+    * net row: ``=SUM`` of the component rows; cumulative: S_t = S_{t-1} + CF_t;
+    * NPV: ``=B_net + NPV(d, C_net:last_net)``: the spreadsheet NPV discounts its first value by one
+      period, so year 0 stays outside and NPV = sum CF_t / (1 + d)^t [1];
+    * IRR: ``=IRR(B_net:last_net, guess)``, "none" when the function finds no rate;
+    * payback: in the first year t with S_{t-1} < 0 <= S_t, (t - 1) - S_{t-1} / CF_t (flows taken
+      to accrue evenly through the year), 0 when S_0 >= 0; the discounted payback does the same on
+      CF_t / (1 + d)^t [1]. "not within horizon" when the cumulative flow never turns >= 0.
+
+    References
+    ----------
+    .. [1] S. K. Fuller and S. R. Petersen, "Life-Cycle Costing Manual for the Federal Energy Management
+       Program," NIST Handbook 135, 1995 ed., National Institute of Standards and Technology, 1996.
+    """
+    f = _Formats(currency)
+    horizon = int(table.columns.max()) if len(table.columns) else 0
+    first_col, last_col = 2, 2 + horizon
+    put_text(ws, row, 1, title).font = _BOLD
+    for col in range(1, last_col + 1):
+        ws.cell(row=row, column=col).fill = _BLOCK_FILL
+    year_row = row + 1
+    put_text(ws, year_row, 1, "Project year").font = _BOLD
+    for t in range(horizon + 1):
+        put(ws, year_row, first_col + t, t).font = _BOLD
+    comp_first = year_row + 1
+    r = comp_first
+    for component, values in table.iterrows():
+        put_text(ws, r, 1, content.COMPONENT_LABELS.get(str(component), str(component)))
+        for t in range(horizon + 1):
+            put(ws, r, first_col + t, float(values.get(t, 0.0)), f.money2)
+        r += 1
+    comp_last = r - 1
+    net = r
+    cum, factor, disc, dcum, cross, dcross = net + 1, net + 2, net + 3, net + 4, net + 5, net + 6
+    labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
+              disc: "Discounted net cash flow", dcum: "Cumulative discounted cash flow",
+              cross: "Payback crossing, simple [yr]", dcross: "Payback crossing, discounted [yr]"}
+    for rr, label in labels.items():
+        put_text(ws, rr, 1, label).font = _BOLD if rr == net else Font()
+    for t in range(horizon + 1):
+        c = first_col + t
+        col = get_column_letter(c)
+        prev = get_column_letter(c - 1)
+        if comp_last >= comp_first:
+            put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2)
+        else:
+            put(ws, net, c, 0.0, f.money2)
+        put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2)
+        put_formula(ws, factor, c, f"=1/(1+{rate_ref})^{col}${year_row}", f.factor)
+        put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2)
+        put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2)
+        for target, running, flow in ((cross, cum, net), (dcross, dcum, disc)):
+            if t == 0:
+                expr = f'=IF({col}{running}>=0,0,"")'
+            else:
+                expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
+                        f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
+            put_formula(ws, target, c, expr, f.years)
+    net_range = f"{_ref(first_col, net)}:{_ref(last_col, net)}"
+    later = f"{_ref(first_col + 1, net)}:{_ref(last_col, net)}" if horizon >= 1 else None
+    m = dcross + 2
+    _header(ws, m, ["Metric", "Workbook formula", "Engine", "Difference"])
+    guess = m + 5
+    npv_expr = f"={_ref(first_col, net)}+NPV({rate_ref},{later})" if later else f"={_ref(first_col, net)}"
+    crossing = f"{_ref(first_col, cross)}:{_ref(last_col, cross)}"
+    dcrossing = f"{_ref(first_col, dcross)}:{_ref(last_col, dcross)}"
+    metrics = {
+        "npv": (m + 1, "NPV at the discount rate", npv_expr, f.money2),
+        "irr": (m + 2, "IRR", f'=IFERROR(IRR({net_range},{_ref(2, guess)}),"none")', f.frac),
+        "payback": (m + 3, "Simple payback [yr]",
+                    f'=IF(COUNT({crossing})=0,"not within horizon",MIN({crossing}))', f.years),
+        "discounted_payback": (m + 4, "Discounted payback [yr]",
+                               f'=IF(COUNT({dcrossing})=0,"not within horizon",MIN({dcrossing}))', f.years),
+    }
+    rows = {"net": net}
+    for name, (mr, label, expr, fmt) in metrics.items():
+        put_text(ws, mr, 1, label)
+        put_formula(ws, mr, 2, expr, fmt)
+        put(ws, mr, 3, engine.get(name), fmt)
+        put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt)
+        rows[name] = mr
+    put_text(ws, guess, 1, "IRR search start (year-1 flow / investment)")
+    if horizon >= 1:
+        put_formula(ws, guess, 2, f"=IF(AND({_ref(first_col, net)}<0,{_ref(first_col + 1, net)}>0),"
+                                  f"{_ref(first_col + 1, net)}/-{_ref(first_col, net)},0.1)", f.frac)
+    else:
+        put(ws, guess, 2, 0.1, f.frac)
+    if note:
+        put_text(ws, guess, 3, note)
+    return guess + 3, rows
+
+
+def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], currency: str) -> list[dict]:
     """Write one block per project; return the cells of its metrics for the checks sheet."""
     _title(ws, "Yearly cash flows by component, with live formulas for NPV, IRR and paybacks")
     put_text(ws, 2, 1, "Year 0 = investment, later flows at each year end; negative = money out. The discount rate "
                        "is read from the Assumptions sheet. Project years count from the project's own start.")
-    rate = refs["discount_rate_frac"]
     horizon = int(result.assumptions.horizon_yr)
-    first_col, last_col = 2, 2 + horizon
     out = []
     row = 4
     for p in scope.projects.itertuples(index=False):
@@ -298,84 +420,21 @@ def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[st
         title = f"{p.asset_id} / {p.option_id}: {p.label}"
         if p.in_plan:
             title += f" (exact plan, plan year {int(p.plan_start_yr)})"
-        cell = put_text(ws, row, 1, title)
-        cell.font = _BOLD
-        for col in range(1, last_col + 1):
-            ws.cell(row=row, column=col).fill = _BLOCK_FILL
-        year_row = row + 1
-        put_text(ws, year_row, 1, "Project year").font = _BOLD
-        for t in range(horizon + 1):
-            put(ws, year_row, first_col + t, t).font = _BOLD
-        comp_first = year_row + 1
-        r = comp_first
-        for component, values in table.iterrows():
-            put_text(ws, r, 1, content.COMPONENT_LABELS.get(str(component), str(component)))
-            for t in range(horizon + 1):
-                put(ws, r, first_col + t, float(values[t]), f.money2)
-            r += 1
-        comp_last = r - 1
-        net = r
-        cum, factor, disc, dcum, cross, dcross = net + 1, net + 2, net + 3, net + 4, net + 5, net + 6
-        labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
-                  disc: "Discounted net cash flow", dcum: "Cumulative discounted cash flow",
-                  cross: "Payback crossing, simple [yr]", dcross: "Payback crossing, discounted [yr]"}
-        for rr, label in labels.items():
-            put_text(ws, rr, 1, label).font = _BOLD if rr == net else Font()
-        for t in range(horizon + 1):
-            c = first_col + t
-            col = get_column_letter(c)
-            prev = get_column_letter(c - 1)
-            if comp_last >= comp_first:
-                put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2)
-            else:
-                put(ws, net, c, 0.0, f.money2)
-            put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2)
-            put_formula(ws, factor, c, f"=1/(1+{rate})^{col}${year_row}", f.factor)
-            put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2)
-            put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2)
-            for target, running, flow in ((cross, cum, net), (dcross, dcum, disc)):
-                if t == 0:
-                    expr = f'=IF({col}{running}>=0,0,"")'
-                else:
-                    expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
-                            f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
-                put_formula(ws, target, c, expr, f.years)
-        net_range = f"{_ref(first_col, net)}:{_ref(last_col, net)}"
-        later = f"{_ref(first_col + 1, net)}:{_ref(last_col, net)}"
-        m = dcross + 2
-        _header(ws, m, ["Metric", "Workbook formula", "Engine", "Difference"])
-        guess = m + 5
-        metrics = {
-            "npv": (m + 1, "NPV at the discount rate", f"={_ref(first_col, net)}+NPV({rate},{later})", float(p.npv), f.money2),
-            "irr": (m + 2, "IRR", f'=IFERROR(IRR({net_range},{_ref(2, guess)}),"none")',
-                    _engine_irr(float(p.irr_frac), str(p.irr_status)), f.frac),
-            "payback": (m + 3, "Simple payback [yr]",
-                        f'=IF(COUNT({_ref(first_col, cross)}:{_ref(last_col, cross)})=0,"not within horizon",'
-                        f'MIN({_ref(first_col, cross)}:{_ref(last_col, cross)}))',
-                        _engine_payback(float(p.simple_payback_yr)), f.years),
-            "discounted_payback": (m + 4, "Discounted payback [yr]",
-                                   f'=IF(COUNT({_ref(first_col, dcross)}:{_ref(last_col, dcross)})=0,"not within horizon",'
-                                   f'MIN({_ref(first_col, dcross)}:{_ref(last_col, dcross)}))',
-                                   _engine_payback(float(p.discounted_payback_yr)), f.years),
-        }
+        engine = {"npv": float(p.npv), "irr": _engine_irr(float(p.irr_frac), str(p.irr_status)),
+                  "payback": _engine_payback(float(p.simple_payback_yr)),
+                  "discounted_payback": _engine_payback(float(p.discounted_payback_yr))}
+        note = ("the flows have several IRRs: the engine reports the one closest to 0"
+                if str(p.irr_status) == "multiple" else "")
+        row_next, rows = write_project_block(ws, row, title, table.reindex(columns=range(horizon + 1), fill_value=0.0),
+                                             refs["discount_rate_frac"], engine, currency, note)
         cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended)}
-        for name, (mr, label, expr, engine, fmt) in metrics.items():
-            put_text(ws, mr, 1, label)
-            put_formula(ws, mr, 2, expr, fmt)
-            put(ws, mr, 3, engine, fmt)
-            put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt)
-            cells[name] = _sheet_ref("Cash flows", 2, mr)
-            cells[f"{name}_engine"] = _sheet_ref("Cash flows", 3, mr)
-            cells[f"{name}_row"] = mr
-        put_text(ws, guess, 1, "IRR search start (year-1 flow / investment)")
-        put_formula(ws, guess, 2, f"=IF(AND({_ref(first_col, net)}<0,{_ref(first_col + 1, net)}>0),"
-                                  f"{_ref(first_col + 1, net)}/-{_ref(first_col, net)},0.1)", f.frac)
-        if str(p.irr_status) == "multiple":
-            put_text(ws, guess, 3, "the flows have several IRRs: the engine reports the one closest to 0")
+        for name in ("npv", "irr", "payback", "discounted_payback"):
+            cells[name] = _sheet_ref("Cash flows", 2, rows[name])
+            cells[f"{name}_engine"] = _sheet_ref("Cash flows", 3, rows[name])
         out.append(cells)
-        row = guess + 3
+        row = row_next
     ws.freeze_panes = "B4"
-    _widths(ws, {1: 42} | {c: 13 for c in range(first_col, last_col + 1)})
+    _widths(ws, {1: 42} | {c: 13 for c in range(2, 3 + horizon)})
     return out
 
 
@@ -663,7 +722,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
         ws.title = name
     refs = _assumptions(sheets["Assumptions"], case, result, f)
     _results(sheets["Results"], result, scope, f)
-    blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, f)
+    blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
     _plan(sheets["Plan"], result, scope, refs, f)
     _bills(sheets["Bills"], result, f)

@@ -1,0 +1,215 @@
+"""The capital-request report and decision records as files: contents, escaping, scope, safe writing.
+
+Expected numbers come from the engine's result tables (the pack must show them), read directly in the
+test; sections and cautions follow the capital-request checklist in docs/pack.md.
+"""
+
+from __future__ import annotations
+
+import html as htmllib
+import re
+import warnings
+
+import pytest
+from plotly.offline import get_plotlyjs
+
+from models import scenario
+from models.pack import REPORT_NAME, WORKBOOK_NAME, PackWarning, write_pack
+from models.pack.decision_record import record_file_name
+from test_pack_workbook import INJECTION_AT, INJECTION_HTML, INJECTION_HYPERLINK, build_case
+
+ESCAPED_HTML = "&lt;script&gt;alert(1)&lt;/script&gt; &amp; &#34;pump&#34;"
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    case = build_case(tmp_path_factory.mktemp("case"),
+                      descriptions={"F1": INJECTION_HYPERLINK, "C1": INJECTION_AT, "P1": INJECTION_HTML})
+    return case, scenario.run(case, case.finance, with_risk=True)
+
+
+@pytest.fixture(scope="module")
+def asset_pack(small, tmp_path_factory):
+    case, result = small
+    out = tmp_path_factory.mktemp("pack")
+    paths = write_pack(case, result, out, assets=["P1", "F1", "C1"], plan=False)
+    return out, paths
+
+
+@pytest.fixture(scope="module")
+def plan_pack(small, tmp_path_factory):
+    case, result = small
+    out = tmp_path_factory.mktemp("plan")
+    paths = write_pack(case, result, out)
+    return out, paths
+
+
+def text(path) -> str:
+    return path.read_text(encoding="utf-8")
+
+
+def money(value: float) -> str:
+    """The report's money format: thousands separators, no decimals, currency code."""
+    return f"{value:,.0f} EUR"
+
+
+class TestFiles:
+    def test_files_written(self, asset_pack):
+        out, paths = asset_pack
+        names = [p.relative_to(out).as_posix() for p in paths]
+        assert names == [WORKBOOK_NAME, REPORT_NAME, "decision-records/P1.html", "decision-records/F1.html",
+                         "decision-records/C1.html"]
+        assert all(p.is_file() and p.stat().st_size > 0 for p in paths)
+
+    def test_no_partial_files_left(self, asset_pack):
+        out, _ = asset_pack
+        assert not [p for p in out.rglob("*") if p.name.endswith(".part")]
+
+    def test_plan_scope_covers_the_plan_assets(self, plan_pack, small):
+        out, paths = plan_pack
+        _, result = small
+        records = sorted(p.stem for p in paths if p.parent.name == "decision-records")
+        assert records == sorted(result.plan["asset_id"])
+
+    def test_same_run_same_report(self, small, plan_pack, tmp_path):
+        case, result = small
+        write_pack(case, result, tmp_path)
+        assert (tmp_path / REPORT_NAME).read_bytes() == (plan_pack[0] / REPORT_NAME).read_bytes()
+
+    def test_unknown_asset_raises(self, small, tmp_path):
+        case, result = small
+        with pytest.raises(ValueError, match="unknown asset"):
+            write_pack(case, result, tmp_path, assets=["NOPE"], plan=False)
+        assert not list(tmp_path.iterdir())  # nothing written
+
+    def test_record_file_names_stay_inside(self):
+        assert record_file_name("../P 101") == "P_101.html"
+        assert record_file_name("...") == "asset.html"
+        assert record_file_name("P1", taken={"p1.html"}) == "P1-2.html"
+
+    def test_odd_asset_id_written_inside_the_folder(self, tmp_path):
+        case = build_case(tmp_path / "case", ids={"C1": "..C 1"})
+        result = scenario.run(case, case.finance, with_risk=False)
+        out = tmp_path / "out"
+        paths = write_pack(case, result, out, assets=["..C 1"], plan=False)
+        assert all(p.resolve().is_relative_to(out.resolve()) for p in paths)
+        assert (out / "decision-records" / "C_1.html").is_file()
+
+    def test_pdf_skipped_without_a_browser(self, small, tmp_path, monkeypatch):
+        import models.pack.pdf as pdf
+
+        case, result = small
+        monkeypatch.setattr(pdf, "CHROMIUM_PATH", str(tmp_path / "no-such-browser"))
+        notes: list[str] = []
+        with pytest.warns(PackWarning, match="PDF skipped"):
+            paths = write_pack(case, result, tmp_path / "out", pdf=True, messages=notes)
+        assert not (tmp_path / "out" / "capital-request.pdf").exists()
+        assert (tmp_path / "out" / REPORT_NAME) in paths and "no Chromium" in notes[0]
+
+
+class TestReportIsSelfContained:
+    def test_plotly_inlined_once(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        head = get_plotlyjs()[:400]  # the bundle's own banner, from the plotly package
+        assert html.count(head) == 1
+        assert html.index(head) < html.index("</head>")
+
+    def test_no_external_reference(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        ours = html.replace(get_plotlyjs(), "")  # our own markup, charts and data
+        assert not re.search(r"""(src|href)\s*=\s*["']?\s*(https?:)?//""", ours, re.I)
+        assert not re.search(r"<script[^>]+src=", ours, re.I)
+        assert "@import" not in ours and "url(" not in ours
+        assert not re.search(r"<link[^>]+stylesheet", ours, re.I)
+
+    def test_one_chart_div_per_figure(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        ids = re.findall(r'<div id="(chart-[a-z-]+)" class="plotly-graph-div"', html)
+        assert len(ids) == len(set(ids)) == 7
+        assert html.count("Plotly.newPlot(") == 7
+
+
+class TestReportContents:
+    def test_sections(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        # the capital-request checklist (docs/pack.md): every section present
+        for heading in ("Executive summary", "Scope and assets", "Options compared", "Savings by component",
+                        "Cash flow", "Sensitivity and Monte Carlo", "Fleet plan by year",
+                        "Risks and assumptions register", "Measurement and verification plan", "Emissions", "Cautions"):
+            assert re.search(rf"<h2[^>]*>\d+\. {heading}</h2>", html), heading
+
+    def test_cautions(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        for phrase in ("Planning estimates only", "qualified persons", "local electrical codes", "the utility",
+                       "generate voltage at their terminals whenever the shaft turns", "Capacitors store charge",
+                       "never connect capacitors on a drive output".capitalize()):
+            assert phrase in html, phrase
+
+    def test_user_text_escaped(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        assert INJECTION_HTML not in html and "<script>alert(1)" not in html
+        assert ESCAPED_HTML in html
+        assert "=HYPERLINK(&#34;http://x&#34;,&#34;y&#34;)" in html
+
+    def test_headline_capital_is_the_plan_capital(self, plan_pack, small):
+        _, result = small
+        html = text(plan_pack[0] / REPORT_NAME)
+        # engine: the exact plan's capital, the whole of the plan-scope pack
+        assert f'<div class="value">{money(result.plan["capital"].sum())}</div>' in html
+
+    def test_mv_baseline_figures(self, asset_pack, small):
+        _, result = small
+        html = text(asset_pack[0] / REPORT_NAME)
+        r = result.results.set_index(["asset_id", "option_id"])
+        # engine: today's motor's modelled energy is the M&V baseline of the recommended drive
+        assert f"{r.loc[('P1', 'keep'), 'energy_kwh_per_yr']:,.0f}" in html
+        assert "Option B" in html and "4 weeks before and 4 after" in html
+
+    def test_emissions_basis_stated(self, asset_pack, small):
+        _, result = small
+        html = text(asset_pack[0] / REPORT_NAME)
+        assert f"{result.assumptions.grid_co2_kg_per_kwh:g} kg CO2 per kWh" in html
+        assert "location- or market-based" in html
+
+
+class TestDecisionRecords:
+    def expected_choice(self, result, asset_id: str) -> str:
+        """The engine's choice: the exact plan's option, else the highest-NPV option."""
+        plan = result.plan.set_index("asset_id")["option_id"]
+        res = result.results[result.results["asset_id"] == asset_id]
+        option = plan.get(asset_id) or res.loc[res["best_for_asset"], "option_id"].iloc[0]
+        label = res.loc[res["option_id"] == option, "label"].iloc[0]
+        return "keep today's motor" if option == "keep" else label
+
+    def test_one_record_per_asset_with_the_recommendation(self, asset_pack, small):
+        out, _ = asset_pack
+        _, result = small
+        for asset_id in ("P1", "F1", "C1"):
+            html = text(out / "decision-records" / f"{asset_id}.html")
+            assert f"decision record: {asset_id}</h1>" in html
+            assert f"<strong>Recommended: {self.expected_choice(result, asset_id)}</strong>" in htmllib.unescape(html)
+
+    def test_end_of_life_costs_and_sign_off(self, asset_pack, small):
+        out, _ = asset_pack
+        _, result = small
+        eol = result.end_of_life.set_index("asset_id")
+        html = text(out / "decision-records" / "C1.html")
+        for column in ("cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure"):
+            assert f"{eol.loc['C1', column]:,.0f}" in html
+        for role in ("Prepared by", "Checked by (engineering)", "Approved by (budget holder)", "Signature:", "Date:"):
+            assert role in html
+
+    def test_record_escapes_user_text(self, asset_pack):
+        html = text(asset_pack[0] / "decision-records" / "P1.html")
+        assert "<script>alert(1)" not in html and ESCAPED_HTML in html
+
+    def test_drive_caution_on_the_drive_record(self, asset_pack):
+        html = text(asset_pack[0] / "decision-records" / "P1.html")
+        assert "inverter-duty motors" in html  # the recommended option puts the motor on a drive
+
+
+def test_no_warning_without_pdf(small, tmp_path):
+    case, result = small
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", PackWarning)
+        write_pack(case, result, tmp_path, assets=["F1"], plan=False)

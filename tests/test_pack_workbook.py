@@ -1,0 +1,354 @@
+"""The capital-request workbook: sheets, live formulas recomputed by an independent evaluator, injection guard.
+
+The numbers compared are the engine's (``result.results``, ``result.plan``); the workbook's formulas are
+recomputed by the ``formulas`` package (an independent spreadsheet-formula evaluator, PyPI, 1.3.x),
+never by drivecase. A match within 0.01 % shows the workbook reproduces the engine.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy_financial as npf
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+from openpyxl import Workbook, load_workbook
+
+import casebuilder as cb
+from models import scenario
+from models.case import load_case
+from models.pack import WORKBOOK_NAME, write_pack
+from models.pack.workbook import put, put_formula, write_project_block
+
+formulas = pytest.importorskip("formulas")
+
+FLAT_TARIFF = '''[tariff]
+name = "flat test tariff (invented)"
+currency = "EUR"
+time_zone = "Europe/Berlin"
+
+[[periods]]
+code = "all"
+
+[energy]
+price_per_kwh = { all = 0.10 }
+'''
+# two plan years of 4,000 each: the drive (about 3,700) fills year 0 and pushes the capacitor to year 1
+FINANCE = ('discount_rate_frac = 0.08\nhorizon_yr = 15\nrate_basis = "real"\nbudget_per_yr = [4000, 4000]\n'
+           'monte_carlo_draws = 200\nmonte_carlo_seed = 7\n')
+INJECTION_HYPERLINK = '=HYPERLINK("http://x","y")'
+INJECTION_AT = "@SUM(A1)"
+INJECTION_HTML = '<script>alert(1)</script> & "pump"'
+#: Relative tolerance of the formula check: 0.01 % (the brief's audit tolerance; both sides are doubles,
+#: the evaluator's IRR is a polynomial root and the engine's a Newton root, both far tighter than this).
+RTOL = 1e-4
+SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills", "Data quality",
+          "End of life", "Risk"]
+
+
+def build_case(folder: Path, descriptions: dict[str, str] | None = None, ids: dict[str, str] | None = None):
+    """Write and load the three-motor test case (flat 0.10/kWh tariff), with optional descriptions or ids."""
+    assets = [list(row) for row in cb.ASSETS]
+    for row in assets:
+        if descriptions and row[0] in descriptions:
+            row[2] = descriptions[row[0]]
+        if ids and row[0] in ids:
+            row[0] = ids[row[0]]
+    cb.write_case(folder, assets=assets)
+    (folder / "tariffs").mkdir(exist_ok=True)
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    (folder / "finance.toml").write_text(FINANCE, encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    return case
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    """The small case (injection strings in two descriptions) and its run, with risk."""
+    case = build_case(tmp_path_factory.mktemp("case"),
+                      descriptions={"F1": INJECTION_HYPERLINK, "C1": INJECTION_AT, "P1": INJECTION_HTML})
+    return case, scenario.run(case, case.finance, with_risk=True)
+
+
+@pytest.fixture(scope="module")
+def asset_pack(small, tmp_path_factory):
+    """Pack of every option of the three assets (25 projects)."""
+    case, result = small
+    out = tmp_path_factory.mktemp("pack_assets")
+    write_pack(case, result, out, assets=["P1", "F1", "C1"], plan=False)
+    return out / WORKBOOK_NAME
+
+
+@pytest.fixture(scope="module")
+def plan_pack(small, tmp_path_factory):
+    case, result = small
+    out = tmp_path_factory.mktemp("pack_plan")
+    write_pack(case, result, out)
+    return out / WORKBOOK_NAME
+
+
+def evaluate(path: Path) -> dict[tuple[str, str], object]:
+    """Recompute every formula with the independent evaluator; return {(SHEET, 'B12'): value}."""
+    model = formulas.ExcelModel().loads(str(path)).finish()
+    solution = model.calculate()
+    out = {}
+    for key, value in solution.items():
+        if ":" in key or "!" not in key:
+            continue
+        sheet, ref = key.split("!")
+        sheet = sheet.split("]")[-1].strip("'")
+        cell_value = value.value[0][0] if hasattr(value, "value") else value
+        out[(sheet.upper(), ref.upper())] = cell_value
+    return out
+
+
+def block_rows(path: Path) -> dict[tuple[str, str], dict[str, int]]:
+    """Find each project block on 'Cash flows' by its title and labels: {(asset, option): {label: row}}."""
+    ws = load_workbook(path)["Cash flows"]
+    blocks: dict[tuple[str, str], dict[str, int]] = {}
+    current = None
+    for r in range(1, ws.max_row + 1):
+        text = ws.cell(r, 1).value
+        if not isinstance(text, str):
+            continue
+        if " / " in text and ": " in text and ws.cell(r + 1, 1).value == "Project year":
+            asset, rest = text.split(" / ", 1)
+            current = (asset, rest.split(":", 1)[0])
+            blocks[current] = {"title": r}
+        elif current is not None:
+            blocks[current].setdefault(text, r)
+    return blocks
+
+
+def as_float(value) -> float:
+    """An evaluated cell as a float; text ('none', 'not within horizon') and errors become NaN."""
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+class TestWorkbookOpens:
+    def test_expected_sheets(self, asset_pack):
+        assert load_workbook(asset_pack).sheetnames == SHEETS
+
+    def test_every_finance_assumption_listed(self, asset_pack, small):
+        ws = load_workbook(asset_pack)["Assumptions"]
+        keys = {ws.cell(r, 1).value for r in range(1, ws.max_row + 1)}
+        # every field of the case's FinanceAssumptions appears (budget as one row per plan year)
+        for name in ("discount_rate_frac", "horizon_yr", "escalation_energy_frac", "grid_co2_kg_per_kwh",
+                     "replacement_mode", "monte_carlo_seed", "budget_per_yr, plan year 0", "budget_per_yr, plan year 1"):
+            assert name in keys
+
+    def test_one_block_per_project(self, asset_pack, small):
+        _, result = small
+        res = result.results
+        projects = set(zip(res["asset_id"], res["option_id"])) - {(a, "keep") for a in res["asset_id"]}
+        assert set(block_rows(asset_pack)) == projects
+
+    def test_money_cells_carry_the_currency(self, asset_pack):
+        ws = load_workbook(asset_pack)["Results"]
+        formats = {ws.cell(r, c).number_format for r in range(4, 10) for c in range(1, ws.max_column + 1)}
+        assert any('"EUR"' in f for f in formats)
+
+
+@pytest.fixture(scope="module")
+def values(asset_pack):
+    """The asset pack's cells as the independent evaluator computes them (about 7 s, so once)."""
+    return evaluate(asset_pack)
+
+
+@pytest.fixture(scope="module")
+def blocks(asset_pack):
+    return block_rows(asset_pack)
+
+
+class TestFormulasReproduceTheEngine:
+    """Independent tool: the `formulas` evaluator recomputes the sheet; expected = the engine's metrics."""
+
+    def metric(self, values, blocks, asset, option, label):
+        return values[("CASH FLOWS", f"B{blocks[(asset, option)][label]}")]
+
+    def test_net_rows_add_up_to_the_engine_flows(self, values, blocks, small):
+        _, result = small
+        cf = result.cashflows
+        for (asset, option), rows in blocks.items():
+            net_row = rows["Net cash flow"]
+            engine = cf[(cf["asset_id"] == asset) & (cf["option_id"] == option)].groupby("year")["amount"].sum()
+            expected = engine.reindex(range(16), fill_value=0.0).to_numpy()
+            got = [as_float(values[("CASH FLOWS", f"{chr(ord('B') + t)}{net_row}")]) for t in range(16)]
+            assert_allclose(got, expected, rtol=1e-12, atol=1e-9)  # same doubles summed: rounding only
+
+    def test_npv_of_every_project(self, values, blocks, small):
+        _, result = small
+        for r in result.results[result.results["option_id"] != "keep"].itertuples():
+            got = as_float(self.metric(values, blocks, r.asset_id, r.option_id, "NPV at the discount rate"))
+            assert_allclose(got, r.npv, rtol=RTOL, atol=1e-6)
+
+    def test_irr_of_every_project(self, values, blocks, small):
+        _, result = small
+        for r in result.results[result.results["option_id"] != "keep"].itertuples():
+            got = self.metric(values, blocks, r.asset_id, r.option_id, "IRR")
+            if r.irr_status == "none":
+                assert got == "none"  # no rate zeroes the NPV: the sheet says so in words
+            else:
+                assert_allclose(as_float(got), r.irr_frac, rtol=RTOL)
+
+    def test_paybacks_of_every_project(self, values, blocks, small):
+        _, result = small
+        for r in result.results[result.results["option_id"] != "keep"].itertuples():
+            for label, engine in (("Simple payback [yr]", r.simple_payback_yr),
+                                  ("Discounted payback [yr]", r.discounted_payback_yr)):
+                got = self.metric(values, blocks, r.asset_id, r.option_id, label)
+                if math.isinf(engine):
+                    assert got == "not within horizon"
+                else:
+                    assert_allclose(as_float(got), engine, rtol=RTOL)
+
+    def test_named_cases(self, values, blocks, small):
+        """The variety the comparison above covers, pinned so a changed case cannot hollow it out."""
+        _, result = small
+        res = result.results.set_index(["asset_id", "option_id"])
+        # payback within the horizon (the recommended drive)
+        assert math.isfinite(res.loc[("P1", "add_drive"), "simple_payback_yr"])
+        # simple payback inside 15 years, discounted payback not
+        assert math.isfinite(res.loc[("C1", "ie4"), "simple_payback_yr"])
+        assert math.isinf(res.loc[("C1", "ie4"), "discounted_payback_yr"])
+        assert self.metric(values, blocks, "C1", "ie4", "Discounted payback [yr]") == "not within horizon"
+        # payback never reached and no IRR at all (the rewind only loses money)
+        assert math.isinf(res.loc[("P1", "rewind"), "simple_payback_yr"])
+        assert self.metric(values, blocks, "P1", "rewind", "Simple payback [yr]") == "not within horizon"
+        assert self.metric(values, blocks, "P1", "rewind", "IRR") == "none"
+        # flows with several sign changes: both sides report the root closest to 0
+        assert res.loc[("F1", "rewind"), "irr_status"] == "multiple"
+
+    def test_checks_sheet_all_ok(self, values, blocks):
+        statuses = [v for (sheet, ref), v in values.items() if sheet == "CHECKS" and ref.startswith("M")
+                    and ref != "M4"]
+        assert len(statuses) == len(blocks)
+        assert set(statuses) == {"OK"}
+
+
+class TestLiveFormulas:
+    def test_discount_rate_cell_drives_every_npv(self, plan_pack, small, tmp_path):
+        """Change the rate on 'Assumptions': the sheet's NPV follows numpy_financial.npv of the engine's flows."""
+        _, result = small
+        book = load_workbook(plan_pack)
+        ws = book["Assumptions"]
+        row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "discount_rate_frac")
+        ws.cell(row, 2).value = 0.12
+        edited = tmp_path / "edited.xlsx"
+        book.save(edited)
+        values = evaluate(edited)
+        blocks = block_rows(edited)
+        cf = result.cashflows
+        for (asset, option), rows in blocks.items():
+            flows = cf[(cf["asset_id"] == asset) & (cf["option_id"] == option)].groupby("year")["amount"].sum()
+            flows = flows.reindex(range(16), fill_value=0.0).to_numpy()
+            # independent tool: numpy_financial 1.0 npv (year 0 undiscounted, as the engine's convention)
+            expected = npf.npv(0.12, flows)
+            got = as_float(values[("CASH FLOWS", f"B{rows['NPV at the discount rate']}")])
+            assert_allclose(got, expected, rtol=1e-9)
+
+    def test_plan_sheet_formulas(self, plan_pack, small):
+        """Plan-year totals (SUMIF) and NPV at plan start (NPV / (1 + d)^year) against the engine's plan."""
+        _, result = small
+        plan = result.plan
+        assert sorted(plan["start_yr"]) == [0, 1]  # the budget splits the two projects over two years
+        values = evaluate(plan_pack)
+        ws = load_workbook(plan_pack)["Plan"]
+        header = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "By plan year") + 1
+        for r in range(header + 1, header + 3):
+            year = ws.cell(r, 1).value
+            expected = plan.loc[plan["start_yr"] == year, "capital"].sum()
+            assert_allclose(as_float(values[("PLAN", f"C{r}")]), expected, rtol=1e-12)
+            expected_npv = plan.loc[plan["start_yr"] == year, "npv_at_plan_start"].sum()
+            assert_allclose(as_float(values[("PLAN", f"E{r}")]), expected_npv, rtol=RTOL)
+
+
+class TestInjectionGuard:
+    def test_descriptions_are_inert_text(self, asset_pack):
+        book = load_workbook(asset_pack)
+        found = {INJECTION_HYPERLINK: 0, INJECTION_AT: 0, INJECTION_HTML: 0}
+        for ws in book.worksheets:
+            for row in ws.iter_rows():
+                for c in row:
+                    if c.value in found:
+                        found[c.value] += 1
+                        assert c.data_type == "s"
+                        if c.value[0] in "=@":
+                            assert c.quotePrefix  # a spreadsheet keeps it as text even when edited
+        assert all(n > 0 for n in found.values()), found
+
+    def test_no_formula_carries_user_text(self, asset_pack):
+        book = load_workbook(asset_pack)
+        for ws in book.worksheets:
+            for row in ws.iter_rows():
+                for c in row:
+                    if c.data_type == "f":
+                        assert "HYPERLINK" not in c.value and "SUM(A1)" not in c.value
+
+    def test_evaluator_reads_the_text_back(self, values):
+        assert INJECTION_HYPERLINK in set(values.values())
+
+    def test_put_text_guard(self):
+        ws = Workbook().active
+        for k, text in enumerate(("=1+1", "+1", "-1", "@A1", "plain", "bell\x07char"), start=1):
+            c = put(ws, k, 1, text)
+            assert c.data_type == "s"
+        assert ws.cell(6, 1).value == "bellchar"  # control characters XML cannot hold are dropped
+        assert put(ws, 7, 1, float("inf")).value is None  # infinite numbers are left blank
+        with pytest.raises(ValueError, match="starts with '='"):
+            put_formula(ws, 8, 1, "SUM(A1:A2)")
+
+
+@pytest.fixture(scope="module")
+def hand(tmp_path_factory):
+    """Three hand-worked projects written with the block writer, evaluated by `formulas`."""
+    book = Workbook()
+    book.active.title = "Assumptions"
+    book["Assumptions"]["A2"] = "discount_rate_frac"
+    book["Assumptions"]["B2"] = 0.08
+    ws = book.create_sheet("Cash flows")
+    cases = {"A": {"capital_equipment": [-1000, 0, 0, 0], "savings_energy": [0, 400, 400, 400]},
+             "B": {"capital_equipment": [-1000, 0, 0, 0], "savings_energy": [0, -10, -10, -10]},
+             "C": {"savings_energy": [0, 0, 50, 50]}}
+    row = 1
+    for name, flows in cases.items():
+        table = pd.DataFrame.from_dict(flows, orient="index", columns=range(4), dtype=float)
+        row, _ = write_project_block(ws, row, f"T{name} / case: hand", table, "'Assumptions'!$B$2", {})
+    path = tmp_path_factory.mktemp("hand") / "hand.xlsx"
+    book.save(path)
+    values = evaluate(path)
+    rows = block_rows(path)
+    return {name: {label: values.get(("CASH FLOWS", f"B{r}")) for label, r in rows[(f"T{name}", "case")].items()}
+            for name in cases}
+
+
+class TestBlockFormulasByHand:
+    """Hand calculation, see docs/derivations/pack-workbook-formulas.md (evaluated by `formulas`)."""
+
+    def test_case_a(self, hand):
+        a = hand["A"]
+        assert_allclose(as_float(a["NPV at the discount rate"]), 30.838795, atol=1e-6)  # hand, case A
+        assert_allclose(as_float(a["Simple payback [yr]"]), 2.5, rtol=1e-12)  # hand, case A
+        assert_allclose(as_float(a["Discounted payback [yr]"]), 2.90288, rtol=1e-9)  # hand, case A (exact)
+        assert_allclose(as_float(a["IRR"]), 0.097010, atol=5e-7)  # hand interpolation, case A, to 6 decimals
+
+    def test_case_b_never_pays_back(self, hand):
+        b = hand["B"]
+        assert_allclose(as_float(b["NPV at the discount rate"]), -1025.770970, atol=1e-6)  # hand, case B
+        assert b["Simple payback [yr]"] == b["Discounted payback [yr]"] == "not within horizon"
+        assert b["IRR"] == "none"
+
+    def test_case_c_nothing_up_front(self, hand):
+        c = hand["C"]
+        assert_allclose(as_float(c["NPV at the discount rate"]), 82.558553, atol=1e-6)  # hand, case C
+        assert_allclose([as_float(c["Simple payback [yr]"]), as_float(c["Discounted payback [yr]"])], 0.0,
+                        atol=1e-12)  # hand, case C: S_0 = 0 has paid back at once
+        assert c["IRR"] == "none"
