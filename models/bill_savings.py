@@ -17,7 +17,7 @@ import pandas as pd
 
 from models import attribution, billing
 from models.profiles import conform
-from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank
+from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, tan_phi_from_power_factor
 
 #: Components the finance engine escalates separately, and the bill line-item categories each gathers.
 COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
@@ -165,6 +165,42 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) 
     return np.concatenate(js), np.concatenate(os_)
 
 
+def tariff_depends_on_kvar(tariff) -> bool:
+    """True when a tariff's bill can change with reactive power alone.
+
+    A bill depends on kVAr through kVArh clauses (lagging or leading), kVAh energy, kVA demand or a
+    power-factor adjustment of demand; without any of them (and only then) a kVAr change saves exactly 0.
+    """
+    if tariff.reactive or tariff.leading:
+        return True
+    if tariff.energy is not None and tariff.energy.basis != "kWh":
+        return True
+    return any(d.basis != "kW" or d.power_factor_adjustment is not None for d in tariff.demand)
+
+
+def _scenario_bills(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_kw: np.ndarray,
+                    q_kvar: np.ndarray) -> pd.DataFrame:
+    """Bill totals by line item of asset-total scenarios (S, n_steps) at one site's meter.
+
+    The meter is :func:`models.site.meter_from_asset_totals` (base load, fixed banks, automatic banks in
+    order) term by term, without the apparent power, power factor and leading flags a bill does not use.
+    """
+    site = setup.site
+    base_p = setup.base_p_kw_profile if setup.base_p_kw_profile is not None else site.base_p_kw
+    base_p = np.asarray(base_p, dtype=float)
+    p = p_kw + base_p
+    q = q_kvar + base_p * tan_phi_from_power_factor(site.base_power_factor)
+    sizes = np.asarray([b.rated_q_kvar for b in site.fixed_banks], dtype=float)
+    cap = np.zeros(np.broadcast_shapes(p.shape, q.shape))
+    if sizes.size:
+        energised = np.broadcast_to(np.asarray(True, dtype=bool), (sizes.size,) + p.shape[-1:])
+        cap = cap - np.tensordot(sizes, energised.astype(float), axes=(0, 0))
+    q = q + cap
+    for bank in site.stepped_banks:
+        q = q + bank.q_kvar(p, q)
+    return billing.bill_many(setup.tariff, index, p, q, interval_h=interval_h)
+
+
 def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_site, q_site, applies: np.ndarray,
                  technologies: np.ndarray, capacitor_cost_per_kvar: float, block_scenarios: int | None = None) -> dict:
     """Price every asset-option of one site by the bill change when only that asset changes.
@@ -193,10 +229,13 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
 
     Notes
     -----
-    Same prices as :func:`models.attribution.option_savings` asset by asset (each scenario row of a bill
-    is priced on its own), but every changed asset-option of the site is billed in blocks of
-    ``block_scenarios`` rows, and the equivalent capacitor bank's saving curve, which depends only on the
-    site's baseline meter, is built once per site and read for every reactive option.
+    The same prices as :func:`models.attribution.option_savings` asset by asset (each scenario row of a
+    bill is priced on its own; saving_j = B(base) - B(base + delta_j), reactive_saving_j = B(base) -
+    B(base + (0, delta_Q_j))), but every changed asset-option of the site is billed in blocks of
+    ``block_scenarios`` rows; the reactive-only bills are skipped (saving exactly 0) for a tariff that
+    does not depend on kVAr (:func:`tariff_depends_on_kvar`); and the equivalent capacitor bank's saving
+    curve, which depends only on the site's baseline meter, is built once per site and read for every
+    reactive option.
     """
     n_s, n_o = p_site.shape[1], p_site.shape[0]
     saving = np.zeros((n_s, n_o, len(SAVING_COMPONENTS)))
@@ -210,14 +249,18 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
     q0 = q_site[0].sum(axis=0)
     n_t = p_site.shape[2]
     block = int(block_scenarios) if block_scenarios else max(1, billing._CHUNK_ELEMENTS // max(n_t, 1))
+    base = _scenario_bills(setup, index, interval_h, p0[None, :], q0[None, :])
+    q_matters = tariff_depends_on_kvar(setup.tariff)
     for start in range(0, len(js), block):
         j, o = js[start:start + block], os_[start:start + block]
         dp = p_site[o, j] - p_site[0, j]
         dq = q_site[o, j] - q_site[0, j]
-        frame = attribution.option_savings(setup.tariff, index, p0, q0, dp, dq, site=setup.site,
-                                           base_p_kw_profile=setup.base_p_kw_profile, interval_h=interval_h)
+        full = _scenario_bills(setup, index, interval_h, p0 + dp, q0 + dq)
+        frame = attribution.saving_by_category(base, full)
         saving[j, o] = _components(frame)
-        reactive[j, o] = frame["reactive_saving"].to_numpy(dtype=float)
+        if q_matters:
+            reactive_only = _scenario_bills(setup, index, interval_h, np.broadcast_to(p0 + 0.0, dq.shape), q0 + dq)
+            reactive[j, o] = float(base["total"].iloc[0]) - reactive_only["total"].to_numpy()
     is_reactive = np.isin(technologies[os_], REACTIVE_TECHNOLOGIES)
     if is_reactive.any():
         j, o = js[is_reactive], os_[is_reactive]

@@ -199,6 +199,13 @@ class _Load:
     running: np.ndarray       # bool
     weight_h: np.ndarray      # hours each column stands for, (n, m)
     p_design_kw: np.ndarray   # design (valve-open) shaft power per asset [kW], (n, 1)
+    controlled: tuple[np.ndarray, np.ndarray] | None = None  # _speed_controlled's result, once computed
+
+    def rows(self, sub: np.ndarray) -> "_Load":
+        """The same load for a subset of its assets (element-wise quantities, so sliced, not recomputed)."""
+        controlled = None if self.controlled is None else (self.controlled[0][sub], self.controlled[1][sub])
+        return _Load(self.p_ref_kw[sub], self.n_ref_rpm[sub], self.running[sub], self.weight_h[sub],
+                     self.p_design_kw[sub], controlled)
 
 
 def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray, is_input_kw: np.ndarray,
@@ -219,6 +226,8 @@ def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray
 
 def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:
     """Shaft power and speed fraction once a drive controls the flow (throttle removed where there was one)."""
+    if load.controlled is not None:
+        return load.controlled
     p = load.p_ref_kw
     sync = arr["sync_rpm"][:, None]
     throttled = arr["throttled"][:, None] & (arr["exponent"][:, None] == 3.0)
@@ -547,11 +556,13 @@ def _site_other(case, site_id: str, total_p: np.ndarray, total_q: np.ndarray, ow
 
 
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
-                   only_today: bool = False) -> OperatingResult:
+                   only_today: bool = False, wanted=None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
-    block's own totals (the block is the whole site). With ``only_today`` only today's motors run.
+    block's own totals (the block is the whole site). With ``only_today`` only today's motors run; with
+    ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
+    its own, so the values are those of a full run; the others repeat today's).
     """
     from dataclasses import replace
 
@@ -621,20 +632,22 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
 
     # today's motors first
     for kind, rows_, arr, existing, load in groups:
+        load.controlled = _speed_controlled(arr, load)  # element-wise: computed once, sliced for each option
         pt = _evaluate(options.iloc[0], arr, existing, load)
         store(0, kind, rows_, np.arange(len(rows_)), pt, load)
         running_h[rows_] = np.where(load.running, load.weight_h, 0.0).sum(axis=1)
     if site_totals is None:
         site_totals = (p_kw[0].sum(axis=0), q_kvar[0].sum(axis=0))
     for o in range(1, 1 if only_today else n_o):
+        if wanted is not None and o not in wanted:
+            continue
         option = options.iloc[o]
         for kind, rows_, arr, existing, load in groups:
             sub = np.flatnonzero(applies[rows_, o])
             if not len(sub):
                 continue
             arr_s = _take(arr, sub)
-            load_s = _Load(load.p_ref_kw[sub], load.n_ref_rpm[sub], load.running[sub], load.weight_h[sub],
-                           load.p_design_kw[sub])
+            load_s = load.rows(sub)
             existing_s = existing_motor(arr_s)
             site_other = None
             if option["technology"] == "wound_field" and kind == "interval":
@@ -752,6 +765,7 @@ class _Merger:
         p, q = f["p_kw"], f["q_kvar"]
         if not self.dense:
             n_o = len(first.option_ids)
+            self.recompute.today_p, self.recompute.today_q = p, q
             p = SiteIntervalStore(p, n_o, self.recompute, "p_kw")
             q = SiteIntervalStore(q, n_o, self.recompute, "q_kvar")
         return OperatingResult(
@@ -768,7 +782,12 @@ _PER_ASSET_FIELDS = ("asset_ids", "site_ids", "applies", "reason", "energy_kwh",
 
 
 class _SiteRecompute:
-    """Recomputes one site's per-interval power on demand (the most recent site is kept)."""
+    """Recomputes per-interval power of some options for some assets, block by block, on demand.
+
+    Each block of a site is run again exactly as in the full run (same assets, same site totals of
+    today's motors), for the options asked for only, so the values are the full run's. The latest
+    block's result is kept.
+    """
 
     def __init__(self, case, index: pd.DatetimeIndex, chunk_assets: int | None):
         self.case, self.index, self.chunk_assets = case, index, chunk_assets
@@ -778,14 +797,32 @@ class _SiteRecompute:
         for k, (_, rows) in enumerate(self.partition):
             self.site_of[rows] = k
             self.local[rows] = np.arange(len(rows))
-        self._cached: tuple[int, np.ndarray, np.ndarray] | None = None
+        self.today_p: np.ndarray | None = None  # set by the merger: today's motors, every asset
+        self.today_q: np.ndarray | None = None
+        self._cached: tuple | None = None
 
-    def arrays(self, k: int) -> tuple[np.ndarray, np.ndarray]:
-        if self._cached is None or self._cached[0] != k:
-            self._cached = None
-            op = operate_site(site_case(self.case, self.partition[k][0]), self.index, self.chunk_assets)
-            self._cached = (k, op.p_kw, op.q_kvar)
-        return self._cached[1], self._cached[2]
+    def values(self, k: int, options: np.ndarray, local: np.ndarray, quantity: int) -> np.ndarray:
+        """Rows (options[i], local[i]) of site k, shape (len(options), n_steps)."""
+        site_id, rows = self.partition[k]
+        blocks = asset_blocks(len(rows), len(self.index), self.chunk_assets)
+        totals = None
+        if len(blocks) > 1:
+            totals = (self.today_p[rows].sum(axis=0), self.today_q[rows].sum(axis=0))
+        out = np.empty((len(options), len(self.index)))
+        size = len(blocks[0])
+        block_of = local // size
+        sub_case = None
+        for b in np.unique(block_of):
+            sel = np.flatnonzero(block_of == b)
+            wanted = frozenset(int(o) for o in np.unique(options[sel]))
+            key = (k, int(b), wanted)
+            if self._cached is None or self._cached[0] != key:
+                self._cached = None
+                sub_case = sub_case if sub_case is not None else site_case(self.case, site_id)
+                op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted)
+                self._cached = (key, op.p_kw, op.q_kvar)
+            out[sel] = self._cached[1 + quantity][options[sel], local[sel] - b * size]
+        return out
 
     def __getstate__(self):
         state = dict(self.__dict__)
@@ -796,8 +833,9 @@ class _SiteRecompute:
 class SiteIntervalStore:
     """Per-interval power of every option, shape (n_options, n_assets, n_steps), kept compact for large fleets.
 
-    Today's motors (option 0) are held in memory; any other option is recomputed for its whole site when
-    indexed (the same calculation, so the same numbers), one site at a time. Indexing follows numpy's
+    Today's motors (option 0) are held in memory; any other option is recomputed when indexed, for the
+    blocks of assets and the options asked for only (the same calculation on the same block, so the
+    same numbers). Indexing follows numpy's
     rules for integer, slice, boolean and integer-array keys on the first two axes (two index arrays are
     paired, as in ``p_kw[choice, rows]``); ``numpy.asarray`` materialises the whole array.
     """
@@ -828,8 +866,7 @@ class SiteIntervalStore:
             sites = self._recompute.site_of[assets[rest]]
             for k in np.unique(sites):
                 sel = rest[sites == k]
-                arrays = self._recompute.arrays(int(k))
-                out[sel] = arrays[self._k][options[sel], self._recompute.local[assets[sel]]]
+                out[sel] = self._recompute.values(int(k), options[sel], self._recompute.local[assets[sel]], self._k)
         return out
 
     def __getitem__(self, key):

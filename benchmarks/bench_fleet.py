@@ -1,0 +1,260 @@
+"""Fleet-size benchmark: wall time, peak memory and throughput per stage, on synthetic fleets.
+
+Run from the repository root (not part of the test suite; a 10,000-asset run takes several minutes):
+
+    .venv/bin/python benchmarks/bench_fleet.py --assets 1000 10000
+
+For each size it writes a seeded synthetic fleet (benchmarks/synthetic_fleet.py: 20 sites, a tariff per
+site from data/tariffs/, every option of the default catalogue, an hourly year, profiles shared in
+groups, Parquet) to a temporary folder, then runs the analysis in a fresh subprocess per engine so the
+memory figures are that run's alone. Stages: load (reading and validating the case), machines and site
+bills (run interleaved site by site; their times are measured apart, their memory peak is shared),
+finance (cash flows and metrics), plan, end of life, Monte Carlo (tornado and risk), bills. Peak memory
+is the largest resident set of the process and its children (Dask workers), sampled every 20 ms with
+psutil. Throughput is asset-option-steps per second. The bandwidth floor is one numpy pass over an array
+of the size of the load array (n_assets x n_steps float64), timed in the same process.
+A 1,000-draw Monte Carlo on the demo case is timed as well. The figures and the machine are written to
+the "Fleet benchmark" section of docs/performance.md (other sections are left as they are).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import re
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "benchmarks"))
+
+SECTION = "## Fleet benchmark"
+STAGE_ORDER = ("load", "machines", "site bills", "finance", "plan", "end of life", "Monte Carlo", "bills")
+#: Economics stage names (models.scenario.economics) -> benchmark stage.
+ECONOMICS_STAGES = {"cash flows": "finance", "metrics": "finance", "fleet plan": "plan", "end of life": "end of life",
+                    "risk": "Monte Carlo", "bills": "bills"}
+
+
+class PeakSampler:
+    """Samples the resident memory of this process and its children; keeps the peak of each labelled stage."""
+
+    def __init__(self, period_s: float = 0.02):
+        import psutil
+
+        self.proc = psutil.Process()
+        self.period_s = period_s
+        self.stage = "start"
+        self.peaks: dict[str, int] = {}
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, daemon=True)
+
+    def rss(self) -> int:
+        total = 0
+        for p in [self.proc] + self.proc.children(recursive=True):
+            try:
+                total += p.memory_info().rss
+            except Exception:  # a child that just ended
+                pass
+        return total
+
+    def _run(self) -> None:
+        while not self._stop.is_set():
+            value = self.rss()
+            self.peaks[self.stage] = max(self.peaks.get(self.stage, 0), value)
+            time.sleep(self.period_s)
+
+    def start(self) -> "PeakSampler":
+        self._thread.start()
+        return self
+
+    def mark(self, stage: str) -> None:
+        value = self.rss()
+        self.peaks[self.stage] = max(self.peaks.get(self.stage, 0), value)
+        self.stage = stage
+        self.peaks[stage] = max(self.peaks.get(stage, 0), value)
+
+    def stop(self) -> None:
+        self._stop.set()
+        self._thread.join()
+
+
+def bandwidth_floor_s(n_assets: int, n_steps: int, repeats: int = 5) -> float:
+    """Best time of one numpy pass (multiply into a preallocated buffer) over an (n_assets, n_steps) array [s]."""
+    load = np.random.default_rng(0).random((n_assets, n_steps))
+    buf = np.empty_like(load)
+    best = np.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        np.multiply(load, 1.0001, out=buf)
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def child(case_dir: str, engine: str) -> dict:
+    """Run one case in this process; return stage times [s], peaks [bytes] and sizes."""
+    sampler = PeakSampler().start()
+    times: dict[str, float] = {}
+    sampler.mark("load")
+    t0 = time.perf_counter()
+    from models import scenario
+    from models.case import load_case
+    from models.operation import _with_baseline, case_index
+
+    case, problems = load_case(case_dir)
+    if case is None:
+        raise SystemExit(f"case not valid: {[str(p) for p in problems][:5]}")
+    times["load"] = time.perf_counter() - t0
+    n_assets, n_options, n_steps = len(case.assets), len(_with_baseline(case.options)), len(case_index(case))
+    state = {"stage": None, "t": time.perf_counter()}
+
+    def progress(name: str) -> None:
+        now = time.perf_counter()
+        if state["stage"] is not None:
+            times[state["stage"]] = times.get(state["stage"], 0.0) + now - state["t"]
+        state["stage"], state["t"] = ECONOMICS_STAGES.get(name, "physics"), now
+        sampler.mark(state["stage"])
+
+    t_run = time.perf_counter()
+    if engine == "dask":
+        from models.distributed import run_distributed
+
+        result = run_distributed(case, case.finance, progress=progress)
+    else:
+        timer: dict[str, float] = {}
+        phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar), progress, timer=timer)
+        result = scenario.economics(case, phys, case.finance, progress)
+        times.pop("physics", None)
+        times["machines"], times["site bills"] = timer["machines"], timer["site bills"]
+    progress("end")
+    times["end to end"] = time.perf_counter() - t_run + times["load"]
+    sampler.stop()
+    peaks = dict(sampler.peaks)
+    if "physics" in peaks:
+        peaks["machines"] = peaks["site bills"] = peaks.pop("physics")
+    if engine == "dask":
+        times["machines + site bills"] = times.pop("physics")
+    floor = bandwidth_floor_s(n_assets, n_steps)
+    order = list(STAGE_ORDER) + ["machines + site bills", "end to end"]
+    times = {k: times[k] for k in sorted(times, key=lambda k: order.index(k) if k in order else len(order))}
+    return {"load_average_1min": os.getloadavg()[0],"engine": engine, "n_assets": n_assets, "n_options": n_options, "n_steps": n_steps, "times_s": times,
+            "peak_bytes": peaks, "overall_peak_bytes": max(peaks.values()), "floor_s": floor,
+            "n_results": len(result.results)}
+
+
+def monte_carlo_demo() -> dict:
+    """Time the Monte Carlo stage of the demo case (its finance file asks for 1,000 draws)."""
+    from models import scenario
+    from models.case import load_case
+
+    case, _ = load_case(ROOT / "data" / "demo")
+    phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar))
+    marks: dict[str, float] = {}
+    scenario.economics(case, phys, case.finance, lambda name: marks.setdefault(name, time.perf_counter()))
+    return {"draws": int(case.finance.monte_carlo_draws), "risk_s": marks["bills"] - marks["risk"]}
+
+
+def machine() -> dict:
+    import pandas
+
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    ram = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    return {"cpu": cpu, "cores": os.cpu_count(), "ram_gib": round(ram / 2**30, 1), "python": platform.python_version(),
+            "numpy": np.__version__, "pandas": pandas.__version__}
+
+
+def run_child(case_dir: Path, engine: str) -> dict:
+    out = subprocess.run([sys.executable, __file__, "--child", str(case_dir), "--engine", engine], check=True,
+                         capture_output=True, text=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def render(runs: list[dict], mc: dict | None, info: dict) -> str:
+    mb = lambda b: f"{b / 2**20:,.0f}"  # noqa: E731
+    lines = [SECTION, "",
+             f"Measured by `benchmarks/bench_fleet.py` on {time.strftime('%Y-%m-%d')}: {info['cpu']}, {info['cores']} cores, "
+             f"{info['ram_gib']} GiB RAM, Python {info['python']}, numpy {info['numpy']}, pandas {info['pandas']}. "
+             "Synthetic fleets of 20 sites (a tariff per site from `data/tariffs/`), every option of the default "
+             "catalogue, one hourly year. Peak memory is the resident set of the process and its Dask workers; machines "
+             "and site bills run interleaved site by site and share one peak. Throughput in asset-option-steps per second.", ""]
+    for r in runs:
+        elems = r["n_assets"] * r["n_options"] * r["n_steps"]
+        lines += [f"### {r['n_assets']:,} assets x {r['n_options']} options x {r['n_steps']:,} steps, {r['engine']} engine", "",
+                  "| stage | wall time [s] | peak memory [MiB] | throughput [asset-option-steps/s] |", "|---|---:|---:|---:|"]
+        for stage, seconds in r["times_s"].items():
+            peak = r["peak_bytes"].get(stage)
+            thr = f"{elems / seconds:,.3g}" if stage in ("machines", "site bills", "machines + site bills") and seconds > 0 else ""
+            lines.append(f"| {stage} | {seconds:,.1f} | {mb(peak) if peak else ''} | {thr} |")
+        machines = r["times_s"].get("machines")
+        ratio = f"{machines / r['floor_s']:,.0f}x" if machines else "n/a (dask: not separated)"
+        lines += ["", f"Load average at the end of the run: {r['load_average_1min']:.1f} (other work shared the 2 cores). "
+                  f"Overall peak {mb(r['overall_peak_bytes'])} MiB. Bandwidth floor (one numpy pass over the "
+                  f"{r['n_assets']:,} x {r['n_steps']:,} load array): {1000 * r['floor_s']:.1f} ms; machines stage / floor: {ratio}.", ""]
+    if mc:
+        lines += [f"Monte Carlo on the demo case ({mc['draws']:,} draws): {mc['risk_s']:.2f} s.", ""]
+    return "\n".join(lines) + "\n"
+
+
+def write_section(text: str, path: Path) -> None:
+    """Replace (or add) the Fleet benchmark section of ``path``, leaving every other section as it is."""
+    if path.exists():
+        doc = path.read_text(encoding="utf-8")
+    else:
+        doc = "# Performance\n\n"
+    pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
+    doc = pattern.sub(lambda _m: text + "\n", doc) if pattern.search(doc) else doc.rstrip("\n") + "\n\n" + text
+    path.write_text(doc.rstrip("\n") + "\n", encoding="utf-8")
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description="Fleet-size benchmark (see the module docstring).")
+    parser.add_argument("--assets", type=int, nargs="+", default=[1000, 10000], help="fleet sizes")
+    parser.add_argument("--sites", type=int, default=20)
+    parser.add_argument("--engines", nargs="+", default=["local"], choices=("local", "dask"))
+    parser.add_argument("--doc", default=str(ROOT / "docs" / "performance.md"), help="document to update")
+    parser.add_argument("--no-write", action="store_true", help="print only; leave docs/performance.md alone")
+    parser.add_argument("--child", help=argparse.SUPPRESS)
+    parser.add_argument("--engine", default="local", help=argparse.SUPPRESS)
+    parser.add_argument("--mc-child", action="store_true", help=argparse.SUPPRESS)
+    args = parser.parse_args(argv)
+    if args.child:
+        print(json.dumps(child(args.child, args.engine)))
+        return
+    if args.mc_child:
+        print(json.dumps(monte_carlo_demo()))
+        return
+    from synthetic_fleet import write_fleet
+
+    runs = []
+    with tempfile.TemporaryDirectory(prefix="drivecase-bench-") as tmp:
+        for n in args.assets:
+            folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites)
+            for engine in args.engines:
+                r = run_child(folder, engine)
+                print(json.dumps(r), flush=True)
+                runs.append(r)
+    out = subprocess.run([sys.executable, __file__, "--mc-child"], check=True, capture_output=True, text=True)
+    mc = json.loads(out.stdout.strip().splitlines()[-1])
+    text = render(runs, mc, machine())
+    print(text)
+    if not args.no_write:
+        write_section(text, Path(args.doc))
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,152 @@
+"""Working in bounded blocks: chunked and unchunked runs agree, and the memory bounds hold.
+
+Every expectation here is an invariant of our own design (docs/scale.md): no published number is
+involved. Tolerances are stated where the solvers' batch-wide stopping rule can move the last digits.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from models import operation, scenario
+from models.bill_savings import site_savings, site_setups
+from models.case import load_case
+from models.exports import csv_bytes, run_tables
+from models.operation import (CHUNK_ELEMENTS, SiteIntervalStore, asset_blocks, case_index, interval_bytes, operate,
+                              operate_site, site_case, site_partition)
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+from synthetic_fleet import write_fleet  # noqa: E402
+
+# The speed-coupling fixed point (models.loads) stops when the largest change in the batch is below
+# 1e-9 x the batch's largest load, so a block of other assets can move the last digits: up to ~1e-8
+# relative and 1e-7 kW were seen on these fleets; 1e-7 relative plus 1e-6 kW (or kWh) bounds that with margin.
+BATCH_RTOL = 1e-7
+BATCH_ATOL = 1e-6
+
+
+@pytest.fixture(scope="module")
+def fleet(tmp_path_factory):
+    folder = write_fleet(tmp_path_factory.mktemp("fleet"), 14, n_sites=3, seed=7)
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    return case
+
+
+@pytest.fixture(scope="module")
+def whole(fleet):
+    return operate(fleet)
+
+
+@pytest.fixture(scope="module")
+def whole_physics(fleet):
+    return scenario.physics(fleet, 35.0)
+
+
+class TestAssetBlocks:
+    def test_blocks_cover_every_asset_once_within_the_size(self):
+        blocks = asset_blocks(10, 8760, chunk_assets=4)
+        assert [len(b) for b in blocks] == [4, 4, 2]
+        assert np.array_equal(np.concatenate(blocks), np.arange(10))
+
+    def test_default_block_holds_at_most_chunk_elements(self):
+        for n_steps in (8760, 35040, 1):
+            blocks = asset_blocks(100_000, n_steps)
+            assert max(len(b) for b in blocks) * n_steps <= max(CHUNK_ELEMENTS, n_steps)
+
+    def test_zero_chunk_raises(self):
+        with pytest.raises(ValueError, match="chunk_assets"):
+            asset_blocks(10, 8760, chunk_assets=0)
+
+
+class TestSiteCase:
+    def test_site_case_keeps_one_site_and_what_it_uses(self, fleet):
+        site_id, rows = site_partition(fleet)[1]
+        sub = site_case(fleet, site_id)
+        assert list(sub.assets["asset_id"]) == list(fleet.assets["asset_id"].iloc[rows])
+        assert list(sub.sites["site_id"]) == [site_id]
+        assert set(sub.profiles) == set(sub.assets["profile_id"].dropna()) & set(fleet.profiles)
+        assert set(sub.tariffs) == set(sub.sites["tariff_file"])
+
+    def test_operate_site_refuses_two_sites(self, fleet):
+        with pytest.raises(ValueError, match="one-site case"):
+            operate_site(fleet, case_index(fleet))
+
+
+class TestChunkedAgreesWithUnchunked:
+    def test_operate(self, fleet, whole):
+        chunked = operate(fleet, chunk_assets=3)
+        for name in ("p_kw", "q_kvar", "energy_kwh", "shaft_energy_kwh", "losses_kwh", "mean_speed_rpm",
+                     "lagging_kvarh", "leading_kvarh"):
+            assert_allclose(getattr(chunked, name), getattr(whole, name), rtol=BATCH_RTOL, atol=BATCH_ATOL, err_msg=name)
+        assert np.array_equal(chunked.applies, whole.applies)
+        assert chunked.flags.equals(whole.flags)
+
+    def test_blocks_never_exceed_the_chunk(self, fleet, monkeypatch):
+        sizes = []
+        real = operation._operate_block
+
+        def spy(case, index, rows, *args, **kwargs):
+            sizes.append(len(rows))
+            return real(case, index, rows, *args, **kwargs)
+
+        monkeypatch.setattr(operation, "_operate_block", spy)
+        operate(fleet, chunk_assets=3)
+        assert sizes and max(sizes) <= 3
+
+    def test_bill_blocks_are_exact(self, fleet):
+        # each scenario row of a bill is priced on its own: blocks of 3 give the very same savings
+        index = case_index(fleet)
+        site_id, _ = site_partition(fleet)[0]
+        sub = site_case(fleet, site_id)
+        op = operate_site(sub, index)
+        setup = site_setups(sub, index)[site_id]
+        args = (setup, index, op.interval_h, op.p_kw, op.q_kvar, op.applies, op.technologies, 35.0)
+        one, blocks = site_savings(*args), site_savings(*args, block_scenarios=3)
+        for name in one:
+            assert np.array_equal(one[name], blocks[name], equal_nan=True), name
+
+    def test_physics(self, fleet, whole_physics):
+        chunked = scenario.physics(fleet, 35.0, chunk_assets=3)
+        # bills are sums of many intervals: the batch tolerance above carries over, scaled by the bill
+        assert_allclose(chunked.savings.saving, whole_physics.savings.saving, rtol=BATCH_RTOL, atol=1e-4)
+
+
+class TestCompactIntervalStore:
+    def test_store_holds_today_only_and_gives_the_dense_values(self, fleet):
+        dense = operate(fleet, chunk_assets=2)
+        compact = operate(fleet, chunk_assets=2, dense=False)
+        n_o, n_a, n_t = dense.p_kw.shape
+        assert isinstance(compact.p_kw, SiteIntervalStore) and compact.p_kw.shape == (n_o, n_a, n_t)
+        assert compact.p_kw.nbytes == n_a * n_t * 8  # today's motors only, float64
+        rng = np.random.default_rng(3)
+        choice, rows = rng.integers(0, n_o, n_a), np.arange(n_a)
+        assert np.array_equal(compact.p_kw[choice, rows], dense.p_kw[choice, rows])
+        assert np.array_equal(compact.q_kvar[choice, rows], dense.q_kvar[choice, rows])
+        assert np.array_equal(compact.p_kw[:, 4], dense.p_kw[:, 4])
+        assert np.array_equal(compact.q_kvar[2, 3:9, 10:20], dense.q_kvar[2, 3:9, 10:20])
+        assert np.array_equal(np.asarray(compact.p_kw), dense.p_kw)
+
+    def test_store_refuses_ellipsis(self, whole_physics):
+        store = SiteIntervalStore(whole_physics.operation.p_kw[0], 2, None, "p_kw")
+        with pytest.raises(IndexError):
+            store[..., 0]
+
+    def test_dense_is_chosen_only_within_the_budget(self, fleet, whole):
+        n_o = len(whole.option_ids)
+        assert interval_bytes(len(fleet.assets), n_o, 8760) <= operation.DENSE_INTERVAL_BUDGET_BYTES
+        assert isinstance(whole.p_kw, np.ndarray)
+        # 10,000 assets x 11 options x 8,760 steps: 15.4 GB of float64, far above the budget
+        assert interval_bytes(10_000, 11, 8760) > operation.DENSE_INTERVAL_BUDGET_BYTES
+
+    def test_run_tables_identical_with_the_compact_store(self, fleet, whole_physics):
+        dense = scenario.economics(fleet, whole_physics, fleet.finance, with_risk=False)
+        compact = scenario.economics(fleet, scenario.physics(fleet, 35.0, dense=False), fleet.finance, with_risk=False)
+        a, b = run_tables(dense), run_tables(compact)
+        for name in a:
+            assert csv_bytes(a[name]) == csv_bytes(b[name]), name
