@@ -1,6 +1,6 @@
 """The pack in a real browser: the report loads offline and draws every chart; records print on one page.
 
-Runs Debian's Chromium through Playwright (see STACK notes in docs/pack.md); skipped when the browser or
+Runs Debian's Chromium through Playwright (docs/pack.md, section PDF); skipped when the browser or
 Playwright is missing (install the ``chromium`` package and ``pip install playwright``).
 """
 
@@ -35,7 +35,7 @@ def pdf_pages(data: bytes) -> int:
 
 
 @pytest.fixture(scope="module")
-def browser(request):
+def pack_browser(request):
     if request.config.pluginmanager.has_plugin("playwright"):  # share pytest-playwright's loop when loaded
         p, manager = request.getfixturevalue("playwright"), None
     else:
@@ -59,9 +59,9 @@ def pack(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def loaded(browser, pack):
+def loaded(pack_browser, pack):
     """The report opened from disk, every chart drawn; with the requests, errors and dialogs seen."""
-    page = browser.new_page(viewport={"width": 1200, "height": 900})
+    page = pack_browser.new_page(viewport={"width": 1200, "height": 900})
     seen = {"requests": [], "errors": [], "dialogs": []}
     page.on("request", lambda r: seen["requests"].append(r.url))
     page.on("pageerror", lambda e: seen["errors"].append(str(e)))
@@ -96,8 +96,8 @@ def test_no_errors_and_no_script_from_user_text(loaded):
     assert page.evaluate("Array.from(document.scripts).every(s => !s.textContent.includes('alert(1)'))")
 
 
-def test_decision_record_prints_on_one_a4_page(browser, pack):
-    page = browser.new_page()
+def test_decision_record_prints_on_one_a4_page(pack_browser, pack):
+    page = pack_browser.new_page()
     for name in ("P1.html", "F1.html", "C1.html"):
         page.goto((pack / "decision-records" / name).resolve().as_uri())
         page.emulate_media(media="print")

@@ -213,3 +213,17 @@ def test_no_warning_without_pdf(small, tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error", PackWarning)
         write_pack(case, result, tmp_path, assets=["F1"], plan=False)
+
+
+def test_run_without_risk_and_an_empty_plan(small, tmp_path):
+    """A run without the tornado and Monte Carlo, and a plan with no project, still give a readable pack."""
+    import dataclasses
+
+    case, result = small
+    lean = scenario.economics(case, result.physics, case.finance, with_risk=False)
+    empty = dataclasses.replace(lean, plan=lean.plan.iloc[0:0], plan_greedy=lean.plan_greedy.iloc[0:0])
+    paths = write_pack(case, empty, tmp_path)
+    assert [p.name for p in paths] == [WORKBOOK_NAME, REPORT_NAME]
+    html = text(tmp_path / REPORT_NAME)
+    assert "Sensitivity: not computed for this run" in html
+    assert '<div class="value">0 EUR</div>' in html  # no capital asked for

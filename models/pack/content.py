@@ -232,12 +232,15 @@ def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
     """
     horizon = int(result.assumptions.horizon_yr)
     cf = result.cashflows
-    rows = cf[(cf["asset_id"] == asset_id) & (cf["option_id"] == option_id)]
-    table = pd.DataFrame(0.0, index=pd.Index([c for c in COMPONENTS if c in set(rows["component"].astype(str))],
-                                             name="component"), columns=range(horizon + 1))
-    for r in rows.itertuples(index=False):
-        table.loc[str(r.component), int(r.year)] += float(r.amount)
-    return table
+    pick = ((cf["asset_id"].to_numpy() == asset_id) & (cf["option_id"].to_numpy() == option_id))
+    components = cf["component"].to_numpy()[pick].astype(str)
+    years = cf["year"].to_numpy()[pick].astype(int)
+    amounts = cf["amount"].to_numpy(dtype=float)[pick]
+    names = [c for c in COMPONENTS if c in set(components)]
+    position = {c: k for k, c in enumerate(names)}
+    grid = np.zeros((len(names), horizon + 1))
+    np.add.at(grid, (np.array([position[c] for c in components], dtype=int), years), amounts)
+    return pd.DataFrame(grid, index=pd.Index(names, name="component"), columns=range(horizon + 1))
 
 
 def net_flows(result, asset_id: str, option_id: str) -> np.ndarray:

@@ -7,6 +7,8 @@ from the network: no CDN, no web fonts, no external links.
 
 from __future__ import annotations
 
+import functools
+
 import jinja2
 
 #: Shared style sheet: screen and print (A4).
@@ -50,7 +52,11 @@ footer { margin-top: 40px; font-size: 12px; color: var(--muted); }
   h2.first { break-before: auto; page-break-before: auto; }
   table { font-size: 9.5px; }
   tr, .card { break-inside: avoid; page-break-inside: avoid; }
-  .cards { grid-template-columns: repeat(5, 1fr); }
+  .cards { grid-template-columns: repeat(5, 1fr); gap: 6px; }
+  .card { padding: 6px 8px; }
+  .card .value { font-size: 15px; }
+  .card .label, .card .note, .small, p.lead { font-size: 9px; }
+  h1 { font-size: 19px; }
   .toc { display: none; }
   a { color: inherit; text-decoration: none; }
 }
@@ -236,6 +242,11 @@ DECISION = _MACROS + """<!DOCTYPE html>
 _ENV = jinja2.Environment(autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=False)
 
 
+@functools.lru_cache(maxsize=8)
+def _compiled(template: str) -> jinja2.Template:
+    return _ENV.from_string(template)
+
+
 def render(template: str, **values) -> str:
     """Render one of this module's templates with autoescaping."""
-    return _ENV.from_string(template).render(**values)
+    return _compiled(template).render(**values)
