@@ -10,7 +10,7 @@ difference from the sum of the singles is reported as interaction.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -178,6 +178,20 @@ def tariff_depends_on_kvar(tariff) -> bool:
     return any(d.basis != "kW" or d.power_factor_adjustment is not None for d in tariff.demand)
 
 
+def kvar_clauses(tariff):
+    """Return the tariff reduced to its clauses that can depend on kVAr, with every tax.
+
+    Kept: kVArh clauses, kVAh energy, kVA demand and demand with a power-factor adjustment (with their
+    ratchets), and the taxes (their bases then hold only these charges). Dropped: fixed charges, kWh
+    energy and kW demand without adjustment. Between two meter series with the same kW the dropped
+    clauses are equal, and a tax is linear in its base, so the bill difference is the reduced tariff's
+    bill difference (a kVAr change's saving costs about half a full bill to price).
+    """
+    energy = tariff.energy if tariff.energy is not None and tariff.energy.basis != "kWh" else None
+    demand = tuple(d for d in tariff.demand if d.basis != "kW" or d.power_factor_adjustment is not None)
+    return replace(tariff, fixed=(), energy=energy, demand=demand)
+
+
 def _scenario_bills(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_kw: np.ndarray,
                     q_kvar: np.ndarray) -> pd.DataFrame:
     """Bill totals by line item of asset-total scenarios (S, n_steps) at one site's meter.
@@ -232,8 +246,9 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
     The same prices as :func:`models.attribution.option_savings` asset by asset (each scenario row of a
     bill is priced on its own; saving_j = B(base) - B(base + delta_j), reactive_saving_j = B(base) -
     B(base + (0, delta_Q_j))), but every changed asset-option of the site is billed in blocks of
-    ``block_scenarios`` rows; the reactive-only bills are skipped (saving exactly 0) for a tariff that
-    does not depend on kVAr (:func:`tariff_depends_on_kvar`); and the equivalent capacitor bank's saving
+    ``block_scenarios`` rows; the reactive-only bills price only the clauses that can change with kVAr
+    (:func:`kvar_clauses`) and are skipped (saving exactly 0) for a tariff that does not depend on kVAr
+    (:func:`tariff_depends_on_kvar`); and the equivalent capacitor bank's saving
     curve, which depends only on the site's baseline meter, is built once per site and read for every
     reactive option.
     """
@@ -251,6 +266,9 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
     block = int(block_scenarios) if block_scenarios else max(1, billing._CHUNK_ELEMENTS // max(n_t, 1))
     base = _scenario_bills(setup, index, interval_h, p0[None, :], q0[None, :])
     q_matters = tariff_depends_on_kvar(setup.tariff)
+    if q_matters:
+        q_setup = replace(setup, tariff=kvar_clauses(setup.tariff))
+        q_base_total = float(_scenario_bills(q_setup, index, interval_h, p0[None, :], q0[None, :])["total"].iloc[0])
     for start in range(0, len(js), block):
         j, o = js[start:start + block], os_[start:start + block]
         dp = p_site[o, j] - p_site[0, j]
@@ -259,8 +277,8 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
         frame = attribution.saving_by_category(base, full)
         saving[j, o] = _components(frame)
         if q_matters:
-            reactive_only = _scenario_bills(setup, index, interval_h, np.broadcast_to(p0 + 0.0, dq.shape), q0 + dq)
-            reactive[j, o] = float(base["total"].iloc[0]) - reactive_only["total"].to_numpy()
+            reactive_only = _scenario_bills(q_setup, index, interval_h, np.broadcast_to(p0 + 0.0, dq.shape), q0 + dq)
+            reactive[j, o] = q_base_total - reactive_only["total"].to_numpy()
     is_reactive = np.isin(technologies[os_], REACTIVE_TECHNOLOGIES)
     if is_reactive.any():
         j, o = js[is_reactive], os_[is_reactive]

@@ -33,7 +33,7 @@ def _client(scheduler: str | None, n_workers: int, processes: bool):
 
     if scheduler:
         return Client(scheduler), None
-    cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes, dashboard_address=None,
+    cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes, dashboard_address=":0",
                            silence_logs=logging.ERROR)
     return Client(cluster), cluster
 

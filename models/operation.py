@@ -161,6 +161,14 @@ def _take(arrays: dict[str, np.ndarray], rows: np.ndarray) -> dict[str, np.ndarr
     return {k: v[rows] for k, v in arrays.items()}
 
 
+def _take_params(params: induction.InductionParams, rows: np.ndarray) -> induction.InductionParams:
+    """The calibrated motors of a subset of assets (calibration is element-wise: slicing equals recalibrating)."""
+    from dataclasses import fields, replace
+
+    return replace(params, **{f.name: np.asarray(getattr(params, f.name))[rows] for f in fields(params)
+                              if np.ndim(getattr(params, f.name))})
+
+
 def existing_motor(arr: dict[str, np.ndarray], extra_rewinds: int = 0) -> induction.InductionParams:
     """Calibrate today's induction motors (optionally after one more rewind)."""
     speed = np.minimum(arr["speed_rpm"], arr["sync_rpm"] * (1 - 1e-3))
@@ -648,7 +656,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 continue
             arr_s = _take(arr, sub)
             load_s = load.rows(sub)
-            existing_s = existing_motor(arr_s)
+            existing_s = _take_params(existing, sub)
             site_other = None
             if option["technology"] == "wound_field" and kind == "interval":
                 idx = rows_[sub]

@@ -1,0 +1,110 @@
+"""How long a run will take and how much memory it will need, estimated before it starts.
+
+The estimate multiplies the size of the work (assets x options x steps, and assets alone for the
+finance stages) by per-element costs measured by ``benchmarks/bench_fleet.py`` on the reference machine
+(2 cores, 24 GiB, see docs/performance.md, "Fleet benchmark"), and builds the memory peak from the
+arrays the run keeps (docs/scale.md, "Memory model"). It is a planning figure for a large run, good to
+about a factor of two: other work on the machine, a slower CPU, tariffs with more clauses or tighter
+budgets (a longer plan search) move it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, _with_baseline, case_index, interval_bytes,
+                              site_partition)
+
+#: Machines stage per asset-option-step [s]: 60.6 s for 1,000 assets x 11 options x 8,760 steps
+#: (bench_fleet, local engine, 2026-12-01, load average 6 on 2 cores).
+MACHINES_S_PER_ELEMENT = 60.6 / (1000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s]: 57.7 s for the same fleet and run.
+SITE_BILLS_S_PER_ELEMENT = 57.7 / (1000 * 11 * 8760)
+#: Finance, end of life, Monte Carlo and bills per asset [s]: 6.8 s per 1,000 assets, same run.
+ECONOMICS_S_PER_ASSET = 6.8 / 1000
+#: Exact fleet plan [s]: 19.8 s for 1,000 assets in the same run; the solver stops at its 60 s limit
+#: (models.plan.plan_exact), so the estimate is capped there plus the greedy plan and set-up.
+PLAN_S_PER_ASSET = 19.8 / 1000
+PLAN_MAX_S = 75.0
+#: Reading and validating a case per asset [s]: 1.2 s per 1,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 1.2 / 1000
+#: Resident memory of the interpreter, libraries and a loaded case before the analysis [bytes].
+BASE_BYTES = 300 * 2**20
+#: Temporaries of the machine models per asset-step of one block [bytes]: about 40 float64 arrays of the
+#: block's size live at once (fitted to the 1,000-asset peak of 2.0 GiB, docs/scale.md).
+BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
+#: Economics arrays per asset-option [bytes]: cash flows by component and year for every project.
+ECONOMICS_BYTES_PER_PAIR = 16 * 16 * 8
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """Estimated wall time and peak memory of a run.
+
+    Attributes
+    ----------
+    seconds : float
+        Wall time of ``drivecase run`` with the local engine [s].
+    peak_bytes : int
+        Peak resident memory [bytes].
+    note : str
+        One line for the user: the size of the work, the two figures, and what the run keeps in memory.
+    """
+
+    seconds: float
+    peak_bytes: int
+    note: str
+
+
+def estimate_run(case, workers: int = 1) -> Estimate:
+    """Estimate the wall time and peak memory of a run from the size of the case.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        A validated case.
+    workers : int
+        Dask workers the physics is spread over (1 = the local engine), >= 1. Sites run in parallel, so
+        the physics time divides by at most the number of sites.
+
+    Returns
+    -------
+    Estimate
+
+    Notes
+    -----
+    t = n_a n_o n_t (c_machines + c_bills) / min(workers, n_sites) + n_a (c_load + c_economics)
+    + min(n_a c_plan, t_plan,max), with the constants of this module (measured by
+    ``benchmarks/bench_fleet.py``). Peak = base + per-interval store (every option when it fits
+    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the largest site's
+    per-option arrays + one block's temporaries + the economics arrays.
+    """
+    if workers < 1:
+        raise ValueError("workers must be >= 1")
+    n_a = len(case.assets)
+    n_o = len(_with_baseline(case.options))
+    n_t = len(case_index(case))
+    sites = site_partition(case)
+    largest = max((len(rows) for _, rows in sites), default=0)
+    elements = n_a * n_o * n_t
+    parallel = max(1, min(int(workers), len(sites)))
+    seconds = (elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
+               + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + min(n_a * PLAN_S_PER_ASSET, PLAN_MAX_S))
+    dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
+    store = interval_bytes(n_a, n_o, n_t) if dense else interval_bytes(n_a, 1, n_t)
+    block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
+    peak = (BASE_BYTES + store + interval_bytes(largest, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
+            + ECONOMICS_BYTES_PER_PAIR * n_a * n_o)
+    kept = ("every option's per-interval power" if dense else
+            "today's per-interval power (other options recomputed by block when needed)")
+    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s): about {_duration(seconds)} and "
+            f"{peak / 2**30:.1f} GiB peak; keeps {kept}.")
+    return Estimate(float(seconds), int(peak), note)
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
