@@ -1,0 +1,163 @@
+"""Reusable UI builders and the ids the shell shares with the pages.
+
+Pages import the shared store ids from here (never the app object). Number formatting for cards and
+grids lives here too: money in the case currency, ratings in kW or hp as the case chooses.
+"""
+
+from __future__ import annotations
+
+import math
+
+import dash_ag_grid as dag
+from dash import dcc, html
+
+#: The session's case: {"session": id, "case": key}. Browser session storage: one per tab.
+SESSION_STORE = "app-session"
+#: The session's assumption edits: {"case": key, "discount_rate_pct": ..., ...}. Session storage.
+EDITS_STORE = "app-edits"
+#: Location used by callbacks to navigate (e.g. from the fleet table to one asset).
+LOCATION = "app-location"
+
+#: Cautions shown in the footer of every page.
+CAUTIONS: tuple[str, ...] = (
+    "Planning estimates only, not a design: confirm ratings, prices and savings with suppliers before committing money.",
+    "Electrical work must be done by qualified persons under local codes and the utility's rules.",
+    "A permanent-magnet motor generates voltage whenever its shaft turns, even when disconnected.",
+    "Capacitors hold their charge after disconnection and never belong on a drive's output.",
+    "A faster machine can overload a pump or fan: check the driven load before a replacement.",
+)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Numbers
+# ---------------------------------------------------------------------------------------------------
+def _finite(value) -> bool:
+    try:
+        return math.isfinite(float(value))
+    except (TypeError, ValueError):
+        return False
+
+
+def fmt_money(value, currency: str, compact: bool = True) -> str:
+    """Money for a card: ``EUR 1.25 M``, ``EUR 48.2 k`` or ``EUR 950`` (``-`` when not finite)."""
+    if not _finite(value):
+        return "-"
+    v = float(value)
+    if compact and abs(v) >= 1e6:
+        return f"{currency} {v / 1e6:,.2f} M"
+    if compact and abs(v) >= 1e4:
+        return f"{currency} {v / 1e3:,.1f} k"
+    return f"{currency} {v:,.0f}"
+
+
+def fmt_number(value, decimals: int = 0, unit: str = "") -> str:
+    """A plain number with thousands separators and an optional unit."""
+    if not _finite(value):
+        return "-"
+    text = f"{float(value):,.{decimals}f}"
+    return f"{text} {unit}".strip()
+
+
+# ---------------------------------------------------------------------------------------------------
+# Layout pieces
+# ---------------------------------------------------------------------------------------------------
+def page_header(title: str, intro: str) -> html.Div:
+    """Title and one-paragraph explanation of a page."""
+    return html.Div([html.H2(title), html.P(intro, className="page-intro")], className="page-header")
+
+
+def notice(component_id: str) -> html.Div:
+    """A place for messages (fallbacks, refused edits); empty until a callback fills it."""
+    return html.Div(id=component_id, className="notice", role="status")
+
+
+def card(label: str, value_id: str, note_id: str | None = None) -> html.Div:
+    """One headline card: label, value (filled by a callback) and an optional note."""
+    children = [html.Div(label, className="card-label"), html.Div("-", id=value_id, className="card-value")]
+    if note_id:
+        children.append(html.Div("", id=note_id, className="card-note"))
+    return html.Div(children, className="card")
+
+
+HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Yearly saving"), ("npv", "Plan NPV"), ("co2", "CO2 avoided"))
+
+
+def headline_cards(prefix: str) -> html.Div:
+    """The four headline cards with ids ``<prefix>-headline-capital|saving|npv|co2``."""
+    return html.Div([card(label, f"{prefix}-headline-{key}") for key, label in HEADLINE_FIELDS], className="cards")
+
+
+def headline_values(numbers: dict, currency: str) -> list[str]:
+    """Card texts in :data:`HEADLINE_FIELDS` order, from :func:`dashboard.services.headline`."""
+    return [fmt_money(numbers["plan_capital"], currency), fmt_money(numbers["yearly_saving_per_yr"], currency) + " /yr",
+            fmt_money(numbers["plan_npv"], currency), fmt_number(numbers["co2_avoided_t_per_yr"], 0, "t/yr")]
+
+
+def graph(component_id: str, height: int | None = None) -> dcc.Loading:
+    """A plotly graph in a loading wrapper, with the mode bar trimmed."""
+    extra = {"style": {"height": f"{height}px"}} if height else {}
+    return dcc.Loading(dcc.Graph(id=component_id, config={"displaylogo": False}, **extra), type="dot", delay_show=400)
+
+
+def footer() -> html.Footer:
+    """The cautions shown on every page."""
+    return html.Footer([html.Div("Before acting on these figures", className="footer-title"),
+                        html.Ul([html.Li(text) for text in CAUTIONS])], className="cautions", id="app-cautions")
+
+
+def budget_ids(prefix: str, years: int) -> list[str]:
+    """Ids of the budget inputs of plan years 0..years-1: ``<prefix>-0``, ``<prefix>-1``..."""
+    return [f"{prefix}-{k}" for k in range(years)]
+
+
+def budget_inputs(prefix: str, years: int) -> html.Div:
+    """Capital budget inputs for plan years 0..years-1 (ids from :func:`budget_ids`)."""
+    return html.Div([
+        html.Div([html.Label(f"Year {k}", htmlFor=component_id),
+                  dcc.Input(id=component_id, type="number", min=0, step="any", debounce=True,
+                            placeholder="no limit" if k == 0 else "", className="budget-input")],
+                 className="budget-year")
+        for k, component_id in enumerate(budget_ids(prefix, years))], className="budget-row")
+
+
+def budget_values(budget: list, years: int) -> list:
+    """Values of the budget inputs (plan years 0..years-1) for a budget list; None = blank."""
+    return [float(budget[k]) if k < len(budget) else None for k in range(years)]
+
+
+# ---------------------------------------------------------------------------------------------------
+# Grids
+# ---------------------------------------------------------------------------------------------------
+def _formatter(spec: str) -> dict:
+    return {"function": f"(params.value == null || !isFinite(params.value)) ? '' : d3.format('{spec}')(params.value)"}
+
+
+def text_col(field: str, header: str, **extra) -> dict:
+    """A text column."""
+    return {"field": field, "headerName": header, **extra}
+
+
+def number_col(field: str, header: str, decimals: int = 0, **extra) -> dict:
+    """A right-aligned number column with thousands separators."""
+    return {"field": field, "headerName": header, "type": "rightAligned", "filter": "agNumberColumnFilter",
+            "valueFormatter": _formatter(f",.{decimals}f"), **extra}
+
+
+def data_grid(component_id: str, height: int = 420, **extra) -> dag.AgGrid:
+    """A sortable, filterable, resizable grid (rows and columns filled by a callback)."""
+    options = {"animateRows": False, "tooltipShowDelay": 300}
+    options.update(extra.pop("dashGridOptions", {}))
+    extra.setdefault("columnDefs", [])
+    return dag.AgGrid(id=component_id, rowData=[],
+                      defaultColDef={"sortable": True, "resizable": True, "filter": True, "minWidth": 110,
+                                     "wrapHeaderText": True, "autoHeaderHeight": True},
+                      columnSize="responsiveSizeToFit", dashGridOptions=options,
+                      style={"height": f"{height}px", "width": "100%"}, className="grid", **extra)
+
+
+def problem_columns() -> list[dict]:
+    """Columns of the validation-message grid: file, row, column, value, rule, hint."""
+    return [text_col("severity", "Severity", maxWidth=110), text_col("file", "File"),
+            number_col("row", "Row", maxWidth=90), text_col("column", "Column"), text_col("value", "Value"),
+            text_col("rule", "Rule", flex=2, wrapText=True, autoHeight=True),
+            text_col("hint", "Hint", flex=2, wrapText=True, autoHeight=True)]

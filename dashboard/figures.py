@@ -1,0 +1,427 @@
+"""Figure builders: small tables in, :class:`plotly.graph_objects.Figure` out.
+
+Every function here is pure: it takes the frames that :mod:`dashboard.services` prepares and the
+display units, and returns a figure. None of them reads files, calls the engine or keeps state. Axis
+titles carry their units in square brackets; money is in the case currency.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+from plotly.subplots import make_subplots
+
+#: Neutral palette of the dashboard (our own choice).
+INK = "#26313d"
+MUTED = "#6a7582"
+GRID = "#e4e8ed"
+BEFORE = "#9aa4ae"
+AFTER = "#237a87"
+GAIN = "#237a87"
+COST = "#c27a3a"
+BUDGET = "#7c4f8f"
+#: Colours of options, in catalogue order.
+OPTION_COLOURS = ("#5b6b7a", "#237a87", "#c27a3a", "#6a8d4f", "#8b6aa6", "#b35b52", "#4e79ac",
+                  "#a58a2b", "#3e9c8c", "#94694b", "#7d8fa8", "#556b2f")
+#: Colours of life-cycle cost components.
+LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a", "maintenance": "#6a8d4f"}
+#: Colours of bill line-item categories.
+BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "pf adjustment": "#b35b52",
+                "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
+#: Colours of speed remedies.
+REMEDY_COLOURS = {"none": "#5b6b7a", "trim_or_pulley": "#c27a3a", "speed_control": "#237a87"}
+REMEDY_NAMES = {"none": "no speed remedy", "trim_or_pulley": "impeller trim or pulley", "speed_control": "speed held by a drive"}
+
+
+def _style(fig: go.Figure, title: str = "", height: int = 380, legend_below: bool = False) -> go.Figure:
+    if legend_below:
+        legend = dict(orientation="h", yanchor="top", y=-0.22, xanchor="left", x=0.0, bgcolor="rgba(0,0,0,0)")
+    else:
+        legend = dict(orientation="h", yanchor="bottom", y=1.0, xanchor="right", x=1.0, bgcolor="rgba(0,0,0,0)")
+    fig.update_layout(
+        template="plotly_white", height=height,
+        margin=dict(l=64, r=24, t=48 if title else 24, b=150 if legend_below else 56),
+        title=dict(text=title, x=0.0, xanchor="left", font=dict(size=15, color=INK)),
+        font=dict(family="system-ui, -apple-system, 'Segoe UI', sans-serif", size=12, color=INK),
+        legend=legend,
+        hoverlabel=dict(bgcolor="white"), paper_bgcolor="white", plot_bgcolor="white",
+    )
+    fig.update_xaxes(gridcolor=GRID, zerolinecolor="#c9d0d8", linecolor="#c9d0d8")
+    fig.update_yaxes(gridcolor=GRID, zerolinecolor="#c9d0d8", linecolor="#c9d0d8")
+    return fig
+
+
+def message_figure(text: str, height: int = 260) -> go.Figure:
+    """An empty figure that says why there is nothing to draw."""
+    fig = go.Figure()
+    fig.add_annotation(text=text, x=0.5, y=0.5, xref="paper", yref="paper", showarrow=False,
+                       font=dict(size=14, color=MUTED))
+    fig.update_xaxes(visible=False)
+    fig.update_yaxes(visible=False)
+    return _style(fig, height=height)
+
+
+def option_colour_map(labels) -> dict[str, str]:
+    """One colour per option label, stable in the order given."""
+    return {label: OPTION_COLOURS[i % len(OPTION_COLOURS)] for i, label in enumerate(dict.fromkeys(labels))}
+
+
+# ---------------------------------------------------------------------------------------------------
+# Fleet
+# ---------------------------------------------------------------------------------------------------
+def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
+    """Marginal abatement cost curve: bar width = tonnes CO2 avoided per year, height = cost per tonne.
+
+    Parameters
+    ----------
+    abatement : pandas.DataFrame
+        project_id, asset_id, abatement_cost_per_t [currency/t], co2_avoided_t_per_yr [t/yr],
+        bar_start_t_per_yr [t/yr] (cumulative start of each bar), sorted by cost.
+    currency : str
+    """
+    if abatement is None or abatement.empty:
+        return message_figure("No option avoids CO2 in this case.")
+    width = abatement["co2_avoided_t_per_yr"].to_numpy(dtype=float)
+    start = abatement["bar_start_t_per_yr"].to_numpy(dtype=float)
+    cost = abatement["abatement_cost_per_t"].to_numpy(dtype=float)
+    colours = np.where(cost < 0, GAIN, COST)
+    text = [f"{p}<br>{c:,.0f} {currency}/t<br>{w:,.1f} t/yr" for p, c, w in
+            zip(abatement["project_id"], cost, width)]
+    fig = go.Figure(go.Bar(x=start + width / 2.0, y=cost, width=width, marker=dict(color=colours, line=dict(width=0.5, color="white")),
+                           hovertext=text, hoverinfo="text", name="projects"))
+    fig.add_hline(y=0, line=dict(color=INK, width=1))
+    fig.update_layout(showlegend=False, bargap=0)
+    fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
+    fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
+    return _style(fig, "Abatement cost curve (below zero: saves money)")
+
+
+# ---------------------------------------------------------------------------------------------------
+# One asset
+# ---------------------------------------------------------------------------------------------------
+def lcc_stack(lcc: pd.DataFrame, currency: str) -> go.Figure:
+    """Life-cycle cost per option, stacked by component (capital, residual, running, maintenance).
+
+    Parameters
+    ----------
+    lcc : pandas.DataFrame
+        label, component, pv [currency] for one asset.
+    """
+    if lcc is None or lcc.empty:
+        return message_figure("No life-cycle cost for this asset.")
+    order = list(dict.fromkeys(lcc["label"]))
+    fig = go.Figure()
+    for component in ("capital", "residual", "running", "maintenance"):
+        part = lcc[lcc["component"] == component].set_index("label")["pv"].reindex(order)
+        fig.add_trace(go.Bar(x=order, y=part.to_numpy(dtype=float), name=component,
+                             marker_color=LCC_COLOURS[component],
+                             hovertemplate="%{x}<br>" + component + ": %{y:,.0f} " + currency + "<extra></extra>"))
+    fig.update_layout(barmode="relative")
+    fig.update_xaxes(title_text="Option", tickangle=-20)
+    fig.update_yaxes(title_text=f"Present value [{currency}]")
+    return _style(fig, "Life-cycle cost by component", height=400)
+
+
+def cumulative_cash(curves: pd.DataFrame, currency: str) -> go.Figure:
+    """Cumulative discounted cash flow of each option against keeping today's motor, payback marked.
+
+    Parameters
+    ----------
+    curves : pandas.DataFrame
+        label, year [yr], cumulative_pv [currency], payback_yr [yr] (NaN = not within the horizon).
+    """
+    if curves is None or curves.empty:
+        return message_figure("No option with capital applies to this asset.")
+    colours = option_colour_map(curves["label"])
+    fig = go.Figure()
+    for label, part in curves.groupby("label", sort=False):
+        fig.add_trace(go.Scatter(x=part["year"], y=part["cumulative_pv"], mode="lines", name=label,
+                                 line=dict(color=colours[label], width=2),
+                                 hovertemplate="year %{x}<br>%{y:,.0f} " + currency + "<extra>" + label + "</extra>"))
+    paid = curves.drop_duplicates("label").dropna(subset=["payback_yr"])
+    if len(paid):
+        fig.add_trace(go.Scatter(x=paid["payback_yr"], y=np.zeros(len(paid)), mode="markers", name="discounted payback",
+                                 marker=dict(symbol="diamond", size=10, color=[colours[x] for x in paid["label"]],
+                                             line=dict(color=INK, width=1)),
+                                 hovertext=[f"{lab}: pays back in {p:.1f} yr" for lab, p in zip(paid["label"], paid["payback_yr"])],
+                                 hoverinfo="text"))
+    fig.add_hline(y=0, line=dict(color=INK, width=1))
+    fig.update_xaxes(title_text="Year [yr]")
+    fig.update_yaxes(title_text=f"Cumulative discounted cash flow [{currency}]")
+    return _style(fig, "Cumulative discounted cash flow", height=480, legend_below=True)
+
+
+def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Figure:
+    """Efficiency and power factor against shaft load per option, with the hours at each load below.
+
+    Parameters
+    ----------
+    curves : pandas.DataFrame
+        label, load_pct [% of rating], efficiency_frac [-], power_factor [-].
+    hours : pandas.DataFrame
+        load_from_pct, load_to_pct [%], hours_per_yr [h/yr].
+    basis : str
+        What the hours' load is based on (shown in the legend).
+    """
+    fig = make_subplots(rows=3, cols=1, shared_xaxes=True, vertical_spacing=0.05, row_heights=[0.38, 0.32, 0.30])
+    colours = option_colour_map(curves["label"]) if curves is not None and len(curves) else {}
+    if curves is not None and len(curves):
+        for label, part in curves.groupby("label", sort=False):
+            fig.add_trace(go.Scatter(x=part["load_pct"], y=part["efficiency_frac"] * 100.0, mode="lines", name=label,
+                                     legendgroup=label, line=dict(color=colours[label], width=2),
+                                     hovertemplate="%{x:.0f} %<br>efficiency %{y:.1f} %<extra>" + label + "</extra>"),
+                          row=1, col=1)
+            fig.add_trace(go.Scatter(x=part["load_pct"], y=part["power_factor"], mode="lines", name=label,
+                                     legendgroup=label, showlegend=False, line=dict(color=colours[label], width=2, dash="dot"),
+                                     hovertemplate="%{x:.0f} %<br>PF %{y:.3f}<extra>" + label + "</extra>"),
+                          row=2, col=1)
+    if hours is not None and len(hours):
+        mid = (hours["load_from_pct"] + hours["load_to_pct"]) / 2.0
+        width = hours["load_to_pct"] - hours["load_from_pct"]
+        fig.add_trace(go.Bar(x=mid, y=hours["hours_per_yr"], width=width * 0.95, name=f"hours at load: {basis}",
+                             marker_color=BEFORE, hovertemplate="%{x:.0f} %: %{y:,.0f} h/yr<extra></extra>"), row=3, col=1)
+    fig.update_yaxes(title_text="Efficiency [%]", row=1, col=1)
+    fig.update_yaxes(title_text="Power factor [-]", row=2, col=1)
+    fig.update_yaxes(title_text="Hours [h/yr]", row=3, col=1)
+    fig.update_xaxes(title_text="Shaft load [% of rating]", row=3, col=1, range=[0, 130])
+    fig = _style(fig, "Efficiency and power factor against load, and where the asset runs", height=680, legend_below=True)
+    fig.update_layout(legend=dict(y=-0.1))
+    return fig
+
+
+def speed_energy(options: pd.DataFrame) -> go.Figure:
+    """Mean running speed and yearly input energy of each option, coloured by speed remedy.
+
+    Parameters
+    ----------
+    options : pandas.DataFrame
+        label, speed_remedy, mean_speed_rpm [rpm], energy_kwh_per_yr [kWh/yr].
+    """
+    if options is None or options.empty:
+        return message_figure("No options for this asset.")
+    fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.12,
+                        subplot_titles=("Mean running speed", "Input energy"))
+    seen = set()
+    for remedy, part in options.groupby("speed_remedy", sort=False):
+        colour = REMEDY_COLOURS.get(remedy, MUTED)
+        name = REMEDY_NAMES.get(remedy, remedy)
+        fig.add_trace(go.Bar(x=part["label"], y=part["mean_speed_rpm"], name=name, legendgroup=remedy, marker_color=colour,
+                             showlegend=remedy not in seen,
+                             hovertemplate="%{x}<br>%{y:,.1f} rpm<extra></extra>"), row=1, col=1)
+        fig.add_trace(go.Bar(x=part["label"], y=part["energy_kwh_per_yr"] / 1000.0, name=name, legendgroup=remedy,
+                             marker_color=colour, showlegend=False,
+                             hovertemplate="%{x}<br>%{y:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
+        seen.add(remedy)
+    speeds = options["mean_speed_rpm"].to_numpy(dtype=float)
+    finite = speeds[np.isfinite(speeds) & (speeds > 0)]
+    if len(finite):
+        span = max(finite.max() - finite.min(), 5.0)
+        fig.update_yaxes(range=[finite.min() - span, finite.max() + span * 0.5], row=1, col=1)
+    fig.update_yaxes(title_text="Mean speed [rpm]", row=1, col=1)
+    fig.update_yaxes(title_text="Energy [MWh/yr]", row=1, col=2)
+    fig.update_xaxes(tickangle=-30, categoryorder="array", categoryarray=list(options["label"]))
+    fig.update_layout(barmode="group")
+    fig = _style(fig, "", height=460, legend_below=True)
+    fig.update_layout(legend=dict(y=-0.45), margin=dict(t=40))
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------------
+# Site meter
+# ---------------------------------------------------------------------------------------------------
+def meter_week(week: dict[str, pd.DataFrame]) -> go.Figure:
+    """Site kW, kVAr and power factor over one week, before and with the plan.
+
+    Parameters
+    ----------
+    week : dict with keys "before" and "after"
+        Frames indexed by interval start with p_kw [kW], q_kvar [kVAr] (negative = leading) and
+        power_factor [-].
+    """
+    fig = make_subplots(rows=3, cols=1, shared_xaxes=True, vertical_spacing=0.05)
+    for scenario_name, colour, dash in (("before", BEFORE, "solid"), ("after", AFTER, "solid")):
+        frame = week.get(scenario_name)
+        if frame is None or frame.empty:
+            continue
+        x = frame.index.tz_localize(None) if getattr(frame.index, "tz", None) is not None else frame.index
+        name = "today" if scenario_name == "before" else "with the plan"
+        for row, column, fmt in ((1, "p_kw", ",.0f"), (2, "q_kvar", ",.0f"), (3, "power_factor", ".3f")):
+            fig.add_trace(go.Scatter(x=x, y=frame[column], mode="lines", name=name, legendgroup=scenario_name,
+                                     showlegend=row == 1, line=dict(color=colour, width=1.6, dash=dash),
+                                     hovertemplate="%{x}<br>%{y:" + fmt + "}<extra>" + name + "</extra>"),
+                          row=row, col=1)
+    fig.add_hline(y=0, line=dict(color=INK, width=0.8), row=2, col=1)
+    fig.update_yaxes(title_text="Active [kW]", row=1, col=1)
+    fig.update_yaxes(title_text="Reactive [kVAr]", row=2, col=1)
+    fig.update_yaxes(title_text="Power factor [-]", row=3, col=1)
+    fig.update_xaxes(title_text="Local time", row=3, col=1)
+    return _style(fig, "Site meter over one week", height=600)
+
+
+def pf_duration(curve: pd.DataFrame) -> go.Figure:
+    """Power-factor duration curve: hours of the year at or below each power factor, before and after.
+
+    Parameters
+    ----------
+    curve : pandas.DataFrame
+        scenario ("before"/"after"), hours [h], power_factor [-].
+    """
+    fig = go.Figure()
+    for scenario_name, colour, name in (("before", BEFORE, "today"), ("after", AFTER, "with the plan")):
+        part = curve[curve["scenario"] == scenario_name]
+        if len(part):
+            fig.add_trace(go.Scatter(x=part["hours"], y=part["power_factor"], mode="lines", name=name,
+                                     line=dict(color=colour, width=2),
+                                     hovertemplate="%{x:,.0f} h at or below %{y:.3f}<extra>" + name + "</extra>"))
+    fig.update_xaxes(title_text="Hours of the year at or below [h]")
+    fig.update_yaxes(title_text="Power factor [-]")
+    return _style(fig, "Power-factor duration curve")
+
+
+def monthly_bills(bills: pd.DataFrame, currency: str) -> go.Figure:
+    """Monthly bill by line-item category, today's beside the plan's, stacked.
+
+    Parameters
+    ----------
+    bills : pandas.DataFrame
+        month, category, amount [currency], scenario ("before"/"after").
+    """
+    if bills is None or bills.empty:
+        return message_figure("No bills for this site.")
+    months = sorted(bills["month"].astype(str).unique())
+    x = [[m for m in months for _ in (0, 1)], [s for _ in months for s in ("today", "plan")]]
+    fig = go.Figure()
+    for category in list(dict.fromkeys(bills["category"])):
+        part = bills[bills["category"] == category]
+        values = []
+        for m in months:
+            for s in ("before", "after"):
+                values.append(float(part.loc[(part["month"].astype(str) == m) & (part["scenario"] == s), "amount"].sum()))
+        fig.add_trace(go.Bar(x=x, y=values, name=category, marker_color=BILL_COLOURS.get(category, MUTED),
+                             hovertemplate="%{x}<br>" + category + ": %{y:,.0f} " + currency + "<extra></extra>"))
+    fig.update_layout(barmode="relative")
+    fig.update_xaxes(title_text="Month, today and with the plan")
+    fig.update_yaxes(title_text=f"Bill [{currency}/month]")
+    return _style(fig, "Monthly bill by line item", height=420)
+
+
+def reactive_balance(balance: pd.DataFrame) -> go.Figure:
+    """Mean reactive power of the site by source, today and with the plan (negative = leading).
+
+    Parameters
+    ----------
+    balance : pandas.DataFrame
+        scenario ("before"/"after"), source, q_kvar [kVAr].
+    """
+    fig = go.Figure()
+    for scenario_name, colour, name in (("before", BEFORE, "today"), ("after", AFTER, "with the plan")):
+        part = balance[balance["scenario"] == scenario_name]
+        fig.add_trace(go.Bar(x=part["source"], y=part["q_kvar"], name=name, marker_color=colour,
+                             hovertemplate="%{x}<br>%{y:,.0f} kVAr<extra>" + name + "</extra>"))
+    fig.add_hline(y=0, line=dict(color=INK, width=1))
+    fig.update_layout(barmode="group")
+    fig.update_xaxes(title_text="Source")
+    fig.update_yaxes(title_text="Mean reactive power [kVAr]")
+    return _style(fig, "Reactive balance over the year (negative = leading)")
+
+
+# ---------------------------------------------------------------------------------------------------
+# Plan
+# ---------------------------------------------------------------------------------------------------
+def plan_by_year(by_year: pd.DataFrame, currency: str) -> go.Figure:
+    """Capital per plan year of the exact plan and of the rank-order plan, with the budget.
+
+    Parameters
+    ----------
+    by_year : pandas.DataFrame
+        plan ("exact"/"rank_order"), start_yr, capital [currency], budget [currency] (NaN = no limit).
+    """
+    fig = go.Figure()
+    for plan_name, colour, name in (("exact", AFTER, "exact plan"), ("rank_order", BEFORE, "rank by profitability index")):
+        part = by_year[by_year["plan"] == plan_name]
+        fig.add_trace(go.Bar(x=[f"Year {y}" for y in part["start_yr"]], y=part["capital"], name=name, marker_color=colour,
+                             hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra>" + name + "</extra>"))
+    budget = by_year[by_year["plan"] == "exact"]
+    if budget["budget"].notna().any():
+        fig.add_trace(go.Scatter(x=[f"Year {y}" for y in budget["start_yr"]], y=budget["budget"], mode="markers+lines",
+                                 name="budget", line=dict(color=BUDGET, width=2, dash="dash"),
+                                 marker=dict(symbol="line-ew-open", size=28, color=BUDGET, line=dict(width=3)),
+                                 hovertemplate="%{x} budget: %{y:,.0f} " + currency + "<extra></extra>"))
+    fig.update_layout(barmode="group")
+    fig.update_xaxes(title_text="Plan year")
+    fig.update_yaxes(title_text=f"Capital [{currency}]")
+    return _style(fig, "Capital by plan year")
+
+
+def plan_comparison(comparison: pd.Series, currency: str) -> go.Figure:
+    """Total NPV of the exact plan against the rank-by-profitability-index plan.
+
+    Parameters
+    ----------
+    comparison : pandas.Series
+        npv_exact, npv_greedy [currency], projects_exact, projects_greedy.
+    """
+    names = ["exact plan", "rank by profitability index"]
+    values = [float(comparison.get("npv_exact", np.nan)), float(comparison.get("npv_greedy", np.nan))]
+    counts = [comparison.get("projects_exact", np.nan), comparison.get("projects_greedy", np.nan)]
+    fig = go.Figure(go.Bar(x=names, y=values, marker_color=[AFTER, BEFORE],
+                           text=[f"{v:,.0f} {currency}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
+                           textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
+    fig.update_xaxes(title_text="Plan")
+    fig.update_yaxes(title_text=f"NPV at plan start [{currency}]")
+    return _style(fig, "Plan NPV: exact against rank order")
+
+
+# ---------------------------------------------------------------------------------------------------
+# Risk
+# ---------------------------------------------------------------------------------------------------
+def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
+    """One-at-a-time sensitivity of the fleet NPV of the best options.
+
+    Parameters
+    ----------
+    rows : pandas.DataFrame
+        label, npv_at_low, npv_at_high, base_npv [currency], sorted by swing (largest last).
+    """
+    if rows is None or rows.empty:
+        return message_figure("No project with capital to test.")
+    base = float(rows["base_npv"].iloc[0])
+    fig = go.Figure()
+    fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_low"] - base, base=base, orientation="h", name="low value",
+                         marker_color=COST, customdata=rows["npv_at_low"],
+                         hovertemplate="%{y}<br>low: %{customdata:,.0f} " + currency + "<extra></extra>"))
+    fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_high"] - base, base=base, orientation="h", name="high value",
+                         marker_color=GAIN, customdata=rows["npv_at_high"],
+                         hovertemplate="%{y}<br>high: %{customdata:,.0f} " + currency + "<extra></extra>"))
+    fig.add_vline(x=base, line=dict(color=INK, width=1))
+    fig.update_layout(barmode="overlay")
+    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]")
+    fig.update_yaxes(title_text="Varied input", automargin=True)
+    return _style(fig, "Sensitivity (tornado)", height=400)
+
+
+def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
+    """Monte Carlo NPV per project: P10 to P90 as a bar, P50 as a marker (largest P50 first).
+
+    Parameters
+    ----------
+    rows : pandas.DataFrame
+        project_id, npv_p10, npv_p50, npv_p90 [currency], sorted by P50.
+    """
+    if rows is None or rows.empty:
+        return message_figure("No Monte Carlo results.")
+    part = rows.head(top).iloc[::-1]
+    fig = go.Figure()
+    fig.add_trace(go.Bar(y=part["project_id"], x=part["npv_p90"] - part["npv_p10"], base=part["npv_p10"], orientation="h",
+                         name="P10 to P90", marker_color="#b9d3d8",
+                         customdata=np.column_stack([part["npv_p10"], part["npv_p90"]]),
+                         hovertemplate="%{y}<br>P10 %{customdata[0]:,.0f} to P90 %{customdata[1]:,.0f} " + currency
+                                       + "<extra></extra>"))
+    fig.add_trace(go.Scatter(y=part["project_id"], x=part["npv_p50"], mode="markers", name="P50",
+                             marker=dict(color=AFTER, size=8, symbol="diamond"),
+                             hovertemplate="%{y}<br>P50 %{x:,.0f} " + currency + "<extra></extra>"))
+    fig.add_vline(x=0, line=dict(color=INK, width=1))
+    fig.update_xaxes(title_text=f"NPV [{currency}]")
+    fig.update_yaxes(title_text="Project (asset/option)", automargin=True)
+    return _style(fig, f"NPV range per project (top {min(top, len(rows))} by P50)", height=max(360, 22 * len(part) + 120))

@@ -1,0 +1,1 @@
+"""Dashboard pages (each registers itself with Dash Pages)."""

@@ -1,0 +1,107 @@
+"""One asset: every option side by side, life-cycle cost, cash flow, part-load behaviour, speed effect, data quality."""
+
+from __future__ import annotations
+
+import dash
+from dash import Input, Output, callback, dcc, html
+
+from dashboard import components as ui
+from dashboard import figures, services
+
+dash.register_page(__name__, path="/asset", name="Asset", title="Asset · drivecase", order=1)
+
+PICK = "asset-pick"
+REQUEST = "asset-request"
+SUMMARY = "asset-summary"
+OPTIONS = "asset-options"
+LCC = "asset-lcc"
+CASH = "asset-cash"
+PERFORMANCE = "asset-performance"
+SPEED = "asset-speed"
+DEFAULTS = "asset-defaults"
+FLAGS = "asset-flags"
+NOTICE = "asset-notice"
+
+
+def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
+    return html.Div([
+        dcc.Store(id=REQUEST, data=id),
+        ui.page_header("Asset", "Every option for one motor, side by side, and how sure the inputs are."),
+        ui.notice(NOTICE),
+        html.Div([html.Label("Asset", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False, placeholder="choose an asset")],
+                 className="filter wide"),
+        html.Div(id=SUMMARY, className="asset-summary"),
+        html.H3("Options"),
+        ui.data_grid(OPTIONS, height=440, getRowId="params.data.option_id"),
+        html.Div([html.Div(ui.graph(LCC), className="panel half"),
+                  html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor; the diamond "
+                                                   "marks its discounted payback, where the line crosses zero.",
+                                                   className="page-intro")], className="panel half")],
+                 className="row"),
+        html.Div([html.Div(ui.graph(PERFORMANCE), className="panel half"),
+                  html.Div([html.H3("Speed change and its remedies"),
+                            html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
+                                   "more power; trimming the impeller, changing the pulley or a drive holds the speed.",
+                                   className="page-intro"),
+                            ui.graph(SPEED)], className="panel half")], className="row"),
+        html.H3("Data quality"),
+        html.Div([html.Div([html.H4("Fields filled with defaults"), ui.data_grid(DEFAULTS, height=240)], className="half"),
+                  html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240)], className="half")],
+                 className="row"),
+    ])
+
+
+@callback(Output(PICK, "options"), Output(PICK, "value"), Input(REQUEST, "data"), Input(ui.SESSION_STORE, "data"))
+def choose(requested, session):
+    """List the case's assets; keep the requested one when it exists, else the first asset."""
+    view = services.view(session, None)
+    choices = services.asset_choices(view)
+    ids = [c["value"] for c in choices]
+    return choices, requested if requested in ids else (ids[0] if ids else None)
+
+
+def option_columns(currency: str) -> list[dict]:
+    """Columns of the options grid."""
+    return [ui.text_col("label", "Option", pinned="left", minWidth=220), ui.text_col("technology", "Technology"),
+            ui.text_col("speed_remedy", "Speed remedy"), ui.number_col("capital", f"Capital [{currency}]"),
+            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"), ui.number_col("npv", f"NPV [{currency}]"),
+            ui.number_col("irr_pct", "IRR [%]", 1), ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
+            ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
+            ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
+            ui.text_col("flags", "Cautions", minWidth=260, tooltipField="flags")]
+
+
+@callback(
+    Output(SUMMARY, "children"), Output(OPTIONS, "rowData"), Output(OPTIONS, "columnDefs"), Output(LCC, "figure"),
+    Output(CASH, "figure"), Output(PERFORMANCE, "figure"), Output(SPEED, "figure"), Output(DEFAULTS, "rowData"),
+    Output(DEFAULTS, "columnDefs"), Output(FLAGS, "rowData"), Output(FLAGS, "columnDefs"), Output(NOTICE, "children"),
+    Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
+)
+def update(asset_id, session, edits):
+    """Everything about the chosen asset under the tab's assumptions."""
+    view = services.view(session, edits)
+    ids = set(view.case.assets["asset_id"])
+    if asset_id not in ids:
+        empty = figures.message_figure("Choose an asset.")
+        return ("", [], [], empty, empty, empty, empty, [], [], [], [], view.notice)
+    result = view.result()
+    asset = view.case.assets.set_index("asset_id").loc[asset_id]
+    options = services.asset_options(view, result, asset_id)
+    score, defaults, flags = services.asset_quality(view, result, asset_id)
+    rating = services.rating_in_unit(float(asset["rated_p_kw"]), view.power_unit)
+    summary = [html.Strong(f"{asset_id}: {asset['description'] or ''}"),
+               html.Span(f" · site {asset['site_id']} · {asset['application']} · "
+                         f"{ui.fmt_number(rating, 1, services.power_label(view.power_unit))} · "
+                         f"{asset['speed_control']} speed control · data quality {score:.0f} %")]
+    hours, basis = services.asset_load_hours(view, asset_id)
+    return (summary, options.to_dict("records"), option_columns(view.currency),
+            figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),
+            figures.cumulative_cash(services.asset_cumulative_cash(view, result, asset_id), view.currency),
+            figures.performance(services.asset_performance(view, asset_id), hours, basis),
+            figures.speed_energy(options),
+            defaults.to_dict("records"),
+            [ui.text_col("column", "Field"), ui.text_col("value", "Value used"),
+             ui.text_col("basis", "Basis", flex=2, wrapText=True, autoHeight=True)],
+            flags.to_dict("records"),
+            [ui.text_col("option", "Option"), ui.text_col("flag", "Caution", flex=3, wrapText=True, autoHeight=True)],
+            view.notice)

@@ -1,0 +1,152 @@
+"""Case and assumptions: upload a case, see every validation message by row, get a blank template, edit assumptions."""
+
+from __future__ import annotations
+
+import dash
+from dash import Input, Output, State, callback, dcc, html, no_update
+
+from dashboard import components as ui
+from dashboard import services
+
+dash.register_page(__name__, path="/inputs", name="Case & assumptions", title="Case and assumptions · drivecase", order=5)
+
+READY = "inputs-ready"
+UPLOAD = "inputs-upload"
+KEEP_FILES = "inputs-keep-files"
+STATUS = "inputs-status"
+PROBLEMS = "inputs-problems"
+TEMPLATE_BUTTON = "inputs-template-button"
+TEMPLATE = "inputs-template"
+DISCOUNT = "inputs-discount-rate"
+ESCALATION = "inputs-escalation"
+HORIZON = "inputs-horizon"
+BUDGET = "inputs-budget"
+BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
+RESET = "inputs-reset"
+FORM_MESSAGE = "inputs-form-message"
+CASE = "inputs-case"
+NOTICE = "inputs-notice"
+HEADLINE = "inputs"
+
+
+def layout(**_query):
+    limit_mb = services.MAX_UPLOAD_BYTES / 1e6
+    return html.Div([
+        dcc.Store(id=READY, data=True),
+        ui.page_header("Case and assumptions", "Load your own case, check it row by row, and change the finance "
+                                               "assumptions. Every page follows what you set here, in this tab only."),
+        ui.notice(NOTICE),
+        html.Div(id=CASE, className="asset-summary"),
+        html.Div([
+            html.Div([
+                html.H3("Upload a case"),
+                dcc.Upload(id=UPLOAD, multiple=True, accept=",".join(services.ALLOWED_SUFFIXES),
+                           children=html.Div(["Drop files here or ", html.A("choose files")]), className="upload"),
+                html.P(f"One .xlsx workbook, or the case's files (assets.csv, sites.csv, capacitors.csv, duty.csv, "
+                       f"profiles.csv or .parquet, options.csv, case.toml, finance.toml, tariff .toml files). Up to "
+                       f"{limit_mb:.0f} MB per upload.", className="page-intro"),
+                dcc.Checklist(id=KEEP_FILES, value=["keep"], options=[
+                    {"label": " Keep the current case's other files (replace only the files uploaded)", "value": "keep"}]),
+                dcc.Loading(html.Div(id=STATUS, className="form-message", role="status"), type="dot"),
+                html.Button("Download a blank case workbook", id=TEMPLATE_BUTTON, className="button"),
+                dcc.Download(id=TEMPLATE),
+            ], className="panel half"),
+            html.Div([
+                html.H3("Finance assumptions"),
+                html.Div([
+                    html.Div([html.Label("Discount rate [%/yr]", htmlFor=DISCOUNT),
+                              dcc.Input(id=DISCOUNT, type="number", step="any", debounce=True)], className="field"),
+                    html.Div([html.Label("Energy price escalation [%/yr]", htmlFor=ESCALATION),
+                              dcc.Input(id=ESCALATION, type="number", step="any", debounce=True)], className="field"),
+                    html.Div([html.Label("Horizon [yr]", htmlFor=HORIZON),
+                              dcc.Input(id=HORIZON, type="number", min=1, max=100, step=1, debounce=True)], className="field"),
+                ], className="fields"),
+                html.Label("Capital budget per plan year (blank = no limit)"),
+                ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
+                html.Button("Back to the case's own assumptions", id=RESET, className="button secondary"),
+                html.Div(id=FORM_MESSAGE, className="form-message", role="alert"),
+                html.H4("With these assumptions"),
+                ui.headline_cards(HEADLINE),
+            ], className="panel half form"),
+        ], className="row"),
+        html.H3("Validation messages"),
+        ui.data_grid(PROBLEMS, height=320, columnDefs=ui.problem_columns()),
+    ])
+
+
+@callback(Output(ui.SESSION_STORE, "data"), Output(STATUS, "children"), Output(PROBLEMS, "rowData"),
+          Output(UPLOAD, "contents"),
+          Input(UPLOAD, "contents"), State(UPLOAD, "filename"), State(KEEP_FILES, "value"), State(ui.SESSION_STORE, "data"),
+          prevent_initial_call=True)
+def upload(contents, names, keep, session):
+    """Check and load an upload; a bad one leaves the tab's case as it was."""
+    if not contents:
+        return no_update, no_update, no_update, no_update
+    session = session if isinstance(session, dict) else {}
+    outcome = services.engine().accept_upload(session.get("session"), session.get("case"), names, contents,
+                                              keep_other_files="keep" in (keep or []))
+    new_session = {"session": outcome.session, "case": outcome.key if outcome.ok else session.get("case")}
+    return new_session, outcome.message, outcome.problems, None
+
+
+@callback(Output(TEMPLATE, "data"), Input(TEMPLATE_BUTTON, "n_clicks"), prevent_initial_call=True)
+def template(_clicks):
+    """Send a blank case workbook."""
+    return dcc.send_bytes(services.blank_template_bytes(), "drivecase-blank-case.xlsx")
+
+
+def _form_values(assumptions) -> tuple:
+    form = services.assumption_form(assumptions)
+    return (form["discount_rate_pct"], form["escalation_energy_pct"], form["horizon_yr"],
+            *ui.budget_values(form["budget_per_yr"], services.BUDGET_YEARS))
+
+
+@callback(Output(DISCOUNT, "value"), Output(ESCALATION, "value"), Output(HORIZON, "value"),
+          [Output(i, "value") for i in BUDGET_IDS],
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"))
+def fill(_ready, session, edits):
+    """Show the assumptions in force when the page opens or the case changes."""
+    return _form_values(services.view(session, edits).assumptions)
+
+
+@callback(Output(DISCOUNT, "value", allow_duplicate=True), Output(ESCALATION, "value", allow_duplicate=True),
+          Output(HORIZON, "value", allow_duplicate=True), [Output(i, "value", allow_duplicate=True) for i in BUDGET_IDS],
+          Input(RESET, "n_clicks"), State(ui.SESSION_STORE, "data"),
+          prevent_initial_call=True)
+def reset(_clicks, session):
+    """Put the case's own assumptions back in the form (the edit callback then stores them)."""
+    return _form_values(services.view(session, None).assumptions)
+
+
+@callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
+          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"),
+          [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"),
+          prevent_initial_call=True)
+def edit(discount, escalation, horizon, *rest):
+    """Check the form and store it as the tab's edits; only the economics re-run."""
+    budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
+    budget, problem = services.parse_budget(budget_values)
+    if problem:
+        return no_update, problem
+    view = services.view(session, edits)
+    new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, discount_rate_pct=discount,
+                                             escalation_energy_pct=escalation, horizon_yr=horizon, budget_per_yr=budget)
+    if problem:
+        return no_update, problem
+    return (new if services.edits_change(view, new) else no_update), ""
+
+
+@callback(Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),
+          Output(f"{HEADLINE}-headline-npv", "children"), Output(f"{HEADLINE}-headline-co2", "children"),
+          Output(CASE, "children"), Output(NOTICE, "children"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
+def preview(_ready, session, edits):
+    """Headline figures under the assumptions in the form, and what case this tab holds."""
+    view = services.view(session, edits)
+    s = services.case_summary(view)
+    case_line = [html.Strong(s["name"]), html.Span(" (invented demo data)" if s["invented"] else ""),
+                 html.Span(f" · {s['assets']} assets · {s['sites']} site(s) · {s['currency']} · ratings in {s['power_unit']}"
+                           f" · {'your upload' if s['origin'] == 'upload' else 'the case the server started with'}"
+                           + (f" · {s['warnings']} warning(s) when read" if s["warnings"] else ""))]
+    cards = ui.headline_values(services.headline(view.result()), view.currency)
+    return (*cards, case_line, view.notice)

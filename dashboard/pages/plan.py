@@ -1,0 +1,100 @@
+"""Capital plan: yearly budgets, the projects chosen by year, and the exact plan against rank order."""
+
+from __future__ import annotations
+
+import dash
+from dash import Input, Output, State, callback, dcc, html, no_update
+
+from dashboard import components as ui
+from dashboard import figures, services
+
+dash.register_page(__name__, path="/plan", name="Capital plan", title="Capital plan · drivecase", order=3)
+
+READY = "plan-ready"
+BUDGET = "plan-budget"
+BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
+BUDGET_MESSAGE = "plan-budget-message"
+BY_YEAR = "plan-by-year"
+COMPARISON = "plan-comparison"
+CHOSEN = "plan-chosen"
+DIFFERENCES = "plan-differences"
+SUMMARY = "plan-summary"
+NOTICE = "plan-notice"
+
+
+def layout(**_query):
+    return html.Div([
+        dcc.Store(id=READY, data=True),
+        ui.page_header("Capital plan", "The projects that give the most NPV within each year's capital budget, chosen "
+                                       "exactly, beside the simpler rule of funding the best ratio of NPV to capital first."),
+        ui.notice(NOTICE),
+        html.Div([html.H3("Capital budget per plan year"),
+                  html.P("Leave every year blank for no limit (then each asset gets its best option in year 0). "
+                         "Press Enter or leave the field to apply.", className="page-intro"),
+                  ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
+                  html.Div(id=BUDGET_MESSAGE, className="form-message", role="alert")], className="panel form"),
+        html.Div(id=SUMMARY, className="asset-summary"),
+        html.Div([html.Div(ui.graph(BY_YEAR), className="panel half"), html.Div(ui.graph(COMPARISON), className="panel half")],
+                 className="row"),
+        html.H3("Chosen projects (exact plan)"),
+        ui.data_grid(CHOSEN, height=380),
+        html.H3("Where the two plans differ"),
+        ui.data_grid(DIFFERENCES, height=240),
+    ])
+
+
+@callback([Output(i, "value") for i in BUDGET_IDS], Input(READY, "data"), Input(ui.SESSION_STORE, "data"),
+          State(ui.EDITS_STORE, "data"), )
+def fill(_ready, session, edits):
+    """Show the budget in force when the page opens or the case changes."""
+    return ui.budget_values(services.assumption_form(services.view(session, edits).assumptions)["budget_per_yr"],
+                            services.BUDGET_YEARS)
+
+
+@callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(BUDGET_MESSAGE, "children"),
+          [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"),
+          prevent_initial_call=True)
+def edit(*args):
+    """Check the budget and store it as the tab's edit (the economics re-run; the physics do not)."""
+    values, (edits, session) = list(args[:len(BUDGET_IDS)]), args[len(BUDGET_IDS):]
+    budget, problem = services.parse_budget(values)
+    if problem:
+        return no_update, problem
+    view = services.view(session, edits)
+    new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, budget_per_yr=budget)
+    if problem:
+        return no_update, problem
+    return (new if services.edits_change(view, new) else no_update), ""
+
+
+def project_columns(currency: str) -> list[dict]:
+    return [ui.text_col("asset_id", "Asset"), ui.text_col("label", "Option", minWidth=220),
+            ui.number_col("start_yr", "Start year", maxWidth=120), ui.number_col("capital", f"Capital [{currency}]"),
+            ui.number_col("npv", f"NPV at its start [{currency}]"),
+            ui.number_col("npv_at_plan_start", f"NPV at plan start [{currency}]")]
+
+
+@callback(Output(BY_YEAR, "figure"), Output(COMPARISON, "figure"), Output(CHOSEN, "rowData"), Output(CHOSEN, "columnDefs"),
+          Output(DIFFERENCES, "rowData"), Output(DIFFERENCES, "columnDefs"), Output(SUMMARY, "children"),
+          Output(NOTICE, "children"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
+def update(_ready, session, edits):
+    """Plan figures and tables under the tab's budget and assumptions."""
+    view = services.view(session, edits)
+    result = view.result()
+    tables = services.plan_tables(view, result)
+    c = view.currency
+    comparison = result.plan_comparison
+    by_year = tables["by_year"]
+    exact = by_year[by_year["plan"] == "exact"]
+    spend = " · ".join(f"year {int(r.start_yr)}: {ui.fmt_money(r.capital, c)}"
+                       + (f" of {ui.fmt_money(r.budget, c)}" if r.budget == r.budget else "")
+                       for r in exact.itertuples(index=False))
+    summary = [html.Span(f"Exact plan: {len(tables['exact'])} projects, NPV {ui.fmt_money(comparison.get('npv_exact'), c)}; "
+                         f"rank order: {len(tables['rank_order'])} projects, NPV {ui.fmt_money(comparison.get('npv_greedy'), c)} "
+                         f"(shortfall {ui.fmt_money(comparison.get('shortfall'), c)}). "),
+               html.Span(f"Capital {spend}.", id="plan-spend")]
+    diff_columns = [ui.text_col("plan", "Only in")] + project_columns(c)[:4] + [project_columns(c)[5]]
+    return (figures.plan_by_year(by_year, c), figures.plan_comparison(comparison, c),
+            tables["exact"].to_dict("records"), project_columns(c),
+            tables["differences"].to_dict("records"), diff_columns, summary, view.notice)

@@ -1,0 +1,56 @@
+"""Uncertainty: the one-at-a-time tornado of the fleet NPV and the Monte Carlo NPV range of each project."""
+
+from __future__ import annotations
+
+import dash
+from dash import Input, Output, callback, dcc, html
+
+from dashboard import components as ui
+from dashboard import figures, services
+
+dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertainty · drivecase", order=4)
+
+READY = "risk-ready"
+TORNADO = "risk-tornado"
+RANGES = "risk-ranges"
+TABLE = "risk-table"
+SUMMARY = "risk-summary"
+NOTICE = "risk-notice"
+
+
+def layout(**_query):
+    return html.Div([
+        dcc.Store(id=READY, data=True),
+        ui.page_header("Uncertainty", "How far the answer moves when prices, hours, loads, capital and rates move: one "
+                                      "input at a time (tornado), then all together in a seeded Monte Carlo."),
+        ui.notice(NOTICE),
+        html.Div(id=SUMMARY, className="asset-summary"),
+        html.Div([html.Div(ui.graph(TORNADO), className="panel half"), html.Div(ui.graph(RANGES), className="panel half")],
+                 className="row"),
+        html.H3("Monte Carlo summary per project"),
+        ui.data_grid(TABLE, height=420),
+    ])
+
+
+def columns(currency: str) -> list[dict]:
+    return [ui.text_col("asset_id", "Asset"), ui.text_col("label", "Option", minWidth=200),
+            ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
+            ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
+            ui.number_col("prob_npv_positive_frac", "P(NPV > 0) [-]", 2),
+            ui.number_col("payback_p50_yr", "Payback P50 [yr]", 1),
+            ui.number_col("prob_payback_within_target_frac", "P(payback <= 3 yr) [-]", 2)]
+
+
+@callback(Output(TORNADO, "figure"), Output(RANGES, "figure"), Output(TABLE, "rowData"), Output(TABLE, "columnDefs"),
+          Output(SUMMARY, "children"), Output(NOTICE, "children"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
+def update(_ready, session, edits):
+    """Tornado and Monte Carlo under the tab's assumptions (computed on this page only, then cached)."""
+    view = services.view(session, edits)
+    result = view.result(with_risk=True)
+    rows = services.risk_rows(result)
+    a = result.assumptions
+    summary = html.Span(f"{len(rows)} projects (the best option of each asset that needs capital) · "
+                        f"{a.monte_carlo_draws} draws, seed {a.monte_carlo_seed} · the same seed gives the same answer.")
+    return (figures.tornado(services.tornado_rows(result), view.currency), figures.risk_ranges(rows, view.currency),
+            rows.to_dict("records"), columns(view.currency), summary, view.notice)

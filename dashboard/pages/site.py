@@ -1,0 +1,78 @@
+"""Site meter: kW, kVAr and power factor before and with the plan, bills by line item, the reactive balance."""
+
+from __future__ import annotations
+
+import dash
+from dash import Input, Output, State, callback, dcc, html
+
+from dashboard import components as ui
+from dashboard import figures, services
+
+dash.register_page(__name__, path="/site", name="Site meter", title="Site meter · drivecase", order=2)
+
+PICK = "site-pick"
+WEEK = "site-week"
+READY = "site-ready"
+WEEK_FIGURE = "site-week-figure"
+DURATION = "site-pf-duration"
+BILLS = "site-bills"
+REACTIVE = "site-reactive"
+SUMMARY = "site-summary"
+NOTICE = "site-notice"
+
+
+def layout(**_query):
+    return html.Div([
+        dcc.Store(id=READY, data=True),
+        ui.page_header("Site meter", "What the utility meter sees today and with the plan in place: power, reactive "
+                                     "power, power factor and the monthly bill."),
+        ui.notice(NOTICE),
+        html.Div([
+            html.Div([html.Label("Site", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False)], className="filter"),
+            html.Div([html.Label("Week", htmlFor=WEEK),
+                      dcc.Dropdown(id=WEEK, placeholder="week of today's peak demand")], className="filter wide"),
+        ], className="filters"),
+        html.Div(id=SUMMARY, className="asset-summary"),
+        html.Div(ui.graph(WEEK_FIGURE), className="panel"),
+        html.Div([html.Div(ui.graph(DURATION), className="panel half"), html.Div(ui.graph(REACTIVE), className="panel half")],
+                 className="row"),
+        html.Div(ui.graph(BILLS), className="panel"),
+    ])
+
+
+@callback(Output(PICK, "options"), Output(PICK, "value"), Output(WEEK, "options"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(PICK, "value"))
+def choose(_ready, session, current):
+    """List the case's sites and the weeks of its analysis year."""
+    view = services.view(session, None)
+    sites = [{"label": f"{r.site_id}: {r.site_name}" if getattr(r, "site_name", None) else str(r.site_id),
+              "value": str(r.site_id)} for r in view.case.sites.itertuples(index=False)]
+    ids = [s["value"] for s in sites]
+    return sites, current if current in ids else (ids[0] if ids else None), services.week_starts(view)
+
+
+@callback(Output(WEEK_FIGURE, "figure"), Output(DURATION, "figure"), Output(REACTIVE, "figure"), Output(BILLS, "figure"),
+          Output(SUMMARY, "children"), Output(NOTICE, "children"),
+          Input(PICK, "value"), Input(WEEK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
+def update(site_id, week, session, edits):
+    """Meter, duration curve, reactive balance and bills of the chosen site."""
+    view = services.view(session, edits)
+    result = view.result()
+    meters = services.site_meters(view, result)
+    if site_id not in meters:
+        empty = figures.message_figure("Choose a site.")
+        return empty, empty, empty, empty, "", view.notice
+    site = meters[site_id]
+    interval_h = float(view.physics().operation.interval_h)
+    before, after = site["before"], site["after"]
+    bills = services.monthly_bills(result, site_id)
+    total_before = bills.loc[bills["scenario"] == "before", "amount"].sum()
+    total_after = bills.loc[bills["scenario"] == "after", "amount"].sum()
+    summary = [html.Span(f"Peak demand {before['p_kw'].max():,.0f} kW today, {after['p_kw'].max():,.0f} kW with the plan · "
+                         f"mean power factor {before['power_factor'].mean():.3f} today, {after['power_factor'].mean():.3f} "
+                         f"with the plan · yearly bill {ui.fmt_money(total_before, view.currency)} today, "
+                         f"{ui.fmt_money(total_after, view.currency)} with the plan")]
+    return (figures.meter_week(services.week_slice(site, week)),
+            figures.pf_duration(services.pf_duration(site, interval_h)),
+            figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
+            figures.monthly_bills(bills, view.currency), summary, view.notice)

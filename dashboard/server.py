@@ -1,0 +1,138 @@
+"""Starting the dashboard: ``drivecase serve [CASE] [--port P] [--host H] [--debug] [--no-browser]``.
+
+:func:`serve` loads the case (the demo case when none is given), refuses a case with errors (the problem
+list is printed, exit status 1), warns when the address makes the dashboard reachable from other
+computers, prints the address, opens a browser tab only when asked and when one can be opened, and runs
+until interrupted. The physics of the case start in the background so the first page comes sooner.
+"""
+
+from __future__ import annotations
+
+import ipaddress
+import os
+import sys
+import threading
+import webbrowser
+from pathlib import Path
+
+from models import io as case_io
+
+LOOPBACK_NAMES = ("localhost", "localhost.localdomain", "ip6-localhost")
+
+
+def is_loopback(host: str) -> bool:
+    """True when ``host`` only accepts connections from this computer (127.0.0.0/8, ::1, localhost)."""
+    text = str(host or "").strip().strip("[]").lower()
+    if text in LOOPBACK_NAMES:
+        return True
+    try:
+        return ipaddress.ip_address(text).is_loopback
+    except ValueError:
+        return False
+
+
+def network_warning(host: str) -> str | None:
+    """The warning to print for a non-loopback address, or None on loopback."""
+    if is_loopback(host):
+        return None
+    where = "every network interface" if str(host).strip() in ("0.0.0.0", "::", "[::]") else f"address {host}"
+    return (f"WARNING: listening on {where}: the dashboard is reachable from the network and has no login. "
+            "Anyone who can reach this port can see and upload cases. Use the default 127.0.0.1 unless you trust "
+            "the network.")
+
+
+def url_for(host: str, port: int) -> str:
+    """The address to print (IPv6 literals in brackets)."""
+    text = str(host).strip()
+    if ":" in text and not text.startswith("["):
+        text = f"[{text}]"
+    return f"http://{text}:{port}"
+
+
+def can_open_browser() -> bool:
+    """True when a graphical browser can plausibly be opened (never on a headless Linux session)."""
+    if sys.platform.startswith(("win", "darwin")):
+        return True
+    return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
+
+
+def _open_browser_later(url: str, delay_s: float = 1.5) -> None:
+    def go() -> None:
+        try:
+            webbrowser.open_new_tab(url)
+        except Exception:  # a missing or broken browser must never stop the server
+            pass
+
+    timer = threading.Timer(delay_s, go)
+    timer.daemon = True
+    timer.start()
+
+
+def _print_problems(problems) -> None:
+    errors = [p for p in problems if p.severity == "error"]
+    warnings = [p for p in problems if p.severity == "warning"]
+    print(f"Problems: {len(errors)} error(s), {len(warnings)} warning(s)")
+    for p in errors + warnings:
+        print(f"  {p}")
+
+
+def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: int = 8050, debug: bool = False,
+          open_browser: bool = True) -> int:
+    """Serve the dashboard on a case until interrupted.
+
+    Parameters
+    ----------
+    case_path : str or pathlib.Path or None
+        Case folder or ``.xlsx`` workbook; None serves the demo case.
+    host : str
+        Address to bind; 127.0.0.1 (this computer only) by default. Any other address prints a warning.
+    port : int
+        TCP port.
+    debug : bool
+        Dash debug mode (development only).
+    open_browser : bool
+        Open a browser tab once the server is up, when a browser can be opened.
+
+    Returns
+    -------
+    int
+        0 after a normal stop, 1 when the case has errors or the address cannot be bound.
+    """
+    from dashboard import services
+
+    path = Path(case_path) if case_path is not None else case_io.DEMO_DIR
+    engine = services.use_engine(services.Engine())
+    entry, problems = engine.set_default_case(path)
+    if entry is None:
+        print(f"drivecase serve: the case {path} cannot be opened.")
+        _print_problems(problems)
+        return 1
+    warnings = [p for p in problems if p.severity == "warning"]
+    if warnings:
+        print(f"Case read with {len(warnings)} warning(s); they are listed on the 'Case & assumptions' page.")
+    warning = network_warning(host)
+    if warning:
+        print(warning)
+
+    def warm() -> None:
+        try:
+            engine.physics(entry.key)
+        except Exception as exc:  # shown again on the first page that needs it
+            print(f"drivecase serve: the analysis of the case failed: {exc}", file=sys.stderr)
+
+    threading.Thread(target=warm, name="drivecase-physics", daemon=True).start()
+    from dashboard.app import app
+
+    url = url_for(host, port)
+    print(f"Dashboard on {url} (case '{entry.name}'; press Ctrl+C to stop)")
+    if open_browser and can_open_browser():
+        _open_browser_later(url if host.strip() not in ("0.0.0.0", "::") else url_for("127.0.0.1", port))
+    try:
+        app.run(host=host, port=port, debug=debug, use_reloader=False, dev_tools_hot_reload=False)
+    except KeyboardInterrupt:
+        pass
+    except (OSError, SystemExit) as exc:
+        print(f"drivecase serve: cannot listen on {url}: {exc}", file=sys.stderr)
+        return 1
+    print("Dashboard stopped.")
+    return 0

@@ -1,0 +1,1037 @@
+"""The dashboard's only door to the engine: cases, cached physics and economics, uploads, and page data.
+
+Everything the pages show comes through here. A case is read with :func:`models.case.load_case`, its
+physics (:func:`models.scenario.physics`, the slow part) runs once per case and is kept in a process-level
+cache keyed by the case's content hash, and :func:`models.scenario.economics` runs once per case and set
+of finance assumptions (also cached). Assumption edits re-run only the economics, without the Monte Carlo;
+the risk page asks for the run with risk, which is cached separately.
+
+Each browser session keeps its own case: the session stores the case *key* (a content hash, never the
+data) in the browser's session storage, and the case objects live here in a bounded cache. Uploaded files
+are checked (names, suffixes, total size), written only into a folder created for the session under the
+process's own temporary directory, and read with the ordinary case reader: nothing a user uploads is
+unpickled, evaluated or executed.
+
+The helpers at the end turn a result into the small tables the figure builders draw (presentation only:
+selecting, labelling, unit conversion for display). Equations belong to :mod:`models`.
+"""
+
+from __future__ import annotations
+
+import atexit
+import base64
+import binascii
+import hashlib
+import re
+import shutil
+import tempfile
+import threading
+import unicodedata
+import uuid
+from collections import OrderedDict
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from models import finance
+from models import io as case_io
+from models import scenario
+from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
+from models.case import HP_TO_KW, load_case
+from models.operation import performance_curves
+from models.problems import Problem, error, has_errors
+from models.profiles import asset_loads
+
+#: Largest upload accepted, all files of one upload together [bytes].
+MAX_UPLOAD_BYTES = 50 * 1024 * 1024
+#: Most files in one upload.
+MAX_UPLOAD_FILES = 24
+#: File name endings accepted in an upload.
+ALLOWED_SUFFIXES: tuple[str, ...] = (".xlsx", ".csv", ".toml", ".parquet")
+#: Uploaded cases held in memory at once (the case the server was started with is always kept).
+MAX_UPLOADED_CASES = 4
+#: Economics results held in memory at once (all cases and assumption sets together).
+MAX_RESULTS = 32
+#: Columns of the problem grid, in order.
+PROBLEM_COLUMNS: tuple[str, ...] = ("severity", "file", "row", "column", "value", "rule", "hint")
+#: Plan years shown as budget inputs.
+BUDGET_YEARS = 6
+#: Settings files that sit at the top of a case folder; any other TOML file is a tariff.
+ROOT_TOML = ("case.toml", "finance.toml")
+
+_SESSION_ID = re.compile(r"^[0-9a-f]{32}$")
+_SAFE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ._()+-]{0,119}$")
+
+
+# ---------------------------------------------------------------------------------------------------
+# Cases and their content keys
+# ---------------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class CaseEntry:
+    """A loaded case held by the server.
+
+    Attributes
+    ----------
+    key : str
+        Content hash of the case's files (same files, same key).
+    case : models.case.Case
+        The validated case.
+    files : pathlib.Path
+        Folder or workbook the case was read from.
+    origin : {"default", "upload"}
+        The case the server was started with, or a session's upload.
+    owned_dir : pathlib.Path or None
+        Temporary folder holding an upload's files, removed when the entry leaves the cache.
+    """
+
+    key: str
+    case: object
+    files: Path
+    origin: str
+    owned_dir: Path | None = None
+
+    @property
+    def name(self) -> str:
+        """The case's display name."""
+        return str(self.case.settings.name)
+
+
+def case_files(path: Path) -> list[Path]:
+    """Return the files a case reader would read, in a fixed order (a workbook is its own file)."""
+    path = Path(path)
+    if path.is_file():
+        return [path]
+    found = [path / name for name in ROOT_TOML if (path / name).is_file()]
+    for table in case_io.CASE_TABLES:
+        for suffix in (".csv", ".parquet"):
+            if (path / f"{table}{suffix}").is_file():
+                found.append(path / f"{table}{suffix}")
+    tariffs = path / "tariffs"
+    if tariffs.is_dir():
+        found += sorted(p for p in tariffs.glob("*.toml") if p.is_file())
+    return found
+
+
+def content_key(path: Path) -> str:
+    """Return the content hash of a case folder or workbook (names and bytes of its case files)."""
+    path = Path(path)
+    digest = hashlib.sha256()
+    base = path if path.is_dir() else path.parent
+    for file in case_files(path):
+        data = file.read_bytes()
+        name = file.name if path.is_file() else file.relative_to(base).as_posix()
+        digest.update(name.encode("utf-8") + b"\0" + str(len(data)).encode() + b"\0" + data)
+    return digest.hexdigest()[:32]
+
+
+@dataclass(frozen=True)
+class UploadOutcome:
+    """What became of an upload.
+
+    Attributes
+    ----------
+    ok : bool
+        True when the upload gave a valid case that is now the session's case.
+    session : str
+        The session id (created when the session had none).
+    key : str or None
+        The new case key when ``ok``; None otherwise (the session keeps its previous case).
+    message : str
+        One line for the user.
+    problems : list of dict
+        Every problem, as rows of :data:`PROBLEM_COLUMNS` (warnings too when the upload was accepted).
+    """
+
+    ok: bool
+    session: str
+    key: str | None
+    message: str
+    problems: list[dict] = field(default_factory=list)
+
+
+def _problem_rows(problems: list[Problem]) -> list[dict]:
+    rows = []
+    for p in problems:
+        d = p.as_dict()
+        rows.append({c: d.get(c) for c in PROBLEM_COLUMNS})
+    return rows
+
+
+def check_file_name(name: object) -> tuple[str | None, Problem | None]:
+    """Return the safe base name of an uploaded file, or a problem saying why it is refused.
+
+    Path components (``/`` or ``\\``) are dropped; hidden names, odd characters and endings other than
+    :data:`ALLOWED_SUFFIXES` are refused.
+    """
+    text = unicodedata.normalize("NFKC", str(name or "")).strip()
+    base = re.split(r"[\\/]", text)[-1].strip()
+    if not base or base in (".", "..") or not _SAFE_NAME.match(base):
+        return None, error(base or "(no name)", None, None, text, "file name refused",
+                           "use plain names such as assets.csv (letters, digits, space, . _ - ( ) +)")
+    suffix = Path(base).suffix.lower()
+    if suffix not in ALLOWED_SUFFIXES:
+        return None, error(base, None, None, None, f"files ending in '{suffix or '(none)'}' are not accepted",
+                           f"upload {', '.join(ALLOWED_SUFFIXES)} files only")
+    return base, None
+
+
+def place_in_case(name: str) -> tuple[str | None, Problem | None]:
+    """Return where a checked file goes inside the upload folder (relative path), or a problem."""
+    lower = name.lower()
+    suffix = Path(lower).suffix
+    if suffix == ".xlsx":
+        return name, None
+    if lower in ROOT_TOML:
+        return lower, None
+    if suffix == ".toml":
+        return f"tariffs/{name}", None
+    stem = Path(lower).stem
+    if stem in case_io.CASE_TABLES:
+        return f"{stem}{suffix}", None
+    return None, error(name, None, None, None, "not a case table name",
+                       "name table files after their table: " + ", ".join(f"{t}.csv" for t in case_io.CASE_TABLES)
+                       + "; tariffs as <name>.toml; settings as case.toml and finance.toml")
+
+
+def decode_upload(contents: object) -> tuple[bytes | None, str | None]:
+    """Decode one ``data:...;base64,...`` string from the upload component; return (bytes, error text)."""
+    if not isinstance(contents, str) or "," not in contents:
+        return None, "the upload is not a data URL"
+    head, payload = contents.split(",", 1)
+    if ";base64" not in head:
+        return None, "the upload is not base64-encoded"
+    try:
+        return base64.b64decode(payload, validate=True), None
+    except (binascii.Error, ValueError):
+        return None, "the upload is damaged (invalid base64)"
+
+
+def encoded_size_bytes(contents: object) -> int:
+    """Return the size a base64 data URL decodes to, without decoding it [bytes]."""
+    if not isinstance(contents, str):
+        return 0
+    payload = contents.split(",", 1)[-1]
+    return (len(payload) * 3) // 4
+
+
+# ---------------------------------------------------------------------------------------------------
+# The engine: bounded, thread-safe caches around models.scenario
+# ---------------------------------------------------------------------------------------------------
+class Engine:
+    """Process-level holder of cases, physics and economics, with bounded caches.
+
+    Parameters
+    ----------
+    physics_fn, economics_fn : callable, optional
+        The engine's stages (default :func:`models.scenario.physics` and :func:`models.scenario.economics`);
+        tests pass counting wrappers.
+    max_uploaded_cases : int
+        Uploaded cases kept at once; the oldest unused one is dropped first.
+    max_results : int
+        Economics results kept at once.
+    upload_root : pathlib.Path, optional
+        Where session folders are created (default: a new temporary folder, removed at exit).
+    """
+
+    def __init__(self, physics_fn: Callable | None = None, economics_fn: Callable | None = None,
+                 max_uploaded_cases: int = MAX_UPLOADED_CASES, max_results: int = MAX_RESULTS,
+                 upload_root: Path | None = None):
+        self._physics_fn = physics_fn or scenario.physics
+        self._economics_fn = economics_fn or scenario.economics
+        self.max_uploaded_cases = int(max_uploaded_cases)
+        self.max_results = int(max_results)
+        self._upload_root = Path(upload_root) if upload_root else None
+        self._lock = threading.RLock()
+        self._inflight: dict[tuple, threading.Lock] = {}
+        self._cases: OrderedDict[str, CaseEntry] = OrderedDict()
+        self._physics: dict[str, object] = {}
+        self._results: OrderedDict[tuple, object] = OrderedDict()
+        self._derived: OrderedDict[tuple, object] = OrderedDict()
+        self.default_key: str | None = None
+        self.counts = {"physics": 0, "economics": 0}
+
+    # -- cases ------------------------------------------------------------------------------------
+    def set_default_case(self, path: str | Path) -> tuple[CaseEntry | None, list[Problem]]:
+        """Load the case sessions see until they upload their own; return it and its problems."""
+        try:
+            case, problems = load_case(path)
+        except Exception as exc:  # the reader reports problems; anything else must not become a traceback
+            return None, [error(str(path), None, None, None, f"the case could not be read ({exc.__class__.__name__}: {exc})")]
+        if case is None:
+            return None, problems
+        path = Path(path)
+        entry = CaseEntry(content_key(path), case, path, "default")
+        with self._lock:
+            self._cases[entry.key] = entry
+            self._cases.move_to_end(entry.key, last=False)
+            self.default_key = entry.key
+        return entry, problems
+
+    def entry(self, key: str | None) -> CaseEntry | None:
+        """Return the cached case of a key (None when unknown or dropped)."""
+        with self._lock:
+            found = self._cases.get(key) if isinstance(key, str) else None
+            if found is not None and found.origin == "upload":
+                self._cases.move_to_end(key)
+            return found
+
+    def default_entry(self) -> CaseEntry:
+        """Return the case the server was started with."""
+        entry = self.entry(self.default_key)
+        if entry is None:
+            raise RuntimeError("no default case: call set_default_case first")
+        return entry
+
+    def _add_upload(self, entry: CaseEntry) -> CaseEntry:
+        dropped: list[CaseEntry] = []
+        with self._lock:
+            existing = self._cases.get(entry.key)
+            if existing is not None:
+                if existing.origin == "upload":
+                    self._cases.move_to_end(entry.key)
+                dropped_dir = entry.owned_dir
+                entry = existing
+            else:
+                dropped_dir = None
+                self._cases[entry.key] = entry
+                uploads = [k for k, e in self._cases.items() if e.origin == "upload"]
+                while len(uploads) > self.max_uploaded_cases:
+                    old = uploads.pop(0)
+                    dropped.append(self._cases.pop(old))
+                    self._forget(old)
+        if dropped_dir is not None:
+            shutil.rmtree(dropped_dir, ignore_errors=True)
+        for old in dropped:
+            if old.owned_dir is not None:
+                shutil.rmtree(old.owned_dir, ignore_errors=True)
+        return entry
+
+    def _forget(self, key: str) -> None:
+        """Drop every cached computation of a case (lock held)."""
+        self._physics.pop(key, None)
+        for cache in (self._results, self._derived):
+            for k in [k for k in cache if k[0] == key]:
+                cache.pop(k, None)
+
+    def _remove(self, key: str) -> None:
+        with self._lock:
+            entry = self._cases.pop(key, None)
+            self._forget(key)
+        if entry is not None and entry.owned_dir is not None:
+            shutil.rmtree(entry.owned_dir, ignore_errors=True)
+
+    # -- single-flight computation ----------------------------------------------------------------
+    def _once(self, cache: dict, key: tuple | str, compute: Callable[[], object], bound: int | None = None):
+        with self._lock:
+            if key in cache:
+                if isinstance(cache, OrderedDict):
+                    cache.move_to_end(key)
+                return cache[key]
+            gate = self._inflight.setdefault(("gate", key), threading.Lock())
+        with gate:
+            with self._lock:
+                if key in cache:
+                    return cache[key]
+            try:
+                value = compute()
+            finally:
+                with self._lock:
+                    self._inflight.pop(("gate", key), None)
+            with self._lock:
+                cache[key] = value
+                if bound is not None and isinstance(cache, OrderedDict):
+                    while len(cache) > bound:
+                        cache.popitem(last=False)
+            return value
+
+    def physics(self, key: str):
+        """Return the physics of a case, computing it once per case."""
+        entry = self.entry(key)
+        if entry is None:
+            raise KeyError(f"unknown case key {key!r}")
+
+        def compute():
+            self.counts["physics"] += 1
+            return self._physics_fn(entry.case, float(entry.case.finance.capacitor_cost_per_kvar))
+
+        return self._once(self._physics, key, compute)
+
+    def result(self, key: str, assumptions, with_risk: bool = False):
+        """Return the economics of a case under assumptions (cached; a run with risk serves both asks)."""
+        with self._lock:
+            richer = self._results.get((key, assumptions, True))
+        if richer is not None:
+            return richer
+        entry = self.entry(key)
+        if entry is None:
+            raise KeyError(f"unknown case key {key!r}")
+        phys = self.physics(key)
+
+        def compute():
+            self.counts["economics"] += 1
+            return self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk)
+
+        return self._once(self._results, (key, assumptions, bool(with_risk)), compute, self.max_results)
+
+    def derived(self, key: str, name: str, args: tuple, compute: Callable[[], object]):
+        """Cache a finance-independent or plan-dependent view of a case (curves, meters, loads)."""
+        return self._once(self._derived, (key, name, args), compute, 64)
+
+    # -- uploads ----------------------------------------------------------------------------------
+    def upload_root(self) -> Path:
+        """The process's temporary folder for session uploads (created on first use)."""
+        with self._lock:
+            if self._upload_root is None:
+                self._upload_root = Path(tempfile.mkdtemp(prefix="drivecase-dashboard-"))
+                atexit.register(shutil.rmtree, self._upload_root, True)
+            self._upload_root.mkdir(parents=True, exist_ok=True)
+            return self._upload_root
+
+    def accept_upload(self, session: object, current_key: str | None, names: object, contents: object,
+                      keep_other_files: bool = True) -> UploadOutcome:
+        """Check, store and load an upload; on success it becomes the session's case.
+
+        Parameters
+        ----------
+        session : str or None
+            The session id from the browser (a new one is made when missing or malformed).
+        current_key : str or None
+            The session's current case; with ``keep_other_files`` its files fill in whatever the
+            upload does not replace (CSV uploads onto a folder case only).
+        names, contents : list of str
+            File names and ``data:...;base64,...`` contents from the upload component.
+        keep_other_files : bool
+            Start from the current case's files (True) or from an empty folder (False).
+
+        Returns
+        -------
+        UploadOutcome
+            On any error the outcome is not ``ok`` and nothing changes for the session.
+        """
+        session = session if isinstance(session, str) and _SESSION_ID.match(session) else uuid.uuid4().hex
+        names = [names] if isinstance(names, str) else list(names or [])
+        contents = [contents] if isinstance(contents, str) else list(contents or [])
+
+        def refuse(message: str, problems: list[Problem]) -> UploadOutcome:
+            return UploadOutcome(False, session, None, message, _problem_rows(problems))
+
+        if not names or len(names) != len(contents):
+            return refuse("Nothing was uploaded.", [])
+        if len(names) > MAX_UPLOAD_FILES:
+            return refuse(f"Too many files ({len(names)}); at most {MAX_UPLOAD_FILES} per upload.", [])
+        total = sum(encoded_size_bytes(c) for c in contents)
+        if total > MAX_UPLOAD_BYTES:
+            return refuse(f"The upload is {total / 1e6:.1f} MB, above the {MAX_UPLOAD_BYTES / 1e6:.0f} MB limit; "
+                          "nothing was read.", [error("(upload)", None, None, f"{total / 1e6:.1f} MB",
+                                                       f"uploads are limited to {MAX_UPLOAD_BYTES / 1e6:.0f} MB",
+                                                       "split the case, or save profiles as Parquet")])
+        problems: list[Problem] = []
+        placed: dict[str, bytes] = {}
+        for name, data_url in zip(names, contents):
+            safe, problem = check_file_name(name)
+            if problem is not None:
+                problems.append(problem)
+                continue
+            where, problem = place_in_case(safe)
+            if problem is not None:
+                problems.append(problem)
+                continue
+            data, why = decode_upload(data_url)
+            if data is None:
+                problems.append(error(safe, None, None, None, why, "upload the file again"))
+                continue
+            if where.lower() in {p.lower() for p in placed}:
+                problems.append(error(safe, None, None, None, "the same file was given twice", "upload it once"))
+                continue
+            placed[where] = data
+        books = [w for w in placed if w.lower().endswith(".xlsx")]
+        if books and len(placed) > 1:
+            problems.append(error(books[0], None, None, None, "a workbook holds the whole case; upload it alone",
+                                  "or upload CSV/TOML files without a workbook"))
+        if problems:
+            return refuse("The upload was refused; the previous case stays loaded.", problems)
+
+        folder = self.upload_root() / f"session-{session}" / f"upload-{uuid.uuid4().hex[:12]}"
+        folder.mkdir(parents=True)
+        try:
+            target = self._write_upload(folder, placed, books, current_key, keep_other_files)
+            try:
+                case, found = load_case(target)
+            except Exception as exc:  # never a traceback: report what failed
+                case, found = None, [error(target.name, None, None, None,
+                                           f"the case could not be read ({exc.__class__.__name__}: {exc})")]
+            if case is None or has_errors(found):
+                shutil.rmtree(folder, ignore_errors=True)
+                n = sum(p.severity == "error" for p in found)
+                return refuse(f"{n} error(s) in the upload; the previous case stays loaded.", found)
+            entry = self._add_upload(CaseEntry(content_key(target), case, target, "upload", folder))
+            try:
+                self.physics(entry.key)
+            except Exception as exc:  # e.g. a site the tariff cannot price
+                self._remove(entry.key)
+                shutil.rmtree(folder, ignore_errors=True)
+                return refuse("The case was read but cannot be priced; the previous case stays loaded.",
+                              found + [error(target.name, None, None, None, f"the analysis failed: {exc}",
+                                             "check the tariffs and sites of the case")])
+        except OSError as exc:
+            shutil.rmtree(folder, ignore_errors=True)
+            return refuse("The upload could not be stored on the server.", [error("(upload)", None, None, None, str(exc))])
+        n_warn = sum(p.severity == "warning" for p in found)
+        message = (f"Loaded '{entry.name}': {len(entry.case.assets)} assets, {len(entry.case.sites)} site(s)"
+                   + (f", {n_warn} warning(s)." if n_warn else "."))
+        return UploadOutcome(True, session, entry.key, message, _problem_rows(found))
+
+    def _write_upload(self, folder: Path, placed: dict[str, bytes], books: list[str], current_key: str | None,
+                      keep_other_files: bool) -> Path:
+        if books:
+            target = folder / books[0]
+            target.write_bytes(placed[books[0]])
+            return target
+        base = self.entry(current_key) or (self.entry(self.default_key) if current_key is None else None)
+        if keep_other_files and base is not None and base.files.is_dir():
+            for file in case_files(base.files):
+                relative = file.relative_to(base.files)
+                (folder / relative).parent.mkdir(parents=True, exist_ok=True)
+                shutil.copyfile(file, folder / relative)
+        for where, data in placed.items():
+            path = folder / where
+            if path.parent != folder:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            stem, suffix = Path(where).stem, Path(where).suffix.lower()
+            if path.parent == folder and suffix in (".csv", ".parquet"):
+                twin = folder / f"{stem}{'.parquet' if suffix == '.csv' else '.csv'}"
+                twin.unlink(missing_ok=True)
+            path.write_bytes(data)
+        return folder
+
+
+_ENGINE: Engine | None = None
+_ENGINE_LOCK = threading.Lock()
+
+
+def engine() -> Engine:
+    """Return the process's engine, loading the demo case as default on first use."""
+    global _ENGINE
+    with _ENGINE_LOCK:
+        if _ENGINE is None:
+            _ENGINE = Engine()
+        if _ENGINE.default_key is None:
+            entry, problems = _ENGINE.set_default_case(case_io.DEMO_DIR)
+            if entry is None:
+                raise RuntimeError("the demo case does not load: " + "; ".join(str(p) for p in problems))
+        return _ENGINE
+
+
+def use_engine(new: Engine) -> Engine:
+    """Make ``new`` the process's engine (the server and tests call this)."""
+    global _ENGINE
+    with _ENGINE_LOCK:
+        _ENGINE = new
+    return new
+
+
+# ---------------------------------------------------------------------------------------------------
+# Sessions and assumptions
+# ---------------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class View:
+    """What one session sees: its case, its assumptions, and a notice when something fell back."""
+
+    entry: CaseEntry
+    assumptions: object
+    notice: str = ""
+
+    @property
+    def key(self) -> str:
+        return self.entry.key
+
+    @property
+    def case(self):
+        return self.entry.case
+
+    @property
+    def currency(self) -> str:
+        return str(self.case.settings.currency)
+
+    @property
+    def power_unit(self) -> str:
+        return "hp" if str(self.case.settings.power_unit).lower() == "hp" else "kW"
+
+    def result(self, with_risk: bool = False):
+        """The economics of this view (cached)."""
+        return engine().result(self.key, self.assumptions, with_risk=with_risk)
+
+    def physics(self):
+        """The physics of this view's case (cached)."""
+        return engine().physics(self.key)
+
+
+def session_entry(session: dict | None) -> tuple[CaseEntry, str]:
+    """Return the session's case (the default when it has none) and a notice when its case was dropped."""
+    eng = engine()
+    key = session.get("case") if isinstance(session, dict) else None
+    if key:
+        found = eng.entry(key)
+        if found is not None:
+            return found, ""
+        default = eng.default_entry()
+        return default, (f"The case this tab uploaded is no longer held by the server (it keeps the "
+                         f"{eng.max_uploaded_cases} most recent uploads); showing '{default.name}'. Upload it again.")
+    return eng.default_entry(), ""
+
+
+def view(session: dict | None, edits: dict | None) -> View:
+    """Return the session's view: its case and the assumptions with its edits applied.
+
+    Edits made for another case (before an upload) are ignored; edits that the finance model refuses
+    leave the case's own assumptions in place and say why in the notice.
+    """
+    entry, notice = session_entry(session)
+    base = entry.case.finance
+    if isinstance(edits, dict) and edits.get("case") == entry.key:
+        try:
+            return View(entry, assumptions_with_edits(base, edits), notice)
+        except ValueError as exc:
+            notice = (notice + " " if notice else "") + f"Assumption edits not applied: {exc}"
+    return View(entry, base, notice)
+
+
+def assumptions_with_edits(base, edits: dict):
+    """Return the finance assumptions with the dashboard's edits (percent fields become fractions).
+
+    Raises
+    ------
+    ValueError
+        When the edited assumptions are refused by :class:`models.finance.FinanceAssumptions`.
+    """
+    changes = {}
+    if edits.get("discount_rate_pct") is not None:
+        changes["discount_rate_frac"] = float(edits["discount_rate_pct"]) / 100.0
+    if edits.get("escalation_energy_pct") is not None:
+        changes["escalation_energy_frac"] = float(edits["escalation_energy_pct"]) / 100.0
+    if edits.get("horizon_yr") is not None:
+        horizon = float(edits["horizon_yr"])
+        if not horizon.is_integer():
+            raise ValueError("horizon_yr: must be a whole number of years")
+        changes["horizon_yr"] = int(horizon)
+    if "budget_per_yr" in edits and edits["budget_per_yr"] is not None:
+        changes["budget_per_yr"] = tuple(float(b) for b in edits["budget_per_yr"])
+    return replace(base, **changes)
+
+
+def assumption_form(assumptions) -> dict:
+    """Return the editable assumptions as the form shows them (percent, years, budget list)."""
+    return {
+        "discount_rate_pct": round(float(assumptions.discount_rate_frac) * 100.0, 6),
+        "escalation_energy_pct": round(float(assumptions.escalation_energy_frac) * 100.0, 6),
+        "horizon_yr": int(assumptions.horizon_yr),
+        "budget_per_yr": [float(b) for b in assumptions.budget_per_yr],
+    }
+
+
+def parse_budget(values: list) -> tuple[list[float] | None, str]:
+    """Parse the budget inputs (plan years 0, 1, ...); return (budget list, error text).
+
+    Blank years after the last filled one are dropped; a blank before a filled year, a negative amount
+    or text is an error. No filled year at all means no capital limit (empty list).
+    """
+    cleaned: list[float | None] = []
+    for k, v in enumerate(values or []):
+        if v is None or (isinstance(v, str) and not v.strip()):
+            cleaned.append(None)
+            continue
+        try:
+            number = float(v)
+        except (TypeError, ValueError):
+            return None, f"Year {k}: '{v}' is not a number."
+        if not np.isfinite(number) or number < 0:
+            return None, f"Year {k}: the budget must be zero or more."
+        cleaned.append(number)
+    while cleaned and cleaned[-1] is None:
+        cleaned.pop()
+    if any(v is None for v in cleaned):
+        k = cleaned.index(None)
+        return None, f"Year {k} is blank: fill every year up to the last one (0 for no spending that year)."
+    return [float(v) for v in cleaned], ""
+
+
+def edit_assumptions(entry_key: str, base, current: dict | None, **fields) -> tuple[dict | None, str]:
+    """Merge new form values into a session's edits and check them; return (edits, error text).
+
+    ``fields`` holds any of ``discount_rate_pct``, ``escalation_energy_pct``, ``horizon_yr`` and
+    ``budget_per_yr``. On an error the edits are None and the text says what is wrong.
+    """
+    edits = dict(current) if isinstance(current, dict) and current.get("case") == entry_key else {"case": entry_key}
+    labels = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "Energy price escalation",
+              "horizon_yr": "Horizon"}
+    for name, value in fields.items():
+        if name in labels and (value is None or value == ""):
+            return None, f"{labels[name]}: enter a number."
+        edits[name] = value
+    try:
+        assumptions_with_edits(base, edits)
+    except (TypeError, ValueError) as exc:
+        return None, f"Not applied: {exc}"
+    return edits, ""
+
+
+def edits_change(view_: View, new_edits: dict) -> bool:
+    """True when ``new_edits`` would change the assumptions the view already uses."""
+    try:
+        return assumptions_with_edits(view_.entry.case.finance, new_edits) != view_.assumptions
+    except (TypeError, ValueError):
+        return True
+
+
+# ---------------------------------------------------------------------------------------------------
+# Presentation helpers: result -> small tables for the figure builders
+# ---------------------------------------------------------------------------------------------------
+def power_label(power_unit: str) -> str:
+    """The unit label of ratings: kW or hp."""
+    return "hp" if power_unit == "hp" else "kW"
+
+
+def rating_in_unit(p_kw, power_unit: str):
+    """Ratings in the case's display unit (1 hp = 0.745699872 kW, NIST SP 811 (2008) B.9)."""
+    return p_kw / HP_TO_KW if power_unit == "hp" else p_kw
+
+
+def _plan_keys(frame: pd.DataFrame) -> pd.Series:
+    return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
+
+
+def headline(result) -> dict:
+    """Plan capital, yearly saving, plan NPV and CO2 avoided of the exact plan."""
+    res = result.results
+    plan = result.plan
+    chosen = res.set_index(_plan_keys(res)).reindex(_plan_keys(plan)) if len(plan) else res.iloc[0:0]
+    saving = chosen["bill_saving_per_yr"].sum() + chosen["saving_maintenance_per_yr"].sum() if len(chosen) else 0.0
+    return {
+        "plan_capital": float(plan["capital"].sum()) if len(plan) else 0.0,
+        "yearly_saving_per_yr": float(saving),
+        "plan_npv": float(plan["npv_at_plan_start"].sum()) if len(plan) else 0.0,
+        "co2_avoided_t_per_yr": float(chosen["co2_avoided_t_per_yr"].sum()) if len(chosen) else 0.0,
+        "projects": int(len(plan)),
+    }
+
+
+def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:
+    """Best option per asset, ranked by NPV, with the asset's data-quality score and plan year."""
+    res = result.results
+    best = res[res["best_for_asset"].to_numpy(dtype=bool)]
+    assets = view_.case.assets.set_index("asset_id")
+    plan_year = result.plan.set_index("asset_id")["start_yr"] if len(result.plan) else pd.Series(dtype=float)
+    out = pd.DataFrame({
+        "asset_id": best["asset_id"].to_numpy(dtype=object),
+        "site_id": best["site_id"].to_numpy(dtype=object),
+        "application": assets["application"].reindex(best["asset_id"]).to_numpy(dtype=object),
+        "description": assets["description"].reindex(best["asset_id"]).to_numpy(dtype=object),
+        "rating": rating_in_unit(best["rated_p_kw"].to_numpy(dtype=float), view_.power_unit),
+        "best_option": best["label"].to_numpy(dtype=object),
+        "option_id": best["option_id"].to_numpy(dtype=object),
+        "capital": best["capital"].to_numpy(dtype=float),
+        "npv": best["npv"].to_numpy(dtype=float),
+        "discounted_payback_yr": np.where(best["payback_within_horizon"].to_numpy(dtype=bool),
+                                          best["discounted_payback_yr"].to_numpy(dtype=float), np.nan),
+        "saving_per_yr": (best["bill_saving_per_yr"] + best["saving_maintenance_per_yr"]).to_numpy(dtype=float),
+        "co2_avoided_t_per_yr": best["co2_avoided_t_per_yr"].to_numpy(dtype=float),
+        "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
+        "plan_year": plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
+    })
+    if sites:
+        out = out[out["site_id"].isin(list(sites))]
+    if applications:
+        out = out[out["application"].isin(list(applications))]
+    out = out.sort_values("npv", ascending=False, kind="stable").reset_index(drop=True)
+    out.insert(0, "rank", np.arange(1, len(out) + 1))
+    return out
+
+
+def filter_choices(view_: View) -> tuple[list[str], list[str]]:
+    """Sites and applications of the case, for the overview filters."""
+    a = view_.case.assets
+    return sorted(a["site_id"].dropna().unique().tolist()), sorted(a["application"].dropna().unique().tolist())
+
+
+def asset_choices(view_: View) -> list[dict]:
+    """Dropdown options for every asset: label 'id: description'."""
+    a = view_.case.assets
+    return [{"label": f"{r.asset_id}: {r.description}" if r.description else str(r.asset_id), "value": str(r.asset_id)}
+            for r in a.itertuples(index=False)]
+
+
+def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
+    """Every applicable option of one asset, side by side."""
+    res = result.results[result.results["asset_id"] == asset_id]
+    options = view_.case.options.set_index("option_id")
+    remedy = options["speed_remedy"].reindex(res["option_id"]).fillna("none").to_numpy(dtype=object)
+    return pd.DataFrame({
+        "option_id": res["option_id"].to_numpy(dtype=object),
+        "label": res["label"].to_numpy(dtype=object),
+        "technology": res["technology"].to_numpy(dtype=object),
+        "speed_remedy": remedy,
+        "capital": res["capital"].to_numpy(dtype=float),
+        "saving_per_yr": (res["bill_saving_per_yr"] + res["saving_maintenance_per_yr"]).to_numpy(dtype=float),
+        "npv": res["npv"].to_numpy(dtype=float),
+        "irr_pct": res["irr_frac"].to_numpy(dtype=float) * 100.0,
+        "discounted_payback_yr": np.where(res["payback_within_horizon"].to_numpy(dtype=bool),
+                                          res["discounted_payback_yr"].to_numpy(dtype=float), np.nan),
+        "energy_kwh_per_yr": res["energy_kwh_per_yr"].to_numpy(dtype=float),
+        "mean_speed_rpm": res["mean_speed_rpm"].to_numpy(dtype=float),
+        "life_cycle_cost": res["life_cycle_cost"].to_numpy(dtype=float),
+        "best": res["best_for_asset"].to_numpy(dtype=bool),
+        "flags": res["flags"].fillna("").to_numpy(dtype=object),
+    })
+
+
+def asset_lcc(result, asset_id: str) -> pd.DataFrame:
+    """Life-cycle cost of one asset's options by component, with option labels."""
+    lcc = result.lcc[result.lcc["asset_id"] == asset_id]
+    labels = result.results[result.results["asset_id"] == asset_id].set_index("option_id")["label"]
+    return lcc.assign(label=labels.reindex(lcc["option_id"]).to_numpy(dtype=object)).reset_index(drop=True)
+
+
+def asset_cumulative_cash(view_: View, result, asset_id: str) -> pd.DataFrame:
+    """Cumulative discounted cash flow per option of one asset, year by year, with its payback."""
+    d = float(result.assumptions.discount_rate_frac)
+    horizon = int(result.assumptions.horizon_yr)
+    cash = result.cashflows[result.cashflows["asset_id"] == asset_id]
+    res = result.results[(result.results["asset_id"] == asset_id) & (result.results["capital"] > 0)]
+    factors = finance.discount_factors(d, horizon)
+    years = np.arange(horizon + 1)
+    frames = []
+    for row in res.itertuples(index=False):
+        flows = cash[cash["option_id"] == row.option_id].groupby("year")["amount"].sum()
+        net = flows.reindex(years, fill_value=0.0).to_numpy(dtype=float)
+        frames.append(pd.DataFrame({
+            "option_id": row.option_id, "label": row.label, "year": years,
+            "cumulative_pv": np.cumsum(net * factors),
+            "payback_yr": row.discounted_payback_yr if row.payback_within_horizon else np.nan}))
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        columns=["option_id", "label", "year", "cumulative_pv", "payback_yr"])
+
+
+def asset_performance(view_: View, asset_id: str) -> pd.DataFrame:
+    """Efficiency, power factor and kVAr against shaft load for each option of one asset (cached)."""
+    eng = engine()
+    curves = eng.derived(view_.key, "curves", (asset_id,), lambda: performance_curves(view_.case, asset_id))
+    labels = view_.case.options.set_index("option_id")["label"]
+    label = labels.reindex(curves["option_id"]).to_numpy(dtype=object)
+    label = np.where(pd.isna(label), np.where(curves["option_id"] == "keep", "Keep as is", curves["option_id"]), label)
+    return curves.assign(label=label, load_pct=curves["load_frac"] * 100.0)
+
+
+def asset_load_hours(view_: View, asset_id: str, bin_pct: float = 10.0) -> tuple[pd.DataFrame, str]:
+    """Hours per year in each band of shaft load (running hours only) and what the load is based on."""
+    eng = engine()
+    phys = view_.physics()
+    op = phys.operation
+    rows, values, is_input, states, _notes = eng.derived(view_.key, "loads", (), lambda: asset_loads(view_.case, op.index))
+    pos = op.asset_position(asset_id)
+    rated = float(view_.case.assets["rated_p_kw"].iloc[pos])
+    hit = np.flatnonzero(rows == pos)
+    if len(hit):
+        k = int(hit[0])
+        if is_input[k]:
+            load_pct = values[k] / rated * 100.0
+            basis = "measured input kW as % of the rating (interval profile)"
+        else:
+            load_pct = values[k] * 100.0
+            basis = "shaft load (interval profile)"
+        hours = np.full(load_pct.shape, float(op.interval_h))
+    else:
+        load_pct = states.shaft_load_frac[pos] * 100.0
+        hours = states.duration_h_per_yr[pos]
+        basis = "shaft load (duty table or annual hours at mean load)"
+    running = (load_pct > 0) & (hours > 0)
+    edges = np.arange(0.0, 130.0 + bin_pct, bin_pct)
+    counts, _ = np.histogram(np.clip(load_pct[running], 0, edges[-1] - 1e-9), bins=edges, weights=hours[running])
+    return pd.DataFrame({"load_from_pct": edges[:-1], "load_to_pct": edges[1:], "hours_per_yr": counts}), basis
+
+
+def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFrame, pd.DataFrame]:
+    """Data-quality score [%], the defaulted fields and the cautions raised for one asset."""
+    a = view_.case.assets
+    score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
+    defaults = view_.case.defaults
+    defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].astype(str).reset_index(drop=True)
+    res = result.results[result.results["asset_id"] == asset_id]
+    rows = [{"option": r.label, "flag": text.strip()} for r in res.itertuples(index=False)
+            for text in str(r.flags or "").split(";") if text.strip()]
+    return score, defaults, pd.DataFrame(rows, columns=["option", "flag"])
+
+
+def plan_choice(view_: View, result) -> np.ndarray:
+    """Position of the chosen option per asset under the exact plan (0 = today's motor)."""
+    op = view_.physics().operation
+    choice = np.zeros(len(op.asset_ids), dtype=int)
+    for r in result.plan.itertuples(index=False):
+        choice[op.asset_position(r.asset_id)] = op.option_position(r.option_id)
+    return choice
+
+
+def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
+    """Per site, the meter readings before ('before') and with the plan ('after'), on the time index."""
+    op = view_.physics().operation
+    choice = plan_choice(view_, result)
+    eng = engine()
+    setups = eng.derived(view_.key, "setups", (), lambda: site_setups(view_.case, op.index))
+    before = eng.derived(view_.key, "meters", (b"",), lambda: meter_and_bills(view_.case, op, np.zeros_like(choice), setups)[0])
+    after = eng.derived(view_.key, "meters", (choice.tobytes(),), lambda: meter_and_bills(view_.case, op, choice, setups)[0])
+    out = {}
+    for site_id in before:
+        out[site_id] = {"before": before[site_id].to_frame().set_axis(op.index),
+                        "after": after[site_id].to_frame().set_axis(op.index)}
+    return out
+
+
+def week_starts(view_: View) -> list[dict]:
+    """Monday starts of the analysis year, as dropdown options."""
+    index = view_.physics().operation.index
+    mondays = index[(index.dayofweek == 0) & (index.hour == 0) & (index.minute == 0)]
+    return [{"label": f"Week of {t:%d %b %Y}", "value": t.isoformat()} for t in mondays]
+
+
+def peak_week(meters: dict[str, pd.DataFrame]) -> str:
+    """ISO start of the Monday-based week holding today's peak site kW."""
+    frame = meters["before"]
+    peak = frame["p_kw"].idxmax()
+    monday = (peak - pd.Timedelta(days=int(peak.dayofweek))).normalize()
+    return monday.isoformat()
+
+
+def week_slice(meters: dict[str, pd.DataFrame], start_iso: str | None) -> dict[str, pd.DataFrame]:
+    """The seven days from ``start_iso`` of the before and after meter readings."""
+    start = pd.Timestamp(start_iso) if start_iso else pd.Timestamp(peak_week(meters))
+    end = start + pd.Timedelta(days=7)
+    return {k: v[(v.index >= start) & (v.index < end)] for k, v in meters.items()}
+
+
+def pf_duration(meters: dict[str, pd.DataFrame], interval_h: float, points: int = 400) -> pd.DataFrame:
+    """Power-factor duration curve before and after: hours of the year at or below each power factor."""
+    frames = []
+    for scenario_name, frame in meters.items():
+        pf = np.sort(frame["power_factor"].to_numpy(dtype=float))
+        hours = np.arange(1, len(pf) + 1) * interval_h
+        take = np.unique(np.linspace(0, len(pf) - 1, min(points, len(pf))).astype(int))
+        frames.append(pd.DataFrame({"scenario": scenario_name, "hours": hours[take], "power_factor": pf[take]}))
+    return pd.concat(frames, ignore_index=True)
+
+
+def monthly_bills(result, site_id: str) -> pd.DataFrame:
+    """Monthly bill of one site by line-item category, before and with the plan [currency]."""
+    frames = []
+    for scenario_name, label in (("baseline", "before"), ("plan", "after")):
+        bills = result.bills[result.bills["scenario"] == scenario_name]
+        if bills.empty:
+            continue
+        table = monthly_bill_table(bills, site_id).drop(columns="total")
+        long = table.reset_index().melt(id_vars="month", var_name="line_item", value_name="amount")
+        long["category"] = long["line_item"].str.split(":", n=1).str[0]
+        frames.append(long.groupby(["month", "category"], as_index=False)["amount"].sum().assign(scenario=label))
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=["month", "category", "amount", "scenario"])
+
+
+def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.DataFrame]) -> pd.DataFrame:
+    """Mean reactive power of a site by source, before and with the plan [kVAr] (negative = leading)."""
+    op = view_.physics().operation
+    a = view_.case.assets
+    members = np.flatnonzero(op.site_ids == site_id)
+    wound_today = a["machine_type"].to_numpy(dtype=object)[members] == "wound_field_synchronous"
+    rows = []
+    for scenario_name, choice in (("before", np.zeros(len(op.asset_ids), dtype=int)), ("after", plan_choice(view_, result))):
+        q = op.q_kvar[choice[members], members]  # (n_members, n_steps)
+        wound = (wound_today & (choice[members] == 0)) | (op.technologies[choice[members]] == "wound_field")
+        frame = meters[scenario_name]
+        motors = q[~wound].sum(axis=0).mean() if (~wound).any() else 0.0
+        wfsm = q[wound].sum(axis=0).mean() if wound.any() else 0.0
+        caps = float(frame["capacitor_q_kvar"].mean())
+        net = float(frame["q_kvar"].mean())
+        base = net - caps - motors - wfsm
+        for source, value in (("Induction and other motors", motors), ("Wound-field machines", wfsm),
+                              ("Non-motor base load", base), ("Capacitor banks", caps), ("Net at the meter", net)):
+            rows.append({"scenario": scenario_name, "source": source, "q_kvar": float(value)})
+    return pd.DataFrame(rows)
+
+
+def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
+    """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
+    labels = result.results.set_index(_plan_keys(result.results))["label"]
+    out = {}
+    for name, frame in (("exact", result.plan), ("rank_order", result.plan_greedy)):
+        f = frame.copy()
+        f["label"] = labels.reindex(_plan_keys(f)).to_numpy(dtype=object) if len(f) else []
+        out[name] = f
+    budgets = list(result.assumptions.budget_per_yr)
+    years = max([len(budgets)] + [int(f["start_yr"].max()) + 1 for f in out.values() if len(f)] + [1])
+    rows = []
+    for name, f in out.items():
+        by_year = f.groupby("start_yr")["capital"].sum() if len(f) else pd.Series(dtype=float)
+        for y in range(years):
+            rows.append({"plan": name, "start_yr": y, "capital": float(by_year.get(y, 0.0)),
+                         "budget": budgets[y] if y < len(budgets) else np.nan})
+    out["by_year"] = pd.DataFrame(rows)
+    exact_keys, greedy_keys = set(_plan_keys(out["exact"])), set(_plan_keys(out["rank_order"]))
+    diff = []
+    for name, f, other in (("exact only", out["exact"], greedy_keys), ("rank order only", out["rank_order"], exact_keys)):
+        for r in f.itertuples(index=False):
+            if f"{r.asset_id}/{r.option_id}" not in other:
+                diff.append({"plan": name, "asset_id": r.asset_id, "label": r.label, "start_yr": r.start_yr,
+                             "capital": r.capital, "npv_at_plan_start": r.npv_at_plan_start})
+    out["differences"] = pd.DataFrame(diff, columns=["plan", "asset_id", "label", "start_yr", "capital", "npv_at_plan_start"])
+    return out
+
+
+TORNADO_LABELS = {
+    "energy_price_mult": "Energy price (x{low:g} to x{high:g})",
+    "hours_mult": "Running hours (x{low:g} to x{high:g})",
+    "load_mult": "Shaft load (x{low:g} to x{high:g})",
+    "capital_mult": "Capital cost (x{low:g} to x{high:g})",
+    "discount_rate_delta_frac": "Discount rate ({low_pct:+g} to {high_pct:+g} points)",
+    "escalation_delta_frac": "Price escalation ({low_pct:+g} to {high_pct:+g} points/yr)",
+}
+
+
+def tornado_rows(result) -> pd.DataFrame:
+    """Tornado rows with readable labels, largest swing first."""
+    t = result.tornado
+    if t is None or t.empty:
+        return pd.DataFrame(columns=["label", "npv_at_low", "npv_at_high", "base_npv", "swing"])
+    labels = [TORNADO_LABELS.get(r.variable, r.variable).format(low=r.low_value, high=r.high_value,
+                                                               low_pct=r.low_value * 100, high_pct=r.high_value * 100)
+              for r in t.itertuples(index=False)]
+    return t.assign(label=labels).sort_values("swing", ascending=True, kind="stable").reset_index(drop=True)
+
+
+def risk_rows(result) -> pd.DataFrame:
+    """Monte Carlo summary per project with asset and option labels, best P50 first."""
+    r = result.risk
+    if r is None or r.empty:
+        return pd.DataFrame(columns=["project_id", "asset_id", "label", "npv_p10", "npv_p50", "npv_p90",
+                                     "prob_npv_positive_frac"])
+    r = r.copy()
+    split = r["project_id"].astype(str).str.split("/", n=1, expand=True)
+    r["asset_id"], r["option_id"] = split[0], split[1]
+    labels = result.results.set_index(_plan_keys(result.results))["label"]
+    r["label"] = labels.reindex(r["project_id"].astype(str)).to_numpy(dtype=object)
+    return r.sort_values("npv_p50", ascending=False, kind="stable").reset_index(drop=True)
+
+
+def case_summary(view_: View) -> dict:
+    """Name, description, currency, power unit, counts and the invented flag of the session's case."""
+    c = view_.case
+    return {"name": c.settings.name, "description": c.settings.description, "currency": view_.currency,
+            "power_unit": view_.power_unit, "assets": int(len(c.assets)), "sites": int(len(c.sites)),
+            "invented": bool(c.settings.invented), "origin": view_.entry.origin,
+            "warnings": int(sum(p.severity == "warning" for p in c.problems))}
+
+
+def blank_template_bytes() -> bytes:
+    """A blank case workbook (written by :func:`models.io.write_blank_case` into a temporary folder)."""
+    with tempfile.TemporaryDirectory(prefix="drivecase-template-") as tmp:
+        path = Path(tmp) / "drivecase-blank-case.xlsx"
+        case_io.write_blank_case(path, workbook=True)
+        return path.read_bytes()
