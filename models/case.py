@@ -428,6 +428,10 @@ MAX_LISTED = 20
 SERIAL_DAYS_RANGE = (20000.0, 80000.0)
 _SPREADSHEET_EPOCH = np.datetime64("1899-12-30T00:00:00", "us")
 _NAT = np.iinfo(np.int64).min
+#: Interval timestamps must fall in these years (a plausibility window for measured load data).
+TIMESTAMP_YEARS = (1900, 2199)
+_FIRST_US = int(np.datetime64(f"{TIMESTAMP_YEARS[0]}-01-01", "us").astype(np.int64))
+_END_US = int(np.datetime64(f"{TIMESTAMP_YEARS[1] + 1}-01-01", "us").astype(np.int64))
 
 
 def _listed(problems: list[Problem], items, make, summary) -> None:
@@ -678,6 +682,16 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
 
         _listed(problems, unreadable, bad,
                 lambda k: error(source, None, header, None, f"{k} more unreadable timestamps"))
+    # one window for UTC (offset cells) and local (naive cells) times alike
+    for stamps in (utc, naive):
+        outside = np.flatnonzero((stamps != _NAT) & ((stamps < _FIRST_US) | (stamps >= _END_US)))
+        _listed(problems, outside,
+                lambda i: error(source, int(rows[i]), header, _plain(column.iloc[i]),
+                                f"timestamp outside the years {TIMESTAMP_YEARS[0]}-{TIMESTAMP_YEARS[1]}",
+                                "check the year; write ISO 8601, e.g. 2025-01-31 13:15"),
+                lambda k: error(source, None, header, None, f"{k} more timestamps outside the years "
+                                f"{TIMESTAMP_YEARS[0]}-{TIMESTAMP_YEARS[1]}"))
+        stamps[outside] = _NAT
     _listed(problems, np.flatnonzero(blank),
             lambda i: error(source, int(rows[i]), header, None, "timestamp is blank"),
             lambda k: error(source, None, header, None, f"{k} more blank timestamps"))
@@ -779,7 +793,8 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     speed = a["rated_speed_rpm"].to_numpy()
     machine = a["machine_type"].fillna("induction").to_numpy(dtype=object)
     induction = machine == "induction"
-    slip = (sync - speed) / sync
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slip = (sync - speed) / sync
     has = ~np.isnan(speed) & ~np.isnan(sync)
     for i in np.flatnonzero(has & induction & (speed >= sync)):
         checker.err(i, "rated_speed_rpm", speed[i],

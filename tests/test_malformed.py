@@ -492,3 +492,25 @@ class TestSize:
         assert report["seconds"] < 25.0, report
         assert report["max_rss_mb"] < 1500.0, report
         assert _hashes(folder) == before
+
+
+class TestFormulaInjection:
+    def test_formula_like_asset_id_is_neutralised_in_result_files(self, tmp_path, capsys):
+        # an id a spreadsheet would run as a formula on opening the result file (CSV injection)
+        bad_id = '=HYPERLINK("http://example.invalid","open")'
+        rows = [list(r) for r in cb.ASSETS]
+        rows[1][cb.ASSET_HEADER.index("asset_id")] = bad_id
+        folder = cb.write_case(tmp_path / "c", assets=rows)
+        cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+        (folder / "tariffs").mkdir()
+        shutil.copyfile(Path(__file__).resolve().parents[1] / "data" / "demo" / "tariffs" / "example_tou_kw_reactive_ratchet.toml",
+                        folder / "tariffs" / "t.toml")
+        before = _hashes(folder)
+        assert main(["run", str(folder), "--out", str(tmp_path / "out"), "--no-risk", "--quiet"]) == 0
+        capsys.readouterr()
+        assert _hashes(folder) == before
+        results = (tmp_path / "out" / "results.csv").read_text(encoding="utf-8")
+        assert "'=HYPERLINK" in results
+        for path in (tmp_path / "out").glob("*.csv"):
+            for line in path.read_text(encoding="utf-8").splitlines():
+                assert not line.startswith(("=", "+", "@")) and ",=" not in line and ',"=' not in line, (path.name, line)
