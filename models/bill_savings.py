@@ -150,19 +150,15 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
 
 def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr."""
-    n_o = p_site.shape[0]
-    js, os_ = [], []
-    for j in range(p_site.shape[1]):
-        opts = np.flatnonzero(applies[j] & (np.arange(n_o) > 0))
-        if not len(opts):
-            continue
-        changed = opts[(np.abs(p_site[opts, j] - p_site[0, j]).max(axis=1) > 0)
-                       | (np.abs(q_site[opts, j] - q_site[0, j]).max(axis=1) > 0)]
-        js.append(np.full(len(changed), j))
-        os_.append(changed)
-    if not js:
-        return np.zeros(0, dtype=int), np.zeros(0, dtype=int)
-    return np.concatenate(js), np.concatenate(os_)
+    n_o, n_s = p_site.shape[0], p_site.shape[1]
+    changed = np.zeros((n_s, n_o), dtype=bool)
+    for o in range(1, n_o):
+        rows = np.flatnonzero(applies[:, o])
+        if len(rows):
+            changed[rows, o] = ((np.abs(p_site[o, rows] - p_site[0, rows]).max(axis=1) > 0)
+                                | (np.abs(q_site[o, rows] - q_site[0, rows]).max(axis=1) > 0))
+    js, os_ = np.nonzero(changed)
+    return js, os_
 
 
 def tariff_depends_on_kvar(tariff) -> bool:
@@ -193,25 +189,29 @@ def kvar_clauses(tariff):
 
 
 def _scenario_bills(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_kw: np.ndarray,
-                    q_kvar: np.ndarray) -> pd.DataFrame:
-    """Bill totals by line item of asset-total scenarios (S, n_steps) at one site's meter.
+                    q_kvar: np.ndarray, dp_kw: np.ndarray | None = None, dq_kvar: np.ndarray | None = None) -> pd.DataFrame:
+    """Bill totals by line item of asset-total scenarios (p_kw + dp_kw, q_kvar + dq_kvar) at one site's meter.
 
     The meter is :func:`models.site.meter_from_asset_totals` (base load, fixed banks, automatic banks in
-    order) term by term, without the apparent power, power factor and leading flags a bill does not use.
+    order) term by term and in the same order, so the values are the same; it is built in place and
+    without the apparent power, power factor and leading flags a bill does not use.
     """
     site = setup.site
     base_p = setup.base_p_kw_profile if setup.base_p_kw_profile is not None else site.base_p_kw
     base_p = np.asarray(base_p, dtype=float)
-    p = p_kw + base_p
-    q = q_kvar + base_p * tan_phi_from_power_factor(site.base_power_factor)
+    p = np.add(p_kw, dp_kw) if dp_kw is not None else np.array(p_kw, dtype=float)
+    q = np.add(q_kvar, dq_kvar) if dq_kvar is not None else np.array(q_kvar, dtype=float)
+    shape = np.broadcast_shapes(p.shape, q.shape)
+    p = np.array(np.broadcast_to(p, shape)) if p.shape != shape else p
+    q = np.array(np.broadcast_to(q, shape)) if q.shape != shape else q
+    p += base_p
+    q += base_p * tan_phi_from_power_factor(site.base_power_factor)
     sizes = np.asarray([b.rated_q_kvar for b in site.fixed_banks], dtype=float)
-    cap = np.zeros(np.broadcast_shapes(p.shape, q.shape))
     if sizes.size:
-        energised = np.broadcast_to(np.asarray(True, dtype=bool), (sizes.size,) + p.shape[-1:])
-        cap = cap - np.tensordot(sizes, energised.astype(float), axes=(0, 0))
-    q = q + cap
+        energised = np.ones((sizes.size, shape[-1]))
+        q += 0.0 - np.tensordot(sizes, energised, axes=(0, 0))
     for bank in site.stepped_banks:
-        q = q + bank.q_kvar(p, q)
+        q += bank.q_kvar(p, q)
     return billing.bill_many(setup.tariff, index, p, q, interval_h=interval_h)
 
 
@@ -273,11 +273,11 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
         j, o = js[start:start + block], os_[start:start + block]
         dp = p_site[o, j] - p_site[0, j]
         dq = q_site[o, j] - q_site[0, j]
-        full = _scenario_bills(setup, index, interval_h, p0 + dp, q0 + dq)
+        full = _scenario_bills(setup, index, interval_h, p0, q0, dp, dq)
         frame = attribution.saving_by_category(base, full)
         saving[j, o] = _components(frame)
         if q_matters:
-            reactive_only = _scenario_bills(q_setup, index, interval_h, np.broadcast_to(p0 + 0.0, dq.shape), q0 + dq)
+            reactive_only = _scenario_bills(q_setup, index, interval_h, p0 + 0.0, q0, None, dq)
             reactive[j, o] = q_base_total - reactive_only["total"].to_numpy()
     is_reactive = np.isin(technologies[os_], REACTIVE_TECHNOLOGIES)
     if is_reactive.any():

@@ -322,16 +322,36 @@ def _induction_on_drive(arr, params, shaft_kw, speed_frac, running) -> _Point:
     return _Point(p, q, shaft_kw, speed, loss_motor, loss_drive, _zeros(p.shape))
 
 
+_POINT_ARRAYS = ("p_kw", "q_kvar", "shaft_kw", "speed_rpm", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw")
+
+
+def _line_or_drive(arr, params, load: _Load, shaft_kw: np.ndarray) -> _Point:
+    """An induction motor on the line, or on the drive already fitted where there is one.
+
+    Each model runs on its own assets only (the machine models are element-wise per asset).
+    """
+    held = arr["has_drive"]
+    if not held.any():
+        return _induction_on_line(params, shaft_kw, load.running)
+    if held.all():
+        _, speed_frac = _speed_controlled(arr, load)
+        return _induction_on_drive(arr, params, shaft_kw, speed_frac, load.running)
+    on, off = np.flatnonzero(held), np.flatnonzero(~held)
+    load_on = load.rows(on)
+    _, speed_frac = _speed_controlled(_take(arr, on), load_on)
+    fed = _induction_on_drive(_take(arr, on), _take_params(params, on), shaft_kw[on], speed_frac, load_on.running)
+    line = _induction_on_line(_take_params(params, off), shaft_kw[off], load.running[off])
+    out = _Point(*(np.empty(shaft_kw.shape) for _ in _POINT_ARRAYS))
+    for name in _POINT_ARRAYS:
+        target = getattr(out, name)
+        target[on] = getattr(fed, name)
+        target[off] = getattr(line, name)
+    return out
+
+
 def _today(arr, existing, load: _Load) -> _Point:
     """Today's motor, on the line or on its existing drive."""
-    line = _induction_on_line(existing, load.p_ref_kw, load.running)
-    if not arr["has_drive"].any():
-        return line
-    _, speed_frac = _speed_controlled(arr, load)
-    on_drive = _induction_on_drive(arr, existing, load.p_ref_kw, speed_frac, load.running)
-    held = arr["has_drive"][:, None]
-    return _Point(*(np.where(held, getattr(on_drive, f), getattr(line, f)) for f in
-                    ("p_kw", "q_kvar", "shaft_kw", "speed_rpm", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw")))
+    return _line_or_drive(arr, existing, load, load.p_ref_kw)
 
 
 def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
@@ -343,14 +363,7 @@ def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])
     shaft, _ = _coupled(arr, load, lambda p: induction.induction_speed_rpm(new, p), option["speed_remedy"])
-    if arr["has_drive"].any():
-        _, speed_frac = _speed_controlled(arr, load)
-        line = _induction_on_line(new, shaft, load.running)
-        fed = _induction_on_drive(arr, new, shaft, speed_frac, load.running)
-        held = arr["has_drive"][:, None]
-        return _Point(*(np.where(held, getattr(fed, f), getattr(line, f)) for f in
-                        ("p_kw", "q_kvar", "shaft_kw", "speed_rpm", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw")))
-    return _induction_on_line(new, shaft, load.running)
+    return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
 def _line_start_pm(arr, load: _Load, option: pd.Series) -> _Point:
@@ -626,13 +639,22 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         else:
             p_kw[o, idx] = ((pt.p_kw * w).sum(axis=1) / year_h)[:, None]
             q_kvar[o, idx] = ((pt.q_kvar * w).sum(axis=1) / year_h)[:, None]
-        energy[idx, o] = (pt.p_kw * w).sum(axis=1)
-        shaft_energy[idx, o] = (pt.shaft_kw * w).sum(axis=1)
-        losses[idx, o, 0] = (pt.loss_motor_kw * w).sum(axis=1)
-        losses[idx, o, 1] = (pt.loss_drive_kw * w).sum(axis=1)
-        losses[idx, o, 2] = (pt.loss_excitation_kw * w).sum(axis=1)
-        lag[idx, o] = (np.maximum(pt.q_kvar, 0.0) * w).sum(axis=1)
-        lead[idx, o] = (np.maximum(-pt.q_kvar, 0.0) * w).sum(axis=1)
+        if kind == "interval":  # every interval weighs interval_h: sum, then scale
+            energy[idx, o] = pt.p_kw.sum(axis=1) * interval_h
+            shaft_energy[idx, o] = pt.shaft_kw.sum(axis=1) * interval_h
+            losses[idx, o, 0] = pt.loss_motor_kw.sum(axis=1) * interval_h
+            losses[idx, o, 1] = pt.loss_drive_kw.sum(axis=1) * interval_h
+            losses[idx, o, 2] = pt.loss_excitation_kw.sum(axis=1) * interval_h
+            lag[idx, o] = np.maximum(pt.q_kvar, 0.0).sum(axis=1) * interval_h
+            lead[idx, o] = np.maximum(-pt.q_kvar, 0.0).sum(axis=1) * interval_h
+        else:
+            energy[idx, o] = (pt.p_kw * w).sum(axis=1)
+            shaft_energy[idx, o] = (pt.shaft_kw * w).sum(axis=1)
+            losses[idx, o, 0] = (pt.loss_motor_kw * w).sum(axis=1)
+            losses[idx, o, 1] = (pt.loss_drive_kw * w).sum(axis=1)
+            losses[idx, o, 2] = (pt.loss_excitation_kw * w).sum(axis=1)
+            lag[idx, o] = (np.maximum(pt.q_kvar, 0.0) * w).sum(axis=1)
+            lead[idx, o] = (np.maximum(-pt.q_kvar, 0.0) * w).sum(axis=1)
         run_w = np.where(load.running, w, 0.0)
         speed[idx, o] = (pt.speed_rpm * run_w).sum(axis=1) / np.maximum(run_w.sum(axis=1), 1e-12)
         for i, text in pt.flags:
