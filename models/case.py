@@ -133,10 +133,12 @@ MAX_PLAUSIBLE_CURRENT_A = 6000.0
 
 
 def _blank(value: object) -> bool:
-    """True for an empty cell (None, NaN, NaT or blank text)."""
-    if value is None or value is pd.NaT:
+    """True for an empty cell (None, NaN, NaT, pandas NA or blank text)."""
+    if value is None or value is pd.NaT or value is pd.NA:
         return True
-    if isinstance(value, float) and np.isnan(value):
+    if isinstance(value, (float, np.floating)) and np.isnan(value):
+        return True
+    if isinstance(value, np.datetime64) and np.isnat(value):
         return True
     return isinstance(value, str) and not value.strip()
 
@@ -445,9 +447,10 @@ def _listed(problems: list[Problem], items, make, summary) -> None:
 
 def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Return (codes, ids): an integer code per row (-1 when blank) and the ids in order of appearance."""
-    if column.dtype == object:
-        column = column.map(lambda v: None if _blank(v) else
-                            (str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()))
+    if not pd.api.types.is_string_dtype(column.dtype) or column.dtype == object:
+        # numbers (a Parquet id column of floats, a workbook cell) are ids as written: 7.0 is "7"
+        column = column.astype(object).map(lambda v: None if _blank(v) else
+                                           (str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()))
     codes, uniques = pd.factorize(column, use_na_sentinel=True)
     return np.asarray(codes), np.asarray(uniques, dtype=object)
 
@@ -455,7 +458,12 @@ def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarray, header: str,
                     problems: list[Problem]) -> np.ndarray:
     """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired."""
-    numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
+    if pd.api.types.is_bool_dtype(series.dtype) or series.dtype == object:
+        series = series.astype(object)
+        flags = series.map(lambda v: isinstance(v, (bool, np.bool_))).to_numpy(dtype=bool)
+        numeric = pd.to_numeric(series.where(~flags, "true/false"), errors="coerce").astype(float).to_numpy(copy=True)
+    else:
+        numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
     given = series.notna().to_numpy()
     bad = np.flatnonzero(np.isnan(numeric) & given)
     if len(bad):

@@ -14,6 +14,7 @@
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import io
 import random
 import tempfile
@@ -139,6 +140,40 @@ def test_random_file_contents_never_raise(name, content):
         (folder / name).write_bytes(content)
         result = load_case(folder)
         assert (folder / name).read_bytes() == content
+    _assert_well_formed(result)
+
+
+WORKBOOK_CELL = st.one_of(
+    CELL,
+    st.sampled_from([True, False, None, 0, -5, 10**20, 1.5e308, -0.0, 45659.5, 45659, 1e-300,
+                     dt.datetime(2025, 1, 2, 3), dt.date(2020, 5, 5), dt.time(3, 15), dt.timedelta(days=2),
+                     "=1+2", "=NOW()", "#N/A"]),
+    st.floats(allow_nan=False, allow_infinity=False),
+)
+
+
+@settings(deadline=None, max_examples=25, suppress_health_check=[HealthCheck.too_slow])
+@given(edits=st.lists(st.tuples(st.sampled_from(["assets", "sites", "profiles", "duty", "capacitors", "case"]),
+                                st.integers(min_value=1, max_value=8), st.integers(min_value=1, max_value=20),
+                                WORKBOOK_CELL), min_size=1, max_size=4))
+def test_random_workbook_cells_never_raise(edits):
+    from openpyxl import load_workbook
+    from openpyxl.utils.exceptions import IllegalCharacterError
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = cb.write_workbook(Path(tmp) / "case.xlsx")
+        book = load_workbook(path)
+        for sheet_name, row, column, value in edits:
+            sheet = book[sheet_name]
+            cell = sheet.cell(1 + (row - 1) % max(sheet.max_row, 1), 1 + (column - 1) % max(sheet.max_column, 1))
+            try:
+                cell.value = value
+            except (ValueError, TypeError, IllegalCharacterError):  # a value the file format cannot hold
+                continue
+        book.save(path)
+        before = path.read_bytes()
+        result = load_case(path)
+        assert path.read_bytes() == before
     _assert_well_formed(result)
 
 
