@@ -202,3 +202,24 @@ class TestEnvironment:
         assert digest == baseline[0], "load_case gave different tables"
         assert files == baseline[1], "drivecase run wrote different bytes"
         assert _digest(small_case) == before  # the case's own files are never written
+
+
+class TestReaderPaths:
+    """Large plain CSV files go through pandas' C reader, others line by line: both give the same case."""
+
+    @pytest.mark.parametrize("entry", [None, "semicolons_decimal_commas", "wrong_types", "non_finite_numbers",
+                                       "duplicate_timestamps", "dst_spring_gap", "mixed_offsets", "trailing_empty_columns",
+                                       "stray_extra_cell", "header_case_and_spaces"])
+    def test_fast_and_line_by_line_readers_agree(self, entry, tmp_path, monkeypatch):
+        from models import io as case_io
+        from test_malformed import _build
+
+        folder = _small_case(tmp_path / "c") if entry is None else _build(entry, tmp_path)
+        monkeypatch.setattr(case_io, "FAST_CSV_BYTES", 10**12)
+        slow_case, slow_problems = load_case(folder)
+        monkeypatch.setattr(case_io, "FAST_CSV_BYTES", 0)
+        fast_case, fast_problems = load_case(folder)
+        assert [str(p) for p in fast_problems] == [str(p) for p in slow_problems]
+        assert (fast_case is None) == (slow_case is None)
+        if slow_case is not None:
+            _assert_same_case(fast_case, slow_case)
