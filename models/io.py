@@ -11,7 +11,6 @@ in a problem list, never an exception. Typing, ranges and cross-checks happen in
 from __future__ import annotations
 
 import csv
-import datetime as _dt
 import difflib
 import io
 import re
