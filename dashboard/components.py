@@ -114,15 +114,19 @@ def budget_inputs(prefix: str, years: int) -> html.Div:
     """Capital budget inputs for plan years 0..years-1 (ids from :func:`budget_ids`)."""
     return html.Div([
         html.Div([html.Label(f"Year {k}", htmlFor=component_id),
-                  dcc.Input(id=component_id, type="number", min=0, step="any", debounce=True,
+                  dcc.Input(id=component_id, type="text", inputMode="decimal", debounce=True,
                             placeholder="no limit" if k == 0 else "", className="budget-input")],
                  className="budget-year")
         for k, component_id in enumerate(budget_ids(prefix, years))], className="budget-row")
 
 
 def budget_values(budget: list, years: int) -> list:
-    """Values of the budget inputs (plan years 0..years-1) for a budget list; None = blank."""
-    return [float(budget[k]) if k < len(budget) else None for k in range(years)]
+    """Texts of the budget inputs (plan years 0..years-1) for a budget list; None = blank.
+
+    The inputs are text fields: Dash 4's number input does not report a field emptied after a
+    callback filled it, and an emptied year must be able to end the budget.
+    """
+    return [f"{float(budget[k]):.12g}" if k < len(budget) else None for k in range(years)]
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -344,8 +344,8 @@ def plan_by_year(by_year: pd.DataFrame, currency: str) -> go.Figure:
                              hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra>" + name + "</extra>"))
     budget = by_year[by_year["plan"] == "exact"]
     if budget["budget"].notna().any():
-        fig.add_trace(go.Scatter(x=[f"Year {y}" for y in budget["start_yr"]], y=budget["budget"], mode="markers+lines",
-                                 name="budget", line=dict(color=BUDGET, width=2, dash="dash"),
+        fig.add_trace(go.Scatter(x=[f"Year {y}" for y in budget["start_yr"]], y=budget["budget"], mode="markers",
+                                 name="budget",
                                  marker=dict(symbol="line-ew-open", size=28, color=BUDGET, line=dict(width=3)),
                                  hovertemplate="%{x} budget: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_layout(barmode="group")

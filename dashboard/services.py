@@ -45,8 +45,10 @@ from models.operation import performance_curves
 from models.problems import Problem, error, has_errors
 from models.profiles import asset_loads
 
+#: One megabyte as the dashboard counts it (2**20 bytes) [bytes].
+MB = 1024 * 1024
 #: Largest upload accepted, all files of one upload together [bytes].
-MAX_UPLOAD_BYTES = 50 * 1024 * 1024
+MAX_UPLOAD_BYTES = 50 * MB
 #: Most files in one upload.
 MAX_UPLOAD_FILES = 24
 #: File name endings accepted in an upload.
@@ -63,6 +65,7 @@ BUDGET_YEARS = 6
 ROOT_TOML = ("case.toml", "finance.toml")
 
 _SESSION_ID = re.compile(r"^[0-9a-f]{32}$")
+_GROUPED = re.compile(r"^\d{1,3}(,\d{3})+(\.\d+)?$")
 _SAFE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ._()+-]{0,119}$")
 
 
@@ -424,9 +427,9 @@ class Engine:
             return refuse(f"Too many files ({len(names)}); at most {MAX_UPLOAD_FILES} per upload.", [])
         total = sum(encoded_size_bytes(c) for c in contents)
         if total > MAX_UPLOAD_BYTES:
-            return refuse(f"The upload is {total / 1e6:.1f} MB, above the {MAX_UPLOAD_BYTES / 1e6:.0f} MB limit; "
-                          "nothing was read.", [error("(upload)", None, None, f"{total / 1e6:.1f} MB",
-                                                       f"uploads are limited to {MAX_UPLOAD_BYTES / 1e6:.0f} MB",
+            return refuse(f"The upload is {total / MB:.1f} MB, above the {MAX_UPLOAD_BYTES / MB:.0f} MB limit; "
+                          "nothing was read.", [error("(upload)", None, None, f"{total / MB:.1f} MB",
+                                                       f"uploads are limited to {MAX_UPLOAD_BYTES / MB:.0f} MB",
                                                        "split the case, or save profiles as Parquet")])
         problems: list[Problem] = []
         placed: dict[str, bytes] = {}
@@ -643,10 +646,13 @@ def parse_budget(values: list) -> tuple[list[float] | None, str]:
         if v is None or (isinstance(v, str) and not v.strip()):
             cleaned.append(None)
             continue
+        text = str(v).strip().replace(" ", "").replace("_", "").replace("\u00a0", "").replace("'", "")
+        if _GROUPED.match(text):
+            text = text.replace(",", "")
         try:
-            number = float(v)
+            number = float(text)
         except (TypeError, ValueError):
-            return None, f"Year {k}: '{v}' is not a number."
+            return None, f"Year {k}: '{v}' is not a number (write it like 250000 or 250,000)."
         if not np.isfinite(number) or number < 0:
             return None, f"Year {k}: the budget must be zero or more."
         cleaned.append(number)

@@ -30,7 +30,7 @@ HEADLINE = "inputs"
 
 
 def layout(**_query):
-    limit_mb = services.MAX_UPLOAD_BYTES / 1e6
+    limit_mb = services.MAX_UPLOAD_BYTES / services.MB
     return html.Div([
         dcc.Store(id=READY, data=True),
         ui.page_header("Case and assumptions", "Load your own case, check it row by row, and change the finance "
@@ -70,7 +70,9 @@ def layout(**_query):
             ], className="panel half form"),
         ], className="row"),
         html.H3("Validation messages"),
-        ui.data_grid(PROBLEMS, height=320, columnDefs=ui.problem_columns()),
+        ui.data_grid(PROBLEMS, height=320, columnDefs=ui.problem_columns(),
+                     rowClassRules={"problem-error": "params.data.severity == 'error'",
+                                    "problem-warning": "params.data.severity == 'warning'"}),
     ])
 
 

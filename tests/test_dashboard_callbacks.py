@@ -1,0 +1,111 @@
+"""Page callbacks called directly: thin wrappers that parse input, call services and return figures and rows."""
+
+from __future__ import annotations
+
+import plotly.graph_objects as go
+import pytest
+from dash import no_update
+
+from dashboard import app as shell
+from dashboard import services
+from dashboard.pages import asset, fleet, inputs, plan, risk, site
+from test_dashboard_services import SMALL_IDS, csv_bytes, data_url, demo_rows, write_small_case
+
+
+@pytest.fixture(scope="module")
+def small_engine(tmp_path_factory):
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "small"))
+    assert entry is not None, problems
+    return eng
+
+
+@pytest.fixture(autouse=True)
+def engine(small_engine, monkeypatch):
+    monkeypatch.setattr(services, "_ENGINE", small_engine)
+    return small_engine
+
+
+def test_every_page_renders_on_the_case(engine):
+    outputs = [fleet.update(None, None, None, None), asset.update("HRW-V01", None, None), site.update("KGQ", None, None, None),
+               plan.update(True, None, None), risk.update(True, None, None), inputs.preview(True, None, None)]
+    figures = [x for out in outputs for x in out if isinstance(x, go.Figure)]
+    assert len(figures) == 1 + 4 + 4 + 2 + 2
+    assert all(f.data for f in figures)
+
+
+def test_fleet_filters_and_navigation(engine):
+    out = fleet.update(None, None, ["HRW"], None)
+    rows, count = out[4], out[6]
+    assert {r["site_id"] for r in rows} == {"HRW"} and count.endswith(f"of {len(SMALL_IDS)} assets")
+    assert fleet.open_asset({"rowId": "HRW-P01", "colId": "npv"}) == "/asset?id=HRW-P01"
+    assert fleet.open_asset({"rowId": "A B/1"}) == "/asset?id=A%20B%2F1"
+    assert fleet.open_asset(None) is no_update
+
+
+def test_fleet_headline_follows_the_discount_rate(engine):
+    at_8 = fleet.update(None, None, None, None)[2]
+    at_3 = fleet.update(None, {"case": engine.default_key, "discount_rate_pct": 3.0}, None, None)[2]
+    assert at_8 != at_3
+
+
+def test_asset_choice(engine):
+    options, value = asset.choose("KGQ-F01", None)
+    assert value == "KGQ-F01" and len(options) == len(SMALL_IDS)
+    assert asset.choose("NO-SUCH", None)[1] == options[0]["value"]
+    out = asset.update("NO-SUCH", None, None)
+    assert "Choose" in out[3].layout.annotations[0].text
+
+
+def test_upload_bad_keeps_case_and_lists_rows(engine):
+    header, rows = demo_rows()
+    rows[0][header.index("rated_p_kw")] = "-3"
+    before = {"session": None, "case": None}
+    session, message, problems, contents = inputs.upload([data_url(csv_bytes(header, rows))], ["assets.csv"], ["keep"], before)
+    assert session["case"] is None and "previous case stays loaded" in message
+    assert any(p["row"] == 2 and p["column"] == "rated_p_kw" for p in problems)
+    assert contents is None  # cleared, so the same file can be uploaded again
+
+
+def test_upload_good_switches_the_tab(engine):
+    header, rows = demo_rows()
+    session, message, problems, _ = inputs.upload([data_url(csv_bytes(header, rows[:3]))], ["assets.csv"], ["keep"], None)
+    assert session["case"] and session["case"] != engine.default_key and message.startswith("Loaded")
+    assert len(services.view(session, None).case.assets) == 3
+
+
+def test_assumption_form_and_edits(engine):
+    values = inputs.fill(True, None, None)
+    assert values[:3] == (8.0, 1.0, 15)  # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr
+    assert list(values[3:]) == ["250000", "250000", "150000", None, None, None]
+    stored, message = inputs.edit(6.0, 1.0, 15, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    assert stored["discount_rate_pct"] == 6.0 and message == ""
+    unchanged, _ = inputs.edit(8.0, 1.0, 15, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    assert unchanged is no_update  # the form only repeats the assumptions in force
+    refused, message = inputs.edit(8.0, 1.0, 0, None, None, None, None, None, None, None, None)
+    assert refused is no_update and "horizon" in message.lower()
+    assert inputs.reset(1, None) == values
+
+
+def test_plan_budget_edit(engine):
+    stored, message = plan.edit(100.0, None, 5.0, None, None, None, None, None)
+    assert stored is no_update and "Year 1 is blank" in message
+    stored, message = plan.edit(-1.0, None, None, None, None, None, None, None)
+    assert stored is no_update and "zero or more" in message
+    stored, message = plan.edit(30000.0, 10000.0, None, None, None, None, None, None)
+    assert stored["budget_per_yr"] == [30000.0, 10000.0] and message == ""
+    assert plan.fill(True, None, stored)[:3] == ["30000", "10000", None]
+    stored, _ = plan.edit("30,000", " 10 000 ", "", None, None, None, None, None)  # as typed in the text fields
+    assert stored["budget_per_yr"] == [30000.0, 10000.0]
+
+
+def test_template_download(engine):
+    sent = inputs.template(1)
+    assert sent["filename"] == "drivecase-blank-case.xlsx" and sent["base64"]
+
+
+def test_shell(engine):
+    label = shell.show_case(None, None)
+    assert "discount 8 %" in label[2].children
+    classes = shell.highlight_navigation("/plan", [{"path": "/"}, {"path": "/plan"}])
+    assert classes == ["nav-link", "nav-link active"]

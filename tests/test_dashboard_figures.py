@@ -1,0 +1,201 @@
+"""Figure builders: hand-made tables in, the expected traces, values and axis titles (with units) out.
+
+Inputs are written out here, so every expected number is either an input or a unit conversion by
+definition (1 MWh = 1000 kWh, 1 % = 0.01).
+"""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+import pytest
+
+from dashboard import figures
+
+FIGURES_SOURCE = Path(figures.__file__)
+
+
+def titles(fig: go.Figure) -> dict[str, str]:
+    """Axis name -> title text of every axis of a figure."""
+    layout = fig.to_plotly_json()["layout"]
+    return {k: (v.get("title") or {}).get("text", "") for k, v in layout.items()
+            if k.startswith(("xaxis", "yaxis")) and isinstance(v, dict)}
+
+
+def test_figures_module_never_fetches_data():
+    """figures.py imports plotly, numpy and pandas only: no engine, no services, no files."""
+    tree = ast.parse(FIGURES_SOURCE.read_text(encoding="utf-8"))
+    imported = {(n.module or "") if isinstance(n, ast.ImportFrom) else a.name
+                for n in ast.walk(tree) if isinstance(n, (ast.Import, ast.ImportFrom))
+                for a in (n.names if isinstance(n, ast.Import) else [n])}
+    roots = {name.split(".")[0] for name in imported}
+    assert roots <= {"__future__", "numpy", "pandas", "plotly"}
+
+
+class TestAbatement:
+    frame = pd.DataFrame({"project_id": ["A/x", "B/y", "C/z"], "asset_id": ["A", "B", "C"],
+                          "abatement_cost_per_t": [-120.0, -10.0, 45.0], "co2_avoided_t_per_yr": [2.0, 5.0, 1.0],
+                          "bar_start_t_per_yr": [0.0, 2.0, 7.0]})
+
+    def test_widths_are_tonnes_and_heights_cost_per_tonne(self):
+        fig = figures.abatement_curve(self.frame, "EUR")
+        bar = fig.data[0]
+        assert bar.type == "bar"
+        np.testing.assert_allclose(bar.width, [2.0, 5.0, 1.0])      # the tonnes per year given
+        np.testing.assert_allclose(bar.x, [1.0, 4.5, 7.5])          # bar start + half its width
+        np.testing.assert_allclose(bar.y, [-120.0, -10.0, 45.0])
+        assert list(bar.marker.color) == [figures.GAIN, figures.GAIN, figures.COST]
+
+    def test_axis_titles_carry_units(self):
+        t = titles(figures.abatement_curve(self.frame, "USD"))
+        assert t["xaxis"] == "CO2 avoided, cumulative [t/yr]" and t["yaxis"] == "Cost of abatement [USD/t CO2]"
+
+    def test_empty_says_so(self):
+        fig = figures.abatement_curve(self.frame.iloc[0:0], "EUR")
+        assert not fig.data and "No option" in fig.layout.annotations[0].text
+
+
+class TestAsset:
+    def test_lcc_stack(self):
+        lcc = pd.DataFrame({"label": ["Keep"] * 4 + ["New"] * 4,
+                            "component": ["capital", "residual", "running", "maintenance"] * 2,
+                            "pv": [0.0, 0.0, 900.0, 50.0, 300.0, -40.0, 700.0, 40.0]})
+        fig = figures.lcc_stack(lcc, "EUR")
+        assert [t.name for t in fig.data] == ["capital", "residual", "running", "maintenance"]
+        assert fig.layout.barmode == "relative"  # the residual credit stacks below zero
+        np.testing.assert_allclose(fig.data[1].y, [0.0, -40.0])
+        assert titles(fig)["yaxis"] == "Present value [EUR]"
+
+    def test_cumulative_cash_marks_payback(self):
+        curves = pd.DataFrame({"label": ["New"] * 3 + ["Drive"] * 3, "year": [0, 1, 2] * 2,
+                               "cumulative_pv": [-100.0, -20.0, 60.0, -50.0, -60.0, -70.0],
+                               "payback_yr": [1.25] * 3 + [np.nan] * 3})
+        fig = figures.cumulative_cash(curves, "GBP")
+        lines = [t for t in fig.data if t.mode == "lines"]
+        assert [t.name for t in lines] == ["New", "Drive"]
+        marks = [t for t in fig.data if t.mode == "markers"]
+        assert len(marks) == 1 and list(marks[0].x) == [1.25] and list(marks[0].y) == [0.0]  # only the option that pays back
+        t = titles(fig)
+        assert t["xaxis"] == "Year [yr]" and t["yaxis"] == "Cumulative discounted cash flow [GBP]"
+
+    def test_performance_three_panels_with_units(self):
+        load = np.array([25.0, 50.0, 100.0])
+        curves = pd.concat([pd.DataFrame({"label": name, "load_pct": load, "efficiency_frac": eff, "power_factor": pf})
+                            for name, eff, pf in (("Keep", [0.8, 0.88, 0.9], [0.5, 0.7, 0.85]),
+                                                  ("PM", [0.9, 0.94, 0.95], [0.9, 0.95, 0.96]))])
+        hours = pd.DataFrame({"load_from_pct": [40.0, 50.0], "load_to_pct": [50.0, 60.0], "hours_per_yr": [1000.0, 3000.0]})
+        fig = figures.performance(curves, hours, "shaft load (interval profile)")
+        assert len(fig.data) == 2 * 2 + 1
+        np.testing.assert_allclose(fig.data[0].y, [80.0, 88.0, 90.0])  # fraction shown in percent
+        bar = fig.data[-1]
+        np.testing.assert_allclose(bar.x, [45.0, 55.0])
+        np.testing.assert_allclose(bar.y, [1000.0, 3000.0])
+        t = titles(fig)
+        assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"] == "Power factor [-]" and t["yaxis3"] == "Hours [h/yr]"
+        assert t["xaxis3"] == "Shaft load [% of rating]"
+
+    def test_speed_energy_by_remedy(self):
+        options = pd.DataFrame({"label": ["Keep", "LSPM", "LSPM + trim", "Drive"],
+                                "speed_remedy": ["none", "none", "trim_or_pulley", "speed_control"],
+                                "mean_speed_rpm": [1470.0, 1500.0, 1470.0, 1300.0],
+                                "energy_kwh_per_yr": [100000.0, 104000.0, 95000.0, 70000.0]})
+        fig = figures.speed_energy(options)
+        energy = [t for t in fig.data if t.yaxis == "y2"]
+        got = {x: y for t in energy for x, y in zip(t.x, t.y)}
+        assert got == pytest.approx({"Keep": 100.0, "LSPM": 104.0, "LSPM + trim": 95.0, "Drive": 70.0})  # MWh/yr
+        assert {t.name for t in fig.data if t.showlegend is not False} == {
+            "no speed remedy", "impeller trim or pulley", "speed held by a drive"}
+        t = titles(fig)
+        assert t["yaxis"] == "Mean speed [rpm]" and t["yaxis2"] == "Energy [MWh/yr]"
+
+
+class TestSite:
+    index = pd.date_range("2025-03-03", periods=4, freq="h", tz="Europe/Berlin")
+    before = pd.DataFrame({"p_kw": [100.0, 120.0, 90.0, 80.0], "q_kvar": [60.0, 70.0, 50.0, 40.0],
+                           "power_factor": [0.86, 0.86, 0.87, 0.89]}, index=index)
+    after = pd.DataFrame({"p_kw": [90.0, 100.0, 80.0, 70.0], "q_kvar": [10.0, -5.0, 0.0, 5.0],
+                          "power_factor": [0.99, 0.998, 1.0, 0.997]}, index=index)
+
+    def test_meter_week(self):
+        fig = figures.meter_week({"before": self.before, "after": self.after})
+        assert len(fig.data) == 6
+        assert [t.name for t in fig.data if t.showlegend] == ["today", "with the plan"]
+        np.testing.assert_allclose(fig.data[4].y, [10.0, -5.0, 0.0, 5.0])  # leading kVAr stays negative
+        # local wall-clock time on the axis: 00:00 in Berlin, not 23:00 UTC the day before
+        assert pd.Timestamp(fig.data[0].x[0]) == pd.Timestamp("2025-03-03 00:00")
+        t = titles(fig)
+        assert t["yaxis"] == "Active [kW]" and t["yaxis2"] == "Reactive [kVAr]" and t["yaxis3"] == "Power factor [-]"
+
+    def test_pf_duration(self):
+        curve = pd.DataFrame({"scenario": ["before"] * 2 + ["after"] * 2, "hours": [1.0, 2.0] * 2,
+                              "power_factor": [0.8, 0.9, 0.95, 0.99]})
+        fig = figures.pf_duration(curve)
+        assert [t.name for t in fig.data] == ["today", "with the plan"]
+        assert titles(fig) == {"xaxis": "Hours of the year at or below [h]", "yaxis": "Power factor [-]"}
+
+    def test_monthly_bills_side_by_side_and_stacked(self):
+        bills = pd.DataFrame({"month": ["2025-01", "2025-01", "2025-01", "2025-01"],
+                              "category": ["energy", "demand", "energy", "demand"],
+                              "amount": [1000.0, 300.0, 800.0, 250.0], "scenario": ["before", "before", "after", "after"]})
+        fig = figures.monthly_bills(bills, "EUR")
+        assert [t.name for t in fig.data] == ["energy", "demand"]
+        assert fig.layout.barmode == "relative"
+        energy = fig.data[0]
+        assert [list(energy.x[0]), list(energy.x[1])] == [["2025-01", "2025-01"], ["today", "plan"]]
+        np.testing.assert_allclose(energy.y, [1000.0, 800.0])
+        assert titles(fig)["yaxis"] == "Bill [EUR/month]"
+
+    def test_reactive_balance(self):
+        balance = pd.DataFrame({"scenario": ["before", "before", "after", "after"],
+                                "source": ["Capacitor banks", "Net at the meter"] * 2, "q_kvar": [-150.0, 400.0, -150.0, -20.0]})
+        fig = figures.reactive_balance(balance)
+        np.testing.assert_allclose(fig.data[1].y, [-150.0, -20.0])
+        assert titles(fig)["yaxis"] == "Mean reactive power [kVAr]" and "leading" in fig.layout.title.text
+
+
+class TestPlanAndRisk:
+    by_year = pd.DataFrame({"plan": ["exact", "exact", "rank_order", "rank_order"], "start_yr": [0, 1, 0, 1],
+                            "capital": [90.0, 40.0, 80.0, 45.0], "budget": [100.0, 50.0, 100.0, 50.0]})
+
+    def test_plan_by_year_with_budget(self):
+        fig = figures.plan_by_year(self.by_year, "EUR")
+        assert [t.name for t in fig.data] == ["exact plan", "rank by profitability index", "budget"]
+        np.testing.assert_allclose(fig.data[2].y, [100.0, 50.0])
+        assert titles(fig) == {"xaxis": "Plan year", "yaxis": "Capital [EUR]"}
+
+    def test_plan_by_year_without_budget_draws_no_budget_line(self):
+        fig = figures.plan_by_year(self.by_year.assign(budget=np.nan), "EUR")
+        assert "budget" not in [t.name for t in fig.data]
+
+    def test_plan_comparison(self):
+        fig = figures.plan_comparison(pd.Series({"npv_exact": 1000.0, "npv_greedy": 950.0, "projects_exact": 3.0,
+                                                 "projects_greedy": 4.0}), "EUR")
+        np.testing.assert_allclose(fig.data[0].y, [1000.0, 950.0])
+        assert "4 projects" in fig.data[0].text[1] and titles(fig)["yaxis"] == "NPV at plan start [EUR]"
+
+    def test_tornado_bars_start_at_the_base(self):
+        rows = pd.DataFrame({"label": ["Capital", "Energy price"], "npv_at_low": [110.0, 60.0],
+                             "npv_at_high": [90.0, 140.0], "base_npv": [100.0, 100.0], "swing": [20.0, 80.0]})
+        fig = figures.tornado(rows, "EUR")
+        low, high = fig.data
+        np.testing.assert_allclose(low.base, [100.0, 100.0])
+        np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
+        np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
+        assert titles(fig)["xaxis"] == "Fleet NPV of the best options [EUR]"
+
+    def test_risk_ranges_top_n(self):
+        rows = pd.DataFrame({"project_id": [f"A{i}/x" for i in range(30)],
+                             "npv_p10": np.arange(30.0), "npv_p50": np.arange(30.0) + 5, "npv_p90": np.arange(30.0) + 9})
+        fig = figures.risk_ranges(rows, "EUR", top=10)
+        bar, p50 = fig.data
+        assert len(bar.y) == 10
+        np.testing.assert_allclose(bar.x, [9.0] * 10)   # P90 - P10 of the inputs
+        assert titles(fig)["xaxis"] == "NPV [EUR]"
+
+    @pytest.mark.parametrize("builder", [figures.tornado, figures.risk_ranges])
+    def test_empty(self, builder):
+        assert not builder(pd.DataFrame(), "EUR").data

@@ -1,0 +1,465 @@
+"""Dashboard services: physics cached per case, economics per assumptions, checked uploads, session isolation.
+
+These tests run the real engine on a small slice of the invented demo case (seven of its motors, its two
+sites, tariffs and profiles), which takes about a second, so the caching can be checked by counting calls.
+"""
+
+from __future__ import annotations
+
+import base64
+import csv
+import io
+import shutil
+from pathlib import Path
+
+import pytest
+
+from dashboard import server, services
+from models import scenario
+
+REPO = Path(__file__).resolve().parents[1]
+DEMO = REPO / "data" / "demo"
+#: Motors of the demo kept in the small case: a throttled pump with a profile, a mixer on annual hours,
+#: a sludge pump on a duty table, a crusher that can take a wound-field machine, a fan, a small fan
+#: where the line-start PM options apply, and a booster pump.
+SMALL_IDS = ("HRW-P01", "HRW-M01", "HRW-S01", "KGQ-CR01", "KGQ-F01", "HRW-V01", "KGQ-WP01")
+
+
+def demo_rows(ids=SMALL_IDS) -> tuple[list[str], list[list[str]]]:
+    """Header and the chosen rows of the demo's assets.csv."""
+    with open(DEMO / "assets.csv", newline="", encoding="utf-8") as handle:
+        rows = list(csv.reader(handle))
+    return rows[0], [r for r in rows[1:] if r[0] in ids]
+
+
+def csv_bytes(header: list[str], rows: list[list[str]]) -> bytes:
+    out = io.StringIO()
+    csv.writer(out, lineterminator="\n").writerows([header] + rows)
+    return out.getvalue().encode("utf-8")
+
+
+def write_small_case(folder: Path, ids=SMALL_IDS) -> Path:
+    """A copy of the demo case with only ``ids`` in its asset register."""
+    shutil.copytree(DEMO, folder)
+    header, rows = demo_rows(ids)
+    (folder / "assets.csv").write_bytes(csv_bytes(header, rows))
+    return folder
+
+
+def data_url(data: bytes, mime: str = "text/csv") -> str:
+    return f"data:{mime};base64," + base64.b64encode(data).decode("ascii")
+
+
+class Counting:
+    """Wraps an engine stage and counts its calls."""
+
+    def __init__(self, fn):
+        self.fn, self.calls = fn, 0
+
+    def __call__(self, *args, **kwargs):
+        self.calls += 1
+        return self.fn(*args, **kwargs)
+
+
+@pytest.fixture(scope="module")
+def small_case_dir(tmp_path_factory) -> Path:
+    return write_small_case(tmp_path_factory.mktemp("cases") / "small")
+
+
+@pytest.fixture(scope="module")
+def shared_engine(small_case_dir, tmp_path_factory):
+    """One engine with the small case as default, physics computed once for the module."""
+    physics, economics = Counting(scenario.physics), Counting(scenario.economics)
+    engine = services.Engine(physics_fn=physics, economics_fn=economics,
+                             upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = engine.set_default_case(small_case_dir)
+    assert entry is not None, problems
+    engine.physics(entry.key)
+    return engine, physics, economics
+
+
+@pytest.fixture
+def engine(shared_engine, monkeypatch):
+    """The shared engine installed as the process engine for one test (restored afterwards)."""
+    eng = shared_engine[0]
+    monkeypatch.setattr(services, "_ENGINE", eng)
+    return eng
+
+
+# ---------------------------------------------------------------------------------------------------
+# Caching
+# ---------------------------------------------------------------------------------------------------
+class TestCaching:
+    def test_physics_runs_once_per_case(self, shared_engine):
+        engine, physics, _ = shared_engine
+        before = physics.calls
+        first = engine.physics(engine.default_key)
+        second = engine.physics(engine.default_key)
+        assert first is second
+        assert physics.calls == before  # computed in the fixture, never again
+
+    def test_economics_cached_per_assumptions_and_physics_not_rerun(self, shared_engine):
+        from dataclasses import replace
+
+        engine, physics, economics = shared_engine
+        base = engine.default_entry().case.finance
+        n_phys, n_econ = physics.calls, economics.calls
+        a = replace(base, discount_rate_frac=0.061)
+        r1 = engine.result(engine.default_key, a)
+        r2 = engine.result(engine.default_key, replace(base, discount_rate_frac=0.061))  # equal, new object
+        assert r1 is r2
+        assert economics.calls == n_econ + 1
+        engine.result(engine.default_key, replace(base, discount_rate_frac=0.062))
+        assert economics.calls == n_econ + 2
+        assert physics.calls == n_phys
+
+    def test_run_with_risk_serves_the_plain_ask(self, shared_engine):
+        from dataclasses import replace
+
+        engine, _, economics = shared_engine
+        a = replace(engine.default_entry().case.finance, discount_rate_frac=0.071)
+        n = economics.calls
+        rich = engine.result(engine.default_key, a, with_risk=True)
+        assert engine.result(engine.default_key, a) is rich
+        assert economics.calls == n + 1
+        assert not rich.tornado.empty
+
+    def test_assumption_edits_skip_risk(self, engine):
+        v = services.view(None, {"case": engine.default_key, "discount_rate_pct": 5.5})
+        result = v.result()
+        assert result.tornado.empty and result.risk.empty  # risk is left to the risk page
+
+    def test_unknown_key_raises(self, shared_engine):
+        with pytest.raises(KeyError):
+            shared_engine[0].physics("0" * 32)
+
+
+class TestContentKey:
+    def test_same_files_same_key_and_one_byte_changes_it(self, tmp_path, small_case_dir):
+        copy = tmp_path / "copy"
+        shutil.copytree(small_case_dir, copy)
+        assert services.content_key(copy) == services.content_key(small_case_dir)
+        (copy / "assets.csv").write_bytes((copy / "assets.csv").read_bytes().replace(b"Raw water", b"Raw Water"))
+        assert services.content_key(copy) != services.content_key(small_case_dir)
+
+    def test_stray_files_do_not_count(self, tmp_path, small_case_dir):
+        copy = tmp_path / "copy"
+        shutil.copytree(small_case_dir, copy)
+        (copy / "notes.txt").write_text("not part of the case")
+        assert services.content_key(copy) == services.content_key(small_case_dir)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Uploads
+# ---------------------------------------------------------------------------------------------------
+class TestFileNames:
+    @pytest.mark.parametrize("name, safe", [
+        ("assets.csv", "assets.csv"),
+        ("../../etc/assets.csv", "assets.csv"),          # path components dropped
+        ("C:\\Users\\me\\sites.csv", "sites.csv"),
+        ("Case Book (2).xlsx", "Case Book (2).xlsx"),
+        ("profiles.parquet", "profiles.parquet"),
+    ])
+    def test_accepted_names_lose_their_path(self, name, safe):
+        assert services.check_file_name(name) == (safe, None)
+
+    @pytest.mark.parametrize("name", [".hidden.csv", "run.exe", "assets.csv.exe", "model.pkl", "x" * 200 + ".csv",
+                                      "", "..", "a;b.csv", "semi\x00.csv"])
+    def test_refused_names(self, name):
+        safe, problem = services.check_file_name(name)
+        assert safe is None and problem is not None and problem.severity == "error"
+
+    @pytest.mark.parametrize("name, where", [
+        ("Assets.CSV", "assets.csv"), ("case.toml", "case.toml"), ("finance.toml", "finance.toml"),
+        ("my_tariff.toml", "tariffs/my_tariff.toml"), ("profiles.parquet", "profiles.parquet"), ("book.xlsx", "book.xlsx"),
+    ])
+    def test_placement(self, name, where):
+        assert services.place_in_case(name) == (where, None)
+
+    def test_unknown_table_name_is_a_problem(self):
+        where, problem = services.place_in_case("motors.csv")
+        assert where is None and "assets.csv" in problem.hint
+
+
+class TestUpload:
+    def test_bad_upload_lists_problems_by_row_and_keeps_the_previous_case(self, engine):
+        header, rows = demo_rows()
+        rows[1][header.index("rated_p_kw")] = "-11"  # second data row = spreadsheet row 3
+        n_cases = len(engine._cases)
+        outcome = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows))])
+        assert not outcome.ok and outcome.key is None
+        hit = [p for p in outcome.problems if p["column"] == "rated_p_kw"]
+        assert hit and hit[0]["file"] == "assets.csv" and hit[0]["row"] == 3 and hit[0]["value"] == "-11"
+        assert set(services.PROBLEM_COLUMNS) <= set(hit[0])
+        assert len(engine._cases) == n_cases
+        # the session still sees the case it had
+        assert services.view({"session": outcome.session, "case": None}, None).key == engine.default_key
+
+    def test_bad_upload_leaves_no_folder_behind(self, engine):
+        header, rows = demo_rows()
+        rows[0][header.index("poles")] = "five"
+        outcome = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows))])
+        assert not outcome.ok
+        folder = engine.upload_root() / f"session-{outcome.session}"
+        assert not any(folder.glob("upload-*"))
+
+    def test_good_upload_becomes_the_sessions_case_and_only_that_sessions(self, engine):
+        header, rows = demo_rows(SMALL_IDS[:4])
+        outcome = engine.accept_upload(None, engine.default_key, ["assets.csv"], [data_url(csv_bytes(header, rows))])
+        assert outcome.ok, outcome.problems
+        assert outcome.key != engine.default_key
+        mine = services.view({"session": outcome.session, "case": outcome.key}, None)
+        other = services.view({"session": "f" * 32, "case": None}, None)
+        assert sorted(mine.case.assets["asset_id"]) == sorted(SMALL_IDS[:4])
+        assert sorted(other.case.assets["asset_id"]) == sorted(SMALL_IDS)
+        # the upload's files sit in that session's own folder under the process's upload root
+        root = engine.upload_root().resolve()
+        assert mine.entry.files.resolve().is_relative_to(root / f"session-{outcome.session}")
+
+    def test_two_sessions_with_different_uploads_see_their_own(self, engine):
+        header, rows = demo_rows()
+        a = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows[:2]))])
+        b = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows[2:5]))])
+        assert a.ok and b.ok and a.session != b.session and a.key != b.key
+        va = services.view({"session": a.session, "case": a.key}, None)
+        vb = services.view({"session": b.session, "case": b.key}, None)
+        assert len(va.case.assets) == 2 and len(vb.case.assets) == 3
+        # edits made for one case never leak into another
+        edits = {"case": a.key, "discount_rate_pct": 3.0}
+        assert services.view({"case": a.key}, edits).assumptions.discount_rate_frac == pytest.approx(0.03)
+        assert services.view({"case": b.key}, edits).assumptions == vb.case.finance
+
+    def test_identical_upload_reuses_the_cached_case_and_physics(self, engine, shared_engine):
+        physics = shared_engine[1]
+        n = physics.calls
+        data = (engine.default_entry().files / "assets.csv").read_bytes()
+        outcome = engine.accept_upload(None, engine.default_key, ["assets.csv"], [data_url(data)])
+        assert outcome.ok and outcome.key == engine.default_key
+        assert physics.calls == n
+
+    def test_size_limit(self, engine, monkeypatch):
+        monkeypatch.setattr(services, "MAX_UPLOAD_BYTES", 1000)
+        outcome = engine.accept_upload(None, None, ["assets.csv"], [data_url(b"x" * 2000)])
+        assert not outcome.ok and "limit" in outcome.message
+        assert outcome.problems and outcome.problems[0]["rule"].startswith("uploads are limited")
+
+    def test_refused_names_and_mixtures(self, engine):
+        out = engine.accept_upload(None, None, ["../../model.pkl"], [data_url(b"\x80\x04")])
+        assert not out.ok and "not accepted" in out.problems[0]["rule"]
+        out = engine.accept_upload(None, None, ["book.xlsx", "assets.csv"], [data_url(b"PK"), data_url(b"a")])
+        assert not out.ok and "alone" in out.problems[0]["rule"]
+        out = engine.accept_upload(None, None, ["assets.csv"], ["data:text/csv;base64,@@not base64@@"])
+        assert not out.ok and "base64" in out.problems[0]["rule"]
+        out = engine.accept_upload(None, None, [], [])
+        assert not out.ok
+
+    def test_malformed_session_id_is_replaced(self, engine):
+        out = engine.accept_upload("../../etc", None, ["run.exe"], [data_url(b"")])
+        assert len(out.session) == 32 and all(c in "0123456789abcdef" for c in out.session)
+
+    def test_damaged_workbook_is_a_problem_not_a_traceback(self, engine):
+        out = engine.accept_upload(None, None, ["case.xlsx"], [data_url(b"PK\x03\x04 not really a workbook")])
+        assert not out.ok and out.problems and out.problems[0]["severity"] == "error"
+
+    def test_oldest_upload_is_dropped_with_its_folder(self, small_case_dir, tmp_path, monkeypatch):
+        eng = services.Engine(upload_root=tmp_path / "up", max_uploaded_cases=1)
+        eng.set_default_case(small_case_dir)
+        monkeypatch.setattr(services, "_ENGINE", eng)
+        header, rows = demo_rows()
+        a = eng.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows[:1]))])
+        folder_a = eng.entry(a.key).owned_dir
+        b = eng.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows[1:2]))])
+        assert a.ok and b.ok
+        assert eng.entry(a.key) is None and not folder_a.exists()
+        fallback = services.view({"session": a.session, "case": a.key}, None)
+        assert fallback.key == eng.default_key and "no longer held" in fallback.notice
+
+
+# ---------------------------------------------------------------------------------------------------
+# Assumption edits
+# ---------------------------------------------------------------------------------------------------
+class TestEdits:
+    def test_percent_fields_become_fractions(self, engine):
+        base = engine.default_entry().case.finance
+        a = services.assumptions_with_edits(base, {"discount_rate_pct": 6.5, "escalation_energy_pct": 2.0,
+                                                   "horizon_yr": 20, "budget_per_yr": [1e5, 5e4]})
+        assert a.discount_rate_frac == pytest.approx(0.065, abs=1e-12)  # 6.5 % = 0.065 by definition
+        assert a.escalation_energy_frac == pytest.approx(0.02, abs=1e-12)
+        assert a.horizon_yr == 20 and a.budget_per_yr == (1e5, 5e4)
+        assert a.capacitor_cost_per_kvar == base.capacitor_cost_per_kvar  # untouched fields kept
+
+    def test_form_round_trip(self, engine):
+        base = engine.default_entry().case.finance
+        form = services.assumption_form(base)
+        assert services.assumptions_with_edits(base, form) == base
+
+    @pytest.mark.parametrize("fields, words", [
+        ({"horizon_yr": 0}, "horizon"), ({"horizon_yr": 12.5}, "whole"), ({"discount_rate_pct": None}, "Discount"),
+        ({"discount_rate_pct": -150}, "discount"),
+    ])
+    def test_refused_edits_say_why(self, engine, fields, words):
+        edits, message = services.edit_assumptions(engine.default_key, engine.default_entry().case.finance, None, **fields)
+        assert edits is None and words.lower() in message.lower()
+
+    def test_view_reports_a_bad_stored_edit_and_keeps_the_case_values(self, engine):
+        v = services.view(None, {"case": engine.default_key, "horizon_yr": -3})
+        assert v.assumptions == engine.default_entry().case.finance and "not applied" in v.notice
+
+    def test_edits_change(self, engine):
+        v = services.view(None, None)
+        assert not services.edits_change(v, {"case": v.key, **services.assumption_form(v.assumptions)})
+        assert services.edits_change(v, {"case": v.key, "discount_rate_pct": 1.0})
+
+    @pytest.mark.parametrize("values, budget, words", [
+        ([None] * 6, [], ""),
+        ([100, 200, None, None], [100.0, 200.0], ""),
+        ([100, None, 50], None, "Year 1 is blank"),
+        ([100, -1], None, "zero or more"),
+        (["abc"], None, "not a number"),
+        (["250,000", "1 500.5", ""], [250000.0, 1500.5], ""),   # thousands separators as people type them
+        (["1,5"], None, "not a number"),                        # a decimal comma is ambiguous: refused
+        (["inf"], None, "zero or more"),
+        ([0, "", 10], None, "Year 1"),
+    ])
+    def test_parse_budget(self, values, budget, words):
+        got, message = services.parse_budget(values)
+        assert got == budget and words in message
+
+
+# ---------------------------------------------------------------------------------------------------
+# Page data
+# ---------------------------------------------------------------------------------------------------
+class TestPageData:
+    def test_headline_adds_up_the_plan(self, engine):
+        v = services.view(None, None)
+        r = v.result()
+        h = services.headline(r)
+        # invariant: the cards are the plan's own totals
+        assert h["plan_capital"] == pytest.approx(r.plan["capital"].sum(), rel=1e-12)
+        assert h["plan_npv"] == pytest.approx(r.plan["npv_at_plan_start"].sum(), rel=1e-12)
+        assert h["projects"] == len(r.plan)
+
+    def test_ranked_assets_one_row_per_asset_best_first_and_filters(self, engine):
+        v = services.view(None, None)
+        r = v.result()
+        table = services.ranked_assets(v, r)
+        assert sorted(table["asset_id"]) == sorted(SMALL_IDS)
+        assert list(table["npv"]) == sorted(table["npv"], reverse=True)
+        assert list(table["rank"]) == list(range(1, len(table) + 1))
+        only = services.ranked_assets(v, r, sites=["KGQ"], applications=["fan"])
+        assert list(only["asset_id"]) == ["KGQ-F01"]
+
+    def test_ratings_in_hp_when_the_case_says_so(self):
+        # 1 hp = 0.745699872 kW (NIST SP 811 (2008) Appendix B.9)
+        assert services.rating_in_unit(0.745699872, "hp") == pytest.approx(1.0, rel=1e-12)
+        assert services.rating_in_unit(75.0, "kW") == 75.0
+        assert services.power_label("hp") == "hp" and services.power_label("kW") == "kW"
+
+    def test_asset_views(self, engine):
+        v = services.view(None, None)
+        r = v.result()
+        options = services.asset_options(v, r, "HRW-V01")
+        assert {"lspm", "lspm_trim"} <= set(options["option_id"])  # the PM pair with and without trim
+        trim = options.set_index("option_id").loc["lspm_trim", "speed_remedy"]
+        assert trim == "trim_or_pulley"
+        curves = services.asset_cumulative_cash(v, r, "HRW-V01")
+        assert curves.groupby("label")["year"].max().eq(r.assumptions.horizon_yr).all()
+        hours, basis = services.asset_load_hours(v, "HRW-S01")
+        # duty table of the demo: 1800 h at 85 % and 1400 h at 60 % (data/demo/duty.csv); 0 % is stopped
+        assert hours["hours_per_yr"].sum() == pytest.approx(3200.0, rel=1e-9)
+        assert "duty" in basis
+        score, defaults, flags = services.asset_quality(v, r, "HRW-P01")
+        assert 0 <= score <= 100 and set(defaults.columns) == {"column", "value", "basis"}
+
+    def test_site_views(self, engine):
+        v = services.view(None, None)
+        r = v.result()
+        meters = services.site_meters(v, r)
+        assert set(meters) == {"HRW", "KGQ"}
+        week = services.week_slice(meters["HRW"], None)
+        assert len(week["before"]) == 7 * 24  # hourly analysis year: 168 intervals in a week
+        curve = services.pf_duration(meters["HRW"], 1.0)
+        assert curve.groupby("scenario")["power_factor"].apply(lambda s: s.is_monotonic_increasing).all()
+        balance = services.reactive_balance(v, r, "KGQ", meters["KGQ"])
+        net = balance.set_index(["scenario", "source"])["q_kvar"]
+        parts = balance[balance["source"] != "Net at the meter"].groupby("scenario")["q_kvar"].sum()
+        # invariant: the sources add up to the net at the meter
+        assert parts["before"] == pytest.approx(net[("before", "Net at the meter")], rel=1e-9, abs=1e-6)
+        assert (balance.loc[balance["source"] == "Capacitor banks", "q_kvar"] <= 0).all()  # banks lead
+        bills = services.monthly_bills(r, "HRW")
+        assert set(bills["scenario"]) == {"before", "after"} and bills["month"].nunique() == 12
+
+    def test_plan_tables(self, engine):
+        v = services.view(None, {"case": engine.default_key, "budget_per_yr": [20000.0, 10000.0]})
+        t = services.plan_tables(v, v.result())
+        exact = t["by_year"][t["by_year"]["plan"] == "exact"]
+        assert (exact["capital"].to_numpy() <= exact["budget"].to_numpy() + 1e-6).all()
+
+    def test_risk_rows_have_labels(self, engine):
+        v = services.view(None, None)
+        rows = services.risk_rows(v.result(with_risk=True))
+        assert len(rows) and rows["label"].notna().all()
+        assert list(rows["npv_p50"]) == sorted(rows["npv_p50"], reverse=True)
+
+    def test_blank_template_is_a_workbook(self):
+        from openpyxl import load_workbook
+
+        data = services.blank_template_bytes()
+        assert data[:2] == b"PK"
+        book = load_workbook(io.BytesIO(data))
+        assert {"assets", "sites", "case"} <= set(book.sheetnames)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Server start-up
+# ---------------------------------------------------------------------------------------------------
+class TestServer:
+    @pytest.mark.parametrize("host", ["127.0.0.1", "127.3.2.1", "::1", "[::1]", "localhost", "LOCALHOST"])
+    def test_loopback_hosts_give_no_warning(self, host):
+        assert server.is_loopback(host) and server.network_warning(host) is None
+
+    @pytest.mark.parametrize("host", ["0.0.0.0", "::", "192.168.1.20", "10.0.0.5", "example.org", ""])
+    def test_other_hosts_warn(self, host):
+        text = server.network_warning(host)
+        assert not server.is_loopback(host)
+        assert text and "reachable from the network" in text and "no login" in text
+
+    def test_url(self):
+        assert server.url_for("127.0.0.1", 8050) == "http://127.0.0.1:8050"
+        assert server.url_for("::1", 8050) == "http://[::1]:8050"
+
+    def test_no_display_no_browser(self, monkeypatch):
+        monkeypatch.setattr(server.sys, "platform", "linux")
+        monkeypatch.delenv("DISPLAY", raising=False)
+        monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+        assert not server.can_open_browser()
+
+    def test_missing_case_prints_problems_and_returns_1(self, tmp_path, capsys, monkeypatch):
+        monkeypatch.setattr(services, "_ENGINE", None)
+        assert server.serve(tmp_path / "no-such-case", open_browser=False) == 1
+        out = capsys.readouterr().out
+        assert "cannot be opened" in out and "does not exist" in out and "Traceback" not in out
+
+    def test_broken_case_prints_row_level_problems(self, tmp_path, capsys, monkeypatch):
+        monkeypatch.setattr(services, "_ENGINE", None)
+        case = write_small_case(tmp_path / "broken")
+        header, rows = demo_rows()
+        rows[0][header.index("rated_p_kw")] = "-5"
+        (case / "assets.csv").write_bytes(csv_bytes(header, rows))
+        assert server.serve(case, host="0.0.0.0", open_browser=False) == 1
+        out = capsys.readouterr().out
+        assert "row 2" in out and "rated_p_kw" in out
+
+    def test_busy_port_returns_1_after_printing_the_address(self, small_case_dir, capsys, monkeypatch):
+        import socket
+
+        monkeypatch.setattr(services, "_ENGINE", None)
+        with socket.socket() as busy:
+            busy.bind(("127.0.0.1", 0))
+            busy.listen(1)
+            port = busy.getsockname()[1]
+            assert server.serve(small_case_dir, port=port, open_browser=False) == 1
+        captured = capsys.readouterr()
+        assert f"Dashboard on http://127.0.0.1:{port}" in captured.out
+        assert "WARNING" not in captured.out  # loopback by default: no network warning
+        assert "cannot listen" in captured.err
