@@ -113,6 +113,9 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     warning = network_warning(host)
     if warning:
         print(warning)
+    if debug:
+        print("WARNING: debug mode is on: the web framework's debugger can run code sent from the browser. "
+              "Use it only while developing, on 127.0.0.1.")
 
     def warm() -> None:
         try:

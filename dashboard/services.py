@@ -26,6 +26,7 @@ import re
 import shutil
 import tempfile
 import threading
+import time
 import unicodedata
 import uuid
 from collections import OrderedDict
@@ -255,6 +256,17 @@ class Engine:
         self._derived: OrderedDict[tuple, object] = OrderedDict()
         self.default_key: str | None = None
         self.counts = {"physics": 0, "economics": 0}
+        #: Wall-clock seconds of the latest runs of each stage (the last 50), for performance notes.
+        self.timings: dict[str, list[float]] = {"physics": [], "economics": []}
+
+    def _timed(self, stage: str, fn: Callable[[], object]) -> object:
+        start = time.perf_counter()
+        try:
+            return fn()
+        finally:
+            with self._lock:
+                self.counts[stage] += 1
+                self.timings[stage] = (self.timings[stage] + [time.perf_counter() - start])[-50:]
 
     # -- cases ------------------------------------------------------------------------------------
     def set_default_case(self, path: str | Path) -> tuple[CaseEntry | None, list[Problem]]:
@@ -357,8 +369,8 @@ class Engine:
             raise KeyError(f"unknown case key {key!r}")
 
         def compute():
-            self.counts["physics"] += 1
-            return self._physics_fn(entry.case, float(entry.case.finance.capacitor_cost_per_kvar))
+            return self._timed("physics", lambda: self._physics_fn(entry.case,
+                                                                   float(entry.case.finance.capacitor_cost_per_kvar)))
 
         return self._once(self._physics, key, compute)
 
@@ -374,8 +386,7 @@ class Engine:
         phys = self.physics(key)
 
         def compute():
-            self.counts["economics"] += 1
-            return self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk)
+            return self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk))
 
         return self._once(self._results, (key, assumptions, bool(with_risk)), compute, self.max_results)
 

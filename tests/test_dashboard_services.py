@@ -355,6 +355,19 @@ class TestPageData:
         assert services.rating_in_unit(75.0, "kW") == 75.0
         assert services.power_label("hp") == "hp" and services.power_label("kW") == "kW"
 
+    def test_ranked_table_in_hp_for_a_hp_case(self, engine):
+        from dataclasses import replace
+
+        v = services.view(None, None)
+        case_hp = replace(v.case, settings=replace(v.case.settings, power_unit="hp"))
+        v_hp = services.View(replace(v.entry, case=case_hp), v.assumptions)
+        kw = services.ranked_assets(v, v.result()).set_index("asset_id")["rating"]
+        hp = services.ranked_assets(v_hp, v.result()).set_index("asset_id")["rating"]
+        # demo HRW-P01 is rated 250 kW (data/demo/assets.csv); 250 / 0.745699872 = 335.25 hp (NIST SP 811 B.9)
+        assert kw["HRW-P01"] == pytest.approx(250.0, rel=1e-12)
+        assert hp["HRW-P01"] == pytest.approx(335.2555, rel=1e-6)  # hand calculation: 250 / 0.745699872
+        assert v_hp.power_unit == "hp"
+
     def test_asset_views(self, engine):
         v = services.view(None, None)
         r = v.result()
