@@ -137,13 +137,11 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
         site_id, month, line_item, quantity, unit, rate, amount [currency].
     """
     setups = setups or site_setups(case, op.index)
-    rows = np.arange(len(op.asset_ids))
-    p = op.p_kw[choice, rows]
-    q = op.q_kvar[choice, rows]
     meters, frames = {}, []
     for site_id, setup in setups.items():
-        members = op.site_ids == site_id
-        meter = setup.site.meter(p[members], q[members], base_p_kw_profile=setup.base_p_kw_profile)
+        members = np.flatnonzero(op.site_ids == site_id)  # one site's assets at a time: memory of one site
+        p, q = op.p_kw[choice[members], members], op.q_kvar[choice[members], members]
+        meter = setup.site.meter(p, q, base_p_kw_profile=setup.base_p_kw_profile)
         meters[site_id] = meter
         frame = billing.bill(setup.tariff, op.index, meter.p_kw, meter.q_kvar, interval_h=op.interval_h)
         frames.append(frame.assign(site_id=site_id))

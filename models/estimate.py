@@ -31,10 +31,11 @@ LOAD_S_PER_ASSET = 1.2 / 1000
 #: Resident memory of the interpreter, libraries and a loaded case before the analysis [bytes].
 BASE_BYTES = 300 * 2**20
 #: Temporaries of the machine models per asset-step of one block [bytes]: about 40 float64 arrays of the
-#: block's size live at once (fitted to the 1,000-asset peak of 2.0 GiB, docs/scale.md).
+#: block's size live at once (common to the physics peak of both benchmark sizes, docs/scale.md).
 BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
-#: Economics arrays per asset-option [bytes]: cash flows by component and year for every project.
-ECONOMICS_BYTES_PER_PAIR = 16 * 16 * 8
+#: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables
+#: (fitted to the economics peaks of the benchmark, docs/scale.md).
+ECONOMICS_BYTES_PER_PAIR = 12 * 1024
 
 
 @dataclass(frozen=True)
@@ -76,8 +77,9 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     t = n_a n_o n_t (c_machines + c_bills) / min(workers, n_sites) + n_a (c_load + c_economics)
     + min(n_a c_plan, t_plan,max), with the constants of this module (measured by
     ``benchmarks/bench_fleet.py``). Peak = base + per-interval store (every option when it fits
-    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the largest site's
-    per-option arrays + one block's temporaries + the economics arrays.
+    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the larger of the
+    physics (the largest site's per-option arrays and one block's temporaries) and the economics (one
+    site's meter arrays and the per-asset-option tables).
     """
     if workers < 1:
         raise ValueError("workers must be >= 1")
@@ -93,8 +95,9 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
     store = interval_bytes(n_a, n_o, n_t) if dense else interval_bytes(n_a, 1, n_t)
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-    peak = (BASE_BYTES + store + interval_bytes(largest, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
-            + ECONOMICS_BYTES_PER_PAIR * n_a * n_o)
+    physics_peak = interval_bytes(largest, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
+    economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o
+    peak = BASE_BYTES + store + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else
             "today's per-interval power (other options recomputed by block when needed)")
     note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s): about {_duration(seconds)} and "

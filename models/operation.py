@@ -616,8 +616,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                                np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
         groups.append(("states", state_rows, arr, existing, load))
 
-    p_kw = np.zeros((n_o, n_a, n_t))
-    q_kvar = np.zeros((n_o, n_a, n_t))
+    p_kw = np.zeros((1 if only_today else n_o, n_a, n_t))
+    q_kvar = np.zeros((1 if only_today else n_o, n_a, n_t))
     energy = np.zeros((n_a, n_o))
     shaft_energy = np.zeros((n_a, n_o))
     losses = np.zeros((n_a, n_o, len(LOSS_KINDS)))
@@ -690,7 +690,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values
-    for o in range(1, n_o):
+    for o in range(1, 1 if only_today else n_o):
         off = ~applies[:, o]
         p_kw[o, off] = p_kw[0, off]
         q_kvar[o, off] = q_kvar[0, off]
@@ -739,11 +739,14 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
     blocks = asset_blocks(n, len(index), chunk_assets)
     if len(blocks) <= 1:
         return _operate_block(case, index, np.arange(n))
-    today = [_operate_block(case, index, rows, only_today=True) for rows in blocks]
-    base_p = np.concatenate([part.p_kw[0] for part in today], axis=0)
-    base_q = np.concatenate([part.q_kvar[0] for part in today], axis=0)
+    base_p = np.zeros((n, len(index)))
+    base_q = np.zeros((n, len(index)))
+    for rows in blocks:
+        part = _operate_block(case, index, rows, only_today=True)
+        base_p[rows], base_q[rows] = part.p_kw[0], part.q_kvar[0]
+        del part
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
-    del today, base_p, base_q
+    del base_p, base_q
     merger = _Merger(n, len(index), dense=True)
     for rows in blocks:
         merger.add(rows, _operate_block(case, index, rows, site_totals=totals))

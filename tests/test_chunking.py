@@ -150,3 +150,21 @@ class TestCompactIntervalStore:
         a, b = run_tables(dense), run_tables(compact)
         for name in a:
             assert csv_bytes(a[name]) == csv_bytes(b[name]), name
+
+
+class TestEstimate:
+    def test_estimate_follows_the_memory_model(self, fleet, whole):
+        from models.estimate import BASE_BYTES, estimate_run
+
+        est = estimate_run(fleet)
+        n_o, n_a, n_t = whole.p_kw.shape
+        # the dense store of this small fleet is part of the peak (docs/scale.md, memory model)
+        assert est.peak_bytes > BASE_BYTES + interval_bytes(n_a, n_o, n_t)
+        assert est.seconds > 0 and "every option's per-interval power" in est.note
+        assert estimate_run(fleet, workers=2).seconds < est.seconds
+
+    def test_estimate_refuses_no_workers(self, fleet):
+        from models.estimate import estimate_run
+
+        with pytest.raises(ValueError, match="workers"):
+            estimate_run(fleet, workers=0)
