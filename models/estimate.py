@@ -15,21 +15,22 @@ from dataclasses import dataclass
 from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, _with_baseline, case_index, interval_bytes,
                               site_partition)
 
-#: Machines stage per asset-option-step [s]: 60.6 s for 1,000 assets x 11 options x 8,760 steps
-#: (bench_fleet, local engine, 2026-12-01, load average 6 on 2 cores).
-MACHINES_S_PER_ELEMENT = 60.6 / (1000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s]: 57.7 s for the same fleet and run.
-SITE_BILLS_S_PER_ELEMENT = 57.7 / (1000 * 11 * 8760)
-#: Finance, end of life, Monte Carlo and bills per asset [s]: 6.8 s per 1,000 assets, same run.
-ECONOMICS_S_PER_ASSET = 6.8 / 1000
-#: Exact fleet plan [s]: 19.8 s for 1,000 assets in the same run; the solver stops at its 60 s limit
-#: (models.plan.plan_exact), so the estimate is capped there plus the greedy plan and set-up.
-PLAN_S_PER_ASSET = 19.8 / 1000
-PLAN_MAX_S = 75.0
-#: Reading and validating a case per asset [s]: 1.2 s per 1,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 1.2 / 1000
-#: Resident memory of the interpreter, libraries and a loaded case before the analysis [bytes].
-BASE_BYTES = 300 * 2**20
+#: Machines stage per asset-option-step [s]: 133.3 s for 10,000 assets x 11 options x 8,760 steps
+#: (bench_fleet, local engine, 2026-12-01, load average 1.2 on the 2-core reference machine).
+MACHINES_S_PER_ELEMENT = 133.3 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s]: 51.6 s for the same fleet and run.
+SITE_BILLS_S_PER_ELEMENT = 51.6 / (10_000 * 11 * 8760)
+#: Finance, end of life, Monte Carlo and monthly bills per asset [s]: 25.0 s per 10,000 assets, same run.
+ECONOMICS_S_PER_ASSET = 25.0 / 10_000
+#: Exact fleet plan [s]: 3.4 s for 1,000 assets (same benchmark); at 10,000 assets the solver stops at
+#: its 60 s limit (models.plan.plan_exact), 60.6 s in all, so the estimate is capped there.
+PLAN_S_PER_ASSET = 3.4 / 1000
+PLAN_MAX_S = 61.0
+#: Reading and validating a case per asset [s]: 1.6 s per 10,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 1.6 / 10_000
+#: Resident memory of the interpreter, libraries and a loaded case before the analysis [bytes] (the
+#: remainder of the 1,000-asset peak of 1,930 MiB once the arrays below are counted).
+BASE_BYTES = 250 * 2**20
 #: Temporaries of the machine models per asset-step of one block [bytes]: about 40 float64 arrays of the
 #: block's size live at once (common to the physics peak of both benchmark sizes, docs/scale.md).
 BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
