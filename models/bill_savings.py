@@ -250,45 +250,83 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
     B(base + (0, delta_Q_j))), but every changed asset-option of the site is billed in blocks of
     ``block_scenarios`` rows; the reactive-only bills price only the clauses that can change with kVAr
     (:func:`kvar_clauses`) and are skipped (saving exactly 0) for a tariff that does not depend on kVAr
-    (:func:`tariff_depends_on_kvar`); and the equivalent capacitor bank's saving
-    curve, which depends only on the site's baseline meter, is built once per site and read for every
-    reactive option.
+    (:func:`tariff_depends_on_kvar`); and the equivalent capacitor bank's saving curve, which depends
+    only on the site's baseline meter, is built once per site and read for every reactive option.
+    :class:`SiteSavings` does the same block of assets by block of assets.
     """
-    n_s, n_o = p_site.shape[1], p_site.shape[0]
-    saving = np.zeros((n_s, n_o, len(SAVING_COMPONENTS)))
-    reactive = np.zeros((n_s, n_o))
-    bank_q = np.full((n_s, n_o), np.nan)
-    bank_cost = np.full((n_s, n_o), np.nan)
-    js, os_ = _changed_pairs(p_site, q_site, applies)
-    if not len(js):
-        return dict(saving=saving, reactive_saving=reactive, equivalent_bank_q_kvar=bank_q, equivalent_bank_cost=bank_cost)
-    p0 = p_site[0].sum(axis=0)
-    q0 = q_site[0].sum(axis=0)
-    n_t = p_site.shape[2]
-    block = int(block_scenarios) if block_scenarios else max(1, SCENARIO_BLOCK_ELEMENTS // max(n_t, 1))
-    base = _scenario_bills(setup, index, interval_h, p0[None, :], q0[None, :])
-    q_matters = tariff_depends_on_kvar(setup.tariff)
-    if q_matters:
-        q_setup = replace(setup, tariff=kvar_clauses(setup.tariff))
-        q_base_total = float(_scenario_bills(q_setup, index, interval_h, p0[None, :], q0[None, :])["total"].iloc[0])
-    for start in range(0, len(js), block):
-        j, o = js[start:start + block], os_[start:start + block]
-        dp = p_site[o, j] - p_site[0, j]
-        dq = q_site[o, j] - q_site[0, j]
-        full = _scenario_bills(setup, index, interval_h, p0, q0, dp, dq)
-        frame = attribution.saving_by_category(base, full)
-        saving[j, o] = _components(frame)
-        if q_matters:
-            reactive_only = _scenario_bills(q_setup, index, interval_h, p0 + 0.0, q0, None, dq)
-            reactive[j, o] = q_base_total - reactive_only["total"].to_numpy()
-    is_reactive = np.isin(technologies[os_], REACTIVE_TECHNOLOGIES)
-    if is_reactive.any():
-        j, o = js[is_reactive], os_[is_reactive]
-        q_bank = attribution.equivalent_capacitor_bank_q_kvar(setup.tariff, index, p0, q0, reactive[j, o], site=setup.site,
-                                                              base_p_kw_profile=setup.base_p_kw_profile, interval_h=interval_h)
-        bank_q[j, o] = q_bank
-        bank_cost[j, o] = q_bank * capacitor_cost_per_kvar
-    return dict(saving=saving, reactive_saving=reactive, equivalent_bank_q_kvar=bank_q, equivalent_bank_cost=bank_cost)
+    acc = SiteSavings(setup, index, interval_h, p_site[0].sum(axis=0), q_site[0].sum(axis=0), p_site.shape[1],
+                      technologies, block_scenarios)
+    acc.add(np.arange(p_site.shape[1]), p_site, q_site, applies)
+    return acc.result(capacitor_cost_per_kvar)
+
+
+class SiteSavings:
+    """Bill savings of one site's asset-options, gathered block of assets by block of assets.
+
+    Parameters
+    ----------
+    setup, index, interval_h, technologies, block_scenarios
+        As in :func:`site_savings`.
+    p0_kw, q0_kvar : numpy.ndarray, shape (n_steps,)
+        The site's totals of today's motors over all its assets [kW], [kVAr].
+    n_assets : int
+        Assets of the site.
+    """
+
+    def __init__(self, setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p0_kw: np.ndarray,
+                 q0_kvar: np.ndarray, n_assets: int, technologies: np.ndarray, block_scenarios: int | None = None):
+        self.setup, self.index, self.interval_h = setup, index, interval_h
+        self.p0, self.q0 = p0_kw, q0_kvar
+        self.technologies = technologies
+        n_o, n_t = len(technologies), len(index)
+        self.block = int(block_scenarios) if block_scenarios else max(1, SCENARIO_BLOCK_ELEMENTS // max(n_t, 1))
+        self.saving = np.zeros((n_assets, n_o, len(SAVING_COMPONENTS)))
+        self.reactive = np.zeros((n_assets, n_o))
+        self.pairs: list[tuple[np.ndarray, np.ndarray]] = []
+        self.base = _scenario_bills(setup, index, interval_h, p0_kw[None, :], q0_kvar[None, :])
+        self.q_matters = tariff_depends_on_kvar(setup.tariff)
+        if self.q_matters:
+            self.q_setup = replace(setup, tariff=kvar_clauses(setup.tariff))
+            self.q_base_total = float(_scenario_bills(self.q_setup, index, interval_h, p0_kw[None, :],
+                                                      q0_kvar[None, :])["total"].iloc[0])
+
+    def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray) -> None:
+        """Price the asset-options of a block of the site's assets (positions ``rows`` in the site).
+
+        ``p_block``, ``q_block`` are (n_options, len(rows), n_steps) [kW], [kVAr]; ``applies`` (len(rows), n_options).
+        """
+        js, os_ = _changed_pairs(p_block, q_block, applies)
+        p0, q0 = self.p0, self.q0
+        for start in range(0, len(js), self.block):
+            j, o = js[start:start + self.block], os_[start:start + self.block]
+            dp = p_block[o, j] - p_block[0, j]
+            dq = q_block[o, j] - q_block[0, j]
+            full = _scenario_bills(self.setup, self.index, self.interval_h, p0, q0, dp, dq)
+            frame = attribution.saving_by_category(self.base, full)
+            self.saving[rows[j], o] = _components(frame)
+            if self.q_matters:
+                reactive_only = _scenario_bills(self.q_setup, self.index, self.interval_h, p0 + 0.0, q0, None, dq)
+                self.reactive[rows[j], o] = self.q_base_total - reactive_only["total"].to_numpy()
+        self.pairs.append((rows[js], os_))
+
+    def result(self, capacitor_cost_per_kvar: float) -> dict:
+        """The site's arrays, with the equivalent capacitor bank of every changed reactive option."""
+        n_a, n_o = self.reactive.shape
+        bank_q = np.full((n_a, n_o), np.nan)
+        bank_cost = np.full((n_a, n_o), np.nan)
+        if self.pairs:
+            js = np.concatenate([j for j, _ in self.pairs])
+            os_ = np.concatenate([o for _, o in self.pairs])
+            is_reactive = np.isin(self.technologies[os_], REACTIVE_TECHNOLOGIES)
+            if is_reactive.any():
+                j, o = js[is_reactive], os_[is_reactive]
+                q_bank = attribution.equivalent_capacitor_bank_q_kvar(
+                    self.setup.tariff, self.index, self.p0, self.q0, self.reactive[j, o], site=self.setup.site,
+                    base_p_kw_profile=self.setup.base_p_kw_profile, interval_h=self.interval_h)
+                bank_q[j, o] = q_bank
+                bank_cost[j, o] = q_bank * capacitor_cost_per_kvar
+        return dict(saving=self.saving, reactive_saving=self.reactive, equivalent_bank_q_kvar=bank_q,
+                    equivalent_bank_cost=bank_cost)
 
 
 def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None,

@@ -736,9 +736,27 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
     if len(sites) > 1:
         raise ValueError(f"operate_site takes a one-site case; this one has sites {', '.join(map(str, sites))}")
     n = len(case.assets)
+    if len(asset_blocks(n, len(index), chunk_assets)) <= 1:
+        return _operate_block(case, index, np.arange(n))
+    merger = _Merger(n, len(index), dense=True)
+    for rows, part, _ in site_blocks(case, index, chunk_assets):
+        merger.add(rows, part)
+    return merger.result()
+
+
+def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
+    """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
+
+    The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
+    [kW], [kVAr] (n_steps,) are those of the whole site (a first pass over the blocks when there are
+    several), the same numbers :func:`operate_site` uses. Memory: one block at a time.
+    """
+    n = len(case.assets)
     blocks = asset_blocks(n, len(index), chunk_assets)
     if len(blocks) <= 1:
-        return _operate_block(case, index, np.arange(n))
+        part = _operate_block(case, index, np.arange(n))
+        yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
+        return
     base_p = np.zeros((n, len(index)))
     base_q = np.zeros((n, len(index)))
     for rows in blocks:
@@ -747,10 +765,8 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
         del part
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
     del base_p, base_q
-    merger = _Merger(n, len(index), dense=True)
     for rows in blocks:
-        merger.add(rows, _operate_block(case, index, rows, site_totals=totals))
-    return merger.result()
+        yield rows, _operate_block(case, index, rows, site_totals=totals), totals
 
 
 class _Merger:
@@ -775,14 +791,15 @@ class _Merger:
             for name in _PER_ASSET_FIELDS:
                 value = getattr(part, name)
                 self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
+        at = _as_slice(rows)
         if self.dense:
-            self.fields["p_kw"][:, rows] = part.p_kw
-            self.fields["q_kvar"][:, rows] = part.q_kvar
+            self.fields["p_kw"][:, at] = part.p_kw
+            self.fields["q_kvar"][:, at] = part.q_kvar
         else:
-            self.fields["p_kw"][rows] = part.p_kw[0]
-            self.fields["q_kvar"][rows] = part.q_kvar[0]
+            self.fields["p_kw"][at] = part.p_kw[0]
+            self.fields["q_kvar"][at] = part.q_kvar[0]
         for name in _PER_ASSET_FIELDS:
-            self.fields[name][rows] = getattr(part, name)
+            self.fields[name][at] = getattr(part, name)
         if len(part.flags):
             positions = {aid: int(r) for aid, r in zip(part.asset_ids, rows)}
             self.flags.append(part.flags)
@@ -797,7 +814,9 @@ class _Merger:
             order = np.argsort(np.concatenate(self.flag_pos), kind="stable")
             flags = flags.iloc[order].reset_index(drop=True)
         p, q = f["p_kw"], f["q_kvar"]
-        if not self.dense:
+        if not self.dense and self.recompute is None:  # today's motors only, as (1, n_assets, n_steps)
+            p, q = p[None], q[None]
+        elif not self.dense:
             n_o = len(first.option_ids)
             self.recompute.today_p, self.recompute.today_q = p, q
             p = SiteIntervalStore(p, n_o, self.recompute, "p_kw")
@@ -809,6 +828,14 @@ class _Merger:
             losses_kwh=f["losses_kwh"], lagging_kvarh=f["lagging_kvarh"], leading_kvarh=f["leading_kvarh"],
             running_h=f["running_h"], mean_speed_rpm=f["mean_speed_rpm"], capacitor_q_kvar=f["capacitor_q_kvar"],
             interval_data=f["interval_data"], flags=flags)
+
+
+def _as_slice(rows: np.ndarray):
+    """A slice for consecutive increasing positions (a plain copy), else the positions themselves."""
+    rows = np.asarray(rows)
+    if len(rows) and rows[-1] - rows[0] == len(rows) - 1 and np.all(np.diff(rows) == 1):
+        return slice(int(rows[0]), int(rows[-1]) + 1)
+    return rows
 
 
 _PER_ASSET_FIELDS = ("asset_ids", "site_ids", "applies", "reason", "energy_kwh", "shaft_energy_kwh", "losses_kwh",

@@ -20,9 +20,9 @@ import pandas as pd
 
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
-from models.bill_savings import SAVING_COMPONENTS, BillSavings, meter_and_bills, site_savings, site_setups
+from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, OperatingResult, _Merger, _SiteRecompute, _with_baseline,
-                              case_index, interval_bytes, operate_site, site_case, site_partition)
+                              case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.regulations import class_rank, minimum_class
 
@@ -129,18 +129,28 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     (OperatingResult, dict)
         The site's operating result and its :func:`models.bill_savings.site_savings` arrays.
     """
+    t_machines = t_bills = 0.0
     t0 = time.perf_counter()
-    op = operate_site(case, index, chunk_assets)
-    t1 = time.perf_counter()
-    setups = site_setups(case, index)
-    site_id = str(op.site_ids[0])
-    part = site_savings(setups[site_id], index, op.interval_h, op.p_kw, op.q_kvar, op.applies, op.technologies,
-                        capacitor_cost_per_kvar)
+    site_id = str(case.assets["site_id"].iloc[0])
+    setup = site_setups(case, index)[site_id]
+    merger = _Merger(len(case.assets), len(index), dense=not today_only)
+    acc = None
+    for rows, block, totals in site_blocks(case, index, chunk_assets):
+        t1 = time.perf_counter()
+        t_machines += t1 - t0
+        if acc is None:
+            acc = SiteSavings(setup, index, block.interval_h, totals[0], totals[1], len(case.assets), block.technologies)
+        acc.add(rows, block.p_kw, block.q_kvar, block.applies)
+        merger.add(rows, block)
+        del block
+        t0 = time.perf_counter()
+        t_bills += t0 - t1
+    op = merger.result()
+    part = acc.result(capacitor_cost_per_kvar)
+    t_bills += time.perf_counter() - t0
     if timer is not None:
-        timer["machines"] = timer.get("machines", 0.0) + (t1 - t0)
-        timer["site bills"] = timer.get("site bills", 0.0) + (time.perf_counter() - t1)
-    if today_only:
-        op = replace(op, p_kw=op.p_kw[:1].copy(), q_kvar=op.q_kvar[:1].copy())
+        timer["machines"] = timer.get("machines", 0.0) + t_machines
+        timer["site bills"] = timer.get("site bills", 0.0) + t_bills
     return op, part
 
 
