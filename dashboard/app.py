@@ -18,9 +18,14 @@ MAX_REQUEST_BYTES = services.MAX_UPLOAD_BYTES * 3
 CASE_LABEL = "app-case-label"
 NAV_LINK = "app-nav"
 
-app = Dash(__name__, use_pages=True, title="drivecase", update_title=None, suppress_callback_exceptions=True)
+app = Dash(__name__, use_pages=True, pages_folder="", title="drivecase", update_title=None,
+           suppress_callback_exceptions=True)
 server = app.server
 server.config["MAX_CONTENT_LENGTH"] = MAX_REQUEST_BYTES
+
+# The pages register themselves on import. They are imported here under their package name (Dash's own
+# folder scan would import them a second time as a top-level ``pages`` package).
+from dashboard.pages import asset, fleet, inputs, plan, risk, site  # noqa: E402,F401
 
 
 def navigation() -> html.Nav:

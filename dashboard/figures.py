@@ -148,7 +148,7 @@ def cumulative_cash(curves: pd.DataFrame, currency: str) -> go.Figure:
                                  hoverinfo="text"))
     fig.add_hline(y=0, line=dict(color=INK, width=1))
     fig.update_xaxes(title_text="Year [yr]")
-    fig.update_yaxes(title_text=f"Cumulative discounted cash flow [{currency}]")
+    fig.update_yaxes(title_text=f"Cumulative present value [{currency}]")
     return _style(fig, "Cumulative discounted cash flow", height=480, legend_below=True)
 
 
@@ -222,8 +222,8 @@ def speed_energy(options: pd.DataFrame) -> go.Figure:
     fig.update_yaxes(title_text="Energy [MWh/yr]", row=1, col=2)
     fig.update_xaxes(tickangle=-30, categoryorder="array", categoryarray=list(options["label"]))
     fig.update_layout(barmode="group")
-    fig = _style(fig, "", height=460, legend_below=True)
-    fig.update_layout(legend=dict(y=-0.45), margin=dict(t=40))
+    fig = _style(fig, "", height=460)
+    fig.update_layout(legend=dict(y=1.1), margin=dict(t=80, b=140))
     return fig
 
 

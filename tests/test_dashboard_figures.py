@@ -80,7 +80,7 @@ class TestAsset:
         marks = [t for t in fig.data if t.mode == "markers"]
         assert len(marks) == 1 and list(marks[0].x) == [1.25] and list(marks[0].y) == [0.0]  # only the option that pays back
         t = titles(fig)
-        assert t["xaxis"] == "Year [yr]" and t["yaxis"] == "Cumulative discounted cash flow [GBP]"
+        assert t["xaxis"] == "Year [yr]" and t["yaxis"] == "Cumulative present value [GBP]"
 
     def test_performance_three_panels_with_units(self):
         load = np.array([25.0, 50.0, 100.0])

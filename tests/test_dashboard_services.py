@@ -253,6 +253,20 @@ class TestUpload:
         out = engine.accept_upload(None, None, [], [])
         assert not out.ok
 
+    def test_blank_template_workbook_is_refused_with_its_problems(self, engine):
+        out = engine.accept_upload(None, None, ["blank.xlsx"], [data_url(services.blank_template_bytes())])
+        assert not out.ok and "previous case stays loaded" in out.message
+        assert any(p["file"].startswith("blank.xlsx") for p in out.problems)
+
+    def test_workbook_that_reads_but_cannot_be_priced_is_refused(self, engine, tmp_path):
+        from casebuilder import write_workbook  # a valid small case whose site has no tariff
+
+        book = write_workbook(tmp_path / "case.xlsx").read_bytes()
+        out = engine.accept_upload(None, None, ["case.xlsx"], [data_url(book)])
+        assert not out.ok and "cannot be priced" in out.message
+        assert any("tariff" in (p["rule"] or "") for p in out.problems)
+        assert len([e for e in engine._cases.values() if e.case.settings.name == "Test case"]) == 0
+
     def test_malformed_session_id_is_replaced(self, engine):
         out = engine.accept_upload("../../etc", None, ["run.exe"], [data_url(b"")])
         assert len(out.session) == 32 and all(c in "0123456789abcdef" for c in out.session)

@@ -8,7 +8,6 @@ from dash import Input, Output, callback, dcc, html
 from dashboard import components as ui
 from dashboard import figures, services
 
-dash.register_page(__name__, path="/asset", name="Asset", title="Asset · drivecase", order=1)
 
 PICK = "asset-pick"
 REQUEST = "asset-request"
@@ -49,6 +48,9 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                   html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240)], className="half")],
                  className="row"),
     ])
+
+
+dash.register_page(__name__, path="/asset", name="Asset", title="Asset · drivecase", order=1, layout=layout)
 
 
 @callback(Output(PICK, "options"), Output(PICK, "value"), Input(REQUEST, "data"), Input(ui.SESSION_STORE, "data"))

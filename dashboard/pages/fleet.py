@@ -10,7 +10,6 @@ from dash import Input, Output, callback, dcc, html, no_update
 from dashboard import components as ui
 from dashboard import figures, services
 
-dash.register_page(__name__, path="/", name="Fleet", title="Fleet overview · drivecase", order=0)
 
 SITE_FILTER = "fleet-site-filter"
 APPLICATION_FILTER = "fleet-application-filter"
@@ -37,6 +36,9 @@ def layout(**_query):
         ui.data_grid(TABLE, height=460, getRowId="params.data.asset_id"),
         html.Div(ui.graph(ABATEMENT), className="panel"),
     ])
+
+
+dash.register_page(__name__, path="/", name="Fleet", title="Fleet overview · drivecase", order=0, layout=layout)
 
 
 def table_columns(currency: str, power_unit: str) -> list[dict]:

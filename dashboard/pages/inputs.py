@@ -8,7 +8,6 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 from dashboard import components as ui
 from dashboard import services
 
-dash.register_page(__name__, path="/inputs", name="Case & assumptions", title="Case and assumptions · drivecase", order=5)
 
 READY = "inputs-ready"
 UPLOAD = "inputs-upload"
@@ -74,6 +73,10 @@ def layout(**_query):
                      rowClassRules={"problem-error": "params.data.severity == 'error'",
                                     "problem-warning": "params.data.severity == 'warning'"}),
     ])
+
+
+dash.register_page(__name__, path="/inputs", name="Case & assumptions", title="Case and assumptions · drivecase", order=5,
+                   layout=layout)
 
 
 @callback(Output(ui.SESSION_STORE, "data"), Output(STATUS, "children"), Output(PROBLEMS, "rowData"),

@@ -8,7 +8,6 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 from dashboard import components as ui
 from dashboard import figures, services
 
-dash.register_page(__name__, path="/plan", name="Capital plan", title="Capital plan · drivecase", order=3)
 
 READY = "plan-ready"
 BUDGET = "plan-budget"
@@ -41,6 +40,9 @@ def layout(**_query):
         html.H3("Where the two plans differ"),
         ui.data_grid(DIFFERENCES, height=240),
     ])
+
+
+dash.register_page(__name__, path="/plan", name="Capital plan", title="Capital plan · drivecase", order=3, layout=layout)
 
 
 @callback([Output(i, "value") for i in BUDGET_IDS], Input(READY, "data"), Input(ui.SESSION_STORE, "data"),

@@ -8,7 +8,6 @@ from dash import Input, Output, callback, dcc, html
 from dashboard import components as ui
 from dashboard import figures, services
 
-dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertainty · drivecase", order=4)
 
 READY = "risk-ready"
 TORNADO = "risk-tornado"
@@ -30,6 +29,9 @@ def layout(**_query):
         html.H3("Monte Carlo summary per project"),
         ui.data_grid(TABLE, height=420),
     ])
+
+
+dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertainty · drivecase", order=4, layout=layout)
 
 
 def columns(currency: str) -> list[dict]:

@@ -8,7 +8,6 @@ from dash import Input, Output, State, callback, dcc, html
 from dashboard import components as ui
 from dashboard import figures, services
 
-dash.register_page(__name__, path="/site", name="Site meter", title="Site meter · drivecase", order=2)
 
 PICK = "site-pick"
 WEEK = "site-week"
@@ -38,6 +37,9 @@ def layout(**_query):
                  className="row"),
         html.Div(ui.graph(BILLS), className="panel"),
     ])
+
+
+dash.register_page(__name__, path="/site", name="Site meter", title="Site meter · drivecase", order=2, layout=layout)
 
 
 @callback(Output(PICK, "options"), Output(PICK, "value"), Output(WEEK, "options"),
