@@ -9,6 +9,7 @@ until interrupted. The physics of the case start in the background so the first 
 from __future__ import annotations
 
 import ipaddress
+import logging
 import os
 import sys
 import threading
@@ -130,6 +131,8 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     print(f"Dashboard on {url} (case '{entry.name}'; press Ctrl+C to stop)")
     if open_browser and can_open_browser():
         _open_browser_later(url if host.strip() not in ("0.0.0.0", "::") else url_for("127.0.0.1", port))
+    if not debug:  # one line per request is noise for a local tool; errors still show
+        logging.getLogger("werkzeug").setLevel(logging.WARNING)
     try:
         app.run(host=host, port=port, debug=debug, use_reloader=False, dev_tools_hot_reload=False)
     except KeyboardInterrupt:
