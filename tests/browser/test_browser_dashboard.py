@@ -72,6 +72,16 @@ def test_page_loads_without_console_errors(tab, artifacts, path, ready, name):
 
 
 def test_journey(tab, artifacts):
+    try:
+        journey(tab, artifacts)
+    except Exception:
+        page = tab.page
+        page.screenshot(path=artifacts / "journey_failure.png", full_page=True)
+        print("URL", page.url, "| storage", page.evaluate("JSON.stringify(sessionStorage)"), "| console", tab.errors)
+        raise
+
+
+def journey(tab, artifacts):
     page = tab.goto("/inputs", PAGES[-1][1])
     demo_npv = page.locator("#inputs-headline-npv").inner_text()
 

@@ -1,0 +1,1 @@
+"""Browser tests of the dashboard (Playwright on the system Chromium)."""
