@@ -79,8 +79,8 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     + min(n_a c_plan, t_plan,max), with the constants of this module (measured by
     ``benchmarks/bench_fleet.py``). Peak = base + per-interval store (every option when it fits
     :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the larger of the
-    physics (the largest site's per-option arrays and one block's temporaries) and the economics (one
-    site's meter arrays and the per-asset-option tables).
+    physics (the largest site's today's power, one block's per-option arrays and temporaries) and the
+    economics (one site's meter arrays and the per-asset-option tables).
     """
     if workers < 1:
         raise ValueError("workers must be >= 1")
@@ -96,7 +96,8 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
     store = interval_bytes(n_a, n_o, n_t) if dense else interval_bytes(n_a, 1, n_t)
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-    physics_peak = interval_bytes(largest, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
+    physics_peak = (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
+                    + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o
     peak = BASE_BYTES + store + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else
