@@ -2,10 +2,18 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
+
+# In CI every property test draws the same examples run after run (no flaky red runs); locally the
+# examples vary, and Hypothesis keeps the failures it finds in .hypothesis/.
+settings.register_profile("ci", derandomize=True, print_blob=True)
+if os.environ.get("CI"):
+    settings.load_profile("ci")
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
