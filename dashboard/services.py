@@ -1052,3 +1052,24 @@ def blank_template_bytes() -> bytes:
         path = Path(tmp) / "drivecase-blank-case.xlsx"
         case_io.write_blank_case(path, workbook=True)
         return path.read_bytes()
+
+
+def pack_zip_bytes(view_: View) -> bytes:
+    """The capital-request pack for this view's plan (workbook, HTML report, decision records), zipped.
+
+    The pack is written by :func:`models.pack.write_pack` into a temporary folder (no PDF: that needs a
+    browser process) and zipped in memory; nothing is written into the case.
+    """
+    import io
+    import zipfile
+
+    from models.pack import write_pack
+
+    result = view_.result(with_risk=True)
+    with tempfile.TemporaryDirectory(prefix="drivecase-pack-") as tmp:
+        written = write_pack(view_.case, result, tmp, assets=None, plan=True, pdf=False)
+        buffer = io.BytesIO()
+        with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
+            for path in sorted(written):
+                archive.write(path, arcname=str(Path(path).relative_to(tmp)))
+        return buffer.getvalue()

@@ -490,3 +490,15 @@ class TestServer:
         assert f"Dashboard on http://127.0.0.1:{port}" in captured.out
         assert "WARNING" not in captured.out  # loopback by default: no network warning
         assert "cannot listen" in captured.err
+
+
+def test_pack_download_holds_the_workbook_report_and_records(engine):
+    """The plan page's download: one zip with the workbook, the report and a decision record per project."""
+    import zipfile
+
+    view_ = services.view(None, None)
+    data = services.pack_zip_bytes(view_)
+    names = zipfile.ZipFile(io.BytesIO(data)).namelist()
+    assert "capital-request.xlsx" in names and "capital-request.html" in names
+    records = [n for n in names if n.startswith("decision-records/")]
+    assert len(records) == len(view_.result(with_risk=True).plan)

@@ -19,6 +19,9 @@ CHOSEN = "plan-chosen"
 DIFFERENCES = "plan-differences"
 SUMMARY = "plan-summary"
 NOTICE = "plan-notice"
+PACK_BUTTON = "plan-pack-button"
+PACK = "plan-pack"
+PACK_STATUS = "plan-pack-status"
 
 
 def layout(**_query):
@@ -39,6 +42,13 @@ def layout(**_query):
         ui.data_grid(CHOSEN, height=380),
         html.H3("Where the two plans differ"),
         ui.data_grid(DIFFERENCES, height=240),
+        html.Div([html.H3("Capital-request pack"),
+                  html.P("An auditable workbook with live NPV, IRR and payback formulas, a self-contained report "
+                         "and a one-page decision record per asset, for this plan and these assumptions.",
+                         className="page-intro"),
+                  html.Button("Download the capital-request pack (.zip)", id=PACK_BUTTON, className="button"),
+                  dcc.Loading(html.Div(id=PACK_STATUS, className="form-message", role="status"), type="dot"),
+                  dcc.Download(id=PACK)], className="panel"),
     ])
 
 
@@ -100,3 +110,15 @@ def update(_ready, session, edits):
     return (figures.plan_by_year(by_year, c), figures.plan_comparison(comparison, c),
             tables["exact"].to_dict("records"), project_columns(c),
             tables["differences"].to_dict("records"), diff_columns, summary, view.notice)
+
+
+@callback(Output(PACK, "data"), Output(PACK_STATUS, "children"), Input(PACK_BUTTON, "n_clicks"),
+          State(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
+def pack(_clicks, session, edits):
+    """Write the capital-request pack for the tab's case, plan and assumptions, and send it zipped."""
+    view_ = services.view(session, edits)
+    try:
+        data = services.pack_zip_bytes(view_)
+    except ValueError as exc:
+        return no_update, f"The pack could not be written: {exc}"
+    return dcc.send_bytes(data, "drivecase-capital-request-pack.zip"), "Pack ready: see your downloads."
