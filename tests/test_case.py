@@ -86,7 +86,7 @@ class TestAssetRules:
 
     def test_unknown_site(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "site_id", "S9")))
-        _find(problems, row=2, column="site_id", text="unknown site_id")
+        assert _find(problems, row=2, column="site_id", text="unknown site_id")
 
     def test_unknown_profile(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "profile_id", "LP9")))
@@ -95,38 +95,38 @@ class TestAssetRules:
     def test_speed_at_or_above_synchronous(self, tmp_path):
         # 120 f / p = 120 * 50 / 4 = 1500 rpm (REFERENCES 2); an induction motor must run below it
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "rated_speed_rpm", "1500")))
-        _find(problems, row=2, column="rated_speed_rpm", text="below synchronous speed")
+        assert _find(problems, row=2, column="rated_speed_rpm", text="below synchronous speed")
 
     def test_speed_with_implausible_slip(self, tmp_path):
         # 1000 rpm on a 4-pole 50 Hz motor is 33 % slip: the poles are probably 6 (hand calculation)
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "rated_speed_rpm", "1000")))
-        _find(problems, row=2, column="rated_speed_rpm", text="implausible")
+        assert _find(problems, row=2, column="rated_speed_rpm", text="implausible")
 
     @pytest.mark.parametrize(("column", "value"), [("rated_power_factor", "1.2"), ("rated_efficiency_pct", "101"),
                                                    ("rated_efficiency_pct", "0.92")])
     def test_power_factor_and_efficiency_range(self, tmp_path, column, value):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, column, value)))
-        _find(problems, row=3, column=column, text="must lie between")
+        assert _find(problems, row=3, column=column, text="must lie between")
 
     def test_load_above_125_pct(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "mean_load_pct", "140")))
-        _find(problems, row=3, column="mean_load_pct", text="must lie between")
+        assert _find(problems, row=3, column="mean_load_pct", text="must lie between")
 
     def test_hours_above_a_leap_year(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "operating_h_per_yr", "8785")))
-        _find(problems, row=3, column="operating_h_per_yr", text="8784")
+        assert _find(problems, row=3, column="operating_h_per_yr", text="8784")
 
     def test_not_a_number(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "poles", "four")))
-        _find(problems, row=2, column="poles", text="must be a number")
+        assert _find(problems, row=2, column="poles", text="must be a number")
 
     def test_odd_poles(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "poles", "5")))
-        _find(problems, row=2, column="poles", text="even")
+        assert _find(problems, row=2, column="poles", text="even")
 
     def test_unknown_category(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "application", "pumpp")))
-        _find(problems, row=2, column="application", text="must be one of")
+        assert _find(problems, row=2, column="application", text="must be one of")
 
     def test_category_synonyms_accepted(self, tmp_path):
         case, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "speed_control", "VFD")))
@@ -136,24 +136,24 @@ class TestAssetRules:
     def test_no_load_data(self, tmp_path):
         rows = _assets_with(1, "operating_h_per_yr", "")
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=rows))
-        _find(problems, row=3, text="give a profile_id, or both")
+        assert _find(problems, row=3, text="give a profile_id, or both")
 
     def test_missing_required_column(self, tmp_path):
         header = [h for h in cb.ASSET_HEADER if h != "poles"]
         rows = [[v for h, v in zip(cb.ASSET_HEADER, r) if h != "poles"] for r in cb.ASSETS]
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
-        _find(problems, file="assets.csv", column="poles", text="required column")
+        assert _find(problems, file="assets.csv", column="poles", text="required column")
 
     def test_required_cell_blank(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(2, "application", "")))
-        _find(problems, row=4, column="application", text="required")
+        assert _find(problems, row=4, column="application", text="required")
 
     def test_kw_and_hp_disagree(self, tmp_path):
         header = cb.ASSET_HEADER + ["rated_p_hp"]
         rows = [r + [""] for r in copy.deepcopy(cb.ASSETS)]
         rows[0][-1] = "30"  # 30 hp = 22.4 kW against 15 kW
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
-        _find(problems, row=2, column="rated_p_hp", text="disagree")
+        assert _find(problems, row=2, column="rated_p_hp", text="disagree")
 
     def test_rating_in_hp_is_converted(self, tmp_path):
         header = cb.ASSET_HEADER + ["rated_p_hp"]
@@ -171,14 +171,14 @@ class TestAssetRules:
 
     def test_year_in_the_future(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "year_installed", "2099")))
-        _find(problems, row=2, column="year_installed", text="after the current year")
+        assert _find(problems, row=2, column="year_installed", text="after the current year")
 
     def test_unknown_column_is_a_warning(self, tmp_path):
         header = cb.ASSET_HEADER + ["colour"]
         rows = [r + ["blue"] for r in cb.ASSETS]
         case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
         assert case is not None
-        _find(problems, column="colour", text="unknown column", severity="warning")
+        assert _find(problems, column="colour", text="unknown column", severity="warning")
 
     def test_headers_with_aliases_and_case(self, tmp_path):
         header = ["Asset ID" if h == "asset_id" else "Rated kW" if h == "rated_p_kw" else h for h in cb.ASSET_HEADER]
@@ -189,12 +189,12 @@ class TestAssetRules:
     def test_decimal_comma_repaired_with_warning(self, tmp_path):
         case, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "rated_p_kw", "7,5")))
         assert case is not None
-        _find(problems, row=3, column="rated_p_kw", text="decimal comma", severity="warning")
+        assert _find(problems, row=3, column="rated_p_kw", text="decimal comma", severity="warning")
         assert_allclose(case.assets.loc[1, "rated_p_kw"], 7.5)
 
     def test_empty_register(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=[]))
-        _find(problems, file="assets.csv", text="no rows")
+        assert _find(problems, file="assets.csv", text="no rows")
 
 
 class TestProfileRules:
@@ -203,7 +203,7 @@ class TestProfileRules:
         rows.insert(5, list(rows[4]))
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
         # header is line 1, so the inserted copy of the 5th data row sits on line 7
-        _find(problems, file="profiles.csv", row=7, column="timestamp", text="repeated")
+        assert _find(problems, file="profiles.csv", row=7, column="timestamp", text="repeated")
 
     def test_daylight_saving_gap(self, tmp_path):
         # 30 March 2025: clocks in Europe/Berlin jump from 02:00 to 03:00 (EU summer-time rule, Directive 2000/84/EC)
@@ -229,13 +229,13 @@ class TestProfileRules:
     def test_resolution_not_allowed(self, tmp_path):
         rows = [["LP1", f"2025-01-02 00:{m:02d}", "50"] for m in range(0, 60, 10)]
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
-        _find(problems, file="profiles.csv", text="allowed are 15, 30 or 60 min")
+        assert _find(problems, file="profiles.csv", text="allowed are 15, 30 or 60 min")
 
     def test_load_above_125_in_profile(self, tmp_path):
         rows = cb.profile_rows()
         rows[3][2] = "180"
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
-        _find(problems, file="profiles.csv", row=5, column="shaft_load_pct", text="above 125")
+        assert _find(problems, file="profiles.csv", row=5, column="shaft_load_pct", text="above 125")
 
     def test_input_kw_profile_above_rating(self, tmp_path):
         # P1 is 15 kW at about 92 % efficiency: 125 % of its rated input is about 20 kW; 40 kW is too much
@@ -243,52 +243,52 @@ class TestProfileRules:
         folder = cb.write_case(tmp_path / "c")
         cb.write_csv(folder / "profiles.csv", ["profile_id", "timestamp", "shaft_load_pct", "input_kw"], rows)
         _, problems = load_case(folder)
-        _find(problems, file="assets.csv", row=2, column="profile_id", text="above 125 %")
+        assert _find(problems, file="assets.csv", row=2, column="profile_id", text="above 125 %")
 
     def test_short_profile_warned(self, tmp_path):
         case, problems = load_case(cb.write_case(tmp_path / "c"))
         assert case is not None
-        _find(problems, file="profiles.csv", severity="warning", text="less than a year")
+        assert _find(problems, file="profiles.csv", severity="warning", text="less than a year")
 
     def test_bad_timestamp_text(self, tmp_path):
         rows = cb.profile_rows()
         rows[2][1] = "yesterday"
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
-        _find(problems, file="profiles.csv", row=4, column="timestamp", text="not readable")
+        assert _find(problems, file="profiles.csv", row=4, column="timestamp", text="not readable")
 
 
 class TestOtherTables:
     def test_duplicate_site(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", sites=cb.SITES + [["S1", "Again", "0", "0.9"]]))
-        _find(problems, file="sites.csv", row=3, column="site_id", text="duplicate")
+        assert _find(problems, file="sites.csv", row=3, column="site_id", text="duplicate")
 
     def test_capacitor_unknown_site_and_oversized_step(self, tmp_path):
         caps = [["S2", "B1", "60", "stepped", "10", "0.95"], ["S1", "B2", "60", "stepped", "90", "0.95"]]
         _, problems = load_case(cb.write_case(tmp_path / "c", capacitors=caps))
-        _find(problems, file="capacitors.csv", row=2, column="site_id", text="unknown site_id")
-        _find(problems, file="capacitors.csv", row=3, column="step_q_kvar", text="larger than the bank")
+        assert _find(problems, file="capacitors.csv", row=2, column="site_id", text="unknown site_id")
+        assert _find(problems, file="capacitors.csv", row=3, column="step_q_kvar", text="larger than the bank")
 
     def test_duty_hours_over_a_year(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", duty=[["D1", "80", "6000"], ["D1", "40", "3000"]]))
-        _find(problems, file="duty.csv", row=2, column="duration_h_per_yr", text="more than 8784")
+        assert _find(problems, file="duty.csv", row=2, column="duration_h_per_yr", text="more than 8784")
 
     def test_bad_settings(self, tmp_path):
         toml = '[case]\nname = "x"\ncurrency = "euro"\ntime_zone = "Mars/Olympus"\n'
         _, problems = load_case(cb.write_case(tmp_path / "c", case_toml=toml))
-        _find(problems, file="case.toml", column="currency", text="ISO 4217")
-        _find(problems, file="case.toml", column="time_zone", text="IANA")
+        assert _find(problems, file="case.toml", column="currency", text="ISO 4217")
+        assert _find(problems, file="case.toml", column="time_zone", text="IANA")
 
     def test_missing_required_table(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")
         (folder / "sites.csv").unlink()
         _, problems = load_case(folder)
-        _find(problems, file="sites.csv", text="required table 'sites' is missing")
+        assert _find(problems, file="sites.csv", text="required table 'sites' is missing")
 
     def test_empty_file(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")
         (folder / "sites.csv").write_bytes(b"")
         _, problems = load_case(folder)
-        _find(problems, file="sites.csv", text="empty")
+        assert _find(problems, file="sites.csv", text="empty")
 
     def test_missing_case_path(self, tmp_path):
         case, problems = load_case(tmp_path / "nowhere")

@@ -72,8 +72,10 @@ def test_page_loads_without_console_errors(tab, artifacts, path, ready, name):
 
 
 def test_journey(tab, artifacts):
+    """The whole journey; every step's checks (Playwright expect and assert) live in :func:`journey`."""
     try:
         journey(tab, artifacts)
+        assert tab.errors == [], f"console errors during the journey: {tab.errors}"
     except Exception:
         page = tab.page
         page.screenshot(path=artifacts / "journey_failure.png", full_page=True)
