@@ -220,7 +220,8 @@ class TestCorpus:
     @pytest.mark.parametrize("entry", sorted(CORPUS))
     def test_entry(self, entry, tmp_path):
         loads, expected = CORPUS[entry]
-        _check(_build(entry, tmp_path), loads, expected)
+        case, _ = _check(_build(entry, tmp_path), loads, expected)
+        assert (case is not None) == loads
 
     def test_every_corpus_folder_has_expectations_and_a_readme_line(self):
         folders = {p.name for p in MALFORMED.iterdir() if p.is_dir() and not p.name.startswith("__")}
@@ -236,7 +237,8 @@ class TestCorpus:
 
     def test_corpus_read_in_place_is_unchanged(self):
         # the standalone entry is a case folder on its own: read it where it is checked in
-        _check(MALFORMED / "folder_without_tables", False, (), watch=MALFORMED)
+        case, problems = _check(MALFORMED / "folder_without_tables", False, (), watch=MALFORMED)
+        assert case is None and problems
 
 
 class TestRepairedValues:
@@ -357,8 +359,9 @@ class TestWorkbooks:
         path, book = _workbook(tmp_path)
         book["assets"]["E3"] = "=15/2"  # F1's rated_p_kw; a library-written formula has no saved result
         book.save(path)
-        _check(path, False, (W("case.xlsx:assets", 3, "rated_p_kw", "formula with no saved result"),
-                             E("case.xlsx:assets", 3, "rated_p_kw", "rated power is required")))
+        case, _ = _check(path, False, (W("case.xlsx:assets", 3, "rated_p_kw", "formula with no saved result"),
+                                      E("case.xlsx:assets", 3, "rated_p_kw", "rated power is required")))
+        assert case is None
 
     def test_formula_with_saved_result_uses_it(self, tmp_path):
         path, book = _workbook(tmp_path)
@@ -373,8 +376,9 @@ class TestWorkbooks:
         book["assets"]["M2"] = dt.datetime(2015, 6, 1)       # year_installed of P1
         book["assets"]["E3"] = dt.datetime(1900, 1, 7, 12)   # 7.5 shown as a date
         book.save(path)
-        _check(path, False, (W("case.xlsx:assets", 2, "year_installed", "its year was used"),
-                             E("case.xlsx:assets", 3, "rated_p_kw", "date", "number")))
+        case, _ = _check(path, False, (W("case.xlsx:assets", 2, "year_installed", "its year was used"),
+                                      E("case.xlsx:assets", 3, "rated_p_kw", "date", "number")))
+        assert case is None
 
     def test_timestamps_as_date_cells_and_as_serial_numbers(self, tmp_path):
         path, book = _workbook(tmp_path)
@@ -400,8 +404,9 @@ class TestWorkbooks:
         book.create_sheet("sites")
         book.create_sheet("tariff t.toml").append(["[tariff"])
         book.save(path)
-        _check(path, False, (E("case.xlsx:sites", None, None, "sheet is empty"),
-                             E("case.xlsx:tariff t.toml", ANY, None, "TOML syntax error")))
+        case, _ = _check(path, False, (E("case.xlsx:sites", None, None, "sheet is empty"),
+                                      E("case.xlsx:tariff t.toml", ANY, None, "TOML syntax error")))
+        assert case is None
 
 
 class TestCasePaths:
@@ -428,7 +433,8 @@ class TestCasePaths:
         folder = cb.write_case(tmp_path / "c")
         (folder / "sites.csv").unlink()
         (folder / "sites.csv").mkdir()
-        _check(folder, False, (E("sites.csv", None, None, "required table 'sites' is missing"),))
+        case, _ = _check(folder, False, (E("sites.csv", None, None, "required table 'sites' is missing"),))
+        assert case is None
 
     @pytest.mark.skipif(os.name != "posix" or os.geteuid() == 0, reason="needs a non-root POSIX user to deny reading")
     def test_unreadable_file(self, tmp_path):

@@ -212,7 +212,8 @@ def test_no_warning_without_pdf(small, tmp_path):
     case, result = small
     with warnings.catch_warnings():
         warnings.simplefilter("error", PackWarning)
-        write_pack(case, result, tmp_path, assets=["F1"], plan=False)
+        written = write_pack(case, result, tmp_path, assets=["F1"], plan=False)
+    assert written and all(path.is_file() for path in written)
 
 
 def test_run_without_risk_and_an_empty_plan(small, tmp_path):
