@@ -402,7 +402,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         tornado_rows, risk_rows = _risk(flows, assumptions, results, d)
 
     step("bills")
-    bills = _bills(case, op, plan_frames[0])
+    bills = _bills(case, op, plan_frames[0], sav.baseline_bills)
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills)
 
@@ -471,10 +471,7 @@ def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, proje
     bill per kWh. An option's running cost is that less its bill saving, so LCC(keep) - LCC(option) is
     the option's NPV whenever the capital components match (common convention, NIST Handbook 135).
     """
-    _, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))
-    site_total = bills.groupby("site_id")["amount"].sum()
-    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
-    price = (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+    price = _mean_bill_per_kwh(op, sav.baseline_bills)
     years = np.arange(horizon + 1)
     disc = 1.0 / (1.0 + d) ** years
 
@@ -565,11 +562,7 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     new_pos = np.where(op.applies[:, new_candidates], capex_total[:, new_candidates], np.inf).argmin(axis=1)
     new_o = new_candidates[new_pos]
     rows = np.arange(n_a)
-    setups = site_setups(case, op.index)
-    _, bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
-    site_total = bills.groupby("site_id")["amount"].sum()
-    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
-    price = (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+    price = _mean_bill_per_kwh(op, sav.baseline_bills)
     running_old = op.energy_kwh[:, 0] * price
     downtime = a["downtime_cost_per_h"].to_numpy(dtype=float)
     default_dt = a["criticality"].map(DOWNTIME_COST_BY_CRITICALITY).to_numpy(dtype=float)
@@ -632,11 +625,17 @@ def _risk(flows, assumptions, results, d):
     return tornado_rows, summary
 
 
-def _bills(case, op, plan_frame: pd.DataFrame) -> pd.DataFrame:
-    """Monthly bills of today's fleet and of the fleet with the exact plan in place."""
+def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
+    """Each asset's site bill per kWh of today's motors [currency/kWh] (the running-cost share rule)."""
+    site_total = baseline_bills.groupby("site_id")["amount"].sum()
+    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
+    return (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+
+
+def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame) -> pd.DataFrame:
+    """Monthly bills of today's fleet (computed with the physics) and of the fleet with the exact plan."""
     setups = site_setups(case, op.index)
     baseline_choice = np.zeros(len(op.asset_ids), dtype=int)
-    _, base = meter_and_bills(case, op, baseline_choice, setups)
     choice = baseline_choice.copy()
     for r in plan_frame.itertuples(index=False):
         choice[op.asset_position(r.asset_id)] = op.option_position(r.option_id)
