@@ -128,6 +128,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
     return 0
 
 
+#: Runs estimated above these are announced before they start (time [s], peak memory [bytes]).
+LARGE_RUN_S = 60.0
+LARGE_RUN_BYTES = 4 * 1024**3
 STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
 
 
@@ -145,7 +148,13 @@ def cmd_run(args: argparse.Namespace) -> int:
     assumptions = case.finance
     if args.seed is not None:
         assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
+    from models.estimate import estimate_run
+
+    estimate = estimate_run(case, workers=2 if args.engine == "dask" else 1)
+    if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
+        print(f"Large run ahead: {estimate.note}", file=sys.stderr)
     bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)
+    site_bar = None
 
     def progress(stage: str) -> None:
         bar.set_postfix_str(stage)
@@ -156,8 +165,13 @@ def cmd_run(args: argparse.Namespace) -> int:
         if args.engine == "dask":
             from models.distributed import run_distributed
 
+            site_bar = tqdm(total=len(case.sites), desc="sites", unit="site", file=sys.stderr, disable=args.quiet)
+
+            def site_progress(_site_id: str, done: int, _total: int) -> None:
+                site_bar.update(done - site_bar.n)
+
             result = run_distributed(case, assumptions, scheduler=args.scheduler, progress=progress,
-                                     with_risk=not args.no_risk)
+                                     with_risk=not args.no_risk, site_progress=site_progress)
         else:
             result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk)
     except ValueError as exc:
@@ -166,6 +180,8 @@ def cmd_run(args: argparse.Namespace) -> int:
         return 1
     bar.update(bar.total - bar.n)
     bar.close()
+    if site_bar is not None:
+        site_bar.close()
     written = write_run(result, args.out)
     _print_run_summary(case, result)
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")

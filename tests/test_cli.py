@@ -97,3 +97,18 @@ def test_bad_arguments_exit_2():
     with pytest.raises(SystemExit) as info:
         main(["frobnicate"])
     assert info.value.code == 2
+
+
+def test_run_announces_a_large_run_and_drives_the_dask_engine(tmp_path, capsys, monkeypatch):
+    from drivecase import cli
+    from test_scenario import _one_asset_case
+
+    _one_asset_case(tmp_path / "case")
+    monkeypatch.setattr(cli, "LARGE_RUN_S", 0.0)  # every run counts as large: the estimate is printed first
+    assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "local"), "--no-risk"]) == 0
+    assert "Large run ahead" in capsys.readouterr().err
+    assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "dask"), "--no-risk", "--engine", "dask"]) == 0
+    err = capsys.readouterr().err
+    assert "sites" in err  # the per-site progress bar of the Dask engine
+    local = (tmp_path / "local" / "results.csv").read_bytes()
+    assert local == (tmp_path / "dask" / "results.csv").read_bytes()
