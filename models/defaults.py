@@ -103,6 +103,35 @@ def _class_from_year(year: np.ndarray, f_hz: np.ndarray) -> np.ndarray:
     return out
 
 
+def class_floor_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
+    """Return a class's minimum efficiency read within the tables' scope [%].
+
+    Ratings are clipped to 0.12-1000 kW and pole counts above 8 read as 8-pole, so every motor gets a
+    class floor; see :func:`models.efficiency_classes.min_efficiency_pct` for the tables.
+
+    Examples
+    --------
+    >>> float(class_floor_pct(15, 4, 50, "IE3")), float(class_floor_pct(1600, 10, 50, "IE3"))
+    (92.1, 94.6)
+    """
+    poles = np.asarray(poles, dtype=float)
+    poles_in_table = np.where(np.isin(poles, [2, 4, 6, 8]), poles, np.where(poles > 8, 8, 2))
+    f = np.where(np.asarray(f_hz, dtype=float) == 60, 60, 50)
+    return min_efficiency_pct(np.clip(np.asarray(rated_p_kw, dtype=float), 0.12, 1000.0), poles_in_table, f,
+                              efficiency_class)
+
+
+def catalogue_efficiency_pct(floor_pct) -> np.ndarray:
+    """Return a catalogue motor's efficiency from its class floor: the floor's losses less the margin [%].
+
+    Examples
+    --------
+    >>> round(float(catalogue_efficiency_pct(92.1)), 2)
+    92.89
+    """
+    return 100.0 - (1.0 - CLASS_MARGIN_LOSS_FRAC) * (100.0 - np.asarray(floor_pct, dtype=float))
+
+
 def default_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class, year_installed, machine_type):
     """Return a default full-load efficiency and its basis for motors without a nameplate value.
 
@@ -138,9 +167,8 @@ def default_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class, year_insta
     known = np.isin(cls, ["IE1", "IE2", "IE3", "IE4", "IE5"])
     by_year = _class_from_year(np.nan_to_num(year, nan=0.0), f)
     use_cls = np.where(known, cls, by_year)
-    poles_in_table = np.where(np.isin(poles, [2, 4, 6, 8]), poles, np.where(poles > 8, 8, 2))
-    floor = min_efficiency_pct(np.clip(p, 0.12, 1000.0), poles_in_table, np.where(f == 60, 60, 50), use_cls)
-    eta = 100.0 - (1.0 - CLASS_MARGIN_LOSS_FRAC) * (100.0 - floor)
+    floor = class_floor_pct(p, poles, f, use_cls)
+    eta = catalogue_efficiency_pct(floor)
     old = ~known & ~np.isnan(year) & (year < PRE_RULE_YEAR)
     eta = np.where(old, 100.0 - PRE_RULE_LOSS_RATIO * (100.0 - floor), eta)
     large = p > 1000.0

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, _with_baseline, case_index, interval_bytes,
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, options_with_baseline, case_index, interval_bytes,
                               site_partition)
 
 #: Machines stage per asset-option-step [s]: 133.3 s for 10,000 assets x 11 options x 8,760 steps
@@ -88,7 +88,7 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     if workers < 1:
         raise ValueError("workers must be >= 1")
     n_a = len(case.assets)
-    n_o = len(_with_baseline(case.options))
+    n_o = len(options_with_baseline(case.options))
     n_t = len(case_index(case))
     sites = site_partition(case)
     largest = max((len(rows) for _, rows in sites), default=0)

@@ -17,9 +17,8 @@ import numpy as np
 import pandas as pd
 
 from models import drives, induction, loads, synchronous
-from models.defaults import CLASS_MARGIN_LOSS_FRAC, default_power_factor
-from models.efficiency_classes import min_efficiency_pct
-from models.profiles import LoadStates, analysis_index, asset_loads
+from models.defaults import catalogue_efficiency_pct, class_floor_pct, default_power_factor
+from models.profiles import analysis_index, asset_loads
 
 #: Loss kinds reported per asset and option.
 LOSS_KINDS: tuple[str, ...] = ("motor", "drive", "excitation")
@@ -184,12 +183,10 @@ def class_efficiency_frac(arr: dict[str, np.ndarray], efficiency_class: str) -> 
     Above the class scope (over 1000 kW) the existing motor's losses are scaled by the class-to-class
     loss ratio of a 1000 kW motor instead.
     """
-    p_in_scope = np.clip(arr["rated_p_kw"], 0.12, 1000.0)
-    poles = np.where(np.isin(arr["poles"], [2, 4, 6, 8]), arr["poles"], 8.0)
-    floor = min_efficiency_pct(p_in_scope, poles, np.where(arr["f_hz"] == 60, 60, 50), efficiency_class)
-    eta = (100.0 - (1.0 - CLASS_MARGIN_LOSS_FRAC) * (100.0 - floor)) / 100.0
+    floor = class_floor_pct(arr["rated_p_kw"], arr["poles"], arr["f_hz"], efficiency_class)
+    eta = catalogue_efficiency_pct(floor) / 100.0
     # above 1000 kW: the class step at 1000 kW applied to today's losses
-    ratio = (100.0 - floor) / (100.0 - min_efficiency_pct(1000.0, poles, np.where(arr["f_hz"] == 60, 60, 50), "IE2"))
+    ratio = (100.0 - floor) / (100.0 - class_floor_pct(1000.0, arr["poles"], arr["f_hz"], "IE2"))
     large = arr["rated_p_kw"] > 1000.0
     eta_large = 1.0 - np.minimum(ratio, 1.0) * (1.0 - arr["eff_frac"])
     return np.where(large, np.maximum(eta_large, arr["eff_frac"]), eta)
@@ -592,7 +589,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
 
     a = case.assets.iloc[rows].reset_index(drop=True)
     block = replace(case, assets=a)
-    options = _with_baseline(case.options)
+    options = options_with_baseline(case.options)
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
     arr_all = asset_arrays(a)
@@ -985,7 +982,7 @@ def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | Non
     """
     index = case_index(case) if index is None else index
     partition = site_partition(case)
-    n_o = len(_with_baseline(case.options))
+    n_o = len(options_with_baseline(case.options))
     if dense is None:
         dense = interval_bytes(len(case.assets), n_o, len(index)) <= DENSE_INTERVAL_BUDGET_BYTES
     merger = _Merger(len(case.assets), len(index), dense=dense,
@@ -1000,7 +997,7 @@ def interval_bytes(n_assets: int, n_options: int, n_steps: int) -> int:
     return 2 * 8 * int(n_assets) * int(n_options) * int(n_steps)
 
 
-def _with_baseline(options: pd.DataFrame) -> pd.DataFrame:
+def options_with_baseline(options: pd.DataFrame) -> pd.DataFrame:
     """Put today's motor ('existing') first, adding an implicit row when the catalogue has none."""
     tech = options["technology"].to_numpy(dtype=object)
     if (tech == "existing").any():
@@ -1041,7 +1038,7 @@ def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     pos = np.flatnonzero(a["asset_id"].to_numpy(dtype=object) == asset_id)
     if not len(pos):
         raise ValueError(f"unknown asset '{asset_id}'")
-    options = _with_baseline(case.options)
+    options = options_with_baseline(case.options)
     ok, _ = applicability(options, a.iloc[pos])
     ok[:, 0] = True
     arr = _take(asset_arrays(a), pos)

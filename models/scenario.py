@@ -21,7 +21,7 @@ import pandas as pd
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
-from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, OperatingResult, _Merger, _SiteRecompute, _with_baseline,
+from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, OperatingResult, _Merger, _SiteRecompute, options_with_baseline,
                               case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.regulations import class_rank, minimum_class
@@ -166,7 +166,7 @@ class PhysicsMerger:
                  dense: bool | None = None):
         self.case, self.index, self.cost = case, index, float(capacitor_cost_per_kvar)
         self.partition = site_partition(case)
-        n_a, n_o = len(case.assets), len(_with_baseline(case.options))
+        n_a, n_o = len(case.assets), len(options_with_baseline(case.options))
         if dense is None:
             dense = interval_bytes(n_a, n_o, len(index)) <= DENSE_INTERVAL_BUDGET_BYTES
         self.ops = _Merger(n_a, len(index), dense=dense,
@@ -434,10 +434,9 @@ def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str],
 # Pieces
 # ---------------------------------------------------------------------------------------------------
 def _options_in_order(case, op: OperatingResult) -> pd.DataFrame:
-    from models.operation import _with_baseline
-
-    options = _with_baseline(case.options)
-    assert list(options["option_id"]) == list(op.option_ids)
+    options = options_with_baseline(case.options)
+    if list(options["option_id"]) != list(op.option_ids):
+        raise ValueError("the operating result was computed with another options catalogue than the case's")
     return options
 
 

@@ -17,7 +17,7 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from models import drives, induction, synchronous
+from models import induction, synchronous
 
 OUT = Path(__file__).resolve().parents[1] / "img"
 LOAD_FRAC = np.linspace(0.05, 1.25, 49)

@@ -165,7 +165,6 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
         raise ValueError("nothing to report: give asset ids or ask for the plan")
     plan_rows = result.plan if plan else result.plan.iloc[0:0]
     plan_key = dict(zip(plan_rows["asset_id"] + "/" + plan_rows["option_id"], plan_rows["start_yr"].astype(int)))
-    plan_choice = dict(zip(plan_rows["asset_id"], plan_rows["option_id"]))
     fleet_choice = dict(zip(result.plan["asset_id"], result.plan["option_id"]))
     fleet_start = dict(zip(result.plan["asset_id"], result.plan["start_yr"].astype(int)))
     in_scope = set(wanted) | set(plan_rows["asset_id"])
