@@ -253,6 +253,7 @@ class Engine:
         self._cases: OrderedDict[str, CaseEntry] = OrderedDict()
         self._physics: dict[str, object] = {}
         self._results: OrderedDict[tuple, object] = OrderedDict()
+        self._last_plan: dict[str, tuple] = {}
         self._derived: OrderedDict[tuple, object] = OrderedDict()
         self.default_key: str | None = None
         self.counts = {"physics": 0, "economics": 0}
@@ -327,6 +328,7 @@ class Engine:
     def _forget(self, key: str) -> None:
         """Drop every cached computation of a case (lock held)."""
         self._physics.pop(key, None)
+        self._last_plan.pop(key, None)
         for cache in (self._results, self._derived):
             for k in [k for k in cache if k[0] == key]:
                 cache.pop(k, None)
@@ -374,21 +376,39 @@ class Engine:
 
         return self._once(self._physics, key, compute)
 
-    def result(self, key: str, assumptions, with_risk: bool = False):
-        """Return the economics of a case under assumptions (cached; a run with risk serves both asks)."""
+    def result(self, key: str, assumptions, with_risk: bool = False, precise: bool = False):
+        """Return the economics of a case under assumptions (cached).
+
+        A live ask (``precise=False``) bounds the exact plan's solve (:data:`models.scenario.LIVE_PLAN`)
+        and starts it from the last plan of the same case, so an edit answers at once; a precise ask
+        (the pack, the "prove" button) solves it to :data:`models.scenario.PRECISE_PLAN`. A cached result
+        at least as rich serves any ask: with risk serves without, precise serves live.
+        """
         with self._lock:
-            richer = self._results.get((key, assumptions, True))
-        if richer is not None:
-            return richer
+            for risk_ok in ((True,) if with_risk else (True, False)):
+                for precise_ok in ((True,) if precise else (True, False)):
+                    found = self._results.get((key, assumptions, risk_ok, precise_ok))
+                    if found is not None:
+                        self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
+                        return found
+            start = self._last_plan.get(key, ())
         entry = self.entry(key)
         if entry is None:
             raise KeyError(f"unknown case key {key!r}")
         phys = self.physics(key)
+        settings = scenario.PRECISE_PLAN if precise else replace(scenario.LIVE_PLAN, start=start)
 
         def compute():
-            return self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk))
+            out = self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk,
+                                                                      plan_settings=settings))
+            plan_ = getattr(out, "plan", None)
+            if isinstance(plan_, pd.DataFrame) and {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
+                with self._lock:
+                    self._last_plan[key] = tuple(zip((plan_["asset_id"] + "/" + plan_["option_id"]).tolist(),
+                                                     plan_["start_yr"].astype(int).tolist()))
+            return out
 
-        return self._once(self._results, (key, assumptions, bool(with_risk)), compute, self.max_results)
+        return self._once(self._results, (key, assumptions, bool(with_risk), bool(precise)), compute, self.max_results)
 
     def derived(self, key: str, name: str, args: tuple, compute: Callable[[], object]):
         """Cache a finance-independent or plan-dependent view of a case (curves, meters, loads)."""
@@ -574,9 +594,9 @@ class View:
     def power_unit(self) -> str:
         return "hp" if str(self.case.settings.power_unit).lower() == "hp" else "kW"
 
-    def result(self, with_risk: bool = False):
-        """The economics of this view (cached)."""
-        return engine().result(self.key, self.assumptions, with_risk=with_risk)
+    def result(self, with_risk: bool = False, precise: bool = False):
+        """The economics of this view (cached; ``precise`` proves the plan to the full-run gap)."""
+        return engine().result(self.key, self.assumptions, with_risk=with_risk, precise=precise)
 
     def physics(self):
         """The physics of this view's case (cached)."""
@@ -974,6 +994,26 @@ def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.Dat
     return pd.DataFrame(rows)
 
 
+def plan_solve_text(result) -> str:
+    """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time)."""
+    status = getattr(result, "plan_status", None) or {}
+    kind, gap = status.get("status"), status.get("gap_frac", float("nan"))
+    settings = status.get("settings")
+    if kind in ("unconstrained", "empty"):
+        return str(status.get("message", "")).capitalize() + "."
+    if kind == "failed":
+        return f"The exact plan could not be solved ({status.get('message', '')}); the rank-order plan stands."
+    if gap != gap:  # NaN: no bound known
+        return "Exact plan: no bound on how far it is from the best possible plan."
+    proven = f"proven within {gap * 100:.2g} % of the best possible plan NPV" if gap > 1e-9 else "proven optimal"
+    live = settings is not None and settings.time_limit_s < scenario.PRECISE_PLAN.time_limit_s
+    if kind == "time_limit":
+        return (f"Exact plan: best found in the {settings.time_limit_s:g} s allowed for a live edit, {proven}. "
+                "Prove it for the pack's precision." if live else f"Exact plan: the solver's time ran out; {proven}.")
+    return f"Exact plan {proven}" + (" (live edit: solved to 0.1 %)." if live and gap > scenario.PRECISE_PLAN.gap_frac
+                                      else ".")
+
+
 def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
     labels = result.results.set_index(_plan_keys(result.results))["label"]
@@ -1065,7 +1105,7 @@ def pack_zip_bytes(view_: View) -> bytes:
 
     from models.pack import write_pack
 
-    result = view_.result(with_risk=True)
+    result = view_.result(with_risk=True, precise=True)
     with tempfile.TemporaryDirectory(prefix="drivecase-pack-") as tmp:
         written = write_pack(view_.case, result, tmp, assets=None, plan=True, pdf=False)
         buffer = io.BytesIO()

@@ -3,7 +3,7 @@
 Each asset takes at most one of its options (or none), and each chosen project starts in one of the plan
 years; its capital falls in the years it is spent, shifted by the start year, and its NPV is discounted
 by the delay. :func:`plan_exact` maximises the total NPV under the yearly budgets as a 0-1 integer
-programme solved by HiGHS through :func:`scipy.optimize.milp`; :func:`plan_greedy` is the common
+programme solved by HiGHS (through its Python interface ``highspy``); :func:`plan_greedy` is the common
 "rank by profitability index and fund until the money runs out" rule; :func:`compare_plans` says how
 much NPV the simple rule leaves on the table. :func:`abatement_curve` sorts one best option per asset by
 its cost per tonne of CO2 for a marginal abatement cost curve.
@@ -12,11 +12,11 @@ its cost per tonne of CO2 for a marginal abatement cost curve.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Mapping
 
+import highspy
 import numpy as np
 import pandas as pd
-from scipy.optimize import Bounds, LinearConstraint, milp
 from scipy.sparse import coo_array
 
 _CHOSEN_COLUMNS = ["project_id", "asset_id", "start_yr", "npv", "npv_at_plan_start", "capital_in_plan_years"]
@@ -47,6 +47,9 @@ class FleetPlan:
         Plain-words note on the status.
     selection : numpy.ndarray
         0-1 matrix x[i, s] (project i starts in plan year s), shape (n_projects, n_plan_years).
+    gap_frac : float
+        Proven relative gap between the plan's NPV and the best NPV any plan could reach [frac]; 0 for
+        a plan proven optimal, NaN when no bound is known (greedy plans, solver failures).
     """
 
     chosen: pd.DataFrame
@@ -57,6 +60,7 @@ class FleetPlan:
     status: str
     message: str = ""
     selection: np.ndarray = field(default=None, repr=False)
+    gap_frac: float = float("nan")
 
 
 def _prepare(project_id: Any, asset_id: Any, npv_value: Any, capital_by_year: Any, budget_per_yr: Any,
@@ -97,10 +101,11 @@ def _prepare(project_id: Any, asset_id: Any, npv_value: Any, capital_by_year: An
         spend[:, s, s:s + width] = capital[:, :width]
     delay = np.power(1.0 + discount_rate_frac, -np.arange(years, dtype=float))
     return dict(projects=projects, assets=assets, value=value, capital=capital, budget=budget,
-                unconstrained=unconstrained, spend=spend, delay=delay, n=n, years=years)
+                unconstrained=unconstrained, spend=spend, delay=delay, n=n, years=years, rate=float(discount_rate_frac))
 
 
-def _result(data: dict[str, Any], x: np.ndarray, method: str, status: str, message: str) -> FleetPlan:
+def _result(data: dict[str, Any], x: np.ndarray, method: str, status: str, message: str,
+            gap_frac: float = float("nan")) -> FleetPlan:
     """Build the :class:`FleetPlan` of a 0-1 selection x[i, s]."""
     chosen_i, chosen_s = np.nonzero(x)
     npv_plan = data["value"][chosen_i] * data["delay"][chosen_s]
@@ -115,7 +120,7 @@ def _result(data: dict[str, Any], x: np.ndarray, method: str, status: str, messa
     }, columns=_CHOSEN_COLUMNS)
     return FleetPlan(chosen=chosen, spend_by_year=spend.sum(axis=0) if chosen_i.size else np.zeros(data["years"]),
                      budget_per_yr=data["budget"], total_npv=float(npv_plan.sum()), method=method, status=status,
-                     message=message, selection=x)
+                     message=message, selection=x, gap_frac=gap_frac)
 
 
 def _unconstrained(data: dict[str, Any], method: str) -> FleetPlan:
@@ -128,11 +133,12 @@ def _unconstrained(data: dict[str, Any], method: str) -> FleetPlan:
         x[best["i"].to_numpy(), 0] = True
     status = "unconstrained" if x.any() else "empty"
     return _result(data, x, method, status, "no budget limit: the best positive-NPV option of each asset"
-                   if x.any() else "no project has a positive NPV")
+                   if x.any() else "no project has a positive NPV", 0.0)
 
 
 def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, budget_per_yr: Any,
-               discount_rate_frac: float, *, time_limit_s: float = 60.0, mip_rel_gap: float = 1e-4) -> FleetPlan:
+               discount_rate_frac: float, *, time_limit_s: float = 60.0, mip_rel_gap: float = 1e-4,
+               start: Mapping[str, int] | None = None) -> FleetPlan:
     """Choose at most one option per asset and a start year to maximise total NPV under yearly budgets.
 
     Parameters
@@ -152,21 +158,28 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     discount_rate_frac : float
         Discount rate [frac/yr], > -1, for the delay of a project started in a later plan year.
     time_limit_s : float
-        Solver time limit [s]; on reaching it the best plan found is returned with status "time_limit".
+        Solver time limit [s], > 0; on reaching it the best plan found is returned with status
+        "time_limit" and its proven gap.
     mip_rel_gap : float
-        Relative optimality gap at which the solver stops [-]; the default 1e-4 (HiGHS' own) proves the
-        plan within 0.01 % of the best possible NPV. Use 0 for a proof of optimality (slower on large
-        fleets with tight budgets).
+        Relative optimality gap at which the solver stops [frac], >= 0; the default 1e-4 (the solver's
+        own) proves the plan within 0.01 % of the best possible NPV. Use 0 for a proof of optimality
+        (slower on large fleets with tight budgets); an interactive screen may accept 1e-3.
+    start : mapping of str to int, optional
+        A plan to start from, e.g. the plan of a neighbouring set of assumptions: project label -> plan
+        start year. Labels that are not candidates, repeat an asset or fall outside the plan years are
+        dropped, and projects are dropped (lowest NPV per unit of capital first) until the budgets hold.
+        The better of it and the profitability-index plan (:func:`plan_greedy`) is the solver's first
+        plan. It changes how fast the solver proves its answer, never the gap it proves.
 
     Returns
     -------
     FleetPlan
-        The chosen projects, the spend per plan year and the total NPV (at plan start).
+        The chosen projects, the spend per plan year, the total NPV (at plan start) and the proven gap.
 
     Raises
     ------
     ValueError
-        For mismatched lengths, duplicate project labels, NaN values or negative budgets.
+        For mismatched lengths, duplicate project labels, NaN values, negative budgets or solver limits.
 
     Notes
     -----
@@ -180,8 +193,8 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     project shifted in time: its savings, lives and horizon move with it, so its NPV at plan start is
     its own NPV discounted by the delay (the fleet's horizon effectively extends by the delay). Capital
     spent after the last plan year is not budgeted. Projects with NPV <= 0 are never chosen. The
-    problem is a multiple-choice, multi-dimensional knapsack, solved exactly by branch and bound in HiGHS
-    [3].
+    problem is a multiple-choice, multi-dimensional knapsack, solved by branch and bound in HiGHS [3]
+    until the gap between the best plan found and the best bound is below ``mip_rel_gap``.
 
     References
     ----------
@@ -201,6 +214,10 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     >>> plan.chosen["project_id"].tolist(), plan.total_npv
     (['a/1', 'b/1'], 110.0)
     """
+    if not (np.isfinite(time_limit_s) and time_limit_s > 0):
+        raise ValueError(f"time_limit_s must be a positive number of seconds, got {time_limit_s!r}")
+    if not (np.isfinite(mip_rel_gap) and mip_rel_gap >= 0):
+        raise ValueError(f"mip_rel_gap must be >= 0, got {mip_rel_gap!r}")
     data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac)
     if data["unconstrained"] or data["n"] == 0:
         return _unconstrained(data, "exact")
@@ -208,9 +225,9 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     candidates = np.flatnonzero(data["value"] > 0)
     x = np.zeros((n, years), dtype=bool)
     if candidates.size == 0:
-        return _result(data, x, "exact", "empty", "no project has a positive NPV")
+        return _result(data, x, "exact", "empty", "no project has a positive NPV", 0.0)
     m = candidates.size
-    objective = -(data["value"][candidates, None] * data["delay"][None, :]).ravel()  # milp minimises
+    worth = data["value"][candidates, None] * data["delay"][None, :]
     variable = np.arange(m * years).reshape(m, years)
 
     _, asset_row = np.unique(data["assets"][candidates], return_inverse=True)
@@ -226,19 +243,118 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         cols.append(variable[i, s])
         vals.append(spend[i, s, y])
     matrix = coo_array((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                       shape=(n_assets + finite.size, m * years)).tocsr()
+                       shape=(n_assets + finite.size, m * years)).tocsc()
+    matrix.sort_indices()
     upper = np.concatenate([np.ones(n_assets), data["budget"][finite]])
-    result = milp(objective, integrality=np.ones(m * years), bounds=Bounds(0, 1),
-                  constraints=LinearConstraint(matrix, -np.inf, upper),
-                  options={"time_limit": float(time_limit_s), "mip_rel_gap": float(mip_rel_gap)})
-    if result.x is None:
-        return _result(data, x, "exact", "failed", f"solver stopped without a plan: {result.message}")
-    x[candidates] = (result.x > 0.5).reshape(m, years)
-    status = "optimal" if result.status == 0 else "time_limit"
-    message = "optimal plan" if status == "optimal" else f"best plan found before the solver stopped: {result.message}"
+
+    first = _greedy_selection(data)
+    if start:
+        hinted = _repair(data, _selection_from(data, start))
+        if (hinted * data["value"][:, None] * data["delay"][None, :]).sum() > \
+                (first * data["value"][:, None] * data["delay"][None, :]).sum():
+            first = hinted
+
+    solver = highspy.Highs()
+    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)),
+                        ("mip_rel_gap", float(mip_rel_gap)), ("random_seed", 0)):
+        solver.setOptionValue(name, value)
+    model = highspy.HighsLp()
+    model.num_col_, model.num_row_ = m * years, n_assets + finite.size
+    model.col_cost_ = -worth.ravel()  # HiGHS minimises
+    model.col_lower_, model.col_upper_ = np.zeros(m * years), np.ones(m * years)
+    model.row_lower_, model.row_upper_ = np.full(upper.size, -highspy.kHighsInf), upper
+    model.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+    model.a_matrix_.start_, model.a_matrix_.index_, model.a_matrix_.value_ = matrix.indptr, matrix.indices, matrix.data
+    model.integrality_ = [highspy.HighsVarType.kInteger] * (m * years)
+    solver.passModel(model)
+    if first.any():
+        incumbent = highspy.HighsSolution()
+        incumbent.col_value = first[candidates].astype(float).ravel().tolist()
+        incumbent.value_valid = True
+        solver.setSolution(incumbent)
+    solver.run()
+    status_code = solver.getModelStatus()
+    info = solver.getInfo()
+    found = info.primal_solution_status != 0  # 0: no feasible point known
+    if not found:
+        return _result(data, x, "exact", "failed",
+                       f"solver stopped without a plan: {solver.modelStatusToString(status_code)}")
+    x[candidates] = (np.asarray(solver.getSolution().col_value) > 0.5).reshape(m, years)
+    gap = float(info.mip_gap) if np.isfinite(info.mip_gap) else float("nan")
+    if status_code == highspy.HighsModelStatus.kOptimal:
+        status = "optimal"
+        message = "optimal plan" if mip_rel_gap == 0 or gap <= 1e-9 else \
+            f"plan proven within {max(gap, 0.0) * 100:.3g} % of the best possible NPV"
+    else:
+        status = "time_limit"
+        message = (f"best plan found before the solver stopped ({solver.modelStatusToString(status_code)}); "
+                   f"within {gap * 100:.3g} % of the best possible NPV")
     if not x.any():
         status, message = ("empty", "no project fits the budget") if status == "optimal" else (status, message)
-    return _result(data, x, "exact", status, message)
+    return _result(data, x, "exact", status, message, max(gap, 0.0) if np.isfinite(gap) else gap)
+
+
+def _selection_from(data: dict[str, Any], start: Mapping[str, int]) -> np.ndarray:
+    """0-1 matrix of a start plan given as project label -> start year (labels unknown here dropped)."""
+    x = np.zeros((data["n"], data["years"]), dtype=bool)
+    where = {label: i for i, label in enumerate(data["projects"].tolist())}
+    taken: set[str] = set()
+    for label, year in sorted(start.items(), key=lambda kv: str(kv[0])):
+        i = where.get(str(label))
+        try:
+            s = int(year)
+        except (TypeError, ValueError):
+            continue
+        if i is None or not 0 <= s < data["years"] or data["value"][i] <= 0 or data["assets"][i] in taken:
+            continue
+        x[i, s] = True
+        taken.add(data["assets"][i])
+    return x
+
+
+def _repair(data: dict[str, Any], x: np.ndarray) -> np.ndarray:
+    """Drop projects from a plan, lowest NPV per unit of capital first, until every budget holds."""
+    x = x.copy()
+    spend = np.einsum("is,isy->y", x.astype(float), data["spend"])
+    tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(data["budget"]), data["budget"], 0.0))
+    if np.all(spend <= data["budget"] + tolerance):
+        return x
+    chosen_i, chosen_s = np.nonzero(x)
+    capital = data["spend"][chosen_i, chosen_s].sum(axis=1)
+    ratio = data["value"][chosen_i] / np.where(capital > 0, capital, np.inf)
+    for k in np.lexsort((chosen_i, ratio)):
+        if np.all(spend <= data["budget"] + tolerance):
+            break
+        spend = spend - data["spend"][chosen_i[k], chosen_s[k]]
+        x[chosen_i[k], chosen_s[k]] = False
+    return x
+
+
+def _greedy_selection(data: dict[str, Any]) -> np.ndarray:
+    """0-1 matrix of the profitability-index plan (see :func:`plan_greedy`)."""
+    n, years = data["n"], data["years"]
+    capital = data["capital"]
+    discount = np.power(1.0 + data["rate"], -np.arange(capital.shape[1], dtype=float))
+    capital_pv = capital @ discount
+    value = data["value"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        pi = np.where(capital_pv > 0, value / np.where(capital_pv > 0, capital_pv, 1.0), np.inf)
+    order = np.lexsort((-value, -pi))
+    left = data["budget"].copy()
+    taken: set[str] = set()
+    x = np.zeros((n, years), dtype=bool)
+    tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(left), left, 0.0))
+    for i in order:
+        if value[i] <= 0 or data["assets"][i] in taken:
+            continue
+        for s in range(years):
+            need = data["spend"][i, s]
+            if np.all(need <= left + tolerance):
+                left = left - need
+                x[i, s] = True
+                taken.add(data["assets"][i])
+                break
+    return x
 
 
 def plan_greedy(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, budget_per_yr: Any,
@@ -277,28 +393,7 @@ def plan_greedy(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, 
     data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac)
     if data["unconstrained"] or data["n"] == 0:
         return _unconstrained(data, "greedy")
-    n, years = data["n"], data["years"]
-    capital = data["capital"]
-    discount = np.power(1.0 + discount_rate_frac, -np.arange(capital.shape[1], dtype=float))
-    capital_pv = capital @ discount
-    value = data["value"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        pi = np.where(capital_pv > 0, value / np.where(capital_pv > 0, capital_pv, 1.0), np.inf)
-    order = np.lexsort((-value, -pi))
-    left = data["budget"].copy()
-    taken: set[str] = set()
-    x = np.zeros((n, years), dtype=bool)
-    tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(left), left, 0.0))
-    for i in order:
-        if value[i] <= 0 or data["assets"][i] in taken:
-            continue
-        for s in range(years):
-            need = data["spend"][i, s]
-            if np.all(need <= left + tolerance):
-                left = left - need
-                x[i, s] = True
-                taken.add(data["assets"][i])
-                break
+    x = _greedy_selection(data)
     status = "optimal" if x.any() else "empty"
     message = "greedy plan by profitability index" if x.any() else "no project fits the budget"
     return _result(data, x, "greedy", status, message)

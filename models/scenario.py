@@ -12,7 +12,7 @@ import contextlib
 import os
 import sys
 import time
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
@@ -41,6 +41,33 @@ TORNADO_RANGES = {
     "energy_price_mult": (0.8, 1.2), "hours_mult": (0.8, 1.1), "load_mult": (0.85, 1.15),
     "capital_mult": (0.9, 1.3), "discount_rate_delta_frac": (-0.02, 0.02), "escalation_delta_frac": (-0.01, 0.01),
 }
+
+
+@dataclass(frozen=True)
+class PlanSettings:
+    """How hard the exact fleet plan is solved (see :func:`models.plan.plan_exact`).
+
+    Attributes
+    ----------
+    time_limit_s : float
+        Solver time limit [s], > 0.
+    gap_frac : float
+        Relative gap at which the solver stops [frac], >= 0.
+    start : tuple of (str, int)
+        A plan to start from: (project label "asset/option", plan start year) pairs, e.g. the plan of
+        the assumptions edited just before. It speeds the proof, never loosens it.
+    """
+
+    time_limit_s: float = 60.0
+    gap_frac: float = 1e-4
+    start: tuple[tuple[str, int], ...] = ()
+
+
+#: The setting of a full run (command line, pack): the solver's own 0.01 % gap, a minute at most.
+PRECISE_PLAN = PlanSettings()
+#: The setting of a live edit on screen: a 0.1 % gap or 0.1 s, whichever comes first; the plan's
+#: status then says how close it is proven (common practice for interactive optimisation).
+LIVE_PLAN = PlanSettings(time_limit_s=0.1, gap_frac=1e-3)
 
 
 @dataclass(frozen=True)
@@ -86,6 +113,11 @@ class ScenarioResult:
         Monte Carlo summary per project (P10/P50/P90 of NPV and payback, P(NPV > 0)).
     bills : pandas.DataFrame
         site_id, month, scenario (baseline or plan), line_item, amount [currency].
+    plan_status : dict
+        How far the exact plan is proven: ``status`` ("optimal", "time_limit", "unconstrained", "empty"
+        or "failed", see :class:`models.plan.FleetPlan`), ``message`` (plain words), ``gap_frac``
+        (proven relative gap to the best possible plan NPV [frac]; NaN when unknown), ``settings``
+        (:class:`PlanSettings` used).
     """
 
     physics: Physics
@@ -102,6 +134,7 @@ class ScenarioResult:
     tornado: pd.DataFrame
     risk: pd.DataFrame
     bills: pd.DataFrame
+    plan_status: dict = field(default_factory=dict)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -269,8 +302,13 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 
 def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
-              progress: Callable[[str], None] | None = None, with_risk: bool = True) -> ScenarioResult:
-    """Turn the physics into cash flows, metrics, the fleet plan, end-of-life strategy and risk."""
+              progress: Callable[[str], None] | None = None, with_risk: bool = True,
+              plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
+    """Turn the physics into cash flows, metrics, the fleet plan, end-of-life strategy and risk.
+
+    ``plan_settings`` bounds the exact plan's solve (:data:`PRECISE_PLAN` by default, :data:`LIVE_PLAN`
+    for a screen that must answer an edit at once); ``plan_status`` of the result says what was proven.
+    """
     step = progress or (lambda _msg: None)
     op, sav = phys.operation, phys.savings
     a = case.assets
@@ -389,7 +427,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                          "component": cash["component"], "amount": cash["amount"]})
 
     step("fleet plan")
-    plan_frames = _plan(results, capital_spend, project_ids, assumptions, d)
+    plan_frames = _plan(results, capital_spend, project_ids, assumptions, d, plan_settings)
 
     step("end of life")
     eol = _end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon)
@@ -404,7 +442,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     step("bills")
     bills = _bills(case, op, plan_frames[0], sav.baseline_bills)
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
-                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills)
+                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4])
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
@@ -498,7 +536,7 @@ def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, proje
     return frame, total
 
 
-def _plan(results, capital_spend, project_ids, assumptions, d):
+def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings):
     candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
     candidates &= results["npv"].to_numpy() > 0
     budgets = list(assumptions.budget_per_yr) or None
@@ -507,7 +545,8 @@ def _plan(results, capital_spend, project_ids, assumptions, d):
     sel = np.flatnonzero(candidates)
     args = (project_ids[sel], results["asset_id"].to_numpy()[sel], results["npv"].to_numpy()[sel], capital_by_year[sel])
     with _quiet_native_stdout():
-        exact = plan.plan_exact(*args, budgets, d)
+        exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
+                                start=dict(settings.start) or None)
     greedy = plan.plan_greedy(*args, budgets, d)
     comparison = plan.compare_plans(exact, greedy)
     # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)
@@ -516,7 +555,8 @@ def _plan(results, capital_spend, project_ids, assumptions, d):
     macc = np.flatnonzero((results["capital"].to_numpy() > 0) & (co2 > 1e-9) & np.isfinite(cost_t))
     curve = plan.abatement_curve(project_ids[macc], results["asset_id"].to_numpy()[macc], results["npv"].to_numpy()[macc],
                                  co2[macc], cost_t[macc])
-    return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve
+    status = {"status": exact.status, "message": exact.message, "gap_frac": float(exact.gap_frac), "settings": settings}
+    return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve, status
 
 
 @contextlib.contextmanager

@@ -10,6 +10,7 @@ import base64
 import csv
 import io
 import shutil
+import types
 from pathlib import Path
 
 import pytest
@@ -128,6 +129,37 @@ class TestCaching:
         v = services.view(None, {"case": engine.default_key, "discount_rate_pct": 5.5})
         result = v.result()
         assert result.tornado.empty and result.risk.empty  # risk is left to the risk page
+
+    def test_live_edits_bound_the_plan_and_start_from_the_last_plan(self, small_case_dir, tmp_path):
+        from dataclasses import replace
+
+        seen = []
+
+        def economics(*args, **kwargs):
+            seen.append(kwargs["plan_settings"])
+            return scenario.economics(*args, **kwargs)
+
+        eng = services.Engine(economics_fn=economics, upload_root=tmp_path)
+        entry, _ = eng.set_default_case(small_case_dir)
+        base = entry.case.finance
+        first = eng.result(entry.key, replace(base, discount_rate_frac=0.07))
+        eng.result(entry.key, replace(base, discount_rate_frac=0.06))
+        # Live asks use the live bound; the second starts from the first one's plan.
+        assert seen[0].time_limit_s == scenario.LIVE_PLAN.time_limit_s and seen[0].start == ()
+        assert set(seen[1].start) == set(zip(first.plan["asset_id"] + "/" + first.plan["option_id"],
+                                             first.plan["start_yr"].astype(int)))
+        assert first.plan_status["settings"] == seen[0]
+
+    def test_a_precise_result_serves_later_live_asks(self, shared_engine):
+        from dataclasses import replace
+
+        engine, _, economics = shared_engine
+        a = replace(engine.default_entry().case.finance, discount_rate_frac=0.0655)
+        n = economics.calls
+        proved = engine.result(engine.default_key, a, precise=True)
+        assert proved.plan_status["settings"] == scenario.PRECISE_PLAN
+        assert engine.result(engine.default_key, a) is proved
+        assert economics.calls == n + 1
 
     def test_unknown_key_raises(self, shared_engine):
         with pytest.raises(KeyError):
@@ -502,3 +534,22 @@ def test_pack_download_holds_the_workbook_report_and_records(engine):
     assert "capital-request.xlsx" in names and "capital-request.html" in names
     records = [n for n in names if n.startswith("decision-records/")]
     assert len(records) == len(view_.result(with_risk=True).plan)
+
+
+class TestPlanSolveText:
+    @staticmethod
+    def result(status, gap, settings):
+        return types.SimpleNamespace(plan_status={"status": status, "message": "m", "gap_frac": gap, "settings": settings})
+
+    def test_live_stop_says_it_was_a_live_edit_and_the_gap(self):
+        text = services.plan_solve_text(self.result("time_limit", 0.0042, scenario.LIVE_PLAN))
+        assert "live edit" in text and "0.42 %" in text and "Prove" in text
+
+    def test_proven_and_optimal(self):
+        assert "proven optimal" in services.plan_solve_text(self.result("optimal", 0.0, scenario.PRECISE_PLAN))
+        text = services.plan_solve_text(self.result("optimal", 0.00009, scenario.PRECISE_PLAN))
+        assert "0.009 %" in text and "live" not in text
+
+    def test_unknown_bound_and_failure(self):
+        assert "no bound" in services.plan_solve_text(self.result("optimal", float("nan"), scenario.PRECISE_PLAN))
+        assert "rank-order plan stands" in services.plan_solve_text(self.result("failed", float("nan"), None))

@@ -22,11 +22,15 @@ NOTICE = "plan-notice"
 PACK_BUTTON = "plan-pack-button"
 PACK = "plan-pack"
 PACK_STATUS = "plan-pack-status"
+SOLVE_STATUS = "plan-solve-status"
+PROVE = "plan-prove"
+PROVED = "plan-proved"
 
 
 def layout(**_query):
     return html.Div([
         dcc.Store(id=READY, data=True),
+        dcc.Store(id=PROVED),
         ui.page_header("Capital plan", "The projects that give the most NPV within each year's capital budget, chosen "
                                        "exactly, beside the simpler rule of funding the best ratio of NPV to capital first."),
         ui.notice(NOTICE),
@@ -36,6 +40,9 @@ def layout(**_query):
                   ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
                   html.Div(id=BUDGET_MESSAGE, className="form-message", role="alert")], className="panel form"),
         html.Div(id=SUMMARY, className="asset-summary"),
+        html.Div([dcc.Loading(html.Span(id=SOLVE_STATUS, role="status"), type="dot"),
+                  html.Button("Prove the plan to 0.01 %", id=PROVE, className="button secondary")],
+                 className="solve-status"),
         html.Div([html.Div(ui.graph(BY_YEAR), className="panel half"), html.Div(ui.graph(COMPARISON), className="panel half")],
                  className="row"),
         html.H3("Chosen projects (exact plan)"),
@@ -88,10 +95,10 @@ def project_columns(currency: str) -> list[dict]:
 
 @callback(Output(BY_YEAR, "figure"), Output(COMPARISON, "figure"), Output(CHOSEN, "rowData"), Output(CHOSEN, "columnDefs"),
           Output(DIFFERENCES, "rowData"), Output(DIFFERENCES, "columnDefs"), Output(SUMMARY, "children"),
-          Output(NOTICE, "children"),
-          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
-def update(_ready, session, edits):
-    """Plan figures and tables under the tab's budget and assumptions."""
+          Output(NOTICE, "children"), Output(SOLVE_STATUS, "children"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), Input(PROVED, "data"))
+def update(_ready, session, edits, _proved=None):
+    """Plan figures and tables under the tab's budget and assumptions (the proved plan once there is one)."""
     view = services.view(session, edits)
     result = view.result()
     tables = services.plan_tables(view, result)
@@ -109,7 +116,16 @@ def update(_ready, session, edits):
     diff_columns = [ui.text_col("plan", "Only in")] + project_columns(c)[:4] + [project_columns(c)[5]]
     return (figures.plan_by_year(by_year, c), figures.plan_comparison(comparison, c),
             tables["exact"].to_dict("records"), project_columns(c),
-            tables["differences"].to_dict("records"), diff_columns, summary, view.notice)
+            tables["differences"].to_dict("records"), diff_columns, summary, view.notice,
+            services.plan_solve_text(result))
+
+
+@callback(Output(PROVED, "data"), Input(PROVE, "n_clicks"), State(ui.SESSION_STORE, "data"),
+          State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
+def prove(clicks, session, edits):
+    """Solve the tab's plan to the full-run precision; the page then shows the proved plan."""
+    services.view(session, edits).result(precise=True)
+    return clicks
 
 
 @callback(Output(PACK, "data"), Output(PACK_STATUS, "children"), Input(PACK_BUTTON, "n_clicks"),
