@@ -633,6 +633,10 @@ def view(session: dict | None, edits: dict | None) -> View:
     return View(entry, base, notice)
 
 
+#: Price levels edited on screen in percent of the prices as written -> finance assumption factor.
+PRICE_LEVEL_FIELDS = {"energy_price_level_pct": "energy_price_factor", "capital_cost_level_pct": "capital_cost_factor"}
+
+
 def assumptions_with_edits(base, edits: dict):
     """Return the finance assumptions with the dashboard's edits (percent fields become fractions).
 
@@ -653,6 +657,9 @@ def assumptions_with_edits(base, edits: dict):
         changes["horizon_yr"] = int(horizon)
     if "budget_per_yr" in edits and edits["budget_per_yr"] is not None:
         changes["budget_per_yr"] = tuple(float(b) for b in edits["budget_per_yr"])
+    for key, field_name in PRICE_LEVEL_FIELDS.items():
+        if edits.get(key) is not None:
+            changes[field_name] = float(edits[key]) / 100.0
     return replace(base, **changes)
 
 
@@ -663,6 +670,8 @@ def assumption_form(assumptions) -> dict:
         "escalation_energy_pct": round(float(assumptions.escalation_energy_frac) * 100.0, 6),
         "horizon_yr": int(assumptions.horizon_yr),
         "budget_per_yr": [float(b) for b in assumptions.budget_per_yr],
+        "energy_price_level_pct": round(float(assumptions.energy_price_factor) * 100.0, 6),
+        "capital_cost_level_pct": round(float(assumptions.capital_cost_factor) * 100.0, 6),
     }
 
 
@@ -703,7 +712,8 @@ def edit_assumptions(entry_key: str, base, current: dict | None, **fields) -> tu
     """
     edits = dict(current) if isinstance(current, dict) and current.get("case") == entry_key else {"case": entry_key}
     labels = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "Energy price escalation",
-              "horizon_yr": "Horizon"}
+              "horizon_yr": "Horizon", "energy_price_level_pct": "Electricity price level",
+              "capital_cost_level_pct": "Capital cost level"}
     for name, value in fields.items():
         if name in labels and (value is None or value == ""):
             return None, f"{labels[name]}: enter a number."

@@ -1261,6 +1261,12 @@ class FinanceAssumptions:
         Default cost of lost production per hour of unplanned stop [currency/h].
     capacitor_cost_per_kvar : float
         Default installed cost of capacitor banks [currency/kVAr].
+    energy_price_factor : float
+        Price level of the site's tariffs [-], > 0: every charge of every tariff is multiplied by it
+        (1.0 = the tariffs as written; 1.2 = a 20 % dearer electricity scenario).
+    capital_cost_factor : float
+        Price level of the options' capital [-], > 0: every capital component (equipment, drive,
+        installation, engineering, contingency, capacitor banks, rewinds) is multiplied by it.
     budget_per_yr : tuple of float
         Capital budget of plan years 0, 1, ... [currency]; empty = no capital limit.
     monte_carlo_draws : int
@@ -1289,6 +1295,8 @@ class FinanceAssumptions:
     replacement_mode: ReplacementMode = "replace_now"
     downtime_cost_per_h: float = 0.0
     capacitor_cost_per_kvar: float = 30.0
+    energy_price_factor: float = 1.0
+    capital_cost_factor: float = 1.0
     budget_per_yr: tuple[float, ...] = ()
     monte_carlo_draws: int = 1000
     monte_carlo_seed: int = 12345
@@ -1463,6 +1471,11 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
     for key in ("incentive_per_kwh_saved", "downtime_cost_per_h", "capacitor_cost_per_kvar"):
         if not (math.isfinite(values[key]) and values[key] >= 0.0):
             bad(key, "must be a finite number >= 0", "use 0 when it does not apply")
+    for key in ("energy_price_factor", "capital_cost_factor"):
+        if not (math.isfinite(values[key]) and values[key] > 0.0):
+            bad(key, "must be a number > 0 (1 = prices as written)", "e.g. 1.2 for prices 20 % higher")
+        elif not 0.2 <= values[key] <= 5.0:
+            odd(key, "a price level outside 0.2-5 is unusual", "1 = prices as written; 1.2 = 20 % higher")
     if not (values["incentive_max"] >= 0.0):
         bad("incentive_max", "must be >= 0 (inf = no cap)", "leave the key out for no cap")
     for key in ("incentive_capital_share_frac", "tax_rate_frac"):

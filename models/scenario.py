@@ -319,8 +319,11 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     year = _analysis_year(op)
     rated = a["rated_p_kw"].to_numpy(dtype=float)
 
+    sav = _at_price_levels(sav, float(assumptions.energy_price_factor), float(assumptions.capital_cost_factor))
     step("cash flows")
     capex = capital_cost(options, rated, op.capacitor_q_kvar)
+    if assumptions.capital_cost_factor != 1.0:
+        capex = replace(capex, amount=capex.amount * float(assumptions.capital_cost_factor))
     comp = {name: capex.amount[..., k] for k, name in enumerate(capex.components)}
     must_capex, must_life, _ = _must_spend(case, options, capex.total, op.applies)
     age, shape, scale, residual_life = _remaining_life(case, year)
@@ -440,7 +443,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         tornado_rows, risk_rows = _risk(flows, assumptions, results, d)
 
     step("bills")
-    bills = _bills(case, op, plan_frames[0], sav.baseline_bills)
+    bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4])
 
@@ -471,6 +474,33 @@ def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str],
 # ---------------------------------------------------------------------------------------------------
 # Pieces
 # ---------------------------------------------------------------------------------------------------
+def _bill_lines_at_price_level(lines: pd.DataFrame, factor: float) -> pd.DataFrame:
+    """Bill lines with every charge multiplied by ``factor``: a charge's rate scales, except a tax's,
+    whose base (the quantity, in currency) scales instead; every amount scales."""
+    if factor == 1.0 or lines.empty:
+        return lines
+    out = lines.copy()
+    in_money = out["unit"].astype(str).str.len().eq(3) & out["unit"].astype(str).str.isupper()
+    out["quantity"] = np.where(in_money, out["quantity"].to_numpy(dtype=float) * factor, out["quantity"].to_numpy(dtype=float))
+    out["rate"] = np.where(in_money, out["rate"].to_numpy(dtype=float), out["rate"].to_numpy(dtype=float) * factor)
+    out["amount"] = out["amount"].to_numpy(dtype=float) * factor
+    return out
+
+
+def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: float) -> BillSavings:
+    """Bill savings with every tariff charge multiplied by ``price_factor``.
+
+    Bills are linear in the tariff's charges (each line is quantity x rate, taxes a share of other
+    lines), so scaling every charge scales every bill and every saving by the same factor; the
+    equivalent capacitor bank keeps its kVAr (its saving scales too) and its cost follows the capital.
+    """
+    if price_factor == 1.0 and capital_factor == 1.0:
+        return sav
+    return replace(sav, saving=sav.saving * price_factor, reactive_saving=sav.reactive_saving * price_factor,
+                   equivalent_bank_cost=sav.equivalent_bank_cost * capital_factor,
+                   baseline_bills=_bill_lines_at_price_level(sav.baseline_bills, price_factor))
+
+
 def _options_in_order(case, op: OperatingResult) -> pd.DataFrame:
     options = options_with_baseline(case.options)
     if list(options["option_id"]) != list(op.option_ids):
@@ -671,12 +701,16 @@ def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
     return (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
 
 
-def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame) -> pd.DataFrame:
-    """Monthly bills of today's fleet (computed with the physics) and of the fleet with the exact plan."""
+def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame, price_factor: float = 1.0) -> pd.DataFrame:
+    """Monthly bills of today's fleet (computed with the physics) and of the fleet with the exact plan.
+
+    ``base`` is already at the price level; the plan's bills are brought to it here.
+    """
     setups = site_setups(case, op.index)
     baseline_choice = np.zeros(len(op.asset_ids), dtype=int)
     choice = baseline_choice.copy()
     for r in plan_frame.itertuples(index=False):
         choice[op.asset_position(r.asset_id)] = op.option_position(r.option_id)
     _, after = meter_and_bills(case, op, choice, setups)
+    after = _bill_lines_at_price_level(after, price_factor)
     return pd.concat([base.assign(scenario="baseline"), after.assign(scenario="plan")], ignore_index=True)

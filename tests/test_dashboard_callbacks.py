@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import plotly.graph_objects as go
+import numpy as np
 import pytest
 from dash import no_update
 
@@ -76,15 +77,28 @@ def test_upload_good_switches_the_tab(engine):
 
 def test_assumption_form_and_edits(engine):
     values = inputs.fill(True, None, None)
-    assert values[:3] == (8.0, 1.0, 15)  # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr
-    assert list(values[3:]) == ["250000", "250000", "150000", None, None, None]
-    stored, message = inputs.edit(6.0, 1.0, 15, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr; no price-level keys, so the tariffs and catalogue as written (100 %)
+    assert values[:5] == (8.0, 1.0, 15, 100.0, 100.0)
+    assert list(values[5:]) == ["250000", "250000", "150000", None, None, None]
+    stored, message = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert stored["discount_rate_pct"] == 6.0 and message == ""
-    unchanged, _ = inputs.edit(8.0, 1.0, 15, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    unchanged, _ = inputs.edit(8.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert unchanged is no_update  # the form only repeats the assumptions in force
-    refused, message = inputs.edit(8.0, 1.0, 0, None, None, None, None, None, None, None, None)
+    refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, None, None, None, None, None, None, None, None)
     assert refused is no_update and "horizon" in message.lower()
+    refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, None, None, None, None, None, None, None, None)
+    assert refused is no_update and "energy_price_factor" in message
     assert inputs.reset(1, None) == values
+
+
+def test_price_levels_reach_the_economics(engine):
+    dear, message = inputs.edit(8.0, 1.0, 15, 120.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    assert message == "" and dear["energy_price_level_pct"] == 120.0
+    base = services.view(None, None).result().results
+    scaled = services.view(None, dear).result().results
+    # bills are linear in every tariff charge (docs/finance.md): 120 % of the prices, 1.2 x every bill saving
+    assert np.allclose(scaled["bill_saving_per_yr"].to_numpy(), 1.2 * base["bill_saving_per_yr"].to_numpy(), rtol=1e-9)
+    assert np.allclose(scaled["capital"].to_numpy(), base["capital"].to_numpy(), rtol=1e-12)
 
 
 def test_plan_budget_edit(engine):

@@ -7,6 +7,8 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from dataclasses import replace
+
 import pytest
 from numpy.testing import assert_allclose
 
@@ -62,6 +64,39 @@ def test_doubling_prices_doubles_bill_savings(one_asset, tmp_path):
     twice = scenario.run(dear, dear.finance, with_risk=False).results
     # invariant: a bill linear in price gives savings linear in price
     assert_allclose(twice["bill_saving_per_yr"].to_numpy(), 2.0 * base["bill_saving_per_yr"].to_numpy(), rtol=1e-9)
+
+
+def test_energy_price_factor_equals_a_dearer_tariff(one_asset, tmp_path):
+    # Independent check: the tariff written at twice the price against the factor 2 on the tariff as written.
+    dear = _one_asset_case(tmp_path / "dear", price_per_kwh=0.20)
+    written = scenario.run(dear, dear.finance, with_risk=False)
+    scaled = scenario.run(one_asset, replace(one_asset.finance, energy_price_factor=2.0), with_risk=False)
+    for column in ("bill_saving_per_yr", "saving_energy_per_yr", "npv", "life_cycle_cost", "irr_frac"):
+        assert_allclose(scaled.results[column].to_numpy(dtype=float), written.results[column].to_numpy(dtype=float),
+                        rtol=1e-9, equal_nan=True, err_msg=column)
+    key = ["site_id", "month", "scenario", "line_item"]
+    assert_allclose(scaled.bills.sort_values(key)["amount"].to_numpy(), written.bills.sort_values(key)["amount"].to_numpy(),
+                    rtol=1e-9)
+
+
+def test_capital_cost_factor_equals_a_dearer_catalogue(one_asset, tmp_path):
+    # Independent check: the option's cost coefficient written at 1.5 x (150 instead of 100) against the factor 1.5.
+    folder = tmp_path / "dear"
+    _one_asset_case(folder)
+    (folder / "options.csv").write_text(OPTIONS.replace("trim_or_pulley,100,", "trim_or_pulley,150,"), encoding="utf-8")
+    dear, _ = load_case(folder, mode="strict")
+    written = scenario.run(dear, dear.finance, with_risk=False).results
+    scaled = scenario.run(one_asset, replace(one_asset.finance, capital_cost_factor=1.5), with_risk=False).results
+    for column in ("capital", "npv", "simple_payback_yr", "life_cycle_cost"):
+        assert_allclose(scaled[column].to_numpy(dtype=float), written[column].to_numpy(dtype=float), rtol=1e-9,
+                        err_msg=column)
+
+
+@pytest.mark.parametrize("field", ["energy_price_factor", "capital_cost_factor"])
+@pytest.mark.parametrize("value", [0.0, -1.0, float("nan")])
+def test_price_factors_must_be_positive(one_asset, field, value):
+    with pytest.raises(ValueError, match=field):
+        replace(one_asset.finance, **{field: value})
 
 
 @pytest.fixture(scope="module")

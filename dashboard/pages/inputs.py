@@ -19,6 +19,8 @@ TEMPLATE = "inputs-template"
 DISCOUNT = "inputs-discount-rate"
 ESCALATION = "inputs-escalation"
 HORIZON = "inputs-horizon"
+PRICE_LEVEL = "inputs-price-level"
+CAPITAL_LEVEL = "inputs-capital-level"
 BUDGET = "inputs-budget"
 BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
 RESET = "inputs-reset"
@@ -59,6 +61,10 @@ def layout(**_query):
                               dcc.Input(id=ESCALATION, type="number", step="any", debounce=True)], className="field"),
                     html.Div([html.Label("Horizon [yr]", htmlFor=HORIZON),
                               dcc.Input(id=HORIZON, type="number", min=1, max=100, step=1, debounce=True)], className="field"),
+                    html.Div([html.Label("Electricity price level [% of the tariffs]", htmlFor=PRICE_LEVEL),
+                              dcc.Input(id=PRICE_LEVEL, type="number", min=1, step="any", debounce=True)], className="field"),
+                    html.Div([html.Label("Capital cost level [% of the catalogue]", htmlFor=CAPITAL_LEVEL),
+                              dcc.Input(id=CAPITAL_LEVEL, type="number", min=1, step="any", debounce=True)], className="field"),
                 ], className="fields"),
                 html.Label("Capital budget per plan year (blank = no limit)"),
                 ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
@@ -103,11 +109,12 @@ def template(_clicks):
 def _form_values(assumptions) -> tuple:
     form = services.assumption_form(assumptions)
     return (form["discount_rate_pct"], form["escalation_energy_pct"], form["horizon_yr"],
+            form["energy_price_level_pct"], form["capital_cost_level_pct"],
             *ui.budget_values(form["budget_per_yr"], services.BUDGET_YEARS))
 
 
 @callback(Output(DISCOUNT, "value"), Output(ESCALATION, "value"), Output(HORIZON, "value"),
-          [Output(i, "value") for i in BUDGET_IDS],
+          Output(PRICE_LEVEL, "value"), Output(CAPITAL_LEVEL, "value"), [Output(i, "value") for i in BUDGET_IDS],
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"))
 def fill(_ready, session, edits):
     """Show the assumptions in force when the page opens or the case changes."""
@@ -115,7 +122,8 @@ def fill(_ready, session, edits):
 
 
 @callback(Output(DISCOUNT, "value", allow_duplicate=True), Output(ESCALATION, "value", allow_duplicate=True),
-          Output(HORIZON, "value", allow_duplicate=True), [Output(i, "value", allow_duplicate=True) for i in BUDGET_IDS],
+          Output(HORIZON, "value", allow_duplicate=True), Output(PRICE_LEVEL, "value", allow_duplicate=True),
+          Output(CAPITAL_LEVEL, "value", allow_duplicate=True), [Output(i, "value", allow_duplicate=True) for i in BUDGET_IDS],
           Input(RESET, "n_clicks"), State(ui.SESSION_STORE, "data"),
           prevent_initial_call=True)
 def reset(_clicks, session):
@@ -124,10 +132,10 @@ def reset(_clicks, session):
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
-          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"),
-          [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"),
-          prevent_initial_call=True)
-def edit(discount, escalation, horizon, *rest):
+          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"), Input(PRICE_LEVEL, "value"),
+          Input(CAPITAL_LEVEL, "value"), [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"),
+          State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
+def edit(discount, escalation, horizon, price_level, capital_level, *rest):
     """Check the form and store it as the tab's edits; only the economics re-run."""
     budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
     budget, problem = services.parse_budget(budget_values)
@@ -135,7 +143,9 @@ def edit(discount, escalation, horizon, *rest):
         return no_update, problem
     view = services.view(session, edits)
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, discount_rate_pct=discount,
-                                             escalation_energy_pct=escalation, horizon_yr=horizon, budget_per_yr=budget)
+                                             escalation_energy_pct=escalation, horizon_yr=horizon,
+                                             energy_price_level_pct=price_level, capital_cost_level_pct=capital_level,
+                                             budget_per_yr=budget)
     if problem:
         return no_update, problem
     return (new if services.edits_change(view, new) else no_update), ""
