@@ -1,25 +1,37 @@
-"""Reading (never writing) a case's files, and the reference and schema tables shipped with drivecase.
+"""Reading a case's files, saving finance assumptions into a case, and the tables shipped with drivecase.
 
 A case is a folder (CSV and TOML files, Parquet allowed for long profiles) or one ``.xlsx`` workbook with
 one sheet per table. This module turns either into :class:`RawTable` records of text cells with our
-column names, the row numbers the user sees and every problem met while reading. It never writes to,
-renames or locks a user's file: files are read into memory in one pass and closed. Whatever the bytes
+column names, the row numbers the user sees and every problem met while reading. Reading never writes
+to, renames or locks a user's file: files are read into memory in one pass and closed. Whatever the bytes
 hold (another encoding, a workbook renamed ``.csv``, binary garbage, a quote left open), reading ends
 in a problem list, never an exception. Typing, ranges and cross-checks happen in :mod:`models.case`.
+
+The one write into an existing case is :func:`save_finance_settings`, run only when the user asks for it:
+it changes the finance values of ``finance.toml`` (or of a workbook's ``finance`` sheet) with an atomic
+replace, keeps the previous file under a versions folder the reader ignores, and puts it back when the
+saved case no longer loads.
 """
 
 from __future__ import annotations
 
 import csv
+import datetime as _dt
 import difflib
 import io
+import math
+import os
 import re
+import stat
+import threading
 import tomllib
 import unicodedata
 import zipfile
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -846,7 +858,11 @@ _CASE_LIKE_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".toml", ".xlsx", ".x
 
 
 def _folder_files(path: Path) -> tuple[dict[str, Path], list[Problem]]:
-    """Return lower-case file name -> path for the files of a folder (exact-case names win)."""
+    """Return lower-case file name -> path for the files of a folder (exact-case names win).
+
+    Only files are listed: subfolders are passed over, so the :data:`VERSIONS_DIR` folder of previous
+    finance files is never read as part of the case (``tariffs/`` is read on its own).
+    """
     try:
         entries = sorted(path.iterdir())
     except OSError as exc:
@@ -1146,3 +1162,533 @@ def _write_blank_workbook(path: Path) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     book.save(path)
     return path
+
+
+# ---------------------------------------------------------------------------------------------------
+# Saving finance assumptions into a case (the one write into an existing case, on the user's request)
+# ---------------------------------------------------------------------------------------------------
+#: Folder inside a case folder where earlier ``finance.toml`` files are kept (the reader skips folders).
+VERSIONS_DIR = ".versions"
+#: Ending of the folder beside a workbook case where earlier copies of the workbook are kept.
+WORKBOOK_VERSIONS_SUFFIX = ".versions"
+#: Significant decimal digits of the numbers written: the digits a binary64 float always keeps
+#: (``DBL_DIG`` = 15, ISO/IEC 9899:2018 5.2.4.2.2), so 7.1 / 100 is written 0.071, not 0.07099999999999999.
+SAVED_FLOAT_DIGITS = 15
+#: First line of a ``finance.toml`` that saving creates.
+FINANCE_TOML_HEADER = "# drivecase finance assumptions (every key, unit and default: docs/finance.md).\n"
+#: Parts of an .xlsx package that a rewrite by the spreadsheet library would drop; a workbook holding
+#: any of them is not saved into (its finance sheet is then edited in a spreadsheet program).
+_PARTS_NOT_KEPT: tuple[tuple[str, str], ...] = (
+    ("xl/drawings/", "charts, images or shapes"), ("xl/charts/", "charts"), ("xl/media/", "images"),
+    ("xl/pivotTables/", "pivot tables"), ("xl/pivotCache/", "pivot tables"),
+    ("xl/externalLinks/", "links to other workbooks"), ("xl/vbaProject.bin", "macros"),
+)
+
+SaveOutcome = Literal["saved", "unchanged", "refused", "failed"]
+#: One save at a time in this process (the dashboard serves several tabs from threads).
+_SAVE_LOCK = threading.Lock()
+
+
+@dataclass(frozen=True)
+class SavedCase:
+    """What :func:`save_finance_settings` did.
+
+    Attributes
+    ----------
+    outcome : {"saved", "unchanged", "refused", "failed"}
+        ``saved``: the file was replaced and the case reloads with the new values. ``unchanged``: the case
+        already holds these values; nothing was written. ``refused``: a check failed before anything was
+        written. ``failed``: writing or the reload check failed and the case was put back as it was.
+    case_path : pathlib.Path
+        The case as given (folder or workbook).
+    written : pathlib.Path or None
+        The file that holds the finance values (``finance.toml`` or the workbook), once it is known.
+    previous : pathlib.Path or None
+        Where the file as it was before the save is kept; None when there was no file or nothing was kept.
+    changes : tuple of (str, object, object)
+        Each key written, with the case's value before and the value saved (rates as fractions).
+    problems : tuple of Problem
+        Why the save was refused or failed (empty after ``saved`` and ``unchanged``).
+    case : models.case.Case or None
+        The case as reloaded after ``saved`` (None otherwise).
+    """
+
+    outcome: SaveOutcome
+    case_path: Path
+    written: Path | None = None
+    previous: Path | None = None
+    changes: tuple[tuple[str, object, object], ...] = ()
+    problems: tuple[Problem, ...] = ()
+    case: object = field(default=None, repr=False, compare=False)
+
+    @property
+    def ok(self) -> bool:
+        """True when the case now holds the assumptions (saved, or already held them)."""
+        return self.outcome in ("saved", "unchanged")
+
+    def summary(self) -> str:
+        """One line for the user: what was written where and where the previous version is kept, or why not."""
+        name = self.written.name if self.written is not None else str(self.case_path)
+        if self.outcome == "unchanged":
+            return f"Nothing to save: {name} already holds these assumptions."
+        if self.outcome == "saved":
+            shown = "; ".join(f"{k} {_shown(old)} -> {_shown(new)}" for k, old, new in self.changes)
+            kept = (f"The previous version is kept as {self.previous.relative_to(self.written.parent).as_posix()}."
+                    if self.previous is not None else f"There was no {name} before; it was created.")
+            return f"Saved {len(self.changes)} value(s) into {name} ({shown}). {kept}"
+        first = self.problems[0] if self.problems else None
+        why = f"{first.location()}: {first.rule}" + (f". {first.hint}" if first.hint else "") if first else "unknown reason"
+        tail = " The case was put back as it was." if self.outcome == "failed" else " Nothing was written."
+        return f"Not saved ({why}).{tail}"
+
+
+@dataclass(frozen=True)
+class _Place:
+    """Where a save goes: the file written, the folder of kept versions, the name shown in problems."""
+
+    kind: str
+    target: Path
+    versions: Path
+    source: str
+
+
+def save_finance_settings(case_path: str | Path, assumptions: object, *,
+                          now: _dt.datetime | None = None) -> SavedCase:
+    """Write finance assumptions into a case: only the keys that differ, atomically, keeping the previous file.
+
+    Parameters
+    ----------
+    case_path : str or pathlib.Path
+        A case folder (its ``finance.toml`` is changed, or created) or an ``.xlsx`` workbook (its
+        ``finance`` sheet is changed, or added).
+    assumptions : models.finance.FinanceAssumptions or mapping
+        Either the whole set the case should hold (every field whose value differs from the case's is
+        written), or a mapping of keys from docs/finance.md to new values as a TOML file holds them
+        (rates as fractions, ``budget_per_yr`` as a list [currency]); only those keys change.
+    now : datetime.datetime, optional
+        Time-zone aware time that names the kept version, written in UTC (default: the current time).
+
+    Returns
+    -------
+    SavedCase
+        The outcome, the file written, the kept previous version, the changes, or the problems that
+        stopped the save. File-system trouble never raises: it is a ``refused`` or ``failed`` outcome.
+
+    Raises
+    ------
+    ValueError
+        When the assumptions are refused by :class:`models.finance.FinanceAssumptions` (an unknown key,
+        a value out of range) or ``now`` has no time zone. Nothing is written.
+
+    Notes
+    -----
+    The steps, under a process-wide lock:
+
+    1. Refuse a case that is missing, read-only (no write permission bit, or no write access), a
+       macro-enabled or formula-holding workbook, or whose finance file is a link to a file outside the
+       case; refuse a case that does not load (the errors are returned).
+    2. Compare the new values with the case's (file values, or defaults where the file has no key);
+       keys that differ are changed in place with their comments, order and layout kept (TOML through
+       ``tomlkit``; a workbook cell through ``openpyxl``); keys the file lacks are added.
+    3. Copy the file as it was to ``<case>/.versions/finance-<UTC stamp>.toml`` (a workbook to
+       ``<book>.xlsx.versions/<book>-<UTC stamp>.xlsx``), created exclusively so no kept version is
+       ever overwritten (a second save within the same second gets ``_002``, ``_003``...; the names sort
+       in time order).
+    4. Write the new content to a temporary file in the same folder, flush and fsync it, and rename it
+       over the old file (:func:`models.exports.atomic_write_bytes`): a rename within one file system
+       replaces the file in one step [1]_.
+    5. Reload the case (:func:`models.case.load_case`): unless it loads, reads back the saved values and
+       reads every other table and setting as before, the previous content is written back the same
+       way and the outcome is ``failed``. An exception at any step, even an interrupt, puts the
+       previous content back before it propagates.
+
+    Warnings
+    --------
+    There is no lock against another program editing the same case at the same moment; a power loss
+    after step 4 leaves the new file in place and the old one under the versions folder.
+
+    References
+    ----------
+    .. [1] IEEE and The Open Group, "rename," in *IEEE Std 1003.1-2017 (POSIX.1-2017), System
+       Interfaces*, 2018.
+    .. [2] T. Preston-Werner et al., "TOML v1.0.0," 2021. [Online]. Available: https://toml.io/en/v1.0.0
+    """
+    if now is None:
+        now = _dt.datetime.now(_dt.timezone.utc)
+    elif not isinstance(now, _dt.datetime) or now.utcoffset() is None:
+        raise ValueError("now must be a time-zone aware datetime, e.g. datetime.now(timezone.utc)")
+    stamp = now.astimezone(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    with _SAVE_LOCK:
+        return _save_finance(Path(case_path), assumptions, stamp)
+
+
+def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
+    from models.case import load_case  # models.case imports this module
+    from models.finance import FinanceAssumptions
+
+    place, problems = _save_place(path)
+    if place is None:
+        return SavedCase("refused", path, problems=tuple(problems))
+    before, found = load_case(path)
+    if before is None or before.finance is None:
+        return SavedCase("refused", path, place.target, problems=(
+            error(str(path), None, None, None, "the case has errors, so nothing was saved into it",
+                  "fix the errors listed (drivecase check shows them) and save again"),
+            *[p for p in found if p.severity == "error"]))
+    new = _assumptions_to_save(before.finance, assumptions, place.source)
+    changes = tuple((name, getattr(before.finance, name), getattr(new, name))
+                    for name in FinanceAssumptions.__dataclass_fields__
+                    if not _same_value(getattr(before.finance, name), getattr(new, name)))
+    if not changes:
+        return SavedCase("unchanged", path, place.target)
+    try:
+        original = place.target.read_bytes() if place.target.exists() else None
+        mode = stat.S_IMODE(place.target.stat().st_mode) if original is not None else None
+    except OSError as exc:
+        return SavedCase("refused", path, place.target, problems=(_os_problem(place.source, "read", exc),))
+    if place.kind == "workbook":
+        why = _workbook_not_rewritable(original or b"")
+        if why:
+            return SavedCase("refused", path, place.target, problems=(
+                error(place.target.name, None, None, None, f"the workbook holds {why}, which saving it again would lose",
+                      "change the finance sheet in a spreadsheet program, or save the case as a folder"),))
+    try:
+        data = (_finance_sheet_bytes(original or b"", changes) if place.kind == "workbook"
+                else _finance_toml_bytes(original, changes, place.source))
+    except Exception as exc:  # tomlkit or openpyxl met something the reader accepted; never a traceback
+        return SavedCase("refused", path, place.target, problems=(
+            error(place.source, None, None, None, f"the file cannot be edited ({exc.__class__.__name__}: {exc})",
+                  "change the values in a text editor or spreadsheet program"),))
+    raw_before = read_case_files(path)
+    previous = None
+    if original is not None:
+        try:
+            previous = _keep_version(place.versions, place.target, original, stamp, mode)
+        except OSError as exc:
+            return SavedCase("refused", path, place.target, problems=(_os_problem(
+                str(place.versions), "keep the previous version in", exc),))
+    try:
+        from models.exports import atomic_write_bytes
+
+        atomic_write_bytes(place.target, data)
+        if mode is not None and stat.S_IMODE(place.target.stat().st_mode) != mode:
+            os.chmod(place.target, mode)
+        _fsync_dir(place.target.parent)
+        after, found_after = load_case(path)
+        trouble = _saved_case_trouble(raw_before, read_case_files(path), after, found_after, new, place.source)
+    except Exception as exc:
+        after, trouble = None, [error(place.source, None, None, None,
+                                      f"saving failed ({exc.__class__.__name__}: {exc})",
+                                      "check the disk space and the permissions of the case folder")]
+    except BaseException:  # an interrupt: put the old file back, then let it stop the program
+        if _put_back(place.target, original, mode) is None:
+            _drop(previous)
+        raise
+    if not trouble:
+        return SavedCase("saved", path, place.target, previous, changes, (), after)
+    back = _put_back(place.target, original, mode)
+    if back is None:
+        _drop(previous)
+        previous = None
+    else:
+        trouble = [back] + trouble
+    return SavedCase("failed", path, place.target, previous, changes, tuple(trouble))
+
+
+def _save_place(path: Path) -> tuple[_Place | None, list[Problem]]:
+    """Find the file a save writes and the versions folder; refuse links out of the case and read-only places."""
+    def refuse(file: str, rule: str, hint: str) -> tuple[None, list[Problem]]:
+        return None, [error(file, None, None, None, rule, hint)]
+
+    try:
+        is_dir, is_file = path.is_dir(), path.is_file()
+        if is_dir:
+            root = path.resolve(strict=True)
+            files, problems = _folder_files(root)
+            if problems:
+                return None, problems
+            given = files.get("finance.toml", root / "finance.toml")
+            if given.is_symlink():
+                real = given.resolve()
+                if not real.is_relative_to(root) or not real.is_file():
+                    return refuse(given.name, f"{given.name} is a link to {real}, outside the case or missing; "
+                                  "drivecase does not write through it", "replace the link by the file itself")
+                given = real
+            elif given.exists() and not given.is_file():
+                return refuse(given.name, f"{given.name} is not a file", "rename or remove it")
+            place = _Place("folder", given, root / VERSIONS_DIR, given.name)
+        elif is_file and path.suffix.lower() == ".xlsx":
+            real = path.resolve(strict=True)
+            if path.is_symlink() and real.parent != path.parent.resolve():
+                return refuse(path.name, f"the workbook is a link to {real}, in another folder; drivecase does not "
+                              "write through it", "give the workbook itself as the case")
+            place = _Place("workbook", real, real.parent / f"{real.name}{WORKBOOK_VERSIONS_SUFFIX}", f"{real.name}:finance")
+        elif is_file and path.suffix.lower() in WORKBOOK_SUFFIXES:
+            return refuse(path.name, "drivecase saves only into .xlsx workbooks, never into a macro-enabled one",
+                          "change the finance sheet in a spreadsheet program, or save the case as .xlsx")
+        else:
+            what = "does not exist" if not path.exists() else _not_a_case(path)
+            return refuse(str(path), f"the case {what}", "give a case folder or a .xlsx workbook")
+        versions = place.versions
+        if versions.is_symlink() or (versions.exists() and not versions.is_dir()):
+            return refuse(str(versions), f"'{versions.name}' is a link or a file, not a folder; earlier versions are "
+                          "kept in a folder of that name", "rename or remove it")
+        if _read_only(place.target.parent, folder=True):
+            return refuse(str(place.target.parent), "the case folder is read-only, so nothing can be saved into it",
+                          "save into a writable copy of the case, or make the folder writable")
+        if place.target.exists() and _read_only(place.target):
+            return refuse(place.target.name, f"{place.target.name} is read-only, so it is not changed",
+                          "make the file writable, or save into a copy of the case")
+        if versions.exists() and _read_only(versions, folder=True):
+            return refuse(str(versions), f"'{versions.name}' is read-only, so the previous version cannot be kept",
+                          "make the folder writable")
+    except (OSError, RuntimeError) as exc:  # RuntimeError: a symbolic-link loop in resolve()
+        return None, [_os_problem(str(path), "inspect", exc)]
+    return place, []
+
+
+def _read_only(path: Path, folder: bool = False) -> bool:
+    """True when a file or folder refuses writes: no write bit at all (honoured even for an administrator,
+    who could write anyway), or no write access for this process."""
+    need = os.W_OK | (os.X_OK if folder else 0)
+    return not stat.S_IMODE(path.stat().st_mode) & 0o222 or not os.access(path, need)
+
+
+def _os_problem(file: str, doing: str, exc: BaseException) -> Problem:
+    why = getattr(exc, "strerror", None) or f"{exc.__class__.__name__}: {exc}"
+    return error(file, None, None, None, f"drivecase could not {doing} it ({why})",
+                 "check that the case exists, that you may write to it and that the disk has space")
+
+
+def _assumptions_to_save(current, assumptions: object, source: str):
+    """The full set of assumptions to save: given whole, or the current set with a mapping's keys changed."""
+    from models.finance import FinanceAssumptions
+
+    if isinstance(assumptions, FinanceAssumptions):
+        return assumptions
+    if not isinstance(assumptions, Mapping):
+        raise ValueError(f"assumptions must be FinanceAssumptions or a mapping of finance keys, got "
+                         f"{type(assumptions).__name__}")
+    names = FinanceAssumptions.__dataclass_fields__
+    unknown = sorted(str(k) for k in assumptions if k not in names)
+    if unknown:
+        raise ValueError(f"unknown finance key(s) {', '.join(unknown)}; the keys are listed in docs/finance.md")
+    data = {name: getattr(current, name) for name in names}
+    data.update(assumptions)
+    new, problems = FinanceAssumptions.from_dict(data, source=source)
+    if new is None:
+        raise ValueError("; ".join(f"{p.column}: {p.rule}" for p in problems if p.severity == "error"))
+    return new
+
+
+def _same_value(a: object, b: object) -> bool:
+    """Equal values, floats within 1e-12 relative (the rounding of the digits written is 1e-15)."""
+    if isinstance(a, (tuple, list)) or isinstance(b, (tuple, list)):
+        return (isinstance(a, (tuple, list)) and isinstance(b, (tuple, list)) and len(a) == len(b)
+                and all(_same_value(x, y) for x, y in zip(a, b)))
+    numbers = (int, float)
+    if isinstance(a, numbers) and isinstance(b, numbers) and not isinstance(a, bool) and not isinstance(b, bool):
+        if math.isnan(a) or math.isnan(b):
+            return math.isnan(a) and math.isnan(b)
+        return a == b or math.isclose(a, b, rel_tol=1e-12, abs_tol=0.0)
+    return a == b
+
+
+def _file_number(value: float | int) -> float | int:
+    """A number as written: whole amounts in a list as integers, others to :data:`SAVED_FLOAT_DIGITS` digits."""
+    if isinstance(value, bool) or isinstance(value, int) or not math.isfinite(value):
+        return value
+    return float(f"{value:.{SAVED_FLOAT_DIGITS}g}")
+
+
+def _toml_value(value: object) -> object:
+    if isinstance(value, (tuple, list)):
+        return [int(v) if float(v).is_integer() and abs(v) < 2 ** 53 else _file_number(float(v)) for v in value]
+    if isinstance(value, float):
+        return _file_number(value)
+    return value
+
+
+def _sheet_value(value: object) -> object:
+    """A value as a workbook cell holds it: numbers as numbers, a list as its TOML text, infinity as text."""
+    if isinstance(value, (tuple, list)):
+        return "[" + ", ".join(repr(v) for v in _toml_value(value)) + "]"
+    if isinstance(value, float) and not math.isfinite(value):
+        return "inf" if value > 0 else "-inf"
+    return _toml_value(value)
+
+
+def _shown(value: object) -> str:
+    if isinstance(value, (tuple, list)):
+        return "[" + ", ".join(f"{v:g}" for v in value) + "]"
+    if isinstance(value, float):
+        return f"{_file_number(value):g}" if math.isfinite(value) else str(value)
+    return str(value)
+
+
+def _finance_toml_bytes(original: bytes | None, changes, source: str) -> bytes:
+    """The finance file with only the changed keys rewritten (comments, order, quotes and line ends kept)."""
+    import tomlkit
+
+    if original is None:
+        text = FINANCE_TOML_HEADER
+    else:
+        decoded, _problems, _codec = _decode(original, source)
+        if decoded is None:
+            raise ValueError("the file is not text")
+        text = decoded
+    newline = "\r\n" if "\r\n" in text else "\n"
+    document = tomlkit.parse(text)
+    table = document["finance"] if isinstance(document.get("finance"), dict) else document
+    for key, _old, new in changes:
+        table[key] = _toml_value(new)
+    out = document.as_string()
+    if newline == "\r\n":
+        out = re.sub(r"(?<!\r)\n", "\r\n", out)
+    return out.encode("utf-8")
+
+
+def _finance_sheet_bytes(original: bytes, changes) -> bytes:
+    """The workbook with only the changed keys of its ``finance`` sheet rewritten (the sheet added if absent)."""
+    from openpyxl import load_workbook
+
+    book = load_workbook(io.BytesIO(original))
+    try:
+        sheets = _sheet_lookup(book.sheetnames)
+        if "finance" in sheets:
+            sheet = book[sheets["finance"]]
+        else:
+            sheet = book.create_sheet("finance")
+            sheet.append(["key", "value"])
+        rows: dict[str, int] = {}
+        for row_no, values in enumerate(sheet.iter_rows(max_col=1, values_only=True), start=1):
+            first = values[0] if values else None
+            if first is None or str(first).lstrip().startswith("#"):
+                continue
+            rows[normalise_header(first).replace(" ", "_")] = row_no  # the reader keeps the last of a key
+        for key, _old, new in changes:
+            if key in rows:
+                sheet.cell(rows[key], 2).value = _sheet_value(new)
+            else:
+                sheet.append([key, _sheet_value(new)])
+        out = io.BytesIO()
+        book.save(out)
+        return out.getvalue()
+    finally:
+        book.close()
+
+
+def _workbook_not_rewritable(data: bytes) -> str:
+    """What a workbook holds that a rewrite would lose (formulas lose their saved results), or ''."""
+    if _has_formulas(data):
+        return "formulas (their saved results)"
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as package:
+            names = package.namelist()
+    except (zipfile.BadZipFile, OSError):
+        return "a damaged package"
+    found = sorted({what for prefix, what in _PARTS_NOT_KEPT for name in names if name.startswith(prefix)})
+    return " and ".join(found)
+
+
+def _keep_version(folder: Path, target: Path, data: bytes, stamp: str, mode: int | None) -> Path:
+    """Copy the old content to a new, never-existing file of the versions folder; return its path."""
+    folder.mkdir(exist_ok=True)
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0) | getattr(os, "O_NOFOLLOW", 0)
+    for n in range(1, 1000):
+        candidate = folder / f"{target.stem}-{stamp}{'' if n == 1 else f'_{n:03d}'}{target.suffix}"
+        try:
+            handle = os.open(candidate, flags, 0o666 if mode is None else mode)
+        except FileExistsError:
+            continue
+        try:
+            with os.fdopen(handle, "wb") as out:
+                out.write(data)
+                out.flush()
+                os.fsync(out.fileno())
+        except BaseException:
+            candidate.unlink(missing_ok=True)
+            raise
+        _fsync_dir(folder)
+        return candidate
+    raise FileExistsError(f"{folder} already holds 999 versions stamped {stamp}")
+
+
+def _fsync_dir(folder: Path) -> None:
+    """Make a rename or a new file in ``folder`` durable (POSIX; a no-op where folders cannot be opened)."""
+    try:
+        handle = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(handle)
+    except OSError:
+        pass
+    finally:
+        os.close(handle)
+
+
+def _put_back(target: Path, original: bytes | None, mode: int | None) -> Problem | None:
+    """Restore the file as it was before the save (remove it when there was none); a problem if that fails."""
+    from models.exports import atomic_write_bytes
+
+    try:
+        if original is None:
+            target.unlink(missing_ok=True)
+            return None
+        try:
+            current = target.read_bytes()
+        except OSError:
+            current = None
+        if current != original:
+            atomic_write_bytes(target, original)
+        if mode is not None and stat.S_IMODE(target.stat().st_mode) != mode:
+            os.chmod(target, mode)
+        return None
+    except Exception as exc:
+        return error(target.name, None, None, None,
+                     f"the previous version could not be put back ({exc.__class__.__name__}: {exc})",
+                     f"copy the newest file of {target.parent} versions folder over {target.name} by hand")
+
+
+def _drop(path: Path | None) -> None:
+    if path is not None:
+        try:
+            path.unlink(missing_ok=True)
+        except OSError:
+            pass
+
+
+def _saved_case_trouble(raw_before: RawCase, raw_after: RawCase, after, found_after: list[Problem], new,
+                        source: str) -> list[Problem]:
+    """Why a saved case must be put back: it no longer loads, reads other values, or reads other tables."""
+    if after is None or after.finance is None:
+        return [error(source, None, None, None, "the case no longer loads with the saved values",
+                      "see the errors listed; the saved values were taken back")] + [
+            p for p in found_after if p.severity == "error"]
+    trouble = []
+    differ = [name for name in type(new).__dataclass_fields__
+              if not _same_value(getattr(after.finance, name), getattr(new, name))]
+    if differ:
+        trouble.append(error(source, None, ", ".join(differ), None, "the saved file reads back other values than were saved",
+                             "please report this with the case files"))
+    if not _same_apart_from_finance(raw_before, raw_after):
+        trouble.append(error(source, None, None, None,
+                             "saving changed more than the finance values (another table or setting reads differently)",
+                             "change the finance values in a text editor or spreadsheet program"))
+    return trouble
+
+
+def _same_apart_from_finance(a: RawCase, b: RawCase) -> bool:
+    """True when two reads of a case agree on every table, setting and tariff."""
+    if (a.kind, a.settings, a.tariffs, a.unreadable_tariffs) != (b.kind, b.settings, b.tariffs, b.unreadable_tariffs):
+        return False
+    if a.tables.keys() != b.tables.keys():
+        return False
+    for name, t in a.tables.items():
+        u = b.tables[name]
+        if (t.source, t.headers, t.readable) != (u.source, u.headers, u.readable):
+            return False
+        if not np.array_equal(np.asarray(t.rows), np.asarray(u.rows)) or not t.frame.equals(u.frame):
+            return False
+    return True
