@@ -425,3 +425,28 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
     fig.update_xaxes(title_text=f"NPV [{currency}]")
     fig.update_yaxes(title_text="Project (asset/option)", automargin=True)
     return _style(fig, f"NPV range per project (top {min(top, len(rows))} by P50)", height=max(360, 22 * len(part) + 120))
+
+
+def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
+    """Monte Carlo distribution of the fleet NPV (best option of every asset) with P10, P50 and P90 marked.
+
+    Parameters
+    ----------
+    draws : numpy.ndarray
+        Fleet NPV of each draw [currency], shape (n_draws,).
+    """
+    draws = np.asarray(draws, dtype=float)
+    if draws.size == 0:
+        return message_figure("No Monte Carlo results.")
+    p10, p50, p90 = np.percentile(draws, [10, 50, 90])
+    fig = go.Figure(go.Histogram(x=draws, nbinsx=40, marker_color="#b9d3d8", name="draws",
+                                 hovertemplate="%{x} " + currency + "<br>%{y} draws<extra></extra>"))
+    for value, name, dash_ in ((p10, "P10", "dot"), (p50, "P50", "solid"), (p90, "P90", "dot")):
+        fig.add_vline(x=value, line=dict(color=AFTER, width=2, dash=dash_),
+                      annotation_text=f"{name} {value:,.0f}", annotation_position="top")
+    if draws.min() < 0 < draws.max():
+        fig.add_vline(x=0, line=dict(color=INK, width=1))
+    share = float((draws > 0).mean())
+    fig.update_xaxes(title_text=f"Fleet NPV [{currency}]")
+    fig.update_yaxes(title_text="Draws")
+    return _style(fig, f"Fleet NPV over {draws.size:,} draws · P(NPV > 0) = {share:.0%}")

@@ -118,6 +118,9 @@ class ScenarioResult:
         or "failed", see :class:`models.plan.FleetPlan`), ``message`` (plain words), ``gap_frac``
         (proven relative gap to the best possible plan NPV [frac]; NaN when unknown), ``settings``
         (:class:`PlanSettings` used).
+    fleet_npv_draws : numpy.ndarray
+        Monte Carlo: the fleet NPV of the best option of every asset, one value per draw [currency],
+        shape (n_draws,); empty without risk.
     """
 
     physics: Physics
@@ -135,6 +138,7 @@ class ScenarioResult:
     risk: pd.DataFrame
     bills: pd.DataFrame
     plan_status: dict = field(default_factory=dict)
+    fleet_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -438,14 +442,15 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
 
     tornado_rows = pd.DataFrame()
     risk_rows = pd.DataFrame()
+    fleet_draws = np.zeros(0)
     if with_risk:
         step("risk")
-        tornado_rows, risk_rows = _risk(flows, assumptions, results, d)
+        tornado_rows, risk_rows, fleet_draws = _risk(flows, assumptions, results, d)
 
     step("bills")
     bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
-                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4])
+                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws)
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
@@ -671,10 +676,11 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
 
 
 def _risk(flows, assumptions, results, d):
-    """Tornado of the fleet NPV of each asset's best option, and a seeded Monte Carlo per best project."""
+    """Tornado of the fleet NPV of each asset's best option, a seeded Monte Carlo per best project, and
+    the fleet NPV of each draw (the projects' NPVs of one draw share that draw's factors, so they add)."""
     best = np.flatnonzero(results["best_for_asset"].to_numpy() & (results["capital"].to_numpy() > 0))
     if not len(best):
-        return pd.DataFrame(), pd.DataFrame()
+        return pd.DataFrame(), pd.DataFrame(), np.zeros(0)
     amounts = flows.amounts[best]
     names = flows.component_names
     response = risk.default_response(assumptions)
@@ -691,7 +697,7 @@ def _risk(flows, assumptions, results, d):
                           tax_rate_frac=assumptions.tax_rate_frac)
     summary = mc.summary(target_payback_yr=3.0)
     summary = summary.reset_index() if "project" not in summary.columns else summary
-    return tornado_rows, summary
+    return tornado_rows, summary, np.asarray(mc.npv, dtype=float).sum(axis=1)
 
 
 def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:

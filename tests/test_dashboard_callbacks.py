@@ -31,7 +31,7 @@ def test_every_page_renders_on_the_case(engine):
     outputs = [fleet.update(None, None, None, None), asset.update("HRW-V01", None, None), site.update("KGQ", None, None, None),
                plan.update(True, None, None), risk.update(True, None, None), inputs.preview(True, None, None)]
     figures = [x for out in outputs for x in out if isinstance(x, go.Figure)]
-    assert len(figures) == 1 + 4 + 4 + 2 + 2
+    assert len(figures) == 1 + 4 + 4 + 2 + 3  # fleet, asset, site, plan, uncertainty (tornado, fleet NPV, ranges)
     assert all(f.data for f in figures)
 
 

@@ -196,6 +196,18 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(bar.x, [9.0] * 10)   # P90 - P10 of the inputs
         assert titles(fig)["xaxis"] == "NPV [EUR]"
 
+    def test_fleet_npv_histogram_marks_percentiles(self):
+        draws = np.arange(1.0, 101.0)  # 1..100
+        fig = figures.fleet_npv_histogram(draws, "EUR")
+        assert len(fig.data) == 1 and len(fig.data[0].x) == 100
+        marks = sorted(shape.x0 for shape in fig.layout.shapes)
+        # numpy percentile, linear rule, by hand: P10 = 1 + 0.1 * 99 = 10.9, P50 = 50.5, P90 = 90.1
+        np.testing.assert_allclose(marks, [10.9, 50.5, 90.1])
+        assert "P(NPV > 0) = 100%" in fig.layout.title.text and titles(fig)["xaxis"] == "Fleet NPV [EUR]"
+
+    def test_fleet_npv_histogram_empty(self):
+        assert not figures.fleet_npv_histogram(np.zeros(0), "EUR").data
+
     @pytest.mark.parametrize("builder", [figures.tornado, figures.risk_ranges])
     def test_empty(self, builder):
         assert not builder(pd.DataFrame(), "EUR").data

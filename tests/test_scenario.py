@@ -189,3 +189,11 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     assert not mismatch and not errors
     results = pd.read_csv(tmp_path / "a" / "results.csv")
     assert {"npv", "irr_frac", "simple_payback_yr", "life_cycle_cost", "co2_avoided_t_per_yr"} <= set(results.columns)
+
+
+def test_fleet_npv_draws_add_the_projects_of_each_draw(result):
+    # Invariant: the draws share the factors of one draw across projects, so the fleet draw is the sum;
+    # its median lies between the smallest and the largest sum of per-project P10s and P90s.
+    draws = result.fleet_npv_draws
+    assert draws.shape == (result.assumptions.monte_carlo_draws,)
+    assert result.risk["npv_p10"].sum() <= np.median(draws) <= result.risk["npv_p90"].sum()

@@ -1,4 +1,4 @@
-"""Uncertainty: the one-at-a-time tornado of the fleet NPV and the Monte Carlo NPV range of each project."""
+"""Uncertainty: the one-at-a-time tornado of the fleet NPV, the Monte Carlo fleet NPV and the range of each project."""
 
 from __future__ import annotations
 
@@ -15,6 +15,7 @@ RANGES = "risk-ranges"
 TABLE = "risk-table"
 SUMMARY = "risk-summary"
 NOTICE = "risk-notice"
+FLEET = "risk-fleet"
 
 
 def layout(**_query):
@@ -24,8 +25,9 @@ def layout(**_query):
                                       "input at a time (tornado), then all together in a seeded Monte Carlo."),
         ui.notice(NOTICE),
         html.Div(id=SUMMARY, className="asset-summary"),
-        html.Div([html.Div(ui.graph(TORNADO), className="panel half"), html.Div(ui.graph(RANGES), className="panel half")],
+        html.Div([html.Div(ui.graph(TORNADO), className="panel half"), html.Div(ui.graph(FLEET), className="panel half")],
                  className="row"),
+        html.Div(ui.graph(RANGES), className="panel"),
         html.H3("Monte Carlo summary per project"),
         ui.data_grid(TABLE, height=420),
     ])
@@ -44,7 +46,7 @@ def columns(currency: str) -> list[dict]:
 
 
 @callback(Output(TORNADO, "figure"), Output(RANGES, "figure"), Output(TABLE, "rowData"), Output(TABLE, "columnDefs"),
-          Output(SUMMARY, "children"), Output(NOTICE, "children"),
+          Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(FLEET, "figure"),
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
 def update(_ready, session, edits):
     """Tornado and Monte Carlo under the tab's assumptions (computed on this page only, then cached)."""
@@ -55,4 +57,5 @@ def update(_ready, session, edits):
     summary = html.Span(f"{len(rows)} projects (the best option of each asset that needs capital) · "
                         f"{a.monte_carlo_draws} draws, seed {a.monte_carlo_seed} · the same seed gives the same answer.")
     return (figures.tornado(services.tornado_rows(result), view.currency), figures.risk_ranges(rows, view.currency),
-            rows.to_dict("records"), columns(view.currency), summary, view.notice)
+            rows.to_dict("records"), columns(view.currency), summary, view.notice,
+            figures.fleet_npv_histogram(result.fleet_npv_draws, view.currency))
