@@ -1123,3 +1123,129 @@ def pack_zip_bytes(view_: View) -> bytes:
             for path in sorted(written):
                 archive.write(path, arcname=str(Path(path).relative_to(tmp)))
         return buffer.getvalue()
+
+
+# ---------------------------------------------------------------------------------------------------
+# Saving the tab's assumptions into its case
+# ---------------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class CaseSave:
+    """What saving a tab's assumptions into its case did, for the page to show.
+
+    Attributes
+    ----------
+    ok : bool
+        True when the case now holds the assumptions (saved, or already held them).
+    message : str
+        One line for the user: what was written where and where the previous version is kept, or why not.
+    session : dict or None
+        The tab's session after the save when it changed (an uploaded case gets a new key); None otherwise.
+    download : bytes or None
+        The saved case to keep (an uploaded case: the workbook as is, a folder as a zip); None otherwise.
+    download_name : str or None
+        File name of the download.
+    """
+
+    ok: bool
+    message: str
+    session: dict | None = None
+    download: bytes | None = None
+    download_name: str | None = None
+
+
+def save_tab_assumptions(session: dict | None, edits: dict | None, now=None) -> CaseSave:
+    """Write the tab's assumptions (its case's own with its edits) into the tab's case.
+
+    The case the server was started with is saved where it lies; an uploaded case is saved in the
+    server's copy of the upload, which is then offered as a download. After a save the tab's case is the
+    saved one (a new content key, registered like an upload, its machine results carried over because
+    only the finance values changed) and no edits are pending. Nothing is written when the tab's
+    uploaded case was dropped, when its edits are not valid, or when the case's files changed on disk
+    since the server read them.
+
+    Parameters
+    ----------
+    session, edits : dict or None
+        The tab's session and edits stores.
+    now : datetime.datetime, optional
+        Time-zone aware time naming the kept version (tests fix it).
+    """
+    session = session if isinstance(session, dict) else {}
+    entry, notice = session_entry(session)
+    if notice:
+        return CaseSave(False, "Not saved: this tab's uploaded case is no longer held by the server; upload it again.")
+    assumptions = entry.case.finance
+    if isinstance(edits, dict) and edits.get("case") == entry.key:
+        try:
+            assumptions = assumptions_with_edits(entry.case.finance, edits)
+        except (TypeError, ValueError) as exc:
+            return CaseSave(False, f"Not saved: the assumptions are not valid ({exc}).")
+    try:
+        on_disk = content_key(entry.files)
+    except OSError as exc:
+        on_disk = f"unreadable: {exc}"
+    if on_disk != entry.key:
+        return CaseSave(False, "Not saved: the case's files changed on disk since the server read them, so saving "
+                               "could overwrite someone else's change. Nothing was written; restart drivecase serve "
+                               "on the case (or upload it again) to read the files as they are now.")
+    try:
+        saved = case_io.save_finance_settings(entry.files, assumptions, now=now)
+    except ValueError as exc:
+        return CaseSave(False, f"Not saved: {exc}.")
+    if not saved.ok:
+        return CaseSave(False, saved.summary() + " The edits stay in force in this tab.")
+    if saved.outcome == "unchanged":
+        return CaseSave(True, saved.summary())
+    new = _register_saved(engine(), entry, saved.case, content_key(entry.files))
+    if entry.origin != "upload":
+        return CaseSave(True, f"{saved.summary()} Case: {entry.files}.")
+    data, name = saved_case_bytes(new)
+    return CaseSave(True, f"{saved.summary()} This is the server's copy of your upload; keep the download ({name}).",
+                    {"session": session.get("session"), "case": new.key}, data, name)
+
+
+def _register_saved(eng: Engine, old: CaseEntry, case, key: str) -> CaseEntry:
+    """Put the saved case in the engine in place of the old one, carrying over what finance cannot change.
+
+    The machine results and finance-independent views are kept when the capacitor cost (the one finance
+    value the machine models take) is unchanged. The old entry is dropped without removing its folder,
+    which now holds the saved case.
+    """
+    with eng._lock:
+        carry = (old.key in eng._physics and float(case.finance.capacitor_cost_per_kvar)
+                 == float(old.case.finance.capacitor_cost_per_kvar))
+        physics = eng._physics.get(old.key) if carry else None
+        derived = {(key,) + k[1:]: v for k, v in eng._derived.items() if k[0] == old.key} if carry else {}
+        last_plans = getattr(eng, "_last_plan", {})
+        last_plan = last_plans.get(old.key)
+        eng._cases.pop(old.key, None)
+        eng._forget(old.key)
+        if old.origin == "upload":
+            new = eng._cases.get(key) or eng._add_upload(CaseEntry(key, case, old.files, "upload", old.owned_dir))
+        else:
+            new = CaseEntry(key, case, old.files, old.origin)
+            eng._cases[key] = new
+            eng._cases.move_to_end(key, last=False)
+            eng.default_key = key
+        if physics is not None:
+            eng._physics.setdefault(key, physics)
+            for k, v in derived.items():
+                eng._derived.setdefault(k, v)
+        if last_plan is not None:
+            last_plans.setdefault(key, last_plan)
+    return new
+
+
+def saved_case_bytes(entry: CaseEntry) -> tuple[bytes, str]:
+    """The case of an entry as one download: a workbook as it is, a folder's case files as a zip."""
+    import io
+    import zipfile
+
+    if entry.files.is_file():
+        return entry.files.read_bytes(), entry.files.name
+    buffer = io.BytesIO()
+    with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
+        for path in case_files(entry.files):
+            archive.write(path, arcname=path.relative_to(entry.files).as_posix())
+    stem = re.sub(r"[^A-Za-z0-9]+", "-", entry.name).strip("-")[:60] or "case"
+    return buffer.getvalue(), f"{stem}.zip"

@@ -28,6 +28,9 @@ FORM_MESSAGE = "inputs-form-message"
 CASE = "inputs-case"
 NOTICE = "inputs-notice"
 HEADLINE = "inputs"
+SAVE_BUTTON = "inputs-save"
+SAVE_STATUS = "inputs-save-status"
+SAVE_DOWNLOAD = "inputs-save-download"
 
 
 def layout(**_query):
@@ -70,6 +73,9 @@ def layout(**_query):
                 ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
                 html.Button("Back to the case's own assumptions", id=RESET, className="button secondary"),
                 html.Div(id=FORM_MESSAGE, className="form-message", role="alert"),
+                html.Button("Save these assumptions into the case", id=SAVE_BUTTON, className="button"),
+                dcc.Loading(html.Div(id=SAVE_STATUS, className="form-message", role="status"), type="dot"),
+                dcc.Download(id=SAVE_DOWNLOAD),
                 html.H4("With these assumptions"),
                 ui.headline_cards(HEADLINE),
             ], className="panel half form"),
@@ -165,3 +171,25 @@ def preview(_ready, session, edits):
                            + (f" · {s['warnings']} warning(s) when read" if s["warnings"] else ""))]
     cards = ui.headline_values(services.headline(view.result()), view.currency)
     return (*cards, case_line, view.notice)
+
+
+#: The form as the edit callback reads it (same fields, same order): the save parses the fields as they
+#: are at the click, so a value typed and not yet applied with Enter is saved too.
+SAVE_FORM = [State(DISCOUNT, "value"), State(ESCALATION, "value"), State(HORIZON, "value"), State(PRICE_LEVEL, "value"),
+             State(CAPITAL_LEVEL, "value"), *[State(i, "value") for i in BUDGET_IDS],
+             State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data")]
+
+
+@callback(Output(ui.SESSION_STORE, "data", allow_duplicate=True), Output(ui.EDITS_STORE, "data", allow_duplicate=True),
+          Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"),
+          Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, prevent_initial_call=True)
+def save(_clicks, *form):
+    """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept."""
+    edits, problem = edit(*form)
+    if problem:
+        return no_update, no_update, f"Not saved: {problem}", no_update
+    outcome = services.save_tab_assumptions(form[-1], form[-2] if edits is no_update else edits)
+    download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
+                else no_update)
+    return (outcome.session if outcome.session is not None else no_update, None if outcome.ok else no_update,
+            outcome.message, download)
