@@ -21,6 +21,7 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
+from models import billing
 from models.billing import _CHUNK_ELEMENTS, bill_many, interval_hours
 from models.site import Site, SiteMeter
 from models.tariff import Tariff
@@ -404,15 +405,24 @@ def reactive_balance(meter: SiteMeter, interval_h: float) -> pd.Series:
 
 
 def _ideal_bank_bills(tariff, index, meter: SiteMeter, sizes_q_kvar: np.ndarray, interval_h, repeat_year) -> pd.DataFrame:
-    """Bill the site with an extra ideal automatic bank of each size (removes min(size, Q⁺) per interval)."""
+    """Bill the site with an extra ideal automatic bank of each size (removes min(size, Q⁺) per interval).
+
+    The kW are the same for every size: the bill engine prices them once (one row for all scenarios),
+    and one calendar serves every block of sizes.
+    """
     p = np.asarray(meter.p_kw, dtype=float)
     q = np.asarray(meter.q_kvar, dtype=float)
     sizes = np.asarray(sizes_q_kvar, dtype=float)
+    cal = billing._calendar(tariff, index, interval_h)
+    p_row = billing._as_2d(p, cal.n_steps, "p_kw_2d")
+    q_row = billing._as_2d(q, cal.n_steps, "q_kvar_2d")
+    billing._check_repeat(cal, repeat_year)
     chunk = max(1, _CHUNK_ELEMENTS // max(len(p), 1))
     frames = []
     for start in range(0, len(sizes), chunk):
-        qc = np.clip(q[None, :], 0.0, sizes[start : start + chunk, None])
-        frames.append(bill_many(tariff, index, np.broadcast_to(p, qc.shape), q[None, :] - qc, interval_h=interval_h, repeat_year=repeat_year))
+        qc = np.clip(q_row, 0.0, sizes[start : start + chunk, None])
+        np.subtract(q_row, qc, out=qc)
+        frames.append(billing._priced(tariff, cal, p_row, qc, repeat_year))
     return pd.concat(frames, ignore_index=True)
 
 

@@ -27,10 +27,10 @@ COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "fixed": ("fixed",),
 }
 SAVING_COMPONENTS: tuple[str, ...] = tuple(COMPONENT_CATEGORIES)
-#: Asset-option scenarios billed together, in scenario-steps: 119 scenarios of an hourly year (about
-#: 10 arrays of 8 MiB live per block). Smaller blocks fit the cache better: on 500-asset sites 2**20 took
-#: 2.1-3.6 s against 2.4-4.7 s for 2**22 (docs/scale.md).
-SCENARIO_BLOCK_ELEMENTS = 2**20
+#: Asset-option scenarios billed together, in scenario-steps: 14 scenarios of an hourly year (about
+#: 10 arrays of 1 MiB live per block). Small blocks stay in the processor's cache and their temporaries
+#: are reused by the allocator rather than mapped afresh for every block (benchmarks/bench_fleet.py).
+SCENARIO_BLOCK_ELEMENTS = 2**17
 #: Technologies whose value is mainly reactive power: they are compared with a capacitor bank.
 REACTIVE_TECHNOLOGIES = ("wound_field", "capacitor")
 
@@ -105,21 +105,6 @@ def site_setups(case, index: pd.DatetimeIndex) -> dict[str, SiteSetup]:
     return setups
 
 
-def _components(frame: pd.DataFrame) -> np.ndarray:
-    """Gather ``saving_<category>`` columns into components, spreading taxes in proportion."""
-    out = np.zeros((len(frame), len(SAVING_COMPONENTS)))
-    for k, cats in enumerate(COMPONENT_CATEGORIES.values()):
-        for cat in cats:
-            column = f"saving_{cat}"
-            if column in frame:
-                out[:, k] += frame[column].to_numpy(dtype=float)
-    total = frame["saving"].to_numpy(dtype=float)
-    untaxed = out.sum(axis=1)
-    rest = total - untaxed  # taxes and levies move with the charges they are levied on
-    share = np.divide(out, untaxed[:, None], out=np.full_like(out, 1.0 / out.shape[1]), where=np.abs(untaxed[:, None]) > 1e-12)
-    return out + share * rest[:, None]
-
-
 def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] | None = None):
     """Site meters and bills for one choice of option per asset.
 
@@ -190,31 +175,70 @@ def kvar_clauses(tariff):
     return replace(tariff, fixed=(), energy=energy, demand=demand)
 
 
-def _scenario_bills(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_kw: np.ndarray,
-                    q_kvar: np.ndarray, dp_kw: np.ndarray | None = None, dq_kvar: np.ndarray | None = None) -> pd.DataFrame:
-    """Bill totals by line item of asset-total scenarios (p_kw + dp_kw, q_kvar + dq_kvar) at one site's meter.
+class _SiteBiller:
+    """Prices asset-total scenarios at one site's meter under one tariff, against a calendar built once.
 
     The meter is :func:`models.site.meter_from_asset_totals` (base load, fixed banks, automatic banks in
     order) term by term and in the same order, so the values are the same; it is built in place and
-    without the apparent power, power factor and leading flags a bill does not use.
+    without the apparent power, power factor and leading flags a bill does not use. The base load's
+    kVAr and the fixed banks' kVAr are computed once.
     """
-    site = setup.site
-    base_p = setup.base_p_kw_profile if setup.base_p_kw_profile is not None else site.base_p_kw
-    base_p = np.asarray(base_p, dtype=float)
-    p = np.add(p_kw, dp_kw) if dp_kw is not None else np.array(p_kw, dtype=float)
-    q = np.add(q_kvar, dq_kvar) if dq_kvar is not None else np.array(q_kvar, dtype=float)
-    shape = np.broadcast_shapes(p.shape, q.shape)
-    p = np.array(np.broadcast_to(p, shape)) if p.shape != shape else p
-    q = np.array(np.broadcast_to(q, shape)) if q.shape != shape else q
-    p += base_p
-    q += base_p * tan_phi_from_power_factor(site.base_power_factor)
-    sizes = np.asarray([b.rated_q_kvar for b in site.fixed_banks], dtype=float)
-    if sizes.size:
-        energised = np.ones((sizes.size, shape[-1]))
-        q += 0.0 - np.tensordot(sizes, energised, axes=(0, 0))
-    for bank in site.stepped_banks:
-        q += bank.q_kvar(p, q)
-    return billing.bill_many(setup.tariff, index, p, q, interval_h=interval_h)
+
+    def __init__(self, setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, tariff=None):
+        site = setup.site
+        self.tariff = setup.tariff if tariff is None else tariff
+        self.calendar = billing._calendar(self.tariff, index, interval_h)
+        base_p = setup.base_p_kw_profile if setup.base_p_kw_profile is not None else site.base_p_kw
+        self.base_p = np.asarray(base_p, dtype=float)
+        self.base_q = self.base_p * tan_phi_from_power_factor(site.base_power_factor)
+        sizes = np.asarray([b.rated_q_kvar for b in site.fixed_banks], dtype=float)
+        self.fixed_q = 0.0 - np.tensordot(sizes, np.ones((sizes.size, len(index))), axes=(0, 0)) if sizes.size else None
+        self.stepped = site.stepped_banks
+
+    def totals(self, p_kw: np.ndarray, q_kvar: np.ndarray, dp_kw: np.ndarray | None = None,
+               dq_kvar: np.ndarray | None = None) -> tuple[list[str], np.ndarray]:
+        """Line-item names and amounts (S, I) [currency] of scenarios (p_kw + dp_kw, q_kvar + dq_kvar).
+
+        A quantity without a change stays one row for every scenario (priced once by the engine).
+        """
+        p = np.add(p_kw, dp_kw) if dp_kw is not None else np.array(p_kw, dtype=float)
+        q = np.add(q_kvar, dq_kvar) if dq_kvar is not None else np.array(q_kvar, dtype=float)
+        p, q = np.atleast_2d(p), np.atleast_2d(q)
+        if q.shape[0] < p.shape[0]:
+            q = np.array(np.broadcast_to(q, p.shape))
+        p += self.base_p
+        q += self.base_q
+        if self.fixed_q is not None:
+            q += self.fixed_q
+        for bank in self.stepped:
+            q += bank.q_kvar(p, q)
+        for name, x in (("p_kw_2d", p), ("q_kvar_2d", q)):
+            if not billing._all_finite(x):
+                raise ValueError(f"{name} contains NaN or infinite values; fill or drop the gaps first")
+        names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, False)
+        return names, np.ascontiguousarray(np.broadcast_to(amounts, (max(p.shape[0], q.shape[0]), len(names))))
+
+
+def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.ndarray) -> np.ndarray:
+    """Savings (S, n_components) [currency] of scenarios from their line-item amounts and the baseline's.
+
+    Line items are gathered by category (as :func:`models.attribution.saving_by_category`) and the
+    categories into :data:`SAVING_COMPONENTS`; taxes and levies move with the charges they are levied
+    on, so what is left of the total saving is spread over the components in proportion.
+    """
+    diff = base_amounts[None, :] - amounts
+    total = base_amounts.sum() - amounts.sum(axis=1)
+    cats = list(dict.fromkeys(n.split(":", 1)[0] for n in names))
+    by_cat = {cat: diff[:, [i for i, n in enumerate(names) if n.split(":", 1)[0] == cat]].sum(axis=1) for cat in cats}
+    out = np.zeros((len(amounts), len(SAVING_COMPONENTS)))
+    for k, group in enumerate(COMPONENT_CATEGORIES.values()):
+        for cat in group:
+            if cat in by_cat:
+                out[:, k] += by_cat[cat]
+    untaxed = out.sum(axis=1)
+    rest = total - untaxed
+    share = np.divide(out, untaxed[:, None], out=np.full_like(out, 1.0 / out.shape[1]), where=np.abs(untaxed[:, None]) > 1e-12)
+    return out + share * rest[:, None]
 
 
 def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p_site, q_site, applies: np.ndarray,
@@ -283,12 +307,12 @@ class SiteSavings:
         self.saving = np.zeros((n_assets, n_o, len(SAVING_COMPONENTS)))
         self.reactive = np.zeros((n_assets, n_o))
         self.pairs: list[tuple[np.ndarray, np.ndarray]] = []
-        self.base = _scenario_bills(setup, index, interval_h, p0_kw[None, :], q0_kvar[None, :])
+        self.biller = _SiteBiller(setup, index, interval_h)
+        self.base_amounts = self.biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0]
         self.q_matters = tariff_depends_on_kvar(setup.tariff)
         if self.q_matters:
-            self.q_setup = replace(setup, tariff=kvar_clauses(setup.tariff))
-            self.q_base_total = float(_scenario_bills(self.q_setup, index, interval_h, p0_kw[None, :],
-                                                      q0_kvar[None, :])["total"].iloc[0])
+            self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
+            self.q_base_total = float(self.q_biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0].sum())
 
     def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray) -> None:
         """Price the asset-options of a block of the site's assets (positions ``rows`` in the site).
@@ -301,12 +325,12 @@ class SiteSavings:
             j, o = js[start:start + self.block], os_[start:start + self.block]
             dp = p_block[o, j] - p_block[0, j]
             dq = q_block[o, j] - q_block[0, j]
-            full = _scenario_bills(self.setup, self.index, self.interval_h, p0, q0, dp, dq)
-            frame = attribution.saving_by_category(self.base, full)
-            self.saving[rows[j], o] = _components(frame)
+            names, amounts = self.biller.totals(p0, q0, dp, dq)
+            self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
             if self.q_matters:
-                reactive_only = _scenario_bills(self.q_setup, self.index, self.interval_h, p0 + 0.0, q0, None, dq)
-                self.reactive[rows[j], o] = self.q_base_total - reactive_only["total"].to_numpy()
+                # the kW stay today's: one row of p for every scenario
+                _, q_amounts = self.q_biller.totals(p0, q0, None, dq)
+                self.reactive[rows[j], o] = self.q_base_total - q_amounts.sum(axis=1)
         self.pairs.append((rows[js], os_))
 
     def result(self, capacitor_cost_per_kvar: float) -> dict:

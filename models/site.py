@@ -234,12 +234,21 @@ def stepped_bank_q_kvar(p_kw, q_kvar, rated_q_kvar, step_kvar, target_power_fact
         raise ValueError("target_power_factor must lie in (0, 1]")
     p = np.asarray(p_kw, dtype=float)
     q = np.asarray(q_kvar, dtype=float)
+    shape = np.broadcast_shapes(p.shape, q.shape)
     n_max = np.floor(rated_q_kvar / step_kvar + _STEP_TOLERANCE)
-    q_allowed = np.abs(p) * tan_phi_from_power_factor(target_power_factor)
-    k_reach = np.ceil((q - q_allowed) / step_kvar - _STEP_TOLERANCE)
-    k_lead = np.floor(q / step_kvar + _STEP_TOLERANCE)
-    k = np.clip(np.minimum(k_reach, k_lead), 0.0, n_max)
-    return _like(q_kvar, -k * step_kvar)
+    q_allowed = np.abs(p) * tan_phi_from_power_factor(target_power_factor)  # p's shape: once per scenario set
+    # the rule in place in two arrays (the same operations in the same order as written above)
+    k = np.subtract(q, q_allowed, out=np.empty(shape))
+    k /= step_kvar
+    k -= _STEP_TOLERANCE
+    np.ceil(k, out=k)  # k_reach
+    k_lead = np.divide(q, step_kvar, out=np.empty(shape))
+    k_lead += _STEP_TOLERANCE
+    np.floor(k_lead, out=k_lead)
+    np.minimum(k, k_lead, out=k)
+    np.clip(k, 0.0, n_max, out=k)
+    k *= -step_kvar
+    return _like(q_kvar, k)
 
 
 @dataclass(frozen=True)
