@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
+import plotly.io as pio
 from plotly.subplots import make_subplots
 
 #: Neutral palette of the dashboard (our own choice).
@@ -34,13 +35,30 @@ REMEDY_COLOURS = {"none": "#5b6b7a", "trim_or_pulley": "#c27a3a", "speed_control
 REMEDY_NAMES = {"none": "no speed remedy", "trim_or_pulley": "impeller trim or pulley", "speed_control": "speed held by a drive"}
 
 
+def _light_template() -> go.layout.Template:
+    """The light plotly template cut to the layout and the trace types drawn here.
+
+    The full template carries defaults for every trace type, and copying it into each figure costs more
+    than drawing the figure; the cut keeps what these charts show and is copied in a fraction of the time.
+    """
+    full = pio.templates["plotly_white"]
+    data = {kind: getattr(full.data, kind) for kind in ("bar", "scatter", "histogram")}
+    keep = ("autotypenumbers", "colorway", "font", "hovermode", "hoverlabel", "paper_bgcolor", "plot_bgcolor", "xaxis",
+            "yaxis", "shapedefaults", "annotationdefaults", "title")
+    layout = {key: value for key, value in full.layout.to_plotly_json().items() if key in keep}
+    return go.layout.Template(layout=layout, data=data)
+
+
+LIGHT = _light_template()
+
+
 def _style(fig: go.Figure, title: str = "", height: int = 380, legend_below: bool = False) -> go.Figure:
     if legend_below:
         legend = dict(orientation="h", yanchor="top", y=-0.22, xanchor="left", x=0.0, bgcolor="rgba(0,0,0,0)")
     else:
         legend = dict(orientation="h", yanchor="bottom", y=1.0, xanchor="right", x=1.0, bgcolor="rgba(0,0,0,0)")
     fig.update_layout(
-        template="plotly_white", height=height,
+        template=LIGHT, height=height,
         margin=dict(l=64, r=24, t=48 if title else 24, b=150 if legend_below else 56),
         title=dict(text=title, x=0.0, xanchor="left", font=dict(size=15, color=INK)),
         font=dict(family="system-ui, -apple-system, 'Segoe UI', sans-serif", size=12, color=INK),

@@ -254,6 +254,7 @@ class Engine:
         self._physics: dict[str, object] = {}
         self._results: OrderedDict[tuple, object] = OrderedDict()
         self._last_plan: dict[str, tuple] = {}
+        self._last_result: dict[str, object] = {}
         self._derived: OrderedDict[tuple, object] = OrderedDict()
         self.default_key: str | None = None
         self.counts = {"physics": 0, "economics": 0}
@@ -329,6 +330,7 @@ class Engine:
         """Drop every cached computation of a case (lock held)."""
         self._physics.pop(key, None)
         self._last_plan.pop(key, None)
+        self._last_result.pop(key, None)
         for cache in (self._results, self._derived):
             for k in [k for k in cache if k[0] == key]:
                 cache.pop(k, None)
@@ -380,7 +382,8 @@ class Engine:
         """Return the economics of a case under assumptions (cached).
 
         A live ask (``precise=False``) bounds the exact plan's solve (:data:`models.scenario.LIVE_PLAN`)
-        and starts it from the last plan of the same case, so an edit answers at once; a precise ask
+        and starts it from the last plan of the same case (a budget-only change reuses the rest of the
+        last result, :func:`models.scenario.economics`), so an edit answers at once; a precise ask
         (the pack, the "prove" button) solves it to :data:`models.scenario.PRECISE_PLAN`. A cached result
         at least as rich serves any ask: with risk serves without, precise serves live.
         """
@@ -392,6 +395,7 @@ class Engine:
                         self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
                         return found
             start = self._last_plan.get(key, ())
+            previous = self._last_result.get(key)
         entry = self.entry(key)
         if entry is None:
             raise KeyError(f"unknown case key {key!r}")
@@ -400,12 +404,13 @@ class Engine:
 
         def compute():
             out = self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk,
-                                                                      plan_settings=settings))
+                                                                      plan_settings=settings, previous=previous))
             plan_ = getattr(out, "plan", None)
             if isinstance(plan_, pd.DataFrame) and {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
                 with self._lock:
                     self._last_plan[key] = tuple(zip((plan_["asset_id"] + "/" + plan_["option_id"]).tolist(),
                                                      plan_["start_yr"].astype(int).tolist()))
+                    self._last_result[key] = out
             return out
 
         return self._once(self._results, (key, assumptions, bool(with_risk), bool(precise)), compute, self.max_results)

@@ -167,9 +167,9 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     start : mapping of str to int, optional
         A plan to start from, e.g. the plan of a neighbouring set of assumptions: project label -> plan
         start year. Labels that are not candidates, repeat an asset or fall outside the plan years are
-        dropped, and projects are dropped (lowest NPV per unit of capital first) until the budgets hold.
-        The better of it and the profitability-index plan (:func:`plan_greedy`) is the solver's first
-        plan. It changes how fast the solver proves its answer, never the gap it proves.
+        dropped, projects are dropped (lowest NPV per unit of capital first) until the budgets hold, and
+        budget left over is filled in profitability-index order. The better of it and the
+        profitability-index plan (:func:`plan_greedy`) is the solver's first plan. It changes how fast the solver proves its answer, never the gap it proves.
 
     Returns
     -------
@@ -247,17 +247,6 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     matrix.sort_indices()
     upper = np.concatenate([np.ones(n_assets), data["budget"][finite]])
 
-    first = _greedy_selection(data)
-    if start:
-        hinted = _repair(data, _selection_from(data, start))
-        if (hinted * data["value"][:, None] * data["delay"][None, :]).sum() > \
-                (first * data["value"][:, None] * data["delay"][None, :]).sum():
-            first = hinted
-
-    solver = highspy.Highs()
-    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)),
-                        ("mip_rel_gap", float(mip_rel_gap)), ("random_seed", 0)):
-        solver.setOptionValue(name, value)
     model = highspy.HighsLp()
     model.num_col_, model.num_row_ = m * years, n_assets + finite.size
     model.col_cost_ = -worth.ravel()  # HiGHS minimises
@@ -265,6 +254,23 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     model.row_lower_, model.row_upper_ = np.full(upper.size, -highspy.kHighsInf), upper
     model.a_matrix_.format_ = highspy.MatrixFormat.kColwise
     model.a_matrix_.start_, model.a_matrix_.index_, model.a_matrix_.value_ = matrix.indptr, matrix.indices, matrix.data
+
+    # first plans: the profitability-index plan, the given start (repaired, then filled) and the LP
+    # relaxation's whole projects (filled); the best of them is the solver's first incumbent
+    starts = [_greedy_selection(data)]
+    if start:
+        starts.append(_greedy_selection(data, _repair(data, _selection_from(data, start))))
+    relaxed = _relaxation(model, time_limit_s)
+    if relaxed is not None:
+        whole = np.zeros((n, years), dtype=bool)
+        whole[candidates] = (relaxed > 1.0 - 1e-9).reshape(m, years)
+        starts.append(_greedy_selection(data, _repair(data, whole)))
+    first = max(starts, key=lambda x_: float((x_ * data["value"][:, None] * data["delay"][None, :]).sum()))
+
+    solver = highspy.Highs()
+    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)),
+                        ("mip_rel_gap", float(mip_rel_gap)), ("random_seed", 0)):
+        solver.setOptionValue(name, value)
     model.integrality_ = [highspy.HighsVarType.kInteger] * (m * years)
     solver.passModel(model)
     if first.any():
@@ -292,6 +298,18 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     if not x.any():
         status, message = ("empty", "no project fits the budget") if status == "optimal" else (status, message)
     return _result(data, x, "exact", status, message, max(gap, 0.0) if np.isfinite(gap) else gap)
+
+
+def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> np.ndarray | None:
+    """Solve the plan's linear relaxation (0 <= x <= 1); None when it has no optimal solution in time."""
+    solver = highspy.Highs()
+    solver.setOptionValue("output_flag", False)
+    solver.setOptionValue("time_limit", float(time_limit_s))
+    solver.passModel(model)
+    solver.run()
+    if solver.getModelStatus() != highspy.HighsModelStatus.kOptimal:
+        return None
+    return np.asarray(solver.getSolution().col_value, dtype=float)
 
 
 def _selection_from(data: dict[str, Any], start: Mapping[str, int]) -> np.ndarray:
@@ -330,8 +348,9 @@ def _repair(data: dict[str, Any], x: np.ndarray) -> np.ndarray:
     return x
 
 
-def _greedy_selection(data: dict[str, Any]) -> np.ndarray:
-    """0-1 matrix of the profitability-index plan (see :func:`plan_greedy`)."""
+def _greedy_selection(data: dict[str, Any], x: np.ndarray | None = None) -> np.ndarray:
+    """0-1 matrix of the profitability-index plan (see :func:`plan_greedy`), filled on top of ``x``
+    (a plan within the budgets) when one is given."""
     n, years = data["n"], data["years"]
     capital = data["capital"]
     discount = np.power(1.0 + data["rate"], -np.arange(capital.shape[1], dtype=float))
@@ -340,10 +359,10 @@ def _greedy_selection(data: dict[str, Any]) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore"):
         pi = np.where(capital_pv > 0, value / np.where(capital_pv > 0, capital_pv, 1.0), np.inf)
     order = np.lexsort((-value, -pi))
-    left = data["budget"].copy()
-    taken: set[str] = set()
-    x = np.zeros((n, years), dtype=bool)
-    tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(left), left, 0.0))
+    x = np.zeros((n, years), dtype=bool) if x is None else x.copy()
+    left = data["budget"] - np.einsum("is,isy->y", x.astype(float), data["spend"])
+    taken: set[str] = set(data["assets"][np.flatnonzero(x.any(axis=1))].tolist())
+    tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(data["budget"]), data["budget"], 0.0))
     for i in order:
         if value[i] <= 0 or data["assets"][i] in taken:
             continue

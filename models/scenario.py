@@ -65,9 +65,9 @@ class PlanSettings:
 
 #: The setting of a full run (command line, pack): the solver's own 0.01 % gap, a minute at most.
 PRECISE_PLAN = PlanSettings()
-#: The setting of a live edit on screen: a 0.1 % gap or 0.1 s, whichever comes first; the plan's
+#: The setting of a live edit on screen: a 0.1 % gap or 0.05 s, whichever comes first; the plan's
 #: status then says how close it is proven (common practice for interactive optimisation).
-LIVE_PLAN = PlanSettings(time_limit_s=0.1, gap_frac=1e-3)
+LIVE_PLAN = PlanSettings(time_limit_s=0.05, gap_frac=1e-3)
 
 
 @dataclass(frozen=True)
@@ -121,6 +121,9 @@ class ScenarioResult:
     fleet_npv_draws : numpy.ndarray
         Monte Carlo: the fleet NPV of the best option of every asset, one value per draw [currency],
         shape (n_draws,); empty without risk.
+    capital_spend_by_year : numpy.ndarray
+        Capital of each row of ``results`` by year after its start [currency], shape (n_rows, horizon + 1),
+        what a new budget needs to plan again.
     """
 
     physics: Physics
@@ -139,6 +142,7 @@ class ScenarioResult:
     bills: pd.DataFrame
     plan_status: dict = field(default_factory=dict)
     fleet_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
+    capital_spend_by_year: np.ndarray | None = field(default=None, repr=False)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -307,13 +311,17 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
               progress: Callable[[str], None] | None = None, with_risk: bool = True,
-              plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
+              plan_settings: PlanSettings = PRECISE_PLAN, previous: ScenarioResult | None = None) -> ScenarioResult:
     """Turn the physics into cash flows, metrics, the fleet plan, end-of-life strategy and risk.
 
     ``plan_settings`` bounds the exact plan's solve (:data:`PRECISE_PLAN` by default, :data:`LIVE_PLAN`
     for a screen that must answer an edit at once); ``plan_status`` of the result says what was proven.
+    ``previous`` is a result of the same physics: when the assumptions differ from its own only in the
+    budget, everything but the plan and the bills is taken from it (the budget moves nothing else).
     """
     step = progress or (lambda _msg: None)
+    if _only_budget_differs(previous, phys, assumptions, with_risk):
+        return _replan(case, previous, assumptions, plan_settings, step)
     op, sav = phys.operation, phys.savings
     a = case.assets
     options = _options_in_order(case, op)
@@ -450,7 +458,32 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     step("bills")
     bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
-                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws)
+                          plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws,
+                          capital_spend)
+
+
+def _only_budget_differs(previous, phys: Physics, assumptions, with_risk: bool) -> bool:
+    """True when ``previous`` can serve everything but the plan: same physics, same assumptions but the
+    budget, and risk results when they are asked for."""
+    if previous is None or previous.physics is not phys or previous.capital_spend_by_year is None:
+        return False
+    if with_risk and previous.tornado.empty and previous.risk.empty and previous.fleet_npv_draws.size == 0:
+        return False
+    return replace(previous.assumptions, budget_per_yr=assumptions.budget_per_yr) == assumptions
+
+
+def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings, step) -> ScenarioResult:
+    """A result under a new budget: the previous result with the plan and the plan's bills redone."""
+    results = previous.results
+    project_ids = (results["asset_id"] + "/" + results["option_id"]).to_numpy(dtype=object)
+    step("fleet plan")
+    plan_frames = _plan(results, previous.capital_spend_by_year, project_ids, assumptions,
+                        float(assumptions.discount_rate_frac), settings)
+    step("bills")
+    base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
+    bills = _bills(case, previous.physics.operation, plan_frames[0], base, float(assumptions.energy_price_factor))
+    return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
+                   plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4])
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,

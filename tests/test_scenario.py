@@ -197,3 +197,20 @@ def test_fleet_npv_draws_add_the_projects_of_each_draw(result):
     draws = result.fleet_npv_draws
     assert draws.shape == (result.assumptions.monte_carlo_draws,)
     assert result.risk["npv_p10"].sum() <= np.median(draws) <= result.risk["npv_p90"].sum()
+
+
+def test_a_new_budget_from_a_previous_result_equals_a_fresh_run(demo_case):
+    # Invariant: the budget moves only the plan and the plan's bills, so reusing the rest is exact.
+    phys = scenario.physics(demo_case, float(demo_case.finance.capacitor_cost_per_kvar))
+    first = scenario.economics(demo_case, phys, demo_case.finance, with_risk=False)
+    tight = replace(demo_case.finance, budget_per_yr=(120000.0, 90000.0))
+    reused = scenario.economics(demo_case, phys, tight, with_risk=False, previous=first)
+    fresh = scenario.economics(demo_case, phys, tight, with_risk=False)
+    assert reused.results is first.results  # taken over, not recomputed
+    pd.testing.assert_frame_equal(reused.plan, fresh.plan)
+    pd.testing.assert_frame_equal(reused.bills, fresh.bills)
+    pd.testing.assert_series_equal(reused.plan_comparison, fresh.plan_comparison)
+    assert reused.assumptions == tight and reused.plan["capital"].sum() <= 120000.0 + 90000.0
+    # any other change (here the discount rate) is computed afresh
+    other = scenario.economics(demo_case, phys, replace(tight, discount_rate_frac=0.05), with_risk=False, previous=first)
+    assert other.results is not first.results
