@@ -199,6 +199,9 @@ def _print_run_summary(case, result) -> None:
     print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
           f"yearly bill saving {chosen['bill_saving_per_yr'].sum():,.0f} {currency}/yr, "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
+    status = result.plan_status or {}
+    if status.get("message"):
+        print(f"  Exact plan: {status['message']}")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")

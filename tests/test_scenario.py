@@ -182,7 +182,7 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet"]) == 0
     assert main(["run", str(demo), "--out", str(tmp_path / "b"), "--quiet"]) == 0
     out = capsys.readouterr().out
-    assert "Plan under the budget" in out and "qualified persons" in out
+    assert "Plan under the budget" in out and "qualified persons" in out and "Exact plan: plan proven within" in out
     names = sorted(p.name for p in (tmp_path / "a").iterdir())
     assert {"results.csv", "cashflows.csv", "bills.csv", "plan.csv", "risk.csv"} <= set(names)
     match, mismatch, errors = filecmp.cmpfiles(tmp_path / "a", tmp_path / "b", names, shallow=False)
