@@ -85,6 +85,8 @@ FINANCE_FIELDS: dict[str, tuple[str, str]] = {
     "replacement_mode": ("-", "replace now, or replace when today's motor fails"),
     "downtime_cost_per_h": ("currency/h", "default cost of an unplanned stop per hour"),
     "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of capacitor banks"),
+    "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
+    "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
     "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
     "monte_carlo_seed": ("-", "seed of the random draws"),

@@ -158,7 +158,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
-                 f"this pack covers {len(scope.asset_ids)} asset(s).")
+                 f"this pack covers {len(scope.asset_ids)} asset(s)."
+                 + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else ""))
 
     register = content.risk_register(case, result, scope)
     register_rows = [row([cell(r.category), cell(r.item), cell(r.detail), cell(r.assets, "small"), cell(r.response, "small")])
