@@ -918,11 +918,7 @@ def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFra
 
 def plan_choice(view_: View, result) -> np.ndarray:
     """Position of the chosen option per asset under the exact plan (0 = today's motor)."""
-    op = view_.physics().operation
-    choice = np.zeros(len(op.asset_ids), dtype=int)
-    for r in result.plan.itertuples(index=False):
-        choice[op.asset_position(r.asset_id)] = op.option_position(r.option_id)
-    return choice
+    return scenario.plan_choice(view_.physics().operation, result.plan)
 
 
 def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
