@@ -585,6 +585,38 @@ def induction_operating_point(params: InductionParams, shaft_p_kw) -> InductionP
     )
 
 
+def _input_reactive_speed(params: InductionParams, shaft_p_kw: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Input power [kW], reactive power [kVAr] and speed [rpm] of :func:`induction_operating_point`.
+
+    The same operations in the same order, so the same values, for a numpy load (n_motors, n_steps)
+    or a 1-D one, without the fields the caller does not need (efficiency, power factor, loss split):
+    six arrays of the load's size instead of a dozen.
+    """
+    p = np.asarray(shaft_p_kw, dtype=float)
+    get = _aligned(params, "array", p.ndim)
+    _forbid(p < 0, "shaft_p_kw must not be negative")
+    _forbid(p > MAX_LOAD_FRAC * get("rated_p_kw"), f"shaft_p_kw above {MAX_LOAD_FRAC:g} x rated power is outside the model")
+    s_r = get("rated_slip_frac")
+    p_ag_r = get("rated_airgap_p_kw")
+    shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
+    y, work = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, s_r)
+    s = np.multiply(y, s_r)
+    loss_rcu = np.multiply(y, p_ag_r)  # air-gap power
+    loss_rcu *= s  # rotor copper = slip x air-gap power
+    _power(y, get("loss_exponent"), out=work)
+    work *= get("loss_load_kw")  # stator copper + stray
+    p_in = np.add(p, np.broadcast_to(get("loss_constant_kw"), y.shape).reshape(np.shape(y)))
+    p_in += work
+    p_in += loss_rcu
+    q = _power(y, get("q_exponent"), out=y)
+    q *= get("q_load_kvar")
+    q += get("q_constant_kvar")
+    speed = s
+    speed *= -get("sync_speed_rpm")
+    speed += get("sync_speed_rpm")
+    return p_in.reshape(shape), q.reshape(shape), speed.reshape(shape)
+
+
 def induction_speed_rpm(params: InductionParams, shaft_p_kw):
     """Shaft speed at a shaft load (the speed part of :func:`induction_operating_point`, cheaper).
 

@@ -156,14 +156,38 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
     }
 
 
+def _covers(rows: np.ndarray, n: int) -> bool:
+    """True when sorted unique positions ``rows`` are all of 0..n-1."""
+    return len(rows) == n
+
+
 def _take(arrays: dict[str, np.ndarray], rows: np.ndarray) -> dict[str, np.ndarray]:
+    n = len(next(iter(arrays.values()))) if arrays else 0
+    if _covers(rows, n):
+        return arrays
     return {k: v[rows] for k, v in arrays.items()}
+
+
+def _with_class_efficiencies(arr: dict[str, np.ndarray], classes) -> dict[str, np.ndarray]:
+    """``arr`` with :func:`class_efficiency_frac` of each class stored (per asset, so sliced with the rest).
+
+    A class whose efficiency cannot be computed is left out (it is then computed, and fails, where used).
+    """
+    out = dict(arr)
+    for cls in classes:
+        try:
+            out[f"class_efficiency_frac:{cls}"] = class_efficiency_frac(arr, cls)
+        except (ValueError, KeyError):
+            pass
+    return out
 
 
 def _take_params(params: induction.InductionParams, rows: np.ndarray) -> induction.InductionParams:
     """The calibrated motors of a subset of assets (calibration is element-wise: slicing equals recalibrating)."""
     from dataclasses import fields, replace
 
+    if _covers(rows, len(np.atleast_1d(params.rated_p_kw))):
+        return params
     return replace(params, **{f.name: np.asarray(getattr(params, f.name))[rows] for f in fields(params)
                               if np.ndim(getattr(params, f.name))})
 
@@ -181,8 +205,12 @@ def class_efficiency_frac(arr: dict[str, np.ndarray], efficiency_class: str) -> 
     """Full-load efficiency of a new catalogue machine of a class: class minimum less 10 % of its losses.
 
     Above the class scope (over 1000 kW) the existing motor's losses are scaled by the class-to-class
-    loss ratio of a 1000 kW motor instead.
+    loss ratio of a 1000 kW motor instead. A value stored in ``arr`` under ``class_efficiency_frac:<class>``
+    (:func:`_with_class_efficiencies`) is returned as it is.
     """
+    stored = arr.get(f"class_efficiency_frac:{efficiency_class}")
+    if stored is not None:
+        return stored
     floor = class_floor_pct(arr["rated_p_kw"], arr["poles"], arr["f_hz"], efficiency_class)
     eta = catalogue_efficiency_pct(floor) / 100.0
     # above 1000 kW: the class step at 1000 kW applied to today's losses
@@ -205,12 +233,26 @@ class _Load:
     weight_h: np.ndarray      # hours each column stands for, (n, m)
     p_design_kw: np.ndarray   # design (valve-open) shaft power per asset [kW], (n, 1)
     controlled: tuple[np.ndarray, np.ndarray] | None = None  # _speed_controlled's result, once computed
+    running_weight: tuple[np.ndarray, np.ndarray] | None = None  # (weight where running, its row sums), once computed
 
     def rows(self, sub: np.ndarray) -> "_Load":
         """The same load for a subset of its assets (element-wise quantities, so sliced, not recomputed)."""
+        if _covers(sub, self.p_ref_kw.shape[0]):
+            return self
         controlled = None if self.controlled is None else (self.controlled[0][sub], self.controlled[1][sub])
-        return _Load(self.p_ref_kw[sub], self.n_ref_rpm[sub], self.running[sub], self.weight_h[sub],
-                     self.p_design_kw[sub], controlled)
+        running_weight = None if self.running_weight is None else (self.running_weight[0][sub], self.running_weight[1][sub])
+        w = self.weight_h
+        # one row of weights for every asset (interval data) stays one row, broadcast
+        weight = np.broadcast_to(w[:1], (len(sub),) + w.shape[1:]) if w.shape[0] and w.strides[0] == 0 else w[sub]
+        return _Load(self.p_ref_kw[sub], self.n_ref_rpm[sub], self.running[sub], weight,
+                     self.p_design_kw[sub], controlled, running_weight)
+
+    def weight_running(self) -> tuple[np.ndarray, np.ndarray]:
+        """Hours each column stands for where the asset runs (0 elsewhere) (n, m), and their sums (n,) [h]."""
+        if self.running_weight is None:
+            run_w = np.where(self.running, self.weight_h, 0.0)
+            self.running_weight = (run_w, run_w.sum(axis=1))
+        return self.running_weight
 
 
 def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray, is_input_kw: np.ndarray,
@@ -293,22 +335,29 @@ def _zeros(shape) -> np.ndarray:
     return np.zeros(shape)
 
 
+def _zero_where_stopped(x: np.ndarray, stopped: np.ndarray) -> np.ndarray:
+    """``np.where(running, x, 0.0)`` in place on a fresh array ``x``."""
+    np.copyto(x, 0.0, where=stopped)
+    return x
+
+
 def _induction_on_line(params, shaft_kw, running) -> _Point:
-    pt = induction.induction_operating_point(params, shaft_kw)
-    p = np.where(running, pt.p_in_kw, 0.0)
-    q = np.where(running, pt.q_kvar, 0.0)
-    loss = np.where(running, pt.p_in_kw - shaft_kw, 0.0)
-    return _Point(p, q, shaft_kw, np.where(running, pt.speed_rpm, 0.0), loss, _zeros(p.shape), _zeros(p.shape))
+    p_in, q, speed = induction._input_reactive_speed(params, shaft_kw)
+    stopped = ~running
+    loss = _zero_where_stopped(np.subtract(p_in, shaft_kw), stopped)
+    p = _zero_where_stopped(p_in, stopped)
+    q = _zero_where_stopped(q, stopped)
+    return _Point(p, q, shaft_kw, _zero_where_stopped(speed, stopped), loss, _zeros(p.shape), _zeros(p.shape))
 
 
 def _induction_on_drive(arr, params, shaft_kw, speed_frac, running) -> _Point:
     """An induction motor fed by a drive (today's drive, or one added)."""
-    pt = induction.induction_operating_point(params, shaft_kw)
+    p_in, _, _ = induction._input_reactive_speed(params, shaft_kw)
     safe_speed = np.where(speed_frac > 0.05, speed_frac, 0.05)
     torque_frac = np.where(running, shaft_kw / arr["rated_p_kw"][:, None] / safe_speed, 0.0)
     s_kva = drives.drive_rated_s_kva_for_motor(arr["rated_p_kw"], arr["eff_frac"], arr["pf"])
-    motor_loss = pt.p_in_kw - shaft_kw
-    fed = drives.induction_motor_with_added_drive(np.where(running, pt.p_in_kw, 0.0), np.clip(speed_frac, 0.0, 1.5),
+    motor_loss = p_in - shaft_kw
+    fed = drives.induction_motor_with_added_drive(np.where(running, p_in, 0.0), np.clip(speed_frac, 0.0, 1.5),
                                                   np.clip(torque_frac, 0.0, 2.0), s_kva[:, None],
                                                   motor_losses_kw=np.where(running, motor_loss, 0.0))
     p = np.where(running, fed.p_kw, 0.0)
@@ -592,7 +641,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     options = options_with_baseline(case.options)
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
-    arr_all = asset_arrays(a)
+    # class efficiencies are per asset: computed once per block, sliced with the rest for each option
+    arr_all = _with_class_efficiencies(asset_arrays(a), sorted({c for c in options["efficiency_class"] if isinstance(c, str) and c}
+                                                               | {"IE3"}))
     n_a, n_o, n_t = len(a), len(options), len(index)
     applies, reason = applicability(options, a)
     applies[:, 0] = True
@@ -632,8 +683,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         idx = rows_[sub]
         w = load.weight_h
         if kind == "interval":
-            p_kw[o, idx] = pt.p_kw
-            q_kvar[o, idx] = pt.q_kvar
+            at = _as_slice(idx)
+            p_kw[o, at] = pt.p_kw
+            q_kvar[o, at] = pt.q_kvar
         else:
             p_kw[o, idx] = ((pt.p_kw * w).sum(axis=1) / year_h)[:, None]
             q_kvar[o, idx] = ((pt.q_kvar * w).sum(axis=1) / year_h)[:, None]
@@ -643,8 +695,11 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             losses[idx, o, 0] = pt.loss_motor_kw.sum(axis=1) * interval_h
             losses[idx, o, 1] = pt.loss_drive_kw.sum(axis=1) * interval_h
             losses[idx, o, 2] = pt.loss_excitation_kw.sum(axis=1) * interval_h
-            lag[idx, o] = np.maximum(pt.q_kvar, 0.0).sum(axis=1) * interval_h
-            lead[idx, o] = np.maximum(-pt.q_kvar, 0.0).sum(axis=1) * interval_h
+            part = np.maximum(pt.q_kvar, 0.0)
+            lag[idx, o] = part.sum(axis=1) * interval_h
+            np.negative(pt.q_kvar, out=part)
+            np.maximum(part, 0.0, out=part)
+            lead[idx, o] = part.sum(axis=1) * interval_h
         else:
             energy[idx, o] = (pt.p_kw * w).sum(axis=1)
             shaft_energy[idx, o] = (pt.shaft_kw * w).sum(axis=1)
@@ -653,8 +708,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             losses[idx, o, 2] = (pt.loss_excitation_kw * w).sum(axis=1)
             lag[idx, o] = (np.maximum(pt.q_kvar, 0.0) * w).sum(axis=1)
             lead[idx, o] = (np.maximum(-pt.q_kvar, 0.0) * w).sum(axis=1)
-        run_w = np.where(load.running, w, 0.0)
-        speed[idx, o] = (pt.speed_rpm * run_w).sum(axis=1) / np.maximum(run_w.sum(axis=1), 1e-12)
+        run_w, run_h = load.weight_running()
+        speed[idx, o] = (pt.speed_rpm * run_w).sum(axis=1) / np.maximum(run_h, 1e-12)
         for i, text in pt.flags:
             flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
 
@@ -663,7 +718,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         load.controlled = _speed_controlled(arr, load)  # element-wise: computed once, sliced for each option
         pt = _evaluate(options.iloc[0], arr, existing, load)
         store(0, kind, rows_, np.arange(len(rows_)), pt, load)
-        running_h[rows_] = np.where(load.running, load.weight_h, 0.0).sum(axis=1)
+        running_h[rows_] = load.weight_running()[1]
     if site_totals is None:
         site_totals = (p_kw[0].sum(axis=0), q_kvar[0].sum(axis=0))
     for o in range(1, 1 if only_today else n_o):
