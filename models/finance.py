@@ -804,15 +804,18 @@ class PaybackResult:
     within_horizon: Any
 
 
-def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any]) -> PaybackResult:
-    """First crossing of the cumulative flow to >= 0, interpolated linearly inside the year."""
-    cumulative = np.cumsum(c, axis=-1)
-    scale = np.max(np.abs(c), axis=-1, keepdims=True)
+def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: bool = False) -> PaybackResult:
+    """First crossing of the cumulative flow to >= 0, interpolated linearly inside the year.
+
+    With ``overwrite`` the running sum is built in ``c`` itself (no second array of its size)."""
+    scale = np.maximum(np.max(c, axis=-1), -np.min(c, axis=-1))[..., None]
+    cumulative = np.cumsum(c, axis=-1, out=c if overwrite else None)
     reached = cumulative >= -1e-12 * scale
-    within = reached.any(axis=-1)
     first = np.argmax(reached, axis=-1)
+    within = np.take_along_axis(reached, first[..., None], axis=-1)[..., 0]
+    at = np.take_along_axis(cumulative, first[..., None], axis=-1)[..., 0]
     before = np.take_along_axis(cumulative, np.maximum(first - 1, 0)[..., None], axis=-1)[..., 0]
-    flow = np.take_along_axis(c, first[..., None], axis=-1)[..., 0]
+    flow = np.where(first == 0, at, at - before)  # the flow of the crossing year
     with np.errstate(divide="ignore", invalid="ignore"):
         part = np.clip(-before / np.where(flow > 0, flow, 1.0), 0.0, 1.0)
     years = np.where(first == 0, 0.0, first - 1.0 + part)
@@ -821,13 +824,16 @@ def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any]) -> PaybackRe
                          within_horizon=wrap(np.asarray(within), "within_horizon"))
 
 
-def simple_payback(cash_flows: Any) -> PaybackResult:
+def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:
     """Return the simple (undiscounted) payback time.
 
     Parameters
     ----------
     cash_flows : array_like, pandas.Series or pandas.DataFrame
         Cash flows, last axis = year 0..n_years; negative = money out [currency].
+    overwrite : bool
+        Allow a float64 numpy array given as ``cash_flows`` to be overwritten with its running sum
+        (saves a copy of a large array, e.g. Monte Carlo draws); other inputs are never changed.
 
     Returns
     -------
@@ -855,7 +861,7 @@ def simple_payback(cash_flows: Any) -> PaybackResult:
     inf
     """
     c, wrap = _flows(cash_flows)
-    return _payback(c, wrap)
+    return _payback(c, wrap, overwrite=overwrite and c is cash_flows and c.flags.writeable)
 
 
 def discounted_payback(cash_flows: Any, discount_rate_frac: Any) -> PaybackResult:

@@ -506,28 +506,46 @@ def monte_carlo(
     payback_out = np.empty((n_draws, n))
     active = [c for c in range(len(component_names)) if np.any(amounts[:, :, c])
               and not (tax_rate_frac > 0 and component_names[c] == tax_component)]
+    # components that respond alike (same factors, escalation and tax weight) are summed once: the
+    # recombination is linear, so each group costs one pass per chunk instead of one per component
+    groups: dict[tuple, np.ndarray] = {}
+    for c in active:
+        rule = response.get(component_names[c], ComponentResponse())
+        for name in rule.multipliers:
+            if name not in factors:
+                raise ValueError(f"factor {name!r} is neither drawn nor given as an extra multiplier")
+        if rule.escalation_delta is not None and rule.escalation_delta not in factors:
+            raise ValueError(f"factor {rule.escalation_delta!r} is not among the factors")
+        key = (tuple(rule.multipliers), rule.escalation_delta,
+               float(rule.base_escalation_frac) if rule.escalation_delta is not None else 0.0,
+               bool(rule.taxable and tax_rate_frac > 0))
+        groups[key] = groups[key] + amounts[:, :, c] if key in groups else amounts[:, :, c].copy()
+    keys = list(groups)
+    bases = np.stack([groups[k] for k in keys]) if keys else np.zeros((0, n, width))
     for start in range(0, n_draws, chunk):
         draws = slice(start, min(n_draws, start + chunk))
-        flows = np.zeros((draws.stop - draws.start, n, width))
-        for c in active:
-            name = component_names[c]
-            rule = response.get(name, ComponentResponse())
-            weight = _multiplier(rule.multipliers, factors, draws, n)
-            if rule.taxable and tax_rate_frac > 0:
+        size = draws.stop - draws.start
+        # coefficient of each group by draw and year: its factors times its escalation growth
+        coef = np.ones((len(keys), size, width))
+        per_project: list[tuple[int, np.ndarray]] = []
+        for g, (multipliers, escalation_delta, base_escalation, taxed) in enumerate(keys):
+            weight = _multiplier(multipliers, factors, draws, n)
+            if taxed:
                 weight = weight * (1.0 - tax_rate_frac)
-            base = amounts[None, :, :, c]
-            if rule.escalation_delta is not None:
-                if rule.escalation_delta not in factors:
-                    raise ValueError(f"factor {rule.escalation_delta!r} is not among the factors")
-                delta = np.asarray(factors[rule.escalation_delta], dtype=float)[draws]
-                growth = np.power((1.0 + rule.base_escalation_frac + delta[:, None]) /
-                                  (1.0 + rule.base_escalation_frac), t[None, :])
-                flows += weight[:, :, None] * base * growth[:, None, :]
+            if escalation_delta is not None:
+                delta = np.asarray(factors[escalation_delta], dtype=float)[draws]
+                coef[g] = np.power((1.0 + base_escalation + delta[:, None]) / (1.0 + base_escalation), t[None, :])
+            if weight.shape[1] == 1:
+                coef[g] *= weight
             else:
-                flows += weight[:, :, None] * base
+                per_project.append((g, weight))
+        shared = [g for g in range(len(keys)) if g not in {g_ for g_, _ in per_project}]
+        flows = np.einsum("gdt,gnt->dnt", coef[shared], bases[shared]) if shared else np.zeros((size, n, width))
+        for g, weight in per_project:
+            flows += weight[:, :, None] * bases[g][None, :, :] * coef[g][:, None, :]
         discount = np.power(1.0 + rate[draws, None], -t[None, :])
         npv_out[draws] = np.einsum("dnt,dt->dn", flows, discount)
-        payback: PaybackResult = simple_payback(flows)
+        payback: PaybackResult = simple_payback(flows, overwrite=True)  # flows are not used after this
         payback_out[draws] = payback.payback_yr
     ids = np.arange(n).astype(str) if project_id is None else np.asarray(project_id, dtype=object).astype(str)
     return MonteCarloResult(project_id=ids, npv=npv_out, payback_yr=payback_out, discount_rate_frac=rate)
