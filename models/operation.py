@@ -331,8 +331,42 @@ class _Point:
     flags: list[tuple[int, str]] = field(default_factory=list)  # (row in group, text)
 
 
-def _zeros(shape) -> np.ndarray:
-    return np.zeros(shape)
+def _zeros(shape) -> None:
+    """A loss kind the machine does not have: None, read as zero in every interval (no array is made)."""
+    return None
+
+
+@dataclass
+class _Parts:
+    """A group's operating point computed in parts: ``parts`` = [(rows of the group, _Point of those rows)].
+
+    The machine models are element-wise per asset, so each part is exactly what the whole would hold in
+    its rows; yearly sums are taken part by part and the whole is assembled only when asked for.
+    """
+
+    n_rows: int
+    parts: list[tuple[np.ndarray, _Point]]
+    flags: list[tuple[int, str]] = field(default_factory=list)
+
+    def whole(self) -> _Point:
+        """The parts gathered into one point of the group's rows."""
+        first = self.parts[0][1]
+        shape = (self.n_rows,) + first.p_kw.shape[1:]
+        out = {}
+        for name in _POINT_ARRAYS:
+            values = [getattr(pt, name) for _, pt in self.parts]
+            if all(v is None for v in values):
+                out[name] = None
+                continue
+            target = np.empty(shape)
+            for (rows, _), v in zip(self.parts, values):
+                target[rows] = 0.0 if v is None else v
+            out[name] = target
+        return _Point(**out, flags=list(self.flags))
+
+
+def _whole(pt) -> _Point:
+    return pt.whole() if isinstance(pt, _Parts) else pt
 
 
 def _zero_where_stopped(x: np.ndarray, stopped: np.ndarray) -> np.ndarray:
@@ -387,12 +421,7 @@ def _line_or_drive(arr, params, load: _Load, shaft_kw: np.ndarray) -> _Point:
     _, speed_frac = _speed_controlled(_take(arr, on), load_on)
     fed = _induction_on_drive(_take(arr, on), _take_params(params, on), shaft_kw[on], speed_frac, load_on.running)
     line = _induction_on_line(_take_params(params, off), shaft_kw[off], load.running[off])
-    out = _Point(*(np.empty(shaft_kw.shape) for _ in _POINT_ARRAYS))
-    for name in _POINT_ARRAYS:
-        target = getattr(out, name)
-        target[on] = getattr(fed, name)
-        target[off] = getattr(line, name)
-    return out
+    return _Parts(len(held), [(on, fed), (off, line)])
 
 
 def _today(arr, existing, load: _Load) -> _Point:
@@ -526,7 +555,8 @@ def _evaluate(option: pd.Series, arr, existing, load: _Load, site_other=None) ->
     if tech == "capacitor":
         base = _today(arr, existing, load)
         q_cap = capacitor_size_kvar(existing, option["target_power_factor"])[:, None]
-        base.q_kvar = np.where(load.running, base.q_kvar - q_cap, 0.0)
+        for rows, part in (base.parts if isinstance(base, _Parts) else [(slice(None), base)]):
+            part.q_kvar = np.where(load.running[rows], part.q_kvar - q_cap[rows], 0.0)
         return base
     raise ValueError(f"unknown technology '{tech}'")
 
@@ -679,9 +709,17 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     site_ids = a["site_id"].to_numpy(dtype=object)
     option_ids = options["option_id"].to_numpy(dtype=object)
 
-    def store(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt: _Point, load: _Load) -> None:
+    def store(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt, load: _Load, part_rows=None) -> None:
+        if isinstance(pt, _Parts):
+            for part_rows_, part in pt.parts:
+                store(o, kind, rows_, sub[part_rows_], part, load, part_rows_)
+            for i, text in pt.flags:
+                flags.append({"asset_id": asset_ids[rows_[sub][i]], "option_id": option_ids[o], "flag": text})
+            return
         idx = rows_[sub]
-        w = load.weight_h
+        w = None
+        if kind != "interval":
+            w = load.weight_h if part_rows is None else load.weight_h[part_rows]
         if kind == "interval":
             at = _as_slice(idx)
             p_kw[o, at] = pt.p_kw
@@ -692,9 +730,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         if kind == "interval":  # every interval weighs interval_h: sum, then scale
             energy[idx, o] = pt.p_kw.sum(axis=1) * interval_h
             shaft_energy[idx, o] = pt.shaft_kw.sum(axis=1) * interval_h
-            losses[idx, o, 0] = pt.loss_motor_kw.sum(axis=1) * interval_h
-            losses[idx, o, 1] = pt.loss_drive_kw.sum(axis=1) * interval_h
-            losses[idx, o, 2] = pt.loss_excitation_kw.sum(axis=1) * interval_h
+            for k, loss in enumerate((pt.loss_motor_kw, pt.loss_drive_kw, pt.loss_excitation_kw)):
+                losses[idx, o, k] = 0.0 if loss is None else loss.sum(axis=1) * interval_h
             part = np.maximum(pt.q_kvar, 0.0)
             lag[idx, o] = part.sum(axis=1) * interval_h
             np.negative(pt.q_kvar, out=part)
@@ -703,12 +740,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         else:
             energy[idx, o] = (pt.p_kw * w).sum(axis=1)
             shaft_energy[idx, o] = (pt.shaft_kw * w).sum(axis=1)
-            losses[idx, o, 0] = (pt.loss_motor_kw * w).sum(axis=1)
-            losses[idx, o, 1] = (pt.loss_drive_kw * w).sum(axis=1)
-            losses[idx, o, 2] = (pt.loss_excitation_kw * w).sum(axis=1)
+            for k, loss in enumerate((pt.loss_motor_kw, pt.loss_drive_kw, pt.loss_excitation_kw)):
+                losses[idx, o, k] = 0.0 if loss is None else (loss * w).sum(axis=1)
             lag[idx, o] = (np.maximum(pt.q_kvar, 0.0) * w).sum(axis=1)
             lead[idx, o] = (np.maximum(-pt.q_kvar, 0.0) * w).sum(axis=1)
         run_w, run_h = load.weight_running()
+        if part_rows is not None:
+            run_w, run_h = run_w[part_rows], run_h[part_rows]
         speed[idx, o] = (pt.speed_rpm * run_w).sum(axis=1) / np.maximum(run_h, 1e-12)
         for i, text in pt.flags:
             flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
@@ -1102,7 +1140,7 @@ def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     frames = []
     for o in np.flatnonzero(ok[0]):
         option = options.iloc[o]
-        pt = _evaluate(option, arr, existing, load)
+        pt = _whole(_evaluate(option, arr, existing, load))
         p, q = pt.p_kw[0], pt.q_kvar[0]
         s = np.hypot(p, q)
         frames.append(pd.DataFrame({
