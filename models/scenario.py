@@ -437,9 +437,10 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = 0.0
     results["best_for_asset"] = _best_flags(results)
     cash = flows.to_frame(drop_zero=True)
-    split = cash["project"].str.split("/", n=1, expand=True)
-    cash = pd.DataFrame({"asset_id": split[0], "option_id": split[1], "year": cash["year"].astype(int),
-                         "component": cash["component"], "amount": cash["amount"]})
+    code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)
+    cash = pd.DataFrame({"asset_id": pd.array(op.asset_ids[rows][code].astype(str), dtype="str"),
+                         "option_id": pd.array(op.option_ids[cols][code].astype(str), dtype="str"),
+                         "year": cash["year"].astype(int), "component": cash["component"], "amount": cash["amount"]})
 
     step("fleet plan")
     plan_frames = _plan(results, capital_spend, project_ids, assumptions, d, plan_settings)
@@ -650,10 +651,9 @@ def _plan_frame(fleet_plan, results: pd.DataFrame) -> pd.DataFrame:
     columns = ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"]
     if frame.empty:
         return pd.DataFrame(columns=columns)
-    split = frame["project_id"].str.split("/", n=1, expand=True)
-    capital = results.set_index(results["asset_id"] + "/" + results["option_id"])["capital"]
-    frame = frame.assign(asset_id=split[0].to_numpy(), option_id=split[1].to_numpy(),
-                         capital=capital.reindex(frame["project_id"]).to_numpy())
+    rows = pd.Index(results["asset_id"] + "/" + results["option_id"]).get_indexer(frame["project_id"])
+    frame = frame.assign(asset_id=results["asset_id"].to_numpy()[rows], option_id=results["option_id"].to_numpy()[rows],
+                         capital=results["capital"].to_numpy()[rows])
     return frame[columns].reset_index(drop=True)
 
 
