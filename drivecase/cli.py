@@ -147,6 +147,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     assumptions = case.finance
     if args.seed is not None:
         assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
+    if not (args.plan_gap >= 0 and args.plan_seconds > 0):
+        print("drivecase run: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
+        return 2
+    plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     from models.estimate import estimate_run
 
     estimate = estimate_run(case, workers=2 if args.engine == "dask" else 1)
@@ -170,9 +174,11 @@ def cmd_run(args: argparse.Namespace) -> int:
                 site_bar.update(done - site_bar.n)
 
             result = run_distributed(case, assumptions, scheduler=args.scheduler, progress=progress,
-                                     with_risk=not args.no_risk, site_progress=site_progress)
+                                     with_risk=not args.no_risk, site_progress=site_progress,
+                                     plan_settings=plan_settings)
         else:
-            result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk)
+            result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk,
+                                  plan_settings=plan_settings)
     except ValueError as exc:
         bar.close()
         print(f"drivecase run: {exc}", file=sys.stderr)
@@ -245,6 +251,9 @@ def cmd_report(args: argparse.Namespace) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from models.scenario import PRECISE_PLAN
+
+    gap_frac, time_s = PRECISE_PLAN.gap_frac, PRECISE_PLAN.time_limit_s
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
     sub = parser.add_subparsers(dest="command", required=True)
     p_new = sub.add_parser("new", help="write a blank case (CSV templates, or a workbook with --workbook)")
@@ -271,6 +280,12 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.add_argument("--engine", choices=("local", "dask"), default="local",
                        help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
     p_run.add_argument("--scheduler", help="address of a running Dask scheduler (default: start a local cluster)")
+    p_run.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
+                       help="stop the exact plan once it is proven within this %% of the best possible NPV "
+                            f"(default {100.0 * gap_frac:g})")
+    p_run.add_argument("--plan-seconds", type=float, default=time_s, metavar="S",
+                       help=f"time limit of the exact plan's solver (default {time_s:g}); the best plan "
+                            "found and its proven gap are reported when it is reached")
     p_run.set_defaults(func=cmd_run)
     p_serve = sub.add_parser("serve", help="open the dashboard on a case (the demo case by default)")
     p_serve.add_argument("case", nargs="?", default=None, help="case folder or .xlsx workbook (default: the demo case)")

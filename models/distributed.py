@@ -21,7 +21,7 @@ from typing import Callable
 
 from models import finance
 from models.operation import case_index, site_case
-from models.scenario import PhysicsMerger, ScenarioResult, economics, site_physics
+from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
 
 #: Worker processes of the local cluster (one per core of the 2-core reference machine).
 LOCAL_WORKERS = 2
@@ -42,7 +42,7 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
                     progress: Callable[[str], None] | None = None, with_risk: bool = True, *,
                     site_progress: Callable[[str, int, int], None] | None = None, n_workers: int = LOCAL_WORKERS,
                     processes: bool = True, chunk_assets: int | None = None,
-                    dense: bool | None = None) -> ScenarioResult:
+                    dense: bool | None = None, plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
     """Run the whole analysis with the physics of each site as one Dask task.
 
     Parameters
@@ -106,4 +106,4 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         client.close()
         if cluster is not None:
             cluster.close()
-    return economics(case, merger.result(), assumptions, progress, with_risk)
+    return economics(case, merger.result(), assumptions, progress, with_risk, plan_settings)

@@ -488,7 +488,7 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
-        with_risk: bool = True) -> ScenarioResult:
+        with_risk: bool = True, plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
     """Run the whole analysis of a case.
 
     Parameters
@@ -501,13 +501,15 @@ def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str],
         Called with the name of each stage as it starts.
     with_risk : bool
         Include the tornado and Monte Carlo.
+    plan_settings : PlanSettings
+        How hard the exact fleet plan is solved (default :data:`PRECISE_PLAN`).
 
     Returns
     -------
     ScenarioResult
     """
     phys = physics(case, float(assumptions.capacitor_cost_per_kvar), progress)
-    return economics(case, phys, assumptions, progress, with_risk)
+    return economics(case, phys, assumptions, progress, with_risk, plan_settings)
 
 
 # ---------------------------------------------------------------------------------------------------

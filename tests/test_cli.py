@@ -112,3 +112,16 @@ def test_run_announces_a_large_run_and_drives_the_dask_engine(tmp_path, capsys, 
     assert "sites" in err  # the per-site progress bar of the Dask engine
     local = (tmp_path / "local" / "results.csv").read_bytes()
     assert local == (tmp_path / "dask" / "results.csv").read_bytes()
+
+
+def test_run_plan_limits(tmp_path, capsys):
+    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+    assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--plan-seconds", "0"]) == 2
+    assert "--plan-seconds" in capsys.readouterr().err
+    assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    out = capsys.readouterr().out
+    line = next(text for text in out.splitlines() if "Exact plan:" in text)
+    # the solver stops at the first plan proven within 5 %: the gap it states is at most that
+    assert "proven within" in line or "optimal" in line
+    if "proven within" in line:
+        assert float(line.split("proven within ")[1].split(" %")[0]) <= 5.0
