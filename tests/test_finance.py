@@ -442,6 +442,17 @@ class TestFinanceAssumptions:
         assert a is not None and a.discount_rate_frac == 0.06
         assert [p.column for p in problems] == ["finance.colour"]
 
+    def test_price_levels_read_and_checked(self):
+        a, problems = FinanceAssumptions.from_dict({"energy_price_factor": 1.2, "capital_cost_factor": "0.9"})
+        assert problems == [] and a.energy_price_factor == 1.2 and a.capital_cost_factor == 0.9
+        assert FinanceAssumptions().energy_price_factor == 1.0  # the tariffs as written unless asked
+        a, problems = FinanceAssumptions.from_dict({"energy_price_factor": 0, "capital_cost_factor": "dear"})
+        assert a is None and sorted(p.column for p in problems) == ["capital_cost_factor"]  # type errors first
+        a, problems = FinanceAssumptions.from_dict({"energy_price_factor": 0})
+        assert a is None and problems[0].column == "energy_price_factor" and "> 0" in problems[0].rule
+        a, problems = FinanceAssumptions.from_dict({"capital_cost_factor": 12})  # 12 x: perhaps a percent
+        assert a is not None and [p.severity for p in problems] == ["warning"]
+
     def test_unusual_value_warns(self):
         a, problems = FinanceAssumptions.from_dict({"discount_rate_frac": 0.6})
         assert a is not None and [p.severity for p in problems] == ["warning"]
