@@ -650,6 +650,22 @@ def induction_speed_rpm(params: InductionParams, shaft_p_kw):
     return wrap(y.reshape(shape))
 
 
+def _speed_rpm_unchecked(params: InductionParams, shaft_p_kw: np.ndarray) -> np.ndarray:
+    """:func:`induction_speed_rpm` of a numpy load known to be >= 0 (no sign test; the same operations).
+
+    For inner loops that keep the load non-negative by construction (the speed-coupling fixed point).
+    """
+    p = np.asarray(shaft_p_kw, dtype=float)
+    get = _aligned(params, "array", p.ndim)
+    p_ag_r = get("rated_airgap_p_kw")
+    shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
+    y, _ = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"))
+    y *= -get("rated_slip_frac")
+    y += 1.0
+    y *= get("sync_speed_rpm")  # n = n_s (1 - s_r y)
+    return y.reshape(shape)
+
+
 def shaft_from_input_kw(params: InductionParams, p_in_kw):
     """Shaft power that makes the motor draw a given (measured) input power.
 

@@ -437,7 +437,8 @@ def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
     pf = np.clip(default_power_factor(arr["rated_p_kw"], arr["poles"])
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])
-    shaft, _ = _coupled(arr, load, lambda p: induction.induction_speed_rpm(new, p), option["speed_remedy"])
+    # the coupling keeps the load >= 0 (checked once on entry), so the speed needs no sign test per pass
+    shaft, _ = _coupled(arr, load, lambda p: induction._speed_rpm_unchecked(new, p), option["speed_remedy"])
     return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
