@@ -673,8 +673,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
     # class efficiencies are per asset: computed once per block, sliced with the rest for each option
-    arr_all = _with_class_efficiencies(asset_arrays(a), sorted({c for c in options["efficiency_class"] if isinstance(c, str) and c}
-                                                               | {"IE3"}))
+    arr_all = asset_arrays(a)
+    if not only_today:
+        arr_all = _with_class_efficiencies(arr_all, sorted({c for c in options["efficiency_class"] if isinstance(c, str) and c}
+                                                           | {"IE3"}))
     n_a, n_o, n_t = len(a), len(options), len(index)
     applies, reason = applicability(options, a)
     applies[:, 0] = True
@@ -754,7 +756,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
 
     # today's motors first
     for kind, rows_, arr, existing, load in groups:
-        load.controlled = _speed_controlled(arr, load)  # element-wise: computed once, sliced for each option
+        if not only_today:  # element-wise: computed once, sliced for each option (today's drives compute their own)
+            load.controlled = _speed_controlled(arr, load)
         pt = _evaluate(options.iloc[0], arr, existing, load)
         store(0, kind, rows_, np.arange(len(rows_)), pt, load)
         running_h[rows_] = load.weight_running()[1]
