@@ -107,13 +107,13 @@ def child(case_dir: str, engine: str) -> dict:
     t0 = time.perf_counter()
     from models import scenario
     from models.case import load_case
-    from models.operation import _with_baseline, case_index
+    from models.operation import case_index, options_with_baseline
 
     case, problems = load_case(case_dir)
     if case is None:
         raise SystemExit(f"case not valid: {[str(p) for p in problems][:5]}")
     times["load"] = time.perf_counter() - t0
-    n_assets, n_options, n_steps = len(case.assets), len(_with_baseline(case.options)), len(case_index(case))
+    n_assets, n_options, n_steps = len(case.assets), len(options_with_baseline(case.options)), len(case_index(case))
     state = {"stage": None, "t": time.perf_counter()}
 
     def progress(name: str) -> None:
