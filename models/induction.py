@@ -766,7 +766,11 @@ def _fit_profile(full, y75, v75, has75, y50, v50, has50, default_share):
         ratio = np.where(both, (full - v75) / rise50, 0.5)
     lo, hi = _exponent_ratio_bounds(y75, y50)
     ok = ~both | ((rise50 > 0) & (ratio > lo) & (ratio < hi))
-    k = np.where(both & ok, _exponent_through(y75, y50, np.where(ok, ratio, 0.5)), 2.0)
+    fit = both & ok
+    r = np.where(ok, ratio, 0.5)
+    # the bisection only where some motor has both part-load points (its result is not used elsewhere)
+    through = _exponent_through(y75, y50, r) if np.any(fit) else np.zeros(np.broadcast_shapes(np.shape(y75), np.shape(y50), np.shape(r)))
+    k = np.where(fit, through, 2.0)
     c_both = rise50 / (1.0 - y50**k)
     c_75 = (full - v75) / (1.0 - y75 * y75)
     c_50 = rise50 / (1.0 - y50 * y50)
