@@ -655,13 +655,14 @@ def _site_other(case, site_id: str, total_p: np.ndarray, total_q: np.ndarray, ow
 
 
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
-                   only_today: bool = False, wanted=None) -> OperatingResult:
+                   only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
     block's own totals (the block is the whole site). With ``only_today`` only today's motors run; with
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
-    its own, so the values are those of a full run; the others repeat today's).
+    its own, so the values are those of a full run; the others repeat today's). With ``buffers`` (every
+    option run) the per-interval arrays are views of those buffers, every element written by this call.
     """
     from dataclasses import replace
 
@@ -697,8 +698,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                                np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
         groups.append(("states", state_rows, arr, existing, load))
 
-    p_kw = np.zeros((1 if only_today else n_o, n_a, n_t))
-    q_kvar = np.zeros((1 if only_today else n_o, n_a, n_t))
+    if buffers is not None and wanted is None:
+        # every element is written below (today's rows by today's motors; each option's rows by the option
+        # or, where it does not apply, by today's values), so reused memory needs no clearing
+        p_kw, q_kvar = buffers.views(1 if only_today else n_o, n_a, n_t)
+    else:
+        p_kw = np.zeros((1 if only_today else n_o, n_a, n_t))
+        q_kvar = np.zeros((1 if only_today else n_o, n_a, n_t))
     energy = np.zeros((n_a, n_o))
     shaft_energy = np.zeros((n_a, n_o))
     losses = np.zeros((n_a, n_o, len(LOSS_KINDS)))
@@ -838,29 +844,56 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
     return merger.result()
 
 
+class _BlockBuffers:
+    """Per-interval p_kw and q_kvar memory reused from block to block of a site.
+
+    A fresh block-sized array costs its pages' first touch (the system maps and clears them), which on
+    a virtual machine is several times one pass over the array; reusing one pair of buffers pays that
+    once per site instead of once per block and pass.
+    """
+
+    def __init__(self):
+        self.p: np.ndarray | None = None
+        self.q: np.ndarray | None = None
+
+    def views(self, n_options: int, n_assets: int, n_steps: int) -> tuple[np.ndarray, np.ndarray]:
+        """(p_kw, q_kvar) views of shape (n_options, n_assets, n_steps), contents undefined."""
+        if self.p is None or self.p.shape[0] < n_options or self.p.shape[1] < n_assets or self.p.shape[2] != n_steps:
+            shape = (max(n_options, 0 if self.p is None else self.p.shape[0]),
+                     max(n_assets, 0 if self.p is None else self.p.shape[1]), n_steps)
+            self.p, self.q = np.empty(shape), np.empty(shape)
+        return self.p[:n_options, :n_assets], self.q[:n_options, :n_assets]
+
+
 def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
     """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
 
     The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
     [kW], [kVAr] (n_steps,) are those of the whole site (a first pass over the blocks when there are
     several), the same numbers :func:`operate_site` uses. Memory: one block at a time.
+
+    Warnings
+    --------
+    The per-interval arrays of a yielded block (``p_kw``, ``q_kvar``) live in memory reused by the
+    next block: use or copy them before asking for the next one (the other fields are the block's own).
     """
     n = len(case.assets)
     blocks = asset_blocks(n, len(index), chunk_assets)
+    buffers = _BlockBuffers()
     if len(blocks) <= 1:
-        part = _operate_block(case, index, np.arange(n))
+        part = _operate_block(case, index, np.arange(n), buffers=buffers)
         yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
         return
     base_p = np.zeros((n, len(index)))
     base_q = np.zeros((n, len(index)))
     for rows in blocks:
-        part = _operate_block(case, index, rows, only_today=True)
+        part = _operate_block(case, index, rows, only_today=True, buffers=buffers)
         base_p[rows], base_q[rows] = part.p_kw[0], part.q_kvar[0]
         del part
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
     del base_p, base_q
     for rows in blocks:
-        yield rows, _operate_block(case, index, rows, site_totals=totals), totals
+        yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers), totals
 
 
 class _Merger:
