@@ -136,14 +136,26 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
 
 
 def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr."""
+    """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr.
+
+    An option changes an asset when the largest |difference| from today's values is above 0 (a row with
+    a NaN difference counts as unchanged, as NaN compares false). For finite values that is "some value
+    differs", tested with one comparison per element.
+    """
     n_o, n_s = p_site.shape[0], p_site.shape[1]
     changed = np.zeros((n_s, n_o), dtype=bool)
+    finite = billing._all_finite(p_site) and billing._all_finite(q_site)
     for o in range(1, n_o):
         rows = np.flatnonzero(applies[:, o])
-        if len(rows):
-            changed[rows, o] = ((np.abs(p_site[o, rows] - p_site[0, rows]).max(axis=1) > 0)
-                                | (np.abs(q_site[o, rows] - q_site[0, rows]).max(axis=1) > 0))
+        if not len(rows):
+            continue
+        at = slice(None) if len(rows) == n_s else rows
+        if finite:
+            changed[rows, o] = ((p_site[o, at] != p_site[0, at]).any(axis=1)
+                                | (q_site[o, at] != q_site[0, at]).any(axis=1))
+        else:
+            changed[rows, o] = ((np.abs(p_site[o, at] - p_site[0, at]).max(axis=1) > 0)
+                                | (np.abs(q_site[o, at] - q_site[0, at]).max(axis=1) > 0))
     js, os_ = np.nonzero(changed)
     return js, os_
 
