@@ -974,7 +974,8 @@ class _SiteRecompute:
 
     Each block of a site is run again exactly as in the full run (same assets, same site totals of
     today's motors), for the options asked for only, so the values are the full run's. The latest
-    block's result is kept.
+    block's result is kept, and so are both quantities of the latest request: asking for the kVAr of
+    the rows whose kW were just asked for (a site meter takes both) runs no block again.
     """
 
     def __init__(self, case, index: pd.DatetimeIndex, chunk_assets: int | None):
@@ -988,15 +989,21 @@ class _SiteRecompute:
         self.today_p: np.ndarray | None = None  # set by the merger: today's motors, every asset
         self.today_q: np.ndarray | None = None
         self._cached: tuple | None = None
+        self._request: tuple | None = None  # (k, options, local), p_kw rows, q_kvar rows
 
     def values(self, k: int, options: np.ndarray, local: np.ndarray, quantity: int) -> np.ndarray:
         """Rows (options[i], local[i]) of site k, shape (len(options), n_steps)."""
+        options, local = np.asarray(options), np.asarray(local)
+        request = (k, options.tobytes(), local.tobytes())
+        if self._request is not None and self._request[0] == request:
+            return self._request[1 + quantity]
+        self._request = None
         site_id, rows = self.partition[k]
         blocks = asset_blocks(len(rows), len(self.index), self.chunk_assets)
         totals = None
         if len(blocks) > 1:
             totals = (self.today_p[rows].sum(axis=0), self.today_q[rows].sum(axis=0))
-        out = np.empty((len(options), len(self.index)))
+        out = (np.empty((len(options), len(self.index))), np.empty((len(options), len(self.index))))
         size = len(blocks[0])
         block_of = local // size
         sub_case = None
@@ -1009,12 +1016,15 @@ class _SiteRecompute:
                 sub_case = sub_case if sub_case is not None else site_case(self.case, site_id)
                 op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted)
                 self._cached = (key, op.p_kw, op.q_kvar)
-            out[sel] = self._cached[1 + quantity][options[sel], local[sel] - b * size]
-        return out
+            for qty in (0, 1):
+                out[qty][sel] = self._cached[1 + qty][options[sel], local[sel] - b * size]
+        self._request = (request,) + out
+        return out[quantity]
 
     def __getstate__(self):
         state = dict(self.__dict__)
         state["_cached"] = None
+        state["_request"] = None
         return state
 
 
