@@ -718,13 +718,18 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     site_ids = a["site_id"].to_numpy(dtype=object)
     option_ids = options["option_id"].to_numpy(dtype=object)
 
-    def store(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt, load: _Load, part_rows=None) -> None:
+    def store(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt, load: _Load) -> None:
         if isinstance(pt, _Parts):
             for part_rows_, part in pt.parts:
-                store(o, kind, rows_, sub[part_rows_], part, load, part_rows_)
+                store_part(o, kind, rows_, sub[part_rows_], part, load, part_rows_)
             for i, text in pt.flags:
                 flags.append({"asset_id": asset_ids[rows_[sub][i]], "option_id": option_ids[o], "flag": text})
-            return
+        else:
+            store_part(o, kind, rows_, sub, pt, load)
+
+    # (two closures, neither calling itself: a self-referencing closure is a reference cycle that would keep
+    # this block's arrays alive until the garbage collector runs)
+    def store_part(o: int, kind: str, rows_: np.ndarray, sub: np.ndarray, pt: _Point, load: _Load, part_rows=None) -> None:
         idx = rows_[sub]
         w = None
         if kind != "interval":
