@@ -914,17 +914,27 @@ class _Merger:
         self.flag_pos: list[np.ndarray] = []
 
     def add(self, rows: np.ndarray, part: OperatingResult) -> None:
+        at = _as_slice(rows)
+        adopted = False
         if self.first is None:
             self.first = part
             n_o = len(part.option_ids)
             shape = (n_o, self.n_a, self.n_t) if self.dense else (self.n_a, self.n_t)
-            self.fields["p_kw"] = np.zeros(shape)
-            self.fields["q_kvar"] = np.zeros(shape)
+            whole = isinstance(at, slice) and at.start == 0 and at.stop == self.n_a
+            interval = [part.p_kw, part.q_kvar] if self.dense else [part.p_kw[0], part.q_kvar[0]]
+            if whole and all(isinstance(a, np.ndarray) and a.shape == shape and a.dtype == np.float64 for a in interval):
+                # one part holding every asset in order: its per-interval arrays are the result (no copy)
+                self.fields["p_kw"], self.fields["q_kvar"] = interval
+                adopted = True
+            else:
+                self.fields["p_kw"] = np.zeros(shape)
+                self.fields["q_kvar"] = np.zeros(shape)
             for name in _PER_ASSET_FIELDS:
                 value = getattr(part, name)
                 self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
-        at = _as_slice(rows)
-        if self.dense:
+        if adopted:
+            pass
+        elif self.dense:
             self.fields["p_kw"][:, at] = part.p_kw
             self.fields["q_kvar"][:, at] = part.q_kvar
         else:
