@@ -393,6 +393,7 @@ class Engine:
                     found = self._results.get((key, assumptions, risk_ok, precise_ok))
                     if found is not None:
                         self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
+                        self._remember(key, found)
                         return found
             start = self._last_plan.get(key, ())
             previous = self._last_result.get(key)
@@ -405,15 +406,20 @@ class Engine:
         def compute():
             out = self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk,
                                                                       plan_settings=settings, previous=previous))
-            plan_ = getattr(out, "plan", None)
-            if isinstance(plan_, pd.DataFrame) and {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
-                with self._lock:
-                    self._last_plan[key] = tuple(zip((plan_["asset_id"] + "/" + plan_["option_id"]).tolist(),
-                                                     plan_["start_yr"].astype(int).tolist()))
-                    self._last_result[key] = out
+            self._remember(key, out)
             return out
 
         return self._once(self._results, (key, assumptions, bool(with_risk), bool(precise)), compute, self.max_results)
+
+    def _remember(self, key: str, result) -> None:
+        """Keep the result last served for a case: the next live ask starts from its plan and, when only
+        the budget changes, reuses the rest of it."""
+        plan_ = getattr(result, "plan", None)
+        if isinstance(plan_, pd.DataFrame) and {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
+            with self._lock:
+                self._last_plan[key] = tuple(zip((plan_["asset_id"] + "/" + plan_["option_id"]).tolist(),
+                                                 plan_["start_yr"].astype(int).tolist()))
+                self._last_result[key] = result
 
     def derived(self, key: str, name: str, args: tuple, compute: Callable[[], object]):
         """Cache a finance-independent or plan-dependent view of a case (curves, meters, loads)."""
