@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from models import billing
-from models.billing import _CHUNK_ELEMENTS, bill_many, interval_hours
+from models.billing import _CHUNK_ELEMENTS, interval_hours
 from models.site import Site, SiteMeter
 from models.tariff import Tariff
 
@@ -94,9 +94,11 @@ def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, i
     frames = []
     flags: list = []
     lagging, leading = [], []
+    cal = None  # built once, at the first block (after its meter, as bill_many would)
     for start in range(0, n, chunk):
         meter = site.meter_from_totals(p0 + dp[start : start + chunk], q0 + dq[start : start + chunk], base_p_kw_profile=base_p_kw_profile)
-        f = bill_many(tariff, index, meter.p_kw, meter.q_kvar, interval_h=interval_h, repeat_year=repeat_year)
+        cal = cal if cal is not None else billing._calendar(tariff, index, interval_h)
+        f = billing._bill_many_on(cal, tariff, meter.p_kw, meter.q_kvar, repeat_year)
         flags.extend(f.attrs["flags"])
         q = np.asarray(meter.q_kvar, dtype=float)
         lagging.append(np.maximum(q, 0.0).sum(axis=-1) * h)

@@ -670,7 +670,11 @@ def bill_many(
     The same engine as :func:`bill`, evaluated on scenario blocks of bounded size; the calendar (months,
     periods, windows) is built once.
     """
-    cal = _calendar(tariff, index, interval_h)
+    return _bill_many_on(_calendar(tariff, index, interval_h), tariff, p_kw_2d, q_kvar_2d, repeat_year)
+
+
+def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_year: bool) -> pd.DataFrame:
+    """:func:`bill_many` against a calendar already built (for callers that bill one site block by block)."""
     p = _as_2d(p_kw_2d, cal.n_steps, "p_kw_2d")
     q = _as_2d(q_kvar_2d, cal.n_steps, "q_kvar_2d")
     if p.shape != q.shape:
