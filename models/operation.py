@@ -654,8 +654,34 @@ def _site_other(case, site_id: str, total_p: np.ndarray, total_q: np.ndarray, ow
     return p_other, q_other
 
 
+@dataclass(frozen=True)
+class _TodayOfBlock:
+    """Today's motors of a block as a first pass computed them: per-interval power and yearly values."""
+
+    p_kw: np.ndarray
+    q_kvar: np.ndarray
+    energy_kwh: np.ndarray
+    shaft_energy_kwh: np.ndarray
+    losses_kwh: np.ndarray
+    lagging_kvarh: np.ndarray
+    leading_kvarh: np.ndarray
+    mean_speed_rpm: np.ndarray
+    running_h: np.ndarray
+    flags: list
+
+    @classmethod
+    def of(cls, part: OperatingResult, p_kw: np.ndarray, q_kvar: np.ndarray) -> "_TodayOfBlock":
+        """From a today-only block result, with its per-interval rows kept elsewhere (``p_kw``, ``q_kvar``)."""
+        today_id = part.option_ids[0]
+        flags = [r._asdict() for r in part.flags.itertuples(index=False) if r.option_id == today_id]
+        return cls(p_kw, q_kvar, part.energy_kwh[:, 0].copy(), part.shaft_energy_kwh[:, 0].copy(),
+                   part.losses_kwh[:, 0].copy(), part.lagging_kvarh[:, 0].copy(), part.leading_kvarh[:, 0].copy(),
+                   part.mean_speed_rpm[:, 0].copy(), part.running_h.copy(), flags)
+
+
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
-                   only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None) -> OperatingResult:
+                   only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
+                   today: _TodayOfBlock | None = None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
@@ -663,6 +689,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
     its own, so the values are those of a full run; the others repeat today's). With ``buffers`` (every
     option run) the per-interval arrays are views of those buffers, every element written by this call.
+    With ``today`` (a first pass's result for the same block) today's motors are not run again.
     """
     from dataclasses import replace
 
@@ -769,9 +796,16 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     for kind, rows_, arr, existing, load in groups:
         if not only_today:  # element-wise: computed once, sliced for each option (today's drives compute their own)
             load.controlled = _speed_controlled(arr, load)
-        pt = _evaluate(options.iloc[0], arr, existing, load)
-        store(0, kind, rows_, np.arange(len(rows_)), pt, load)
-        running_h[rows_] = load.weight_running()[1]
+        if today is None:
+            pt = _evaluate(options.iloc[0], arr, existing, load)
+            store(0, kind, rows_, np.arange(len(rows_)), pt, load)
+            running_h[rows_] = load.weight_running()[1]
+    if today is not None:  # the same block's first pass: the same numbers
+        p_kw[0], q_kvar[0] = today.p_kw, today.q_kvar
+        energy[:, 0], shaft_energy[:, 0], losses[:, 0] = today.energy_kwh, today.shaft_energy_kwh, today.losses_kwh
+        lag[:, 0], lead[:, 0], speed[:, 0] = today.lagging_kvarh, today.leading_kvarh, today.mean_speed_rpm
+        running_h[:] = today.running_h
+        flags.extend(today.flags)
     if site_totals is None:
         site_totals = (p_kw[0].sum(axis=0), q_kvar[0].sum(axis=0))
     for o in range(1, 1 if only_today else n_o):
@@ -891,14 +925,16 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
         return
     base_p = np.zeros((n, len(index)))
     base_q = np.zeros((n, len(index)))
+    today = []
     for rows in blocks:
         part = _operate_block(case, index, rows, only_today=True, buffers=buffers)
-        base_p[rows], base_q[rows] = part.p_kw[0], part.q_kvar[0]
+        at = _as_slice(rows)
+        base_p[at], base_q[at] = part.p_kw[0], part.q_kvar[0]
+        today.append(_TodayOfBlock.of(part, base_p[at], base_q[at]))  # the second pass reuses today's motors
         del part
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
-    del base_p, base_q
-    for rows in blocks:
-        yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers), totals
+    for rows, today_of_block in zip(blocks, today):
+        yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers, today=today_of_block), totals
 
 
 class _Merger:
