@@ -271,7 +271,7 @@ def site_savings(setup: SiteSetup, index: pd.DatetimeIndex, interval_h: float, p
         Installed cost of an automatic capacitor bank [currency/kVAr].
     block_scenarios : int, optional
         Asset-options billed together; default ``SCENARIO_BLOCK_ELEMENTS // n_steps`` (memory bound of
-        about 10 x 8 bytes x 2**20 per block whatever the site size).
+        about 10 x 8 bytes x 2**17 per block whatever the site size).
 
     Returns
     -------
