@@ -681,7 +681,7 @@ class _TodayOfBlock:
 
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
-                   today: _TodayOfBlock | None = None) -> OperatingResult:
+                   today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
@@ -689,7 +689,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
     its own, so the values are those of a full run; the others repeat today's). With ``buffers`` (every
     option run) the per-interval arrays are views of those buffers, every element written by this call.
-    With ``today`` (a first pass's result for the same block) today's motors are not run again.
+    With ``today`` (a first pass's result for the same block) today's motors are not run again. With
+    ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
+    calibrated motors are sliced from the site's instead of computed for the block.
     """
     from dataclasses import replace
 
@@ -700,11 +702,15 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     options = options_with_baseline(case.options)
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
-    # class efficiencies are per asset: computed once per block, sliced with the rest for each option
-    arr_all = asset_arrays(a)
-    if not only_today:
-        arr_all = _with_class_efficiencies(arr_all, sorted({c for c in options["efficiency_class"] if isinstance(c, str) and c}
-                                                           | {"IE3"}))
+    # class efficiencies are per asset: computed once per block (or site), sliced with the rest for each option
+    existing_all = None
+    if site_constants is not None:
+        arr_all = _take(site_constants.arrays, rows)
+        existing_all = _take_params(site_constants.existing, rows)
+    else:
+        arr_all = asset_arrays(a)
+        if not only_today:
+            arr_all = _with_class_efficiencies(arr_all, _catalogue_classes(options))
     n_a, n_o, n_t = len(a), len(options), len(index)
     applies, reason = applicability(options, a)
     applies[:, 0] = True
@@ -714,13 +720,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     groups = []
     if len(interval_rows):
         arr = _take(arr_all, interval_rows)
-        existing = existing_motor(arr)
+        existing = existing_motor(arr) if existing_all is None else _take_params(existing_all, interval_rows)
         load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
         groups.append(("interval", interval_rows, arr, existing, load))
     del values
     if len(state_rows):
         arr = _take(arr_all, state_rows)
-        existing = existing_motor(arr)
+        existing = existing_motor(arr) if existing_all is None else _take_params(existing_all, state_rows)
         load = _reference_load(arr, existing, states.shaft_load_frac[state_rows],
                                np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
         groups.append(("states", state_rows, arr, existing, load))
@@ -883,6 +889,25 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
     return merger.result()
 
 
+def _catalogue_classes(options: pd.DataFrame) -> list[str]:
+    """Efficiency classes whose class efficiency the options may ask for (the catalogue's, and IE3)."""
+    return sorted({c for c in options["efficiency_class"] if isinstance(c, str) and c} | {"IE3"})
+
+
+@dataclass(frozen=True)
+class _SiteConstants:
+    """Per-asset numbers of a one-site case (with the catalogue's class efficiencies) and today's motors."""
+
+    arrays: dict
+    existing: induction.InductionParams
+
+
+def _site_constants(case) -> _SiteConstants:
+    """Compute once per site what every block of it slices (element-wise per asset, so the same numbers)."""
+    arrays = _with_class_efficiencies(asset_arrays(case.assets), _catalogue_classes(options_with_baseline(case.options)))
+    return _SiteConstants(arrays, existing_motor(arrays))
+
+
 class _BlockBuffers:
     """Per-interval p_kw and q_kvar memory reused from block to block of a site.
 
@@ -926,15 +951,17 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
     base_p = np.zeros((n, len(index)))
     base_q = np.zeros((n, len(index)))
     today = []
+    constants = _site_constants(case)
     for rows in blocks:
-        part = _operate_block(case, index, rows, only_today=True, buffers=buffers)
+        part = _operate_block(case, index, rows, only_today=True, buffers=buffers, site_constants=constants)
         at = _as_slice(rows)
         base_p[at], base_q[at] = part.p_kw[0], part.q_kvar[0]
         today.append(_TodayOfBlock.of(part, base_p[at], base_q[at]))  # the second pass reuses today's motors
         del part
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
     for rows, today_of_block in zip(blocks, today):
-        yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers, today=today_of_block), totals
+        yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers, today=today_of_block,
+                                   site_constants=constants), totals
 
 
 class _Merger:
