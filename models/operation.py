@@ -18,7 +18,7 @@ import pandas as pd
 
 from models import drives, induction, loads, synchronous
 from models.defaults import catalogue_efficiency_pct, class_floor_pct, default_power_factor
-from models.profiles import analysis_index, asset_loads
+from models.profiles import LoadStates, analysis_index, asset_loads
 
 #: Loss kinds reported per asset and option.
 LOSS_KINDS: tuple[str, ...] = ("motor", "drive", "excitation")
@@ -715,7 +715,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     applies, reason = applicability(options, a)
     applies[:, 0] = True
     reason[:, 0] = ""
-    interval_rows, values, is_input, states, notes = asset_loads(block, index)
+    if site_constants is not None and site_constants.loads is not None:
+        interval_rows, values, is_input, states, notes = _block_loads(site_constants.loads, rows, a["asset_id"])
+    else:
+        interval_rows, values, is_input, states, notes = asset_loads(block, index)
     state_rows = np.setdiff1d(np.arange(n_a), interval_rows)
     groups = []
     if len(interval_rows):
@@ -896,16 +899,36 @@ def _catalogue_classes(options: pd.DataFrame) -> list[str]:
 
 @dataclass(frozen=True)
 class _SiteConstants:
-    """Per-asset numbers of a one-site case (with the catalogue's class efficiencies) and today's motors."""
+    """Per-asset numbers of a one-site case (with the catalogue's class efficiencies), today's motors and
+    the assets' loads on the analysis index (:func:`models.profiles.asset_loads` of the whole site)."""
 
     arrays: dict
     existing: induction.InductionParams
+    loads: tuple | None = None
 
 
-def _site_constants(case) -> _SiteConstants:
-    """Compute once per site what every block of it slices (element-wise per asset, so the same numbers)."""
+def _site_constants(case, index: pd.DatetimeIndex | None = None) -> _SiteConstants:
+    """Compute once per site what every block of it slices (element-wise per asset, so the same numbers).
+
+    With ``index``, the loads too: each profile is placed on the index once per site instead of once
+    per block and pass (memory: one load value per asset and step of the site while it is worked).
+    """
     arrays = _with_class_efficiencies(asset_arrays(case.assets), _catalogue_classes(options_with_baseline(case.options)))
-    return _SiteConstants(arrays, existing_motor(arrays))
+    loads = asset_loads(case, index) if index is not None else None
+    return _SiteConstants(arrays, existing_motor(arrays), loads)
+
+
+def _block_loads(site_loads: tuple, rows: np.ndarray, block_asset_ids) -> tuple:
+    """:func:`models.profiles.asset_loads` of a block of consecutive site positions ``rows``, sliced from the site's.
+
+    Each asset's values, states and notes are its own, so slicing gives what the block's own call would
+    (notes keep their order: interval assets first, then the others, each in register order).
+    """
+    interval_rows, values, is_input, states, notes = site_loads
+    inside = (interval_rows >= rows[0]) & (interval_rows <= rows[-1])
+    block_states = LoadStates(states.shaft_load_frac[rows], states.duration_h_per_yr[rows])
+    block_notes = notes[notes["asset_id"].isin(set(block_asset_ids))].reset_index(drop=True)
+    return interval_rows[inside] - rows[0], values[inside], is_input[inside], block_states, block_notes
 
 
 class _BlockBuffers:
@@ -951,7 +974,7 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
     base_p = np.zeros((n, len(index)))
     base_q = np.zeros((n, len(index)))
     today = []
-    constants = _site_constants(case)
+    constants = _site_constants(case, index)
     for rows in blocks:
         part = _operate_block(case, index, rows, only_today=True, buffers=buffers, site_constants=constants)
         at = _as_slice(rows)
