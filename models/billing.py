@@ -680,7 +680,7 @@ def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_yea
     if p.shape != q.shape:
         raise ValueError(f"p_kw_2d and q_kvar_2d differ in shape: {p.shape} vs {q.shape}")
     _check_repeat(cal, repeat_year)
-    return _priced(tariff, cal, _shared_row(p), _shared_row(q), repeat_year)
+    return _priced(tariff, cal, _shared_row(p), _shared_row(q), repeat_year, n_rows=p.shape[0])
 
 
 def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool):
