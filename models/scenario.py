@@ -146,7 +146,8 @@ class ScenarioResult:
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
-                 timer: dict | None = None, today_only: bool = False) -> tuple[OperatingResult, dict]:
+                 timer: dict | None = None, today_only: bool = False,
+                 into: tuple | None = None) -> tuple[OperatingResult | None, dict]:
     """Machines and bill savings of a one-site case (:func:`models.operation.site_case`).
 
     Parameters
@@ -164,17 +165,20 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     today_only : bool
         Return today's motors only in the per-interval arrays (shape (1, n, n_steps)); what a fleet too
         large to keep every option per interval needs, and a smaller message from a worker.
+    into : (merger, numpy.ndarray), optional
+        A fleet's gatherer and the fleet positions of this site's assets: each block goes straight into
+        the fleet's arrays (no site-sized copy in between) and the operating result returned is None.
 
     Returns
     -------
-    (OperatingResult, dict)
+    (OperatingResult or None, dict)
         The site's operating result and its :func:`models.bill_savings.site_savings` arrays.
     """
     t_machines = t_bills = 0.0
     t0 = time.perf_counter()
     site_id = str(case.assets["site_id"].iloc[0])
     setup = site_setups(case, index)[site_id]
-    merger = _Merger(len(case.assets), len(index), dense=not today_only)
+    merger, positions = into if into is not None else (_Merger(len(case.assets), len(index), dense=not today_only), None)
     acc = None
     for rows, block, totals in site_blocks(case, index, chunk_assets):
         t1 = time.perf_counter()
@@ -182,11 +186,11 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
         if acc is None:
             acc = SiteSavings(setup, index, block.interval_h, totals[0], totals[1], len(case.assets), block.technologies)
         acc.add(rows, block.p_kw, block.q_kvar, block.applies)
-        merger.add(rows, block)
+        merger.add(rows if positions is None else positions[rows], block)
         del block
         t0 = time.perf_counter()
         t_bills += t0 - t1
-    op = merger.result()
+    op = merger.result() if into is None else None
     part = acc.result(capacitor_cost_per_kvar)
     t_bills += time.perf_counter() - t0
     if timer is not None:
@@ -217,9 +221,11 @@ class PhysicsMerger:
                        "equivalent_bank_cost": np.full((n_a, n_o), np.nan)}
         self.rows = dict(self.partition)
 
-    def add(self, site_id: str, op: OperatingResult, part: dict) -> None:
+    def add(self, site_id: str, op: OperatingResult | None, part: dict) -> None:
+        """Take a site's results (``op`` None when :func:`site_physics` wrote into :attr:`ops` itself)."""
         rows = self.rows[site_id]
-        self.ops.add(rows, op)
+        if op is not None:
+            self.ops.add(rows, op)
         for name, values in part.items():
             self.arrays[name][rows] = values
 
@@ -263,7 +269,7 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
     merger = PhysicsMerger(case, index, capacitor_cost_per_kvar, chunk_assets, dense)
     for k, (site_id, _) in enumerate(merger.partition):
         op, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, timer,
-                                not merger.ops.dense)
+                                not merger.ops.dense, into=(merger.ops, np.asarray(merger.rows[site_id])))
         if k == 0:
             step("site bills")
         merger.add(site_id, op, part)
