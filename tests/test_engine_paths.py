@@ -1,0 +1,795 @@
+"""The engine's fast paths pinned against independent computations (validation record of the speed work).
+
+Paths covered, each against a computation that does not use it:
+
+1. ``models.billing.bill_many``: scenario blocks of ``_CHUNK_ELEMENTS`` (2**17) scenario-steps, quantities
+   given as one row broadcast to every scenario, demand windows of one interval and hourly intervals.
+   Reference: each scenario priced alone through :func:`models.billing.bill`, the same meter given at a
+   finer interval (general window-mean path), and hand calculations written on the line above.
+2. ``models.operation.site_blocks``: one pair of per-interval buffers per site reused block after block,
+   today's motors of the first pass reused in the second, per-site constants and loads sliced per
+   block. Reference: every block run on its own with fresh arrays (``_operate_block`` without buffers,
+   site constants or first-pass results) and a one-block run of the site.
+3. The compact interval store (``SiteIntervalStore`` / ``_SiteRecompute``). Reference: the dense run.
+4. ``models.site.stepped_bank_q_kvar`` evaluated in place. Reference: the documented rule step by step
+   in plain Python.
+5. ``models.bill_savings._changed_pairs`` (one comparison per element). Reference: largest |difference|
+   in plain numpy, and hand-calculated savings.
+
+Tolerances: "exact" (``array_equal``) where the fast path is claimed to do the same floating-point
+operations on the same numbers; 1e-12 relative where sums are taken in another order (a few ulps of
+a bill); the batch tolerance of tests/test_chunking.py where the speed-coupling solver's batch-wide
+stopping rule is involved (documented in ``models.operation.operate_site``).
+"""
+
+from __future__ import annotations
+
+import math
+import shutil
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from numpy.testing import assert_allclose, assert_array_equal
+
+import casebuilder as cb
+from models import billing, operation, scenario
+from models.bill_savings import SiteSetup, _changed_pairs, meter_and_bills, site_savings, site_setups
+from models.billing import bill, bill_many, bill_total
+from models.case import load_case
+from models.operation import asset_blocks, case_index, operate_site, site_blocks, site_case, site_partition
+from models.site import Site, stepped_bank_q_kvar
+from models.tariff import tariff_from_dict
+
+REPO = Path(__file__).resolve().parents[1]
+TARIFF_DIR = REPO / "data" / "tariffs"
+EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml"]
+# Bills of up to ~1e5 summed over months in another order than one scenario's bill: a few ulps.
+BILL_RTOL = 1e-12
+# A line item that is zero in one path and a sum of zeros in the other: float rounding only.
+BILL_ATOL = 1e-9
+# As tests/test_chunking.py: the speed-coupling fixed point (models.loads) stops when the largest change
+# of its batch is below 1e-9 x the batch's largest load, so other assets in a block move the last digits
+# (up to ~1e-8 relative seen); 1e-7 relative plus 1e-6 kW (kWh) bounds that with margin.
+BATCH_RTOL = 1e-7
+BATCH_ATOL = 1e-6
+PER_INTERVAL = ("p_kw", "q_kvar")
+YEARLY = ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm",
+          "running_h", "capacitor_q_kvar", "applies", "interval_data")
+
+
+def _tariff(text: str):
+    t, problems = tariff_from_dict(tomllib.loads(text), source="test.toml")
+    assert t is not None, [str(p) for p in problems]
+    return t
+
+
+def _example(name: str):
+    with open(TARIFF_DIR / name, "rb") as f:
+        t, problems = tariff_from_dict(tomllib.load(f), source=name)
+    assert t is not None, problems
+    return t
+
+
+# A tariff with every clause kind the engine has a special path for: TOU kWh energy, a kW demand with a
+# peak-window PF adjustment and a ratchet in one period, a kVA demand, an interval-netted reactive
+# allowance, a banned leading charge, a fixed charge and a tax on everything (invented).
+ALL_CLAUSES = '''
+[tariff]
+name = "all clauses (invented)"
+currency = "EUR"
+time_zone = "Europe/Berlin"
+[[periods]]
+code = "day"
+hours = ["07:00-21:00"]
+[[periods]]
+code = "night"
+hours = ["21:00-07:00"]
+[energy]
+price_per_kwh = { day = 0.20, night = 0.11 }
+[[fixed]]
+name = "service"
+charge_per_month = 40.0
+[[demand]]
+name = "kw"
+price_per_kw_month = 9.0
+window_min = 60
+periods = ["day"]
+ratchet_frac = 0.8
+ratchet_months = 2
+[demand.power_factor_adjustment]
+method = "ratio"
+target_power_factor = 0.92
+power_factor_from = "peak_window"
+[[demand]]
+name = "kva"
+price_per_kva_month = 3.0
+window_min = 60
+[[reactive]]
+name = "lagging"
+price_per_kvarh = 0.015
+free_kvarh_per_kwh = 0.3
+allowance_per = "interval"
+periods = ["day"]
+[[leading]]
+name = "night leading"
+price_per_kvarh = 0.02
+banned = true
+periods = ["night"]
+[[taxes]]
+name = "VAT"
+rate_pct = 20.0
+base = "all_charges"
+'''
+
+
+def _meters(n_scenarios: int, n_steps: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """Seeded site meters (kW, kVAr) with lagging and leading intervals and some export."""
+    rng = np.random.default_rng(seed)
+    p = rng.uniform(-50.0, 1500.0, (n_scenarios, n_steps))
+    q = rng.uniform(-400.0, 900.0, (n_scenarios, n_steps))
+    return p, q
+
+
+def _alone(tariff, index, p: np.ndarray, q: np.ndarray) -> list[tuple[pd.Series, float, list[str]]]:
+    """Each scenario priced alone through bill(): (amount by line item, total, flagged line items)."""
+    out = []
+    for p_row, q_row in zip(p, q):
+        b = bill(tariff, index, p_row, q_row)
+        items = b.groupby("line_item", sort=False)["amount"].sum()
+        flagged = sorted(set(b.loc[b["flag"], "line_item"]))
+        out.append((items, bill_total(b), flagged))
+    return out
+
+
+def _assert_matches_alone(many: pd.DataFrame, alone) -> None:
+    assert len(many) == len(alone)
+    for s, (items, total, flagged) in enumerate(alone):
+        for name in many.columns.drop("total"):
+            assert_allclose(many[name].iloc[s], items.get(name, 0.0), rtol=BILL_RTOL, atol=BILL_ATOL,
+                            err_msg=f"scenario {s}, {name}")
+        assert_allclose(many["total"].iloc[s], total, rtol=BILL_RTOL, err_msg=f"scenario {s}")
+        assert sorted(many.attrs["flags"][s]) == flagged, s
+
+
+# --------------------------------------------------------------------------------------------------
+# 1. bill_many: blocks, broadcast rows, one-interval windows, hourly intervals
+# --------------------------------------------------------------------------------------------------
+
+
+class TestBillManyBlocks:
+    # 45 days of 15-min data: 4,320 steps, so a block of 2**17 scenario-steps holds 30 scenarios and the
+    # 33 scenarios below cross one block boundary (30 + 3). The month boundaries (Jan-Feb-Mar) exercise
+    # the ratchet and the monthly allowances.
+    N_STEPS = 45 * 96
+    N_SCENARIOS = 33
+
+    @pytest.fixture(scope="class")
+    @classmethod
+    def meters(cls):
+        return _meters(cls.N_SCENARIOS, cls.N_STEPS, seed=11)
+
+    def test_a_block_boundary_falls_inside_the_scenario_list(self):
+        per_block = billing._CHUNK_ELEMENTS // self.N_STEPS
+        assert billing._CHUNK_ELEMENTS == 2**17  # the block size documented in docs/scale.md
+        assert 0 < per_block < self.N_SCENARIOS
+
+    @pytest.mark.parametrize("name", EXAMPLES + ["ALL_CLAUSES"])
+    def test_blocks_agree_with_each_scenario_alone(self, meters, name):
+        t = _tariff(ALL_CLAUSES) if name == "ALL_CLAUSES" else _example(name)
+        index = pd.date_range("2025-01-20", periods=self.N_STEPS, freq="15min", tz=t.time_zone)
+        p, q = meters
+        _assert_matches_alone(bill_many(t, index, p, q), _alone(t, index, p, q))
+
+    @pytest.mark.parametrize("rows_per_block", [1, 4, 7])
+    def test_block_size_does_not_change_a_row(self, meters, monkeypatch, rows_per_block):
+        # each scenario is priced on its own (row-wise operations): any block size gives the same bits
+        t = _tariff(ALL_CLAUSES)
+        index = pd.date_range("2025-01-20", periods=self.N_STEPS, freq="15min", tz=t.time_zone)
+        p, q = meters[0][:9], meters[1][:9]
+        default = bill_many(t, index, p, q)
+        monkeypatch.setattr(billing, "_CHUNK_ELEMENTS", rows_per_block * self.N_STEPS)
+        small = bill_many(t, index, p, q)
+        assert list(small.columns) == list(default.columns)
+        assert_array_equal(small.to_numpy(), default.to_numpy())
+        assert small.attrs["flags"] == default.attrs["flags"]
+
+
+class TestBillManySharedRows:
+    N_STEPS = 40 * 24
+
+    @pytest.fixture(scope="class")
+    @classmethod
+    def setup(cls):
+        t = _tariff(ALL_CLAUSES)
+        index = pd.date_range("2025-02-10", periods=cls.N_STEPS, freq="h", tz=t.time_zone)
+        p, q = _meters(5, cls.N_STEPS, seed=5)
+        return t, index, p, q
+
+    @pytest.mark.parametrize("n", [1, 3, 200])  # 200 rows of 960 steps cross a 2**17 block boundary (136 rows)
+    def test_both_broadcast_give_one_row_per_scenario(self, setup, n):
+        # the defect fixed in e5292b5: p and q both one row broadcast returned one row, not n
+        t, index, p, q = setup
+        many = bill_many(t, index, np.broadcast_to(p[0], (n, self.N_STEPS)), np.broadcast_to(q[0], (n, self.N_STEPS)))
+        assert len(many) == n and len(many.attrs["flags"]) == n
+        (items, total, flagged), = _alone(t, index, p[:1], q[:1])
+        assert_allclose(many["total"].to_numpy(), np.full(n, total), rtol=BILL_RTOL)
+        for name in many.columns.drop("total"):
+            assert_allclose(many[name].to_numpy(), items.get(name, 0.0), rtol=BILL_RTOL, atol=BILL_ATOL, err_msg=name)
+        assert all(sorted(f) == flagged for f in many.attrs["flags"])
+
+    @pytest.mark.parametrize("shared", ["p", "q"])
+    def test_one_broadcast_quantity_equals_the_materialised_array(self, setup, monkeypatch, shared):
+        # reactive-only scenarios (one kW row for all) and the reverse: priced once, the same bits as the
+        # materialised arrays, across block boundaries (blocks of 2 rows)
+        t, index, p, q = setup
+        if shared == "p":
+            p = np.broadcast_to(p[0], q.shape)
+        else:
+            q = np.broadcast_to(q[0], p.shape)
+        dense = bill_many(t, index, np.array(p), np.array(q))
+        monkeypatch.setattr(billing, "_CHUNK_ELEMENTS", 2 * self.N_STEPS)
+        broadcast = bill_many(t, index, p, q)
+        assert_array_equal(broadcast.to_numpy(), dense.to_numpy())
+        assert broadcast.attrs["flags"] == dense.attrs["flags"]
+        _assert_matches_alone(broadcast, _alone(t, index, np.array(p), np.array(q)))
+
+    def test_nan_in_a_broadcast_row_raises(self, setup):
+        t, index, p, q = setup
+        row = p[0].copy()
+        row[17] = np.nan
+        with pytest.raises(ValueError, match="NaN"):
+            bill_many(t, index, np.broadcast_to(row, (4, self.N_STEPS)), q[:4])
+
+    @pytest.mark.parametrize("values, finite", [
+        ([1.0, 2.0, 3.0], True),
+        ([1e308, 1e308, -5.0], True),  # the one-pass sum overflows to inf: the element test decides
+        ([1.0, np.inf, 3.0], False),
+        ([np.nan, 2.0, 3.0], False),
+        ([np.inf, -np.inf, 0.0], False),
+    ])
+    def test_finite_check_in_one_pass_agrees_with_the_element_test(self, values, finite):
+        a = np.array(values)
+        assert bool(np.all(np.isfinite(a))) is finite  # plain numpy reference
+        assert billing._all_finite(a) is finite
+
+
+class TestOneIntervalWindowsAndHourlySteps:
+    """Demand windows of one interval (the values are the window means) and 1-h steps (kWh = kW)."""
+
+    TINY = '''
+[tariff]
+name = "tiny (invented)"
+currency = "EUR"
+[[periods]]
+code = "all"
+[energy]
+price_per_kwh = { all = 0.10 }
+[[demand]]
+name = "d"
+price_per_kw_month = 10.0
+window_min = WINDOW
+'''
+    HOURLY_P = [100.0, 300.0, 200.0, 250.0, 50.0, 0.0]
+
+    def _bill(self, window: int, freq: str, p):
+        t = _tariff(self.TINY.replace("WINDOW", str(window)))
+        index = pd.date_range("2025-03-04", periods=len(p), freq=freq, tz="UTC")
+        return bill(t, index, p, np.zeros(len(p)))
+
+    @pytest.mark.parametrize("window", [15, 60])
+    def test_hourly_data_by_hand(self, window):
+        # hand calculation: 100+300+200+250+50+0 = 900 kWh x 0.10 = 90.00 EUR; each hour is one window
+        # (a 15-min window cannot be seen in hourly data, so the hour counts), peak 300 kW x 10.00 = 3000.00 EUR
+        b = self._bill(window, "h", self.HOURLY_P)
+        assert_allclose(bill_total(b), 3090.0, rtol=0, atol=1e-9)
+        assert_allclose(b.loc[b["line_item"] == "demand:d", "quantity"].sum(), 300.0, rtol=0, atol=1e-9)
+
+    def test_same_meter_at_15_min_takes_the_general_path(self):
+        # the same hourly means held over four 15-min intervals: 60-min windows of four intervals (window
+        # means by reduceat, 0.25-h steps); hand calculation as above: 3090.00 EUR
+        b = self._bill(60, "15min", np.repeat(self.HOURLY_P, 4))
+        assert_allclose(bill_total(b), 3090.0, rtol=0, atol=1e-9)
+
+    @pytest.mark.parametrize("window, peak_kw", [(15, 400.0), (30, 250.0)])
+    def test_15_min_data_by_hand(self, window, peak_kw):
+        # hand calculation: [100, 400, 200, 300] kW over 15 min = 250 kWh -> 25.00 EUR; 15-min windows are the
+        # intervals (peak 400 kW); 30-min windows average pairs: (100+400)/2 = 250, (200+300)/2 = 250 kW
+        b = self._bill(window, "15min", [100.0, 400.0, 200.0, 300.0])
+        assert_allclose(b.loc[b["line_item"] == "demand:d", "quantity"].sum(), peak_kw, rtol=0, atol=1e-9)
+        assert_allclose(bill_total(b), 25.0 + 10.0 * peak_kw, rtol=0, atol=1e-9)
+
+    def test_kva_demand_of_one_interval_windows_by_hand(self):
+        # hand calculation: sqrt(300^2 + 400^2) = sqrt(400^2 + 300^2) = 500 kVA x 3.00 = 1500.00 EUR, and the
+        # kW demand with its peak-window PF adjustment: peak 400 kW at PF 400/500 = 0.8 < 0.92 ->
+        # 400 x 0.92 / 0.8 = 460 kW x 9.00 = 4140.00 EUR (the 400 kW hour is 08:00 local, a "day" hour)
+        t = _tariff(ALL_CLAUSES)
+        index = pd.date_range("2025-03-04 06:00", periods=2, freq="h", tz="UTC")  # 07:00 and 08:00 in Berlin
+        b = bill(t, index, [300.0, 400.0], [400.0, 300.0])
+        items = b.groupby("line_item")["quantity"].sum()
+        assert_allclose(items["demand:kva"], 500.0, rtol=1e-15)
+        assert_allclose(items["demand:kw"] + items["pf adjustment:kw"], 460.0, rtol=1e-12)
+
+    def test_whole_tariff_hourly_equals_the_same_meter_at_15_min(self):
+        # every clause of ALL_CLAUSES through the one-interval-window and 1-h paths against the general
+        # ones (60-min windows of four 15-min intervals, 0.25-h steps), over three months (ratchet)
+        t = _tariff(ALL_CLAUSES)
+        n_h = 75 * 24
+        p, q = _meters(3, n_h, seed=21)
+        hourly = pd.date_range("2025-01-01", periods=n_h, freq="h", tz=t.time_zone)
+        quarter = pd.date_range("2025-01-01", periods=4 * n_h, freq="15min", tz=t.time_zone)
+        a = bill_many(t, hourly, p, q)
+        b = bill_many(t, quarter, np.repeat(p, 4, axis=1), np.repeat(q, 4, axis=1))
+        assert list(a.columns) == list(b.columns)
+        assert_allclose(a.to_numpy(), b.to_numpy(), rtol=BILL_RTOL, atol=BILL_ATOL)
+        assert a.attrs["flags"] == b.attrs["flags"] and any(a.attrs["flags"])
+
+
+# --------------------------------------------------------------------------------------------------
+# A small two-site case for the machines (interval and load-state assets, existing drives, a throttled
+# pump, large motors for the wound-field option that follows its site, a stepped and a fixed bank)
+# --------------------------------------------------------------------------------------------------
+
+
+def _asset(aid, site, app, kw, poles, control, profile="", hours="", load=""):
+    return [aid, site, f"{app} {aid}", app, kw, poles, "50", "400" if float(kw) < 200 else "6600", "IE2", "", "", "",
+            "2008", "1", control, profile, hours, load, "medium"]
+
+
+ASSETS = [
+    _asset("P1", "S1", "pump", "30", "4", "throttled", "LP1"),
+    _asset("K1", "S1", "compressor", "630", "4", "fixed", "LP2"),
+    _asset("P2", "S1", "pump", "22", "2", "drive", "LP2"),
+    _asset("C1", "S1", "compressor", "55", "2", "fixed", hours="5000", load="80"),
+    _asset("F1", "S1", "fan", "15", "4", "fixed", "LP1"),
+    _asset("M1", "S1", "mixer", "37", "4", "fixed", "D1"),
+    _asset("V1", "S1", "conveyor", "11", "4", "fixed", "LP2"),
+    _asset("Q1", "S2", "pump", "45", "4", "fixed", "LP2"),
+    _asset("X1", "S2", "crusher", "710", "6", "fixed", "LP1"),
+    _asset("G1", "S2", "fan", "18.5", "4", "drive", "LP1"),
+]
+SITE_TARIFFS = {"S1": "example_tou_kw_reactive_ratchet.toml", "S2": "example_kva_demand.toml"}
+
+
+def _profiles() -> list[list[str]]:
+    rows = []
+    for d in range(28):
+        for h in range(24):
+            rows.append(["LP1", f"2025-01-{1 + d:02d} {h:02d}:00", f"{45 + 10 * (h % 4) + d % 3}"])
+            rows.append(["LP2", f"2025-01-{1 + d:02d} {h:02d}:00", f"{70 + 5 * ((h + d) % 5)}"])
+    return rows
+
+
+@pytest.fixture(scope="module")
+def case(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("paths")
+    cb.write_case(folder, assets=ASSETS, sites=[["S1", "Works", "80", "0.85"], ["S2", "Quarry", "40", "0.9"]],
+                  capacitors=[["S1", "B1", "150", "stepped", "25", "0.95"], ["S2", "B2", "30", "fixed", "", ""]],
+                  duty=[["D1", "90", "3000"], ["D1", "50", "2500"]], profiles=_profiles())
+    (folder / "tariffs").mkdir()
+    for name in SITE_TARIFFS.values():
+        shutil.copyfile(TARIFF_DIR / name, folder / "tariffs" / name)
+    lines = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    lines = [lines[0] + ",tariff_file"] + [line + "," + SITE_TARIFFS[line.split(",")[0]] for line in lines[1:]]
+    (folder / "sites.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    loaded, problems = load_case(folder, mode="strict")
+    assert loaded is not None, problems
+    return loaded
+
+
+@pytest.fixture(scope="module")
+def index(case):
+    return case_index(case)
+
+
+def _fresh_site(sub, index, chunk_assets):
+    """A one-site case run block by block the slow way: every block with fresh arrays, its own per-asset
+    numbers, loads and calibrated motors, today's motors run again in the second pass. Returns the blocks
+    [(rows, OperatingResult)] and the site totals of today's motors."""
+    blocks = asset_blocks(len(sub.assets), len(index), chunk_assets)
+    if len(blocks) == 1:
+        part = operation._operate_block(sub, index, blocks[0])
+        return [(blocks[0], part)], (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
+    today = [operation._operate_block(sub, index, rows, only_today=True) for rows in blocks]
+    totals = (np.concatenate([t.p_kw[0] for t in today]).sum(axis=0), np.concatenate([t.q_kvar[0] for t in today]).sum(axis=0))
+    return [(rows, operation._operate_block(sub, index, rows, site_totals=totals)) for rows in blocks], totals
+
+
+def _assembled(parts, name):
+    """Per-asset or per-interval field of block results gathered in site order."""
+    values = [getattr(part, name) for _, part in parts]
+    return np.concatenate(values, axis=1 if name in PER_INTERVAL else 0)
+
+
+def _flag_set(flags: pd.DataFrame) -> list[tuple]:
+    return sorted(map(tuple, flags[["asset_id", "option_id", "flag"]].to_numpy(dtype=str).tolist()))
+
+
+# --------------------------------------------------------------------------------------------------
+# 2. Per-site buffers reused block after block
+# --------------------------------------------------------------------------------------------------
+
+
+class TestReusedBlockBuffers:
+    @pytest.mark.parametrize("chunk_assets", [2, 3])
+    def test_site_blocks_equal_fresh_blocks_bit_for_bit(self, case, index, chunk_assets):
+        for site_id, _ in site_partition(case):
+            sub = site_case(case, site_id)
+            fresh, fresh_totals = _fresh_site(sub, index, chunk_assets)
+            # S1 (7 assets) in several blocks, the last one smaller; S2 (3 assets) in one block of 3
+            assert len(fresh) == -(-len(sub.assets) // chunk_assets)
+            got = []
+            for rows, block, totals in site_blocks(sub, index, chunk_assets):
+                assert_array_equal(totals[0], fresh_totals[0])
+                assert_array_equal(totals[1], fresh_totals[1])
+                # copied now: the buffers are reused by the next block (site_blocks' Warnings)
+                got.append((rows, {name: np.array(getattr(block, name)) for name in PER_INTERVAL + YEARLY},
+                            _flag_set(block.flags)))
+            assert len(got) == len(fresh)
+            for (rows, values, flags), (fresh_rows, part) in zip(got, fresh):
+                assert_array_equal(rows, fresh_rows)
+                for name in PER_INTERVAL + YEARLY:
+                    assert_array_equal(values[name], getattr(part, name), err_msg=f"{site_id} {name}")
+                assert flags == _flag_set(part.flags)
+
+    def test_every_element_of_a_reused_buffer_is_written(self, case, index, monkeypatch):
+        # the buffers are not cleared between blocks (d6bf2dd: "every element each block writes"); filled
+        # with NaN before every block, any element left unwritten would show
+        real = operation._BlockBuffers.views
+
+        def poisoned(self, n_options, n_assets, n_steps):
+            p, q = real(self, n_options, n_assets, n_steps)
+            p.fill(np.nan)
+            q.fill(np.nan)
+            return p, q
+
+        monkeypatch.setattr(operation._BlockBuffers, "views", poisoned)
+        sub = site_case(case, "S1")
+        fresh, _ = _fresh_site(sub, index, 3)
+        for (rows, block, _), (_, part) in zip(site_blocks(sub, index, 3), fresh):
+            for name in PER_INTERVAL + YEARLY:
+                assert_array_equal(getattr(block, name), getattr(part, name), err_msg=name)
+
+    def test_several_blocks_equal_one_block(self, case, index):
+        # one-block run against blocks of 2 (its today's totals, first pass and buffers): the same bits for
+        # every option except new induction motors, whose speed-coupling solver stops on a batch-wide
+        # tolerance (operate_site, Notes); they agree to that tolerance
+        for site_id, _ in site_partition(case):
+            sub = site_case(case, site_id)
+            one = operate_site(sub, index)
+            many = operate_site(sub, index, chunk_assets=2)
+            batch = one.technologies == "induction"
+            assert batch.any() and (~batch).sum() >= 8
+            for name in PER_INTERVAL:
+                a, b = getattr(one, name), getattr(many, name)
+                assert_array_equal(a[~batch], b[~batch], err_msg=name)
+                assert_allclose(a[batch], b[batch], rtol=BATCH_RTOL, atol=BATCH_ATOL, err_msg=name)
+            for name in ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm"):
+                a, b = getattr(one, name), getattr(many, name)
+                assert_array_equal(a[:, ~batch], b[:, ~batch], err_msg=name)
+                assert_allclose(a[:, batch], b[:, batch], rtol=BATCH_RTOL, atol=BATCH_ATOL, err_msg=name)
+            for name in ("running_h", "capacitor_q_kvar", "applies", "interval_data"):
+                assert_array_equal(getattr(one, name), getattr(many, name), err_msg=name)
+            # the same flags; a one-block run lists them in the order found, a merged run by asset
+            assert _flag_set(one.flags) == _flag_set(many.flags)
+
+    def test_a_kept_block_array_is_overwritten_by_the_next_block(self, case, index):
+        # what site_blocks' Warnings say, so that a new caller cannot miss it: the per-interval arrays of
+        # a yielded block are the site's buffers; the yearly fields are the block's own
+        sub = site_case(case, "S1")
+        blocks = site_blocks(sub, index, chunk_assets=3)
+        _, first, _ = next(blocks)
+        kept_p, kept_energy = first.p_kw, first.energy_kwh
+        p_then, energy_then = kept_p.copy(), kept_energy.copy()
+        _, second, _ = next(blocks)
+        assert np.shares_memory(kept_p, second.p_kw)
+        assert not np.array_equal(kept_p, p_then)
+        assert_array_equal(kept_energy, energy_then)
+        blocks.close()
+
+    @pytest.mark.parametrize("today_only", [False, True])
+    def test_site_physics_copies_or_prices_each_block_in_time(self, case, index, today_only):
+        # the caller of site_blocks in the physics: its merged arrays and savings equal those of fresh
+        # blocks priced all at once (site_savings on the assembled arrays; bill blocks are exact)
+        for site_id, _ in site_partition(case):
+            sub = site_case(case, site_id)
+            op, part = scenario.site_physics(sub, index, 35.0, chunk_assets=2, today_only=today_only)
+            fresh, _ = _fresh_site(sub, index, 2)
+            p, q = _assembled(fresh, "p_kw"), _assembled(fresh, "q_kvar")
+            if today_only:
+                assert op.p_kw.shape == (1,) + p.shape[1:]
+                assert_array_equal(op.p_kw[0], p[0])
+                assert_array_equal(op.q_kvar[0], q[0])
+            else:
+                assert_array_equal(op.p_kw, p)
+                assert_array_equal(op.q_kvar, q)
+            for name in YEARLY:
+                assert_array_equal(getattr(op, name), _assembled(fresh, name), err_msg=name)
+            setup = site_setups(sub, index)[site_id]
+            applies = _assembled(fresh, "applies")
+            expected = site_savings(setup, index, op.interval_h, p, q, applies, op.technologies, 35.0)
+            for name, values in expected.items():
+                assert np.array_equal(part[name], values, equal_nan=True), f"{site_id} {name}"
+
+    def test_scenario_blocks_of_one_give_the_same_savings(self, case, index):
+        # SiteSavings' blocks of SCENARIO_BLOCK_ELEMENTS (14 asset-options of an hourly year here) against
+        # every asset-option billed alone; site S1 has a stepped bank, so the in-place controller runs on
+        # blocks of scenarios
+        sub = site_case(case, "S1")
+        fresh, _ = _fresh_site(sub, index, 2)
+        p, q, applies = _assembled(fresh, "p_kw"), _assembled(fresh, "q_kvar"), _assembled(fresh, "applies")
+        setup = site_setups(sub, index)["S1"]
+        technologies = fresh[0][1].technologies
+        default = site_savings(setup, index, 1.0, p, q, applies, technologies, 35.0)
+        alone = site_savings(setup, index, 1.0, p, q, applies, technologies, 35.0, block_scenarios=1)
+        assert int(applies[:, 1:].sum()) > 14  # more changed pairs than one default block
+        for name in default:
+            assert np.array_equal(default[name], alone[name], equal_nan=True), name
+
+
+# --------------------------------------------------------------------------------------------------
+# 3. The compact interval store
+# --------------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def dense(case):
+    return scenario.physics(case, 35.0, chunk_assets=2, dense=True)
+
+
+@pytest.fixture(scope="module")
+def compact(case):
+    return scenario.physics(case, 35.0, chunk_assets=2, dense=False)
+
+
+def _plan_choice(op) -> np.ndarray:
+    """Several options across the fleet: each asset's applicable options in turn, today's for every fourth."""
+    choice = np.zeros(len(op.asset_ids), dtype=int)
+    for j in range(len(choice)):
+        usable = np.flatnonzero(op.applies[j, 1:]) + 1
+        choice[j] = 0 if j % 4 == 3 else usable[j % len(usable)]
+    return choice
+
+
+class TestCompactStore:
+    def test_the_plan_choice_mixes_options(self, dense):
+        choice = _plan_choice(dense.operation)
+        assert len(set(choice.tolist()) - {0}) >= 4 and (choice == 0).any()
+
+    @pytest.mark.parametrize("plan", [False, True])
+    def test_site_meters_and_bills_equal_the_dense_ones(self, case, dense, compact, plan):
+        d, c = dense.operation, compact.operation
+        assert isinstance(c.p_kw, operation.SiteIntervalStore) and isinstance(d.p_kw, np.ndarray)
+        choice = _plan_choice(d) if plan else np.zeros(len(d.asset_ids), dtype=int)
+        meters_d, bills_d = meter_and_bills(case, d, choice)
+        meters_c, bills_c = meter_and_bills(case, c, choice)
+        for site_id, meter in meters_d.items():
+            assert_array_equal(meters_c[site_id].p_kw, meter.p_kw, err_msg=site_id)
+            assert_array_equal(meters_c[site_id].q_kvar, meter.q_kvar, err_msg=site_id)
+        pd.testing.assert_frame_equal(bills_c, bills_d, check_exact=True)
+
+    def test_rows_of_the_store_equal_the_dense_rows(self, dense, compact):
+        d, c = dense.operation, compact.operation
+        choice, rows = _plan_choice(d), np.arange(len(d.asset_ids))
+        for name in PER_INTERVAL:
+            assert_array_equal(getattr(c, name)[choice, rows], getattr(d, name)[choice, rows], err_msg=name)
+        # a kVAr request for the same assets under other options, right after a kW request, is not served
+        # from the kept request (same rows per site and block, different options)
+        other = choice.copy()
+        for j in np.flatnonzero(choice > 0):
+            usable = np.flatnonzero(d.applies[j, 1:]) + 1
+            other[j] = usable[(np.flatnonzero(usable == choice[j])[0] + 1) % len(usable)]
+        assert (other != choice).sum() == (choice > 0).sum()
+        for site_id in np.unique(d.site_ids):  # one site at a time, as a site meter asks
+            m = np.flatnonzero(d.site_ids == site_id)
+            assert_array_equal(c.p_kw[choice[m], m], d.p_kw[choice[m], m])
+            assert_array_equal(c.q_kvar[other[m], m], d.q_kvar[other[m], m])
+            assert_array_equal(c.p_kw[other[m], m], d.p_kw[other[m], m])
+            assert_array_equal(c.q_kvar[choice[m], m], d.q_kvar[choice[m], m])
+
+    def test_kvar_rows_come_from_the_kw_recomputation(self, case, compact, monkeypatch):
+        # d64e027: a site meter asks for the kW of the chosen options, then their kVAr; each block holding a
+        # chosen asset runs once. Hand count from the block layout: blocks of 2 assets in site order.
+        op = compact.operation
+        choice = _plan_choice(op)
+        op.p_kw._recompute._cached = None
+        op.p_kw._recompute._request = None
+        expected = 0
+        for _, rows in site_partition(case):
+            blocks = asset_blocks(len(rows), len(op.index), 2)
+            expected += sum(bool((choice[rows[b]] > 0).any()) for b in blocks)
+        calls = []
+        real = operation._operate_block
+
+        def spy(*args, **kwargs):
+            calls.append(kwargs.get("wanted"))
+            return real(*args, **kwargs)
+
+        monkeypatch.setattr(operation, "_operate_block", spy)
+        meter_and_bills(case, op, choice)
+        assert expected >= 4 and len(calls) == expected
+
+
+# --------------------------------------------------------------------------------------------------
+# 4. Stepped-bank controller evaluated in place
+# --------------------------------------------------------------------------------------------------
+
+# Switching tolerance of the rule in units of one step (models/site.py, _STEP_TOLERANCE, documented there).
+STEP_TOLERANCE = 1e-9
+
+
+def _reference_bank(p_kw, q_kvar, rated_q_kvar, step_kvar, target_power_factor) -> np.ndarray:
+    """stepped_bank_q_kvar's documented rule, interval by interval in plain Python:
+    Q_t = |P| tan(acos PF_target); k_reach = ceil((Q - Q_t)/step); k_lead = floor(Q/step);
+    k = clip(min(k_reach, k_lead), 0, floor(rated/step)); output -k * step."""
+    tan_target = math.sqrt(1.0 - target_power_factor * target_power_factor) / target_power_factor
+    n_max = math.floor(rated_q_kvar / step_kvar + STEP_TOLERANCE)
+    p_b, q_b = np.broadcast_arrays(np.asarray(p_kw, dtype=float), np.asarray(q_kvar, dtype=float))
+    out = np.empty(p_b.shape)
+    for pos in np.ndindex(p_b.shape):
+        p, q = float(p_b[pos]), float(q_b[pos])
+        k_reach = math.ceil((q - abs(p) * tan_target) / step_kvar - STEP_TOLERANCE)
+        k_lead = math.floor(q / step_kvar + STEP_TOLERANCE)
+        k = min(max(min(k_reach, k_lead), 0), n_max)
+        out[pos] = -k * step_kvar
+    return out
+
+
+def _read_only(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=float)
+    a.flags.writeable = False  # any write into an input raises
+    return a
+
+
+class TestSteppedBankInPlace:
+    @pytest.mark.parametrize("shape_p, shape_q", [((500,), (500,)), ((6, 200), (6, 200)), ((200,), (6, 200)),
+                                                  ((1, 200), (6, 200)), ((6, 200), (200,))])
+    def test_equals_the_rule_step_by_step(self, shape_p, shape_q):
+        rng = np.random.default_rng(2024)
+        p = _read_only(rng.uniform(-200.0, 1500.0, shape_p))
+        q = _read_only(rng.uniform(-400.0, 1200.0, shape_q))
+        p_before, q_before = p.copy(), q.copy()
+        got = stepped_bank_q_kvar(p, q, 425.0, 25.0, 0.95)
+        assert got.shape == np.broadcast_shapes(shape_p, shape_q)
+        assert_array_equal(got, _reference_bank(p, q, 425.0, 25.0, 0.95))  # whole steps: exact
+        assert_array_equal(p, p_before)
+        assert_array_equal(q, q_before)
+        assert (got < 0).any() and (got == 0).any() and (got == -425.0).any()  # every branch of the rule
+
+    def test_boundaries_of_the_rule_by_hand(self):
+        # hand calculation at PF target 1 (Q_t = 0), 100 kVAr steps, 500 kVAr bank (k_reach = ceil(Q/100),
+        # k_lead = floor(Q/100), each with the 1e-9-step tolerance):
+        # Q = 300 -> reach 3, lead 3 -> 300 kVAr;
+        # Q = 299.99999999999 (1e-13 step short, within the tolerance) -> lead 3 -> 300 kVAr;
+        # Q = 299.9999 (1e-6 step short, outside it) -> reach 3, lead 2 -> 200 kVAr;
+        # Q = 250 -> reach 3, lead 2 -> 200; Q = 0 -> 0; Q = -80 (leading) -> 0; Q = 900 -> 5 (the whole bank)
+        q = _read_only([300.0, 299.99999999999, 299.9999, 250.0, 0.0, -80.0, 900.0])
+        p = _read_only(np.full(7, 400.0))
+        assert_array_equal(stepped_bank_q_kvar(p, q, 500.0, 100.0, 1.0),
+                           [-300.0, -300.0, -200.0, -200.0, 0.0, 0.0, -500.0])
+
+    def test_series_in_series_out_and_scalar_in_scalar_out(self):
+        idx = pd.date_range("2025-01-06", periods=3, freq="h", tz="UTC")
+        p, q = pd.Series([400.0, 400.0, 0.0], index=idx), pd.Series([300.0, 50.0, 0.0], index=idx)
+        out = stepped_bank_q_kvar(p, q, 250.0, 50.0, 0.95)
+        assert isinstance(out, pd.Series) and out.index.equals(idx)
+        assert_array_equal(out.to_numpy(), _reference_bank(p.to_numpy(), q.to_numpy(), 250.0, 50.0, 0.95))
+        assert isinstance(stepped_bank_q_kvar(400.0, 300.0, 250.0, 50.0, 0.95), float)
+
+    @settings(max_examples=150, deadline=None)
+    @given(p=st.floats(-2000.0, 2000.0), q=st.floats(-2000.0, 2000.0), rated=st.floats(0.0, 1000.0),
+           step=st.floats(0.5, 200.0), target=st.floats(0.5, 1.0))
+    def test_equals_the_rule_for_any_interval(self, p, q, rated, step, target):
+        got = stepped_bank_q_kvar(np.array([p]), np.array([q]), rated, step, target)
+        assert_array_equal(got, _reference_bank([p], [q], rated, step, target))
+
+
+# --------------------------------------------------------------------------------------------------
+# 5. Changed asset-options found with one comparison per element
+# --------------------------------------------------------------------------------------------------
+
+
+def _reference_pairs(p_site, q_site, applies) -> list[tuple[int, int]]:
+    """(asset, option) where the option applies and the largest |difference| from today's is above 0."""
+    out = []
+    for j in range(p_site.shape[1]):
+        for o in range(1, p_site.shape[0]):
+            if applies[j, o] and (np.abs(p_site[o, j] - p_site[0, j]).max() > 0
+                                  or np.abs(q_site[o, j] - q_site[0, j]).max() > 0):
+                out.append((j, o))
+    return out
+
+
+# A flat kWh price and every lagging kVArh charged per interval (invented): hand-checkable savings.
+FLAT_REACTIVE = '''
+[tariff]
+name = "flat with kVArh (invented)"
+currency = "EUR"
+time_zone = "UTC"
+[[periods]]
+code = "all"
+[energy]
+price_per_kwh = { all = 0.10 }
+[[reactive]]
+name = "kvarh"
+price_per_kvarh = 0.01
+free_kvarh_per_kwh = 0.0
+allowance_per = "interval"
+'''
+
+
+class TestChangedPairs:
+    N_ASSETS, N_STEPS = 5, 48
+
+    def arrays(self):
+        """Today's: every asset 100 kW, 50 kVAr. Option 1 = today's (a capacitor that changes nothing);
+        option 2: asset 3 draws 10 kW less at interval 17; option 3: asset 1 draws 5 kVAr less at
+        interval 0 (a capacitor, applying to assets 0, 1, 4 only); option 4 differs for asset 2, where it
+        does not apply."""
+        n_o = 5
+        p = np.full((n_o, self.N_ASSETS, self.N_STEPS), 100.0)
+        q = np.full((n_o, self.N_ASSETS, self.N_STEPS), 50.0)
+        p[2, 3, 17] -= 10.0
+        q[3, 1, 0] -= 5.0
+        p[4, 2, :] = 80.0
+        applies = np.ones((self.N_ASSETS, n_o), dtype=bool)
+        applies[[2, 3], 3] = False
+        applies[2, 4] = False
+        technologies = np.array(["existing", "capacitor", "induction", "capacitor", "induction"])
+        return p, q, applies, technologies
+
+    def test_pairs_by_hand_and_by_plain_numpy(self):
+        p, q, applies, _ = self.arrays()
+        js, os_ = _changed_pairs(p, q, applies)
+        assert list(zip(js.tolist(), os_.tolist())) == [(1, 3), (3, 2)]  # hand: see arrays()
+        assert list(zip(js.tolist(), os_.tolist())) == _reference_pairs(p, q, applies)
+
+    def test_one_ulp_in_one_interval_is_a_change(self):
+        p, q, applies, _ = self.arrays()
+        q[1, 4, 33] = np.nextafter(q[1, 4, 33], np.inf)
+        js, os_ = _changed_pairs(p, q, applies)
+        assert (4, 1) in set(zip(js.tolist(), os_.tolist()))
+
+    def test_a_nan_difference_counts_as_unchanged(self):
+        # the documented rule of the non-finite path: NaN compares false, as in max|difference| > 0
+        p, q, applies, _ = self.arrays()
+        p[1, 0, 5] = np.nan
+        js, os_ = _changed_pairs(p, q, applies)
+        assert list(zip(js.tolist(), os_.tolist())) == [(1, 3), (3, 2)] == _reference_pairs(p, q, applies)
+
+    def test_random_arrays_agree_with_plain_numpy(self):
+        rng = np.random.default_rng(8)
+        n_o, n_a, n_t = 6, 9, 30
+        p = np.broadcast_to(rng.uniform(0, 100, (1, n_a, n_t)), (n_o, n_a, n_t)).copy()
+        q = np.broadcast_to(rng.uniform(-20, 60, (1, n_a, n_t)), (n_o, n_a, n_t)).copy()
+        for _ in range(12):  # single-interval changes in random rows
+            o, j, t = rng.integers(1, n_o), rng.integers(n_a), rng.integers(n_t)
+            (p if rng.random() < 0.5 else q)[o, j, t] += rng.choice([-1.0, 1e-9, 3.0])
+        applies = rng.random((n_a, n_o)) < 0.7
+        applies[:, 2] = True  # one option on every asset (the whole-slice path)
+        js, os_ = _changed_pairs(p, q, applies)
+        assert list(zip(js.tolist(), os_.tolist())) == _reference_pairs(p, q, applies)
+
+    def test_savings_of_unchanged_and_single_interval_options(self):
+        p, q, applies, technologies = self.arrays()
+        index = pd.date_range("2025-01-06", periods=self.N_STEPS, freq="h", tz="UTC")
+        setup = SiteSetup("S", _tariff(FLAT_REACTIVE), Site(), None)
+        out = site_savings(setup, index, 1.0, p, q, applies, technologies, 35.0)
+        saving = out["saving"].sum(axis=-1)
+        # unchanged (option 1 everywhere): exactly zero and never priced, so no equivalent bank either
+        assert np.array_equal(saving[:, 1], np.zeros(self.N_ASSETS))
+        assert np.isnan(out["equivalent_bank_q_kvar"][:, 1]).all()
+        # hand calculation: 10 kW less for one hour = 10 kWh x 0.10 = 1.00 EUR (the kVArh stay)
+        assert_allclose(saving[3, 2], 1.0, rtol=1e-12)
+        # hand calculation: 5 kVAr less for one hour, every kVArh charged = 5 x 0.01 = 0.05 EUR, all reactive
+        assert_allclose([saving[1, 3], out["reactive_saving"][1, 3]], [0.05, 0.05], rtol=1e-9)
+        assert np.isfinite(out["equivalent_bank_q_kvar"][1, 3])  # priced, so compared with a bank
+        # option 4 differs only where it does not apply: nothing priced
+        assert np.array_equal(saving[:, 4], np.zeros(self.N_ASSETS))
+        others = np.ones_like(saving, dtype=bool)
+        others[3, 2] = others[1, 3] = False
+        assert np.array_equal(saving[others], np.zeros(others.sum()))
