@@ -515,6 +515,30 @@ class TestReusedBlockBuffers:
             for name, values in expected.items():
                 assert np.array_equal(part[name], values, equal_nan=True), f"{site_id} {name}"
 
+    @pytest.mark.parametrize("sites, chunk_assets", [(("S1", "S2"), 2), (("S1", "S2"), None), (("S1",), 3),
+                                                     (("S1",), None)])
+    def test_fleet_physics_takes_each_block_before_the_next(self, case, index, sites, chunk_assets):
+        # the local engine's path (site_physics writing into the fleet's gatherer, 1552b9a): each block goes
+        # straight into the fleet's arrays before the buffers are reused; a one-site case of one block is
+        # adopted as it is. Against fresh blocks priced all at once.
+        fleet = case if len(sites) == 2 else site_case(case, sites[0])
+        phys = scenario.physics(fleet, 35.0, chunk_assets=chunk_assets, dense=True)
+        op = phys.operation
+        for site_id, rows in site_partition(fleet):
+            sub = site_case(fleet, site_id)
+            fresh, _ = _fresh_site(sub, index, chunk_assets)
+            p, q = _assembled(fresh, "p_kw"), _assembled(fresh, "q_kvar")
+            assert_array_equal(op.p_kw[:, rows], p, err_msg=site_id)
+            assert_array_equal(op.q_kvar[:, rows], q, err_msg=site_id)
+            for name in YEARLY:
+                assert_array_equal(getattr(op, name)[rows], _assembled(fresh, name), err_msg=name)
+            setup = site_setups(sub, index)[site_id]
+            expected = site_savings(setup, index, op.interval_h, p, q, _assembled(fresh, "applies"), op.technologies, 35.0)
+            assert np.array_equal(phys.savings.saving[rows], expected["saving"]), site_id
+            assert np.array_equal(phys.savings.reactive_saving[rows], expected["reactive_saving"]), site_id
+            assert np.array_equal(phys.savings.equivalent_bank_q_kvar[rows], expected["equivalent_bank_q_kvar"],
+                                  equal_nan=True), site_id
+
     def test_scenario_blocks_of_one_give_the_same_savings(self, case, index):
         # SiteSavings' blocks of SCENARIO_BLOCK_ELEMENTS (14 asset-options of an hourly year here) against
         # every asset-option billed alone; site S1 has a stepped bank, so the in-place controller runs on
