@@ -15,17 +15,17 @@ from dataclasses import dataclass
 from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, options_with_baseline, case_index, interval_bytes,
                               site_partition)
 
-#: Machines stage per asset-option-step [s]: 133.3 s for 10,000 assets x 11 options x 8,760 steps
-#: (bench_fleet, local engine, 2026-12-01, load average 1.2 on the 2-core reference machine).
-MACHINES_S_PER_ELEMENT = 133.3 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s]: 51.6 s for the same fleet and run.
-SITE_BILLS_S_PER_ELEMENT = 51.6 / (10_000 * 11 * 8760)
-#: Finance, end of life, Monte Carlo and monthly bills per asset [s]: 25.0 s per 10,000 assets, same run.
-ECONOMICS_S_PER_ASSET = 25.0 / 10_000
+#: Machines stage per asset-option-step [s]: 58.8 s for 10,000 assets x 11 options x 8,760 steps
+#: (bench_fleet, local engine, 2026-12-01, load average 1.6 on the 2-core reference machine).
+MACHINES_S_PER_ELEMENT = 58.8 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s]: 19.1 s for the same fleet and run.
+SITE_BILLS_S_PER_ELEMENT = 19.1 / (10_000 * 11 * 8760)
+#: Finance, end of life, Monte Carlo and monthly bills per asset [s]: 10.8 s per 10,000 assets, same run.
+ECONOMICS_S_PER_ASSET = 10.8 / 10_000
 #: Exact fleet plan [s]: 3.4 s for 1,000 assets (same benchmark); at 10,000 assets the solver stops at
-#: its 60 s limit (models.plan.plan_exact), 60.6 s in all, so the estimate is capped there.
+#: its 60 s limit (models.plan.plan_exact), 63.4 s in all, so the estimate is capped there.
 PLAN_S_PER_ASSET = 3.4 / 1000
-PLAN_MAX_S = 61.0
+PLAN_MAX_S = 63.0
 #: Reading and validating a case per asset [s]: 1.6 s per 10,000 assets (Parquet profiles), same run.
 LOAD_S_PER_ASSET = 1.6 / 10_000
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
