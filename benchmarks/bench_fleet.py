@@ -99,8 +99,11 @@ def bandwidth_floor_s(n_assets: int, n_steps: int, repeats: int = 5) -> float:
     return best
 
 
-def child(case_dir: str, engine: str) -> dict:
-    """Run one case in this process; return stage times [s], peaks [bytes] and sizes."""
+def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None) -> dict:
+    """Run one case in this process; return stage times [s], peaks [bytes] and sizes.
+
+    ``plan_gap_pct`` and ``plan_seconds`` bound the exact plan as ``drivecase run --plan-gap --plan-seconds``
+    do (default: the full run's settings)."""
     sampler = PeakSampler().start()
     times: dict[str, float] = {}
     sampler.mark("load")
@@ -123,15 +126,20 @@ def child(case_dir: str, engine: str) -> dict:
         state["stage"], state["t"] = ECONOMICS_STAGES.get(name, "physics"), now
         sampler.mark(state["stage"])
 
+    settings = scenario.PRECISE_PLAN
+    if plan_gap_pct is not None:
+        settings = scenario.PlanSettings(time_limit_s=settings.time_limit_s, gap_frac=plan_gap_pct / 100.0)
+    if plan_seconds is not None:
+        settings = scenario.PlanSettings(time_limit_s=plan_seconds, gap_frac=settings.gap_frac)
     t_run = time.perf_counter()
     if engine == "dask":
         from models.distributed import run_distributed
 
-        result = run_distributed(case, case.finance, progress=progress)
+        result = run_distributed(case, case.finance, progress=progress, plan_settings=settings)
     else:
         timer: dict[str, float] = {}
         phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar), progress, timer=timer)
-        result = scenario.economics(case, phys, case.finance, progress)
+        result = scenario.economics(case, phys, case.finance, progress, plan_settings=settings)
         times.pop("physics", None)
         times["machines"], times["site bills"] = timer["machines"], timer["site bills"]
     progress("end")
@@ -147,7 +155,8 @@ def child(case_dir: str, engine: str) -> dict:
     times = {k: times[k] for k in sorted(times, key=lambda k: order.index(k) if k in order else len(order))}
     return {"load_average_1min": os.getloadavg()[0],"engine": engine, "n_assets": n_assets, "n_options": n_options, "n_steps": n_steps, "times_s": times,
             "peak_bytes": peaks, "overall_peak_bytes": max(peaks.values()), "floor_s": floor,
-            "n_results": len(result.results)}
+            "n_results": len(result.results), "plan_status": result.plan_status.get("message", ""),
+            "plan_gap_pct": 100.0 * settings.gap_frac, "plan_seconds": settings.time_limit_s}
 
 
 def monte_carlo_demo() -> dict:
@@ -178,8 +187,10 @@ def machine() -> dict:
             "numpy": np.__version__, "pandas": pandas.__version__}
 
 
-def run_child(case_dir: Path, engine: str) -> dict:
-    out = subprocess.run([sys.executable, __file__, "--child", str(case_dir), "--engine", engine], check=True,
+def run_child(case_dir: Path, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None) -> dict:
+    extra = ([] if plan_gap_pct is None else ["--plan-gap", str(plan_gap_pct)]) + \
+            ([] if plan_seconds is None else ["--plan-seconds", str(plan_seconds)])
+    out = subprocess.run([sys.executable, __file__, "--child", str(case_dir), "--engine", engine, *extra], check=True,
                          capture_output=True, text=True)
     return json.loads(out.stdout.strip().splitlines()[-1])
 
@@ -204,7 +215,9 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
         ratio = f"{machines / r['floor_s']:,.0f}x" if machines else "n/a (dask: not separated)"
         lines += ["", f"Load average at the end of the run: {r['load_average_1min']:.1f} (other work shared the 2 cores). "
                   f"Overall peak {mb(r['overall_peak_bytes'])} MiB. Bandwidth floor (one numpy pass over the "
-                  f"{r['n_assets']:,} x {r['n_steps']:,} load array): {1000 * r['floor_s']:.1f} ms; machines stage / floor: {ratio}.", ""]
+                  f"{r['n_assets']:,} x {r['n_steps']:,} load array): {1000 * r['floor_s']:.1f} ms; machines stage / floor: {ratio}."
+                  + (f" Exact plan asked to {r['plan_gap_pct']:g} % or {r['plan_seconds']:g} s: {r['plan_status']}."
+                     if r.get("plan_status") else ""), ""]
     if mc:
         lines += [f"Monte Carlo on the demo case ({mc['draws']:,} draws): {mc['risk_s']:.2f} s.", ""]
     return "\n".join(lines) + "\n"
@@ -228,12 +241,16 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--engines", nargs="+", default=["local"], choices=("local", "dask"))
     parser.add_argument("--doc", default=str(ROOT / "docs" / "performance.md"), help="document to update")
     parser.add_argument("--no-write", action="store_true", help="print only; leave docs/performance.md alone")
+    parser.add_argument("--plan-gap", type=float, metavar="PCT",
+                        help="prove the exact plan within this %% only (as drivecase run --plan-gap; default 0.01)")
+    parser.add_argument("--plan-seconds", type=float, metavar="S",
+                        help="time limit of the exact plan (as drivecase run --plan-seconds; default 60)")
     parser.add_argument("--child", help=argparse.SUPPRESS)
     parser.add_argument("--engine", default="local", help=argparse.SUPPRESS)
     parser.add_argument("--mc-child", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
-        print(json.dumps(child(args.child, args.engine)))
+        print(json.dumps(child(args.child, args.engine, args.plan_gap, args.plan_seconds)))
         return
     if args.mc_child:
         print(json.dumps(monte_carlo_demo()))
@@ -245,7 +262,7 @@ def main(argv: list[str] | None = None) -> None:
         for n in args.assets:
             folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites)
             for engine in args.engines:
-                r = run_child(folder, engine)
+                r = run_child(folder, engine, args.plan_gap, args.plan_seconds)
                 print(json.dumps(r), flush=True)
                 runs.append(r)
     out = subprocess.run([sys.executable, __file__, "--mc-child"], check=True, capture_output=True, text=True)
