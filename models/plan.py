@@ -168,8 +168,10 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         A plan to start from, e.g. the plan of a neighbouring set of assumptions: project label -> plan
         start year. Labels that are not candidates, repeat an asset or fall outside the plan years are
         dropped, projects are dropped (lowest NPV per unit of capital first) until the budgets hold, and
-        budget left over is filled in profitability-index order. The better of it and the
-        profitability-index plan (:func:`plan_greedy`) is the solver's first plan. It changes how fast the solver proves its answer, never the gap it proves.
+        budget left over is filled in profitability-index order. The best of it, the
+        profitability-index plan (:func:`plan_greedy`) and the linear relaxation's whole projects
+        (filled the same way) is the solver's first plan. A start changes how fast the solver proves
+        its answer, never the gap it proves.
 
     Returns
     -------
