@@ -337,7 +337,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     year = _analysis_year(op)
     rated = a["rated_p_kw"].to_numpy(dtype=float)
 
-    sav = _at_price_levels(sav, float(assumptions.energy_price_factor), float(assumptions.capital_cost_factor))
+    sav = _at_price_levels(sav, float(assumptions.energy_price_factor), float(assumptions.capital_cost_factor),
+                           case.settings.currency)
     step("cash flows")
     capex = capital_cost(options, rated, op.capacitor_q_kvar)
     if assumptions.capital_cost_factor != 1.0:
@@ -521,20 +522,20 @@ def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str],
 # ---------------------------------------------------------------------------------------------------
 # Pieces
 # ---------------------------------------------------------------------------------------------------
-def _bill_lines_at_price_level(lines: pd.DataFrame, factor: float) -> pd.DataFrame:
+def _bill_lines_at_price_level(lines: pd.DataFrame, factor: float, currency: str) -> pd.DataFrame:
     """Bill lines with every charge multiplied by ``factor``: a charge's rate scales, except a tax's,
-    whose base (the quantity, in currency) scales instead; every amount scales."""
+    whose base (the quantity, in ``currency``) scales instead; every amount scales."""
     if factor == 1.0 or lines.empty:
         return lines
     out = lines.copy()
-    in_money = out["unit"].astype(str).str.len().eq(3) & out["unit"].astype(str).str.isupper()
+    in_money = (out["unit"].astype(str) == str(currency)).to_numpy()
     out["quantity"] = np.where(in_money, out["quantity"].to_numpy(dtype=float) * factor, out["quantity"].to_numpy(dtype=float))
     out["rate"] = np.where(in_money, out["rate"].to_numpy(dtype=float), out["rate"].to_numpy(dtype=float) * factor)
     out["amount"] = out["amount"].to_numpy(dtype=float) * factor
     return out
 
 
-def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: float) -> BillSavings:
+def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: float, currency: str) -> BillSavings:
     """Bill savings with every tariff charge multiplied by ``price_factor``.
 
     Bills are linear in the tariff's charges (each line is quantity x rate, taxes a share of other
@@ -545,7 +546,7 @@ def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: floa
         return sav
     return replace(sav, saving=sav.saving * price_factor, reactive_saving=sav.reactive_saving * price_factor,
                    equivalent_bank_cost=sav.equivalent_bank_cost * capital_factor,
-                   baseline_bills=_bill_lines_at_price_level(sav.baseline_bills, price_factor))
+                   baseline_bills=_bill_lines_at_price_level(sav.baseline_bills, price_factor, currency))
 
 
 def _options_in_order(case, op: OperatingResult) -> pd.DataFrame:
@@ -768,5 +769,5 @@ def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame, price_factor:
     setups = site_setups(case, op.index)
     choice = plan_choice(op, plan_frame)
     _, after = meter_and_bills(case, op, choice, setups)
-    after = _bill_lines_at_price_level(after, price_factor)
+    after = _bill_lines_at_price_level(after, price_factor, case.settings.currency)
     return pd.concat([base.assign(scenario="baseline"), after.assign(scenario="plan")], ignore_index=True)

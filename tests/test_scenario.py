@@ -214,3 +214,18 @@ def test_a_new_budget_from_a_previous_result_equals_a_fresh_run(demo_case):
     # any other change (here the discount rate) is computed afresh
     other = scenario.economics(demo_case, phys, replace(tight, discount_rate_frac=0.05), with_risk=False, previous=first)
     assert other.results is not first.results
+
+
+def test_price_level_keeps_each_bill_line_consistent(result, demo_case):
+    # Invariant: after scaling, each line still reads quantity x rate = amount, with a tax's base (its
+    # quantity, in the currency) scaled and its rate kept; the total is 1.3 x today's.
+    dear = scenario.economics(demo_case, result.physics, replace(demo_case.finance, energy_price_factor=1.3),
+                              with_risk=False)
+    lines = dear.bills[dear.bills["scenario"] == "baseline"]
+    base = result.bills[result.bills["scenario"] == "baseline"]
+    assert_allclose(lines["amount"].sum(), 1.3 * base["amount"].sum(), rtol=1e-12)
+    priced = lines[lines["unit"] != "month"]
+    assert_allclose(priced["quantity"] * priced["rate"], priced["amount"], rtol=1e-9, atol=1e-9)
+    taxes = lines["unit"] == demo_case.settings.currency
+    assert taxes.any()
+    assert_allclose(lines.loc[taxes, "rate"].to_numpy(), base.loc[base["unit"] == demo_case.settings.currency, "rate"].to_numpy())
