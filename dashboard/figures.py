@@ -459,9 +459,11 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
     p10, p50, p90 = np.percentile(draws, [10, 50, 90])
     fig = go.Figure(go.Histogram(x=draws, nbinsx=40, marker_color="#b9d3d8", name="draws",
                                  hovertemplate="%{x} " + currency + "<br>%{y} draws<extra></extra>"))
-    for value, name, dash_ in ((p10, "P10", "dot"), (p50, "P50", "solid"), (p90, "P90", "dot")):
+    # labels left of P10 and right of P50 and P90, so that close percentiles do not print over each other
+    for value, name, dash_, side in ((p10, "P10", "dot", "top left"), (p50, "P50", "solid", "top right"),
+                                     (p90, "P90", "dot", "top right")):
         fig.add_vline(x=value, line=dict(color=AFTER, width=2, dash=dash_),
-                      annotation_text=f"{name} {value:,.0f}", annotation_position="top")
+                      annotation_text=f"{name} {value:,.0f}", annotation_position=side)
     if draws.min() < 0 < draws.max():
         fig.add_vline(x=0, line=dict(color=INK, width=1))
     share = float((draws > 0).mean())
