@@ -237,6 +237,7 @@ def form(discount=8.0, escalation=1.0, horizon=15, price=100.0, capital=100.0,
 
 class TestSaveCallback:
     def test_a_typed_value_not_yet_applied_is_saved(self, engine, case_dir):
+        assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 4  # the page mounting is no click
         session_out, edits_out, status, download = inputs.save(1, *form(discount=6.0))
         assert status.startswith("Saved 1 value(s) into finance.toml (discount_rate_frac 0.08 -> 0.06)")
         assert "previous version is kept as .versions/finance-" in status

@@ -183,8 +183,10 @@ SAVE_FORM = [State(DISCOUNT, "value"), State(ESCALATION, "value"), State(HORIZON
 @callback(Output(ui.SESSION_STORE, "data", allow_duplicate=True), Output(ui.EDITS_STORE, "data", allow_duplicate=True),
           Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"),
           Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, prevent_initial_call=True)
-def save(_clicks, *form):
+def save(clicks, *form):
     """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept."""
+    if not clicks:  # the page opening is not a click (the renderer can fire this once as the page mounts)
+        return no_update, no_update, no_update, no_update
     edits, problem = edit(*form)
     if problem:
         return no_update, no_update, f"Not saved: {problem}", no_update

@@ -68,6 +68,9 @@ def test_page_loads_without_console_errors(tab, artifacts, path, ready, name):
     assert page.locator("#app-cautions").inner_text().count("\n") >= 4  # the cautions on every page
     assert "qualified persons" in page.locator("#app-cautions").inner_text()
     page.screenshot(path=artifacts / f"page_{name}.png", full_page=True)
+    for status in ("#inputs-save-status", "#plan-pack-status"):  # opening a page is not a click on its buttons
+        if page.locator(status).count():
+            assert page.locator(status).inner_text().strip() == ""
     assert tab.errors == []
 
 
