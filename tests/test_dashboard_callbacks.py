@@ -123,3 +123,10 @@ def test_shell(engine):
     assert "discount 8 %" in label[2].children
     classes = shell.highlight_navigation("/plan", [{"path": "/"}, {"path": "/plan"}])
     assert classes == ["nav-link", "nav-link active"]
+
+
+def test_prove_runs_only_on_a_click(engine):
+    assert plan.prove(None, None, None) is no_update  # the page mounting is not a click
+    assert plan.prove(1, None, None) == 1
+    proved = services.view(None, None).result()
+    assert proved.plan_status["settings"] == services.scenario.PRECISE_PLAN  # the proved result now serves the page

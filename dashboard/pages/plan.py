@@ -124,6 +124,8 @@ def update(_ready, session, edits, _proved=None):
           State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
 def prove(clicks, session, edits):
     """Solve the tab's plan to the full-run precision; the page then shows the proved plan."""
+    if not clicks:  # the page mounting is not a click
+        return no_update
     services.view(session, edits).result(precise=True)
     return clicks
 
