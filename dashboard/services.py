@@ -388,8 +388,8 @@ class Engine:
         at least as rich serves any ask: with risk serves without, precise serves live.
         """
         with self._lock:
-            for risk_ok in ((True,) if with_risk else (True, False)):
-                for precise_ok in ((True,) if precise else (True, False)):
+            for precise_ok in ((True,) if precise else (True, False)):  # a proved plan first
+                for risk_ok in ((True,) if with_risk else (True, False)):
                     found = self._results.get((key, assumptions, risk_ok, precise_ok))
                     if found is not None:
                         self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
