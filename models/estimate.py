@@ -12,8 +12,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, options_with_baseline, case_index, interval_bytes,
-                              site_partition)
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, options_with_baseline,
+                              case_index, interval_bytes, site_partition)
 
 #: Machines stage per asset-option-step [s]: 58.8 s for 10,000 assets x 11 options x 8,760 steps
 #: (bench_fleet, local engine, 2026-12-01, load average 1.6 on the 2-core reference machine).
@@ -40,6 +40,9 @@ BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
 #: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables
 #: (fitted to the economics peaks of the benchmark, docs/scale.md).
 ECONOMICS_BYTES_PER_PAIR = 12 * 1024
+#: Speed-up of the physics per extra site thread [-]: two threads ran the 1,000-asset fleet's physics
+#: 1.7x as fast as one (7.6-8.1 s against 13.0-14.0 s, same machine, load average 1.0).
+THREAD_GAIN = 0.7
 
 
 @dataclass(frozen=True)
@@ -61,7 +64,7 @@ class Estimate:
     note: str
 
 
-def estimate_run(case, workers: int = 1) -> Estimate:
+def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate:
     """Estimate the wall time and peak memory of a run from the size of the case.
 
     Parameters
@@ -71,6 +74,9 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     workers : int
         Dask workers the physics is spread over (1 = the local engine), >= 1. Sites run in parallel, so
         the physics time divides by at most the number of sites.
+    threads : int, optional
+        Sites worked at once by the local engine (default :data:`models.operation.PHYSICS_THREADS`;
+        ignored with Dask workers); each holds one site's blocks.
 
     Returns
     -------
@@ -78,12 +84,13 @@ def estimate_run(case, workers: int = 1) -> Estimate:
 
     Notes
     -----
-    t = t_fixed + n_a n_o n_t (c_machines + c_bills) / min(workers, n_sites) + n_a (c_load + c_economics)
-    + min(n_a c_plan, t_plan,max), with the constants of this module (measured by
-    ``benchmarks/bench_fleet.py``). Peak = base + per-interval store (every option when it fits
-    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the larger of the
-    physics (the largest site's today's power, one block's per-option arrays and temporaries) and the
-    economics (one site's meter arrays and the per-asset-option tables).
+    t = t_fixed + n_a n_o n_t (c_machines + c_bills) / s + n_a (c_load + c_economics)
+    + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) on Dask and 1 + g (k - 1) for k
+    local site threads (g = :data:`THREAD_GAIN`), and the constants of this module (measured by
+    ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
+    it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the larger of
+    the physics (per thread: the largest site's today's power, one block's per-option arrays and
+    temporaries) and the economics (one site's meter arrays and the per-asset-option tables).
     """
     if workers < 1:
         raise ValueError("workers must be >= 1")
@@ -93,14 +100,18 @@ def estimate_run(case, workers: int = 1) -> Estimate:
     sites = site_partition(case)
     largest = max((len(rows) for _, rows in sites), default=0)
     elements = n_a * n_o * n_t
-    parallel = max(1, min(int(workers), len(sites)))
+    if workers > 1:
+        parallel, at_once = float(min(int(workers), max(len(sites), 1))), 1
+    else:
+        at_once = max(1, min(int(threads or PHYSICS_THREADS), max(len(sites), 1)))
+        parallel = 1.0 + THREAD_GAIN * (at_once - 1)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
                + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + min(n_a * PLAN_S_PER_ASSET, PLAN_MAX_S))
     dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
     store = interval_bytes(n_a, n_o, n_t) if dense else interval_bytes(n_a, 1, n_t)
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-    physics_peak = (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
-                    + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
+    physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
+                              + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o
     peak = BASE_BYTES + store + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else

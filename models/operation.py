@@ -11,6 +11,7 @@ a duty table or annual hours are evaluated per load state and reach the meter as
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -575,6 +576,9 @@ CHUNK_ELEMENTS = 2**19
 #: motors are kept per interval and the other options are recomputed site by site when asked for
 #: (:class:`SiteIntervalStore`).
 DENSE_INTERVAL_BUDGET_BYTES = 2 * 2**30
+#: Sites worked at once by one process (:func:`models.scenario.physics`): one per core, at most two, as
+#: on the 2-core reference machine (each thread holds one site's blocks; common practice for a laptop).
+PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
 
 
 def case_index(case) -> pd.DatetimeIndex:

@@ -11,7 +11,9 @@ from __future__ import annotations
 import contextlib
 import os
 import sys
+import threading
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 from typing import Callable
 
@@ -21,8 +23,8 @@ import pandas as pd
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
-from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, OperatingResult, _Merger, _SiteRecompute, options_with_baseline,
-                              case_index, interval_bytes, site_blocks, site_case, site_partition)
+from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _Merger, _SiteRecompute,
+                              options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.regulations import class_rank, minimum_class
 
@@ -239,7 +241,8 @@ class PhysicsMerger:
 
 
 def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None, *,
-            chunk_assets: int | None = None, dense: bool | None = None, timer: dict | None = None) -> Physics:
+            chunk_assets: int | None = None, dense: bool | None = None, timer: dict | None = None,
+            threads: int | None = None) -> Physics:
     """Run the machines on every option and price each asset-option on its site's bill.
 
     Parameters
@@ -255,26 +258,72 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
     dense : bool, optional
         Keep every option's per-interval power (see :func:`models.operation.operate`).
     timer : dict, optional
-        Wall time of the machines and of the site bills is added under those names [s].
+        Wall time of the machines and of the site bills is added under those names [s]; with several
+        threads each stage's share of the physics' wall time.
+    threads : int, optional
+        Sites worked at once in this process (default :data:`PHYSICS_THREADS`, at most the number of
+        sites); the array work releases the interpreter lock, so two threads use two cores.
 
     Notes
     -----
     Site by site (:func:`site_physics`): a site's meter and tariff are independent of the others', so
-    memory holds one site's per-option arrays at a time, and the Dask engine
-    (:mod:`models.distributed`) runs the same function per site on its workers.
+    memory holds one site's per-option arrays per thread at a time, and the Dask engine
+    (:mod:`models.distributed`) runs the same function per site on its workers. Sites write disjoint
+    rows and are gathered in register order, so the result does not depend on the number of threads.
     """
     step = progress or (lambda _msg: None)
     step("machines")
     index = case_index(case)
     merger = PhysicsMerger(case, index, capacitor_cost_per_kvar, chunk_assets, dense)
-    for k, (site_id, _) in enumerate(merger.partition):
-        op, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, timer,
-                                not merger.ops.dense, into=(merger.ops, np.asarray(merger.rows[site_id])))
-        if k == 0:
-            step("site bills")
-        merger.add(site_id, op, part)
-        del op, part
+    n_threads = max(1, min(int(threads or PHYSICS_THREADS), len(merger.partition)))
+    gather = _LockedGather(merger.ops)
+    t0 = time.perf_counter()
+    stage_times: list[dict] = []
+
+    def one_site(site_id: str) -> dict:
+        site_timer: dict = {}
+        _, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, site_timer,
+                               not merger.ops.dense, into=(gather, np.asarray(merger.rows[site_id])))
+        stage_times.append(site_timer)
+        return part
+
+    if n_threads == 1:
+        for k, (site_id, _) in enumerate(merger.partition):
+            part = one_site(site_id)
+            if k == 0:
+                step("site bills")
+            merger.add(site_id, None, part)
+    else:
+        with ThreadPoolExecutor(max_workers=n_threads, thread_name_prefix="drivecase-site") as pool:
+            futures = [(site_id, pool.submit(one_site, site_id)) for site_id, _ in merger.partition]
+            for k, (site_id, future) in enumerate(futures):  # gathered in register order
+                part = future.result()
+                if k == 0:
+                    step("site bills")
+                merger.add(site_id, None, part)
+    if timer is not None:
+        _add_stage_times(timer, stage_times, time.perf_counter() - t0, n_threads)
     return merger.result()
+
+
+class _LockedGather:
+    """The fleet's gatherer shared by site threads: one block is added at a time."""
+
+    def __init__(self, merger):
+        self.merger, self.lock = merger, threading.Lock()
+
+    def add(self, rows, block) -> None:
+        with self.lock:
+            self.merger.add(rows, block)
+
+
+def _add_stage_times(timer: dict, stage_times: list[dict], wall_s: float, n_threads: int) -> None:
+    """Add each stage's time to ``timer``: as measured with one thread, else its share of the wall time."""
+    total = {name: sum(t.get(name, 0.0) for t in stage_times) for name in ("machines", "site bills")}
+    busy = sum(total.values())
+    for name, value in total.items():
+        share = value if n_threads == 1 or busy <= 0 else wall_s * value / busy
+        timer[name] = timer.get(name, 0.0) + share
 
 
 # ---------------------------------------------------------------------------------------------------
