@@ -202,7 +202,9 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
              f"{info['ram_gib']} GiB RAM, Python {info['python']}, numpy {info['numpy']}, pandas {info['pandas']}. "
              "Synthetic fleets of 20 sites (a tariff per site from `data/tariffs/`), every option of the default "
              "catalogue, one hourly year. Peak memory is the resident set of the process and its Dask workers; machines "
-             "and site bills run interleaved site by site and share one peak. Throughput in asset-option-steps per second.", ""]
+             "and site bills run interleaved site by site and share one peak. Throughput in asset-option-steps per second. "
+             "The local engine works two sites at once in threads (`models.operation.PHYSICS_THREADS`); the machines and "
+             "site-bills times are their shares of the physics' wall time.", ""]
     for r in runs:
         elems = r["n_assets"] * r["n_options"] * r["n_steps"]
         lines += [f"### {r['n_assets']:,} assets x {r['n_options']} options x {r['n_steps']:,} steps, {r['engine']} engine", "",
