@@ -686,22 +686,28 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve, status
 
 
+#: File descriptor 1 belongs to the whole process: one silenced solve at a time, or two threads could
+#: each save the other's /dev/null as "the" stdout and leave it silenced for good.
+_STDOUT_LOCK = threading.Lock()
+
+
 @contextlib.contextmanager
 def _quiet_native_stdout():
-    """Silence the solver library's own diagnostic lines (printed by native code to file descriptor 1)."""
-    try:
-        sys.stdout.flush()
-        saved = os.dup(1)
-    except (OSError, ValueError):  # no real stdout (e.g. captured): nothing to silence
-        yield
-        return
-    try:
-        with open(os.devnull, "wb") as null:
-            os.dup2(null.fileno(), 1)
+    """Silence the solver library's own lines (its banner, printed by native code to file descriptor 1)."""
+    with _STDOUT_LOCK:
+        try:
+            sys.stdout.flush()
+            saved = os.dup(1)
+        except (OSError, ValueError):  # no real stdout (e.g. captured): nothing to silence
             yield
-    finally:
-        os.dup2(saved, 1)
-        os.close(saved)
+            return
+        try:
+            with open(os.devnull, "wb") as null:
+                os.dup2(null.fileno(), 1)
+                yield
+        finally:
+            os.dup2(saved, 1)
+            os.close(saved)
 
 
 def _plan_frame(fleet_plan, results: pd.DataFrame) -> pd.DataFrame:
