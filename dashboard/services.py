@@ -1031,6 +1031,20 @@ def plan_solve_text(result) -> str:
                                       else ".")
 
 
+def plan_notice(result) -> str:
+    """A short warning for pages that show plan figures while the plan is a live one not yet proven to
+    the full run's gap; empty otherwise."""
+    status = getattr(result, "plan_status", None) or {}
+    settings, gap = status.get("settings"), status.get("gap_frac", float("nan"))
+    if settings is None or settings.time_limit_s >= scenario.PRECISE_PLAN.time_limit_s:
+        return ""
+    if status.get("status") != "time_limit" and not gap > scenario.PRECISE_PLAN.gap_frac:
+        return ""
+    within = f"within {gap * 100:.2g} %" if gap == gap else "without a bound"
+    return (f"The plan figures come from a plan solved for a live edit and proven {within} of the best possible; "
+            "prove it on the Capital plan page for the pack's precision.")
+
+
 def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
     labels = result.results.set_index(_plan_keys(result.results))["label"]

@@ -553,3 +553,19 @@ class TestPlanSolveText:
     def test_unknown_bound_and_failure(self):
         assert "no bound" in services.plan_solve_text(self.result("optimal", float("nan"), scenario.PRECISE_PLAN))
         assert "rank-order plan stands" in services.plan_solve_text(self.result("failed", float("nan"), None))
+
+
+class TestPlanNotice:
+    @staticmethod
+    def result(status, gap, settings):
+        return types.SimpleNamespace(plan_status={"status": status, "message": "m", "gap_frac": gap, "settings": settings})
+
+    def test_a_live_plan_short_of_the_full_gap_is_flagged(self):
+        text = services.plan_notice(self.result("time_limit", 0.013, scenario.LIVE_PLAN))
+        assert "1.3 %" in text and "Capital plan" in text
+        assert "0.05 %" in services.plan_notice(self.result("optimal", 0.0005, scenario.LIVE_PLAN))
+
+    def test_proven_plans_say_nothing(self):
+        assert services.plan_notice(self.result("optimal", 0.00005, scenario.LIVE_PLAN)) == ""
+        assert services.plan_notice(self.result("time_limit", 0.02, scenario.PRECISE_PLAN)) == ""
+        assert services.plan_notice(types.SimpleNamespace(plan_status={})) == ""
