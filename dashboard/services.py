@@ -73,6 +73,14 @@ _SAFE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ._()+-]{0,119}$")
 # ---------------------------------------------------------------------------------------------------
 # Cases and their content keys
 # ---------------------------------------------------------------------------------------------------
+def _plan_start(result) -> tuple[tuple[str, int], ...]:
+    """The exact plan of a result as (project label, start year) pairs, a first plan for the next solve."""
+    plan_ = getattr(result, "plan", None)
+    if not isinstance(plan_, pd.DataFrame) or not {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
+        return ()
+    return tuple(zip(scenario.project_labels(plan_).tolist(), plan_["start_yr"].astype(int).tolist()))
+
+
 @dataclass(frozen=True)
 class CaseEntry:
     """A loaded case held by the server.
@@ -253,7 +261,6 @@ class Engine:
         self._cases: OrderedDict[str, CaseEntry] = OrderedDict()
         self._physics: dict[str, object] = {}
         self._results: OrderedDict[tuple, object] = OrderedDict()
-        self._last_plan: dict[str, tuple] = {}
         self._last_result: dict[str, object] = {}
         self._derived: OrderedDict[tuple, object] = OrderedDict()
         self.default_key: str | None = None
@@ -329,7 +336,6 @@ class Engine:
     def _forget(self, key: str) -> None:
         """Drop every cached computation of a case (lock held)."""
         self._physics.pop(key, None)
-        self._last_plan.pop(key, None)
         self._last_result.pop(key, None)
         for cache in (self._results, self._derived):
             for k in [k for k in cache if k[0] == key]:
@@ -395,13 +401,12 @@ class Engine:
                         self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
                         self._remember(key, found)
                         return found
-            start = self._last_plan.get(key, ())
             previous = self._last_result.get(key)
         entry = self.entry(key)
         if entry is None:
             raise KeyError(f"unknown case key {key!r}")
         phys = self.physics(key)
-        settings = scenario.PRECISE_PLAN if precise else replace(scenario.LIVE_PLAN, start=start)
+        settings = scenario.PRECISE_PLAN if precise else replace(scenario.LIVE_PLAN, start=_plan_start(previous))
 
         def compute():
             out = self._timed("economics", lambda: self._economics_fn(entry.case, phys, assumptions, with_risk=with_risk,
@@ -414,12 +419,8 @@ class Engine:
     def _remember(self, key: str, result) -> None:
         """Keep the result last served for a case: the next live ask starts from its plan and, when only
         the budget changes, reuses the rest of it."""
-        plan_ = getattr(result, "plan", None)
-        if isinstance(plan_, pd.DataFrame) and {"asset_id", "option_id", "start_yr"} <= set(plan_.columns):
-            with self._lock:
-                self._last_plan[key] = tuple(zip((plan_["asset_id"] + "/" + plan_["option_id"]).tolist(),
-                                                 plan_["start_yr"].astype(int).tolist()))
-                self._last_result[key] = result
+        with self._lock:
+            self._last_result[key] = result
 
     def derived(self, key: str, name: str, args: tuple, compute: Callable[[], object]):
         """Cache a finance-independent or plan-dependent view of a case (curves, meters, loads)."""
@@ -757,15 +758,11 @@ def rating_in_unit(p_kw, power_unit: str):
     return p_kw / HP_TO_KW if power_unit == "hp" else p_kw
 
 
-def _plan_keys(frame: pd.DataFrame) -> pd.Series:
-    return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
-
-
 def headline(result) -> dict:
     """Plan capital, yearly saving, plan NPV and CO2 avoided of the exact plan."""
     res = result.results
     plan = result.plan
-    chosen = res.set_index(_plan_keys(res)).reindex(_plan_keys(plan)) if len(plan) else res.iloc[0:0]
+    chosen = res.set_index(scenario.project_labels(res)).reindex(scenario.project_labels(plan)) if len(plan) else res.iloc[0:0]
     saving = chosen["bill_saving_per_yr"].sum() + chosen["saving_maintenance_per_yr"].sum() if len(chosen) else 0.0
     return {
         "plan_capital": float(plan["capital"].sum()) if len(plan) else 0.0,
@@ -1023,7 +1020,7 @@ def plan_solve_text(result) -> str:
     if gap != gap:  # NaN: no bound known
         return "Exact plan: no bound on how far it is from the best possible plan."
     proven = f"proven within {gap * 100:.2g} % of the best possible plan NPV" if gap > 1e-9 else "proven optimal"
-    live = settings is not None and settings.time_limit_s < scenario.PRECISE_PLAN.time_limit_s
+    live = _live(settings)
     if kind == "time_limit":
         return (f"Exact plan: best found in the {settings.time_limit_s:g} s allowed for a live edit, {proven}. "
                 "Prove it for the pack's precision." if live else f"Exact plan: the solver's time ran out; {proven}.")
@@ -1031,12 +1028,17 @@ def plan_solve_text(result) -> str:
                                       else ".")
 
 
+def _live(settings) -> bool:
+    """True for the plan settings of a live edit (bounded below the full run's time)."""
+    return settings is not None and settings.time_limit_s < scenario.PRECISE_PLAN.time_limit_s
+
+
 def plan_notice(result) -> str:
     """A short warning for pages that show plan figures while the plan is a live one not yet proven to
     the full run's gap; empty otherwise."""
     status = getattr(result, "plan_status", None) or {}
     settings, gap = status.get("settings"), status.get("gap_frac", float("nan"))
-    if settings is None or settings.time_limit_s >= scenario.PRECISE_PLAN.time_limit_s:
+    if not _live(settings):
         return ""
     if status.get("status") != "time_limit" and not gap > scenario.PRECISE_PLAN.gap_frac:
         return ""
@@ -1047,11 +1049,11 @@ def plan_notice(result) -> str:
 
 def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
-    labels = result.results.set_index(_plan_keys(result.results))["label"]
+    labels = result.results.set_index(scenario.project_labels(result.results))["label"]
     out = {}
     for name, frame in (("exact", result.plan), ("rank_order", result.plan_greedy)):
         f = frame.copy()
-        f["label"] = labels.reindex(_plan_keys(f)).to_numpy(dtype=object) if len(f) else []
+        f["label"] = labels.reindex(scenario.project_labels(f)).to_numpy(dtype=object) if len(f) else []
         out[name] = f
     budgets = list(result.assumptions.budget_per_yr)
     years = max([len(budgets)] + [int(f["start_yr"].max()) + 1 for f in out.values() if len(f)] + [1])
@@ -1062,7 +1064,7 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
             rows.append({"plan": name, "start_yr": y, "capital": float(by_year.get(y, 0.0)),
                          "budget": budgets[y] if y < len(budgets) else np.nan})
     out["by_year"] = pd.DataFrame(rows)
-    exact_keys, greedy_keys = set(_plan_keys(out["exact"])), set(_plan_keys(out["rank_order"]))
+    exact_keys, greedy_keys = set(scenario.project_labels(out["exact"])), set(scenario.project_labels(out["rank_order"]))
     diff = []
     for name, f, other in (("exact only", out["exact"], greedy_keys), ("rank order only", out["rank_order"], exact_keys)):
         for r in f.itertuples(index=False):
@@ -1103,7 +1105,7 @@ def risk_rows(result) -> pd.DataFrame:
     r = r.copy()
     split = r["project_id"].astype(str).str.split("/", n=1, expand=True)
     r["asset_id"], r["option_id"] = split[0], split[1]
-    labels = result.results.set_index(_plan_keys(result.results))["label"]
+    labels = result.results.set_index(scenario.project_labels(result.results))["label"]
     r["label"] = labels.reindex(r["project_id"].astype(str)).to_numpy(dtype=object)
     return r.sort_values("npv_p50", ascending=False, kind="stable").reset_index(drop=True)
 
@@ -1237,8 +1239,7 @@ def _register_saved(eng: Engine, old: CaseEntry, case, key: str) -> CaseEntry:
                  == float(old.case.finance.capacitor_cost_per_kvar))
         physics = eng._physics.get(old.key) if carry else None
         derived = {(key,) + k[1:]: v for k, v in eng._derived.items() if k[0] == old.key} if carry else {}
-        last_plans = getattr(eng, "_last_plan", {})
-        last_plan = last_plans.get(old.key)
+        last_result = eng._last_result.get(old.key) if carry else None  # same physics: its plan starts the next
         eng._cases.pop(old.key, None)
         eng._forget(old.key)
         if old.origin == "upload":
@@ -1252,8 +1253,8 @@ def _register_saved(eng: Engine, old: CaseEntry, case, key: str) -> CaseEntry:
             eng._physics.setdefault(key, physics)
             for k, v in derived.items():
                 eng._derived.setdefault(k, v)
-        if last_plan is not None:
-            last_plans.setdefault(key, last_plan)
+        if last_result is not None:
+            eng._last_result.setdefault(key, last_result)
     return new
 
 

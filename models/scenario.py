@@ -532,7 +532,7 @@ def _only_budget_differs(previous, phys: Physics, assumptions, with_risk: bool) 
 def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings, step) -> ScenarioResult:
     """A result under a new budget: the previous result with the plan and the plan's bills redone."""
     results = previous.results
-    project_ids = (results["asset_id"] + "/" + results["option_id"]).to_numpy(dtype=object)
+    project_ids = project_labels(results).to_numpy(dtype=object)
     step("fleet plan")
     plan_frames = _plan(results, previous.capital_spend_by_year, project_ids, assumptions,
                         float(assumptions.discount_rate_frac), settings)
@@ -715,7 +715,7 @@ def _plan_frame(fleet_plan, results: pd.DataFrame) -> pd.DataFrame:
     columns = ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"]
     if frame.empty:
         return pd.DataFrame(columns=columns)
-    rows = pd.Index(results["asset_id"] + "/" + results["option_id"]).get_indexer(frame["project_id"])
+    rows = pd.Index(project_labels(results)).get_indexer(frame["project_id"])
     frame = frame.assign(asset_id=results["asset_id"].to_numpy()[rows], option_id=results["option_id"].to_numpy()[rows],
                          capital=results["capital"].to_numpy()[rows])
     return frame[columns].reset_index(drop=True)
@@ -802,6 +802,12 @@ def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
     site_total = baseline_bills.groupby("site_id")["amount"].sum()
     site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
     return (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+
+
+def project_labels(frame: pd.DataFrame) -> pd.Series:
+    """The project label "asset/option" of each row of a table with ``asset_id`` and ``option_id``
+    (the labels the plan and the cash flows use)."""
+    return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
 
 
 def plan_choice(op, plan_frame: pd.DataFrame) -> np.ndarray:
