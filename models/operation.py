@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from models import drives, induction, loads, synchronous
+from models import drives, induction, loads, synchronous, tabulation
 from models.defaults import catalogue_efficiency_pct, class_floor_pct, default_power_factor
 from models.profiles import LoadStates, analysis_index, asset_loads
 
@@ -581,6 +581,18 @@ DENSE_INTERVAL_BUDGET_BYTES = 2 * 2**30
 PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
 
 
+#: Tabulated machine models (:mod:`models.tabulation`): grid nodes per asset. Each option's curve is
+#: evaluated at 2 x this - 1 loads per asset instead of once per interval.
+TABLE_NODES = 129
+#: Largest interpolation error a tabulated row may carry, as a fraction of the asset's rated input power
+#: (kW and kVAr quantities) or of its synchronous speed (speed); a row above it is evaluated per interval.
+TABLE_TOLERANCE_FRAC = 1e-5
+#: Tabulate only when an asset has at least this many intervals (below, evaluating them is as cheap).
+TABLE_MIN_STEPS = 8 * TABLE_NODES
+#: Tabulate the machine models where it pays (False: evaluate every interval, the reference path).
+TABULATE = True
+
+
 def case_index(case) -> pd.DatetimeIndex:
     """Return the analysis index of a case (:func:`models.profiles.analysis_index` over the profiles in use)."""
     used = set(case.assets["profile_id"].dropna()) | set(case.sites["base_profile_id"].dropna())
@@ -683,6 +695,39 @@ class _TodayOfBlock:
                    part.mean_speed_rpm[:, 0].copy(), part.running_h.copy(), flags)
 
 
+def _grid_load(existing: induction.InductionParams, load: _Load, grid: tabulation.Grid) -> _Load:
+    """The reference load of a group of assets at their grid's loads (every column a running state)."""
+    p = grid.p_grid_kw
+    n_ref = np.asarray(induction.induction_speed_rpm(existing, p), dtype=float)
+    return _Load(p, n_ref, p > 0.0, np.ones(p.shape), load.p_design_kw)
+
+
+def _point_flags(pt) -> list[tuple[int, str]]:
+    """A point's flags, (row of the group, text), parts' own flags included."""
+    if not isinstance(pt, _Parts):
+        return list(pt.flags)
+    out = list(pt.flags)
+    for part_rows, part in pt.parts:
+        out.extend((int(part_rows[i]), text) for i, text in part.flags)
+    return out
+
+
+def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
+    """Rows (bool, (n,)) whose every quantity interpolates within :data:`TABLE_TOLERANCE_FRAC`.
+
+    The measured error is at the cells' midpoints; a kink inside a cell can err up to twice that, so
+    the midpoint error must stay within half the tolerance.
+    """
+    tol_kw = 0.5 * TABLE_TOLERANCE_FRAC * arr["rated_p_kw"] / arr["eff_frac"]
+    ok = np.ones(len(tol_kw), dtype=bool)
+    for name in ("p_kw", "q_kvar", "shaft_kw", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw"):
+        values = getattr(pt, name)
+        if values is not None:
+            ok &= tabulation.midpoint_error(np.broadcast_to(values, pt.p_kw.shape)) <= tol_kw
+    ok &= tabulation.midpoint_error(np.broadcast_to(pt.speed_rpm, pt.p_kw.shape)) <= 0.5 * TABLE_TOLERANCE_FRAC * arr["sync_rpm"]
+    return ok
+
+
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
                    today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None) -> OperatingResult:
@@ -737,6 +782,15 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         load = _reference_load(arr, existing, states.shaft_load_frac[state_rows],
                                np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
         groups.append(("states", state_rows, arr, existing, load))
+    # interval assets with long profiles: each option's curve on a grid of loads, interpolated per interval
+    grids = {}
+    if TABULATE and n_t >= TABLE_MIN_STEPS and len(interval_rows):
+        _, _, arr, existing, load = groups[0]
+        grid = tabulation.locate(load.p_ref_kw, load.running, interval_h, TABLE_NODES)
+        grid_load = _grid_load(existing, load, grid)
+        if not only_today:
+            grid_load.controlled = _speed_controlled(arr, grid_load)
+        grids["interval"] = (grid, grid_load)
 
     if buffers is not None and wanted is None:
         # every element is written below (today's rows by today's motors; each option's rows by the option
@@ -805,14 +859,71 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         for i, text in pt.flags:
             flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
 
+    def store_tabulated(o: int, rows_: np.ndarray, sub: np.ndarray, ok: np.ndarray, pt: _Point,
+                        grid: tabulation.Grid) -> None:
+        """Store the rows ``sub[ok]`` of a group from the option's values on their grid ``pt`` (rows ``sub``)."""
+        good = sub[ok]
+        idx = rows_[good]
+        whole = bool(ok.all()) and _covers(sub, grid.cell.shape[0])
+        sel = None if whole else good
+
+        def tables_of(values):
+            values = np.broadcast_to(values, pt.p_kw.shape)
+            return tabulation.tables(values if ok.all() else values[ok])
+
+        at = _as_slice(idx)
+        for target, name in ((p_kw, "p_kw"), (q_kvar, "q_kvar")):
+            base, rise = tables_of(getattr(pt, name))
+            if whole and isinstance(at, slice):
+                values = tabulation.interpolate(grid, base, rise, out=target[o, at])
+            else:
+                values = tabulation.interpolate(grid, base, rise, rows=sel if sel is not None else np.arange(len(good)))
+                target[o, idx] = values
+            if name == "p_kw":
+                energy[idx, o] = tabulation.weighted_sums(grid, base, rise, rows=sel)
+            else:
+                part = np.maximum(values, 0.0)
+                lag[idx, o] = part.sum(axis=1) * interval_h
+                np.negative(values, out=part)
+                np.maximum(part, 0.0, out=part)
+                lead[idx, o] = part.sum(axis=1) * interval_h
+        shaft_energy[idx, o] = tabulation.weighted_sums(grid, *tables_of(pt.shaft_kw), rows=sel)
+        for k, loss in enumerate((pt.loss_motor_kw, pt.loss_drive_kw, pt.loss_excitation_kw)):
+            losses[idx, o, k] = 0.0 if loss is None else tabulation.weighted_sums(grid, *tables_of(loss), rows=sel)
+        hours = grid.hours_h.sum(axis=1) if sel is None else grid.hours_h[sel].sum(axis=1)
+        speed[idx, o] = tabulation.weighted_sums(grid, *tables_of(pt.speed_rpm), rows=sel) / np.maximum(hours, 1e-12)
+        for i, text in _point_flags(pt):
+            if ok[i]:
+                flags.append({"asset_id": asset_ids[rows_[sub[i]]], "option_id": option_ids[o], "flag": text})
+
+    def run(o: int, option: pd.Series, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
+            load_s: _Load, site_other=None) -> None:
+        """Evaluate an option on the rows ``sub`` of a group (on their grid where there is one) and store it."""
+        tab = grids.get(kind)
+        if tab is None or option["technology"] == "wound_field":  # a wound-field machine may follow the site
+            store(o, kind, rows_, sub, _evaluate(option, arr_s, existing_s, load_s, site_other), load_s)
+            return
+        grid, grid_load = tab
+        pt = _evaluate(option, arr_s, existing_s, grid_load.rows(sub))
+        flat = _whole(pt)
+        ok = _tabulation_holds(flat, arr_s)
+        flat.flags = _point_flags(pt)
+        if ok.any():
+            store_tabulated(o, rows_, sub, ok, flat, grid)
+        if not ok.all():  # the curve bends too sharply for the grid: every interval of those rows
+            bad = np.flatnonzero(~ok)
+            load_b = load_s.rows(bad)
+            store(o, kind, rows_, sub[bad], _evaluate(option, _take(arr_s, bad), _take_params(existing_s, bad), load_b),
+                  load_b)
+
     # today's motors first
     for kind, rows_, arr, existing, load in groups:
-        if not only_today:  # element-wise: computed once, sliced for each option (today's drives compute their own)
+        if not only_today and kind not in grids:
+            # element-wise: computed once, sliced for each option (today's drives compute their own)
             load.controlled = _speed_controlled(arr, load)
         if today is None:
-            pt = _evaluate(options.iloc[0], arr, existing, load)
-            store(0, kind, rows_, np.arange(len(rows_)), pt, load)
-            running_h[rows_] = load.weight_running()[1]
+            run(0, options.iloc[0], kind, rows_, np.arange(len(rows_)), arr, existing, load)
+            running_h[rows_] = grids[kind][0].hours_h.sum(axis=1) if kind in grids else load.weight_running()[1]
     if today is not None:  # the same block's first pass: the same numbers
         p_kw[0], q_kvar[0] = today.p_kw, today.q_kvar
         energy[:, 0], shaft_energy[:, 0], losses[:, 0] = today.energy_kwh, today.shaft_energy_kwh, today.losses_kwh
@@ -837,8 +948,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 idx = rows_[sub]
                 site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
                                          q_kvar[0, idx], index)
-            pt = _evaluate(option, arr_s, existing_s, load_s, site_other)
-            store(o, kind, rows_, sub, pt, load_s)
+            run(o, option, kind, rows_, sub, arr_s, existing_s, load_s, site_other)
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values

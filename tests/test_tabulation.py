@@ -1,0 +1,201 @@
+"""Machine curves tabulated per asset: the grid, the interpolation, and the machines run on it.
+
+Expected numbers: hand calculations in docs/derivations/tabulated-machine-curves.md (cases T1, T2).
+The machine-level tests compare the tabulated run with the reference run that evaluates every interval
+(``models.operation.TABULATE = False``): an invariant of our own design, the tolerance being the one the
+run promises (``TABLE_TOLERANCE_FRAC`` of each asset's rated input power).
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from numpy.testing import assert_allclose, assert_array_equal
+
+from models import operation, tabulation
+from models.case import load_case
+from models.operation import case_index, operate_site, site_case, site_partition
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+from synthetic_fleet import write_fleet  # noqa: E402
+
+
+class TestGrid:
+    def test_two_nodes_between_one_and_eight_kw(self):
+        # hand calculation T1: nodes at u = 1, 2 (p = 1, 8), midpoint u = 1.5 (p = 3.375)
+        p = np.array([[1.0, 8.0, 3.375]])
+        g = tabulation.locate(p, p > 0, 0.25, 2)
+        assert_allclose(g.p_grid_kw, [[1.0, 3.375, 8.0]], rtol=1e-15)
+        assert g.cell.tolist() == [[0, 0, 0]]
+        assert_allclose(g.position_frac, [[0.0, 1.0, 0.5]], rtol=1e-15)
+
+    def test_interpolating_the_load_itself(self):
+        # hand calculation T1: b_0 = 1, r_0 = 7; values 1, 8, 4.5; midpoint error 1.125 kW
+        p = np.array([[1.0, 8.0, 3.375]])
+        g = tabulation.locate(p, p > 0, 0.25, 2)
+        base, rise = tabulation.tables(g.p_grid_kw)
+        assert_allclose(tabulation.interpolate(g, base, rise), [[1.0, 8.0, 4.5]], rtol=1e-15)
+        assert_allclose(tabulation.midpoint_error(g.p_grid_kw), [1.125], rtol=1e-15)
+
+    def test_a_curve_linear_in_the_grid_variable_is_exact(self):
+        # hand calculation T1: f = p^(1/3) gives 1.5 at p = 3.375 and no midpoint error
+        p = np.array([[1.0, 8.0, 3.375]])
+        g = tabulation.locate(p, p > 0, 0.25, 2)
+        f = np.cbrt(g.p_grid_kw)
+        base, rise = tabulation.tables(f)
+        assert_allclose(tabulation.interpolate(g, base, rise), [[1.0, 2.0, 1.5]], rtol=1e-15)
+        assert_allclose(tabulation.midpoint_error(f), [0.0], atol=1e-15)
+
+    def test_yearly_sum_from_the_cells(self):
+        # hand calculation T1: 0.25 h x (1 + 8 + 4.5) = 3.375 kWh; H_0 = 0.75 h, M_0 = 0.375 h
+        p = np.array([[1.0, 8.0, 3.375]])
+        g = tabulation.locate(p, p > 0, 0.25, 2)
+        assert_allclose(g.hours_h[:, 0], [0.75], rtol=1e-15)
+        assert_allclose(g.moment_h[:, 0], [0.375], rtol=1e-15)
+        base, rise = tabulation.tables(g.p_grid_kw)
+        assert_allclose(tabulation.weighted_sums(g, base, rise), [3.375], rtol=1e-15)
+
+    def test_stopped_interval_and_constant_load(self):
+        # hand calculation T2: values 0, 5, 5, 5; H = 3 h at node 0, none elsewhere
+        p = np.array([[0.0, 5.0, 5.0, 5.0]])
+        g = tabulation.locate(p, p > 0, 1.0, 3)
+        base, rise = tabulation.tables(g.p_grid_kw)
+        assert_allclose(tabulation.interpolate(g, base, rise), [[0.0, 5.0, 5.0, 5.0]], rtol=1e-14)
+        assert_allclose(g.hours_h, [[3.0, 0.0, 0.0]])
+        assert g.cell[0, 0] == 2  # the zero cell
+
+    def test_an_asset_that_never_runs_gives_zeros(self):
+        p = np.zeros((2, 5))
+        p[1] = [1.0, 2.0, 3.0, 0.0, 4.0]
+        g = tabulation.locate(p, p > 0, 1.0, 4)
+        base, rise = tabulation.tables(g.p_grid_kw * 2.0)
+        out = tabulation.interpolate(g, base, rise)
+        assert_array_equal(out[0], 0.0)
+        assert out[1, 3] == 0.0
+
+    def test_rows_of_the_grid_give_the_same_values_as_the_whole(self):
+        rng = np.random.default_rng(3)
+        p = rng.uniform(0.0, 50.0, (5, 40))
+        p[p < 5.0] = 0.0
+        g = tabulation.locate(p, p > 0, 1.0, 9)
+        f = g.p_grid_kw ** 2
+        base, rise = tabulation.tables(f)
+        whole = tabulation.interpolate(g, base, rise)
+        rows = np.array([1, 3, 4])
+        part = tabulation.interpolate(g, base[rows], rise[rows], rows=rows)
+        assert_array_equal(part, whole[rows])
+        assert_array_equal(tabulation.weighted_sums(g, base[rows], rise[rows], rows=rows),
+                           tabulation.weighted_sums(g, base, rise)[rows])
+
+    def test_one_node_is_refused(self):
+        with pytest.raises(ValueError, match="two nodes"):
+            tabulation.locate(np.ones((1, 3)), np.ones((1, 3), bool), 1.0, 1)
+
+    @settings(max_examples=60, deadline=None)
+    @given(st.lists(st.floats(0.0, 1e4, allow_nan=False), min_size=1, max_size=60), st.integers(2, 40))
+    def test_nodes_are_exact_and_error_within_the_midpoint_bound(self, loads, n_nodes):
+        # the interpolation passes through the nodes, and its error anywhere stays within twice the largest
+        # midpoint error (docs/derivations/tabulated-machine-curves.md: for f = u^3 on a cell [a, a + h],
+        # the error (x - a)(a + h - x)(x + 2a + h) peaks at most 4/3 of its midpoint value)
+        p = np.array([loads])
+        g = tabulation.locate(p, p > 0, 1.0, n_nodes)
+        base, rise = tabulation.tables(g.p_grid_kw)
+        out = tabulation.interpolate(g, base, rise)
+        err = np.abs(out - np.where(p > 0, p, 0.0)).max()
+        bound = 2.0 * tabulation.midpoint_error(g.p_grid_kw).max()
+        assert err <= bound + 1e-9 * max(1.0, p.max())
+        nodes = g.p_grid_kw[:, 0::2]
+        assert_allclose(tabulation.interpolate(tabulation.locate(nodes, nodes > 0, 1.0, n_nodes), base, rise),
+                        np.where(nodes > 0, nodes, 0.0), rtol=1e-12, atol=1e-9)
+
+
+# ---------------------------------------------------------------------------------------------------
+# The machines on their grids
+# ---------------------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def fleet(tmp_path_factory):
+    folder = write_fleet(tmp_path_factory.mktemp("tabfleet"), 40, n_sites=2, seed=11)
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    return case
+
+
+def _both(case, site_id, monkeypatch, **settings_):
+    index = case_index(case)
+    one = site_case(case, site_id)
+    monkeypatch.setattr(operation, "TABULATE", False)
+    exact = operate_site(one, index)
+    monkeypatch.setattr(operation, "TABULATE", True)
+    for name, value in settings_.items():
+        monkeypatch.setattr(operation, name, value)
+    return one, exact, operate_site(one, index)
+
+
+def _assert_within_tolerance(one, exact, tab, tol_frac):
+    a = one.assets
+    rated_in = (a["rated_p_kw"] / (a["rated_efficiency_pct"] / 100.0)).to_numpy()
+    scale = tol_frac * rated_in[None, :, None]
+    assert (np.abs(tab.p_kw - exact.p_kw) <= scale).all()
+    assert (np.abs(tab.q_kvar - exact.q_kvar) <= scale).all()
+    hours = len(exact.index) * exact.interval_h
+    for name in ("energy_kwh", "shaft_energy_kwh", "lagging_kvarh", "leading_kvarh"):
+        assert (np.abs(getattr(tab, name) - getattr(exact, name)) <= tol_frac * rated_in[:, None] * hours).all(), name
+    assert (np.abs(tab.losses_kwh - exact.losses_kwh) <= tol_frac * rated_in[:, None, None] * hours).all()
+    sync = a["sync_speed_rpm"].to_numpy()[:, None]
+    assert (np.abs(tab.mean_speed_rpm - exact.mean_speed_rpm) <= tol_frac * sync).all()
+    assert_array_equal(tab.running_h, exact.running_h)
+    assert_array_equal(tab.applies, exact.applies)
+    assert sorted(map(tuple, tab.flags.to_numpy().tolist())) == sorted(map(tuple, exact.flags.to_numpy().tolist()))
+
+
+class TestTabulatedMachines:
+    def test_synthetic_sites_within_the_promised_tolerance(self, fleet, monkeypatch):
+        for site_id, _ in site_partition(fleet):
+            one, exact, tab = _both(fleet, site_id, monkeypatch)
+            _assert_within_tolerance(one, exact, tab, operation.TABLE_TOLERANCE_FRAC)
+
+    def test_demo_sites_within_the_promised_tolerance(self, demo_case, monkeypatch):
+        assert len(case_index(demo_case)) >= operation.TABLE_MIN_STEPS  # the demo is tabulated
+        for site_id, _ in site_partition(demo_case):
+            one, exact, tab = _both(demo_case, site_id, monkeypatch)
+            _assert_within_tolerance(one, exact, tab, operation.TABLE_TOLERANCE_FRAC)
+
+    def test_the_tabulated_run_differs_from_the_reference(self, fleet, monkeypatch):
+        # the switch really changes the path (a test that could not fail otherwise)
+        site_id = site_partition(fleet)[0][0]
+        _, exact, tab = _both(fleet, site_id, monkeypatch)
+        assert not np.array_equal(tab.p_kw, exact.p_kw)
+
+    def test_no_row_within_tolerance_gives_the_reference_bit_for_bit(self, fleet, monkeypatch):
+        site_id = site_partition(fleet)[0][0]
+        _, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_TOLERANCE_FRAC=-1.0)
+        for name in ("p_kw", "q_kvar", "energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm"):
+            assert_array_equal(getattr(tab, name), getattr(exact, name), err_msg=name)
+
+    def test_rows_over_tolerance_fall_back_while_the_others_are_tabulated(self, fleet, monkeypatch):
+        # a tolerance between the rows' errors: some rows of each option are tabulated, the rest exact
+        site_id = site_partition(fleet)[0][0]
+        seen = []
+        holds = operation._tabulation_holds
+
+        def spy(pt, arr):
+            ok = holds(pt, arr)
+            seen.append((ok.sum(), ok.size))
+            return ok
+
+        monkeypatch.setattr(operation, "_tabulation_holds", spy)
+        one, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_NODES=17, TABLE_TOLERANCE_FRAC=3e-4)
+        passed = sum(s for s, _ in seen)
+        total = sum(n for _, n in seen)
+        assert 0 < passed < total
+        _assert_within_tolerance(one, exact, tab, 3e-4)
+
+    def test_short_profiles_are_not_tabulated(self, fleet, monkeypatch):
+        site_id = site_partition(fleet)[0][0]
+        _, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_MIN_STEPS=10**6)
+        assert_array_equal(tab.p_kw, exact.p_kw)
