@@ -224,7 +224,7 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     if data["unconstrained"] or data["n"] == 0:
         return _unconstrained(data, "exact")
     n, years = data["n"], data["years"]
-    candidates = np.flatnonzero(data["value"] > 0)
+    candidates = np.flatnonzero((data["value"] > 0) & ~_dominated(data))
     x = np.zeros((n, years), dtype=bool)
     if candidates.size == 0:
         return _result(data, x, "exact", "empty", "no project has a positive NPV", 0.0)
@@ -300,6 +300,39 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     if not x.any():
         status, message = ("empty", "no project fits the budget") if status == "optimal" else (status, message)
     return _result(data, x, "exact", status, message, max(gap, 0.0) if np.isfinite(gap) else gap)
+
+
+def _dominated(data: dict[str, Any]) -> np.ndarray:
+    """Projects another option of the same asset beats outright (bool, (n,)): no plan needs them.
+
+    Project i is dominated by project j of the same asset when NPV_j >= NPV_i and j spends no more than i
+    in every year after its start, with at least one of these strict. Swapping i for j (same start year)
+    keeps every budget and does not lower the plan's NPV, so removing i leaves the best plan's NPV as it
+    was [1, Sec. 11.2] while the solver has fewer columns to branch on.
+
+    References
+    ----------
+    .. [1] H. Kellerer, U. Pferschy and D. Pisinger, *Knapsack Problems*. Berlin: Springer, 2004.
+    """
+    value, capital, assets = data["value"], data["capital"], data["assets"]
+    n = value.size
+    if n == 0:
+        return np.zeros(0, dtype=bool)
+    _, asset_row = np.unique(assets, return_inverse=True)
+    order = np.argsort(asset_row, kind="stable")
+    counts = np.bincount(asset_row)
+    slot = np.empty(n, dtype=np.intp)
+    slot[order] = np.arange(n) - np.repeat(np.cumsum(counts) - counts, counts)
+    width = int(counts.max())
+    v = np.full((counts.size, width), -np.inf)
+    c = np.full((counts.size, width, capital.shape[1]), np.inf)
+    v[asset_row, slot] = value
+    c[asset_row, slot] = capital
+    # [a, i, j]: j (same asset a) is at least as good as i in value and in every year's capital
+    no_worse = (v[:, None, :] >= v[:, :, None]) & (c[:, None, :, :] <= c[:, :, None, :]).all(axis=3)
+    better = (v[:, None, :] > v[:, :, None]) | (c[:, None, :, :] < c[:, :, None, :]).any(axis=3)
+    beaten = (no_worse & better).any(axis=2)
+    return beaten[asset_row, slot]
 
 
 def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> np.ndarray | None:

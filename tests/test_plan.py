@@ -200,6 +200,41 @@ class TestAgainstBruteForce:
         assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.1), rtol=1e-9)
 
 
+class TestDominatedOptions:
+    def test_dominated_options_are_found(self):
+        # hand calculation: asset a has (NPV, capital) a/1 (60, 50), a/2 (50, 50), a/3 (60, 40), a/4 (90, 100);
+        # a/1 is beaten by a/3 (same NPV, less capital), a/2 by a/1 and a/3; a/4 is the only one with NPV 90;
+        # b/1 (10, 5) and b/2 (10, 5) are equal: neither beats the other
+        data = plan._prepare(["a/1", "a/2", "a/3", "a/4", "b/1", "b/2"], ["a", "a", "a", "a", "b", "b"],
+                             [60.0, 50.0, 60.0, 90.0, 10.0, 10.0], [50.0, 50.0, 40.0, 100.0, 5.0, 5.0], [100.0], 0.08)
+        assert plan._dominated(data).tolist() == [True, True, False, False, False, False]
+
+    def test_spend_in_a_later_year_counts(self):
+        # hand calculation: x/1 spends (10, 0), x/2 (5, 20): cheaper first, dearer second year: neither beats
+        data = plan._prepare(["x/1", "x/2"], ["x", "x"], [30.0, 40.0], [[10.0, 0.0], [5.0, 20.0]], [50.0, 50.0], 0.08)
+        assert not plan._dominated(data).any()
+
+    def test_fleets_full_of_dominated_options_agree_with_brute_force(self):
+        # Independent check: each asset's extra options are copies of another with less NPV or more capital,
+        # so many are dominated; the plan must still match exhaustive enumeration.
+        rng = np.random.default_rng(99)
+        for trial in range(15):
+            n_assets = int(rng.integers(2, 6))
+            value, spend, assets = [], [], []
+            for k in range(n_assets):
+                v0, c0 = rng.normal(40, 30), rng.uniform(5, 60, 2)
+                for _ in range(int(rng.integers(1, 4))):
+                    value.append(round(v0 - rng.uniform(0, 10) * (rng.random() < 0.7), 2))
+                    spend.append(np.round(c0 + rng.uniform(0, 15, 2) * (rng.random(2) < 0.6), 2))
+                    assets.append(f"a{k}")
+            value, spend, assets = np.array(value), np.array(spend), np.array(assets)
+            ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+            budget = np.round(rng.uniform(20, 120, 2), 2)
+            exact = plan.plan_exact(ids, assets, value, spend, budget, 0.08, **EXACT)
+            assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.08), rtol=1e-9, atol=1e-9,
+                            err_msg=f"trial {trial}")
+
+
 class TestGreedy:
     def test_shortfall_hand_example(self):
         args = (["a", "b", "c"], ["a", "b", "c"], [66.0, 50.0, 50.0], [60.0, 50.0, 50.0], [100.0], 0.08)
