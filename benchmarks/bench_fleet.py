@@ -201,7 +201,10 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
              f"Measured by `benchmarks/bench_fleet.py` on {time.strftime('%Y-%m-%d')}: {info['cpu']}, {info['cores']} cores, "
              f"{info['ram_gib']} GiB RAM, Python {info['python']}, numpy {info['numpy']}, pandas {info['pandas']}. "
              "Synthetic fleets of 20 sites (a tariff per site from `data/tariffs/`), every option of the default "
-             "catalogue, one hourly year. Peak memory is the resident set of the process and its Dask workers; machines "
+             "catalogue, one hourly year, capital budgets "
+             + ("the demo's per motor (the demo's budgets x fleet size / the demo's 82 motors)"
+                if all(r.get("budgets", "per_asset") == "per_asset" for r in runs) else "the demo's own")
+             + ". Peak memory is the resident set of the process and its Dask workers; machines "
              "and site bills run interleaved site by site and share one peak. Throughput in asset-option-steps per second. "
              "The local engine works two sites at once in threads (`models.operation.PHYSICS_THREADS`); the machines and "
              "site-bills times are their shares of the physics' wall time.", ""]
@@ -247,6 +250,8 @@ def main(argv: list[str] | None = None) -> None:
                         help="prove the exact plan within this %% only (as drivecase run --plan-gap; default 0.01)")
     parser.add_argument("--plan-seconds", type=float, metavar="S",
                         help="time limit of the exact plan (as drivecase run --plan-seconds; default 60)")
+    parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
+                        help="capital budgets of the synthetic fleets: the demo's per motor (default) or the demo's own")
     parser.add_argument("--child", help=argparse.SUPPRESS)
     parser.add_argument("--engine", default="local", help=argparse.SUPPRESS)
     parser.add_argument("--mc-child", action="store_true", help=argparse.SUPPRESS)
@@ -262,9 +267,10 @@ def main(argv: list[str] | None = None) -> None:
     runs = []
     with tempfile.TemporaryDirectory(prefix="drivecase-bench-") as tmp:
         for n in args.assets:
-            folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites)
+            folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites, budgets=args.budgets)
             for engine in args.engines:
                 r = run_child(folder, engine, args.plan_gap, args.plan_seconds)
+                r["budgets"] = args.budgets
                 print(json.dumps(r), flush=True)
                 runs.append(r)
     out = subprocess.run([sys.executable, __file__, "--mc-child"], check=True, capture_output=True, text=True)

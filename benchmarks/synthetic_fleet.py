@@ -3,7 +3,9 @@
 Everything written here is made up: sites, motors, profiles. The generator is seeded, so a given
 (n_assets, n_sites, seed) always gives the same files. What it writes:
 
-- ``case.toml`` (Europe/Berlin, EUR, flagged as invented) and ``finance.toml`` (the demo's assumptions);
+- ``case.toml`` (Europe/Berlin, EUR, flagged as invented) and ``finance.toml`` (the demo's assumptions,
+  with its capital budgets scaled to the fleet: the same budget per motor as the demo's, unless asked
+  for the demo's own budgets);
 - ``sites.csv``: ``n_sites`` meters, each with a constant non-motor base load at 0.85 PF;
 - ``tariffs/``: one tariff per site, copied in turn from ``data/tariffs/``. Copies are rewritten to the
   case's zone and currency where they differ (the originals are left untouched), so every example tariff
@@ -97,7 +99,26 @@ def _tariff_text(name: str) -> str:
     return re.sub(r'(?m)^currency = ".*"$', f'currency = "{CURRENCY}"', text)
 
 
-def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int = 20260601) -> Path:
+def _finance_toml(n_assets: int, budgets: str) -> str:
+    """The demo's finance.toml, its budget_per_yr scaled to the fleet (``budgets="per_asset"``) or kept."""
+    import tomllib
+
+    import tomlkit
+
+    demo = ROOT / "data" / "demo"
+    text = (demo / "finance.toml").read_text(encoding="utf-8")
+    if budgets == "demo":
+        return text
+    if budgets != "per_asset":
+        raise ValueError(f"budgets must be 'per_asset' or 'demo', got {budgets!r}")
+    n_demo = len(pd.read_csv(demo / "assets.csv"))
+    doc = tomlkit.parse(text)
+    doc["budget_per_yr"] = [round(float(b) * n_assets / n_demo, -3) for b in tomllib.loads(text)["budget_per_yr"]]
+    return tomlkit.dumps(doc)
+
+
+def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int = 20260601,
+                budgets: str = "per_asset") -> Path:
     """Write a synthetic case folder with ``n_assets`` motors on ``n_sites`` sites; return its path.
 
     Parameters
@@ -110,6 +131,9 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
         Number of site meters, 1 <= n_sites <= n_assets.
     seed : int
         Seed of every random draw.
+    budgets : {"per_asset", "demo"}
+        Capital budgets: the demo's budgets times n_assets / (the demo's number of assets), or the demo's
+        own (a very tight budget for a large fleet).
     """
     if n_assets < 1 or not 1 <= n_sites <= n_assets:
         raise ValueError("need n_assets >= 1 and 1 <= n_sites <= n_assets")
@@ -157,7 +181,7 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
                                                     "target_power_factor"]), encoding="utf-8")
     (out / "duty.csv").write_text("profile_id,shaft_load_pct,duration_h_per_yr\n", encoding="utf-8")
     (out / "case.toml").write_text(CASE_TOML.format(n=n_assets, s=n_sites), encoding="utf-8")
-    (out / "finance.toml").write_text((ROOT / "data" / "demo" / "finance.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    (out / "finance.toml").write_text(_finance_toml(n_assets, budgets), encoding="utf-8")
     _profiles(rng, n_profiles).to_parquet(out / "profiles.parquet", index=False)
     return out
 
@@ -168,8 +192,10 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--assets", type=int, default=1000)
     parser.add_argument("--sites", type=int, default=20)
     parser.add_argument("--seed", type=int, default=20260601)
+    parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
+                        help="capital budgets: the demo's per motor (default) or the demo's own")
     args = parser.parse_args(argv)
-    print(write_fleet(args.out, args.assets, args.sites, args.seed))
+    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets))
 
 
 if __name__ == "__main__":

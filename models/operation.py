@@ -730,17 +730,22 @@ def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
 
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
-                   today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None) -> OperatingResult:
+                   today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None,
+                   needed: dict | None = None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
     block's own totals (the block is the whole site). With ``only_today`` only today's motors run; with
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
-    its own, so the values are those of a full run; the others repeat today's). With ``buffers`` (every
+    its own, so the values are those of a full run; the others' per-interval rows are left at zero and
+    their yearly values undefined). With ``buffers`` (every
     option run) the per-interval arrays are views of those buffers, every element written by this call.
     With ``today`` (a first pass's result for the same block) today's motors are not run again. With
     ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
-    calibrated motors are sliced from the site's instead of computed for the block.
+    calibrated motors are sliced from the site's instead of computed for the block. With ``needed``
+    (option position -> bool per block asset, with ``wanted``) a tabulated option's per-interval values
+    are written for those assets only (the others' rows of that option are left undefined); the
+    evaluation itself runs on the same assets as without it, so the values written are the same.
     """
     from dataclasses import replace
 
@@ -862,6 +867,14 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     def store_tabulated(o: int, rows_: np.ndarray, sub: np.ndarray, ok: np.ndarray, pt: _Point,
                         grid: tabulation.Grid) -> None:
         """Store the rows ``sub[ok]`` of a group from the option's values on their grid ``pt`` (rows ``sub``)."""
+        if needed is not None and o in needed:  # rows nobody will read are not interpolated
+            keep = np.asarray(needed[o])[rows_[sub]]
+            if not keep.all():
+                if not (ok & keep).any():
+                    return
+                pt = _Point(*(None if v is None else np.broadcast_to(v, pt.p_kw.shape)[keep]
+                              for v in (getattr(pt, name) for name in _POINT_ARRAYS)), flags=[])
+                sub, ok = sub[keep], ok[keep]
         good = sub[ok]
         idx = rows_[good]
         whole = bool(ok.all()) and _covers(sub, grid.cell.shape[0])
@@ -953,6 +966,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values
     for o in range(1, 1 if only_today else n_o):
+        if wanted is not None and o not in wanted:
+            continue
         off = ~applies[:, o]
         p_kw[o, off] = p_kw[0, off]
         q_kvar[o, off] = q_kvar[0, off]
@@ -1205,6 +1220,7 @@ class _SiteRecompute:
         self.today_q: np.ndarray | None = None
         self._cached: tuple | None = None
         self._request: tuple | None = None  # (k, options, local), p_kw rows, q_kvar rows
+        self._constants: tuple | None = None  # (k, _site_constants of site k)
 
     def values(self, k: int, options: np.ndarray, local: np.ndarray, quantity: int) -> np.ndarray:
         """Rows (options[i], local[i]) of site k, shape (len(options), n_steps)."""
@@ -1225,11 +1241,20 @@ class _SiteRecompute:
         for b in np.unique(block_of):
             sel = np.flatnonzero(block_of == b)
             wanted = frozenset(int(o) for o in np.unique(options[sel]))
-            key = (k, int(b), wanted)
+            key = (k, int(b), options[sel].tobytes(), local[sel].tobytes())
             if self._cached is None or self._cached[0] != key:
                 self._cached = None
                 sub_case = sub_case if sub_case is not None else site_case(self.case, site_id)
-                op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted)
+                if self._constants is None or self._constants[0] != k:
+                    self._constants = None  # one site's constants at a time
+                    self._constants = (k, _site_constants(sub_case, self.index))
+                needed = {}
+                for o in wanted:
+                    mask = np.zeros(len(blocks[b]), dtype=bool)
+                    mask[local[sel][options[sel] == o] - b * size] = True
+                    needed[o] = mask
+                op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted,
+                                    site_constants=self._constants[1], needed=needed)
                 self._cached = (key, op.p_kw, op.q_kvar)
             for qty in (0, 1):
                 out[qty][sel] = self._cached[1 + qty][options[sel], local[sel] - b * size]
@@ -1240,6 +1265,7 @@ class _SiteRecompute:
         state = dict(self.__dict__)
         state["_cached"] = None
         state["_request"] = None
+        state["_constants"] = None
         return state
 
 
