@@ -536,10 +536,13 @@ def test_pack_download_holds_the_workbook_report_and_records(engine):
     assert len(records) == len(view_.result(with_risk=True).plan)
 
 
+def _plan_result(status, gap, settings):
+    """A stand-in result carrying only the plan's solve status."""
+    return types.SimpleNamespace(plan_status={"status": status, "message": "m", "gap_frac": gap, "settings": settings})
+
+
 class TestPlanSolveText:
-    @staticmethod
-    def result(status, gap, settings):
-        return types.SimpleNamespace(plan_status={"status": status, "message": "m", "gap_frac": gap, "settings": settings})
+    result = staticmethod(_plan_result)
 
     def test_live_stop_says_it_was_a_live_edit_and_the_gap(self):
         text = services.plan_solve_text(self.result("time_limit", 0.0042, scenario.LIVE_PLAN))
@@ -556,9 +559,7 @@ class TestPlanSolveText:
 
 
 class TestPlanNotice:
-    @staticmethod
-    def result(status, gap, settings):
-        return types.SimpleNamespace(plan_status={"status": status, "message": "m", "gap_frac": gap, "settings": settings})
+    result = staticmethod(_plan_result)
 
     def test_a_live_plan_short_of_the_full_gap_is_flagged(self):
         text = services.plan_notice(self.result("time_limit", 0.013, scenario.LIVE_PLAN))

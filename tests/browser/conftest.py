@@ -10,6 +10,7 @@ from __future__ import annotations
 import logging
 import os
 import threading
+from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
@@ -38,28 +39,42 @@ def artifacts() -> Path:
     return ARTIFACTS
 
 
-@pytest.fixture(scope="session")
-def dash_url(tmp_path_factory):
-    """The dashboard on the demo case, served from a thread on a free port."""
+@contextmanager
+def served_dashboard(case_dir, upload_root):
+    """Serve the real app on ``case_dir`` from a thread on a free port; yield its URL.
+
+    The case's physics are computed before the first page asks; the engine in use before is restored
+    on exit.
+    """
     from werkzeug.serving import make_server
 
     from dashboard import services
     from dashboard.app import app
-    from models.io import DEMO_DIR
 
     previous = services._ENGINE
-    engine = services.use_engine(services.Engine(upload_root=tmp_path_factory.mktemp("uploads")))
-    entry, problems = engine.set_default_case(DEMO_DIR)
+    engine = services.use_engine(services.Engine(upload_root=upload_root))
+    entry, problems = engine.set_default_case(case_dir)
     assert entry is not None, problems
-    engine.physics(entry.key)  # the slow part, once for the session
+    engine.physics(entry.key)  # the slow part, once per server
     logging.getLogger("werkzeug").setLevel(logging.ERROR)
     server = make_server("127.0.0.1", 0, app.server, threaded=True)
     thread = threading.Thread(target=server.serve_forever, daemon=True)
     thread.start()
-    yield f"http://127.0.0.1:{server.server_port}"
-    server.shutdown()
-    thread.join(5)
-    services.use_engine(previous)
+    try:
+        yield f"http://127.0.0.1:{server.server_port}"
+    finally:
+        server.shutdown()
+        thread.join(5)
+        services.use_engine(previous)
+
+
+@pytest.fixture(scope="session")
+def dash_url(tmp_path_factory):
+    """The dashboard on the demo case, served from a thread on a free port."""
+    from models.io import DEMO_DIR
+
+    with served_dashboard(DEMO_DIR, tmp_path_factory.mktemp("uploads")) as url:
+        yield url
 
 
 @pytest.fixture(scope="session")

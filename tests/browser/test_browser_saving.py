@@ -9,14 +9,12 @@ page shows it as the case's own value.
 
 from __future__ import annotations
 
-import logging
 import shutil
-import threading
 from pathlib import Path
 
 import pytest
 
-from browser.conftest import Tab
+from browser.conftest import Tab, served_dashboard
 
 pytestmark = pytest.mark.browser
 
@@ -27,27 +25,9 @@ READY = "#inputs-headline-npv:not(:text-is('-'))"
 @pytest.fixture(scope="module")
 def saving_server(tmp_path_factory):
     """The dashboard on a copy of the demo case; yields (url, case folder). The previous engine is restored."""
-    from werkzeug.serving import make_server
-
-    from dashboard import services
-    from dashboard.app import app
-
     case_dir = Path(shutil.copytree(DEMO, tmp_path_factory.mktemp("saving") / "demo"))
-    previous = services._ENGINE
-    engine = services.use_engine(services.Engine(upload_root=tmp_path_factory.mktemp("saving-uploads")))
-    entry, problems = engine.set_default_case(case_dir)
-    assert entry is not None, problems
-    engine.physics(entry.key)  # the slow part, before the page asks
-    logging.getLogger("werkzeug").setLevel(logging.ERROR)
-    server = make_server("127.0.0.1", 0, app.server, threaded=True)
-    thread = threading.Thread(target=server.serve_forever, daemon=True)
-    thread.start()
-    try:
-        yield f"http://127.0.0.1:{server.server_port}", case_dir
-    finally:
-        server.shutdown()
-        thread.join(5)
-        services.use_engine(previous)
+    with served_dashboard(case_dir, tmp_path_factory.mktemp("saving-uploads")) as url:
+        yield url, case_dir
 
 
 def test_save_a_typed_discount_rate_into_the_case(sys_browser, saving_server, artifacts):
