@@ -11,6 +11,7 @@ its cost per tonne of CO2 for a marginal abatement cost curve.
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
@@ -18,6 +19,10 @@ import highspy
 import numpy as np
 import pandas as pd
 from scipy.sparse import coo_array
+
+#: Assets whose choice the first plan's improvement step re-opens on fleets larger than this (the core of
+#: the problem, picked by the linear relaxation's reduced costs; see :func:`_core_plan`).
+CORE_ASSETS = 2000
 
 _CHOSEN_COLUMNS = ["project_id", "asset_id", "start_yr", "npv", "npv_at_plan_start", "capital_in_plan_years"]
 
@@ -195,8 +200,12 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     project shifted in time: its savings, lives and horizon move with it, so its NPV at plan start is
     its own NPV discounted by the delay (the fleet's horizon effectively extends by the delay). Capital
     spent after the last plan year is not budgeted. Projects with NPV <= 0 are never chosen. The
-    problem is a multiple-choice, multi-dimensional knapsack, solved by branch and bound in HiGHS [3]
-    until the gap between the best plan found and the best bound is below ``mip_rel_gap``.
+    problem is a multiple-choice, multi-dimensional knapsack. Its linear relaxation (0 <= x <= 1) is
+    solved first: its NPV bounds every plan's, and a first plan within ``mip_rel_gap`` of it is returned
+    as proven. On fleets of more than :data:`CORE_ASSETS` assets the first plan is improved by solving
+    the core of the problem (:func:`_core_plan`) before that test. Otherwise branch and bound in HiGHS
+    [3] runs from the first plan until the gap between the best plan found and the best bound is below
+    ``mip_rel_gap``. ``time_limit_s`` covers all of these steps.
 
     References
     ----------
@@ -259,18 +268,35 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
 
     # first plans: the profitability-index plan, the given start (repaired, then filled) and the LP
     # relaxation's whole projects (filled); the best of them is the solver's first incumbent
+    deadline = time.perf_counter() + float(time_limit_s)
     starts = [_greedy_selection(data)]
     if start:
         starts.append(_greedy_selection(data, _repair(data, _selection_from(data, start))))
     relaxed = _relaxation(model, time_limit_s)
     if relaxed is not None:
         whole = np.zeros((n, years), dtype=bool)
-        whole[candidates] = (relaxed > 1.0 - 1e-9).reshape(m, years)
+        whole[candidates] = (relaxed.x > 1.0 - 1e-9).reshape(m, years)
         starts.append(_greedy_selection(data, _repair(data, whole)))
-    first = max(starts, key=lambda x_: float((x_ * data["value"][:, None] * data["delay"][None, :]).sum()))
+
+    def plan_value(x_: np.ndarray) -> float:
+        return float((x_ * data["value"][:, None] * data["delay"][None, :]).sum())
+
+    first = max(starts, key=plan_value)
+    if relaxed is not None and mip_rel_gap > 0 and asset_row.max() + 1 > CORE_ASSETS:
+        core = _core_plan(model, relaxed, asset_row, years, mip_rel_gap, 0.5 * (deadline - time.perf_counter()))
+        if core is not None:
+            x_core = np.zeros((n, years), dtype=bool)
+            x_core[candidates] = core.reshape(m, years)
+            first = max((first, x_core), key=plan_value)
+    if relaxed is not None:
+        # the relaxation's optimum bounds every plan's NPV: a first plan close enough to it is proven
+        bound_gap = _relative_gap(relaxed.npv, plan_value(first))
+        if bound_gap <= mip_rel_gap:
+            status, message = _proven(first, bound_gap, mip_rel_gap)
+            return _result(data, first, "exact", status, message, bound_gap)
 
     solver = highspy.Highs()
-    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)),
+    for name, value in (("output_flag", False), ("time_limit", max(deadline - time.perf_counter(), 1e-3)),
                         ("mip_rel_gap", float(mip_rel_gap)), ("random_seed", 0)):
         solver.setOptionValue(name, value)
     model.integrality_ = [highspy.HighsVarType.kInteger] * (m * years)
@@ -290,15 +316,11 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     x[candidates] = (np.asarray(solver.getSolution().col_value) > 0.5).reshape(m, years)
     gap = float(info.mip_gap) if np.isfinite(info.mip_gap) else float("nan")
     if status_code == highspy.HighsModelStatus.kOptimal:
-        status = "optimal"
-        message = "optimal plan" if mip_rel_gap == 0 or gap <= 1e-9 else \
-            f"plan proven within {max(gap, 0.0) * 100:.3g} % of the best possible NPV"
+        status, message = _proven(x, gap, mip_rel_gap)
     else:
         status = "time_limit"
         message = (f"best plan found before the solver stopped ({solver.modelStatusToString(status_code)}); "
                    f"within {gap * 100:.3g} % of the best possible NPV")
-    if not x.any():
-        status, message = ("empty", "no project fits the budget") if status == "optimal" else (status, message)
     return _result(data, x, "exact", status, message, max(gap, 0.0) if np.isfinite(gap) else gap)
 
 
@@ -335,7 +357,17 @@ def _dominated(data: dict[str, Any]) -> np.ndarray:
     return beaten[asset_row, slot]
 
 
-def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> np.ndarray | None:
+@dataclass(frozen=True)
+class _Relaxed:
+    """The plan's linear relaxation at its optimum: x (0..1 per column), reduced costs (of the
+    minimised form) and the NPV it reaches [currency], a bound on every plan's NPV."""
+
+    x: np.ndarray
+    reduced_cost: np.ndarray
+    npv: float
+
+
+def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> _Relaxed | None:
     """Solve the plan's linear relaxation (0 <= x <= 1); None when it has no optimal solution in time."""
     solver = highspy.Highs()
     solver.setOptionValue("output_flag", False)
@@ -344,7 +376,73 @@ def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> np.ndarray | N
     solver.run()
     if solver.getModelStatus() != highspy.HighsModelStatus.kOptimal:
         return None
-    return np.asarray(solver.getSolution().col_value, dtype=float)
+    solution = solver.getSolution()
+    return _Relaxed(np.asarray(solution.col_value, dtype=float), np.asarray(solution.col_dual, dtype=float),
+                    -float(solver.getInfo().objective_function_value))
+
+
+def _relative_gap(bound: float, value: float) -> float:
+    """(bound - value) / |value| [frac], >= 0; 0 when both are 0, inf when only the value is."""
+    if bound - value <= 1e-12 * max(abs(bound), 1.0):
+        return 0.0
+    return (bound - value) / abs(value) if value != 0 else float("inf")
+
+
+def _proven(x: np.ndarray, gap_frac: float, mip_rel_gap: float) -> tuple[str, str]:
+    """Status and message of a plan proven within ``gap_frac`` of the best possible NPV."""
+    if not x.any():
+        return "empty", "no project fits the budget"
+    if mip_rel_gap == 0 or gap_frac <= 1e-9:
+        return "optimal", "optimal plan"
+    return "optimal", f"plan proven within {max(gap_frac, 0.0) * 100:.3g} % of the best possible NPV"
+
+
+def _core_plan(model: "highspy.HighsLp", relaxed: _Relaxed, asset_row: np.ndarray, years: int,
+               mip_rel_gap: float, time_limit_s: float) -> np.ndarray | None:
+    """A plan that re-opens only the core of the problem: 0-1 per column, or None when none is found.
+
+    The relaxation's optimum is nearly whole (at most one fractional asset per budget year); what the
+    best plan changes from it lies among the choices whose reduced cost is close to zero. The
+    :data:`CORE_ASSETS` assets owning the columns of smallest reduced cost (and every asset with a
+    fractional column) keep all their options free; every other asset keeps the relaxation's whole
+    choice. The smaller programme is solved by the same solver until its plan is within a little less
+    than ``mip_rel_gap`` of the relaxation's NPV, or for ``time_limit_s``. This is the core idea of
+    knapsack algorithms [1]; the plan it gives is feasible for the whole problem and is only a first
+    plan: how far it is from the best is judged against the whole relaxation.
+
+    References
+    ----------
+    .. [1] H. Kellerer, U. Pferschy and D. Pisinger, *Knapsack Problems*. Berlin: Springer, 2004,
+       Sec. 5.4 (the core concept) and Sec. 11.2 (multiple-choice knapsack).
+    """
+    if time_limit_s <= 0:
+        return None
+    x_lp = relaxed.x
+    column_asset = np.repeat(asset_row, years)
+    fractional = (x_lp > 1e-9) & (x_lp < 1.0 - 1e-9)
+    nearest = np.argsort(np.abs(relaxed.reduced_cost), kind="stable")[:CORE_ASSETS]
+    core = np.zeros(asset_row.max() + 1, dtype=bool)
+    core[column_asset[nearest]] = True
+    core[column_asset[fractional]] = True
+    fixed = ~core[column_asset]
+    held = np.where(x_lp > 1.0 - 1e-9, 1.0, 0.0)
+    sub = highspy.HighsLp()
+    sub.num_col_, sub.num_row_ = model.num_col_, model.num_row_
+    sub.col_cost_ = model.col_cost_
+    sub.col_lower_ = np.where(fixed, held, 0.0)
+    sub.col_upper_ = np.where(fixed, held, 1.0)
+    sub.row_lower_, sub.row_upper_ = model.row_lower_, model.row_upper_
+    sub.a_matrix_ = model.a_matrix_
+    sub.integrality_ = [highspy.HighsVarType.kInteger] * model.num_col_
+    solver = highspy.Highs()
+    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)), ("mip_rel_gap", 0.0),
+                        ("mip_abs_gap", 0.9 * mip_rel_gap * abs(relaxed.npv)), ("random_seed", 0)):
+        solver.setOptionValue(name, value)
+    solver.passModel(sub)
+    solver.run()
+    if solver.getInfo().primal_solution_status == 0:
+        return None
+    return np.asarray(solver.getSolution().col_value) > 0.5
 
 
 def _selection_from(data: dict[str, Any], start: Mapping[str, int]) -> np.ndarray:

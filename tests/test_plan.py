@@ -200,6 +200,93 @@ class TestAgainstBruteForce:
         assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.1), rtol=1e-9)
 
 
+class TestProofByRelaxation:
+    """A first plan within the asked gap of the linear relaxation's NPV is proven without branching; on
+    fleets larger than the core, a core programme improves the first plan."""
+
+    @staticmethod
+    def counting_runs(monkeypatch):
+        runs = []
+        original = plan.highspy.Highs.run
+
+        def run(self):
+            runs.append(1)
+            return original(self)
+
+        monkeypatch.setattr(plan.highspy.Highs, "run", run)
+        return runs
+
+    def test_whole_relaxation_is_proven_by_its_own_bound(self, monkeypatch):
+        # Hand calculation, finance-plan.md "The relaxation's bound": budget 100 holds a/1 (60, 50) and
+        # b/1 (50, 50) whole; the relaxation's optimum is that plan, 110 = its own bound, gap 0.
+        runs = self.counting_runs(monkeypatch)
+        result = plan.plan_exact(["a/1", "b/1"], ["a", "b"], [60.0, 50.0], [50.0, 50.0], [100.0], 0.08)
+        assert sorted(result.chosen["project_id"]) == ["a/1", "b/1"]
+        assert_allclose(result.total_npv, 110.0, rtol=1e-12)
+        assert result.status == "optimal" and result.gap_frac == 0.0 and result.message == "optimal plan"
+        assert len(runs) == 1  # the relaxation only: no branch and bound
+
+    def test_fractional_relaxation_goes_on_to_branching(self, monkeypatch):
+        # Hand calculation, finance-plan.md "The relaxation's bound": budget 120 holds a/1 and b/1 whole
+        # (100 of capital, NPV 110) and 20/50 of the step from a/1 to a/2 (+30 NPV for +50 capital):
+        # bound 110 + 0.4 x 30 = 122 > 110, so proving {a/1, b/1} optimal needs branch and bound.
+        runs = self.counting_runs(monkeypatch)
+        result = plan.plan_exact(["a/1", "a/2", "b/1"], ["a", "a", "b"], [60.0, 90.0, 50.0], [50.0, 100.0, 50.0],
+                                 [120.0], 0.08, **EXACT)
+        assert_allclose(result.total_npv, 110.0, rtol=1e-12)
+        assert result.status == "optimal" and result.gap_frac == 0.0
+        assert len(runs) == 2  # the relaxation, then branch and bound
+
+    def test_reported_gap_is_honest(self):
+        # Independent check: the optimum proven by branch and bound (gap 0); the loose plan's reported gap
+        # must cover its real distance to that optimum.
+        rng = np.random.default_rng(5)
+        assets = np.repeat([f"a{k}" for k in range(60)], 3)
+        ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+        value = rng.uniform(1, 100, assets.size)
+        spend = rng.uniform(10, 100, (assets.size, 1))
+        args = (ids, assets, value, spend, [800.0, 800.0, 800.0], 0.08)
+        best = plan.plan_exact(*args, **EXACT).total_npv
+        for gap in (1e-2, 1e-3, 1e-4):
+            loose = plan.plan_exact(*args, mip_rel_gap=gap)
+            assert 0.0 <= loose.gap_frac <= gap
+            assert (best - loose.total_npv) / loose.total_npv <= loose.gap_frac + 1e-12
+
+    def test_core_programme_on_a_fleet_larger_than_the_core(self, monkeypatch):
+        # A core of 10 assets on a seeded fleet of 80 assets x 3 options x 3 plan years, capital spread
+        # over two years: the core step runs, its plan keeps every budget, and the plan is within the
+        # asked gap of the optimum proven by branch and bound (gap 0, no core step).
+        rng = np.random.default_rng(11)
+        assets = np.repeat([f"a{k}" for k in range(80)], 3)
+        ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+        value = rng.uniform(1, 100, assets.size)
+        spend = rng.uniform(10, 100, (assets.size, 2))
+        budget = np.array([1000.0, 1000.0, 600.0])
+        args = (ids, assets, value, spend, budget, 0.08)
+        best = plan.plan_exact(*args, **EXACT).total_npv
+        calls = []
+        original = plan._core_plan
+
+        def core_plan(*a, **k):
+            calls.append(original(*a, **k))
+            return calls[-1]
+
+        monkeypatch.setattr(plan, "CORE_ASSETS", 10)
+        monkeypatch.setattr(plan, "_core_plan", core_plan)
+        result = plan.plan_exact(*args, mip_rel_gap=1e-3)
+        assert len(calls) == 1 and calls[0] is not None
+        assert np.all(result.spend_by_year <= budget + 1e-6)
+        assert result.chosen["asset_id"].is_unique
+        assert (best - result.total_npv) / result.total_npv <= result.gap_frac + 1e-12 <= 1e-3 + 1e-12
+
+    def test_relative_gap(self):
+        # hand calculation: (110 - 100) / 100 = 0.1; a plan at its bound has gap 0; bound 5 over a plan
+        # worth 0 is an infinite relative gap
+        assert plan._relative_gap(110.0, 100.0) == pytest.approx(0.1, rel=1e-12)
+        assert plan._relative_gap(100.0, 100.0) == 0.0
+        assert plan._relative_gap(5.0, 0.0) == float("inf")
+
+
 class TestDominatedOptions:
     def test_dominated_options_are_found(self):
         # hand calculation: asset a has (NPV, capital) a/1 (60, 50), a/2 (50, 50), a/3 (60, 40), a/4 (90, 100);
