@@ -12,6 +12,7 @@ a duty table or annual hours are evaluated per load state and reach the meter as
 from __future__ import annotations
 
 import os
+import threading
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -731,7 +732,7 @@ def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
                    today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None,
-                   needed: dict | None = None) -> OperatingResult:
+                   needed: dict | None = None, power_only: bool = False) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
@@ -745,7 +746,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     calibrated motors are sliced from the site's instead of computed for the block. With ``needed``
     (option position -> bool per block asset, with ``wanted``) a tabulated option's per-interval values
     are written for those assets only (the others' rows of that option are left undefined); the
-    evaluation itself runs on the same assets as without it, so the values written are the same.
+    evaluation itself runs on the same assets as without it, so the values written are the same. With
+    ``power_only`` only the per-interval ``p_kw`` and ``q_kvar`` are computed (yearly values and flags
+    are left at zero or empty), for callers that read nothing else.
     """
     from dataclasses import replace
 
@@ -840,6 +843,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         else:
             p_kw[o, idx] = ((pt.p_kw * w).sum(axis=1) / year_h)[:, None]
             q_kvar[o, idx] = ((pt.q_kvar * w).sum(axis=1) / year_h)[:, None]
+        if power_only:
+            return
         if kind == "interval":  # every interval weighs interval_h: sum, then scale
             energy[idx, o] = pt.p_kw.sum(axis=1) * interval_h
             shaft_energy[idx, o] = pt.shaft_kw.sum(axis=1) * interval_h
@@ -885,21 +890,19 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             return tabulation.tables(values if ok.all() else values[ok])
 
         at = _as_slice(idx)
-        for target, name in ((p_kw, "p_kw"), (q_kvar, "q_kvar")):
-            base, rise = tables_of(getattr(pt, name))
-            if whole and isinstance(at, slice):
-                values = tabulation.interpolate(grid, base, rise, out=target[o, at])
-            else:
-                values = tabulation.interpolate(grid, base, rise, rows=sel if sel is not None else np.arange(len(good)))
-                target[o, idx] = values
-            if name == "p_kw":
-                energy[idx, o] = tabulation.weighted_sums(grid, base, rise, rows=sel)
-            else:
-                part = np.maximum(values, 0.0)
-                lag[idx, o] = part.sum(axis=1) * interval_h
-                np.negative(values, out=part)
-                np.maximum(part, 0.0, out=part)
-                lead[idx, o] = part.sum(axis=1) * interval_h
+        p_tables, q_tables = tables_of(pt.p_kw), tables_of(pt.q_kvar)
+        if whole and isinstance(at, slice):
+            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o, at], out_b=q_kvar[o, at])
+        else:
+            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables,
+                                               rows=sel if sel is not None else np.arange(len(good)))
+            p_kw[o, idx] = pair.a
+            q_kvar[o, idx] = pair.b
+        if power_only:
+            return
+        energy[idx, o] = tabulation.weighted_sums(grid, *p_tables, rows=sel)
+        lag[idx, o] = pair.b_positive_sum * interval_h
+        lead[idx, o] = pair.b_negative_sum * interval_h
         shaft_energy[idx, o] = tabulation.weighted_sums(grid, *tables_of(pt.shaft_kw), rows=sel)
         for k, loss in enumerate((pt.loss_motor_kw, pt.loss_drive_kw, pt.loss_excitation_kw)):
             losses[idx, o, k] = 0.0 if loss is None else tabulation.weighted_sums(grid, *tables_of(loss), rows=sel)
@@ -1202,8 +1205,10 @@ _PER_ASSET_FIELDS = ("asset_ids", "site_ids", "applies", "reason", "energy_kwh",
 class _SiteRecompute:
     """Recomputes per-interval power of some options for some assets, block by block, on demand.
 
-    Each block of a site is run again exactly as in the full run (same assets, same site totals of
-    today's motors), for the options asked for only, so the values are the full run's. The latest
+    Threads may ask for different sites at once: each keeps its own cache. Each block of a site is run
+    again exactly as in the full run (same assets, same site totals of
+    today's motors), for the options asked for only and for their per-interval power only, so the values
+    are the full run's; today's motors are taken from the full run's arrays, not run again. The latest
     block's result is kept, and so are both quantities of the latest request: asking for the kVAr of
     the rows whose kW were just asked for (a site meter takes both) runs no block again.
     """
@@ -1218,9 +1223,31 @@ class _SiteRecompute:
             self.local[rows] = np.arange(len(rows))
         self.today_p: np.ndarray | None = None  # set by the merger: today's motors, every asset
         self.today_q: np.ndarray | None = None
-        self._cached: tuple | None = None
-        self._request: tuple | None = None  # (k, options, local), p_kw rows, q_kvar rows
-        self._constants: tuple | None = None  # (k, _site_constants of site k)
+        self._local = threading.local()  # each thread keeps its own latest block, request and site
+
+    @property
+    def _cached(self) -> tuple | None:  # (key, p_kw, q_kvar) of the latest block run
+        return getattr(self._local, "cached", None)
+
+    @_cached.setter
+    def _cached(self, value) -> None:
+        self._local.cached = value
+
+    @property
+    def _request(self) -> tuple | None:  # ((k, options, local), p_kw rows, q_kvar rows)
+        return getattr(self._local, "request", None)
+
+    @_request.setter
+    def _request(self, value) -> None:
+        self._local.request = value
+
+    @property
+    def _constants(self) -> tuple | None:  # (k, _site_constants of site k)
+        return getattr(self._local, "constants", None)
+
+    @_constants.setter
+    def _constants(self, value) -> None:
+        self._local.constants = value
 
     def values(self, k: int, options: np.ndarray, local: np.ndarray, quantity: int) -> np.ndarray:
         """Rows (options[i], local[i]) of site k, shape (len(options), n_steps)."""
@@ -1253,8 +1280,12 @@ class _SiteRecompute:
                     mask = np.zeros(len(blocks[b]), dtype=bool)
                     mask[local[sel][options[sel] == o] - b * size] = True
                     needed[o] = mask
+                positions = rows[blocks[b]]
+                zeros = np.zeros(len(positions))
+                today = _TodayOfBlock(self.today_p[positions], self.today_q[positions], zeros, zeros,
+                                      np.zeros((len(positions), len(LOSS_KINDS))), zeros, zeros, zeros, zeros, [])
                 op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted,
-                                    site_constants=self._constants[1], needed=needed)
+                                    site_constants=self._constants[1], needed=needed, today=today, power_only=True)
                 self._cached = (key, op.p_kw, op.q_kvar)
             for qty in (0, 1):
                 out[qty][sel] = self._cached[1 + qty][options[sel], local[sel] - b * size]
@@ -1263,10 +1294,12 @@ class _SiteRecompute:
 
     def __getstate__(self):
         state = dict(self.__dict__)
-        state["_cached"] = None
-        state["_request"] = None
-        state["_constants"] = None
+        del state["_local"]  # caches stay behind
         return state
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        self._local = threading.local()
 
 
 class SiteIntervalStore:

@@ -111,6 +111,12 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     [1.0, 1.0, 3.0, 3.0]
     """
     zone = index.tz
+    if len(series) == len(index) and len(index) and series.index.tz is not None and bool((series.index == index).all()):
+        # already on the analysis index (the common case of a year of data at the analysis step)
+        values = series.to_numpy(dtype=float).copy()
+        missing = np.isnan(values)
+        if not missing.any():
+            return values, 0.0
     s = series.copy()
     s.index = s.index.tz_convert(zone)
     step_min = (index[1] - index[0]).total_seconds() / 60 if len(index) > 1 else 60.0

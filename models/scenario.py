@@ -829,6 +829,6 @@ def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame, price_factor:
     """
     setups = site_setups(case, op.index)
     choice = plan_choice(op, plan_frame)
-    _, after = meter_and_bills(case, op, choice, setups)
+    _, after = meter_and_bills(case, op, choice, setups, threads=PHYSICS_THREADS)
     after = _bill_lines_at_price_level(after, price_factor, case.settings.currency)
     return pd.concat([base.assign(scenario="baseline"), after.assign(scenario="plan")], ignore_index=True)

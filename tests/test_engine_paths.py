@@ -584,13 +584,16 @@ class TestCompactStore:
         choice = _plan_choice(dense.operation)
         assert len(set(choice.tolist()) - {0}) >= 4 and (choice == 0).any()
 
-    @pytest.mark.parametrize("plan", [False, True])
-    def test_site_meters_and_bills_equal_the_dense_ones(self, case, dense, compact, plan):
+    @pytest.mark.parametrize("plan, threads", [(False, 1), (True, 1), (True, 2)])
+    def test_site_meters_and_bills_equal_the_dense_ones(self, case, dense, compact, plan, threads):
+        # with two threads, two sites are recomputed at once, each thread with its own cache
         d, c = dense.operation, compact.operation
         assert isinstance(c.p_kw, operation.SiteIntervalStore) and isinstance(d.p_kw, np.ndarray)
+        assert len(np.unique(d.site_ids)) >= 2
         choice = _plan_choice(d) if plan else np.zeros(len(d.asset_ids), dtype=int)
         meters_d, bills_d = meter_and_bills(case, d, choice)
-        meters_c, bills_c = meter_and_bills(case, c, choice)
+        meters_c, bills_c = meter_and_bills(case, c, choice, threads=threads)
+        assert list(meters_c) == list(meters_d)
         for site_id, meter in meters_d.items():
             assert_array_equal(meters_c[site_id].p_kw, meter.p_kw, err_msg=site_id)
             assert_array_equal(meters_c[site_id].q_kvar, meter.q_kvar, err_msg=site_id)
