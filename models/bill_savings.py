@@ -13,6 +13,7 @@ from __future__ import annotations
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -151,26 +152,38 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
 def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr.
 
-    An option changes an asset when the largest |difference| from today's values is above 0 (a row with
-    a NaN difference counts as unchanged, as NaN compares false). For finite values that is "some value
-    differs", tested with one comparison per element.
+    An option changes an asset when the largest |difference| from today's kW, or from today's kVAr, is
+    above 0 (a quantity with a NaN difference in some interval counts as unchanged, as NaN compares
+    false); for finite values, when some value differs. One compiled pass over the block.
     """
-    n_o, n_s = p_site.shape[0], p_site.shape[1]
-    changed = np.zeros((n_s, n_o), dtype=bool)
-    finite = billing._all_finite(p_site) and billing._all_finite(q_site)
-    for o in range(1, n_o):
-        rows = np.flatnonzero(applies[:, o])
-        if not len(rows):
-            continue
-        at = slice(None) if len(rows) == n_s else rows
-        if finite:
-            changed[rows, o] = ((p_site[o, at] != p_site[0, at]).any(axis=1)
-                                | (q_site[o, at] != q_site[0, at]).any(axis=1))
-        else:
-            changed[rows, o] = ((np.abs(p_site[o, at] - p_site[0, at]).max(axis=1) > 0)
-                                | (np.abs(q_site[o, at] - q_site[0, at]).max(axis=1) > 0))
+    p_site, q_site = np.asarray(p_site, dtype=float), np.asarray(q_site, dtype=float)
+    changed = _changed_kernel(p_site, q_site, np.ascontiguousarray(applies, dtype=bool))
     js, os_ = np.nonzero(changed)
     return js, os_
+
+
+@numba.njit(nogil=True, cache=True)
+def _changed_kernel(p, q, applies):  # pragma: no cover - compiled
+    n_o, n_s, n_t = p.shape
+    out = np.zeros((n_s, n_o), dtype=np.bool_)
+    for o in range(1, n_o):
+        for j in range(n_s):
+            if not applies[j, o]:
+                continue
+            differs_p, nan_p, differs_q, nan_q = False, False, False, False
+            for t in range(n_t):
+                dp = p[o, j, t] - p[0, j, t]
+                dq = q[o, j, t] - q[0, j, t]
+                if dp != dp:
+                    nan_p = True
+                elif dp != 0.0:
+                    differs_p = True
+                if dq != dq:
+                    nan_q = True
+                elif dq != 0.0:
+                    differs_q = True
+            out[j, o] = (differs_p and not nan_p) or (differs_q and not nan_q)
+    return out
 
 
 def tariff_depends_on_kvar(tariff) -> bool:

@@ -17,6 +17,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable, Literal
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -807,21 +808,50 @@ class PaybackResult:
 def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: bool = False) -> PaybackResult:
     """First crossing of the cumulative flow to >= 0, interpolated linearly inside the year.
 
-    With ``overwrite`` the running sum is built in ``c`` itself (no second array of its size)."""
-    scale = np.maximum(np.max(c, axis=-1), -np.min(c, axis=-1))[..., None]
-    cumulative = np.cumsum(c, axis=-1, out=c if overwrite else None)
-    reached = cumulative >= -1e-12 * scale
-    first = np.argmax(reached, axis=-1)
-    within = np.take_along_axis(reached, first[..., None], axis=-1)[..., 0]
-    at = np.take_along_axis(cumulative, first[..., None], axis=-1)[..., 0]
-    before = np.take_along_axis(cumulative, np.maximum(first - 1, 0)[..., None], axis=-1)[..., 0]
-    flow = np.where(first == 0, at, at - before)  # the flow of the crossing year
-    with np.errstate(divide="ignore", invalid="ignore"):
-        part = np.clip(-before / np.where(flow > 0, flow, 1.0), 0.0, 1.0)
-    years = np.where(first == 0, 0.0, first - 1.0 + part)
-    years = np.where(within, years, np.inf)
-    return PaybackResult(payback_yr=wrap(np.asarray(years), "payback_yr"),
-                         within_horizon=wrap(np.asarray(within), "within_horizon"))
+    One compiled pass per row of the last axis (:func:`_payback_rows`); nothing is written to ``c``
+    (``overwrite`` is accepted for callers that allow it)."""
+    c = np.asarray(c, dtype=float)
+    rows = np.ascontiguousarray(c).reshape(-1, c.shape[-1]) if c.ndim else c.reshape(1, 1)
+    years = np.empty(rows.shape[0])
+    within = np.empty(rows.shape[0], dtype=bool)
+    _payback_rows(rows, years, within)
+    shape = c.shape[:-1] if c.ndim else ()
+    return PaybackResult(payback_yr=wrap(years.reshape(shape), "payback_yr"),
+                         within_horizon=wrap(within.reshape(shape), "within_horizon"))
+
+
+@numba.njit(nogil=True, cache=True)
+def _payback_rows(flows, years, within):  # pragma: no cover - compiled
+    """Per row: the running sum S_t = S_(t-1) + CF_t (in order, as numpy.cumsum) reaches -1e-12 x the
+    largest |CF| at year t: payback 0 for t = 0, else (t - 1) + clip(-S_(t-1) / (S_t - S_(t-1)), 0, 1)
+    (the divisor 1 where it is not positive); inf and not within the horizon when it never does or a
+    flow is NaN."""
+    n, m = flows.shape
+    for i in range(n):
+        hi, lo, nan = -np.inf, np.inf, False
+        for t in range(m):
+            v = flows[i, t]
+            if v != v:
+                nan = True
+            hi = max(hi, v)
+            lo = min(lo, v)
+        years[i], within[i] = np.inf, False
+        if nan or m == 0:
+            continue
+        tolerance = -1e-12 * max(hi, -lo)
+        total, before = 0.0, 0.0
+        for t in range(m):
+            before = total
+            total = flows[i, t] if t == 0 else total + flows[i, t]
+            if total >= tolerance:
+                within[i] = True
+                if t == 0:
+                    years[i] = 0.0
+                else:
+                    flow = total - before
+                    part = -before / (flow if flow > 0.0 else 1.0)
+                    years[i] = (t - 1.0) + min(max(part, 0.0), 1.0)
+                break
 
 
 def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:

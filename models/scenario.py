@@ -494,8 +494,9 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     results["best_for_asset"] = _best_flags(results)
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)
-    cash = pd.DataFrame({"asset_id": pd.array(op.asset_ids[rows][code].astype(str), dtype="str"),
-                         "option_id": pd.array(op.option_ids[cols][code].astype(str), dtype="str"),
+    # labels made once per project and gathered per row (a text array of every row costs ten times more)
+    cash = pd.DataFrame({"asset_id": pd.array(op.asset_ids[rows].astype(str), dtype="str").take(code),
+                         "option_id": pd.array(op.option_ids[cols].astype(str), dtype="str").take(code),
                          "year": cash["year"].astype(int), "component": cash["component"], "amount": cash["amount"]})
 
     step("fleet plan")

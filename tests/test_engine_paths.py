@@ -788,6 +788,14 @@ class TestChangedPairs:
         js, os_ = _changed_pairs(p, q, applies)
         assert list(zip(js.tolist(), os_.tolist())) == [(1, 3), (3, 2)] == _reference_pairs(p, q, applies)
 
+    def test_a_nan_in_the_kw_leaves_a_kvar_change_counted(self):
+        # the rule holds per quantity: option 3 of asset 1 changes the kVAr (arrays()); a NaN in its kW
+        # makes the kW count as unchanged, not the kVAr
+        p, q, applies, _ = self.arrays()
+        p[3, 1, 9] = np.nan
+        js, os_ = _changed_pairs(p, q, applies)
+        assert list(zip(js.tolist(), os_.tolist())) == [(1, 3), (3, 2)] == _reference_pairs(p, q, applies)
+
     def test_random_arrays_agree_with_plain_numpy(self):
         rng = np.random.default_rng(8)
         n_o, n_a, n_t = 6, 9, 30

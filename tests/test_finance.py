@@ -337,6 +337,45 @@ class TestPayback:
         assert discounted >= simple - 1e-9
 
 
+def _payback_by_plain_numpy(c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The payback rule in plain numpy, array by array (reference for the compiled pass)."""
+    scale = np.maximum(np.max(c, axis=-1), -np.min(c, axis=-1))[..., None]
+    cumulative = np.cumsum(c, axis=-1)
+    reached = cumulative >= -1e-12 * scale
+    first = np.argmax(reached, axis=-1)
+    within = np.take_along_axis(reached, first[..., None], axis=-1)[..., 0]
+    at = np.take_along_axis(cumulative, first[..., None], axis=-1)[..., 0]
+    before = np.take_along_axis(cumulative, np.maximum(first - 1, 0)[..., None], axis=-1)[..., 0]
+    flow = np.where(first == 0, at, at - before)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        part = np.clip(-before / np.where(flow > 0, flow, 1.0), 0.0, 1.0)
+    years = np.where(first == 0, 0.0, first - 1.0 + part)
+    return np.where(within, years, np.inf), within
+
+
+class TestPaybackPass:
+    """The compiled payback pass gives the plain numpy rule's numbers, bit for bit."""
+
+    def test_seeded_flows_of_every_kind(self):
+        rng = np.random.default_rng(21)
+        flows = rng.normal(0, 100, (500, 4, 12))
+        flows[:, :, 0] -= rng.uniform(0, 600, (500, 4))  # outlays
+        flows[::7, :, 5] -= 800.0                         # repeat purchases
+        flows[::11] = np.round(flows[::11], 0)            # exact break-evens
+        flows[3, 1] = 0.0                                 # nothing at all
+        result = fin.simple_payback(flows)
+        years, within = _payback_by_plain_numpy(flows)
+        assert np.array_equal(result.payback_yr, years) and np.array_equal(result.within_horizon, within)
+
+    @settings(max_examples=150, deadline=None)
+    @given(st.lists(st.floats(-1e4, 1e4), min_size=1, max_size=30))
+    def test_any_flows(self, flows):
+        flows = np.array(flows)
+        result = fin.simple_payback(flows)
+        years, within = _payback_by_plain_numpy(flows)
+        assert result.payback_yr == years and result.within_horizon == within
+
+
 class TestSirAirr:
     def test_sir_hand(self):
         # Hand calculation, finance-metrics.md section 3: 300 x UPV(5 %, 5) / 1000 = 1.298843 (7 digits).
