@@ -738,8 +738,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
     block's own totals (the block is the whole site). With ``only_today`` only today's motors run; with
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
-    its own, so the values are those of a full run; the others' per-interval rows are left at zero and
-    their yearly values undefined). With ``buffers`` (every
+    its own, so the values are those of a full run; the others' per-interval rows and yearly values are
+    left undefined). With ``buffers`` (every
     option run) the per-interval arrays are views of those buffers, every element written by this call.
     With ``today`` (a first pass's result for the same block) today's motors are not run again. With
     ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
@@ -805,8 +805,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         # or, where it does not apply, by today's values), so reused memory needs no clearing
         p_kw, q_kvar = buffers.views(1 if only_today else n_o, n_a, n_t)
     else:
-        p_kw = np.zeros((1 if only_today else n_o, n_a, n_t))
-        q_kvar = np.zeros((1 if only_today else n_o, n_a, n_t))
+        # uninitialised memory: every element read later is written below (a zeroed array would cost a
+        # page fault and a clearing per page on first touch, several times one pass)
+        p_kw = np.empty((1 if only_today else n_o, n_a, n_t))
+        q_kvar = np.empty((1 if only_today else n_o, n_a, n_t))
     energy = np.zeros((n_a, n_o))
     shaft_energy = np.zeros((n_a, n_o))
     losses = np.zeros((n_a, n_o, len(LOSS_KINDS)))
@@ -1103,8 +1105,8 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
         part = _operate_block(case, index, np.arange(n), buffers=buffers)
         yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
         return
-    base_p = np.zeros((n, len(index)))
-    base_q = np.zeros((n, len(index)))
+    base_p = np.empty((n, len(index)))  # every row written by its block below
+    base_q = np.empty((n, len(index)))
     today = []
     constants = _site_constants(case, index)
     for rows in blocks:
@@ -1130,9 +1132,11 @@ class _Merger:
         self.fields: dict[str, np.ndarray] = {}
         self.flags: list[pd.DataFrame] = []
         self.flag_pos: list[np.ndarray] = []
+        self.added = 0  # assets received so far
 
     def add(self, rows: np.ndarray, part: OperatingResult) -> None:
         at = _as_slice(rows)
+        self.added += len(rows)
         adopted = False
         if self.first is None:
             self.first = part
@@ -1145,8 +1149,9 @@ class _Merger:
                 self.fields["p_kw"], self.fields["q_kvar"] = interval
                 adopted = True
             else:
-                self.fields["p_kw"] = np.zeros(shape)
-                self.fields["q_kvar"] = np.zeros(shape)
+                # every row is written by the part holding it (see result())
+                self.fields["p_kw"] = np.empty(shape)
+                self.fields["q_kvar"] = np.empty(shape)
             for name in _PER_ASSET_FIELDS:
                 value = getattr(part, name)
                 self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
@@ -1166,6 +1171,8 @@ class _Merger:
             self.flag_pos.append(part.flags["asset_id"].map(positions).to_numpy(dtype=int))
 
     def result(self) -> OperatingResult:
+        if self.added != self.n_a:  # the per-interval arrays are not cleared: every asset must have come
+            raise RuntimeError(f"the parts held {self.added} assets of {self.n_a}")
         first = self.first
         f = self.fields
         flags = pd.DataFrame(columns=["asset_id", "option_id", "flag"])
