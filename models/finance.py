@@ -779,7 +779,7 @@ def mirr(cash_flows: Any, finance_rate_frac: Any, reinvest_rate_frac: Any) -> An
     t = np.arange(n + 1, dtype=float)
     pv_out = -(np.minimum(c, 0.0) * np.power(1.0 + f, -t)).sum(axis=-1)
     fv_in = (np.maximum(c, 0.0) * np.power(1.0 + re, n - t)).sum(axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # a ratio beyond float range is +inf
         out = np.where(pv_out > 0, np.power(fv_in / np.where(pv_out > 0, pv_out, 1.0), 1.0 / n) - 1.0,
                        np.where(fv_in > 0, np.inf, -1.0))
     return wrap(np.asarray(out), "mirr_frac")

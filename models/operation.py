@@ -590,6 +590,10 @@ TABLE_NODES = 129
 TABLE_TOLERANCE_FRAC = 1e-5
 #: Tabulate only when an asset has at least this many intervals (below, evaluating them is as cheap).
 TABLE_MIN_STEPS = 8 * TABLE_NODES
+#: Grid nodes of the second, finer grid tried for a row whose curve bends too sharply for the first (a
+#: kink's error falls with the cell width, a smooth curve's with its square); used for profiles of at
+#: least 8 x this many intervals; rows that still fail are evaluated per interval.
+FINE_TABLE_NODES = 4 * (TABLE_NODES - 1) + 1
 #: Tabulate the machine models where it pays (False: evaluate every interval, the reference path).
 TABULATE = True
 
@@ -872,8 +876,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             flags.append({"asset_id": asset_ids[idx[i]], "option_id": option_ids[o], "flag": text})
 
     def store_tabulated(o: int, rows_: np.ndarray, sub: np.ndarray, ok: np.ndarray, pt: _Point,
-                        grid: tabulation.Grid) -> None:
-        """Store the rows ``sub[ok]`` of a group from the option's values on their grid ``pt`` (rows ``sub``)."""
+                        grid: tabulation.Grid, at_grid: np.ndarray | None = None) -> None:
+        """Store the rows ``sub[ok]`` of a group from the option's values on their grid ``pt`` (rows ``sub``,
+        rows ``at_grid`` of the grid; default the same positions)."""
+        at_grid = sub if at_grid is None else at_grid
         if needed is not None and o in needed:  # rows nobody will read are not interpolated
             keep = np.asarray(needed[o])[rows_[sub]]
             if not keep.all():
@@ -881,11 +887,11 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                     return
                 pt = _Point(*(None if v is None else np.broadcast_to(v, pt.p_kw.shape)[keep]
                               for v in (getattr(pt, name) for name in _POINT_ARRAYS)), flags=[])
-                sub, ok = sub[keep], ok[keep]
+                sub, ok, at_grid = sub[keep], ok[keep], at_grid[keep]
         good = sub[ok]
         idx = rows_[good]
-        whole = bool(ok.all()) and _covers(sub, grid.cell.shape[0])
-        sel = None if whole else good
+        whole = bool(ok.all()) and _covers(at_grid, grid.cell.shape[0])
+        sel = None if whole else at_grid[ok]
 
         def tables_of(values):
             values = np.broadcast_to(values, pt.p_kw.shape)
@@ -897,7 +903,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o, at], out_b=q_kvar[o, at])
         else:
             pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables,
-                                               rows=sel if sel is not None else np.arange(len(good)))
+                                               rows=sel if sel is not None else np.arange(len(good)))  # whole grid
             p_kw[o, idx] = pair.a
             q_kvar[o, idx] = pair.b
         if power_only:
@@ -928,11 +934,28 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         flat.flags = _point_flags(pt)
         if ok.any():
             store_tabulated(o, rows_, sub, ok, flat, grid)
-        if not ok.all():  # the curve bends too sharply for the grid: every interval of those rows
-            bad = np.flatnonzero(~ok)
-            load_b = load_s.rows(bad)
-            store(o, kind, rows_, sub[bad], _evaluate(option, _take(arr_s, bad), _take_params(existing_s, bad), load_b),
-                  load_b)
+        if ok.all():
+            return
+        # the curve bends too sharply for the grid: a finer grid for those rows, then every interval
+        bad = np.flatnonzero(~ok)
+        load_b, arr_b, existing_b = load_s.rows(bad), _take(arr_s, bad), _take_params(existing_s, bad)
+        if load_b.p_ref_kw.shape[1] >= 8 * FINE_TABLE_NODES:
+            fine = tabulation.locate(load_b.p_ref_kw, load_b.running, interval_h, FINE_TABLE_NODES)
+            fine_load = _grid_load(existing_b, load_b, fine)
+            if grid_load.controlled is not None:
+                fine_load.controlled = _speed_controlled(arr_b, fine_load)
+            pt_fine = _evaluate(option, arr_b, existing_b, fine_load)
+            flat_fine = _whole(pt_fine)
+            ok_fine = _tabulation_holds(flat_fine, arr_b)
+            flat_fine.flags = _point_flags(pt_fine)
+            if ok_fine.any():
+                store_tabulated(o, rows_, sub[bad], ok_fine, flat_fine, fine, at_grid=np.arange(len(bad)))
+            if ok_fine.all():
+                return
+            still = np.flatnonzero(~ok_fine)
+            bad = bad[still]
+            load_b, arr_b, existing_b = load_b.rows(still), _take(arr_b, still), _take_params(existing_b, still)
+        store(o, kind, rows_, sub[bad], _evaluate(option, arr_b, existing_b, load_b), load_b)
 
     # today's motors first
     for kind, rows_, arr, existing, load in groups:

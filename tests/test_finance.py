@@ -268,7 +268,8 @@ class TestMirr:
     def test_matches_numpy_financial(self, flows, finance, reinvest):
         # numpy-financial 1.0.0 as independent reference; it returns NaN where we return a sentinel.
         ours = fin.mirr(flows, finance, reinvest)
-        reference = npf.mirr(flows, finance, reinvest)
+        with np.errstate(over="ignore"):  # a tiny outflow overflows the reference's ratio to inf, as ours
+            reference = npf.mirr(flows, finance, reinvest)
         if math.isnan(reference):
             assert ours == np.inf or ours == -1.0
         else:

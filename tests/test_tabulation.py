@@ -195,6 +195,26 @@ class TestTabulatedMachines:
         assert 0 < passed < total
         _assert_within_tolerance(one, exact, tab, 3e-4)
 
+    def test_a_finer_grid_takes_rows_the_first_one_could_not(self, fleet, monkeypatch):
+        # rows failing on the 129-node grid are tried on the 513-node one: some pass there (a drive's
+        # minimum speed is a kink, whose error falls with the cell width), all within the tolerance
+        seen = {"first": [0, 0], "finer": [0, 0]}
+        holds = operation._tabulation_holds
+
+        def spy(pt, arr):
+            ok = holds(pt, arr)
+            level = "finer" if pt.p_kw.shape[1] == 2 * operation.FINE_TABLE_NODES - 1 else "first"
+            seen[level][0] += int(ok.sum())
+            seen[level][1] += ok.size
+            return ok
+
+        monkeypatch.setattr(operation, "_tabulation_holds", spy)
+        for site_id, _ in site_partition(fleet):
+            one, exact, tab = _both(fleet, site_id, monkeypatch)
+            _assert_within_tolerance(one, exact, tab, operation.TABLE_TOLERANCE_FRAC)
+        assert seen["first"][0] < seen["first"][1] == seen["first"][0] + seen["finer"][1]
+        assert 0 < seen["finer"][0]
+
     def test_short_profiles_are_not_tabulated(self, fleet, monkeypatch):
         site_id = site_partition(fleet)[0][0]
         _, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_MIN_STEPS=10**6)
