@@ -111,7 +111,10 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     [1.0, 1.0, 3.0, 3.0]
     """
     zone = index.tz
-    if len(series) == len(index) and len(index) and series.index.tz is not None and bool((series.index == index).all()):
+    own_index = series.index
+    if (len(own_index) == len(index) and len(index) and own_index.tz is not None
+            and getattr(own_index, "unit", "ns") == getattr(index, "unit", "ns")
+            and np.array_equal(own_index.asi8, index.asi8)):  # the same instants (asi8 counts from UTC)
         # already on the analysis index (the common case of a year of data at the analysis step)
         values = series.to_numpy(dtype=float).copy()
         missing = np.isnan(values)
