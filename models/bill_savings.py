@@ -248,13 +248,69 @@ class _SiteBiller:
         q += self.base_q
         if self.fixed_q is not None:
             q += self.fixed_q
+        return self._priced(p, q, check_p=True, check_q=True)
+
+    def scenario_totals(self, p0_kw: np.ndarray, q0_kvar: np.ndarray, p_block: np.ndarray, q_block: np.ndarray,
+                        j: np.ndarray, o: np.ndarray, kw_changes: bool = True) -> tuple[list[str], np.ndarray]:
+        """:meth:`totals` of the scenarios "asset j[s] takes option o[s]" of a block, the same numbers.
+
+        The changes are ``p_block[o, j] - p_block[0, j]`` and the same of ``q_block`` (with
+        ``kw_changes`` False the kW stay ``p0_kw``, one row for every scenario); the meters are built
+        in one compiled pass (:func:`_scenario_meters`), term by term in :meth:`totals`' order.
+        """
+        n_s, n_t = len(j), len(p0_kw)
+        if kw_changes:
+            p = np.empty((n_s, n_t))
+        else:
+            p = np.array(np.atleast_2d(p0_kw), dtype=float)
+            p += self.base_p
+        q = np.empty((n_s, n_t))
+        fixed = self.fixed_q if self.fixed_q is not None else np.zeros(n_t)
+        finite = _scenario_meters(p_block, q_block, np.asarray(j, dtype=np.intp), np.asarray(o, dtype=np.intp),
+                                  np.asarray(p0_kw, dtype=float), np.asarray(q0_kvar, dtype=float),
+                                  np.broadcast_to(self.base_p, (n_t,)), np.broadcast_to(self.base_q, (n_t,)),
+                                  fixed, self.fixed_q is not None, kw_changes, p, q)
+        return self._priced(p, q, check_p=not (kw_changes and finite[0]), check_q=not finite[1])
+
+    def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
+        """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`)."""
         for bank in self.stepped:
             q += bank.q_kvar(p, q)
-        for name, x in (("p_kw_2d", p), ("q_kvar_2d", q)):
-            if not billing._all_finite(x):
+        check_q = check_q or bool(self.stepped)
+        for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
+            if check and not billing._all_finite(x):
                 raise ValueError(f"{name} contains NaN or infinite values; fill or drop the gaps first")
         names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, False)
         return names, np.ascontiguousarray(np.broadcast_to(amounts, (max(p.shape[0], q.shape[0]), len(names))))
+
+
+@numba.njit(nogil=True, cache=True)
+def _scenario_meters(p_block, q_block, j, o, p0, q0, base_p, base_q, fixed_q, has_fixed, kw_changes, out_p,
+                     out_q):  # pragma: no cover - compiled
+    """Site meters of scenarios "asset j[s] takes option o[s]", in one pass.
+
+    out_p[s, t] = (p0[t] + (p_block[o, j, t] - p_block[0, j, t])) + base_p[t] (when ``kw_changes``),
+    out_q[s, t] = ((q0[t] + (q_block[o, j, t] - q_block[0, j, t])) + base_q[t]) + fixed_q[t] (the last
+    term when ``has_fixed``): :meth:`_SiteBiller.totals`' sums, in its order. Returns whether every value
+    written to out_p and to out_q is finite.
+    """
+    finite_p, finite_q = True, True
+    n_t = p0.shape[0]
+    for s in range(len(j)):
+        a, b = j[s], o[s]
+        for t in range(n_t):
+            if kw_changes:
+                v = (p0[t] + (p_block[b, a, t] - p_block[0, a, t])) + base_p[t]
+                out_p[s, t] = v
+                if not np.isfinite(v):
+                    finite_p = False
+            w = (q0[t] + (q_block[b, a, t] - q_block[0, a, t])) + base_q[t]
+            if has_fixed:
+                w = w + fixed_q[t]
+            out_q[s, t] = w
+            if not np.isfinite(w):
+                finite_q = False
+    return finite_p, finite_q
 
 
 def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.ndarray) -> np.ndarray:
@@ -359,15 +415,14 @@ class SiteSavings:
         """
         js, os_ = _changed_pairs(p_block, q_block, applies)
         p0, q0 = self.p0, self.q0
+        p_block, q_block = np.asarray(p_block, dtype=float), np.asarray(q_block, dtype=float)
         for start in range(0, len(js), self.block):
             j, o = js[start:start + self.block], os_[start:start + self.block]
-            dp = p_block[o, j] - p_block[0, j]
-            dq = q_block[o, j] - q_block[0, j]
-            names, amounts = self.biller.totals(p0, q0, dp, dq)
+            names, amounts = self.biller.scenario_totals(p0, q0, p_block, q_block, j, o)
             self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario
-                _, q_amounts = self.q_biller.totals(p0, q0, None, dq)
+                _, q_amounts = self.q_biller.scenario_totals(p0, q0, p_block, q_block, j, o, kw_changes=False)
                 self.reactive[rows[j], o] = self.q_base_total - q_amounts.sum(axis=1)
         self.pairs.append((rows[js], os_))
 

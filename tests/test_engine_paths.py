@@ -828,3 +828,57 @@ class TestChangedPairs:
         others = np.ones_like(saving, dtype=bool)
         others[3, 2] = others[1, 3] = False
         assert np.array_equal(saving[others], np.zeros(others.sum()))
+
+
+# --------------------------------------------------------------------------------------------------
+# Scenario meters of a block, built in one compiled pass
+# --------------------------------------------------------------------------------------------------
+
+
+class TestScenarioMeters:
+    """``_SiteBiller.scenario_totals`` prices the same meters as ``totals`` with the differences spelled out."""
+
+    N_STEPS = 21 * 24
+
+    @pytest.fixture(scope="class")
+    @classmethod
+    def parts(cls):
+        from models.bill_savings import _SiteBiller
+        from models.site import FixedCapacitorBank, SteppedCapacitorBank
+
+        t = _tariff(ALL_CLAUSES)
+        index = pd.date_range("2025-02-10", periods=cls.N_STEPS, freq="h", tz=t.time_zone)
+        rng = np.random.default_rng(17)
+        base_profile = rng.uniform(20, 60, cls.N_STEPS)
+        site = Site(base_p_kw=0.0, base_power_factor=0.82, fixed_banks=(FixedCapacitorBank(15.0),),
+                    stepped_banks=(SteppedCapacitorBank(60.0, 10.0, 0.95),))
+        biller = _SiteBiller(SiteSetup("S", t, site, base_profile), index, 1.0)
+        p_block = rng.uniform(0, 80, (4, 6, cls.N_STEPS))
+        q_block = rng.uniform(-10, 50, (4, 6, cls.N_STEPS))
+        p_block[:, 2] = p_block[0, 2]  # an asset whose kW no option changes
+        p0, q0 = p_block[0].sum(axis=0) + 100.0, q_block[0].sum(axis=0) + 40.0
+        j = np.array([0, 1, 2, 5, 5, 3])
+        o = np.array([1, 3, 2, 1, 2, 3])
+        return biller, p0, q0, p_block, q_block, j, o
+
+    def test_same_bits_as_the_differences_spelled_out(self, parts):
+        biller, p0, q0, p_block, q_block, j, o = parts
+        names, amounts = biller.scenario_totals(p0, q0, p_block, q_block, j, o)
+        ref_names, ref = biller.totals(p0, q0, p_block[o, j] - p_block[0, j], q_block[o, j] - q_block[0, j])
+        assert names == ref_names
+        assert_array_equal(amounts, ref)
+
+    def test_kvar_only_keeps_todays_kw(self, parts):
+        biller, p0, q0, p_block, q_block, j, o = parts
+        names, amounts = biller.scenario_totals(p0, q0, p_block, q_block, j, o, kw_changes=False)
+        ref_names, ref = biller.totals(p0, q0, None, q_block[o, j] - q_block[0, j])
+        assert names == ref_names
+        assert_array_equal(amounts, ref)
+
+    @pytest.mark.parametrize("quantity", ["p", "q"])
+    def test_a_nan_in_a_scenario_raises(self, parts, quantity):
+        biller, p0, q0, p_block, q_block, j, o = parts
+        p_block, q_block = p_block.copy(), q_block.copy()
+        (p_block if quantity == "p" else q_block)[o[1], j[1], 7] = np.nan
+        with pytest.raises(ValueError, match="NaN"):
+            biller.scenario_totals(p0, q0, p_block, q_block, j, o)
