@@ -997,8 +997,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         if wanted is not None and o not in wanted:
             continue
         off = ~applies[:, o]
-        p_kw[o, off] = p_kw[0, off]
-        q_kvar[o, off] = q_kvar[0, off]
+        at = off if needed is None or o not in needed else off & np.asarray(needed[o], dtype=bool)
+        if at.any():  # (with ``needed``, only the rows that will be read)
+            p_kw[o, at] = p_kw[0, at]
+            q_kvar[o, at] = q_kvar[0, at]
         for target in (energy, shaft_energy, lag, lead, speed):
             target[off, o] = target[off, 0]
         losses[off, o] = losses[off, 0]
