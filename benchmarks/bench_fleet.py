@@ -13,8 +13,10 @@ finance (cash flows and metrics), plan, end of life, Monte Carlo (tornado and ri
 is the largest resident set of the process and its children (Dask workers), sampled every 20 ms with
 psutil. Throughput is asset-option-steps per second. The bandwidth floor is one numpy pass over an array
 of the size of the load array (n_assets x n_steps float64), timed in the same process.
-A 1,000-draw Monte Carlo on the demo case is timed as well. The figures and the machine are written to
-the "Fleet benchmark" section of docs/performance.md (other sections are left as they are).
+A 1,000-draw Monte Carlo on the demo case is timed as well, and the peaks of the sizes run are set
+side by side ("Memory as the fleet grows": run two sizes, e.g. 5000 10000, to see the peak as the fleet
+doubles). The figures and the machine are written to the "Fleet benchmark" section of
+docs/performance.md (other sections are left as they are).
 """
 
 from __future__ import annotations
@@ -223,9 +225,42 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
                   f"{r['n_assets']:,} x {r['n_steps']:,} load array): {1000 * r['floor_s']:.1f} ms; machines stage / floor: {ratio}."
                   + (f" Exact plan asked to {r['plan_gap_pct']:g} % or {r['plan_seconds']:g} s: {r['plan_status']}."
                      if r.get("plan_status") else ""), ""]
+    lines += memory_growth(runs)
     if mc:
         lines += [f"Monte Carlo on the demo case ({mc['draws']:,} draws): {mc['risk_s']:.2f} s.", ""]
     return "\n".join(lines) + "\n"
+
+
+def memory_growth(runs: list[dict]) -> list[str]:
+    """Lines of the "Memory as the fleet grows" table: each run's peak split into the per-interval power
+    kept for the whole run (every option's while it fits the dense budget, else today's motors') and the
+    rest, with the growth of the peak against the growth of the fleet."""
+    from models.operation import DENSE_INTERVAL_BUDGET_BYTES, interval_bytes
+
+    mb = lambda b: f"{b / 2**20:,.0f}"  # noqa: E731
+    lines = ["### Memory as the fleet grows", "",
+             "| fleet | engine | peak [MiB] | per-interval power kept for the run [MiB] | the rest [MiB] | peak per asset [KiB] |",
+             "|---|---|---:|---:|---:|---:|"]
+    by_engine: dict[str, list[dict]] = {}
+    for r in sorted(runs, key=lambda r: (r["engine"], r["n_assets"])):
+        n, n_o, n_t = r["n_assets"], r["n_options"], r["n_steps"]
+        dense = interval_bytes(n, n_o, n_t)
+        kept = dense if dense <= DENSE_INTERVAL_BUDGET_BYTES else interval_bytes(n, 1, n_t)
+        peak = r["overall_peak_bytes"]
+        lines.append(f"| {n:,} assets | {r['engine']} | {mb(peak)} | {mb(kept)} ({'every option' if kept == dense else 'today only'}) "
+                     f"| {mb(peak - kept)} | {peak / n / 1024:,.0f} |")
+        by_engine.setdefault(r["engine"], []).append(r)
+    lines.append("")
+    notes = []
+    for engine, rs in by_engine.items():
+        for a, b in zip(rs, rs[1:]):
+            notes.append(f"{engine}: {a['n_assets']:,} -> {b['n_assets']:,} assets (x{b['n_assets'] / a['n_assets']:.1f}), "
+                         f"peak x{b['overall_peak_bytes'] / a['overall_peak_bytes']:.2f}")
+    if notes:
+        lines += ["Growth of the peak with the fleet: " + "; ".join(notes) + ". Per-interval power of every option is "
+                  "kept only up to the dense budget; above it, today's motors only (16 bytes per asset-step), and the "
+                  "rest is one site's blocks and the per-asset results.", ""]
+    return lines
 
 
 def write_section(text: str, path: Path) -> None:

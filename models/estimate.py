@@ -12,8 +12,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, options_with_baseline,
-                              case_index, interval_bytes, site_partition)
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS,
+                              TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
+                              site_partition)
 
 #: Machines stage per asset-option-step [s], one thread: 17.9 s of wall time for 10,000 assets x 11
 #: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-01, load average 1.6
@@ -91,7 +92,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) on Dask and 1 + g (k - 1) for k
     local site threads (g = :data:`THREAD_GAIN`), and the constants of this module (measured by
     ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
-    it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors) + the larger of
+    it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
+    :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the larger of
     the physics (per thread: the largest site's today's power, one block's per-option arrays and
     temporaries) and the economics (one site's meter arrays and the per-asset-option tables).
     """
@@ -111,7 +113,10 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
                + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + min(n_a * PLAN_S_PER_ASSET, PLAN_MAX_S))
     dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
-    store = interval_bytes(n_a, n_o, n_t) if dense else interval_bytes(n_a, 1, n_t)
+    today = interval_bytes(n_a, 1, n_t)
+    spilled = not dense and today > TODAY_IN_MEMORY_BUDGET_BYTES
+    # above its budget today's power lives in a mapped file the system may write out: counted at the budget
+    store = interval_bytes(n_a, n_o, n_t) if dense else min(today, TODAY_IN_MEMORY_BUDGET_BYTES)
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
     physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
                               + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
@@ -119,6 +124,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     peak = BASE_BYTES + store + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else
             "today's per-interval power (other options recomputed by block when needed)")
+    if spilled:
+        kept += f", in a temporary file of {today / 2**30:.1f} GiB"
     note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s): about {_duration(seconds)} and "
             f"{peak / 2**30:.1f} GiB peak; keeps {kept}.")
     return Estimate(float(seconds), int(peak), note)

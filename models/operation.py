@@ -12,6 +12,7 @@ a duty table or annual hours are evaluated per load state and reach the meter as
 from __future__ import annotations
 
 import os
+import tempfile
 import threading
 from dataclasses import dataclass, field
 
@@ -577,6 +578,11 @@ CHUNK_ELEMENTS = 2**19
 #: motors are kept per interval and the other options are recomputed site by site when asked for
 #: (:class:`SiteIntervalStore`).
 DENSE_INTERVAL_BUDGET_BYTES = 2 * 2**30
+#: Above the dense budget, today's per-interval power (p_kw and q_kvar, 16 bytes per asset-step) is held
+#: in memory up to this many bytes (4 GiB: about 30,000 assets on an hourly year, 7,600 on a 15-minute
+#: one); beyond it, in a temporary file mapped into memory, whose pages the system may write out and
+#: drop when memory runs short, so a larger fleet costs disk (the same size) rather than memory.
+TODAY_IN_MEMORY_BUDGET_BYTES = 4 * 2**30
 #: Sites worked at once by one process (:func:`models.scenario.physics`): one per core, at most two, as
 #: on the 2-core reference machine (each thread holds one site's blocks; common practice for a laptop).
 PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
@@ -1175,8 +1181,9 @@ class _Merger:
                 adopted = True
             else:
                 # every row is written by the part holding it (see result())
-                self.fields["p_kw"] = np.empty(shape)
-                self.fields["q_kvar"] = np.empty(shape)
+                spill = not self.dense and interval_bytes(self.n_a, 1, self.n_t) > TODAY_IN_MEMORY_BUDGET_BYTES
+                self.fields["p_kw"] = _file_backed(shape) if spill else np.empty(shape)
+                self.fields["q_kvar"] = _file_backed(shape) if spill else np.empty(shape)
             for name in _PER_ASSET_FIELDS:
                 value = getattr(part, name)
                 self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
@@ -1220,6 +1227,12 @@ class _Merger:
             losses_kwh=f["losses_kwh"], lagging_kvarh=f["lagging_kvarh"], leading_kvarh=f["leading_kvarh"],
             running_h=f["running_h"], mean_speed_rpm=f["mean_speed_rpm"], capacitor_q_kvar=f["capacitor_q_kvar"],
             interval_data=f["interval_data"], flags=flags)
+
+
+def _file_backed(shape: tuple[int, ...]) -> np.ndarray:
+    """An uninitialised float64 array in an anonymous temporary file mapped into memory (removed by the
+    system when the file is closed, at the latest when the process ends)."""
+    return np.memmap(tempfile.TemporaryFile(prefix="drivecase-"), dtype=np.float64, mode="w+", shape=shape)
 
 
 def _as_slice(rows: np.ndarray):

@@ -192,6 +192,19 @@ class TestEstimate:
         # two site threads: 1.7x the speed (THREAD_GAIN, measured) and two sites' blocks in memory
         assert double.seconds < single.seconds and double.peak_bytes >= single.peak_bytes
 
+    def test_todays_power_beyond_its_budget_is_counted_at_the_budget(self, fleet, monkeypatch):
+        # above the dense budget the peak holds today's power; beyond TODAY_IN_MEMORY_BUDGET_BYTES it goes
+        # to a temporary file (docs/scale.md, memory model): the peak counts the budget, the note the file
+        from models import estimate
+
+        monkeypatch.setattr(estimate, "DENSE_INTERVAL_BUDGET_BYTES", 0)
+        in_memory = estimate.estimate_run(fleet)
+        monkeypatch.setattr(estimate, "TODAY_IN_MEMORY_BUDGET_BYTES", 1024)
+        spilled = estimate.estimate_run(fleet)
+        n_a, n_t = len(fleet.assets), len(case_index(fleet))
+        assert in_memory.peak_bytes - spilled.peak_bytes == interval_bytes(n_a, 1, n_t) - 1024
+        assert "temporary file" in spilled.note and "temporary file" not in in_memory.note
+
     def test_estimate_refuses_no_workers(self, fleet):
         from models.estimate import estimate_run
 

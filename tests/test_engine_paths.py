@@ -599,6 +599,19 @@ class TestCompactStore:
             assert_array_equal(meters_c[site_id].q_kvar, meter.q_kvar, err_msg=site_id)
         pd.testing.assert_frame_equal(bills_c, bills_d, check_exact=True)
 
+    def test_todays_power_in_a_temporary_file_gives_the_same_bills(self, case, dense, monkeypatch):
+        # above the memory budget today's per-interval power lives in a mapped temporary file: same numbers
+        monkeypatch.setattr(operation, "TODAY_IN_MEMORY_BUDGET_BYTES", 0)
+        spilled = scenario.physics(case, 35.0, chunk_assets=2, dense=False).operation
+        assert isinstance(spilled.p_kw._today, np.memmap) and isinstance(spilled.q_kvar._today, np.memmap)
+        choice = _plan_choice(dense.operation)
+        _, bills_d = meter_and_bills(case, dense.operation, choice)
+        _, bills_s = meter_and_bills(case, spilled, choice, threads=2)
+        pd.testing.assert_frame_equal(bills_s, bills_d, check_exact=True)
+
+    def test_todays_power_below_the_budget_stays_in_memory(self, compact):
+        assert not isinstance(compact.operation.p_kw._today, np.memmap)
+
     def test_rows_of_the_store_equal_the_dense_rows(self, dense, compact):
         d, c = dense.operation, compact.operation
         choice, rows = _plan_choice(d), np.arange(len(d.asset_ids))
