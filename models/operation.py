@@ -908,10 +908,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         if whole and isinstance(at, slice):
             pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o, at], out_b=q_kvar[o, at])
         else:
-            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables,
-                                               rows=sel if sel is not None else np.arange(len(good)))  # whole grid
-            p_kw[o, idx] = pair.a
-            q_kvar[o, idx] = pair.b
+            # straight into the option's rows (no temporary)
+            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o],
+                                               rows=sel if sel is not None else np.arange(len(good)), out_rows=idx)
         if power_only:
             return
         energy[idx, o] = tabulation.weighted_sums(grid, *p_tables, rows=sel)
@@ -927,10 +926,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 flags.append({"asset_id": asset_ids[rows_[sub[i]]], "option_id": option_ids[o], "flag": text})
 
     def run(o: int, option: pd.Series, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
-            load_s: _Load, site_other=None) -> None:
-        """Evaluate an option on the rows ``sub`` of a group (on their grid where there is one) and store it."""
+            load: _Load, site_other=None) -> None:
+        """Evaluate an option on the rows ``sub`` of a group (on their grid where there is one) and store it.
+
+        ``load`` is the whole group's: its per-interval rows are sliced only where they are evaluated."""
         tab = grids.get(kind)
         if tab is None or option["technology"] == "wound_field":  # a wound-field machine may follow the site
+            load_s = load.rows(sub)
             store(o, kind, rows_, sub, _evaluate(option, arr_s, existing_s, load_s, site_other), load_s)
             return
         grid, grid_load = tab
@@ -944,7 +946,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             return
         # the curve bends too sharply for the grid: a finer grid for those rows, then every interval
         bad = np.flatnonzero(~ok)
-        load_b, arr_b, existing_b = load_s.rows(bad), _take(arr_s, bad), _take_params(existing_s, bad)
+        load_b, arr_b, existing_b = load.rows(sub[bad]), _take(arr_s, bad), _take_params(existing_s, bad)
         if load_b.p_ref_kw.shape[1] >= 8 * FINE_TABLE_NODES:
             fine = tabulation.locate(load_b.p_ref_kw, load_b.running, interval_h, FINE_TABLE_NODES)
             fine_load = _grid_load(existing_b, load_b, fine)
@@ -988,14 +990,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if not len(sub):
                 continue
             arr_s = _take(arr, sub)
-            load_s = load.rows(sub)
             existing_s = _take_params(existing, sub)
             site_other = None
             if option["technology"] == "wound_field" and kind == "interval":
                 idx = rows_[sub]
                 site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
                                          q_kvar[0, idx], index)
-            run(o, option, kind, rows_, sub, arr_s, existing_s, load_s, site_other)
+            run(o, option, kind, rows_, sub, arr_s, existing_s, load, site_other)
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values

@@ -242,11 +242,12 @@ class Pair:
 
 def interpolate_pair(grid: Grid, base_a: np.ndarray, rise_a: np.ndarray, base_b: np.ndarray, rise_b: np.ndarray,
                      out_a: np.ndarray | None = None, out_b: np.ndarray | None = None,
-                     rows: np.ndarray | None = None) -> Pair:
+                     rows: np.ndarray | None = None, out_rows: np.ndarray | None = None) -> Pair:
     """Two quantities tabulated on the same grid (kW and kVAr), interpolated in one pass.
 
     As :func:`interpolate` for each pair of tables, with the sums of the second's positive and negative
-    parts (lagging and leading kVAr) taken in the same pass.
+    parts (lagging and leading kVAr) taken in the same pass. With ``out_rows`` the i-th row picked is
+    written to row ``out_rows[i]`` of ``out_a`` and ``out_b`` (given), which are then returned whole.
 
     Examples
     --------
@@ -258,11 +259,16 @@ def interpolate_pair(grid: Grid, base_a: np.ndarray, rise_a: np.ndarray, base_b:
     n = grid.cell.shape[0] if rows is None else len(rows)
     rows = np.arange(n, dtype=np.intp) if rows is None else np.asarray(rows, dtype=np.intp)
     shape = (n, grid.cell.shape[1])
-    out_a = np.empty(shape) if out_a is None else out_a
-    out_b = np.empty(shape) if out_b is None else out_b
+    if out_rows is None:
+        out_rows = np.arange(n, dtype=np.intp)
+        out_a = np.empty(shape) if out_a is None else out_a
+        out_b = np.empty(shape) if out_b is None else out_b
+    elif out_a is None or out_b is None:
+        raise ValueError("out_rows needs out_a and out_b")
     positive, negative = np.zeros(n), np.zeros(n)
     tables_ = [np.ascontiguousarray(t, dtype=float) for t in (base_a, rise_a, base_b, rise_b)]
-    _interpolate_two(grid.cell, grid.position_frac, rows, *tables_, out_a, out_b, positive, negative)
+    _interpolate_two(grid.cell, grid.position_frac, rows, np.asarray(out_rows, dtype=np.intp), *tables_, out_a, out_b,
+                     positive, negative)
     return Pair(out_a, out_b, positive, negative)
 
 
@@ -277,18 +283,18 @@ def _interpolate_one(cell, position, rows, base, rise, out):  # pragma: no cover
 
 
 @numba.njit(nogil=True, cache=True)
-def _interpolate_two(cell, position, rows, base_a, rise_a, base_b, rise_b, out_a, out_b, positive,
+def _interpolate_two(cell, position, rows, out_rows, base_a, rise_a, base_b, rise_b, out_a, out_b, positive,
                      negative):  # pragma: no cover - compiled
     m = cell.shape[1]
     for i in range(len(rows)):
-        r = rows[i]
+        r, k = rows[i], out_rows[i]
         up, down = 0.0, 0.0
         for t in range(m):
             j = cell[r, t]
             x = position[r, t]
-            out_a[i, t] = base_a[i, j] + rise_a[i, j] * x
+            out_a[k, t] = base_a[i, j] + rise_a[i, j] * x
             v = base_b[i, j] + rise_b[i, j] * x
-            out_b[i, t] = v
+            out_b[k, t] = v
             if v > 0.0:
                 up += v
             elif v < 0.0:

@@ -92,6 +92,26 @@ class TestGrid:
         assert_array_equal(tabulation.weighted_sums(g, base[rows], rise[rows], rows=rows),
                            tabulation.weighted_sums(g, base, rise)[rows])
 
+    def test_a_pair_written_into_chosen_rows(self):
+        # kW and kVAr of grid rows 1, 3, 4 written into rows 5, 0, 2 of larger arrays: the same values as
+        # each quantity interpolated alone, the other rows untouched, the kVAr parts summed per row
+        rng = np.random.default_rng(4)
+        p = rng.uniform(0.0, 50.0, (5, 40))
+        p[p < 5.0] = 0.0
+        g = tabulation.locate(p, p > 0, 1.0, 9)
+        kw, kvar = tabulation.tables(g.p_grid_kw * 1.1), tabulation.tables(g.p_grid_kw - 20.0)
+        rows, out_rows = np.array([1, 3, 4]), np.array([5, 0, 2])
+        out_a, out_b = np.full((6, 40), -7.0), np.full((6, 40), -7.0)
+        pair = tabulation.interpolate_pair(g, kw[0][rows], kw[1][rows], kvar[0][rows], kvar[1][rows],
+                                           out_a=out_a, out_b=out_b, rows=rows, out_rows=out_rows)
+        assert pair.a is out_a and pair.b is out_b
+        assert_array_equal(out_a[out_rows], tabulation.interpolate(g, *kw)[rows])
+        alone_b = tabulation.interpolate(g, *kvar)[rows]
+        assert_array_equal(out_b[out_rows], alone_b)
+        assert (out_a[[1, 3, 4]] == -7.0).all() and (out_b[[1, 3, 4]] == -7.0).all()
+        assert_allclose(pair.b_positive_sum, np.maximum(alone_b, 0).sum(axis=1), rtol=1e-12)
+        assert_allclose(pair.b_negative_sum, np.maximum(-alone_b, 0).sum(axis=1), rtol=1e-12)
+
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
             tabulation.locate(np.ones((1, 3)), np.ones((1, 3), bool), 1.0, 1)
