@@ -749,8 +749,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     block's own totals (the block is the whole site). With ``only_today`` only today's motors run; with
     ``wanted`` (option positions) only those options run besides today's (each option is evaluated on
     its own, so the values are those of a full run; the others' per-interval rows and yearly values are
-    left undefined). With ``buffers`` (every
-    option run) the per-interval arrays are views of those buffers, every element written by this call.
+    left undefined). With ``buffers`` the per-interval arrays are views of those buffers (every element
+    written by this call when every option runs).
     With ``today`` (a first pass's result for the same block) today's motors are not run again. With
     ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
     calibrated motors are sliced from the site's instead of computed for the block. With ``needed``
@@ -810,9 +810,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             grid_load.controlled = _speed_controlled(arr, grid_load)
         grids["interval"] = (grid, grid_load)
 
-    if buffers is not None and wanted is None:
-        # every element is written below (today's rows by today's motors; each option's rows by the option
-        # or, where it does not apply, by today's values), so reused memory needs no clearing
+    if buffers is not None:
+        # every element read later is written below (today's rows by today's motors; each option's rows by
+        # the option or, where it does not apply, by today's values; with ``wanted``, the rows of the
+        # options asked for), so reused memory needs no clearing
         p_kw, q_kvar = buffers.views(1 if only_today else n_o, n_a, n_t)
     else:
         # uninitialised memory: every element read later is written below (a zeroed array would cost a
@@ -1251,7 +1252,8 @@ _PER_ASSET_FIELDS = ("asset_ids", "site_ids", "applies", "reason", "energy_kwh",
 class _SiteRecompute:
     """Recomputes per-interval power of some options for some assets, block by block, on demand.
 
-    Threads may ask for different sites at once: each keeps its own cache. Each block of a site is run
+    Threads may ask for different sites at once: each keeps its own cache and its own block memory,
+    reused from block to block (fresh memory costs page faults on first touch). Each block of a site is run
     again exactly as in the full run (same assets, same site totals of
     today's motors), for the options asked for only and for their per-interval power only, so the values
     are the full run's; today's motors are taken from the full run's arrays, not run again. The latest
@@ -1330,8 +1332,11 @@ class _SiteRecompute:
                 zeros = np.zeros(len(positions))
                 today = _TodayOfBlock(self.today_p[positions], self.today_q[positions], zeros, zeros,
                                       np.zeros((len(positions), len(LOSS_KINDS))), zeros, zeros, zeros, zeros, [])
+                if getattr(self._local, "buffers", None) is None:
+                    self._local.buffers = _BlockBuffers()  # block memory reused from block to block
                 op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted,
-                                    site_constants=self._constants[1], needed=needed, today=today, power_only=True)
+                                    site_constants=self._constants[1], needed=needed, today=today, power_only=True,
+                                    buffers=self._local.buffers)
                 self._cached = (key, op.p_kw, op.q_kvar)
             for qty in (0, 1):
                 out[qty][sel] = self._cached[1 + qty][options[sel], local[sel] - b * size]
