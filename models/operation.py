@@ -540,6 +540,16 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
     return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
 
 
+def _batch_coupled(option: pd.Series) -> bool:
+    """True when an option's values for one asset can depend on the other assets evaluated with it.
+
+    Only the speed-coupling solver of a new induction motor without a speed remedy does (it stops when
+    its largest change over the batch is small enough, :func:`models.loads.solve_speed_coupled_load`);
+    every other model works element by element, with fixed numbers of passes.
+    """
+    return option["technology"] == "induction" and option["speed_remedy"] not in ("trim_or_pulley", "speed_control")
+
+
 def _evaluate(option: pd.Series, arr, existing, load: _Load, site_other=None) -> _Point:
     tech = option["technology"]
     if tech == "existing":
@@ -754,9 +764,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     With ``today`` (a first pass's result for the same block) today's motors are not run again. With
     ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
     calibrated motors are sliced from the site's instead of computed for the block. With ``needed``
-    (option position -> bool per block asset, with ``wanted``) a tabulated option's per-interval values
-    are written for those assets only (the others' rows of that option are left undefined); the
-    evaluation itself runs on the same assets as without it, so the values written are the same. With
+    (option position -> bool per block asset, with ``wanted``) an option's per-interval values are
+    written for those assets only (the others' rows of that option are left undefined); an option whose
+    values do not depend on the batch (:func:`_batch_coupled`) is evaluated on those assets only, the
+    others on the same assets as without ``needed``, so the values written are the same. With
     ``power_only`` only the per-interval ``p_kw`` and ``q_kvar`` are computed (yearly values and flags
     are left at zero or empty), for callers that read nothing else.
     """
@@ -988,6 +999,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         option = options.iloc[o]
         for kind, rows_, arr, existing, load in groups:
             sub = np.flatnonzero(applies[rows_, o])
+            if needed is not None and o in needed and not _batch_coupled(option):
+                # each row's values do not depend on the rows evaluated with it: only the rows asked for
+                sub = sub[np.asarray(needed[o], dtype=bool)[rows_[sub]]]
             if not len(sub):
                 continue
             arr_s = _take(arr, sub)

@@ -895,3 +895,38 @@ class TestScenarioMeters:
         (p_block if quantity == "p" else q_block)[o[1], j[1], 7] = np.nan
         with pytest.raises(ValueError, match="NaN"):
             biller.scenario_totals(p0, q0, p_block, q_block, j, o)
+
+
+class TestRecomputeOnlyTheRowsAsked:
+    """A recomputed block evaluates an option that does not depend on its batch on the assets asked for
+    only, and still gives the full run's bits."""
+
+    def test_one_asset_asked_gives_the_full_runs_row(self, case, index, monkeypatch):
+        options = operation.options_with_baseline(case.options)
+        site_id, rows = max(site_partition(case), key=lambda kv: len(kv[1]))
+        one = site_case(case, site_id)
+        block = np.arange(len(rows))
+        full = operation._operate_block(one, index, block)
+        checked = 0
+        for o in range(1, len(options)):
+            users = np.flatnonzero(full.applies[:, o])
+            if operation._batch_coupled(options.iloc[o]) or len(users) < 2:
+                continue
+            needed = {o: np.zeros(len(block), dtype=bool)}
+            needed[o][users[-1]] = True
+            seen = []
+            real = operation._evaluate
+
+            def spy(option, arr, *args, **kwargs):
+                if option["option_id"] == options.iloc[o]["option_id"]:
+                    seen.append(len(arr["rated_p_kw"]))
+                return real(option, arr, *args, **kwargs)
+
+            monkeypatch.setattr(operation, "_evaluate", spy)
+            part = operation._operate_block(one, index, block, wanted=frozenset({o}), needed=needed, power_only=True)
+            monkeypatch.setattr(operation, "_evaluate", real)
+            assert seen and max(seen) == 1, options.iloc[o]["option_id"]  # one asset evaluated, not the block
+            assert_array_equal(part.p_kw[o, users[-1]], full.p_kw[o, users[-1]])
+            assert_array_equal(part.q_kvar[o, users[-1]], full.q_kvar[o, users[-1]])
+            checked += 1
+        assert checked >= 3
