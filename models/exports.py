@@ -37,12 +37,20 @@ def neutralise_text(value: object) -> object:
 
 
 def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
-    """Return a copy whose text cells are neutralised (:func:`neutralise_text`)."""
+    """Return a copy whose text cells are neutralised (:func:`neutralise_text`).
+
+    Text columns are tested in one vectorised pass (a cash-flow table of millions of rows would otherwise
+    take a Python call per cell); columns of mixed objects cell by cell.
+    """
     out = frame.copy()
     for column in out.columns:
         series = out[column]
-        if pd.api.types.is_string_dtype(series.dtype) or series.dtype == object:
+        if series.dtype == object:
             out[column] = series.map(neutralise_text)
+        elif pd.api.types.is_string_dtype(series.dtype):
+            risky = series.str.startswith(FORMULA_STARTS).fillna(False).to_numpy(dtype=bool)
+            if risky.any():
+                out[column] = series.where(~risky, "'" + series)
     return out
 
 
