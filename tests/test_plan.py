@@ -40,6 +40,16 @@ def brute_force(assets, value, spend, budget, rate):
     return best
 
 
+def _sixty_assets() -> tuple:
+    """plan_exact's arguments for a seeded fleet of 60 assets x 3 options, budgets of 800 in 3 plan years."""
+    rng = np.random.default_rng(5)
+    assets = np.repeat([f"a{k}" for k in range(60)], 3)
+    ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+    value = rng.uniform(1, 100, assets.size)
+    spend = rng.uniform(10, 100, (assets.size, 1))
+    return ids, assets, value, spend, [800.0, 800.0, 800.0], 0.08
+
+
 class TestExactPlan:
     def test_options_exclude_each_other(self):
         result = plan.plan_exact(["a/1", "a/2", "b/1"], ["a", "a", "b"], [60.0, 90.0, 50.0],
@@ -141,12 +151,7 @@ class TestStartAndLimits:
     def test_gap_is_reported_and_within_the_asked_gap(self):
         # Seeded fleet of 60 assets x 3 options x 3 years, solved to a 1 % gap: the plan is never
         # worse than the greedy one, and its proven gap is at most the gap asked for.
-        rng = np.random.default_rng(5)
-        assets = np.repeat([f"a{k}" for k in range(60)], 3)
-        ids = [f"{a}/{i}" for i, a in enumerate(assets)]
-        value = rng.uniform(1, 100, assets.size)
-        spend = rng.uniform(10, 100, (assets.size, 1))
-        args = (ids, assets, value, spend, [800.0, 800.0, 800.0], 0.08)
+        args = _sixty_assets()
         loose = plan.plan_exact(*args, mip_rel_gap=0.01)
         greedy = plan.plan_greedy(*args)
         assert loose.status == "optimal" and 0.0 <= loose.gap_frac <= 0.01
@@ -240,12 +245,7 @@ class TestProofByRelaxation:
     def test_reported_gap_is_honest(self):
         # Independent check: the optimum proven by branch and bound (gap 0); the loose plan's reported gap
         # must cover its real distance to that optimum.
-        rng = np.random.default_rng(5)
-        assets = np.repeat([f"a{k}" for k in range(60)], 3)
-        ids = [f"{a}/{i}" for i, a in enumerate(assets)]
-        value = rng.uniform(1, 100, assets.size)
-        spend = rng.uniform(10, 100, (assets.size, 1))
-        args = (ids, assets, value, spend, [800.0, 800.0, 800.0], 0.08)
+        args = _sixty_assets()
         best = plan.plan_exact(*args, **EXACT).total_npv
         for gap in (1e-2, 1e-3, 1e-4):
             loose = plan.plan_exact(*args, mip_rel_gap=gap)
