@@ -915,14 +915,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             values = np.broadcast_to(values, pt.p_kw.shape)
             return tabulation.tables(values if ok.all() else values[ok])
 
-        at = _as_slice(idx)
         p_tables, q_tables = tables_of(pt.p_kw), tables_of(pt.q_kvar)
-        if whole and isinstance(at, slice):
-            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o, at], out_b=q_kvar[o, at])
-        else:
-            # straight into the option's rows (no temporary)
-            pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o],
-                                               rows=sel if sel is not None else np.arange(len(good)), out_rows=idx)
+        # straight into the option's rows (no temporary)
+        pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o],
+                                           rows=at_grid[ok], out_rows=idx)
         if power_only:
             return
         energy[idx, o] = tabulation.weighted_sums(grid, *p_tables, rows=sel)
