@@ -19,7 +19,7 @@ import pandas as pd
 
 from models import attribution, billing
 from models.profiles import conform
-from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, tan_phi_from_power_factor
+from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, add_stepped_bank_kvar, tan_phi_from_power_factor
 
 #: Components the finance engine escalates separately, and the bill line-item categories each gathers.
 COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
@@ -274,8 +274,10 @@ class _SiteBiller:
 
     def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
         """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`)."""
-        for bank in self.stepped:
-            q += bank.q_kvar(p, q)
+        for bank in self.stepped:  # in place, one compiled pass (the values of q += bank.q_kvar(p, q))
+            if q.shape[0] < p.shape[0]:
+                q = np.array(np.broadcast_to(q, p.shape))
+            add_stepped_bank_kvar(p, q, bank.rated_q_kvar, bank.step_kvar, bank.target_power_factor)
         check_q = check_q or bool(self.stepped)
         for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
             if check and not billing._all_finite(x):

@@ -5,8 +5,9 @@ start times, 15-min, 30-min or hourly) under a :class:`~models.tariff.Tariff` an
 billing month and line item. :func:`bill_many` prices many meter series at once (scenarios × intervals)
 and returns each scenario's totals by line item; it is the engine behind savings attribution, and
 :func:`bill` is the same engine run on one scenario. Everything is vectorised over intervals and
-scenarios: grouping by month, period and demand window uses ``numpy.add.reduceat`` over contiguous
-segments and one gather for the (month, period) cells. The pure helpers
+scenarios: the energies of each (month, period) cell and the demand windows' monthly peaks are taken
+in compiled passes over the meter arrays (one pass per quantity set, no per-interval temporaries), and
+every clause is then priced on those small (scenario, month) arrays. The pure helpers
 :func:`pf_adjusted_demand_kw`, :func:`percent_adjusted_demand_kw` and :func:`excess_kvarh` state the
 clauses' equations on their own.
 
@@ -23,8 +24,9 @@ Metering conventions used throughout (see ``docs/tariffs.md``):
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -217,6 +219,11 @@ class _Windows:
     month_starts: np.ndarray  # first window of each month (M,)
     identity: bool  # one interval per window (data as coarse as the window or coarser): means are the values
 
+    @property
+    def month_bounds(self) -> np.ndarray:
+        """First window of each month, then the number of windows (M + 1,)."""
+        return np.append(self.month_starts, len(self.starts)).astype(np.int64)
+
 
 @dataclass(frozen=True, eq=False)
 class _Calendar:
@@ -228,11 +235,11 @@ class _Calendar:
     period: np.ndarray  # (T,)
     season: np.ndarray  # (T,)
     n_periods: int
-    cell_order: np.ndarray  # stable argsort of month * K + period
-    cell_starts: np.ndarray  # segment starts in the sorted order
-    cell_ids: np.ndarray  # cell id of each segment
     steps_in_cell: np.ndarray  # intervals per (month, period) cell (M, K)
     windows: dict[int, _Windows]
+    run_starts: np.ndarray  # first interval of each run of consecutive intervals in one cell, then T (R + 1,)
+    run_cell: np.ndarray  # (month, period) cell of each run, month * K + period (R,)
+    masks: dict = field(default_factory=dict)  # scope masks already built, by (periods, seasons, window)
 
     @property
     def n_months(self) -> int:
@@ -270,9 +277,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     season = _season_of_month(tariff)[np.asarray(wall.month) - 1].astype(np.int64)
     k = len(tariff.period_codes)
     cell = month * k + period
-    order = np.argsort(cell, kind="stable")
-    sorted_cell = cell[order]
-    cell_starts = np.concatenate(([0], np.nonzero(np.diff(sorted_cell))[0] + 1))
+    run_starts = np.nonzero(np.diff(cell))[0] + 1
     windows = {}
     utc = _utc_ns(index)
     wall_ns = wall.to_numpy().astype("datetime64[ns]").astype(np.int64)
@@ -303,24 +308,11 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         period=period,
         season=season,
         n_periods=k,
-        cell_order=order,
-        cell_starts=cell_starts,
-        cell_ids=sorted_cell[cell_starts],
         steps_in_cell=steps_in_cell.reshape(len(labels), k),
         windows=windows,
+        run_starts=np.concatenate(([0], run_starts, [len(index)])).astype(np.int64),
+        run_cell=cell[np.concatenate(([0], run_starts))].astype(np.int64),
     )
-
-
-def _by_month(cal: _Calendar, x: np.ndarray) -> np.ndarray:
-    """Sum (S, T) over the intervals of each month → (S, M)."""
-    return np.add.reduceat(x, cal.month_starts, axis=1)
-
-
-def _by_cell(cal: _Calendar, x: np.ndarray) -> np.ndarray:
-    """Sum (S, T) over the intervals of each (month, period) cell → (S, M, K)."""
-    out = np.zeros((x.shape[0], cal.n_months * cal.n_periods))
-    out[:, cal.cell_ids] = np.add.reduceat(x[:, cal.cell_order], cal.cell_starts, axis=1)
-    return out.reshape(x.shape[0], cal.n_months, cal.n_periods)
 
 
 def _mask(cal: _Calendar, tariff: Tariff, periods, seasons, period_arr=None, season_arr=None) -> np.ndarray:
@@ -333,6 +325,155 @@ def _mask(cal: _Calendar, tariff: Tariff, periods, seasons, period_arr=None, sea
     if seasons is not None:
         m &= np.isin(s, [tariff.season_names.index(c) for c in seasons])
     return m
+
+
+def _scope(cal: _Calendar, tariff: Tariff, periods, seasons, window_min: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """A clause's scope and the months it is in force, built once per calendar.
+
+    Without ``window_min``: the (month, period) cells inside the listed periods and seasons, (M * K,)
+    bool (a cell is one period of one month, so it is wholly inside or wholly outside: a season is a
+    set of months), and the months (M,) with some interval inside. With ``window_min``: the demand
+    windows of that length inside, (W,), and the months with some window inside.
+    """
+    key = (None if periods is None else tuple(periods), None if seasons is None else tuple(seasons), window_min)
+    got = cal.masks.get(key)
+    if got is None:
+        n_m, k = cal.n_months, cal.n_periods
+        if window_min is None:
+            season_of_month = cal.season[cal.month_starts]
+            inside = _mask(cal, tariff, periods, seasons, np.tile(np.arange(k), n_m), np.repeat(season_of_month, k))
+            months = (cal.steps_in_cell * inside.reshape(n_m, k)).sum(axis=1) > 0
+        else:
+            win = cal.windows[window_min]
+            inside = _mask(cal, tariff, periods, seasons, win.period, win.season)
+            months = np.maximum.reduceat(inside.astype(np.int8), win.month_starts) > 0
+        got = cal.masks[key] = (inside, months)
+    return got
+
+
+#: Per-interval quantities that :func:`_cell_sums` adds up by (month, period) cell.
+_KWH, _KVAH, _LAG_KVARH, _LEAD_KVARH, _LAG_EXCESS_KVARH, _LEAD_EXCESS_KVARH = range(6)
+
+
+def _cell_sums(cal: _Calendar, p: np.ndarray, q: np.ndarray, codes: list[int], ratios: list[float],
+               scopes: list[np.ndarray | None]) -> np.ndarray:
+    """Sums (n_codes, S, M * K) of per-interval quantities over each (month, period) cell, in one pass.
+
+    Codes: ``_KWH`` max(P, 0)·h; ``_KVAH`` sqrt(max(P, 0)² + Q²)·h; ``_LAG_KVARH`` max(Q, 0)·h;
+    ``_LEAD_KVARH`` max(−Q, 0)·h; ``_LAG_EXCESS_KVARH`` and ``_LEAD_EXCESS_KVARH`` the kVArh above an
+    allowance netted per interval, max(kVArh − ratio·kWh, 0), counted in the cells of its scope only.
+    ``p`` and ``q`` are (S, T) or (1, T) for every row.
+    """
+    n_cells = cal.n_months * cal.n_periods
+    in_scope = np.ones((len(codes), n_cells), dtype=bool)
+    for i, scope in enumerate(scopes):
+        if scope is not None:
+            in_scope[i] = scope
+    return _cell_sums_kernel(p, q, np.asarray(codes, dtype=np.int64), np.asarray(ratios, dtype=float), in_scope,
+                             cal.interval_h, cal.run_starts, cal.run_cell, n_cells, max(p.shape[0], q.shape[0]))
+
+
+@numba.njit(nogil=True, cache=True)
+def _cell_sums_kernel(p, q, codes, ratios, in_scope, h, run_starts, run_cell, n_cells, n_rows):  # pragma: no cover - compiled
+    """Compiled body of :func:`_cell_sums`, a pass per quantity over runs of intervals in one cell.
+
+    Per interval: kWh = max(P, 0) (times h when h != 1), kVAh = sqrt(max(P, 0)² + Q²) (times h; the
+    value of numpy's hypot to rounding), kVArh = max(±Q, 0) (times h), excess = max(kWh·(−ratio) +
+    kVArh, 0), in the numpy rule's order. A cell's sum is its runs' sums (each added in time order)
+    added in time order; a numpy reduction adds in blocks, so the sums agree to rounding (about
+    1e-16 relative).
+    """
+    n_c = codes.shape[0]
+    out = np.zeros((n_c, n_rows, n_cells))
+    scale = h != 1.0
+    one_p = p.shape[0] == 1
+    one_q = q.shape[0] == 1
+    for i in range(n_c):
+        code = codes[i]
+        neg_ratio = -ratios[i]
+        for r in range(n_rows):
+            rp = 0 if one_p else r
+            rq = 0 if one_q else r
+            for j in range(run_cell.shape[0]):
+                c = run_cell[j]
+                if code >= 4 and not in_scope[i, c]:
+                    continue
+                acc = 0.0
+                for t in range(run_starts[j], run_starts[j + 1]):
+                    if code == 0:
+                        v = max(p[rp, t], 0.0)
+                        if scale:
+                            v = v * h
+                    elif code == 1:
+                        a = max(p[rp, t], 0.0)
+                        b = q[rq, t]
+                        v = np.sqrt(a * a + b * b)
+                        if scale:
+                            v = v * h
+                    else:
+                        kv = max(q[rq, t], 0.0) if (code == 2 or code == 4) else max(-q[rq, t], 0.0)
+                        if scale:
+                            kv = kv * h
+                        if code <= 3:
+                            v = kv
+                        else:
+                            kwh = max(p[rp, t], 0.0)
+                            if scale:
+                                kwh = kwh * h
+                            v = max(kwh * neg_ratio + kv, 0.0)
+                    acc += v
+                out[i, r, c] += acc
+    return out
+
+
+@numba.njit(nogil=True, cache=True)
+def _window_peaks_kernel(p, q, kva, want_q, starts, count, identity, month_starts, in_scope,
+                         n_rows):  # pragma: no cover - compiled
+    """Each month's highest demand window in scope, with the window's mean kW and kVAr, in one pass.
+
+    Window means as the numpy rule (the window's values added in time order, divided by their count;
+    the values themselves when every window is one interval); demand = mean P, or hypot(mean P, mean Q)
+    on a kVA basis (windows compared by P² + Q², whose order is the root's but for rounding ties).
+    ``month_starts`` are the first window of each month, then the number of windows. Returns peak
+    (S, M) (−inf in a month with no window in scope) and the mean P and Q of the month's first window
+    reaching it (S, M) each (Q only with ``want_q``, else 0).
+    """
+    n_months = month_starts.shape[0] - 1
+    peak = np.full((n_rows, n_months), -np.inf)
+    p_at = np.zeros((n_rows, n_months))
+    q_at = np.zeros((n_rows, n_months))
+    one_p = p.shape[0] == 1
+    one_q = q.shape[0] == 1
+    for r in range(n_rows):
+        rp = 0 if one_p else r
+        rq = 0 if one_q else r
+        for m in range(n_months):
+            best, best_p, best_q = -np.inf, 0.0, 0.0
+            for w in range(month_starts[m], month_starts[m + 1]):
+                if not in_scope[w]:
+                    continue
+                if identity:
+                    pw = p[rp, w]
+                    qw = q[rq, w] if want_q else 0.0
+                else:
+                    a, n = starts[w], count[w]
+                    acc = 0.0
+                    for t in range(a, a + n):
+                        acc += p[rp, t]
+                    pw = acc / n
+                    qw = 0.0
+                    if want_q:
+                        acc = 0.0
+                        for t in range(a, a + n):
+                            acc += q[rq, t]
+                        qw = acc / n
+                d = pw * pw + qw * qw if kva else pw  # kVA: compared squared, one root per month below
+                if d > best:
+                    best, best_p, best_q = d, pw, qw
+            if kva and best > -np.inf:
+                best = np.hypot(best_p, best_q)
+            peak[r, m], p_at[r, m], q_at[r, m] = best, best_p, best_q
+    return peak, p_at, q_at
 
 
 # --------------------------------------------------------------------------------------------------
@@ -355,69 +496,28 @@ class _Item:
         return self.quantity * self.rate
 
 
-def _allowance_excess(cal, kvarh, kwh, ratio, scope, mask):
-    """Excess kVArh per month (S, M) for an allowance netted per interval, period or month."""
-    everywhere = bool(mask.all())
-    kv = kvarh if everywhere else kvarh * mask
-    kw = kwh if everywhere else kwh * mask
-    if scope == "interval":
-        excess = kw * -ratio
-        excess = np.add(excess, kv, out=excess) if excess.shape == np.broadcast_shapes(kv.shape, kw.shape) else excess + kv
-        return _by_month(cal, np.maximum(excess, 0.0, out=excess))
-    if scope == "period":
-        return np.maximum(_by_cell(cal, kv) - ratio * _by_cell(cal, kw), 0.0).sum(axis=2)
-    return np.maximum(_by_month(cal, kv) - ratio * _by_month(cal, kw), 0.0)
-
-
-def _months_with(cal: _Calendar, mask: np.ndarray) -> np.ndarray:
-    """(M,) True where some interval of the month is inside the mask."""
-    return np.add.reduceat(mask.astype(np.int64), cal.month_starts) > 0
-
-
-def _window_means(win: _Windows, x: np.ndarray) -> np.ndarray:
-    """Means of (R, T) over each demand window → (R, W); the values themselves when windows are intervals."""
-    if win.identity:
-        return x
-    return np.add.reduceat(x, win.starts, axis=1) / win.count
-
-
-def _at_windows(x: np.ndarray, first: np.ndarray) -> np.ndarray:
-    """x[r, first[r, m]] for every row r and month m, broadcasting a single row of x or of first."""
-    n_r = max(x.shape[0], first.shape[0])
-    first = np.broadcast_to(first, (n_r, first.shape[1]))
-    rows = np.arange(n_r)[:, None] if x.shape[0] == n_r else np.zeros((n_r, 1), dtype=np.intp)
-    return x[rows, first]
-
-
 def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s) -> list[_Item]:
     win = cal.windows[d.window_min]
     n_m = cal.n_months
-    p_w = _window_means(win, p)
-    q_w = _window_means(win, q) if (d.basis != "kW" or d.power_factor_adjustment is not None) else None
-    demand_w = p_w if d.basis == "kW" else np.hypot(p_w, q_w)
-    in_scope = _mask(cal, tariff, d.periods, d.seasons, win.period, win.season)
-    masked = demand_w if in_scope.all() else np.where(in_scope, demand_w, -np.inf)
-    peak = np.maximum.reduceat(masked, win.month_starts, axis=1)
-    applies = np.maximum.reduceat(in_scope.astype(np.int8), win.month_starts) > 0
-    peak = np.where(applies, np.maximum(peak, 0.0), 0.0)
+    a = d.power_factor_adjustment
+    in_scope, applies = _scope(cal, tariff, d.periods, d.seasons, d.window_min)
+    want_q = d.basis != "kW" or (a is not None and a.power_factor_from != "month_average")
+    raw, p_at, q_at = _window_peaks_kernel(p, q, d.basis != "kW", want_q, win.starts, win.count, win.identity,
+                                           win.month_bounds, in_scope, n_s)
+    peak = np.where(applies, np.maximum(raw, 0.0), 0.0)
 
     adjusted = peak
-    a = d.power_factor_adjustment
     if a is not None:
         if a.power_factor_from == "month_average":
             with np.errstate(invalid="ignore", divide="ignore"):
                 s = np.hypot(kwh_month, lag_kvarh_month)
                 pf = np.where(s > 0.0, kwh_month / np.where(s > 0.0, s, 1.0), 1.0)
         else:
-            # PF of the first window of each month that reaches the month's peak (lagging kVAr only).
-            n_w = masked.shape[1]
-            at_peak = in_scope & (masked >= peak[:, win.month])
-            first = np.minimum.reduceat(np.where(at_peak, np.arange(n_w), n_w), win.month_starts, axis=1)
-            found = first < n_w
-            first = np.minimum(first, n_w - 1)
-            pw, qw = _at_windows(p_w, first), np.maximum(_at_windows(q_w, first), 0.0)
+            # PF of the first window of each month that reaches the month's peak (lagging kVAr only);
+            # a month whose windows all export has no such window
+            pw, qw = p_at, np.maximum(q_at, 0.0)
             s = np.hypot(pw, qw)
-            ok = found & (pw > 0.0)
+            ok = (raw >= 0.0) & (pw > 0.0)
             pf = np.where(ok, pw / np.where(ok, s, 1.0), 1.0)
         if a.method == "ratio":
             adjusted = pf_adjusted_demand_kw(peak, pf, a.target_power_factor)
@@ -450,69 +550,82 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     """Price (S, T) meter arrays; return the line items with (S, M) quantities.
 
     ``p`` or ``q`` may have a single row that stands for every scenario (e.g. scenarios that change
-    only the kVAr): what depends on that quantity alone is then computed once, and an item's quantity
-    has one row when it depends on nothing else.
+    only the kVAr). The per-interval work is two kinds of compiled pass: the cell sums of every
+    quantity the clauses need (:func:`_cell_sums`, one pass for all of them) and each demand charge's
+    monthly peak (:func:`_window_peaks_kernel`); the clauses are priced on the (S, M) results.
     """
-    n_s, n_m = max(p.shape[0], q.shape[0]), cal.n_months
-    h = cal.interval_h
-    p_imp = np.maximum(p, 0.0)
-    kwh = p_imp if h == 1.0 else p_imp * h  # x * 1.0 is x: the hourly case skips a pass
-    needs_lag = bool(tariff.reactive) or any(d.power_factor_adjustment is not None for d in tariff.demand)
-    lag = None
-    if needs_lag:
-        lag = np.maximum(q, 0.0)
-        if h != 1.0:
-            lag *= h
-    lead = None
-    if tariff.leading:
-        lead = np.negative(q)
-        np.maximum(lead, 0.0, out=lead)
-        if h != 1.0:
-            lead *= h
+    n_s, n_m, k = max(p.shape[0], q.shape[0]), cal.n_months, cal.n_periods
+    p = np.asarray(p, dtype=float)
+    q = np.asarray(q, dtype=float)
     every_month = np.ones(n_m, dtype=bool)
     no_flag = np.zeros((n_s, n_m), dtype=bool)
-    items: list[_Item] = []
 
+    # what the clauses need, summed by cell in one pass
+    codes: list[int] = []
+    ratios: list[float] = []
+    scopes: list[np.ndarray | None] = []
+    plain: dict[int, int] = {}
+
+    def summed(code: int, ratio: float = 0.0, scope: np.ndarray | None = None) -> int:
+        if scope is None and code in plain:
+            return plain[code]
+        codes.append(code)
+        ratios.append(ratio)
+        scopes.append(scope)
+        if scope is None:
+            plain[code] = len(codes) - 1
+        return len(codes) - 1
+
+    energy_at = None
+    if tariff.energy is not None:
+        energy_at = summed(_KWH if tariff.energy.basis == "kWh" else _KVAH)
+    kwh_at = lag_at = None
+    if tariff.demand:
+        kwh_at = summed(_KWH)
+        if any(d.power_factor_adjustment is not None for d in tariff.demand):
+            lag_at = summed(_LAG_KVARH)
+    clauses = []
+    for kind, clause_list, plain_code, excess_code in (("reactive", tariff.reactive, _LAG_KVARH, _LAG_EXCESS_KVARH),
+                                                       ("leading", tariff.leading, _LEAD_KVARH, _LEAD_EXCESS_KVARH)):
+        for r in clause_list:
+            scope, months = _scope(cal, tariff, r.periods, r.seasons)
+            if r.allowance_per == "interval":
+                at = (summed(excess_code, float(r.free_kvarh_per_kwh), scope),)
+            else:
+                at = (summed(plain_code), summed(_KWH))
+            clauses.append((kind, r, scope, months, at))
+    cells = _cell_sums(cal, p, q, codes, ratios, scopes).reshape(len(codes), n_s, n_m, k) if codes else None
+
+    items: list[_Item] = []
     for f in tariff.fixed:
         items.append(_Item(f"fixed:{f.name}", "fixed", "month", np.full(n_m, f.charge_per_month), np.ones((n_s, n_m)), every_month, no_flag))
 
-    if tariff.energy is not None:
-        if tariff.energy.basis == "kWh":
-            energy = kwh
-        else:
-            energy = np.hypot(p_imp, q)
-            if h != 1.0:
-                energy *= h
-        cells = _by_cell(cal, energy)
-        for k, code in enumerate(tariff.period_codes):
-            items.append(
-                _Item(
-                    f"energy:{code}",
-                    "energy",
-                    tariff.energy.basis,
-                    np.full(n_m, tariff.energy.price(code)),
-                    cells[:, :, k],
-                    cal.steps_in_cell[:, k] > 0,
-                    no_flag,
-                )
-            )
+    if energy_at is not None:
+        energy = cells[energy_at]
+        for kk, code in enumerate(tariff.period_codes):
+            items.append(_Item(f"energy:{code}", "energy", tariff.energy.basis, np.full(n_m, tariff.energy.price(code)),
+                               energy[:, :, kk], cal.steps_in_cell[:, kk] > 0, no_flag))
 
     if tariff.demand:
-        kwh_month = _by_month(cal, kwh)
-        lag_month = _by_month(cal, lag) if lag is not None else None
+        kwh_month = cells[kwh_at].sum(axis=2)
+        lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
         for d in tariff.demand:
             items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s))
 
-    for r in tariff.reactive:
-        mask = _mask(cal, tariff, r.periods, r.seasons)
-        qty = _allowance_excess(cal, lag, kwh, r.free_kvarh_per_kwh, r.allowance_per, mask)
-        items.append(_Item(f"reactive:{r.name}", "reactive", "kVArh", np.full(n_m, r.price_per_kvarh), qty, _months_with(cal, mask), no_flag))
-
-    for r in tariff.leading:
-        mask = _mask(cal, tariff, r.periods, r.seasons)
-        qty = _allowance_excess(cal, lead, kwh, r.free_kvarh_per_kwh, r.allowance_per, mask)
-        flag = (qty > 0.0) if r.banned else no_flag
-        items.append(_Item(f"leading:{r.name}", "leading", "kVArh", np.full(n_m, r.price_per_kvarh), qty, _months_with(cal, mask), flag))
+    for kind, r, scope, months, at in clauses:
+        if r.allowance_per == "interval":
+            qty = cells[at[0]].sum(axis=2)
+        else:
+            inside = scope.reshape(n_m, k)
+            kv = np.where(inside, cells[at[0]], 0.0)
+            kw = np.where(inside, cells[at[1]], 0.0)
+            ratio = r.free_kvarh_per_kwh
+            if r.allowance_per == "period":
+                qty = np.maximum(kv - ratio * kw, 0.0).sum(axis=2)
+            else:
+                qty = np.maximum(kv.sum(axis=2) - ratio * kw.sum(axis=2), 0.0)
+        flag = (qty > 0.0) if kind == "leading" and r.banned else no_flag
+        items.append(_Item(f"{kind}:{r.name}", kind, "kVArh", np.full(n_m, r.price_per_kvarh), qty, months, flag))
 
     for t in tariff.taxes:
         cats = _TAX_BASE_CATEGORIES[t.base]
@@ -694,8 +807,10 @@ def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, 
     names = [it.name for it in items]
     if not items:
         return names, np.zeros((n, 0)), np.zeros((n, 0), dtype=bool)
-    amounts = np.stack([np.broadcast_to(np.where(it.applies, it.amount, 0.0).sum(axis=1), (n,)) for it in items], axis=1)
-    flagged = np.stack([np.broadcast_to((it.flag & it.applies).any(axis=1), (n,)) for it in items], axis=1)
+    # every item's quantity and flag is (S, M): one (S, I, M) stack, summed over the months of each row
+    applies = np.stack([it.applies for it in items])  # (I, M)
+    amounts = np.where(applies, np.stack([it.amount for it in items], axis=1), 0.0).sum(axis=2)
+    flagged = (np.stack([it.flag for it in items], axis=1) & applies).any(axis=2)
     return names, amounts, flagged
 
 

@@ -231,12 +231,21 @@ class _Load:
     """The reference load of a group of assets on a (n, m) grid of steps or states."""
 
     p_ref_kw: np.ndarray      # shaft power with today's motor [kW]
-    n_ref_rpm: np.ndarray     # today's shaft speed [rpm]
+    n_ref_known: np.ndarray | None  # today's shaft speed [rpm], or None until first asked (see n_ref_rpm)
     running: np.ndarray       # bool
     weight_h: np.ndarray      # hours each column stands for, (n, m)
     p_design_kw: np.ndarray   # design (valve-open) shaft power per asset [kW], (n, 1)
     controlled: tuple[np.ndarray, np.ndarray] | None = None  # _speed_controlled's result, once computed
     running_weight: tuple[np.ndarray, np.ndarray] | None = None  # (weight where running, its row sums), once computed
+    existing: induction.InductionParams | None = None  # today's motors, for a speed not yet computed
+
+    @property
+    def n_ref_rpm(self) -> np.ndarray:
+        """Today's shaft speed at the reference load [rpm], computed on first use (element-wise: a group
+        whose intervals are all read from its grid never needs it per interval)."""
+        if self.n_ref_known is None:
+            self.n_ref_known = np.asarray(induction.induction_speed_rpm(self.existing, self.p_ref_kw), dtype=float)
+        return self.n_ref_known
 
     def rows(self, sub: np.ndarray) -> "_Load":
         """The same load for a subset of its assets (element-wise quantities, so sliced, not recomputed)."""
@@ -247,8 +256,10 @@ class _Load:
         w = self.weight_h
         # one row of weights for every asset (interval data) stays one row, broadcast
         weight = np.broadcast_to(w[:1], (len(sub),) + w.shape[1:]) if w.shape[0] and w.strides[0] == 0 else w[sub]
-        return _Load(self.p_ref_kw[sub], self.n_ref_rpm[sub], self.running[sub], weight,
-                     self.p_design_kw[sub], controlled, running_weight)
+        n_ref = None if self.n_ref_known is None else self.n_ref_known[sub]
+        existing = None if n_ref is not None else _take_params(self.existing, sub)
+        return _Load(self.p_ref_kw[sub], n_ref, self.running[sub], weight, self.p_design_kw[sub], controlled,
+                     running_weight, existing)
 
     def weight_running(self) -> tuple[np.ndarray, np.ndarray]:
         """Hours each column stands for where the asset runs (0 elsewhere) (n, m), and their sums (n,) [h]."""
@@ -266,12 +277,11 @@ def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray
         shaft = induction.shaft_from_input_kw(existing, np.where(is_input_kw[:, None], values, 0.0))
         p_ref = np.where(is_input_kw[:, None], shaft, p_ref)
     running = p_ref > 0.0
-    n_ref = induction.induction_speed_rpm(existing, p_ref)
     weight = np.broadcast_to(weight_h, p_ref.shape)
     on = running & (weight > 0)
     peak = np.where(on, p_ref, 0.0).max(axis=1, keepdims=True)
     p_design = np.maximum(peak, DESIGN_SHAFT_LOAD_FRAC * rated)
-    return _Load(p_ref, n_ref, running, weight, p_design)
+    return _Load(p_ref, None, running, weight, p_design, existing=existing)  # speed on first use
 
 
 def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:
@@ -777,7 +787,11 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
 
     a = case.assets.iloc[rows].reset_index(drop=True)
     block = replace(case, assets=a)
-    options = options_with_baseline(case.options)
+    if site_constants is not None and site_constants.options is not None:
+        options, option_rows = site_constants.options, site_constants.option_rows
+    else:
+        options = options_with_baseline(case.options)
+        option_rows = tuple(options.iloc[o] for o in range(len(options)))
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
     # class efficiencies are per asset: computed once per block (or site), sliced with the rest for each option
@@ -979,7 +993,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             # element-wise: computed once, sliced for each option (today's drives compute their own)
             load.controlled = _speed_controlled(arr, load)
         if today is None:
-            run(0, options.iloc[0], kind, rows_, np.arange(len(rows_)), arr, existing, load)
+            run(0, option_rows[0], kind, rows_, np.arange(len(rows_)), arr, existing, load)
             running_h[rows_] = grids[kind][0].hours_h.sum(axis=1) if kind in grids else load.weight_running()[1]
     if today is not None:  # the same block's first pass: the same numbers
         p_kw[0], q_kvar[0] = today.p_kw, today.q_kvar
@@ -992,7 +1006,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     for o in range(1, 1 if only_today else n_o):
         if wanted is not None and o not in wanted:
             continue
-        option = options.iloc[o]
+        option = option_rows[o]
         for kind, rows_, arr, existing, load in groups:
             sub = np.flatnonzero(applies[rows_, o])
             if needed is not None and o in needed and not _batch_coupled(option):
@@ -1082,6 +1096,8 @@ class _SiteConstants:
     arrays: dict
     existing: induction.InductionParams
     loads: tuple | None = None
+    options: pd.DataFrame | None = None  # options_with_baseline of the case
+    option_rows: tuple = ()  # each option's row (pandas.Series), taken once per site
 
 
 def _site_constants(case, index: pd.DatetimeIndex | None = None) -> _SiteConstants:
@@ -1090,9 +1106,11 @@ def _site_constants(case, index: pd.DatetimeIndex | None = None) -> _SiteConstan
     With ``index``, the loads too: each profile is placed on the index once per site instead of once
     per block and pass (memory: one load value per asset and step of the site while it is worked).
     """
-    arrays = _with_class_efficiencies(asset_arrays(case.assets), _catalogue_classes(options_with_baseline(case.options)))
+    options = options_with_baseline(case.options)
+    arrays = _with_class_efficiencies(asset_arrays(case.assets), _catalogue_classes(options))
     loads = asset_loads(case, index) if index is not None else None
-    return _SiteConstants(arrays, existing_motor(arrays), loads)
+    return _SiteConstants(arrays, existing_motor(arrays), loads, options,
+                          tuple(options.iloc[o] for o in range(len(options))))
 
 
 def _block_loads(site_loads: tuple, rows: np.ndarray, block_asset_ids) -> tuple:

@@ -15,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Sequence
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -249,6 +250,57 @@ def stepped_bank_q_kvar(p_kw, q_kvar, rated_q_kvar, step_kvar, target_power_fact
     np.clip(k, 0.0, n_max, out=k)
     k *= -step_kvar
     return _like(q_kvar, k)
+
+
+def add_stepped_bank_kvar(p_kw: np.ndarray, q_kvar: np.ndarray, rated_q_kvar: float, step_kvar: float,
+                          target_power_factor: float) -> None:
+    """Add a stepped bank's kVAr in service to (S, T) meter arrays in place: ``q_kvar += stepped_bank_q_kvar(...)``.
+
+    Parameters
+    ----------
+    p_kw : numpy.ndarray, shape (S, T) or (1, T)
+        Site active power seen by the controller [kW] (one row stands for every row of ``q_kvar``).
+    q_kvar : numpy.ndarray, shape (S, T), float64
+        Site reactive power before the bank [kVAr]; on return, after it.
+    rated_q_kvar, step_kvar, target_power_factor : float
+        As in :func:`stepped_bank_q_kvar` (checked the same way).
+
+    Notes
+    -----
+    One compiled pass doing :func:`stepped_bank_q_kvar`'s operations in its order (the same values,
+    bit for bit), without its two temporaries.
+    """
+    if rated_q_kvar < 0.0:
+        raise ValueError("rated_q_kvar must be >= 0 (enter the bank size as a positive number)")
+    if not step_kvar > 0.0:
+        raise ValueError("step_kvar must be > 0")
+    if not 0.0 < target_power_factor <= 1.0:
+        raise ValueError("target_power_factor must lie in (0, 1]")
+    n_max = np.floor(rated_q_kvar / step_kvar + _STEP_TOLERANCE)
+    _add_stepped_kernel(p_kw, q_kvar, float(tan_phi_from_power_factor(target_power_factor)), float(step_kvar),
+                        float(n_max), _STEP_TOLERANCE)
+
+
+@numba.njit(nogil=True, cache=True)
+def _add_stepped_kernel(p, q, tan_target, step, n_max, tol):  # pragma: no cover - compiled
+    """Compiled body of :func:`add_stepped_bank_kvar` (NaN in, NaN out, as numpy's minimum and clip)."""
+    one_p = p.shape[0] == 1
+    for s in range(q.shape[0]):
+        sp = 0 if one_p else s
+        for t in range(q.shape[1]):
+            q_t = q[s, t]
+            k = np.ceil((q_t - abs(p[sp, t]) * tan_target) / step - tol)
+            k_lead = np.floor(q_t / step + tol)
+            if k != k or k_lead != k_lead:
+                k = np.nan
+            else:
+                if k_lead < k:
+                    k = k_lead
+                if k < 0.0:
+                    k = 0.0
+                if k > n_max:
+                    k = n_max
+            q[s, t] = q_t + k * -step
 
 
 @dataclass(frozen=True)

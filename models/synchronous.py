@@ -22,6 +22,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -1058,7 +1059,7 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
     )
     shape = np.broadcast_shapes(p_kw.shape, *(np.shape(val) for val in per_asset.values()))
     flags = dict(occ_linear=bool(np.all(sat == 1.0)), all_pf=bool(np.all(is_pf)), all_kvar=bool(np.all(is_kvar)))
-    res = _blockwise(_wfsm_kernel, shape, p=p_kw, **per_asset, **flags)
+    res = _wfsm_compiled(shape, p=p_kw, **per_asset, **flags)
     o = kind.out
     view = lambda a: o(np.broadcast_to(a, shape))  # noqa: E731
     res = {name: o(value) for name, value in res.items()}
@@ -1130,6 +1131,145 @@ def _wfsm_kernel(p, v, v_r, r, x, i_ag, r_f, sat, inv_eta_x, fixed, s_max, s_max
         "limited_by_load_angle": high & (q_hi_d < q_i),
         "infeasible": (p_st > s_max) | (h2 < 0.0) | (lo > hi + tol) | (disc < 0.0),
     }
+
+
+#: Outputs of the wound-field kernels, in the compiled pass's order.
+_WFSM_FLOAT_OUTPUTS = ("p_in_kw", "q_kvar", "stator_current_a", "field_current_a", "emf_ph_v", "load_angle_deg",
+                       "q_desired_kvar", "stator_copper_loss_kw", "field_copper_loss_kw", "exciter_loss_kw")
+_WFSM_BOOL_OUTPUTS = ("leading", "limited_by_stator_current", "limited_by_field_current", "limited_by_load_angle",
+                      "infeasible")
+_WFSM_INPUTS = ("p", "v", "v_r", "r", "x", "i_ag", "r_f", "sat", "inv_eta_x", "fixed", "s_max", "s_max2", "a", "cq",
+                "c_re", "rad2", "qd0", "qd1", "v3", "inv3v", "tan_set", "tan_t", "is_pf", "is_kvar", "q_set", "site_p",
+                "site_q")
+
+
+def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, all_kvar: bool,
+                   **inputs) -> dict[str, np.ndarray]:
+    """:func:`_wfsm_kernel`'s outputs for inputs broadcast to ``shape``, in one compiled pass.
+
+    The pass (:func:`_wfsm_pass`) does the kernel's operations element by element in its order, so the
+    values are the same bit for bit (checked against :func:`_wfsm_kernel` in the tests); it holds no
+    temporaries the size of the operating arrays and releases the interpreter lock.
+    """
+    def as_2d(value, dtype):
+        a = np.broadcast_to(np.asarray(value, dtype=dtype), shape)
+        return a.reshape((1,) * (2 - a.ndim) + a.shape) if a.ndim < 2 else a.reshape(-1, shape[-1]) if a.ndim > 2 else a
+
+    args = [as_2d(inputs[name], bool if name in ("is_pf", "is_kvar") else float) for name in _WFSM_INPUTS]
+    grid = args[0].shape
+    floats = np.empty((len(_WFSM_FLOAT_OUTPUTS) + 1,) + grid)
+    flags = np.empty((len(_WFSM_BOOL_OUTPUTS),) + grid, dtype=bool)
+    _wfsm_pass(*args, bool(occ_linear), bool(all_pf), bool(all_kvar), _WFSM_ITERATIONS, _LIMIT_RTOL, floats, flags)
+    # the pass leaves re3 in the load angle's slot and im3 in the extra one: the angle is taken with numpy's
+    # arctan2 (its vectorised loop may differ from the C library's in the last bit)
+    at = _WFSM_FLOAT_OUTPUTS.index("load_angle_deg")
+    re3, im3 = floats[at], floats[-1]
+    np.degrees(np.arctan2(im3, re3, out=re3), out=re3)
+    out = {name: floats[i].reshape(shape) for i, name in enumerate(_WFSM_FLOAT_OUTPUTS)}
+    out.update({name: flags[i].reshape(shape) for i, name in enumerate(_WFSM_BOOL_OUTPUTS)})
+    return out
+
+
+@numba.njit(inline="always")
+def _mx(a, b):  # pragma: no cover - compiled
+    """numpy.maximum of two floats (the first when equal; NaN when either is NaN)."""
+    return a if (a >= b or a != a) else b
+
+
+@numba.njit(inline="always")
+def _mn(a, b):  # pragma: no cover - compiled
+    """numpy.minimum of two floats (the first when equal; NaN when either is NaN)."""
+    return a if (a <= b or a != a) else b
+
+
+@numba.njit(nogil=True, cache=True)
+def _wfsm_pass(p_, v_, v_r_, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_max_, s_max2_, a_, cq_, c_re_, rad2_,
+               qd0_, qd1_, v3_, inv3v_, tan_set_, tan_t_, is_pf_, is_kvar_, q_set_, site_p_, site_q_, occ_linear,
+               all_pf, all_kvar, iterations, limit_rtol, floats, flags):  # pragma: no cover - compiled
+    """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element."""
+    n_i, n_t = floats.shape[1], floats.shape[2]
+    for i in range(n_i):
+        for t in range(n_t):
+            p = p_[i, t] * 1e3
+            fixed, a, r, x, v3, inv3v = fixed_[i, t], a_[i, t], r_[i, t], x_[i, t], v3_[i, t], inv3v_[i, t]
+            i_ag, v_r, sat, r_f, inv_eta_x = i_ag_[i, t], v_r_[i, t], sat_[i, t], r_f_[i, t], inv_eta_x_[i, t]
+            s_max, s_max2, c_re, rad2, cq = s_max_[i, t], s_max2_[i, t], c_re_[i, t], rad2_[i, t], cq_[i, t]
+            qd0, qd1, tan_set, tan_t, q_set = qd0_[i, t], qd1_[i, t], tan_set_[i, t], tan_t_[i, t], q_set_[i, t]
+            is_pf, is_kvar, site_p, site_q = is_pf_[i, t], is_kvar_[i, t], site_p_[i, t], site_q_[i, t]
+            pm = p + fixed
+            k_lin = i_ag / v_r
+            if all_pf:
+                q0 = tan_set * pm
+            elif all_kvar:
+                q0 = q_set + 0.0 * pm
+            elif is_pf:
+                q0 = tan_set * pm
+            elif is_kvar:
+                q0 = q_set
+            else:
+                q0 = _mn((site_p + pm) * tan_t - site_q, 0.0)
+            p_st = pm + a * _mn(pm * pm + q0 * q0, s_max2)
+            re3 = v3 - r * p_st - x * q0
+            im3 = x * p_st - r * q0
+            i_f = np.sqrt(re3 * re3 + im3 * im3) * inv3v * k_lin
+            p_exc = i_f * i_f * r_f * inv_eta_x
+            q_des = q = q_i = q_lo_f = q_hi_d = lo = hi = h2 = disc = emf = p_fcu = 0.0
+            for _ in range(iterations):
+                p_tot = p_st + p_exc
+                if all_pf:
+                    q_des = tan_set * p_tot
+                elif all_kvar:
+                    q_des = q_set + 0.0 * p_tot
+                else:
+                    q_follow = _mn((site_p + p_tot) * tan_t - site_q, 0.0)
+                    q_des = tan_set * p_tot if is_pf else (q_set if is_kvar else q_follow)
+                q_i = np.sqrt(_mx(s_max2 - p_st * p_st, 0.0))
+                dp = p_st - c_re
+                h2 = rad2 - dp * dp
+                h = np.sqrt(_mx(h2, 0.0))
+                q_lo_f = cq - h
+                q_hi_d = qd0 - qd1 * p_st
+                lo = _mx(-q_i, q_lo_f)
+                hi = _mn(q_i, q_hi_d)
+                q = _mn(_mx(q_des, lo), hi)
+                c = pm + a * q * q
+                disc = 1.0 - 4.0 * a * c
+                p_st = 2.0 * c / (1.0 + np.sqrt(_mx(disc, 0.0)))
+                re3 = v3 - r * p_st - x * q
+                im3 = x * p_st - r * q
+                emf = np.sqrt(re3 * re3 + im3 * im3) * inv3v
+                if occ_linear:
+                    i_f = emf * k_lin
+                else:  # _occ_field
+                    lin = i_ag * emf / v_r
+                    s = sat if sat > 1.0 else 2.0
+                    e_max = s * v_r / (s - 1.0)
+                    i0 = i_ag * e_max / v_r
+                    sat_i = i0 * emf / (e_max - emf) if emf < e_max else np.inf
+                    i_f = sat_i if sat > 1.0 else lin
+                p_fcu = i_f * i_f * r_f
+                p_exc = p_fcu * inv_eta_x
+            tol = limit_rtol * _mx(s_max, abs(q_des))
+            low = q_des < lo - tol
+            high = q_des > hi + tol
+            i_line = np.sqrt(p_st * p_st + q * q) * inv3v
+            k = 1e-3
+            floats[0, i, t] = (p_st + p_exc) * k
+            floats[1, i, t] = q * k
+            floats[2, i, t] = i_line
+            floats[3, i, t] = i_f
+            floats[4, i, t] = emf
+            floats[5, i, t] = re3  # the load angle is taken from re3 and im3 in numpy afterwards
+            floats[10, i, t] = im3
+            floats[6, i, t] = q_des * k
+            floats[7, i, t] = (3.0 * i_line * i_line * r) * k
+            floats[8, i, t] = p_fcu * k
+            floats[9, i, t] = (p_exc - p_fcu) * k
+            flags[0, i, t] = q < 0.0
+            flags[1, i, t] = (low and (-q_i >= q_lo_f)) or (high and (q_i <= q_hi_d))
+            flags[2, i, t] = low and (q_lo_f > -q_i)
+            flags[3, i, t] = high and (q_hi_d < q_i)
+            flags[4, i, t] = (p_st > s_max) or (h2 < 0.0) or (lo > hi + tol) or (disc < 0.0)
 
 
 @dataclass(frozen=True)

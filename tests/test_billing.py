@@ -472,3 +472,111 @@ class TestInputs:
         b = bill(t, idx, np.zeros(8), np.zeros(8))
         # hand calculation: nothing drawn, PF taken as 1 (no adjustment), only the fixed 12.50
         assert_allclose(bill_total(b), 12.5, **EXACT)
+
+
+# --------------------------------------------------------------------------------------------------
+# The compiled passes against the numpy rules they replace
+# --------------------------------------------------------------------------------------------------
+
+
+class TestCompiledPasses:
+    """The cell sums and the demand windows' peaks, against the same rules written in plain numpy here.
+
+    The compiled passes add each cell's or window's values in time order; a numpy reduction adds in
+    blocks, so the two agree to rounding: 1e-12 relative is asked (the largest sums here hold about
+    3,000 values).
+    """
+
+    CLOSE = dict(rtol=1e-12, atol=1e-9)
+
+    @pytest.fixture(scope="class")
+    @classmethod
+    def meters(cls):
+        from models.billing import _calendar
+
+        t = example("example_pf_adjusted_demand.toml")
+        # 15-minute data across a month end and a season change (May -> June), with export and leading kVAr
+        index = pd.date_range("2025-05-20", periods=4 * 24 * 20, freq="15min", tz=t.time_zone)
+        rng = np.random.default_rng(5)
+        p = rng.uniform(-50.0, 400.0, (3, len(index)))
+        q = rng.uniform(-150.0, 250.0, (3, len(index)))
+        return t, _calendar(t, index, 0.25), p, q
+
+    def numpy_cells(self, cal, x):
+        """Sum of (S, T) values by (month, period) cell, with numpy.add.at."""
+        out = np.zeros((x.shape[0], cal.n_months * cal.n_periods))
+        cell = cal.month * cal.n_periods + cal.period
+        for s in range(x.shape[0]):
+            np.add.at(out[s], cell, x[s])
+        return out
+
+    @pytest.mark.parametrize("code", range(6))
+    def test_cell_sums(self, meters, code):
+        from models.billing import _cell_sums
+
+        t, cal, p, q = meters
+        h, ratio = cal.interval_h, 0.4
+        kwh, lag, lead = np.maximum(p, 0.0) * h, np.maximum(q, 0.0) * h, np.maximum(-q, 0.0) * h
+        scope = np.zeros(cal.n_months * cal.n_periods, dtype=bool)
+        scope[::2] = True  # every other cell
+        rule = {
+            0: kwh,
+            1: np.hypot(np.maximum(p, 0.0), q) * h,
+            2: lag,
+            3: lead,
+            4: np.maximum(lag - ratio * kwh, 0.0),
+            5: np.maximum(lead - ratio * kwh, 0.0),
+        }[code]
+        expected = self.numpy_cells(cal, rule)
+        if code >= 4:
+            expected = np.where(scope, expected, 0.0)
+        got = _cell_sums(cal, p, q, [code], [ratio], [scope if code >= 4 else None])[0]
+        assert_allclose(got, expected, **self.CLOSE)
+
+    def test_a_single_row_stands_for_every_scenario(self, meters):
+        from models.billing import _KVAH, _cell_sums
+
+        t, cal, p, q = meters
+        got = _cell_sums(cal, p[:1], q, [_KVAH], [0.0], [None])[0]
+        expected = self.numpy_cells(cal, np.hypot(np.maximum(p[:1], 0.0), q) * cal.interval_h)
+        assert_allclose(got, expected, **self.CLOSE)
+
+    @pytest.mark.parametrize("window_min", [15, 60])
+    @pytest.mark.parametrize("kva", [False, True])
+    def test_window_peaks(self, meters, window_min, kva):
+        from dataclasses import replace
+
+        from models.billing import _calendar, _mask, _window_peaks_kernel
+
+        t, _, p, q = meters
+        index = pd.date_range("2025-05-20", periods=p.shape[1], freq="15min", tz=t.time_zone)
+        t = replace(t, demand=(replace(t.demand[0], window_min=window_min),))
+        cal = _calendar(t, index, 0.25)
+        win = cal.windows[window_min]
+        assert win.identity == (window_min == 15)
+        scope = _mask(cal, t, ("on-peak", "mid-peak"), None, win.period, win.season)
+        # the rule in numpy: window means, masked, the month's maximum and its first window
+        p_w = np.add.reduceat(p, win.starts, axis=1) / win.count
+        q_w = np.add.reduceat(q, win.starts, axis=1) / win.count
+        demand = np.hypot(p_w, q_w) if kva else p_w
+        masked = np.where(scope, demand, -np.inf)
+        peak, p_at, q_at = _window_peaks_kernel(p, q, kva, True, win.starts, win.count, win.identity,
+                                                win.month_bounds, scope, p.shape[0])
+        for m in range(cal.n_months):
+            seg = slice(win.month_bounds[m], win.month_bounds[m + 1])
+            best = masked[:, seg].max(axis=1)
+            first = np.argmax(masked[:, seg] >= best[:, None], axis=1) + win.month_bounds[m]
+            assert_allclose(peak[:, m], best, **self.CLOSE)
+            rows = np.arange(p.shape[0])
+            assert_allclose(p_at[:, m], p_w[rows, first], **self.CLOSE)
+            assert_allclose(q_at[:, m], q_w[rows, first], **self.CLOSE)
+
+    def test_a_month_without_a_window_in_scope(self, meters):
+        from models.billing import _window_peaks_kernel
+
+        t, cal, p, q = meters
+        win = cal.windows[t.demand[0].window_min]
+        scope = np.zeros(len(win.starts), dtype=bool)
+        peak, _, _ = _window_peaks_kernel(p, q, False, False, win.starts, win.count, win.identity, win.month_bounds,
+                                          scope, p.shape[0])
+        assert np.all(peak == -np.inf)

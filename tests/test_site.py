@@ -15,6 +15,7 @@ from numpy.testing import assert_allclose
 
 from models.site import (
     FixedCapacitorBank,
+    add_stepped_bank_kvar,
     Site,
     SteppedCapacitorBank,
     meter_from_asset_totals,
@@ -236,6 +237,27 @@ class TestSteppedBank:
         # and it does not switch more than one step beyond what the target needs
         assert -q_cap <= max(q - allowed, 0.0) + step + 1e-9
 
+
+    @pytest.mark.parametrize("one_row_of_p", [False, True])
+    def test_in_place_pass_gives_the_rule_bit_for_bit(self, one_row_of_p):
+        # the compiled pass against stepped_bank_q_kvar itself: same values, including exact step
+        # boundaries (q a whole number of steps), leading sites, idle intervals and a NaN (kept NaN)
+        rng = np.random.default_rng(3)
+        p = rng.uniform(-50.0, 900.0, (1 if one_row_of_p else 5, 400))
+        q = rng.uniform(-200.0, 700.0, (5, 400))
+        q[:, :40] = 50.0 * rng.integers(0, 10, (5, 40))
+        p[:, 40:60] = 0.0
+        q[2, 7] = np.nan
+        expected = q + stepped_bank_q_kvar(p, q, 250.0, 50.0, 0.95)
+        got = q.copy()
+        add_stepped_bank_kvar(p, got, 250.0, 50.0, 0.95)
+        np.testing.assert_array_equal(got, expected)
+        assert np.isnan(got[2, 7])
+
+    @pytest.mark.parametrize("args", [(-1.0, 50.0, 0.95), (100.0, 0.0, 0.95), (100.0, 50.0, 1.01)])
+    def test_in_place_pass_refuses_an_invalid_bank(self, args):
+        with pytest.raises(ValueError):
+            add_stepped_bank_kvar(np.ones((1, 3)), np.ones((1, 3)), *args)
 
 class TestOrderIndependence:
     @settings(max_examples=30, deadline=None)
