@@ -1138,9 +1138,9 @@ _WFSM_FLOAT_OUTPUTS = ("p_in_kw", "q_kvar", "stator_current_a", "field_current_a
                        "q_desired_kvar", "stator_copper_loss_kw", "field_copper_loss_kw", "exciter_loss_kw")
 _WFSM_BOOL_OUTPUTS = ("leading", "limited_by_stator_current", "limited_by_field_current", "limited_by_load_angle",
                       "infeasible")
-_WFSM_INPUTS = ("p", "v", "v_r", "r", "x", "i_ag", "r_f", "sat", "inv_eta_x", "fixed", "s_max", "s_max2", "a", "cq",
-                "c_re", "rad2", "qd0", "qd1", "v3", "inv3v", "tan_set", "tan_t", "is_pf", "is_kvar", "q_set", "site_p",
-                "site_q")
+#: Inputs of the wound-field kernel that hold one value per asset (the load and the site vary per interval).
+_WFSM_ROW_INPUTS = ("r", "x", "i_ag", "r_f", "sat", "inv_eta_x", "fixed", "s_max", "s_max2", "a", "cq", "c_re", "rad2",
+                    "qd0", "qd1", "v3", "inv3v", "v_r", "tan_set", "tan_t", "is_pf", "is_kvar", "q_set")
 
 
 def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, all_kvar: bool,
@@ -1149,17 +1149,39 @@ def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, al
 
     The pass (:func:`_wfsm_pass`) does the kernel's operations element by element in its order, so the
     values are the same bit for bit (checked against :func:`_wfsm_kernel` in the tests); it holds no
-    temporaries the size of the operating arrays and releases the interpreter lock.
+    temporaries the size of the operating arrays and releases the interpreter lock. The shaft load
+    and the site's other power vary per interval; every other input is one value per asset (row), as
+    :func:`wfsm_operating_point` builds them; inputs of any other shape go to the numpy kernel.
     """
-    def as_2d(value, dtype):
-        a = np.broadcast_to(np.asarray(value, dtype=dtype), shape)
-        return a.reshape((1,) * (2 - a.ndim) + a.shape) if a.ndim < 2 else a.reshape(-1, shape[-1]) if a.ndim > 2 else a
+    n_t = shape[-1] if len(shape) else 1
+    n_rows = int(np.prod(shape[:-1])) if len(shape) > 1 else 1
 
-    args = [as_2d(inputs[name], bool if name in ("is_pf", "is_kvar") else float) for name in _WFSM_INPUTS]
-    grid = args[0].shape
-    floats = np.empty((len(_WFSM_FLOAT_OUTPUTS) + 1,) + grid)
-    flags = np.empty((len(_WFSM_BOOL_OUTPUTS),) + grid, dtype=bool)
-    _wfsm_pass(*args, bool(occ_linear), bool(all_pf), bool(all_kvar), _WFSM_ITERATIONS, _LIMIT_RTOL, floats, flags)
+    def per_interval(value):
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=float), shape)).reshape(n_rows, n_t)
+
+    def per_row(name):
+        value = inputs[name]
+        if np.ndim(value) == len(shape) and len(shape) and np.shape(value)[-1] != 1:
+            return None  # varies along the intervals: not a per-asset value
+        col = np.broadcast_to(np.asarray(value, dtype=bool if name in ("is_pf", "is_kvar") else float),
+                              shape[:-1] + (1,) if len(shape) else (1,))
+        return np.ascontiguousarray(col).reshape(n_rows)
+
+    rows = [per_row(name) for name in _WFSM_ROW_INPUTS]
+    if any(r is None for r in rows):
+        return _blockwise(_wfsm_kernel, shape, occ_linear=occ_linear, all_pf=all_pf, all_kvar=all_kvar, **inputs)
+    site_rows = [per_row("site_p"), per_row("site_q")]
+    site_varies = any(r is None for r in site_rows)
+    if site_varies:
+        site_p, site_q = per_interval(inputs["site_p"]), per_interval(inputs["site_q"])
+    else:  # one value per asset: passed as a one-column array
+        site_p, site_q = site_rows[0][:, None], site_rows[1][:, None]
+    floats = np.empty((len(_WFSM_FLOAT_OUTPUTS) + 1, n_rows, n_t))
+    flags = np.empty((len(_WFSM_BOOL_OUTPUTS), n_rows, n_t), dtype=bool)
+    if _WFSM_ITERATIONS != 3:  # the pass writes the fixed point's three steps out
+        return _blockwise(_wfsm_kernel, shape, occ_linear=occ_linear, all_pf=all_pf, all_kvar=all_kvar, **inputs)
+    _wfsm_pass(per_interval(inputs["p"]), site_p, site_q, site_varies, *rows, bool(occ_linear), bool(all_pf),
+               bool(all_kvar), _LIMIT_RTOL, floats, flags)
     # the pass leaves re3 in the load angle's slot and im3 in the extra one: the angle is taken with numpy's
     # arctan2 (its vectorised loop may differ from the C library's in the last bit)
     at = _WFSM_FLOAT_OUTPUTS.index("load_angle_deg")
@@ -1182,22 +1204,66 @@ def _mn(a, b):  # pragma: no cover - compiled
     return a if (a <= b or a != a) else b
 
 
-@numba.njit(nogil=True, cache=True)
-def _wfsm_pass(p_, v_, v_r_, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_max_, s_max2_, a_, cq_, c_re_, rad2_,
-               qd0_, qd1_, v3_, inv3v_, tan_set_, tan_t_, is_pf_, is_kvar_, q_set_, site_p_, site_q_, occ_linear,
-               all_pf, all_kvar, iterations, limit_rtol, floats, flags):  # pragma: no cover - compiled
-    """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element."""
-    n_i, n_t = floats.shape[1], floats.shape[2]
+@numba.njit(error_model="numpy", cache=True)
+def _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set, s_max2, c_re,
+               rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max, i_ag, v_r, r_f,
+               inv_eta_x):  # pragma: no cover - compiled
+    """One step of :func:`_wfsm_kernel`'s fixed point on copper and excitation losses, for one element."""
+    p_tot = p_st + p_exc
+    if all_pf:
+        q_des = tan_set * p_tot
+    elif all_kvar:
+        q_des = q_set + 0.0 * p_tot
+    else:
+        q_follow = _mn((site_p + p_tot) * tan_t - site_q, 0.0)
+        q_des = tan_set * p_tot if is_pf else (q_set if is_kvar else q_follow)
+    q_i = np.sqrt(_mx(s_max2 - p_st * p_st, 0.0))
+    dp = p_st - c_re
+    h2 = rad2 - dp * dp
+    h = np.sqrt(_mx(h2, 0.0))
+    q_lo_f = cq - h
+    q_hi_d = qd0 - qd1 * p_st
+    lo = _mx(-q_i, q_lo_f)
+    hi = _mn(q_i, q_hi_d)
+    q = _mn(_mx(q_des, lo), hi)
+    c = pm + a * q * q
+    disc = 1.0 - 4.0 * a * c
+    p_st = 2.0 * c / (1.0 + np.sqrt(_mx(disc, 0.0)))
+    re3 = v3 - r * p_st - x * q
+    im3 = x * p_st - r * q
+    emf = np.sqrt(re3 * re3 + im3 * im3) * inv3v
+    if occ_linear:
+        i_f = emf * k_lin
+    elif sat > 1.0:  # _occ_field on the saturating characteristic
+        i_f = i0 * emf / (e_max - emf) if emf < e_max else np.inf
+    else:  # _occ_field on the air-gap line
+        i_f = i_ag * emf / v_r
+    p_fcu = i_f * i_f * r_f
+    p_exc = p_fcu * inv_eta_x
+    return p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f, p_fcu
+
+
+@numba.njit(nogil=True, cache=True, error_model="numpy")
+def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_max_, s_max2_, a_,
+               cq_, c_re_, rad2_, qd0_, qd1_, v3_, inv3v_, v_r_, tan_set_, tan_t_, is_pf_, is_kvar_, q_set_, occ_linear,
+               all_pf, all_kvar, limit_rtol, floats, flags):  # pragma: no cover - compiled
+    """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element, row by row."""
+    n_i, n_t = p_.shape
     for i in range(n_i):
+        fixed, a, r, x, v3, inv3v = fixed_[i], a_[i], r_[i], x_[i], v3_[i], inv3v_[i]
+        i_ag, v_r, sat, r_f, inv_eta_x = i_ag_[i], v_r_[i], sat_[i], r_f_[i], inv_eta_x_[i]
+        s_max, s_max2, c_re, rad2, cq = s_max_[i], s_max2_[i], c_re_[i], rad2_[i], cq_[i]
+        qd0, qd1, tan_set, tan_t, q_set = qd0_[i], qd1_[i], tan_set_[i], tan_t_[i], q_set_[i]
+        is_pf, is_kvar = is_pf_[i], is_kvar_[i]
+        k_lin = i_ag / v_r
+        s_sat = sat if sat > 1.0 else 2.0
+        e_max = s_sat * v_r / (s_sat - 1.0)
+        i0 = i_ag * e_max / v_r
         for t in range(n_t):
             p = p_[i, t] * 1e3
-            fixed, a, r, x, v3, inv3v = fixed_[i, t], a_[i, t], r_[i, t], x_[i, t], v3_[i, t], inv3v_[i, t]
-            i_ag, v_r, sat, r_f, inv_eta_x = i_ag_[i, t], v_r_[i, t], sat_[i, t], r_f_[i, t], inv_eta_x_[i, t]
-            s_max, s_max2, c_re, rad2, cq = s_max_[i, t], s_max2_[i, t], c_re_[i, t], rad2_[i, t], cq_[i, t]
-            qd0, qd1, tan_set, tan_t, q_set = qd0_[i, t], qd1_[i, t], tan_set_[i, t], tan_t_[i, t], q_set_[i, t]
-            is_pf, is_kvar, site_p, site_q = is_pf_[i, t], is_kvar_[i, t], site_p_[i, t], site_q_[i, t]
+            site_p = site_p_[i, t] if site_varies else site_p_[i, 0]
+            site_q = site_q_[i, t] if site_varies else site_q_[i, 0]
             pm = p + fixed
-            k_lin = i_ag / v_r
             if all_pf:
                 q0 = tan_set * pm
             elif all_kvar:
@@ -1213,42 +1279,20 @@ def _wfsm_pass(p_, v_, v_r_, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_ma
             im3 = x * p_st - r * q0
             i_f = np.sqrt(re3 * re3 + im3 * im3) * inv3v * k_lin
             p_exc = i_f * i_f * r_f * inv_eta_x
-            q_des = q = q_i = q_lo_f = q_hi_d = lo = hi = h2 = disc = emf = p_fcu = 0.0
-            for _ in range(iterations):
-                p_tot = p_st + p_exc
-                if all_pf:
-                    q_des = tan_set * p_tot
-                elif all_kvar:
-                    q_des = q_set + 0.0 * p_tot
-                else:
-                    q_follow = _mn((site_p + p_tot) * tan_t - site_q, 0.0)
-                    q_des = tan_set * p_tot if is_pf else (q_set if is_kvar else q_follow)
-                q_i = np.sqrt(_mx(s_max2 - p_st * p_st, 0.0))
-                dp = p_st - c_re
-                h2 = rad2 - dp * dp
-                h = np.sqrt(_mx(h2, 0.0))
-                q_lo_f = cq - h
-                q_hi_d = qd0 - qd1 * p_st
-                lo = _mx(-q_i, q_lo_f)
-                hi = _mn(q_i, q_hi_d)
-                q = _mn(_mx(q_des, lo), hi)
-                c = pm + a * q * q
-                disc = 1.0 - 4.0 * a * c
-                p_st = 2.0 * c / (1.0 + np.sqrt(_mx(disc, 0.0)))
-                re3 = v3 - r * p_st - x * q
-                im3 = x * p_st - r * q
-                emf = np.sqrt(re3 * re3 + im3 * im3) * inv3v
-                if occ_linear:
-                    i_f = emf * k_lin
-                else:  # _occ_field
-                    lin = i_ag * emf / v_r
-                    s = sat if sat > 1.0 else 2.0
-                    e_max = s * v_r / (s - 1.0)
-                    i0 = i_ag * e_max / v_r
-                    sat_i = i0 * emf / (e_max - emf) if emf < e_max else np.inf
-                    i_f = sat_i if sat > 1.0 else lin
-                p_fcu = i_f * i_f * r_f
-                p_exc = p_fcu * inv_eta_x
+            # the fixed point's steps, written out (a loop inside the interval loop would keep the
+            # compiler from running several intervals side by side)
+            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
+             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
+                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
+                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
+            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
+             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
+                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
+                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
+            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
+             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
+                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
+                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
             tol = limit_rtol * _mx(s_max, abs(q_des))
             low = q_des < lo - tol
             high = q_des > hi + tol
@@ -1260,11 +1304,11 @@ def _wfsm_pass(p_, v_, v_r_, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_ma
             floats[3, i, t] = i_f
             floats[4, i, t] = emf
             floats[5, i, t] = re3  # the load angle is taken from re3 and im3 in numpy afterwards
-            floats[10, i, t] = im3
             floats[6, i, t] = q_des * k
             floats[7, i, t] = (3.0 * i_line * i_line * r) * k
             floats[8, i, t] = p_fcu * k
             floats[9, i, t] = (p_exc - p_fcu) * k
+            floats[10, i, t] = im3
             flags[0, i, t] = q < 0.0
             flags[1, i, t] = (low and (-q_i >= q_lo_f)) or (high and (q_i <= q_hi_d))
             flags[2, i, t] = low and (q_lo_f > -q_i)
