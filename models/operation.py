@@ -1171,12 +1171,16 @@ class _BlockBuffers:
         return self.p[:n_options, :n_assets], self.q[:n_options, :n_assets]
 
 
-def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
+def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
+                today_out: tuple[np.ndarray, np.ndarray] | None = None):
     """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
 
     The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
     [kW], [kVAr] (n_steps,) are those of the whole site (a first pass over the blocks when there are
-    several), the same numbers :func:`operate_site` uses. Memory: one block at a time.
+    several), the same numbers :func:`operate_site` uses. Memory: one block at a time. With
+    ``today_out`` ((n_assets, n_steps) arrays each, e.g. the fleet's rows of this site from
+    :meth:`_Merger.today_rows`), today's motors are written there, every row (else into arrays of the
+    site's own).
 
     Warnings
     --------
@@ -1188,10 +1192,15 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None):
     buffers = _BlockBuffers()
     if len(blocks) <= 1:
         part = _operate_block(case, index, np.arange(n), buffers=buffers)
+        if today_out is not None:
+            today_out[0][...], today_out[1][...] = part.p_kw[0], part.q_kvar[0]
         yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
         return
-    base_p = np.empty((n, len(index)))  # every row written by its block below
-    base_q = np.empty((n, len(index)))
+    if today_out is not None:
+        base_p, base_q = today_out
+    else:
+        base_p = np.empty((n, len(index)))  # every row written by its block below
+        base_q = np.empty((n, len(index)))
     today = []
     constants = _site_constants(case, index)
     for rows in blocks:
@@ -1218,6 +1227,30 @@ class _Merger:
         self.flags: list[pd.DataFrame] = []
         self.flag_pos: list[np.ndarray] = []
         self.added = 0  # assets received so far
+        self.prewritten: np.ndarray | None = None  # assets whose today's rows a site wrote in place (today_rows)
+
+    def _allocate_interval(self, n_options: int) -> None:
+        """The fleet's per-interval arrays, uninitialised: every row is written by the part holding it, or
+        in place through :meth:`today_rows` (see result())."""
+        shape = (n_options, self.n_a, self.n_t) if self.dense else (self.n_a, self.n_t)
+        spill = not self.dense and interval_bytes(self.n_a, 1, self.n_t) > TODAY_IN_MEMORY_BUDGET_BYTES
+        self.fields["p_kw"] = _file_backed(shape) if spill else np.empty(shape)
+        self.fields["q_kvar"] = _file_backed(shape) if spill else np.empty(shape)
+        self.prewritten = np.zeros(self.n_a, dtype=bool)
+
+    def today_rows(self, rows: np.ndarray, n_options: int) -> tuple[np.ndarray, np.ndarray] | None:
+        """Views of the fleet's rows of today's motors at positions ``rows`` [kW], [kVAr], (len(rows), n_steps)
+        each, for a site to write them in place (no copy when its blocks are added); None unless the
+        positions are consecutive. The caller must write every row before its parts are added.
+        """
+        at = _as_slice(rows)
+        if not isinstance(at, slice):
+            return None
+        if "p_kw" not in self.fields:
+            self._allocate_interval(n_options)
+        self.prewritten[at] = True
+        p, q = self.fields["p_kw"], self.fields["q_kvar"]
+        return (p[0, at], q[0, at]) if self.dense else (p[at], q[at])
 
     def add(self, rows: np.ndarray, part: OperatingResult) -> None:
         at = _as_slice(rows)
@@ -1229,24 +1262,25 @@ class _Merger:
             shape = (n_o, self.n_a, self.n_t) if self.dense else (self.n_a, self.n_t)
             whole = isinstance(at, slice) and at.start == 0 and at.stop == self.n_a
             interval = [part.p_kw, part.q_kvar] if self.dense else [part.p_kw[0], part.q_kvar[0]]
-            if whole and all(isinstance(a, np.ndarray) and a.shape == shape and a.dtype == np.float64 for a in interval):
+            if "p_kw" in self.fields:
+                pass  # allocated by today_rows
+            elif whole and all(isinstance(a, np.ndarray) and a.shape == shape and a.dtype == np.float64 for a in interval):
                 # one part holding every asset in order: its per-interval arrays are the result (no copy)
                 self.fields["p_kw"], self.fields["q_kvar"] = interval
                 adopted = True
             else:
-                # every row is written by the part holding it (see result())
-                spill = not self.dense and interval_bytes(self.n_a, 1, self.n_t) > TODAY_IN_MEMORY_BUDGET_BYTES
-                self.fields["p_kw"] = _file_backed(shape) if spill else np.empty(shape)
-                self.fields["q_kvar"] = _file_backed(shape) if spill else np.empty(shape)
+                self._allocate_interval(n_o)
             for name in _PER_ASSET_FIELDS:
                 value = getattr(part, name)
                 self.fields[name] = np.zeros((self.n_a,) + value.shape[1:], dtype=value.dtype)
+        in_place = self.prewritten is not None and bool(self.prewritten[at].all())  # today's rows already there
         if adopted:
             pass
         elif self.dense:
-            self.fields["p_kw"][:, at] = part.p_kw
-            self.fields["q_kvar"][:, at] = part.q_kvar
-        else:
+            first = 1 if in_place else 0
+            self.fields["p_kw"][first:, at] = part.p_kw[first:]
+            self.fields["q_kvar"][first:, at] = part.q_kvar[first:]
+        elif not in_place:
             self.fields["p_kw"][at] = part.p_kw[0]
             self.fields["q_kvar"][at] = part.q_kvar[0]
         for name in _PER_ASSET_FIELDS:

@@ -181,8 +181,10 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     site_id = str(case.assets["site_id"].iloc[0])
     setup = site_setups(case, index)[site_id]
     merger, positions = into if into is not None else (_Merger(len(case.assets), len(index), dense=not today_only), None)
+    # today's motors straight into the fleet's rows when the site's positions are consecutive
+    today_out = merger.today_rows(positions, len(options_with_baseline(case.options))) if positions is not None else None
     acc = None
-    for rows, block, totals in site_blocks(case, index, chunk_assets):
+    for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out):
         t1 = time.perf_counter()
         t_machines += t1 - t0
         if acc is None:
@@ -315,6 +317,11 @@ class _LockedGather:
     def add(self, rows, block) -> None:
         with self.lock:
             self.merger.add(rows, block)
+
+    def today_rows(self, rows, n_options: int):
+        """:meth:`models.operation._Merger.today_rows` (the views are written by the site's thread alone)."""
+        with self.lock:
+            return self.merger.today_rows(rows, n_options)
 
 
 def _add_stage_times(timer: dict, stage_times: list[dict], wall_s: float, n_threads: int) -> None:

@@ -612,6 +612,40 @@ class TestCompactStore:
     def test_todays_power_below_the_budget_stays_in_memory(self, compact):
         assert not isinstance(compact.operation.p_kw._today, np.memmap)
 
+    def test_todays_rows_written_in_place_equal_each_sites_own_run(self, case, index, dense, compact, monkeypatch):
+        # both sites' positions are consecutive, so their blocks write today's motors straight into the
+        # fleet's rows (dense and compact): the same bits as each site run on its own; the merger copies
+        # no today's row of theirs
+        copied = []
+        real = operation._Merger.add
+
+        def spy(self, rows, part):
+            if self.prewritten is None or not self.prewritten[rows].all():
+                copied.append(rows)
+            return real(self, rows, part)
+
+        monkeypatch.setattr(operation._Merger, "add", spy)
+        runs = {kind: scenario.physics(case, 35.0, chunk_assets=2, dense=kind == "dense").operation
+                for kind in ("dense", "compact")}
+        assert copied == []
+        for site_id, rows in site_partition(case):
+            assert_array_equal(rows, np.arange(rows[0], rows[-1] + 1))
+            own = operate_site(site_case(case, site_id), index, chunk_assets=2)
+            for kind, op in runs.items():
+                today_p = op.p_kw[0] if kind == "dense" else op.p_kw._today
+                today_q = op.q_kvar[0] if kind == "dense" else op.q_kvar._today
+                assert_array_equal(today_p[rows], own.p_kw[0], err_msg=kind)
+                assert_array_equal(today_q[rows], own.q_kvar[0], err_msg=kind)
+        assert_array_equal(runs["dense"].p_kw, dense.operation.p_kw)
+
+    def test_today_rows_are_views_for_consecutive_positions_only(self):
+        merger = operation._Merger(6, 4, dense=False)
+        p, q = merger.today_rows(np.array([2, 3, 4]), 3)
+        p[...], q[...] = 1.0, 2.0
+        assert (merger.fields["p_kw"][2:5] == 1.0).all() and (merger.fields["q_kvar"][2:5] == 2.0).all()
+        assert merger.prewritten.tolist() == [False, False, True, True, True, False]
+        assert merger.today_rows(np.array([0, 5]), 3) is None
+
     def test_rows_of_the_store_equal_the_dense_rows(self, dense, compact):
         d, c = dense.operation, compact.operation
         choice, rows = _plan_choice(d), np.arange(len(d.asset_ids))
