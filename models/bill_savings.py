@@ -107,6 +107,20 @@ def site_setups(case, index: pd.DatetimeIndex) -> dict[str, SiteSetup]:
     return setups
 
 
+def _chosen_total(x, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
+    """``x[options, assets].sum(axis=0)``: the chosen rows' sum over the assets (n_steps,), added row by row
+    in the assets' order as numpy adds that sum (the same bits), without gathering them into one array."""
+    if hasattr(x, "summed_rows"):  # per-interval power kept compact (models.operation.SiteIntervalStore)
+        return x.summed_rows(options, assets)
+    total = np.zeros(x.shape[-1])
+    for i, (o, a) in enumerate(zip(options, assets)):
+        if i == 0:
+            total[:] = x[o, a]
+        else:
+            total += x[o, a]
+    return total
+
+
 def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] | None = None, threads: int = 1):
     """Site meters and bills for one choice of option per asset.
 
@@ -131,8 +145,8 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
     def one_site(item):
         site_id, setup = item
         members = np.flatnonzero(op.site_ids == site_id)  # one site's assets at a time: memory of one site
-        p, q = op.p_kw[choice[members], members], op.q_kvar[choice[members], members]
-        meter = setup.site.meter(p, q, base_p_kw_profile=setup.base_p_kw_profile)
+        p, q = _chosen_total(op.p_kw, choice[members], members), _chosen_total(op.q_kvar, choice[members], members)
+        meter = setup.site.meter_from_totals(p, q, base_p_kw_profile=setup.base_p_kw_profile)
         frame = billing.bill(setup.tariff, op.index, meter.p_kw, meter.q_kvar, interval_h=op.interval_h)
         return site_id, meter, frame.assign(site_id=site_id)
 

@@ -638,6 +638,20 @@ class TestCompactStore:
                 assert_array_equal(today_q[rows], own.q_kvar[0], err_msg=kind)
         assert_array_equal(runs["dense"].p_kw, dense.operation.p_kw)
 
+    def test_chosen_totals_are_the_gathered_rows_summed(self, dense, compact):
+        # a site meter sums the chosen rows one by one instead of gathering them first: the same bits as
+        # numpy's sum over the gathered rows, from the dense array and from the compact store
+        from models.bill_savings import _chosen_total
+
+        d, c = dense.operation, compact.operation
+        choice = _plan_choice(d)
+        for site_id in np.unique(d.site_ids):
+            m = np.flatnonzero(d.site_ids == site_id)
+            for name in PER_INTERVAL:
+                expected = getattr(d, name)[choice[m], m].sum(axis=0)
+                assert_array_equal(_chosen_total(getattr(d, name), choice[m], m), expected, err_msg=name)
+                assert_array_equal(_chosen_total(getattr(c, name), choice[m], m), expected, err_msg=name)
+
     def test_today_rows_are_views_for_consecutive_positions_only(self):
         merger = operation._Merger(6, 4, dense=False)
         p, q = merger.today_rows(np.array([2, 3, 4]), 3)
