@@ -373,6 +373,32 @@ def _cell_sums(cal: _Calendar, p: np.ndarray, q: np.ndarray, codes: list[int], r
                              cal.interval_h, cal.run_starts, cal.run_cell, n_cells, max(p.shape[0], q.shape[0]))
 
 
+@numba.njit(inline="always")
+def _interval_quantity(code, p_t, q_t, scale, h, neg_ratio):  # pragma: no cover - compiled
+    """One interval's quantity of :func:`_cell_sums` (codes as there), in the numpy rule's order."""
+    if code == 0:
+        v = max(p_t, 0.0)
+        if scale:
+            v = v * h
+    elif code == 1:
+        a = max(p_t, 0.0)
+        v = np.sqrt(a * a + q_t * q_t)
+        if scale:
+            v = v * h
+    else:
+        kv = max(q_t, 0.0) if (code == 2 or code == 4) else max(-q_t, 0.0)
+        if scale:
+            kv = kv * h
+        if code <= 3:
+            v = kv
+        else:
+            kwh = max(p_t, 0.0)
+            if scale:
+                kwh = kwh * h
+            v = max(kwh * neg_ratio + kv, 0.0)
+    return v
+
+
 @numba.njit(nogil=True, cache=True)
 def _cell_sums_kernel(p, q, codes, ratios, in_scope, h, run_starts, run_cell, n_cells, n_rows):  # pragma: no cover - compiled
     """Compiled body of :func:`_cell_sums`, a pass per quantity over runs of intervals in one cell.
@@ -400,28 +426,7 @@ def _cell_sums_kernel(p, q, codes, ratios, in_scope, h, run_starts, run_cell, n_
                     continue
                 acc = 0.0
                 for t in range(run_starts[j], run_starts[j + 1]):
-                    if code == 0:
-                        v = max(p[rp, t], 0.0)
-                        if scale:
-                            v = v * h
-                    elif code == 1:
-                        a = max(p[rp, t], 0.0)
-                        b = q[rq, t]
-                        v = np.sqrt(a * a + b * b)
-                        if scale:
-                            v = v * h
-                    else:
-                        kv = max(q[rq, t], 0.0) if (code == 2 or code == 4) else max(-q[rq, t], 0.0)
-                        if scale:
-                            kv = kv * h
-                        if code <= 3:
-                            v = kv
-                        else:
-                            kwh = max(p[rp, t], 0.0)
-                            if scale:
-                                kwh = kwh * h
-                            v = max(kwh * neg_ratio + kv, 0.0)
-                    acc += v
+                    acc += _interval_quantity(code, p[rp, t], q[rq, t], scale, h, neg_ratio)
                 out[i, r, c] += acc
     return out
 
