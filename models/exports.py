@@ -75,9 +75,86 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
 
 
 def csv_bytes(frame: pd.DataFrame) -> bytes:
-    """Serialise a table to CSV bytes: neutralised text, 10 significant digits, '\\n' line ends."""
-    text = safe_frame(frame).to_csv(index=False, float_format="%.10g", lineterminator="\n")
-    return text.encode("utf-8")
+    """Serialise a table to CSV bytes: neutralised text, 10 significant digits, '\\n' line ends.
+
+    The bytes of ``pandas.DataFrame.to_csv(index=False, float_format="%.10g", lineterminator="\\n")``
+    of the neutralised table; tables of plain columns (floats, integers, booleans, text without
+    delimiters, quotes or line breaks) are built column by column (:func:`_csv_bytes_by_columns`, the
+    same bytes, several times faster on a cash-flow table of millions of rows), the others by pandas.
+    """
+    safe = safe_frame(frame)
+    data = _csv_bytes_by_columns(safe)
+    if data is None:
+        data = safe.to_csv(index=False, float_format="%.10g", lineterminator="\n").encode("utf-8")
+    return data
+
+
+#: Characters that make the CSV writer quote a field (delimiter, quote, line breaks).
+_QUOTED = (",", '"', "\n", "\r")
+
+
+def _floats_as_text(values: np.ndarray):
+    """Each float as ``"%.10g" % value`` ("" for NaN), as pandas' CSV writer formats a float column, as a
+    pyarrow large-string array. When a sample of the values repeats, each distinct value is formatted once."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    sample = values[:: max(1, len(values) // 20_000)]
+    repeats = len(np.unique(sample)) < 0.5 * len(sample)
+    if repeats:
+        unique, inverse = np.unique(values, return_inverse=True)
+        text = pa.array(list(map("%.10g".__mod__, unique.tolist())), type=pa.large_string())
+        text = text.take(pa.array(inverse.ravel()))
+    else:
+        text = pa.array(list(map("%.10g".__mod__, values.tolist())), type=pa.large_string())
+    nan = np.isnan(values)
+    if nan.any():
+        text = pc.if_else(pa.array(nan), pa.scalar("", type=pa.large_string()), text)
+    return text
+
+
+def _csv_bytes_by_columns(frame: pd.DataFrame) -> bytes | None:
+    """The UTF-8 bytes of ``frame.to_csv(index=False, float_format="%.10g", lineterminator="\\n")``, built
+    column by column with pyarrow's string kernels; None for a table this path does not cover (a column
+    of mixed objects or of another kind, text that would be quoted, a single column, no rows).
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if frame.shape[1] < 2 or len(frame) == 0:
+        return None
+    if any(not isinstance(c, str) or any(ch in c for ch in _QUOTED) for c in frame.columns):
+        return None
+    empty = pa.scalar("", type=pa.large_string())
+    columns = []
+    for name in frame.columns:
+        series = frame[name]
+        dtype = series.dtype
+        if dtype == np.float64:
+            text = _floats_as_text(series.to_numpy())
+        elif dtype == np.int64 or dtype == np.int32:
+            text = pa.array(series.to_numpy()).cast(pa.large_string())  # decimal digits, as str()
+        elif dtype == np.bool_:
+            text = pa.array(np.where(series.to_numpy(), "True", "False"), type=pa.large_string())
+        elif isinstance(dtype, pd.CategoricalDtype) and pd.api.types.is_string_dtype(dtype.categories.dtype):
+            categories = pa.array(dtype.categories.to_numpy(dtype=object), type=pa.large_string())
+            codes = series.cat.codes.to_numpy()
+            coded = pa.DictionaryArray.from_arrays(pa.array(codes, mask=codes < 0), categories)
+            text = pc.fill_null(coded.cast(pa.large_string()), empty)
+        elif isinstance(dtype, pd.StringDtype):
+            text = pc.fill_null(pa.chunked_array(pa.array(series.array)).combine_chunks().cast(pa.large_string()), empty)
+        else:
+            return None
+        if not pa.types.is_large_string(text.type):
+            return None
+        if dtype.kind not in "fiub" and pc.any(pc.match_substring_regex(pc.unique(text), '[,"\n\r]')).as_py():
+            return None  # a field the writer would quote
+        columns.append(text)
+    lines = pc.binary_join_element_wise(*columns, pa.scalar(",", type=pa.large_string()))
+    body = pc.binary_join(pa.LargeListArray.from_arrays(pa.array([0, len(lines)], type=pa.int64()), lines),
+                          pa.scalar("\n", type=pa.large_string()))
+    header = (",".join(frame.columns) + "\n").encode("utf-8")
+    return header + body[0].as_buffer().to_pybytes() + b"\n"
 
 
 def write_csv(path: Path, frame: pd.DataFrame) -> Path:
