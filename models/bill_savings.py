@@ -424,21 +424,12 @@ class SiteSavings:
             self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
             self.q_base_total = float(self.q_biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0].sum())
 
-    def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray,
-            changed: np.ndarray | None = None) -> None:
+    def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray) -> None:
         """Price the asset-options of a block of the site's assets (positions ``rows`` in the site).
 
         ``p_block``, ``q_block`` are (n_options, len(rows), n_steps) [kW], [kVAr]; ``applies`` (len(rows), n_options).
-        ``changed`` (len(rows), n_options), when the machine models found it while writing the block
-        (:attr:`models.operation.OperatingResult.changed`), saves the pass of :func:`_changed_pairs`
-        (the same rule).
         """
-        if changed is not None:
-            changed = changed & applies
-            changed[:, 0] = False
-            js, os_ = np.nonzero(changed)  # asset by asset, as _changed_pairs
-        else:
-            js, os_ = _changed_pairs(p_block, q_block, applies)
+        js, os_ = _changed_pairs(p_block, q_block, applies)
         p0, q0 = self.p0, self.q0
         p_block, q_block = np.asarray(p_block, dtype=float), np.asarray(q_block, dtype=float)
         for start in range(0, len(js), self.block):

@@ -92,10 +92,6 @@ class OperatingResult:
         True where the asset has an interval profile.
     flags : pandas.DataFrame
         asset_id, option_id, flag: cautions (starting screen, overload, excitation limits, data notes).
-    changed : numpy.ndarray of bool, shape (n_assets, n_options), or None
-        Where an option applies and changes the asset's kW or kVAr in some interval (a quantity changes
-        when its difference from today's is non-zero in some interval and NaN in none), as a block of
-        the machine models found it while writing the per-interval values; None where not computed.
     """
 
     index: pd.DatetimeIndex
@@ -118,7 +114,6 @@ class OperatingResult:
     capacitor_q_kvar: np.ndarray
     interval_data: np.ndarray
     flags: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=["asset_id", "option_id", "flag"]))
-    changed: np.ndarray | None = None
 
     def option_position(self, option_id: str) -> int:
         """Return the position of an option id."""
@@ -748,16 +743,6 @@ def _point_flags(pt) -> list[tuple[int, str]]:
     return out
 
 
-def _rows_change(p_rows: np.ndarray, q_rows: np.ndarray, p_ref: np.ndarray, q_ref: np.ndarray) -> np.ndarray:
-    """Rows (n,) whose kW or kVAr differ from the reference rows: a quantity differs when its difference is
-    non-zero in some interval and NaN in none (the rule of :attr:`OperatingResult.changed`)."""
-    out = np.zeros(len(p_rows), dtype=bool)
-    for rows, ref in ((p_rows, p_ref), (q_rows, q_ref)):
-        d = rows - ref
-        out |= (d != 0.0).any(axis=1) & ~np.isnan(d).any(axis=1)
-    return out
-
-
 def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
     """Rows (bool, (n,)) whose every quantity interpolates within :data:`TABLE_TOLERANCE_FRAC`.
 
@@ -868,8 +853,6 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     speed = np.zeros((n_a, n_o))
     running_h = np.zeros(n_a)
     cap_q = np.zeros((n_a, n_o))
-    # which options change an asset's power, found while the values are written (bill savings price those)
-    changed = None if (only_today or power_only) else np.zeros((n_a, n_o), dtype=bool)
     flags: list[dict] = [{"asset_id": r.asset_id, "option_id": "", "flag": r.note} for r in notes.itertuples(index=False)]
     asset_ids = a["asset_id"].to_numpy(dtype=object)
     site_ids = a["site_id"].to_numpy(dtype=object)
@@ -900,8 +883,6 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             q_kvar[o, idx] = ((pt.q_kvar * w).sum(axis=1) / year_h)[:, None]
         if power_only:
             return
-        if o > 0:
-            changed[idx, o] = _rows_change(p_kw[o, idx], q_kvar[o, idx], p_kw[0, idx], q_kvar[0, idx])
         if kind == "interval":  # every interval weighs interval_h: sum, then scale
             energy[idx, o] = pt.p_kw.sum(axis=1) * interval_h
             shaft_energy[idx, o] = pt.shaft_kw.sum(axis=1) * interval_h
@@ -949,15 +930,11 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             return tabulation.tables(values if ok.all() else values[ok])
 
         p_tables, q_tables = tables_of(pt.p_kw), tables_of(pt.q_kvar)
-        # straight into the option's rows (no temporary); other options are compared with today's as they go
-        compare = changed is not None and o > 0
+        # straight into the option's rows (no temporary)
         pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o],
-                                           rows=at_grid[ok], out_rows=idx, reference_a=p_kw[0] if compare else None,
-                                           reference_b=q_kvar[0] if compare else None)
+                                           rows=at_grid[ok], out_rows=idx)
         if power_only:
             return
-        if compare:
-            changed[idx, o] = pair.differs
         energy[idx, o] = tabulation.weighted_sums(grid, *p_tables, rows=sel)
         lag[idx, o] = pair.b_positive_sum * interval_h
         lead[idx, o] = pair.b_negative_sum * interval_h
@@ -1066,7 +1043,6 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         lagging_kvarh=lag, leading_kvarh=lead, running_h=running_h, mean_speed_rpm=speed, capacitor_q_kvar=cap_q,
         interval_data=np.isin(np.arange(n_a), interval_rows),
         flags=pd.DataFrame(flags, columns=["asset_id", "option_id", "flag"]),
-        changed=None if changed is None else changed & applies,
     )
 
 

@@ -189,7 +189,7 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
         t_machines += t1 - t0
         if acc is None:
             acc = SiteSavings(setup, index, block.interval_h, totals[0], totals[1], len(case.assets), block.technologies)
-        acc.add(rows, block.p_kw, block.q_kvar, block.applies, block.changed)
+        acc.add(rows, block.p_kw, block.q_kvar, block.applies)
         merger.add(rows if positions is None else positions[rows], block)
         del block
         t0 = time.perf_counter()

@@ -232,30 +232,22 @@ class Pair:
         The interpolated values.
     b_positive_sum, b_negative_sum : numpy.ndarray, shape (n,)
         Per row, the sum over the intervals of max(b, 0) and of max(-b, 0) (added interval by interval).
-    differs : numpy.ndarray of bool, shape (n,), or None
-        With reference rows: whether the row differs from its reference in a or in b (see
-        :func:`interpolate_pair`).
     """
 
     a: np.ndarray
     b: np.ndarray
     b_positive_sum: np.ndarray
     b_negative_sum: np.ndarray
-    differs: np.ndarray | None = None
 
 
 def interpolate_pair(grid: Grid, base_a: np.ndarray, rise_a: np.ndarray, base_b: np.ndarray, rise_b: np.ndarray,
                      out_a: np.ndarray | None = None, out_b: np.ndarray | None = None,
-                     rows: np.ndarray | None = None, out_rows: np.ndarray | None = None,
-                     reference_a: np.ndarray | None = None, reference_b: np.ndarray | None = None) -> Pair:
+                     rows: np.ndarray | None = None, out_rows: np.ndarray | None = None) -> Pair:
     """Two quantities tabulated on the same grid (kW and kVAr), interpolated in one pass.
 
     As :func:`interpolate` for each pair of tables, with the sums of the second's positive and negative
     parts (lagging and leading kVAr) taken in the same pass. With ``out_rows`` the i-th row picked is
     written to row ``out_rows[i]`` of ``out_a`` and ``out_b`` (given), which are then returned whole.
-    With ``reference_a`` and ``reference_b`` (shaped as the outputs: today's motors' rows, say) the pass
-    also tells whether each row changes: a quantity changes when its difference from the reference row
-    is non-zero in some interval and NaN in none; a row changes when a or b does.
 
     Examples
     --------
@@ -275,12 +267,9 @@ def interpolate_pair(grid: Grid, base_a: np.ndarray, rise_a: np.ndarray, base_b:
         raise ValueError("out_rows needs out_a and out_b")
     positive, negative = np.zeros(n), np.zeros(n)
     tables_ = [np.ascontiguousarray(t, dtype=float) for t in (base_a, rise_a, base_b, rise_b)]
-    compare = reference_a is not None and reference_b is not None
-    differs = np.zeros(n, dtype=bool)
     _interpolate_two(grid.cell, grid.position_frac, rows, np.asarray(out_rows, dtype=np.intp), *tables_, out_a, out_b,
-                     positive, negative, compare, reference_a if compare else out_a, reference_b if compare else out_b,
-                     differs)
-    return Pair(out_a, out_b, positive, negative, differs if compare else None)
+                     positive, negative)
+    return Pair(out_a, out_b, positive, negative)
 
 
 @numba.njit(nogil=True, cache=True)
@@ -295,46 +284,21 @@ def _interpolate_one(cell, position, rows, base, rise, out):  # pragma: no cover
 
 @numba.njit(nogil=True, cache=True)
 def _interpolate_two(cell, position, rows, out_rows, base_a, rise_a, base_b, rise_b, out_a, out_b, positive,
-                     negative, compare, reference_a, reference_b, differs):  # pragma: no cover - compiled
+                     negative):  # pragma: no cover - compiled
     m = cell.shape[1]
     for i in range(len(rows)):
         r, k = rows[i], out_rows[i]
         up, down = 0.0, 0.0
-        if compare:
-            differs_a, nan_a, differs_b, nan_b = False, False, False, False
-            for t in range(m):
-                j = cell[r, t]
-                x = position[r, t]
-                u = base_a[i, j] + rise_a[i, j] * x
-                out_a[k, t] = u
-                v = base_b[i, j] + rise_b[i, j] * x
-                out_b[k, t] = v
-                if v > 0.0:
-                    up += v
-                elif v < 0.0:
-                    down -= v
-                da = u - reference_a[k, t]
-                db = v - reference_b[k, t]
-                if da != da:
-                    nan_a = True
-                elif da != 0.0:
-                    differs_a = True
-                if db != db:
-                    nan_b = True
-                elif db != 0.0:
-                    differs_b = True
-            differs[i] = (differs_a and not nan_a) or (differs_b and not nan_b)
-        else:
-            for t in range(m):
-                j = cell[r, t]
-                x = position[r, t]
-                out_a[k, t] = base_a[i, j] + rise_a[i, j] * x
-                v = base_b[i, j] + rise_b[i, j] * x
-                out_b[k, t] = v
-                if v > 0.0:
-                    up += v
-                elif v < 0.0:
-                    down -= v
+        for t in range(m):
+            j = cell[r, t]
+            x = position[r, t]
+            out_a[k, t] = base_a[i, j] + rise_a[i, j] * x
+            v = base_b[i, j] + rise_b[i, j] * x
+            out_b[k, t] = v
+            if v > 0.0:
+                up += v
+            elif v < 0.0:
+                down -= v
         positive[i] = up
         negative[i] = down
 

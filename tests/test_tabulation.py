@@ -112,28 +112,6 @@ class TestGrid:
         assert_allclose(pair.b_positive_sum, np.maximum(alone_b, 0).sum(axis=1), rtol=1e-12)
         assert_allclose(pair.b_negative_sum, np.maximum(-alone_b, 0).sum(axis=1), rtol=1e-12)
 
-    def test_a_pair_compared_with_reference_rows(self):
-        # the pass tells which rows differ from their reference rows, by the rule of
-        # bill_savings._changed_pairs: a quantity differs when its difference is non-zero somewhere and
-        # NaN nowhere; a row differs when either quantity does
-        rng = np.random.default_rng(6)
-        p = rng.uniform(1.0, 50.0, (5, 30))
-        g = tabulation.locate(p, p > 0, 1.0, 9)
-        kw, kvar = tabulation.tables(g.p_grid_kw * 1.1), tabulation.tables(g.p_grid_kw - 20.0)
-        out_a, out_b = np.empty((5, 30)), np.empty((5, 30))
-        same_a, same_b = tabulation.interpolate(g, *kw), tabulation.interpolate(g, *kvar)
-        ref_a, ref_b = same_a.copy(), same_b.copy()
-        ref_a[1, 7] += 1e-9      # row 1: kW differs in one interval
-        ref_b[2, 0] -= 3.0       # row 2: kVAr differs
-        ref_a[3, 4] = np.nan     # row 3: kW differs with a NaN: counts as unchanged, and kVAr is the same
-        ref_a[4, 4] = np.nan     # row 4: NaN in kW, but kVAr differs
-        ref_b[4, 9] += 1.0
-        pair = tabulation.interpolate_pair(g, *kw, *kvar, out_a=out_a, out_b=out_b, reference_a=ref_a, reference_b=ref_b)
-        assert pair.differs.tolist() == [False, True, True, False, True]
-        assert_array_equal(out_a, same_a)
-        assert_array_equal(out_b, same_b)
-        assert tabulation.interpolate_pair(g, *kw, *kvar).differs is None
-
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
             tabulation.locate(np.ones((1, 3)), np.ones((1, 3), bool), 1.0, 1)
@@ -256,23 +234,6 @@ class TestTabulatedMachines:
             _assert_within_tolerance(one, exact, tab, operation.TABLE_TOLERANCE_FRAC)
         assert seen["first"][0] < seen["first"][1] == seen["first"][0] + seen["finer"][1]
         assert 0 < seen["finer"][0]
-
-    @pytest.mark.parametrize("chunk_assets", [None, 7])
-    def test_options_that_change_found_while_writing(self, fleet, chunk_assets):
-        # the blocks' changed flags (tabulated rows compared as they are interpolated, the others after
-        # they are written) are the separate pass's pairs, block by block
-        from models.bill_savings import _changed_pairs
-
-        index = case_index(fleet)
-        seen = 0
-        for site_id, _ in site_partition(fleet):
-            for _, block, _ in operation.site_blocks(site_case(fleet, site_id), index, chunk_assets):
-                js, os_ = _changed_pairs(block.p_kw, block.q_kvar, block.applies)
-                expected = np.zeros_like(block.applies)
-                expected[js, os_] = True
-                assert_array_equal(block.changed, expected)
-                seen += int(expected.sum())
-        assert seen > 0
 
     def test_short_profiles_are_not_tabulated(self, fleet, monkeypatch):
         site_id = site_partition(fleet)[0][0]
