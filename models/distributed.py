@@ -42,7 +42,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
                     progress: Callable[[str], None] | None = None, with_risk: bool = True, *,
                     site_progress: Callable[[str, int, int], None] | None = None, n_workers: int = LOCAL_WORKERS,
                     processes: bool = True, chunk_assets: int | None = None,
-                    dense: bool | None = None, plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
+                    dense: bool | None = None, plan_settings: PlanSettings = PRECISE_PLAN,
+                    timer: dict | None = None) -> ScenarioResult:
     """Run the whole analysis with the physics of each site as one Dask task.
 
     Parameters
@@ -67,6 +68,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         Local cluster of processes (True) or threads (False).
     chunk_assets, dense
         As in :func:`models.scenario.physics`.
+    plan_settings, timer
+        As in :func:`models.scenario.economics`.
 
     Returns
     -------
@@ -106,4 +109,4 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         client.close()
         if cluster is not None:
             cluster.close()
-    return economics(case, merger.result(), assumptions, progress, with_risk, plan_settings)
+    return economics(case, merger.result(), assumptions, progress, with_risk, plan_settings, timer=timer)

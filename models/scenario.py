@@ -373,13 +373,19 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
               progress: Callable[[str], None] | None = None, with_risk: bool = True,
-              plan_settings: PlanSettings = PRECISE_PLAN, previous: ScenarioResult | None = None) -> ScenarioResult:
+              plan_settings: PlanSettings = PRECISE_PLAN, previous: ScenarioResult | None = None,
+              timer: dict | None = None) -> ScenarioResult:
     """Turn the physics into cash flows, metrics, the fleet plan, end-of-life strategy and risk.
 
     ``plan_settings`` bounds the exact plan's solve (:data:`PRECISE_PLAN` by default, :data:`LIVE_PLAN`
     for a screen that must answer an edit at once); ``plan_status`` of the result says what was proven.
     ``previous`` is a result of the same physics: when the assumptions differ from its own only in the
     budget, everything but the plan and the bills is taken from it (the budget moves nothing else).
+
+    With ``with_risk`` the fleet plan is solved in a second thread while the end-of-life strategy and
+    the risk run (none of them reads another's results, and the solver releases the interpreter lock),
+    so the progress reports "fleet plan", "end of life" and "risk" as each starts, then "bills" once
+    the plan is ready; ``timer`` (optional) receives each one's own wall time under those names [s].
     """
     step = progress or (lambda _msg: None)
     if _only_budget_differs(previous, phys, assumptions, with_risk):
@@ -506,19 +512,38 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                          "option_id": pd.array(op.option_ids[cols].astype(str), dtype="str").take(code),
                          "year": cash["year"].astype(int), "component": cash["component"], "amount": cash["amount"]})
 
+    own = timer if timer is not None else {}
+
+    def timed(name: str, work: Callable, *args):
+        t0 = time.perf_counter()
+        try:
+            return work(*args)
+        finally:
+            own[name] = own.get(name, 0.0) + time.perf_counter() - t0
+
+    def plan_now():
+        return timed("fleet plan", _plan, results, capital_spend, project_ids, assumptions, d, plan_settings)
+
+    def eol_now():
+        return (_end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon),
+                _fleet_rules(case, options, assumptions, d, horizon, sav, op))
+
     step("fleet plan")
-    plan_frames = _plan(results, capital_spend, project_ids, assumptions, d, plan_settings)
-
-    step("end of life")
-    eol = _end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon)
-    rules = _fleet_rules(case, options, assumptions, d, horizon, sav, op)
-
     tornado_rows = pd.DataFrame()
     risk_rows = pd.DataFrame()
     fleet_draws = np.zeros(0)
-    if with_risk:
-        step("risk")
-        tornado_rows, risk_rows, fleet_draws = _risk(flows, assumptions, results, d)
+    if with_risk:  # the plan beside the end of life and the risk, which do not read it
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="drivecase-plan") as pool:
+            planned = pool.submit(plan_now)
+            step("end of life")
+            eol, rules = timed("end of life", eol_now)
+            step("risk")
+            tornado_rows, risk_rows, fleet_draws = timed("risk", _risk, flows, assumptions, results, d)
+            plan_frames = planned.result()
+    else:
+        plan_frames = plan_now()
+        step("end of life")
+        eol, rules = timed("end of life", eol_now)
 
     step("bills")
     bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import filecmp
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -261,3 +262,27 @@ def test_silenced_solves_from_several_threads_leave_stdout_working(tmp_path):
             os.dup2(saved, 1)
             os.close(saved)
     assert target.read_bytes() == b"visible\n"
+
+
+def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, monkeypatch):
+    # Invariant: with risk the plan is solved in a second thread while the end of life and the risk run;
+    # none reads another's results, so the plan, its bills and the end of life are those of the run
+    # without risk (the plan alone), and each stage's own time is reported
+    phys = scenario.physics(demo_case, float(demo_case.finance.capacitor_cost_per_kvar))
+    threads = []
+    real = scenario._plan
+
+    def spy(*args):
+        threads.append(threading.current_thread().name)
+        return real(*args)
+
+    monkeypatch.setattr(scenario, "_plan", spy)
+    own: dict = {}
+    beside = scenario.economics(demo_case, phys, demo_case.finance, with_risk=True, timer=own)
+    alone = scenario.economics(demo_case, phys, demo_case.finance, with_risk=False)
+    assert threads[0].startswith("drivecase-plan") and threads[1] == threading.main_thread().name
+    pd.testing.assert_frame_equal(beside.plan, alone.plan)
+    pd.testing.assert_frame_equal(beside.bills, alone.bills)
+    pd.testing.assert_frame_equal(beside.end_of_life, alone.end_of_life)
+    assert not beside.risk.empty and alone.risk.empty
+    assert set(own) == {"fleet plan", "end of life", "risk"} and all(v > 0 for v in own.values())
