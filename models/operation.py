@@ -14,6 +14,7 @@ from __future__ import annotations
 import os
 import tempfile
 import threading
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -442,7 +443,7 @@ def _today(arr, existing, load: _Load) -> _Point:
     return _line_or_drive(arr, existing, load, load.p_ref_kw)
 
 
-def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
+def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     eff = class_efficiency_frac(arr, option["efficiency_class"])
     old_loss = 1.0 - arr["eff_frac"]
     scale = np.clip((1.0 - eff) / np.where(old_loss > 0, old_loss, 1.0), *SLIP_SCALING_BOUNDS)
@@ -455,7 +456,7 @@ def _new_induction(arr, existing, load: _Load, option: pd.Series) -> _Point:
     return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
-def _line_start_pm(arr, load: _Load, option: pd.Series) -> _Point:
+def _line_start_pm(arr, load: _Load, option: Mapping) -> _Point:
     eff = class_efficiency_frac(arr, option["efficiency_class"])
     sync = arr["sync_rpm"][:, None]
     shaft, speed = _coupled(arr, load, None, option["speed_remedy"], fixed_speed_rpm=sync)
@@ -477,7 +478,7 @@ def _line_start_pm(arr, load: _Load, option: pd.Series) -> _Point:
                   np.where(run, pt.p_in_kw - shaft_eval, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
 
 
-def _synchronous_on_drive(arr, load: _Load, option: pd.Series, kind: str) -> _Point:
+def _synchronous_on_drive(arr, load: _Load, option: Mapping, kind: str) -> _Point:
     eff = class_efficiency_frac(arr, option["efficiency_class"])
     shaft, speed_frac = _speed_controlled(arr, load)
     safe = np.where(speed_frac > 0.05, speed_frac, 0.05)
@@ -498,7 +499,7 @@ def _added_drive(arr, existing, load: _Load) -> _Point:
     return _induction_on_drive(arr, existing, shaft, speed_frac, load.running)
 
 
-def _wound_field(arr, load: _Load, option: pd.Series, site_other=None) -> _Point:
+def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
     """A wound-field synchronous motor replacing today's machine; site_other = (p_kw, q_kvar) without it."""
     rated = arr["rated_p_kw"]
     eff = 1.0 - WFSM_LOSS_RATIO_TO_INDUCTION * (1.0 - np.maximum(arr["eff_frac"], class_efficiency_frac(arr, "IE3")))
@@ -550,7 +551,7 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
     return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
 
 
-def _batch_coupled(option: pd.Series) -> bool:
+def _batch_coupled(option: Mapping) -> bool:
     """True when an option's values for one asset can depend on the other assets evaluated with it.
 
     Only the speed-coupling solver of a new induction motor without a speed remedy does (it stops when
@@ -560,7 +561,7 @@ def _batch_coupled(option: pd.Series) -> bool:
     return option["technology"] == "induction" and option["speed_remedy"] not in ("trim_or_pulley", "speed_control")
 
 
-def _evaluate(option: pd.Series, arr, existing, load: _Load, site_other=None) -> _Point:
+def _evaluate(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
     tech = option["technology"]
     if tech == "existing":
         return _today(arr, existing, load)
@@ -791,7 +792,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         options, option_rows = site_constants.options, site_constants.option_rows
     else:
         options = options_with_baseline(case.options)
-        option_rows = tuple(options.iloc[o] for o in range(len(options)))
+        option_rows = _option_rows(options)
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     year_h = len(index) * interval_h
     # class efficiencies are per asset: computed once per block (or site), sliced with the rest for each option
@@ -947,7 +948,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if ok[i]:
                 flags.append({"asset_id": asset_ids[rows_[sub[i]]], "option_id": option_ids[o], "flag": text})
 
-    def run(o: int, option: pd.Series, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
+    def run(o: int, option: Mapping, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
             load: _Load, site_other=None) -> None:
         """Evaluate an option on the rows ``sub`` of a group (on their grid where there is one) and store it.
 
@@ -1097,7 +1098,7 @@ class _SiteConstants:
     existing: induction.InductionParams
     loads: tuple | None = None
     options: pd.DataFrame | None = None  # options_with_baseline of the case
-    option_rows: tuple = ()  # each option's row (pandas.Series), taken once per site
+    option_rows: tuple = ()  # each option's row (a dict, _option_rows), taken once per site
 
 
 def _site_constants(case, index: pd.DatetimeIndex | None = None) -> _SiteConstants:
@@ -1109,8 +1110,13 @@ def _site_constants(case, index: pd.DatetimeIndex | None = None) -> _SiteConstan
     options = options_with_baseline(case.options)
     arrays = _with_class_efficiencies(asset_arrays(case.assets), _catalogue_classes(options))
     loads = asset_loads(case, index) if index is not None else None
-    return _SiteConstants(arrays, existing_motor(arrays), loads, options,
-                          tuple(options.iloc[o] for o in range(len(options))))
+    return _SiteConstants(arrays, existing_motor(arrays), loads, options, _option_rows(options))
+
+
+def _option_rows(options: pd.DataFrame) -> tuple[dict, ...]:
+    """Each option's row as a plain mapping of column -> value (the models read a few fields of an option
+    many times per block; a dictionary answers without pandas' index lookup)."""
+    return tuple(row.to_dict() for _, row in options.iterrows())
 
 
 def _block_loads(site_loads: tuple, rows: np.ndarray, block_asset_ids) -> tuple:
