@@ -168,6 +168,16 @@ def power_factor(p_kw, q_kvar):
     return _like(p_kw, pf)
 
 
+def _check_bank(rated_q_kvar: float, step_kvar: float, target_power_factor: float) -> None:
+    """Raise ValueError for a stepped bank's size, step or target outside their ranges."""
+    if rated_q_kvar < 0.0:
+        raise ValueError("rated_q_kvar must be >= 0 (enter the bank size as a positive number)")
+    if not step_kvar > 0.0:
+        raise ValueError("step_kvar must be > 0")
+    if not 0.0 < target_power_factor <= 1.0:
+        raise ValueError("target_power_factor must lie in (0, 1]")
+
+
 def stepped_bank_q_kvar(p_kw, q_kvar, rated_q_kvar, step_kvar, target_power_factor):
     """Return the kVAr an automatically stepped capacitor bank puts in service in each interval.
 
@@ -227,12 +237,7 @@ def stepped_bank_q_kvar(p_kw, q_kvar, rated_q_kvar, step_kvar, target_power_fact
     >>> float(stepped_bank_q_kvar(400.0, 300.0, 250.0, 50.0, 0.95))
     -200.0
     """
-    if rated_q_kvar < 0.0:
-        raise ValueError("rated_q_kvar must be >= 0 (enter the bank size as a positive number)")
-    if not step_kvar > 0.0:
-        raise ValueError("step_kvar must be > 0")
-    if not 0.0 < target_power_factor <= 1.0:
-        raise ValueError("target_power_factor must lie in (0, 1]")
+    _check_bank(rated_q_kvar, step_kvar, target_power_factor)
     p = np.asarray(p_kw, dtype=float)
     q = np.asarray(q_kvar, dtype=float)
     shape = np.broadcast_shapes(p.shape, q.shape)
@@ -270,12 +275,7 @@ def add_stepped_bank_kvar(p_kw: np.ndarray, q_kvar: np.ndarray, rated_q_kvar: fl
     One compiled pass doing :func:`stepped_bank_q_kvar`'s operations in its order (the same values,
     bit for bit), without its two temporaries.
     """
-    if rated_q_kvar < 0.0:
-        raise ValueError("rated_q_kvar must be >= 0 (enter the bank size as a positive number)")
-    if not step_kvar > 0.0:
-        raise ValueError("step_kvar must be > 0")
-    if not 0.0 < target_power_factor <= 1.0:
-        raise ValueError("target_power_factor must lie in (0, 1]")
+    _check_bank(rated_q_kvar, step_kvar, target_power_factor)
     n_max = np.floor(rated_q_kvar / step_kvar + _STEP_TOLERANCE)
     _add_stepped_kernel(p_kw, q_kvar, float(tan_phi_from_power_factor(target_power_factor)), float(step_kvar),
                         float(n_max), _STEP_TOLERANCE)
