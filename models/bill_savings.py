@@ -108,17 +108,12 @@ def site_setups(case, index: pd.DatetimeIndex) -> dict[str, SiteSetup]:
 
 
 def _chosen_total(x, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
-    """``x[options, assets].sum(axis=0)``: the chosen rows' sum over the assets (n_steps,), added row by row
-    in the assets' order as numpy adds that sum (the same bits), without gathering them into one array."""
-    if hasattr(x, "summed_rows"):  # per-interval power kept compact (models.operation.SiteIntervalStore)
+    """``x[options, assets].sum(axis=0)``: the chosen rows' sum over the assets (n_steps,). Per-interval
+    power kept compact (:class:`models.operation.SiteIntervalStore`) adds the rows one by one in numpy's
+    order (the same bits) without gathering them into one array."""
+    if hasattr(x, "summed_rows"):
         return x.summed_rows(options, assets)
-    total = np.zeros(x.shape[-1])
-    for i, (o, a) in enumerate(zip(options, assets)):
-        if i == 0:
-            total[:] = x[o, a]
-        else:
-            total += x[o, a]
-    return total
+    return x[options, assets].sum(axis=0)
 
 
 def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] | None = None, threads: int = 1):
@@ -289,8 +284,6 @@ class _SiteBiller:
     def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
         """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`)."""
         for bank in self.stepped:  # in place, one compiled pass (the values of q += bank.q_kvar(p, q))
-            if q.shape[0] < p.shape[0]:
-                q = np.array(np.broadcast_to(q, p.shape))
             add_stepped_bank_kvar(p, q, bank.rated_q_kvar, bank.step_kvar, bank.target_power_factor)
         check_q = check_q or bool(self.stepped)
         for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
