@@ -17,7 +17,7 @@ import numba
 import numpy as np
 import pandas as pd
 
-from models import attribution, billing
+from models import attribution, billing, tabulation
 from models.profiles import conform
 from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, add_stepped_bank_kvar, tan_phi_from_power_factor
 
@@ -158,31 +158,44 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
     return meters, bills[cols]
 
 
-def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _book_arrays(book: tabulation.CurveBook | None, p_block: np.ndarray) -> tuple:
+    """A block's curve book as the compiled passes take it; an empty book (every row read from the
+    arrays) when there is none."""
+    if book is None:
+        book = tabulation.CurveBook(p_block.shape[0], p_block.shape[1])
+    return book.arrays()
+
+
+def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
+                   book: tabulation.CurveBook | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(asset, option) positions, asset by asset, of the options that apply and change the asset's kW or kVAr.
 
     An option changes an asset when the largest |difference| from today's kW, or from today's kVAr, is
     above 0 (a quantity with a NaN difference in some interval counts as unchanged, as NaN compares
-    false); for finite values, when some value differs. One compiled pass over the block.
+    false); for finite values, when some value differs. One compiled pass over the block, the pairs
+    the ``book`` holds read through it.
     """
     p_site, q_site = np.asarray(p_site, dtype=float), np.asarray(q_site, dtype=float)
-    changed = _changed_kernel(p_site, q_site, np.ascontiguousarray(applies, dtype=bool))
+    n_t = p_site.shape[2]
+    changed = _changed_kernel(p_site, q_site, np.ascontiguousarray(applies, dtype=bool), _book_arrays(book, p_site),
+                              np.empty(n_t), np.empty(n_t))
     js, os_ = np.nonzero(changed)
     return js, os_
 
 
 @numba.njit(nogil=True, cache=True)
-def _changed_kernel(p, q, applies):  # pragma: no cover - compiled
+def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - compiled
     n_o, n_s, n_t = p.shape
     out = np.zeros((n_s, n_o), dtype=np.bool_)
     for o in range(1, n_o):
         for j in range(n_s):
             if not applies[j, o]:
                 continue
+            tabulation.fill_pair(book, o, j, p, q, row_p, row_q)
             differs_p, nan_p, differs_q, nan_q = False, False, False, False
             for t in range(n_t):
-                dp = p[o, j, t] - p[0, j, t]
-                dq = q[o, j, t] - q[0, j, t]
+                dp = row_p[t] - p[0, j, t]
+                dq = row_q[t] - q[0, j, t]
                 if dp != dp:
                     nan_p = True
                 elif dp != 0.0:
@@ -260,13 +273,18 @@ class _SiteBiller:
         return self._priced(p, q, check_p=True, check_q=True)
 
     def scenario_totals(self, p0_kw: np.ndarray, q0_kvar: np.ndarray, p_block: np.ndarray, q_block: np.ndarray,
-                        j: np.ndarray, o: np.ndarray, kw_changes: bool = True) -> tuple[list[str], np.ndarray]:
+                        j: np.ndarray, o: np.ndarray, kw_changes: bool = True,
+                        book: tuple | None = None) -> tuple[list[str], np.ndarray]:
         """:meth:`totals` of the scenarios "asset j[s] takes option o[s]" of a block, the same numbers.
 
         The changes are ``p_block[o, j] - p_block[0, j]`` and the same of ``q_block`` (with
-        ``kw_changes`` False the kW stay ``p0_kw``, one row for every scenario); the meters are built
-        in one compiled pass (:func:`_scenario_meters`), term by term in :meth:`totals`' order.
+        ``kw_changes`` False the kW stay ``p0_kw``, one row for every scenario), the rows ``[o, j]``
+        read through ``book`` (:meth:`models.tabulation.CurveBook.arrays`; default the arrays
+        themselves); the meters are built in one compiled pass (:func:`_scenario_meters`), term by term
+        in :meth:`totals`' order.
         """
+        if book is None:
+            book = _book_arrays(None, p_block)
         n_s, n_t = len(j), len(p0_kw)
         if kw_changes:
             p = np.empty((n_s, n_t))
@@ -278,7 +296,8 @@ class _SiteBiller:
         finite = _scenario_meters(p_block, q_block, np.asarray(j, dtype=np.intp), np.asarray(o, dtype=np.intp),
                                   np.asarray(p0_kw, dtype=float), np.asarray(q0_kvar, dtype=float),
                                   np.broadcast_to(self.base_p, (n_t,)), np.broadcast_to(self.base_q, (n_t,)),
-                                  fixed, self.fixed_q is not None, kw_changes, p, q)
+                                  fixed, self.fixed_q is not None, kw_changes, p, q, book, np.empty(n_t),
+                                  np.empty(n_t))
         return self._priced(p, q, check_p=not (kw_changes and finite[0]), check_q=not finite[1])
 
     def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
@@ -295,25 +314,27 @@ class _SiteBiller:
 
 @numba.njit(nogil=True, cache=True)
 def _scenario_meters(p_block, q_block, j, o, p0, q0, base_p, base_q, fixed_q, has_fixed, kw_changes, out_p,
-                     out_q):  # pragma: no cover - compiled
+                     out_q, book, row_p, row_q):  # pragma: no cover - compiled
     """Site meters of scenarios "asset j[s] takes option o[s]", in one pass.
 
     out_p[s, t] = (p0[t] + (p_block[o, j, t] - p_block[0, j, t])) + base_p[t] (when ``kw_changes``),
     out_q[s, t] = ((q0[t] + (q_block[o, j, t] - q_block[0, j, t])) + base_q[t]) + fixed_q[t] (the last
-    term when ``has_fixed``): :meth:`_SiteBiller.totals`' sums, in its order. Returns whether every value
-    written to out_p and to out_q is finite.
+    term when ``has_fixed``): :meth:`_SiteBiller.totals`' sums, in its order, with the rows [b, a] read
+    through ``book`` (into the scratch rows ``row_p``, ``row_q``). Returns whether every value written
+    to out_p and to out_q is finite.
     """
     finite_p, finite_q = True, True
     n_t = p0.shape[0]
     for s in range(len(j)):
         a, b = j[s], o[s]
+        tabulation.fill_pair(book, b, a, p_block, q_block, row_p, row_q)
         for t in range(n_t):
             if kw_changes:
-                v = (p0[t] + (p_block[b, a, t] - p_block[0, a, t])) + base_p[t]
+                v = (p0[t] + (row_p[t] - p_block[0, a, t])) + base_p[t]
                 out_p[s, t] = v
                 if not np.isfinite(v):
                     finite_p = False
-            w = (q0[t] + (q_block[b, a, t] - q_block[0, a, t])) + base_q[t]
+            w = (q0[t] + (row_q[t] - q_block[0, a, t])) + base_q[t]
             if has_fixed:
                 w = w + fixed_q[t]
             out_q[s, t] = w
@@ -417,21 +438,25 @@ class SiteSavings:
             self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
             self.q_base_total = float(self.q_biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0].sum())
 
-    def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray) -> None:
+    def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray,
+            curves: tabulation.CurveBook | None = None) -> None:
         """Price the asset-options of a block of the site's assets (positions ``rows`` in the site).
 
-        ``p_block``, ``q_block`` are (n_options, len(rows), n_steps) [kW], [kVAr]; ``applies`` (len(rows), n_options).
+        ``p_block``, ``q_block`` are (n_options, len(rows), n_steps) [kW], [kVAr]; ``applies`` (len(rows), n_options);
+        ``curves`` the block's curve book (:attr:`models.operation.OperatingResult.curves`), if any.
         """
-        js, os_ = _changed_pairs(p_block, q_block, applies)
-        p0, q0 = self.p0, self.q0
         p_block, q_block = np.asarray(p_block, dtype=float), np.asarray(q_block, dtype=float)
+        js, os_ = _changed_pairs(p_block, q_block, applies, curves)
+        book = _book_arrays(curves, p_block)
+        p0, q0 = self.p0, self.q0
         for start in range(0, len(js), self.block):
             j, o = js[start:start + self.block], os_[start:start + self.block]
-            names, amounts = self.biller.scenario_totals(p0, q0, p_block, q_block, j, o)
+            names, amounts = self.biller.scenario_totals(p0, q0, p_block, q_block, j, o, book=book)
             self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario
-                _, q_amounts = self.q_biller.scenario_totals(p0, q0, p_block, q_block, j, o, kw_changes=False)
+                _, q_amounts = self.q_biller.scenario_totals(p0, q0, p_block, q_block, j, o, kw_changes=False,
+                                                             book=book)
                 self.reactive[rows[j], o] = self.q_base_total - q_amounts.sum(axis=1)
         self.pairs.append((rows[js], os_))
 

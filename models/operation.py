@@ -93,6 +93,11 @@ class OperatingResult:
         True where the asset has an interval profile.
     flags : pandas.DataFrame
         asset_id, option_id, flag: cautions (starting screen, overload, excitation limits, data notes).
+    curves : models.tabulation.CurveBook, optional
+        A block's options kept as tables on grids (:func:`site_blocks` with ``curves``): the pairs
+        (option, asset) it holds, or makes repeat today's row, are not written in ``p_kw`` and
+        ``q_kvar``; read every option's rows through it (:meth:`~models.tabulation.CurveBook.fill`).
+        None: the arrays hold every row.
     """
 
     index: pd.DatetimeIndex
@@ -115,6 +120,7 @@ class OperatingResult:
     capacitor_q_kvar: np.ndarray
     interval_data: np.ndarray
     flags: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=["asset_id", "option_id", "flag"]))
+    curves: tabulation.CurveBook | None = None
 
     def option_position(self, option_id: str) -> int:
         """Return the position of an option id."""
@@ -763,7 +769,7 @@ def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
                    today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None,
-                   needed: dict | None = None, power_only: bool = False) -> OperatingResult:
+                   needed: dict | None = None, power_only: bool = False, curves: bool = False) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
@@ -780,7 +786,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     values do not depend on the batch (:func:`_batch_coupled`) is evaluated on those assets only, the
     others on the same assets as without ``needed``, so the values written are the same. With
     ``power_only`` only the per-interval ``p_kw`` and ``q_kvar`` are computed (yearly values and flags
-    are left at zero or empty), for callers that read nothing else.
+    are left at zero or empty), for callers that read nothing else. With ``curves`` the options other
+    than today's that are tabulated are kept as tables in the result's ``curves`` book instead of being
+    interpolated into ``p_kw`` and ``q_kvar``, and an option that does not apply repeats today's row
+    through the book instead of a copy (the values read through the book are the same).
     """
     from dataclasses import replace
 
@@ -846,6 +855,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         # page fault and a clearing per page on first touch, several times one pass)
         p_kw = np.empty((1 if only_today else n_o, n_a, n_t))
         q_kvar = np.empty((1 if only_today else n_o, n_a, n_t))
+    book = tabulation.CurveBook(1 if only_today else n_o, n_a) if curves else None
     energy = np.zeros((n_a, n_o))
     shaft_energy = np.zeros((n_a, n_o))
     losses = np.zeros((n_a, n_o, len(LOSS_KINDS)))
@@ -931,14 +941,15 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             return tabulation.tables(values if ok.all() else values[ok])
 
         p_tables, q_tables = tables_of(pt.p_kw), tables_of(pt.q_kvar)
-        # straight into the option's rows (no temporary)
-        pair = tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o],
-                                           rows=at_grid[ok], out_rows=idx)
+        if book is not None and o > 0:  # read through the book: nothing written per interval
+            book.add(o, idx, grid, at_grid[ok], p_tables, q_tables)
+        else:  # straight into the option's rows (no temporary)
+            tabulation.interpolate_pair(grid, *p_tables, *q_tables, out_a=p_kw[o], out_b=q_kvar[o], rows=at_grid[ok],
+                                        out_rows=idx)
         if power_only:
             return
         energy[idx, o] = tabulation.weighted_sums(grid, *p_tables, rows=sel)
-        lag[idx, o] = pair.b_positive_sum * interval_h
-        lead[idx, o] = pair.b_negative_sum * interval_h
+        lag[idx, o], lead[idx, o] = tabulation.signed_sums(grid, *q_tables, interval_h, rows=sel)
         shaft_energy[idx, o] = tabulation.weighted_sums(grid, *tables_of(pt.shaft_kw), rows=sel)
         for k, loss in enumerate((pt.loss_motor_kw, pt.loss_drive_kw, pt.loss_excitation_kw)):
             losses[idx, o, k] = 0.0 if loss is None else tabulation.weighted_sums(grid, *tables_of(loss), rows=sel)
@@ -1031,7 +1042,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             continue
         off = ~applies[:, o]
         at = off if needed is None or o not in needed else off & np.asarray(needed[o], dtype=bool)
-        if at.any():  # (with ``needed``, only the rows that will be read)
+        if book is not None:
+            book.repeat(o, np.flatnonzero(off))
+        elif at.any():  # (with ``needed``, only the rows that will be read)
             p_kw[o, at] = p_kw[0, at]
             q_kvar[o, at] = q_kvar[0, at]
         for target in (energy, shaft_energy, lag, lead, speed):
@@ -1043,7 +1056,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         p_kw=p_kw, q_kvar=q_kvar, energy_kwh=energy, shaft_energy_kwh=shaft_energy, losses_kwh=losses,
         lagging_kvarh=lag, leading_kvarh=lead, running_h=running_h, mean_speed_rpm=speed, capacitor_q_kvar=cap_q,
         interval_data=np.isin(np.arange(n_a), interval_rows),
-        flags=pd.DataFrame(flags, columns=["asset_id", "option_id", "flag"]),
+        flags=pd.DataFrame(flags, columns=["asset_id", "option_id", "flag"]), curves=book,
     )
 
 
@@ -1154,7 +1167,7 @@ class _BlockBuffers:
 
 
 def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
-                today_out: tuple[np.ndarray, np.ndarray] | None = None):
+                today_out: tuple[np.ndarray, np.ndarray] | None = None, curves: bool = False):
     """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
 
     The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
@@ -1162,7 +1175,8 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     several), the same numbers :func:`operate_site` uses. Memory: one block at a time. With
     ``today_out`` ((n_assets, n_steps) arrays each, e.g. the fleet's rows of this site from
     :meth:`_Merger.today_rows`), today's motors are written there, every row (else into arrays of the
-    site's own).
+    site's own). With ``curves`` each block's tabulated options are kept in its ``curves`` book instead
+    of its per-interval arrays (see :func:`_operate_block`).
 
     Warnings
     --------
@@ -1173,7 +1187,7 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     blocks = asset_blocks(n, len(index), chunk_assets)
     buffers = _BlockBuffers()
     if len(blocks) <= 1:
-        part = _operate_block(case, index, np.arange(n), buffers=buffers)
+        part = _operate_block(case, index, np.arange(n), buffers=buffers, curves=curves)
         if today_out is not None:
             today_out[0][...], today_out[1][...] = part.p_kw[0], part.q_kvar[0]
         yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
@@ -1194,7 +1208,7 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     totals = (base_p.sum(axis=0), base_q.sum(axis=0))
     for rows, today_of_block in zip(blocks, today):
         yield rows, _operate_block(case, index, rows, site_totals=totals, buffers=buffers, today=today_of_block,
-                                   site_constants=constants), totals
+                                   site_constants=constants, curves=curves), totals
 
 
 class _Merger:
@@ -1246,7 +1260,8 @@ class _Merger:
             interval = [part.p_kw, part.q_kvar] if self.dense else [part.p_kw[0], part.q_kvar[0]]
             if "p_kw" in self.fields:
                 pass  # allocated by today_rows
-            elif whole and all(isinstance(a, np.ndarray) and a.shape == shape and a.dtype == np.float64 for a in interval):
+            elif whole and part.curves is None and all(isinstance(a, np.ndarray) and a.shape == shape
+                                                       and a.dtype == np.float64 for a in interval):
                 # one part holding every asset in order: its per-interval arrays are the result (no copy)
                 self.fields["p_kw"], self.fields["q_kvar"] = interval
                 adopted = True
@@ -1258,6 +1273,12 @@ class _Merger:
         in_place = self.prewritten is not None and bool(self.prewritten[at].all())  # today's rows already there
         if adopted:
             pass
+        elif self.dense and part.curves is not None:  # every option's rows, read through the block's book
+            first = 1 if in_place else 0
+            book, block_rows = part.curves.arrays(), np.arange(len(rows))
+            for o in range(first, len(part.option_ids)):
+                tabulation.fill_rows(book, np.full(len(rows), o), block_rows, part.p_kw, part.q_kvar,
+                                     self.fields["p_kw"][o], self.fields["q_kvar"][o], np.asarray(rows))
         elif self.dense:
             first = 1 if in_place else 0
             self.fields["p_kw"][first:, at] = part.p_kw[first:]

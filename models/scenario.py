@@ -184,12 +184,12 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     # today's motors straight into the fleet's rows when the site's positions are consecutive
     today_out = merger.today_rows(positions, len(options_with_baseline(case.options))) if positions is not None else None
     acc = None
-    for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out):
+    for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out, curves=True):
         t1 = time.perf_counter()
         t_machines += t1 - t0
         if acc is None:
             acc = SiteSavings(setup, index, block.interval_h, totals[0], totals[1], len(case.assets), block.technologies)
-        acc.add(rows, block.p_kw, block.q_kvar, block.applies)
+        acc.add(rows, block.p_kw, block.q_kvar, block.applies, block.curves)
         merger.add(rows if positions is None else positions[rows], block)
         del block
         t0 = time.perf_counter()

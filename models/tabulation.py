@@ -320,3 +320,230 @@ def weighted_sums(grid: Grid, base: np.ndarray, rise: np.ndarray, rows: np.ndarr
     """
     hours, moment = (grid.hours_h, grid.moment_h) if rows is None else (grid.hours_h[rows], grid.moment_h[rows])
     return (base * hours).sum(axis=1) + (rise * moment).sum(axis=1)
+
+
+def signed_sums(grid: Grid, base: np.ndarray, rise: np.ndarray, interval_h: float,
+                rows: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """The hour-weighted sums of the interpolated value's positive and negative parts, per row (n,) each.
+
+    Sum_t h max(v_t, 0) and Sum_t h max(-v_t, 0) of v_t = b_j(t) + r_j(t) x_t (lagging and leading kVArh
+    from a kVAr table), without a per-interval array: a cell whose two nodes are both >= 0 (both <= 0)
+    adds b_j H_j + r_j M_j to the first sum (its negative to the second), as in :func:`weighted_sums`;
+    only a row with a cell where the value changes sign, and that holds intervals, is read interval by
+    interval, in those cells. A NaN value adds to neither sum.
+
+    Parameters
+    ----------
+    grid : Grid
+    base, rise : numpy.ndarray, shape (n, n_nodes)
+        Tables (:func:`tables`) of the rows ``rows`` of the grid (default every row, in order).
+    interval_h : float
+        Hours each interval stands for [h].
+    rows : numpy.ndarray of int, optional
+
+    Returns
+    -------
+    positive, negative : numpy.ndarray, shape (n,)
+        [unit of the values x h], each >= 0.
+
+    Examples
+    --------
+    >>> g = locate(np.array([[1.0, 8.0, 8.0]]), np.ones((1, 3), bool), 2.0, 2)
+    >>> up, down = signed_sums(g, *tables(np.array([[-2.0, 0.0, 4.0]])), 2.0)   # -2, 4, 4 per interval
+    >>> up.tolist(), down.tolist()
+    ([16.0], [4.0])
+    """
+    n = grid.cell.shape[0] if rows is None else len(rows)
+    rows = np.arange(n, dtype=np.intp) if rows is None else np.asarray(rows, dtype=np.intp)
+    positive, negative = np.zeros(n), np.zeros(n)
+    _signed_sums(grid.cell, grid.position_frac, grid.hours_h, grid.moment_h, rows,
+                 np.ascontiguousarray(base, dtype=float), np.ascontiguousarray(rise, dtype=float), float(interval_h),
+                 positive, negative)
+    return positive, negative
+
+
+@numba.njit(nogil=True, cache=True)
+def _signed_sums(cell, position, hours, moment, rows, base, rise, interval_h, positive,
+                 negative):  # pragma: no cover - compiled
+    m = cell.shape[1]
+    n_nodes = base.shape[1]
+    for i in range(len(rows)):
+        r = rows[i]
+        up, down = 0.0, 0.0
+        mixed = False
+        for j in range(n_nodes):
+            if hours[r, j] == 0.0:
+                continue
+            b, e = base[i, j], base[i, j] + rise[i, j]
+            if b >= 0.0 and e >= 0.0:
+                up += b * hours[r, j] + rise[i, j] * moment[r, j]
+            elif b <= 0.0 and e <= 0.0:
+                down -= b * hours[r, j] + rise[i, j] * moment[r, j]
+            else:
+                mixed = True
+        if mixed:  # the cells where the value changes sign (or is NaN), interval by interval
+            for t in range(m):
+                j = cell[r, t]
+                b, e = base[i, j], base[i, j] + rise[i, j]
+                if (b >= 0.0 and e >= 0.0) or (b <= 0.0 and e <= 0.0):
+                    continue
+                v = b + rise[i, j] * position[r, t]
+                if v > 0.0:
+                    up += v * interval_h
+                elif v < 0.0:
+                    down -= v * interval_h
+        positive[i] = up
+        negative[i] = down
+
+
+class CurveBook:
+    """Per-interval rows of two quantities (kW, kVAr) for (option, row) pairs, kept as tables on grids.
+
+    A block of assets under several options has per-interval arrays ``p``, ``q`` of shape
+    (n_options, n_rows, n_steps). A pair whose curves are tabulated need not be written there: the book
+    keeps its tables and its row of a grid, and :meth:`fill` interpolates the pair when it is read (the
+    values :func:`interpolate_pair` would have written, the same bits). A pair may also stand for
+    another option's row of the same asset (:meth:`repeat`: an option that does not apply repeats
+    today's values); any other pair is read from the arrays themselves.
+
+    Parameters
+    ----------
+    n_options, n_rows : int
+        The arrays' first two dimensions.
+
+    Notes
+    -----
+    Grids whose cells are uint8 (at most 256 nodes) and int32 go to two slots, each the rows of its
+    grids stacked (one grid in a slot is used as it is, without a copy). :meth:`arrays` gives what the
+    compiled readers take: (table, source, slot, grid_row, offset, cell_a, position_a, cell_b,
+    position_b, p_base, p_rise, q_base, q_rise).
+    """
+
+    def __init__(self, n_options: int, n_rows: int):
+        self.table = np.full((n_options, n_rows), -1, dtype=np.int64)
+        self.source = np.repeat(np.arange(n_options, dtype=np.int64)[:, None], n_rows, axis=1)
+        self._grids: list[list[Grid]] = [[], []]  # by cell dtype: uint8, int32
+        self._entries: list[tuple] = []  # (slot, grid in slot, grid rows, p_base, p_rise, q_base, q_rise)
+        self._n_entries = 0
+        self._frozen = None
+
+    def add(self, option: int, rows: np.ndarray, grid: Grid, grid_rows: np.ndarray, p_tables: tuple,
+            q_tables: tuple) -> None:
+        """Pairs (option, rows[i]) read as rows ``grid_rows[i]`` of ``grid`` with tables row i of
+        ``p_tables`` = (base, rise) and ``q_tables`` (:func:`tables`, each (len(rows), n_nodes))."""
+        slot = 0 if grid.cell.dtype == np.uint8 else 1
+        grids = self._grids[slot]
+        at = next((g for g, known in enumerate(grids) if known is grid), None)
+        if at is None:
+            grids.append(grid)
+            at = len(grids) - 1
+        rows = np.asarray(rows, dtype=np.intp)
+        self._entries.append((slot, at, np.asarray(grid_rows, dtype=np.intp),
+                              *(np.ascontiguousarray(t, dtype=float) for t in (*p_tables, *q_tables))))
+        self.table[option, rows] = self._n_entries + np.arange(len(rows))
+        self._n_entries += len(rows)
+        self._frozen = None
+
+    def repeat(self, option: int, rows: np.ndarray, from_option: int = 0) -> None:
+        """Pairs (option, rows) read as (from_option, rows): its tables, or its rows of the arrays."""
+        rows = np.asarray(rows, dtype=np.intp)
+        self.table[option, rows] = self.table[from_option, rows]
+        self.source[option, rows] = self.source[from_option, rows]
+        self._frozen = None
+
+    def tabulated(self, option: int) -> np.ndarray:
+        """Rows (bool, (n_rows,)) of an option that the book holds (not in the arrays)."""
+        return self.table[option] >= 0
+
+    def arrays(self) -> tuple:
+        """The book as plain arrays for the compiled readers (see the class notes)."""
+        if self._frozen is not None:
+            return self._frozen
+        slots, offsets = [], []
+        for s, grids in enumerate(self._grids):
+            dtype = np.uint8 if s == 0 else np.int32
+            if not grids:
+                slots.append((np.zeros((0, 0), dtype=dtype), np.zeros((0, 0)), []))
+            elif len(grids) == 1:
+                slots.append((grids[0].cell, grids[0].position_frac, [0]))
+            else:
+                starts = np.cumsum([0] + [g.cell.shape[0] for g in grids[:-1]]).tolist()
+                slots.append((np.concatenate([g.cell for g in grids]), np.concatenate([g.position_frac for g in grids]),
+                              starts))
+        n = self._n_entries
+        slot, grid_row, offset = np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, np.int64)
+        flat: list[list[np.ndarray]] = [[], [], [], []]
+        k = at = 0
+        for s, g, grid_rows, *tabs in self._entries:
+            n_e, width = tabs[0].shape
+            slot[k:k + n_e] = s
+            grid_row[k:k + n_e] = slots[s][2][g] + grid_rows
+            offset[k:k + n_e] = at + width * np.arange(n_e)
+            for store, t in zip(flat, tabs):
+                store.append(t.ravel())
+            k += n_e
+            at += n_e * width
+        tables_ = [np.concatenate(f) if f else np.zeros(0) for f in flat]
+        self._frozen = (self.table, self.source, slot, grid_row, offset, slots[0][0], slots[0][1], slots[1][0],
+                        slots[1][1], *tables_)
+        return self._frozen
+
+    def fill(self, option: int, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
+             out_q: np.ndarray, out_rows: np.ndarray | None = None) -> None:
+        """Write the pairs (option, rows[i]) to rows ``out_rows[i]`` (default i) of ``out_p``, ``out_q``.
+
+        ``p``, ``q`` are the block's arrays (n_options, n_rows, n_steps), read for pairs the book does
+        not hold.
+        """
+        rows = np.asarray(rows, dtype=np.intp)
+        out_rows = np.arange(len(rows), dtype=np.intp) if out_rows is None else np.asarray(out_rows, dtype=np.intp)
+        fill_rows(self.arrays(), np.full(len(rows), option, dtype=np.intp), rows, p, q, out_p, out_q, out_rows)
+
+
+def fill_rows(book: tuple, options: np.ndarray, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
+              out_q: np.ndarray, out_rows: np.ndarray) -> None:
+    """:meth:`CurveBook.fill` of pairs (options[i], rows[i]) from a book's :meth:`CurveBook.arrays`."""
+    _fill_pairs(*book, np.asarray(options, dtype=np.intp), np.asarray(rows, dtype=np.intp), p, q, out_p, out_q,
+                np.asarray(out_rows, dtype=np.intp))
+
+
+@numba.njit(nogil=True, cache=True)
+def _fill_pairs(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base,
+                q_rise, options, rows, p, q, out_p, out_q, out_rows):  # pragma: no cover - compiled
+    for i in range(len(rows)):
+        _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise,
+                   q_base, q_rise, options[i], rows[i], p, q, out_p[out_rows[i]], out_q[out_rows[i]])
+
+
+@numba.njit(nogil=True, cache=True)
+def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base,
+               q_rise, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
+    """Pair (o, r) into out_p, out_q (n_steps,): interpolated as :func:`_interpolate_two`, or copied."""
+    m = out_p.shape[0]
+    k = table[o, r]
+    if k < 0:
+        s = source[o, r]
+        for t in range(m):
+            out_p[t] = p[s, r, t]
+            out_q[t] = q[s, r, t]
+    elif slot[k] == 0:
+        g, at = grid_row[k], offset[k]
+        for t in range(m):
+            j = at + cell_a[g, t]
+            x = position_a[g, t]
+            out_p[t] = p_base[j] + p_rise[j] * x
+            out_q[t] = q_base[j] + q_rise[j] * x
+    else:
+        g, at = grid_row[k], offset[k]
+        for t in range(m):
+            j = at + cell_b[g, t]
+            x = position_b[g, t]
+            out_p[t] = p_base[j] + p_rise[j] * x
+            out_q[t] = q_base[j] + q_rise[j] * x
+
+
+@numba.njit(nogil=True, cache=True)
+def fill_pair(book, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
+    """:func:`_fill_pair` with the book as the tuple :meth:`CurveBook.arrays` (for other compiled passes)."""
+    _fill_pair(book[0], book[1], book[2], book[3], book[4], book[5], book[6], book[7], book[8], book[9], book[10],
+               book[11], book[12], o, r, p, q, out_p, out_q)

@@ -239,3 +239,159 @@ class TestTabulatedMachines:
         site_id = site_partition(fleet)[0][0]
         _, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_MIN_STEPS=10**6)
         assert_array_equal(tab.p_kw, exact.p_kw)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Lagging and leading sums by cell, and pairs read through a curve book
+# ---------------------------------------------------------------------------------------------------
+def _t3_grid():
+    # docs/derivations/tabulated-machine-curves.md, case T3: x = 0, 1, 1, 0.5 in one cell, 0.5 h intervals
+    p = np.array([[1.0, 8.0, 8.0, 3.375]])
+    return tabulation.locate(p, p > 0, 0.5, 2)
+
+
+class TestSignedSums:
+    def test_a_cell_that_stays_lagging_by_hand(self):
+        # hand calculation T3 (a): 4.5 kVArh lagging, none leading
+        up, down = tabulation.signed_sums(_t3_grid(), *tabulation.tables(np.array([[1.0, 2.0, 3.0]])), 0.5)
+        assert_allclose(up, [4.5], rtol=1e-15)
+        assert_array_equal(down, [0.0])
+
+    def test_a_cell_that_changes_sign_by_hand(self):
+        # hand calculation T3 (b): 4.5 kVArh lagging, 1.0 leading
+        up, down = tabulation.signed_sums(_t3_grid(), *tabulation.tables(np.array([[-2.0, 1.0, 4.0]])), 0.5)
+        assert_allclose(up, [4.5], rtol=1e-15)
+        assert_allclose(down, [1.0], rtol=1e-15)
+
+    @settings(max_examples=60, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(2, 40), st.floats(0.1, 2.0))
+    def test_equal_to_the_per_interval_sums(self, seed, n_nodes, interval_h):
+        # against the numpy rule on the interpolated values: h x sum max(v, 0) and h x sum max(-v, 0) per
+        # row, for rows with lagging, leading and mixed cells, stopped intervals and chosen rows
+        rng = np.random.default_rng(seed)
+        p = rng.uniform(0.0, 100.0, (6, 50))
+        p[p < 15.0] = 0.0
+        g = tabulation.locate(p, p > 0, interval_h, n_nodes)
+        values = rng.normal(size=g.p_grid_kw.shape) + rng.choice([-3.0, 0.0, 3.0], size=(6, 1))
+        base, rise = tabulation.tables(values)
+        v = tabulation.interpolate(g, base, rise)
+        rows = np.array([4, 0, 5, 2])
+        up, down = tabulation.signed_sums(g, base[rows], rise[rows], interval_h, rows=rows)
+        assert_allclose(up, interval_h * np.maximum(v[rows], 0.0).sum(axis=1), rtol=1e-12, atol=1e-12)
+        assert_allclose(down, interval_h * np.maximum(-v[rows], 0.0).sum(axis=1), rtol=1e-12, atol=1e-12)
+
+    def test_a_nan_value_adds_to_neither_sum(self):
+        # as the per-interval rule: NaN > 0 and NaN < 0 are both false
+        up, down = tabulation.signed_sums(_t3_grid(), *tabulation.tables(np.array([[np.nan, 0.0, 3.0]])), 0.5)
+        assert_array_equal(up, [0.0])
+        assert_array_equal(down, [0.0])
+
+
+class TestCurveBook:
+    @staticmethod
+    def _grids():
+        rng = np.random.default_rng(8)
+        p = rng.uniform(0.0, 60.0, (5, 30))
+        p[p < 6.0] = 0.0
+        coarse = tabulation.locate(p, p > 0, 1.0, 9)  # uint8 cells
+        fine = tabulation.locate(p[[1, 3]], p[[1, 3]] > 0, 1.0, 300)  # int32 cells
+        return p, coarse, fine
+
+    def test_pairs_read_as_the_interpolation_writes_them(self):
+        # two options of five rows: rows of option 1 on the coarse grid, rows of option 2 on the fine grid
+        # and the coarse one; option 2 of row 4 read from the arrays; option 1 of rows 0 and 2 repeats
+        # today's (option 0) rows; every pair the same bits as interpolate_pair writes
+        p, coarse, fine = self._grids()
+        arrays_p, arrays_q = np.full((3, 5, 30), np.nan), np.full((3, 5, 30), np.nan)
+        arrays_p[0], arrays_q[0] = p, -p
+        arrays_p[2, 4], arrays_q[2, 4] = 7.0, 8.0
+        book = tabulation.CurveBook(3, 5)
+        expected_p, expected_q = arrays_p.copy(), arrays_q.copy()
+
+        def put(option, rows, grid, grid_rows, scale):
+            values = grid.p_grid_kw[grid_rows] * scale
+            kw, kvar = tabulation.tables(values), tabulation.tables(values - 10.0)
+            book.add(option, rows, grid, grid_rows, kw, kvar)
+            tabulation.interpolate_pair(grid, *kw, *kvar, out_a=expected_p[option], out_b=expected_q[option],
+                                        rows=grid_rows, out_rows=rows)
+
+        put(1, np.array([1, 3, 4]), coarse, np.array([1, 3, 4]), 1.1)
+        put(2, np.array([1, 3]), fine, np.array([0, 1]), 0.9)
+        put(2, np.array([0, 2]), coarse, np.array([0, 2]), 1.2)
+        book.repeat(1, np.array([0, 2]))
+        expected_p[1, [0, 2]], expected_q[1, [0, 2]] = p[[0, 2]], -p[[0, 2]]
+        assert book.tabulated(1).tolist() == [False, True, False, True, True]
+        assert book.tabulated(2).tolist() == [True, True, True, True, False]
+        for option in range(3):
+            out_p, out_q = np.full((5, 30), -1.0), np.full((5, 30), -1.0)
+            book.fill(option, np.arange(5), arrays_p, arrays_q, out_p, out_q)
+            assert_array_equal(out_p, expected_p[option], err_msg=str(option))
+            assert_array_equal(out_q, expected_q[option], err_msg=str(option))
+
+    def test_several_grids_in_one_slot_and_chosen_output_rows(self):
+        # two uint8 grids stacked in one slot; pairs written to chosen rows of the output
+        p, coarse, _ = self._grids()
+        other = tabulation.locate(p[::-1].copy(), p[::-1] > 0, 1.0, 5)
+        book = tabulation.CurveBook(2, 4)
+        kw_a, kvar_a = tabulation.tables(coarse.p_grid_kw[[2, 0]]), tabulation.tables(-coarse.p_grid_kw[[2, 0]])
+        kw_b, kvar_b = tabulation.tables(other.p_grid_kw[[1, 4]]), tabulation.tables(other.p_grid_kw[[1, 4]] + 1.0)
+        book.add(1, np.array([0, 1]), coarse, np.array([2, 0]), kw_a, kvar_a)
+        book.add(1, np.array([2, 3]), other, np.array([1, 4]), kw_b, kvar_b)
+        assert book.arrays()[5].shape == (10, 30)  # both grids' cells in the uint8 slot
+        out_p, out_q = np.zeros((6, 30)), np.zeros((6, 30))
+        book.fill(1, np.array([3, 0]), np.zeros((2, 4, 30)), np.zeros((2, 4, 30)), out_p, out_q,
+                  out_rows=np.array([5, 1]))
+        assert_array_equal(out_p[5], tabulation.interpolate_pair(other, *kw_b, *kvar_b, rows=np.array([1, 4])).a[1])
+        assert_array_equal(out_q[1], tabulation.interpolate_pair(coarse, *kw_a, *kvar_a, rows=np.array([2, 0])).b[0])
+        assert (out_p[[0, 2, 3, 4]] == 0.0).all()
+
+
+class TestBlocksReadThroughTheirBook:
+    YEARLY = ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm",
+              "running_h", "applies")
+
+    def test_a_block_read_through_its_book_equals_the_written_block(self, fleet):
+        # site_blocks with curves keeps the tabulated options as tables (nothing written per interval) and
+        # makes options that do not apply repeat today's rows; read through the book, every option's rows
+        # are the bits the written run holds, and the yearly values are the same
+        index = case_index(fleet)
+        held = repeated = 0
+        for site_id, _ in site_partition(fleet):
+            one = site_case(fleet, site_id)
+            written = [(rows, {name: np.array(getattr(block, name)) for name in ("p_kw", "q_kvar") + self.YEARLY})
+                       for rows, block, _ in operation.site_blocks(one, index, 7)]
+            booked = operation.site_blocks(one, index, 7, curves=True)
+            for (rows, values), (rows_b, block, _) in zip(written, booked, strict=True):
+                assert_array_equal(rows, rows_b)
+                book = block.curves
+                n_o, n_a, n_t = values["p_kw"].shape
+                for o in range(n_o):
+                    p, q = np.empty((n_a, n_t)), np.empty((n_a, n_t))
+                    book.fill(o, np.arange(n_a), block.p_kw, block.q_kvar, p, q)
+                    assert_array_equal(p, values["p_kw"][o], err_msg=f"{site_id} option {o}")
+                    assert_array_equal(q, values["q_kvar"][o], err_msg=f"{site_id} option {o}")
+                    if o:
+                        held += int(book.tabulated(o).sum())
+                        repeated += int(((book.source[o] == 0) & ~block.applies[:, o]).sum())
+                for name in self.YEARLY:
+                    assert_array_equal(getattr(block, name), values[name], err_msg=name)
+        assert held > 0 and repeated > 0  # both kinds of pair were read through the book
+
+    def test_site_physics_through_the_book_equals_the_written_arrays(self, fleet):
+        # the physics path (site_blocks with curves, SiteSavings reading the book, the fleet's arrays filled
+        # through it) against site_savings on the written arrays of the same blocks: the same bits
+        from models.bill_savings import site_savings, site_setups
+        from models.scenario import site_physics
+
+        index = case_index(fleet)
+        for site_id, _ in site_partition(fleet):
+            one = site_case(fleet, site_id)
+            op, part = site_physics(one, index, 35.0, chunk_assets=7)
+            written = operate_site(one, index, chunk_assets=7)
+            assert_array_equal(op.p_kw, written.p_kw)
+            assert_array_equal(op.q_kvar, written.q_kvar)
+            setup = site_setups(one, index)[site_id]
+            expected = site_savings(setup, index, written.interval_h, written.p_kw, written.q_kvar, written.applies,
+                                    written.technologies, 35.0)
+            for name, values in expected.items():
+                assert np.array_equal(part[name], values, equal_nan=True), f"{site_id} {name}"
