@@ -173,7 +173,8 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
     An option changes an asset when the largest |difference| from today's kW, or from today's kVAr, is
     above 0 (a quantity with a NaN difference in some interval counts as unchanged, as NaN compares
     false); for finite values, when some value differs. One compiled pass over the block, the pairs
-    the ``book`` holds read through it.
+    the ``book`` holds read through it: a pair whose every value is known finite (finite tables and
+    positions, today's row finite) is read only up to its first difference.
     """
     p_site, q_site = np.asarray(p_site, dtype=float), np.asarray(q_site, dtype=float)
     n_t = p_site.shape[2]
@@ -187,9 +188,32 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
 def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - compiled
     n_o, n_s, n_t = p.shape
     out = np.zeros((n_s, n_o), dtype=np.bool_)
-    for o in range(1, n_o):
-        for j in range(n_s):
+    table, slot, grid_row, offset, finite = book[0], book[2], book[3], book[4], book[13]
+    cell_a, position_a, cell_b, position_b = book[5], book[6], book[7], book[8]
+    p_base, p_rise, q_base, q_rise = book[9], book[10], book[11], book[12]
+    for j in range(n_s):
+        today_finite = -1  # unknown, then 0 or 1 (read once per asset, when a pair needs it)
+        for o in range(1, n_o):
             if not applies[j, o]:
+                continue
+            k = table[o, j]
+            if k >= 0 and finite[k]:
+                if today_finite < 0:
+                    today_finite = 1
+                    for t in range(n_t):
+                        if not (np.isfinite(p[0, j, t]) and np.isfinite(q[0, j, t])):
+                            today_finite = 0
+                            break
+            if k >= 0 and finite[k] and today_finite == 1:  # every difference finite: the first one decides
+                g, at = grid_row[k], offset[k]
+                for t in range(n_t):  # the values tabulation._fill_pair writes
+                    if slot[k] == 0:
+                        c, x = at + cell_a[g, t], position_a[g, t]
+                    else:
+                        c, x = at + cell_b[g, t], position_b[g, t]
+                    if p_base[c] + p_rise[c] * x != p[0, j, t] or q_base[c] + q_rise[c] * x != q[0, j, t]:
+                        out[j, o] = True
+                        break
                 continue
             tabulation.fill_pair(book, o, j, p, q, row_p, row_q)
             differs_p, nan_p, differs_q, nan_q = False, False, False, False
@@ -283,6 +307,15 @@ class _SiteBiller:
         themselves); the meters are built in one compiled pass (:func:`_scenario_meters`), term by term
         in :meth:`totals`' order.
         """
+        p, q, _, finite = self.scenario_meters(p0_kw, q0_kvar, p_block, q_block, j, o, kw_changes, book)
+        return self._priced(p, q, check_p=not (kw_changes and finite[0]), check_q=not finite[1])
+
+    def scenario_meters(self, p0_kw: np.ndarray, q0_kvar: np.ndarray, p_block: np.ndarray, q_block: np.ndarray,
+                        j: np.ndarray, o: np.ndarray, kw_changes: bool = True, book: tuple | None = None,
+                        kvar_copy: bool = False) -> tuple:
+        """The meters (p, q) :meth:`scenario_totals` prices, before the stepped banks; with ``kvar_copy`` a
+        copy of q as well (the kVAr of the same scenarios for a second biller on the same site, written
+        in the same pass), else None; and whether every value written to p and to q is finite."""
         if book is None:
             book = _book_arrays(None, p_block)
         n_s, n_t = len(j), len(p0_kw)
@@ -292,13 +325,14 @@ class _SiteBiller:
             p = np.array(np.atleast_2d(p0_kw), dtype=float)
             p += self.base_p
         q = np.empty((n_s, n_t))
+        q_copy = np.empty((n_s, n_t)) if kvar_copy else np.empty((0, 0))
         fixed = self.fixed_q if self.fixed_q is not None else np.zeros(n_t)
         finite = _scenario_meters(p_block, q_block, np.asarray(j, dtype=np.intp), np.asarray(o, dtype=np.intp),
                                   np.asarray(p0_kw, dtype=float), np.asarray(q0_kvar, dtype=float),
                                   np.broadcast_to(self.base_p, (n_t,)), np.broadcast_to(self.base_q, (n_t,)),
-                                  fixed, self.fixed_q is not None, kw_changes, p, q, book, np.empty(n_t),
+                                  fixed, self.fixed_q is not None, kw_changes, p, q, q_copy, book, np.empty(n_t),
                                   np.empty(n_t))
-        return self._priced(p, q, check_p=not (kw_changes and finite[0]), check_q=not finite[1])
+        return p, q, q_copy if kvar_copy else None, finite
 
     def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
         """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`)."""
@@ -314,17 +348,18 @@ class _SiteBiller:
 
 @numba.njit(nogil=True, cache=True)
 def _scenario_meters(p_block, q_block, j, o, p0, q0, base_p, base_q, fixed_q, has_fixed, kw_changes, out_p,
-                     out_q, book, row_p, row_q):  # pragma: no cover - compiled
+                     out_q, out_q_copy, book, row_p, row_q):  # pragma: no cover - compiled
     """Site meters of scenarios "asset j[s] takes option o[s]", in one pass.
 
     out_p[s, t] = (p0[t] + (p_block[o, j, t] - p_block[0, j, t])) + base_p[t] (when ``kw_changes``),
     out_q[s, t] = ((q0[t] + (q_block[o, j, t] - q_block[0, j, t])) + base_q[t]) + fixed_q[t] (the last
     term when ``has_fixed``): :meth:`_SiteBiller.totals`' sums, in its order, with the rows [b, a] read
-    through ``book`` (into the scratch rows ``row_p``, ``row_q``). Returns whether every value written
-    to out_p and to out_q is finite.
+    through ``book`` (into the scratch rows ``row_p``, ``row_q``); out_q_copy[s, t] = out_q[s, t] unless
+    out_q_copy has no rows. Returns whether every value written to out_p and to out_q is finite.
     """
     finite_p, finite_q = True, True
     n_t = p0.shape[0]
+    copy = out_q_copy.shape[0] > 0
     for s in range(len(j)):
         a, b = j[s], o[s]
         tabulation.fill_pair(book, b, a, p_block, q_block, row_p, row_q)
@@ -338,6 +373,8 @@ def _scenario_meters(p_block, q_block, j, o, p0, q0, base_p, base_q, fixed_q, ha
             if has_fixed:
                 w = w + fixed_q[t]
             out_q[s, t] = w
+            if copy:
+                out_q_copy[s, t] = w
             if not np.isfinite(w):
                 finite_q = False
     return finite_p, finite_q
@@ -451,12 +488,16 @@ class SiteSavings:
         p0, q0 = self.p0, self.q0
         for start in range(0, len(js), self.block):
             j, o = js[start:start + self.block], os_[start:start + self.block]
-            names, amounts = self.biller.scenario_totals(p0, q0, p_block, q_block, j, o, book=book)
+            # the meters once for both bills (the reactive-only bill's kVAr are the same scenarios')
+            p, q, q_copy, finite = self.biller.scenario_meters(p0, q0, p_block, q_block, j, o, book=book,
+                                                               kvar_copy=self.q_matters)
+            names, amounts = self.biller._priced(p, q, check_p=not finite[0], check_q=not finite[1])
             self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
             if self.q_matters:
-                # the kW stay today's: one row of p for every scenario
-                _, q_amounts = self.q_biller.scenario_totals(p0, q0, p_block, q_block, j, o, kw_changes=False,
-                                                             book=book)
+                # the kW stay today's: one row of p for every scenario (scenario_totals with kw_changes False)
+                p_today = np.array(np.atleast_2d(p0), dtype=float)
+                p_today += self.q_biller.base_p
+                _, q_amounts = self.q_biller._priced(p_today, q_copy, check_p=True, check_q=not finite[1])
                 self.reactive[rows[j], o] = self.q_base_total - q_amounts.sum(axis=1)
         self.pairs.append((rows[js], os_))
 

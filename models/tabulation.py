@@ -416,7 +416,8 @@ class CurveBook:
     Grids whose cells are uint8 (at most 256 nodes) and int32 go to two slots, each the rows of its
     grids stacked (one grid in a slot is used as it is, without a copy). :meth:`arrays` gives what the
     compiled readers take: (table, source, slot, grid_row, offset, cell_a, position_a, cell_b,
-    position_b, p_base, p_rise, q_base, q_rise).
+    position_b, p_base, p_rise, q_base, q_rise, finite), ``finite`` per table entry: whether its
+    tables and its grid row's positions are all finite (then so is every value read through it).
     """
 
     def __init__(self, n_options: int, n_rows: int):
@@ -472,6 +473,8 @@ class CurveBook:
                               starts))
         n = self._n_entries
         slot, grid_row, offset = np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, np.int64)
+        finite = np.zeros(n, dtype=bool)
+        positions_finite = [[np.isfinite(g.position_frac).all(axis=1) for g in grids] for grids in self._grids]
         flat: list[list[np.ndarray]] = [[], [], [], []]
         k = at = 0
         for s, g, grid_rows, *tabs in self._entries:
@@ -479,13 +482,15 @@ class CurveBook:
             slot[k:k + n_e] = s
             grid_row[k:k + n_e] = slots[s][2][g] + grid_rows
             offset[k:k + n_e] = at + width * np.arange(n_e)
+            finite[k:k + n_e] = positions_finite[s][g][grid_rows]
             for store, t in zip(flat, tabs):
                 store.append(t.ravel())
+                finite[k:k + n_e] &= np.isfinite(t).all(axis=1)
             k += n_e
             at += n_e * width
         tables_ = [np.concatenate(f) if f else np.zeros(0) for f in flat]
         self._frozen = (self.table, self.source, slot, grid_row, offset, slots[0][0], slots[0][1], slots[1][0],
-                        slots[1][1], *tables_)
+                        slots[1][1], *tables_, finite)
         return self._frozen
 
     def fill(self, option: int, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
@@ -503,7 +508,7 @@ class CurveBook:
 def fill_rows(book: tuple, options: np.ndarray, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
               out_q: np.ndarray, out_rows: np.ndarray) -> None:
     """:meth:`CurveBook.fill` of pairs (options[i], rows[i]) from a book's :meth:`CurveBook.arrays`."""
-    _fill_pairs(*book, np.asarray(options, dtype=np.intp), np.asarray(rows, dtype=np.intp), p, q, out_p, out_q,
+    _fill_pairs(*book[:13], np.asarray(options, dtype=np.intp), np.asarray(rows, dtype=np.intp), p, q, out_p, out_q,
                 np.asarray(out_rows, dtype=np.intp))
 
 
@@ -547,3 +552,4 @@ def fill_pair(book, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
     """:func:`_fill_pair` with the book as the tuple :meth:`CurveBook.arrays` (for other compiled passes)."""
     _fill_pair(book[0], book[1], book[2], book[3], book[4], book[5], book[6], book[7], book[8], book[9], book[10],
                book[11], book[12], o, r, p, q, out_p, out_q)
+

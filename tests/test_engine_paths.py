@@ -870,6 +870,54 @@ class TestChangedPairs:
         js, os_ = _changed_pairs(p, q, applies)
         assert list(zip(js.tolist(), os_.tolist())) == _reference_pairs(p, q, applies)
 
+    @pytest.mark.parametrize("case_", ["finite", "nan today", "nan table", "nan row"])
+    def test_pairs_read_through_a_curve_book_agree_with_plain_numpy(self, case_):
+        # a block whose options are tables (models.tabulation.CurveBook): the pairs found reading through
+        # the book, where known-finite pairs stop at their first difference, are those plain numpy finds on
+        # the same values written out. Option 1 = today's tables (unchanged); 2 = 1 % more kW; 3 = the kVAr
+        # of asset 2 changed at a node no interval reads (unchanged); 4 = read from the arrays (today's
+        # row with one interval changed for asset 1); 5 repeats today's for assets 0 and 3.
+        from models import tabulation
+
+        rng = np.random.default_rng(21)
+        n_o, n_a, n_t = 6, 4, 40
+        load = rng.uniform(10.0, 50.0, (n_a, n_t))
+        grid = tabulation.locate(load, load > 0, 1.0, 65)
+        empty = grid.hours_h[2, :-1] == 0  # cells of asset 2 holding no interval
+        node = 1 + int(np.flatnonzero(empty[:-1] & empty[1:])[0])  # the node between two of them
+        kw, kvar = grid.p_grid_kw * 1.05, 0.5 * grid.p_grid_kw + 3.0
+        if case_ == "nan table":
+            kvar = kvar.copy()
+            kvar[1, 4] = np.nan  # a node of asset 1's kVAr: its rows read NaN where they use it
+        p, q = np.full((n_o, n_a, n_t), -9.0), np.full((n_o, n_a, n_t), -9.0)
+        tabulation.interpolate_pair(grid, *tabulation.tables(kw), *tabulation.tables(kvar), out_a=p[0], out_b=q[0])
+        if case_ == "nan today":
+            p[0, 3, 7] = np.nan
+        book = tabulation.CurveBook(n_o, n_a)
+        rows = np.arange(n_a)
+        book.add(1, rows, grid, rows, tabulation.tables(kw), tabulation.tables(kvar))
+        book.add(2, rows, grid, rows, tabulation.tables(kw * 1.01), tabulation.tables(kvar))
+        moved = kvar.copy()
+        moved[2, 2 * node] += 5.0  # a node only cells without intervals use: never read
+        book.add(3, rows, grid, rows, tabulation.tables(kw), tabulation.tables(moved))
+        p[4], q[4] = p[0], q[0]
+        p[4, 1, 11] += 1.0
+        if case_ == "nan row":
+            q[4, 2, 5] = np.nan
+        book.add(5, np.array([1, 2]), grid, np.array([1, 2]), tabulation.tables(kw[[1, 2]] * 0.9),
+                 tabulation.tables(kvar[[1, 2]]))
+        book.repeat(5, np.array([0, 3]))
+        applies = np.ones((n_a, n_o), dtype=bool)
+        dense_p, dense_q = np.empty_like(p), np.empty_like(q)
+        for o in range(n_o):
+            book.fill(o, rows, p, q, dense_p[o], dense_q[o])
+        js, os_ = _changed_pairs(p, q, applies, book)
+        got = list(zip(js.tolist(), os_.tolist()))
+        assert got == _reference_pairs(dense_p, dense_q, applies)
+        plain = _changed_pairs(dense_p, dense_q, applies)
+        assert got == list(zip(plain[0].tolist(), plain[1].tolist()))
+        assert (2, 3) not in got and (0, 1) not in got and (1, 4) in got and (0, 2) in got
+
     def test_savings_of_unchanged_and_single_interval_options(self):
         p, q, applies, technologies = self.arrays()
         index = pd.date_range("2025-01-06", periods=self.N_STEPS, freq="h", tz="UTC")
