@@ -304,7 +304,8 @@ def solve_speed_coupled_load(
     speed_exponent : float or array_like, optional
         k in P ~ n^k [-]; 3 variable torque, 1 constant torque; per motor.
     tol_kw : float, optional
-        Convergence tolerance on the shaft power [kW], scaled by max(1, largest reference power).
+        Convergence tolerance on the shaft power [kW], scaled per element by max(1, its reference
+        power): each element stops iterating when its own change is within it.
 
     Returns
     -------
@@ -321,7 +322,9 @@ def solve_speed_coupled_load(
     -----
     The fixed point P = P_ref (n_new(P) / n_ref)^k is iterated from P = P_ref. Its contraction factor
     is about k s_r P/P_r (k x the new motor's slip at that load, a few per cent), so the error falls
-    by a factor 20-100 per pass and a handful of passes reach the tolerance.
+    by a factor 20-100 per pass and a handful of passes reach the tolerance. Every element stops on
+    its own change, so an element's result is the same whatever else is solved with it (``speed_of_new``
+    being element by element).
 
     Examples
     --------
@@ -336,7 +339,6 @@ def solve_speed_coupled_load(
     k = _per_motor(speed_exponent, kind, p_ref.ndim)
     _forbid(p_ref < 0, "ref_shaft_p_kw must not be negative")
     _require(n_ref > 0, "ref_speed_rpm must be positive")
-    scale = max(1.0, float(np.nanmax(p_ref, initial=0.0)))
     shape = np.broadcast_shapes(p_ref.shape, n_ref.shape, np.shape(k))
     # Work at least 1-D so the in-place passes below also work for a single value; reshape at the end.
     p_target = np.array(np.broadcast_to(p_ref, shape), dtype=float, ndmin=1)
@@ -350,21 +352,20 @@ def solve_speed_coupled_load(
         return np.broadcast_to(n.reshape(n.shape if n.ndim else (1,) * p.ndim), p.shape)
 
     p = p_target.copy()
-    known = ~np.isnan(p_target)  # missing data propagates as NaN and does not block convergence
-    all_known = bool(known.all())
+    # each element stops on its own change, against its own scale max(1, |P_ref|): its value does not
+    # depend on the other elements solved with it (any batch, any block size gives the same bits)
+    limit = tol_kw * np.maximum(np.abs(p_target), 1.0)
+    done = np.isnan(p_target)  # missing data propagates as NaN and does not block convergence
     for _ in range(MAX_COUPLING_ITERATIONS):
         with np.errstate(over="ignore", invalid="ignore"):
             p_next = np.divide(new_speed(p), n_ref)  # in place below: one fleet-sized allocation per pass
             np.power(p_next, k, out=p_next)
             p_next *= p_target
-            np.subtract(p_next, p, out=p)
-            np.abs(p, out=p)  # p now holds the change of this pass
-            if all_known:  # the largest change (NaN from an overflow counts as not converged, as below)
-                converged = p.size == 0 or bool(np.max(p) <= tol_kw * scale)
-            else:
-                converged = not np.any(known & ~(p <= tol_kw * scale))
+            change = np.abs(p_next - p)
+            np.copyto(p_next, p, where=done)  # a converged element keeps its value
+            done |= change <= limit  # (NaN from an overflow counts as not converged)
         p = p_next
-        if converged:
+        if done.all():
             break
     else:
         raise ValueError(

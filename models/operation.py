@@ -557,16 +557,6 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
     return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
 
 
-def _batch_coupled(option: Mapping) -> bool:
-    """True when an option's values for one asset can depend on the other assets evaluated with it.
-
-    Only the speed-coupling solver of a new induction motor without a speed remedy does (it stops when
-    its largest change over the batch is small enough, :func:`models.loads.solve_speed_coupled_load`);
-    every other model works element by element, with fixed numbers of passes.
-    """
-    return option["technology"] == "induction" and option["speed_remedy"] not in ("trim_or_pulley", "speed_control")
-
-
 def _evaluate(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
     tech = option["technology"]
     if tech == "existing":
@@ -782,9 +772,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     ``site_constants`` (:func:`_site_constants` of the same case) the per-asset numbers and today's
     calibrated motors are sliced from the site's instead of computed for the block. With ``needed``
     (option position -> bool per block asset, with ``wanted``) an option's per-interval values are
-    written for those assets only (the others' rows of that option are left undefined); an option whose
-    values do not depend on the batch (:func:`_batch_coupled`) is evaluated on those assets only, the
-    others on the same assets as without ``needed``, so the values written are the same. With
+    written for those assets only (the others' rows of that option are left undefined); every model
+    works element by element (no value depends on the other assets evaluated with it), so an option is
+    evaluated on those assets only and the values written are those of a full run. With
     ``power_only`` only the per-interval ``p_kw`` and ``q_kvar`` are computed (yearly values and flags
     are left at zero or empty), for callers that read nothing else. With ``curves`` the options other
     than today's that are tabulated are kept as tables in the result's ``curves`` book instead of being
@@ -1021,7 +1011,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         option = option_rows[o]
         for kind, rows_, arr, existing, load in groups:
             sub = np.flatnonzero(applies[rows_, o])
-            if needed is not None and o in needed and not _batch_coupled(option):
+            if needed is not None and o in needed:
                 # each row's values do not depend on the rows evaluated with it: only the rows asked for
                 sub = sub[np.asarray(needed[o], dtype=bool)[rows_[sub]]]
             if not len(sub):
@@ -1081,9 +1071,8 @@ def operate_site(case, index: pd.DatetimeIndex, chunk_assets: int | None = None)
     -----
     A site larger than one block runs twice over its blocks: first today's motors only, which gives the
     site's meter totals that wound-field machines following the site need, then every option. The
-    result does not depend on the number of blocks except through the solvers' batch-wide tolerances
-    (the speed-coupling fixed point stops when its largest change is below 1e-9 of the largest load of
-    the batch), i.e. to about 1e-9 relative.
+    result does not depend on the number of blocks: every model works element by element (the
+    speed-coupling fixed point stops element by element, :func:`models.loads.solve_speed_coupled_load`).
     """
     sites = case.assets["site_id"].unique()
     if len(sites) > 1:

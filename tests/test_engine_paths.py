@@ -18,8 +18,8 @@ Paths covered, each against a computation that does not use it:
 
 Tolerances: "exact" (``array_equal``) where the fast path is claimed to do the same floating-point
 operations on the same numbers; 1e-12 relative where sums are taken in another order (a few ulps of
-a bill); the batch tolerance of tests/test_chunking.py where the speed-coupling solver's batch-wide
-stopping rule is involved (documented in ``models.operation.operate_site``).
+a bill). Every model works element by element (the speed-coupling fixed point stops element by
+element), so a block's size never moves a value.
 """
 
 from __future__ import annotations
@@ -52,11 +52,6 @@ EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "
 BILL_RTOL = 1e-12
 # A line item that is zero in one path and a sum of zeros in the other: float rounding only.
 BILL_ATOL = 1e-9
-# As tests/test_chunking.py: the speed-coupling fixed point (models.loads) stops when the largest change
-# of its batch is below 1e-9 x the batch's largest load, so other assets in a block move the last digits
-# (up to ~1e-8 relative seen); 1e-7 relative plus 1e-6 kW (kWh) bounds that with margin.
-BATCH_RTOL = 1e-7
-BATCH_ATOL = 1e-6
 PER_INTERVAL = ("p_kw", "q_kvar")
 YEARLY = ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm",
           "running_h", "capacitor_q_kvar", "applies", "interval_data")
@@ -456,22 +451,16 @@ class TestReusedBlockBuffers:
 
     def test_several_blocks_equal_one_block(self, case, index):
         # one-block run against blocks of 2 (its today's totals, first pass and buffers): the same bits for
-        # every option except new induction motors, whose speed-coupling solver stops on a batch-wide
-        # tolerance (operate_site, Notes); they agree to that tolerance
+        # every option, new induction motors included (their speed-coupling fixed point stops element by
+        # element, so the other assets of a block do not move their values)
         for site_id, _ in site_partition(case):
             sub = site_case(case, site_id)
             one = operate_site(sub, index)
             many = operate_site(sub, index, chunk_assets=2)
-            batch = one.technologies == "induction"
-            assert batch.any() and (~batch).sum() >= 8
-            for name in PER_INTERVAL:
-                a, b = getattr(one, name), getattr(many, name)
-                assert_array_equal(a[~batch], b[~batch], err_msg=name)
-                assert_allclose(a[batch], b[batch], rtol=BATCH_RTOL, atol=BATCH_ATOL, err_msg=name)
-            for name in ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh", "leading_kvarh", "mean_speed_rpm"):
-                a, b = getattr(one, name), getattr(many, name)
-                assert_array_equal(a[:, ~batch], b[:, ~batch], err_msg=name)
-                assert_allclose(a[:, batch], b[:, batch], rtol=BATCH_RTOL, atol=BATCH_ATOL, err_msg=name)
+            assert (one.technologies == "induction").any()
+            for name in PER_INTERVAL + ("energy_kwh", "shaft_energy_kwh", "losses_kwh", "lagging_kvarh",
+                                        "leading_kvarh", "mean_speed_rpm"):
+                assert_array_equal(getattr(one, name), getattr(many, name), err_msg=name)
             for name in ("running_h", "capacitor_q_kvar", "applies", "interval_data"):
                 assert_array_equal(getattr(one, name), getattr(many, name), err_msg=name)
             # the same flags; a one-block run lists them in the order found, a merged run by asset
@@ -994,8 +983,8 @@ class TestScenarioMeters:
 
 
 class TestRecomputeOnlyTheRowsAsked:
-    """A recomputed block evaluates an option that does not depend on its batch on the assets asked for
-    only, and still gives the full run's bits."""
+    """A recomputed block evaluates an option on the assets asked for only, and still gives the full
+    run's bits."""
 
     def test_one_asset_asked_gives_the_full_runs_row(self, case, index, monkeypatch):
         options = operation.options_with_baseline(case.options)
@@ -1006,7 +995,7 @@ class TestRecomputeOnlyTheRowsAsked:
         checked = 0
         for o in range(1, len(options)):
             users = np.flatnonzero(full.applies[:, o])
-            if operation._batch_coupled(options.iloc[o]) or len(users) < 2:
+            if len(users) < 2:
                 continue
             needed = {o: np.zeros(len(block), dtype=bool)}
             needed[o][users[-1]] = True

@@ -149,6 +149,24 @@ class TestSpeedCoupling:
         with pytest.raises(ValueError, match="ref_shaft_p_kw"):
             shaft_power_at_speed_kw(-1.0, 1475.0, 1500.0)
 
+    def test_an_element_solved_alone_or_in_any_batch_gives_the_same_bits(self):
+        # invariant of our own design (operate_site, Notes): each element stops on its own change, so a
+        # light load solved beside loads over a thousand times larger, in another order or alone, gives the same
+        # bits (a batch-wide stop would let the largest load set the tolerance of the others)
+        old = calibrate_induction(30.0, 0.913, 0.85, 1460.0, 1500.0)
+        new = calibrate_induction(30.0, 0.949, 0.84, 1480.0, 1500.0)
+
+        def solve(p_ref):
+            p_ref = np.asarray(p_ref, dtype=float)[None, :]
+            return solve_speed_coupled_load(p_ref, induction_speed_rpm(old, p_ref),
+                                            lambda p: induction_speed_rpm(new, p)).shaft_p_kw[0]
+
+        batch = solve([0.02, 33.0, 12.0, 0.0, 29.0])
+        assert solve([0.02])[0] == batch[0]
+        assert solve([12.0, 0.02])[1] == batch[0]
+        assert solve([29.0, 12.0])[1] == batch[2]
+        assert solve([0.0])[0] == batch[3] == 0.0
+
     @settings(max_examples=50, deadline=None)
     @given(st.floats(0.0, 500.0), st.floats(0.005, 0.05), st.floats(0.0, 0.04))
     def test_fixed_point_satisfies_its_equation(self, p_ref, slip_new, slip_ref):
