@@ -590,6 +590,13 @@ def _evaluate(option: Mapping, arr, existing, load: _Load, site_other=None) -> _
 #: whatever the fleet size; 59 assets per block on an hourly year. Blocks that fit the processor's cache
 #: run faster: on a 534-asset site, 2**19 took 6.1 s against 9.4 s for 2**22 (bench, docs/scale.md).
 CHUNK_ELEMENTS = 2**19
+#: Asset-steps per block when the block keeps its options as curve tables (:func:`site_blocks` with
+#: ``curves``): per interval it holds today's power, the reference load and the grid's cells and positions
+#: (about 60 bytes per asset-step with the models' temporaries) instead of every option's power, so
+#: blocks can be 16 times larger, 957 assets on an hourly year (the models on the grids run on larger
+#: batches, and a site of up to that size needs one pass): 2.6-2.9 s against 3.6-3.9 s for the machines
+#: of four 460-534-asset sites with blocks of 2**19 (single thread, docs/performance.md).
+CURVE_CHUNK_ELEMENTS = 2**23
 #: Keep every option's per-interval power in memory when p_kw and q_kvar together take at most this many
 #: bytes (2 GiB: a 1,000-asset fleet of 11 options on an hourly year takes 1.5 GiB). Above it, today's
 #: motors are kept per interval and the other options are recomputed site by site when asked for
@@ -1156,7 +1163,8 @@ class _BlockBuffers:
 
 
 def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
-                today_out: tuple[np.ndarray, np.ndarray] | None = None, curves: bool = False):
+                today_out: tuple[np.ndarray, np.ndarray] | None = None, curves: bool = False,
+                buffers: "_BlockBuffers | None" = None):
     """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
 
     The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
@@ -1165,7 +1173,8 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     ``today_out`` ((n_assets, n_steps) arrays each, e.g. the fleet's rows of this site from
     :meth:`_Merger.today_rows`), today's motors are written there, every row (else into arrays of the
     site's own). With ``curves`` each block's tabulated options are kept in its ``curves`` book instead
-    of its per-interval arrays (see :func:`_operate_block`).
+    of its per-interval arrays (see :func:`_operate_block`), and the blocks are by default of
+    :data:`CURVE_CHUNK_ELEMENTS` asset-steps. ``buffers`` is the block memory to reuse (default fresh).
 
     Warnings
     --------
@@ -1173,8 +1182,10 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     next block: use or copy them before asking for the next one (the other fields are the block's own).
     """
     n = len(case.assets)
+    if curves and chunk_assets is None:
+        chunk_assets = max(1, CURVE_CHUNK_ELEMENTS // max(len(index), 1))
     blocks = asset_blocks(n, len(index), chunk_assets)
-    buffers = _BlockBuffers()
+    buffers = buffers if buffers is not None else _BlockBuffers()
     if len(blocks) <= 1:
         part = _operate_block(case, index, np.arange(n), buffers=buffers, curves=curves)
         if today_out is not None:

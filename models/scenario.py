@@ -23,7 +23,8 @@ import pandas as pd
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
-from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _Merger, _SiteRecompute,
+from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
+                              _SiteRecompute,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.regulations import class_rank, minimum_class
@@ -149,7 +150,7 @@ class ScenarioResult:
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
                  timer: dict | None = None, today_only: bool = False,
-                 into: tuple | None = None) -> tuple[OperatingResult | None, dict]:
+                 into: tuple | None = None, buffers=None) -> tuple[OperatingResult | None, dict]:
     """Machines and bill savings of a one-site case (:func:`models.operation.site_case`).
 
     Parameters
@@ -170,6 +171,8 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     into : (merger, numpy.ndarray), optional
         A fleet's gatherer and the fleet positions of this site's assets: each block goes straight into
         the fleet's arrays (no site-sized copy in between) and the operating result returned is None.
+    buffers : models.operation._BlockBuffers, optional
+        Block memory to reuse (e.g. from the previous site of the same thread); default fresh.
 
     Returns
     -------
@@ -184,7 +187,8 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     # today's motors straight into the fleet's rows when the site's positions are consecutive
     today_out = merger.today_rows(positions, len(options_with_baseline(case.options))) if positions is not None else None
     acc = None
-    for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out, curves=True):
+    for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out, curves=True,
+                                           buffers=buffers):
         t1 = time.perf_counter()
         t_machines += t1 - t0
         if acc is None:
@@ -282,10 +286,15 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
     t0 = time.perf_counter()
     stage_times: list[dict] = []
 
+    per_thread = threading.local()  # each thread's block memory, reused from site to site during this run
+
     def one_site(site_id: str) -> dict:
         site_timer: dict = {}
+        if getattr(per_thread, "buffers", None) is None:
+            per_thread.buffers = _BlockBuffers()
         _, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, site_timer,
-                               not merger.ops.dense, into=(gather, np.asarray(merger.rows[site_id])))
+                               not merger.ops.dense, into=(gather, np.asarray(merger.rows[site_id])),
+                               buffers=per_thread.buffers)
         stage_times.append(site_timer)
         return part
 

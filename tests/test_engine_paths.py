@@ -528,6 +528,34 @@ class TestReusedBlockBuffers:
             assert np.array_equal(phys.savings.equivalent_bank_q_kvar[rows], expected["equivalent_bank_q_kvar"],
                                   equal_nan=True), site_id
 
+    def test_one_thread_reuses_its_block_memory_from_site_to_site(self, case, index, monkeypatch):
+        # one thread works both sites with the same block memory (no fresh pages per site); the results
+        # are those of two threads, each with its own (checked against fresh blocks in the test above)
+        seen = []
+        real = scenario.site_blocks
+
+        def spy(*args, buffers=None, **kwargs):
+            seen.append(buffers)
+            yield from real(*args, buffers=buffers, **kwargs)
+
+        monkeypatch.setattr(scenario, "site_blocks", spy)
+        one = scenario.physics(case, 35.0, chunk_assets=2, dense=True, threads=1)
+        assert len(seen) == 2 and seen[0] is not None and seen[0] is seen[1]
+        two = scenario.physics(case, 35.0, chunk_assets=2, dense=True, threads=2)
+        for name in PER_INTERVAL + YEARLY:
+            assert_array_equal(getattr(one.operation, name), getattr(two.operation, name), err_msg=name)
+        assert_array_equal(one.savings.saving, two.savings.saving)
+        assert_array_equal(one.savings.reactive_saving, two.savings.reactive_saving)
+
+    def test_curve_blocks_default_to_the_larger_chunk(self, case, index, monkeypatch):
+        # blocks that keep their options as tables are CURVE_CHUNK_ELEMENTS asset-steps by default (here 3
+        # assets' worth: S1's 7 assets in blocks of 3, 3, 1); the others CHUNK_ELEMENTS (S1 in one block)
+        monkeypatch.setattr(operation, "CURVE_CHUNK_ELEMENTS", 3 * len(index))
+        sub = site_case(case, "S1")
+        sizes = [len(rows) for rows, _, _ in site_blocks(sub, index, curves=True)]
+        assert sizes == [3, 3, 1]
+        assert [len(rows) for rows, _, _ in site_blocks(sub, index)] == [len(sub.assets)]
+
     def test_scenario_blocks_of_one_give_the_same_savings(self, case, index):
         # SiteSavings' blocks of SCENARIO_BLOCK_ELEMENTS (14 asset-options of an hourly year here) against
         # every asset-option billed alone; site S1 has a stepped bank, so the in-place controller runs on
