@@ -174,7 +174,8 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
     above 0 (a quantity with a NaN difference in some interval counts as unchanged, as NaN compares
     false); for finite values, when some value differs. One compiled pass over the block, the pairs
     the ``book`` holds read through it: a pair whose every value is known finite (finite tables and
-    positions, today's row finite) is read only up to its first difference.
+    positions or a finite row of its own, today's row finite) is read only up to its first difference.
+    With a book the arrays may hold today's rows only (option 0).
     """
     p_site, q_site = np.asarray(p_site, dtype=float), np.asarray(q_site, dtype=float)
     n_t = p_site.shape[2]
@@ -186,11 +187,12 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
 
 @numba.njit(nogil=True, cache=True)
 def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - compiled
-    n_o, n_s, n_t = p.shape
+    n_s, n_o = applies.shape
+    n_t = p.shape[2]
     out = np.zeros((n_s, n_o), dtype=np.bool_)
     table, slot, grid_row, offset, finite = book[0], book[2], book[3], book[4], book[13]
     cell_a, position_a, cell_b, position_b = book[5], book[6], book[7], book[8]
-    p_base, p_rise, q_base, q_rise = book[9], book[10], book[11], book[12]
+    p_base, p_rise, q_base, q_rise, own_p, own_q = book[9], book[10], book[11], book[12], book[14], book[15]
     for j in range(n_s):
         today_finite = -1  # unknown, then 0 or 1 (read once per asset, when a pair needs it)
         for o in range(1, n_o):
@@ -207,11 +209,15 @@ def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - co
             if k >= 0 and finite[k] and today_finite == 1:  # every difference finite: the first one decides
                 g, at = grid_row[k], offset[k]
                 for t in range(n_t):  # the values tabulation._fill_pair writes
-                    if slot[k] == 0:
-                        c, x = at + cell_a[g, t], position_a[g, t]
+                    if slot[k] == 2:
+                        v, w = own_p[g, t], own_q[g, t]
                     else:
-                        c, x = at + cell_b[g, t], position_b[g, t]
-                    if p_base[c] + p_rise[c] * x != p[0, j, t] or q_base[c] + q_rise[c] * x != q[0, j, t]:
+                        if slot[k] == 0:
+                            c, x = at + cell_a[g, t], position_a[g, t]
+                        else:
+                            c, x = at + cell_b[g, t], position_b[g, t]
+                        v, w = p_base[c] + p_rise[c] * x, q_base[c] + q_rise[c] * x
+                    if v != p[0, j, t] or w != q[0, j, t]:
                         out[j, o] = True
                         break
                 continue

@@ -784,9 +784,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     evaluated on those assets only and the values written are those of a full run. With
     ``power_only`` only the per-interval ``p_kw`` and ``q_kvar`` are computed (yearly values and flags
     are left at zero or empty), for callers that read nothing else. With ``curves`` the options other
-    than today's that are tabulated are kept as tables in the result's ``curves`` book instead of being
-    interpolated into ``p_kw`` and ``q_kvar``, and an option that does not apply repeats today's row
-    through the book instead of a copy (the values read through the book are the same).
+    than today's are kept in the result's ``curves`` book, as tables where tabulated and as rows of its
+    own elsewhere, and an option that does not apply repeats today's row through the book; ``p_kw``
+    and ``q_kvar`` then hold today's motors only, shape (1, n_assets, n_steps) (the values read through
+    the book are those of a run without it).
     """
     from dataclasses import replace
 
@@ -842,16 +843,20 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             grid_load.controlled = _speed_controlled(arr, grid_load)
         grids["interval"] = (grid, grid_load)
 
+    if curves and (wanted is not None or needed is not None):
+        raise ValueError("curves keeps every option: it does not combine with wanted or needed")
+    # with curves the arrays hold today's motors only: every other option goes to the book
+    n_rows_o = 1 if only_today or curves else n_o
     if buffers is not None:
         # every element read later is written below (today's rows by today's motors; each option's rows by
         # the option or, where it does not apply, by today's values; with ``wanted``, the rows of the
         # options asked for), so reused memory needs no clearing
-        p_kw, q_kvar = buffers.views(1 if only_today else n_o, n_a, n_t)
+        p_kw, q_kvar = buffers.views(n_rows_o, n_a, n_t)
     else:
         # uninitialised memory: every element read later is written below (a zeroed array would cost a
         # page fault and a clearing per page on first touch, several times one pass)
-        p_kw = np.empty((1 if only_today else n_o, n_a, n_t))
-        q_kvar = np.empty((1 if only_today else n_o, n_a, n_t))
+        p_kw = np.empty((n_rows_o, n_a, n_t))
+        q_kvar = np.empty((n_rows_o, n_a, n_t))
     book = tabulation.CurveBook(1 if only_today else n_o, n_a) if curves else None
     energy = np.zeros((n_a, n_o))
     shaft_energy = np.zeros((n_a, n_o))
@@ -882,7 +887,14 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         w = None
         if kind != "interval":
             w = load.weight_h if part_rows is None else load.weight_h[part_rows]
-        if kind == "interval":
+        if book is not None and o > 0:  # the option's own rows, kept by the book
+            if kind == "interval":
+                book.add_rows(o, idx, pt.p_kw, pt.q_kvar)
+            else:
+                shape = (len(idx), n_t)
+                book.add_rows(o, idx, np.broadcast_to(((pt.p_kw * w).sum(axis=1) / year_h)[:, None], shape),
+                              np.broadcast_to(((pt.q_kvar * w).sum(axis=1) / year_h)[:, None], shape))
+        elif kind == "interval":
             at = _as_slice(idx)
             p_kw[o, at] = pt.p_kw
             q_kvar[o, at] = pt.q_kvar

@@ -397,14 +397,15 @@ def _signed_sums(cell, position, hours, moment, rows, base, rise, interval_h, po
 
 
 class CurveBook:
-    """Per-interval rows of two quantities (kW, kVAr) for (option, row) pairs, kept as tables on grids.
+    """Per-interval rows of two quantities (kW, kVAr) for (option, row) pairs, kept compact.
 
     A block of assets under several options has per-interval arrays ``p``, ``q`` of shape
     (n_options, n_rows, n_steps). A pair whose curves are tabulated need not be written there: the book
     keeps its tables and its row of a grid, and :meth:`fill` interpolates the pair when it is read (the
-    values :func:`interpolate_pair` would have written, the same bits). A pair may also stand for
-    another option's row of the same asset (:meth:`repeat`: an option that does not apply repeats
-    today's values); any other pair is read from the arrays themselves.
+    values :func:`interpolate_pair` would have written, the same bits). A pair that cannot be tabulated
+    keeps its own per-interval values in the book (:meth:`add_rows`), so the arrays need no row for it;
+    a pair may also stand for another option's row of the same asset (:meth:`repeat`: an option that
+    does not apply repeats today's values); any other pair is read from the arrays themselves.
 
     Parameters
     ----------
@@ -414,17 +415,20 @@ class CurveBook:
     Notes
     -----
     Grids whose cells are uint8 (at most 256 nodes) and int32 go to two slots, each the rows of its
-    grids stacked (one grid in a slot is used as it is, without a copy). :meth:`arrays` gives what the
-    compiled readers take: (table, source, slot, grid_row, offset, cell_a, position_a, cell_b,
-    position_b, p_base, p_rise, q_base, q_rise, finite), ``finite`` per table entry: whether its
-    tables and its grid row's positions are all finite (then so is every value read through it).
+    grids stacked (one grid in a slot is used as it is, without a copy); the book's own rows are slot 2.
+    :meth:`arrays` gives what the compiled readers take: (table, source, slot, grid_row, offset,
+    cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base, q_rise, finite, own_p, own_q),
+    ``finite`` per entry: whether its tables and its grid row's positions (or its own row) are all
+    finite (then so is every value read through it).
     """
 
     def __init__(self, n_options: int, n_rows: int):
         self.table = np.full((n_options, n_rows), -1, dtype=np.int64)
         self.source = np.repeat(np.arange(n_options, dtype=np.int64)[:, None], n_rows, axis=1)
         self._grids: list[list[Grid]] = [[], []]  # by cell dtype: uint8, int32
-        self._entries: list[tuple] = []  # (slot, grid in slot, grid rows, p_base, p_rise, q_base, q_rise)
+        # (slot, grid in slot, grid rows, p_base, p_rise, q_base, q_rise), or (2, first own row, rows) for own rows
+        self._entries: list[tuple] = []
+        self._own: list[tuple[np.ndarray, np.ndarray]] = []  # (p, q) per add_rows call
         self._n_entries = 0
         self._frozen = None
 
@@ -445,6 +449,16 @@ class CurveBook:
         self._n_entries += len(rows)
         self._frozen = None
 
+    def add_rows(self, option: int, rows: np.ndarray, p_values: np.ndarray, q_values: np.ndarray) -> None:
+        """Pairs (option, rows[i]) read as row i of ``p_values`` and ``q_values`` (len(rows), n_steps)."""
+        rows = np.asarray(rows, dtype=np.intp)
+        own = sum(len(p) for p, _ in self._own)
+        self._own.append((np.ascontiguousarray(p_values, dtype=float), np.ascontiguousarray(q_values, dtype=float)))
+        self._entries.append((2, own, len(rows)))
+        self.table[option, rows] = self._n_entries + np.arange(len(rows))
+        self._n_entries += len(rows)
+        self._frozen = None
+
     def repeat(self, option: int, rows: np.ndarray, from_option: int = 0) -> None:
         """Pairs (option, rows) read as (from_option, rows): its tables, or its rows of the arrays."""
         rows = np.asarray(rows, dtype=np.intp)
@@ -460,7 +474,7 @@ class CurveBook:
         """The book as plain arrays for the compiled readers (see the class notes)."""
         if self._frozen is not None:
             return self._frozen
-        slots, offsets = [], []
+        slots = []
         for s, grids in enumerate(self._grids):
             dtype = np.uint8 if s == 0 else np.int32
             if not grids:
@@ -471,6 +485,13 @@ class CurveBook:
                 starts = np.cumsum([0] + [g.cell.shape[0] for g in grids[:-1]]).tolist()
                 slots.append((np.concatenate([g.cell for g in grids]), np.concatenate([g.position_frac for g in grids]),
                               starts))
+        if not self._own:
+            own_p = own_q = np.zeros((0, 0))
+        elif len(self._own) == 1:
+            own_p, own_q = self._own[0]
+        else:
+            own_p = np.concatenate([p for p, _ in self._own])
+            own_q = np.concatenate([q for _, q in self._own])
         n = self._n_entries
         slot, grid_row, offset = np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, np.int64)
         finite = np.zeros(n, dtype=bool)
@@ -478,6 +499,13 @@ class CurveBook:
         flat: list[list[np.ndarray]] = [[], [], [], []]
         k = at = 0
         for s, g, grid_rows, *tabs in self._entries:
+            if s == 2:  # the book's own rows: n_e = grid_rows of them from row g of own_p / own_q
+                n_e = grid_rows
+                slot[k:k + n_e] = 2
+                grid_row[k:k + n_e] = g + np.arange(n_e)
+                finite[k:k + n_e] = (np.isfinite(own_p[g:g + n_e]).all(axis=1) & np.isfinite(own_q[g:g + n_e]).all(axis=1))
+                k += n_e
+                continue
             n_e, width = tabs[0].shape
             slot[k:k + n_e] = s
             grid_row[k:k + n_e] = slots[s][2][g] + grid_rows
@@ -490,15 +518,15 @@ class CurveBook:
             at += n_e * width
         tables_ = [np.concatenate(f) if f else np.zeros(0) for f in flat]
         self._frozen = (self.table, self.source, slot, grid_row, offset, slots[0][0], slots[0][1], slots[1][0],
-                        slots[1][1], *tables_, finite)
+                        slots[1][1], *tables_, finite, own_p, own_q)
         return self._frozen
 
     def fill(self, option: int, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
              out_q: np.ndarray, out_rows: np.ndarray | None = None) -> None:
         """Write the pairs (option, rows[i]) to rows ``out_rows[i]`` (default i) of ``out_p``, ``out_q``.
 
-        ``p``, ``q`` are the block's arrays (n_options, n_rows, n_steps), read for pairs the book does
-        not hold.
+        ``p``, ``q`` are the block's arrays (n_options or fewer, n_rows, n_steps), read for pairs the book
+        does not hold.
         """
         rows = np.asarray(rows, dtype=np.intp)
         out_rows = np.arange(len(rows), dtype=np.intp) if out_rows is None else np.asarray(out_rows, dtype=np.intp)
@@ -508,21 +536,19 @@ class CurveBook:
 def fill_rows(book: tuple, options: np.ndarray, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
               out_q: np.ndarray, out_rows: np.ndarray) -> None:
     """:meth:`CurveBook.fill` of pairs (options[i], rows[i]) from a book's :meth:`CurveBook.arrays`."""
-    _fill_pairs(*book[:13], np.asarray(options, dtype=np.intp), np.asarray(rows, dtype=np.intp), p, q, out_p, out_q,
+    _fill_pairs(book, np.asarray(options, dtype=np.intp), np.asarray(rows, dtype=np.intp), p, q, out_p, out_q,
                 np.asarray(out_rows, dtype=np.intp))
 
 
 @numba.njit(nogil=True, cache=True)
-def _fill_pairs(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base,
-                q_rise, options, rows, p, q, out_p, out_q, out_rows):  # pragma: no cover - compiled
+def _fill_pairs(book, options, rows, p, q, out_p, out_q, out_rows):  # pragma: no cover - compiled
     for i in range(len(rows)):
-        _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise,
-                   q_base, q_rise, options[i], rows[i], p, q, out_p[out_rows[i]], out_q[out_rows[i]])
+        fill_pair(book, options[i], rows[i], p, q, out_p[out_rows[i]], out_q[out_rows[i]])
 
 
 @numba.njit(nogil=True, cache=True)
 def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base,
-               q_rise, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
+               q_rise, own_p, own_q, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
     """Pair (o, r) into out_p, out_q (n_steps,): interpolated as :func:`_interpolate_two`, or copied."""
     m = out_p.shape[0]
     k = table[o, r]
@@ -538,18 +564,22 @@ def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b
             x = position_a[g, t]
             out_p[t] = p_base[j] + p_rise[j] * x
             out_q[t] = q_base[j] + q_rise[j] * x
-    else:
+    elif slot[k] == 1:
         g, at = grid_row[k], offset[k]
         for t in range(m):
             j = at + cell_b[g, t]
             x = position_b[g, t]
             out_p[t] = p_base[j] + p_rise[j] * x
             out_q[t] = q_base[j] + q_rise[j] * x
+    else:
+        g = grid_row[k]
+        for t in range(m):
+            out_p[t] = own_p[g, t]
+            out_q[t] = own_q[g, t]
 
 
 @numba.njit(nogil=True, cache=True)
 def fill_pair(book, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
     """:func:`_fill_pair` with the book as the tuple :meth:`CurveBook.arrays` (for other compiled passes)."""
     _fill_pair(book[0], book[1], book[2], book[3], book[4], book[5], book[6], book[7], book[8], book[9], book[10],
-               book[11], book[12], o, r, p, q, out_p, out_q)
-
+               book[11], book[12], book[14], book[15], o, r, p, q, out_p, out_q)

@@ -921,6 +921,9 @@ class TestChangedPairs:
         p[4, 1, 11] += 1.0
         if case_ == "nan row":
             q[4, 2, 5] = np.nan
+        # option 4 of assets 1 and 2 once more as the book's own rows (as a block of the analysis keeps
+        # rows it cannot tabulate), with the same values: the same pairs must be found either way
+        own_book_rows = (np.array([1, 2]), p[4, [1, 2]].copy(), q[4, [1, 2]].copy())
         book.add(5, np.array([1, 2]), grid, np.array([1, 2]), tabulation.tables(kw[[1, 2]] * 0.9),
                  tabulation.tables(kvar[[1, 2]]))
         book.repeat(5, np.array([0, 3]))
@@ -931,6 +934,10 @@ class TestChangedPairs:
         js, os_ = _changed_pairs(p, q, applies, book)
         got = list(zip(js.tolist(), os_.tolist()))
         assert got == _reference_pairs(dense_p, dense_q, applies)
+        book.add_rows(4, *own_book_rows)
+        assert book.arrays()[2].tolist().count(2) == 2  # read from the book now, not the arrays
+        js, os_ = _changed_pairs(p, q, applies, book)
+        assert list(zip(js.tolist(), os_.tolist())) == got
         plain = _changed_pairs(dense_p, dense_q, applies)
         assert got == list(zip(plain[0].tolist(), plain[1].tolist()))
         assert (2, 3) not in got and (0, 1) not in got and (1, 4) in got and (0, 2) in got

@@ -328,6 +328,31 @@ class TestCurveBook:
             assert_array_equal(out_p, expected_p[option], err_msg=str(option))
             assert_array_equal(out_q, expected_q[option], err_msg=str(option))
 
+    def test_rows_of_its_own_beside_tables_with_todays_rows_only_in_the_arrays(self):
+        # the arrays hold option 0 only (shape (1, 5, 30)); option 1 keeps rows 0 and 3 as rows of its own
+        # (one per interval, one a constant, e.g. a load-state asset's mean) and row 2 as tables; rows 1
+        # and 4 repeat today's; option 2 keeps two more own rows (a second add_rows call)
+        p, coarse, _ = self._grids()
+        today_p, today_q = p[None].copy(), -p[None].copy()
+        book = tabulation.CurveBook(3, 5)
+        own = np.stack([p[0] * 0.5, np.full(30, 7.25)])
+        book.add_rows(1, np.array([0, 3]), own, -own)
+        kw, kvar = tabulation.tables(coarse.p_grid_kw[[2]] * 2.0), tabulation.tables(coarse.p_grid_kw[[2]])
+        book.add(1, np.array([2]), coarse, np.array([2]), kw, kvar)
+        book.repeat(1, np.array([1, 4]))
+        book.add_rows(2, np.array([4, 1]), np.ones((2, 30)), np.zeros((2, 30)))
+        out_p, out_q = np.full((5, 30), np.nan), np.full((5, 30), np.nan)
+        book.fill(1, np.arange(5), today_p, today_q, out_p, out_q)
+        assert_array_equal(out_p[[0, 3]], own)
+        assert_array_equal(out_q[[0, 3]], -own)
+        assert_array_equal(out_p[[1, 4]], p[[1, 4]])
+        assert_array_equal(out_p[2], tabulation.interpolate_pair(coarse, *kw, *kvar, rows=np.array([2])).a[0])
+        out_p2, out_q2 = np.zeros((2, 30)), np.zeros((2, 30))
+        book.fill(2, np.array([1, 4]), today_p, today_q, out_p2, out_q2)
+        assert (out_p2 == 1.0).all() and (out_q2 == 0.0).all()
+        slot, finite = book.arrays()[2], book.arrays()[13]
+        assert sorted(slot.tolist()) == [0, 2, 2, 2, 2] and finite.all()
+
     def test_several_grids_in_one_slot_and_chosen_output_rows(self):
         # two uint8 grids stacked in one slot; pairs written to chosen rows of the output
         p, coarse, _ = self._grids()
@@ -351,11 +376,12 @@ class TestBlocksReadThroughTheirBook:
               "running_h", "applies")
 
     def test_a_block_read_through_its_book_equals_the_written_block(self, fleet):
-        # site_blocks with curves keeps the tabulated options as tables (nothing written per interval) and
-        # makes options that do not apply repeat today's rows; read through the book, every option's rows
-        # are the bits the written run holds, and the yearly values are the same
+        # site_blocks with curves keeps the tabulated options as tables, the others as rows of the book's
+        # own (its arrays hold today's motors only), and makes options that do not apply repeat today's
+        # rows; read through the book, every option's rows are the bits the written run holds, and the
+        # yearly values are the same
         index = case_index(fleet)
-        held = repeated = 0
+        held = own = repeated = 0
         for site_id, _ in site_partition(fleet):
             one = site_case(fleet, site_id)
             written = [(rows, {name: np.array(getattr(block, name)) for name in ("p_kw", "q_kvar") + self.YEARLY})
@@ -371,11 +397,15 @@ class TestBlocksReadThroughTheirBook:
                     assert_array_equal(p, values["p_kw"][o], err_msg=f"{site_id} option {o}")
                     assert_array_equal(q, values["q_kvar"][o], err_msg=f"{site_id} option {o}")
                     if o:
-                        held += int(book.tabulated(o).sum())
                         repeated += int(((book.source[o] == 0) & ~block.applies[:, o]).sum())
+                assert block.p_kw.shape == (1, n_a, n_t)  # today's motors only; the rest is in the book
+                slots = book.arrays()[2]
+                held += int((slots < 2).sum())
+                own += int((slots == 2).sum())
                 for name in self.YEARLY:
                     assert_array_equal(getattr(block, name), values[name], err_msg=name)
-        assert held > 0 and repeated > 0  # both kinds of pair were read through the book
+        # every kind of pair was read through the book: tables, rows of its own, today's repeated
+        assert held > 0 and own > 0 and repeated > 0
 
     def test_site_physics_through_the_book_equals_the_written_arrays(self, fleet):
         # the physics path (site_blocks with curves, SiteSavings reading the book, the fleet's arrays filled
