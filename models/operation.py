@@ -968,15 +968,36 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if ok[i]:
                 flags.append({"asset_id": asset_ids[rows_[sub[i]]], "option_id": option_ids[o], "flag": text})
 
+    def by_parts(o: int, option: Mapping, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
+                 load: _Load, follows_site: bool = False) -> None:
+        """Evaluate an option per interval (or load state) on the rows ``sub`` of a group and store it, in
+        parts of at most :data:`CHUNK_ELEMENTS` asset-steps (the models' temporaries stay bounded whatever
+        the block's size; every model works element by element, so the values are those of one part).
+        With ``follows_site`` each part gets the site meter without its own assets (wound-field machines).
+        """
+        step = max(1, CHUNK_ELEMENTS // max(load.p_ref_kw.shape[1], 1))
+        for start in range(0, len(sub), step):
+            sel = np.arange(start, min(start + step, len(sub)))
+            whole = len(sel) == len(sub)
+            sub_c = sub[sel]
+            load_c = load.rows(sub_c)
+            site_other = None
+            if follows_site:
+                idx = rows_[sub_c]
+                site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
+                                         q_kvar[0, idx], index)
+            pt = _evaluate(option, arr_s if whole else _take(arr_s, sel),
+                           existing_s if whole else _take_params(existing_s, sel), load_c, site_other)
+            store(o, kind, rows_, sub_c, pt, load_c)
+
     def run(o: int, option: Mapping, kind: str, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s,
-            load: _Load, site_other=None) -> None:
+            load: _Load, follows_site: bool = False) -> None:
         """Evaluate an option on the rows ``sub`` of a group (on their grid where there is one) and store it.
 
         ``load`` is the whole group's: its per-interval rows are sliced only where they are evaluated."""
         tab = grids.get(kind)
         if tab is None or option["technology"] == "wound_field":  # a wound-field machine may follow the site
-            load_s = load.rows(sub)
-            store(o, kind, rows_, sub, _evaluate(option, arr_s, existing_s, load_s, site_other), load_s)
+            by_parts(o, option, kind, rows_, sub, arr_s, existing_s, load, follows_site)
             return
         grid, grid_load = tab
         pt = _evaluate(option, arr_s, existing_s, grid_load.rows(sub))
@@ -1005,8 +1026,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 return
             still = np.flatnonzero(~ok_fine)
             bad = bad[still]
-            load_b, arr_b, existing_b = load_b.rows(still), _take(arr_b, still), _take_params(existing_b, still)
-        store(o, kind, rows_, sub[bad], _evaluate(option, arr_b, existing_b, load_b), load_b)
+            arr_b, existing_b = _take(arr_b, still), _take_params(existing_b, still)
+        by_parts(o, option, kind, rows_, sub[bad], arr_b, existing_b, load)
 
     # today's motors first
     for kind, rows_, arr, existing, load in groups:
@@ -1037,12 +1058,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 continue
             arr_s = _take(arr, sub)
             existing_s = _take_params(existing, sub)
-            site_other = None
-            if option["technology"] == "wound_field" and kind == "interval":
-                idx = rows_[sub]
-                site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
-                                         q_kvar[0, idx], index)
-            run(o, option, kind, rows_, sub, arr_s, existing_s, load, site_other)
+            run(o, option, kind, rows_, sub, arr_s, existing_s, load,
+                follows_site=option["technology"] == "wound_field" and kind == "interval")
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
     # options that do not apply repeat today's values

@@ -556,6 +556,30 @@ class TestReusedBlockBuffers:
         assert sizes == [3, 3, 1]
         assert [len(rows) for rows, _, _ in site_blocks(sub, index)] == [len(sub.assets)]
 
+    def test_per_interval_models_run_in_bounded_parts(self, case, index, monkeypatch):
+        # a block larger than CHUNK_ELEMENTS (as the curve blocks are) evaluates its per-interval models in
+        # parts of at most that many asset-steps, here two assets (every option per interval, the grid of
+        # loads switched off; the wound-field machine on the 630 kW compressor follows the site in its
+        # part): the same bits and flags as one part
+        monkeypatch.setattr(operation, "TABULATE", False)
+        sub = site_case(case, "S1")
+        whole = operate_site(sub, index, chunk_assets=10)
+        monkeypatch.setattr(operation, "CHUNK_ELEMENTS", 2 * len(index))
+        seen = []
+        real = operation._evaluate
+
+        def spy(option, arr, existing, load, site_other=None):
+            if load.p_ref_kw.shape[1] == len(index):  # per interval (not the load-state assets)
+                seen.append(load.p_ref_kw.shape[0])
+            return real(option, arr, existing, load, site_other)
+
+        monkeypatch.setattr(operation, "_evaluate", spy)
+        parts = operate_site(sub, index, chunk_assets=10)
+        assert seen and max(seen) == 2 and 1 in seen  # 5 interval assets: parts of 2, 2 and 1
+        for name in PER_INTERVAL + YEARLY:
+            assert_array_equal(getattr(parts, name), getattr(whole, name), err_msg=name)
+        assert _flag_set(parts.flags) == _flag_set(whole.flags)
+
     def test_scenario_blocks_of_one_give_the_same_savings(self, case, index):
         # SiteSavings' blocks of SCENARIO_BLOCK_ELEMENTS (14 asset-options of an hourly year here) against
         # every asset-option billed alone; site S1 has a stepped bank, so the in-place controller runs on
