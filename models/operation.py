@@ -766,7 +766,8 @@ def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
 def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=None,
                    only_today: bool = False, wanted=None, buffers: "_BlockBuffers | None" = None,
                    today: _TodayOfBlock | None = None, site_constants: "_SiteConstants | None" = None,
-                   needed: dict | None = None, power_only: bool = False, curves: bool = False) -> OperatingResult:
+                   needed: dict | None = None, power_only: bool = False, curves: bool = False,
+                   today_into: tuple[np.ndarray, np.ndarray] | None = None) -> OperatingResult:
     """Run the options on a block of assets of a one-site case.
 
     ``site_totals`` = (p_kw, q_kvar) of today's motors over the whole site (n_steps,) each; default the
@@ -787,7 +788,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     than today's are kept in the result's ``curves`` book, as tables where tabulated and as rows of its
     own elsewhere, and an option that does not apply repeats today's row through the book; ``p_kw``
     and ``q_kvar`` then hold today's motors only, shape (1, n_assets, n_steps) (the values read through
-    the book are those of a run without it).
+    the book are those of a run without it). With ``curves`` and ``today_into`` ((n_assets, n_steps)
+    float64 arrays, plain numpy) today's motors are written straight there: the result's ``p_kw`` and
+    ``q_kvar`` are views of them.
     """
     from dataclasses import replace
 
@@ -847,7 +850,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         raise ValueError("curves keeps every option: it does not combine with wanted or needed")
     # with curves the arrays hold today's motors only: every other option goes to the book
     n_rows_o = 1 if only_today or curves else n_o
-    if buffers is not None:
+    if curves and today_into is not None:  # today's rows straight into the caller's arrays (no copy)
+        p_kw, q_kvar = today_into[0][None], today_into[1][None]
+    elif buffers is not None:
         # every element read later is written below (today's rows by today's motors; each option's rows by
         # the option or, where it does not apply, by today's values; with ``wanted``, the rows of the
         # options asked for), so reused memory needs no clearing
@@ -1216,8 +1221,11 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     blocks = asset_blocks(n, len(index), chunk_assets)
     buffers = buffers if buffers is not None else _BlockBuffers()
     if len(blocks) <= 1:
-        part = _operate_block(case, index, np.arange(n), buffers=buffers, curves=curves)
-        if today_out is not None:
+        direct = curves and today_out is not None and all(type(a) is np.ndarray and a.dtype == np.float64
+                                                          and a.flags.c_contiguous for a in today_out)
+        part = _operate_block(case, index, np.arange(n), buffers=buffers, curves=curves,
+                              today_into=today_out if direct else None)
+        if today_out is not None and not direct:
             today_out[0][...], today_out[1][...] = part.p_kw[0], part.q_kvar[0]
         yield np.arange(n), part, (part.p_kw[0].sum(axis=0), part.q_kvar[0].sum(axis=0))
         return
