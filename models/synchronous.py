@@ -1243,11 +1243,67 @@ def _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar
     return p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f, p_fcu
 
 
+@numba.njit(error_model="numpy", cache=True)
+def _wfsm_start(p_raw, site_p, site_q, fixed, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set, a, s_max2, v3,
+                r, x, inv3v, k_lin, r_f, inv_eta_x):  # pragma: no cover - compiled
+    """The fixed point's starting values for one element of :func:`_wfsm_kernel`: (pm, p_st, p_exc)."""
+    p = p_raw * 1e3
+    pm = p + fixed
+    if all_pf:
+        q0 = tan_set * pm
+    elif all_kvar:
+        q0 = q_set + 0.0 * pm
+    elif is_pf:
+        q0 = tan_set * pm
+    elif is_kvar:
+        q0 = q_set
+    else:
+        q0 = _mn((site_p + pm) * tan_t - site_q, 0.0)
+    p_st = pm + a * _mn(pm * pm + q0 * q0, s_max2)
+    re3 = v3 - r * p_st - x * q0
+    im3 = x * p_st - r * q0
+    i_f = np.sqrt(re3 * re3 + im3 * im3) * inv3v * k_lin
+    p_exc = i_f * i_f * r_f * inv_eta_x
+    return pm, p_st, p_exc
+
+
+@numba.njit(error_model="numpy", cache=True)
+def _wfsm_finish(floats, flags, i, t, p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
+                 p_fcu, s_max, inv3v, r, limit_rtol):  # pragma: no cover - compiled
+    """Write one element's outputs of :func:`_wfsm_kernel` (after the fixed point's three steps)."""
+    tol = limit_rtol * _mx(s_max, abs(q_des))
+    low = q_des < lo - tol
+    high = q_des > hi + tol
+    i_line = np.sqrt(p_st * p_st + q * q) * inv3v
+    k = 1e-3
+    floats[0, i, t] = (p_st + p_exc) * k
+    floats[1, i, t] = q * k
+    floats[2, i, t] = i_line
+    floats[3, i, t] = i_f
+    floats[4, i, t] = emf
+    floats[5, i, t] = re3  # the load angle is taken from re3 and im3 in numpy afterwards
+    floats[6, i, t] = q_des * k
+    floats[7, i, t] = (3.0 * i_line * i_line * r) * k
+    floats[8, i, t] = p_fcu * k
+    floats[9, i, t] = (p_exc - p_fcu) * k
+    floats[10, i, t] = im3
+    flags[0, i, t] = q < 0.0
+    flags[1, i, t] = (low and (-q_i >= q_lo_f)) or (high and (q_i <= q_hi_d))
+    flags[2, i, t] = low and (q_lo_f > -q_i)
+    flags[3, i, t] = high and (q_hi_d < q_i)
+    flags[4, i, t] = (p_st > s_max) or (h2 < 0.0) or (lo > hi + tol) or (disc < 0.0)
+
+
 @numba.njit(nogil=True, cache=True, error_model="numpy")
 def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_max_, s_max2_, a_,
                cq_, c_re_, rad2_, qd0_, qd1_, v3_, inv3v_, v_r_, tan_set_, tan_t_, is_pf_, is_kvar_, q_set_, occ_linear,
                all_pf, all_kvar, limit_rtol, floats, flags):  # pragma: no cover - compiled
-    """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element, row by row."""
+    """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element, row by row.
+
+    Two intervals are worked side by side, their steps interleaved: each interval's fixed point is a
+    chain of square roots and divisions that wait on each other, and two independent chains keep the
+    processor busy while one waits (the same operations per element, so the same bits).
+    """
     n_i, n_t = p_.shape
     for i in range(n_i):
         fixed, a, r, x, v3, inv3v = fixed_[i], a_[i], r_[i], x_[i], v3_[i], inv3v_[i]
@@ -1259,61 +1315,39 @@ def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv
         s_sat = sat if sat > 1.0 else 2.0
         e_max = s_sat * v_r / (s_sat - 1.0)
         i0 = i_ag * e_max / v_r
-        for t in range(n_t):
-            p = p_[i, t] * 1e3
-            site_p = site_p_[i, t] if site_varies else site_p_[i, 0]
-            site_q = site_q_[i, t] if site_varies else site_q_[i, 0]
-            pm = p + fixed
-            if all_pf:
-                q0 = tan_set * pm
-            elif all_kvar:
-                q0 = q_set + 0.0 * pm
-            elif is_pf:
-                q0 = tan_set * pm
-            elif is_kvar:
-                q0 = q_set
-            else:
-                q0 = _mn((site_p + pm) * tan_t - site_q, 0.0)
-            p_st = pm + a * _mn(pm * pm + q0 * q0, s_max2)
-            re3 = v3 - r * p_st - x * q0
-            im3 = x * p_st - r * q0
-            i_f = np.sqrt(re3 * re3 + im3 * im3) * inv3v * k_lin
-            p_exc = i_f * i_f * r_f * inv_eta_x
-            # the fixed point's steps, written out (a loop inside the interval loop would keep the
-            # compiler from running several intervals side by side)
-            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
-             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
-                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
-                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
-            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
-             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
-                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
-                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
-            (p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf, i_f,
-             p_fcu) = _wfsm_step(p_st, p_exc, pm, site_p, site_q, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
-                                 q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat,
-                                 i0, e_max, i_ag, v_r, r_f, inv_eta_x)
-            tol = limit_rtol * _mx(s_max, abs(q_des))
-            low = q_des < lo - tol
-            high = q_des > hi + tol
-            i_line = np.sqrt(p_st * p_st + q * q) * inv3v
-            k = 1e-3
-            floats[0, i, t] = (p_st + p_exc) * k
-            floats[1, i, t] = q * k
-            floats[2, i, t] = i_line
-            floats[3, i, t] = i_f
-            floats[4, i, t] = emf
-            floats[5, i, t] = re3  # the load angle is taken from re3 and im3 in numpy afterwards
-            floats[6, i, t] = q_des * k
-            floats[7, i, t] = (3.0 * i_line * i_line * r) * k
-            floats[8, i, t] = p_fcu * k
-            floats[9, i, t] = (p_exc - p_fcu) * k
-            floats[10, i, t] = im3
-            flags[0, i, t] = q < 0.0
-            flags[1, i, t] = (low and (-q_i >= q_lo_f)) or (high and (q_i <= q_hi_d))
-            flags[2, i, t] = low and (q_lo_f > -q_i)
-            flags[3, i, t] = high and (q_hi_d < q_i)
-            flags[4, i, t] = (p_st > s_max) or (h2 < 0.0) or (lo > hi + tol) or (disc < 0.0)
+        t = 0
+        while t < n_t:
+            u = t + 1 if t + 1 < n_t else t  # the second interval (the last one twice at an odd end)
+            sp_a = site_p_[i, t] if site_varies else site_p_[i, 0]
+            sq_a = site_q_[i, t] if site_varies else site_q_[i, 0]
+            sp_b = site_p_[i, u] if site_varies else site_p_[i, 0]
+            sq_b = site_q_[i, u] if site_varies else site_q_[i, 0]
+            pm_a, p_st_a, p_exc_a = _wfsm_start(p_[i, t], sp_a, sq_a, fixed, all_pf, all_kvar, is_pf, is_kvar, tan_set,
+                                                tan_t, q_set, a, s_max2, v3, r, x, inv3v, k_lin, r_f, inv_eta_x)
+            pm_b, p_st_b, p_exc_b = _wfsm_start(p_[i, u], sp_b, sq_b, fixed, all_pf, all_kvar, is_pf, is_kvar, tan_set,
+                                                tan_t, q_set, a, s_max2, v3, r, x, inv3v, k_lin, r_f, inv_eta_x)
+            # the fixed point's three steps, written out and interleaved
+            sa = _wfsm_step(p_st_a, p_exc_a, pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            sb = _wfsm_step(p_st_b, p_exc_b, pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            sa = _wfsm_step(sa[0], sa[1], pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            sb = _wfsm_step(sb[0], sb[1], pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            sa = _wfsm_step(sa[0], sa[1], pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            sb = _wfsm_step(sb[0], sb[1], pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
+                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
+                            i_ag, v_r, r_f, inv_eta_x)
+            _wfsm_finish(floats, flags, i, t, *sa, s_max, inv3v, r, limit_rtol)
+            _wfsm_finish(floats, flags, i, u, *sb, s_max, inv3v, r, limit_rtol)
+            t += 2
 
 
 @dataclass(frozen=True)

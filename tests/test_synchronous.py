@@ -647,13 +647,14 @@ class TestWfsmRatedMachine:
 class TestWfsmCompiledPass:
     """The compiled wound-field pass gives the numpy kernel's values bit for bit (the kernel is the rule)."""
 
+    @pytest.mark.parametrize("t", [300, 301, 1])  # the pass works two intervals at a time: odd ends too
     @pytest.mark.parametrize("sat", [1.0, 1.25])
     @pytest.mark.parametrize("mode", ["power_factor", "kvar", "follow_site", "mixed"])
-    def test_same_bits_as_the_numpy_kernel(self, monkeypatch, mode, sat):
+    def test_same_bits_as_the_numpy_kernel(self, monkeypatch, mode, sat, t):
         from models.drives import _blockwise
 
         rng = np.random.default_rng(11)
-        n, t = 6, 300
+        n = 6
         rated = rng.uniform(500.0, 3000.0, n)
         params = sm.wfsm_parameters_from_rating(rated, np.full(n, 6600.0), rated_efficiency_frac=0.965,
                                                 rated_power_factor=0.9, saturation_factor=sat)
@@ -667,7 +668,9 @@ class TestWfsmCompiledPass:
         reference = sm.wfsm_operating_point(load, **params, **kwargs)
         for name in sm._WFSM_FLOAT_OUTPUTS + sm._WFSM_BOOL_OUTPUTS:
             np.testing.assert_array_equal(getattr(compiled, name), getattr(reference, name), err_msg=name)
-        assert reference.limited_by_stator_current.any() or reference.limited_by_field_current.any()
+        if t > 1:
+            assert reference.limited_by_stator_current.any() or reference.limited_by_field_current.any()
+
 
 class TestWfsmInvalidInput:
     def test_unknown_mode_raises(self):
