@@ -94,10 +94,10 @@ class OperatingResult:
     flags : pandas.DataFrame
         asset_id, option_id, flag: cautions (starting screen, overload, excitation limits, data notes).
     curves : models.tabulation.CurveBook, optional
-        A block's options kept as tables on grids (:func:`site_blocks` with ``curves``): the pairs
-        (option, asset) it holds, or makes repeat today's row, are not written in ``p_kw`` and
-        ``q_kvar``; read every option's rows through it (:meth:`~models.tabulation.CurveBook.fill`).
-        None: the arrays hold every row.
+        A block's options other than today's, kept compact (:func:`site_blocks` with ``curves``): then
+        ``p_kw`` and ``q_kvar`` hold today's motors only, shape (1, n_assets, n_steps), and every
+        option's rows are read through the book (:meth:`~models.tabulation.CurveBook.fill`). None: the
+        arrays hold every row.
     """
 
     index: pd.DatetimeIndex

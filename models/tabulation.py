@@ -558,24 +558,24 @@ def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b
             out_p[t] = p[s, r, t]
             out_q[t] = q[s, r, t]
     elif slot[k] == 0:
-        g, at = grid_row[k], offset[k]
-        for t in range(m):
-            j = at + cell_a[g, t]
-            x = position_a[g, t]
-            out_p[t] = p_base[j] + p_rise[j] * x
-            out_q[t] = q_base[j] + q_rise[j] * x
+        _interpolate_row(cell_a, position_a, grid_row[k], offset[k], p_base, p_rise, q_base, q_rise, out_p, out_q)
     elif slot[k] == 1:
-        g, at = grid_row[k], offset[k]
-        for t in range(m):
-            j = at + cell_b[g, t]
-            x = position_b[g, t]
-            out_p[t] = p_base[j] + p_rise[j] * x
-            out_q[t] = q_base[j] + q_rise[j] * x
+        _interpolate_row(cell_b, position_b, grid_row[k], offset[k], p_base, p_rise, q_base, q_rise, out_p, out_q)
     else:
         g = grid_row[k]
         for t in range(m):
             out_p[t] = own_p[g, t]
             out_q[t] = own_q[g, t]
+
+
+@numba.njit(nogil=True, cache=True)
+def _interpolate_row(cell, position, g, at, p_base, p_rise, q_base, q_rise, out_p, out_q):  # pragma: no cover - compiled
+    """Grid row g's intervals interpolated on tables flattened from ``at`` (as :func:`_interpolate_two`)."""
+    for t in range(out_p.shape[0]):
+        j = at + cell[g, t]
+        x = position[g, t]
+        out_p[t] = p_base[j] + p_rise[j] * x
+        out_q[t] = q_base[j] + q_rise[j] * x
 
 
 @numba.njit(nogil=True, cache=True)
