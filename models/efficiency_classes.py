@@ -10,6 +10,8 @@ loss ratio and are marked as derived.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 import pandas as pd
 
@@ -27,21 +29,28 @@ MAX_CLASS_KW = 1000.0
 MIN_CLASS_KW = 0.12
 
 
-def _formula_50hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: str) -> np.ndarray:
-    """Evaluate the IEC 60034-30-1 cubic for one class (NaN where no coefficients exist)."""
+@lru_cache(maxsize=None)
+def _coefficients_50hz(efficiency_class: str) -> tuple[tuple[float, ...], ...]:
+    """The IEC 60034-30-1 cubic's rows for one class: (min_rated_p_kw, poles, a, b, c, d) each, read once."""
     table = io.read_reference("iec_60034_30_1_coefficients_50hz")
     table = table[table["efficiency_class"] == efficiency_class]
+    return tuple((row.min_rated_p_kw, row.poles, row.coef_a, row.coef_b, row.coef_c, row.coef_d)
+                 for row in table.itertuples(index=False))
+
+
+def _formula_50hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: str) -> np.ndarray:
+    """Evaluate the IEC 60034-30-1 cubic for one class (NaN where no coefficients exist)."""
     p = np.clip(rated_p_kw, MIN_CLASS_KW, FLAT_ABOVE_KW)
     out = np.full(np.broadcast(p, poles).shape, np.nan)
     p_b, poles_b = np.broadcast_arrays(p, poles)
-    for row in table.itertuples(index=False):
-        if row.min_rated_p_kw >= 0.75:
+    for min_rated_p_kw, row_poles, coef_a, coef_b, coef_c, coef_d in _coefficients_50hz(efficiency_class):
+        if min_rated_p_kw >= 0.75:
             band = p_b >= 0.75
         else:
             band = p_b < 0.75
-        mask = band & (poles_b == row.poles)
+        mask = band & (poles_b == row_poles)
         x = np.log10(p_b[mask])
-        out[mask] = ((row.coef_a * x + row.coef_b) * x + row.coef_c) * x + row.coef_d
+        out[mask] = ((coef_a * x + coef_b) * x + coef_c) * x + coef_d
     return out
 
 

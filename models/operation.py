@@ -1379,10 +1379,11 @@ class _SiteRecompute:
     """Recomputes per-interval power of some options for some assets, block by block, on demand.
 
     Threads may ask for different sites at once: each keeps its own cache and its own block memory,
-    reused from block to block (fresh memory costs page faults on first touch). Each block of a site is run
-    again exactly as in the full run (same assets, same site totals of
-    today's motors), for the options asked for only and for their per-interval power only, so the values
-    are the full run's; today's motors are taken from the full run's arrays, not run again. The latest
+    reused from block to block (fresh memory costs page faults on first touch). A site is run again in
+    blocks (of :data:`CURVE_CHUNK_ELEMENTS` asset-steps unless the run's block size was set) with the
+    full run's site totals of today's motors, for the options and assets asked for only and for their
+    per-interval power only; every model works element by element, so the values are the full run's.
+    Today's motors are taken from the full run's arrays, not run again. The latest
     block's result is kept, and so are both quantities of the latest request: asking for the kVAr of
     the rows whose kW were just asked for (a site meter takes both) runs no block again.
     """
@@ -1431,7 +1432,10 @@ class _SiteRecompute:
             return self._request[1 + quantity]
         self._request = None
         site_id, rows = self.partition[k]
-        blocks = asset_blocks(len(rows), len(self.index), self.chunk_assets)
+        # blocks of the curve blocks' size by default: every model works element by element, so any
+        # block of the same site gives the full run's values (and larger blocks spend less per call)
+        chunk = self.chunk_assets if self.chunk_assets is not None else max(1, CURVE_CHUNK_ELEMENTS // len(self.index))
+        blocks = asset_blocks(len(rows), len(self.index), chunk)
         totals = None
         if len(blocks) > 1:
             totals = (self.today_p[rows].sum(axis=0), self.today_q[rows].sum(axis=0))
