@@ -480,6 +480,9 @@ class SiteSavings:
         if self.q_matters:
             self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
             self.q_base_total = float(self.q_biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0].sum())
+            # the reactive-only bills' kW meter, the same for every scenario (read only by the bills)
+            self.q_meter_p = np.array(np.atleast_2d(p0_kw), dtype=float)
+            self.q_meter_p += self.q_biller.base_p
 
     def add(self, rows: np.ndarray, p_block: np.ndarray, q_block: np.ndarray, applies: np.ndarray,
             curves: tabulation.CurveBook | None = None) -> None:
@@ -501,9 +504,7 @@ class SiteSavings:
             self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario (scenario_totals with kw_changes False)
-                p_today = np.array(np.atleast_2d(p0), dtype=float)
-                p_today += self.q_biller.base_p
-                _, q_amounts = self.q_biller._priced(p_today, q_copy, check_p=True, check_q=not finite[1])
+                _, q_amounts = self.q_biller._priced(self.q_meter_p, q_copy, check_p=True, check_q=not finite[1])
                 self.reactive[rows[j], o] = self.q_base_total - q_amounts.sum(axis=1)
         self.pairs.append((rows[js], os_))
 
