@@ -1300,11 +1300,14 @@ def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv
                all_pf, all_kvar, limit_rtol, floats, flags):  # pragma: no cover - compiled
     """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element, row by row.
 
-    Two intervals are worked side by side, their steps interleaved: each interval's fixed point is a
-    chain of square roots and divisions that wait on each other, and two independent chains keep the
-    processor busy while one waits (the same operations per element, so the same bits).
+    Each row is worked a step at a time over all its intervals (start, the fixed point's steps, then the
+    outputs), the state held in scratch rows that stay in cache: each loop is a plain element-wise loop
+    that the compiler can run on several intervals at once, and every interval still does the kernel's
+    operations in its order, so the values are the same bit for bit.
     """
     n_i, n_t = p_.shape
+    pm, p_st, p_exc = np.empty(n_t), np.empty(n_t), np.empty(n_t)
+    sp, sq = np.empty(n_t), np.empty(n_t)
     for i in range(n_i):
         fixed, a, r, x, v3, inv3v = fixed_[i], a_[i], r_[i], x_[i], v3_[i], inv3v_[i]
         i_ag, v_r, sat, r_f, inv_eta_x = i_ag_[i], v_r_[i], sat_[i], r_f_[i], inv_eta_x_[i]
@@ -1315,39 +1318,24 @@ def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv
         s_sat = sat if sat > 1.0 else 2.0
         e_max = s_sat * v_r / (s_sat - 1.0)
         i0 = i_ag * e_max / v_r
-        t = 0
-        while t < n_t:
-            u = t + 1 if t + 1 < n_t else t  # the second interval (the last one twice at an odd end)
-            sp_a = site_p_[i, t] if site_varies else site_p_[i, 0]
-            sq_a = site_q_[i, t] if site_varies else site_q_[i, 0]
-            sp_b = site_p_[i, u] if site_varies else site_p_[i, 0]
-            sq_b = site_q_[i, u] if site_varies else site_q_[i, 0]
-            pm_a, p_st_a, p_exc_a = _wfsm_start(p_[i, t], sp_a, sq_a, fixed, all_pf, all_kvar, is_pf, is_kvar, tan_set,
-                                                tan_t, q_set, a, s_max2, v3, r, x, inv3v, k_lin, r_f, inv_eta_x)
-            pm_b, p_st_b, p_exc_b = _wfsm_start(p_[i, u], sp_b, sq_b, fixed, all_pf, all_kvar, is_pf, is_kvar, tan_set,
-                                                tan_t, q_set, a, s_max2, v3, r, x, inv3v, k_lin, r_f, inv_eta_x)
-            # the fixed point's three steps, written out and interleaved
-            sa = _wfsm_step(p_st_a, p_exc_a, pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            sb = _wfsm_step(p_st_b, p_exc_b, pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            sa = _wfsm_step(sa[0], sa[1], pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            sb = _wfsm_step(sb[0], sb[1], pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            sa = _wfsm_step(sa[0], sa[1], pm_a, sp_a, sq_a, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            sb = _wfsm_step(sb[0], sb[1], pm_b, sp_b, sq_b, all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t, q_set,
-                            s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0, e_max,
-                            i_ag, v_r, r_f, inv_eta_x)
-            _wfsm_finish(floats, flags, i, t, *sa, s_max, inv3v, r, limit_rtol)
-            _wfsm_finish(floats, flags, i, u, *sb, s_max, inv3v, r, limit_rtol)
-            t += 2
+        for t in range(n_t):
+            sp[t] = site_p_[i, t] if site_varies else site_p_[i, 0]
+            sq[t] = site_q_[i, t] if site_varies else site_q_[i, 0]
+        for t in range(n_t):
+            pm[t], p_st[t], p_exc[t] = _wfsm_start(p_[i, t], sp[t], sq[t], fixed, all_pf, all_kvar, is_pf, is_kvar,
+                                                   tan_set, tan_t, q_set, a, s_max2, v3, r, x, inv3v, k_lin, r_f,
+                                                   inv_eta_x)
+        for _ in range(2):  # the fixed point's first two steps
+            for t in range(n_t):
+                s = _wfsm_step(p_st[t], p_exc[t], pm[t], sp[t], sq[t], all_pf, all_kvar, is_pf, is_kvar, tan_set,
+                               tan_t, q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin,
+                               sat, i0, e_max, i_ag, v_r, r_f, inv_eta_x)
+                p_st[t], p_exc[t] = s[0], s[1]
+        for t in range(n_t):  # the third step, and the outputs
+            s = _wfsm_step(p_st[t], p_exc[t], pm[t], sp[t], sq[t], all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
+                           q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0,
+                           e_max, i_ag, v_r, r_f, inv_eta_x)
+            _wfsm_finish(floats, flags, i, t, *s, s_max, inv3v, r, limit_rtol)
 
 
 @dataclass(frozen=True)

@@ -33,6 +33,9 @@ import numpy as np
 #: load on a drive.
 GRID_POWER = 1.0 / 3.0
 
+#: Elements of the scratch block :func:`locate` takes the cube roots into (about 2 MB of float64).
+LOCATE_BLOCK_ELEMENTS = 2**18
+
 
 @dataclass(frozen=True)
 class Grid:
@@ -98,23 +101,26 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
     if n_nodes < 2:
         raise ValueError("a grid needs at least two nodes")
     n, m = p_kw.shape
-    u = np.cbrt(p_kw)
+    p_kw = np.ascontiguousarray(p_kw, dtype=float)
     running = np.ascontiguousarray(running, dtype=bool)
-    u_lo, u_hi = _span(u, running)  # = where(running, u, +-inf).min / .max per row
-    none = ~np.isfinite(u_lo)
-    u_lo = np.where(none, 0.0, u_lo)
-    u_hi = np.where(none, 0.0, u_hi)
+    cell = np.empty((n, m), dtype=np.uint8 if n_nodes <= 256 else np.int32)
+    position = np.empty((n, m))
+    count = np.zeros((n, n_nodes))
+    moment = np.zeros((n, n_nodes))
+    u_lo, u_hi = np.empty(n), np.empty(n)
+    # u = cbrt(p) by numpy's vectorised loop, a few rows at a time into a scratch block that stays in cache
+    # while the compiled pass places those rows
+    block = max(1, LOCATE_BLOCK_ELEMENTS // max(m, 1))
+    u = np.empty((min(block, n), m))
+    for start in range(0, n, block):
+        stop = min(start + block, n)
+        np.cbrt(p_kw[start:stop], out=u[:stop - start])
+        _locate_rows(u[:stop - start], running, start, n_nodes, u_lo, u_hi, cell, position, count, moment)
     step = (u_hi - u_lo) / (n_nodes - 1)
     cols = np.arange(2 * n_nodes - 1) / 2.0
     u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
     u_grid[:, -1] = u_hi  # the last node is the largest load itself
     p_grid = u_grid ** 3
-    safe = np.where(step > 0, step, 1.0)
-    cell = np.empty((n, m), dtype=np.uint8 if n_nodes <= 256 else np.int32)
-    position = np.empty((n, m))
-    count = np.zeros((n, n_nodes))
-    moment = np.zeros((n, n_nodes))
-    _place(u, running, u_lo, safe, n_nodes, cell, position, count, moment)
     hours = count * float(interval_h)
     moment *= float(interval_h)
     hours[:, -1] = 0.0
@@ -122,37 +128,35 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
 
 
 @numba.njit(nogil=True, cache=True)
-def _span(u, running):  # pragma: no cover - compiled
-    """Smallest and largest u per row where running (+inf, -inf for a row that never runs)."""
-    n, m = u.shape
-    lo = np.full(n, np.inf)
-    hi = np.full(n, -np.inf)
-    for i in range(n):
-        a, b = np.inf, -np.inf
-        for t in range(m):
-            if running[i, t]:
-                v = u[i, t]
-                a = min(a, v)
-                b = max(b, v)
-        lo[i], hi[i] = a, b
-    return lo, hi
+def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, moment):  # pragma: no cover - compiled
+    """:func:`locate`'s placing of the rows ``row0 ..`` whose u = cbrt(p) is ``u``: each row's span, then
+    every interval's cell.
 
-
-@numba.njit(nogil=True, cache=True)
-def _place(u, running, u_lo, safe, n_nodes, cell, position, count, moment):  # pragma: no cover - compiled
-    """Cell and position of every interval, and each cell's count and summed position, in one pass.
-
-    Per running interval, as numpy would: x = clip((u - u_lo) / safe, 0, n_nodes - 1),
-    j = min(int(x), n_nodes - 2), position x - j; elsewhere the zero cell (last) at position 0. Counts and
-    positions are summed interval by interval in order, as ``numpy.bincount`` does.
+    Per row, as the numpy expressions would: u_lo, u_hi the smallest and largest u where running (0 and 0
+    for a row that never runs); safe = (u_hi - u_lo) / (n_nodes - 1), or 1 where that is not > 0. Per running
+    interval x = clip((u - u_lo) / safe, 0, n_nodes - 1), j = min(int(x), n_nodes - 2), position
+    x - j; elsewhere the zero cell (last) at position 0. Counts and positions are summed interval by
+    interval in order, as ``numpy.bincount`` does.
     """
     n, m = u.shape
     top = n_nodes - 1
-    for i in range(n):
-        lo, width = u_lo[i], safe[i]
+    for k in range(n):
+        i = row0 + k
+        lo, hi = np.inf, -np.inf
         for t in range(m):
             if running[i, t]:
-                x = (u[i, t] - lo) / width
+                v = u[k, t]
+                lo = min(lo, v)
+                hi = max(hi, v)
+        if not np.isfinite(lo):
+            lo, hi = 0.0, 0.0
+        u_lo[i], u_hi[i] = lo, hi
+        width = (hi - lo) / (n_nodes - 1)
+        if not width > 0.0:
+            width = 1.0
+        for t in range(m):
+            if running[i, t]:
+                x = (u[k, t] - lo) / width
                 x = min(max(x, 0.0), float(top))
                 j = min(int(x), n_nodes - 2)
                 x = x - j

@@ -112,6 +112,40 @@ class TestGrid:
         assert_allclose(pair.b_positive_sum, np.maximum(alone_b, 0).sum(axis=1), rtol=1e-12)
         assert_allclose(pair.b_negative_sum, np.maximum(-alone_b, 0).sum(axis=1), rtol=1e-12)
 
+    @settings(max_examples=60, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(2, 300), st.integers(1, 4), st.integers(1, 50))
+    def test_placing_is_the_numpy_rule_bit_for_bit(self, seed, n_nodes, n_rows, n_steps):
+        # the compiled pass against the rule written out in numpy (an invariant of our own design: the
+        # same floating-point operations in the same order), rows that never run and constant rows included
+        rng = np.random.default_rng(seed)
+        p = rng.uniform(0.0, 1e3, (n_rows, n_steps)) ** rng.uniform(0.5, 3.0)
+        p[rng.random(p.shape) < 0.2] = 0.0
+        p[0, :] = 0.0 if seed % 3 == 0 else p[0, 0]
+        running = p > 0
+        g = tabulation.locate(p, running, 0.5, n_nodes)
+        u = np.cbrt(p)
+        u_lo = np.where(running, u, np.inf).min(axis=1)
+        u_hi = np.where(running, u, -np.inf).max(axis=1)
+        none = ~np.isfinite(u_lo)
+        u_lo, u_hi = np.where(none, 0.0, u_lo), np.where(none, 0.0, u_hi)
+        step = (u_hi - u_lo) / (n_nodes - 1)
+        safe = np.where(step > 0, step, 1.0)
+        x = np.clip((u - u_lo[:, None]) / safe[:, None], 0.0, n_nodes - 1)
+        j = np.minimum(x.astype(int), n_nodes - 2)
+        assert_array_equal(g.cell, np.where(running, j, n_nodes - 1))
+        assert_array_equal(g.position_frac, np.where(running, x - j, 0.0))
+        cols = np.arange(2 * n_nodes - 1) / 2.0
+        u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
+        u_grid[:, -1] = u_hi
+        assert_array_equal(g.p_grid_kw, u_grid ** 3)
+        cells = np.where(running, j, n_nodes - 1)
+        for i in range(n_rows):
+            hours = np.bincount(cells[i], minlength=n_nodes) * 0.5
+            hours[-1] = 0.0
+            assert_array_equal(g.hours_h[i], hours)
+            moment = np.bincount(cells[i], weights=np.where(running[i], x[i] - j[i], 0.0), minlength=n_nodes) * 0.5
+            assert_allclose(g.moment_h[i, :-1], moment[:-1], rtol=1e-13, atol=1e-13)
+
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
             tabulation.locate(np.ones((1, 3)), np.ones((1, 3), bool), 1.0, 1)
