@@ -711,11 +711,14 @@ def shaft_from_input_kw(params: InductionParams, p_in_kw):
     k = get("loss_exponent")
     excess = p_in - get("loss_constant_kw") + p_fw
     y = 2.0 * excess / (p_ag_r + np.sqrt(np.maximum(p_ag_r * p_ag_r + 4.0 * b_load * excess, 0.0)))
-    if np.any(k != 2.0):
+    newton = k != 2.0
+    if np.any(newton):  # only where k != 2 (the closed form is exact at k = 2), so each element is its own
+        z = y
         for _ in range(_NEWTON_STEPS):
-            y = np.maximum(y, 0.0)
-            y_k1 = np.power(y, k - 1.0)
-            y = y - (p_ag_r * y + b_load * y_k1 * y - excess) / (p_ag_r + k * b_load * y_k1)
+            z = np.maximum(z, 0.0)
+            z_k1 = np.power(z, k - 1.0)
+            z = z - (p_ag_r * z + b_load * z_k1 * z - excess) / (p_ag_r + k * b_load * z_k1)
+        y = np.where(newton, z, y)
     y_min = _torque_pu(p_fw, p_ag_r, s_r)
     y_max = _torque_pu(MAX_LOAD_FRAC * get("rated_p_kw") + p_fw, p_ag_r, s_r)
     y = np.clip(y, y_min, y_max)

@@ -17,6 +17,7 @@ import threading
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -278,17 +279,47 @@ class _Load:
 
 def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray, is_input_kw: np.ndarray,
                     weight_h: np.ndarray) -> _Load:
-    rated = arr["rated_p_kw"][:, None]
-    p_ref = np.where(is_input_kw[:, None], 0.0, values * rated)
+    """Today's shaft load of a group from its profile values (shaft-load fractions, or measured input kW
+    where ``is_input_kw``), where it runs, and each asset's design shaft power.
+
+    The shaft loads, where the asset runs and each row's peak are one compiled pass (:func:`_reference_rows`);
+    measured-input rows are first turned into shaft power by today's motor on those rows alone (the
+    model is element-wise, so the values are those of the whole group).
+    """
+    rated = np.ascontiguousarray(arr["rated_p_kw"], dtype=float)
+    values = np.ascontiguousarray(values, dtype=float)
+    n, m = values.shape
+    p_ref = np.empty((n, m))
+    is_input_kw = np.asarray(is_input_kw, dtype=bool)
     if is_input_kw.any():
-        shaft = induction.shaft_from_input_kw(existing, np.where(is_input_kw[:, None], values, 0.0))
-        p_ref = np.where(is_input_kw[:, None], shaft, p_ref)
-    running = p_ref > 0.0
-    weight = np.broadcast_to(weight_h, p_ref.shape)
-    on = running & (weight > 0)
-    peak = np.where(on, p_ref, 0.0).max(axis=1, keepdims=True)
-    p_design = np.maximum(peak, DESIGN_SHAFT_LOAD_FRAC * rated)
+        inputs = np.flatnonzero(is_input_kw)
+        p_ref[inputs] = induction.shaft_from_input_kw(_take_params(existing, inputs), values[inputs])
+    weight = np.broadcast_to(weight_h, (n, m))
+    running = np.empty((n, m), dtype=bool)
+    peak = np.empty(n)
+    _reference_rows(values, rated, ~is_input_kw, weight, p_ref, running, peak)
+    p_design = np.maximum(peak[:, None], DESIGN_SHAFT_LOAD_FRAC * rated[:, None])
     return _Load(p_ref, None, running, weight, p_design, existing=existing)  # speed on first use
+
+
+@numba.njit(nogil=True, cache=True)
+def _reference_rows(values, rated, from_values, weight, p_ref, running, peak):  # pragma: no cover - compiled
+    """One pass of :func:`_reference_load`: as numpy's p = values * rated (rows ``from_values``; the others
+    are already in ``p_ref``), running = p > 0, peak = max over the row of where(running & (weight > 0), p, 0).
+    """
+    n, m = p_ref.shape
+    for i in range(n):
+        top = 0.0
+        scale = rated[i]
+        own = from_values[i]
+        for t in range(m):
+            v = values[i, t] * scale if own else p_ref[i, t]
+            p_ref[i, t] = v
+            on = v > 0.0
+            running[i, t] = on
+            if on and weight[i, t] > 0.0 and v > top:
+                top = v
+        peak[i] = top
 
 
 def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:

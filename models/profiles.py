@@ -175,17 +175,20 @@ def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, 
     profile_id = a["profile_id"].to_numpy(dtype=object)
     is_interval = np.array([p is not None and p in case.profiles for p in profile_id], dtype=bool)
     interval_rows = np.flatnonzero(is_interval)
-    values = np.zeros((len(interval_rows), len(index)))
+    values = np.empty((len(interval_rows), len(index)))  # every row is written below
     is_input = np.zeros(len(interval_rows), dtype=bool)
     notes: list[dict] = []
-    cache: dict[str, tuple[np.ndarray, float]] = {}
+    cache: dict[str, tuple[np.ndarray, float, bool]] = {}
     for k, row in enumerate(interval_rows):
         pid = profile_id[row]
         if pid not in cache:
-            cache[pid] = conform(case.profiles[pid], index)
-        v, filled = cache[pid]
-        is_input[k] = case.profiles[pid].name == "input_kw"
-        values[k] = v if is_input[k] else v / 100.0
+            cache[pid] = conform(case.profiles[pid], index) + (case.profiles[pid].name == "input_kw",)
+        v, filled, as_input = cache[pid]
+        is_input[k] = as_input
+        if as_input:
+            values[k] = v
+        else:
+            np.divide(v, 100.0, out=values[k])
         if filled > 0.001:
             notes.append({"asset_id": a["asset_id"].iloc[row],
                           "note": f"{100 * filled:.1f} % of the year filled from the profile's typical week"})
@@ -194,16 +197,24 @@ def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, 
     n_states = max([1] + [int((duty["profile_id"] == p).sum()) for p in set(duty["profile_id"].dropna())])
     load = np.zeros((len(a), n_states))
     hours = np.zeros((len(a), n_states))
-    for row in np.flatnonzero(~is_interval):
+    state_rows = np.flatnonzero(~is_interval)
+    if len(state_rows):
+        # each duty table once (rows in file order), the register's columns as arrays
+        tables = {pid: (t["shaft_load_pct"].to_numpy(dtype=float) / 100.0, t["duration_h_per_yr"].to_numpy(dtype=float))
+                  for pid, t in duty.groupby("profile_id", sort=False)}
+        mean_load = a["mean_load_pct"].to_numpy(dtype=float, na_value=np.nan)
+        hours_per_yr = a["operating_h_per_yr"].to_numpy(dtype=float, na_value=np.nan)
+        asset_ids = a["asset_id"].to_numpy(dtype=object)
+    for row in state_rows:
         pid = profile_id[row]
-        if pid is not None and (duty["profile_id"] == pid).any():
-            table = duty[duty["profile_id"] == pid]
-            m = len(table)
-            load[row, :m] = table["shaft_load_pct"].to_numpy(dtype=float) / 100.0
-            hours[row, :m] = table["duration_h_per_yr"].to_numpy(dtype=float)
+        if pid is not None and pid in tables:
+            shares, durations = tables[pid]
+            m = len(shares)
+            load[row, :m] = shares
+            hours[row, :m] = durations
         else:
-            load[row, 0] = float(a["mean_load_pct"].iloc[row]) / 100.0
-            hours[row, 0] = float(a["operating_h_per_yr"].iloc[row])
-        notes.append({"asset_id": a["asset_id"].iloc[row],
+            load[row, 0] = mean_load[row] / 100.0
+            hours[row, 0] = hours_per_yr[row]
+        notes.append({"asset_id": asset_ids[row],
                       "note": "no interval data: its demand is spread evenly over the year at the meter"})
     return interval_rows, values, is_input, LoadStates(load, hours), pd.DataFrame(notes, columns=["asset_id", "note"])

@@ -1074,3 +1074,33 @@ class TestRecomputeOnlyTheRowsAsked:
             assert_array_equal(part.q_kvar[o, users[-1]], full.q_kvar[o, users[-1]])
             checked += 1
         assert checked >= 3
+
+
+class TestReferenceLoad:
+    """Today's shaft load of a group in one compiled pass, against the rule written out in numpy (an
+    invariant of our own design: the same operations, so the same bits)."""
+
+    @settings(max_examples=40, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(1, 6), st.integers(1, 40))
+    def test_the_pass_is_the_numpy_rule(self, seed, n_rows, n_steps):
+        from models.induction import calibrate_induction, shaft_from_input_kw
+
+        rng = np.random.default_rng(seed)
+        rated = rng.uniform(1.0, 500.0, n_rows)
+        motors = calibrate_induction(rated, np.full(n_rows, 0.93), np.full(n_rows, 0.85), np.full(n_rows, 1470.0),
+                                     np.full(n_rows, 1500.0))
+        values = rng.uniform(0.0, 1.2, (n_rows, n_steps))
+        values[rng.random(values.shape) < 0.25] = 0.0
+        is_input = rng.random(n_rows) < 0.4
+        values[is_input] *= rated[is_input, None]  # measured input kW on those rows
+        weight = np.full((1, n_steps), 0.25)
+        if n_steps > 1:
+            weight[0, 0] = 0.0  # an interval that weighs nothing does not set the peak
+        load = operation._reference_load({"rated_p_kw": rated}, motors, values, is_input, weight)
+        shaft = shaft_from_input_kw(motors, np.where(is_input[:, None], values, 0.0))
+        p_ref = np.where(is_input[:, None], shaft, values * rated[:, None])
+        assert_array_equal(load.p_ref_kw, p_ref)
+        assert_array_equal(load.running, p_ref > 0.0)
+        on = (p_ref > 0.0) & (np.broadcast_to(weight, p_ref.shape) > 0)
+        peak = np.where(on, p_ref, 0.0).max(axis=1, keepdims=True)
+        assert_array_equal(load.p_design_kw, np.maximum(peak, operation.DESIGN_SHAFT_LOAD_FRAC * rated[:, None]))

@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 
 from models.induction import (
     InductionParams,
@@ -383,6 +383,21 @@ class TestShaftFromInput:
         assert abs(float(m.loss_exponent) - 2.0) > 0.1
         shaft = 15.0 * np.linspace(0.0, 1.25, 11)
         assert_allclose(shaft_from_input_kw(m, m.operating_point(shaft).p_in_kw), shaft, atol=1e-9)
+
+    def test_each_motor_gives_its_own_value_in_a_mixed_group(self):
+        # element-wise (an invariant of our own design): a motor with k = 2 gets its closed form whether or
+        # not a motor with a fitted exponent is evaluated beside it, and the fitted one its Newton value
+        plain = fifteen_kw_ie3()
+        fitted = fifteen_kw_ie3(efficiency_75_frac=0.930, efficiency_50_frac=0.928)
+        both = calibrate_induction(np.array([15.0, 15.0]), np.array([0.921, 0.921]), np.array([0.84, 0.84]),
+                                   np.array([1465.0, 1465.0]), np.array([1500.0, 1500.0]),
+                                   efficiency_75_frac=np.array([np.nan, 0.930]),
+                                   efficiency_50_frac=np.array([np.nan, 0.928]))
+        assert float(both.loss_exponent[0]) == 2.0 and float(both.loss_exponent[1]) != 2.0
+        p_in = np.array([[4.0, 9.0, 15.5], [4.0, 9.0, 15.5]])
+        together = shaft_from_input_kw(both, p_in)
+        assert_array_equal(together[0], shaft_from_input_kw(plain, p_in[0]))
+        assert_array_equal(together[1], shaft_from_input_kw(fitted, p_in[1]))
 
     def test_nan_propagates_and_negative_raises(self):
         m = fifteen_kw_ie3()
