@@ -567,10 +567,23 @@ def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
     if mode == "follow_site" and site_other is None:
         for i in range(len(rated)):
             flags.append((i, "no interval data: runs at its power-factor setpoint instead of following the site"))
-    loss_exc = np.asarray(pt.field_copper_loss_kw) + np.asarray(pt.exciter_loss_kw)
-    loss_motor = np.asarray(pt.p_in_kw) - shaft_eval - loss_exc
-    return _Point(np.where(run, pt.p_in_kw, 0.0), np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
-                  np.where(run, loss_motor, 0.0), _zeros(shaft.shape), np.where(run, loss_exc, 0.0), flags)
+    loss_exc = np.add(pt.field_copper_loss_kw, pt.exciter_loss_kw)
+    loss_motor = np.subtract(pt.p_in_kw, shaft_eval)
+    loss_motor -= loss_exc
+    stopped = ~run
+    # 0 where the machine stands still, as numpy.where(run, value, 0) would give; in place where the value
+    # is this call's own array
+    p_in, q, loss_motor, loss_exc = (_zero_where(v, stopped) for v in (pt.p_in_kw, pt.q_kvar, loss_motor, loss_exc))
+    return _Point(p_in, q, shaft, np.where(run, speed, 0.0), loss_motor, _zeros(shaft.shape), loss_exc, flags)
+
+
+def _zero_where(values, stopped: np.ndarray) -> np.ndarray:
+    """``numpy.where(~stopped, values, 0.0)``, written into ``values`` itself when it is a plain writable array."""
+    values = np.asarray(values)
+    if values.dtype != np.float64 or not values.flags.writeable or values.shape != stopped.shape or 0 in values.strides:
+        return np.where(stopped, 0.0, values)
+    np.copyto(values, 0.0, where=stopped)
+    return values
 
 
 def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor) -> np.ndarray:
@@ -714,25 +727,35 @@ def site_case(case, site_id: str):
                    tariffs={k: v for k, v in case.tariffs.items() if k in tariff_files})
 
 
-def _site_other(case, site_id: str, total_p: np.ndarray, total_q: np.ndarray, own_p: np.ndarray, own_q: np.ndarray,
-                index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray]:
-    """Site meter without each of some assets of one site (today's fleet, base load, fixed banks) [kW], [kVAr].
-
-    ``total_p``, ``total_q`` are the site's today's totals over all its assets (n_steps,); ``own_p``,
-    ``own_q`` each asset's own today's power (n, n_steps).
-    """
+def _site_base(case, site_id: str, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, float]:
+    """A site's meter without its motors: base load (n_steps,) [kW], its kVAr (n_steps,) and the fixed
+    banks' kVAr [kVAr]."""
     from models.profiles import conform
 
     row = case.sites.set_index("site_id").loc[site_id]
     if row["base_profile_id"] is not None and row["base_profile_id"] in case.profiles:
         base_p = conform(case.profiles[row["base_profile_id"]], index)[0]
     else:
-        base_p = np.full(len(total_p), float(row["base_p_kw"]))
+        base_p = np.full(len(index), float(row["base_p_kw"]))
     base_q = base_p * np.tan(np.arccos(float(row["base_power_factor"])))
     caps = case.capacitors
     fixed = caps[(caps["site_id"] == site_id) & (caps["control"] == "fixed")]["rated_q_kvar"].sum()
-    p_other = total_p[None, :] - own_p + base_p
-    q_other = total_q[None, :] - own_q + base_q - fixed
+    return base_p, base_q, float(fixed)
+
+
+def _site_other(base: tuple[np.ndarray, np.ndarray, float], total_p: np.ndarray, total_q: np.ndarray, own_p: np.ndarray,
+                own_q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Site meter without each of some assets of one site (today's fleet, base load, fixed banks) [kW], [kVAr].
+
+    ``base`` is :func:`_site_base` of the site; ``total_p``, ``total_q`` are the site's today's totals over
+    all its assets (n_steps,); ``own_p``, ``own_q`` each asset's own today's power (n, n_steps):
+    p = (total - own) + base, q = ((total - own) + base kVAr) - fixed banks, in that order.
+    """
+    p_other = np.subtract(total_p[None, :], own_p)
+    p_other += base[0]
+    q_other = np.subtract(total_q[None, :], own_q)
+    q_other += base[1]
+    q_other -= base[2]
     return p_other, q_other
 
 
@@ -903,6 +926,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     running_h = np.zeros(n_a)
     cap_q = np.zeros((n_a, n_o))
     flags: list[dict] = [{"asset_id": r.asset_id, "option_id": "", "flag": r.note} for r in notes.itertuples(index=False)]
+    site_base: dict = {}  # the site's meter without its motors, once a wound-field machine asks for it
     asset_ids = a["asset_id"].to_numpy(dtype=object)
     site_ids = a["site_id"].to_numpy(dtype=object)
     option_ids = options["option_id"].to_numpy(dtype=object)
@@ -1020,8 +1044,9 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             site_other = None
             if follows_site:
                 idx = rows_[sub_c]
-                site_other = _site_other(case, str(site_ids[0]), site_totals[0], site_totals[1], p_kw[0, idx],
-                                         q_kvar[0, idx], index)
+                if "base" not in site_base:
+                    site_base["base"] = _site_base(case, str(site_ids[0]), index)
+                site_other = _site_other(site_base["base"], site_totals[0], site_totals[1], p_kw[0, idx], q_kvar[0, idx])
             pt = _evaluate(option, arr_s if whole else _take(arr_s, sel),
                            existing_s if whole else _take_params(existing_s, sel), load_c, site_other)
             store(o, kind, rows_, sub_c, pt, load_c)

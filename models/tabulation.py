@@ -182,12 +182,25 @@ def tables(values_on_grid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     -------
     base, rise : numpy.ndarray, shape (n_assets, n_nodes)
     """
-    nodes = values_on_grid[:, 0::2]
-    base = np.zeros(nodes.shape)
-    rise = np.zeros(nodes.shape)
-    base[:, :-1] = nodes[:, :-1]
-    rise[:, :-1] = nodes[:, 1:] - nodes[:, :-1]
+    values = np.asarray(values_on_grid, dtype=float)
+    n_nodes = (values.shape[1] + 1) // 2
+    base = np.empty((values.shape[0], n_nodes))
+    rise = np.empty((values.shape[0], n_nodes))
+    _tables(values, base, rise)
     return base, rise
+
+
+@numba.njit(nogil=True, cache=True)
+def _tables(values, base, rise):  # pragma: no cover - compiled
+    """:func:`tables` in one pass: base_j = v_2j, rise_j = v_2j+2 - v_2j; the last cell zero."""
+    n, n_nodes = base.shape
+    for i in range(n):
+        for j in range(n_nodes - 1):
+            a = values[i, 2 * j]
+            base[i, j] = a
+            rise[i, j] = values[i, 2 * j + 2] - a
+        base[i, n_nodes - 1] = 0.0
+        rise[i, n_nodes - 1] = 0.0
 
 
 def midpoint_error(values_on_grid: np.ndarray) -> np.ndarray:
@@ -203,11 +216,27 @@ def midpoint_error(values_on_grid: np.ndarray) -> np.ndarray:
     >>> midpoint_error(np.array([[0.0, 0.25, 1.0, 2.25, 4.0]])).tolist()   # x^2 on nodes 0, 1, 2
     [0.25]
     """
-    nodes = values_on_grid[:, 0::2]
-    mid = values_on_grid[:, 1::2]
-    if mid.shape[1] == 0:
-        return np.zeros(values_on_grid.shape[0])
-    return np.abs(mid - 0.5 * (nodes[:, :-1] + nodes[:, 1:])).max(axis=1)
+    values = np.asarray(values_on_grid, dtype=float)
+    out = np.zeros(values.shape[0])
+    if values.shape[1] >= 3:
+        _midpoint_error(values, out)
+    return out
+
+
+@numba.njit(nogil=True, cache=True)
+def _midpoint_error(values, out):  # pragma: no cover - compiled
+    """:func:`midpoint_error` in one pass: max_j |v_2j+1 - 0.5 (v_2j + v_2j+2)| per row (NaN if any is NaN,
+    as numpy's max)."""
+    n, m = values.shape
+    for i in range(n):
+        worst = 0.0
+        for j in range((m - 1) // 2):
+            e = abs(values[i, 2 * j + 1] - 0.5 * (values[i, 2 * j] + values[i, 2 * j + 2]))
+            if e > worst or e != e:
+                worst = e
+            if worst != worst:
+                break
+        out[i] = worst
 
 
 def interpolate(grid: Grid, base: np.ndarray, rise: np.ndarray, out: np.ndarray | None = None,

@@ -146,6 +146,26 @@ class TestGrid:
             moment = np.bincount(cells[i], weights=np.where(running[i], x[i] - j[i], 0.0), minlength=n_nodes) * 0.5
             assert_allclose(g.moment_h[i, :-1], moment[:-1], rtol=1e-13, atol=1e-13)
 
+    @settings(max_examples=60, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 70), st.booleans())
+    def test_tables_and_midpoint_errors_are_the_numpy_rule_bit_for_bit(self, seed, n_rows, n_cols, with_nan):
+        # compiled passes against the rule written out in numpy (an invariant of our own design); a row
+        # broadcast from one value per asset, and NaN (which must fail the row, as numpy's max does)
+        rng = np.random.default_rng(seed)
+        values = rng.normal(0.0, 100.0, (n_rows, 2 * n_cols - 1))
+        if with_nan:
+            values[rng.integers(n_rows), rng.integers(values.shape[1])] = np.nan
+        for v in (values, np.broadcast_to(values[:, :1], values.shape)):
+            nodes = v[:, 0::2]
+            base, rise = tabulation.tables(v)
+            assert_array_equal(base[:, :-1], nodes[:, :-1])
+            assert_array_equal(rise[:, :-1], nodes[:, 1:] - nodes[:, :-1])
+            assert_array_equal(base[:, -1], 0.0)
+            assert_array_equal(rise[:, -1], 0.0)
+            expected = (np.abs(v[:, 1::2] - 0.5 * (nodes[:, :-1] + nodes[:, 1:])).max(axis=1) if n_cols > 1
+                        else np.zeros(n_rows))
+            assert_array_equal(tabulation.midpoint_error(v), expected)
+
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
             tabulation.locate(np.ones((1, 3)), np.ones((1, 3), bool), 1.0, 1)
