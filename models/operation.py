@@ -327,22 +327,27 @@ def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:
     if load.controlled is not None:
         return load.controlled
     p = load.p_ref_kw
-    sync = arr["sync_rpm"][:, None]
-    throttled = arr["throttled"][:, None] & (arr["exponent"][:, None] == 3.0)
-    exponent = arr["exponent"][:, None]
-    if throttled.any():
-        moved = loads.throttled_to_speed_control(np.where(throttled, p, 0.0), load.p_design_kw,
-                                                 np.broadcast_to(arr["static_head"][:, None], p.shape))
-        p_thr = np.asarray(moved.shaft_p_kw, dtype=float)
-        speed_thr = np.asarray(moved.speed_frac, dtype=float) * (load.n_ref_rpm / sync)
-    else:
-        p_thr, speed_thr = p, load.n_ref_rpm / sync
+    speed_frac = load.n_ref_rpm / arr["sync_rpm"][:, None]  # today's speed share; the rules scale their rows
     # existing drive or unthrottled load: the drive keeps today's flow; a variable-torque load already on a
-    # drive runs at the speed its power implies on the affinity law (design power at today's rated speed)
-    ratio = np.clip(np.where(load.p_design_kw > 0, p / load.p_design_kw, 0.0), 0.0, None)
-    speed_drive = np.where(arr["has_drive"][:, None], ratio ** (1.0 / exponent), 1.0) * (load.n_ref_rpm / sync)
-    p_new = np.where(throttled, p_thr, p)
-    speed_frac = np.where(throttled, speed_thr, speed_drive)
+    # drive runs at the speed its power implies on the affinity law (design power at today's rated speed).
+    # Each rule is worked on its own rows only (every quantity is element-wise: the values are those of
+    # the rule applied to the whole group and selected)
+    p_new = p
+    drive = np.flatnonzero(np.asarray(arr["has_drive"], dtype=bool))
+    throttled = np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0)
+    drive = drive[~throttled[drive]]
+    if len(drive):
+        p_design = load.p_design_kw[drive]
+        ratio = np.clip(np.where(p_design > 0, p[drive] / p_design, 0.0), 0.0, None)
+        speed_frac[drive] = ratio ** (1.0 / arr["exponent"][drive, None]) * speed_frac[drive]
+    rows = np.flatnonzero(throttled)
+    if len(rows):
+        p_rows = p[rows]
+        moved = loads.throttled_to_speed_control(p_rows, load.p_design_kw[rows],
+                                                 np.broadcast_to(arr["static_head"][rows, None], p_rows.shape))
+        p_new = p.copy()
+        p_new[rows] = np.asarray(moved.shaft_p_kw, dtype=float)
+        speed_frac[rows] = np.asarray(moved.speed_frac, dtype=float) * speed_frac[rows]
     speed_frac = np.where(load.running, np.clip(speed_frac, 0.05, 1.2), 0.0)
     return np.where(load.running, p_new, 0.0), speed_frac
 
