@@ -20,11 +20,19 @@ import logging
 from typing import Callable
 
 from models import finance
+from models.memory import retained_memory
 from models.operation import case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
 
 #: Worker processes of the local cluster (one per core of the 2-core reference machine).
 LOCAL_WORKERS = 2
+
+
+def _site_task(*args):
+    """One site's physics on a worker (:func:`models.scenario.site_physics`), its freed memory kept for reuse
+    while it runs (:func:`models.memory.retained_memory`)."""
+    with retained_memory():
+        return site_physics(*args)
 
 
 def _client(scheduler: str | None, n_workers: int, processes: bool):
@@ -93,7 +101,7 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
 
         futures = {}
         for k, (site_id, _) in enumerate(merger.partition):
-            future = client.submit(site_physics, site_case(case, site_id), index, cost, chunk_assets, None, today_only,
+            future = client.submit(_site_task, site_case(case, site_id), index, cost, chunk_assets, None, today_only,
                                    key=f"drivecase-site-physics-{k}", pure=False)
             futures[future] = site_id
         for done, future in enumerate(as_completed(futures), start=1):

@@ -23,6 +23,7 @@ import pandas as pd
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
+from models.memory import retaining_memory
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
                               _SiteRecompute,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
@@ -246,6 +247,7 @@ class PhysicsMerger:
         return Physics(op, savings, self.cost)
 
 
+@retaining_memory
 def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None, *,
             chunk_assets: int | None = None, dense: bool | None = None, timer: dict | None = None,
             threads: int | None = None) -> Physics:
@@ -380,6 +382,7 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
     return age, shape, scale_eff, residual
 
 
+@retaining_memory
 def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
               progress: Callable[[str], None] | None = None, with_risk: bool = True,
               plan_settings: PlanSettings = PRECISE_PLAN, previous: ScenarioResult | None = None,
