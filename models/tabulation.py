@@ -52,6 +52,8 @@ class Grid:
         Position of the interval's load within its cell, 0 at the lower node and 1 at the upper [-].
     hours_h, moment_h : numpy.ndarray, shape (n_assets, n_nodes)
         Per cell: the hours of its intervals, and those hours each times its position [h] (zero cell last).
+    position_finite : numpy.ndarray of bool, shape (n_assets,), optional
+        Whether every position of the row is finite (noted while placing; None: not known, to be checked).
     """
 
     p_grid_kw: np.ndarray
@@ -59,6 +61,7 @@ class Grid:
     position_frac: np.ndarray
     hours_h: np.ndarray
     moment_h: np.ndarray
+    position_finite: np.ndarray | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -108,6 +111,7 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
     count = np.zeros((n, n_nodes))
     moment = np.zeros((n, n_nodes))
     u_lo, u_hi = np.empty(n), np.empty(n)
+    finite = np.empty(n, dtype=bool)
     # u = cbrt(p) by numpy's vectorised loop, a few rows at a time into a scratch block that stays in cache
     # while the compiled pass places those rows
     block = max(1, LOCATE_BLOCK_ELEMENTS // max(m, 1))
@@ -115,20 +119,21 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
     for start in range(0, n, block):
         stop = min(start + block, n)
         np.cbrt(p_kw[start:stop], out=u[:stop - start])
-        _locate_rows(u[:stop - start], running, start, n_nodes, u_lo, u_hi, cell, position, count, moment)
-    step = (u_hi - u_lo) / (n_nodes - 1)
+        _locate_rows(u[:stop - start], running, start, n_nodes, u_lo, u_hi, cell, position, count, moment, finite)
     cols = np.arange(2 * n_nodes - 1) / 2.0
-    u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
-    u_grid[:, -1] = u_hi  # the last node is the largest load itself
-    p_grid = u_grid ** 3
+    with np.errstate(invalid="ignore", over="ignore"):  # (a row with an infinite load gets NaN nodes)
+        step = (u_hi - u_lo) / (n_nodes - 1)
+        u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
+        u_grid[:, -1] = u_hi  # the last node is the largest load itself
+        p_grid = u_grid ** 3
     hours = count * float(interval_h)
     moment *= float(interval_h)
     hours[:, -1] = 0.0
-    return Grid(p_grid, cell, position, hours, moment)
+    return Grid(p_grid, cell, position, hours, moment, finite)
 
 
 @numba.njit(nogil=True, cache=True)
-def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, moment):  # pragma: no cover - compiled
+def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, moment, finite):  # pragma: no cover - compiled
     """:func:`locate`'s placing of the rows ``row0 ..`` whose u = cbrt(p) is ``u``: each row's span, then
     every interval's cell.
 
@@ -154,9 +159,16 @@ def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, m
         width = (hi - lo) / (n_nodes - 1)
         if not width > 0.0:
             width = 1.0
+        ok = True
         for t in range(m):
             if running[i, t]:
                 x = (u[k, t] - lo) / width
+                if x != x:  # an infinite load: no cell to place it in; the row is marked not finite
+                    cell[i, t] = top
+                    position[i, t] = x
+                    count[i, top] += 1.0
+                    ok = False
+                    continue
                 x = min(max(x, 0.0), float(top))
                 j = min(int(x), n_nodes - 2)
                 x = x - j
@@ -168,6 +180,7 @@ def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, m
                 cell[i, t] = top
                 position[i, t] = 0.0
                 count[i, top] += 1.0
+        finite[i] = ok
 
 
 def tables(values_on_grid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -528,7 +541,8 @@ class CurveBook:
         n = self._n_entries
         slot, grid_row, offset = np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, np.int64)
         finite = np.zeros(n, dtype=bool)
-        positions_finite = [[np.isfinite(g.position_frac).all(axis=1) for g in grids] for grids in self._grids]
+        positions_finite = [[np.isfinite(g.position_frac).all(axis=1) if g.position_finite is None else g.position_finite
+                             for g in grids] for grids in self._grids]
         flat: list[list[np.ndarray]] = [[], [], [], []]
         k = at = 0
         for s, g, grid_rows, *tabs in self._entries:

@@ -138,6 +138,7 @@ class TestGrid:
         u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
         u_grid[:, -1] = u_hi
         assert_array_equal(g.p_grid_kw, u_grid ** 3)
+        assert_array_equal(g.position_finite, np.ones(n_rows, dtype=bool))
         cells = np.where(running, j, n_nodes - 1)
         for i in range(n_rows):
             hours = np.bincount(cells[i], minlength=n_nodes) * 0.5
@@ -165,6 +166,17 @@ class TestGrid:
             expected = (np.abs(v[:, 1::2] - 0.5 * (nodes[:, :-1] + nodes[:, 1:])).max(axis=1) if n_cols > 1
                         else np.zeros(n_rows))
             assert_array_equal(tabulation.midpoint_error(v), expected)
+
+    def test_an_infinite_load_marks_its_row_not_finite(self):
+        # the row is flagged (so the bills read it the careful way) and its interval reads NaN, never
+        # another cell's value; the other row is untouched
+        p = np.array([[1.0, np.inf, 8.0], [1.0, 2.0, 8.0]])
+        g = tabulation.locate(p, p > 0, 1.0, 3)
+        assert g.position_finite.tolist() == [False, True]
+        assert g.cell[0, 1] == 2 and np.isnan(g.position_frac[0, 1])
+        base, rise = tabulation.tables(g.p_grid_kw)
+        assert np.isnan(tabulation.interpolate(g, base, rise)[0, 1])
+        assert_array_equal(g.p_grid_kw[1], tabulation.locate(p[1:], p[1:] > 0, 1.0, 3).p_grid_kw[0])
 
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
