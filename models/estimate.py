@@ -16,23 +16,23 @@ from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSI
                               TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
                               site_partition)
 
-#: Machines stage per asset-option-step [s], one thread: 9.1 s of wall time for 10,000 assets x 11
-#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 32.1 s end to end,
-#: load average 1.1 on the 2-core reference machine), times the two threads' gain 1.7.
-MACHINES_S_PER_ELEMENT = 9.1 * 1.7 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s], one thread: 6.7 s of wall time, same run, times 1.7.
-SITE_BILLS_S_PER_ELEMENT = 6.7 * 1.7 / (10_000 * 11 * 8760)
-#: Finance and the plan's monthly bills per asset [s]: 8.2 s per 10,000 assets, same run (budgets per motor
-#: as the demo's: the plan's bills recompute the chosen options, 5.4 s of it). The end of life and the
-#: Monte Carlo (3.3 s) run beside the plan, which takes longer, and are counted within it.
-ECONOMICS_S_PER_ASSET = 8.2 / 10_000
-#: Exact fleet plan [s]: 4.7 s for 10,000 assets and 1.4 s for 1,000 (same benchmark); with the tight
+#: Machines stage per asset-option-step [s], one thread: 7.1 s of wall time for 10,000 assets x 11
+#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 27.7 s end to end,
+#: load average 1.3 on the 2-core reference machine), times the two threads' gain 1.45.
+MACHINES_S_PER_ELEMENT = 7.1 * 1.45 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s], one thread: 6.5 s of wall time, same run, times 1.45.
+SITE_BILLS_S_PER_ELEMENT = 6.5 * 1.45 / (10_000 * 11 * 8760)
+#: Finance and the plan's monthly bills per asset [s]: 7.1 s per 10,000 assets, same run (budgets per motor
+#: as the demo's: the plan's bills recompute the chosen options, 5.0 s of it). The end of life and the
+#: Monte Carlo (3.0 s) run beside the plan, which takes longer, and are counted within it.
+ECONOMICS_S_PER_ASSET = 7.1 / 10_000
+#: Exact fleet plan [s]: 4.5 s for 10,000 assets and 1.2 s for 1,000 (same benchmark); with the tight
 #: budgets of a small plant on a large fleet the solver stops at its 60 s limit (models.plan.plan_exact),
 #: 61 s in all, so the estimate is capped there.
-PLAN_S_PER_ASSET = 4.7 / 10_000
+PLAN_S_PER_ASSET = 4.5 / 10_000
 PLAN_MAX_S = 63.0
-#: Reading and validating a case per asset [s]: 2.8 s per 10,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 2.8 / 10_000
+#: Reading and validating a case per asset [s]: 2.1 s per 10,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 2.1 / 10_000
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
 FIXED_S = 1.5
@@ -42,12 +42,14 @@ BASE_BYTES = 250 * 2**20
 #: Temporaries of the machine models per asset-step of one block [bytes]: about 40 float64 arrays of the
 #: block's size live at once (common to the physics peak of both benchmark sizes, docs/scale.md).
 BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
-#: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables
-#: (fitted to the economics peaks of the benchmark, docs/scale.md).
-ECONOMICS_BYTES_PER_PAIR = 12 * 1024
-#: Speed-up of the physics per extra site thread [-]: two threads ran the 1,000-asset fleet's physics
-#: 1.7x as fast as one (7.6-8.1 s against 13.0-14.0 s, same machine, load average 1.0).
-THREAD_GAIN = 0.7
+#: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables,
+#: and the plan's bills (fitted to the economics peaks of the benchmark, docs/scale.md; a run keeps freed
+#: memory for reuse, models.memory, so the peak is the high-water mark of its largest stage).
+ECONOMICS_BYTES_PER_PAIR = 14 * 1024
+#: Speed-up of the physics per extra site thread [-]: two threads ran the 10,000-asset fleet's physics
+#: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
+#: each other thousands of times per site, docs/performance.md).
+THREAD_GAIN = 0.45
 
 
 @dataclass(frozen=True)
