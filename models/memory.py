@@ -3,20 +3,21 @@
 A site's machines and bills allocate and free many arrays of tens of megabytes. By default the C
 allocator (glibc) serves each of them with a fresh memory mapping and unmaps it when numpy frees it, so
 the next site's arrays fault their pages in again; numpy also asks the kernel for transparent huge pages
-on such arrays, whose faults are dearer still. Where faulting a page is slow (a virtual machine whose
-host backs guest memory lazily, as the reference machine of docs/performance.md), that first touch cost
-several times the arithmetic: on a 10,000-asset fleet it was up to a third of the machines stage.
+on such arrays, whose faults are dearer still. Where faulting a page is slow (as on the virtual reference
+machine of docs/performance.md), that first touch cost several times the arithmetic: on a 10,000-asset
+fleet it was up to a third of the machines stage.
 
 :func:`retained_memory` sets the allocator, for the span of a run, to serve large arrays from its heap
-and to keep freed memory for the next ones (glibc's ``mallopt`` [1]: no memory mappings, no trimming, one
-arena so that the site threads share what is kept), and turns numpy's huge-page advice off; on the way out
-it restores them and hands the free memory back (``malloc_trim``). Numbers are unchanged: only where the
+and to keep freed memory for the next ones (glibc's ``mallopt`` [1]: no memory mappings, no trimming), and
+turns numpy's huge-page advice off; on the way out it restores them and hands the free memory back
+(``malloc_trim``). The number of arenas is left alone: one shared arena measured no faster, and mallopt
+cannot set it back to its default. Numbers are unchanged: only where the
 bytes live changes. Elsewhere than Linux with glibc the allocator is left as it is.
 
 References
 ----------
 .. [1] The GNU C Library Reference Manual, "Malloc Tunable Parameters" (``mallopt``: M_MMAP_MAX,
-   M_TRIM_THRESHOLD, M_TOP_PAD, M_ARENA_MAX) and "Summary of Malloc-Related Functions" (``malloc_trim``).
+   M_TRIM_THRESHOLD, M_TOP_PAD) and "Summary of Malloc-Related Functions" (``malloc_trim``).
 """
 
 from __future__ import annotations
@@ -34,15 +35,13 @@ import numpy as np
 _M_TRIM_THRESHOLD = -1
 _M_TOP_PAD = -2
 _M_MMAP_MAX = -4
-_M_ARENA_MAX = -8
 
 #: While retained: no trimming below this much free memory at the heap's top [bytes] (mallopt takes an int).
 RETAINED_TRIM_THRESHOLD_BYTES = 2**31 - 1
 #: While retained: extra memory asked for each time the heap grows [bytes].
 RETAINED_TOP_PAD_BYTES = 64 * 2**20
-#: glibc's defaults, restored afterwards (mallopt(3): 128 KiB trim threshold and top pad, 65,536 mappings,
-#: arenas by core count).
-_DEFAULTS = {_M_TRIM_THRESHOLD: 128 * 1024, _M_TOP_PAD: 128 * 1024, _M_MMAP_MAX: 65536, _M_ARENA_MAX: 0}
+#: glibc's defaults, restored afterwards (mallopt(3): 128 KiB trim threshold and top pad, 65,536 mappings).
+_DEFAULTS = {_M_TRIM_THRESHOLD: 128 * 1024, _M_TOP_PAD: 128 * 1024, _M_MMAP_MAX: 65536}
 
 _lock = threading.Lock()
 _depth = 0
@@ -69,7 +68,6 @@ def _set_hugepage(on: bool) -> bool | None:
 def _enter(lib) -> None:
     global _saved_hugepage
     if lib is not None:
-        lib.mallopt(_M_ARENA_MAX, 1)
         lib.mallopt(_M_MMAP_MAX, 0)
         lib.mallopt(_M_TRIM_THRESHOLD, RETAINED_TRIM_THRESHOLD_BYTES)
         lib.mallopt(_M_TOP_PAD, RETAINED_TOP_PAD_BYTES)
