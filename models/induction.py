@@ -15,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass, fields
 from typing import Any, Callable
 
+import numba
 import numpy as np
 import pandas as pd
 
@@ -453,20 +454,54 @@ def _torque_pu(internal_p_kw, rated_airgap_p_kw, rated_slip_frac):
 
 
 def _torque_pu_fresh(p, p_fw, p_ag_r, s_r) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`_torque_pu` of shaft power ``p`` computed in place in two new arrays (y, scratch).
+    """:func:`_torque_pu` of shaft power ``p`` in two new arrays (y, scratch), in one compiled pass.
 
-    Both are at least 1-D so that ``out=`` arithmetic works for a single value; callers reshape.
+    Both are at least 1-D so that ``out=`` arithmetic works for a single value; callers reshape. The
+    scratch holds 1 + sqrt(max(1 - 4 s_r u, 0)). The pass (:func:`_torque_rows`) does the numpy rule's
+    operations in its order: u = (p + p_fw) / p_ag_r, w = u (-4 s_r) + 1, w = sqrt(max(w, 0)) + 1,
+    y = 2 u / w.
     """
-    y = np.atleast_1d(np.add(p, p_fw))
-    y /= p_ag_r
-    work = np.multiply(y, -4.0 * s_r)
-    work += 1.0
-    np.maximum(work, 0.0, out=work)
-    np.sqrt(work, out=work)
-    work += 1.0
-    y *= 2.0
-    y /= work
-    return y, work
+    rows = _as_rows(p, p_fw, p_ag_r, s_r)
+    if rows is None:  # more than two axes: the numpy rule itself
+        y = np.atleast_1d(np.add(p, p_fw))
+        y /= p_ag_r
+        work = np.multiply(y, -4.0 * s_r)
+        work += 1.0
+        np.maximum(work, 0.0, out=work)
+        np.sqrt(work, out=work)
+        work += 1.0
+        y *= 2.0
+        y /= work
+        return y, work
+    shape, (p2, fw2, ag2, sr2) = rows
+    y, work = np.empty(p2.shape), np.empty(p2.shape)
+    _torque_rows(p2, fw2, ag2, sr2, y, work)
+    return y.reshape(shape), work.reshape(shape)
+
+
+def _as_rows(*values):
+    """Broadcast values to their common shape as 2-D views (a leading axis of 1 added as needed); return
+    (that shape at least 1-D, views), or None for more than two axes."""
+    arrays = [np.asarray(v, dtype=float) for v in values]
+    shape = np.broadcast_shapes(*(a.shape for a in arrays))
+    if len(shape) > 2:
+        return None
+    two = (1,) * (2 - len(shape)) + shape
+    return (shape if shape else (1,)), [np.broadcast_to(a, shape).reshape(two) for a in arrays]
+
+
+@numba.njit(nogil=True, cache=True, error_model="numpy")
+def _torque_rows(p, p_fw, p_ag_r, s_r, y, work):  # pragma: no cover - compiled
+    """:func:`_torque_pu_fresh`'s pass over 2-D views of one shape (the numpy rule's operations, in order)."""
+    n, m = y.shape
+    for i in range(n):
+        for t in range(m):
+            u = (p[i, t] + p_fw[i, t]) / p_ag_r[i, t]
+            w = u * (-4.0 * s_r[i, t]) + 1.0
+            w = w if (w >= 0.0 or w != w) else 0.0  # numpy.maximum(w, 0): NaN stays NaN
+            w = np.sqrt(w) + 1.0
+            y[i, t] = (u * 2.0) / w
+            work[i, t] = w
 
 
 def _aligned(params: InductionParams, kind: str, ndim: int) -> Callable[[str], np.ndarray]:
@@ -641,13 +676,7 @@ def induction_speed_rpm(params: InductionParams, shaft_p_kw):
     p, wrap, kind = _unwrap(shaft_p_kw)
     get = _aligned(params, kind, p.ndim)
     _forbid(p < 0, "shaft_p_kw must not be negative")
-    p_ag_r = get("rated_airgap_p_kw")
-    shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
-    y, _ = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"))
-    y *= -get("rated_slip_frac")
-    y += 1.0
-    y *= get("sync_speed_rpm")  # n = n_s (1 - s_r y)
-    return wrap(y.reshape(shape))
+    return wrap(_speed_of(p, get))
 
 
 def _speed_rpm_unchecked(params: InductionParams, shaft_p_kw: np.ndarray) -> np.ndarray:
@@ -656,14 +685,38 @@ def _speed_rpm_unchecked(params: InductionParams, shaft_p_kw: np.ndarray) -> np.
     For inner loops that keep the load non-negative by construction (the speed-coupling fixed point).
     """
     p = np.asarray(shaft_p_kw, dtype=float)
-    get = _aligned(params, "array", p.ndim)
+    return _speed_of(p, _aligned(params, "array", p.ndim))
+
+
+def _speed_of(p: np.ndarray, get: Callable[[str], np.ndarray]) -> np.ndarray:
+    """n = n_s (1 - s_r y) of a numpy load ``p`` with the motors' fields from ``get`` (:func:`_aligned`)."""
     p_ag_r = get("rated_airgap_p_kw")
     shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
+    rows = _as_rows(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"), get("sync_speed_rpm"))
+    if rows is not None:  # torque and speed in one compiled pass (the same operations)
+        _, views = rows
+        n = np.empty(views[0].shape)
+        _speed_rows(*views, n)
+        return n.reshape(shape)
     y, _ = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"))
     y *= -get("rated_slip_frac")
     y += 1.0
     y *= get("sync_speed_rpm")  # n = n_s (1 - s_r y)
     return y.reshape(shape)
+
+
+@numba.njit(nogil=True, cache=True, error_model="numpy")
+def _speed_rows(p, p_fw, p_ag_r, s_r, n_s, out):  # pragma: no cover - compiled
+    """:func:`_speed_rpm_unchecked`'s pass: :func:`_torque_rows`' y, then n = ((y (-s_r)) + 1) n_s, in order."""
+    n, m = out.shape
+    for i in range(n):
+        for t in range(m):
+            u = (p[i, t] + p_fw[i, t]) / p_ag_r[i, t]
+            w = u * (-4.0 * s_r[i, t]) + 1.0
+            w = w if (w >= 0.0 or w != w) else 0.0
+            w = np.sqrt(w) + 1.0
+            y = (u * 2.0) / w
+            out[i, t] = (y * (-s_r[i, t]) + 1.0) * n_s[i, t]
 
 
 def shaft_from_input_kw(params: InductionParams, p_in_kw):

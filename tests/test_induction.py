@@ -497,3 +497,61 @@ def test_operating_point_function_equals_method():
     # delegation only: the dataclass method passes through to the layer-1 function
     m = fifteen_kw_ie3()
     assert_allclose(induction_operating_point(m, 9.0).p_in_kw, m.operating_point(9.0).p_in_kw, rtol=0)
+
+
+class TestCompiledTorqueAndSpeed:
+    """The torque and speed passes compiled, against the numpy rule written out here (an invariant of our
+    own design: the same operations in the same order, so the same bits), for every shape a caller uses."""
+
+    @staticmethod
+    def numpy_rule(p, p_fw, p_ag_r, s_r, n_s):
+        y = np.atleast_1d(np.add(p, p_fw))
+        y /= p_ag_r
+        work = np.multiply(y, -4.0 * s_r)
+        work += 1.0
+        np.maximum(work, 0.0, out=work)
+        np.sqrt(work, out=work)
+        work += 1.0
+        y *= 2.0
+        y /= work
+        speed = y * -s_r
+        speed += 1.0
+        speed *= n_s
+        return y, work, speed
+
+    @settings(max_examples=50, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 30), st.sampled_from(["2d", "1d", "scalar"]))
+    def test_the_passes_are_the_numpy_rule(self, seed, n_motors, n_steps, layout):
+        from models.induction import _aligned, _speed_rpm_unchecked, _torque_pu_fresh
+
+        rng = np.random.default_rng(seed)
+        rated = rng.uniform(1.0, 900.0, n_motors)
+        m = calibrate_induction(rated, np.full(n_motors, 0.93), np.full(n_motors, 0.85), np.full(n_motors, 1470.0),
+                                np.full(n_motors, 1500.0))
+        if layout == "2d":
+            p = rng.uniform(0.0, 1.4, (n_motors, n_steps)) * rated[:, None]
+            p[rng.random(p.shape) < 0.1] = np.nan  # missing data propagates
+        elif layout == "1d":
+            p = rng.uniform(0.0, 1.4, n_motors) * rated
+        else:
+            m = calibrate_induction(15.0, 0.921, 0.84, 1465.0, 1500.0)
+            p = float(rng.uniform(0.0, 20.0))
+        get = _aligned(m, "array", np.ndim(p))
+        args = (get("friction_windage_kw"), get("rated_airgap_p_kw"), get("rated_slip_frac"))
+        y_ref, work_ref, speed_ref = self.numpy_rule(p, *args, get("sync_speed_rpm"))
+        y, work = _torque_pu_fresh(p, *args)
+        assert_array_equal(y, y_ref)
+        assert_array_equal(work, work_ref)
+        shape = np.broadcast_shapes(np.shape(p), np.shape(args[1]))
+        assert_array_equal(_speed_rpm_unchecked(m, p), speed_ref.reshape(shape))
+        if not np.isnan(p).any():
+            assert_array_equal(induction_speed_rpm(m, p), speed_ref.reshape(shape))
+
+    def test_a_dataframe_load_keeps_its_kind(self):
+        m = calibrate_induction(np.array([15.0, 30.0]), np.array([0.921, 0.936]), np.array([0.84, 0.86]),
+                                np.array([1465.0, 1475.0]), np.array([1500.0, 1500.0]))
+        frame = pd.DataFrame({"a": [15.0, 7.5], "b": [30.0, 0.0]})
+        out = induction_speed_rpm(m, frame)
+        assert isinstance(out, pd.DataFrame)
+        # rated load gives rated speed (calibration, hand check: 1465 and 1475 rpm); no load gives n_s (1 - s_r y0)
+        assert_allclose(out.iloc[0].to_numpy(), [1465.0, 1475.0], rtol=1e-12)
