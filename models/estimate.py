@@ -16,23 +16,23 @@ from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSI
                               TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
                               site_partition)
 
-#: Machines stage per asset-option-step [s], one thread: 7.1 s of wall time for 10,000 assets x 11
-#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 27.7 s end to end,
+#: Machines stage per asset-option-step [s], one thread: 6.6 s of wall time for 10,000 assets x 11
+#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 26.3 s end to end,
 #: load average 1.3 on the 2-core reference machine), times the two threads' gain 1.45.
-MACHINES_S_PER_ELEMENT = 7.1 * 1.45 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s], one thread: 6.5 s of wall time, same run, times 1.45.
-SITE_BILLS_S_PER_ELEMENT = 6.5 * 1.45 / (10_000 * 11 * 8760)
-#: Finance and the plan's monthly bills per asset [s]: 7.1 s per 10,000 assets, same run (budgets per motor
+MACHINES_S_PER_ELEMENT = 6.6 * 1.45 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s], one thread: 5.9 s of wall time, same run, times 1.45.
+SITE_BILLS_S_PER_ELEMENT = 5.9 * 1.45 / (10_000 * 11 * 8760)
+#: Finance and the plan's monthly bills per asset [s]: 6.9 s per 10,000 assets, same run (budgets per motor
 #: as the demo's: the plan's bills recompute the chosen options, 5.0 s of it). The end of life and the
-#: Monte Carlo (3.0 s) run beside the plan, which takes longer, and are counted within it.
-ECONOMICS_S_PER_ASSET = 7.1 / 10_000
-#: Exact fleet plan [s]: 4.5 s for 10,000 assets and 1.2 s for 1,000 (same benchmark); with the tight
+#: Monte Carlo (2.7 s) run beside the plan, which takes longer, and are counted within it.
+ECONOMICS_S_PER_ASSET = 6.9 / 10_000
+#: Exact fleet plan [s]: 4.4 s for 10,000 assets and 1.4 s for 1,000 (same benchmark); with the tight
 #: budgets of a small plant on a large fleet the solver stops at its 60 s limit (models.plan.plan_exact),
 #: 61 s in all, so the estimate is capped there.
-PLAN_S_PER_ASSET = 4.5 / 10_000
+PLAN_S_PER_ASSET = 4.4 / 10_000
 PLAN_MAX_S = 63.0
-#: Reading and validating a case per asset [s]: 2.1 s per 10,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 2.1 / 10_000
+#: Reading and validating a case per asset [s]: 2.0 s per 10,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 2.0 / 10_000
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
 FIXED_S = 1.5
