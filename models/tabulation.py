@@ -163,9 +163,9 @@ def _locate_rows(u, running, row0, n_nodes, u_lo, u_hi, cell, position, count, m
         for t in range(m):
             if running[i, t]:
                 x = (u[k, t] - lo) / width
-                if x != x:  # an infinite load: no cell to place it in; the row is marked not finite
+                if not np.isfinite(x):  # an infinite load: no cell to place it in; the row is marked not finite
                     cell[i, t] = top
-                    position[i, t] = x
+                    position[i, t] = np.nan
                     count[i, top] += 1.0
                     ok = False
                     continue

@@ -177,6 +177,9 @@ class TestGrid:
         base, rise = tabulation.tables(g.p_grid_kw)
         assert np.isnan(tabulation.interpolate(g, base, rise)[0, 1])
         assert_array_equal(g.p_grid_kw[1], tabulation.locate(p[1:], p[1:] > 0, 1.0, 3).p_grid_kw[0])
+        # a row whose every running load is infinite is flagged too
+        g = tabulation.locate(np.array([[0.0, np.inf]]), np.array([[False, True]]), 1.0, 3)
+        assert g.position_finite.tolist() == [False] and np.isnan(g.position_frac[0, 1])
 
     def test_one_node_is_refused(self):
         with pytest.raises(ValueError, match="two nodes"):
