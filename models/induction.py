@@ -461,47 +461,38 @@ def _torque_pu_fresh(p, p_fw, p_ag_r, s_r) -> tuple[np.ndarray, np.ndarray]:
     operations in its order: u = (p + p_fw) / p_ag_r, w = u (-4 s_r) + 1, w = sqrt(max(w, 0)) + 1,
     y = 2 u / w.
     """
-    rows = _as_rows(p, p_fw, p_ag_r, s_r)
-    if rows is None:  # more than two axes: the numpy rule itself
-        y = np.atleast_1d(np.add(p, p_fw))
-        y /= p_ag_r
-        work = np.multiply(y, -4.0 * s_r)
-        work += 1.0
-        np.maximum(work, 0.0, out=work)
-        np.sqrt(work, out=work)
-        work += 1.0
-        y *= 2.0
-        y /= work
-        return y, work
-    shape, (p2, fw2, ag2, sr2) = rows
+    shape, (p2, fw2, ag2, sr2) = _as_rows(p, p_fw, p_ag_r, s_r)
     y, work = np.empty(p2.shape), np.empty(p2.shape)
     _torque_rows(p2, fw2, ag2, sr2, y, work)
     return y.reshape(shape), work.reshape(shape)
 
 
 def _as_rows(*values):
-    """Broadcast values to their common shape as 2-D views (a leading axis of 1 added as needed); return
-    (that shape at least 1-D, views), or None for more than two axes."""
+    """Broadcast values to their common shape as 2-D arrays (rows, last axis): views where a leading axis
+    of 1 is added, copies where more than two axes are folded. Return (that shape at least 1-D, arrays)."""
     arrays = [np.asarray(v, dtype=float) for v in values]
     shape = np.broadcast_shapes(*(a.shape for a in arrays))
-    if len(shape) > 2:
-        return None
-    two = (1,) * (2 - len(shape)) + shape
+    two = (1,) * (2 - len(shape)) + shape if len(shape) <= 2 else (-1, shape[-1])
     return (shape if shape else (1,)), [np.broadcast_to(a, shape).reshape(two) for a in arrays]
+
+
+@numba.njit(inline="always", error_model="numpy")
+def _torque_pu_one(p, p_fw, p_ag_r, s_r):  # pragma: no cover - compiled
+    """One element of :func:`_torque_pu_fresh`: (y, scratch), the numpy rule's operations in order."""
+    u = (p + p_fw) / p_ag_r
+    w = u * (-4.0 * s_r) + 1.0
+    w = w if (w >= 0.0 or w != w) else 0.0  # numpy.maximum(w, 0): NaN stays NaN
+    w = np.sqrt(w) + 1.0
+    return (u * 2.0) / w, w
 
 
 @numba.njit(nogil=True, cache=True, error_model="numpy")
 def _torque_rows(p, p_fw, p_ag_r, s_r, y, work):  # pragma: no cover - compiled
-    """:func:`_torque_pu_fresh`'s pass over 2-D views of one shape (the numpy rule's operations, in order)."""
+    """:func:`_torque_pu_fresh`'s pass over 2-D arrays of one shape."""
     n, m = y.shape
     for i in range(n):
         for t in range(m):
-            u = (p[i, t] + p_fw[i, t]) / p_ag_r[i, t]
-            w = u * (-4.0 * s_r[i, t]) + 1.0
-            w = w if (w >= 0.0 or w != w) else 0.0  # numpy.maximum(w, 0): NaN stays NaN
-            w = np.sqrt(w) + 1.0
-            y[i, t] = (u * 2.0) / w
-            work[i, t] = w
+            y[i, t], work[i, t] = _torque_pu_one(p[i, t], p_fw[i, t], p_ag_r[i, t], s_r[i, t])
 
 
 def _aligned(params: InductionParams, kind: str, ndim: int) -> Callable[[str], np.ndarray]:
@@ -692,17 +683,11 @@ def _speed_of(p: np.ndarray, get: Callable[[str], np.ndarray]) -> np.ndarray:
     """n = n_s (1 - s_r y) of a numpy load ``p`` with the motors' fields from ``get`` (:func:`_aligned`)."""
     p_ag_r = get("rated_airgap_p_kw")
     shape = np.broadcast_shapes(p.shape, p_ag_r.shape)
-    rows = _as_rows(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"), get("sync_speed_rpm"))
-    if rows is not None:  # torque and speed in one compiled pass (the same operations)
-        _, views = rows
-        n = np.empty(views[0].shape)
-        _speed_rows(*views, n)
-        return n.reshape(shape)
-    y, _ = _torque_pu_fresh(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"))
-    y *= -get("rated_slip_frac")
-    y += 1.0
-    y *= get("sync_speed_rpm")  # n = n_s (1 - s_r y)
-    return y.reshape(shape)
+    # torque and speed in one compiled pass (the numpy rule's operations, in order)
+    _, rows = _as_rows(p, get("friction_windage_kw"), p_ag_r, get("rated_slip_frac"), get("sync_speed_rpm"))
+    n = np.empty(rows[0].shape)
+    _speed_rows(*rows, n)
+    return n.reshape(shape)
 
 
 @numba.njit(nogil=True, cache=True, error_model="numpy")
@@ -711,11 +696,7 @@ def _speed_rows(p, p_fw, p_ag_r, s_r, n_s, out):  # pragma: no cover - compiled
     n, m = out.shape
     for i in range(n):
         for t in range(m):
-            u = (p[i, t] + p_fw[i, t]) / p_ag_r[i, t]
-            w = u * (-4.0 * s_r[i, t]) + 1.0
-            w = w if (w >= 0.0 or w != w) else 0.0
-            w = np.sqrt(w) + 1.0
-            y = (u * 2.0) / w
+            y, _ = _torque_pu_one(p[i, t], p_fw[i, t], p_ag_r[i, t], s_r[i, t])
             out[i, t] = (y * (-s_r[i, t]) + 1.0) * n_s[i, t]
 
 

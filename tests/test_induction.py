@@ -520,7 +520,7 @@ class TestCompiledTorqueAndSpeed:
         return y, work, speed
 
     @settings(max_examples=50, deadline=None)
-    @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 30), st.sampled_from(["2d", "1d", "scalar"]))
+    @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 30), st.sampled_from(["2d", "1d", "scalar", "3d"]))
     def test_the_passes_are_the_numpy_rule(self, seed, n_motors, n_steps, layout):
         from models.induction import _aligned, _speed_rpm_unchecked, _torque_pu_fresh
 
@@ -533,6 +533,8 @@ class TestCompiledTorqueAndSpeed:
             p[rng.random(p.shape) < 0.1] = np.nan  # missing data propagates
         elif layout == "1d":
             p = rng.uniform(0.0, 1.4, n_motors) * rated
+        elif layout == "3d":  # motors on the last axis (as a load table's columns), two stacked tables
+            p = rng.uniform(0.0, 1.4, (2, n_steps, n_motors)) * rated
         else:
             m = calibrate_induction(15.0, 0.921, 0.84, 1465.0, 1500.0)
             p = float(rng.uniform(0.0, 20.0))
