@@ -45,7 +45,9 @@ def cmd_new(args: argparse.Namespace) -> int:
     print(f"Blank case written to {args.dir}:")
     for path in written:
         print(f"  {path}")
-    print("Fill in assets and sites (one row each), then run: drivecase check", args.dir)
+    # a workbook is checked by its own path; a folder of CSV tables by the folder
+    target = written[0] if len(written) == 1 and str(written[0]).lower().endswith(".xlsx") else args.dir
+    print("Fill in assets and sites (one row each), then run: drivecase check", target)
     return 0
 
 
@@ -58,7 +60,8 @@ def cmd_check(args: argparse.Namespace) -> int:
         _print_problems(problems)
         return 1
     s = case.settings
-    print(f"Case: {s.name}{' (invented demo data)' if s.invented else ''}")
+    invented = s.invented and "invented" not in s.name.lower()
+    print(f"Case: {s.name}{' (invented demo data)' if invented else ''}")
     print(f"  {len(case.assets)} assets, {case.assets['rated_p_kw'].sum():,.1f} kW installed, "
           f"{len(case.sites)} site(s), {len(case.profiles)} interval profile(s); currency {s.currency}; zone {s.time_zone}")
     summary = fleet_summary(case)
@@ -71,14 +74,42 @@ def cmd_check(args: argparse.Namespace) -> int:
     return 0
 
 
+#: Warnings of a valid case listed before a run or a report (``drivecase check`` lists them all).
+WARNINGS_SHOWN = 10
+
+
 def _load_or_report(path: str):
+    """The case, or None after printing why it is not valid; a valid case's warnings are printed too
+    (to standard error: they qualify the figures that follow)."""
     from models.case import load_case
 
     case, problems = load_case(path)
     if case is None:
         print(f"Case {path}: NOT VALID")
         _print_problems(problems)
+        return None
+    warnings = [p for p in problems if p.severity == "warning"]
+    if warnings:
+        print(f"Case {path}: {len(warnings)} warning(s); the values noted were used as described", file=sys.stderr)
+        for problem in warnings[:WARNINGS_SHOWN]:
+            print(f"  {problem}", file=sys.stderr)
+        if len(warnings) > WARNINGS_SHOWN:
+            print(f"  ... and {len(warnings) - WARNINGS_SHOWN} more: drivecase check {path} lists them all",
+                  file=sys.stderr)
     return case
+
+
+def _writes_into_case(case_path: str, out: str) -> bool:
+    """Whether an output folder is the case's own folder (or the folder of a case workbook)."""
+    from pathlib import Path
+
+    case_dir = Path(case_path)
+    if case_dir.suffix.lower() == ".xlsx":
+        case_dir = case_dir.parent
+    try:
+        return Path(out).resolve() == case_dir.resolve()
+    except OSError:
+        return False
 
 
 def cmd_bill(args: argparse.Namespace) -> int:
@@ -96,6 +127,15 @@ def cmd_bill(args: argparse.Namespace) -> int:
     if unknown:
         print(f"drivecase bill: unknown site {unknown[0]!r}; sites are {', '.join(case.sites['site_id'])}", file=sys.stderr)
         return 1
+    if args.reactive_sweep and args.reactive_sweep not in set(case.assets["asset_id"]):
+        print(f"drivecase bill: unknown asset {args.reactive_sweep!r} for --reactive-sweep (asset_id in the asset "
+              "register)", file=sys.stderr)
+        return 1
+    if args.capacitor_cost is not None and not args.capacitor_cost >= 0:
+        print("drivecase bill: --capacitor-cost must be >= 0", file=sys.stderr)
+        return 2
+    capacitor_cost = (float(case.finance.capacitor_cost_per_kvar) if args.capacitor_cost is None
+                      else float(args.capacitor_cost))
     op = operate(case)
     try:
         setups = site_setups(case, op.index)
@@ -117,12 +157,18 @@ def cmd_bill(args: argparse.Namespace) -> int:
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
               f"{balance['capacitor_kvarh'] / 1000:,.0f} MVArh; average power factor {balance['average_power_factor']:.3f}")
     if args.reactive_sweep:
-        curve = reactive_value_curve(case, op, args.reactive_sweep, args.capacitor_cost)
+        curve = reactive_value_curve(case, op, args.reactive_sweep, capacitor_cost)
         print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows, "
-              f"beside a capacitor bank at {args.capacitor_cost:g} {currency}/kVAr")
-        shown = curve[["supplied_q_kvar", "saving", "marginal_saving_per_kvar", "capacitor_bank_cost"]]
-        print("\n".join("  " + line for line in shown.to_string(index=False, float_format=lambda v: f"{v:,.1f}").splitlines()))
-        print("  The saving flattens once the site passes the tariff's threshold: kVAr beyond it is worth nothing.")
+              f"beside a capacitor bank at {capacitor_cost:g} {currency}/kVAr")
+        shown = curve[["supplied_q_kvar", "saving", "marginal_saving_per_kvar", "capacitor_bank_cost"]].rename(
+            columns={"supplied_q_kvar": "supplied [kVAr]", "saving": f"bill saving [{currency}/yr]",
+                     "marginal_saving_per_kvar": f"next kVAr [{currency}/kVAr/yr]",
+                     "capacitor_bank_cost": f"capacitor bank [{currency}]"})
+        text = shown.to_string(index=False, na_rep="-", float_format=lambda v: f"{v:,.1f}")
+        print("\n".join("  " + line for line in text.splitlines()))
+        print("  Leading kVAr is worth something only while it lowers a reactive charge of the tariff (kVArh beyond a "
+              "power-factor threshold, or kVA demand at the peak intervals); past that point more is worth nothing, "
+              "or costs where leading kVArh is charged. The capacitor bank is the yardstick.")
     print(f"\n{CAUTION}")
     return 0
 
@@ -145,11 +191,25 @@ def cmd_run(args: argparse.Namespace) -> int:
     if case is None:
         return 1
     assumptions = case.finance
+    if args.seed is not None and args.seed < 0:
+        print("drivecase run: --seed must be a whole number >= 0", file=sys.stderr)
+        return 2
     if args.seed is not None:
         assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
     if not (args.plan_gap >= 0 and args.plan_seconds > 0):
         print("drivecase run: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
         return 2
+    if _writes_into_case(args.case, args.out):
+        print("drivecase run: --out is the case's own folder; give another folder (a case's files are never "
+              "written to)", file=sys.stderr)
+        return 2
+    if args.engine == "dask":
+        try:
+            from models.distributed import run_distributed
+        except ImportError as exc:
+            print(f"drivecase run: the Dask engine needs the 'scale' extra (pip install -e '.[scale]'): {exc}",
+                  file=sys.stderr)
+            return 1
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     from models.estimate import estimate_run
 
@@ -166,8 +226,6 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     try:
         if args.engine == "dask":
-            from models.distributed import run_distributed
-
             site_bar = tqdm(total=len(case.sites), desc="sites", unit="site", file=sys.stderr, disable=args.quiet)
 
             def site_progress(_site_id: str, done: int, _total: int) -> None:
@@ -182,6 +240,13 @@ def cmd_run(args: argparse.Namespace) -> int:
     except ValueError as exc:
         bar.close()
         print(f"drivecase run: {exc}", file=sys.stderr)
+        return 1
+    except (OSError, TimeoutError) as exc:  # the Dask scheduler could not be reached
+        bar.close()
+        if args.engine != "dask":
+            raise
+        where = args.scheduler or "the local cluster"
+        print(f"drivecase run: could not work with the Dask scheduler at {where}: {exc}", file=sys.stderr)
         return 1
     bar.update(bar.total - bar.n)
     bar.close()
@@ -231,6 +296,10 @@ def cmd_report(args: argparse.Namespace) -> int:
     case = _load_or_report(args.case)
     if case is None:
         return 1
+    if _writes_into_case(args.case, args.out):
+        print("drivecase report: --out is the case's own folder; give another folder (a case's files are never "
+              "written to)", file=sys.stderr)
+        return 2
     assets = [a.strip() for a in args.assets.split(",")] if args.assets else None
     if assets:
         unknown = sorted(set(assets) - set(case.assets["asset_id"]))
@@ -255,7 +324,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     gap_frac, time_s = PRECISE_PLAN.gap_frac, PRECISE_PLAN.time_limit_s
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
-    sub = parser.add_subparsers(dest="command", required=True)
+    parser.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
+    sub = parser.add_subparsers(dest="command")
     p_new = sub.add_parser("new", help="write a blank case (CSV templates, or a workbook with --workbook)")
     p_new.add_argument("dir", help="new folder (or .xlsx file) to create")
     p_new.add_argument("--workbook", action="store_true", help="write one .xlsx workbook instead of CSV files")
@@ -268,8 +338,9 @@ def build_parser() -> argparse.ArgumentParser:
     p_bill.add_argument("--site", help="only this site")
     p_bill.add_argument("--reactive-sweep", metavar="ASSET",
                         help="also show how the bill saving of leading kVAr on this asset's site saturates")
-    p_bill.add_argument("--capacitor-cost", type=float, default=35.0,
-                        help="capacitor bank cost per kVAr for the comparison (default 35)")
+    p_bill.add_argument("--capacitor-cost", type=float, default=None, metavar="PER_KVAR",
+                        help="installed capacitor bank cost for the comparison [currency/kVAr] (default: the case's "
+                             "capacitor_cost_per_kvar in finance.toml)")
     p_bill.set_defaults(func=cmd_bill)
     p_run = sub.add_parser("run", help="run the whole analysis and write the result files")
     p_run.add_argument("case", help="case folder or .xlsx workbook")
@@ -307,9 +378,21 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("drivecase")
+    except PackageNotFoundError:
+        return "(not installed)"
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    if getattr(args, "func", None) is None:  # no command: the help, as for a wrong command line
+        parser.print_help(sys.stderr)
+        return 2
     return int(args.func(args))
 
 

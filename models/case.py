@@ -270,7 +270,8 @@ class _TableChecker:
                     hint = f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number"
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"
-                    self.err(i, name, value, f"'{name}' must be a number ({note})", hint)
+                    rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
+                    self.err(i, name, value, rule, hint)
             lo = float(spec["min"]) if spec["min"] else -np.inf
             hi = float(spec["max"]) if spec["max"] else np.inf
             bad = np.flatnonzero(~np.isnan(numbers) & ((numbers < lo) | (numbers > hi)))
@@ -587,17 +588,27 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                   "resample the data to 15-min, 30-min or hourly means"))
             continue
         rows_unique = rows_sorted[~dup]
-        gaps = np.flatnonzero(step > resolution + 1e-6)
-        if len(gaps):
-            n_missing = int(np.sum(np.round(step[gaps] / resolution) - 1))
-            first = t_unique[gaps[0]] + pd.Timedelta(minutes=resolution)
-            problems.append(warning(source, int(rows_unique[gaps[0] + 1]), header("timestamp"), str(first),
+        # every timestamp on the profile's grid: the resolution's phase that most stamps share
+        res_us = int(round(resolution * 60e6))
+        phase = np.mod(t_unique.as_unit("us").asi8, res_us)
+        values_, counts_ = np.unique(phase, return_counts=True)
+        off = np.flatnonzero(phase != values_[np.argmax(counts_)])
+        _listed(problems, off,
+                lambda j: error(source, int(rows_unique[j]), header("timestamp"), str(t_unique[j]),
+                                f"timestamp off the {resolution:g}-min grid of profile '{profile_id}'",
+                                "keep one resolution per profile, each interval starting on it (e.g. hourly on the "
+                                "hour)"),
+                lambda n: error(source, None, header("timestamp"), None,
+                                f"{n} more timestamps off the grid of '{profile_id}'"))
+        on = np.setdiff1d(np.arange(len(t_unique)), off)
+        step_on = np.diff(t_unique.as_unit("us").asi8[on]) / 60e6
+        gaps = np.flatnonzero(step_on > resolution + 1e-6)
+        if len(gaps) and not len(off):
+            n_missing = int(np.sum(np.round(step_on[gaps] / resolution) - 1))
+            first = t_unique[on[gaps[0]]] + pd.Timedelta(minutes=resolution)
+            problems.append(warning(source, int(rows_unique[on[gaps[0] + 1]]), header("timestamp"), str(first),
                                     f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}",
                                     "missing intervals are filled from the same weekday and time of day"))
-        odd = np.flatnonzero(step < resolution - 1e-6)
-        for j in odd[:5]:
-            problems.append(error(source, int(rows_unique[j + 1]), header("timestamp"), str(t_unique[j + 1]),
-                                  f"irregular interval in profile '{profile_id}'", "keep one resolution per profile"))
         coverage_days = (t_unique[-1] - t_unique[0]).total_seconds() / 86400 + resolution / 1440
         if coverage_days < 364.5:
             problems.append(warning(source, None, header("profile_id"), profile_id,
@@ -1175,7 +1186,7 @@ def fleet_summary(case: Case) -> dict[str, pd.DataFrame]:
     -------
     dict of str -> pandas.DataFrame
         ``by_site`` (site_id, assets, installed_kw), ``by_application`` (application, assets, installed_kw),
-        ``defaulted`` (column, assets, basis examples) and ``quality`` (site_id, mean data_quality_pct).
+        ``defaulted`` (column, assets, basis: one row per column and basis) and ``quality`` (site_id, mean data_quality_pct).
     """
     a = case.assets
     by_site = (a.groupby("site_id", sort=True)
@@ -1185,7 +1196,7 @@ def fleet_summary(case: Case) -> dict[str, pd.DataFrame]:
     if case.defaults.empty:
         defaulted = pd.DataFrame(columns=["column", "assets", "basis"])
     else:
-        defaulted = (case.defaults.groupby("column", sort=True)
-                     .agg(assets=("asset_id", "nunique"), basis=("basis", "first")).reset_index())
+        defaulted = (case.defaults.groupby(["column", "basis"], sort=True)
+                     .agg(assets=("asset_id", "nunique")).reset_index()[["column", "assets", "basis"]])
     quality = a.groupby("site_id", sort=True)["data_quality_pct"].mean().round(1).reset_index()
     return {"by_site": by_site, "by_application": by_application, "defaulted": defaulted, "quality": quality}

@@ -226,6 +226,18 @@ class TestProfileRules:
         assert case is not None
         assert "misses 3 interval" in _find(problems, file="profiles.csv", severity="warning", text="misses").rule
 
+    def test_timestamp_off_the_grid_named_at_its_own_row(self, tmp_path):
+        # an hourly profile with one stamp moved to 20:07: that row (data row 21, line 22 with the header) and
+        # its value are named, and neither a bogus gap nor the next, valid stamp is reported
+        rows = cb.profile_rows()
+        rows[20][1] = "2025-01-02 20:07"
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is None
+        p = _find(problems, file="profiles.csv", column="timestamp", text="off the 60-min grid")
+        assert p.row == 22 and str(p.value).startswith("2025-01-02 20:07")
+        assert [q for q in _errors(problems) if q.file == "profiles.csv"] == [p]
+        assert not [q for q in problems if "misses" in q.rule]
+
     def test_resolution_not_allowed(self, tmp_path):
         rows = [["LP1", f"2025-01-02 00:{m:02d}", "50"] for m in range(0, 60, 10)]
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
@@ -348,3 +360,19 @@ class TestDemoCase:
         info = demo_case.profile_info
         assert (info["coverage_days"] >= 365).all()
         assert set(info["resolution_min"]) <= {15, 60}
+
+
+def test_fleet_summary_counts_each_default_basis_on_its_own_row():
+    # the demo's efficiency defaults come from three bases (assumed class by year, IE1 or IE2 minimum plus a
+    # catalogue margin): each gets its own row and count, the counts read straight from the defaults table
+    from models.case import fleet_summary
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
+    table = fleet_summary(case)["defaulted"]
+    eff = table[table["column"] == "rated_efficiency_pct"]
+    assert len(eff) >= 2 and eff["basis"].is_unique
+    d = case.defaults
+    for basis, assets in zip(eff["basis"], eff["assets"]):
+        rows = d[(d["column"] == "rated_efficiency_pct") & (d["basis"] == basis)]
+        assert assets == rows["asset_id"].nunique()
+    assert eff["assets"].sum() == d.loc[d["column"] == "rated_efficiency_pct", "asset_id"].nunique()

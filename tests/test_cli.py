@@ -125,3 +125,77 @@ def test_run_plan_limits(tmp_path, capsys):
     assert "proven within" in line or "optimal" in line
     if "proven within" in line:
         assert float(line.split("proven within ")[1].split(" %")[0]) <= 5.0
+
+
+def test_no_command_prints_help_and_version_is_known(capsys):
+    assert main([]) == 2
+    assert "usage: drivecase" in capsys.readouterr().err
+    with pytest.raises(SystemExit) as info:
+        main(["--version"])
+    assert info.value.code == 0
+    assert capsys.readouterr().out.startswith("drivecase ")
+
+
+def test_bill_unknown_sweep_asset_is_refused_before_any_output(capsys):
+    assert main(["bill", str(DEMO), "--site", "KGQ", "--reactive-sweep", "NO-SUCH"]) == 1
+    captured = capsys.readouterr()
+    assert "unknown asset 'NO-SUCH'" in captured.err and "Traceback" not in captured.err
+    assert "Site KGQ" not in captured.out  # refused before the bills were printed
+
+
+def test_bill_sweep_prices_the_bank_at_the_case_cost_unless_given(tmp_path, capsys):
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    finance = case / "finance.toml"
+    text = finance.read_text(encoding="utf-8")
+    assert "capacitor_cost_per_kvar = 35.0" in text
+    finance.write_text(text.replace("capacitor_cost_per_kvar = 35.0", "capacitor_cost_per_kvar = 60.0"), encoding="utf-8")
+    assert main(["bill", str(case), "--site", "KGQ", "--reactive-sweep", "KGQ-CR01"]) == 0
+    out = capsys.readouterr().out
+    assert "capacitor bank at 60 EUR/kVAr" in out
+    assert "nan" not in out.lower()  # the first point has no marginal value: shown as '-'
+    assert "[EUR/yr]" in out and "[kVAr]" in out
+    assert main(["bill", str(case), "--site", "KGQ", "--reactive-sweep", "KGQ-CR01", "--capacitor-cost", "20"]) == 0
+    assert "capacitor bank at 20 EUR/kVAr" in capsys.readouterr().out
+
+
+def test_run_refuses_negative_seed_and_the_case_folder_as_output(tmp_path, capsys):
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    before = sorted(p.name for p in case.iterdir())
+    assert main(["run", str(case), "--out", str(tmp_path / "o"), "--seed", "-5", "--quiet"]) == 2
+    assert "--seed" in capsys.readouterr().err
+    assert main(["run", str(case), "--out", str(case), "--quiet", "--no-risk"]) == 2
+    assert "own folder" in capsys.readouterr().err
+    assert main(["report", str(case), "--out", str(case)]) == 2
+    assert "own folder" in capsys.readouterr().err
+    assert sorted(p.name for p in case.iterdir()) == before
+
+
+def test_run_prints_the_case_warnings(tmp_path, capsys):
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    finance = folder / "finance.toml"
+    finance.write_text(finance.read_text(encoding="utf-8") + "horizon_years = 15\n", encoding="utf-8")
+    assert main(["run", str(folder), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
+    err = capsys.readouterr().err
+    assert "warning(s)" in err and "horizon_years" in err
+
+
+def test_run_dask_without_its_package_gives_a_message(tmp_path, capsys, monkeypatch):
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    monkeypatch.setitem(sys.modules, "models.distributed", None)  # as if the 'scale' extra were not installed
+    assert main(["run", str(folder), "--out", str(tmp_path / "o"), "--no-risk", "--quiet", "--engine", "dask"]) == 1
+    err = capsys.readouterr().err
+    assert "scale" in err and "Traceback" not in err
+
+
+def test_new_workbook_in_a_folder_points_check_at_the_workbook(tmp_path, capsys):
+    assert main(["new", str(tmp_path / "blank"), "--workbook"]) == 0
+    out = capsys.readouterr().out
+    assert f"drivecase check {tmp_path / 'blank' / 'case.xlsx'}" in out
