@@ -37,7 +37,8 @@ def neutralise_text(value: object) -> object:
 
 
 def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
-    """Return a copy whose text cells are neutralised (:func:`neutralise_text`).
+    """Return a copy whose text cells are neutralised (:func:`neutralise_text`) and whose negative zeros
+    are plain zeros (a "-0" in a file reads as a sign error).
 
     Text columns are tested in one vectorised pass (a cash-flow table of millions of rows would otherwise
     take a Python call per cell); columns of mixed objects cell by cell.
@@ -45,7 +46,11 @@ def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
     out = frame.copy()
     for column in out.columns:
         series = out[column]
-        if series.dtype == object:
+        if series.dtype == np.float64:
+            values = series.to_numpy()
+            if np.signbit(values[values == 0.0]).any():
+                out[column] = values + 0.0  # -0.0 + 0.0 is +0.0; every other value is unchanged
+        elif series.dtype == object:
             out[column] = series.map(neutralise_text)
         elif pd.api.types.is_string_dtype(series.dtype):
             risky = series.str.startswith(FORMULA_STARTS).fillna(False).to_numpy(dtype=bool)

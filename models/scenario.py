@@ -515,7 +515,9 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     })
     results.loc[is_keep, ["irr_frac", "mirr_frac", "sir", "airr_frac"]] = np.nan
     results.loc[is_keep, "irr_status"] = "none"
-    results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = 0.0
+    # keeping today's motor invests nothing: no payback to state (blank), and none within the horizon
+    results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
+    results.loc[is_keep, "payback_within_horizon"] = False
     results["best_for_asset"] = _best_flags(results)
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)

@@ -79,10 +79,11 @@ class TestColumnByColumnWriter:
         assert csv_bytes(frame) == self.pandas_bytes(frame)
 
     def test_hand_written_example(self):
-        # hand: header, then each row's fields joined by commas; NaN and missing text empty, -0.0 as "-0"
+        # hand: header, then each row's fields joined by commas; NaN and missing text empty, -0.0 as a plain 0
         frame = pd.DataFrame({"a": pd.array(["x", None], dtype="str"), "b": [np.nan, -0.0], "c": [3, 4],
                               "d": [True, False]})
-        assert csv_bytes(frame) == b"a,b,c,d\nx,,3,True\n,-0,4,False\n"
+        assert csv_bytes(frame) == b"a,b,c,d\nx,,3,True\n,0,4,False\n"
+        assert np.signbit(frame.loc[1, "b"])  # the caller's table keeps its value
 
     def test_fields_that_would_be_quoted_go_to_pandas(self):
         from models.exports import _csv_bytes_by_columns

@@ -156,6 +156,13 @@ class TestWorkbookOpens:
         formats = {ws.cell(r, c).number_format for r in range(4, 10) for c in range(1, ws.max_column + 1)}
         assert any('"EUR"' in f for f in formats)
 
+    def test_money_headers_name_the_currency(self, asset_pack):
+        ws = load_workbook(asset_pack)["Results"]
+        headers = [ws.cell(3, c).value for c in range(1, ws.max_column + 1)]
+        money = [h for h, c in zip(headers, range(1, ws.max_column + 1)) if '"EUR"' in ws.cell(4, c).number_format]
+        assert money and all("[EUR" in h for h in money), money
+        assert "Bill saving [EUR/yr]" in headers and "NPV [EUR]" in headers and "Abatement cost [EUR/t]" in headers
+
 
 @pytest.fixture(scope="module")
 def values(asset_pack):

@@ -125,6 +125,7 @@ class _Formats:
 
     def __init__(self, currency: str):
         code = re.sub(r"[^A-Za-z]", "", currency)[:8] or "CUR"
+        self.currency = code
         self.money = f'#,##0 "{code}";-#,##0 "{code}"'
         self.money2 = f'#,##0.00 "{code}";-#,##0.00 "{code}"'
         self.frac = "0.0%"
@@ -255,7 +256,16 @@ _RESULT_COLUMNS = [
 ]
 
 
+def _with_currency(header: str, currency: str) -> str:
+    """A money column's header with its unit: "[/yr]" -> "[EUR/yr]", no unit -> "[EUR]"."""
+    if "[/" in header:
+        return header.replace("[/", f"[{currency}/")
+    return f"{header} [{currency}]"
+
+
 def _engine_payback(value: float) -> Any:
+    if math.isnan(value):  # nothing invested (keep today's motor): no payback to state
+        return "-"
     return value if math.isfinite(value) else "not within horizon"
 
 
@@ -277,7 +287,7 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
     res["simple_payback_text"] = [_engine_payback(v) for v in res["simple_payback_yr"]]
     res["discounted_payback_text"] = [_engine_payback(v) for v in res["discounted_payback_yr"]]
     fmt = {"money": f.money, "frac": f.frac, "years": f.years, "number": f.number, "whole": f.whole, None: None}
-    cols = [(c, h, fmt[k]) for c, h, k in _RESULT_COLUMNS]
+    cols = [(c, _with_currency(h, f.currency) if k == "money" else h, fmt[k]) for c, h, k in _RESULT_COLUMNS]
     _table(ws, 3, res, cols)
     ws.freeze_panes = "C4"
     _widths(ws, {1: 12, 2: 12, 3: 34, 4: 16} | {k: 14 for k in range(5, len(cols) + 1)} | {len(cols): 60})
@@ -609,11 +619,12 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
     else:
         frame = eol[eol["asset_id"].isin(list(scope.asset_ids))]
         cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None),
-                ("failure_probability_in_horizon_frac", "Failure probability in horizon", f.frac),
+                ("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
                 ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
-                ("cost_replace_now", "Replace now", f.money), ("cost_replace_at_failure", "Replace at failure", f.money),
-                ("cost_rewind_at_failure", "Rewind at failure", f.money), ("best_strategy", "Cheapest", None),
-                ("advantage_over_next", "Advantage over the next", f.money)]
+                ("cost_replace_now", f"Replace now [{f.currency}]", f.money),
+                ("cost_replace_at_failure", f"Replace at failure [{f.currency}]", f.money),
+                ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
+                ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
         row = _table(ws, row, frame, cols)
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
