@@ -146,7 +146,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
     currency = case.settings.currency
     for site_id in sites:
         table = monthly_bill_table(bills, site_id)
-        table.index = [str(m)[:7] for m in table.index]
+        table.index = pd.Index([str(m)[:7] for m in table.index], name="month")
+        table.columns.name = None
+        table.loc["year"] = table.sum(axis=0)
         meter = meters[site_id]
         energy = float(np.sum(meter.p_kw) * op.interval_h)
         print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}]")
@@ -276,11 +278,16 @@ def _print_run_summary(case, result) -> None:
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")
-    top = best.sort_values("npv", ascending=False).head(10)
-    table = top[["asset_id", "option_id", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr"]].rename(
+    top = best.sort_values("npv", ascending=False).head(10).copy()
+    planned = set(zip(plan["asset_id"], plan["option_id"]))
+    top["in_plan"] = ["yes" if key in planned else "no" for key in zip(top["asset_id"], top["option_id"])]
+    for column in ("capital", "bill_saving_per_yr", "npv"):  # whole currency units
+        top[column] = [f"{v:,.0f}" for v in top[column]]
+    table = top[["asset_id", "option_id", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
         columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"saving [{currency}/yr]",
-                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]"})
-    _print_table(table, "Ten best projects by NPV")
+                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]", "in_plan": "in the plan"})
+    _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
+                        "option or none)")
 
 
 def cmd_serve(args: argparse.Namespace) -> int:

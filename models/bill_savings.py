@@ -587,9 +587,15 @@ def plan_bill_savings(case, op, choice: np.ndarray, capacitor_cost_per_kvar: flo
 
 
 def monthly_bill_table(bills: pd.DataFrame, site_id: str) -> pd.DataFrame:
-    """Pivot one site's bills to months x line items (plus a total column) [currency]."""
+    """Pivot one site's bills to months x line items (plus a total column) [currency].
+
+    The line items keep the bill's own order (a tax after the items it is levied on), not the alphabet's.
+    """
     frame = bills[bills["site_id"] == site_id]
     table = frame.pivot_table(index="month", columns="line_item", values="amount", aggfunc="sum", sort=True).fillna(0.0)
+    order = [item for item in pd.unique(frame["line_item"]) if item in table.columns]
+    table = table[order]
+    table.columns.name = "line_item"
     table["total"] = table.sum(axis=1)
     return table
 

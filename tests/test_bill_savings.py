@@ -88,6 +88,9 @@ def test_monthly_table_totals(small):
     assert_allclose(table["total"].sum(), bills["amount"].sum(), rtol=1e-12)
     # a four-week profile is extended to the analysis year, so the bill has twelve months
     assert list(table.index) == [f"2025-{m:02d}" for m in range(1, 13)]
+    # line items in the bill's own order (taxes after what they are levied on), not alphabetical
+    site = bills[bills["site_id"] == "S1"]
+    assert list(table.columns[:-1]) == list(dict.fromkeys(site["line_item"]))
 
 
 def test_existing_automatic_bank_leaves_no_reactive_value(small):
@@ -113,3 +116,4 @@ def test_bill_command_prints_months_by_line_item(capsys):
     out = capsys.readouterr().out
     assert "Site KGQ" in out and "2025-01" in out and "2025-12" in out and "2024-12" not in out
     assert "capacitor bank" in out and "qualified persons" in out
+    assert "\n  year " in out and "line_item" not in out  # a yearly total row; months headed as such
