@@ -359,3 +359,12 @@ class TestBlockFormulasByHand:
         assert_allclose([as_float(c["Simple payback [yr]"]), as_float(c["Discounted payback [yr]"])], 0.0,
                         atol=1e-12)  # hand, case C: S_0 = 0 has paid back at once
         assert c["IRR"] == "none"
+
+
+def test_defaulted_inputs_are_numbers_to_six_digits():
+    # the data-quality sheet shows a defaulted efficiency or speed as a number cell, not 17 digits of text
+    from models.pack.workbook import _default_value
+
+    assert _default_value("0.8962932127617428") == 0.896293  # hand: 6 significant digits
+    assert _default_value(974.9238910196385) == 974.924
+    assert _default_value("induction") == "induction" and _default_value(None) == ""

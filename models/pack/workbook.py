@@ -161,6 +161,19 @@ def _table(ws: Worksheet, top: int, frame: pd.DataFrame, columns: list[tuple[str
     return row + 1
 
 
+def _default_value(value: Any) -> Any:
+    """A defaulted input as written to a cell: a number to 6 significant digits (a number cell), else text."""
+    if isinstance(value, (bool, np.bool_)) or value is None:
+        return "" if value is None else str(value)
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        return float(f"{float(value):.6g}") if math.isfinite(float(value)) else str(value)
+    try:  # numbers kept as text by the defaults table
+        number = float(str(value))
+    except ValueError:
+        return str(value)
+    return float(f"{number:.6g}") if math.isfinite(number) else str(value)
+
+
 def _widths(ws: Worksheet, widths: dict[int, float]) -> None:
     for col, width in widths.items():
         ws.column_dimensions[get_column_letter(col)].width = width
@@ -187,7 +200,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
         put(ws, row + 1 + k, 2, value)
     row += len(settings) + 2
 
-    _header(ws, row, ["Finance assumption", "Value", "Unit", "Meaning", "Program default?"])
+    _header(ws, row, ["Finance assumption", "Value", "Unit", "Meaning", "Same as the program default?"])
     row += 1
     for item in content.finance_rows(result.assumptions):
         key, value = item["key"], item["value"]
@@ -594,7 +607,8 @@ def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
                                        ("data_quality_pct", "Data quality [%]", "0"),
                                        ("n_defaulted", "Defaulted fields", "0")])
     put_text(ws, row, 1, "Every defaulted input").font = _BOLD
-    row = _table(ws, row + 1, defaults.astype({"value": str}) if not defaults.empty else defaults,
+    row = _table(ws, row + 1, defaults.assign(value=[_default_value(v) for v in defaults["value"]])
+                 if not defaults.empty else defaults,
                  [("asset_id", "Asset", None), ("column", "Field", None), ("value", "Value used", None),
                   ("basis", "Basis", None)])
     put_text(ws, row, 1, "Flags raised by the machine models").font = _BOLD
