@@ -498,6 +498,24 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
+#: Flag of a synchronous-speed machine whose load goes beyond its rating.
+_OVERLOAD_TEXT = "at synchronous speed the load exceeds the motor rating in some intervals: size up or remedy the speed"
+
+
+def _held_beyond_cap(shaft: np.ndarray, shaft_eval: np.ndarray) -> np.ndarray | None:
+    """Input scale beyond a model's load cap: shaft / cap where the load exceeds the cap, else 1 (None
+    when it never does).
+
+    A machine model evaluated at its cap (``shaft_eval = min(shaft, cap)``) gives the input of the capped
+    load; multiplied by this, the input of the actual load at the cap's efficiency (losses scale with
+    it), so input = shaft + losses still holds and the efficiency never passes the cap's.
+    """
+    over = shaft > shaft_eval
+    if not over.any():
+        return None
+    return np.where(over, shaft / np.where(shaft_eval > 0.0, shaft_eval, 1.0), 1.0)
+
+
 def _line_start_pm(arr, load: _Load, option: Mapping) -> _Point:
     eff = class_efficiency_frac(arr, option["efficiency_class"])
     sync = arr["sync_rpm"][:, None]
@@ -506,18 +524,21 @@ def _line_start_pm(arr, load: _Load, option: Mapping) -> _Point:
     flags: list[tuple[int, str]] = []
     over = np.flatnonzero((shaft > OVERLOAD_FLAG_FRAC * rated + 1e-9).any(axis=1))
     for i in over:
-        flags.append((int(i), "at synchronous speed the load exceeds the motor rating in some intervals: size up or remedy the speed"))
+        flags.append((int(i), _OVERLOAD_TEXT))
     shaft_eval = np.minimum(shaft, 1.2 * rated)
     pt = synchronous.lspm_operating_point(shaft_eval, arr["rated_p_kw"], eff, arr["poles"], arr["f_hz"])
     run = load.running
-    p = np.where(run, pt.p_in_kw, 0.0)
+    scale = _held_beyond_cap(shaft, shaft_eval)
+    p_in = pt.p_in_kw if scale is None else pt.p_in_kw * scale
+    p = np.where(run, p_in, 0.0)
     inertia, start_torque = (np.array([START_DUTY_SCREEN.get(d, START_DUTY_SCREEN["normal"])[k] for d in arr["start_duty"]])
                              for k in (0, 1))
     screen = synchronous.lspm_starting_screen(inertia, start_torque, SCREEN_STARTS_PER_HOUR, SCREEN_VOLTAGE_DIP_FRAC)
     for i in np.flatnonzero(np.asarray(screen.status) != "ok"):
         flags.append((int(i), f"line-start screen: {screen.status[i]} ({screen.reasons[i]})"))
+    loss = pt.p_in_kw - shaft_eval if scale is None else p_in - shaft
     return _Point(p, np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
-                  np.where(run, pt.p_in_kw - shaft_eval, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
+                  np.where(run, loss, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
 
 
 def _synchronous_on_drive(arr, load: _Load, option: Mapping, kind: str) -> _Point:
@@ -572,13 +593,22 @@ def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
     if mode == "follow_site" and site_other is None:
         for i in range(len(rated)):
             flags.append((i, "no interval data: runs at its power-factor setpoint instead of following the site"))
+    for i in np.flatnonzero((shaft > OVERLOAD_FLAG_FRAC * rated[:, None] + 1e-9).any(axis=1)):
+        flags.append((int(i), _OVERLOAD_TEXT))
     loss_exc = np.add(pt.field_copper_loss_kw, pt.exciter_loss_kw)
-    loss_motor = np.subtract(pt.p_in_kw, shaft_eval)
+    scale = _held_beyond_cap(shaft, shaft_eval)
+    p_in = pt.p_in_kw
+    if scale is None:
+        loss_motor = np.subtract(p_in, shaft_eval)
+    else:  # beyond the evaluation cap the input follows the load at the cap's efficiency
+        p_in = p_in * scale
+        loss_exc *= scale
+        loss_motor = np.subtract(p_in, shaft)
     loss_motor -= loss_exc
     stopped = ~run
     # 0 where the machine stands still, as numpy.where(run, value, 0) would give; in place where the value
     # is this call's own array
-    p_in, q, loss_motor, loss_exc = (_zero_where(v, stopped) for v in (pt.p_in_kw, pt.q_kvar, loss_motor, loss_exc))
+    p_in, q, loss_motor, loss_exc = (_zero_where(v, stopped) for v in (p_in, pt.q_kvar, loss_motor, loss_exc))
     return _Point(p_in, q, shaft, np.where(run, speed, 0.0), loss_motor, _zeros(shaft.shape), loss_exc, flags)
 
 

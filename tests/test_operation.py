@@ -162,3 +162,39 @@ def test_performance_curves_shape(demo_case):
     # published shape (US DOE fact sheet, REFERENCES 12): PF falls as load falls
     assert (np.diff(keep["power_factor"].to_numpy()) > -1e-9).all()
     assert {"keep", "ie3", "lspm", "pm_drive"} <= set(curves.option_id)
+
+
+def test_efficiency_never_passes_the_cap_of_a_capped_model(demo_case):
+    # the wound-field (evaluated up to 110 % of rating) and line-start PM (120 %) models are evaluated at their
+    # cap beyond it; the input then follows the load at the cap's efficiency (energy balance: input = shaft +
+    # losses), so no curve passes 100 % and the efficiency is flat beyond the cap (hand reasoning, no number)
+    for asset_id, option_id, cap in (("KGQ-AC01", "wfsm", 1.1), ("KGQ-CR01", "wfsm", 1.1)):
+        curves = performance_curves(demo_case, asset_id)
+        assert (curves["efficiency_frac"].dropna() < 1.0).all()
+        rated = float(demo_case.assets.set_index("asset_id").loc[asset_id, "rated_p_kw"])
+        rows = curves[curves.option_id == option_id]
+        beyond = rows[rows["shaft_p_kw"] > cap * rated * (1 + 1e-9)]
+        assert len(beyond) >= 2  # the default sweep reaches 125 % of today's load
+        assert np.ptp(beyond["efficiency_frac"].to_numpy()) < 1e-12
+        assert (beyond["p_in_kw"] > beyond["shaft_p_kw"]).all()
+
+
+def test_wound_field_overload_is_flagged(demo_case):
+    # the same sweep as the performance curves: a load that reaches 125 % of rating on the wound-field option
+    # is flagged, one that stays at 50 % is not
+    import numpy as np_
+
+    from models import operation as o
+
+    a = demo_case.assets
+    pos = np_.flatnonzero(a["asset_id"].to_numpy(dtype=object) == "KGQ-AC01")
+    arr = o._take(o.asset_arrays(a), pos)
+    existing = o.existing_motor(arr)
+    option = o.options_with_baseline(demo_case.options).set_index("option_id").loc["wfsm"].copy()
+    option["option_id"] = "wfsm"
+    texts = []
+    for top in (0.5, 1.25):
+        loads = np_.linspace(0.05, top, 9)[None, :]
+        load = o._reference_load(arr, existing, loads, np_.zeros(1, dtype=bool), np_.ones(loads.shape))
+        texts.append([t for _, t in o._evaluate(option, arr, existing, load).flags])
+    assert o._OVERLOAD_TEXT not in texts[0] and o._OVERLOAD_TEXT in texts[1]
