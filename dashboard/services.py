@@ -22,6 +22,7 @@ import atexit
 import base64
 import binascii
 import hashlib
+import math
 import re
 import shutil
 import tempfile
@@ -723,18 +724,55 @@ def edit_assumptions(entry_key: str, base, current: dict | None, **fields) -> tu
     ``budget_per_yr``. On an error the edits are None and the text says what is wrong.
     """
     edits = dict(current) if isinstance(current, dict) and current.get("case") == entry_key else {"case": entry_key}
-    labels = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "Energy price escalation",
-              "horizon_yr": "Horizon", "energy_price_level_pct": "Electricity price level",
-              "capital_cost_level_pct": "Capital cost level"}
     for name, value in fields.items():
-        if name in labels and (value is None or value == ""):
-            return None, f"{labels[name]}: enter a number."
+        if name in FORM_FIELDS and (value is None or value == ""):
+            return None, f"{FORM_FIELDS[name]}: enter a number."
+        if name in FORM_FIELDS:
+            problem = _form_field_problem(name, value)
+            if problem:
+                return None, f"Not applied: {problem}"
         edits[name] = value
     try:
         assumptions_with_edits(base, edits)
     except (TypeError, ValueError) as exc:
         return None, f"Not applied: {exc}"
     return edits, ""
+
+
+#: The assumptions form's fields and their labels as the page shows them.
+FORM_FIELDS = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "Energy price escalation",
+               "horizon_yr": "Horizon", "energy_price_level_pct": "Electricity price level",
+               "capital_cost_level_pct": "Capital cost level"}
+
+
+def _form_field_problem(name: str, value) -> str:
+    """What is wrong with one form value, in the form's own words and units ("" when nothing is); the
+    ranges are those :class:`models.finance.FinanceAssumptions` accepts, in percent where the form is."""
+    label = FORM_FIELDS[name]
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return f"{label}: enter a number."
+    if not math.isfinite(number):
+        return f"{label}: enter a finite number."
+    if name in ("discount_rate_pct", "escalation_energy_pct") and not -100.0 < number < 100.0:
+        return f"{label}: must lie between -100 and 100 %/yr (e.g. 8 for 8 %)."
+    if name == "horizon_yr" and not (number.is_integer() and 1 <= number <= 100):
+        return f"{label}: must be a whole number of years from 1 to 100."
+    if name in ("energy_price_level_pct", "capital_cost_level_pct") and not number > 0.0:
+        return f"{label}: must be above 0 % (100 % = as written)."
+    return ""
+
+
+def assumption_notes(edits: dict | None) -> str:
+    """A caution about edits that are accepted but unusual ("" when there is none)."""
+    if not isinstance(edits, dict):
+        return ""
+    rate = edits.get("discount_rate_pct")
+    if rate is not None and float(rate) < 0.0:
+        return ("Applied. A negative discount rate values future savings above money today: check it is meant "
+                "(real rates below zero do occur when inflation exceeds interest).")
+    return ""
 
 
 def edits_change(view_: View, new_edits: dict) -> bool:

@@ -87,7 +87,7 @@ def test_assumption_form_and_edits(engine):
     refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, None, None, None, None, None, None, None, None)
     assert refused is no_update and "horizon" in message.lower()
     refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, None, None, None, None, None, None, None, None)
-    assert refused is no_update and "energy_price_factor" in message
+    assert refused is no_update and "Electricity price level: must be above 0 %" in message
     assert inputs.reset(1, None) == values
 
 

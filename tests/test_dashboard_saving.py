@@ -245,7 +245,7 @@ class TestSaveCallback:
         assert session_out is no_update and edits_out is None and download is no_update
 
     def test_a_form_error_saves_nothing(self, engine, case_dir):
-        assert inputs.save(1, *form(horizon=0))[2].startswith("Not saved: Not applied: horizon_yr")
+        assert inputs.save(1, *form(horizon=0))[2].startswith("Not saved: Not applied: Horizon: must be a whole number")
         assert inputs.save(1, *form(budget=("250000", "", "1")))[2].startswith("Not saved: Year 1 is blank")
         assert not (case_dir / ".versions").exists()
 

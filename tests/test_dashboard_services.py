@@ -340,12 +340,24 @@ class TestEdits:
         assert services.assumptions_with_edits(base, form) == base
 
     @pytest.mark.parametrize("fields, words", [
-        ({"horizon_yr": 0}, "horizon"), ({"horizon_yr": 12.5}, "whole"), ({"discount_rate_pct": None}, "Discount"),
-        ({"discount_rate_pct": -150}, "discount"),
+        ({"horizon_yr": 0}, "Horizon: must be a whole number of years from 1 to 100"),
+        ({"horizon_yr": 12.5}, "whole number"), ({"discount_rate_pct": None}, "Discount rate: enter a number"),
+        ({"discount_rate_pct": -150}, "between -100 and 100 %/yr"), ({"discount_rate_pct": 1e9}, "between -100 and 100"),
+        ({"energy_price_level_pct": 0}, "Electricity price level: must be above 0 %"),
+        ({"capital_cost_level_pct": -5}, "Capital cost level: must be above 0 %"),
+        ({"escalation_energy_pct": float("nan")}, "finite"),
     ])
-    def test_refused_edits_say_why(self, engine, fields, words):
+    def test_refused_edits_say_why_in_the_forms_words(self, engine, fields, words):
         edits, message = services.edit_assumptions(engine.default_key, engine.default_entry().case.finance, None, **fields)
         assert edits is None and words.lower() in message.lower()
+        assert "_frac" not in message and "_pct" not in message  # no code names on the page
+
+    def test_a_negative_discount_rate_is_applied_with_a_caution(self, engine):
+        edits, message = services.edit_assumptions(engine.default_key, engine.default_entry().case.finance, None,
+                                                   discount_rate_pct=-5)
+        assert edits is not None and message == ""
+        assert "negative discount rate" in services.assumption_notes(edits)
+        assert services.assumption_notes({"discount_rate_pct": 5}) == ""
 
     def test_view_reports_a_bad_stored_edit_and_keeps_the_case_values(self, engine):
         v = services.view(None, {"case": engine.default_key, "horizon_yr": -3})

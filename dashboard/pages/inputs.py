@@ -63,11 +63,11 @@ def layout(**_query):
                     html.Div([html.Label("Energy price escalation [%/yr]", htmlFor=ESCALATION),
                               dcc.Input(id=ESCALATION, type="number", step="any", debounce=True)], className="field"),
                     html.Div([html.Label("Horizon [yr]", htmlFor=HORIZON),
-                              dcc.Input(id=HORIZON, type="number", min=1, max=100, step=1, debounce=True)], className="field"),
+                              dcc.Input(id=HORIZON, type="number", step="any", debounce=True)], className="field"),
                     html.Div([html.Label("Electricity price level [% of the tariffs]", htmlFor=PRICE_LEVEL),
-                              dcc.Input(id=PRICE_LEVEL, type="number", min=1, step="any", debounce=True)], className="field"),
+                              dcc.Input(id=PRICE_LEVEL, type="number", step="any", debounce=True)], className="field"),
                     html.Div([html.Label("Capital cost level [% of the catalogue]", htmlFor=CAPITAL_LEVEL),
-                              dcc.Input(id=CAPITAL_LEVEL, type="number", min=1, step="any", debounce=True)], className="field"),
+                              dcc.Input(id=CAPITAL_LEVEL, type="number", step="any", debounce=True)], className="field"),
                 ], className="fields"),
                 html.Label("Capital budget per plan year (blank = no limit)"),
                 ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
@@ -137,24 +137,33 @@ def reset(_clicks, session):
     return _form_values(services.view(session, None).assumptions)
 
 
-@callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
-          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"), Input(PRICE_LEVEL, "value"),
-          Input(CAPITAL_LEVEL, "value"), [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"),
-          State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
-def edit(discount, escalation, horizon, price_level, capital_level, *rest):
-    """Check the form and store it as the tab's edits; only the economics re-run."""
+def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest) -> tuple[dict | None, bool, str]:
+    """The form as edits: (edits, whether they change the assumptions in force, what is wrong or "")."""
     budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
     budget, problem = services.parse_budget(budget_values)
     if problem:
-        return no_update, problem
+        return None, False, problem
     view = services.view(session, edits)
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, discount_rate_pct=discount,
                                              escalation_energy_pct=escalation, horizon_yr=horizon,
                                              energy_price_level_pct=price_level, capital_cost_level_pct=capital_level,
                                              budget_per_yr=budget)
     if problem:
+        return None, False, problem
+    return new, services.edits_change(view, new), ""
+
+
+@callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
+          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"), Input(PRICE_LEVEL, "value"),
+          Input(CAPITAL_LEVEL, "value"), [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"),
+          State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
+def edit(*form):
+    """Check the form and store it as the tab's edits; only the economics re-run. An unusual but valid
+    value (a negative discount rate) is applied with a caution."""
+    new, changed, problem = _parse_form(*form)
+    if problem:
         return no_update, problem
-    return (new if services.edits_change(view, new) else no_update), ""
+    return (new if changed else no_update), services.assumption_notes(new)
 
 
 @callback(Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),
@@ -187,10 +196,10 @@ def save(clicks, *form):
     """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept."""
     if not clicks:  # the page opening is not a click (the renderer can fire this once as the page mounts)
         return no_update, no_update, no_update, no_update
-    edits, problem = edit(*form)
+    edits, changed, problem = _parse_form(*form)
     if problem:
         return no_update, no_update, f"Not saved: {problem}", no_update
-    outcome = services.save_tab_assumptions(form[-1], form[-2] if edits is no_update else edits)
+    outcome = services.save_tab_assumptions(form[-1], edits if changed else form[-2])
     download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
                 else no_update)
     return (outcome.session if outcome.session is not None else no_update, None if outcome.ok else no_update,

@@ -260,3 +260,18 @@ def test_rerender_after_an_assumption_edit(tab, artifacts):
     # the target is 300 ms (docs/performance.md); the bound here only catches a physics re-run (seconds)
     assert record["median_npv_ms"] < 2000 and record["median_plan_figure_ms"] < 2000
     assert tab.errors == []
+
+
+def test_assumption_steppers_and_out_of_range_values(tab):
+    # the number fields' + and - buttons step the value by one (a field with a lower bound and no upper one
+    # used to turn into NaN), and a value out of range reaches the server and gets a message in the form's words
+    page = tab.goto("/inputs", PAGES[-1][1])
+    page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '100'")
+    page.click("button.dash-stepper-increment[aria-controls='inputs-price-level']")
+    page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '101'")
+    page.click("button.dash-stepper-decrement[aria-controls='inputs-capital-level']")
+    page.wait_for_function("document.querySelector('#inputs-capital-level')?.value === '99'")
+    message = page.locator("#inputs-form-message")
+    edit_field(page, "#inputs-horizon", "0", "Enter", message.filter(has_text="whole number of years"))
+    assert "enter a number" not in message.inner_text()
+    assert tab.errors == []
