@@ -121,6 +121,8 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     def warm() -> None:
         try:
             engine.physics(entry.key)
+            # the case's own assumptions, plan proven and risk included: what the first page asks for
+            engine.result(entry.key, entry.case.finance, with_risk=True, precise=True)
         except Exception as exc:  # shown again on the first page that needs it
             print(f"drivecase serve: the analysis of the case failed: {exc}", file=sys.stderr)
 

@@ -392,8 +392,15 @@ class Engine:
         and starts it from the last plan of the same case (a budget-only change reuses the rest of the
         last result, :func:`models.scenario.economics`), so an edit answers at once; a precise ask
         (the pack, the "prove" button) solves it to :data:`models.scenario.PRECISE_PLAN`. A cached result
-        at least as rich serves any ask: with risk serves without, precise serves live.
+        at least as rich serves any ask: with risk serves without, precise serves live. The case's own
+        assumptions (nothing edited) are always solved precisely: the plan shown before any edit is the one
+        the capital-request pack and the command line give.
         """
+        entry = self.entry(key)
+        if entry is None:
+            raise KeyError(f"unknown case key {key!r}")
+        if not precise and assumptions == entry.case.finance:
+            precise = True
         with self._lock:
             for precise_ok in ((True,) if precise else (True, False)):  # a proved plan first
                 for risk_ok in ((True,) if with_risk else (True, False)):
@@ -403,9 +410,6 @@ class Engine:
                         self._remember(key, found)
                         return found
             previous = self._last_result.get(key)
-        entry = self.entry(key)
-        if entry is None:
-            raise KeyError(f"unknown case key {key!r}")
         phys = self.physics(key)
         settings = scenario.PRECISE_PLAN if precise else replace(scenario.LIVE_PLAN, start=_plan_start(previous))
 

@@ -582,3 +582,18 @@ class TestPlanNotice:
         assert services.plan_notice(self.result("optimal", 0.00005, scenario.LIVE_PLAN)) == ""
         assert services.plan_notice(self.result("time_limit", 0.02, scenario.PRECISE_PLAN)) == ""
         assert services.plan_notice(types.SimpleNamespace(plan_status={})) == ""
+
+
+def test_the_unedited_case_shows_the_plan_the_pack_gives(engine):
+    # before any edit the dashboard's plan is the precisely solved one, as `drivecase report` and `run` give
+    from models import scenario
+
+    view = services.view(None, None)
+    shown = view.result()
+    entry = engine.default_entry()
+    reference = scenario.economics(entry.case, engine.physics(engine.default_key), entry.case.finance,
+                                   with_risk=False, plan_settings=scenario.PRECISE_PLAN)
+    key = ["asset_id", "option_id"]
+    assert shown.plan[key].sort_values(key).values.tolist() == reference.plan[key].sort_values(key).values.tolist()
+    assert services.plan_notice(shown) == ""  # no "solved for a live edit" notice before any edit
+    assert not services._live(shown.plan_status.get("settings"))  # solved with the full run's settings
