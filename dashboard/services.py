@@ -816,11 +816,17 @@ def headline(result) -> dict:
 
 
 def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:
-    """Best option per asset, ranked by NPV, with the asset's data-quality score and plan year."""
+    """Best option per asset, ranked by NPV, with the asset's data-quality score and what the budgeted plan
+    buys for it (its option, plan year and capital: the plan may choose another option than the best, or
+    none)."""
     res = result.results
     best = res[res["best_for_asset"].to_numpy(dtype=bool)]
     assets = view_.case.assets.set_index("asset_id")
-    plan_year = result.plan.set_index("asset_id")["start_yr"] if len(result.plan) else pd.Series(dtype=float)
+    planned = result.plan.set_index("asset_id") if len(result.plan) else pd.DataFrame(
+        columns=["option_id", "start_yr", "capital"], index=pd.Index([], name="asset_id"))
+    plan_year = planned["start_yr"]
+    labels = res.drop_duplicates("option_id").set_index("option_id")["label"]
+    plan_option = planned["option_id"].map(labels)
     out = pd.DataFrame({
         "asset_id": best["asset_id"].to_numpy(dtype=object),
         "site_id": best["site_id"].to_numpy(dtype=object),
@@ -836,7 +842,9 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "saving_per_yr": (best["bill_saving_per_yr"] + best["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "co2_avoided_t_per_yr": best["co2_avoided_t_per_yr"].to_numpy(dtype=float),
         "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
+        "plan_option": plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object),
         "plan_year": plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
+        "plan_capital": planned["capital"].reindex(best["asset_id"]).to_numpy(dtype=float),
     })
     if sites:
         out = out[out["site_id"].isin(list(sites))]

@@ -406,6 +406,13 @@ class TestPageData:
         assert list(table["rank"]) == list(range(1, len(table) + 1))
         only = services.ranked_assets(v, r, sites=["KGQ"], applications=["fan"])
         assert list(only["asset_id"]) == ["KGQ-F01"]
+        # what the plan buys: its rows' capital adds up to the headline's plan capital
+        assert table["plan_capital"].sum() == pytest.approx(services.headline(r)["plan_capital"], rel=1e-12)
+        labels = r.results.drop_duplicates("option_id").set_index("option_id")["label"]
+        for p in r.plan.itertuples():
+            row = table.set_index("asset_id").loc[p.asset_id]
+            assert row["plan_option"] == labels[p.option_id] and row["plan_year"] == p.start_yr
+        assert (table.loc[table["plan_year"].isna(), "plan_option"] == "").all()
 
     def test_ratings_in_hp_when_the_case_says_so(self):
         # 1 hp = 0.745699872 kW (NIST SP 811 (2008) Appendix B.9)

@@ -47,13 +47,15 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
             ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
             ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application"),
             ui.number_col("rating", f"Rating [{services.power_label(power_unit)}]", 1),
-            ui.text_col("best_option", "Best option", minWidth=200),
+            ui.text_col("best_option", "Best option (before the budget)", minWidth=200),
             ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
             ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
             ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"),
             ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
-            ui.number_col("data_quality_pct", "Data quality [%]"),
-            ui.number_col("plan_year", "Plan year", maxWidth=110)]
+            ui.text_col("plan_option", "The plan buys", minWidth=180),
+            ui.number_col("plan_year", "Plan year", maxWidth=110),
+            ui.number_col("plan_capital", f"Plan capital [{currency}]"),
+            ui.number_col("data_quality_pct", "Data quality [%]")]
 
 
 @callback(
