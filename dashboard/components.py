@@ -79,7 +79,8 @@ def card(label: str, value_id: str, note_id: str | None = None) -> html.Div:
     return html.Div(children, className="card")
 
 
-HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Yearly saving"), ("npv", "Plan NPV"), ("co2", "CO2 avoided"))
+HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Plan yearly saving"), ("npv", "Plan NPV"),
+                   ("co2", "Plan CO2 avoided"))
 
 
 def headline_cards(prefix: str) -> html.Div:

@@ -26,6 +26,8 @@ def layout(**_query):
                        "The best option for every motor and what the budgeted plan buys. Click a row to open the asset."),
         ui.notice(NOTICE),
         ui.headline_cards(HEADLINE),
+        html.P("The cards are the budgeted plan for the whole fleet (plan year 0 is the first year of spending); "
+               "the filters below narrow the table only.", className="page-intro"),
         html.Div([
             html.Div([html.Label("Site", htmlFor=SITE_FILTER),
                       dcc.Dropdown(id=SITE_FILTER, multi=True, placeholder="all sites")], className="filter"),
