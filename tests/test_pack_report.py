@@ -157,6 +157,19 @@ class TestReportContents:
         # engine: the exact plan's capital, the whole of the plan-scope pack
         assert f'<div class="value">{money(result.plan["capital"].sum())}</div>' in html
 
+    def test_decision_npv_column_adds_up_to_the_headline(self, small):
+        # each planned project's NPV at the plan's start: the column's sum is the headline NPV (plan scope)
+        from models.pack import content
+        from models.pack.report_html import report_context
+
+        case, result = small
+        scope = content.select_scope(case, result, None, True)
+        ctx = report_context(case, result, scope, [])
+        col = ctx["decision_headers"].index("NPV at plan start [EUR]")
+        values = [r["cells"][col]["text"] for r in ctx["decision_rows"]]
+        total = sum(float(str(v).replace(",", "").replace(" EUR", "")) for v in values if str(v).strip() not in ("", "-"))
+        assert total == pytest.approx(result.plan["npv_at_plan_start"].sum(), abs=0.5 * len(values) + 1e-9)
+
     def test_mv_baseline_figures(self, asset_pack, small):
         _, result = small
         html = text(asset_pack[0] / REPORT_NAME)

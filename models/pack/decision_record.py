@@ -82,12 +82,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     for r in res.itertuples(index=False):
         is_keep = r.option_id == keep_id
         option_rows.append(row([
-            cell(r.label), cell(r.technology.replace("_", " ")),
+            cell(r.label), cell(content.technology_name(r.technology)),
             num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr), num(r.npv),
             cell("-" if is_keep else content.rate_text(r.irr_frac, r.irr_status), "num"),
             cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon), "num"),
             num(r.co2_avoided_t_per_yr, "{:,.1f}")], pick=f"{r.asset_id}/{r.option_id}" == rec_key))
 
+    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
     eol = result.end_of_life
     eol_rows, eol_note = [], ""
     best_strategy = None
@@ -97,7 +98,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         for key, column in (("replace_now", "cost_replace_now"), ("replace_at_failure", "cost_replace_at_failure"),
                             ("rewind_at_failure", "cost_rewind_at_failure")):
             eol_rows.append(row([cell(_STRATEGY_TEXT[key]), num(float(e[column]))], pick=key == best_strategy))
-        eol_note = (f"New motor compared: option '{e['new_option_id']}'. Probability that today's motor fails within "
+        eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
                     f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
                     f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime.")
     else:
@@ -116,7 +117,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             reasons.append(f"Next best: {o['label']} (NPV {content.money(float(o['npv']), cur)}).")
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
-        reasons.append(f"For the motor itself (new '{new_id}' motor vs rewind), the cheapest end-of-life strategy is to "
+        reasons.append(f"For the motor itself ({labels.get(new_id, new_id)} vs rewind), the cheapest end-of-life strategy is to "
                        f"{_STRATEGY_TEXT[best_strategy]} (by {content.money(float(eol.set_index('asset_id').loc[asset_id, 'advantage_over_next']), cur)}"
                        f" over the next).")
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
@@ -134,7 +135,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         "asset_id": asset_id, "description": _value(x["description"], missing=""), "site": x["site_id"],
         "case_name": s.name, "currency": cur, "invented": bool(s.invented),
         "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})", "horizon": horizon, "nameplate": nameplate,
-        "option_headers": ["Option", "Technology", "Capital", "Saving/yr", "NPV", "IRR", "Payback", "CO2 t/yr"],
+        "option_headers": ["Option", "Technology", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
+                           "Payback [yr]", "CO2 [t/yr]"],
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
         "eol_headers": ["Strategy", "Expected present cost"], "eol_rows": eol_rows, "eol_numeric": (1,),
         "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),

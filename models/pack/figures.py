@@ -53,7 +53,8 @@ def savings_waterfall(chosen: pd.DataFrame, currency: str) -> go.Figure:
 def savings_by_project(chosen: pd.DataFrame, currency: str, limit: int = 20) -> go.Figure:
     """Stacked bars of each recommended project's yearly saving by component (the largest ``limit``)."""
     frame = chosen.assign(_total=content.yearly_saving(chosen)).sort_values("_total", ascending=True).tail(limit)
-    labels = [f"{esc(a)} / {esc(o)}" for a, o in zip(frame["asset_id"], frame["option_id"])]
+    names = frame["label"] if "label" in frame else frame["option_id"]
+    labels = [f"{esc(a)}: {esc(n)}" for a, n in zip(frame["asset_id"], names)]
     fig = go.Figure()
     for column, name in content.SAVING_COLUMNS.items():
         fig.add_trace(go.Bar(y=labels, x=frame[column], name=name, orientation="h",

@@ -94,14 +94,19 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     if keep_count:
         summary += f" For {keep_count} asset(s) no option beats keeping today's motor."
 
+    # NPV at the plan's start (a project started in plan year k is discounted k more years): the column
+    # then adds up to the headline NPV; a project outside the plan would start at once (the same value)
+    at_start = (result.plan.set_index(["asset_id", "option_id"])["npv_at_plan_start"] if len(result.plan)
+                else pd.Series(dtype=float))
     decision_rows = []
     for r in rec.itertuples(index=False):
         is_keep = r.option_id == r.keep_option_id
+        npv_start = float(at_start.get((r.asset_id, r.option_id), r.npv))
         decision_rows.append(row([
             cell(r.asset_id, "id"), cell(assets.loc[r.asset_id, "description"] or ""), cell(r.label),
             cell(int(r.plan_start_yr) if r.in_plan else "-", "num"),
             num(0.0 if is_keep else r.capital), num(0.0 if is_keep else r.bill_saving_per_yr + r.saving_maintenance_per_yr),
-            num(0.0 if is_keep else r.npv),
+            num(0.0 if is_keep else npv_start),
             cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon),
             num(0.0 if is_keep else r.co2_avoided_t_per_yr, "{:,.1f}"), cell(r.reason_short, "small")]))
 
@@ -117,6 +122,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))]
     keep_ids = content.keep_option_ids(result)
     option_ids = [o for o in dict.fromkeys(res["option_id"]) if o not in set(keep_ids)]
+    option_labels = res.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
     npv = res.set_index(["asset_id", "option_id"])["npv"]
     matrix_rows = []
     for asset_id in scope.asset_ids:
@@ -141,7 +147,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     simulated = len(mc)
     mc_note = (f"{simulated} of the {len(chosen)} recommended project(s) were simulated: the Monte Carlo draws hours, load, "
                "prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget are not simulated.")
-    mc_rows = [row([cell(r.project_id, "id"), num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
+    option_label = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+
+    def project_text(asset_id: str, option_id: str) -> str:
+        return f"{asset_id}: {option_label.get(option_id, option_id)}"
+
+    mc_rows = [row([cell(project_text(*str(r.project_id).split("/", 1)) if "/" in str(r.project_id) else r.project_id, "id"),
+                    num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
                     num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
                     num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
 
@@ -178,10 +190,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     mv = content.mv_plan(result, chosen)
     mv_protocol_rows = []
     for (option, weeks, measure), grp in mv.groupby(["ipmvp_option", "duration_weeks", "measure"], sort=True):
-        projects = [f"{a_} / {o_}" for a_, o_ in zip(grp["asset_id"], grp["option_id"])]
+        projects = [project_text(a_, o_) for a_, o_ in zip(grp["asset_id"], grp["option_id"])]
         mv_protocol_rows.append(row([cell(f"Option {option}"), cell(f"{weeks} weeks before and {weeks} after"), cell(measure),
                                      cell(content.asset_list_text(projects, 12), "small")]))
-    mv_rows = [row([cell(f"{r.asset_id} / {r.option_id}", "id"), cell(f"{r.ipmvp_option}, {r.duration_weeks} wk"),
+    mv_rows = [row([cell(project_text(r.asset_id, r.option_id), "id"), cell(f"{r.ipmvp_option}, {r.duration_weeks} wk"),
                     num(r.baseline_energy_kwh_per_yr), num(r.baseline_mean_p_kw, "{:,.1f}"),
                     num(r.baseline_power_factor, "{:.2f}"), num(r.baseline_speed_rpm, "{:,.0f}"), num(r.running_h_per_yr),
                     num(r.expected_energy_kwh_per_yr), num(r.expected_mean_p_kw, "{:,.1f}"), num(r.expected_power_factor, "{:.2f}"),
@@ -192,7 +204,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                "full duty cycle of about four weeks each side. Compare with the modelled baselines below; a measured "
                "baseline more than about 10 % away from the model calls for a re-run before the purchase order.")
 
-    em_rows = [row([cell(f"{r.asset_id} / {r.option_id}"), num(r.energy_saved_kwh_per_yr), num(r.co2_avoided_t_per_yr, "{:,.2f}"),
+    em_rows = [row([cell(project_text(r.asset_id, r.option_id)), num(r.energy_saved_kwh_per_yr), num(r.co2_avoided_t_per_yr, "{:,.2f}"),
                     num(r.abatement_cost_per_t, "{:,.0f}", signed=False)]) for r in chosen.itertuples(index=False)]
     em_rows.append(row([cell("Total"), num(h.energy_saved_kwh_per_yr), num(h.co2_t_per_yr, "{:,.2f}"), cell("")], pick=True))
     emissions_text = (f"CO2 avoided in the first year at a grid emission factor of {a.grid_co2_kg_per_kwh:g} kg CO2 per kWh "
@@ -222,13 +234,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "case_name": s.name, "description": getattr(s, "description", "") or "", "invented": bool(s.invented),
         "currency": cur, "scope_text": scope_text, "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})",
         "horizon": horizon, "sections": SECTIONS, "cards": cards, "summary_text": summary,
-        "decision_headers": ["Asset", "Description", "Recommended", "Plan year", "Capital", "Saving/yr", "NPV", "Payback",
-                             "CO2 t/yr", "Why"],
+        "decision_headers": ["Asset", "Description", "Recommended", "Plan year", f"Capital [{cur}]",
+                             f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Payback [yr]", "CO2 [t/yr]", "Why"],
         "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
         "asset_headers": ["Asset", "Description", "Site", "Application", "kW", "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),
-        "matrix_headers": ["Asset"] + option_ids, "matrix_rows": matrix_rows,
+        "matrix_headers": ["Asset"] + [option_labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
         "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
         "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
         "flow_numeric": (0, 1, 2, 3, 4),
@@ -249,7 +261,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
         "cautions": list(content.CAUTIONS),
         "appendix": appendix,
-        "appendix_headers": ["Option", "Label", "Capital", "Saving/yr", "NPV", "IRR", "Payback", "CO2 t/yr", "Flags"],
+        "appendix_headers": ["Option", "Label", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
+                             "Payback [yr]", "CO2 [t/yr]", "Flags"],
         "appendix_numeric": (2, 3, 4, 5, 6, 7),
         "files": files, "figures": figs,
     }
