@@ -425,23 +425,26 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
     Parameters
     ----------
     rows : pandas.DataFrame
-        project_id, npv_p10, npv_p50, npv_p90 [currency], sorted by P50.
+        project_id, npv_p10, npv_p50, npv_p90 [currency], sorted by P50; with asset_id and label the
+        projects are named "asset: option label".
     """
     if rows is None or rows.empty:
         return message_figure("No Monte Carlo results.")
     part = rows.head(top).iloc[::-1]
+    names = (part["asset_id"].astype(str) + ": " + part["label"].astype(str)
+             if {"asset_id", "label"} <= set(part.columns) and part["label"].notna().all() else part["project_id"])
     fig = go.Figure()
-    fig.add_trace(go.Bar(y=part["project_id"], x=part["npv_p90"] - part["npv_p10"], base=part["npv_p10"], orientation="h",
+    fig.add_trace(go.Bar(y=names, x=part["npv_p90"] - part["npv_p10"], base=part["npv_p10"], orientation="h",
                          name="P10 to P90", marker_color="#b9d3d8",
                          customdata=np.column_stack([part["npv_p10"], part["npv_p90"]]),
                          hovertemplate="%{y}<br>P10 %{customdata[0]:,.0f} to P90 %{customdata[1]:,.0f} " + currency
                                        + "<extra></extra>"))
-    fig.add_trace(go.Scatter(y=part["project_id"], x=part["npv_p50"], mode="markers", name="P50",
+    fig.add_trace(go.Scatter(y=names, x=part["npv_p50"], mode="markers", name="P50",
                              marker=dict(color=AFTER, size=8, symbol="diamond"),
                              hovertemplate="%{y}<br>P50 %{x:,.0f} " + currency + "<extra></extra>"))
     fig.add_vline(x=0, line=dict(color=INK, width=1))
     fig.update_xaxes(title_text=f"NPV [{currency}]")
-    fig.update_yaxes(title_text="Project (asset/option)", automargin=True)
+    fig.update_yaxes(title_text="Project (asset: option)", automargin=True)
     return _style(fig, f"NPV range per project (top {min(top, len(rows))} by P50)", height=max(360, 22 * len(part) + 120))
 
 

@@ -44,6 +44,7 @@ from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
 from models.case import HP_TO_KW, load_case
 from models.operation import performance_curves
+from models.options import speed_remedy_name, technology_name
 from models.problems import Problem, error, has_errors
 from models.profiles import asset_loads
 
@@ -876,8 +877,8 @@ def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
     return pd.DataFrame({
         "option_id": res["option_id"].to_numpy(dtype=object),
         "label": res["label"].to_numpy(dtype=object),
-        "technology": res["technology"].to_numpy(dtype=object),
-        "speed_remedy": remedy,
+        "technology": np.array([technology_name(t) for t in res["technology"]], dtype=object),
+        "speed_remedy": np.array([speed_remedy_name(r) for r in remedy], dtype=object),
         "capital": res["capital"].to_numpy(dtype=float),
         "saving_per_yr": (res["bill_saving_per_yr"] + res["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "npv": res["npv"].to_numpy(dtype=float),
@@ -957,12 +958,22 @@ def asset_load_hours(view_: View, asset_id: str, bin_pct: float = 10.0) -> tuple
     return pd.DataFrame({"load_from_pct": edges[:-1], "load_to_pct": edges[1:], "hours_per_yr": counts}), basis
 
 
+def _shown_value(value) -> str:
+    """A defaulted input as a page shows it: a number to 6 significant digits, anything else as written."""
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return "" if value is None else str(value)
+    return f"{number:.6g}" if math.isfinite(number) and not isinstance(value, bool) else str(value)
+
+
 def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFrame, pd.DataFrame]:
     """Data-quality score [%], the defaulted fields and the cautions raised for one asset."""
     a = view_.case.assets
     score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
     defaults = view_.case.defaults
-    defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].astype(str).reset_index(drop=True)
+    defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].reset_index(drop=True)
+    defaults = defaults.assign(value=[_shown_value(v) for v in defaults["value"]]).astype(str)
     res = result.results[result.results["asset_id"] == asset_id]
     rows = [{"option": r.label, "flag": text.strip()} for r in res.itertuples(index=False)
             for text in str(r.flags or "").split(";") if text.strip()]

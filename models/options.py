@@ -25,6 +25,24 @@ DEFAULT_CLASS: dict[str, str] = {
 DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
 #: Technologies that replace the machine (and so change its speed, losses and power factor).
 NEW_MACHINE_TECHNOLOGIES = ("induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
+#: Plain names of the option technologies and speed remedies, for the reader of a page or a report.
+TECHNOLOGY_NAMES = {"existing": "today's motor", "rewind": "rewind", "induction": "new induction motor",
+                    "line_start_pm": "line-start PM motor", "pm_drive": "PM motor on a drive",
+                    "reluctance_drive": "synchronous-reluctance motor on a drive",
+                    "add_drive": "drive added to today's motor", "wound_field": "wound-field synchronous motor",
+                    "capacitor": "terminal capacitor"}
+SPEED_REMEDY_NAMES = {"none": "none (the load follows the speed)", "trim_or_pulley": "impeller trim or pulley",
+                      "speed_control": "held by a drive"}
+
+
+def technology_name(technology: str) -> str:
+    """A technology as the reader sees it (an unknown one with its underscores as spaces)."""
+    return TECHNOLOGY_NAMES.get(str(technology), str(technology).replace("_", " "))
+
+
+def speed_remedy_name(remedy: str) -> str:
+    """A speed remedy as the reader sees it."""
+    return SPEED_REMEDY_NAMES.get(str(remedy), str(remedy).replace("_", " "))
 
 
 def check_options(checker) -> pd.DataFrame:

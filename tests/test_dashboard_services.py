@@ -439,7 +439,8 @@ class TestPageData:
         options = services.asset_options(v, r, "HRW-V01")
         assert {"lspm", "lspm_trim"} <= set(options["option_id"])  # the PM pair with and without trim
         trim = options.set_index("option_id").loc["lspm_trim", "speed_remedy"]
-        assert trim == "trim_or_pulley"
+        assert trim == "impeller trim or pulley"  # the remedy in words, not its code name
+        assert "line-start PM motor" in set(options["technology"])
         curves = services.asset_cumulative_cash(v, r, "HRW-V01")
         assert curves.groupby("label")["year"].max().eq(r.assumptions.horizon_yr).all()
         hours, basis = services.asset_load_hours(v, "HRW-S01")
@@ -448,6 +449,8 @@ class TestPageData:
         assert "duty" in basis
         score, defaults, flags = services.asset_quality(v, r, "HRW-P01")
         assert 0 <= score <= 100 and set(defaults.columns) == {"column", "value", "basis"}
+        numbers = [v for v in defaults["value"] if v.replace(".", "", 1).replace("-", "", 1).isdigit()]
+        assert numbers and all(len(v.replace("-", "").replace(".", "")) <= 6 for v in numbers)  # 6 significant digits
 
     def test_site_views(self, engine):
         v = services.view(None, None)

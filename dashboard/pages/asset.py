@@ -44,8 +44,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                                    className="page-intro"),
                             ui.graph(SPEED)], className="panel half")], className="row"),
         html.H3("Data quality"),
-        html.Div([html.Div([html.H4("Fields filled with defaults"), ui.data_grid(DEFAULTS, height=240)], className="half"),
-                  html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240)], className="half")],
+        html.Div([html.Div([html.H4("Fields filled with defaults"), ui.data_grid(DEFAULTS, height=240, empty_text="No field of this asset was filled with a default")], className="half"),
+                  html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240, empty_text="No cautions for this asset")], className="half")],
                  className="row"),
     ])
 

@@ -35,7 +35,7 @@ def layout(**_query):
                       dcc.Dropdown(id=APPLICATION_FILTER, multi=True, placeholder="all applications")], className="filter"),
             html.Div(id=COUNT, className="filter-count"),
         ], className="filters"),
-        ui.data_grid(TABLE, height=460, getRowId="params.data.asset_id"),
+        ui.data_grid(TABLE, height=460, empty_text="No asset matches the filters", getRowId="params.data.asset_id"),
         html.Div(ui.graph(ABATEMENT), className="panel"),
     ])
 

@@ -81,7 +81,7 @@ def layout(**_query):
             ], className="panel half form"),
         ], className="row"),
         html.H3("Validation messages"),
-        ui.data_grid(PROBLEMS, height=320, columnDefs=ui.problem_columns(),
+        ui.data_grid(PROBLEMS, height=320, empty_text="No problems: the case was read as written", columnDefs=ui.problem_columns(),
                      rowClassRules={"problem-error": "params.data.severity == 'error'",
                                     "problem-warning": "params.data.severity == 'warning'"}),
     ])

@@ -46,9 +46,9 @@ def layout(**_query):
         html.Div([html.Div(ui.graph(BY_YEAR), className="panel half"), html.Div(ui.graph(COMPARISON), className="panel half")],
                  className="row"),
         html.H3("Chosen projects (exact plan)"),
-        ui.data_grid(CHOSEN, height=380),
+        ui.data_grid(CHOSEN, height=380, empty_text="The plan buys nothing under these budgets"),
         html.H3("Where the two plans differ"),
-        ui.data_grid(DIFFERENCES, height=240),
+        ui.data_grid(DIFFERENCES, height=240, empty_text="The two plans choose the same projects"),
         html.Div([html.H3("Capital-request pack"),
                   html.P("An auditable workbook with live NPV, IRR and payback formulas, a self-contained report "
                          "and a one-page decision record per asset, for this plan and these assumptions.",

@@ -492,19 +492,6 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
 
 
-#: Plain names of the option technologies for the reader of a pack.
-TECHNOLOGY_NAMES = {"existing": "today's motor", "rewind": "rewind", "induction": "new induction motor",
-                    "line_start_pm": "line-start PM motor", "pm_drive": "PM motor on a drive",
-                    "reluctance_drive": "synchronous-reluctance motor on a drive",
-                    "add_drive": "drive added to today's motor", "wound_field": "wound-field synchronous motor",
-                    "capacitor": "terminal capacitor"}
-
-
-def technology_name(technology: str) -> str:
-    """A technology as the reader sees it (an unknown one with its underscores as spaces)."""
-    return TECHNOLOGY_NAMES.get(str(technology), str(technology).replace("_", " "))
-
-
 def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:
     """Return the cautions that apply to one option's technology and speed change."""
     out = []

@@ -13,6 +13,7 @@ import re
 import pandas as pd
 from markupsafe import Markup
 
+from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 
@@ -82,7 +83,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     for r in res.itertuples(index=False):
         is_keep = r.option_id == keep_id
         option_rows.append(row([
-            cell(r.label), cell(content.technology_name(r.technology)),
+            cell(r.label), cell(technology_name(r.technology)),
             num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr), num(r.npv),
             cell("-" if is_keep else content.rate_text(r.irr_frac, r.irr_status), "num"),
             cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon), "num"),
