@@ -196,7 +196,7 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(bar.x, [9.0] * 10)   # P90 - P10 of the inputs
         assert titles(fig)["xaxis"] == "NPV [EUR]"
         named = rows.assign(asset_id=[f"A{i}" for i in range(30)], label="Add a drive")
-        assert list(figures.risk_ranges(named, "EUR", top=2).data[0].y) == ["A28: Add a drive", "A29: Add a drive"]
+        assert list(figures.risk_ranges(named, "EUR", top=2).data[0].y) == ["A1: Add a drive", "A0: Add a drive"]  # first two rows, largest at the top
 
     def test_fleet_npv_histogram_marks_percentiles(self):
         draws = np.arange(1.0, 101.0)  # 1..100
