@@ -1157,6 +1157,18 @@ def tornado_rows(result) -> pd.DataFrame:
     return t.assign(label=labels).sort_values("swing", ascending=True, kind="stable").reset_index(drop=True)
 
 
+def plan_bill_saving_alone(result, site_id: str) -> float:
+    """The yearly bill saving of the plan's projects at one site, each priced alone against today's bill
+    [currency/yr]: what the headline adds up (with maintenance), beside which the site's bill before and
+    with the whole plan shows the projects priced together (demand peaks that coincide, reactive value
+    that saturates)."""
+    res = result.results
+    if not len(result.plan):
+        return 0.0
+    chosen = res.set_index(scenario.project_labels(res)).reindex(scenario.project_labels(result.plan))
+    return float(chosen.loc[chosen["site_id"] == site_id, "bill_saving_per_yr"].sum())
+
+
 def risk_rows(result) -> pd.DataFrame:
     """Monte Carlo summary per project with asset and option labels, best P50 first."""
     r = result.risk

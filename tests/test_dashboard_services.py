@@ -607,3 +607,14 @@ def test_the_unedited_case_shows_the_plan_the_pack_gives(engine):
     assert shown.plan[key].sort_values(key).values.tolist() == reference.plan[key].sort_values(key).values.tolist()
     assert services.plan_notice(shown) == ""  # no "solved for a live edit" notice before any edit
     assert not services._live(shown.plan_status.get("settings"))  # solved with the full run's settings
+
+
+def test_plan_bill_saving_alone_splits_the_plan_by_site(engine):
+    # the per-site sums of the plan's projects priced alone add up to the plan's bill saving (engine table)
+    view = services.view(None, None)
+    result = view.result()
+    sites = set(result.results["site_id"])
+    total = sum(services.plan_bill_saving_alone(result, s) for s in sites)
+    chosen = result.results.merge(result.plan[["asset_id", "option_id"]], on=["asset_id", "option_id"])
+    assert total == pytest.approx(float(chosen["bill_saving_per_yr"].sum()), rel=1e-12)
+    assert services.plan_bill_saving_alone(result, "no such site") == 0.0
