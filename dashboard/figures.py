@@ -412,7 +412,9 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
     fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_high"] - base, base=base, orientation="h", name="high value",
                          marker_color=GAIN, customdata=rows["npv_at_high"],
                          hovertemplate="%{y}<br>high: %{customdata:,.0f} " + currency + "<extra></extra>"))
-    fig.add_vline(x=base, line=dict(color=INK, width=1))
+    fig.add_vline(x=base, line=dict(color=INK, width=1),
+                  annotation_text=f"best option of every asset, no budget: {base:,.0f} {currency}",
+                  annotation_position="top")
     fig.update_layout(barmode="overlay")
     fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]")
     fig.update_yaxes(title_text="Varied input", automargin=True)

@@ -38,7 +38,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from models import finance
+from models import finance, risk
 from models import io as case_io
 from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
@@ -1136,24 +1136,12 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     return out
 
 
-TORNADO_LABELS = {
-    "energy_price_mult": "Energy price (x{low:g} to x{high:g})",
-    "hours_mult": "Running hours (x{low:g} to x{high:g})",
-    "load_mult": "Shaft load (x{low:g} to x{high:g})",
-    "capital_mult": "Capital cost (x{low:g} to x{high:g})",
-    "discount_rate_delta_frac": "Discount rate ({low_pct:+g} to {high_pct:+g} points)",
-    "escalation_delta_frac": "Price escalation ({low_pct:+g} to {high_pct:+g} points/yr)",
-}
-
-
 def tornado_rows(result) -> pd.DataFrame:
     """Tornado rows with readable labels, largest swing first."""
     t = result.tornado
     if t is None or t.empty:
         return pd.DataFrame(columns=["label", "npv_at_low", "npv_at_high", "base_npv", "swing"])
-    labels = [TORNADO_LABELS.get(r.variable, r.variable).format(low=r.low_value, high=r.high_value,
-                                                               low_pct=r.low_value * 100, high_pct=r.high_value * 100)
-              for r in t.itertuples(index=False)]
+    labels = [risk.tornado_label(r.variable, r.low_value, r.high_value) for r in t.itertuples(index=False)]
     return t.assign(label=labels).sort_values("swing", ascending=True, kind="stable").reset_index(drop=True)
 
 

@@ -30,6 +30,25 @@ DistributionKind = Literal["normal", "lognormal", "triangular", "uniform", "fixe
 # ---------------------------------------------------------------------------------------------------
 # One-at-a-time sensitivity
 # ---------------------------------------------------------------------------------------------------
+#: How a tornado variable and its low and high values read on a page or in a report.
+TORNADO_LABELS = {
+    "energy_price_mult": "Energy price (x{low:g} to x{high:g})",
+    "hours_mult": "Running hours (x{low:g} to x{high:g})",
+    "load_mult": "Shaft load (x{low:g} to x{high:g})",
+    "capital_mult": "Capital cost (x{low:g} to x{high:g})",
+    "discount_rate_delta_frac": "Discount rate ({low_pct:+g} to {high_pct:+g} points)",
+    "escalation_delta_frac": "Price escalation ({low_pct:+g} to {high_pct:+g} points/yr)",
+}
+
+
+def tornado_label(variable: str, low: float, high: float) -> str:
+    """A tornado bar's label, e.g. "Discount rate (-2 to +2 points)" (an unknown variable as its name)."""
+    template = TORNADO_LABELS.get(str(variable))
+    if template is None:
+        return f"{variable} ({low:g} to {high:g})"
+    return template.format(low=low, high=high, low_pct=low * 100, high_pct=high * 100)
+
+
 def tornado(npv_function: Callable[[dict[str, float]], Any], base: Mapping[str, float],
             ranges: Mapping[str, tuple[float, float]], reduce: Callable[[np.ndarray], float] = np.sum
             ) -> pd.DataFrame:

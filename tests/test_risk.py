@@ -213,3 +213,12 @@ class TestSummary:
         assert_allclose(row.prob_npv_positive_frac, 0.5)
         assert_allclose(row.prob_payback_within_target_frac, 0.25)
         assert not np.isnan(result.summary().to_numpy(dtype=float)).any()
+
+
+def test_tornado_labels_read_as_the_pages_show_them():
+    from models.risk import tornado_label
+
+    # hand: a +/-0.02 discount-rate shift is 2 percentage points; multipliers are shown as factors
+    assert tornado_label("discount_rate_delta_frac", -0.02, 0.02) == "Discount rate (-2 to +2 points)"
+    assert tornado_label("energy_price_mult", 0.8, 1.2) == "Energy price (x0.8 to x1.2)"
+    assert tornado_label("something_new", 1, 2) == "something_new (1 to 2)"

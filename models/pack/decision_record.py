@@ -137,7 +137,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         "case_name": s.name, "currency": cur, "invented": bool(s.invented),
         "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})", "horizon": horizon, "nameplate": nameplate,
         "option_headers": ["Option", "Technology", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
-                           "Payback [yr]", "CO2 [t/yr]"],
+                           "Simple payback [yr]", "CO2 [t/yr]"],
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
         "eol_headers": ["Strategy", "Expected present cost"], "eol_rows": eol_rows, "eol_numeric": (1,),
         "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),

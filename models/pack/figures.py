@@ -15,6 +15,7 @@ import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
 from models.pack import content
+from models.risk import tornado_label
 
 #: Colours of the report (colour-blind-safe qualitative set).
 COLOURS = {"energy": "#0072B2", "demand": "#E69F00", "reactive": "#009E73", "fixed": "#CC79A7",
@@ -82,11 +83,6 @@ def cumulative_cash_flow(portfolio: pd.DataFrame, currency: str) -> go.Figure:
     return _layout(fig, "Cumulative cash flow of the recommended projects")
 
 
-_TORNADO_LABELS = {"energy_price_mult": "energy price x", "hours_mult": "running hours x", "load_mult": "load x",
-                   "capital_mult": "capital x", "discount_rate_delta_frac": "discount rate +/-",
-                   "escalation_delta_frac": "price escalation +/-"}
-
-
 def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
     """Tornado of the fleet NPV: each variable at its low and high value, one at a time."""
     fig = go.Figure()
@@ -94,13 +90,13 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
         return _layout(fig, "Sensitivity: not computed for this run")
     frame = rows.sort_values("swing", ascending=True)
     base = float(frame["base_npv"].iloc[0])
-    labels = [f"{_TORNADO_LABELS.get(v, esc(v))} {lo:g} / {hi:g}" for v, lo, hi in
-              zip(frame["variable"], frame["low_value"], frame["high_value"])]
+    labels = [esc(tornado_label(v, lo, hi)) for v, lo, hi in zip(frame["variable"], frame["low_value"], frame["high_value"])]
     fig.add_trace(go.Bar(y=labels, x=frame["npv_at_low"] - base, base=base, orientation="h", name="low value",
                          marker_color=COLOURS["negative"]))
     fig.add_trace(go.Bar(y=labels, x=frame["npv_at_high"] - base, base=base, orientation="h", name="high value",
                          marker_color=COLOURS["energy"]))
-    fig.add_vline(x=base, line={"color": "#333333", "width": 1})
+    fig.add_vline(x=base, line={"color": "#333333", "width": 1},
+                  annotation_text=f"best option of every asset, no budget: {base:,.0f}", annotation_position="top")
     fig.update_layout(barmode="overlay")
     fig.update_xaxes(title_text=f"fleet NPV of the best options [{esc(currency)}]")
     return _layout(fig, "Sensitivity of the fleet NPV (one variable at a time)", height=340)

@@ -235,7 +235,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "currency": cur, "scope_text": scope_text, "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})",
         "horizon": horizon, "sections": SECTIONS, "cards": cards, "summary_text": summary,
         "decision_headers": ["Asset", "Description", "Recommended", "Plan year", f"Capital [{cur}]",
-                             f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Payback [yr]", "CO2 [t/yr]", "Why"],
+                             f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Simple payback [yr]", "CO2 [t/yr]", "Why"],
         "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
         "asset_headers": ["Asset", "Description", "Site", "Application", "kW", "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
@@ -262,7 +262,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "cautions": list(content.CAUTIONS),
         "appendix": appendix,
         "appendix_headers": ["Option", "Label", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
-                             "Payback [yr]", "CO2 [t/yr]", "Flags"],
+                             "Simple payback [yr]", "CO2 [t/yr]", "Flags"],
         "appendix_numeric": (2, 3, 4, 5, 6, 7),
         "files": files, "figures": figs,
     }
