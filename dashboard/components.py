@@ -7,7 +7,6 @@ grids lives here too: money in the case currency, ratings in kW or hp as the cas
 from __future__ import annotations
 
 import math
-from html import escape as html_escape
 
 import dash_ag_grid as dag
 from dash import dcc, html
@@ -152,8 +151,8 @@ def number_col(field: str, header: str, decimals: int = 0, **extra) -> dict:
 def data_grid(component_id: str, height: int = 420, empty_text: str = "Nothing to show", **extra) -> dag.AgGrid:
     """A sortable, filterable, resizable grid (rows and columns filled by a callback); ``empty_text`` is
     what it says with no rows."""
-    options = {"animateRows": False, "tooltipShowDelay": 300,
-               "overlayNoRowsTemplate": f"<span class='grid-empty'>{html_escape(empty_text)}</span>"}
+    # the grid's own wording for no rows (plain text; an HTML overlay template would be code the grid runs)
+    options = {"animateRows": False, "tooltipShowDelay": 300, "localeText": {"noRowsToShow": empty_text}}
     options.update(extra.pop("dashGridOptions", {}))
     extra.setdefault("columnDefs", [])
     return dag.AgGrid(id=component_id, rowData=[],

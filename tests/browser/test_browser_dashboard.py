@@ -266,6 +266,7 @@ def test_assumption_steppers_and_out_of_range_values(tab):
     # the number fields' + and - buttons step the value by one (a field with a lower bound and no upper one
     # used to turn into NaN), and a value out of range reaches the server and gets a message in the form's words
     page = tab.goto("/inputs", PAGES[-1][1])
+    page.locator("#inputs-problems").filter(has_text="No problems: the case was read as written").wait_for()
     page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '100'")
     page.click("button.dash-stepper-increment[aria-controls='inputs-price-level']")
     page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '101'")
