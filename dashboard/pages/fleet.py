@@ -47,7 +47,7 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
     """Columns of the ranked asset table."""
     return [ui.number_col("rank", "#", maxWidth=70, pinned="left"),
             ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
-            ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application"),
+            ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application", minWidth=140),
             ui.number_col("rating", f"Rating [{services.power_label(power_unit)}]", 1),
             ui.text_col("best_option", "Best option (before the budget)", minWidth=200),
             ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
