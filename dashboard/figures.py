@@ -88,6 +88,10 @@ def option_colour_map(labels) -> dict[str, str]:
 # ---------------------------------------------------------------------------------------------------
 # Fleet
 # ---------------------------------------------------------------------------------------------------
+#: Bars of the abatement curve narrower than this share of the tonnes avoided do not set its axis.
+ABATEMENT_VISIBLE_SHARE = 0.002
+
+
 def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     """Marginal abatement cost curve: bar width = tonnes CO2 avoided per year, height = cost per tonne.
 
@@ -110,6 +114,19 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
                            hovertext=text, hoverinfo="text", name="projects"))
     fig.add_hline(y=0, line=dict(color=INK, width=1))
     fig.update_layout(showlegend=False, bargap=0)
+    # a project that avoids almost no CO2 can cost thousands per tonne: its bar is too narrow to see but
+    # would set the axis; the axis covers the bars that hold the tonnes, the others run off it (noted)
+    seen = width >= ABATEMENT_VISIBLE_SHARE * max(float(width.sum()), 1e-12)
+    beyond = ~seen & ((cost > max(cost[seen].max(initial=0.0), 0.0)) | (cost < min(cost[seen].min(initial=0.0), 0.0)))
+    if seen.any() and beyond.any():
+        lo, hi = min(float(cost[seen].min()), 0.0), max(float(cost[seen].max()), 0.0)
+        pad = 0.08 * (hi - lo or 1.0)
+        fig.update_yaxes(range=[lo - pad, hi + pad])
+        fig.add_annotation(text=f"{int(beyond.sum())} narrow bar(s) run off the axis (to "
+                                f"{float(cost[beyond].max() if (cost[beyond] > 0).any() else cost[beyond].min()):,.0f} "
+                                f"{currency}/t): projects that avoid almost no CO2",
+                           xref="paper", yref="paper", x=1.0, y=1.02, xanchor="right", yanchor="bottom",
+                           showarrow=False, font=dict(size=11, color=INK))
     fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
     fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
     return _style(fig, "Abatement cost curve (below zero: saves money)")

@@ -54,6 +54,17 @@ class TestAbatement:
         t = titles(figures.abatement_curve(self.frame, "USD"))
         assert t["xaxis"] == "CO2 avoided, cumulative [t/yr]" and t["yaxis"] == "Cost of abatement [USD/t CO2]"
 
+    def test_a_sliver_of_a_bar_does_not_set_the_axis(self):
+        # hand: bars of 2, 5 and 1 t/yr set the axis (-120 to 45, padded 8 % of 165 = 13.2); a 0.001 t/yr
+        # project at 9,500 EUR/t runs off it and is noted
+        frame = pd.concat([self.frame, pd.DataFrame({
+            "project_id": ["D/x"], "asset_id": ["D"], "abatement_cost_per_t": [9500.0],
+            "co2_avoided_t_per_yr": [0.001], "bar_start_t_per_yr": [8.0]})], ignore_index=True)
+        fig = figures.abatement_curve(frame, "EUR")
+        np.testing.assert_allclose(fig.layout.yaxis.range, [-133.2, 58.2])
+        assert "1 narrow bar(s) run off the axis (to 9,500 EUR/t)" in fig.layout.annotations[-1].text
+        assert figures.abatement_curve(self.frame, "EUR").layout.yaxis.range is None  # no sliver: automatic
+
     def test_empty_says_so(self):
         fig = figures.abatement_curve(self.frame.iloc[0:0], "EUR")
         assert not fig.data and "No option" in fig.layout.annotations[0].text
