@@ -219,7 +219,8 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Fig
     fig.update_yaxes(title_text="Efficiency [%]", row=1, col=1)
     fig.update_yaxes(title_text="Power factor [-]", row=2, col=1)
     fig.update_yaxes(title_text="Hours [h/yr]", row=3, col=1)
-    fig.update_xaxes(title_text="Shaft load [% of rating]", row=3, col=1, range=[0, 130])
+    fig.update_xaxes(title_text="Today's shaft load [% of rating]; a drive that replaces a throttle runs the flow's "
+                                "own, lower load (flat below the zero-flow load)", row=3, col=1, range=[0, 130])
     fig = _style(fig, "Efficiency and power factor against load, and where the asset runs", height=680, legend_below=True)
     fig.update_layout(legend=dict(y=-0.1))
     return fig

@@ -107,7 +107,7 @@ class TestAsset:
         np.testing.assert_allclose(bar.y, [1000.0, 3000.0])
         t = titles(fig)
         assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"] == "Power factor [-]" and t["yaxis3"] == "Hours [h/yr]"
-        assert t["xaxis3"] == "Shaft load [% of rating]"
+        assert t["xaxis3"].startswith("Today's shaft load [% of rating]")
 
     def test_speed_energy_by_remedy(self):
         options = pd.DataFrame({"label": ["Keep", "LSPM", "LSPM + trim", "Drive"],
