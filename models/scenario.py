@@ -32,6 +32,8 @@ from models.regulations import class_rank, minimum_class
 
 #: Technologies that replace today's motor (and so avoid the spend its failure would force).
 REPLACING_TECHNOLOGIES = ("rewind", "induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
+#: Technologies added to today's motor, which stays in service (and keeps its own maintenance).
+ADD_ON_TECHNOLOGIES = ("add_drive", "capacitor")
 #: Planning horizon of the fleet plan when the budget list is empty [yr].
 DEFAULT_PLAN_YEARS = 3
 #: Downtime after a failure until a new motor runs, and until a rewound one does [h] (common practice).
@@ -368,6 +370,19 @@ def _must_spend(case, options: pd.DataFrame, capital_total: np.ndarray, applies:
     return capex, life, pos
 
 
+def _maintenance_per_yr(options: pd.DataFrame, rated_p_kw: np.ndarray) -> np.ndarray:
+    """Yearly maintenance of every asset under every option [currency/yr], (n_assets, n_options).
+
+    The catalogue's ``maintenance_cost_per_kw_yr`` times the rating; an add-on (a drive or a capacitor added
+    to today's motor, :data:`ADD_ON_TECHNOLOGIES`) is maintained on top of today's motor, which stays in
+    service, so today's maintenance (the first option's) is added to its own.
+    """
+    maint = options["maintenance_cost_per_kw_yr"].to_numpy(dtype=float)[None, :] * rated_p_kw[:, None]
+    add_on = np.isin(options["technology"].to_numpy(dtype=object), ADD_ON_TECHNOLOGIES)
+    maint[:, add_on] += maint[:, [0]]
+    return maint
+
+
 def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Age, Weibull parameters and mean residual life of today's motors."""
     a = case.assets
@@ -420,7 +435,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     comp = {name: capex.amount[..., k] for k, name in enumerate(capex.components)}
     must_capex, must_life, _ = _must_spend(case, options, capex.total, op.applies)
     age, shape, scale, residual_life = _remaining_life(case, year)
-    maint = options["maintenance_cost_per_kw_yr"].to_numpy(dtype=float)[None, :] * rated[:, None]
+    maint = _maintenance_per_yr(options, rated)
     maint_saving = maint[:, [0]] - maint
     midlife_base = np.where(comp["drive"] > 0, comp["drive"], comp["equipment"])
     midlife = options["midlife_cost_frac"].to_numpy(dtype=float)[None, :] * midlife_base

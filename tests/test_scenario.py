@@ -286,3 +286,11 @@ def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, mo
     pd.testing.assert_frame_equal(beside.end_of_life, alone.end_of_life)
     assert not beside.risk.empty and alone.risk.empty
     assert set(own) == {"fleet plan", "end of life", "risk"} and all(v > 0 for v in own.values())
+
+
+def test_add_ons_keep_todays_maintenance():
+    # hand: a 10 kW motor at 2.0 /kW/yr today; a capacitor (0.2) and a drive (1.0) are maintained on top of it,
+    # a new motor (1.5) replaces it: 20, 22, 30 and 15 per year
+    options = pd.DataFrame({"technology": ["existing", "capacitor", "add_drive", "induction"],
+                            "maintenance_cost_per_kw_yr": [2.0, 0.2, 1.0, 1.5]})
+    assert_allclose(scenario._maintenance_per_yr(options, np.array([10.0])), [[20.0, 22.0, 30.0, 15.0]])
