@@ -1724,6 +1724,28 @@ def options_with_baseline(options: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([pd.DataFrame([keep]), options], ignore_index=True)
 
 
+def _design_shaft_kw(case, assets: pd.DataFrame, arr, existing: induction.InductionParams) -> np.ndarray:
+    """Design (valve-open) shaft power of some assets [kW], (n, 1), from their profiles or duty as
+    :func:`_operate_block` computes it."""
+    from dataclasses import replace
+
+    index = case_index(case)
+    interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
+    interval_rows, values, is_input, states, _ = asset_loads(replace(case, assets=assets), index)
+    design = np.empty((len(assets), 1))
+    if len(interval_rows):
+        ref = _reference_load(_take(arr, interval_rows), _take_params(existing, interval_rows), values, is_input,
+                              np.full((1, len(index)), interval_h))
+        design[interval_rows] = ref.p_design_kw
+    state_rows = np.setdiff1d(np.arange(len(assets)), interval_rows)
+    if len(state_rows):
+        ref = _reference_load(_take(arr, state_rows), _take_params(existing, state_rows),
+                              states.shaft_load_frac[state_rows], np.zeros(len(state_rows), dtype=bool),
+                              states.duration_h_per_yr[state_rows])
+        design[state_rows] = ref.p_design_kw
+    return design
+
+
 def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     """Efficiency, power factor and kVAr against shaft load for every option of one asset.
 
@@ -1753,6 +1775,9 @@ def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     arr = _take(asset_arrays(a), pos)
     existing = existing_motor(arr)
     load = _reference_load(arr, existing, load_frac[None, :], np.zeros(1, dtype=bool), np.ones((1, len(load_frac))))
+    # the design (valve-open) power is the asset's own, from its profile or duty, as in the yearly run; the
+    # loads asked for here are only where the curves are drawn (they must not move the design point)
+    load.p_design_kw = _design_shaft_kw(case, a.iloc[pos].reset_index(drop=True), arr, existing)
     frames = []
     for o in np.flatnonzero(ok[0]):
         option = options.iloc[o]

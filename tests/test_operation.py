@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
@@ -198,3 +199,12 @@ def test_wound_field_overload_is_flagged(demo_case):
         load = o._reference_load(arr, existing, loads, np_.zeros(1, dtype=bool), np_.ones(loads.shape))
         texts.append([t for _, t in o._evaluate(option, arr, existing, load).flags])
     assert o._OVERLOAD_TEXT not in texts[0] and o._OVERLOAD_TEXT in texts[1]
+
+
+def test_performance_curves_do_not_depend_on_the_loads_asked_for(demo_case):
+    # the design point is the asset's own (from its profile), not the largest load drawn: at 100 % load the
+    # curves of a 0.5-1.0 sweep and of the default 0.05-1.25 sweep agree (hand reasoning: same model, same load)
+    wide = performance_curves(demo_case, "HRW-P01")
+    narrow = performance_curves(demo_case, "HRW-P01", np.linspace(0.5, 1.0, 11))
+    at = lambda f: f[np.isclose(f["load_frac"], 1.0)].set_index("option_id")[["shaft_p_kw", "p_in_kw"]]  # noqa: E731
+    pd.testing.assert_frame_equal(at(wide), at(narrow))
