@@ -175,7 +175,8 @@ def capital_cost(options: pd.DataFrame, rated_p_kw, capacitor_q_kvar=None) -> Ca
     return CapitalCost(CAPEX_COMPONENTS, amount)
 
 
-def applicability(options: pd.DataFrame, assets: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+def applicability(options: pd.DataFrame, assets: pd.DataFrame,
+                  region: str | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Say which options apply to which motors, and why not where they do not.
 
     Parameters
@@ -183,7 +184,12 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame) -> tuple[np.ndarr
     options : pandas.DataFrame
         Checked options catalogue.
     assets : pandas.DataFrame
-        Checked asset register (columns rated_p_kw, application, load_type, speed_control, machine_type).
+        Checked asset register (columns rated_p_kw, application, load_type, speed_control, machine_type, and
+        poles with ``region``).
+    region : str, optional
+        The case's region (:func:`models.regulations.minimum_class`): a new induction motor below the
+        class the region's rules require for the motor's size and poles cannot be bought, so it does not
+        apply (default: no regional rule).
 
     Returns
     -------
@@ -197,7 +203,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame) -> tuple[np.ndarr
     is already fitted, nor to a constant-torque load at fixed speed (it would add losses); a line-start PM
     motor is not offered where a drive already controls the speed; rewinds and terminal capacitors apply
     to induction motors only, and capacitors never to a motor fed by a drive (capacitors on a drive output
-    are forbidden).
+    are forbidden); with a region, a new induction motor of a class below the region's minimum for the
+    motor's size and poles is not offered.
     """
     n_a, n_o = len(assets), len(options)
     p = assets["rated_p_kw"].to_numpy(dtype=float)[:, None]
@@ -223,4 +230,12 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame) -> tuple[np.ndarr
     exclude((tech == "line_start_pm") & (control == "drive"), "speed is drive-controlled: a PM motor on the drive fits better")
     exclude(np.isin(tech, ["rewind", "capacitor"]) & (machine != "induction"), "applies to induction motors only")
     exclude((tech == "capacitor") & (control == "drive"), "never fit capacitors on a drive output")
+    if region is not None and n_a and (tech == "induction").any():
+        from models.regulations import class_rank, minimum_class
+
+        required = minimum_class(region, p[:, 0], assets["poles"].to_numpy(dtype=float))
+        offered = class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
+        below = (tech == "induction") & (offered < class_rank(required)[:, None])
+        for cls in sorted(set(required[below.any(axis=1)])):
+            exclude(below & (required[:, None] == cls), f"below the regional minimum for new motors of this size ({cls})")
     return reason == "", reason

@@ -82,3 +82,23 @@ class TestClassOfEfficiency:
         assert class_of_efficiency(15, 4, 50, 92.5) == "IE3"
         assert class_of_efficiency(15, 4, 50, 93.9) == "IE4"
         assert class_of_efficiency(15, 4, 50, 80.0) == "below IE1"
+
+
+def test_new_motors_below_the_regional_minimum_are_not_offered():
+    # Regulation (EU) 2019/1781, Annex I: from 1 July 2023 a new 75-200 kW 2-, 4- or 6-pole motor must be IE4;
+    # a 15 kW 4-pole motor IE3. So an IE3 option is withdrawn for the 110 kW motor only, and only in the EU.
+    from models.case import load_case
+    from models.options import applicability
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")  # the default catalogue
+    options = case.options
+    assets = pd.DataFrame({"rated_p_kw": [110.0, 15.0], "poles": [4, 4], "application": ["pump", "pump"],
+                           "load_type": ["centrifugal", "centrifugal"], "speed_control": ["throttle", "throttle"],
+                           "machine_type": ["induction", "induction"]})
+    ids = list(options["option_id"])
+    applies, reason = applicability(options, assets, "EU")
+    assert not applies[0, ids.index("ie3")] and "regional minimum" in reason[0, ids.index("ie3")]
+    assert "IE4" in reason[0, ids.index("ie3")]
+    assert applies[0, ids.index("ie4")] and applies[1, ids.index("ie3")]
+    without, _ = applicability(options, assets)
+    assert without[0, ids.index("ie3")]

@@ -57,7 +57,9 @@ def build_case(folder: Path, descriptions: dict[str, str] | None = None, ids: di
             row[2] = descriptions[row[0]]
         if ids and row[0] in ids:
             row[0] = ids[row[0]]
-    cb.write_case(folder, assets=assets)
+    # a region without minimum-efficiency rules: C1's new IE3 motor stays on offer (in the EU a 75 kW 2-pole
+    # motor must be IE4)
+    cb.write_case(folder, assets=assets, case_toml=cb.CASE_TOML + 'region = "OTHER"\n')
     (folder / "tariffs").mkdir(exist_ok=True)
     (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
     sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
