@@ -1070,7 +1070,14 @@ def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.Dat
 
 
 def plan_solve_text(result) -> str:
-    """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time)."""
+    """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time), and
+    which reactive projects were left out as worthless beside the rest of the plan."""
+    text = _plan_proof_text(result)
+    withdrawn = scenario.withdrawn_text(getattr(result, "plan_status", None))
+    return f"{text} {withdrawn}" if withdrawn else text
+
+
+def _plan_proof_text(result) -> str:
     status = getattr(result, "plan_status", None) or {}
     kind, gap = status.get("status"), status.get("gap_frac", float("nan"))
     settings = status.get("settings")

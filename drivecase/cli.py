@@ -262,6 +262,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def _print_run_summary(case, result) -> None:
+    from models import scenario
+
     currency = case.settings.currency
     r = result.results
     best = r[r["best_for_asset"] & (r["capital"] > 0)]
@@ -275,6 +277,9 @@ def _print_run_summary(case, result) -> None:
     status = result.plan_status or {}
     if status.get("message"):
         print(f"  Exact plan: {status['message']}")
+    withdrawn = scenario.withdrawn_text(status)
+    if withdrawn:
+        print(f"  {withdrawn}")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")

@@ -20,9 +20,11 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from models import attribution
 from models import cashflows as cf
 from models import end_of_life, finance, plan, risk
-from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
+from models.bill_savings import (REACTIVE_TECHNOLOGIES, SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills,
+                                 site_setups)
 from models.memory import retaining_memory
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
                               _SiteRecompute,
@@ -551,7 +553,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
             own[name] = own.get(name, 0.0) + time.perf_counter() - t0
 
     def plan_now():
-        return timed("fleet plan", _plan, results, capital_spend, project_ids, assumptions, d, plan_settings)
+        return timed("fleet plan", _plan_with_interactions, case, op, results, capital_spend, project_ids, assumptions, d,
+                     plan_settings)
 
     def eol_now():
         return (_end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon),
@@ -596,8 +599,8 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
     results = previous.results
     project_ids = project_labels(results).to_numpy(dtype=object)
     step("fleet plan")
-    plan_frames = _plan(results, previous.capital_spend_by_year, project_ids, assumptions,
-                        float(assumptions.discount_rate_frac), settings)
+    plan_frames = _plan_with_interactions(case, previous.physics.operation, results, previous.capital_spend_by_year,
+                                          project_ids, assumptions, float(assumptions.discount_rate_frac), settings)
     step("bills")
     base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
     bills = _bills(case, previous.physics.operation, plan_frames[0], base, float(assumptions.energy_price_factor))
@@ -725,9 +728,11 @@ def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, proje
     return frame, total
 
 
-def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings):
+def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=()):
     candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
     candidates &= results["npv"].to_numpy() > 0
+    if len(exclude):
+        candidates &= ~np.isin(project_ids, np.asarray(list(exclude), dtype=object))
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
@@ -744,8 +749,110 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     macc = np.flatnonzero((results["capital"].to_numpy() > 0) & (co2 > 1e-9) & np.isfinite(cost_t))
     curve = plan.abatement_curve(project_ids[macc], results["asset_id"].to_numpy()[macc], results["npv"].to_numpy()[macc],
                                  co2[macc], cost_t[macc])
-    status = {"status": exact.status, "message": exact.message, "gap_frac": float(exact.gap_frac), "settings": settings}
+    status = {"status": exact.status, "message": exact.message, "gap_frac": float(exact.gap_frac), "settings": settings,
+              "withdrawn": tuple(sorted(str(x) for x in exclude))}
     return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve, status
+
+
+#: A reactive project (terminal capacitor, wound-field machine) leaves the plan when, beside the rest of the plan,
+#: it lowers its site's bill by less than this share of its saving priced alone: the rest of the plan already
+#: takes the reactive charge it was bought to remove (a design choice of this tool).
+PLAN_REACTIVE_MIN_SHARE = 0.05
+#: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before).
+PLAN_INTERACTION_ROUNDS = 3
+
+
+def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataFrame,
+                           price_factor: float = 1.0) -> pd.DataFrame:
+    """Each reactive project of a plan: its yearly bill saving priced alone and as part of the plan.
+
+    Parameters
+    ----------
+    case, op
+        The case and its operating result.
+    plan_frame : pandas.DataFrame
+        The plan (asset_id, option_id, ...).
+    results : pandas.DataFrame
+        The per-project results (``bill_saving_per_yr`` and ``capital``, at the price levels).
+    price_factor : float
+        The electricity price level [-] (the tariffs' charges times this).
+
+    Returns
+    -------
+    pandas.DataFrame
+        project_id ("asset/option"), site_id, saving_alone_per_yr and saving_in_plan_per_yr [currency/yr],
+        per site in the order the projects were added.
+
+    Notes
+    -----
+    Per site, the plan's other projects are in place first; the reactive projects (terminal capacitors,
+    wound-field machines) are then added one at a time, the best saving per unit of capital (priced
+    alone) first, and each is credited the fall of the site's bill it adds:
+    m_k = B(S_(k-1)) - B(S_k), S_k = the rest of the plan plus the first k reactive projects
+    (:func:`models.attribution.option_savings` from S_0, with the cumulative changes). The m_k add up
+    to what the reactive projects save together; a capacitor whose kVAr the plan's drives or the banks
+    before it already removed is credited (almost) nothing, however much it saves alone.
+    """
+    columns = ["project_id", "site_id", "saving_alone_per_yr", "saving_in_plan_per_yr"]
+    if not len(plan_frame):
+        return pd.DataFrame(columns=columns)
+    choice = plan_choice(op, plan_frame)
+    reactive = (choice > 0) & np.isin(op.technologies[choice], REACTIVE_TECHNOLOGIES)
+    if not reactive.any():
+        return pd.DataFrame(columns=columns)
+    by_project = results.set_index(project_labels(results))
+    setups = site_setups(case, op.index)
+    frames = []
+    for site_id in sorted(set(op.site_ids[reactive])):
+        members = np.flatnonzero(op.site_ids == site_id)
+        own = members[reactive[members]]
+        ids = np.array([f"{op.asset_ids[j]}/{op.option_ids[choice[j]]}" for j in own], dtype=object)
+        alone = by_project["bill_saving_per_yr"].reindex(ids).to_numpy(dtype=float)
+        capital = by_project["capital"].reindex(ids).to_numpy(dtype=float)
+        order = np.lexsort((ids.astype(str), -alone / np.maximum(capital, 1e-9)))
+        own, ids, alone = own[order], ids[order], alone[order]
+        rest = np.where(reactive[members], 0, choice[members])  # the plan without its reactive projects
+        base_p = np.asarray(op.p_kw[rest, members], dtype=float)
+        base_q = np.asarray(op.q_kvar[rest, members], dtype=float)
+        step_p = np.asarray(op.p_kw[choice[own], own], dtype=float) - np.asarray(op.p_kw[0, own], dtype=float)
+        step_q = np.asarray(op.q_kvar[choice[own], own], dtype=float) - np.asarray(op.q_kvar[0, own], dtype=float)
+        setup = setups[site_id]
+        together = attribution.option_savings(setup.tariff, op.index, base_p, base_q, np.cumsum(step_p, axis=0),
+                                              np.cumsum(step_q, axis=0), site=setup.site,
+                                              base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+        added = np.diff(np.concatenate([[0.0], together["saving"].to_numpy(dtype=float)]))
+        frames.append(pd.DataFrame({"project_id": ids, "site_id": site_id, "saving_alone_per_yr": alone,
+                                    "saving_in_plan_per_yr": added * price_factor}))
+    return pd.concat(frames, ignore_index=True)
+
+
+def withdrawn_text(status: dict | None, shown: int = 3) -> str:
+    """The reactive projects withdrawn from a plan, in words ("" when none), e.g. for a summary line."""
+    withdrawn = list((status or {}).get("withdrawn", ()))
+    if not withdrawn:
+        return ""
+    names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
+    return (f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan each would cut "
+            f"its site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of its own saving ({names}).")
+
+
+def _plan_with_interactions(case, op, results, capital_spend, project_ids, assumptions, d, settings: PlanSettings):
+    """:func:`_plan`, then withdraw the reactive projects worth (almost) nothing beside the rest of the plan
+    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`) and solve again, for at most
+    :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the withdrawn projects."""
+    withdrawn: set[str] = set()
+    frames = _plan(results, capital_spend, project_ids, assumptions, d, settings)
+    price_factor = float(assumptions.energy_price_factor)
+    for _ in range(PLAN_INTERACTION_ROUNDS - 1):
+        value = reactive_value_in_plan(case, op, frames[0], results, price_factor)
+        alone = value["saving_alone_per_yr"].to_numpy(dtype=float)
+        worthless = value["saving_in_plan_per_yr"].to_numpy(dtype=float) < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0)
+        fresh = set(value.loc[worthless, "project_id"]) - withdrawn
+        if not fresh:
+            break
+        withdrawn |= fresh
+        frames = _plan(results, capital_spend, project_ids, assumptions, d, settings, exclude=withdrawn)
+    return frames
 
 
 #: File descriptor 1 belongs to the whole process: one silenced solve at a time, or two threads could

@@ -28,3 +28,11 @@ def demo_case():
 
     case, _ = load_case(DEMO, mode="strict")
     return case
+
+
+@pytest.fixture(scope="session")
+def demo_run_physics(demo_case):
+    """The demo case and its physics (machines and bill savings), computed once per session."""
+    from models import scenario
+
+    return demo_case, scenario.physics(demo_case, float(demo_case.finance.capacitor_cost_per_kvar))

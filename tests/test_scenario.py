@@ -272,15 +272,17 @@ def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, mo
     threads = []
     real = scenario._plan
 
-    def spy(*args):
+    def spy(*args, **kwargs):
         threads.append(threading.current_thread().name)
-        return real(*args)
+        return real(*args, **kwargs)
 
     monkeypatch.setattr(scenario, "_plan", spy)
     own: dict = {}
     beside = scenario.economics(demo_case, phys, demo_case.finance, with_risk=True, timer=own)
+    solves = len(threads)  # the plan and its re-solves without worthless reactive projects
     alone = scenario.economics(demo_case, phys, demo_case.finance, with_risk=False)
-    assert threads[0].startswith("drivecase-plan") and threads[1] == threading.main_thread().name
+    assert all(name.startswith("drivecase-plan") for name in threads[:solves])
+    assert threads[solves:] == [threading.main_thread().name] * solves
     pd.testing.assert_frame_equal(beside.plan, alone.plan)
     pd.testing.assert_frame_equal(beside.bills, alone.bills)
     pd.testing.assert_frame_equal(beside.end_of_life, alone.end_of_life)
@@ -294,3 +296,29 @@ def test_add_ons_keep_todays_maintenance():
     options = pd.DataFrame({"technology": ["existing", "capacitor", "add_drive", "induction"],
                             "maintenance_cost_per_kw_yr": [2.0, 0.2, 1.0, 1.5]})
     assert_allclose(scenario._maintenance_per_yr(options, np.array([10.0])), [[20.0, 22.0, 30.0, 15.0]])
+
+
+def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physics):
+    # the reactive projects' in-plan savings add up to the bill without them less the bill with them, both read
+    # from the bill engine's own meters (an independent route: meter_and_bills, not the attribution module);
+    # every one kept is worth at least the threshold share of its own saving, and the withdrawn are named
+    from models.bill_savings import meter_and_bills
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    op = phys.operation
+    value = scenario.reactive_value_in_plan(case, op, result.plan, result.results)
+    assert len(value)
+    choice = scenario.plan_choice(op, result.plan)
+    without = np.where(np.isin(op.technologies[choice], ("capacitor", "wound_field")), 0, choice)
+    _, with_bills = meter_and_bills(case, op, choice)
+    _, without_bills = meter_and_bills(case, op, without)
+    for site_id, part in value.groupby("site_id"):
+        gain = (without_bills.loc[without_bills.site_id == site_id, "amount"].sum()
+                - with_bills.loc[with_bills.site_id == site_id, "amount"].sum())
+        assert part["saving_in_plan_per_yr"].sum() == pytest.approx(gain, rel=1e-9, abs=1e-6)
+    kept = value["saving_in_plan_per_yr"] >= scenario.PLAN_REACTIVE_MIN_SHARE * value["saving_alone_per_yr"].clip(lower=0)
+    assert kept.all()
+    withdrawn = result.plan_status["withdrawn"]
+    assert withdrawn and not set(withdrawn) & set(scenario.project_labels(result.plan))
+    assert scenario.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} reactive project(s) left out")

@@ -17,6 +17,7 @@ from markupsafe import Markup
 from plotly.offline import get_plotlyjs
 
 from models.pack import content, figures, templates
+from models.scenario import withdrawn_text
 
 #: Sections of the report: (anchor, title).
 SECTIONS: tuple[tuple[str, str], ...] = (
@@ -171,7 +172,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
                  f"this pack covers {len(scope.asset_ids)} asset(s)."
-                 + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else ""))
+                 + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else "")
+                 + (" " + withdrawn_text(result.plan_status) if withdrawn_text(result.plan_status) else ""))
 
     register = content.risk_register(case, result, scope)
     register_rows = [row([cell(r.category), cell(r.item), cell(r.detail), cell(r.assets, "small"), cell(r.response, "small")])
