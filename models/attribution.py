@@ -111,6 +111,25 @@ def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, i
     return out
 
 
+def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar, *,
+                   site: Site = Site(), base_p_kw_profile=None, interval_h: float | None = None,
+                   repeat_year: bool = False) -> np.ndarray:
+    """Total bill of the site for each scenario of changes [currency], shape (n_scenarios,).
+
+    Scenario s is the assets' totals plus ``delta_*[s]`` (as in :func:`option_savings`, which it is the
+    bill part of: one bill per scenario, nothing else).
+    """
+    p0 = _totals(assets_p_kw, "assets_p_kw")
+    q0 = _totals(assets_q_kvar, "assets_q_kvar")
+    dp = _deltas(delta_p_kw, len(p0), "delta_p_kw")
+    dq = _deltas(delta_q_kvar, len(p0), "delta_q_kvar")
+    if dp.shape != dq.shape:
+        raise ValueError(f"delta_p_kw and delta_q_kvar differ in shape: {dp.shape} vs {dq.shape}")
+    frame = _bill_scenarios(tariff, index, site, p0, q0, dp, dq, base_p_kw_profile=base_p_kw_profile,
+                            interval_h=interval_h, repeat_year=repeat_year)
+    return frame["total"].to_numpy(dtype=float)
+
+
 def option_savings(
     tariff: Tariff,
     index: pd.DatetimeIndex,

@@ -750,7 +750,7 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     curve = plan.abatement_curve(project_ids[macc], results["asset_id"].to_numpy()[macc], results["npv"].to_numpy()[macc],
                                  co2[macc], cost_t[macc])
     status = {"status": exact.status, "message": exact.message, "gap_frac": float(exact.gap_frac), "settings": settings,
-              "withdrawn": tuple(sorted(str(x) for x in exclude))}
+              "withdrawn": (), "set_aside": ()}
     return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve, status
 
 
@@ -758,13 +758,19 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
 #: it lowers its site's bill by less than this share of its saving priced alone: the rest of the plan already
 #: takes the reactive charge it was bought to remove (a design choice of this tool).
 PLAN_REACTIVE_MIN_SHARE = 0.05
-#: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before).
-PLAN_INTERACTION_ROUNDS = 3
+#: A run of reactive projects that keeps less than this share of its own saving beside the rest of the plan is
+#: split in halves and each half priced again, down to single projects.
+PLAN_REACTIVE_SPLIT_SHARE = 0.9
+#: A site's reactive projects are first priced in this many runs of consecutive projects.
+PLAN_REACTIVE_RUNS = 16
+#: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before):
+#: one check of the first plan and one solve without the projects it withdrew.
+PLAN_INTERACTION_ROUNDS = 2
 
 
 def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataFrame,
                            price_factor: float = 1.0) -> pd.DataFrame:
-    """Each reactive project of a plan: its yearly bill saving priced alone and as part of the plan.
+    """What a plan's reactive projects add beside the rest of the plan, run by run.
 
     Parameters
     ----------
@@ -780,20 +786,27 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
     Returns
     -------
     pandas.DataFrame
-        project_id ("asset/option"), site_id, saving_alone_per_yr and saving_in_plan_per_yr [currency/yr],
-        per site in the order the projects were added.
+        One row per reactive project of the plan, per site in the order they were added: project_id
+        ("asset/option"), site_id, run (the run of consecutive projects it was priced in),
+        saving_alone_per_yr [currency/yr] (its own, priced alone against today's bill), and for its run
+        run_saving_alone_per_yr (the run's own savings added up) and run_saving_in_plan_per_yr (what the
+        run adds to the site's bill saving) [currency/yr].
 
     Notes
     -----
     Per site, the plan's other projects are in place first; the reactive projects (terminal capacitors,
-    wound-field machines) are then added one at a time, the best saving per unit of capital (priced
-    alone) first, and each is credited the fall of the site's bill it adds:
-    m_k = B(S_(k-1)) - B(S_k), S_k = the rest of the plan plus the first k reactive projects
-    (:func:`models.attribution.option_savings` from S_0, with the cumulative changes). The m_k add up
-    to what the reactive projects save together; a capacitor whose kVAr the plan's drives or the banks
-    before it already removed is credited (almost) nothing, however much it saves alone.
+    wound-field machines) are then added in order of saving per unit of capital (priced alone), and the
+    bill is priced after each run of consecutive projects: S_k = B(rest) - B(rest + first k reactive
+    projects), and a run (a, b] adds S_b - S_a. A site's projects are first split into
+    :data:`PLAN_REACTIVE_RUNS` runs; a run that keeps less than :data:`PLAN_REACTIVE_SPLIT_SHARE` of its
+    own savings is split in halves and priced again, down to single projects, so where the reactive value
+    saturates each project's own addition is known, and elsewhere a bill is priced per run, not per
+    project (:func:`models.attribution.scenario_bills`). The runs' additions add up to what the reactive
+    projects save together. A capacitor whose kVAr the plan's drives or the banks before it already
+    removed adds (almost) nothing, however much it saves alone.
     """
-    columns = ["project_id", "site_id", "saving_alone_per_yr", "saving_in_plan_per_yr"]
+    columns = ["project_id", "site_id", "run", "saving_alone_per_yr", "run_saving_alone_per_yr",
+               "run_saving_in_plan_per_yr"]
     if not len(plan_frame):
         return pd.DataFrame(columns=columns)
     choice = plan_choice(op, plan_frame)
@@ -802,8 +815,8 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
         return pd.DataFrame(columns=columns)
     by_project = results.set_index(project_labels(results))
     setups = site_setups(case, op.index)
-    frames = []
-    for site_id in sorted(set(op.site_ids[reactive])):
+
+    def one_site(site_id: str) -> pd.DataFrame:
         members = np.flatnonzero(op.site_ids == site_id)
         own = members[reactive[members]]
         ids = np.array([f"{op.asset_ids[j]}/{op.option_ids[choice[j]]}" for j in own], dtype=object)
@@ -811,18 +824,63 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
         capital = by_project["capital"].reindex(ids).to_numpy(dtype=float)
         order = np.lexsort((ids.astype(str), -alone / np.maximum(capital, 1e-9)))
         own, ids, alone = own[order], ids[order], alone[order]
-        rest = np.where(reactive[members], 0, choice[members])  # the plan without its reactive projects
-        base_p = np.asarray(op.p_kw[rest, members], dtype=float)
-        base_q = np.asarray(op.q_kvar[rest, members], dtype=float)
-        step_p = np.asarray(op.p_kw[choice[own], own], dtype=float) - np.asarray(op.p_kw[0, own], dtype=float)
-        step_q = np.asarray(op.q_kvar[choice[own], own], dtype=float) - np.asarray(op.q_kvar[0, own], dtype=float)
+        # the plan's rows of the site in one read each (a fleet too large to keep every option per interval
+        # recomputes them once per site), today's rows where the plan has a reactive project (the plan without
+        # them), and the reactive projects' changes, added up in order
+        plan_p = np.array(op.p_kw[choice[members], members], dtype=float)
+        plan_q = np.array(op.q_kvar[choice[members], members], dtype=float)
+        local = np.flatnonzero(reactive[members])[order]
+        today_p = np.asarray(op.p_kw[0, own], dtype=float)
+        today_q = np.asarray(op.q_kvar[0, own], dtype=float)
+        cum_p = np.cumsum(plan_p[local] - today_p, axis=0)
+        cum_q = np.cumsum(plan_q[local] - today_q, axis=0)
+        plan_p[local], plan_q[local] = today_p, today_q
+        base_p, base_q = plan_p, plan_q
         setup = setups[site_id]
-        together = attribution.option_savings(setup.tariff, op.index, base_p, base_q, np.cumsum(step_p, axis=0),
-                                              np.cumsum(step_q, axis=0), site=setup.site,
-                                              base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
-        added = np.diff(np.concatenate([[0.0], together["saving"].to_numpy(dtype=float)]))
-        frames.append(pd.DataFrame({"project_id": ids, "site_id": site_id, "saving_alone_per_yr": alone,
-                                    "saving_in_plan_per_yr": added * price_factor}))
+        saved: dict[int, float] = {0: 0.0}  # S_k [currency/yr] by prefix length k
+
+        def price(ks: list[int]) -> None:
+            ks = [k for k in dict.fromkeys(ks) if k not in saved]
+            if not ks:
+                return
+            at = np.asarray(ks) - 1
+            bills = attribution.scenario_bills(setup.tariff, op.index, base_p, base_q,
+                                               np.vstack([np.zeros((1, cum_p.shape[1])), cum_p[at]]),
+                                               np.vstack([np.zeros((1, cum_q.shape[1])), cum_q[at]]), site=setup.site,
+                                               base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+            for k, bill_k in zip(ks, bills[1:]):
+                saved[k] = float(bills[0] - bill_k) * price_factor
+
+        n = len(own)
+        edges = sorted(set(np.linspace(0, n, min(PLAN_REACTIVE_RUNS, n) + 1).round().astype(int).tolist()))
+        price(edges[1:])
+        runs = list(zip(edges[:-1], edges[1:]))
+        final = []
+        while runs:  # level by level: the halves of every run to split are priced in one call
+            split = []
+            for a, b in runs:
+                own_sum = float(alone[a:b].sum())
+                added = saved[b] - saved[a]
+                if b - a > 1 and own_sum > 0.0 and added < PLAN_REACTIVE_SPLIT_SHARE * own_sum:
+                    split.append((a, (a + b) // 2, b))
+                else:
+                    final.append((a, b, own_sum, added))
+            price([mid for _, mid, _ in split])
+            runs = [half for a, mid, b in split for half in ((a, mid), (mid, b))]
+        final.sort()
+        run_of = np.empty(n, dtype=int)
+        run_alone = np.empty(n)
+        run_added = np.empty(n)
+        for r, (a, b, own_sum, added) in enumerate(final):
+            run_of[a:b], run_alone[a:b], run_added[a:b] = r, own_sum, added
+        return pd.DataFrame({"project_id": ids, "site_id": site_id, "run": run_of, "saving_alone_per_yr": alone,
+                             "run_saving_alone_per_yr": run_alone, "run_saving_in_plan_per_yr": run_added})
+
+    sites = sorted(set(op.site_ids[reactive]))
+    # sites at once in threads (each site's bills are its own; a large fleet recomputes the plan's rows per site)
+    with ThreadPoolExecutor(max_workers=max(1, min(PHYSICS_THREADS, len(sites))),
+                            thread_name_prefix="drivecase-reactive") as pool:
+        frames = list(pool.map(one_site, sites))
     return pd.concat(frames, ignore_index=True)
 
 
@@ -832,26 +890,45 @@ def withdrawn_text(status: dict | None, shown: int = 3) -> str:
     if not withdrawn:
         return ""
     names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
-    return (f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan each would cut "
-            f"its site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of its own saving ({names}).")
+    text = (f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan they would cut "
+            f"their site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of their own saving ({names})")
+    aside = len((status or {}).get("set_aside", ()))
+    if aside:
+        text += f"; {aside} other reactive option(s) at the same sites, whose value the plan has taken, were set aside"
+    return text + "."
 
 
 def _plan_with_interactions(case, op, results, capital_spend, project_ids, assumptions, d, settings: PlanSettings):
     """:func:`_plan`, then withdraw the reactive projects worth (almost) nothing beside the rest of the plan
-    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`) and solve again, for at most
-    :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the withdrawn projects."""
+    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`) and solve again; at a site where some
+    were withdrawn (its reactive value is taken), its other reactive options are left out too, so the new
+    plan does not buy their like. At most :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the
+    withdrawn projects."""
     withdrawn: set[str] = set()
     frames = _plan(results, capital_spend, project_ids, assumptions, d, settings)
     price_factor = float(assumptions.energy_price_factor)
+    reactive_options = np.isin(results["technology"].to_numpy(dtype=object), REACTIVE_TECHNOLOGIES)
     for _ in range(PLAN_INTERACTION_ROUNDS - 1):
         value = reactive_value_in_plan(case, op, frames[0], results, price_factor)
-        alone = value["saving_alone_per_yr"].to_numpy(dtype=float)
-        worthless = value["saving_in_plan_per_yr"].to_numpy(dtype=float) < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0)
+        alone = value["run_saving_alone_per_yr"].to_numpy(dtype=float)
+        worthless = (value["run_saving_in_plan_per_yr"].to_numpy(dtype=float)
+                     < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
         fresh = set(value.loc[worthless, "project_id"]) - withdrawn
         if not fresh:
             break
         withdrawn |= fresh
-        frames = _plan(results, capital_spend, project_ids, assumptions, d, settings, exclude=withdrawn)
+        taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
+        kept = set(value.loc[~worthless, "project_id"])
+        others = {str(x) for x in project_ids[taken]} - kept - withdrawn
+        left_out = withdrawn | others
+        first = frames[0]
+        start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
+                      if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
+        frames = _plan(results, capital_spend, project_ids, assumptions, d, replace(settings, start=start),
+                       exclude=left_out)
+        frames[4]["settings"] = settings
+        frames[4]["withdrawn"] = tuple(sorted(withdrawn))
+        frames[4]["set_aside"] = tuple(sorted(others))
     return frames
 
 
