@@ -38,7 +38,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from models import finance, risk
+from models import finance, reactive_plan, risk
 from models import io as case_io
 from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
@@ -1073,7 +1073,7 @@ def plan_solve_text(result) -> str:
     """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time), and
     which reactive projects were left out as worthless beside the rest of the plan."""
     text = _plan_proof_text(result)
-    withdrawn = scenario.withdrawn_text(getattr(result, "plan_status", None))
+    withdrawn = reactive_plan.withdrawn_text(getattr(result, "plan_status", None))
     return f"{text} {withdrawn}" if withdrawn else text
 
 

@@ -262,7 +262,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def _print_run_summary(case, result) -> None:
-    from models import scenario
+    from models.reactive_plan import withdrawn_text
 
     currency = case.settings.currency
     r = result.results
@@ -277,7 +277,7 @@ def _print_run_summary(case, result) -> None:
     status = result.plan_status or {}
     if status.get("message"):
         print(f"  Exact plan: {status['message']}")
-    withdrawn = scenario.withdrawn_text(status)
+    withdrawn = withdrawn_text(status)
     if withdrawn:
         print(f"  {withdrawn}")
     comparison = result.plan_comparison

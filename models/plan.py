@@ -632,3 +632,21 @@ def abatement_curve(project_id: Any, asset_id: Any, npv: Any, co2_avoided_t_per_
     frame["cumulative_co2_avoided_t_per_yr"] = cumulative
     return frame[["project_id", "asset_id", "abatement_cost_per_t", "co2_avoided_t_per_yr",
                   "bar_start_t_per_yr", "cumulative_co2_avoided_t_per_yr", "npv"]]
+
+
+def project_labels(frame: pd.DataFrame) -> pd.Series:
+    """The project label "asset/option" of each row of a table with ``asset_id`` and ``option_id``
+    (the labels the plan and the cash flows use)."""
+    return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
+
+
+def plan_choice(op, plan_frame: pd.DataFrame) -> np.ndarray:
+    """Option position of every asset under a plan (0 = today's motor), by index lookup (no per-row scan)."""
+    choice = np.zeros(len(op.asset_ids), dtype=int)
+    if len(plan_frame):
+        assets = pd.Index(op.asset_ids.astype(str)).get_indexer(plan_frame["asset_id"].astype(str))
+        options = pd.Index(op.option_ids.astype(str)).get_indexer(plan_frame["option_id"].astype(str))
+        if (assets < 0).any() or (options < 0).any():
+            raise ValueError("the plan names an asset or option the operating result does not hold")
+        choice[assets] = options
+    return choice

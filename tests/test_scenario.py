@@ -302,12 +302,13 @@ def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physi
     # the reactive projects' in-plan savings add up to the bill without them less the bill with them, both read
     # from the bill engine's own meters (an independent route: meter_and_bills, not the attribution module);
     # every one kept is worth at least the threshold share of its own saving, and the withdrawn are named
+    from models import reactive_plan
     from models.bill_savings import meter_and_bills
 
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, case.finance, with_risk=False)
     op = phys.operation
-    value = scenario.reactive_value_in_plan(case, op, result.plan, result.results)
+    value = reactive_plan.reactive_value_in_plan(case, op, result.plan, result.results)
     assert len(value)
     choice = scenario.plan_choice(op, result.plan)
     without = np.where(np.isin(op.technologies[choice], ("capacitor", "wound_field")), 0, choice)
@@ -320,8 +321,8 @@ def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physi
         assert runs["run_saving_in_plan_per_yr"].sum() == pytest.approx(gain, rel=1e-9, abs=1e-6)
         assert runs["run_saving_alone_per_yr"].sum() == pytest.approx(part["saving_alone_per_yr"].sum(), rel=1e-12)
     kept = (value["run_saving_in_plan_per_yr"]
-            >= scenario.PLAN_REACTIVE_MIN_SHARE * value["run_saving_alone_per_yr"].clip(lower=0))
+            >= reactive_plan.PLAN_REACTIVE_MIN_SHARE * value["run_saving_alone_per_yr"].clip(lower=0))
     assert kept.all()
     withdrawn = result.plan_status["withdrawn"]
     assert withdrawn and not set(withdrawn) & set(scenario.project_labels(result.plan))
-    assert scenario.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} reactive project(s) left out")
+    assert reactive_plan.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} reactive project(s) left out")

@@ -17,7 +17,7 @@ from markupsafe import Markup
 from plotly.offline import get_plotlyjs
 
 from models.pack import content, figures, templates
-from models.scenario import withdrawn_text
+from models.reactive_plan import withdrawn_text
 
 #: Sections of the report: (anchor, title).
 SECTIONS: tuple[tuple[str, str], ...] = (

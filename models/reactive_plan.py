@@ -1,0 +1,214 @@
+"""The plan's reactive projects priced beside the rest of the plan, and withdrawn where they add nothing.
+
+Each project of a plan is priced alone against today's bill, but reactive savings do not add up: a
+terminal capacitor bought to remove a kVArh charge is worth nothing once the plan's drives or another
+bank have removed it. :func:`reactive_value_in_plan` prices, site by site, what the plan's reactive
+projects (terminal capacitors, wound-field machines) add on top of the rest of the plan;
+:func:`plan_without_idle_reactive` withdraws those that add (almost) nothing and solves the plan again.
+The method is the tool's own (docs/finance.md, section 6); the bills are those of
+:func:`models.attribution.scenario_bills`.
+"""
+
+from __future__ import annotations
+
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import replace
+
+import numpy as np
+import pandas as pd
+
+from models import attribution
+from models.bill_savings import REACTIVE_TECHNOLOGIES, site_setups
+from models.operation import PHYSICS_THREADS
+from models.plan import plan_choice, project_labels
+
+#: A reactive project (terminal capacitor, wound-field machine) leaves the plan when, beside the rest of the plan,
+#: it lowers its site's bill by less than this share of its saving priced alone: the rest of the plan already
+#: takes the reactive charge it was bought to remove (a design choice of this tool).
+PLAN_REACTIVE_MIN_SHARE = 0.05
+#: A run of reactive projects that keeps less than this share of its own saving beside the rest of the plan is
+#: split in halves and each half priced again, down to single projects.
+PLAN_REACTIVE_SPLIT_SHARE = 0.9
+#: A site's reactive projects are first priced in this many runs of consecutive projects.
+PLAN_REACTIVE_RUNS = 16
+#: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before):
+#: one check of the first plan and one solve without the projects it withdrew.
+PLAN_INTERACTION_ROUNDS = 2
+
+
+def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataFrame,
+                           price_factor: float = 1.0) -> pd.DataFrame:
+    """What a plan's reactive projects add beside the rest of the plan, run by run.
+
+    Parameters
+    ----------
+    case, op
+        The case and its operating result.
+    plan_frame : pandas.DataFrame
+        The plan (asset_id, option_id, ...).
+    results : pandas.DataFrame
+        The per-project results (``bill_saving_per_yr`` and ``capital``, at the price levels).
+    price_factor : float
+        The electricity price level [-] (the tariffs' charges times this).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per reactive project of the plan, per site in the order they were added: project_id
+        ("asset/option"), site_id, run (the run of consecutive projects it was priced in),
+        saving_alone_per_yr [currency/yr] (its own, priced alone against today's bill), and for its run
+        run_saving_alone_per_yr (the run's own savings added up) and run_saving_in_plan_per_yr (what the
+        run adds to the site's bill saving) [currency/yr].
+
+    Notes
+    -----
+    Per site, the plan's other projects are in place first; the reactive projects (terminal capacitors,
+    wound-field machines) are then added in order of saving per unit of capital (priced alone), and the
+    bill is priced after each run of consecutive projects: S_k = B(rest) - B(rest + first k reactive
+    projects), and a run (a, b] adds S_b - S_a. A site's projects are first split into
+    :data:`PLAN_REACTIVE_RUNS` runs; a run that keeps less than :data:`PLAN_REACTIVE_SPLIT_SHARE` of its
+    own savings is split in halves and priced again, down to single projects, so where the reactive value
+    saturates each project's own addition is known, and elsewhere a bill is priced per run, not per
+    project (:func:`models.attribution.scenario_bills`). The runs' additions add up to what the reactive
+    projects save together. A capacitor whose kVAr the plan's drives or the banks before it already
+    removed adds (almost) nothing, however much it saves alone.
+    """
+    columns = ["project_id", "site_id", "run", "saving_alone_per_yr", "run_saving_alone_per_yr",
+               "run_saving_in_plan_per_yr"]
+    if not len(plan_frame):
+        return pd.DataFrame(columns=columns)
+    choice = plan_choice(op, plan_frame)
+    reactive = (choice > 0) & np.isin(op.technologies[choice], REACTIVE_TECHNOLOGIES)
+    if not reactive.any():
+        return pd.DataFrame(columns=columns)
+    by_project = results.set_index(project_labels(results))
+    setups = site_setups(case, op.index)
+
+    def one_site(site_id: str) -> pd.DataFrame:
+        members = np.flatnonzero(op.site_ids == site_id)
+        own = members[reactive[members]]
+        ids = np.array([f"{op.asset_ids[j]}/{op.option_ids[choice[j]]}" for j in own], dtype=object)
+        alone = by_project["bill_saving_per_yr"].reindex(ids).to_numpy(dtype=float)
+        capital = by_project["capital"].reindex(ids).to_numpy(dtype=float)
+        order = np.lexsort((ids.astype(str), -alone / np.maximum(capital, 1e-9)))
+        own, ids, alone = own[order], ids[order], alone[order]
+        # the plan's rows of the site in one read each (a fleet too large to keep every option per interval
+        # recomputes them once per site), today's rows where the plan has a reactive project (the plan without
+        # them), and the reactive projects' changes, added up in order
+        plan_p = np.array(op.p_kw[choice[members], members], dtype=float)
+        plan_q = np.array(op.q_kvar[choice[members], members], dtype=float)
+        local = np.flatnonzero(reactive[members])[order]
+        today_p = np.asarray(op.p_kw[0, own], dtype=float)
+        today_q = np.asarray(op.q_kvar[0, own], dtype=float)
+        cum_p = np.cumsum(plan_p[local] - today_p, axis=0)
+        cum_q = np.cumsum(plan_q[local] - today_q, axis=0)
+        plan_p[local], plan_q[local] = today_p, today_q
+        base_p, base_q = plan_p, plan_q
+        setup = setups[site_id]
+        saved: dict[int, float] = {0: 0.0}  # S_k [currency/yr] by prefix length k
+
+        def price(ks: list[int]) -> None:
+            ks = [k for k in dict.fromkeys(ks) if k not in saved]
+            if not ks:
+                return
+            at = np.asarray(ks) - 1
+            bills = attribution.scenario_bills(setup.tariff, op.index, base_p, base_q,
+                                               np.vstack([np.zeros((1, cum_p.shape[1])), cum_p[at]]),
+                                               np.vstack([np.zeros((1, cum_q.shape[1])), cum_q[at]]), site=setup.site,
+                                               base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+            for k, bill_k in zip(ks, bills[1:]):
+                saved[k] = float(bills[0] - bill_k) * price_factor
+
+        n = len(own)
+        edges = sorted(set(np.linspace(0, n, min(PLAN_REACTIVE_RUNS, n) + 1).round().astype(int).tolist()))
+        price(edges[1:])
+        runs = list(zip(edges[:-1], edges[1:]))
+        final = []
+        while runs:  # level by level: the halves of every run to split are priced in one call
+            split = []
+            for a, b in runs:
+                own_sum = float(alone[a:b].sum())
+                added = saved[b] - saved[a]
+                if b - a > 1 and own_sum > 0.0 and added < PLAN_REACTIVE_SPLIT_SHARE * own_sum:
+                    split.append((a, (a + b) // 2, b))
+                else:
+                    final.append((a, b, own_sum, added))
+            price([mid for _, mid, _ in split])
+            runs = [half for a, mid, b in split for half in ((a, mid), (mid, b))]
+        final.sort()
+        run_of = np.empty(n, dtype=int)
+        run_alone = np.empty(n)
+        run_added = np.empty(n)
+        for r, (a, b, own_sum, added) in enumerate(final):
+            run_of[a:b], run_alone[a:b], run_added[a:b] = r, own_sum, added
+        return pd.DataFrame({"project_id": ids, "site_id": site_id, "run": run_of, "saving_alone_per_yr": alone,
+                             "run_saving_alone_per_yr": run_alone, "run_saving_in_plan_per_yr": run_added})
+
+    sites = sorted(set(op.site_ids[reactive]))
+    # sites at once in threads (each site's bills are its own; a large fleet recomputes the plan's rows per site)
+    with ThreadPoolExecutor(max_workers=max(1, min(PHYSICS_THREADS, len(sites))),
+                            thread_name_prefix="drivecase-reactive") as pool:
+        frames = list(pool.map(one_site, sites))
+    return pd.concat(frames, ignore_index=True)
+
+
+def withdrawn_text(status: dict | None, shown: int = 3) -> str:
+    """The reactive projects withdrawn from a plan, in words ("" when none), e.g. for a summary line."""
+    withdrawn = list((status or {}).get("withdrawn", ()))
+    if not withdrawn:
+        return ""
+    names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
+    text = (f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan they would cut "
+            f"their site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of their own saving ({names})")
+    aside = len((status or {}).get("set_aside", ()))
+    if aside:
+        text += f"; {aside} other reactive option(s) at the same sites, whose value the plan has taken, were set aside"
+    return text + "."
+
+
+def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_ids: np.ndarray, settings,
+                               price_factor: float = 1.0):
+    """Solve the plan, then withdraw the reactive projects worth (almost) nothing beside the rest of it
+    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`) and solve again; at a site where some
+    were withdrawn (its reactive value is taken), its other reactive options are left out too, so the new
+    plan does not buy their like. At most :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the
+    withdrawn and the set-aside projects.
+
+    Parameters
+    ----------
+    solve : callable
+        ``solve(exclude, settings)`` -> the plan's frames (plan, rank-order plan, comparison, abatement
+        curve, status dict), leaving out the project labels in ``exclude``.
+    case, op, results
+        The case, its operating result and the per-project results.
+    project_ids : numpy.ndarray of str
+        The project label ("asset/option") of each row of ``results``.
+    settings : models.scenario.PlanSettings
+        How hard each plan is solved; the second starts from the first less what left it.
+    price_factor : float
+        The electricity price level [-].
+    """
+    withdrawn: set[str] = set()
+    frames = solve((), settings)
+    reactive_options = np.isin(results["technology"].to_numpy(dtype=object), REACTIVE_TECHNOLOGIES)
+    for _ in range(PLAN_INTERACTION_ROUNDS - 1):
+        value = reactive_value_in_plan(case, op, frames[0], results, price_factor)
+        alone = value["run_saving_alone_per_yr"].to_numpy(dtype=float)
+        worthless = (value["run_saving_in_plan_per_yr"].to_numpy(dtype=float)
+                     < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
+        fresh = set(value.loc[worthless, "project_id"]) - withdrawn
+        if not fresh:
+            break
+        withdrawn |= fresh
+        taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
+        kept = set(value.loc[~worthless, "project_id"])
+        others = {str(x) for x in project_ids[taken]} - kept - withdrawn
+        left_out = withdrawn | others
+        first = frames[0]
+        start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
+                      if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
+        frames = solve(left_out, replace(settings, start=start))
+        frames[4]["settings"] = settings
+        frames[4]["withdrawn"] = tuple(sorted(withdrawn))
+        frames[4]["set_aside"] = tuple(sorted(others))
+    return frames
