@@ -111,6 +111,17 @@ def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, i
     return out
 
 
+def _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar):
+    """The assets' totals and the scenarios' changes as arrays, checked: (p0, q0, dp, dq)."""
+    p0 = _totals(assets_p_kw, "assets_p_kw")
+    q0 = _totals(assets_q_kvar, "assets_q_kvar")
+    dp = _deltas(delta_p_kw, len(p0), "delta_p_kw")
+    dq = _deltas(delta_q_kvar, len(p0), "delta_q_kvar")
+    if dp.shape != dq.shape:
+        raise ValueError(f"delta_p_kw and delta_q_kvar differ in shape: {dp.shape} vs {dq.shape}")
+    return p0, q0, dp, dq
+
+
 def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar, *,
                    site: Site = Site(), base_p_kw_profile=None, interval_h: float | None = None,
                    repeat_year: bool = False) -> np.ndarray:
@@ -119,12 +130,7 @@ def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_
     Scenario s is the assets' totals plus ``delta_*[s]`` (as in :func:`option_savings`, which it is the
     bill part of: one bill per scenario, nothing else).
     """
-    p0 = _totals(assets_p_kw, "assets_p_kw")
-    q0 = _totals(assets_q_kvar, "assets_q_kvar")
-    dp = _deltas(delta_p_kw, len(p0), "delta_p_kw")
-    dq = _deltas(delta_q_kvar, len(p0), "delta_q_kvar")
-    if dp.shape != dq.shape:
-        raise ValueError(f"delta_p_kw and delta_q_kvar differ in shape: {dp.shape} vs {dq.shape}")
+    p0, q0, dp, dq = _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar)
     frame = _bill_scenarios(tariff, index, site, p0, q0, dp, dq, base_p_kw_profile=base_p_kw_profile,
                             interval_h=interval_h, repeat_year=repeat_year)
     return frame["total"].to_numpy(dtype=float)
@@ -195,12 +201,7 @@ def option_savings(
     """
     if capacitor_cost_per_kvar is not None and not capacitor_cost_per_kvar >= 0.0:
         raise ValueError("capacitor_cost_per_kvar must be >= 0")
-    p0 = _totals(assets_p_kw, "assets_p_kw")
-    q0 = _totals(assets_q_kvar, "assets_q_kvar")
-    dp = _deltas(delta_p_kw, len(p0), "delta_p_kw")
-    dq = _deltas(delta_q_kvar, len(p0), "delta_q_kvar")
-    if dp.shape != dq.shape:
-        raise ValueError(f"delta_p_kw and delta_q_kvar differ in shape: {dp.shape} vs {dq.shape}")
+    p0, q0, dp, dq = _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar)
     n = dp.shape[0]
     names = list(option_names) if option_names is not None else [f"option {i}" for i in range(n)]
     if len(names) != n:
