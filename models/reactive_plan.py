@@ -102,9 +102,13 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
         today_q = np.asarray(op.q_kvar[0, own], dtype=float)
         cum_p = np.cumsum(plan_p[local] - today_p, axis=0)
         cum_q = np.cumsum(plan_q[local] - today_q, axis=0)
-        plan_p[local], plan_q[local] = today_p, today_q
-        base_p, base_q = plan_p, plan_q
+        n_t = cum_p.shape[1]
+        rest_p, rest_q = plan_p, plan_q  # the rest of the plan, once the reactive rows are today's again
+        rest_p[local], rest_q[local] = today_p, today_q
         setup = setups[site_id]
+        kw = dict(site=setup.site, base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+        rest_bill = float(attribution.scenario_bills(setup.tariff, op.index, rest_p, rest_q, np.zeros((1, n_t)),
+                                                     np.zeros((1, n_t)), **kw)[0])
         saved: dict[int, float] = {0: 0.0}  # S_k [currency/yr] by prefix length k
 
         def price(ks: list[int]) -> None:
@@ -112,12 +116,9 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
             if not ks:
                 return
             at = np.asarray(ks) - 1
-            bills = attribution.scenario_bills(setup.tariff, op.index, base_p, base_q,
-                                               np.vstack([np.zeros((1, cum_p.shape[1])), cum_p[at]]),
-                                               np.vstack([np.zeros((1, cum_q.shape[1])), cum_q[at]]), site=setup.site,
-                                               base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
-            for k, bill_k in zip(ks, bills[1:]):
-                saved[k] = float(bills[0] - bill_k) * price_factor
+            bills = attribution.scenario_bills(setup.tariff, op.index, rest_p, rest_q, cum_p[at], cum_q[at], **kw)
+            for k, bill_k in zip(ks, bills):
+                saved[k] = (rest_bill - float(bill_k)) * price_factor
 
         n = len(own)
         edges = sorted(set(np.linspace(0, n, min(PLAN_REACTIVE_RUNS, n) + 1).round().astype(int).tolist()))
