@@ -31,6 +31,8 @@ PLAN_REACTIVE_MIN_SHARE = 0.05
 PLAN_REACTIVE_SPLIT_SHARE = 0.9
 #: A site's reactive projects are first priced in this many runs of consecutive projects.
 PLAN_REACTIVE_RUNS = 16
+#: The cash-flow components that are bill savings (the rest of a project's savings is its maintenance).
+BILL_SAVING_COMPONENTS = ("savings_energy", "savings_demand", "savings_reactive", "savings_fixed")
 #: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before):
 #: one check of the first plan and one solve without the projects it withdrew.
 PLAN_INTERACTION_ROUNDS = 2
@@ -155,31 +157,37 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
 
 def withdrawn_text(status: dict | None, shown: int = 3) -> str:
     """The reactive projects withdrawn from a plan, in words ("" when none), e.g. for a summary line."""
-    withdrawn = list((status or {}).get("withdrawn", ()))
-    if not withdrawn:
-        return ""
-    names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
-    text = (f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan they would cut "
-            f"their site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of their own saving ({names})")
-    aside = len((status or {}).get("set_aside", ()))
+    status = status or {}
+    withdrawn = list(status.get("withdrawn", ()))
+    aside, repriced = len(status.get("set_aside", ())), len(status.get("repriced", {}))
+    parts = []
+    if withdrawn:
+        names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
+        parts.append(f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan they would "
+                     f"cut their site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of their own saving ({names})")
     if aside:
-        text += f"; {aside} other reactive option(s) at the same sites, whose value the plan has taken, were set aside"
-    return text + "."
+        parts.append(f"{aside} other reactive option(s) at the same sites, whose value the plan has taken, were set aside")
+    if repriced:
+        parts.append(f"{repriced} reactive project(s) kept in the plan at the share of their saving they add beside the "
+                     "rest of it (their plan NPV counts that share only)")
+    return ("; ".join(parts) + ".") if parts else ""
 
 
 def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_ids: np.ndarray, settings,
-                               price_factor: float = 1.0):
+                               price_factor: float = 1.0, bill_saving_pv: np.ndarray | None = None):
     """Solve the plan, then withdraw the reactive projects worth (almost) nothing beside the rest of it
-    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`) and solve again; at a site where some
-    were withdrawn (its reactive value is taken), its other reactive options are left out too, so the new
-    plan does not buy their like. At most :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the
-    withdrawn and the set-aside projects.
+    (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`), price the others at the share of
+    their saving they add, and solve again; at a site where some were withdrawn (its reactive value is
+    taken), its other reactive options are left out too, so the new plan does not buy their like. At most
+    :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the withdrawn, the set-aside and the
+    repriced projects.
 
     Parameters
     ----------
     solve : callable
-        ``solve(exclude, settings)`` -> the plan's frames (plan, rank-order plan, comparison, abatement
-        curve, status dict), leaving out the project labels in ``exclude``.
+        ``solve(exclude, settings, npv)`` -> the plan's frames (plan, rank-order plan, comparison,
+        abatement curve, status dict), leaving out the project labels in ``exclude``, with each row's NPV
+        from ``npv`` (None: the results' own).
     case, op, results
         The case, its operating result and the per-project results.
     project_ids : numpy.ndarray of str
@@ -188,9 +196,13 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         How hard each plan is solved; the second starts from the first less what left it.
     price_factor : float
         The electricity price level [-].
+    bill_saving_pv : numpy.ndarray, optional
+        Present value of each row's bill savings [currency]. With it, a reactive project kept in the plan
+        enters the second solve at NPV - (1 - r) x its bill savings' PV, r the share of its own saving
+        its run adds beside the rest of the plan (clipped to 0-1); without it, at its own NPV.
     """
     withdrawn: set[str] = set()
-    frames = solve((), settings)
+    frames = solve((), settings, None)
     reactive_options = np.isin(results["technology"].to_numpy(dtype=object), REACTIVE_TECHNOLOGIES)
     for _ in range(PLAN_INTERACTION_ROUNDS - 1):
         value = reactive_value_in_plan(case, op, frames[0], results, price_factor)
@@ -198,7 +210,17 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         worthless = (value["run_saving_in_plan_per_yr"].to_numpy(dtype=float)
                      < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
         fresh = set(value.loc[worthless, "project_id"]) - withdrawn
-        if not fresh:
+        npv, repriced = None, {}
+        if bill_saving_pv is not None:
+            share = np.clip(value["run_saving_in_plan_per_yr"].to_numpy(dtype=float) / np.where(alone > 0, alone, 1.0),
+                            0.0, 1.0)
+            partial = ~worthless & (alone > 0) & (share < 1.0 - 1e-9)
+            if partial.any():
+                rows = pd.Index(project_ids.astype(str)).get_indexer(value.loc[partial, "project_id"].astype(str))
+                npv = results["npv"].to_numpy(dtype=float).copy()
+                npv[rows] -= (1.0 - share[partial]) * np.asarray(bill_saving_pv, dtype=float)[rows]
+                repriced = dict(zip(value.loc[partial, "project_id"].astype(str), share[partial].round(6).tolist()))
+        if not fresh and not repriced:
             break
         withdrawn |= fresh
         taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
@@ -208,8 +230,9 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         first = frames[0]
         start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
                       if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
-        frames = solve(left_out, replace(settings, start=start))
+        frames = solve(left_out, replace(settings, start=start), npv)
         frames[4]["settings"] = settings
+        frames[4]["repriced"] = repriced
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
         frames[4]["set_aside"] = tuple(sorted(others))
     return frames

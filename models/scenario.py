@@ -131,6 +131,10 @@ class ScenarioResult:
     capital_spend_by_year : numpy.ndarray
         Capital of each row of ``results`` by year after its start [currency], shape (n_rows, horizon + 1),
         what a new budget needs to plan again.
+    bill_saving_pv : numpy.ndarray
+        Present value of each row's bill savings (energy, demand, reactive and fixed charges, after tax on
+        them) [currency], shape (n_rows,): what the plan takes off a reactive project's NPV for the share
+        of its saving the rest of the plan already takes (:mod:`models.reactive_plan`).
     """
 
     physics: Physics
@@ -150,6 +154,7 @@ class ScenarioResult:
     plan_status: dict = field(default_factory=dict)
     fleet_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
     capital_spend_by_year: np.ndarray | None = field(default=None, repr=False)
+    bill_saving_pv: np.ndarray | None = field(default=None, repr=False)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -487,6 +492,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     sir = finance.savings_to_investment_ratio(savings_flows, investment_flows, d)
     airr = finance.airr(sir, d, horizon)
     capital_spend = flows.capital_spend_by_year()
+    bill_pv = ((flows.sum_of(reactive_plan.BILL_SAVING_COMPONENTS) * finance.discount_factors(d, horizon)[None, :])
+               .sum(axis=1) * (1.0 - float(assumptions.tax_rate_frac)))
     capital_pv = (capital_spend * finance.discount_factors(d, horizon)[None, :]).sum(axis=1)
     co2_by_year = finance.co2_avoided_t(energy_saved[rows, cols], assumptions.grid_co2_kg_per_kwh,
                                         assumptions.grid_co2_decline_frac, horizon)
@@ -553,7 +560,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
 
     def plan_now():
         return timed("fleet plan", _plan_with_interactions, case, op, results, capital_spend, project_ids, assumptions, d,
-                     plan_settings)
+                     plan_settings, bill_pv)
 
     def eol_now():
         return (_end_of_life(case, op, sav, options, capex.total, age, shape, scale, assumptions, d, horizon),
@@ -580,7 +587,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws,
-                          capital_spend)
+                          capital_spend, bill_pv)
 
 
 def _only_budget_differs(previous, phys: Physics, assumptions, with_risk: bool) -> bool:
@@ -599,7 +606,8 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
     project_ids = project_labels(results).to_numpy(dtype=object)
     step("fleet plan")
     plan_frames = _plan_with_interactions(case, previous.physics.operation, results, previous.capital_spend_by_year,
-                                          project_ids, assumptions, float(assumptions.discount_rate_frac), settings)
+                                          project_ids, assumptions, float(assumptions.discount_rate_frac), settings,
+                                          previous.bill_saving_pv)
     step("bills")
     base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
     bills = _bills(case, previous.physics.operation, plan_frames[0], base, float(assumptions.energy_price_factor))
@@ -727,26 +735,28 @@ def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, proje
     return frame, total
 
 
-def _plan_with_interactions(case, op, results, capital_spend, project_ids, assumptions, d, settings: PlanSettings):
+def _plan_with_interactions(case, op, results, capital_spend, project_ids, assumptions, d, settings: PlanSettings,
+                            bill_saving_pv=None):
     """:func:`_plan`, with the plan's reactive projects checked beside the rest of it
     (:func:`models.reactive_plan.plan_without_idle_reactive`)."""
-    def solve(exclude, solve_settings):
-        return _plan(results, capital_spend, project_ids, assumptions, d, solve_settings, exclude=exclude)
+    def solve(exclude, solve_settings, npv=None):
+        return _plan(results, capital_spend, project_ids, assumptions, d, solve_settings, exclude=exclude, npv=npv)
 
     return reactive_plan.plan_without_idle_reactive(solve, case, op, results, project_ids, settings,
-                                                     float(assumptions.energy_price_factor))
+                                                     float(assumptions.energy_price_factor), bill_saving_pv)
 
 
-def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=()):
+def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=(), npv=None):
     candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
-    candidates &= results["npv"].to_numpy() > 0
+    candidates &= (results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)) > 0
     if len(exclude):
         candidates &= ~np.isin(project_ids, np.asarray(list(exclude), dtype=object))
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
     sel = np.flatnonzero(candidates)
-    args = (project_ids[sel], results["asset_id"].to_numpy()[sel], results["npv"].to_numpy()[sel], capital_by_year[sel])
+    npv = results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)
+    args = (project_ids[sel], results["asset_id"].to_numpy()[sel], npv[sel], capital_by_year[sel])
     with _quiet_native_stdout():
         exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
                                 start=dict(settings.start) or None)

@@ -326,3 +326,20 @@ def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physi
     withdrawn = result.plan_status["withdrawn"]
     assert withdrawn and not set(withdrawn) & set(scenario.project_labels(result.plan))
     assert reactive_plan.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} reactive project(s) left out")
+    # a project kept at a share r of its own saving enters the plan at NPV - (1 - r) x PV(its bill savings), the PV
+    # read from the run's own cash-flow table (bill components, discounted at the case's rate; no tax in the demo)
+    repriced = result.plan_status["repriced"]
+    assert repriced and all(0.0 <= r < 1.0 for r in repriced.values())
+    d = case.finance.discount_rate_frac
+    cash = result.cashflows
+    bill = cash[cash["component"].isin(list(reactive_plan.BILL_SAVING_COMPONENTS))]
+    pv = (bill["amount"] / (1.0 + d) ** bill["year"]).groupby([bill["asset_id"], bill["option_id"]]).sum()
+    own = result.results.set_index(["asset_id", "option_id"])["npv"]
+    planned = result.plan.set_index(["asset_id", "option_id"])["npv"]
+    checked = 0
+    for label, share in repriced.items():
+        key = tuple(label.split("/", 1))
+        if key in planned.index:
+            assert planned[key] == pytest.approx(own[key] - (1.0 - share) * pv[key], rel=1e-5)
+            checked += 1
+    assert checked
