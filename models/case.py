@@ -791,7 +791,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     rated_kw = np.where(np.isnan(kw), hp * HP_TO_KW, kw)
     a["rated_p_kw"] = rated_kw
     volts = a["rated_v_v"].to_numpy()
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # (a value out of range is flagged elsewhere)
         current_a = rated_kw * 1000.0 / (np.sqrt(3.0) * volts)
     for i in np.flatnonzero(np.isfinite(current_a) & (current_a > MAX_PLAUSIBLE_CURRENT_A)):
         column = "rated_p_kw" if not np.isnan(kw[i]) else "rated_p_hp"
