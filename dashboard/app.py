@@ -68,7 +68,7 @@ def show_case(session, edits):
     v = services.view(session, edits)
     a = v.assumptions
     budget = "no budget limit" if not a.budget_per_yr else f"budget {len(a.budget_per_yr)} yr"
-    parts = [html.Strong(v.entry.name), html.Span(" (invented)" if v.case.settings.invented and "invented" not in v.entry.name.lower() else ""),
+    parts = [html.Strong(v.entry.name), html.Span(" (invented)" if v.case.settings.mark_invented else ""),
              html.Span(f" · {v.currency} · ratings in {v.power_unit} · discount {a.discount_rate_frac * 100:g} % · "
                        f"{a.horizon_yr} yr · {budget}")]
     return parts

@@ -42,7 +42,7 @@ from models import finance, reactive_plan, risk
 from models import io as case_io
 from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
-from models.case import HP_TO_KW, load_case
+from models.case import HP_TO_KW, default_value, load_case
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
 from models.problems import Problem, error, has_errors
@@ -958,22 +958,14 @@ def asset_load_hours(view_: View, asset_id: str, bin_pct: float = 10.0) -> tuple
     return pd.DataFrame({"load_from_pct": edges[:-1], "load_to_pct": edges[1:], "hours_per_yr": counts}), basis
 
 
-def _shown_value(value) -> str:
-    """A defaulted input as a page shows it: a number to 6 significant digits, anything else as written."""
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return "" if value is None else str(value)
-    return f"{number:.6g}" if math.isfinite(number) and not isinstance(value, bool) else str(value)
-
-
 def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFrame, pd.DataFrame]:
     """Data-quality score [%], the defaulted fields and the cautions raised for one asset."""
     a = view_.case.assets
     score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
     defaults = view_.case.defaults
     defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].reset_index(drop=True)
-    defaults = defaults.assign(value=[_shown_value(v) for v in defaults["value"]]).astype(str)
+    defaults = defaults.assign(value=[(f"{v:.6g}" if isinstance(v, float) else v)
+                                      for v in map(default_value, defaults["value"])]).astype(str)
     res = result.results[result.results["asset_id"] == asset_id]
     rows = [{"option": r.label, "flag": text.strip()} for r in res.itertuples(index=False)
             for text in str(r.flags or "").split(";") if text.strip()]
@@ -1183,7 +1175,8 @@ def case_summary(view_: View) -> dict:
     c = view_.case
     return {"name": c.settings.name, "description": c.settings.description, "currency": view_.currency,
             "power_unit": view_.power_unit, "assets": int(len(c.assets)), "sites": int(len(c.sites)),
-            "invented": bool(c.settings.invented), "origin": view_.entry.origin,
+            "invented": bool(c.settings.invented), "mark_invented": c.settings.mark_invented,
+            "origin": view_.entry.origin,
             "warnings": int(sum(p.severity == "warning" for p in c.problems))}
 
 

@@ -60,8 +60,7 @@ def cmd_check(args: argparse.Namespace) -> int:
         _print_problems(problems)
         return 1
     s = case.settings
-    invented = s.invented and "invented" not in s.name.lower()
-    print(f"Case: {s.name}{' (invented demo data)' if invented else ''}")
+    print(f"Case: {s.name}{' (invented demo data)' if s.mark_invented else ''}")
     print(f"  {len(case.assets)} assets, {case.assets['rated_p_kw'].sum():,.1f} kW installed, "
           f"{len(case.sites)} site(s), {len(case.profiles)} interval profile(s); currency {s.currency}; zone {s.time_zone}")
     summary = fleet_summary(case)

@@ -57,6 +57,11 @@ class CaseSettings:
     invented: bool = False
     region: str = "EU"
 
+    @property
+    def mark_invented(self) -> bool:
+        """Whether a reader needs telling, beside the name, that the case is invented (its name does not say so)."""
+        return bool(self.invented) and "invented" not in str(self.name).lower()
+
 
 @dataclass(frozen=True)
 class Case:
@@ -1177,6 +1182,18 @@ def _finish(case: Case | None, problems: list[Problem], mode: str) -> tuple[Case
     if mode == "strict" and has_errors(problems):
         raise CaseError(problems)
     return case, problems
+
+
+def default_value(value):
+    """A defaulted input as shown to a reader: a number to 6 significant digits (a float), else its text ("" for
+    none); the defaults table keeps values as the filling rule gave them (numbers, or numbers as text)."""
+    if value is None or isinstance(value, (bool, np.bool_)):
+        return "" if value is None else str(value)
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    return float(f"{number:.6g}") if np.isfinite(number) else str(value)
 
 
 def fleet_summary(case: Case) -> dict[str, pd.DataFrame]:

@@ -911,20 +911,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         interval_rows, values, is_input, states, notes = _block_loads(site_constants.loads, rows, a["asset_id"])
     else:
         interval_rows, values, is_input, states, notes = asset_loads(block, index)
-    state_rows = np.setdiff1d(np.arange(n_a), interval_rows)
-    groups = []
-    if len(interval_rows):
-        arr = _take(arr_all, interval_rows)
-        existing = existing_motor(arr) if existing_all is None else _take_params(existing_all, interval_rows)
-        load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
-        groups.append(("interval", interval_rows, arr, existing, load))
+    groups = _load_groups(arr_all, existing_all, interval_rows, values, is_input, states, n_t, interval_h)
     del values
-    if len(state_rows):
-        arr = _take(arr_all, state_rows)
-        existing = existing_motor(arr) if existing_all is None else _take_params(existing_all, state_rows)
-        load = _reference_load(arr, existing, states.shaft_load_frac[state_rows],
-                               np.zeros(len(state_rows), dtype=bool), states.duration_h_per_yr[state_rows])
-        groups.append(("states", state_rows, arr, existing, load))
     # interval assets with long profiles: each option's curve on a grid of loads, interpolated per interval
     grids = {}
     if TABULATE and n_t >= TABLE_MIN_STEPS and len(interval_rows):
@@ -1724,6 +1712,28 @@ def options_with_baseline(options: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([pd.DataFrame([keep]), options], ignore_index=True)
 
 
+def _load_groups(arr_all, existing_all, interval_rows: np.ndarray, values, is_input, states: LoadStates, n_t: int,
+                 interval_h: float) -> list[tuple]:
+    """Today's reference load of a block's assets in groups (kind, rows, arrays, today's motors, load):
+    "interval" for the assets with an interval profile, "states" for those with load states.
+    ``existing_all`` None calibrates today's motors of each group from its arrays."""
+    n_a = len(arr_all["rated_p_kw"])
+    state_rows = np.setdiff1d(np.arange(n_a), interval_rows)
+    groups = []
+    for kind, rows_ in (("interval", interval_rows), ("states", state_rows)):
+        if not len(rows_):
+            continue
+        arr = _take(arr_all, rows_)
+        existing = existing_motor(arr) if existing_all is None else _take_params(existing_all, rows_)
+        if kind == "interval":
+            load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
+        else:
+            load = _reference_load(arr, existing, states.shaft_load_frac[rows_], np.zeros(len(rows_), dtype=bool),
+                                   states.duration_h_per_yr[rows_])
+        groups.append((kind, rows_, arr, existing, load))
+    return groups
+
+
 def _design_shaft_kw(case, assets: pd.DataFrame, arr, existing: induction.InductionParams) -> np.ndarray:
     """Design (valve-open) shaft power of some assets [kW], (n, 1), from their profiles or duty as
     :func:`_operate_block` computes it."""
@@ -1733,16 +1743,9 @@ def _design_shaft_kw(case, assets: pd.DataFrame, arr, existing: induction.Induct
     interval_h = float((index[1] - index[0]).total_seconds() / 3600.0) if len(index) > 1 else 1.0
     interval_rows, values, is_input, states, _ = asset_loads(replace(case, assets=assets), index)
     design = np.empty((len(assets), 1))
-    if len(interval_rows):
-        ref = _reference_load(_take(arr, interval_rows), _take_params(existing, interval_rows), values, is_input,
-                              np.full((1, len(index)), interval_h))
-        design[interval_rows] = ref.p_design_kw
-    state_rows = np.setdiff1d(np.arange(len(assets)), interval_rows)
-    if len(state_rows):
-        ref = _reference_load(_take(arr, state_rows), _take_params(existing, state_rows),
-                              states.shaft_load_frac[state_rows], np.zeros(len(state_rows), dtype=bool),
-                              states.duration_h_per_yr[state_rows])
-        design[state_rows] = ref.p_design_kw
+    for _, rows_, _, _, load in _load_groups(arr, existing, interval_rows, values, is_input, states, len(index),
+                                             interval_h):
+        design[rows_] = load.p_design_kw
     return design
 
 

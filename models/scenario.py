@@ -748,14 +748,14 @@ def _plan_with_interactions(case, op, results, capital_spend, project_ids, assum
 
 def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=(), npv=None):
     candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
-    candidates &= (results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)) > 0
+    npv = results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)
+    candidates &= npv > 0
     if len(exclude):
         candidates &= ~np.isin(project_ids, np.asarray(list(exclude), dtype=object))
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
     sel = np.flatnonzero(candidates)
-    npv = results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)
     args = (project_ids[sel], results["asset_id"].to_numpy()[sel], npv[sel], capital_by_year[sel])
     with _quiet_native_stdout():
         exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,

@@ -366,8 +366,8 @@ class TestBlockFormulasByHand:
 
 def test_defaulted_inputs_are_numbers_to_six_digits():
     # the data-quality sheet shows a defaulted efficiency or speed as a number cell, not 17 digits of text
-    from models.pack.workbook import _default_value
+    from models.case import default_value
 
-    assert _default_value("0.8962932127617428") == 0.896293  # hand: 6 significant digits
-    assert _default_value(974.9238910196385) == 974.924
-    assert _default_value("induction") == "induction" and _default_value(None) == ""
+    assert default_value("0.8962932127617428") == 0.896293  # hand: 6 significant digits
+    assert default_value(974.9238910196385) == 974.924
+    assert default_value("induction") == "induction" and default_value(None) == ""

@@ -174,7 +174,7 @@ def preview(_ready, session, edits):
     """Headline figures under the assumptions in the form, and what case this tab holds."""
     view = services.view(session, edits)
     s = services.case_summary(view)
-    case_line = [html.Strong(s["name"]), html.Span(" (invented demo data)" if s["invented"] and "invented" not in s["name"].lower() else ""),
+    case_line = [html.Strong(s["name"]), html.Span(" (invented demo data)" if s["mark_invented"] else ""),
                  html.Span(f" · {s['assets']} assets · {s['sites']} site(s) · {s['currency']} · ratings in {s['power_unit']}"
                            f" · {'your upload' if s['origin'] == 'upload' else 'the case the server started with'}"
                            + (f" · {s['warnings']} warning(s) when read" if s["warnings"] else ""))]

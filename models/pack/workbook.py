@@ -27,6 +27,7 @@ from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
+from models.case import default_value
 from models.exports import FORMULA_STARTS
 from models.pack import content
 
@@ -159,19 +160,6 @@ def _table(ws: Worksheet, top: int, frame: pd.DataFrame, columns: list[tuple[str
         put_text(ws, row, 1, "(none)")
         row += 1
     return row + 1
-
-
-def _default_value(value: Any) -> Any:
-    """A defaulted input as written to a cell: a number to 6 significant digits (a number cell), else text."""
-    if isinstance(value, (bool, np.bool_)) or value is None:
-        return "" if value is None else str(value)
-    if isinstance(value, (int, float, np.integer, np.floating)):
-        return float(f"{float(value):.6g}") if math.isfinite(float(value)) else str(value)
-    try:  # numbers kept as text by the defaults table
-        number = float(str(value))
-    except ValueError:
-        return str(value)
-    return float(f"{number:.6g}") if math.isfinite(number) else str(value)
 
 
 def _widths(ws: Worksheet, widths: dict[int, float]) -> None:
@@ -607,7 +595,7 @@ def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
                                        ("data_quality_pct", "Data quality [%]", "0"),
                                        ("n_defaulted", "Defaulted fields", "0")])
     put_text(ws, row, 1, "Every defaulted input").font = _BOLD
-    row = _table(ws, row + 1, defaults.assign(value=[_default_value(v) for v in defaults["value"]])
+    row = _table(ws, row + 1, defaults.assign(value=[default_value(v) for v in defaults["value"]])
                  if not defaults.empty else defaults,
                  [("asset_id", "Asset", None), ("column", "Field", None), ("value", "Value used", None),
                   ("basis", "Basis", None)])
