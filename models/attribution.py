@@ -124,7 +124,7 @@ def _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar):
 
 def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar, *,
                    site: Site = Site(), base_p_kw_profile=None, interval_h: float | None = None,
-                   repeat_year: bool = False) -> np.ndarray:
+                   repeat_year: bool | None = None) -> np.ndarray:
     """Total bill of the site for each scenario of changes [currency], shape (n_scenarios,).
 
     Scenario s is the assets' totals plus ``delta_*[s]`` (as in :func:`option_savings`, which it is the
@@ -149,7 +149,7 @@ def option_savings(
     capacitor_cost_per_kvar: float | None = None,
     base_p_kw_profile=None,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = None,
 ) -> pd.DataFrame:
     """Return each asset option's bill saving when only that asset changes.
 
@@ -177,7 +177,8 @@ def option_savings(
     base_p_kw_profile : array_like, optional
         Base-load profile [kW] replacing ``site.base_p_kw``.
     interval_h, repeat_year
-        As in :func:`models.billing.bill`.
+        As in :func:`models.billing.bill`; ``repeat_year`` defaults to None here (a series of
+        exactly 12 billing months is billed as a typical year repeated).
 
     Returns
     -------
@@ -281,7 +282,7 @@ def plan_savings(
     capacitor_cost_per_kvar: float | None = None,
     base_p_kw_profile=None,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = None,
 ) -> PlanSavings:
     """Return a plan's bill saving, each option's single saving and their interaction.
 
@@ -459,7 +460,7 @@ def equivalent_capacitor_bank_q_kvar(
     n_grid: int = 256,
     base_p_kw_profile=None,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = None,
 ) -> np.ndarray:
     """Return the size of the capacitor bank that saves as much as a claimed reactive saving.
 
@@ -529,7 +530,7 @@ def reactive_saving_sweep(
     site: Site = Site(),
     base_p_kw_profile=None,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = None,
 ) -> pd.DataFrame:
     """Return the bill saving as a function of a constant leading kVAr supplied on the site.
 

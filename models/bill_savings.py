@@ -142,7 +142,8 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
         members = np.flatnonzero(op.site_ids == site_id)  # one site's assets at a time: memory of one site
         p, q = _chosen_total(op.p_kw, choice[members], members), _chosen_total(op.q_kvar, choice[members], members)
         meter = setup.site.meter_from_totals(p, q, base_p_kw_profile=setup.base_p_kw_profile)
-        frame = billing.bill(setup.tariff, op.index, meter.p_kw, meter.q_kvar, interval_h=op.interval_h)
+        frame = billing.bill(setup.tariff, op.index, meter.p_kw, meter.q_kvar, interval_h=op.interval_h,
+                             repeat_year=None)
         return site_id, meter, frame.assign(site_id=site_id)
 
     items = list(setups.items())
@@ -348,7 +349,7 @@ class _SiteBiller:
         for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
             if check and not billing._all_finite(x):
                 raise ValueError(f"{name} contains NaN or infinite values; fill or drop the gaps first")
-        names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, False)
+        names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, None)
         return names, np.ascontiguousarray(np.broadcast_to(amounts, (max(p.shape[0], q.shape[0]), len(names))))
 
 

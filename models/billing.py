@@ -551,7 +551,7 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
     return items
 
 
-def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool) -> list[_Item]:
+def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None) -> list[_Item]:
     """Price (S, T) meter arrays; return the line items with (S, M) quantities.
 
     ``p`` or ``q`` may have a single row that stands for every scenario (e.g. scenarios that change
@@ -560,6 +560,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     monthly peak (:func:`_window_peaks_kernel`); the clauses are priced on the (S, M) results.
     """
     n_s, n_m, k = max(p.shape[0], q.shape[0]), cal.n_months, cal.n_periods
+    repeat_year = repeats_year(n_m, repeat_year)
     p = np.asarray(p, dtype=float)
     q = np.asarray(q, dtype=float)
     every_month = np.ones(n_m, dtype=bool)
@@ -673,7 +674,7 @@ def bill(
     q_kvar,
     *,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = False,
 ) -> pd.DataFrame:
     """Return the bill of one site meter series, by billing month and line item.
 
@@ -689,9 +690,10 @@ def bill(
         Site reactive power, mean over each interval [kVAr], positive lagging, negative leading.
     interval_h : float, optional
         Interval length [h]; inferred from the index when omitted (required for a single interval).
-    repeat_year : bool
+    repeat_year : bool or None
         Treat the series as one typical year repeated, so a ratchet in its first months looks back
-        at its last months. Needs exactly 12 billing months.
+        at its last months. Needs exactly 12 billing months. None: repeat when the series has exactly
+        12 billing months, else bill it as it stands (:func:`repeats_year`; the analysis's rule).
 
     Returns
     -------
@@ -747,8 +749,18 @@ def bill(
     return pd.DataFrame(rows, columns=["month", "line_item", "quantity", "unit", "rate", "amount", "flag"])
 
 
-def _check_repeat(cal: _Calendar, repeat_year: bool) -> None:
-    if repeat_year and cal.n_months != 12:
+def repeats_year(cal_months: int, repeat_year: bool | None) -> bool:
+    """Whether a series of ``cal_months`` billing months is billed as one typical year repeated.
+
+    ``repeat_year`` None is the analysis's rule: a series of exactly 12 billing months is a typical year
+    (a ratchet in January looks back at the same year's later months, as it would in every year after
+    the first); any other series is billed as it stands (months before it are unknown).
+    """
+    return cal_months == 12 if repeat_year is None else bool(repeat_year)
+
+
+def _check_repeat(cal: _Calendar, repeat_year: bool | None) -> None:
+    if repeat_year is not None and repeat_year and cal.n_months != 12:
         raise ValueError(f"repeat_year needs exactly 12 billing months; the series has {cal.n_months}")
 
 
@@ -759,7 +771,7 @@ def bill_many(
     q_kvar_2d,
     *,
     interval_h: float | None = None,
-    repeat_year: bool = False,
+    repeat_year: bool | None = False,
 ) -> pd.DataFrame:
     """Return the bill totals by line item for many meter series at once.
 
@@ -791,7 +803,7 @@ def bill_many(
     return _bill_many_on(_calendar(tariff, index, interval_h), tariff, p_kw_2d, q_kvar_2d, repeat_year)
 
 
-def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_year: bool) -> pd.DataFrame:
+def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_year: bool | None) -> pd.DataFrame:
     """:func:`bill_many` against a calendar already built (for callers that bill one site block by block)."""
     p = _as_2d(p_kw_2d, cal.n_steps, "p_kw_2d")
     q = _as_2d(q_kvar_2d, cal.n_steps, "q_kvar_2d")
@@ -801,7 +813,7 @@ def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_yea
     return _priced(tariff, cal, _shared_row(p), _shared_row(q), repeat_year, n_rows=p.shape[0])
 
 
-def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool):
+def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None):
     """Line-item names, amounts summed over months (S, I) [currency] and flagged items (S, I) of one block.
 
     ``p`` and ``q`` are (S, T) or (1, T) standing for every row (at least one of them has S rows, or both
@@ -819,7 +831,7 @@ def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, 
     return names, amounts, flagged
 
 
-def _priced(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool, n_rows: int | None = None,
+def _priced(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None, n_rows: int | None = None,
             chunk_elements: int | None = None) -> pd.DataFrame:
     """The :func:`bill_many` table of checked (S, T) arrays (one of them may be (1, T) for every row).
 

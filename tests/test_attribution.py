@@ -271,3 +271,38 @@ def test_reactive_balance_example():
     assert_allclose(bal["max_leading_q_kvar"], 10.0, **EXACT)
     with pytest.raises(ValueError, match="interval_h"):
         reactive_balance(m, 0.0)
+
+
+class TestRatchetOfATypicalYear:
+    """A 12-month series is billed as a typical year repeated (hand calculation, docs/derivations/billing-demand.md, D7)."""
+
+    TARIFF = A1.split("[energy]")[0] + (
+        '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\nratchet_frac = 0.8\nratchet_months = 11\n')
+
+    def inputs(self, end="2026-01-01"):
+        idx = pd.date_range("2025-01-01", end, freq="h", tz="UTC", inclusive="left")
+        p = np.where(idx.month == 7, 200.0, 100.0)
+        dp = (100.0 - p)[None, :]
+        return idx, p, np.zeros(len(idx)), dp, np.zeros_like(dp)
+
+    def test_saving_of_a_typical_year(self):
+        idx, p, q, dp, dq = self.inputs()
+        r = option_savings(load(self.TARIFF), idx, p, q, dp, dq)
+        # hand calculation, D7: 19,600 today, 12,000 with the option, saving 7,600
+        assert_allclose(r["baseline_bill"].iloc[0], 19_600.0, **EXACT)
+        assert_allclose(r["option_bill"].iloc[0], 12_000.0, **EXACT)
+        assert_allclose(r["saving"].iloc[0], 7_600.0, **EXACT)
+
+    def test_lone_year_when_asked(self):
+        idx, p, q, dp, dq = self.inputs()
+        r = option_savings(load(self.TARIFF), idx, p, q, dp, dq, repeat_year=False)
+        # hand calculation, D7: 16,000 today as a lone year, saving 4,000
+        assert_allclose(r["baseline_bill"].iloc[0], 16_000.0, **EXACT)
+        assert_allclose(r["saving"].iloc[0], 4_000.0, **EXACT)
+
+    def test_part_year_is_billed_as_it_stands(self):
+        idx, p, q, dp, dq = self.inputs(end="2025-07-01")
+        r = option_savings(load(self.TARIFF), idx, p, q, dp, dq)
+        # January to June at 100 kW with or without the option: 6 x 100 kW x 10 = 6,000, nothing saved
+        assert_allclose(r["baseline_bill"].iloc[0], 6_000.0, **EXACT)
+        assert_allclose(r["saving"].iloc[0], 0.0, **EXACT)

@@ -190,6 +190,22 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     assert not mismatch and not errors
     results = pd.read_csv(tmp_path / "a" / "results.csv")
     assert {"npv", "irr_frac", "simple_payback_yr", "life_cycle_cost", "co2_avoided_t_per_yr"} <= set(results.columns)
+    # the summary's plan saving on the bills is today's bills less the plan's, read back from bills.csv
+    bills = pd.read_csv(tmp_path / "a" / "bills.csv")
+    by_scenario = bills.groupby("scenario")["amount"].sum()
+    together = by_scenario["baseline"] - by_scenario["plan"]
+    assert f"the sites' bills fall by {together:,.0f} " in out
+
+
+def test_plan_bill_saving_from_bills():
+    from drivecase.cli import _plan_bill_saving
+
+    # hand calculation: two sites, today's bills 100 + 50, the plan's 70 + 45 -> 35 a year
+    bills = pd.DataFrame({"site_id": ["A", "A", "B", "B"], "scenario": ["baseline", "plan", "baseline", "plan"],
+                          "amount": [100.0, 70.0, 50.0, 45.0]})
+    assert _plan_bill_saving(bills) == 35.0
+    assert _plan_bill_saving(bills[bills["scenario"] == "baseline"]) is None
+    assert _plan_bill_saving(pd.DataFrame()) is None
 
 
 def test_fleet_npv_draws_add_the_projects_of_each_draw(result):
