@@ -11,6 +11,8 @@ a duty table or annual hours are evaluated per load state and reach the meter as
 
 from __future__ import annotations
 
+import contextlib
+
 import os
 import tempfile
 import threading
@@ -686,6 +688,11 @@ DENSE_INTERVAL_BUDGET_BYTES = 2 * 2**30
 #: one); beyond it, in a temporary file mapped into memory, whose pages the system may write out and
 #: drop when memory runs short, so a larger fleet costs disk (the same size) rather than memory.
 TODAY_IN_MEMORY_BUDGET_BYTES = 4 * 2**30
+#: While a run reads the plan's rows again (its check of reactive projects, then its bills), rows of
+#: other options recomputed for a fleet above the dense budget are kept up to this many bytes and read
+#: again instead of recomputed (:func:`kept_rows`; 1 GiB: the 6,000 chosen rows of a 10,000-asset fleet
+#: on an hourly year take 0.8 GiB).
+KEPT_ROWS_BUDGET_BYTES = 2**30
 #: Sites worked at once by one process (:func:`models.scenario.physics`): one per core, at most two, as
 #: on the 2-core reference machine (each thread holds one site's blocks; common practice for a laptop).
 PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
@@ -1242,16 +1249,21 @@ def _option_rows(options: pd.DataFrame) -> tuple[dict, ...]:
 
 
 def _block_loads(site_loads: tuple, rows: np.ndarray, block_asset_ids) -> tuple:
-    """:func:`models.profiles.asset_loads` of a block of consecutive site positions ``rows``, sliced from the site's.
+    """:func:`models.profiles.asset_loads` of a block of increasing site positions ``rows``, sliced from the site's.
 
     Each asset's values, states and notes are its own, so slicing gives what the block's own call would
     (notes keep their order: interval assets first, then the others, each in register order).
     """
     interval_rows, values, is_input, states, notes = site_loads
-    inside = (interval_rows >= rows[0]) & (interval_rows <= rows[-1])
+    rows = np.asarray(rows)
     block_states = LoadStates(states.shaft_load_frac[rows], states.duration_h_per_yr[rows])
     block_notes = notes[notes["asset_id"].isin(set(block_asset_ids))].reset_index(drop=True)
-    return interval_rows[inside] - rows[0], values[inside], is_input[inside], block_states, block_notes
+    if rows[-1] - rows[0] == len(rows) - 1:  # consecutive positions
+        inside = (interval_rows >= rows[0]) & (interval_rows <= rows[-1])
+        return interval_rows[inside] - rows[0], values[inside], is_input[inside], block_states, block_notes
+    inside = np.isin(interval_rows, rows)
+    return (np.searchsorted(rows, interval_rows[inside]), values[inside], is_input[inside], block_states,
+            block_notes)
 
 
 class _BlockBuffers:
@@ -1478,6 +1490,10 @@ class _SiteRecompute:
         self.today_p: np.ndarray | None = None  # set by the merger: today's motors, every asset
         self.today_q: np.ndarray | None = None
         self._local = threading.local()  # each thread keeps its own latest block, request and site
+        self._kept: dict | None = None  # (site, option, local row) -> (p_kw row, q_kvar row) inside kept_rows
+        self._kept_bytes = 0
+        self._kept_budget = 0
+        self._kept_lock = threading.Lock()
 
     @property
     def _cached(self) -> tuple | None:  # (key, p_kw, q_kvar) of the latest block run
@@ -1503,6 +1519,21 @@ class _SiteRecompute:
     def _constants(self, value) -> None:
         self._local.constants = value
 
+    @contextlib.contextmanager
+    def keeping(self, budget_bytes: int):
+        """Inside the block, rows recomputed are kept (up to ``budget_bytes`` of kW and kVAr together) and
+        read again without recomputing; all are let go on leaving it."""
+        with self._kept_lock:
+            outer = self._kept is not None
+            if not outer:
+                self._kept, self._kept_bytes, self._kept_budget = {}, 0, int(budget_bytes)
+        try:
+            yield
+        finally:
+            if not outer:
+                with self._kept_lock:
+                    self._kept, self._kept_bytes = None, 0
+
     def values(self, k: int, options: np.ndarray, local: np.ndarray, quantity: int) -> np.ndarray:
         """Rows (options[i], local[i]) of site k, shape (len(options), n_steps)."""
         options, local = np.asarray(options), np.asarray(local)
@@ -1510,57 +1541,91 @@ class _SiteRecompute:
         if self._request is not None and self._request[0] == request:
             return self._request[1 + quantity]
         self._request = None
+        kept = self._kept
+        if kept is None:
+            out = self._computed(k, options, local)
+        else:
+            keys = [(k, int(o), int(j)) for o, j in zip(options, local)]
+            with self._kept_lock:
+                found = [kept.get(key) for key in keys]
+            missing = np.array([row is None for row in found], dtype=bool)
+            out = (np.empty((len(options), len(self.index))), np.empty((len(options), len(self.index))))
+            if missing.any():
+                fresh = self._computed(k, options[missing], local[missing])
+                for qty in (0, 1):
+                    out[qty][missing] = fresh[qty]
+                size = 2 * fresh[0].shape[1] * fresh[0].itemsize
+                with self._kept_lock:
+                    if self._kept is kept:  # still the same keeping block
+                        for n, i in enumerate(np.flatnonzero(missing)):
+                            if self._kept_bytes + size > self._kept_budget:
+                                break
+                            if keys[i] not in kept:
+                                kept[keys[i]] = (out[0][i].copy(), out[1][i].copy())
+                                self._kept_bytes += size
+            for i in np.flatnonzero(~missing):
+                out[0][i], out[1][i] = found[i]
+        self._request = (request,) + out
+        return out[quantity]
+
+    def _computed(self, k: int, options: np.ndarray, local: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Rows (options[i], local[i]) of site k recomputed: (p_kw, q_kvar), each (len(options), n_steps)."""
         site_id, rows = self.partition[k]
-        # blocks of CHUNK_ELEMENTS: every option's rows share a block's buffers here, and a thread keeps them
-        # from site to site (blocks of the curve blocks' size were measured: the plan's bills 6.1 -> 5.8 s at
-        # 10,000 assets, the peak 3.0 -> 3.9 GiB). Every model works element by element, so any block of
-        # the same site gives the full run's values.
-        blocks = asset_blocks(len(rows), len(self.index), self.chunk_assets)
+        n_t = len(self.index)
+        # blocks of the assets asked for only (at most CHUNK_ELEMENTS asset-steps each, in register order): the
+        # per-interval work of a block (loads, reference load, grid placing) is done for those assets alone.
+        # Every option's rows share a block's buffers here, and a thread keeps them from site to site (blocks
+        # of the curve blocks' size were measured: the plan's bills 6.1 -> 5.8 s at 10,000 assets, the peak
+        # 3.0 -> 3.9 GiB). Every model works element by element, so any block of the same site, with the
+        # site's totals of today's motors, gives the full run's values.
+        asked = np.unique(local)
+        size = int(self.chunk_assets) if self.chunk_assets is not None else max(1, CHUNK_ELEMENTS // max(n_t, 1))
         totals = None
-        if len(blocks) > 1:
+        if len(asked) < len(rows) or len(rows) > size:  # no block is the whole site: the site's totals
             totals = (self.today_p[rows].sum(axis=0), self.today_q[rows].sum(axis=0))
-        out = (np.empty((len(options), len(self.index))), np.empty((len(options), len(self.index))))
-        size = len(blocks[0])
-        block_of = local // size
+        out = (np.empty((len(options), n_t)), np.empty((len(options), n_t)))
         sub_case = None
-        for b in np.unique(block_of):
-            sel = np.flatnonzero(block_of == b)
-            wanted = frozenset(int(o) for o in np.unique(options[sel]))
-            key = (k, int(b), options[sel].tobytes(), local[sel].tobytes())
+        for start in range(0, len(asked), size):
+            block = asked[start:start + size]
+            sel = np.flatnonzero((local >= block[0]) & (local <= block[-1]))
+            at = np.searchsorted(block, local[sel])  # each pair's position in the block
+            key = (k, block.tobytes(), options[sel].tobytes(), local[sel].tobytes())
             if self._cached is None or self._cached[0] != key:
                 self._cached = None
                 sub_case = sub_case if sub_case is not None else site_case(self.case, site_id)
                 if self._constants is None or self._constants[0] != k:
                     self._constants = None  # one site's constants at a time
                     self._constants = (k, _site_constants(sub_case, self.index))
+                wanted = frozenset(int(o) for o in np.unique(options[sel]))
                 needed = {}
                 for o in wanted:
-                    mask = np.zeros(len(blocks[b]), dtype=bool)
-                    mask[local[sel][options[sel] == o] - b * size] = True
+                    mask = np.zeros(len(block), dtype=bool)
+                    mask[at[options[sel] == o]] = True
                     needed[o] = mask
-                positions = rows[blocks[b]]
+                positions = rows[block]
                 zeros = np.zeros(len(positions))
                 today = _TodayOfBlock(self.today_p[positions], self.today_q[positions], zeros, zeros,
                                       np.zeros((len(positions), len(LOSS_KINDS))), zeros, zeros, zeros, zeros, [])
                 if getattr(self._local, "buffers", None) is None:
                     self._local.buffers = _BlockBuffers()  # block memory reused from block to block
-                op = _operate_block(sub_case, self.index, blocks[b], site_totals=totals, wanted=wanted,
+                op = _operate_block(sub_case, self.index, block, site_totals=totals, wanted=wanted,
                                     site_constants=self._constants[1], needed=needed, today=today, power_only=True,
                                     buffers=self._local.buffers)
                 self._cached = (key, op.p_kw, op.q_kvar)
             for qty in (0, 1):
-                out[qty][sel] = self._cached[1 + qty][options[sel], local[sel] - b * size]
-        self._request = (request,) + out
-        return out[quantity]
+                out[qty][sel] = self._cached[1 + qty][options[sel], at]
+        return out
 
     def __getstate__(self):
         state = dict(self.__dict__)
-        del state["_local"]  # caches stay behind
+        del state["_local"], state["_kept_lock"]  # caches stay behind
+        state["_kept"], state["_kept_bytes"] = None, 0
         return state
 
     def __setstate__(self, state):
         self.__dict__.update(state)
         self._local = threading.local()
+        self._kept_lock = threading.Lock()
 
 
 class SiteIntervalStore:
@@ -1645,6 +1710,24 @@ class SiteIntervalStore:
     def __array__(self, dtype=None, copy=None):
         full = self[:, :]
         return full if dtype is None else full.astype(dtype)
+
+
+@contextlib.contextmanager
+def kept_rows(op: OperatingResult, budget_bytes: int | None = None):
+    """Keep the per-interval rows an operating result recomputes, while the block runs.
+
+    A fleet above the dense budget recomputes other options' rows each time they are read
+    (:class:`SiteIntervalStore`). Inside ``with kept_rows(op):`` each row recomputed is kept, up to
+    ``budget_bytes`` (default :data:`KEPT_ROWS_BUDGET_BYTES`), and read again from memory: the same
+    values, since a row does not depend on the rows recomputed with it. Everything kept is let go on
+    leaving the block. Nothing changes for a result that keeps every option in memory.
+    """
+    store = op.p_kw if isinstance(op.p_kw, SiteIntervalStore) else None
+    if store is None:
+        yield
+        return
+    with store._recompute.keeping(KEPT_ROWS_BUDGET_BYTES if budget_bytes is None else budget_bytes):
+        yield
 
 
 def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | None = None,

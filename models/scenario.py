@@ -25,7 +25,7 @@ from models import end_of_life, finance, plan, reactive_plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
 from models.memory import retaining_memory
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
-                              _SiteRecompute,
+                              _SiteRecompute, kept_rows,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.plan import plan_choice, project_labels
@@ -570,21 +570,24 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     tornado_rows = pd.DataFrame()
     risk_rows = pd.DataFrame()
     fleet_draws = np.zeros(0)
-    if with_risk:  # the plan beside the end of life and the risk, which do not read it
-        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="drivecase-plan") as pool:
-            planned = pool.submit(plan_now)
+    # the plan's check of its reactive projects and the plan's bills read the same rows: recomputed once
+    with kept_rows(op):
+        if with_risk:  # the plan beside the end of life and the risk, which do not read it
+            with ThreadPoolExecutor(max_workers=1, thread_name_prefix="drivecase-plan") as pool:
+                planned = pool.submit(plan_now)
+                step("end of life")
+                eol, rules = timed("end of life", eol_now)
+                step("risk")
+                tornado_rows, risk_rows, fleet_draws = timed("risk", _risk, flows, assumptions, results, d)
+                plan_frames = planned.result()
+        else:
+            plan_frames = plan_now()
             step("end of life")
             eol, rules = timed("end of life", eol_now)
-            step("risk")
-            tornado_rows, risk_rows, fleet_draws = timed("risk", _risk, flows, assumptions, results, d)
-            plan_frames = planned.result()
-    else:
-        plan_frames = plan_now()
-        step("end of life")
-        eol, rules = timed("end of life", eol_now)
 
-    step("bills")
-    bills = _bills(case, op, plan_frames[0], sav.baseline_bills, float(assumptions.energy_price_factor))
+        step("bills")
+        bills = timed("bills", _bills, case, op, plan_frames[0], sav.baseline_bills,
+                      float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws,
                           capital_spend, bill_pv)
@@ -605,12 +608,14 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
     results = previous.results
     project_ids = project_labels(results).to_numpy(dtype=object)
     step("fleet plan")
-    plan_frames = _plan_with_interactions(case, previous.physics.operation, results, previous.capital_spend_by_year,
-                                          project_ids, assumptions, float(assumptions.discount_rate_frac), settings,
-                                          previous.bill_saving_pv)
-    step("bills")
-    base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
-    bills = _bills(case, previous.physics.operation, plan_frames[0], base, float(assumptions.energy_price_factor))
+    op = previous.physics.operation
+    with kept_rows(op):  # the plan's reactive check and its bills read the same rows
+        plan_frames = _plan_with_interactions(case, op, results, previous.capital_spend_by_year, project_ids,
+                                              assumptions, float(assumptions.discount_rate_frac), settings,
+                                              previous.bill_saving_pv)
+        step("bills")
+        base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
+        bills = _bills(case, op, plan_frames[0], base, float(assumptions.energy_price_factor))
     return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
                    plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4])
 

@@ -721,16 +721,15 @@ class TestCompactStore:
             assert_array_equal(c.q_kvar[choice[m], m], d.q_kvar[choice[m], m])
 
     def test_kvar_rows_come_from_the_kw_recomputation(self, case, compact, monkeypatch):
-        # d64e027: a site meter asks for the kW of the chosen options, then their kVAr; each block holding a
-        # chosen asset runs once. Hand count from the block layout: blocks of 2 assets in site order.
+        # a site meter asks for the kW of the chosen options, then their kVAr; the chosen assets of a site
+        # run once, in blocks of 2 of them (register order). Hand count: ceil(chosen assets of the site / 2).
         op = compact.operation
         choice = _plan_choice(op)
         op.p_kw._recompute._cached = None
         op.p_kw._recompute._request = None
         expected = 0
         for _, rows in site_partition(case):
-            blocks = asset_blocks(len(rows), len(op.index), 2)
-            expected += sum(bool((choice[rows[b]] > 0).any()) for b in blocks)
+            expected += -(-int((choice[rows] > 0).sum()) // 2)
         calls = []
         real = operation._operate_block
 
@@ -741,6 +740,66 @@ class TestCompactStore:
         monkeypatch.setattr(operation, "_operate_block", spy)
         meter_and_bills(case, op, choice)
         assert expected >= 4 and len(calls) == expected
+
+    def test_scattered_pairs_equal_the_dense_rows(self, dense, compact):
+        # any subset of a site's pairs, in any order, gives the dense run's rows bit for bit: the blocks
+        # are made of the assets asked for only, with the site's totals of today's motors
+        d, c = dense.operation, compact.operation
+        rng = np.random.default_rng(7)
+        for site_id in np.unique(d.site_ids):
+            m = np.flatnonzero(d.site_ids == site_id)
+            assets = rng.permutation(m)[: max(1, len(m) // 2)]
+            options = np.array([rng.choice(np.flatnonzero(d.applies[j])) for j in assets])
+            c.p_kw._recompute._cached = None
+            c.p_kw._recompute._request = None
+            assert_array_equal(c.p_kw[options, assets], d.p_kw[options, assets], err_msg=site_id)
+            assert_array_equal(c.q_kvar[options, assets], d.q_kvar[options, assets], err_msg=site_id)
+
+    def test_rows_kept_while_asked_are_not_recomputed(self, case, dense, compact, monkeypatch):
+        d, c = dense.operation, compact.operation
+        choice = _plan_choice(d)
+        calls = []
+        real = operation._operate_block
+
+        def spy(*args, **kwargs):
+            calls.append(1)
+            return real(*args, **kwargs)
+
+        monkeypatch.setattr(operation, "_operate_block", spy)
+        with operation.kept_rows(c):
+            first, _ = meter_and_bills(case, c, choice)
+            ran = len(calls)
+            c.p_kw._recompute._cached = None
+            c.p_kw._recompute._request = None
+            again, _ = meter_and_bills(case, c, choice)
+            assert ran > 0 and len(calls) == ran  # the second reading recomputes nothing
+            # the rows read from memory are the dense run's
+            for site_id in np.unique(d.site_ids):
+                m = np.flatnonzero(d.site_ids == site_id)
+                assert_array_equal(c.p_kw[choice[m], m], d.p_kw[choice[m], m])
+                assert_array_equal(c.q_kvar[choice[m], m], d.q_kvar[choice[m], m])
+                assert_array_equal(again[site_id].p_kw, first[site_id].p_kw)
+        # let go on leaving: reading again recomputes
+        assert c.p_kw._recompute._kept is None
+        c.p_kw._recompute._cached = None
+        c.p_kw._recompute._request = None
+        meter_and_bills(case, c, choice)
+        assert len(calls) == 2 * ran
+
+    def test_rows_kept_within_the_budget(self, case, compact):
+        c = compact.operation
+        choice = _plan_choice(c)
+        row_bytes = 2 * len(c.index) * 8  # kW and kVAr of one pair
+        with operation.kept_rows(c, budget_bytes=3 * row_bytes):
+            meter_and_bills(case, c, choice)
+            assert len(c.p_kw._recompute._kept) == 3 and c.p_kw._recompute._kept_bytes == 3 * row_bytes
+        with operation.kept_rows(c, budget_bytes=0):
+            meter_and_bills(case, c, choice)
+            assert c.p_kw._recompute._kept == {}
+
+    def test_kept_rows_does_nothing_for_a_dense_result(self, dense):
+        with operation.kept_rows(dense.operation):
+            assert isinstance(dense.operation.p_kw, np.ndarray)
 
 
 # --------------------------------------------------------------------------------------------------
