@@ -303,7 +303,7 @@ def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, mo
     pd.testing.assert_frame_equal(beside.bills, alone.bills)
     pd.testing.assert_frame_equal(beside.end_of_life, alone.end_of_life)
     assert not beside.risk.empty and alone.risk.empty
-    assert set(own) == {"fleet plan", "end of life", "risk"} and all(v > 0 for v in own.values())
+    assert set(own) == {"fleet plan", "end of life", "risk", "bills"} and all(v > 0 for v in own.values())
 
 
 def test_add_ons_keep_todays_maintenance():
