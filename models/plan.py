@@ -21,8 +21,11 @@ import pandas as pd
 from scipy.sparse import coo_array
 
 #: Assets whose choice the first plan's improvement step re-opens on fleets larger than this (the core of
-#: the problem, picked by the linear relaxation's reduced costs; see :func:`_core_plan`).
-CORE_ASSETS = 2000
+#: the problem, picked by the linear relaxation's reduced costs; see :func:`_core_plan`). Measured on the
+#: benchmark's fleets (budgets per motor as the demo's, proven to 0.01 %): 10,000 assets 2.3-7.6 s with
+#: 1,000 against 4.5-16.6 s with 2,000 over four solver seeds, 5,000 assets 6.5 s against 12 s; the plans
+#: were proven within the same gap. A tuning choice of this tool.
+CORE_ASSETS = 1000
 
 _CHOSEN_COLUMNS = ["project_id", "asset_id", "start_yr", "npv", "npv_at_plan_start", "capital_in_plan_years"]
 
