@@ -804,6 +804,21 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
                     f"a {rated_kw[i]:,.6g} kW motor at {volts[i]:,.6g} V would draw about {current_a[i]:,.0f} A, "
                     f"more than any motor of that voltage (plausible up to {MAX_PLAUSIBLE_CURRENT_A:,.0f} A)",
                     "is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?")
+    # a drive's saving on a throttled pump or fan depends most on the static share of its head: a blank one
+    # takes the application default, which suits friction-dominated systems (ducts, circulating loops) only
+    static = a["static_head_frac"].to_numpy(dtype=float)
+    throttled = ((a["speed_control"].to_numpy(dtype=object) == "throttled")
+                 & np.isin(a["application"].to_numpy(dtype=object), ["pump", "fan"]) & np.isnan(static))
+    if throttled.any():
+        ids = a["asset_id"].to_numpy(dtype=object)[throttled]
+        named = ", ".join(str(x) for x in ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        checker.warn(None, "static_head_frac", None,
+                     f"static_head_frac is blank for {len(ids)} throttled pump(s) and fan(s) ({named}): the application "
+                     f"default is used ({nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['pump']:g} for pumps, "
+                     f"{nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['fan']:g} for fans), and a drive's saving "
+                     "falls as the static share of the head rises",
+                     "give the static share of the design head (lift, or the diffusers' submergence of an aeration "
+                     "blower, often most of its pressure) where a drive is considered")
     mean_load = a["mean_load_pct"].to_numpy()
     for i in np.flatnonzero((mean_load > 0) & (mean_load <= 1.0)):
         checker.warn(i, "mean_load_pct", mean_load[i], f"a mean load of {mean_load[i]:g} % of rating is implausibly low",

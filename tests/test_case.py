@@ -376,3 +376,20 @@ def test_fleet_summary_counts_each_default_basis_on_its_own_row():
         rows = d[(d["column"] == "rated_efficiency_pct") & (d["basis"] == basis)]
         assert assets == rows["asset_id"].nunique()
     assert eff["assets"].sum() == d.loc[d["column"] == "rated_efficiency_pct", "asset_id"].nunique()
+
+
+class TestStaticHeadWarning:
+    """A throttled pump or fan without its static head takes the application default: said once for the file."""
+
+    def test_blank_static_head_of_a_throttled_pump_is_named(self, tmp_path):
+        _, problems = load_case(cb.write_case(tmp_path / "c"))
+        # P1 is the only throttled pump or fan of the small case (F1 is a fixed-speed fan)
+        hit = _find(problems, file="assets.csv", column="static_head_frac", severity="warning",
+                    text="blank for 1 throttled pump(s) and fan(s) (P1)")
+        assert hit.row is None and "0.3 for pumps, 0 for fans" in hit.rule
+
+    def test_given_static_head_is_not_warned(self, tmp_path):
+        header = cb.ASSET_HEADER + ["static_head_frac"]
+        rows = [r + ["0.5" if r[0] == "P1" else ""] for r in copy.deepcopy(cb.ASSETS)]
+        _, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
+        assert not [p for p in problems if p.column == "static_head_frac"]
