@@ -12,30 +12,34 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS,
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS,
                               TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
                               site_partition)
 
-#: Machines stage per asset-option-step [s], one thread: 6.6 s of wall time for 10,000 assets x 11
-#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 26.3 s end to end,
-#: load average 1.3 on the 2-core reference machine), times the two threads' gain 1.45.
-MACHINES_S_PER_ELEMENT = 6.6 * 1.45 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s], one thread: 5.9 s of wall time, same run, times 1.45.
-SITE_BILLS_S_PER_ELEMENT = 5.9 * 1.45 / (10_000 * 11 * 8760)
-#: Finance and the plan's monthly bills per asset [s]: 8.5 s per 10,000 assets (2.2 s finance and 6.3 s
-#: bills in the 50.2 s run above; budgets per motor as the demo's: the plan's bills recompute the chosen
-#: options). The end of life and the Monte Carlo (2.9 s) run beside the plan, which takes longer, and are
-#: counted within it.
-ECONOMICS_S_PER_ASSET = 8.5 / 10_000
-#: Exact fleet plan [s]: 23.8 s for 10,000 assets (bench_fleet, local engine, 2026-12-02, 50.2 s end to
-#: end: the first solve about 10 s, the check of its reactive projects beside the rest of the plan about
-#: 8 s, the second solve about 6 s; 4.4 s before that check and this round's catalogue rules); with the
-#: tight budgets of a small plant on a large fleet each solve stops at its 60 s limit
-#: (models.plan.plan_exact), so the estimate is capped at two limits and the check.
-PLAN_S_PER_ASSET = 23.8 / 10_000
+#: Machines stage per asset-option-step [s], one thread: 5.2 s of wall time for 10,000 assets x 11
+#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 30.3 s end to end,
+#: load average 1.4 on the 2-core reference machine), times the two threads' gain 1.45.
+MACHINES_S_PER_ELEMENT = 5.2 * 1.45 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s], one thread: 5.1 s of wall time, same run, times 1.45.
+SITE_BILLS_S_PER_ELEMENT = 5.1 * 1.45 / (10_000 * 11 * 8760)
+#: Finance and the plan's monthly bills per asset [s]: 4.0 s per 10,000 assets (1.9 s finance and 2.1 s
+#: bills in the 30.3 s run above; budgets per motor as the demo's: the plan's bills read the chosen
+#: options' rows the plan's reactive check recomputed, models.operation.kept_rows). The end of life and
+#: the Monte Carlo (2.3 s) run beside the plan, which takes longer, and are counted within it.
+ECONOMICS_S_PER_ASSET = 4.0 / 10_000
+#: Exact fleet plan [s]: 13.5 s for 10,000 assets (same run: the first solve, the check of its reactive
+#: projects beside the rest of the plan, the second solve); 18.9 s for 5,000 assets in the same session
+#: (the solver's search varies from fleet to fleet); with the tight budgets of a small plant on a large
+#: fleet each solve stops at its 60 s limit (models.plan.plan_exact), so the estimate is capped at two
+#: limits and the check.
+PLAN_S_PER_ASSET = 13.5 / 10_000
 PLAN_MAX_S = 130.0
-#: Reading and validating a case per asset [s]: 3.0 s per 10,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 3.0 / 10_000
+#: Exact fleet plan of up to 1,000 assets [s per asset]: 8.5 s for 1,000 assets (same session; a fleet of
+#: that size is solved without a core programme, its proof takes longer per asset), the least a larger
+#: fleet is given too.
+PLAN_SMALL_S_PER_ASSET = 8.5 / 1_000
+#: Reading and validating a case per asset [s]: 2.2 s per 10,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 2.2 / 10_000
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
 FIXED_S = 1.5
@@ -48,7 +52,8 @@ BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
 #: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables,
 #: and the plan's bills (fitted to the economics peaks of the benchmark, docs/scale.md; a run keeps freed
 #: memory for reuse, models.memory, so the peak is the high-water mark of its largest stage; refitted to the
-#: 3,908 MiB of the 10,000-asset run with the plan's reactive check, which holds a site's plan rows per thread).
+#: 3,908 MiB of the 10,000-asset run with the plan's reactive check, which holds a site's plan rows per thread;
+#: the 4,892 MiB of the 30.3 s run above is this plus the plan's rows kept, below).
 ECONOMICS_BYTES_PER_PAIR = 20 * 1024
 #: Speed-up of the physics per extra site thread [-]: two threads ran the 10,000-asset fleet's physics
 #: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
@@ -118,7 +123,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
         at_once = max(1, min(int(threads or PHYSICS_THREADS), max(len(sites), 1)))
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
-               + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + min(n_a * PLAN_S_PER_ASSET, PLAN_MAX_S))
+               + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET)
+               + min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S))
     dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
     today = interval_bytes(n_a, 1, n_t)
     spilled = not dense and today > TODAY_IN_MEMORY_BUDGET_BYTES
@@ -127,7 +133,10 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
     physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
                               + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
-    economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o
+    # above the dense budget the plan's rows are kept while its reactive check and its bills read them
+    # (at most one row per asset, within KEPT_ROWS_BUDGET_BYTES)
+    kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, today)
+    economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
     peak = BASE_BYTES + store + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else
             "today's per-interval power (other options recomputed by block when needed)")
