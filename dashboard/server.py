@@ -17,6 +17,7 @@ import webbrowser
 from pathlib import Path
 
 from models import io as case_io
+from models.wording import counted
 
 LOOPBACK_NAMES = ("localhost", "localhost.localdomain", "ip6-localhost")
 
@@ -72,7 +73,7 @@ def _open_browser_later(url: str, delay_s: float = 1.5) -> None:
 def _print_problems(problems) -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
-    print(f"Problems: {len(errors)} error(s), {len(warnings)} warning(s)")
+    print(f"Problems: {counted(len(errors), 'error')}, {counted(len(warnings), 'warning')}")
     for p in errors + warnings:
         print(f"  {p}")
 
@@ -110,7 +111,7 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
         return 1
     warnings = [p for p in problems if p.severity == "warning"]
     if warnings:
-        print(f"Case read with {len(warnings)} warning(s); they are listed on the 'Case & assumptions' page.")
+        print(f"Case read with {counted(len(warnings), 'warning')}; {'it is' if len(warnings) == 1 else 'they are'} listed on the 'Case & assumptions' page.")
     warning = network_warning(host)
     if warning:
         print(warning)

@@ -47,6 +47,7 @@ from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
 from models.problems import Problem, error, has_errors
 from models.profiles import asset_loads
+from models.wording import counted
 
 #: One megabyte as the dashboard counts it (2**20 bytes) [bytes].
 MB = 1024 * 1024
@@ -518,7 +519,7 @@ class Engine:
             if case is None or has_errors(found):
                 shutil.rmtree(folder, ignore_errors=True)
                 n = sum(p.severity == "error" for p in found)
-                return refuse(f"{n} error(s) in the upload; the previous case stays loaded.", found)
+                return refuse(f"{counted(n, 'error')} in the upload; the previous case stays loaded.", found)
             entry = self._add_upload(CaseEntry(content_key(target), case, target, "upload", folder))
             try:
                 self.physics(entry.key)
@@ -532,8 +533,8 @@ class Engine:
             shutil.rmtree(folder, ignore_errors=True)
             return refuse("The upload could not be stored on the server.", [error("(upload)", None, None, None, str(exc))])
         n_warn = sum(p.severity == "warning" for p in found)
-        message = (f"Loaded '{entry.name}': {len(entry.case.assets)} assets, {len(entry.case.sites)} site(s)"
-                   + (f", {n_warn} warning(s)." if n_warn else "."))
+        message = (f"Loaded '{entry.name}': {counted(len(entry.case.assets), 'asset')}, {counted(len(entry.case.sites), 'site')}"
+                   + (f", {counted(n_warn, 'warning')}." if n_warn else "."))
         return UploadOutcome(True, session, entry.key, message, _problem_rows(found))
 
     def _write_upload(self, folder: Path, placed: dict[str, bytes], books: list[str], current_key: str | None,

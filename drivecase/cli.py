@@ -11,6 +11,8 @@ import sys
 
 import pandas as pd
 
+from models.wording import counted
+
 CAUTION = ("Planning estimates only, not a design. Electrical work must be done by qualified persons under "
            "local codes and the utility's rules; confirm ratings with the manufacturers.")
 
@@ -27,7 +29,7 @@ def _print_table(frame: pd.DataFrame, title: str) -> None:
 def _print_problems(problems, limit: int = 200) -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
-    print(f"\nProblems: {len(errors)} error(s), {len(warnings)} warning(s)")
+    print(f"\nProblems: {counted(len(errors), 'error')}, {counted(len(warnings), 'warning')}")
     for problem in (errors + warnings)[:limit]:
         print(f"  {problem}")
     if len(problems) > limit:
@@ -62,7 +64,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     s = case.settings
     print(f"Case: {s.name}{' (invented demo data)' if s.mark_invented else ''}")
     print(f"  {len(case.assets)} assets, {case.assets['rated_p_kw'].sum():,.1f} kW installed, "
-          f"{len(case.sites)} site(s), {len(case.profiles)} interval profile(s); currency {s.currency}; zone {s.time_zone}")
+          f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}")
     summary = fleet_summary(case)
     _print_table(summary["by_site"], "Installed power by site [kW]")
     _print_table(summary["by_application"], "Installed power by application [kW]")
@@ -89,7 +91,7 @@ def _load_or_report(path: str):
         return None
     warnings = [p for p in problems if p.severity == "warning"]
     if warnings:
-        print(f"Case {path}: {len(warnings)} warning(s); the values noted were used as described", file=sys.stderr)
+        print(f"Case {path}: {counted(len(warnings), 'warning')}; the values noted were used as described", file=sys.stderr)
         for problem in warnings[:WARNINGS_SHOWN]:
             print(f"  {problem}", file=sys.stderr)
         if len(warnings) > WARNINGS_SHOWN:
@@ -330,7 +332,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     if assets:
         unknown = sorted(set(assets) - set(case.assets["asset_id"]))
         if unknown:
-            print(f"drivecase report: unknown asset(s): {', '.join(unknown)}", file=sys.stderr)
+            print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}", file=sys.stderr)
             return 1
     try:
         result = scenario.run(case, case.finance)

@@ -21,6 +21,7 @@ from models import attribution
 from models.bill_savings import REACTIVE_TECHNOLOGIES, site_setups
 from models.operation import PHYSICS_THREADS
 from models.plan import plan_choice, project_labels
+from models.wording import counted
 
 #: A reactive project (terminal capacitor, wound-field machine) leaves the plan when, beside the rest of the plan,
 #: it lowers its site's bill by less than this share of its saving priced alone: the rest of the plan already
@@ -163,13 +164,18 @@ def withdrawn_text(status: dict | None, shown: int = 3) -> str:
     parts = []
     if withdrawn:
         names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
-        parts.append(f"{len(withdrawn)} reactive project(s) left out of the plan: beside the rest of the plan they would "
-                     f"cut their site's bill by less than {PLAN_REACTIVE_MIN_SHARE:.0%} of their own saving ({names})")
+        one = len(withdrawn) == 1
+        parts.append(f"{counted(len(withdrawn), 'reactive project')} left out of the plan: beside the rest of the plan "
+                     f"{'it' if one else 'they'} would cut {'its' if one else 'their'} site's bill by less than "
+                     f"{PLAN_REACTIVE_MIN_SHARE:.0%} of {'its' if one else 'their'} own saving ({names})")
     if aside:
-        parts.append(f"{aside} other reactive option(s) at the same sites, whose value the plan has taken, were set aside")
+        parts.append(f"{counted(aside, 'other reactive option')} at the same sites, whose value the plan has taken, "
+                     f"{'was' if aside == 1 else 'were'} set aside")
     if repriced:
-        parts.append(f"{repriced} reactive project(s) kept in the plan at the share of their saving they add beside the "
-                     "rest of it (their plan NPV counts that share only)")
+        one = repriced == 1
+        parts.append(f"{counted(repriced, 'reactive project')} kept in the plan at the share of {'its' if one else 'their'} "
+                     f"saving {'it adds' if one else 'they add'} beside the rest of it ({'its' if one else 'their'} plan "
+                     "NPV counts that share only)")
     return ("; ".join(parts) + ".") if parts else ""
 
 

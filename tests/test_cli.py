@@ -181,7 +181,7 @@ def test_run_prints_the_case_warnings(tmp_path, capsys):
     finance.write_text(finance.read_text(encoding="utf-8") + "horizon_years = 15\n", encoding="utf-8")
     assert main(["run", str(folder), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
     err = capsys.readouterr().err
-    assert "warning(s)" in err and "horizon_years" in err
+    assert "1 warning;" in err and "horizon_years" in err
 
 
 def test_run_dask_without_its_package_gives_a_message(tmp_path, capsys, monkeypatch):

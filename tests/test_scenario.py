@@ -341,7 +341,8 @@ def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physi
     assert kept.all()
     withdrawn = result.plan_status["withdrawn"]
     assert withdrawn and not set(withdrawn) & set(scenario.project_labels(result.plan))
-    assert reactive_plan.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} reactive project(s) left out")
+    noun = "reactive project" if len(withdrawn) == 1 else "reactive projects"
+    assert reactive_plan.withdrawn_text(result.plan_status).startswith(f"{len(withdrawn)} {noun} left out")
     # a project kept at a share r of its own saving enters the plan at NPV - (1 - r) x PV(its bill savings), the PV
     # read from the run's own cash-flow table (bill components, discounted at the case's rate; no tax in the demo)
     repriced = result.plan_status["repriced"]
@@ -359,3 +360,17 @@ def test_reactive_projects_are_credited_what_they_add_to_the_plan(demo_run_physi
             assert planned[key] == pytest.approx(own[key] - (1.0 - share) * pv[key], rel=1e-5)
             checked += 1
     assert checked
+
+
+def test_withdrawn_text_counts_in_words():
+    from models import reactive_plan
+
+    # one project, one option set aside and one repriced take the singular; more take the plural
+    one = reactive_plan.withdrawn_text({"withdrawn": ("A/capacitor",), "set_aside": ("B/capacitor",), "repriced": {"C/wfsm": 0.5}})
+    assert one.startswith("1 reactive project left out of the plan: beside the rest of the plan it would cut its site's bill")
+    assert "1 other reactive option at the same sites, whose value the plan has taken, was set aside" in one
+    assert "1 reactive project kept in the plan at the share of its saving it adds" in one
+    two = reactive_plan.withdrawn_text({"withdrawn": ("A/capacitor", "D/capacitor"), "set_aside": ("B/c", "E/c"), "repriced": {}})
+    assert two.startswith("2 reactive projects left out of the plan: beside the rest of the plan they would cut their site's")
+    assert "2 other reactive options at the same sites, whose value the plan has taken, were set aside" in two
+    assert "(s)" not in one + two

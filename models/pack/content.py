@@ -16,6 +16,7 @@ import pandas as pd
 
 from models import finance
 from models.cashflows import COMPONENTS
+from models.wording import counted
 
 #: The cautions every file of the pack shows, in plain words.
 CAUTIONS: tuple[str, ...] = (
@@ -466,12 +467,12 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     defaults = scope_defaults(case, scope.asset_ids)
     if not defaults.empty:
         for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
-            add("defaulted input", f"{column}", f"{basis} ({len(grp)} asset(s))", asset_list_text(list(grp["asset_id"])),
+            add("defaulted input", f"{column}", f"{basis} ({counted(len(grp), 'asset')})", asset_list_text(list(grp["asset_id"])),
                 "Read the nameplate or measure, then re-run.")
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
     low = assets[assets["data_quality_pct"] < 70]
     if len(low):
-        add("data quality", "Low data-quality score", f"{len(low)} asset(s) below 70 % of nameplate fields known",
+        add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below 70 % of nameplate fields known",
             asset_list_text(list(low["asset_id"])), "Measure these first: kW, PF, speed and hours over 1-4 weeks.")
     flags = scope_flags(result, scope.asset_ids)
     if not flags.empty:
@@ -486,7 +487,7 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         weak = mc[mc["prob_npv_positive_frac"] < 0.9]
         if len(weak):
             add("uncertainty", "NPV may be negative",
-                f"{len(weak)} recommended project(s) with P(NPV > 0) below 90 % in the Monte Carlo",
+                f"{counted(len(weak), 'recommended project')} with P(NPV > 0) below 90 % in the Monte Carlo",
                 asset_list_text([p.split("/")[0] for p in weak["project_id"]]),
                 "Measure the load and hours before committing; consider replace-at-failure.")
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])

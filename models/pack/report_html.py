@@ -18,6 +18,7 @@ from plotly.offline import get_plotlyjs
 
 from models.pack import content, figures, templates
 from models.reactive_plan import withdrawn_text
+from models.wording import counted
 
 #: Sections of the report: (anchor, title).
 SECTIONS: tuple[tuple[str, str], ...] = (
@@ -81,14 +82,15 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     assets = case.assets.set_index("asset_id")
 
     cards = [
-        {"label": "Capital", "value": content.money(h.capital, cur), "note": f"{h.n_projects} project(s)"},
+        {"label": "Capital", "value": content.money(h.capital, cur), "note": counted(h.n_projects, "project")},
         {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices"},
         {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
         {"label": "Payback", "value": content.years_text(h.payback_yr, horizon), "note": "simple, combined cash flow"},
         {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"at {a.grid_co2_kg_per_kwh:g} kg/kWh"},
     ]
     keep_count = int((rec["option_id"] == rec["keep_option_id"]).sum())
-    summary = (f"{h.n_projects} project(s) on {len(scope.asset_ids)} asset(s) are recommended for "
+    summary = (f"{counted(h.n_projects, 'project')} on {counted(len(scope.asset_ids), 'asset')} "
+               f"{'is' if h.n_projects == 1 else 'are'} recommended for "
                f"{content.money(h.capital, cur)} of capital. They save about {content.money(h.yearly_saving, cur)} a year "
                f"({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), pay back in {content.years_text(h.payback_yr, horizon)} and add "
                f"{content.money(h.npv, cur)} of value at a {a.discount_rate_frac:.1%} discount rate.")
