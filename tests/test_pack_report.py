@@ -178,6 +178,14 @@ class TestReportContents:
         assert f"{r.loc[('P1', 'keep'), 'energy_kwh_per_yr']:,.0f}" in html
         assert "Option B" in html and "4 weeks before and 4 after" in html
 
+    def test_finance_assumptions_in_words(self, asset_pack, small):
+        # the approver reads labels and percentages, not finance.toml keys and fractions
+        _, result = small
+        html = text(asset_pack[0] / REPORT_NAME)
+        rate_pct = 100 * result.assumptions.discount_rate_frac
+        assert f"<td>Discount rate</td><td>{round(rate_pct, 10)}</td><td>%/yr</td>" in html.replace("\n", "").replace(" class=\"\"", "")
+        assert "discount_rate_frac" not in html and "escalation_energy_frac" not in html
+
     def test_emissions_basis_stated(self, asset_pack, small):
         _, result = small
         html = text(asset_pack[0] / REPORT_NAME)

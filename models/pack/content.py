@@ -93,6 +93,23 @@ FINANCE_FIELDS: dict[str, tuple[str, str]] = {
     "monte_carlo_seed": ("-", "seed of the random draws"),
 }
 
+#: Plain name of every finance assumption, for readers of the report (the workbook keeps the keys of
+#: finance.toml, which its formulas and its editors use).
+FINANCE_LABELS: dict[str, str] = {
+    "currency": "Currency", "discount_rate_frac": "Discount rate", "rate_basis": "Rate basis",
+    "inflation_frac": "Inflation", "horizon_yr": "Study period", "escalation_energy_frac": "Energy price escalation",
+    "escalation_demand_frac": "Demand charge escalation", "escalation_reactive_frac": "Reactive charge escalation",
+    "escalation_fixed_frac": "Fixed charge escalation", "escalation_maintenance_frac": "Maintenance cost escalation",
+    "grid_co2_kg_per_kwh": "Grid emission factor", "grid_co2_decline_frac": "Grid emission factor decline",
+    "incentive_per_kwh_saved": "Incentive per kWh saved", "incentive_capital_share_frac": "Incentive share of capital",
+    "incentive_max": "Incentive cap per project", "tax_rate_frac": "Profit tax rate",
+    "depreciation_yr": "Tax depreciation period", "replacement_mode": "Replacement timing",
+    "downtime_cost_per_h": "Downtime cost", "capacitor_cost_per_kvar": "Capacitor bank cost",
+    "energy_price_factor": "Electricity price level", "capital_cost_factor": "Capital cost level",
+    "budget_per_yr": "Capital budget per plan year", "monte_carlo_draws": "Monte Carlo draws",
+    "monte_carlo_seed": "Monte Carlo seed",
+}
+
 #: Technologies that put the motor on a drive (speed changes, so the M&V logs a whole duty cycle).
 DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
 
@@ -400,15 +417,32 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
 # Assumptions, data quality and the risk register
 # ---------------------------------------------------------------------------------------------------
 def finance_rows(assumptions: finance.FinanceAssumptions) -> list[dict[str, Any]]:
-    """Return one row per finance assumption: key, value, unit, meaning, and whether it is the program default."""
+    """Return one row per finance assumption: key, label (plain words), value, unit, meaning, and whether it
+    is the program default."""
     default = finance.FinanceAssumptions()
     out = []
     for f in fields(assumptions):
         value = getattr(assumptions, f.name)
         unit, meaning = FINANCE_FIELDS.get(f.name, ("", ""))
-        out.append({"key": f.name, "value": value, "unit": unit, "meaning": meaning,
-                    "program_default": value == getattr(default, f.name)})
+        out.append({"key": f.name, "label": FINANCE_LABELS.get(f.name, f.name), "value": value, "unit": unit,
+                    "meaning": meaning, "program_default": value == getattr(default, f.name)})
     return out
+
+
+def shown_as_percent(value, unit: str) -> tuple[object, str]:
+    """A fraction (unit ``frac`` or ``frac/yr``) as a percentage for readers: (value x 100, ``%`` or ``%/yr``);
+    any other value and unit as they are.
+
+    Examples
+    --------
+    >>> shown_as_percent(0.08, "frac/yr")
+    (8.0, '%/yr')
+    >>> shown_as_percent(15, "yr")
+    (15, 'yr')
+    """
+    if unit.startswith("frac") and isinstance(value, (int, float)) and not isinstance(value, bool):
+        return round(100.0 * float(value), 10), "%" + unit[len("frac"):]
+    return value, unit
 
 
 def scope_flags(result, asset_ids: tuple[str, ...]) -> pd.DataFrame:

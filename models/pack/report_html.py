@@ -187,7 +187,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
             value = "no cap"
         elif isinstance(value, tuple):
             value = ", ".join(f"{v:,.0f}" for v in value) or "no limit"
-        finance_rows.append(row([cell(item["key"]), cell(value), cell(item["unit"]), cell(item["meaning"]),
+        value, unit = content.shown_as_percent(value, item["unit"])
+        finance_rows.append(row([cell(item["label"]), cell(value), cell(unit), cell(item["meaning"]),
                                  cell("same as the program default" if item["program_default"] else "differs from the program default",
                                       "small")]))
 
