@@ -207,17 +207,24 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Fig
                                      legendgroup=label, line=dict(color=colours[label], width=2),
                                      hovertemplate="%{x:.0f} %<br>efficiency %{y:.1f} %<extra>" + label + "</extra>"),
                           row=1, col=1)
-            fig.add_trace(go.Scatter(x=part["load_pct"], y=part["power_factor"], mode="lines", name=label,
-                                     legendgroup=label, showlegend=False, line=dict(color=colours[label], width=2, dash="dot"),
-                                     hovertemplate="%{x:.0f} %<br>PF %{y:.3f}<extra>" + label + "</extra>"),
-                          row=2, col=1)
+            # the power factor's size says nothing of its sense: lagging drawn dotted, leading (a machine that
+            # supplies kVAr to the site) dashed, and said in the hover
+            leading = (part["q_kvar"] < 0).to_numpy() if "q_kvar" in part else np.zeros(len(part), dtype=bool)
+            for sense, mask, dash in (("lagging", ~leading, "dot"), ("leading", leading, "dash")):
+                if not mask.any():
+                    continue
+                fig.add_trace(go.Scatter(x=part["load_pct"], y=part["power_factor"].where(mask), mode="lines", name=label,
+                                         legendgroup=label, showlegend=False,
+                                         line=dict(color=colours[label], width=2, dash=dash),
+                                         hovertemplate="%{x:.0f} %<br>PF %{y:.3f} " + sense + "<extra>" + label + "</extra>"),
+                              row=2, col=1)
     if hours is not None and len(hours):
         mid = (hours["load_from_pct"] + hours["load_to_pct"]) / 2.0
         width = hours["load_to_pct"] - hours["load_from_pct"]
         fig.add_trace(go.Bar(x=mid, y=hours["hours_per_yr"], width=width * 0.95, name=f"hours at load: {basis}",
                              marker_color=BEFORE, hovertemplate="%{x:.0f} %: %{y:,.0f} h/yr<extra></extra>"), row=3, col=1)
     fig.update_yaxes(title_text="Efficiency [%]", row=1, col=1)
-    fig.update_yaxes(title_text="Power factor [-]", row=2, col=1)
+    fig.update_yaxes(title_text="Power factor [-]<br>dotted lagging, dashed leading", row=2, col=1)
     fig.update_yaxes(title_text="Hours [h/yr]", row=3, col=1)
     fig.update_xaxes(title_text="Today's shaft load [% of rating]; a drive that replaces a throttle runs the flow's "
                                 "own, lower load (flat below the zero-flow load)", row=3, col=1, range=[0, 130])

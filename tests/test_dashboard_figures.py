@@ -106,8 +106,22 @@ class TestAsset:
         np.testing.assert_allclose(bar.x, [45.0, 55.0])
         np.testing.assert_allclose(bar.y, [1000.0, 3000.0])
         t = titles(fig)
-        assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"] == "Power factor [-]" and t["yaxis3"] == "Hours [h/yr]"
+        assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"].startswith("Power factor [-]") and t["yaxis3"] == "Hours [h/yr]"
         assert t["xaxis3"].startswith("Today's shaft load [% of rating]")
+
+    def test_leading_power_factor_is_told_apart(self):
+        # a wound-field machine supplying kVAr (negative q) at part load, lagging above: two dashes, the sense hovered
+        load = np.array([25.0, 50.0, 100.0])
+        curves = pd.DataFrame({"label": "WF", "load_pct": load, "efficiency_frac": [0.9, 0.94, 0.96],
+                               "power_factor": [0.6, 0.8, 0.95], "q_kvar": [-30.0, -10.0, 5.0]})
+        fig = figures.performance(curves, None, "shaft load")
+        pf = [t for t in fig.data if t.yaxis == "y2"]
+        assert [t.line.dash for t in pf] == ["dot", "dash"]
+        lag, lead = pf
+        np.testing.assert_allclose(np.asarray(lag.y, dtype=float), [np.nan, np.nan, 0.95])
+        np.testing.assert_allclose(np.asarray(lead.y, dtype=float), [0.6, 0.8, np.nan])
+        assert "lagging" in lag.hovertemplate and "leading" in lead.hovertemplate
+        assert "dashed leading" in titles(fig)["yaxis2"]
 
     def test_speed_energy_by_remedy(self):
         options = pd.DataFrame({"label": ["Keep", "LSPM", "LSPM + trim", "Drive"],
