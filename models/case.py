@@ -13,7 +13,7 @@ import difflib
 import re
 import zoneinfo
 from functools import lru_cache
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -985,12 +985,16 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None
 
 def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]) -> dict:
     """Parse and check every tariff of the case; a tariff's currency must be the case's."""
-    from models.tariff import tariff_from_dict
+    from models.tariff import key_line, tariff_from_dict
 
     parsed = {}
     for name, data in raw.tariffs.items():
         source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
         tariff, tariff_problems = tariff_from_dict(data, source=source)
+        text = raw.tariff_texts.get(name)
+        if text is not None:  # each key's line, where the file writes it
+            tariff_problems = [replace(p, row=key_line(text, p.column)) if p.row is None and p.column else p
+                               for p in tariff_problems]
         problems.extend(tariff_problems)
         if tariff is None:
             continue

@@ -24,9 +24,9 @@ class Problem:
         File name (or workbook sheet, as ``book.xlsx:assets``) as the user sees it.
     row : int or None
         Row number as the user sees it in a spreadsheet: the header is row 1, so the first data row
-        is row 2. ``None`` when the problem concerns the whole file or column.
+        is row 2; in a TOML file, the line. ``None`` when the problem concerns the whole file or column.
     column : str or None
-        Column header as written in the user's file.
+        Column header as written in the user's file; in a TOML file, the key path.
     value : object
         The offending value, as read.
     rule : str
@@ -44,12 +44,13 @@ class Problem:
     hint: str = ""
 
     def location(self) -> str:
-        """Return ``file, row R, column C`` as far as known."""
+        """Return ``file, row R, column C`` as far as known (``line L, key K`` in a TOML file)."""
+        toml = self.file.lower().endswith(".toml")
         parts = [self.file]
         if self.row is not None:
-            parts.append(f"row {self.row}")
+            parts.append(f"{'line' if toml else 'row'} {self.row}")
         if self.column is not None:
-            parts.append(f"column '{self.column}'")
+            parts.append(f"{'key' if toml else 'column'} '{self.column}'")
         return ", ".join(parts)
 
     def __str__(self) -> str:

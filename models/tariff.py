@@ -953,6 +953,84 @@ def _parse_window(text: str) -> HourWindow | None:
     return HourWindow(start, end)
 
 
+_TOML_ARRAY_HEADER = re.compile(r"^\s*\[\[\s*([^\[\]]+?)\s*\]\]")
+_TOML_TABLE_HEADER = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]")
+_TOML_KEY = re.compile(r"""^\s*((?:"[^"]*"|'[^']*'|[A-Za-z0-9_\-]+)(?:\s*\.\s*(?:"[^"]*"|'[^']*'|[A-Za-z0-9_\-]+))*)\s*=""")
+_PATH_PART = re.compile(r"^([^\[\]]+)(?:\[(\d+)\])?$")
+
+
+def _dotted(name: str) -> list[str]:
+    return [part.strip().strip("\"'") for part in name.split(".")]
+
+
+def key_line(text: str, key_path: str) -> int | None:
+    r"""The line of a tariff file where a key path of its problem messages is written, or None.
+
+    Parameters
+    ----------
+    text : str
+        The tariff file's TOML text.
+    key_path : str
+        A path as the messages give it: tables and keys joined by dots, the entries of an array of tables
+        counted from 1 (``demand[2].ratchet_frac``, ``energy.price_per_kwh.peak``, ``tariff.currency``).
+
+    Returns
+    -------
+    int or None
+        The 1-based line of the key itself; else of the nearest enclosing table or key written in the file
+        (an entry's ``[[demand]]`` line for a key it lacks; an inline table's line for a key inside it);
+        None when nothing of the path is written (e.g. a table the file leaves out).
+
+    Examples
+    --------
+    >>> text = '[tariff]\nname = "t"\n[[demand]]\nname = "a"\n[[demand]]\nname = "b"\nratchet_frac = 1.8\n'
+    >>> key_line(text, "demand[2].ratchet_frac"), key_line(text, "demand[1].ratchet_frac"), key_line(text, "fixed")
+    (7, 3, None)
+    """
+    target = []
+    for part in key_path.split("."):
+        found = _PATH_PART.match(part.strip())
+        if not found:
+            return None
+        target.append((found.group(1), int(found.group(2)) if found.group(2) else None))
+    counts: dict[tuple, int] = {}
+    table: list[tuple[str, int | None]] = []
+    best, best_depth = None, 0
+
+    def resolved(names: list[str], array: bool) -> list[tuple[str, int | None]]:
+        out: list[tuple[str, int | None]] = []
+        for k, name in enumerate(names):
+            prefix = tuple(n for n, _ in out) + (name,)
+            last = k == len(names) - 1
+            if array and last:
+                counts[prefix] = counts.get(prefix, 0) + 1
+                out.append((name, counts[prefix]))
+            else:
+                out.append((name, counts.get(prefix)))
+        return out
+
+    for number, line in enumerate(text.splitlines(), start=1):
+        header = _TOML_ARRAY_HEADER.match(line)
+        if header:
+            table = resolved(_dotted(header.group(1)), True)
+            path = table
+        else:
+            header = _TOML_TABLE_HEADER.match(line)
+            if header:
+                table = resolved(_dotted(header.group(1)), False)
+                path = table
+            else:
+                key = _TOML_KEY.match(line)
+                if not key:
+                    continue
+                path = table + [(name, None) for name in _dotted(key.group(1))]
+        if path == target:
+            return number
+        if len(path) > best_depth and path == target[:len(path)]:
+            best, best_depth = number, len(path)
+    return best
+
+
 def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | None, list[Problem]]:
     """Build a :class:`Tariff` from a parsed TOML table and return it with every problem found.
 

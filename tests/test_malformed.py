@@ -134,10 +134,10 @@ CORPUS: dict[str, tuple[bool, tuple[Expect, ...]]] = {
                                       E("profiles.csv", 5, "timestamp", "not readable"))),
     "irregular_resolution": (False, (E("profiles.csv", 2, "timestamp", "allowed are 15, 30 or 60 min"),)),
     # tariffs
-    "tariff_overlapping_periods": (False, (E("tariffs/t.toml", None, "periods[2].hours", "overlaps periods[1]"),)),
+    "tariff_overlapping_periods": (False, (E("tariffs/t.toml", 12, "periods[2].hours", "overlaps periods[1]"),)),
     "tariff_missing_period": (False, (E("tariffs/t.toml", None, "periods", "no period covers"),)),
-    "tariff_unknown_keys": (True, (W("tariffs/t.toml", None, "tariff.colour", "unknown key"),)),
-    "tariff_wrong_types": (False, (E("tariffs/t.toml", None, "energy.price_per_kwh", "table of numbers"),)),
+    "tariff_unknown_keys": (True, (W("tariffs/t.toml", 5, "tariff.colour", "unknown key"),)),
+    "tariff_wrong_types": (False, (E("tariffs/t.toml", 15, "energy.price_per_kwh", "table of numbers"),)),
     "tariff_syntax_error": (False, (E("tariffs/t.toml", 11, None, "TOML syntax error"),
                                     E("sites.csv", 2, "tariff_file", "could not be read"))),
     "tariff_empty_file": (False, (E("tariffs/t.toml", None, "tariff", "missing [tariff] table"),)),
@@ -295,7 +295,7 @@ class TestCheckCommand:
         ("dst_spring_gap", "profiles.csv, row 4, column 'timestamp'"),
         ("stray_extra_cell", "assets.csv, row 3, column '(no header, column 20)'"),
         ("binary_garbage", "assets.csv: the file holds binary data"),
-        ("tariff_syntax_error", "tariffs/t.toml, row 11"),
+        ("tariff_syntax_error", "tariffs/t.toml, line 11"),
     ])
     def test_check_exits_1_and_names_the_place(self, entry, location, tmp_path, capsys):
         folder = _build(entry, tmp_path)

@@ -424,3 +424,30 @@ def test_holidays_accept_strings_and_dates():
     assert pa == pb == [] and a.holidays == b.holidays
     idx = pd.DatetimeIndex(["2025-12-25 12:00"]).tz_localize("UTC")
     assert np.asarray(day_types(a, idx)).tolist() == [3]
+
+
+class TestKeyLine:
+    """Messages name the line of a key path in the tariff file (models.tariff.key_line)."""
+
+    TEXT = (Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_tou_kw_reactive_ratchet.toml").read_text()
+
+    def line_of(self, start: str, after: str = "") -> int:
+        """1-based line of the first line starting with ``start`` after the first line starting with ``after``."""
+        lines = self.TEXT.splitlines()
+        first = next(i for i, l in enumerate(lines) if l.startswith(after)) if after else 0
+        return next(i for i, l in enumerate(lines) if i >= first and l.startswith(start)) + 1
+
+    def test_keys_of_tables_and_entries(self):
+        from models.tariff import key_line
+
+        assert key_line(self.TEXT, "tariff.currency") == self.line_of("currency", "[tariff]")
+        assert key_line(self.TEXT, "demand[1].ratchet_frac") == self.line_of("ratchet_frac")
+        # inside an inline table: the line of the table's key
+        assert key_line(self.TEXT, "energy.price_per_kwh.peak") == self.line_of("price_per_kwh", "[energy]")
+
+    def test_missing_key_points_at_its_entry_and_unknown_table_at_nothing(self):
+        from models.tariff import key_line
+
+        assert key_line(self.TEXT, "fixed[1].not_written") == self.line_of("[[fixed]]")
+        assert key_line(self.TEXT, "no_such_table.key") is None
+        assert key_line(self.TEXT, "periods[9].hours") is None
