@@ -23,6 +23,7 @@ from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
 from models.problems import CaseError, Problem, error, has_errors, warning
+from models.wording import counted
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
 MAX_HOURS_PER_YR = 8784.0  # hours in a leap year
@@ -810,10 +811,11 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     throttled = ((a["speed_control"].to_numpy(dtype=object) == "throttled")
                  & np.isin(a["application"].to_numpy(dtype=object), ["pump", "fan"]) & np.isnan(static))
     if throttled.any():
-        ids = a["asset_id"].to_numpy(dtype=object)[throttled]
-        named = ", ".join(str(x) for x in ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[throttled])  # whatever the row order
+        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
         checker.warn(None, "static_head_frac", None,
-                     f"static_head_frac is blank for {len(ids)} throttled pump(s) and fan(s) ({named}): the application "
+                     f"static_head_frac is blank for {counted(len(ids), 'throttled pump or fan', 'throttled pumps and fans')} "
+                     f"({named}): the application "
                      f"default is used ({nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['pump']:g} for pumps, "
                      f"{nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['fan']:g} for fans), and a drive's saving "
                      "falls as the static share of the head rises",
@@ -985,16 +987,12 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None
 
 def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]) -> dict:
     """Parse and check every tariff of the case; a tariff's currency must be the case's."""
-    from models.tariff import key_line, tariff_from_dict
+    from models.tariff import tariff_from_dict
 
     parsed = {}
     for name, data in raw.tariffs.items():
         source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
         tariff, tariff_problems = tariff_from_dict(data, source=source)
-        text = raw.tariff_texts.get(name)
-        if text is not None:  # each key's line, where the file writes it
-            tariff_problems = [replace(p, row=key_line(text, p.column)) if p.row is None and p.column else p
-                               for p in tariff_problems]
         problems.extend(tariff_problems)
         if tariff is None:
             continue
@@ -1167,7 +1165,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
                                   "add one row per motor"))
     for checker in checkers.values():
         problems.extend(checker.problems)
-    problems = _ordered(problems)
+    problems = _ordered(_with_toml_lines(raw, problems))
     if has_errors(problems) or "assets" not in frames or "sites" not in frames or options_frame is None:
         return None, problems
     assets, defaults = _fill_defaults(frames["assets"], duty_ids)
@@ -1190,6 +1188,39 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         problems=tuple(problems),
     )
     return case, problems
+
+
+#: The table a settings file's keys may sit in, tried after the key path as given (case.toml writes its
+#: settings under [case]; finance.toml may write its under [finance]).
+_TOML_TABLE_OF_FILE = {"case.toml": "case", "finance.toml": "finance"}
+
+
+def _with_toml_lines(raw: io.RawCase, problems: list[Problem]) -> list[Problem]:
+    """Problems on a key of a case folder's TOML file (case.toml, finance.toml, tariffs/*.toml) with the line
+    where the file writes the key (or, for a key left out, its entry or table): the row of the message."""
+    from models.tariff import key_line
+
+    if raw.kind != "folder":
+        return problems
+    texts: dict[str, str | None] = {}
+    out = []
+    for p in problems:
+        if p.row is None and p.column and p.file.lower().endswith(".toml"):
+            if p.file not in texts:
+                try:
+                    texts[p.file] = (Path(raw.path) / p.file).read_text(encoding="utf-8-sig")
+                except (OSError, UnicodeDecodeError):
+                    texts[p.file] = None
+            text = texts[p.file]
+            if text is not None:
+                table = _TOML_TABLE_OF_FILE.get(p.file)
+                line = key_line(text, p.column)
+                if line is None and table and not p.column.startswith(table + "."):
+                    line = key_line(text, f"{table}.{p.column}")
+                if line is not None:
+                    p = replace(p, row=line)
+        out.append(p)
+    return out
 
 
 def _ordered(problems: list[Problem]) -> list[Problem]:

@@ -129,8 +129,6 @@ class RawCase:
     settings_source: str = "case.toml"
     tables: dict[str, RawTable] = field(default_factory=dict)
     tariffs: dict[str, dict] = field(default_factory=dict)
-    #: The TOML text of each tariff file read from a folder (to name the line of a key in messages).
-    tariff_texts: dict[str, str] = field(default_factory=dict)
     extra: dict[str, object] = field(default_factory=dict)
     problems: list[Problem] = field(default_factory=list)
     #: Tariff files present but unreadable (syntax or encoding errors already reported).
@@ -933,10 +931,6 @@ def read_folder(path: Path) -> RawCase:
                 case.unreadable_tariffs.add(tariff_path.name)
             else:
                 case.tariffs[tariff_path.name] = data
-                try:  # read once more as text, for the line of a key a later check names
-                    case.tariff_texts[tariff_path.name] = tariff_path.read_text(encoding="utf-8-sig")
-                except (OSError, UnicodeDecodeError):
-                    pass
     elif tariff_dir.exists():
         case.problems.append(warning("tariffs", None, None, None, "'tariffs' is not a folder; it was ignored",
                                      "put tariff files in a folder named tariffs"))

@@ -385,7 +385,7 @@ class TestStaticHeadWarning:
         _, problems = load_case(cb.write_case(tmp_path / "c"))
         # P1 is the only throttled pump or fan of the small case (F1 is a fixed-speed fan)
         hit = _find(problems, file="assets.csv", column="static_head_frac", severity="warning",
-                    text="blank for 1 throttled pump(s) and fan(s) (P1)")
+                    text="blank for 1 throttled pump or fan (P1)")
         assert hit.row is None and "0.3 for pumps, 0 for fans" in hit.rule
 
     def test_given_static_head_is_not_warned(self, tmp_path):
