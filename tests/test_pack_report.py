@@ -157,6 +157,20 @@ class TestReportContents:
         # engine: the exact plan's capital, the whole of the plan-scope pack
         assert f'<div class="value">{money(result.plan["capital"].sum())}</div>' in html
 
+    def test_headline_npv_is_the_plans_npv_with_repriced_projects(self, demo_run_physics):
+        # the demo's plan keeps reactive projects at the share of their saving they add: the headline is the
+        # plan's NPV at its start (plan.csv), not the projects' NPVs priced alone
+        from models.pack import content
+
+        case, phys = demo_run_physics
+        result = scenario.economics(case, phys, case.finance, with_risk=False)
+        repriced = (result.plan["npv"] - result.plan.merge(result.results, on=["asset_id", "option_id"],
+                                                             suffixes=("", "_alone"))["npv_alone"]).abs() > 1.0
+        assert repriced.any()
+        scope = content.select_scope(case, result, None, True)
+        h = content.headline(result, scope)
+        assert h.npv == pytest.approx(result.plan["npv_at_plan_start"].sum(), rel=1e-12)
+
     def test_decision_npv_column_adds_up_to_the_headline(self, small):
         # each planned project's NPV at the plan's start: the column's sum is the headline NPV (plan scope)
         from models.pack import content

@@ -131,7 +131,10 @@ class Scope:
     recommended : pandas.DataFrame
         One row per asset in scope: the recommended option (the exact plan's choice, else the highest-NPV
         option, which may be today's motor), with the ``result.results`` columns, ``plan_start_yr``,
-        ``in_plan``, ``keep_option_id``, ``reason`` (a sentence) and ``reason_short``.
+        ``in_plan``, ``keep_option_id``, ``reason`` (a sentence), ``reason_short``, and ``plan_npv`` and
+        ``plan_npv_at_start`` [currency]: the plan's NPV of the project (a reactive project kept at the share
+        of its saving it adds beside the rest of the plan counts that share), at its own start and at the
+        plan's; outside the plan, its own NPV.
     """
 
     mode: str
@@ -187,6 +190,13 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
     plan_key = dict(zip(plan_rows["asset_id"] + "/" + plan_rows["option_id"], plan_rows["start_yr"].astype(int)))
     fleet_choice = dict(zip(result.plan["asset_id"], result.plan["option_id"]))
     fleet_start = dict(zip(result.plan["asset_id"], result.plan["start_yr"].astype(int)))
+    # the plan's NPV of a project (a reactive project kept at the share it adds beside the rest of the plan
+    # counts that share), at the plan's start; a project outside the plan starts at once, at its own NPV
+    plan_npv = dict(zip(result.plan["asset_id"] + "/" + result.plan["option_id"], result.plan["npv"].astype(float)))
+    plan_npv_start = dict(zip(result.plan["asset_id"] + "/" + result.plan["option_id"],
+                              result.plan["npv_at_plan_start"].astype(float)))
+    status = result.plan_status or {}
+    taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))  # value taken by the rest of the plan
     in_scope = set(wanted) | set(plan_rows["asset_id"])
     asset_ids = tuple(a for a in known if a in in_scope)
 
@@ -204,10 +214,18 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
             pick = rows[rows["option_id"] == fleet_choice[asset_id]].iloc[0].copy()
             start = fleet_start[asset_id]
             best = bool(pick["best_for_asset"])
-            reason = (f"chosen by the budget-constrained fleet plan for plan year {start}"
-                      + (" (highest NPV of its options)" if best else
-                         " (the plan trades some NPV for capital that fits the budget)"))
-            short = f"plan year {start}; " + ("highest NPV" if best else "fits the budget better than the top NPV")
+            top = rows[rows["best_for_asset"]].iloc[0]
+            if best:
+                why, short_why = " (highest NPV of its options)", "highest NPV"
+            elif f"{asset_id}/{top['option_id']}" in taken:
+                why = (f" (its highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
+                       "rest of the plan at this site already takes)")
+                short_why = "top NPV option's value taken by the rest of the plan"
+            else:
+                why, short_why = (" (the plan trades some NPV for capital that fits the budget)",
+                                  "fits the budget better than the top NPV")
+            reason = f"chosen by the budget-constrained fleet plan for plan year {start}" + why
+            short = f"plan year {start}; " + short_why
             pick["in_plan"], pick["plan_start_yr"] = True, start
         else:
             pick = rows[rows["best_for_asset"]].iloc[0].copy()
@@ -224,9 +242,12 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
         pick["reason"] = reason
         pick["reason_short"] = short
         pick["keep_option_id"] = keep[asset_id]
+        label = f"{asset_id}/{pick['option_id']}"
+        pick["plan_npv"] = plan_npv.get(label, float(pick["npv"])) if pick["in_plan"] else float(pick["npv"])
+        pick["plan_npv_at_start"] = plan_npv_start.get(label, float(pick["npv"])) if pick["in_plan"] else float(pick["npv"])
         rec_rows.append(pick)
     recommended = pd.DataFrame(rec_rows).reset_index(drop=True) if rec_rows else res.iloc[0:0].assign(
-        in_plan=[], plan_start_yr=[], reason=[], reason_short=[], keep_option_id=[])
+        in_plan=[], plan_start_yr=[], reason=[], reason_short=[], keep_option_id=[], plan_npv=[], plan_npv_at_start=[])
     rec_key = set(recommended["asset_id"] + "/" + recommended["option_id"])
     projects["recommended"] = (projects["asset_id"] + "/" + projects["option_id"]).isin(list(rec_key)).to_numpy()
     order = {a: i for i, a in enumerate(asset_ids)}
@@ -328,10 +349,10 @@ def yearly_saving(frame: pd.DataFrame) -> pd.Series:
 def headline(result, scope: Scope) -> Headline:
     """Return the executive summary's headline numbers for the recommended projects."""
     chosen = scope.chosen
-    d = float(result.assumptions.discount_rate_frac)
     flows = portfolio_flows(result, chosen)
     payback = float(finance.simple_payback(flows["net"].to_numpy()).payback_yr) if len(chosen) else math.inf
-    npv_start = float((chosen["npv"] / (1.0 + d) ** chosen["plan_start_yr"].astype(float)).sum())
+    # the plan's NPV of each project at the plan's start (what the decision table shows, row by row)
+    npv_start = float(chosen["plan_npv_at_start"].sum()) if len(chosen) else 0.0
     return Headline(n_projects=len(chosen), capital=float(chosen["capital"].sum()),
                     yearly_saving=float(yearly_saving(chosen).sum()), npv=npv_start, payback_yr=payback,
                     co2_t_per_yr=float(chosen["co2_avoided_t_per_yr"].sum()),

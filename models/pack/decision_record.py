@@ -109,13 +109,25 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     reason = str(rec["reason"])
     reasons = [reason[:1].upper() + reason[1:] + "."]
     if not is_keep:
-        reasons.append(f"NPV {content.money(float(rec['npv']), cur)} at {a.discount_rate_frac:.1%}, capital "
+        own_npv, plan_npv = float(rec["npv"]), float(rec["plan_npv"])
+        reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
                        f"{content.money(float(rec['capital']), cur)}, saving {content.money(float(rec['bill_saving_per_yr'] + rec['saving_maintenance_per_yr']), cur)}/yr, "
-                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon)}.")
+                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon)}, each priced alone against "
+                       "today's bill.")
+        if abs(plan_npv - own_npv) > 0.5:
+            reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
+                           f"{content.money(plan_npv, cur)} for it.")
         others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
         if len(others):
             o = others.iloc[0]
-            reasons.append(f"Next best: {o['label']} (NPV {content.money(float(o['npv']), cur)}).")
+            status = result.plan_status or {}
+            taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
+            note = ""
+            if float(o["npv"]) > own_npv:
+                note = ("; its value priced alone is already taken by the rest of the plan at this site"
+                        if f"{asset_id}/{o['option_id']}" in taken else
+                        "; the plan prefers the option above for the budget")
+            reasons.append(f"Best other option: {o['label']} (NPV {content.money(float(o['npv']), cur)}{note}).")
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
         reasons.append(f"For the motor itself ({labels.get(new_id, new_id)} vs rewind), the cheapest end-of-life strategy is to "

@@ -97,14 +97,12 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     if keep_count:
         summary += f" For {keep_count} asset(s) no option beats keeping today's motor."
 
-    # NPV at the plan's start (a project started in plan year k is discounted k more years): the column
-    # then adds up to the headline NPV; a project outside the plan would start at once (the same value)
-    at_start = (result.plan.set_index(["asset_id", "option_id"])["npv_at_plan_start"] if len(result.plan)
-                else pd.Series(dtype=float))
+    # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
+    # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
     decision_rows = []
     for r in rec.itertuples(index=False):
         is_keep = r.option_id == r.keep_option_id
-        npv_start = float(at_start.get((r.asset_id, r.option_id), r.npv))
+        npv_start = float(r.plan_npv_at_start)
         decision_rows.append(row([
             cell(r.asset_id, "id"), cell(assets.loc[r.asset_id, "description"] or ""), cell(r.label),
             cell(int(r.plan_start_yr) if r.in_plan else "-", "num"),
