@@ -205,6 +205,12 @@ class TestReportContents:
         html = text(asset_pack[0] / REPORT_NAME)
         assert f"{result.assumptions.grid_co2_kg_per_kwh:g} kg CO2 per kWh" in html
         assert "location- or market-based" in html
+        # the stated rule gives the tonnes shown: kWh saved x factor x (1 - decline) / 1000 (hand rule, first year)
+        a = result.assumptions
+        assert "factor x (1 - decline) / 1000" in html
+        rec = result.results[result.results["energy_saved_kwh_per_yr"].abs() > 1.0].iloc[0]
+        expected = rec["energy_saved_kwh_per_yr"] * a.grid_co2_kg_per_kwh * (1 - a.grid_co2_decline_frac) / 1000
+        assert rec["co2_avoided_t_per_yr"] == pytest.approx(expected, rel=1e-9)
 
 
 class TestDecisionRecords:

@@ -212,7 +212,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     em_rows.append(row([cell("Total"), num(h.energy_saved_kwh_per_yr), num(h.co2_t_per_yr, "{:,.2f}"), cell("")], pick=True))
     emissions_text = (f"CO2 avoided in the first year at a grid emission factor of {a.grid_co2_kg_per_kwh:g} kg CO2 per kWh "
                       f"(the case's base-year factor, declining {a.grid_co2_decline_frac:.1%} a year; state whether it is "
-                      f"location- or market-based and average or marginal). Tonnes = kWh saved x factor / 1000; only "
+                      f"location- or market-based and average or marginal). Tonnes in the first year of savings = kWh saved x "
+                      f"factor x (1 - decline) / 1000 ({a.grid_co2_kg_per_kwh * (1 - a.grid_co2_decline_frac):.4g} kg per kWh); only "
                       f"electricity saved at the meter counts. Total: {h.co2_t_per_yr:,.1f} t CO2 per year.")
 
     appendix = []
@@ -260,7 +261,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                        "Running h/yr", "Expected kWh/yr", "Expected mean kW", "Expected PF", "Expected rpm"],
         "mv_rows": mv_rows, "mv_numeric": tuple(range(2, 11)),
         "emissions_text": emissions_text,
-        "emission_headers": ["Project", "Energy saved kWh/yr", "CO2 avoided t/yr", f"Abatement cost {cur}/t"],
+        "emission_headers": ["Project", "Energy saved kWh/yr", "CO2 avoided t/yr (first year)",
+                             f"Abatement cost {cur}/t (-NPV per discounted t over the horizon)"],
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
         "cautions": list(content.CAUTIONS),
         "appendix": appendix,
