@@ -100,6 +100,22 @@ def _load_or_report(path: str):
     return case
 
 
+def _out_problem(command: str, case_path: str, out: str) -> str | None:
+    """Why ``--out`` cannot take the results (a message for the user), or None when it can."""
+    from pathlib import Path
+
+    if _writes_into_case(case_path, out):
+        return (f"drivecase {command}: --out is the case's own folder; give another folder (a case's files are "
+                "never written to)")
+    target = Path(out)
+    if target.exists() and not target.is_dir():
+        return f"drivecase {command}: --out {out} is a file, not a folder; give a folder to write the results into"
+    parent = next((p for p in target.absolute().parents if p.exists()), None)
+    if parent is not None and not parent.is_dir():
+        return f"drivecase {command}: --out {out} lies under {parent}, which is a file; give a folder"
+    return None
+
+
 def _writes_into_case(case_path: str, out: str) -> bool:
     """Whether an output folder is the case's own folder (or the folder of a case workbook)."""
     from pathlib import Path
@@ -202,9 +218,13 @@ def cmd_run(args: argparse.Namespace) -> int:
     if not (args.plan_gap >= 0 and args.plan_seconds > 0):
         print("drivecase run: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
         return 2
-    if _writes_into_case(args.case, args.out):
-        print("drivecase run: --out is the case's own folder; give another folder (a case's files are never "
-              "written to)", file=sys.stderr)
+    problem = _out_problem("run", args.case, args.out)
+    if problem:
+        print(problem, file=sys.stderr)
+        return 2
+    if args.scheduler and args.engine != "dask":
+        print("drivecase run: --scheduler is the address of a Dask scheduler; add --engine dask to use it",
+              file=sys.stderr)
         return 2
     if args.engine == "dask":
         try:
@@ -324,11 +344,15 @@ def cmd_report(args: argparse.Namespace) -> int:
     case = _load_or_report(args.case)
     if case is None:
         return 1
-    if _writes_into_case(args.case, args.out):
-        print("drivecase report: --out is the case's own folder; give another folder (a case's files are never "
-              "written to)", file=sys.stderr)
+    problem = _out_problem("report", args.case, args.out)
+    if problem:
+        print(problem, file=sys.stderr)
         return 2
-    assets = [a.strip() for a in args.assets.split(",")] if args.assets else None
+    assets = [a.strip() for a in args.assets.split(",") if a.strip()] if args.assets is not None else None
+    if args.assets is not None and not assets:
+        print("drivecase report: --assets names no asset; give comma-separated asset ids, or leave it out for the "
+              "plan's projects", file=sys.stderr)
+        return 2
     if assets:
         unknown = sorted(set(assets) - set(case.assets["asset_id"]))
         if unknown:
@@ -378,7 +402,8 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.add_argument("--quiet", action="store_true", help="no progress bar")
     p_run.add_argument("--engine", choices=("local", "dask"), default="local",
                        help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
-    p_run.add_argument("--scheduler", help="address of a running Dask scheduler (default: start a local cluster)")
+    p_run.add_argument("--scheduler", metavar="ADDRESS",
+                       help="address of a running Dask scheduler, with --engine dask (default: start a local cluster)")
     p_run.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
                        help="stop the exact plan once it is proven within this %% of the best possible NPV "
                             f"(default {100.0 * gap_frac:g})")

@@ -199,3 +199,21 @@ def test_new_workbook_in_a_folder_points_check_at_the_workbook(tmp_path, capsys)
     assert main(["new", str(tmp_path / "blank"), "--workbook"]) == 0
     out = capsys.readouterr().out
     assert f"drivecase check {tmp_path / 'blank' / 'case.xlsx'}" in out
+
+
+def test_out_that_is_a_file_is_refused_before_any_work(tmp_path, capsys):
+    afile = tmp_path / "afile"
+    afile.write_text("mine", encoding="utf-8")
+    assert main(["run", str(DEMO), "--out", str(afile), "--quiet"]) == 2
+    assert "is a file, not a folder" in capsys.readouterr().err
+    assert main(["report", str(DEMO), "--out", str(afile / "sub")]) == 2
+    assert "which is a file" in capsys.readouterr().err
+    assert afile.read_text(encoding="utf-8") == "mine"  # the user's file is left as it was
+
+
+def test_scheduler_without_dask_and_empty_assets_are_refused(tmp_path, capsys):
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--scheduler", "tcp://192.0.2.1:8786"]) == 2
+    assert "add --engine dask" in capsys.readouterr().err
+    assert main(["report", str(DEMO), "--out", str(tmp_path / "p"), "--assets", " , "]) == 2
+    assert "--assets names no asset" in capsys.readouterr().err
+    assert not (tmp_path / "o").exists() and not (tmp_path / "p").exists()
