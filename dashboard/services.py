@@ -751,6 +751,14 @@ FORM_FIELDS = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "E
                "capital_cost_level_pct": "Capital cost level"}
 
 
+#: What the assumptions form accepts, in its own units: wide enough for any real study, narrow enough that
+#: every stage stays defined (the Monte Carlo draws the discount rate 2 points either side, and a rate
+#: must stay above -100 %; a price level of a million per cent only prints meaningless figures). A design
+#: choice of this tool; finance.toml itself takes the wider ranges of FinanceAssumptions.
+FORM_RANGES = {"discount_rate_pct": (-20.0, 100.0), "escalation_energy_pct": (-50.0, 50.0), "horizon_yr": (1.0, 100.0),
+               "energy_price_level_pct": (1.0, 10_000.0), "capital_cost_level_pct": (1.0, 10_000.0)}
+
+
 def _form_field_problem(name: str, value) -> str:
     """What is wrong with one form value, in the form's own words and units ("" when nothing is); the
     ranges are those :class:`models.finance.FinanceAssumptions` accepts, in percent where the form is."""
@@ -761,12 +769,13 @@ def _form_field_problem(name: str, value) -> str:
         return f"{label}: enter a number."
     if not math.isfinite(number):
         return f"{label}: enter a finite number."
-    if name in ("discount_rate_pct", "escalation_energy_pct") and not -100.0 < number < 100.0:
-        return f"{label}: must lie between -100 and 100 %/yr (e.g. 8 for 8 %)."
-    if name == "horizon_yr" and not (number.is_integer() and 1 <= number <= 100):
-        return f"{label}: must be a whole number of years from 1 to 100."
-    if name in ("energy_price_level_pct", "capital_cost_level_pct") and not number > 0.0:
-        return f"{label}: must be above 0 % (100 % = as written)."
+    low, high = FORM_RANGES.get(name, (-math.inf, math.inf))
+    if name in ("discount_rate_pct", "escalation_energy_pct") and not low <= number <= high:
+        return f"{label}: must lie between {low:g} and {high:g} %/yr (e.g. 8 for 8 %)."
+    if name == "horizon_yr" and not (number.is_integer() and low <= number <= high):
+        return f"{label}: must be a whole number of years from {low:g} to {high:g}."
+    if name in ("energy_price_level_pct", "capital_cost_level_pct") and not low <= number <= high:
+        return f"{label}: must lie between {low:g} and {high:,g} % (100 % = as written)."
     return ""
 
 

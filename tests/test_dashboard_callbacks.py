@@ -87,7 +87,7 @@ def test_assumption_form_and_edits(engine):
     refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, None, None, None, None, None, None, None, None)
     assert refused is no_update and "horizon" in message.lower()
     refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, None, None, None, None, None, None, None, None)
-    assert refused is no_update and "Electricity price level: must be above 0 %" in message
+    assert refused is no_update and "Electricity price level: must lie between 1 and" in message
     assert inputs.reset(1, None) == values
 
 
@@ -130,3 +130,14 @@ def test_prove_runs_only_on_a_click(engine):
     assert plan.prove(1, None, None) == 1
     proved = services.view(None, None).result()
     assert proved.plan_status["settings"] == services.scenario.PRECISE_PLAN  # the proved result now serves the page
+
+
+def test_uncertainty_page_says_why_when_the_risk_cannot_run(engine, monkeypatch):
+    # e.g. a finance.toml whose discount rate leaves the +/-2-point draws at or below -100 %: a message, not an error
+    def refuse(self, with_risk=False, precise=False):
+        raise ValueError("a drawn discount rate is <= -1; narrow the discount-rate distribution")
+
+    monkeypatch.setattr(services.View, "result", refuse)
+    out = risk.update(True, None, None)
+    assert "cannot run under these assumptions" in str(out[4]) and out[2] == []
+    assert all(isinstance(f, go.Figure) for f in (out[0], out[1], out[6]))

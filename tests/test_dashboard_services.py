@@ -342,9 +342,12 @@ class TestEdits:
     @pytest.mark.parametrize("fields, words", [
         ({"horizon_yr": 0}, "Horizon: must be a whole number of years from 1 to 100"),
         ({"horizon_yr": 12.5}, "whole number"), ({"discount_rate_pct": None}, "Discount rate: enter a number"),
-        ({"discount_rate_pct": -150}, "between -100 and 100 %/yr"), ({"discount_rate_pct": 1e9}, "between -100 and 100"),
-        ({"energy_price_level_pct": 0}, "Electricity price level: must be above 0 %"),
-        ({"capital_cost_level_pct": -5}, "Capital cost level: must be above 0 %"),
+        # the form's ranges (services.FORM_RANGES, a design choice): the Monte Carlo's +/-2-point rate draws stay above -100 %
+        ({"discount_rate_pct": -150}, "between -20 and 100 %/yr"), ({"discount_rate_pct": 1e9}, "between -20 and 100"),
+        ({"discount_rate_pct": -99.9}, "between -20 and 100"), ({"escalation_energy_pct": 99}, "between -50 and 50"),
+        ({"energy_price_level_pct": 0}, "Electricity price level: must lie between 1 and 10,000 %"),
+        ({"energy_price_level_pct": 1e9}, "Electricity price level: must lie between 1 and 10,000 %"),
+        ({"capital_cost_level_pct": -5}, "Capital cost level: must lie between 1 and 10,000 %"),
         ({"escalation_energy_pct": float("nan")}, "finite"),
     ])
     def test_refused_edits_say_why_in_the_forms_words(self, engine, fields, words):

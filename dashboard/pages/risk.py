@@ -51,7 +51,13 @@ def columns(currency: str) -> list[dict]:
 def update(_ready, session, edits):
     """Tornado and Monte Carlo under the tab's assumptions (computed on this page only, then cached)."""
     view = services.view(session, edits)
-    result = view.result(with_risk=True)
+    try:
+        result = view.result(with_risk=True)
+    except ValueError as exc:  # e.g. a discount rate whose drawn values reach -100 %
+        empty = figures.message_figure("No uncertainty results under these assumptions.")
+        message = html.Span(f"The tornado and Monte Carlo cannot run under these assumptions: {exc}. Change them on "
+                            "the 'Case & assumptions' page.")
+        return empty, empty, [], columns(view.currency), message, view.notice, empty
     rows = services.risk_rows(result)
     a = result.assumptions
     summary = html.Span(f"{len(rows)} projects (the best option of each asset that needs capital) · "
