@@ -32,7 +32,6 @@ BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", 
                 "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
 #: Colours of speed remedies.
 REMEDY_COLOURS = {"none": "#5b6b7a", "trim_or_pulley": "#c27a3a", "speed_control": "#237a87"}
-REMEDY_NAMES = {"none": "no speed remedy", "trim_or_pulley": "impeller trim or pulley", "speed_control": "speed held by a drive"}
 
 
 def _light_template() -> go.layout.Template:
@@ -239,16 +238,17 @@ def speed_energy(options: pd.DataFrame) -> go.Figure:
     Parameters
     ----------
     options : pandas.DataFrame
-        label, speed_remedy, mean_speed_rpm [rpm], energy_kwh_per_yr [kWh/yr].
+        label, speed_remedy_id (the catalogue's code: none, trim_or_pulley, speed_control; colours the bars),
+        speed_remedy (its name as shown), mean_speed_rpm [rpm], energy_kwh_per_yr [kWh/yr].
     """
     if options is None or options.empty:
         return message_figure("No options for this asset.")
     fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.12,
                         subplot_titles=("Mean running speed", "Input energy"))
     seen = set()
-    for remedy, part in options.groupby("speed_remedy", sort=False):
+    for remedy, part in options.groupby("speed_remedy_id", sort=False):
         colour = REMEDY_COLOURS.get(remedy, MUTED)
-        name = REMEDY_NAMES.get(remedy, remedy)
+        name = str(part["speed_remedy"].iloc[0])
         fig.add_trace(go.Bar(x=part["label"], y=part["mean_speed_rpm"], name=name, legendgroup=remedy, marker_color=colour,
                              showlegend=remedy not in seen,
                              hovertemplate="%{x}<br>%{y:,.1f} rpm<extra></extra>"), row=1, col=1)

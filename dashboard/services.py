@@ -175,6 +175,11 @@ def _problem_rows(problems: list[Problem]) -> list[dict]:
     return rows
 
 
+def case_problem_rows(view_: "View") -> list[dict]:
+    """The problems (warnings) the view's case was read with, as rows of :data:`PROBLEM_COLUMNS`."""
+    return _problem_rows(list(view_.entry.case.problems or ()))
+
+
 def check_file_name(name: object) -> tuple[str | None, Problem | None]:
     """Return the safe base name of an uploaded file, or a problem saying why it is refused.
 
@@ -889,6 +894,7 @@ def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
         "label": res["label"].to_numpy(dtype=object),
         "technology": np.array([technology_name(t) for t in res["technology"]], dtype=object),
         "speed_remedy": np.array([speed_remedy_name(r) for r in remedy], dtype=object),
+        "speed_remedy_id": remedy,
         "capital": res["capital"].to_numpy(dtype=float),
         "saving_per_yr": (res["bill_saving_per_yr"] + res["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "npv": res["npv"].to_numpy(dtype=float),

@@ -141,3 +141,16 @@ def test_uncertainty_page_says_why_when_the_risk_cannot_run(engine, monkeypatch)
     out = risk.update(True, None, None)
     assert "cannot run under these assumptions" in str(out[4]) and out[2] == []
     assert all(isinstance(f, go.Figure) for f in (out[0], out[1], out[6]))
+
+
+def test_case_warnings_are_listed_when_the_inputs_page_opens(engine, monkeypatch):
+    # the problems grid shows the warnings the case was read with (not only an upload's)
+    from types import SimpleNamespace
+
+    from models.problems import warning
+
+    read_with = (warning("assets.csv", None, "static_head_frac", None, "static_head_frac is blank", "give it"),)
+    monkeypatch.setattr(services, "view", lambda session, edits: SimpleNamespace(
+        entry=SimpleNamespace(case=SimpleNamespace(problems=read_with))))
+    rows = inputs.listed(True, None)
+    assert len(rows) == 1 and rows[0]["rule"] == "static_head_frac is blank" and rows[0]["severity"] == "warning"

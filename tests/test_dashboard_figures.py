@@ -124,8 +124,11 @@ class TestAsset:
         assert "dashed leading" in titles(fig)["yaxis2"]
 
     def test_speed_energy_by_remedy(self):
-        options = pd.DataFrame({"label": ["Keep", "LSPM", "LSPM + trim", "Drive"],
-                                "speed_remedy": ["none", "none", "trim_or_pulley", "speed_control"],
+        from models.options import speed_remedy_name
+
+        remedy = ["none", "none", "trim_or_pulley", "speed_control"]
+        options = pd.DataFrame({"label": ["Keep", "LSPM", "LSPM + trim", "Drive"], "speed_remedy_id": remedy,
+                                "speed_remedy": [speed_remedy_name(r) for r in remedy],
                                 "mean_speed_rpm": [1470.0, 1500.0, 1470.0, 1300.0],
                                 "energy_kwh_per_yr": [100000.0, 104000.0, 95000.0, 70000.0]})
         fig = figures.speed_energy(options)
@@ -133,7 +136,10 @@ class TestAsset:
         got = {x: y for t in energy for x, y in zip(t.x, t.y)}
         assert got == pytest.approx({"Keep": 100.0, "LSPM": 104.0, "LSPM + trim": 95.0, "Drive": 70.0})  # MWh/yr
         assert {t.name for t in fig.data if t.showlegend is not False} == {
-            "no speed remedy", "impeller trim or pulley", "speed held by a drive"}
+            "none (the load follows the speed)", "impeller trim or pulley", "held by a drive"}
+        # each remedy its own colour (the catalogue's code picks it, not the name shown)
+        colours = {t.name: t.marker.color for t in fig.data if t.yaxis == "y"}
+        assert len(set(colours.values())) == 3
         t = titles(fig)
         assert t["yaxis"] == "Mean speed [rpm]" and t["yaxis2"] == "Energy [MWh/yr]"
 

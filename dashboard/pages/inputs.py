@@ -106,6 +106,13 @@ def upload(contents, names, keep, session):
     return new_session, outcome.message, outcome.problems, None
 
 
+@callback(Output(PROBLEMS, "rowData", allow_duplicate=True), Input(READY, "data"), State(ui.SESSION_STORE, "data"),
+          prevent_initial_call="initial_duplicate")
+def listed(_ready, session):
+    """The warnings the tab's case was read with, when the page opens (an upload lists its own)."""
+    return services.case_problem_rows(services.view(session, None))
+
+
 @callback(Output(TEMPLATE, "data"), Input(TEMPLATE_BUTTON, "n_clicks"), prevent_initial_call=True)
 def template(_clicks):
     """Send a blank case workbook."""
