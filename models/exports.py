@@ -168,6 +168,26 @@ def write_csv(path: Path, frame: pd.DataFrame) -> Path:
     return Path(path)
 
 
+#: Columns of the files whose table can be empty (no risk asked for, no rewind option, nothing to plan): an
+#: empty file still has its header row (docs/outputs.md).
+EMPTY_COLUMNS = {
+    "risk.csv": ["asset_id", "option_id", "npv_p10", "npv_p50", "npv_p90", "npv_mean", "npv_standard_error",
+                 "prob_npv_positive_frac", "payback_p10_yr", "payback_p50_yr", "payback_p90_yr",
+                 "prob_payback_within_target_frac"],
+    "tornado.csv": ["variable", "low_value", "high_value", "npv_at_low", "npv_at_high", "base_npv", "swing"],
+    "end_of_life.csv": ["asset_id", "age_yr", "new_option_id", "failure_probability_in_horizon_frac",
+                        "mean_residual_life_yr", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure",
+                        "best_strategy", "advantage_over_next"],
+    "abatement.csv": ["option_id", "asset_id", "abatement_cost_per_t", "co2_avoided_t_per_yr", "bar_start_t_per_yr",
+                      "cumulative_co2_avoided_t_per_yr", "npv"],
+    "fleet_rules.csv": ["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr", "decision", "rule"],
+    "plan.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
+    "plan_rank_order.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
+    "flags.csv": ["asset_id", "option_id", "flag"],
+    "lcc.csv": ["asset_id", "option_id", "component", "pv"],
+}
+
+
 def run_tables(result) -> dict[str, pd.DataFrame]:
     """Return every table of a run, by file name (see :data:`RUN_FILES`)."""
     results = result.results.copy()
@@ -188,12 +208,16 @@ def run_tables(result) -> dict[str, pd.DataFrame]:
         abatement.insert(1, "option_id", abatement["project_id"].str.split("/", n=1, expand=True)[1])
         abatement = abatement.drop(columns=["project_id"])
     flags = result.physics.operation.flags.copy()
-    return {
+    tables = {
         "results.csv": results, "cashflows.csv": result.cashflows, "bills.csv": bills, "plan.csv": result.plan,
         "plan_rank_order.csv": result.plan_greedy, "risk.csv": risk_rows, "tornado.csv": result.tornado,
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,
         "lcc.csv": result.lcc, "flags.csv": flags,
     }
+    for name, columns in EMPTY_COLUMNS.items():
+        if tables[name].empty and not len(tables[name].columns):
+            tables[name] = pd.DataFrame(columns=columns)
+    return tables
 
 
 def write_run(result, out_dir: str | Path) -> list[Path]:

@@ -103,3 +103,32 @@ class TestColumnByColumnWriter:
         for frame in (mixed, one_column, no_rows):
             assert _csv_bytes_by_columns(safe_frame(frame)) is None
             assert csv_bytes(frame) == self.pandas_bytes(frame)
+
+
+def test_files_without_rows_keep_their_header(tmp_path):
+    # a run without risk writes risk.csv and tornado.csv with their header row only (docs/outputs.md)
+    import pandas as pd
+
+    from drivecase.cli import main
+
+    from pathlib import Path
+
+    REPO = Path(__file__).resolve().parents[1]
+    assert main(["run", str(REPO / "data" / "demo"), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
+    for name in ("risk.csv", "tornado.csv"):
+        frame = pd.read_csv(tmp_path / "o" / name)
+        assert frame.empty and list(frame.columns)[:2] in (["asset_id", "option_id"], ["variable", "low_value"])
+
+
+def test_empty_headers_are_those_of_a_full_run(tmp_path):
+    # the header written for an empty table is the one a run with rows writes (no drift between the two)
+    from pathlib import Path
+
+    from drivecase.cli import main
+    from models.exports import EMPTY_COLUMNS
+
+    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+    assert main(["run", str(demo), "--out", str(tmp_path / "o"), "--quiet"]) == 0
+    for name, columns in EMPTY_COLUMNS.items():
+        header = (tmp_path / "o" / name).read_text(encoding="utf-8").splitlines()[0].split(",")
+        assert header == columns, name
