@@ -1022,6 +1022,12 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     if has_errors(read_problems):
         return None
     flat = data if isinstance(data, dict) else {}
+    if not flat and raw.kind in ("folder", "workbook"):
+        problems.append(warning(source, None, None, None,
+                                "no finance assumptions were found: the program's defaults are used (discount rate, "
+                                "horizon, escalation, grid emission factor; no capital budget)",
+                                "write your own in finance.toml (or the workbook's finance sheet); docs/finance.md "
+                                "lists the keys"))
     if "finance" in flat:
         nested = flat["finance"]
         if not isinstance(nested, dict):
@@ -1039,6 +1045,10 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
+    if assumptions is not None and assumptions.budget_per_yr and not any(b > 0 for b in assumptions.budget_per_yr):
+        problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr),
+                                "every plan year's capital budget is 0: the plan buys nothing",
+                                "give the budget of each plan year, or leave budget_per_yr out for no limit"))
     if assumptions is not None and assumptions.currency != settings.currency and _valid_currency(settings.currency):
         problems.append(error(source, None, "currency", assumptions.currency,
                               f"the finance currency differs from the case currency {settings.currency}",

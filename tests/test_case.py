@@ -393,3 +393,21 @@ class TestStaticHeadWarning:
         rows = [r + ["0.5" if r[0] == "P1" else ""] for r in copy.deepcopy(cb.ASSETS)]
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
         assert not [p for p in problems if p.column == "static_head_frac"]
+
+
+class TestFinanceWarnings:
+    def test_case_without_finance_assumptions_says_defaults_are_used(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        assert not (folder / "finance.toml").exists()
+        _, problems = load_case(folder)
+        hit = _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
+        assert "no capital budget" in hit.rule
+
+    def test_a_budget_of_zero_every_year_is_warned(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "finance.toml").write_text('currency = "EUR"\nbudget_per_yr = [0, 0, 0]\n', encoding="utf-8")
+        case, problems = load_case(folder)
+        assert case is not None
+        hit = _find(problems, file="finance.toml", column="budget_per_yr", severity="warning", text="plan buys nothing")
+        assert hit.row == 2  # the line where budget_per_yr is written
+        assert not [p for p in problems if "no finance assumptions" in p.rule]
