@@ -269,3 +269,4 @@ def test_run_without_risk_and_an_empty_plan(small, tmp_path):
     html = text(tmp_path / REPORT_NAME)
     assert "Sensitivity: not computed for this run" in html
     assert '<div class="value">0 EUR</div>' in html  # no capital asked for
+    assert "No project is recommended" in html and "pay back not within" not in html

@@ -578,13 +578,20 @@ def money(value: float, currency: str) -> str:
     return f"{value:,.0f} {currency}"
 
 
-def years_text(value: float, horizon_yr: int) -> str:
-    """Format a payback [yr]; ``inf`` reads as not within the horizon."""
+def years_text(value: float, horizon_yr: int, within: bool = False) -> str:
+    """Format a payback [yr]; ``inf`` reads as not within the horizon. With ``within`` the text follows
+    "pays back": "in 2.5 yr" or "not within 15 yr".
+
+    Examples
+    --------
+    >>> years_text(2.5, 15), years_text(float("inf"), 15), years_text(2.5, 15, within=True)
+    ('2.5 yr', 'not within 15 yr', 'in 2.5 yr')
+    """
     if value is None or np.isnan(value):
         return "-"
     if not np.isfinite(value):
         return f"not within {horizon_yr} yr"
-    return f"{value:.1f} yr"
+    return f"in {value:.1f} yr" if within else f"{value:.1f} yr"
 
 
 def rate_text(value: float, status: str = "unique") -> str:

@@ -89,13 +89,20 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"at {a.grid_co2_kg_per_kwh:g} kg/kWh"},
     ]
     keep_count = int((rec["option_id"] == rec["keep_option_id"]).sum())
-    summary = (f"{counted(h.n_projects, 'project')} on {counted(len(scope.asset_ids), 'asset')} "
-               f"{'is' if h.n_projects == 1 else 'are'} recommended for "
-               f"{content.money(h.capital, cur)} of capital. They save about {content.money(h.yearly_saving, cur)} a year "
-               f"({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), pay back in {content.years_text(h.payback_yr, horizon)} and add "
-               f"{content.money(h.npv, cur)} of value at a {a.discount_rate_frac:.1%} discount rate.")
+    if h.n_projects == 0:
+        summary = (f"No project is recommended on {counted(len(scope.asset_ids), 'asset')}: the plan buys nothing under "
+                   "the budget, or no option beats keeping today's motor.")
+    else:
+        one = h.n_projects == 1
+        summary = (f"{counted(h.n_projects, 'project')} on {counted(len(scope.asset_ids), 'asset')} "
+                   f"{'is' if one else 'are'} recommended for "
+                   f"{content.money(h.capital, cur)} of capital. {'It saves' if one else 'They save'} about "
+                   f"{content.money(h.yearly_saving, cur)} a year ({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), "
+                   f"{'pays' if one else 'pay'} back {content.years_text(h.payback_yr, horizon, within=True)} and "
+                   f"{'adds' if one else 'add'} {content.money(h.npv, cur)} of value at a {a.discount_rate_frac:.1%} "
+                   "discount rate.")
     if keep_count:
-        summary += f" For {keep_count} asset(s) no option beats keeping today's motor."
+        summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
