@@ -132,6 +132,8 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
 
     url = url_for(host, port)
     print(f"Dashboard on {url} (case '{entry.name}'; press Ctrl+C to stop)")
+    print("Planning estimates only, not a design. Electrical work must be done by qualified persons under local "
+          "codes and the utility's rules; confirm ratings with the manufacturers.")
     if open_browser and can_open_browser():
         _open_browser_later(url if host.strip() not in ("0.0.0.0", "::") else url_for("127.0.0.1", port))
     if not debug:  # one line per request is noise for a local tool; errors still show

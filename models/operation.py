@@ -12,6 +12,7 @@ a duty table or annual hours are evaluated per load state and reach the meter as
 from __future__ import annotations
 
 import contextlib
+import functools
 
 import os
 import tempfile
@@ -1785,14 +1786,36 @@ def options_with_baseline(options: pd.DataFrame) -> pd.DataFrame:
         order = [first] + [i for i in range(len(options)) if i != first]
         return options.iloc[order].reset_index(drop=True)
     keep = {c: np.nan for c in options.columns}
-    keep.update(option_id="keep", technology="existing", label="Keep as is", speed_remedy="none", applications="",
-                min_rated_p_kw=0.0, max_rated_p_kw=1e6, life_yr=15.0, illustrative=True)
     for c in options.columns:
-        if c.endswith(("_coef", "_frac", "_per_kvar", "_per_kw_yr")):
+        if c.endswith(("_coef", "_frac", "_per_kvar", "_per_kw_yr")) or c == "midlife_year":
             keep[c] = 0.0
         if c.endswith("_exp"):
             keep[c] = 1.0
+    # the shipped catalogue's own keep row where it has the column (today's motor's maintenance, life)
+    for c, value in _default_keep_row().items():
+        if c in keep and value is not None:
+            keep[c] = value if pd.api.types.is_object_dtype(options[c].dtype) or isinstance(value, str) else float(value)
+    keep.update(option_id="keep", technology="existing", label="Keep as is", speed_remedy="none", applications="",
+                min_rated_p_kw=0.0, max_rated_p_kw=1e6, illustrative=True)
     return pd.concat([pd.DataFrame([keep]), options], ignore_index=True)
+
+
+@functools.lru_cache(maxsize=1)
+def _default_keep_row() -> dict:
+    """The numeric values of the shipped options catalogue's keep row (data/defaults/options.csv), by column."""
+    from models import io
+
+    raw, _ = io.read_default_options()
+    frame = raw.frame
+    rows = frame[frame["technology"].astype(str) == "existing"]
+    if rows.empty:
+        return {}
+    out = {}
+    for c, value in rows.iloc[0].items():
+        number = pd.to_numeric(pd.Series([value]), errors="coerce").iloc[0]
+        if pd.notna(number):
+            out[str(c)] = float(number)
+    return out
 
 
 def _load_groups(arr_all, existing_all, interval_rows: np.ndarray, values, is_input, states: LoadStates, n_t: int,

@@ -93,8 +93,9 @@ def check_options(checker) -> pd.DataFrame:
         checker.warn(i, "capacitor_cost_per_kvar", frame["capacitor_cost_per_kvar"].iloc[i],
                      "a capacitor option with no cost per kVAr")
     if len(frame) and "existing" not in set(tech):
-        checker.warn(None, "technology", None, "the catalogue has no 'existing' (keep as is) option",
-                     "the baseline is always today's motor; add a keep row to see it in tables")
+        checker.warn(None, "technology", None, "the catalogue has no 'existing' (keep as is) option: today's motor "
+                     "takes the shipped catalogue's keep row (its maintenance per kW and year, its life)",
+                     "add a keep row to set today's motor's maintenance and life yourself")
     return frame
 
 

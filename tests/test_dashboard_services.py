@@ -545,6 +545,7 @@ class TestServer:
             assert server.serve(small_case_dir, port=port, open_browser=False) == 1
         captured = capsys.readouterr()
         assert f"Dashboard on http://127.0.0.1:{port}" in captured.out
+        assert "qualified persons" in captured.out  # the caution every command prints
         assert "WARNING" not in captured.out  # loopback by default: no network warning
         assert "cannot listen" in captured.err
 

@@ -374,3 +374,20 @@ def test_withdrawn_text_counts_in_words():
     assert two.startswith("2 reactive projects left out of the plan: beside the rest of the plan they would cut their site's")
     assert "2 other reactive options at the same sites, whose value the plan has taken, were set aside" in two
     assert "(s)" not in one + two
+
+
+def test_a_catalogue_without_keep_row_runs_as_with_the_shipped_one(tmp_path, demo_case):
+    # today's motor then takes the shipped catalogue's keep row: the same results as the shipped catalogue
+    import shutil
+
+    from models.io import DEFAULT_OPTIONS_PATH
+
+    without = Path(shutil.copytree(REPO / "data" / "demo", tmp_path / "demo"))
+    lines = DEFAULT_OPTIONS_PATH.read_text(encoding="utf-8").splitlines()
+    (without / "options.csv").write_text("\n".join(l for l in lines if not l.startswith("keep,")) + "\n", encoding="utf-8")
+    case_b, problems = load_case(without)
+    assert case_b is not None and any("no 'existing'" in p.rule for p in problems)
+    a = scenario.run(demo_case, demo_case.finance, with_risk=False).results
+    b = scenario.run(case_b, case_b.finance, with_risk=False).results
+    cols = ["asset_id", "option_id", "npv", "saving_maintenance_per_yr", "bill_saving_per_yr"]
+    pd.testing.assert_frame_equal(a[cols].reset_index(drop=True), b[cols].reset_index(drop=True), check_exact=False, rtol=1e-12)
