@@ -30,7 +30,10 @@ def _print_problems(problems, limit: int = 200) -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
     print(f"\nProblems: {counted(len(errors), 'error')}, {counted(len(warnings), 'warning')}")
-    for problem in (errors + warnings)[:limit]:
+    # problems of a whole file or column first (an unknown heading often explains many row errors), then rows
+    ordered = ([p for p in errors + warnings if p.row is None] + [p for p in errors if p.row is not None]
+               + [p for p in warnings if p.row is not None])
+    for problem in ordered[:limit]:
         print(f"  {problem}")
     if len(problems) > limit:
         print(f"  ... and {len(problems) - limit} more")

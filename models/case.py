@@ -239,8 +239,12 @@ class _TableChecker:
         known = set(self.schema.index)
         unknown = [c for c in source.columns if c not in known]
         for column in unknown:
+            missing = [c for c in self.schema.index if c not in set(source.columns)]
+            close = difflib.get_close_matches(io.normalise_header(column), [io.normalise_header(c) for c in missing],
+                                              n=1, cutoff=0.75)
+            guess = next((c for c in missing if io.normalise_header(c) == close[0]), None) if close else None
             self.warn(None, column, None, f"unknown column '{column}' was ignored",
-                      f"known columns: {', '.join(self.schema.index)}")
+                      (f"did you mean '{guess}'? " if guess else "") + f"known columns: {', '.join(self.schema.index)}")
         for name, spec in self.schema.iterrows():
             if name in source.columns:
                 self.frame[name] = self._typed(name, spec, source[name].tolist())
@@ -787,9 +791,20 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     both_missing = np.isnan(kw) & np.isnan(hp)
     raw_kw = checker.raw.frame["rated_p_kw"] if "rated_p_kw" in checker.raw.frame else pd.Series([None] * len(a))
     raw_hp = checker.raw.frame["rated_p_hp"] if "rated_p_hp" in checker.raw.frame else pd.Series([None] * len(a))
-    for i in np.flatnonzero(both_missing):
-        if _blank(raw_kw.iloc[i]) and _blank(raw_hp.iloc[i]):
-            checker.err(i, "rated_p_kw", None, "rated power is required (rated_p_kw or rated_p_hp)")
+    if len(a) > 1 and all(_blank(v) for v in raw_kw) and all(_blank(v) for v in raw_hp):
+        # no rating in the whole file (no column, or empty ones): one message for the file, not one per row
+        unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
+        checker.err(None, "rated_p_kw", None, "no rated power column (rated_p_kw or rated_p_hp): every motor needs its rating",
+                    _missing_column_hint("rated_p_kw", unknown))
+    else:
+        hint = ""
+        if "rated_p_kw" not in checker.raw.frame:  # perhaps under another heading
+            unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
+            hint = _missing_column_hint("rated_p_kw", unknown)
+            hint = hint if "was not recognised" in hint else ""
+        for i in np.flatnonzero(both_missing):
+            if _blank(raw_kw.iloc[i]) and _blank(raw_hp.iloc[i]):
+                checker.err(i, "rated_p_kw", None, "rated power is required (rated_p_kw or rated_p_hp)", hint)
     conflict = ~np.isnan(kw) & ~np.isnan(hp) & (np.abs(kw - hp * HP_TO_KW) > 0.06 * np.maximum(kw, 1e-9))
     for i in np.flatnonzero(conflict):
         checker.err(i, "rated_p_hp", hp[i], f"rated_p_kw ({kw[i]:g}) and rated_p_hp ({hp[i]:g}) disagree by more than 6 %",

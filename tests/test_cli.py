@@ -217,3 +217,24 @@ def test_scheduler_without_dask_and_empty_assets_are_refused(tmp_path, capsys):
     assert main(["report", str(DEMO), "--out", str(tmp_path / "p"), "--assets", " , "]) == 2
     assert "--assets names no asset" in capsys.readouterr().err
     assert not (tmp_path / "o").exists() and not (tmp_path / "p").exists()
+
+
+def test_misspelt_heading_is_named_first_with_a_guess(tmp_path, capsys):
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    text = (case / "assets.csv").read_text(encoding="utf-8")
+    (case / "assets.csv").write_text(text.replace("rated_p_kw", "rated_pkw", 1), encoding="utf-8")
+    assert main(["check", str(case)]) == 1
+    lines = [l for l in capsys.readouterr().out.splitlines() if l.startswith("  ")]
+    assert "unknown column 'rated_pkw'" in lines[0] and "did you mean 'rated_p_kw'?" in lines[0]
+    assert "if it is rated_p_kw, head it 'rated_p_kw'" in lines[1]
+
+
+def test_whole_file_without_ratings_is_one_message(tmp_path, capsys):
+    import casebuilder as cb
+
+    rows = [r[:4] + [""] + r[5:] for r in cb.ASSETS]  # every rated_p_kw blank, no rated_p_hp column
+    folder = cb.write_case(tmp_path / "c", assets=rows)
+    assert main(["check", str(folder)]) == 1
+    out = capsys.readouterr().out
+    assert out.count("rated power") == 1 and "no rated power column" in out
