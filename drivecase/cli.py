@@ -191,6 +191,13 @@ def cmd_bill(args: argparse.Namespace) -> int:
         print("  Leading kVAr is worth something only while it lowers a reactive charge of the tariff (kVArh beyond a "
               "power-factor threshold, or kVA demand at the peak intervals); past that point more is worth nothing, "
               "or costs where leading kVArh is charged. The capacitor bank is the yardstick.")
+        site_of = dict(zip(case.assets["asset_id"], case.assets["site_id"]))
+        stepped = case.capacitors[(case.capacitors["site_id"] == site_of.get(args.reactive_sweep))
+                                  & (case.capacitors["control"] == "stepped")] if len(case.capacitors) else case.capacitors
+        if len(stepped):
+            print(f"  The site's stepped capacitor bank ({', '.join(map(str, stepped['bank_id']))}) switches steps out as "
+                  "the supplied kVAr grows, so the saving can dip between points: read the curve's trend, and size "
+                  "equipment on the points either side of a dip, not on the dip.")
     print(f"\n{CAUTION}")
     return 0
 
