@@ -54,7 +54,7 @@ class Problem:
         return ", ".join(parts)
 
     def __str__(self) -> str:
-        value = "" if self.value is None or self.value == "" else f" (value: {self.value!r})"
+        value = "" if self.value is None or self.value == "" else f" (value: {shown_value(self.value)})"
         hint = f" Hint: {self.hint}" if self.hint else ""
         return f"{self.severity.upper()} {self.location()}: {self.rule}{value}.{hint}"
 
@@ -81,6 +81,23 @@ def warning(file: str, row: int | None, column: str | None, value: object, rule:
     return Problem("warning", file, row, column, value, rule, hint)
 
 
+def shown_value(value: object) -> str:
+    """A value as a message shows it: text quoted, whole numbers without '.0', lists in brackets.
+
+    Examples
+    --------
+    >>> shown_value(5.0), shown_value(2031.0), shown_value(0.08), shown_value("-250"), shown_value((-5.0,))
+    ('5', '2031', '0.08', "'-250'", '[-5]')
+    """
+    if isinstance(value, bool):
+        return repr(value)
+    if isinstance(value, float):
+        return str(int(value)) if value.is_integer() and abs(value) < 1e15 else f"{value:g}"
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(shown_value(v) for v in value) + "]"
+    return repr(value)
+
+
 @dataclass
 class CaseError(ValueError):
     """Raised in strict mode when input has errors; carries every problem found."""
@@ -92,7 +109,7 @@ class CaseError(ValueError):
 
     def __str__(self) -> str:
         errors = [p for p in self.problems if p.severity == "error"]
-        head = f"{len(errors)} error(s) in the input"
+        head = f"{len(errors)} {'error' if len(errors) == 1 else 'errors'} in the input"
         return head + ("\n" + "\n".join(str(p) for p in errors) if errors else "")
 
 
