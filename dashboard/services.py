@@ -717,7 +717,9 @@ def parse_budget(values: list) -> tuple[list[float] | None, str]:
             number = float(text)
         except (TypeError, ValueError):
             return None, f"Year {k}: '{v}' is not a number (write it like 250000 or 250,000)."
-        if not np.isfinite(number) or number < 0:
+        if not np.isfinite(number):
+            return None, f"Year {k}: the budget must be a finite amount (leave the year blank for no limit)."
+        if number < 0:
             return None, f"Year {k}: the budget must be zero or more."
         cleaned.append(number)
     while cleaned and cleaned[-1] is None:
@@ -1090,7 +1092,8 @@ def _plan_proof_text(result) -> str:
     kind, gap = status.get("status"), status.get("gap_frac", float("nan"))
     settings = status.get("settings")
     if kind in ("unconstrained", "empty"):
-        return str(status.get("message", "")).capitalize() + "."
+        text = str(status.get("message", ""))
+        return text[:1].upper() + text[1:] + "."
     if kind == "failed":
         return f"The exact plan could not be solved ({status.get('message', '')}); the rank-order plan stands."
     if gap != gap:  # NaN: no bound known

@@ -37,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from models.problems import Problem, error, has_errors, warning
+from models.wording import counted
 
 PACKAGE_DIR = Path(__file__).resolve().parent
 DATA_DIR = PACKAGE_DIR.parent / "data"
@@ -1235,7 +1236,7 @@ class SavedCase:
             shown = "; ".join(f"{k} {_shown(old)} -> {_shown(new)}" for k, old, new in self.changes)
             kept = (f"The previous version is kept as {self.previous.relative_to(self.written.parent).as_posix()}."
                     if self.previous is not None else f"There was no {name} before; it was created.")
-            return f"Saved {len(self.changes)} value(s) into {name} ({shown}). {kept}"
+            return f"Saved {counted(len(self.changes), 'value')} into {name} ({shown}). {kept}"
         first = self.problems[0] if self.problems else None
         why = f"{first.location()}: {first.rule}" + (f". {first.hint}" if first.hint else "") if first else "unknown reason"
         tail = " The case was put back as it was." if self.outcome == "failed" else " Nothing was written."

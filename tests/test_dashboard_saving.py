@@ -239,13 +239,13 @@ class TestSaveCallback:
     def test_a_typed_value_not_yet_applied_is_saved(self, engine, case_dir):
         assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 4  # the page mounting is no click
         session_out, edits_out, status, download = inputs.save(1, *form(discount=6.0))
-        assert status.startswith("Saved 1 value(s) into finance.toml (discount_rate_frac 0.08 -> 0.06)")
+        assert status.startswith("Saved 1 value into finance.toml (discount_rate_frac 0.08 -> 0.06)")
         assert "previous version is kept as .versions/finance-" in status
         assert finance_line(case_dir / "finance.toml", "discount_rate_frac") == "discount_rate_frac = 0.06"
         assert session_out is no_update and edits_out is None and download is no_update
 
     def test_a_form_error_saves_nothing(self, engine, case_dir):
-        assert inputs.save(1, *form(horizon=0))[2].startswith("Not saved: Not applied: Horizon: must be a whole number")
+        assert inputs.save(1, *form(horizon=0))[2].startswith("Not saved: Horizon: must be a whole number")
         assert inputs.save(1, *form(budget=("250000", "", "1")))[2].startswith("Not saved: Year 1 is blank")
         assert not (case_dir / ".versions").exists()
 

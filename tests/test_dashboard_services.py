@@ -379,7 +379,7 @@ class TestEdits:
         (["abc"], None, "not a number"),
         (["250,000", "1 500.5", ""], [250000.0, 1500.5], ""),   # thousands separators as people type them
         (["1,5"], None, "not a number"),                        # a decimal comma is ambiguous: refused
-        (["inf"], None, "zero or more"),
+        (["inf"], None, "a finite amount"),
         ([0, "", 10], None, "Year 1"),
     ])
     def test_parse_budget(self, values, budget, words):

@@ -205,7 +205,7 @@ def save(clicks, *form):
         return no_update, no_update, no_update, no_update
     edits, changed, problem = _parse_form(*form)
     if problem:
-        return no_update, no_update, f"Not saved: {problem}", no_update
+        return no_update, no_update, "Not saved: " + problem.removeprefix("Not applied: "), no_update
     outcome = services.save_tab_assumptions(form[-1], edits if changed else form[-2])
     download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
                 else no_update)

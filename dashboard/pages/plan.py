@@ -35,7 +35,8 @@ def layout(**_query):
                                        "exactly, beside the simpler rule of funding the best ratio of NPV to capital first."),
         ui.notice(NOTICE),
         html.Div([html.H3("Capital budget per plan year"),
-                  html.P("Leave every year blank for no limit (then each asset gets its best option in year 0). "
+                  html.P("Leave every year blank for no limit (then each asset gets its best option in year 0, except reactive "
+                         "projects whose value the rest of the plan already takes). "
                          "Press Enter or leave the field to apply.", className="page-intro"),
                   ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
                   html.Div(id=BUDGET_MESSAGE, className="form-message", role="alert")], className="panel form"),

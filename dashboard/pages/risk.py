@@ -41,7 +41,7 @@ def columns(currency: str) -> list[dict]:
             ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
             ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
             ui.number_col("prob_npv_positive_frac", "P(NPV > 0) [-]", 2),
-            ui.number_col("payback_p50_yr", "Payback P50 [yr]", 1),
+            ui.number_col("payback_p50_yr", "Simple payback P50 [yr]", 1),
             ui.number_col("prob_payback_within_target_frac", "P(payback <= 3 yr) [-]", 2)]
 
 

@@ -649,8 +649,8 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
         mc = mc[mc["project_id"].isin(list(keys))]
     cols = [("project_id", "Project", None), ("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
             ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
-            ("payback_p10_yr", "Payback P10 [yr]", f.years), ("payback_p50_yr", "Payback P50 [yr]", f.years),
-            ("payback_p90_yr", "Payback P90 [yr]", f.years),
+            ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
+            ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
             ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)]
     row = _table(ws, row + 1, mc, cols)
     put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD

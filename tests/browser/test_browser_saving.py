@@ -42,7 +42,7 @@ def test_save_a_typed_discount_rate_into_the_case(sys_browser, saving_server, ar
         page.fill("#inputs-discount-rate", "6.5")  # typed, not applied with Enter: the click must save it
         page.click("#inputs-save")
         status = page.locator("#inputs-save-status")
-        status.filter(has_text="Saved 1 value(s) into finance.toml").wait_for()
+        status.filter(has_text="Saved 1 value into finance.toml").wait_for()
         text = status.inner_text()
         assert "discount_rate_frac 0.08 -> 0.065" in text
         assert "The previous version is kept as .versions/finance-" in text
