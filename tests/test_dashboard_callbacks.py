@@ -154,3 +154,13 @@ def test_case_warnings_are_listed_when_the_inputs_page_opens(engine, monkeypatch
         entry=SimpleNamespace(case=SimpleNamespace(problems=read_with))))
     rows = inputs.listed(True, None)
     assert len(rows) == 1 and rows[0]["rule"] == "static_head_frac is blank" and rows[0]["severity"] == "warning"
+
+
+def test_an_unknown_asset_in_the_address_is_said(engine):
+    # /asset?id=NOPE: the first asset is shown, and the page says the requested one does not exist
+    first = services.asset_choices(services.view(None, None))[0]["value"]
+    options, value = asset.choose("NOPE", None)
+    assert value == first
+    out = asset.update(value, None, None, "NOPE")
+    assert f"The case has no asset 'NOPE'; showing {first}." in str(out[-1])
+    assert "has no asset" not in str(asset.update(value, None, None, first)[-1])

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import dash
-from dash import Input, Output, callback, dcc, html
+from dash import Input, Output, State, callback, dcc, html
 
 from dashboard import components as ui
 from dashboard import figures, services
@@ -77,15 +77,18 @@ def option_columns(currency: str) -> list[dict]:
     Output(SUMMARY, "children"), Output(OPTIONS, "rowData"), Output(OPTIONS, "columnDefs"), Output(LCC, "figure"),
     Output(CASH, "figure"), Output(PERFORMANCE, "figure"), Output(SPEED, "figure"), Output(DEFAULTS, "rowData"),
     Output(DEFAULTS, "columnDefs"), Output(FLAGS, "rowData"), Output(FLAGS, "columnDefs"), Output(NOTICE, "children"),
-    Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
+    Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), State(REQUEST, "data"),
 )
-def update(asset_id, session, edits):
+def update(asset_id, session, edits, requested=None):
     """Everything about the chosen asset under the tab's assumptions."""
     view = services.view(session, edits)
     ids = set(view.case.assets["asset_id"])
+    notice = view.notice
+    if requested and str(requested) not in ids:  # an address naming an asset the case does not have
+        notice = " ".join(x for x in (notice, f"The case has no asset '{requested}'; showing {asset_id or 'none'}.") if x)
     if asset_id not in ids:
         empty = figures.message_figure("Choose an asset.")
-        return ("", [], [], empty, empty, empty, empty, [], [], [], [], view.notice)
+        return ("", [], [], empty, empty, empty, empty, [], [], [], [], notice)
     result = view.result()
     asset = view.case.assets.set_index("asset_id").loc[asset_id]
     options = services.asset_options(view, result, asset_id)
@@ -106,4 +109,4 @@ def update(asset_id, session, edits):
              ui.text_col("basis", "Basis", flex=2, wrapText=True, autoHeight=True)],
             flags.to_dict("records"),
             [ui.text_col("option", "Option"), ui.text_col("flag", "Caution", flex=3, wrapText=True, autoHeight=True)],
-            view.notice)
+            notice)
