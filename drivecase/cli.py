@@ -330,13 +330,14 @@ def _print_run_summary(case, result) -> None:
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")
     top = best.sort_values("npv", ascending=False).head(10).copy()
-    planned = set(zip(plan["asset_id"], plan["option_id"]))
-    top["in_plan"] = ["yes" if key in planned else "no" for key in zip(top["asset_id"], top["option_id"])]
+    takes = dict(zip(plan["asset_id"], plan["option_id"]))
+    top["in_plan"] = ["this option" if takes.get(a) == o else (takes.get(a) or "nothing")
+                      for a, o in zip(top["asset_id"], top["option_id"])]
     for column in ("capital", "bill_saving_per_yr", "npv"):  # whole currency units
         top[column] = [f"{v:,.0f}" for v in top[column]]
     table = top[["asset_id", "option_id", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
         columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"saving [{currency}/yr]",
-                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]", "in_plan": "in the plan"})
+                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]", "in_plan": "the plan takes"})
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
                         "option or none)")
 

@@ -190,6 +190,14 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     assert not mismatch and not errors
     results = pd.read_csv(tmp_path / "a" / "results.csv")
     assert {"npv", "irr_frac", "simple_payback_yr", "life_cycle_cost", "co2_avoided_t_per_yr"} <= set(results.columns)
+    # the best-options table says what the plan takes for each asset (this option, another, or nothing)
+    plan = pd.read_csv(tmp_path / "a" / "plan.csv")
+    takes = dict(zip(plan["asset_id"], plan["option_id"]))
+    assert "the plan takes" in out
+    first = next(l for l in out.splitlines() if l.strip().startswith(("HRW-", "KGQ-")))
+    asset_id, option_id = first.split()[:2]
+    expected = "this option" if takes.get(asset_id) == option_id else takes.get(asset_id, "nothing")
+    assert first.rstrip().endswith(expected)
     # the summary's plan saving on the bills is today's bills less the plan's, read back from bills.csv
     bills = pd.read_csv(tmp_path / "a" / "bills.csv")
     by_scenario = bills.groupby("scenario")["amount"].sum()
