@@ -371,3 +371,13 @@ def test_defaulted_inputs_are_numbers_to_six_digits():
     assert default_value("0.8962932127617428") == 0.896293  # hand: 6 significant digits
     assert default_value(974.9238910196385) == 974.924
     assert default_value("induction") == "induction" and default_value(None) == ""
+
+
+def test_plan_and_risk_sheets_speak_in_words(plan_pack):
+    # the approver reads labels: no engine keys in the comparison, the end of life or the sensitivity rows
+    book = load_workbook(plan_pack)
+    words = " ".join(str(c.value) for name in ("Plan", "End of life", "Risk") if name in book.sheetnames
+                     for r in book[name].iter_rows() for c in r if c.value is not None)
+    for key in ("npv_exact", "projects_greedy", "shortfall_frac", "replace_now", "energy_price_mult", "min_rated_p_kw"):
+        assert key not in words, key
+    assert "Projects in the exact plan" in words

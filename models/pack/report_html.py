@@ -193,6 +193,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         elif isinstance(value, tuple):
             value = ", ".join(f"{v:,.0f}" for v in value) or "no limit"
         value, unit = content.shown_as_percent(value, item["unit"])
+        if isinstance(value, str):  # replace_now -> "replace now"
+            value = value.replace("_", " ")
         finance_rows.append(row([cell(item["label"]), cell(value), cell(unit), cell(item["meaning"]),
                                  cell("same as the program default" if item["program_default"] else "differs from the program default",
                                       "small")]))

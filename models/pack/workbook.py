@@ -542,9 +542,16 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.whole if c in (4, 7) else f.money)
     row += 2
     put_text(ws, row, 1, "Exact vs rank-order (engine)").font = _BOLD
+    labels = {"npv_exact": (f"Exact plan NPV [{f.currency}]", f.money),
+              "npv_greedy": (f"Rank-order plan NPV [{f.currency}]", f.money),
+              "shortfall": (f"Rank-order plan's shortfall [{f.currency}]", f.money),
+              "shortfall_frac": ("Rank-order plan's shortfall [share of the exact NPV]", f.frac),
+              "projects_exact": ("Projects in the exact plan", f.whole),
+              "projects_greedy": ("Projects in the rank-order plan", f.whole)}
     for k, (key, value) in enumerate(result.plan_comparison.items()):
-        put_text(ws, row + 1 + k, 1, str(key))
-        put(ws, row + 1 + k, 2, float(value), f.frac if str(key).endswith("_frac") else f.money)
+        label, number_format = labels.get(str(key), (str(key), f.money))
+        put_text(ws, row + 1 + k, 1, label)
+        put(ws, row + 1 + k, 2, float(value), number_format)
     ws.freeze_panes = "A3"
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
 
@@ -620,6 +627,11 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
         row += 2
     else:
         frame = eol[eol["asset_id"].isin(list(scope.asset_ids))]
+        option_labels = dict(zip(result.results["option_id"], result.results["label"]))
+        strategy = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
+                    "rewind_at_failure": "rewind at failure"}
+        frame = frame.assign(new_option_id=frame["new_option_id"].map(lambda o: option_labels.get(o, o)),
+                             best_strategy=frame["best_strategy"].map(lambda b: strategy.get(b, b)))
         cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None),
                 ("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
                 ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
@@ -630,7 +642,9 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
         row = _table(ws, row, frame, cols)
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
-    _table(ws, row + 1, rules, [(c, c, None) for c in rules.columns])
+    headers = {"min_rated_p_kw": "From rating [kW]", "max_rated_p_kw": "To rating [kW]",
+               "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
+    _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
     _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18})
 
 
@@ -641,7 +655,13 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
     cols = [("variable", "Variable", None), ("low_value", "Low", f.number), ("high_value", "High", f.number),
             ("npv_at_low", "NPV at low", f.money), ("npv_at_high", "NPV at high", f.money),
             ("base_npv", "Base NPV", f.money), ("swing", "Swing", f.money)]
-    row = _table(ws, row + 1, result.tornado, cols)
+    tornado = result.tornado
+    if not tornado.empty:
+        from models.risk import tornado_label
+
+        tornado = tornado.assign(variable=[tornado_label(v, lo, hi) for v, lo, hi in
+                                           zip(tornado["variable"], tornado["low_value"], tornado["high_value"])])
+    row = _table(ws, row + 1, tornado, cols)
     put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
     mc = result.risk
     if not mc.empty and "project_id" in mc:
