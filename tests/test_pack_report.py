@@ -270,3 +270,11 @@ def test_run_without_risk_and_an_empty_plan(small, tmp_path):
     assert "Sensitivity: not computed for this run" in html
     assert '<div class="value">0 EUR</div>' in html  # no capital asked for
     assert "No project is recommended" in html and "pay back not within" not in html
+
+
+def test_a_rounded_zero_reads_zero():
+    # -0.04 t at one decimal reads 0.0, not -0.0; a true negative keeps its sign and colour
+    from models.pack.report_html import num
+
+    assert num(-0.04, "{:,.1f}") == {"text": "0.0", "cls": "num"}
+    assert num(-1.5, "{:,.1f}") == {"text": "-1.5", "cls": "num neg"}

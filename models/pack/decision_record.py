@@ -75,7 +75,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Speed control", "speed_control", _value(x["speed_control"])),
         ("Criticality", "criticality", _value(x["criticality"])),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
-        ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %") + (f" ({len(defaulted)} defaulted)" if len(defaulted) else "")),
+        ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %")
+         + (f" (defaulted: {', '.join(dict.fromkeys(defaulted['column']))})" if len(defaulted) else "")),
     ]
     nameplate = [(label, value, column in filled) for label, column, value in plate]
     rec_key = f"{asset_id}/{rec['option_id']}"
@@ -151,7 +152,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         "option_headers": ["Option", "Technology", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
                            "Simple payback [yr]", "CO2 [t/yr]"],
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
-        "eol_headers": ["Strategy", "Expected present cost"], "eol_rows": eol_rows, "eol_numeric": (1,),
+        "eol_headers": ["Strategy", f"Expected present cost [{cur}]"], "eol_rows": eol_rows, "eol_numeric": (1,),
         "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),
         "reasons": reasons, "cautions": list(dict.fromkeys(cautions)),
     }

@@ -39,7 +39,10 @@ def num(value: float, fmt: str = "{:,.0f}", suffix: str = "", signed: bool = Tru
     """A right-aligned numeric cell; missing values show a dash, negatives in red unless ``signed`` is False."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return cell("-", "num na")
-    return cell(fmt.format(value) + suffix, "num neg" if (signed and value < 0) else "num")
+    text = fmt.format(value)
+    if text.startswith("-") and not any(ch in "123456789" for ch in text):  # a rounded zero reads 0, not -0
+        text, value = text[1:], 0.0
+    return cell(text + suffix, "num neg" if (signed and value < 0) else "num")
 
 
 def row(cells: list[dict[str, str]], pick: bool = False) -> dict[str, Any]:
