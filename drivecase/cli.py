@@ -52,7 +52,7 @@ def cmd_new(args: argparse.Namespace) -> int:
         print(f"  {path}")
     # a workbook is checked by its own path; a folder of CSV tables by the folder
     target = written[0] if len(written) == 1 and str(written[0]).lower().endswith(".xlsx") else args.dir
-    print("Fill in assets and sites (one row each), then run: drivecase check", target)
+    print("Fill in assets and sites (one row each; each site names its tariff file in tariffs/, an invented example to replace is there), then run: drivecase check", target)
     return 0
 
 

@@ -1427,7 +1427,72 @@ def _as_dict(assumptions: FinanceAssumptions) -> dict[str, Any]:
 
 
 _INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed")
+#: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
+FIELD_NOTES: dict[str, tuple[str, str]] = {
+    "currency": ("ISO 4217", "currency of every amount"),
+    "discount_rate_frac": ("frac/yr", "discount rate on the rate basis below"),
+    "rate_basis": ("-", "real (excludes inflation) or nominal"),
+    "inflation_frac": ("frac/yr", "general inflation, used only to convert between bases"),
+    "horizon_yr": ("yr", "study period"),
+    "escalation_energy_frac": ("frac/yr", "yearly escalation of energy prices"),
+    "escalation_demand_frac": ("frac/yr", "yearly escalation of demand charges"),
+    "escalation_reactive_frac": ("frac/yr", "yearly escalation of reactive charges"),
+    "escalation_fixed_frac": ("frac/yr", "yearly escalation of fixed charges"),
+    "escalation_maintenance_frac": ("frac/yr", "yearly escalation of maintenance costs"),
+    "grid_co2_kg_per_kwh": ("kg/kWh", "base-year grid emission factor"),
+    "grid_co2_decline_frac": ("frac/yr", "yearly relative decline of the grid factor"),
+    "incentive_per_kwh_saved": ("currency/kWh", "incentive per first-year kWh saved"),
+    "incentive_capital_share_frac": ("frac", "incentive as a share of capital"),
+    "incentive_max": ("currency", "cap on the incentive per project"),
+    "tax_rate_frac": ("frac", "profit tax rate (0 = no tax effects)"),
+    "depreciation_yr": ("yr", "straight-line tax depreciation period"),
+    "replacement_mode": ("-", "replace now, or replace when today's motor fails"),
+    "downtime_cost_per_h": ("currency/h", "default cost of an unplanned stop per hour"),
+    "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of capacitor banks"),
+    "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
+    "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
+    "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
+    "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
+    "monte_carlo_seed": ("-", "seed of the random draws"),
+}
+
+
 _TEXT_KEYS = ("currency", "rate_basis", "replacement_mode")
+
+
+def finance_template() -> str:
+    """The text of a finance.toml holding the program's defaults, one commented key per line (for a new case).
+
+    The currency is left out: it defaults to the case's own.
+
+    Examples
+    --------
+    >>> text = finance_template()
+    >>> "discount_rate_frac = 0.08" in text, "budget_per_yr = []" in text, "currency =" in text
+    (True, True, False)
+    """
+    from dataclasses import fields
+
+    defaults = FinanceAssumptions()
+    lines = ["# Finance assumptions of the case (docs/finance.md explains every key). These are the program's",
+             "# defaults: write your organisation's. Fractions are written 0.08 for 8 %; money is in the case currency.",
+             ""]
+    for field_ in fields(defaults):
+        if field_.name == "currency":
+            continue
+        value = getattr(defaults, field_.name)
+        if isinstance(value, str):
+            text = f'"{value}"'
+        elif isinstance(value, tuple):
+            text = "[" + ", ".join(f"{v:g}" for v in value) + "]"
+        elif isinstance(value, float) and math.isinf(value):
+            text = "inf"
+        else:
+            text = repr(float(value)) if isinstance(value, float) else str(value)
+        unit, meaning = FIELD_NOTES.get(field_.name, ("", ""))
+        note = f"  # {meaning}" + (f" [{unit}]" if unit and unit != "-" else "") if meaning else ""
+        lines.append(f"{field_.name} = {text}{note}")
+    return "\n".join(lines) + "\n"
 
 
 def _coerce(key: str, raw: Any, default: Any, source: str, prefix: str) -> tuple[Any, Problem | None]:

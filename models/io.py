@@ -1064,6 +1064,9 @@ power_unit = "kW"
 time_zone = "Europe/Berlin"
 """
 
+#: The example tariff a new case folder starts with (an invented one from data/tariffs, to replace).
+BLANK_CASE_TARIFF = "example_tou_kw_reactive_ratchet.toml"
+
 TABLE_NOTES: dict[str, str] = {
     "assets": "Asset register: one row per motor.",
     "sites": "Sites: one row per utility meter.",
@@ -1123,11 +1126,22 @@ def write_blank_case(target: str | Path, workbook: bool = False) -> list[Path]:
     (target / "case.toml").write_text(BLANK_CASE_TOML, encoding="utf-8")
     written.append(target / "case.toml")
     for table in CASE_TABLES:
-        schema = read_schema(table)
-        text = "\n".join(_template_comments(table) + [",".join(schema["name"])]) + "\n"
         path = target / f"{table}.csv"
-        path.write_text(text, encoding="utf-8")
+        if table == "options":  # the shipped catalogue to edit (illustrative prices, said in its first line)
+            path.write_text(DEFAULT_OPTIONS_PATH.read_text(encoding="utf-8"), encoding="utf-8")
+        else:
+            schema = read_schema(table)
+            path.write_text("\n".join(_template_comments(table) + [",".join(schema["name"])]) + "\n", encoding="utf-8")
         written.append(path)
+    from models.finance import finance_template
+
+    (target / "finance.toml").write_text(finance_template(), encoding="utf-8")
+    written.append(target / "finance.toml")
+    example = DATA_DIR / "tariffs" / BLANK_CASE_TARIFF
+    tariff = target / "tariffs" / BLANK_CASE_TARIFF
+    tariff.write_text("# An invented example tariff: replace it with your utility's (docs/tariffs.md), and name the file\n"
+                      "# in sites.csv's tariff_file column.\n" + example.read_text(encoding="utf-8"), encoding="utf-8")
+    written.append(tariff)
     return written
 
 

@@ -239,3 +239,24 @@ def test_whole_file_without_ratings_is_one_message(tmp_path, capsys):
     assert main(["check", str(folder)]) == 1
     out = capsys.readouterr().out
     assert out.count("rated power") == 1 and "no rated power column" in out
+
+
+def test_new_case_starts_with_finance_options_and_an_example_tariff(tmp_path, capsys):
+    # a new folder holds the program's default finance assumptions (read back unchanged), the shipped
+    # options catalogue to edit and an invented example tariff: check then asks only for assets and sites
+    import tomllib
+
+    from models.finance import FinanceAssumptions
+    from models.io import DEFAULT_OPTIONS_PATH
+
+    folder = tmp_path / "new"
+    assert main(["new", str(folder)]) == 0
+    data = tomllib.loads((folder / "finance.toml").read_text(encoding="utf-8"))
+    assumptions, problems = FinanceAssumptions.from_dict({**data, "currency": "EUR"}, source="finance.toml")
+    assert not problems and assumptions == FinanceAssumptions()
+    assert (folder / "options.csv").read_text(encoding="utf-8") == DEFAULT_OPTIONS_PATH.read_text(encoding="utf-8")
+    assert list((folder / "tariffs").glob("*.toml"))
+    capsys.readouterr()
+    assert main(["check", str(folder)]) == 1
+    out = capsys.readouterr().out
+    assert "0 warnings" in out and "asset register has no rows" in out and "sites table has no rows" in out

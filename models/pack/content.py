@@ -64,34 +64,8 @@ SAVING_COLUMNS: dict[str, str] = {
     "saving_maintenance_per_yr": "Maintenance",
 }
 
-#: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
-FINANCE_FIELDS: dict[str, tuple[str, str]] = {
-    "currency": ("ISO 4217", "currency of every amount"),
-    "discount_rate_frac": ("frac/yr", "discount rate on the rate basis below"),
-    "rate_basis": ("-", "real (excludes inflation) or nominal"),
-    "inflation_frac": ("frac/yr", "general inflation, used only to convert between bases"),
-    "horizon_yr": ("yr", "study period"),
-    "escalation_energy_frac": ("frac/yr", "yearly escalation of energy prices"),
-    "escalation_demand_frac": ("frac/yr", "yearly escalation of demand charges"),
-    "escalation_reactive_frac": ("frac/yr", "yearly escalation of reactive charges"),
-    "escalation_fixed_frac": ("frac/yr", "yearly escalation of fixed charges"),
-    "escalation_maintenance_frac": ("frac/yr", "yearly escalation of maintenance costs"),
-    "grid_co2_kg_per_kwh": ("kg/kWh", "base-year grid emission factor"),
-    "grid_co2_decline_frac": ("frac/yr", "yearly relative decline of the grid factor"),
-    "incentive_per_kwh_saved": ("currency/kWh", "incentive per first-year kWh saved"),
-    "incentive_capital_share_frac": ("frac", "incentive as a share of capital"),
-    "incentive_max": ("currency", "cap on the incentive per project"),
-    "tax_rate_frac": ("frac", "profit tax rate (0 = no tax effects)"),
-    "depreciation_yr": ("yr", "straight-line tax depreciation period"),
-    "replacement_mode": ("-", "replace now, or replace when today's motor fails"),
-    "downtime_cost_per_h": ("currency/h", "default cost of an unplanned stop per hour"),
-    "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of capacitor banks"),
-    "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
-    "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
-    "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
-    "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
-    "monte_carlo_seed": ("-", "seed of the random draws"),
-}
+#: Unit and meaning of every finance assumption (one table, in models.finance).
+FINANCE_FIELDS = finance.FIELD_NOTES
 
 #: Plain name of every finance assumption, for readers of the report (the workbook keeps the keys of
 #: finance.toml, which its formulas and its editors use).
