@@ -292,17 +292,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _plan_bill_saving(bills) -> float | None:
-    """Today's bills less the plan's, summed over sites and months [currency/yr]; None without both."""
-    if bills is None or not len(bills) or "scenario" not in bills:
-        return None
-    totals = bills.groupby("scenario")["amount"].sum()
-    if "baseline" not in totals or "plan" not in totals:
-        return None
-    return float(totals["baseline"] - totals["plan"])
-
-
 def _print_run_summary(case, result) -> None:
+    from models import scenario
     from models.reactive_plan import withdrawn_text
 
     currency = case.settings.currency
@@ -315,7 +306,7 @@ def _print_run_summary(case, result) -> None:
     print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
           f"yearly bill saving {chosen['bill_saving_per_yr'].sum():,.0f} {currency}/yr, "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
-    together = _plan_bill_saving(result.bills)
+    together = scenario.plan_bill_saving_per_yr(result.bills)
     if together is not None and len(plan):
         print(f"  The yearly bill saving adds up each project priced alone; with the whole plan in place the sites' "
               f"bills fall by {together:,.0f} {currency}/yr (projects share demand peaks, ratchets and reactive "

@@ -896,6 +896,20 @@ def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
     return (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
 
 
+def plan_bill_saving_per_yr(bills: pd.DataFrame | None) -> float | None:
+    """Today's bills less the plan's, summed over sites and months [currency/yr]; None without both.
+
+    The saving the sites' meters show with the whole plan in place, which can fall short of the projects'
+    savings priced one by one (they share demand peaks, ratchets and reactive allowances).
+    """
+    if bills is None or not len(bills) or "scenario" not in bills:
+        return None
+    totals = bills.groupby("scenario")["amount"].sum()
+    if "baseline" not in totals or "plan" not in totals:
+        return None
+    return float(totals["baseline"] - totals["plan"])
+
+
 def _bills(case, op, plan_frame: pd.DataFrame, base: pd.DataFrame, price_factor: float = 1.0) -> pd.DataFrame:
     """Monthly bills of today's fleet (computed with the physics) and of the fleet with the exact plan.
 

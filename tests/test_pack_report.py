@@ -278,3 +278,17 @@ def test_a_rounded_zero_reads_zero():
 
     assert num(-0.04, "{:,.1f}") == {"text": "0.0", "cls": "num"}
     assert num(-1.5, "{:,.1f}") == {"text": "-1.5", "cls": "num neg"}
+
+
+def test_summary_says_what_the_sites_bills_show(demo_run_physics):
+    # the demo plan's projects share peaks and allowances: the summary gives the sites' bills with the whole plan
+    # (today's bills less the plan's, from the run's own bill table) beside the projects priced one by one
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    scope = content.select_scope(case, result, None, True)
+    summary = report_context(case, result, scope, [])["summary_text"]
+    by = result.bills.groupby("scenario")["amount"].sum()
+    assert f"the sites' bills fall by {content.money(by['baseline'] - by['plan'], case.settings.currency)} a year" in summary

@@ -206,7 +206,7 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
 
 
 def test_plan_bill_saving_from_bills():
-    from drivecase.cli import _plan_bill_saving
+    _plan_bill_saving = scenario.plan_bill_saving_per_yr
 
     # hand calculation: two sites, today's bills 100 + 50, the plan's 70 + 45 -> 35 a year
     bills = pd.DataFrame({"site_id": ["A", "A", "B", "B"], "scenario": ["baseline", "plan", "baseline", "plan"],

@@ -18,6 +18,7 @@ from plotly.offline import get_plotlyjs
 
 from models.pack import content, figures, templates
 from models.reactive_plan import withdrawn_text
+from models.scenario import plan_bill_saving_per_yr
 from models.wording import counted
 
 #: Sections of the report: (anchor, title).
@@ -106,6 +107,14 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                    "discount rate.")
     if keep_count:
         summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
+    together = plan_bill_saving_per_yr(result.bills)
+    alone = float(result.results.set_index(["asset_id", "option_id"])["bill_saving_per_yr"]
+                  .reindex(list(zip(result.plan["asset_id"], result.plan["option_id"]))).sum()) if len(result.plan) else 0.0
+    if scope.mode != "assets" and together is not None and len(result.plan) and alone - together > 0.005 * max(abs(alone), 1.0):
+        summary += (f" With the whole plan in place the sites' bills fall by {content.money(together, cur)} a year, less "
+                    f"than the {content.money(alone, cur)} its projects save on the bills priced one by one: they share "
+                    "demand peaks, ratchets and reactive allowances (the Bills sheet of the workbook); the NPV counts "
+                    "each reactive project at the share it adds, the other projects at their own saving.")
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
