@@ -833,6 +833,17 @@ def headline(result) -> dict:
     }
 
 
+def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
+    """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
+    status = result.plan_status or {}
+    taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
+    label = (best["asset_id"].astype(str) + "/" + best["option_id"].astype(str)).to_numpy(dtype=object)
+    pays = (best["capital"].to_numpy(dtype=float) > 0) & (best["npv"].to_numpy(dtype=float) > 0)
+    why = np.where(np.isin(label, list(taken)), "nothing: its value is taken by the plan's other projects",
+                   np.where(pays, "nothing: outside the budget", ""))
+    return np.where(bought != "", bought, why).astype(object)
+
+
 def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:
     """Best option per asset, ranked by NPV, with the asset's data-quality score and what the budgeted plan
     buys for it (its option, plan year and capital: the plan may choose another option than the best, or
@@ -860,7 +871,7 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "saving_per_yr": (best["bill_saving_per_yr"] + best["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "co2_avoided_t_per_yr": best["co2_avoided_t_per_yr"].to_numpy(dtype=float),
         "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
-        "plan_option": plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object),
+        "plan_option": _plan_buys(result, best, plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object)),
         "plan_year": plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
         "plan_capital": planned["capital"].reindex(best["asset_id"]).to_numpy(dtype=float),
     })

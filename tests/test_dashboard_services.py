@@ -415,7 +415,17 @@ class TestPageData:
         for p in r.plan.itertuples():
             row = table.set_index("asset_id").loc[p.asset_id]
             assert row["plan_option"] == labels[p.option_id] and row["plan_year"] == p.start_yr
-        assert (table.loc[table["plan_year"].isna(), "plan_option"] == "").all()
+        # an asset the plan leaves out says why: its value taken by the plan's other projects, or the budget
+        out_of_plan = table[table["plan_year"].isna()]
+        status = r.plan_status or {}
+        taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
+        for row in out_of_plan.itertuples():
+            if f"{row.asset_id}/{row.option_id}" in taken:
+                assert row.plan_option == "nothing: its value is taken by the plan's other projects"
+            elif row.capital > 0 and row.npv > 0:
+                assert row.plan_option == "nothing: outside the budget"
+            else:
+                assert row.plan_option == ""
 
     def test_ratings_in_hp_when_the_case_says_so(self):
         # 1 hp = 0.745699872 kW (NIST SP 811 (2008) Appendix B.9)
