@@ -128,7 +128,7 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
                            showarrow=False, font=dict(size=11, color=INK))
     fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
     fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
-    return _style(fig, "Abatement cost curve (below zero: saves money)")
+    return _style(fig, "Abatement cost curve of each asset's best option (below zero: saves money)")
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -225,8 +225,7 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Fig
     fig.update_yaxes(title_text="Efficiency [%]", row=1, col=1)
     fig.update_yaxes(title_text="Power factor [-]<br>dotted lagging, dashed leading", row=2, col=1)
     fig.update_yaxes(title_text="Hours [h/yr]", row=3, col=1)
-    fig.update_xaxes(title_text="Today's shaft load [% of rating]; a drive that replaces a throttle runs the flow's "
-                                "own, lower load (flat below the zero-flow load)", row=3, col=1, range=[0, 130])
+    fig.update_xaxes(title_text="Today's shaft load [% of rating]", row=3, col=1, range=[0, 130])
     fig = _style(fig, "Efficiency and power factor against load, and where the asset runs", height=680, legend_below=True)
     fig.update_layout(legend=dict(y=-0.1))
     return fig
@@ -499,4 +498,4 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
     share = float((draws > 0).mean())
     fig.update_xaxes(title_text=f"Fleet NPV [{currency}]")
     fig.update_yaxes(title_text="Draws")
-    return _style(fig, f"Fleet NPV over {draws.size:,} draws · P(NPV > 0) = {share:.0%}")
+    return _style(fig, f"Fleet NPV over {draws.size:,} draws (each asset's best option, no budget) · P(NPV > 0) = {share:.0%}")

@@ -37,7 +37,10 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                                                    "marks its discounted payback, where the line crosses zero.",
                                                    className="page-intro")], className="panel half")],
                  className="row"),
-        html.Div([html.Div(ui.graph(PERFORMANCE), className="panel half"),
+        html.Div([html.Div([ui.graph(PERFORMANCE),
+                            html.P("Against today's shaft load: a drive that replaces a throttle runs the flow's own, "
+                                   "lower load (flat below the zero-flow load).", className="page-intro")],
+                           className="panel half"),
                   html.Div([html.H3("Speed change and its remedies"),
                             html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
                                    "more power; trimming the impeller, changing the pulley or a drive holds the speed.",
