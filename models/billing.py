@@ -760,7 +760,7 @@ def repeats_year(cal_months: int, repeat_year: bool | None) -> bool:
 
 
 def _check_repeat(cal: _Calendar, repeat_year: bool | None) -> None:
-    if repeat_year is not None and repeat_year and cal.n_months != 12:
+    if repeat_year and cal.n_months != 12:
         raise ValueError(f"repeat_year needs exactly 12 billing months; the series has {cal.n_months}")
 
 

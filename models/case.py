@@ -791,15 +791,14 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     both_missing = np.isnan(kw) & np.isnan(hp)
     raw_kw = checker.raw.frame["rated_p_kw"] if "rated_p_kw" in checker.raw.frame else pd.Series([None] * len(a))
     raw_hp = checker.raw.frame["rated_p_hp"] if "rated_p_hp" in checker.raw.frame else pd.Series([None] * len(a))
+    unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
     if len(a) > 1 and all(_blank(v) for v in raw_kw) and all(_blank(v) for v in raw_hp):
         # no rating in the whole file (no column, or empty ones): one message for the file, not one per row
-        unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
         checker.err(None, "rated_p_kw", None, "no rated power column (rated_p_kw or rated_p_hp): every motor needs its rating",
                     _missing_column_hint("rated_p_kw", unknown))
     else:
         hint = ""
         if "rated_p_kw" not in checker.raw.frame:  # perhaps under another heading
-            unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
             hint = _missing_column_hint("rated_p_kw", unknown)
             hint = hint if "was not recognised" in hint else ""
         for i in np.flatnonzero(both_missing):

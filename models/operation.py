@@ -1558,7 +1558,7 @@ class _SiteRecompute:
                 size = 2 * fresh[0].shape[1] * fresh[0].itemsize
                 with self._kept_lock:
                     if self._kept is kept:  # still the same keeping block
-                        for n, i in enumerate(np.flatnonzero(missing)):
+                        for i in np.flatnonzero(missing):
                             if self._kept_bytes + size > self._kept_budget:
                                 break
                             if keys[i] not in kept:
@@ -1793,8 +1793,8 @@ def options_with_baseline(options: pd.DataFrame) -> pd.DataFrame:
             keep[c] = 1.0
     # the shipped catalogue's own keep row where it has the column (today's motor's maintenance, life)
     for c, value in _default_keep_row().items():
-        if c in keep and value is not None:
-            keep[c] = value if pd.api.types.is_object_dtype(options[c].dtype) or isinstance(value, str) else float(value)
+        if c in keep:
+            keep[c] = value
     keep.update(option_id="keep", technology="existing", label="Keep as is", speed_remedy="none", applications="",
                 min_rated_p_kw=0.0, max_rated_p_kw=1e6, illustrative=True)
     return pd.concat([pd.DataFrame([keep]), options], ignore_index=True)
