@@ -118,3 +118,19 @@ def test_cli_prints_the_report_to_pdf(tmp_path):
     data = (out / "capital-request.pdf").read_bytes()
     assert data.startswith(b"%PDF-") and pdf_pages(data) > 3
     assert "capital-request.pdf" in done.stdout
+
+
+def test_no_table_runs_off_the_printed_page(pack_browser, demo_run_physics, tmp_path):
+    # the demo's options table has a column per option (11): in print, no element reaches past the page width
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    write_pack(case, result, tmp_path)
+    page = pack_browser.new_page(viewport={"width": 1054, "height": 1400})
+    page.goto((tmp_path / REPORT_NAME).as_uri())
+    for media in ("print", "screen"):
+        page.emulate_media(media=media)
+        beyond = page.evaluate("() => Array.from(document.querySelectorAll('body *'))"
+                               ".filter(e => e.getBoundingClientRect().right > document.documentElement.clientWidth + 1)"
+                               ".map(e => e.tagName)")
+        assert beyond == [], media
+    page.close()

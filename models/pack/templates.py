@@ -31,7 +31,8 @@ p.lead { color: var(--muted); margin: 0 0 14px; }
 table { border-collapse: collapse; width: 100%; margin: 6px 0 14px; font-size: 12.5px; }
 th, td { border-bottom: 1px solid var(--line); padding: 4px 6px; text-align: left; vertical-align: top; }
 th { background: var(--soft); font-weight: 600; }
-td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
+td.num { white-space: nowrap; }
 tr.pick td { background: #e7f1e9; font-weight: 600; }
 td.pick { background: #e7f1e9; font-weight: 700; }
 td.neg { color: var(--bad); }
@@ -44,6 +45,11 @@ ul.cautions li { margin-bottom: 4px; }
 .toc { columns: 2; font-size: 13px; }
 .toc a { color: var(--accent); text-decoration: none; }
 footer { margin-top: 40px; font-size: 12px; color: var(--muted); }
+/* one column per option: the option names wrap and the columns share the width, so the table fits the page */
+table.matrix { table-layout: fixed; }
+table.matrix th { white-space: normal; overflow-wrap: anywhere; hyphens: auto; font-size: 11px; }
+table.matrix td.num { white-space: normal; overflow-wrap: anywhere; }
+table.matrix th:first-child, table.matrix td:first-child { width: 11%; }
 @page { size: A4; margin: 14mm 12mm; }
 @media print {
   body { font-size: 10.5px; }
@@ -51,6 +57,7 @@ footer { margin-top: 40px; font-size: 12px; color: var(--muted); }
   h2 { break-before: page; page-break-before: always; font-size: 16px; }
   h2.first { break-before: auto; page-break-before: auto; }
   table { font-size: 9.5px; }
+  table.matrix, table.matrix th { font-size: 8px; }
   tr, .card { break-inside: avoid; page-break-inside: avoid; }
   .cards { grid-template-columns: repeat(5, 1fr); gap: 6px; }
   .card { padding: 6px 8px; }
@@ -62,8 +69,8 @@ footer { margin-top: 40px; font-size: 12px; color: var(--muted); }
 }
 """
 
-_MACROS = """{%- macro table(headers, rows, numeric=()) -%}
-<table>
+_MACROS = """{%- macro table(headers, rows, numeric=(), cls="") -%}
+<table{% if cls %} class="{{ cls }}"{% endif %}>
 <thead><tr>{% for h in headers %}<th{% if loop.index0 in numeric %} class="num"{% endif %}>{{ h }}</th>{% endfor %}</tr></thead>
 <tbody>
 {%- for row in rows %}
@@ -109,7 +116,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 
 <h2 id="options">3. Options compared</h2>
 <p class="small">NPV of each option over keeping today's motor ({{ currency }}); the recommended option is shaded; a dash means the option does not apply. Full tables per asset are in the appendix and the workbook ('Results').</p>
-{{ table(matrix_headers, matrix_rows, matrix_numeric) }}
+{{ table(matrix_headers, matrix_rows, matrix_numeric, "matrix") }}
 
 <h2 id="savings">4. Savings by component</h2>
 <div class="figure">{{ figures.waterfall }}</div>
@@ -178,7 +185,8 @@ p { margin: 3px 0; }
 table { border-collapse: collapse; width: 100%; font-size: 11px; }
 th, td { border-bottom: 1px solid var(--line); padding: 2px 4px; text-align: left; vertical-align: top; }
 th { background: var(--soft); }
-td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
+td.num { white-space: nowrap; }
 tr.pick td { background: #e7f1e9; font-weight: 700; }
 .plate { display: grid; grid-template-columns: repeat(4, 1fr); gap: 1px 10px; }
 .plate div span { color: var(--muted); }
