@@ -72,7 +72,14 @@ def test_upload_good_switches_the_tab(engine):
     header, rows = demo_rows()
     session, message, problems, _ = inputs.upload([data_url(csv_bytes(header, rows[:3]))], ["assets.csv"], ["keep"], None)
     assert session["case"] and session["case"] != engine.default_key and message.startswith("Loaded")
+    assert "edits made before the upload no longer apply" in message
     assert len(services.view(session, None).case.assets) == 3
+
+
+def test_upload_of_another_kind_of_file_says_why(engine):
+    # the upload field filters nothing in the browser: the server refuses a text file with a message
+    session, message, problems, _ = inputs.upload([data_url(b"notes")], ["notes.txt"], [], None)
+    assert session["case"] is None and "refused" in message.lower() and problems
 
 
 def test_assumption_form_and_edits(engine):

@@ -44,7 +44,9 @@ def layout(**_query):
         html.Div([
             html.Div([
                 html.H3("Upload a case"),
-                dcc.Upload(id=UPLOAD, multiple=True, accept=",".join(services.ALLOWED_SUFFIXES),
+                # no accept filter: a file of another kind reaches the server, which says why it is refused
+                # (the browser would drop it silently)
+                dcc.Upload(id=UPLOAD, multiple=True,
                            children=html.Div(["Drop files here or ", html.A("choose files")]), className="upload"),
                 html.P(f"One .xlsx workbook, or the case's files (assets.csv, sites.csv, capacitors.csv, duty.csv, "
                        f"profiles.csv or .parquet, options.csv, case.toml, finance.toml, tariff .toml files). Up to "
@@ -103,7 +105,10 @@ def upload(contents, names, keep, session):
     outcome = services.engine().accept_upload(session.get("session"), session.get("case"), names, contents,
                                               keep_other_files="keep" in (keep or []))
     new_session = {"session": outcome.session, "case": outcome.key if outcome.ok else session.get("case")}
-    return new_session, outcome.message, outcome.problems, None
+    message = outcome.message
+    if outcome.ok:
+        message += " The assumptions below are now the uploaded case's own; edits made before the upload no longer apply."
+    return new_session, message, outcome.problems, None
 
 
 @callback(Output(PROBLEMS, "rowData", allow_duplicate=True), Input(READY, "data"), State(ui.SESSION_STORE, "data"),
