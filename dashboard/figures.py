@@ -288,15 +288,19 @@ def meter_week(week: dict[str, pd.DataFrame]) -> go.Figure:
             continue
         x = frame.index.tz_localize(None) if getattr(frame.index, "tz", None) is not None else frame.index
         name = "today" if scenario_name == "before" else "with the plan"
+        # the power factor's sense from the kVAr's sign (negative = leading), said in the hover
+        sense = np.where(frame["q_kvar"].to_numpy(dtype=float) < 0, "leading", "lagging")
         for row, column, fmt in ((1, "p_kw", ",.0f"), (2, "q_kvar", ",.0f"), (3, "power_factor", ".3f")):
             fig.add_trace(go.Scatter(x=x, y=frame[column], mode="lines", name=name, legendgroup=scenario_name,
                                      showlegend=row == 1, line=dict(color=colour, width=1.6, dash=dash),
-                                     hovertemplate="%{x}<br>%{y:" + fmt + "}<extra>" + name + "</extra>"),
+                                     customdata=sense if row == 3 else None,
+                                     hovertemplate="%{x}<br>%{y:" + fmt + "}" + (" %{customdata}" if row == 3 else "")
+                                     + "<extra>" + name + "</extra>"),
                           row=row, col=1)
     fig.add_hline(y=0, line=dict(color=INK, width=0.8), row=2, col=1)
     fig.update_yaxes(title_text="Active [kW]", row=1, col=1)
     fig.update_yaxes(title_text="Reactive [kVAr]", row=2, col=1)
-    fig.update_yaxes(title_text="Power factor [-]", row=3, col=1)
+    fig.update_yaxes(title_text="Power factor [-]<br>leading where kVAr < 0", row=3, col=1)
     fig.update_xaxes(title_text="Local time", row=3, col=1)
     return _style(fig, "Site meter over one week", height=600)
 

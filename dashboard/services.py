@@ -1022,10 +1022,13 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
 
 
 def week_starts(view_: View) -> list[dict]:
-    """Monday starts of the analysis year, as dropdown options."""
+    """Monday starts of the analysis year, as dropdown options (and its first day when that is not a Monday)."""
     index = view_.physics().operation.index
     mondays = index[(index.dayofweek == 0) & (index.hour == 0) & (index.minute == 0)]
-    return [{"label": f"Week of {t:%d %b %Y}", "value": t.isoformat()} for t in mondays]
+    options = [{"label": f"Week of {t:%d %b %Y}", "value": t.isoformat()} for t in mondays]
+    if len(index) and (not len(mondays) or index[0] < mondays[0]):  # the days before the first Monday
+        options.insert(0, {"label": f"First days, from {index[0]:%d %b %Y}", "value": index[0].isoformat()})
+    return options
 
 
 def peak_week(meters: dict[str, pd.DataFrame]) -> str:
@@ -1033,7 +1036,7 @@ def peak_week(meters: dict[str, pd.DataFrame]) -> str:
     frame = meters["before"]
     peak = frame["p_kw"].idxmax()
     monday = (peak - pd.Timedelta(days=int(peak.dayofweek))).normalize()
-    return monday.isoformat()
+    return max(monday, frame.index[0]).isoformat()  # a peak before the first Monday: the first days
 
 
 def week_slice(meters: dict[str, pd.DataFrame], start_iso: str | None) -> dict[str, pd.DataFrame]:

@@ -171,3 +171,17 @@ def test_an_unknown_asset_in_the_address_is_said(engine):
     out = asset.update(value, None, None, "NOPE")
     assert f"The case has no asset 'NOPE'; showing {first}." in str(out[-1])
     assert "has no asset" not in str(asset.update(value, None, None, first)[-1])
+
+
+def test_weeks_start_with_the_first_days_of_data(engine):
+    # the analysis year 2025 starts on a Wednesday (1 Jan 2025): its first days are a choice of their own
+    view = services.view(None, None)
+    weeks = services.week_starts(view)
+    index = view.physics().operation.index
+    assert weeks[0]["value"] == index[0].isoformat() and weeks[0]["label"].startswith("First days, from 01 Jan 2025")
+    assert weeks[1]["label"] == "Week of 06 Jan 2025"
+    # a peak in those days is shown from the first day (not from the Monday before the data)
+    import pandas as pd
+
+    meters = {"before": pd.DataFrame({"p_kw": [5.0] + [1.0] * (len(index) - 1)}, index=index)}
+    assert services.peak_week(meters) == index[0].isoformat()

@@ -159,7 +159,10 @@ class TestSite:
         # local wall-clock time on the axis: 00:00 in Berlin, not 23:00 UTC the day before
         assert pd.Timestamp(fig.data[0].x[0]) == pd.Timestamp("2025-03-03 00:00")
         t = titles(fig)
-        assert t["yaxis"] == "Active [kW]" and t["yaxis2"] == "Reactive [kVAr]" and t["yaxis3"] == "Power factor [-]"
+        assert t["yaxis"] == "Active [kW]" and t["yaxis2"] == "Reactive [kVAr]" and t["yaxis3"].startswith("Power factor [-]")
+        # the power factor's sense follows the kVAr's sign (after: 10, -5, 0, 5 kVAr)
+        assert list(fig.data[5].customdata) == ["lagging", "leading", "lagging", "lagging"]
+        assert "%{customdata}" in fig.data[5].hovertemplate
 
     def test_pf_duration(self):
         curve = pd.DataFrame({"scenario": ["before"] * 2 + ["after"] * 2, "hours": [1.0, 2.0] * 2,
