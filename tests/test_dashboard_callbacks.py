@@ -185,3 +185,10 @@ def test_weeks_start_with_the_first_days_of_data(engine):
 
     meters = {"before": pd.DataFrame({"p_kw": [5.0] + [1.0] * (len(index) - 1)}, index=index)}
     assert services.peak_week(meters) == index[0].isoformat()
+
+
+def test_fleet_count_follows_the_grids_own_filters(engine):
+    # a column filter in the grid leaves fewer rows shown: the count says so
+    rows = fleet.update(None, None, None, None)[4]
+    assert fleet.count_shown(rows[:2], None) == f"2 of {len(SMALL_IDS)} assets"
+    assert fleet.count_shown(None, None) is no_update

@@ -5,7 +5,7 @@ from __future__ import annotations
 from urllib.parse import quote
 
 import dash
-from dash import Input, Output, callback, dcc, html, no_update
+from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import figures, services
@@ -79,6 +79,15 @@ def update(session, edits, sites, applications):
     return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit), count,
             figures.abatement_curve(result.abatement, view.currency), site_choices, application_choices,
             " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
+
+
+@callback(Output(COUNT, "children", allow_duplicate=True), Input(TABLE, "virtualRowData"),
+          State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
+def count_shown(shown, session):
+    """The count follows the grid's own column filters too (the rows it shows after them)."""
+    if shown is None:
+        return no_update
+    return f"{len(shown)} of {len(services.view(session, None).case.assets)} assets"
 
 
 @callback(Output(ui.LOCATION, "href"), Input(TABLE, "cellClicked"), prevent_initial_call=True)
