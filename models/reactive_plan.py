@@ -208,14 +208,17 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         its run adds beside the rest of the plan (clipped to 0-1); without it, at its own NPV.
     """
     withdrawn: set[str] = set()
+    greedy_withdrawn: set[str] = set()
     frames = solve((), settings, None)
     reactive_options = np.isin(results["technology"].to_numpy(dtype=object), REACTIVE_TECHNOLOGIES)
-    for _ in range(PLAN_INTERACTION_ROUNDS - 1):
-        value = reactive_value_in_plan(case, op, frames[0], results, price_factor)
+
+    def checked(plan_frame: pd.DataFrame, already: set[str]):
+        """(newly withdrawn, set aside, NPVs or None, repriced shares) from one plan's check."""
+        value = reactive_value_in_plan(case, op, plan_frame, results, price_factor)
         alone = value["run_saving_alone_per_yr"].to_numpy(dtype=float)
         worthless = (value["run_saving_in_plan_per_yr"].to_numpy(dtype=float)
                      < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
-        fresh = set(value.loc[worthless, "project_id"]) - withdrawn
+        fresh = set(value.loc[worthless, "project_id"]) - already
         npv, repriced = None, {}
         if bill_saving_pv is not None:
             share = np.clip(value["run_saving_in_plan_per_yr"].to_numpy(dtype=float) / np.where(alone > 0, alone, 1.0),
@@ -226,17 +229,24 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
                 npv = results["npv"].to_numpy(dtype=float).copy()
                 npv[rows] -= (1.0 - share[partial]) * np.asarray(bill_saving_pv, dtype=float)[rows]
                 repriced = dict(zip(value.loc[partial, "project_id"].astype(str), share[partial].round(6).tolist()))
-        if not fresh and not repriced:
+        taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
+        others = {str(x) for x in project_ids[taken]} - set(value.loc[~worthless, "project_id"]) - already - fresh
+        return fresh, others, npv, repriced
+
+    for _ in range(PLAN_INTERACTION_ROUNDS - 1):
+        fresh, others, npv, repriced = checked(frames[0], withdrawn)
+        # the rank-order plan is checked on its own, so its result does not depend on how hard the exact plan
+        # was solved
+        g_fresh, g_others, g_npv, g_repriced = checked(frames[1], greedy_withdrawn)
+        if not fresh and not repriced and not g_fresh and not g_repriced:
             break
         withdrawn |= fresh
-        taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
-        kept = set(value.loc[~worthless, "project_id"])
-        others = {str(x) for x in project_ids[taken]} - kept - withdrawn
+        greedy_withdrawn |= g_fresh
         left_out = withdrawn | others
         first = frames[0]
         start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
                       if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
-        frames = solve(left_out, replace(settings, start=start), npv)
+        frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_others, g_npv))
         frames[4]["settings"] = settings
         frames[4]["repriced"] = repriced
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))

@@ -744,28 +744,40 @@ def _plan_with_interactions(case, op, results, capital_spend, project_ids, assum
                             bill_saving_pv=None):
     """:func:`_plan`, with the plan's reactive projects checked beside the rest of it
     (:func:`models.reactive_plan.plan_without_idle_reactive`)."""
-    def solve(exclude, solve_settings, npv=None):
-        return _plan(results, capital_spend, project_ids, assumptions, d, solve_settings, exclude=exclude, npv=npv)
+    def solve(exclude, solve_settings, npv=None, greedy=None):
+        return _plan(results, capital_spend, project_ids, assumptions, d, solve_settings, exclude=exclude, npv=npv,
+                     greedy=greedy)
 
     return reactive_plan.plan_without_idle_reactive(solve, case, op, results, project_ids, settings,
                                                      float(assumptions.energy_price_factor), bill_saving_pv)
 
 
-def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=(), npv=None):
-    candidates = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy().copy()
-    npv = results["npv"].to_numpy() if npv is None else np.asarray(npv, dtype=float)
-    candidates &= npv > 0
-    if len(exclude):
-        candidates &= ~np.isin(project_ids, np.asarray(list(exclude), dtype=object))
+def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=(), npv=None,
+          greedy=None):
+    """The exact and the rank-order plans, their comparison, the abatement curve and the status.
+
+    ``exclude`` and ``npv`` (project labels left out, each row's NPV) shape the exact plan; ``greedy`` =
+    (exclude, npv) shapes the rank-order plan on its own (default: the exact plan's), so each plan's
+    check of its interactions changes that plan only.
+    """
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
-    sel = np.flatnonzero(candidates)
-    args = (project_ids[sel], results["asset_id"].to_numpy()[sel], npv[sel], capital_by_year[sel])
+    keep = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy()
+
+    def inputs(left_out, values):
+        values = results["npv"].to_numpy() if values is None else np.asarray(values, dtype=float)
+        candidates = keep & (values > 0)
+        if len(left_out):
+            candidates &= ~np.isin(project_ids, np.asarray(list(left_out), dtype=object))
+        sel = np.flatnonzero(candidates)
+        return project_ids[sel], results["asset_id"].to_numpy()[sel], values[sel], capital_by_year[sel]
+
+    args = inputs(exclude, npv)
     with _quiet_native_stdout():
         exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
                                 start=dict(settings.start) or None)
-    greedy = plan.plan_greedy(*args, budgets, d)
+    greedy = plan.plan_greedy(*(args if greedy is None else inputs(*greedy)), budgets, d)
     comparison = plan.compare_plans(exact, greedy)
     # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)
     co2 = results["co2_avoided_t_per_yr"].to_numpy(dtype=float)
