@@ -121,7 +121,7 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
         lo, hi = min(float(cost[seen].min()), 0.0), max(float(cost[seen].max()), 0.0)
         pad = 0.08 * (hi - lo or 1.0)
         fig.update_yaxes(range=[lo - pad, hi + pad])
-        fig.add_annotation(text=f"{int(beyond.sum())} narrow bar(s) run off the axis (to "
+        fig.add_annotation(text=f"{int(beyond.sum())} narrow {'bar runs' if int(beyond.sum()) == 1 else 'bars run'} off the axis (to "
                                 f"{float(cost[beyond].max() if (cost[beyond] > 0).any() else cost[beyond].min()):,.0f} "
                                 f"{currency}/t): projects that avoid almost no CO2",
                            xref="paper", yref="paper", x=1.0, y=1.02, xanchor="right", yanchor="bottom",
@@ -440,11 +440,10 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
     fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_high"] - base, base=base, orientation="h", name="high value",
                          marker_color=GAIN, customdata=rows["npv_at_high"],
                          hovertemplate="%{y}<br>high: %{customdata:,.0f} " + currency + "<extra></extra>"))
-    fig.add_vline(x=base, line=dict(color=INK, width=1),
-                  annotation_text=f"best option of every asset, no budget: {base:,.0f} {currency}",
-                  annotation_position="top")
+    fig.add_vline(x=base, line=dict(color=INK, width=1))  # the centre line, named in the axis title (no label over the legend)
     fig.update_layout(barmode="overlay")
-    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]")
+    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]; centre line: every asset's best option, "
+                                f"no budget, {base:,.0f} {currency}")
     fig.update_yaxes(title_text="Varied input", automargin=True)
     return _style(fig, "Sensitivity (tornado)", height=400)
 

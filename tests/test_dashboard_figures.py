@@ -62,7 +62,7 @@ class TestAbatement:
             "co2_avoided_t_per_yr": [0.001], "bar_start_t_per_yr": [8.0]})], ignore_index=True)
         fig = figures.abatement_curve(frame, "EUR")
         np.testing.assert_allclose(fig.layout.yaxis.range, [-133.2, 58.2])
-        assert "1 narrow bar(s) run off the axis (to 9,500 EUR/t)" in fig.layout.annotations[-1].text
+        assert "1 narrow bar runs off the axis (to 9,500 EUR/t)" in fig.layout.annotations[-1].text
         assert figures.abatement_curve(self.frame, "EUR").layout.yaxis.range is None  # no sliver: automatic
 
     def test_empty_says_so(self):
@@ -219,7 +219,9 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(low.base, [100.0, 100.0])
         np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
         np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
-        assert titles(fig)["xaxis"] == "Fleet NPV of the best options [EUR]"
+        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]; centre line: every asset's best option, "
+                                        "no budget, 100 EUR")
+        assert not fig.layout.annotations  # nothing written over the legend
 
     def test_risk_ranges_top_n(self):
         rows = pd.DataFrame({"project_id": [f"A{i}/x" for i in range(30)],
