@@ -1121,6 +1121,15 @@ def _plan_proof_text(result) -> str:
                                       else ".")
 
 
+def plan_is_proven(result) -> bool:
+    """True when proving the plan to the full run's precision would change nothing (no button needed)."""
+    status = getattr(result, "plan_status", None) or {}
+    kind, gap = status.get("status"), status.get("gap_frac", float("nan"))
+    if kind in ("unconstrained", "empty"):
+        return True
+    return kind == "optimal" and gap == gap and gap <= scenario.PRECISE_PLAN.gap_frac
+
+
 def _live(settings) -> bool:
     """True for the plan settings of a live edit (bounded below the full run's time)."""
     return settings is not None and settings.time_limit_s < scenario.PRECISE_PLAN.time_limit_s

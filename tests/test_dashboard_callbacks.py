@@ -192,3 +192,14 @@ def test_fleet_count_follows_the_grids_own_filters(engine):
     rows = fleet.update(None, None, None, None)[4]
     assert fleet.count_shown(rows[:2], None) == f"2 of {len(SMALL_IDS)} assets"
     assert fleet.count_shown(None, None) is no_update
+
+
+def test_prove_button_is_off_once_the_plan_is_proven(engine):
+    # the case's own assumptions are solved to the full run's precision: nothing left to prove
+    from types import SimpleNamespace
+
+    assert plan.update(True, None, None)[-1] is True
+    live = SimpleNamespace(plan_status={"status": "time_limit", "gap_frac": 0.002})
+    loose = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.0009})
+    proven = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.00005})
+    assert [services.plan_is_proven(r) for r in (live, loose, proven)] == [False, False, True]

@@ -96,7 +96,7 @@ def project_columns(currency: str) -> list[dict]:
 
 @callback(Output(BY_YEAR, "figure"), Output(COMPARISON, "figure"), Output(CHOSEN, "rowData"), Output(CHOSEN, "columnDefs"),
           Output(DIFFERENCES, "rowData"), Output(DIFFERENCES, "columnDefs"), Output(SUMMARY, "children"),
-          Output(NOTICE, "children"), Output(SOLVE_STATUS, "children"),
+          Output(NOTICE, "children"), Output(SOLVE_STATUS, "children"), Output(PROVE, "disabled"),
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), Input(PROVED, "data"))
 def update(_ready, session, edits, _proved=None):
     """Plan figures and tables under the tab's budget and assumptions (the proved plan once there is one)."""
@@ -118,7 +118,7 @@ def update(_ready, session, edits, _proved=None):
     return (figures.plan_by_year(by_year, c), figures.plan_comparison(comparison, c),
             tables["exact"].to_dict("records"), project_columns(c),
             tables["differences"].to_dict("records"), diff_columns, summary, view.notice,
-            services.plan_solve_text(result))
+            services.plan_solve_text(result), services.plan_is_proven(result))
 
 
 @callback(Output(PROVED, "data"), Input(PROVE, "n_clicks"), State(ui.SESSION_STORE, "data"),
