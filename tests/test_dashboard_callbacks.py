@@ -203,3 +203,11 @@ def test_prove_button_is_off_once_the_plan_is_proven(engine):
     loose = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.0009})
     proven = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.00005})
     assert [services.plan_is_proven(r) for r in (live, loose, proven)] == [False, False, True]
+
+
+def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):
+    # a blank discounted payback reads "not within the horizon" where capital is spent, blank where none is
+    columns = fleet.update(None, None, None, None)[5]
+    payback = next(c for c in columns if c["field"] == "discounted_payback_yr")
+    code = payback["valueFormatter"]["function"]
+    assert "not within the horizon" in code and "params.data.capital > 0" in code

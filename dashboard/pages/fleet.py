@@ -51,7 +51,11 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
             ui.number_col("rating", f"Rating [{services.power_label(power_unit)}]", 1),
             ui.text_col("best_option", "Best option (before the budget)", minWidth=200),
             ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
-            ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
+            # blank where nothing is spent; said in words where the option does not pay back within the horizon
+            ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1, valueFormatter={
+                "function": "(params.value == null || !isFinite(params.value)) ? "
+                            "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
+                            "d3.format(',.1f')(params.value)"}),
             ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"),
             ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
             ui.text_col("plan_option", "The plan buys", minWidth=180),
