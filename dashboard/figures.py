@@ -311,11 +311,15 @@ def pf_duration(curve: pd.DataFrame) -> go.Figure:
     Parameters
     ----------
     curve : pandas.DataFrame
-        scenario ("before"/"after"), hours [h], power_factor [-].
+        scenario ("before"/"after"), hours [h], power_factor [-] (unsigned), optionally leading_h [h]
+        (hours the site leads, named in the legend).
     """
     fig = go.Figure()
     for scenario_name, colour, name in (("before", BEFORE, "today"), ("after", AFTER, "with the plan")):
         part = curve[curve["scenario"] == scenario_name]
+        leading_h = float(part["leading_h"].iloc[0]) if len(part) and "leading_h" in part else 0.0
+        if leading_h > 0:  # the curve's power factor is unsigned: say how long the site leads
+            name = f"{name} (leading {leading_h:,.0f} h)"
         if len(part):
             fig.add_trace(go.Scatter(x=part["hours"], y=part["power_factor"], mode="lines", name=name,
                                      line=dict(color=colour, width=2),

@@ -1047,13 +1047,16 @@ def week_slice(meters: dict[str, pd.DataFrame], start_iso: str | None) -> dict[s
 
 
 def pf_duration(meters: dict[str, pd.DataFrame], interval_h: float, points: int = 400) -> pd.DataFrame:
-    """Power-factor duration curve before and after: hours of the year at or below each power factor."""
+    """Power-factor duration curve before and after: hours of the year at or below each power factor, and the
+    hours the site leads (kVAr below zero) in ``leading_h``, whose power factor the curve shows unsigned."""
     frames = []
     for scenario_name, frame in meters.items():
         pf = np.sort(frame["power_factor"].to_numpy(dtype=float))
         hours = np.arange(1, len(pf) + 1) * interval_h
         take = np.unique(np.linspace(0, len(pf) - 1, min(points, len(pf))).astype(int))
-        frames.append(pd.DataFrame({"scenario": scenario_name, "hours": hours[take], "power_factor": pf[take]}))
+        leading_h = float((frame["q_kvar"].to_numpy(dtype=float) < 0).sum() * interval_h) if "q_kvar" in frame else 0.0
+        frames.append(pd.DataFrame({"scenario": scenario_name, "hours": hours[take], "power_factor": pf[take],
+                                    "leading_h": leading_h}))
     return pd.concat(frames, ignore_index=True)
 
 

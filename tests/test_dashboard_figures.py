@@ -170,6 +170,9 @@ class TestSite:
         fig = figures.pf_duration(curve)
         assert [t.name for t in fig.data] == ["today", "with the plan"]
         assert titles(fig) == {"xaxis": "Hours of the year at or below [h]", "yaxis": "Power factor [-]"}
+        # hours the site leads are named in the legend (the curve's power factor is unsigned)
+        fig = figures.pf_duration(curve.assign(leading_h=[0.0, 0.0, 120.0, 120.0]))
+        assert [t.name for t in fig.data] == ["today", "with the plan (leading 120 h)"]
 
     def test_monthly_bills_side_by_side_and_stacked(self):
         bills = pd.DataFrame({"month": ["2025-01", "2025-01", "2025-01", "2025-01"],

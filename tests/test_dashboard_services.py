@@ -474,6 +474,10 @@ class TestPageData:
         assert len(week["before"]) == 7 * 24  # hourly analysis year: 168 intervals in a week
         curve = services.pf_duration(meters["HRW"], 1.0)
         assert curve.groupby("scenario")["power_factor"].apply(lambda s: s.is_monotonic_increasing).all()
+        # the leading hours are the meter's intervals with kVAr below zero (hourly: one hour each)
+        for name, frame in meters["HRW"].items():
+            led = curve.loc[curve["scenario"] == name, "leading_h"]
+            assert (led == float((frame["q_kvar"] < 0).sum())).all()
         balance = services.reactive_balance(v, r, "KGQ", meters["KGQ"])
         net = balance.set_index(["scenario", "source"])["q_kvar"]
         parts = balance[balance["source"] != "Net at the meter"].groupby("scenario")["q_kvar"].sum()
