@@ -763,11 +763,11 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
-    keep = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy()
+    not_today = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy()
 
     def inputs(left_out, values):
         values = results["npv"].to_numpy() if values is None else np.asarray(values, dtype=float)
-        candidates = keep & (values > 0)
+        candidates = not_today & (values > 0)
         if len(left_out):
             candidates &= ~np.isin(project_ids, np.asarray(list(left_out), dtype=object))
         sel = np.flatnonzero(candidates)
