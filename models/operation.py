@@ -584,7 +584,7 @@ def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
         kwargs = {"mode": "kvar", "q_setpoint_kvar": float(option["wfsm_q_kvar"])}
     else:
         kwargs = {"mode": "power_factor", "power_factor_setpoint": design_pf, "setpoint_leading": True}
-    pt = synchronous.wfsm_operating_point(shaft_eval, **params, **kwargs)
+    pt = synchronous.wfsm_operating_point(shaft_eval, **params, **kwargs, detail=False)
     run = load.running
     flags: list[tuple[int, str]] = []
     for name, text in (("limited_by_field_current", "field-current ceiling"), ("limited_by_stator_current", "stator-current rating"),

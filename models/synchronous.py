@@ -921,7 +921,7 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
                          max_load_angle_deg=WFSM_MAX_LOAD_ANGLE_DEG, mode="power_factor",
                          power_factor_setpoint=1.0, setpoint_leading=True, q_setpoint_kvar=0.0,
                          site_p_kw_other=0.0, site_q_kvar_other=0.0, site_target_power_factor=0.95,
-                         supply_v_ll_v=None) -> WoundFieldResult:
+                         supply_v_ll_v=None, detail=True) -> WoundFieldResult:
     """Return the operating point of a wound-field synchronous motor in its reactive-power mode.
 
     Parameters
@@ -964,6 +964,10 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
         "follow_site" mode: lagging site power factor to reach [-], (0, 1]; default 0.95.
     supply_v_ll_v : float, array_like or None, optional
         Actual supply line voltage [V]; None means rated.
+    detail : bool, optional
+        True (default): every field. False: only ``p_in_kw``, ``q_kvar``, ``p_shaft_kw``, the field copper,
+        exciter, core and friction losses and the three ``limited_by_*`` flags, the others None (what a
+        year of intervals needs, in a little over half the time for long per-interval arrays).
 
     Returns
     -------
@@ -1059,10 +1063,11 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
     )
     shape = np.broadcast_shapes(p_kw.shape, *(np.shape(val) for val in per_asset.values()))
     flags = dict(occ_linear=bool(np.all(sat == 1.0)), all_pf=bool(np.all(is_pf)), all_kvar=bool(np.all(is_kvar)))
-    res = _wfsm_compiled(shape, p=p_kw, **per_asset, **flags)
+    res = _wfsm_compiled(shape, p=p_kw, **per_asset, **flags, lean=not detail)
     o = kind.out
     view = lambda a: o(np.broadcast_to(a, shape))  # noqa: E731
-    res = {name: o(value) for name, value in res.items()}
+    res = {name: None if res.get(name) is None else o(res[name])
+           for name in _WFSM_FLOAT_OUTPUTS + _WFSM_BOOL_OUTPUTS}
     return WoundFieldResult(p_shaft_kw=view(p_kw), core_loss_kw=view(core_r * (v / v_r) ** 2 / 1e3),
                             friction_windage_loss_kw=view(fw / 1e3), **res)
 
@@ -1143,7 +1148,12 @@ _WFSM_ROW_INPUTS = ("r", "x", "i_ag", "r_f", "sat", "inv_eta_x", "fixed", "s_max
                     "qd0", "qd1", "v3", "inv3v", "v_r", "tan_set", "tan_t", "is_pf", "is_kvar", "q_set")
 
 
-def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, all_kvar: bool,
+#: The outputs a lean pass writes (``wfsm_operating_point(..., detail=False)``), in its order.
+_WFSM_LEAN_FLOATS = ("p_in_kw", "q_kvar", "field_copper_loss_kw", "exciter_loss_kw")
+_WFSM_LEAN_FLAGS = ("limited_by_stator_current", "limited_by_field_current", "limited_by_load_angle")
+
+
+def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, all_kvar: bool, lean: bool = False,
                    **inputs) -> dict[str, np.ndarray]:
     """:func:`_wfsm_kernel`'s outputs for inputs broadcast to ``shape``, in one compiled pass.
 
@@ -1151,7 +1161,8 @@ def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, al
     values are the same bit for bit (checked against :func:`_wfsm_kernel` in the tests); it holds no
     temporaries the size of the operating arrays and releases the interpreter lock. The shaft load
     and the site's other power vary per interval; every other input is one value per asset (row), as
-    :func:`wfsm_operating_point` builds them; inputs of any other shape go to the numpy kernel.
+    :func:`wfsm_operating_point` builds them; inputs of any other shape go to the numpy kernel. With
+    ``lean`` the pass writes only :data:`_WFSM_LEAN_FLOATS` and :data:`_WFSM_LEAN_FLAGS` (the same values).
     """
     n_t = shape[-1] if len(shape) else 1
     n_rows = int(np.prod(shape[:-1])) if len(shape) > 1 else 1
@@ -1176,12 +1187,18 @@ def _wfsm_compiled(shape: tuple[int, ...], *, occ_linear: bool, all_pf: bool, al
         site_p, site_q = per_interval(inputs["site_p"]), per_interval(inputs["site_q"])
     else:  # one value per asset: passed as a one-column array
         site_p, site_q = site_rows[0][:, None], site_rows[1][:, None]
-    floats = np.empty((len(_WFSM_FLOAT_OUTPUTS) + 1, n_rows, n_t))
-    flags = np.empty((len(_WFSM_BOOL_OUTPUTS), n_rows, n_t), dtype=bool)
     if _WFSM_ITERATIONS != 3:  # the pass writes the fixed point's three steps out
         return _blockwise(_wfsm_kernel, shape, occ_linear=occ_linear, all_pf=all_pf, all_kvar=all_kvar, **inputs)
+    n_floats, n_flags = ((len(_WFSM_LEAN_FLOATS), len(_WFSM_LEAN_FLAGS)) if lean
+                         else (len(_WFSM_FLOAT_OUTPUTS) + 1, len(_WFSM_BOOL_OUTPUTS)))
+    floats = np.empty((n_floats, n_rows, n_t))
+    flags = np.empty((n_flags, n_rows, n_t), dtype=bool)
     _wfsm_pass(per_interval(inputs["p"]), site_p, site_q, site_varies, *rows, bool(occ_linear), bool(all_pf),
-               bool(all_kvar), _LIMIT_RTOL, floats, flags)
+               bool(all_kvar), _LIMIT_RTOL, floats, flags, bool(lean))
+    if lean:
+        out = {name: floats[i].reshape(shape) for i, name in enumerate(_WFSM_LEAN_FLOATS)}
+        out.update({name: flags[i].reshape(shape) for i, name in enumerate(_WFSM_LEAN_FLAGS)})
+        return out
     # the pass leaves re3 in the load angle's slot and im3 in the extra one: the angle is taken with numpy's
     # arctan2 (its vectorised loop may differ from the C library's in the last bit)
     at = _WFSM_FLOAT_OUTPUTS.index("load_angle_deg")
@@ -1294,10 +1311,27 @@ def _wfsm_finish(floats, flags, i, t, p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d
     flags[4, i, t] = (p_st > s_max) or (h2 < 0.0) or (lo > hi + tol) or (disc < 0.0)
 
 
+@numba.njit(error_model="numpy", cache=True)
+def _wfsm_finish_lean(floats, flags, i, t, p_st, p_exc, q_des, q, q_i, q_lo_f, q_hi_d, lo, hi, h2, disc, re3, im3, emf,
+                      i_f, p_fcu, s_max, limit_rtol):  # pragma: no cover - compiled
+    """:func:`_wfsm_finish` for a lean pass: :data:`_WFSM_LEAN_FLOATS` and :data:`_WFSM_LEAN_FLAGS` only."""
+    tol = limit_rtol * _mx(s_max, abs(q_des))
+    low = q_des < lo - tol
+    high = q_des > hi + tol
+    k = 1e-3
+    floats[0, i, t] = (p_st + p_exc) * k
+    floats[1, i, t] = q * k
+    floats[2, i, t] = p_fcu * k
+    floats[3, i, t] = (p_exc - p_fcu) * k
+    flags[0, i, t] = (low and (-q_i >= q_lo_f)) or (high and (q_i <= q_hi_d))
+    flags[1, i, t] = low and (q_lo_f > -q_i)
+    flags[2, i, t] = high and (q_hi_d < q_i)
+
+
 @numba.njit(nogil=True, cache=True, error_model="numpy")
 def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv_eta_x_, fixed_, s_max_, s_max2_, a_,
                cq_, c_re_, rad2_, qd0_, qd1_, v3_, inv3v_, v_r_, tan_set_, tan_t_, is_pf_, is_kvar_, q_set_, occ_linear,
-               all_pf, all_kvar, limit_rtol, floats, flags):  # pragma: no cover - compiled
+               all_pf, all_kvar, limit_rtol, floats, flags, lean):  # pragma: no cover - compiled
     """Compiled body of :func:`_wfsm_compiled`: :func:`_wfsm_kernel` element by element, row by row.
 
     Each row is worked a step at a time over all its intervals (start, the fixed point's steps, then the
@@ -1335,7 +1369,10 @@ def _wfsm_pass(p_, site_p_, site_q_, site_varies, r_, x_, i_ag_, r_f_, sat_, inv
             s = _wfsm_step(p_st[t], p_exc[t], pm[t], sp[t], sq[t], all_pf, all_kvar, is_pf, is_kvar, tan_set, tan_t,
                            q_set, s_max2, c_re, rad2, cq, qd0, qd1, a, v3, r, x, inv3v, occ_linear, k_lin, sat, i0,
                            e_max, i_ag, v_r, r_f, inv_eta_x)
-            _wfsm_finish(floats, flags, i, t, *s, s_max, inv3v, r, limit_rtol)
+            if lean:
+                _wfsm_finish_lean(floats, flags, i, t, *s, s_max, limit_rtol)
+            else:
+                _wfsm_finish(floats, flags, i, t, *s, s_max, inv3v, r, limit_rtol)
 
 
 @dataclass(frozen=True)

@@ -664,10 +664,16 @@ class TestWfsmCompiledPass:
                       q_setpoint_kvar=-0.6 * rated[:, None], site_p_kw_other=rng.uniform(500.0, 8000.0, (n, t)),
                       site_q_kvar_other=rng.uniform(-500.0, 6000.0, (n, t)), site_target_power_factor=0.95)
         compiled = sm.wfsm_operating_point(load, **params, **kwargs)
-        monkeypatch.setattr(sm, "_wfsm_compiled", lambda shape, **inputs: _blockwise(sm._wfsm_kernel, shape, **inputs))
+        lean = sm.wfsm_operating_point(load, **params, **kwargs, detail=False)
+        monkeypatch.setattr(sm, "_wfsm_compiled",
+                            lambda shape, lean=False, **inputs: _blockwise(sm._wfsm_kernel, shape, **inputs))
         reference = sm.wfsm_operating_point(load, **params, **kwargs)
         for name in sm._WFSM_FLOAT_OUTPUTS + sm._WFSM_BOOL_OUTPUTS:
             np.testing.assert_array_equal(getattr(compiled, name), getattr(reference, name), err_msg=name)
+        # the lean pass: the fields it keeps, the same bits; the others not computed
+        for name in sm._WFSM_LEAN_FLOATS + sm._WFSM_LEAN_FLAGS + ("p_shaft_kw", "core_loss_kw"):
+            np.testing.assert_array_equal(getattr(lean, name), getattr(reference, name), err_msg=name)
+        assert lean.load_angle_deg is None and lean.stator_current_a is None
         if t > 1:
             assert reference.limited_by_stator_current.any() or reference.limited_by_field_current.any()
 
