@@ -700,6 +700,130 @@ def _speed_rows(p, p_fw, p_ag_r, s_r, n_s, out):  # pragma: no cover - compiled
             out[i, t] = (y * (-s_r[i, t]) + 1.0) * n_s[i, t]
 
 
+def coupled_load_kw(params: InductionParams, ref_shaft_p_kw: np.ndarray, ref_speed_rpm, speed_exponent,
+                    tol_kw: float = 1e-9, max_iterations: int = 50) -> tuple[np.ndarray, np.ndarray]:
+    """Shaft load and speed of new induction motors on the driven machines of today's, in one compiled pass.
+
+    :func:`models.loads.solve_speed_coupled_load` with ``speed_of_new`` the motors' own speed
+    (:func:`induction_speed_rpm`), element by element: the same operations in the same order, so the
+    same values bit for bit, without a fleet-sized temporary per fixed-point pass.
+
+    Parameters
+    ----------
+    params : InductionParams
+        The new motors, one per row of the load (fields of shape (n,)).
+    ref_shaft_p_kw : numpy.ndarray, shape (n, m)
+        Shaft power drawn with today's motor at its own speed [kW], >= 0 (not checked; NaN propagates).
+    ref_speed_rpm : array_like, broadcastable to (n, m)
+        Today's speed at each step [rpm], > 0.
+    speed_exponent : array_like, shape (n,) or (n, 1)
+        k in P ~ n^k [-], one per motor.
+    tol_kw : float, optional
+        Convergence tolerance on the shaft power [kW], scaled per element by max(1, its reference power).
+    max_iterations : int, optional
+        Passes allowed (:data:`models.loads.MAX_COUPLING_ITERATIONS`).
+
+    Returns
+    -------
+    shaft_p_kw, speed_rpm : numpy.ndarray, shape (n, m)
+
+    Raises
+    ------
+    ValueError
+        If a speed is not positive or an element does not converge (as the generic solver).
+
+    Notes
+    -----
+    Per element, from P = P_ref: P <- P_ref (n_new(P) / n_ref)^k until |change| <= tol max(1, |P_ref|),
+    n_new(P) = n_s (1 - s_r y(P)) with y the per-unit torque of :func:`_torque_pu_one` [1]_.
+
+    References
+    ----------
+    .. [1] A. E. Fitzgerald, C. Kingsley Jr. and S. D. Umans, *Electric Machinery*, 6th ed. McGraw-Hill,
+       2003, Ch. 6 (the induction motor's torque-slip relation near rated slip).
+    """
+    p_ref = np.ascontiguousarray(ref_shaft_p_kw, dtype=float)
+    n, m = p_ref.shape
+    def per_row(value):
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=float).reshape(-1), (n,)))
+
+    k = np.asarray(speed_exponent, dtype=float)
+    if k.ndim == 2 and k.shape[1] != 1:
+        raise ValueError("speed_exponent must be one value per motor (shape (n,) or (n, 1))")
+    n_ref = np.broadcast_to(np.asarray(ref_speed_rpm, dtype=float), (n, m))
+    rows = (p_ref, n_ref, per_row(k), per_row(params.friction_windage_kw), per_row(params.rated_airgap_p_kw),
+            per_row(params.rated_slip_frac), per_row(params.sync_speed_rpm))
+    p_out, n_out = np.empty((n, m)), np.empty((n, m))
+    status = _coupled_rows(*rows, float(tol_kw), int(max_iterations), p_out, n_out)
+    if status == 1:
+        raise ValueError("speed_of_new returned a non-positive speed")
+    if status == 2:
+        raise ValueError("speed-coupled load did not converge; the new machine's speed-vs-load relation is far "
+                         "steeper than a motor's slip (check speed_of_new)")
+    return p_out, n_out
+
+
+@numba.njit(inline="always", error_model="numpy")
+def coupling_power(ratio, k):  # pragma: no cover - compiled
+    """The speed ratio to the load's exponent, ratio ** k, the cube as (ratio ratio) ratio (a fifth of
+    the time of ``pow``; within an ulp of it): the rule of :func:`models.loads.solve_speed_coupled_load`."""
+    return ratio * ratio * ratio if k == 3.0 else ratio ** k
+
+
+@numba.njit(nogil=True, cache=True, error_model="numpy")
+def _coupled_rows(p_ref, n_ref, k_, p_fw_, p_ag_r_, s_r_, n_s_, tol, max_iterations, p_out, n_out):  # pragma: no cover - compiled
+    """:func:`coupled_load_kw`'s pass: 0, or 1 for a non-positive speed, 2 for no convergence.
+
+    A row at a time, each fixed-point pass over all its intervals (a converged one keeps its value, as in
+    the generic solver): the loop has no exit per element, so the compiler runs it on several intervals
+    at once, and every interval still does the generic solver's operations in its order.
+    """
+    n, m = p_out.shape
+    p = np.empty(m)
+    target = np.empty(m)
+    ratio = np.empty(m)
+    limit = np.empty(m)
+    done = np.empty(m, dtype=np.bool_)
+    for i in range(n):
+        k, fw, ag, sr, ns = k_[i], p_fw_[i], p_ag_r_[i], s_r_[i], n_s_[i]
+        for t in range(m):
+            target[t] = p_ref[i, t]
+            p[t] = target[t]
+            limit[t] = tol * max(abs(target[t]), 1.0)
+            done[t] = target[t] != target[t]  # (NaN stays NaN, as missing data)
+        converged = False
+        for _ in range(max_iterations):
+            bad = 0
+            for t in range(m):
+                y, _w = _torque_pu_one(p[t], fw, ag, sr)
+                speed = (y * (-sr) + 1.0) * ns
+                bad += speed <= 0.0
+                ratio[t] = speed / n_ref[i, t]
+            if bad:
+                return 1
+            left = 0
+            for t in range(m):
+                p_next = coupling_power(ratio[t], k)
+                p_next *= target[t]
+                close = abs(p_next - p[t]) <= limit[t]
+                p[t] = p[t] if done[t] else p_next
+                done[t] = done[t] or close
+                left += not done[t]
+            if left == 0:
+                converged = True
+                break
+        if not converged:
+            return 2
+        for t in range(m):
+            y, _w = _torque_pu_one(p[t], fw, ag, sr)
+            speed = (y * (-sr) + 1.0) * ns
+            if speed <= 0.0:
+                return 1
+            p_out[i, t] = p[t]
+            n_out[i, t] = speed
+    return 0
+
+
 def shaft_from_input_kw(params: InductionParams, p_in_kw):
     """Shaft power that makes the motor draw a given (measured) input power.
 

@@ -355,8 +355,12 @@ def _speed_controlled(arr, load: _Load) -> tuple[np.ndarray, np.ndarray]:
     return np.where(load.running, p_new, 0.0), speed_frac
 
 
-def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None) -> tuple[np.ndarray, np.ndarray]:
-    """Shaft power and speed of a replacement machine on the same driven machine."""
+def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None,
+             new_motor: induction.InductionParams | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Shaft power and speed of a replacement machine on the same driven machine.
+
+    With ``new_motor`` (new induction motors whose speed is ``speed_of_new``) the coupled load is solved
+    by :func:`models.induction.coupled_load_kw`, the generic solver's values in one compiled pass."""
     if remedy in ("trim_or_pulley", "speed_control"):
         speed = fixed_speed_rpm if fixed_speed_rpm is not None else speed_of_new(load.p_ref_kw)
         return load.p_ref_kw, np.broadcast_to(speed, load.p_ref_kw.shape) * load.running
@@ -365,6 +369,9 @@ def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None) 
         p_new = loads.shaft_power_at_speed_kw(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
                                               np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape), exponent)
         speed = np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape)
+    elif new_motor is not None and load.p_ref_kw.ndim == 2:
+        p_new, speed = induction.coupled_load_kw(new_motor, load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
+                                                 exponent, max_iterations=loads.MAX_COUPLING_ITERATIONS)
     else:
         solved = loads.solve_speed_coupled_load(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
                                                 speed_of_new, np.broadcast_to(exponent, load.p_ref_kw.shape))
@@ -497,7 +504,8 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])
     # the coupling keeps the load >= 0 (checked once on entry), so the speed needs no sign test per pass
-    shaft, _ = _coupled(arr, load, lambda p: induction._speed_rpm_unchecked(new, p), option["speed_remedy"])
+    shaft, _ = _coupled(arr, load, lambda p: induction._speed_rpm_unchecked(new, p), option["speed_remedy"],
+                        new_motor=new)
     return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
@@ -1104,7 +1112,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         bad = np.flatnonzero(~ok)
         load_b, arr_b, existing_b = load.rows(sub[bad]), _take(arr_s, bad), _take_params(existing_s, bad)
         if load_b.p_ref_kw.shape[1] >= 8 * FINE_TABLE_NODES:
-            fine = tabulation.locate(load_b.p_ref_kw, load_b.running, interval_h, FINE_TABLE_NODES)
+            # the coarse grid's placing refined (the same bits as placing the loads afresh, without cube roots)
+            fine = tabulation.refine(grid, sub[bad], (FINE_TABLE_NODES - 1) // (TABLE_NODES - 1), interval_h)
+            if fine is None:
+                fine = tabulation.locate(load_b.p_ref_kw, load_b.running, interval_h, FINE_TABLE_NODES)
             fine_load = _grid_load(existing_b, load_b, fine)
             if grid_load.controlled is not None:
                 fine_load.controlled = _speed_controlled(arr_b, fine_load)

@@ -557,3 +557,49 @@ class TestCompiledTorqueAndSpeed:
         assert isinstance(out, pd.DataFrame)
         # rated load gives rated speed (calibration, hand check: 1465 and 1475 rpm); no load gives n_s (1 - s_r y0)
         assert_allclose(out.iloc[0].to_numpy(), [1465.0, 1475.0], rtol=1e-12)
+
+
+class TestCoupledLoadCompiled:
+    """The compiled speed-coupled load of new induction motors gives the generic solver's values bit for
+    bit (the generic fixed point of models.loads is the rule; an invariant of our own design)."""
+
+    @settings(max_examples=40, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 40))
+    def test_same_bits_as_the_generic_solver(self, seed, n, m):
+        from models import induction as im
+        from models.loads import solve_speed_coupled_load
+
+        rng = np.random.default_rng(seed)
+        rated = rng.uniform(0.75, 2000.0, n)
+        motors = im.calibrate_induction(rated, rng.uniform(0.90, 0.96, n), rng.uniform(0.75, 0.92, n),
+                                        1500.0 * (1.0 - rng.uniform(0.005, 0.015, n)), np.full(n, 1500.0))
+        p_ref = rated[:, None] * rng.uniform(0.0, 1.2, (n, m))
+        p_ref[rng.random((n, m)) < 0.1] = 0.0
+        if seed % 4 == 0:
+            p_ref[0, 0] = np.nan  # missing data propagates
+        n_ref = 1500.0 * (1.0 - rng.uniform(0.0, 0.05, (n, m)))
+        k = rng.choice([1.0, 2.0, 2.5, 3.0], n)[:, None]
+        p, speed = im.coupled_load_kw(motors, p_ref, n_ref, k)
+        rule = solve_speed_coupled_load(p_ref, n_ref, lambda x: im._speed_rpm_unchecked(motors, x),
+                                        np.broadcast_to(k, p_ref.shape))
+        assert_array_equal(p, rule.shaft_p_kw)
+        assert_array_equal(speed, rule.speed_rpm)
+
+    def test_hand_calculation_of_one_pump(self):
+        # the fixed point's own equation: a cube-law load of 30 kW at 1475 rpm on a new motor of 1485 rpm
+        # rated speed must satisfy P = 30 (n(P)/1475)^3 at the result, to the solver's 1e-9 kW
+        from models import induction as im
+
+        motor = im.calibrate_induction(np.array([37.0]), np.array([0.95]), np.array([0.86]), np.array([1485.0]),
+                                       np.array([1500.0]))
+        p, speed = im.coupled_load_kw(motor, np.array([[30.0]]), 1475.0, 3.0)
+        assert_allclose(p, 30.0 * (speed / 1475.0) ** 3, rtol=0, atol=1e-9)
+        assert speed[0, 0] > 1475.0 and p[0, 0] > 30.0  # the faster motor draws more
+
+    def test_no_convergence_is_refused(self):
+        from models import induction as im
+
+        motor = im.calibrate_induction(np.array([37.0]), np.array([0.95]), np.array([0.86]), np.array([1485.0]),
+                                       np.array([1500.0]))
+        with pytest.raises(ValueError, match="did not converge"):
+            im.coupled_load_kw(motor, np.array([[30.0]]), 1475.0, 3.0, max_iterations=1)
