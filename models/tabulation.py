@@ -50,6 +50,9 @@ class Grid:
         Per cell: the hours of its intervals, and those hours each times its position [h] (zero cell last).
     position_finite : numpy.ndarray of bool, shape (n_assets,), optional
         Whether every position of the row is finite (noted while placing; None: not known, to be checked).
+    u_span : tuple of two numpy.ndarray, shape (n_assets,) each, optional
+        Each row's smallest and largest grid variable u = p^(1/3) (set by :func:`locate`; what
+        :func:`refine` needs).
     """
 
     p_grid_kw: np.ndarray
@@ -58,6 +61,7 @@ class Grid:
     hours_h: np.ndarray
     moment_h: np.ndarray
     position_finite: np.ndarray | None = None
+    u_span: tuple[np.ndarray, np.ndarray] | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -110,6 +114,12 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
     finite = np.empty(n, dtype=bool)
     # u = cbrt(p) row by row into a scratch row that stays in cache while the same pass places the row
     _locate_rows(p_kw, running, n_nodes, u_lo, u_hi, cell, position, count, moment, finite, np.empty(m))
+    return _grid(u_lo, u_hi, cell, position, count, moment, finite, interval_h)
+
+
+def _grid(u_lo, u_hi, cell, position, count, moment, finite, interval_h: float) -> Grid:
+    """The :class:`Grid` of placed rows: nodes from each row's span, hours and moments from the counts."""
+    n_nodes = count.shape[1]
     cols = np.arange(2 * n_nodes - 1) / 2.0
     with np.errstate(invalid="ignore", over="ignore"):  # (a row with an infinite load gets NaN nodes)
         step = (u_hi - u_lo) / (n_nodes - 1)
@@ -119,7 +129,74 @@ def locate(p_kw: np.ndarray, running: np.ndarray, interval_h: float, n_nodes: in
     hours = count * float(interval_h)
     moment *= float(interval_h)
     hours[:, -1] = 0.0
-    return Grid(p_grid, cell, position, hours, moment, finite)
+    return Grid(p_grid, cell, position, hours, moment, finite, (u_lo, u_hi))
+
+
+def refine(grid: Grid, rows: np.ndarray, factor: int, interval_h: float) -> Grid | None:
+    """The grid of ``factor`` x as many cells for some rows of a grid, from its placing alone.
+
+    Parameters
+    ----------
+    grid : Grid
+        A grid made by :func:`locate`.
+    rows : numpy.ndarray of int
+        Its rows to refine.
+    factor : int
+        Cells of the new grid per cell of ``grid``, a power of 2.
+    interval_h : float
+        Hours each interval stands for [h] (as given to :func:`locate`).
+
+    Returns
+    -------
+    Grid or None
+        ``locate(p[rows], running[rows], interval_h, factor (n_nodes - 1) + 1)`` bit for bit, without a
+        cube root or a pass over the loads; None where it cannot be had so (a row with a load that is
+        not finite, a grid without its spans, or a factor that is not a power of 2).
+
+    Notes
+    -----
+    The new width is the old one over ``factor``, a power of 2, so both divisions are exact scalings:
+    the new coordinate is x' = factor (j + position) exactly (j + position = x exactly, the position
+    being x - j with no rounding), and its cell and position follow as :func:`locate` takes them.
+    """
+    rows = np.asarray(rows, dtype=np.intp)
+    if (grid.u_span is None or grid.position_finite is None or factor < 1 or factor & (factor - 1)
+            or not grid.position_finite[rows].all()):
+        return None
+    n_nodes = factor * (grid.n_nodes - 1) + 1
+    m = grid.cell.shape[1]
+    cell = np.empty((len(rows), m), dtype=np.uint8 if n_nodes <= 256 else np.int32)
+    position = np.empty((len(rows), m))
+    count = np.zeros((len(rows), n_nodes))
+    moment = np.zeros((len(rows), n_nodes))
+    _refine_rows(grid.cell, grid.position_frac, rows, grid.n_nodes, factor, cell, position, count, moment)
+    return _grid(grid.u_span[0][rows], grid.u_span[1][rows], cell, position, count, moment,
+                 np.ones(len(rows), dtype=bool), interval_h)
+
+
+@numba.njit(nogil=True, cache=True)
+def _refine_rows(cell_in, position_in, rows, n_in, factor, cell, position, count, moment):  # pragma: no cover - compiled
+    """:func:`refine`'s pass: each interval's coordinate scaled and placed as :func:`_locate_rows` places it."""
+    top_in = n_in - 1
+    n_nodes = factor * top_in + 1
+    top = n_nodes - 1
+    for k in range(rows.shape[0]):
+        i = rows[k]
+        for t in range(cell_in.shape[1]):
+            j_in = cell_in[i, t]
+            if j_in == top_in:  # not running: the zero cell
+                cell[k, t] = top
+                position[k, t] = 0.0
+                count[k, top] += 1.0
+            else:
+                x = (j_in + position_in[i, t]) * factor
+                x = min(max(x, 0.0), float(top))
+                j = min(int(x), n_nodes - 2)
+                x = x - j
+                cell[k, t] = j
+                position[k, t] = x
+                count[k, j] += 1.0
+                moment[k, j] += x
 
 
 #: Added to a positive float64's bits divided by 3: the bits of a first guess of its cube root within

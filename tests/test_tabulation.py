@@ -521,3 +521,30 @@ class TestBlocksReadThroughTheirBook:
                                     written.technologies, 35.0)
             for name, values in expected.items():
                 assert np.array_equal(part[name], values, equal_nan=True), f"{site_id} {name}"
+
+
+class TestRefine:
+    @settings(max_examples=60, deadline=None)
+    @given(st.integers(0, 2**32 - 1), st.integers(2, 70), st.sampled_from([1, 2, 4, 8]), st.integers(1, 5),
+           st.integers(1, 60))
+    def test_refined_placing_is_a_fresh_placing_bit_for_bit(self, seed, n_nodes, factor, n_rows, n_steps):
+        # placing the same loads afresh on the finer grid is the reference (an invariant of our own design)
+        rng = np.random.default_rng(seed)
+        p = rng.uniform(0.0, 1e3, (n_rows, n_steps)) ** rng.uniform(0.5, 3.0)
+        p[rng.random(p.shape) < 0.2] = 0.0
+        p[0, :] = 0.0 if seed % 3 == 0 else p[0, 0]
+        running = p > 0
+        coarse = tabulation.locate(p, running, 0.25, n_nodes)
+        rows = np.flatnonzero(rng.random(n_rows) < 0.7)
+        fine = tabulation.refine(coarse, rows, factor, 0.25)
+        fresh = tabulation.locate(p[rows], running[rows], 0.25, factor * (n_nodes - 1) + 1)
+        for name in ("p_grid_kw", "cell", "position_frac", "hours_h", "moment_h", "position_finite"):
+            assert_array_equal(getattr(fine, name), getattr(fresh, name), err_msg=name)
+        assert fine.cell.dtype == fresh.cell.dtype
+
+    def test_not_refined_without_what_it_needs(self):
+        p = np.array([[1.0, np.inf, 8.0], [1.0, 2.0, 3.0]])
+        g = tabulation.locate(p, p > 0, 1.0, 5)
+        assert tabulation.refine(g, np.array([0]), 4, 1.0) is None  # an infinite load
+        assert tabulation.refine(g, np.array([1]), 3, 1.0) is None  # not a power of 2
+        assert tabulation.refine(g, np.array([1]), 4, 1.0) is not None
