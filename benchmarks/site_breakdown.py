@@ -28,7 +28,7 @@ sys.path.insert(0, str(ROOT))
 #: Functions timed by name (module, name): the passes between the models.
 TIMED = (("operation", "_reference_load"), ("operation", "_grid_load"), ("operation", "_speed_controlled"),
          ("operation", "asset_loads"), ("operation", "_site_other"), ("operation", "_tabulation_holds"),
-         ("operation", "_whole"), ("tabulation", "locate"), ("tabulation", "interpolate_pair"),
+         ("operation", "_whole"), ("tabulation", "locate"), ("tabulation", "refine"), ("tabulation", "interpolate_pair"),
          ("tabulation", "weighted_sums"), ("tabulation", "signed_sums"), ("tabulation", "tables"))
 
 

@@ -271,28 +271,25 @@ def _locate_rows(p, running, n_nodes, u_lo, u_hi, cell, position, count, moment,
         width = (hi - lo) / (n_nodes - 1)
         if not width > 0.0:
             width = 1.0
-        ok = True
+        # every interval's cell and position, without a branch (the loop runs on vector registers); an
+        # infinite load has no cell to be placed in: the zero cell at position NaN, the row not finite
+        bad = 0
         for t in range(m):
-            if running[i, t]:
-                x = (u[t] - lo) / width
-                if not np.isfinite(x):  # an infinite load: no cell to place it in; the row is marked not finite
-                    cell[i, t] = top
-                    position[i, t] = np.nan
-                    count[i, top] += 1.0
-                    ok = False
-                    continue
-                x = min(max(x, 0.0), float(top))
-                j = min(int(x), n_nodes - 2)
-                x = x - j
-                cell[i, t] = j
-                position[i, t] = x
-                count[i, j] += 1.0
-                moment[i, j] += x
-            else:
-                cell[i, t] = top
-                position[i, t] = 0.0
-                count[i, top] += 1.0
-        finite[i] = ok
+            run = running[i, t]
+            x = (u[t] - lo) / width
+            good = x - x == 0.0  # (finite)
+            bad += run and not good
+            x = min(max(x if good else 0.0, 0.0), float(top))
+            j = min(int(x), n_nodes - 2)
+            cell[i, t] = j if (run and good) else top
+            position[i, t] = (x - j) if (run and good) else (np.nan if run else 0.0)
+        # then the sums per cell, interval by interval in order (the zero cell gets counts only)
+        for t in range(m):
+            j = cell[i, t]
+            count[i, j] += 1.0
+            if j != top:
+                moment[i, j] += position[i, t]
+        finite[i] = bad == 0
 
 
 def tables(values_on_grid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -309,3 +309,19 @@ class TestSpeedRiseEffect:
     def test_mismatched_shapes_raise(self):
         with pytest.raises(ValueError, match="same shape"):
             speed_rise_effect(np.ones(3), np.ones(4))
+
+
+class TestRatioPower:
+    def test_cube_and_first_power_and_others(self):
+        # numpy.power as reference: within an ulp for the cube, exact for the first power and others
+        from models.loads import ratio_power
+
+        ratio = np.random.default_rng(3).uniform(0.5, 1.5, (4, 1000))
+        k = np.array([[3.0], [1.0], [2.5], [3.0]])
+        out = ratio_power(ratio, k)
+        assert_allclose(out, np.power(ratio, k), rtol=2.3e-16 * 2, atol=0)
+        np.testing.assert_array_equal(out[1], ratio[1])
+        np.testing.assert_array_equal(out[2], np.power(ratio[2], 2.5))
+        np.testing.assert_array_equal(out[0], ratio[0] * ratio[0] * ratio[0])
+        assert ratio_power(1.5, 3.0) == 3.375  # hand calculation: 1.5^3 = 3.375 exactly
+        assert ratio_power(np.array([2.0]), np.array([[3.0], [1.0]])).tolist() == [[8.0], [2.0]]
