@@ -210,16 +210,16 @@ def cube_root_row(p, out):  # pragma: no cover - compiled
 
     A first guess from the bits of each positive normal value (its exponent divided by 3), then three
     Halley steps y <- y (y^3 + 2 p) / (2 y^3 + p), which triple the correct digits each (4e-2, 1e-5,
-    1e-15, then rounding); zero, negative, tiny (below 1e-200), huge (above 1e200) and non-finite values take ``numpy.cbrt``
-    itself. About 4x as fast as ``numpy.cbrt``, whose libm call is exact to the last place but is the
-    slowest step of placing a year of loads.
+    1e-15, then rounding); zero, negative, tiny (below 1e-200), huge (above 1e200) and non-finite values
+    take ``numpy.cbrt`` itself. About 4x as fast as ``numpy.cbrt``, whose libm call is exact to the last
+    place but was the slowest step of placing a year of loads.
 
     References
     ----------
     .. [1] W. Kahan, "Computing a real cube root," unpublished notes, University of California, Berkeley,
        1991 (the first guess from the exponent's bits).
     .. [2] J. F. Traub, *Iterative Methods for the Solution of Equations*. Englewood Cliffs, NJ:
-       Prentice-Hall, 1964, sec. 5 (Halley's method, third order).
+       Prentice-Hall, 1964 (Halley's method, third order; cited from memory).
     """
     guess = out.view(np.uint64)
     for t in range(p.shape[0]):  # values out of range take 1 here (a zero would make the steps subnormal, slow)
