@@ -25,6 +25,16 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
 from synthetic_fleet import write_fleet  # noqa: E402
 
 
+def _random_loads(seed: int, n_rows: int, n_steps: int):
+    """(generator, loads [kW], running) of random rows: a fifth of the intervals stopped, the first row
+    never running or constant."""
+    rng = np.random.default_rng(seed)
+    p = rng.uniform(0.0, 1e3, (n_rows, n_steps)) ** rng.uniform(0.5, 3.0)
+    p[rng.random(p.shape) < 0.2] = 0.0
+    p[0, :] = 0.0 if seed % 3 == 0 else p[0, 0]
+    return rng, p, p > 0
+
+
 class TestGrid:
     def test_two_nodes_between_one_and_eight_kw(self):
         # hand calculation T1: nodes at u = 1, 2 (p = 1, 8), midpoint u = 1.5 (p = 3.375)
@@ -119,11 +129,7 @@ class TestGrid:
         # never run and constant rows included; its cube root is within 4 units in the last place of
         # numpy.cbrt's (test_cube_root_row), so an interval's coordinate x = cell + position agrees to
         # 1e-9 and its cell wherever x is not within that of a cell boundary
-        rng = np.random.default_rng(seed)
-        p = rng.uniform(0.0, 1e3, (n_rows, n_steps)) ** rng.uniform(0.5, 3.0)
-        p[rng.random(p.shape) < 0.2] = 0.0
-        p[0, :] = 0.0 if seed % 3 == 0 else p[0, 0]
-        running = p > 0
+        rng, p, running = _random_loads(seed, n_rows, n_steps)
         g = tabulation.locate(p, running, 0.5, n_nodes)
         u = np.cbrt(p)
         u_lo = np.where(running, u, np.inf).min(axis=1)
@@ -529,11 +535,7 @@ class TestRefine:
            st.integers(1, 60))
     def test_refined_placing_is_a_fresh_placing_bit_for_bit(self, seed, n_nodes, factor, n_rows, n_steps):
         # placing the same loads afresh on the finer grid is the reference (an invariant of our own design)
-        rng = np.random.default_rng(seed)
-        p = rng.uniform(0.0, 1e3, (n_rows, n_steps)) ** rng.uniform(0.5, 3.0)
-        p[rng.random(p.shape) < 0.2] = 0.0
-        p[0, :] = 0.0 if seed % 3 == 0 else p[0, 0]
-        running = p > 0
+        rng, p, running = _random_loads(seed, n_rows, n_steps)
         coarse = tabulation.locate(p, running, 0.25, n_nodes)
         rows = np.flatnonzero(rng.random(n_rows) < 0.7)
         fine = tabulation.refine(coarse, rows, factor, 0.25)
