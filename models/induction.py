@@ -692,16 +692,28 @@ def _speed_of(p: np.ndarray, get: Callable[[str], np.ndarray]) -> np.ndarray:
 
 @numba.njit(nogil=True, cache=True, error_model="numpy")
 def _speed_rows(p, p_fw, p_ag_r, s_r, n_s, out):  # pragma: no cover - compiled
-    """:func:`_speed_rpm_unchecked`'s pass: :func:`_torque_rows`' y, then n = ((y (-s_r)) + 1) n_s, in order."""
+    """:func:`_speed_rpm_unchecked`'s pass: :func:`_speed_one` element by element."""
     n, m = out.shape
     for i in range(n):
         for t in range(m):
-            y, _ = _torque_pu_one(p[i, t], p_fw[i, t], p_ag_r[i, t], s_r[i, t])
-            out[i, t] = (y * (-s_r[i, t]) + 1.0) * n_s[i, t]
+            out[i, t] = _speed_one(p[i, t], p_fw[i, t], p_ag_r[i, t], s_r[i, t], n_s[i, t])
+
+
+@numba.njit(inline="always", error_model="numpy")
+def _speed_one(p, p_fw, p_ag_r, s_r, n_s):  # pragma: no cover - compiled
+    """One motor's speed at a shaft load: :func:`_torque_pu_one`'s y, then n = ((y (-s_r)) + 1) n_s, in order."""
+    y, _ = _torque_pu_one(p, p_fw, p_ag_r, s_r)
+    return (y * (-s_r) + 1.0) * n_s
+
+
+#: Fixed-point passes allowed in a speed-coupled load (:func:`coupled_load_kw` and
+#: :func:`models.loads.solve_speed_coupled_load`).
+MAX_COUPLING_ITERATIONS = 50
 
 
 def coupled_load_kw(params: InductionParams, ref_shaft_p_kw: np.ndarray, ref_speed_rpm, speed_exponent,
-                    tol_kw: float = 1e-9, max_iterations: int = 50) -> tuple[np.ndarray, np.ndarray]:
+                    tol_kw: float = 1e-9,
+                    max_iterations: int = MAX_COUPLING_ITERATIONS) -> tuple[np.ndarray, np.ndarray]:
     """Shaft load and speed of new induction motors on the driven machines of today's, in one compiled pass.
 
     :func:`models.loads.solve_speed_coupled_load` with ``speed_of_new`` the motors' own speed
@@ -721,7 +733,7 @@ def coupled_load_kw(params: InductionParams, ref_shaft_p_kw: np.ndarray, ref_spe
     tol_kw : float, optional
         Convergence tolerance on the shaft power [kW], scaled per element by max(1, its reference power).
     max_iterations : int, optional
-        Passes allowed (:data:`models.loads.MAX_COUPLING_ITERATIONS`).
+        Passes allowed (default :data:`MAX_COUPLING_ITERATIONS`).
 
     Returns
     -------
@@ -744,6 +756,7 @@ def coupled_load_kw(params: InductionParams, ref_shaft_p_kw: np.ndarray, ref_spe
     """
     p_ref = np.ascontiguousarray(ref_shaft_p_kw, dtype=float)
     n, m = p_ref.shape
+
     def per_row(value):
         return np.ascontiguousarray(np.broadcast_to(np.asarray(value, dtype=float).reshape(-1), (n,)))
 
@@ -795,8 +808,7 @@ def _coupled_rows(p_ref, n_ref, k_, p_fw_, p_ag_r_, s_r_, n_s_, tol, max_iterati
         for _ in range(max_iterations):
             bad = 0
             for t in range(m):
-                y, _w = _torque_pu_one(p[t], fw, ag, sr)
-                speed = (y * (-sr) + 1.0) * ns
+                speed = _speed_one(p[t], fw, ag, sr, ns)
                 bad += speed <= 0.0
                 ratio[t] = speed / n_ref[i, t]
             if bad:
@@ -815,8 +827,7 @@ def _coupled_rows(p_ref, n_ref, k_, p_fw_, p_ag_r_, s_r_, n_s_, tol, max_iterati
         if not converged:
             return 2
         for t in range(m):
-            y, _w = _torque_pu_one(p[t], fw, ag, sr)
-            speed = (y * (-sr) + 1.0) * ns
+            speed = _speed_one(p[t], fw, ag, sr, ns)
             if speed <= 0.0:
                 return 1
             p_out[i, t] = p[t]

@@ -18,7 +18,7 @@ from typing import Any, Callable, Literal
 import numpy as np
 import pandas as pd
 
-from models.induction import _forbid, _require, _unwrap
+from models.induction import MAX_COUPLING_ITERATIONS, _forbid, _require, _unwrap
 
 LoadType = Literal["variable_torque", "constant_torque"]
 Remedy = Literal["none", "trim_or_pulley", "speed_control"]
@@ -33,8 +33,6 @@ DEFAULT_THROTTLED_ZERO_FLOW_POWER_FRAC = 0.4
 #: Pump shut-off head as a multiple of the design head [pu]. Common practice (value from memory):
 #: 1.1-1.3 for radial-flow pumps with a stable (rising-to-shut-off) curve.
 DEFAULT_SHUTOFF_HEAD_PU = 1.2
-#: Fixed-point iterations allowed in :func:`solve_speed_coupled_load`.
-MAX_COUPLING_ITERATIONS = 50
 
 
 @dataclass(frozen=True)

@@ -371,7 +371,7 @@ def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None,
         speed = np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape)
     elif new_motor is not None and load.p_ref_kw.ndim == 2:
         p_new, speed = induction.coupled_load_kw(new_motor, load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
-                                                 exponent, max_iterations=loads.MAX_COUPLING_ITERATIONS)
+                                                 exponent)
     else:
         solved = loads.solve_speed_coupled_load(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
                                                 speed_of_new, np.broadcast_to(exponent, load.p_ref_kw.shape))

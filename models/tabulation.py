@@ -187,16 +187,13 @@ def _refine_rows(cell_in, position_in, rows, n_in, factor, cell, position, count
             if j_in == top_in:  # not running: the zero cell
                 cell[k, t] = top
                 position[k, t] = 0.0
-                count[k, top] += 1.0
             else:
                 x = (j_in + position_in[i, t]) * factor
                 x = min(max(x, 0.0), float(top))
                 j = min(int(x), n_nodes - 2)
-                x = x - j
                 cell[k, t] = j
-                position[k, t] = x
-                count[k, j] += 1.0
-                moment[k, j] += x
+                position[k, t] = x - j
+        _sum_cells(cell[k], position[k], top, count[k], moment[k])
 
 
 #: Added to a positive float64's bits divided by 3: the bits of a first guess of its cube root within
@@ -283,13 +280,19 @@ def _locate_rows(p, running, n_nodes, u_lo, u_hi, cell, position, count, moment,
             j = min(int(x), n_nodes - 2)
             cell[i, t] = j if (run and good) else top
             position[i, t] = (x - j) if (run and good) else (np.nan if run else 0.0)
-        # then the sums per cell, interval by interval in order (the zero cell gets counts only)
-        for t in range(m):
-            j = cell[i, t]
-            count[i, j] += 1.0
-            if j != top:
-                moment[i, j] += position[i, t]
+        _sum_cells(cell[i], position[i], top, count[i], moment[i])
         finite[i] = bad == 0
+
+
+@numba.njit(inline="always")
+def _sum_cells(cell, position, top, count, moment):  # pragma: no cover - compiled
+    """A placed row's hours (counted) and moments per cell, interval by interval in order, as
+    ``numpy.bincount`` sums them; the zero cell ``top`` gets counts only."""
+    for t in range(cell.shape[0]):
+        j = cell[t]
+        count[j] += 1.0
+        if j != top:
+            moment[j] += position[t]
 
 
 def tables(values_on_grid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
