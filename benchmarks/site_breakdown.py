@@ -36,6 +36,9 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("fleet", help="a case folder (e.g. one written by benchmarks/synthetic_fleet.py)")
     parser.add_argument("--sites", type=int, default=3, help="sites timed after the warm-up (default 3)")
+    parser.add_argument("--also", nargs="*", default=[], metavar="MODULE.FUNCTION",
+                        help="more functions of models/ to time by name, e.g. synchronous.wfsm_operating_point "
+                             "(called through their module; a function imported by name elsewhere is not seen)")
     args = parser.parse_args(argv)
 
     from models import operation, scenario, tabulation
@@ -54,9 +57,13 @@ def main(argv: list[str] | None = None) -> int:
     scenario.site_physics(site_case(case, partition[-1][0]), index, 40.0, None, {}, True)  # compile and warm up
 
     acc: dict[tuple[str, int], list[float]] = collections.defaultdict(lambda: [0.0, 0, 0])
-    modules = {"operation": operation, "tabulation": tabulation}
+    import importlib
+
+    timed_names = list(TIMED) + [tuple(name.rsplit(".", 1)) for name in args.also]
+    modules = {m: importlib.import_module(f"models.{m}") for m, _ in timed_names}
+    modules.update({"operation": operation, "tabulation": tabulation})
     originals = {("operation", "_evaluate"): operation._evaluate}
-    originals.update({(m, n): getattr(modules[m], n) for m, n in TIMED})
+    originals.update({(m, n): getattr(modules[m], n) for m, n in timed_names})
 
     def evaluate(option, arr, existing, load, site_other=None):
         t0 = time.perf_counter()
@@ -80,7 +87,7 @@ def main(argv: list[str] | None = None) -> int:
         return wrapper
 
     operation._evaluate = evaluate
-    for key in TIMED:
+    for key in timed_names:
         setattr(modules[key[0]], key[1], timed(key))
     stage: dict[str, float] = {}
     try:
