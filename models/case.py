@@ -546,10 +546,12 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         quantity = present[0]
         qh = header(quantity)
         v = values[quantity][idx]
-        _listed(problems, np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy()),
-                lambda j: error(source, int(rows[idx[j]]), qh, None, f"profile '{profile_id}' has a blank value",
-                                "fill the gap or delete the row"),
-                lambda n: error(source, None, qh, None, f"{n} more blank values in '{profile_id}'"))
+        blank = np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy())
+        if len(blank):  # an interval without a value is a missing interval: filled the same way, with a warning
+            problems.append(warning(source, int(rows[idx[blank[0]]]), qh, None,
+                                    f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row",
+                                    "blank intervals are filled from the same weekday and time of day, as missing "
+                                    "intervals are; enter the readings where they exist"))
         _listed(problems, np.flatnonzero(v < 0),
                 lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), "values must not be negative"),
                 lambda n: error(source, None, qh, None, f"{n} more negative values in '{profile_id}'"))

@@ -7,11 +7,13 @@ import hashlib
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
 import casebuilder as cb
 from models.case import load_case
+from models.profiles import conform
 from models.problems import CaseError
 
 
@@ -225,6 +227,23 @@ class TestProfileRules:
         case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
         assert case is not None
         assert "misses 3 interval" in _find(problems, file="profiles.csv", severity="warning", text="misses").rule
+
+    def test_blank_values_warned_and_filled_like_missing_intervals(self, tmp_path):
+        # three weeks of hourly rows from Thursday 2 January 2025; the value of Thursday 9 January 10:00
+        # (data row 24 * 7 + 10 = 178, line 180 with the header) left blank
+        rows = cb.profile_rows(24 * 21)
+        rows[24 * 7 + 10][2] = ""
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is not None, [str(p) for p in _errors(problems)]
+        p = _find(problems, file="profiles.csv", severity="warning", text="blank value")
+        assert p.row == 180 and p.column == "shaft_load_pct" and "1 blank value" in p.rule
+        series = case.profiles["LP1"]
+        values, filled_frac = conform(series, pd.DatetimeIndex(series.index))
+        # hand calculation: the same weekday and hour in the other weeks are rows 10 and 24 * 14 + 10 = 346 of
+        # casebuilder.profile_rows, 60 + (10 % 5) * 5 = 60 and 60 + (346 % 5) * 5 = 65 %; their mean 62.5 %
+        assert values[24 * 7 + 10] == pytest.approx(62.5, abs=1e-12)
+        assert filled_frac == pytest.approx(1 / (24 * 21), abs=1e-15)
+        assert np.isfinite(values).all()
 
     def test_timestamp_off_the_grid_named_at_its_own_row(self, tmp_path):
         # an hourly profile with one stamp moved to 20:07: that row (data row 21, line 22 with the header) and
