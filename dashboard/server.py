@@ -11,6 +11,7 @@ from __future__ import annotations
 import ipaddress
 import logging
 import os
+import socket
 import sys
 import threading
 import webbrowser
@@ -70,6 +71,25 @@ def _open_browser_later(url: str, delay_s: float = 1.5) -> None:
     timer.start()
 
 
+def port_in_use(host: str, port: int) -> str | None:
+    """Why ``host:port`` cannot be listened on (e.g. another program holds it), or None when it can.
+
+    A socket is bound and closed at once, with the address reuse the server itself asks for, so a port
+    left in TIME_WAIT by a previous run is free and one another server listens on is not."""
+    try:
+        infos = socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
+    except (OSError, UnicodeError) as exc:
+        return f"the address {host!r} cannot be resolved ({exc})"
+    family, _, _, _, address = infos[0]
+    with socket.socket(family, socket.SOCK_STREAM) as probe:
+        probe.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        try:
+            probe.bind(address)
+        except OSError as exc:
+            return exc.strerror or str(exc)
+    return None
+
+
 def _print_problems(problems) -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
@@ -115,6 +135,11 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     warning = network_warning(host)
     if warning:
         print(warning)
+    busy = port_in_use(host, port)
+    if busy:
+        print(f"drivecase serve: cannot listen on {url_for(host, port)}: {busy}. Another program (perhaps another "
+              f"drivecase serve) uses the port; stop it or choose another with --port.", file=sys.stderr)
+        return 1
     if debug:
         print("WARNING: debug mode is on: the web framework's debugger can run code sent from the browser. "
               "Use it only while developing, on 127.0.0.1.")
@@ -142,8 +167,11 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
         app.run(host=host, port=port, debug=debug, use_reloader=False, dev_tools_hot_reload=False)
     except KeyboardInterrupt:
         pass
-    except (OSError, SystemExit) as exc:
-        print(f"drivecase serve: cannot listen on {url}: {exc}", file=sys.stderr)
+    except OSError as exc:
+        print(f"drivecase serve: cannot listen on {url}: {exc.strerror or exc}", file=sys.stderr)
+        return 1
+    except SystemExit:  # the server gave up (its own message is printed above)
+        print(f"drivecase serve: cannot listen on {url}.", file=sys.stderr)
         return 1
     print("Dashboard stopped.")
     return 0

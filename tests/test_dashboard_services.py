@@ -548,7 +548,7 @@ class TestServer:
         out = capsys.readouterr().out
         assert "row 2" in out and "rated_p_kw" in out
 
-    def test_busy_port_returns_1_after_printing_the_address(self, small_case_dir, capsys, monkeypatch):
+    def test_busy_port_returns_1_with_one_clear_message(self, small_case_dir, capsys, monkeypatch):
         import socket
 
         monkeypatch.setattr(services, "_ENGINE", None)
@@ -558,10 +558,12 @@ class TestServer:
             port = busy.getsockname()[1]
             assert server.serve(small_case_dir, port=port, open_browser=False) == 1
         captured = capsys.readouterr()
-        assert f"Dashboard on http://127.0.0.1:{port}" in captured.out
-        assert "qualified persons" in captured.out  # the caution every command prints
+        # checked before the server starts: no "Dashboard on" line that would say it runs, one error naming the port
+        assert "Dashboard on" not in captured.out
         assert "WARNING" not in captured.out  # loopback by default: no network warning
-        assert "cannot listen" in captured.err
+        assert f"cannot listen on http://127.0.0.1:{port}" in captured.err and "--port" in captured.err
+        assert ": 1" not in captured.err
+        assert server.port_in_use("127.0.0.1", port) is None  # free again once its holder closed it
 
 
 def test_pack_download_holds_the_workbook_report_and_records(engine):

@@ -153,6 +153,16 @@ class TestDemoRun:
         ok = r["capital"] > 0
         assert (r.loc[ok, "discounted_payback_yr"] >= r.loc[ok, "simple_payback_yr"] - 1e-9).all()
 
+    def test_adjusted_irr_blank_where_savings_are_not_positive(self, result, demo_case):
+        # NIST Handbook 135: AIRR = (1 + d) SIR^(1/n) - 1, defined for SIR > 0 (SIR <= 0 would read -100 %)
+        r = result.results
+        d, n = demo_case.finance.discount_rate_frac, demo_case.finance.horizon_yr
+        not_positive = r["sir"].to_numpy(dtype=float) <= 0
+        assert not_positive.any() and r.loc[not_positive, "airr_frac"].isna().all()
+        positive = r["sir"].to_numpy(dtype=float) > 0
+        finite = positive & np.isfinite(r["sir"].to_numpy(dtype=float))
+        assert_allclose(r.loc[finite, "airr_frac"], (1 + d) * r.loc[finite, "sir"] ** (1 / n) - 1, rtol=1e-12)
+
     def test_keep_has_zero_npv_and_others_are_increments(self, result):
         keep = result.results[result.results["option_id"] == "keep"]
         assert_allclose(keep["npv"], 0.0, atol=1e-9)
