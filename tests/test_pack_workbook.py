@@ -167,6 +167,15 @@ class TestWorkbookOpens:
         assert "Bill saving [EUR/yr]" in headers and "NPV [EUR]" in headers and "Abatement cost [EUR/t]" in headers
 
 
+def test_plan_sheet_money_headers_name_the_currency(plan_pack):
+    ws = load_workbook(plan_pack)["Plan"]
+    headers = [r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "Plan year"]
+    assert len(headers) == 3  # the exact plan, the rank-order plan, the totals by plan year
+    for r in headers:
+        money = [c for c in range(1, ws.max_column + 1) if '"EUR"' in ws.cell(r + 1, c).number_format]
+        assert money and all("[EUR]" in ws.cell(r, c).value for c in money), [ws.cell(r, c).value for c in money]
+
+
 @pytest.fixture(scope="module")
 def values(asset_pack):
     """The asset pack's cells as the independent evaluator computes them (about 7 s, so once)."""

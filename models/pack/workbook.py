@@ -490,11 +490,12 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
     in_scope = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
     row = 3
     ranges = {}
+    cur = f.currency
     for name, frame in (("Exact plan", result.plan), ("Rank-order plan", result.plan_greedy)):
         put_text(ws, row, 1, name).font = _BOLD
         row += 1
-        _header(ws, row, ["Plan year", "Asset", "Option", "Label", "Capital", "NPV at its own start",
-                          "NPV at plan start (engine)", "NPV at plan start (formula)", "In this pack"])
+        _header(ws, row, ["Plan year", "Asset", "Option", "Label", f"Capital [{cur}]", f"NPV at its own start [{cur}]",
+                          f"NPV at plan start (engine) [{cur}]", f"NPV at plan start (formula) [{cur}]", "In this pack"])
         first = row + 1
         labels = result.results.set_index(["asset_id", "option_id"])["label"]
         for r in frame.sort_values(["start_yr", "asset_id"], kind="stable").itertuples(index=False):
@@ -515,9 +516,9 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
                    | set(range(len(result.assumptions.budget_per_yr))))
     put_text(ws, row, 1, "By plan year").font = _BOLD
     row += 1
-    _header(ws, row, ["Plan year", "Budget", "Exact: capital", "Exact: projects", "Exact: NPV at plan start",
-                      "Rank-order: capital", "Rank-order: projects", "Rank-order: NPV at plan start",
-                      "Exact: budget left"])
+    _header(ws, row, ["Plan year", f"Budget [{cur}]", f"Exact: capital [{cur}]", "Exact: projects",
+                      f"Exact: NPV at plan start [{cur}]", f"Rank-order: capital [{cur}]", "Rank-order: projects",
+                      f"Rank-order: NPV at plan start [{cur}]", f"Exact: budget left [{cur}]"])
     top = row + 1
     for year in years:
         row += 1
