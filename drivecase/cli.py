@@ -52,7 +52,10 @@ def cmd_new(args: argparse.Namespace) -> int:
         print(f"  {path}")
     # a workbook is checked by its own path; a folder of CSV tables by the folder
     target = written[0] if len(written) == 1 and str(written[0]).lower().endswith(".xlsx") else args.dir
-    print("Fill in assets and sites (one row each; each site names its tariff file in tariffs/, an invented example to replace is there), then run: drivecase check", target)
+    where = ("in a sheet named 'tariff <file>.toml'; an invented example to replace is in the workbook"
+             if target != args.dir else "in tariffs/; an invented example to replace is there")
+    print(f"Fill in assets and sites (one row each; each site names its tariff file, {where}), then run: "
+          f"drivecase check {target}")
     return 0
 
 

@@ -1485,8 +1485,11 @@ def finance_template() -> str:
             text = f'"{value}"'
         elif isinstance(value, tuple):
             text = "[" + ", ".join(f"{v:g}" for v in value) + "]"
-        elif isinstance(value, float) and math.isinf(value):
-            text = "inf"
+        elif isinstance(value, float) and math.isinf(value):  # no limit: the key is left out, its line commented
+            unit, meaning = FIELD_NOTES.get(field_.name, ("", ""))
+            lines.append(f"# {field_.name} =   # {meaning or field_.name}: none unless a number is written here"
+                         + (f" [{unit}]" if unit and unit != "-" else ""))
+            continue
         else:
             text = repr(float(value)) if isinstance(value, float) else str(value)
         unit, meaning = FIELD_NOTES.get(field_.name, ("", ""))

@@ -1066,6 +1066,8 @@ time_zone = "Europe/Berlin"
 
 #: The example tariff a new case folder starts with (an invented one from data/tariffs, to replace).
 BLANK_CASE_TARIFF = "example_tou_kw_reactive_ratchet.toml"
+#: Its file name in a new workbook (sheet "tariff example.toml": a sheet's name has at most 31 characters).
+BLANK_WORKBOOK_TARIFF = "example.toml"
 
 TABLE_NOTES: dict[str, str] = {
     "assets": "Asset register: one row per motor.",
@@ -1171,12 +1173,55 @@ def _write_blank_workbook(path: Path) -> Path:
         settings.append([key, value])
     for table in CASE_TABLES:
         sheet = book.create_sheet(table)
-        sheet.append(list(read_schema(table)["name"]))
-        for cell in sheet[1]:
+        if table == "options":  # the shipped catalogue to edit (illustrative prices, said in its first row)
+            lines = DEFAULT_OPTIONS_PATH.read_text(encoding="utf-8").splitlines()
+            for line in (x for x in lines if x.startswith("#")):  # comment rows whole, in column A
+                sheet.append([line])
+            for record in csv.reader(x for x in lines if x.strip() and not x.startswith("#")):
+                sheet.append([_catalogue_cell(v) for v in record])
+            header_row = next(r for r in range(1, sheet.max_row + 1) if not str(sheet.cell(r, 1).value).startswith("#"))
+        else:
+            sheet.append(list(read_schema(table)["name"]))
+            header_row = 1
+        for cell in sheet[header_row]:
             cell.font = Font(bold=True)
+    from models.finance import finance_template
+
+    # the finance assumptions as the folder form's finance.toml holds them: one key per row, its note beside it
+    finance = book.create_sheet("finance")
+    finance.append(["key", "value", "note"])
+    for line in finance_template().splitlines():
+        if not line.strip():
+            continue
+        if line.startswith("#"):
+            finance.append([line])
+            continue
+        key, rest = line.split("=", 1)
+        value, _, note = rest.partition("  # ")
+        value = value.strip()
+        finance.append([key.strip(), _catalogue_cell(value) if not value.startswith(("[", '"')) else value.strip('"'),
+                        note.strip()])
+    for cell in finance[1]:
+        cell.font = Font(bold=True)
+    tariff = book.create_sheet(f"tariff {BLANK_WORKBOOK_TARIFF}")
+    tariff.append(["# An invented example tariff: replace it with your utility's (docs/tariffs.md), one line of the "
+                   "file per row; name it in the sites sheet's tariff_file column."])
+    for line in (DATA_DIR / "tariffs" / BLANK_CASE_TARIFF).read_text(encoding="utf-8").splitlines():
+        tariff.append([line])
     path.parent.mkdir(parents=True, exist_ok=True)
     book.save(path)
     return path
+
+
+def _catalogue_cell(text: str) -> object:
+    """A cell of a template written into a workbook: a number as a number, other text as it is."""
+    try:
+        number = float(text)
+    except ValueError:
+        return text
+    if text.strip().lower() in ("nan", "inf", "-inf", "infinity", "-infinity"):
+        return text
+    return int(number) if number.is_integer() and "." not in text and "e" not in text.lower() else number
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -8,9 +8,11 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 from drivecase.cli import main
+from models import io as case_io
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "data" / "demo"
@@ -71,6 +73,45 @@ def test_new_workbook_then_check_reports_empty_register(tmp_path, capsys):
     assert book.is_file()
     assert main(["check", str(book)]) == 1
     assert "no rows" in capsys.readouterr().out
+
+
+def test_new_workbook_holds_what_a_new_folder_holds(tmp_path, capsys):
+    """The blank workbook carries the folder's catalogue, finance defaults and example tariff: filled with the
+    same site and asset, both forms read as the same case, without a warning that something was missing."""
+    from openpyxl import load_workbook
+
+    from models.case import load_case
+
+    folder, book = tmp_path / "folder", tmp_path / "book.xlsx"
+    assert main(["new", str(folder)]) == 0
+    assert "in tariffs/" in capsys.readouterr().out
+    assert main(["new", str(book)]) == 0
+    out = capsys.readouterr().out
+    assert "in a sheet named 'tariff <file>.toml'" in out and "tariffs/" not in out
+    site = {"site_id": "S1", "site_name": "Main works", "base_p_kw": 150, "base_power_factor": 0.9}
+    asset = {"asset_id": "M1", "site_id": "S1", "application": "pump", "rated_p_kw": 22, "poles": 4, "supply_f_hz": 50,
+             "rated_v_v": 400, "operating_h_per_yr": 6000, "mean_load_pct": 70}
+    site_f = dict(site, tariff_file=case_io.BLANK_CASE_TARIFF)
+    site_b = dict(site, tariff_file=case_io.BLANK_WORKBOOK_TARIFF)
+    for table, row in (("sites", site_f), ("assets", asset)):
+        text = (folder / f"{table}.csv").read_text(encoding="utf-8")
+        header = [h for h in text.splitlines() if not h.startswith("#")][0].split(",")
+        with open(folder / f"{table}.csv", "a", encoding="utf-8") as handle:
+            handle.write(",".join(str(row.get(h, "")) for h in header) + "\n")
+    wb = load_workbook(book)
+    for table, row in (("sites", site_b), ("assets", asset)):
+        ws = wb[table]
+        ws.append([row.get(c.value) for c in ws[1]])
+    wb.save(book)
+    for target in (folder, book):
+        assert main(["check", str(target)]) == 0
+        out = capsys.readouterr().out
+        assert "no finance assumptions" not in out and "options table has no rows" not in out, out
+    a, _ = load_case(folder)
+    b, _ = load_case(book)
+    pd.testing.assert_frame_equal(a.options.reset_index(drop=True), b.options.reset_index(drop=True), check_dtype=False)
+    assert a.finance == b.finance
+    assert a.tariffs[case_io.BLANK_CASE_TARIFF] == b.tariffs[case_io.BLANK_WORKBOOK_TARIFF]
 
 
 def test_new_never_overwrites(tmp_path, capsys):
