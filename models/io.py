@@ -615,7 +615,46 @@ def parse_toml_text(text: str, source: str, problems: list[Problem] | None = Non
         if line is None:
             found = _TOML_LINE.search(str(exc))
             line = int(found.group(1)) if found else None
+        if "Cannot overwrite a value" in message or "twice" in message:
+            line, key = _repeated_toml_key(text, line)
+            if key is not None:
+                return {}, problems + [error(source, line, key, None, f"'{key}' is given twice",
+                                             "keep one of the two lines (TOML takes each key once per table)")]
         return {}, problems + [error(source, line, None, None, f"TOML syntax error: {message}", hint)]
+
+
+_TOML_KEY = re.compile(r"^\s*(\[{1,2}\s*[^\]]+?\s*\]{1,2}|[A-Za-z0-9_\-.\"' ]+?)\s*(=|$)")
+
+
+def _repeated_toml_key(text: str, line: int | None) -> tuple[int | None, str | None]:
+    """The line and name of a key (or table header) written a second time in TOML text, for a message.
+
+    ``line`` is where the parser stopped (None when it did not say): its key when that line has one,
+    else the first key seen twice within one table."""
+    lines = text.splitlines()
+    seen: dict[tuple[str, str], int] = {}
+    table = ""
+    first: tuple[int | None, str | None] = (None, None)
+    for number, raw in enumerate(lines, start=1):
+        found = _TOML_KEY.match(raw.split("#", 1)[0]) if raw.strip() and not raw.lstrip().startswith("#") else None
+        if not found:
+            continue
+        name = found.group(1).strip()
+        if name.startswith("["):
+            if name.startswith("[[" ):  # an array of tables: a new table every time
+                table = f"{name}#{number}"
+                continue
+            table = name
+            key = (name, "")
+        else:
+            key = (table, name)
+        if key in seen and first[1] is None:
+            first = (number, name)
+        seen.setdefault(key, number)
+        if line is not None and number == line and key in seen and seen[key] != number:
+            return number, name
+    return first
+
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 
+import pytest
 from numpy.testing import assert_allclose
 
 import casebuilder as cb
@@ -76,6 +77,17 @@ def test_toml_syntax_error_names_the_line(tmp_path):
     _, problems = load_case(folder)
     p = _find(problems, "TOML syntax error", "error")
     assert p.file == "case.toml"
+
+
+@pytest.mark.parametrize("text, line, name", [
+    ('[case]\nname = "x"\ncurrency = "EUR"\nname = "y"\n', 4, "name"),     # a key twice in one table
+    ('[case]\nname = "x"\n\n[case]\ncurrency = "EUR"\n', 4, "[case]"),   # a table twice
+])
+def test_a_key_given_twice_is_named(tmp_path, text, line, name):
+    folder = cb.write_case(tmp_path / "c", case_toml=text)
+    _, problems = load_case(folder)
+    p = _find(problems, "is given twice", "error")
+    assert (p.file, p.row, p.column) == ("case.toml", line, name) and f"'{name}' is given twice" in p.rule
 
 
 def test_parquet_profiles_equal_csv_profiles(tmp_path):
