@@ -248,7 +248,9 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
                       if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
         frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_others, g_npv))
         frames[4]["settings"] = settings
-        frames[4]["repriced"] = repriced
+        # the repriced projects that the new plan holds (a project repriced may leave it at its lower NPV)
+        in_plan = set(project_labels(frames[0]).astype(str))
+        frames[4]["repriced"] = {label: share for label, share in repriced.items() if label in in_plan}
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
         frames[4]["set_aside"] = tuple(sorted(others))
     return frames

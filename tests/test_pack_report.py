@@ -170,6 +170,20 @@ class TestReportContents:
         scope = content.select_scope(case, result, None, True)
         h = content.headline(result, scope)
         assert h.npv == pytest.approx(result.plan["npv_at_plan_start"].sum(), rel=1e-12)
+        # the cash-flow table of section 5 counts the projects as the plan does: its last cumulative discounted
+        # value is the same NPV (plan.csv's npv_at_plan_start, an independent column of the plan); the plan's
+        # status states each share to 6 decimals, so each repriced project may differ by up to 5e-7 x its bill
+        # savings' present value (below 1 EUR on the demo)
+        flows = content.portfolio_flows(result, scope.chosen)
+        assert flows["cumulative_discounted"].iloc[-1] == pytest.approx(result.plan["npv_at_plan_start"].sum(),
+                                                                         abs=1.0 * repriced.sum())
+        # and a repriced project's own flows are the plan's NPV when discounted (numpy_financial.npv as reference)
+        import numpy_financial as npf
+
+        plan = result.plan[repriced.to_numpy()]
+        for r in plan.itertuples(index=False):
+            own = npf.npv(case.finance.discount_rate_frac, content.plan_flows(result, r.asset_id, r.option_id))
+            assert own == pytest.approx(r.npv, abs=1.0)
 
     def test_decision_npv_column_adds_up_to_the_headline(self, small):
         # each planned project's NPV at the plan's start: the column's sum is the headline NPV (plan scope)

@@ -264,8 +264,31 @@ def net_flows(result, asset_id: str, option_id: str) -> np.ndarray:
     return table.sum(axis=0).to_numpy(dtype=float) if len(table) else np.zeros(horizon + 1)
 
 
+def plan_credit_share(result, asset_id: str, option_id: str) -> float | None:
+    """The share of its own bill saving a reactive project of the exact plan is credited with beside the rest
+    of the plan (its plan NPV counts that share only), or None for a project counted at its own saving."""
+    share = ((result.plan_status or {}).get("repriced") or {}).get(f"{asset_id}/{option_id}")
+    return None if share is None else float(share)
+
+
+def plan_flows(result, asset_id: str, option_id: str) -> np.ndarray:
+    """One project's net flow per year 0..horizon as the plan counts it [currency]: its own flows, less
+    (1 - r) x its bill-saving flows for a reactive project credited the share r (:func:`plan_credit_share`),
+    so that its discounted sum is the project's plan NPV."""
+    from models.reactive_plan import BILL_SAVING_COMPONENTS
+
+    flows = net_flows(result, asset_id, option_id)
+    share = plan_credit_share(result, asset_id, option_id)
+    if share is None:
+        return flows
+    table = project_flow_table(result, asset_id, option_id)
+    bill = table.loc[[c for c in table.index if c in BILL_SAVING_COMPONENTS]].sum(axis=0).to_numpy(dtype=float)
+    return flows - (1.0 - share) * bill
+
+
 def portfolio_flows(result, projects: pd.DataFrame) -> pd.DataFrame:
-    """Return the yearly net flow of a set of projects, each shifted to its plan start year.
+    """Return the yearly net flow of a set of projects, each shifted to its plan start year, each counted as
+    the plan counts it (:func:`plan_flows`): the discounted flows add up to the projects' plan NPVs.
 
     Returns
     -------
@@ -278,7 +301,7 @@ def portfolio_flows(result, projects: pd.DataFrame) -> pd.DataFrame:
     total = np.zeros(last + 1)
     for r in projects.itertuples(index=False):
         start = int(r.plan_start_yr)
-        total[start:start + horizon + 1] += net_flows(result, r.asset_id, r.option_id)
+        total[start:start + horizon + 1] += plan_flows(result, r.asset_id, r.option_id)
     years = np.arange(last + 1)
     disc = total / (1.0 + d) ** years
     return pd.DataFrame({"year": years, "net": total, "cumulative": np.cumsum(total), "discounted": disc,

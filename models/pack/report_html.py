@@ -158,6 +158,11 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         matrix_rows.append(row(cells))
 
     flows = content.portfolio_flows(result, chosen)
+    credited = [content.plan_credit_share(result, r.asset_id, r.option_id) for r in chosen.itertuples(index=False)]
+    credited = [x for x in credited if x is not None]
+    flow_note = (f"{counted(len(credited), 'reactive project')} credited {min(credited):.0%}-{max(credited):.0%} of "
+                 f"{'its' if len(credited) == 1 else 'their'} own bill saving; the workbook's cash-flow blocks show "
+                 "each project priced alone") if credited else ""
     flow_rows = [row([cell(int(r.year), "num"), num(r.net), num(r.cumulative), num(r.discounted), num(r.cumulative_discounted)])
                  for r in flows.itertuples(index=False)]
 
@@ -268,6 +273,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "matrix_headers": ["Asset"] + [option_labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
         "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
         "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
+        "flow_note": flow_note,
         "flow_numeric": (0, 1, 2, 3, 4),
         "mc_headers": ["Project", "NPV P10", "NPV P50", "NPV P90", "P(NPV > 0)", "Payback P10", "P50", "P90 [yr]"],
         "mc_rows": mc_rows, "mc_note": mc_note, "mc_numeric": (1, 2, 3, 4, 5, 6, 7),

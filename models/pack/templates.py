@@ -124,6 +124,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 
 <h2 id="cashflow">5. Cash flow</h2>
 <div class="figure">{{ figures.cumulative }}</div>
+<p class="small">Net flows of the recommended projects by plan year ({{ currency }}), each project from its own plan year, as the plan counts them: a reactive project (capacitor, wound-field machine) at the share of its bill saving it adds beside the plan's other projects{% if flow_note %} ({{ flow_note }}){% endif %}. The last cumulative discounted value is the NPV of section 1.</p>
 {{ table(flow_headers, flow_rows, flow_numeric) }}
 
 <h2 id="risk">6. Sensitivity and Monte Carlo</h2>

@@ -436,6 +436,10 @@ def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[st
                   "discounted_payback": _engine_payback(float(p.discounted_payback_yr))}
         note = ("the flows have several IRRs: the engine reports the one closest to 0"
                 if str(p.irr_status) == "multiple" else "")
+        share = content.plan_credit_share(result, p.asset_id, p.option_id) if p.in_plan else None
+        if share is not None:  # the block is the project alone; the plan counts a share of its bill saving
+            note = "; ".join(x for x in (note, f"priced alone here; in the plan it is credited {share:.0%} of its bill "
+                                               "saving, what it adds beside the plan's other projects (Plan sheet)") if x)
         row_next, rows = write_project_block(ws, row, title, table.reindex(columns=range(horizon + 1), fill_value=0.0),
                                              refs["discount_rate_frac"], engine, currency, note)
         cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended)}
