@@ -183,8 +183,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
               f"{balance['capacitor_kvarh'] / 1000:,.0f} MVArh; average power factor {balance['average_power_factor']:.3f}")
     if args.reactive_sweep:
         curve = reactive_value_curve(case, op, args.reactive_sweep, capacitor_cost)
-        print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows, "
-              f"beside a capacitor bank at {capacitor_cost:g} {currency}/kVAr")
+        print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows "
+              f"(the whole bill's change, its taxes and levies included), beside a capacitor bank at "
+              f"{capacitor_cost:g} {currency}/kVAr")
         shown = curve[["supplied_q_kvar", "saving", "marginal_saving_per_kvar", "capacitor_bank_cost"]].rename(
             columns={"supplied_q_kvar": "supplied [kVAr]", "saving": f"bill saving [{currency}/yr]",
                      "marginal_saving_per_kvar": f"next kVAr [{currency}/kVAr/yr]",

@@ -194,6 +194,7 @@ def test_bill_sweep_prices_the_bank_at_the_case_cost_unless_given(tmp_path, caps
     assert main(["bill", str(case), "--site", "KGQ", "--reactive-sweep", "KGQ-CR01"]) == 0
     out = capsys.readouterr().out
     assert "capacitor bank at 60 EUR/kVAr" in out
+    assert "its taxes and levies included" in out  # the saving is the whole bill's change (the demo's tariff has VAT)
     assert "stepped capacitor bank (KGQ-C1) switches steps out" in out  # why the curve can dip (the demo's KGQ bank)
     assert "nan" not in out.lower()  # the first point has no marginal value: shown as '-'
     assert "[EUR/yr]" in out and "[kVAr]" in out

@@ -145,6 +145,11 @@ class TestReportContents:
                        "never connect capacitors on a drive output".capitalize()):
             assert phrase in html, phrase
 
+    def test_savings_say_taxes_are_included_and_the_cash_flow_matches_the_headline(self, asset_pack):
+        html = text(asset_pack[0] / REPORT_NAME)
+        assert "its taxes and levies included" in html
+        assert "The last cumulative discounted value is the NPV of section 1" in html
+
     def test_user_text_escaped(self, asset_pack):
         html = text(asset_pack[0] / REPORT_NAME)
         assert INJECTION_HTML not in html and "<script>alert(1)" not in html

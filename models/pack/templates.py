@@ -119,6 +119,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 {{ table(matrix_headers, matrix_rows, matrix_numeric, "matrix") }}
 
 <h2 id="savings">4. Savings by component</h2>
+<p class="small">A bill saving is the change of the site's whole bill ({{ currency }}, base-year prices) when the project is made, its taxes and levies included: each tax or levy line of the tariff is spread over the charges it is levied on, in proportion.</p>
 <div class="figure">{{ figures.waterfall }}</div>
 <div class="figure">{{ figures.by_project }}</div>
 
