@@ -730,26 +730,35 @@ def parse_budget(values: list) -> tuple[list[float] | None, str]:
     return [float(v) for v in cleaned], ""
 
 
-def edit_assumptions(entry_key: str, base, current: dict | None, **fields) -> tuple[dict | None, str]:
-    """Merge new form values into a session's edits and check them; return (edits, error text).
+def edit_assumptions(entry_key: str, base, current: dict | None, refused: tuple[str, ...] = (),
+                     **fields) -> tuple[dict | None, str]:
+    """Merge new form values into a session's edits and check them; return (edits, what was refused).
 
-    ``fields`` holds any of ``discount_rate_pct``, ``escalation_energy_pct``, ``horizon_yr`` and
-    ``budget_per_yr``. On an error the edits are None and the text says what is wrong.
+    ``fields`` holds any of ``discount_rate_pct``, ``escalation_energy_pct``, ``horizon_yr``,
+    ``energy_price_level_pct``, ``capital_cost_level_pct`` and ``budget_per_yr``. Each value is checked
+    on its own: the valid ones are applied, and the text names every refused one ("Not applied: ...",
+    with ``refused``, problems the caller found before, e.g. in the budget fields). The edits are None
+    when no value could be applied (nothing changes); the text is "" when every value was.
     """
     edits = dict(current) if isinstance(current, dict) and current.get("case") == entry_key else {"case": entry_key}
+    problems = list(refused)
+    applied = 0
     for name, value in fields.items():
-        if name in FORM_FIELDS and (value is None or value == ""):
-            return None, f"{FORM_FIELDS[name]}: enter a number."
-        if name in FORM_FIELDS:
-            problem = _form_field_problem(name, value)
-            if problem:
-                return None, f"Not applied: {problem}"
+        problem = (f"{FORM_FIELDS[name]}: enter a number." if value is None or value == ""
+                   else _form_field_problem(name, value)) if name in FORM_FIELDS else ""
+        if problem:
+            problems.append(problem)
+            continue
         edits[name] = value
+        applied += 1
     try:
         assumptions_with_edits(base, edits)
     except (TypeError, ValueError) as exc:
-        return None, f"Not applied: {exc}"
-    return edits, ""
+        return None, "Not applied: " + " ".join(problems + [str(exc)])
+    text = "Not applied: " + " ".join(problems) if problems else ""
+    if problems and applied:
+        text += " The other values are applied."
+    return (edits if applied else None), text
 
 
 #: The assumptions form's fields and their labels as the page shows them.

@@ -91,11 +91,25 @@ def test_assumption_form_and_edits(engine):
     assert stored["discount_rate_pct"] == 6.0 and message == ""
     unchanged, _ = inputs.edit(8.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert unchanged is no_update  # the form only repeats the assumptions in force
-    refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, None, None, None, None, None, None, None, None)
+    refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert refused is no_update and "horizon" in message.lower()
-    refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, None, None, None, None, None, None, None, None)
+    refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert refused is no_update and "Electricity price level: must lie between 1 and" in message
     assert inputs.reset(1, None) == values
+
+
+def test_one_refused_field_does_not_hold_back_the_others(engine):
+    # a blank budget year 1 before a filled year 2, a horizon of 2.5 years and a discount rate of 0 %: the rate
+    # applies; the horizon and the budget are refused, each named, and keep the values in force (the demo's
+    # finance.toml: horizon 15 years, budgets 250000, 250000, 150000)
+    stored, message = inputs.edit(0.0, 1.0, 2.5, 100.0, 100.0, 250000.0, None, 150000.0, None, None, None, None, None)
+    assert stored["discount_rate_pct"] == 0.0
+    assert "horizon_yr" not in stored and "budget_per_yr" not in stored
+    assert message.startswith("Not applied: Year 1 is blank") and "Horizon: must be a whole number" in message
+    assert message.endswith("The other values are applied.")
+    view = services.view(None, stored)
+    assert view.assumptions.discount_rate_frac == 0.0 and view.assumptions.horizon_yr == 15
+    assert view.assumptions.budget_per_yr == (250000.0, 250000.0, 150000.0)
 
 
 def test_price_levels_reach_the_economics(engine):

@@ -150,19 +150,20 @@ def reset(_clicks, session):
 
 
 def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest) -> tuple[dict | None, bool, str]:
-    """The form as edits: (edits, whether they change the assumptions in force, what is wrong or "")."""
+    """The form as edits: (edits, whether they change the assumptions in force, what was refused or "").
+
+    Each field is checked on its own: the valid ones make the edits, the refused ones are named (the edits
+    are None when none is valid)."""
     budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
-    budget, problem = services.parse_budget(budget_values)
-    if problem:
-        return None, False, problem
+    budget, budget_problem = services.parse_budget(budget_values)
     view = services.view(session, edits)
-    new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, discount_rate_pct=discount,
-                                             escalation_energy_pct=escalation, horizon_yr=horizon,
-                                             energy_price_level_pct=price_level, capital_cost_level_pct=capital_level,
-                                             budget_per_yr=budget)
-    if problem:
-        return None, False, problem
-    return new, services.edits_change(view, new), ""
+    fields = dict(discount_rate_pct=discount, escalation_energy_pct=escalation, horizon_yr=horizon,
+                  energy_price_level_pct=price_level, capital_cost_level_pct=capital_level)
+    if not budget_problem:
+        fields["budget_per_yr"] = budget
+    new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits,
+                                             refused=(budget_problem,) if budget_problem else (), **fields)
+    return new, new is not None and services.edits_change(view, new), problem
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
@@ -173,9 +174,8 @@ def edit(*form):
     """Check the form and store it as the tab's edits; only the economics re-run. An unusual but valid
     value (a negative discount rate) is applied with a caution."""
     new, changed, problem = _parse_form(*form)
-    if problem:
-        return no_update, problem
-    return (new if changed else no_update), services.assumption_notes(new)
+    # the valid values apply even when another field is refused; the message names each refused one
+    return (new if changed else no_update), problem or services.assumption_notes(new)
 
 
 @callback(Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),
@@ -210,7 +210,9 @@ def save(clicks, *form):
         return no_update, no_update, no_update, no_update
     edits, changed, problem = _parse_form(*form)
     if problem:
-        return no_update, no_update, "Not saved: " + problem.removeprefix("Not applied: "), no_update
+        # nothing is saved while a field is refused (the save writes the whole form)
+        refused = problem.removeprefix("Not applied: ").removesuffix(" The other values are applied.")
+        return no_update, no_update, "Not saved: " + refused, no_update
     outcome = services.save_tab_assumptions(form[-1], edits if changed else form[-2])
     download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
                 else no_update)

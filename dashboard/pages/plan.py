@@ -79,12 +79,12 @@ def edit(*args):
     values, (edits, session) = list(args[:len(BUDGET_IDS)]), args[len(BUDGET_IDS):]
     budget, problem = services.parse_budget(values)
     if problem:
-        return no_update, problem
+        return no_update, "Not applied: " + problem
     view = services.view(session, edits)
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, budget_per_yr=budget)
-    if problem:
+    if new is None:
         return no_update, problem
-    return (new if services.edits_change(view, new) else no_update), ""
+    return (new if services.edits_change(view, new) else no_update), problem
 
 
 def project_columns(currency: str) -> list[dict]:
