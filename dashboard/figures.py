@@ -379,16 +379,18 @@ def reactive_balance(balance: pd.DataFrame) -> go.Figure:
 # ---------------------------------------------------------------------------------------------------
 # Plan
 # ---------------------------------------------------------------------------------------------------
-def plan_by_year(by_year: pd.DataFrame, currency: str) -> go.Figure:
+def plan_by_year(by_year: pd.DataFrame, currency: str, exact_name: str = "exact plan") -> go.Figure:
     """Capital per plan year of the exact plan and of the rank-order plan, with the budget.
 
     Parameters
     ----------
     by_year : pandas.DataFrame
         plan ("exact"/"rank_order"), start_yr, capital [currency], budget [currency] (NaN = no limit).
+    exact_name : str
+        What the integer-programme plan is called (e.g. "best plan found" before it is proven).
     """
     fig = go.Figure()
-    for plan_name, colour, name in (("exact", AFTER, "exact plan"), ("rank_order", BEFORE, "rank by profitability index")):
+    for plan_name, colour, name in (("exact", AFTER, exact_name), ("rank_order", BEFORE, "rank by profitability index")):
         part = by_year[by_year["plan"] == plan_name]
         fig.add_trace(go.Bar(x=[f"Year {y}" for y in part["start_yr"]], y=part["capital"], name=name, marker_color=colour,
                              hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra>" + name + "</extra>"))
@@ -404,15 +406,17 @@ def plan_by_year(by_year: pd.DataFrame, currency: str) -> go.Figure:
     return _style(fig, "Capital by plan year")
 
 
-def plan_comparison(comparison: pd.Series, currency: str) -> go.Figure:
+def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exact plan") -> go.Figure:
     """Total NPV of the exact plan against the rank-by-profitability-index plan.
 
     Parameters
     ----------
     comparison : pandas.Series
         npv_exact, npv_greedy [currency], projects_exact, projects_greedy.
+    exact_name : str
+        What the integer-programme plan is called (e.g. "best plan found" before it is proven).
     """
-    names = ["exact plan", "rank by profitability index"]
+    names = [exact_name, "rank by profitability index"]
     values = [float(comparison.get("npv_exact", np.nan)), float(comparison.get("npv_greedy", np.nan))]
     counts = [comparison.get("projects_exact", np.nan), comparison.get("projects_greedy", np.nan)]
     fig = go.Figure(go.Bar(x=names, y=values, marker_color=[AFTER, BEFORE],
@@ -420,7 +424,7 @@ def plan_comparison(comparison: pd.Series, currency: str) -> go.Figure:
                            textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_xaxes(title_text="Plan")
     fig.update_yaxes(title_text=f"NPV at plan start [{currency}]")
-    return _style(fig, "Plan NPV: exact against rank order")
+    return _style(fig, f"Plan NPV: {exact_name.removesuffix(' plan')} plan against rank order")
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -927,8 +927,43 @@ def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
         "mean_speed_rpm": res["mean_speed_rpm"].to_numpy(dtype=float),
         "life_cycle_cost": res["life_cycle_cost"].to_numpy(dtype=float),
         "best": res["best_for_asset"].to_numpy(dtype=bool),
+        "today": (res["technology"] == "existing").to_numpy(dtype=bool),
         "flags": res["flags"].fillna("").to_numpy(dtype=object),
+        "cautions_count": np.array([len(split_cautions(f)) for f in res["flags"].fillna("")], dtype=int),
     })
+
+
+def option_colour_keys(view_: View) -> list[str]:
+    """The case's option ids in catalogue order, today's motor first: the keys of one colour per option.
+
+    Built from the case's option list (not from the options one chart happens to draw), so that an option
+    keeps its colour on every chart of a page. A catalogue without an 'existing' row still shows today's
+    motor, as ``keep`` (:func:`asset_performance`).
+    """
+    options = view_.case.options
+    ids = [str(x) for x in options["option_id"]]
+    today = [str(x) for x in options.loc[options["technology"] == "existing", "option_id"]] or ["keep"]
+    return list(dict.fromkeys(today + ids))
+
+
+def split_cautions(text) -> list[str]:
+    """The cautions of one project, from the text :mod:`models.scenario` joins with "; ".
+
+    Only a separator outside brackets splits: one caution may list its own reasons in brackets, joined by
+    "; " too (the line-start screen's "confirm with the supplier (load inertia ...; start load torque ...)").
+    """
+    parts, depth, start = [], 0, 0
+    text = "" if text is None or (isinstance(text, float) and not math.isfinite(text)) else str(text)
+    for k, char in enumerate(text):
+        if char in "([{":
+            depth += 1
+        elif char in ")]}":
+            depth = max(depth - 1, 0)
+        elif char == ";" and depth == 0:
+            parts.append(text[start:k])
+            start = k + 1
+    parts.append(text[start:])
+    return [part.strip() for part in parts if part.strip()]
 
 
 def asset_lcc(result, asset_id: str) -> pd.DataFrame:
@@ -1002,12 +1037,46 @@ def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFra
     score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
     defaults = view_.case.defaults
     defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].reset_index(drop=True)
-    defaults = defaults.assign(value=[(f"{v:.6g}" if isinstance(v, float) else v)
-                                      for v in map(default_value, defaults["value"])]).astype(str)
+    defaults = defaults.assign(value=[default_text(c, v) for c, v in zip(defaults["column"], defaults["value"])]).astype(str)
     res = result.results[result.results["asset_id"] == asset_id]
-    rows = [{"option": r.label, "flag": text.strip()} for r in res.itertuples(index=False)
-            for text in str(r.flags or "").split(";") if text.strip()]
+    rows = [{"option": r.label, "flag": text} for r in res.itertuples(index=False) for text in split_cautions(r.flags)]
     return score, defaults, pd.DataFrame(rows, columns=["option", "flag"])
+
+
+#: Decimals a defaulted value is shown with, by the end of its column name (the unit suffix); the first
+#: match wins. Efficiency in percent to 1 decimal is the fraction to 3 decimals, as the power factor.
+DEFAULT_DECIMALS: tuple[tuple[str, int], ...] = (
+    ("power_factor", 3), ("_frac", 3), ("_pu", 3), ("_pct", 1), ("_rpm", 0), ("_v", 0), ("_hz", 1),
+    ("_yr", 1), ("_kw", 2), ("_kvar", 2), ("_kva", 2), ("_count", 0),
+)
+
+
+def default_text(column: str, value) -> str:
+    """A defaulted value as the asset page shows it: rounded to what its quantity carries.
+
+    Parameters
+    ----------
+    column : str
+        The case column the value fills (its suffix names the unit, e.g. ``rated_speed_rpm``).
+    value : object
+        The value as the filling rule gave it (a number, a number as text, or text).
+
+    Returns
+    -------
+    str
+        Numbers to the decimals of :data:`DEFAULT_DECIMALS` with trailing zeros dropped (power factor and
+        fractions 0.879, percent 81.6, speeds 982 rpm, ratings 0.75 kW), other numbers to 4 significant
+        digits; text as it is.
+    """
+    shown = default_value(value)
+    if not isinstance(shown, float):
+        return str(shown)
+    decimals = next((d for suffix, d in DEFAULT_DECIMALS if str(column).endswith(suffix)), None)
+    if decimals is None:
+        return f"{shown:.4g}"
+    text = f"{shown:.{decimals}f}"
+    text = text.rstrip("0").rstrip(".") if "." in text else text
+    return "0" if text in ("-0", "") else text
 
 
 def plan_choice(view_: View, result) -> np.ndarray:
@@ -1127,10 +1196,17 @@ def _plan_proof_text(result) -> str:
     proven = f"proven within {gap * 100:.2g} % of the best possible plan NPV" if gap > 1e-9 else "proven optimal"
     live = _live(settings)
     if kind == "time_limit":
-        return (f"Exact plan: best found in the {settings.time_limit_s:g} s allowed for a live edit, {proven}. "
-                "Prove it for the pack's precision." if live else f"Exact plan: the solver's time ran out; {proven}.")
-    return f"Exact plan {proven}" + (" (live edit: solved to 0.1 %)." if live and gap > scenario.PRECISE_PLAN.gap_frac
-                                      else ".")
+        return (f"Best plan found in the {settings.time_limit_s:g} s allowed for a live edit, {proven}. "
+                "Prove it for the pack's precision." if live else f"Best plan found: the solver's time ran out; {proven}.")
+    if live and gap > scenario.PRECISE_PLAN.gap_frac:
+        return f"Best plan found {proven} (live edit: solved to 0.1 %)."
+    return f"Exact plan {proven}."
+
+
+def plan_name(result) -> str:
+    """What the page calls the integer-programme plan: "exact plan" once proven to the full run's precision,
+    else "best plan found" (a live edit's solve, stopped by its time or gap bound, may not be the best)."""
+    return "exact plan" if plan_is_proven(result) else "best plan found"
 
 
 def plan_is_proven(result) -> bool:

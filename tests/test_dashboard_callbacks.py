@@ -4,11 +4,13 @@ from __future__ import annotations
 
 import plotly.graph_objects as go
 import numpy as np
+import pandas as pd
 import pytest
 from dash import no_update
 
 from dashboard import app as shell
-from dashboard import services
+from dashboard import figures, services
+from models import scenario
 from dashboard.pages import asset, fleet, inputs, plan, risk, site
 from test_dashboard_services import SMALL_IDS, csv_bytes, data_url, demo_rows, write_small_case
 
@@ -212,11 +214,21 @@ def test_prove_button_is_off_once_the_plan_is_proven(engine):
     # the case's own assumptions are solved to the full run's precision: nothing left to prove
     from types import SimpleNamespace
 
-    assert plan.update(True, None, None)[-1] is True
+    out = plan.update(True, None, None)
+    assert out[-2] is True and out[-1] == "Chosen projects (exact plan)"
+    npv = next(c for c in out[3] if c["field"] == "npv")  # the column says why a reactive project's NPV is lower
+    assert "share of its bill saving" in npv["headerTooltip"]
     live = SimpleNamespace(plan_status={"status": "time_limit", "gap_frac": 0.002})
     loose = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.0009})
     proven = SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.00005})
     assert [services.plan_is_proven(r) for r in (live, loose, proven)] == [False, False, True]
+    # a plan not proven to the full run's precision is not called exact (the solver may not have found the best)
+    assert [services.plan_name(r) for r in (live, loose, proven)] == ["best plan found", "best plan found", "exact plan"]
+    assert services.plan_solve_text(SimpleNamespace(plan_status={"status": "time_limit", "gap_frac": 0.23,
+                                                                 "settings": scenario.LIVE_PLAN})).startswith(
+        "Best plan found in the")
+    fig = figures.plan_comparison(pd.Series({"npv_exact": 1.0, "npv_greedy": 0.5}), "EUR", "best plan found")
+    assert list(fig.data[0].x) == ["best plan found", "rank by profitability index"]
 
 
 def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):

@@ -25,6 +25,11 @@ PACK_STATUS = "plan-pack-status"
 SOLVE_STATUS = "plan-solve-status"
 PROVE = "plan-prove"
 PROVED = "plan-proved"
+CHOSEN_HEADING = "plan-chosen-heading"
+#: Why a reactive project's NPV here can be below its own NPV on the Asset page.
+PLAN_NPV_NOTE = ("A reactive project (capacitor, wound-field machine) counts here at the share of its bill saving it adds "
+                 "beside the plan's other projects (they share the site's reactive charge), so its NPV here can be below "
+                 "its own NPV on the Asset page; the other projects count at their own NPV.")
 
 
 def layout(**_query):
@@ -32,7 +37,9 @@ def layout(**_query):
         dcc.Store(id=READY, data=True),
         dcc.Store(id=PROVED),
         ui.page_header("Capital plan", "The projects that give the most NPV within each year's capital budget, chosen "
-                                       "exactly, beside the simpler rule of funding the best ratio of NPV to capital first."),
+                                       "by integer programming (exact once proven: the line under the budget says how "
+                                       "far it is), beside the simpler rule of funding the best ratio of NPV to capital "
+                                       "first."),
         ui.notice(NOTICE),
         html.Div([html.H3("Capital budget per plan year"),
                   html.P("Leave every year blank for no limit (then each asset gets its best option in year 0, except reactive "
@@ -46,7 +53,8 @@ def layout(**_query):
                  className="solve-status"),
         html.Div([html.Div(ui.graph(BY_YEAR), className="panel half"), html.Div(ui.graph(COMPARISON), className="panel half")],
                  className="row"),
-        html.H3("Chosen projects (exact plan)"),
+        html.H3("Chosen projects", id=CHOSEN_HEADING),
+        html.P(PLAN_NPV_NOTE, className="page-intro"),
         ui.data_grid(CHOSEN, height=380, empty_text="The plan buys nothing under these budgets"),
         html.H3("Where the two plans differ"),
         ui.data_grid(DIFFERENCES, height=240, empty_text="The two plans choose the same projects"),
@@ -90,13 +98,14 @@ def edit(*args):
 def project_columns(currency: str) -> list[dict]:
     return [ui.text_col("asset_id", "Asset"), ui.text_col("label", "Option", minWidth=220),
             ui.number_col("start_yr", "Start year", maxWidth=120), ui.number_col("capital", f"Capital [{currency}]"),
-            ui.number_col("npv", f"NPV at its start [{currency}]"),
+            ui.number_col("npv", f"NPV at its start [{currency}]", headerTooltip=PLAN_NPV_NOTE),
             ui.number_col("npv_at_plan_start", f"NPV at plan start [{currency}]")]
 
 
 @callback(Output(BY_YEAR, "figure"), Output(COMPARISON, "figure"), Output(CHOSEN, "rowData"), Output(CHOSEN, "columnDefs"),
           Output(DIFFERENCES, "rowData"), Output(DIFFERENCES, "columnDefs"), Output(SUMMARY, "children"),
           Output(NOTICE, "children"), Output(SOLVE_STATUS, "children"), Output(PROVE, "disabled"),
+          Output(CHOSEN_HEADING, "children"),
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), Input(PROVED, "data"))
 def update(_ready, session, edits, _proved=None):
     """Plan figures and tables under the tab's budget and assumptions (the proved plan once there is one)."""
@@ -110,15 +119,16 @@ def update(_ready, session, edits, _proved=None):
     spend = " · ".join(f"year {int(r.start_yr)}: {ui.fmt_money(r.capital, c)}"
                        + (f" of {ui.fmt_money(r.budget, c)}" if r.budget == r.budget else "")
                        for r in exact.itertuples(index=False))
-    summary = [html.Span(f"Exact plan: {len(tables['exact'])} projects, NPV {ui.fmt_money(comparison.get('npv_exact'), c)}; "
+    name = services.plan_name(result)
+    summary = [html.Span(f"{name[:1].upper() + name[1:]}: {len(tables['exact'])} projects, NPV {ui.fmt_money(comparison.get('npv_exact'), c)}; "
                          f"rank order: {len(tables['rank_order'])} projects, NPV {ui.fmt_money(comparison.get('npv_greedy'), c)} "
                          f"(shortfall {ui.fmt_money(comparison.get('shortfall'), c)}). "),
                html.Span(f"Capital {spend}.", id="plan-spend")]
     diff_columns = [ui.text_col("plan", "Only in")] + project_columns(c)[:4] + [project_columns(c)[5]]
-    return (figures.plan_by_year(by_year, c), figures.plan_comparison(comparison, c),
+    return (figures.plan_by_year(by_year, c, name), figures.plan_comparison(comparison, c, name),
             tables["exact"].to_dict("records"), project_columns(c),
             tables["differences"].to_dict("records"), diff_columns, summary, view.notice,
-            services.plan_solve_text(result), services.plan_is_proven(result))
+            services.plan_solve_text(result), services.plan_is_proven(result), f"Chosen projects ({name})")
 
 
 @callback(Output(PROVED, "data"), Input(PROVE, "n_clicks"), State(ui.SESSION_STORE, "data"),

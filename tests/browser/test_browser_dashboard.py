@@ -139,7 +139,8 @@ def journey(tab, artifacts):
     # 5. a budget caps the plan's capital in every plan year
     page.click("a.nav-link[href='/plan']")
     page.wait_for_function("document.querySelector('#plan-budget-0')?.value !== ''")
-    page.locator("#plan-solve-status").filter(has_text="Exact plan").wait_for()  # the page's own first render is done
+    # the page's own first render is done (a live edit's plan is "best found" until proven, then "exact")
+    page.locator("#plan-solve-status").filter(has_text=re.compile("Exact plan|Best plan found")).wait_for()
     page.wait_for_load_state("networkidle")
     budgets = [20000.0, 8000.0]
     edit_field(page, "#plan-budget-2", "", "Tab",  # an emptied year ends the budget list
