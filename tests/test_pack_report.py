@@ -149,6 +149,7 @@ class TestReportContents:
         html = text(asset_pack[0] / REPORT_NAME)
         assert "its taxes and levies included" in html
         assert "The last cumulative discounted value is the NPV of section 1" in html
+        assert '"(several)": the flows change sign more than once' in html.replace("&#34;", '"').replace("&quot;", '"')
 
     def test_user_text_escaped(self, asset_pack):
         html = text(asset_pack[0] / REPORT_NAME)
@@ -262,6 +263,21 @@ class TestDecisionRecords:
     def test_record_escapes_user_text(self, asset_pack):
         html = text(asset_pack[0] / "decision-records" / "P1.html")
         assert "<script>alert(1)" not in html and ESCAPED_HTML in html
+
+    def test_data_notes_apart_from_the_cautions(self, small):
+        # F1 has annual hours and a mean load, no profile (tests/casebuilder.py): its demand is a flat assumption,
+        # a note on its data for the record and a "data" row of the risk register, not an engineering caution
+        from models.pack import content
+        from models.pack.decision_record import record_context
+
+        case, result = small
+        scope = content.select_scope(case, result, ["F1"], False)
+        ctx = record_context(case, result, scope, "F1")
+        assert any(n.startswith("no interval data") for n in ctx["data_notes"])
+        assert not any(c.startswith("no interval data") for c in ctx["cautions"])
+        register = content.risk_register(case, result, scope)
+        row = register[register["detail"].str.startswith("no interval data")].iloc[0]
+        assert row["category"] == "data" and "Log the load" in row["response"]
 
     def test_drive_caution_on_the_drive_record(self, asset_pack):
         html = text(asset_pack[0] / "decision-records" / "P1.html")

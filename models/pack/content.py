@@ -530,9 +530,14 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     if not flags.empty:
         chosen = set(scope.recommended["asset_id"] + "/" + scope.recommended["option_id"])
         relevant = flags[(flags["option_id"] == "") | (flags["asset_id"] + "/" + flags["option_id"]).isin(list(chosen))]
-        for text, grp in relevant.groupby("flag", sort=True):
-            add("engineering flag", text.split(":")[0][:60] if ":" in text else "model note", text, asset_list_text(list(grp["asset_id"])),
-                "Check with the supplier or on site before ordering.")
+        for (text, no_option), grp in relevant.groupby([relevant["flag"], relevant["option_id"] == ""], sort=True):
+            title = text.split(":")[0][:60] if ":" in text else "model note"
+            if no_option:  # a note on the asset's data (e.g. no interval data), not on an option
+                add("data", title, text, asset_list_text(list(grp["asset_id"])),
+                    "Log the load (kW, power factor, running hours) for 1-4 weeks to replace the assumption.")
+            else:
+                add("engineering flag", title, text, asset_list_text(list(grp["asset_id"])),
+                    "Check with the supplier or on site before ordering.")
     if not result.risk.empty and "project_id" in result.risk:
         keys = set(scope.chosen["asset_id"] + "/" + scope.chosen["option_id"])
         mc = result.risk[result.risk["project_id"].isin(list(keys))]

@@ -137,10 +137,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
-    cautions = []
+    cautions, data_notes = [], []
     flags = content.scope_flags(result, (asset_id,))
-    if not flags.empty:
-        cautions += list(flags.loc[(flags["option_id"] == "") | (flags["option_id"] == rec["option_id"]), "flag"])
+    if not flags.empty:  # notes on the asset's data (no option) apart from the cautions of the option chosen
+        data_notes += list(flags.loc[flags["option_id"] == "", "flag"])
+        cautions += list(flags.loc[flags["option_id"] == rec["option_id"], "flag"])
     if not is_keep:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
@@ -154,7 +155,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
         "eol_headers": ["Strategy", f"Expected present cost [{cur}]"], "eol_rows": eol_rows, "eol_numeric": (1,),
         "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),
-        "reasons": reasons, "cautions": list(dict.fromkeys(cautions)),
+        "reasons": reasons, "cautions": list(dict.fromkeys(cautions)), "data_notes": list(dict.fromkeys(data_notes)),
     }
 
 

@@ -162,6 +162,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <ul class="cautions">{% for c in cautions %}<li>{{ c }}</li>{% endfor %}</ul>
 
 <h2 id="appendix">12. Appendix: options per asset, decision records and files</h2>
+<p class="small">IRR is the discount rate at which an option's NPV over keeping today's motor is zero. "none": no such rate exists (the savings never repay the capital, or there is no capital); "(several)": the flows change sign more than once and several rates solve it (the one closest to zero is shown); a negative IRR means the savings do not even repay the capital undiscounted.</p>
 {% for a in appendix %}
 <h3>{{ a.title }}</h3>
 {{ table(appendix_headers, a.rows, appendix_numeric) }}
@@ -234,7 +235,9 @@ DECISION = _MACROS + """<!DOCTYPE html>
 <ul>{% for r in reasons %}<li>{{ r }}</li>{% endfor %}</ul>
 </div>
 
-<h2>Cautions</h2>
+{% if data_notes %}<h2>Notes on the data</h2>
+<ul>{% for c in data_notes %}<li>{{ c }}</li>{% endfor %}</ul>
+{% endif %}<h2>Cautions</h2>
 <ul>{% for c in cautions %}<li>{{ c }}</li>{% endfor %}</ul>
 
 <h2>Sign-off</h2>
