@@ -308,11 +308,13 @@ def _print_run_summary(case, result) -> None:
     print(f"\nCase: {case.settings.name}")
     print(f"  {len(case.assets)} assets; best option differs from today's motor for {len(best)} of them")
     print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
-          f"yearly bill saving {chosen['bill_saving_per_yr'].sum():,.0f} {currency}/yr, "
+          f"yearly saving {chosen['bill_saving_per_yr'].sum() + chosen['saving_maintenance_per_yr'].sum():,.0f} "
+          f"{currency}/yr (bills {chosen['bill_saving_per_yr'].sum():,.0f}, maintenance "
+          f"{chosen['saving_maintenance_per_yr'].sum():,.0f}), "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
     together = scenario.plan_bill_saving_per_yr(result.bills)
     if together is not None and len(plan):
-        print(f"  The yearly bill saving adds up each project priced alone; with the whole plan in place the sites' "
+        print(f"  The bill saving adds up each project priced alone; with the whole plan in place the sites' "
               f"bills fall by {together:,.0f} {currency}/yr (projects share demand peaks, ratchets and reactive "
               f"allowances; bills.csv)")
     status = result.plan_status or {}

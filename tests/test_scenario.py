@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import filecmp
+import re
 import threading
 from pathlib import Path
 
@@ -194,6 +195,11 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     assert main(["run", str(demo), "--out", str(tmp_path / "b"), "--quiet"]) == 0
     out = capsys.readouterr().out
     assert "Plan under the budget" in out and "qualified persons" in out and "Exact plan: plan proven within" in out
+    # the yearly saving as the report's headline counts it (bills and maintenance), its two parts beside it
+    line = next(x for x in out.splitlines() if "Plan under the budget" in x)
+    total, bills, maintenance = (float(m.replace(",", "")) for m in re.search(
+        r"yearly saving ([-\d,]+) EUR/yr \(bills ([-\d,]+), maintenance ([-\d,]+)\)", line).groups())
+    assert abs(total - (bills + maintenance)) <= 1.0  # each printed to the whole euro
     names = sorted(p.name for p in (tmp_path / "a").iterdir())
     assert {"results.csv", "cashflows.csv", "bills.csv", "plan.csv", "risk.csv"} <= set(names)
     match, mismatch, errors = filecmp.cmpfiles(tmp_path / "a", tmp_path / "b", names, shallow=False)
