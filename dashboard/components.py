@@ -58,6 +58,19 @@ def fmt_number(value, decimals: int = 0, unit: str = "") -> str:
     return f"{text} {unit}".strip()
 
 
+#: Most decimals a rating is shown with (0.75 kW, 1.1 kW, 7.5 kW, 250 kW; 1.01 hp).
+RATING_DECIMALS = 2
+
+
+def fmt_rating(value, unit: str = "") -> str:
+    """A motor rating with the precision it carries: up to :data:`RATING_DECIMALS` decimals, trailing zeros
+    dropped (``0.75 kW``, ``7.5 kW``, ``1,600 kW``; ``-`` when not finite)."""
+    if not _finite(value):
+        return "-"
+    text = f"{float(value):,.{RATING_DECIMALS}f}".rstrip("0").rstrip(".")
+    return f"{text} {unit}".strip()
+
+
 # ---------------------------------------------------------------------------------------------------
 # Layout pieces
 # ---------------------------------------------------------------------------------------------------
@@ -146,6 +159,19 @@ def number_col(field: str, header: str, decimals: int = 0, **extra) -> dict:
     """A right-aligned number column with thousands separators."""
     return {"field": field, "headerName": header, "type": "rightAligned", "filter": "agNumberColumnFilter",
             "valueFormatter": _formatter(f",.{decimals}f"), **extra}
+
+
+def rating_col(field: str, header: str, **extra) -> dict:
+    """A right-aligned rating column shown as :func:`fmt_rating` shows it (d3's ``~`` drops trailing zeros)."""
+    return number_col(field, header, **extra) | {"valueFormatter": _formatter(f",.{RATING_DECIMALS}~f")}
+
+
+def long_text_col(field: str, header: str, **extra) -> dict:
+    """A text column whose cells wrap to as many lines as they need, the whole text also in a tooltip."""
+    # wrapped lines at the text's own line height (the grid's default is one row's height per line)
+    style = {"lineHeight": "1.4", "paddingTop": "10px", "paddingBottom": "10px", "wordBreak": "normal"}
+    return text_col(field, header, **{"tooltipField": field, "wrapText": True, "autoHeight": True, "cellStyle": style,
+                                      **extra})
 
 
 def data_grid(component_id: str, height: int = 420, empty_text: str = "Nothing to show", **extra) -> dag.AgGrid:

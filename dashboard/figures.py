@@ -30,8 +30,6 @@ LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a"
 #: Colours of bill line-item categories.
 BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "pf adjustment": "#b35b52",
                 "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
-#: Colours of speed remedies.
-REMEDY_COLOURS = {"none": "#5b6b7a", "trim_or_pulley": "#c27a3a", "speed_control": "#237a87"}
 
 
 def _light_template() -> go.layout.Template:
@@ -79,9 +77,17 @@ def message_figure(text: str, height: int = 260) -> go.Figure:
     return _style(fig, height=height)
 
 
-def option_colour_map(labels) -> dict[str, str]:
-    """One colour per option label, stable in the order given."""
-    return {label: OPTION_COLOURS[i % len(OPTION_COLOURS)] for i, label in enumerate(dict.fromkeys(labels))}
+def option_colour_map(keys) -> dict[str, str]:
+    """One colour per option, stable in the order given.
+
+    Parameters
+    ----------
+    keys : iterable of str
+        Option ids (or labels). Give a page the case's whole option list (today's motor first,
+        :func:`dashboard.services.option_colour_keys`) and pass the one map to each of its charts: an
+        option then keeps its colour on a chart that leaves others out.
+    """
+    return {key: OPTION_COLOURS[i % len(OPTION_COLOURS)] for i, key in enumerate(dict.fromkeys(keys))}
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -157,26 +163,40 @@ def lcc_stack(lcc: pd.DataFrame, currency: str) -> go.Figure:
     return _style(fig, "Life-cycle cost by component", height=400)
 
 
-def cumulative_cash(curves: pd.DataFrame, currency: str) -> go.Figure:
+def _colour_of(frame: pd.DataFrame, colours: dict[str, str] | None):
+    """Colour of each option of ``frame``: looked up by option_id in ``colours`` (one map for a whole page),
+    else given in the frame's own order (by option_id, or by label where the frame has no ids)."""
+    key = "option_id" if "option_id" in frame else "label"
+    given = colours if colours is not None else option_colour_map(frame[key])
+    fallback = option_colour_map(frame[key])
+    return lambda k: given.get(k, fallback.get(k, MUTED))
+
+
+def cumulative_cash(curves: pd.DataFrame, currency: str, colours: dict[str, str] | None = None) -> go.Figure:
     """Cumulative discounted cash flow of each option against keeping today's motor, payback marked.
 
     Parameters
     ----------
     curves : pandas.DataFrame
-        label, year [yr], cumulative_pv [currency], payback_yr [yr] (NaN = not within the horizon).
+        option_id, label, year [yr], cumulative_pv [currency], payback_yr [yr] (NaN = not within the horizon).
+    currency : str
+    colours : dict, optional
+        Colour per option_id, the same for every chart of the page (:func:`option_colour_map` over the case's
+        option list). Without it the options take colours in the order of ``curves``.
     """
     if curves is None or curves.empty:
         return message_figure("No option with capital applies to this asset.")
-    colours = option_colour_map(curves["label"])
+    colour = _colour_of(curves, colours)
+    key = "option_id" if "option_id" in curves else "label"
     fig = go.Figure()
-    for label, part in curves.groupby("label", sort=False):
+    for (k, label), part in curves.groupby([key, "label"], sort=False):
         fig.add_trace(go.Scatter(x=part["year"], y=part["cumulative_pv"], mode="lines", name=label,
-                                 line=dict(color=colours[label], width=2),
+                                 line=dict(color=colour(k), width=2),
                                  hovertemplate="year %{x}<br>%{y:,.0f} " + currency + "<extra>" + label + "</extra>"))
     paid = curves.drop_duplicates("label").dropna(subset=["payback_yr"])
     if len(paid):
         fig.add_trace(go.Scatter(x=paid["payback_yr"], y=np.zeros(len(paid)), mode="markers", name="discounted payback",
-                                 marker=dict(symbol="diamond", size=10, color=[colours[x] for x in paid["label"]],
+                                 marker=dict(symbol="diamond", size=10, color=[colour(k) for k in paid[key]],
                                              line=dict(color=INK, width=1)),
                                  hovertext=[f"{lab}: pays back in {p:.1f} yr" for lab, p in zip(paid["label"], paid["payback_yr"])],
                                  hoverinfo="text"))
@@ -186,44 +206,64 @@ def cumulative_cash(curves: pd.DataFrame, currency: str) -> go.Figure:
     return _style(fig, "Cumulative discounted cash flow", height=480, legend_below=True)
 
 
-def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Figure:
+#: Line style of the power factor by its sense, and its name in the legend: lagging (draws kVAr) or leading
+#: (supplies kVAr).
+PF_DASH = {"lagging": ("dot", "dotted"), "leading": ("dash", "dashed")}
+
+
+def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str, colours: dict[str, str] | None = None) -> go.Figure:
     """Efficiency and power factor against shaft load per option, with the hours at each load below.
 
     Parameters
     ----------
     curves : pandas.DataFrame
-        label, load_pct [% of rating], efficiency_frac [-], power_factor [-].
+        option_id, label, load_pct [% of rating], efficiency_frac [-], power_factor [-], q_kvar [kVAr] (optional:
+        below zero the machine supplies reactive power, its power factor is leading).
     hours : pandas.DataFrame
         load_from_pct, load_to_pct [%], hours_per_yr [h/yr].
     basis : str
         What the hours' load is based on (shown in the legend).
+    colours : dict, optional
+        Colour per option_id, as for :func:`cumulative_cash`.
+
+    Notes
+    -----
+    The power factor's size says nothing of its sense, so lagging is drawn dotted and leading dashed; the
+    legend keys the two styles (grey entries), the hover says the sense.
     """
     fig = make_subplots(rows=3, cols=1, shared_xaxes=True, vertical_spacing=0.05, row_heights=[0.38, 0.32, 0.30])
-    colours = option_colour_map(curves["label"]) if curves is not None and len(curves) else {}
+    senses = set()
     if curves is not None and len(curves):
-        for label, part in curves.groupby("label", sort=False):
+        colour = _colour_of(curves, colours)
+        key = "option_id" if "option_id" in curves else "label"
+        for (k, label), part in curves.groupby([key, "label"], sort=False):
             fig.add_trace(go.Scatter(x=part["load_pct"], y=part["efficiency_frac"] * 100.0, mode="lines", name=label,
-                                     legendgroup=label, line=dict(color=colours[label], width=2),
+                                     legendgroup=str(k), line=dict(color=colour(k), width=2),
                                      hovertemplate="%{x:.0f} %<br>efficiency %{y:.1f} %<extra>" + label + "</extra>"),
                           row=1, col=1)
-            # the power factor's size says nothing of its sense: lagging drawn dotted, leading (a machine that
-            # supplies kVAr to the site) dashed, and said in the hover
             leading = (part["q_kvar"] < 0).to_numpy() if "q_kvar" in part else np.zeros(len(part), dtype=bool)
-            for sense, mask, dash in (("lagging", ~leading, "dot"), ("leading", leading, "dash")):
+            for sense, mask in (("lagging", ~leading), ("leading", leading)):
                 if not mask.any():
                     continue
+                senses.add(sense)
                 fig.add_trace(go.Scatter(x=part["load_pct"], y=part["power_factor"].where(mask), mode="lines", name=label,
-                                         legendgroup=label, showlegend=False,
-                                         line=dict(color=colours[label], width=2, dash=dash),
+                                         legendgroup=str(k), showlegend=False,
+                                         line=dict(color=colour(k), width=2, dash=PF_DASH[sense][0]),
                                          hovertemplate="%{x:.0f} %<br>PF %{y:.3f} " + sense + "<extra>" + label + "</extra>"),
                               row=2, col=1)
+    for sense in ("lagging", "leading"):  # the key to the line styles, in the legend (no data of its own)
+        if sense in senses:
+            dash, style = PF_DASH[sense]
+            fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", name=f"{style}: power factor {sense}",
+                                     legendgroup=f"pf-{sense}", line=dict(color=MUTED, width=2, dash=dash),
+                                     hoverinfo="skip"), row=2, col=1)
     if hours is not None and len(hours):
         mid = (hours["load_from_pct"] + hours["load_to_pct"]) / 2.0
         width = hours["load_to_pct"] - hours["load_from_pct"]
         fig.add_trace(go.Bar(x=mid, y=hours["hours_per_yr"], width=width * 0.95, name=f"hours at load: {basis}",
                              marker_color=BEFORE, hovertemplate="%{x:.0f} %: %{y:,.0f} h/yr<extra></extra>"), row=3, col=1)
     fig.update_yaxes(title_text="Efficiency [%]", row=1, col=1)
-    fig.update_yaxes(title_text="Power factor [-]<br>dotted lagging, dashed leading", row=2, col=1)
+    fig.update_yaxes(title_text="Power factor [-]", row=2, col=1)
     fig.update_yaxes(title_text="Hours [h/yr]", row=3, col=1)
     fig.update_xaxes(title_text="Today's shaft load [% of rating]", row=3, col=1, range=[0, 130])
     fig = _style(fig, "Efficiency and power factor against load, and where the asset runs", height=680, legend_below=True)
@@ -231,36 +271,67 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str) -> go.Fig
     return fig
 
 
-def speed_energy(options: pd.DataFrame) -> go.Figure:
-    """Mean running speed and yearly input energy of each option, coloured by speed remedy.
+#: Hatching of the speed chart's bars by speed remedy (the colour stays the option's own).
+REMEDY_PATTERNS = {"none": "", "trim_or_pulley": "/", "speed_control": "x"}
+#: Below this speed change [rpm] every option is said to run at today's speed.
+SAME_SPEED_RPM = 0.05
+
+
+def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -> go.Figure:
+    """Each option's mean running speed against today's motor, and its yearly input energy.
 
     Parameters
     ----------
     options : pandas.DataFrame
-        label, speed_remedy_id (the catalogue's code: none, trim_or_pulley, speed_control; colours the bars),
+        option_id, label, today (True on today's motor's row; without the column the first row is today's),
+        speed_remedy_id (the catalogue's code: none, trim_or_pulley, speed_control; hatches the bars),
         speed_remedy (its name as shown), mean_speed_rpm [rpm], energy_kwh_per_yr [kWh/yr].
+    colours : dict, optional
+        Colour per option_id, as for :func:`cumulative_cash`.
+
+    Notes
+    -----
+    The speed panel shows the change against today's motor [rpm], signed, from a zero line, with each
+    option's absolute mean speed and today's in the hover. A four-pole motor's options differ by a few rpm
+    on about 1,490 rpm: bars of the absolute speed from zero hide that change, and an axis cut to
+    1,488-1,502 rpm makes it look large. The change in rpm is what a plant engineer checks: on a centrifugal
+    load the flow follows the speed and the power its cube (+0.4 % speed is about +1.2 % power), and an
+    impeller trim or pulley is sized to take that change back. Bars are coloured by option (the page's one
+    colour per option) and hatched by speed remedy.
     """
     if options is None or options.empty:
         return message_figure("No options for this asset.")
-    fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.12,
-                        subplot_titles=("Mean running speed", "Input energy"))
-    seen = set()
-    for remedy, part in options.groupby("speed_remedy_id", sort=False):
-        colour = REMEDY_COLOURS.get(remedy, MUTED)
-        name = str(part["speed_remedy"].iloc[0])
-        fig.add_trace(go.Bar(x=part["label"], y=part["mean_speed_rpm"], name=name, legendgroup=remedy, marker_color=colour,
-                             showlegend=remedy not in seen,
-                             hovertemplate="%{x}<br>%{y:,.1f} rpm<extra></extra>"), row=1, col=1)
-        fig.add_trace(go.Bar(x=part["label"], y=part["energy_kwh_per_yr"] / 1000.0, name=name, legendgroup=remedy,
-                             marker_color=colour, showlegend=False,
-                             hovertemplate="%{x}<br>%{y:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
-        seen.add(remedy)
-    speeds = options["mean_speed_rpm"].to_numpy(dtype=float)
-    finite = speeds[np.isfinite(speeds) & (speeds > 0)]
-    if len(finite):
-        span = max(finite.max() - finite.min(), 5.0)
-        fig.update_yaxes(range=[finite.min() - span, finite.max() + span * 0.5], row=1, col=1)
-    fig.update_yaxes(title_text="Mean speed [rpm]", row=1, col=1)
+    speed = options["mean_speed_rpm"].to_numpy(dtype=float)
+    today_row = options["today"].to_numpy(dtype=bool) if "today" in options else np.arange(len(options)) == 0
+    today_rpm = float(speed[today_row][0]) if today_row.any() else np.nan
+    change = speed - today_rpm
+    change_pct = np.where(today_rpm > 0, change / today_rpm * 100.0, np.nan)
+    colour = _colour_of(options, colours)
+    key = "option_id" if "option_id" in options else "label"
+    bar_colours = [colour(k) for k in options[key]]
+    remedy = options["speed_remedy_id"].fillna("none").to_numpy(dtype=object)
+    shapes = [REMEDY_PATTERNS.get(r, "") for r in remedy]
+    hover = [f"mean {s:,.1f} rpm; today {today_rpm:,.1f} rpm<br>change {c:+,.1f} rpm ({p:+.2f} %)<br>{name}"
+             for s, c, p, name in zip(speed, change, change_pct, options["speed_remedy"])]
+    fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.14,
+                        subplot_titles=("Mean speed against today's motor", "Input energy"))
+    fig.add_trace(go.Bar(x=options["label"], y=change, marker=dict(color=bar_colours, pattern=dict(shape=shapes)),
+                         customdata=hover, showlegend=False, name="speed change",
+                         hovertemplate="%{x}<br>%{customdata}<extra></extra>"), row=1, col=1)
+    fig.add_trace(go.Bar(x=options["label"], y=options["energy_kwh_per_yr"] / 1000.0, showlegend=False, name="input energy",
+                         marker=dict(color=bar_colours, pattern=dict(shape=shapes)),
+                         hovertemplate="%{x}<br>%{y:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
+    for code in dict.fromkeys(remedy):  # the key to the hatching (no data of its own)
+        name = str(options.loc[remedy == code, "speed_remedy"].iloc[0])
+        fig.add_trace(go.Bar(x=[None], y=[None], name=name, legendgroup=str(code), hoverinfo="skip",
+                             marker=dict(color="white", line=dict(color=MUTED, width=1),
+                                         pattern=dict(shape=REMEDY_PATTERNS.get(code, ""), fgcolor=MUTED))),
+                      row=1, col=1)
+    fig.add_hline(y=0, line=dict(color=INK, width=1), row=1, col=1)
+    if np.all(np.abs(change[np.isfinite(change)]) < SAME_SPEED_RPM):
+        fig.add_annotation(text=f"every option runs at today's {today_rpm:,.0f} rpm", xref="x domain", yref="y domain",
+                           x=0.5, y=0.6, showarrow=False, font=dict(size=12, color=MUTED))
+    fig.update_yaxes(title_text="Speed change [rpm]", zeroline=True, row=1, col=1)
     fig.update_yaxes(title_text="Energy [MWh/yr]", row=1, col=2)
     fig.update_xaxes(tickangle=-30, categoryorder="array", categoryarray=list(options["label"]))
     fig.update_layout(barmode="group")
@@ -402,7 +473,8 @@ def plan_by_year(by_year: pd.DataFrame, currency: str, exact_name: str = "exact 
                                  hovertemplate="%{x} budget: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_layout(barmode="group")
     fig.update_xaxes(title_text="Plan year")
-    fig.update_yaxes(title_text=f"Capital [{currency}]")
+    # capital is never negative: the axis starts at zero (a plan buying nothing would otherwise run from -1 to 1)
+    fig.update_yaxes(title_text=f"Capital [{currency}]", rangemode="nonnegative")
     return _style(fig, "Capital by plan year")
 
 
@@ -423,7 +495,7 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
                            text=[f"{v:,.0f} {currency}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
                            textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_xaxes(title_text="Plan")
-    fig.update_yaxes(title_text=f"NPV at plan start [{currency}]")
+    fig.update_yaxes(title_text=f"NPV at plan start [{currency}]", rangemode="tozero")
     return _style(fig, f"Plan NPV: {exact_name.removesuffix(' plan')} plan against rank order")
 
 
@@ -450,10 +522,13 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
                          hovertemplate="%{y}<br>high: %{customdata:,.0f} " + currency + "<extra></extra>"))
     fig.add_vline(x=base, line=dict(color=INK, width=1))  # the centre line, named in the axis title (no label over the legend)
     fig.update_layout(barmode="overlay")
-    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]; centre line: every asset's best option, "
+    # two lines: one would run past a half-width panel
+    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre line: every asset's best option, "
                                 f"no budget, {base:,.0f} {currency}")
     fig.update_yaxes(title_text="Varied input", automargin=True)
-    return _style(fig, "Sensitivity (tornado)", height=400)
+    fig = _style(fig, "Sensitivity (tornado)", height=420)
+    fig.update_layout(margin=dict(b=76))
+    return fig
 
 
 def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
@@ -509,4 +584,8 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
     share = float((draws > 0).mean())
     fig.update_xaxes(title_text=f"Fleet NPV [{currency}]")
     fig.update_yaxes(title_text="Draws")
-    return _style(fig, f"Fleet NPV over {draws.size:,} draws (each asset's best option, no budget) · P(NPV > 0) = {share:.0%}")
+    # the title on two lines (one would run past a half-width panel), the second smaller
+    fig = _style(fig, f"Fleet NPV over {draws.size:,} draws<br><span style='font-size:12px'>each asset's best option, "
+                      f"no budget · P(NPV > 0) = {share:.0%}</span>")
+    fig.update_layout(margin=dict(t=64))
+    return fig

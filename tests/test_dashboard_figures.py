@@ -100,13 +100,13 @@ class TestAsset:
                                                   ("PM", [0.9, 0.94, 0.95], [0.9, 0.95, 0.96]))])
         hours = pd.DataFrame({"load_from_pct": [40.0, 50.0], "load_to_pct": [50.0, 60.0], "hours_per_yr": [1000.0, 3000.0]})
         fig = figures.performance(curves, hours, "shaft load (interval profile)")
-        assert len(fig.data) == 2 * 2 + 1
+        assert len(fig.data) == 2 * 2 + 1 + 1  # efficiency and power factor per option, the lagging key, the hours
         np.testing.assert_allclose(fig.data[0].y, [80.0, 88.0, 90.0])  # fraction shown in percent
         bar = fig.data[-1]
         np.testing.assert_allclose(bar.x, [45.0, 55.0])
         np.testing.assert_allclose(bar.y, [1000.0, 3000.0])
         t = titles(fig)
-        assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"].startswith("Power factor [-]") and t["yaxis3"] == "Hours [h/yr]"
+        assert t["yaxis"] == "Efficiency [%]" and t["yaxis2"] == "Power factor [-]" and t["yaxis3"] == "Hours [h/yr]"
         assert t["xaxis3"].startswith("Today's shaft load [% of rating]")
 
     def test_leading_power_factor_is_told_apart(self):
@@ -115,13 +115,47 @@ class TestAsset:
         curves = pd.DataFrame({"label": "WF", "load_pct": load, "efficiency_frac": [0.9, 0.94, 0.96],
                                "power_factor": [0.6, 0.8, 0.95], "q_kvar": [-30.0, -10.0, 5.0]})
         fig = figures.performance(curves, None, "shaft load")
-        pf = [t for t in fig.data if t.yaxis == "y2"]
+        pf = [t for t in fig.data if t.yaxis == "y2" and t.showlegend is False]
         assert [t.line.dash for t in pf] == ["dot", "dash"]
         lag, lead = pf
         np.testing.assert_allclose(np.asarray(lag.y, dtype=float), [np.nan, np.nan, 0.95])
         np.testing.assert_allclose(np.asarray(lead.y, dtype=float), [0.6, 0.8, np.nan])
         assert "lagging" in lag.hovertemplate and "leading" in lead.hovertemplate
-        assert "dashed leading" in titles(fig)["yaxis2"]
+
+    def test_line_style_key_is_in_the_legend_not_the_axis_title(self):
+        # the two-line axis title ran into the neighbouring titles: one line on the axis, the styles in the legend
+        curves = pd.DataFrame({"label": "WF", "load_pct": [25.0, 100.0], "efficiency_frac": [0.9, 0.96],
+                               "power_factor": [0.6, 0.95], "q_kvar": [-30.0, 5.0]})
+        fig = figures.performance(curves, None, "shaft load")
+        assert titles(fig)["yaxis2"] == "Power factor [-]"
+        key = {t.name: t.line.dash for t in fig.data if t.legendgroup and t.legendgroup.startswith("pf-")}
+        assert key == {"dotted: power factor lagging": "dot", "dashed: power factor leading": "dash"}
+        # a machine that never leads gets no key for the leading style
+        lagging_only = figures.performance(curves.assign(q_kvar=[30.0, 5.0]), None, "shaft load")
+        assert [t.name for t in lagging_only.data if t.legendgroup == "pf-leading"] == []
+
+    def test_one_colour_per_option_on_every_chart(self):
+        # the cash-flow chart leaves out today's motor (no capital): with the page's one map, each option keeps the
+        # colour it has on the efficiency chart instead of taking its neighbour's
+        colours = figures.option_colour_map(["keep", "ie4", "pm_drive"])  # the catalogue's order, today's first
+        assert colours == {"keep": figures.OPTION_COLOURS[0], "ie4": figures.OPTION_COLOURS[1],
+                           "pm_drive": figures.OPTION_COLOURS[2]}
+        cash = pd.DataFrame({"option_id": ["ie4"] * 2 + ["pm_drive"] * 2, "label": ["IE4"] * 2 + ["PM drive"] * 2,
+                             "year": [0, 1] * 2, "cumulative_pv": [-100.0, 20.0, -300.0, 50.0],
+                             "payback_yr": [0.8] * 2 + [np.nan] * 2})
+        curves = pd.DataFrame({"option_id": ["keep", "ie4", "pm_drive"], "label": ["Keep", "IE4", "PM drive"],
+                               "load_pct": [50.0] * 3, "efficiency_frac": [0.9, 0.93, 0.95], "power_factor": [0.8, 0.82, 0.9]})
+        options = pd.DataFrame({"option_id": ["keep", "ie4", "pm_drive"], "label": ["Keep", "IE4", "PM drive"],
+                                "today": [True, False, False], "speed_remedy_id": ["none", "none", "speed_control"],
+                                "speed_remedy": ["none", "none", "held by a drive"],
+                                "mean_speed_rpm": [1490.0, 1494.0, 1300.0], "energy_kwh_per_yr": [1e5, 9.8e4, 7e4]})
+        line = {t.name: t.line.color for t in figures.cumulative_cash(cash, "EUR", colours).data if t.mode == "lines"}
+        eff = {t.name: t.line.color for t in figures.performance(curves, None, "shaft load", colours).data
+               if t.yaxis == "y" and t.showlegend is not False}
+        bars = figures.speed_energy(options, colours).data[0]
+        assert line == {"IE4": colours["ie4"], "PM drive": colours["pm_drive"]}
+        assert eff == {"Keep": colours["keep"], "IE4": colours["ie4"], "PM drive": colours["pm_drive"]}
+        assert list(bars.marker.color) == [colours["keep"], colours["ie4"], colours["pm_drive"]]
 
     def test_speed_energy_by_remedy(self):
         from models.options import speed_remedy_name
@@ -137,11 +171,28 @@ class TestAsset:
         assert got == pytest.approx({"Keep": 100.0, "LSPM": 104.0, "LSPM + trim": 95.0, "Drive": 70.0})  # MWh/yr
         assert {t.name for t in fig.data if t.showlegend is not False} == {
             "none (the load follows the speed)", "impeller trim or pulley", "held by a drive"}
-        # each remedy its own colour (the catalogue's code picks it, not the name shown)
-        colours = {t.name: t.marker.color for t in fig.data if t.yaxis == "y"}
-        assert len(set(colours.values())) == 3
+        # each remedy its own hatching (the catalogue's code picks it, not the name shown); the colour is the option's
+        assert list(fig.data[0].marker.pattern.shape) == ["", "", "/", "x"]
+        assert len(set(fig.data[0].marker.color)) == 4
         t = titles(fig)
-        assert t["yaxis"] == "Mean speed [rpm]" and t["yaxis2"] == "Energy [MWh/yr]"
+        assert t["yaxis"] == "Speed change [rpm]" and t["yaxis2"] == "Energy [MWh/yr]"
+
+    def test_speed_change_against_today_from_zero(self):
+        # a 4-pole fan at 1,490 rpm: a lower-slip motor at 1,496 rpm (+6 rpm, +0.40 %), a drive at 1,200 rpm
+        # (-290 rpm); hand calculation: 1496 - 1490 = 6, 6 / 1490 = 0.403 %, 1200 - 1490 = -290
+        options = pd.DataFrame({"option_id": ["keep", "ie4", "drive"], "label": ["Keep", "IE4", "Drive"],
+                                "today": [True, False, False], "speed_remedy_id": ["none", "none", "speed_control"],
+                                "speed_remedy": ["none", "none", "held by a drive"],
+                                "mean_speed_rpm": [1490.0, 1496.0, 1200.0], "energy_kwh_per_yr": [1e5, 1.01e5, 6e4]})
+        fig = figures.speed_energy(options)
+        speed = fig.data[0]
+        np.testing.assert_allclose(np.asarray(speed.y, dtype=float), [0.0, 6.0, -290.0], atol=1e-9)  # exact differences
+        assert fig.layout.yaxis.range is None  # the axis is not cut: the bars start at the zero line
+        assert any(s.type == "line" and s.y0 == 0 and s.y1 == 0 for s in fig.layout.shapes)
+        assert "mean 1,496.0 rpm; today 1,490.0 rpm" in speed.customdata[1] and "+6.0 rpm (+0.40 %)" in speed.customdata[1]
+        # no option changes the speed: said in words over the empty panel
+        same = figures.speed_energy(options.assign(mean_speed_rpm=1490.0))
+        assert "every option runs at today's 1,490 rpm" in same.layout.annotations[-1].text
 
 
 class TestSite:
@@ -201,6 +252,7 @@ class TestPlanAndRisk:
     def test_plan_by_year_with_budget(self):
         fig = figures.plan_by_year(self.by_year, "EUR")
         assert [t.name for t in fig.data] == ["exact plan", "rank by profitability index", "budget"]
+        assert fig.layout.yaxis.rangemode == "nonnegative"  # a plan buying nothing does not show negative capital
         np.testing.assert_allclose(fig.data[2].y, [100.0, 50.0])
         assert titles(fig) == {"xaxis": "Plan year", "yaxis": "Capital [EUR]"}
 
@@ -222,8 +274,9 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(low.base, [100.0, 100.0])
         np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
         np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
-        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]; centre line: every asset's best option, "
+        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre line: every asset's best option, "
                                         "no budget, 100 EUR")
+        assert max(len(line) for line in titles(fig)["xaxis"].split("<br>")) <= 60  # fits a half-width panel
         assert not fig.layout.annotations  # nothing written over the legend
 
     def test_risk_ranges_top_n(self):

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from urllib.parse import quote
+
 import dash
-from dash import Input, Output, State, callback, dcc, html
+from dash import Input, Output, State, callback, clientside_callback, dcc, html
 
 from dashboard import components as ui
 from dashboard import figures, services
@@ -11,6 +13,7 @@ from dashboard import figures, services
 
 PICK = "asset-pick"
 REQUEST = "asset-request"
+ADDRESS = "asset-address"
 SUMMARY = "asset-summary"
 OPTIONS = "asset-options"
 LCC = "asset-lcc"
@@ -25,13 +28,14 @@ NOTICE = "asset-notice"
 def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
     return html.Div([
         dcc.Store(id=REQUEST, data=id),
+        dcc.Store(id=ADDRESS),
         ui.page_header("Asset", "Every option for one motor, side by side, and how sure the inputs are."),
         ui.notice(NOTICE),
         html.Div([html.Label("Asset", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False, placeholder="choose an asset")],
                  className="filter wide"),
         html.Div(id=SUMMARY, className="asset-summary"),
         html.H3("Options"),
-        ui.data_grid(OPTIONS, height=440, getRowId="params.data.option_id"),
+        ui.data_grid(OPTIONS, height=500, getRowId="params.data.option_id"),
         html.Div([html.Div(ui.graph(LCC), className="panel half"),
                   html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor; the diamond "
                                                    "marks its discounted payback, where the line crosses zero.",
@@ -65,15 +69,44 @@ def choose(requested, session):
     return choices, requested if requested in ids else (ids[0] if ids else None)
 
 
+@callback(Output(ADDRESS, "data"), Input(PICK, "value"))
+def address(asset_id):
+    """The address's query for the asset on screen (``?id=KGQ-F01``): a reload or a bookmark shows that asset.
+
+    The browser's address is rewritten in place (below), so a pick adds no history entry and the page is not
+    rendered again; nothing here feeds back into the dropdown.
+    """
+    return f"?id={quote(str(asset_id), safe='')}" if asset_id else dash.no_update
+
+
+# dcc.Location always pushes a history entry (one per pick) and, with callback navigation, renders the page
+# anew; replacing the entry in place does neither
+clientside_callback(
+    """function (search) {
+        if (search && window.location.pathname.endsWith("/asset") && window.location.search !== search) {
+            window.history.replaceState(window.history.state, "", window.location.pathname + search + window.location.hash);
+        }
+    }""",
+    Input(ADDRESS, "data"),
+)
+
+#: Cautions of an option, as its grid cell counts them (the text in the tooltip and in the grid below).
+CAUTION_COUNT = {"function": "params.value > 0 ? params.value + (params.value == 1 ? ' caution' : ' cautions') : ''"}
+
+
 def option_columns(currency: str) -> list[dict]:
-    """Columns of the options grid."""
-    return [ui.text_col("label", "Option", pinned="left", minWidth=220), ui.text_col("technology", "Technology"),
-            ui.text_col("speed_remedy", "Speed remedy"), ui.number_col("capital", f"Capital [{currency}]"),
+    """Columns of the options grid: long names wrap (and show in a tooltip); the cautions stay in view,
+    pinned right and counted, their text in the tooltip and in the grid of cautions below."""
+    return [ui.long_text_col("label", "Option", pinned="left", minWidth=210),
+            ui.long_text_col("technology", "Technology", minWidth=160),
+            ui.long_text_col("speed_remedy", "Speed remedy", minWidth=160),
+            ui.number_col("capital", f"Capital [{currency}]"),
             ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"), ui.number_col("npv", f"NPV [{currency}]"),
             ui.number_col("irr_pct", "IRR [%]", 1), ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
             ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
             ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
-            ui.text_col("flags", "Cautions", minWidth=260, tooltipField="flags")]
+            ui.number_col("cautions_count", "Cautions", pinned="right", minWidth=110, maxWidth=130, filter=False,
+                          tooltipField="flags", valueFormatter=CAUTION_COUNT)]
 
 
 @callback(
@@ -95,21 +128,22 @@ def update(asset_id, session, edits, requested=None):
     result = view.result()
     asset = view.case.assets.set_index("asset_id").loc[asset_id]
     options = services.asset_options(view, result, asset_id)
+    colours = figures.option_colour_map(services.option_colour_keys(view))  # one colour per option on every chart
     score, defaults, flags = services.asset_quality(view, result, asset_id)
     rating = services.rating_in_unit(float(asset["rated_p_kw"]), view.power_unit)
     summary = [html.Strong(f"{asset_id}: {asset['description'] or ''}"),
                html.Span(f" · site {asset['site_id']} · {asset['application']} · "
-                         f"{ui.fmt_number(rating, 1, services.power_label(view.power_unit))} · "
+                         f"{ui.fmt_rating(rating, services.power_label(view.power_unit))} · "
                          f"{asset['speed_control']} speed control · data quality {score:.0f} %")]
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),
-            figures.cumulative_cash(services.asset_cumulative_cash(view, result, asset_id), view.currency),
-            figures.performance(services.asset_performance(view, asset_id), hours, basis),
-            figures.speed_energy(options),
+            figures.cumulative_cash(services.asset_cumulative_cash(view, result, asset_id), view.currency, colours),
+            figures.performance(services.asset_performance(view, asset_id), hours, basis, colours),
+            figures.speed_energy(options, colours),
             defaults.to_dict("records"),
             [ui.text_col("column", "Field"), ui.text_col("value", "Value used"),
-             ui.text_col("basis", "Basis", flex=2, wrapText=True, autoHeight=True)],
+             ui.long_text_col("basis", "Basis", flex=2)],
             flags.to_dict("records"),
-            [ui.text_col("option", "Option"), ui.text_col("flag", "Caution", flex=3, wrapText=True, autoHeight=True)],
+            [ui.long_text_col("option", "Option"), ui.long_text_col("flag", "Caution", flex=3)],
             notice)

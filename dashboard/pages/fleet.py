@@ -48,8 +48,8 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
     return [ui.number_col("rank", "#", maxWidth=70, pinned="left"),
             ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
             ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application", minWidth=140),
-            ui.number_col("rating", f"Rating [{services.power_label(power_unit)}]", 1),
-            ui.text_col("best_option", "Best option (before the budget)", minWidth=200),
+            ui.rating_col("rating", f"Rating [{services.power_label(power_unit)}]"),
+            ui.long_text_col("best_option", "Best option (before the budget)", minWidth=200),
             ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
             # blank where nothing is spent; said in words where the option does not pay back within the horizon
             ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1, valueFormatter={
@@ -58,7 +58,7 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
                             "d3.format(',.1f')(params.value)"}),
             ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"),
             ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
-            ui.text_col("plan_option", "The plan buys", minWidth=180),
+            ui.long_text_col("plan_option", "The plan buys", minWidth=220),
             ui.number_col("plan_year", "Plan year", maxWidth=110),
             ui.number_col("plan_capital", f"Plan capital [{currency}]"),
             ui.number_col("data_quality_pct", "Data quality [%]")]

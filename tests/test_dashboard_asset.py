@@ -1,0 +1,121 @@
+"""The asset page: its address, one colour per option, cautions, ratings, defaults and grid columns.
+
+Page callbacks and their helpers called directly on a copy of the demo case cut to three motors (their
+rows of data/demo/assets.csv, unchanged).
+"""
+
+from __future__ import annotations
+
+import pytest
+from dash import no_update
+
+from dashboard import app as _shell  # noqa: F401 - the app first: pages register on it
+from dashboard import components as ui
+from dashboard import figures, services
+from dashboard.pages import asset, fleet
+from test_dashboard_services import write_small_case
+
+#: Demo motors used here (data/demo/assets.csv): HRW-D01 0.75 kW dosing pump, HRW-P01 250 kW pump, KGQ-F01 132 kW fan.
+IDS = ("HRW-D01", "HRW-P01", "KGQ-F01")
+
+
+@pytest.fixture(scope="module")
+def three_motors(tmp_path_factory):
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "three", IDS))
+    assert entry is not None, problems
+    return eng
+
+
+@pytest.fixture(autouse=True)
+def engine(three_motors, monkeypatch):
+    monkeypatch.setattr(services, "_ENGINE", three_motors)
+    return three_motors
+
+
+def test_the_address_follows_the_chosen_asset():
+    # from the Fleet page the address is /asset?id=KGQ-F01; picking HRW-D01 must give ?id=HRW-D01
+    assert asset.address("HRW-D01") == "?id=HRW-D01"
+    assert asset.address("A B/1") == "?id=A%20B%2F1"  # quoted as the Fleet page's link quotes it
+    assert asset.address(None) is no_update  # nothing chosen yet: the address stays
+    # the address is never an input of the pick (no loop): the dropdown follows the request only
+    options, value = asset.choose("KGQ-F01", None)
+    assert value == "KGQ-F01"
+
+
+class TestCautions:
+    # the line-start screen's caution as models/operation.py writes it, its reasons joined by "; " inside brackets
+    SCREEN = ("line-start screen: confirm with the supplier (load inertia above 5 x rotor inertia (voltage-dip "
+              "derated); start load torque above 0.5 x rated torque (voltage-dip derated))")
+
+    def test_a_caution_with_reasons_in_brackets_stays_whole(self):
+        assert services.split_cautions(self.SCREEN) == [self.SCREEN]
+
+    def test_cautions_of_one_project_split_at_the_top_level(self):
+        # two cautions of one project, joined by models.scenario._flags_by_project with "; "
+        text = self.SCREEN + "; profile scaled to the mean load"
+        assert services.split_cautions(text) == [self.SCREEN, "profile scaled to the mean load"]
+        assert services.split_cautions("") == [] and services.split_cautions(None) == []
+
+
+class TestNumbers:
+    def test_ratings_keep_their_precision(self):
+        # ratings of data/demo/assets.csv: 0.75, 1.1, 7.5, 250, 1600 kW; 37.2849936 kW is 50 hp (NIST SP 811 B.9)
+        assert [ui.fmt_rating(x, "kW") for x in (0.75, 1.1, 7.5, 250.0, 1600.0, 37.2849936)] == [
+            "0.75 kW", "1.1 kW", "7.5 kW", "250 kW", "1,600 kW", "37.28 kW"]
+        assert ui.fmt_rating(float("nan"), "kW") == "-"
+
+    def test_the_summary_shows_a_small_rating_as_rated(self):
+        out = asset.update("HRW-D01", None, None)
+        assert "0.75 kW" in str(out[0])  # the demo's assets.csv row HRW-D01: 0.75 kW
+
+    def test_the_fleet_rating_column_keeps_the_precision(self):
+        rating = next(c for c in fleet.table_columns("EUR", "kW") if c["field"] == "rating")
+        # d3 ",.2~f": up to 2 decimals, trailing zeros dropped (0.75, 1.1, 250), as ui.fmt_rating
+        assert "d3.format(',.2~f')" in rating["valueFormatter"]["function"]
+
+    def test_defaults_rounded_by_quantity(self):
+        # hand rounding of values the defaults table held as raw floats
+        assert services.default_text("rated_power_factor", 0.878603) == "0.879"  # power factor: 3 decimals
+        assert services.default_text("rated_speed_rpm", 981.555) == "982"  # speed: whole rpm
+        assert services.default_text("rated_speed_rpm", 1434.11) == "1434"
+        assert services.default_text("rated_efficiency_pct", 81.64) == "81.6"  # percent: 1 decimal (0.816 as fraction)
+        assert services.default_text("static_head_frac", 0.3) == "0.3"  # trailing zeros dropped
+        assert services.default_text("rewind_count", 0.0) == "0"
+        assert services.default_text("start_duty", "light") == "light"  # text as it is
+
+    def test_the_defaults_grid_shows_no_raw_floats(self):
+        rows = {r["column"]: r["value"] for r in asset.update("HRW-D01", None, None)[7]}
+        # regression, not validation: the demo fills HRW-D01's speed with 1434.11 rpm and its efficiency with
+        # 81.64 % (shown so before); rounded to whole rpm and one decimal of a percent
+        assert rows["rated_speed_rpm"] == "1434" and rows["rated_efficiency_pct"] == "81.6"
+
+
+def test_one_colour_per_option_across_the_asset_charts():
+    # KGQ-F01: the cash-flow chart leaves out "Keep as is" (no capital); each option must keep the colour it has
+    # on the efficiency chart and the speed chart
+    keys = services.option_colour_keys(services.view(None, None))
+    assert keys[0] == "keep" and keys[:4] == ["keep", "rewind", "ie3", "ie4"]  # data/defaults/options.csv order
+    out = asset.update("KGQ-F01", None, None)
+    cash, performance, speed = out[4], out[5], out[6]
+    cash_colour = {t.name: t.line.color for t in cash.data if t.mode == "lines"}
+    efficiency_colour = {t.name: t.line.color for t in performance.data if t.yaxis == "y" and t.showlegend is not False}
+    speed_colour = dict(zip(speed.data[0].x, speed.data[0].marker.color))
+    assert "Keep as is" not in cash_colour and len(cash_colour) >= 2
+    assert all(cash_colour[name] == efficiency_colour[name] == speed_colour[name] for name in cash_colour)
+    colours = figures.option_colour_map(keys)
+    assert efficiency_colour["Keep as is"] == colours["keep"]
+
+
+class TestGridColumns:
+    def test_long_option_texts_wrap_and_have_tooltips(self):
+        cols = {c["field"]: c for c in asset.option_columns("EUR")}
+        for field in ("label", "technology", "speed_remedy"):
+            assert cols[field]["tooltipField"] == field and cols[field]["wrapText"] and cols[field]["autoHeight"]
+        # the cautions stay on screen (pinned right), counted, their text in the tooltip
+        assert cols["cautions_count"]["pinned"] == "right" and cols["cautions_count"]["tooltipField"] == "flags"
+
+    def test_what_the_plan_buys_can_be_read(self):
+        cols = {c["field"]: c for c in fleet.table_columns("EUR", "kW")}
+        for field in ("plan_option", "best_option"):
+            assert cols[field]["tooltipField"] == field and cols[field]["wrapText"] and cols[field]["autoHeight"]
