@@ -719,6 +719,10 @@ TABLE_MIN_STEPS = 8 * TABLE_NODES
 #: kink's error falls with the cell width, a smooth curve's with its square); used for profiles of at
 #: least 8 x this many intervals; rows that still fail are evaluated per interval.
 FINE_TABLE_NODES = 4 * (TABLE_NODES - 1) + 1
+#: A row that fails even the finer grid is read from it in its good cells and evaluated interval by interval
+#: in the failing ones (a kink inside them) when at most this share of its running intervals falls there;
+#: above it, every interval of the row is evaluated (it saves nothing to interpolate the rest).
+MAX_EXACT_SHARE = 0.5
 #: Tabulate the machine models where it pays (False: evaluate every interval, the reference path).
 TABULATE = True
 
@@ -850,6 +854,29 @@ def _point_flags(pt) -> list[tuple[int, str]]:
     for part_rows, part in pt.parts:
         out.extend((int(part_rows[i]), text) for i, text in part.flags)
     return out
+
+
+def _take_point(pt: _Point, rows: np.ndarray) -> _Point:
+    """The rows ``rows`` (unique, sorted) of a point on a grid, its flags renumbered."""
+    at = {int(r): k for k, r in enumerate(rows)}
+    return _Point(*(None if v is None else np.broadcast_to(v, pt.p_kw.shape)[rows]
+                    for v in (getattr(pt, name) for name in _POINT_ARRAYS)),
+                  flags=[(at[i], text) for i, text in pt.flags if i in at])
+
+
+def _cells_hold(pt: _Point, arr) -> np.ndarray:
+    """Cells (bool, (n, n_nodes - 1)) whose every quantity interpolates within :data:`TABLE_TOLERANCE_FRAC`
+    (:func:`_tabulation_holds`, cell by cell: a row holds where all its cells do)."""
+    tol_kw = (0.5 * TABLE_TOLERANCE_FRAC * arr["rated_p_kw"] / arr["eff_frac"])[:, None]
+    ok = None
+    for name in _POINT_ARRAYS:
+        values = getattr(pt, name)
+        if values is None:
+            continue
+        tol = 0.5 * TABLE_TOLERANCE_FRAC * arr["sync_rpm"][:, None] if name == "speed_rpm" else tol_kw
+        holds = tabulation.cell_errors(np.broadcast_to(values, pt.p_kw.shape)) <= tol
+        ok = holds if ok is None else ok & holds
+    return ok
 
 
 def _tabulation_holds(pt: _Point, arr) -> np.ndarray:
@@ -1130,7 +1157,58 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             still = np.flatnonzero(~ok_fine)
             bad = bad[still]
             arr_b, existing_b = _take(arr_b, still), _take_params(existing_b, still)
+            # the cells that fail (a kink inside them): their intervals evaluated one by one, the rest read
+            # from the fine grid, row by row where few enough intervals fall in failing cells
+            flat_still = _Point(*(None if v is None else np.broadcast_to(v, flat_fine.p_kw.shape)[still]
+                                  for v in (getattr(flat_fine, name) for name in _POINT_ARRAYS)),
+                                flags=[(int(k), text) for i, text in flat_fine.flags for k in np.flatnonzero(still == i)])
+            cells_ok = _cells_hold(flat_still, arr_b)
+            g_rows = still  # the fine grid's rows are the rows that failed the first grid, in order
+            cell = fine.cell[g_rows]
+            top = fine.n_nodes - 1
+            exact = (cell != top) & ~np.take_along_axis(np.pad(cells_ok, ((0, 0), (0, 1)), constant_values=True),
+                                                          cell.astype(np.intp), axis=1)
+            few = exact.sum(axis=1) <= MAX_EXACT_SHARE * np.maximum((cell != top).sum(axis=1), 1)
+            if few.any():
+                by_cells(o, option, rows_, sub[bad[few]], _take(arr_b, np.flatnonzero(few)),
+                         _take_params(existing_b, np.flatnonzero(few)), load, fine, g_rows[few],
+                         _take_point(flat_still, np.flatnonzero(few)), exact[few])
+            if few.all():
+                return
+            many = np.flatnonzero(~few)
+            bad = bad[many]
+            arr_b, existing_b = _take(arr_b, many), _take_params(existing_b, many)
         by_parts(o, option, kind, rows_, sub[bad], arr_b, existing_b, load)
+
+    def by_cells(o: int, option: Mapping, rows_: np.ndarray, sub: np.ndarray, arr_s, existing_s, load: _Load,
+                 grid: tabulation.Grid, grid_rows: np.ndarray, pt: _Point, exact: np.ndarray) -> None:
+        """Store the rows ``sub`` of a group from their grid (rows ``grid_rows`` of ``grid``, the model's
+        values ``pt`` on it), every interval marked in ``exact`` (n, n_steps) evaluated on its own instead.
+
+        The models are element-wise, so each exact interval is evaluated as a row of one column (its asset's
+        constants, its load), all of them in one call; the flags are the grid's (taken over the same loads).
+        """
+        load_s = load.rows(sub)
+        values = {}
+        for name in _POINT_ARRAYS:
+            v = getattr(pt, name)
+            values[name] = None if v is None else tabulation.interpolate(grid, *tabulation.tables(v), rows=grid_rows)
+        r_k, t_k = np.nonzero(exact)
+        if len(r_k):
+            one = {key: v[r_k] for key, v in arr_s.items()}  # (positions repeat: not _take, which assumes unique)
+            from dataclasses import fields, replace
+
+            motors = replace(existing_s, **{f.name: np.asarray(getattr(existing_s, f.name))[r_k] for f in fields(existing_s)
+                                           if np.ndim(getattr(existing_s, f.name))})
+            n_ref = None if load_s.n_ref_known is None else load_s.n_ref_known[r_k, t_k][:, None]
+            load_k = _Load(load_s.p_ref_kw[r_k, t_k][:, None], n_ref, np.ones((len(r_k), 1), dtype=bool),
+                           np.full((len(r_k), 1), interval_h), load_s.p_design_kw[r_k], existing=motors)
+            pt_k = _whole(_evaluate(option, one, motors, load_k))
+            for name in _POINT_ARRAYS:
+                if values[name] is not None:
+                    got = getattr(pt_k, name)
+                    values[name][r_k, t_k] = 0.0 if got is None else np.broadcast_to(got, (len(r_k), 1))[:, 0]
+        store(o, "interval", rows_, sub, _Point(**values, flags=list(pt.flags)), load_s)
 
     # today's motors first
     for kind, rows_, arr, existing, load in groups:

@@ -337,6 +337,34 @@ class TestTabulatedMachines:
         assert seen["first"][0] < seen["first"][1] == seen["first"][0] + seen["finer"][1]
         assert 0 < seen["finer"][0]
 
+    def test_rows_failing_the_finer_grid_are_evaluated_only_in_their_failing_cells(self, fleet, monkeypatch):
+        # a row still failing on the 513-node grid fails there in a cell or two (a kink: a drive's minimum
+        # speed, zero or full flow); its intervals in those cells are evaluated one by one, the others read
+        # from the grid, all within the tolerance; only the wound-field machines (which follow the site
+        # interval by interval) are still evaluated over every interval of a year
+        cells, widths = [], []
+        hold, evaluate = operation._cells_hold, operation._evaluate
+
+        def spy_cells(pt, arr):
+            ok = hold(pt, arr)
+            cells.append((int(ok.sum()), ok.size))
+            return ok
+
+        def spy_evaluate(option, arr, existing, load, site_other=None):
+            if operation.TABULATE:  # (not the reference run)
+                widths.append((option["technology"], load.p_ref_kw.shape[1]))
+            return evaluate(option, arr, existing, load, site_other)
+
+        monkeypatch.setattr(operation, "_cells_hold", spy_cells)
+        monkeypatch.setattr(operation, "_evaluate", spy_evaluate)
+        for site_id, _ in site_partition(fleet):
+            one, exact, tab = _both(fleet, site_id, monkeypatch)
+            _assert_within_tolerance(one, exact, tab, operation.TABLE_TOLERANCE_FRAC)
+        assert cells and all(0 < good < size for good, size in cells)
+        n_steps = len(case_index(fleet))
+        assert {tech for tech, width in widths if width == n_steps} <= {"wound_field"}, widths
+        assert any(width == 1 for _, width in widths)  # intervals in failing cells, each on its own
+
     def test_short_profiles_are_not_tabulated(self, fleet, monkeypatch):
         site_id = site_partition(fleet)[0][0]
         _, exact, tab = _both(fleet, site_id, monkeypatch, TABLE_MIN_STEPS=10**6)
