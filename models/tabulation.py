@@ -125,7 +125,7 @@ def _grid(u_lo, u_hi, cell, position, count, moment, finite, interval_h: float) 
         step = (u_hi - u_lo) / (n_nodes - 1)
         u_grid = u_lo[:, None] + cols[None, :] * step[:, None]
         u_grid[:, -1] = u_hi  # the last node is the largest load itself
-        p_grid = u_grid ** 3
+        p_grid = u_grid * u_grid * u_grid  # (a product, 4x as fast as the power; within an ulp of it)
     hours = count * float(interval_h)
     moment *= float(interval_h)
     hours[:, -1] = 0.0
