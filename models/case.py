@@ -967,14 +967,26 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
                  tariffs_expected: bool, unreadable: set[str] = frozenset()) -> None:
     s = checker.frame
     _duplicates(checker, "site_id", "site_id")
+    known = sorted(set(tariffs) | set(unreadable))
     for i in np.flatnonzero(s["tariff_file"].notna().to_numpy()):
         name = s["tariff_file"].iloc[i]
         if name in unreadable:
             checker.err(i, "tariff_file", name, "the tariff file named here could not be read (see its own problems)",
                         "fix the tariff file first")
         elif tariffs_expected and name not in tariffs:
-            checker.err(i, "tariff_file", name, "tariff file not found in the case's tariffs",
-                        "put the file in the tariffs/ folder (or a 'tariff <name>' sheet)")
+            close = difflib.get_close_matches(str(name), known, n=1, cutoff=0.6)
+            hint = (f"did you mean '{close[0]}'? " if close else "") + (
+                f"the case's tariffs are: {', '.join(known)}" if known else
+                "put the file in the tariffs/ folder (or a 'tariff <name>' sheet)")
+            checker.err(i, "tariff_file", name, "tariff file not found in the case's tariffs", hint)
+    blank = np.flatnonzero(s["tariff_file"].isna().to_numpy())
+    if len(blank) and known:  # a case with tariffs prices every site: one without a tariff cannot run
+        for i in blank:
+            checker.err(i, "tariff_file", None, "no tariff file named: pricing the site's bill needs one",
+                        f"name one of the case's tariffs: {', '.join(known)}")
+    elif len(blank) and len(s):  # no tariff at all: the machines compare, nothing is priced
+        checker.warn(None, "tariff_file", None, "the case has no tariff: its machines can be compared, but no bill "
+                     "can be priced", "drivecase bill, run and report need a tariff file per site (docs/tariffs.md)")
     for i in np.flatnonzero(s["base_profile_id"].notna().to_numpy()):
         pid = s["base_profile_id"].iloc[i]
         series = profiles.get(str(pid))

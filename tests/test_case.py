@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import copy
 import hashlib
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -15,6 +16,8 @@ import casebuilder as cb
 from models.case import load_case
 from models.profiles import conform
 from models.problems import CaseError
+
+TARIFFS = Path(__file__).resolve().parents[1] / "data" / "tariffs"
 
 
 def _assets_with(row: int, column: str, value: str, header=None) -> list[list[str]]:
@@ -197,6 +200,36 @@ class TestAssetRules:
     def test_empty_register(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=[]))
         assert _find(problems, file="assets.csv", text="no rows")
+
+
+class TestTariffReferences:
+    """A case with tariffs prices every site: a site naming none, or one the case lacks, is an error naming its row."""
+
+    @staticmethod
+    def _case(tmp_path, tariff_file: str):
+        folder = cb.write_case(tmp_path / "c", sites=[["S1", "Test works", "50", "0.9", tariff_file]])
+        header = cb.SITES_HEADER + ["tariff_file"]
+        cb.write_csv(folder / "sites.csv", header, [["S1", "Test works", "50", "0.9", tariff_file]])
+        (folder / "tariffs").mkdir()
+        shutil.copyfile(TARIFFS / "example_kva_demand.toml", folder / "tariffs" / "flat.toml")
+        return folder
+
+    def test_a_site_without_a_tariff(self, tmp_path):
+        case, problems = load_case(self._case(tmp_path, ""))
+        assert case is None
+        p = _find(problems, file="sites.csv", row=2, column="tariff_file", text="no tariff file named")
+        assert "flat.toml" in p.hint
+
+    def test_a_misspelt_tariff_is_named_with_a_guess(self, tmp_path):
+        case, problems = load_case(self._case(tmp_path, "flatt.toml"))
+        assert case is None
+        p = _find(problems, file="sites.csv", row=2, column="tariff_file", text="not found")
+        assert "did you mean 'flat.toml'?" in p.hint
+
+    def test_a_case_without_any_tariff_is_warned_once(self, tmp_path):
+        case, problems = load_case(cb.write_case(tmp_path / "c"))  # casebuilder's case has no tariffs/
+        assert case is not None
+        assert len([p for p in problems if "has no tariff" in p.rule and p.severity == "warning"]) == 1
 
 
 class TestProfileRules:

@@ -51,8 +51,15 @@ def test_new_then_fill_then_check(tmp_path, capsys):
     assert (case / "assets.csv").read_text(encoding="utf-8").startswith("#")
     # an empty template is not a valid case yet: the register has no rows
     assert main(["check", str(case)]) == 1
-    with open(case / "sites.csv", "a", encoding="utf-8") as handle:
+    with open(case / "sites.csv", "a", encoding="utf-8") as handle:  # without a tariff the site cannot be priced
         handle.write("S1,Main works,,,150,0.9,,\n")
+    capsys.readouterr()
+    assert main(["check", str(case)]) == 1
+    out = capsys.readouterr().out
+    assert "sites.csv, row" in out and "no tariff file named" in out and case_io.BLANK_CASE_TARIFF in out
+    text = (case / "sites.csv").read_text(encoding="utf-8")
+    (case / "sites.csv").write_text(text.replace("S1,Main works,,,150", f"S1,Main works,,{case_io.BLANK_CASE_TARIFF},150"),
+                                    encoding="utf-8")
     with open(case / "assets.csv", "a", encoding="utf-8") as handle:
         header = [h for h in (case / "assets.csv").read_text(encoding="utf-8").splitlines() if not h.startswith("#")][0].split(",")
         rows = [

@@ -548,6 +548,15 @@ class TestServer:
         out = capsys.readouterr().out
         assert "row 2" in out and "rated_p_kw" in out
 
+    def test_a_case_without_tariffs_is_not_served(self, tmp_path, capsys, monkeypatch):
+        # casebuilder's small case has no tariffs/: it is read (with a warning) but no page could price it
+        import casebuilder as cb
+
+        monkeypatch.setattr(services, "_ENGINE", None)
+        assert server.serve(cb.write_case(tmp_path / "c"), open_browser=False) == 1
+        captured = capsys.readouterr()
+        assert "cannot be priced: no tariff for site(s) S1" in captured.err and "Dashboard on" not in captured.out
+
     def test_busy_port_returns_1_with_one_clear_message(self, small_case_dir, capsys, monkeypatch):
         import socket
 
