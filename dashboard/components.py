@@ -58,6 +58,9 @@ def fmt_number(value, decimals: int = 0, unit: str = "") -> str:
     return f"{text} {unit}".strip()
 
 
+#: What a "Saving" column of the dashboard adds up (the report's and the workbook's "Saving" too).
+SAVING_NOTE = ("Yearly saving at base-year prices: the site's bill (taxes and levies included) plus maintenance; "
+               "the command line's and results.csv's bill saving leave maintenance out.")
 #: Most decimals a rating is shown with (0.75 kW, 1.1 kW, 7.5 kW, 250 kW; 1.01 hp).
 RATING_DECIMALS = 2
 

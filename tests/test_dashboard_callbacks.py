@@ -231,6 +231,12 @@ def test_prove_button_is_off_once_the_plan_is_proven(engine):
     assert list(fig.data[0].x) == ["best plan found", "rank by profitability index"]
 
 
+def test_saving_columns_say_what_they_add_up(engine):
+    for columns in (fleet.update(None, None, None, None)[5], asset.option_columns("EUR")):
+        saving = next(c for c in columns if c["field"] == "saving_per_yr")
+        assert "plus maintenance" in saving["headerTooltip"]
+
+
 def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):
     # a blank discounted payback reads "not within the horizon" where capital is spent, blank where none is
     columns = fleet.update(None, None, None, None)[5]

@@ -200,6 +200,7 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     total, bills, maintenance = (float(m.replace(",", "")) for m in re.search(
         r"yearly saving ([-\d,]+) EUR/yr \(bills ([-\d,]+), maintenance ([-\d,]+)\)", line).groups())
     assert abs(total - (bills + maintenance)) <= 1.0  # each printed to the whole euro
+    assert "bill saving [EUR/yr]" in out  # the table of best options says which saving it shows
     names = sorted(p.name for p in (tmp_path / "a").iterdir())
     assert {"results.csv", "cashflows.csv", "bills.csv", "plan.csv", "risk.csv"} <= set(names)
     match, mismatch, errors = filecmp.cmpfiles(tmp_path / "a", tmp_path / "b", names, shallow=False)

@@ -101,7 +101,7 @@ def option_columns(currency: str) -> list[dict]:
             ui.long_text_col("technology", "Technology", minWidth=160),
             ui.long_text_col("speed_remedy", "Speed remedy", minWidth=160),
             ui.number_col("capital", f"Capital [{currency}]"),
-            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"), ui.number_col("npv", f"NPV [{currency}]"),
+            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE), ui.number_col("npv", f"NPV [{currency}]"),
             ui.number_col("irr_pct", "IRR [%]", 1), ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
             ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
             ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),

@@ -56,7 +56,7 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
                 "function": "(params.value == null || !isFinite(params.value)) ? "
                             "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
                             "d3.format(',.1f')(params.value)"}),
-            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]"),
+            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
             ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
             ui.long_text_col("plan_option", "The plan buys", minWidth=220),
             ui.number_col("plan_year", "Plan year", maxWidth=110),
