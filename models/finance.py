@@ -1406,8 +1406,15 @@ class FinanceAssumptions:
         values = _as_dict(cls())
         for key, raw in data.items():
             if key not in values:
-                problems.append(warning(source, None, prefix + key, raw, "unknown finance key, ignored",
-                                        "check the spelling against docs/finance.md"))
+                import difflib
+
+                close = difflib.get_close_matches(str(key), [k for k in values if k not in data], n=1, cutoff=0.6)
+                if close:
+                    hint = (f"did you mean '{close[0]}'? Until it is named so, the default "
+                            f"{close[0]} = {_shown(values[close[0]])} is used")
+                else:
+                    hint = "check the spelling against docs/finance.md"
+                problems.append(warning(source, None, prefix + key, raw, "unknown finance key, ignored", hint))
                 continue
             value, problem = _coerce(key, raw, values[key], source, prefix)
             if problem is not None:
@@ -1458,6 +1465,15 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
 
 
 _TEXT_KEYS = ("currency", "rate_basis", "replacement_mode")
+
+
+def _shown(value: Any) -> str:
+    """A finance value as finance.toml writes it (for messages)."""
+    if isinstance(value, tuple):
+        return "[" + ", ".join(f"{v:g}" for v in value) + "]"
+    if isinstance(value, float):
+        return "no limit" if math.isinf(value) else f"{value:g}"
+    return f'"{value}"' if isinstance(value, str) else str(value)
 
 
 def finance_template() -> str:

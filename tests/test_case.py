@@ -455,6 +455,15 @@ class TestFinanceWarnings:
         hit = _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
         assert "no capital budget" in hit.rule
 
+    def test_a_misspelt_key_is_named_with_a_guess_and_the_value_used(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "finance.toml").write_text('currency = "EUR"\ndiscount_rate = 0.05\n', encoding="utf-8")
+        case, problems = load_case(folder)
+        hit = _find(problems, file="finance.toml", column="discount_rate", severity="warning", text="unknown finance key")
+        # the program's default discount rate (models.finance.FinanceAssumptions, docs/finance.md): 0.08
+        assert "did you mean 'discount_rate_frac'?" in hit.hint and "discount_rate_frac = 0.08 is used" in hit.hint
+        assert case.finance.discount_rate_frac == 0.08
+
     def test_a_budget_of_zero_every_year_is_warned(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")
         (folder / "finance.toml").write_text('currency = "EUR"\nbudget_per_yr = [0, 0, 0]\n', encoding="utf-8")
