@@ -371,7 +371,18 @@ def cmd_report(args: argparse.Namespace) -> int:
     except ValueError as exc:
         print(f"drivecase report: {exc}", file=sys.stderr)
         return 1
-    written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf)
+    import warnings
+
+    from models.pack import PackWarning
+
+    with warnings.catch_warnings(record=True) as caught:  # the pack's notes as plain lines, not Python warnings
+        warnings.simplefilter("always", PackWarning)
+        written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf)
+    for note in caught:
+        if issubclass(note.category, PackWarning):
+            print(f"drivecase report: {note.message}", file=sys.stderr)
+        else:
+            warnings.showwarning(note.message, note.category, note.filename, note.lineno)
     print(f"Capital-request pack written to {args.out}:")
     for path in written:
         print(f"  {path}")

@@ -251,6 +251,18 @@ def test_new_workbook_in_a_folder_points_check_at_the_workbook(tmp_path, capsys)
     assert f"drivecase check {tmp_path / 'blank' / 'case.xlsx'}" in out
 
 
+def test_report_says_a_skipped_pdf_in_a_plain_line(tmp_path, capsys, monkeypatch):
+    import models.pack.pdf as pdf
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    monkeypatch.setattr(pdf, "CHROMIUM_PATH", str(tmp_path / "no-such-browser"))
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack"), "--pdf"]) == 0
+    err = capsys.readouterr().err
+    assert "drivecase report: PDF skipped" in err and "PackWarning" not in err and "write_pack(" not in err
+
+
 def test_out_that_is_a_file_is_refused_before_any_work(tmp_path, capsys):
     afile = tmp_path / "afile"
     afile.write_text("mine", encoding="utf-8")
