@@ -180,7 +180,8 @@ def cmd_bill(args: argparse.Namespace) -> int:
         balance = reactive_balance(meter, op.interval_h)
         print(f"  Reactive balance: lagging {balance['lagging_kvarh'] / 1000:,.0f} MVArh, leading "
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
-              f"{balance['capacitor_kvarh'] / 1000:,.0f} MVArh; average power factor {balance['average_power_factor']:.3f}")
+              f"{round(balance['capacitor_kvarh'] / 1000) + 0.0:,.0f} MVArh; average power factor "
+              f"{balance['average_power_factor']:.3f}")  # (+ 0.0: no "-0" for a rounded zero)
     if args.reactive_sweep:
         curve = reactive_value_curve(case, op, args.reactive_sweep, capacitor_cost)
         print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows "

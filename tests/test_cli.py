@@ -251,6 +251,16 @@ def test_new_workbook_in_a_folder_points_check_at_the_workbook(tmp_path, capsys)
     assert f"drivecase check {tmp_path / 'blank' / 'case.xlsx'}" in out
 
 
+def test_bill_without_banks_says_zero_not_minus_zero(tmp_path, capsys):
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    header = (case / "capacitors.csv").read_text(encoding="utf-8").splitlines()[0]
+    (case / "capacitors.csv").write_text(header + "\n", encoding="utf-8")  # no capacitor bank anywhere
+    assert main(["bill", str(case), "--site", "HRW"]) == 0
+    out = capsys.readouterr().out
+    assert "supplied by capacitor banks 0 MVArh" in out and "-0 MVArh" not in out
+
+
 def test_report_says_a_skipped_pdf_in_a_plain_line(tmp_path, capsys, monkeypatch):
     import models.pack.pdf as pdf
     from test_scenario import _one_asset_case
