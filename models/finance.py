@@ -1296,7 +1296,9 @@ class FinanceAssumptions:
     downtime_cost_per_h : float
         Default cost of lost production per hour of unplanned stop [currency/h].
     capacitor_cost_per_kvar : float
-        Default installed cost of capacitor banks [currency/kVAr].
+        Installed cost of a capacitor bank [currency/kVAr]: what the kVAr of a leading machine (or any
+        option's reactive saving) is compared with, as the bank that would give the same kVAr. The
+        capacitor option's own capital comes from its row of the options catalogue.
     energy_price_factor : float
         Price level of the site's tariffs [-], > 0: every charge of every tariff is multiplied by it
         (1.0 = the tariffs as written; 1.2 = a 20 % dearer electricity scenario).
@@ -1455,7 +1457,8 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
     "depreciation_yr": ("yr", "straight-line tax depreciation period"),
     "replacement_mode": ("-", "replace now, or replace when today's motor fails"),
     "downtime_cost_per_h": ("currency/h", "default cost of an unplanned stop per hour"),
-    "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of capacitor banks"),
+    "capacitor_cost_per_kvar": ("currency/kVAr", "installed cost of a capacitor bank, the yardstick for a leading "
+                                "machine's kVAr (the capacitor option's own price is its row of the options catalogue)"),
     "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
     "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
