@@ -998,6 +998,31 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
     s["base_power_factor"] = s["base_power_factor"].fillna(0.9)
 
 
+def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
+    """Warn where a site's demand charge takes shorter windows than its motors' profiles resolve: each
+    profile interval is then read as one window, which averages the peak away (docs/tariffs.md,
+    "Modelling limits")."""
+    if not isinstance(profile_info, pd.DataFrame) or profile_info.empty or "profile_id" not in assets:
+        return
+    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
+    s = sites.frame
+    for i in range(len(s)):
+        tariff = tariffs.get(s["tariff_file"].iloc[i]) if s["tariff_file"].iloc[i] is not None else None
+        windows = [d.window_min for d in getattr(tariff, "demand", ())]
+        if not windows:
+            continue
+        window = min(windows)
+        own = assets.loc[assets["site_id"] == s["site_id"].iloc[i], "profile_id"].dropna()
+        coarse = sorted({int(resolution[p]) for p in own if p in resolution and resolution[p] > window})
+        if coarse:
+            n = int(sum(1 for p in own if p in resolution and resolution[p] > window))
+            sites.warn(i, "tariff_file", s["tariff_file"].iloc[i],
+                       f"the tariff's demand charge takes {window}-min windows, but {n} motor(s) of the site have "
+                       f"{'/'.join(map(str, coarse))}-min profiles: each interval is read as one window, which "
+                       "understates the demand peak and its savings",
+                       f"log the largest motors at {window}-min resolution where the demand charge matters")
+
+
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:
     c = checker.frame
     _duplicates(checker, "bank_id", "bank_id")
@@ -1201,6 +1226,8 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         if frames["assets"].empty:
             problems.append(error(checkers["assets"].raw.source, None, None, None, "the asset register has no rows",
                                   "add one row per motor"))
+    if "sites" in checkers and "assets" in checkers:
+        _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
     for checker in checkers.values():
         problems.extend(checker.problems)
     problems = _ordered(_with_toml_lines(raw, problems))

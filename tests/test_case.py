@@ -232,6 +232,14 @@ class TestTariffReferences:
         assert len([p for p in problems if "has no tariff" in p.rule and p.severity == "warning"]) == 1
 
 
+def test_hourly_profiles_against_a_shorter_demand_window_are_warned(demo_case):
+    # the demo's sites (data/demo/sites.csv): HRW on a tariff with 15-min demand windows, KGQ on one with 30-min
+    # windows; every demo profile is hourly (data/generate_demo.py)
+    found = [p for p in demo_case.problems if "demand charge takes" in p.rule]
+    assert [(p.file, p.row, p.severity) for p in found] == [("sites.csv", 2, "warning"), ("sites.csv", 3, "warning")]
+    assert "15-min windows" in found[0].rule and "60-min profiles" in found[0].rule and "30-min windows" in found[1].rule
+
+
 class TestProfileRules:
     def test_duplicated_timestamps(self, tmp_path):
         rows = cb.profile_rows()

@@ -267,7 +267,8 @@ def test_assumption_steppers_and_out_of_range_values(tab):
     # the number fields' + and - buttons step the value by one (a field with a lower bound and no upper one
     # used to turn into NaN), and a value out of range reaches the server and gets a message in the form's words
     page = tab.goto("/inputs", PAGES[-1][1])
-    page.locator("#inputs-problems").filter(has_text="No problems: the case was read as written").wait_for()
+    # the demo's warnings are listed (its hourly profiles against 15- and 30-min demand windows)
+    page.locator("#inputs-problems").filter(has_text="demand charge takes 15-min windows").wait_for()
     page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '100'")
     page.click("button.dash-stepper-increment[aria-controls='inputs-price-level']")
     page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '101'")
