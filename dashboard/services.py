@@ -1102,10 +1102,16 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
 def week_starts(view_: View) -> list[dict]:
     """Monday starts of the analysis year, as dropdown options (and its first day when that is not a Monday)."""
     index = view_.physics().operation.index
+
+    def day(t) -> str:
+        # the year only where it is not the analysis year's: the list's search matches each typed word
+        # inside the label's words, so "20 Oct" would also match every "2025"
+        return f"{t:%a} {t.day} {t:%b}" + (f" {t.year}" if len(index) and t.year != index[0].year else "")
+
     mondays = index[(index.dayofweek == 0) & (index.hour == 0) & (index.minute == 0)]
-    options = [{"label": f"Week of {t:%d %b %Y}", "value": t.isoformat()} for t in mondays]
+    options = [{"label": f"Week of {day(t)}", "value": t.isoformat()} for t in mondays]
     if len(index) and (not len(mondays) or index[0] < mondays[0]):  # the days before the first Monday
-        options.insert(0, {"label": f"First days, from {index[0]:%d %b %Y}", "value": index[0].isoformat()})
+        options.insert(0, {"label": f"First days, from {day(index[0])}", "value": index[0].isoformat()})
     return options
 
 
