@@ -803,8 +803,15 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
         if "rated_p_kw" not in checker.raw.frame:  # perhaps under another heading
             hint = _missing_column_hint("rated_p_kw", unknown)
             hint = hint if "was not recognised" in hint else ""
-        for i in np.flatnonzero(both_missing):
-            if _blank(raw_kw.iloc[i]) and _blank(raw_hp.iloc[i]):
+        rows = [i for i in np.flatnonzero(both_missing) if _blank(raw_kw.iloc[i]) and _blank(raw_hp.iloc[i])]
+        if "rated_p_kw" not in checker.raw.frame and len(rows) > 1:
+            # one missing heading, not one message per row: the file's message names the rows it leaves unrated
+            shown = ", ".join(str(int(checker.raw.rows[i])) for i in rows[:5]) + (
+                f" and {len(rows) - 5} more" if len(rows) > 5 else "")
+            checker.err(None, "rated_p_kw", None, f"no rated_p_kw column: {len(rows)} motors have no rating "
+                        f"(rated_p_kw or rated_p_hp), rows {shown}", hint or _missing_column_hint("rated_p_kw", unknown))
+        else:
+            for i in rows:
                 checker.err(i, "rated_p_kw", None, "rated power is required (rated_p_kw or rated_p_hp)", hint)
     conflict = ~np.isnan(kw) & ~np.isnan(hp) & (np.abs(kw - hp * HP_TO_KW) > 0.06 * np.maximum(kw, 1e-9))
     for i in np.flatnonzero(conflict):
