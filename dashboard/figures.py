@@ -343,6 +343,28 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
 # ---------------------------------------------------------------------------------------------------
 # Site meter
 # ---------------------------------------------------------------------------------------------------
+def _wall_clock(frame: pd.DataFrame) -> tuple[pd.Index, pd.DataFrame]:
+    """Readings on the local wall clock (the x of a time axis, which has no time zone), the line broken
+    where the clock goes back (the repeated hour when summer time ends), so it is not drawn back over
+    itself: a blank reading is put in before each interval whose local time does not follow the last."""
+    index = frame.index
+    if getattr(index, "tz", None) is None:
+        return index, frame
+    local = index.tz_localize(None)
+    back = np.flatnonzero(np.diff(local.asi8) <= 0) + 1
+    if not len(back):
+        return local, frame
+    gaps = pd.DataFrame(np.nan, index=range(len(back)), columns=frame.columns)
+    parts, x, last = [], [], 0
+    for k, at in enumerate(back):
+        parts += [frame.iloc[last:at].reset_index(drop=True), gaps.iloc[k:k + 1]]
+        x += list(local[last:at]) + [local[at - 1]]
+        last = at
+    parts.append(frame.iloc[last:].reset_index(drop=True))
+    x += list(local[last:])
+    return pd.DatetimeIndex(x), pd.concat(parts, ignore_index=True)
+
+
 def meter_week(week: dict[str, pd.DataFrame]) -> go.Figure:
     """Site kW, kVAr and power factor over one week, before and with the plan.
 
@@ -357,16 +379,17 @@ def meter_week(week: dict[str, pd.DataFrame]) -> go.Figure:
         frame = week.get(scenario_name)
         if frame is None or frame.empty:
             continue
-        x = frame.index.tz_localize(None) if getattr(frame.index, "tz", None) is not None else frame.index
+        x, frame = _wall_clock(frame)
         name = "today" if scenario_name == "before" else "with the plan"
         # the power factor's sense from the kVAr's sign (negative = leading), said in the hover
         sense = np.where(frame["q_kvar"].to_numpy(dtype=float) < 0, "leading", "lagging")
-        for row, column, fmt in ((1, "p_kw", ",.0f"), (2, "q_kvar", ",.0f"), (3, "power_factor", ".3f")):
+        for row, column, fmt, unit in ((1, "p_kw", ",.0f", " kW"), (2, "q_kvar", ",.0f", " kVAr"),
+                                       (3, "power_factor", ".3f", "")):
             fig.add_trace(go.Scatter(x=x, y=frame[column], mode="lines", name=name, legendgroup=scenario_name,
                                      showlegend=row == 1, line=dict(color=colour, width=1.6, dash=dash),
                                      customdata=sense if row == 3 else None,
-                                     hovertemplate="%{x}<br>%{y:" + fmt + "}" + (" %{customdata}" if row == 3 else "")
-                                     + "<extra>" + name + "</extra>"),
+                                     hovertemplate="%{x}<br>%{y:" + fmt + "}" + unit
+                                     + (" %{customdata}" if row == 3 else "") + "<extra>" + name + "</extra>"),
                           row=row, col=1)
     fig.add_hline(y=0, line=dict(color=INK, width=0.8), row=2, col=1)
     fig.update_yaxes(title_text="Active [kW]", row=1, col=1)

@@ -1123,10 +1123,30 @@ def peak_week(meters: dict[str, pd.DataFrame]) -> str:
     return max(monday, frame.index[0]).isoformat()  # a peak before the first Monday: the first days
 
 
+def meter_summary(frame: pd.DataFrame, interval_h: float) -> dict[str, float]:
+    """A site meter's peak kW and peak kVA (each the largest interval's) and its average power factor as a
+    bill reads it (kWh over the kVAh of kWh and lagging kVArh, :func:`models.attribution.reactive_balance`)."""
+    from models.attribution import reactive_balance
+    from models.site import site_meter
+
+    p = frame["p_kw"].to_numpy(dtype=float)
+    q = frame["q_kvar"].to_numpy(dtype=float)
+    balance = reactive_balance(site_meter(p, q), interval_h)
+    return {"peak_kw": float(p.max()), "peak_kva": float(np.hypot(p, q).max()),
+            "average_power_factor": float(balance["average_power_factor"])}
+
+
 def week_slice(meters: dict[str, pd.DataFrame], start_iso: str | None) -> dict[str, pd.DataFrame]:
     """The seven days from ``start_iso`` of the before and after meter readings."""
     start = pd.Timestamp(start_iso) if start_iso else pd.Timestamp(peak_week(meters))
-    end = start + pd.Timedelta(days=7)
+    zone = next(iter(meters.values())).index.tz
+    if zone is not None and start.tzinfo is not None:
+        # seven days of the local calendar (167 or 169 hours across a clock change), in the meter's own zone
+        # (an ISO start carries only its offset)
+        start = start.tz_convert(zone)
+        end = (start.tz_localize(None) + pd.Timedelta(days=7)).tz_localize(zone, ambiguous=True, nonexistent="shift_forward")
+    else:
+        end = start + pd.Timedelta(days=7)
     return {k: v[(v.index >= start) & (v.index < end)] for k, v in meters.items()}
 
 

@@ -205,6 +205,33 @@ def test_weeks_start_with_the_first_days_of_data(engine):
     assert services.peak_week(meters) == index[0].isoformat()
 
 
+def test_weeks_across_a_clock_change_keep_seven_local_days():
+    # Europe/Berlin (EU summer-time rule, Directive 2000/84/EC): clocks go forward on 30 Mar 2025 and back on
+    # 26 Oct 2025, so the weeks from Mon 24 Mar and Mon 20 Oct hold 167 and 169 hours, Monday 00:00 to Sunday 23:00
+    index = pd.date_range("2025-01-01", "2026-01-01", freq="h", inclusive="left", tz="Europe/Berlin")
+    frame = pd.DataFrame({"p_kw": 1.0, "q_kvar": 0.5, "power_factor": 0.9}, index=index)
+    for start, hours in (("2025-03-24T00:00:00+01:00", 167), ("2025-10-20T00:00:00+02:00", 169)):
+        week = services.week_slice({"before": frame}, start)["before"]
+        assert len(week) == hours
+        assert (week.index[0].strftime("%a %H:%M"), week.index[-1].strftime("%a %H:%M")) == ("Mon 00:00", "Sun 23:00")
+    # the repeated 02:00 of 26 Oct is not drawn back over itself: the line breaks once there
+    fig = figures.meter_week(services.week_slice({"before": frame}, "2025-10-20T00:00:00+02:00"))
+    kw = fig.data[0]
+    assert sum(v is None or v != v for v in kw.y) == 1
+    assert "kW" in kw.hovertemplate and "kVAr" in fig.data[1].hovertemplate
+
+
+def test_site_summary_reads_kva_and_the_billed_power_factor(engine):
+    # hand calculation: p = 100, 100 kW and q = 75, -10 kVAr over 1 h intervals: peak kVA = hypot(100, 75) = 125;
+    # average power factor = kWh / sqrt(kWh^2 + lagging kVArh^2) = 200 / sqrt(200^2 + 75^2) = 200 / 213.600 = 0.936329
+    frame = pd.DataFrame({"p_kw": [100.0, 100.0], "q_kvar": [75.0, -10.0]})
+    got = services.meter_summary(frame, 1.0)
+    assert got["peak_kw"] == 100.0 and got["peak_kva"] == pytest.approx(125.0, abs=1e-12)
+    assert got["average_power_factor"] == pytest.approx(0.936329, abs=5e-7)
+    text = site.update("KGQ", None, None, None)[4][0].children  # a site priced on kVA demand: both peaks named
+    assert " kVA today" in text and "average power factor (kWh over kVAh)" in text
+
+
 def test_fleet_count_follows_the_grids_own_filters(engine):
     # a column filter in the grid leaves fewer rows shown: the count says so
     rows = fleet.update(None, None, None, None)[4]

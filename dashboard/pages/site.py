@@ -70,9 +70,12 @@ def update(site_id, week, session, edits):
     bills = services.monthly_bills(result, site_id)
     total_before = bills.loc[bills["scenario"] == "before", "amount"].sum()
     total_after = bills.loc[bills["scenario"] == "after", "amount"].sum()
-    summary = [html.Span(f"Peak demand {before['p_kw'].max():,.0f} kW today, {after['p_kw'].max():,.0f} kW with the plan · "
-                         f"mean power factor {before['power_factor'].mean():.3f} today, {after['power_factor'].mean():.3f} "
-                         f"with the plan · yearly bill {ui.fmt_money(total_before, view.currency)} today, "
+    now, then = services.meter_summary(before, interval_h), services.meter_summary(after, interval_h)
+    summary = [html.Span(f"Peak demand {now['peak_kw']:,.0f} kW / {now['peak_kva']:,.0f} kVA today, "
+                         f"{then['peak_kw']:,.0f} kW / {then['peak_kva']:,.0f} kVA with the plan · "
+                         f"average power factor (kWh over kVAh) {now['average_power_factor']:.3f} today, "
+                         f"{then['average_power_factor']:.3f} with the plan · yearly bill "
+                         f"{ui.fmt_money(total_before, view.currency)} today, "
                          f"{ui.fmt_money(total_after, view.currency)} with the plan"),
                html.Br(),
                html.Span(f"The plan's projects at this site, each priced alone against today's bill, save "
