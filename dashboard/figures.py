@@ -16,6 +16,8 @@ from plotly.subplots import make_subplots
 #: Neutral palette of the dashboard (our own choice).
 INK = "#26313d"
 MUTED = "#6a7582"
+#: Hatching drawn over coloured bars (white, a little see-through, so the bar colour shows beneath).
+HATCH = "rgba(255, 255, 255, 0.8)"
 GRID = "#e4e8ed"
 BEFORE = "#9aa4ae"
 AFTER = "#237a87"
@@ -315,11 +317,13 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
              for s, c, p, name in zip(speed, change, change_pct, options["speed_remedy"])]
     fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.14,
                         subplot_titles=("Mean speed against today's motor", "Input energy"))
-    fig.add_trace(go.Bar(x=options["label"], y=change, marker=dict(color=bar_colours, pattern=dict(shape=shapes)),
+    # one hatching colour (the browser's chart library cannot take one per bar there; the bar colours stay)
+    hatch = dict(shape=shapes, fgcolor=HATCH, fillmode="overlay")
+    fig.add_trace(go.Bar(x=options["label"], y=change, marker=dict(color=bar_colours, pattern=hatch),
                          customdata=hover, showlegend=False, name="speed change",
                          hovertemplate="%{x}<br>%{customdata}<extra></extra>"), row=1, col=1)
     fig.add_trace(go.Bar(x=options["label"], y=options["energy_kwh_per_yr"] / 1000.0, showlegend=False, name="input energy",
-                         marker=dict(color=bar_colours, pattern=dict(shape=shapes)),
+                         marker=dict(color=bar_colours, pattern=hatch),
                          hovertemplate="%{x}<br>%{y:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
     for code in dict.fromkeys(remedy):  # the key to the hatching (no data of its own)
         name = str(options.loc[remedy == code, "speed_remedy"].iloc[0])

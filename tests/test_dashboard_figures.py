@@ -193,6 +193,9 @@ class TestAsset:
         # no option changes the speed: said in words over the empty panel
         same = figures.speed_energy(options.assign(mean_speed_rpm=1490.0))
         assert "every option runs at today's 1,490 rpm" in same.layout.annotations[-1].text
+        # the hatching has one colour (an array there is refused by the browser's chart library: black hatching)
+        for bar in fig.data[:2]:
+            assert isinstance(bar.marker.pattern.fgcolor, str)
 
 
 class TestSite:
