@@ -893,10 +893,18 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
     return out
 
 
-def filter_choices(view_: View) -> tuple[list[str], list[str]]:
-    """Sites and applications of the case, for the overview filters."""
+def site_options(view_: View, only: set | None = None) -> list[dict]:
+    """Dropdown options for the case's sites (those in ``only`` when given): label 'id: name', value the id."""
+    return [{"label": f"{r.site_id}: {r.site_name}" if getattr(r, "site_name", None) else str(r.site_id),
+             "value": str(r.site_id)} for r in view_.case.sites.itertuples(index=False)
+            if only is None or str(r.site_id) in only]
+
+
+def filter_choices(view_: View) -> tuple[list[dict], list[str]]:
+    """Sites (with their names) and applications of the case, for the overview filters."""
     a = view_.case.assets
-    return sorted(a["site_id"].dropna().unique().tolist()), sorted(a["application"].dropna().unique().tolist())
+    return (site_options(view_, {str(x) for x in a["site_id"].dropna().unique()}),
+            sorted(a["application"].dropna().unique().tolist()))
 
 
 def asset_choices(view_: View) -> list[dict]:

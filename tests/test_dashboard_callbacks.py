@@ -232,6 +232,12 @@ def test_site_summary_reads_kva_and_the_billed_power_factor(engine):
     assert " kVA today" in text and "average power factor (kWh over kVAh)" in text
 
 
+def test_fleet_site_filter_names_the_sites(engine):
+    # the small case is cut from the demo: its site HRW is "Haldane Ridge Water Treatment Works" (data/demo/sites.csv)
+    sites = fleet.update(None, None, None, None)[8]
+    assert {"label": "HRW: Haldane Ridge Water Treatment Works", "value": "HRW"} in sites
+
+
 def test_fleet_count_follows_the_grids_own_filters(engine):
     # a column filter in the grid leaves fewer rows shown: the count says so
     rows = fleet.update(None, None, None, None)[4]

@@ -27,7 +27,7 @@ def layout(**_query):
                                      "power, power factor and the monthly bill."),
         ui.notice(NOTICE),
         html.Div([
-            html.Div([html.Label("Site", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False)], className="filter"),
+            html.Div([html.Label("Site", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False, persistence=True, persistence_type="session")], className="filter"),
             html.Div([html.Label("Week", htmlFor=WEEK),
                       dcc.Dropdown(id=WEEK, placeholder="week of today's peak demand")], className="filter wide"),
         ], className="filters"),
@@ -47,8 +47,7 @@ dash.register_page(__name__, path="/site", name="Site meter", title="Site meter 
 def choose(_ready, session, current):
     """List the case's sites and the weeks of its analysis year."""
     view = services.view(session, None)
-    sites = [{"label": f"{r.site_id}: {r.site_name}" if getattr(r, "site_name", None) else str(r.site_id),
-              "value": str(r.site_id)} for r in view.case.sites.itertuples(index=False)]
+    sites = services.site_options(view)
     ids = [s["value"] for s in sites]
     return sites, current if current in ids else (ids[0] if ids else None), services.week_starts(view)
 

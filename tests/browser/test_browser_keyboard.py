@@ -54,3 +54,18 @@ def test_a_corrected_file_under_the_same_name_is_read_again(tab, tmp_path):
     status.filter(has_not_text="error in the upload").wait_for()
     assert "error" not in status.inner_text().lower()
     assert tab.errors == [], f"console errors: {tab.errors}"
+
+
+def test_the_site_chosen_stays_chosen_on_reload(tab):
+    page = tab.goto("/site", "#site-week-figure .main-svg")
+    page.wait_for_load_state("networkidle")
+    page.click("#site-pick")
+    page.keyboard.type("KGQ", delay=30)
+    page.keyboard.press("Enter")
+    page.locator("#site-pick").filter(has_text="KGQ").wait_for()
+    page.wait_for_load_state("networkidle")
+    page.reload()
+    page.locator("#site-week-figure .main-svg").first.wait_for()
+    page.wait_for_load_state("networkidle")
+    assert "KGQ" in page.locator("#site-pick").inner_text()  # the demo's second site (data/demo/sites.csv)
+    assert tab.errors == [], f"console errors: {tab.errors}"
