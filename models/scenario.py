@@ -765,12 +765,14 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
     capital_by_year = capital_spend[:, :n_years] if capital_spend.shape[1] >= n_years else capital_spend
     not_today = (results["option_id"] != results.groupby("asset_id")["option_id"].transform("first")).to_numpy()
+    labels = pd.Index(project_ids)
 
     def inputs(left_out, values):
         values = results["npv"].to_numpy() if values is None else np.asarray(values, dtype=float)
         candidates = not_today & (values > 0)
         if len(left_out):
-            candidates &= ~np.isin(project_ids, np.asarray(list(left_out), dtype=object))
+            # by hash (numpy's isin compares text labels one left-out label at a time: seconds at 10,000 assets)
+            candidates &= ~labels.isin(list(left_out))
         sel = np.flatnonzero(candidates)
         return project_ids[sel], results["asset_id"].to_numpy()[sel], values[sel], capital_by_year[sel]
 
