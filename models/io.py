@@ -1217,7 +1217,7 @@ def _write_blank_workbook(path: Path) -> Path:
             for line in (x for x in lines if x.startswith("#")):  # comment rows whole, in column A
                 sheet.append([line])
             for record in csv.reader(x for x in lines if x.strip() and not x.startswith("#")):
-                sheet.append([_catalogue_cell(v) for v in record])
+                sheet.append([_template_cell(v) for v in record])
             header_row = next(r for r in range(1, sheet.max_row + 1) if not str(sheet.cell(r, 1).value).startswith("#"))
         else:
             sheet.append(list(read_schema(table)["name"]))
@@ -1238,7 +1238,7 @@ def _write_blank_workbook(path: Path) -> Path:
         key, rest = line.split("=", 1)
         value, _, note = rest.partition("  # ")
         value = value.strip()
-        finance.append([key.strip(), _catalogue_cell(value) if not value.startswith(("[", '"')) else value.strip('"'),
+        finance.append([key.strip(), _template_cell(value) if not value.startswith(("[", '"')) else value.strip('"'),
                         note.strip()])
     for cell in finance[1]:
         cell.font = Font(bold=True)
@@ -1252,7 +1252,7 @@ def _write_blank_workbook(path: Path) -> Path:
     return path
 
 
-def _catalogue_cell(text: str) -> object:
+def _template_cell(text: str) -> object:
     """A cell of a template written into a workbook: a number as a number, other text as it is."""
     try:
         number = float(text)

@@ -13,7 +13,7 @@ from dashboard import app as _shell  # noqa: F401 - the app first: pages registe
 from dashboard import components as ui
 from dashboard import figures, services
 from dashboard.pages import asset, fleet
-from test_dashboard_services import write_small_case
+from test_dashboard_services import small_case_engine
 
 #: Demo motors used here (data/demo/assets.csv): HRW-D01 0.75 kW dosing pump, HRW-P01 250 kW pump, KGQ-F01 132 kW fan.
 IDS = ("HRW-D01", "HRW-P01", "KGQ-F01")
@@ -21,10 +21,7 @@ IDS = ("HRW-D01", "HRW-P01", "KGQ-F01")
 
 @pytest.fixture(scope="module")
 def three_motors(tmp_path_factory):
-    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
-    entry, problems = eng.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "three", IDS))
-    assert entry is not None, problems
-    return eng
+    return small_case_engine(tmp_path_factory, "three", IDS)
 
 
 @pytest.fixture(autouse=True)

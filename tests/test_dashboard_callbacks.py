@@ -12,15 +12,12 @@ from dashboard import app as shell
 from dashboard import figures, services
 from models import scenario
 from dashboard.pages import asset, fleet, inputs, plan, risk, site
-from test_dashboard_services import SMALL_IDS, csv_bytes, data_url, demo_rows, write_small_case
+from test_dashboard_services import SMALL_IDS, csv_bytes, data_url, demo_rows, small_case_engine
 
 
 @pytest.fixture(scope="module")
 def small_engine(tmp_path_factory):
-    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
-    entry, problems = eng.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "small"))
-    assert entry is not None, problems
-    return eng
+    return small_case_engine(tmp_path_factory, "small")
 
 
 @pytest.fixture(autouse=True)

@@ -47,6 +47,14 @@ def write_small_case(folder: Path, ids=SMALL_IDS) -> Path:
     return folder
 
 
+def small_case_engine(tmp_path_factory, name: str, ids=SMALL_IDS) -> "services.Engine":
+    """An engine whose default case is a copy of the demo with only ``ids`` (:func:`write_small_case`)."""
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / name, ids))
+    assert entry is not None, problems
+    return eng
+
+
 def data_url(data: bytes, mime: str = "text/csv") -> str:
     return f"data:{mime};base64," + base64.b64encode(data).decode("ascii")
 
