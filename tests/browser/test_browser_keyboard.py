@@ -66,6 +66,8 @@ def test_the_site_chosen_stays_chosen_on_reload(tab):
     page.wait_for_load_state("networkidle")
     page.reload()
     page.locator("#site-week-figure .main-svg").first.wait_for()
+    # the demo's second site (data/demo/sites.csv), once the page's list of sites has arrived
+    page.locator("#site-pick").filter(has_text="KGQ").wait_for(timeout=30_000)
     page.wait_for_load_state("networkidle")
-    assert "KGQ" in page.locator("#site-pick").inner_text()  # the demo's second site (data/demo/sites.csv)
+    assert "KGQ" in page.locator("#site-pick").inner_text() and "HRW" not in page.locator("#site-pick").inner_text()
     assert tab.errors == [], f"console errors: {tab.errors}"
