@@ -1159,19 +1159,16 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             arr_b, existing_b = _take(arr_b, still), _take_params(existing_b, still)
             # the cells that fail (a kink inside them): their intervals evaluated one by one, the rest read
             # from the fine grid, row by row where few enough intervals fall in failing cells
-            flat_still = _Point(*(None if v is None else np.broadcast_to(v, flat_fine.p_kw.shape)[still]
-                                  for v in (getattr(flat_fine, name) for name in _POINT_ARRAYS)),
-                                flags=[(int(k), text) for i, text in flat_fine.flags for k in np.flatnonzero(still == i)])
+            flat_still = _take_point(flat_fine, still)  # (the fine grid's rows: those that failed the first, in order)
             cells_ok = _cells_hold(flat_still, arr_b)
-            g_rows = still  # the fine grid's rows are the rows that failed the first grid, in order
-            cell = fine.cell[g_rows]
+            cell = fine.cell[still]
             top = fine.n_nodes - 1
             exact = (cell != top) & ~np.take_along_axis(np.pad(cells_ok, ((0, 0), (0, 1)), constant_values=True),
                                                           cell.astype(np.intp), axis=1)
             few = exact.sum(axis=1) <= MAX_EXACT_SHARE * np.maximum((cell != top).sum(axis=1), 1)
             if few.any():
                 by_cells(o, option, rows_, sub[bad[few]], _take(arr_b, np.flatnonzero(few)),
-                         _take_params(existing_b, np.flatnonzero(few)), load, fine, g_rows[few],
+                         _take_params(existing_b, np.flatnonzero(few)), load, fine, still[few],
                          _take_point(flat_still, np.flatnonzero(few)), exact[few])
             if few.all():
                 return
