@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 
 import dash_ag_grid as dag
-from dash import dcc, html
+from dash import Input, clientside_callback, dcc, html
 
 #: The session's case: {"session": id, "case": key}. Browser session storage: one per tab.
 SESSION_STORE = "app-session"
@@ -114,6 +114,22 @@ def graph(component_id: str, height: int | None = None) -> dcc.Loading:
     """A plotly graph in a loading wrapper, with the mode bar trimmed."""
     extra = {"style": {"height": f"{height}px"}} if height else {}
     return dcc.Loading(dcc.Graph(id=component_id, config={"displaylogo": False}, **extra), type="dot", delay_show=400)
+
+
+def address_follows(store_id: str, path: str) -> None:
+    """Rewrite the browser's address query in place from ``store_id``'s data while the page at ``path`` shows.
+
+    ``dcc.Location`` would push a history entry per pick and, with callback navigation, render the page anew;
+    replacing the entry in place does neither, and a reload or a bookmark then shows what was on screen.
+    """
+    clientside_callback(
+        """function (search) {
+            if (search && window.location.pathname.endsWith("%s") && window.location.search !== search) {
+                window.history.replaceState(window.history.state, "", window.location.pathname + search + window.location.hash);
+            }
+        }""" % path,
+        Input(store_id, "data"),
+    )
 
 
 def footer() -> html.Footer:

@@ -275,3 +275,15 @@ def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):
     payback = next(c for c in columns if c["field"] == "discounted_payback_yr")
     code = payback["valueFormatter"]["function"]
     assert "not within the horizon" in code and "params.data.capital > 0" in code
+
+
+def test_the_site_page_keeps_the_site_on_screen_else_the_addressed_one(engine):
+    # the small case holds the demo's sites HRW and KGQ (data/demo/sites.csv), HRW first
+    ids = [o["value"] for o in site.choose(True, None, None, None)[0]]
+    assert ids[0] == "HRW" and "KGQ" in ids
+    assert site.choose(True, None, None, None)[1] == "HRW"  # nothing asked: the first site
+    assert site.choose(True, None, "KGQ", None)[1] == "KGQ"  # a reload or bookmark of /site?site=KGQ
+    assert site.choose(True, None, "KGQ", "HRW")[1] == "HRW"  # picked since: the pick stays on a new session
+    assert site.choose(True, None, "NO-SUCH", None)[1] == "HRW"  # an address naming no site of the case
+    assert site.address("KGQ") == "?site=KGQ" and site.address("A B/1") == "?site=A%20B%2F1"
+    assert site.address(None) is no_update

@@ -5,7 +5,7 @@ from __future__ import annotations
 from urllib.parse import quote
 
 import dash
-from dash import Input, Output, State, callback, clientside_callback, dcc, html
+from dash import Input, Output, State, callback, dcc, html
 
 from dashboard import components as ui
 from dashboard import figures, services
@@ -79,16 +79,7 @@ def address(asset_id):
     return f"?id={quote(str(asset_id), safe='')}" if asset_id else dash.no_update
 
 
-# dcc.Location always pushes a history entry (one per pick) and, with callback navigation, renders the page
-# anew; replacing the entry in place does neither
-clientside_callback(
-    """function (search) {
-        if (search && window.location.pathname.endsWith("/asset") && window.location.search !== search) {
-            window.history.replaceState(window.history.state, "", window.location.pathname + search + window.location.hash);
-        }
-    }""",
-    Input(ADDRESS, "data"),
-)
+ui.address_follows(ADDRESS, "/asset")
 
 #: Cautions of an option, as its grid cell counts them (the text in the tooltip and in the grid below).
 CAUTION_COUNT = {"function": "params.value > 0 ? params.value + (params.value == 1 ? ' caution' : ' cautions') : ''"}

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from urllib.parse import quote
+
 import dash
 from dash import Input, Output, State, callback, dcc, html
 
@@ -10,6 +12,8 @@ from dashboard import figures, services
 
 
 PICK = "site-pick"
+REQUEST = "site-request"
+ADDRESS = "site-address"
 WEEK = "site-week"
 READY = "site-ready"
 WEEK_FIGURE = "site-week-figure"
@@ -20,14 +24,16 @@ SUMMARY = "site-summary"
 NOTICE = "site-notice"
 
 
-def layout(**_query):
+def layout(site=None, **_query):
     return html.Div([
         dcc.Store(id=READY, data=True),
+        dcc.Store(id=REQUEST, data=site),
+        dcc.Store(id=ADDRESS),
         ui.page_header("Site meter", "What the utility meter sees today and with the plan in place: power, reactive "
                                      "power, power factor and the monthly bill."),
         ui.notice(NOTICE),
         html.Div([
-            html.Div([html.Label("Site", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False, persistence=True, persistence_type="session")], className="filter"),
+            html.Div([html.Label("Site", htmlFor=PICK), dcc.Dropdown(id=PICK, clearable=False)], className="filter"),
             html.Div([html.Label("Week", htmlFor=WEEK),
                       dcc.Dropdown(id=WEEK, placeholder="week of today's peak demand")], className="filter wide"),
         ], className="filters"),
@@ -43,13 +49,24 @@ dash.register_page(__name__, path="/site", name="Site meter", title="Site meter 
 
 
 @callback(Output(PICK, "options"), Output(PICK, "value"), Output(WEEK, "options"),
-          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(PICK, "value"))
-def choose(_ready, session, current):
-    """List the case's sites and the weeks of its analysis year."""
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(REQUEST, "data"), State(PICK, "value"))
+def choose(_ready, session, requested, current):
+    """List the case's sites and the weeks of its analysis year; keep the site on screen, else the one the
+    address asks for (``?site=KGQ``), else the first."""
     view = services.view(session, None)
     sites = services.site_options(view)
     ids = [s["value"] for s in sites]
-    return sites, current if current in ids else (ids[0] if ids else None), services.week_starts(view)
+    kept = next((s for s in (current, requested) if s in ids), ids[0] if ids else None)
+    return sites, kept, services.week_starts(view)
+
+
+@callback(Output(ADDRESS, "data"), Input(PICK, "value"))
+def address(site_id):
+    """The address's query for the site on screen: a reload or a bookmark shows that site."""
+    return f"?site={quote(str(site_id), safe='')}" if site_id else dash.no_update
+
+
+ui.address_follows(ADDRESS, "/site")
 
 
 @callback(Output(WEEK_FIGURE, "figure"), Output(DURATION, "figure"), Output(REACTIVE, "figure"), Output(BILLS, "figure"),

@@ -63,10 +63,11 @@ def test_the_site_chosen_stays_chosen_on_reload(tab):
     page.keyboard.type("KGQ", delay=30)
     page.keyboard.press("Enter")
     page.locator("#site-pick").filter(has_text="KGQ").wait_for()
-    page.wait_for_load_state("networkidle")
+    # the address names the site on screen (the demo's second site, data/demo/sites.csv) ...
+    page.wait_for_url("**/site?site=KGQ")
     page.reload()
     page.locator("#site-week-figure .main-svg").first.wait_for()
-    # the demo's second site (data/demo/sites.csv), once the page's list of sites has arrived
+    # ... so a reload shows it again, once the page's list of sites has arrived
     page.locator("#site-pick").filter(has_text="KGQ").wait_for(timeout=30_000)
     page.wait_for_load_state("networkidle")
     assert "KGQ" in page.locator("#site-pick").inner_text() and "HRW" not in page.locator("#site-pick").inner_text()
