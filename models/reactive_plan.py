@@ -19,7 +19,7 @@ import pandas as pd
 
 from models import attribution
 from models.bill_savings import REACTIVE_TECHNOLOGIES, site_setups
-from models.operation import PHYSICS_THREADS
+from models.operation import PHYSICS_THREADS, SiteIntervalStore, kept_rows
 from models.plan import plan_choice, project_labels
 from models.wording import counted
 
@@ -76,28 +76,39 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
     projects save together. A capacitor whose kVAr the plan's drives or the banks before it already
     removed adds (almost) nothing, however much it saves alone.
     """
+    return reactive_values_in_plans(case, op, [plan_frame], results, price_factor)[0]
+
+
+def reactive_values_in_plans(case, op, plan_frames: list[pd.DataFrame], results: pd.DataFrame,
+                             price_factor: float = 1.0) -> list[pd.DataFrame]:
+    """:func:`reactive_value_in_plan` of several plans, each priced on its own, in one pass over the sites.
+
+    A fleet too large to keep every option per interval recomputes a plan's rows site by site; plans that
+    share most of their projects (the exact and the rank-order plan) have the rows of all of them
+    recomputed together, once per site, and kept while each plan is priced (:func:`models.operation.kept_rows`).
+    The frames returned are those :func:`reactive_value_in_plan` gives for each plan alone.
+    """
     columns = ["project_id", "site_id", "run", "saving_alone_per_yr", "run_saving_alone_per_yr",
                "run_saving_in_plan_per_yr"]
-    if not len(plan_frame):
-        return pd.DataFrame(columns=columns)
-    choice = plan_choice(op, plan_frame)
-    reactive = (choice > 0) & np.isin(op.technologies[choice], REACTIVE_TECHNOLOGIES)
-    if not reactive.any():
-        return pd.DataFrame(columns=columns)
+    choices, reactives = [], []
+    for plan_frame in plan_frames:
+        choice = plan_choice(op, plan_frame) if len(plan_frame) else np.zeros(len(op.asset_ids), dtype=int)
+        choices.append(choice)
+        reactives.append((choice > 0) & np.isin(op.technologies[choice], REACTIVE_TECHNOLOGIES))
+    if not any(r.any() for r in reactives):
+        return [pd.DataFrame(columns=columns) for _ in plan_frames]
     by_project = results.set_index(project_labels(results))
     setups = site_setups(case, op.index)
 
-    def one_site(site_id: str) -> pd.DataFrame:
-        members = np.flatnonzero(op.site_ids == site_id)
+    def one_plan(site_id: str, members: np.ndarray, choice: np.ndarray, reactive: np.ndarray) -> pd.DataFrame:
         own = members[reactive[members]]
         ids = np.array([f"{op.asset_ids[j]}/{op.option_ids[choice[j]]}" for j in own], dtype=object)
         alone = by_project["bill_saving_per_yr"].reindex(ids).to_numpy(dtype=float)
         capital = by_project["capital"].reindex(ids).to_numpy(dtype=float)
         order = np.lexsort((ids.astype(str), -alone / np.maximum(capital, 1e-9)))
         own, ids, alone = own[order], ids[order], alone[order]
-        # the plan's rows of the site in one read each (a fleet too large to keep every option per interval
-        # recomputes them once per site), today's rows where the plan has a reactive project (the plan without
-        # them), and the reactive projects' changes, added up in order
+        # the plan's rows of the site in one read each, today's rows where the plan has a reactive project (the
+        # plan without them), and the reactive projects' changes, added up in order
         plan_p = np.array(op.p_kw[choice[members], members], dtype=float)
         plan_q = np.array(op.q_kvar[choice[members], members], dtype=float)
         local = np.flatnonzero(reactive[members])[order]
@@ -148,12 +159,28 @@ def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataF
         return pd.DataFrame({"project_id": ids, "site_id": site_id, "run": run_of, "saving_alone_per_yr": alone,
                              "run_saving_alone_per_yr": run_alone, "run_saving_in_plan_per_yr": run_added})
 
-    sites = sorted(set(op.site_ids[reactive]))
-    # sites at once in threads (each site's bills are its own; a large fleet recomputes the plan's rows per site)
-    with ThreadPoolExecutor(max_workers=max(1, min(PHYSICS_THREADS, len(sites))),
-                            thread_name_prefix="drivecase-reactive") as pool:
-        frames = list(pool.map(one_site, sites))
-    return pd.concat(frames, ignore_index=True)
+    def one_site(site_id: str) -> list[pd.DataFrame | None]:
+        members = np.flatnonzero(op.site_ids == site_id)
+        priced = [i for i, reactive in enumerate(reactives) if reactive[members].any()]
+        if len(priced) > 1 and isinstance(op.p_kw, SiteIntervalStore):
+            # the rows of every plan priced here recomputed together, kept, then read plan by plan
+            pairs = np.unique(np.concatenate([np.stack([members, choices[i][members]], axis=1) for i in priced]), axis=0)
+            pairs = pairs[pairs[:, 1] > 0]
+            if len(pairs):
+                op.p_kw[pairs[:, 1], pairs[:, 0]]
+        return [one_plan(site_id, members, choices[i], reactives[i]) if i in priced else None
+                for i in range(len(plan_frames))]
+
+    sites = sorted(set().union(*(set(op.site_ids[reactive]) for reactive in reactives)))
+    # sites at once in threads (each site's bills are its own; a large fleet recomputes the plans' rows per site)
+    with kept_rows(op), ThreadPoolExecutor(max_workers=max(1, min(PHYSICS_THREADS, len(sites))),
+                                           thread_name_prefix="drivecase-reactive") as pool:
+        by_site = list(pool.map(one_site, sites))
+    out = []
+    for i in range(len(plan_frames)):
+        frames = [site_frames[i] for site_frames in by_site if site_frames[i] is not None]
+        out.append(pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=columns))
+    return out
 
 
 def withdrawn_text(status: dict | None, shown: int = 3) -> str:
@@ -212,9 +239,9 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
     frames = solve((), settings, None)
     reactive_options = np.isin(results["technology"].to_numpy(dtype=object), REACTIVE_TECHNOLOGIES)
 
-    def checked(plan_frame: pd.DataFrame, already: set[str]):
-        """(newly withdrawn, set aside, NPVs or None, repriced shares) from one plan's check."""
-        value = reactive_value_in_plan(case, op, plan_frame, results, price_factor)
+    def checked(value: pd.DataFrame, already: set[str]):
+        """(newly withdrawn, set aside, NPVs or None, repriced shares) from one plan's check
+        (:func:`reactive_value_in_plan`'s frame ``value``)."""
         alone = value["run_saving_alone_per_yr"].to_numpy(dtype=float)
         worthless = (value["run_saving_in_plan_per_yr"].to_numpy(dtype=float)
                      < PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
@@ -234,10 +261,11 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         return fresh, others, npv, repriced
 
     for _ in range(PLAN_INTERACTION_ROUNDS - 1):
-        fresh, others, npv, repriced = checked(frames[0], withdrawn)
         # the rank-order plan is checked on its own, so its result does not depend on how hard the exact plan
-        # was solved
-        g_fresh, g_others, g_npv, g_repriced = checked(frames[1], greedy_withdrawn)
+        # was solved (both priced in one pass over the sites)
+        value, g_value = reactive_values_in_plans(case, op, [frames[0], frames[1]], results, price_factor)
+        fresh, others, npv, repriced = checked(value, withdrawn)
+        g_fresh, g_others, g_npv, g_repriced = checked(g_value, greedy_withdrawn)
         if not fresh and not repriced and not g_fresh and not g_repriced:
             break
         withdrawn |= fresh

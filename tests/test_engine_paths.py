@@ -786,6 +786,43 @@ class TestCompactStore:
         meter_and_bills(case, c, choice)
         assert len(calls) == 2 * ran
 
+    def test_plans_priced_together_equal_each_plan_alone(self, case, dense, compact, monkeypatch):
+        # the reactive check of two plans in one pass over the sites gives each plan's own check on the dense
+        # run, frame for frame; the compact store recomputes each site's rows of both plans in one request
+        from models import reactive_plan
+
+        result = scenario.economics(case, dense, case.finance, with_risk=False)
+        d, c = dense.operation, compact.operation
+        # a second plan: the first's reactive projects, and another option than the first's on every other asset
+        chosen = scenario.plan_choice(d, result.plan)
+        rows = []
+        for j in range(len(d.asset_ids)):
+            usable = [o for o in np.flatnonzero(d.applies[j, 1:]) + 1 if o != chosen[j]]
+            if chosen[j] and d.technologies[chosen[j]] in ("capacitor", "wound_field"):
+                rows.append((d.asset_ids[j], d.option_ids[chosen[j]]))
+            elif usable:
+                rows.append((d.asset_ids[j], d.option_ids[usable[0]]))
+        other = pd.DataFrame(rows, columns=["asset_id", "option_id"])
+        assert (scenario.plan_choice(d, other) != chosen).sum() >= 4
+        reactive = np.isin(d.technologies[scenario.plan_choice(d, result.plan)], ("capacitor", "wound_field"))
+        assert reactive.any()
+        requests = []
+        real = operation._SiteRecompute._computed
+
+        def spy(self, k, options, local):
+            requests.append(k)
+            return real(self, k, options, local)
+
+        monkeypatch.setattr(operation._SiteRecompute, "_computed", spy)
+        c.p_kw._recompute._cached = None
+        c.p_kw._recompute._request = None
+        together = reactive_plan.reactive_values_in_plans(case, c, [result.plan, other], result.results)
+        for plan, got in zip((result.plan, other), together):
+            alone = reactive_plan.reactive_value_in_plan(case, d, plan, result.results)
+            pd.testing.assert_frame_equal(got, alone, check_exact=True)
+        sites = set(d.site_ids[reactive])
+        assert len(requests) == len(sites)  # one recomputation per site priced, not one per plan
+
     def test_rows_kept_within_the_budget(self, case, compact):
         c = compact.operation
         choice = _plan_choice(c)
