@@ -647,6 +647,38 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
     return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
 
 
+def capacitor_rows_kvar(p0_kw: np.ndarray, q0_kvar: np.ndarray, q_cap_kvar) -> np.ndarray:
+    """Per-interval kVAr of a motor with a terminal capacitor, from today's rows of the same motor.
+
+    Parameters
+    ----------
+    p0_kw, q0_kvar : numpy.ndarray, shape (n_assets, n_steps)
+        Today's motor at its supply: kW and kVAr per interval.
+    q_cap_kvar : numpy.ndarray, shape (n_assets,)
+        The capacitor's kVAr (:func:`capacitor_size_kvar`).
+
+    Returns
+    -------
+    numpy.ndarray, shape (n_assets, n_steps)
+        q0 - Q_c while the motor draws power (p0 != 0), 0 while it is stopped.
+
+    Notes
+    -----
+    The capacitor is switched with the motor and changes neither its kW nor its speed (its own losses, a
+    fraction of a watt per kVAr for a dry film unit, common practice from memory, are left out), so the
+    option's kW is today's, row for row, and only its kVAr moves. Derived from today's rows, the option's
+    rows need no model evaluation of their own and are the same bits wherever they are computed (a site's
+    run, a recomputation, a curve book).
+
+    References
+    ----------
+    NEMA MG 1, Part 14, guidance on power-factor correction capacitors switched with the motor (from memory);
+    docs/models.md, step 3.
+    """
+    q_cap = np.asarray(q_cap_kvar, dtype=float)[:, None]
+    return np.where(p0_kw != 0.0, q0_kvar - q_cap, 0.0)
+
+
 def _evaluate(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
     tech = option["technology"]
     if tech == "existing":
@@ -1207,6 +1239,36 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                     values[name][r_k, t_k] = 0.0 if got is None else np.broadcast_to(got, (len(r_k), 1))[:, 0]
         store(o, "interval", rows_, sub, _Point(**values, flags=list(pt.flags)), load_s)
 
+    def with_capacitor(o: int, idx: np.ndarray, q_cap_kvar: np.ndarray) -> None:
+        """Store option ``o`` (a terminal capacitor) on the interval rows ``idx`` from today's rows
+        (:func:`capacitor_rows_kvar`): kW, energy, losses and speed are today's; kVAr and its sums its own."""
+        if book is not None:
+            book.shift(o, idx, q_cap_kvar)
+        step = max(1, CHUNK_ELEMENTS // max(n_t, 1))
+        for start in range(0, len(idx), step):  # bounded temporaries whatever the block's size
+            part, q_part = idx[start:start + step], q_cap_kvar[start:start + step]
+            if book is not None and power_only:
+                break
+            q = capacitor_rows_kvar(p_kw[0, part], q_kvar[0, part], q_part)
+            if book is None:
+                p_kw[o, part] = p_kw[0, part]
+                q_kvar[o, part] = q
+            if power_only:
+                continue
+            pos = np.maximum(q, 0.0)
+            lag[part, o] = pos.sum(axis=1) * interval_h
+            np.negative(q, out=pos)
+            np.maximum(pos, 0.0, out=pos)
+            lead[part, o] = pos.sum(axis=1) * interval_h
+        if power_only:
+            return
+        for target in (energy, shaft_energy, speed):
+            target[idx, o] = target[idx, 0]
+        losses[idx, o] = losses[idx, 0]
+        chosen = set(asset_ids[idx].tolist())  # today's flags hold for the same motor with its capacitor
+        flags.extend([{**f, "option_id": option_ids[o]} for f in list(flags)
+                      if f["option_id"] == option_ids[0] and f["asset_id"] in chosen])
+
     # today's motors first
     for kind, rows_, arr, existing, load in groups:
         if not only_today and kind not in grids:
@@ -1236,10 +1298,13 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                 continue
             arr_s = _take(arr, sub)
             existing_s = _take_params(existing, sub)
-            run(o, option, kind, rows_, sub, arr_s, existing_s, load,
-                follows_site=option["technology"] == "wound_field" and kind == "interval")
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
+                if kind == "interval":  # per interval: today's rows, the bank's kVAr taken off
+                    with_capacitor(o, rows_[sub], cap_q[rows_[sub], o])
+                    continue
+            run(o, option, kind, rows_, sub, arr_s, existing_s, load,
+                follows_site=option["technology"] == "wound_field" and kind == "interval")
     # options that do not apply repeat today's values
     for o in range(1, 1 if only_today else n_o):
         if wanted is not None and o not in wanted:
@@ -1524,8 +1589,11 @@ class _Merger:
         elif not self.dense:
             n_o = len(first.option_ids)
             self.recompute.today_p, self.recompute.today_q = p, q
-            p = SiteIntervalStore(p, n_o, self.recompute, "p_kw")
-            q = SiteIntervalStore(q, n_o, self.recompute, "q_kvar")
+            # terminal capacitors on interval data: today's rows shifted, never recomputed
+            derived = (first.technologies == "capacitor")[None, :] & f["applies"] & f["interval_data"][:, None]
+            shift = np.where(derived, f["capacitor_q_kvar"], np.nan)
+            p = SiteIntervalStore(p, n_o, self.recompute, "p_kw", shift)
+            q = SiteIntervalStore(q, n_o, self.recompute, "q_kvar", shift)
         return OperatingResult(
             index=first.index, interval_h=first.interval_h, asset_ids=f["asset_ids"], site_ids=f["site_ids"],
             option_ids=first.option_ids, technologies=first.technologies, applies=f["applies"], reason=f["reason"],
@@ -1725,13 +1793,30 @@ class SiteIntervalStore:
     paired, as in ``p_kw[choice, rows]``); ``numpy.asarray`` materialises the whole array.
     """
 
-    def __init__(self, today: np.ndarray, n_options: int, recompute: _SiteRecompute, quantity: str):
+    def __init__(self, today: np.ndarray, n_options: int, recompute: _SiteRecompute, quantity: str,
+                 shift_kvar: np.ndarray | None = None):
         self._today = today
         self._recompute = recompute
         self._k = 0 if quantity == "p_kw" else 1
         self.shape = (n_options,) + today.shape
         self.dtype = today.dtype
         self.ndim = 3
+        #: (n_assets, n_options): a terminal capacitor's kVAr where the pair's rows are today's shifted
+        #: (:func:`capacitor_rows_kvar`), NaN where they are recomputed
+        self._shift = shift_kvar
+
+    def _shifted(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
+        """Which pairs are today's rows shifted (bool, (len(pairs),)): read without recomputing."""
+        if self._shift is None or not len(options):
+            return np.zeros(len(options), dtype=bool)
+        return (options != 0) & ~np.isnan(self._shift[assets, options])
+
+    def _shifted_rows(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
+        """The rows of shifted pairs (:meth:`_shifted`), from today's rows kept in memory."""
+        if self._k == 0:
+            return self._recompute.today_p[assets]
+        return capacitor_rows_kvar(self._recompute.today_p[assets], self._recompute.today_q[assets],
+                                   self._shift[assets, options])
 
     def __len__(self) -> int:
         return self.shape[0]
@@ -1746,7 +1831,10 @@ class SiteIntervalStore:
         out = np.empty((len(options), self.shape[2]), dtype=self.dtype)
         today = options == 0
         out[today] = self._today[assets[today]]
-        rest = np.flatnonzero(~today)
+        shifted = self._shifted(options, assets)
+        if shifted.any():
+            out[shifted] = self._shifted_rows(options[shifted], assets[shifted])
+        rest = np.flatnonzero(~today & ~shifted)
         if len(rest):
             sites = self._recompute.site_of[assets[rest]]
             for k in np.unique(sites):
@@ -1759,8 +1847,13 @@ class SiteIntervalStore:
         (numpy's order for that sum, so the same bits), without gathering the rows into one array:
         today's rows are read where they are kept, the others recomputed site by site."""
         options, assets = np.asarray(options, dtype=int), np.asarray(assets, dtype=int)
-        rest = np.flatnonzero(options != 0)
+        shifted = self._shifted(options, assets)
+        rest = np.flatnonzero((options != 0) & ~shifted)
         others = {}
+        at = np.flatnonzero(shifted)
+        if len(at):
+            values = self._shifted_rows(options[at], assets[at])
+            others.update({int(i): values[n] for n, i in enumerate(at)})
         if len(rest):
             sites = self._recompute.site_of[assets[rest]]
             for k in np.unique(sites):

@@ -586,11 +586,11 @@ class CurveBook:
     Notes
     -----
     Grids whose cells are uint8 (at most 256 nodes) and int32 go to two slots, each the rows of its
-    grids stacked (one grid in a slot is used as it is, without a copy); the book's own rows are slot 2.
-    :meth:`arrays` gives what the compiled readers take: (table, source, slot, grid_row, offset,
-    cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base, q_rise, finite, own_p, own_q),
+    grids stacked (one grid in a slot is used as it is, without a copy); the book's own rows are slot 2,
+    today's rows shifted (:meth:`shift`, their kVAr shifts in ``shift``) slot 3. :meth:`arrays` gives what the compiled readers take: (table, source, slot, grid_row, offset,
+    cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base, q_rise, finite, own_p, own_q, shift),
     ``finite`` per entry: whether its tables and its grid row's positions (or its own row) are all
-    finite (then so is every value read through it).
+    finite (then so is every value read through it; False for slot 3, read through today's row).
     """
 
     def __init__(self, n_options: int, n_rows: int):
@@ -626,6 +626,16 @@ class CurveBook:
         own = sum(len(p) for p, _ in self._own)
         self._own.append((np.ascontiguousarray(p_values, dtype=float), np.ascontiguousarray(q_values, dtype=float)))
         self._entries.append((2, own, len(rows)))
+        self.table[option, rows] = self._n_entries + np.arange(len(rows))
+        self._n_entries += len(rows)
+        self._frozen = None
+
+    def shift(self, option: int, rows: np.ndarray, q_shift: np.ndarray) -> None:
+        """Pairs (option, rows[i]) read as today's row (the arrays' option 0) with ``q_shift[i]`` taken off
+        the kVAr while the kW is not 0, and 0 while it is (``models.operation.capacitor_rows_kvar``, the
+        same operations): a terminal capacitor switched with today's motor."""
+        rows = np.asarray(rows, dtype=np.intp)
+        self._entries.append((3, 0, len(rows), np.ascontiguousarray(q_shift, dtype=float)))
         self.table[option, rows] = self._n_entries + np.arange(len(rows))
         self._n_entries += len(rows)
         self._frozen = None
@@ -669,8 +679,18 @@ class CurveBook:
         positions_finite = [[np.isfinite(g.position_frac).all(axis=1) if g.position_finite is None else g.position_finite
                              for g in grids] for grids in self._grids]
         flat: list[list[np.ndarray]] = [[], [], [], []]
+        shifts: list[np.ndarray] = []
+        n_shift = 0
         k = at = 0
         for s, g, grid_rows, *tabs in self._entries:
+            if s == 3:  # today's row shifted: n_e = grid_rows of them, their shifts from n_shift on
+                n_e = grid_rows
+                slot[k:k + n_e] = 3
+                grid_row[k:k + n_e] = n_shift + np.arange(n_e)
+                shifts.append(tabs[0])
+                n_shift += n_e
+                k += n_e  # (finite stays False: readers take the general path, which reads today's row)
+                continue
             if s == 2:  # the book's own rows: n_e = grid_rows of them from row g of own_p / own_q
                 n_e = grid_rows
                 slot[k:k + n_e] = 2
@@ -689,8 +709,9 @@ class CurveBook:
             k += n_e
             at += n_e * width
         tables_ = [np.concatenate(f) if f else np.zeros(0) for f in flat]
+        shift = np.concatenate(shifts) if shifts else np.zeros(0)
         self._frozen = (self.table, self.source, slot, grid_row, offset, slots[0][0], slots[0][1], slots[1][0],
-                        slots[1][1], *tables_, finite, own_p, own_q)
+                        slots[1][1], *tables_, finite, own_p, own_q, shift)
         return self._frozen
 
     def fill(self, option: int, rows: np.ndarray, p: np.ndarray, q: np.ndarray, out_p: np.ndarray,
@@ -720,8 +741,9 @@ def _fill_pairs(book, options, rows, p, q, out_p, out_q, out_rows):  # pragma: n
 
 @numba.njit(nogil=True, cache=True)
 def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b, position_b, p_base, p_rise, q_base,
-               q_rise, own_p, own_q, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
-    """Pair (o, r) into out_p, out_q (n_steps,): interpolated as :func:`_interpolate_two`, or copied."""
+               q_rise, own_p, own_q, shift, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
+    """Pair (o, r) into out_p, out_q (n_steps,): interpolated as :func:`_interpolate_two`, copied, or today's
+    row shifted (:meth:`CurveBook.shift`)."""
     m = out_p.shape[0]
     k = table[o, r]
     if k < 0:
@@ -733,11 +755,17 @@ def _fill_pair(table, source, slot, grid_row, offset, cell_a, position_a, cell_b
         _interpolate_row(cell_a, position_a, grid_row[k], offset[k], p_base, p_rise, q_base, q_rise, out_p, out_q)
     elif slot[k] == 1:
         _interpolate_row(cell_b, position_b, grid_row[k], offset[k], p_base, p_rise, q_base, q_rise, out_p, out_q)
-    else:
+    elif slot[k] == 2:
         g = grid_row[k]
         for t in range(m):
             out_p[t] = own_p[g, t]
             out_q[t] = own_q[g, t]
+    else:
+        c = shift[grid_row[k]]
+        for t in range(m):
+            v = p[0, r, t]
+            out_p[t] = v
+            out_q[t] = q[0, r, t] - c if v != 0.0 else 0.0
 
 
 @numba.njit(nogil=True, cache=True)
@@ -754,4 +782,4 @@ def _interpolate_row(cell, position, g, at, p_base, p_rise, q_base, q_rise, out_
 def fill_pair(book, o, r, p, q, out_p, out_q):  # pragma: no cover - compiled
     """:func:`_fill_pair` with the book as the tuple :meth:`CurveBook.arrays` (for other compiled passes)."""
     _fill_pair(book[0], book[1], book[2], book[3], book[4], book[5], book[6], book[7], book[8], book[9], book[10],
-               book[11], book[12], book[14], book[15], o, r, p, q, out_p, out_q)
+               book[11], book[12], book[14], book[15], book[16], o, r, p, q, out_p, out_q)

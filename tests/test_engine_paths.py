@@ -1165,7 +1165,10 @@ class TestRecomputeOnlyTheRowsAsked:
             monkeypatch.setattr(operation, "_evaluate", spy)
             part = operation._operate_block(one, index, block, wanted=frozenset({o}), needed=needed, power_only=True)
             monkeypatch.setattr(operation, "_evaluate", real)
-            assert seen and max(seen) == 1, options.iloc[o]["option_id"]  # one asset evaluated, not the block
+            if options.iloc[o]["technology"] == "capacitor" and full.interval_data[users[-1]]:
+                assert seen == []  # a terminal capacitor's rows are today's shifted: no model evaluated
+            else:
+                assert seen and max(seen) == 1, options.iloc[o]["option_id"]  # one asset evaluated, not the block
             assert_array_equal(part.p_kw[o, users[-1]], full.p_kw[o, users[-1]])
             assert_array_equal(part.q_kvar[o, users[-1]], full.q_kvar[o, users[-1]])
             checked += 1
@@ -1200,3 +1203,25 @@ class TestReferenceLoad:
         on = (p_ref > 0.0) & (np.broadcast_to(weight, p_ref.shape) > 0)
         peak = np.where(on, p_ref, 0.0).max(axis=1, keepdims=True)
         assert_array_equal(load.p_design_kw, np.maximum(peak, operation.DESIGN_SHAFT_LOAD_FRAC * rated[:, None]))
+
+
+def test_a_terminal_capacitor_takes_its_kvar_off_todays_while_the_motor_runs(dense):
+    # a capacitor switched with the motor: the same kW as today's motor in every interval; kVAr lower by the
+    # capacitor's size while the motor runs, unchanged (0) while it is stopped; its running hours (counted from
+    # the load profile, op.running_h) are the intervals where today's motor draws power
+    op = dense.operation
+    o = int(np.flatnonzero(op.technologies == "capacitor")[0])
+    users = np.flatnonzero(op.applies[:, o] & op.interval_data)
+    assert len(users) >= 2
+    for j in users:
+        p0, q0, p, q = op.p_kw[0, j], op.q_kvar[0, j], op.p_kw[o, j], op.q_kvar[o, j]
+        running = p0 != 0.0
+        assert running.sum() * op.interval_h == pytest.approx(op.running_h[j], rel=1e-12)
+        assert_array_equal(p, p0)
+        assert op.capacitor_q_kvar[j, o] > 0
+        assert_allclose(np.where(running, q0 - q, 0.0), np.where(running, op.capacitor_q_kvar[j, o], 0.0), rtol=1e-12)
+        assert (q[~running] == 0.0).all()
+        # its yearly kVArh are its rows' own sums; kWh, losses and speed are today's
+        assert op.lagging_kvarh[j, o] == pytest.approx(np.maximum(q, 0.0).sum() * op.interval_h, rel=1e-12)
+        assert op.leading_kvarh[j, o] == pytest.approx(np.maximum(-q, 0.0).sum() * op.interval_h, rel=1e-12, abs=1e-12)
+        assert op.energy_kwh[j, o] == op.energy_kwh[j, 0] and op.mean_speed_rpm[j, o] == op.mean_speed_rpm[j, 0]

@@ -483,6 +483,23 @@ class TestCurveBook:
         slot, finite = book.arrays()[2], book.arrays()[13]
         assert sorted(slot.tolist()) == [0, 2, 2, 2, 2] and finite.all()
 
+    def test_todays_rows_shifted_for_a_terminal_capacitor(self):
+        # hand calculation: today's rows p = [10, 0, 4, 0.5] kW, q = [6, 0, 3, 2] kVAr (stopped in the 2nd
+        # interval); a 2.5 kVAr capacitor switched with the motor: q = [3.5, 0, 0.5, -0.5], p unchanged;
+        # a second row with a 1 kVAr bank: q = [-1, -1, -1, -1] from q = 0 with p = 1 throughout
+        today_p = np.array([[[10.0, 0.0, 4.0, 0.5], [1.0, 1.0, 1.0, 1.0]]])
+        today_q = np.array([[[6.0, 0.0, 3.0, 2.0], [0.0, 0.0, 0.0, 0.0]]])
+        book = tabulation.CurveBook(2, 2)
+        book.shift(1, np.array([0, 1]), np.array([2.5, 1.0]))
+        out_p, out_q = np.full((2, 4), np.nan), np.full((2, 4), np.nan)
+        book.fill(1, np.arange(2), today_p, today_q, out_p, out_q)
+        assert_array_equal(out_p, today_p[0])
+        assert_array_equal(out_q, [[3.5, 0.0, 0.5, -0.5], [-1.0, -1.0, -1.0, -1.0]])
+        # the same values as the engine's own rule, and the entries marked for the general readers
+        assert_array_equal(out_q, operation.capacitor_rows_kvar(today_p[0], today_q[0], np.array([2.5, 1.0])))
+        slot, finite = book.arrays()[2], book.arrays()[13]
+        assert slot.tolist() == [3, 3] and not finite.any()
+
     def test_several_grids_in_one_slot_and_chosen_output_rows(self):
         # two uint8 grids stacked in one slot; pairs written to chosen rows of the output
         p, coarse, _ = self._grids()
