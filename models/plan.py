@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 import highspy
+import numba
 import numpy as np
 import pandas as pd
 from scipy.sparse import coo_array
@@ -497,19 +498,36 @@ def _greedy_selection(data: dict[str, Any], x: np.ndarray | None = None) -> np.n
     order = np.lexsort((-value, -pi))
     x = np.zeros((n, years), dtype=bool) if x is None else x.copy()
     left = data["budget"] - np.einsum("is,isy->y", x.astype(float), data["spend"])
-    taken: set[str] = set(data["assets"][np.flatnonzero(x.any(axis=1))].tolist())
+    _, asset_code = np.unique(data["assets"], return_inverse=True)
+    taken = np.zeros(int(asset_code.max()) + 1 if n else 0, dtype=bool)
+    taken[asset_code[np.flatnonzero(x.any(axis=1))]] = True
     tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(data["budget"]), data["budget"], 0.0))
+    _greedy_fill(order, np.asarray(value, dtype=float), asset_code.astype(np.intp),
+                 np.ascontiguousarray(data["spend"], dtype=float), np.asarray(left, dtype=float).copy(),
+                 np.asarray(tolerance, dtype=float), x, taken)
+    return x
+
+
+@numba.njit(nogil=True, cache=True)
+def _greedy_fill(order, value, asset_code, spend, left, tolerance, x, taken):  # pragma: no cover - compiled
+    """In ``order``, start each project whose asset has none yet, with value > 0, in the earliest plan
+    year whose spend fits every year's budget left (``left`` and ``x``, ``taken`` updated in place)."""
+    years, n_y = spend.shape[1], spend.shape[2]
     for i in order:
-        if value[i] <= 0 or data["assets"][i] in taken:
+        if value[i] <= 0 or taken[asset_code[i]]:
             continue
         for s in range(years):
-            need = data["spend"][i, s]
-            if np.all(need <= left + tolerance):
-                left = left - need
+            fits = True
+            for y in range(n_y):
+                if not spend[i, s, y] <= left[y] + tolerance[y]:
+                    fits = False
+                    break
+            if fits:
+                for y in range(n_y):
+                    left[y] = left[y] - spend[i, s, y]
                 x[i, s] = True
-                taken.add(data["assets"][i])
+                taken[asset_code[i]] = True
                 break
-    return x
 
 
 def plan_greedy(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, budget_per_yr: Any,

@@ -358,3 +358,44 @@ class TestAbatementCurve:
     def test_nan_raises(self):
         with pytest.raises(ValueError, match="NaN"):
             plan.abatement_curve(["p"], ["a"], [1.0], [np.nan], [1.0])
+
+
+def greedy_by_hand(assets, value, spend, budget, rate):
+    """The profitability-index rule written out plainly (plan_greedy's Notes): projects with NPV > 0 by
+    PI = NPV / PV(capital), ties larger NPV first; each started, if its asset has none yet, in the
+    earliest plan year whose spend fits every year's budget left. Returns {project: start year}."""
+    years = len(budget)
+    n_k = spend.shape[1]
+    capital_pv = [sum(spend[i, k] / (1 + rate) ** k for k in range(n_k)) for i in range(len(value))]
+    ranked = sorted((i for i in range(len(value)) if value[i] > 0),
+                    key=lambda i: (-(value[i] / capital_pv[i]) if capital_pv[i] > 0 else -np.inf, -value[i]))
+    left, taken, chosen = list(budget), set(), {}
+    for i in ranked:
+        if assets[i] in taken:
+            continue
+        for s in range(years):
+            need = [spend[i, y - s] if 0 <= y - s < n_k else 0.0 for y in range(years)]
+            if all(need[y] <= left[y] + 1e-9 * max(1.0, budget[y]) for y in range(years)):
+                left = [left[y] - need[y] for y in range(years)]
+                chosen[i] = s
+                taken.add(assets[i])
+                break
+    return chosen
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_greedy_plan_follows_the_rule_written_out(seed):
+    # random fleets of 4-9 assets, 1-3 options each, capital over 1-3 years, 1-3 budget years
+    rng = np.random.default_rng(100 + seed)
+    n_assets = int(rng.integers(4, 10))
+    assets = [f"m{a}" for a in range(n_assets) for _ in range(int(rng.integers(1, 4)))]
+    n = len(assets)
+    years, n_k = int(rng.integers(1, 4)), int(rng.integers(1, 4))
+    value = rng.uniform(-20.0, 100.0, n).round(2)
+    spend = rng.uniform(10.0, 60.0, (n, n_k)).round(2)
+    budget = rng.uniform(40.0, 150.0, years).round(2)
+    ids = [f"p{i}" for i in range(n)]
+    got = plan.plan_greedy(ids, assets, value, spend, budget, 0.08)
+    expected = greedy_by_hand(assets, value, spend, budget, 0.08)
+    chosen = dict(zip(got.chosen["project_id"], got.chosen["start_yr"]))
+    assert chosen == {ids[i]: s for i, s in expected.items()}
