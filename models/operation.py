@@ -734,6 +734,13 @@ TODAY_IN_MEMORY_BUDGET_BYTES = 4 * 2**30
 #: again instead of recomputed (:func:`kept_rows`; 1 GiB: the 6,000 chosen rows of a 10,000-asset fleet
 #: on an hourly year take 0.8 GiB).
 KEPT_ROWS_BUDGET_BYTES = 2**30
+#: A fleet above the dense budget keeps the curve books of its sites' blocks (each option's tables and the
+#: rows of their own, :class:`models.tabulation.CurveBook`) up to this many bytes, site by site in the order
+#: they finish: any row of a site whose books are all kept is then read through them (an interpolation,
+#: the same bits) instead of recomputed. 2.5 GiB: the books of a 10,000-asset fleet of 11 options on an
+#: hourly year take about 2.1 GiB (220 KiB per asset, docs/performance.md); a larger fleet keeps as many
+#: sites as fit and recomputes the others.
+KEPT_BOOKS_BUDGET_BYTES = 5 * 2**29
 #: Sites worked at once by one process (:func:`models.scenario.physics`): one per core, at most two, as
 #: on the 2-core reference machine (each thread holds one site's blocks; common practice for a laptop).
 PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
@@ -1649,6 +1656,50 @@ class _SiteRecompute:
         self._kept_bytes = 0
         self._kept_budget = 0
         self._kept_lock = threading.Lock()
+        self.site_number = {site_id: k for k, (site_id, _) in enumerate(self.partition)}
+        self._books: dict[int, list] = {}  # site -> [(site-local rows of a block, its book's arrays)]
+        self._books_bytes = 0
+        self.books_budget = KEPT_BOOKS_BUDGET_BYTES
+
+    def keep_book(self, site_id: str, rows: np.ndarray, book: "tabulation.CurveBook") -> bool:
+        """Keep a block's curve book (site-local ``rows``, the block's assets in its order) while the books
+        kept stay within :attr:`books_budget`; a site whose blocks' books are all kept is read through
+        them. Returns whether it was kept."""
+        arrays = book.arrays()
+        size = sum(int(a.nbytes) for a in arrays)
+        k = self.site_number[str(site_id)]
+        with self._kept_lock:
+            if self._books_bytes + size > self.books_budget:
+                return False
+            self._books_bytes += size
+            self._books.setdefault(k, []).append((np.asarray(rows, dtype=np.intp), arrays))
+        return True
+
+    def _booked(self, k: int) -> list | None:
+        """Site k's kept books when they cover every asset of the site, else None."""
+        blocks = self._books.get(k)
+        if not blocks or sum(len(r) for r, _ in blocks) != len(self.partition[k][1]):
+            return None
+        return blocks
+
+    def _read_books(self, k: int, blocks: list, options: np.ndarray, local: np.ndarray):
+        """Rows (options[i], local[i]) of site k read through its kept books: (p_kw, q_kvar)."""
+        positions = self.partition[k][1]
+        n_t = len(self.index)
+        out = (np.empty((len(options), n_t)), np.empty((len(options), n_t)))
+        for block_rows, arrays in blocks:
+            order = np.argsort(block_rows, kind="stable")
+            found = np.searchsorted(block_rows[order], local)
+            found = np.minimum(found, len(block_rows) - 1)
+            sel = np.flatnonzero(block_rows[order][found] == local)
+            if not len(sel):
+                continue
+            at = order[found[sel]]  # each pair's row in the block
+            fleet = _as_slice(positions[block_rows])
+            # the block's today's rows, as its arrays held them (a view where the positions are consecutive)
+            today_p, today_q = (np.asarray(full[fleet])[None] for full in (self.today_p, self.today_q))
+            tabulation.fill_rows(arrays, options[sel], at, today_p, today_q, out[0], out[1], sel)
+        return out
 
     @property
     def _cached(self) -> tuple | None:  # (key, p_kw, q_kvar) of the latest block run
@@ -1697,7 +1748,10 @@ class _SiteRecompute:
             return self._request[1 + quantity]
         self._request = None
         kept = self._kept
-        if kept is None:
+        booked = self._booked(k)
+        if booked is not None:  # read through the site's kept curve books: nothing recomputed
+            out = self._read_books(k, booked, options, local)
+        elif kept is None:
             out = self._computed(k, options, local)
         else:
             keys = [(k, int(o), int(j)) for o, j in zip(options, local)]
@@ -1775,6 +1829,7 @@ class _SiteRecompute:
         state = dict(self.__dict__)
         del state["_local"], state["_kept_lock"]  # caches stay behind
         state["_kept"], state["_kept_bytes"] = None, 0
+        state["_books"], state["_books_bytes"] = {}, 0
         return state
 
     def __setstate__(self, state):

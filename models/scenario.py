@@ -204,6 +204,8 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
             acc = SiteSavings(setup, index, block.interval_h, totals[0], totals[1], len(case.assets), block.technologies)
         acc.add(rows, block.p_kw, block.q_kvar, block.applies, block.curves)
         merger.add(rows if positions is None else positions[rows], block)
+        if merger.recompute is not None and block.curves is not None:  # read again by the plan, not recomputed
+            merger.recompute.keep_book(site_id, rows, block.curves)
         del block
         t0 = time.perf_counter()
         t_bills += t0 - t1
@@ -341,6 +343,11 @@ class _LockedGather:
         """:meth:`models.operation._Merger.today_rows` (the views are written by the site's thread alone)."""
         with self.lock:
             return self.merger.today_rows(rows, n_options)
+
+    @property
+    def recompute(self):
+        """The gatherer's recomputation of other options (None for a dense fleet); it keeps its own lock."""
+        return self.merger.recompute
 
 
 def _add_stage_times(timer: dict, stage_times: list[dict], wall_s: float, n_threads: int) -> None:

@@ -608,6 +608,15 @@ def dense(case):
 
 @pytest.fixture(scope="module")
 def compact(case):
+    """The compact store recomputing every row it is asked for (no curve book kept)."""
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", 0)
+        return scenario.physics(case, 35.0, chunk_assets=2, dense=False)
+
+
+@pytest.fixture(scope="module")
+def booked(case):
+    """The compact store reading its rows through the sites' kept curve books."""
     return scenario.physics(case, 35.0, chunk_assets=2, dense=False)
 
 
@@ -785,6 +794,62 @@ class TestCompactStore:
         c.p_kw._recompute._request = None
         meter_and_bills(case, c, choice)
         assert len(calls) == 2 * ran
+
+    def test_rows_read_through_kept_books_equal_the_dense_rows(self, case, dense, booked, compact, monkeypatch):
+        # with the sites' curve books kept, every row asked for is read through them (no block run again),
+        # the dense run's bits; a store without them recomputes
+        d, b = dense.operation, booked.operation
+        assert b.p_kw._recompute._books_bytes > 0 and compact.operation.p_kw._recompute._books == {}
+        calls = []
+        real = operation._operate_block
+
+        def spy(*args, **kwargs):
+            calls.append(1)
+            return real(*args, **kwargs)
+
+        monkeypatch.setattr(operation, "_operate_block", spy)
+        rng = np.random.default_rng(11)
+        for site_id in np.unique(d.site_ids):
+            m = np.flatnonzero(d.site_ids == site_id)
+            assets = rng.permutation(m)
+            options = np.array([rng.choice(np.flatnonzero(d.applies[j])) for j in assets])
+            b.p_kw._recompute._request = None
+            assert_array_equal(b.p_kw[options, assets], d.p_kw[options, assets], err_msg=site_id)
+            assert_array_equal(b.q_kvar[options, assets], d.q_kvar[options, assets], err_msg=site_id)
+        choice = _plan_choice(d)
+        _, bills_d = meter_and_bills(case, d, choice)
+        _, bills_b = meter_and_bills(case, b, choice, threads=2)
+        pd.testing.assert_frame_equal(bills_b, bills_d, check_exact=True)
+        assert calls == []
+
+    def test_books_beyond_the_budget_are_not_kept(self, case, dense, monkeypatch):
+        # a budget that holds the first site's books only: that site is read through them, the other site
+        # recomputes (its books would pass the budget); rows are the dense run's either way
+        seen = []
+        real = operation._SiteRecompute.keep_book
+
+        def spy(self, site_id, rows, book):
+            kept = real(self, site_id, rows, book)
+            seen.append((site_id, sum(int(a.nbytes) for a in book.arrays()), kept))
+            return kept
+
+        monkeypatch.setattr(operation._SiteRecompute, "keep_book", spy)
+        scenario.physics(case, 35.0, chunk_assets=2, dense=False, threads=1)
+        first = seen[0][0]
+        budget = sum(size for site_id, size, _ in seen if site_id == first)
+        seen.clear()
+        monkeypatch.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", budget)
+        part = scenario.physics(case, 35.0, chunk_assets=2, dense=False, threads=1).operation
+        recompute = part.p_kw._recompute
+        assert {site_id for site_id, _, kept in seen if kept} == {first}
+        assert recompute._books_bytes == budget
+        kept_sites = [k for k in range(len(recompute.partition)) if recompute._booked(k) is not None]
+        assert [recompute.partition[k][0] for k in kept_sites] == [first]
+        d = dense.operation
+        choice = _plan_choice(d)
+        rows = np.arange(len(d.asset_ids))
+        assert_array_equal(part.p_kw[choice, rows], d.p_kw[choice, rows])
+        assert_array_equal(part.q_kvar[choice, rows], d.q_kvar[choice, rows])
 
     def test_plans_priced_together_equal_each_plan_alone(self, case, dense, compact, monkeypatch):
         # the reactive check of two plans in one pass over the sites gives each plan's own check on the dense
