@@ -86,15 +86,17 @@ def _deltas(x, n_steps: int, name: str) -> np.ndarray:
     return a
 
 
-def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, interval_h, repeat_year) -> pd.DataFrame:
-    """Bill the site with asset totals p0 + dp[s], q0 + dq[s] for every scenario s, in memory-bounded blocks."""
+def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, interval_h, repeat_year,
+                    calendar=None) -> pd.DataFrame:
+    """Bill the site with asset totals p0 + dp[s], q0 + dq[s] for every scenario s, in memory-bounded blocks
+    (``calendar``: the tariff's calendar over the index, when the caller already holds it)."""
     n = dp.shape[0]
     h = interval_h if interval_h is not None else interval_hours(index)
     chunk = max(1, _CHUNK_ELEMENTS // max(len(p0), 1))
     frames = []
     flags: list = []
     lagging, leading = [], []
-    cal = None  # built once, at the first block (after its meter, as bill_many would)
+    cal = calendar  # else built once, at the first block (after its meter, as bill_many would)
     for start in range(0, n, chunk):
         meter = site.meter_from_totals(p0 + dp[start : start + chunk], q0 + dq[start : start + chunk], base_p_kw_profile=base_p_kw_profile)
         cal = cal if cal is not None else billing._calendar(tariff, index, interval_h)
@@ -122,17 +124,24 @@ def _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar):
     return p0, q0, dp, dq
 
 
+def bill_calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None = None):
+    """The tariff's calendar over the index (periods, months, demand windows) as :func:`scenario_bills`
+    builds it, to hand back to it when the same site is priced many times."""
+    return billing._calendar(tariff, index, interval_h)
+
+
 def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar, *,
                    site: Site = Site(), base_p_kw_profile=None, interval_h: float | None = None,
-                   repeat_year: bool | None = None) -> np.ndarray:
+                   repeat_year: bool | None = None, calendar=None) -> np.ndarray:
     """Total bill of the site for each scenario of changes [currency], shape (n_scenarios,).
 
     Scenario s is the assets' totals plus ``delta_*[s]`` (as in :func:`option_savings`, which it is the
-    bill part of: one bill per scenario, nothing else).
+    bill part of: one bill per scenario, nothing else). ``calendar`` is the tariff's calendar over the
+    index (:func:`bill_calendar`), for a caller that prices the same site many times.
     """
     p0, q0, dp, dq = _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar)
     frame = _bill_scenarios(tariff, index, site, p0, q0, dp, dq, base_p_kw_profile=base_p_kw_profile,
-                            interval_h=interval_h, repeat_year=repeat_year)
+                            interval_h=interval_h, repeat_year=repeat_year, calendar=calendar)
     return frame["total"].to_numpy(dtype=float)
 
 

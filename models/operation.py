@@ -1860,6 +1860,12 @@ class SiteIntervalStore:
         #: (:func:`capacitor_rows_kvar`), NaN where they are recomputed
         self._shift = shift_kvar
 
+    def recomputes(self, assets: np.ndarray) -> bool:
+        """Whether reading these assets' rows of other options runs the models again: some of their sites'
+        curve books were not kept (:meth:`_SiteRecompute.keep_book`)."""
+        sites = np.unique(self._recompute.site_of[np.asarray(assets, dtype=int)])
+        return any(self._recompute._booked(int(k)) is None for k in sites)
+
     def _shifted(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
         """Which pairs are today's rows shifted (bool, (len(pairs),)): read without recomputing."""
         if self._shift is None or not len(options):

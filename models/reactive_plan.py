@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from models import attribution
-from models.bill_savings import REACTIVE_TECHNOLOGIES, site_setups
+from models.bill_savings import REACTIVE_TECHNOLOGIES, _chosen_total, site_setups
 from models.operation import PHYSICS_THREADS, SiteIntervalStore, kept_rows
 from models.plan import plan_choice, project_labels
 from models.wording import counted
@@ -107,20 +107,18 @@ def reactive_values_in_plans(case, op, plan_frames: list[pd.DataFrame], results:
         capital = by_project["capital"].reindex(ids).to_numpy(dtype=float)
         order = np.lexsort((ids.astype(str), -alone / np.maximum(capital, 1e-9)))
         own, ids, alone = own[order], ids[order], alone[order]
-        # the plan's rows of the site in one read each, today's rows where the plan has a reactive project (the
-        # plan without them), and the reactive projects' changes, added up in order
-        plan_p = np.array(op.p_kw[choice[members], members], dtype=float)
-        plan_q = np.array(op.q_kvar[choice[members], members], dtype=float)
-        local = np.flatnonzero(reactive[members])[order]
-        today_p = np.asarray(op.p_kw[0, own], dtype=float)
-        today_q = np.asarray(op.q_kvar[0, own], dtype=float)
-        cum_p = np.cumsum(plan_p[local] - today_p, axis=0)
-        cum_q = np.cumsum(plan_q[local] - today_q, axis=0)
+        # the rest of the plan (its reactive projects' assets back to today's motors) as site totals, the rows
+        # added in the members' order without gathering them; the reactive projects' changes, added up in order
+        rest = np.where(reactive[members], 0, choice[members])
+        rest_p, rest_q = _chosen_total(op.p_kw, rest, members), _chosen_total(op.q_kvar, rest, members)
+        cum_p = np.cumsum(np.asarray(op.p_kw[choice[own], own], dtype=float) - np.asarray(op.p_kw[0, own], dtype=float),
+                          axis=0)
+        cum_q = np.cumsum(np.asarray(op.q_kvar[choice[own], own], dtype=float)
+                          - np.asarray(op.q_kvar[0, own], dtype=float), axis=0)
         n_t = cum_p.shape[1]
-        rest_p, rest_q = plan_p, plan_q  # the rest of the plan, once the reactive rows are today's again
-        rest_p[local], rest_q[local] = today_p, today_q
         setup = setups[site_id]
-        kw = dict(site=setup.site, base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h)
+        kw = dict(site=setup.site, base_p_kw_profile=setup.base_p_kw_profile, interval_h=op.interval_h,
+                  calendar=attribution.bill_calendar(setup.tariff, op.index, op.interval_h))
         rest_bill = float(attribution.scenario_bills(setup.tariff, op.index, rest_p, rest_q, np.zeros((1, n_t)),
                                                      np.zeros((1, n_t)), **kw)[0])
         saved: dict[int, float] = {0: 0.0}  # S_k [currency/yr] by prefix length k
@@ -162,7 +160,7 @@ def reactive_values_in_plans(case, op, plan_frames: list[pd.DataFrame], results:
     def one_site(site_id: str) -> list[pd.DataFrame | None]:
         members = np.flatnonzero(op.site_ids == site_id)
         priced = [i for i, reactive in enumerate(reactives) if reactive[members].any()]
-        if len(priced) > 1 and isinstance(op.p_kw, SiteIntervalStore):
+        if len(priced) > 1 and isinstance(op.p_kw, SiteIntervalStore) and op.p_kw.recomputes(members):
             # the rows of every plan priced here recomputed together, kept, then read plan by plan
             pairs = np.unique(np.concatenate([np.stack([members, choices[i][members]], axis=1) for i in priced]), axis=0)
             pairs = pairs[pairs[:, 1] > 0]

@@ -18,11 +18,13 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from models.attribution import (
+    bill_calendar,
     equivalent_capacitor_bank_q_kvar,
     option_savings,
     plan_savings,
     reactive_balance,
     reactive_saving_sweep,
+    scenario_bills,
 )
 from models.site import Site, SteppedCapacitorBank, site_meter
 from models.tariff import tariff_from_dict
@@ -78,6 +80,15 @@ class TestOptionSavings:
         # hand calculation, A1: lagging kVArh 120 → 60 for either option; nothing leads
         assert_allclose(r["lagging_kvarh_change"].to_numpy(), [-60.0, -60.0], **EXACT)
         assert_allclose(r["leading_kvarh_change"].to_numpy(), [0.0, 0.0], **EXACT)
+
+    def test_scenario_bills_with_the_calendar_handed_back(self):
+        # hand calculation, A1: the option bills 18.06 and 20.00 whether the calendar is built per call or
+        # built once and handed back
+        idx, p, q, dp, dq = a1_inputs()
+        tariff = load(A1)
+        assert_allclose(scenario_bills(tariff, idx, p, q, dp, dq), [18.06, 20.00], **EXACT)
+        assert_allclose(scenario_bills(tariff, idx, p, q, dp, dq, calendar=bill_calendar(tariff, idx)), [18.06, 20.00],
+                        **EXACT)
 
     def test_equivalent_bank(self):
         # hand calculation, A1: option 2's 5.40 EUR needs a 27 kVAr bank (810 EUR at 30 EUR/kVAr); the grid
