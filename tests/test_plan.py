@@ -193,6 +193,41 @@ class TestAgainstBruteForce:
                 assert result.chosen["asset_id"].is_unique
             assert greedy.total_npv <= exact.total_npv + 1e-9
 
+    def test_relaxation_by_interior_point_gives_the_same_plans(self, monkeypatch):
+        # the relaxation of a large plan is solved by the interior-point method with crossover; forced on small
+        # random fleets it ends at a vertex (at most one fractional asset per budget row, so at most two
+        # fractional columns per row: H. Kellerer, U. Pferschy and D. Pisinger, Knapsack Problems, Springer
+        # 2004, Sec. 11.2) and the exact plans are the brute force's
+        rng = np.random.default_rng(99)
+        calls = []
+        real = plan._relaxation
+
+        def spy(model, time_limit_s):
+            relaxed = real(model, time_limit_s)
+            calls.append((model.num_row_, relaxed))
+            return relaxed
+
+        monkeypatch.setattr(plan, "INTERIOR_POINT_MIN_COLUMNS", 0)
+        monkeypatch.setattr(plan, "_relaxation", spy)
+        for trial in range(12):
+            n_assets = int(rng.integers(2, 6))
+            options = rng.integers(1, 4, n_assets)
+            assets = np.repeat([f"a{k}" for k in range(n_assets)], options)
+            n = assets.size
+            ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+            value = np.round(rng.normal(40, 40, n), 2)
+            spend = np.round(rng.uniform(1, 60, (n, 2)), 2)
+            budget = np.round(rng.uniform(20, 150, 2), 2)
+            exact = plan.plan_exact(ids, assets, value, spend, budget, 0.08, **EXACT)
+            assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.08), rtol=1e-9, atol=1e-9,
+                            err_msg=f"trial {trial}")
+        relaxed = [r for _, r in calls if r is not None]
+        assert len(relaxed) >= 10
+        for rows, r in calls:
+            if r is not None:
+                fractional = ((r.x > 1e-9) & (r.x < 1 - 1e-9)).sum()
+                assert fractional <= 2 * 2  # two budget rows (two plan years), a pair per row at most
+
     def test_six_assets_three_options_two_years(self):
         # Largest size asked for: 6 assets x 3 options x 2 years (7^6 = 117,649 plans enumerated).
         rng = np.random.default_rng(7)
