@@ -12,9 +12,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS,
-                              TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
-                              site_partition)
+from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, KEPT_BOOKS_BUDGET_BYTES,
+                              KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS, TODAY_IN_MEMORY_BUDGET_BYTES, case_index,
+                              interval_bytes, options_with_baseline, site_partition)
 
 #: Machines stage per asset-option-step [s], one thread: 5.4 s of wall time for 10,000 assets x 11
 #: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 34.6 s end to end,
@@ -55,6 +55,11 @@ BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
 #: 3,908 MiB of the 10,000-asset run with the plan's reactive check, which holds a site's plan rows per thread;
 #: the 5,057 MiB of the 34.6 s run above is this plus the plans' rows kept, below).
 ECONOMICS_BYTES_PER_PAIR = 20 * 1024
+#: Curve books kept per asset-step by the local engine above the dense budget [bytes] (tables, grid cells
+#: and positions, rows of their own): 2.06 GiB for the benchmark's 10,000 assets x 11 options x 8,760 steps
+#: (docs/scale.md, memory model), held from each site's physics to the end of the run within
+#: :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`.
+BOOK_BYTES_PER_ASSET_STEP = 2.06 * 2**30 / (10_000 * 8760)
 #: Speed-up of the physics per extra site thread [-]: two threads ran the 10,000-asset fleet's physics
 #: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
 #: each other thousands of times per site, docs/performance.md).
@@ -105,7 +110,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     local site threads (g = :data:`THREAD_GAIN`), and the constants of this module (measured by
     ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
     it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
-    :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the larger of
+    :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
+    a local run keeps above the dense budget (:data:`BOOK_BYTES_PER_ASSET_STEP`, at most
+    :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`) + the larger of
     the physics (per thread: the largest site's today's power, one block's per-option arrays and
     temporaries) and the economics (one site's meter arrays and the per-asset-option tables).
     """
@@ -133,12 +140,18 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
     physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
                               + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
-    # above the dense budget the plan's rows are kept while its reactive check and its bills read them
-    # (at most one row per asset, within KEPT_ROWS_BUDGET_BYTES)
-    kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, today)
+    # above the dense budget the local engine keeps the sites' curve books (the plan reads its rows through
+    # them) as far as their budget allows; rows of the sites beyond it are recomputed and kept while the plan's
+    # reactive check and its bills read them (at most one row per asset, within KEPT_ROWS_BUDGET_BYTES)
+    want_books = 0 if dense or workers > 1 else BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
+    books = min(want_books, KEPT_BOOKS_BUDGET_BYTES)
+    unbooked = 1.0 - (books / want_books if want_books else 0.0)
+    kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
-    peak = BASE_BYTES + store + max(physics_peak, economics_peak)
+    peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power" if dense else
+            "today's per-interval power (other options read through the sites' curve books, "
+            "or recomputed by block when needed)" if books else
             "today's per-interval power (other options recomputed by block when needed)")
     if spilled:
         kept += f", in a temporary file of {today / 2**30:.1f} GiB"

@@ -187,6 +187,22 @@ class TestEstimate:
         # two site threads: 1.7x the speed (THREAD_GAIN, measured) and two sites' blocks in memory
         assert double.seconds < single.seconds and double.peak_bytes >= single.peak_bytes
 
+    def test_curve_books_are_counted_for_a_local_run_above_the_dense_budget(self, fleet, monkeypatch):
+        # above the dense budget a local run keeps the sites' curve books (BOOK_BYTES_PER_ASSET_STEP per
+        # asset-step, at most KEPT_BOOKS_BUDGET_BYTES); Dask workers keep none
+        from models import estimate
+
+        monkeypatch.setattr(estimate, "DENSE_INTERVAL_BUDGET_BYTES", 0)
+        local, dask = estimate.estimate_run(fleet, threads=1), estimate.estimate_run(fleet, workers=2)
+        n_a, n_t = len(fleet.assets), len(case_index(fleet))
+        books = estimate.BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
+        assert "curve books" in local.note and "curve books" not in dask.note
+        monkeypatch.setattr(estimate, "KEPT_BOOKS_BUDGET_BYTES", 0)
+        none = estimate.estimate_run(fleet, threads=1)
+        assert "curve books" not in none.note
+        # without books the plan's rows are kept instead (at most today's power, one row per asset)
+        assert books - interval_bytes(n_a, 1, n_t) - 2 <= local.peak_bytes - none.peak_bytes <= books + 2
+
     def test_todays_power_beyond_its_budget_is_counted_at_the_budget(self, fleet, monkeypatch):
         # above the dense budget the peak holds today's power; beyond TODAY_IN_MEMORY_BUDGET_BYTES it goes
         # to a temporary file (docs/scale.md, memory model): the peak counts the budget, the note the file
