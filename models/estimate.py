@@ -16,30 +16,31 @@ from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, KEPT_
                               KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS, TODAY_IN_MEMORY_BUDGET_BYTES, case_index,
                               interval_bytes, options_with_baseline, site_partition)
 
-#: Machines stage per asset-option-step [s], one thread: 5.4 s of wall time for 10,000 assets x 11
-#: options x 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-02, 34.6 s end to end,
-#: load average 1.5 on the 2-core reference machine), times the two threads' gain 1.45.
-MACHINES_S_PER_ELEMENT = 5.4 * 1.45 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s], one thread: 5.4 s of wall time, same run, times 1.45.
-SITE_BILLS_S_PER_ELEMENT = 5.4 * 1.45 / (10_000 * 11 * 8760)
-#: Finance and the plan's monthly bills per asset [s]: 3.6 s per 10,000 assets (1.6 s finance and 2.0 s
-#: bills in the 34.6 s run above; budgets per motor as the demo's: the plan's bills read the chosen
-#: options' rows the plan's reactive check recomputed, models.operation.kept_rows). The end of life and
-#: the Monte Carlo (2.1 s) run beside the plan, which takes longer, and are counted within it.
-ECONOMICS_S_PER_ASSET = 3.6 / 10_000
-#: Exact fleet plan [s]: 17.6 s for 10,000 assets (same run: the first solve, the checks of the exact and
-#: the rank-order plans' reactive projects beside the rest of each plan, the second solve); 21.6 s for
+#: Machines stage per asset-option-step [s], one thread: 12.0 s of wall time for 10,000 assets x 11
+#: options x 8,760 steps with two site threads (bench_fleet, local engine, late on 2026-12-02, 50.3 s end to
+#: end, load average 1.7 on the 2-core reference machine, its numpy pass 114 ms), times the two threads'
+#: gain 1.45.
+MACHINES_S_PER_ELEMENT = 12.0 * 1.45 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s], one thread: 12.4 s of wall time, same run, times 1.45.
+SITE_BILLS_S_PER_ELEMENT = 12.4 * 1.45 / (10_000 * 11 * 8760)
+#: Finance and the plan's monthly bills per asset [s]: 4.3 s per 10,000 assets (3.2 s finance and 1.1 s
+#: bills in the 50.3 s run above; budgets per motor as the demo's: the plan's bills read the chosen options'
+#: rows through the sites' kept curve books). The end of life and the Monte Carlo (4.2 s) run beside the
+#: plan, which takes longer, and are counted within it.
+ECONOMICS_S_PER_ASSET = 4.3 / 10_000
+#: Exact fleet plan [s]: 14.7 s for 10,000 assets (same run: the first solve, the check of the exact and
+#: the rank-order plans' reactive projects beside the rest of each plan, the second solve); 28.2 s for
 #: 5,000 assets in the same session (the solver's search varies from fleet to fleet); with the tight
 #: budgets of a small plant on a large fleet each solve stops at its 60 s limit (models.plan.plan_exact),
-#: so the estimate is capped at two limits and the checks.
-PLAN_S_PER_ASSET = 17.6 / 10_000
+#: so the estimate is capped at two limits and the check.
+PLAN_S_PER_ASSET = 14.7 / 10_000
 PLAN_MAX_S = 130.0
-#: Exact fleet plan of up to 1,000 assets [s per asset]: 9.1 s for 1,000 assets (same session; a fleet of
+#: Exact fleet plan of up to 1,000 assets [s per asset]: 16.8 s for 1,000 assets (same session; a fleet of
 #: that size is solved without a core programme, its proof takes longer per asset), the least a larger
 #: fleet is given too.
-PLAN_SMALL_S_PER_ASSET = 9.1 / 1_000
-#: Reading and validating a case per asset [s]: 2.3 s per 10,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 2.3 / 10_000
+PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
+#: Reading and validating a case per asset [s]: 6.1 s per 10,000 assets (Parquet profiles), same run.
+LOAD_S_PER_ASSET = 6.1 / 10_000
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
 FIXED_S = 1.5
