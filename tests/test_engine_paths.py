@@ -629,6 +629,20 @@ def _plan_choice(op) -> np.ndarray:
     return choice
 
 
+@pytest.fixture
+def block_runs(monkeypatch):
+    """The blocks run by ``operation._operate_block`` from here on: one entry per run, its ``wanted`` options."""
+    runs = []
+    real = operation._operate_block
+
+    def spy(*args, **kwargs):
+        runs.append(kwargs.get("wanted"))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(operation, "_operate_block", spy)
+    return runs
+
+
 class TestCompactStore:
     def test_the_plan_choice_mixes_options(self, dense):
         choice = _plan_choice(dense.operation)
@@ -729,7 +743,7 @@ class TestCompactStore:
             assert_array_equal(c.p_kw[other[m], m], d.p_kw[other[m], m])
             assert_array_equal(c.q_kvar[choice[m], m], d.q_kvar[choice[m], m])
 
-    def test_kvar_rows_come_from_the_kw_recomputation(self, case, compact, monkeypatch):
+    def test_kvar_rows_come_from_the_kw_recomputation(self, case, compact, block_runs):
         # a site meter asks for the kW of the chosen options, then their kVAr; the chosen assets of a site
         # run once, in blocks of 2 of them (register order). Hand count: ceil(chosen assets of the site / 2).
         op = compact.operation
@@ -739,16 +753,8 @@ class TestCompactStore:
         expected = 0
         for _, rows in site_partition(case):
             expected += -(-int((choice[rows] > 0).sum()) // 2)
-        calls = []
-        real = operation._operate_block
-
-        def spy(*args, **kwargs):
-            calls.append(kwargs.get("wanted"))
-            return real(*args, **kwargs)
-
-        monkeypatch.setattr(operation, "_operate_block", spy)
         meter_and_bills(case, op, choice)
-        assert expected >= 4 and len(calls) == expected
+        assert expected >= 4 and len(block_runs) == expected
 
     def test_scattered_pairs_equal_the_dense_rows(self, dense, compact):
         # any subset of a site's pairs, in any order, gives the dense run's rows bit for bit: the blocks
@@ -764,17 +770,10 @@ class TestCompactStore:
             assert_array_equal(c.p_kw[options, assets], d.p_kw[options, assets], err_msg=site_id)
             assert_array_equal(c.q_kvar[options, assets], d.q_kvar[options, assets], err_msg=site_id)
 
-    def test_rows_kept_while_asked_are_not_recomputed(self, case, dense, compact, monkeypatch):
+    def test_rows_kept_while_asked_are_not_recomputed(self, case, dense, compact, block_runs):
         d, c = dense.operation, compact.operation
         choice = _plan_choice(d)
-        calls = []
-        real = operation._operate_block
-
-        def spy(*args, **kwargs):
-            calls.append(1)
-            return real(*args, **kwargs)
-
-        monkeypatch.setattr(operation, "_operate_block", spy)
+        calls = block_runs
         with operation.kept_rows(c):
             first, _ = meter_and_bills(case, c, choice)
             ran = len(calls)
@@ -795,19 +794,11 @@ class TestCompactStore:
         meter_and_bills(case, c, choice)
         assert len(calls) == 2 * ran
 
-    def test_rows_read_through_kept_books_equal_the_dense_rows(self, case, dense, booked, compact, monkeypatch):
+    def test_rows_read_through_kept_books_equal_the_dense_rows(self, case, dense, booked, compact, block_runs):
         # with the sites' curve books kept, every row asked for is read through them (no block run again),
         # the dense run's bits; a store without them recomputes
         d, b = dense.operation, booked.operation
         assert b.p_kw._recompute._books_bytes > 0 and compact.operation.p_kw._recompute._books == {}
-        calls = []
-        real = operation._operate_block
-
-        def spy(*args, **kwargs):
-            calls.append(1)
-            return real(*args, **kwargs)
-
-        monkeypatch.setattr(operation, "_operate_block", spy)
         rng = np.random.default_rng(11)
         for site_id in np.unique(d.site_ids):
             m = np.flatnonzero(d.site_ids == site_id)
@@ -820,7 +811,7 @@ class TestCompactStore:
         _, bills_d = meter_and_bills(case, d, choice)
         _, bills_b = meter_and_bills(case, b, choice, threads=2)
         pd.testing.assert_frame_equal(bills_b, bills_d, check_exact=True)
-        assert calls == []
+        assert block_runs == []
 
     def test_books_beyond_the_budget_are_not_kept(self, case, dense, monkeypatch):
         # a budget that holds the first site's books only: that site is read through them, the other site

@@ -167,20 +167,27 @@ class TestStartAndLimits:
             plan.plan_exact(self.IDS, self.ASSETS, self.NPV, self.CAPITAL, [100.0], 0.08, **kwargs)
 
 
+def random_small_fleet(rng, max_assets: int = 6, zero_spend_share: float = 0.2):
+    """A seeded random fleet of 1 to max_assets - 1 assets x 1-3 options, capital over the two years after
+    the start (a share of it zero), two budget years: (ids, assets, value, spend, budget)."""
+    n_assets = int(rng.integers(1, max_assets))
+    options = rng.integers(1, 4, n_assets)
+    assets = np.repeat([f"a{k}" for k in range(n_assets)], options)
+    n = assets.size
+    ids = [f"{a}/{i}" for i, a in enumerate(assets)]
+    value = np.round(rng.normal(40, 40, n), 2)
+    spend = np.round(rng.uniform(0, 60, (n, 2)) * (rng.random((n, 2)) < 1.0 - zero_spend_share), 2)
+    budget = np.round(rng.uniform(0, 150, 2), 2)
+    return ids, assets, value, spend, budget
+
+
 class TestAgainstBruteForce:
     def test_random_small_fleets(self):
         # Independent check: exhaustive enumeration (brute_force above) on seeded random fleets of up to
         # 5 assets x 3 options x 2 plan years, capital spread over two years after the start.
         rng = np.random.default_rng(2024)
         for trial in range(25):
-            n_assets = int(rng.integers(1, 6))
-            options = rng.integers(1, 4, n_assets)
-            assets = np.repeat([f"a{k}" for k in range(n_assets)], options)
-            n = assets.size
-            ids = [f"{a}/{i}" for i, a in enumerate(assets)]
-            value = np.round(rng.normal(40, 40, n), 2)
-            spend = np.round(rng.uniform(0, 60, (n, 2)) * (rng.random((n, 2)) < 0.8), 2)
-            budget = np.round(rng.uniform(0, 150, 2), 2)
+            ids, assets, value, spend, budget = random_small_fleet(rng)
             rate = 0.08
             exact = plan.plan_exact(ids, assets, value, spend, budget, rate, **EXACT)
             greedy = plan.plan_greedy(ids, assets, value, spend, budget, rate)
@@ -210,14 +217,7 @@ class TestAgainstBruteForce:
         monkeypatch.setattr(plan, "INTERIOR_POINT_MIN_COLUMNS", 0)
         monkeypatch.setattr(plan, "_relaxation", spy)
         for trial in range(12):
-            n_assets = int(rng.integers(2, 6))
-            options = rng.integers(1, 4, n_assets)
-            assets = np.repeat([f"a{k}" for k in range(n_assets)], options)
-            n = assets.size
-            ids = [f"{a}/{i}" for i, a in enumerate(assets)]
-            value = np.round(rng.normal(40, 40, n), 2)
-            spend = np.round(rng.uniform(1, 60, (n, 2)), 2)
-            budget = np.round(rng.uniform(20, 150, 2), 2)
+            ids, assets, value, spend, budget = random_small_fleet(rng, zero_spend_share=0.0)
             exact = plan.plan_exact(ids, assets, value, spend, budget, 0.08, **EXACT)
             assert_allclose(exact.total_npv, brute_force(assets, value, spend, budget, 0.08), rtol=1e-9, atol=1e-9,
                             err_msg=f"trial {trial}")
