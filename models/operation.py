@@ -739,7 +739,7 @@ KEPT_ROWS_BUDGET_BYTES = 2**30
 #: they finish: any row of a site whose books are all kept is then read through them (an interpolation,
 #: the same bits) instead of recomputed. 2.5 GiB: the books of a 10,000-asset fleet of 11 options on an
 #: hourly year take about 2.1 GiB (220 KiB per asset, docs/performance.md); a larger fleet keeps as many
-#: sites as fit and recomputes the others.
+#: whole sites as fit and recomputes the others (a site whose blocks do not all fit keeps none).
 KEPT_BOOKS_BUDGET_BYTES = 5 * 2**29
 #: Sites worked at once by one process (:func:`models.scenario.physics`): one per core, at most two, as
 #: on the 2-core reference machine (each thread holds one site's blocks; common practice for a laptop).
@@ -1659,17 +1659,24 @@ class _SiteRecompute:
         self.site_number = {site_id: k for k, (site_id, _) in enumerate(self.partition)}
         self._books: dict[int, list] = {}  # site -> [(site-local rows of a block, its book's arrays)]
         self._books_bytes = 0
+        self._books_refused: set[int] = set()  # sites a block of which did not fit
         self.books_budget = KEPT_BOOKS_BUDGET_BYTES
 
     def keep_book(self, site_id: str, rows: np.ndarray, book: "tabulation.CurveBook") -> bool:
         """Keep a block's curve book (site-local ``rows``, the block's assets in its order) while the books
         kept stay within :attr:`books_budget`; a site whose blocks' books are all kept is read through
-        them. Returns whether it was kept."""
+        them, and a block that does not fit lets go of its site's books kept before it. Returns whether it
+        was kept."""
         arrays = book.arrays()
         size = sum(int(a.nbytes) for a in arrays)
         k = self.site_number[str(site_id)]
         with self._kept_lock:
-            if self._books_bytes + size > self.books_budget:
+            if k in self._books_refused or self._books_bytes + size > self.books_budget:
+                # a site read through its books needs all of them: the blocks kept so far are let go (their
+                # bytes serve whole sites after it) and none of its later blocks is kept
+                self._books_refused.add(k)
+                dropped = self._books.pop(k, [])
+                self._books_bytes -= sum(int(a.nbytes) for _, kept in dropped for a in kept)
                 return False
             self._books_bytes += size
             self._books.setdefault(k, []).append((np.asarray(rows, dtype=np.intp), arrays))
@@ -1829,7 +1836,7 @@ class _SiteRecompute:
         state = dict(self.__dict__)
         del state["_local"], state["_kept_lock"]  # caches stay behind
         state["_kept"], state["_kept_bytes"] = None, 0
-        state["_books"], state["_books_bytes"] = {}, 0
+        state["_books"], state["_books_bytes"], state["_books_refused"] = {}, 0, set()
         return state
 
     def __setstate__(self, state):

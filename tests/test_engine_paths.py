@@ -842,6 +842,32 @@ class TestCompactStore:
         assert_array_equal(part.p_kw[choice, rows], d.p_kw[choice, rows])
         assert_array_equal(part.q_kvar[choice, rows], d.q_kvar[choice, rows])
 
+    def test_a_site_whose_books_do_not_all_fit_keeps_none(self, case, dense, monkeypatch):
+        # blocks of 2 assets: a budget that holds the first site's first block only; its second block does
+        # not fit, so the first is let go too (a site is read through all its books or recomputed); nothing
+        # is left kept that no read uses
+        sizes = []
+        real = operation._SiteRecompute.keep_book
+
+        def spy(self, site_id, rows, book):
+            sizes.append(sum(int(a.nbytes) for a in book.arrays()))
+            return real(self, site_id, rows, book)
+
+        monkeypatch.setattr(operation._SiteRecompute, "keep_book", spy)
+        monkeypatch.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", 0)
+        scenario.physics(case, 35.0, chunk_assets=2, dense=False, threads=1)
+        first = sizes[0]
+        assert len(sizes) >= 4 and sizes[1] > 0
+        monkeypatch.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", first)
+        part = scenario.physics(case, 35.0, chunk_assets=2, dense=False, threads=1).operation
+        recompute = part.p_kw._recompute
+        assert all(recompute._booked(k) is not None for k in recompute._books)
+        assert recompute._books_bytes == sum(int(a.nbytes) for blocks in recompute._books.values()
+                                             for _, arrays in blocks for a in arrays)
+        choice = _plan_choice(dense.operation)
+        rows = np.arange(len(choice))
+        assert_array_equal(part.q_kvar[choice, rows], dense.operation.q_kvar[choice, rows])
+
     def test_plans_priced_together_equal_each_plan_alone(self, case, dense, compact, monkeypatch):
         # the reactive check of two plans in one pass over the sites gives each plan's own check on the dense
         # run, frame for frame; the compact store recomputes each site's rows of both plans in one request
