@@ -1894,20 +1894,27 @@ class SiteIntervalStore:
         """Bytes held in memory (today's motors only)."""
         return int(self._today.nbytes)
 
+    def _other_rows(self, options: np.ndarray, assets: np.ndarray):
+        """The rows of the pairs other than today's, in groups: (pair positions, their rows) for the
+        capacitor rows taken from today's, then site by site for the rows recomputed or read through books."""
+        shifted = self._shifted(options, assets)
+        at = np.flatnonzero(shifted)
+        if len(at):
+            yield at, self._shifted_rows(options[at], assets[at])
+        rest = np.flatnonzero((options != 0) & ~shifted)
+        if len(rest):
+            sites = self._recompute.site_of[assets[rest]]
+            for k in np.unique(sites):
+                sel = rest[sites == k]
+                yield sel, self._recompute.values(int(k), options[sel], self._recompute.local[assets[sel]], self._k)
+
     def _rows(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
         """Values for each (option, asset) pair, shape (len(pairs), n_steps)."""
         out = np.empty((len(options), self.shape[2]), dtype=self.dtype)
         today = options == 0
         out[today] = self._today[assets[today]]
-        shifted = self._shifted(options, assets)
-        if shifted.any():
-            out[shifted] = self._shifted_rows(options[shifted], assets[shifted])
-        rest = np.flatnonzero(~today & ~shifted)
-        if len(rest):
-            sites = self._recompute.site_of[assets[rest]]
-            for k in np.unique(sites):
-                sel = rest[sites == k]
-                out[sel] = self._recompute.values(int(k), options[sel], self._recompute.local[assets[sel]], self._k)
+        for at, values in self._other_rows(options, assets):
+            out[at] = values
         return out
 
     def summed_rows(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
@@ -1915,19 +1922,7 @@ class SiteIntervalStore:
         (numpy's order for that sum, so the same bits), without gathering the rows into one array:
         today's rows are read where they are kept, the others recomputed site by site."""
         options, assets = np.asarray(options, dtype=int), np.asarray(assets, dtype=int)
-        shifted = self._shifted(options, assets)
-        rest = np.flatnonzero((options != 0) & ~shifted)
-        others = {}
-        at = np.flatnonzero(shifted)
-        if len(at):
-            values = self._shifted_rows(options[at], assets[at])
-            others.update({int(i): values[n] for n, i in enumerate(at)})
-        if len(rest):
-            sites = self._recompute.site_of[assets[rest]]
-            for k in np.unique(sites):
-                sel = rest[sites == k]
-                values = self._recompute.values(int(k), options[sel], self._recompute.local[assets[sel]], self._k)
-                others.update({int(i): values[n] for n, i in enumerate(sel)})
+        others = {int(i): values[n] for at, values in self._other_rows(options, assets) for n, i in enumerate(at)}
         total = np.zeros(self.shape[2], dtype=self.dtype)
         for i in range(len(options)):
             row = self._today[assets[i]] if options[i] == 0 else others[i]
