@@ -35,6 +35,80 @@ def _site_task(*args):
         return site_physics(*args)
 
 
+#: Site tasks kept on the cluster per worker thread: one running and one whose data is already there, so a
+#: worker never waits for its next site's data; the rest of the sites stay with the caller until then.
+IN_FLIGHT_PER_THREAD = 2
+#: Times a site is sent again after the worker holding it was lost (a worker's death, not an error of
+#: the analysis, which is raised at once).
+SITE_ATTEMPTS = 3
+
+
+def _least_busy_worker(client) -> str | None:
+    """The address of the worker with the fewest tasks per thread, or None while the cluster has none."""
+    threads = client.nthreads()
+    if not threads:
+        return None
+    busy = client.processing()
+    return min(threads, key=lambda w: (len(busy.get(w, ())) / max(threads[w], 1), w))
+
+
+def _site_results(client, case, partition, index, cost: float, chunk_assets, today_only: bool):
+    """Run each site's task and yield (site_id, op, part, number done) as the sites come back.
+
+    Each site's sub-case goes straight from the caller to the worker that will run it
+    (``Client.scatter(direct=True)``), not through the scheduler inside the task: a site's profiles are
+    tens of MB, which the scheduler would otherwise hold and pass on. At most
+    :data:`IN_FLIGHT_PER_THREAD` sites per worker thread are on the cluster at once, so the memory they
+    take is bounded whatever the fleet's size; the next site goes to the least busy worker as one
+    comes back. A site whose worker was lost (its data with it) is sent again, up to
+    :data:`SITE_ATTEMPTS` times; an error raised by the analysis itself reaches the caller unchanged.
+    """
+    from collections import deque
+    from concurrent.futures import CancelledError
+
+    from distributed import as_completed
+    from distributed.scheduler import KilledWorker
+
+    waiting = deque(enumerate(site_id for site_id, _ in partition))
+    attempts: dict[str, int] = {}
+    launched: dict = {}
+
+    def launch(k: int, site_id: str):
+        attempts[site_id] = attempts.get(site_id, 0) + 1
+        sub_case = site_case(case, site_id)
+        key = f"drivecase-site-physics-{k}-{attempts[site_id]}"
+        worker = _least_busy_worker(client)
+        if worker is None:  # no worker yet: the scheduler holds the task and its data until one joins
+            future = client.submit(_site_task, sub_case, index, cost, chunk_assets, None, today_only, key=key,
+                                   pure=False)
+        else:
+            data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
+            future = client.submit(_site_task, data, index, cost, chunk_assets, None, today_only, key=key,
+                                   pure=False, workers=[worker])
+        launched[future] = (k, site_id)
+        return future
+
+    window = max(1, IN_FLIGHT_PER_THREAD * max(1, sum(client.nthreads().values())))
+    running = as_completed([launch(*waiting.popleft()) for _ in range(min(window, len(waiting)))])
+    done = 0
+    for future in running:
+        k, site_id = launched.pop(future)
+        try:
+            op, part = future.result()
+        except (KilledWorker, CancelledError):
+            if attempts[site_id] >= SITE_ATTEMPTS:
+                raise
+            waiting.appendleft((k, site_id))
+        else:
+            done += 1
+            yield site_id, op, part, done
+            del op, part
+        finally:
+            future.release()
+        while waiting and len(launched) < window:
+            running.add(launch(*waiting.popleft()))
+
+
 def _client(scheduler: str | None, n_workers: int, processes: bool):
     """Return (client, cluster or None): a client of the given scheduler, or of a new local cluster."""
     from distributed import Client, LocalCluster
@@ -97,22 +171,14 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
     today_only = not merger.ops.dense
     client, cluster = _client(scheduler, n_workers, processes)
     try:
-        from distributed import as_completed
-
-        futures = {}
-        for k, (site_id, _) in enumerate(merger.partition):
-            future = client.submit(_site_task, site_case(case, site_id), index, cost, chunk_assets, None, today_only,
-                                   key=f"drivecase-site-physics-{k}", pure=False)
-            futures[future] = site_id
-        for done, future in enumerate(as_completed(futures), start=1):
-            op, part = future.result()
+        results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only)
+        for site_id, op, part, done in results:
             if done == 1:
                 step("site bills")
-            merger.add(futures[future], op, part)
-            future.release()
+            merger.add(site_id, op, part)
             del op, part
             if site_progress is not None:
-                site_progress(futures[future], done, len(futures))
+                site_progress(site_id, done, len(merger.partition))
     finally:
         client.close()
         if cluster is not None:

@@ -86,3 +86,48 @@ def test_error_in_a_worker_reaches_the_caller(fleet, cluster):
     broken = replace(fleet, sites=sites)
     with pytest.raises(ValueError, match="has no tariff_file"):
         run_distributed(broken, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+
+
+def test_a_lost_worker_s_sites_are_sent_again(fleet, fleet_local):
+    """A worker killed mid-run loses the sites sent to it (their data lives only there): they are sent
+    again to a worker that lives, and the result files are still those of the local engine."""
+    import os
+    import signal
+
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0",
+                                  silence_logs=logging.CRITICAL) as local, distributed.Client(local) as client:
+        killed: list[str] = []
+
+        def kill_the_busiest_worker(site, n, total):
+            if killed:
+                return
+            busy = client.processing()
+            worker = max(busy, key=lambda w: len(busy[w]))
+            if not busy[worker]:
+                return
+            nanny = next(n for n in local.workers.values() if n.worker_address == worker)
+            os.kill(nanny.process.process.pid, signal.SIGKILL)  # the nanny starts a new worker
+            killed.append(worker)
+
+        remote = run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False,
+                                 site_progress=kill_the_busiest_worker)
+    assert killed, "no worker had a site left to lose when the first site came back"
+    _assert_same_files(fleet_local, remote)
+
+
+def test_sites_on_the_cluster_at_once_are_bounded(fleet, fleet_local, cluster, monkeypatch):
+    """With one site per worker thread in flight (2 threads), the scheduler never holds more than two
+    sites' tasks besides the one just come back."""
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine, "IN_FLIGHT_PER_THREAD", 1)
+    seen: list[int] = []
+    with distributed.Client(cluster.scheduler_address) as client:
+        def count(site, n, total):
+            seen.append(client.run_on_scheduler(
+                lambda dask_scheduler: sum(str(k).startswith("drivecase-site-physics") for k in dask_scheduler.tasks)))
+
+        remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False,
+                                 site_progress=count)
+    _assert_same_files(fleet_local, remote)
+    assert len(seen) == len(site_partition(fleet)) and max(seen) <= 2 + 1, seen
