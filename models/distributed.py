@@ -20,6 +20,7 @@ import logging
 from typing import Callable
 
 from models import finance
+from models.estimate import BOOK_BYTES_PER_ASSET_STEP
 from models.memory import retained_memory
 from models.operation import case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
@@ -28,11 +29,13 @@ from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioR
 LOCAL_WORKERS = 2
 
 
-def _site_task(*args):
+def _site_task(sub_case, index, cost: float, chunk_assets, today_only: bool, with_books: bool):
     """One site's physics on a worker (:func:`models.scenario.site_physics`), its freed memory kept for reuse
-    while it runs (:func:`models.memory.retained_memory`)."""
+    while it runs (:func:`models.memory.retained_memory`): (op, part, its blocks' curve books or None)."""
+    books = [] if with_books else None
     with retained_memory():
-        return site_physics(*args)
+        op, part = site_physics(sub_case, index, cost, chunk_assets, None, today_only, books=books)
+    return op, part, books
 
 
 #: Site tasks kept on the cluster per worker thread: one running and one whose data is already there, so a
@@ -52,8 +55,12 @@ def _least_busy_worker(client) -> str | None:
     return min(threads, key=lambda w: (len(busy.get(w, ())) / max(threads[w], 1), w))
 
 
-def _site_results(client, case, partition, index, cost: float, chunk_assets, today_only: bool):
-    """Run each site's task and yield (site_id, op, part, number done) as the sites come back.
+def _site_results(client, case, partition, index, cost: float, chunk_assets, today_only: bool,
+                  books_wanted: Callable[[str, int], bool] = lambda _site, _n: False):
+    """Run each site's task and yield (site_id, op, part, books, number done) as the sites come back.
+
+    ``books_wanted(site_id, n_assets)`` says, as a site is sent, whether its curve books are to come back
+    with it (else its books are None).
 
     Each site's sub-case goes straight from the caller to the worker that will run it
     (``Client.scatter(direct=True)``), not through the scheduler inside the task: a site's profiles are
@@ -77,14 +84,13 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         attempts[site_id] = attempts.get(site_id, 0) + 1
         sub_case = site_case(case, site_id)
         key = f"drivecase-site-physics-{k}-{attempts[site_id]}"
+        args = (index, cost, chunk_assets, today_only, books_wanted(site_id, len(sub_case.assets)))
         worker = _least_busy_worker(client)
         if worker is None:  # no worker yet: the scheduler holds the task and its data until one joins
-            future = client.submit(_site_task, sub_case, index, cost, chunk_assets, None, today_only, key=key,
-                                   pure=False)
+            future = client.submit(_site_task, sub_case, *args, key=key, pure=False)
         else:
             data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
-            future = client.submit(_site_task, data, index, cost, chunk_assets, None, today_only, key=key,
-                                   pure=False, workers=[worker])
+            future = client.submit(_site_task, data, *args, key=key, pure=False, workers=[worker])
         launched[future] = (k, site_id)
         return future
 
@@ -94,15 +100,15 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     for future in running:
         k, site_id = launched.pop(future)
         try:
-            op, part = future.result()
+            op, part, books = future.result()
         except (KilledWorker, CancelledError):
             if attempts[site_id] >= SITE_ATTEMPTS:
                 raise
             waiting.appendleft((k, site_id))
         else:
             done += 1
-            yield site_id, op, part, done
-            del op, part
+            yield site_id, op, part, books, done
+            del op, part, books
         finally:
             future.release()
         while waiting and len(launched) < window:
@@ -169,14 +175,31 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
     index = case_index(case)
     merger = PhysicsMerger(case, index, cost, chunk_assets, dense)
     today_only = not merger.ops.dense
+    recompute = merger.ops.recompute
+    n_steps = len(index)
+    books_asked = {}  # site -> bytes of books foreseen for it, while they are on their way
+
+    def books_wanted(site_id: str, n_assets: int) -> bool:
+        """Whether a site's curve books, as foreseen, fit the budget beside those kept and on their way."""
+        if recompute is None:
+            return False
+        foreseen = int(BOOK_BYTES_PER_ASSET_STEP * n_assets * n_steps)
+        if recompute.books_bytes + sum(books_asked.values()) + foreseen > recompute.books_budget:
+            return False
+        books_asked[site_id] = foreseen
+        return True
+
     client, cluster = _client(scheduler, n_workers, processes)
     try:
-        results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only)
-        for site_id, op, part, done in results:
+        results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted)
+        for site_id, op, part, books, done in results:
             if done == 1:
                 step("site bills")
             merger.add(site_id, op, part)
-            del op, part
+            books_asked.pop(site_id, None)
+            for rows, arrays in books or ():  # read again by the plan, not recomputed (as the local engine)
+                recompute.keep_arrays(site_id, rows, arrays)
+            del op, part, books
             if site_progress is not None:
                 site_progress(site_id, done, len(merger.partition))
     finally:

@@ -112,7 +112,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
     it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
-    a local run keeps above the dense budget (:data:`BOOK_BYTES_PER_ASSET_STEP`, at most
+    a run keeps above the dense budget (:data:`BOOK_BYTES_PER_ASSET_STEP`, at most
     :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`) + the larger of
     the physics (per thread: the largest site's today's power, one block's per-option arrays and
     temporaries) and the economics (one site's meter arrays and the per-asset-option tables).
@@ -141,10 +141,11 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
     physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
                               + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
-    # above the dense budget the local engine keeps the sites' curve books (the plan reads its rows through
-    # them) as far as their budget allows; rows of the sites beyond it are recomputed and kept while the plan's
-    # reactive check and its bills read them (at most one row per asset, within KEPT_ROWS_BUDGET_BYTES)
-    want_books = 0 if dense or workers > 1 else BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
+    # above the dense budget the run keeps the sites' curve books (the plan reads its rows through them; the
+    # Dask workers send theirs back) as far as their budget allows; rows of the sites beyond it are recomputed
+    # and kept while the plan's reactive check and its bills read them (at most one row per asset, within
+    # KEPT_ROWS_BUDGET_BYTES)
+    want_books = 0 if dense else BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
     books = min(want_books, KEPT_BOOKS_BUDGET_BYTES)
     unbooked = 1.0 - (books / want_books if want_books else 0.0)
     kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)

@@ -1667,7 +1667,11 @@ class _SiteRecompute:
         kept stay within :attr:`books_budget`; a site whose blocks' books are all kept is read through
         them, and a block that does not fit lets go of its site's books kept before it. Returns whether it
         was kept."""
-        arrays = book.arrays()
+        return self.keep_arrays(site_id, rows, book.arrays())
+
+    def keep_arrays(self, site_id: str, rows: np.ndarray, arrays: tuple) -> bool:
+        """:meth:`keep_book` of a book already turned into its arrays (``CurveBook.arrays``), e.g. one sent
+        back by a worker of the Dask engine."""
         size = sum(int(a.nbytes) for a in arrays)
         k = self.site_number[str(site_id)]
         with self._kept_lock:
@@ -1681,6 +1685,11 @@ class _SiteRecompute:
             self._books_bytes += size
             self._books.setdefault(k, []).append((np.asarray(rows, dtype=np.intp), arrays))
         return True
+
+    @property
+    def books_bytes(self) -> int:
+        """Bytes of the curve books kept now [B]."""
+        return self._books_bytes
 
     def _booked(self, k: int) -> list | None:
         """Site k's kept books when they cover every asset of the site, else None."""

@@ -159,7 +159,7 @@ class ScenarioResult:
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
                  timer: dict | None = None, today_only: bool = False,
-                 into: tuple | None = None, buffers=None) -> tuple[OperatingResult | None, dict]:
+                 into: tuple | None = None, buffers=None, books: list | None = None) -> tuple[OperatingResult | None, dict]:
     """Machines and bill savings of a one-site case (:func:`models.operation.site_case`).
 
     Parameters
@@ -182,6 +182,9 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
         the fleet's arrays (no site-sized copy in between) and the operating result returned is None.
     buffers : models.operation._BlockBuffers, optional
         Block memory to reuse (e.g. from the previous site of the same thread); default fresh.
+    books : list, optional
+        Each block's curve book is appended to it as (site-local rows, ``CurveBook.arrays()``), for a
+        caller that keeps them elsewhere (:meth:`models.operation._SiteRecompute.keep_arrays`).
 
     Returns
     -------
@@ -206,6 +209,8 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
         merger.add(rows if positions is None else positions[rows], block)
         if merger.recompute is not None and block.curves is not None:  # read again by the plan, not recomputed
             merger.recompute.keep_book(site_id, rows, block.curves)
+        if books is not None and block.curves is not None:
+            books.append((np.asarray(rows, dtype=np.intp), block.curves.arrays()))
         del block
         t0 = time.perf_counter()
         t_bills += t0 - t1

@@ -131,3 +131,23 @@ def test_sites_on_the_cluster_at_once_are_bounded(fleet, fleet_local, cluster, m
                                  site_progress=count)
     _assert_same_files(fleet_local, remote)
     assert len(seen) == len(site_partition(fleet)) and max(seen) <= 2 + 1, seen
+
+
+def test_workers_send_their_curve_books_back_within_the_budget(fleet, fleet_local, cluster, monkeypatch):
+    """Above the dense budget the workers send each site's curve books back with its results (the plan then
+    reads its rows through them, as with the local engine); with no room for books, none comes back and
+    the rows are recomputed. The result files are the local engine's either way."""
+    from models import operation
+
+    remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False, dense=False)
+    recompute = remote.physics.operation.p_kw._recompute
+    n_sites = len(site_partition(fleet))
+    assert all(recompute._booked(k) is not None for k in range(n_sites))
+    assert recompute.books_bytes > 0
+    _assert_same_files(fleet_local, remote)
+
+    monkeypatch.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", 0)
+    bare = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False, dense=False)
+    recompute = bare.physics.operation.p_kw._recompute
+    assert recompute.books_bytes == 0 and all(recompute._booked(k) is None for k in range(n_sites))
+    _assert_same_files(fleet_local, bare)
