@@ -17,6 +17,9 @@ SESSION_STORE = "app-session"
 EDITS_STORE = "app-edits"
 #: Location used by callbacks to navigate (e.g. from the fleet table to one asset).
 LOCATION = "app-location"
+#: The tab's last refused upload: {"message": str, "problems": [rows]}, or None once an upload is accepted.
+#: Session storage, so the refusal is shown again when the tab comes back to the Case & assumptions page.
+UPLOAD_STORE = "app-upload"
 
 #: Cautions shown in the footer of every page.
 CAUTIONS: tuple[str, ...] = (
@@ -85,6 +88,29 @@ def page_header(title: str, intro: str) -> html.Div:
 def notice(component_id: str) -> html.Div:
     """A place for messages (fallbacks, refused edits); empty until a callback fills it."""
     return html.Div(id=component_id, className="notice", role="status")
+
+
+def message_class(ok: bool) -> str:
+    """Class of a status line for what became of an action (an upload, a save).
+
+    Parameters
+    ----------
+    ok : bool
+        True when the action was carried out, False when it was refused.
+
+    Returns
+    -------
+    str
+        ``"form-message accepted"`` (accent colours) or ``"form-message refused"`` (warning colours and,
+        for a refusal alone, a bar at its left: see ``assets/style.css``).
+
+    Notes
+    -----
+    The look only repeats what the words say: every status line says what happened ("Loaded", "Saved",
+    "Not saved", "... the previous case stays loaded"), and a refusal is marked by a bar as well as by
+    colour, so nothing rests on colour alone.
+    """
+    return "form-message accepted" if ok else "form-message refused"
 
 
 def card(label: str, value_id: str, note_id: str | None = None) -> html.Div:

@@ -180,6 +180,49 @@ def case_problem_rows(view_: "View") -> list[dict]:
     return _problem_rows(list(view_.entry.case.problems or ()))
 
 
+#: Most problem rows of a refused upload a tab keeps in its session storage (a few hundred kB at most: the
+#: browser allows a few MB per site, and a store written past that fails).
+KEPT_PROBLEM_ROWS = 1000
+
+
+def refusal_to_keep(outcome: UploadOutcome, max_rows: int = KEPT_PROBLEM_ROWS) -> dict | None:
+    """What a tab keeps of an upload to show again when its page opens: the refusal, or nothing.
+
+    Parameters
+    ----------
+    outcome : UploadOutcome
+        What became of the upload.
+    max_rows : int
+        Most problem rows kept.
+
+    Returns
+    -------
+    dict or None
+        ``{"message": str, "problems": list of dict}`` for a refused upload: its message and its problem rows
+        as the upload listed them. Beyond ``max_rows`` rows the errors come first, the first ``max_rows`` are
+        kept and the message says so. None for an accepted upload, which clears what the tab kept.
+    """
+    if outcome.ok:
+        return None
+    rows, message = list(outcome.problems), outcome.message
+    if len(rows) > max_rows:
+        rows = sorted(rows, key=lambda row: row.get("severity") != "error")[:max_rows]  # stable: errors first
+        message += (f" Kept for this tab: the first {counted(max_rows, 'problem')} of {len(outcome.problems):,} "
+                    "(errors first); upload the files again to list them all.")
+    return {"message": message, "problems": rows}
+
+
+def kept_refusal(data: object) -> dict | None:
+    """The refused upload a tab keeps (see :func:`refusal_to_keep`), or None when it keeps none.
+
+    Session storage is the browser's: anything but a message and a list of rows is taken as nothing kept.
+    """
+    if (isinstance(data, dict) and isinstance(data.get("message"), str) and isinstance(data.get("problems"), list)
+            and all(isinstance(row, dict) for row in data["problems"])):
+        return data
+    return None
+
+
 def check_file_name(name: object) -> tuple[str | None, Problem | None]:
     """Return the safe base name of an uploaded file, or a problem saying why it is refused.
 

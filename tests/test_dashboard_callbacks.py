@@ -61,7 +61,8 @@ def test_upload_bad_keeps_case_and_lists_rows(engine):
     header, rows = demo_rows()
     rows[0][header.index("rated_p_kw")] = "-3"
     before = {"session": None, "case": None}
-    session, message, problems, contents = inputs.upload([data_url(csv_bytes(header, rows))], ["assets.csv"], ["keep"], before)
+    session, message, problems, contents, *_ = inputs.upload([data_url(csv_bytes(header, rows))], ["assets.csv"], ["keep"],
+                                                             before)
     assert session["case"] is None and "previous case stays loaded" in message
     assert any(p["row"] == 2 and p["column"] == "rated_p_kw" for p in problems)
     assert contents is None  # cleared, so the same file can be uploaded again
@@ -69,7 +70,7 @@ def test_upload_bad_keeps_case_and_lists_rows(engine):
 
 def test_upload_good_switches_the_tab(engine):
     header, rows = demo_rows()
-    session, message, problems, _ = inputs.upload([data_url(csv_bytes(header, rows[:3]))], ["assets.csv"], ["keep"], None)
+    session, message, problems, *_ = inputs.upload([data_url(csv_bytes(header, rows[:3]))], ["assets.csv"], ["keep"], None)
     assert session["case"] and session["case"] != engine.default_key and message.startswith("Loaded")
     assert "edits made before the upload no longer apply" in message
     assert len(services.view(session, None).case.assets) == 3
@@ -77,8 +78,43 @@ def test_upload_good_switches_the_tab(engine):
 
 def test_upload_of_another_kind_of_file_says_why(engine):
     # the upload field filters nothing in the browser: the server refuses a text file with a message
-    session, message, problems, _ = inputs.upload([data_url(b"notes")], ["notes.txt"], [], None)
+    session, message, problems, *_ = inputs.upload([data_url(b"notes")], ["notes.txt"], [], None)
     assert session["case"] is None and "refused" in message.lower() and problems
+
+
+def bad_and_good_assets() -> tuple[str, str]:
+    """Two uploads of assets.csv: the demo's seven small motors with the first rated -3 kW (refused: spreadsheet
+    row 2), and the three after it as they are (accepted)."""
+    header, rows = demo_rows()
+    good = data_url(csv_bytes(header, rows[1:4]))
+    rows[0][header.index("rated_p_kw")] = "-3"
+    return data_url(csv_bytes(header, rows)), good
+
+
+def test_a_refused_upload_looks_apart_from_an_accepted_one(engine):
+    # the status line's class: warning colours and a bar for a refusal, the accent for a load; the words lead with
+    # what happened either way, so the difference does not rest on colour alone
+    bad, good = bad_and_good_assets()
+    _, message, _, _, status_class, _ = inputs.upload([bad], ["assets.csv"], ["keep"], None)
+    assert status_class == "form-message refused" and message.endswith("the previous case stays loaded.")
+    _, message, _, _, status_class, _ = inputs.upload([good], ["assets.csv"], ["keep"], None)
+    assert status_class == "form-message accepted" and message.startswith("Loaded")
+
+
+def test_a_refused_upload_is_shown_again_when_the_page_opens(engine):
+    bad, good = bad_and_good_assets()
+    session, message, problems, _, _, kept = inputs.upload([bad], ["assets.csv"], ["keep"], None)
+    assert any(p["row"] == 2 and p["column"] == "rated_p_kw" for p in problems)
+    # back on the page in the same tab: the refusal and its rows as the upload showed them
+    assert inputs.listed(True, session, kept) == (problems, message, "form-message refused")
+    # an accepted upload clears it: the page then opens on the warnings of the tab's case, with no status
+    session, message, _, _, _, kept = inputs.upload([good], ["assets.csv"], ["keep"], session)
+    assert kept is None and message.startswith("Loaded")
+    rows, status, status_class = inputs.listed(True, session, kept)
+    assert status is no_update and status_class is no_update
+    assert not any(r["column"] == "rated_p_kw" for r in rows)
+    # what session storage holds is the browser's: anything else than a kept refusal is ignored
+    assert inputs.listed(True, session, {"message": 3, "problems": "x"})[1:] == (no_update, no_update)
 
 
 def test_assumption_form_and_edits(engine):
@@ -172,7 +208,8 @@ def test_case_warnings_are_listed_when_the_inputs_page_opens(engine, monkeypatch
     read_with = (warning("assets.csv", None, "static_head_frac", None, "static_head_frac is blank", "give it"),)
     monkeypatch.setattr(services, "view", lambda session, edits: SimpleNamespace(
         entry=SimpleNamespace(case=SimpleNamespace(problems=read_with))))
-    rows = inputs.listed(True, None)
+    rows, status, _ = inputs.listed(True, None, None)
+    assert status is no_update  # no upload kept for the tab: the status line stays as the page drew it
     assert len(rows) == 1 and rows[0]["rule"] == "static_head_frac is blank" and rows[0]["severity"] == "warning"
 
 

@@ -237,8 +237,8 @@ def form(discount=8.0, escalation=1.0, horizon=15, price=100.0, capital=100.0,
 
 class TestSaveCallback:
     def test_a_typed_value_not_yet_applied_is_saved(self, engine, case_dir):
-        assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 4  # the page mounting is no click
-        session_out, edits_out, status, download = inputs.save(1, *form(discount=6.0))
+        assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 5  # the page mounting is no click
+        session_out, edits_out, status, download, _ = inputs.save(1, *form(discount=6.0))
         assert status.startswith("Saved 1 value into finance.toml (discount_rate_frac 0.08 -> 0.06)")
         assert "previous version is kept as .versions/finance-" in status
         assert finance_line(case_dir / "finance.toml", "discount_rate_frac") == "discount_rate_frac = 0.06"
@@ -250,11 +250,21 @@ class TestSaveCallback:
         assert refused.startswith("Not saved: Year 1 is blank") and "applied" not in refused
         assert not (case_dir / ".versions").exists()
 
+    def test_a_refused_save_looks_apart_from_a_saved_one(self, engine, case_dir):
+        # warning colours and a bar for "Not saved", the accent for a save; the words say which either way
+        refused = inputs.save(1, *form(horizon=0))
+        assert refused[2].startswith("Not saved: ") and refused[4] == "form-message refused"
+        saved = inputs.save(1, *form(discount=6.0))
+        assert saved[2].startswith("Saved 1 value") and saved[4] == "form-message accepted"
+        (case_dir / "finance.toml").write_text("discount_rate_frac = 0.07\n", encoding="utf-8")  # another program
+        changed = inputs.save(1, *form(discount=5.0))  # refused by the service, not by the form
+        assert changed[2].startswith("Not saved: the case's files changed on disk") and changed[4] == "form-message refused"
+
     def test_upload_gets_a_new_session_key_and_a_download(self, engine):
         header, rows = demo_rows(SMALL_IDS[:2])
         up = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows))])
         session = {"session": up.session, "case": up.key}
-        session_out, edits_out, status, download = inputs.save(1, *form(horizon=9, session=session))
+        session_out, edits_out, status, download, _ = inputs.save(1, *form(horizon=9, session=session))
         assert session_out["case"] != up.key and engine.entry(session_out["case"]) is not None
         assert edits_out is None and "keep the download" in status
         assert download["filename"].endswith(".zip") and download["base64"]

@@ -329,6 +329,38 @@ class TestUpload:
         assert fallback.key == eng.default_key and "no longer held" in fallback.notice
 
 
+class TestKeptRefusal:
+    """What a tab keeps of its last upload (the Case & assumptions page shows it again when it opens)."""
+
+    @staticmethod
+    def rows(severities: str) -> list[dict]:
+        """Problem rows, one per letter: e an error, w a warning (row numbers 2, 3, ... as a spreadsheet counts)."""
+        return [{"severity": {"e": "error", "w": "warning"}[s], "file": "assets.csv", "row": 2 + i, "column": "x",
+                 "value": "1", "rule": "r", "hint": ""} for i, s in enumerate(severities)]
+
+    def test_a_refusal_is_kept_as_listed_and_an_accepted_upload_keeps_nothing(self):
+        refused = services.UploadOutcome(False, "s", None, "The upload was refused.", self.rows("we"))
+        assert services.refusal_to_keep(refused) == {"message": "The upload was refused.", "problems": self.rows("we")}
+        accepted = services.UploadOutcome(True, "s", "key", "Loaded 'x'.", self.rows("w"))
+        assert services.refusal_to_keep(accepted) is None
+
+    def test_beyond_the_limit_errors_come_first_and_the_message_says_so(self):
+        refused = services.UploadOutcome(False, "s", None, "2 errors in the upload.", self.rows("wwewe"))
+        kept = services.refusal_to_keep(refused, max_rows=3)
+        assert [(r["severity"], r["row"]) for r in kept["problems"]] == [("error", 4), ("error", 6), ("warning", 2)]
+        assert kept["message"] == ("2 errors in the upload. Kept for this tab: the first 3 problems of 5 (errors first); "
+                                   "upload the files again to list them all.")
+
+    @pytest.mark.parametrize("data", [None, "x", {}, {"message": 1, "problems": []}, {"message": "m", "problems": "p"},
+                                      {"message": "m", "problems": [1]}])
+    def test_anything_else_in_session_storage_is_nothing_kept(self, data):
+        assert services.kept_refusal(data) is None
+
+    def test_a_kept_refusal_reads_back(self):
+        kept = {"message": "m", "problems": self.rows("e")}
+        assert services.kept_refusal(kept) == kept
+
+
 # ---------------------------------------------------------------------------------------------------
 # Assumption edits
 # ---------------------------------------------------------------------------------------------------

@@ -94,13 +94,14 @@ dash.register_page(__name__, path="/inputs", name="Case & assumptions", title="C
 
 
 @callback(Output(ui.SESSION_STORE, "data"), Output(STATUS, "children"), Output(PROBLEMS, "rowData"),
-          Output(UPLOAD, "contents"),
+          Output(UPLOAD, "contents"), Output(STATUS, "className"), Output(ui.UPLOAD_STORE, "data"),
           Input(UPLOAD, "contents"), State(UPLOAD, "filename"), State(KEEP_FILES, "value"), State(ui.SESSION_STORE, "data"),
           prevent_initial_call=True)
 def upload(contents, names, keep, session):
-    """Check and load an upload; a bad one leaves the tab's case as it was."""
+    """Check and load an upload; a bad one leaves the tab's case as it was and is kept for the tab (the page
+    shows it again when it opens, until the next upload)."""
     if not contents:
-        return no_update, no_update, no_update, no_update
+        return (no_update,) * 6
     session = session if isinstance(session, dict) else {}
     outcome = services.engine().accept_upload(session.get("session"), session.get("case"), names, contents,
                                               keep_other_files="keep" in (keep or []))
@@ -108,14 +109,21 @@ def upload(contents, names, keep, session):
     message = outcome.message
     if outcome.ok:
         message += " The assumptions below are now the uploaded case's own; edits made before the upload no longer apply."
-    return new_session, message, outcome.problems, None
+    return (new_session, message, outcome.problems, None, ui.message_class(outcome.ok),
+            services.refusal_to_keep(outcome))
 
 
-@callback(Output(PROBLEMS, "rowData", allow_duplicate=True), Input(READY, "data"), State(ui.SESSION_STORE, "data"),
+@callback(Output(PROBLEMS, "rowData", allow_duplicate=True), Output(STATUS, "children", allow_duplicate=True),
+          Output(STATUS, "className", allow_duplicate=True),
+          Input(READY, "data"), State(ui.SESSION_STORE, "data"), State(ui.UPLOAD_STORE, "data"),
           prevent_initial_call="initial_duplicate")
-def listed(_ready, session):
-    """The warnings the tab's case was read with, when the page opens (an upload lists its own)."""
-    return services.case_problem_rows(services.view(session, None))
+def listed(_ready, session, kept):
+    """What the page lists when it opens: the tab's last upload while it is a kept refusal (its message and
+    rows), else the warnings the tab's case was read with and the status line as drawn."""
+    refusal = services.kept_refusal(kept)
+    if refusal is not None:
+        return refusal["problems"], refusal["message"], ui.message_class(False)
+    return services.case_problem_rows(services.view(session, None)), no_update, no_update
 
 
 @callback(Output(TEMPLATE, "data"), Input(TEMPLATE_BUTTON, "n_clicks"), prevent_initial_call=True)
@@ -202,19 +210,19 @@ SAVE_FORM = [State(DISCOUNT, "value"), State(ESCALATION, "value"), State(HORIZON
 
 
 @callback(Output(ui.SESSION_STORE, "data", allow_duplicate=True), Output(ui.EDITS_STORE, "data", allow_duplicate=True),
-          Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"),
+          Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"), Output(SAVE_STATUS, "className"),
           Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, prevent_initial_call=True)
 def save(clicks, *form):
     """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept."""
     if not clicks:  # the page opening is not a click (the renderer can fire this once as the page mounts)
-        return no_update, no_update, no_update, no_update
+        return (no_update,) * 5
     edits, changed, problem = _parse_form(*form)
     if problem:
         # nothing is saved while a field is refused (the save writes the whole form)
         refused = problem.removeprefix("Not applied: ").removesuffix(" The other values are applied.")
-        return no_update, no_update, "Not saved: " + refused, no_update
+        return no_update, no_update, "Not saved: " + refused, no_update, ui.message_class(False)
     outcome = services.save_tab_assumptions(form[-1], edits if changed else form[-2])
     download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
                 else no_update)
     return (outcome.session if outcome.session is not None else no_update, None if outcome.ok else no_update,
-            outcome.message, download)
+            outcome.message, download, ui.message_class(outcome.ok))
