@@ -65,6 +65,14 @@ BOOK_BYTES_PER_ASSET_STEP = 2.06 * 2**30 / (10_000 * 8760)
 #: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
 #: each other thousands of times per site, docs/performance.md).
 THREAD_GAIN = 0.45
+#: Cost of the physics on a Dask worker, as a multiple of one local thread's [-]: a local cluster of two
+#: workers ran the 10,000-asset fleet's physics in 33.6 and 37.4 s against 18.6 and 21.7 s for the local
+#: engine's two threads, run in turn on the same machine in the same hour (benchmarks/bench_fleet.py, evening
+#: of 2026-12-02: the workers share the 2 cores with the process that sends the sites and gathers them, and
+#: each site's inputs, results and curve books travel between processes). Two workers: 35.5 / 20.15 = 1.76
+#: times the two threads' time, that is 1.76 x 2 / (1 + THREAD_GAIN) = 2.43 times one thread's per worker.
+#: Workers on machines of their own should do better; the estimate keeps the figure measured.
+DASK_WORKER_COST = 1.76 * 2 / (1 + THREAD_GAIN)
 
 
 @dataclass(frozen=True)
@@ -74,7 +82,7 @@ class Estimate:
     Attributes
     ----------
     seconds : float
-        Wall time of ``drivecase run`` with the local engine [s].
+        Wall time of ``drivecase run`` with the engine asked for [s].
     peak_bytes : int
         Peak resident memory [bytes].
     note : str
@@ -107,8 +115,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     Notes
     -----
     t = t_fixed + n_a n_o n_t (c_machines + c_bills) / s + n_a (c_load + c_economics)
-    + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) on Dask and 1 + g (k - 1) for k
-    local site threads (g = :data:`THREAD_GAIN`), and the constants of this module (measured by
+    + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) / d on Dask (d =
+    :data:`DASK_WORKER_COST`) and 1 + g (k - 1) for k local site threads (g = :data:`THREAD_GAIN`), and
+    the constants of this module (measured by
     ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
     it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
@@ -126,7 +135,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     largest = max((len(rows) for _, rows in sites), default=0)
     elements = n_a * n_o * n_t
     if workers > 1:
-        parallel, at_once = float(min(int(workers), max(len(sites), 1))), 1
+        parallel, at_once = float(min(int(workers), max(len(sites), 1))) / DASK_WORKER_COST, 1
     else:
         at_once = max(1, min(int(threads or PHYSICS_THREADS), max(len(sites), 1)))
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
