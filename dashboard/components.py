@@ -236,6 +236,5 @@ def data_grid(component_id: str, height: int = 420, empty_text: str = "Nothing t
 def problem_columns() -> list[dict]:
     """Columns of the validation-message grid: file, row, column, value, rule, hint."""
     return [text_col("severity", "Severity", maxWidth=110), text_col("file", "File"),
-            number_col("row", "Row", maxWidth=90), text_col("column", "Column"), text_col("value", "Value"),
-            text_col("rule", "Rule", flex=2, wrapText=True, autoHeight=True),
-            text_col("hint", "Hint", flex=2, wrapText=True, autoHeight=True)]
+            number_col("row", "Row", maxWidth=90), text_col("column", "Column"), long_text_col("value", "Value"),
+            long_text_col("rule", "Rule", flex=2), long_text_col("hint", "Hint", flex=2)]

@@ -116,3 +116,13 @@ class TestGridColumns:
         cols = {c["field"]: c for c in fleet.table_columns("EUR", "kW")}
         for field in ("plan_option", "best_option"):
             assert cols[field]["tooltipField"] == field and cols[field]["wrapText"] and cols[field]["autoHeight"]
+
+    def test_validation_messages_can_be_read_whole(self):
+        from dashboard import components
+
+        cols = {c["field"]: c for c in components.problem_columns()}
+        # the value refused, the rule and the hint wrap at the text's own line height, the whole text in a tooltip
+        for field in ("value", "rule", "hint"):
+            c = cols[field]
+            assert c["tooltipField"] == field and c["wrapText"] and c["autoHeight"]
+            assert c["cellStyle"]["lineHeight"] == "1.4"

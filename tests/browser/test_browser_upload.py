@@ -13,6 +13,7 @@ import re
 import pytest
 from playwright.sync_api import expect
 
+from browser.test_browser_asset import CUT_OFF
 from browser.test_browser_dashboard import PAGES, SMALL_IDS, assets_csv, upload
 
 pytestmark = pytest.mark.browser
@@ -36,6 +37,10 @@ def test_a_refused_upload_stays_listed_after_a_visit_to_another_page(tab, artifa
                             "return [s.backgroundColor, s.borderLeftColor, s.borderLeftWidth]; }")
     assert looks == [WARN_SOFT_RGB, WARN_RGB, "4px"]
     message = status.inner_text()
+    # the value refused, the rule and the hint are read whole (wrapped, not cut)
+    for column in ("value", "rule", "hint"):
+        cells = page.locator(f"#inputs-problems .ag-row [col-id='{column}']")
+        assert cells.count() > 0 and cells.evaluate_all(CUT_OFF) == [], column
 
     # another page of the dashboard, then back in the same tab: the refusal and its rows are still there
     page.click("a.nav-link[href='/']")
