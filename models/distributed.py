@@ -68,7 +68,8 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     :data:`IN_FLIGHT_PER_THREAD` sites per worker thread are on the cluster at once, so the memory they
     take is bounded whatever the fleet's size; the next site goes to the least busy worker as one
     comes back. A site whose worker was lost (its data with it) is sent again, up to
-    :data:`SITE_ATTEMPTS` times; an error raised by the analysis itself reaches the caller unchanged.
+    :data:`SITE_ATTEMPTS` times, and so is a site whose worker left as it was being sent (to the next
+    least busy one); an error raised by the analysis itself reaches the caller unchanged.
     """
     from collections import deque
     from concurrent.futures import CancelledError
@@ -85,12 +86,20 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         sub_case = site_case(case, site_id)
         key = f"drivecase-site-physics-{k}-{attempts[site_id]}"
         args = (index, cost, chunk_assets, today_only, books_wanted(site_id, len(sub_case.assets)))
-        worker = _least_busy_worker(client)
-        if worker is None:  # no worker yet: the scheduler holds the task and its data until one joins
-            future = client.submit(_site_task, sub_case, *args, key=key, pure=False)
-        else:
-            data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
+        future = None
+        for tries_left in range(SITE_ATTEMPTS - 1, -1, -1):
+            worker = _least_busy_worker(client)
+            if worker is None:  # no worker yet: the scheduler holds the task and its data until one joins
+                future = client.submit(_site_task, sub_case, *args, key=key, pure=False)
+                break
+            try:
+                data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
+            except OSError:  # the worker left between the choice and the sending (CommClosedError is one)
+                if not tries_left:
+                    raise
+                continue
             future = client.submit(_site_task, data, *args, key=key, pure=False, workers=[worker])
+            break
         launched[future] = (k, site_id)
         return future
 

@@ -151,3 +151,23 @@ def test_workers_send_their_curve_books_back_within_the_budget(fleet, fleet_loca
     recompute = bare.physics.operation.p_kw._recompute
     assert recompute.books_bytes == 0 and all(recompute._booked(k) is None for k in range(n_sites))
     _assert_same_files(fleet_local, bare)
+
+
+def test_a_worker_gone_while_a_site_is_sent_to_it_is_passed_over(fleet, fleet_local, cluster, monkeypatch):
+    """Sending a site to a worker that has just left fails with a closed connection: the site goes to the
+    next least busy worker instead, and the run gives the local engine's files."""
+    from distributed.comm.core import CommClosedError
+
+    real = distributed.Client.scatter
+    failures = []
+
+    def scatter_failing_once(self, *args, **kwargs):
+        if not failures:
+            failures.append(kwargs.get("workers"))
+            raise CommClosedError("the worker left")
+        return real(self, *args, **kwargs)
+
+    monkeypatch.setattr(distributed.Client, "scatter", scatter_failing_once)
+    remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+    assert len(failures) == 1
+    _assert_same_files(fleet_local, remote)
