@@ -520,9 +520,10 @@ class Engine:
             return UploadOutcome(False, session, None, message, _problem_rows(problems))
 
         if not names or len(names) != len(contents):
-            return refuse("Nothing was uploaded.", [])
+            return refuse("Nothing was uploaded; the previous case stays loaded.", [])
         if len(names) > MAX_UPLOAD_FILES:
-            return refuse(f"Too many files ({len(names)}); at most {MAX_UPLOAD_FILES} per upload.", [])
+            return refuse(f"Too many files ({len(names)}); at most {MAX_UPLOAD_FILES} per upload. Nothing was read; "
+                          "the previous case stays loaded.", [])
         total = sum(encoded_size_bytes(c) for c in contents)
         if total > MAX_UPLOAD_BYTES:
             return refuse(f"The upload is {total / MB:.1f} MB, above the {MAX_UPLOAD_BYTES / MB:.0f} MB limit; "

@@ -122,13 +122,14 @@ def test_assumption_form_and_edits(engine):
     # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr; no price-level keys, so the tariffs and catalogue as written (100 %)
     assert values[:5] == (8.0, 1.0, 15, 100.0, 100.0)
     assert list(values[5:]) == ["250000", "250000", "150000", None, None, None]
-    stored, message = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
-    assert stored["discount_rate_pct"] == 6.0 and message == ""
-    unchanged, _ = inputs.edit(8.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    stored, message, look = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    assert stored["discount_rate_pct"] == 6.0 and message == "" and look == "form-message"
+    unchanged, _, _ = inputs.edit(8.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert unchanged is no_update  # the form only repeats the assumptions in force
-    refused, message = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    refused, message, look = inputs.edit(8.0, 1.0, 0, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert refused is no_update and "horizon" in message.lower()
-    refused, message = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    assert look == "form-message refused"  # set apart from a caution or nothing (components.message_class)
+    refused, message, look = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert refused is no_update and "Electricity price level: must lie between 1 and" in message
     assert inputs.reset(1, None) == values
 
@@ -137,18 +138,18 @@ def test_one_refused_field_does_not_hold_back_the_others(engine):
     # a blank budget year 1 before a filled year 2, a horizon of 2.5 years and a discount rate of 0 %: the rate
     # applies; the horizon and the budget are refused, each named, and keep the values in force (the demo's
     # finance.toml: horizon 15 years, budgets 250000, 250000, 150000)
-    stored, message = inputs.edit(0.0, 1.0, 2.5, 100.0, 100.0, 250000.0, None, 150000.0, None, None, None, None, None)
+    stored, message, look = inputs.edit(0.0, 1.0, 2.5, 100.0, 100.0, 250000.0, None, 150000.0, None, None, None, None, None)
     assert stored["discount_rate_pct"] == 0.0
     assert "horizon_yr" not in stored and "budget_per_yr" not in stored
     assert message.startswith("Not applied: Year 1 is blank") and "Horizon: must be a whole number" in message
-    assert message.endswith("The other values are applied.")
+    assert message.endswith("The other values are applied.") and look == "form-message refused"
     view = services.view(None, stored)
     assert view.assumptions.discount_rate_frac == 0.0 and view.assumptions.horizon_yr == 15
     assert view.assumptions.budget_per_yr == (250000.0, 250000.0, 150000.0)
 
 
 def test_price_levels_reach_the_economics(engine):
-    dear, message = inputs.edit(8.0, 1.0, 15, 120.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
+    dear, message, look = inputs.edit(8.0, 1.0, 15, 120.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert message == "" and dear["energy_price_level_pct"] == 120.0
     base = services.view(None, None).result().results
     scaled = services.view(None, dear).result().results
@@ -158,14 +159,14 @@ def test_price_levels_reach_the_economics(engine):
 
 
 def test_plan_budget_edit(engine):
-    stored, message = plan.edit(100.0, None, 5.0, None, None, None, None, None)
-    assert stored is no_update and "Year 1 is blank" in message
-    stored, message = plan.edit(-1.0, None, None, None, None, None, None, None)
+    stored, message, look = plan.edit(100.0, None, 5.0, None, None, None, None, None)
+    assert stored is no_update and "Year 1 is blank" in message and look == "form-message refused"
+    stored, message, look = plan.edit(-1.0, None, None, None, None, None, None, None)
     assert stored is no_update and "zero or more" in message
-    stored, message = plan.edit(30000.0, 10000.0, None, None, None, None, None, None)
-    assert stored["budget_per_yr"] == [30000.0, 10000.0] and message == ""
+    stored, message, look = plan.edit(30000.0, 10000.0, None, None, None, None, None, None)
+    assert stored["budget_per_yr"] == [30000.0, 10000.0] and message == "" and look == "form-message"
     assert plan.fill(True, None, stored)[:3] == ["30000", "10000", None]
-    stored, _ = plan.edit("30,000", " 10 000 ", "", None, None, None, None, None)  # as typed in the text fields
+    stored, _, _ = plan.edit("30,000", " 10 000 ", "", None, None, None, None, None)  # as typed in the text fields
     assert stored["budget_per_yr"] == [30000.0, 10000.0]
 
 
@@ -324,3 +325,19 @@ def test_the_site_page_keeps_the_site_on_screen_else_the_addressed_one(engine):
     assert site.choose(True, None, "NO-SUCH", None)[1] == "HRW"  # an address naming no site of the case
     assert site.address("KGQ") == "?site=KGQ" and site.address("A B/1") == "?site=A%20B%2F1"
     assert site.address(None) is no_update
+
+
+def test_the_pack_status_says_and_shows_whether_it_was_written(engine, monkeypatch):
+    # the pack itself is tested in tests/test_pack_*.py; here only what the status line says and how it looks
+    monkeypatch.setattr(services, "pack_zip_bytes", lambda view_: b"PK")
+    sent, text, look = plan.pack(1, None, None)
+    assert sent["filename"] == "drivecase-capital-request-pack.zip" and text.startswith("Pack ready")
+    assert look == "form-message accepted"
+
+    def fails(view_):
+        raise ValueError("no plan to write")
+
+    monkeypatch.setattr(services, "pack_zip_bytes", fails)
+    sent, text, look = plan.pack(1, None, None)
+    assert sent is no_update and text == "The pack could not be written: no plan to write"
+    assert look == "form-message refused"

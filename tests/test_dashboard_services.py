@@ -235,6 +235,15 @@ class TestUpload:
         # the session still sees the case it had
         assert services.view({"session": outcome.session, "case": None}, None).key == engine.default_key
 
+    def test_every_refusal_says_the_previous_case_stays(self, engine):
+        # an empty upload and one of too many files are refused before anything is read; the words say so
+        empty = engine.accept_upload(None, None, [], [])
+        many = services.MAX_UPLOAD_FILES + 1
+        crowd = engine.accept_upload(None, None, [f"p{k}.csv" for k in range(many)], [data_url(b"a")] * many)
+        for outcome in (empty, crowd):
+            assert not outcome.ok and outcome.message.endswith("the previous case stays loaded.")
+        assert crowd.message.startswith(f"Too many files ({many})")
+
     def test_bad_upload_leaves_no_folder_behind(self, engine):
         header, rows = demo_rows()
         rows[0][header.index("poles")] = "five"

@@ -175,15 +175,17 @@ def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(FORM_MESSAGE, "children"),
-          Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"), Input(PRICE_LEVEL, "value"),
+          Output(FORM_MESSAGE, "className"), Input(DISCOUNT, "value"), Input(ESCALATION, "value"), Input(HORIZON, "value"), Input(PRICE_LEVEL, "value"),
           Input(CAPITAL_LEVEL, "value"), [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"),
           State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
 def edit(*form):
     """Check the form and store it as the tab's edits; only the economics re-run. An unusual but valid
     value (a negative discount rate) is applied with a caution."""
     new, changed, problem = _parse_form(*form)
-    # the valid values apply even when another field is refused; the message names each refused one
-    return (new if changed else no_update), problem or services.assumption_notes(new)
+    # the valid values apply even when another field is refused; the message names each refused one (set
+    # apart as a refusal); a caution on an unusual value keeps the plain look
+    return (new if changed else no_update), problem or services.assumption_notes(new), (
+        ui.message_class(False) if problem else "form-message")
 
 
 @callback(Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),

@@ -80,19 +80,21 @@ def fill(_ready, session, edits):
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(BUDGET_MESSAGE, "children"),
-          [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"),
+          Output(BUDGET_MESSAGE, "className"), [Input(i, "value") for i in BUDGET_IDS], State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"),
           prevent_initial_call=True)
 def edit(*args):
     """Check the budget and store it as the tab's edit (the economics re-run; the physics do not)."""
     values, (edits, session) = list(args[:len(BUDGET_IDS)]), args[len(BUDGET_IDS):]
     budget, problem = services.parse_budget(values)
     if problem:
-        return no_update, "Not applied: " + problem
+        return no_update, "Not applied: " + problem, ui.message_class(False)
     view = services.view(session, edits)
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, budget_per_yr=budget)
     if new is None:
-        return no_update, problem
-    return (new if services.edits_change(view, new) else no_update), problem
+        return no_update, problem, ui.message_class(False)
+    # the text names what was refused ("Not applied: ..."), or is empty
+    return ((new if services.edits_change(view, new) else no_update), problem,
+            ui.message_class(False) if problem else "form-message")
 
 
 def project_columns(currency: str) -> list[dict]:
@@ -141,7 +143,8 @@ def prove(clicks, session, edits):
     return clicks
 
 
-@callback(Output(PACK, "data"), Output(PACK_STATUS, "children"), Input(PACK_BUTTON, "n_clicks"),
+@callback(Output(PACK, "data"), Output(PACK_STATUS, "children"), Output(PACK_STATUS, "className"),
+          Input(PACK_BUTTON, "n_clicks"),
           State(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
 def pack(_clicks, session, edits):
     """Write the capital-request pack for the tab's case, plan and assumptions, and send it zipped."""
@@ -149,5 +152,6 @@ def pack(_clicks, session, edits):
     try:
         data = services.pack_zip_bytes(view_)
     except ValueError as exc:
-        return no_update, f"The pack could not be written: {exc}"
-    return dcc.send_bytes(data, "drivecase-capital-request-pack.zip"), "Pack ready: see your downloads."
+        return no_update, f"The pack could not be written: {exc}", ui.message_class(False)
+    return (dcc.send_bytes(data, "drivecase-capital-request-pack.zip"), "Pack ready: see your downloads.",
+            ui.message_class(True))
