@@ -718,7 +718,10 @@ def coupled_load_kw(params: InductionParams, ref_shaft_p_kw: np.ndarray, ref_spe
 
     :func:`models.loads.solve_speed_coupled_load` with ``speed_of_new`` the motors' own speed
     (:func:`induction_speed_rpm`), element by element: the same operations in the same order, so the
-    same values bit for bit, without a fleet-sized temporary per fixed-point pass.
+    same values bit for bit for cube and linear loads, without a fleet-sized temporary per fixed-point
+    pass. For other exponents the power is the C library's ``pow`` here and numpy's in the generic
+    solver, which on processors with AVX-512 differ by an ulp in some elements: the values then agree
+    within the fixed point's tolerance.
 
     Parameters
     ----------

@@ -560,8 +560,13 @@ class TestCompiledTorqueAndSpeed:
 
 
 class TestCoupledLoadCompiled:
-    """The compiled speed-coupled load of new induction motors gives the generic solver's values bit for
-    bit (the generic fixed point of models.loads is the rule; an invariant of our own design)."""
+    """The compiled speed-coupled load of new induction motors gives the generic solver's values (the
+    generic fixed point of models.loads is the rule; an invariant of our own design): bit for bit for cube
+    and linear loads (k = 3 taken as a product of three, k = 1 exact in both), within the solver's own
+    tolerance for other exponents. There the compiled pass raises to the power with the C library's pow
+    and numpy with its own; on processors with AVX-512 numpy's vectorised pow differs from the C
+    library's by an ulp in some elements, which can move the step at which an element meets the
+    tolerance."""
 
     @settings(max_examples=40, deadline=None)
     @given(st.integers(0, 2**32 - 1), st.integers(1, 5), st.integers(1, 40))
@@ -582,8 +587,25 @@ class TestCoupledLoadCompiled:
         p, speed = im.coupled_load_kw(motors, p_ref, n_ref, k)
         rule = solve_speed_coupled_load(p_ref, n_ref, lambda x: im._speed_rpm_unchecked(motors, x),
                                         np.broadcast_to(k, p_ref.shape))
-        assert_array_equal(p, rule.shaft_p_kw)
-        assert_array_equal(speed, rule.speed_rpm)
+        exact = np.isin(k[:, 0], (1.0, 3.0))
+        assert_array_equal(p[exact], rule.shaft_p_kw[exact])
+        assert_array_equal(speed[exact], rule.speed_rpm[exact])
+        # other exponents: the same missing values, and values within the fixed point's tolerance
+        # (1e-9 kW x max(1, P_ref), the solver's default); the speed follows the power (rtol 1e-12)
+        assert_array_equal(np.isnan(p), np.isnan(rule.shaft_p_kw))
+        ok = ~np.isnan(p)
+        bound = 1e-9 * np.maximum(1.0, np.abs(p_ref))
+        assert (np.abs(p - rule.shaft_p_kw)[ok] <= 2.0 * bound[ok]).all()
+        assert_allclose(speed[ok], rule.speed_rpm[ok], rtol=1e-12)
+
+    def test_pow_of_the_c_library_and_numpy_agree_to_an_ulp(self):
+        # why the test above allows the tolerance for k not 1 or 3: the two powers, element by element
+        import math
+
+        r = np.random.default_rng(7).uniform(0.9, 1.1, 10_000)
+        for k in (2.0, 2.5):
+            ours = np.array([math.pow(x, k) for x in r])
+            assert_allclose(np.power(r, np.full_like(r, k)), ours, rtol=2.3e-16, atol=0.0)
 
     def test_hand_calculation_of_one_pump(self):
         # the fixed point's own equation: a cube-law load of 30 kW at 1475 rpm on a new motor of 1485 rpm
