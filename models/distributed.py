@@ -44,6 +44,9 @@ IN_FLIGHT_PER_THREAD = 2
 #: Times a site is sent again after the worker holding it was lost (a worker's death, not an error of
 #: the analysis, which is raised at once).
 SITE_ATTEMPTS = 3
+#: Seconds a run on a given scheduler waits for its first worker before it gives up with a message: a
+#: cluster whose workers are still starting is waited for; one with none coming is not waited on forever.
+FIRST_WORKER_WAIT_S = 60.0
 
 
 def _least_busy_worker(client) -> str | None:
@@ -80,6 +83,13 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     waiting = deque(enumerate(site_id for site_id, _ in partition))
     attempts: dict[str, int] = {}
     launched: dict = {}
+    if waiting and not client.nthreads():
+        _wait_for_a_worker(client)
+
+    def window() -> int:
+        """Sites on the cluster at once: as many per worker thread as the cluster has now (workers may come
+        and go during a run)."""
+        return max(1, IN_FLIGHT_PER_THREAD * sum(client.nthreads().values()))
 
     def launch(k: int, site_id: str):
         attempts[site_id] = attempts.get(site_id, 0) + 1
@@ -103,8 +113,7 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         launched[future] = (k, site_id)
         return future
 
-    window = max(1, IN_FLIGHT_PER_THREAD * max(1, sum(client.nthreads().values())))
-    running = as_completed([launch(*waiting.popleft()) for _ in range(min(window, len(waiting)))])
+    running = as_completed([launch(*waiting.popleft()) for _ in range(min(window(), len(waiting)))])
     done = 0
     for future in running:
         k, site_id = launched.pop(future)
@@ -120,8 +129,25 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
             del op, part, books
         finally:
             future.release()
-        while waiting and len(launched) < window:
+        while waiting and len(launched) < window():
             running.add(launch(*waiting.popleft()))
+
+
+def _wait_for_a_worker(client) -> None:
+    """Wait up to :data:`FIRST_WORKER_WAIT_S` for the scheduler's first worker.
+
+    Raises
+    ------
+    TimeoutError
+        Naming the wait and how to start a worker, when none has joined by then.
+    """
+    try:
+        client.wait_for_workers(1, timeout=FIRST_WORKER_WAIT_S)
+    except TimeoutError:
+        address = getattr(client.scheduler, "address", None) or "ADDRESS"
+        raise TimeoutError(f"no worker joined the scheduler within {FIRST_WORKER_WAIT_S:g} s; start one on each "
+                           f"machine with `dask worker {address}` (with this package installed there) and run "
+                           f"again") from None
 
 
 def _client(scheduler: str | None, n_workers: int, processes: bool):

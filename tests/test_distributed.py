@@ -9,6 +9,7 @@ and one of 2 threads whose address is passed as a scheduler.
 from __future__ import annotations
 
 import logging
+import re
 import sys
 from dataclasses import replace
 from pathlib import Path
@@ -170,4 +171,49 @@ def test_a_worker_gone_while_a_site_is_sent_to_it_is_passed_over(fleet, fleet_lo
     monkeypatch.setattr(distributed.Client, "scatter", scatter_failing_once)
     remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
     assert len(failures) == 1
+    _assert_same_files(fleet_local, remote)
+
+
+def test_a_scheduler_without_workers_is_waited_for_then_named(fleet, monkeypatch):
+    """A scheduler with no worker: the run waits for one for FIRST_WORKER_WAIT_S, then stops with a
+    message saying how to start one (the command line prints it, exit code 1; nothing is written)."""
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine, "FIRST_WORKER_WAIT_S", 0.5)
+    with distributed.LocalCluster(n_workers=0, processes=False, dashboard_address=":0",
+                                  silence_logs=logging.ERROR) as empty:
+        with pytest.raises(TimeoutError, match=r"no worker joined the scheduler within 0.5 s; start one .*"
+                                               + re.escape(f"`dask worker {empty.scheduler_address}`")):
+            run_distributed(fleet, fleet.finance, scheduler=empty.scheduler_address, with_risk=False)
+
+
+def test_the_command_line_names_a_scheduler_without_workers(tmp_path, monkeypatch, capsys):
+    from drivecase import cli
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine, "FIRST_WORKER_WAIT_S", 0.5)
+    out = tmp_path / "out"
+    with distributed.LocalCluster(n_workers=0, processes=False, dashboard_address=":0",
+                                  silence_logs=logging.ERROR) as empty:
+        rc = cli.main(["run", str(REPO / "data" / "demo"), "--out", str(out), "--no-risk", "--quiet", "--engine", "dask",
+                       "--scheduler", empty.scheduler_address])
+    err = capsys.readouterr().err
+    assert rc == 1
+    assert f"could not work with the Dask scheduler at {empty.scheduler_address}: no worker joined" in err
+    assert "Traceback" not in err and not out.exists()
+
+
+def test_workers_that_join_after_the_start_take_the_sites(fleet, fleet_local):
+    """Workers joining a scheduler after the run has started are waited for, then given sites as they
+    come (the number of sites in flight follows the cluster's threads); the files are the local engine's."""
+    import threading
+
+    with distributed.LocalCluster(n_workers=0, threads_per_worker=1, processes=False, dashboard_address=":0",
+                                  silence_logs=logging.ERROR) as late:
+        timer = threading.Timer(1.0, late.scale, args=(2,))
+        timer.start()
+        try:
+            remote = run_distributed(fleet, fleet.finance, scheduler=late.scheduler_address, with_risk=False)
+        finally:
+            timer.join()
     _assert_same_files(fleet_local, remote)
