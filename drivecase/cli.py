@@ -110,9 +110,10 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
     """Why ``--out`` cannot take the results (a message for the user), or None when it can."""
     from pathlib import Path
 
-    if _writes_into_case(case_path, out):
-        return (f"drivecase {command}: --out is the case's own folder; give another folder (a case's files are "
-                "never written to)")
+    where = _writes_into_case(case_path, out)
+    if where:
+        return (f"drivecase {command}: --out {out} is {where}; give a folder outside it (a case's files are "
+                "never written to, and files written among them would be read as part of the case)")
     target = Path(out)
     if target.exists() and not target.is_dir():
         return f"drivecase {command}: --out {out} is a file, not a folder; give a folder to write the results into"
@@ -122,17 +123,26 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
     return None
 
 
-def _writes_into_case(case_path: str, out: str) -> bool:
-    """Whether an output folder is the case's own folder (or the folder of a case workbook)."""
+def _writes_into_case(case_path: str, out: str) -> str | None:
+    """Where an output folder falls in a case, in words ("the case's own folder", "inside the case's
+    folder"), or None when it is elsewhere; for a case workbook, its own folder counts as the case's."""
     from pathlib import Path
 
+    from models.io import WORKBOOK_SUFFIXES
+
     case_dir = Path(case_path)
-    if case_dir.suffix.lower() == ".xlsx":
+    workbook = case_dir.suffix.lower() in WORKBOOK_SUFFIXES
+    if workbook:
         case_dir = case_dir.parent
     try:
-        return Path(out).resolve() == case_dir.resolve()
+        target, root = Path(out).resolve(), case_dir.resolve()
     except OSError:
-        return False
+        return None
+    if target == root:
+        return "the folder of the case workbook" if workbook else "the case's own folder"
+    if not workbook and target.is_relative_to(root):
+        return "inside the case's folder"
+    return None
 
 
 def cmd_bill(args: argparse.Namespace) -> int:
@@ -221,6 +231,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     from models import scenario
     from models.exports import write_run
 
+    problem = _out_problem("run", args.case, args.out)
+    if problem:
+        print(problem, file=sys.stderr)
+        return 2
     case = _load_or_report(args.case)
     if case is None:
         return 1
@@ -233,16 +247,15 @@ def cmd_run(args: argparse.Namespace) -> int:
     if not (args.plan_gap >= 0 and args.plan_seconds > 0):
         print("drivecase run: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
         return 2
-    problem = _out_problem("run", args.case, args.out)
-    if problem:
-        print(problem, file=sys.stderr)
-        return 2
     if args.scheduler and args.engine != "dask":
         print("drivecase run: --scheduler is the address of a Dask scheduler; add --engine dask to use it",
               file=sys.stderr)
         return 2
     if args.engine == "dask":
-        try:
+        try:  # (models.distributed imports Dask only when a run starts: ask for it here)
+            import dask  # noqa: F401
+            import distributed  # noqa: F401
+
             from models.distributed import run_distributed
         except ImportError as exc:
             print(f"drivecase run: the Dask engine needs the 'scale' extra (pip install -e '.[scale]'): {exc}",
@@ -293,6 +306,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     written = write_run(result, args.out)
     _print_run_summary(case, result)
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
+    if args.no_risk:
+        print("(with --no-risk, risk.csv and tornado.csv hold their column headers only: no uncertainty was run)")
     print(f"\n{CAUTION}")
     return 0
 
@@ -350,13 +365,13 @@ def cmd_report(args: argparse.Namespace) -> int:
     from models import scenario
     from models.pack import write_pack
 
-    case = _load_or_report(args.case)
-    if case is None:
-        return 1
     problem = _out_problem("report", args.case, args.out)
     if problem:
         print(problem, file=sys.stderr)
         return 2
+    case = _load_or_report(args.case)
+    if case is None:
+        return 1
     assets = [a.strip() for a in args.assets.split(",") if a.strip()] if args.assets is not None else None
     if args.assets is not None and not assets:
         print("drivecase report: --assets names no asset; give comma-separated asset ids, or leave it out for the "

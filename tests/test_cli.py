@@ -230,8 +230,12 @@ def test_run_prints_the_case_warnings(tmp_path, capsys):
     finance = folder / "finance.toml"
     finance.write_text(finance.read_text(encoding="utf-8") + "horizon_years = 15\n", encoding="utf-8")
     assert main(["run", str(folder), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
-    err = capsys.readouterr().err
-    assert "1 warning;" in err and "horizon_years" in err
+    captured = capsys.readouterr()
+    assert "1 warning;" in captured.err and "horizon_years" in captured.err
+    # without the uncertainty, its two files are written with headers only, and the run says so
+    assert "with --no-risk, risk.csv and tornado.csv hold their column headers only" in captured.out
+    for name in ("risk.csv", "tornado.csv"):
+        assert len((tmp_path / "o" / name).read_text(encoding="utf-8").splitlines()) == 1
 
 
 def test_run_dask_without_its_package_gives_a_message(tmp_path, capsys, monkeypatch):
@@ -239,10 +243,56 @@ def test_run_dask_without_its_package_gives_a_message(tmp_path, capsys, monkeypa
 
     folder = tmp_path / "case"
     _one_asset_case(folder)
-    monkeypatch.setitem(sys.modules, "models.distributed", None)  # as if the 'scale' extra were not installed
+    monkeypatch.setitem(sys.modules, "distributed", None)  # as if the 'scale' extra were not installed
     assert main(["run", str(folder), "--out", str(tmp_path / "o"), "--no-risk", "--quiet", "--engine", "dask"]) == 1
     err = capsys.readouterr().err
-    assert "scale" in err and "Traceback" not in err
+    assert "the Dask engine needs the 'scale' extra (pip install -e '.[scale]')" in err and "Traceback" not in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_run_dask_without_its_package_in_a_fresh_interpreter(tmp_path):
+    """The same in a new interpreter where Dask cannot be imported at all (a meta-path hook refuses it, as
+    an installation without the 'scale' extra would): a message, exit code 1, no traceback."""
+    import subprocess
+
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    code = ("import sys\n"
+            "class NoDask:\n"
+            "    def find_spec(self, name, path=None, target=None):\n"
+            "        if name.split('.')[0] in ('dask', 'distributed'):\n"
+            "            raise ModuleNotFoundError(f'No module named {name!r}')\n"
+            "sys.meta_path.insert(0, NoDask())\n"
+            "from drivecase.cli import main\n"
+            f"sys.exit(main(['run', {str(folder)!r}, '--out', {str(tmp_path / 'o')!r}, '--no-risk', '--quiet', "
+            "'--engine', 'dask']))\n")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=REPO, timeout=300)
+    assert done.returncode == 1, done.stderr
+    assert "the Dask engine needs the 'scale' extra" in done.stderr and "Traceback" not in done.stderr
+    assert not (tmp_path / "o").exists()
+
+
+def test_out_inside_the_case_folder_is_refused(tmp_path, capsys):
+    """--out inside a case folder (results there would be read as part of the case next time) is refused
+    as the case folder itself is, for run and report; a workbook case's own folder is refused too, for
+    .xlsm as for .xlsx. Nothing is written (rule of this project: a case's files are never written to)."""
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    before = sorted(str(p.relative_to(case)) for p in case.rglob("*"))
+    for out in (case / "tariffs", case / "results", case / "tariffs" / ".." / "new"):
+        assert main(["run", str(case), "--out", str(out), "--quiet", "--no-risk"]) == 2
+        assert "is inside the case's folder; give a folder outside it" in capsys.readouterr().err
+        assert main(["report", str(case), "--out", str(out)]) == 2
+        assert "inside the case's folder" in capsys.readouterr().err
+    assert sorted(str(p.relative_to(case)) for p in case.rglob("*")) == before
+    book = tmp_path / "books" / "case.xlsm"
+    book.parent.mkdir()
+    book.write_bytes(b"")  # refused before it is read
+    assert main(["run", str(book), "--out", str(book.parent), "--quiet", "--no-risk"]) == 2
+    assert "is the folder of the case workbook" in capsys.readouterr().err
+    assert sorted(p.name for p in book.parent.iterdir()) == ["case.xlsm"]
 
 
 def test_new_workbook_in_a_folder_points_check_at_the_workbook(tmp_path, capsys):
