@@ -16,6 +16,7 @@ itself is computed in ``models.billing``.
 from __future__ import annotations
 
 import datetime as dt
+import difflib
 import functools
 import math
 import re
@@ -35,6 +36,7 @@ __all__ = [
     "FixedCharge",
     "HourWindow",
     "LeadingCharge",
+    "NEAR_MISS_CUTOFF",
     "PeriodRule",
     "PowerFactorAdjustment",
     "ReactiveCharge",
@@ -46,6 +48,7 @@ __all__ = [
     "assign_seasons",
     "check_tariff",
     "day_types",
+    "near_misses",
     "period_index",
     "tariff_from_dict",
 ]
@@ -827,12 +830,124 @@ _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_fa
 _TAX_KEYS = ("name", "rate_pct", "base")
 
 
+#: Similarity (difflib ratio, 0-1) from which an unknown key counts as a misspelling of an allowed key:
+#: ``taxs``/``taxes`` 0.89 and ``price_per_kw_mont``/``price_per_kw_month`` 0.97 are misspellings;
+#: ``notes_for_me``/``notes`` 0.59 and ``colour``/``currency`` 0.43 are not.
+NEAR_MISS_CUTOFF = 0.8
+#: Similarity from which an allowed key is named first in the hint of an unknown key that is no near miss.
+_CLOSEST_CUTOFF = 0.6
+#: Unit suffixes a key may be written without and still be a near miss (``window`` for ``window_min``).
+_UNIT_SUFFIXES = ("min", "pct", "frac", "months")
+
+
+def near_misses(key: str, allowed: tuple[str, ...]) -> list[str]:
+    """The allowed keys an unknown key is most likely a misspelling of (empty when it resembles none).
+
+    Parameters
+    ----------
+    key : str
+        A key of a tariff file that is not among ``allowed``.
+    allowed : tuple of str
+        The keys allowed at that place of the file.
+
+    Returns
+    -------
+    list of str
+        The allowed keys written the same but for letter case, ``_``/``-``/space, a plural ``s``/``es`` or a
+        unit suffix left off (``_min``, ``_pct``, ``_frac``, ``_months``); failing those, the allowed keys
+        within a difflib similarity ratio of :data:`NEAR_MISS_CUTOFF` of the key in small letters, closest
+        first.
+
+    Notes
+    -----
+    The rule is the project's case format (``docs/tariffs.md``, "Validation"): a near miss is an error,
+    since the table or value it holds would otherwise be dropped without a word; any other unknown key is
+    a warning. The ratio is :class:`difflib.SequenceMatcher`'s 2M/T (M matched characters, T characters
+    in both strings) [1]_.
+
+    References
+    ----------
+    .. [1] Python Software Foundation, "difflib - Helpers for computing deltas," *The Python Standard
+       Library*, Python 3.11. [Online]. Available: https://docs.python.org/3.11/library/difflib.html
+
+    Examples
+    --------
+    >>> near_misses("taxs", _TOP_KEYS), near_misses("Time-Zone", _TARIFF_KEYS), near_misses("window", _DEMAND_KEYS)
+    (['taxes'], ['time_zone'], ['window_min'])
+    >>> near_misses("notes_for_me", _TARIFF_KEYS), near_misses("price_per_kv_month", _DEMAND_KEYS)
+    ([], ['price_per_kva_month', 'price_per_kw_month'])
+    >>> near_misses("Taxs", _TOP_KEYS)
+    ['taxes']
+    """
+
+    def squash(text: str) -> str:
+        return re.sub(r"[\s_\-]+", "", text.lower())
+
+    written = squash(key)
+    variants = []
+    for a in allowed:
+        full = squash(a)
+        stem, _, suffix = a.rpartition("_")
+        if (written == full or full in (written + "s", written + "es") or written in (full + "s", full + "es")
+                or (stem and suffix in _UNIT_SUFFIXES and written == squash(stem))):
+            variants.append(a)
+    if variants:
+        return variants
+    return difflib.get_close_matches(key.lower(), allowed, n=3, cutoff=NEAR_MISS_CUTOFF)
+
+
+def _quoted(keys: list[str], joint: str) -> str:
+    """``'a'``, ``'a' or 'b'``, ``'a', 'b' or 'c'``."""
+    q = [f"'{k}'" for k in keys]
+    return q[0] if len(q) == 1 else f"{', '.join(q[:-1])} {joint} {q[-1]}"
+
+
+class _Brief(str):
+    """A short description shown in a message in place of a value too large to show (shown unquoted)."""
+
+    __slots__ = ()
+
+    def __repr__(self) -> str:
+        return str(self)
+
+
+def _brief(value: object) -> object:
+    """The value itself, or for a table or an array of tables a short description of it.
+
+    Examples
+    --------
+    >>> print(_brief([{"name": "VAT", "rate_pct": 19.0}, {"name": "levy", "base": "energy_charges"}]))
+    2 tables with name, rate_pct, base
+    >>> print(_brief({}))
+    an empty table
+    >>> _brief(0.2)
+    0.2
+    """
+    if isinstance(value, dict):
+        return _Brief(f"a table with {_key_list(value)}" if value else "an empty table")
+    if isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+        keys = dict.fromkeys(k for v in value for k in v)
+        n = len(value)
+        return _Brief(f"{n} {'table' if n == 1 else 'tables'}" + (f" with {_key_list(keys)}" if keys else ""))
+    if isinstance(value, list) and any(isinstance(v, dt.date) for v in value):  # TOML dates, shown as written
+        return _Brief("[" + ", ".join(v.isoformat() if isinstance(v, dt.date) else repr(v) for v in value) + "]")
+    return value
+
+
+def _key_list(keys) -> str:
+    names = [str(k) for k in keys]
+    return ", ".join(names[:4]) + (", ..." if len(names) > 4 else "")
+
+
 class _Reader:
     """Collects problems while pulling typed values out of nested dicts."""
 
     def __init__(self, source: str) -> None:
         self.source = source
         self.problems: list[Problem] = []
+        #: Paths of the allowed keys that an unknown key was taken for a misspelling of (``taxes``,
+        #: ``taxes[1].rate_pct``): their absence is already reported, once, by that key's error.
+        self.meant: set[str] = set()
 
     def err(self, key: str, value: object, rule: str, hint: str = "") -> None:
         self.problems.append(error(self.source, None, key, value, rule, hint))
@@ -841,9 +956,28 @@ class _Reader:
         self.problems.append(warning(self.source, None, key, value, rule, hint))
 
     def known(self, table: dict, allowed: tuple[str, ...], path: str) -> None:
+        """Report each key of ``table`` not in ``allowed``: an error when it is a near miss, else a warning."""
         for k in table:
-            if k not in allowed:
-                self.warn(_join(path, k), table[k], "unknown key, ignored", f"allowed keys here: {', '.join(allowed)}")
+            if k in allowed:
+                continue
+            full, value = _join(path, k), _brief(table[k])
+            meant = near_misses(str(k), allowed)
+            if meant:
+                self.meant.update(_join(path, m) for m in meant)
+                self.err(full, value,
+                         f"unknown key that looks like a misspelling of {_quoted(meant, 'or')}: a misspelt key is not "
+                         "read, so what it holds would be left out of the tariff",
+                         f"did you mean {_quoted(meant, 'or')}? Rename the key; a note for yourself goes in a # comment")
+                continue
+            closest = difflib.get_close_matches(str(k).lower(), allowed, n=3, cutoff=_CLOSEST_CUTOFF)
+            lead = f"closest allowed {'key' if len(closest) == 1 else 'keys'}: {_quoted(closest, 'and')}; " if closest else ""
+            self.warn(full, value, "unknown key, ignored", f"{lead}allowed keys here: {', '.join(allowed)}")
+
+    def reported(self, path: str, *keys: str) -> bool:
+        """True when ``path`` (or, given ``keys``, one of them under it) lies at or under a key whose
+        misspelling is already reported."""
+        paths = [_join(path, k) for k in keys] if keys else [path]
+        return any(p == m or p.startswith((m + ".", m + "[")) for p in paths for m in self.meant)
 
     def table(self, data: dict, key: str, path: str) -> dict | None:
         v = data.get(key, _MISSING)
@@ -869,7 +1003,8 @@ class _Reader:
         v = table.get(key, _MISSING)
         if v is _MISSING:
             if default is _MISSING:
-                self.err(full, None, "required key is missing")
+                if not self.reported(full):
+                    self.err(full, None, "required key is missing")
                 return None
             return default
         ok, value = _coerce(v, kind)
@@ -1048,7 +1183,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     problems : list of Problem
         Errors and warnings, each naming the key path in ``column`` (array entries counted from 1,
         e.g. ``periods[2].hours`` is the ``hours`` of the second ``[[periods]]`` entry), the value,
-        the rule broken and a hint. Unknown keys are warnings.
+        the rule broken and a hint. An unknown key is an error when it is a near miss of an allowed key
+        (:func:`near_misses`), else a warning.
 
     Examples
     --------
@@ -1065,7 +1201,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     r.known(data, _TOP_KEYS, "")
 
     head = r.table(data, "tariff", "") or {}
-    if "tariff" not in data:
+    if "tariff" not in data and not r.reported("tariff"):
         r.err("tariff", None, "missing [tariff] table", "start the file with [tariff] name = ... currency = ...")
     r.known(head, _TARIFF_KEYS, "tariff")
     name = r.get(head, "name", "tariff", "str", default=source) or source
@@ -1140,7 +1276,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         if has_kwh and has_kvah:
             r.err("energy", None, "give price_per_kwh or price_per_kvah, not both")
         elif not (has_kwh or has_kvah):
-            r.err("energy", None, "[energy] needs price_per_kwh or price_per_kvah")
+            if not r.reported("energy", "price_per_kwh", "price_per_kvah"):
+                r.err("energy", None, "[energy] needs price_per_kwh or price_per_kvah")
         else:
             key = "price_per_kwh" if has_kwh else "price_per_kvah"
             prices = r.get(et, key, "energy", "number_table")
@@ -1167,7 +1304,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         if has_kw and has_kva:
             r.err(p, dname, "give price_per_kw_month or price_per_kva_month, not both")
         elif not (has_kw or has_kva):
-            r.err(p, dname, "a demand charge needs price_per_kw_month or price_per_kva_month")
+            if not r.reported(p, "price_per_kw_month", "price_per_kva_month"):
+                r.err(p, dname, "a demand charge needs price_per_kw_month or price_per_kva_month")
         else:
             basis = "kW" if has_kw else "kVA"
             dprice = r.get(d, "price_per_kw_month" if has_kw else "price_per_kva_month", p, "number")
@@ -1264,7 +1402,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         allow_negative_prices=allow_negative,
         notes=notes,
     )
-    problems = r.problems + _check(tariff, source, pos, report_gaps=periods_complete)
+    # A near miss leaves out what the misspelt key holds: the checks across the tariff (coverage, references,
+    # prices) would judge another tariff than the one written, so they wait until the key is named right.
+    problems = r.problems + ([] if r.meant else _check(tariff, source, pos, report_gaps=periods_complete))
     if any(pr.severity == "error" for pr in problems):
         return None, problems
     return tariff, problems
@@ -1287,6 +1427,7 @@ def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | Non
     if has_ratio:
         return r.get(e, "free_kvarh_per_kwh", path, "number")
     if required:
-        r.err(path, None, "needs free_kvarh_per_kwh or free_power_factor", "use free_kvarh_per_kwh = 0 to charge every kVArh")
+        if not r.reported(path, "free_kvarh_per_kwh", "free_power_factor"):
+            r.err(path, None, "needs free_kvarh_per_kwh or free_power_factor", "use free_kvarh_per_kwh = 0 to charge every kVArh")
         return None
     return 0.0

@@ -5,6 +5,7 @@ Expected period codes come from the hand-worked tables in docs/derivations/billi
 
 from __future__ import annotations
 
+import shutil
 import tomllib
 from pathlib import Path
 
@@ -339,7 +340,7 @@ class TestValidation:
             currency = "EUR"
             [[periods]]
             code = "all"
-            hour = ["00:00-24:00"]
+            label = "whole day"
             [[demand]]
             price_per_kw_month = 5.0
             [demand.power_factor_adjustment]
@@ -348,9 +349,13 @@ class TestValidation:
             targt = 0.95
             """
         )
+        # rule of this project's case format, docs/tariffs.md (Validation): an unknown key that is no near miss
+        # of an allowed key is a warning; 'label' resembles none of code/seasons/days/hours, and 'targt' is
+        # 0.42 similar to target_power_factor, below 0.8. (A near miss such as 'hour' is an error: see
+        # TestMisspeltKeys.)
         assert t is not None
         assert [(p.severity, p.column) for p in problems] == [
-            ("warning", "periods[1].hour"),
+            ("warning", "periods[1].label"),
             ("warning", "demand[1].power_factor_adjustment.targt"),
         ]
 
@@ -396,6 +401,165 @@ class TestValidation:
         assert any("overlaps periods[1]" in r and "21:00-22:00" in r for r in rules)
         assert "no period covers season 'all', saturday, 22:00-06:00" not in rules  # ranges are runs of the day
         assert "no period covers season 'all', saturday, 00:00-06:00, 22:00-24:00" in rules
+
+
+DEMO = Path(__file__).resolve().parents[1] / "data" / "demo"
+DEMO_TARIFF_A = "example_tou_kw_reactive_ratchet.toml"
+
+# A valid tariff the clause tests below add to (one period, priced).
+BASE = '[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n[energy]\nprice_per_kwh = { all = 0.1 }\n'
+
+
+class TestMisspeltKeys:
+    """An unknown key that is a near miss of an allowed key is an error; any other unknown key is a warning.
+
+    Every expectation is the rule of this project's case format, docs/tariffs.md ("Validation", "Misspelt
+    keys"), found by a user audit: [[taxs]] for [[taxes]] dropped the demo's VAT and levy with a warning only.
+    """
+
+    def test_misspelt_taxes_table_is_one_error_with_did_you_mean(self):
+        text = (DEMO / "tariffs" / DEMO_TARIFF_A).read_text(encoding="utf-8")
+        assert text.count("[[taxes]]") == 2  # the demo file as generated: an energy levy and VAT
+        t, problems = load(text.replace("[[taxes]]", "[[taxs]]"), source=f"tariffs/{DEMO_TARIFF_A}")
+        # rule of this project's case format, docs/tariffs.md: a near miss (taxs/taxes, ratio 8/9) is an error,
+        # and the only message about it
+        assert t is None
+        assert len(problems) == 1
+        p = problems[0]
+        assert (p.severity, p.file, p.column) == ("error", f"tariffs/{DEMO_TARIFF_A}", "taxs")
+        assert p.hint.startswith("did you mean 'taxes'?")
+        assert "misspelling of 'taxes'" in p.rule
+        # the value briefly: the two entries as a count and their keys (the demo file's keys, in order)
+        assert str(p.value) == "2 tables with name, rate_pct, base"
+        assert str(p) == (
+            f"ERROR tariffs/{DEMO_TARIFF_A}, key 'taxs': unknown key that looks like a misspelling of 'taxes': "
+            "a misspelt key is not read, so what it holds would be left out of the tariff "
+            "(value: 2 tables with name, rate_pct, base). "
+            "Hint: did you mean 'taxes'? Rename the key; a note for yourself goes in a # comment"
+        )
+
+    def test_case_with_misspelt_taxes_table_does_not_load(self, tmp_path):
+        from models.case import load_case
+
+        case_dir = Path(shutil.copytree(DEMO, tmp_path / "demo"))
+        path = case_dir / "tariffs" / DEMO_TARIFF_A
+        path.write_text(path.read_text(encoding="utf-8").replace("[[taxes]]", "[[taxs]]"), encoding="utf-8")
+        case, problems = load_case(case_dir)
+        # rule of this project's case format, docs/tariffs.md: the error stops the case (drivecase check and
+        # run refuse it) instead of billing without VAT and levy
+        assert case is None
+        errors = [p for p in problems if p.severity == "error"]
+        assert [(p.file, p.column) for p in errors] == [(f"tariffs/{DEMO_TARIFF_A}", "taxs")]
+        assert errors[0].hint.startswith("did you mean 'taxes'?")
+
+    @pytest.mark.parametrize(
+        "text, key",
+        [
+            ('notes_for_me = "x"\n' + BASE, "notes_for_me"),
+            (BASE.replace('currency = "EUR"\n', 'currency = "EUR"\nnotes_for_me = "x"\n'), "tariff.notes_for_me"),
+            (BASE + '[[taxes]]\nname = "VAT"\nrate_pct = 20\nnotes_for_me = "x"\n', "taxes[1].notes_for_me"),
+        ],
+    )
+    def test_unrelated_key_stays_a_warning(self, text, key):
+        t, problems = load(text)
+        # rule of this project's case format, docs/tariffs.md: a key resembling no allowed key (notes_for_me/notes
+        # ratio 10/17 = 0.59 < 0.8) is ignored with a warning, and the tariff builds
+        assert t is not None
+        assert [(p.severity, p.column, p.rule, p.value) for p in problems] == [("warning", key, "unknown key, ignored", "x")]
+        assert problems[0].hint.startswith("allowed keys here: ")  # nothing within ratio 0.6 to lead with
+
+    def test_warning_hint_leads_with_the_closest_allowed_key(self):
+        t, problems = load(BASE + '[[demand]]\nprice_per_kw_month = 5\nwindow_size = 30\n')
+        # rule of this project's case format, docs/tariffs.md: window_size/window_min, ratio 16/21 = 0.76, is no
+        # near miss (< 0.8) but is close (>= 0.6): a warning whose hint names window_min first
+        assert t is not None
+        assert [(p.severity, p.column) for p in problems] == [("warning", "demand[1].window_size")]
+        assert problems[0].hint.startswith("closest allowed key: 'window_min'; allowed keys here: name, ")
+
+    def test_unknown_table_is_shown_briefly(self):
+        _, problems = load(BASE + "[my_remarks]\nauthor = \"me\"\nchecked = true\n")
+        # rule of this project's case format, docs/tariffs.md: the value of a table is shown by its keys
+        assert [(p.severity, p.column, str(p.value)) for p in problems] == [("warning", "my_remarks", "a table with author, checked")]
+
+    @pytest.mark.parametrize(
+        "text, key, meant",
+        [
+            # top level, letter case and plural variants
+            (BASE.replace("[tariff]", "[tarif]"), "tarif", "'tariff'"),
+            (BASE.replace("[energy]", "[Energy]"), "Energy", "'energy'"),
+            (BASE.replace("[[periods]]", '[[season]]\nname = "w"\nmonths = [1]\n[[periods]]'), "season", "'seasons'"),
+            (BASE + "[[tax]]\nrate_pct = 20\n", "tax", "'taxes'"),
+            # inside [tariff] and [calendar]
+            (BASE.replace('currency = "EUR"\n', 'currency = "EUR"\ntime-zone = "Europe/Berlin"\n'), "tariff.time-zone", "'time_zone'"),
+            (BASE + "[calendar]\nholiday = [2025-12-25]\n", "calendar.holiday", "'holidays'"),
+            # inside clauses
+            (BASE.replace('code = "all"\n', 'code = "all"\nhour = ["00:00-24:00"]\n'), "periods[1].hour", "'hours'"),
+            (BASE + '[[taxes]]\nname = "VAT"\nrate_pc = 20\n', "taxes[1].rate_pc", "'rate_pct'"),
+            (BASE + '[[fixed]]\nname = "meter"\ncharge_per_mnth = 85.0\n', "fixed[1].charge_per_mnth", "'charge_per_month'"),
+            (BASE + '[[demand]]\nprice_per_kw_month = 5\nwindow = 30\n', "demand[1].window", "'window_min'"),
+            (BASE + '[[demand]]\nprice_per_kw_mnth = 5\n', "demand[1].price_per_kw_mnth", "'price_per_kw_month' or 'price_per_kva_month'"),
+            (BASE + '[[demand]]\nprice_per_kw_month = 5\n[demand.power_factor_adjustmnt]\nmethod = "ratio"\ntarget_power_factor = 0.9\n',
+             "demand[1].power_factor_adjustmnt", "'power_factor_adjustment'"),
+            (BASE + '[[demand]]\nprice_per_kw_month = 5\n[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_powerfactor = 0.9\n',
+             "demand[1].power_factor_adjustment.target_powerfactor", "'target_power_factor'"),
+            (BASE + '[[reactive]]\nprice_per_kvarh = 0.01\nfree_kvarh_per_kw = 0.33\n', "reactive[1].free_kvarh_per_kw", "'free_kvarh_per_kwh'"),
+            (BASE + '[[leading]]\nbanned = true\nallowance_pr = "month"\n', "leading[1].allowance_pr", "'allowance_per'"),
+            (BASE.replace("price_per_kwh =", "price_per_kwhh ="), "energy.price_per_kwhh", "'price_per_kwh' or 'price_per_kvah'"),
+        ],
+    )
+    def test_near_miss_at_every_level_is_the_one_error(self, text, key, meant):
+        t, problems = load(text)
+        # rule of this project's case format, docs/tariffs.md: a near miss at any level is an error with
+        # "did you mean"; the key it stands for is not also reported missing (rate_pct, currency, [tariff],
+        # price_per_kw_month or price_per_kva_month, free_kvarh_per_kwh or free_power_factor, [energy] prices,
+        # target_power_factor), and no cross-check of the tariff adds to it
+        assert t is None
+        assert [(p.severity, p.column) for p in problems] == [("error", key)], [str(p) for p in problems]
+        assert problems[0].hint.startswith(f"did you mean {meant}?")
+
+    def test_near_miss_beside_other_reading_errors(self):
+        t, problems = load(BASE + '[[taxes]]\nname = "VAT"\nrate_pc = 20\n[[fixed]]\ncharge_per_month = "85"\n')
+        # rule of this project's case format, docs/tariffs.md: reading errors of other keys are still listed
+        assert t is None
+        assert [(p.severity, p.column) for p in problems] == [("error", "fixed[1].charge_per_month"), ("error", "taxes[1].rate_pc")]
+
+    @pytest.mark.parametrize(
+        "key, allowed, expected",
+        [
+            # rule of this project's case format, docs/tariffs.md; ratios by hand, 2M/T
+            ("taxs", ("taxes", "fixed"), ["taxes"]),  # M = 4, T = 9: 0.89 >= 0.8
+            ("TAXES", ("taxes",), ["taxes"]),  # letter case
+            ("Taxs", ("taxes",), ["taxes"]),  # letter case and a letter left out: 'taxs'/'taxes' 0.89
+            ("timezone", ("time_zone",), ["time_zone"]),  # underscore left off
+            ("tax", ("taxes",), ["taxes"]),  # plural 'es'
+            ("rate", ("rate_pct",), ["rate_pct"]),  # unit suffix left off
+            ("ratchet", ("ratchet_frac", "ratchet_months"), ["ratchet_frac", "ratchet_months"]),  # both fit
+            ("window_size", ("window_min",), []),  # M = 8, T = 21: 0.76 < 0.8
+            ("notes_for_me", ("notes",), []),  # M = 5, T = 17: 0.59
+            ("colour", ("currency",), []),  # M = 3, T = 14: 0.43
+        ],
+    )
+    def test_near_misses(self, key, allowed, expected):
+        from models.tariff import near_misses
+
+        assert near_misses(key, allowed) == expected
+
+    @pytest.mark.parametrize("name", sorted(p.name for p in (DEMO / "tariffs").glob("*.toml")))
+    def test_demo_tariffs_still_load_with_no_problem(self, name):
+        with open(DEMO / "tariffs" / name, "rb") as f:
+            t, problems = tariff_from_dict(tomllib.load(f), source=f"tariffs/{name}")
+        # the demo case is valid (data/demo/README.md; conftest loads it strictly): the new rule adds nothing
+        assert t is not None and problems == []
+
+    def test_demo_case_has_no_problem_in_its_tariffs(self):
+        from models.case import load_case
+
+        case, problems = load_case(DEMO)
+        assert case is not None
+        # the demo case's only problems are warnings on sites.csv (60-min profiles against 15/30-min demand
+        # windows), as before this rule; none is in a tariff file
+        assert [p for p in problems if p.file.startswith("tariffs/")] == []
+        assert all(p.severity == "warning" for p in problems)
 
 
 class TestAllowanceEquivalences:
