@@ -27,13 +27,15 @@ def _print_table(frame: pd.DataFrame, title: str) -> None:
 
 
 def _print_problems(problems, limit: int = 200) -> None:
+    from models.problems import ordered
+
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
     print(f"\nProblems: {counted(len(errors), 'error')}, {counted(len(warnings), 'warning')}")
-    # problems of a whole file or column first (an unknown heading often explains many row errors), then rows
-    ordered = ([p for p in errors + warnings if p.row is None] + [p for p in errors if p.row is not None]
-               + [p for p in warnings if p.row is not None])
-    for problem in ordered[:limit]:
+    # in the order the case loader gives (models.problems.ordered): errors first, then warnings; within each,
+    # file by file, a whole file's or column's problems before its rows (an unknown heading often explains
+    # many row errors), and a "N more" line after the rows it follows on from
+    for problem in ordered(problems)[:limit]:
         print(f"  {problem}")
     if len(problems) > limit:
         print(f"  ... and {len(problems) - limit} more")

@@ -22,7 +22,7 @@ import pandas as pd
 from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
-from models.problems import CaseError, Problem, error, has_errors, warning
+from models.problems import CaseError, Problem, error, has_errors, ordered, shown_value, warning
 from models.wording import counted
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
@@ -239,6 +239,8 @@ class _TableChecker:
         known = set(self.schema.index)
         unknown = [c for c in source.columns if c not in known]
         for column in unknown:
+            if io.watt_header_target(self.raw.name, column) is not None:
+                continue  # a header in W is an error of its own, whose hint gives the conversion
             missing = [c for c in self.schema.index if c not in set(source.columns)]
             close = difflib.get_close_matches(io.normalise_header(column), [io.normalise_header(c) for c in missing],
                                               n=1, cutoff=0.75)
@@ -252,7 +254,8 @@ class _TableChecker:
                 self.frame[name] = self._empty(spec["dtype"])
             if spec["required"] == "yes":
                 if name not in source.columns:
-                    self.err(None, name, None, f"required column '{name}' is missing", _missing_column_hint(name, unknown))
+                    self.err(None, name, None, f"required column '{name}' is missing",
+                             _missing_column_hint(name, unknown, self.raw.name))
                 else:
                     missing = self.frame[name].isna().to_numpy()
                     for i in np.flatnonzero(missing):
@@ -269,19 +272,26 @@ class _TableChecker:
         if dtype in ("float", "int"):
             numbers = np.empty(len(values))
             is_year = name.startswith("year")
+            repaired: dict[str, list[int]] = {}
             for i, value in enumerate(values):
                 number, note = _to_number(value, year=is_year)
                 numbers[i] = number
                 if note in REPAIR_NOTES:
-                    hint = ("format the cell as a number" if note.startswith("a date")
-                            else "use a point as decimal mark to avoid this repair")
-                    self.warn(i, name, value, note, hint)
+                    repaired.setdefault(note, []).append(i)
                 elif note is not None:
                     hint = f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number"
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"
                     rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
                     self.err(i, name, value, rule, hint)
+            for note, cells in repaired.items():  # one warning per column and kind of repair, not one per cell
+                hint = ("format the cells as numbers" if note.startswith("a date")
+                        else "use a point as decimal mark to avoid this repair")
+                if len(cells) == 1:
+                    self.warn(cells[0], name, values[cells[0]], note, hint.replace("cells as numbers", "cell as a number"))
+                else:
+                    shown = _rows_shown([int(self.rows[i]) for i in cells], [values[i] for i in cells])
+                    self.warn(None, name, None, f"{note} in {len(cells)} cells of this column: {shown}", hint)
             lo = float(spec["min"]) if spec["min"] else -np.inf
             hi = float(spec["max"]) if spec["max"] else np.inf
             bad = np.flatnonzero(~np.isnan(numbers) & ((numbers < lo) | (numbers > hi)))
@@ -343,13 +353,36 @@ class _TableChecker:
         return pd.Series(out_text, dtype=object)
 
 
-def _missing_column_hint(name: str, unknown: list[str]) -> str:
-    """Suggest which unrecognised header may be the missing column."""
+def _missing_column_hint(name: str, unknown: list[str], table: str | None = None) -> str:
+    """Suggest which unrecognised header may be the missing column.
+
+    A header that names the column in W (``Rated power (W)`` for ``rated_p_kw``) gets the conversion, never
+    the bare rename, which would read watts as kilowatts; a header in W of another column is no candidate.
+    """
+    if table is not None:
+        for c in unknown:
+            if io.watt_header_target(table, c) == name:
+                return f"the column '{c}' is in W: divide its values by 1000 and head it '{name}'"
+        unknown = [c for c in unknown if io.watt_header_target(table, c) is None]
     candidates = {io.normalise_header(c): c for c in unknown if not str(c).startswith("(blank header")}
     close = difflib.get_close_matches(io.normalise_header(name), list(candidates), n=1, cutoff=0.6)
     if close:
         return f"the column '{candidates[close[0]]}' was not recognised: if it is {name}, head it '{name}'"
     return f"add a column headed '{name}'"
+
+
+def _rows_shown(rows: list[int], values: list[object] | None = None, first: int = 5) -> str:
+    """The first few rows of a list (with their cells, when given) for a message that counts the rest.
+
+    Examples
+    --------
+    >>> _rows_shown([4, 7, 10], ["95,6", "95,4", "0,7"], first=2)
+    "rows 4 ('95,6'), 7 ('95,4') and 1 more"
+    """
+    items = [str(r) if values is None else f"{r} ({shown_value(v)})" for r, v in
+             zip(rows[:first], (values or [None] * len(rows))[:first])]
+    rest = f" and {len(rows) - first} more" if len(rows) > first else ""
+    return f"{'row' if len(rows) == 1 else 'rows'} {', '.join(items)}{rest}"
 
 
 def _range_hint(name: str, value: float) -> str:
@@ -448,12 +481,20 @@ _END_US = int(np.datetime64(f"{TIMESTAMP_YEARS[1] + 1}-01-01", "us").astype(np.i
 
 
 def _listed(problems: list[Problem], items, make, summary) -> None:
-    """Append a problem for each of the first :data:`MAX_LISTED` items and one line for the rest."""
+    """Append a problem for each of the first :data:`MAX_LISTED` items and one line for the rest.
+
+    The line for the rest (``summary(n)``) takes the row and value of the first item it counts, so it is
+    shown after the rows it continues (:func:`models.problems.ordered`) and says where the rest begins.
+    """
     items = list(items)
     for item in items[:MAX_LISTED]:
         problems.append(make(item))
     if len(items) > MAX_LISTED:
-        problems.append(summary(len(items) - MAX_LISTED))
+        line, first = summary(len(items) - MAX_LISTED), make(items[MAX_LISTED])
+        if first.row is not None:
+            line = replace(line, row=first.row, value=first.value if line.value is None else line.value,
+                           rule=f"{line.rule}, the first of them in this row")
+        problems.append(line)
 
 
 def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
@@ -467,8 +508,12 @@ def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarray, header: str,
-                    problems: list[Problem]) -> np.ndarray:
-    """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired."""
+                    problems: list[Problem], where=lambda i: "") -> np.ndarray:
+    """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired.
+
+    ``where(i)`` says which profile and interval row ``i`` belongs to (`` in profile 'P' at T``), for the
+    messages of a long table whose row numbers alone are hard to find.
+    """
     if pd.api.types.is_bool_dtype(series.dtype) or series.dtype == object:
         series = series.astype(object)
         flags = series.map(lambda v: isinstance(v, (bool, np.bool_))).to_numpy(dtype=bool)
@@ -482,16 +527,18 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
         comma = cells.str.match(r"^[-+]?\d+,\d+$").to_numpy(dtype=bool)
         if comma.any():
             numeric[bad[comma]] = pd.to_numeric(cells[comma].str.replace(",", ".", regex=False)).to_numpy(dtype=float)
-            problems.append(warning(source, int(rows[bad[comma][0]]), header, None,
-                                    f"decimal commas were read as decimal points ({int(comma.sum())} cell(s))",
+            repaired = bad[comma]
+            problems.append(warning(source, int(rows[repaired[0]]), header, None,
+                                    f"decimal commas were read as decimal points ({int(comma.sum())} cell(s): "
+                                    f"{_rows_shown(rows[repaired].tolist(), list(cells[comma].iloc[:5]))})",
                                     "use a point as decimal mark"))
         _listed(problems, bad[~comma],
-                lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a number",
+                lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a number{where(i)}",
                                 "write a plain number; spreadsheet error values (#N/A, #DIV/0!) are not numbers"),
                 lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not numbers"))
     infinite = np.flatnonzero(np.isinf(numeric))
     _listed(problems, infinite,
-            lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a finite number"),
+            lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a finite number{where(i)}"),
             lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not finite"))
     numeric[infinite] = np.nan
     return numeric
@@ -526,7 +573,17 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
     _listed(problems, np.flatnonzero(codes < 0),
             lambda i: error(source, int(rows[i]), header("profile_id"), None, "'profile_id' is required"),
             lambda n: error(source, None, header("profile_id"), None, f"{n} more rows have no profile_id"))
-    values = {c: _profile_values(frame[c], c, source, rows, header(c), problems) for c in value_columns}
+    stamp_cells = frame["timestamp"]
+
+    def where(i: int) -> str:
+        """Which profile and interval frame row ``i`` is, as the file writes them (a long table's row
+        number alone is hard to find: docs/case-format.md, "Interval profiles")."""
+        code = int(codes[i])
+        profile = f" in profile '{uniques[code]}'" if code >= 0 else " in a row without profile_id"
+        stamp = _stamp_as_written(stamp_cells.iloc[i])
+        return profile + (f" at {stamp}" if stamp else " (blank timestamp)")
+
+    values = {c: _profile_values(frame[c], c, source, rows, header(c), problems, where) for c in value_columns}
     order = np.argsort(codes, kind="stable")
     bounds = np.searchsorted(codes[order], np.arange(len(uniques) + 1))
     groups = [order[bounds[k]:bounds[k + 1]] for k in range(len(uniques))]
@@ -548,16 +605,19 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         v = values[quantity][idx]
         blank = np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy())
         if len(blank):  # an interval without a value is a missing interval: filled the same way, with a warning
+            first_stamp = _stamp_as_written(stamp_cells.iloc[idx[blank[0]]])
             problems.append(warning(source, int(rows[idx[blank[0]]]), qh, None,
-                                    f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row",
+                                    f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row"
+                                    + (f" (at {first_stamp})" if first_stamp else ""),
                                     "blank intervals are filled from the same weekday and time of day, as missing "
                                     "intervals are; enter the readings where they exist"))
         _listed(problems, np.flatnonzero(v < 0),
-                lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), "values must not be negative"),
+                lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"values must not be negative{where(idx[j])}"),
                 lambda n: error(source, None, qh, None, f"{n} more negative values in '{profile_id}'"))
         if quantity == "shaft_load_pct":
             _listed(problems, np.flatnonzero(v > MAX_LOAD_PCT),
-                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"shaft load above {MAX_LOAD_PCT:.0f} % of rating",
+                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]),
+                                    f"shaft load above {MAX_LOAD_PCT:.0f} % of rating{where(idx[j])}",
                                     "check the unit (percent of rated power) or the rated power of the motor"),
                     lambda n: error(source, None, qh, None,
                                     f"{n} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
@@ -569,7 +629,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         else:
             limit = float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])
             _listed(problems, np.flatnonzero(v > limit),
-                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"input above {limit:g} kW",
+                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"input above {limit:g} kW{where(idx[j])}",
                                     "is this in W rather than kW? divide by 1000"),
                     lambda n: error(source, None, qh, None, f"{n} more intervals of '{profile_id}' above {limit:g} kW"))
         t = stamps[idx]
@@ -645,6 +705,16 @@ def _cell_text(value: object) -> str | None:
     if isinstance(value, (_dt.datetime, pd.Timestamp, _dt.date, _dt.time)):
         return value.isoformat()
     return str(value).strip()
+
+
+def _stamp_as_written(value: object) -> str | None:
+    """A timestamp cell as its file shows it, for a message (None when blank): text as written, a date cell
+    or Parquet timestamp as ``2025-02-11 17:00:00+01:00``."""
+    if _blank(value):
+        return None
+    if isinstance(value, (_dt.datetime, _dt.date, _dt.time, np.datetime64)):
+        return str(pd.Timestamp(value)) if isinstance(value, np.datetime64) else str(value)
+    return shown_value(_plain(value)) if not isinstance(value, str) else value.strip()
 
 
 def _is_serial(value: object) -> bool:
@@ -794,14 +864,18 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     raw_kw = checker.raw.frame["rated_p_kw"] if "rated_p_kw" in checker.raw.frame else pd.Series([None] * len(a))
     raw_hp = checker.raw.frame["rated_p_hp"] if "rated_p_hp" in checker.raw.frame else pd.Series([None] * len(a))
     unknown = [c for c in checker.raw.frame.columns if c not in set(checker.schema.index)]
-    if len(a) > 1 and all(_blank(v) for v in raw_kw) and all(_blank(v) for v in raw_hp):
+    rating_in_watts = "rated_p_kw" not in checker.raw.frame and any(
+        io.watt_header_target(checker.raw.name, c) == "rated_p_kw" for c in unknown)
+    if rating_in_watts:
+        pass  # the ratings sit under a header in W: that header's own error gives the conversion, once
+    elif len(a) > 1 and all(_blank(v) for v in raw_kw) and all(_blank(v) for v in raw_hp):
         # no rating in the whole file (no column, or empty ones): one message for the file, not one per row
         checker.err(None, "rated_p_kw", None, "no rated power column (rated_p_kw or rated_p_hp): every motor needs its rating",
-                    _missing_column_hint("rated_p_kw", unknown))
+                    _missing_column_hint("rated_p_kw", unknown, checker.raw.name))
     else:
         hint = ""
         if "rated_p_kw" not in checker.raw.frame:  # perhaps under another heading
-            hint = _missing_column_hint("rated_p_kw", unknown)
+            hint = _missing_column_hint("rated_p_kw", unknown, checker.raw.name)
             hint = hint if "was not recognised" in hint else ""
         rows = [i for i in np.flatnonzero(both_missing) if _blank(raw_kw.iloc[i]) and _blank(raw_hp.iloc[i])]
         if "rated_p_kw" not in checker.raw.frame and len(rows) > 1:
@@ -809,7 +883,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
             shown = ", ".join(str(int(checker.raw.rows[i])) for i in rows[:5]) + (
                 f" and {len(rows) - 5} more" if len(rows) > 5 else "")
             checker.err(None, "rated_p_kw", None, f"no rated_p_kw column: {len(rows)} motors have no rating "
-                        f"(rated_p_kw or rated_p_hp), rows {shown}", hint or _missing_column_hint("rated_p_kw", unknown))
+                        f"(rated_p_kw or rated_p_hp), rows {shown}", hint or _missing_column_hint("rated_p_kw", unknown, checker.raw.name))
         else:
             for i in rows:
                 checker.err(i, "rated_p_kw", None, "rated power is required (rated_p_kw or rated_p_hp)", hint)
@@ -971,7 +1045,13 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
 
 
 def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dict[str, pd.Series],
-                 tariffs_expected: bool, unreadable: set[str] = frozenset()) -> None:
+                 tariffs_expected: bool, unreadable: set[str] = frozenset(),
+                 rejected_profiles: set[str] | None = frozenset()) -> None:
+    """Cross-check the sites: ids, tariff files and base-load profiles.
+
+    ``rejected_profiles`` None means the profiles file could not be read, and a profile listed in it exists
+    but failed its own checks: a base-load reference to either is not reported again (as in the assets).
+    """
     s = checker.frame
     _duplicates(checker, "site_id", "site_id")
     known = sorted(set(tariffs) | set(unreadable))
@@ -994,9 +1074,11 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
     elif len(blank) and len(s):  # no tariff at all: the machines compare, nothing is priced
         checker.warn(None, "tariff_file", None, "the case has no tariff: its machines can be compared, but no bill "
                      "can be priced", "drivecase bill, run and report need a tariff file per site (docs/tariffs.md)")
-    for i in np.flatnonzero(s["base_profile_id"].notna().to_numpy()):
+    for i in np.flatnonzero(s["base_profile_id"].notna().to_numpy() & (rejected_profiles is not None)):
         pid = s["base_profile_id"].iloc[i]
         series = profiles.get(str(pid))
+        if series is None and str(pid) in rejected_profiles:
+            continue  # in the profiles, but refused there: its own problems say why
         if series is None:
             checker.err(i, "base_profile_id", pid, "unknown profile reference (not in profiles)")
         elif series.name != "input_kw":
@@ -1057,15 +1139,41 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         if tariff is None:
             continue
         if tariff.currency != settings.currency and _valid_currency(settings.currency):
-            problems.append(error(source, None, "tariff.currency", tariff.currency,
-                                  f"the tariff's currency differs from the case currency {settings.currency}",
-                                  "one case prices everything in one currency"))
+            if _declared(raw, "currency"):
+                rule, hint = (f"the tariff's currency differs from the case currency {settings.currency}",
+                              "one case prices everything in one currency")
+            else:
+                rule, hint = (f"the tariff's currency differs from the case's: {raw.settings_source} declares no "
+                              f"currency, so {settings.currency} is assumed",
+                              f"declare the case currency in {raw.settings_source}: "
+                              + _setting_line(raw, "currency", tariff.currency))
+            problems.append(error(source, None, "tariff.currency", tariff.currency, rule, hint))
         if tariff.time_zone and tariff.time_zone != settings.time_zone:
-            problems.append(error(source, None, "tariff.time_zone", tariff.time_zone,
-                                  f"the tariff's time zone differs from the case time zone {settings.time_zone}",
-                                  "periods and billing months are read on the site's clock: use the case zone"))
+            if _declared(raw, "time_zone"):
+                rule, hint = (f"the tariff's time zone differs from the case time zone {settings.time_zone}",
+                              "periods and billing months are read on the site's clock: use the case zone")
+            else:  # docs/case-format.md, case.toml: time_zone defaults to UTC, with a warning
+                rule, hint = (f"the tariff's time zone differs from the case's: {raw.settings_source} declares no "
+                              f"time zone, so {settings.time_zone} is assumed",
+                              f"declare the sites' zone in {raw.settings_source}: "
+                              + _setting_line(raw, "time_zone", tariff.time_zone)
+                              + " (periods and billing months are read on the site's clock)")
+            problems.append(error(source, None, "tariff.time_zone", tariff.time_zone, rule, hint))
         parsed[name] = tariff
     return parsed
+
+
+def _declared(raw: io.RawCase, key: str) -> bool:
+    """Whether the case settings (``case.toml``'s [case] table, or a workbook's case sheet) give ``key``."""
+    data = raw.settings.get("case") if isinstance(raw.settings, dict) else None
+    return isinstance(data, dict) and key in data
+
+
+def _setting_line(raw: io.RawCase, key: str, value: str) -> str:
+    """How to write one setting where the case keeps its settings, for a hint."""
+    if raw.kind == "workbook":
+        return f"a row '{key}' with the value '{value}'"
+    return f"{key} = \"{value}\" under the [case] line"
 
 
 def _valid_currency(code: str) -> bool:
@@ -1147,7 +1255,8 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     case : Case or None
         The validated case, or ``None`` when errors were found.
     problems : list of Problem
-        Every error and warning, in file order.
+        Every error and warning: errors first, then warnings, each by file and row
+        (:func:`models.problems.ordered`).
 
     Raises
     ------
@@ -1219,7 +1328,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
     finance_assumptions = _check_finance(raw, settings, problems)
     if "sites" in checkers:
         _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True,
-                     unreadable=raw.unreadable_tariffs)
+                     unreadable=raw.unreadable_tariffs, rejected_profiles=rejected_profiles)
     if "capacitors" in checkers:
         _check_capacitors(checkers["capacitors"], site_ids)
     options_frame = None
@@ -1237,7 +1346,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
     for checker in checkers.values():
         problems.extend(checker.problems)
-    problems = _ordered(_with_toml_lines(raw, problems))
+    problems = ordered(_with_toml_lines(raw, problems))
     if has_errors(problems) or "assets" not in frames or "sites" not in frames or options_frame is None:
         return None, problems
     assets, defaults = _fill_defaults(frames["assets"], duty_ids)
@@ -1295,12 +1404,8 @@ def _with_toml_lines(raw: io.RawCase, problems: list[Problem]) -> list[Problem]:
     return out
 
 
-def _ordered(problems: list[Problem]) -> list[Problem]:
-    """Sort problems by file then row (file-level first), keeping the order of equal keys."""
-    return sorted(problems, key=lambda p: (p.file, -1 if p.row is None else p.row))
-
-
 def _finish(case: Case | None, problems: list[Problem], mode: str) -> tuple[Case | None, list[Problem]]:
+    problems = ordered(problems)  # every path, the early returns too: errors first, then file and row
     if mode == "strict" and has_errors(problems):
         raise CaseError(problems)
     return case, problems

@@ -576,6 +576,10 @@ def read_parquet_table(path: Path, table: str, source: str | None = None) -> tup
     data, problems = read_file(path, source, MAX_FILE_BYTES, "split the profiles over fewer years or assets")
     if data is None:
         return _empty_table(table, source), problems
+    if not data:  # nothing to read: say so, rather than what the Parquet library makes of no bytes
+        return _empty_table(table, source), problems + [
+            error(source, None, None, None, "the file is empty (0 bytes)",
+                  "export the profiles again (Parquet, or CSV as profiles.csv); without profiles, delete the file")]
     try:
         frame = pd.read_parquet(io.BytesIO(data))
     except Exception as exc:  # pyarrow raises several unrelated types for a damaged file
@@ -592,15 +596,27 @@ def read_parquet_table(path: Path, table: str, source: str | None = None) -> tup
 
 def read_toml_file(path: Path, source: str | None = None) -> tuple[dict, list[Problem]]:
     """Read a TOML file into a dict; a syntax error becomes a problem naming the line."""
-    source = source or path.name
+    _text, data, problems = _read_toml(path, source or path.name)
+    return data, problems
+
+
+def _read_toml(path: Path, source: str) -> tuple[str | None, dict, list[Problem]]:
+    """Read a TOML file: its text (None when it could not be read as text), its dict and the problems met."""
     data, problems = read_file(path, source, MAX_TEXT_BYTES, "a settings or tariff file is a few kB: is this the right file?")
     if data is None:
-        return {}, problems
+        return None, {}, problems
     text, more, _ = _decode(data, source)
     problems += more
     if text is None:
-        return {}, problems
-    return parse_toml_text(text, source, problems)
+        return None, {}, problems
+    parsed, problems = parse_toml_text(text, source, problems)
+    return text, parsed, problems
+
+
+#: What to write in an empty ``case.toml`` (docs/case-format.md, "case.toml").
+_CASE_TOML_HINT = ("write the settings under a [case] line: name, currency and time_zone (the sites' IANA zone, "
+                   "e.g. time_zone = \"Europe/Berlin\"); 'drivecase new' writes a filled-in case.toml, "
+                   "docs/case-format.md lists the keys; without case.toml every setting takes its default")
 
 
 def parse_toml_text(text: str, source: str, problems: list[Problem] | None = None,
@@ -860,9 +876,10 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
                                 "the cell holds a formula with no saved result; it was read as blank",
                                 "drivecase never recalculates formulas: open and save the workbook in a spreadsheet "
                                 "program, or paste the values"))
-    if len(blank_formulas) > 20:
-        problems.append(warning(source, None, None, None,
-                                f"{len(blank_formulas) - 20} more formula cells with no saved result were read as blank"))
+    if len(blank_formulas) > 20:  # on the row of the first one it counts, so it follows the rows listed
+        problems.append(warning(source, blank_formulas[20][0], header_text[blank_formulas[20][1]], None,
+                                f"{len(blank_formulas) - 20} more formula cells with no saved result were read as "
+                                "blank, the first of them in this row"))
     cached = sum(1 for (r, c), has in formulas.items() if has and (r in data_rows or r == header_row) and c in header_text)
     if cached:
         problems.append(warning(source, None, None, cached,
@@ -934,7 +951,14 @@ def read_folder(path: Path) -> RawCase:
     used: set[str] = set()
     if "case.toml" in files:
         used.add("case.toml")
-        case.settings, problems = read_toml_file(files["case.toml"], files["case.toml"].name)
+        name = files["case.toml"].name
+        text, case.settings, problems = _read_toml(files["case.toml"], name)
+        if text is not None and not has_errors(problems) and not case.settings:
+            # an empty settings file is an error as an empty table is: the user meant to write settings
+            blank = not text.strip()
+            problems.append(error(name, None, None, None,
+                                  "the file is empty: it holds no settings" if blank else
+                                  "the file holds no settings, only comments", _CASE_TOML_HINT))
         case.problems += problems
     for table in CASE_TABLES:
         csv_path, parquet_path = files.get(f"{table}.csv"), files.get(f"{table}.parquet")
@@ -1123,7 +1147,9 @@ def _template_comments(table: str) -> list[str]:
     lines = [f"# {TABLE_NOTES[table]} Lines starting with # are ignored; delete them or keep them."]
     for row in schema.itertuples(index=False):
         unit = "" if row.unit == "-" else f" [{row.unit}]"
-        need = "required" if row.required == "yes" else ("optional" if row.required == "no" else row.required)
+        need = ("required" if row.required == "yes" else "optional" if row.required == "no"
+                else "required " + row.required.removeprefix("yes, ") if row.required.startswith("yes, when")
+                else row.required)
         allowed = f" Allowed: {row.allowed.replace('|', ', ')}." if row.allowed else ""
         default = f" Default: {row.default}." if row.default else ""
         lines.append(f"# {row.name}{unit} ({need}): {row.description}{allowed}{default}")

@@ -113,6 +113,25 @@ class CaseError(ValueError):
         return head + ("\n" + "\n".join(str(p) for p in errors) if errors else "")
 
 
+def ordered(problems: Iterable[Problem]) -> list[Problem]:
+    """Return problems in the order they are shown and returned: errors before warnings, then by file,
+    then by row (a problem of a whole file or column before the rows of that file).
+
+    The sort is stable: problems with the same key keep the order they were found in. A summary line
+    that counts the rest of a long list ("20 more unreadable timestamps") carries the row of the first
+    one it counts, so it follows the rows it continues. ``models.case.load_case`` returns its problems
+    in this order; fronts show them as given.
+
+    Examples
+    --------
+    >>> found = [warning("a.csv", 3, "x", 1, "w"), error("b.csv", 5, "y", 2, "e2"),
+    ...          error("b.csv", None, "y", None, "e1"), error("a.csv", 9, "x", 3, "e0")]
+    >>> [p.rule for p in ordered(found)]
+    ['e0', 'e1', 'e2', 'w']
+    """
+    return sorted(problems, key=lambda p: (p.severity != "error", p.file, -1 if p.row is None else p.row))
+
+
 def has_errors(problems: Iterable[Problem]) -> bool:
     """Return True when any problem is an error."""
     return any(p.severity == "error" for p in problems)

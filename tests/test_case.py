@@ -201,6 +201,33 @@ class TestAssetRules:
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=[]))
         assert _find(problems, file="assets.csv", text="no rows")
 
+    def test_rating_header_in_watts_is_one_message_with_the_conversion(self, tmp_path):
+        # docs/case-format.md, "Reading rules", Headers: "A header in W (`Rated power (W)`) is one error, whose
+        # hint is the conversion ... no hint suggests renaming such a header alone, which would read watts as
+        # kilowatts". Audit reproduction /tmp/bad/watts: a hint "head it 'rated_p_kw'" beside the conversion.
+        header = ["Rated power (W)" if h == "rated_p_kw" else h for h in cb.ASSET_HEADER]
+        rows = [r[:4] + [str(float(r[4]) * 1000)] + r[5:] for r in cb.ASSETS]  # 15 kW written 15000.0 W
+        case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
+        assert case is None
+        about = [p for p in problems if p.file == "assets.csv" and (p.column in ("Rated power (W)", "rated_p_kw")
+                                                                   or "Rated power (W)" in p.rule + p.hint)]
+        assert len(about) == 1, "\n".join(str(p) for p in about)
+        (p,) = about
+        assert (p.severity, p.row, p.column) == ("error", 1, "Rated power (W)")
+        assert p.rule == "the column 'Rated power (W)' is in W; drivecase reads 'rated_p_kw' in kW"
+        assert p.hint == "divide the values by 1000 and head the column 'rated_p_kw'"
+        assert not [q for q in problems if "head it" in q.hint or "was not recognised" in q.hint]
+
+    def test_a_missing_column_hint_never_offers_a_header_in_watts_as_a_plain_rename(self):
+        # docs/case-format.md, "Reading rules", Headers: the hint naming a likely header for a missing column
+        # gives the conversion when that header is the column in W
+        from models.case import _missing_column_hint
+
+        assert _missing_column_hint("rated_p_kw", ["Rated power (W)"], "assets") == (
+            "the column 'Rated power (W)' is in W: divide its values by 1000 and head it 'rated_p_kw'")
+        assert _missing_column_hint("rated_p_kw", ["Rated pwr"], "assets") == (
+            "the column 'Rated pwr' was not recognised: if it is rated_p_kw, head it 'rated_p_kw'")
+
 
 class TestTariffReferences:
     """A case with tariffs prices every site: a site naming none, or one the case lacks, is an error naming its row."""
@@ -309,6 +336,22 @@ class TestProfileRules:
         _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
         assert _find(problems, file="profiles.csv", row=5, column="shaft_load_pct", text="above 125")
 
+    def test_a_bad_value_names_its_profile_and_timestamp(self, tmp_path):
+        # docs/case-format.md, "Interval profiles": "A problem in a row names the profile and the row's timestamp
+        # as written, besides the row number". casebuilder.profile_rows: data row 4 (line 5) is LP1 at
+        # 2025-01-02 03:00, data row 7 (line 8) LP1 at 2025-01-02 06:00
+        rows = cb.profile_rows()
+        rows[3][2] = "-12.5"
+        rows[6][2] = "#N/A"
+        _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        negative = _find(problems, file="profiles.csv", row=5, column="shaft_load_pct", text="negative")
+        assert negative.rule == "values must not be negative in profile 'LP1' at 2025-01-02 03:00"
+        assert negative.value == -12.5
+        assert str(negative) == ("ERROR profiles.csv, row 5, column 'shaft_load_pct': values must not be negative in "
+                                 "profile 'LP1' at 2025-01-02 03:00 (value: -12.5).")
+        text = _find(problems, file="profiles.csv", row=8, column="shaft_load_pct", text="must be a number")
+        assert text.rule == "'shaft_load_pct' must be a number in profile 'LP1' at 2025-01-02 06:00"
+
     def test_input_kw_profile_above_rating(self, tmp_path):
         # P1 is 15 kW at about 92 % efficiency: 125 % of its rated input is about 20 kW; 40 kW is too much
         rows = [["LP1", f"2025-01-02 {h:02d}:00", "", "40" if h == 3 else "10"] for h in range(24)]
@@ -365,6 +408,83 @@ class TestOtherTables:
     def test_missing_case_path(self, tmp_path):
         case, problems = load_case(tmp_path / "nowhere")
         assert case is None and "does not exist" in problems[0].rule
+
+
+class TestSettings:
+    """docs/case-format.md, "case.toml": the file may be left out (defaults); empty, or comments only, it is an
+    error; with no time_zone declared UTC is assumed, and a tariff in another zone says the case declares none."""
+
+    @staticmethod
+    def _case_with_tariff(tmp_path, case_toml: str | None):
+        folder = cb.write_case(tmp_path / "c")
+        cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["berlin.toml"]])
+        (folder / "tariffs").mkdir()
+        # data/tariffs/example_kva_demand.toml line 10: time_zone = "Europe/Berlin"
+        shutil.copyfile(TARIFFS / "example_kva_demand.toml", folder / "tariffs" / "berlin.toml")
+        if case_toml is None:
+            (folder / "case.toml").unlink()
+        else:
+            (folder / "case.toml").write_text(case_toml, encoding="utf-8")
+        return folder
+
+    def test_an_empty_case_toml_is_an_error_and_the_tariff_zone_message_says_none_is_declared(self, tmp_path):
+        folder = self._case_with_tariff(tmp_path, "")
+        before = hashlib.sha256((folder / "case.toml").read_bytes()).hexdigest()
+        case, problems = load_case(folder)
+        assert case is None
+        empty = _find(problems, file="case.toml", text="empty")
+        assert (empty.row, empty.column, empty.rule) == (None, None, "the file is empty: it holds no settings")
+        assert "[case]" in empty.hint and "time_zone" in empty.hint
+        zone = _find(problems, file="tariffs/berlin.toml", column="tariff.time_zone")
+        assert zone.row == 10 and zone.value == "Europe/Berlin"
+        assert zone.rule == ("the tariff's time zone differs from the case's: case.toml declares no time zone, "
+                             "so UTC is assumed")
+        assert zone.hint.startswith('declare the sites\' zone in case.toml: time_zone = "Europe/Berlin" under the '
+                                    "[case] line")
+        # errors first (models.problems.ordered): the empty file leads, the warnings follow every error
+        assert problems[0] == empty
+        assert [p.severity for p in problems] == sorted(p.severity for p in problems)
+        assert hashlib.sha256((folder / "case.toml").read_bytes()).hexdigest() == before
+
+    def test_a_case_toml_of_comments_only_is_an_error(self, tmp_path):
+        _, problems = load_case(self._case_with_tariff(tmp_path, "# settings to come\n"))
+        assert _find(problems, file="case.toml", text="holds no settings, only comments").row is None
+
+    def test_without_case_toml_the_defaults_apply(self, tmp_path):
+        # the same tariff, no case.toml at all: no error about the file, the zone message as above
+        _, problems = load_case(self._case_with_tariff(tmp_path, None))
+        assert not [p for p in _errors(problems) if p.file == "case.toml"]
+        assert "declares no time zone" in _find(problems, column="tariff.time_zone").rule
+
+    def test_a_declared_zone_keeps_its_message(self, tmp_path):
+        toml = '[case]\nname = "x"\ncurrency = "EUR"\ntime_zone = "Europe/Paris"\n'
+        _, problems = load_case(self._case_with_tariff(tmp_path, toml))
+        zone = _find(problems, column="tariff.time_zone")
+        assert zone.rule == "the tariff's time zone differs from the case time zone Europe/Paris"
+
+
+class TestProblemOrder:
+    """docs/case-format.md, "Reading rules", Problems: errors first, then warnings; within each by file, the
+    whole file or column before its rows, then by row; an "N more ..." line on the row of the first it counts."""
+
+    def test_errors_before_warnings_and_a_summary_after_its_rows(self, tmp_path):
+        header = cb.ASSET_HEADER + ["colour"]  # an unknown column: a warning of assets.csv, a file before profiles.csv
+        assets = [r + ["blue"] for r in cb.ASSETS]
+        rows = cb.profile_rows()
+        for k in range(1, 26):  # 25 unreadable timestamps, data rows k = 1-25 on lines k + 2 = 3-27: the first 20
+            rows[k][1] = f"{k:02d}.01.2025 00:00"  # listed (lines 3-22), the other 5 counted on line 23 (k = 21)
+        _, problems = load_case(cb.write_case(tmp_path / "c", assets=assets, asset_header=header, profiles=rows))
+        severities = [p.severity for p in problems]
+        assert severities == sorted(severities) and "warning" in severities  # "error" < "warning"
+        stamps = [p for p in problems if p.file == "profiles.csv" and p.column == "timestamp"
+                  and "readable" in p.rule]
+        assert [p.row for p in stamps] == list(range(3, 24))
+        summary = stamps[-1]
+        assert summary.rule == "5 more unreadable timestamps, the first of them in this row"
+        assert (summary.row, summary.value) == (23, "21.01.2025 00:00")
+        assert problems.index(summary) == problems.index(stamps[-2]) + 1
+        unknown = _find(problems, file="assets.csv", column="colour", severity="warning")
+        assert problems.index(unknown) > max(problems.index(p) for p in _errors(problems))
 
 
 class TestDefaults:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+from pathlib import Path
 
 import pytest
 from numpy.testing import assert_allclose
@@ -103,3 +104,80 @@ def test_parquet_profiles_equal_csv_profiles(tmp_path):
     case_csv, _ = load_case(cb.write_case(tmp_path / "d"))
     assert_allclose(case_pq.profiles["LP1"].to_numpy(), case_csv.profiles["LP1"].to_numpy())
     assert (case_pq.profiles["LP1"].index == case_csv.profiles["LP1"].index).all()
+
+
+def test_decimal_commas_of_a_semicolon_file_are_one_warning_per_column(tmp_path):
+    # docs/case-format.md, "Reading rules", Numbers: "A column with several such repairs gets one warning, not
+    # one per cell: it says how many cells were repaired and shows the first few rows with their values".
+    # Audit reproduction /tmp/bad/excel (Excel's European CSV): 72 warnings, one per cell, for 82 motors.
+    folder = cb.write_case(tmp_path / "c")
+    header = cb.ASSET_HEADER
+    pf, kw = header.index("rated_power_factor"), header.index("rated_p_kw")
+    rows = [list(r) for r in cb.ASSETS]
+    for row, factor in zip(rows, ("0,85", "0,82", "0,88")):  # every motor's power factor with a decimal comma
+        row[pf] = factor
+    rows[1][kw] = "7,5"  # and one rating: a single repaired cell keeps its own row
+    lines = [";".join(header)] + [";".join(r) for r in rows]
+    (folder / "assets.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems]
+    assert_allclose(case.assets["rated_power_factor"], [0.85, 0.82, 0.88])
+    repairs = [p for p in problems if "decimal comma" in p.rule]
+    assert [(p.row, p.column) for p in repairs] == [(None, "rated_power_factor"), (3, "rated_p_kw")]
+    assert repairs[0].severity == "warning" and repairs[0].rule == (
+        "decimal comma read as a decimal point in 3 cells of this column: rows 2 ('0,85'), 3 ('0,82'), 4 ('0,88')")
+    assert repairs[1].rule == "decimal comma read as a decimal point" and repairs[1].value == "7,5"
+
+
+def test_an_empty_parquet_profile_file_says_it_is_empty(tmp_path):
+    # docs/case-format.md, "Interval profiles": "An empty `profiles.parquet` (0 bytes) is an error saying so";
+    # references to the unread profiles are not reported again. Audit reproduction /tmp/bad/empty_profiles_parquet
+    # said "the file cannot be read as Parquet (ArrowInvalid)".
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "profiles.csv").unlink()
+    (folder / "profiles.parquet").write_bytes(b"")
+    case, problems = load_case(folder)
+    assert case is None
+    errors = [p for p in problems if p.severity == "error"]
+    assert [(p.file, p.row, p.column, p.rule) for p in errors] == [
+        ("profiles.parquet", None, None, "the file is empty (0 bytes)")]
+    assert (folder / "profiles.parquet").read_bytes() == b""
+
+
+def test_a_bad_parquet_value_names_its_profile_and_timestamp(tmp_path):
+    # docs/case-format.md, "Interval profiles": "A problem in a row names the profile and the row's timestamp as
+    # written, besides the row number". Parquet rows are numbered as a spreadsheet would show them (first data
+    # row 2), so casebuilder.profile_rows' 4th row (LP1, 2025-01-02 03:00 in Europe/Berlin, UTC+1 in January) is
+    # row 5. Audit reproduction /tmp/bad/profneg named only "row 1002".
+    import pandas as pd
+
+    folder = cb.write_case(tmp_path / "c")
+    frame = pd.read_csv(folder / "profiles.csv")
+    frame["timestamp"] = pd.to_datetime(frame["timestamp"]).dt.tz_localize("Europe/Berlin")
+    frame["shaft_load_pct"] = frame["shaft_load_pct"].astype(float)
+    frame.loc[3, "shaft_load_pct"] = -12.5
+    (folder / "profiles.csv").unlink()
+    frame.to_parquet(folder / "profiles.parquet")
+    _, problems = load_case(folder)
+    p = _find(problems, "negative", "error")
+    assert (p.file, p.row, p.column, p.value) == ("profiles.parquet", 5, "shaft_load_pct", -12.5)
+    assert p.rule == "values must not be negative in profile 'LP1' at 2025-01-02 03:00:00+01:00"
+
+
+def test_blank_case_says_when_a_site_needs_a_tariff(tmp_path):
+    # docs/case-format.md, "Sites": tariff_file is required "yes, when the case has tariffs" (a site without one
+    # is an error in a case that has tariffs). The blank template said "# tariff_file (optional)".
+    from openpyxl import load_workbook
+
+    from models.io import write_blank_case
+
+    write_blank_case(tmp_path / "new")
+    notes = [line for line in (tmp_path / "new" / "sites.csv").read_text(encoding="utf-8").splitlines()
+             if line.startswith("# tariff_file")]
+    assert len(notes) == 1 and notes[0].startswith("# tariff_file (required when the case has tariffs): ")
+    assert "A site without one is an error when the case has tariffs" in notes[0] and "optional" not in notes[0]
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "case-format.md").read_text(encoding="utf-8")
+    assert "| `tariff_file` | - | yes, when the case has tariffs |" in doc
+    book = load_workbook(write_blank_case(tmp_path / "new.xlsx")[0], read_only=True)
+    rows = [r for r in book["instructions"].iter_rows(values_only=True) if r[:2] == ("sites", "tariff_file")]
+    assert rows and rows[0][3] == "yes, when the case has tariffs"

@@ -1,0 +1,35 @@
+"""Problem records: the order in which every front shows them."""
+
+from __future__ import annotations
+
+from models.problems import error, ordered, warning
+
+
+def test_errors_come_before_warnings_then_file_then_row_stably():
+    # docs/case-format.md, "Reading rules", Problems: "listed errors first, then warnings; within each, by file,
+    # then a problem of the whole file or column before the rows, then by row"
+    found = [
+        warning("assets.csv", None, "colour", None, "unknown column 'colour' was ignored"),
+        error("sites.csv", 3, "site_id", "S1", "duplicate site_id"),
+        error("assets.csv", 4, "poles", "5", "poles must be an even number"),
+        warning("assets.csv", 2, "rated_p_kw", "7,5", "decimal comma read as a decimal point"),
+        error("assets.csv", None, "poles", None, "required column 'poles' is missing"),
+        error("assets.csv", 4, "rated_v_v", "4", "'rated_v_v' must lie between 100 and 15000 V"),
+    ]
+    assert [(p.severity, p.file, p.row, p.column) for p in ordered(found)] == [
+        ("error", "assets.csv", None, "poles"),
+        ("error", "assets.csv", 4, "poles"),       # same row: the order found is kept
+        ("error", "assets.csv", 4, "rated_v_v"),
+        ("error", "sites.csv", 3, "site_id"),
+        ("warning", "assets.csv", None, "colour"),
+        ("warning", "assets.csv", 2, "rated_p_kw"),
+    ]
+
+
+def test_a_summary_line_follows_the_rows_it_continues():
+    # docs/case-format.md, "Reading rules", Problems: the "N more ..." line "stands on the row of the first one it
+    # counts, after the rows listed" (models.case._listed gives it that row)
+    listed = [error("profiles.csv", r, "timestamp", "x", "timestamp not readable") for r in (2, 3)]
+    summary = error("profiles.csv", 4, "timestamp", "x", "7 more unreadable timestamps, the first of them in this row")
+    other = error("profiles.csv", None, None, None, "no value column: give shaft_load_pct or input_kw")
+    assert ordered([summary, *reversed(listed), other]) == [other, *listed, summary]
