@@ -509,6 +509,69 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     return _line_or_drive(arr, new, load, np.asarray(shaft, dtype=float))
 
 
+#: Year before which a winding is taken as built without converter-duty insulation (common practice: such
+#: ratings spread through the 1990s; a value from memory, used only to word the caution below).
+DRIVE_INSULATION_YEAR = 2000
+
+
+def drive_on_existing_motor_caution(year_installed, rewind_count) -> list[str]:
+    """The caution of a drive added to an existing motor, one text per motor.
+
+    Parameters
+    ----------
+    year_installed : array_like of float
+        Year each motor was installed (NaN when not known).
+    rewind_count : array_like of float
+        Rewinds so far (NaN when not known).
+
+    Returns
+    -------
+    list of str
+        A caution for every motor; for one installed before :data:`DRIVE_INSULATION_YEAR`, rewound, or of
+        unknown age it says why that motor is most at risk.
+
+    Notes
+    -----
+    A drive's fast-rising voltage pulses stress the winding's turn-to-turn insulation beyond what a sine
+    supply does, and its common-mode voltage drives currents through the bearings. A winding not rated
+    for converter supply (an older motor, or one rewound without converter-grade insulation) may fail
+    early on a drive unless an output filter is fitted; bearings may need insulation or a shaft grounding
+    ring [1]_ [2]_ [3]_.
+
+    References
+    ----------
+    .. [1] IEC TS 60034-25:2014, *Rotating electrical machines - Part 25: AC electrical machines used in
+       power drive systems - Application guide* (cited from memory).
+    .. [2] IEC 60034-18-41:2014, *Partial discharge free electrical insulation systems (Type I) used in
+       rotating electrical machines fed from voltage converters* (cited from memory).
+    .. [3] NEMA MG 1-2016, Part 31, *Definite-purpose inverter-fed polyphase motors* (cited from memory).
+
+    Examples
+    --------
+    >>> texts = drive_on_existing_motor_caution([1996.0, 2015.0], [2.0, 0.0])
+    >>> texts[0].split(":")[0]
+    'drive on an existing motor (installed 1996, rewound 2 times)'
+    >>> texts[1].split(":")[0]
+    'drive on an existing motor'
+    """
+    year = np.asarray(year_installed, dtype=float)
+    rewinds = np.asarray(rewind_count, dtype=float)
+    out = []
+    for y, r in zip(year.ravel(), rewinds.ravel()):
+        why = []
+        if not np.isfinite(y):
+            why.append("age not known")
+        elif y < DRIVE_INSULATION_YEAR:
+            why.append(f"installed {int(y)}")
+        if np.isfinite(r) and r > 0:
+            why.append("rewound once" if r == 1 else f"rewound {int(r)} times")
+        head = "drive on an existing motor" + (f" ({', '.join(why)})" if why else "")
+        out.append(f"{head}: have a qualified person confirm its winding insulation is fit for converter supply "
+                   "(else an output filter) and its bearings are protected from shaft currents before buying"
+                   + ("; an older or rewound winding is the most at risk" if why else ""))
+    return out
+
+
 #: Flag of a synchronous-speed machine whose load goes beyond its rating.
 _OVERLOAD_TEXT = "at synchronous speed the load exceeds the motor rating in some intervals: size up or remedy the speed"
 
@@ -1312,6 +1375,14 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                     continue
             run(o, option, kind, rows_, sub, arr_s, existing_s, load,
                 follows_site=option["technology"] == "wound_field" and kind == "interval")
+    # a drive added to an existing motor: the motor's insulation and bearings must suit it (load-independent)
+    for o in range(1, 1 if only_today else n_o):
+        if option_rows[o]["technology"] != "add_drive" or needed is not None or (wanted is not None and o not in wanted):
+            continue
+        on = np.flatnonzero(applies[:, o])
+        texts = drive_on_existing_motor_caution(a["year_installed"].to_numpy(dtype=float)[on],
+                                                a["rewind_count"].to_numpy(dtype=float)[on])
+        flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": text} for i, text in zip(on, texts))
     # options that do not apply repeat today's values
     for o in range(1, 1 if only_today else n_o):
         if wanted is not None and o not in wanted:

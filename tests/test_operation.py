@@ -116,6 +116,23 @@ class TestDemoFleet:
         assert (result.q_kvar[o, rows] <= result.q_kvar[0, rows] + 1e-9).all()
         assert (result.capacitor_q_kvar[rows, o] > 0).all()
 
+    def test_a_drive_added_to_an_existing_motor_carries_the_insulation_caution(self, result, demo_case):
+        """Every asset the added-drive option applies to gets one caution for it (insulation fit for converter
+        supply, bearing currents: IEC TS 60034-25 and NEMA MG 1 Part 31 guidance, cited from memory), worded
+        for its age and rewinds; no other option gets it."""
+        o = result.option_position("add_drive")
+        flags = result.flags
+        drive = flags[flags["flag"].str.startswith("drive on an existing motor")]
+        assert set(drive["option_id"]) == {"add_drive"}
+        applies = set(demo_case.assets["asset_id"][result.applies[:, o]])
+        assert len(applies) > 0 and set(drive["asset_id"]) == applies and len(drive) == len(applies)
+        assert drive["flag"].str.contains("qualified person confirm its winding insulation").all()
+        a = demo_case.assets.set_index("asset_id")
+        for asset_id, text in zip(drive["asset_id"], drive["flag"]):  # the reasons named are the register's
+            old, rewound = a.at[asset_id, "year_installed"] < 2000, a.at[asset_id, "rewind_count"] > 0
+            assert (f"installed {int(a.at[asset_id, 'year_installed'])}" in text) == bool(old)
+            assert ("rewound" in text.split(":")[0]) == bool(rewound)
+
     def test_never_a_capacitor_on_a_drive(self, result, demo_case):
         o = result.option_position("capacitor")
         on_drive = demo_case.assets["speed_control"].to_numpy() == "drive"
