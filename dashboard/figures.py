@@ -315,33 +315,55 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
     shapes = [REMEDY_PATTERNS.get(r, "") for r in remedy]
     hover = [f"mean {s:,.1f} rpm; today {today_rpm:,.1f} rpm<br>change {c:+,.1f} rpm ({p:+.2f} %)<br>{name}"
              for s, c, p, name in zip(speed, change, change_pct, options["speed_remedy"])]
-    fig = make_subplots(rows=1, cols=2, horizontal_spacing=0.14,
+    # options down the shared vertical axis, their names wrapped: long names stay readable in a half-width panel
+    names = [wrap_label(str(label)) for label in options["label"]]
+    fig = make_subplots(rows=1, cols=2, shared_yaxes=True, horizontal_spacing=0.08,
                         subplot_titles=("Mean speed against today's motor", "Input energy"))
     # one hatching colour (the browser's chart library cannot take one per bar there; the bar colours stay)
     hatch = dict(shape=shapes, fgcolor=HATCH, fillmode="overlay")
-    fig.add_trace(go.Bar(x=options["label"], y=change, marker=dict(color=bar_colours, pattern=hatch),
+    fig.add_trace(go.Bar(y=names, x=change, orientation="h", marker=dict(color=bar_colours, pattern=hatch),
                          customdata=hover, showlegend=False, name="speed change",
-                         hovertemplate="%{x}<br>%{customdata}<extra></extra>"), row=1, col=1)
-    fig.add_trace(go.Bar(x=options["label"], y=options["energy_kwh_per_yr"] / 1000.0, showlegend=False, name="input energy",
-                         marker=dict(color=bar_colours, pattern=hatch),
-                         hovertemplate="%{x}<br>%{y:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
+                         hovertemplate="%{y}<br>%{customdata}<extra></extra>"), row=1, col=1)
+    fig.add_trace(go.Bar(y=names, x=options["energy_kwh_per_yr"] / 1000.0, orientation="h", showlegend=False,
+                         name="input energy", marker=dict(color=bar_colours, pattern=hatch),
+                         hovertemplate="%{y}<br>%{x:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
     for code in dict.fromkeys(remedy):  # the key to the hatching (no data of its own)
         name = str(options.loc[remedy == code, "speed_remedy"].iloc[0])
-        fig.add_trace(go.Bar(x=[None], y=[None], name=name, legendgroup=str(code), hoverinfo="skip",
+        fig.add_trace(go.Bar(x=[None], y=[None], orientation="h", name=name, legendgroup=str(code), hoverinfo="skip",
                              marker=dict(color="white", line=dict(color=MUTED, width=1),
                                          pattern=dict(shape=REMEDY_PATTERNS.get(code, ""), fgcolor=MUTED))),
                       row=1, col=1)
-    fig.add_hline(y=0, line=dict(color=INK, width=1), row=1, col=1)
+    fig.add_vline(x=0, line=dict(color=INK, width=1), row=1, col=1)
     if np.all(np.abs(change[np.isfinite(change)]) < SAME_SPEED_RPM):
         fig.add_annotation(text=f"every option runs at today's {today_rpm:,.0f} rpm", xref="x domain", yref="y domain",
-                           x=0.5, y=0.6, showarrow=False, font=dict(size=12, color=MUTED))
-    fig.update_yaxes(title_text="Speed change [rpm]", zeroline=True, row=1, col=1)
-    fig.update_yaxes(title_text="Energy [MWh/yr]", row=1, col=2)
-    fig.update_xaxes(tickangle=-30, categoryorder="array", categoryarray=list(options["label"]))
+                           x=0.5, y=0.5, showarrow=False, font=dict(size=12, color=MUTED))
+    fig.update_xaxes(title_text="Speed change [rpm]", zeroline=True, row=1, col=1)
+    fig.update_xaxes(title_text="Energy [MWh/yr]", row=1, col=2)
+    # today's motor first, at the top
+    fig.update_yaxes(categoryorder="array", categoryarray=names, autorange="reversed", automargin=True)
     fig.update_layout(barmode="group")
-    fig = _style(fig, "", height=460)
-    fig.update_layout(legend=dict(y=1.1), margin=dict(t=80, b=140))
+    fig = _style(fig, "", height=max(360, 150 + 44 * len(names)))
+    fig.update_layout(legend=dict(y=1.08), margin=dict(t=90, b=56))
     return fig
+
+
+def wrap_label(text: str, width: int = 24) -> str:
+    """A label broken into lines of at most about ``width`` characters at spaces (``<br>`` between them).
+
+    Examples
+    --------
+    >>> wrap_label("Line-start PM motor + impeller trim or pulley")
+    'Line-start PM motor +<br>impeller trim or pulley'
+    >>> wrap_label("IE4")
+    'IE4'
+    """
+    lines: list[str] = []
+    for word in text.split():
+        if lines and len(lines[-1]) + 1 + len(word) <= width:
+            lines[-1] += " " + word
+        else:
+            lines.append(word)
+    return "<br>".join(lines) if lines else text
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -166,8 +166,8 @@ class TestAsset:
                                 "mean_speed_rpm": [1470.0, 1500.0, 1470.0, 1300.0],
                                 "energy_kwh_per_yr": [100000.0, 104000.0, 95000.0, 70000.0]})
         fig = figures.speed_energy(options)
-        energy = [t for t in fig.data if t.yaxis == "y2"]
-        got = {x: y for t in energy for x, y in zip(t.x, t.y)}
+        energy = [t for t in fig.data if t.xaxis == "x2"]  # options down the side, values across
+        got = {y: x for t in energy for x, y in zip(t.x, t.y)}
         assert got == pytest.approx({"Keep": 100.0, "LSPM": 104.0, "LSPM + trim": 95.0, "Drive": 70.0})  # MWh/yr
         assert {t.name for t in fig.data if t.showlegend is not False} == {
             "none (the load follows the speed)", "impeller trim or pulley", "held by a drive"}
@@ -175,7 +175,11 @@ class TestAsset:
         assert list(fig.data[0].marker.pattern.shape) == ["", "", "/", "x"]
         assert len(set(fig.data[0].marker.color)) == 4
         t = titles(fig)
-        assert t["yaxis"] == "Speed change [rpm]" and t["yaxis2"] == "Energy [MWh/yr]"
+        assert t["xaxis"] == "Speed change [rpm]" and t["xaxis2"] == "Energy [MWh/yr]"
+        # a long option name is wrapped, not written over its neighbours (user report: overlapping labels)
+        long = figures.speed_energy(options.assign(label=["Keep as is", "Line-start PM motor",
+                                                           "Line-start PM motor + impeller trim or pulley", "Drive"]))
+        assert list(long.data[0].y)[2] == "Line-start PM motor +<br>impeller trim or pulley"
 
     def test_speed_change_against_today_from_zero(self):
         # a 4-pole fan at 1,490 rpm: a lower-slip motor at 1,496 rpm (+6 rpm, +0.40 %), a drive at 1,200 rpm
@@ -186,9 +190,10 @@ class TestAsset:
                                 "mean_speed_rpm": [1490.0, 1496.0, 1200.0], "energy_kwh_per_yr": [1e5, 1.01e5, 6e4]})
         fig = figures.speed_energy(options)
         speed = fig.data[0]
-        np.testing.assert_allclose(np.asarray(speed.y, dtype=float), [0.0, 6.0, -290.0], atol=1e-9)  # exact differences
-        assert fig.layout.yaxis.range is None  # the axis is not cut: the bars start at the zero line
-        assert any(s.type == "line" and s.y0 == 0 and s.y1 == 0 for s in fig.layout.shapes)
+        np.testing.assert_allclose(np.asarray(speed.x, dtype=float), [0.0, 6.0, -290.0], atol=1e-9)  # exact differences
+        assert speed.orientation == "h"
+        assert fig.layout.xaxis.range is None  # the axis is not cut: the bars start at the zero line
+        assert any(s.type == "line" and s.x0 == 0 and s.x1 == 0 for s in fig.layout.shapes)
         assert "mean 1,496.0 rpm; today 1,490.0 rpm" in speed.customdata[1] and "+6.0 rpm (+0.40 %)" in speed.customdata[1]
         # no option changes the speed: said in words over the empty panel
         same = figures.speed_energy(options.assign(mean_speed_rpm=1490.0))

@@ -47,7 +47,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                            className="panel half"),
                   html.Div([html.H3("Speed change and its remedies"),
                             html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
-                                   "more power; trimming the impeller, changing the pulley or a drive holds the speed.",
+                                   "more power. An impeller trim or a pulley change takes the extra flow and power "
+                                   "back (the motor itself still turns faster, as shown); a drive holds the speed.",
                                    className="page-intro"),
                             ui.graph(SPEED)], className="panel half")], className="row"),
         html.H3("Data quality"),
