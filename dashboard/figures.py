@@ -347,6 +347,25 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
     return fig
 
 
+def money_short(value: float, currency: str) -> str:
+    """Money in three significant figures for a label, as the dashboard's cards write it: ``EUR 8.42 M``,
+    ``EUR 48.2 k``, ``EUR 950`` (``-`` when not finite).
+
+    Examples
+    --------
+    >>> money_short(8424191.0, "EUR"), money_short(-48213.0, "EUR"), money_short(950.4, "EUR")
+    ('EUR 8.42 M', 'EUR -48.2 k', 'EUR 950')
+    """
+    v = float(value)
+    if not np.isfinite(v):
+        return "-"
+    if abs(v) >= 1e6:
+        return f"{currency} {v / 1e6:,.2f} M"
+    if abs(v) >= 1e4:
+        return f"{currency} {v / 1e3:,.1f} k"
+    return f"{currency} {v:,.0f}"
+
+
 def wrap_label(text: str, width: int = 24) -> str:
     """A label broken into lines of at most about ``width`` characters at spaces (``<br>`` between them).
 
@@ -572,8 +591,8 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
     fig.add_vline(x=base, line=dict(color=INK, width=1))  # the centre line, named in the axis title (no label over the legend)
     fig.update_layout(barmode="overlay")
     # two lines: one would run past a half-width panel
-    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre line: every asset's best option, "
-                                f"no budget, {base:,.0f} {currency}")
+    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: each asset's best option, "
+                                f"no budget, {money_short(base, currency)}")
     fig.update_yaxes(title_text="Varied input", automargin=True)
     fig = _style(fig, "Sensitivity (tornado)", height=420)
     fig.update_layout(margin=dict(b=76))
@@ -627,7 +646,7 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
     for value, name, dash_, side in ((p10, "P10", "dot", "top left"), (p50, "P50", "solid", "top right"),
                                      (p90, "P90", "dot", "top right")):
         fig.add_vline(x=value, line=dict(color=AFTER, width=2, dash=dash_),
-                      annotation_text=f"{name} {value:,.0f}", annotation_position=side)
+                      annotation_text=f"{name} {money_short(value, currency)}", annotation_position=side)
     if draws.min() < 0 < draws.max():
         fig.add_vline(x=0, line=dict(color=INK, width=1))
     share = float((draws > 0).mean())

@@ -282,9 +282,14 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(low.base, [100.0, 100.0])
         np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
         np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
-        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre line: every asset's best option, "
-                                        "no budget, 100 EUR")
-        assert max(len(line) for line in titles(fig)["xaxis"].split("<br>")) <= 60  # fits a half-width panel
+        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre: each asset's best option, "
+                                        "no budget, EUR 100")
+        # a fleet-sized centre value in the cards' short form, so the line still fits a half-width panel at
+        # 1366 px (user report: "... 8,424,191" cut off); 8,424,191 / 1e6 = 8.42 by hand
+        big = figures.tornado(rows.assign(base_npv=8424191.0), "EUR")
+        assert titles(big)["xaxis"].endswith("no budget, EUR 8.42 M")
+        for f in (fig, big):
+            assert max(len(line) for line in titles(f)["xaxis"].split("<br>")) <= 60  # fits a half-width panel
         assert not fig.layout.annotations  # nothing written over the legend
 
     def test_risk_ranges_top_n(self):
@@ -305,6 +310,10 @@ class TestPlanAndRisk:
         marks = sorted(shape.x0 for shape in fig.layout.shapes)
         # numpy percentile, linear rule, by hand: P10 = 1 + 0.1 * 99 = 10.9, P50 = 50.5, P90 = 90.1
         np.testing.assert_allclose(marks, [10.9, 50.5, 90.1])
+        # the marks' labels in three significant figures (user report: "P10 6,770,098" too many digits)
+        assert [a.text for a in fig.layout.annotations] == ["P10 EUR 11", "P50 EUR 50", "P90 EUR 90"]
+        fleet = figures.fleet_npv_histogram(draws * 1e5, "EUR")  # P10 = 1.09e6, P50 = 5.05e6, P90 = 9.01e6 by hand
+        assert [a.text for a in fleet.layout.annotations] == ["P10 EUR 1.09 M", "P50 EUR 5.05 M", "P90 EUR 9.01 M"]
         assert "P(NPV > 0) = 100%" in fig.layout.title.text and titles(fig)["xaxis"] == "Fleet NPV [EUR]"
 
     def test_fleet_npv_histogram_empty(self):
@@ -313,3 +322,16 @@ class TestPlanAndRisk:
     @pytest.mark.parametrize("builder", [figures.tornado, figures.risk_ranges])
     def test_empty(self, builder):
         assert not builder(pd.DataFrame(), "EUR").data
+
+
+def test_uncertainty_table_shows_probabilities_in_per_cent():
+    """P(NPV > 0) and P(payback <= 3 yr) are held as fractions (0-1) and shown in whole per cent (user report:
+    "P(NPV > 0) [-] 1.00"); the formatter multiplies by 100 (0.973 -> 97, by hand)."""
+    from dashboard import app  # noqa: F401  (the pages register themselves with the app)
+    from dashboard.pages import risk
+
+    cols = {c["field"]: c for c in risk.columns("EUR")}
+    for field, header in (("prob_npv_positive_frac", "P(NPV > 0) [%]"),
+                          ("prob_payback_within_target_frac", "P(payback <= 3 yr) [%]")):
+        assert cols[field]["headerName"] == header
+        assert "d3.format(',.0f')(100 * params.value)" in cols[field]["valueFormatter"]["function"]

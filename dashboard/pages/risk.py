@@ -40,9 +40,15 @@ def columns(currency: str) -> list[dict]:
     return [ui.text_col("asset_id", "Asset"), ui.text_col("label", "Option", minWidth=200),
             ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
             ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
-            ui.number_col("prob_npv_positive_frac", "P(NPV > 0) [-]", 2),
+            percent_col("prob_npv_positive_frac", "P(NPV > 0) [%]"),
             ui.number_col("payback_p50_yr", "Simple payback P50 [yr]", 1),
-            ui.number_col("prob_payback_within_target_frac", "P(payback <= 3 yr) [-]", 2)]
+            percent_col("prob_payback_within_target_frac", "P(payback <= 3 yr) [%]")]
+
+
+def percent_col(field: str, header: str) -> dict:
+    """A probability held as a fraction (0-1) shown in whole per cent (``0.973`` as ``97``)."""
+    return ui.number_col(field, header) | {"valueFormatter": {"function": (
+        "(params.value == null || !isFinite(params.value)) ? '' : d3.format(',.0f')(100 * params.value)")}}
 
 
 @callback(Output(TORNADO, "figure"), Output(RANGES, "figure"), Output(TABLE, "rowData"), Output(TABLE, "columnDefs"),
