@@ -1087,28 +1087,70 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
     s["base_power_factor"] = s["base_power_factor"].fillna(0.9)
 
 
-def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
-    """Warn where a site's demand charge takes shorter windows than its motors' profiles resolve: each
-    profile interval is then read as one window, which averages the peak away (docs/tariffs.md,
-    "Modelling limits")."""
+def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: dict,
+                           profile_info) -> dict[str, tuple[int, list[int], int]]:
+    """Sites whose demand charge takes shorter windows than their motors' profiles resolve.
+
+    Parameters
+    ----------
+    sites, assets : pandas.DataFrame
+        The case's sites (site_id, tariff_file) and assets (site_id, profile_id).
+    tariffs : dict of str -> models.tariff.Tariff
+        The case's tariffs by file name.
+    profile_info : pandas.DataFrame
+        One row per profile with profile_id and resolution_min (:attr:`Case.profile_info`).
+
+    Returns
+    -------
+    dict
+        site_id -> (the shortest demand window [min], the coarser profile resolutions [min], sorted, and
+        the number of the site's motors with such a profile). Each such profile interval is read as one
+        demand window, which averages the peak away and understates the demand charge and its savings
+        (docs/tariffs.md, "Modelling limits").
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> tariff = SimpleNamespace(demand=[SimpleNamespace(window_min=15)])
+    >>> coarse_demand_profiles(pd.DataFrame({"site_id": ["S"], "tariff_file": ["t.toml"]}),
+    ...                        pd.DataFrame({"site_id": ["S", "S"], "profile_id": ["a", "b"]}), {"t.toml": tariff},
+    ...                        pd.DataFrame({"profile_id": ["a", "b"], "resolution_min": [60, 15]}))
+    {'S': (15, [60], 1)}
+    """
+    found: dict[str, tuple[int, list[int], int]] = {}
     if not isinstance(profile_info, pd.DataFrame) or profile_info.empty or "profile_id" not in assets:
-        return
+        return found
     resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
-    s = sites.frame
-    for i in range(len(s)):
-        tariff = tariffs.get(s["tariff_file"].iloc[i]) if s["tariff_file"].iloc[i] is not None else None
+    for site_id, tariff_file in zip(sites["site_id"], sites["tariff_file"]):
+        tariff = tariffs.get(tariff_file) if tariff_file is not None else None
         windows = [d.window_min for d in getattr(tariff, "demand", ())]
         if not windows:
             continue
         window = min(windows)
-        own = assets.loc[assets["site_id"] == s["site_id"].iloc[i], "profile_id"].dropna()
-        coarse = sorted({int(resolution[p]) for p in own if p in resolution and resolution[p] > window})
-        if coarse:
-            n = int(sum(1 for p in own if p in resolution and resolution[p] > window))
-            sites.warn(i, "tariff_file", s["tariff_file"].iloc[i],
-                       f"the tariff's demand charge takes {window}-min windows, but {n} motor(s) of the site have "
-                       f"{'/'.join(map(str, coarse))}-min profiles: each interval is read as one window, which "
-                       "understates the demand peak and its savings",
+        own = [p for p in assets.loc[assets["site_id"] == site_id, "profile_id"].dropna()
+               if p in resolution and resolution[p] > window]
+        if own:
+            found[str(site_id)] = (int(window), sorted({int(resolution[p]) for p in own}), len(own))
+    return found
+
+
+def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int) -> str:
+    """The caution of :func:`coarse_demand_profiles`, in words (the case check's and the Site meter page's)."""
+    return (f"the tariff's demand charge takes {window_min}-min windows, but {n_motors} motor(s) of the site have "
+            f"{'/'.join(map(str, coarse_min))}-min profiles: each interval is read as one window, which "
+            "understates the demand peak and its savings")
+
+
+def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
+    """Warn where a site's demand charge takes shorter windows than its motors' profiles resolve
+    (:func:`coarse_demand_profiles`)."""
+    s = sites.frame
+    found = coarse_demand_profiles(s, assets, tariffs, profile_info)
+    for i in range(len(s)):
+        site_id = str(s["site_id"].iloc[i])
+        if site_id in found:
+            window, coarse, n = found[site_id]
+            sites.warn(i, "tariff_file", s["tariff_file"].iloc[i], demand_window_text(window, coarse, n),
                        f"log the largest motors at {window}-min resolution where the demand charge matters")
 
 
