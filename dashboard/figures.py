@@ -24,9 +24,10 @@ AFTER = "#237a87"
 GAIN = "#237a87"
 COST = "#c27a3a"
 BUDGET = "#7c4f8f"
-#: Colours of options, in catalogue order.
-OPTION_COLOURS = ("#5b6b7a", "#237a87", "#c27a3a", "#6a8d4f", "#8b6aa6", "#b35b52", "#4e79ac",
-                  "#a58a2b", "#3e9c8c", "#94694b", "#7d8fa8", "#556b2f")
+#: Today's motor in slate grey, then the CARTOColors "Safe" qualitative palette (plotly.colors.qualitative.Safe,
+#: made to stay apart for colour-vision deficiencies) without its grey: eleven options told apart at a glance.
+OPTION_COLOURS = ("#5b6b7a", "#88ccee", "#cc6677", "#ddcc77", "#117733", "#332288", "#aa4499", "#44aa99",
+                  "#999933", "#882255", "#661100")
 #: Colours of life-cycle cost components.
 LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a", "maintenance": "#6a8d4f"}
 #: Colours of bill line-item categories.

@@ -568,7 +568,7 @@ def drive_on_existing_motor_caution(year_installed, rewind_count) -> list[str]:
         head = "drive on an existing motor" + (f" ({', '.join(why)})" if why else "")
         out.append(f"{head}: have a qualified person confirm its winding insulation is fit for converter supply "
                    "(else an output filter) and its bearings are protected from shaft currents before buying"
-                   + ("; an older or rewound winding is the most at risk" if why else ""))
+                   + (" (an older or rewound winding is the most at risk)" if why else ""))
     return out
 
 

@@ -335,3 +335,18 @@ def test_uncertainty_table_shows_probabilities_in_per_cent():
                           ("prob_payback_within_target_frac", "P(payback <= 3 yr) [%]")):
         assert cols[field]["headerName"] == header
         assert "d3.format(',.0f')(100 * params.value)" in cols[field]["valueFormatter"]["function"]
+
+
+def test_option_colours_stay_apart():
+    """The eleven options of the default catalogue get colours at least 55 apart in RGB (Euclidean, 0-255 per
+    channel; computed by hand from the hex codes: the closest pair, #cc6677 and #aa4499, is 59 apart).
+    A user could not tell 'Rewind' from 'Add a drive' with the earlier palette (#237a87 / #3e9c8c: 44)."""
+    import itertools
+
+    def rgb(code: str) -> tuple[int, int, int]:
+        return tuple(int(code[i:i + 2], 16) for i in (1, 3, 5))
+
+    colours = figures.OPTION_COLOURS[:11]
+    assert len(set(colours)) == 11
+    closest = min(sum((a - b) ** 2 for a, b in zip(rgb(x), rgb(y))) ** 0.5 for x, y in itertools.combinations(colours, 2))
+    assert closest >= 55
