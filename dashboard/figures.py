@@ -565,7 +565,7 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
                            textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_xaxes(title_text="Plan")
     fig.update_yaxes(title_text=f"NPV at plan start [{currency}]", rangemode="tozero")
-    return _style(fig, f"Plan NPV: {exact_name.removesuffix(' plan')} plan against rank order")
+    return _style(fig, f"Plan NPV: the {exact_name} against rank order")
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -350,3 +350,11 @@ def test_option_colours_stay_apart():
     assert len(set(colours)) == 11
     closest = min(sum((a - b) ** 2 for a, b in zip(rgb(x), rgb(y))) ** 0.5 for x, y in itertools.combinations(colours, 2))
     assert closest >= 55
+
+
+@pytest.mark.parametrize("name, title", [("exact plan", "Plan NPV: the exact plan against rank order"),
+                                         ("best plan found", "Plan NPV: the best plan found against rank order")])
+def test_plan_comparison_title_reads_as_english(name, title):
+    """The title names the plan once, whatever the plan is called (user report: "best plan found plan")."""
+    fig = figures.plan_comparison(pd.Series({"exact": 2.0, "rank_order": 1.0}), "EUR", exact_name=name)
+    assert fig.layout.title.text == title
