@@ -356,5 +356,6 @@ def test_option_colours_stay_apart():
                                          ("best plan found", "Plan NPV: the best plan found against rank order")])
 def test_plan_comparison_title_reads_as_english(name, title):
     """The title names the plan once, whatever the plan is called (user report: "best plan found plan")."""
-    fig = figures.plan_comparison(pd.Series({"exact": 2.0, "rank_order": 1.0}), "EUR", exact_name=name)
+    fig = figures.plan_comparison(pd.Series({"npv_exact": 2.0, "npv_greedy": 1.0, "projects_exact": 2, "projects_greedy": 1}), "EUR",
+                                  exact_name=name)
     assert fig.layout.title.text == title
