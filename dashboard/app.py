@@ -65,11 +65,15 @@ def highlight_navigation(pathname, ids):
 
 @callback(Output(CASE_LABEL, "children"), Input(components.SESSION_STORE, "data"), Input(components.EDITS_STORE, "data"))
 def show_case(session, edits):
-    """Name the tab's case and the assumptions in force."""
+    """Name the tab's case and the assumptions in force: the discount rate, the horizon and the budget (its
+    total and years) always, and every other assumption where it differs from the case's own file (so two
+    scenarios' screens can be told apart)."""
     v = services.view(session, edits)
     a = v.assumptions
-    budget = "no budget limit" if not a.budget_per_yr else f"budget {len(a.budget_per_yr)} yr"
+    budget = ("no budget limit" if not a.budget_per_yr else
+              f"budget {len(a.budget_per_yr)} yr, {components.fmt_money(sum(a.budget_per_yr), v.currency)} in all")
+    terms = [v.currency, f"ratings in {v.power_unit}", f"discount {a.discount_rate_frac * 100:g} %", f"{a.horizon_yr} yr",
+             budget, *services.assumption_differences(v)]
     parts = [html.Strong(v.entry.name), html.Span(" (invented)" if v.case.settings.mark_invented else ""),
-             html.Span(f" · {v.currency} · ratings in {v.power_unit} · discount {a.discount_rate_frac * 100:g} % · "
-                       f"{a.horizon_yr} yr · {budget}")]
+             html.Span("".join(f" · {t}" for t in terms))]
     return parts

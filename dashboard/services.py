@@ -167,12 +167,80 @@ class UploadOutcome:
     problems: list[dict] = field(default_factory=list)
 
 
+#: The page's own template button, as its hints name it.
+TEMPLATE_BUTTON_TEXT = "Download a blank case workbook"
+#: The reader's hints name the command line's template; in the dashboard they name the page's button instead.
+_TEMPLATE_HINTS = (
+    (re.compile(r"start from the (?:template|workbook) written by 'drivecase new[^']*'"),
+     f"start from the blank case workbook that the '{TEMPLATE_BUTTON_TEXT}' button of the Case & assumptions page gives"),
+    (re.compile(r"'drivecase new[^']*' writes a (?:template|blank case|blank one)"),
+     f"the '{TEMPLATE_BUTTON_TEXT}' button of the Case & assumptions page gives a template (one sheet per table)"),
+)
+_MISSING_TABLE = re.compile(r"^the required table '([^']+)' is missing$")
+
+
+def dashboard_hint(hint):
+    """A reader's hint as the dashboard shows it: a template is the page's download button, not the command line's
+    ``drivecase new``. Other hints are returned as they are."""
+    if not isinstance(hint, str):
+        return hint
+    for pattern, text in _TEMPLATE_HINTS:
+        hint = pattern.sub(text, hint)
+    return hint
+
+
 def _problem_rows(problems: list[Problem]) -> list[dict]:
     rows = []
     for p in problems:
         d = p.as_dict()
-        rows.append({c: d.get(c) for c in PROBLEM_COLUMNS})
+        row = {c: d.get(c) for c in PROBLEM_COLUMNS}
+        row["hint"] = dashboard_hint(row.get("hint"))
+        rows.append(row)
     return rows
+
+
+def missing_tables(problems: list[Problem]) -> list[tuple[str, str]]:
+    """The required tables a case lacks, as (table, file) from the reader's problems, in the reader's order."""
+    found = []
+    for p in problems:
+        match = _MISSING_TABLE.match(str(p.rule or ""))
+        if p.severity == "error" and match:
+            found.append((match.group(1), str(p.file)))
+    return found
+
+
+def root_causes_first(problems: list[Problem]) -> list[Problem]:
+    """The problems of a refused case with the causes first: a missing required table, then the other errors
+    about a whole file (no row), then the other errors, then the warnings (each group in the reader's order).
+
+    A missing table makes every row that refers to it an error too (an asset's unknown site): listed after
+    them it would be found last, behind its own knock-on rows.
+    """
+    def rank(p: Problem) -> int:
+        if p.severity != "error":
+            return 3
+        if _MISSING_TABLE.match(str(p.rule or "")):
+            return 0
+        return 1 if p.row is None else 2
+
+    return sorted(problems, key=rank)  # stable
+
+
+def refused_case_message(problems: list[Problem]) -> str:
+    """The status line of an upload the reader refused: the missing tables first when there are any (they
+    cause most of the other errors), then the count of errors."""
+    n = sum(p.severity == "error" for p in problems)
+    count = f"{counted(n, 'error')} in the upload; the previous case stays loaded."
+    lacking = missing_tables(problems)
+    if not lacking:
+        return count
+    names = " and ".join(f"'{t}' ({f})" for t, f in lacking)
+    table = "table" if len(lacking) == 1 else "tables"
+    others = n - len(lacking)
+    return (f"The upload lacks the required {table} {names}: upload {'it' if len(lacking) == 1 else 'them'} with the "
+            "other files, or tick 'Keep the current case's other files'. "
+            + (f"{counted(n, 'error')} in the upload, {others:,} of them following from the missing {table}; "
+               "the previous case stays loaded." if others else count))
 
 
 def case_problem_rows(view_: "View") -> list[dict]:
@@ -567,8 +635,7 @@ class Engine:
                                            f"the case could not be read ({exc.__class__.__name__}: {exc})")]
             if case is None or has_errors(found):
                 shutil.rmtree(folder, ignore_errors=True)
-                n = sum(p.severity == "error" for p in found)
-                return refuse(f"{counted(n, 'error')} in the upload; the previous case stays loaded.", found)
+                return refuse(refused_case_message(found), root_causes_first(found))
             entry = self._add_upload(CaseEntry(content_key(target), case, target, "upload", folder))
             try:
                 self.physics(entry.key)
@@ -743,28 +810,47 @@ def assumption_form(assumptions) -> dict:
     }
 
 
-def parse_budget(values: list) -> tuple[list[float] | None, str]:
+#: The largest capital budget the form takes for one plan year, in the case's currency: far above any real
+#: fleet's budget in any currency, low enough that the figures it gives are still read as amounts (a design
+#: choice of this tool, as :data:`FORM_RANGES` is).
+MAX_BUDGET_PER_YR = 1e12
+
+
+def budget_field(k: int, currency: str = "") -> str:
+    """What the page calls the budget field of plan year ``k`` in a message (its label, with the unit)."""
+    return f"Year {k} budget" + (f" [{currency}]" if currency else "")
+
+
+def parse_budget(values: list, currency: str = "") -> tuple[list[float] | None, str]:
     """Parse the budget inputs (plan years 0, 1, ...); return (budget list, error text).
 
-    Blank years after the last filled one are dropped; a blank before a filled year, a negative amount
-    or text is an error. No filled year at all means no capital limit (empty list).
+    Blank years after the last filled one are dropped; a blank before a filled year, a negative amount,
+    an amount that is not finite or above :data:`MAX_BUDGET_PER_YR`, or text is an error, named by its
+    field (with the ``currency``), the value as typed and the rule. No filled year at all means no capital
+    limit (empty list).
     """
     cleaned: list[float | None] = []
+    unit = f" {currency}" if currency else ""
     for k, v in enumerate(values or []):
         if v is None or (isinstance(v, str) and not v.strip()):
             cleaned.append(None)
             continue
-        text = str(v).strip().replace(" ", "").replace("_", "").replace("\u00a0", "").replace("'", "")
+        field_name, typed = budget_field(k, currency), str(v).strip()
+        text = typed.replace(" ", "").replace("_", "").replace("\u00a0", "").replace("'", "")
         if _GROUPED.match(text):
             text = text.replace(",", "")
         try:
             number = float(text)
         except (TypeError, ValueError):
-            return None, f"Year {k}: '{v}' is not a number (write it like 250000 or 250,000)."
+            return None, f"{field_name}: '{typed}' is not a number (write it like 250000 or 250,000)."
         if not np.isfinite(number):
-            return None, f"Year {k}: the budget must be a finite amount (leave the year blank for no limit)."
+            return None, (f"{field_name}: '{typed}' is not an amount; the budget must be a finite amount "
+                          "(leave the year blank for no limit).")
         if number < 0:
-            return None, f"Year {k}: the budget must be zero or more."
+            return None, f"{field_name}: {typed} is below zero; the budget must be zero or more."
+        if number > MAX_BUDGET_PER_YR:
+            return None, (f"{field_name}: {typed} is above the largest budget the form takes, "
+                          f"{MAX_BUDGET_PER_YR:,.0f}{unit} a year (leave the year blank for no limit).")
         cleaned.append(number)
     while cleaned and cleaned[-1] is None:
         cleaned.pop()
@@ -848,6 +934,24 @@ def assumption_notes(edits: dict | None) -> str:
         return ("Applied. A negative discount rate values future savings above money today: check it is meant "
                 "(real rates below zero do occur when inflation exceeds interest).")
     return ""
+
+
+#: Assumptions the top bar names only where they differ from the case's own file (the discount rate, the
+#: horizon and the budget are always named): (field, words, how the value is written).
+EDITED_ASSUMPTIONS = (
+    ("energy_price_factor", "electricity price", lambda v: f"{v * 100:g} %"),
+    ("escalation_energy_frac", "escalation", lambda v: f"{v * 100:g} %/yr"),
+    ("capital_cost_factor", "capital cost", lambda v: f"{v * 100:g} %"),
+)
+
+
+def assumption_differences(view_: View) -> list[str]:
+    """What the tab's assumptions change from the case's own file, beyond the discount rate, the horizon and
+    the budget (which the top bar always names): e.g. ``["electricity price 120 %", "escalation 2 %/yr"]``."""
+    own = view_.entry.case.finance
+    return [f"{words} {fmt(float(getattr(view_.assumptions, name)))}"
+            for name, words, fmt in EDITED_ASSUMPTIONS
+            if getattr(view_.assumptions, name) != getattr(own, name)]
 
 
 def edits_change(view_: View, new_edits: dict) -> bool:

@@ -121,7 +121,7 @@ def test_assumption_form_and_edits(engine):
     values = inputs.fill(True, None, None)
     # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr; no price-level keys, so the tariffs and catalogue as written (100 %)
     assert values[:5] == (8.0, 1.0, 15, 100.0, 100.0)
-    assert list(values[5:]) == ["250000", "250000", "150000", None, None, None]
+    assert list(values[5:5 + services.BUDGET_YEARS]) == ["250000", "250000", "150000", None, None, None]
     stored, message, look = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert stored["discount_rate_pct"] == 6.0 and message == "" and look == "form-message"
     unchanged, _, _ = inputs.edit(8.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
@@ -131,7 +131,7 @@ def test_assumption_form_and_edits(engine):
     assert look == "form-message refused"  # set apart from a caution or nothing (components.message_class)
     refused, message, look = inputs.edit(8.0, 1.0, 15, 0.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert refused is no_update and "Electricity price level: must lie between 1 and" in message
-    assert inputs.reset(1, None) == values
+    assert inputs.reset(1, None) == values[:5 + services.BUDGET_YEARS]
 
 
 def test_one_refused_field_does_not_hold_back_the_others(engine):
@@ -184,7 +184,7 @@ def test_shell(engine):
 
 def test_prove_runs_only_on_a_click(engine):
     assert plan.prove(None, None, None) is no_update  # the page mounting is not a click
-    assert plan.prove(1, None, None) == 1
+    assert plan.prove(1, None, None)[0] == 1  # and the status line waits for the page's update
     proved = services.view(None, None).result()
     assert proved.plan_status["settings"] == services.scenario.PRECISE_PLAN  # the proved result now serves the page
 
@@ -341,3 +341,77 @@ def test_the_pack_status_says_and_shows_whether_it_was_written(engine, monkeypat
     sent, text, look = plan.pack(1, None, None)
     assert sent is no_update and text == "The pack could not be written: no plan to write"
     assert look == "form-message refused"
+
+
+def test_budget_fields_name_the_currency_and_refuse_absurd_amounts(engine):
+    currency = services.view(None, None).currency
+    # each budget field's label carries the case's currency, on both pages
+    labels = [f"Year {k} [{currency}]" for k in range(services.BUDGET_YEARS)]
+    assert plan.fill(True, None, None)[services.BUDGET_YEARS:] == labels
+    assert list(inputs.fill(True, None, None)[5 + services.BUDGET_YEARS:]) == labels
+    # 1e99 is a number but no budget: refused, naming the field, the value as typed and the rule
+    stored, message, look = plan.edit("1e99", None, None, None, None, None, None, None)
+    assert stored is no_update and look == "form-message refused"
+    assert message.startswith(f"Not applied: Year 0 budget [{currency}]: 1e99 is above")
+    assert f"1,000,000,000,000 {currency} a year" in message
+    stored, message, _ = plan.edit("100", "-5", None, None, None, None, None, None)
+    assert stored is no_update and f"Year 1 budget [{currency}]: -5 is below zero" in message
+    # the same on the Case & assumptions page; the other fields still apply
+    stored, message, look = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, "1e99", None, None, None, None, None, None, None)
+    assert stored["discount_rate_pct"] == 6.0 and "budget_per_yr" not in stored
+    assert f"Year 0 budget [{currency}]: 1e99 is above" in message and look == "form-message refused"
+    # and nothing of it is saved
+    out = inputs.save(1, 8.0, 1.0, 15, 100.0, 100.0, "inf", None, None, None, None, None, None, None)
+    assert out[2].startswith(f"Not saved: Year 0 budget [{currency}]: 'inf' is not an amount")
+
+
+def test_top_bar_names_every_assumption_that_differs_from_the_case(engine):
+    currency = services.view(None, None).currency
+    own = shell.show_case(None, None)[2].children
+    # data/demo/finance.toml: 8 %, 15 years, budgets 250000 + 250000 + 150000 = 650000 over 3 years
+    assert own.endswith(f"discount 8 % · 15 yr · budget 3 yr, {currency} 650.0 k in all")
+    edits = {"case": engine.default_key, "energy_price_level_pct": 120.0, "escalation_energy_pct": 2.0,
+             "capital_cost_level_pct": 90.0, "budget_per_yr": [100000.0]}
+    edited = shell.show_case(None, edits)[2].children
+    assert edited.endswith(f"discount 8 % · 15 yr · budget 1 yr, {currency} 100.0 k in all · electricity price 120 % · "
+                           "escalation 2 %/yr · capital cost 90 %")
+    # the same values as the case's file are not named
+    same = shell.show_case(None, {"case": engine.default_key, "escalation_energy_pct": 1.0})[2].children
+    assert same == own
+
+
+def test_an_upload_lacking_a_table_says_so_first(engine):
+    header, rows = demo_rows()
+    # assets.csv alone, the current case's other files not kept: the sites table is missing, and every asset's
+    # site is then unknown too
+    _, message, problems, _, status_class, kept = inputs.upload([data_url(csv_bytes(header, rows))], ["assets.csv"], [],
+                                                                None)
+    assert status_class == "form-message refused"
+    assert message.startswith("The upload lacks the required table 'sites' (sites.csv)")
+    assert message.endswith("the previous case stays loaded.")
+    first = problems[0]
+    assert first["rule"] == "the required table 'sites' is missing" and first["file"] == "sites.csv"
+    assert any(p["rule"].startswith("unknown site_id") for p in problems[1:])
+    # the hint points at the page's own template button, not the command line
+    assert "Download a blank case workbook" in first["hint"] and "drivecase new" not in first["hint"]
+    assert kept["problems"][0] == first and kept["message"] == message
+
+
+def test_the_prove_and_pack_buttons_say_they_are_busy():
+    # Dash sets these props in the browser while the callback runs, and puts them back after
+    def running(callback_id):
+        spec = next(c for c in dash_callback_list() if c["output"].startswith(callback_id))
+        return spec["running"]
+
+    prove = running(f"..{plan.PROVED}.data")
+    assert prove["running"][f"{plan.PROVE}.disabled"] is True and prove["runningOff"][f"{plan.PROVE}.disabled"] is False
+    assert prove["running"][f"{plan.PROVING}.children"].startswith("Proving the plan")
+    pack = running(f"..{plan.PACK}.data")
+    assert pack["running"][f"{plan.PACK_BUTTON}.disabled"] is True
+    assert pack["running"][f"{plan.PACK_BUTTON}.children"] == "Building the pack…"
+
+
+def dash_callback_list():
+    from dash._callback import GLOBAL_CALLBACK_LIST
+
+    return GLOBAL_CALLBACK_LIST

@@ -435,6 +435,29 @@ class TestEdits:
         got, message = services.parse_budget(values)
         assert got == budget and words in message
 
+    @pytest.mark.parametrize("typed, words", [
+        ("1e99", "Year 0 budget [EUR]: 1e99 is above the largest budget the form takes, 1,000,000,000,000 EUR a year"),
+        ("1000000000001", "Year 0 budget [EUR]: 1000000000001 is above"),
+        ("-0.5", "Year 0 budget [EUR]: -0.5 is below zero; the budget must be zero or more."),
+        ("nan", "Year 0 budget [EUR]: 'nan' is not an amount; the budget must be a finite amount"),
+        ("-inf", "Year 0 budget [EUR]: '-inf' is not an amount"),
+    ])
+    def test_parse_budget_names_the_field_the_value_and_the_rule(self, typed, words):
+        got, message = services.parse_budget([typed], "EUR")
+        assert got is None and message.startswith(words)
+
+    def test_parse_budget_takes_up_to_the_bound(self):
+        # the bound itself is a budget (MAX_BUDGET_PER_YR = 1e12, written out)
+        assert services.parse_budget(["1,000,000,000,000", 0], "EUR") == ([1e12, 0.0], "")
+
+    def test_hints_name_the_pages_template_button(self):
+        hint = services.dashboard_hint("add sites.csv (or a sheet 'sites'); 'drivecase new' writes a template")
+        assert hint == ("add sites.csv (or a sheet 'sites'); the 'Download a blank case workbook' button of the "
+                        "Case & assumptions page gives a template (one sheet per table)")
+        assert "drivecase new" not in services.dashboard_hint("start from the workbook written by 'drivecase new --workbook'")
+        assert services.dashboard_hint("add the site or correct the id") == "add the site or correct the id"
+        assert services.dashboard_hint(None) is None
+
 
 # ---------------------------------------------------------------------------------------------------
 # Page data

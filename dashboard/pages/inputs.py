@@ -7,6 +7,7 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import services
+from dashboard.pages.plan import budget_fields, budget_labels
 
 
 READY = "inputs-ready"
@@ -23,6 +24,8 @@ PRICE_LEVEL = "inputs-price-level"
 CAPITAL_LEVEL = "inputs-capital-level"
 BUDGET = "inputs-budget"
 BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
+#: The budget fields' labels ("Year 0 [EUR]"), written with the tab's case currency (see plan.budget_fields).
+BUDGET_LABEL_IDS = [f"{i}-label" for i in BUDGET_IDS]
 RESET = "inputs-reset"
 FORM_MESSAGE = "inputs-form-message"
 CASE = "inputs-case"
@@ -54,7 +57,7 @@ def layout(**_query):
                 dcc.Checklist(id=KEEP_FILES, value=["keep"], options=[
                     {"label": " Keep the current case's other files (replace only the files uploaded)", "value": "keep"}]),
                 dcc.Loading(html.Div(id=STATUS, className="form-message", role="status"), type="dot"),
-                html.Button("Download a blank case workbook", id=TEMPLATE_BUTTON, className="button"),
+                html.Button(services.TEMPLATE_BUTTON_TEXT, id=TEMPLATE_BUTTON, className="button"),
                 dcc.Download(id=TEMPLATE),
             ], className="panel half"),
             html.Div([
@@ -71,8 +74,8 @@ def layout(**_query):
                     html.Div([html.Label("Capital cost level [% of the catalogue]", htmlFor=CAPITAL_LEVEL),
                               dcc.Input(id=CAPITAL_LEVEL, type="number", step="any", debounce=True)], className="field"),
                 ], className="fields"),
-                html.Label("Capital budget per plan year (blank = no limit)"),
-                ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
+                html.Label("Capital budget per plan year (blank = no limit; in the case's currency)"),
+                budget_fields(BUDGET),
                 html.Button("Back to the case's own assumptions", id=RESET, className="button secondary"),
                 html.Div(id=FORM_MESSAGE, className="form-message", role="alert"),
                 html.Button("Save these assumptions into the case", id=SAVE_BUTTON, className="button"),
@@ -141,10 +144,12 @@ def _form_values(assumptions) -> tuple:
 
 @callback(Output(DISCOUNT, "value"), Output(ESCALATION, "value"), Output(HORIZON, "value"),
           Output(PRICE_LEVEL, "value"), Output(CAPITAL_LEVEL, "value"), [Output(i, "value") for i in BUDGET_IDS],
+          [Output(i, "children") for i in BUDGET_LABEL_IDS],
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"))
 def fill(_ready, session, edits):
-    """Show the assumptions in force when the page opens or the case changes."""
-    return _form_values(services.view(session, edits).assumptions)
+    """Show the assumptions in force, and the budget's unit, when the page opens or the case changes."""
+    view = services.view(session, edits)
+    return (*_form_values(view.assumptions), *budget_labels(view.currency))
 
 
 @callback(Output(DISCOUNT, "value", allow_duplicate=True), Output(ESCALATION, "value", allow_duplicate=True),
@@ -163,8 +168,8 @@ def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest
     Each field is checked on its own: the valid ones make the edits, the refused ones are named (the edits
     are None when none is valid)."""
     budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
-    budget, budget_problem = services.parse_budget(budget_values)
     view = services.view(session, edits)
+    budget, budget_problem = services.parse_budget(budget_values, view.currency)
     fields = dict(discount_rate_pct=discount, escalation_energy_pct=escalation, horizon_yr=horizon,
                   energy_price_level_pct=price_level, capital_cost_level_pct=capital_level)
     if not budget_problem:

@@ -12,6 +12,8 @@ from dashboard import figures, services
 READY = "plan-ready"
 BUDGET = "plan-budget"
 BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
+#: The budget fields' labels ("Year 0 [EUR]"): the case's currency is the tab's, so a callback writes them.
+BUDGET_LABEL_IDS = [f"{i}-label" for i in BUDGET_IDS]
 BUDGET_MESSAGE = "plan-budget-message"
 BY_YEAR = "plan-by-year"
 COMPARISON = "plan-comparison"
@@ -25,11 +27,33 @@ PACK_STATUS = "plan-pack-status"
 SOLVE_STATUS = "plan-solve-status"
 PROVE = "plan-prove"
 PROVED = "plan-proved"
+PROVING = "plan-proving"
+PROVE_TEXT = "Prove the plan to 0.01 %"
+#: Said beside the disabled button while the plan is being proved.
+PROVING_TEXT = "Proving the plan… (to 0.01 %: up to a minute on a large case)"
+PACK_TEXT = "Download the capital-request pack (.zip)"
+PACK_BUILDING_TEXT = "Building the pack…"
 CHOSEN_HEADING = "plan-chosen-heading"
 #: Why a reactive project's NPV here can be below its own NPV on the Asset page.
 PLAN_NPV_NOTE = ("A reactive project (capacitor, wound-field machine) counts here at the share of its bill saving it adds "
                  "beside the plan's other projects (they share the site's reactive charge), so its NPV here can be below "
                  "its own NPV on the Asset page; the other projects count at their own NPV.")
+
+
+def budget_fields(prefix: str) -> html.Div:
+    """The shared budget inputs, each year's label given an id (``<input id>-label``) so that a callback can
+    write the case's currency into it."""
+    row = ui.budget_inputs(prefix, services.BUDGET_YEARS)
+    for year in row.children:
+        for child in year.children:
+            if isinstance(child, html.Label):
+                child.id = f"{child.htmlFor}-label"
+    return row
+
+
+def budget_labels(currency: str) -> list[str]:
+    """The budget fields' labels with the case's currency: ``Year 0 [EUR]``, ..."""
+    return [f"Year {k} [{currency}]" for k in range(services.BUDGET_YEARS)]
 
 
 def layout(**_query):
@@ -45,11 +69,12 @@ def layout(**_query):
                   html.P("Leave every year blank for no limit (then each asset gets its best option in year 0, except reactive "
                          "projects whose value the rest of the plan already takes). "
                          "Press Enter or leave the field to apply.", className="page-intro"),
-                  ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
+                  budget_fields(BUDGET),
                   html.Div(id=BUDGET_MESSAGE, className="form-message", role="alert")], className="panel form"),
         html.Div(id=SUMMARY, className="asset-summary"),
         html.Div([dcc.Loading(html.Span(id=SOLVE_STATUS, role="status"), type="dot"),
-                  html.Button("Prove the plan to 0.01 %", id=PROVE, className="button secondary")],
+                  html.Span(id=PROVING, role="status", className="proving"),
+                  html.Button(PROVE_TEXT, id=PROVE, className="button secondary")],
                  className="solve-status"),
         html.Div([html.Div(ui.graph(BY_YEAR), className="panel half"), html.Div(ui.graph(COMPARISON), className="panel half")],
                  className="row"),
@@ -62,7 +87,7 @@ def layout(**_query):
                   html.P("An auditable workbook with live NPV, IRR and payback formulas, a self-contained report "
                          "and a one-page decision record per asset, for this plan and these assumptions.",
                          className="page-intro"),
-                  html.Button("Download the capital-request pack (.zip)", id=PACK_BUTTON, className="button"),
+                  html.Button(PACK_TEXT, id=PACK_BUTTON, className="button"),
                   dcc.Loading(html.Div(id=PACK_STATUS, className="form-message", role="status"), type="dot"),
                   dcc.Download(id=PACK)], className="panel"),
     ])
@@ -71,12 +96,13 @@ def layout(**_query):
 dash.register_page(__name__, path="/plan", name="Capital plan", title="Capital plan · drivecase", order=3, layout=layout)
 
 
-@callback([Output(i, "value") for i in BUDGET_IDS], Input(READY, "data"), Input(ui.SESSION_STORE, "data"),
-          State(ui.EDITS_STORE, "data"), )
+@callback([Output(i, "value") for i in BUDGET_IDS], [Output(i, "children") for i in BUDGET_LABEL_IDS],
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"), )
 def fill(_ready, session, edits):
-    """Show the budget in force when the page opens or the case changes."""
-    return ui.budget_values(services.assumption_form(services.view(session, edits).assumptions)["budget_per_yr"],
-                            services.BUDGET_YEARS)
+    """Show the budget in force, and its unit, when the page opens or the case changes."""
+    view = services.view(session, edits)
+    return [*ui.budget_values(services.assumption_form(view.assumptions)["budget_per_yr"], services.BUDGET_YEARS),
+            *budget_labels(view.currency)]
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(BUDGET_MESSAGE, "children"),
@@ -85,10 +111,10 @@ def fill(_ready, session, edits):
 def edit(*args):
     """Check the budget and store it as the tab's edit (the economics re-run; the physics do not)."""
     values, (edits, session) = list(args[:len(BUDGET_IDS)]), args[len(BUDGET_IDS):]
-    budget, problem = services.parse_budget(values)
+    view = services.view(session, edits)
+    budget, problem = services.parse_budget(values, view.currency)
     if problem:
         return no_update, "Not applied: " + problem, ui.message_class(False)
-    view = services.view(session, edits)
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits, budget_per_yr=budget)
     if new is None:
         return no_update, problem, ui.message_class(False)
@@ -133,21 +159,32 @@ def update(_ready, session, edits, _proved=None):
             services.plan_solve_text(result), services.plan_is_proven(result), f"Chosen projects ({name})")
 
 
-@callback(Output(PROVED, "data"), Input(PROVE, "n_clicks"), State(ui.SESSION_STORE, "data"),
-          State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
+@callback(Output(PROVED, "data"), Output(SOLVE_STATUS, "children", allow_duplicate=True), Input(PROVE, "n_clicks"),
+          State(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"),
+          # while it runs: the button is off and says so, the line beside it says what is going on, and the
+          # status line (an output here, so its loading dot spins) no longer shows the live plan's bound
+          running=[(Output(PROVE, "disabled"), True, False), (Output(PROVE, "children"), "Proving…", PROVE_TEXT),
+                   (Output(PROVING, "children"), PROVING_TEXT, "")],
+          prevent_initial_call=True)
 def prove(clicks, session, edits):
-    """Solve the tab's plan to the full-run precision; the page then shows the proved plan."""
+    """Solve the tab's plan to the full-run precision; the page then shows the proved plan (the status line is
+    written again by :func:`update`)."""
     if not clicks:  # the page mounting is not a click
         return no_update
     services.view(session, edits).result(precise=True)
-    return clicks
+    return clicks, no_update
 
 
 @callback(Output(PACK, "data"), Output(PACK_STATUS, "children"), Output(PACK_STATUS, "className"),
           Input(PACK_BUTTON, "n_clicks"),
-          State(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"), prevent_initial_call=True)
+          State(ui.SESSION_STORE, "data"), State(ui.EDITS_STORE, "data"),
+          running=[(Output(PACK_BUTTON, "disabled"), True, False),
+                   (Output(PACK_BUTTON, "children"), PACK_BUILDING_TEXT, PACK_TEXT)],
+          prevent_initial_call=True)
 def pack(_clicks, session, edits):
     """Write the capital-request pack for the tab's case, plan and assumptions, and send it zipped."""
+    if not _clicks:  # the page mounting is not a click
+        return no_update, no_update, no_update
     view_ = services.view(session, edits)
     try:
         data = services.pack_zip_bytes(view_)
