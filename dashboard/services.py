@@ -45,6 +45,7 @@ from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
 from models.case import HP_TO_KW, default_value, load_case
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
+from models.plan import low_data_quality
 from models.problems import Problem, error, has_errors
 from models.profiles import asset_loads
 from models.wording import counted
@@ -1422,10 +1423,12 @@ def plan_notice(result) -> str:
 def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
     labels = result.results.set_index(scenario.project_labels(result.results))["label"]
+    quality = view_.case.assets.set_index("asset_id")["data_quality_pct"]
     out = {}
     for name, frame in (("exact", result.plan), ("rank_order", result.plan_greedy)):
         f = frame.copy()
         f["label"] = labels.reindex(scenario.project_labels(f)).to_numpy(dtype=object) if len(f) else []
+        f["data_quality_pct"] = quality.reindex(f["asset_id"]).to_numpy(dtype=float) if len(f) else []
         out[name] = f
     budgets = list(result.assumptions.budget_per_yr)
     years = max([len(budgets)] + [int(f["start_yr"].max()) + 1 for f in out.values() if len(f)] + [1])
@@ -1444,6 +1447,7 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
                 diff.append({"plan": name, "asset_id": r.asset_id, "label": r.label, "start_yr": r.start_yr,
                              "capital": r.capital, "npv_at_plan_start": r.npv_at_plan_start})
     out["differences"] = pd.DataFrame(diff, columns=["plan", "asset_id", "label", "start_yr", "capital", "npv_at_plan_start"])
+    out["low_quality"] = low_data_quality(out["exact"], quality.to_dict())
     return out
 
 

@@ -528,7 +528,7 @@ def drive_on_existing_motor_caution(year_installed, rewind_count) -> list[str]:
     -------
     list of str
         A caution for every motor; for one installed before :data:`DRIVE_INSULATION_YEAR`, rewound, or of
-        unknown age it says why that motor is most at risk.
+        unknown age it names why that motor is most at risk.
 
     Notes
     -----
@@ -566,9 +566,8 @@ def drive_on_existing_motor_caution(year_installed, rewind_count) -> list[str]:
         if np.isfinite(r) and r > 0:
             why.append("rewound once" if r == 1 else f"rewound {int(r)} times")
         head = "drive on an existing motor" + (f" ({', '.join(why)})" if why else "")
-        out.append(f"{head}: have a qualified person confirm its winding insulation is fit for converter supply "
-                   "(else an output filter) and its bearings are protected from shaft currents before buying"
-                   + (" (an older or rewound winding is the most at risk)" if why else ""))
+        out.append(f"{head}: a qualified person to confirm its winding suits converter supply (else an output "
+                   "filter) and its bearings are guarded from shaft currents")
     return out
 
 

@@ -664,6 +664,45 @@ def abatement_curve(project_id: Any, asset_id: Any, npv: Any, co2_avoided_t_per_
                   "bar_start_t_per_yr", "cumulative_co2_avoided_t_per_yr", "npv"]]
 
 
+#: Data-quality score [%] below which a project's figures rest mostly on defaults: its nameplate and load are
+#: to be checked before the money is approved (common practice: about a third of the fields defaulted).
+LOW_DATA_QUALITY_PCT = 70.0
+
+
+def low_data_quality(plan: pd.DataFrame, data_quality_pct: Mapping[str, float],
+                     threshold_pct: float = LOW_DATA_QUALITY_PCT) -> tuple[int, float]:
+    """How much of a plan rests on assets of low data quality.
+
+    Parameters
+    ----------
+    plan : pandas.DataFrame
+        The plan's projects: asset_id and npv_at_plan_start [currency].
+    data_quality_pct : mapping of str to float
+        Each asset's data-quality score [%], 0-100 (share of its nameplate fields known).
+    threshold_pct : float
+        Scores below it count as low (default :data:`LOW_DATA_QUALITY_PCT`).
+
+    Returns
+    -------
+    (int, float)
+        The number of the plan's projects on such assets, and their share of the plan's positive NPV at
+        plan start [-], 0-1 (0 for an empty plan or one of no positive NPV).
+
+    Examples
+    --------
+    >>> plan = pd.DataFrame({"asset_id": ["A", "B", "C"], "npv_at_plan_start": [600.0, 300.0, 100.0]})
+    >>> low_data_quality(plan, {"A": 55.0, "B": 90.0, "C": 69.9})
+    (2, 0.7)
+    """
+    if plan is None or not len(plan):
+        return 0, 0.0
+    score = plan["asset_id"].map(lambda a: data_quality_pct.get(a, np.nan)).to_numpy(dtype=float)
+    low = score < float(threshold_pct)
+    npv = np.maximum(plan["npv_at_plan_start"].to_numpy(dtype=float), 0.0)
+    total = float(npv.sum())
+    return int(low.sum()), (float(npv[low].sum()) / total if total > 0 else 0.0)
+
+
 def project_labels(frame: pd.DataFrame) -> pd.Series:
     """The project label "asset/option" of each row of a table with ``asset_id`` and ``option_id``
     (the labels the plan and the cash flows use)."""

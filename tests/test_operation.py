@@ -126,7 +126,7 @@ class TestDemoFleet:
         assert set(drive["option_id"]) == {"add_drive"}
         applies = set(demo_case.assets["asset_id"][result.applies[:, o]])
         assert len(applies) > 0 and set(drive["asset_id"]) == applies and len(drive) == len(applies)
-        assert drive["flag"].str.contains("qualified person confirm its winding insulation").all()
+        assert drive["flag"].str.contains("qualified person to confirm its winding suits converter supply").all()
         a = demo_case.assets.set_index("asset_id")
         for asset_id, text in zip(drive["asset_id"], drive["flag"]):  # the reasons named are the register's
             old, rewound = a.at[asset_id, "year_installed"] < 2000, a.at[asset_id, "rewind_count"] > 0

@@ -7,6 +7,8 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import figures, services
+from models.plan import LOW_DATA_QUALITY_PCT
+from models.wording import counted
 
 
 READY = "plan-ready"
@@ -127,7 +129,9 @@ def project_columns(currency: str) -> list[dict]:
     return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=220),
             ui.number_col("start_yr", "Start year", maxWidth=120), ui.number_col("capital", f"Capital [{currency}]"),
             ui.number_col("npv", f"NPV at its start [{currency}]", headerTooltip=PLAN_NPV_NOTE),
-            ui.number_col("npv_at_plan_start", f"NPV at plan start [{currency}]")]
+            ui.number_col("npv_at_plan_start", f"NPV at plan start [{currency}]"),
+            ui.number_col("data_quality_pct", "Data quality [%]", maxWidth=130,
+                          headerTooltip="share of the asset's nameplate fields known (the rest filled with defaults)")]
 
 
 @callback(Output(BY_YEAR, "figure"), Output(COMPARISON, "figure"), Output(CHOSEN, "rowData"), Output(CHOSEN, "columnDefs"),
@@ -152,6 +156,12 @@ def update(_ready, session, edits, _proved=None):
                          f"rank order: {len(tables['rank_order'])} projects, NPV {ui.fmt_money(comparison.get('npv_greedy'), c)} "
                          f"(shortfall {ui.fmt_money(comparison.get('shortfall'), c)}). "),
                html.Span(f"Capital {spend}.", id="plan-spend")]
+    n_low, share_low = tables["low_quality"]
+    if n_low:  # what an approver would ask first: how much of the plan rests on defaulted nameplates
+        summary += [html.Br(), html.Span(
+            f"Caution: {counted(n_low, 'project')} of the plan ({share_low:.0%} of its NPV) rest on assets whose data "
+            f"quality is below {LOW_DATA_QUALITY_PCT:.0f} %: read their nameplates and log their loads before the "
+            "money is approved.", className="small caution", id="plan-low-quality")]
     diff_columns = [ui.text_col("plan", "Only in")] + project_columns(c)[:4] + [project_columns(c)[5]]
     return (figures.plan_by_year(by_year, c, name), figures.plan_comparison(comparison, c, name),
             tables["exact"].to_dict("records"), project_columns(c),

@@ -16,6 +16,7 @@ import pandas as pd
 
 from models import finance
 from models.cashflows import COMPONENTS
+from models.plan import LOW_DATA_QUALITY_PCT
 from models.wording import counted
 
 #: The cautions every file of the pack shows, in plain words.
@@ -522,9 +523,9 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             add("defaulted input", f"{column}", f"{basis} ({counted(len(grp), 'asset')})", asset_list_text(list(grp["asset_id"])),
                 "Read the nameplate or measure, then re-run.")
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
-    low = assets[assets["data_quality_pct"] < 70]
+    low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
-        add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below 70 % of nameplate fields known",
+        add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",
             asset_list_text(list(low["asset_id"])), "Measure these first: kW, PF, speed and hours over 1-4 weeks.")
     flags = scope_flags(result, scope.asset_ids)
     if not flags.empty:
@@ -560,7 +561,9 @@ def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:
                    "voltage dip: confirm the start with the supplier.")
     if technology == "capacitor":
         out.append(CAUTIONS[3])
-    if technology in DRIVE_TECHNOLOGIES:
+    if technology == "add_drive":  # the motor's own insulation and bearings: the models' caution, worded for its age
+        out.append("Drives inject harmonics: check voltage distortion limits.")
+    elif technology in DRIVE_TECHNOLOGIES:
         out.append(CAUTIONS[5])
     if technology == "wound_field":
         out.append("Synchronous motors need loss-of-excitation and pull-out protection, and over-excitation raises "
