@@ -847,12 +847,15 @@ def _duplicates(checker: _TableChecker, column: str, what: str) -> None:
 
 
 def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids: set[str], duty_ids: set[str],
-                  profiles: dict[str, pd.Series], this_year: int, rejected_profiles: set[str] | None = frozenset()) -> None:
+                  profiles: dict[str, pd.Series], this_year: int, rejected_profiles: set[str] | None = frozenset(),
+                  duty_readable: bool = True) -> None:
     """Cross-check the asset register.
 
     ``site_ids`` None means the sites table could not be read, and ``rejected_profiles`` None that the
     profiles table could not be read: references to them are then not checked (the unreadable file is
     already an error). Profiles listed in ``rejected_profiles`` exist but failed their own checks.
+    ``duty_readable`` False means the duty file could not be read: profile references are then not checked
+    either (one of them may be in it).
     """
     a = checker.frame
     _duplicates(checker, "asset_id", "asset_id")
@@ -962,7 +965,8 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     has_profile = prof.notna().to_numpy()
     has_hours = ~np.isnan(hours) & ~np.isnan(load)
     known_profiles = profile_ids | duty_ids | (rejected_profiles or set())
-    checkable = has_profile & (rejected_profiles is not None)
+    # (an unreadable profiles or duty file is an error of its own: the references it would hold are not judged)
+    checkable = has_profile & (rejected_profiles is not None) & duty_readable
     for i in np.flatnonzero(checkable & ~prof.isin(known_profiles).to_numpy()):
         checker.err(i, "profile_id", prof.iloc[i], "unknown profile reference (not in profiles or duty)",
                     "add the profile or correct the reference")
@@ -1380,7 +1384,8 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         problems.append(error(checkers["sites"].raw.source, None, None, None, "the sites table has no rows",
                               "add one row per site (utility meter)"))
     if "assets" in checkers:
-        _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year, rejected_profiles)
+        _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year, rejected_profiles,
+                      duty_readable="duty" not in raw.tables or raw.tables["duty"].readable)
         if frames["assets"].empty:
             problems.append(error(checkers["assets"].raw.source, None, None, None, "the asset register has no rows",
                                   "add one row per motor"))

@@ -405,6 +405,18 @@ class TestOtherTables:
         _, problems = load_case(folder)
         assert _find(problems, file="sites.csv", text="empty")
 
+    def test_an_unreadable_duty_file_is_one_error_not_one_per_reference(self, tmp_path):
+        """docs/case-format.md: a file that cannot be read is one error; the references it would resolve are
+        not judged (as for the profiles file): the demo's empty duty.csv used to add an "unknown profile
+        reference" error for each of the four assets that name its 'SLUDGE-DUTY' profile."""
+        folder = tmp_path / "demo"
+        shutil.copytree(Path(__file__).resolve().parents[1] / "data" / "demo", folder)
+        (folder / "duty.csv").write_bytes(b"")
+        _, problems = load_case(folder)
+        errors = [p for p in problems if p.severity == "error"]
+        assert [p.file for p in errors] == ["duty.csv"] and "empty" in errors[0].rule
+        assert not any("unknown profile reference" in p.rule for p in problems)
+
     def test_missing_case_path(self, tmp_path):
         case, problems = load_case(tmp_path / "nowhere")
         assert case is None and "does not exist" in problems[0].rule
