@@ -219,18 +219,30 @@ def long_text_col(field: str, header: str, **extra) -> dict:
                                       **extra})
 
 
-def data_grid(component_id: str, height: int = 420, empty_text: str = "Nothing to show", **extra) -> dag.AgGrid:
+def data_grid(component_id: str, height: int | str = 420, empty_text: str = "Nothing to show",
+              loading_text: str = "Loading…", **extra) -> dag.AgGrid:
     """A sortable, filterable, resizable grid (rows and columns filled by a callback); ``empty_text`` is
-    what it says with no rows."""
+    what it says with no rows.
+
+    ``height`` is in px, or a CSS length (``"min(460px, 60vh)"``). Pass ``rowData=None`` for a grid whose
+    rows are not there yet: it then says ``loading_text`` until a callback gives it rows, and ``empty_text``
+    only once it has been given none. Tab and Shift+Tab leave the grid for the next or previous element of
+    the page (the arrow keys move between cells), so a keyboard user is never held inside a grid.
+    """
     # the grid's own wording for no rows (plain text; an HTML overlay template would be code the grid runs)
-    options = {"animateRows": False, "tooltipShowDelay": 300, "localeText": {"noRowsToShow": empty_text}}
+    options = {"animateRows": False, "tooltipShowDelay": 300,
+               "localeText": {"noRowsToShow": empty_text, "loadingOoo": loading_text},
+               # false = the grid does not move focus itself, the browser moves it out of the grid
+               "tabToNextCell": {"function": "false"}, "tabToNextHeader": {"function": "false"}}
     options.update(extra.pop("dashGridOptions", {}))
     extra.setdefault("columnDefs", [])
-    return dag.AgGrid(id=component_id, rowData=[],
+    extra.setdefault("rowData", [])
+    css_height = f"{height}px" if isinstance(height, (int, float)) else str(height)
+    return dag.AgGrid(id=component_id,
                       defaultColDef={"sortable": True, "resizable": True, "filter": True, "minWidth": 110,
                                      "wrapHeaderText": True, "autoHeaderHeight": True},
                       columnSize="responsiveSizeToFit", dashGridOptions=options,
-                      style={"height": f"{height}px", "width": "100%"}, className="grid", **extra)
+                      style={"height": css_height, "width": "100%"}, className="grid", **extra)
 
 
 def problem_columns() -> list[dict]:

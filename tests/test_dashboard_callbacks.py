@@ -276,8 +276,42 @@ def test_fleet_site_filter_names_the_sites(engine):
 def test_fleet_count_follows_the_grids_own_filters(engine):
     # a column filter in the grid leaves fewer rows shown: the count says so
     rows = fleet.update(None, None, None, None)[4]
-    assert fleet.count_shown(rows[:2], None) == f"2 of {len(SMALL_IDS)} assets"
-    assert fleet.count_shown(None, None) is no_update
+    assert fleet.count_shown(rows[:2], None, rows) == f"2 of {len(SMALL_IDS)} assets"
+    assert fleet.count_shown(None, None, rows) is no_update
+    # filters that match nothing, once the results are there: "0 of n"
+    assert fleet.count_shown([], None, []) == f"0 of {len(SMALL_IDS)} assets"
+
+
+def test_fleet_says_the_case_is_computed_until_its_results_arrive(engine):
+    # before the page's callback has given the grid its rows (rowData None: the results are still being
+    # computed) the grid reports no rows shown; the count keeps saying why instead of "0 of n assets"
+    assert fleet.count_shown([], None, None) is no_update
+    page = fleet.layout()
+    count = next(c for c in page._traverse() if getattr(c, "id", None) == fleet.COUNT)
+    grid = next(c for c in page._traverse() if getattr(c, "id", None) == fleet.TABLE)
+    assert count.children == "Computing the case…"
+    assert grid.rowData is None
+    assert grid.dashGridOptions["localeText"] == {"noRowsToShow": "No asset matches the filters",
+                                                  "loadingOoo": "Computing the case…"}
+
+
+def test_every_grid_lets_tab_leave_it(engine):
+    # Tab and Shift+Tab go to the next or previous element of the page, not cell by cell (AG Grid's
+    # tabToNextCell/tabToNextHeader returning false hand the key to the browser)
+    from dashboard import components as ui
+
+    for grid in (ui.data_grid("g"), ui.data_grid("h", dashGridOptions={"rowHeight": 30}),
+                 next(c for c in fleet.layout()._traverse() if getattr(c, "id", None) == fleet.TABLE)):
+        assert grid.dashGridOptions["tabToNextCell"] == {"function": "false"}
+        assert grid.dashGridOptions["tabToNextHeader"] == {"function": "false"}
+
+
+def test_fleet_columns_fit_a_1366_px_window(engine):
+    # the narrowest widths add up to what a 1366 px window leaves the table: 1366 - 2 x 24 px of page
+    # padding (style.css .content) - 15 px page scrollbar - 15 px grid scrollbar - 2 px borders = 1286 px
+    columns = fleet.update(None, None, None, None)[5]
+    assert sum(c["minWidth"] for c in columns) <= 1366 - 2 * 24 - 15 - 15 - 2
+    assert {c["field"] for c in columns} == set(fleet.WIDTHS_PX)
 
 
 def test_prove_button_is_off_once_the_plan_is_proven(engine):

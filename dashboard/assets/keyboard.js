@@ -2,7 +2,8 @@
  * Keyboard paths for what the mouse does.
  *
  * 1. Grids whose rows open a page (a cell marked "link-cell", e.g. the Fleet page's asset ids): Enter on
- *    any focused cell of such a row clicks its link cell, as a mouse click on it would.
+ *    any focused cell of such a row clicks its link cell, as a mouse click on it would. (Tab and Shift+Tab
+ *    leave a grid: components.data_grid tells the grid not to move between cells on Tab.)
  * 2. Upload areas: the chosen file is let go once the upload has been read, so choosing the same file
  *    again (corrected, under the same name) is read again; browsers report no change otherwise.
  */
@@ -13,19 +14,22 @@
       return;
     }
     var active = document.activeElement;
-    if (!active || !active.closest || !active.classList.contains("ag-cell")) {
-      return;
-    }
-    var row = active.closest(".ag-row");
+    // the focused cell itself, or an element inside it
+    var cell = active && active.closest ? active.closest(".ag-cell") : null;
+    var row = cell && cell.closest(".ag-row");
     if (!row) {
       return;
     }
-    // a pinned column lives in its own container: find the row by its index across the grid
-    var grid = active.closest(".ag-root-wrapper");
-    var index = row.getAttribute("row-index");
-    var link = grid && grid.querySelector('.ag-row[row-index="' + index + '"] .link-cell');
+    // a pinned column lives in its own container: find the row across the grid, by its id where the grid
+    // gives rows one (it stays the same while rows are re-sorted or redrawn), else by its index
+    var grid = cell.closest(".ag-root-wrapper");
+    var id = row.getAttribute("row-id");
+    var key = id !== null ? '[row-id="' + (window.CSS && CSS.escape ? CSS.escape(id) : id) + '"]'
+                          : '[row-index="' + row.getAttribute("row-index") + '"]';
+    var link = grid && grid.querySelector(".ag-row" + key + " .link-cell");
     if (link) {
       event.preventDefault();
+      event.stopPropagation();
       link.click();
     }
   }, true);

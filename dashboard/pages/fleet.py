@@ -18,6 +18,11 @@ ABATEMENT = "fleet-abatement"
 NOTICE = "fleet-notice"
 COUNT = "fleet-count"
 HEADLINE = "fleet"
+#: What the page says while the tab's results are not there yet (a new case's models run for 4-20 s).
+COMPUTING = "Computing the case…"
+#: The table's height: at most 460 px, less on a short window, so its own horizontal scrollbar (when the
+#: columns do not fit) shows within the first screen.
+TABLE_HEIGHT = "clamp(280px, calc(100vh - 400px), 460px)"
 
 
 def layout(**_query):
@@ -25,7 +30,10 @@ def layout(**_query):
         ui.page_header("Fleet overview",
                        "The best option for every motor and what the budgeted plan buys. Click a row to open the asset."),
         ui.notice(NOTICE),
-        ui.headline_cards(HEADLINE),
+        # the cards say "-" until the results arrive: say why over them while the case is computed
+        dcc.Loading(ui.headline_cards(HEADLINE), delay_show=400, overlay_style={"visibility": "visible", "opacity": 0.35},
+                    custom_spinner=html.Div(COMPUTING, className="computing", role="status"),
+                    target_components={f"{HEADLINE}-headline-capital": "children"}),
         html.P("The cards are the budgeted plan for the whole fleet (plan year 0 is the first year of spending); "
                "the filters below narrow the table only.", className="page-intro"),
         html.Div([
@@ -33,9 +41,14 @@ def layout(**_query):
                       dcc.Dropdown(id=SITE_FILTER, multi=True, placeholder="all sites")], className="filter"),
             html.Div([html.Label("Application", htmlFor=APPLICATION_FILTER),
                       dcc.Dropdown(id=APPLICATION_FILTER, multi=True, placeholder="all applications")], className="filter"),
-            html.Div(id=COUNT, className="filter-count"),
+            # rowData None = results not there yet (the count and the grid say so), [] = no asset matches
+            html.Div(COMPUTING, id=COUNT, className="filter-count", role="status"),
         ], className="filters"),
-        ui.data_grid(TABLE, height=460, empty_text="No asset matches the filters", getRowId="params.data.asset_id"),
+        ui.data_grid(TABLE, height=TABLE_HEIGHT, empty_text="No asset matches the filters", loading_text=COMPUTING,
+                     rowData=None, getRowId="params.data.asset_id",
+                     # the columns are shared out with the vertical scrollbar's room already kept, so they do not
+                     # overflow by its width once the rows arrive
+                     dashGridOptions={"alwaysShowVerticalScroll": True}),
         html.Div(ui.graph(ABATEMENT), className="panel"),
     ])
 
@@ -43,25 +56,42 @@ def layout(**_query):
 dash.register_page(__name__, path="/", name="Fleet", title="Fleet overview · drivecase", order=0, layout=layout)
 
 
+#: Narrowest width of each column [px]: the whole table fits a 1366 px window (wider windows share out
+#: the rest); below that it scrolls sideways inside its own panel. Headers wrap, long texts wrap.
+WIDTHS_PX = {"rank": 48, "asset_id": 96, "site_id": 64, "application": 106, "rating": 74, "best_option": 110,
+             "capital": 84, "npv": 84, "discounted_payback_yr": 90, "saving_per_yr": 92, "co2_avoided_t_per_yr": 86,
+             "plan_option": 110, "plan_year": 62, "plan_capital": 84, "data_quality_pct": 84}
+#: Width the two option texts start from [px] (they get the larger share of a wide window).
+WIDE_TEXT_PX = 200
+#: A number cell whose value may be said in words ("not within the horizon"): wrapped, not cut.
+_WRAPPED_NUMBER = {"wrapText": True, "autoHeight": True,
+                   "cellStyle": {"lineHeight": "1.4", "paddingTop": "10px", "paddingBottom": "10px", "wordBreak": "normal"}}
+
+
 def table_columns(currency: str, power_unit: str) -> list[dict]:
     """Columns of the ranked asset table."""
-    return [ui.number_col("rank", "#", maxWidth=70, pinned="left"),
-            ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
-            ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application", minWidth=140),
-            ui.rating_col("rating", f"Rating [{services.power_label(power_unit)}]"),
-            ui.long_text_col("best_option", "Best option (before the budget)", minWidth=200),
-            ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
-            # blank where nothing is spent; said in words where the option does not pay back within the horizon
-            ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1, valueFormatter={
-                "function": "(params.value == null || !isFinite(params.value)) ? "
-                            "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
-                            "d3.format(',.1f')(params.value)"}),
-            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
-            ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
-            ui.long_text_col("plan_option", "The plan buys", minWidth=220),
-            ui.number_col("plan_year", "Plan year", maxWidth=110),
-            ui.number_col("plan_capital", f"Plan capital [{currency}]"),
-            ui.number_col("data_quality_pct", "Data quality [%]")]
+    columns = [ui.number_col("rank", "#", maxWidth=64, pinned="left"),
+               ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
+               ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application"),
+               ui.rating_col("rating", f"Rating [{services.power_label(power_unit)}]"),
+               ui.long_text_col("best_option", "Best option (before the budget)"),
+               ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
+               # blank where nothing is spent; said in words where the option does not pay back within the horizon
+               ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1, valueFormatter={
+                   "function": "(params.value == null || !isFinite(params.value)) ? "
+                               "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
+                               "d3.format(',.1f')(params.value)"}, **_WRAPPED_NUMBER),
+               ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
+               ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
+               ui.long_text_col("plan_option", "The plan buys"),
+               ui.number_col("plan_year", "Plan year", maxWidth=100),
+               ui.number_col("plan_capital", f"Plan capital [{currency}]"),
+               ui.number_col("data_quality_pct", "Data quality [%]")]
+    for column in columns:
+        # the grid shares the window out in proportion to these widths, never below the narrowest
+        column["minWidth"] = WIDTHS_PX[column["field"]]
+        column["width"] = WIDE_TEXT_PX if column["field"] in ("best_option", "plan_option") else column["minWidth"]
+    return columns
 
 
 @callback(
@@ -86,10 +116,14 @@ def update(session, edits, sites, applications):
 
 
 @callback(Output(COUNT, "children", allow_duplicate=True), Input(TABLE, "virtualRowData"),
-          State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
-def count_shown(shown, session):
-    """The count follows the grid's own column filters too (the rows it shows after them)."""
-    if shown is None:
+          State(ui.SESSION_STORE, "data"), State(TABLE, "rowData"), prevent_initial_call=True)
+def count_shown(shown, session, rows=()):
+    """The count follows the grid's own column filters too (the rows it shows after them).
+
+    A grid not yet given its rows (``rowData`` None: the results are still being computed) reports no rows
+    shown; the count then keeps saying the case is being computed rather than "0 of n assets".
+    """
+    if shown is None or rows is None:
         return no_update
     return f"{len(shown)} of {len(services.view(session, None).case.assets)} assets"
 
