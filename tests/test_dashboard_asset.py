@@ -97,7 +97,8 @@ def test_one_colour_per_option_across_the_asset_charts():
     cash, performance, speed = out[4], out[5], out[6]
     cash_colour = {t.name: t.line.color for t in cash.data if t.mode == "lines"}
     efficiency_colour = {t.name: t.line.color for t in performance.data if t.yaxis == "y" and t.showlegend is not False}
-    speed_colour = dict(zip(speed.data[0].x, speed.data[0].marker.color))
+    # (the speed chart lists the options down its side, long names wrapped at spaces)
+    speed_colour = {name.replace("<br>", " "): c for name, c in zip(speed.data[0].y, speed.data[0].marker.color)}
     assert "Keep as is" not in cash_colour and len(cash_colour) >= 2
     assert all(cash_colour[name] == efficiency_colour[name] == speed_colour[name] for name in cash_colour)
     colours = figures.option_colour_map(keys)
