@@ -385,3 +385,33 @@ def test_new_case_starts_with_finance_options_and_an_example_tariff(tmp_path, ca
     assert main(["check", str(folder)]) == 1
     out = capsys.readouterr().out
     assert "0 warnings" in out and "asset register has no rows" in out and "sites table has no rows" in out
+
+
+def test_serve_prints_its_address_and_cautions_at_once_into_a_pipe(tmp_path):
+    """Started with its output going to a pipe (a log file, a service manager), the dashboard says where it
+    listens and the cautions as soon as it starts, not when it stops (a pipe's output is held in blocks)."""
+    import socket
+    import time
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    proc = subprocess.Popen([sys.executable, "-m", "drivecase", "serve", str(case), "--no-browser", "--port", str(port)],
+                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True, cwd=REPO)
+    try:
+        seen, deadline = [], time.monotonic() + 120
+        while time.monotonic() < deadline:
+            line = proc.stdout.readline()
+            if not line:
+                break
+            seen.append(line)
+            if "qualified persons" in line:
+                break
+        text = "".join(seen)
+        assert f"Dashboard on http://127.0.0.1:{port}" in text and "qualified persons" in text, text
+        assert proc.poll() is None  # still serving: the lines came while it runs
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)
