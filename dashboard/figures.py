@@ -107,7 +107,8 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     ----------
     abatement : pandas.DataFrame
         project_id, asset_id, abatement_cost_per_t [currency/t], co2_avoided_t_per_yr [t/yr],
-        bar_start_t_per_yr [t/yr] (cumulative start of each bar), sorted by cost.
+        bar_start_t_per_yr [t/yr] (cumulative start of each bar), sorted by cost; optionally label (the
+        option's name, shown in the hover beside the asset).
     currency : str
     """
     if abatement is None or abatement.empty:
@@ -116,8 +117,10 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     start = abatement["bar_start_t_per_yr"].to_numpy(dtype=float)
     cost = abatement["abatement_cost_per_t"].to_numpy(dtype=float)
     colours = np.where(cost < 0, GAIN, COST)
-    text = [f"{p}<br>{c:,.0f} {currency}/t<br>{w:,.1f} t/yr" for p, c, w in
-            zip(abatement["project_id"], cost, width)]
+    # each bar named as the tables name a project ("HRW-P21: PM motor on a drive"), when the option's name is given
+    names = (abatement["asset_id"].astype(str) + ": " + abatement["label"].astype(str) if "label" in abatement
+             else abatement["project_id"].astype(str))
+    text = [f"{p}<br>{c:,.0f} {currency}/t<br>{w:,.1f} t/yr" for p, c, w in zip(names, cost, width)]
     fig = go.Figure(go.Bar(x=start + width / 2.0, y=cost, width=width, marker=dict(color=colours, line=dict(width=0.5, color="white")),
                            hovertext=text, hoverinfo="text", name="projects"))
     fig.add_hline(y=0, line=dict(color=INK, width=1))

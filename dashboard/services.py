@@ -1420,6 +1420,14 @@ def plan_notice(result) -> str:
             "prove it on the Capital plan page for the pack's precision.")
 
 
+def with_option_labels(frame: pd.DataFrame, result) -> pd.DataFrame:
+    """A frame of projects (asset_id, option_id) with the option's name as the tables show it (``label``)."""
+    if frame is None or not len(frame) or "option_id" not in frame:
+        return frame
+    names = result.results.drop_duplicates("option_id").set_index("option_id")["label"]
+    return frame.assign(label=frame["option_id"].map(names).fillna(frame["option_id"]).to_numpy(dtype=object))
+
+
 def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     """The exact plan with labels, capital by plan year of both plans, and projects only one plan has."""
     labels = result.results.set_index(scenario.project_labels(result.results))["label"]

@@ -359,3 +359,13 @@ def test_plan_comparison_title_reads_as_english(name, title):
     fig = figures.plan_comparison(pd.Series({"npv_exact": 2.0, "npv_greedy": 1.0, "projects_exact": 2, "projects_greedy": 1}), "EUR",
                                   exact_name=name)
     assert fig.layout.title.text == title
+
+
+def test_abatement_hover_names_asset_and_option_in_words():
+    """The hover names a bar as the tables do ("A1: PM motor on a drive"), not by the internal project key
+    (user report: "HRW-P21/pm_drive"); without labels it falls back to the key."""
+    frame = pd.DataFrame({"project_id": ["A1/pm_drive"], "asset_id": ["A1"], "option_id": ["pm_drive"],
+                          "abatement_cost_per_t": [-100.0], "co2_avoided_t_per_yr": [5.0], "bar_start_t_per_yr": [0.0]})
+    named = figures.abatement_curve(frame.assign(label="PM motor on a drive"), "EUR")
+    assert named.data[0].hovertext[0].startswith("A1: PM motor on a drive<br>")
+    assert figures.abatement_curve(frame, "EUR").data[0].hovertext[0].startswith("A1/pm_drive<br>")

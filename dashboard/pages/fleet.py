@@ -111,7 +111,8 @@ def update(session, edits, sites, applications):
     site_choices, application_choices = services.filter_choices(view)
     count = f"{len(table)} of {len(view.case.assets)} assets"
     return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit), count,
-            figures.abatement_curve(result.abatement, view.currency), site_choices, application_choices,
+            figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
+            site_choices, application_choices,
             " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
 
 

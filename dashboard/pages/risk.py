@@ -37,7 +37,7 @@ dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertaint
 
 
 def columns(currency: str) -> list[dict]:
-    return [ui.text_col("asset_id", "Asset"), ui.text_col("label", "Option", minWidth=200),
+    return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=200),
             ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
             ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
             percent_col("prob_npv_positive_frac", "P(NPV > 0) [%]"),
