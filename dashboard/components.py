@@ -11,6 +11,8 @@ import math
 import dash_ag_grid as dag
 from dash import Input, clientside_callback, dcc, html
 
+from dashboard import figures
+
 #: The session's case: {"session": id, "case": key}. Browser session storage: one per tab.
 SESSION_STORE = "app-session"
 #: The session's assumption edits: {"case": key, "discount_rate_pct": ..., ...}. Session storage.
@@ -45,12 +47,7 @@ def fmt_money(value, currency: str, compact: bool = True) -> str:
     """Money for a card: ``EUR 1.25 M``, ``EUR 48.2 k`` or ``EUR 950`` (``-`` when not finite)."""
     if not _finite(value):
         return "-"
-    v = float(value)
-    if compact and abs(v) >= 1e6:
-        return f"{currency} {v / 1e6:,.2f} M"
-    if compact and abs(v) >= 1e4:
-        return f"{currency} {v / 1e3:,.1f} k"
-    return f"{currency} {v:,.0f}"
+    return figures.money_short(value, currency) if compact else f"{currency} {float(value):,.0f}"
 
 
 def fmt_number(value, decimals: int = 0, unit: str = "") -> str:

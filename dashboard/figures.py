@@ -352,8 +352,8 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
 
 
 def money_short(value: float, currency: str) -> str:
-    """Money in three significant figures for a label, as the dashboard's cards write it: ``EUR 8.42 M``,
-    ``EUR 48.2 k``, ``EUR 950`` (``-`` when not finite).
+    """Money in three significant figures for a label or a card (``components.fmt_money`` writes the cards
+    with it): ``EUR 8.42 M``, ``EUR 48.2 k``, ``EUR 950`` (``-`` when not finite).
 
     Examples
     --------

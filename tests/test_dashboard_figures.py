@@ -369,3 +369,14 @@ def test_abatement_hover_names_asset_and_option_in_words():
     named = figures.abatement_curve(frame.assign(label="PM motor on a drive"), "EUR")
     assert named.data[0].hovertext[0].startswith("A1: PM motor on a drive<br>")
     assert figures.abatement_curve(frame, "EUR").data[0].hovertext[0].startswith("A1/pm_drive<br>")
+
+
+def test_cards_and_labels_write_money_alike():
+    """The cards (components.fmt_money) and the figures' labels (figures.money_short) share one short form;
+    values worked by hand: 1,250,000 / 1e6 = 1.25 M, 48,213 / 1e3 = 48.2 k."""
+    from dashboard import components
+
+    assert components.fmt_money(1.25e6, "EUR") == figures.money_short(1.25e6, "EUR") == "EUR 1.25 M"
+    assert components.fmt_money(48213.0, "EUR") == "EUR 48.2 k" and components.fmt_money(950.0, "EUR") == "EUR 950"
+    assert components.fmt_money(None, "EUR") == "-" and components.fmt_money(float("nan"), "EUR") == "-"
+    assert components.fmt_money(1.25e6, "EUR", compact=False) == "EUR 1,250,000"
