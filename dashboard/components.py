@@ -167,13 +167,19 @@ def budget_ids(prefix: str, years: int) -> list[str]:
 
 
 def budget_inputs(prefix: str, years: int) -> html.Div:
-    """Capital budget inputs for plan years 0..years-1 (ids from :func:`budget_ids`)."""
+    """Capital budget inputs for plan years 0..years-1 (ids from :func:`budget_ids`); each year's label has the
+    id ``<input id>-label``, for a callback to write the case's currency into it (:func:`budget_labels`)."""
     return html.Div([
-        html.Div([html.Label(f"Year {k}", htmlFor=component_id),
+        html.Div([html.Label(f"Year {k}", htmlFor=component_id, id=f"{component_id}-label"),
                   dcc.Input(id=component_id, type="text", inputMode="decimal", debounce=True,
                             placeholder="no limit" if k == 0 else "", className="budget-input")],
                  className="budget-year")
         for k, component_id in enumerate(budget_ids(prefix, years))], className="budget-row")
+
+
+def budget_labels(currency: str, years: int) -> list[str]:
+    """The budget fields' labels with the case's currency: ``Year 0 [EUR]``, ..."""
+    return [f"Year {k} [{currency}]" for k in range(years)]
 
 
 def budget_values(budget: list, years: int) -> list:

@@ -7,7 +7,6 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import services
-from dashboard.pages.plan import budget_fields, budget_labels
 
 
 READY = "inputs-ready"
@@ -24,7 +23,7 @@ PRICE_LEVEL = "inputs-price-level"
 CAPITAL_LEVEL = "inputs-capital-level"
 BUDGET = "inputs-budget"
 BUDGET_IDS = ui.budget_ids(BUDGET, services.BUDGET_YEARS)
-#: The budget fields' labels ("Year 0 [EUR]"), written with the tab's case currency (see plan.budget_fields).
+#: The budget fields' labels ("Year 0 [EUR]"), written with the tab's case currency (see components.budget_inputs).
 BUDGET_LABEL_IDS = [f"{i}-label" for i in BUDGET_IDS]
 RESET = "inputs-reset"
 FORM_MESSAGE = "inputs-form-message"
@@ -75,7 +74,7 @@ def layout(**_query):
                               dcc.Input(id=CAPITAL_LEVEL, type="number", step="any", debounce=True)], className="field"),
                 ], className="fields"),
                 html.Label("Capital budget per plan year (blank = no limit; in the case's currency)"),
-                budget_fields(BUDGET),
+                ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
                 html.Button("Back to the case's own assumptions", id=RESET, className="button secondary"),
                 html.Div(id=FORM_MESSAGE, className="form-message", role="alert"),
                 html.Button("Save these assumptions into the case", id=SAVE_BUTTON, className="button"),
@@ -149,7 +148,7 @@ def _form_values(assumptions) -> tuple:
 def fill(_ready, session, edits):
     """Show the assumptions in force, and the budget's unit, when the page opens or the case changes."""
     view = services.view(session, edits)
-    return (*_form_values(view.assumptions), *budget_labels(view.currency))
+    return (*_form_values(view.assumptions), *ui.budget_labels(view.currency, services.BUDGET_YEARS))
 
 
 @callback(Output(DISCOUNT, "value", allow_duplicate=True), Output(ESCALATION, "value", allow_duplicate=True),

@@ -42,22 +42,6 @@ PLAN_NPV_NOTE = ("A reactive project (capacitor, wound-field machine) counts her
                  "its own NPV on the Asset page; the other projects count at their own NPV.")
 
 
-def budget_fields(prefix: str) -> html.Div:
-    """The shared budget inputs, each year's label given an id (``<input id>-label``) so that a callback can
-    write the case's currency into it."""
-    row = ui.budget_inputs(prefix, services.BUDGET_YEARS)
-    for year in row.children:
-        for child in year.children:
-            if isinstance(child, html.Label):
-                child.id = f"{child.htmlFor}-label"
-    return row
-
-
-def budget_labels(currency: str) -> list[str]:
-    """The budget fields' labels with the case's currency: ``Year 0 [EUR]``, ..."""
-    return [f"Year {k} [{currency}]" for k in range(services.BUDGET_YEARS)]
-
-
 def layout(**_query):
     return html.Div([
         dcc.Store(id=READY, data=True),
@@ -71,7 +55,7 @@ def layout(**_query):
                   html.P("Leave every year blank for no limit (then each asset gets its best option in year 0, except reactive "
                          "projects whose value the rest of the plan already takes). "
                          "Press Enter or leave the field to apply.", className="page-intro"),
-                  budget_fields(BUDGET),
+                  ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
                   html.Div(id=BUDGET_MESSAGE, className="form-message", role="alert")], className="panel form"),
         html.Div(id=SUMMARY, className="asset-summary"),
         html.Div([dcc.Loading(html.Span(id=SOLVE_STATUS, role="status"), type="dot"),
@@ -104,7 +88,7 @@ def fill(_ready, session, edits):
     """Show the budget in force, and its unit, when the page opens or the case changes."""
     view = services.view(session, edits)
     return [*ui.budget_values(services.assumption_form(view.assumptions)["budget_per_yr"], services.BUDGET_YEARS),
-            *budget_labels(view.currency)]
+            *ui.budget_labels(view.currency, services.BUDGET_YEARS)]
 
 
 @callback(Output(ui.EDITS_STORE, "data", allow_duplicate=True), Output(BUDGET_MESSAGE, "children"),
