@@ -309,7 +309,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     _print_run_summary(case, result)
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
-        print("(with --no-risk, risk.csv and tornado.csv hold their column headers only: no uncertainty was run)")
+        print("(with --no-risk, risk.csv, tornado.csv, plan_risk.csv, plan_tornado.csv and npv_draws.csv hold their "
+              "column headers only: no uncertainty was run)")
     print(f"\n{CAUTION}")
     return 0
 
@@ -341,6 +342,14 @@ def _print_run_summary(case, result) -> None:
     withdrawn = withdrawn_text(status)
     if withdrawn:
         print(f"  {withdrawn}")
+    if len(result.plan_npv_draws):
+        from models.risk import distribution_summary
+
+        s = distribution_summary(result.plan_npv_draws)
+        print(f"  Plan NPV under uncertainty ({len(result.plan_npv_draws):,} draws, seed "
+              f"{result.assumptions.monte_carlo_seed}): P10 {s['npv_p10']:,.0f}, P50 {s['npv_p50']:,.0f}, "
+              f"P90 {s['npv_p90']:,.0f} {currency}; P(plan NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % "
+              f"(plan_risk.csv, plan_tornado.csv, npv_draws.csv)")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")

@@ -20,7 +20,7 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 #: The files of a run, in the order they are written (documented in docs/outputs.md).
 RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank_order.csv", "risk.csv",
-             "tornado.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv")
+             "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv")
 
 
 def neutralise_text(value: object) -> object:
@@ -175,6 +175,11 @@ EMPTY_COLUMNS = {
                  "prob_npv_positive_frac", "payback_p10_yr", "payback_p50_yr", "payback_p90_yr",
                  "prob_payback_within_target_frac"],
     "tornado.csv": ["variable", "low_value", "high_value", "npv_at_low", "npv_at_high", "base_npv", "swing"],
+    "plan_risk.csv": ["asset_id", "option_id", "start_yr", "npv_p10", "npv_p50", "npv_p90", "npv_mean",
+                      "npv_standard_error", "prob_npv_positive_frac", "payback_p10_yr", "payback_p50_yr",
+                      "payback_p90_yr", "prob_payback_within_target_frac"],
+    "plan_tornado.csv": ["variable", "low_value", "high_value", "npv_at_low", "npv_at_high", "base_npv", "swing"],
+    "npv_draws.csv": ["draw", "best_options_npv", "plan_npv"],
     "end_of_life.csv": ["asset_id", "age_yr", "new_option_id", "failure_probability_in_horizon_frac",
                         "mean_residual_life_yr", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure",
                         "best_strategy", "advantage_over_next"],
@@ -188,6 +193,17 @@ EMPTY_COLUMNS = {
 }
 
 
+def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
+    """A Monte Carlo summary with its "asset/option" project label split into asset_id and option_id."""
+    rows = rows.copy()
+    if not rows.empty and "project_id" in rows:
+        split = rows["project_id"].str.split("/", n=1, expand=True)
+        rows.insert(0, "option_id", split[1])
+        rows.insert(0, "asset_id", split[0])
+        rows = rows.drop(columns=["project_id"])
+    return rows
+
+
 def run_tables(result) -> dict[str, pd.DataFrame]:
     """Return every table of a run, by file name (see :data:`RUN_FILES`)."""
     results = result.results.copy()
@@ -197,12 +213,12 @@ def run_tables(result) -> dict[str, pd.DataFrame]:
         results[column] = np.where(np.isinf(values), np.nan, values)  # documented: blank = none / not within horizon
     bills = result.bills.copy()
     bills = bills[["site_id", "month", "scenario", "line_item", "quantity", "unit", "rate", "amount"]]
-    risk_rows = result.risk.copy()
-    if not risk_rows.empty and "project_id" in risk_rows:
-        split = risk_rows["project_id"].str.split("/", n=1, expand=True)
-        risk_rows.insert(0, "option_id", split[1])
-        risk_rows.insert(0, "asset_id", split[0])
-        risk_rows = risk_rows.drop(columns=["project_id"])
+    risk_rows, plan_risk_rows = _by_asset_and_option(result.risk), _by_asset_and_option(result.plan_risk)
+    draws = pd.DataFrame(columns=EMPTY_COLUMNS["npv_draws.csv"])
+    if len(result.fleet_npv_draws):
+        plan_draws = result.plan_npv_draws if len(result.plan_npv_draws) else np.zeros(len(result.fleet_npv_draws))
+        draws = pd.DataFrame({"draw": np.arange(1, len(result.fleet_npv_draws) + 1),
+                              "best_options_npv": result.fleet_npv_draws, "plan_npv": plan_draws})
     abatement = result.abatement.copy()
     if not abatement.empty:
         abatement.insert(1, "option_id", abatement["project_id"].str.split("/", n=1, expand=True)[1])
@@ -211,6 +227,7 @@ def run_tables(result) -> dict[str, pd.DataFrame]:
     tables = {
         "results.csv": results, "cashflows.csv": result.cashflows, "bills.csv": bills, "plan.csv": result.plan,
         "plan_rank_order.csv": result.plan_greedy, "risk.csv": risk_rows, "tornado.csv": result.tornado,
+        "plan_risk.csv": plan_risk_rows, "plan_tornado.csv": result.plan_tornado, "npv_draws.csv": draws,
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,
         "lcc.csv": result.lcc, "flags.csv": flags,
     }

@@ -128,6 +128,15 @@ class ScenarioResult:
     fleet_npv_draws : numpy.ndarray
         Monte Carlo: the fleet NPV of the best option of every asset, one value per draw [currency],
         shape (n_draws,); empty without risk.
+    plan_tornado : pandas.DataFrame
+        One-at-a-time sensitivity of the exact plan's NPV at the plan's start (the columns of
+        ``tornado``); empty without risk or without a plan.
+    plan_risk : pandas.DataFrame
+        Monte Carlo summary per project of the exact plan (the columns of ``risk`` and ``start_yr``, the
+        NPVs at each project's own start with the plan's correction of its value).
+    plan_npv_draws : numpy.ndarray
+        Monte Carlo: the exact plan's NPV at its start, one value per draw [currency], shape (n_draws,),
+        the same draws as ``fleet_npv_draws``; empty without risk or without a plan.
     capital_spend_by_year : numpy.ndarray
         Capital of each row of ``results`` by year after its start [currency], shape (n_rows, horizon + 1),
         what a new budget needs to plan again.
@@ -155,6 +164,10 @@ class ScenarioResult:
     fleet_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
     capital_spend_by_year: np.ndarray | None = field(default=None, repr=False)
     bill_saving_pv: np.ndarray | None = field(default=None, repr=False)
+    plan_tornado: pd.DataFrame = field(default_factory=pd.DataFrame, repr=False)
+    plan_risk: pd.DataFrame = field(default_factory=pd.DataFrame, repr=False)
+    plan_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
+    cash_flows: cf.CashFlows | None = field(default=None, repr=False)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -593,17 +606,19 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 step("risk")
                 tornado_rows, risk_rows, fleet_draws = timed("risk", _risk, flows, assumptions, results, d)
                 plan_frames = planned.result()
+            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d)
         else:
             plan_frames = plan_now()
             step("end of life")
             eol, rules = timed("end of life", eol_now)
+            plan_risk = (pd.DataFrame(), pd.DataFrame(), np.zeros(0))
 
         step("bills")
         bills = timed("bills", _bills, case, op, plan_frames[0], sav.baseline_bills,
                       float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws,
-                          capital_spend, bill_pv)
+                          capital_spend, bill_pv, *plan_risk, cash_flows=flows)
 
 
 def _only_budget_differs(previous, phys: Physics, assumptions, with_risk: bool) -> bool:
@@ -629,8 +644,13 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
         step("bills")
         base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
         bills = _bills(case, op, plan_frames[0], base, float(assumptions.energy_price_factor))
+        plan_risk = (pd.DataFrame(), pd.DataFrame(), np.zeros(0))
+        if previous.fleet_npv_draws.size or not previous.risk.empty:  # the previous result was run with risk
+            plan_risk = _plan_risk(previous.cash_flows, assumptions, results, plan_frames[0],
+                                   float(assumptions.discount_rate_frac))
     return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
-                   plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4])
+                   plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4],
+                   plan_tornado=plan_risk[0], plan_risk=plan_risk[1], plan_npv_draws=plan_risk[2])
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
@@ -895,25 +915,62 @@ def _risk(flows, assumptions, results, d):
     """Tornado of the fleet NPV of each asset's best option, a seeded Monte Carlo per best project, and
     the fleet NPV of each draw (the projects' NPVs of one draw share that draw's factors, so they add)."""
     best = np.flatnonzero(results["best_for_asset"].to_numpy() & (results["capital"].to_numpy() > 0))
-    if not len(best):
-        return pd.DataFrame(), pd.DataFrame(), np.zeros(0)
-    amounts = flows.amounts[best]
+    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, best, d)
+    return tornado_rows, summary, draws
+
+
+def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None):
+    """Tornado, Monte Carlo summary per project and portfolio NPV per draw of the projects ``rows`` (rows
+    of ``flows``), each started ``start_yr`` years into the portfolio with ``offset`` added to its NPV
+    (:func:`models.risk.portfolio_npv`; default: all at once, nothing added); the fourth value is the
+    summary's NPVs per draw and project (None without projects)."""
+    if not len(rows):
+        return pd.DataFrame(), pd.DataFrame(), np.zeros(0), None
+    start = np.zeros(len(rows)) if start_yr is None else np.asarray(start_yr, dtype=float)
+    add = np.zeros(len(rows)) if offset is None else np.asarray(offset, dtype=float)
+    amounts = flows.amounts[rows]
     names = flows.component_names
     response = risk.default_response(assumptions)
     base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
 
-    def fleet_npv(values: dict[str, float]) -> np.ndarray:
+    def portfolio(values: dict[str, float]) -> float:
         factors = {k: np.array([float(v)]) for k, v in values.items()}
         out = risk.monte_carlo(amounts, names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
-        return np.asarray(out.npv)[0]
+        return float(risk.portfolio_npv(out.npv, out.discount_rate_frac, start, add)[0])
 
-    tornado_rows = risk.tornado(fleet_npv, base, TORNADO_RANGES)
+    tornado_rows = risk.tornado(portfolio, base, TORNADO_RANGES)
     factors = risk.draw_factors(int(assumptions.monte_carlo_draws), int(assumptions.monte_carlo_seed))
-    mc = risk.monte_carlo(amounts, names, factors, response, d, project_id=flows.project_id[best],
+    mc = risk.monte_carlo(amounts, names, factors, response, d, project_id=flows.project_id[rows],
                           tax_rate_frac=assumptions.tax_rate_frac)
+    draws = risk.portfolio_npv(mc.npv, mc.discount_rate_frac, start, add)
+    if np.any(add != 0.0):
+        mc = replace(mc, npv=mc.npv + add[None, :])
     summary = mc.summary(target_payback_yr=3.0)
     summary = summary.reset_index() if "project" not in summary.columns else summary
-    return tornado_rows, summary, np.asarray(mc.npv, dtype=float).sum(axis=1)
+    return tornado_rows, summary, np.asarray(draws, dtype=float), mc.npv
+
+
+def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float):
+    """Tornado, Monte Carlo summary per project and plan NPV per draw (at the plan's start) of the exact plan.
+
+    Each project keeps the value the plan gave it (its NPV less the share of its bill saving the rest of
+    the plan already takes, :mod:`models.reactive_plan`): that correction is held at its base value in
+    every draw, and a project started in a later plan year is discounted by its delay at the draw's rate.
+    """
+    if flows is None or plan_frame is None or plan_frame.empty:
+        return pd.DataFrame(), pd.DataFrame(), np.zeros(0)
+    labels = pd.Index(project_labels(results))
+    rows = labels.get_indexer(project_labels(plan_frame))
+    if np.any(rows < 0):
+        raise ValueError("a project of the plan is missing from the results")
+    offset = plan_frame["npv"].to_numpy(dtype=float) - results["npv"].to_numpy(dtype=float)[rows]
+    offset = np.where(np.abs(offset) > 1e-9 * np.maximum(1.0, np.abs(plan_frame["npv"].to_numpy(dtype=float))),
+                      offset, 0.0)
+    start = plan_frame["start_yr"].to_numpy(dtype=float)
+    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset)
+    if not summary.empty:
+        summary.insert(1, "start_yr", plan_frame["start_yr"].to_numpy(dtype=int))
+    return tornado_rows, summary, draws
 
 
 def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:

@@ -233,8 +233,9 @@ def test_run_prints_the_case_warnings(tmp_path, capsys):
     captured = capsys.readouterr()
     assert "1 warning;" in captured.err and "horizon_years" in captured.err
     # without the uncertainty, its two files are written with headers only, and the run says so
-    assert "with --no-risk, risk.csv and tornado.csv hold their column headers only" in captured.out
-    for name in ("risk.csv", "tornado.csv"):
+    assert ("with --no-risk, risk.csv, tornado.csv, plan_risk.csv, plan_tornado.csv and npv_draws.csv hold their "
+            "column headers only") in captured.out
+    for name in ("risk.csv", "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv"):
         assert len((tmp_path / "o" / name).read_text(encoding="utf-8").splitlines()) == 1
 
 

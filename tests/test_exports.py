@@ -115,9 +115,10 @@ def test_files_without_rows_keep_their_header(tmp_path):
 
     REPO = Path(__file__).resolve().parents[1]
     assert main(["run", str(REPO / "data" / "demo"), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
-    for name in ("risk.csv", "tornado.csv"):
+    for name in ("risk.csv", "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv"):
         frame = pd.read_csv(tmp_path / "o" / name)
-        assert frame.empty and list(frame.columns)[:2] in (["asset_id", "option_id"], ["variable", "low_value"])
+        assert frame.empty and list(frame.columns)[:2] in (["asset_id", "option_id"], ["variable", "low_value"],
+                                                            ["draw", "best_options_npv"])
 
 
 def test_empty_headers_are_those_of_a_full_run(tmp_path):

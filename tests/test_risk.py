@@ -222,3 +222,40 @@ def test_tornado_labels_read_as_the_pages_show_them():
     assert tornado_label("discount_rate_delta_frac", -0.02, 0.02) == "Discount rate (-2 to +2 points)"
     assert tornado_label("energy_price_mult", 0.8, 1.2) == "Energy price (x0.8 to x1.2)"
     assert tornado_label("something_new", 1, 2) == "something_new (1 to 2)"
+
+
+class TestPortfolio:
+    """A plan's NPV from its projects' drawn NPVs; hand calculations in docs/derivations/finance-plan-risk.md."""
+
+    def test_a_project_a_year_later_is_discounted_one_year(self):
+        # 100 + 110 / 1.10 = 200 (hand calculation)
+        assert_allclose(risk.portfolio_npv(np.array([[100.0, 110.0]]), np.array([0.10]), [0, 1]), [200.0], rtol=1e-12)
+
+    def test_each_draw_at_its_own_rate_with_offsets(self):
+        # draw 0 at 0 %: (10 + 1) + (20 - 5) = 26; draw 1 at 25 %: (30 + 1) + (40 - 5) / 1.25^2 = 31 + 22.4 = 53.4
+        # (hand calculation)
+        out = risk.portfolio_npv(np.array([[10.0, 20.0], [30.0, 40.0]]), np.array([0.0, 0.25]), [0, 2], [1.0, -5.0])
+        assert_allclose(out, [26.0, 53.4], rtol=1e-12)
+
+    @pytest.mark.parametrize("npv, rate, start", [
+        (np.ones(3), [0.1], [0, 0, 0]),            # not (draws, projects)
+        (np.ones((2, 3)), [0.1], [0, 0, 0]),       # one rate for two draws
+        (np.ones((1, 3)), [0.1], [0, 0]),          # two start years for three projects
+        (np.ones((1, 2)), [0.1], [0, -1]),         # a start before the plan's
+        (np.ones((1, 2)), [-1.0], [0, 1]),         # a rate of -100 %
+    ])
+    def test_bad_shapes_and_values_are_refused(self, npv, rate, start):
+        with pytest.raises(ValueError):
+            risk.portfolio_npv(npv, np.asarray(rate), start)
+
+    def test_distribution_summary_by_hand(self):
+        # five draws -10, 0, 10, 20, 30: P10 at position 0.4 -> -6, P50 10, P90 at 3.6 -> 26 (linear between
+        # draws); mean 10; s = sqrt(1000 / 4) = 15.8114, s / sqrt(5) = 7.0711; 3 of 5 above 0 (hand calculation)
+        s = risk.distribution_summary([-10.0, 0.0, 10.0, 20.0, 30.0])
+        assert_allclose([s["npv_p10"], s["npv_p50"], s["npv_p90"], s["npv_mean"], s["npv_standard_error"]],
+                        [-6.0, 10.0, 26.0, 10.0, 7.0711], rtol=1e-4)
+        assert s["prob_npv_positive_frac"] == 0.6
+
+    def test_an_empty_set_of_draws_is_refused(self):
+        with pytest.raises(ValueError, match="no draws"):
+            risk.distribution_summary([])

@@ -427,3 +427,53 @@ def test_rank_order_plan_does_not_depend_on_the_exact_plans_precision(demo_run_p
     precise = scenario.economics(case, phys, assumptions, with_risk=False, plan_settings=scenario.PRECISE_PLAN)
     pd.testing.assert_frame_equal(live.plan_greedy.reset_index(drop=True), precise.plan_greedy.reset_index(drop=True))
     assert live.plan_comparison["npv_greedy"] == precise.plan_comparison["npv_greedy"]
+
+
+def test_the_plans_uncertainty_starts_from_the_plans_own_value(result):
+    # Cross-check of two paths: the tornado's centre is the plan re-priced at every factor's base value,
+    # which must give the plan solver's own total (deferred projects discounted by their delay).
+    assert not result.plan.empty and (result.plan["start_yr"] > 0).any()  # the demo's budget defers projects
+    assert_allclose(result.plan_tornado["base_npv"], result.plan["npv_at_plan_start"].sum(), rtol=1e-9)
+    assert result.plan_npv_draws.shape == (result.assumptions.monte_carlo_draws,)
+    risk_rows = result.plan_risk.set_index("project_id")
+    labels = result.plan["asset_id"] + "/" + result.plan["option_id"]
+    assert list(risk_rows.index) == list(labels)
+    assert risk_rows["start_yr"].tolist() == result.plan["start_yr"].tolist()
+
+
+def test_draws_at_every_factors_base_value_give_the_plans_own_total(result, demo_case, monkeypatch):
+    # Cross-check of two paths: a Monte Carlo whose every draw holds each factor at its base value must give,
+    # in every draw, the plan solver's own total at the plan's start (deferred projects discounted by their
+    # delay, reactive projects at the value the plan gave them).
+    from models import risk as risk_module
+
+    def base_draws(n_draws, seed, distributions=risk_module.DEFAULT_FACTORS):
+        return {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else (0.0 if name == "loss_tolerance_frac"
+                                                                                else 1.0))
+                for name in distributions}
+
+    monkeypatch.setattr(risk_module, "draw_factors", base_draws)
+    d = float(result.assumptions.discount_rate_frac)
+    _, summary, draws = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d)
+    assert_allclose(draws, result.plan["npv_at_plan_start"].sum(), rtol=1e-9)
+    assert_allclose(summary["npv_p50"], result.plan["npv"], rtol=1e-9)  # each project at its own start
+
+
+def test_a_new_budget_redoes_the_plans_uncertainty(demo_case):
+    # Invariant: reusing a result under a new budget gives the plan's uncertainty of a fresh run.
+    phys = scenario.physics(demo_case, float(demo_case.finance.capacitor_cost_per_kvar))
+    first = scenario.economics(demo_case, phys, demo_case.finance)
+    tight = replace(demo_case.finance, budget_per_yr=(120000.0, 90000.0))
+    reused = scenario.economics(demo_case, phys, tight, previous=first)
+    fresh = scenario.economics(demo_case, phys, tight)
+    assert reused.results is first.results
+    assert_allclose(reused.plan_npv_draws, fresh.plan_npv_draws, rtol=1e-12)
+    pd.testing.assert_frame_equal(reused.plan_risk, fresh.plan_risk)
+    pd.testing.assert_frame_equal(reused.plan_tornado, fresh.plan_tornado)
+    assert reused.plan_npv_draws.mean() < first.plan_npv_draws.mean()  # a smaller budget, a smaller plan
+
+
+def test_without_risk_the_plan_has_no_uncertainty(demo_run_physics):
+    case, phys = demo_run_physics
+    r = scenario.economics(case, phys, case.finance, with_risk=False)
+    assert r.plan_risk.empty and r.plan_tornado.empty and r.plan_npv_draws.size == 0
