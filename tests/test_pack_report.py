@@ -6,10 +6,13 @@ test; sections and cautions follow the capital-request checklist in docs/pack.md
 
 from __future__ import annotations
 
+import dataclasses
 import html as htmllib
 import re
 import warnings
 
+import numpy as np
+import pandas as pd
 import pytest
 from plotly.offline import get_plotlyjs
 
@@ -51,6 +54,23 @@ def text(path) -> str:
 def money(value: float) -> str:
     """The report's money format: thousands separators, no decimals, currency code."""
     return f"{value:,.0f} EUR"
+
+
+def without_plan_uncertainty(result):
+    """The run as an older result: the best options' tornado and Monte Carlo, not the plan's."""
+    return dataclasses.replace(result, plan_tornado=pd.DataFrame(), plan_risk=pd.DataFrame(),
+                               plan_npv_draws=np.zeros(0))
+
+
+def monte_carlo_table(ctx) -> list[dict[str, str]]:
+    """Section 6's per-project table as {header: cell text} rows."""
+    return [dict(zip(ctx["mc_headers"], (c["text"] for c in r["cells"]))) for r in ctx["mc_rows"]]
+
+
+def project_name(result, asset_id: str, option_id: str) -> str:
+    """How the report names a project: asset, then the option's label (result.results)."""
+    res = result.results
+    return f"{asset_id}: {res.loc[res['option_id'] == option_id, 'label'].iloc[0]}"
 
 
 class TestFiles:
@@ -285,6 +305,100 @@ class TestDecisionRecords:
         # (IEC TS 60034-25 guidance, cited from memory) and the harmonics check
         assert "a qualified person to confirm its winding suits converter supply" in html
         assert "Drives inject harmonics" in html
+
+
+class TestPlanUncertainty:
+    """Section 6 shows the uncertainty of what the pack asks money for: the exact plan under the budget."""
+
+    def test_plan_npv_percentiles_and_chance_of_a_positive_npv(self, plan_pack, small):
+        _, result = small
+        html = htmllib.unescape(text(plan_pack[0] / REPORT_NAME))
+        draws = result.plan_npv_draws
+        assert draws.size == 200  # monte_carlo_draws of the test case's finance.toml
+        # numpy as the reference: linear-interpolation percentiles of the engine's draws of the plan's NPV
+        p10, p90 = np.percentile(draws, [10, 90])
+        assert (f"has P10 {money(p10)}, P50 {money(np.median(draws))} and P90 {money(p90)}; "
+                f"P(plan NPV > 0) = {100 * np.mean(draws > 0):.0f} %") in html
+        # the best options' draws give another P50 (without a budget): the report does not show that one
+        assert money(np.median(result.fleet_npv_draws)) != money(np.median(draws))
+        assert f"P50 {money(np.median(result.fleet_npv_draws))}" not in html
+        assert "plan choices that trade NPV for budget are not simulated" not in html
+
+    def test_tornado_is_the_plans(self, plan_pack, small):
+        _, result = small
+        html = text(plan_pack[0] / REPORT_NAME)
+        # the tornado's centre is the plan's NPV at its start (plan.csv's npv_at_plan_start, summed)
+        assert f"the plan under the budget: {result.plan['npv_at_plan_start'].sum():,.0f}" in html
+        assert "best option of every asset, no budget" not in html
+        assert "on the NPV of the exact plan under the budget, at the plan&#39;s start." in html  # the whole plan
+
+    def test_per_project_table_is_the_plans_projects_with_their_start_year(self, small):
+        from models.pack import content
+        from models.pack.report_html import report_context
+
+        case, result = small
+        scope = content.select_scope(case, result, None, True)
+        rows = monte_carlo_table(report_context(case, result, scope, []))
+        # engine: the exact plan (plan.csv), its projects and plan years; P50 from plan_risk.csv
+        p50 = result.plan_risk.set_index("project_id")["npv_p50"]
+        expected = [{"Project": project_name(result, a, o), "Plan year": str(int(y)),
+                     "NPV P50": f"{p50[f'{a}/{o}']:,.0f}"}
+                    for a, o, y in zip(result.plan["asset_id"], result.plan["option_id"], result.plan["start_yr"])]
+        assert sorted(result.plan["start_yr"]) == [0, 1]  # one project waits for the second plan year
+        assert [{k: r[k] for k in ("Project", "Plan year", "NPV P50")} for r in rows] == expected
+
+    def test_scoped_pack_lists_only_its_plan_projects_and_says_whose_npv(self, small):
+        from models.pack import content
+        from models.pack.report_html import report_context
+
+        case, result = small
+        scope = content.select_scope(case, result, ["C1"], False)
+        ctx = report_context(case, result, scope, [])
+        c1 = result.plan[result.plan["asset_id"] == "C1"].iloc[0]  # engine: C1's project in the exact plan
+        assert [(r["Project"], r["Plan year"]) for r in monte_carlo_table(ctx)] == [
+            (project_name(result, "C1", c1["option_id"]), str(int(c1["start_yr"])))]
+        whole = "the whole fleet plan, not only this pack's scope: 2 projects, 1 of them in this pack"
+        assert whole in ctx["tornado_note"] and whole in ctx["plan_npv_note"]
+
+    def test_register_reads_the_plans_monte_carlo(self, small):
+        from models.pack import content
+
+        case, result = small
+        scope = content.select_scope(case, result, None, True)
+
+        def weak_row(r):
+            register = content.risk_register(case, r, scope)
+            rows = register[register["item"] == "NPV may be negative"]
+            return None if rows.empty else rows.iloc[0]
+
+        # engine: the plan's projects with P(NPV > 0) below 90 % in plan_risk.csv
+        weak = result.plan_risk.loc[result.plan_risk["prob_npv_positive_frac"] < 0.9, "project_id"]
+        assert list(weak) == ["C1/ie3"]
+        assert weak_row(result)["assets"] == "C1" and "in the plan's Monte Carlo" in weak_row(result)["detail"]
+        # the plan's table, not the best options': a plan whose P1 project is doubtful puts P1 on the register
+        doubtful = result.plan_risk.assign(prob_npv_positive_frac=[0.5 if p.startswith("P1/") else 0.95
+                                                                   for p in result.plan_risk["project_id"]])
+        assert weak_row(dataclasses.replace(result, plan_risk=doubtful))["assets"] == "P1"
+
+    def test_fallback_to_the_best_options_without_the_plans_uncertainty(self, small, tmp_path):
+        from models.pack import content
+        from models.pack.report_html import report_context
+
+        case, result = small
+        older = without_plan_uncertainty(result)
+        write_pack(case, older, tmp_path)
+        html = htmllib.unescape(text(tmp_path / REPORT_NAME))
+        assert "plan choices that trade NPV for budget are not simulated" in html
+        assert "on the fleet NPV of every asset's best option" in html
+        assert f"best option of every asset, no budget: {result.tornado['base_npv'].iloc[0]:,.0f}" in html
+        assert "P(plan NPV > 0)" not in html
+        scope = content.select_scope(case, older, None, True)
+        ctx = report_context(case, older, scope, [])
+        assert "Plan year" not in ctx["mc_headers"] and ctx["plan_npv_note"] == ""
+        # engine: risk.csv's rows of the recommended projects
+        chosen = set(scope.chosen["asset_id"] + "/" + scope.chosen["option_id"])
+        expected = [project_name(result, *p.split("/")) for p in result.risk["project_id"] if p in chosen]
+        assert [r["Project"] for r in monte_carlo_table(ctx)] == expected and expected
 
 
 def test_no_warning_without_pdf(small, tmp_path):

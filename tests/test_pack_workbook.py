@@ -7,9 +7,12 @@ never by drivecase. A match within 0.01 % shows the workbook reproduces the engi
 
 from __future__ import annotations
 
+import dataclasses
+import io
 import math
 from pathlib import Path
 
+import numpy as np
 import numpy_financial as npf
 import pandas as pd
 import pytest
@@ -20,6 +23,8 @@ import casebuilder as cb
 from models import scenario
 from models.case import load_case
 from models.pack import WORKBOOK_NAME, write_pack
+from models.pack.content import select_scope
+from models.pack.workbook import build_workbook
 from models.pack.workbook import put, put_formula, write_project_block
 
 formulas = pytest.importorskip("formulas")
@@ -390,3 +395,89 @@ def test_plan_and_risk_sheets_speak_in_words(plan_pack):
     for key in ("npv_exact", "projects_greedy", "shortfall_frac", "replace_now", "energy_price_mult", "min_rated_p_kw"):
         assert key not in words, key
     assert "Projects in the exact plan" in words
+
+
+def risk_tables(book) -> dict[str, list[dict[str, object]]]:
+    """The Risk sheet's tables: {bold heading: rows as {header: value}}. A table's header row is the first row
+    after its heading in the header fill; its rows run to the first blank row."""
+    ws = book["Risk"]
+    tables: dict[str, list[dict[str, object]]] = {}
+    r = 2
+    while r <= ws.max_row:
+        heading = ws.cell(r, 1)
+        if isinstance(heading.value, str) and heading.font.bold:
+            h = r + 1
+            while h <= ws.max_row and not (ws.cell(h, 1).fill and ws.cell(h, 1).fill.fgColor.rgb.endswith("DDE4EE")):
+                h += 1
+            headers = [c.value for c in ws[h] if c.value is not None]
+            rows, k = [], h + 1
+            while k <= ws.max_row and ws.cell(k, 1).value is not None:
+                rows.append({name: ws.cell(k, j + 1).value for j, name in enumerate(headers)})
+                k += 1
+            tables[heading.value] = rows
+            r = k
+        r += 1
+    return tables
+
+
+def workbook_of(case, result, assets=None, plan=True):
+    scope = select_scope(case, result, assets, plan if assets else True)
+    return load_workbook(io.BytesIO(build_workbook(case, result, scope)))
+
+
+class TestRiskSheetIsThePlans:
+    """The Risk sheet shows the uncertainty of what the pack asks money for: the exact plan under the budget."""
+
+    def test_plan_npv_percentiles(self, plan_pack, small):
+        _, result = small
+        book = load_workbook(plan_pack)
+        tables = risk_tables(book)
+        heading = "Monte Carlo of the plan's NPV at its start over 200 draws"  # monte_carlo_draws of FINANCE
+        (summary,) = tables[heading]
+        draws = result.plan_npv_draws
+        # numpy as the reference; both are the same doubles, so to rounding
+        assert_allclose(summary["NPV P50"], np.median(draws), rtol=1e-12)
+        assert_allclose([summary["NPV P10"], summary["NPV P90"]], np.percentile(draws, [10, 90]), rtol=1e-12)
+        assert_allclose(summary["P(NPV > 0)"], np.mean(draws > 0), rtol=1e-12)
+        # shown as the pack shows money: the case currency in the number format
+        ws = book["Risk"]
+        p50 = next(c for row in ws.iter_rows() for c in row
+                   if isinstance(c.value, float) and math.isclose(c.value, float(np.median(draws)), rel_tol=1e-12))
+        assert p50.number_format == '#,##0 "EUR";-#,##0 "EUR"'
+
+    def test_tornado_centre_is_the_plans_npv(self, plan_pack, small):
+        _, result = small
+        tables = risk_tables(load_workbook(plan_pack))
+        rows = tables["One-at-a-time sensitivity of the exact plan's NPV at its start"]
+        # engine: plan.csv's npv_at_plan_start, summed (the plan's NPV at its start)
+        assert_allclose([r["Base NPV"] for r in rows], result.plan["npv_at_plan_start"].sum(), rtol=1e-9)
+
+    def test_per_project_rows_are_the_plans_projects_in_scope_with_their_start_year(self, small):
+        case, result = small
+        heading = "Monte Carlo per project of the plan in scope (NPV at its own start, P10/P50/P90)"
+        # engine: the exact plan's projects and plan years (plan.csv)
+        plan = result.plan.assign(project=result.plan["asset_id"] + "/" + result.plan["option_id"])
+        whole = risk_tables(workbook_of(case, result))[heading]
+        assert [(r["Project"], r["Plan year"]) for r in whole] == list(zip(plan["project"], plan["start_yr"].astype(int)))
+        only_c1 = risk_tables(workbook_of(case, result, ["C1"], plan=False))
+        c1 = plan[plan["asset_id"] == "C1"]
+        assert [(r["Project"], r["Plan year"]) for r in only_c1[heading]] == [(c1["project"].iloc[0], 1)]
+        # a pack of part of the plan says the plan's figures are the whole fleet plan's
+        assert any("the whole fleet plan, not only this pack's scope" in h for h in only_c1)
+
+    def test_fallback_without_the_plans_uncertainty(self, small):
+        case, result = small
+        older = dataclasses.replace(result, plan_tornado=pd.DataFrame(), plan_risk=pd.DataFrame(),
+                                    plan_npv_draws=np.zeros(0))
+        book = workbook_of(case, older)
+        tables = risk_tables(book)
+        tornado = tables["One-at-a-time sensitivity of the fleet NPV of each asset's best option"]
+        assert_allclose([r["Base NPV"] for r in tornado], result.tornado["base_npv"].to_numpy(), rtol=1e-12)
+        rows = tables["Monte Carlo per project in scope (P10/P50/P90)"]
+        assert rows and all("Plan year" not in r for r in rows)
+        # engine: risk.csv's rows of the plan's projects (the recommended projects of a plan pack)
+        keys = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
+        assert [r["Project"] for r in rows] == [p for p in result.risk["project_id"] if p in keys]
+        assert not any(h.startswith("Monte Carlo of the plan's NPV") for h in tables)
+        words = " ".join(str(c.value) for row in book["Risk"].iter_rows() for c in row if c.value is not None)
+        assert "plan choices that trade NPV for budget are not simulated" in words

@@ -17,6 +17,7 @@ import pandas as pd
 from models import finance
 from models.cashflows import COMPONENTS
 from models.plan import LOW_DATA_QUALITY_PCT
+from models.risk import distribution_summary
 from models.wording import counted
 
 #: The cautions every file of the pack shows, in plain words.
@@ -487,11 +488,131 @@ def asset_list_text(ids: list[str], limit: int = 8) -> str:
     return text + (f" and {len(ids) - limit} more" if len(ids) > limit else "")
 
 
+#: The factors the Monte Carlo draws, in words (docs/finance.md, section 7).
+DRAWN_FACTORS_TEXT = "hours, load, prices and their escalation, the discount rate and capital"
+
+
+@dataclass(frozen=True)
+class Uncertainty:
+    """The tornado and Monte Carlo a pack shows for its recommended projects.
+
+    Attributes
+    ----------
+    of_plan : bool
+        True: the exact plan's under the budget (``result.plan_tornado``, ``result.plan_risk``,
+        ``result.plan_npv_draws``); False: each asset's best option with no budget (``result.tornado``,
+        ``result.risk``), for a result without the plan's uncertainty.
+    tornado : pandas.DataFrame
+        One-at-a-time sensitivity rows (columns of ``result.tornado``); empty without risk.
+    projects : pandas.DataFrame
+        Monte Carlo summary rows of the recommended projects in scope that were simulated (columns of
+        ``result.plan_risk``, with ``start_yr``, or of ``result.risk``).
+    plan_npv : dict or None
+        :func:`models.risk.distribution_summary` of the plan's NPV at its start over the draws [currency];
+        None when not ``of_plan`` or without draws.
+    n_draws : int
+        Draws of the plan's NPV (0 when ``plan_npv`` is None).
+    n_asked : int
+        Recommended projects in scope.
+    n_plan : int
+        Projects of the whole fleet plan.
+    n_plan_in_scope : int
+        Projects of the fleet plan among the recommended projects in scope.
+    """
+
+    of_plan: bool
+    tornado: pd.DataFrame
+    projects: pd.DataFrame
+    plan_npv: dict[str, float] | None
+    n_draws: int
+    n_asked: int
+    n_plan: int
+    n_plan_in_scope: int
+
+    @property
+    def whole_plan(self) -> bool:
+        """The recommended projects in scope are exactly the fleet plan's (the plan's NPV is then theirs)."""
+        return self.n_plan_in_scope == self.n_plan == self.n_asked
+
+
+def uncertainty(result, scope: Scope) -> Uncertainty:
+    """Return the tornado and Monte Carlo a pack shows: the exact plan's, else (an older result, run with risk
+    before the plan's uncertainty was kept) each asset's best option's.
+
+    Parameters
+    ----------
+    result : models.scenario.ScenarioResult
+    scope : Scope
+        Its recommended projects (``scope.chosen``) are the ones whose Monte Carlo rows are kept.
+
+    Returns
+    -------
+    Uncertainty
+    """
+    chosen = set(scope.chosen["asset_id"] + "/" + scope.chosen["option_id"])
+    plan_keys = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
+    of_plan = not result.plan_risk.empty and "project_id" in result.plan_risk
+    table = result.plan_risk if of_plan else result.risk
+    if not table.empty and "project_id" in table:
+        table = table[table["project_id"].isin(list(chosen))].reset_index(drop=True)
+    draws = np.asarray(result.plan_npv_draws, dtype=float).reshape(-1)
+    plan_npv = distribution_summary(draws) if of_plan and draws.size else None
+    return Uncertainty(of_plan=of_plan, tornado=result.plan_tornado if of_plan else result.tornado, projects=table,
+                       plan_npv=plan_npv, n_draws=int(draws.size) if plan_npv else 0, n_asked=len(chosen),
+                       n_plan=len(plan_keys), n_plan_in_scope=len(plan_keys & chosen))
+
+
+def whole_plan_text(u: Uncertainty) -> str:
+    """Say that the plan's figures are the whole fleet plan's when the pack covers other projects; else ''."""
+    if u.whole_plan:
+        return ""
+    if u.n_plan_in_scope == u.n_plan:
+        return f" (the fleet plan's {counted(u.n_plan, 'project')} only, not this pack's other recommended projects)"
+    return (f" (the whole fleet plan, not only this pack's scope: {counted(u.n_plan, 'project')}, "
+            f"{u.n_plan_in_scope} of them in this pack)")
+
+
+def tornado_text(u: Uncertainty) -> str:
+    """One sentence on what the tornado varies and on which NPV."""
+    if not u.of_plan:
+        return ("The tornado varies one input at a time on the fleet NPV of every asset's best option (the whole fleet, "
+                "not only this pack's scope).")
+    return ("The tornado varies one input at a time on the NPV of the exact plan under the budget, at the plan's start"
+            f"{whole_plan_text(u)}.")
+
+
+def plan_npv_text(u: Uncertainty, currency: str) -> str:
+    """The plan's NPV P10/P50/P90 and P(plan NPV > 0) over the draws, in a sentence; '' without them."""
+    if u.plan_npv is None:
+        return ""
+    s = u.plan_npv
+    return (f"Over {u.n_draws:,} Monte Carlo draws ({DRAWN_FACTORS_TEXT}), the plan's NPV at its start"
+            f"{whole_plan_text(u)} has P10 {money(s['npv_p10'], currency)}, P50 {money(s['npv_p50'], currency)} and "
+            f"P90 {money(s['npv_p90'], currency)}; P(plan NPV > 0) = {100 * s['prob_npv_positive_frac']:.0f} %.")
+
+
+def monte_carlo_text(u: Uncertainty) -> str:
+    """What the per-project Monte Carlo table shows, in words."""
+    if not u.of_plan:
+        return (f"{len(u.projects)} of the {u.n_asked} recommended project(s) were simulated: the Monte Carlo draws hours, "
+                "load, prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget "
+                "are not simulated.")
+    text = ("Each project of the plan in this pack: its NPV at its own start (its plan year, as in the plan), at the "
+            "value the plan gives it (a reactive project counts only the share of its saving the rest of the plan "
+            "leaves it), under the same draws.")
+    outside = u.n_asked - u.n_plan_in_scope
+    if outside:
+        text += (f" {outside} of the {u.n_asked} recommended project(s) {'is' if outside == 1 else 'are'} outside the "
+                 "fleet plan and not simulated.")
+    return text
+
+
 def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     """Return the risks and assumptions register: category, item, detail, assets, response.
 
     Rows come from the finance assumptions, the options catalogue, the defaulted inputs, the machine
-    models' flags, data quality and the Monte Carlo summary, for the assets and projects in scope.
+    models' flags, data quality and the Monte Carlo summary (the plan's, see :func:`uncertainty`), for the
+    assets and projects in scope.
     """
     a = result.assumptions
     rows: list[dict[str, str]] = []
@@ -539,14 +660,14 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             else:
                 add("engineering flag", title, text, asset_list_text(list(grp["asset_id"])),
                     "Check with the supplier or on site before ordering.")
-    if not result.risk.empty and "project_id" in result.risk:
-        keys = set(scope.chosen["asset_id"] + "/" + scope.chosen["option_id"])
-        mc = result.risk[result.risk["project_id"].isin(list(keys))]
-        weak = mc[mc["prob_npv_positive_frac"] < 0.9]
+    u = uncertainty(result, scope)
+    if not u.projects.empty and "prob_npv_positive_frac" in u.projects:
+        weak = u.projects[u.projects["prob_npv_positive_frac"] < 0.9]
         if len(weak):
-            add("uncertainty", "NPV may be negative",
-                f"{counted(len(weak), 'recommended project')} with P(NPV > 0) below 90 % in the Monte Carlo",
-                asset_list_text([p.split("/")[0] for p in weak["project_id"]]),
+            detail = (f"{counted(len(weak), 'project')} of the plan with P(NPV > 0) below 90 % in the plan's Monte Carlo "
+                      "(at its plan year, at the value the plan gives it)" if u.of_plan else
+                      f"{counted(len(weak), 'recommended project')} with P(NPV > 0) below 90 % in the Monte Carlo")
+            add("uncertainty", "NPV may be negative", detail, asset_list_text([p.split("/")[0] for p in weak["project_id"]]),
                 "Measure the load and hours before committing; consider replace-at-failure.")
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
 

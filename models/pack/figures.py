@@ -83,8 +83,9 @@ def cumulative_cash_flow(portfolio: pd.DataFrame, currency: str) -> go.Figure:
     return _layout(fig, "Cumulative cash flow of the recommended projects")
 
 
-def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
-    """Tornado of the fleet NPV: each variable at its low and high value, one at a time."""
+def tornado(rows: pd.DataFrame, currency: str, plan: bool = False) -> go.Figure:
+    """Tornado of a total NPV, each variable at its low and high value, one at a time: the exact plan's at its
+    start (``plan``) or the fleet NPV of every asset's best option."""
     fig = go.Figure()
     if rows.empty:
         return _layout(fig, "Sensitivity: not computed for this run")
@@ -95,15 +96,50 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
                          marker_color=COLOURS["negative"]))
     fig.add_trace(go.Bar(y=labels, x=frame["npv_at_high"] - base, base=base, orientation="h", name="high value",
                          marker_color=COLOURS["energy"]))
-    fig.add_vline(x=base, line={"color": "#333333", "width": 1},
-                  annotation_text=f"best option of every asset, no budget: {base:,.0f}", annotation_position="top")
+    centre, axis, title = (("the plan under the budget", "plan NPV at its start", "Sensitivity of the plan's NPV")
+                           if plan else ("best option of every asset, no budget", "fleet NPV of the best options",
+                                         "Sensitivity of the fleet NPV"))
+    fig.add_vline(x=base, line={"color": "#333333", "width": 1}, annotation_text=f"{centre}: {base:,.0f}",
+                  annotation_position="top")
     fig.update_layout(barmode="overlay")
-    fig.update_xaxes(title_text=f"fleet NPV of the best options [{esc(currency)}]")
-    return _layout(fig, "Sensitivity of the fleet NPV (one variable at a time)", height=340)
+    fig.update_xaxes(title_text=f"{axis} [{esc(currency)}]")
+    return _layout(fig, f"{title} (one variable at a time)", height=340)
+
+
+def plan_npv_draws(draws: np.ndarray, summary: dict[str, float], currency: str) -> go.Figure:
+    """Monte Carlo distribution of the plan's NPV at its start: one value per draw, P10, P50 and P90 marked.
+
+    Parameters
+    ----------
+    draws : numpy.ndarray
+        The plan's NPV at its start in each draw [currency], shape (n_draws,).
+    summary : dict
+        :func:`models.risk.distribution_summary` of ``draws`` (``npv_p10``, ``npv_p50``, ``npv_p90``,
+        ``prob_npv_positive_frac``).
+    currency : str
+    """
+    draws = np.asarray(draws, dtype=float).reshape(-1)
+    fig = go.Figure()
+    if draws.size == 0:
+        return _layout(fig, "Monte Carlo: the plan was not simulated")
+    fig.add_trace(go.Histogram(x=draws, nbinsx=40, name="draws", marker_color="#b9d3ea"))
+    # labels left of P10 and right of P50 and P90, so that close percentiles do not print over each other
+    for key, name, dash, side in (("npv_p10", "P10", "dot", "top left"), ("npv_p50", "P50", "solid", "top right"),
+                                  ("npv_p90", "P90", "dot", "top right")):
+        fig.add_vline(x=summary[key], line={"color": COLOURS["total"], "width": 2, "dash": dash},
+                      annotation_text=f"{name} {summary[key]:,.0f}", annotation_position=side)
+    if draws.min() < 0 < draws.max():
+        fig.add_vline(x=0, line={"color": "#888888", "width": 1})
+    fig.update_xaxes(title_text=f"plan NPV at its start [{esc(currency)}]")
+    fig.update_yaxes(title_text="draws")
+    title = (f"Monte Carlo: the plan's NPV over {draws.size:,} draws, "
+             f"P(NPV > 0) = {100 * summary['prob_npv_positive_frac']:.0f} %")
+    return _layout(fig, title, height=340)
 
 
 def monte_carlo(rows: pd.DataFrame, currency: str, limit: int = 25) -> go.Figure:
-    """P10-P90 range and P50 of each project's NPV from the Monte Carlo."""
+    """P10-P90 range and P50 of each project's NPV from the Monte Carlo (each asset's best option: a result
+    without the plan's Monte Carlo)."""
     fig = go.Figure()
     if rows.empty:
         return _layout(fig, "Monte Carlo: no recommended project was simulated")

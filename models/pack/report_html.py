@@ -166,21 +166,22 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     flow_rows = [row([cell(int(r.year), "num"), num(r.net), num(r.cumulative), num(r.discounted), num(r.cumulative_discounted)])
                  for r in flows.itertuples(index=False)]
 
-    mc = result.risk
-    if not mc.empty and "project_id" in mc:
-        mc = mc[mc["project_id"].isin(list(set(chosen["asset_id"] + "/" + chosen["option_id"])))]
-    simulated = len(mc)
-    mc_note = (f"{simulated} of the {len(chosen)} recommended project(s) were simulated: the Monte Carlo draws hours, load, "
-               "prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget are not simulated.")
+    # the uncertainty of what the pack asks money for: the exact plan's (its tornado, its NPV per draw, its projects
+    # at their plan year); a result without it falls back to each asset's best option, saying so
+    unc = content.uncertainty(result, scope)
+    mc = unc.projects
     option_label = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
 
     def project_text(asset_id: str, option_id: str) -> str:
         return f"{asset_id}: {option_label.get(option_id, option_id)}"
 
-    mc_rows = [row([cell(project_text(*str(r.project_id).split("/", 1)) if "/" in str(r.project_id) else r.project_id, "id"),
-                    num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
-                    num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
-                    num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
+    mc_rows = [row([cell(project_text(*str(r.project_id).split("/", 1)) if "/" in str(r.project_id) else r.project_id, "id")]
+                   + ([cell(int(r.start_yr), "num")] if unc.of_plan else [])
+                   + [num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
+                      num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
+                      num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
+    mc_headers = (["Project"] + (["Plan year"] if unc.of_plan else [])
+                  + ["NPV P10", "NPV P50", "NPV P90", "P(NPV > 0)", "Payback P10", "P50", "P90 [yr]"])
 
     budgets = tuple(a.budget_per_yr)
     plan_rows = []
@@ -252,8 +253,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "waterfall": chart(figures.savings_waterfall(chosen, cur), "waterfall"),
         "by_project": chart(figures.savings_by_project(chosen, cur), "by-project"),
         "cumulative": chart(figures.cumulative_cash_flow(flows, cur), "cumulative"),
-        "tornado": chart(figures.tornado(result.tornado, cur), "tornado"),
-        "monte_carlo": chart(figures.monte_carlo(mc, cur), "monte-carlo"),
+        "tornado": chart(figures.tornado(unc.tornado, cur, plan=unc.of_plan), "tornado"),
+        "monte_carlo": chart(figures.plan_npv_draws(result.plan_npv_draws, unc.plan_npv, cur) if unc.plan_npv is not None
+                             else figures.monte_carlo(mc, cur), "monte-carlo"),
         "plan": chart(figures.plan_by_year(result.plan, result.plan_greedy, budgets, cur), "plan"),
         "bills": chart(figures.bills_before_after(result.bills, cur), "bills"),
     }
@@ -275,8 +277,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
         "flow_note": flow_note,
         "flow_numeric": (0, 1, 2, 3, 4),
-        "mc_headers": ["Project", "NPV P10", "NPV P50", "NPV P90", "P(NPV > 0)", "Payback P10", "P50", "P90 [yr]"],
-        "mc_rows": mc_rows, "mc_note": mc_note, "mc_numeric": (1, 2, 3, 4, 5, 6, 7),
+        "tornado_note": content.tornado_text(unc), "plan_npv_note": content.plan_npv_text(unc, cur),
+        "mc_headers": mc_headers, "mc_rows": mc_rows, "mc_note": content.monte_carlo_text(unc),
+        "mc_numeric": tuple(range(1, len(mc_headers))),
         "plan_headers": ["Plan year", "Budget", "Exact: capital", "projects", "NPV at plan start", "Rank-order: capital",
                          "projects", "NPV at plan start"],
         "plan_rows": plan_rows, "plan_numeric": tuple(range(8)), "plan_note": plan_note,

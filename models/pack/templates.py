@@ -129,10 +129,11 @@ REPORT = _MACROS + """<!DOCTYPE html>
 {{ table(flow_headers, flow_rows, flow_numeric) }}
 
 <h2 id="risk">6. Sensitivity and Monte Carlo</h2>
-<p class="small">The tornado varies one input at a time on the fleet NPV of every asset's best option (the whole fleet, not only this pack's scope).</p>
+<p class="small">{{ tornado_note }}</p>
 <div class="figure">{{ figures.tornado }}</div>
 <div class="figure">{{ figures.monte_carlo }}</div>
-<p class="small">{{ mc_note }}</p>
+{% if plan_npv_note %}<p>{{ plan_npv_note }}</p>
+{% endif %}<p class="small">{{ mc_note }}</p>
 {{ table(mc_headers, mc_rows, mc_numeric) }}
 
 <h2 id="plan">7. Fleet plan by year</h2>

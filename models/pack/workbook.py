@@ -655,34 +655,47 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
 
 def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
     _title(ws, "Sensitivity, Monte Carlo and the risks and assumptions register")
+    # the exact plan's uncertainty (what the pack asks money for); a result without it: each asset's best option's
+    unc = content.uncertainty(result, scope)
     row = 3
-    put_text(ws, row, 1, "One-at-a-time sensitivity of the fleet NPV of each asset's best option").font = _BOLD
+    heading = ("One-at-a-time sensitivity of the exact plan's NPV at its start" + content.whole_plan_text(unc)
+               if unc.of_plan else "One-at-a-time sensitivity of the fleet NPV of each asset's best option")
+    put_text(ws, row, 1, heading).font = _BOLD
     cols = [("variable", "Variable", None), ("low_value", "Low", f.number), ("high_value", "High", f.number),
             ("npv_at_low", "NPV at low", f.money), ("npv_at_high", "NPV at high", f.money),
             ("base_npv", "Base NPV", f.money), ("swing", "Swing", f.money)]
-    tornado = result.tornado
+    tornado = unc.tornado
     if not tornado.empty:
         from models.risk import tornado_label
 
         tornado = tornado.assign(variable=[tornado_label(v, lo, hi) for v, lo, hi in
                                            zip(tornado["variable"], tornado["low_value"], tornado["high_value"])])
     row = _table(ws, row + 1, tornado, cols)
-    put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
-    mc = result.risk
-    if not mc.empty and "project_id" in mc:
-        keys = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
-        mc = mc[mc["project_id"].isin(list(keys))]
-    cols = [("project_id", "Project", None), ("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
-            ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
-            ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
-            ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
-            ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)]
-    row = _table(ws, row + 1, mc, cols)
+    if unc.plan_npv is not None:
+        put_text(ws, row, 1, f"Monte Carlo of the plan's NPV at its start over {unc.n_draws:,} draws"
+                 + content.whole_plan_text(unc)).font = _BOLD
+        summary = pd.DataFrame([unc.plan_npv])
+        row = _table(ws, row + 1, summary,
+                     [("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money), ("npv_p90", "NPV P90", f.money),
+                      ("npv_mean", "Mean", f.money), ("npv_standard_error", "Standard error of the mean", f.money),
+                      ("prob_npv_positive_frac", "P(NPV > 0)", f.frac)])
+    if unc.of_plan:
+        put_text(ws, row, 1, "Monte Carlo per project of the plan in scope (NPV at its own start, P10/P50/P90)").font = _BOLD
+    else:
+        put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
+    put_text(ws, row + 1, 1, content.monte_carlo_text(unc))
+    cols = ([("project_id", "Project", None)] + ([("start_yr", "Plan year", "0")] if unc.of_plan else [])
+            + [("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
+               ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
+               ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
+               ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
+               ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)])
+    row = _table(ws, row + 2, unc.projects, cols)
     put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD
     register = content.risk_register(case, result, scope)
     _table(ws, row + 1, register, [("category", "Category", None), ("item", "Item", None), ("detail", "Detail", None),
                                    ("assets", "Assets", None), ("response", "Response", None)])
-    _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18})
+    _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18, 10: 18})
 
 
 def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
@@ -715,7 +728,7 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
         "Bills": "monthly bills before and after the plan, with line items",
         "Data quality": "defaulted inputs, model flags and input problems",
         "End of life": "replace now vs at failure vs rewind, and the repair-or-replace policy",
-        "Risk": "tornado, Monte Carlo and the risks and assumptions register",
+        "Risk": "the plan's tornado and Monte Carlo, and the risks and assumptions register",
     }
     for k, (sheet, text) in enumerate(guide.items()):
         put_text(ws, row + 1 + k, 1, sheet)
