@@ -1121,6 +1121,8 @@ def key_line(text: str, key_path: str) -> int | None:
     >>> text = '[tariff]\nname = "t"\n[[demand]]\nname = "a"\n[[demand]]\nname = "b"\nratchet_frac = 1.8\n'
     >>> key_line(text, "demand[2].ratchet_frac"), key_line(text, "demand[1].ratchet_frac"), key_line(text, "fixed")
     (7, 3, None)
+    >>> key_line(text, "demand")  # a whole array of tables: its first entry
+    3
     """
     target = []
     for part in key_path.split("."):
@@ -1163,6 +1165,11 @@ def key_line(text: str, key_path: str) -> int | None:
             return number
         if len(path) > best_depth and path == target[:len(path)]:
             best, best_depth = number, len(path)
+    if best_depth < len(target) and target[-1][1] is None and not key_path.rstrip().endswith("]"):
+        # a whole array of tables named without an entry (e.g. a misspelt ``[[taxs]]``): its first entry's line
+        first = key_line(text, f"{key_path}[1]")
+        if first is not None and first != best:
+            return first
     return best
 
 

@@ -451,6 +451,9 @@ class TestMisspeltKeys:
         errors = [p for p in problems if p.severity == "error"]
         assert [(p.file, p.column) for p in errors] == [(f"tariffs/{DEMO_TARIFF_A}", "taxs")]
         assert errors[0].hint.startswith("did you mean 'taxes'?")
+        # the message names the line of the misspelt array's first entry (its [[taxs]] header)
+        lines = path.read_text(encoding="utf-8").splitlines()
+        assert errors[0].row == lines.index("[[taxs]]") + 1
 
     @pytest.mark.parametrize(
         "text, key",
