@@ -135,7 +135,7 @@ CORPUS: dict[str, tuple[bool, tuple[Expect, ...]]] = {
     "irregular_resolution": (False, (E("profiles.csv", 2, "timestamp", "allowed are 15, 30 or 60 min"),)),
     # tariffs
     "tariff_overlapping_periods": (False, (E("tariffs/t.toml", 12, "periods[2].hours", "overlaps periods[1]"),)),
-    "tariff_missing_period": (False, (E("tariffs/t.toml", None, "periods", "no period covers"),)),
+    "tariff_missing_period": (False, (E("tariffs/t.toml", 6, "periods", "no period covers"),)),
     "tariff_unknown_keys": (True, (W("tariffs/t.toml", 5, "tariff.colour", "unknown key"),)),
     "tariff_wrong_types": (False, (E("tariffs/t.toml", 15, "energy.price_per_kwh", "table of numbers"),)),
     "tariff_syntax_error": (False, (E("tariffs/t.toml", 11, None, "TOML syntax error"),
