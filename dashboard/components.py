@@ -253,3 +253,14 @@ def problem_columns() -> list[dict]:
     return [text_col("severity", "Severity", maxWidth=110), text_col("file", "File"),
             number_col("row", "Row", maxWidth=90), text_col("column", "Column"), long_text_col("value", "Value"),
             long_text_col("rule", "Rule", flex=2), long_text_col("hint", "Hint", flex=2)]
+
+
+def kept_filter(component_id: str, options: list, placeholder: str, case_key: str) -> dcc.Dropdown:
+    """A multi-choice filter whose choice is kept for the tab's session, one choice per case.
+
+    Make it with its ``options`` (in a callback that renders it), never before them: Dash puts a kept value
+    back as the component is made, and a dropdown made before its options would drop a value they do not
+    hold yet. ``case_key`` keeps one case's choice from being put on another case's filter.
+    """
+    return dcc.Dropdown(id=component_id, options=options, multi=True, placeholder=placeholder,
+                        persistence=str(case_key), persistence_type="session")

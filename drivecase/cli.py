@@ -317,6 +317,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 def _print_run_summary(case, result) -> None:
     from models import scenario
+    from models.plan import option_labels
     from models.reactive_plan import withdrawn_text
 
     currency = case.settings.currency
@@ -339,7 +340,7 @@ def _print_run_summary(case, result) -> None:
     status = result.plan_status or {}
     if status.get("message"):
         print(f"  Exact plan: {status['message']}")
-    withdrawn = withdrawn_text(status)
+    withdrawn = withdrawn_text(status, labels=option_labels(r))
     if withdrawn:
         print(f"  {withdrawn}")
     if len(result.plan_npv_draws):

@@ -1142,6 +1142,52 @@ TABLE_NOTES: dict[str, str] = {
 }
 
 
+def column_title(table: str, column: str) -> str:
+    """The words a reader knows a case column by: the first clause of its description in the schema (the
+    text the template's comment line gives it) and its unit.
+
+    Parameters
+    ----------
+    table : str
+        One of :data:`CASE_TABLES`.
+    column : str
+        Our column name, e.g. ``rated_efficiency_pct``.
+
+    Returns
+    -------
+    str
+        E.g. "Nameplate full-load efficiency [%]"; the column name itself for a column the schema does not hold.
+
+    Examples
+    --------
+    >>> column_title("assets", "rated_efficiency_pct"), column_title("assets", "start_duty")
+    ('Nameplate full-load efficiency [%]', 'Starting duty')
+    >>> column_title("assets", "no_such_column")
+    'no_such_column'
+    """
+    return _column_titles(table).get(str(column), str(column))
+
+
+@lru_cache(maxsize=None)
+def _column_titles(table: str) -> dict[str, str]:
+    titles = {}
+    for row in read_schema(table).itertuples(index=False):
+        words = _first_clause(row.description) or row.name
+        titles[row.name] = words + ("" if row.unit == "-" else f" [{row.unit}]")
+    return titles
+
+
+def _first_clause(text: str) -> str:
+    """A description up to its first full stop, colon or semicolon outside brackets ("Starting duty: light
+    (pumps, ..." gives "Starting duty"; "Mean load (lighting; fans)." gives "Mean load (lighting; fans)")."""
+    text, depth = str(text).strip(), 0
+    for i, char in enumerate(text):
+        depth += (char == "(") - (char == ")")
+        if depth == 0 and char in ".:;" and (i + 1 == len(text) or text[i + 1].isspace()):
+            return text[:i].strip()
+    return text
+
+
 def _template_comments(table: str) -> list[str]:
     schema = read_schema(table)
     lines = [f"# {TABLE_NOTES[table]} Lines starting with # are ignored; delete them or keep them."]

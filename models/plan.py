@@ -709,6 +709,39 @@ def project_labels(frame: pd.DataFrame) -> pd.Series:
     return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
 
 
+def option_labels(frame: pd.DataFrame) -> dict[str, str]:
+    """Option id -> the option's label in the options catalogue, from a table of projects with ``option_id``
+    and ``label`` (e.g. the per-project results)."""
+    first = frame.drop_duplicates("option_id")
+    return dict(zip(first["option_id"].astype(str), first["label"].astype(str)))
+
+
+def project_name(project_id: str, labels: Mapping[str, str]) -> str:
+    """A project as a reader knows it, "asset: option label", from its project label "asset/option".
+
+    Parameters
+    ----------
+    project_id : str
+        The project label (:func:`project_labels`); the option id is what follows its last "/".
+    labels : mapping of str to str
+        Option id -> label (:func:`option_labels`).
+
+    Returns
+    -------
+    str
+        "asset: label"; the project label as it is when its option has no label in ``labels``.
+
+    Examples
+    --------
+    >>> project_name("HRW-A01/capacitor", {"capacitor": "Motor-terminal capacitor"})
+    'HRW-A01: Motor-terminal capacitor'
+    >>> project_name("HRW-A01/wfsm", {})
+    'HRW-A01/wfsm'
+    """
+    asset_id, _, option_id = str(project_id).rpartition("/")
+    return f"{asset_id}: {labels[option_id]}" if asset_id and option_id in labels else str(project_id)
+
+
 def plan_choice(op, plan_frame: pd.DataFrame) -> np.ndarray:
     """Option position of every asset under a plan (0 = today's motor), by index lookup (no per-row scan)."""
     choice = np.zeros(len(op.asset_ids), dtype=int)

@@ -11,6 +11,7 @@ The method is the tool's own (docs/finance.md, section 6); the bills are those o
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 
@@ -20,7 +21,7 @@ import pandas as pd
 from models import attribution
 from models.bill_savings import REACTIVE_TECHNOLOGIES, _chosen_total, site_setups
 from models.operation import PHYSICS_THREADS, SiteIntervalStore, kept_rows
-from models.plan import plan_choice, project_labels
+from models.plan import plan_choice, project_labels, project_name
 from models.wording import counted
 
 #: A reactive project (terminal capacitor, wound-field machine) leaves the plan when, beside the rest of the plan,
@@ -181,18 +182,30 @@ def reactive_values_in_plans(case, op, plan_frames: list[pd.DataFrame], results:
     return out
 
 
-def withdrawn_text(status: dict | None, shown: int = 3) -> str:
-    """The reactive projects withdrawn from a plan, in words ("" when none), e.g. for a summary line."""
+def withdrawn_text(status: dict | None, shown: int = 3, labels: Mapping[str, str] | None = None) -> str:
+    """The reactive projects withdrawn from a plan, in words ("" when none), e.g. for a summary line.
+
+    Parameters
+    ----------
+    status : dict or None
+        The plan's status (its ``withdrawn``, ``set_aside`` and ``repriced`` projects by project label).
+    shown : int
+        How many withdrawn projects are named; the others are counted.
+    labels : mapping of str to str, optional
+        Option id -> the option's label in the catalogue (:func:`models.plan.option_labels` of the per-project
+        results): each project is then named as a reader knows it, "HRW-A01: Motor-terminal capacitor"
+        (:func:`models.plan.project_name`), not by its project label "HRW-A01/capacitor".
+    """
     status = status or {}
-    withdrawn = list(status.get("withdrawn", ()))
+    withdrawn = [project_name(p, labels or {}) for p in status.get("withdrawn", ())]
     aside, repriced = len(status.get("set_aside", ())), len(status.get("repriced", {}))
     parts = []
     if withdrawn:
-        names = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
+        listed = ", ".join(withdrawn[:shown]) + (f" and {len(withdrawn) - shown} more" if len(withdrawn) > shown else "")
         one = len(withdrawn) == 1
         parts.append(f"{counted(len(withdrawn), 'reactive project')} left out of the plan: beside the rest of the plan "
                      f"{'it' if one else 'they'} would cut {'its' if one else 'their'} site's bill by less than "
-                     f"{PLAN_REACTIVE_MIN_SHARE:.0%} of {'its' if one else 'their'} own saving ({names})")
+                     f"{PLAN_REACTIVE_MIN_SHARE:.0%} of {'its' if one else 'their'} own saving ({listed})")
     if aside:
         parts.append(f"{counted(aside, 'other reactive option')} at the same sites, whose value the plan has taken, "
                      f"{'was' if aside == 1 else 'were'} set aside")

@@ -416,3 +416,12 @@ def test_serve_prints_its_address_and_cautions_at_once_into_a_pipe(tmp_path):
     finally:
         proc.terminate()
         proc.wait(timeout=30)
+
+
+def test_run_names_withdrawn_reactive_projects_as_a_reader_knows_them(tmp_path, capsys):
+    # the demo's plan leaves terminal capacitors out (test_scenario.py); the summary names them by asset and the
+    # option's catalogue label ("Motor-terminal capacitor", data/defaults/options.csv), not "HRW-A01/capacitor"
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "out"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    line = next(text for text in capsys.readouterr().out.splitlines() if "left out of the plan" in text)
+    named = line.split("own saving (", 1)[1].split(")", 1)[0]
+    assert ": Motor-terminal capacitor" in named and "/" not in named, line

@@ -87,6 +87,19 @@ class TestNumbers:
         # 81.64 % (shown so before); rounded to whole rpm and one decimal of a percent
         assert rows["rated_speed_rpm"] == "1434" and rows["rated_efficiency_pct"] == "81.6"
 
+    def test_the_defaults_grid_names_each_field_in_words(self):
+        # user report: the grid showed raw names (rated_efficiency_pct); it shows the asset register's own
+        # words for the column (its description in data/schema/assets.csv, as the template's comment line
+        # gives it) with the unit, and the column's heading in the register on hover
+        out = asset.update("HRW-D01", None, None)
+        fields = {r["column"]: r["field"] for r in out[7]}
+        assert fields["rated_efficiency_pct"] == "Nameplate full-load efficiency [%]"
+        assert fields["rated_speed_rpm"] == "Nameplate full-load speed [rpm]"
+        columns = out[8]
+        assert columns[0]["field"] == "field" and columns[0]["headerName"] == "Field"
+        assert columns[0]["tooltipField"] == "column"
+        assert "column" not in {c["field"] for c in columns}  # the raw name is no column of its own
+
 
 def test_one_colour_per_option_across_the_asset_charts():
     # KGQ-F01: the cash-flow chart leaves out "Keep as is" (no capital); each option must keep the colour it has

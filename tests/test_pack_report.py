@@ -444,3 +444,15 @@ def test_summary_says_what_the_sites_bills_show(demo_run_physics):
     summary = report_context(case, result, scope, [])["summary_text"]
     by = result.bills.groupby("scenario")["amount"].sum()
     assert f"the sites' bills fall by {content.money(by['baseline'] - by['plan'], case.settings.currency)} a year" in summary
+
+
+def test_withdrawn_reactive_projects_are_named_as_a_reader_knows_them(small, tmp_path):
+    # the plan's note names a left-out reactive project "asset: option label" (the catalogue's label), not by
+    # its internal project label "asset/option"
+    case, result = small
+    row = result.results[result.results["option_id"] != result.results["option_id"].iloc[0]].iloc[0]
+    status = {**(result.plan_status or {}), "withdrawn": (f"{row.asset_id}/{row.option_id}",)}
+    paths = write_pack(case, dataclasses.replace(result, plan_status=status), tmp_path)
+    report = htmllib.unescape(text(next(p for p in paths if p.name == REPORT_NAME)))
+    assert f"{row.asset_id}: {row.label}" in report
+    assert f"{row.asset_id}/{row.option_id}" not in report

@@ -43,3 +43,23 @@ def test_reference_tables_name_their_source():
     for name in ("iec_60034_30_1_coefficients_50hz", "us_10cfr431_min_efficiency_60hz"):
         table = io.read_reference(name)
         assert table["source"].notna().all() and (table["source"].str.len() > 10).all()
+
+
+@pytest.mark.parametrize("table", io.CASE_TABLES)
+def test_every_column_has_a_title_in_words(table):
+    # the dashboard names a case column by its description's first clause and unit (io.column_title): never
+    # the raw name, never a clause cut inside its brackets ("Mean non-motor load at the meter (lighting; ...)")
+    for name in io.read_schema(table)["name"]:
+        title = io.column_title(table, name)
+        assert title != name and title[0].isupper(), (name, title)
+        assert title.count("(") == title.count(")") and title.count("[") == title.count("]"), (name, title)
+
+
+def test_column_titles_of_the_asset_register():
+    # the schema's descriptions (data/schema/assets.csv) with the unit column, as the template's comment lines give them
+    assert io.column_title("assets", "rated_efficiency_pct") == "Nameplate full-load efficiency [%]"
+    assert io.column_title("assets", "static_head_frac") == ("Share of the design head that is static (lift) "
+                                                             "for pumps and fans")
+    assert io.column_title("sites", "base_p_kw") == ("Mean non-motor load at the meter (lighting; heating; motors "
+                                                     "not in the register) [kW]")
+    assert io.column_title("assets", "not_a_column") == "not_a_column"

@@ -6,6 +6,7 @@ from urllib.parse import quote
 
 import dash
 from dash import Input, Output, State, callback, dcc, html, no_update
+from dash.exceptions import PreventUpdate
 
 from dashboard import components as ui
 from dashboard import figures, services
@@ -13,6 +14,8 @@ from dashboard import figures, services
 
 SITE_FILTER = "fleet-site-filter"
 APPLICATION_FILTER = "fleet-application-filter"
+SITE_BOX = "fleet-site-box"
+APPLICATION_BOX = "fleet-application-box"
 TABLE = "fleet-table"
 ABATEMENT = "fleet-abatement"
 NOTICE = "fleet-notice"
@@ -37,10 +40,13 @@ def layout(**_query):
         html.P("The cards are the budgeted plan for the whole fleet (plan year 0 is the first year of spending); "
                "the filters below narrow the table only.", className="page-intro"),
         html.Div([
+            # the filters are made with their choices by a callback (filters), so the tab's choice is put back
             html.Div([html.Label("Site", htmlFor=SITE_FILTER),
-                      dcc.Dropdown(id=SITE_FILTER, multi=True, placeholder="all sites")], className="filter"),
+                      html.Div(dcc.Dropdown(id=SITE_FILTER, multi=True, placeholder="all sites", disabled=True),
+                               id=SITE_BOX)], className="filter"),
             html.Div([html.Label("Application", htmlFor=APPLICATION_FILTER),
-                      dcc.Dropdown(id=APPLICATION_FILTER, multi=True, placeholder="all applications")], className="filter"),
+                      html.Div(dcc.Dropdown(id=APPLICATION_FILTER, multi=True, placeholder="all applications",
+                                            disabled=True), id=APPLICATION_BOX)], className="filter"),
             # rowData None = results not there yet (the count and the grid say so), [] = no asset matches
             html.Div(COMPUTING, id=COUNT, className="filter-count", role="status"),
         ], className="filters"),
@@ -98,22 +104,36 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
     Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),
     Output(f"{HEADLINE}-headline-npv", "children"), Output(f"{HEADLINE}-headline-co2", "children"),
     Output(TABLE, "rowData"), Output(TABLE, "columnDefs"), Output(COUNT, "children"), Output(ABATEMENT, "figure"),
-    Output(SITE_FILTER, "options"), Output(APPLICATION_FILTER, "options"), Output(NOTICE, "children"),
+    Output(NOTICE, "children"),
     Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
-    Input(SITE_FILTER, "value"), Input(APPLICATION_FILTER, "value"),
+    Input(SITE_FILTER, "value"), Input(APPLICATION_FILTER, "value"), State(SITE_FILTER, "options"),
 )
-def update(session, edits, sites, applications):
-    """Headline, table, curve and filter choices for the tab's case and assumptions."""
+def update(session, edits, sites, applications, site_choices=()):
+    """Headline, table and curve for the tab's case and assumptions.
+
+    Nothing until :func:`filters` has made the filters (the stand-ins in the layout have no choices): they may
+    put back the tab's choice, and the table waits for it rather than showing every asset first.
+    """
+    if site_choices is None:
+        raise PreventUpdate
     view = services.view(session, edits)
     result = view.result()
     cards = ui.headline_values(services.headline(result), view.currency)
     table = services.ranked_assets(view, result, sites, applications)
-    site_choices, application_choices = services.filter_choices(view)
     count = f"{len(table)} of {len(view.case.assets)} assets"
     return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit), count,
             figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
-            site_choices, application_choices,
             " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
+
+
+@callback(Output(SITE_BOX, "children"), Output(APPLICATION_BOX, "children"), Input(ui.SESSION_STORE, "data"))
+def filters(session):
+    """The site and application filters with the tab's case's choices, each keeping the tab's choice for the
+    session (the user opens an asset and comes back with the Back button: the table is as narrowed as before)."""
+    view = services.view(session, None)
+    site_choices, application_choices = services.filter_choices(view)
+    return (ui.kept_filter(SITE_FILTER, site_choices, "all sites", view.key),
+            ui.kept_filter(APPLICATION_FILTER, application_choices, "all applications", view.key))
 
 
 @callback(Output(COUNT, "children", allow_duplicate=True), Input(TABLE, "virtualRowData"),

@@ -193,12 +193,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                               num(float(e["capital"].sum())), cell(len(e), "num"), num(float(e["npv_at_plan_start"].sum())),
                               num(float(g["capital"].sum())), cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))
     comp = result.plan_comparison
+    withdrawn = withdrawn_text(result.plan_status, labels=option_labels)
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
                  f"this pack covers {len(scope.asset_ids)} asset(s)."
                  + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else "")
-                 + (" " + withdrawn_text(result.plan_status) if withdrawn_text(result.plan_status) else ""))
+                 + (" " + withdrawn if withdrawn else ""))
 
     register = content.risk_register(case, result, scope)
     register_rows = [row([cell(r.category), cell(r.item), cell(r.detail), cell(r.assets, "small"), cell(r.response, "small")])

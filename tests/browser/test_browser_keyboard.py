@@ -19,9 +19,10 @@ pytestmark = pytest.mark.browser
 def test_enter_on_a_fleet_row_opens_its_asset(tab):
     page = tab.goto("/", PAGES[0][1])
     page.wait_for_load_state("networkidle")
+    # the first row's asset id, read before anything on the row is clicked (a click may open the asset)
+    asset_id = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='0'] .link-cell").inner_text()
     cell = page.locator("#fleet-table .ag-center-cols-container .ag-row[row-index='0'] .ag-cell").first
     cell.click()  # focus a cell of the first row that is not the asset id itself (the pinned column)
-    asset_id = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='0'] .link-cell").inner_text()
     page.goto(tab.url + "/")  # back, then the keyboard alone
     page.locator(PAGES[0][1]).first.wait_for()
     page.wait_for_load_state("networkidle")

@@ -1,0 +1,41 @@
+"""The plan's reactive projects in words: the withdrawn ones named as a reader knows them.
+
+The pricing of reactive projects beside the rest of the plan is tested in test_scenario.py on the demo case.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from models import plan, reactive_plan
+
+#: Option labels as the shipped catalogue writes them (data/defaults/options.csv, column label).
+LABELS = {"capacitor": "Motor-terminal capacitor", "wfsm": "Wound-field synchronous motor (leading power factor)"}
+
+
+def test_withdrawn_projects_are_named_by_asset_and_option_label():
+    # user report: the Capital plan page said "HRW-A01/capacitor", the internal project key
+    status = {"withdrawn": ("HRW-A01/capacitor", "KGQ-C01/wfsm"), "set_aside": ("HRW-A02/capacitor",), "repriced": {}}
+    text = reactive_plan.withdrawn_text(status, labels=LABELS)
+    assert ("(HRW-A01: Motor-terminal capacitor, KGQ-C01: Wound-field synchronous motor (leading power factor))"
+            in text)
+    assert "/capacitor" not in text and "/wfsm" not in text
+    # beyond the first three, counted as before
+    many = {"withdrawn": tuple(f"A{k}/capacitor" for k in range(5))}
+    assert "(A0: Motor-terminal capacitor, A1: Motor-terminal capacitor, A2: Motor-terminal capacitor and 2 more)" in \
+        reactive_plan.withdrawn_text(many, labels=LABELS)
+
+
+def test_a_project_whose_option_has_no_label_keeps_its_key():
+    status = {"withdrawn": ("HRW-A01/capacitor", "HRW-A03/bank_2")}
+    assert "(HRW-A01: Motor-terminal capacitor, HRW-A03/bank_2)" in reactive_plan.withdrawn_text(status, labels=LABELS)
+    assert "(HRW-A01/capacitor, HRW-A03/bank_2)" in reactive_plan.withdrawn_text(status)
+
+
+def test_option_labels_from_the_results_and_an_asset_id_with_a_slash():
+    results = pd.DataFrame({"asset_id": ["P-101/A", "P-101/A", "P-102"], "option_id": ["capacitor", "wfsm", "capacitor"],
+                            "label": [LABELS["capacitor"], LABELS["wfsm"], LABELS["capacitor"]]})
+    labels = plan.option_labels(results)
+    assert labels == LABELS
+    # the option id is what follows the label's last "/": an asset tag may hold one itself
+    assert plan.project_name("P-101/A/capacitor", labels) == "P-101/A: Motor-terminal capacitor"
