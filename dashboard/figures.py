@@ -574,13 +574,16 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
 # ---------------------------------------------------------------------------------------------------
 # Risk
 # ---------------------------------------------------------------------------------------------------
-def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
-    """One-at-a-time sensitivity of the fleet NPV of the best options.
+def tornado(rows: pd.DataFrame, currency: str, scope: str = "best") -> go.Figure:
+    """One-at-a-time sensitivity of the plan's NPV (``scope`` "plan") or of the fleet NPV of the best options.
 
     Parameters
     ----------
     rows : pandas.DataFrame
         label, npv_at_low, npv_at_high, base_npv [currency], sorted by swing (largest last).
+    currency : str
+    scope : {"best", "plan"}
+        What the NPV adds up: each asset's best option with no budget, or the budgeted plan at its start.
     """
     if rows is None or rows.empty:
         return message_figure("No project with capital to test.")
@@ -595,8 +598,12 @@ def tornado(rows: pd.DataFrame, currency: str) -> go.Figure:
     fig.add_vline(x=base, line=dict(color=INK, width=1))  # the centre line, named in the axis title (no label over the legend)
     fig.update_layout(barmode="overlay")
     # two lines: one would run past a half-width panel
-    fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: each asset's best option, "
-                                f"no budget, {money_short(base, currency)}")
+    if scope == "plan":
+        fig.update_xaxes(title_text=f"Plan NPV at the plan's start [{currency}]<br>centre: the capital plan under the "
+                                    f"budget, {money_short(base, currency)}")
+    else:
+        fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: each asset's best option, "
+                                    f"no budget, {money_short(base, currency)}")
     fig.update_yaxes(title_text="Varied input", automargin=True)
     fig = _style(fig, "Sensitivity (tornado)", height=420)
     fig.update_layout(margin=dict(b=76))
@@ -632,13 +639,16 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
     return _style(fig, f"NPV range per project (top {min(top, len(rows))} by P50)", height=max(360, 22 * len(part) + 120))
 
 
-def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
-    """Monte Carlo distribution of the fleet NPV (best option of every asset) with P10, P50 and P90 marked.
+def fleet_npv_histogram(draws: np.ndarray, currency: str, scope: str = "best") -> go.Figure:
+    """Monte Carlo distribution of a total NPV with P10, P50 and P90 marked: the fleet's (best option of
+    every asset, ``scope`` "best") or the budgeted plan's at its start (``scope`` "plan").
 
     Parameters
     ----------
     draws : numpy.ndarray
-        Fleet NPV of each draw [currency], shape (n_draws,).
+        Total NPV of each draw [currency], shape (n_draws,).
+    currency : str
+    scope : {"best", "plan"}
     """
     draws = np.asarray(draws, dtype=float)
     if draws.size == 0:
@@ -654,10 +664,49 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str) -> go.Figure:
     if draws.min() < 0 < draws.max():
         fig.add_vline(x=0, line=dict(color=INK, width=1))
     share = float((draws > 0).mean())
-    fig.update_xaxes(title_text=f"Fleet NPV [{currency}]")
+    what, detail = (("Plan NPV", "the capital plan under the budget, at its start") if scope == "plan"
+                    else ("Fleet NPV", "each asset's best option, no budget"))
+    fig.update_xaxes(title_text=f"{what} [{currency}]")
     fig.update_yaxes(title_text="Draws")
     # the title on two lines (one would run past a half-width panel), the second smaller
-    fig = _style(fig, f"Fleet NPV over {draws.size:,} draws<br><span style='font-size:12px'>each asset's best option, "
-                      f"no budget · P(NPV > 0) = {share:.0%}</span>")
+    fig = _style(fig, f"{what} over {draws.size:,} draws<br><span style='font-size:12px'>{detail} · "
+                      f"P(NPV > 0) = {share:.0%}</span>")
     fig.update_layout(margin=dict(t=64))
     return fig
+
+
+# ---------------------------------------------------------------------------------------------------
+# End of life (one asset)
+# ---------------------------------------------------------------------------------------------------
+def end_of_life_costs(strategies: pd.DataFrame, currency: str, message: str = "") -> go.Figure:
+    """Expected present cost of each end-of-life strategy of one asset, one horizontal bar each, the cheapest marked.
+
+    Parameters
+    ----------
+    strategies : pandas.DataFrame
+        label, cost_pv [currency] and cheapest (bool), top to bottom in the order given
+        (``services.EndOfLifeSummary.strategies``).
+    currency : str
+        The case currency, for the axis title and the labels.
+    message : str
+        What to say instead when there is nothing to draw.
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        One bar trace; the cheapest bar in :data:`AFTER` and labelled "cheapest" beside its amount (the
+        word as well as the colour), the others in :data:`BEFORE`.
+    """
+    if strategies is None or strategies.empty:
+        return message_figure(message or "No end-of-life comparison.", height=220)
+    cheapest = strategies["cheapest"].to_numpy(dtype=bool)
+    costs = strategies["cost_pv"].to_numpy(dtype=float)
+    labels = [money_short(v, currency) + (" · cheapest" if c else "") for v, c in zip(costs, cheapest)]
+    fig = go.Figure(go.Bar(
+        y=strategies["label"].astype(str).tolist(), x=costs, orientation="h",
+        marker_color=[AFTER if c else BEFORE for c in cheapest], text=labels, textposition="auto",
+        insidetextanchor="end", cliponaxis=False,
+        hovertemplate="%{y}<br>expected present cost %{x:,.0f} " + currency + "<extra></extra>"))
+    fig.update_xaxes(title_text=f"Expected present cost [{currency}]", rangemode="tozero")
+    fig.update_yaxes(autorange="reversed", automargin=True)
+    return _style(fig, "Expected present cost of each strategy", height=240)

@@ -45,7 +45,7 @@ from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
 from models.case import HP_TO_KW, default_value, load_case
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
-from models.plan import low_data_quality
+from models.plan import low_data_quality, option_labels
 from models.problems import Problem, error, has_errors
 from models.profiles import asset_loads
 from models.wording import counted
@@ -1189,12 +1189,14 @@ def asset_load_hours(view_: View, asset_id: str, bin_pct: float = 10.0) -> tuple
 
 
 def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFrame, pd.DataFrame]:
-    """Data-quality score [%], the defaulted fields and the cautions raised for one asset."""
+    """Data-quality score [%], the defaulted fields (``field`` in words, from the asset register's column
+    descriptions, beside the ``column`` heading of the template) and the cautions raised for one asset."""
     a = view_.case.assets
     score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
     defaults = view_.case.defaults
     defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].reset_index(drop=True)
     defaults = defaults.assign(value=[default_text(c, v) for c, v in zip(defaults["column"], defaults["value"])]).astype(str)
+    defaults.insert(0, "field", [case_io.column_title("assets", c) for c in defaults["column"]])
     res = result.results[result.results["asset_id"] == asset_id]
     rows = [{"option": r.label, "flag": text} for r in res.itertuples(index=False) for text in split_cautions(r.flags)]
     return score, defaults, pd.DataFrame(rows, columns=["option", "flag"])
@@ -1359,9 +1361,12 @@ def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.Dat
 
 def plan_solve_text(result) -> str:
     """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time), and
-    which reactive projects were left out as worthless beside the rest of the plan."""
+    which reactive projects were left out as worthless beside the rest of the plan (by asset and option
+    label, as the tables name them)."""
     text = _plan_proof_text(result)
-    withdrawn = reactive_plan.withdrawn_text(getattr(result, "plan_status", None))
+    results = getattr(result, "results", None)
+    withdrawn = reactive_plan.withdrawn_text(getattr(result, "plan_status", None),
+                                             labels=option_labels(results) if results is not None else None)
     return f"{text} {withdrawn}" if withdrawn else text
 
 
@@ -1459,13 +1464,54 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     return out
 
 
-def tornado_rows(result) -> pd.DataFrame:
-    """Tornado rows with readable labels, largest swing first."""
-    t = result.tornado
+#: What the Uncertainty page analyses: the budgeted plan, or each asset's best option with no budget.
+RISK_SCOPES = {"plan": "The capital plan under the budget", "best": "Each asset's best option, no budget"}
+
+
+def _risk_frames(result, scope: str) -> tuple[pd.DataFrame, pd.DataFrame, np.ndarray]:
+    """(tornado, Monte Carlo summary per project, NPV per draw) of a scope of :data:`RISK_SCOPES`."""
+    if scope not in RISK_SCOPES:
+        raise ValueError(f"unknown scope {scope!r}: one of {', '.join(RISK_SCOPES)}")
+    if scope == "plan":
+        return result.plan_tornado, result.plan_risk, result.plan_npv_draws
+    return result.tornado, result.risk, result.fleet_npv_draws
+
+
+def tornado_rows(result, scope: str = "best") -> pd.DataFrame:
+    """Tornado rows of a scope (:data:`RISK_SCOPES`) with readable labels, largest swing last (drawn on top)."""
+    t = _risk_frames(result, scope)[0]
     if t is None or t.empty:
         return pd.DataFrame(columns=["label", "npv_at_low", "npv_at_high", "base_npv", "swing"])
     labels = [risk.tornado_label(r.variable, r.low_value, r.high_value) for r in t.itertuples(index=False)]
     return t.assign(label=labels).sort_values("swing", ascending=True, kind="stable").reset_index(drop=True)
+
+
+def npv_draws(result, scope: str = "best") -> np.ndarray:
+    """NPV of each Monte Carlo draw [currency] of a scope (:data:`RISK_SCOPES`; the plan's at its start)."""
+    return np.asarray(_risk_frames(result, scope)[2], dtype=float)
+
+
+def risk_summary_text(result, scope: str, currency: str) -> str:
+    """One line on what the Uncertainty page analyses, with the total's P10/P50/P90 and P(NPV > 0)."""
+    _, rows, draws = _risk_frames(result, scope)
+    a = result.assumptions
+    runs = f"{a.monte_carlo_draws:,} draws, seed {a.monte_carlo_seed} (the same seed gives the same answer)"
+    if scope == "plan" and (rows is None or rows.empty):
+        return (f"The capital plan holds no project under this budget, so it has no uncertainty to show; choose "
+                f"'{RISK_SCOPES['best']}' to see the fleet's. {runs}.")
+    if rows is None or rows.empty or not len(draws):
+        return f"No project needs capital, so there is no uncertainty to show. {runs}."
+    s = risk.distribution_summary(draws)
+    what = "plan NPV at the plan's start" if scope == "plan" else "fleet NPV of the best options"
+    if scope == "plan":
+        later = int((rows["start_yr"] > 0).sum()) if "start_yr" in rows else 0
+        who = f"{len(rows)} projects of the capital plan" + (f" ({later} starting in a later year, discounted by "
+                                                              f"their delay)" if later else "")
+    else:
+        who = f"{len(rows)} projects (the best option of each asset that needs capital)"
+    money = lambda v: f"{v:,.0f} {currency}"  # noqa: E731
+    return (f"{who} · {what}: P10 {money(s['npv_p10'])}, P50 {money(s['npv_p50'])}, P90 {money(s['npv_p90'])}; "
+            f"P(NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % · {runs}.")
 
 
 def plan_bill_saving_alone(result, site_id: str) -> float:
@@ -1480,11 +1526,12 @@ def plan_bill_saving_alone(result, site_id: str) -> float:
     return float(chosen.loc[chosen["site_id"] == site_id, "bill_saving_per_yr"].sum())
 
 
-def risk_rows(result) -> pd.DataFrame:
-    """Monte Carlo summary per project with asset and option labels, best P50 first."""
-    r = result.risk
+def risk_rows(result, scope: str = "best") -> pd.DataFrame:
+    """Monte Carlo summary per project of a scope (:data:`RISK_SCOPES`) with asset and option labels, best P50
+    first (the plan's with each project's start year)."""
+    r = _risk_frames(result, scope)[1]
     if r is None or r.empty:
-        return pd.DataFrame(columns=["project_id", "asset_id", "label", "npv_p10", "npv_p50", "npv_p90",
+        return pd.DataFrame(columns=["project_id", "asset_id", "label", "start_yr", "npv_p10", "npv_p50", "npv_p90",
                                      "prob_npv_positive_frac"])
     r = r.copy()
     split = r["project_id"].astype(str).str.split("/", n=1, expand=True)
@@ -1656,3 +1703,178 @@ def saved_case_bytes(entry: CaseEntry) -> tuple[bytes, str]:
             archive.write(path, arcname=path.relative_to(entry.files).as_posix())
     stem = re.sub(r"[^A-Za-z0-9]+", "-", entry.name).strip("-")[:60] or "case"
     return buffer.getvalue(), f"{stem}.zip"
+
+
+# ---------------------------------------------------------------------------------------------------
+# End of life (added at the end: the strategy costs of one asset and the fleet's repair-or-replace policy)
+# ---------------------------------------------------------------------------------------------------
+#: What the Asset page says when the engine has no end-of-life comparison (the pack's wording).
+END_OF_LIFE_UNAVAILABLE = "Not available: the options catalogue needs a rewind option and a new induction motor option."
+
+#: Columns of :attr:`models.scenario.ScenarioResult.end_of_life` holding each strategy's expected present cost.
+_STRATEGY_COST_COLUMNS = {"replace_now": "cost_replace_now", "replace_at_failure": "cost_replace_at_failure",
+                          "rewind_at_failure": "cost_rewind_at_failure"}
+
+
+#: Two strategies closer than this share of the cheapest's cost are said to be level [frac].
+CLOSE_CALL_FRAC = 0.01
+
+
+@dataclass(frozen=True)
+class EndOfLifeSummary:
+    """The end-of-life comparison of one asset, ready to draw and to read.
+
+    Attributes
+    ----------
+    strategies : pandas.DataFrame
+        One row per strategy in :data:`models.end_of_life.STRATEGIES` order: ``strategy`` (key), ``label``
+        (plain words, capitalised), ``cost_pv`` (expected present cost [currency]) and ``cheapest`` (bool,
+        one row). Empty when there is nothing to compare.
+    cheapest : str
+        Key of the cheapest strategy ("" when empty).
+    margin_pv : float
+        How much less the cheapest costs than the next cheapest [currency, PV], >= 0 (NaN when empty).
+    text : str
+        One or two sentences: the cheapest strategy, by how much, the motor's age and its probability of
+        failing within the horizon where the frame carries them.
+    caution : str
+        :func:`models.end_of_life.failure_law_caution` ("" when empty).
+    message : str
+        Why there is nothing to show ("" when there is).
+    """
+
+    strategies: pd.DataFrame
+    cheapest: str = ""
+    margin_pv: float = float("nan")
+    text: str = ""
+    caution: str = ""
+    message: str = ""
+
+
+def _eol_money(value: float, currency: str) -> str:
+    """An amount in a sentence: whole units with thousands separators (``EUR 104,890``), as the cards' long form."""
+    return f"{currency} {float(value):,.0f}"
+
+
+def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
+                        option_labels: dict | None = None, age_known: bool = True) -> EndOfLifeSummary:
+    """Return the end-of-life comparison of one asset from the engine's end-of-life frame.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame or None
+        :attr:`models.scenario.ScenarioResult.end_of_life`: asset_id, the three ``cost_*`` columns
+        [currency, PV] and, where given, age_yr [yr], new_option_id, failure_probability_in_horizon_frac
+        [frac] and mean_residual_life_yr [yr]. Empty when the catalogue has no rewind or no new induction
+        motor option.
+    asset_id : str
+        The asset shown.
+    currency : str
+        The case currency, for the text.
+    horizon_yr : int
+        Study period [yr], for the probability of failing within it.
+    option_labels : dict, optional
+        option_id -> option name, to name the new motor compared.
+    age_known : bool
+        False when the case gives no installation year (the engine then assumes an age): the text says so.
+
+    Returns
+    -------
+    EndOfLifeSummary
+        With ``message`` set, and no strategies, when the frame is empty, has no row for the asset, or its
+        costs are not finite.
+
+    Notes
+    -----
+    The cheapest strategy is the lowest expected present cost; a tie goes to the first in
+    :data:`models.end_of_life.STRATEGIES` order, the rule of :func:`models.end_of_life.strategy_costs`
+    (its ``best_strategy`` and ``advantage_over_next`` are the same numbers). A gap below
+    :data:`CLOSE_CALL_FRAC` of the cheapest cost is called level in the text: the failure laws and prices
+    behind it are not that precise.
+    """
+    from models.end_of_life import STRATEGIES, STRATEGY_NAMES, failure_law_caution
+
+    empty = pd.DataFrame({"strategy": pd.Series(dtype="str"), "label": pd.Series(dtype="str"),
+                          "cost_pv": pd.Series(dtype=float), "cheapest": pd.Series(dtype=bool)})
+    if frame is None or frame.empty or not set(_STRATEGY_COST_COLUMNS.values()) <= set(frame.columns):
+        return EndOfLifeSummary(empty, message=END_OF_LIFE_UNAVAILABLE)
+    rows = frame[frame["asset_id"].astype(str) == str(asset_id)]
+    if rows.empty:
+        return EndOfLifeSummary(empty, message=f"No end-of-life comparison for {asset_id}.")
+    row = rows.iloc[0]
+    costs = np.array([float(row[_STRATEGY_COST_COLUMNS[s]]) for s in STRATEGIES])
+    if not np.isfinite(costs).all():
+        return EndOfLifeSummary(empty, message=f"No end-of-life comparison for {asset_id}: its costs could not be "
+                                               "computed.")
+    order = np.argsort(costs, kind="stable")
+    best, runner_up = STRATEGIES[order[0]], STRATEGIES[order[1]]
+    margin = float(costs[order[1]] - costs[order[0]])
+    strategies = pd.DataFrame({
+        "strategy": pd.Series(STRATEGIES, dtype="str"),
+        "label": pd.Series([STRATEGY_NAMES[s].capitalize() for s in STRATEGIES], dtype="str"),
+        "cost_pv": costs, "cheapest": [s == best for s in STRATEGIES]})
+
+    first = (f"For {asset_id} the cheapest end-of-life strategy is to {STRATEGY_NAMES[best]}: an expected present "
+             f"cost of {_eol_money(costs[order[0]], currency)}, ")
+    if round(margin) == 0:
+        first += f"level with the next cheapest ({STRATEGY_NAMES[runner_up]})."
+    else:
+        first += f"{_eol_money(margin, currency)} less than the next cheapest ({STRATEGY_NAMES[runner_up]})"
+        # a gap inside the precision of the inputs is not a preference
+        first += (": under 1 % apart, so treat the two as level." if margin < CLOSE_CALL_FRAC * costs[order[0]]
+                  else ".")
+    facts = []
+    age = float(row["age_yr"]) if "age_yr" in row.index else float("nan")
+    if math.isfinite(age):
+        facts.append(f"Today's motor is {age:.0f} years old" + ("" if age_known else
+                                                                 " (assumed: the case gives no installation year)"))
+    p = float(row["failure_probability_in_horizon_frac"]) if "failure_probability_in_horizon_frac" in row.index \
+        else float("nan")
+    if math.isfinite(p):
+        life = float(row["mean_residual_life_yr"]) if "mean_residual_life_yr" in row.index else float("nan")
+        clause = f"the probability that it fails within the {int(horizon_yr)}-year horizon is {p * 100:.0f} %"
+        clause += f" (mean residual life {life:.1f} yr)" if math.isfinite(life) else ""
+        facts.append(clause if facts else clause[:1].upper() + clause[1:])
+    second = "; ".join(facts) + "." if facts else ""
+    new_id = row["new_option_id"] if "new_option_id" in row.index else None
+    if isinstance(new_id, str) and new_id:
+        second += (" " if second else "") + f"New motor compared: {(option_labels or {}).get(new_id, new_id)}."
+    return EndOfLifeSummary(strategies, best, margin, " ".join(x for x in (first, second) if x), failure_law_caution())
+
+
+def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
+    """The end-of-life comparison of one asset under the view's assumptions (:func:`end_of_life_summary`)."""
+    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    assets = view_.case.assets
+    installed = assets.loc[assets["asset_id"].astype(str) == str(asset_id), "year_installed"]
+    age_known = bool(len(installed)) and bool(pd.notna(installed.iloc[0]))
+    return end_of_life_summary(result.end_of_life, asset_id, view_.currency, int(result.assumptions.horizon_yr),
+                               labels, age_known)
+
+
+#: Each repair-or-replace decision of :func:`models.end_of_life.fleet_rules` in plain words.
+FLEET_RULE_DECISIONS = {"replace": "replace", "rewind": "rewind",
+                        "replace_above_hours": "replace from the hours shown, rewind below"}
+
+
+def fleet_rule_rows(result) -> pd.DataFrame:
+    """The fleet's repair-or-replace policy as the grid shows it.
+
+    Returns
+    -------
+    pandas.DataFrame
+        min_rated_p_kw, max_rated_p_kw [kW], min_hours_to_replace_h_per_yr [h/yr] (NaN where rewinding
+        wins at every hours of the grid: no threshold), decision (plain words) and rule. Empty (with these
+        columns) when the engine has no policy.
+    """
+    columns = ["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr", "decision", "rule"]
+    rules = result.fleet_rules
+    if rules is None or rules.empty:
+        return pd.DataFrame(columns=columns)
+    hours = rules["min_hours_to_replace_h_per_yr"].to_numpy(dtype=float)
+    return pd.DataFrame({
+        "min_rated_p_kw": rules["min_rated_p_kw"].to_numpy(dtype=float),
+        "max_rated_p_kw": rules["max_rated_p_kw"].to_numpy(dtype=float),
+        "min_hours_to_replace_h_per_yr": np.where(np.isfinite(hours), hours, np.nan),
+        "decision": [FLEET_RULE_DECISIONS.get(d, d) for d in rules["decision"]],
+        "rule": rules["rule"].to_numpy(dtype=object)})

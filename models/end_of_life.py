@@ -23,6 +23,10 @@ from scipy.special import gamma, gammaincc
 #: Strategy names, in the column order of :func:`strategy_costs`.
 STRATEGIES: tuple[str, ...] = ("replace_now", "replace_at_failure", "rewind_at_failure")
 
+#: Each strategy in plain words, as every front names it.
+STRATEGY_NAMES: dict[str, str] = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
+                                  "rewind_at_failure": "rewind at failure"}
+
 
 @dataclass(frozen=True)
 class LifeClass:
@@ -677,3 +681,43 @@ def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: fl
                 f"rewind below that.")
     return {"min_rated_p_kw": float(low_kw), "max_rated_p_kw": float(high_kw),
             "min_hours_to_replace_h_per_yr": float(threshold_h), "decision": decision, "rule": rule}
+
+
+def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES) -> str:
+    """Return the caution that goes with every end-of-life cost: expectations, not a forecast.
+
+    Parameters
+    ----------
+    classes : tuple of LifeClass
+        The failure laws the costs were weighted with, sorted by ``max_rated_p_kw``.
+
+    Returns
+    -------
+    str
+        One sentence naming the mean life of each size class.
+
+    Notes
+    -----
+    The costs of :func:`strategy_costs` are weighted by the probability of failing in each year, from a
+    Weibull law per size class whose defaults come from common practice life bands, not from failure
+    records; they say what the strategies cost on average over many motors like this one, not when this
+    motor will fail.
+
+    Examples
+    --------
+    >>> failure_law_caution()[:60]
+    'Expected present costs over a failure-age distribution, not '
+    """
+    bands, low_kw = [], 0.0
+    for c in classes:
+        if math.isinf(c.max_rated_p_kw):
+            span = f"above {low_kw:g} kW"
+        elif low_kw == 0.0:
+            span = f"up to {c.max_rated_p_kw:g} kW"
+        else:
+            span = f"{low_kw:g}-{c.max_rated_p_kw:g} kW"
+        bands.append(f"{span} {c.mean_life_yr:.1f} yr")
+        low_kw = c.max_rated_p_kw
+    return ("Expected present costs over a failure-age distribution, not a forecast of when this motor will fail: "
+            "each size class fails by a Weibull law set from common practice life bands, not from failure records "
+            f"(mean life {', '.join(bands)}).")

@@ -27,10 +27,12 @@ def engine(small_engine, monkeypatch):
 
 
 def test_every_page_renders_on_the_case(engine):
-    outputs = [fleet.update(None, None, None, None), asset.update("HRW-V01", None, None), site.update("KGQ", None, None, None),
-               plan.update(True, None, None), risk.update(True, None, None), inputs.preview(True, None, None)]
+    outputs = [fleet.update(None, None, None, None), asset.update("HRW-V01", None, None),
+               asset.end_of_life("HRW-V01", None, None), site.update("KGQ", None, None, None),
+               plan.update(True, None, None), risk.update(True, None, None, "plan"), inputs.preview(True, None, None)]
     figures = [x for out in outputs for x in out if isinstance(x, go.Figure)]
-    assert len(figures) == 1 + 4 + 4 + 2 + 3  # fleet, asset, site, plan, uncertainty (tornado, fleet NPV, ranges)
+    # fleet, asset (and its end of life), site, plan, uncertainty (tornado, fleet NPV, ranges)
+    assert len(figures) == 1 + 4 + 1 + 4 + 2 + 3
     assert all(f.data for f in figures)
 
 
@@ -195,9 +197,25 @@ def test_uncertainty_page_says_why_when_the_risk_cannot_run(engine, monkeypatch)
         raise ValueError("a drawn discount rate is <= -1; narrow the discount-rate distribution")
 
     monkeypatch.setattr(services.View, "result", refuse)
-    out = risk.update(True, None, None)
+    out = risk.update(True, None, None, "plan")
     assert "cannot run under these assumptions" in str(out[4]) and out[2] == []
     assert all(isinstance(f, go.Figure) for f in (out[0], out[1], out[6]))
+
+
+def test_uncertainty_page_analyses_the_plan_or_the_best_options(engine):
+    # the plan (what the capital request asks for) by default, the best options with no budget on request;
+    # the figures and the summary name what they add up
+    v = services.view(None, None)
+    result = v.result(with_risk=True)
+    plan_out, best_out = risk.update(True, None, None, "plan"), risk.update(True, None, None, "best")
+    assert {r["project_id"] for r in plan_out[2]} == set(result.plan["asset_id"] + "/" + result.plan["option_id"])
+    assert {r["project_id"] for r in best_out[2]} == set(result.risk["project_id"])
+    assert any(c["field"] == "start_yr" for c in plan_out[3]) and not any(c["field"] == "start_yr" for c in best_out[3])
+    assert "capital plan" in str(plan_out[4]) and "best option" in str(best_out[4])
+    assert plan_out[6].layout.title.text.startswith("Plan NPV") and best_out[6].layout.title.text.startswith("Fleet NPV")
+    assert "Plan NPV" in plan_out[0].layout.xaxis.title.text
+    # an unknown scope (e.g. a stale stored value) falls back to the plan
+    assert risk.update(True, None, None, "nonsense")[2] == plan_out[2]
 
 
 def test_case_warnings_are_listed_when_the_inputs_page_opens(engine, monkeypatch):
@@ -269,8 +287,21 @@ def test_site_summary_reads_kva_and_the_billed_power_factor(engine):
 
 def test_fleet_site_filter_names_the_sites(engine):
     # the small case is cut from the demo: its site HRW is "Haldane Ridge Water Treatment Works" (data/demo/sites.csv)
-    sites = fleet.update(None, None, None, None)[8]
+    sites = fleet.filters(None)[0].options
     assert {"label": "HRW: Haldane Ridge Water Treatment Works", "value": "HRW"} in sites
+
+
+def test_fleet_filters_keep_the_tabs_choice_per_case(engine):
+    # made with their choices, so Dash can put the tab's kept choice back (a dropdown made before its
+    # choices drops a kept value they do not hold); kept in the tab's session storage, one choice per case
+    for dropdown in fleet.filters(None):
+        assert dropdown.options and dropdown.multi
+        assert dropdown.persistence == engine.default_key and dropdown.persistence_type == "session"
+    # the layout's stand-ins have no choices: the table waits for the filters rather than showing every asset
+    from dash.exceptions import PreventUpdate
+
+    with pytest.raises(PreventUpdate):
+        fleet.update(None, None, None, None, None)
 
 
 def test_fleet_count_follows_the_grids_own_filters(engine):
@@ -451,3 +482,45 @@ def dash_callback_list():
     from dash._callback import GLOBAL_CALLBACK_LIST
 
     return list(GLOBAL_CALLBACK_LIST) + list(shell.app._callback_list)
+
+
+def test_asset_end_of_life_matches_the_engines_frame(engine):
+    # the numbers worked from the engine's own row, in plain Python: the lowest of the three costs and its gap
+    # to the second lowest
+    result = services.view(None, None).result()
+    row = result.end_of_life.set_index("asset_id").loc["HRW-P01"]
+    costs = {"Replace now": row["cost_replace_now"], "Replace at failure": row["cost_replace_at_failure"],
+             "Rewind at failure": row["cost_rewind_at_failure"]}
+    ranked = sorted(costs.items(), key=lambda kv: kv[1])
+    fig, text, rules, columns = asset.end_of_life("HRW-P01", None, None)
+    bar = fig.data[0]
+    assert list(bar.y) == list(costs) and list(bar.x) == list(costs.values())
+    marked = [y for y, t in zip(bar.y, bar.text) if t.endswith("cheapest")]
+    assert marked == [ranked[0][0]]
+    assert ranked[0][0].lower().replace(" ", "_") == row["best_strategy"]  # the pack's choice too
+    sentence, caution = text[0].children, text[1].children
+    assert f"is to {ranked[0][0].lower()}: an expected present cost of EUR {ranked[0][1]:,.0f}" in sentence
+    assert f"EUR {ranked[1][1] - ranked[0][1]:,.0f} less than the next cheapest ({ranked[1][0].lower()})" in sentence
+    assert f"{row['age_yr']:.0f} years old" in sentence
+    assert f"is {row['failure_probability_in_horizon_frac'] * 100:.0f} %" in sentence
+    assert "not a forecast" in caution
+    # the policy: one grid row per engine row, readable headers, no infinite hours sent to the browser
+    assert len(rules) == len(result.fleet_rules) > 0
+    assert [c["headerName"] for c in columns][:3] == ["From rating [kW]", "To rating [kW]",
+                                                      "Replace rather than rewind from [h/yr]"]
+    assert not any(np.isinf(r["min_hours_to_replace_h_per_yr"]) for r in rules)
+
+
+def test_asset_end_of_life_says_why_when_the_engine_has_none(engine, monkeypatch):
+    # a catalogue without a rewind or a new induction option: the engine's frames are empty
+    from dataclasses import replace
+
+    result = services.view(None, None).result()
+    empty = replace(result, end_of_life=pd.DataFrame(), fleet_rules=pd.DataFrame())
+    monkeypatch.setattr(services.View, "result", lambda self, *a, **k: empty)
+    fig, text, rules, _ = asset.end_of_life("HRW-P01", None, None)
+    assert not fig.data and fig.layout.annotations[0].text == services.END_OF_LIFE_UNAVAILABLE
+    assert [p.children for p in text] == [services.END_OF_LIFE_UNAVAILABLE] and rules == []
+    # no asset chosen yet: the policy grid is left saying it is computing, not "not available"
+    fig, _, rules, columns = asset.end_of_life(None, None, None)
+    assert "Choose" in fig.layout.annotations[0].text and rules is no_update and columns is no_update

@@ -316,6 +316,14 @@ class TestPlanAndRisk:
         assert [a.text for a in fleet.layout.annotations] == ["P10 EUR 1.09 M", "P50 EUR 5.05 M", "P90 EUR 9.01 M"]
         assert "P(NPV > 0) = 100%" in fig.layout.title.text and titles(fig)["xaxis"] == "Fleet NPV [EUR]"
 
+    def test_plan_npv_histogram_and_tornado_name_the_plan(self):
+        draws = np.linspace(-1.0, 9.0, 101)
+        fig = figures.fleet_npv_histogram(draws, "EUR", scope="plan")
+        assert fig.layout.title.text.startswith("Plan NPV over 101 draws") and "under the budget" in fig.layout.title.text
+        rows = pd.DataFrame({"label": ["a"], "npv_at_low": [1.0], "npv_at_high": [3.0], "base_npv": [2.0], "swing": [2.0]})
+        assert "centre: the capital plan" in figures.tornado(rows, "EUR", scope="plan").layout.xaxis.title.text
+        assert "centre: each asset's best option" in figures.tornado(rows, "EUR").layout.xaxis.title.text
+
     def test_fleet_npv_histogram_empty(self):
         assert not figures.fleet_npv_histogram(np.zeros(0), "EUR").data
 
@@ -380,3 +388,28 @@ def test_cards_and_labels_write_money_alike():
     assert components.fmt_money(48213.0, "EUR") == "EUR 48.2 k" and components.fmt_money(950.0, "EUR") == "EUR 950"
     assert components.fmt_money(None, "EUR") == "-" and components.fmt_money(float("nan"), "EUR") == "-"
     assert components.fmt_money(1.25e6, "EUR", compact=False) == "EUR 1,250,000"
+
+
+class TestEndOfLife:
+    """One asset's end-of-life strategies: inputs written out, labels worked by hand (1,000 < 1e4: whole units)."""
+
+    strategies = pd.DataFrame({"label": ["Replace now", "Replace at failure", "Rewind at failure"],
+                               "cost_pv": [1000.0, 900.0, 25000.0], "cheapest": [False, True, False]})
+
+    def test_one_horizontal_bar_per_strategy_the_cheapest_marked_in_words_and_colour(self):
+        fig = figures.end_of_life_costs(self.strategies, "EUR")
+        bar = fig.data[0]
+        assert len(fig.data) == 1 and bar.type == "bar" and bar.orientation == "h"
+        assert list(bar.y) == ["Replace now", "Replace at failure", "Rewind at failure"]
+        np.testing.assert_allclose(bar.x, [1000.0, 900.0, 25000.0])
+        assert list(bar.marker.color) == [figures.BEFORE, figures.AFTER, figures.BEFORE]
+        assert list(bar.text) == ["EUR 1,000", "EUR 900 · cheapest", "EUR 25.0 k"]  # 25,000 / 1e3 = 25.0 k
+        assert fig.layout.yaxis.autorange == "reversed"  # first strategy on top
+
+    def test_axis_title_carries_the_currency(self):
+        assert titles(figures.end_of_life_costs(self.strategies, "USD"))["xaxis"] == "Expected present cost [USD]"
+
+    def test_nothing_to_draw_says_why(self):
+        fig = figures.end_of_life_costs(self.strategies.iloc[0:0], "EUR", "Not available: no rewind option.")
+        assert not fig.data and fig.layout.annotations[0].text == "Not available: no rewind option."
+        assert figures.end_of_life_costs(None, "EUR").layout.annotations[0].text == "No end-of-life comparison."

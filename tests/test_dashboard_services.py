@@ -13,6 +13,8 @@ import shutil
 import types
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
 
 from dashboard import server, services
@@ -533,7 +535,7 @@ class TestPageData:
         assert hours["hours_per_yr"].sum() == pytest.approx(3200.0, rel=1e-9)
         assert "duty" in basis
         score, defaults, flags = services.asset_quality(v, r, "HRW-P01")
-        assert 0 <= score <= 100 and set(defaults.columns) == {"column", "value", "basis"}
+        assert 0 <= score <= 100 and set(defaults.columns) == {"field", "column", "value", "basis"}
         numbers = [v for v in defaults["value"] if v.replace(".", "", 1).replace("-", "", 1).isdigit()]
         assert numbers and all(len(v.replace("-", "").replace(".", "")) <= 6 for v in numbers)  # 6 significant digits
 
@@ -570,6 +572,26 @@ class TestPageData:
         rows = services.risk_rows(v.result(with_risk=True))
         assert len(rows) and rows["label"].notna().all()
         assert list(rows["npv_p50"]) == sorted(rows["npv_p50"], reverse=True)
+
+    def test_risk_summary_of_the_plan_names_its_percentiles(self, engine):
+        v = services.view(None, None)
+        r = v.result(with_risk=True)
+        text = services.risk_summary_text(r, "plan", "EUR")
+        # the P50 printed is the median of the plan's draws (numpy.median as reference)
+        assert f"P50 {np.median(r.plan_npv_draws):,.0f} EUR" in text
+        assert text.startswith(f"{len(r.plan)} projects of the capital plan")
+        assert "P(NPV > 0)" in text and f"seed {r.assumptions.monte_carlo_seed}" in text
+        assert services.npv_draws(r, "plan") is not None and len(services.npv_draws(r, "best")) == len(r.fleet_npv_draws)
+        with pytest.raises(ValueError, match="unknown scope"):
+            services.risk_rows(r, "everything")
+
+    def test_risk_summary_of_an_empty_plan_says_so(self, engine):
+        v = services.view(None, {"case": engine.default_key, "budget_per_yr": [0.0]})
+        r = v.result(with_risk=True)
+        assert r.plan.empty and r.plan_npv_draws.size == 0
+        assert "holds no project under this budget" in services.risk_summary_text(r, "plan", "EUR")
+        assert services.risk_rows(r, "plan").empty
+        assert services.tornado_rows(r, "plan").empty
 
     def test_blank_template_is_a_workbook(self):
         from openpyxl import load_workbook
@@ -679,6 +701,16 @@ class TestPlanSolveText:
     def test_unknown_bound_and_failure(self):
         assert "no bound" in services.plan_solve_text(self.result("optimal", float("nan"), scenario.PRECISE_PLAN))
         assert "rank-order plan stands" in services.plan_solve_text(self.result("failed", float("nan"), None))
+
+    def test_withdrawn_reactive_projects_are_named_as_the_tables_name_them(self):
+        # user report: the Capital plan page named a withdrawn project "HRW-A01/capacitor", the internal key; it
+        # reads "HRW-A01: <the option's label in the catalogue>" (data/defaults/options.csv)
+        result = self.result("optimal", 0.0, scenario.PRECISE_PLAN)
+        result.plan_status.update(withdrawn=("HRW-A01/capacitor",), set_aside=("HRW-A02/capacitor",))
+        result.results = pd.DataFrame({"asset_id": ["HRW-A01", "HRW-A02"], "option_id": ["capacitor", "capacitor"],
+                                       "label": ["Motor-terminal capacitor"] * 2})
+        text = services.plan_solve_text(result)
+        assert "(HRW-A01: Motor-terminal capacitor)" in text and "/capacitor" not in text
 
 
 class TestPlanNotice:

@@ -175,3 +175,20 @@ class TestFleetRules:
     def test_efficiency_in_percent_raises(self):
         with pytest.raises(ValueError, match="fraction"):
             eol.energy_cost_per_yr(10.0, 0.75, 4000.0, 91.0, 0.1)
+
+
+class TestWording:
+    def test_strategy_names_cover_every_strategy(self):
+        assert list(eol.STRATEGY_NAMES) == list(eol.STRATEGIES)
+
+    def test_caution_names_the_mean_life_of_each_class(self):
+        text = eol.failure_law_caution()
+        # mean life eta * Gamma(1 + 1/2.5), Gamma(1.4) = 0.887264 (Abramowitz & Stegun table 6.1):
+        # 14 x 0.887264 = 12.42, 20 x 0.887264 = 17.75, 28 x 0.887264 = 24.84 yr
+        assert "up to 7.5 kW 12.4 yr, 7.5-75 kW 17.7 yr, above 75 kW 24.8 yr" in text
+        assert "not a forecast" in text and "common practice" in text
+
+    def test_caution_follows_the_classes_given(self):
+        # one class of beta = 1 (exponential, Gamma(2) = 1): mean life = eta = 10 yr
+        text = eol.failure_law_caution((eol.LifeClass(math.inf, 1.0, 10.0, "one"),))
+        assert "above 0 kW 10.0 yr" in text

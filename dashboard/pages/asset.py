@@ -1,4 +1,5 @@
-"""One asset: every option side by side, life-cycle cost, cash flow, part-load behaviour, speed effect, data quality."""
+"""One asset: every option side by side, life-cycle cost, cash flow, part-load behaviour, speed effect, end of life,
+data quality."""
 
 from __future__ import annotations
 
@@ -23,6 +24,9 @@ SPEED = "asset-speed"
 DEFAULTS = "asset-defaults"
 FLAGS = "asset-flags"
 NOTICE = "asset-notice"
+END_OF_LIFE = "asset-end-of-life"
+END_OF_LIFE_TEXT = "asset-end-of-life-text"
+FLEET_RULES = "asset-fleet-rules"
 
 
 def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
@@ -51,6 +55,20 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                                    "back (the motor itself still turns faster, as shown); a drive holds the speed.",
                                    className="page-intro"),
                             ui.graph(SPEED)], className="panel half")], className="row"),
+        html.H3("At end of life"),
+        html.P("What today's motor costs if it is replaced now, replaced when it fails, or rewound when it fails: "
+               "capital, running cost and expected downtime over the study period, each year weighted by the "
+               "chance that the motor fails in it.", className="page-intro"),
+        html.Div([html.Div(ui.graph(END_OF_LIFE), className="panel half"),
+                  html.Div(dcc.Loading(html.Div("Computing the case…", id=END_OF_LIFE_TEXT), type="dot",
+                                       delay_show=400), className="panel half")], className="row"),
+        html.H4("Repair-or-replace policy for the fleet"),
+        html.P("For any motor of the case that has just failed: rewind it, or replace it with a new induction motor, "
+               "by size and running hours. Standard ratings are priced from the catalogue at 75 % load and the "
+               "case's mean price per kWh; the hours are steps of a grid (1,000 to 8,000 h/yr), not exact "
+               "break-evens.", className="page-intro"),
+        ui.data_grid(FLEET_RULES, height=260, rowData=None, empty_text=services.END_OF_LIFE_UNAVAILABLE,
+                     loading_text="Computing the case…"),
         html.H3("Data quality"),
         html.Div([html.Div([html.H4("Fields filled with defaults"), ui.data_grid(DEFAULTS, height=240, empty_text="No field of this asset was filled with a default")], className="half"),
                   html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240, empty_text="No cautions for this asset")], className="half")],
@@ -134,8 +152,45 @@ def update(asset_id, session, edits, requested=None):
             figures.performance(services.asset_performance(view, asset_id), hours, basis, colours),
             figures.speed_energy(options, colours),
             defaults.to_dict("records"),
-            [ui.text_col("column", "Field"), ui.text_col("value", "Value used"),
+            # the field in words; its column heading in the asset register shows on hover
+            [ui.long_text_col("field", "Field", tooltipField="column",
+                              headerTooltip="Hover a field for its column heading in the asset register"),
+             ui.text_col("value", "Value used"),
              ui.long_text_col("basis", "Basis", flex=2)],
             flags.to_dict("records"),
             [ui.long_text_col("option", "Option"), ui.long_text_col("flag", "Caution", flex=3)],
             notice)
+
+
+def fleet_rule_columns() -> list[dict]:
+    """Columns of the repair-or-replace policy grid (the pack's workbook headers)."""
+    return [ui.rating_col("min_rated_p_kw", "From rating [kW]", maxWidth=150),
+            ui.rating_col("max_rated_p_kw", "To rating [kW]", maxWidth=150),
+            ui.number_col("min_hours_to_replace_h_per_yr", "Replace rather than rewind from [h/yr]", minWidth=170,
+                          maxWidth=220),
+            ui.long_text_col("decision", "Decision", minWidth=180),
+            ui.long_text_col("rule", "Rule", flex=3, minWidth=320)]
+
+
+@callback(
+    Output(END_OF_LIFE, "figure"), Output(END_OF_LIFE_TEXT, "children"), Output(FLEET_RULES, "rowData"),
+    Output(FLEET_RULES, "columnDefs"),
+    Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
+)
+def end_of_life(asset_id, session, edits):
+    """The chosen asset's end-of-life strategies and the fleet's repair-or-replace policy.
+
+    Before an asset is chosen the policy grid keeps its "Computing the case…" (no rows would read as "not
+    available").
+    """
+    view = services.view(session, edits)
+    if asset_id not in set(view.case.assets["asset_id"]):
+        return figures.message_figure("Choose an asset.", height=220), "", dash.no_update, dash.no_update
+    result = view.result()
+    eol = services.asset_end_of_life(view, result, asset_id)
+    if eol.message:
+        text = [html.P(eol.message)]
+    else:
+        text = [html.P(eol.text), html.P(eol.caution, className="page-intro")]
+    return (figures.end_of_life_costs(eol.strategies, view.currency, eol.message), text,
+            services.fleet_rule_rows(result).to_dict("records"), fleet_rule_columns())

@@ -1,4 +1,5 @@
-"""Uncertainty: the one-at-a-time tornado of the fleet NPV, the Monte Carlo fleet NPV and the range of each project."""
+"""Uncertainty: the one-at-a-time tornado, the Monte Carlo total NPV and the range of each project, of the budgeted
+plan or of each asset's best option."""
 
 from __future__ import annotations
 
@@ -16,6 +17,7 @@ TABLE = "risk-table"
 SUMMARY = "risk-summary"
 NOTICE = "risk-notice"
 FLEET = "risk-fleet"
+SCOPE = "risk-scope"
 
 
 def layout(**_query):
@@ -24,6 +26,14 @@ def layout(**_query):
         ui.page_header("Uncertainty", "How far the answer moves when prices, hours, loads, capital and rates move: one "
                                       "input at a time (tornado), then all together in a seeded Monte Carlo."),
         ui.notice(NOTICE),
+        html.Div([html.Label("Analyse", htmlFor=SCOPE),
+                  dcc.RadioItems(id=SCOPE, options=[{"label": text, "value": key}
+                                                    for key, text in services.RISK_SCOPES.items()],
+                                 value="plan", inline=True, persistence=True, persistence_type="session")],
+                 className="filter wide"),
+        html.P("The capital plan is what the request asks for: its projects at the start years the budget gives "
+               "them. Each asset's best option shows what the whole fleet could earn with no budget.",
+               className="page-intro"),
         html.Div(id=SUMMARY, className="asset-summary"),
         html.Div([html.Div(ui.graph(TORNADO), className="panel half"), html.Div(ui.graph(FLEET), className="panel half")],
                  className="row"),
@@ -36,8 +46,9 @@ def layout(**_query):
 dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertainty · drivecase", order=4, layout=layout)
 
 
-def columns(currency: str) -> list[dict]:
-    return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=200),
+def columns(currency: str, scope: str = "best") -> list[dict]:
+    start = [ui.number_col("start_yr", "Start [plan year]")] if scope == "plan" else []
+    return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=200), *start,
             ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
             ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
             percent_col("prob_npv_positive_frac", "P(NPV > 0) [%]"),
@@ -53,9 +64,11 @@ def percent_col(field: str, header: str) -> dict:
 
 @callback(Output(TORNADO, "figure"), Output(RANGES, "figure"), Output(TABLE, "rowData"), Output(TABLE, "columnDefs"),
           Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(FLEET, "figure"),
-          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
-def update(_ready, session, edits):
-    """Tornado and Monte Carlo under the tab's assumptions (computed on this page only, then cached)."""
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), Input(SCOPE, "value"))
+def update(_ready, session, edits, scope):
+    """Tornado and Monte Carlo of the plan or of the best options under the tab's assumptions (computed on this
+    page only, then cached)."""
+    scope = scope if scope in services.RISK_SCOPES else "plan"
     view = services.view(session, edits)
     try:
         result = view.result(with_risk=True)
@@ -63,11 +76,9 @@ def update(_ready, session, edits):
         empty = figures.message_figure("No uncertainty results under these assumptions.")
         message = html.Span(f"The tornado and Monte Carlo cannot run under these assumptions: {exc}. Change them on "
                             "the 'Case & assumptions' page.")
-        return empty, empty, [], columns(view.currency), message, view.notice, empty
-    rows = services.risk_rows(result)
-    a = result.assumptions
-    summary = html.Span(f"{len(rows)} projects (the best option of each asset that needs capital) · "
-                        f"{a.monte_carlo_draws} draws, seed {a.monte_carlo_seed} · the same seed gives the same answer.")
-    return (figures.tornado(services.tornado_rows(result), view.currency), figures.risk_ranges(rows, view.currency),
-            rows.to_dict("records"), columns(view.currency), summary, view.notice,
-            figures.fleet_npv_histogram(result.fleet_npv_draws, view.currency))
+        return empty, empty, [], columns(view.currency, scope), message, view.notice, empty
+    rows = services.risk_rows(result, scope)
+    summary = html.Span(services.risk_summary_text(result, scope, view.currency))
+    return (figures.tornado(services.tornado_rows(result, scope), view.currency, scope),
+            figures.risk_ranges(rows, view.currency), rows.to_dict("records"), columns(view.currency, scope), summary,
+            view.notice, figures.fleet_npv_histogram(services.npv_draws(result, scope), view.currency, scope))

@@ -45,3 +45,23 @@ def test_long_grid_texts_are_not_cut_off(tab):
     cells.filter(has_text="a").first.wait_for()
     assert cells.evaluate_all(CUT_OFF) == []
     assert not tab.errors
+
+
+def test_the_end_of_life_section_shows_the_strategies_and_the_policy(tab, artifacts):
+    page = tab.goto("/asset?id=HRW-P01", "#asset-end-of-life-text:has-text('cheapest end-of-life strategy')")
+    text = page.locator("#asset-end-of-life-text").inner_text()
+    assert "HRW-P01" in text and "not a forecast" in text
+    page.locator("#asset-end-of-life .bars .point").nth(2).wait_for()
+    assert page.locator("#asset-end-of-life .bars .point").count() == 3
+    labels = page.locator("#asset-end-of-life .bars text").all_text_contents()
+    assert sum("cheapest" in t for t in labels) == 1
+    rows = page.locator("#asset-fleet-rules .ag-center-cols-container .ag-row")
+    rows.first.wait_for()
+    assert rows.count() > 0
+    headers = page.locator("#asset-fleet-rules .ag-header-cell-text").all_text_contents()
+    assert "Replace rather than rewind from [h/yr]" in headers and "Rule" in headers
+    cells = page.locator("#asset-fleet-rules .ag-row [col-id='rule']")
+    assert cells.evaluate_all(CUT_OFF) == []  # the rules wrap, none cut off
+    page.locator("#asset-end-of-life").scroll_into_view_if_needed()
+    page.screenshot(path=artifacts / "asset_end_of_life.png", full_page=True)
+    assert not tab.errors

@@ -1,0 +1,108 @@
+"""The Asset page's end-of-life section: one asset's strategies in words and numbers, and the fleet's policy.
+
+The frames are written out here in the columns of ``ScenarioResult.end_of_life`` and ``fleet_rules``, so
+every expected number is an input, or a difference of two inputs worked out on the line.
+"""
+
+from __future__ import annotations
+
+import math
+from types import SimpleNamespace
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from dashboard import services
+
+
+def eol_frame(**overrides) -> pd.DataFrame:
+    """Two assets in the columns of ``ScenarioResult.end_of_life``."""
+    frame = pd.DataFrame({
+        "asset_id": ["P1", "F2"], "age_yr": [29.0, 12.0], "new_option_id": ["ie3", "ie4"],
+        "failure_probability_in_horizon_frac": [0.9664, 0.25], "mean_residual_life_yr": [5.06, 14.2],
+        "cost_replace_now": [1000.0, 5000.0], "cost_replace_at_failure": [900.0, 4990.0],
+        "cost_rewind_at_failure": [950.0, 6000.0],
+        "best_strategy": ["replace_at_failure", "replace_at_failure"], "advantage_over_next": [50.0, 10.0]})
+    return frame.assign(**overrides)
+
+
+LABELS = {"ie3": "New IE3 induction motor", "ie4": "New IE4 induction motor"}
+
+
+class TestSummary:
+    def test_cheapest_and_margin_from_the_costs(self):
+        s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, LABELS)
+        assert s.message == "" and s.cheapest == "replace_at_failure"
+        assert s.margin_pv == 50.0  # 950 (rewind at failure, the next) - 900 (replace at failure)
+        assert s.strategies["strategy"].tolist() == ["replace_now", "replace_at_failure", "rewind_at_failure"]
+        assert s.strategies["label"].tolist() == ["Replace now", "Replace at failure", "Rewind at failure"]
+        assert s.strategies["cost_pv"].tolist() == [1000.0, 900.0, 950.0]
+        assert s.strategies["cheapest"].tolist() == [False, True, False]
+
+    def test_the_text_says_what_how_much_age_and_probability(self):
+        s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, LABELS)
+        assert "the cheapest end-of-life strategy is to replace at failure" in s.text
+        assert "expected present cost of EUR 900," in s.text
+        # 50 / 900 = 5.6 %: a real gap, not called level
+        assert "EUR 50 less than the next cheapest (rewind at failure)." in s.text
+        assert "29 years old" in s.text and "within the 15-year horizon is 97 %" in s.text  # 0.9664 -> 97 %
+        assert "mean residual life 5.1 yr" in s.text and "New IE3 induction motor" in s.text
+        assert "not a forecast" in s.caution
+
+    def test_a_close_call_is_called_level(self):
+        # F2: 4,990 (replace at failure) vs 5,000 (replace now): 10 apart, 0.2 % of 4,990 < 1 %
+        s = services.end_of_life_summary(eol_frame(), "F2", "USD", 20, LABELS)
+        assert s.cheapest == "replace_at_failure" and s.margin_pv == 10.0
+        assert "USD 10 less than the next cheapest (replace now): under 1 % apart" in s.text
+        assert "within the 20-year horizon is 25 %" in s.text
+
+    def test_a_tie_goes_to_the_first_strategy(self):
+        frame = eol_frame(cost_replace_now=[700.0, 1.0], cost_replace_at_failure=[700.0, 1.0],
+                          cost_rewind_at_failure=[800.0, 1.0])
+        s = services.end_of_life_summary(frame, "P1", "EUR", 15)
+        assert s.cheapest == "replace_now" and s.margin_pv == 0.0  # 700 - 700
+        assert "level with the next cheapest (replace at failure)" in s.text
+        assert "New motor compared: ie3." in s.text  # no labels given: the option id
+
+    def test_an_assumed_age_is_said(self):
+        s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, age_known=False)
+        assert "29 years old (assumed: the case gives no installation year)" in s.text
+
+    def test_only_the_costs_give_only_the_first_sentence(self):
+        frame = eol_frame()[["asset_id", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure"]]
+        s = services.end_of_life_summary(frame, "P1", "EUR", 15)
+        assert s.cheapest == "replace_at_failure" and s.text.endswith("(rewind at failure).")
+        assert "years old" not in s.text and "probability" not in s.text
+
+    @pytest.mark.parametrize("frame", [pd.DataFrame(), None, eol_frame().iloc[0:0]])
+    def test_no_frame_says_the_catalogue_lacks_an_option(self, frame):
+        s = services.end_of_life_summary(frame, "P1", "EUR", 15)
+        assert s.message == services.END_OF_LIFE_UNAVAILABLE and s.strategies.empty and s.text == ""
+        assert "rewind option and a new induction motor option" in s.message
+
+    def test_an_asset_without_a_row_is_said(self):
+        s = services.end_of_life_summary(eol_frame(), "X9", "EUR", 15)
+        assert s.message == "No end-of-life comparison for X9." and s.strategies.empty
+
+    def test_costs_that_are_not_numbers_are_said(self):
+        s = services.end_of_life_summary(eol_frame(cost_rewind_at_failure=[np.nan, 1.0]), "P1", "EUR", 15)
+        assert "could not be computed" in s.message and s.strategies.empty
+
+
+class TestFleetRules:
+    def test_decisions_in_words_and_no_threshold_left_blank(self):
+        rules = pd.DataFrame({"min_rated_p_kw": [0.75, 5.5, 200.0], "max_rated_p_kw": [2.2, 132.0, 315.0],
+                              "min_hours_to_replace_h_per_yr": [0.0, 4000.0, math.inf],
+                              "decision": ["replace", "replace_above_hours", "rewind"],
+                              "rule": ["a", "b", "c"]})
+        rows = services.fleet_rule_rows(SimpleNamespace(fleet_rules=rules))
+        assert rows["decision"].tolist() == ["replace", "replace from the hours shown, rewind below", "rewind"]
+        assert rows["min_hours_to_replace_h_per_yr"].iloc[:2].tolist() == [0.0, 4000.0]
+        assert math.isnan(rows["min_hours_to_replace_h_per_yr"].iloc[2])  # inf: rewind at every hours
+        assert rows["min_rated_p_kw"].tolist() == [0.75, 5.5, 200.0] and rows["rule"].tolist() == ["a", "b", "c"]
+
+    def test_no_policy_gives_no_rows(self):
+        rows = services.fleet_rule_rows(SimpleNamespace(fleet_rules=pd.DataFrame()))
+        assert rows.empty and "rule" in rows.columns
+
