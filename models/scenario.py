@@ -604,9 +604,10 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 step("end of life")
                 eol, rules = timed("end of life", eol_now)
                 step("risk")
-                tornado_rows, risk_rows, fleet_draws = timed("risk", _risk, flows, assumptions, results, d)
+                tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
                 plan_frames = planned.result()
-            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d)
+            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn)
+            del drawn  # the best projects' draws: read by the plan's Monte Carlo only
         else:
             plan_frames = plan_now()
             step("end of life")
@@ -913,49 +914,72 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
 
 def _risk(flows, assumptions, results, d):
     """Tornado of the fleet NPV of each asset's best option, a seeded Monte Carlo per best project, and
-    the fleet NPV of each draw (the projects' NPVs of one draw share that draw's factors, so they add)."""
+    the fleet NPV of each draw (the projects' NPVs of one draw share that draw's factors, so they add); the
+    fourth value is the Monte Carlo's draws of those rows ((rows, MonteCarloResult), or None), which the
+    plan's Monte Carlo reads for the projects it shares with them."""
     best = np.flatnonzero(results["best_for_asset"].to_numpy() & (results["capital"].to_numpy() > 0))
-    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, best, d)
-    return tornado_rows, summary, draws
+    return _risk_of_rows(flows, assumptions, best, d)
 
 
-def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None):
+def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None, known=None):
     """Tornado, Monte Carlo summary per project and portfolio NPV per draw of the projects ``rows`` (rows
     of ``flows``), each started ``start_yr`` years into the portfolio with ``offset`` added to its NPV
-    (:func:`models.risk.portfolio_npv`; default: all at once, nothing added); the fourth value is the
-    summary's NPVs per draw and project (None without projects)."""
+    (:func:`models.risk.portfolio_npv`; default: all at once, nothing added), and (rows, the Monte Carlo's
+    :class:`models.risk.MonteCarloResult`) or None without projects.
+
+    ``known`` = (rows, MonteCarloResult) of an earlier Monte Carlo of the same flows under the same
+    assumptions (the same seeded draws): the projects it holds are taken from it instead of drawn again
+    (each project's draws depend on its own flows and the draws' factors only).
+    """
     if not len(rows):
         return pd.DataFrame(), pd.DataFrame(), np.zeros(0), None
+    rows = np.asarray(rows, dtype=np.intp)
     start = np.zeros(len(rows)) if start_yr is None else np.asarray(start_yr, dtype=float)
     add = np.zeros(len(rows)) if offset is None else np.asarray(offset, dtype=float)
-    amounts = flows.amounts[rows]
     names = flows.component_names
     response = risk.default_response(assumptions)
     base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
 
     def portfolio(values: dict[str, float]) -> float:
         factors = {k: np.array([float(v)]) for k, v in values.items()}
-        out = risk.monte_carlo(amounts, names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
+        out = risk.monte_carlo(flows.amounts[rows], names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
         return float(risk.portfolio_npv(out.npv, out.discount_rate_frac, start, add)[0])
 
     tornado_rows = risk.tornado(portfolio, base, TORNADO_RANGES)
     factors = risk.draw_factors(int(assumptions.monte_carlo_draws), int(assumptions.monte_carlo_seed))
-    mc = risk.monte_carlo(amounts, names, factors, response, d, project_id=flows.project_id[rows],
-                          tax_rate_frac=assumptions.tax_rate_frac)
+    held = np.full(len(rows), -1)
+    if known is not None:
+        held = pd.Index(np.asarray(known[0], dtype=np.intp)).get_indexer(rows)
+    fresh = np.flatnonzero(held < 0)
+    mc = None
+    if len(fresh):
+        mc = risk.monte_carlo(flows.amounts[rows[fresh]], names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
+    if len(fresh) == len(rows):
+        npv, payback, rate = mc.npv, mc.payback_yr, mc.discount_rate_frac
+    else:
+        earlier = known[1]
+        npv = np.empty((earlier.npv.shape[0], len(rows)))
+        payback = np.empty_like(npv)
+        taken = np.flatnonzero(held >= 0)
+        npv[:, taken], payback[:, taken] = earlier.npv[:, held[taken]], earlier.payback_yr[:, held[taken]]
+        if mc is not None:
+            npv[:, fresh], payback[:, fresh] = mc.npv, mc.payback_yr
+        rate = earlier.discount_rate_frac
+    mc = risk.MonteCarloResult(project_id=np.asarray(flows.project_id[rows], dtype=object).astype(str), npv=npv,
+                               payback_yr=payback, discount_rate_frac=rate)
     draws = risk.portfolio_npv(mc.npv, mc.discount_rate_frac, start, add)
-    if np.any(add != 0.0):
-        mc = replace(mc, npv=mc.npv + add[None, :])
-    summary = mc.summary(target_payback_yr=3.0)
+    summary = (replace(mc, npv=mc.npv + add[None, :]) if np.any(add != 0.0) else mc).summary(target_payback_yr=3.0)
     summary = summary.reset_index() if "project" not in summary.columns else summary
-    return tornado_rows, summary, np.asarray(draws, dtype=float), mc.npv
+    return tornado_rows, summary, np.asarray(draws, dtype=float), (rows, mc)
 
 
-def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float):
+def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, known=None):
     """Tornado, Monte Carlo summary per project and plan NPV per draw (at the plan's start) of the exact plan.
 
     Each project keeps the value the plan gave it (its NPV less the share of its bill saving the rest of
     the plan already takes, :mod:`models.reactive_plan`): that correction is held at its base value in
     every draw, and a project started in a later plan year is discounted by its delay at the draw's rate.
+    ``known``: an earlier Monte Carlo of the same run (:func:`_risk_of_rows`), whose projects are not drawn again.
     """
     if flows is None or plan_frame is None or plan_frame.empty:
         return pd.DataFrame(), pd.DataFrame(), np.zeros(0)
@@ -967,7 +991,7 @@ def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float):
     offset = np.where(np.abs(offset) > 1e-9 * np.maximum(1.0, np.abs(plan_frame["npv"].to_numpy(dtype=float))),
                       offset, 0.0)
     start = plan_frame["start_yr"].to_numpy(dtype=float)
-    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset)
+    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset, known)
     if not summary.empty:
         summary.insert(1, "start_yr", plan_frame["start_yr"].to_numpy(dtype=int))
     return tornado_rows, summary, draws

@@ -477,3 +477,17 @@ def test_without_risk_the_plan_has_no_uncertainty(demo_run_physics):
     case, phys = demo_run_physics
     r = scenario.economics(case, phys, case.finance, with_risk=False)
     assert r.plan_risk.empty and r.plan_tornado.empty and r.plan_npv_draws.size == 0
+
+
+def test_the_plans_draws_taken_from_the_best_options_equal_draws_made_afresh(result):
+    # Invariant: a project's draws depend only on its own flows and the seeded factors, so the plan's Monte
+    # Carlo may take the projects it shares with the best options' Monte Carlo from it
+    d = float(result.assumptions.discount_rate_frac)
+    _, _, _, known = scenario._risk(result.cash_flows, result.assumptions, result.results, d)
+    shared = set(result.results["asset_id"].to_numpy()[known[0]] + "/" + result.results["option_id"].to_numpy()[known[0]])
+    plan_ids = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
+    assert 0 < len(plan_ids & shared) < len(plan_ids)  # the demo's plan has projects of both kinds
+    with_known = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d, known)
+    afresh = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d)
+    assert_allclose(with_known[2], afresh[2], rtol=1e-12)
+    pd.testing.assert_frame_equal(with_known[1], afresh[1], check_exact=False, rtol=1e-12)
