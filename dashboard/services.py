@@ -46,7 +46,7 @@ from models.case import HP_TO_KW, default_value, load_case
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
 from models.plan import low_data_quality, option_labels
-from models.problems import Problem, error, has_errors
+from models.problems import Problem, error, has_errors, missing_table, ordered
 from models.profiles import asset_loads
 from models.wording import counted
 
@@ -177,7 +177,6 @@ _TEMPLATE_HINTS = (
     (re.compile(r"'drivecase new[^']*' writes a (?:template|blank case|blank one)"),
      f"the '{TEMPLATE_BUTTON_TEXT}' button of the Case & assumptions page gives a template (one sheet per table)"),
 )
-_MISSING_TABLE = re.compile(r"^the required table '([^']+)' is missing$")
 
 
 def dashboard_hint(hint):
@@ -202,29 +201,7 @@ def _problem_rows(problems: list[Problem]) -> list[dict]:
 
 def missing_tables(problems: list[Problem]) -> list[tuple[str, str]]:
     """The required tables a case lacks, as (table, file) from the reader's problems, in the reader's order."""
-    found = []
-    for p in problems:
-        match = _MISSING_TABLE.match(str(p.rule or ""))
-        if p.severity == "error" and match:
-            found.append((match.group(1), str(p.file)))
-    return found
-
-
-def root_causes_first(problems: list[Problem]) -> list[Problem]:
-    """The problems of a refused case with the causes first: a missing required table, then the other errors
-    about a whole file (no row), then the other errors, then the warnings (each group in the reader's order).
-
-    A missing table makes every row that refers to it an error too (an asset's unknown site): listed after
-    them it would be found last, behind its own knock-on rows.
-    """
-    def rank(p: Problem) -> int:
-        if p.severity != "error":
-            return 3
-        if _MISSING_TABLE.match(str(p.rule or "")):
-            return 0
-        return 1 if p.row is None else 2
-
-    return sorted(problems, key=rank)  # stable
+    return [(table, str(p.file)) for p in problems if (table := missing_table(p))]
 
 
 def refused_case_message(problems: list[Problem]) -> str:
@@ -636,7 +613,7 @@ class Engine:
                                            f"the case could not be read ({exc.__class__.__name__}: {exc})")]
             if case is None or has_errors(found):
                 shutil.rmtree(folder, ignore_errors=True)
-                return refuse(refused_case_message(found), root_causes_first(found))
+                return refuse(refused_case_message(found), ordered(found))
             entry = self._add_upload(CaseEntry(content_key(target), case, target, "upload", folder))
             try:
                 self.physics(entry.key)

@@ -36,7 +36,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from models.problems import Problem, error, has_errors, warning
+from models.problems import MISSING_TABLE_RULE, Problem, error, has_errors, warning
 from models.wording import counted
 
 PACKAGE_DIR = Path(__file__).resolve().parent
@@ -1107,7 +1107,7 @@ def read_case_files(path: str | Path) -> RawCase:
     for table in REQUIRED_TABLES:
         if table not in case.tables and not (case.kind == "workbook" and has_errors(case.problems) and not case.tables):
             where = f"{table}.csv" if case.kind == "folder" else f"{path.name}:{table}"
-            case.problems.append(error(where, None, None, None, f"the required table '{table}' is missing",
+            case.problems.append(error(where, None, None, None, MISSING_TABLE_RULE.format(table=table),
                                        f"add {table}.csv (or a sheet '{table}'); 'drivecase new' writes a template"))
     return case
 

@@ -6,6 +6,7 @@ on the first one, so a user sees the whole list at once. Errors stop a run; warn
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from typing import Iterable, Literal
 
@@ -113,9 +114,34 @@ class CaseError(ValueError):
         return head + ("\n" + "\n".join(str(p) for p in errors) if errors else "")
 
 
+#: The rule of the error a reader gives for a required table a case lacks (``{table}``: its name). Every row
+#: that refers to such a table is an error too, so :func:`ordered` lists this one first.
+MISSING_TABLE_RULE = "the required table '{table}' is missing"
+_MISSING_TABLE = re.compile("^" + re.escape(MISSING_TABLE_RULE).replace(re.escape("{table}"), "([^']+)") + "$")
+
+
+def missing_table(problem: Problem) -> str | None:
+    """The name of the required table an error says is missing, else None.
+
+    Examples
+    --------
+    >>> missing_table(error("sites.csv", None, None, None, MISSING_TABLE_RULE.format(table="sites")))
+    'sites'
+    >>> missing_table(error("sites.csv", 3, "site_id", "S1", "duplicate site_id")) is None
+    True
+    """
+    if problem.severity != "error":
+        return None
+    found = _MISSING_TABLE.match(str(problem.rule or ""))
+    return found.group(1) if found else None
+
+
 def ordered(problems: Iterable[Problem]) -> list[Problem]:
-    """Return problems in the order they are shown and returned: errors before warnings, then by file,
-    then by row (a problem of a whole file or column before the rows of that file).
+    """Return problems in the order they are shown and returned: the causes before what follows from them.
+
+    Errors come before warnings. Among errors, a missing required table comes first (the rows that refer to
+    it fail too), then the other errors of a whole file or column, by file, then the errors of rows, by file
+    and row. Warnings follow by file, a whole file or column before its rows, then by row.
 
     The sort is stable: problems with the same key keep the order they were found in. A summary line
     that counts the rest of a long list ("20 more unreadable timestamps") carries the row of the first
@@ -125,11 +151,18 @@ def ordered(problems: Iterable[Problem]) -> list[Problem]:
     Examples
     --------
     >>> found = [warning("a.csv", 3, "x", 1, "w"), error("b.csv", 5, "y", 2, "e2"),
-    ...          error("b.csv", None, "y", None, "e1"), error("a.csv", 9, "x", 3, "e0")]
+    ...          error("b.csv", None, "y", None, "e1"), error("a.csv", 9, "x", 3, "e0"),
+    ...          error("c.csv", None, None, None, MISSING_TABLE_RULE.format(table="c"))]
     >>> [p.rule for p in ordered(found)]
-    ['e0', 'e1', 'e2', 'w']
+    ["the required table 'c' is missing", 'e1', 'e0', 'e2', 'w']
     """
-    return sorted(problems, key=lambda p: (p.severity != "error", p.file, -1 if p.row is None else p.row))
+    def key(p: Problem) -> tuple:
+        if p.severity != "error":
+            return (1, 0, p.file, -1 if p.row is None else p.row)
+        cause = 0 if missing_table(p) else (1 if p.row is None else 2)
+        return (0, cause, p.file, -1 if p.row is None else p.row)
+
+    return sorted(problems, key=key)
 
 
 def has_errors(problems: Iterable[Problem]) -> bool:

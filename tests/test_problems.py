@@ -33,3 +33,25 @@ def test_a_summary_line_follows_the_rows_it_continues():
     summary = error("profiles.csv", 4, "timestamp", "x", "7 more unreadable timestamps, the first of them in this row")
     other = error("profiles.csv", None, None, None, "no value column: give shaft_load_pct or input_kw")
     assert ordered([summary, *reversed(listed), other]) == [other, *listed, summary]
+
+
+def test_causes_come_before_the_rows_that_follow_from_them_across_files():
+    # docs/case-format.md, "Reading rules", Problems: "among errors, a missing required table first (the rows
+    # that refer to it fail too), then the other errors of a whole file or column, by file, then the errors of
+    # rows, by file and row"
+    from models.problems import MISSING_TABLE_RULE
+
+    found = [
+        error("assets.csv", 2, "site_id", "S9", "unknown site_id"),
+        error("assets.csv", 3, "site_id", "S9", "unknown site_id"),
+        error("profiles.csv", None, None, None, "no value column: give shaft_load_pct or input_kw"),
+        warning("assets.csv", None, "colour", None, "unknown column 'colour' was ignored"),
+        error("sites.csv", None, None, None, MISSING_TABLE_RULE.format(table="sites")),
+    ]
+    assert [(p.file, p.row) for p in ordered(found)] == [
+        ("sites.csv", None),      # the missing table leads
+        ("profiles.csv", None),   # then errors of a whole file, before any row of any file
+        ("assets.csv", 2),
+        ("assets.csv", 3),
+        ("assets.csv", None),     # the warning last
+    ]
