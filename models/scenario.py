@@ -940,9 +940,11 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     response = risk.default_response(assumptions)
     base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
 
+    amounts = flows.amounts[rows]
+
     def portfolio(values: dict[str, float]) -> float:
         factors = {k: np.array([float(v)]) for k, v in values.items()}
-        out = risk.monte_carlo(flows.amounts[rows], names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
+        out = risk.monte_carlo(amounts, names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
         return float(risk.portfolio_npv(out.npv, out.discount_rate_frac, start, add)[0])
 
     tornado_rows = risk.tornado(portfolio, base, TORNADO_RANGES)
@@ -953,7 +955,8 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     fresh = np.flatnonzero(held < 0)
     mc = None
     if len(fresh):
-        mc = risk.monte_carlo(flows.amounts[rows[fresh]], names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
+        mc = risk.monte_carlo(amounts if len(fresh) == len(rows) else amounts[fresh], names, factors, response, d,
+                              tax_rate_frac=assumptions.tax_rate_frac)
     if len(fresh) == len(rows):
         npv, payback, rate = mc.npv, mc.payback_yr, mc.discount_rate_frac
     else:
