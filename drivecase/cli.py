@@ -32,9 +32,9 @@ def _print_problems(problems, limit: int = 200) -> None:
     errors = [p for p in problems if p.severity == "error"]
     warnings = [p for p in problems if p.severity == "warning"]
     print(f"\nProblems: {counted(len(errors), 'error')}, {counted(len(warnings), 'warning')}")
-    # in the order the case loader gives (models.problems.ordered): errors first, then warnings; within each,
-    # file by file, a whole file's or column's problems before its rows (an unknown heading often explains
-    # many row errors), and a "N more" line after the rows it follows on from
+    # in the order the case loader gives (models.problems.ordered): causes first (a missing table, then errors
+    # of a whole file or column, which often explain many row errors), then the rows' errors, then warnings;
+    # a "N more" line after the rows it follows on from
     for problem in ordered(problems)[:limit]:
         print(f"  {problem}")
     if len(problems) > limit:
@@ -356,11 +356,13 @@ def _print_run_summary(case, result) -> None:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")
     top = best.sort_values("npv", ascending=False).head(10).copy()
     takes = dict(zip(plan["asset_id"], plan["option_id"]))
-    top["in_plan"] = ["this option" if takes.get(a) == o else (takes.get(a) or "nothing")
+    labels = option_labels(r)
+    top["in_plan"] = ["this option" if takes.get(a) == o else (labels.get(takes[a], takes[a]) if a in takes else "nothing")
                       for a, o in zip(top["asset_id"], top["option_id"])]
+    top["option"] = [labels.get(o, o) for o in top["option_id"]]  # as the catalogue names it
     for column in ("capital", "bill_saving_per_yr", "npv"):  # whole currency units
         top[column] = [f"{v:,.0f}" for v in top[column]]
-    table = top[["asset_id", "option_id", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
+    table = top[["asset_id", "option", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
         columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"bill saving [{currency}/yr]",
                  "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]", "in_plan": "the plan takes"})
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "

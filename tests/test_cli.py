@@ -425,3 +425,12 @@ def test_run_names_withdrawn_reactive_projects_as_a_reader_knows_them(tmp_path, 
     line = next(text for text in capsys.readouterr().out.splitlines() if "left out of the plan" in text)
     named = line.split("own saving (", 1)[1].split(")", 1)[0]
     assert ": Motor-terminal capacitor" in named and "/" not in named, line
+
+
+def test_run_names_the_ten_best_options_by_their_catalogue_labels(tmp_path, capsys):
+    # the table of best options names each option and what the plan takes as the catalogue does
+    # (data/defaults/options.csv labels, e.g. "PM motor on a drive"), not by option id ("pm_drive")
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "out"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    out = capsys.readouterr().out
+    table = out.split("Ten best options by NPV", 1)[1].split("Files written", 1)[0]
+    assert "PM motor on a drive" in table and "pm_drive" not in table and "add_drive" not in table
