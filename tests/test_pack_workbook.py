@@ -459,6 +459,9 @@ class TestRiskSheetIsThePlans:
         plan = result.plan.assign(project=result.plan["asset_id"] + "/" + result.plan["option_id"])
         whole = risk_tables(workbook_of(case, result))[heading]
         assert [(r["Project"], r["Plan year"]) for r in whole] == list(zip(plan["project"], plan["start_yr"].astype(int)))
+        # each named beside its key as the catalogue names the option (the results' label column)
+        label = result.results.drop_duplicates("option_id").set_index("option_id")["label"]
+        assert [r["Option"] for r in whole] == list(label.reindex(result.plan["option_id"]))
         only_c1 = risk_tables(workbook_of(case, result, ["C1"], plan=False))
         c1 = plan[plan["asset_id"] == "C1"]
         assert [(r["Project"], r["Plan year"]) for r in only_c1[heading]] == [(c1["project"].iloc[0], 1)]

@@ -684,18 +684,24 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
     else:
         put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
     put_text(ws, row + 1, 1, content.monte_carlo_text(unc))
-    cols = ([("project_id", "Project", None)] + ([("start_yr", "Plan year", "0")] if unc.of_plan else [])
+    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    projects = unc.projects
+    if not projects.empty and "project_id" in projects:  # the option as the catalogue names it, beside its key
+        option_ids = projects["project_id"].astype(str).str.rsplit("/", n=1).str[-1]
+        projects = projects.assign(option_label=[labels.get(o, o) for o in option_ids])
+    cols = ([("project_id", "Project", None), ("option_label", "Option", None)]
+            + ([("start_yr", "Plan year", "0")] if unc.of_plan else [])
             + [("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
                ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
                ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
                ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
                ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)])
-    row = _table(ws, row + 2, unc.projects, cols)
+    row = _table(ws, row + 2, projects, cols)
     put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD
     register = content.risk_register(case, result, scope)
     _table(ws, row + 1, register, [("category", "Category", None), ("item", "Item", None), ("detail", "Detail", None),
                                    ("assets", "Assets", None), ("response", "Response", None)])
-    _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18, 10: 18})
+    _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18, 10: 18, 11: 18})
 
 
 def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
