@@ -497,6 +497,7 @@ class Engine:
             raise KeyError(f"unknown case key {key!r}")
         if not precise and assumptions == entry.case.finance:
             precise = True
+        shown = None  # a result without risk under the same assumptions: its uncertainty is added to it
         with self._lock:
             for precise_ok in ((True,) if precise else (True, False)):  # a proved plan first
                 for risk_ok in ((True,) if with_risk else (True, False)):
@@ -505,7 +506,18 @@ class Engine:
                         self._results.move_to_end((key, assumptions, risk_ok, precise_ok))
                         self._remember(key, found)
                         return found
+                if with_risk and shown is None and (key, assumptions, False, precise_ok) in self._results:
+                    shown = (precise_ok, self._results[(key, assumptions, False, precise_ok)])
             previous = self._last_result.get(key)
+        if shown is not None and getattr(shown[1], "cash_flows", None) is not None:
+            # the plan another page showed under these assumptions, not a plan solved again (a live solve is
+            # bounded in time, so a second one may stop at another plan)
+            def enrich():
+                out = self._timed("economics", lambda: scenario.with_risk(shown[1]))
+                self._remember(key, out)
+                return out
+
+            return self._once(self._results, (key, assumptions, True, shown[0]), enrich, self.max_results)
         phys = self.physics(key)
         settings = scenario.PRECISE_PLAN if precise else replace(scenario.LIVE_PLAN, start=_plan_start(previous))
 
@@ -1816,6 +1828,17 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     new_id = row["new_option_id"] if "new_option_id" in row.index else None
     if isinstance(new_id, str) and new_id:
         second += (" " if second else "") + f"New motor compared: {(option_labels or {}).get(new_id, new_id)}."
+    outage = float(row["downtime_cost_per_h"]) if "downtime_cost_per_h" in row.index else float("nan")
+    if math.isfinite(outage):
+        basis = str(row["downtime_cost_basis"]) if "downtime_cost_basis" in row.index else ""
+        second += (" " if second else "") + (
+            f"A failure's outage ({scenario.NEW_LEAD_TIME_H:.0f} h to a new motor, {scenario.REWIND_LEAD_TIME_H:.0f} h "
+            f"to a rewound one) is priced at {_eol_money(outage, currency)}/h")
+        if basis.startswith("default"):
+            second += (f": the {basis}, a placeholder that can decide the answer; give the asset's downtime cost per "
+                       "hour in the asset register to use your own.")
+        else:
+            second += f" ({basis})." if basis else "."
     return EndOfLifeSummary(strategies, best, margin, " ".join(x for x in (first, second) if x), failure_law_caution())
 
 

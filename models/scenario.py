@@ -622,6 +622,23 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                           capital_spend, bill_pv, *plan_risk, cash_flows=flows)
 
 
+def with_risk(result: ScenarioResult) -> ScenarioResult:
+    """Return a result run without risk with its uncertainty added, its plan kept as it is.
+
+    The tornado and Monte Carlo of each asset's best option and of the result's own plan
+    (:func:`economics` with ``with_risk`` gives the same for the plan it solves): a front that showed a
+    plan first and its uncertainty later analyses the plan it showed, not a plan solved again.
+    """
+    if result.cash_flows is None:
+        raise ValueError("the result keeps no cash flows to re-price: run economics again with risk")
+    d = float(result.assumptions.discount_rate_frac)
+    tornado_rows, risk_rows, draws, drawn = _risk(result.cash_flows, result.assumptions, result.results, d)
+    plan_tornado, plan_risk, plan_draws = _plan_risk(result.cash_flows, result.assumptions, result.results,
+                                                     result.plan, d, drawn)
+    return replace(result, tornado=tornado_rows, risk=risk_rows, fleet_npv_draws=draws, plan_tornado=plan_tornado,
+                   plan_risk=plan_risk, plan_npv_draws=plan_draws)
+
+
 def _only_budget_differs(previous, phys: Physics, assumptions, with_risk: bool) -> bool:
     """True when ``previous`` can serve everything but the plan: same physics, same assumptions but the
     budget, and risk results when they are asked for."""
@@ -876,9 +893,14 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     price = _mean_bill_per_kwh(op, sav.baseline_bills)
     running_old = op.energy_kwh[:, 0] * price
     downtime = a["downtime_cost_per_h"].to_numpy(dtype=float)
+    criticality = a["criticality"].astype(str).to_numpy(dtype=object)
     default_dt = a["criticality"].map(DOWNTIME_COST_BY_CRITICALITY).to_numpy(dtype=float)
-    downtime = np.where(np.isnan(downtime), np.where(assumptions.downtime_cost_per_h > 0, assumptions.downtime_cost_per_h,
-                                                     default_dt), downtime)
+    given = ~np.isnan(downtime)
+    from_finance = assumptions.downtime_cost_per_h > 0
+    basis = np.where(given, "asset register",
+                     "finance assumptions" if from_finance
+                     else np.array([f"default for a {c}-criticality motor" for c in criticality], dtype=object))
+    downtime = np.where(given, downtime, assumptions.downtime_cost_per_h if from_finance else default_dt)
     frame = end_of_life.strategy_costs(
         age, shape, scale, capex_total[rows, new_o], capex_total[rows, r], running_old,
         running_old - sav.total[rows, new_o], running_old - sav.total[rows, r],
@@ -888,6 +910,9 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
         asset_id=op.asset_ids)
     frame.insert(0, "new_option_id", op.option_ids[new_o])
     frame.insert(0, "age_yr", age)
+    # what each failure's outage is priced at, and where that figure comes from (a default can carry the answer)
+    frame["downtime_cost_per_h"] = downtime
+    frame["downtime_cost_basis"] = pd.array(np.asarray(basis, dtype=object).astype(str), dtype="str")
     frame.index.name = "asset_id"
     return frame.reset_index()
 

@@ -65,6 +65,17 @@ class TestSummary:
         assert "level with the next cheapest (replace at failure)" in s.text
         assert "New motor compared: ie3." in s.text  # no labels given: the option id
 
+    def test_a_defaulted_outage_cost_is_named_as_a_placeholder(self):
+        # the engine prices each failure's outage and says where the figure comes from (end_of_life.csv,
+        # docs/outputs.md); a criticality default can carry the answer, so the text says so
+        frame = eol_frame().assign(downtime_cost_per_h=[2000.0, 150.0],
+                                   downtime_cost_basis=["default for a high-criticality motor", "asset register"])
+        p1 = services.end_of_life_summary(frame, "P1", "EUR", 15).text
+        assert "priced at EUR 2,000/h: the default for a high-criticality motor, a placeholder" in p1
+        assert "72 h to a new motor, 168 h to a rewound one" in p1  # models.scenario lead times
+        f2 = services.end_of_life_summary(frame, "F2", "EUR", 15).text
+        assert "priced at EUR 150/h (asset register)." in f2 and "placeholder" not in f2
+
     def test_an_assumed_age_is_said(self):
         s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, age_known=False)
         assert "29 years old (assumed: the case gives no installation year)" in s.text

@@ -135,6 +135,22 @@ class TestCaching:
         assert economics.calls == n + 1
         assert not rich.tornado.empty
 
+    def test_the_uncertainty_asked_after_the_plan_is_that_plans(self, shared_engine):
+        # a live plan (bounded in time) shown first, its uncertainty asked for later: the plan is not solved
+        # again (a second bounded solve may stop at another plan), the risk is added to the result shown
+        from dataclasses import replace
+
+        engine, _, economics = shared_engine
+        a = replace(engine.default_entry().case.finance, discount_rate_frac=0.073)
+        n = economics.calls
+        shown = engine.result(engine.default_key, a)
+        rich = engine.result(engine.default_key, a, with_risk=True)
+        assert economics.calls == n + 1  # no second economics run
+        assert rich.plan is shown.plan and rich.results is shown.results
+        assert not rich.tornado.empty and len(rich.plan_npv_draws) == a.monte_carlo_draws
+        assert engine.result(engine.default_key, a) is rich  # the plan page now gets the same result
+        assert engine.result(engine.default_key, a, with_risk=True) is rich
+
     def test_assumption_edits_skip_risk(self, engine):
         v = services.view(None, {"case": engine.default_key, "discount_rate_pct": 5.5})
         result = v.result()

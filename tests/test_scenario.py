@@ -212,9 +212,12 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     takes = dict(zip(plan["asset_id"], plan["option_id"]))
     assert "the plan takes" in out
     first = next(l for l in out.splitlines() if l.strip().startswith(("HRW-", "KGQ-")))
-    asset_id, option_id = first.split()[:2]
-    expected = "this option" if takes.get(asset_id) == option_id else takes.get(asset_id, "nothing")
-    assert first.rstrip().endswith(expected)
+    asset_id = first.split()[0]
+    option_id = results.loc[(results["asset_id"] == asset_id) & results["best_for_asset"], "option_id"].iloc[0]
+    label = results.drop_duplicates("option_id").set_index("option_id")["label"]  # options named as the catalogue does
+    expected = ("this option" if takes.get(asset_id) == option_id
+                else label[takes[asset_id]] if asset_id in takes else "nothing")
+    assert label[option_id] in first and first.rstrip().endswith(expected)
     # the summary's plan saving on the bills is today's bills less the plan's, read back from bills.csv
     bills = pd.read_csv(tmp_path / "a" / "bills.csv")
     by_scenario = bills.groupby("scenario")["amount"].sum()
@@ -491,3 +494,32 @@ def test_the_plans_draws_taken_from_the_best_options_equal_draws_made_afresh(res
     afresh = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d)
     assert_allclose(with_known[2], afresh[2], rtol=1e-12)
     pd.testing.assert_frame_equal(with_known[1], afresh[1], check_exact=False, rtol=1e-12)
+
+
+def test_risk_added_to_a_result_equals_a_run_with_risk(demo_run_physics):
+    # Invariant: the uncertainty added afterwards (scenario.with_risk) is the one a run with risk computes, for
+    # the same plan; the plan itself is kept, not solved again
+    case, phys = demo_run_physics
+    plain = scenario.economics(case, phys, case.finance, with_risk=False)
+    added = scenario.with_risk(plain)
+    full = scenario.economics(case, phys, case.finance, with_risk=True)
+    assert added.plan is plain.plan
+    pd.testing.assert_frame_equal(added.plan, full.plan)  # the case's own budget: the same exact plan
+    for name in ("tornado", "risk", "plan_tornado", "plan_risk"):
+        pd.testing.assert_frame_equal(getattr(added, name), getattr(full, name), check_exact=False, rtol=1e-12)
+    assert_allclose(added.fleet_npv_draws, full.fleet_npv_draws, rtol=1e-12)
+    assert_allclose(added.plan_npv_draws, full.plan_npv_draws, rtol=1e-12)
+
+
+def test_end_of_life_says_where_each_outage_cost_comes_from(result, demo_case):
+    # models.scenario: the asset register's figure, else the finance assumptions', else the criticality default
+    # (DOWNTIME_COST_BY_CRITICALITY: low 0, medium 200, high 2,000 per h, common practice placeholders)
+    eol = result.end_of_life.set_index("asset_id")
+    assets = demo_case.assets.set_index("asset_id")
+    given = assets["downtime_cost_per_h"].notna()
+    assert (eol.loc[given[given].index, "downtime_cost_basis"] == "asset register").all()
+    assert_allclose(eol.loc[given[given].index, "downtime_cost_per_h"], assets.loc[given, "downtime_cost_per_h"])
+    if demo_case.finance.downtime_cost_per_h <= 0:
+        high = assets.index[~given & (assets["criticality"] == "high")]
+        assert len(high) and (eol.loc[high, "downtime_cost_per_h"] == 2000.0).all()
+        assert (eol.loc[high, "downtime_cost_basis"] == "default for a high-criticality motor").all()
