@@ -1857,6 +1857,33 @@ FLEET_RULE_DECISIONS = {"replace": "replace", "rewind": "rewind",
                         "replace_above_hours": "replace from the hours shown, rewind below"}
 
 
+def fleet_rules_scope_text(result, rated_p_kw, currency: str) -> str:
+    """What the fleet's repair-or-replace policy covers, and what it leaves to each asset's own comparison.
+
+    Parameters
+    ----------
+    result : models.scenario.ScenarioResult
+    rated_p_kw : array_like
+        The case's ratings [kW]: motors above the policy's largest size are counted.
+    currency : str
+    """
+    rules = result.fleet_rules
+    if rules is None or rules.empty:
+        return ""
+    low, high = float(rules["min_rated_p_kw"].min()), float(rules["max_rated_p_kw"].max())
+    rated = np.asarray(rated_p_kw, dtype=float)
+    above = int(np.sum(rated > high))
+    downtime = float(result.assumptions.downtime_cost_per_h)
+    text = (f"It covers standard ratings from {low:g} to {high:g} kW"
+            + (f"; {above} motor{'s' if above != 1 else ''} of the case {'are' if above != 1 else 'is'} larger and "
+               f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above"
+               if above else "")
+            + ". It prices an outage at the finance assumptions' downtime cost "
+            + (f"({_eol_money(downtime, currency)} per hour)" if downtime > 0 else "(none set, so outages count nothing)")
+            + ", not at each motor's own, so an asset's own comparison above can differ from it.")
+    return text
+
+
 def fleet_rule_rows(result) -> pd.DataFrame:
     """The fleet's repair-or-replace policy as the grid shows it.
 

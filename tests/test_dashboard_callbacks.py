@@ -492,7 +492,7 @@ def test_asset_end_of_life_matches_the_engines_frame(engine):
     costs = {"Replace now": row["cost_replace_now"], "Replace at failure": row["cost_replace_at_failure"],
              "Rewind at failure": row["cost_rewind_at_failure"]}
     ranked = sorted(costs.items(), key=lambda kv: kv[1])
-    fig, text, rules, columns = asset.end_of_life("HRW-P01", None, None)
+    fig, text, rules, columns, scope = asset.end_of_life("HRW-P01", None, None)
     bar = fig.data[0]
     assert list(bar.y) == list(costs) and list(bar.x) == list(costs.values())
     marked = [y for y, t in zip(bar.y, bar.text) if t.endswith("cheapest")]
@@ -509,6 +509,11 @@ def test_asset_end_of_life_matches_the_engines_frame(engine):
     assert [c["headerName"] for c in columns][:3] == ["From rating [kW]", "To rating [kW]",
                                                       "Replace rather than rewind from [h/yr]"]
     assert not any(np.isinf(r["min_hours_to_replace_h_per_yr"]) for r in rules)
+    # and what the policy covers: its sizes, the motors left to their own comparison, how it prices an outage
+    top = float(result.fleet_rules["max_rated_p_kw"].max())
+    rated = services.view(None, None).case.assets["rated_p_kw"]
+    assert f"to {top:g} kW" in scope and "not at each motor's own" in scope
+    assert ((rated > top).sum() == 0) == ("larger and" not in scope)
 
 
 def test_asset_end_of_life_says_why_when_the_engine_has_none(engine, monkeypatch):
@@ -518,9 +523,9 @@ def test_asset_end_of_life_says_why_when_the_engine_has_none(engine, monkeypatch
     result = services.view(None, None).result()
     empty = replace(result, end_of_life=pd.DataFrame(), fleet_rules=pd.DataFrame())
     monkeypatch.setattr(services.View, "result", lambda self, *a, **k: empty)
-    fig, text, rules, _ = asset.end_of_life("HRW-P01", None, None)
+    fig, text, rules, _, scope = asset.end_of_life("HRW-P01", None, None)
     assert not fig.data and fig.layout.annotations[0].text == services.END_OF_LIFE_UNAVAILABLE
-    assert [p.children for p in text] == [services.END_OF_LIFE_UNAVAILABLE] and rules == []
+    assert [p.children for p in text] == [services.END_OF_LIFE_UNAVAILABLE] and rules == [] and scope == ""
     # no asset chosen yet: the policy grid is left saying it is computing, not "not available"
-    fig, _, rules, columns = asset.end_of_life(None, None, None)
+    fig, _, rules, columns, _ = asset.end_of_life(None, None, None)
     assert "Choose" in fig.layout.annotations[0].text and rules is no_update and columns is no_update

@@ -117,3 +117,19 @@ class TestFleetRules:
         rows = services.fleet_rule_rows(SimpleNamespace(fleet_rules=pd.DataFrame()))
         assert rows.empty and "rule" in rows.columns
 
+
+
+def test_the_policys_scope_names_its_sizes_the_larger_motors_and_its_outage_price():
+    # hand-made result: a policy over 0.75-315 kW, a case with two motors above 315 kW, no downtime cost set
+    from types import SimpleNamespace
+
+    rules = pd.DataFrame({"min_rated_p_kw": [0.75, 11.0], "max_rated_p_kw": [7.5, 315.0],
+                          "min_hours_to_replace_h_per_yr": [2000.0, 6000.0], "decision": ["a", "b"], "rule": ["", ""]})
+    result = SimpleNamespace(fleet_rules=rules, assumptions=SimpleNamespace(downtime_cost_per_h=0.0))
+    text = services.fleet_rules_scope_text(result, [45.0, 355.0, 710.0], "EUR")
+    assert text.startswith("It covers standard ratings from 0.75 to 315 kW; 2 motors of the case are larger")
+    assert "(none set, so outages count nothing)" in text
+    one = services.fleet_rules_scope_text(SimpleNamespace(fleet_rules=rules, assumptions=SimpleNamespace(
+        downtime_cost_per_h=500.0)), [45.0, 400.0], "EUR")
+    assert "1 motor of the case is larger and is left to its own comparison" in one and "(EUR 500 per hour)" in one
+    assert services.fleet_rules_scope_text(SimpleNamespace(fleet_rules=pd.DataFrame()), [1.0], "EUR") == ""

@@ -27,6 +27,7 @@ NOTICE = "asset-notice"
 END_OF_LIFE = "asset-end-of-life"
 END_OF_LIFE_TEXT = "asset-end-of-life-text"
 FLEET_RULES = "asset-fleet-rules"
+FLEET_RULES_SCOPE = "asset-fleet-rules-scope"
 
 
 def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
@@ -63,10 +64,11 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                   html.Div(dcc.Loading(html.Div("Computing the case…", id=END_OF_LIFE_TEXT), type="dot",
                                        delay_show=400), className="panel half")], className="row"),
         html.H4("Repair-or-replace policy for the fleet"),
-        html.P("For any motor of the case that has just failed: rewind it, or replace it with a new induction motor, "
+        html.P("For a motor of the case that has just failed: rewind it, or replace it with a new induction motor, "
                "by size and running hours. Standard ratings are priced from the catalogue at 75 % load and the "
                "case's mean price per kWh; the hours are steps of a grid (1,000 to 8,000 h/yr), not exact "
                "break-evens.", className="page-intro"),
+        html.P(id=FLEET_RULES_SCOPE, className="page-intro"),
         ui.data_grid(FLEET_RULES, height=260, rowData=None, empty_text=services.END_OF_LIFE_UNAVAILABLE,
                      loading_text="Computing the case…"),
         html.H3("Data quality"),
@@ -174,7 +176,7 @@ def fleet_rule_columns() -> list[dict]:
 
 @callback(
     Output(END_OF_LIFE, "figure"), Output(END_OF_LIFE_TEXT, "children"), Output(FLEET_RULES, "rowData"),
-    Output(FLEET_RULES, "columnDefs"),
+    Output(FLEET_RULES, "columnDefs"), Output(FLEET_RULES_SCOPE, "children"),
     Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
 )
 def end_of_life(asset_id, session, edits):
@@ -185,7 +187,7 @@ def end_of_life(asset_id, session, edits):
     """
     view = services.view(session, edits)
     if asset_id not in set(view.case.assets["asset_id"]):
-        return figures.message_figure("Choose an asset.", height=220), "", dash.no_update, dash.no_update
+        return figures.message_figure("Choose an asset.", height=220), "", dash.no_update, dash.no_update, dash.no_update
     result = view.result()
     eol = services.asset_end_of_life(view, result, asset_id)
     if eol.message:
@@ -193,4 +195,5 @@ def end_of_life(asset_id, session, edits):
     else:
         text = [html.P(eol.text), html.P(eol.caution, className="page-intro")]
     return (figures.end_of_life_costs(eol.strategies, view.currency, eol.message), text,
-            services.fleet_rule_rows(result).to_dict("records"), fleet_rule_columns())
+            services.fleet_rule_rows(result).to_dict("records"), fleet_rule_columns(),
+            services.fleet_rules_scope_text(result, view.case.assets["rated_p_kw"], view.currency))
