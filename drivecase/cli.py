@@ -351,6 +351,9 @@ def _print_run_summary(case, result) -> None:
               f"{result.assumptions.monte_carlo_seed}): P10 {s['npv_p10']:,.0f}, P50 {s['npv_p50']:,.0f}, "
               f"P90 {s['npv_p90']:,.0f} {currency}; P(plan NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % "
               f"(plan_risk.csv, plan_tornado.csv, npv_draws.csv)")
+    elif len(result.fleet_npv_draws) and plan.empty:
+        print("  Plan NPV under uncertainty: none to show, the plan holds no project under this budget "
+              "(risk.csv and tornado.csv give every asset's best option)")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 import csv
 import shutil
 import subprocess
@@ -434,3 +435,17 @@ def test_run_names_the_ten_best_options_by_their_catalogue_labels(tmp_path, caps
     out = capsys.readouterr().out
     table = out.split("Ten best options by NPV", 1)[1].split("Files written", 1)[0]
     assert "PM motor on a drive" in table and "pm_drive" not in table and "add_drive" not in table
+
+
+def test_run_with_an_empty_plan_says_it_has_no_uncertainty_of_its_own(tmp_path, capsys):
+    # a budget of nothing a year: no project fits, so the plan has no Monte Carlo of its own; the run says so
+    import shutil
+
+    case = Path(shutil.copytree(DEMO, tmp_path / "demo"))
+    finance = case / "finance.toml"
+    finance.write_text(re.sub(r"(?m)^budget_per_yr = .*$", "budget_per_yr = [0, 0, 0]",
+                              finance.read_text(encoding="utf-8")), encoding="utf-8")
+    assert main(["run", str(case), "--out", str(tmp_path / "out"), "--quiet", "--plan-gap", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "Plan under the budget: 0 projects" in out
+    assert "Plan NPV under uncertainty: none to show, the plan holds no project under this budget" in out

@@ -358,7 +358,8 @@ class TestPlanUncertainty:
         assert [(r["Project"], r["Plan year"]) for r in monte_carlo_table(ctx)] == [
             (project_name(result, "C1", c1["option_id"]), str(int(c1["start_yr"])))]
         whole = "the whole fleet plan, not only this pack's scope: 2 projects, 1 of them in this pack"
-        assert whole in ctx["tornado_note"] and whole in ctx["plan_npv_note"]
+        assert whole in ctx["tornado_note"] and whole not in ctx["plan_npv_note"]  # said once, not twice in a row
+        assert "the whole fleet plan's NPV at its start has P10" in ctx["plan_npv_note"]
 
     def test_register_reads_the_plans_monte_carlo(self, small):
         from models.pack import content
@@ -456,3 +457,16 @@ def test_withdrawn_reactive_projects_are_named_as_a_reader_knows_them(small, tmp
     report = htmllib.unescape(text(next(p for p in paths if p.name == REPORT_NAME)))
     assert f"{row.asset_id}: {row.label}" in report
     assert f"{row.asset_id}/{row.option_id}" not in report
+
+
+def test_an_empty_plan_says_it_has_no_uncertainty_of_its_own(small):
+    # a budget of nothing: the plan holds no project; the section says so instead of "0 of the 0 simulated"
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, result = small
+    empty = dataclasses.replace(result, plan=result.plan.iloc[:0], plan_tornado=pd.DataFrame(),
+                                plan_risk=pd.DataFrame(), plan_npv_draws=np.zeros(0))
+    ctx = report_context(case, empty, content.select_scope(case, empty, None, True), [])
+    assert ctx["tornado_note"].startswith("The plan holds no project under this budget")
+    assert ctx["mc_note"] == "No project to simulate: the plan holds none under this budget."

@@ -518,6 +518,8 @@ class Uncertainty:
         Projects of the whole fleet plan.
     n_plan_in_scope : int
         Projects of the fleet plan among the recommended projects in scope.
+    plan_empty : bool
+        The run had risk but the plan holds no project under the budget (so no uncertainty of its own).
     """
 
     of_plan: bool
@@ -528,6 +530,7 @@ class Uncertainty:
     n_asked: int
     n_plan: int
     n_plan_in_scope: int
+    plan_empty: bool = False
 
     @property
     def whole_plan(self) -> bool:
@@ -559,7 +562,8 @@ def uncertainty(result, scope: Scope) -> Uncertainty:
     plan_npv = distribution_summary(draws) if of_plan and draws.size else None
     return Uncertainty(of_plan=of_plan, tornado=result.plan_tornado if of_plan else result.tornado, projects=table,
                        plan_npv=plan_npv, n_draws=int(draws.size) if plan_npv else 0, n_asked=len(chosen),
-                       n_plan=len(plan_keys), n_plan_in_scope=len(plan_keys & chosen))
+                       n_plan=len(plan_keys), n_plan_in_scope=len(plan_keys & chosen),
+                       plan_empty=result.plan.empty and (len(result.fleet_npv_draws) > 0 or not result.risk.empty))
 
 
 def whole_plan_text(u: Uncertainty) -> str:
@@ -575,8 +579,10 @@ def whole_plan_text(u: Uncertainty) -> str:
 def tornado_text(u: Uncertainty) -> str:
     """One sentence on what the tornado varies and on which NPV."""
     if not u.of_plan:
-        return ("The tornado varies one input at a time on the fleet NPV of every asset's best option (the whole fleet, "
-                "not only this pack's scope).")
+        return (("The plan holds no project under this budget, so it has no uncertainty of its own. " if u.plan_empty
+                 else "")
+                + "The tornado varies one input at a time on the fleet NPV of every asset's best option (the whole "
+                  "fleet, not only this pack's scope).")
     return ("The tornado varies one input at a time on the NPV of the exact plan under the budget, at the plan's start"
             f"{whole_plan_text(u)}.")
 
@@ -586,13 +592,15 @@ def plan_npv_text(u: Uncertainty, currency: str) -> str:
     if u.plan_npv is None:
         return ""
     s = u.plan_npv
-    return (f"Over {u.n_draws:,} Monte Carlo draws ({DRAWN_FACTORS_TEXT}), the plan's NPV at its start"
-            f"{whole_plan_text(u)} has P10 {money(s['npv_p10'], currency)}, P50 {money(s['npv_p50'], currency)} and "
+    whose = "the plan's NPV at its start" if u.whole_plan else "the whole fleet plan's NPV at its start"
+    return (f"Over {u.n_draws:,} Monte Carlo draws ({DRAWN_FACTORS_TEXT}), {whose} has P10 {money(s['npv_p10'], currency)}, P50 {money(s['npv_p50'], currency)} and "
             f"P90 {money(s['npv_p90'], currency)}; P(plan NPV > 0) = {100 * s['prob_npv_positive_frac']:.0f} %.")
 
 
 def monte_carlo_text(u: Uncertainty) -> str:
     """What the per-project Monte Carlo table shows, in words."""
+    if not u.of_plan and u.plan_empty:
+        return "No project to simulate: the plan holds none under this budget."
     if not u.of_plan:
         return (f"{len(u.projects)} of the {u.n_asked} recommended project(s) were simulated: the Monte Carlo draws hours, "
                 "load, prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget "
