@@ -599,18 +599,18 @@ def tornado(rows: pd.DataFrame, currency: str, scope: str = "best") -> go.Figure
     fig.update_layout(barmode="overlay")
     # two lines: one would run past a half-width panel
     if scope == "plan":
-        fig.update_xaxes(title_text=f"Plan NPV at the plan's start [{currency}]<br>centre: the capital plan under the "
-                                    f"budget, {money_short(base, currency)}")
+        fig.update_xaxes(title_text=f"Plan NPV at the plan's start [{currency}]<br>centre: the plan under the budget, "
+                                    f"{money_short(base, currency)}")
     else:
-        fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: each asset's best option, "
-                                    f"no budget, {money_short(base, currency)}")
+        fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: best options, no budget, "
+                                    f"{money_short(base, currency)}")
     fig.update_yaxes(title_text="Varied input", automargin=True)
     fig = _style(fig, "Sensitivity (tornado)", height=420)
     fig.update_layout(margin=dict(b=76))
     return fig
 
 
-def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
+def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25, scope: str = "best") -> go.Figure:
     """Monte Carlo NPV per project: P10 to P90 as a bar, P50 as a marker (largest P50 first).
 
     Parameters
@@ -618,6 +618,11 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
     rows : pandas.DataFrame
         project_id, npv_p10, npv_p50, npv_p90 [currency], sorted by P50; with asset_id and label the
         projects are named "asset: option label".
+    currency : str
+    top : int
+        Projects drawn (the largest P50 first).
+    scope : {"best", "plan"}
+        The plan's projects have their NPV at their own start (their plan year), which the axis says.
     """
     if rows is None or rows.empty:
         return message_figure("No Monte Carlo results.")
@@ -634,7 +639,8 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25) -> go.Figure:
                              marker=dict(color=AFTER, size=8, symbol="diamond"),
                              hovertemplate="%{y}<br>P50 %{x:,.0f} " + currency + "<extra></extra>"))
     fig.add_vline(x=0, line=dict(color=INK, width=1))
-    fig.update_xaxes(title_text=f"NPV [{currency}]")
+    fig.update_xaxes(title_text=f"NPV at each project's own start (its plan year) [{currency}]" if scope == "plan"
+                     else f"NPV [{currency}]")
     fig.update_yaxes(title_text="Project (asset: option)", automargin=True)
     return _style(fig, f"NPV range per project (top {min(top, len(rows))} by P50)", height=max(360, 22 * len(part) + 120))
 

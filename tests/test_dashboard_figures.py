@@ -282,8 +282,8 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(low.base, [100.0, 100.0])
         np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
         np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
-        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre: each asset's best option, "
-                                        "no budget, EUR 100")
+        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre: best options, no budget, "
+                                        "EUR 100")
         # a fleet-sized centre value in the cards' short form, so the line still fits a half-width panel at
         # 1366 px (user report: "... 8,424,191" cut off); 8,424,191 / 1e6 = 8.42 by hand
         big = figures.tornado(rows.assign(base_npv=8424191.0), "EUR")
@@ -321,8 +321,11 @@ class TestPlanAndRisk:
         fig = figures.fleet_npv_histogram(draws, "EUR", scope="plan")
         assert fig.layout.title.text.startswith("Plan NPV over 101 draws") and "under the budget" in fig.layout.title.text
         rows = pd.DataFrame({"label": ["a"], "npv_at_low": [1.0], "npv_at_high": [3.0], "base_npv": [2.0], "swing": [2.0]})
-        assert "centre: the capital plan" in figures.tornado(rows, "EUR", scope="plan").layout.xaxis.title.text
-        assert "centre: each asset's best option" in figures.tornado(rows, "EUR").layout.xaxis.title.text
+        assert "centre: the plan under the budget, EUR 2" in figures.tornado(rows, "EUR", scope="plan").layout.xaxis.title.text
+        assert "centre: best options, no budget" in figures.tornado(rows, "EUR").layout.xaxis.title.text
+        ranges = pd.DataFrame({"project_id": ["A/x"], "npv_p10": [1.0], "npv_p50": [2.0], "npv_p90": [3.0]})
+        assert "own start" in figures.risk_ranges(ranges, "EUR", scope="plan").layout.xaxis.title.text
+        assert figures.risk_ranges(ranges, "EUR").layout.xaxis.title.text == "NPV [EUR]"
 
     def test_fleet_npv_histogram_empty(self):
         assert not figures.fleet_npv_histogram(np.zeros(0), "EUR").data

@@ -342,10 +342,10 @@ class TestPlanUncertainty:
         # engine: the exact plan (plan.csv), its projects and plan years; P50 from plan_risk.csv
         p50 = result.plan_risk.set_index("project_id")["npv_p50"]
         expected = [{"Project": project_name(result, a, o), "Plan year": str(int(y)),
-                     "NPV P50": f"{p50[f'{a}/{o}']:,.0f}"}
+                     "NPV P50 [EUR]": f"{p50[f'{a}/{o}']:,.0f}"}
                     for a, o, y in zip(result.plan["asset_id"], result.plan["option_id"], result.plan["start_yr"])]
         assert sorted(result.plan["start_yr"]) == [0, 1]  # one project waits for the second plan year
-        assert [{k: r[k] for k in ("Project", "Plan year", "NPV P50")} for r in rows] == expected
+        assert [{k: r[k] for k in ("Project", "Plan year", "NPV P50 [EUR]")} for r in rows] == expected
 
     def test_scoped_pack_lists_only_its_plan_projects_and_says_whose_npv(self, small):
         from models.pack import content

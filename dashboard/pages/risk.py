@@ -80,5 +80,5 @@ def update(_ready, session, edits, scope):
     rows = services.risk_rows(result, scope)
     summary = html.Span(services.risk_summary_text(result, scope, view.currency))
     return (figures.tornado(services.tornado_rows(result, scope), view.currency, scope),
-            figures.risk_ranges(rows, view.currency), rows.to_dict("records"), columns(view.currency, scope), summary,
+            figures.risk_ranges(rows, view.currency, scope=scope), rows.to_dict("records"), columns(view.currency, scope), summary,
             view.notice, figures.fleet_npv_histogram(services.npv_draws(result, scope), view.currency, scope))

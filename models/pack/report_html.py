@@ -181,7 +181,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                       num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
                       num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
     mc_headers = (["Project"] + (["Plan year"] if unc.of_plan else [])
-                  + ["NPV P10", "NPV P50", "NPV P90", "P(NPV > 0)", "Payback P10", "P50", "P90 [yr]"])
+                  + [f"NPV P10 [{cur}]", f"NPV P50 [{cur}]", f"NPV P90 [{cur}]", "P(NPV > 0)", "Payback P10 [yr]",
+                     "Payback P50 [yr]", "Payback P90 [yr]"])
 
     budgets = tuple(a.budget_per_yr)
     plan_rows = []
