@@ -323,8 +323,10 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
     names = [wrap_label(str(label)) for label in options["label"]]
     fig = make_subplots(rows=1, cols=2, shared_yaxes=True, horizontal_spacing=0.08,
                         subplot_titles=("Mean speed against today's motor", "Input energy"))
-    # one hatching colour (the browser's chart library cannot take one per bar there; the bar colours stay)
-    hatch = dict(shape=shapes, fgcolor=HATCH, fillmode="overlay")
+    # one hatching colour (the browser's chart library cannot take one per bar there; the bar colours stay); a
+    # single clear background too: left unset, the library takes the bars' colour list for it and warns in the
+    # browser's console for every bar (the bars look the same either way)
+    hatch = dict(shape=shapes, fgcolor=HATCH, fillmode="overlay", bgcolor="rgba(0,0,0,0)")
     fig.add_trace(go.Bar(y=names, x=change, orientation="h", marker=dict(color=bar_colours, pattern=hatch),
                          customdata=hover, showlegend=False, name="speed change",
                          hovertemplate="%{y}<br>%{customdata}<extra></extra>"), row=1, col=1)

@@ -174,6 +174,9 @@ class TestAsset:
         # each remedy its own hatching (the catalogue's code picks it, not the name shown); the colour is the option's
         assert list(fig.data[0].marker.pattern.shape) == ["", "", "/", "x"]
         assert len(set(fig.data[0].marker.color)) == 4
+        # one background colour for the hatching (left unset, plotly.js reads the bars' colour list there and
+        # warns "Invalid color specifier" in the browser's console for each bar: seen in a browser audit)
+        assert all(isinstance(t.marker.pattern.bgcolor, str) for t in fig.data[:2])
         t = titles(fig)
         assert t["xaxis"] == "Speed change [rpm]" and t["xaxis2"] == "Energy [MWh/yr]"
         # a long option name is wrapped, not written over its neighbours (user report: overlapping labels)
