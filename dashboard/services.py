@@ -1746,7 +1746,7 @@ def _eol_money(value: float, currency: str) -> str:
 
 
 def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
-                        option_labels: dict | None = None, age_known: bool = True) -> EndOfLifeSummary:
+                        labels: dict | None = None, age_known: bool = True) -> EndOfLifeSummary:
     """Return the end-of-life comparison of one asset from the engine's end-of-life frame.
 
     Parameters
@@ -1762,8 +1762,8 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         The case currency, for the text.
     horizon_yr : int
         Study period [yr], for the probability of failing within it.
-    option_labels : dict, optional
-        option_id -> option name, to name the new motor compared.
+    labels : dict, optional
+        option_id -> option name (:func:`models.plan.option_labels`), to name the new motor compared.
     age_known : bool
         False when the case gives no installation year (the engine then assumes an age): the text says so.
 
@@ -1827,7 +1827,7 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     second = "; ".join(facts) + "." if facts else ""
     new_id = row["new_option_id"] if "new_option_id" in row.index else None
     if isinstance(new_id, str) and new_id:
-        second += (" " if second else "") + f"New motor compared: {(option_labels or {}).get(new_id, new_id)}."
+        second += (" " if second else "") + f"New motor compared: {(labels or {}).get(new_id, new_id)}."
     outage = float(row["downtime_cost_per_h"]) if "downtime_cost_per_h" in row.index else float("nan")
     if math.isfinite(outage):
         basis = str(row["downtime_cost_basis"]) if "downtime_cost_basis" in row.index else ""
@@ -1844,7 +1844,7 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
 
 def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
     """The end-of-life comparison of one asset under the view's assumptions (:func:`end_of_life_summary`)."""
-    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    labels = option_labels(result.results)
     assets = view_.case.assets
     installed = assets.loc[assets["asset_id"].astype(str) == str(asset_id), "year_installed"]
     age_known = bool(len(installed)) and bool(pd.notna(installed.iloc[0]))

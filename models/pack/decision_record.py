@@ -13,12 +13,12 @@ import re
 import pandas as pd
 from markupsafe import Markup
 
+from models.end_of_life import STRATEGY_NAMES
 from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
+from models.plan import option_labels
 
-_STRATEGY_TEXT = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
-                  "rewind_at_failure": "rewind at failure"}
 
 
 def record_file_name(asset_id: str, taken: set[str] | None = None) -> str:
@@ -90,7 +90,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon), "num"),
             num(r.co2_avoided_t_per_yr, "{:,.1f}")], pick=f"{r.asset_id}/{r.option_id}" == rec_key))
 
-    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    labels = option_labels(result.results)
     eol = result.end_of_life
     eol_rows, eol_note = [], ""
     best_strategy = None
@@ -99,7 +99,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         best_strategy = str(e["best_strategy"])
         for key, column in (("replace_now", "cost_replace_now"), ("replace_at_failure", "cost_replace_at_failure"),
                             ("rewind_at_failure", "cost_rewind_at_failure")):
-            eol_rows.append(row([cell(_STRATEGY_TEXT[key]), num(float(e[column]))], pick=key == best_strategy))
+            eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
         eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
                     f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
                     f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime.")
@@ -132,7 +132,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
         reasons.append(f"For the motor itself ({labels.get(new_id, new_id)} vs rewind), the cheapest end-of-life strategy is to "
-                       f"{_STRATEGY_TEXT[best_strategy]} (by {content.money(float(eol.set_index('asset_id').loc[asset_id, 'advantage_over_next']), cur)}"
+                       f"{STRATEGY_NAMES[best_strategy]} (by {content.money(float(eol.set_index('asset_id').loc[asset_id, 'advantage_over_next']), cur)}"
                        f" over the next).")
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "

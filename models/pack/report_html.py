@@ -17,6 +17,7 @@ from markupsafe import Markup
 from plotly.offline import get_plotlyjs
 
 from models.pack import content, figures, templates
+from models.plan import option_labels
 from models.reactive_plan import withdrawn_text
 from models.scenario import plan_bill_saving_per_yr
 from models.wording import counted
@@ -142,7 +143,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))]
     keep_ids = content.keep_option_ids(result)
     option_ids = [o for o in dict.fromkeys(res["option_id"]) if o not in set(keep_ids)]
-    option_labels = res.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    labels = option_labels(result.results)  # every option of the catalogue the run priced, as it names them
     npv = res.set_index(["asset_id", "option_id"])["npv"]
     matrix_rows = []
     for asset_id in scope.asset_ids:
@@ -170,10 +171,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     # at their plan year); a result without it falls back to each asset's best option, saying so
     unc = content.uncertainty(result, scope)
     mc = unc.projects
-    option_label = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
 
     def project_text(asset_id: str, option_id: str) -> str:
-        return f"{asset_id}: {option_label.get(option_id, option_id)}"
+        return f"{asset_id}: {labels.get(option_id, option_id)}"
 
     mc_rows = [row([cell(project_text(*str(r.project_id).split("/", 1)) if "/" in str(r.project_id) else r.project_id, "id")]
                    + ([cell(int(r.start_yr), "num")] if unc.of_plan else [])
@@ -194,7 +194,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                               num(float(e["capital"].sum())), cell(len(e), "num"), num(float(e["npv_at_plan_start"].sum())),
                               num(float(g["capital"].sum())), cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))
     comp = result.plan_comparison
-    withdrawn = withdrawn_text(result.plan_status, labels=option_labels)
+    withdrawn = withdrawn_text(result.plan_status, labels=labels)
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
@@ -274,7 +274,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "asset_headers": ["Asset", "Description", "Site", "Application", "kW", "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),
-        "matrix_headers": ["Asset"] + [option_labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
+        "matrix_headers": ["Asset"] + [labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
         "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
         "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
         "flow_note": flow_note,

@@ -28,8 +28,10 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
 from models.case import default_value
+from models.end_of_life import STRATEGY_NAMES
 from models.exports import FORMULA_STARTS
 from models.pack import content
+from models.plan import option_labels
 
 #: Sheet names, in workbook order.
 SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills",
@@ -632,11 +634,9 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
         row += 2
     else:
         frame = eol[eol["asset_id"].isin(list(scope.asset_ids))]
-        option_labels = dict(zip(result.results["option_id"], result.results["label"]))
-        strategy = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
-                    "rewind_at_failure": "rewind at failure"}
-        frame = frame.assign(new_option_id=frame["new_option_id"].map(lambda o: option_labels.get(o, o)),
-                             best_strategy=frame["best_strategy"].map(lambda b: strategy.get(b, b)))
+        labels = option_labels(result.results)
+        frame = frame.assign(new_option_id=frame["new_option_id"].map(lambda o: labels.get(o, o)),
+                             best_strategy=frame["best_strategy"].map(lambda b: STRATEGY_NAMES.get(b, b)))
         cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None),
                 ("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
                 ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
@@ -684,7 +684,7 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
     else:
         put_text(ws, row, 1, "Monte Carlo per project in scope (P10/P50/P90)").font = _BOLD
     put_text(ws, row + 1, 1, content.monte_carlo_text(unc))
-    labels = result.results.drop_duplicates("option_id").set_index("option_id")["label"].to_dict()
+    labels = option_labels(result.results)
     projects = unc.projects
     if not projects.empty and "project_id" in projects:  # the option as the catalogue names it, beside its key
         option_ids = projects["project_id"].astype(str).str.rsplit("/", n=1).str[-1]
