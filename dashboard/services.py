@@ -1700,10 +1700,6 @@ def saved_case_bytes(entry: CaseEntry) -> tuple[bytes, str]:
 #: What the Asset page says when the engine has no end-of-life comparison (the pack's wording).
 END_OF_LIFE_UNAVAILABLE = "Not available: the options catalogue needs a rewind option and a new induction motor option."
 
-#: Columns of :attr:`models.scenario.ScenarioResult.end_of_life` holding each strategy's expected present cost.
-_STRATEGY_COST_COLUMNS = {"replace_now": "cost_replace_now", "replace_at_failure": "cost_replace_at_failure",
-                          "rewind_at_failure": "cost_rewind_at_failure"}
-
 
 #: Two strategies closer than this share of the cheapest's cost are said to be level [frac].
 CLOSE_CALL_FRAC = 0.01
@@ -1781,17 +1777,17 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     :data:`CLOSE_CALL_FRAC` of the cheapest cost is called level in the text: the failure laws and prices
     behind it are not that precise.
     """
-    from models.end_of_life import STRATEGIES, STRATEGY_NAMES, failure_law_caution
+    from models.end_of_life import COST_COLUMNS, STRATEGIES, STRATEGY_NAMES, failure_law_caution
 
     empty = pd.DataFrame({"strategy": pd.Series(dtype="str"), "label": pd.Series(dtype="str"),
                           "cost_pv": pd.Series(dtype=float), "cheapest": pd.Series(dtype=bool)})
-    if frame is None or frame.empty or not set(_STRATEGY_COST_COLUMNS.values()) <= set(frame.columns):
+    if frame is None or frame.empty or not set(COST_COLUMNS.values()) <= set(frame.columns):
         return EndOfLifeSummary(empty, message=END_OF_LIFE_UNAVAILABLE)
     rows = frame[frame["asset_id"].astype(str) == str(asset_id)]
     if rows.empty:
         return EndOfLifeSummary(empty, message=f"No end-of-life comparison for {asset_id}.")
     row = rows.iloc[0]
-    costs = np.array([float(row[_STRATEGY_COST_COLUMNS[s]]) for s in STRATEGIES])
+    costs = np.array([float(row[COST_COLUMNS[s]]) for s in STRATEGIES])
     if not np.isfinite(costs).all():
         return EndOfLifeSummary(empty, message=f"No end-of-life comparison for {asset_id}: its costs could not be "
                                                "computed.")

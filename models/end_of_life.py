@@ -27,6 +27,9 @@ STRATEGIES: tuple[str, ...] = ("replace_now", "replace_at_failure", "rewind_at_f
 STRATEGY_NAMES: dict[str, str] = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
                                   "rewind_at_failure": "rewind at failure"}
 
+#: The column of :func:`strategy_costs` holding each strategy's expected present cost.
+COST_COLUMNS: dict[str, str] = {strategy: f"cost_{strategy}" for strategy in STRATEGIES}
+
 
 @dataclass(frozen=True)
 class LifeClass:

@@ -13,7 +13,7 @@ import re
 import pandas as pd
 from markupsafe import Markup
 
-from models.end_of_life import STRATEGY_NAMES
+from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES
 from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
@@ -97,8 +97,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not eol.empty and asset_id in set(eol["asset_id"]):
         e = eol.set_index("asset_id").loc[asset_id]
         best_strategy = str(e["best_strategy"])
-        for key, column in (("replace_now", "cost_replace_now"), ("replace_at_failure", "cost_replace_at_failure"),
-                            ("rewind_at_failure", "cost_rewind_at_failure")):
+        for key, column in COST_COLUMNS.items():
             eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
         eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
                     f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
