@@ -159,14 +159,15 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
         except Exception as exc:  # shown again on the first page that needs it
             print(f"drivecase serve: the analysis of the case failed: {exc}", file=sys.stderr)
 
-    threading.Thread(target=warm, name="drivecase-physics", daemon=True).start()
-    from dashboard.app import app
-
     url = url_for(host, port)
     print(f"Dashboard on {url} (case '{entry.name}'; press Ctrl+C to stop)")
     print("Planning estimates only, not a design. Electrical work must be done by qualified persons under local "
           "codes and the utility's rules; confirm ratings with the manufacturers.")
     sys.stdout.flush()  # the address and the cautions now, also when the output goes to a file or a pipe
+    # only then the warm-up: its plan solve silences file descriptor 1 for the whole process while the solver
+    # library prints its banner (models.scenario._quiet_native_stdout), so lines printed meanwhile would be lost
+    threading.Thread(target=warm, name="drivecase-physics", daemon=True).start()
+    from dashboard.app import app
     if open_browser and can_open_browser():
         _open_browser_later(url if host.strip() not in ("0.0.0.0", "::") else url_for("127.0.0.1", port))
     if not debug:  # one line per request is noise for a local tool; errors still show

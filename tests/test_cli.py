@@ -402,11 +402,18 @@ def test_serve_prints_its_address_and_cautions_at_once_into_a_pipe(tmp_path):
     shutil.copytree(DEMO, case)
     proc = subprocess.Popen([sys.executable, "-m", "drivecase", "serve", str(case), "--no-browser", "--port", str(port)],
                             stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True, cwd=REPO)
+    import queue
+    import threading
+
+    lines: queue.Queue = queue.Queue()
+    # read in a thread: a pipe read blocks, so the deadline below holds even if the server says nothing at all
+    threading.Thread(target=lambda: [lines.put(x) for x in iter(proc.stdout.readline, "")], daemon=True).start()
     try:
         seen, deadline = [], time.monotonic() + 120
         while time.monotonic() < deadline:
-            line = proc.stdout.readline()
-            if not line:
+            try:
+                line = lines.get(timeout=max(0.1, deadline - time.monotonic()))
+            except queue.Empty:
                 break
             seen.append(line)
             if "qualified persons" in line:
