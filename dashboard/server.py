@@ -164,8 +164,6 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     print("Planning estimates only, not a design. Electrical work must be done by qualified persons under local "
           "codes and the utility's rules; confirm ratings with the manufacturers.")
     sys.stdout.flush()  # the address and the cautions now, also when the output goes to a file or a pipe
-    # only then the warm-up: its plan solve silences file descriptor 1 for the whole process while the solver
-    # library prints its banner (models.scenario._quiet_native_stdout), so lines printed meanwhile would be lost
     threading.Thread(target=warm, name="drivecase-physics", daemon=True).start()
     from dashboard.app import app
     if open_browser and can_open_browser():

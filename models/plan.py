@@ -11,6 +11,9 @@ its cost per tonne of CO2 for a marginal abatement cost curve.
 
 from __future__ import annotations
 
+import contextlib
+import os
+import sys
 import time
 from dataclasses import dataclass, field
 from typing import Any, Mapping
@@ -35,6 +38,40 @@ CORE_ASSETS = 1000
 INTERIOR_POINT_MIN_COLUMNS = 20_000
 
 _CHOSEN_COLUMNS = ["project_id", "asset_id", "start_yr", "npv", "npv_at_plan_start", "capital_in_plan_years"]
+
+
+def _new_solver() -> "highspy.Highs":
+    """A HiGHS solver with its log off (the library's banner was spent at import, see below)."""
+    solver = highspy.Highs()
+    solver.setOptionValue("output_flag", False)
+    return solver
+
+
+@contextlib.contextmanager
+def _silenced_stdout_fd():
+    """Point file descriptor 1 at the null device for the block; nothing to do without a real stdout."""
+    try:
+        sys.stdout.flush()
+        saved = os.dup(1)
+    except (OSError, ValueError, AttributeError):  # no real stdout (closed, captured, or None)
+        yield
+        return
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 1)
+            yield
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+
+
+# The solver library prints a banner ("Running HiGHS ...") from native code straight to file descriptor 1 when
+# the process makes its first solver, before any option can turn it off; later solvers print nothing. That first
+# solver is made here, once, at import, with file descriptor 1 on the null device for the microseconds it takes:
+# at import, before a front starts threads or prints, so no solve later touches the process's output and no
+# line another thread prints while a plan is solved (a server's address, a progress line) is lost.
+with _silenced_stdout_fd():
+    highspy.Highs()
 
 
 @dataclass(frozen=True)
@@ -305,8 +342,8 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
             status, message = _proven(first, bound_gap, mip_rel_gap)
             return _result(data, first, "exact", status, message, bound_gap)
 
-    solver = highspy.Highs()
-    for name, value in (("output_flag", False), ("time_limit", max(deadline - time.perf_counter(), 1e-3)),
+    solver = _new_solver()
+    for name, value in (("time_limit", max(deadline - time.perf_counter(), 1e-3)),
                         ("mip_rel_gap", float(mip_rel_gap)), ("random_seed", 0)):
         solver.setOptionValue(name, value)
     model.integrality_ = [highspy.HighsVarType.kInteger] * (m * years)
@@ -379,8 +416,7 @@ class _Relaxed:
 
 def _relaxation(model: "highspy.HighsLp", time_limit_s: float) -> _Relaxed | None:
     """Solve the plan's linear relaxation (0 <= x <= 1); None when it has no optimal solution in time."""
-    solver = highspy.Highs()
-    solver.setOptionValue("output_flag", False)
+    solver = _new_solver()
     solver.setOptionValue("time_limit", float(time_limit_s))
     if model.num_col_ >= INTERIOR_POINT_MIN_COLUMNS:
         solver.setOptionValue("solver", "ipm")
@@ -447,8 +483,8 @@ def _core_plan(model: "highspy.HighsLp", relaxed: _Relaxed, asset_row: np.ndarra
     sub.row_lower_, sub.row_upper_ = model.row_lower_, model.row_upper_
     sub.a_matrix_ = model.a_matrix_
     sub.integrality_ = [highspy.HighsVarType.kInteger] * model.num_col_
-    solver = highspy.Highs()
-    for name, value in (("output_flag", False), ("time_limit", float(time_limit_s)), ("mip_rel_gap", 0.0),
+    solver = _new_solver()
+    for name, value in (("time_limit", float(time_limit_s)), ("mip_rel_gap", 0.0),
                         ("mip_abs_gap", 0.9 * mip_rel_gap * abs(relaxed.npv)), ("random_seed", 0)):
         solver.setOptionValue(name, value)
     solver.passModel(sub)

@@ -8,9 +8,6 @@ slow part and can be computed once and reused with other finance assumptions thr
 
 from __future__ import annotations
 
-import contextlib
-import os
-import sys
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
@@ -827,9 +824,8 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
         return project_ids[sel], results["asset_id"].to_numpy()[sel], values[sel], capital_by_year[sel]
 
     args = inputs(exclude, npv)
-    with _quiet_native_stdout():
-        exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
-                                start=dict(settings.start) or None)
+    exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
+                            start=dict(settings.start) or None)
     greedy = plan.plan_greedy(*(args if greedy is None else inputs(*greedy)), budgets, d)
     comparison = plan.compare_plans(exact, greedy)
     # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)
@@ -841,30 +837,6 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     status = {"status": exact.status, "message": exact.message, "gap_frac": float(exact.gap_frac), "settings": settings,
               "withdrawn": (), "set_aside": ()}
     return _plan_frame(exact, results), _plan_frame(greedy, results), comparison, curve, status
-
-
-#: File descriptor 1 belongs to the whole process: one silenced solve at a time, or two threads could
-#: each save the other's /dev/null as "the" stdout and leave it silenced for good.
-_STDOUT_LOCK = threading.Lock()
-
-
-@contextlib.contextmanager
-def _quiet_native_stdout():
-    """Silence the solver library's own lines (its banner, printed by native code to file descriptor 1)."""
-    with _STDOUT_LOCK:
-        try:
-            sys.stdout.flush()
-            saved = os.dup(1)
-        except (OSError, ValueError):  # no real stdout (e.g. captured): nothing to silence
-            yield
-            return
-        try:
-            with open(os.devnull, "wb") as null:
-                os.dup2(null.fileno(), 1)
-                yield
-        finally:
-            os.dup2(saved, 1)
-            os.close(saved)
 
 
 def _plan_frame(fleet_plan, results: pd.DataFrame) -> pd.DataFrame:

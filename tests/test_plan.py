@@ -434,3 +434,40 @@ def test_greedy_plan_follows_the_rule_written_out(seed):
     expected = greedy_by_hand(assets, value, spend, budget, 0.08)
     chosen = dict(zip(got.chosen["project_id"], got.chosen["start_yr"]))
     assert chosen == {ids[i]: s for i, s in expected.items()}
+
+
+# A fresh interpreter per case: the solver library prints its banner for a process's first solver only.
+_SOLVE_WHILE_PRINTING = r"""
+import sys, threading
+from models import plan
+
+def solve():
+    for _ in range({solves}):
+        plan.plan_exact(["a/1", "a/2", "b/1"], ["a", "a", "b"], [60.0, 90.0, 50.0],
+                        [[50.0], [100.0], [40.0]], [100.0], 0.08, mip_rel_gap=0.0)
+
+threads = [threading.Thread(target=solve) for _ in range({threads})]
+for t in threads:
+    t.start()
+for i in range({lines}):
+    print(f"line {{i}}", flush=True)
+for t in threads:
+    t.join()
+print("done", flush=True)
+"""
+
+
+@pytest.mark.parametrize("threads, solves, lines", [(1, 20, 3000), (4, 3, 500)])
+def test_solves_print_no_banner_and_lose_no_line_of_other_threads(threads, solves, lines):
+    # Regression: the whole solve used to run with file descriptor 1 on the null device, so lines another thread
+    # printed meanwhile (a server's address, a progress line) were lost; several threads silencing it at once
+    # could also leave it silenced for good. Only the process's first solver, made when models.plan is imported, is.
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    script = _SOLVE_WHILE_PRINTING.format(threads=threads, solves=solves, lines=lines)
+    out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=120,
+                         cwd=Path(__file__).resolve().parents[1], check=True).stdout
+    assert "HiGHS" not in out  # the banner ("Running HiGHS ...") stays hidden
+    assert out.splitlines() == [f"line {i}" for i in range(lines)] + ["done"]

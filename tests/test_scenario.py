@@ -276,38 +276,6 @@ def test_price_level_keeps_each_bill_line_consistent(result, demo_case):
     assert_allclose(lines.loc[taxes, "rate"].to_numpy(), base.loc[base["unit"] == demo_case.settings.currency, "rate"].to_numpy())
 
 
-def test_silenced_solves_from_several_threads_leave_stdout_working(tmp_path):
-    # Regression: two threads silencing file descriptor 1 at once could leave it on /dev/null for good.
-    import os
-    import threading
-
-    from models.scenario import _quiet_native_stdout
-
-    target = tmp_path / "out.txt"
-    with open(target, "wb") as sink:
-        saved = os.dup(1)
-        os.dup2(sink.fileno(), 1)
-        try:
-            barrier = threading.Barrier(4)
-
-            def work():
-                barrier.wait()
-                for _ in range(50):
-                    with _quiet_native_stdout():
-                        os.write(1, b"hidden\n")
-
-            threads = [threading.Thread(target=work) for _ in range(4)]
-            for t in threads:
-                t.start()
-            for t in threads:
-                t.join()
-            os.write(1, b"visible\n")
-        finally:
-            os.dup2(saved, 1)
-            os.close(saved)
-    assert target.read_bytes() == b"visible\n"
-
-
 def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, monkeypatch):
     # Invariant: with risk the plan is solved in a second thread while the end of life and the risk run;
     # none reads another's results, so the plan, its bills and the end of life are those of the run
