@@ -12,6 +12,7 @@ import dash_ag_grid as dag
 from dash import Input, clientside_callback, dcc, html
 
 from dashboard import figures
+from models.wording import money_text
 
 #: The session's case: {"session": id, "case": key}. Browser session storage: one per tab.
 SESSION_STORE = "app-session"
@@ -47,7 +48,7 @@ def fmt_money(value, currency: str, compact: bool = True) -> str:
     """Money for a card: ``EUR 1.25 M``, ``EUR 48.2 k`` or ``EUR 950`` (``-`` when not finite)."""
     if not _finite(value):
         return "-"
-    return figures.money_short(value, currency) if compact else f"{currency} {float(value):,.0f}"
+    return figures.money_short(value, currency) if compact else money_text(value, currency)
 
 
 def fmt_number(value, decimals: int = 0, unit: str = "") -> str:

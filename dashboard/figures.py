@@ -566,7 +566,7 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
     values = [float(comparison.get("npv_exact", np.nan)), float(comparison.get("npv_greedy", np.nan))]
     counts = [comparison.get("projects_exact", np.nan), comparison.get("projects_greedy", np.nan)]
     fig = go.Figure(go.Bar(x=names, y=values, marker_color=[AFTER, BEFORE],
-                           text=[f"{v:,.0f} {currency}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
+                           text=[f"{currency} {v:,.0f}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
                            textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
     fig.update_xaxes(title_text="Plan")
     fig.update_yaxes(title_text=f"NPV at plan start [{currency}]", rangemode="tozero")

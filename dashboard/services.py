@@ -48,7 +48,7 @@ from models.options import speed_remedy_name, technology_name
 from models.plan import low_data_quality, option_labels
 from models.problems import Problem, error, has_errors, missing_table, ordered
 from models.profiles import asset_loads
-from models.wording import counted
+from models.wording import counted, money_text
 
 #: One megabyte as the dashboard counts it (2**20 bytes) [bytes].
 MB = 1024 * 1024
@@ -820,7 +820,6 @@ def parse_budget(values: list, currency: str = "") -> tuple[list[float] | None, 
     limit (empty list).
     """
     cleaned: list[float | None] = []
-    unit = f" {currency}" if currency else ""
     for k, v in enumerate(values or []):
         if v is None or (isinstance(v, str) and not v.strip()):
             cleaned.append(None)
@@ -840,7 +839,8 @@ def parse_budget(values: list, currency: str = "") -> tuple[list[float] | None, 
             return None, f"{field_name}: {typed} is below zero; the budget must be zero or more."
         if number > MAX_BUDGET_PER_YR:
             return None, (f"{field_name}: {typed} is above the largest budget the form takes, "
-                          f"{MAX_BUDGET_PER_YR:,.0f}{unit} a year (leave the year blank for no limit).")
+                          f"{money_text(MAX_BUDGET_PER_YR, currency) if currency else f'{MAX_BUDGET_PER_YR:,.0f}'} a year "
+                          "(leave the year blank for no limit).")
         cleaned.append(number)
     while cleaned and cleaned[-1] is None:
         cleaned.pop()
@@ -1498,8 +1498,8 @@ def risk_summary_text(result, scope: str, currency: str) -> str:
                                                               f"their delay)" if later else "")
     else:
         who = f"{len(rows)} projects (the best option of each asset that needs capital)"
-    money = lambda v: f"{v:,.0f} {currency}"  # noqa: E731
-    return (f"{who} · {what}: P10 {money(s['npv_p10'])}, P50 {money(s['npv_p50'])}, P90 {money(s['npv_p90'])}; "
+    return (f"{who} · {what}: P10 {money_text(s['npv_p10'], currency)}, P50 {money_text(s['npv_p50'], currency)}, "
+            f"P90 {money_text(s['npv_p90'], currency)}; "
             f"P(NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % · {runs}.")
 
 
@@ -1736,11 +1736,6 @@ class EndOfLifeSummary:
     message: str = ""
 
 
-def _eol_money(value: float, currency: str) -> str:
-    """An amount in a sentence: whole units with thousands separators (``EUR 104,890``), as the cards' long form."""
-    return f"{currency} {float(value):,.0f}"
-
-
 def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
                         labels: dict | None = None, age_known: bool = True) -> EndOfLifeSummary:
     """Return the end-of-life comparison of one asset from the engine's end-of-life frame.
@@ -1800,11 +1795,11 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         "cost_pv": costs, "cheapest": [s == best for s in STRATEGIES]})
 
     first = (f"For {asset_id} the cheapest end-of-life strategy is to {STRATEGY_NAMES[best]}: an expected present "
-             f"cost of {_eol_money(costs[order[0]], currency)}, ")
+             f"cost of {money_text(costs[order[0]], currency)}, ")
     if round(margin) == 0:
         first += f"level with the next cheapest ({STRATEGY_NAMES[runner_up]})."
     else:
-        first += f"{_eol_money(margin, currency)} less than the next cheapest ({STRATEGY_NAMES[runner_up]})"
+        first += f"{money_text(margin, currency)} less than the next cheapest ({STRATEGY_NAMES[runner_up]})"
         # a gap inside the precision of the inputs is not a preference
         first += (": under 1 % apart, so treat the two as level." if margin < CLOSE_CALL_FRAC * costs[order[0]]
                   else ".")
@@ -1829,7 +1824,7 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         basis = str(row["downtime_cost_basis"]) if "downtime_cost_basis" in row.index else ""
         second += (" " if second else "") + (
             f"A failure's outage ({scenario.NEW_LEAD_TIME_H:.0f} h to a new motor, {scenario.REWIND_LEAD_TIME_H:.0f} h "
-            f"to a rewound one) is priced at {_eol_money(outage, currency)}/h")
+            f"to a rewound one) is priced at {money_text(outage, currency)}/h")
         if basis.startswith("default"):
             second += (f": the {basis}, a placeholder that can decide the answer; give the asset's downtime cost per "
                        "hour in the asset register to use your own.")
@@ -1875,7 +1870,7 @@ def fleet_rules_scope_text(result, rated_p_kw, currency: str) -> str:
                f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above"
                if above else "")
             + ". It prices an outage at the finance assumptions' downtime cost "
-            + (f"({_eol_money(downtime, currency)} per hour)" if downtime > 0 else "(none set, so outages count nothing)")
+            + (f"({money_text(downtime, currency)} per hour)" if downtime > 0 else "(none set, so outages count nothing)")
             + ", not at each motor's own, so an asset's own comparison above can differ from it.")
     return text
 

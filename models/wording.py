@@ -1,4 +1,4 @@
-"""Counts in words for messages and reports ("1 project", "3 projects"), instead of "project(s)"."""
+"""Words for messages and reports: counts ("1 project", "3 projects", not "project(s)") and amounts of money."""
 
 from __future__ import annotations
 
@@ -24,3 +24,24 @@ def counted(n: int, singular: str, plural: str | None = None) -> str:
     """
     n = int(n)
     return f"{n:,} {singular if n == 1 else (plural or singular + 's')}"
+
+
+def money_text(value: float | None, currency: str) -> str:
+    """Return an amount of money for a sentence or a table cell: the currency code, then the whole amount with
+    thousands separators (``EUR 6,081,596``); ``-`` when the amount is missing or not finite.
+
+    The report, the workbook's sentences and the dashboard write every amount this way; figures write theirs
+    in three significant figures with the same code first (``EUR 6.08 M``), and rates keep the code in their
+    unit (``60 EUR/kVAr``).
+
+    Examples
+    --------
+    >>> money_text(6081596.4, "EUR"), money_text(-950.0, "USD"), money_text(float("nan"), "EUR"), money_text(None, "EUR")
+    ('EUR 6,081,596', 'USD -950', '-', '-')
+    """
+    if value is None:
+        return "-"
+    v = float(value)
+    if v != v or v in (float("inf"), float("-inf")):
+        return "-"
+    return f"{currency} {v:,.0f}"

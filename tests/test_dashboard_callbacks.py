@@ -418,7 +418,7 @@ def test_budget_fields_name_the_currency_and_refuse_absurd_amounts(engine):
     stored, message, look = plan.edit("1e99", None, None, None, None, None, None, None)
     assert stored is no_update and look == "form-message refused"
     assert message.startswith(f"Not applied: Year 0 budget [{currency}]: 1e99 is above")
-    assert f"1,000,000,000,000 {currency} a year" in message
+    assert f"{currency} 1,000,000,000,000 a year" in message
     stored, message, _ = plan.edit("100", "-5", None, None, None, None, None, None)
     assert stored is no_update and f"Year 1 budget [{currency}]: -5 is below zero" in message
     # the same on the Case & assumptions page; the other fields still apply

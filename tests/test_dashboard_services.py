@@ -454,7 +454,7 @@ class TestEdits:
         assert got == budget and words in message
 
     @pytest.mark.parametrize("typed, words", [
-        ("1e99", "Year 0 budget [EUR]: 1e99 is above the largest budget the form takes, 1,000,000,000,000 EUR a year"),
+        ("1e99", "Year 0 budget [EUR]: 1e99 is above the largest budget the form takes, EUR 1,000,000,000,000 a year"),
         ("1000000000001", "Year 0 budget [EUR]: 1000000000001 is above"),
         ("-0.5", "Year 0 budget [EUR]: -0.5 is below zero; the budget must be zero or more."),
         ("nan", "Year 0 budget [EUR]: 'nan' is not an amount; the budget must be a finite amount"),
@@ -594,7 +594,7 @@ class TestPageData:
         r = v.result(with_risk=True)
         text = services.risk_summary_text(r, "plan", "EUR")
         # the P50 printed is the median of the plan's draws (numpy.median as reference)
-        assert f"P50 {np.median(r.plan_npv_draws):,.0f} EUR" in text
+        assert f"P50 EUR {np.median(r.plan_npv_draws):,.0f}" in text
         assert text.startswith(f"{len(r.plan)} projects of the capital plan")
         assert "P(NPV > 0)" in text and f"seed {r.assumptions.monte_carlo_seed}" in text
         assert services.npv_draws(r, "plan") is not None and len(services.npv_draws(r, "best")) == len(r.fleet_npv_draws)

@@ -52,8 +52,8 @@ def text(path) -> str:
 
 
 def money(value: float) -> str:
-    """The report's money format: thousands separators, no decimals, currency code."""
-    return f"{value:,.0f} EUR"
+    """The report's money format: currency code, then thousands separators, no decimals."""
+    return f"EUR {value:,.0f}"
 
 
 def without_plan_uncertainty(result):
@@ -421,7 +421,7 @@ def test_run_without_risk_and_an_empty_plan(small, tmp_path):
     assert [p.name for p in paths] == [WORKBOOK_NAME, REPORT_NAME]
     html = text(tmp_path / REPORT_NAME)
     assert "Sensitivity: not computed for this run" in html
-    assert '<div class="value">0 EUR</div>' in html  # no capital asked for
+    assert '<div class="value">EUR 0</div>' in html  # no capital asked for
     assert "No project is recommended" in html and "pay back not within" not in html
 
 

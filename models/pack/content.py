@@ -18,7 +18,7 @@ from models import finance
 from models.cashflows import COMPONENTS
 from models.plan import LOW_DATA_QUALITY_PCT
 from models.risk import distribution_summary
-from models.wording import counted
+from models.wording import counted, money_text
 
 #: The cautions every file of the pack shows, in plain words.
 CAUTIONS: tuple[str, ...] = (
@@ -706,10 +706,9 @@ def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:
 # Formatting shared by the report and the decision records
 # ---------------------------------------------------------------------------------------------------
 def money(value: float, currency: str) -> str:
-    """Format an amount with thousands separators and the currency code."""
-    if value is None or not np.isfinite(value):
-        return "-"
-    return f"{value:,.0f} {currency}"
+    """Format an amount as every amount of the pack and the dashboard: ``EUR 6,081,596``
+    (:func:`models.wording.money_text`)."""
+    return money_text(value, currency)
 
 
 def years_text(value: float, horizon_yr: int, within: bool = False) -> str:
