@@ -420,7 +420,7 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
     # unknown year: assume the motor is at half its characteristic life (common practice placeholder)
     age = np.where(np.isnan(installed), 0.5 * scale, np.maximum(year - installed, 0.0))
     # each rewind shortens the expected life (repaired motors fail sooner; common practice: 10 % per rewind)
-    scale_eff = scale * (0.9 ** a["rewind_count"].to_numpy(dtype=float))
+    scale_eff = scale * (end_of_life.LIFE_KEPT_PER_REWIND_FRAC ** a["rewind_count"].to_numpy(dtype=float))
     residual = end_of_life.mean_residual_life_yr(age, shape, scale_eff)
     return age, shape, scale_eff, residual
 

@@ -187,6 +187,8 @@ class TestWording:
         # 14 x 0.887264 = 12.42, 20 x 0.887264 = 17.75, 28 x 0.887264 = 24.84 yr
         assert "up to 7.5 kW 12.4 yr, 7.5-75 kW 17.7 yr, above 75 kW 24.8 yr" in text
         assert "not a forecast" in text and "common practice" in text
+        # the life cut the engine applies per past rewind (a common practice 10 %, models.scenario._remaining_life)
+        assert "each past rewind shortens a motor's expected life by 10 %" in text
 
     def test_caution_follows_the_classes_given(self):
         # one class of beta = 1 (exponential, Gamma(2) = 1): mean life = eta = 10 yr

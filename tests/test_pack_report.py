@@ -277,6 +277,11 @@ class TestDecisionRecords:
         html = text(out / "decision-records" / "C1.html")
         for column in ("cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure"):
             assert f"{eol.loc['C1', column]:,.0f}" in html
+        # C1 was rewound twice (tests/casebuilder.py): hand calculation 1 - 0.9^2 = 19 % shorter life (the common
+        # practice 10 % per rewind), beside the failure law's caution
+        words = htmllib.unescape(html)
+        assert "Rewound 2 times: its failure law counts a life 19 % shorter than a motor never rewound." in words
+        assert "not a forecast of when this motor will fail" in words and "each past rewind shortens" in words
         for role in ("Prepared by", "Checked by (engineering)", "Approved by (budget holder)", "Signature:", "Date:"):
             assert role in html
 

@@ -395,6 +395,9 @@ def test_plan_and_risk_sheets_speak_in_words(plan_pack):
     for key in ("npv_exact", "projects_greedy", "shortfall_frac", "replace_now", "energy_price_mult", "min_rated_p_kw"):
         assert key not in words, key
     assert "Projects in the exact plan" in words
+    # the end-of-life costs come with the failure law's caution
+    sheet = " ".join(str(c.value) for r in book["End of life"].iter_rows() for c in r if c.value is not None)
+    assert "not a forecast of when this motor will fail" in sheet and "each past rewind shortens" in sheet
 
 
 def risk_tables(book) -> dict[str, list[dict[str, object]]]:

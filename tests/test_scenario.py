@@ -491,3 +491,19 @@ def test_end_of_life_says_where_each_outage_cost_comes_from(result, demo_case):
         high = assets.index[~given & (assets["criticality"] == "high")]
         assert len(high) and (eol.loc[high, "downtime_cost_per_h"] == 2000.0).all()
         assert (eol.loc[high, "downtime_cost_basis"] == "default for a high-criticality motor").all()
+
+
+def test_each_past_rewind_shortens_the_failure_law_by_ten_percent():
+    # Two new 20 kW motors (7.5-75 kW class: Weibull shape 2.5, scale 20 yr, models.end_of_life defaults),
+    # one never rewound and one rewound twice. Hand calculation (common practice, 10 % of life per rewind):
+    # scale 20 x 0.9^2 = 16.2 yr; at age 0 the mean residual life is the mean life
+    # scale x Gamma(1.4) = 20 x 0.887264 = 17.7453 yr and 16.2 x 0.887264 = 14.3737 yr
+    # (Gamma(1.4) from Abramowitz & Stegun table 6.1).
+    from types import SimpleNamespace
+
+    assets = pd.DataFrame({"rated_p_kw": [20.0, 20.0], "year_installed": [2026.0, 2026.0], "rewind_count": [0, 2]})
+    age, shape, scale, residual = scenario._remaining_life(SimpleNamespace(assets=assets), 2026)
+    assert_allclose(age, [0.0, 0.0])
+    assert_allclose(shape, [2.5, 2.5])
+    assert_allclose(scale, [20.0, 16.2], rtol=1e-12)
+    assert_allclose(residual, [17.7453, 14.3737], rtol=1e-5)

@@ -13,7 +13,7 @@ import re
 import pandas as pd
 from markupsafe import Markup
 
-from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES
+from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
@@ -101,7 +101,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
         eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
                     f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
-                    f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime.")
+                    f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime. "
+                    + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution()) if t))
     else:
         eol_note = "Not available: the options catalogue needs a rewind option and a new induction motor option."
 

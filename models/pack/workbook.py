@@ -28,7 +28,7 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
 from models.case import default_value
-from models.end_of_life import STRATEGY_NAMES
+from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS
 from models.pack import content
 from models.plan import option_labels
@@ -645,6 +645,8 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
                 ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
                 ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
         row = _table(ws, row, frame, cols)
+        put_text(ws, row, 1, failure_law_caution())
+        row += 2
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
     headers = {"min_rated_p_kw": "From rating [kW]", "max_rated_p_kw": "To rating [kW]",
