@@ -1737,7 +1737,8 @@ class EndOfLifeSummary:
 
 
 def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
-                        labels: dict | None = None, age_known: bool = True) -> EndOfLifeSummary:
+                        labels: dict | None = None, age_known: bool = True,
+                        rewind_count: float = 0.0) -> EndOfLifeSummary:
     """Return the end-of-life comparison of one asset from the engine's end-of-life frame.
 
     Parameters
@@ -1757,6 +1758,9 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         option_id -> option name (:func:`models.plan.option_labels`), to name the new motor compared.
     age_known : bool
         False when the case gives no installation year (the engine then assumes an age): the text says so.
+    rewind_count : float
+        The motor's past rewinds [-]: the text says how much shorter its failure law counts its life
+        (:func:`models.end_of_life.rewind_life_note`).
 
     Returns
     -------
@@ -1772,7 +1776,7 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     :data:`CLOSE_CALL_FRAC` of the cheapest cost is called level in the text: the failure laws and prices
     behind it are not that precise.
     """
-    from models.end_of_life import COST_COLUMNS, STRATEGIES, STRATEGY_NAMES, failure_law_caution
+    from models.end_of_life import COST_COLUMNS, STRATEGIES, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 
     empty = pd.DataFrame({"strategy": pd.Series(dtype="str"), "label": pd.Series(dtype="str"),
                           "cost_pv": pd.Series(dtype=float), "cheapest": pd.Series(dtype=bool)})
@@ -1816,6 +1820,9 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         clause += f" (mean residual life {life:.1f} yr)" if math.isfinite(life) else ""
         facts.append(clause if facts else clause[:1].upper() + clause[1:])
     second = "; ".join(facts) + "." if facts else ""
+    rewound = rewind_life_note(rewind_count)
+    if rewound:
+        second += (" " if second else "") + rewound
     new_id = row["new_option_id"] if "new_option_id" in row.index else None
     if isinstance(new_id, str) and new_id:
         second += (" " if second else "") + f"New motor compared: {(labels or {}).get(new_id, new_id)}."
@@ -1837,10 +1844,12 @@ def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
     """The end-of-life comparison of one asset under the view's assumptions (:func:`end_of_life_summary`)."""
     labels = option_labels(result.results)
     assets = view_.case.assets
-    installed = assets.loc[assets["asset_id"].astype(str) == str(asset_id), "year_installed"]
+    mine = assets["asset_id"].astype(str) == str(asset_id)
+    installed = assets.loc[mine, "year_installed"]
     age_known = bool(len(installed)) and bool(pd.notna(installed.iloc[0]))
+    rewinds = assets.loc[mine, "rewind_count"] if "rewind_count" in assets else pd.Series(dtype=float)
     return end_of_life_summary(result.end_of_life, asset_id, view_.currency, int(result.assumptions.horizon_yr),
-                               labels, age_known)
+                               labels, age_known, float(rewinds.iloc[0]) if len(rewinds) else 0.0)
 
 
 #: Each repair-or-replace decision of :func:`models.end_of_life.fleet_rules` in plain words.

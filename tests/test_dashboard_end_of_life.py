@@ -80,6 +80,12 @@ class TestSummary:
         s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, age_known=False)
         assert "29 years old (assumed: the case gives no installation year)" in s.text
 
+    def test_past_rewinds_are_said(self):
+        # hand calculation: one rewind keeps 0.9 of the life (common practice 10 %), so 10 % shorter; none says nothing
+        once = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, rewind_count=1).text
+        assert "Rewound once: its failure law counts a life 10 % shorter than a motor never rewound." in once
+        assert "Rewound" not in services.end_of_life_summary(eol_frame(), "P1", "EUR", 15).text
+
     def test_only_the_costs_give_only_the_first_sentence(self):
         frame = eol_frame()[["asset_id", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure"]]
         s = services.end_of_life_summary(frame, "P1", "EUR", 15)
