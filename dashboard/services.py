@@ -1857,7 +1857,7 @@ FLEET_RULE_DECISIONS = {"replace": "replace", "rewind": "rewind",
                         "replace_above_hours": "replace from the hours shown, rewind below"}
 
 
-def fleet_rules_scope_text(result, rated_p_kw, currency: str) -> str:
+def fleet_rules_scope_text(result, rated_p_kw, currency: str, power_unit: str = "kW") -> str:
     """What the fleet's repair-or-replace policy covers, and what it leaves to each asset's own comparison.
 
     Parameters
@@ -1866,15 +1866,18 @@ def fleet_rules_scope_text(result, rated_p_kw, currency: str) -> str:
     rated_p_kw : array_like
         The case's ratings [kW]: motors above the policy's largest size are counted.
     currency : str
+    power_unit : {"kW", "hp"}
+        The case's unit, which the text gives the sizes in.
     """
     rules = result.fleet_rules
     if rules is None or rules.empty:
         return ""
-    low, high = float(rules["min_rated_p_kw"].min()), float(rules["max_rated_p_kw"].max())
+    low_kw, high_kw = float(rules["min_rated_p_kw"].min()), float(rules["max_rated_p_kw"].max())
     rated = np.asarray(rated_p_kw, dtype=float)
-    above = int(np.sum(rated > high))
+    above = int(np.sum(rated > high_kw * (1.0 + 1e-9)))
+    low, high = (round(float(rating_in_unit(v, power_unit)), 2) for v in (low_kw, high_kw))
     downtime = float(result.assumptions.downtime_cost_per_h)
-    text = (f"It covers standard ratings from {low:g} to {high:g} kW"
+    text = (f"It covers standard ratings from {low:g} to {high:g} {power_label(power_unit)}"
             + (f"; {above} motor{'s' if above != 1 else ''} of the case {'are' if above != 1 else 'is'} larger and "
                f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above"
                if above else "")
@@ -1884,13 +1887,19 @@ def fleet_rules_scope_text(result, rated_p_kw, currency: str) -> str:
     return text
 
 
-def fleet_rule_rows(result) -> pd.DataFrame:
+def fleet_rule_rows(result, power_unit: str = "kW") -> pd.DataFrame:
     """The fleet's repair-or-replace policy as the grid shows it.
+
+    Parameters
+    ----------
+    result : models.scenario.ScenarioResult
+    power_unit : {"kW", "hp"}
+        The case's unit: the two rating columns are given in it (their names keep the engine's).
 
     Returns
     -------
     pandas.DataFrame
-        min_rated_p_kw, max_rated_p_kw [kW], min_hours_to_replace_h_per_yr [h/yr] (NaN where rewinding
+        min_rated_p_kw, max_rated_p_kw [kW or hp], min_hours_to_replace_h_per_yr [h/yr] (NaN where rewinding
         wins at every hours of the grid: no threshold), decision (plain words) and rule. Empty (with these
         columns) when the engine has no policy.
     """
@@ -1900,8 +1909,8 @@ def fleet_rule_rows(result) -> pd.DataFrame:
         return pd.DataFrame(columns=columns)
     hours = rules["min_hours_to_replace_h_per_yr"].to_numpy(dtype=float)
     return pd.DataFrame({
-        "min_rated_p_kw": rules["min_rated_p_kw"].to_numpy(dtype=float),
-        "max_rated_p_kw": rules["max_rated_p_kw"].to_numpy(dtype=float),
+        "min_rated_p_kw": np.round(rating_in_unit(rules["min_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
+        "max_rated_p_kw": np.round(rating_in_unit(rules["max_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
         "min_hours_to_replace_h_per_yr": np.where(np.isfinite(hours), hours, np.nan),
         "decision": [FLEET_RULE_DECISIONS.get(d, d) for d in rules["decision"]],
         "rule": rules["rule"].to_numpy(dtype=object)})

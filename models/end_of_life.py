@@ -20,6 +20,8 @@ import numpy as np
 import pandas as pd
 from scipy.special import gamma, gammaincc
 
+from models.case import HP_TO_KW
+
 #: Strategy names, in the column order of :func:`strategy_costs`.
 STRATEGIES: tuple[str, ...] = ("replace_now", "replace_at_failure", "rewind_at_failure")
 
@@ -76,6 +78,39 @@ DEFAULT_LIFE_CLASSES: tuple[LifeClass, ...] = (
 #: by 10 % (common practice; repaired motors are reported to fail sooner than new ones, a rate from memory, not
 #: from failure records).
 LIFE_KEPT_PER_REWIND_FRAC = 0.9
+
+
+#: Standard ratings a fleet's repair-or-replace policy is worked out on [kW] (common IEC ratings, our choice of
+#: steps), up to 1,000 kW, the top of the efficiency class tables.
+POLICY_SIZES_KW: tuple[float, ...] = (0.75, 2.2, 5.5, 11.0, 22.0, 37.0, 55.0, 90.0, 132.0, 200.0, 315.0, 500.0, 1000.0)
+#: The same for a case rated in horsepower [hp] (common NEMA ratings), up to 1,250 hp (932 kW).
+POLICY_SIZES_HP: tuple[float, ...] = (1.0, 3.0, 7.5, 15.0, 30.0, 50.0, 75.0, 125.0, 200.0, 300.0, 500.0, 800.0, 1250.0)
+#: A policy always reaches this many grid sizes of each unit (to 315 kW, to 300 hp), whatever the fleet's
+#: largest motor.
+POLICY_MIN_SIZES: dict[str, int] = {"kW": 11, "hp": 10}
+
+
+def policy_sizes_kw(largest_rated_kw: float, power_unit: str = "kW") -> np.ndarray:
+    """Return the ratings a fleet's repair-or-replace policy is worked out on [kW].
+
+    The standard ratings of the case's unit (:data:`POLICY_SIZES_KW` or :data:`POLICY_SIZES_HP`, converted
+    to kW) up to 315 kW or 300 hp, and on up to the first rating at or above the fleet's largest motor, as far
+    as the grid goes (the efficiency class tables end at 1,000 kW; a larger motor is left to its own
+    comparison).
+
+    Examples
+    --------
+    >>> [float(policy_sizes_kw(kw)[-1]) for kw in (55.0, 355.0, 1600.0)]
+    [315.0, 500.0, 1000.0]
+    >>> [round(float(x), 1) for x in policy_sizes_kw(50.0, "hp")[-2:]]  # 200 and 300 hp
+    [149.1, 223.7]
+    >>> round(float(policy_sizes_kw(400.0 * 0.745699872, "hp")[-1]), 1)  # 400 hp: up to 500 hp
+    372.8
+    """
+    grid = np.asarray(POLICY_SIZES_HP, dtype=float) * HP_TO_KW if power_unit == "hp" else np.asarray(POLICY_SIZES_KW)
+    largest = float(largest_rated_kw) if np.isfinite(largest_rated_kw) else 0.0
+    reach = int(np.searchsorted(grid, largest * (1.0 - 1e-9), side="left")) + 1
+    return grid[:min(max(reach, POLICY_MIN_SIZES["hp" if power_unit == "hp" else "kW"]), grid.size)]
 
 
 def _positive(values: Any, name: str) -> np.ndarray:
@@ -595,6 +630,7 @@ def fleet_rules(
     discount_rate_frac: float = 0.08,
     horizon_yr: int = 15,
     escalation_frac: float = 0.0,
+    power_unit: str = "kW",
 ) -> pd.DataFrame:
     """Derive a repair-or-replace policy for failed motors from a grid of sizes and running hours.
 
@@ -616,6 +652,8 @@ def fleet_rules(
         As in :func:`strategy_costs`, shape (m,) or scalar.
     discount_rate_frac, horizon_yr, escalation_frac : float, int, float
         As in :func:`strategy_costs`.
+    power_unit : {"kW", "hp"}
+        Unit the rules' sentences give the sizes in (the case's); the size columns stay in kW.
 
     Returns
     -------
@@ -669,15 +707,18 @@ def fleet_rules(
     start = 0
     for i in range(1, m + 1):
         if i == m or threshold[i] != threshold[start]:
-            rows.append(_rule_row(sizes[start], sizes[i - 1], threshold[start], hours[-1]))
+            rows.append(_rule_row(sizes[start], sizes[i - 1], threshold[start], hours[-1], power_unit))
             start = i
     return pd.DataFrame(rows, columns=["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr",
                                        "decision", "rule"])
 
 
-def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: float) -> dict[str, Any]:
-    """One policy row in plain words."""
-    span = f"{low_kw:g} kW" if low_kw == high_kw else f"{low_kw:g}-{high_kw:g} kW"
+def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: float,
+              power_unit: str = "kW") -> dict[str, Any]:
+    """One policy row in plain words, its sizes in ``power_unit``."""
+    low, high = (round(low_kw / HP_TO_KW, 2), round(high_kw / HP_TO_KW, 2)) if power_unit == "hp" else (low_kw, high_kw)
+    unit = "hp" if power_unit == "hp" else "kW"
+    span = f"{low:g} {unit}" if low_kw == high_kw else f"{low:g}-{high:g} {unit}"
     if threshold_h == 0.0:
         decision = "replace"
         rule = f"Motors of {span}: replace rather than rewind, whatever the running hours."

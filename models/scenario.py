@@ -893,20 +893,26 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     tech = options["technology"].to_numpy(dtype=object)
     if not ((tech == "rewind").any() and (tech == "induction").any()):
         return pd.DataFrame()
-    sizes = np.array([0.75, 2.2, 5.5, 11, 22, 37, 55, 90, 132, 200, 315])
+    unit = "hp" if str(case.settings.power_unit).lower() == "hp" else "kW"
+    rated = case.assets["rated_p_kw"].to_numpy(dtype=float)
+    sizes = end_of_life.policy_sizes_kw(float(np.nanmax(rated)) if np.isfinite(rated).any() else 0.0, unit)
     hours = np.array([1000, 2000, 4000, 6000, 8000])
+    # the fleet's usual supply frequency: the 50 Hz or the 60 Hz class tables (4-pole, the commonest)
+    f_hz = case.assets["supply_f_hz"].to_numpy(dtype=float)
+    f_hz = 60 if np.sum(f_hz == 60) > np.sum(f_hz == 50) else 50
     new_row = options[tech == "induction"].iloc[0]
     rewind_row = options[tech == "rewind"].iloc[0]
     cost = lambda row: capital_cost(pd.DataFrame([row]), sizes).total[:, 0]  # noqa: E731
     from models.efficiency_classes import min_efficiency_pct
 
-    eff_new = min_efficiency_pct(sizes, 4, 50, new_row["efficiency_class"]) / 100.0
-    eff_rewound = min_efficiency_pct(sizes, 4, 50, "IE2") / 100.0 - 0.001
+    eff_new = min_efficiency_pct(sizes, 4, f_hz, new_row["efficiency_class"]) / 100.0
+    eff_rewound = min_efficiency_pct(sizes, 4, f_hz, "IE2") / 100.0 - 0.001
     price = float((sav.baseline_bills["amount"].sum()) / max(op.energy_kwh[:, 0].sum(), 1.0))
     return end_of_life.fleet_rules(sizes, hours, new_capex=cost(new_row), rewind_capex=cost(rewind_row),
                                    efficiency_new_frac=eff_new, efficiency_rewound_frac=eff_rewound, price_per_kwh=price,
                                    downtime_cost_per_h=assumptions.downtime_cost_per_h, discount_rate_frac=d,
-                                   horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac)
+                                   horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
+                                   power_unit=unit)
 
 
 def _risk(flows, assumptions, results, d):

@@ -167,6 +167,27 @@ class TestFleetRules:
         assert len(rules) == 1 and rules["min_rated_p_kw"].iloc[0] == 1.0 and rules["max_rated_p_kw"].iloc[0] == 3.0
         assert isinstance(rules, pd.DataFrame) and rules["decision"].iloc[0] == "replace"
 
+    def test_rules_speak_in_the_cases_unit(self):
+        # the hand example above with 7.457 and 74.57 kW grids (10 and 100 hp, 1 hp = 0.745699872 kW, NIST SP 811
+        # B.9): the sizes in the sentences are hp, the size columns stay kW
+        hp = 0.745699872
+        rules = eol.fleet_rules([10.0 * hp, 100.0 * hp], [1000.0], new_capex=0.0, rewind_capex=100.0,
+                                efficiency_new_frac=0.9, efficiency_rewound_frac=0.8, price_per_kwh=0.1, power_unit="hp")
+        assert rules["rule"].iloc[0].startswith("Motors of 10-100 hp: replace")
+        assert_allclose(rules[["min_rated_p_kw", "max_rated_p_kw"]].to_numpy()[0], [7.45699872, 74.5699872])
+
+    def test_policy_grid_reaches_the_fleets_largest_motor(self):
+        # common IEC ratings to 315 kW at least, on to the first at or above the largest motor, to 1,000 kW
+        # (the IE class tables' top, IEC 60034-30-1 scope); NEMA ratings for a case in hp
+        assert eol.policy_sizes_kw(45.0).tolist()[-1] == 315.0 and eol.policy_sizes_kw(45.0)[0] == 0.75
+        assert eol.policy_sizes_kw(315.0).tolist()[-1] == 315.0
+        assert eol.policy_sizes_kw(355.0).tolist()[-1] == 500.0
+        assert eol.policy_sizes_kw(1600.0).tolist()[-1] == 1000.0
+        assert eol.policy_sizes_kw(float("nan")).tolist()[-1] == 315.0
+        hp = np.asarray(eol.policy_sizes_kw(20.0, "hp")) / 0.745699872
+        assert_allclose(hp, [1, 3, 7.5, 15, 30, 50, 75, 125, 200, 300], rtol=1e-12)
+        assert_allclose(eol.policy_sizes_kw(600.0 * 0.745699872, "hp")[-1] / 0.745699872, 800.0, rtol=1e-12)
+
     def test_unsorted_grid_raises(self):
         with pytest.raises(ValueError, match="ascending"):
             eol.fleet_rules([10.0, 5.0], [1000.0], new_capex=1.0, rewind_capex=1.0, efficiency_new_frac=0.9,

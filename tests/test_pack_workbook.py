@@ -487,3 +487,15 @@ class TestRiskSheetIsThePlans:
         assert not any(h.startswith("Monte Carlo of the plan's NPV") for h in tables)
         words = " ".join(str(c.value) for row in book["Risk"].iter_rows() for c in row if c.value is not None)
         assert "plan choices that trade NPV for budget are not simulated" in words
+
+
+def test_policy_ratings_in_the_cases_unit(small):
+    # a case declared in hp: the policy's rating columns are hp (1 hp = 0.745699872 kW, NIST SP 811 B.9)
+    case, result = small
+    in_hp = dataclasses.replace(case, settings=dataclasses.replace(case.settings, power_unit="hp"))
+    book = load_workbook(io.BytesIO(build_workbook(in_hp, result, select_scope(in_hp, result))))
+    cells = [[c.value for c in r] for r in book["End of life"].iter_rows()]
+    top = next(i for i, r in enumerate(cells) if r[0] == "Repair-or-replace policy for the fleet")
+    assert cells[top + 1][:2] == ["From rating [hp]", "To rating [hp]"]
+    first_kw = float(result.fleet_rules["min_rated_p_kw"].iloc[0])
+    assert cells[top + 2][0] == pytest.approx(round(first_kw / 0.745699872, 2), abs=1e-9)

@@ -507,3 +507,22 @@ def test_each_past_rewind_shortens_the_failure_law_by_ten_percent():
     assert_allclose(shape, [2.5, 2.5])
     assert_allclose(scale, [20.0, 16.2], rtol=1e-12)
     assert_allclose(residual, [17.7453, 14.3737], rtol=1e-5)
+
+
+def test_repair_or_replace_policy_covers_the_fleets_sizes_in_its_unit(demo_run_physics):
+    # The demo's largest motor is 1,600 kW (data/demo/assets.csv): the policy runs on to 1,000 kW, the top of the
+    # IE class tables (IEC 60034-30-1 scope), not only to 315 kW. The same fleet declared in hp gets NEMA ratings
+    # and sentences in hp.
+    case, phys = demo_run_physics
+    op, sav = phys.operation, phys.savings
+    options = scenario._options_in_order(case, op)
+    rules = scenario._fleet_rules(case, options, case.finance, 0.08, 15, sav, op)
+    assert case.assets["rated_p_kw"].max() == 1600.0
+    assert rules["min_rated_p_kw"].min() == 0.75 and rules["max_rated_p_kw"].max() == 1000.0
+    assert all(" kW" in r and " hp" not in r for r in rules["rule"])
+    in_hp = replace(case, settings=replace(case.settings, power_unit="hp"))
+    rules_hp = scenario._fleet_rules(in_hp, options, case.finance, 0.08, 15, sav, op)
+    # 1 hp = 0.745699872 kW (NIST SP 811 B.9); the 1,600 kW motor is above the grid's 1,250 hp (932 kW) top
+    assert_allclose(rules_hp["min_rated_p_kw"].min(), 0.745699872, rtol=1e-12)
+    assert_allclose(rules_hp["max_rated_p_kw"].max(), 1250 * 0.745699872, rtol=1e-12)
+    assert all(" hp" in r and " kW" not in r for r in rules_hp["rule"])

@@ -164,10 +164,11 @@ def update(asset_id, session, edits, requested=None):
             notice)
 
 
-def fleet_rule_columns() -> list[dict]:
-    """Columns of the repair-or-replace policy grid (the pack's workbook headers)."""
-    return [ui.rating_col("min_rated_p_kw", "From rating [kW]", maxWidth=150),
-            ui.rating_col("max_rated_p_kw", "To rating [kW]", maxWidth=150),
+def fleet_rule_columns(power_unit: str = "kW") -> list[dict]:
+    """Columns of the repair-or-replace policy grid (the pack's workbook headers), ratings in the case's unit."""
+    unit = services.power_label(power_unit)
+    return [ui.rating_col("min_rated_p_kw", f"From rating [{unit}]", maxWidth=150),
+            ui.rating_col("max_rated_p_kw", f"To rating [{unit}]", maxWidth=150),
             ui.number_col("min_hours_to_replace_h_per_yr", "Replace rather than rewind from [h/yr]", minWidth=170,
                           maxWidth=220),
             ui.long_text_col("decision", "Decision", minWidth=180),
@@ -195,5 +196,5 @@ def end_of_life(asset_id, session, edits):
     else:
         text = [html.P(eol.text), html.P(eol.caution, className="page-intro")]
     return (figures.end_of_life_costs(eol.strategies, view.currency, eol.message), text,
-            services.fleet_rule_rows(result).to_dict("records"), fleet_rule_columns(),
-            services.fleet_rules_scope_text(result, view.case.assets["rated_p_kw"], view.currency))
+            services.fleet_rule_rows(result, view.power_unit).to_dict("records"), fleet_rule_columns(view.power_unit),
+            services.fleet_rules_scope_text(result, view.case.assets["rated_p_kw"], view.currency, view.power_unit))

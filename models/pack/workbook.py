@@ -27,7 +27,7 @@ from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
-from models.case import default_value
+from models.case import HP_TO_KW, default_value
 from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS
 from models.pack import content
@@ -625,7 +625,7 @@ def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
     _widths(ws, {1: 14, 2: 34, 3: 24, 4: 60, 5: 16, 6: 50, 7: 40})
 
 
-def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
+def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_power_unit: str = "kW") -> None:
     _title(ws, "End of life: expected present cost of replace now, replace at failure and rewind at failure")
     eol = result.end_of_life
     row = 3
@@ -649,7 +649,10 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> No
         row += 2
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
-    headers = {"min_rated_p_kw": "From rating [kW]", "max_rated_p_kw": "To rating [kW]",
+    unit = "hp" if str(case_power_unit).lower() == "hp" else "kW"
+    if unit == "hp" and not rules.empty:  # the sentences already give the case's unit
+        rules = rules.assign(**{c: (rules[c] / HP_TO_KW).round(2) for c in ("min_rated_p_kw", "max_rated_p_kw")})
+    headers = {"min_rated_p_kw": f"From rating [{unit}]", "max_rated_p_kw": f"To rating [{unit}]",
                "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
     _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
     _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18})
@@ -786,7 +789,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _plan(sheets["Plan"], result, scope, refs, f)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)
-    _end_of_life(sheets["End of life"], result, scope, f)
+    _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit)
     _risk(sheets["Risk"], case, result, scope, f)
     _read_me(sheets["Read me"], case, result, scope, f)
     buffer = io.BytesIO()
