@@ -751,18 +751,21 @@ def rewind_life_note(rewind_count: float) -> str:
     return f"Rewound {times}: its failure law counts a life {cut_pct:.0f} % shorter than a motor never rewound."
 
 
-def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES) -> str:
+def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, brief: bool = False) -> str:
     """Return the caution that goes with every end-of-life cost: expectations, not a forecast.
 
     Parameters
     ----------
     classes : tuple of LifeClass
         The failure laws the costs were weighted with, sorted by ``max_rated_p_kw``.
+    brief : bool
+        The short form for a one-page record: the same points without the mean life of each class.
 
     Returns
     -------
     str
-        One sentence naming the mean life of each size class.
+        One sentence naming the mean life of each size class (not in the brief form) and the life cut per
+        past rewind.
 
     Notes
     -----
@@ -775,6 +778,8 @@ def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES) -
     --------
     >>> failure_law_caution()[:60]
     'Expected present costs over a failure-age distribution, not '
+    >>> failure_law_caution(brief=True)
+    'Costs (capital, running, expected downtime) are expectations over common practice failure laws (10 % less life per past rewind), not a forecast of when this motor will fail.'
     """
     bands, low_kw = [], 0.0
     for c in classes:
@@ -787,6 +792,9 @@ def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES) -
         bands.append(f"{span} {c.mean_life_yr:.1f} yr")
         low_kw = c.max_rated_p_kw
     cut_pct = 100.0 * (1.0 - LIFE_KEPT_PER_REWIND_FRAC)
+    if brief:
+        return (f"Costs (capital, running, expected downtime) are expectations over common practice failure laws "
+                f"({cut_pct:.0f} % less life per past rewind), not a forecast of when this motor will fail.")
     return ("Expected present costs over a failure-age distribution, not a forecast of when this motor will fail: "
             "each size class fails by a Weibull law set from common practice life bands, not from failure records "
             f"(mean life {', '.join(bands)}); each past rewind shortens a motor's expected life by {cut_pct:.0f} % "

@@ -106,6 +106,23 @@ def test_decision_record_prints_on_one_a4_page(pack_browser, pack):
     page.close()
 
 
+def test_every_demo_decision_record_prints_on_one_a4_page(pack_browser, demo_run_physics, tmp_path):
+    # the demo's records are the longest (11 options, drive and speed cautions, two rewinds): every one on one page
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    write_pack(case, result, tmp_path, assets=list(case.assets["asset_id"]), plan=False)
+    page = pack_browser.new_page()
+    spilled = []
+    for record in sorted((tmp_path / "decision-records").glob("*.html")):
+        page.goto(record.resolve().as_uri())
+        page.emulate_media(media="print")
+        if pdf_pages(page.pdf(format="A4", print_background=True, prefer_css_page_size=True)) != 1:
+            spilled.append(record.name)
+    page.close()
+    assert len(list((tmp_path / "decision-records").glob("*.html"))) == len(case.assets)
+    assert spilled == []
+
+
 def test_cli_prints_the_report_to_pdf(tmp_path):
     """End to end as a user runs it; in a fresh process so its browser does not meet the test's."""
     case_dir = tmp_path / "case"

@@ -281,7 +281,7 @@ class TestDecisionRecords:
         # practice 10 % per rewind), beside the failure law's caution
         words = htmllib.unescape(html)
         assert "Rewound 2 times: its failure law counts a life 19 % shorter than a motor never rewound." in words
-        assert "not a forecast of when this motor will fail" in words and "each past rewind shortens" in words
+        assert "not a forecast of when this motor will fail" in words and "10 % less life per past rewind" in words
         for role in ("Prepared by", "Checked by (engineering)", "Approved by (budget holder)", "Signature:", "Date:"):
             assert role in html
 

@@ -101,8 +101,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
         eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
                     f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
-                    f"{float(e['mean_residual_life_yr']):.1f} yr. Costs include capital, running cost and expected downtime. "
-                    + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution()) if t))
+                    f"{float(e['mean_residual_life_yr']):.1f} yr. "
+                    + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution(brief=True)) if t))
     else:
         eol_note = "Not available: the options catalogue needs a rewind option and a new induction motor option."
 

@@ -203,7 +203,10 @@ li { margin: 1px 0; }
 .sign > div { border: 1px solid var(--line); padding: 4px 6px; height: 25mm; }
 .sign .line { color: var(--muted); margin-top: 3px; }
 @page { size: A4; margin: 10mm; }
-@media print { main { padding: 0; max-width: none; } body { font-size: 10.5px; } table { font-size: 9.5px; } }
+@media print {
+  main { padding: 0; max-width: none; } body { font-size: 10px; line-height: 1.3; } table { font-size: 9px; }
+  h2 { margin: 7px 0 3px; } .sign > div { height: 20mm; } th, td { padding: 1px 4px; }
+}
 """
 
 DECISION = _MACROS + """<!DOCTYPE html>
