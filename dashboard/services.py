@@ -42,7 +42,7 @@ from models import finance, reactive_plan, risk
 from models import io as case_io
 from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
-from models.case import HP_TO_KW, default_value, load_case
+from models.case import default_value, load_case, power_label, rating_in_unit
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
 from models.plan import low_data_quality, option_labels
@@ -955,16 +955,6 @@ def edits_change(view_: View, new_edits: dict) -> bool:
 # ---------------------------------------------------------------------------------------------------
 # Presentation helpers: result -> small tables for the figure builders
 # ---------------------------------------------------------------------------------------------------
-def power_label(power_unit: str) -> str:
-    """The unit label of ratings: kW or hp."""
-    return "hp" if power_unit == "hp" else "kW"
-
-
-def rating_in_unit(p_kw, power_unit: str):
-    """Ratings in the case's display unit (1 hp = 0.745699872 kW, NIST SP 811 (2008) B.9)."""
-    return p_kw / HP_TO_KW if power_unit == "hp" else p_kw
-
-
 def headline(result) -> dict:
     """Plan capital, yearly saving, plan NPV and CO2 avoided of the exact plan."""
     res = result.results

@@ -26,6 +26,23 @@ from models.problems import CaseError, Problem, error, has_errors, ordered, show
 from models.wording import counted
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
+
+
+def power_label(power_unit: str) -> str:
+    """The unit label of motor ratings as a case declares them: ``kW`` or ``hp``."""
+    return "hp" if str(power_unit).lower() == "hp" else "kW"
+
+
+def rating_in_unit(p_kw, power_unit: str):
+    """Ratings [kW] in the case's display unit (1 hp = 0.745699872 kW, NIST SP 811 (2008) B.9).
+
+    Examples
+    --------
+    >>> rating_in_unit(7.45699872, "hp"), rating_in_unit(7.5, "kW")
+    (10.0, 7.5)
+    """
+    return p_kw / HP_TO_KW if power_label(power_unit) == "hp" else p_kw
+
 MAX_HOURS_PER_YR = 8784.0  # hours in a leap year
 MAX_LOAD_PCT = 125.0
 ALLOWED_RESOLUTIONS_MIN = (15, 30, 60)

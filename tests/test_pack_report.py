@@ -475,3 +475,24 @@ def test_an_empty_plan_says_it_has_no_uncertainty_of_its_own(small):
     ctx = report_context(case, empty, content.select_scope(case, empty, None, True), [])
     assert ctx["tornado_note"].startswith("The plan holds no project under this budget")
     assert ctx["mc_note"] == "No project to simulate: the plan holds none under this budget."
+
+
+def test_a_case_in_hp_shows_ratings_in_hp(small, tmp_path):
+    # C1 is rated 75 kW (tests/casebuilder.py): 75 / 0.745699872 = 100.576 hp (1 hp = 0.745699872 kW, NIST SP 811
+    # B.9), so "100.6 hp (75.0 kW)" in its record and 100.6 in the report's asset table headed "hp"
+    import dataclasses
+
+    from openpyxl import load_workbook
+
+    case, result = small
+    in_hp = dataclasses.replace(case, settings=dataclasses.replace(case.settings, power_unit="hp"))
+    write_pack(in_hp, result, tmp_path, assets=["C1"], plan=False)
+    record = htmllib.unescape(text(tmp_path / "decision-records" / "C1.html"))
+    assert "Rated power:</span> 100.6 hp (75.0 kW)" in record
+    report = htmllib.unescape(text(tmp_path / REPORT_NAME))
+    assert "<th>hp</th>" in report or '<th class="num">hp</th>' in report
+    assert ">100.6<" in report
+    book = load_workbook(tmp_path / WORKBOOK_NAME)
+    header = [c.value for c in book["Results"][3]]
+    column = header.index("Rated [hp]") + 1
+    assert book["Results"].cell(4, column).value == pytest.approx(75.0 / 0.745699872, rel=1e-12)

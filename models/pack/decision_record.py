@@ -13,6 +13,7 @@ import re
 import pandas as pd
 from markupsafe import Markup
 
+from models.case import power_label, rating_in_unit
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.options import technology_name
 from models.pack import content, templates
@@ -61,7 +62,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     defaulted = content.scope_defaults(case, (asset_id,))
     filled = set(defaulted["column"])
     plate = [
-        ("Rated power", "rated_p_kw", _value(float(x["rated_p_kw"]), "{:,.1f} kW")),
+        ("Rated power", "rated_p_kw", _value(float(x["rated_p_kw"]), "{:,.1f} kW") if power_label(s.power_unit) == "kW"
+         else _value(float(rating_in_unit(float(x["rated_p_kw"]), "hp")), "{:,.1f} hp") + f" ({float(x['rated_p_kw']):,.1f} kW)"),
         ("Poles", "poles", _value(x["poles"], "{:.0f}")),
         ("Voltage", "rated_v_v", _value(x["rated_v_v"], "{:,.0f} V")),
         ("Frequency", "supply_f_hz", _value(x["supply_f_hz"], "{:.0f} Hz")),

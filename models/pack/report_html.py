@@ -16,6 +16,7 @@ import plotly.io as pio
 from markupsafe import Markup
 from plotly.offline import get_plotlyjs
 
+from models.case import power_label, rating_in_unit
 from models.pack import content, figures, templates
 from models.plan import option_labels
 from models.reactive_plan import withdrawn_text
@@ -136,7 +137,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         x = assets.loc[asset_id]
         asset_rows.append(row([
             cell(asset_id, "id"), cell(x["description"] or ""), cell(x["site_id"]), cell(x["application"] or ""),
-            num(float(x["rated_p_kw"]), "{:,.1f}"), num(float(x["poles"]), "{:.0f}"), cell(x["efficiency_class"] or ""),
+            num(float(rating_in_unit(float(x["rated_p_kw"]), s.power_unit)), "{:,.1f}"), num(float(x["poles"]), "{:.0f}"), cell(x["efficiency_class"] or ""),
             num(float(x["year_installed"]), "{:.0f}"), num(float(x["rewind_count"]), "{:.0f}"),
             cell(x["speed_control"] or ""), cell(x["criticality"] or ""), num(float(x["data_quality_pct"]), "{:.0f}", " %")]))
 
@@ -271,7 +272,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "decision_headers": ["Asset", "Description", "Recommended", "Plan year", f"Capital [{cur}]",
                              f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Simple payback [yr]", "CO2 [t/yr]", "Why"],
         "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
-        "asset_headers": ["Asset", "Description", "Site", "Application", "kW", "Poles", "Class", "Installed", "Rewinds",
+        "asset_headers": ["Asset", "Description", "Site", "Application", power_label(s.power_unit), "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),
         "matrix_headers": ["Asset"] + [labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,

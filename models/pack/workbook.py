@@ -27,7 +27,7 @@ from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
-from models.case import HP_TO_KW, default_value
+from models.case import default_value, power_label, rating_in_unit
 from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS
 from models.pack import content
@@ -276,7 +276,7 @@ def _engine_irr(value: float, status: str) -> Any:
     return value if (status != "none" and math.isfinite(value)) else "none"
 
 
-def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
+def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_unit: str = "kW") -> None:
     _title(ws, "Options compared, per asset in scope (one row per asset x option; money per year at base-year prices)")
     res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))].copy()
     order = {a: i for i, a in enumerate(scope.asset_ids)}
@@ -289,8 +289,10 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats) -> None:
     res["irr_text"] = [_engine_irr(v, s) for v, s in zip(res["irr_frac"], res["irr_status"])]
     res["simple_payback_text"] = [_engine_payback(v) for v in res["simple_payback_yr"]]
     res["discounted_payback_text"] = [_engine_payback(v) for v in res["discounted_payback_yr"]]
+    res["rated_p_kw"] = rating_in_unit(res["rated_p_kw"].to_numpy(dtype=float), power_unit)  # shown in the case's unit
     fmt = {"money": f.money, "frac": f.frac, "years": f.years, "number": f.number, "whole": f.whole, None: None}
-    cols = [(c, _with_currency(h, f.currency) if k == "money" else h, fmt[k]) for c, h, k in _RESULT_COLUMNS]
+    cols = [(c, _with_currency(h, f.currency) if k == "money" else
+             (f"Rated [{power_label(power_unit)}]" if c == "rated_p_kw" else h), fmt[k]) for c, h, k in _RESULT_COLUMNS]
     _table(ws, 3, res, cols)
     ws.freeze_panes = "C4"
     _widths(ws, {1: 12, 2: 12, 3: 34, 4: 16} | {k: 14 for k in range(5, len(cols) + 1)} | {len(cols): 60})
@@ -601,11 +603,13 @@ def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
     defaults = content.scope_defaults(case, scope.asset_ids)
     counts = defaults.groupby("asset_id").size() if not defaults.empty else pd.Series(dtype=int)
-    assets = assets.assign(n_defaulted=assets["asset_id"].map(counts).fillna(0).astype(int))
+    assets = assets.assign(n_defaulted=assets["asset_id"].map(counts).fillna(0).astype(int),
+                           rated_p_kw=rating_in_unit(assets["rated_p_kw"].to_numpy(dtype=float), case.settings.power_unit))
     row = 3
     put_text(ws, row, 1, "Assets").font = _BOLD
     row = _table(ws, row + 1, assets, [("asset_id", "Asset", None), ("description", "Description", None),
-                                       ("site_id", "Site", None), ("rated_p_kw", "Rated [kW]", "#,##0.00"),
+                                       ("site_id", "Site", None),
+                                       ("rated_p_kw", f"Rated [{power_label(case.settings.power_unit)}]", "#,##0.00"),
                                        ("data_quality_pct", "Data quality [%]", "0"),
                                        ("n_defaulted", "Defaulted fields", "0")])
     put_text(ws, row, 1, "Every defaulted input").font = _BOLD
@@ -649,9 +653,9 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         row += 2
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
-    unit = "hp" if str(case_power_unit).lower() == "hp" else "kW"
+    unit = power_label(case_power_unit)
     if unit == "hp" and not rules.empty:  # the sentences already give the case's unit
-        rules = rules.assign(**{c: (rules[c] / HP_TO_KW).round(2) for c in ("min_rated_p_kw", "max_rated_p_kw")})
+        rules = rules.assign(**{c: rating_in_unit(rules[c], unit).round(2) for c in ("min_rated_p_kw", "max_rated_p_kw")})
     headers = {"min_rated_p_kw": f"From rating [{unit}]", "max_rated_p_kw": f"To rating [{unit}]",
                "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
     _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
@@ -783,7 +787,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     for name, ws in sheets.items():
         ws.title = name
     refs = _assumptions(sheets["Assumptions"], case, result, f)
-    _results(sheets["Results"], result, scope, f)
+    _results(sheets["Results"], result, scope, f, case.settings.power_unit)
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
     _plan(sheets["Plan"], result, scope, refs, f)
