@@ -496,3 +496,16 @@ def test_a_case_in_hp_shows_ratings_in_hp(small, tmp_path):
     header = [c.value for c in book["Results"][3]]
     column = header.index("Rated [hp]") + 1
     assert book["Results"].cell(4, column).value == pytest.approx(75.0 / 0.745699872, rel=1e-12)
+
+
+def test_plan_draws_histogram_marks_percentiles_in_the_money_format_and_leaves_a_margin():
+    # hand-made draws 100..1,000: the percentiles are labelled as every amount of the pack (code first), and the
+    # x axis runs 4 % of the span (36) beyond each end, so its first tick is not in the corner on the y axis's 0
+    from models.pack import figures as pack_figures
+
+    draws = np.linspace(100.0, 1000.0, 10)
+    summary = {"npv_p10": 190.0, "npv_p50": 550.0, "npv_p90": 910.0, "prob_npv_positive_frac": 1.0}
+    fig = pack_figures.plan_npv_draws(draws, summary, "USD")
+    texts = [a.text for a in fig.layout.annotations]
+    assert texts == ["P10 USD 190", "P50 USD 550", "P90 USD 910"]
+    assert list(fig.layout.xaxis.range) == pytest.approx([64.0, 1036.0])

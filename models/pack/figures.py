@@ -16,6 +16,7 @@ from plotly.subplots import make_subplots
 
 from models.pack import content
 from models.risk import tornado_label
+from models.wording import money_text
 
 #: Colours of the report (colour-blind-safe qualitative set).
 COLOURS = {"energy": "#0072B2", "demand": "#E69F00", "reactive": "#009E73", "fixed": "#CC79A7",
@@ -127,10 +128,13 @@ def plan_npv_draws(draws: np.ndarray, summary: dict[str, float], currency: str) 
     for key, name, dash, side in (("npv_p10", "P10", "dot", "top left"), ("npv_p50", "P50", "solid", "top right"),
                                   ("npv_p90", "P90", "dot", "top right")):
         fig.add_vline(x=summary[key], line={"color": COLOURS["total"], "width": 2, "dash": dash},
-                      annotation_text=f"{name} {summary[key]:,.0f}", annotation_position=side)
+                      annotation_text=f"{name} {esc(money_text(summary[key], currency))}", annotation_position=side)
     if draws.min() < 0 < draws.max():
         fig.add_vline(x=0, line={"color": "#888888", "width": 1})
-    fig.update_xaxes(title_text=f"plan NPV at its start [{esc(currency)}]")
+    # a margin each side, so the first x tick does not sit in the corner on the y axis's "0"
+    lo, hi = float(draws.min()), float(draws.max())
+    pad = 0.04 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05
+    fig.update_xaxes(title_text=f"plan NPV at its start [{esc(currency)}]", range=[lo - pad, hi + pad])
     fig.update_yaxes(title_text="draws")
     title = (f"Monte Carlo: the plan's NPV over {draws.size:,} draws, "
              f"P(NPV > 0) = {100 * summary['prob_npv_positive_frac']:.0f} %")
