@@ -1761,6 +1761,10 @@ class _SiteRecompute:
         """Bytes of the curve books kept now [B]."""
         return self._books_bytes
 
+    def covers(self, k: int) -> bool:
+        """Whether site k's kept curve books cover every asset of the site (its rows are read, not recomputed)."""
+        return self._booked(k) is not None
+
     def _booked(self, k: int) -> list | None:
         """Site k's kept books when they cover every asset of the site, else None."""
         blocks = self._books.get(k)
@@ -1950,7 +1954,7 @@ class SiteIntervalStore:
         """Whether reading these assets' rows of other options runs the models again: some of their sites'
         curve books were not kept (:meth:`_SiteRecompute.keep_book`)."""
         sites = np.unique(self._recompute.site_of[np.asarray(assets, dtype=int)])
-        return any(self._recompute._booked(int(k)) is None for k in sites)
+        return not all(self._recompute.covers(int(k)) for k in sites)
 
     def _shifted(self, options: np.ndarray, assets: np.ndarray) -> np.ndarray:
         """Which pairs are today's rows shifted (bool, (len(pairs),)): read without recomputing."""
