@@ -1347,6 +1347,29 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     return _finish(case, problems, mode)
 
 
+def _check_price_currency(options: pd.DataFrame | None, source: str, currency: str, problems: list[Problem]) -> None:
+    """Warn when options priced at the shipped illustrative prices (in EUR) count in another currency.
+
+    The shipped catalogue's prices (``illustrative`` true) are common-practice ranges in
+    :data:`models.options.ILLUSTRATIVE_PRICES_CURRENCY`; a case in another currency would take them as its
+    own amounts, unconverted. The check names the options and says what to do; it changes nothing.
+    """
+    if options is None or options.empty or "illustrative" not in options:
+        return
+    priced = options["illustrative"].fillna(False).astype(bool) & (options["technology"].astype(str) != "existing")
+    if currency == options_module.ILLUSTRATIVE_PRICES_CURRENCY or not priced.any():
+        return
+    ids = [str(x) for x in options.loc[priced, "option_id"]]
+    shown = ", ".join(ids[:6]) + (f" and {len(ids) - 6} more" if len(ids) > 6 else "")
+    problems.append(warning(
+        source, None, "illustrative", None,
+        f"{counted(len(ids), 'option')} ({shown}) carry the shipped illustrative prices, which are in "
+        f"{options_module.ILLUSTRATIVE_PRICES_CURRENCY} ({options_module.ILLUSTRATIVE_PRICES_YEAR}); this case counts "
+        f"in {currency} and takes them as {currency} amounts, unconverted",
+        f"put your own quotes in {currency} in the case's options table (and set illustrative to false), "
+        f"or convert the shipped prices to {currency}"))
+
+
 def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]:
     """Read and check a case; return it (None when any error was found) and every problem."""
     raw = io.read_case_files(path)
@@ -1397,6 +1420,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
     options_frame = None
     if "options" in checkers:
         options_frame = options_module.check_options(checkers["options"])
+        _check_price_currency(options_frame, checkers["options"].raw.source, settings.currency, problems)
     if "sites" in checkers and frames["sites"].empty:
         problems.append(error(checkers["sites"].raw.source, None, None, None, "the sites table has no rows",
                               "add one row per site (utility meter)"))

@@ -13,6 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+#: Currency and year of the shipped catalogue's illustrative prices (data/defaults/options.csv, its first line).
+ILLUSTRATIVE_PRICES_CURRENCY = "EUR"
+ILLUSTRATIVE_PRICES_YEAR = 2025
 #: Capital components, in the order they are reported.
 CAPEX_COMPONENTS: tuple[str, ...] = (
     "equipment", "drive", "remedy", "capacitor", "installation", "engineering", "contingency",

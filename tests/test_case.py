@@ -17,7 +17,8 @@ from models.case import load_case
 from models.profiles import conform
 from models.problems import CaseError
 
-TARIFFS = Path(__file__).resolve().parents[1] / "data" / "tariffs"
+ROOT = Path(__file__).resolve().parents[1]
+TARIFFS = ROOT / "data" / "tariffs"
 
 
 def _assets_with(row: int, column: str, value: str, header=None) -> list[list[str]]:
@@ -612,3 +613,31 @@ class TestFinanceWarnings:
         hit = _find(problems, file="finance.toml", column="budget_per_yr", severity="warning", text="plan buys nothing")
         assert hit.row == 2  # the line where budget_per_yr is written
         assert not [p for p in problems if "no finance assumptions" in p.rule]
+
+
+class TestIllustrativePriceCurrency:
+    """The shipped catalogue's illustrative prices are in EUR (data/defaults/options.csv, first line): a case in
+    another currency is warned that it takes them unconverted; nothing is changed."""
+
+    def test_a_case_in_usd_on_the_shipped_prices_is_warned(self, tmp_path):
+        toml = '[case]\nname = "x"\ncurrency = "USD"\ntime_zone = "Europe/Berlin"\n'
+        case, problems = load_case(cb.write_case(tmp_path / "c", case_toml=toml))
+        assert case is not None
+        found = _find(problems, column="illustrative", severity="warning")
+        assert found.severity == "warning" and found.file == "default options catalogue"
+        assert "which are in EUR (2025); this case counts in USD and takes them as USD amounts, unconverted" in found.rule
+        assert "quotes in USD" in found.hint
+        # the keep row prices nothing: every other shipped option is named or counted
+        shipped = pd.read_csv(ROOT / "data" / "defaults" / "options.csv", comment="#")
+        priced = int((shipped["technology"] != "existing").sum())
+        assert found.rule.startswith(f"{priced} options (")
+
+    def test_a_case_in_eur_or_with_its_own_prices_is_not(self, tmp_path):
+        _, problems = load_case(cb.write_case(tmp_path / "eur"))
+        assert not [p for p in problems if p.column == "illustrative"]
+        toml = '[case]\nname = "x"\ncurrency = "USD"\ntime_zone = "Europe/Berlin"\n'
+        folder = cb.write_case(tmp_path / "own", case_toml=toml)
+        shipped = (ROOT / "data" / "defaults" / "options.csv").read_text(encoding="utf-8")
+        (folder / "options.csv").write_text(shipped.replace(",true,", ",false,"), encoding="utf-8")
+        _, problems = load_case(folder)
+        assert not [p for p in problems if p.column == "illustrative"]
