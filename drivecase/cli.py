@@ -408,17 +408,24 @@ def cmd_report(args: argparse.Namespace) -> int:
 
     from models.pack import PackWarning
 
+    notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:  # the pack's notes as plain lines, not Python warnings
         warnings.simplefilter("always", PackWarning)
-        written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf)
+        written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf,
+                             messages=notes)
+    skipped = set()
     for note in caught:
         if issubclass(note.category, PackWarning):
             print(f"drivecase report: {note.message}", file=sys.stderr)
+            skipped.add(str(note.message))
         else:
             warnings.showwarning(note.message, note.category, note.filename, note.lineno)
     print(f"Capital-request pack written to {args.out}:")
     for path in written:
         print(f"  {path}")
+    for note in notes:
+        if note not in skipped:  # a skipped part was said above, on the error stream
+            print(f"  {note}")
     print(f"\n{CAUTION}")
     return 0
 

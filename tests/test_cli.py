@@ -321,8 +321,20 @@ def test_report_says_a_skipped_pdf_in_a_plain_line(tmp_path, capsys, monkeypatch
     _one_asset_case(folder)
     monkeypatch.setattr(pdf, "CHROMIUM_PATH", str(tmp_path / "no-such-browser"))
     assert main(["report", str(folder), "--out", str(tmp_path / "pack"), "--pdf"]) == 0
-    err = capsys.readouterr().err
-    assert "drivecase report: PDF skipped" in err and "PackWarning" not in err and "write_pack(" not in err
+    captured = capsys.readouterr()
+    assert "drivecase report: PDF skipped" in captured.err and "PackWarning" not in captured.err
+    assert "write_pack(" not in captured.err and "PDF skipped" not in captured.out  # said once, on the error stream
+
+
+def test_report_again_into_its_folder_says_what_it_removed(tmp_path, capsys):
+    # the demo's records of two assets, then of one: the other's record of the earlier pack goes, and is named
+    out = tmp_path / "pack"
+    assert main(["report", str(DEMO), "--out", str(out), "--assets", "HRW-P01,HRW-P02"]) == 0
+    capsys.readouterr()
+    assert main(["report", str(DEMO), "--out", str(out), "--assets", "HRW-P01"]) == 0
+    assert ("Removed 1 file of the earlier pack in this folder that this pack does not cover: "
+            "decision-records/HRW-P02.html.") in capsys.readouterr().out
+    assert sorted(p.name for p in (out / "decision-records").iterdir()) == ["HRW-P01.html"]
 
 
 def test_out_that_is_a_file_is_refused_before_any_work(tmp_path, capsys):

@@ -509,3 +509,36 @@ def test_plan_draws_histogram_marks_percentiles_in_the_money_format_and_leaves_a
     texts = [a.text for a in fig.layout.annotations]
     assert texts == ["P10 USD 190", "P50 USD 550", "P90 USD 910"]
     assert list(fig.layout.xaxis.range) == pytest.approx([64.0, 1036.0])
+
+
+class TestPackAgainInTheSameFolder:
+    def test_the_earlier_packs_records_not_covered_are_removed_and_others_kept(self, small, tmp_path):
+        case, result = small
+        write_pack(case, result, tmp_path, assets=["P1", "C1"], plan=False)
+        records = tmp_path / "decision-records"
+        assert sorted(p.name for p in records.iterdir()) == ["C1.html", "P1.html"]
+        mine = records / "my-notes.html"  # the user's own file, which no pack wrote
+        mine.write_text("<p>mine</p>", encoding="utf-8")
+        notes: list[str] = []
+        written = write_pack(case, result, tmp_path, assets=["P1"], plan=False, messages=notes)
+        assert sorted(p.name for p in records.iterdir()) == ["P1.html", "my-notes.html"]
+        assert mine.read_text(encoding="utf-8") == "<p>mine</p>"
+        assert "Removed 1 file of the earlier pack in this folder that this pack does not cover: " \
+               "decision-records/C1.html." in notes
+        assert any(n.startswith("The folder also holds 1 file this pack did not write") and "my-notes.html" in n
+                   for n in notes)
+        listed = (tmp_path / ".drivecase-pack").read_text(encoding="utf-8").split()
+        assert sorted(listed) == sorted(p.relative_to(tmp_path).as_posix() for p in written)
+
+    def test_a_list_naming_other_files_removes_nothing_of_them(self, small, tmp_path):
+        # the list is only trusted for the names a pack writes: a case file or a path outside stays
+        case, result = small
+        outside = tmp_path / "assets.csv"
+        outside.write_text("x", encoding="utf-8")
+        out = tmp_path / "pack"
+        out.mkdir()
+        (out / "assets.csv").write_text("y", encoding="utf-8")
+        (out / ".drivecase-pack").write_text("assets.csv\n../assets.csv\ndecision-records/../../assets.csv\n",
+                                             encoding="utf-8")
+        write_pack(case, result, out, assets=["P1"], plan=False)
+        assert outside.read_text(encoding="utf-8") == "x" and (out / "assets.csv").read_text(encoding="utf-8") == "y"

@@ -11,6 +11,9 @@ plan's projects, and writes into one folder:
 * ``decision-records/<asset>.html``: one printable page per asset (:mod:`models.pack.decision_record`).
 
 Every file is written atomically and only inside the output folder. docs/pack.md describes the contents.
+A pack also writes the list of its files (``.drivecase-pack``); writing a pack again into the same folder
+removes the files of the earlier pack that the new one does not cover (a decision record of an asset no
+longer asked for, a PDF not printed again), and only those: any other file is left and named in a note.
 """
 
 from __future__ import annotations
@@ -23,6 +26,7 @@ from models.pack.content import Scope, select_scope
 from models.pack.decision_record import record_file_name, render_decision_record
 from models.pack.report_html import render_report
 from models.pack.workbook import build_workbook
+from models.wording import counted
 
 __all__ = ["write_pack", "select_scope", "Scope", "PackWarning", "WORKBOOK_NAME", "REPORT_NAME", "PDF_NAME", "RECORDS_DIR"]
 
@@ -30,10 +34,52 @@ WORKBOOK_NAME = "capital-request.xlsx"
 REPORT_NAME = "capital-request.html"
 PDF_NAME = "capital-request.pdf"
 RECORDS_DIR = "decision-records"
+#: The list of the files a pack wrote, one relative path per line, kept in its folder.
+MANIFEST_NAME = ".drivecase-pack"
 
 
 class PackWarning(UserWarning):
     """A part of the pack was skipped (e.g. the PDF without a browser); the rest was written."""
+
+
+def _pack_file(relative: str) -> bool:
+    """Whether a relative path is one a pack writes (so one an earlier pack's list may name for removal)."""
+    parts = relative.split("/")
+    return (relative in (WORKBOOK_NAME, REPORT_NAME, PDF_NAME)
+            or (len(parts) == 2 and parts[0] == RECORDS_DIR and parts[1].endswith(".html") and not parts[1].startswith(".")))
+
+
+def _earlier_pack(out: Path) -> set[str]:
+    """The files the earlier pack in ``out`` wrote, from its list (empty without one)."""
+    try:
+        lines = (out / MANIFEST_NAME).read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError):
+        return set()
+    return {line.strip() for line in lines if _pack_file(line.strip())}
+
+
+def _tidy(out: Path, written: list[Path], notes: list[str]) -> None:
+    """Remove the earlier pack's files that this one did not write, note any other leftover, write the list."""
+    now = {path.relative_to(out).as_posix() for path in written}
+    removed = []
+    for relative in sorted(_earlier_pack(out) - now):
+        path = out / relative
+        if path.is_file() and not path.is_symlink() and path.resolve().is_relative_to(out.resolve()):
+            path.unlink()
+            removed.append(relative)
+    if removed:
+        notes.append(f"Removed {counted(len(removed), 'file')} of the earlier pack in this folder that this pack does "
+                     f"not cover: {', '.join(removed[:4])}{' and more' if len(removed) > 4 else ''}.")
+    records = out / RECORDS_DIR
+    others = sorted(p.relative_to(out).as_posix() for p in records.glob("*.html")
+                    if p.relative_to(out).as_posix() not in now) if records.is_dir() else []
+    if (out / PDF_NAME).is_file() and PDF_NAME not in now:
+        others.insert(0, PDF_NAME)
+    if others:
+        notes.append(f"The folder also holds {counted(len(others), 'file')} this pack did not write, left as they are "
+                     f"(an earlier pack's?): {', '.join(others[:4])}{' and more' if len(others) > 4 else ''}; write the "
+                     "pack to a new folder to have it alone.")
+    atomic_write_bytes(out / MANIFEST_NAME, ("\n".join(sorted(now)) + "\n").encode("utf-8"))
 
 
 def _inside(out: Path, path: Path) -> Path:
@@ -63,8 +109,8 @@ def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: boo
     pdf : bool
         Also print the report to PDF with headless Chromium; skipped with a message when unavailable.
     messages : list of str, optional
-        Receives notes for the user (e.g. whether the PDF was printed). A skipped PDF also raises a
-        :class:`PackWarning`.
+        Receives notes for the user (whether the PDF was printed; the earlier pack's files removed, other
+        files left in the folder). A skipped PDF also raises a :class:`PackWarning`.
 
     Returns
     -------
@@ -114,4 +160,5 @@ def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: boo
             written.insert(2, path)
         else:
             warnings.warn(message, PackWarning, stacklevel=2)
+    _tidy(out, written, notes)
     return written
