@@ -71,11 +71,18 @@ def cmd_check(args: argparse.Namespace) -> int:
         return 1
     s = case.settings
     print(f"Case: {s.name}{' (invented demo data)' if s.mark_invented else ''}")
-    print(f"  {len(case.assets)} assets, {case.assets['rated_p_kw'].sum():,.1f} kW installed, "
+    from models.case import power_label, rating_in_unit
+
+    unit = power_label(s.power_unit)  # motor ratings in the case's unit
+    print(f"  {len(case.assets)} assets, {rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.1f} {unit} installed, "
           f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}")
     summary = fleet_summary(case)
-    _print_table(summary["by_site"], "Installed power by site [kW]")
-    _print_table(summary["by_application"], "Installed power by application [kW]")
+    for key in ("by_site", "by_application"):
+        table = summary[key]
+        summary[key] = table.assign(installed_kw=rating_in_unit(table["installed_kw"], unit)).rename(
+            columns={"installed_kw": f"installed_{unit.lower()}"})
+    _print_table(summary["by_site"], f"Installed power by site [{unit}]")
+    _print_table(summary["by_application"], f"Installed power by application [{unit}]")
     _print_table(summary["defaulted"], "Defaulted fields (filled from class, size or application defaults)")
     _print_table(summary["quality"], "Mean data-quality score by site [%]")
     _print_problems(problems)

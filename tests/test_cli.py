@@ -32,7 +32,21 @@ def _edit_csv(path: Path, row_index: int, column: str, value: str) -> None:
 def test_check_demo_succeeds(capsys):
     assert main(["check", str(DEMO)]) == 0
     out = capsys.readouterr().out
-    assert "invented" in out and "Installed power by site" in out and "qualified persons" in out
+    assert "invented" in out and "Installed power by site [kW]" in out and "qualified persons" in out
+
+
+def test_check_gives_ratings_in_the_cases_unit(tmp_path, capsys):
+    # the demo declared in hp. Hand calculation from data/demo/assets.csv: 80 ratings in kW summing to 8,081.2 kW
+    # (10,837.07 hp) and two of 50 hp, so 10,937.1 hp installed (1 hp = 0.745699872 kW, NIST SP 811 B.9)
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    toml = (case / "case.toml").read_text(encoding="utf-8")
+    assert 'power_unit = "kW"' in toml
+    (case / "case.toml").write_text(toml.replace('power_unit = "kW"', 'power_unit = "hp"'), encoding="utf-8")
+    assert main(["check", str(case)]) == 0
+    out = capsys.readouterr().out
+    assert "10,937.1 hp installed" in out and "Installed power by site [hp]" in out
+    assert "Installed power by application [hp]" in out and "[kW]" not in out
 
 
 def test_broken_demo_copy_names_both_problems(tmp_path, capsys):
