@@ -1728,7 +1728,7 @@ class EndOfLifeSummary:
 
 def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
                         labels: dict | None = None, age_known: bool = True,
-                        rewind_count: float = 0.0) -> EndOfLifeSummary:
+                        rewind_count: float = 0.0, power_unit: str = "kW") -> EndOfLifeSummary:
     """Return the end-of-life comparison of one asset from the engine's end-of-life frame.
 
     Parameters
@@ -1751,6 +1751,8 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     rewind_count : float
         The motor's past rewinds [-]: the text says how much shorter its failure law counts its life
         (:func:`models.end_of_life.rewind_life_note`).
+    power_unit : {"kW", "hp"}
+        The case's unit, which the caution gives the size classes in.
 
     Returns
     -------
@@ -1827,7 +1829,8 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
                        "hour in the asset register to use your own.")
         else:
             second += f" ({basis})." if basis else "."
-    return EndOfLifeSummary(strategies, best, margin, " ".join(x for x in (first, second) if x), failure_law_caution())
+    return EndOfLifeSummary(strategies, best, margin, " ".join(x for x in (first, second) if x),
+                            failure_law_caution(power_unit=power_unit))
 
 
 def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
@@ -1839,7 +1842,7 @@ def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
     age_known = bool(len(installed)) and bool(pd.notna(installed.iloc[0]))
     rewinds = assets.loc[mine, "rewind_count"] if "rewind_count" in assets else pd.Series(dtype=float)
     return end_of_life_summary(result.end_of_life, asset_id, view_.currency, int(result.assumptions.horizon_yr),
-                               labels, age_known, float(rewinds.iloc[0]) if len(rewinds) else 0.0)
+                               labels, age_known, float(rewinds.iloc[0]) if len(rewinds) else 0.0, view_.power_unit)
 
 
 #: Each repair-or-replace decision of :func:`models.end_of_life.fleet_rules` in plain words.

@@ -751,7 +751,8 @@ def rewind_life_note(rewind_count: float) -> str:
     return f"Rewound {times}: its failure law counts a life {cut_pct:.0f} % shorter than a motor never rewound."
 
 
-def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, brief: bool = False) -> str:
+def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, brief: bool = False,
+                        power_unit: str = "kW") -> str:
     """Return the caution that goes with every end-of-life cost: expectations, not a forecast.
 
     Parameters
@@ -760,6 +761,8 @@ def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, b
         The failure laws the costs were weighted with, sorted by ``max_rated_p_kw``.
     brief : bool
         The short form for a one-page record: the same points without the mean life of each class.
+    power_unit : {"kW", "hp"}
+        Unit the size classes' bounds are given in (the case's).
 
     Returns
     -------
@@ -778,17 +781,25 @@ def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, b
     --------
     >>> failure_law_caution()[:60]
     'Expected present costs over a failure-age distribution, not '
+    >>> failure_law_caution(power_unit="hp").split("(mean life ")[1][:48]
+    'up to 10.1 hp 12.4 yr, 10.1-100.6 hp 17.7 yr, ab'
     >>> failure_law_caution(brief=True)
     'Costs (capital, running, expected downtime) are expectations over common practice failure laws (10 % less life per past rewind), not a forecast of when this motor will fail.'
     """
+    hp = str(power_unit).lower() == "hp"
+    unit = "hp" if hp else "kW"
+
+    def shown(p_kw: float) -> str:
+        return f"{round(p_kw / HP_TO_KW, 1):g}" if hp else f"{p_kw:g}"
+
     bands, low_kw = [], 0.0
     for c in classes:
         if math.isinf(c.max_rated_p_kw):
-            span = f"above {low_kw:g} kW"
+            span = f"above {shown(low_kw)} {unit}"
         elif low_kw == 0.0:
-            span = f"up to {c.max_rated_p_kw:g} kW"
+            span = f"up to {shown(c.max_rated_p_kw)} {unit}"
         else:
-            span = f"{low_kw:g}-{c.max_rated_p_kw:g} kW"
+            span = f"{shown(low_kw)}-{shown(c.max_rated_p_kw)} {unit}"
         bands.append(f"{span} {c.mean_life_yr:.1f} yr")
         low_kw = c.max_rated_p_kw
     cut_pct = 100.0 * (1.0 - LIFE_KEPT_PER_REWIND_FRAC)

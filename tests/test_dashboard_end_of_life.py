@@ -86,6 +86,12 @@ class TestSummary:
         assert "Rewound once: its failure law counts a life 10 % shorter than a motor never rewound." in once
         assert "Rewound" not in services.end_of_life_summary(eol_frame(), "P1", "EUR", 15).text
 
+    def test_the_caution_gives_the_size_classes_in_the_cases_unit(self):
+        # 7.5 and 75 kW are 10.1 and 100.6 hp (1 hp = 0.745699872 kW, NIST SP 811 B.9)
+        s = services.end_of_life_summary(eol_frame(), "P1", "USD", 15, power_unit="hp")
+        assert "up to 10.1 hp 12.4 yr, 10.1-100.6 hp 17.7 yr, above 100.6 hp 24.8 yr" in s.caution
+        assert " kW" not in s.caution
+
     def test_only_the_costs_give_only_the_first_sentence(self):
         frame = eol_frame()[["asset_id", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure"]]
         s = services.end_of_life_summary(frame, "P1", "EUR", 15)

@@ -649,7 +649,7 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
                 ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
                 ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
         row = _table(ws, row, frame, cols)
-        put_text(ws, row, 1, failure_law_caution())
+        put_text(ws, row, 1, failure_law_caution(power_unit=case_power_unit))
         row += 2
     put_text(ws, row, 1, "Repair-or-replace policy for the fleet").font = _BOLD
     rules = result.fleet_rules
