@@ -659,7 +659,9 @@ def fleet_rules(
     -------
     pandas.DataFrame
         One row per run of consecutive grid sizes sharing the same decision threshold, with
-        ``min_rated_p_kw`` and ``max_rated_p_kw`` [kW], ``min_hours_to_replace_h_per_yr`` [h/yr] (0 =
+        ``min_rated_p_kw`` and ``max_rated_p_kw`` [kW] (the bands follow on: every row after the first starts
+        above the row before's ``max_rated_p_kw``, which is its ``min_rated_p_kw``, so a motor between two
+        grid sizes falls under the larger size's rule), ``min_hours_to_replace_h_per_yr`` [h/yr] (0 =
         replace at any grid hours, ``inf`` = rewind at every grid hours), ``decision`` and ``rule``
         (plain words). The thresholds are grid values: refine the grid for finer rules.
 
@@ -707,27 +709,34 @@ def fleet_rules(
     start = 0
     for i in range(1, m + 1):
         if i == m or threshold[i] != threshold[start]:
-            rows.append(_rule_row(sizes[start], sizes[i - 1], threshold[start], hours[-1], power_unit))
+            # bands follow on: a row after the first starts above the last size of the row before, so a motor
+            # between two grid sizes falls under the larger size's rule (the grid's resolution)
+            rows.append(_rule_row(sizes[start] if not rows else sizes[start - 1], sizes[i - 1], threshold[start],
+                                  hours[-1], power_unit, above=bool(rows)))
             start = i
     return pd.DataFrame(rows, columns=["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr",
                                        "decision", "rule"])
 
 
 def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: float,
-              power_unit: str = "kW") -> dict[str, Any]:
-    """One policy row in plain words, its sizes in ``power_unit``."""
+              power_unit: str = "kW", above: bool = False) -> dict[str, Any]:
+    """One policy row in plain words, its sizes in ``power_unit``; with ``above`` the band starts above
+    ``low_kw`` (the last size of the row before), else at it."""
     low, high = (round(low_kw / HP_TO_KW, 2), round(high_kw / HP_TO_KW, 2)) if power_unit == "hp" else (low_kw, high_kw)
     unit = "hp" if power_unit == "hp" else "kW"
-    span = f"{low:g} {unit}" if low_kw == high_kw else f"{low:g}-{high:g} {unit}"
+    if above:
+        span = f"above {low:g} {unit}, up to {high:g} {unit}"
+    else:
+        span = "of " + (f"{low:g} {unit}" if low_kw == high_kw else f"{low:g}-{high:g} {unit}")
     if threshold_h == 0.0:
         decision = "replace"
-        rule = f"Motors of {span}: replace rather than rewind, whatever the running hours."
+        rule = f"Motors {span}: replace rather than rewind, whatever the running hours."
     elif np.isinf(threshold_h):
         decision = "rewind"
-        rule = f"Motors of {span}: rewind rather than replace, up to {max_hours_h:,.0f} h/yr."
+        rule = f"Motors {span}: rewind rather than replace, up to {max_hours_h:,.0f} h/yr."
     else:
         decision = "replace_above_hours"
-        rule = (f"Motors of {span}: replace rather than rewind when running {threshold_h:,.0f} h/yr or more; "
+        rule = (f"Motors {span}: replace rather than rewind when running {threshold_h:,.0f} h/yr or more; "
                 f"rewind below that.")
     return {"min_rated_p_kw": float(low_kw), "max_rated_p_kw": float(high_kw),
             "min_hours_to_replace_h_per_yr": float(threshold_h), "decision": decision, "rule": rule}

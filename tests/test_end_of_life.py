@@ -158,6 +158,10 @@ class TestFleetRules:
         assert rules["min_hours_to_replace_h_per_yr"].tolist() == [0.0, 400.0, np.inf]
         assert rules["decision"].tolist() == ["replace", "replace_above_hours", "rewind"]
         assert "400 h/yr" in rules["rule"].iloc[1] and "10 kW" in rules["rule"].iloc[1]
+        # the bands follow on: 5 kW, above 5 up to 10 kW, above 10 up to 100 kW (no motor between falls outside)
+        assert rules["min_rated_p_kw"].tolist() == [5.0, 5.0, 10.0] and rules["max_rated_p_kw"].tolist() == [5.0, 10.0, 100.0]
+        assert rules["rule"].iloc[0].startswith("Motors of 5 kW: replace")
+        assert rules["rule"].iloc[2].startswith("Motors above 10 kW, up to 100 kW: rewind")
 
     def test_sizes_with_same_threshold_merge(self):
         rules = eol.fleet_rules(
