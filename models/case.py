@@ -74,6 +74,8 @@ class CaseSettings:
     time_zone: str = "UTC"
     invented: bool = False
     region: str = "EU"
+    #: False when the case gave no region and the default (EU) was taken.
+    region_declared: bool = True
 
     @property
     def mark_invented(self) -> bool:
@@ -472,6 +474,7 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
         region = "EU"
     return CaseSettings(
         region=region,
+        region_declared="region" in data,
         name=str(data.get("name", default_name)),
         description=str(data.get("description", "")),
         currency=currency,
@@ -1347,6 +1350,25 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     return _finish(case, problems, mode)
 
 
+def _check_region_against_frequency(settings: CaseSettings, source: str, assets: pd.DataFrame,
+                                    problems: list[Problem]) -> None:
+    """Warn when a case gives no region, so the EU's minimum-efficiency rules are taken, yet most of its
+    motors run at 60 Hz (the supply of the Americas, parts of Asia): the rules decide which new motors
+    can still be bought and the baseline of a replacement at failure. Changes nothing."""
+    if settings.region_declared or "supply_f_hz" not in assets:
+        return
+    f_hz = pd.to_numeric(assets["supply_f_hz"], errors="coerce").to_numpy(dtype=float)
+    n60, n50 = int(np.sum(f_hz == 60)), int(np.sum(f_hz == 50))
+    if n60 <= n50:
+        return
+    problems.append(warning(
+        source, None, "region", None,
+        f"no region declared, so the EU's minimum-efficiency rules for new motors are assumed, but {n60} of "
+        f"{n60 + n50} motors with a supply frequency run at 60 Hz",
+        'declare the region whose rules apply under [case], e.g. region = "US" (one of '
+        f"{', '.join(REGIONS)})"))
+
+
 def _check_price_currency(options: pd.DataFrame | None, source: str, currency: str, problems: list[Problem]) -> None:
     """Warn when options priced at the shipped illustrative prices (in EUR) count in another currency.
 
@@ -1432,6 +1454,8 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
                                   "add one row per motor"))
     if "sites" in checkers and "assets" in checkers:
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
+    if "assets" in checkers:
+        _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
     for checker in checkers.values():
         problems.extend(checker.problems)
     problems = ordered(_with_toml_lines(raw, problems))

@@ -1125,6 +1125,8 @@ currency = "EUR"
 power_unit = "kW"
 # IANA time zone of the sites; naive timestamps in profiles are read in this zone.
 time_zone = "Europe/Berlin"
+# Whose minimum-efficiency rules apply to new motors: "EU", "US", "CN" or "OTHER".
+region = "EU"
 """
 
 #: The example tariff a new case folder starts with (an invented one from data/tariffs, to replace).
@@ -1280,7 +1282,7 @@ def _write_blank_workbook(path: Path) -> Path:
     settings = book.create_sheet("case")
     settings.append(["key", "value"])
     for key, value in (("name", "My motor fleet"), ("description", ""), ("currency", "EUR"), ("power_unit", "kW"),
-                       ("time_zone", "Europe/Berlin")):
+                       ("time_zone", "Europe/Berlin"), ("region", "EU")):
         settings.append([key, value])
     for table in CASE_TABLES:
         sheet = book.create_sheet(table)

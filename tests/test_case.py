@@ -641,3 +641,30 @@ class TestIllustrativePriceCurrency:
         (folder / "options.csv").write_text(shipped.replace(",true,", ",false,"), encoding="utf-8")
         _, problems = load_case(folder)
         assert not [p for p in problems if p.column == "illustrative"]
+
+
+class TestRegionAgainstFrequency:
+    """With no region declared the EU's rules are taken; a fleet mostly at 60 Hz is told to declare one."""
+
+    @staticmethod
+    def _sixty_hz(tmp_path, toml):
+        assets = [list(row) for row in cb.ASSETS]
+        for row in assets:
+            row[6] = "60"  # supply_f_hz
+            row[11] = ""  # rated_speed_rpm: the 50 Hz speeds would not fit
+        return cb.write_case(tmp_path, assets=assets, case_toml=toml)
+
+    def test_no_region_and_60_hz_motors_is_warned(self, tmp_path):
+        case, problems = load_case(self._sixty_hz(tmp_path / "c", cb.CASE_TOML))
+        assert case is not None and case.settings.region == "EU" and not case.settings.region_declared
+        found = _find(problems, column="region", severity="warning")
+        assert found.file == "case.toml"
+        assert found.rule.endswith("but 3 of 3 motors with a supply frequency run at 60 Hz")
+        assert 'region = "US"' in found.hint
+
+    def test_a_declared_region_or_a_50_hz_fleet_is_not(self, tmp_path):
+        toml = cb.CASE_TOML + 'region = "US"\n'
+        case, problems = load_case(self._sixty_hz(tmp_path / "us", toml))
+        assert case.settings.region == "US" and not [p for p in problems if p.column == "region"]
+        _, problems = load_case(cb.write_case(tmp_path / "eu"))
+        assert not [p for p in problems if p.column == "region"]
