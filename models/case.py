@@ -299,6 +299,10 @@ class _TableChecker:
                     repaired.setdefault(note, []).append(i)
                 elif note is not None:
                     hint = f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number"
+                    if note.startswith("ambiguous"):
+                        written = str(value).strip()
+                        hint = (f"write {written.replace(',', '')} without the comma, or {written.replace(',', '.')} "
+                                f"if the comma is a decimal mark ({hint})")
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"
                     rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
@@ -355,7 +359,8 @@ class _TableChecker:
                 if name == "efficiency_class":
                     text = text.upper() if text.lower() != "unknown" else "unknown"
                 if text not in allowed:
-                    self.err(i, name, value, f"'{name}' must be one of: {', '.join(allowed)}", "check the spelling")
+                    self.err(i, name, value, f"'{name}' must be one of: {', '.join(allowed)}",
+                             (_class_name_hint(value) if name == "efficiency_class" else "") or "check the spelling")
                     out.append(None)
                 else:
                     out.append(text)
@@ -370,6 +375,34 @@ class _TableChecker:
             else:
                 out_text.append(str(value).strip())
         return pd.Series(out_text, dtype=object)
+
+
+#: Efficiency class names of other schemes and the IE class each corresponds to (common practice: the
+#: IEC 60034-30-1 levels were set beside them, IE1 standard, IE2 high, IE3 premium, IE4 super premium
+#: efficiency; equivalences from memory), tried in order on the lower-case text.
+CLASS_NAME_EQUIVALENTS: tuple[tuple[str, str], ...] = (
+    ("super premium", "IE4"), ("super-premium", "IE4"), ("premium", "IE3"), ("epact", "IE2"),
+    ("energy efficient", "IE2"), ("high efficiency", "IE2"), ("eff1", "IE2"), ("eff2", "IE1"),
+    ("standard", "IE1"),
+)
+
+
+def _class_name_hint(value: object) -> str:
+    """A hint for an efficiency class written in another scheme's words ("" when none matches).
+
+    Examples
+    --------
+    >>> _class_name_hint("NEMA Premium")
+    "'NEMA Premium' corresponds to IE3 (IEC 60034-30-1: IE1 standard, IE2 high, IE3 premium, IE4 super premium efficiency): write IE3"
+    >>> _class_name_hint("IE9")
+    ''
+    """
+    text = str(value).strip().lower()
+    for words, ie in CLASS_NAME_EQUIVALENTS:
+        if words in text:
+            return (f"'{str(value).strip()}' corresponds to {ie} (IEC 60034-30-1: IE1 standard, IE2 high, IE3 premium, "
+                    f"IE4 super premium efficiency): write {ie}")
+    return ""
 
 
 def _missing_column_hint(name: str, unknown: list[str], table: str | None = None) -> str:
@@ -924,7 +957,9 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
         checker.err(i, column, kw[i] if column == "rated_p_kw" else hp[i],
                     f"a {rated_kw[i]:,.6g} kW motor at {volts[i]:,.6g} V would draw about {current_a[i]:,.0f} A, "
                     f"more than any motor of that voltage (plausible up to {MAX_PLAUSIBLE_CURRENT_A:,.0f} A)",
-                    "is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?")
+                    ("is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?"
+                     if column == "rated_p_kw" else
+                     "is the rating in hp? or is rated_v_v in kV rather than V? multiply it by 1000"))
     # a drive's saving on a throttled pump or fan depends most on the static share of its head: a blank one
     # takes the application default, which suits friction-dominated systems (ducts, circulating loops) only
     static = a["static_head_frac"].to_numpy(dtype=float)

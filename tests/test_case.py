@@ -668,3 +668,35 @@ class TestRegionAgainstFrequency:
         assert case.settings.region == "US" and not [p for p in problems if p.column == "region"]
         _, problems = load_case(cb.write_case(tmp_path / "eu"))
         assert not [p for p in problems if p.column == "region"]
+
+
+class TestHintsForOtherConventions:
+    """Hints that meet values written in another convention (US nameplates, thousands commas, hp columns)."""
+
+    @staticmethod
+    def _with(tmp_path, column, value, asset=0, header=None):
+        head = list(header or cb.ASSET_HEADER)
+        assets = [list(row) for row in cb.ASSETS]
+        assets[asset][head.index(column)] = value
+        return load_case(cb.write_case(tmp_path, assets=assets, asset_header=head))[1]
+
+    def test_a_nema_class_name_is_given_its_ie_class(self, tmp_path):
+        # common practice: NEMA Premium was set beside IE3 (IEC 60034-30-1 names IE3 "premium efficiency")
+        found = _find(self._with(tmp_path, "efficiency_class", "NEMA Premium"), column="efficiency_class", row=2)
+        assert found.hint.startswith("'NEMA Premium' corresponds to IE3") and found.hint.endswith("write IE3")
+        other = _find(self._with(tmp_path / "b", "efficiency_class", "IE9"), column="efficiency_class", row=2)
+        assert other.hint == "check the spelling"
+
+    def test_a_thousands_comma_says_how_to_write_the_number(self, tmp_path):
+        found = _find(self._with(tmp_path, "operating_h_per_yr", "6,000", asset=1), column="operating_h_per_yr", row=3)
+        assert found.hint == "write 6000 without the comma, or 6.000 if the comma is a decimal mark (unit: h/yr)"
+
+    def test_an_implausible_current_on_a_rating_in_hp_does_not_speak_of_watts(self, tmp_path):
+        # 500 hp = 372.85 kW at 4.16 V: about 51,700 A, so the voltage was given in kV
+        header = [("rated_p_hp" if h == "rated_p_kw" else h) for h in cb.ASSET_HEADER]
+        assets = [list(row) for row in cb.ASSETS]
+        assets[0][header.index("rated_p_hp")] = "500"
+        assets[0][header.index("rated_v_v")] = "4.16"
+        _, problems = load_case(cb.write_case(tmp_path, assets=assets, asset_header=header))
+        found = _find(problems, column="rated_p_hp", row=2, text="would draw")
+        assert "W rather than kW" not in found.hint and "kV rather than V" in found.hint
