@@ -38,6 +38,10 @@ CLASS_BY_YEAR: tuple[tuple[int, str, str], ...] = (
     (2011, "IE2", "IE3"),
     (2017, "IE3", "IE3"),
 )
+#: First year a mandatory minimum efficiency applied to new motors, by supply frequency [Hz] -> year: 60 Hz the
+#: US EPAct 1992 levels (in force October 1997, 10 CFR 431.25), 50 Hz the EU's Regulation 640/2009 (IE2 from
+#: June 2011). A class assumed from an earlier year is the typical motor of its time, not a rule's minimum.
+RULE_START_YEAR: dict[int, int] = {50: 2011, 60: 1997}
 #: Motors older than this year predate efficiency rules; their losses are taken 15 % above IE1
 #: (common practice for old standard motors, value from memory).
 PRE_RULE_YEAR = 1995
@@ -178,7 +182,11 @@ def default_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class, year_insta
         np.where(known, np.char.add(np.asarray(use_cls, dtype=str), " minimum plus a typical catalogue margin"),
                  np.where(old, "pre-regulation motor: IE1 losses plus 15 % (common practice)",
                           np.where(np.isnan(year), np.char.add(np.asarray(use_cls, dtype=str), " assumed: class and year unknown"),
-                                   np.char.add(np.asarray(use_cls, dtype=str), " assumed from the year installed (regulatory minimum then)")))))
+                                   np.char.add(np.asarray(use_cls, dtype=str), np.where(
+                                       year >= np.where(f == 60, RULE_START_YEAR[60], RULE_START_YEAR[50]),
+                                       " assumed from the year installed (regulatory minimum then)",
+                                       " assumed from the year installed (typical of motors then; no minimum "
+                                       "applied yet)"))))))
     return np.round(eta, 2), basis.astype(object)
 
 

@@ -520,6 +520,21 @@ class TestDefaults:
         # first the catalogue margin: 100 - 0.9 * 7.3 = 93.43 ... but 1995 is not before the 1995 rule year, so
         # the margin applies (hand calculation, docs/derivations/case-defaults.md)
         assert_allclose(case.assets.loc[2, "rated_efficiency_pct"], 93.43, atol=0.005)
+        # no rule applied to a new 50 Hz motor in 1995 (the EU's first minimum came in June 2011, Regulation
+        # 640/2009): the log says IE1 is the typical motor of its time, not a minimum then
+        logged = case.defaults[(case.defaults.asset_id == "C1") & (case.defaults.column == "rated_efficiency_pct")]
+        assert logged["basis"].iloc[0] == ("IE1 assumed from the year installed (typical of motors then; no minimum "
+                                           "applied yet)")
+
+    def test_the_basis_says_whether_a_rule_applied_in_the_year(self):
+        # 60 Hz: the EPAct 1992 levels applied from October 1997 (10 CFR 431.25), so a 1996 motor is the typical
+        # motor of its time and a 1998 one at the minimum then (IE2); 50 Hz: the EU's first minimum came in 2011
+        from models.defaults import default_efficiency_pct
+
+        _, basis = default_efficiency_pct([10.0] * 4, [4] * 4, [60, 60, 50, 50], ["unknown"] * 4,
+                                          [1996, 1998, 2005, 2012], ["induction"] * 4)
+        assert [b.split(" assumed")[0] for b in basis] == ["IE1", "IE2", "IE1", "IE2"]
+        assert ["regulatory minimum then" in b for b in basis] == [False, True, False, True]
 
     def test_speed_default_from_typical_slip(self, tmp_path):
         case, _ = load_case(cb.write_case(tmp_path / "c"), mode="strict")
