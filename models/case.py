@@ -959,7 +959,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
                     f"more than any motor of that voltage (plausible up to {MAX_PLAUSIBLE_CURRENT_A:,.0f} A)",
                     ("is the rating in W rather than kW? divide by 1000; or is rated_v_v in kV rather than V?"
                      if column == "rated_p_kw" else
-                     "is the rating in hp? or is rated_v_v in kV rather than V? multiply it by 1000"))
+                     "is rated_v_v in kV rather than V? multiply it by 1000; or is the rating in another unit than hp?"))
     # a drive's saving on a throttled pump or fan depends most on the static share of its head: a blank one
     # takes the application default, which suits friction-dominated systems (ducts, circulating loops) only
     static = a["static_head_frac"].to_numpy(dtype=float)
