@@ -1887,23 +1887,24 @@ def fleet_rule_rows(result, power_unit: str = "kW") -> pd.DataFrame:
     ----------
     result : models.scenario.ScenarioResult
     power_unit : {"kW", "hp"}
-        The case's unit: the two rating columns are given in it (their names keep the engine's).
+        The case's unit, which the two rating columns are given in.
 
     Returns
     -------
     pandas.DataFrame
-        min_rated_p_kw, max_rated_p_kw [kW or hp], min_hours_to_replace_h_per_yr [h/yr] (NaN where rewinding
+        from_rating and to_rating (the band's ratings in the case's unit, kW or hp, as the fleet table's
+        ``rating``), min_hours_to_replace_h_per_yr [h/yr] (NaN where rewinding
         wins at every hours of the grid: no threshold), decision (plain words) and rule. Empty (with these
         columns) when the engine has no policy.
     """
-    columns = ["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr", "decision", "rule"]
+    columns = ["from_rating", "to_rating", "min_hours_to_replace_h_per_yr", "decision", "rule"]
     rules = result.fleet_rules
     if rules is None or rules.empty:
         return pd.DataFrame(columns=columns)
     hours = rules["min_hours_to_replace_h_per_yr"].to_numpy(dtype=float)
     return pd.DataFrame({
-        "min_rated_p_kw": np.round(rating_in_unit(rules["min_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
-        "max_rated_p_kw": np.round(rating_in_unit(rules["max_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
+        "from_rating": np.round(rating_in_unit(rules["min_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
+        "to_rating": np.round(rating_in_unit(rules["max_rated_p_kw"].to_numpy(dtype=float), power_unit), 2),
         "min_hours_to_replace_h_per_yr": np.where(np.isfinite(hours), hours, np.nan),
         "decision": [FLEET_RULE_DECISIONS.get(d, d) for d in rules["decision"]],
         "rule": rules["rule"].to_numpy(dtype=object)})

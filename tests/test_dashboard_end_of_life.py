@@ -123,14 +123,14 @@ class TestFleetRules:
         assert rows["decision"].tolist() == ["replace", "replace from the hours shown, rewind below", "rewind"]
         assert rows["min_hours_to_replace_h_per_yr"].iloc[:2].tolist() == [0.0, 4000.0]
         assert math.isnan(rows["min_hours_to_replace_h_per_yr"].iloc[2])  # inf: rewind at every hours
-        assert rows["min_rated_p_kw"].tolist() == [0.75, 5.5, 200.0] and rows["rule"].tolist() == ["a", "b", "c"]
+        assert rows["from_rating"].tolist() == [0.75, 5.5, 200.0] and rows["rule"].tolist() == ["a", "b", "c"]
 
     def test_ratings_in_the_cases_unit(self):
         # 7.457 kW and 74.57 kW are 10 and 100 hp (1 hp = 0.745699872 kW, NIST SP 811 B.9)
         rules = pd.DataFrame({"min_rated_p_kw": [7.45699872], "max_rated_p_kw": [74.5699872],
                               "min_hours_to_replace_h_per_yr": [0.0], "decision": ["replace"], "rule": ["a"]})
         rows = services.fleet_rule_rows(SimpleNamespace(fleet_rules=rules), "hp")
-        assert rows["min_rated_p_kw"].tolist() == [10.0] and rows["max_rated_p_kw"].tolist() == [100.0]
+        assert rows["from_rating"].tolist() == [10.0] and rows["to_rating"].tolist() == [100.0]
         result = SimpleNamespace(fleet_rules=rules, assumptions=SimpleNamespace(downtime_cost_per_h=0.0))
         text = services.fleet_rules_scope_text(result, [7.0, 74.5699872, 80.0], "USD", "hp")
         assert text.startswith("It covers standard ratings from 10 to 100 hp; 1 motor of the case is larger")

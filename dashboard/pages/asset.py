@@ -167,8 +167,8 @@ def update(asset_id, session, edits, requested=None):
 def fleet_rule_columns(power_unit: str = "kW") -> list[dict]:
     """Columns of the repair-or-replace policy grid (the pack's workbook headers), ratings in the case's unit."""
     unit = services.power_label(power_unit)
-    return [ui.rating_col("min_rated_p_kw", f"From rating [{unit}]", maxWidth=150),
-            ui.rating_col("max_rated_p_kw", f"To rating [{unit}]", maxWidth=150),
+    return [ui.rating_col("from_rating", f"From rating [{unit}]", maxWidth=150),
+            ui.rating_col("to_rating", f"To rating [{unit}]", maxWidth=150),
             ui.number_col("min_hours_to_replace_h_per_yr", "Replace rather than rewind from [h/yr]", minWidth=170,
                           maxWidth=220),
             ui.long_text_col("decision", "Decision", minWidth=180),
