@@ -43,6 +43,18 @@ def rating_in_unit(p_kw, power_unit: str):
     """
     return p_kw / HP_TO_KW if power_label(power_unit) == "hp" else p_kw
 
+def usual_supply_hz(f_hz) -> int:
+    """The supply frequency most of a fleet's motors give [Hz]: 60 when more give 60 than 50, else 50.
+
+    Examples
+    --------
+    >>> usual_supply_hz([60, 60, 50, float("nan")]), usual_supply_hz([50, 60]), usual_supply_hz([])
+    (60, 50, 50)
+    """
+    f = pd.to_numeric(pd.Series(np.asarray(f_hz, dtype=object).ravel()), errors="coerce").to_numpy(dtype=float)
+    return 60 if int(np.sum(f == 60)) > int(np.sum(f == 50)) else 50
+
+
 MAX_HOURS_PER_YR = 8784.0  # hours in a leap year
 MAX_LOAD_PCT = 125.0
 ALLOWED_RESOLUTIONS_MIN = (15, 30, 60)
@@ -1390,12 +1402,10 @@ def _check_region_against_frequency(settings: CaseSettings, source: str, assets:
     """Warn when a case gives no region, so the EU's minimum-efficiency rules are taken, yet most of its
     motors run at 60 Hz (the supply of the Americas, parts of Asia): the rules decide which new motors
     can still be bought and the baseline of a replacement at failure. Changes nothing."""
-    if settings.region_declared or "supply_f_hz" not in assets:
+    if settings.region_declared or "supply_f_hz" not in assets or usual_supply_hz(assets["supply_f_hz"]) != 60:
         return
     f_hz = pd.to_numeric(assets["supply_f_hz"], errors="coerce").to_numpy(dtype=float)
     n60, n50 = int(np.sum(f_hz == 60)), int(np.sum(f_hz == 50))
-    if n60 <= n50:
-        return
     problems.append(warning(
         source, None, "region", None,
         f"no region declared, so the EU's minimum-efficiency rules for new motors are assumed, but {n60} of "

@@ -20,6 +20,7 @@ import pandas as pd
 from models import cashflows as cf
 from models import end_of_life, finance, plan, reactive_plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
+from models.case import usual_supply_hz
 from models.memory import retaining_memory
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
                               _SiteRecompute, kept_rows,
@@ -898,8 +899,7 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     sizes = end_of_life.policy_sizes_kw(float(np.nanmax(rated)) if np.isfinite(rated).any() else 0.0, unit)
     hours = np.array([1000, 2000, 4000, 6000, 8000])
     # the fleet's usual supply frequency: the 50 Hz or the 60 Hz class tables (4-pole, the commonest)
-    f_hz = case.assets["supply_f_hz"].to_numpy(dtype=float)
-    f_hz = 60 if np.sum(f_hz == 60) > np.sum(f_hz == 50) else 50
+    f_hz = usual_supply_hz(case.assets["supply_f_hz"])
     new_row = options[tech == "induction"].iloc[0]
     rewind_row = options[tech == "rewind"].iloc[0]
     cost = lambda row: capital_cost(pd.DataFrame([row]), sizes).total[:, 0]  # noqa: E731
