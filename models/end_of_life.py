@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 from scipy.special import gamma, gammaincc
 
-from models.case import HP_TO_KW
+from models.case import HP_TO_KW, power_label, rating_in_unit
 
 #: Strategy names, in the column order of :func:`strategy_costs`.
 STRATEGIES: tuple[str, ...] = ("replace_now", "replace_at_failure", "rewind_at_failure")
@@ -107,10 +107,11 @@ def policy_sizes_kw(largest_rated_kw: float, power_unit: str = "kW") -> np.ndarr
     >>> round(float(policy_sizes_kw(400.0 * 0.745699872, "hp")[-1]), 1)  # 400 hp: up to 500 hp
     372.8
     """
-    grid = np.asarray(POLICY_SIZES_HP, dtype=float) * HP_TO_KW if power_unit == "hp" else np.asarray(POLICY_SIZES_KW)
+    unit = power_label(power_unit)
+    grid = np.asarray(POLICY_SIZES_HP, dtype=float) * HP_TO_KW if unit == "hp" else np.asarray(POLICY_SIZES_KW)
     largest = float(largest_rated_kw) if np.isfinite(largest_rated_kw) else 0.0
     reach = int(np.searchsorted(grid, largest * (1.0 - 1e-9), side="left")) + 1
-    return grid[:min(max(reach, POLICY_MIN_SIZES["hp" if power_unit == "hp" else "kW"]), grid.size)]
+    return grid[:min(max(reach, POLICY_MIN_SIZES[unit]), grid.size)]
 
 
 def _positive(values: Any, name: str) -> np.ndarray:
@@ -722,8 +723,8 @@ def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: fl
               power_unit: str = "kW", above: bool = False) -> dict[str, Any]:
     """One policy row in plain words, its sizes in ``power_unit``; with ``above`` the band starts above
     ``low_kw`` (the last size of the row before), else at it."""
-    low, high = (round(low_kw / HP_TO_KW, 2), round(high_kw / HP_TO_KW, 2)) if power_unit == "hp" else (low_kw, high_kw)
-    unit = "hp" if power_unit == "hp" else "kW"
+    unit = power_label(power_unit)
+    low, high = (round(float(rating_in_unit(p_kw, unit)), 2) for p_kw in (low_kw, high_kw))
     if above:
         span = f"above {low:g} {unit}, up to {high:g} {unit}"
     else:
@@ -795,11 +796,10 @@ def failure_law_caution(classes: tuple[LifeClass, ...] = DEFAULT_LIFE_CLASSES, b
     >>> failure_law_caution(brief=True)
     'Costs (capital, running, expected downtime) are expectations over common practice failure laws (10 % less life per past rewind), not a forecast of when this motor will fail.'
     """
-    hp = str(power_unit).lower() == "hp"
-    unit = "hp" if hp else "kW"
+    unit = power_label(power_unit)
 
     def shown(p_kw: float) -> str:
-        return f"{round(p_kw / HP_TO_KW, 1):g}" if hp else f"{p_kw:g}"
+        return f"{round(float(rating_in_unit(p_kw, unit)), 1):g}" if unit == "hp" else f"{p_kw:g}"
 
     bands, low_kw = [], 0.0
     for c in classes:
