@@ -332,8 +332,12 @@ def _print_run_summary(case, result) -> None:
     best = r[r["best_for_asset"] & (r["capital"] > 0)]
     plan = result.plan
     chosen = r.set_index(["asset_id", "option_id"]).loc[list(zip(plan["asset_id"], plan["option_id"]))] if len(plan) else r.iloc[:0]
+    from models.case import power_label, rating_in_unit
+
+    unit = power_label(case.settings.power_unit)  # motor ratings in the case's unit; meters and energy stay in kW
     print(f"\nCase: {case.settings.name}")
-    print(f"  {len(case.assets)} assets; best option differs from today's motor for {len(best)} of them")
+    print(f"  {len(case.assets)} assets ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} installed); "
+          f"best option differs from today's motor for {len(best)} of them")
     print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
           f"yearly saving {chosen['bill_saving_per_yr'].sum() + chosen['saving_maintenance_per_yr'].sum():,.0f} "
           f"{currency}/yr (bills {chosen['bill_saving_per_yr'].sum():,.0f}, maintenance "

@@ -466,6 +466,9 @@ def test_run_names_the_ten_best_options_by_their_catalogue_labels(tmp_path, caps
     # (data/defaults/options.csv labels, e.g. "PM motor on a drive"), not by option id ("pm_drive")
     assert main(["run", str(DEMO), "--out", str(tmp_path / "out"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
     out = capsys.readouterr().out
+    # installed power in the summary; hand calculation from data/demo/assets.csv (test above): 8,081.2 kW plus
+    # two of 50 hp (2 x 37.28 kW) is 8,155.8 kW
+    assert "82 assets (8,156 kW installed)" in out
     table = out.split("Ten best options by NPV", 1)[1].split("Files written", 1)[0]
     assert "PM motor on a drive" in table and "pm_drive" not in table and "add_drive" not in table
 
