@@ -604,7 +604,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 step("risk")
                 tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
                 plan_frames = planned.result()
-            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn)
+            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv)
             del drawn  # the best projects' draws: read by the plan's Monte Carlo only
         else:
             plan_frames = plan_now()
@@ -632,7 +632,7 @@ def with_risk(result: ScenarioResult) -> ScenarioResult:
     d = float(result.assumptions.discount_rate_frac)
     tornado_rows, risk_rows, draws, drawn = _risk(result.cash_flows, result.assumptions, result.results, d)
     plan_tornado, plan_risk, plan_draws = _plan_risk(result.cash_flows, result.assumptions, result.results,
-                                                     result.plan, d, drawn)
+                                                     result.plan, d, drawn, result.bill_saving_pv)
     return replace(result, tornado=tornado_rows, risk=risk_rows, fleet_npv_draws=draws, plan_tornado=plan_tornado,
                    plan_risk=plan_risk, plan_npv_draws=plan_draws)
 
@@ -663,7 +663,7 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
         plan_risk = (pd.DataFrame(), pd.DataFrame(), np.zeros(0))
         if previous.fleet_npv_draws.size or not previous.risk.empty:  # the previous result was run with risk
             plan_risk = _plan_risk(previous.cash_flows, assumptions, results, plan_frames[0],
-                                   float(assumptions.discount_rate_frac))
+                                   float(assumptions.discount_rate_frac), bill_saving_pv=previous.bill_saving_pv)
     return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
                    plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4],
                    plan_tornado=plan_risk[0], plan_risk=plan_risk[1], plan_npv_draws=plan_risk[2])
@@ -890,6 +890,33 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     return frame.reset_index()
 
 
+def _policy_new_motor(case, induction: pd.DataFrame, sizes_kw: np.ndarray, f_hz: int) -> tuple[np.ndarray, np.ndarray]:
+    """Capital [currency] and full-load efficiency [frac] of the new motor the policy's replacement buys at
+    each size: the catalogue's first new induction motor, or, where the case region's rules ask more of a
+    new 4-pole motor of that size (EU: IE4 at 75-200 kW), the catalogue's least class that meets them (the
+    best it offers if none does). Efficiency as for every new catalogue motor: the class floor less the
+    catalogue margin (:func:`models.defaults.catalogue_efficiency_pct`)."""
+    from models.defaults import catalogue_efficiency_pct
+    from models.efficiency_classes import min_efficiency_pct
+
+    ranks = class_rank(induction["efficiency_class"].to_numpy(dtype=object))
+    needed = class_rank(minimum_class(case.settings.region, sizes_kw, np.full(len(sizes_kw), 4.0)))
+    first = ranks[0]
+    # per size: the first row if it meets the rule, else the first row of the least class that does
+    meets = ranks[None, :] >= np.maximum(needed, first)[:, None]
+    least = np.where(meets, ranks[None, :], 99)
+    pick = np.where(meets.any(axis=1), np.argmin(least, axis=1), int(np.argmax(ranks)))
+    pick = np.where(needed <= first, 0, pick)
+    capex = np.empty(len(sizes_kw))
+    eff = np.empty(len(sizes_kw))
+    for j in np.unique(pick):
+        at = pick == j
+        row = induction.iloc[int(j)]
+        capex[at] = capital_cost(pd.DataFrame([row]), sizes_kw).total[at, 0]
+        eff[at] = catalogue_efficiency_pct(min_efficiency_pct(sizes_kw[at], 4, f_hz, row["efficiency_class"])) / 100.0
+    return capex, eff
+
+
 def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     tech = options["technology"].to_numpy(dtype=object)
     if not ((tech == "rewind").any() and (tech == "induction").any()):
@@ -900,15 +927,14 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     hours = np.array([1000, 2000, 4000, 6000, 8000])
     # the fleet's usual supply frequency: the 50 Hz or the 60 Hz class tables (4-pole, the commonest)
     f_hz = usual_supply_hz(case.assets["supply_f_hz"])
-    new_row = options[tech == "induction"].iloc[0]
+    new_capex, eff_new = _policy_new_motor(case, options[tech == "induction"], sizes, f_hz)
     rewind_row = options[tech == "rewind"].iloc[0]
     cost = lambda row: capital_cost(pd.DataFrame([row]), sizes).total[:, 0]  # noqa: E731
     from models.efficiency_classes import min_efficiency_pct
 
-    eff_new = min_efficiency_pct(sizes, 4, f_hz, new_row["efficiency_class"]) / 100.0
     eff_rewound = min_efficiency_pct(sizes, 4, f_hz, "IE2") / 100.0 - 0.001
     price = float((sav.baseline_bills["amount"].sum()) / max(op.energy_kwh[:, 0].sum(), 1.0))
-    return end_of_life.fleet_rules(sizes, hours, new_capex=cost(new_row), rewind_capex=cost(rewind_row),
+    return end_of_life.fleet_rules(sizes, hours, new_capex=new_capex, rewind_capex=cost(rewind_row),
                                    efficiency_new_frac=eff_new, efficiency_rewound_frac=eff_rewound, price_per_kwh=price,
                                    downtime_cost_per_h=assumptions.downtime_cost_per_h, discount_rate_frac=d,
                                    horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
@@ -924,7 +950,8 @@ def _risk(flows, assumptions, results, d):
     return _risk_of_rows(flows, assumptions, best, d)
 
 
-def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None, known=None):
+def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None, known=None,
+                  bill_share=None):
     """Tornado, Monte Carlo summary per project and portfolio NPV per draw of the projects ``rows`` (rows
     of ``flows``), each started ``start_yr`` years into the portfolio with ``offset`` added to its NPV
     (:func:`models.risk.portfolio_npv`; default: all at once, nothing added), and (rows, the Monte Carlo's
@@ -933,6 +960,10 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     ``known`` = (rows, MonteCarloResult) of an earlier Monte Carlo of the same flows under the same
     assumptions (the same seeded draws): the projects it holds are taken from it instead of drawn again
     (each project's draws depend on its own flows and the draws' factors only).
+
+    ``bill_share``: per project, the share of its bill savings (:data:`models.reactive_plan.BILL_SAVING_COMPONENTS`)
+    it keeps (default 1 for all): a project kept below 1 is drawn with those savings scaled, so the part the
+    rest of a plan takes moves with each draw's prices, rates and tax like the savings themselves.
     """
     if not len(rows):
         return pd.DataFrame(), pd.DataFrame(), np.zeros(0), None
@@ -944,6 +975,12 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
 
     amounts = flows.amounts[rows]
+    shared = np.ones(len(rows)) if bill_share is None else np.asarray(bill_share, dtype=float)
+    scaled = np.flatnonzero(shared != 1.0)
+    if len(scaled):
+        bill_columns = [names.index(name) for name in reactive_plan.BILL_SAVING_COMPONENTS if name in names]
+        amounts = amounts.copy()
+        amounts[np.ix_(scaled, np.arange(amounts.shape[1]), bill_columns)] *= shared[scaled, None, None]
 
     def portfolio(values: dict[str, float]) -> float:
         factors = {k: np.array([float(v)]) for k, v in values.items()}
@@ -955,6 +992,7 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     held = np.full(len(rows), -1)
     if known is not None:
         held = pd.Index(np.asarray(known[0], dtype=np.intp)).get_indexer(rows)
+        held[scaled] = -1  # their flows are not the earlier Monte Carlo's
     fresh = np.flatnonzero(held < 0)
     mc = None
     if len(fresh):
@@ -979,13 +1017,17 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     return tornado_rows, summary, np.asarray(draws, dtype=float), (rows, mc)
 
 
-def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, known=None):
+def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, known=None, bill_saving_pv=None):
     """Tornado, Monte Carlo summary per project and plan NPV per draw (at the plan's start) of the exact plan.
 
-    Each project keeps the value the plan gave it (its NPV less the share of its bill saving the rest of
-    the plan already takes, :mod:`models.reactive_plan`): that correction is held at its base value in
-    every draw, and a project started in a later plan year is discounted by its delay at the draw's rate.
-    ``known``: an earlier Monte Carlo of the same run (:func:`_risk_of_rows`), whose projects are not drawn again.
+    Each project keeps the value the plan gave it: its NPV less the share of its bill saving the rest of
+    the plan already takes (:mod:`models.reactive_plan`, NPV - (1 - r) x its bill savings' present value).
+    With ``bill_saving_pv`` (:attr:`ScenarioResult.bill_saving_pv`, per row of ``results``) such a project
+    is drawn with its bill savings scaled by r, so the correction moves with each draw's prices, rates and
+    tax; without it, or where the bill savings' present value is nil, the correction is held at its base
+    value in every draw. A project started in a later plan year is discounted by its delay at the draw's
+    rate. ``known``: an earlier Monte Carlo of the same run (:func:`_risk_of_rows`), whose projects are not
+    drawn again.
     """
     if flows is None or plan_frame is None or plan_frame.empty:
         return pd.DataFrame(), pd.DataFrame(), np.zeros(0)
@@ -996,8 +1038,14 @@ def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, 
     offset = plan_frame["npv"].to_numpy(dtype=float) - results["npv"].to_numpy(dtype=float)[rows]
     offset = np.where(np.abs(offset) > 1e-9 * np.maximum(1.0, np.abs(plan_frame["npv"].to_numpy(dtype=float))),
                       offset, 0.0)
+    share = np.ones(len(rows))
+    if bill_saving_pv is not None:
+        pv = np.asarray(bill_saving_pv, dtype=float)[rows]
+        by_share = (offset != 0.0) & (np.abs(pv) > 1e-9 * np.maximum(1.0, np.abs(offset)))
+        share[by_share] = 1.0 + offset[by_share] / pv[by_share]  # offset = -(1 - r) x PV
+        offset = np.where(by_share, 0.0, offset)
     start = plan_frame["start_yr"].to_numpy(dtype=float)
-    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset, known)
+    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset, known, share)
     if not summary.empty:
         summary.insert(1, "start_yr", plan_frame["start_yr"].to_numpy(dtype=int))
     return tornado_rows, summary, draws

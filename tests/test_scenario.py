@@ -425,9 +425,42 @@ def test_draws_at_every_factors_base_value_give_the_plans_own_total(result, demo
 
     monkeypatch.setattr(risk_module, "draw_factors", base_draws)
     d = float(result.assumptions.discount_rate_frac)
-    _, summary, draws = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d)
+    _, summary, draws = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d,
+                                            bill_saving_pv=result.bill_saving_pv)
     assert_allclose(draws, result.plan["npv_at_plan_start"].sum(), rtol=1e-9)
     assert_allclose(summary["npv_p50"], result.plan["npv"], rtol=1e-9)  # each project at its own start
+
+
+def test_a_reactive_projects_plan_correction_moves_with_the_draws(result, monkeypatch):
+    # Invariant (linearity of NPV in the flows): the plan keeps a share r of a reactive project's bill savings
+    # (models.reactive_plan). Energy price x1.2 in every draw scales only bill savings, so the project's drawn
+    # NPV must move by r times what it moves by priced alone; a correction held at its base value would move
+    # it by the whole change.
+    from models import risk as risk_module
+
+    def priced_up(n_draws, seed, distributions=risk_module.DEFAULT_FACTORS):
+        out = {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else (0.0 if name == "loss_tolerance_frac"
+                                                                               else 1.0)) for name in distributions}
+        out["energy_price_mult"] = np.full(n_draws, 1.2)
+        return out
+
+    repriced = result.plan_status["repriced"]
+    assert len(repriced) >= 2  # the demo's plan keeps part of its terminal capacitors' savings
+    monkeypatch.setattr(risk_module, "draw_factors", priced_up)
+    d = float(result.assumptions.discount_rate_frac)
+    _, summary, _ = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d,
+                                        bill_saving_pv=result.bill_saving_pv)
+    rows = summary.set_index("project_id")
+    alone = scenario.project_labels(result.results)
+    results = result.results.assign(label=alone.to_numpy()).set_index("label")
+    plan = result.plan.assign(label=(result.plan["asset_id"] + "/" + result.plan["option_id"]).to_numpy()).set_index("label")
+    for label, share in repriced.items():
+        alone_rise = float(scenario._risk_of_rows(result.cash_flows, result.assumptions,
+                                                  np.flatnonzero((alone == label).to_numpy()), d)[2][0]
+                           - results.loc[label, "npv"])
+        plan_rise = float(rows.loc[label, "npv_p50"] - plan.loc[label, "npv"])
+        assert alone_rise > 0
+        assert_allclose(plan_rise, share * alone_rise, rtol=2e-6)  # shares are rounded to 6 decimals
 
 
 def test_a_new_budget_redoes_the_plans_uncertainty(demo_case):
@@ -507,6 +540,40 @@ def test_each_past_rewind_shortens_the_failure_law_by_ten_percent():
     assert_allclose(shape, [2.5, 2.5])
     assert_allclose(scale, [20.0, 16.2], rtol=1e-12)
     assert_allclose(residual, [17.7453, 14.3737], rtol=1e-5)
+
+
+def test_repair_or_replace_policy_buys_the_new_motor_the_rules_allow(demo_run_physics, monkeypatch):
+    # The demo is an EU case: a new 4-pole motor of 75-200 kW must be IE4 since July 2023 (Regulation (EU)
+    # 2019/1781 Annex I point 1(b)), so the policy's replacement at 90 kW (a size of its grid) is the catalogue's
+    # IE4 motor, not its first (IE3) one; at 55 kW it stays IE3. Efficiency as every new catalogue motor's: the class floor less 10 %
+    # of its losses (models.defaults.CLASS_MARGIN_LOSS_FRAC, common practice). Hand calculation from IEC
+    # 60034-30-1 (4-pole, 50 Hz, table values +/-0.05): 90 kW IE4 96.1 -> 100 - 0.9 x 3.9 = 96.49 %;
+    # 55 kW IE3 94.6 -> 100 - 0.9 x 5.4 = 95.14 %.
+    from models import end_of_life
+
+    case, phys = demo_run_physics
+    op, sav = phys.operation, phys.savings
+    options = scenario._options_in_order(case, op)
+    seen = {}
+    real = end_of_life.fleet_rules
+
+    def spy(sizes, hours, **kw):
+        seen.update(kw, sizes=np.asarray(sizes, dtype=float))
+        return real(sizes, hours, **kw)
+
+    monkeypatch.setattr(end_of_life, "fleet_rules", spy)
+    scenario._fleet_rules(case, options, case.finance, 0.08, 15, sav, op)
+    sizes = seen["sizes"]
+    eff = dict(zip(sizes, seen["efficiency_new_frac"]))
+    capex = dict(zip(sizes, seen["new_capex"]))
+    assert_allclose(eff[90.0], 0.9649, atol=5e-4)
+    assert_allclose(eff[55.0], 0.9514, atol=5e-4)
+    ie3 = options[(options["technology"] == "induction") & (options["efficiency_class"] == "IE3")].iloc[0]
+    ie4 = options[(options["technology"] == "induction") & (options["efficiency_class"] == "IE4")].iloc[0]
+    from models.options import capital_cost
+
+    assert_allclose(capex[90.0], capital_cost(pd.DataFrame([ie4]), np.array([90.0])).total[0, 0], rtol=1e-12)
+    assert_allclose(capex[55.0], capital_cost(pd.DataFrame([ie3]), np.array([55.0])).total[0, 0], rtol=1e-12)
 
 
 def test_repair_or_replace_policy_covers_the_fleets_sizes_in_its_unit(demo_run_physics):
