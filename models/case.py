@@ -1088,6 +1088,16 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
     record("speed_control", a["speed_control"].isna().to_numpy(), "fixed", "assumed fixed speed, no throttle")
     record("criticality", a["criticality"].isna().to_numpy(), "medium", "assumed medium criticality")
     record("rewind_count", a["rewind_count"].isna().to_numpy(), 0.0, "assumed never rewound")
+    if "rewind_loss_pct_points" in a:
+        from models.induction import DEFAULT_REWIND_LOSS_PCT_POINTS
+
+        # logged where it changes today's motor (rewound before); a rewind option takes it too
+        blank = np.isnan(a["rewind_loss_pct_points"].to_numpy(dtype=float))
+        rewound = a["rewind_count"].to_numpy(dtype=float) > 0
+        record("rewind_loss_pct_points", blank & rewound, DEFAULT_REWIND_LOSS_PCT_POINTS,
+               "good-practice rewinds (EASA/AEMT 2019); about 1 point in a typical shop")
+        a["rewind_loss_pct_points"] = np.where(blank, DEFAULT_REWIND_LOSS_PCT_POINTS,
+                                               a["rewind_loss_pct_points"].to_numpy(dtype=float))
     record("efficiency_class", a["efficiency_class"].isna().to_numpy(), "unknown", "no class given")
     record("start_duty", a["start_duty"].isna().to_numpy(),
            np.vectorize(nameplate_defaults.START_DUTY_BY_APPLICATION.get, otypes=[object])(app),

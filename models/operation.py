@@ -162,6 +162,8 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "pf75": a["power_factor_75"].to_numpy(dtype=float),
         "pf50": a["power_factor_50"].to_numpy(dtype=float),
         "rewinds": a["rewind_count"].to_numpy(dtype=float),
+        "rewind_loss": (a["rewind_loss_pct_points"].to_numpy(dtype=float) if "rewind_loss_pct_points" in a
+                        else np.full(len(a), induction.DEFAULT_REWIND_LOSS_PCT_POINTS)),
         "exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0, 1.0),
         "throttled": speed_control == "throttled",
         "has_drive": speed_control == "drive",
@@ -212,7 +214,8 @@ def existing_motor(arr: dict[str, np.ndarray], extra_rewinds: int = 0) -> induct
     return induction.calibrate_induction(
         arr["rated_p_kw"], arr["eff_frac"], arr["pf"], speed, arr["sync_rpm"],
         efficiency_75_frac=arr["eff75_frac"], efficiency_50_frac=arr["eff50_frac"],
-        power_factor_75=arr["pf75"], power_factor_50=arr["pf50"], rewind_count=arr["rewinds"] + extra_rewinds)
+        power_factor_75=arr["pf75"], power_factor_50=arr["pf50"], rewind_count=arr["rewinds"] + extra_rewinds,
+        rewind_loss_pct_points=arr.get("rewind_loss", induction.DEFAULT_REWIND_LOSS_PCT_POINTS))
 
 
 def class_efficiency_frac(arr: dict[str, np.ndarray], efficiency_class: str) -> np.ndarray:

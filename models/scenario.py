@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from models import cashflows as cf
-from models import end_of_life, finance, plan, reactive_plan, risk
+from models import end_of_life, finance, induction, plan, reactive_plan, risk
 from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
 from models.case import usual_supply_hz
 from models.memory import retaining_memory
@@ -932,7 +932,11 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     cost = lambda row: capital_cost(pd.DataFrame([row]), sizes).total[:, 0]  # noqa: E731
     from models.efficiency_classes import min_efficiency_pct
 
-    eff_rewound = min_efficiency_pct(sizes, 4, f_hz, "IE2") / 100.0 - 0.001
+    # a rewound motor: an IE2 motor less one rewind's loss, the fleet's median (0.1 point by default)
+    loss = (pd.to_numeric(case.assets["rewind_loss_pct_points"], errors="coerce").median()
+            if "rewind_loss_pct_points" in case.assets else np.nan)
+    loss = float(loss) if np.isfinite(loss) else induction.DEFAULT_REWIND_LOSS_PCT_POINTS
+    eff_rewound = min_efficiency_pct(sizes, 4, f_hz, "IE2") / 100.0 - loss / 100.0
     price = float((sav.baseline_bills["amount"].sum()) / max(op.energy_kwh[:, 0].sum(), 1.0))
     return end_of_life.fleet_rules(sizes, hours, new_capex=new_capex, rewind_capex=cost(rewind_row),
                                    efficiency_new_frac=eff_new, efficiency_rewound_frac=eff_rewound, price_per_kwh=price,

@@ -225,3 +225,27 @@ def test_performance_curves_do_not_depend_on_the_loads_asked_for(demo_case):
     narrow = performance_curves(demo_case, "HRW-P01", np.linspace(0.5, 1.0, 11))
     at = lambda f: f[np.isclose(f["load_frac"], 1.0)].set_index("option_id")[["shaft_p_kw", "p_in_kw"]]  # noqa: E731
     pd.testing.assert_frame_equal(at(wide), at(narrow))
+
+
+def test_each_motors_rewind_loss_is_its_own(tmp_path):
+    # Two 30 kW constant-torque motors, nameplate 92.1 %, rewound twice, running at full load all year. The register
+    # gives one a loss of 1 point per rewind and leaves the other blank (0.1 point, good practice, EASA/AEMT 2019).
+    # Hand calculation (input = shaft / efficiency, same shaft power and slip, a stator rewind leaves the slip):
+    # today 92.1 - 2 x 1 = 90.1 % against 92.1 - 2 x 0.1 = 91.9 %, so the first draws 0.919 / 0.901 = 1.019978 x
+    # the second; one more rewind (the rewind option) gives 89.1 % and 91.8 %.
+    header = cb.ASSET_HEADER + ["load_type", "rewind_loss_pct_points"]
+    row = ["S1", "Mixer", "mixer", "30", "4", "50", "400", "IE3", "92.1", "0.84", "1470", "2010", "2", "fixed", "",
+           "8760", "100", "medium", "constant_torque"]
+    assets = [["R1"] + row + ["1.0"], ["R2"] + row + [""]]
+    cb.write_case(tmp_path, assets=assets, asset_header=header, capacitors=[], duty=[], profiles=[])
+    (tmp_path / "profiles.csv").unlink()
+    case, problems = load_case(tmp_path, mode="strict")
+    assert case is not None, [p.message for p in problems]
+    assert_allclose(case.assets["rewind_loss_pct_points"], [1.0, 0.1])
+    logged = case.defaults[case.defaults["column"] == "rewind_loss_pct_points"]
+    assert logged["asset_id"].tolist() == ["R2"]  # the blank one, rewound before, is in the defaults log
+    r = operate(case)
+    keep, rewind = r.option_position("keep"), r.option_position("rewind")
+    assert_allclose(r.energy_kwh[0, keep] / r.energy_kwh[1, keep], 0.919 / 0.901, rtol=1e-9)
+    assert_allclose(r.energy_kwh[0, rewind] / r.energy_kwh[0, keep], 0.901 / 0.891, rtol=1e-9)
+    assert_allclose(r.energy_kwh[1, rewind] / r.energy_kwh[1, keep], 0.919 / 0.918, rtol=1e-9)
