@@ -7,6 +7,7 @@ the input has errors (the problem list is printed), 2 means the command line its
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 
 import pandas as pd
@@ -75,7 +76,8 @@ def cmd_check(args: argparse.Namespace) -> int:
 
     unit = power_label(s.power_unit)  # motor ratings in the case's unit
     print(f"  {len(case.assets)} assets, {rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.1f} {unit} installed, "
-          f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}")
+          f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}; "
+          f"rules of region {s.region} on the purchase date {s.purchase_date}")
     summary = fleet_summary(case)
     for key in ("by_site", "by_application"):
         table = summary[key]
@@ -516,7 +518,12 @@ def main(argv: list[str] | None = None) -> int:
     if getattr(args, "func", None) is None:  # no command: the help, as for a wrong command line
         parser.print_help(sys.stderr)
         return 2
-    return int(args.func(args))
+    try:
+        return int(args.func(args))
+    except BrokenPipeError:  # the reader of the output (e.g. `| head`) stopped reading: not an error of ours
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())  # no second error when Python flushes stdout at exit
+        return 0
 
 
 if __name__ == "__main__":

@@ -88,6 +88,9 @@ class CaseSettings:
     region: str = "EU"
     #: False when the case gave no region and the default (EU) was taken.
     region_declared: bool = True
+    #: ISO date the new motors are bought: the region's rules in force then decide which new motors may be
+    #: bought (blank: the day of the run).
+    purchase_date: str = ""
 
     @property
     def mark_invented(self) -> bool:
@@ -482,7 +485,7 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
                               "write [case] on a line of its own, then one key = value per line"))
         data = {}
     default_name = raw.path.stem if raw.kind == "workbook" else raw.path.name
-    known = {"name", "description", "currency", "power_unit", "time_zone", "invented", "region"}
+    known = {"name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date"}
     for key in data:
         if key not in known:
             problems.append(warning(source, None, key, data[key], f"unknown setting '{key}' was ignored",
@@ -517,9 +520,24 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
         problems.append(error(source, None, "region", region, f"region must be one of {', '.join(REGIONS)}",
                               "it selects the minimum-efficiency rules that apply to new motors"))
         region = "EU"
+    given = data.get("purchase_date", "")
+    if isinstance(given, _dt.datetime):
+        given = given.date()
+    purchase = given.isoformat() if isinstance(given, _dt.date) else str(given).strip()
+    if purchase:
+        try:
+            if len(purchase) != 10:
+                raise ValueError(purchase)
+            purchase = _dt.date.fromisoformat(purchase).isoformat()
+        except ValueError:
+            problems.append(error(source, None, "purchase_date", data.get("purchase_date"),
+                                  "purchase_date must be a date written YYYY-MM-DD",
+                                  "the day the new motors are bought, e.g. 2027-09-01; leave it out for the day of the run"))
+            purchase = ""
     return CaseSettings(
         region=region,
         region_declared="region" in data,
+        purchase_date=purchase,
         name=str(data.get("name", default_name)),
         description=str(data.get("description", "")),
         currency=currency,
@@ -1397,14 +1415,37 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     """
     if mode not in ("warn", "strict"):
         raise ValueError(f"mode must be 'warn' or 'strict', got {mode!r}")
-    this_year = (today or _dt.date.today()).year
     try:
-        case, problems = _load(path, this_year)
+        case, problems = _load(path, today or _dt.date.today())
     except Exception as exc:  # last line of defence: a bad file must never end in a traceback
         case, problems = None, [error(str(path), None, None, None,
                                       f"internal error while checking the case ({exc.__class__.__name__}: {exc})",
                                       "please report this with the case files; nothing was written to them")]
     return _finish(case, problems, mode)
+
+
+def _check_rules_ahead(settings: CaseSettings, source: str, assets: pd.DataFrame, problems: list[Problem]) -> None:
+    """Warn when a minimum-efficiency rule of the case's region takes effect within three years after the
+    purchase date and raises the class some of its motors' replacements must have: options and the
+    replacement at failure follow the rules in force on the purchase date. Changes nothing."""
+    from models.regulations import rules_taking_effect
+
+    if "rated_p_kw" not in assets or "poles" not in assets:
+        return
+    p_kw = pd.to_numeric(assets["rated_p_kw"], errors="coerce").to_numpy(dtype=float)
+    poles = pd.to_numeric(assets["poles"], errors="coerce").to_numpy(dtype=float)
+    for rule in rules_taking_effect(settings.region, p_kw, poles, settings.purchase_date):
+        sizes = f"{rule['min_rated_p_kw']:g}-{rule['max_rated_p_kw']:g} kW"
+        if power_label(settings.power_unit) == "hp":
+            sizes = (f"{rating_in_unit(rule['min_rated_p_kw'], 'hp'):.0f}-{rating_in_unit(rule['max_rated_p_kw'], 'hp'):.0f}"
+                     f" hp ({sizes})")
+        problems.append(warning(
+            source, None, "purchase_date", settings.purchase_date,
+            f"a {settings.region} rule from {rule['effective_from']} asks {rule['min_class']} of new motors of {sizes}: "
+            f"{counted(rule['n_motors'], 'motor')} of this case would need a better replacement if bought after it "
+            f"({rule['source']})",
+            f"options are priced with the rules of {settings.purchase_date}; set purchase_date under [case] "
+            f"to the day the motors will be bought (e.g. purchase_date = {rule['effective_from']}) to apply it"))
 
 
 def _check_region_against_frequency(settings: CaseSettings, source: str, assets: pd.DataFrame,
@@ -1447,13 +1488,16 @@ def _check_price_currency(options: pd.DataFrame | None, source: str, currency: s
         f"or convert the shipped prices to {currency}"))
 
 
-def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]:
+def _load(path: str | Path, today: _dt.date) -> tuple[Case | None, list[Problem]]:
     """Read and check a case; return it (None when any error was found) and every problem."""
     raw = io.read_case_files(path)
     problems = list(raw.problems)
     if raw.kind == "missing" or (not raw.tables and has_errors(problems)):
         return None, problems  # nothing readable: settings warnings would only add noise
     settings = _settings(raw, problems)
+    this_year = today.year
+    if not settings.purchase_date:
+        settings = replace(settings, purchase_date=today.isoformat())
     own_options = raw.tables.get("options")
     if own_options is not None and own_options.readable and own_options.frame.empty:
         problems.append(warning(own_options.source, None, None, None,
@@ -1511,6 +1555,7 @@ def _load(path: str | Path, this_year: int) -> tuple[Case | None, list[Problem]]
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
     if "assets" in checkers:
         _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
+        _check_rules_ahead(settings, raw.settings_source, checkers["assets"].frame, problems)
     for checker in checkers.values():
         problems.extend(checker.problems)
     problems = ordered(_with_toml_lines(raw, problems))

@@ -1051,7 +1051,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         if not only_today:
             arr_all = _with_class_efficiencies(arr_all, _catalogue_classes(options))
     n_a, n_o, n_t = len(a), len(options), len(index)
-    applies, reason = applicability(options, a, case.settings.region)
+    applies, reason = applicability(options, a, case.settings.region, case.settings.purchase_date)
     applies[:, 0] = True
     reason[:, 0] = ""
     if site_constants is not None and site_constants.loads is not None:
@@ -2207,7 +2207,7 @@ def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     if not len(pos):
         raise ValueError(f"unknown asset '{asset_id}'")
     options = options_with_baseline(case.options)
-    ok, _ = applicability(options, a.iloc[pos], case.settings.region)
+    ok, _ = applicability(options, a.iloc[pos], case.settings.region, case.settings.purchase_date)
     ok[:, 0] = True
     arr = _take(asset_arrays(a), pos)
     existing = existing_motor(arr)

@@ -180,7 +180,7 @@ def capital_cost(options: pd.DataFrame, rated_p_kw, capacitor_q_kvar=None) -> Ca
 
 
 def applicability(options: pd.DataFrame, assets: pd.DataFrame,
-                  region: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+                  region: str | None = None, on_date: str | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Say which options apply to which motors, and why not where they do not.
 
     Parameters
@@ -194,6 +194,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
         The case's region (:func:`models.regulations.minimum_class`): a new induction motor below the
         class the region's rules require for the motor's size and poles cannot be bought, so it does not
         apply (default: no regional rule).
+    on_date : str, optional
+        ISO date the new motors are bought: the rules in force then apply (default today).
 
     Returns
     -------
@@ -237,7 +239,7 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     if region is not None and n_a and (tech == "induction").any():
         from models.regulations import class_rank, minimum_class
 
-        required = minimum_class(region, p[:, 0], assets["poles"].to_numpy(dtype=float))
+        required = minimum_class(region, p[:, 0], assets["poles"].to_numpy(dtype=float), on_date)
         offered = class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
         below = (tech == "induction") & (offered < class_rank(required)[:, None])
         for cls in sorted(set(required[below.any(axis=1)])):

@@ -8,6 +8,8 @@ not to repairs, so a rewind stays legal. The rule table is ``data/reference/mini
 
 from __future__ import annotations
 
+import datetime
+
 import numpy as np
 
 from models import io
@@ -15,7 +17,7 @@ from models import io
 _CLASS_RANK = {"IE1": 1, "IE2": 2, "IE3": 3, "IE4": 4, "IE5": 5}
 
 
-def minimum_class(region: str, rated_p_kw, poles, on_date: str = "2026-12-01") -> np.ndarray:
+def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) -> np.ndarray:
     """Return the lowest efficiency class a new motor may have, per motor.
 
     Parameters
@@ -26,8 +28,9 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str = "2026-12-01") -
         Rating [kW].
     poles : array_like
         Number of poles.
-    on_date : str
-        ISO date at which the rules are read (rules that take effect later are ignored).
+    on_date : str, optional
+        ISO date at which the rules are read, the day the new motors are bought (rules that take effect
+        later are ignored); default today.
 
     Returns
     -------
@@ -48,6 +51,7 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str = "2026-12-01") -
     >>> minimum_class("EU", [15, 110, 1600], [4, 4, 6]).tolist()
     ['IE3', 'IE4', 'none']
     """
+    on_date = datetime.date.today().isoformat() if not on_date else str(on_date)
     rules = io.read_reference("minimum_efficiency_rules")
     rules = rules[(rules["region"] == region.upper()) & (rules["effective_from"] <= on_date)]
     p, n = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), np.asarray(poles, dtype=float))
@@ -58,6 +62,40 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str = "2026-12-01") -
         rank = np.where(covered, np.maximum(rank, _CLASS_RANK[row.min_class]), rank)
     names = np.array(["none", "IE1", "IE2", "IE3", "IE4", "IE5"], dtype=object)
     return names[rank]
+
+
+def rules_taking_effect(region: str, rated_p_kw, poles, after_date: str | None = None, within_yr: float = 3.0) -> list[dict]:
+    """Rules of ``region`` that take effect within ``within_yr`` years after ``after_date`` (default today) and
+    raise the class required of at least one of the motors given.
+
+    Returns
+    -------
+    list of dict
+        Per rule, in date order: ``effective_from`` (ISO date), ``min_class``, ``min_rated_p_kw``,
+        ``max_rated_p_kw``, ``source`` and ``n_motors`` (how many of the motors it raises).
+
+    Examples
+    --------
+    >>> [r["min_class"] for r in rules_taking_effect("US", [110.0, 15.0], [4, 4], "2026-12-01")]
+    ['IE4']
+    """
+    start = datetime.date.fromisoformat(str(after_date)) if after_date else datetime.date.today()
+    end = (start + datetime.timedelta(days=round(365.25 * within_yr))).isoformat()
+    rules = io.read_reference("minimum_efficiency_rules")
+    later = rules[(rules["region"] == region.upper()) & (rules["effective_from"] > start.isoformat())
+                  & (rules["effective_from"] <= end)].sort_values("effective_from")
+    now = class_rank(minimum_class(region, rated_p_kw, poles, start.isoformat()))
+    p, n = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), np.asarray(poles, dtype=float))
+    out = []
+    for row in later.itertuples(index=False):
+        allowed_poles = [float(x) for x in str(row.poles).split("|")]
+        covered = (p >= row.min_rated_p_kw - 1e-9) & (p <= row.max_rated_p_kw + 1e-9) & np.isin(n, allowed_poles)
+        raised = int(np.sum(covered & (_CLASS_RANK[row.min_class] > now)))
+        if raised:
+            out.append({"effective_from": row.effective_from, "min_class": row.min_class,
+                        "min_rated_p_kw": float(row.min_rated_p_kw), "max_rated_p_kw": float(row.max_rated_p_kw),
+                        "source": row.source, "n_motors": raised})
+    return out
 
 
 def class_rank(efficiency_class) -> np.ndarray:

@@ -387,7 +387,8 @@ def _must_spend(case, options: pd.DataFrame, capital_total: np.ndarray, applies:
     cheapest new induction motor the regional rules allow. Returns (capex, life_yr, option position)."""
     a = case.assets
     tech = options["technology"].to_numpy(dtype=object)
-    min_class = minimum_class(case.settings.region, a["rated_p_kw"].to_numpy(dtype=float), a["poles"].to_numpy(dtype=float))
+    min_class = minimum_class(case.settings.region, a["rated_p_kw"].to_numpy(dtype=float), a["poles"].to_numpy(dtype=float),
+                              case.settings.purchase_date)
     allowed_new = (tech[None, :] == "induction") & (class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
                                                      >= class_rank(min_class)[:, None])
     allowed = applies & (allowed_new | (tech[None, :] == "rewind"))
@@ -900,7 +901,8 @@ def _policy_new_motor(case, induction: pd.DataFrame, sizes_kw: np.ndarray, f_hz:
     from models.efficiency_classes import min_efficiency_pct
 
     ranks = class_rank(induction["efficiency_class"].to_numpy(dtype=object))
-    needed = class_rank(minimum_class(case.settings.region, sizes_kw, np.full(len(sizes_kw), 4.0)))
+    needed = class_rank(minimum_class(case.settings.region, sizes_kw, np.full(len(sizes_kw), 4.0),
+                                      case.settings.purchase_date))
     first = ranks[0]
     # per size: the first row if it meets the rule, else the first row of the least class that does
     meets = ranks[None, :] >= np.maximum(needed, first)[:, None]
