@@ -1,7 +1,8 @@
 """Validation record for models.cashflows: timing, repeat purchases, must-spend credit, residual, tax.
 
 Hand calculations are in docs/derivations/finance-cashflows.md (examples A-E) and
-docs/derivations/finance-metrics.md section 8; published factors from REFERENCES.md section 9b.
+docs/derivations/finance-metrics.md section 8; factor values computed from the NIST Handbook 135
+formulas.
 """
 
 import numpy as np
@@ -68,7 +69,8 @@ class TestBuildCashFlows:
     def test_escalating_savings_equal_upv_star(self):
         projects = cf.ProjectInputs(project_id=["x"], savings_energy_per_yr=1000.0)
         a = FinanceAssumptions(horizon_yr=20, escalation_energy_frac=0.02)
-        # REFERENCES 9b [C]: UPV*(3 %, 2 %, 20) = 18.081229 (6 decimals); finance-cashflows.md example D.
+        # NIST Handbook 135 UPV* formula [C]: UPV*(3 %, 2 %, 20) = 18.081229 (6 decimals);
+        # finance-cashflows.md example D.
         assert_allclose(npv(cf.build_cash_flows(projects, a).net()[0], 0.03), 18081.229, atol=5e-4)
 
     def test_option_equal_to_must_spend_cancels(self):

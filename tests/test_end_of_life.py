@@ -73,7 +73,7 @@ class TestWeibull:
         assert shape.tolist() == [2.5] * 5
 
     def test_default_mean_lives_inside_common_practice_bands(self):
-        # DOMAIN.md section 3 (common practice): <7.5 kW 10-15 yr, 7.5-75 kW 15-20 yr, >75 kW 20-30 yr.
+        # Common practice (typical motor-life bands): <7.5 kW 10-15 yr, 7.5-75 kW 15-20 yr, >75 kW 20-30 yr.
         bands = [(10, 15), (15, 20), (20, 30)]
         for life_class, (low, high) in zip(eol.DEFAULT_LIFE_CLASSES, bands):
             assert low <= life_class.mean_life_yr <= high

@@ -1,5 +1,6 @@
 """Validation record for models/field_measurement.py: the US DOE field load-estimation formulas
-(REFERENCES.md §4), worked by hand in docs/derivations/induction-field-measurement.md."""
+(fact sheet "Determining Electric Motor Load and Efficiency", DOE/GO-10097-517), worked by hand in
+docs/derivations/induction-field-measurement.md."""
 
 from __future__ import annotations
 

@@ -1,7 +1,8 @@
 """Validation record for models.finance: discount factors, NPV, IRR, MIRR, payback, SIR/AIRR, assumptions.
 
-Sources: REFERENCES.md section 9 (NIST Handbook 135 formulas and factor values; numpy-financial doc
-examples), numpy-financial 1.0.0 as an independent implementation, and hand calculations in
+Sources: NIST Handbook 135 (Life-Cycle Costing Manual for the Federal Energy Management Program)
+formulas and factor values computed from them; the ASHRAE Pocket Guide ESPWF table; numpy-financial doc
+examples, numpy-financial 1.0.0 as an independent implementation, and hand calculations in
 docs/derivations/finance-metrics.md.
 """
 
@@ -23,25 +24,26 @@ SIX_DECIMALS = 5e-7
 
 
 class TestDiscountFactors:
-    # REFERENCES 9b [C] (NIST Handbook 135 formula SPV = 1/(1+d)^t), 6 decimals.
+    # Computed [C] from the NIST Handbook 135 formula SPV = 1/(1+d)^t, 6 decimals.
     @pytest.mark.parametrize("d, t, expected", [(0.03, 10, 0.744094), (0.03, 20, 0.553676)])
     def test_spv_published(self, d, t, expected):
         assert_allclose(fin.spv_factor(d, t), expected, atol=SIX_DECIMALS)
 
-    # REFERENCES 9b [C] (NIST UPV formula); ASHRAE Pocket Guide ESPWF table [V] gives the same to 2 decimals.
+    # Computed [C] from the NIST Handbook 135 UPV formula; ASHRAE Pocket Guide ESPWF table [V] gives the same
+    # to 2 decimals.
     @pytest.mark.parametrize("d, n, expected", [
         (0.03, 10, 8.530203), (0.03, 15, 11.937935), (0.03, 20, 14.877475),
         (0.07, 10, 7.023582), (0.10, 15, 7.606080)])
     def test_upv_published(self, d, n, expected):
         assert_allclose(fin.upv_factor(d, n), expected, atol=SIX_DECIMALS)
 
-    # ASHRAE Pocket Guide 2013 ESPWF table via REFERENCES 9a [V], 2 decimals.
+    # ASHRAE Pocket Guide 2013 ESPWF table [V], 2 decimals.
     @pytest.mark.parametrize("d, n, expected", [(0.03, 10, 8.53), (0.07, 10, 7.02), (0.03, 15, 11.94),
                                                 (0.10, 15, 7.61)])
     def test_upv_ashrae_table(self, d, n, expected):
         assert_allclose(fin.upv_factor(d, n), expected, atol=0.005)
 
-    # REFERENCES 9b [C] (NIST UPV* formula, equal to the explicit sums).
+    # Computed [C] from the NIST Handbook 135 UPV* formula (equal to the explicit sums of ((1+e)/(1+d))^t).
     @pytest.mark.parametrize("d, e, n, expected, tol", [
         (0.03, 0.02, 20, 18.081229, SIX_DECIMALS),
         (0.03, -0.01, 20, 13.541833, SIX_DECIMALS),
@@ -58,13 +60,14 @@ class TestDiscountFactors:
         assert_allclose(fin.upv_star_factor(0.05, 0.05, 7), 7.0, rtol=1e-15)
 
     def test_upv_equals_numpy_financial_pv(self):
-        # REFERENCES 9c: npf.pv(0.03, 20, -1000) = 14877.47 = 1000 x UPV (npf: payments in negative, PV out positive).
+        # numpy-financial [C]: npf.pv(0.03, 20, -1000) = 14877.47 = 1000 x UPV
+        # (npf: payments in negative, PV out positive).
         assert_allclose(1000 * fin.upv_factor(0.03, 20), npf.pv(0.03, 20, -1000), rtol=1e-12)
         assert_allclose(1000 * fin.upv_factor(0.03, 20), 14877.47, atol=0.005)
 
     def test_factors_broadcast(self):
         out = fin.upv_factor(np.array([0.03, 0.07]), 10)
-        # REFERENCES 9b values, 6 decimals.
+        # NIST Handbook 135 UPV formula values [C], 6 decimals.
         assert_allclose(out, [8.530203, 7.023582], atol=SIX_DECIMALS)
 
     def test_discount_factors_shape(self):
@@ -98,17 +101,18 @@ class TestFisher:
 
 class TestNpv:
     def test_numpy_financial_doc_example(self):
-        # REFERENCES 9c [V]: numpy-financial npv doc example, rate 0.08 -> 3065.22267 (5 decimals).
+        # numpy-financial npv documentation example [V]: rate 0.08 -> 3065.22267 (5 decimals).
         assert_allclose(fin.npv([-40_000, 5_000, 8_000, 12_000, 30_000], 0.08), 3065.22267, atol=5e-6)
 
     def test_spreadsheet_convention_differs(self):
-        # REFERENCES 9c [C]: spreadsheet NPV of the same list (first value discounted) = 2838.16914;
+        # Computed [C]: spreadsheet NPV of the same list (first value discounted) = 2838.16914;
         # ours (year 0 undiscounted) divided by 1.08 gives it.
         ours = fin.npv([-40_000, 5_000, 8_000, 12_000, 30_000], 0.08)
         assert_allclose(ours / 1.08, 2838.16914, atol=5e-6)
 
     def test_numpy_docs_near_irr(self):
-        # REFERENCES 9c [V]: npf.npv(0.281, [-100, 39, 59, 55, 20]) = -0.0084785916.
+        # numpy documentation example (npv, numpy 1.13-1.17) [V]:
+        # npf.npv(0.281, [-100, 39, 59, 55, 20]) = -0.0084785916.
         assert_allclose(fin.npv([-100, 39, 59, 55, 20], 0.281), -0.0084785916, atol=5e-11)
 
     def test_zero_rate_is_sum(self):
@@ -172,7 +176,7 @@ class TestLifeCycleCost:
 
 class TestIrr:
     def test_numpy_doc_example(self):
-        # REFERENCES 9c [V]: npf.irr([-100, 39, 59, 55, 20]) = 0.2809484211599611 (numpy 1.3 docs).
+        # numpy documentation example [V]: npf.irr([-100, 39, 59, 55, 20]) = 0.2809484211599611 (numpy 1.3 docs).
         result = fin.irr([-100, 39, 59, 55, 20])
         assert_allclose(result.irr_frac, 0.2809484211599611, rtol=1e-13)
         assert result.status == fin.IRR_UNIQUE and result.is_unique is True
@@ -260,7 +264,7 @@ class TestIrr:
 
 class TestMirr:
     def test_published_example(self):
-        # REFERENCES 9c [V] (w3resource) = [C]: mirr([-1000, 100, 50, 10, 15], .34, .21) = -0.2742274708267268.
+        # published example (w3resource) [V] = [C]: mirr([-1000, 100, 50, 10, 15], .34, .21) = -0.2742274708267268.
         assert_allclose(fin.mirr([-1000, 100, 50, 10, 15], 0.34, 0.21), -0.2742274708267268, rtol=1e-13)
 
     @settings(max_examples=60, deadline=None)
@@ -386,7 +390,7 @@ class TestSirAirr:
 
     def test_airr_equals_mirr(self):
         # Hand calculation, finance-metrics.md section 3 (AIRR 0.1063706, 7 decimals), and
-        # numpy-financial mirr with finance = reinvest = d (REFERENCES 9c [C]: AIRR = MIRR).
+        # numpy-financial mirr with finance = reinvest = d (computed [C]: AIRR = MIRR).
         sir = fin.savings_to_investment_ratio([0, 300, 300, 300, 300, 300], [-1000, 0, 0, 0, 0, 0], 0.05)
         value = fin.airr(sir, 0.05, 5)
         assert_allclose(value, 0.1063706, atol=5e-8)
@@ -413,7 +417,7 @@ class TestSirAirr:
 
 class TestAnnualisedMetrics:
     def test_equivalent_annual_cost_loan(self):
-        # REFERENCES 9c [C]: npf.pmt(0.075/12, 180, 200000) = -1854.0247 (sign flip), 4 decimals.
+        # numpy-financial [C]: npf.pmt(0.075/12, 180, 200000) = -1854.0247 (sign flip), 4 decimals.
         assert_allclose(fin.equivalent_annual_cost(200_000, 0.075 / 12, 180), 1854.0247, atol=5e-5)
 
     def test_cost_of_saved_energy(self):

@@ -30,19 +30,19 @@ NAN = np.nan
 
 
 def fifteen_kw_ie3(rated_speed_rpm=1465.0, **kw) -> InductionParams:
-    """15 kW 4-pole 50 Hz IE3: 92.1 % is the IEC 60034-30-1 minimum (REFERENCES.md §1a);
-    PF 0.84 is a typical catalogue value (REFERENCES.md §12, from memory, low confidence)."""
+    """15 kW 4-pole 50 Hz IE3: 92.1 % is the IEC 60034-30-1 minimum (table, 50 Hz);
+    PF 0.84 is a typical catalogue value (from memory, low confidence)."""
     return calibrate_induction(15.0, 0.921, 0.84, rated_speed_rpm, 1500.0, **kw)
 
 
 def seventy_five_kw_ie3(**kw) -> InductionParams:
-    """75 kW 4-pole 50 Hz IE3: 95.0 % is the IEC 60034-30-1 minimum (REFERENCES.md §1a);
+    """75 kW 4-pole 50 Hz IE3: 95.0 % is the IEC 60034-30-1 minimum (table, 50 Hz);
     PF 0.85 typical (from memory); rated speed from the default slip table."""
     return calibrate_induction(75.0, 0.950, 0.85, NAN, 1500.0, **kw)
 
 
 class TestSyncSpeed:
-    # published: REFERENCES.md §2 table, n_s = 120 f / p (Engineering ToolBox) [V]; exact integers
+    # published: n_s = 120 f / p (Fitzgerald et al., Electric Machinery), Engineering ToolBox table [V]; exact integers
     @pytest.mark.parametrize(
         "poles, n50, n60",
         [(2, 3000, 3600), (4, 1500, 1800), (6, 1000, 1200), (8, 750, 900), (10, 600, 720), (12, 500, 600), (16, 375, 450), (20, 300, 360)],
@@ -52,11 +52,11 @@ class TestSyncSpeed:
         assert_allclose(sync_speed_rpm(60.0, poles), n60, rtol=1e-12)
 
     def test_twelve_pole_is_not_the_phase_multiplied_value(self):
-        # published: REFERENCES.md §2 gotcha: 12-pole 50 Hz is 500 rpm, not 1500
+        # published: Engineering ToolBox table [V]: 12-pole 50 Hz is 500 rpm, not the phase-multiplied 1500
         assert_allclose(sync_speed_rpm(50.0, 12), 500.0, rtol=1e-12)
 
     def test_vectorised(self):
-        # published: REFERENCES.md §2 table
+        # published: Engineering ToolBox table of n_s [V]
         assert_allclose(sync_speed_rpm(np.array([50.0, 60.0]), np.array([4, 6])), [1500.0, 1200.0], rtol=1e-12)
 
     @pytest.mark.parametrize("poles", [3, 0, -4, 4.5])
@@ -71,15 +71,16 @@ class TestSyncSpeed:
 
 
 class TestPowerFlow:
-    """Worked examples 3c and 3e of REFERENCES.md §3; working in docs/derivations/induction-power-flow.md.
+    """Example 3c (Example 1 of a published lecture deck, scribd "Jawaban Soal Motor Induksi") and constructed
+    check 3e; working in docs/derivations/induction-power-flow.md.
     Tolerance 0.5 % relative for textbook values (rounded intermediates), 1e-9 for exact arithmetic."""
 
     def test_example_3c(self):
         s = slip_from_power_flow(27.0, 25.0)
-        # published: REFERENCES.md §3 example 3c: s = 0.0741 (rounded to 4 digits)
+        # published: example 3c (lecture deck): s = 0.0741 (rounded to 4 digits)
         assert_allclose(s, 0.0741, atol=5e-5)
         n = sync_speed_rpm(60.0, 2) * (1.0 - s)
-        # published: REFERENCES.md §3 example 3c: n = 3333 rpm
+        # published: example 3c (lecture deck): n = 3333 rpm
         assert_allclose(n, 3333.0, rtol=5e-3)
         # published: example 3c: P_RCL = 2.0 kW
         assert_allclose(rotor_copper_loss_kw(27.0, s), 2.0, rtol=1e-9)
@@ -91,15 +92,15 @@ class TestPowerFlow:
 
     def test_example_3e(self):
         s = slip_frac(sync_speed_rpm(50.0, 4), 1470.0)
-        # published: REFERENCES.md §3 example 3e: s = 0.02
+        # hand calculation (constructed check 3e): s = 0.02
         assert_allclose(s, 0.02, rtol=1e-9)
-        # published: example 3e: P_RCL = 400 W, P_mech = 19.6 kW, f_r = 1 Hz
+        # hand calculation (3e): P_RCL = 400 W, P_mech = 19.6 kW, f_r = 1 Hz
         assert_allclose(rotor_copper_loss_kw(20.0, s), 0.4, rtol=1e-9)
         assert_allclose(converted_power_kw(20.0, s), 19.6, rtol=1e-9)
         assert_allclose(rotor_frequency_hz(50.0, s), 1.0, rtol=1e-9)
 
     def test_model_obeys_rotor_copper_equals_slip_times_airgap(self):
-        # invariant (REFERENCES.md §3): P_RCL = s P_AG and shaft = (1 - s) P_AG - friction and windage
+        # invariant (Fitzgerald et al., Eqs. 6.31-6.32): P_RCL = s P_AG and shaft = (1 - s) P_AG - friction and windage
         m = fifteen_kw_ie3()
         shaft = 15.0 * np.linspace(0.0, 1.25, 26)
         op = m.operating_point(shaft)
@@ -110,7 +111,7 @@ class TestPowerFlow:
 
 
 class TestDefaultSlip:
-    # published: REFERENCES.md §2 Engineering ToolBox table (0.5/5/15/50/250 hp -> 5/3/2.5/1.7/0.8 %) [V];
+    # published: Engineering ToolBox typical-slip table (0.5/5/15/50/250 hp -> 5/3/2.5/1.7/0.8 %) [V];
     # 1 hp = 0.745699872 kW (docs/conventions.md); exact at the table points
     @pytest.mark.parametrize("hp, slip", [(0.5, 0.05), (5.0, 0.03), (15.0, 0.025), (50.0, 0.017), (250.0, 0.008)])
     def test_table_points(self, hp, slip):
@@ -125,7 +126,8 @@ class TestDefaultSlip:
         assert_allclose(default_rated_slip_frac([0.1, 2000.0]), [0.05, 0.008], rtol=1e-12)
 
     def test_decreases_with_size(self):
-        # published: REFERENCES.md §2: "full-load slip varies from less than 1 % in high hp motors to more than 5-6 % in minor hp"
+        # published: Engineering ToolBox [V]: "full-load slip varies from less than 1 % in high hp motors
+        # to more than 5-6 % in minor hp"
         s = default_rated_slip_frac(np.geomspace(0.5, 500.0, 50))
         assert np.all(np.diff(s) <= 0)
 
@@ -137,7 +139,7 @@ class TestDefaultSlip:
 class TestCalibration:
     def test_full_load_matches_nameplate_exactly(self):
         # calibration requirement: full-load efficiency, PF and speed equal the nameplate inputs;
-        # inputs: IEC 60034-30-1 IE3 4-pole minima for 0.75/15/75/200 kW (REFERENCES.md §1a), PF and speed invented
+        # inputs: IEC 60034-30-1 IE3 4-pole minima for 0.75/15/75/200 kW (table, 50 Hz), PF and speed invented
         p = np.array([0.75, 15.0, 75.0, 200.0])
         eta = np.array([0.825, 0.921, 0.950, 0.960])
         pf = np.array([0.72, 0.84, 0.85, 0.87])
@@ -152,7 +154,7 @@ class TestCalibration:
 
     def test_part_load_points_honoured_per_asset_mix(self):
         # calibration requirement: catalogue points are met where given (NaN = not given), motor by motor;
-        # the points are invented catalogue-like values for a 15 kW IE3 (REFERENCES.md §12 ranges)
+        # the points are invented catalogue-like values for a 15 kW IE3 (typical catalogue ranges, from memory)
         e75 = np.array([NAN, 0.930, NAN, 0.930])
         e50 = np.array([NAN, NAN, 0.928, 0.928])
         pf75 = np.array([NAN, 0.79, NAN, 0.79])
@@ -176,7 +178,7 @@ class TestCalibration:
         assert_allclose(m.operating_point(np.array([11.25, 7.5])).power_factor, [0.80, 0.70], atol=1e-9)
 
     def test_default_rated_speed_when_missing(self):
-        # published: REFERENCES.md §2 table, 15 hp -> 2.5 % slip, 4-pole 50 Hz -> 1500 (1 - 0.025) = 1462.5 rpm
+        # published: Engineering ToolBox slip table, 15 hp -> 2.5 % slip, 4-pole 50 Hz -> 1500 (1 - 0.025) = 1462.5 rpm
         m = calibrate_induction(15.0 * 0.745699872, 0.90, 0.84, NAN, 1500.0)
         assert_allclose(m.rated_speed_rpm, 1462.5, rtol=1e-9)
 
@@ -217,7 +219,7 @@ class TestHandCalculation:
 
 
 class TestPartLoadShape:
-    """Shape rules of REFERENCES.md §12 (DOE fact sheet statements [V] and typical catalogue ranges):
+    """Shape rules from the DOE fact sheet statements [V] (DOE/GO-10097-517) and typical catalogue ranges [M]:
     eta peaks at 60-80 % load; eta(25 %) is 2-5 points below eta(100 %) for a ~15 kW IE3;
     PF(50 %) is 0.10-0.18 below PF(100 %); kVAr nearly constant."""
 
@@ -242,7 +244,7 @@ class TestPartLoadShape:
         assert 0.10 <= drop <= 0.18
 
     def test_fifteen_kw_within_typical_catalogue_ranges(self):
-        # published (from memory, low confidence): REFERENCES.md §12 typical 15 kW IE3 table:
+        # published (from memory, low confidence): typical 15 kW 4-pole IE3 catalogue values:
         # eta 25 % 88-90, 50 % 92.0-92.8, 75 % 92.6-93.3; PF 25 % 0.40-0.50, 50 % 0.65-0.70, 75 % 0.77-0.80.
         # The model uses the IEC minimum 92.1 % at full load, so allow 0.5 point below the efficiency ranges;
         # PF ranges widened by 0.01 for the rounding of catalogue PF values (two decimals).
@@ -256,14 +258,16 @@ class TestPartLoadShape:
         assert 0.76 <= op.power_factor[2] <= 0.81
 
     def test_seventy_five_kw_close_to_doe_curve_for_75_100_hp(self):
-        # published: REFERENCES.md §12 DOE/WSEO curve 75-100 hp: eta(L)/eta(1) = 0.980 at 25 %, 1.0 at 50 %
+        # published: DOE/WSEO curve 75-100 hp (Washington State Energy Office, Energy-Efficient Electric Motor
+        # Selection Handbook, DOE/CE-0384): eta(L)/eta(1) = 0.980 at 25 %, 1.0 at 50 %
         # (digitised polynomials of older motors); tolerance 0.015 for the digitising and the motor vintage
         op = seventy_five_kw_ie3().operating_point(75.0 * np.array([0.25, 0.5, 1.0]))
         ratio = op.efficiency_frac[:2] / op.efficiency_frac[2]
         assert_allclose(ratio, [0.980, 1.0], atol=0.015)
 
     def test_pf_at_light_load_collapses_while_kvar_stays(self):
-        # REFERENCES.md §3 physics: kVAr nearly constant with load while PF collapses at light load
+        # machine theory (Fitzgerald et al., ch. 6) and DOE fact sheet [V]: kVAr nearly constant with load
+        # while PF collapses at light load
         op = fifteen_kw_ie3().operating_point(15.0 * np.array([0.0, 0.25, 1.0]))
         assert op.q_kvar[1] / op.q_kvar[0] < 1.05
         assert op.q_kvar[2] / op.q_kvar[0] < 1.6
@@ -349,7 +353,7 @@ class TestRewind:
         assert_allclose(op.efficiency_frac, [0.921, 0.916, 0.911, 0.906], atol=1e-12)
 
     def test_default_is_the_published_good_practice_value(self):
-        # published: REFERENCES.md §10, EASA/AEMT 2019 study: average -0.1 point per rewind
+        # published: EASA/AEMT 2019 rewind study [V]: average -0.1 point per rewind
         op = fifteen_kw_ie3(rewind_count=1).operating_point(15.0)
         assert_allclose(op.efficiency_frac, 0.920, atol=1e-12)
 

@@ -31,25 +31,26 @@ from models.loads import (
 
 
 class TestAffinityLaws:
-    """REFERENCES.md §7 worked examples [V]; working in docs/derivations/loads-speed-coupling.md.
+    """Published affinity-law worked examples [V] (calculatorlib.com, calculatorcollection.org); working in
+    docs/derivations/loads-speed-coupling.md.
     The sources round to 2-4 significant digits, so tolerance 0.5 % relative."""
 
     def test_1750_to_1450_rpm(self):
         r = 1450.0 / 1750.0
-        # published: REFERENCES.md §7 (calculatorlib.com): 100 gpm, 50 ft, 10 hp -> 82.86 gpm, 34.33 ft, 5.69 hp
+        # published: calculatorlib.com affinity-law example: 100 gpm, 50 ft, 10 hp -> 82.86 gpm, 34.33 ft, 5.69 hp
         assert_allclose(100.0 * affinity_flow_ratio(r), 82.86, rtol=5e-3)
         assert_allclose(50.0 * affinity_head_ratio(r), 34.33, rtol=5e-3)
         assert_allclose(10.0 * affinity_power_ratio(r), 5.69, rtol=5e-3)
 
     def test_1450_to_1750_rpm(self):
         r = 1750.0 / 1450.0
-        # published: REFERENCES.md §7 (calculatorcollection.org): 60 m3/h, 25 m, 8 kW -> 72.4 m3/h, 36.4 m, 14.1 kW
+        # published: calculatorcollection.org example: 60 m3/h, 25 m, 8 kW -> 72.4 m3/h, 36.4 m, 14.1 kW
         assert_allclose(60.0 * affinity_flow_ratio(r), 72.4, rtol=5e-3)
         assert_allclose(25.0 * affinity_head_ratio(r), 36.4, rtol=5e-3)
         assert_allclose(8.0 * affinity_power_ratio(r), 14.1, rtol=5e-3)
 
     def test_rules_of_thumb(self):
-        # published: REFERENCES.md §7 rules of thumb: +10 % speed -> +21 % head, +33 % power; -20 % -> x 0.512
+        # common practice: affinity-law rules of thumb: +10 % speed -> +21 % head, +33 % power; -20 % -> x 0.512
         assert_allclose(affinity_head_ratio(1.1), 1.21, rtol=1e-12)
         assert_allclose(affinity_power_ratio(1.1), 1.331, rtol=1e-12)
         assert_allclose(affinity_power_ratio(0.8), 0.512, rtol=1e-12)
@@ -74,16 +75,17 @@ class TestAffinityLaws:
 
 
 class TestSpeedCoupling:
-    """docs/derivations/loads-speed-coupling.md and DOMAIN.md section 2."""
+    """Hand calculations in docs/derivations/loads-speed-coupling.md; efficiencies from the IEC 60034-30-1 table."""
 
     def test_domain_example_30kw_1475_to_1500_rpm(self):
-        # published: DOMAIN.md §2: 30 kW 4-pole 1475 -> 1500 rpm: +5.2 % shaft power; (1500/1475)^3 = 1.0517
+        # hand calculation (docs/derivations/loads-speed-coupling.md): 30 kW 4-pole 1475 -> 1500 rpm:
+        # +5.2 % shaft power; (1500/1475)^3 = 1.0517
         p = shaft_power_at_speed_kw(30.0, 1475.0, 1500.0)
         assert_allclose(p / 30.0, 1.0517, atol=5e-5)
         assert_allclose(p / 30.0 - 1.0, 0.052, atol=5e-4)
 
     def test_domain_example_net_input_change(self):
-        # published: DOMAIN.md §2: with IE3 93.6 % -> IE4 94.9 % (IEC 60034-30-1 30 kW 4-pole, REFERENCES.md §1a)
+        # hand calculation: with IE3 93.6 % -> IE4 94.9 % (IEC 60034-30-1 table, 30 kW 4-pole 50 Hz)
         # the net input change is +3.7 % (hand: 1.051714 x 0.936/0.949 = 1.037307)
         ratio = shaft_power_at_speed_kw(30.0, 1475.0, 1500.0) / 30.0 * 0.936 / 0.949
         assert_allclose(ratio, 1.037307, rtol=1e-6)
