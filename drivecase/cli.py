@@ -50,6 +50,8 @@ def cmd_new(args: argparse.Namespace) -> int:
     except ValueError as exc:
         print(f"drivecase new: {exc}", file=sys.stderr)
         return 1
+    except OSError as exc:
+        return _write_failed("new", args.dir, exc)
     print(f"Blank case written to {args.dir}:")
     for path in written:
         print(f"  {path}")
@@ -131,7 +133,22 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
     parent = next((p for p in target.absolute().parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         return f"drivecase {command}: --out {out} lies under {parent}, which is a file; give a folder"
+    import os
+
+    writable = target if target.is_dir() else parent
+    if writable is not None and not os.access(writable, os.W_OK | os.X_OK):
+        return (f"drivecase {command}: cannot write into {writable} (permission denied); give a folder you can "
+                "write to")
     return None
+
+
+def _write_failed(command: str, out: str, exc: OSError) -> int:
+    """Say that writing the results failed, in one line, and return the exit code."""
+    where = getattr(exc, "filename", None) or out
+    reason = exc.strerror or exc.__class__.__name__
+    print(f"drivecase {command}: could not write into {out} ({reason}: {where}); give a folder you can write to "
+          "and run again. The case's files were not changed.", file=sys.stderr)
+    return 1
 
 
 def _writes_into_case(case_path: str, out: str) -> str | None:
@@ -314,7 +331,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     bar.close()
     if site_bar is not None:
         site_bar.close()
-    written = write_run(result, args.out)
+    try:
+        written = write_run(result, args.out)
+    except OSError as exc:
+        return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
@@ -424,8 +444,11 @@ def cmd_report(args: argparse.Namespace) -> int:
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:  # the pack's notes as plain lines, not Python warnings
         warnings.simplefilter("always", PackWarning)
-        written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf,
-                             messages=notes)
+        try:
+            written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf,
+                                 messages=notes)
+        except OSError as exc:
+            return _write_failed("report", args.out, exc)
     skipped = set()
     for note in caught:
         if issubclass(note.category, PackWarning):

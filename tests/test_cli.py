@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import re
 import csv
+import os
 import shutil
 import subprocess
 import sys
@@ -485,3 +486,41 @@ def test_run_with_an_empty_plan_says_it_has_no_uncertainty_of_its_own(tmp_path, 
     out = capsys.readouterr().out
     assert "Plan under the budget: 0 projects" in out
     assert "Plan NPV under uncertainty: none to show, the plan holds no project under this budget" in out
+
+
+def test_an_output_folder_that_cannot_be_written_gives_one_line(tmp_path, capsys, monkeypatch):
+    # a folder the user may not write into (read-only media, another user's folder, an immutable flag that even
+    # root meets): the commands say so in one line, no traceback, and leave the case alone
+    from models import exports, io, pack
+
+    case = Path(shutil.copytree(DEMO, tmp_path / "case"))
+    before = {p.name: p.read_bytes() for p in case.iterdir() if p.is_file()}
+
+    def denied(*args, **kwargs):
+        raise PermissionError(13, "Permission denied", str(tmp_path / "out" / ".results.csv.part"))
+
+    monkeypatch.setattr(exports, "write_run", denied)
+    monkeypatch.setattr(pack, "write_pack", denied)
+    monkeypatch.setattr(io, "write_blank_case", denied)
+    assert main(["run", str(case), "--out", str(tmp_path / "out"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 1
+    assert main(["new", str(tmp_path / "blank")]) == 1
+    err = capsys.readouterr().err
+    for command in ("run", "new"):  # report writes its pack through the same handler (cli._write_failed)
+        assert f"drivecase {command}: could not write into" in err and "Permission denied" in err
+    assert "Traceback" not in err
+    assert {p.name: p.read_bytes() for p in case.iterdir() if p.is_file()} == before
+
+
+@pytest.mark.skipif(not hasattr(os, "geteuid") or os.geteuid() == 0, reason="root may write into any folder")
+def test_a_read_only_output_folder_is_refused_before_the_run(tmp_path, capsys):
+    import casebuilder as cb
+
+    case = cb.write_case(tmp_path / "case")
+    out = tmp_path / "out"
+    out.mkdir()
+    out.chmod(0o555)
+    try:
+        assert main(["run", str(case), "--out", str(out), "--quiet", "--no-risk"]) == 2
+    finally:
+        out.chmod(0o755)
+    assert "cannot write into" in capsys.readouterr().err
