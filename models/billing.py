@@ -96,8 +96,9 @@ def pf_adjusted_demand_kw(demand_kw, power_factor, target_power_factor: float):
     Notes
     -----
     A clause common in North American commercial and industrial rate schedules (common practice):
-    billed kW = kW × 0.90 / PF when PF < 0.90, which equals 0.90 × kVA. Checks (REFERENCES §11, worked
-    in ``docs/derivations/billing-equivalences.md``): 480 kW at PF 0.82 → 526.8 kW; 800 kW at PF 0.80
+    billed kW = kW × 0.90 / PF when PF < 0.90, which equals 0.90 × kVA. Checks (hand calculation in
+    ``docs/derivations/billing-equivalences.md``; the 800 kW case is the foretaggroup.com Georgia Power
+    demand-charge example): 480 kW at PF 0.82 → 526.8 kW; 800 kW at PF 0.80
     → 900 kW. PF is the displacement power factor P/S (IEEE Std 1459-2010, clause 3.1.1).
 
     Examples
@@ -138,7 +139,7 @@ def percent_adjusted_demand_kw(
     Notes
     -----
     Clause form "billing demand raised 1 % for each 1 % by which the average lagging power factor is
-    below 95 %", as in US public-utility schedules (REFERENCES §11).
+    below 95 %", as in US public-utility schedules (e.g. Schedule 92 – Power Factor Rate, crpud.net).
 
     Examples
     --------

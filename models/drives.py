@@ -26,7 +26,7 @@ import pandas as pd
 DriveClass = Literal["IE0", "IE1", "IE2"]
 
 #: The eight CDM operating points of IEC 61800-9-2 as (relative motor-stator frequency %, relative
-#: torque-producing current %); published (IEC 61800-9-2:2017, clause 5, as read in REFERENCES §8).
+#: torque-producing current %); published (IEC 61800-9-2:2017, clause 5).
 CDM_OPERATING_POINTS_PCT: tuple[tuple[int, int], ...] = (
     (0, 25),
     (0, 50),
@@ -40,12 +40,12 @@ CDM_OPERATING_POINTS_PCT: tuple[tuple[int, int], ...] = (
 
 #: Loss of the reference CDM at the (90, 100) point as a fraction of the CDM rated apparent output power.
 #: From memory / common practice, verify against IEC 61800-9-2 tables: the standard tabulates the
-#: reference losses by rating, and those numbers are not in our references. 4 % of rated kVA puts an IE2
+#: reference losses by rating, and those numbers were not read for this project. 4 % of rated kVA puts an IE2
 #: drive (55 % of it, below) at 97-98 % efficiency at full load, the usual catalogue range.
 REFERENCE_CDM_LOSS_FRAC_AT_90_100 = 0.040
 
 #: Half-width of the IE1 band around the reference CDM loss at (90, 100): IE2 is more than 25 % below,
-#: IE0 more than 25 % above (IEC 61800-9-2:2017, as read in REFERENCES §8; published).
+#: IE0 more than 25 % above (IEC 61800-9-2:2017; published).
 CDM_CLASS_BAND_FRAC = 0.25
 
 #: Loss at (90, 100) relative to the reference CDM for a typical drive of each class. Common practice:
@@ -59,7 +59,7 @@ DRIVE_CLASS_LOSS_RATIO: dict[str, float] = {"IE0": 1.40, "IE1": 1.00, "IE2": 0.5
 PWM_EXTRA_LOSS_FRAC = 0.10
 
 #: Typical input displacement power factor and current THD by front end, (dpf, thd_i_frac).
-#: From memory / common practice (REFERENCES §13 "VFD context", marked [M] there).
+#: From memory / common practice [M] (typical six-pulse, twelve-pulse and active-front-end figures).
 FRONT_END_DEFAULTS: dict[str, tuple[float, float]] = {
     "six_pulse_with_choke": (0.97, 0.40),
     "six_pulse_no_choke": (0.96, 0.90),
@@ -327,7 +327,7 @@ def drive_losses_kw(rated_s_kva, speed_frac, torque_current_frac, drive_class="I
     torque_current_frac : float, array_like, pandas Series or DataFrame
         Relative torque-producing output current referred to the CDM rated current [-], 0-2.
     drive_class : {"IE0", "IE1", "IE2"} or array_like of str, optional
-        CDM class per asset; default "IE2", the EU minimum since 1 July 2021 (REFERENCES §1e).
+        CDM class per asset; default "IE2", the EU minimum since 1 July 2021 (EU Regulation 2019/1781, Annex I).
     magnetising_current_frac : float or array_like, optional
         Relative magnetising output current [-], 0-1; see :func:`cdm_relative_loss_frac`.
     shape : DriveLossShape, optional
@@ -424,7 +424,7 @@ def drive_class_from_loss(loss_at_90_100_kw, rated_s_kva, *, reference_loss_frac
 
     Notes
     -----
-    Class limits from IEC 61800-9-2:2017 [1] as read in REFERENCES §8.
+    Class limits from IEC 61800-9-2:2017 [1].
 
     References
     ----------
@@ -606,9 +606,9 @@ def supply_side_powers(p_kw, dpf, thd_i_frac, thd_v_frac=0.0) -> SupplySide:
         D_I = S_1·THD_I,  S = S_1·sqrt((1 + THD_I²)(1 + THD_V²)),  N = sqrt(S² - P²).
 
     Metering choice: ``q_kvar`` is the fundamental reactive power Q_1, the quantity that utilities'
-    kvarh registers usually integrate and that capacitors can compensate (REFERENCES §13, VFD context,
-    from memory). The current distortion shows in ``power_factor`` (and in kVA or kVAh billing, which
-    uses ``s_kva``), not in ``q_kvar``. A diode front end draws lagging fundamental current, so Q_1 >= 0.
+    kvarh registers usually integrate and that capacitors can compensate (from memory). The current
+    distortion shows in ``power_factor`` (and in kVA or kVAh billing, which uses ``s_kva``), not in
+    ``q_kvar``. A diode front end draws lagging fundamental current, so Q_1 >= 0.
 
     References
     ----------

@@ -71,8 +71,8 @@ def synchronous_speed_rpm(f_hz, poles):
 
     Notes
     -----
-    n_s = 120·f/p, Eq. in Ch. 4 of [1] (REFERENCES §2 table). A synchronous motor runs at n_s at every
-    load.
+    n_s = 120·f/p, Eq. in Ch. 4 of [1] (speed table: Engineering ToolBox, "Slip in electrical induction
+    motors"). A synchronous motor runs at n_s at every load.
 
     References
     ----------
@@ -113,12 +113,12 @@ def reactive_power_to_reach_power_factor_kvar(p_kw, q_kvar, target_power_factor)
 
     Notes
     -----
-    Q_add = P·tan(acos PF_target) - Q, the power-factor-correction formula of REFERENCES §5 written in
-    the tool's sign convention.
+    Q_add = P·tan(acos PF_target) - Q, the power-factor-correction formula Q_c = P·(tan phi_1 - tan phi_2)
+    (published; worked checks on nodeandvolt.com) written in the tool's sign convention.
 
     Examples
     --------
-    100 kW at 0.75 lagging to 0.95 needs about 55.3 kvar supplied (REFERENCES §5):
+    100 kW at 0.75 lagging to 0.95 needs about 55.3 kvar supplied (published check, nodeandvolt.com):
 
     >>> round(float(reactive_power_to_reach_power_factor_kvar(100.0, 88.19171, 0.95)), 1)
     -55.3
@@ -154,7 +154,7 @@ def power_angle_p_kw(v_ph_v, e_f_ph_v, synchronous_reactance_ohm, load_angle_deg
 
     Notes
     -----
-    Power-angle equation, Ch. 5 of [1] (REFERENCES §6). Maximum (pull-out) at delta = 90°.
+    Power-angle equation, Ch. 5 of [1]. Maximum (pull-out) at delta = 90°.
 
     References
     ----------
@@ -322,7 +322,7 @@ def lspm_operating_point(p_shaft_kw, rated_p_kw, rated_efficiency_frac, poles, f
 
         E_0 = |1 - x·Q_r - j·x·P_r|,  P_r = PF_r,  Q_r = ±sqrt(1 - PF_r²).
 
-    At any input P (pu): sin(delta) = P·x/(V·E_0), Q = (V² - V·E_0·cos delta)/x (REFERENCES §6). The
+    At any input P (pu): sin(delta) = P·x/(V·E_0), Q = (V² - V·E_0·cos delta)/x ([1], Ch. 5). The
     copper loss needs the current, which needs P: three fixed-point steps converge (copper is a few
     per cent of input); input = shaft + losses holds exactly. At rated load the model returns the rated
     efficiency and power factor.
@@ -499,10 +499,11 @@ def lspm_starting_screen(load_inertia_ratio, start_load_torque_frac, starts_per_
     Notes
     -----
     A cage-started PM rotor must pull into step against the magnet braking torque; the margin shrinks
-    with load inertia, load torque during run-up and low voltage (DOMAIN §2 and §6: one 2.2 kW case failed
-    at 1.07 x rated start load). Accelerating and synchronising torques scale with V², so the inertia and
-    torque checks use the dip-derated values J/(1 - dip)² and T/(1 - dip)². The screen only sorts; the
-    supplier's synchronisation calculation decides.
+    with load inertia, load torque during run-up and low voltage (published: a 2.2 kW LSPM synchronises at
+    rated load but fails at 1.07 x rated start load, J. Europ. Syst. Autom. 59(5), doi:10.18280/jesa.590511;
+    limited critical inertia reviewed in Energies 18(17):4545, 2025). Accelerating and synchronising
+    torques scale with V², so the inertia and torque checks use the dip-derated values J/(1 - dip)² and
+    T/(1 - dip)². The screen only sorts; the supplier's synchronisation calculation decides.
 
     Examples
     --------
@@ -981,7 +982,7 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
 
     Notes
     -----
-    Motor convention, star-equivalent phase quantities, V on the real axis [1] (REFERENCES §6):
+    Motor convention, star-equivalent phase quantities, V on the real axis [1] (Ch. 5):
 
         V = E_f + (R_a + jX_s)·I,   I = (P - jQ)/(3V),   P = 3·V·E_f·sin(delta)/X_s  (R_a = 0).
 
@@ -994,7 +995,7 @@ def wfsm_operating_point(p_shaft_kw, *, rated_v_ll_v, synchronous_reactance_ohm,
 
     The request Q* is set by the mode: Q* = ∓P_in·tan(acos PF) ("power_factor"); the setpoint
     ("kvar"); or Q* = min(0, (P_site,other + P_in)·tan(acos PF_target) - Q_site,other) ("follow_site",
-    the correction formula of REFERENCES §5; the machine never absorbs reactive power to worsen a site
+    the correction formula Q_c = P·(tan phi_1 - tan phi_2); the machine never absorbs reactive power to worsen a site
     that already meets the target). Limits give a feasible band Q_lo <= Q <= Q_hi at the operating P:
     stator current |S| <= 3·V·I_max; field ceiling |3V² - Z(P - jQ)| <= 3·V·E_f,max (a circle in the PQ
     plane); load angle delta <= delta_max (a half-plane, the under-excitation limit). Q* is clipped into

@@ -1,7 +1,8 @@
 """Tests for models.billing: hand-calculated bills for each clause, equivalences, invariants, input kinds.
 
 Sources: hand calculations in docs/derivations/billing-energy.md, billing-demand.md, billing-reactive.md,
-billing-fixed-taxes.md and billing-equivalences.md (published values from REFERENCES §11).
+billing-fixed-taxes.md and billing-equivalences.md (published examples: foretaggroup.com Georgia Power
+demand charge, 800 kW at PF 0.80 → 900 kW; a forum worked example, 480 kW at PF 0.82 → 527 kW).
 Tolerances: hand calculations are exact to the cent unless a square root is involved; amounts are
 compared to 1e-9 (floating-point summation only) unless stated otherwise.
 """
@@ -167,7 +168,8 @@ class TestDemand:
         assert_allclose(bill_total(b), 3124.10, atol=1e-3)
 
     def test_pf_adjustment_ratio_800_kw_at_0_80(self):
-        # hand calculation, see docs/derivations/billing-demand.md, case D2 (REFERENCES §11: 800 kW at PF 0.80 → 900 kW)
+        # hand calculation, see docs/derivations/billing-demand.md, case D2 (published on foretaggroup.com:
+        # 800 kW at PF 0.80 → 900 kW)
         t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\n'
                  '[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_power_factor = 0.90')
         idx = pd.date_range("2025-01-06", periods=4, freq="h", tz="UTC")
@@ -250,11 +252,11 @@ class TestDemand:
 
 class TestDemandEquations:
     def test_480_kw_at_0_82(self):
-        # REFERENCES §11: 480 kW at PF 0.82 with 0.90/PF → 526.8 kW (billing-equivalences.md: 526.83)
+        # hand calculation: 480 kW at PF 0.82 with 0.90/PF → 526.8 kW (billing-equivalences.md: 526.83)
         assert_allclose(pf_adjusted_demand_kw(480.0, 0.82, 0.90), 526.83, atol=5e-3)
 
     def test_800_kw_at_0_80(self):
-        # REFERENCES §11: 800 kW at PF 0.80 → 900 kW
+        # published (foretaggroup.com, Georgia Power demand charge): 800 kW at PF 0.80 → 900 kW
         assert_allclose(pf_adjusted_demand_kw(800.0, 0.80, 0.90), 900.0, rtol=1e-12)
 
     def test_no_adjustment_at_or_above_target(self):

@@ -99,7 +99,8 @@ class TestAssetRules:
         assert _find(problems, row=2, column="profile_id", text="unknown profile").value == "LP9"
 
     def test_speed_at_or_above_synchronous(self, tmp_path):
-        # 120 f / p = 120 * 50 / 4 = 1500 rpm (REFERENCES 2); an induction motor must run below it
+        # 120 f / p = 120 * 50 / 4 = 1500 rpm (Engineering ToolBox, synchronous-speed table); an induction
+        # motor must run below it
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(0, "rated_speed_rpm", "1500")))
         assert _find(problems, row=2, column="rated_speed_rpm", text="below synchronous speed")
 

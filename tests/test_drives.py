@@ -1,9 +1,10 @@
 """Tests for models.drives: CDM losses and classes (IEC 61800-9-2), IEEE 1459 supply quantities, added drives.
 
-Sources: REFERENCES §8 (IEC 61800-9-2 points and class limits) and §13 (IEEE Std 1459-2010 numeric
-checks); hand calculations in docs/derivations/drives-cdm-losses-and-ieee1459.md. The reference CDM
-loss (4 % of rated kVA) and the class levels are from memory (module constants), so tests built on
-them check the model's arithmetic, not the standard's table.
+Sources: IEC 61800-9-2:2017 (CDM points, clause 5, and class limits) and IEEE Std 1459-2010 with
+PF = DPF/sqrt(1 + THD_I²) (numeric checks); hand calculations in
+docs/derivations/drives-cdm-losses-and-ieee1459.md. The reference CDM loss (4 % of rated kVA) and the
+class levels are from memory (module constants), so tests built on them check the model's arithmetic,
+not the standard's table.
 """
 
 from __future__ import annotations
@@ -35,7 +36,7 @@ HAND_RTOL = 1e-6
 
 class TestCdmOperatingPoints:
     def test_points_are_the_eight_of_the_standard(self):
-        # published: IEC 61800-9-2:2017 CDM points, REFERENCES §8
+        # published: IEC 61800-9-2:2017 CDM points, clause 5
         assert CDM_OPERATING_POINTS_PCT == (
             (0, 25), (0, 50), (0, 100), (50, 25), (50, 50), (50, 100), (90, 50), (90, 100),
         )
@@ -97,7 +98,7 @@ class TestDriveClassFromLoss:
     @pytest.mark.parametrize(
         "loss_kw, expected",
         [
-            (2.99, "IE2"),  # published rule (REFERENCES §8): > 25 % below reference 4.0 kW -> IE2
+            (2.99, "IE2"),  # published rule (IEC 61800-9-2:2017): > 25 % below reference 4.0 kW -> IE2
             (3.0, "IE1"),  # boundary: exactly 25 % below is not "more than", stays IE1
             (4.0, "IE1"),
             (5.0, "IE1"),  # boundary: exactly 25 % above stays IE1
@@ -125,13 +126,13 @@ class TestTruePowerFactor:
     @pytest.mark.parametrize(
         "dpf, thd, expected",
         [
-            (0.97, 0.40, 0.9006),  # published check REFERENCES §13 (DPF 0.97, THD 40 %)
-            (0.97, 0.90, 0.721),  # published check REFERENCES §13 (THD 90 %)
-            (0.90, 0.0, 0.90),  # published check REFERENCES §13 (no distortion)
+            (0.97, 0.40, 0.9006),  # published check, PF = DPF/sqrt(1 + THD²) (DPF 0.97, THD 40 %)
+            (0.97, 0.90, 0.721),  # published check, same relation (THD 90 %)
+            (0.90, 0.0, 0.90),  # published check, same relation (no distortion)
         ],
     )
     def test_reference_checks(self, dpf, thd, expected):
-        # REFERENCES rounds to 4 (or 3) decimals; abs 6e-4 covers that rounding
+        # the checks are rounded to 4 (or 3) decimals; abs 6e-4 covers that rounding
         assert_allclose(true_power_factor(dpf, thd), expected, atol=6e-4)
 
     def test_voltage_distortion(self):
@@ -163,7 +164,7 @@ class TestSupplySidePowers:
         assert_allclose(s.nonactive_power_kvar, 48.2558, rtol=1e-5)
 
     def test_nonactive_split_with_sinusoidal_voltage(self):
-        # IEEE Std 1459-2010 decomposition (REFERENCES §13): with THD_V = 0, N² = Q1² + D_I²
+        # IEEE Std 1459-2010 decomposition: with THD_V = 0, N² = Q1² + D_I²
         s = supply_side_powers(np.array([10.0, 55.0]), 0.95, np.array([0.3, 1.0]))
         assert_allclose(s.nonactive_power_kvar ** 2, s.q_kvar ** 2 + s.distortion_power_kvar ** 2, rtol=1e-12)
 

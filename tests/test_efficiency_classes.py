@@ -21,7 +21,7 @@ class TestMinEfficiency50Hz:
         assert_allclose(got, table["min_efficiency_pct"], atol=0.05 + 1e-9)
 
     @pytest.mark.parametrize(("kw", "poles", "cls", "expected"), [
-        (15, 4, "IE3", 92.1),   # published: IEC 60034-30-1 Table 2 (REFERENCES spot check)
+        (15, 4, "IE3", 92.1),   # published: IEC 60034-30-1 Table 2 (spot check)
         (75, 4, "IE4", 96.0),   # published: IEC 60034-30-1 Table 2
         (15, 4, "IE2", 90.6),   # published: IEC 60034-30-1 Table 2 (also bauergears.com: EFF1 91.8 % ~ IE2 90.6 %)
         (200, 2, "IE2", 95.0),  # published: IEC 60034-30-1 Table 2 (a web page wrongly gives 95.3)
@@ -30,7 +30,8 @@ class TestMinEfficiency50Hz:
         assert_allclose(min_efficiency_pct(kw, poles, 50, cls), expected, atol=0.05)
 
     @pytest.mark.parametrize(("kw", "expected"), [
-        # formula values at unlisted ratings, IE3 4-pole: computed from the Table 28 coefficients (REFERENCES 1b)
+        # formula values at unlisted ratings, IE3 4-pole: computed from the EU Reg. 2019/1781 Annex I,
+        # Table 28 coefficients
         (5.0, 89.302), (9.0, 90.917), (12.5, 91.724), (20.0, 92.762), (100.0, 95.337), (150.0, 95.759),
     ])
     def test_interpolation_between_rows(self, kw, expected):
@@ -51,7 +52,7 @@ class TestMinEfficiency50Hz:
         assert np.isnan(got).all()
 
     def test_ie5_from_ie4_loss_ratio(self):
-        # from memory (REFERENCES 1e): IE5 has ~20 % fewer losses than IE4; 4-pole 15 kW -> 95.1, 75 kW -> 96.8
+        # from memory: IE5 has ~20 % fewer losses than IE4; 4-pole 15 kW -> 95.1, 75 kW -> 96.8
         assert_allclose(min_efficiency_pct([15, 75], 4, 50, "IE5"), [95.1, 96.8], atol=0.05)
 
 

@@ -52,10 +52,12 @@ class TestSpeedRise:
         r = pump_result
         keep, lspm = r.option_position("keep"), r.option_position("lspm")
         n_ref = r.mean_speed_rpm[0, keep]
-        # affinity law, REFERENCES 7 (Hydraulic Institute): P2/P1 = (n2/n1)^3 with n2 = 120 f / p = 1500 rpm
+        # affinity law (Hydraulic Institute, ANSI/HI 1.3 / 14.3, from memory): P2/P1 = (n2/n1)^3 with
+        # n2 = 120 f / p = 1500 rpm
         assert_allclose(r.mean_speed_rpm[0, lspm], 1500.0, rtol=1e-9)
         assert_allclose(r.shaft_energy_kwh[0, lspm] / r.shaft_energy_kwh[0, keep], (1500.0 / n_ref) ** 3, rtol=1e-6)
-        # the speed rise is of the published order: 1-5 % slip -> 3-16 % more shaft power (DOMAIN, effects table)
+        # the speed rise is of the published order: 1-5 % slip (mcnallyinstitute.com) -> 3-16 % more shaft
+        # power
         assert 1.03 < (1500.0 / n_ref) ** 3 < 1.16
 
     def test_remedies_turn_it_into_a_saving(self, pump_result):
@@ -160,7 +162,8 @@ class TestFollowSite:
         base_p = 800.0
         base_q = 800.0 * np.tan(np.arccos(0.7))
         pf = site_power_factor(r.p_kw[o, 0] + base_p, r.q_kvar[o, 0] + base_q)
-        # target 0.95 lagging; the machine supplies exactly what is missing (REFERENCES 5: Q = P (tan phi1 - tan phi2))
+        # target 0.95 lagging; the machine supplies exactly what is missing (PF correction formula:
+        # Q = P (tan phi1 - tan phi2))
         assert_allclose(pf, 0.95, atol=1e-3)
         assert not r.flags["flag"].str.contains("held back").any()
         assert (r.q_kvar[o, 0] < 0).all()
@@ -177,7 +180,7 @@ class TestFollowSite:
 def test_performance_curves_shape(demo_case):
     curves = performance_curves(demo_case, "HRW-P21")
     keep = curves[curves.option_id == "keep"].sort_values("load_frac")
-    # published shape (US DOE fact sheet, REFERENCES 12): PF falls as load falls
+    # published shape (US DOE fact sheet "Determining Electric Motor Load and Efficiency"): PF falls as load falls
     assert (np.diff(keep["power_factor"].to_numpy()) > -1e-9).all()
     assert {"keep", "ie3", "lspm", "pm_drive"} <= set(curves.option_id)
 

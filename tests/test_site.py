@@ -1,7 +1,8 @@
 """Tests for models.site: the site meter and capacitor banks.
 
 Sources: hand calculations in docs/derivations/billing-site-and-attribution.md and
-docs/derivations/billing-equivalences.md; published values from REFERENCES §5 and §11.
+docs/derivations/billing-equivalences.md; published power-factor-correction values (multiplier table
+tan(acos PF1) - tan(acos PF2); worked checks on nodeandvolt.com).
 """
 
 from __future__ import annotations
@@ -32,10 +33,10 @@ class TestPowerFactorRelations:
     @pytest.mark.parametrize(
         "tan_phi, pf",
         [
-            (0.33, 0.9496),  # REFERENCES §11: kVArh/kWh 0.33 ⇔ PF 0.9496
-            (0.40, 0.9285),  # REFERENCES §11: tan φ 0.4 ⇔ PF 0.9285
-            (0.62, 0.850),  # REFERENCES §11: kvar/kW 0.62 ⇔ PF 0.850
-            (0.50, 0.894),  # REFERENCES §11: kvar/kW 0.5 ⇔ PF 0.894
+            (0.33, 0.9496),  # hand calculation (billing-equivalences.md): GB DUoS kVArh/kWh 0.33 ⇔ PF 0.9496
+            (0.40, 0.9285),  # hand calculation (billing-equivalences.md): RTE tan φ 0.4 ⇔ PF 0.9285
+            (0.62, 0.850),  # hand calculation (billing-equivalences.md): kvar/kW 0.62 ⇔ PF 0.850
+            (0.50, 0.894),  # hand calculation (billing-equivalences.md): kvar/kW 0.5 ⇔ PF 0.894
         ],
     )
     def test_published_equivalences(self, tan_phi, pf):
@@ -50,9 +51,9 @@ class TestPowerFactorRelations:
     @pytest.mark.parametrize(
         "p_kw, pf1, pf2, q_kvar",
         [
-            (100.0, 0.75, 0.95, 55.30),  # REFERENCES §5 (nodeandvolt.com): 100 kW, 0.75 → 0.95: 55.30 kvar
-            (250.0, 0.80, 0.95, 105.33),  # REFERENCES §5: 250 kW, 0.80 → 0.95: 105.33 kvar
-            (75.0, 0.70, 0.90, 40.19),  # REFERENCES §5: 75 kW, 0.70 → 0.90: 40.19 kvar
+            (100.0, 0.75, 0.95, 55.30),  # published (nodeandvolt.com): 100 kW, 0.75 → 0.95: 55.30 kvar
+            (250.0, 0.80, 0.95, 105.33),  # published (nodeandvolt.com): 250 kW, 0.80 → 0.95: 105.33 kvar
+            (75.0, 0.70, 0.90, 40.19),  # published (nodeandvolt.com): 75 kW, 0.70 → 0.90: 40.19 kvar
         ],
     )
     def test_correction_formula(self, p_kw, pf1, pf2, q_kvar):
@@ -64,9 +65,9 @@ class TestPowerFactorRelations:
     @pytest.mark.parametrize(
         "pf1, pf2, multiplier",
         [
-            (0.75, 0.90, 0.398),  # REFERENCES §5 table, cell verified against a stored page
-            (0.65, 1.00, 1.169),  # REFERENCES §5 table, cell verified against a stored page
-            (0.80, 0.95, 0.421),  # REFERENCES §5 table [C]
+            (0.75, 0.90, 0.398),  # PF-correction multiplier table, cell as published (slideshare "bank kapasitor")
+            (0.65, 1.00, 1.169),  # PF-correction multiplier table, cell as published (elmeasure.com)
+            (0.80, 0.95, 0.421),  # PF-correction multiplier table tan(acos PF1) - tan(acos PF2) [C]
         ],
     )
     def test_correction_multiplier_table(self, pf1, pf2, multiplier):
@@ -189,7 +190,7 @@ class TestSteppedBank:
         assert_allclose(stepped_bank_q_kvar(10.0, 120.0, 250.0, 50.0, target), -100.0, rtol=1e-12)
 
     def test_published_correction_with_fine_steps(self):
-        # REFERENCES §5: 250 kW from 0.80 to 0.95 needs 105.33 kvar (published to 2 decimals); with
+        # published (nodeandvolt.com): 250 kW from 0.80 to 0.95 needs 105.33 kvar (published to 2 decimals); with
         # 0.01 kVAr steps the controller switches the fewest steps reaching 0.95: at most one step above
         q = q_from_power_factor_kvar(250.0, 0.80)
         q_cap = -stepped_bank_q_kvar(250.0, q, 200.0, 0.01, 0.95)

@@ -1,7 +1,10 @@
 """Tests for models.synchronous: LSPM, PM/SynRM on a drive, and the wound-field synchronous motor.
 
-Sources: REFERENCES §2 (synchronous speeds), §5 (power-factor correction), §6 (phasor convention),
-§12 (part-load curves) and §13 (IEEE 1459 checks); S. J. Chapman, Electric Machinery Fundamentals,
+Sources: Engineering ToolBox, "Slip in electrical induction motors" (synchronous speeds); the
+power-factor-correction multiplier table tan(acos PF1) - tan(acos PF2) and the nodeandvolt.com worked
+checks; Chapman Ch. 5 (phasor convention); Washington State Energy Office, Energy-Efficient Electric
+Motor Selection Handbook, DOE/CE-0384 Rev. 3, 1993 (part-load curves); IEEE Std 1459-2010 with
+PF = DPF/sqrt(1 + THD_I²) (true power factor checks); S. J. Chapman, Electric Machinery Fundamentals,
 4th ed., Examples 5-1 and 5-2 (statements from memory, worked by hand in
 docs/derivations/synchronous-chapman-examples.md); hand calculations in
 docs/derivations/synchronous-lspm-part-load.md, synchronous-pm-on-drive.md and
@@ -33,7 +36,7 @@ from models.synchronous import (
 
 # Hand calculations carry 6-7 significant figures; 1e-5 relative covers their last-digit rounding.
 HAND_RTOL = 1e-5
-# REFERENCES asks ~0.5 % relative for textbook examples (the book rounds intermediate results).
+# ~0.5 % relative for textbook examples, common practice (the book rounds intermediate results).
 TEXTBOOK_RTOL = 5e-3
 
 
@@ -43,7 +46,8 @@ TEXTBOOK_RTOL = 5e-3
 class TestSynchronousSpeed:
     @pytest.mark.parametrize(
         "poles, n50, n60",
-        # published: REFERENCES §2 table (Engineering ToolBox), n_s = 120 f / p
+        # published: synchronous-speed table (Engineering ToolBox, "Slip in electrical induction motors"),
+        # n_s = 120 f / p
         [(2, 3000, 3600), (4, 1500, 1800), (6, 1000, 1200), (8, 750, 900), (10, 600, 720), (12, 500, 600),
          (16, 375, 450), (20, 300, 360)],
     )
@@ -78,8 +82,8 @@ class TestPowerAngle:
 class TestReactivePowerToReachPowerFactor:
     @pytest.mark.parametrize(
         "pf1, pf2, multiplier",
-        # published multiplier table tan(acos pf1) - tan(acos pf2), REFERENCES §5 (cells [C]; 0.75->0.90 and
-        # 0.65->1.00 verified [V])
+        # published power-factor-correction multiplier table tan(acos pf1) - tan(acos pf2) (cells [C]; 0.75->0.90
+        # on slideshare "bank kapasitor" and 0.65->1.00 on elmeasure.com verified [V])
         [(0.60, 0.90, 0.849), (0.65, 1.00, 1.169), (0.70, 0.95, 0.692), (0.75, 0.90, 0.398),
          (0.75, 0.95, 0.553), (0.80, 0.98, 0.547), (0.85, 0.92, 0.194), (0.90, 0.95, 0.156)],
     )
@@ -91,7 +95,7 @@ class TestReactivePowerToReachPowerFactor:
 
     @pytest.mark.parametrize(
         "p_kw, pf1, pf2, kvar",
-        # published: REFERENCES §5 formula checks (nodeandvolt.com)
+        # published: formula checks Q_c = P (tan phi1 - tan phi2) (nodeandvolt.com)
         [(100.0, 0.75, 0.95, 55.30), (250.0, 0.80, 0.95, 105.33), (75.0, 0.70, 0.90, 40.19)],
     )
     def test_formula_checks(self, p_kw, pf1, pf2, kvar):
@@ -107,19 +111,19 @@ class TestReactivePowerToReachPowerFactor:
 # ------------------------------------------------------------------------------------------------
 # Line-start PM motor
 # ------------------------------------------------------------------------------------------------
-LSPM = dict(rated_p_kw=15.0, rated_efficiency_frac=0.939, poles=4)  # IE4 4-pole 15 kW = 93.9 % (REFERENCES §1a)
+LSPM = dict(rated_p_kw=15.0, rated_efficiency_frac=0.939, poles=4)  # IE4 4-pole 15 kW = 93.9 % (IEC 60034-30-1)
 
 
 class TestLspm:
     def test_speed_is_synchronous_at_every_load(self):
         loads = np.linspace(0.0, 18.0, 13)
         r = lspm_operating_point(loads, **LSPM)
-        # published: n_s = 120 f / p = 1500 rpm for 4 poles at 50 Hz (REFERENCES §2); no slip at any load
+        # published: n_s = 120 f / p = 1500 rpm for 4 poles at 50 Hz (Engineering ToolBox); no slip at any load
         assert_allclose(r.speed_rpm, 1500.0, rtol=0, atol=0)
 
     def test_speed_60hz_6pole(self):
         r = lspm_operating_point([1.0, 10.0], 15.0, 0.939, 6, 60.0)
-        # published: 6 poles at 60 Hz -> 1200 rpm (REFERENCES §2)
+        # published: 6 poles at 60 Hz -> 1200 rpm (Engineering ToolBox)
         assert_allclose(r.speed_rpm, 1200.0, rtol=0, atol=0)
 
     def test_rated_point(self):
@@ -154,7 +158,9 @@ class TestLspm:
     def test_flatter_than_doe_standard_motor_curve(self):
         r = lspm_operating_point(np.array([3.75, 7.5, 11.25]), **LSPM)
         ratio = r.efficiency_frac / 0.939
-        # published [V/C]: DOE/WSEO part-load ratios for 15-25 hp motors, REFERENCES §12: 0.916, 0.985, 1.0
+        # published [V/C]: DOE/WSEO part-load ratios for 15-25 hp motors (WSEO Energy-Efficient Electric Motor
+        # Selection Handbook, DOE/CE-0384 Rev. 3, 1993, as in fluids.pump.motor_efficiency_underloaded):
+        # 0.916, 0.985, 1.0
         assert np.all(ratio > np.array([0.916, 0.985, 1.0]))
 
     def test_flatter_than_hand_built_induction_motor(self):
@@ -162,13 +168,13 @@ class TestLspm:
         # eta(25 %)/eta(100 %) = 0.94248
         r = lspm_operating_point(3.75, **LSPM)
         assert r.efficiency_frac / 0.939 > 0.94248
-        # and the LSPM stays within 2.5 points of full-load efficiency at 25 % load (REFERENCES §12 gives
-        # 2-5 points for a standard IE3 motor); hand value 0.91832 vs 0.939
+        # and the LSPM stays within 2.5 points of full-load efficiency at 25 % load (a standard IE3 motor loses
+        # 2-5 points, from memory of catalogue curves); hand value 0.91832 vs 0.939
         assert 0.939 - r.efficiency_frac < 0.025
 
     def test_flatter_than_induction_curve_built_in_test(self):
         # An induction-motor-like curve built here by hand (an assumption, not a published curve): IE3 4-pole
-        # 15 kW, 92.1 % (IEC 60034-30-1, REFERENCES §1a); rated loss split 35 % constant, 35 % stator copper
+        # 15 kW, 92.1 % (IEC 60034-30-1 Table 2); rated loss split 35 % constant, 35 % stator copper
         # with magnetising current 0.4 (I² = 0.16 + 0.84 τ²), 30 % rotor copper + stray ∝ τ².
         tau = np.array([0.25, 0.4, 0.5, 0.6, 0.75, 0.9])
         loss_r = 15.0 * (1.0 / 0.921 - 1.0)
@@ -184,7 +190,7 @@ class TestLspm:
         assert r.power_factor[0] < r.power_factor[2] < r.power_factor[1]
 
     def test_over_excited_design_leads(self):
-        # REFERENCES §6: over-excitation (E cos delta > V) gives leading current; a leading rated PF makes the
+        # Chapman Ch. 5: over-excitation (E cos delta > V) gives leading current; a leading rated PF makes the
         # magnet EMF exceed V, so the current leads at every load
         r = lspm_operating_point(np.array([0.0, 7.5, 15.0]), **LSPM, rated_leading=True)
         assert np.all(r.leading) and np.all(r.q_kvar < 0)
@@ -305,7 +311,7 @@ class TestDriveFedSynchronous:
         assert_allclose(r.p_in_kw, 8.347420, rtol=HAND_RTOL)
         assert_allclose(r.q_kvar, 2.092061, rtol=HAND_RTOL)
         assert_allclose(r.efficiency_frac, 0.898481, rtol=HAND_RTOL)
-        # published check REFERENCES §13: DPF 0.97, THD 40 % -> PF 0.9006
+        # published check, PF = DPF/sqrt(1 + THD_I²) (IEEE Std 1459-2010): DPF 0.97, THD 40 % -> PF 0.9006
         assert_allclose(r.power_factor, 0.9006, atol=6e-4)
 
     def test_synrm_hand_point(self):
@@ -437,7 +443,7 @@ class TestWfsmChapmanExamples:
 
 class TestWfsmExcitationSense:
     def test_over_excited_leads_under_excited_lags(self):
-        # REFERENCES §6: E cos(delta) > V -> leading (q < 0); E cos(delta) < V -> lagging (q > 0)
+        # Chapman Ch. 5: E cos(delta) > V -> leading (q < 0); E cos(delta) < V -> lagging (q > 0)
         r = wfsm_operating_point(np.array([20.0, 20.0]), **LOSSLESS_BIG_FIELD, mode="kvar",
                                  q_setpoint_kvar=np.array([-20.0, 20.0]))
         v = 400.0 / np.sqrt(3.0)
@@ -449,7 +455,7 @@ class TestWfsmExcitationSense:
         r = wfsm_operating_point(np.array([5.0, 25.0, 40.0]), **LOSSLESS_BIG_FIELD, mode="power_factor",
                                  power_factor_setpoint=0.9)
         v = 400.0 / np.sqrt(3.0)
-        # REFERENCES §6: P = 3 V E sin(delta) / X (R_a = 0, lossless machine: P_in = P_shaft)
+        # Chapman Ch. 5: P = 3 V E sin(delta) / X (R_a = 0, lossless machine: P_in = P_shaft)
         assert_allclose(power_angle_p_kw(v, r.emf_ph_v, 4.0, r.load_angle_deg), [5.0, 25.0, 40.0], rtol=1e-9)
 
     def test_v_curve_minimum_near_unity(self):
@@ -524,7 +530,7 @@ class TestWfsmFollowSite:
         q_other = 100.0 * np.tan(np.arccos(0.75))  # site at 0.75 lagging (input)
         r = wfsm_operating_point(0.0, **LOSSLESS_BIG_FIELD, mode="follow_site", site_p_kw_other=100.0,
                                  site_q_kvar_other=q_other, site_target_power_factor=0.95)
-        # published REFERENCES §5: 100 kW 0.75 -> 0.95 needs 55.30 kvar (rounded multiplier; exact 55.3233,
+        # published (nodeandvolt.com): 100 kW 0.75 -> 0.95 needs 55.30 kvar (rounded multiplier; exact 55.3233,
         # hand calculation case C)
         assert_allclose(-r.q_kvar, 55.3233, rtol=HAND_RTOL)
         assert_allclose(-r.q_kvar, 55.30, atol=0.05)
@@ -532,7 +538,8 @@ class TestWfsmFollowSite:
 
     @pytest.mark.parametrize(
         "pf1, pf2, multiplier",
-        # published multiplier table, REFERENCES §5 (cells [C]; 0.75->0.90 and 0.65->1.00 verified [V])
+        # published PF-correction multiplier table tan(acos pf1) - tan(acos pf2) (cells [C]; 0.75->0.90 and
+        # 0.65->1.00 verified [V] on slideshare "bank kapasitor" and elmeasure.com)
         [(0.60, 0.95, 1.005), (0.65, 1.00, 1.169), (0.75, 0.90, 0.398), (0.80, 0.92, 0.324), (0.85, 0.98, 0.417)],
     )
     def test_multiplier_table_cells(self, pf1, pf2, multiplier):
@@ -612,7 +619,7 @@ class TestWfsmRatedMachine:
         assert_allclose(r.stator_current_a, m.max_stator_current_a, rtol=1e-6)
         assert_allclose(r.field_current_a, m.max_field_current_a, rtol=1e-6)
         assert not (r.limited_by_stator_current or r.limited_by_field_current or r.infeasible)
-        assert_allclose(m.speed_rpm(), 750.0, rtol=0)  # published REFERENCES §2: 8 poles at 50 Hz
+        assert_allclose(m.speed_rpm(), 750.0, rtol=0)  # published (Engineering ToolBox): 8 poles at 50 Hz
 
     def test_supplying_kvar_costs_losses(self):
         m = rated_machine()

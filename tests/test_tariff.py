@@ -567,14 +567,15 @@ class TestMisspeltKeys:
 
 class TestAllowanceEquivalences:
     def test_free_power_factor_0_9285_is_tan_phi_0_4(self):
-        # REFERENCES §11: tan φ = 0.4 ⇔ PF 0.9285 (hand calculation, docs/derivations/billing-equivalences.md);
+        # RTE tan φ = 0.4 threshold ⇔ PF 0.9285 (hand calculation, docs/derivations/billing-equivalences.md);
         # the PF is published to 4 decimals, so the ratio is good to about 1e-3
         t, _ = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
                     '[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 0.9285')
         assert_allclose(t.reactive[0].free_kvarh_per_kwh, 0.4, atol=1e-3)
 
     def test_free_power_factor_0_9496_is_0_33_kvarh_per_kwh(self):
-        # REFERENCES §11: 0.33 kVArh/kWh ⇔ PF 0.9496; tan(acos 0.9496) = 0.330101 (billing-reactive.md, R1)
+        # GB DUoS 0.33 kVArh/kWh ⇔ PF 0.9496 (hand calculation, billing-equivalences.md);
+        # tan(acos 0.9496) = 0.330101 (billing-reactive.md, R1)
         t, _ = load('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
                     '[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 0.9496')
         assert_allclose(t.reactive[0].free_kvarh_per_kwh, 0.330101, atol=5e-7)
