@@ -36,8 +36,10 @@ PLAN_REACTIVE_RUNS = 16
 #: The cash-flow components that are bill savings (the rest of a project's savings is its maintenance).
 BILL_SAVING_COMPONENTS = ("savings_energy", "savings_demand", "savings_reactive", "savings_fixed")
 #: Plans solved at most while reactive projects keep leaving (each round withdraws those of the round before):
-#: one check of the first plan and one solve without the projects it withdrew.
-PLAN_INTERACTION_ROUNDS = 2
+#: the first plan is checked and solved again without what it withdrew and at the shares it priced; each new
+#: plan is checked in turn and solved again only while a check withdraws more (a plan started from another,
+#: e.g. a live edit's, may bring in reactive projects the first check never saw).
+PLAN_INTERACTION_ROUNDS = 4
 
 
 def reactive_value_in_plan(case, op, plan_frame: pd.DataFrame, results: pd.DataFrame,
@@ -223,8 +225,8 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
     (:func:`reactive_value_in_plan`, :data:`PLAN_REACTIVE_MIN_SHARE`), price the others at the share of
     their saving they add, and solve again; at a site where some were withdrawn (its reactive value is
     taken), its other reactive options are left out too, so the new plan does not buy their like. At most
-    :data:`PLAN_INTERACTION_ROUNDS` solves; the status lists the withdrawn, the set-aside and the
-    repriced projects.
+    :data:`PLAN_INTERACTION_ROUNDS` solves: after the first check, a plan is solved again only while its
+    check withdraws more. The status lists the withdrawn, the set-aside and the repriced projects.
 
     Parameters
     ----------
@@ -271,25 +273,37 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         others = {str(x) for x in project_ids[taken]} - set(value.loc[~worthless, "project_id"]) - already - fresh
         return fresh, others, npv, repriced
 
-    for _ in range(PLAN_INTERACTION_ROUNDS - 1):
+    npv = g_npv = None
+    set_aside: set[str] = set()
+    g_set_aside: set[str] = set()
+    for round_ in range(PLAN_INTERACTION_ROUNDS - 1):
         # the rank-order plan is checked on its own, so its result does not depend on how hard the exact plan
         # was solved (both priced in one pass over the sites)
         value, g_value = reactive_values_in_plans(case, op, [frames[0], frames[1]], results, price_factor)
+        kept_npv, kept_g_npv = npv, g_npv
         fresh, others, npv, repriced = checked(value, withdrawn)
         g_fresh, g_others, g_npv, g_repriced = checked(g_value, greedy_withdrawn)
-        if not fresh and not repriced and not g_fresh and not g_repriced:
-            break
+        if not fresh and not g_fresh and (round_ > 0 or (not repriced and not g_repriced)):
+            break  # after the first round only a new withdrawal asks for another solve
+        if round_ > 0:
+            # a later round withdraws more and prices the shares of the plan it checked; where it priced none,
+            # the shares the plan was solved at stay
+            npv = kept_npv if npv is None else npv
+            g_npv = kept_g_npv if g_npv is None else g_npv
+            repriced = repriced or frames[4].get("repriced", {})
         withdrawn |= fresh
         greedy_withdrawn |= g_fresh
-        left_out = withdrawn | others
+        set_aside |= others
+        g_set_aside |= g_others
+        left_out = withdrawn | set_aside
         first = frames[0]
         start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
                       if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
-        frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_others, g_npv))
+        frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_set_aside, g_npv))
         frames[4]["settings"] = settings
         # the repriced projects that the new plan holds (a project repriced may leave it at its lower NPV)
         in_plan = set(project_labels(frames[0]).astype(str))
         frames[4]["repriced"] = {label: share for label, share in repriced.items() if label in in_plan}
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
-        frames[4]["set_aside"] = tuple(sorted(others))
+        frames[4]["set_aside"] = tuple(sorted(set_aside - withdrawn))
     return frames

@@ -542,3 +542,21 @@ class TestPackAgainInTheSameFolder:
                                              encoding="utf-8")
         write_pack(case, result, out, assets=["P1"], plan=False)
         assert outside.read_text(encoding="utf-8") == "x" and (out / "assets.csv").read_text(encoding="utf-8") == "y"
+
+
+def test_without_a_budget_the_plans_other_choice_is_not_put_down_to_the_budget(demo_run_physics):
+    # With no capital limit (budget_per_yr empty) the plan leaves an asset's highest-NPV option only where that
+    # option adds less beside the rest of the plan at its site (shared reactive charges and demand peaks); the
+    # pack must not say the budget made the choice.
+    from dataclasses import replace as replaced
+
+    from models import scenario
+    from models.pack.content import select_scope
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, replaced(case.finance, budget_per_yr=()), with_risk=False)
+    reasons = select_scope(case, result, plan=True).recommended
+    shared = reasons[reasons["reason_short"].str.contains("shares its saving with the rest of the plan")]
+    assert len(shared) > 0  # the demo has such assets (four at the time of writing)
+    assert not reasons["reason_short"].str.contains("budget").any()
+    assert not reasons["reason"].str.contains("budget").any()

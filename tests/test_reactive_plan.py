@@ -39,3 +39,32 @@ def test_option_labels_from_the_results_and_an_asset_id_with_a_slash():
     assert labels == LABELS
     # the option id is what follows the label's last "/": an asset tag may hold one itself
     assert plan.project_name("P-101/A/capacitor", labels) == "P-101/A: Motor-terminal capacitor"
+
+
+def test_a_plan_started_from_another_holds_no_reactive_project_its_check_withdraws(demo_run_physics):
+    # Invariant: a live edit starts the plan from the plan shown before it (dashboard, models.scenario.LIVE_PLAN).
+    # Whatever it starts from, the plan returned holds no reactive project that the check of that plan would
+    # withdraw (it would then count savings the rest of the plan already takes), and a plan solved to a looser
+    # gap is no better than the exact plan (here the demo at a 10 % discount rate).
+    from dataclasses import replace
+
+    import numpy as np
+
+    from models import scenario
+    from models.operation import kept_rows
+
+    case, phys = demo_run_physics
+    base = scenario.economics(case, phys, case.finance, with_risk=False)
+    tenth = replace(case.finance, discount_rate_frac=0.10)
+    live = scenario.economics(case, phys, tenth, with_risk=False, previous=base,
+                              plan_settings=replace(scenario.LIVE_PLAN, start=tuple(
+                                  zip(scenario.project_labels(base.plan).tolist(), base.plan["start_yr"].astype(int)))))
+    exact = scenario.economics(case, phys, tenth, with_risk=False, previous=base)
+    op = phys.operation
+    with kept_rows(op):
+        (value,) = reactive_plan.reactive_values_in_plans(case, op, [live.plan], live.results)
+    alone = value["run_saving_alone_per_yr"].to_numpy(dtype=float)
+    worthless = value["run_saving_in_plan_per_yr"].to_numpy(dtype=float) < (
+        reactive_plan.PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
+    assert not worthless.any(), value.loc[worthless, "project_id"].tolist()
+    assert live.plan["npv_at_plan_start"].sum() <= exact.plan["npv_at_plan_start"].sum() * (1 + 1e-9)

@@ -173,6 +173,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                               result.plan["npv_at_plan_start"].astype(float)))
     status = result.plan_status or {}
     taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))  # value taken by the rest of the plan
+    has_budget = bool(len(getattr(result.assumptions, "budget_per_yr", ()) or ()))  # empty: no capital limit
     in_scope = set(wanted) | set(plan_rows["asset_id"])
     asset_ids = tuple(a for a in known if a in in_scope)
 
@@ -197,10 +198,16 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                 why = (f" (its highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
                        "rest of the plan at this site already takes)")
                 short_why = "top NPV option's value taken by the rest of the plan"
+            elif not has_budget:
+                why = (f" (its highest-NPV option priced alone, {top['label']}, adds less than that beside the rest of "
+                       "the plan: projects at one site share its reactive charges and demand peaks)")
+                short_why = "top NPV option shares its saving with the rest of the plan"
             else:
-                why, short_why = (" (the plan trades some NPV for capital that fits the budget)",
-                                  "fits the budget better than the top NPV")
-            reason = f"chosen by the budget-constrained fleet plan for plan year {start}" + why
+                why, short_why = (" (the plan trades some NPV for capital that fits the budget, or its top option "
+                                  "shares its saving with the rest of the plan at this site)",
+                                  "fits the budget or the site better than the top NPV")
+            reason = (f"chosen by the {'budget-constrained ' if has_budget else ''}fleet plan for plan year {start}"
+                      + why)
             short = f"plan year {start}; " + short_why
             pick["in_plan"], pick["plan_start_yr"] = True, start
         else:
@@ -208,6 +215,10 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
             if pick["option_id"] == keep[asset_id]:
                 reason = "no option beats keeping today's motor on NPV"
                 short = "nothing beats today's motor"
+            elif float(pick["npv"]) > 0 and (f"{asset_id}/{pick['option_id']}" in taken or not has_budget):
+                reason = ("highest NPV of its options priced alone (not in the fleet plan: the rest of the plan at "
+                          "this site already takes its value)")
+                short = "highest NPV alone; value taken by the rest of the plan"
             elif float(pick["npv"]) > 0:
                 reason = "highest NPV of its options (not in the fleet plan: the budget is spent on better projects)"
                 short = "highest NPV; outside the budgeted plan"

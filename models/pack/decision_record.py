@@ -127,9 +127,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
             note = ""
             if float(o["npv"]) > own_npv:
+                budget = bool(len(getattr(result.assumptions, "budget_per_yr", ()) or ()))
                 note = ("; its value priced alone is already taken by the rest of the plan at this site"
                         if f"{asset_id}/{o['option_id']}" in taken else
-                        "; the plan prefers the option above for the budget")
+                        "; the plan prefers the option above for the budget or beside the rest of the plan at this site"
+                        if budget else
+                        "; beside the rest of the plan at this site it adds less than priced alone (projects share "
+                        "the site's reactive charges and demand peaks)")
             reasons.append(f"Best other option: {o['label']} (NPV {content.money(float(o['npv']), cur)}{note}).")
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
