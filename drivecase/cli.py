@@ -400,7 +400,7 @@ def _print_run_summary(case, result) -> None:
         top[column] = [f"{v:,.0f}" for v in top[column]]
     table = top[["asset_id", "option", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
         columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"bill saving [{currency}/yr]",
-                 "npv": f"NPV [{currency}]", "simple_payback_yr": "payback [yr]", "in_plan": "the plan takes"})
+                 "npv": f"NPV [{currency}]", "simple_payback_yr": "simple payback [yr]", "in_plan": "the plan takes"})
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
                         "option or none)")
 

@@ -726,9 +726,9 @@ def _rule_row(low_kw: float, high_kw: float, threshold_h: float, max_hours_h: fl
     unit = power_label(power_unit)
     low, high = (round(float(rating_in_unit(p_kw, unit)), 2) for p_kw in (low_kw, high_kw))
     if above:
-        span = f"above {low:g} {unit}, up to {high:g} {unit}"
+        span = f"above {low:,g} {unit}, up to {high:,g} {unit}"
     else:
-        span = "of " + (f"{low:g} {unit}" if low_kw == high_kw else f"{low:g}-{high:g} {unit}")
+        span = "of " + (f"{low:,g} {unit}" if low_kw == high_kw else f"{low:,g}-{high:,g} {unit}")
     if threshold_h == 0.0:
         decision = "replace"
         rule = f"Motors {span}: replace rather than rewind, whatever the running hours."
