@@ -164,7 +164,7 @@ def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_se
     times = {k: times[k] for k in sorted(times, key=lambda k: order.index(k) if k in order else len(order))}
     return {"load_average_1min": os.getloadavg()[0],"engine": engine, "n_assets": n_assets, "n_options": n_options, "n_steps": n_steps, "times_s": times,
             "peak_bytes": peaks, "overall_peak_bytes": max(peaks.values()), "floor_s": floor,
-            "n_results": len(result.results), "plan_status": result.plan_status.get("message", ""),
+            "n_results": len(result.results), "plan_status": result.plan_status.get("message", ""), "plan_solves": result.plan_status.get("solves", 1),
             "plan_gap_pct": 100.0 * settings.gap_frac, "plan_seconds": settings.time_limit_s}
 
 

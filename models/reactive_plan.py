@@ -306,4 +306,5 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         frames[4]["repriced"] = {label: share for label, share in repriced.items() if label in in_plan}
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
         frames[4]["set_aside"] = tuple(sorted(set_aside - withdrawn))
+        frames[4]["solves"] = round_ + 2
     return frames
