@@ -215,6 +215,25 @@ def rating_col(field: str, header: str, **extra) -> dict:
     return number_col(field, header, **extra) | {"valueFormatter": _formatter(f",.{RATING_DECIMALS}~f")}
 
 
+#: A number cell whose value may be said in words ("not within the horizon"): wrapped, not cut.
+WRAPPED_NUMBER = {"wrapText": True, "autoHeight": True,
+                  "cellStyle": {"lineHeight": "1.4", "paddingTop": "10px", "paddingBottom": "10px", "wordBreak": "normal"}}
+#: The discounted payback as every grid writes it: one decimal; "not within the horizon" where the row spends
+#: capital and is not paid back within the horizon (no finite payback); blank where nothing is spent.
+PAYBACK_TEXT = {"function": "(params.value == null || !isFinite(params.value)) ? "
+                            "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
+                            "d3.format(',.1f')(params.value)"}
+
+
+def payback_col(field: str = "discounted_payback_yr", header: str = "Disc. payback [yr]", **extra) -> dict:
+    """The discounted payback column [yr] of a grid whose rows also hold ``capital`` (see :data:`PAYBACK_TEXT`).
+
+    The Fleet table and the Asset page's options grid use the same column, so an option that spends capital
+    and never pays back reads the same on both.
+    """
+    return number_col(field, header, 1, valueFormatter=PAYBACK_TEXT, **WRAPPED_NUMBER, **extra)
+
+
 def long_text_col(field: str, header: str, **extra) -> dict:
     """A text column whose cells wrap to as many lines as they need, the whole text also in a tooltip."""
     # wrapped lines at the text's own line height (the grid's default is one row's height per line)

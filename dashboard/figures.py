@@ -98,6 +98,8 @@ def option_colour_map(keys) -> dict[str, str]:
 # ---------------------------------------------------------------------------------------------------
 #: Bars of the abatement curve narrower than this share of the tonnes avoided do not set its axis.
 ABATEMENT_VISIBLE_SHARE = 0.002
+#: The abatement curve's title: which option of each asset its bar is (see :func:`abatement_curve`).
+ABATEMENT_TITLE = "Abatement cost curve of each asset's highest-NPV option that avoids CO2 (below zero: saves money)"
 
 
 def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
@@ -110,6 +112,12 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
         bar_start_t_per_yr [t/yr] (cumulative start of each bar), sorted by cost; optionally label (the
         option's name, shown in the hover beside the asset).
     currency : str
+
+    Notes
+    -----
+    One bar per asset: of its options that avoid CO2, the one with the highest NPV
+    (``models.plan.abatement_curve``). That is not always the asset's best option, which may avoid none;
+    the title says which option it is (:data:`ABATEMENT_TITLE`).
     """
     if abatement is None or abatement.empty:
         return message_figure("No option avoids CO2 in this case.")
@@ -140,7 +148,7 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
                            showarrow=False, font=dict(size=11, color=INK))
     fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
     fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
-    return _style(fig, "Abatement cost curve of each asset's best option (below zero: saves money)")
+    return _style(fig, ABATEMENT_TITLE)
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -458,6 +466,11 @@ def pf_duration(curve: pd.DataFrame) -> go.Figure:
     curve : pandas.DataFrame
         scenario ("before"/"after"), hours [h], power_factor [-] (unsigned), optionally leading_h [h]
         (hours the site leads, named in the legend).
+
+    Notes
+    -----
+    The curve holds every hour of the year, leading (kVAr < 0) as well as lagging, at the power factor's
+    size; its axis title says so, and the legend gives each scenario's leading hours.
     """
     fig = go.Figure()
     for scenario_name, colour, name in (("before", BEFORE, "today"), ("after", AFTER, "with the plan")):
@@ -470,7 +483,9 @@ def pf_duration(curve: pd.DataFrame) -> go.Figure:
                                      line=dict(color=colour, width=2),
                                      hovertemplate="%{x:,.0f} h at or below %{y:.3f}<extra>" + name + "</extra>"))
     fig.update_xaxes(title_text="Hours of the year at or below [h]")
-    fig.update_yaxes(title_text="Power factor [-]")
+    # every hour is on the curve, leading ones too, by the power factor's size (the meter chart beside it
+    # tells the sense by the kVAr's sign)
+    fig.update_yaxes(title_text="Power factor [-]<br>unsigned: leading hours included")
     return _style(fig, "Power-factor duration curve")
 
 

@@ -126,6 +126,19 @@ class TestGridColumns:
         # the cautions stay on screen (pinned right), counted, their text in the tooltip
         assert cols["cautions_count"]["pinned"] == "right" and cols["cautions_count"]["tooltipField"] == "flags"
 
+    def test_the_options_fit_a_1366_px_window_and_show_every_row(self):
+        # the narrowest widths add up to what a 1366 px window leaves the grid: 1366 - 2 x 24 px of page
+        # padding (style.css .content) - 15 px page scrollbar - 2 px borders = 1301 px (the grid is as tall as
+        # its rows, so it has no vertical scrollbar of its own)
+        cols = asset.option_columns("EUR")
+        assert sum(c["minWidth"] for c in cols) <= 1366 - 2 * 24 - 15 - 2
+        assert {c["field"] for c in cols} == set(asset.OPTION_WIDTHS_PX)
+        # only the option's name and its cautions are pinned
+        assert [c["field"] for c in cols if c.get("pinned")] == ["label", "cautions_count"]
+        # no fixed height: every option row shows (the demo's HRW-P11 has eight; a fixed 500 px hid the eighth)
+        grid = next(c for c in asset.layout()._traverse() if getattr(c, "id", None) == asset.OPTIONS)
+        assert grid.dashGridOptions["domLayout"] == "autoHeight" and grid.style["height"] == "auto"
+
     def test_what_the_plan_buys_can_be_read(self):
         cols = {c["field"]: c for c in fleet.table_columns("EUR", "kW")}
         for field in ("plan_option", "best_option"):

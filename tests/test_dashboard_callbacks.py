@@ -122,7 +122,7 @@ def test_a_refused_upload_is_shown_again_when_the_page_opens(engine):
 def test_assumption_form_and_edits(engine):
     values = inputs.fill(True, None, None)
     # data/demo/finance.toml: 8 %, 1 %/yr, 15 yr; no price-level keys, so the tariffs and catalogue as written (100 %)
-    assert values[:5] == (8.0, 1.0, 15, 100.0, 100.0)
+    assert values[:5] == ("8", "1", "15", "100", "100")  # text fields (see test_a_blank_assumption_field_is_refused_by_name)
     assert list(values[5:5 + services.BUDGET_YEARS]) == ["250000", "250000", "150000", None, None, None]
     stored, message, look = inputs.edit(6.0, 1.0, 15, 100.0, 100.0, 250000.0, 250000.0, 150000.0, None, None, None, None, None)
     assert stored["discount_rate_pct"] == 6.0 and message == "" and look == "form-message"
@@ -148,6 +148,61 @@ def test_one_refused_field_does_not_hold_back_the_others(engine):
     view = services.view(None, stored)
     assert view.assumptions.discount_rate_frac == 0.0 and view.assumptions.horizon_yr == 15
     assert view.assumptions.budget_per_yr == (250000.0, 250000.0, 150000.0)
+
+
+#: The form's five assumption fields as the page names them (dashboard/pages/inputs.py labels, without units).
+FIELD_NAMES = ("Discount rate", "Energy price escalation", "Horizon", "Electricity price level", "Capital cost level")
+#: The demo's assumptions as the text fields show them (data/demo/finance.toml: 8 %, 1 %/yr, 15 yr; no price-level
+#: keys, so 100 %) and its budgets 250000, 250000, 150000.
+DEMO_FORM = ("8", "1", "15", "100", "100")
+DEMO_BUDGET = ("250000", "250000", "150000", None, None, None)
+
+
+def test_a_blank_assumption_field_is_refused_by_name(engine):
+    # Dash 4's number input does not report a field emptied after a callback filled it (the assumptions stayed
+    # with no message, and Save said "Nothing to save"): the fields are text fields, which do
+    layout = {getattr(c, "id", None): c for c in inputs.layout()._traverse()}
+    for field in (inputs.DISCOUNT, inputs.ESCALATION, inputs.HORIZON, inputs.PRICE_LEVEL, inputs.CAPITAL_LEVEL):
+        assert layout[field].type == "text" and layout[field].debounce is True, field
+    # a blank field reaches the callback as "" (None before the page first filled it); either is refused by
+    # name, the other fields apply and, as they repeat the values in force, nothing changes
+    for k, name in enumerate(FIELD_NAMES):
+        for blank in ("", "   ", None):
+            form = DEMO_FORM[:k] + (blank,) + DEMO_FORM[k + 1:]
+            stored, message, look = inputs.edit(*form, *DEMO_BUDGET, None, None)
+            assert stored is no_update and look == "form-message refused"
+            assert message == f"Not applied: {name}: enter a number. The other values are applied."
+            # and the save says why it writes nothing, instead of "Nothing to save"
+            assert inputs.save(1, *form, *DEMO_BUDGET, None, None)[2] == f"Not saved: {name}: enter a number."
+
+
+def test_assumption_fields_read_numbers_as_typed(engine):
+    # spaces, a trailing % on a percent field and thousands grouped by commas, as the budget fields take them
+    stored, message, look = inputs.edit(" 6.5 % ", "1%", "15", "1,000", "100", *DEMO_BUDGET, None, None)
+    assert message == "" and look == "form-message"
+    assert stored["discount_rate_pct"] == 6.5 and stored["escalation_energy_pct"] == 1.0
+    assert stored["energy_price_level_pct"] == 1000.0
+    # text that is no number is refused as a blank is; a horizon takes no percent sign
+    stored, message, _ = inputs.edit("six", "1", "15 %", "100", "100", *DEMO_BUDGET, None, None)
+    assert stored is no_update
+    assert message == "Not applied: Discount rate: enter a number. Horizon: enter a number. The other values are applied."
+    assert inputs.typed_number("8,5", percent=True) == "8,5"  # a decimal comma is not guessed at: refused
+    assert inputs.number_text(1.5) == "1.5" and inputs.number_text(15) == "15" and inputs.number_text(None) is None
+
+
+def test_a_caution_on_an_applied_value_stays_beside_a_refusal(engine):
+    # horizon 12.5 (refused) and discount rate -3 % (applied): the message names the refusal and keeps the
+    # caution on the negative rate in force
+    stored, message, look = inputs.edit("-3", "1", "12.5", "100", "100", *DEMO_BUDGET, None, None)
+    assert stored["discount_rate_pct"] == -3.0 and "horizon_yr" not in stored
+    assert message.startswith("Not applied: Horizon: must be a whole number of years from 1 to 100. "
+                              "The other values are applied. A negative discount rate values future savings")
+    assert "Applied." not in message and look == "form-message refused"
+    # alone, the caution keeps its own words and the plain look
+    stored, message, look = inputs.edit("-3", "1", "15", "100", "100", *DEMO_BUDGET, None, None)
+    assert message.startswith("Applied. A negative discount rate") and look == "form-message"
+    # a refusal with no caution is the refusal alone
+    assert inputs.form_message("Not applied: Horizon: x.", "") == "Not applied: Horizon: x."
 
 
 def test_price_levels_reach_the_economics(engine):
@@ -313,6 +368,16 @@ def test_fleet_count_follows_the_grids_own_filters(engine):
     assert fleet.count_shown([], None, []) == f"0 of {len(SMALL_IDS)} assets"
 
 
+def test_the_abatement_curve_says_which_option_of_each_asset_it_draws(engine):
+    # per asset, the highest-NPV option among those that avoid CO2 (models.plan.abatement_curve), which can
+    # differ from the table's best option: the figure's title and the words under it say so
+    out = fleet.update(None, None, None, None)
+    assert "each asset's highest-NPV option that avoids CO2" in out[7].layout.title.text
+    texts = [c.children for c in fleet.layout()._traverse() if isinstance(getattr(c, "children", None), str)]
+    assert any(t.startswith("One bar per asset: of its options that avoid CO2, the one with the highest NPV.")
+               for t in texts)
+
+
 def test_fleet_says_the_case_is_computed_until_its_results_arrive(engine):
     # before the page's callback has given the grid its rows (rowData None: the results are still being
     # computed) the grid reports no rows shown; the count keeps saying why instead of "0 of n assets"
@@ -378,6 +443,12 @@ def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):
     payback = next(c for c in columns if c["field"] == "discounted_payback_yr")
     code = payback["valueFormatter"]["function"]
     assert "not within the horizon" in code and "params.data.capital > 0" in code
+    # the Asset page's options grid writes it the same way (it left the cell blank, as for "Keep as is")
+    asset_payback = next(c for c in asset.update("HRW-V01", None, None)[2] if c["field"] == "discounted_payback_yr")
+    assert asset_payback["valueFormatter"] == payback["valueFormatter"] and asset_payback["wrapText"]
+    # and its rows give the formatter what it reads: capital spent and no payback within the horizon
+    rows = asset.update("HRW-V01", None, None)[1]
+    assert all("capital" in r and "discounted_payback_yr" in r for r in rows)
 
 
 def test_the_site_page_keeps_the_site_on_screen_else_the_addressed_one(engine):

@@ -54,6 +54,13 @@ class TestAbatement:
         t = titles(figures.abatement_curve(self.frame, "USD"))
         assert t["xaxis"] == "CO2 avoided, cumulative [t/yr]" and t["yaxis"] == "Cost of abatement [USD/t CO2]"
 
+    def test_the_title_says_which_option_of_each_asset_is_drawn(self):
+        # the bars are, per asset, the highest-NPV option among those that avoid CO2 (models.plan.abatement_curve),
+        # not the asset's best option, which may avoid none
+        title = figures.abatement_curve(self.frame, "EUR").layout.title.text
+        assert title == "Abatement cost curve of each asset's highest-NPV option that avoids CO2 (below zero: saves money)"
+        assert "best option" not in title
+
     def test_a_sliver_of_a_bar_does_not_set_the_axis(self):
         # hand: bars of 2, 5 and 1 t/yr set the axis (-120 to 45, padded 8 % of 165 = 13.2); a 0.001 t/yr
         # project at 9,500 EUR/t runs off it and is noted
@@ -231,7 +238,10 @@ class TestSite:
                               "power_factor": [0.8, 0.9, 0.95, 0.99]})
         fig = figures.pf_duration(curve)
         assert [t.name for t in fig.data] == ["today", "with the plan"]
-        assert titles(fig) == {"xaxis": "Hours of the year at or below [h]", "yaxis": "Power factor [-]"}
+        # every hour is on the curve, leading ones too (unsigned), and the axis says so, as the meter chart beside
+        # it says "leading where kVAr < 0"
+        assert titles(fig) == {"xaxis": "Hours of the year at or below [h]",
+                               "yaxis": "Power factor [-]<br>unsigned: leading hours included"}
         # hours the site leads are named in the legend (the curve's power factor is unsigned)
         fig = figures.pf_duration(curve.assign(leading_h=[0.0, 0.0, 120.0, 120.0]))
         assert [t.name for t in fig.data] == ["today", "with the plan (leading 120 h)"]

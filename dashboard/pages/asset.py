@@ -40,7 +40,9 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                  className="filter wide"),
         html.Div(id=SUMMARY, className="asset-summary"),
         html.H3("Options"),
-        ui.data_grid(OPTIONS, height=500, getRowId="params.data.option_id"),
+        # as tall as its rows (an asset has a handful of options, each row as tall as its wrapped texts)
+        ui.data_grid(OPTIONS, height="auto", getRowId="params.data.option_id",
+                     dashGridOptions={"domLayout": "autoHeight"}),
         html.Div([html.Div(ui.graph(LCC), className="panel half"),
                   html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor; the diamond "
                                                    "marks its discounted payback, where the line crosses zero.",
@@ -106,19 +108,34 @@ ui.address_follows(ADDRESS, "/asset")
 CAUTION_COUNT = {"function": "params.value > 0 ? params.value + (params.value == 1 ? ' caution' : ' cautions') : ''"}
 
 
+#: Narrowest width of each column of the options grid [px]: the whole grid fits a 1366 px window (wider
+#: windows share out the rest in proportion); below that it scrolls sideways inside itself, the option's
+#: name pinned left and its cautions pinned right. Headers wrap, long texts wrap.
+OPTION_WIDTHS_PX = {"label": 170, "technology": 116, "speed_remedy": 126, "capital": 92, "saving_per_yr": 92,
+                    "npv": 100, "irr_pct": 72, "discounted_payback_yr": 90, "energy_kwh_per_yr": 100,
+                    "mean_speed_rpm": 80, "life_cycle_cost": 104, "cautions_count": 96}
+
+
 def option_columns(currency: str) -> list[dict]:
     """Columns of the options grid: long names wrap (and show in a tooltip); the cautions stay in view,
-    pinned right and counted, their text in the tooltip and in the grid of cautions below."""
-    return [ui.long_text_col("label", "Option", pinned="left", minWidth=210),
-            ui.long_text_col("technology", "Technology", minWidth=160),
-            ui.long_text_col("speed_remedy", "Speed remedy", minWidth=160),
-            ui.number_col("capital", f"Capital [{currency}]"),
-            ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE), ui.number_col("npv", f"NPV [{currency}]"),
-            ui.number_col("irr_pct", "IRR [%]", 1), ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1),
-            ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
-            ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
-            ui.number_col("cautions_count", "Cautions", pinned="right", minWidth=110, maxWidth=130, filter=False,
-                          tooltipField="flags", valueFormatter=CAUTION_COUNT)]
+    pinned right and counted, their text in the tooltip and in the grid of cautions below. Each column
+    starts from its width in :data:`OPTION_WIDTHS_PX`; the discounted payback is written as on the Fleet
+    page (:func:`dashboard.components.payback_col`)."""
+    columns = [ui.long_text_col("label", "Option", pinned="left"),
+               ui.long_text_col("technology", "Technology"),
+               ui.long_text_col("speed_remedy", "Speed remedy"),
+               ui.number_col("capital", f"Capital [{currency}]"),
+               ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
+               ui.number_col("npv", f"NPV [{currency}]"),
+               ui.number_col("irr_pct", "IRR [%]", 1), ui.payback_col(),
+               ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
+               ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
+               ui.number_col("cautions_count", "Cautions", pinned="right", maxWidth=130, filter=False,
+                             tooltipField="flags", valueFormatter=CAUTION_COUNT)]
+    for column in columns:
+        # the grid shares the window out in proportion to these widths, never below them
+        column["minWidth"] = column["width"] = OPTION_WIDTHS_PX[column["field"]]
+    return columns
 
 
 @callback(

@@ -1,4 +1,5 @@
-"""Fleet overview: headline figures of the plan, the ranked asset table and the abatement cost curve."""
+"""Fleet overview: headline figures of the plan, the ranked asset table and the abatement cost curve (per asset, its
+highest-NPV option among those that avoid CO2)."""
 
 from __future__ import annotations
 
@@ -23,6 +24,9 @@ COUNT = "fleet-count"
 HEADLINE = "fleet"
 #: What the page says while the tab's results are not there yet (a new case's models run for 4-20 s).
 COMPUTING = "Computing the case…"
+#: Which option of each asset the abatement curve draws (models.plan.abatement_curve).
+ABATEMENT_NOTE = ("One bar per asset: of its options that avoid CO2, the one with the highest NPV. It can differ from "
+                  "the asset's best option in the table above, which need not avoid any CO2.")
 #: The table's height: at most 460 px, less on a short window, so its own horizontal scrollbar (when the
 #: columns do not fit) shows within the first screen.
 TABLE_HEIGHT = "clamp(280px, calc(100vh - 400px), 460px)"
@@ -55,7 +59,7 @@ def layout(**_query):
                      # the columns are shared out with the vertical scrollbar's room already kept, so they do not
                      # overflow by its width once the rows arrive
                      dashGridOptions={"alwaysShowVerticalScroll": True}),
-        html.Div(ui.graph(ABATEMENT), className="panel"),
+        html.Div([ui.graph(ABATEMENT), html.P(ABATEMENT_NOTE, className="page-intro")], className="panel"),
     ])
 
 
@@ -69,9 +73,6 @@ WIDTHS_PX = {"rank": 48, "asset_id": 96, "site_id": 64, "application": 106, "rat
              "plan_option": 110, "plan_year": 62, "plan_capital": 84, "data_quality_pct": 84}
 #: Width the two option texts start from [px] (they get the larger share of a wide window).
 WIDE_TEXT_PX = 200
-#: A number cell whose value may be said in words ("not within the horizon"): wrapped, not cut.
-_WRAPPED_NUMBER = {"wrapText": True, "autoHeight": True,
-                   "cellStyle": {"lineHeight": "1.4", "paddingTop": "10px", "paddingBottom": "10px", "wordBreak": "normal"}}
 
 
 def table_columns(currency: str, power_unit: str) -> list[dict]:
@@ -83,10 +84,7 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
                ui.long_text_col("best_option", "Best option (before the budget)"),
                ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
                # blank where nothing is spent; said in words where the option does not pay back within the horizon
-               ui.number_col("discounted_payback_yr", "Disc. payback [yr]", 1, valueFormatter={
-                   "function": "(params.value == null || !isFinite(params.value)) ? "
-                               "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
-                               "d3.format(',.1f')(params.value)"}, **_WRAPPED_NUMBER),
+               ui.payback_col(),
                ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
                ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
                ui.long_text_col("plan_option", "The plan buys"),

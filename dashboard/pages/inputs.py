@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import dash
 from dash import Input, Output, State, callback, dcc, html, no_update
 
@@ -35,6 +37,15 @@ SAVE_STATUS = "inputs-save-status"
 SAVE_DOWNLOAD = "inputs-save-download"
 
 
+def _number_field(component_id: str) -> dcc.Input:
+    """A finance assumption's field: a text field read by :func:`typed_number`.
+
+    Not a number input: Dash 4's number input does not report a field emptied after a callback filled it (the
+    assumptions would stay with no message), as for the budget fields (``components.budget_values``).
+    """
+    return dcc.Input(id=component_id, type="text", inputMode="decimal", debounce=True)
+
+
 def layout(**_query):
     limit_mb = services.MAX_UPLOAD_BYTES / services.MB
     return html.Div([
@@ -63,15 +74,15 @@ def layout(**_query):
                 html.H3("Finance assumptions"),
                 html.Div([
                     html.Div([html.Label("Discount rate [%/yr]", htmlFor=DISCOUNT),
-                              dcc.Input(id=DISCOUNT, type="number", step="any", debounce=True)], className="field"),
+                              _number_field(DISCOUNT)], className="field"),
                     html.Div([html.Label("Energy price escalation [%/yr]", htmlFor=ESCALATION),
-                              dcc.Input(id=ESCALATION, type="number", step="any", debounce=True)], className="field"),
+                              _number_field(ESCALATION)], className="field"),
                     html.Div([html.Label("Horizon [yr]", htmlFor=HORIZON),
-                              dcc.Input(id=HORIZON, type="number", step="any", debounce=True)], className="field"),
+                              _number_field(HORIZON)], className="field"),
                     html.Div([html.Label("Electricity price level [% of the tariffs]", htmlFor=PRICE_LEVEL),
-                              dcc.Input(id=PRICE_LEVEL, type="number", step="any", debounce=True)], className="field"),
+                              _number_field(PRICE_LEVEL)], className="field"),
                     html.Div([html.Label("Capital cost level [% of the catalogue]", htmlFor=CAPITAL_LEVEL),
-                              dcc.Input(id=CAPITAL_LEVEL, type="number", step="any", debounce=True)], className="field"),
+                              _number_field(CAPITAL_LEVEL)], className="field"),
                 ], className="fields"),
                 html.Label("Capital budget per plan year (blank = no limit; in the case's currency)"),
                 ui.budget_inputs(BUDGET, services.BUDGET_YEARS),
@@ -134,10 +145,52 @@ def template(_clicks):
     return dcc.send_bytes(services.blank_template_bytes(), "drivecase-blank-case.xlsx")
 
 
+#: The form's fields in the order the callbacks take them, and whether each is in percent.
+NUMBER_FIELDS = (("discount_rate_pct", True), ("escalation_energy_pct", True), ("horizon_yr", False),
+                 ("energy_price_level_pct", True), ("capital_cost_level_pct", True))
+#: Digits grouped by thousands with commas ("1,000" or "1,000.5"), as the budget fields take them.
+_GROUPED = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
+
+
+def number_text(value) -> str | None:
+    """A finance assumption as its text field shows it (``8``, ``1.5``, ``15``); None = blank."""
+    return None if value is None else f"{float(value):.12g}"
+
+
+def typed_number(text, percent: bool = False):
+    """What a finance field holds, as the form's check takes it: a float, None when blank, else the text as
+    typed (then refused as not a number, in the form's words, by ``services.edit_assumptions``).
+
+    Spaces (also thin and no-break ones), underscores and apostrophes between digits are dropped and commas
+    that group thousands ("1,000") are read as the budget fields read them; a percent field may end in "%"
+    ("8 %"). A number as such (a callback called directly) is taken as it is.
+
+    Parameters
+    ----------
+    text : str, float, int or None
+        The field's value.
+    percent : bool
+        True for a field in percent [%] or [%/yr].
+    """
+    if text is None or (isinstance(text, (int, float)) and not isinstance(text, bool)):
+        return None if text is None else float(text)
+    typed = str(text).strip()
+    if not typed:
+        return None
+    cleaned = "".join(c for c in typed if c not in " _'\u00a0\u2009\u202f")
+    if percent and cleaned.endswith("%"):
+        cleaned = cleaned[:-1]
+    if _GROUPED.match(cleaned):
+        cleaned = cleaned.replace(",", "")
+    try:
+        return float(cleaned)
+    except ValueError:
+        return typed
+
+
 def _form_values(assumptions) -> tuple:
     form = services.assumption_form(assumptions)
-    return (form["discount_rate_pct"], form["escalation_energy_pct"], form["horizon_yr"],
-            form["energy_price_level_pct"], form["capital_cost_level_pct"],
+    return (*(number_text(form[name]) for name, _percent in NUMBER_FIELDS),
             *ui.budget_values(form["budget_per_yr"], services.BUDGET_YEARS))
 
 
@@ -169,8 +222,9 @@ def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest
     budget_values, (edits, session) = list(rest[:len(BUDGET_IDS)]), rest[len(BUDGET_IDS):]
     view = services.view(session, edits)
     budget, budget_problem = services.parse_budget(budget_values, view.currency)
-    fields = dict(discount_rate_pct=discount, escalation_energy_pct=escalation, horizon_yr=horizon,
-                  energy_price_level_pct=price_level, capital_cost_level_pct=capital_level)
+    # a blank field is None, and refused by name ("Discount rate: enter a number")
+    fields = {name: typed_number(value, percent) for (name, percent), value
+              in zip(NUMBER_FIELDS, (discount, escalation, horizon, price_level, capital_level))}
     if not budget_problem:
         fields["budget_per_yr"] = budget
     new, problem = services.edit_assumptions(view.key, view.entry.case.finance, edits,
@@ -187,9 +241,19 @@ def edit(*form):
     value (a negative discount rate) is applied with a caution."""
     new, changed, problem = _parse_form(*form)
     # the valid values apply even when another field is refused; the message names each refused one (set
-    # apart as a refusal); a caution on an unusual value keeps the plain look
-    return (new if changed else no_update), problem or services.assumption_notes(new), (
+    # apart as a refusal); a caution on an unusual value keeps the plain look when nothing is refused
+    return (new if changed else no_update), form_message(problem, services.assumption_notes(new)), (
         ui.message_class(False) if problem else "form-message")
+
+
+def form_message(problem: str, caution: str) -> str:
+    """The form's message: what was refused, then the caution on a value applied (each may be "").
+
+    A caution after a refusal drops its "Applied." (the refusal ends "The other values are applied.").
+    """
+    if problem and caution:
+        return f"{problem} {caution.removeprefix('Applied. ')}"
+    return problem or caution
 
 
 @callback(Output(f"{HEADLINE}-headline-capital", "children"), Output(f"{HEADLINE}-headline-saving", "children"),

@@ -263,18 +263,22 @@ def test_rerender_after_an_assumption_edit(tab, artifacts):
     assert tab.errors == []
 
 
-def test_assumption_steppers_and_out_of_range_values(tab):
-    # the number fields' + and - buttons step the value by one (a field with a lower bound and no upper one
-    # used to turn into NaN), and a value out of range reaches the server and gets a message in the form's words
+def test_a_blank_or_out_of_range_assumption_gets_a_message(tab):
+    # the assumption fields are text fields: one emptied and left with Enter or Tab reaches the server and is
+    # refused by name (Dash 4's number input reported nothing, and the old value stayed with no message), and
+    # a value out of range gets a message in the form's words
     page = tab.goto("/inputs", PAGES[-1][1])
     # the demo's warnings are listed (its hourly profiles against 15- and 30-min demand windows)
     page.locator("#inputs-problems").filter(has_text="demand charge takes 15-min windows").wait_for()
-    page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '100'")
-    page.click("button.dash-stepper-increment[aria-controls='inputs-price-level']")
-    page.wait_for_function("document.querySelector('#inputs-price-level')?.value === '101'")
-    page.click("button.dash-stepper-decrement[aria-controls='inputs-capital-level']")
-    page.wait_for_function("document.querySelector('#inputs-capital-level')?.value === '99'")
+    page.wait_for_function("document.querySelector('#inputs-discount-rate')?.value === '8'")
     message = page.locator("#inputs-form-message")
+    edit_field(page, "#inputs-discount-rate", "", "Enter", message.filter(has_text="Discount rate: enter a number."))
+    edit_field(page, "#inputs-horizon", "", "Tab", message.filter(has_text="Horizon: enter a number."))
+    assert message.inner_text().startswith("Not applied: Discount rate: enter a number. Horizon: enter a number.")
+    page.click("#inputs-save")  # refused by the form: nothing is written, and the status says why
+    page.locator("#inputs-save-status").filter(
+        has_text="Not saved: Discount rate: enter a number. Horizon: enter a number.").wait_for()
+    edit_field(page, "#inputs-discount-rate", "8", "Enter", message.filter(has_text="Not applied: Horizon: enter a number."))
     edit_field(page, "#inputs-horizon", "0", "Enter", message.filter(has_text="whole number of years"))
     assert "enter a number" not in message.inner_text()
     assert tab.errors == []

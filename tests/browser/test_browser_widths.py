@@ -1,4 +1,4 @@
-"""The plan and fleet tables at common laptop widths (1024 and 1366 px) from a real Chromium.
+"""The plan, fleet and asset-option tables at common screen widths (1024, 1366 and 1920 px) from a real Chromium.
 
 The page itself never scrolls sideways; a table either fits its panel with every text whole (long texts
 wrap) or scrolls sideways inside its own panel. Whether a text is cut off depends on the grid's own
@@ -67,3 +67,42 @@ def test_the_fleet_table_scrolls_inside_its_panel_not_the_page(window):
     assert page.evaluate("window.scrollX") == 0 and page.evaluate(PAGE_WIDTH)[0] <= window_width_px
     assert page.locator("#fleet-table .ag-row [col-id]").evaluate_all(CUT_OFF) == []
     assert window.errors == []
+
+
+#: Where each header of the options grid lies, against the grid and its pinned columns [px].
+OPTION_HEADERS = """g => {
+    const left = g.querySelector('.ag-pinned-left-header').getBoundingClientRect().right;
+    const right = g.querySelector('.ag-pinned-right-header').getBoundingClientRect().left;
+    const box = g.getBoundingClientRect();
+    return [...g.querySelectorAll('.ag-header-viewport .ag-header-cell')].filter(h => {
+        const r = h.getBoundingClientRect();
+        return r.left < left - 1 || r.right > right + 1 || r.right > box.right + 1;
+    }).map(h => h.getAttribute('col-id'));
+}"""
+
+
+@pytest.mark.parametrize("size", [(1366, 768), (1920, 1080)], ids=["1366x768", "1920x1080"])
+def test_the_asset_options_show_every_column_and_every_row(size, sys_browser, dash_url):
+    # the demo's HRW-P11 has eight options; its "Life-cycle cost" column was behind the pinned cautions and
+    # its eighth row below the grid's fixed 500 px
+    width_px, height_px = size
+    context = sys_browser.new_context(viewport={"width": width_px, "height": height_px})
+    try:
+        tab = Tab(context, dash_url)
+        page = tab.goto("/asset?id=HRW-P11", "#asset-options .ag-center-cols-container .ag-row")
+        page.wait_for_load_state("networkidle")
+        grid = page.locator("#asset-options")
+        assert grid.evaluate(OPTION_HEADERS) == []  # no header behind a pinned column or off the grid
+        fits = grid.locator(".ag-center-cols-viewport").evaluate("v => v.scrollWidth <= v.clientWidth + 1")
+        assert fits and page.evaluate(PAGE_WIDTH)[0] <= width_px
+        assert grid.locator(".ag-row [col-id]").evaluate_all(CUT_OFF) == []
+        assert grid.locator(".ag-header-cell-text").evaluate_all(HEADER_CUT_OFF) == []
+        # every row is in the grid's own height, none below it
+        assert grid.locator(".ag-center-cols-container .ag-row").count() == 8
+        assert grid.locator(".ag-body-viewport").evaluate("v => v.scrollHeight <= v.clientHeight + 1")
+        # the payback written as the Fleet table writes it: rewinding spends capital and never pays back
+        rewind = grid.locator(".ag-center-cols-container [row-id='rewind'] [col-id='discounted_payback_yr']")
+        assert rewind.inner_text().split() == ["not", "within", "the", "horizon"]
+        assert tab.errors == []
+    finally:
+        context.close()
