@@ -162,10 +162,18 @@ class Case:
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
 _THOUSANDS = re.compile(r"^[-+]?\d{1,3}(,\d{3})+(\.\d+)?$")
 _DOT_THOUSANDS_DECIMAL_COMMA = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+,\d+$")
-#: Notes of :func:`_to_number` that describe a repair (a warning) rather than a failure (an error).
+#: Notes of :func:`_to_number` for a % sign: dropped in a column in percent, or the number divided by 100 in a
+#: column that holds a fraction (docs/conventions.md: ``_pct`` is 0-100, ``_frac`` 0-1).
+PERCENT_SIGN_DROPPED = "a % sign was dropped (the column is in percent)"
+PERCENT_READ_AS_FRACTION = "a percentage was read as a fraction (divided by 100)"
+#: Notes of :func:`_to_number` that describe a repair (a warning) rather than a failure (an error). A cell
+#: repaired twice (``95,2%``) has both notes, joined by ``"; also "``.
 REPAIR_NOTES = ("decimal comma read as a decimal point",
                 "decimal comma read as a decimal point and '.' as a thousands separator",
-                "a date was given; its year was used")
+                "a date was given; its year was used",
+                PERCENT_SIGN_DROPPED, PERCENT_READ_AS_FRACTION)
+#: Note of :func:`_to_number` for a % sign in a column that is neither in percent nor a fraction.
+PERCENT_SIGN_OUT_OF_PLACE = "a % sign, in a column that is not in percent"
 #: Largest plausible line current of a motor [A], for the kW-versus-W check: P / (sqrt(3) V) above it
 #: means the rating or the voltage is off by a factor of 1000. Common practice: low-voltage motors are
 #: rarely built above about 1.5 MW (about 1,500 A at 690 V); 6,000 A leaves a wide margin.
@@ -183,7 +191,12 @@ def _blank(value: object) -> bool:
     return isinstance(value, str) and not value.strip()
 
 
-def _to_number(value: object, year: bool = False) -> tuple[float, str | None]:
+def _is_repair(note: str | None) -> bool:
+    """True when a note of :func:`_to_number` describes a repair (or two), not a failure."""
+    return note is not None and all(part in REPAIR_NOTES for part in note.split("; also "))
+
+
+def _to_number(value: object, year: bool = False, ratio: str | None = None) -> tuple[float, str | None]:
     """Parse one cell as a finite number; return (value, note) where note explains a repair or failure.
 
     Parameters
@@ -192,13 +205,27 @@ def _to_number(value: object, year: bool = False) -> tuple[float, str | None]:
         Cell as read (text, number, date or blank).
     year : bool
         The column holds a year: a date cell gives its year (a flagged repair).
+    ratio : {"pct", "frac", None}
+        What a trailing % sign means in the column (:func:`models.io.ratio_kind`): in a column in percent
+        (``pct``, 0-100) the sign is dropped; in a fraction column (``frac``, 0-1) the number is divided by
+        100 (``89%`` is 0.89); both are flagged repairs. In any other column a % sign is an error.
 
     Returns
     -------
     number : float
         The number, NaN when blank or unreadable.
     note : str or None
-        None when read as is; one of :data:`REPAIR_NOTES` for a repair; otherwise why it failed.
+        None when read as is; one of :data:`REPAIR_NOTES` for a repair (two joined by ``"; also "`` for a cell
+        repaired twice); otherwise why it failed.
+
+    Examples
+    --------
+    >>> _to_number("89%", ratio="frac")
+    (0.89, 'a percentage was read as a fraction (divided by 100)')
+    >>> _to_number("95.2 %", ratio="pct")
+    (95.2, 'a % sign was dropped (the column is in percent)')
+    >>> _to_number("15%")
+    (nan, 'a % sign, in a column that is not in percent')
     """
     if _blank(value):
         return np.nan, None
@@ -217,8 +244,16 @@ def _to_number(value: object, year: bool = False) -> tuple[float, str | None]:
     text = str(value).strip().replace("\u00a0", "").replace("\u202f", "").replace(" ", "")
     if text.upper() in io.SPREADSHEET_ERRORS:
         return np.nan, f"the spreadsheet formula gave the error {text.upper()}"
-    if text.endswith("%"):
-        text = text[:-1]
+    if text.endswith("%") and text[:-1]:
+        if ratio not in ("pct", "frac"):
+            return np.nan, PERCENT_SIGN_OUT_OF_PLACE
+        number, note = _to_number(text[:-1], year=year)
+        if np.isnan(number):
+            return number, note
+        if ratio == "frac":  # 15 significant digits: 0.1 / 100 is 0.001, not 1.0000000000000002e-03
+            number = float(f"{number / 100.0:.15g}")
+        done = PERCENT_SIGN_DROPPED if ratio == "pct" else PERCENT_READ_AS_FRACTION
+        return number, done if note is None else f"{done}; also {note}"
     try:
         number = float(text)
     except ValueError:
@@ -275,10 +310,11 @@ class _TableChecker:
         for column in unknown:
             if io.watt_header_target(self.raw.name, column) is not None:
                 continue  # a header in W is an error of its own, whose hint gives the conversion
-            missing = [c for c in self.schema.index if c not in set(source.columns)]
-            close = difflib.get_close_matches(io.normalise_header(column), [io.normalise_header(c) for c in missing],
-                                              n=1, cutoff=0.75)
-            guess = next((c for c in missing if io.normalise_header(c) == close[0]), None) if close else None
+            # the closest column not given, by its name or one of its aliases ('Hours / yr' is 'hours/yr')
+            missing = set(self.schema.index) - set(source.columns)
+            spellings = {text: ours for text, ours in io.header_map(self.raw.name).items() if ours in missing}
+            close = difflib.get_close_matches(io.normalise_header(column), list(spellings), n=1, cutoff=0.75)
+            guess = spellings[close[0]] if close else None
             self.warn(None, column, None, f"unknown column '{column}' was ignored",
                       (f"did you mean '{guess}'? " if guess else "") + f"known columns: {', '.join(self.schema.index)}")
         for name, spec in self.schema.iterrows():
@@ -297,6 +333,33 @@ class _TableChecker:
                             self.err(i, name, None, f"'{name}' is required", "fill in this cell")
         return self.frame
 
+    def _warn_percent(self, name: str, note: str, cells: list[int], values: list[object], numbers: np.ndarray) -> None:
+        """One warning for the % signs of a column: dropped (a column in percent) or read as a fraction."""
+        written = [str(values[i]).strip() for i in cells]
+        first = numbers[cells[0]]
+        if note == PERCENT_SIGN_DROPPED:
+            hint = f"write plain numbers in '{name}', which is in percent (0-100): {first:g} for {written[0]}"
+            if len(cells) == 1:
+                self.warn(cells[0], name, values[cells[0]],
+                          f"{note}: '{written[0]}' was read as {numbers[cells[0]]:g}", hint)
+            else:
+                shown = _rows_shown([int(self.rows[i]) for i in cells], [values[i] for i in cells])
+                self.warn(None, name, None, f"% signs were dropped in {len(cells)} cells of this column (the column is "
+                          f"in percent): {shown}", hint)
+            return
+        as_written = 100.0 * first
+        meant = f" (or {as_written:.15g} if that was meant)" if 0 <= as_written <= 1 else ""
+        hint = f"'{name}' takes a fraction (0-1): write {first:g} for {written[0]}{meant}, without a % sign"
+        if len(cells) == 1:
+            self.warn(cells[0], name, values[cells[0]],
+                      f"{written[0]} read as {numbers[cells[0]]:g}: '{name}' is a fraction (0-1), not a percentage", hint)
+        else:
+            rows = [int(self.rows[i]) for i in cells]
+            items = [f"{r} ({w} as {numbers[i]:g})" for r, w, i in zip(rows[:5], written[:5], cells[:5])]
+            rest = f" and {len(cells) - 5} more" if len(cells) > 5 else ""
+            self.warn(None, name, None, f"percentages were read as fractions (divided by 100) in {len(cells)} cells "
+                      f"of this column: rows {', '.join(items)}{rest}", hint)
+
     @staticmethod
     def _empty(dtype: str) -> pd.Series:
         return pd.Series(dtype="float64") if dtype in ("float", "int") else pd.Series(dtype=object)
@@ -306,14 +369,18 @@ class _TableChecker:
         if dtype in ("float", "int"):
             numbers = np.empty(len(values))
             is_year = name.startswith("year")
+            ratio = io.ratio_kind(self.raw.name, name)
             repaired: dict[str, list[int]] = {}
             for i, value in enumerate(values):
-                number, note = _to_number(value, year=is_year)
+                number, note = _to_number(value, year=is_year, ratio=ratio)
                 numbers[i] = number
-                if note in REPAIR_NOTES:
+                if _is_repair(note):
                     repaired.setdefault(note, []).append(i)
                 elif note is not None:
                     hint = f"unit: {spec['unit']}" if spec["unit"] != "-" else "write a plain number"
+                    if note == PERCENT_SIGN_OUT_OF_PLACE:
+                        hint = (f"write the value in {spec['unit']}, without a % sign" if spec["unit"] != "-"
+                                else "write a plain number, without a % sign")
                     if note.startswith("ambiguous"):
                         written = str(value).strip()
                         hint = (f"write {written.replace(',', '')} without the comma, or {written.replace(',', '.')} "
@@ -323,8 +390,14 @@ class _TableChecker:
                     rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
                     self.err(i, name, value, rule, hint)
             for note, cells in repaired.items():  # one warning per column and kind of repair, not one per cell
+                if note in (PERCENT_SIGN_DROPPED, PERCENT_READ_AS_FRACTION):
+                    self._warn_percent(name, note, cells, values, numbers)
+                    continue
                 hint = ("format the cells as numbers" if note.startswith("a date")
                         else "use a point as decimal mark to avoid this repair")
+                if PERCENT_SIGN_DROPPED in note or PERCENT_READ_AS_FRACTION in note:
+                    hint = (f"write plain numbers with a point as decimal mark: '{name}' is "
+                            + ("in percent (0-100)" if ratio == "pct" else "a fraction (0-1): 0.89 for 89 %"))
                 if len(cells) == 1:
                     self.warn(cells[0], name, values[cells[0]], note, hint.replace("cells as numbers", "cell as a number"))
                 else:
@@ -475,25 +548,67 @@ def _known_zones() -> frozenset[str]:
     return frozenset(zoneinfo.available_timezones()) - {"localtime", "Factory"}
 
 
+#: The settings a case declares (docs/case-format.md, "case.toml").
+SETTING_KEYS = ("name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date")
+
+
+def _settings_table(raw: io.RawCase) -> tuple[dict, list[str]]:
+    """The case's settings as one table, and the known keys read from above the ``[case]`` line.
+
+    ``case.toml`` writes its settings under ``[case]``; a file written without that line (``name = ...``
+    at the top, as finance.toml writes its keys) gives the same settings: known top-level keys are read as
+    settings where ``[case]`` does not give them too.
+    """
+    settings = raw.settings if isinstance(raw.settings, dict) else {}
+    data = settings.get("case", {})
+    data = dict(data) if isinstance(data, dict) else {}
+    top = [k for k in settings if k in SETTING_KEYS and not isinstance(settings[k], dict)]
+    for key in top:
+        data.setdefault(key, settings[key])
+    return data, top
+
+
 def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
     source = raw.settings_source
     if not isinstance(raw.settings, dict):
         raw.settings = {}
-    data = raw.settings.get("case", {})
-    if not isinstance(data, dict):
-        problems.append(error(source, None, "case", data, "'case' must be a table of settings",
+    given = raw.settings.get("case", {})
+    if not isinstance(given, dict):
+        problems.append(error(source, None, "case", given, "'case' must be a table of settings",
                               "write [case] on a line of its own, then one key = value per line"))
-        data = {}
+    data, top = _settings_table(raw)
     default_name = raw.path.stem if raw.kind == "workbook" else raw.path.name
-    known = {"name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date"}
-    for key in data:
+    known = set(SETTING_KEYS)
+    for key in (given if isinstance(given, dict) else {}):
         if key not in known:
-            problems.append(warning(source, None, key, data[key], f"unknown setting '{key}' was ignored",
-                                    f"known settings: {', '.join(sorted(known))}"))
-    for key in raw.settings:
-        if key != "case":
+            close = difflib.get_close_matches(str(key), sorted(known - set(data)), n=1, cutoff=0.7)
+            problems.append(warning(source, None, key, given[key], f"unknown setting '{key}' was ignored",
+                                    (f"did you mean '{close[0]}'? " if close else "")
+                                    + f"known settings: {', '.join(sorted(known))}"))
+    twice = [k for k in top if isinstance(given, dict) and k in given]
+    read = [k for k in top if k not in twice]
+    if read:  # named by its first key, so the message stands on the line where [case] belongs
+        one = len(read) == 1
+        problems.append(warning(source, None, read[0], None,
+                                f"{counted(len(read), 'setting')} written without a [case] line ({', '.join(read)}) "
+                                f"{'was' if one else 'were'} read as the case's settings",
+                                f"move {'it' if one else 'them'} under the [case] line" if isinstance(given, dict) and given
+                                else f"write [case] on a line of its own above {'it' if one else 'them'}"))
+    for key in twice:
+        problems.append(warning(source, None, key, raw.settings[key],
+                                f"'{key}' is given above the [case] line and under it; the value under [case] is used",
+                                "delete the line above [case]"))
+    for key, value in raw.settings.items():
+        if key == "case" or key in top:
+            continue
+        if isinstance(value, dict):
             problems.append(warning(source, None, key, None, f"unknown table [{key}] was ignored",
                                     "case.toml holds a [case] table only"))
+        else:
+            close = difflib.get_close_matches(str(key), sorted(known - set(data)), n=1, cutoff=0.7)
+            problems.append(warning(source, None, key, value, f"unknown key '{key}' was ignored",
+                                    (f"did you mean '{close[0]}'? " if close else "")
+                                    + f"case.toml holds the settings {', '.join(SETTING_KEYS)}, under a [case] line"))
     currency = str(data.get("currency", "EUR")).strip().upper()
     if not re.fullmatch(r"[A-Z]{3}", currency):
         problems.append(error(source, None, "currency", data.get("currency"), "currency must be a three-letter ISO 4217 code",
@@ -594,8 +709,10 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
                     problems: list[Problem], where=lambda i: "") -> np.ndarray:
     """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired.
 
-    ``where(i)`` says which profile and interval row ``i`` belongs to (`` in profile 'P' at T``), for the
-    messages of a long table whose row numbers alone are hard to find.
+    In a column in percent (``shaft_load_pct``) a trailing % sign is dropped, as in the register, with one
+    warning for the column; in any other column it is an error. ``where(i)`` says which profile and interval
+    row ``i`` belongs to (`` in profile 'P' at T``), for the messages of a long table whose row numbers alone
+    are hard to find.
     """
     if pd.api.types.is_bool_dtype(series.dtype) or series.dtype == object:
         series = series.astype(object)
@@ -607,17 +724,40 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
     bad = np.flatnonzero(np.isnan(numeric) & given)
     if len(bad):
         cells = series.iloc[bad].map(lambda v: str(v).strip())
-        comma = cells.str.match(r"^[-+]?\d+,\d+$").to_numpy(dtype=bool)
+        signed = cells.str.endswith("%").to_numpy(dtype=bool)
+        in_percent = io.ratio_kind("profiles", column) == "pct"
+        text = cells.where(~signed, cells.str[:-1].str.strip()) if in_percent else cells
+        plain = np.full(len(bad), np.nan)
+        if in_percent and signed.any():
+            plain[signed] = pd.to_numeric(text[signed], errors="coerce").to_numpy(dtype=float)
+            numeric[bad[~np.isnan(plain)]] = plain[~np.isnan(plain)]
+        comma = np.isnan(plain) & text.str.match(r"^[-+]?\d+,\d+$").to_numpy(dtype=bool)
         if comma.any():
-            numeric[bad[comma]] = pd.to_numeric(cells[comma].str.replace(",", ".", regex=False)).to_numpy(dtype=float)
+            numeric[bad[comma]] = pd.to_numeric(text[comma].str.replace(",", ".", regex=False)).to_numpy(dtype=float)
             repaired = bad[comma]
             problems.append(warning(source, int(rows[repaired[0]]), header, None,
                                     f"decimal commas were read as decimal points ({int(comma.sum())} cell(s): "
                                     f"{_rows_shown(rows[repaired].tolist(), list(cells[comma].iloc[:5]))})",
                                     "use a point as decimal mark"))
-        _listed(problems, bad[~comma],
-                lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a number{where(i)}",
-                                "write a plain number; spreadsheet error values (#N/A, #DIV/0!) are not numbers"),
+        dropped = signed & (comma | ~np.isnan(plain)) if in_percent else np.zeros(len(bad), dtype=bool)
+        if dropped.any():
+            first = int(np.flatnonzero(dropped)[0])
+            problems.append(warning(source, int(rows[bad[first]]), header, None,
+                                    f"% signs were dropped in {int(dropped.sum())} cell(s) of '{column}', which is in "
+                                    f"percent ({_rows_shown(rows[bad[dropped]].tolist(), list(cells[dropped].iloc[:5]))})",
+                                    f"write plain numbers in '{column}' (0-100 % of rated power): "
+                                    f"{numeric[bad[first]]:g} for {cells.iloc[first]}"))
+
+        def not_a_number(i: int) -> Problem:
+            value = series.iloc[i]
+            if str(value).strip().endswith("%"):
+                return error(source, int(rows[i]), header, value,
+                             f"'{column}' must be a number (a % sign, in a column that is not in percent){where(i)}",
+                             f"give '{column}' in its unit, without a % sign")
+            return error(source, int(rows[i]), header, value, f"'{column}' must be a number{where(i)}",
+                         "write a plain number; spreadsheet error values (#N/A, #DIV/0!) are not numbers")
+
+        _listed(problems, bad[~comma & np.isnan(plain)], not_a_number,
                 lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not numbers"))
     infinite = np.flatnonzero(np.isinf(numeric))
     _listed(problems, infinite,
@@ -677,6 +817,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         profile_id = str(profile_id)
         has = {c: np.isfinite(values[c][idx]) for c in value_columns}
         present = [c for c in value_columns if has[c].any()]
+        if not present and any(frame[c].iloc[idx].notna().any() for c in value_columns):
+            continue  # values given, none readable: each unreadable cell is an error of its own already
         if len(present) != 1:
             rule = ("profile has values in both shaft_load_pct and input_kw" if len(present) > 1
                     else "profile has no values")
@@ -736,6 +878,18 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                   "a profile needs at least two intervals"))
             continue
         step = np.diff(t_unique.asi8) / (60.0 * 1e6)  # microseconds to minutes
+        changes = resolution_changes(step)
+        if changes:
+            rows_changed = rows_sorted[~dup]
+            _listed(problems, changes,
+                    lambda c: error(source, int(rows_changed[c[0]]), header("timestamp"), str(t_unique[c[0]]),
+                                    f"profile '{profile_id}' changes resolution at {t_unique[c[0]]}: every {c[1]:g} min "
+                                    f"before, every {c[2]:g} min from there on",
+                                    "keep one resolution per profile: average the finer part to "
+                                    f"{max(c[1], c[2]):g}-min means (docs/case-format.md, interval profiles)"),
+                    lambda n: error(source, None, header("timestamp"), None,
+                                    f"{n} more changes of resolution in '{profile_id}'"))
+            continue
         resolution = float(np.median(step))
         if not any(abs(resolution - r) < 1e-6 for r in ALLOWED_RESOLUTIONS_MIN):
             problems.append(error(source, int(rows[idx[0]]), header("timestamp"), f"{resolution:g} min",
@@ -775,6 +929,49 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                      "n_intervals": len(series), "start": t_unique[0], "end": t_unique[-1],
                      "coverage_days": round(coverage_days, 3)})
     return profiles, pd.DataFrame(info, columns=info_columns)
+
+
+#: Consecutive intervals at one step that make a stretch of a profile at that resolution (6 hours at
+#: 15 min, a day at 60 min): a few missing readings never line up this long, a logger set to another
+#: resolution does.
+RESOLUTION_STRETCH_INTERVALS = 24
+
+
+def resolution_changes(step_min: np.ndarray, stretch: int = RESOLUTION_STRETCH_INTERVALS) -> list[tuple[int, float, float]]:
+    """Where a profile changes resolution: stretches of one step followed by stretches of another.
+
+    Parameters
+    ----------
+    step_min : numpy.ndarray
+        Steps between a profile's sorted, distinct timestamps [min] (``step_min[k]`` from stamp k to k + 1).
+    stretch : int
+        Least number of consecutive equal steps (to the minute) that count as a stretch at that resolution;
+        shorter runs (a gap, a missing reading) are passed over.
+
+    Returns
+    -------
+    list of (int, float, float)
+        For each change, the position of the first timestamp at the new step, the step before and the step
+        from there on [min]; empty when the profile keeps one resolution.
+
+    Examples
+    --------
+    >>> resolution_changes(np.array([60.0] * 30 + [15.0] * 40))
+    [(30, 60.0, 15.0)]
+    >>> resolution_changes(np.array([60.0] * 30 + [120.0] + [60.0] * 30))
+    []
+    """
+    step = np.round(np.asarray(step_min, dtype=float))
+    if len(step) < 2 * stretch:
+        return []
+    starts = np.flatnonzero(np.r_[True, step[1:] != step[:-1]])
+    lengths = np.diff(np.r_[starts, len(step)])
+    long = np.flatnonzero(lengths >= stretch)
+    changes = []
+    for before, after in zip(long[:-1], long[1:]):
+        if step[starts[after]] != step[starts[before]]:
+            changes.append((int(starts[after]), float(step[starts[before]]), float(step[starts[after]])))
+    return changes
 
 
 _OFFSET = r"(?:[+-]\d{2}:?\d{2}|Z)$"
@@ -918,6 +1115,8 @@ def _localise(naive_us: np.ndarray, zone: str, source: str, rows: np.ndarray, he
 # Cross-checks and defaults
 # ---------------------------------------------------------------------------------------------------
 def _duplicates(checker: _TableChecker, column: str, what: str) -> None:
+    """Repeated ids are errors; ids that differ from an earlier one only in case (or in surrounding spaces,
+    which are dropped on reading) are warned as likely duplicates: ids are matched exactly."""
     ids = checker.frame[column]
     dup = ids.duplicated(keep=False) & ids.notna()
     first: dict[object, int] = {}
@@ -927,6 +1126,36 @@ def _duplicates(checker: _TableChecker, column: str, what: str) -> None:
             checker.err(i, column, key, f"duplicate {what} (first seen on row {first[key]})", f"each {what} must be unique")
         else:
             first[key] = int(checker.rows[i])
+    folded = ids.map(lambda v: None if v is None else str(v).strip().casefold())
+    seen: dict[str, tuple[object, int]] = {}
+    for i in np.flatnonzero((ids.notna() & ~ids.duplicated(keep="first")).to_numpy()):  # each id once, first row
+        key = folded.iloc[i]
+        if key not in seen:
+            seen[key] = (ids.iloc[i], int(checker.rows[i]))
+            continue
+        other, row = seen[key]
+        written = checker.raw.frame[column].iloc[i] if column in checker.raw.frame else ids.iloc[i]
+        checker.warn(i, column, written,
+                     f"{what} '{ids.iloc[i]}' differs from '{other}' (row {row}) only in upper and lower case or "
+                     "surrounding spaces: a likely duplicate",
+                     f"ids are matched exactly: if both rows are one item keep one of them; if not, give them {what}s "
+                     "that differ in more than case")
+
+
+def _near_id_hint(value: object, known: set[str] | None, otherwise: str) -> str:
+    """A hint for a reference no table defines: the id it matches when case and surrounding spaces are
+    ignored (ids are matched exactly), else ``otherwise``.
+
+    Examples
+    --------
+    >>> _near_id_hint("mill", {"MILL", "ETP"}, "add the site or correct the id")
+    "did you mean 'MILL'? ids are matched exactly, upper and lower case included"
+    """
+    folded = str(value).strip().casefold()
+    match = sorted(k for k in (known or ()) if str(k).strip().casefold() == folded)
+    if match:
+        return f"did you mean '{match[0]}'? ids are matched exactly, upper and lower case included"
+    return otherwise
 
 
 def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids: set[str], duty_ids: set[str],
@@ -944,7 +1173,8 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     _duplicates(checker, "asset_id", "asset_id")
     site_given = a["site_id"].notna().to_numpy() & (site_ids is not None)
     for i in np.flatnonzero(site_given & ~a["site_id"].isin(site_ids or set()).to_numpy()):
-        checker.err(i, "site_id", a["site_id"].iloc[i], "unknown site_id (not in sites)", "add the site or correct the id")
+        checker.err(i, "site_id", a["site_id"].iloc[i], "unknown site_id (not in sites)",
+                    _near_id_hint(a["site_id"].iloc[i], site_ids, "add the site or correct the id"))
     kw, hp = a["rated_p_kw"].to_numpy(), a["rated_p_hp"].to_numpy()
     both_missing = np.isnan(kw) & np.isnan(hp)
     raw_kw = checker.raw.frame["rated_p_kw"] if "rated_p_kw" in checker.raw.frame else pd.Series([None] * len(a))
@@ -1054,7 +1284,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     checkable = has_profile & (rejected_profiles is not None) & duty_readable
     for i in np.flatnonzero(checkable & ~prof.isin(known_profiles).to_numpy()):
         checker.err(i, "profile_id", prof.iloc[i], "unknown profile reference (not in profiles or duty)",
-                    "add the profile or correct the reference")
+                    _near_id_hint(prof.iloc[i], known_profiles, "add the profile or correct the reference"))
     for i in np.flatnonzero(~has_profile & ~has_hours):
         missing = "operating_h_per_yr" if np.isnan(hours[i]) else "mean_load_pct"
         checker.err(i, missing, None, "give a profile_id, or both operating_h_per_yr and mean_load_pct")
@@ -1179,7 +1409,8 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
         if series is None and str(pid) in rejected_profiles:
             continue  # in the profiles, but refused there: its own problems say why
         if series is None:
-            checker.err(i, "base_profile_id", pid, "unknown profile reference (not in profiles)")
+            checker.err(i, "base_profile_id", pid, "unknown profile reference (not in profiles)",
+                        _near_id_hint(pid, set(profiles) | set(rejected_profiles), ""))
         elif series.name != "input_kw":
             checker.err(i, "base_profile_id", pid, "the base-load profile must be in input_kw")
     s["base_p_kw"] = s["base_p_kw"].fillna(0.0)
@@ -1258,7 +1489,8 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None
     _duplicates(checker, "bank_id", "bank_id")
     site_given = c["site_id"].notna().to_numpy() & (site_ids is not None)
     for i in np.flatnonzero(site_given & ~c["site_id"].isin(site_ids or set()).to_numpy()):
-        checker.err(i, "site_id", c["site_id"].iloc[i], "unknown site_id (not in sites)")
+        checker.err(i, "site_id", c["site_id"].iloc[i], "unknown site_id (not in sites)",
+                    _near_id_hint(c["site_id"].iloc[i], site_ids, ""))
     c["control"] = c["control"].fillna("fixed")
     rated = c["rated_q_kvar"].to_numpy()
     step = c["step_q_kvar"].to_numpy()
@@ -1305,9 +1537,9 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
 
 
 def _declared(raw: io.RawCase, key: str) -> bool:
-    """Whether the case settings (``case.toml``'s [case] table, or a workbook's case sheet) give ``key``."""
-    data = raw.settings.get("case") if isinstance(raw.settings, dict) else None
-    return isinstance(data, dict) and key in data
+    """Whether the case settings (``case.toml``'s [case] table or its keys above it, or a workbook's case
+    sheet) give ``key``."""
+    return key in _settings_table(raw)[0]
 
 
 def _setting_line(raw: io.RawCase, key: str, value: str) -> str:

@@ -202,6 +202,37 @@ def header_map(table: str) -> dict[str, str]:
     return mapping
 
 
+@lru_cache(maxsize=None)
+def ratio_kind(table: str, column: str) -> str | None:
+    """Whether a column of a case table holds a percentage, a fraction or neither (for a % sign in a cell).
+
+    Parameters
+    ----------
+    table : str
+        One of :data:`CASE_TABLES`.
+    column : str
+        Our column name.
+
+    Returns
+    -------
+    str or None
+        ``"pct"`` for a column in percent (unit ``%`` or percentage points: ``_pct`` names, 0-100),
+        ``"frac"`` for a fraction (``_frac`` names and power factors, 0-1, docs/conventions.md), else None.
+
+    Examples
+    --------
+    >>> ratio_kind("assets", "mean_load_pct"), ratio_kind("assets", "rated_power_factor"), ratio_kind("assets", "poles")
+    ('pct', 'frac', None)
+    """
+    units = dict(zip(read_schema(table)["name"], read_schema(table)["unit"])) if table in CASE_TABLES else {}
+    name = str(column)
+    if units.get(name) in ("%", "pct points") or name.endswith(("_pct", "_pct_points")):
+        return "pct"
+    if name.endswith("_frac") or "power_factor" in name:
+        return "frac"
+    return None
+
+
 _WATT_TOKEN = re.compile(r"(?<![a-z])(w|watts?)(?![a-z])")
 
 
@@ -841,7 +872,10 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
     header_row = 0
     records: list[list[object]] = []
     rows: list[int] = []
-    for row_no, values in enumerate(sheet.iter_rows(values_only=True), start=1):
+    percent_columns: list[int] = []  # positions of the columns in percent (0-100)
+    percent_cells: dict[int, list[tuple[int, float, float]]] = {}  # position -> (row, as stored, as shown)
+    for row_no, row_cells in enumerate(sheet.iter_rows(), start=1):
+        values = tuple(cell.value for cell in row_cells)
         if header is not None and row_no in fill_by_row:  # a merged header spans columns: not spread
             values = list(values)
             for c, value in fill_by_row[row_no]:
@@ -857,8 +891,16 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
             while header and (header[-1] is None or str(header[-1]).strip() == ""):
                 header.pop()
             header_row = row_no
+            percent_columns = [k for k, h in enumerate(header)
+                               if ratio_kind(table, header_map(table).get(normalise_header(h), "")) == "pct"]
             continue
         cells = list(values[: len(header)]) + [None] * max(0, len(header) - len(values))
+        for k in percent_columns:  # a cell formatted as percent shows 100 times what it holds (0.952 as 95.2 %)
+            v = cells[k]
+            if (isinstance(v, (int, float)) and not isinstance(v, bool) and k < len(row_cells)
+                    and _percent_format(getattr(row_cells[k], "number_format", None))):
+                cells[k] = float(f"{v * 100.0:.15g}")  # 15 significant digits: 0.952 * 100 is 95.2, not 95.19999...
+                percent_cells.setdefault(k, []).append((row_no, v, cells[k]))
         records.append([None if (isinstance(v, str) and not v.strip()) else (v.strip() if isinstance(v, str) else v) for v in cells])
         rows.append(row_no)
     if header is None:
@@ -866,6 +908,15 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
                 [error(source, None, None, None, "the sheet is empty (no header row)",
                        "start from the workbook written by 'drivecase new --workbook'")])
     names, shown, problems = _rename(table, source, header)
+    for k, found in percent_cells.items():  # one warning per column, naming the first cells
+        row_no, stored, as_shown = found[0]
+        listed = ", ".join(str(r) for r, _, _ in found[:5]) + (f" and {len(found) - 5} more" if len(found) > 5 else "")
+        problems.append(warning(source, None, str(header[k]).strip(), None,
+                                f"{counted(len(found), 'cell')} of this column {'is' if len(found) == 1 else 'are'} "
+                                f"formatted as percent in the workbook ({stored:g} shown as {as_shown:g} %): read as "
+                                f"the percent shown, {as_shown:g} (row{'s' if len(found) > 1 else ''} {listed})",
+                                f"'{names[k]}' is in percent (0-100): format the cells as plain numbers holding the "
+                                f"percent ({as_shown:g}) to avoid this repair"))
     frame = pd.DataFrame(records, columns=names, dtype=object)
     frame = _drop_blank_header_columns(frame)
     header_text = {c: ("" if h is None else str(h).strip()) or f"(blank header {c})" for c, h in enumerate(header, start=1)}
@@ -892,6 +943,21 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
                                 f"{len(hidden_data)} hidden row(s) were read like the others (rows {shown_rows})",
                                 "delete rows that should not count; hiding or filtering does not remove them"))
     return RawTable(table, source, frame, np.asarray(rows, dtype=np.int64), shown), problems
+
+
+def _percent_format(number_format: object) -> bool:
+    """True for a spreadsheet number format that shows a cell as a percentage (100 times its value).
+
+    A % sign inside quotes or after a backslash is a literal character that does not scale the value.
+
+    Examples
+    --------
+    >>> _percent_format("0.0%"), _percent_format('0.0" %"'), _percent_format("General"), _percent_format(None)
+    (True, False, False, False)
+    """
+    if not isinstance(number_format, str):
+        return False
+    return "%" in re.sub(r'"[^"]*"|\\.', "", number_format)
 
 
 def _settings_sheet(sheet) -> dict:

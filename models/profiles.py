@@ -101,7 +101,10 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     -----
     Finer data are averaged into each analysis interval; coarser data are held over their interval
     (a mean power is constant over it). A profile centred on another year is moved by whole weeks
-    (52-week steps, 364 days) to the analysis year so that weekdays line up.
+    (52-week steps, 364 days) to the analysis year so that weekdays line up. The profile's own step is the
+    median of its steps: a profile keeps one resolution, and :func:`models.case.resolution_changes` is
+    how reading a case refuses one that changes part way (hourly, then 15-min), which would be read here
+    at its majority step with the rest taken for missing intervals.
 
     Examples
     --------
