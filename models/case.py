@@ -1250,6 +1250,19 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     speed = a["rated_speed_rpm"].to_numpy()
     machine = a["machine_type"].fillna("induction").to_numpy(dtype=object)
     induction = machine == "induction"
+    synchronous_today = np.isin(machine, ["wound_field_synchronous", "pm_synchronous"])
+    if synchronous_today.any():
+        # today's machine is modelled by the induction-motor model whatever its type: say what that gets wrong
+        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[synchronous_today])
+        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        verb = "is a synchronous machine" if len(ids) == 1 else "are synchronous machines"
+        checker.warn(None, "machine_type", None,
+                     f"{counted(len(ids), 'motor')} of today's fleet {verb} ({named}), modelled as induction motors: nameplate efficiency and speed are kept (a slip of at "
+                     "most 0.1 %), but their reactive power is taken as an induction motor's lagging kVAr at the "
+                     "nameplate power factor",
+                     "a wound-field machine may run at unity or leading power factor and a PM motor near unity: the "
+                     "reactive savings of options against these motors are then overstated; compare them on energy, "
+                     "or leave these motors out")
     with np.errstate(divide="ignore", invalid="ignore"):
         slip = (sync - speed) / sync
     has = ~np.isnan(speed) & ~np.isnan(sync)

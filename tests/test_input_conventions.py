@@ -332,3 +332,19 @@ class TestHeadersAndIds:
         case, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with((1, "site_id", "S9"))))
         p = _find(problems, file="assets.csv", row=3, column="site_id", text="unknown site_id")
         assert p.hint == "add the site or correct the id"
+
+
+def test_todays_synchronous_machines_are_said_to_be_modelled_as_induction_motors(tmp_path):
+    # the register may say today's machine is synchronous; the model of today's motor is the induction one, so the
+    # check says what that gets wrong (reactive power) instead of passing it over
+    header = cb.ASSET_HEADER + ["machine_type"]
+    assets = [list(row) + [kind] for row, kind in zip(cb.ASSETS, ["wound_field_synchronous", "", ""])]
+    assets[0][11] = "1500"  # rated_speed_rpm: synchronous speed of a 4-pole 50 Hz machine
+    case, problems = load_case(cb.write_case(tmp_path / "c", assets=assets, asset_header=header))
+    assert case is not None
+    found = [p for p in problems if p.column == "machine_type" and p.severity == "warning"]
+    assert len(found) == 1 and found[0].file == "assets.csv"
+    assert found[0].rule.startswith("1 motor of today's fleet is a synchronous machine (P1), modelled as induction motors")
+    assert "reactive savings of options against these motors are then overstated" in found[0].hint
+    _, problems = load_case(cb.write_case(tmp_path / "d"))
+    assert not [p for p in problems if p.column == "machine_type"]
