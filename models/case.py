@@ -923,6 +923,14 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
             problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, less than a year",
                                     "it is extended to a year by repeating its typical week; log a full year where it matters"))
+        elif coverage_days > 366.5 + resolution / 1440:
+            problems.append(warning(source, None, header("profile_id"), profile_id,
+                                    f"profile '{profile_id}' covers {coverage_days:.1f} days, more than a year "
+                                    f"({t_unique[0]:%Y-%m-%d} to {t_unique[-1]:%Y-%m-%d}): one year is analysed, the "
+                                    "rest of the profile is not used",
+                                    "the analysis year is the one most of the case's intervals fall in, and a profile is "
+                                    "moved by whole weeks onto it; give the one year that is most typical, or each "
+                                    "year as its own case"))
         series = pd.Series(v_unique, index=t_unique, name=quantity)
         profiles[profile_id] = series
         info.append({"profile_id": profile_id, "quantity": quantity, "resolution_min": int(round(resolution)),

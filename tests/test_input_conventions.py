@@ -13,6 +13,7 @@ import shutil
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
@@ -348,3 +349,19 @@ def test_todays_synchronous_machines_are_said_to_be_modelled_as_induction_motors
     assert "reactive savings of options against these motors are then overstated" in found[0].hint
     _, problems = load_case(cb.write_case(tmp_path / "d"))
     assert not [p for p in problems if p.column == "machine_type"]
+
+
+def test_a_profile_longer_than_a_year_is_said_to_be_used_for_one_year_only(tmp_path):
+    # two years of hourly data (17,544 h from 2024-01-01, a leap year, to 2025-12-31 23:00) cover 731 days; one
+    # analysis year is used, so the check says the rest is not
+    stamps = pd.date_range("2024-01-01", "2025-12-31 23:00", freq="h", tz="Europe/Berlin")  # the case's zone
+    rows = [["LP1", t.isoformat(), "70"] for t in stamps]
+    case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+    assert case is not None
+    found = [p for p in problems if p.severity == "warning" and "more than a year" in p.rule]
+    assert len(found) == 1 and found[0].file == "profiles.csv"
+    assert found[0].rule.startswith("profile 'LP1' covers 731.0 days, more than a year (2024-01-01 to 2025-12-31)")
+    one_year = [["LP1", t.isoformat(), "70"]
+                for t in pd.date_range("2025-01-01", "2025-12-31 23:00", freq="h", tz="Europe/Berlin")]
+    _, problems = load_case(cb.write_case(tmp_path / "d", profiles=one_year))
+    assert not [p for p in problems if "more than a year" in p.rule]
