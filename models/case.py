@@ -1869,8 +1869,31 @@ def _with_toml_lines(raw: io.RawCase, problems: list[Problem]) -> list[Problem]:
     return out
 
 
+#: The start of the rule of a table row with more cells than its header (models.io): its cells are shifted.
+_SHIFTED_ROW_RULE = "cells but the header has"
+
+
+def _without_shifted_cells(problems: list[Problem]) -> list[Problem]:
+    """Problems with the checks of a row whose cells are shifted (a stray delimiter: more cells than the
+    header) folded into that row's own error: each shifted cell would fail its column's check and bury the
+    one problem to fix under a dozen that follow from it."""
+    shifted = {(p.file, p.row) for p in problems if p.severity == "error" and _SHIFTED_ROW_RULE in p.rule}
+    if not shifted:
+        return problems
+    hidden: dict[tuple, int] = {}
+    kept = []
+    for p in problems:
+        if (p.file, p.row) in shifted and _SHIFTED_ROW_RULE not in p.rule:
+            hidden[(p.file, p.row)] = hidden.get((p.file, p.row), 0) + 1
+            continue
+        kept.append(p)
+    return [replace(p, hint=f"{p.hint}; the row's other {counted(hidden[(p.file, p.row)], 'problem')} follow from its "
+                              "shifted cells and are not listed")
+            if _SHIFTED_ROW_RULE in p.rule and hidden.get((p.file, p.row)) else p for p in kept]
+
+
 def _finish(case: Case | None, problems: list[Problem], mode: str) -> tuple[Case | None, list[Problem]]:
-    problems = ordered(problems)  # every path, the early returns too: errors first, then file and row
+    problems = ordered(_without_shifted_cells(problems))  # every path: errors first, then file and row
     if mode == "strict" and has_errors(problems):
         raise CaseError(problems)
     return case, problems

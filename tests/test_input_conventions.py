@@ -365,3 +365,18 @@ def test_a_profile_longer_than_a_year_is_said_to_be_used_for_one_year_only(tmp_p
                 for t in pd.date_range("2025-01-01", "2025-12-31 23:00", freq="h", tz="Europe/Berlin")]
     _, problems = load_case(cb.write_case(tmp_path / "d", profiles=one_year))
     assert not [p for p in problems if "more than a year" in p.rule]
+
+
+def test_a_row_with_a_stray_delimiter_gives_one_error_not_one_per_shifted_cell(tmp_path):
+    # "Hood exhaust fan, dry end" unquoted: the row has one cell more than the header and every cell after the
+    # comma sits under the wrong column; the one problem to fix is the stray comma
+    assets = [list(row) for row in cb.ASSETS]
+    assets[1][2] = "Exhaust fan"
+    folder = cb.write_case(tmp_path / "c", assets=assets)
+    text = (folder / "assets.csv").read_text(encoding="utf-8").replace("Exhaust fan", "Exhaust fan, dry end")
+    (folder / "assets.csv").write_text(text, encoding="utf-8")
+    _, problems = load_case(folder)
+    row_three = [p for p in problems if p.file == "assets.csv" and p.row == 3]
+    assert len(row_three) == 1, [str(p) for p in row_three]
+    assert "the row has 20 cells but the header has 19" in row_three[0].rule
+    assert "other" in row_three[0].hint and "follow from its shifted cells" in row_three[0].hint
