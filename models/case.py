@@ -1265,12 +1265,13 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
         named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
         verb = "is a synchronous machine" if len(ids) == 1 else "are synchronous machines"
         checker.warn(None, "machine_type", None,
-                     f"{counted(len(ids), 'motor')} of today's fleet {verb} ({named}), modelled as induction motors: nameplate efficiency and speed are kept (a slip of at "
-                     "most 0.1 %), but their reactive power is taken as an induction motor's lagging kVAr at the "
-                     "nameplate power factor",
-                     "a wound-field machine may run at unity or leading power factor and a PM motor near unity: the "
-                     "reactive savings of options against these motors are then overstated; compare them on energy, "
-                     "or leave these motors out")
+                     f"{counted(len(ids), 'motor')} of today's fleet {verb} ({named}), modelled with an induction "
+                     "motor's losses at its nameplate efficiency and speed (a slip of at most 0.1 %); a wound-field "
+                     "machine is taken at unity power factor (no kVAr), a PM motor with an induction motor's lagging "
+                     "kVAr at its nameplate power factor",
+                     "a wound-field machine run leading today supplies kVAr that its replacement would lose, and a PM "
+                     "motor draws less kVAr at part load than an induction motor: the reactive savings of options "
+                     "against these motors are estimates; compare them on energy where it matters")
     with np.errstate(divide="ignore", invalid="ignore"):
         slip = (sync - speed) / sync
     has = ~np.isnan(speed) & ~np.isnan(sync)

@@ -18,7 +18,7 @@ import os
 import tempfile
 import threading
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numba
 import numpy as np
@@ -169,6 +169,8 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "has_drive": speed_control == "drive",
         "static_head": a["static_head_frac"].to_numpy(dtype=float),
         "start_duty": a["start_duty"].to_numpy(dtype=object),
+        "wound_field_today": (a["machine_type"].to_numpy(dtype=object) == "wound_field_synchronous"
+                              if "machine_type" in a else np.zeros(len(a), dtype=bool)),
     }
 
 
@@ -209,8 +211,23 @@ def _take_params(params: induction.InductionParams, rows: np.ndarray) -> inducti
 
 
 def existing_motor(arr: dict[str, np.ndarray], extra_rewinds: int = 0) -> induction.InductionParams:
-    """Calibrate today's induction motors (optionally after one more rewind)."""
+    """Calibrate today's induction motors (optionally after one more rewind).
+
+    Today's machine is modelled by the induction motor's losses whatever its type, at a slip of at most
+    0.1 %; a wound-field synchronous machine today (``wound_field_today``) runs at unity power factor, its
+    field set so (the usual setting where no reactive power is asked of it), so its kVAr is nil.
+    """
     speed = np.minimum(arr["speed_rpm"], arr["sync_rpm"] * (1 - 1e-3))
+    params = _calibrated_today(arr, speed, extra_rewinds)
+    wound = arr.get("wound_field_today")
+    if wound is None or not np.any(wound):
+        return params
+    return replace(params, q_constant_kvar=np.where(wound, 0.0, params.q_constant_kvar),
+                   q_load_kvar=np.where(wound, 0.0, params.q_load_kvar),
+                   rated_power_factor=np.where(wound, 1.0, params.rated_power_factor))
+
+
+def _calibrated_today(arr: dict[str, np.ndarray], speed: np.ndarray, extra_rewinds: int) -> induction.InductionParams:
     return induction.calibrate_induction(
         arr["rated_p_kw"], arr["eff_frac"], arr["pf"], speed, arr["sync_rpm"],
         efficiency_75_frac=arr["eff75_frac"], efficiency_50_frac=arr["eff50_frac"],

@@ -345,8 +345,10 @@ def test_todays_synchronous_machines_are_said_to_be_modelled_as_induction_motors
     assert case is not None
     found = [p for p in problems if p.column == "machine_type" and p.severity == "warning"]
     assert len(found) == 1 and found[0].file == "assets.csv"
-    assert found[0].rule.startswith("1 motor of today's fleet is a synchronous machine (P1), modelled as induction motors")
-    assert "reactive savings of options against these motors are then overstated" in found[0].hint
+    assert found[0].rule.startswith("1 motor of today's fleet is a synchronous machine (P1), modelled with an induction "
+                                    "motor's losses")
+    assert "a wound-field machine is taken at unity power factor (no kVAr)" in found[0].rule
+    assert "reactive savings of options against these motors are estimates" in found[0].hint
     _, problems = load_case(cb.write_case(tmp_path / "d"))
     assert not [p for p in problems if p.column == "machine_type"]
 

@@ -252,3 +252,20 @@ def test_each_motors_rewind_loss_is_its_own(tmp_path):
     assert_allclose(r.energy_kwh[0, keep] / r.energy_kwh[1, keep], 0.919 / 0.901, rtol=1e-9)
     assert_allclose(r.energy_kwh[0, rewind] / r.energy_kwh[0, keep], 0.901 / 0.891, rtol=1e-9)
     assert_allclose(r.energy_kwh[1, rewind] / r.energy_kwh[1, keep], 0.919 / 0.918, rtol=1e-9)
+
+
+def test_a_wound_field_machine_today_draws_no_kvar_and_options_save_none_against_it(tmp_path):
+    # A 15 kW 4-pole pump whose machine today is a wound-field synchronous machine at 1,500 rpm (120 f / p, 50 Hz):
+    # its field is taken as set for unity power factor (no kVAr; docs/models.md), so today's kVArh is nil and no
+    # option that draws lagging kVAr saves any against it; its energy is that of the same motor as an induction
+    # motor at 0.1 % slip.
+    header = cb.ASSET_HEADER + ["machine_type"]
+    assets = [list(row) + [kind] for row, kind in zip(cb.ASSETS, ["wound_field_synchronous", "", ""])]
+    assets[0][11] = "1500"
+    case, _ = load_case(cb.write_case(tmp_path / "c", assets=assets, asset_header=header), mode="strict")
+    r = operate(case)
+    i, keep = r.asset_position("P1"), r.option_position("keep")
+    assert r.lagging_kvarh[i, keep] == 0.0 and r.energy_kwh[i, keep] > 0
+    others = [o for o in range(len(r.option_ids)) if r.applies[i, o] and o != keep]
+    assert others and all(r.lagging_kvarh[i, o] >= r.lagging_kvarh[i, keep] for o in others)
+    assert not r.applies[i, r.option_position("capacitor")] and not r.applies[i, r.option_position("rewind")]
