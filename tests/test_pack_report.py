@@ -560,3 +560,42 @@ def test_without_a_budget_the_plans_other_choice_is_not_put_down_to_the_budget(d
     assert len(shared) > 0  # the demo has such assets (four at the time of writing)
     assert not reasons["reason_short"].str.contains("budget").any()
     assert not reasons["reason"].str.contains("budget").any()
+
+
+def test_an_asset_outside_the_plan_is_not_recommended_a_project_whose_value_the_plan_takes(demo_run_physics):
+    # In the demo's plan the rest of the HRW site takes the value of HRW-A02's terminal capacitor (its own NPV is
+    # the highest priced alone; models.reactive_plan withdraws it); an asset pack of HRW-A02 recommends the best
+    # option the plan leaves it and says why, rather than booking the capacitor's NPV in full.
+    from models import scenario
+    from models.pack.content import select_scope
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    taken = set(result.plan_status.get("withdrawn", ())) | set(result.plan_status.get("set_aside", ()))
+    assert "HRW-A02/capacitor" in taken and "HRW-A02" not in set(result.plan["asset_id"])
+    rec = select_scope(case, result, assets=["HRW-A02"], plan=False).recommended.iloc[0]
+    assert rec["option_id"] != "capacitor" and f"HRW-A02/{rec['option_id']}" not in taken
+    assert "whose value the rest of the plan at this site already takes" in rec["reason"]
+
+
+def test_end_of_life_advice_shows_the_outage_cost_it_rests_on(demo_run_physics):
+    # the end-of-life strategy turns on what an hour of outage costs; the record and the workbook's End of life
+    # sheet give that figure and where it comes from (the register, the finance assumptions or a default)
+    from openpyxl import Workbook
+
+    from models import scenario
+    from models.pack import content
+    from models.pack.decision_record import record_context
+    from models.pack.workbook import _end_of_life, _Formats
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=True)
+    scope = content.select_scope(case, result, assets=["HRW-D01"], plan=False)
+    context = record_context(case, result, scope, "HRW-D01")
+    said = " ".join(str(v) for v in context.values())
+    basis = result.end_of_life.set_index("asset_id").loc["HRW-D01", "downtime_cost_basis"]
+    assert "an outage priced at EUR" in said and str(basis) in said
+    ws = Workbook().active
+    _end_of_life(ws, result, scope, _Formats("EUR"))
+    heads = [c.value for c in ws[3]]
+    assert "Outage cost [EUR/h]" in heads and "Outage cost from" in heads

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from models import finance
+from models.bill_savings import REACTIVE_TECHNOLOGIES
 from models.cashflows import COMPONENTS
 from models.plan import LOW_DATA_QUALITY_PCT
 from models.risk import distribution_summary
@@ -202,23 +203,39 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                 why = (f" (its highest-NPV option priced alone, {top['label']}, adds less than that beside the rest of "
                        "the plan: projects at one site share its reactive charges and demand peaks)")
                 short_why = "top NPV option shares its saving with the rest of the plan"
+            elif str(top.get("technology", "")) in REACTIVE_TECHNOLOGIES:
+                why = (f" (its highest-NPV option priced alone, {top['label']}, is a reactive project that adds less "
+                       "than that beside the rest of the plan at this site)")
+                short_why = "top NPV option shares its saving with the rest of the plan"
             else:
-                why, short_why = (" (the plan trades some NPV for capital that fits the budget, or its top option "
-                                  "shares its saving with the rest of the plan at this site)",
-                                  "fits the budget or the site better than the top NPV")
+                why, short_why = (" (the plan trades some NPV for capital that fits the budget)",
+                                  "fits the budget better than the top NPV")
             reason = (f"chosen by the {'budget-constrained ' if has_budget else ''}fleet plan for plan year {start}"
                       + why)
             short = f"plan year {start}; " + short_why
             pick["in_plan"], pick["plan_start_yr"] = True, start
         else:
             pick = rows[rows["best_for_asset"]].iloc[0].copy()
+            if f"{asset_id}/{pick['option_id']}" in taken:
+                # its best option's value is taken by the rest of the plan: the best of the others is what it can
+                # still earn (today's motor when none has a positive NPV)
+                free = rows[~(asset_id + "/" + rows["option_id"]).isin(list(taken))]
+                free = free[(free["npv"] > 0) | (free["option_id"] == keep[asset_id])]
+                if len(free):
+                    pick = free.sort_values("npv", ascending=False, kind="stable").iloc[0].copy()
             if pick["option_id"] == keep[asset_id]:
                 reason = "no option beats keeping today's motor on NPV"
                 short = "nothing beats today's motor"
-            elif float(pick["npv"]) > 0 and (f"{asset_id}/{pick['option_id']}" in taken or not has_budget):
-                reason = ("highest NPV of its options priced alone (not in the fleet plan: the rest of the plan at "
-                          "this site already takes its value)")
-                short = "highest NPV alone; value taken by the rest of the plan"
+            elif float(pick["npv"]) > 0 and not bool(pick["best_for_asset"]):
+                top = rows[rows["best_for_asset"]].iloc[0]
+                reason = (f"highest NPV of the options the rest of the plan leaves it (not in the fleet plan; its "
+                          f"highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
+                          "rest of the plan at this site already takes)")
+                short = "highest NPV the plan leaves it; outside the plan"
+            elif float(pick["npv"]) > 0 and not has_budget:
+                reason = ("highest NPV of its options (not in the fleet plan: beside the rest of the plan at this "
+                          "site it adds less than priced alone)")
+                short = "highest NPV alone; outside the plan"
             elif float(pick["npv"]) > 0:
                 reason = "highest NPV of its options (not in the fleet plan: the budget is spent on better projects)"
                 short = "highest NPV; outside the budgeted plan"

@@ -137,9 +137,14 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             reasons.append(f"Best other option: {o['label']} (NPV {content.money(float(o['npv']), cur)}{note}).")
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
+        eol_row = eol.set_index("asset_id").loc[asset_id]
+        outage = ""
+        if "downtime_cost_per_h" in eol_row.index and math.isfinite(float(eol_row["downtime_cost_per_h"])):
+            outage = (f"; an outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h, "
+                      f"{eol_row.get('downtime_cost_basis', '')}")
         reasons.append(f"For the motor itself ({labels.get(new_id, new_id)} vs rewind), the cheapest end-of-life strategy is to "
-                       f"{STRATEGY_NAMES[best_strategy]} (by {content.money(float(eol.set_index('asset_id').loc[asset_id, 'advantage_over_next']), cur)}"
-                       f" over the next).")
+                       f"{STRATEGY_NAMES[best_strategy]} (by {content.money(float(eol_row['advantage_over_next']), cur)}"
+                       f" over the next{outage}).")
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")

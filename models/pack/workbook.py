@@ -465,10 +465,11 @@ def _match(workbook: str, engine: str) -> str:
 
 def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
     _title(ws, "Checks: the workbook's formulas against the engine's figures")
-    put_text(ws, 2, 1, f"OK when every formula matches the engine within {CHECK_REL_TOL:.2%} (relative, at least "
-                       "1 currency unit or 0.0001 yr); 'none' and 'not within horizon' must match as text.")
-    headers = ["Asset", "Option", "Label", "Recommended", "NPV (workbook)", "NPV (engine)", "IRR (workbook)",
-               "IRR (engine)", "Simple payback (workbook) [yr]", "Simple payback (engine) [yr]",
+    put_text(ws, 2, 1, f"OK when every formula matches the engine within {CHECK_REL_TOL:.2%} of the engine's figure, "
+                       f"or within {CHECK_REL_TOL:g} where that figure is below 1 (currency units, years or fractions); "
+                       "'none' and 'not within horizon' must match as text.")
+    headers = ["Asset", "Option", "Label", "Recommended", f"NPV (workbook) [{f.currency}]", f"NPV (engine) [{f.currency}]",
+               "IRR (workbook) [-]", "IRR (engine) [-]", "Simple payback (workbook) [yr]", "Simple payback (engine) [yr]",
                "Discounted payback (workbook) [yr]", "Discounted payback (engine) [yr]", "Status"]
     _header(ws, 4, headers)
     row = 5
@@ -570,7 +571,8 @@ def _bills(ws: Worksheet, result, f: _Formats) -> None:
     put_text(ws, 2, 1, "'After' prices the whole exact plan, whatever the scope of this pack.")
     bills = result.bills
     row = 4
-    _header(ws, row, ["Site", "Month", "Before", "After", "Saving"])
+    _header(ws, row, ["Site", "Month", f"Before [{f.currency}/month]", f"After [{f.currency}/month]",
+                      f"Saving [{f.currency}/month]"])
     top = row + 1
     if not bills.empty:
         pivot = bills.pivot_table(index=["site_id", "month"], columns="scenario", values="amount", aggfunc="sum",
@@ -591,7 +593,7 @@ def _bills(ws: Worksheet, result, f: _Formats) -> None:
     put_text(ws, row, 1, "Bill line items").font = _BOLD
     cols = [("site_id", "Site", None), ("month", "Month", None), ("scenario", "Scenario", None),
             ("line_item", "Line item", None), ("quantity", "Quantity", f.number), ("unit", "Unit", None),
-            ("rate", "Rate", "0.0000"), ("amount", "Amount", f.money2)]
+            ("rate", f"Rate [{f.currency} per unit]", "0.0000"), ("amount", f"Amount [{f.currency}]", f.money2)]
     frame = bills.assign(scenario=bills["scenario"].map({"baseline": "before", "plan": "after"})) if not bills.empty else bills
     _table(ws, row + 1, frame, cols)
     ws.freeze_panes = "A5"
@@ -648,6 +650,9 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
                 ("cost_replace_at_failure", f"Replace at failure [{f.currency}]", f.money),
                 ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
                 ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
+        if "downtime_cost_per_h" in frame:  # what an outage is priced at, and where that figure comes from
+            cols += [("downtime_cost_per_h", f"Outage cost [{f.currency}/h]", f.money),
+                     ("downtime_cost_basis", "Outage cost from", None)]
         row = _table(ws, row, frame, cols)
         put_text(ws, row, 1, failure_law_caution(power_unit=case_power_unit))
         row += 2
@@ -659,7 +664,7 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
     headers = {"min_rated_p_kw": f"From rating [{unit}]", "max_rated_p_kw": f"To rating [{unit}]",
                "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
     _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
-    _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18})
+    _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18, 11: 14, 12: 30})
 
 
 def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
