@@ -599,3 +599,21 @@ def test_end_of_life_advice_shows_the_outage_cost_it_rests_on(demo_run_physics):
     _end_of_life(ws, result, scope, _Formats("EUR"))
     heads = [c.value for c in ws[3]]
     assert "Outage cost [EUR/h]" in heads and "Outage cost from" in heads
+
+
+def test_the_headline_saving_counts_a_reactive_project_at_the_share_the_plan_credits(demo_run_physics):
+    # KGQ-AC01's terminal capacitor is kept in the demo's plan at a share r of its own bill saving (its plan NPV
+    # counts r only); the headline's yearly saving counts the same r x bill saving + maintenance saving, so it is
+    # on the basis of the NPV and payback beside it (hand calculation from results.csv and plan_status)
+    from models import scenario
+    from models.pack.content import headline, select_scope
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    share = result.plan_status["repriced"]["KGQ-AC01/capacitor"]
+    assert 0 < share < 1
+    row = result.results.set_index(["asset_id", "option_id"]).loc[("KGQ-AC01", "capacitor")]
+    h = headline(result, select_scope(case, result, assets=["KGQ-AC01"], plan=False))
+    assert h.n_projects == 1
+    expected = share * row["bill_saving_per_yr"] + row["saving_maintenance_per_yr"]
+    assert abs(h.yearly_saving - expected) <= 1e-9 * max(1.0, abs(expected))

@@ -373,6 +373,17 @@ def yearly_saving(frame: pd.DataFrame) -> pd.Series:
     return frame["bill_saving_per_yr"] + frame["saving_maintenance_per_yr"]
 
 
+def plan_yearly_saving(result, frame: pd.DataFrame) -> pd.Series:
+    """Bill plus maintenance saving per year of each row as the plan counts it [currency/yr]: a reactive project
+    of the plan credited the share r of its bill saving (:func:`plan_credit_share`) counts r x its bill saving,
+    on the same basis as its plan NPV and the portfolio's flows; other rows their own saving."""
+    share = [plan_credit_share(result, a, o) if bool(p) else None
+             for a, o, p in zip(frame["asset_id"], frame["option_id"],
+                                frame["in_plan"] if "in_plan" in frame else [False] * len(frame))]
+    factor = np.array([1.0 if s is None else s for s in share], dtype=float)
+    return frame["bill_saving_per_yr"] * factor + frame["saving_maintenance_per_yr"]
+
+
 def headline(result, scope: Scope) -> Headline:
     """Return the executive summary's headline numbers for the recommended projects."""
     chosen = scope.chosen
@@ -381,7 +392,8 @@ def headline(result, scope: Scope) -> Headline:
     # the plan's NPV of each project at the plan's start (what the decision table shows, row by row)
     npv_start = float(chosen["plan_npv_at_start"].sum()) if len(chosen) else 0.0
     return Headline(n_projects=len(chosen), capital=float(chosen["capital"].sum()),
-                    yearly_saving=float(yearly_saving(chosen).sum()), npv=npv_start, payback_yr=payback,
+                    yearly_saving=float(plan_yearly_saving(result, chosen).sum()) if len(chosen) else 0.0,
+                    npv=npv_start, payback_yr=payback,
                     co2_t_per_yr=float(chosen["co2_avoided_t_per_yr"].sum()),
                     energy_saved_kwh_per_yr=float(chosen["energy_saved_kwh_per_yr"].sum()))
 

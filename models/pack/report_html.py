@@ -89,7 +89,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
 
     cards = [
         {"label": "Capital", "value": content.money(h.capital, cur), "note": counted(h.n_projects, "project")},
-        {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices"},
+        {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices, as the plan counts them"},
         {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
         {"label": "Payback", "value": content.years_text(h.payback_yr, horizon), "note": "simple, combined cash flow"},
         {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"at {a.grid_co2_kg_per_kwh:g} kg/kWh"},
