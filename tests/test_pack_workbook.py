@@ -499,3 +499,22 @@ def test_policy_ratings_in_the_cases_unit(small):
     assert cells[top + 1][:2] == ["From rating [hp]", "To rating [hp]"]
     first_kw = float(result.fleet_rules["min_rated_p_kw"].iloc[0])
     assert cells[top + 2][0] == pytest.approx(round(first_kw / 0.745699872, 2), abs=1e-9)
+
+
+def test_the_assumptions_sheet_says_which_cells_the_formulas_read(tmp_path):
+    # only the discount rate (and the budgets) drive the workbook's formulas; the sheet says so beside each
+    # assumption, so a reader does not change the horizon or an escalation and expect the NPVs to move
+    from openpyxl import load_workbook
+
+    from models.case import load_case
+    from models import scenario
+    from models.pack import write_pack
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
+    result = scenario.run(case, case.finance, with_risk=False)
+    paths = write_pack(case, result, tmp_path / "pack", assets=["HRW-P11"], plan=False)
+    book = load_workbook(next(p for p in paths if str(p).endswith(".xlsx")))
+    ws = book["Assumptions"]
+    live = {ws.cell(r, 1).value: ws.cell(r, 6).value for r in range(1, ws.max_row + 1) if ws.cell(r, 6).value}
+    assert live["discount_rate_frac"].startswith("yes")
+    assert live["horizon_yr"].startswith("no") and live["escalation_energy_frac"].startswith("no")

@@ -190,8 +190,12 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
         put(ws, row + 1 + k, 2, value)
     row += len(settings) + 2
 
-    _header(ws, row, ["Finance assumption", "Value", "Unit", "Meaning", "Same as the program default?"])
+    _header(ws, row, ["Finance assumption", "Value", "Unit", "Meaning", "Same as the program default?",
+                      "Live in this workbook?"])
     row += 1
+    # the cells the workbook's formulas read; the others record the run (its flows were computed with them)
+    live = {"discount_rate_frac": "yes: NPVs, discounted paybacks and the plan's checks recalculate"}
+    recorded = "no: a record of the run; change it in the case and run again"
     for item in content.finance_rows(result.assumptions):
         key, value = item["key"], item["value"]
         if key == "budget_per_yr":
@@ -202,6 +206,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
                 put_text(ws, row, 3, item["unit"])
                 put_text(ws, row, 4, item["meaning"])
                 put_text(ws, row, 5, "yes" if item["program_default"] else "no")
+                put_text(ws, row, 6, recorded)
                 row += 1
             for year, budget in enumerate(budgets):
                 put_text(ws, row, 1, f"budget_per_yr, plan year {year}")
@@ -209,6 +214,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
                 put_text(ws, row, 3, item["unit"])
                 put_text(ws, row, 4, item["meaning"])
                 put_text(ws, row, 5, "no")
+                put_text(ws, row, 6, "yes: the Plan sheet's capital against the budget")
                 refs[f"budget_{year}"] = _sheet_ref("Assumptions", 2, row)
                 row += 1
             continue
@@ -221,6 +227,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
         put_text(ws, row, 3, item["unit"])
         put_text(ws, row, 4, item["meaning"])
         put_text(ws, row, 5, "yes" if item["program_default"] else "no")
+        put_text(ws, row, 6, live.get(key, recorded))
         refs[key] = _sheet_ref("Assumptions", 2, row)
         row += 1
     row += 1
@@ -235,7 +242,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
     for text in content.CAUTIONS:
         put_text(ws, row, 1, text)
         row += 1
-    _widths(ws, {1: 34, 2: 22, 3: 14, 4: 50, 5: 16})
+    _widths(ws, {1: 34, 2: 22, 3: 14, 4: 50, 5: 16, 6: 40})
     return refs
 
 
@@ -729,7 +736,8 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
         f"Recommended projects: capital {content.money(h.capital, cur)}, yearly saving {content.money(h.yearly_saving, cur)}, "
         f"NPV at plan start {content.money(h.npv, cur)}, payback {content.years_text(h.payback_yr, result.assumptions.horizon_yr)}, "
         f"CO2 avoided {h.co2_t_per_yr:,.1f} t/yr.",
-        "All amounts in " + cur + "; discount rate, horizon and escalation on the Assumptions sheet.",
+        "All amounts in " + cur + "; every finance assumption is on the Assumptions sheet, whose last column says which "
+        "the formulas read (the discount rate and the budgets); the others record the run.",
     ]
     if s.invented:
         lines.insert(0, "INVENTED DEMO DATA: every name and number in this case is made up.")
