@@ -77,7 +77,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     from models.case import power_label, rating_in_unit
 
     unit = power_label(s.power_unit)  # motor ratings in the case's unit
-    print(f"  {len(case.assets)} assets, {rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.1f} {unit} installed, "
+    print(f"  {counted(len(case.assets), 'asset')}, {rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.1f} {unit} installed, "
           f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}; "
           f"rules of region {s.region} on the purchase date {s.purchase_date}")
     summary = fleet_summary(case)
@@ -357,14 +357,25 @@ def _print_run_summary(case, result) -> None:
     from models.case import power_label, rating_in_unit
 
     unit = power_label(case.settings.power_unit)  # motor ratings in the case's unit; meters and energy stay in kW
+    from models.plan import LOW_DATA_QUALITY_PCT, low_data_quality
+
     print(f"\nCase: {case.settings.name}")
-    print(f"  {len(case.assets)} assets ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} installed); "
-          f"best option differs from today's motor for {len(best)} of them")
-    print(f"  Plan under the budget: {len(plan)} projects, capital {chosen['capital'].sum():,.0f} {currency}, "
+    print(f"  {counted(len(case.assets), 'asset')} ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} "
+          f"installed); best option differs from today's motor for {len(best)} of them")
+    under = "under the budget" if len(result.assumptions.budget_per_yr) else "with no budget limit"
+    print(f"  Plan {under}: {counted(len(plan), 'project')}, capital {chosen['capital'].sum():,.0f} {currency}, "
           f"yearly saving {chosen['bill_saving_per_yr'].sum() + chosen['saving_maintenance_per_yr'].sum():,.0f} "
           f"{currency}/yr (bills {chosen['bill_saving_per_yr'].sum():,.0f}, maintenance "
           f"{chosen['saving_maintenance_per_yr'].sum():,.0f}), "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
+    low_n, low_share = low_data_quality(plan, dict(zip(case.assets["asset_id"], case.assets["data_quality_pct"])))
+    if low_n:
+        print(f"  Data quality: {counted(low_n, 'project')} of the plan, {100 * low_share:.0f} % of its NPV, rest on "
+              f"assets whose data-quality score is below {LOW_DATA_QUALITY_PCT:g} % (defaulted nameplate fields: "
+              "defaults.csv); confirm their nameplates before committing capital")
+    if "illustrative" in case.options and case.options["illustrative"].fillna(False).astype(bool).any():
+        print("  Capital: the options catalogue's prices are illustrative cost curves, not quotes; replace them with "
+              "quotes before committing capital")
     together = scenario.plan_bill_saving_per_yr(result.bills)
     if together is not None and len(plan):
         print(f"  The bill saving adds up each project priced alone; with the whole plan in place the sites' "

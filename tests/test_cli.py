@@ -470,6 +470,10 @@ def test_run_names_the_ten_best_options_by_their_catalogue_labels(tmp_path, caps
     # installed power in the summary; hand calculation from data/demo/assets.csv (test above): 8,081.2 kW plus
     # two of 50 hp (2 x 37.28 kW) is 8,155.8 kW
     assert "82 assets (8,156 kW installed)" in out
+    # the plan's cautions the dashboard and the pack give, on the command line too: the demo's plan rests mostly on
+    # assets with defaulted nameplates (models.plan.low_data_quality), and its catalogue prices are illustrative
+    assert "  Data quality: " in out and "rest on assets whose data-quality score is below 70 %" in out
+    assert "  Capital: the options catalogue's prices are illustrative cost curves, not quotes" in out
     table = out.split("Ten best options by NPV", 1)[1].split("Files written", 1)[0]
     assert "PM motor on a drive" in table and "pm_drive" not in table and "add_drive" not in table
 

@@ -42,7 +42,8 @@ def pdf_bytes(html_path: Path, executable_path: str | None = None) -> tuple[byte
         from playwright.sync_api import Error as PlaywrightError
         from playwright.sync_api import sync_playwright
     except ImportError:
-        return None, "PDF skipped: Playwright is not installed (pip install playwright)"
+        return None, ("PDF skipped: Playwright is not installed (pip install -e '.[test]' in the project, as for the "
+                      "browser tests)")
     try:
         asyncio.get_running_loop()
         return None, "PDF skipped: cannot drive the browser from inside a running asyncio loop"
