@@ -188,6 +188,10 @@ def _changed_pairs(p_site: np.ndarray, q_site: np.ndarray, applies: np.ndarray,
 
 @numba.njit(nogil=True, cache=True)
 def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - compiled
+    """The pass of :func:`_changed_pairs`: per asset and applying option, whether its kW or kVAr differs from
+    today's in some interval (the numpy rule's answer: max |difference| > 0, NaN counting as no difference),
+    reading a pair the book holds through its tables and stopping at its first difference. It compares, it
+    computes no new value; tested against the numpy rule."""
     n_s, n_o = applies.shape
     n_t = p.shape[2]
     out = np.zeros((n_s, n_o), dtype=np.bool_)

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 
 import casebuilder as cb
 from drivecase.cli import main
@@ -117,3 +117,33 @@ def test_bill_command_prints_months_by_line_item(capsys):
     assert "Site KGQ" in out and "2025-01" in out and "2025-12" in out and "2024-12" not in out
     assert "capacitor bank" in out and "qualified persons" in out
     assert "\n  year " in out and "line_item" not in out  # a yearly total row; months headed as such
+
+
+def test_changed_pairs_are_the_numpy_rule():
+    # the compiled pass of bill_savings._changed_pairs (no curve book; arrays by option, asset, interval) against its
+    # rule in plain numpy: an option that applies changes an asset when max |kW - today's kW| > 0 or
+    # max |kVAr - today's kVAr| > 0 over the intervals (a NaN difference makes the max NaN, which is not > 0)
+    from models.bill_savings import _changed_pairs
+
+    rng = np.random.default_rng(5)
+    n_s, n_o, n_t = 7, 5, 48
+    p = np.repeat(rng.uniform(0, 10, (1, n_s, n_t)), n_o, axis=0)
+    q = np.repeat(rng.uniform(-3, 3, (1, n_s, n_t)), n_o, axis=0)
+    p[2, 1, 17] += 0.5           # a kW change in one interval
+    q[3, 2, 40] -= 1e-9          # a tiny kVAr change
+    p[1, 3, 5] = np.nan          # NaN beside an otherwise unchanged row
+    p[4, 4, :] *= 0.9            # a kW change everywhere
+    q[4, 4, 9] = np.nan          # and a NaN in its kVAr
+    applies = rng.uniform(size=(n_s, n_o)) > 0.2
+    applies[:, 0] = True
+    applies[[1, 2, 4, 3], [2, 3, 4, 1]] = True
+    js, os_ = _changed_pairs(p, q, applies)
+    got = np.zeros((n_s, n_o), dtype=bool)
+    got[js, os_] = True
+    with np.errstate(invalid="ignore"):
+        dp = np.max(np.abs(p - p[:1]), axis=2).T   # (n_s, n_o)
+        dq = np.max(np.abs(q - q[:1]), axis=2).T
+    expected = applies & ((dp > 0) | (dq > 0))
+    expected[:, 0] = False
+    assert_array_equal(got, expected)
+    assert got[1, 2] and got[2, 3] and not got[3, 1] and got[4, 4]

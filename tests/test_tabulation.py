@@ -595,3 +595,16 @@ class TestRefine:
         assert tabulation.refine(g, np.array([0]), 4, 1.0) is None  # an infinite load
         assert tabulation.refine(g, np.array([1]), 3, 1.0) is None  # not a power of 2
         assert tabulation.refine(g, np.array([1]), 4, 1.0) is not None
+
+
+def test_interpolation_is_the_numpy_rule_bit_for_bit():
+    # the compiled pass of tabulation.interpolate against its rule written in plain numpy here:
+    # out[i, t] = base[i, cell[i, t]] + rise[i, cell[i, t]] * position[i, t]
+    rng = np.random.default_rng(11)
+    p = rng.uniform(0.0, 50.0, (6, 300))
+    p[p < 4.0] = 0.0
+    g = tabulation.locate(p, p > 0, 1.0, 17)
+    base, rise = tabulation.tables(np.sqrt(g.p_grid_kw) * 3.3 - 1.0)
+    expected = (np.take_along_axis(base, g.cell.astype(np.intp), axis=1)
+                + np.take_along_axis(rise, g.cell.astype(np.intp), axis=1) * g.position_frac)
+    assert_array_equal(tabulation.interpolate(g, base, rise), expected)
