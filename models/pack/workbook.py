@@ -182,6 +182,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
     _header(ws, row, ["Case setting", "Value"])
     settings = [("name", s.name), ("description", getattr(s, "description", "") or ""), ("currency", s.currency),
                 ("power unit shown", s.power_unit), ("time zone", s.time_zone), ("region (efficiency rules)", s.region),
+                ("purchase date (rules read on)", getattr(s, "purchase_date", "") or ""),
                 ("invented demo data", "yes" if s.invented else "no"),
                 ("analysis year", int(op.index[len(op.index) // 2].year)), ("interval [h]", float(op.interval_h)),
                 ("assets in the case", len(case.assets)), ("options in the catalogue", len(case.options))]
