@@ -142,6 +142,13 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
     return None
 
 
+def _close_bars(*bars) -> None:
+    """Close the progress bars there are (before a message, so the message is the last line)."""
+    for bar in bars:
+        if bar is not None:
+            bar.close()
+
+
 def _write_failed(command: str, out: str, exc: OSError) -> int:
     """Say that writing the results failed, in one line, and return the exit code."""
     where = getattr(exc, "filename", None) or out
@@ -263,15 +270,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     if problem:
         print(problem, file=sys.stderr)
         return 2
-    case = _load_or_report(args.case)
-    if case is None:
-        return 1
-    assumptions = case.finance
+    # the command line's own mistakes first, before the case is read
     if args.seed is not None and args.seed < 0:
         print("drivecase run: --seed must be a whole number >= 0", file=sys.stderr)
         return 2
-    if args.seed is not None:
-        assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
     if not (args.plan_gap >= 0 and args.plan_seconds > 0):
         print("drivecase run: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
         return 2
@@ -279,6 +281,12 @@ def cmd_run(args: argparse.Namespace) -> int:
         print("drivecase run: --scheduler is the address of a Dask scheduler; add --engine dask to use it",
               file=sys.stderr)
         return 2
+    case = _load_or_report(args.case)
+    if case is None:
+        return 1
+    assumptions = case.finance
+    if args.seed is not None:
+        assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
     if args.engine == "dask":
         try:  # (models.distributed imports Dask only when a run starts: ask for it here)
             import dask  # noqa: F401
@@ -317,11 +325,18 @@ def cmd_run(args: argparse.Namespace) -> int:
             result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk,
                                   plan_settings=plan_settings)
     except ValueError as exc:
-        bar.close()
+        _close_bars(bar, site_bar)
         print(f"drivecase run: {exc}", file=sys.stderr)
         return 1
+    except ImportError as exc:  # raised on a Dask worker whose Python lacks drivecase
+        _close_bars(bar, site_bar)
+        if args.engine != "dask":
+            raise
+        print(f"drivecase run: a Dask worker could not load drivecase's code ({exc}); install drivecase with its "
+              "'scale' extra, at this version, in the Python every worker runs (docs/scale.md)", file=sys.stderr)
+        return 1
     except (OSError, TimeoutError) as exc:  # the Dask scheduler could not be reached
-        bar.close()
+        _close_bars(bar, site_bar)
         if args.engine != "dask":
             raise
         where = args.scheduler or "the local cluster"
@@ -554,6 +569,9 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return int(args.func(args))
+    except KeyboardInterrupt:  # Ctrl+C: one line, no traceback; nothing half-written is left (atomic writes)
+        print(f"\n{' '.join(filter(None, ('drivecase', getattr(args, 'command', None))))}: interrupted", file=sys.stderr)
+        return 130
     except BrokenPipeError:  # the reader of the output (e.g. `| head`) stopped reading: not an error of ours
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())  # no second error when Python flushes stdout at exit

@@ -150,11 +150,74 @@ def _wait_for_a_worker(client) -> None:
                            f"again") from None
 
 
+#: Seconds to wait for a TCP connection to a scheduler, and then for its first bytes (a Dask scheduler speaks
+#: first on a new connection: its handshake).
+PROBE_CONNECT_S = 10.0
+PROBE_GREETING_S = 5.0
+#: The address schemes a scheduler is reached by (the Dask dashboard's http address is not one); only tcp and
+#: tls addresses are probed before connecting.
+SCHEDULER_SCHEMES = ("tcp", "tls", "inproc", "ucx", "ws", "wss")
+
+
+def check_scheduler_address(address: str, connect_s: float = PROBE_CONNECT_S,
+                            greeting_s: float = PROBE_GREETING_S) -> None:
+    """Raise ValueError with a plain message when ``address`` is not a Dask scheduler one can reach.
+
+    The address is ``tcp://HOST:PORT`` (or ``HOST:PORT``, or ``tls://``). A TCP address is probed once: the
+    connection must open within ``connect_s`` seconds and, as a Dask scheduler greets a new connection
+    first, send bytes within ``greeting_s`` seconds; a server that stays silent (the dashboard's web port,
+    8787 by default) is not a scheduler. Without this a client can wait on such a port indefinitely.
+    """
+    import socket
+    from urllib.parse import urlsplit
+
+    text = str(address).strip()
+    form = "give --scheduler as tcp://HOST:PORT (the scheduler's port, 8786 by default)"
+    scheme, rest = (text.split("://", 1) + [""])[:2] if "://" in text else ("tcp", text)
+    if scheme in ("http", "https"):
+        raise ValueError(f"{text} is a web address, such as the Dask dashboard's, not the scheduler's; {form}")
+    if scheme not in SCHEDULER_SCHEMES:
+        raise ValueError(f"{text}: unknown address scheme '{scheme}'; {form}")
+    if scheme not in ("tcp", "tls"):
+        return  # in-process and other transports: no socket to probe
+    parts = urlsplit(f"//{rest}")
+    try:
+        host, port = parts.hostname, parts.port
+    except ValueError:
+        host, port = None, None
+    if not host or port is None or parts.path not in ("", "/"):
+        raise ValueError(f"{text} is not a scheduler address; {form}")
+    try:
+        sock = socket.create_connection((host, port), timeout=connect_s)
+    except socket.gaierror:
+        raise ValueError(f"host '{host}' of {text} is not found (check the name, or give its IP address)") from None
+    except ConnectionRefusedError:
+        raise ValueError(f"nothing listens at {host}:{port}: is the scheduler started (dask scheduler) and is it "
+                         "its port?") from None
+    except (TimeoutError, OSError) as exc:
+        raise ValueError(f"could not connect to {host}:{port} within {connect_s:g} s ({exc.__class__.__name__}); "
+                         "check the address and any firewall between here and the scheduler") from None
+    try:
+        if scheme == "tcp":
+            sock.settimeout(greeting_s)
+            try:
+                greeting = sock.recv(1)
+            except (TimeoutError, OSError):
+                greeting = b""
+            if not greeting:
+                raise ValueError(f"{host}:{port} answers but is not a Dask scheduler (the dashboard's port? the "
+                                 f"scheduler's is 8786 by default); {form}")
+    finally:
+        sock.close()
+
+
 def _client(scheduler: str | None, n_workers: int, processes: bool):
-    """Return (client, cluster or None): a client of the given scheduler, or of a new local cluster."""
+    """Return (client, cluster or None): a client of the given scheduler (checked first,
+    :func:`check_scheduler_address`), or of a new local cluster."""
     from distributed import Client, LocalCluster
 
     if scheduler:
+        check_scheduler_address(scheduler)
         return Client(scheduler), None
     cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes, dashboard_address=":0",
                            silence_logs=logging.ERROR)

@@ -528,3 +528,85 @@ def test_a_read_only_output_folder_is_refused_before_the_run(tmp_path, capsys):
     finally:
         out.chmod(0o755)
     assert "cannot write into" in capsys.readouterr().err
+
+
+def test_a_scheduler_address_that_is_not_one_gets_a_plain_message_without_waiting(tmp_path, capsys):
+    # the Dask dashboard's web address, a malformed one, a port where nothing listens and a port that answers but
+    # is not a scheduler (a silent server, as the dashboard's port is to a scheduler's client): each a one-line
+    # message naming the expected form, in seconds rather than a wait without end
+    import socket
+    import time
+
+    pytest.importorskip("distributed")
+    from test_scenario import _one_asset_case
+
+    _one_asset_case(tmp_path / "case")
+    silent = socket.socket()
+    silent.bind(("127.0.0.1", 0))
+    silent.listen()
+    port = silent.getsockname()[1]
+    free = socket.socket()
+    free.bind(("127.0.0.1", 0))
+    closed_port = free.getsockname()[1]
+    free.close()
+    cases = {"http://127.0.0.1:8787": "is a web address, such as the Dask dashboard's",
+             "foo bar": "is not a scheduler address",
+             f"tcp://127.0.0.1:{closed_port}": "nothing listens at",
+             f"tcp://127.0.0.1:{port}": "answers but is not a Dask scheduler"}
+    try:
+        for address, said in cases.items():
+            start = time.monotonic()
+            rc = main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "o"), "--no-risk", "--quiet",
+                       "--engine", "dask", "--scheduler", address])
+            err = capsys.readouterr().err
+            assert rc == 1 and said in err, err
+            assert "Traceback" not in err
+            assert time.monotonic() - start < 30.0
+    finally:
+        silent.close()
+
+
+def test_the_commands_own_mistakes_come_before_the_case_is_read(tmp_path, capsys):
+    # --scheduler without --engine dask is a mistake of the command line: said first, not after the case's warnings
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--scheduler", "tcp://127.0.0.1:8786"]) == 2
+    captured = capsys.readouterr()
+    assert "add --engine dask" in captured.err and "Case " not in captured.err + captured.out
+
+
+def test_ctrl_c_ends_a_command_with_one_line(monkeypatch, capsys):
+    from drivecase import cli
+
+    def interrupted(args):
+        raise KeyboardInterrupt
+
+    parser_default = cli.build_parser
+    monkeypatch.setattr(cli, "build_parser", lambda: _with_check(parser_default(), interrupted))
+    assert main(["check", str(DEMO)]) == 130
+    err = capsys.readouterr().err
+    assert err.strip() == "drivecase check: interrupted"
+
+
+def _with_check(parser, func):
+    """The parser with the check command's function replaced (the parser keeps the function it was built with)."""
+    for action in parser._subparsers._group_actions:
+        action.choices["check"].set_defaults(func=func)
+    return parser
+
+
+def test_a_worker_without_drivecase_gives_a_message(tmp_path, capsys, monkeypatch):
+    # a Dask worker whose Python lacks drivecase fails to unpickle the site's task with ModuleNotFoundError, which
+    # the client re-raises; the command says what to install where, without a traceback
+    pytest.importorskip("distributed")
+    from models import distributed as engine
+    from test_scenario import _one_asset_case
+
+    def no_package(*args, **kwargs):
+        raise ModuleNotFoundError("No module named 'models'")
+
+    monkeypatch.setattr(engine, "run_distributed", no_package)
+    _one_asset_case(tmp_path / "case")
+    assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "o"), "--no-risk", "--quiet",
+                 "--engine", "dask"]) == 1
+    err = capsys.readouterr().err
+    assert "a Dask worker could not load drivecase's code (No module named 'models')" in err
+    assert "in the Python every worker runs" in err and "Traceback" not in err

@@ -217,3 +217,13 @@ def test_workers_that_join_after_the_start_take_the_sites(fleet, fleet_local):
         finally:
             timer.join()
     _assert_same_files(fleet_local, remote)
+
+
+def test_a_tcp_scheduler_passes_the_address_check():
+    # a real scheduler greets a new connection first (Dask's comm handshake), so the check before connecting lets
+    # it through at once; a silent port is refused (tests/test_cli.py)
+    from models.distributed import check_scheduler_address
+
+    with distributed.LocalCluster(n_workers=1, processes=False, protocol="tcp://", dashboard_address=":0") as local:
+        check_scheduler_address(local.scheduler_address)
+        check_scheduler_address(local.scheduler_address.replace("tcp://", ""))  # HOST:PORT means tcp
