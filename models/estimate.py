@@ -160,7 +160,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
     peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
-    kept = ("every option's hourly (per-interval) power in memory" if dense else
+    kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "
             "(the rest is recomputed site by site where a plan needs it)" if books else
             "today's motors' per-interval power in memory (each option's is recomputed site by site where a plan "

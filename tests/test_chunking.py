@@ -203,10 +203,10 @@ class TestEstimate:
         local, dask = estimate.estimate_run(fleet, threads=1), estimate.estimate_run(fleet, workers=2)
         n_a, n_t = len(fleet.assets), len(case_index(fleet))
         books = estimate.BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
-        assert "curve books" in local.note and "curve books" in dask.note
+        assert "compact table per motor" in local.note and "compact table per motor" in dask.note
         monkeypatch.setattr(estimate, "KEPT_BOOKS_BUDGET_BYTES", 0)
         none = estimate.estimate_run(fleet, threads=1)
-        assert "curve books" not in none.note
+        assert "compact table per motor" not in none.note
         # without books the plan's rows are kept instead (at most today's power, one row per asset)
         assert books - interval_bytes(n_a, 1, n_t) - 2 <= local.peak_bytes - none.peak_bytes <= books + 2
 
