@@ -224,6 +224,13 @@ def test_a_tcp_scheduler_passes_the_address_check():
     # it through at once; a silent port is refused (tests/test_cli.py)
     from models.distributed import check_scheduler_address
 
+    import socket
+
     with distributed.LocalCluster(n_workers=1, processes=False, protocol="tcp://", dashboard_address=":0") as local:
-        check_scheduler_address(local.scheduler_address)
-        check_scheduler_address(local.scheduler_address.replace("tcp://", ""))  # HOST:PORT means tcp
+        assert check_scheduler_address(local.scheduler_address) is None
+        assert check_scheduler_address(local.scheduler_address.replace("tcp://", "")) is None  # HOST:PORT means tcp
+    with socket.socket() as silent:  # a port that accepts but never speaks first is refused
+        silent.bind(("127.0.0.1", 0))
+        silent.listen()
+        with pytest.raises(ValueError, match="answers but is not a Dask scheduler"):
+            check_scheduler_address(f"tcp://127.0.0.1:{silent.getsockname()[1]}", greeting_s=0.5)

@@ -71,16 +71,16 @@ class TestSyncSpeed:
 
 
 class TestPowerFlow:
-    """Example 3c (Example 1 of a published lecture deck, scribd "Jawaban Soal Motor Induksi") and constructed
+    """Example 3c (Example 1 of a published set of solved problems, "Jawaban Soal Motor Induksi") and constructed
     check 3e; working in docs/derivations/induction-power-flow.md.
     Tolerance 0.5 % relative for textbook values (rounded intermediates), 1e-9 for exact arithmetic."""
 
     def test_example_3c(self):
         s = slip_from_power_flow(27.0, 25.0)
-        # published: example 3c (lecture deck): s = 0.0741 (rounded to 4 digits)
+        # published: example 3c (solved problems): s = 0.0741 (rounded to 4 digits)
         assert_allclose(s, 0.0741, atol=5e-5)
         n = sync_speed_rpm(60.0, 2) * (1.0 - s)
-        # published: example 3c (lecture deck): n = 3333 rpm
+        # published: example 3c (solved problems): n = 3333 rpm
         assert_allclose(n, 3333.0, rtol=5e-3)
         # published: example 3c: P_RCL = 2.0 kW
         assert_allclose(rotor_copper_loss_kw(27.0, s), 2.0, rtol=1e-9)
