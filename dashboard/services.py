@@ -70,7 +70,8 @@ BUDGET_YEARS = 6
 ROOT_TOML = ("case.toml", "finance.toml")
 
 _SESSION_ID = re.compile(r"^[0-9a-f]{32}$")
-_GROUPED = re.compile(r"^\d{1,3}(,\d{3})+(\.\d+)?$")
+#: Digits grouped by thousands with commas ("1,000" or "1,000.5"), as a form's number fields take them.
+_GROUPED = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
 _SAFE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ._()+-]{0,119}$")
 
 
@@ -806,6 +807,37 @@ def assumption_form(assumptions) -> dict:
 MAX_BUDGET_PER_YR = 1e12
 
 
+def typed_number(text, percent: bool = False):
+    """What a finance field holds, as the form's check takes it: a float, None when blank, else the text as
+    typed (then refused as not a number, in the form's words, by :func:`edit_assumptions` or :func:`parse_budget`).
+
+    Spaces (also thin and no-break ones), underscores and apostrophes between digits are dropped and commas
+    that group thousands ("1,000") are dropped; a percent field may end in "%"
+    ("8 %"). A number as such (a callback called directly) is taken as it is.
+
+    Parameters
+    ----------
+    text : str, float, int or None
+        The field's value.
+    percent : bool
+        True for a field in percent [%] or [%/yr].
+    """
+    if text is None or (isinstance(text, (int, float)) and not isinstance(text, bool)):
+        return None if text is None else float(text)
+    typed = str(text).strip()
+    if not typed:
+        return None
+    cleaned = "".join(c for c in typed if c not in " _'\u00a0\u2009\u202f")
+    if percent and cleaned.endswith("%"):
+        cleaned = cleaned[:-1]
+    if _GROUPED.match(cleaned):
+        cleaned = cleaned.replace(",", "")
+    try:
+        return float(cleaned)
+    except ValueError:
+        return typed
+
+
 def budget_field(k: int, currency: str = "") -> str:
     """What the page calls the budget field of plan year ``k`` in a message (its label, with the unit)."""
     return f"Year {k} budget" + (f" [{currency}]" if currency else "")
@@ -825,12 +857,8 @@ def parse_budget(values: list, currency: str = "") -> tuple[list[float] | None, 
             cleaned.append(None)
             continue
         field_name, typed = budget_field(k, currency), str(v).strip()
-        text = typed.replace(" ", "").replace("_", "").replace("\u00a0", "").replace("'", "")
-        if _GROUPED.match(text):
-            text = text.replace(",", "")
-        try:
-            number = float(text)
-        except (TypeError, ValueError):
+        number = typed_number(v)
+        if isinstance(number, str):
             return None, f"{field_name}: '{typed}' is not a number (write it like 250000 or 250,000)."
         if not np.isfinite(number):
             return None, (f"{field_name}: '{typed}' is not an amount; the budget must be a finite amount "

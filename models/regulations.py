@@ -17,6 +17,12 @@ from models import io
 _CLASS_RANK = {"IE1": 1, "IE2": 2, "IE3": 3, "IE4": 4, "IE5": 5}
 
 
+def _covered(rule, p_kw: np.ndarray, poles: np.ndarray) -> np.ndarray:
+    """Which motors (ratings [kW], poles) a row of the rule table covers."""
+    allowed_poles = [float(x) for x in str(rule.poles).split("|")]
+    return (p_kw >= rule.min_rated_p_kw - 1e-9) & (p_kw <= rule.max_rated_p_kw + 1e-9) & np.isin(poles, allowed_poles)
+
+
 def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) -> np.ndarray:
     """Return the lowest efficiency class a new motor may have, per motor.
 
@@ -57,9 +63,7 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) ->
     p, n = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), np.asarray(poles, dtype=float))
     rank = np.zeros(p.shape, dtype=int)
     for row in rules.itertuples(index=False):
-        allowed_poles = [float(x) for x in str(row.poles).split("|")]
-        covered = (p >= row.min_rated_p_kw - 1e-9) & (p <= row.max_rated_p_kw + 1e-9) & np.isin(n, allowed_poles)
-        rank = np.where(covered, np.maximum(rank, _CLASS_RANK[row.min_class]), rank)
+        rank = np.where(_covered(row, p, n), np.maximum(rank, _CLASS_RANK[row.min_class]), rank)
     names = np.array(["none", "IE1", "IE2", "IE3", "IE4", "IE5"], dtype=object)
     return names[rank]
 
@@ -88,9 +92,7 @@ def rules_taking_effect(region: str, rated_p_kw, poles, after_date: str | None =
     p, n = np.broadcast_arrays(np.asarray(rated_p_kw, dtype=float), np.asarray(poles, dtype=float))
     out = []
     for row in later.itertuples(index=False):
-        allowed_poles = [float(x) for x in str(row.poles).split("|")]
-        covered = (p >= row.min_rated_p_kw - 1e-9) & (p <= row.max_rated_p_kw + 1e-9) & np.isin(n, allowed_poles)
-        raised = int(np.sum(covered & (_CLASS_RANK[row.min_class] > now)))
+        raised = int(np.sum(_covered(row, p, n) & (_CLASS_RANK[row.min_class] > now)))
         if raised:
             out.append({"effective_from": row.effective_from, "min_class": row.min_class,
                         "min_rated_p_kw": float(row.min_rated_p_kw), "max_rated_p_kw": float(row.max_rated_p_kw),

@@ -186,7 +186,7 @@ def test_assumption_fields_read_numbers_as_typed(engine):
     stored, message, _ = inputs.edit("six", "1", "15 %", "100", "100", *DEMO_BUDGET, None, None)
     assert stored is no_update
     assert message == "Not applied: Discount rate: enter a number. Horizon: enter a number. The other values are applied."
-    assert inputs.typed_number("8,5", percent=True) == "8,5"  # a decimal comma is not guessed at: refused
+    assert services.typed_number("8,5", percent=True) == "8,5"  # a decimal comma is not guessed at: refused
     assert inputs.number_text(1.5) == "1.5" and inputs.number_text(15) == "15" and inputs.number_text(None) is None
 
 

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import re
-
 import dash
 from dash import Input, Output, State, callback, dcc, html, no_update
 
@@ -38,7 +36,7 @@ SAVE_DOWNLOAD = "inputs-save-download"
 
 
 def _number_field(component_id: str) -> dcc.Input:
-    """A finance assumption's field: a text field read by :func:`typed_number`.
+    """A finance assumption's field: a text field read by :func:`dashboard.services.typed_number`.
 
     Not a number input: Dash 4's number input does not report a field emptied after a callback filled it (the
     assumptions would stay with no message), as for the budget fields (``components.budget_values``).
@@ -148,44 +146,11 @@ def template(_clicks):
 #: The form's fields in the order the callbacks take them, and whether each is in percent.
 NUMBER_FIELDS = (("discount_rate_pct", True), ("escalation_energy_pct", True), ("horizon_yr", False),
                  ("energy_price_level_pct", True), ("capital_cost_level_pct", True))
-#: Digits grouped by thousands with commas ("1,000" or "1,000.5"), as the budget fields take them.
-_GROUPED = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
 
 
 def number_text(value) -> str | None:
     """A finance assumption as its text field shows it (``8``, ``1.5``, ``15``); None = blank."""
     return None if value is None else f"{float(value):.12g}"
-
-
-def typed_number(text, percent: bool = False):
-    """What a finance field holds, as the form's check takes it: a float, None when blank, else the text as
-    typed (then refused as not a number, in the form's words, by ``services.edit_assumptions``).
-
-    Spaces (also thin and no-break ones), underscores and apostrophes between digits are dropped and commas
-    that group thousands ("1,000") are read as the budget fields read them; a percent field may end in "%"
-    ("8 %"). A number as such (a callback called directly) is taken as it is.
-
-    Parameters
-    ----------
-    text : str, float, int or None
-        The field's value.
-    percent : bool
-        True for a field in percent [%] or [%/yr].
-    """
-    if text is None or (isinstance(text, (int, float)) and not isinstance(text, bool)):
-        return None if text is None else float(text)
-    typed = str(text).strip()
-    if not typed:
-        return None
-    cleaned = "".join(c for c in typed if c not in " _'\u00a0\u2009\u202f")
-    if percent and cleaned.endswith("%"):
-        cleaned = cleaned[:-1]
-    if _GROUPED.match(cleaned):
-        cleaned = cleaned.replace(",", "")
-    try:
-        return float(cleaned)
-    except ValueError:
-        return typed
 
 
 def _form_values(assumptions) -> tuple:
@@ -223,7 +188,7 @@ def _parse_form(discount, escalation, horizon, price_level, capital_level, *rest
     view = services.view(session, edits)
     budget, budget_problem = services.parse_budget(budget_values, view.currency)
     # a blank field is None, and refused by name ("Discount rate: enter a number")
-    fields = {name: typed_number(value, percent) for (name, percent), value
+    fields = {name: services.typed_number(value, percent) for (name, percent), value
               in zip(NUMBER_FIELDS, (discount, escalation, horizon, price_level, capital_level))}
     if not budget_problem:
         fields["budget_per_yr"] = budget
