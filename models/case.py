@@ -22,7 +22,7 @@ import pandas as pd
 from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
-from models.problems import CaseError, Problem, error, has_errors, ordered, shown_value, warning
+from models.problems import CaseError, Problem, did_you_mean, error, has_errors, ordered, shown_value, warning
 from models.wording import counted
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
@@ -581,9 +581,8 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
     known = set(SETTING_KEYS)
     for key in (given if isinstance(given, dict) else {}):
         if key not in known:
-            close = difflib.get_close_matches(str(key), sorted(known - set(data)), n=1, cutoff=0.7)
             problems.append(warning(source, None, key, given[key], f"unknown setting '{key}' was ignored",
-                                    (f"did you mean '{close[0]}'? " if close else "")
+                                    did_you_mean(key, sorted(known - set(data)))
                                     + f"known settings: {', '.join(sorted(known))}"))
     twice = [k for k in top if isinstance(given, dict) and k in given]
     read = [k for k in top if k not in twice]
@@ -605,9 +604,8 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
             problems.append(warning(source, None, key, None, f"unknown table [{key}] was ignored",
                                     "case.toml holds a [case] table only"))
         else:
-            close = difflib.get_close_matches(str(key), sorted(known - set(data)), n=1, cutoff=0.7)
             problems.append(warning(source, None, key, value, f"unknown key '{key}' was ignored",
-                                    (f"did you mean '{close[0]}'? " if close else "")
+                                    did_you_mean(key, sorted(known - set(data)))
                                     + f"case.toml holds the settings {', '.join(SETTING_KEYS)}, under a [case] line"))
     currency = str(data.get("currency", "EUR")).strip().upper()
     if not re.fullmatch(r"[A-Z]{3}", currency):
@@ -1412,8 +1410,7 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
             checker.err(i, "tariff_file", name, "the tariff file named here could not be read (see its own problems)",
                         "fix the tariff file first")
         elif tariffs_expected and name not in tariffs:
-            close = difflib.get_close_matches(str(name), known, n=1, cutoff=0.6)
-            hint = (f"did you mean '{close[0]}'? " if close else "") + (
+            hint = did_you_mean(name, known, cutoff=0.6) + (
                 f"the case's tariffs are: {', '.join(known)}" if known else
                 "put the file in the tariffs/ folder (or a 'tariff <name>' sheet)")
             checker.err(i, "tariff_file", name, "tariff file not found in the case's tariffs", hint)

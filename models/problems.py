@@ -82,6 +82,23 @@ def warning(file: str, row: int | None, column: str | None, value: object, rule:
     return Problem("warning", file, row, column, value, rule, hint)
 
 
+def did_you_mean(word: object, choices: Iterable[str], cutoff: float = 0.7) -> str:
+    """The start of a hint naming the closest of ``choices`` to ``word`` ("did you mean 'x'? "), or "" when
+    none is close enough (:func:`difflib.get_close_matches`, similarity >= ``cutoff``).
+
+    Examples
+    --------
+    >>> did_you_mean("curency", ["currency", "region"])
+    "did you mean 'currency'? "
+    >>> did_you_mean("colour", ["currency", "region"])
+    ''
+    """
+    import difflib
+
+    close = difflib.get_close_matches(str(word), list(choices), n=1, cutoff=cutoff)
+    return f"did you mean '{close[0]}'? " if close else ""
+
+
 def shown_value(value: object) -> str:
     """A value as a message shows it: text quoted, whole numbers without '.0', lists in brackets.
 

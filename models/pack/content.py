@@ -131,6 +131,11 @@ def keep_option_ids(result) -> pd.Series:
     return result.results.groupby("asset_id", sort=False)["option_id"].first()
 
 
+def has_budget(result) -> bool:
+    """Whether the run's plan had a capital limit (an empty ``budget_per_yr`` is none)."""
+    return bool(len(getattr(result.assumptions, "budget_per_yr", ()) or ()))
+
+
 def select_scope(case, result, assets: list[str] | None = None, plan: bool = True) -> Scope:
     """Choose what a pack covers: given assets (all their options), the exact plan's projects, or both.
 
@@ -174,7 +179,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                               result.plan["npv_at_plan_start"].astype(float)))
     status = result.plan_status or {}
     taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))  # value taken by the rest of the plan
-    has_budget = bool(len(getattr(result.assumptions, "budget_per_yr", ()) or ()))  # empty: no capital limit
+    budgeted = has_budget(result)
     in_scope = set(wanted) | set(plan_rows["asset_id"])
     asset_ids = tuple(a for a in known if a in in_scope)
 
@@ -199,7 +204,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                 why = (f" (its highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
                        "rest of the plan at this site already takes)")
                 short_why = "top NPV option's value taken by the rest of the plan"
-            elif not has_budget:
+            elif not budgeted:
                 why = (f" (its highest-NPV option priced alone, {top['label']}, adds less than that beside the rest of "
                        "the plan: projects at one site share its reactive charges and demand peaks)")
                 short_why = "top NPV option shares its saving with the rest of the plan"
@@ -210,7 +215,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
             else:
                 why, short_why = (" (the plan trades some NPV for capital that fits the budget)",
                                   "fits the budget better than the top NPV")
-            reason = (f"chosen by the {'budget-constrained ' if has_budget else ''}fleet plan for plan year {start}"
+            reason = (f"chosen by the {'budget-constrained ' if budgeted else ''}fleet plan for plan year {start}"
                       + why)
             short = f"plan year {start}; " + short_why
             pick["in_plan"], pick["plan_start_yr"] = True, start
@@ -232,7 +237,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                           f"highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
                           "rest of the plan at this site already takes)")
                 short = "highest NPV the plan leaves it; outside the plan"
-            elif float(pick["npv"]) > 0 and not has_budget:
+            elif float(pick["npv"]) > 0 and not budgeted:
                 reason = ("highest NPV of its options (not in the fleet plan: beside the rest of the plan at this "
                           "site it adds less than priced alone)")
                 short = "highest NPV alone; outside the plan"

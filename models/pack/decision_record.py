@@ -127,7 +127,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
             note = ""
             if float(o["npv"]) > own_npv:
-                budget = bool(len(getattr(result.assumptions, "budget_per_yr", ()) or ()))
+                budget = content.has_budget(result)
                 note = ("; its value priced alone is already taken by the rest of the plan at this site"
                         if f"{asset_id}/{o['option_id']}" in taken else
                         "; the plan prefers the option above for the budget or beside the rest of the plan at this site"
