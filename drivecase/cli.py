@@ -347,7 +347,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     if site_bar is not None:
         site_bar.close()
     try:
-        written = write_run(result, args.out)
+        written = write_run(result, args.out, case.settings)
     except OSError as exc:
         return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)

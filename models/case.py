@@ -530,8 +530,8 @@ def _range_hint(name: str, value: float) -> str:
         return "is this in W rather than kW? divide by 1000"
     if name.endswith("_v_v") and 0 < value < 100:
         return "is this in kV rather than V? multiply by 1000"
-    if name.endswith("_pct") and 0 < value <= 1.25 and name != "rated_efficiency_pct":
-        return "percent columns take 0-100; was a fraction entered?"
+    if name.endswith("_pct") and 0 < value <= (1.0 if name == "rated_efficiency_pct" else 1.25):
+        return f"percent columns take 0-100; was a fraction entered? {value:g} as a fraction is {value * 100:.4g} %"
     if name.endswith("_pct") and value < 0:
         return "percent columns take 0-100"
     if name.startswith("rated_p") and value <= 0:

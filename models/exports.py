@@ -21,6 +21,8 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 #: The files of a run, in the order they are written (documented in docs/outputs.md).
 RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank_order.csv", "risk.csv",
              "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv")
+#: The file saying what a run was computed with (:func:`run_settings`), written beside :data:`RUN_FILES`.
+RUN_SETTINGS_FILE = "run_settings.csv"
 
 
 def neutralise_text(value: object) -> object:
@@ -204,8 +206,12 @@ def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
     return rows
 
 
-def run_tables(result) -> dict[str, pd.DataFrame]:
-    """Return every table of a run, by file name (see :data:`RUN_FILES`)."""
+def run_tables(result, settings=None) -> dict[str, pd.DataFrame]:
+    """Return every table of a run, by file name (see :data:`RUN_FILES`).
+
+    With the case's ``settings`` (:class:`models.case.CaseSettings`), :data:`RUN_SETTINGS_FILE` is added
+    (:func:`run_settings`).
+    """
     results = result.results.copy()
     for column in ("irr_frac", "mirr_frac", "airr_frac", "simple_payback_yr", "discounted_payback_yr",
                    "abatement_cost_per_t", "cost_of_saved_energy_per_mwh"):
@@ -234,13 +240,75 @@ def run_tables(result) -> dict[str, pd.DataFrame]:
     for name, columns in EMPTY_COLUMNS.items():
         if tables[name].empty and not len(tables[name].columns):
             tables[name] = pd.DataFrame(columns=columns)
+    if settings is not None:
+        tables[RUN_SETTINGS_FILE] = run_settings(result, settings)
     return tables
 
 
-def write_run(result, out_dir: str | Path) -> list[Path]:
-    """Write every result table of a run into ``out_dir`` (created if needed); return the paths."""
+def _setting_text(value: object) -> str:
+    """One setting's value as written in ``run_settings.csv``: numbers as numbers, lists joined by ``;``."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (tuple, list)):
+        return ";".join(_setting_text(v) for v in value)
+    if isinstance(value, float):
+        return "" if np.isinf(value) else f"{value:.10g}"
+    return str(value)
+
+
+def run_settings(result, settings) -> pd.DataFrame:
+    """Return what a run was computed with: the case's settings, the finance assumptions and the plan's.
+
+    One row per setting (``setting``, ``value``, ``meaning``), so that a result folder says on its own
+    which rules date, region, discount rate, seed and plan tolerance its numbers rest on.
+
+    Parameters
+    ----------
+    result : models.scenario.ScenarioResult
+        The run.
+    settings : models.case.CaseSettings
+        The case's settings, as the run used them (``purchase_date`` filled in with the day of the run
+        when the case left it blank).
+    """
+    from dataclasses import fields
+
+    from models import __version__
+
+    rows = [("drivecase_version", __version__, "version of the program that wrote these files"),
+            ("case_name", settings.name, "the case's name"),
+            ("invented", settings.invented, "true when the case is an invented scenario"),
+            ("region", settings.region, "whose minimum-efficiency rules decide which new motors may be bought"),
+            ("purchase_date", settings.purchase_date, "the day those rules are read on (the day of the run when the case gives none)"),
+            ("currency", settings.currency, "currency of every money column"),
+            ("power_unit", settings.power_unit, "power unit the case displays (result files are in kW)"),
+            ("time_zone", settings.time_zone, "time zone of the load profiles and tariff periods")]
+    assumptions = result.assumptions
+    for f in fields(assumptions):
+        value = getattr(assumptions, f.name)
+        blank = isinstance(value, float) and np.isinf(value)
+        rows.append((f"finance.{f.name}", value,
+                     "finance assumption (docs/finance.md)" + ("; blank: no limit" if blank else "")))
+    plan = result.plan_status or {}
+    plan_settings = plan.get("settings")
+    if plan_settings is not None:
+        rows.append(("plan.gap_asked_frac", plan_settings.gap_frac, "relative gap the exact plan was asked to prove"))
+        rows.append(("plan.time_limit_s", plan_settings.time_limit_s, "time the exact plan's solver was given [s]"))
+    if "status" in plan:
+        rows.append(("plan.status", plan["status"], "how the exact plan's solve ended"))
+    if "gap_frac" in plan:
+        rows.append(("plan.gap_proven_frac", plan["gap_frac"], "proven gap of the exact plan to the best possible NPV"))
+    return pd.DataFrame([(name, _setting_text(value), meaning) for name, value, meaning in rows],
+                        columns=["setting", "value", "meaning"])
+
+
+def write_run(result, out_dir: str | Path, settings=None) -> list[Path]:
+    """Write every result table of a run into ``out_dir`` (created if needed); return the paths.
+
+    With the case's ``settings`` (:class:`models.case.CaseSettings`), :data:`RUN_SETTINGS_FILE` is written
+    too (:func:`run_settings`).
+    """
     out = Path(out_dir)
     written = []
-    for name, frame in run_tables(result).items():
+    for name, frame in run_tables(result, settings).items():
         written.append(write_csv(out / name, frame))
     return written

@@ -115,6 +115,12 @@ class TestAssetRules:
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, column, value)))
         assert _find(problems, row=3, column=column, text="must lie between")
 
+    def test_efficiency_written_as_a_fraction_is_named_so(self, tmp_path):
+        # 0.952 in a percent column is 95.2 % written as a fraction (hand calculation: 0.952 x 100)
+        _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "rated_efficiency_pct", "0.952")))
+        found = _find(problems, row=3, column="rated_efficiency_pct", text="must lie between")
+        assert "was a fraction entered? 0.952 as a fraction is 95.2 %" in found.hint
+
     def test_load_above_125_pct(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "mean_load_pct", "140")))
         assert _find(problems, row=3, column="mean_load_pct", text="must lie between")

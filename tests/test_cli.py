@@ -178,17 +178,32 @@ def test_run_announces_a_large_run_and_drives_the_dask_engine(tmp_path, capsys, 
     assert local == (tmp_path / "dask" / "results.csv").read_bytes()
 
 
-def test_run_plan_limits(tmp_path, capsys):
-    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
+    demo = shutil.copytree(DEMO, tmp_path / "demo")
+    toml = demo / "case.toml"
+    toml.write_text(toml.read_text(encoding="utf-8") + 'purchase_date = "2027-06-01"\n', encoding="utf-8")
     assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--plan-seconds", "0"]) == 2
     assert "--plan-seconds" in capsys.readouterr().err
-    assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet", "--no-risk", "--plan-gap", "5",
+                 "--seed", "7"]) == 0
     out = capsys.readouterr().out
     line = next(text for text in out.splitlines() if "Exact plan:" in text)
     # the solver stops at the first plan proven within 5 %: the gap it states is at most that
     assert "proven within" in line or "optimal" in line
     if "proven within" in line:
         assert float(line.split("proven within ")[1].split(" %")[0]) <= 5.0
+    # the result folder says what its numbers rest on: the rules date and region, the case's discount rate
+    # (data/demo/finance.toml: 0.08), the seed given on the command line, the plan's tolerance
+    assert "run_settings.csv" in out
+    settings = pd.read_csv(tmp_path / "a" / "run_settings.csv", dtype=str, keep_default_na=False).set_index("setting")
+    assert settings.loc["purchase_date", "value"] == "2027-06-01"
+    assert settings.loc["region", "value"] == "EU"
+    assert settings.loc["invented", "value"] == "true"
+    assert settings.loc["finance.discount_rate_frac", "value"] == "0.08"
+    assert settings.loc["finance.monte_carlo_seed", "value"] == "7"
+    assert settings.loc["plan.gap_asked_frac", "value"] == "0.05"
+    assert float(settings.loc["plan.gap_proven_frac", "value"]) <= 0.05
+    assert settings["meaning"].str.len().min() > 0
 
 
 def test_no_command_prints_help_and_version_is_known(capsys):
