@@ -43,7 +43,7 @@ SECTION = "## Fleet benchmark"
 STAGE_ORDER = ("load", "machines", "site bills", "finance", "plan", "end of life", "Monte Carlo", "bills")
 #: Economics stage names (models.scenario.economics) -> benchmark stage.
 ECONOMICS_STAGES = {"cash flows": "finance", "metrics": "finance", "fleet plan": "plan", "end of life": "end of life",
-                    "risk": "Monte Carlo", "bills": "bills"}
+                    "risk": "Monte Carlo", "fleet plan (finishing)": "Monte Carlo", "bills": "bills"}
 
 
 class PeakSampler:

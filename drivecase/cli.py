@@ -292,7 +292,7 @@ def cmd_run(args: argparse.Namespace) -> int:
             import dask  # noqa: F401
             import distributed  # noqa: F401
 
-            from models.distributed import run_distributed
+            from models.distributed import LOCAL_WORKERS, local_workers, run_distributed
         except ImportError as exc:
             print(f"drivecase run: the Dask engine needs the 'scale' extra (pip install -e '.[scale]'): {exc}",
                   file=sys.stderr)
@@ -300,23 +300,28 @@ def cmd_run(args: argparse.Namespace) -> int:
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     from models.estimate import estimate_run
 
-    estimate = estimate_run(case, workers=2 if args.engine == "dask" else 1)
+    workers = 1
+    if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
+        workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
+    estimate = estimate_run(case, workers=workers)
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}", file=sys.stderr)
     bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)
     site_bar = None
 
     def progress(stage: str) -> None:
-        bar.set_postfix_str(stage)
-        if stage != STAGES[0]:
+        if stage in STAGES and stage != STAGES[0]:  # (a note such as the plan finishing moves no stage on)
             bar.update(1)
+        bar.set_postfix_str(stage)  # (after the count, so that the bar shows the stage with its own count)
 
     try:
         if args.engine == "dask":
             site_bar = tqdm(total=len(case.sites), desc="sites", unit="site", file=sys.stderr, disable=args.quiet)
 
-            def site_progress(_site_id: str, done: int, _total: int) -> None:
+            def site_progress(_site_id: str, done: int, total: int) -> None:
                 site_bar.update(done - site_bar.n)
+                if done >= total:  # the sites' own time, not the whole run's
+                    site_bar.close()
 
             result = run_distributed(case, assumptions, scheduler=args.scheduler, progress=progress,
                                      with_risk=not args.no_risk, site_progress=site_progress,

@@ -17,6 +17,7 @@ Only our own plain data goes to the workers (the case dataclass and numpy arrays
 from __future__ import annotations
 
 import logging
+import os
 from typing import Callable
 
 from models import finance
@@ -25,8 +26,21 @@ from models.memory import retained_memory
 from models.operation import case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
 
-#: Worker processes of the local cluster (one per core of the 2-core reference machine).
+#: Worker processes of the local cluster on the 2-core reference machine (one per core).
 LOCAL_WORKERS = 2
+#: At most this many local workers, however many cores (each holds a site's blocks in memory).
+MAX_LOCAL_WORKERS = 8
+
+
+def local_workers(n_sites: int | None = None) -> int:
+    """Return the worker processes of a local cluster: one per core this process may use, at most
+    :data:`MAX_LOCAL_WORKERS` and (given ``n_sites``) at most one per site, at least one."""
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # (not on every platform)
+        cores = os.cpu_count() or LOCAL_WORKERS
+    n = min(max(cores, 1), MAX_LOCAL_WORKERS)
+    return max(1, min(n, n_sites)) if n_sites is not None else n
 
 
 def _site_task(sub_case, index, cost: float, chunk_assets, today_only: bool, with_books: bool):
@@ -226,7 +240,7 @@ def _client(scheduler: str | None, n_workers: int, processes: bool):
 
 def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: str | None = None,
                     progress: Callable[[str], None] | None = None, with_risk: bool = True, *,
-                    site_progress: Callable[[str, int, int], None] | None = None, n_workers: int = LOCAL_WORKERS,
+                    site_progress: Callable[[str, int, int], None] | None = None, n_workers: int | None = None,
                     processes: bool = True, chunk_assets: int | None = None,
                     dense: bool | None = None, plan_settings: PlanSettings = PRECISE_PLAN,
                     timer: dict | None = None) -> ScenarioResult:
@@ -248,8 +262,9 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         Include the tornado and Monte Carlo.
     site_progress : callable, optional
         Called as ``site_progress(site_id, done, total)`` as each site's task completes.
-    n_workers : int
-        Workers of the local cluster (ignored with ``scheduler``).
+    n_workers : int, optional
+        Workers of the local cluster (ignored with ``scheduler``); default :func:`local_workers` (one per
+        core, at most one per site).
     processes : bool
         Local cluster of processes (True) or threads (False).
     chunk_assets, dense
@@ -287,6 +302,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         books_asked[site_id] = foreseen
         return True
 
+    if n_workers is None:
+        n_workers = local_workers(len(merger.partition))
     client, cluster = _client(scheduler, n_workers, processes)
     try:
         results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted)

@@ -48,6 +48,11 @@ TORNADO_RANGES = {
 }
 
 
+#: Progress note of a run with risk once the risk is done and the fleet plan, solved beside it, is not
+#: yet: a note on the stage "risk", not a stage of its own.
+PLAN_FINISHING = "fleet plan (finishing)"
+
+
 @dataclass(frozen=True)
 class PlanSettings:
     """How hard the exact fleet plan is solved (see :func:`models.plan.plan_exact`).
@@ -441,7 +446,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
 
     With ``with_risk`` the fleet plan is solved in a second thread while the end-of-life strategy and
     the risk run (none of them reads another's results, and the solver releases the interpreter lock),
-    so the progress reports "fleet plan", "end of life" and "risk" as each starts, then "bills" once
+    so the progress reports "fleet plan", "end of life" and "risk" as each starts, then
+    :data:`PLAN_FINISHING` while it waits for the plan (a note, not a stage of its own), then "bills" once
     the plan is ready; ``timer`` (optional) receives each one's own wall time under those names [s].
     """
     step = progress or (lambda _msg: None)
@@ -604,6 +610,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 eol, rules = timed("end of life", eol_now)
                 step("risk")
                 tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
+                step(PLAN_FINISHING)  # what a long run is waiting for once the risk is done
                 plan_frames = planned.result()
             plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv)
             del drawn  # the best projects' draws: read by the plan's Monte Carlo only

@@ -625,3 +625,13 @@ def test_a_worker_without_drivecase_gives_a_message(tmp_path, capsys, monkeypatc
     err = capsys.readouterr().err
     assert "a Dask worker could not load drivecase's code (No module named 'models')" in err
     assert "in the Python every worker runs" in err and "Traceback" not in err
+
+
+def test_run_progress_counts_stages_and_says_when_it_waits_for_the_plan(tmp_path, capsys):
+    # eight stages (drivecase.cli.STAGES); the plan's "finishing" note, shown while the plan solved beside the
+    # risk is awaited, moves the count on by none
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "o")]) == 0
+    frames = capsys.readouterr().err.replace("\r", "\n").splitlines()
+    counts = [line.split("|")[2].split()[0] for line in frames if line.startswith("drivecase run:") and "|" in line]
+    assert counts[-1] == "8/8" and all(int(c.split("/")[0]) <= 8 for c in counts)
+    assert any("fleet plan (finishing)" in line for line in frames)

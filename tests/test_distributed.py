@@ -235,3 +235,14 @@ def test_a_tcp_scheduler_passes_the_address_check():
         silent.listen()
         with pytest.raises(ValueError, match="answers but is not a Dask scheduler"):
             check_scheduler_address(f"tcp://127.0.0.1:{silent.getsockname()[1]}", greeting_s=0.5)
+
+
+def test_local_cluster_takes_a_worker_per_core_at_most_one_per_site(monkeypatch):
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine.os, "sched_getaffinity", lambda _pid: set(range(16)), raising=False)
+    assert engine.local_workers() == engine.MAX_LOCAL_WORKERS == 8  # 16 cores: capped
+    assert engine.local_workers(n_sites=3) == 3  # a fourth worker would have no site to work
+    monkeypatch.setattr(engine.os, "sched_getaffinity", lambda _pid: {0}, raising=False)
+    assert engine.local_workers(n_sites=20) == 1
+    assert engine.local_workers(n_sites=0) == 1

@@ -290,7 +290,10 @@ def test_the_plan_beside_end_of_life_and_risk_gives_the_plan_alone(demo_case, mo
 
     monkeypatch.setattr(scenario, "_plan", spy)
     own: dict = {}
-    beside = scenario.economics(demo_case, phys, demo_case.finance, with_risk=True, timer=own)
+    steps: list = []
+    beside = scenario.economics(demo_case, phys, demo_case.finance, progress=steps.append, with_risk=True, timer=own)
+    # while the plan finishes after the risk, the progress says so (a note, between the risk and the bills)
+    assert steps == ["cash flows", "metrics", "fleet plan", "end of life", "risk", scenario.PLAN_FINISHING, "bills"]
     solves = len(threads)  # the plan and its re-solves without worthless reactive projects
     alone = scenario.economics(demo_case, phys, demo_case.finance, with_risk=False)
     assert all(name.startswith("drivecase-plan") for name in threads[:solves])
