@@ -231,9 +231,11 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
     Parameters
     ----------
     solve : callable
-        ``solve(exclude, settings, npv)`` -> the plan's frames (plan, rank-order plan, comparison,
-        abatement curve, status dict), leaving out the project labels in ``exclude``, with each row's NPV
-        from ``npv`` (None: the results' own).
+        ``solve(exclude, settings, npv, greedy=(exclude, npv), exact_again=True)`` -> the plan's frames
+        (plan, rank-order plan, comparison, abatement curve, status dict), leaving out the project labels
+        in ``exclude``, with each row's NPV from ``npv`` (None: the results' own); ``greedy`` shapes the
+        rank-order plan on its own, and ``exact_again=False`` keeps the exact plan last solved (a round
+        whose check changed the rank-order plan only).
     case, op, results
         The case, its operating result and the per-project results.
     project_ids : numpy.ndarray of str
@@ -276,6 +278,7 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
     npv = g_npv = None
     set_aside: set[str] = set()
     g_set_aside: set[str] = set()
+    exact_solves = 1
     for round_ in range(PLAN_INTERACTION_ROUNDS - 1):
         # the rank-order plan is checked on its own, so its result does not depend on how hard the exact plan
         # was solved (both priced in one pass over the sites)
@@ -299,12 +302,19 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         first = frames[0]
         start = tuple((str(pid), int(yr)) for pid, yr in zip(project_labels(first), first["start_yr"])
                       if str(pid) not in left_out)  # the first plan less what left it: a head start for the proof
-        frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_set_aside, g_npv))
+        # a later round whose check withdrew from the rank-order plan only leaves the exact plan as it was solved
+        exact_again = round_ == 0 or bool(fresh)
+        previous_status = frames[4]
+        frames = solve(left_out, replace(settings, start=start), npv, greedy=(greedy_withdrawn | g_set_aside, g_npv),
+                       exact_again=exact_again)
+        if not exact_again:
+            npv, repriced = kept_npv, previous_status.get("repriced", {})  # what the kept exact plan was solved at
         frames[4]["settings"] = settings
         # the repriced projects that the new plan holds (a project repriced may leave it at its lower NPV)
         in_plan = set(project_labels(frames[0]).astype(str))
         frames[4]["repriced"] = {label: share for label, share in repriced.items() if label in in_plan}
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
         frames[4]["set_aside"] = tuple(sorted(set_aside - withdrawn))
-        frames[4]["solves"] = round_ + 2
+        exact_solves += exact_again
+        frames[4]["solves"] = exact_solves  # of the exact plan
     return frames

@@ -801,21 +801,25 @@ def _plan_with_interactions(case, op, results, capital_spend, project_ids, assum
                             bill_saving_pv=None):
     """:func:`_plan`, with the plan's reactive projects checked beside the rest of it
     (:func:`models.reactive_plan.plan_without_idle_reactive`)."""
-    def solve(exclude, solve_settings, npv=None, greedy=None):
+    last: dict = {}  # the exact plan last solved, kept when a round changes the rank-order plan only
+
+    def solve(exclude, solve_settings, npv=None, greedy=None, exact_again=True):
         return _plan(results, capital_spend, project_ids, assumptions, d, solve_settings, exclude=exclude, npv=npv,
-                     greedy=greedy)
+                     greedy=greedy, exact=None if exact_again else last.get("exact"), solved=last)
 
     return reactive_plan.plan_without_idle_reactive(solve, case, op, results, project_ids, settings,
                                                      float(assumptions.energy_price_factor), bill_saving_pv)
 
 
 def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSettings, exclude=(), npv=None,
-          greedy=None):
+          greedy=None, exact=None, solved: dict | None = None):
     """The exact and the rank-order plans, their comparison, the abatement curve and the status.
 
     ``exclude`` and ``npv`` (project labels left out, each row's NPV) shape the exact plan; ``greedy`` =
     (exclude, npv) shapes the rank-order plan on its own (default: the exact plan's), so each plan's
-    check of its interactions changes that plan only.
+    check of its interactions changes that plan only. ``exact`` (a :class:`models.plan.FleetPlan` solved
+    before) is taken as the exact plan instead of solving it again; ``solved`` (a dict) receives the
+    exact plan under ``"exact"``.
     """
     budgets = list(assumptions.budget_per_yr) or None
     n_years = len(budgets) if budgets else DEFAULT_PLAN_YEARS
@@ -833,8 +837,11 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
         return project_ids[sel], results["asset_id"].to_numpy()[sel], values[sel], capital_by_year[sel]
 
     args = inputs(exclude, npv)
-    exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
-                            start=dict(settings.start) or None)
+    if exact is None:
+        exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
+                                start=dict(settings.start) or None)
+    if solved is not None:
+        solved["exact"] = exact
     greedy = plan.plan_greedy(*(args if greedy is None else inputs(*greedy)), budgets, d)
     comparison = plan.compare_plans(exact, greedy)
     # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)

@@ -68,3 +68,38 @@ def test_a_plan_started_from_another_holds_no_reactive_project_its_check_withdra
         reactive_plan.PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
     assert not worthless.any(), value.loc[worthless, "project_id"].tolist()
     assert live.plan["npv_at_plan_start"].sum() <= exact.plan["npv_at_plan_start"].sum() * (1 + 1e-9)
+
+
+def test_a_round_that_withdraws_from_the_rank_order_plan_only_keeps_the_exact_plan(monkeypatch):
+    # A constructed fleet of one site: capacitor projects C1 and C2 (each saving 100/yr alone). The exact
+    # plan holds neither; the rank-order plan holds C1, then C2. Each check of the rank-order plan finds its
+    # capacitor adds nothing beside the rest (0 of 100 < 5 %, reactive_plan.PLAN_REACTIVE_MIN_SHARE): the
+    # second round withdraws from the rank-order plan only, so the exact plan is not solved again.
+    from models.scenario import PlanSettings
+
+    results = pd.DataFrame({"asset_id": ["M1", "M1", "M2", "M2"], "option_id": ["keep", "capacitor"] * 2,
+                            "site_id": "S", "technology": ["induction", "capacitor"] * 2,
+                            "npv": [0.0, 50.0, 0.0, 40.0]})
+    project_ids = plan.project_labels(results).to_numpy(dtype=object)
+    exact = pd.DataFrame({"asset_id": ["X"], "option_id": ["ie4"], "start_yr": [0]})
+    greedy_plans = [pd.DataFrame({"asset_id": [a], "option_id": ["capacitor"], "start_yr": [0]}) for a in ("M1", "M2")]
+    greedy_plans.append(exact.iloc[:0])
+    calls = []
+
+    def solve(exclude, settings, npv=None, greedy=None, exact_again=True):
+        calls.append(exact_again)
+        return exact, greedy_plans[len(calls) - 1], None, None, {"status": "optimal"}
+
+    def values(_case, _op, frames, _results, _price):
+        def value(frame):
+            ids = list(plan.project_labels(frame))
+            return pd.DataFrame({"project_id": ids, "site_id": "S", "run_saving_alone_per_yr": [100.0] * len(ids),
+                                 "run_saving_in_plan_per_yr": [0.0] * len(ids)})
+        return [value(frames[0].iloc[:0]), value(frames[1])]
+
+    monkeypatch.setattr(reactive_plan, "reactive_values_in_plans", values)
+    frames = reactive_plan.plan_without_idle_reactive(solve, None, None, results, project_ids,
+                                                      PlanSettings(time_limit_s=1.0, gap_frac=0.0))
+    assert calls == [True, True, False]  # the first solve, the first round's, then the rank-order plan only
+    assert frames[4]["solves"] == 2 and frames[4]["withdrawn"] == ()
+    assert frames[1].empty  # the rank-order plan without both capacitors
