@@ -10,6 +10,7 @@ import os
 import re
 import subprocess
 import sys
+import unicodedata
 from pathlib import Path
 
 import pytest
@@ -135,6 +136,13 @@ def test_cli_prints_the_report_to_pdf(tmp_path):
     data = (out / "capital-request.pdf").read_bytes()
     assert data.startswith(b"%PDF-") and pdf_pages(data) > 3
     assert "capital-request.pdf" in done.stdout
+    # every page carries the caution and its number, so that a page copied alone still says what it is
+    pypdf = pytest.importorskip("pypdf")
+    pages = [" ".join(unicodedata.normalize("NFKC", page.extract_text()).split())  # (the "fi" ligature as two letters)
+             for page in pypdf.PdfReader(out / "capital-request.pdf").pages]
+    for number, text in enumerate(pages, start=1):
+        assert f"page {number} of {len(pages)}" in text, number
+        assert "qualified persons under local codes" in text, number
 
 
 def test_no_table_runs_off_the_printed_page(pack_browser, demo_run_physics, tmp_path):

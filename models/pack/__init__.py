@@ -82,6 +82,23 @@ def _tidy(out: Path, written: list[Path], notes: list[str]) -> None:
     atomic_write_bytes(out / MANIFEST_NAME, ("\n".join(sorted(now)) + "\n").encode("utf-8"))
 
 
+def pdf_footer(settings) -> str:
+    """The text at the foot of every PDF page: the case, whether it is invented, and the standing caution.
+
+    Examples
+    --------
+    >>> from models.case import CaseSettings
+    >>> pdf_footer(CaseSettings(name="Mill", invented=True))
+    "Mill · Invented demo data · Planning estimate, not a design: electrical work by qualified persons under local codes and the utility's rules"
+    """
+    parts = [str(settings.name)]
+    if settings.invented:
+        parts.append("Invented demo data")
+    parts.append("Planning estimate, not a design: electrical work by qualified persons under local codes and the "
+                 "utility's rules")
+    return " · ".join(parts)
+
+
 def _inside(out: Path, path: Path) -> Path:
     """Return ``path`` after checking it stays inside ``out``."""
     if not path.resolve().is_relative_to(out.resolve()):
@@ -152,7 +169,7 @@ def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: boo
     if pdf:
         from models.pack.pdf import pdf_bytes
 
-        data, message = pdf_bytes(report)
+        data, message = pdf_bytes(report, footer=pdf_footer(case.settings))
         notes.append(message)
         if data is not None:
             path = _inside(out, out / PDF_NAME)

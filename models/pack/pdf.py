@@ -20,7 +20,23 @@ CHROMIUM_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networki
 RENDER_TIMEOUT_MS = 60_000
 
 
-def pdf_bytes(html_path: Path, executable_path: str | None = None) -> tuple[bytes | None, str]:
+def footer_template(text: str) -> str:
+    """The browser's page footer: ``text`` (escaped) and "page N of M", in small type.
+
+    Examples
+    --------
+    >>> "Pump &amp; fan" in footer_template("Pump & fan")
+    True
+    """
+    from html import escape
+
+    return ('<div style="font-size:7px; width:100%; margin:0 12mm; color:#555; display:flex; '
+            'justify-content:space-between; font-family:sans-serif;">'
+            f'<span>{escape(text)}</span><span>page <span class="pageNumber"></span> of '
+            '<span class="totalPages"></span></span></div>')
+
+
+def pdf_bytes(html_path: Path, executable_path: str | None = None, footer: str = "") -> tuple[bytes | None, str]:
     """Return the PDF of an HTML file printed on A4, or ``(None, reason)`` when it cannot be printed.
 
     Parameters
@@ -29,6 +45,9 @@ def pdf_bytes(html_path: Path, executable_path: str | None = None) -> tuple[byte
         A self-contained HTML file (it is opened as a file:// URL; network requests are blocked).
     executable_path : str, optional
         Chromium executable; default :data:`CHROMIUM_PATH`.
+    footer : str, optional
+        Text printed at the foot of every page, beside the page number (:func:`footer_template`): what a
+        reader of one page alone must still see.
 
     Returns
     -------
@@ -62,7 +81,9 @@ def pdf_bytes(html_path: Path, executable_path: str | None = None) -> tuple[byte
                     "() => Array.from(document.querySelectorAll('.plotly-graph-div'))"
                     ".every(d => d.querySelector('svg.main-svg'))", timeout=RENDER_TIMEOUT_MS)
                 page.emulate_media(media="print")
-                data = page.pdf(format="A4", print_background=True, prefer_css_page_size=True)
+                data = page.pdf(format="A4", print_background=True, prefer_css_page_size=True,
+                                display_header_footer=True, header_template="<span></span>",
+                                footer_template=footer_template(footer))
             finally:
                 browser.close()
     except (PlaywrightError, OSError, RuntimeError) as exc:  # a browser problem must not sink the pack
