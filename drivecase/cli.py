@@ -292,7 +292,7 @@ def cmd_run(args: argparse.Namespace) -> int:
             import dask  # noqa: F401
             import distributed  # noqa: F401
 
-            from models.distributed import LOCAL_WORKERS, local_workers, run_distributed
+            from models.distributed import LOCAL_WORKERS, SiteLost, local_workers, run_distributed
         except ImportError as exc:
             print(f"drivecase run: the Dask engine needs the 'scale' extra (pip install -e '.[scale]'): {exc}",
                   file=sys.stderr)
@@ -331,6 +331,12 @@ def cmd_run(args: argparse.Namespace) -> int:
                                   plan_settings=plan_settings)
     except ValueError as exc:
         _close_bars(bar, site_bar)
+        print(f"drivecase run: {exc}", file=sys.stderr)
+        return 1
+    except RuntimeError as exc:
+        _close_bars(bar, site_bar)
+        if args.engine != "dask" or not isinstance(exc, SiteLost):
+            raise
         print(f"drivecase run: {exc}", file=sys.stderr)
         return 1
     except ImportError as exc:  # raised on a Dask worker whose Python lacks drivecase

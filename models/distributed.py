@@ -25,6 +25,7 @@ from models.estimate import BOOK_BYTES_PER_ASSET_STEP
 from models.memory import retained_memory
 from models.operation import case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
+from models.wording import counted
 
 #: Worker processes of the local cluster on the 2-core reference machine (one per core).
 LOCAL_WORKERS = 2
@@ -63,6 +64,10 @@ SITE_ATTEMPTS = 3
 FIRST_WORKER_WAIT_S = 60.0
 
 
+class SiteLost(RuntimeError):
+    """A site's task lost with its worker :data:`SITE_ATTEMPTS` times (a worker that keeps dying on it)."""
+
+
 def _least_busy_worker(client) -> str | None:
     """The address of the worker with the fewest tasks per thread, or None while the cluster has none."""
     threads = client.nthreads()
@@ -85,8 +90,9 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     :data:`IN_FLIGHT_PER_THREAD` sites per worker thread are on the cluster at once, so the memory they
     take is bounded whatever the fleet's size; the next site goes to the least busy worker as one
     comes back. A site whose worker was lost (its data with it) is sent again, up to
-    :data:`SITE_ATTEMPTS` times, and so is a site whose worker left as it was being sent (to the next
-    least busy one); an error raised by the analysis itself reaches the caller unchanged.
+    :data:`SITE_ATTEMPTS` times (then :class:`SiteLost` is raised, in words), and so is a site whose
+    worker left as it was being sent (to the next least busy one); an error raised by the analysis
+    itself reaches the caller unchanged.
     """
     from collections import deque
     from concurrent.futures import CancelledError
@@ -118,8 +124,9 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
                 break
             try:
                 data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
-            except OSError:  # the worker left between the choice and the sending (CommClosedError is one)
-                if not tries_left:
+            except (OSError, ValueError) as exc:  # the worker left between the choice and the sending
+                # (CommClosedError is an OSError; the scheduler says "No valid workers found" once it knows)
+                if not tries_left or (isinstance(exc, ValueError) and "no valid workers" not in str(exc).lower()):
                     raise
                 continue
             future = client.submit(_site_task, data, *args, key=key, pure=False, workers=[worker])
@@ -135,7 +142,13 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
             op, part, books = future.result()
         except (KilledWorker, CancelledError):
             if attempts[site_id] >= SITE_ATTEMPTS:
-                raise
+                n_assets = int((case.assets["site_id"].astype(str) == str(site_id)).sum())
+                raise SiteLost(
+                    f"the task of site {site_id} ({counted(n_assets, 'motor')}) was lost with its worker {counted(SITE_ATTEMPTS, 'time')}: a "
+                    "Dask worker that dies while running a task has most often run out of memory. Give each worker "
+                    "more memory (`dask worker ADDRESS --memory-limit 8GB`, or fewer workers per machine; the "
+                    "estimate printed before a large run gives the memory a run needs) and look in the workers' "
+                    "logs for the cause") from None
             waiting.appendleft((k, site_id))
         else:
             done += 1

@@ -178,6 +178,21 @@ def test_run_announces_a_large_run_and_drives_the_dask_engine(tmp_path, capsys, 
     assert local == (tmp_path / "dask" / "results.csv").read_bytes()
 
 
+def test_run_says_in_one_line_that_a_worker_kept_dying(tmp_path, capsys, monkeypatch):
+    pytest.importorskip("distributed")
+    from models import distributed as engine
+    from test_scenario import _one_asset_case
+
+    def lost(*_args, **_kwargs):
+        raise engine.SiteLost("the task of site S1 (1 motor) was lost with its worker 3 times: ... run out of memory")
+
+    _one_asset_case(tmp_path / "case")
+    monkeypatch.setattr(engine, "run_distributed", lost)
+    assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "o"), "--no-risk", "--engine", "dask"]) == 1
+    err = capsys.readouterr().err
+    assert "drivecase run: the task of site S1 (1 motor) was lost" in err and "Traceback" not in err
+
+
 def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
     demo = shutil.copytree(DEMO, tmp_path / "demo")
     toml = demo / "case.toml"

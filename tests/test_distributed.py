@@ -246,3 +246,18 @@ def test_local_cluster_takes_a_worker_per_core_at_most_one_per_site(monkeypatch)
     monkeypatch.setattr(engine.os, "sched_getaffinity", lambda _pid: {0}, raising=False)
     assert engine.local_workers(n_sites=20) == 1
     assert engine.local_workers(n_sites=0) == 1
+
+
+def test_a_site_whose_worker_keeps_dying_is_named_with_the_likely_cause(fleet, monkeypatch):
+    # a worker given too little memory for any site (250 MB: the worker's own imports take most of it) is
+    # restarted by its nanny each time it runs one; after the attempts the run says so in words
+    import dask
+
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine, "SITE_ATTEMPTS", 1)
+    with dask.config.set({"distributed.scheduler.allowed-failures": 0}), \
+            distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=True, memory_limit="250MB",
+                                     dashboard_address=":0", silence_logs=logging.CRITICAL) as local:
+        with pytest.raises(engine.SiteLost, match=r"lost with its worker 1 time: .*run out of memory"):
+            run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False)
