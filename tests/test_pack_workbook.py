@@ -518,3 +518,46 @@ def test_the_assumptions_sheet_says_which_cells_the_formulas_read(tmp_path):
     live = {ws.cell(r, 1).value: ws.cell(r, 6).value for r in range(1, ws.max_row + 1) if ws.cell(r, 6).value}
     assert live["discount_rate_frac"].startswith("yes")
     assert live["horizon_yr"].startswith("no") and live["escalation_energy_frac"].startswith("no")
+
+
+def _stored_against_evaluated(path: Path, evaluated: dict) -> tuple[int, list[str], list[str]]:
+    """Each formula cell's stored value (what a previewer shows) against the independent evaluator's.
+
+    Returns (cells compared, cells left without a value, disagreements)."""
+    formulas_book, stored_book = load_workbook(path), load_workbook(path, data_only=True)
+    compared, missing, wrong = 0, [], []
+    for ws in formulas_book.worksheets:
+        stored = stored_book[ws.title]
+        for row in ws.iter_rows():
+            for cell in row:
+                if not (isinstance(cell.value, str) and cell.value.startswith("=")):
+                    continue
+                here = stored[cell.coordinate].value
+                expected = evaluated[(ws.title.upper(), cell.coordinate)]
+                if here is None:  # (an empty text result reads back as an empty cell)
+                    if not (isinstance(expected, str) and expected == ""):
+                        missing.append(f"{ws.title}!{cell.coordinate} ({expected!r})")
+                    continue
+                compared += 1
+                if isinstance(here, str) or isinstance(expected, str):
+                    same = str(here) == str(expected)
+                elif isinstance(here, bool):
+                    same = here == bool(expected)
+                else:
+                    same = math.isclose(float(here), float(expected), rel_tol=1e-9, abs_tol=1e-9)
+                if not same:
+                    wrong.append(f"{ws.title}!{cell.coordinate}: stored {here!r}, evaluated {expected!r}")
+    return compared, missing, wrong
+
+
+def test_every_formula_carries_the_value_it_gives(asset_pack, values):
+    # A previewer or a reader of values (not recalculating) shows what is stored beside each formula: it must
+    # be what the formula gives. Expected = the independent `formulas` evaluator's value of every formula cell.
+    compared, missing, wrong = _stored_against_evaluated(asset_pack, values)
+    assert wrong == []
+    assert compared > 1000 and missing == []
+
+
+def test_the_plan_sheet_carries_its_values(plan_pack):
+    compared, missing, wrong = _stored_against_evaluated(plan_pack, evaluate(plan_pack))
+    assert wrong == [] and missing == [] and compared > 100

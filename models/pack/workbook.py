@@ -17,6 +17,7 @@ from __future__ import annotations
 import io
 import math
 import re
+import weakref
 from typing import Any
 
 import numpy as np
@@ -103,15 +104,91 @@ def put(ws: Worksheet, row: int, col: int, value: Any, number_format: str | None
     return cell
 
 
-def put_formula(ws: Worksheet, row: int, col: int, expression: str, number_format: str | None = None) -> Cell:
-    """Write a spreadsheet formula built by this module (never from user text)."""
+def put_formula(ws: Worksheet, row: int, col: int, expression: str, number_format: str | None = None,
+                value: Any = None) -> Cell:
+    """Write a spreadsheet formula built by this module (never from user text).
+
+    ``value`` is what the formula gives (a finite number, a bool or text; None when not known here): it is
+    stored beside the formula as the cell's last computed value (:func:`with_cached_values`), for readers
+    that show a file without recalculating it.
+    """
     if not expression.startswith("="):
         raise ValueError(f"a formula starts with '=': {expression!r}")
     cell = ws.cell(row=row, column=col)
     cell.value = expression
     if number_format:
         cell.number_format = number_format
+    if _cacheable(value):
+        _CACHED.setdefault(ws, {})[cell.coordinate] = value
     return cell
+
+
+#: Each worksheet's formula cells' computed values, by coordinate, until the workbook is saved.
+_CACHED: "weakref.WeakKeyDictionary[Worksheet, dict[str, Any]]" = weakref.WeakKeyDictionary()
+
+
+def _cacheable(value: Any) -> bool:
+    """Whether a formula's value can be stored beside it: text, a bool or a finite number."""
+    if isinstance(value, (str, bool, np.bool_)):
+        return True
+    return isinstance(value, (int, float, np.integer, np.floating)) and math.isfinite(float(value))
+
+
+def _is_number(value: Any) -> bool:
+    """A spreadsheet's ISNUMBER of a value computed here (text and None are not numbers)."""
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
+
+
+def _cached_xml(value: Any) -> tuple[str, str]:
+    """The cell type attribute and the <v> content of a computed value."""
+    from xml.sax.saxutils import escape
+
+    if isinstance(value, (bool, np.bool_)):
+        return ' t="b"', "1" if value else "0"
+    if isinstance(value, str):
+        return ' t="str"', escape(value)
+    return "", repr(float(value))
+
+
+def with_cached_values(data: bytes, book: Workbook) -> bytes:
+    """Return the saved workbook ``data`` with each formula's computed value stored beside it.
+
+    openpyxl saves formulas with an empty value, which a spreadsheet program fills when it opens the
+    file (the workbook asks for a full recalculation on load), but which file previewers and readers of
+    values show as blanks. The values recorded by :func:`put_formula` are written into the cells' ``<v>``
+    elements (ECMA-376 Part 1, 18.3.1.4 and 18.3.1.96: ``t="str"`` for a formula's text result,
+    ``t="b"`` for a bool); the formulas are unchanged.
+    """
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    main = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
+    rel_ns = "{http://schemas.openxmlformats.org/officeDocument/2006/relationships}"
+    source = zipfile.ZipFile(io.BytesIO(data))
+    rels = {r.get("Id"): r.get("Target") for r in ET.fromstring(source.read("xl/_rels/workbook.xml.rels"))}
+    paths = {}
+    for sheet in ET.fromstring(source.read("xl/workbook.xml")).iter(f"{main}sheet"):
+        target = rels[sheet.get(f"{rel_ns}id")]
+        paths[sheet.get("name")] = target.lstrip("/") if target.startswith("/") else f"xl/{target}"
+    values = {paths[ws.title]: _CACHED.get(ws, {}) for ws in book.worksheets}
+    cell = re.compile(r'<c r="([A-Z]+[0-9]+)"([^>]*)><f>(.*?)</f><v\s*/></c>', re.S)
+
+    def filled(cells: dict[str, Any]):
+        def one(m: re.Match) -> str:
+            if m.group(1) not in cells or " t=" in m.group(2):
+                return m.group(0)
+            kind, text = _cached_xml(cells[m.group(1)])
+            return f'<c r="{m.group(1)}"{m.group(2)}{kind}><f>{m.group(3)}</f><v>{text}</v></c>'
+        return one
+
+    out = io.BytesIO()
+    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as target:
+        for item in source.infolist():
+            body = source.read(item.filename)
+            if values.get(item.filename):
+                body = cell.sub(filled(values[item.filename]), body.decode("utf-8")).encode("utf-8")
+            target.writestr(item, body)
+    return out.getvalue()
 
 
 def _ref(col: int, row: int, absolute: bool = False) -> str:
@@ -307,7 +384,8 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_uni
 
 
 def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame, rate_ref: str,
-                        engine: dict[str, Any], currency: str = "EUR", note: str = "") -> tuple[int, dict[str, int]]:
+                        engine: dict[str, Any], currency: str = "EUR", note: str = "",
+                        rate_frac: float | None = None) -> tuple[int, dict[str, Any]]:
     """Write one project's cash-flow block with live formulas; return the next free row and the metric rows.
 
     Parameters
@@ -328,12 +406,17 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         Currency code for the number formats.
     note : str
         Optional note beside the IRR search start.
+    rate_frac : float, optional
+        The discount rate in the cell ``rate_ref`` [frac/yr]. With it, each formula's value is stored
+        beside it (:func:`put_formula`); the IRR's is the engine's (with several rates, a spreadsheet that
+        recalculates may find another one from its search start).
 
     Returns
     -------
     tuple
         ``(next_row, rows)`` where ``rows`` maps "npv", "irr", "payback", "discounted_payback" and "net"
-        to their row numbers (the formula is in column B, the engine's figure in column C).
+        to their row numbers (the formula is in column B, the engine's figure in column C), and
+        ``rows["values"]`` the metrics' computed values (None where not stored).
 
     Notes
     -----
@@ -364,12 +447,26 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         put(ws, year_row, first_col + t, t).font = _BOLD
     comp_first = year_row + 1
     r = comp_first
-    for component, values in table.iterrows():
+    flows = np.zeros((len(table), horizon + 1))
+    for k, (component, values) in enumerate(table.iterrows()):
         put_text(ws, r, 1, content.COMPONENT_LABELS.get(str(component), str(component)))
         for t in range(horizon + 1):
-            put(ws, r, first_col + t, float(values.get(t, 0.0)), f.money2)
+            flows[k, t] = float(values.get(t, 0.0))
+            put(ws, r, first_col + t, flows[k, t], f.money2)
         r += 1
     comp_last = r - 1
+    # what each formula gives, stored beside it (None: not known here, left for the spreadsheet)
+    net_v = flows.sum(axis=0)
+    cum_v = np.cumsum(net_v)
+    known = rate_frac is not None
+    factor_v = 1.0 / (1.0 + (rate_frac if known else 0.0)) ** np.arange(horizon + 1)
+    disc_v = net_v * factor_v
+    dcum_v = np.cumsum(disc_v)
+
+    def crossed(running: np.ndarray, flow: np.ndarray, t: int) -> Any:
+        if t == 0:
+            return 0.0 if running[0] >= 0 else ""
+        return t - 1 - running[t - 1] / flow[t] if running[t - 1] < 0 <= running[t] else ""
     net = r
     cum, factor, disc, dcum, cross, dcross = net + 1, net + 2, net + 3, net + 4, net + 5, net + 6
     labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
@@ -382,20 +479,22 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         col = get_column_letter(c)
         prev = get_column_letter(c - 1)
         if comp_last >= comp_first:
-            put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2)
+            put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2, net_v[t])
         else:
             put(ws, net, c, 0.0, f.money2)
-        put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2)
-        put_formula(ws, factor, c, f"=1/(1+{rate_ref})^{col}${year_row}", f.factor)
-        put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2)
-        put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2)
-        for target, running, flow in ((cross, cum, net), (dcross, dcum, disc)):
+        put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2, cum_v[t])
+        put_formula(ws, factor, c, f"=1/(1+{rate_ref})^{col}${year_row}", f.factor, factor_v[t] if known else None)
+        put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2, disc_v[t] if known else None)
+        put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2,
+                    dcum_v[t] if known else None)
+        for target, running, flow, computed in ((cross, cum, net, crossed(cum_v, net_v, t)),
+                                                (dcross, dcum, disc, crossed(dcum_v, disc_v, t) if known else None)):
             if t == 0:
                 expr = f'=IF({col}{running}>=0,0,"")'
             else:
                 expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
                         f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
-            put_formula(ws, target, c, expr, f.years)
+            put_formula(ws, target, c, expr, f.years, computed)
     net_range = f"{_ref(first_col, net)}:{_ref(last_col, net)}"
     later = f"{_ref(first_col + 1, net)}:{_ref(last_col, net)}" if horizon >= 1 else None
     m = dcross + 2
@@ -412,17 +511,35 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         "discounted_payback": (m + 4, "Discounted payback [yr]",
                                f'=IF(COUNT({dcrossing})=0,"not within horizon",MIN({dcrossing}))', f.years),
     }
+    def first_or(values: list[Any], fallback: str) -> Any:
+        numbers = [v for v in values if _is_number(v)]
+        return min(numbers) if numbers else fallback
+
+    computed = {
+        "npv": float(net_v[0] + (disc_v[1:].sum() if horizon >= 1 else 0.0)) if known else None,
+        # the engine's rate, a root of the same flows (with several, the one closest to 0, as the block's note says;
+        # a spreadsheet that recalculates may find another from its search start)
+        "irr": engine.get("irr"),
+        "payback": first_or([crossed(cum_v, net_v, t) for t in range(horizon + 1)], "not within horizon"),
+        "discounted_payback": (first_or([crossed(dcum_v, disc_v, t) for t in range(horizon + 1)], "not within horizon")
+                               if known else None),
+    }
     rows = {"net": net}
     for name, (mr, label, expr, fmt) in metrics.items():
         put_text(ws, mr, 1, label)
-        put_formula(ws, mr, 2, expr, fmt)
+        put_formula(ws, mr, 2, expr, fmt, computed[name])
         put(ws, mr, 3, engine.get(name), fmt)
-        put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt)
+        workbook_v, engine_v = computed[name], engine.get(name)
+        difference = (workbook_v - engine_v if _is_number(workbook_v) and _is_number(engine_v)
+                      else "" if workbook_v is not None else None)
+        put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt, difference)
         rows[name] = mr
+    rows["values"] = computed
     put_text(ws, guess, 1, "IRR search start (year-1 flow / investment)")
     if horizon >= 1:
+        start = net_v[1] / -net_v[0] if net_v[0] < 0 and net_v[1] > 0 else 0.1
         put_formula(ws, guess, 2, f"=IF(AND({_ref(first_col, net)}<0,{_ref(first_col + 1, net)}>0),"
-                                  f"{_ref(first_col + 1, net)}/-{_ref(first_col, net)},0.1)", f.frac)
+                                  f"{_ref(first_col + 1, net)}/-{_ref(first_col, net)},0.1)", f.frac, start)
     else:
         put(ws, guess, 2, 0.1, f.frac)
     if note:
@@ -453,11 +570,14 @@ def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[st
             note = "; ".join(x for x in (note, f"priced alone here; in the plan it is credited {share:.0%} of its bill "
                                                "saving, what it adds beside the plan's other projects (Plan sheet)") if x)
         row_next, rows = write_project_block(ws, row, title, table.reindex(columns=range(horizon + 1), fill_value=0.0),
-                                             refs["discount_rate_frac"], engine, currency, note)
+                                             refs["discount_rate_frac"], engine, currency, note,
+                                             rate_frac=float(result.assumptions.discount_rate_frac))
         cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended)}
         for name in ("npv", "irr", "payback", "discounted_payback"):
             cells[name] = _sheet_ref("Cash flows", 2, rows[name])
             cells[f"{name}_engine"] = _sheet_ref("Cash flows", 3, rows[name])
+            cells[f"{name}_value"] = rows["values"][name]  # what the formula gives (None: left to the spreadsheet)
+            cells[f"{name}_engine_value"] = engine[name]
         out.append(cells)
         row = row_next
     ws.freeze_panes = "B4"
@@ -469,6 +589,15 @@ def _match(workbook: str, engine: str) -> str:
     """Spreadsheet test: both numbers within the relative tolerance, or both the same text."""
     return (f"IF(ISNUMBER({workbook}),IF(ISNUMBER({engine}),ABS({workbook}-{engine})<={CHECK_REL_TOL}*MAX(1,ABS({engine})),"
             f"FALSE),{workbook}={engine})")
+
+
+def _matches(workbook: Any, engine: Any) -> bool | None:
+    """What :func:`_match` gives for two computed values (None when either is not known here)."""
+    if workbook is None or engine is None:
+        return None
+    if _is_number(workbook):
+        return _is_number(engine) and abs(workbook - engine) <= CHECK_REL_TOL * max(1.0, abs(engine))
+    return not _is_number(engine) and str(workbook).lower() == str(engine).lower()  # (spreadsheet text = is caseless)
 
 
 def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
@@ -486,14 +615,16 @@ def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
         put_text(ws, row, 2, b["option_id"])
         put_text(ws, row, 3, str(b["label"]))
         put(ws, row, 4, b["recommended"])
-        pairs = []
+        pairs, matches = [], []
         for k, (name, fmt) in enumerate((("npv", f.money2), ("irr", f.frac), ("payback", f.years),
                                          ("discounted_payback", f.years))):
             c = 5 + 2 * k
-            put_formula(ws, row, c, f"={b[name]}", fmt)
-            put_formula(ws, row, c + 1, f"={b[name + '_engine']}", fmt)
+            put_formula(ws, row, c, f"={b[name]}", fmt, b.get(f"{name}_value"))
+            put_formula(ws, row, c + 1, f"={b[name + '_engine']}", fmt, b.get(f"{name}_engine_value"))
             pairs.append(_match(_ref(c, row), _ref(c + 1, row)))
-        put_formula(ws, row, 13, f'=IF(AND({",".join(pairs)}),"OK","CHECK")')
+            matches.append(_matches(b.get(f"{name}_value"), b.get(f"{name}_engine_value")))
+        status = None if None in matches else ("OK" if all(matches) else "CHECK")
+        put_formula(ws, row, 13, f'=IF(AND({",".join(pairs)}),"OK","CHECK")', value=status)
         row += 1
     if not blocks:
         put_text(ws, row, 1, "(no projects in scope)")
@@ -504,9 +635,11 @@ def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
 def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats) -> None:
     _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
     rate = refs["discount_rate_frac"]
+    rate_v = float(result.assumptions.discount_rate_frac)
     in_scope = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
     row = 3
     ranges = {}
+    by_year: dict[str, dict[int, list[float]]] = {}  # plan -> year -> [capital, projects, NPV at plan start (formula)]
     cur = f.currency
     for name, frame in (("Exact plan", result.plan), ("Rank-order plan", result.plan_greedy)):
         put_text(ws, row, 1, name).font = _BOLD
@@ -515,6 +648,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
                           f"NPV at plan start (engine) [{cur}]", f"NPV at plan start (formula) [{cur}]", "In this pack"])
         first = row + 1
         labels = result.results.set_index(["asset_id", "option_id"])["label"]
+        sums = by_year.setdefault(name, {})
         for r in frame.sort_values(["start_yr", "asset_id"], kind="stable").itertuples(index=False):
             row += 1
             put(ws, row, 1, int(r.start_yr))
@@ -524,7 +658,12 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             put(ws, row, 5, float(r.capital), f.money)
             put(ws, row, 6, float(r.npv), f.money)
             put(ws, row, 7, float(r.npv_at_plan_start), f.money)
-            put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money)
+            at_start = float(r.npv) / (1.0 + rate_v) ** int(r.start_yr)
+            put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money, at_start)
+            year_sums = sums.setdefault(int(r.start_yr), [0.0, 0, 0.0])
+            year_sums[0] += float(r.capital)
+            year_sums[1] += 1
+            year_sums[2] += at_start
             put_text(ws, row, 9, "yes" if f"{r.asset_id}/{r.option_id}" in in_scope else "no")
         last = max(row, first)
         ranges[name] = (first, last)
@@ -537,27 +676,34 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
                       f"Exact: NPV at plan start [{cur}]", f"Rank-order: capital [{cur}]", "Rank-order: projects",
                       f"Rank-order: NPV at plan start [{cur}]", f"Exact: budget left [{cur}]"])
     top = row + 1
+    budgets = list(result.assumptions.budget_per_yr)
+    totals = np.zeros(9)
     for year in years:
         row += 1
         put(ws, row, 1, int(year))
         budget = refs.get(f"budget_{year}")
         if budget:
-            put_formula(ws, row, 2, f"={budget}", f.money)
+            put_formula(ws, row, 2, f"={budget}", f.money, budgets[year] if year < len(budgets) else None)
         else:
             put_text(ws, row, 2, "no limit")
         for k, name in enumerate(("Exact plan", "Rank-order plan")):
             a, b = ranges[name]
             base = 3 + 3 * k
-            put_formula(ws, row, base, f"=SUMIF($A${a}:$A${b},A{row},$E${a}:$E${b})", f.money)
-            put_formula(ws, row, base + 1, f"=COUNTIF($A${a}:$A${b},A{row})")
-            put_formula(ws, row, base + 2, f"=SUMIF($A${a}:$A${b},A{row},$H${a}:$H${b})", f.money)
-        put_formula(ws, row, 9, f'=IF(ISNUMBER(B{row}),B{row}-C{row},"")', f.money)
+            capital, count, at_start = by_year[name].get(int(year), [0.0, 0, 0.0])
+            put_formula(ws, row, base, f"=SUMIF($A${a}:$A${b},A{row},$E${a}:$E${b})", f.money, capital)
+            put_formula(ws, row, base + 1, f"=COUNTIF($A${a}:$A${b},A{row})", value=count)
+            put_formula(ws, row, base + 2, f"=SUMIF($A${a}:$A${b},A{row},$H${a}:$H${b})", f.money, at_start)
+            totals[base:base + 3] += (capital, count, at_start)
+        left = (budgets[year] - by_year["Exact plan"].get(int(year), [0.0])[0]
+                if budget and year < len(budgets) else "" if not budget else None)
+        put_formula(ws, row, 9, f'=IF(ISNUMBER(B{row}),B{row}-C{row},"")', f.money, left)
     if years:
         row += 1
         put_text(ws, row, 1, "Total").font = _BOLD
         for c in (3, 4, 5, 6, 7, 8):
             col = get_column_letter(c)
-            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.whole if c in (4, 7) else f.money)
+            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.whole if c in (4, 7) else f.money,
+                        int(totals[c]) if c in (4, 7) else float(totals[c]))
     row += 2
     put_text(ws, row, 1, "Exact vs rank-order (engine)").font = _BOLD
     labels = {"npv_exact": (f"Exact plan NPV [{f.currency}]", f.money),
@@ -585,18 +731,21 @@ def _bills(ws: Worksheet, result, f: _Formats) -> None:
     if not bills.empty:
         pivot = bills.pivot_table(index=["site_id", "month"], columns="scenario", values="amount", aggfunc="sum",
                                   sort=True).reset_index()
+        sums = np.zeros(6)  # by column (C, D, E at 3, 4, 5)
         for r in pivot.itertuples(index=False):
             row += 1
             put_text(ws, row, 1, str(r.site_id))
             put_text(ws, row, 2, str(r.month))
-            put(ws, row, 3, float(getattr(r, "baseline", 0.0)), f.money)
-            put(ws, row, 4, float(getattr(r, "plan", 0.0)), f.money)
-            put_formula(ws, row, 5, f"=C{row}-D{row}", f.money)
+            before, after = float(getattr(r, "baseline", 0.0)), float(getattr(r, "plan", 0.0))
+            put(ws, row, 3, before, f.money)
+            put(ws, row, 4, after, f.money)
+            put_formula(ws, row, 5, f"=C{row}-D{row}", f.money, before - after)
+            sums += (0.0, 0.0, 0.0, before, after, before - after)
         row += 1
         put_text(ws, row, 1, "Total").font = _BOLD
         for c in (3, 4, 5):
             col = get_column_letter(c)
-            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.money)
+            put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.money, float(sums[c]))
     row += 3
     put_text(ws, row, 1, "Bill line items").font = _BOLD
     cols = [("site_id", "Site", None), ("month", "Month", None), ("scenario", "Scenario", None),
@@ -812,4 +961,8 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _read_me(sheets["Read me"], case, result, scope, f)
     buffer = io.BytesIO()
     book.save(buffer)
-    return buffer.getvalue()
+    try:
+        return with_cached_values(buffer.getvalue(), book)
+    finally:
+        for ws in book.worksheets:
+            _CACHED.pop(ws, None)
