@@ -504,6 +504,9 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         existing_remaining_life_yr=np.where(replaces, residual_life[rows], np.inf),
         midlife_cost=midlife[rows, cols],
         midlife_year_yr=midyear[rows, cols],
+        # a drive or a capacitor added to the running motor does not wait for it to fail: with replacement at
+        # failure, only the options that replace today's motor are bought then
+        replace_at_failure=replaces & (assumptions.replacement_mode == "replace_at_failure"),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
     # today's motor is the reference: its increment is zero by definition

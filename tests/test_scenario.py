@@ -596,3 +596,18 @@ def test_repair_or_replace_policy_covers_the_fleets_sizes_in_its_unit(demo_run_p
     assert_allclose(rules_hp["min_rated_p_kw"].min(), 0.745699872, rtol=1e-12)
     assert_allclose(rules_hp["max_rated_p_kw"].max(), 1250 * 0.745699872, rtol=1e-12)
     assert all(" hp" in r and " kW" not in r for r in rules_hp["rule"])
+
+
+def test_add_ons_are_bought_at_once_when_replacements_wait_for_failure(demo_run_physics):
+    # a drive or a capacitor added to the running motor does not wait for the motor to fail: under
+    # replace_at_failure its flows (capital in year 0, no must-spend credit) are those of replace_now, while an
+    # option that replaces the motor is bought at the failure year (docs/finance.md, section 4)
+    case, phys = demo_run_physics
+    now = scenario.economics(case, phys, case.finance, with_risk=False).results.set_index(["asset_id", "option_id"])
+    later = scenario.economics(case, phys, replace(case.finance, replacement_mode="replace_at_failure"),
+                               with_risk=False).results.set_index(["asset_id", "option_id"])
+    add_ons = now["technology"].isin(scenario.ADD_ON_TECHNOLOGIES).to_numpy()
+    assert add_ons.sum() > 20 and (now.loc[add_ons, "npv"].abs() > 0).all()
+    pd.testing.assert_series_equal(later.loc[add_ons, "npv"], now.loc[add_ons, "npv"])
+    replacing = (now["technology"] == "induction").to_numpy()
+    assert (later.loc[replacing, "npv"] != now.loc[replacing, "npv"]).any()
