@@ -795,8 +795,10 @@ class PaybackResult:
     Attributes
     ----------
     payback_yr : float, numpy.ndarray or pandas.Series
-        Years from year 0 until the cumulative flow turns non-negative [yr]; ``np.inf`` when it does not
-        within the horizon (never NaN); 0 when year 0 is already non-negative.
+        Years from the first outlay (the first year the cumulative flow is below zero; year 0 for an
+        investment made at once) until the cumulative flow is back at zero or above [yr]; ``np.inf`` when
+        it does not come back within the horizon, or when there is no flow at all (never NaN); 0 when the
+        cumulative flow is never below zero and some money comes in.
     within_horizon : bool, numpy.ndarray or pandas.Series
         True where the payback falls within the horizon.
     """
@@ -806,7 +808,8 @@ class PaybackResult:
 
 
 def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: bool = False) -> PaybackResult:
-    """First crossing of the cumulative flow to >= 0, interpolated linearly inside the year.
+    """First crossing of the cumulative flow back to >= 0 after its first outlay, interpolated linearly inside
+    the year and counted from that outlay.
 
     One compiled pass per row of the last axis (:func:`_payback_rows`); nothing is written to ``c``
     (``overwrite`` is accepted for callers that allow it)."""
@@ -822,10 +825,11 @@ def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: b
 
 @numba.njit(nogil=True, cache=True)
 def _payback_rows(flows, years, within):  # pragma: no cover - compiled
-    """Per row: the running sum S_t = S_(t-1) + CF_t (in order, as numpy.cumsum) reaches -1e-12 x the
-    largest |CF| at year t: payback 0 for t = 0, else (t - 1) + clip(-S_(t-1) / (S_t - S_(t-1)), 0, 1)
-    (the divisor 1 where it is not positive); inf and not within the horizon when it never does or a
-    flow is NaN."""
+    """Per row, with the running sum S_t = S_(t-1) + CF_t (in order, as numpy.cumsum) and the tolerance
+    e = 1e-12 x the largest |CF|: the first outlay t0 is the first t with S_t < -e; the payback is then
+    (t - 1) + clip(-S_(t-1) / (S_t - S_(t-1)), 0, 1) - t0 at the first t > t0 with S_t >= -e (the divisor 1
+    where it is not positive). With no outlay it is 0 where some S_t > e. Otherwise (no flows, never back
+    at zero, a NaN flow) inf and not within the horizon."""
     n, m = flows.shape
     for i in range(n):
         hi, lo, nan = -np.inf, np.inf, False
@@ -839,19 +843,24 @@ def _payback_rows(flows, years, within):  # pragma: no cover - compiled
         if nan or m == 0:
             continue
         tolerance = -1e-12 * max(hi, -lo)
-        total, before = 0.0, 0.0
+        total, before, outlay, money_in = 0.0, 0.0, -1, False
         for t in range(m):
             before = total
             total = flows[i, t] if t == 0 else total + flows[i, t]
+            if outlay < 0:
+                if total < tolerance:
+                    outlay = t
+                elif total > -tolerance:
+                    money_in = True
+                continue
             if total >= tolerance:
                 within[i] = True
-                if t == 0:
-                    years[i] = 0.0
-                else:
-                    flow = total - before
-                    part = -before / (flow if flow > 0.0 else 1.0)
-                    years[i] = (t - 1.0) + min(max(part, 0.0), 1.0)
+                flow = total - before
+                part = -before / (flow if flow > 0.0 else 1.0)
+                years[i] = (t - 1.0) + min(max(part, 0.0), 1.0) - outlay
                 break
+        if outlay < 0 and money_in:
+            years[i], within[i] = 0.0, True
 
 
 def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:
@@ -872,11 +881,15 @@ def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:
 
     Notes
     -----
-    The payback is the first time the cumulative flow S_t = sum_{k<=t} CF_k reaches 0 [1]. When
+    The payback is the time from the first outlay to the first time the cumulative flow
+    S_t = sum_{k<=t} CF_k is back at 0 [1]. The first outlay is the first year t0 with S_t0 < 0: year 0
+    for an investment made at once, the failure year for a replacement that waits for it. When
     S_{t-1} < 0 <= S_t, the year's flow is taken to accrue evenly through year t, so the payback is
-    (t - 1) + (-S_{t-1}) / CF_t. Flows are otherwise booked at year end (see docs/conventions.md).
+    (t - 1) + (-S_{t-1}) / CF_t - t0. Flows are otherwise booked at year end (see docs/conventions.md).
     A later outflow (a repeat purchase) that turns the cumulative flow negative again does not undo the
-    first crossing. A small tolerance (1e-12 of the largest flow) absorbs rounding at exact break-even.
+    first crossing. A cumulative flow never below zero pays back at once (0) when some money comes in;
+    with no flow at all there is nothing to pay back (inf, not within the horizon). A small tolerance
+    (1e-12 of the largest flow) absorbs rounding at exact break-even.
 
     References
     ----------

@@ -316,6 +316,29 @@ class TestPayback:
     def test_already_paid_at_year_zero(self):
         assert fin.simple_payback([100, -50]).payback_yr == 0.0
 
+    def test_counted_from_an_outlay_after_year_zero(self):
+        # Hand calculation, finance-metrics.md section 1a: a replacement bought at the failure year 2;
+        # cumulative 0, 0, -300, -200, -100, 0: back at zero at the end of year 5, 3 years after the outlay.
+        result = fin.simple_payback([0, 0, -300, 100, 100, 100, 100])
+        assert_allclose(result.payback_yr, 3.0, rtol=1e-14)
+        assert result.within_horizon is True
+
+    def test_money_out_only_never_pays_back(self):
+        # Hand calculation, finance-metrics.md section 1a: cumulative 0, -10, -20 never back at zero.
+        result = fin.simple_payback([0, -10, -10])
+        assert result.payback_yr == np.inf and result.within_horizon is False
+
+    def test_no_flows_have_no_payback(self):
+        # finance-metrics.md section 1a: nothing is invested and nothing comes in (e.g. a replacement whose
+        # failure year lies beyond the horizon).
+        result = fin.simple_payback([0.0, 0.0, 0.0])
+        assert result.payback_yr == np.inf and result.within_horizon is False
+
+    def test_money_in_without_outlay_pays_back_at_once(self):
+        # finance-metrics.md section 1a: a project costing nothing that saves from year 1.
+        result = fin.simple_payback([0, 50, 50])
+        assert result.payback_yr == 0.0 and result.within_horizon is True
+
     def test_discounted(self):
         # Hand calculation, finance-metrics.md section 2: 3 + 21.036814/341.506728 = 3.0616.
         assert_allclose(fin.discounted_payback([-1000, 300, 400, 500, 500], 0.10).payback_yr, 3.0616, rtol=1e-10)
@@ -343,19 +366,25 @@ class TestPayback:
 
 
 def _payback_by_plain_numpy(c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """The payback rule in plain numpy, array by array (reference for the compiled pass)."""
+    """The payback rule in plain numpy, array by array (reference for the compiled pass): from the first year
+    the cumulative flow is below zero to the first year after it that it is back at zero or above."""
     scale = np.maximum(np.max(c, axis=-1), -np.min(c, axis=-1))[..., None]
     cumulative = np.cumsum(c, axis=-1)
-    reached = cumulative >= -1e-12 * scale
-    first = np.argmax(reached, axis=-1)
-    within = np.take_along_axis(reached, first[..., None], axis=-1)[..., 0]
+    tolerance = -1e-12 * scale
+    out = cumulative < tolerance
+    has_outlay = out.any(axis=-1)
+    outlay = np.argmax(out, axis=-1)
+    back = (cumulative >= tolerance) & (np.arange(c.shape[-1]) > outlay[..., None]) & has_outlay[..., None]
+    has_back = back.any(axis=-1)
+    first = np.argmax(back, axis=-1)
     at = np.take_along_axis(cumulative, first[..., None], axis=-1)[..., 0]
     before = np.take_along_axis(cumulative, np.maximum(first - 1, 0)[..., None], axis=-1)[..., 0]
-    flow = np.where(first == 0, at, at - before)
+    flow = at - before
     with np.errstate(divide="ignore", invalid="ignore"):
         part = np.clip(-before / np.where(flow > 0, flow, 1.0), 0.0, 1.0)
-    years = np.where(first == 0, 0.0, first - 1.0 + part)
-    return np.where(within, years, np.inf), within
+    at_once = ~has_outlay & (cumulative > -tolerance).any(axis=-1)
+    years = np.where(has_back, first - 1.0 + part - outlay, np.where(at_once, 0.0, np.inf))
+    return years, has_back | at_once
 
 
 class TestPaybackPass:

@@ -341,7 +341,9 @@ def hand(tmp_path_factory):
     ws = book.create_sheet("Cash flows")
     cases = {"A": {"capital_equipment": [-1000, 0, 0, 0], "savings_energy": [0, 400, 400, 400]},
              "B": {"capital_equipment": [-1000, 0, 0, 0], "savings_energy": [0, -10, -10, -10]},
-             "C": {"savings_energy": [0, 0, 50, 50]}}
+             "C": {"savings_energy": [0, 0, 50, 50]},
+             "D": {"capital_equipment": [0, -300, 0, 0], "savings_energy": [0, 0, 200, 200]},
+             "E": {"capital_equipment": [0, 0, 0, 0]}}
     row = 1
     for name, flows in cases.items():
         table = pd.DataFrame.from_dict(flows, orient="index", columns=range(4), dtype=float)
@@ -376,6 +378,17 @@ class TestBlockFormulasByHand:
         assert_allclose([as_float(c["Simple payback [yr]"]), as_float(c["Discounted payback [yr]"])], 0.0,
                         atol=1e-12)  # hand, case C: S_0 = 0 has paid back at once
         assert c["IRR"] == "none"
+
+
+    def test_case_d_counted_from_the_outlay(self, hand):
+        # hand, case D (pack-workbook-formulas.md): bought in year 1 (a replacement at failure); cumulative 0,
+        # -300, -100, +100: back at zero in year 3 at 2 + 100/200 = 2.5, less the outlay year 1: 1.5 yr
+        assert_allclose(as_float(hand["D"]["Simple payback [yr]"]), 1.5, rtol=1e-12)
+
+    def test_case_e_no_flows_no_payback(self, hand):
+        # hand, case E: nothing invested, nothing saved (a failure beyond the horizon)
+        e = hand["E"]
+        assert e["Simple payback [yr]"] == e["Discounted payback [yr]"] == "not within horizon"
 
 
 def test_defaulted_inputs_are_numbers_to_six_digits():

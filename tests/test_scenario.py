@@ -611,3 +611,20 @@ def test_add_ons_are_bought_at_once_when_replacements_wait_for_failure(demo_run_
     pd.testing.assert_series_equal(later.loc[add_ons, "npv"], now.loc[add_ons, "npv"])
     replacing = (now["technology"] == "induction").to_numpy()
     assert (later.loc[replacing, "npv"] != now.loc[replacing, "npv"]).any()
+
+
+def test_replacements_at_failure_pay_back_from_their_purchase(demo_run_physics):
+    # a replacement bought at the failure year has nothing in year 0: its payback runs from its purchase
+    # (finance-metrics.md section 1a), so none reads 0 "within the horizon" before any money is spent, and a
+    # rewind that only costs money never pays back
+    case, phys = demo_run_physics
+    later = scenario.economics(case, phys, replace(case.finance, replacement_mode="replace_at_failure"),
+                               with_risk=False)
+    r = later.results
+    flows = later.cash_flows.net()
+    waits = (flows[:, 0] == 0) & (flows.min(axis=1) < 0)  # the first money out after year 0
+    assert waits.sum() > 20
+    assert (r.loc[waits, "simple_payback_yr"].fillna(np.inf) > 0).all()
+    losing = waits & (flows.max(axis=1) <= 0)
+    assert losing.any() and not np.isfinite(r.loc[losing, "simple_payback_yr"]).any()  # (blank in results.csv)
+    assert not r.loc[losing, "payback_within_horizon"].any()

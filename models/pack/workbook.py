@@ -426,9 +426,11 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
     * NPV: ``=B_net + NPV(d, C_net:last_net)``: the spreadsheet NPV discounts its first value by one
       period, so year 0 stays outside and NPV = sum CF_t / (1 + d)^t [1];
     * IRR: ``=IRR(B_net:last_net, guess)``, "none" when the function finds no rate;
-    * payback: in the first year t with S_{t-1} < 0 <= S_t, (t - 1) - S_{t-1} / CF_t (flows taken
-      to accrue evenly through the year), 0 when S_0 >= 0; the discounted payback does the same on
-      CF_t / (1 + d)^t [1]. "not within horizon" when the cumulative flow never turns >= 0.
+    * payback: from the first year t0 with S_t0 < 0 (the "year below zero" row's minimum) to the first
+      year t with S_{t-1} < 0 <= S_t: (t - 1) - S_{t-1} / CF_t - t0 (flows taken to accrue evenly
+      through the year); 0 when S is never below zero and some S_t > 0; the discounted payback does the
+      same on CF_t / (1 + d)^t [1]. "not within horizon" when the cumulative flow does not come back to
+      >= 0, or when there are no flows.
 
     References
     ----------
@@ -464,13 +466,21 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
     dcum_v = np.cumsum(disc_v)
 
     def crossed(running: np.ndarray, flow: np.ndarray, t: int) -> Any:
-        if t == 0:
-            return 0.0 if running[0] >= 0 else ""
         return t - 1 - running[t - 1] / flow[t] if running[t - 1] < 0 <= running[t] else ""
+
+    def paid_back(running: np.ndarray, flow: np.ndarray) -> Any:
+        """The payback formula's value: from the first year below zero to the first crossing back."""
+        below = [t for t in range(horizon + 1) if running[t] < 0]
+        if not below:
+            return 0.0 if running.max() > 0 else "not within horizon"
+        crossings = [v for v in (crossed(running, flow, t) for t in range(1, horizon + 1)) if _is_number(v)]
+        return min(crossings) - below[0] if crossings else "not within horizon"
     net = r
-    cum, factor, disc, dcum, cross, dcross = net + 1, net + 2, net + 3, net + 4, net + 5, net + 6
+    cum, factor, disc, dcum = net + 1, net + 2, net + 3, net + 4
+    out, dout, cross, dcross = net + 5, net + 6, net + 7, net + 8
     labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
               disc: "Discounted net cash flow", dcum: "Cumulative discounted cash flow",
+              out: "Year below zero, simple", dout: "Year below zero, discounted",
               cross: "Payback crossing, simple [yr]", dcross: "Payback crossing, discounted [yr]"}
     for rr, label in labels.items():
         put_text(ws, rr, 1, label).font = _BOLD if rr == net else Font()
@@ -487,13 +497,15 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2, disc_v[t] if known else None)
         put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2,
                     dcum_v[t] if known else None)
+        for target, running, values in ((out, cum, cum_v), (dout, dcum, dcum_v if known else None)):
+            below = None if values is None else (t if values[t] < 0 else "")
+            put_formula(ws, target, c, f'=IF({col}{running}<0,{col}${year_row},"")', None, below)
+        if t == 0:
+            continue  # (a crossing back to zero needs a year before it)
         for target, running, flow, computed in ((cross, cum, net, crossed(cum_v, net_v, t)),
                                                 (dcross, dcum, disc, crossed(dcum_v, disc_v, t) if known else None)):
-            if t == 0:
-                expr = f'=IF({col}{running}>=0,0,"")'
-            else:
-                expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
-                        f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
+            expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
+                    f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
             put_formula(ws, target, c, expr, f.years, computed)
     net_range = f"{_ref(first_col, net)}:{_ref(last_col, net)}"
     later = f"{_ref(first_col + 1, net)}:{_ref(last_col, net)}" if horizon >= 1 else None
@@ -501,28 +513,26 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
     _header(ws, m, ["Metric", "Workbook formula", "Engine", "Difference"])
     guess = m + 5
     npv_expr = f"={_ref(first_col, net)}+NPV({rate_ref},{later})" if later else f"={_ref(first_col, net)}"
-    crossing = f"{_ref(first_col, cross)}:{_ref(last_col, cross)}"
-    dcrossing = f"{_ref(first_col, dcross)}:{_ref(last_col, dcross)}"
+    def payback_formula(below_row: int, running_row: int, cross_row: int) -> str:
+        below = f"{_ref(first_col, below_row)}:{_ref(last_col, below_row)}"
+        running = f"{_ref(first_col, running_row)}:{_ref(last_col, running_row)}"
+        crossing = f"{_ref(first_col, cross_row)}:{_ref(last_col, cross_row)}"
+        return (f'=IF(COUNT({below})=0,IF(MAX({running})>0,0,"not within horizon"),'
+                f'IF(COUNT({crossing})=0,"not within horizon",MIN({crossing})-MIN({below})))')
+
     metrics = {
         "npv": (m + 1, "NPV at the discount rate", npv_expr, f.money2),
         "irr": (m + 2, "IRR", f'=IFERROR(IRR({net_range},{_ref(2, guess)}),"none")', f.frac),
-        "payback": (m + 3, "Simple payback [yr]",
-                    f'=IF(COUNT({crossing})=0,"not within horizon",MIN({crossing}))', f.years),
-        "discounted_payback": (m + 4, "Discounted payback [yr]",
-                               f'=IF(COUNT({dcrossing})=0,"not within horizon",MIN({dcrossing}))', f.years),
+        "payback": (m + 3, "Simple payback [yr]", payback_formula(out, cum, cross), f.years),
+        "discounted_payback": (m + 4, "Discounted payback [yr]", payback_formula(dout, dcum, dcross), f.years),
     }
-    def first_or(values: list[Any], fallback: str) -> Any:
-        numbers = [v for v in values if _is_number(v)]
-        return min(numbers) if numbers else fallback
-
     computed = {
         "npv": float(net_v[0] + (disc_v[1:].sum() if horizon >= 1 else 0.0)) if known else None,
         # the engine's rate, a root of the same flows (with several, the one closest to 0, as the block's note says;
         # a spreadsheet that recalculates may find another from its search start)
         "irr": engine.get("irr"),
-        "payback": first_or([crossed(cum_v, net_v, t) for t in range(horizon + 1)], "not within horizon"),
-        "discounted_payback": (first_or([crossed(dcum_v, disc_v, t) for t in range(horizon + 1)], "not within horizon")
-                               if known else None),
+        "payback": paid_back(cum_v, net_v),
+        "discounted_payback": paid_back(dcum_v, disc_v) if known else None,
     }
     rows = {"net": net}
     for name, (mr, label, expr, fmt) in metrics.items():
