@@ -391,12 +391,16 @@ def _scenario_meters(p_block, q_block, j, o, p0, q0, base_p, base_q, fixed_q, ha
     return finite_p, finite_q
 
 
-def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.ndarray) -> np.ndarray:
+def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.ndarray, taxes=()) -> np.ndarray:
     """Savings (S, n_components) [currency] of scenarios from their line-item amounts and the baseline's.
 
     Line items are gathered by category (as :func:`models.attribution.saving_by_category`) and the
-    categories into :data:`SAVING_COMPONENTS`; taxes and levies move with the charges they are levied
-    on, so what is left of the total saving is spread over the components in proportion.
+    categories into :data:`SAVING_COMPONENTS`. A tax or levy is linear in its base (a rate times the
+    charges it is levied on, summed over the months it applies in), so its change is attributed to each
+    component as rate x that component's change within its base, taking the earlier taxes' attributions
+    along for a base that includes them (``taxes``: the tariff's :class:`models.tariff.Tax` in bill
+    order). This is exact whatever the signs of the components. What is left of the total saving
+    (rounding, or a tax not among ``taxes``) is spread in proportion to the components' magnitudes.
     """
     diff = base_amounts[None, :] - amounts
     total = base_amounts.sum() - amounts.sum(axis=1)
@@ -407,9 +411,20 @@ def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.nd
         for cat in group:
             if cat in by_cat:
                 out[:, k] += by_cat[cat]
-    untaxed = out.sum(axis=1)
-    rest = total - untaxed
-    share = np.divide(out, untaxed[:, None], out=np.full_like(out, 1.0 / out.shape[1]), where=np.abs(untaxed[:, None]) > 1e-12)
+    charges = out.copy()  # each component's change in charges before any tax
+    taxed = np.zeros_like(out)  # the taxes' changes attributed so far, by component
+    for tax in taxes:
+        if f"tax:{tax.name}" not in names:
+            continue
+        base_cats = billing._TAX_BASE_CATEGORIES[tax.base]
+        within = np.array([any(cat in base_cats for cat in group) for group in COMPONENT_CATEGORIES.values()])
+        base = charges * within[None, :] + (taxed if "tax" in base_cats else 0.0)
+        taxed = taxed + float(tax.rate_pct) / 100.0 * base
+    out = out + taxed
+    rest = total - out.sum(axis=1)
+    size = np.abs(out)
+    share = np.divide(size, size.sum(axis=1, keepdims=True), out=np.full_like(out, 1.0 / out.shape[1]),
+                      where=size.sum(axis=1, keepdims=True) > 1e-12)
     return out + share * rest[:, None]
 
 
@@ -506,7 +521,7 @@ class SiteSavings:
             p, q, q_copy, finite = self.biller.scenario_meters(p0, q0, p_block, q_block, j, o, book=book,
                                                                kvar_copy=self.q_matters)
             names, amounts = self.biller._priced(p, q, check_p=not finite[0], check_q=not finite[1])
-            self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts)
+            self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts, self.setup.tariff.taxes)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario (scenario_totals with kw_changes False)
                 _, q_amounts = self.q_biller._priced(self.q_meter_p, q_copy, check_p=True, check_q=not finite[1])

@@ -1640,7 +1640,8 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
         ``warn`` returns the problems (the case is ``None`` when there are errors); ``strict`` raises
         :class:`~models.problems.CaseError` on any error.
     today : datetime.date, optional
-        Date used for the "not in the future" checks (default: today).
+        Date used for the "not in the future" checks and as the default ``purchase_date`` (default: today
+        in the case's time zone, so that machines in other zones read a case alike).
 
     Returns
     -------
@@ -1667,7 +1668,7 @@ def load_case(path: str | Path, mode: str = "warn", today: _dt.date | None = Non
     if mode not in ("warn", "strict"):
         raise ValueError(f"mode must be 'warn' or 'strict', got {mode!r}")
     try:
-        case, problems = _load(path, today or _dt.date.today())
+        case, problems = _load(path, today)
     except Exception as exc:  # last line of defence: a bad file must never end in a traceback
         case, problems = None, [error(str(path), None, None, None,
                                       f"internal error while checking the case ({exc.__class__.__name__}: {exc})",
@@ -1739,13 +1740,24 @@ def _check_price_currency(options: pd.DataFrame | None, source: str, currency: s
         f"or convert the shipped prices to {currency}"))
 
 
-def _load(path: str | Path, today: _dt.date) -> tuple[Case | None, list[Problem]]:
-    """Read and check a case; return it (None when any error was found) and every problem."""
+def _today_in(time_zone: str) -> _dt.date:
+    """Today's date in a time zone (the machine's own date where the zone is not known): the same for every
+    machine running a case at the same moment, whatever the machine's own zone."""
+    try:
+        return _dt.datetime.now(zoneinfo.ZoneInfo(time_zone)).date()
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        return _dt.date.today()
+
+
+def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[Problem]]:
+    """Read and check a case; return it (None when any error was found) and every problem. ``today`` None:
+    the date in the case's time zone."""
     raw = io.read_case_files(path)
     problems = list(raw.problems)
     if raw.kind == "missing" or (not raw.tables and has_errors(problems)):
         return None, problems  # nothing readable: settings warnings would only add noise
     settings = _settings(raw, problems)
+    today = today or _today_in(settings.time_zone)
     this_year = today.year
     if not settings.purchase_date:
         settings = replace(settings, purchase_date=today.isoformat())

@@ -147,3 +147,23 @@ def test_changed_pairs_are_the_numpy_rule():
     expected[:, 0] = False
     assert_array_equal(got, expected)
     assert got[1, 2] and got[2, 3] and not got[3, 1] and got[4, 4]
+
+
+def test_a_saving_split_by_component_carries_each_charges_own_taxes():
+    # Hand calculation, docs/derivations/billing-site-and-attribution.md T1: a 5 % levy on energy, then 19 %
+    # VAT on everything; energy -1,756.2168, demand -325.3372, reactive +1,628.2915 untaxed (today less option)
+    from models.bill_savings import _category_savings
+    from models.tariff import Tax
+
+    taxes = (Tax("levy", 5.0, "energy_charges"), Tax("VAT", 19.0, "all_charges_and_earlier_taxes"))
+    names = ["energy:all", "demand:peak", "reactive:lagging", "tax:levy", "tax:VAT"]
+    today = np.array([10_000.0, 2_000.0, 3_000.0])
+    option = today - np.array([-1756.2168, -325.3372, 1628.2915])
+
+    def with_taxes(charges):  # the bill's own arithmetic, written out: levy on energy, VAT on all and the levy
+        levy = 0.05 * charges[0]
+        return np.r_[charges, levy, 0.19 * (charges.sum() + levy)]
+
+    saving = _category_savings(names, with_taxes(today), with_taxes(option)[None, :], taxes)[0]
+    assert_allclose(saving, [-2194.39, -387.15, 1937.67, 0.0], atol=0.005)  # energy, demand, reactive, fixed
+    assert_allclose(saving.sum(), -643.88, atol=0.005)

@@ -722,3 +722,21 @@ class TestHintsForOtherConventions:
         _, problems = load_case(cb.write_case(tmp_path, assets=assets, asset_header=header))
         found = _find(problems, column="rated_p_hp", row=2, text="would draw")
         assert "W rather than kW" not in found.hint and "kV rather than V" in found.hint
+
+
+def test_the_default_purchase_date_is_the_cases_own_day_whatever_the_machines_zone(monkeypatch):
+    # the demo's time zone is Europe/Berlin (data/demo/case.toml): a machine set to a zone a day ahead or behind
+    # reads the same purchase date, so the same case gives the same files on either
+    import datetime as dt
+    import time
+    import zoneinfo
+
+    days = set()
+    for zone in ("Pacific/Kiritimati", "Pacific/Pago_Pago"):  # UTC+14 and UTC-11: never on one date at once
+        monkeypatch.setenv("TZ", zone)
+        time.tzset()
+        case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
+        days.add(case.settings.purchase_date)
+    monkeypatch.delenv("TZ")
+    time.tzset()
+    assert days == {dt.datetime.now(zoneinfo.ZoneInfo("Europe/Berlin")).date().isoformat()}
