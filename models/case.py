@@ -1703,12 +1703,29 @@ def _check_rules_ahead(settings: CaseSettings, source: str, assets: pd.DataFrame
 def _check_region_against_frequency(settings: CaseSettings, source: str, assets: pd.DataFrame,
                                     problems: list[Problem]) -> None:
     """Warn when a case gives no region, so the EU's minimum-efficiency rules are taken, yet most of its
-    motors run at 60 Hz (the supply of the Americas, parts of Asia): the rules decide which new motors
-    can still be bought and the baseline of a replacement at failure. Changes nothing."""
-    if settings.region_declared or "supply_f_hz" not in assets or usual_supply_hz(assets["supply_f_hz"]) != 60:
+    motors run at 60 Hz (the supply of the Americas, parts of Asia), or declares the EU or the US while
+    most of its motors run on the other's frequency: the rules decide which new motors can still be
+    bought and the baseline of a replacement at failure. Changes nothing."""
+    if "supply_f_hz" not in assets:
         return
+    usual = usual_supply_hz(assets["supply_f_hz"])
     f_hz = pd.to_numeric(assets["supply_f_hz"], errors="coerce").to_numpy(dtype=float)
     n60, n50 = int(np.sum(f_hz == 60)), int(np.sum(f_hz == 50))
+    if settings.region_declared:
+        # a region written down (the blank templates write region = "EU") whose supply most motors do not run on
+        region_hz = {"EU": 50, "US": 60}.get(settings.region)
+        n_usual = n60 if usual == 60 else n50
+        if region_hz is not None and usual != region_hz and 2 * n_usual > n60 + n50:
+            problems.append(warning(
+                source, None, "region", settings.region,
+                f"region {settings.region} is declared, whose minimum-efficiency rules are for {region_hz} Hz motors, "
+                f"but {n_usual} of {n60 + n50} motors with a supply frequency run at {usual} Hz: the {settings.region} "
+                "rules decide which new motors are offered",
+                f"check the region under [case] (one of {', '.join(REGIONS)}); the blank case templates write "
+                'region = "EU"'))
+        return
+    if usual != 60:
+        return
     problems.append(warning(
         source, None, "region", None,
         f"no region declared, so the EU's minimum-efficiency rules for new motors are assumed, but {n60} of "
@@ -1825,6 +1842,16 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
     if has_errors(problems) or "assets" not in frames or "sites" not in frames or options_frame is None:
         return None, problems
     assets, defaults = _fill_defaults(frames["assets"], duty_ids)
+    undefaulted = np.flatnonzero(np.isnan(assets["rated_efficiency_pct"].to_numpy(dtype=float)))
+    if len(undefaulted):  # no model can run such a motor: said here, by row, rather than when a run starts
+        checker = checkers["assets"]
+        before = len(checker.problems)
+        for i in undefaulted:
+            checker.err(i, "rated_efficiency_pct", None,
+                        "no rated efficiency given, and none can be taken from the efficiency classes for this "
+                        "motor's rating, poles and supply frequency",
+                        "give the nameplate efficiency in percent")
+        return None, ordered(problems + checker.problems[before:])
     empty_caps = _TableChecker(io.RawTable("capacitors", "capacitors.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_duty = _TableChecker(io.RawTable("duty", "duty.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     case = Case(

@@ -104,7 +104,9 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
     from 0.75 kW; from 200 kW to 1000 kW the 200 kW value applies [2]. 60 Hz: the federal tables with the
     midpoint rule between listed ratings [3]; ratings above the largest listed row take its value.
     Derived levels: IE5 = 100 - 0.8 (100 - eta_IE4) (from memory); IE1 and IE4 at 60 Hz and IE1 8-pole
-    at 50 Hz scale the neighbouring class's losses by the 50 Hz loss ratio at the same rating and poles.
+    at 50 Hz scale the neighbouring class's losses by the 50 Hz loss ratio at the same rating and poles
+    (IE1 below 0.75 kW by the ratio at 0.75 kW); IE2 and IE3 8-pole at 60 Hz, which the federal table does
+    not list, scale the 50 Hz 8-pole losses by the 6-pole ratio of 60 Hz to 50 Hz losses at the same rating.
 
     References
     ----------
@@ -145,6 +147,11 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
         else:
             if name in ("IE2", "IE3"):
                 value = _table_60hz(np.clip(p, 0.75, None), n_poles, name)
+                # 8-pole motors, which the federal table does not list: the 50 Hz 8-pole level with its losses
+                # scaled by the 6-pole ratio of 60 Hz to 50 Hz losses at the same rating (derived)
+                six = np.full(p.shape, 6.0)
+                ratio = (100 - _table_60hz(np.clip(p, 0.75, None), six, name)) / (100 - _formula_50hz(p, six, name))
+                value = np.where(np.isnan(value) & (n_poles == 8), _from_loss_ratio(level(50.0, name), ratio), value)
             elif name == "IE1":
                 ratio = (100 - level(50.0, "IE1")) / (100 - level(50.0, "IE2"))
                 value = _from_loss_ratio(level(60.0, "IE2"), ratio)
@@ -164,8 +171,9 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
 
 def _ie1_ie2_loss_ratio(rated_p_kw: np.ndarray) -> np.ndarray:
     """IE1/IE2 loss ratio of 4-pole motors at 50 Hz, used to derive IE1 where no coefficients exist."""
-    p4 = np.full(np.shape(rated_p_kw), 4)
-    return (100 - _formula_50hz(rated_p_kw, p4, "IE1")) / (100 - _formula_50hz(rated_p_kw, p4, "IE2"))
+    p = np.clip(np.asarray(rated_p_kw, dtype=float), 0.75, None)  # (no IE1 coefficients below 0.75 kW)
+    p4 = np.full(np.shape(p), 4)
+    return (100 - _formula_50hz(p, p4, "IE1")) / (100 - _formula_50hz(p, p4, "IE2"))
 
 
 def efficiency_basis(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
@@ -184,7 +192,7 @@ def efficiency_basis(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
     published = (
         ((f == 50) & np.isin(cls, ["IE2", "IE3", "IE4"]))
         | ((f == 50) & (cls == "IE1") & (n_poles != 8))
-        | ((f == 60) & np.isin(cls, ["IE2", "IE3"]))
+        | ((f == 60) & np.isin(cls, ["IE2", "IE3"]) & (n_poles != 8))
     )
     return np.where(np.isnan(value), "out of scope", np.where(published, "published", "derived"))
 

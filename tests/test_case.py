@@ -690,6 +690,16 @@ class TestRegionAgainstFrequency:
         assert case.settings.region == "US" and not [p for p in problems if p.column == "region"]
         _, problems = load_case(cb.write_case(tmp_path / "eu"))
         assert not [p for p in problems if p.column == "region"]
+        _, problems = load_case(cb.write_case(tmp_path / "eu2", case_toml=cb.CASE_TOML + 'region = "EU"\n'))
+        assert not [p for p in problems if p.column == "region"]
+
+    def test_the_eu_declared_for_a_60_hz_fleet_is_warned(self, tmp_path):
+        # the blank templates write region = "EU": a US user who keeps that line is told the rules do not fit
+        case, problems = load_case(self._sixty_hz(tmp_path / "c", cb.CASE_TOML + 'region = "EU"\n'))
+        assert case is not None and case.settings.region == "EU"
+        found = _find(problems, column="region", severity="warning")
+        assert "region EU is declared" in found.rule and "but 3 of 3 motors with a supply frequency run at 60 Hz" in found.rule
+        assert "one of EU, US, CN, OTHER" in found.hint
 
 
 class TestHintsForOtherConventions:
@@ -740,3 +750,24 @@ def test_the_default_purchase_date_is_the_cases_own_day_whatever_the_machines_zo
     monkeypatch.delenv("TZ")
     time.tzset()
     assert days == {dt.datetime.now(zoneinfo.ZoneInfo("Europe/Berlin")).date().isoformat()}
+
+
+def test_a_motor_whose_efficiency_cannot_be_defaulted_is_refused_by_row(tmp_path, monkeypatch):
+    # should the class tables give no efficiency for a motor with none on its nameplate, check says so for its
+    # row instead of a run failing later on an internal array
+    from models import defaults as nameplate_defaults
+
+    real = nameplate_defaults.default_efficiency_pct
+
+    def none_for_the_second(*args, **kwargs):
+        values, basis = real(*args, **kwargs)
+        values = np.array(values, dtype=float)
+        values[1] = np.nan
+        return values, basis
+
+    monkeypatch.setattr(nameplate_defaults, "default_efficiency_pct", none_for_the_second)
+    case, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(1, "rated_efficiency_pct", "")))
+    assert case is None
+    found = _find(problems, row=3, column="rated_efficiency_pct", text="none can be taken from the efficiency classes")
+    assert "nameplate efficiency" in found.hint
+

@@ -73,8 +73,21 @@ class TestMinEfficiency60Hz:
         assert_allclose(min_efficiency_pct([12.9, 13.0, 14.0], 4, 60, "IE3"), [92.4, 93.0, 93.0], atol=1e-9)
 
     def test_derived_levels_are_flagged(self):
-        basis = efficiency_basis([15, 15, 15], [4, 4, 4], [60, 60, 50], ["IE4", "IE3", "IE3"])
-        assert list(basis) == ["derived", "published", "published"]
+        basis = efficiency_basis([15, 15, 15, 15], [4, 4, 4, 8], [60, 60, 50, 60], ["IE4", "IE3", "IE3", "IE3"])
+        assert list(basis) == ["derived", "published", "published", "derived"]
+
+    def test_eight_poles_which_the_federal_table_does_not_list(self):
+        # Hand calculation, docs/derivations/case-defaults.md "8-pole motors at 60 Hz": the 50 Hz 8-pole IE3
+        # level at 15 kW (89.6, IEC 60034-30-1 Table 2) with its losses scaled by the 6-pole ratio of 60 Hz
+        # (91.7, 10 CFR 431.25 Table 1, 20 hp) to 50 Hz (91.2) losses: 100 - 10.4 x 8.3 / 8.8 = 90.19
+        assert_allclose(min_efficiency_pct(15, 8, 60, "IE3"), 90.2, atol=0.05)
+        assert np.isfinite(min_efficiency_pct([0.75, 110, 375], 8, 60, "IE2")).all()
+
+    def test_one_horsepower_ie1(self):
+        # Hand calculation, docs/derivations/case-defaults.md: 1 hp = 0.7457 kW is below the 0.75 kW of the IE1
+        # coefficients; the IE1/IE2 loss ratio at 0.75 kW 4-pole (72.1 and 79.6 %, IEC 60034-30-1 Table 2)
+        # scales the 1 hp 4-pole EPAct level (82.5 %): 100 - 27.9 / 20.4 x 17.5 = 76.07
+        assert_allclose(min_efficiency_pct(0.7457, 4, 60, "IE1"), 76.07, atol=0.1)
 
 
 class TestClassOfEfficiency:

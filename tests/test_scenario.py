@@ -628,3 +628,22 @@ def test_replacements_at_failure_pay_back_from_their_purchase(demo_run_physics):
     losing = waits & (flows.max(axis=1) <= 0)
     assert losing.any() and not np.isfinite(r.loc[losing, "simple_payback_yr"]).any()  # (blank in results.csv)
     assert not r.loc[losing, "payback_within_horizon"].any()
+
+
+def test_sixty_hertz_motors_of_eight_and_twelve_poles_run(tmp_path):
+    # 8-pole (900 rpm) and 12-pole 60 Hz motors are ordinary in a US plant; the class tables have no 60 Hz
+    # 8-pole column, so their levels are derived (docs/derivations/case-defaults.md) and the analysis runs
+    rows = [list(r) for r in cb.ASSETS]
+    for row, poles in zip(rows[:2], ("8", "12")):
+        row[5], row[6], row[11], row[8] = poles, "60", "", ""  # poles, 60 Hz, no speed, no class
+    folder = tmp_path / "c"
+    cb.write_case(folder, assets=rows, case_toml=cb.CASE_TOML + 'region = "US"\n')
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    assert np.isfinite(case.assets["rated_efficiency_pct"]).all()
+    result = scenario.run(case, case.finance, with_risk=False)
+    assert np.isfinite(result.results["npv"]).all() and len(result.results) > 10
