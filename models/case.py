@@ -1687,7 +1687,7 @@ def _check_rules_ahead(settings: CaseSettings, source: str, assets: pd.DataFrame
     p_kw = pd.to_numeric(assets["rated_p_kw"], errors="coerce").to_numpy(dtype=float)
     poles = pd.to_numeric(assets["poles"], errors="coerce").to_numpy(dtype=float)
     for rule in rules_taking_effect(settings.region, p_kw, poles, settings.purchase_date):
-        sizes = f"{rule['min_rated_p_kw']:g}-{rule['max_rated_p_kw']:g} kW"
+        sizes = f"{rule['min_rated_p_kw']:.4g}-{rule['max_rated_p_kw']:.4g} kW"
         if power_label(settings.power_unit) == "hp":
             sizes = (f"{rating_in_unit(rule['min_rated_p_kw'], 'hp'):.0f}-{rating_in_unit(rule['max_rated_p_kw'], 'hp'):.0f}"
                      f" hp ({sizes})")

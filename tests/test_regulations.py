@@ -53,7 +53,7 @@ def test_purchase_date_defaults_to_the_day_of_the_run_and_warns_of_a_rule_ahead(
     assert case.settings.purchase_date == "2026-12-03"
     ahead = [p for p in problems if p.column == "purchase_date"]
     assert len(ahead) == 1 and ahead[0].severity == "warning"
-    assert "a US rule from 2027-06-01 asks IE4 of new motors of 75-186.5 kW: 1 motor of this case" in ahead[0].rule
+    assert "a US rule from 2027-06-01 asks IE4 of new motors of 74.57-186.4 kW: 1 motor of this case" in ahead[0].rule
     assert "purchase_date = 2027-06-01" in ahead[0].hint
 
 
@@ -75,3 +75,16 @@ def test_a_purchase_date_not_written_as_a_date_is_an_error(tmp_path, written):
     bad = [p for p in problems if p.column == "purchase_date" and p.severity == "error"]
     assert len(bad) == 1 and "YYYY-MM-DD" in bad[0].rule, [str(p) for p in problems]
     assert np.all([p.file == "case.toml" for p in bad])
+
+
+def test_ratings_in_horsepower_meet_the_rules_own_bounds():
+    # 10 CFR 431.25 sets its scopes in hp: 1-500 hp premium (2016), 100-250 hp IE4-level and 501-750 hp premium
+    # (from 1 June 2027). A rating given in hp becomes kW at 0.745699872 kW/hp (NIST SP 811, B.8, from memory): 1 hp =
+    # 0.7457 kW and 100 hp = 74.57 kW, just below the 0.75 and 75 kW "standard kilowatt equivalents"
+    # (hand calculation): each must still fall inside its own rule.
+    hp = 0.745699872
+    ratings = [1 * hp, 100 * hp, 250 * hp, 500 * hp, 501 * hp, 750 * hp, 75.0, 0.75]
+    before = minimum_class("US", ratings, [4] * 8, "2027-05-31").tolist()
+    after = minimum_class("US", ratings, [4] * 8, "2027-06-01").tolist()
+    assert before == ["IE3", "IE3", "IE3", "IE3", "none", "none", "IE3", "IE3"]
+    assert after == ["IE3", "IE4", "IE4", "IE3", "IE3", "IE3", "IE4", "IE3"]
