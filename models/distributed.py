@@ -68,6 +68,16 @@ class SiteLost(RuntimeError):
     """A site's task lost with its worker :data:`SITE_ATTEMPTS` times (a worker that keeps dying on it)."""
 
 
+def _site_lost(case, site_id: str, when: str) -> SiteLost:
+    """The error of a site lost with its worker (``when``: how often, or at which step), in words."""
+    n_assets = int((case.assets["site_id"].astype(str) == str(site_id)).sum())
+    return SiteLost(
+        f"the task of site {site_id} ({counted(n_assets, 'motor')}) was lost with its worker {when}: a Dask worker "
+        "that dies while it works has most often run out of memory. Give each worker more memory (`dask worker "
+        "ADDRESS --memory-limit 8GB`, or fewer workers per machine; the estimate printed before a large run gives "
+        "the memory a run needs) and look in the workers' logs for the cause")
+
+
 def _least_busy_worker(client) -> str | None:
     """The address of the worker with the fewest tasks per thread, or None while the cluster has none."""
     threads = client.nthreads()
@@ -126,8 +136,10 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
                 data = client.scatter(sub_case, direct=True, hash=False, workers=[worker])
             except (OSError, ValueError) as exc:  # the worker left between the choice and the sending
                 # (CommClosedError is an OSError; the scheduler says "No valid workers found" once it knows)
-                if not tries_left or (isinstance(exc, ValueError) and "no valid workers" not in str(exc).lower()):
+                if isinstance(exc, ValueError) and "no valid workers" not in str(exc).lower():
                     raise
+                if not tries_left:
+                    raise _site_lost(case, site_id, "as its data was being sent") from None
                 continue
             future = client.submit(_site_task, data, *args, key=key, pure=False, workers=[worker])
             break
@@ -142,13 +154,7 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
             op, part, books = future.result()
         except (KilledWorker, CancelledError):
             if attempts[site_id] >= SITE_ATTEMPTS:
-                n_assets = int((case.assets["site_id"].astype(str) == str(site_id)).sum())
-                raise SiteLost(
-                    f"the task of site {site_id} ({counted(n_assets, 'motor')}) was lost with its worker {counted(SITE_ATTEMPTS, 'time')}: a "
-                    "Dask worker that dies while running a task has most often run out of memory. Give each worker "
-                    "more memory (`dask worker ADDRESS --memory-limit 8GB`, or fewer workers per machine; the "
-                    "estimate printed before a large run gives the memory a run needs) and look in the workers' "
-                    "logs for the cause") from None
+                raise _site_lost(case, site_id, counted(SITE_ATTEMPTS, "time")) from None
             waiting.appendleft((k, site_id))
         else:
             done += 1
