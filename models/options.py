@@ -16,6 +16,10 @@ import pandas as pd
 #: Currency and year of the shipped catalogue's illustrative prices (data/defaults/options.csv, its first line).
 ILLUSTRATIVE_PRICES_CURRENCY = "EUR"
 ILLUSTRATIVE_PRICES_YEAR = 2025
+#: Relative margin below an option's smallest rating within which a motor still counts as in range: a rating
+#: given in hp converts at 0.7457 kW/hp (1 hp = 0.7457 kW), 0.6 % below the standard kW equivalent that
+#: catalogues list (1 hp as 0.75 kW).
+RATING_MARGIN_FRAC = 0.006
 #: Capital components, in the order they are reported.
 CAPEX_COMPONENTS: tuple[str, ...] = (
     "equipment", "drive", "remedy", "capacitor", "installation", "engineering", "contingency",
@@ -225,7 +229,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
         mask = np.broadcast_to(mask, (n_a, n_o))
         reason[(reason == "") & mask] = why
 
-    exclude(p < options["min_rated_p_kw"].to_numpy(dtype=float)[None, :] - 1e-9, "rating below the option's range")
+    exclude(p < options["min_rated_p_kw"].to_numpy(dtype=float)[None, :] * (1.0 - RATING_MARGIN_FRAC) - 1e-9,
+            "rating below the option's range")
     exclude(p > options["max_rated_p_kw"].to_numpy(dtype=float)[None, :] + 1e-9, "rating above the option's range")
     apps = [set(filter(None, str(a).split("|"))) for a in options["applications"]]
     app_ok = np.array([[not allowed or a in allowed for allowed in apps] for a in app[:, 0]], dtype=bool).reshape(n_a, n_o)

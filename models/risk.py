@@ -453,6 +453,7 @@ def monte_carlo(
     tax_rate_frac: float = 0.0,
     tax_component: str = "tax_savings",
     max_chunk_elements: int = 4_000_000,
+    payback_leaves_out: tuple[str, ...] = ("residual",),
 ) -> MonteCarloResult:
     """Re-price per-component cash flows under every draw and return NPV and payback per project.
 
@@ -481,6 +482,9 @@ def monte_carlo(
         Name of the tax-on-savings component.
     max_chunk_elements : int
         Largest (draws x projects x years) block held in memory at once.
+    payback_leaves_out : tuple of str
+        Components the payback does not count (the residual value at the horizon's end: a book value,
+        not cash), as the deterministic paybacks of :func:`models.scenario.economics`.
 
     Returns
     -------
@@ -537,7 +541,7 @@ def monte_carlo(
             raise ValueError(f"factor {rule.escalation_delta!r} is not among the factors")
         key = (tuple(rule.multipliers), rule.escalation_delta,
                float(rule.base_escalation_frac) if rule.escalation_delta is not None else 0.0,
-               bool(rule.taxable and tax_rate_frac > 0))
+               bool(rule.taxable and tax_rate_frac > 0), component_names[c] in payback_leaves_out)
         groups[key] = groups[key] + amounts[:, :, c] if key in groups else amounts[:, :, c].copy()
     keys = list(groups)
     bases = np.stack([groups[k] for k in keys]) if keys else np.zeros((0, n, width))
@@ -547,7 +551,7 @@ def monte_carlo(
         # coefficient of each group by draw and year: its factors times its escalation growth
         coef = np.ones((len(keys), size, width))
         per_project: list[tuple[int, np.ndarray]] = []
-        for g, (multipliers, escalation_delta, base_escalation, taxed) in enumerate(keys):
+        for g, (multipliers, escalation_delta, base_escalation, taxed, _left_out) in enumerate(keys):
             weight = _multiplier(multipliers, factors, draws, n)
             if taxed:
                 weight = weight * (1.0 - tax_rate_frac)
@@ -564,6 +568,11 @@ def monte_carlo(
             flows += weight[:, :, None] * bases[g][None, :, :] * coef[g][:, None, :]
         discount = np.power(1.0 + rate[draws, None], -t[None, :])
         npv_out[draws] = np.einsum("dnt,dt->dn", flows, discount)
+        weights = dict(per_project)
+        for g, key in enumerate(keys):  # the components the payback leaves out, taken off the flows
+            if key[4]:
+                flows -= (weights[g][:, :, None] * bases[g][None, :, :] * coef[g][:, None, :] if g in weights
+                          else np.einsum("dt,nt->dnt", coef[g], bases[g]))
         payback: PaybackResult = simple_payback(flows, overwrite=True)  # flows are not used after this
         payback_out[draws] = payback.payback_yr
     ids = np.arange(n).astype(str) if project_id is None else np.asarray(project_id, dtype=object).astype(str)

@@ -519,8 +519,11 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     npv_v = finance.npv(net, d)
     irr_res = finance.irr(net)
     mirr_v = finance.mirr(net, d, d)
-    simple = finance.simple_payback(net)
-    disc = finance.discounted_payback(net, d)
+    # the paybacks leave out the value the option still has at the horizon's end (a book value, not cash), so
+    # that a shorter study does not shorten them
+    paying = net - flows.component("residual")
+    simple = finance.simple_payback(paying)
+    disc = finance.discounted_payback(paying, d)
     savings_flows, investment_flows = flows.savings_and_investment()
     sir = finance.savings_to_investment_ratio(savings_flows, investment_flows, d)
     # no adjusted rate where the savings' present value is not positive (the formula's -100 % means nothing)
@@ -905,7 +908,8 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     frame["downtime_cost_per_h"] = downtime
     frame["downtime_cost_basis"] = pd.array(np.asarray(basis, dtype=object).astype(str), dtype="str")
     frame.index.name = "asset_id"
-    return frame.reset_index()
+    # a motor for which no new induction motor is offered has no replacement to compare (none is named)
+    return frame.reset_index()[op.applies[:, new_candidates].any(axis=1)].reset_index(drop=True)
 
 
 def _policy_new_motor(case, induction: pd.DataFrame, sizes_kw: np.ndarray, f_hz: int) -> tuple[np.ndarray, np.ndarray]:

@@ -116,3 +116,20 @@ def test_new_motors_below_the_regional_minimum_are_not_offered():
     assert applies[0, ids.index("ie4")] and applies[1, ids.index("ie3")]
     without, _ = applicability(options, assets)
     assert without[0, ids.index("ie3")]
+
+
+def test_a_rating_in_horsepower_meets_the_catalogues_smallest_rating():
+    # 1 hp = 0.7457 kW (0.745699872 kW/hp), 0.6 % below the 0.75 kW that catalogues list for it (hand calculation):
+    # a 1 hp motor is offered what a 0.75 kW motor is; 0.70 kW stays below the range
+    from models.case import load_case
+    from models.options import applicability
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")  # the default catalogue
+    options = case.options
+    assets = pd.DataFrame({"rated_p_kw": [0.745699872, 0.75, 0.70], "poles": [4, 4, 4], "application": ["pump"] * 3,
+                           "load_type": ["centrifugal"] * 3, "speed_control": ["throttle"] * 3,
+                           "machine_type": ["induction"] * 3})
+    applies, reason = applicability(options, assets)
+    assert (applies[0] == applies[1]).all() and applies[0].sum() > 1
+    ids = list(options["option_id"])
+    assert not applies[2, ids.index("ie3")] and "below the option's range" in reason[2, ids.index("ie3")]

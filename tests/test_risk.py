@@ -8,6 +8,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from models import risk
+from models.finance import simple_payback
 from models.cashflows import COMPONENTS, ProjectInputs, build_cash_flows
 from models.finance import FinanceAssumptions
 
@@ -131,6 +132,23 @@ class TestMonteCarlo:
         t = np.arange(13)
         expected = (flows.net() / 1.08 ** t).sum(axis=1)
         assert_allclose(result.npv, np.tile(expected, (3, 1)), rtol=1e-12)
+        # and the payback is the cash flows' own, the residual value at the horizon's end left out (as
+        # models.scenario.economics computes it; expected from models.finance on the flows themselves)
+        assert np.any(flows.component("residual"))
+        paid = simple_payback(flows.net() - flows.component("residual")).payback_yr
+        assert_allclose(result.payback_yr, np.tile(paid, (3, 1)), rtol=1e-12)
+
+    def test_payback_leaves_the_residual_value_out(self):
+        # hand calculation: 5,500 spent, 649.66 saved a year, a 20-year life studied over 5 years; the
+        # residual 15/20 x 5,500 = 4,125 at year 5 would make the cumulative flow -5,500 + 5 x 649.66 + 4,125 =
+        # +1,873.3, a "payback" of 4.61 years; without it the cumulative flow ends at -2,251.7: no payback
+        a = FinanceAssumptions(horizon_yr=5, discount_rate_frac=0.08)
+        flows = build_cash_flows(ProjectInputs(project_id=["m3"], capex_equipment=5500.0,
+                                               savings_energy_per_yr=649.66, option_life_yr=20.0), a)
+        assert_allclose(flows.component("residual")[0, 5], 4125.0, rtol=1e-12)
+        result = risk.monte_carlo(flows.amounts, flows.component_names, fixed(2), risk.default_response(a),
+                                  a.discount_rate_frac)
+        assert np.isinf(result.payback_yr).all()
 
     def test_chunking_does_not_change_results(self):
         amounts = np.repeat(single_project(n_years=10), 7, axis=0) * np.arange(1, 8)[:, None, None]

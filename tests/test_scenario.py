@@ -520,6 +520,11 @@ def test_end_of_life_says_where_each_outage_cost_comes_from(result, demo_case):
     # (DOWNTIME_COST_BY_CRITICALITY: low 0, medium 200, high 2,000 per h, common practice placeholders)
     eol = result.end_of_life.set_index("asset_id")
     assets = demo_case.assets.set_index("asset_id")
+    # an asset for which no new induction motor is offered has no replacement to compare, and no row
+    r = result.results
+    offered = set(r.loc[r["technology"] == "induction", "asset_id"])
+    assert set(eol.index) == offered and len(offered) < len(assets)
+    assets = assets.loc[assets.index.isin(eol.index)]
     given = assets["downtime_cost_per_h"].notna()
     assert (eol.loc[given[given].index, "downtime_cost_basis"] == "asset register").all()
     assert_allclose(eol.loc[given[given].index, "downtime_cost_per_h"], assets.loc[given, "downtime_cost_per_h"])
@@ -647,3 +652,19 @@ def test_sixty_hertz_motors_of_eight_and_twelve_poles_run(tmp_path):
     assert np.isfinite(case.assets["rated_efficiency_pct"]).all()
     result = scenario.run(case, case.finance, with_risk=False)
     assert np.isfinite(result.results["npv"]).all() and len(result.results) > 10
+
+
+def test_a_shorter_study_does_not_shorten_a_payback(demo_run_physics):
+    # the paybacks leave out the residual value at the horizon's end (a book value, not cash): a project that
+    # pays back in P years over 20 has no payback within a horizon shorter than P, instead of one the
+    # end-of-study value makes up (finance-metrics.md section 1a; docs/finance.md)
+    case, phys = demo_run_physics
+    long = scenario.economics(case, phys, replace(case.finance, horizon_yr=20), with_risk=False).results
+    long = long[np.isfinite(long["simple_payback_yr"]) & (long["simple_payback_yr"] > 3.0)]
+    assert len(long) > 20
+    for horizon in (3, 6):
+        short = scenario.economics(case, phys, replace(case.finance, horizon_yr=horizon), with_risk=False).results
+        paid = short.set_index(["asset_id", "option_id"])["simple_payback_yr"].reindex(
+            pd.MultiIndex.from_frame(long[["asset_id", "option_id"]]))
+        later = long["simple_payback_yr"].to_numpy() > horizon
+        assert later.any() and not np.isfinite(paid.to_numpy()[later]).any()

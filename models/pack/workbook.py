@@ -422,7 +422,9 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
     -----
     With flows CF_t in columns B (t = 0) onwards and the rate d on the Assumptions sheet:
 
-    * net row: ``=SUM`` of the component rows; cumulative: S_t = S_{t-1} + CF_t;
+    * net row: ``=SUM`` of the component rows; the paybacks' rows leave out the residual value at the
+      horizon's end (a book value, not cash): CF_t = net less the residual row; cumulative:
+      S_t = S_{t-1} + CF_t;
     * NPV: ``=B_net + NPV(d, C_net:last_net)``: the spreadsheet NPV discounts its first value by one
       period, so year 0 stays outside and NPV = sum CF_t / (1 + d)^t [1];
     * IRR: ``=IRR(B_net:last_net, guess)``, "none" when the function finds no rate;
@@ -459,10 +461,13 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
     comp_last = r - 1
     # what each formula gives, stored beside it (None: not known here, left for the spreadsheet)
     net_v = flows.sum(axis=0)
-    cum_v = np.cumsum(net_v)
+    components = [str(c) for c in table.index]
+    residual_at = components.index("residual") if "residual" in components else None
+    pay_v = net_v - flows[residual_at] if residual_at is not None else net_v  # the paybacks leave the residual out
+    cum_v = np.cumsum(pay_v)
     known = rate_frac is not None
     factor_v = 1.0 / (1.0 + (rate_frac if known else 0.0)) ** np.arange(horizon + 1)
-    disc_v = net_v * factor_v
+    disc_v = pay_v * factor_v
     dcum_v = np.cumsum(disc_v)
 
     def crossed(running: np.ndarray, flow: np.ndarray, t: int) -> Any:
@@ -476,10 +481,11 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         crossings = [v for v in (crossed(running, flow, t) for t in range(1, horizon + 1)) if _is_number(v)]
         return min(crossings) - below[0] if crossings else "not within horizon"
     net = r
-    cum, factor, disc, dcum = net + 1, net + 2, net + 3, net + 4
-    out, dout, cross, dcross = net + 5, net + 6, net + 7, net + 8
-    labels = {net: "Net cash flow", cum: "Cumulative net cash flow", factor: "Discount factor 1/(1+d)^t",
-              disc: "Discounted net cash flow", dcum: "Cumulative discounted cash flow",
+    pay, cum, factor, disc, dcum = net + 1, net + 2, net + 3, net + 4, net + 5
+    out, dout, cross, dcross = net + 6, net + 7, net + 8, net + 9
+    labels = {net: "Net cash flow", pay: "Net cash flow without residual value (for the paybacks)",
+              cum: "Cumulative, without residual value", factor: "Discount factor 1/(1+d)^t",
+              disc: "Discounted, without residual value", dcum: "Cumulative discounted, without residual value",
               out: "Year below zero, simple", dout: "Year below zero, discounted",
               cross: "Payback crossing, simple [yr]", dcross: "Payback crossing, discounted [yr]"}
     for rr, label in labels.items():
@@ -492,9 +498,11 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
             put_formula(ws, net, c, f"=SUM({col}{comp_first}:{col}{comp_last})", f.money2, net_v[t])
         else:
             put(ws, net, c, 0.0, f.money2)
-        put_formula(ws, cum, c, f"={col}{net}" if t == 0 else f"={prev}{cum}+{col}{net}", f.money2, cum_v[t])
+        residual_ref = f"-{col}{comp_first + residual_at}" if residual_at is not None else ""
+        put_formula(ws, pay, c, f"={col}{net}{residual_ref}", f.money2, pay_v[t])
+        put_formula(ws, cum, c, f"={col}{pay}" if t == 0 else f"={prev}{cum}+{col}{pay}", f.money2, cum_v[t])
         put_formula(ws, factor, c, f"=1/(1+{rate_ref})^{col}${year_row}", f.factor, factor_v[t] if known else None)
-        put_formula(ws, disc, c, f"={col}{net}*{col}{factor}", f.money2, disc_v[t] if known else None)
+        put_formula(ws, disc, c, f"={col}{pay}*{col}{factor}", f.money2, disc_v[t] if known else None)
         put_formula(ws, dcum, c, f"={col}{disc}" if t == 0 else f"={prev}{dcum}+{col}{disc}", f.money2,
                     dcum_v[t] if known else None)
         for target, running, values in ((out, cum, cum_v), (dout, dcum, dcum_v if known else None)):
@@ -502,7 +510,7 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
             put_formula(ws, target, c, f'=IF({col}{running}<0,{col}${year_row},"")', None, below)
         if t == 0:
             continue  # (a crossing back to zero needs a year before it)
-        for target, running, flow, computed in ((cross, cum, net, crossed(cum_v, net_v, t)),
+        for target, running, flow, computed in ((cross, cum, pay, crossed(cum_v, pay_v, t)),
                                                 (dcross, dcum, disc, crossed(dcum_v, disc_v, t) if known else None)):
             expr = (f'=IF(AND({prev}{running}<0,{col}{running}>=0),'
                     f'{col}${year_row}-1-{prev}{running}/{col}{flow},"")')
@@ -527,11 +535,11 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         "discounted_payback": (m + 4, "Discounted payback [yr]", payback_formula(dout, dcum, dcross), f.years),
     }
     computed = {
-        "npv": float(net_v[0] + (disc_v[1:].sum() if horizon >= 1 else 0.0)) if known else None,
+        "npv": float(net_v[0] + ((net_v[1:] * factor_v[1:]).sum() if horizon >= 1 else 0.0)) if known else None,
         # the engine's rate, a root of the same flows (with several, the one closest to 0, as the block's note says;
         # a spreadsheet that recalculates may find another from its search start)
         "irr": engine.get("irr"),
-        "payback": paid_back(cum_v, net_v),
+        "payback": paid_back(cum_v, pay_v),
         "discounted_payback": paid_back(dcum_v, disc_v) if known else None,
     }
     rows = {"net": net}
