@@ -219,7 +219,7 @@ def cmd_bill(args: argparse.Namespace) -> int:
         table.loc["year"] = table.sum(axis=0)
         meter = meters[site_id]
         energy = float(np.sum(meter.p_kw) * op.interval_h)
-        print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}]")
+        print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}], at the tariff as written")
         print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW")
         print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
         balance = reactive_balance(meter, op.interval_h)
@@ -227,6 +227,10 @@ def cmd_bill(args: argparse.Namespace) -> int:
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
               f"{round(balance['capacitor_kvarh'] / 1000) + 0.0:,.0f} MVArh; average power factor "
               f"{balance['average_power_factor']:.3f}")  # (+ 0.0: no "-0" for a rounded zero)
+    factor = float(case.finance.energy_price_factor)
+    if factor != 1.0:
+        print(f"\nThe analysis (drivecase run, the dashboard, the pack) prices every charge at energy_price_factor = "
+              f"{factor:g} of finance.toml: its bills and savings are these figures x {factor:g}.")
     if args.reactive_sweep:
         curve = reactive_value_curve(case, op, args.reactive_sweep, capacitor_cost)
         print(f"\nReactive-power value on the site of {args.reactive_sweep}: yearly bill saving as leading kVAr grows "
@@ -239,8 +243,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
         text = shown.to_string(index=False, na_rep="-", float_format=lambda v: f"{v:,.1f}")
         print("\n".join("  " + line for line in text.splitlines()))
         print("  Leading kVAr is worth something only while it lowers a reactive charge of the tariff (kVArh beyond a "
-              "power-factor threshold, or kVA demand at the peak intervals); past that point more is worth nothing, "
-              "or costs where leading kVArh is charged. The capacitor bank is the yardstick.")
+              "power-factor threshold, a demand charge raised for a poor power factor, or kVA demand at the peak "
+              "intervals); past that point more is worth nothing, or costs where leading kVArh is charged. The "
+              "capacitor bank is the yardstick.")
         site_of = dict(zip(case.assets["asset_id"], case.assets["site_id"]))
         stepped = case.capacitors[(case.capacitors["site_id"] == site_of.get(args.reactive_sweep))
                                   & (case.capacitors["control"] == "stepped")] if len(case.capacitors) else case.capacitors
@@ -358,7 +363,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     if site_bar is not None:
         site_bar.close()
     try:
-        written = write_run(result, args.out, case.settings)
+        written = write_run(result, args.out, case)
     except OSError as exc:
         return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)
@@ -377,7 +382,7 @@ def _print_run_summary(case, result) -> None:
 
     currency = case.settings.currency
     r = result.results
-    best = r[r["best_for_asset"] & (r["capital"] > 0)]
+    best = r[r["best_for_asset"] & (r["technology"] != "existing")]  # (an option without capital counts too)
     plan = result.plan
     chosen = r.set_index(["asset_id", "option_id"]).loc[list(zip(plan["asset_id"], plan["option_id"]))] if len(plan) else r.iloc[:0]
     from models.case import power_label, rating_in_unit

@@ -24,8 +24,9 @@ from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, add_step
 #: Components the finance engine escalates separately, and the bill line-item categories each gathers.
 COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "energy": ("energy",),
-    "demand": ("demand", "pf adjustment", "ratchet"),
-    "reactive": ("reactive", "leading"),
+    "demand": ("demand", "ratchet"),
+    # a demand charge raised for a poor power factor is the price of the reactive power, as a kVArh charge is
+    "reactive": ("reactive", "leading", "pf adjustment"),
     "fixed": ("fixed",),
 }
 SAVING_COMPONENTS: tuple[str, ...] = tuple(COMPONENT_CATEGORIES)
@@ -397,30 +398,31 @@ def _category_savings(names: list[str], base_amounts: np.ndarray, amounts: np.nd
     Line items are gathered by category (as :func:`models.attribution.saving_by_category`) and the
     categories into :data:`SAVING_COMPONENTS`. A tax or levy is linear in its base (a rate times the
     charges it is levied on, summed over the months it applies in), so its change is attributed to each
-    component as rate x that component's change within its base, taking the earlier taxes' attributions
-    along for a base that includes them (``taxes``: the tariff's :class:`models.tariff.Tax` in bill
-    order). This is exact whatever the signs of the components. What is left of the total saving
-    (rounding, or a tax not among ``taxes``) is spread in proportion to the components' magnitudes.
+    category of charges as rate x that category's change, with the earlier taxes' attributions for a base
+    that includes them (``taxes``: the tariff's :class:`models.tariff.Tax` in bill order). This is exact
+    whatever the signs of the changes. What is left of the total saving (rounding, or a tax not among
+    ``taxes``) is spread in proportion to the components' magnitudes.
     """
     diff = base_amounts[None, :] - amounts
     total = base_amounts.sum() - amounts.sum(axis=1)
-    cats = list(dict.fromkeys(n.split(":", 1)[0] for n in names))
-    by_cat = {cat: diff[:, [i for i, n in enumerate(names) if n.split(":", 1)[0] == cat]].sum(axis=1) for cat in cats}
-    out = np.zeros((len(amounts), len(SAVING_COMPONENTS)))
-    for k, group in enumerate(COMPONENT_CATEGORIES.values()):
-        for cat in group:
-            if cat in by_cat:
-                out[:, k] += by_cat[cat]
-    charges = out.copy()  # each component's change in charges before any tax
-    taxed = np.zeros_like(out)  # the taxes' changes attributed so far, by component
+    category = [n.split(":", 1)[0] for n in names]
+    charges = {cat: diff[:, [i for i, c in enumerate(category) if c == cat]].sum(axis=1)
+               for cat in dict.fromkeys(category) if cat != "tax"}
+    taxed = {cat: np.zeros(len(amounts)) for cat in charges}  # each category's taxes so far
     for tax in taxes:
         if f"tax:{tax.name}" not in names:
             continue
         base_cats = billing._TAX_BASE_CATEGORIES[tax.base]
-        within = np.array([any(cat in base_cats for cat in group) for group in COMPONENT_CATEGORIES.values()])
-        base = charges * within[None, :] + (taxed if "tax" in base_cats else 0.0)
-        taxed = taxed + float(tax.rate_pct) / 100.0 * base
-    out = out + taxed
+        rate = float(tax.rate_pct) / 100.0
+        levied = {cat: rate * (charges[cat] + (taxed[cat] if "tax" in base_cats else 0.0))
+                  for cat in charges if cat in base_cats}
+        for cat, amount in levied.items():
+            taxed[cat] = taxed[cat] + amount
+    out = np.zeros((len(amounts), len(SAVING_COMPONENTS)))
+    for k, group in enumerate(COMPONENT_CATEGORIES.values()):
+        for cat in group:
+            if cat in charges:
+                out[:, k] += charges[cat] + taxed[cat]
     rest = total - out.sum(axis=1)
     size = np.abs(out)
     share = np.divide(size, size.sum(axis=1, keepdims=True), out=np.full_like(out, 1.0 / out.shape[1]),

@@ -22,7 +22,8 @@ import pandas as pd
 from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
-from models.problems import CaseError, Problem, did_you_mean, error, has_errors, ordered, shown_value, warning
+from models.problems import (CaseError, Problem, did_you_mean, error, fixed_offset_hint, has_errors, ordered,
+                             shown_value, warning)
 from models.wording import counted
 
 HP_TO_KW = 0.745699872  # 1 hp (imperial, 550 ft·lbf/s) in kW, NIST SP 811 (2008) Appendix B.9
@@ -627,6 +628,10 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
         problems.append(error(source, None, "time_zone", zone, "time_zone must be an IANA time-zone name",
                               "for example Europe/Berlin, America/Chicago, Asia/Kolkata"))
         zone = "UTC"
+    fixed = fixed_offset_hint(zone)
+    if fixed:
+        problems.append(warning(source, None, "time_zone", zone, f"time zone {zone} keeps one offset from UTC all "
+                                "year, with no summer time", fixed))
     invented = data.get("invented", False)
     region = str(data.get("region", "EU")).strip().upper()
     if region not in REGIONS:
@@ -1607,7 +1612,8 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     problems.extend(finance_problems)
     if assumptions is not None and assumptions.budget_per_yr and not any(b > 0 for b in assumptions.budget_per_yr):
         problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr),
-                                "every plan year's capital budget is 0: the plan buys nothing",
+                                "every plan year's capital budget is 0: the plan buys only projects that need no "
+                                "capital",
                                 "give the budget of each plan year, or leave budget_per_yr out for no limit"))
     if assumptions is not None and assumptions.currency != settings.currency and _valid_currency(settings.currency):
         problems.append(error(source, None, "currency", assumptions.currency,

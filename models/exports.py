@@ -23,6 +23,8 @@ RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank
              "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv")
 #: The file saying what a run was computed with (:func:`run_settings`), written beside :data:`RUN_FILES`.
 RUN_SETTINGS_FILE = "run_settings.csv"
+#: The nameplate fields the case left blank and the values taken for them (:func:`defaulted_fields`).
+DEFAULTS_FILE = "defaults.csv"
 
 
 def neutralise_text(value: object) -> object:
@@ -206,15 +208,15 @@ def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
     return rows
 
 
-def run_tables(result, settings=None) -> dict[str, pd.DataFrame]:
+def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     """Return every table of a run, by file name (see :data:`RUN_FILES`).
 
-    With the case's ``settings`` (:class:`models.case.CaseSettings`), :data:`RUN_SETTINGS_FILE` is added
-    (:func:`run_settings`).
+    With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`)
+    and :data:`DEFAULTS_FILE` (:func:`defaulted_fields`) are added.
     """
     results = result.results.copy()
     for column in ("irr_frac", "mirr_frac", "airr_frac", "simple_payback_yr", "discounted_payback_yr",
-                   "abatement_cost_per_t", "cost_of_saved_energy_per_mwh"):
+                   "abatement_cost_per_t", "cost_of_saved_energy_per_mwh", "sir"):
         values = results[column].to_numpy(dtype=float)
         results[column] = np.where(np.isinf(values), np.nan, values)  # documented: blank = none / not within horizon
     bills = result.bills.copy()
@@ -240,9 +242,29 @@ def run_tables(result, settings=None) -> dict[str, pd.DataFrame]:
     for name, columns in EMPTY_COLUMNS.items():
         if tables[name].empty and not len(tables[name].columns):
             tables[name] = pd.DataFrame(columns=columns)
-    if settings is not None:
-        tables[RUN_SETTINGS_FILE] = run_settings(result, settings)
+    if case is not None:
+        tables[RUN_SETTINGS_FILE] = run_settings(result, case.settings)
+        tables[DEFAULTS_FILE] = defaulted_fields(case)
     return tables
+
+
+def defaulted_fields(case) -> pd.DataFrame:
+    """Return the nameplate fields the case left blank and what was taken for them, one row per field.
+
+    Columns ``asset_id``, ``column`` (the register's column), ``value`` (the value used), ``basis`` (where it
+    comes from: the efficiency class, the year installed, a typical value by size...) and
+    ``data_quality_pct`` (the asset's data-quality score, 0-100: the share of its inputs given rather than
+    defaulted, weighted by their effect on the result).
+    """
+    columns = ["asset_id", "column", "value", "basis", "data_quality_pct"]
+    log = case.defaults
+    if log is None or log.empty:
+        return pd.DataFrame(columns=columns)
+    score = case.assets.set_index("asset_id")["data_quality_pct"]
+    frame = log[["asset_id", "column", "value", "basis"]].copy()
+    frame["value"] = [v if isinstance(v, str) else float(v) for v in frame["value"]]
+    frame["data_quality_pct"] = frame["asset_id"].map(score).to_numpy(dtype=float)
+    return frame.reset_index(drop=True)[columns]
 
 
 def _setting_text(value: object) -> str:
@@ -301,14 +323,14 @@ def run_settings(result, settings) -> pd.DataFrame:
                         columns=["setting", "value", "meaning"])
 
 
-def write_run(result, out_dir: str | Path, settings=None) -> list[Path]:
+def write_run(result, out_dir: str | Path, case=None) -> list[Path]:
     """Write every result table of a run into ``out_dir`` (created if needed); return the paths.
 
-    With the case's ``settings`` (:class:`models.case.CaseSettings`), :data:`RUN_SETTINGS_FILE` is written
-    too (:func:`run_settings`).
+    With the ``case`` run, :data:`RUN_SETTINGS_FILE` and :data:`DEFAULTS_FILE` are written too
+    (:func:`run_tables`).
     """
     out = Path(out_dir)
     written = []
-    for name, frame in run_tables(result, settings).items():
+    for name, frame in run_tables(result, case).items():
         written.append(write_csv(out / name, frame))
     return written

@@ -1434,7 +1434,7 @@ class FinanceAssumptions:
             value, problem = _coerce(key, raw, values[key], source, prefix)
             if problem is not None:
                 problems.append(problem)
-            else:
+            if problem is None or problem.severity != "error":  # (a warning keeps the value read)
                 values[key] = value
         if any(p.severity == "error" for p in problems):
             return None, problems
@@ -1538,7 +1538,16 @@ def _coerce(key: str, raw: Any, default: Any, source: str, prefix: str) -> tuple
             return None, error(source, None, column, raw, "must be text", f"write it in quotes, e.g. {key} = \"{default}\"")
         return raw.strip(), None
     if key == "budget_per_yr":
-        items = raw if isinstance(raw, (list, tuple)) else [raw]
+        if not isinstance(raw, (list, tuple)):  # one number: the budget of plan year 0 only, said so
+            number = _number(raw)
+            if number is None:
+                return None, error(source, None, column, raw, "must be a list of numbers (one budget per plan year)",
+                                   "write e.g. budget_per_yr = [50000, 50000, 30000]")
+            return (number,), warning(source, None, column, raw, "one number is read as the budget of plan year 0 "
+                                      "only (the plan then has one year)",
+                                      f"for the same budget in several years write a list, e.g. budget_per_yr = "
+                                      f"[{raw}, {raw}, {raw}]")
+        items = raw
         out = []
         for item in items:
             number = _number(item)

@@ -185,3 +185,31 @@ def ordered(problems: Iterable[Problem]) -> list[Problem]:
 def has_errors(problems: Iterable[Problem]) -> bool:
     """Return True when any problem is an error."""
     return any(p.severity == "error" for p in problems)
+
+
+#: Legacy zone names that keep one offset from UTC all year, and the place a site using them most likely
+#: means (the IANA time zone database keeps them for old systems; they have no summer time).
+FIXED_OFFSET_ZONES = {"EST": "America/New_York", "MST": "America/Denver (or America/Phoenix, which keeps no summer time)",
+                      "HST": "Pacific/Honolulu"}
+
+
+def fixed_offset_hint(zone: str) -> str | None:
+    """A hint for a time-zone name that keeps one offset all year (``EST``, ``Etc/GMT+5``...), else None.
+
+    A site that keeps summer time and is described by such a name gets every time-of-use period and
+    every clock time of its profiles one hour off for half the year.
+
+    Examples
+    --------
+    >>> fixed_offset_hint("EST")
+    'if the site keeps summer time, name its place instead, e.g. America/New_York'
+    >>> fixed_offset_hint("Europe/Berlin") is None, fixed_offset_hint("UTC") is None
+    (True, True)
+    """
+    name = str(zone).strip()
+    if name in FIXED_OFFSET_ZONES:
+        return f"if the site keeps summer time, name its place instead, e.g. {FIXED_OFFSET_ZONES[name]}"
+    if name.startswith(("Etc/GMT+", "Etc/GMT-")):
+        return "if the site keeps summer time, name its place instead, e.g. America/Chicago or Europe/Berlin"
+    return None
+

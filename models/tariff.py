@@ -26,7 +26,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from models.problems import Problem, error, warning
+from models.problems import Problem, error, fixed_offset_hint, warning
 from models.site import tan_phi_from_power_factor
 
 __all__ = [
@@ -1222,6 +1222,10 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         except Exception:  # noqa: BLE001 - any failure means the zone name is unusable
             r.err("tariff.time_zone", time_zone, "unknown time zone", "use an IANA name such as Europe/Berlin")
             time_zone = None
+        fixed = fixed_offset_hint(time_zone) if time_zone else None
+        if fixed:
+            r.warn("tariff.time_zone", time_zone, f"time zone {time_zone} keeps one offset from UTC all year, with no "
+                   "summer time: the periods are read on that clock", fixed)
     allow_negative = r.get(head, "allow_negative_prices", "tariff", "bool", default=False)
     notes = r.get(head, "notes", "tariff", "str", default="")
 

@@ -167,3 +167,17 @@ def test_a_saving_split_by_component_carries_each_charges_own_taxes():
     saving = _category_savings(names, with_taxes(today), with_taxes(option)[None, :], taxes)[0]
     assert_allclose(saving, [-2194.39, -387.15, 1937.67, 0.0], atol=0.005)  # energy, demand, reactive, fixed
     assert_allclose(saving.sum(), -643.88, atol=0.005)
+
+
+def test_a_power_factor_adjustment_saving_is_reactive_and_keeps_its_demand_tax():
+    # hand calculation: a 10 % tax on the demand charges (which include the power-factor adjustment, as the bill
+    # levies it); changes energy 100, demand 50, power-factor adjustment 20: energy 100, demand 50 x 1.1 = 55,
+    # reactive 20 x 1.1 = 22 (the adjustment is the price of the reactive power), fixed 0
+    from models.bill_savings import _category_savings
+    from models.tariff import Tax
+
+    names = ["energy:all", "demand:peak", "pf adjustment:peak", "tax:demand levy"]
+    today = np.array([1000.0, 500.0, 100.0, 60.0])  # the tax: 10 % of 500 + 100
+    option = np.array([900.0, 450.0, 80.0, 53.0])   # 10 % of 450 + 80
+    saving = _category_savings(names, today, option[None, :], (Tax("demand levy", 10.0, "demand_charges"),))[0]
+    assert_allclose(saving, [100.0, 55.0, 22.0, 0.0], atol=1e-9)

@@ -632,7 +632,7 @@ class TestFinanceWarnings:
         (folder / "finance.toml").write_text('currency = "EUR"\nbudget_per_yr = [0, 0, 0]\n', encoding="utf-8")
         case, problems = load_case(folder)
         assert case is not None
-        hit = _find(problems, file="finance.toml", column="budget_per_yr", severity="warning", text="plan buys nothing")
+        hit = _find(problems, file="finance.toml", column="budget_per_yr", severity="warning", text="plan buys only projects that need no capital")
         assert hit.row == 2  # the line where budget_per_yr is written
         assert not [p for p in problems if "no finance assumptions" in p.rule]
 
@@ -771,3 +771,10 @@ def test_a_motor_whose_efficiency_cannot_be_defaulted_is_refused_by_row(tmp_path
     found = _find(problems, row=3, column="rated_efficiency_pct", text="none can be taken from the efficiency classes")
     assert "nameplate efficiency" in found.hint
 
+
+
+def test_a_case_time_zone_without_summer_time_is_warned(tmp_path):
+    case, problems = load_case(cb.write_case(tmp_path / "c", case_toml=cb.CASE_TOML.replace('"Europe/Berlin"', '"EST"')))
+    assert case is not None
+    found = _find(problems, column="time_zone", severity="warning")
+    assert "no summer time" in found.rule and "America/New_York" in found.hint

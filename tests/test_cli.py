@@ -219,6 +219,10 @@ def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
     assert settings.loc["plan.gap_asked_frac", "value"] == "0.05"
     assert float(settings.loc["plan.gap_proven_frac", "value"]) <= 0.05
     assert settings["meaning"].str.len().min() > 0
+    # the defaulted nameplate fields the summary points to (data/demo/assets.csv: HRW-D01 gives no efficiency)
+    defaults = pd.read_csv(tmp_path / "a" / "defaults.csv")
+    assert list(defaults.columns) == ["asset_id", "column", "value", "basis", "data_quality_pct"]
+    assert len(defaults) and defaults["data_quality_pct"].between(0, 100).all()
 
 
 def test_no_command_prints_help_and_version_is_known(capsys):
@@ -650,3 +654,13 @@ def test_run_progress_counts_stages_and_says_when_it_waits_for_the_plan(tmp_path
     counts = [line.split("|")[2].split()[0] for line in frames if line.startswith("drivecase run:") and "|" in line]
     assert counts[-1] == "8/8" and all(int(c.split("/")[0]) <= 8 for c in counts)
     assert any("fleet plan (finishing)" in line for line in frames)
+
+
+def test_bill_says_when_the_analysis_prices_at_another_level(tmp_path, capsys):
+    # drivecase bill prints the tariff as written; with energy_price_factor 1.2 the analysis's bills are these x 1.2
+    case = shutil.copytree(DEMO, tmp_path / "demo")
+    finance = case / "finance.toml"
+    finance.write_text(finance.read_text(encoding="utf-8") + "energy_price_factor = 1.2\n", encoding="utf-8")
+    assert main(["bill", str(case), "--site", "KGQ"]) == 0
+    out = capsys.readouterr().out
+    assert "at the tariff as written" in out and "energy_price_factor = 1.2" in out and "x 1.2" in out

@@ -19,7 +19,7 @@ import pytest
 from models import scenario
 from models.case import load_case
 from models.distributed import run_distributed
-from models.exports import RUN_FILES, RUN_SETTINGS_FILE, csv_bytes, run_tables
+from models.exports import DEFAULTS_FILE, RUN_FILES, RUN_SETTINGS_FILE, csv_bytes, run_tables
 from models.operation import site_partition
 
 distributed = pytest.importorskip("distributed")
@@ -48,9 +48,9 @@ def fleet_local(fleet):
     return scenario.run(fleet, fleet.finance, with_risk=False)
 
 
-def _assert_same_files(local, remote, settings=None) -> None:
-    a, b = run_tables(local, settings), run_tables(remote, settings)
-    names = list(RUN_FILES) + ([RUN_SETTINGS_FILE] if settings is not None else [])
+def _assert_same_files(local, remote, case=None) -> None:
+    a, b = run_tables(local, case), run_tables(remote, case)
+    names = list(RUN_FILES) + ([RUN_SETTINGS_FILE, DEFAULTS_FILE] if case is not None else [])
     assert list(a) == names == list(b)
     for name in names:
         assert csv_bytes(a[name]) == csv_bytes(b[name]), f"{name} differs between the engines"
@@ -62,7 +62,7 @@ def test_demo_case_identical_to_local_engine():
     stages_local, stages_dask = [], []
     local = scenario.run(case, assumptions, progress=stages_local.append)
     remote = run_distributed(case, assumptions, progress=stages_dask.append)  # its own LocalCluster of 2 processes
-    _assert_same_files(local, remote, case.settings)
+    _assert_same_files(local, remote, case)
     assert stages_dask == stages_local
 
 

@@ -545,3 +545,12 @@ class TestFinanceAssumptions:
     def test_unknown_component_raises(self):
         with pytest.raises(ValueError, match="component"):
             FinanceAssumptions().escalation_frac("gas")
+
+
+def test_one_number_for_the_budgets_is_read_as_one_plan_year_and_said_so():
+    assumptions, problems = fin.FinanceAssumptions.from_dict({"budget_per_yr": 5000})
+    assert assumptions.budget_per_yr == (5000.0,)
+    found = [p for p in problems if p.column == "budget_per_yr"]
+    assert found and found[0].severity == "warning" and "[5000, 5000, 5000]" in found[0].hint
+    _, problems = fin.FinanceAssumptions.from_dict({"budget_per_yr": [5000, 5000]})
+    assert not [p for p in problems if p.column == "budget_per_yr"]

@@ -292,6 +292,17 @@ class TestWorkbookPercentFormat:
 # 5. near-miss headers and ids
 # ---------------------------------------------------------------------------------------------------
 class TestHeadersAndIds:
+    @pytest.mark.parametrize("heading", ["Nominal Efficiency", "NEMA Nominal Efficiency", "Nom. Eff."])
+    def test_a_nema_nameplates_nominal_efficiency_is_the_rated_efficiency(self, tmp_path, heading):
+        # a NEMA nameplate (and a US motor survey) gives the full-load efficiency as "nominal efficiency"
+        header = [heading if c == "rated_efficiency_pct" else c for c in cb.ASSET_HEADER]
+        rows = [list(r) for r in cb.ASSETS]
+        rows[1][cb.ASSET_HEADER.index("rated_efficiency_pct")] = "94.5"
+        case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
+        assert case is not None, [str(p) for p in problems]
+        assert _asset(case, "F1", "rated_efficiency_pct") == 94.5
+        _none(problems, "unknown column")
+
     @pytest.mark.parametrize("heading", ["Hours/yr", "hours per year", "h/yr", "Hrs/yr", "Hours per yr"])
     def test_hours_headings_are_operating_hours(self, tmp_path, heading):
         header = [heading if c == "operating_h_per_yr" else c for c in cb.ASSET_HEADER]

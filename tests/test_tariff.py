@@ -619,3 +619,14 @@ class TestKeyLine:
         assert key_line(self.TEXT, "fixed[1].not_written") == self.line_of("[[fixed]]")
         assert key_line(self.TEXT, "no_such_table.key") is None
         assert key_line(self.TEXT, "periods[9].hours") is None
+
+
+def test_a_zone_without_summer_time_is_warned():
+    # "EST" is UTC-5 all year: a site on the US east coast keeps summer time, so its periods would be an hour off
+    # from March to November (IANA time zone database: EST is a fixed offset kept for old systems)
+    tariff, problems = tariff_from_dict(tomllib.loads(TARIFF_E.replace('time_zone = "Europe/Berlin"', 'time_zone = "EST"')))
+    found = [p for p in problems if p.column == "tariff.time_zone"]
+    assert tariff is not None and found and found[0].severity == "warning"
+    assert "America/New_York" in found[0].hint
+    _, problems = tariff_from_dict(tomllib.loads(TARIFF_E))
+    assert not [p for p in problems if p.column == "tariff.time_zone"]
