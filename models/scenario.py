@@ -1079,10 +1079,19 @@ def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, 
 
 
 def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
-    """Each asset's site bill per kWh of today's motors [currency/kWh] (the running-cost share rule)."""
+    """Each asset's site bill per kWh of the site meter [currency/kWh] (the running-cost share rule: a motor
+    bears the bill in proportion to its kWh, beside the site's other loads).
+
+    The meter's kWh are those its energy lines bill; a tariff without energy lines in kWh falls back on
+    today's motors' kWh. A site with no kWh at all gives 0 (nothing runs, nothing to share)."""
     site_total = baseline_bills.groupby("site_id")["amount"].sum()
-    site_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum()
-    return (site_total / site_kwh.reindex(site_total.index)).reindex(op.site_ids).to_numpy(dtype=float)
+    motors_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum().reindex(site_total.index).fillna(0.0)
+    energy_lines = baseline_bills[baseline_bills["line_item"].astype(str).str.startswith("energy:")
+                                  & (baseline_bills["unit"].astype(str) == "kWh")]  # (not a kVAh-billed energy)
+    meter_kwh = energy_lines.groupby("site_id")["quantity"].sum().reindex(site_total.index).fillna(0.0)
+    kwh = meter_kwh.where(meter_kwh > 0, motors_kwh)
+    price = (site_total / kwh.where(kwh > 0)).fillna(0.0)
+    return price.reindex(op.site_ids).to_numpy(dtype=float)
 
 
 def plan_bill_saving_per_yr(bills: pd.DataFrame | None) -> float | None:

@@ -668,3 +668,20 @@ def test_a_shorter_study_does_not_shorten_a_payback(demo_run_physics):
             pd.MultiIndex.from_frame(long[["asset_id", "option_id"]]))
         later = long["simple_payback_yr"].to_numpy() > horizon
         assert later.any() and not np.isfinite(paid.to_numpy()[later]).any()
+
+
+def test_a_motors_running_cost_is_its_kwh_share_of_the_site_bill(tmp_path):
+    # the one-asset case of docs/derivations/scenario-one-asset.md (flat 0.10 per kWh) on a site with a 50 kW base
+    # load beside the motor: the motor bears the bill in proportion to its kWh, 0.10 per kWh, whatever the base
+    # load (hand calculation: keep's running PV = kWh x 0.10 x (1 - 1.03^-10) / 0.03 = kWh x 0.10 x 8.530203)
+    folder = tmp_path / "c"
+    _one_asset_case(folder)
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    fields = sites[1].split(",")
+    fields[2] = "50"  # base load [kW]
+    (folder / "sites.csv").write_text("\n".join([sites[0], ",".join(fields)]) + "\n", encoding="utf-8")
+    case, problems = load_case(folder, mode="strict")
+    result = scenario.run(case, case.finance, with_risk=False)
+    kwh = float(result.results.set_index("option_id").loc["keep", "energy_kwh_per_yr"])
+    running = result.lcc.set_index(["option_id", "component"]).loc[("keep", "running"), "pv"]
+    assert_allclose(running, kwh * 0.10 * 8.530203, rtol=1e-6)
