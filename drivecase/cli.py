@@ -184,7 +184,7 @@ def cmd_bill(args: argparse.Namespace) -> int:
     import numpy as np
 
     from models.attribution import reactive_balance
-    from models.bill_savings import meter_and_bills, monthly_bill_table, reactive_value_curve, site_setups
+    from models.bill_savings import banned_quantities, meter_and_bills, monthly_bill_table, reactive_value_curve, site_setups
     from models.operation import operate
 
     case = _load_or_report(args.case)
@@ -222,6 +222,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
         print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}], at the tariff as written")
         print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW")
         print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
+        for line in banned_quantities(bills[bills["site_id"] == site_id]).itertuples(index=False):
+            print(f"  CAUTION: {line.quantity:,.0f} {line.unit} billed in {counted(int(line.months), 'month')} where the "
+                  f"tariff bans them ({line.line_item}): the utility's rules may not allow it")
         balance = reactive_balance(meter, op.interval_h)
         print(f"  Reactive balance: lagging {balance['lagging_kvarh'] / 1000:,.0f} MVArh, leading "
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
@@ -377,6 +380,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 def _print_run_summary(case, result) -> None:
     from models import scenario
+    from models.bill_savings import banned_quantities
     from models.plan import option_labels
     from models.reactive_plan import withdrawn_text
 
@@ -412,6 +416,12 @@ def _print_run_summary(case, result) -> None:
         print(f"  The bill saving adds up each project priced alone; with the whole plan in place the sites' "
               f"bills fall by {together:,.0f} {currency}/yr (projects share demand peaks, ratchets and reactive "
               f"allowances; bills.csv)")
+    for line in banned_quantities(result.bills).itertuples(index=False):
+        who = "With the plan in place" if line.scenario == "plan" else "Today"
+        print(f"  CAUTION: {who}, site {line.site_id} is billed {line.quantity:,.0f} {line.unit} in "
+              f"{counted(int(line.months), 'month')} where its tariff bans them ({line.line_item}): the utility's rules "
+              "may not allow it; switch capacitor banks off in those hours, size the reactive projects down, or ask the "
+              "utility (bills.csv, column banned)")
     status = result.plan_status or {}
     if status.get("message"):
         print(f"  Exact plan: {status['message']}")

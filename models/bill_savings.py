@@ -160,6 +160,34 @@ def meter_and_bills(case, op, choice: np.ndarray, setups: dict[str, SiteSetup] |
     return meters, bills[cols]
 
 
+def banned_quantities(bills: pd.DataFrame) -> pd.DataFrame:
+    """The quantities the bills' tariffs ban (leading kVArh in the hours a clause forbids), by site and line.
+
+    Parameters
+    ----------
+    bills : pandas.DataFrame
+        Bill lines with ``site_id``, ``month``, ``line_item``, ``quantity``, ``unit`` and the bill's ``flag``
+        (:func:`models.billing.bill`), and optionally ``scenario``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per (scenario, site, line) with a flagged month: ``scenario`` ("" when the bills have none),
+        ``site_id``, ``line_item``, ``quantity`` (summed over the flagged months), ``unit`` and ``months``
+        (their number); empty when nothing banned is billed.
+    """
+    columns = ["scenario", "site_id", "line_item", "quantity", "unit", "months"]
+    if bills is None or bills.empty or "flag" not in bills:
+        return pd.DataFrame(columns=columns)
+    flagged = bills[bills["flag"].fillna(False).astype(bool)]
+    if flagged.empty:
+        return pd.DataFrame(columns=columns)
+    flagged = flagged.assign(scenario=flagged["scenario"] if "scenario" in flagged else "")
+    out = flagged.groupby(["scenario", "site_id", "line_item", "unit"], sort=True).agg(
+        quantity=("quantity", "sum"), months=("month", "nunique")).reset_index()
+    return out[columns]
+
+
 def _book_arrays(book: tabulation.CurveBook | None, p_block: np.ndarray) -> tuple:
     """A block's curve book as the compiled passes take it; an empty book (every row read from the
     arrays) when there is none."""

@@ -220,7 +220,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         values = results[column].to_numpy(dtype=float)
         results[column] = np.where(np.isinf(values), np.nan, values)  # documented: blank = none / not within horizon
     bills = result.bills.copy()
-    bills = bills[["site_id", "month", "scenario", "line_item", "quantity", "unit", "rate", "amount"]]
+    banned = bills["flag"].fillna(False).astype(bool) if "flag" in bills else pd.Series(False, index=bills.index)
+    bills = bills[["site_id", "month", "scenario", "line_item", "quantity", "unit", "rate", "amount"]].assign(
+        banned=banned.to_numpy())
     risk_rows, plan_risk_rows = _by_asset_and_option(result.risk), _by_asset_and_option(result.plan_risk)
     draws = pd.DataFrame(columns=EMPTY_COLUMNS["npv_draws.csv"])
     if len(result.fleet_npv_draws):

@@ -664,3 +664,48 @@ def test_bill_says_when_the_analysis_prices_at_another_level(tmp_path, capsys):
     assert main(["bill", str(case), "--site", "KGQ"]) == 0
     out = capsys.readouterr().out
     assert "at the tariff as written" in out and "energy_price_factor = 1.2" in out and "x 1.2" in out
+
+
+def _leading_banned_case(folder: Path) -> Path:
+    """A 90 kW pump running all year beside a 20 kW base load at 0.9 and a 40 kVAr fixed bank, priced by the
+    example tariff whose night leading kVArh are banned (data/tariffs/example_pf_adjusted_demand.toml)."""
+    folder.mkdir(parents=True)
+    (folder / "case.toml").write_text('[case]\nname = "Banned leading (invented)"\ncurrency = "USD"\n'
+                                      'time_zone = "America/Chicago"\nregion = "OTHER"\ninvented = true\n',
+                                      encoding="utf-8")
+    (folder / "assets.csv").write_text(
+        "asset_id,site_id,application,rated_p_kw,poles,supply_f_hz,rated_v_v,efficiency_class,rated_efficiency_pct,"
+        "rated_power_factor,rated_speed_rpm,year_installed,speed_control,operating_h_per_yr,mean_load_pct\n"
+        "M1,S1,pump,90,4,60,460,IE1,92.0,0.84,1775,2000,throttled,8760,70\n", encoding="utf-8")
+    (folder / "sites.csv").write_text("site_id,tariff_file,base_p_kw,base_power_factor\n"
+                                      "S1,example_pf_adjusted_demand.toml,20,0.9\n", encoding="utf-8")
+    (folder / "capacitors.csv").write_text("site_id,bank_id,rated_q_kvar,control\nS1,C1,40,fixed\n", encoding="utf-8")
+    (folder / "tariffs").mkdir()
+    shutil.copy(REPO / "data" / "tariffs" / "example_pf_adjusted_demand.toml", folder / "tariffs")
+    return folder
+
+
+def test_a_plan_that_makes_a_site_lead_where_its_tariff_bans_it_is_cautioned(tmp_path, capsys):
+    # with today's lagging pump the site never leads; a PM motor on a drive runs near unity power factor, so the
+    # 40 kVAr bank makes the site lead at night, which the tariff bans (its [[leading]] clause, banned = true).
+    # Hand calculation: at night the meter's kVAr is about 20 x tan(acos 0.9) + (drive ~0) - 40 = 9.7 - 40 < 0
+    case = _leading_banned_case(tmp_path / "case")
+    assert main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--no-risk"]) == 0
+    out = capsys.readouterr().out
+    bills = pd.read_csv(tmp_path / "o" / "bills.csv")
+    banned = bills[bills["banned"]]
+    plan = pd.read_csv(tmp_path / "o" / "plan.csv")
+    assert list(plan["option_id"]) == ["pm_drive"] and (banned["scenario"] == "plan").sum() == 12  # every month
+    assert "CAUTION: With the plan in place, site S1 is billed" in out and "where its tariff bans them" in out
+    assert not (banned["scenario"] == "baseline").any()  # today the site lags
+    assert (banned["line_item"].str.startswith("leading:")).all()
+
+
+def test_bill_cautions_a_site_that_leads_where_its_tariff_bans_it(tmp_path, capsys):
+    # a 150 kVAr fixed bank beside the pump (about 48 kVAr lagging at 70 % load) and the base load (9.7 kVAr):
+    # the site leads at night already today (hand estimate: 48 + 9.7 - 150 < 0)
+    case = _leading_banned_case(tmp_path / "case")
+    (case / "capacitors.csv").write_text("site_id,bank_id,rated_q_kvar,control\nS1,C1,150,fixed\n", encoding="utf-8")
+    assert main(["bill", str(case)]) == 0
+    out = capsys.readouterr().out
+    assert "CAUTION:" in out and "where the tariff bans them (leading:night leading kVArh)" in out
