@@ -1506,6 +1506,20 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
             window, coarse, n = found[site_id]
             sites.warn(i, "tariff_file", s["tariff_file"].iloc[i], demand_window_text(window, coarse, n),
                        f"log the largest motors at {window}-min resolution where the demand charge matters")
+    # the site's own base load, read the same way
+    if "base_profile_id" not in s or not isinstance(profile_info, pd.DataFrame) or profile_info.empty:
+        return
+    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
+    for i in range(len(s)):
+        base, tariff_file = s["base_profile_id"].iloc[i], s["tariff_file"].iloc[i]
+        windows = [d.window_min for d in getattr(tariffs.get(tariff_file) if isinstance(tariff_file, str) else None,
+                                                 "demand", ())]
+        if isinstance(base, str) and windows and resolution.get(base, 0) > min(windows):
+            sites.warn(i, "base_profile_id", base,
+                       f"the tariff's demand charge takes {min(windows)}-min windows, but the site's base-load profile "
+                       f"has {int(resolution[base])}-min intervals: each is read as one window, which understates "
+                       "the demand peak, the bill and the demand savings",
+                       f"give the base load at {min(windows)}-min resolution (the meter's own interval data)")
 
 
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:

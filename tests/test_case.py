@@ -778,3 +778,23 @@ def test_a_case_time_zone_without_summer_time_is_warned(tmp_path):
     assert case is not None
     found = _find(problems, column="time_zone", severity="warning")
     assert "no summer time" in found.rule and "America/New_York" in found.hint
+
+
+def test_an_hourly_base_load_under_a_quarter_hour_demand_charge_is_warned(tmp_path):
+    # the tariff's demand charge takes 15-min windows (data/tariffs/example_tou_kw_reactive_ratchet.toml); an
+    # hourly base-load profile averages a 15-min peak over its hour (a 500 kW quarter-hour in 100 kW hours
+    # reads as 200 kW: hand calculation (500 + 3 x 100) / 4), so the bill and the demand savings are understated
+    folder = cb.write_case(tmp_path / "c")
+    rows = [r.split(",") for r in (folder / "profiles.csv").read_text(encoding="utf-8").splitlines()[1:]]
+    base = [["BASE", ts, "", f"{100 + 10 * (k % 3)}"] for k, (_, ts, _) in enumerate(rows)]
+    cb.write_csv(folder / "profiles.csv", ["profile_id", "timestamp", "shaft_load_pct", "input_kw"],
+                 [r + [""] for r in rows] + base)
+    (folder / "tariffs").mkdir()
+    shutil.copy(Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_tou_kw_reactive_ratchet.toml",
+                folder / "tariffs" / "t.toml")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file", "base_profile_id"],
+                 [cb.SITES[0] + ["t.toml", "BASE"]])
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    found = _find(problems, file="sites.csv", column="base_profile_id", severity="warning")
+    assert "15-min windows" in found.rule and "60-min intervals" in found.rule
