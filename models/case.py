@@ -1522,6 +1522,32 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
                        f"give the base load at {min(windows)}-min resolution (the meter's own interval data)")
 
 
+def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
+                            sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
+    """Warn of a tariff whose listed holidays all fall outside the analysis year (the year of the profiles the
+    case uses; :data:`models.profiles.DEFAULT_YEAR` without any): its holidays are then billed as ordinary days."""
+    from models.profiles import DEFAULT_YEAR, analysis_index
+
+    listed = {name: t for name, t in tariffs.items() if getattr(t, "holidays", ())}
+    if not listed:
+        return
+    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    try:
+        year = int(analysis_index(profiles, settings.time_zone, used=used)[0].year)
+    except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
+        return
+    for name, tariff in listed.items():
+        years = sorted({d.year for d in tariff.holidays})
+        if year not in years:
+            source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
+            problems.append(warning(
+                source, None, "calendar.holidays", ", ".join(map(str, years)),
+                f"none of the tariff's holidays falls in the analysis year {year} (the year of the case's profiles; "
+                f"{DEFAULT_YEAR} for a case without any): its holidays are billed as ordinary days",
+                f"list the holidays of {year} as well"))
+
+
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:
     c = checker.frame
     _duplicates(checker, "bank_id", "bank_id")
@@ -1853,6 +1879,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
                                   "add one row per motor"))
     if "sites" in checkers and "assets" in checkers:
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
+        _check_holidays_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
+                                raw, problems)
     if "assets" in checkers:
         _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
         _check_rules_ahead(settings, raw.settings_source, checkers["assets"].frame, problems)

@@ -798,3 +798,22 @@ def test_an_hourly_base_load_under_a_quarter_hour_demand_charge_is_warned(tmp_pa
     assert case is not None, [str(p) for p in problems if p.severity == "error"]
     found = _find(problems, file="sites.csv", column="base_profile_id", severity="warning")
     assert "15-min windows" in found.rule and "60-min intervals" in found.rule
+
+
+def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
+    # the case's profiles are of January 2025 (tests/casebuilder.py); a tariff listing only 2026's holidays bills
+    # 2025's as ordinary days
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    text = (Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_tou_kw_reactive_ratchet.toml").read_text(
+        encoding="utf-8")
+    assert "2025-12-25" in text
+    (folder / "tariffs" / "t.toml").write_text(text.replace("2025-", "2026-"), encoding="utf-8")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    case, problems = load_case(folder)
+    assert case is not None
+    found = _find(problems, file="tariffs/t.toml", column="calendar.holidays", severity="warning")
+    assert "analysis year 2025" in found.rule and "2025" in found.hint
+    (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
+    _, problems = load_case(folder)
+    assert not [p for p in problems if p.column == "calendar.holidays"]
