@@ -455,6 +455,10 @@ def _print_run_summary(case, result) -> None:
                  "npv": f"NPV [{currency}]", "simple_payback_yr": "simple payback [yr]", "in_plan": "the plan takes"})
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
                         "option or none)")
+    if len(table):
+        print("  Simple payback: years from the outlay until the project's own cash flow is back at zero, after tax, "
+              "with the spend a failure of today's motor would force credited (docs/finance.md); not capital / "
+              "yearly saving")
 
 
 def cmd_serve(args: argparse.Namespace) -> int:

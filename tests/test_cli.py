@@ -510,6 +510,7 @@ def test_run_names_the_ten_best_options_by_their_catalogue_labels(tmp_path, caps
     assert "  Capital: the options catalogue's prices are illustrative cost curves, not quotes" in out
     table = out.split("Ten best options by NPV", 1)[1].split("Files written", 1)[0]
     assert "PM motor on a drive" in table and "pm_drive" not in table and "add_drive" not in table
+    assert "Simple payback: years from the outlay" in table and "not capital / yearly saving" in table
 
 
 def test_run_with_an_empty_plan_says_it_has_no_uncertainty_of_its_own(tmp_path, capsys):
