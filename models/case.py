@@ -331,8 +331,20 @@ class _TableChecker:
                     missing = self.frame[name].isna().to_numpy()
                     for i in np.flatnonzero(missing):
                         if _blank(source[name].iloc[i]):
-                            self.err(i, name, None, f"'{name}' is required", "fill in this cell")
+                            self.err(i, name, None, f"'{name}' is required", self._required_hint(name, source, i))
         return self.frame
+
+    def _required_hint(self, name: str, source: pd.DataFrame, i: int) -> str:
+        """What to write in a required cell left blank (the poles a nameplate speed implies, where it is given)."""
+        if name == "poles" and {"rated_speed_rpm", "supply_f_hz"} <= set(source.columns):
+            speed = pd.to_numeric(pd.Series([source["rated_speed_rpm"].iloc[i]]), errors="coerce").iloc[0]
+            f_hz = pd.to_numeric(pd.Series([source["supply_f_hz"].iloc[i]]), errors="coerce").iloc[0]
+            if speed > 0 and f_hz > 0:
+                poles = 2 * int(np.floor(60.0 * f_hz / speed))  # the synchronous speed just above the nameplate's
+                if poles >= 2:
+                    return (f"fill in this cell: {speed:g} rpm at {f_hz:g} Hz is a {poles}-pole motor "
+                            f"(synchronous speed 120·f/p = {120 * f_hz / poles:g} rpm)")
+        return "fill in this cell"
 
     def _warn_percent(self, name: str, note: str, cells: list[int], values: list[object], numbers: np.ndarray) -> None:
         """One warning for the % signs of a column: dropped (a column in percent) or read as a fraction."""
@@ -388,6 +400,11 @@ class _TableChecker:
                                 f"if the comma is a decimal mark ({hint})")
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"
+                    written = str(value).strip()
+                    if is_year and re.search(r"\b(1[89]|2[01])\d\d\b", written) and note == "not a number":
+                        hint = f"write the year alone, e.g. {re.search(r'(1[89]|2[01])[0-9][0-9]', written).group(0)}"
+                    elif note == "not a number" and re.match(r"^[$€£¥]\s*[0-9]", written):
+                        hint = f"write a plain number without the currency sign or thousands commas ({hint})"
                     rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
                     self.err(i, name, value, rule, hint)
             for note, cells in repaired.items():  # one warning per column and kind of repair, not one per cell
@@ -535,6 +552,8 @@ def _range_hint(name: str, value: float) -> str:
         return f"percent columns take 0-100; was a fraction entered? {value:g} as a fraction is {value * 100:.4g} %"
     if name.endswith("_pct") and value < 0:
         return "percent columns take 0-100"
+    if name.endswith("power_factor") and 1 < value <= 100:
+        return f"a power factor is a fraction (0-1): {value:g} % is {value / 100:g}"
     if name.startswith("rated_p") and value <= 0:
         return "rated power must be positive"
     return "check the value and its unit"
@@ -1279,9 +1298,12 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
         slip = (sync - speed) / sync
     has = ~np.isnan(speed) & ~np.isnan(sync)
     for i in np.flatnonzero(has & induction & (speed >= sync)):
+        hint = "check poles, frequency and speed; a synchronous machine needs machine_type set"
+        if speed[i] == sync[i]:  # the nominal speed US registers often carry
+            hint = (f"{speed[i]:g} rpm is the synchronous speed itself: give the nameplate's full-load speed "
+                    f"(a little below it) or leave the cell blank for a typical slip; {hint}")
         checker.err(i, "rated_speed_rpm", speed[i],
-                    f"an induction motor runs below synchronous speed 120·f/p = {sync[i]:g} rpm",
-                    "check poles, frequency and speed; a synchronous machine needs machine_type set")
+                    f"an induction motor runs below synchronous speed 120·f/p = {sync[i]:g} rpm", hint)
     for i in np.flatnonzero(has & induction & (speed < sync) & (slip > 0.10)):
         checker.err(i, "rated_speed_rpm", speed[i],
                     f"slip of {100 * slip[i]:.1f} % against {sync[i]:g} rpm is implausible (above 10 %)",

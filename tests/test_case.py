@@ -270,9 +270,12 @@ class TestTariffReferences:
 def test_hourly_profiles_against_a_shorter_demand_window_are_warned(demo_case):
     # the demo's sites (data/demo/sites.csv): HRW on a tariff with 15-min demand windows, KGQ on one with 30-min
     # windows; every demo profile is hourly (data/generate_demo.py)
-    found = [p for p in demo_case.problems if "demand charge takes" in p.rule]
+    found = [p for p in demo_case.problems if "demand charge takes" in p.rule and p.column == "tariff_file"]
     assert [(p.file, p.row, p.severity) for p in found] == [("sites.csv", 2, "warning"), ("sites.csv", 3, "warning")]
     assert "15-min windows" in found[0].rule and "60-min profiles" in found[0].rule and "30-min windows" in found[1].rule
+    # HRW's own hourly base-load profile (data/demo/sites.csv, base_profile_id) is read the same way
+    base = [p for p in demo_case.problems if "demand charge takes" in p.rule and p.column == "base_profile_id"]
+    assert [(p.file, p.row) for p in base] == [("sites.csv", 2)] and "60-min intervals" in base[0].rule
 
 
 class TestProfileRules:

@@ -393,3 +393,23 @@ def test_a_row_with_a_stray_delimiter_gives_one_error_not_one_per_shifted_cell(t
     assert len(row_three) == 1, [str(p) for p in row_three]
     assert "the row has 20 cells but the header has 19" in row_three[0].rule
     assert "other" in row_three[0].hint and "follow from its shifted cells" in row_three[0].hint
+
+
+# ---------------------------------------------------------------------------------------------------
+# 6. nameplate habits of US registers: what each error's hint says
+# ---------------------------------------------------------------------------------------------------
+@pytest.mark.parametrize(("changes", "column", "hint"), [
+    # a power factor written in percent: 86 % is 0.86 (hand calculation)
+    ([(1, "rated_power_factor", "86")], "rated_power_factor", "a power factor is a fraction (0-1): 86 % is 0.86"),
+    # a date where the year is asked
+    ([(1, "year_installed", "06/01/2014")], "year_installed", "write the year alone, e.g. 2014"),
+    # poles left blank beside a nameplate speed: 1450 rpm at 50 Hz sits below 120 x 50 / 4 = 1500 rpm (hand
+    # calculation), so the motor has 4 poles
+    ([(1, "poles", ""), (1, "rated_speed_rpm", "1450")], "poles", "1450 rpm at 50 Hz is a 4-pole motor"),
+    # the synchronous speed written as the nameplate speed (120 x 50 / 4 = 1500 rpm)
+    ([(1, "rated_speed_rpm", "1500")], "rated_speed_rpm", "1500 rpm is the synchronous speed itself"),
+])
+def test_us_register_habits_get_a_hint_that_says_what_to_write(tmp_path, changes, column, hint):
+    _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(*changes)))
+    found = _find(problems, row=3, column=column)
+    assert hint in found.hint
