@@ -663,7 +663,8 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             if not 0.0 < d.ratchet_frac <= 1.0:
                 err(f"{k}.ratchet_frac", d.ratchet_frac, "ratchet share must lie in (0, 1]", "write 80 % as 0.8")
             if d.ratchet_months == 0:
-                err(f"{k}.ratchet_months", None, "ratchet_frac needs ratchet_months", "e.g. ratchet_months = 11")
+                err(f"{k}.ratchet_months", None, f"ratchet_frac needs a look-back of 1-{_MAX_RATCHET_MONTHS} months "
+                    "(ratchet_months)", "e.g. ratchet_months = 11; or leave ratchet_frac out for no ratchet")
             elif not (isinstance(d.ratchet_months, int) and 1 <= d.ratchet_months <= _MAX_RATCHET_MONTHS):
                 err(f"{k}.ratchet_months", d.ratchet_months, f"ratchet look-back must be 1-{_MAX_RATCHET_MONTHS} months")
         elif d.ratchet_months:
@@ -715,7 +716,9 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
     _check_unique([t.name for t in tariff.taxes], "taxes", "name", err, at)
     for i, t in enumerate(tariff.taxes, start=1):
         if not 0.0 <= t.rate_pct <= 100.0:
-            err(at("taxes", i) + ".rate_pct", t.rate_pct, "rate must lie in 0-100 %", "write 20 % as 20, not 0.2")
+            err(at("taxes", i) + ".rate_pct", t.rate_pct, "rate must lie in 0-100 %",
+                "a tax or levy adds to the bill: a rebate or credit is not modelled" if t.rate_pct < 0
+                else "check the rate: 20 % is written 20")
         elif 0.0 < t.rate_pct < 1.0:
             warn(at("taxes", i) + ".rate_pct", t.rate_pct, "rate below 1 %: is this a fraction written in place of a percentage?", "write 20 % as 20")
         if t.base not in TAX_BASES:

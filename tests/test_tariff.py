@@ -630,3 +630,12 @@ def test_a_zone_without_summer_time_is_warned():
     assert "America/New_York" in found[0].hint
     _, problems = tariff_from_dict(tomllib.loads(TARIFF_E))
     assert not [p for p in problems if p.column == "tariff.time_zone"]
+
+
+def test_a_tax_rate_outside_0_to_100_gets_a_hint_that_fits_it():
+    base = TARIFF_E + '\n[[taxes]]\nname = "VAT"\nrate_pct = RATE\n'
+    for rate, hint in (("120", "20 % is written 20"), ("-5", "a rebate or credit is not modelled")):
+        _, problems = tariff_from_dict(tomllib.loads(base.replace("RATE", rate)))
+        found = [p for p in problems if p.column.endswith(".rate_pct") and p.severity == "error"]
+        assert found and hint in found[0].hint, rate
+        assert "0.2" not in found[0].hint
