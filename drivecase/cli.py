@@ -196,8 +196,10 @@ def cmd_bill(args: argparse.Namespace) -> int:
         print(f"drivecase bill: unknown site {unknown[0]!r}; sites are {', '.join(case.sites['site_id'])}", file=sys.stderr)
         return 1
     if args.reactive_sweep and args.reactive_sweep not in set(case.assets["asset_id"]):
+        from models.problems import unknown_ids_hint
+
         print(f"drivecase bill: unknown asset {args.reactive_sweep!r} for --reactive-sweep (asset_id in the asset "
-              "register)", file=sys.stderr)
+              f"register){unknown_ids_hint([args.reactive_sweep], case.assets['asset_id'])}", file=sys.stderr)
         return 1
     if args.capacitor_cost is not None and not args.capacitor_cost >= 0:
         print("drivecase bill: --capacitor-cost must be >= 0", file=sys.stderr)
@@ -486,7 +488,10 @@ def cmd_report(args: argparse.Namespace) -> int:
     if assets:
         unknown = sorted(set(assets) - set(case.assets["asset_id"]))
         if unknown:
-            print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}", file=sys.stderr)
+            from models.problems import unknown_ids_hint
+
+            print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}"
+                  + unknown_ids_hint(unknown, case.assets["asset_id"]), file=sys.stderr)
             return 1
     try:
         result = scenario.run(case, case.finance)

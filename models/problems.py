@@ -84,19 +84,37 @@ def warning(file: str, row: int | None, column: str | None, value: object, rule:
 
 def did_you_mean(word: object, choices: Iterable[str], cutoff: float = 0.7) -> str:
     """The start of a hint naming the closest of ``choices`` to ``word`` ("did you mean 'x'? "), or "" when
-    none is close enough (:func:`difflib.get_close_matches`, similarity >= ``cutoff``).
+    none is close enough: one that differs only in upper and lower case, else the closest by
+    :func:`difflib.get_close_matches` (similarity >= ``cutoff``).
 
     Examples
     --------
     >>> did_you_mean("curency", ["currency", "region"])
     "did you mean 'currency'? "
+    >>> did_you_mean("hrw-p01", ["HRW-P01", "HRW-P02"])
+    "did you mean 'HRW-P01'? "
     >>> did_you_mean("colour", ["currency", "region"])
     ''
     """
     import difflib
 
-    close = difflib.get_close_matches(str(word), list(choices), n=1, cutoff=cutoff)
+    choices = [str(c) for c in choices]
+    same = [c for c in choices if c.casefold() == str(word).casefold()]
+    close = same or difflib.get_close_matches(str(word), choices, n=1, cutoff=cutoff)
     return f"did you mean '{close[0]}'? " if close else ""
+
+
+def unknown_ids_hint(unknown: Iterable[str], known: Iterable[str]) -> str:
+    """" (a: did you mean 'A'?; ...)" for the unknown ids that have a near known one, else "".
+
+    Examples
+    --------
+    >>> unknown_ids_hint(["hrw-p01", "ZZ"], ["HRW-P01", "HRW-P02"])
+    " (hrw-p01: did you mean 'HRW-P01'?)"
+    """
+    known = [str(k) for k in known]
+    hints = "; ".join(f"{a}: {h.strip()}" for a in unknown if (h := did_you_mean(a, known)))
+    return f" ({hints})" if hints else ""
 
 
 def shown_value(value: object) -> str:

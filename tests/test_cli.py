@@ -710,3 +710,11 @@ def test_bill_cautions_a_site_that_leads_where_its_tariff_bans_it(tmp_path, caps
     assert main(["bill", str(case)]) == 0
     out = capsys.readouterr().out
     assert "CAUTION:" in out and "where the tariff bans them (leading:night leading kVArh)" in out
+
+
+def test_an_asset_id_in_another_case_gets_a_did_you_mean(tmp_path, capsys):
+    # asset ids are matched exactly; one typed in lower case is named with the register's spelling
+    assert main(["bill", str(DEMO), "--site", "KGQ", "--reactive-sweep", "kgq-cr01"]) == 1
+    assert "did you mean 'KGQ-CR01'?" in capsys.readouterr().err
+    assert main(["report", str(DEMO), "--out", str(tmp_path / "p"), "--assets", "hrw-p01"]) == 1
+    assert "did you mean 'HRW-P01'?" in capsys.readouterr().err

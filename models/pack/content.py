@@ -164,7 +164,9 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
     if assets:
         unknown = [a for a in assets if a not in set(known)]
         if unknown:
-            raise ValueError(f"unknown asset(s): {', '.join(map(str, unknown))}")
+            from models.problems import unknown_ids_hint
+
+            raise ValueError(f"unknown asset(s): {', '.join(map(str, unknown))}" + unknown_ids_hint(unknown, known))
         wanted = list(dict.fromkeys(str(a) for a in assets))
     if not wanted and not plan:
         raise ValueError("nothing to report: give asset ids or ask for the plan")
