@@ -376,6 +376,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     if args.no_risk:
         print("(with --no-risk, risk.csv, tornado.csv, plan_risk.csv, plan_tornado.csv and npv_draws.csv hold their "
               "column headers only: no uncertainty was run)")
+    if result.end_of_life.empty:
+        files = "end_of_life.csv and fleet_rules.csv hold" if result.fleet_rules.empty else "end_of_life.csv holds"
+        print(f"({files} column headers only: the end-of-life comparison needs a rewind option and a new induction "
+              "motor option in the catalogue, offered to at least one motor)")
     print(f"\n{CAUTION}")
     return 0
 

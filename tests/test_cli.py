@@ -718,3 +718,15 @@ def test_an_asset_id_in_another_case_gets_a_did_you_mean(tmp_path, capsys):
     assert "did you mean 'KGQ-CR01'?" in capsys.readouterr().err
     assert main(["report", str(DEMO), "--out", str(tmp_path / "p"), "--assets", "hrw-p01"]) == 1
     assert "did you mean 'HRW-P01'?" in capsys.readouterr().err
+
+
+def test_run_says_why_the_end_of_life_files_are_empty(tmp_path, capsys):
+    # a catalogue without a rewind row has no end-of-life comparison: the run says so beside the files
+    case = shutil.copytree(DEMO, tmp_path / "demo")
+    catalogue = (REPO / "data" / "defaults" / "options.csv").read_text(encoding="utf-8").splitlines()
+    kept = [line for line in catalogue if not line.startswith("rewind,")]
+    assert len(kept) == len(catalogue) - 1
+    (case / "options.csv").write_text("\n".join(kept) + "\n", encoding="utf-8")
+    assert main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "end_of_life.csv and fleet_rules.csv hold column headers only" in out
