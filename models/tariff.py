@@ -636,6 +636,9 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             err(key, value, "negative price", "set tariff.allow_negative_prices = true if this is intended")
 
     def refs(key: str, items: tuple[str, ...] | None, known, kind: str) -> None:
+        if items is not None and not len(items):  # an empty list is "none", not "all": the clause bills nothing
+            warn(key, [], f"the clause lists no {kind}: it applies in none and bills nothing",
+                 f"leave '{key.rsplit('.', 1)[-1]}' out for every {kind}, or list the {kind}s it applies in")
         for x in items or ():
             if x not in known:
                 err(key, x, f"unknown {kind}", f"{kind}s are: {', '.join(sorted(known))}")

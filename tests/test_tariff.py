@@ -639,3 +639,11 @@ def test_a_tax_rate_outside_0_to_100_gets_a_hint_that_fits_it():
         found = [p for p in problems if p.column.endswith(".rate_pct") and p.severity == "error"]
         assert found and hint in found[0].hint, rate
         assert "0.2" not in found[0].hint
+
+
+def test_a_clause_listing_no_period_is_warned_that_it_bills_nothing():
+    # "periods = []" selects no period (leaving the key out selects every one): the clause would bill nothing
+    text = TARIFF_E + '\n[[demand]]\nname = "peak demand"\nprice_per_kw_month = 10.0\nperiods = []\n'
+    tariff, problems = tariff_from_dict(tomllib.loads(text))
+    found = [p for p in problems if p.column.endswith(".periods") and p.severity == "warning"]
+    assert tariff is not None and found and "bills nothing" in found[0].rule
