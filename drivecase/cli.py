@@ -184,7 +184,8 @@ def cmd_bill(args: argparse.Namespace) -> int:
     import numpy as np
 
     from models.attribution import reactive_balance
-    from models.bill_savings import banned_quantities, meter_and_bills, monthly_bill_table, reactive_value_curve, site_setups
+    from models.bill_savings import (banned_caution, banned_quantities, meter_and_bills, monthly_bill_table,
+                                     reactive_value_curve, site_setups)
     from models.operation import operate
 
     case = _load_or_report(args.case)
@@ -225,8 +226,7 @@ def cmd_bill(args: argparse.Namespace) -> int:
         print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW")
         print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
         for line in banned_quantities(bills[bills["site_id"] == site_id]).itertuples(index=False):
-            print(f"  CAUTION: {line.quantity:,.0f} {line.unit} billed in {counted(int(line.months), 'month')} where the "
-                  f"tariff bans them ({line.line_item}): the utility's rules may not allow it")
+            print(f"  CAUTION: {banned_caution(line)}")
         balance = reactive_balance(meter, op.interval_h)
         print(f"  Reactive balance: lagging {balance['lagging_kvarh'] / 1000:,.0f} MVArh, leading "
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
@@ -386,7 +386,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 def _print_run_summary(case, result) -> None:
     from models import scenario
-    from models.bill_savings import banned_quantities
+    from models.bill_savings import banned_caution, banned_quantities
     from models.plan import option_labels
     from models.reactive_plan import withdrawn_text
 
@@ -423,11 +423,7 @@ def _print_run_summary(case, result) -> None:
               f"bills fall by {together:,.0f} {currency}/yr (projects share demand peaks, ratchets and reactive "
               f"allowances; bills.csv)")
     for line in banned_quantities(result.bills).itertuples(index=False):
-        who = "With the plan in place" if line.scenario == "plan" else "Today"
-        print(f"  CAUTION: {who}, site {line.site_id} is billed {line.quantity:,.0f} {line.unit} in "
-              f"{counted(int(line.months), 'month')} where its tariff bans them ({line.line_item}): the utility's rules "
-              "may not allow it; switch capacitor banks off in those hours, size the reactive projects down, or ask the "
-              "utility (bills.csv, column banned)")
+        print(f"  CAUTION: {banned_caution(line)} (bills.csv, column banned)")
     status = result.plan_status or {}
     if status.get("message"):
         print(f"  Exact plan: {status['message']}")

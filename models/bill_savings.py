@@ -188,6 +188,18 @@ def banned_quantities(bills: pd.DataFrame) -> pd.DataFrame:
     return out[columns]
 
 
+def banned_caution(line) -> str:
+    """One row of :func:`banned_quantities` as a caution, in words (the run summary's, ``bill``'s and the Site
+    meter page's)."""
+    from models.wording import counted
+
+    who = "With the plan in place" if line.scenario == "plan" else "Today"
+    return (f"{who}, site {line.site_id} is billed {line.quantity:,.0f} {line.unit} in "
+            f"{counted(int(line.months), 'month')} where its tariff bans them ({line.line_item}): the utility's "
+            "rules may not allow it; switch capacitor banks off in those hours, size the reactive projects down, "
+            "or ask the utility")
+
+
 def _book_arrays(book: tabulation.CurveBook | None, p_block: np.ndarray) -> tuple:
     """A block's curve book as the compiled passes take it; an empty book (every row read from the
     arrays) when there is none."""

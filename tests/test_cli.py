@@ -709,7 +709,7 @@ def test_bill_cautions_a_site_that_leads_where_its_tariff_bans_it(tmp_path, caps
     (case / "capacitors.csv").write_text("site_id,bank_id,rated_q_kvar,control\nS1,C1,150,fixed\n", encoding="utf-8")
     assert main(["bill", str(case)]) == 0
     out = capsys.readouterr().out
-    assert "CAUTION:" in out and "where the tariff bans them (leading:night leading kVArh)" in out
+    assert "CAUTION: Today, site S1 is billed" in out and "where its tariff bans them (leading:night leading kVArh)" in out
 
 
 def test_an_asset_id_in_another_case_gets_a_did_you_mean(tmp_path, capsys):

@@ -54,3 +54,16 @@ def test_plan_page_says_how_much_of_the_plan_rests_on_low_data_quality(small_eng
     share = sum(max(r["npv_at_plan_start"], 0.0) for r in low) / sum(npv)
     assert f"Caution: {len(low)} project" in text and f"({share:.0%} of its NPV)" in text
     assert "below 70 %" in text
+
+
+def test_site_meter_says_when_the_plan_makes_the_site_lead_where_its_tariff_bans_it(tmp_path_factory, monkeypatch):
+    # the case of tests/test_cli.py (a pump beside a 40 kVAr fixed bank on the tariff that bans night leading
+    # kVArh): the plan's PM motor on a drive draws almost no kVAr, so the bank makes the site lead at night
+    from test_cli import _leading_banned_case
+
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(_leading_banned_case(tmp_path_factory.mktemp("cases") / "banned"))
+    assert entry is not None, problems
+    monkeypatch.setattr(services, "_ENGINE", eng)
+    text = _text(site.update("S1", None, None, None)[4])
+    assert "Caution: With the plan in place, site S1 is billed" in text and "where its tariff bans them" in text

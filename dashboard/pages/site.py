@@ -9,6 +9,7 @@ from dash import Input, Output, State, callback, dcc, html
 
 from dashboard import components as ui
 from dashboard import figures, services
+from models.bill_savings import banned_caution, banned_quantities
 from models.case import coarse_demand_profiles, demand_window_text
 
 
@@ -105,6 +106,8 @@ def update(site_id, week, session, edits):
     coarse = coarse_demand_profiles(case.sites, case.assets, case.tariffs, case.profile_info).get(str(site_id))
     if coarse is not None:  # the case check's warning, where the figures it concerns are shown
         summary += [html.Br(), html.Span("Caution: " + demand_window_text(*coarse) + ".", className="small caution")]
+    for line in banned_quantities(result.bills[result.bills["site_id"] == site_id]).itertuples(index=False):
+        summary += [html.Br(), html.Span("Caution: " + banned_caution(line) + ".", className="small caution")]
     return (figures.meter_week(services.week_slice(site, week)),
             figures.pf_duration(services.pf_duration(site, interval_h)),
             figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
