@@ -115,6 +115,11 @@ class ProjectInputs:
         Incentive granted to the project on top of the rule in the assumptions [currency], >= 0.
     replace_at_failure : array_like of bool or None
         Per-project timing; None follows ``assumptions.replacement_mode``.
+    baseline_savings_per_yr : array_like or None
+        Savings of the must-spend item against the existing asset, per component [currency/yr], shape
+        (n_projects, 5) in :data:`SAVINGS_COMPONENTS` order (a new motor bought at failure saves too):
+        from the failure year on, the base case runs it, so the option's savings over the base case are
+        its own less these. None (the default) = 0.
     """
 
     project_id: Any
@@ -137,6 +142,7 @@ class ProjectInputs:
     midlife_year_yr: Any = 0.0
     incentive: Any = 0.0
     replace_at_failure: Any = None
+    baseline_savings_per_yr: Any = None
 
     @property
     def n_projects(self) -> int:
@@ -330,7 +336,8 @@ def build_cash_flows(projects: ProjectInputs, assumptions: FinanceAssumptions) -
       "baseline_credit": the option makes it unnecessary. Setting the must-spend to the cheapest
       allowed replacement makes the capital counted the increment over it [1], [2].
     * Savings of bill component c in year t (s < t <= H) are S_c (1 + e_c)^t, base-year prices
-      escalated from year 0 (the convention of the NIST UPV* factor [1]).
+      escalated from year 0 (the convention of the NIST UPV* factor [1]); from the failure year on
+      (t > f) the base case runs the must-spend item, so its own savings B_c (1 + e_c)^t are taken off.
     * The mid-life item falls m years after each purchase (if m < L and within the horizon), priced
       like capital.
     * Residual value at H: straight line on the remaining life of the last purchase, for the option
@@ -427,9 +434,16 @@ def build_cash_flows(projects: ProjectInputs, assumptions: FinanceAssumptions) -
     out[:, :, col["midlife"]] = -midlife_cost[:, None] * midlife_due * price_index[None, :]
 
     active = (t[None, :] > start[:, None])
-    for name in SAVINGS_COMPONENTS:
+    baseline_savings = (np.zeros((n, len(SAVINGS_COMPONENTS))) if projects.baseline_savings_per_yr is None
+                        else np.broadcast_to(np.asarray(projects.baseline_savings_per_yr, dtype=float),
+                                             (n, len(SAVINGS_COMPONENTS))))
+    if not np.all(np.isfinite(baseline_savings)):
+        raise ValueError("baseline_savings_per_yr must be finite")
+    replaced = active & (t[None, :] > failure[:, None])  # the base case runs the must-spend item from then on
+    for k, name in enumerate(SAVINGS_COMPONENTS):
         growth = np.power(1.0 + assumptions.escalation_frac(_ESCALATION_OF[name]), t.astype(float))
-        out[:, :, col[name]] = savings[name][:, None] * growth[None, :] * active
+        out[:, :, col[name]] = (savings[name][:, None] * active
+                                - baseline_savings[:, k][:, None] * replaced) * growth[None, :]
 
     residual = (capex_total * _residual_fraction(start, life, H)
                 - baseline_capex * _residual_fraction(failure, baseline_life, H)) * price_index[H]

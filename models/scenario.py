@@ -469,7 +469,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     if assumptions.capital_cost_factor != 1.0:
         capex = replace(capex, amount=capex.amount * float(assumptions.capital_cost_factor))
     comp = {name: capex.amount[..., k] for k, name in enumerate(capex.components)}
-    must_capex, must_life, _ = _must_spend(case, options, capex.total, op.applies)
+    must_capex, must_life, must_pos = _must_spend(case, options, capex.total, op.applies)
     age, shape, scale, residual_life = _remaining_life(case, year)
     maint = _maintenance_per_yr(options, rated)
     maint_saving = maint[:, [0]] - maint
@@ -507,6 +507,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         # a drive or a capacitor added to the running motor does not wait for it to fail: with replacement at
         # failure, only the options that replace today's motor are bought then
         replace_at_failure=replaces & (assumptions.replacement_mode == "replace_at_failure"),
+        # from the failure on, the base case runs the must-spend item (a rewound or a new motor), whose own
+        # savings against today's motor are no longer the option's to claim
+        baseline_savings_per_yr=np.where(
+            (replaces & (must_capex[rows] > 0))[:, None],
+            np.column_stack([sav.saving[rows, must_pos[rows], k] for k in range(4)] + [maint_saving[rows, must_pos[rows]]]),
+            0.0),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
     # today's motor is the reference: its increment is zero by definition

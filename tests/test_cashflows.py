@@ -186,3 +186,20 @@ class TestInvalidInput:
         flows = cf.build_cash_flows(cf.ProjectInputs(project_id=[]), FinanceAssumptions(horizon_yr=3))
         assert flows.amounts.shape == (0, 4, len(cf.COMPONENTS))
         assert isinstance(flows.to_frame(), pd.DataFrame) and flows.to_frame().empty
+
+
+def test_savings_over_a_base_case_that_buys_a_new_motor_at_failure():
+    # Hand calculation (8 %, 10 years, replace now): an IE4 motor for 1,100 saving 489.36 a year, where today's
+    # motor would fail in year 7 and be replaced by the same IE4 motor (the must-spend, life 20). From year 8 the
+    # base case runs that motor, so the increment saves nothing more:
+    # NPV = -1,100 + 489.36 x (1 - 1.08^-7) / 0.08 + 1,100 / 1.08^7 - (0.85 - 0.5) x 1,100 / 1.08^10
+    #     = -1,100 + 489.36 x 5.206370 + 1,100 / 1.713824 - 385 / 2.158925
+    #     = -1,100 + 2,547.789 + 641.839 - 178.330 = 1,911.30 (residuals: the option's 10 of 20 years left, the
+    #       must-spend's 17 of 20)
+    a = FinanceAssumptions(discount_rate_frac=0.08, horizon_yr=10)
+    p = cf.ProjectInputs(project_id=["M1/ie4"], capex_equipment=1100.0, savings_energy_per_yr=489.36,
+                      option_life_yr=20.0, baseline_capex=1100.0, baseline_life_yr=20.0,
+                      existing_remaining_life_yr=7.0, baseline_savings_per_yr=[[489.36, 0.0, 0.0, 0.0, 0.0]])
+    flows = cf.build_cash_flows(p, a)
+    assert_allclose(flows.component("savings_energy")[0, 8:], 0.0, atol=1e-12)
+    assert_allclose(npv(flows.net()[0], 0.08), 1911.30, atol=0.01)

@@ -241,9 +241,9 @@ class TestFormulasReproduceTheEngine:
         # payback within the horizon (the recommended drive)
         assert math.isfinite(res.loc[("P1", "add_drive"), "simple_payback_yr"])
         # simple payback inside 15 years, discounted payback not
-        assert math.isfinite(res.loc[("C1", "ie4"), "simple_payback_yr"])
-        assert math.isinf(res.loc[("C1", "ie4"), "discounted_payback_yr"])
-        assert self.metric(values, blocks, "C1", "ie4", "Discounted payback [yr]") == "not within horizon"
+        assert math.isfinite(res.loc[("C1", "lspm"), "simple_payback_yr"])
+        assert math.isinf(res.loc[("C1", "lspm"), "discounted_payback_yr"])
+        assert self.metric(values, blocks, "C1", "lspm", "Discounted payback [yr]") == "not within horizon"
         # payback never reached and no IRR at all (the rewind only loses money)
         assert math.isinf(res.loc[("P1", "rewind"), "simple_payback_yr"])
         assert self.metric(values, blocks, "P1", "rewind", "Simple payback [yr]") == "not within horizon"

@@ -685,3 +685,21 @@ def test_a_motors_running_cost_is_its_kwh_share_of_the_site_bill(tmp_path):
     kwh = float(result.results.set_index("option_id").loc["keep", "energy_kwh_per_yr"])
     running = result.lcc.set_index(["option_id", "component"]).loc[("keep", "running"), "pv"]
     assert_allclose(running, kwh * 0.10 * 8.530203, rtol=1e-6)
+
+
+def test_an_option_saves_nothing_over_a_base_case_that_has_bought_it_at_failure(result):
+    # a rewind whose must-spend is that same rewind (the cheaper of a rewind and a new motor): once today's motor
+    # fails the base case runs the same rewound motor, so from the failure year on the increment saves nothing
+    # (docs/finance.md, section 4)
+    r = result.results
+    flows = result.cash_flows
+    horizon = int(result.assumptions.horizon_yr)
+    same = ((r["option_id"] == "rewind") & np.isclose(r["capital"], r["must_spend_capital"])
+            & (np.rint(r["existing_remaining_life_yr"]) < horizon)).to_numpy()
+    assert same.sum() > 3
+    savings = sum(flows.component(name) for name in ("savings_energy", "savings_demand", "savings_reactive",
+                                                      "savings_fixed", "savings_maintenance"))
+    for i in np.flatnonzero(same):
+        failure = int(np.rint(r["existing_remaining_life_yr"].iloc[i]))
+        assert np.all(savings[i, failure + 1:] == 0.0), r[["asset_id", "option_id"]].iloc[i].tolist()
+        assert np.any(savings[i, 1:failure + 1] != 0.0)
