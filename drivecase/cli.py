@@ -398,7 +398,7 @@ def _print_run_summary(case, result) -> None:
     from models.case import power_label, rating_in_unit
 
     unit = power_label(case.settings.power_unit)  # motor ratings in the case's unit; meters and energy stay in kW
-    from models.plan import LOW_DATA_QUALITY_PCT, low_data_quality
+    from models.plan import LOW_DATA_QUALITY_PCT, capital_in_budget_years, low_data_quality
 
     print(f"\nCase: {case.settings.name}")
     print(f"  {counted(len(case.assets), 'asset')} ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} "
@@ -409,6 +409,14 @@ def _print_run_summary(case, result) -> None:
           f"{currency}/yr (bills {chosen['bill_saving_per_yr'].sum():,.0f}, maintenance "
           f"{chosen['saving_maintenance_per_yr'].sum():,.0f}), "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
+    budgets = result.assumptions.budget_per_yr
+    if (len(budgets) and result.assumptions.replacement_mode == "replace_at_failure"
+            and result.capital_spend_by_year is not None):
+        inside, after = capital_in_budget_years(plan, r, result.capital_spend_by_year, len(budgets))
+        if after > 0.01 * max(inside + after, 1e-9):
+            print(f"  Of the plan's capital over the horizon, {inside:,.0f} {currency} falls in the "
+                  f"{counted(len(budgets), 'budgeted plan year')} and {after:,.0f} {currency} later (replacements "
+                  "bought at each motor's expected failure, repeat purchases), which the budgets do not cover")
     low_n, low_share = low_data_quality(plan, dict(zip(case.assets["asset_id"], case.assets["data_quality_pct"])))
     if low_n:
         print(f"  Data quality: {counted(low_n, 'project')} of the plan, {100 * low_share:.0f} % of its NPV, rest on "

@@ -745,6 +745,37 @@ def project_labels(frame: pd.DataFrame) -> pd.Series:
     return frame["asset_id"].astype(str) + "/" + frame["option_id"].astype(str)
 
 
+def capital_in_budget_years(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_spend_by_year: np.ndarray,
+                            n_years: int) -> tuple[float, float]:
+    """The plan's gross capital spent within its first ``n_years`` plan years, and after them [currency].
+
+    Parameters
+    ----------
+    plan_frame : pandas.DataFrame
+        A plan (asset_id, option_id, start_yr).
+    results : pandas.DataFrame
+        The per-project results whose rows ``capital_spend_by_year`` follows (asset_id, option_id).
+    capital_spend_by_year : numpy.ndarray
+        Gross capital by project and project year [currency] (:meth:`models.cashflows.CashFlows.capital_spend_by_year`).
+    n_years : int
+        Plan years the budgets cover.
+
+    Examples
+    --------
+    >>> res = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "x"]})
+    >>> plan = pd.DataFrame({"asset_id": ["B"], "option_id": ["x"], "start_yr": [1]})
+    >>> capital_in_budget_years(plan, res, np.array([[5.0, 0, 0], [2.0, 3.0, 4.0]]), 2)
+    (2.0, 7.0)
+    """
+    if plan_frame.empty:
+        return 0.0, 0.0
+    rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
+    spend = np.asarray(capital_spend_by_year, dtype=float)[rows]
+    year = plan_frame["start_yr"].to_numpy(dtype=int)[:, None] + np.arange(spend.shape[1])[None, :]
+    inside = float(spend[year < n_years].sum())
+    return inside, float(spend.sum()) - inside
+
+
 def option_labels(frame: pd.DataFrame) -> dict[str, str]:
     """Option id -> the option's label in the options catalogue, from a table of projects with ``option_id``
     and ``label`` (e.g. the per-project results)."""

@@ -730,3 +730,17 @@ def test_run_says_why_the_end_of_life_files_are_empty(tmp_path, capsys):
     assert main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
     out = capsys.readouterr().out
     assert "end_of_life.csv and fleet_rules.csv hold column headers only" in out
+
+
+def test_run_says_how_much_of_the_plans_capital_the_budgets_cover_when_replacements_wait_for_failure(tmp_path, capsys):
+    # under replace_at_failure a replacement is bought at its motor's expected failure, often after the budgeted
+    # plan years (data/demo/finance.toml budgets three years): the summary splits the plan's capital so
+    case = shutil.copytree(DEMO, tmp_path / "demo")
+    finance = case / "finance.toml"
+    text = finance.read_text(encoding="utf-8")
+    assert 'replacement_mode = "replace_now"' in text
+    finance.write_text(text.replace('replacement_mode = "replace_now"', 'replacement_mode = "replace_at_failure"'),
+                       encoding="utf-8")
+    assert main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "Of the plan's capital over the horizon" in out and "falls in the 3 budgeted plan years" in out
