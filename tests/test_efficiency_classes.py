@@ -133,3 +133,11 @@ def test_a_rating_in_horsepower_meets_the_catalogues_smallest_rating():
     assert (applies[0] == applies[1]).all() and applies[0].sum() > 1
     ids = list(options["option_id"])
     assert not applies[2, ids.index("ie3")] and "below the option's range" in reason[2, ids.index("ie3")]
+
+
+def test_two_pole_premium_above_200_hp():
+    # from memory: NEMA Premium (10 CFR 431.25(h), 1-500 hp) asks 95.8 % of 250-500 hp 2-pole enclosed motors,
+    # above the 95.4 % of 200 hp; 225 hp sits below the 200/250 hp midpoint (10 CFR 431.25 midpoint rule)
+    hp = 0.745699872
+    got = min_efficiency_pct([200 * hp, 225 * hp, 250 * hp, 500 * hp], 2, 60, "IE3")
+    assert_allclose(got, [95.4, 95.4, 95.8, 95.8], atol=1e-9)
