@@ -29,7 +29,8 @@ BUDGET = "#7c4f8f"
 OPTION_COLOURS = ("#5b6b7a", "#88ccee", "#cc6677", "#ddcc77", "#117733", "#332288", "#aa4499", "#44aa99",
                   "#999933", "#882255", "#661100")
 #: Colours of life-cycle cost components.
-LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a", "maintenance": "#6a8d4f"}
+LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a", "maintenance": "#6a8d4f",
+               "tax": "#8a7aa8"}
 #: Colours of bill line-item categories.
 BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "pf adjustment": "#b35b52",
                 "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
@@ -155,7 +156,8 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
 # One asset
 # ---------------------------------------------------------------------------------------------------
 def lcc_stack(lcc: pd.DataFrame, currency: str) -> go.Figure:
-    """Life-cycle cost per option, stacked by component (capital, residual, running, maintenance).
+    """Life-cycle cost per option, stacked by component (capital, residual, running, maintenance, tax, as
+    ``models.scenario.LCC_COMPONENTS``; a component absent from ``lcc`` is left out).
 
     Parameters
     ----------
@@ -166,7 +168,9 @@ def lcc_stack(lcc: pd.DataFrame, currency: str) -> go.Figure:
         return message_figure("No life-cycle cost for this asset.")
     order = list(dict.fromkeys(lcc["label"]))
     fig = go.Figure()
-    for component in ("capital", "residual", "running", "maintenance"):
+    for component in LCC_COLOURS:  # (the order of models.scenario.LCC_COMPONENTS)
+        if not (lcc["component"] == component).any():
+            continue
         part = lcc[lcc["component"] == component].set_index("label")["pv"].reindex(order)
         fig.add_trace(go.Bar(x=order, y=part.to_numpy(dtype=float), name=component,
                              marker_color=LCC_COLOURS[component],

@@ -31,6 +31,8 @@ from models.regulations import class_rank, minimum_class
 
 #: Technologies that replace today's motor (and so avoid the spend its failure would force).
 REPLACING_TECHNOLOGIES = ("rewind", "induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
+#: Life-cycle cost components (``lcc.csv``), in stacking order.
+LCC_COMPONENTS = ("capital", "residual", "running", "maintenance", "tax")
 #: Technologies added to today's motor, which stays in service (and keeps its own maintenance).
 ADD_ON_TECHNOLOGIES = ("add_drive", "capacitor")
 #: Planning horizon of the fleet plan when the budget list is empty [yr].
@@ -773,13 +775,19 @@ def _flags_by_project(op: OperatingResult, rows: np.ndarray, cols: np.ndarray) -
 
 
 def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, project_ids, assumptions):
-    """Life-cycle cost of every asset-option, stacked by component, consistent with the NPV.
+    """Life-cycle cost of every asset-option, stacked by component (:data:`LCC_COMPONENTS`), consistent with
+    the NPV.
 
     Notes
     -----
-    Today's motor's running cost is its share of the site bill: its input energy times the site's mean
-    bill per kWh. An option's running cost is that less its bill saving, so LCC(keep) - LCC(option) is
-    the option's NPV whenever the capital components match (common convention, NIST Handbook 135).
+    Today's motor's running cost is its share of the site bill (its input energy times the site meter's
+    bill per kWh, :func:`_mean_bill_per_kwh`) and its maintenance, both escalated and discounted over the
+    horizon. An option's running and maintenance costs are today's less the savings its cash flows carry
+    (with their timing: a replacement bought at failure saves from then on, and over a base case that has
+    bought its must-spend item, that item's savings less), and its capital, residual and tax components are
+    its cash flows' own (the tax on its savings and the depreciation shield of its increment; today's costs
+    are before tax). So LCC(keep) - LCC(option) is the option's NPV exactly (the NIST Handbook 135
+    convention for comparing alternatives).
     """
     price = _mean_bill_per_kwh(op, sav.baseline_bills)
     years = np.arange(horizon + 1)
@@ -789,24 +797,28 @@ def _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, proje
         e = assumptions.escalation_frac(component)
         return float((((1.0 + e) / (1.0 + d)) ** years[1:]).sum())
 
-    # running cost of today's motor escalates with energy; each saving with its own component's rate
-    running_keep = op.energy_kwh[rows, 0] * price[rows]
-    pv_running = running_keep * upv_star("energy") - sum(
-        sav.saving[rows, cols, k] * upv_star(name) for k, name in enumerate(sav.components))
-    pv_maint = maint[rows, cols] * upv_star("maintenance")
     names = flows.component_names
     amounts = flows.amounts
-    capital_like = [k for k, n in enumerate(names) if n.startswith("capital") or n in ("midlife", "baseline_credit", "incentive")]
-    pv_capital = -(amounts[:, :, capital_like].sum(axis=2) * disc[None, :]).sum(axis=1)
-    residual_k = [k for k, n in enumerate(names) if n == "residual"]
-    pv_residual = -(amounts[:, :, residual_k].sum(axis=2) * disc[None, :]).sum(axis=1)
-    total = pv_capital + pv_residual + pv_running + pv_maint
+
+    def pv_of(selected) -> np.ndarray:
+        ks = [k for k, n in enumerate(names) if selected(n)]
+        return (amounts[:, :, ks].sum(axis=2) * disc[None, :]).sum(axis=1)
+
+    # today's running cost escalates with energy; the option's savings as its cash flows carry them
+    running_keep = op.energy_kwh[rows, 0] * price[rows]
+    pv_running = running_keep * upv_star("energy") - pv_of(lambda n: n in reactive_plan.BILL_SAVING_COMPONENTS)
+    pv_maint = maint[rows, 0] * upv_star("maintenance") - pv_of(lambda n: n == "savings_maintenance")
+    pv_capital = -pv_of(lambda n: n.startswith("capital") or n in ("midlife", "baseline_credit", "incentive"))
+    pv_residual = -pv_of(lambda n: n == "residual")
+    pv_tax = -pv_of(lambda n: n.startswith("tax_"))
+    parts = np.column_stack([pv_capital, pv_residual, pv_running, pv_maint, pv_tax])
     frame = pd.DataFrame({
-        "asset_id": np.repeat(op.asset_ids[rows], 4), "option_id": np.repeat(op.option_ids[cols], 4),
-        "component": np.tile(["capital", "residual", "running", "maintenance"], len(rows)),
-        "pv": np.column_stack([pv_capital, pv_residual, pv_running, pv_maint]).ravel(),
+        "asset_id": np.repeat(op.asset_ids[rows], len(LCC_COMPONENTS)),
+        "option_id": np.repeat(op.option_ids[cols], len(LCC_COMPONENTS)),
+        "component": np.tile(LCC_COMPONENTS, len(rows)),
+        "pv": parts.ravel(),
     })
-    return frame, total
+    return frame, parts.sum(axis=1)
 
 
 def _plan_with_interactions(case, op, results, capital_spend, project_ids, assumptions, d, settings: PlanSettings,

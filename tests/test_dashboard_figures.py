@@ -429,3 +429,9 @@ class TestEndOfLife:
         fig = figures.end_of_life_costs(self.strategies.iloc[0:0], "EUR", "Not available: no rewind option.")
         assert not fig.data and fig.layout.annotations[0].text == "Not available: no rewind option."
         assert figures.end_of_life_costs(None, "EUR").layout.annotations[0].text == "No end-of-life comparison."
+
+
+def test_the_lcc_figure_draws_every_component_the_engine_writes():
+    from models.scenario import LCC_COMPONENTS
+
+    assert tuple(figures.LCC_COLOURS) == LCC_COMPONENTS
