@@ -493,6 +493,10 @@ CLASS_NAME_EQUIVALENTS: tuple[tuple[str, str], ...] = (
 )
 
 
+#: Enclosure codes of NEMA nameplates, which registers sometimes put in a class or type column.
+ENCLOSURE_CODES = frozenset({"tefc", "odp", "tenv", "teao", "txp", "xp", "wpi", "wpii", "tebc", "tewc"})
+
+
 def _class_name_hint(value: object) -> str:
     """A hint for an efficiency class written in another scheme's words ("" when none matches).
 
@@ -502,8 +506,13 @@ def _class_name_hint(value: object) -> str:
     "'NEMA Premium' corresponds to IE3 (IEC 60034-30-1: IE1 standard, IE2 high, IE3 premium, IE4 super premium efficiency): write IE3"
     >>> _class_name_hint("IE9")
     ''
+    >>> _class_name_hint("TEFC")
+    "'TEFC' names the enclosure, not the efficiency: write the IE class (IE1-IE4), or leave the cell blank"
     """
     text = str(value).strip().lower()
+    if text.replace(" ", "") in ENCLOSURE_CODES:
+        return (f"'{str(value).strip()}' names the enclosure, not the efficiency: write the IE class (IE1-IE4), or "
+                "leave the cell blank")
     for words, ie in CLASS_NAME_EQUIVALENTS:
         if words in text:
             return (f"'{str(value).strip()}' corresponds to {ie} (IEC 60034-30-1: IE1 standard, IE2 high, IE3 premium, "
@@ -1332,9 +1341,12 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     for i in np.flatnonzero(checkable & ~prof.isin(known_profiles).to_numpy()):
         checker.err(i, "profile_id", prof.iloc[i], "unknown profile reference (not in profiles or duty)",
                     _near_id_hint(prof.iloc[i], known_profiles, "add the profile or correct the reference"))
+    # (a cell given but unreadable has its own error already: not said again as missing)
+    unreadable = {(p.row, p.column) for p in checker.problems if p.severity == "error"}
     for i in np.flatnonzero(~has_profile & ~has_hours):
         missing = "operating_h_per_yr" if np.isnan(hours[i]) else "mean_load_pct"
-        checker.err(i, missing, None, "give a profile_id, or both operating_h_per_yr and mean_load_pct")
+        if (int(checker.rows[i]), checker.header(missing)) not in unreadable:
+            checker.err(i, missing, None, "give a profile_id, or both operating_h_per_yr and mean_load_pct")
     for i in np.flatnonzero(has_profile & has_hours):
         checker.warn(i, "profile_id", prof.iloc[i], "both a profile and hours + mean load are given; the profile is used")
     # input-kW profiles against rating

@@ -723,8 +723,11 @@ class TestHintsForOtherConventions:
         assert other.hint == "check the spelling"
 
     def test_a_thousands_comma_says_how_to_write_the_number(self, tmp_path):
-        found = _find(self._with(tmp_path, "operating_h_per_yr", "6,000", asset=1), column="operating_h_per_yr", row=3)
+        problems = self._with(tmp_path, "operating_h_per_yr", "6,000", asset=1)
+        found = _find(problems, column="operating_h_per_yr", row=3)
         assert found.hint == "write 6000 without the comma, or 6.000 if the comma is a decimal mark (unit: h/yr)"
+        # one error for the cell: the hours were given, so they are not also said to be missing
+        assert [p.rule for p in problems if p.row == 3 and p.severity == "error"] == [found.rule]
 
     def test_an_implausible_current_on_a_rating_in_hp_does_not_speak_of_watts(self, tmp_path):
         # 500 hp = 372.85 kW at 4.16 V: about 51,700 A, so the voltage was given in kV

@@ -413,3 +413,10 @@ def test_us_register_habits_get_a_hint_that_says_what_to_write(tmp_path, changes
     _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with(*changes)))
     found = _find(problems, row=3, column=column)
     assert hint in found.hint
+
+
+def test_an_enclosure_code_in_the_class_column_is_named_so(tmp_path):
+    # "TEFC" (totally enclosed fan-cooled) is a NEMA nameplate's enclosure, often copied into the class column
+    _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with((1, "efficiency_class", "TEFC"))))
+    found = _find(problems, row=3, column="efficiency_class")
+    assert "names the enclosure, not the efficiency" in found.hint
