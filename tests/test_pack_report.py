@@ -304,6 +304,14 @@ class TestDecisionRecords:
         row = register[register["detail"].str.startswith("no interval data")].iloc[0]
         assert row["category"] == "data" and "Log the load" in row["response"]
 
+    def test_a_defaulted_class_asks_for_what_a_nameplate_shows(self, small):
+        # a NEMA nameplate gives a nominal efficiency, not an IE class: the register asks for what it shows
+        case, result = small
+        scope = content.select_scope(case, result, ["C1"], False)  # C1 gives no efficiency (tests/casebuilder.py)
+        register = content.risk_register(case, result, scope)
+        rows = register[(register["category"] == "defaulted input") & (register["item"] == "rated_efficiency_pct")]
+        assert len(rows) and "nominal efficiency" in rows["response"].iloc[0]
+
     def test_drive_caution_on_the_drive_record(self, asset_pack):
         html = text(asset_pack[0] / "decision-records" / "P1.html")
         # the recommended option puts today's motor on a drive: the models' caution on its winding and bearings

@@ -22,6 +22,16 @@ from models.risk import distribution_summary
 from models.wording import counted, money_text
 
 #: The cautions every file of the pack shows, in plain words.
+#: What to do about a defaulted input, where reading the nameplate is not the answer (risk register).
+DEFAULTED_INPUT_ACTIONS = {
+    "efficiency_class": "Give the nameplate efficiency (a NEMA nameplate's nominal efficiency) or the IE class, "
+                        "then re-run.",
+    "rated_efficiency_pct": "Read the nameplate efficiency (a NEMA nameplate's nominal efficiency) or measure, then "
+                            "re-run.",
+    "static_head_frac": "Take the static share of the head from the system's design (pumps and fans on a drive), "
+                        "then re-run.",
+    "load_type": "Say whether the load is centrifugal (variable torque) or constant torque, then re-run.",
+}
 CAUTIONS: tuple[str, ...] = (
     "Planning estimates only, not a design: confirm ratings, frame sizes and prices with the manufacturers "
     "and suppliers before ordering.",
@@ -697,7 +707,7 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     if not defaults.empty:
         for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
             add("defaulted input", f"{column}", f"{basis} ({counted(len(grp), 'asset')})", asset_list_text(list(grp["asset_id"])),
-                "Read the nameplate or measure, then re-run.")
+                DEFAULTED_INPUT_ACTIONS.get(str(column), "Read the nameplate or measure, then re-run."))
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
