@@ -306,6 +306,8 @@ class TestDecisionRecords:
 
     def test_a_defaulted_class_asks_for_what_a_nameplate_shows(self, small):
         # a NEMA nameplate gives a nominal efficiency, not an IE class: the register asks for what it shows
+        from models.pack import content
+
         case, result = small
         scope = content.select_scope(case, result, ["C1"], False)  # C1 gives no efficiency (tests/casebuilder.py)
         register = content.risk_register(case, result, scope)
