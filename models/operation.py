@@ -27,6 +27,7 @@ import pandas as pd
 from models import drives, induction, loads, synchronous, tabulation
 from models.defaults import catalogue_efficiency_pct, class_floor_pct, default_power_factor
 from models.profiles import LoadStates, analysis_index, asset_loads
+from models.regulations import MAX_RULED_V_V
 
 #: Loss kinds reported per asset and option.
 LOSS_KINDS: tuple[str, ...] = ("motor", "drive", "excitation")
@@ -593,6 +594,12 @@ def drive_on_existing_motor_caution(year_installed, rewind_count) -> list[str]:
 
 #: Flag of a synchronous-speed machine whose load goes beyond its rating.
 _OVERLOAD_TEXT = "at synchronous speed the load exceeds the motor rating in some intervals: size up or remedy the speed"
+#: New machines of the catalogue whose class levels and cost curves are those of low-voltage motors.
+MEDIUM_VOLTAGE_CAUTIONED = ("induction", "line_start_pm", "pm_drive", "reluctance_drive")
+#: Their caution on a motor rated above :data:`models.regulations.MAX_RULED_V_V`.
+MEDIUM_VOLTAGE_TEXT = ("a medium-voltage motor (rated above 1,000 V): this option's efficiency class levels and "
+                       "capital curve are those of low-voltage motors, and the minimum-efficiency rules do not cover "
+                       "it; take its efficiency and price from a maker's quote")
 
 
 def _held_beyond_cap(shaft: np.ndarray, shaft_eval: np.ndarray) -> np.ndarray | None:
@@ -1402,6 +1409,15 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         texts = drive_on_existing_motor_caution(a["year_installed"].to_numpy(dtype=float)[on],
                                                 a["rewind_count"].to_numpy(dtype=float)[on])
         flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": text} for i, text in zip(on, texts))
+    # a new machine of the catalogue offered for a medium-voltage motor: its class levels, rules and cost curves
+    # are those of low-voltage motors (load-independent)
+    medium = a["rated_v_v"].to_numpy(dtype=float) > MAX_RULED_V_V if "rated_v_v" in a else np.zeros(len(a), bool)
+    for o in range(1, 1 if only_today else n_o):
+        if (option_rows[o]["technology"] not in MEDIUM_VOLTAGE_CAUTIONED or needed is not None
+                or (wanted is not None and o not in wanted)):
+            continue
+        flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": MEDIUM_VOLTAGE_TEXT}
+                     for i in np.flatnonzero(applies[:, o] & medium))
     # options that do not apply repeat today's values
     for o in range(1, 1 if only_today else n_o):
         if wanted is not None and o not in wanted:

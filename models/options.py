@@ -244,7 +244,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     if region is not None and n_a and (tech == "induction").any():
         from models.regulations import class_rank, minimum_class
 
-        required = minimum_class(region, p[:, 0], assets["poles"].to_numpy(dtype=float), on_date)
+        volts = assets["rated_v_v"].to_numpy(dtype=float) if "rated_v_v" in assets else None
+        required = minimum_class(region, p[:, 0], assets["poles"].to_numpy(dtype=float), on_date, volts)
         offered = class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
         below = (tech == "induction") & (offered < class_rank(required)[:, None])
         for cls in sorted(set(required[below.any(axis=1)])):

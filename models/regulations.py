@@ -23,7 +23,12 @@ def _covered(rule, p_kw: np.ndarray, poles: np.ndarray) -> np.ndarray:
     return (p_kw >= rule.min_rated_p_kw - 1e-9) & (p_kw <= rule.max_rated_p_kw + 1e-9) & np.isin(poles, allowed_poles)
 
 
-def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) -> np.ndarray:
+#: Highest rated voltage the minimum-efficiency rules cover [V]: Regulation (EU) 2019/1781 Annex I covers motors
+#: rated up to 1,000 V (10 CFR 431 covers up to 600 V; the table's US rows are read with the same bound).
+MAX_RULED_V_V = 1000.0
+
+
+def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None, rated_v_v=None) -> np.ndarray:
     """Return the lowest efficiency class a new motor may have, per motor.
 
     Parameters
@@ -37,11 +42,14 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) ->
     on_date : str, optional
         ISO date at which the rules are read, the day the new motors are bought (rules that take effect
         later are ignored); default today.
+    rated_v_v : array_like, optional
+        Rated voltage [V]; a motor above :data:`MAX_RULED_V_V` is covered by no rule (blank: covered).
 
     Returns
     -------
     numpy.ndarray of str
-        ``IE2``...``IE4``, or ``none`` where no rule covers the motor (e.g. above 1000 kW).
+        ``IE2``...``IE4``, or ``none`` where no rule covers the motor (e.g. above 1000 kW, or a
+        medium-voltage machine).
 
     Notes
     -----
@@ -56,6 +64,8 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) ->
     --------
     >>> minimum_class("EU", [15, 110, 1600], [4, 4, 6]).tolist()
     ['IE3', 'IE4', 'none']
+    >>> minimum_class("EU", [110, 110], [4, 4], rated_v_v=[400, 6600]).tolist()
+    ['IE4', 'none']
     """
     on_date = datetime.date.today().isoformat() if not on_date else str(on_date)
     rules = io.read_reference("minimum_efficiency_rules")
@@ -64,6 +74,9 @@ def minimum_class(region: str, rated_p_kw, poles, on_date: str | None = None) ->
     rank = np.zeros(p.shape, dtype=int)
     for row in rules.itertuples(index=False):
         rank = np.where(_covered(row, p, n), np.maximum(rank, _CLASS_RANK[row.min_class]), rank)
+    if rated_v_v is not None:
+        v = np.broadcast_to(np.asarray(rated_v_v, dtype=float), p.shape)
+        rank = np.where(v > MAX_RULED_V_V, 0, rank)  # (NaN compares False: a blank voltage stays covered)
     names = np.array(["none", "IE1", "IE2", "IE3", "IE4", "IE5"], dtype=object)
     return names[rank]
 

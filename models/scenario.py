@@ -395,7 +395,7 @@ def _must_spend(case, options: pd.DataFrame, capital_total: np.ndarray, applies:
     a = case.assets
     tech = options["technology"].to_numpy(dtype=object)
     min_class = minimum_class(case.settings.region, a["rated_p_kw"].to_numpy(dtype=float), a["poles"].to_numpy(dtype=float),
-                              case.settings.purchase_date)
+                              case.settings.purchase_date, a["rated_v_v"].to_numpy(dtype=float))
     allowed_new = (tech[None, :] == "induction") & (class_rank(options["efficiency_class"].to_numpy(dtype=object))[None, :]
                                                      >= class_rank(min_class)[:, None])
     allowed = applies & (allowed_new | (tech[None, :] == "rewind"))

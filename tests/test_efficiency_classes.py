@@ -141,3 +141,32 @@ def test_two_pole_premium_above_200_hp():
     hp = 0.745699872
     got = min_efficiency_pct([200 * hp, 225 * hp, 250 * hp, 500 * hp], 2, 60, "IE3")
     assert_allclose(got, [95.4, 95.4, 95.8, 95.8], atol=1e-9)
+
+
+def test_a_medium_voltage_motor_is_outside_the_rules_and_its_new_options_are_cautioned(tmp_path):
+    # Regulation (EU) 2019/1781 covers motors rated up to 1,000 V: a 110 kW 6.6 kV motor may still be replaced by an
+    # IE3 motor, where a 400 V one needs IE4; the catalogue's new machines carry a caution on it (their class
+    # levels and cost curves are of low-voltage motors)
+    import sys
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    import casebuilder as cb
+    from models.case import load_case
+    from models.operation import MEDIUM_VOLTAGE_TEXT, operate
+    from models.options import applicability
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
+    assets = pd.DataFrame({"rated_p_kw": [110.0, 110.0], "poles": [4, 4], "application": ["pump", "pump"],
+                           "load_type": ["centrifugal"] * 2, "speed_control": ["throttle"] * 2,
+                           "machine_type": ["induction"] * 2, "rated_v_v": [400.0, 6600.0]})
+    ids = list(case.options["option_id"])
+    applies, _ = applicability(case.options, assets, "EU")
+    assert not applies[0, ids.index("ie3")] and applies[1, ids.index("ie3")]
+
+    rows = [list(r) for r in cb.ASSETS]
+    rows[2][cb.ASSET_HEADER.index("rated_v_v")] = "6600"  # C1, the 75 kW compressor
+    small, problems = load_case(cb.write_case(tmp_path / "c", assets=rows))
+    assert small is not None, [str(p) for p in problems if p.severity == "error"]
+    flags = operate(small).flags
+    cautioned = set(flags.loc[flags["flag"] == MEDIUM_VOLTAGE_TEXT, "asset_id"])
+    assert cautioned == {"C1"}
