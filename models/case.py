@@ -401,8 +401,9 @@ class _TableChecker:
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"
                     written = str(value).strip()
-                    if is_year and re.search(r"\b(1[89]|2[01])\d\d\b", written) and note == "not a number":
-                        hint = f"write the year alone, e.g. {re.search(r'(1[89]|2[01])[0-9][0-9]', written).group(0)}"
+                    year_in = re.search(r"\b(1[89]|2[01])\d\d\b", written) if is_year else None
+                    if year_in and note == "not a number":
+                        hint = f"write the year alone, e.g. {year_in.group(0)}"
                     elif note == "not a number" and re.match(r"^[$€£¥]\s*[0-9]", written):
                         hint = f"write a plain number without the currency sign or thousands commas ({hint})"
                     rule = f"'{name}' must be a number" + ("" if note == "not a number" else f" ({note})")
@@ -1510,16 +1511,21 @@ def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: d
         return found
     resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
     for site_id, tariff_file in zip(sites["site_id"], sites["tariff_file"]):
-        tariff = tariffs.get(tariff_file) if tariff_file is not None else None
-        windows = [d.window_min for d in getattr(tariff, "demand", ())]
-        if not windows:
+        window = shortest_demand_window_min(tariffs, tariff_file)
+        if window is None:
             continue
-        window = min(windows)
         own = [p for p in assets.loc[assets["site_id"] == site_id, "profile_id"].dropna()
                if p in resolution and resolution[p] > window]
         if own:
             found[str(site_id)] = (int(window), sorted({int(resolution[p]) for p in own}), len(own))
     return found
+
+
+def shortest_demand_window_min(tariffs: dict, tariff_file) -> int | None:
+    """The shortest demand window of a site's tariff [min], None where it has no demand charge (or none is named)."""
+    tariff = tariffs.get(tariff_file) if isinstance(tariff_file, str) else None
+    windows = [d.window_min for d in getattr(tariff, "demand", ())]
+    return int(min(windows)) if windows else None
 
 
 def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int) -> str:
@@ -1545,15 +1551,14 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
         return
     resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
     for i in range(len(s)):
-        base, tariff_file = s["base_profile_id"].iloc[i], s["tariff_file"].iloc[i]
-        windows = [d.window_min for d in getattr(tariffs.get(tariff_file) if isinstance(tariff_file, str) else None,
-                                                 "demand", ())]
-        if isinstance(base, str) and windows and resolution.get(base, 0) > min(windows):
+        base = s["base_profile_id"].iloc[i]
+        window = shortest_demand_window_min(tariffs, s["tariff_file"].iloc[i])
+        if isinstance(base, str) and window is not None and resolution.get(base, 0) > window:
             sites.warn(i, "base_profile_id", base,
-                       f"the tariff's demand charge takes {min(windows)}-min windows, but the site's base-load profile "
+                       f"the tariff's demand charge takes {window}-min windows, but the site's base-load profile "
                        f"has {int(resolution[base])}-min intervals: each is read as one window, which understates "
                        "the demand peak, the bill and the demand savings",
-                       f"give the base load at {min(windows)}-min resolution (the meter's own interval data)")
+                       f"give the base load at {window}-min resolution (the meter's own interval data)")
 
 
 def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
