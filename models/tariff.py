@@ -643,6 +643,19 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             if x not in known:
                 err(key, x, f"unknown {kind}", f"{kind}s are: {', '.join(sorted(known))}")
 
+    def occurs(key: str, periods: tuple[str, ...] | None, seasons: tuple[str, ...] | None) -> None:
+        """Warn when a clause's periods never fall in its seasons (it would bill nothing, silently)."""
+        if not periods or not seasons or any(x not in codes for x in periods) or any(x not in season_names for x in seasons):
+            return  # (no limit on one of them, or an unknown name, reported above)
+        season_of_month = _season_of_month(tariff)
+        months = np.isin(season_of_month, [tariff.season_names.index(x) for x in seasons])
+        days = np.array([True, True, True, bool(tariff.holidays)])
+        for rule in tariff.periods:
+            if rule.code in periods and (_rule_cells(tariff, rule)[months][:, days]).any():
+                return
+        warn(key, list(periods), f"the clause's periods never occur in its seasons ({', '.join(seasons)}): "
+             "it bills nothing", "check the clause's periods and seasons against the period rules")
+
     if tariff.energy is not None:
         priced = dict(tariff.energy.prices)
         key = "energy.price_per_" + tariff.energy.basis.lower()
@@ -662,6 +675,7 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             err(f"{k}.window_min", d.window_min, f"demand window must be one of {DEMAND_WINDOWS_MIN} minutes")
         refs(f"{k}.periods", d.periods, codes, "period")
         refs(f"{k}.seasons", d.seasons, season_names, "season")
+        occurs(f"{k}.periods", d.periods, d.seasons)
         if d.ratchet_frac is not None:
             if not 0.0 < d.ratchet_frac <= 1.0:
                 err(f"{k}.ratchet_frac", d.ratchet_frac, "ratchet share must lie in (0, 1]", "write 80 % as 0.8")
@@ -698,6 +712,7 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             err(f"{k}.allowance_per", r.allowance_per, "unknown value", f"use one of {', '.join(ALLOWANCE_SCOPES)}")
         refs(f"{k}.periods", r.periods, codes, "period")
         refs(f"{k}.seasons", r.seasons, season_names, "season")
+        occurs(f"{k}.periods", r.periods, r.seasons)
 
     _check_unique([r.name for r in tariff.leading], "leading", "name", err, at)
     for i, r in enumerate(tariff.leading, start=1):
@@ -711,6 +726,7 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             warn(k, r.name, "leading clause with no price and no ban has no effect", "set price_per_kvarh or banned = true")
         refs(f"{k}.periods", r.periods, codes, "period")
         refs(f"{k}.seasons", r.seasons, season_names, "season")
+        occurs(f"{k}.periods", r.periods, r.seasons)
 
     _check_unique([f.name for f in tariff.fixed], "fixed", "name", err, at)
     for i, f in enumerate(tariff.fixed, start=1):
@@ -1344,6 +1360,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             if method == "ratio" and "percent_per_point" in at:
                 r.warn(f"{pa}.percent_per_point", pct, "ignored with method 'ratio'")
             round_up = r.get(at, "round_points_up", pa, "bool", default=False)
+            if method == "ratio" and "round_points_up" in at:
+                r.warn(f"{pa}.round_points_up", round_up, "ignored with method 'ratio' (it rounds the points of "
+                       "method 'percent_per_point')")
             pf_from = r.get(at, "power_factor_from", pa, "str", default="month_average")
             if method is not None and target is not None:
                 pfa = PowerFactorAdjustment(method, target, 1.0 if pct is None else pct, round_up, pf_from)

@@ -647,3 +647,48 @@ def test_a_clause_listing_no_period_is_warned_that_it_bills_nothing():
     tariff, problems = tariff_from_dict(tomllib.loads(text))
     found = [p for p in problems if p.column.endswith(".periods") and p.severity == "warning"]
     assert tariff is not None and found and "bills nothing" in found[0].rule
+
+
+def test_a_clause_whose_periods_never_fall_in_its_seasons_is_warned_that_it_bills_nothing():
+    # data/tariffs/example_tou_kw_reactive_ratchet.toml with its summer peak renamed "midday": "peak" then
+    # occurs in winter only, so a summer demand charge counted in "peak" hours never bills anything
+    text = (Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_tou_kw_reactive_ratchet.toml").read_text()
+    summer_peak = 'code = "peak"\nseasons = ["summer"]'
+    assert summer_peak in text
+    text = text.replace(summer_peak, 'code = "midday"\nseasons = ["summer"]').replace(
+        "peak = 0.215,", "peak = 0.215, midday = 0.215,")
+    summer = '\n[[demand]]\nname = "summer peak"\nprice_per_kw_month = 4.0\nperiods = ["PERIOD"]\nseasons = ["summer"]\n'
+    tariff, problems = tariff_from_dict(tomllib.loads(text + summer.replace("PERIOD", "peak")))
+    found = [p for p in problems if p.column == "demand[2].periods"]
+    assert tariff is not None and len(found) == 1 and found[0].severity == "warning"
+    assert "never occur in its seasons (summer)" in found[0].rule and "bills nothing" in found[0].rule
+    # the same clause counted in the summer's own midday hours, or in every season, is not warned
+    for clause in (summer.replace("PERIOD", "midday"), summer.replace("PERIOD", "peak").replace('seasons = ["summer"]\n', "")):
+        tariff, problems = tariff_from_dict(tomllib.loads(text + clause))
+        assert tariff is not None and not [p for p in problems if p.column == "demand[2].periods"], clause
+    # a reactive clause is checked the same way
+    reactive = ("\n[[reactive]]\nname = \"summer kVArh\"\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.0\n"
+                "periods = [\"peak\"]\nseasons = [\"summer\"]\n")
+    _, problems = tariff_from_dict(tomllib.loads(text + reactive))
+    assert [p.severity for p in problems if p.column == "reactive[2].periods"] == ["warning"]
+
+
+def test_rounding_the_points_up_is_warned_as_ignored_by_the_ratio_method():
+    # docs/tariffs.md: round_points_up rounds the PF shortfall in points of 0.01 for method
+    # "percent_per_point"; the ratio method scales by target / actual and has no points to round
+    text = (Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_pf_adjusted_demand.toml").read_text()
+    assert "[demand.power_factor_adjustment]" in text
+    base = text.replace("[demand.power_factor_adjustment]", "[demand.power_factor_adjustment]\nround_points_up = true", 1)
+    for method, warned in (("ratio", True), ("percent_per_point", False)):
+        data = tomllib.loads(base)
+        pfa = data["demand"][0]["power_factor_adjustment"]
+        pfa["method"] = method
+        if method == "ratio":
+            pfa.pop("percent_per_point", None)
+        else:
+            pfa.setdefault("percent_per_point", 1.0)
+        tariff, problems = tariff_from_dict(data)
+        found = [p for p in problems if p.column.endswith("round_points_up")]
+        assert tariff is not None and bool(found) == warned, method
+        if warned:
+            assert found[0].severity == "warning" and "ignored with method 'ratio'" in found[0].rule
