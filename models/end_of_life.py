@@ -74,6 +74,48 @@ DEFAULT_LIFE_CLASSES: tuple[LifeClass, ...] = (
 )
 
 
+#: Outage after a failure by size class (common practice, from memory; not from outage records): upper end of
+#: the class [kW] (inclusive), hours until a new motor runs, hours until a rewound one does [h]. Standard
+#: motors up to about 37 kW are stocked by distributors and fitted the next day, a rewind takes a few days;
+#: mid-size motors take days to deliver and a week to rewind; large motors are often made to order (weeks)
+#: and their rewind takes about two weeks, so a plant short of a spare rewinds them.
+OUTAGE_CLASSES: tuple[tuple[float, float, float], ...] = (
+    (37.0, 24.0, 72.0),
+    (200.0, 72.0, 168.0),
+    (math.inf, 672.0, 336.0),
+)
+
+
+def outage_hours(rated_p_kw: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Hours stopped after a failure until a new motor runs, and until a rewound one does, by size [h].
+
+    Parameters
+    ----------
+    rated_p_kw : array_like
+        Rated power [kW].
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        (new_lead_time_h, rewind_lead_time_h), each of the shape of ``rated_p_kw``, from
+        :data:`OUTAGE_CLASSES` (a rating on a class's upper end belongs to that class; a missing rating
+        takes the middle class).
+
+    Examples
+    --------
+    >>> new, rewind = outage_hours([7.5, 37.0, 90.0, 315.0])
+    >>> new.tolist(), rewind.tolist()
+    ([24.0, 24.0, 72.0, 672.0], [72.0, 72.0, 168.0, 336.0])
+    """
+    p = np.asarray(rated_p_kw, dtype=float)
+    tops = np.array([c[0] for c in OUTAGE_CLASSES])
+    k = np.searchsorted(tops, np.where(np.isfinite(p), p, tops[0] * 1.5), side="left")
+    k = np.minimum(k, len(OUTAGE_CLASSES) - 1)
+    new = np.array([c[1] for c in OUTAGE_CLASSES])[k]
+    rewind = np.array([c[2] for c in OUTAGE_CLASSES])[k]
+    return new, rewind
+
+
 #: Share of the failure law's scale a motor keeps per past rewind [frac]: each rewind shortens the expected life
 #: by 10 % (common practice; repaired motors are reported to fail sooner than new ones, a rate from memory, not
 #: from failure records).

@@ -270,7 +270,8 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
                 rows = pd.Index(project_ids.astype(str)).get_indexer(value.loc[partial, "project_id"].astype(str))
                 npv = results["npv"].to_numpy(dtype=float).copy()
                 npv[rows] -= (1.0 - share[partial]) * np.asarray(bill_saving_pv, dtype=float)[rows]
-                repriced = dict(zip(value.loc[partial, "project_id"].astype(str), share[partial].round(6).tolist()))
+                # (exact, not rounded: the pack's formulas and the plan's flows rebuild the NPVs from them)
+                repriced = dict(zip(value.loc[partial, "project_id"].astype(str), share[partial].tolist()))
         taken = results["site_id"].isin(set(value.loc[worthless, "site_id"])).to_numpy() & reactive_options
         others = {str(x) for x in project_ids[taken]} - set(value.loc[~worthless, "project_id"]) - already - fresh
         return fresh, others, npv, repriced

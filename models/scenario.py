@@ -37,9 +37,6 @@ LCC_COMPONENTS = ("capital", "residual", "running", "maintenance", "tax")
 ADD_ON_TECHNOLOGIES = ("add_drive", "capacitor")
 #: Planning horizon of the fleet plan when the budget list is empty [yr].
 DEFAULT_PLAN_YEARS = 3
-#: Downtime after a failure until a new motor runs, and until a rewound one does [h] (common practice).
-NEW_LEAD_TIME_H = 72.0
-REWIND_LEAD_TIME_H = 168.0
 #: Downtime cost by criticality when neither the asset nor the finance assumptions give one
 #: [currency/h] (common practice placeholders; set real figures per site).
 DOWNTIME_COST_BY_CRITICALITY = {"low": 0.0, "medium": 200.0, "high": 2000.0}
@@ -913,10 +910,11 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
                      "finance assumptions" if from_finance
                      else np.array([f"default for a {c}-criticality motor" for c in criticality], dtype=object))
     downtime = np.where(given, downtime, assumptions.downtime_cost_per_h if from_finance else default_dt)
+    new_lead_h, rewind_lead_h = end_of_life.outage_hours(a["rated_p_kw"].to_numpy(dtype=float))
     frame = end_of_life.strategy_costs(
         age, shape, scale, capex_total[rows, new_o], capex_total[rows, r], running_old,
         running_old - sav.total[rows, new_o], running_old - sav.total[rows, r],
-        downtime_cost_per_h=downtime, new_lead_time_h=NEW_LEAD_TIME_H, rewind_lead_time_h=REWIND_LEAD_TIME_H,
+        downtime_cost_per_h=downtime, new_lead_time_h=new_lead_h, rewind_lead_time_h=rewind_lead_h,
         new_life_yr=options["life_yr"].to_numpy(dtype=float)[new_o], rewind_life_yr=float(options["life_yr"].iloc[r]),
         discount_rate_frac=d, horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
         asset_id=op.asset_ids)
@@ -925,6 +923,8 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     # what each failure's outage is priced at, and where that figure comes from (a default can carry the answer)
     frame["downtime_cost_per_h"] = downtime
     frame["downtime_cost_basis"] = pd.array(np.asarray(basis, dtype=object).astype(str), dtype="str")
+    frame["new_lead_time_h"] = new_lead_h
+    frame["rewind_lead_time_h"] = rewind_lead_h
     frame.index.name = "asset_id"
     # a motor for which no new induction motor is offered has no replacement to compare (none is named)
     return frame.reset_index()[op.applies[:, new_candidates].any(axis=1)].reset_index(drop=True)
@@ -981,7 +981,9 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
     price = float((sav.baseline_bills["amount"].sum()) / max(op.energy_kwh[:, 0].sum(), 1.0))
     return end_of_life.fleet_rules(sizes, hours, new_capex=new_capex, rewind_capex=cost(rewind_row),
                                    efficiency_new_frac=eff_new, efficiency_rewound_frac=eff_rewound, price_per_kwh=price,
-                                   downtime_cost_per_h=assumptions.downtime_cost_per_h, discount_rate_frac=d,
+                                   downtime_cost_per_h=assumptions.downtime_cost_per_h,
+                                   new_lead_time_h=end_of_life.outage_hours(sizes)[0],
+                                   rewind_lead_time_h=end_of_life.outage_hours(sizes)[1], discount_rate_frac=d,
                                    horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
                                    power_unit=unit)
 

@@ -69,10 +69,11 @@ class TestSummary:
         # the engine prices each failure's outage and says where the figure comes from (end_of_life.csv,
         # docs/outputs.md); a criticality default can carry the answer, so the text says so
         frame = eol_frame().assign(downtime_cost_per_h=[2000.0, 150.0],
-                                   downtime_cost_basis=["default for a high-criticality motor", "asset register"])
+                                   downtime_cost_basis=["default for a high-criticality motor", "asset register"],
+                                   new_lead_time_h=[72.0, 24.0], rewind_lead_time_h=[168.0, 72.0])
         p1 = services.end_of_life_summary(frame, "P1", "EUR", 15).text
         assert "priced at EUR 2,000/h: the default for a high-criticality motor, a placeholder" in p1
-        assert "72 h to a new motor, 168 h to a rewound one" in p1  # models.scenario lead times
+        assert "(72 h to a new motor, 168 h to a rewound one, by its size)" in p1  # the frame's own hours
         f2 = services.end_of_life_summary(frame, "F2", "EUR", 15).text
         assert "priced at EUR 150/h (asset register)." in f2 and "placeholder" not in f2
 

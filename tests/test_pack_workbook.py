@@ -574,3 +574,73 @@ def test_every_formula_carries_the_value_it_gives(asset_pack, values):
 def test_the_plan_sheet_carries_its_values(plan_pack):
     compared, missing, wrong = _stored_against_evaluated(plan_pack, evaluate(plan_pack))
     assert wrong == [] and missing == [] and compared > 100
+
+
+@pytest.mark.parametrize("invented", [True, False])
+def test_every_sheet_carries_the_caution_and_the_invented_mark(small, invented):
+    # a sheet printed or copied alone still says what it is: the print footer of every sheet carries the case,
+    # the invented-data mark where the case is invented, and the standing caution (as every PDF page does,
+    # models.pack.pdf_footer); an invented case's sheet titles (A1) open with the mark
+    import dataclasses
+    import io
+
+    from models.pack import pdf_footer
+    from models.pack.content import select_scope
+    from models.pack.workbook import INVENTED_TITLE_MARK, build_workbook
+
+    case, result = small
+    case = dataclasses.replace(case, settings=dataclasses.replace(case.settings, invented=invented))
+    book = load_workbook(io.BytesIO(build_workbook(case, result, select_scope(case, result))))
+    assert book.sheetnames == SHEETS
+    for ws in book.worksheets:
+        footer = ws.oddFooter.left.text
+        assert footer == pdf_footer(case.settings).replace("&", "&&"), ws.title
+        assert "qualified persons under local codes and the utility's rules" in footer
+        assert ("Invented demo data" in footer) == invented, ws.title
+        assert "&P of &N" in ws.oddFooter.right.text
+        assert str(ws["A1"].value).startswith(INVENTED_TITLE_MARK) == invented, ws.title
+
+
+def test_the_plan_sheet_npv_of_a_project_in_the_pack_follows_the_discount_rate(demo_run_physics, tmp_path):
+    # The 'Plan' sheet's "NPV at its own start" of a project whose block the pack holds is a formula on that
+    # block; a reactive project credited the share r of its bill saving (the demo's KGQ-AC01 capacitor) counts
+    # its block's NPV less (1 - r) x the present value of its bill-saving rows. Expected at 12 %: numpy_financial
+    # 1.0 npv of the engine's flows (cashflows), less (1 - r) x npv of its bill-saving flows; the rest of the plan
+    # (outside this pack) keeps the engine's figure.
+    from models import scenario
+    from models.pack import write_pack
+    from models.reactive_plan import BILL_SAVING_COMPONENTS
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    share = result.plan_status["repriced"]["KGQ-AC01/capacitor"]
+    assert 0 < share < 1
+    paths = write_pack(case, result, tmp_path / "pack", assets=["KGQ-AC01"], plan=False)
+    path = next(p for p in paths if str(p).endswith(".xlsx"))
+    # at the run's rate the formulas give the engine's plan NPVs (and store them)
+    compared, missing, wrong = _stored_against_evaluated(path, evaluate(path))
+    assert wrong == [] and missing == []
+    book = load_workbook(path)
+    plan_ws = book["Plan"]
+    row = next(r for r in range(1, plan_ws.max_row + 1)
+               if plan_ws.cell(r, 2).value == "KGQ-AC01" and plan_ws.cell(r, 3).value == "capacitor")
+    assert str(plan_ws.cell(row, 6).value).startswith("='Cash flows'!")
+    outside = next(r for r in range(row + 1, plan_ws.max_row + 1) if plan_ws.cell(r, 9).value == "no")
+    assert isinstance(plan_ws.cell(outside, 6).value, float)  # no block in this pack: the engine's figure
+    ws = book["Assumptions"]
+    rate_row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "discount_rate_frac")
+    ws.cell(rate_row, 2).value = 0.12
+    edited = tmp_path / "edited.xlsx"
+    book.save(edited)
+    values = evaluate(edited)
+    cf = result.cashflows
+    mine = cf[(cf["asset_id"] == "KGQ-AC01") & (cf["option_id"] == "capacitor")]
+    horizon = int(result.assumptions.horizon_yr)
+    flows = mine.groupby("year")["amount"].sum().reindex(range(horizon + 1), fill_value=0.0).to_numpy()
+    bill = (mine[mine["component"].isin(BILL_SAVING_COMPONENTS)].groupby("year")["amount"].sum()
+            .reindex(range(horizon + 1), fill_value=0.0).to_numpy())
+    expected = npf.npv(0.12, flows) - (1 - share) * npf.npv(0.12, bill)
+    assert_allclose(as_float(values[("PLAN", f"F{row}")]), expected, rtol=1e-9)
+    start = int(plan_ws.cell(row, 1).value)
+    assert_allclose(as_float(values[("PLAN", f"H{row}")]), expected / 1.12 ** start, rtol=1e-9)
+    assert abs(expected - float(result.plan.set_index(["asset_id", "option_id"]).loc[("KGQ-AC01", "capacitor"), "npv"])) > 1.0

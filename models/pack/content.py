@@ -394,11 +394,29 @@ def plan_yearly_saving(result, frame: pd.DataFrame) -> pd.Series:
     """Bill plus maintenance saving per year of each row as the plan counts it [currency/yr]: a reactive project
     of the plan credited the share r of its bill saving (:func:`plan_credit_share`) counts r x its bill saving,
     on the same basis as its plan NPV and the portfolio's flows; other rows their own saving."""
+    return yearly_saving(plan_counted(result, frame))
+
+
+#: The saving columns that are bill savings (what a reactive project's plan share scales).
+BILL_SAVING_COLUMNS = ("saving_energy_per_yr", "saving_demand_per_yr", "saving_reactive_per_yr", "saving_fixed_per_yr",
+                       "bill_saving_per_yr")
+
+
+def plan_counted(result, frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with each reactive project of the plan's bill savings as the plan counts them: the share r
+    (:func:`plan_credit_share`) of each bill component; other rows, and the maintenance saving, unchanged.
+
+    Its rows then add up to :func:`plan_yearly_saving` and to the headline's yearly saving, component by
+    component."""
     share = [plan_credit_share(result, a, o) if bool(p) else None
              for a, o, p in zip(frame["asset_id"], frame["option_id"],
                                 frame["in_plan"] if "in_plan" in frame else [False] * len(frame))]
-    factor = np.array([1.0 if s is None else s for s in share], dtype=float)
-    return frame["bill_saving_per_yr"] * factor + frame["saving_maintenance_per_yr"]
+    factor = np.array([1.0 if x is None else x for x in share], dtype=float)
+    out = frame.copy()
+    for column in BILL_SAVING_COLUMNS:
+        if column in out:
+            out[column] = out[column].to_numpy(dtype=float) * factor
+    return out
 
 
 def headline(result, scope: Scope) -> Headline:

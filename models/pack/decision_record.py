@@ -19,6 +19,7 @@ from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 from models.plan import option_labels
+from models.scenario import REPLACING_TECHNOLOGIES
 
 
 
@@ -138,13 +139,27 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if best_strategy:
         new_id = eol.set_index("asset_id").loc[asset_id, "new_option_id"]
         eol_row = eol.set_index("asset_id").loc[asset_id]
-        outage = ""
+        outage, placeholder = "", False
         if "downtime_cost_per_h" in eol_row.index and math.isfinite(float(eol_row["downtime_cost_per_h"])):
-            outage = (f"; an outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h, "
-                      f"{eol_row.get('downtime_cost_basis', '')}")
-        reasons.append(f"For the motor itself ({labels.get(new_id, new_id)} vs rewind), the cheapest end-of-life strategy is to "
-                       f"{STRATEGY_NAMES[best_strategy]} (by {content.money(float(eol_row['advantage_over_next']), cur)}"
-                       f" over the next{outage}).")
+            basis = str(eol_row.get("downtime_cost_basis", ""))
+            placeholder = basis.startswith("default") and float(eol_row["downtime_cost_per_h"]) > 0
+            hours = ""
+            if "new_lead_time_h" in eol_row.index:
+                hours = (f" for {float(eol_row['new_lead_time_h']):.0f} h to a new motor or "
+                         f"{float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one")
+            outage = f"; a failure's outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h{hours}, {basis}"
+        text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): the cheapest "
+                f"end-of-life strategy is to {STRATEGY_NAMES[best_strategy]} (by "
+                f"{content.money(float(eol_row['advantage_over_next']), cur)} over the next{outage}).")
+        if best_strategy == "replace_now" and rec["technology"] not in REPLACING_TECHNOLOGIES:
+            new_capital = res.loc[res["option_id"] == new_id, "capital"]
+            text += (" The recommended option keeps today's motor: replacing it now is not in this request and would "
+                     "need its own capital" + (f" ({content.money(float(new_capital.iloc[0]), cur)} for the new motor)."
+                                               if len(new_capital) else "."))
+        if placeholder:
+            text += (" The outage cost is a placeholder, not a figure of this case, and can decide this answer: give the "
+                     "motor's downtime cost per hour in the asset register before acting on it.")
+        reasons.append(text)
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")

@@ -82,8 +82,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     cur = s.currency
     horizon = int(a.horizon_yr)
     h = content.headline(result, scope)
-    chosen = scope.chosen
-    rec = scope.recommended
+    # reactive projects of the plan at the share of their saving the plan counts: rows and charts add up to
+    # the headline
+    chosen = content.plan_counted(result, scope.chosen)
+    rec = content.plan_counted(result, scope.recommended)
     rec_keys = set(rec["asset_id"] + "/" + rec["option_id"])
     assets = case.assets.set_index("asset_id")
 
@@ -92,7 +94,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices, as the plan counts them"},
         {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
         {"label": "Payback", "value": content.years_text(h.payback_yr, horizon), "note": "simple, combined cash flow"},
-        {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"at {a.grid_co2_kg_per_kwh:g} kg/kWh"},
+        {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"first year, at {a.grid_co2_kg_per_kwh * (1 - a.grid_co2_decline_frac):.4g} kg/kWh "
+                                                                         f"({a.grid_co2_kg_per_kwh:g} less {a.grid_co2_decline_frac:.1%})"},
     ]
     keep_count = int((rec["option_id"] == rec["keep_option_id"]).sum())
     if h.n_projects == 0:
@@ -105,8 +108,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                    f"{content.money(h.capital, cur)} of capital. {'It saves' if one else 'They save'} about "
                    f"{content.money(h.yearly_saving, cur)} a year ({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), "
                    f"{'pays' if one else 'pay'} back {content.years_text(h.payback_yr, horizon, within=True)} and "
-                   f"{'adds' if one else 'add'} {content.money(h.npv, cur)} of value at a {a.discount_rate_frac:.1%} "
-                   "discount rate.")
+                   f"{'adds' if one else 'add'} {content.money(h.npv, cur)} of value at a discount rate of "
+                   f"{a.discount_rate_frac:.1%}.")
     if keep_count:
         summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
     together = plan_bill_saving_per_yr(result.bills)

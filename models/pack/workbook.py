@@ -196,6 +196,28 @@ def _ref(col: int, row: int, absolute: bool = False) -> str:
     return f"${letter}${row}" if absolute else f"{letter}{row}"
 
 
+#: The mark a sheet's title takes when the case is invented (a sheet copied or printed alone keeps it).
+INVENTED_TITLE_MARK = "INVENTED DEMO DATA · "
+
+
+def _mark_every_sheet(book, settings) -> None:
+    """Give every sheet the pack's standing footer (the case, the invented-data mark, the caution and the page)
+    when printed, and, for an invented case, the mark at the head of its title (cell A1)."""
+    from models.pack import pdf_footer
+
+    # (an ampersand starts a field code in a header or footer: written twice it prints one)
+    footer = pdf_footer(settings).replace("&", "&&")
+    for ws in book.worksheets:
+        ws.oddFooter.left.text = footer
+        ws.oddFooter.left.size = 8
+        ws.oddFooter.right.text = "&A · page &P of &N"
+        ws.oddFooter.right.size = 8
+        ws.evenFooter.left.text, ws.evenFooter.right.text = ws.oddFooter.left.text, ws.oddFooter.right.text
+        title = ws["A1"].value
+        if settings.invented and isinstance(title, str) and not title.upper().startswith("INVENTED"):
+            ws["A1"].value = INVENTED_TITLE_MARK + title
+
+
 def _sheet_ref(sheet: str, col: int, row: int) -> str:
     return f"'{sheet}'!{_ref(col, row, absolute=True)}"
 
@@ -272,7 +294,8 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
                       "Live in this workbook?"])
     row += 1
     # the cells the workbook's formulas read; the others record the run (its flows were computed with them)
-    live = {"discount_rate_frac": "yes: NPVs, discounted paybacks and the plan's checks recalculate"}
+    live = {"discount_rate_frac": "yes: NPVs, discounted paybacks, the plan's NPVs of the projects in this pack and "
+                                  "the checks recalculate"}
     recorded = "no: a record of the run; change it in the case and run again"
     for item in content.finance_rows(result.assumptions):
         key, value = item["key"], item["value"]
@@ -542,7 +565,8 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         "payback": paid_back(cum_v, pay_v),
         "discounted_payback": paid_back(dcum_v, disc_v) if known else None,
     }
-    rows = {"net": net}
+    rows = {"net": net, "factor": factor, "first_col": first_col, "last_col": last_col,
+            "components": {c: comp_first + k for k, c in enumerate(components)}}
     for name, (mr, label, expr, fmt) in metrics.items():
         put_text(ws, mr, 1, label)
         put_formula(ws, mr, 2, expr, fmt, computed[name])
@@ -590,7 +614,9 @@ def _cash_flow_blocks(ws: Worksheet, result, scope: content.Scope, refs: dict[st
         row_next, rows = write_project_block(ws, row, title, table.reindex(columns=range(horizon + 1), fill_value=0.0),
                                              refs["discount_rate_frac"], engine, currency, note,
                                              rate_frac=float(result.assumptions.discount_rate_frac))
-        cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended)}
+        cells = {"asset_id": p.asset_id, "option_id": p.option_id, "label": p.label, "recommended": bool(p.recommended),
+                 "factor_row": rows["factor"], "first_col": rows["first_col"], "last_col": rows["last_col"],
+                 "component_rows": rows["components"]}
         for name in ("npv", "irr", "payback", "discounted_payback"):
             cells[name] = _sheet_ref("Cash flows", 2, rows[name])
             cells[f"{name}_engine"] = _sheet_ref("Cash flows", 3, rows[name])
@@ -650,8 +676,28 @@ def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
     _widths(ws, {1: 12, 2: 12, 3: 34} | {c: 15 for c in range(4, 14)})
 
 
-def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats) -> None:
+def _plan_npv_formula(block: dict, share: float | None) -> str:
+    """The formula of a plan project's NPV at its own start from its block on 'Cash flows': the block's NPV,
+    less (1 - r) x the present value of its bill-saving rows for a reactive project credited the share r of
+    its bill saving (what it adds beside the plan's other projects; r is the engine's, from the plan)."""
+    from models.reactive_plan import BILL_SAVING_COMPONENTS
+
+    expr = f"={block['npv']}"
+    if share is None:
+        return expr
+    first, last, factor = get_column_letter(block["first_col"]), get_column_letter(block["last_col"]), block["factor_row"]
+    present = [f"SUMPRODUCT('Cash flows'!{first}{r}:{last}{r},'Cash flows'!{first}{factor}:{last}{factor})"
+               for c, r in block["component_rows"].items() if c in BILL_SAVING_COMPONENTS]
+    return expr + (f"-(1-{share!r})*({'+'.join(present)})" if present else "")
+
+
+def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats,
+          blocks: list[dict] | None = None) -> None:
     _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
+    put_text(ws, 2, 1, "NPV at its own start: a formula on the project's block of 'Cash flows' where this pack holds "
+                       "one (it follows the discount rate on 'Assumptions'); the engine's figure at the run's rate "
+                       "for a project outside the pack.")
+    block_of = {(b["asset_id"], b["option_id"]): b for b in blocks or ()}
     rate = refs["discount_rate_frac"]
     rate_v = float(result.assumptions.discount_rate_frac)
     in_scope = set(scope.projects["asset_id"] + "/" + scope.projects["option_id"])
@@ -674,7 +720,15 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             put_text(ws, row, 3, r.option_id)
             put_text(ws, row, 4, str(labels.get((r.asset_id, r.option_id), "")))
             put(ws, row, 5, float(r.capital), f.money)
-            put(ws, row, 6, float(r.npv), f.money)
+            block = block_of.get((r.asset_id, r.option_id))
+            # the exact plan's reactive projects at the engine's share; a rank-order project where the plan counts
+            # it at its own NPV (the block's); otherwise the engine's figure
+            share = content.plan_credit_share(result, r.asset_id, r.option_id) if name == "Exact plan" else None
+            alone = block is not None and abs(float(r.npv) - float(block["npv_engine_value"])) <= 1e-6 * max(1.0, abs(float(r.npv)))
+            if block is not None and (share is not None or alone):
+                put_formula(ws, row, 6, _plan_npv_formula(block, share), f.money, float(r.npv))
+            else:
+                put(ws, row, 6, float(r.npv), f.money)
             put(ws, row, 7, float(r.npv_at_plan_start), f.money)
             at_start = float(r.npv) / (1.0 + rate_v) ** int(r.start_yr)
             put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money, at_start)
@@ -734,7 +788,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         label, number_format = labels.get(str(key), (str(key), f.money))
         put_text(ws, row + 1 + k, 1, label)
         put(ws, row + 1 + k, 2, float(value), number_format)
-    ws.freeze_panes = "A3"
+    ws.freeze_panes = "A5"  # (the title, the note, the plan's name and its header row)
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
 
 
@@ -828,6 +882,9 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         if "downtime_cost_per_h" in frame:  # what an outage is priced at, and where that figure comes from
             cols += [("downtime_cost_per_h", f"Outage cost [{f.currency}/h]", f.money),
                      ("downtime_cost_basis", "Outage cost from", None)]
+        if "new_lead_time_h" in frame:  # the outage's hours, by the motor's size
+            cols += [("new_lead_time_h", "Outage to a new motor [h]", "0"),
+                     ("rewind_lead_time_h", "Outage to a rewound motor [h]", "0")]
         row = _table(ws, row, frame, cols)
         put_text(ws, row, 1, failure_law_caution(power_unit=case_power_unit))
         row += 2
@@ -934,8 +991,10 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
     audit = [
         "1. On 'Cash flows', each net row is =SUM of the component rows above it; the components are the engine's flows.",
         "2. NPV = year-0 flow + NPV(rate, years 1..N): spreadsheet NPV discounts its first value, so year 0 stays outside.",
-        "3. IRR = IRR(years 0..N); simple payback = first year the cumulative row turns >= 0, interpolated inside that year.",
-        "4. Change the discount rate on 'Assumptions' and every NPV and discounted payback recalculates.",
+        "3. IRR = IRR(years 0..N); simple payback = from the first year the cumulative row (without residual value) "
+        "is below zero to the year it turns >= 0, interpolated inside that year.",
+        "4. Change the discount rate on 'Assumptions' and every NPV and discounted payback recalculates, and so do the "
+        "'Plan' sheet's NPVs of the projects this pack holds.",
         "5. 'Checks' shows OK when every formula matches the engine within 0.01 %.",
     ]
     for k, text in enumerate(audit):
@@ -971,12 +1030,13 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _results(sheets["Results"], result, scope, f, case.settings.power_unit)
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
-    _plan(sheets["Plan"], result, scope, refs, f)
+    _plan(sheets["Plan"], result, scope, refs, f, blocks)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)
     _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit)
     _risk(sheets["Risk"], case, result, scope, f)
     _read_me(sheets["Read me"], case, result, scope, f)
+    _mark_every_sheet(book, case.settings)
     buffer = io.BytesIO()
     book.save(buffer)
     try:
