@@ -134,10 +134,16 @@ def headline_values(numbers: dict, currency: str) -> list[str]:
             fmt_money(numbers["plan_npv"], currency), fmt_number(numbers["co2_avoided_t_per_yr"], 0, "t/yr")]
 
 
+#: The charts' mode bar: no logo, and no button that sends a chart's data (a client's assets and money) to a
+#: chart-sharing service outside this machine; to share, export the files or the pack.
+GRAPH_CONFIG = {"displaylogo": False, "showSendToCloud": False, "showEditInChartStudio": False,
+                "modeBarButtonsToRemove": ["sendChartToCloud", "sendDataToCloud", "editInChartStudio"]}
+
+
 def graph(component_id: str, height: int | None = None) -> dcc.Loading:
-    """A plotly graph in a loading wrapper, with the mode bar trimmed."""
+    """A plotly graph in a loading wrapper, with the mode bar trimmed (:data:`GRAPH_CONFIG`)."""
     extra = {"style": {"height": f"{height}px"}} if height else {}
-    return dcc.Loading(dcc.Graph(id=component_id, config={"displaylogo": False}, **extra), type="dot", delay_show=400)
+    return dcc.Loading(dcc.Graph(id=component_id, config=dict(GRAPH_CONFIG), **extra), type="dot", delay_show=400)
 
 
 def address_follows(store_id: str, path: str) -> None:

@@ -72,6 +72,8 @@ ROOT_TOML = ("case.toml", "finance.toml")
 _SESSION_ID = re.compile(r"^[0-9a-f]{32}$")
 #: Digits grouped by thousands with commas ("1,000" or "1,000.5"), as a form's number fields take them.
 _GROUPED = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d+)?$")
+#: A point grouping thousands ("250.000", as many write 250,000): in a money field it would read as 250
+_POINT_GROUPED = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+$")
 _SAFE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ._()+-]{0,119}$")
 
 
@@ -858,6 +860,12 @@ def parse_budget(values: list, currency: str = "") -> tuple[list[float] | None, 
             continue
         field_name, typed = budget_field(k, currency), str(v).strip()
         number = typed_number(v)
+        if isinstance(v, str) and _POINT_GROUPED.match("".join(c for c in typed if c not in " _'\u00a0\u2009\u202f")):
+            whole = typed.replace(".", "")
+            if isinstance(number, str):
+                return None, f"{field_name}: '{typed}' groups thousands with points: write {whole} (or with commas)."
+            return None, (f"{field_name}: '{typed}' is ambiguous: a point grouping thousands would make it {whole}, "
+                          f"a decimal point {number:,.2f}. Write the amount without a point (250000 or 250,000).")
         if isinstance(number, str):
             return None, f"{field_name}: '{typed}' is not a number (write it like 250000 or 250,000)."
         if not np.isfinite(number):
@@ -1386,6 +1394,10 @@ def _plan_proof_text(result) -> str:
         return text[:1].upper() + text[1:] + "."
     if kind == "failed":
         return f"The exact plan could not be solved ({status.get('message', '')}); the rank-order plan stands."
+    if kind == "kept":
+        return (f"The plan before this edit still fits every budget and is better than the plan found in the "
+                f"{settings.time_limit_s:g} s allowed for a live edit, so it is kept. Prove the plan for the best "
+                "under the new budgets.")
     if gap != gap:  # NaN: no bound known
         return "Exact plan: no bound on how far it is from the best possible plan."
     proven = f"proven within {gap * 100:.2g} % of the best possible plan NPV" if gap > 1e-9 else "proven optimal"
@@ -1425,7 +1437,7 @@ def plan_notice(result) -> str:
     settings, gap = status.get("settings"), status.get("gap_frac", float("nan"))
     if not _live(settings):
         return ""
-    if status.get("status") != "time_limit" and not gap > scenario.PRECISE_PLAN.gap_frac:
+    if status.get("status") not in ("time_limit", "kept") and not gap > scenario.PRECISE_PLAN.gap_frac:
         return ""
     within = f"within {gap * 100:.2g} %" if gap == gap else "without a bound"
     return (f"The plan figures come from a plan solved for a live edit and proven {within} of the best possible; "

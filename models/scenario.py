@@ -124,7 +124,8 @@ class ScenarioResult:
         site_id, month, scenario (baseline or plan), line_item, amount [currency].
     plan_status : dict
         How far the exact plan is proven: ``status`` ("optimal", "time_limit", "unconstrained", "empty"
-        or "failed", see :class:`models.plan.FleetPlan`), ``message`` (plain words), ``gap_frac``
+        or "failed", see :class:`models.plan.FleetPlan`; or "kept", a live budget edit's plan kept from the
+        edit before, :func:`_kept_if_better`), ``message`` (plain words), ``gap_frac``
         (proven relative gap to the best possible plan NPV [frac]; NaN when unknown), ``settings``
         (:class:`PlanSettings` used).
     fleet_npv_draws : numpy.ndarray
@@ -676,6 +677,7 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
         plan_frames = _plan_with_interactions(case, op, results, previous.capital_spend_by_year, project_ids,
                                               assumptions, float(assumptions.discount_rate_frac), settings,
                                               previous.bill_saving_pv)
+        plan_frames = _kept_if_better(previous, plan_frames, assumptions, settings, project_ids)
         step("bills")
         base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
         bills = _bills(case, op, plan_frames[0], base, float(assumptions.energy_price_factor))
@@ -686,6 +688,58 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
     return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
                    plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4],
                    plan_tornado=plan_risk[0], plan_risk=plan_risk[1], plan_npv_draws=plan_risk[2])
+
+
+#: Said of a live plan kept from the edit before (its status message).
+KEPT_PLAN_TEXT = ("the plan before this edit, still within every budget, is better than the plan found in a live "
+                  "solve's time, so it is kept; prove the plan for the best under the new budgets")
+
+
+def _fits_budgets(plan_frame: pd.DataFrame, capital_spend: np.ndarray, project_ids: np.ndarray,
+                  budget_per_yr) -> bool:
+    """Whether a plan (its projects and start years) spends within every plan year's budget.
+
+    A project started in plan year s spends its k-th year's capital (``capital_spend[i, k]``) in plan year
+    s + k, as :func:`models.plan.plan_exact` counts it; a start outside the plan years does not fit."""
+    budgets = np.asarray(list(budget_per_yr), dtype=float)
+    if not budgets.size:
+        return True
+    if not len(plan_frame):
+        return True
+    rows = pd.Index(project_ids).get_indexer(project_labels(plan_frame))
+    starts = plan_frame["start_yr"].to_numpy(dtype=int)
+    if (rows < 0).any() or (starts >= budgets.size).any() or (starts < 0).any():
+        return False
+    spend = np.zeros(budgets.size)
+    for i, start in zip(rows, starts):
+        width = min(budgets.size - start, capital_spend.shape[1])
+        spend[start:start + width] += capital_spend[i, :width]
+    return bool((spend <= budgets * (1 + 1e-12) + 1e-6).all())
+
+
+def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, settings: PlanSettings,
+                    project_ids: np.ndarray) -> tuple:
+    """The plan before a budget edit instead of a bounded solve's plan, when it still fits every budget and
+    its NPV is higher: a live solve stopped by its time limit can end below a plan that a larger budget
+    still allows, and a budget raised must never show a worse plan. A solve to the precise setting is kept
+    as solved (the plan the pack and the command line give)."""
+    if settings.time_limit_s >= PRECISE_PLAN.time_limit_s or previous.plan is None:
+        return plan_frames
+    before = float(previous.plan_comparison.get("npv_exact", np.nan)) if previous.plan_comparison is not None else np.nan
+    now = float(plan_frames[2].get("npv_exact", np.nan))
+    if not (np.isfinite(before) and np.isfinite(now) and before > now + 1e-6 * max(1.0, abs(now))):
+        return plan_frames
+    if not _fits_budgets(previous.plan, previous.capital_spend_by_year, project_ids, assumptions.budget_per_yr):
+        return plan_frames
+    comparison = plan_frames[2].copy()  # (as models.plan.compare_plans gives it, with the kept plan as the exact one)
+    comparison["npv_exact"] = before
+    comparison["shortfall"] = before - float(comparison["npv_greedy"])
+    comparison["shortfall_frac"] = comparison["shortfall"] / before if before > 0 else 0.0
+    comparison["projects_exact"] = float(len(previous.plan))
+    # (how far the kept plan is from the best under the new budgets is not known: no gap)
+    status = {**(previous.plan_status or {}), "status": "kept", "message": KEPT_PLAN_TEXT, "settings": settings,
+              "gap_frac": float("nan")}
+    return (previous.plan, plan_frames[1], comparison, plan_frames[3], status) + tuple(plan_frames[5:])
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,

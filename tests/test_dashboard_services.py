@@ -446,6 +446,12 @@ class TestEdits:
         (["abc"], None, "not a number"),
         (["250,000", "1 500.5", ""], [250000.0, 1500.5], ""),   # thousands separators as people type them
         (["1,5"], None, "not a number"),                        # a decimal comma is ambiguous: refused
+        # a point grouping thousands, as many write 250,000 in a EUR case, would read as 250: refused, both
+        # readings named (user report: the budget fell a thousandfold without a word)
+        (["250.000"], None, "'250.000' is ambiguous: a point grouping thousands would make it 250000, a decimal "
+                            "point 250.00"),
+        (["1.250.000"], None, "'1.250.000' groups thousands with points: write 1250000"),
+        (["2.5", "250.5", "1000.000001"], [2.5, 250.5, 1000.000001], ""),  # decimal points otherwise as written
         (["inf"], None, "a finite amount"),
         ([0, "", 10], None, "Year 1"),
     ])
@@ -713,6 +719,12 @@ class TestPlanSolveText:
         assert "proven optimal" in services.plan_solve_text(self.result("optimal", 0.0, scenario.PRECISE_PLAN))
         text = services.plan_solve_text(self.result("optimal", 0.00009, scenario.PRECISE_PLAN))
         assert "0.009 %" in text and "live" not in text
+
+    def test_a_plan_kept_from_before_a_live_edit_says_so_and_asks_for_the_proof(self):
+        text = services.plan_solve_text(self.result("kept", float("nan"), scenario.LIVE_PLAN))
+        assert "still fits every budget" in text and "so it is kept" in text and "Prove" in text
+        assert services.plan_notice(self.result("kept", float("nan"), scenario.LIVE_PLAN)) != ""
+        assert not services.plan_is_proven(self.result("kept", float("nan"), scenario.LIVE_PLAN))
 
     def test_unknown_bound_and_failure(self):
         assert "no bound" in services.plan_solve_text(self.result("optimal", float("nan"), scenario.PRECISE_PLAN))

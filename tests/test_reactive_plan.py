@@ -103,3 +103,66 @@ def test_a_round_that_withdraws_from_the_rank_order_plan_only_keeps_the_exact_pl
     assert calls == [True, True, False]  # the first solve, the first round's, then the rank-order plan only
     assert frames[4]["solves"] == 2 and frames[4]["withdrawn"] == ()
     assert frames[1].empty  # the rank-order plan without both capacitors
+
+
+def test_a_budget_raised_in_a_live_edit_never_shows_a_worse_plan(demo_run_physics):
+    # User report: the demo's year-2 budget raised from 150,000 to 160,000 in a live edit showed a plan NPV of
+    # 8,215,862 against 8,288,620 before: the bounded live solve (0.05 s) stopped at a worse plan, though the
+    # plan before the edit still fits a larger budget. A budget raised keeps that plan unless the solve beats it.
+    from dataclasses import replace
+
+    from models import scenario
+
+    case, phys = demo_run_physics
+    base = scenario.economics(case, phys, case.finance, with_risk=False)
+    start = tuple(zip(scenario.project_labels(base.plan).tolist(), base.plan["start_yr"].astype(int).tolist()))
+    before = float(base.plan_comparison["npv_exact"])
+    for year, extra in ((2, 10_000.0), (0, 50_000.0), (1, 1.0)):
+        budgets = list(case.finance.budget_per_yr)
+        budgets[year] += extra
+        raised = replace(case.finance, budget_per_yr=tuple(budgets))
+        live = scenario.economics(case, phys, raised, with_risk=False, previous=base,
+                                  plan_settings=replace(scenario.LIVE_PLAN, start=start))
+        assert float(live.plan_comparison["npv_exact"]) >= before * (1 - 1e-12), (year, extra)
+        assert abs(float(live.plan["npv_at_plan_start"].sum()) - float(live.plan_comparison["npv_exact"])) < 1e-6 * before
+        if live.plan_status["status"] == "kept":
+            assert live.plan.equals(base.plan) and live.plan_status["message"] == scenario.KEPT_PLAN_TEXT
+            assert live.plan_comparison["shortfall"] == before - live.plan_comparison["npv_greedy"]
+
+
+def test_a_plan_that_no_longer_fits_a_lowered_budget_is_not_kept(demo_run_physics):
+    # the other side: with the year-0 budget cut to a tenth the plan before does not fit (its year-0 capital is
+    # above it), so the live solve's plan stands, whatever its NPV, and it spends within the new budget
+    from dataclasses import replace
+
+    from models import scenario
+
+    case, phys = demo_run_physics
+    base = scenario.economics(case, phys, case.finance, with_risk=False)
+    budgets = list(case.finance.budget_per_yr)
+    budgets[0] = budgets[0] / 10
+    cut = replace(case.finance, budget_per_yr=tuple(budgets))
+    assert not scenario._fits_budgets(base.plan, base.capital_spend_by_year, scenario.project_labels(base.results).to_numpy(),
+                                      cut.budget_per_yr)
+    live = scenario.economics(case, phys, cut, with_risk=False, previous=base,
+                              plan_settings=replace(scenario.LIVE_PLAN, start=()))
+    assert live.plan_status["status"] != "kept"
+    year0 = live.plan.loc[live.plan["start_yr"] == 0, "capital"].sum()
+    assert year0 <= budgets[0] + 1e-6
+
+
+def test_fits_budgets_counts_each_years_capital_from_the_projects_start():
+    # hand calculation: project A (capital 100 then 50) started in plan year 0 spends 100 in year 0 and 50 in
+    # year 1; B (capital 30) started in year 1 spends 30 there: 100 and 80 against budgets (100, 80) fit,
+    # against (100, 79) do not; a start in a plan year the budgets no longer hold does not fit
+    import numpy as np
+
+    from models import scenario
+
+    plan_frame = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "y"], "start_yr": [0, 1]})
+    spend = np.array([[100.0, 50.0], [30.0, 0.0]])
+    ids = np.array(["A/x", "B/y"], dtype=object)
+    assert scenario._fits_budgets(plan_frame, spend, ids, (100.0, 80.0))
+    assert not scenario._fits_budgets(plan_frame, spend, ids, (100.0, 79.0))
+    assert not scenario._fits_budgets(plan_frame, spend, ids, (200.0,))
+    assert scenario._fits_budgets(plan_frame, spend, ids, ())
