@@ -693,3 +693,14 @@ def test_a_record_that_keeps_the_motor_says_replacing_it_now_is_a_separate_reque
     assert "replacing it now is not in this request and would need its own capital" in said
     new_capital = result.results.set_index(["asset_id", "option_id"]).loc[(both[0], eol.loc[both[0], "new_option_id"]), "capital"]
     assert content.money(float(new_capital), case.settings.currency) in said
+
+
+def test_the_reports_charts_offer_no_button_that_shares_them_outside():
+    # the report's charts hold the client's figures: their mode bar has no button that uploads a chart to an
+    # outside sharing service (plotly.js config keys showSendToCloud and modeBarButtonsToRemove)
+    import plotly.graph_objects as go
+
+    from models.pack.report_html import chart
+
+    html = str(chart(go.Figure(go.Bar(x=[1], y=[2])), "t"))
+    assert '"showSendToCloud": false' in html and '"sendChartToCloud"' in html and '"sendDataToCloud"' in html

@@ -57,8 +57,7 @@ def chart(fig, name: str) -> Markup:
     """Return a chart fragment (plotly writes its own JSON with ``<`` escaped)."""
     return Markup(pio.to_html(fig, full_html=False, include_plotlyjs=False, div_id=f"chart-{name}",
                               config={"displaylogo": False, "responsive": True, "showSendToCloud": False,
-                                      "showEditInChartStudio": False,
-                                      "modeBarButtonsToRemove": ["sendChartToCloud", "sendDataToCloud", "editInChartStudio"]}, default_width="100%"))
+                                      "modeBarButtonsToRemove": ["sendChartToCloud", "sendDataToCloud"]}, default_width="100%"))
 
 
 def _payback_cell(value: float, horizon: int) -> dict[str, str]:
