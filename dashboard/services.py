@@ -1881,8 +1881,12 @@ def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
     installed = assets.loc[mine, "year_installed"]
     age_known = bool(len(installed)) and bool(pd.notna(installed.iloc[0]))
     rewinds = assets.loc[mine, "rewind_count"] if "rewind_count" in assets else pd.Series(dtype=float)
-    return end_of_life_summary(result.end_of_life, asset_id, view_.currency, int(result.assumptions.horizon_yr),
-                               labels, age_known, float(rewinds.iloc[0]) if len(rewinds) else 0.0, view_.power_unit)
+    summary = end_of_life_summary(result.end_of_life, asset_id, view_.currency, int(result.assumptions.horizon_yr),
+                                  labels, age_known, float(rewinds.iloc[0]) if len(rewinds) else 0.0, view_.power_unit)
+    why = scenario.end_of_life_left_out(result, asset_id)
+    if why and summary.strategies.empty:  # the reason the comparison leaves the motor out, in words
+        return replace(summary, message=f"No end-of-life comparison for {asset_id}: {scenario.END_OF_LIFE_LEFT_OUT[why]}.")
+    return summary
 
 
 #: Each repair-or-replace decision of :func:`models.end_of_life.fleet_rules` in plain words.

@@ -980,8 +980,42 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     frame["new_lead_time_h"] = new_lead_h
     frame["rewind_lead_time_h"] = rewind_lead_h
     frame.index.name = "asset_id"
-    # a motor for which no new induction motor is offered has no replacement to compare (none is named)
-    return frame.reset_index()[op.applies[:, new_candidates].any(axis=1)].reset_index(drop=True)
+    # a motor for which no new induction motor is offered has no replacement to compare (none is named); one
+    # that never runs in the analysis year (a spare, a stand-by) stops nothing when it fails
+    compared = op.applies[:, new_candidates].any(axis=1) & (np.asarray(op.running_h, dtype=float) > 0)
+    return frame.reset_index()[compared].reset_index(drop=True)
+
+
+#: Why a motor has no end-of-life comparison (:func:`end_of_life_left_out`), in plain words.
+END_OF_LIFE_LEFT_OUT = {
+    "idle": ("it does not run in the analysis year (a spare or a stand-by motor): its failure stops nothing, so "
+             "replacing it now is not compared with replacing or rewinding it at failure"),
+    "no_new_motor": "no new induction motor of the catalogue fits it, so there is no replacement to compare",
+    "no_catalogue": "the comparison needs a rewind option and a new induction motor option in the catalogue",
+}
+
+
+def end_of_life_left_out(result, asset_id: str) -> str:
+    """Why an asset of a result has no row in its end-of-life comparison ("" when it has one or is unknown):
+    a key of :data:`END_OF_LIFE_LEFT_OUT`."""
+    eol = getattr(result, "end_of_life", None)
+    if eol is not None and len(eol) and (eol["asset_id"].astype(str) == str(asset_id)).any():
+        return ""
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    if op is None:
+        return ""
+    where = np.flatnonzero(np.asarray(op.asset_ids, dtype=object).astype(str) == str(asset_id))
+    if not len(where):
+        return ""
+    i = int(where[0])
+    tech = np.asarray(op.technologies, dtype=object)
+    if not ((tech == "rewind").any() and (tech == "induction").any()):
+        return "no_catalogue"
+    if not op.applies[i, tech == "induction"].any():
+        return "no_new_motor"
+    if not float(op.running_h[i]) > 0:
+        return "idle"
+    return ""
 
 
 def _policy_new_motor(case, induction: pd.DataFrame, sizes_kw: np.ndarray, f_hz: int) -> tuple[np.ndarray, np.ndarray]:

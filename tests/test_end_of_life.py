@@ -219,3 +219,44 @@ class TestWording:
         # one class of beta = 1 (exponential, Gamma(2) = 1): mean life = eta = 10 yr
         text = eol.failure_law_caution((eol.LifeClass(math.inf, 1.0, 10.0, "one"),))
         assert "above 0 kW 10.0 yr" in text
+
+
+def test_a_motor_that_never_runs_is_left_out_of_the_end_of_life_comparison(tmp_path):
+    # User report: a spare motor (operating_h_per_yr = 0) was advised "replace now" because its failure was
+    # priced as an outage. A motor that does not run in the analysis year stops nothing when it fails: it is
+    # left out, and the asset page and the decision record say why.
+    import tests.casebuilder as cb
+    from dashboard import services
+    from models import scenario
+    from models.case import load_case
+
+    assets = [list(row) for row in cb.ASSETS]
+    assets[1][16] = "0"  # F1, the 7.5 kW exhaust fan: a spare, 0 h/yr
+    folder = cb.write_case(tmp_path / "case", assets=assets)
+    # a flat tariff for the one site (as tests/test_pack_workbook.py builds it)
+    from tests.test_pack_workbook import FLAT_TARIFF
+
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    result = scenario.run(case, case.finance, with_risk=False)
+    compared = set(result.end_of_life["asset_id"])
+    assert "F1" not in compared and "P1" in compared
+    assert scenario.end_of_life_left_out(result, "F1") == "idle"
+    assert scenario.end_of_life_left_out(result, "P1") == ""
+    import types
+
+    view = types.SimpleNamespace(case=case, currency="EUR", power_unit="kW")  # (what the asset page's view gives)
+    summary = services.asset_end_of_life(view, result, "F1")
+    assert summary.strategies.empty
+    assert summary.message == f"No end-of-life comparison for F1: {scenario.END_OF_LIFE_LEFT_OUT['idle']}."
+    assert not services.asset_end_of_life(view, result, "P1").strategies.empty
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    said = " ".join(str(v) for v in record_context(case, result, content.select_scope(case, result, assets=["F1"],
+                                                                                       plan=False), "F1").values())
+    assert "Not compared: it does not run in the analysis year" in said

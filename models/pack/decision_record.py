@@ -19,7 +19,7 @@ from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 from models.plan import option_labels
-from models.scenario import REPLACING_TECHNOLOGIES
+from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of_life_left_out
 
 
 
@@ -107,7 +107,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                     f"{float(e['mean_residual_life_yr']):.1f} yr. "
                     + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution(brief=True)) if t))
     else:
-        eol_note = "Not available: the options catalogue needs a rewind option and a new induction motor option."
+        why = end_of_life_left_out(result, asset_id) or "no_catalogue"
+        reason = END_OF_LIFE_LEFT_OUT[why]
+        eol_note = f"Not compared: {reason}."
 
     is_keep = rec["option_id"] == keep_id
     reason = str(rec["reason"])
