@@ -119,7 +119,7 @@ def card(label: str, value_id: str, note_id: str | None = None) -> html.Div:
     return html.Div(children, className="card")
 
 
-HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Plan yearly saving, projects priced alone"), ("npv", "Plan NPV"),
+HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Plan yearly saving, as the plan counts it"), ("npv", "Plan NPV"),
                    ("co2", "Plan CO2 avoided"))
 
 

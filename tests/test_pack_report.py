@@ -704,3 +704,19 @@ def test_the_reports_charts_offer_no_button_that_shares_them_outside():
 
     html = str(chart(go.Figure(go.Bar(x=[1], y=[2])), "t"))
     assert '"showSendToCloud": false' in html and '"sendChartToCloud"' in html and '"sendDataToCloud"' in html
+
+
+def test_the_dashboards_saving_card_is_the_packs_headline_saving(demo_run_physics):
+    # User report: the Fleet card said 1.03 M/yr ("projects priced alone") where the pack's headline said
+    # 1,020,230/yr ("as the plan counts them") for the same proven plan. Both now count each reactive project
+    # of the plan at the share of its bill saving the plan credits (the basis of the plan NPV beside them).
+    from dashboard import services
+    from models import scenario
+    from models.pack.content import headline, select_scope
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    card = services.headline(result)["yearly_saving_per_yr"]
+    pack = headline(result, select_scope(case, result)).yearly_saving
+    assert result.plan_status["repriced"]
+    assert abs(card - pack) <= 1e-9 * abs(pack)
