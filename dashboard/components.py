@@ -226,9 +226,16 @@ WRAPPED_NUMBER = {"wrapText": True, "autoHeight": True,
                   "cellStyle": {"lineHeight": "1.4", "paddingTop": "10px", "paddingBottom": "10px", "wordBreak": "normal"}}
 #: The discounted payback as every grid writes it: one decimal; "not within the horizon" where the row spends
 #: capital and is not paid back within the horizon (no finite payback); blank where nothing is spent.
+#: A row with a positive NPV and no payback: its NPV rests on the residual value at the horizon's end, which
+#: the paybacks leave out (docs/finance.md), and the cell says so.
 PAYBACK_TEXT = {"function": "(params.value == null || !isFinite(params.value)) ? "
-                            "((params.data && params.data.capital > 0) ? 'not within the horizon' : '') : "
-                            "d3.format(',.1f')(params.value)"}
+                            "((params.data && params.data.capital > 0) ? ((params.data.npv > 0) ? "
+                            "'not within the horizon (its NPV counts the residual value)' : 'not within the horizon') "
+                            ": '') : d3.format(',.1f')(params.value)"}
+#: What the payback column counts, as its header's tooltip says it.
+PAYBACK_TOOLTIP = ("From the first outlay to the year the discounted cumulative flow is back to zero, without the "
+                   "residual value at the horizon's end (a book value, not cash). NPV and IRR count that value, so a "
+                   "project can show a positive NPV and no payback within the horizon.")
 
 
 def payback_col(field: str = "discounted_payback_yr", header: str = "Disc. payback [yr]", **extra) -> dict:
@@ -237,7 +244,8 @@ def payback_col(field: str = "discounted_payback_yr", header: str = "Disc. payba
     The Fleet table and the Asset page's options grid use the same column, so an option that spends capital
     and never pays back reads the same on both.
     """
-    return number_col(field, header, 1, valueFormatter=PAYBACK_TEXT, **WRAPPED_NUMBER, **extra)
+    return number_col(field, header, 1, valueFormatter=PAYBACK_TEXT, **WRAPPED_NUMBER,
+                      **({"headerTooltip": PAYBACK_TOOLTIP} | extra))
 
 
 def long_text_col(field: str, header: str, **extra) -> dict:

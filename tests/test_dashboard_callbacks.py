@@ -443,6 +443,10 @@ def test_fleet_payback_says_when_it_is_beyond_the_horizon(engine):
     payback = next(c for c in columns if c["field"] == "discounted_payback_yr")
     code = payback["valueFormatter"]["function"]
     assert "not within the horizon" in code and "params.data.capital > 0" in code
+    # a positive NPV with no payback rests on the residual value, which the paybacks leave out: the cell and the
+    # header's tooltip say so (user report: "IRR above our hurdle, but it never pays back")
+    assert "params.data.npv > 0" in code and "its NPV counts the residual value" in code
+    assert "without the residual value" in payback["headerTooltip"]
     # the Asset page's options grid writes it the same way (it left the cell blank, as for "Keep as is")
     asset_payback = next(c for c in asset.update("HRW-V01", None, None)[2] if c["field"] == "discounted_payback_yr")
     assert asset_payback["valueFormatter"] == payback["valueFormatter"] and asset_payback["wrapText"]
