@@ -1386,7 +1386,17 @@ def plan_solve_text(result) -> str:
     results = getattr(result, "results", None)
     withdrawn = reactive_plan.withdrawn_text(getattr(result, "plan_status", None),
                                              labels=option_labels(results) if results is not None else None)
-    return f"{text} {withdrawn}" if withdrawn else text
+    return " ".join(x for x in (text, withdrawn, _beyond_horizon(result)) if x)
+
+
+def _beyond_horizon(result) -> str:
+    """:func:`models.plan.plan_beyond_horizon_text` of a result's assumptions, as a sentence ("" when none)."""
+    from models.plan import plan_beyond_horizon_text
+
+    assumptions = getattr(result, "assumptions", None)
+    budgets = getattr(assumptions, "budget_per_yr", None)
+    text = plan_beyond_horizon_text(len(budgets), assumptions.horizon_yr) if budgets else ""
+    return text[:1].upper() + text[1:] + "." if text else ""
 
 
 def _plan_proof_text(result) -> str:
@@ -1436,16 +1446,17 @@ def _live(settings) -> bool:
 
 def plan_notice(result) -> str:
     """A short warning for pages that show plan figures while the plan is a live one not yet proven to
-    the full run's gap; empty otherwise."""
+    the full run's gap, or when its budget years run past the study horizon; empty otherwise."""
+    beyond = _beyond_horizon(result)
     status = getattr(result, "plan_status", None) or {}
     settings, gap = status.get("settings"), status.get("gap_frac", float("nan"))
     if not _live(settings):
-        return ""
+        return beyond
     if status.get("status") not in ("time_limit", "kept") and not gap > scenario.PRECISE_PLAN.gap_frac:
-        return ""
+        return beyond
     within = f"within {gap * 100:.2g} %" if gap == gap else "without a bound"
-    return (f"The plan figures come from a plan solved for a live edit and proven {within} of the best possible; "
-            "prove it on the Capital plan page for the pack's precision.")
+    return " ".join(x for x in (f"The plan figures come from a plan solved for a live edit and proven {within} of the "
+                                "best possible; prove it on the Capital plan page for the pack's precision.", beyond) if x)
 
 
 def with_option_labels(frame: pd.DataFrame, result) -> pd.DataFrame:

@@ -1694,6 +1694,14 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                                 "every plan year's capital budget is 0: the plan buys only projects that need no "
                                 "capital",
                                 "give the budget of each plan year, or leave budget_per_yr out for no limit"))
+    if assumptions is not None and assumptions.budget_per_yr:
+        from models.plan import plan_beyond_horizon_text
+
+        beyond = plan_beyond_horizon_text(len(assumptions.budget_per_yr), assumptions.horizon_yr)
+        if beyond:
+            problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr), beyond,
+                                    f"horizon_yr = {len(assumptions.budget_per_yr)} or more, or "
+                                    f"{int(assumptions.horizon_yr)} budget year(s)"))
     if assumptions is not None and assumptions.currency != settings.currency and _valid_currency(settings.currency):
         problems.append(error(source, None, "currency", assumptions.currency,
                               f"the finance currency differs from the case currency {settings.currency}",

@@ -739,6 +739,27 @@ def low_data_quality(plan: pd.DataFrame, data_quality_pct: Mapping[str, float],
     return int(low.sum()), (float(npv[low].sum()) / total if total > 0 else 0.0)
 
 
+def plan_beyond_horizon_text(n_plan_years: int, horizon_yr: int) -> str:
+    """A caution when the plan's budget years run to or past the study horizon ("" otherwise).
+
+    A project started in plan year s is valued over its own horizon from its start; a plan year at or
+    beyond the horizon starts projects after the study period the rest of the case is read over.
+
+    Examples
+    --------
+    >>> plan_beyond_horizon_text(3, 15)
+    ''
+    >>> plan_beyond_horizon_text(3, 1)[:60]
+    'the plan has 3 budget years but the study horizon is 1 year:'
+    """
+    n, h = int(n_plan_years), int(horizon_yr)
+    if n <= h:
+        return ""
+    return (f"the plan has {n} budget years but the study horizon is {h} year{'s' if h != 1 else ''}: projects "
+            f"started in plan year {h} or later begin after the study period, and each is valued over {h} "
+            f"year{'s' if h != 1 else ''} from its own start; lengthen the horizon or shorten the budget list")
+
+
 def project_labels(frame: pd.DataFrame) -> pd.Series:
     """The project label "asset/option" of each row of a table with ``asset_id`` and ``option_id``
     (the labels the plan and the cash flows use)."""

@@ -823,3 +823,15 @@ def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
     (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
     _, problems = load_case(folder)
     assert not [p for p in problems if p.column == "calendar.holidays"]
+
+
+def test_budget_years_past_the_horizon_are_warned(tmp_path):
+    # models.plan.plan_beyond_horizon_text: 3 budget years over a 2-year horizon start projects after the study
+    import tests.casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    (folder / "finance.toml").write_text("horizon_yr = 2\nbudget_per_yr = [1000, 1000, 1000]\n", encoding="utf-8")
+    _, problems = load_case(folder)
+    found = [p for p in problems if p.column == "budget_per_yr" and "study horizon is 2 years" in p.rule]
+    assert found and found[0].severity == "warning" and "horizon_yr = 3 or more" in found[0].hint

@@ -779,3 +779,20 @@ def test_plan_bill_saving_alone_splits_the_plan_by_site(engine):
     chosen = result.results.merge(result.plan[["asset_id", "option_id"]], on=["asset_id", "option_id"])
     assert total == pytest.approx(float(chosen["bill_saving_per_yr"].sum()), rel=1e-12)
     assert services.plan_bill_saving_alone(result, "no such site") == 0.0
+
+
+def test_a_plan_whose_budget_years_pass_the_horizon_is_cautioned():
+    # User report: a 1-year horizon with 3 budget years put 50 of 66 projects after the study period, with no
+    # caution. The plan page's solve text and the Fleet notice say so; the case check warns (models.case).
+    import types
+
+    from models.finance import FinanceAssumptions
+
+    short = types.SimpleNamespace(plan_status={"status": "optimal", "gap_frac": 0.0, "settings": scenario.PRECISE_PLAN},
+                                  assumptions=FinanceAssumptions(horizon_yr=1, budget_per_yr=(1.0, 2.0, 3.0)))
+    text = services.plan_solve_text(short)
+    assert "The plan has 3 budget years but the study horizon is 1 year" in text
+    assert "The plan has 3 budget years" in services.plan_notice(short)
+    fine = types.SimpleNamespace(plan_status=short.plan_status,
+                                 assumptions=FinanceAssumptions(horizon_yr=15, budget_per_yr=(1.0, 2.0, 3.0)))
+    assert "budget years" not in services.plan_solve_text(fine) and services.plan_notice(fine) == ""
