@@ -1010,14 +1010,31 @@ def headline(result) -> dict:
     }
 
 
+def no_option_text(result, asset_id: str) -> str:
+    """Why only today's motor is offered for an asset, in words ("" when some option applies): each reason
+    the catalogue's options give, with how many options it leaves out."""
+    left_out = scenario.options_left_out(result, asset_id)
+    if not left_out:
+        return ""
+    parts = [f"{reason} ({n} option{'s' if n != 1 else ''})" for reason, n in left_out]
+    return ("No option of the catalogue applies to this motor, so it is kept as it is: " + "; ".join(parts) + ". "
+            "A catalogue of your own (options.csv) can offer what fits it.")
+
+
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
     """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
     status = result.plan_status or {}
     taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
     label = (best["asset_id"].astype(str) + "/" + best["option_id"].astype(str)).to_numpy(dtype=object)
     pays = (best["capital"].to_numpy(dtype=float) > 0) & (best["npv"].to_numpy(dtype=float) > 0)
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    none_fits = np.zeros(len(best), dtype=bool)
+    if op is not None:  # the assets only today's motor is offered for (by id, one pass)
+        only_today = pd.Series(~op.applies[:, 1:].any(axis=1), index=np.asarray(op.asset_ids, dtype=object).astype(str))
+        none_fits = only_today.reindex(best["asset_id"].astype(str)).fillna(False).to_numpy(dtype=bool)
     why = np.where(np.isin(label, list(taken)), "nothing: its value is taken by the plan's other projects",
-                   np.where(pays, "nothing: outside the budget", ""))
+                   np.where(pays, "nothing: outside the budget",
+                            np.where(none_fits, "nothing: no option of the catalogue applies (see the asset's page)", "")))
     return np.where(bought != "", bought, why).astype(object)
 
 

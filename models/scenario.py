@@ -995,6 +995,20 @@ END_OF_LIFE_LEFT_OUT = {
 }
 
 
+def options_left_out(result, asset_id: str) -> list[tuple[str, int]]:
+    """Why the catalogue's options (today's motor aside) do not apply to an asset: each reason with the
+    number of options it leaves out, commonest first; empty when some option applies or the asset is unknown."""
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    if op is None:
+        return []
+    where = np.flatnonzero(np.asarray(op.asset_ids, dtype=object).astype(str) == str(asset_id))
+    if not len(where) or op.applies[int(where[0]), 1:].any():
+        return []
+    reasons = pd.Series(np.asarray(op.reason, dtype=object)[int(where[0]), 1:]).replace("", "not applicable")
+    counts = reasons.value_counts(sort=True)
+    return [(str(r), int(n)) for r, n in counts.items()]
+
+
 def end_of_life_left_out(result, asset_id: str) -> str:
     """Why an asset of a result has no row in its end-of-life comparison ("" when it has one or is unknown):
     a key of :data:`END_OF_LIFE_LEFT_OUT`."""

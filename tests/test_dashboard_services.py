@@ -796,3 +796,39 @@ def test_a_plan_whose_budget_years_pass_the_horizon_is_cautioned():
     fine = types.SimpleNamespace(plan_status=short.plan_status,
                                  assumptions=FinanceAssumptions(horizon_yr=15, budget_per_yr=(1.0, 2.0, 3.0)))
     assert "budget years" not in services.plan_solve_text(fine) and services.plan_notice(fine) == ""
+
+
+def test_a_motor_no_option_fits_is_explained_on_its_page_and_in_the_fleet_table(tmp_path):
+    # User report: a 0.37 kW motor, below every catalogue option's range (data/defaults/options.csv starts at
+    # 0.75 kW), showed "Keep as is" with NPV 0 and no word why. Its page and the Fleet table's "plan buys"
+    # column now say no option applies, and why.
+    import types
+
+    import tests.casebuilder as cb
+    from models import scenario
+    from models.case import load_case
+    from tests.test_pack_workbook import FLAT_TARIFF
+
+    assets = [list(row) for row in cb.ASSETS]
+    assets[1][4] = "0.37"  # F1: 0.37 kW
+    assets[1][9] = "70"  # (a rated efficiency of its size)
+    folder = cb.write_case(tmp_path / "case", assets=assets)
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    result = scenario.run(case, case.finance, with_risk=False)
+    left_out = dict(scenario.options_left_out(result, "F1"))
+    assert left_out.get("rating below the option's range", 0) >= 1
+    assert scenario.options_left_out(result, "P1") == []
+    text = services.no_option_text(result, "F1")
+    assert text.startswith("No option of the catalogue applies to this motor, so it is kept as it is: rating below "
+                           "the option's range (")
+    assert services.no_option_text(result, "P1") == ""
+    best = result.results[result.results["best_for_asset"].to_numpy(dtype=bool)].reset_index(drop=True)
+    bought = np.array([""] * len(best), dtype=object)
+    why = dict(zip(best["asset_id"], services._plan_buys(result, best, bought)))
+    assert why["F1"] == "nothing: no option of the catalogue applies (see the asset's page)"
+    assert why["P1"] != why["F1"]

@@ -164,6 +164,9 @@ def update(asset_id, session, edits, requested=None):
                html.Span(f" · site {asset['site_id']} · {asset['application']} · "
                          f"{ui.fmt_rating(rating, services.power_label(view.power_unit))} · "
                          f"{asset['speed_control']} speed control · data quality {score:.0f} %")]
+    no_option = services.no_option_text(result, asset_id)
+    if no_option:  # only today's motor is offered: say why, rather than leave "Keep as is" unexplained
+        summary.append(html.Div(no_option, className="small caution", id="asset-no-option"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),
