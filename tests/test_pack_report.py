@@ -720,3 +720,56 @@ def test_the_dashboards_saving_card_is_the_packs_headline_saving(demo_run_physic
     pack = headline(result, select_scope(case, result)).yearly_saving
     assert result.plan_status["repriced"]
     assert abs(card - pack) <= 1e-9 * abs(pack)
+
+
+def test_a_pack_of_assets_says_what_capital_lies_outside_the_budgeted_plan(demo_run_physics):
+    # User report: a pack of three demo assets asked for 47,437 of capital, 10,724 of it for projects outside the
+    # budgeted plan (plan year "-"), without a word in the headline. The summary now names that part; the sum of
+    # the capital of the recommended projects outside the plan is the expected figure (results.csv, plan.csv).
+    from models import scenario
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    planned = set(result.plan["asset_id"])
+    best = result.results[result.results["best_for_asset"].to_numpy(dtype=bool)]
+    paying = best[(best["capital"] > 0) & (best["npv"] > 0)]["asset_id"]
+    outside_assets = [a for a in paying if a not in planned][:2]
+    inside = [a for a in case.assets["asset_id"] if a in planned][:1]
+    assert len(outside_assets) == 2 and inside, "the demo's budget leaves paying projects out"
+    scope = content.select_scope(case, result, assets=inside + outside_assets, plan=False)
+    chosen = scope.chosen
+    outside = chosen.loc[~chosen["in_plan"].astype(bool), "capital"].sum()
+    assert outside > 0
+    summary = report_context(case, result, scope, [])["summary_text"]
+    assert f"Of that capital, {content.money(float(outside), case.settings.currency)}" in summary
+    assert "lies outside the budgeted plan" in summary
+    plan_only = report_context(case, result, content.select_scope(case, result), [])["summary_text"]
+    assert "outside the budgeted plan" not in plan_only
+
+
+def test_a_zero_budget_pack_says_the_budget_buys_nothing_and_shows_no_payback(demo_run_physics):
+    # User report: with budget_per_yr = [0] the pack said "the plan buys nothing under the budget, or no option
+    # beats keeping today's motor" (which?) and its payback card read "not within 15 yr" for no project at all.
+    # Expected: the paying projects the budget leaves out, counted and summed from results.csv (each asset's
+    # best paying option), and a payback of "-".
+    from dataclasses import replace
+
+    from models import scenario
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, replace(case.finance, budget_per_yr=(0.0,)), with_risk=False)
+    assert result.plan.empty
+    context = report_context(case, result, content.select_scope(case, result), [])
+    res = result.results
+    worth = res[(res["capital"] > 0) & (res["npv"] > 0)]
+    worth = worth.loc[worth.groupby("asset_id")["npv"].idxmax()]
+    summary = context["summary_text"]
+    assert summary.startswith(f"No project is recommended: the budget buys none of the {len(worth)} assets whose best "
+                              "option pays")
+    assert content.money(float(worth["npv"].sum()), case.settings.currency) in summary
+    payback = next(c for c in context["cards"] if c["label"] == "Payback")
+    assert payback["value"] == "-" and payback["note"] == "no project"

@@ -94,14 +94,28 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         {"label": "Capital", "value": content.money(h.capital, cur), "note": counted(h.n_projects, "project")},
         {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices, as the plan counts them"},
         {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
-        {"label": "Payback", "value": content.years_text(h.payback_yr, horizon), "note": "simple, combined cash flow"},
+        {"label": "Payback", "value": content.years_text(h.payback_yr, horizon) if h.n_projects else "-",
+         "note": "simple, combined cash flow" if h.n_projects else "no project"},
         {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"first year, at {a.grid_co2_kg_per_kwh * (1 - a.grid_co2_decline_frac):.4g} kg/kWh "
                                                                          f"({a.grid_co2_kg_per_kwh:g} less {a.grid_co2_decline_frac:.1%})"},
     ]
     keep_count = int((rec["option_id"] == rec["keep_option_id"]).sum())
     if h.n_projects == 0:
-        summary = (f"No project is recommended on {counted(len(scope.asset_ids), 'asset')}: the plan buys nothing under "
-                   "the budget, or no option beats keeping today's motor.")
+        # which of the two it is: positive-NPV projects the budget leaves out, or none worth buying
+        res_all = result.results
+        status = result.plan_status or {}
+        taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))  # left out for their value
+        worth = res_all[(res_all["capital"] > 0) & (res_all["npv"] > 0)
+                        & ~(res_all["asset_id"] + "/" + res_all["option_id"]).isin(list(taken))]
+        worth = worth.loc[worth.groupby("asset_id")["npv"].idxmax()] if len(worth) else worth
+        if len(worth) and content.has_budget(result) and scope.mode != "assets":
+            summary = (f"No project is recommended: the budget buys none of the {counted(len(worth), 'asset')} whose "
+                       f"best option pays (together {content.money(float(worth['capital'].sum()), cur)} of capital and "
+                       f"{content.money(float(worth['npv'].sum()), cur)} of NPV, each priced alone; results.csv lists "
+                       "them). A larger budget would buy them.")
+        else:
+            summary = (f"No project is recommended on {counted(len(scope.asset_ids), 'asset')}: no option beats "
+                       "keeping today's motor.")
     else:
         one = h.n_projects == 1
         summary = (f"{counted(h.n_projects, 'project')} on {counted(len(scope.asset_ids), 'asset')} "
@@ -111,6 +125,12 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                    f"{'pays' if one else 'pay'} back {content.years_text(h.payback_yr, horizon, within=True)} and "
                    f"{'adds' if one else 'add'} {content.money(h.npv, cur)} of value at a discount rate of "
                    f"{a.discount_rate_frac:.1%}.")
+    if h.n_projects and content.has_budget(result) and "in_plan" in chosen:
+        outside = chosen.loc[~chosen["in_plan"].astype(bool)]
+        if len(outside) and float(outside["capital"].sum()) > 0:
+            summary += (f" Of that capital, {content.money(float(outside['capital'].sum()), cur)} "
+                        f"({counted(len(outside), 'project')}) lies outside the budgeted plan: it needs money beyond "
+                        "the plan's budgets (the decision table's plan year reads '-').")
     if keep_count:
         summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
     together = plan_bill_saving_per_yr(result.bills)
