@@ -92,6 +92,8 @@ class CaseSettings:
     #: ISO date the new motors are bought: the region's rules in force then decide which new motors may be
     #: bought (blank: the day of the run).
     purchase_date: str = ""
+    #: False when the case gave no purchase date and the day of the run was taken.
+    purchase_date_declared: bool = True
 
     @property
     def mark_invented(self) -> bool:
@@ -685,6 +687,7 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
         region=region,
         region_declared="region" in data,
         purchase_date=purchase,
+        purchase_date_declared=bool(purchase),
         name=str(data.get("name", default_name)),
         description=str(data.get("description", "")),
         currency=currency,

@@ -773,3 +773,33 @@ def test_a_zero_budget_pack_says_the_budget_buys_nothing_and_shows_no_payback(de
     assert content.money(float(worth["npv"].sum()), case.settings.currency) in summary
     payback = next(c for c in context["cards"] if c["label"] == "Payback")
     assert payback["value"] == "-" and payback["note"] == "no project"
+
+
+def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physics):
+    # User report: the report never named each site's tariff, the purchase date the rules were read on (and that
+    # it defaulted to the day of the run), the region or the analysis year; the demo's warnings that demand
+    # savings are understated (15-min demand windows, 60-min profiles) sat only in the workbook's Data quality.
+    from models import scenario
+    from models.case import coarse_demand_profiles
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    scope = content.select_scope(case, result)
+    context = report_context(case, result, scope, [])
+    basis = {r["cells"][0]["text"]: (r["cells"][1]["text"], r["cells"][2]["text"]) for r in context["basis_rows"]}
+    assert basis["Region (minimum-efficiency rules)"][0] == case.settings.region
+    assert basis["Purchase date (rules read on)"][0] == case.settings.purchase_date
+    assert not case.settings.purchase_date_declared  # data/demo/case.toml gives none: the day of the run is taken
+    assert basis["Purchase date (rules read on)"][1].startswith("the day of the run (the case gives none)")
+    assert basis["Analysis year"][0] == "2025"  # data/demo profiles are of 2025 (data/generate_demo.py)
+    for site in case.sites.itertuples(index=False):
+        key = next(k for k in basis if k.startswith(f"Tariff of site {site.site_id}"))
+        assert basis[key] == (case.tariffs[site.tariff_file].name, f"file {site.tariff_file}")
+    coarse = coarse_demand_profiles(case.sites, case.assets, case.tariffs, case.profile_info)
+    assert coarse, "the demo's 60-min profiles meet 15-min demand windows"
+    register = content.risk_register(case, result, scope)
+    for site_id in coarse:
+        rows = register[register["item"] == f"Demand window at site {site_id}"]
+        assert len(rows) == 1 and "understates the demand peak and its savings" in rows["detail"].iloc[0]

@@ -511,6 +511,34 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 # Assumptions, data quality and the risk register
 # ---------------------------------------------------------------------------------------------------
+def basis_rows(case, result) -> list[tuple[str, str, str]]:
+    """What the pack's figures rest on besides the finance assumptions: (item, value, note) rows for the
+    region and purchase date the efficiency rules are read on, the analysis year of the load data and bills,
+    and each site's tariff."""
+    s = case.settings
+    rows = [("Region (minimum-efficiency rules)", str(s.region),
+             "as the case declares it" if getattr(s, "region_declared", True) else
+             "not declared in the case: the default region was taken"),
+            ("Purchase date (rules read on)", str(s.purchase_date),
+             "as the case gives it" if getattr(s, "purchase_date_declared", True) else
+             "the day of the run (the case gives none): a run on another day can read other rules")]
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    if op is not None and len(op.index):
+        year = int(op.index[len(op.index) // 2].year)
+        rows.append(("Analysis year", str(year), "the year of the load data and of the bills priced; plan year 0 "
+                                                 "starts at the purchase date"))
+    tariffs = getattr(case, "tariffs", {}) or {}
+    for site in case.sites.itertuples(index=False):
+        file = getattr(site, "tariff_file", None)
+        tariff = tariffs.get(file) if isinstance(file, str) else None
+        name = str(getattr(tariff, "name", "") or "") if tariff is not None else ""
+        site_name = str(getattr(site, "site_name", "") or "")
+        rows.append((f"Tariff of site {site.site_id}" + (f" ({site_name})" if site_name else ""),
+                     name or (str(file) if isinstance(file, str) else "none"),
+                     f"file {file}" if isinstance(file, str) else "no tariff file named"))
+    return rows
+
+
 def finance_rows(assumptions: finance.FinanceAssumptions) -> list[dict[str, Any]]:
     """Return one row per finance assumption: key, label (plain words), value, unit, meaning, and whether it
     is the program default."""
@@ -731,6 +759,20 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",
             asset_list_text(list(low["asset_id"])), "Measure these first: kW, PF, speed and hours over 1-4 weeks.")
+    # a site whose demand charge takes shorter windows than its motors' profiles resolve: its demand savings
+    # are understated (the case check's warning, carried to the register)
+    from models.case import coarse_demand_profiles, demand_window_text
+
+    coarse = coarse_demand_profiles(case.sites, case.assets, getattr(case, "tariffs", {}) or {},
+                                    getattr(case, "profile_info", None))
+    in_scope_sites = set(assets["site_id"].astype(str))
+    for site_id, (window, resolutions, n) in sorted(coarse.items()):
+        if site_id in in_scope_sites:
+            add("data", f"Demand window at site {site_id}", demand_window_text(window, resolutions, n)[:1].upper()
+                + demand_window_text(window, resolutions, n)[1:],
+                asset_list_text(list(assets.loc[assets["site_id"].astype(str) == site_id, "asset_id"])),
+                f"Give {window}-min profiles (or log the site's demand at {window} min) before relying on the "
+                "demand saving; the energy saving is not affected.")
     flags = scope_flags(result, scope.asset_ids)
     if not flags.empty:
         chosen = set(scope.recommended["asset_id"] + "/" + scope.recommended["option_id"])

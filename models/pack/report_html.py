@@ -312,6 +312,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "plan_rows": plan_rows, "plan_numeric": tuple(range(8)), "plan_note": plan_note,
         "register_headers": ["Category", "Item", "Detail", "Assets", "Response"], "register_rows": register_rows,
         "finance_headers": ["Assumption", "Value", "Unit", "Meaning", "Source"], "finance_rows": finance_rows,
+        "basis_headers": ["Basis", "Value", "Note"],
+        "basis_rows": [row([cell(item), cell(value), cell(note, "small")]) for item, value, note in content.basis_rows(case, result)],
         "mv_text": mv_text,
         "mv_protocol_headers": ["IPMVP", "Logging", "What to measure", "Projects"], "mv_protocol_rows": mv_protocol_rows,
         "mv_headers": ["Project", "IPMVP", "Baseline kWh/yr", "Baseline mean kW", "Baseline PF", "Baseline rpm",

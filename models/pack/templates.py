@@ -147,6 +147,8 @@ REPORT = _MACROS + """<!DOCTYPE html>
 {{ table(register_headers, register_rows) }}
 <h3>Finance assumptions</h3>
 {{ table(finance_headers, finance_rows) }}
+<h3>Case basis: rules, year and tariffs</h3>
+{{ table(basis_headers, basis_rows) }}
 
 <h2 id="mv">9. Measurement and verification plan</h2>
 <p>{{ mv_text }}</p>

@@ -281,10 +281,13 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
     _header(ws, row, ["Case setting", "Value"])
     settings = [("name", s.name), ("description", getattr(s, "description", "") or ""), ("currency", s.currency),
                 ("power unit shown", s.power_unit), ("time zone", s.time_zone), ("region (efficiency rules)", s.region),
-                ("purchase date (rules read on)", getattr(s, "purchase_date", "") or ""),
+                ("purchase date (rules read on)", (getattr(s, "purchase_date", "") or "")
+                 + ("" if getattr(s, "purchase_date_declared", True) else " (the day of the run: the case gives none)")),
                 ("invented demo data", "yes" if s.invented else "no"),
                 ("analysis year", int(op.index[len(op.index) // 2].year)), ("interval [h]", float(op.interval_h)),
                 ("assets in the case", len(case.assets)), ("options in the catalogue", len(case.options))]
+    settings += [(item[:1].lower() + item[1:], f"{value} ({note})") for item, value, note in content.basis_rows(case, result)
+                 if item.startswith("Tariff of site")]
     for k, (label, value) in enumerate(settings):
         put_text(ws, row + 1 + k, 1, label)
         put(ws, row + 1 + k, 2, value)
