@@ -38,7 +38,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from models import finance, reactive_plan, risk
+from models import end_of_life, finance, reactive_plan, risk
 from models import io as case_io
 from models import scenario
 from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
@@ -1922,8 +1922,7 @@ def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
 
 
 #: Each repair-or-replace decision of :func:`models.end_of_life.fleet_rules` in plain words.
-FLEET_RULE_DECISIONS = {"replace": "replace", "rewind": "rewind",
-                        "replace_above_hours": "replace from the hours shown, rewind below"}
+FLEET_RULE_DECISIONS = end_of_life.DECISION_NAMES
 
 
 def fleet_rules_scope_text(result, rated_p_kw, currency: str, power_unit: str = "kW") -> str:

@@ -29,6 +29,10 @@ STRATEGIES: tuple[str, ...] = ("replace_now", "replace_at_failure", "rewind_at_f
 STRATEGY_NAMES: dict[str, str] = {"replace_now": "replace now", "replace_at_failure": "replace at failure",
                                   "rewind_at_failure": "rewind at failure"}
 
+#: Each repair-or-replace decision of :func:`fleet_rules` in plain words, as every front names it.
+DECISION_NAMES: dict[str, str] = {"replace": "replace", "rewind": "rewind",
+                                  "replace_above_hours": "replace from the hours shown, rewind below"}
+
 #: The column of :func:`strategy_costs` holding each strategy's expected present cost.
 COST_COLUMNS: dict[str, str] = {strategy: f"cost_{strategy}" for strategy in STRATEGIES}
 

@@ -472,15 +472,16 @@ class TestRiskSheetIsThePlans:
         case, result = small
         heading = "Monte Carlo per project of the plan in scope (NPV at its own start, P10/P50/P90)"
         # engine: the exact plan's projects and plan years (plan.csv)
-        plan = result.plan.assign(project=result.plan["asset_id"] + "/" + result.plan["option_id"])
+        plan = result.plan
         whole = risk_tables(workbook_of(case, result))[heading]
-        assert [(r["Project"], r["Plan year"]) for r in whole] == list(zip(plan["project"], plan["start_yr"].astype(int)))
+        # the asset, and the option as the catalogue names it (not the internal "asset/option" key)
+        assert [(r["Asset"], r["Plan year"]) for r in whole] == list(zip(plan["asset_id"], plan["start_yr"].astype(int)))
         # each named beside its key as the catalogue names the option (the results' label column)
         label = result.results.drop_duplicates("option_id").set_index("option_id")["label"]
         assert [r["Option"] for r in whole] == list(label.reindex(result.plan["option_id"]))
         only_c1 = risk_tables(workbook_of(case, result, ["C1"], plan=False))
         c1 = plan[plan["asset_id"] == "C1"]
-        assert [(r["Project"], r["Plan year"]) for r in only_c1[heading]] == [(c1["project"].iloc[0], 1)]
+        assert [(r["Asset"], r["Plan year"]) for r in only_c1[heading]] == [("C1", 1)] and len(c1) == 1
         # a pack of part of the plan says the plan's figures are the whole fleet plan's
         assert any("the whole fleet plan, not only this pack's scope" in h for h in only_c1)
 
@@ -496,7 +497,7 @@ class TestRiskSheetIsThePlans:
         assert rows and all("Plan year" not in r for r in rows)
         # engine: risk.csv's rows of the plan's projects (the recommended projects of a plan pack)
         keys = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
-        assert [r["Project"] for r in rows] == [p for p in result.risk["project_id"] if p in keys]
+        assert [r["Asset"] for r in rows] == [p.rsplit("/", 1)[0] for p in result.risk["project_id"] if p in keys]
         assert not any(h.startswith("Monte Carlo of the plan's NPV") for h in tables)
         words = " ".join(str(c.value) for row in book["Risk"].iter_rows() for c in row if c.value is not None)
         assert "plan choices that trade NPV for budget are not simulated" in words
@@ -644,3 +645,27 @@ def test_the_plan_sheet_npv_of_a_project_in_the_pack_follows_the_discount_rate(d
     start = int(plan_ws.cell(row, 1).value)
     assert_allclose(as_float(values[("PLAN", f"H{row}")]), expected / 1.12 ** start, rtol=1e-9)
     assert abs(expected - float(result.plan.set_index(["asset_id", "option_id"]).loc[("KGQ-AC01", "capacitor"), "npv"])) > 1.0
+
+
+def test_the_workbook_speaks_the_readers_words(small, tmp_path):
+    # User report (a finance reviewer): units read "currency" where the case's currency was meant, a fraction's
+    # unit read "frac/yr" beside a cell shown as 8.0%, the Results sheet mixed TRUE/FALSE with the Plan sheet's
+    # yes/no, and the fleet policy's decision read "replace_above_hours".
+    from models.end_of_life import DECISION_NAMES
+
+    case, result = small
+    write_pack(case, result, tmp_path / "pack")
+    book = load_workbook(tmp_path / "pack" / WORKBOOK_NAME)
+    ws = book["Assumptions"]
+    units = {ws.cell(r, 1).value: ws.cell(r, 3).value for r in range(1, ws.max_row + 1)}
+    assert units["downtime_cost_per_h"] == "EUR/h" and units["capacitor_cost_per_kvar"] == "EUR/kVAr"
+    assert units["discount_rate_frac"].startswith("%/yr")
+    assert not any(isinstance(u, str) and "currency" in u for u in units.values())
+    results = book["Results"]
+    header = [c.value for c in results[3]]
+    for name in ("Recommended", "In the exact plan"):
+        col = header.index(name) + 1
+        values = {results.cell(r, col).value for r in range(4, results.max_row + 1)}
+        assert values == {"yes", "no"}, (name, values)
+    decisions = {c.value for row in book["End of life"].iter_rows() for c in row if isinstance(c.value, str)}
+    assert not decisions & set(DECISION_NAMES) - set(DECISION_NAMES.values())

@@ -8,6 +8,7 @@ and its case; nothing here reads or writes files.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, fields
 from typing import Any
 
@@ -248,7 +249,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                 reason = (f"highest NPV of the options the rest of the plan leaves it (not in the fleet plan; its "
                           f"highest-NPV option priced alone, {top['label']}, is a reactive project whose value the "
                           "rest of the plan at this site already takes)")
-                short = "highest NPV the plan leaves it; outside the plan"
+                short = "best option left once the plan's other projects take its reactive value; outside the plan"
             elif float(pick["npv"]) > 0 and not budgeted:
                 reason = ("highest NPV of its options (not in the fleet plan: beside the rest of the plan at this "
                           "site it adds less than priced alone)")
@@ -539,14 +540,16 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
     return rows
 
 
-def finance_rows(assumptions: finance.FinanceAssumptions) -> list[dict[str, Any]]:
+def finance_rows(assumptions: finance.FinanceAssumptions, currency: str | None = None) -> list[dict[str, Any]]:
     """Return one row per finance assumption: key, label (plain words), value, unit, meaning, and whether it
-    is the program default."""
+    is the program default. With ``currency`` the units name it ("EUR/h") instead of "currency"."""
     default = finance.FinanceAssumptions()
     out = []
     for f in fields(assumptions):
         value = getattr(assumptions, f.name)
         unit, meaning = FINANCE_FIELDS.get(f.name, ("", ""))
+        if currency:
+            unit = re.sub(r"\bcurrency\b", str(currency), unit)
         out.append({"key": f.name, "label": FINANCE_LABELS.get(f.name, f.name), "value": value, "unit": unit,
                     "meaning": meaning, "program_default": value == getattr(default, f.name)})
     return out

@@ -14,6 +14,7 @@ import pandas as pd
 from markupsafe import Markup
 
 from models.case import power_label, rating_in_unit
+from models.io import column_title
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.options import technology_name
 from models.pack import content, templates
@@ -79,7 +80,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Criticality", "criticality", _value(x["criticality"])),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
         ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %")
-         + (f" (defaulted: {', '.join(dict.fromkeys(defaulted['column']))})" if len(defaulted) else "")),
+         + (f" (defaulted: {'; '.join(dict.fromkeys(column_title('assets', c) for c in defaulted['column']))})"
+            if len(defaulted) else "")),
     ]
     nameplate = [(label, value, column in filled) for label, column, value in plate]
     rec_key = f"{asset_id}/{rec['option_id']}"

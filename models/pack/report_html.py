@@ -231,7 +231,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     register_rows = [row([cell(r.category), cell(r.item), cell(r.detail), cell(r.assets, "small"), cell(r.response, "small")])
                      for r in register.itertuples(index=False)]
     finance_rows = []
-    for item in content.finance_rows(a):
+    for item in content.finance_rows(a, cur):
         value = item["value"]
         if isinstance(value, float) and math.isinf(value):
             value = "no cap"

@@ -300,7 +300,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
     live = {"discount_rate_frac": "yes: NPVs, discounted paybacks, the plan's NPVs of the projects in this pack and "
                                   "the checks recalculate"}
     recorded = "no: a record of the run; change it in the case and run again"
-    for item in content.finance_rows(result.assumptions):
+    for item in content.finance_rows(result.assumptions, f.currency):
         key, value = item["key"], item["value"]
         if key == "budget_per_yr":
             budgets = list(value)
@@ -328,7 +328,10 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
         else:
             fmt = f.frac if key.endswith("_frac") else None
             put(ws, row, 2, value, fmt)
-        put_text(ws, row, 3, item["unit"])
+        unit = item["unit"]
+        if key.endswith("_frac") and unit.startswith("frac"):  # the cell shows the fraction as a percentage
+            unit = "%" + unit[len("frac"):] + " (the cell holds the fraction: 8 % is 0.08)"
+        put_text(ws, row, 3, unit)
         put_text(ws, row, 4, item["meaning"])
         put_text(ws, row, 5, "yes" if item["program_default"] else "no")
         put_text(ws, row, 6, live.get(key, recorded))
@@ -395,8 +398,9 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_uni
     rec = set(scope.recommended["asset_id"] + "/" + scope.recommended["option_id"])
     plan = set(result.plan["asset_id"] + "/" + result.plan["option_id"])
     key = res["asset_id"] + "/" + res["option_id"]
-    res["recommended"] = key.isin(list(rec)).to_numpy()
-    res["in_plan"] = key.isin(list(plan)).to_numpy()
+    # yes/no as the Plan sheet writes them (not a spreadsheet's TRUE/FALSE)
+    res["recommended"] = np.where(key.isin(list(rec)).to_numpy(), "yes", "no")
+    res["in_plan"] = np.where(key.isin(list(plan)).to_numpy(), "yes", "no")
     res["irr_text"] = [_engine_irr(v, s) for v, s in zip(res["irr_frac"], res["irr_status"])]
     res["simple_payback_text"] = [_engine_payback(v) for v in res["simple_payback_yr"]]
     res["discounted_payback_text"] = [_engine_payback(v) for v in res["discounted_payback_yr"]]
@@ -896,6 +900,10 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
     unit = power_label(case_power_unit)
     if unit == "hp" and not rules.empty:  # the sentences already give the case's unit
         rules = rules.assign(**{c: rating_in_unit(rules[c], unit).round(2) for c in ("min_rated_p_kw", "max_rated_p_kw")})
+    if "decision" in rules:  # in words, as the dashboard names them
+        from models.end_of_life import DECISION_NAMES
+
+        rules = rules.assign(decision=rules["decision"].map(lambda d: DECISION_NAMES.get(d, d)))
     headers = {"min_rated_p_kw": f"From rating [{unit}]", "max_rated_p_kw": f"To rating [{unit}]",
                "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
     _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
@@ -936,9 +944,9 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
     labels = option_labels(result.results)
     projects = unc.projects
     if not projects.empty and "project_id" in projects:  # the option as the catalogue names it, beside its key
-        option_ids = projects["project_id"].astype(str).str.rsplit("/", n=1).str[-1]
-        projects = projects.assign(option_label=[labels.get(o, o) for o in option_ids])
-    cols = ([("project_id", "Project", None), ("option_label", "Option", None)]
+        parts = projects["project_id"].astype(str).str.rsplit("/", n=1)
+        projects = projects.assign(asset=parts.str[0], option_label=[labels.get(o, o) for o in parts.str[-1]])
+    cols = ([("asset", "Asset", None), ("option_label", "Option", None)]
             + ([("start_yr", "Plan year", "0")] if unc.of_plan else [])
             + [("npv_p10", "NPV P10", f.money), ("npv_p50", "NPV P50", f.money),
                ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
