@@ -965,9 +965,9 @@ def assumption_notes(edits: dict | None) -> str:
 #: Assumptions the top bar names only where they differ from the case's own file (the discount rate, the
 #: horizon and the budget are always named): (field, words, how the value is written).
 EDITED_ASSUMPTIONS = (
-    ("energy_price_factor", "electricity price", lambda v: f"{v * 100:g} %"),
-    ("escalation_energy_frac", "escalation", lambda v: f"{v * 100:g} %/yr"),
-    ("capital_cost_factor", "capital cost", lambda v: f"{v * 100:g} %"),
+    ("energy_price_factor", "electricity price", lambda v: f"{v * 100:,.6g} %"),
+    ("escalation_energy_frac", "escalation", lambda v: f"{v * 100:,.6g} %/yr"),
+    ("capital_cost_factor", "capital cost", lambda v: f"{v * 100:,.6g} %"),
 )
 
 

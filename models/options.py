@@ -39,7 +39,7 @@ TECHNOLOGY_NAMES = {"existing": "today's motor", "rewind": "rewind", "induction"
                     "add_drive": "drive added to today's motor", "wound_field": "wound-field synchronous motor",
                     "capacitor": "terminal capacitor"}
 SPEED_REMEDY_NAMES = {"none": "none (the load follows the speed)", "trim_or_pulley": "impeller trim or pulley",
-                      "speed_control": "held by a drive"}
+                      "speed_control": "set by a drive (held, or lowered to the duty)"}
 
 
 def technology_name(technology: str) -> str:

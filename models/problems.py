@@ -66,7 +66,8 @@ class Problem:
             "file": self.file,
             "row": self.row,
             "column": self.column,
-            "value": None if self.value is None else str(self.value),
+            # whole numbers without '.0' as the messages show them (a table cell needs no quotes around text)
+            "value": None if self.value is None else (self.value if isinstance(self.value, str) else shown_value(self.value)),
             "rule": self.rule,
             "hint": self.hint,
         }

@@ -154,7 +154,7 @@ class TestAsset:
                                "load_pct": [50.0] * 3, "efficiency_frac": [0.9, 0.93, 0.95], "power_factor": [0.8, 0.82, 0.9]})
         options = pd.DataFrame({"option_id": ["keep", "ie4", "pm_drive"], "label": ["Keep", "IE4", "PM drive"],
                                 "today": [True, False, False], "speed_remedy_id": ["none", "none", "speed_control"],
-                                "speed_remedy": ["none", "none", "held by a drive"],
+                                "speed_remedy": ["none", "none", "set by a drive (held, or lowered to the duty)"],
                                 "mean_speed_rpm": [1490.0, 1494.0, 1300.0], "energy_kwh_per_yr": [1e5, 9.8e4, 7e4]})
         line = {t.name: t.line.color for t in figures.cumulative_cash(cash, "EUR", colours).data if t.mode == "lines"}
         eff = {t.name: t.line.color for t in figures.performance(curves, None, "shaft load", colours).data
@@ -177,7 +177,7 @@ class TestAsset:
         got = {y: x for t in energy for x, y in zip(t.x, t.y)}
         assert got == pytest.approx({"Keep": 100.0, "LSPM": 104.0, "LSPM + trim": 95.0, "Drive": 70.0})  # MWh/yr
         assert {t.name for t in fig.data if t.showlegend is not False} == {
-            "none (the load follows the speed)", "impeller trim or pulley", "held by a drive"}
+            "none (the load follows the speed)", "impeller trim or pulley", "set by a drive (held, or lowered to the duty)"}
         # each remedy its own hatching (the catalogue's code picks it, not the name shown); the colour is the option's
         assert list(fig.data[0].marker.pattern.shape) == ["", "", "/", "x"]
         assert len(set(fig.data[0].marker.color)) == 4
@@ -196,7 +196,7 @@ class TestAsset:
         # (-290 rpm); hand calculation: 1496 - 1490 = 6, 6 / 1490 = 0.403 %, 1200 - 1490 = -290
         options = pd.DataFrame({"option_id": ["keep", "ie4", "drive"], "label": ["Keep", "IE4", "Drive"],
                                 "today": [True, False, False], "speed_remedy_id": ["none", "none", "speed_control"],
-                                "speed_remedy": ["none", "none", "held by a drive"],
+                                "speed_remedy": ["none", "none", "set by a drive (held, or lowered to the duty)"],
                                 "mean_speed_rpm": [1490.0, 1496.0, 1200.0], "energy_kwh_per_yr": [1e5, 1.01e5, 6e4]})
         fig = figures.speed_energy(options)
         speed = fig.data[0]

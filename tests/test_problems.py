@@ -55,3 +55,15 @@ def test_causes_come_before_the_rows_that_follow_from_them_across_files():
         ("assets.csv", 3),
         ("assets.csv", None),     # the warning last
     ]
+
+
+def test_a_problems_table_row_writes_whole_numbers_as_the_messages_do():
+    # User report: the dashboard's validation grid showed "3.0" and "2975.0" where the command line printed 3 and
+    # 2975; a table row now writes a value as the message does, text without quotes
+    from models.problems import error
+
+    assert error("assets.csv", 2, "poles", 3.0, "rule").as_dict()["value"] == "3"
+    assert error("assets.csv", 2, "rated_speed_rpm", 2975.0, "rule").as_dict()["value"] == "2975"
+    assert error("assets.csv", 2, "mean_load_pct", 0.5, "rule").as_dict()["value"] == "0.5"
+    assert error("assets.csv", 2, "application", "pmup", "rule").as_dict()["value"] == "pmup"
+    assert error("assets.csv", 2, "application", None, "rule").as_dict()["value"] is None

@@ -55,7 +55,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                   html.Div([html.H3("Speed change and its remedies"),
                             html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
                                    "more power. An impeller trim or a pulley change takes the extra flow and power "
-                                   "back (the motor itself still turns faster, as shown); a drive holds the speed.",
+                                   "back (the motor itself still turns faster, as shown). A drive sets the speed: it holds today's "
+                                   "speed, or, where it replaces a throttle or a damper, lowers it to what the duty needs.",
                                    className="page-intro"),
                             ui.graph(SPEED)], className="panel half")], className="row"),
         html.H3("At end of life"),

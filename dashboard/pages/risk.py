@@ -8,6 +8,7 @@ from dash import Input, Output, callback, dcc, html
 
 from dashboard import components as ui
 from dashboard import figures, services
+from models import scenario
 
 
 READY = "risk-ready"
@@ -46,14 +47,28 @@ def layout(**_query):
 dash.register_page(__name__, path="/risk", name="Uncertainty", title="Uncertainty · drivecase", order=4, layout=layout)
 
 
+#: What the percentiles are, as the NPV columns' tooltips say it.
+PERCENTILES = ("P10, P50 and P90: the values that 10 %, 50 % and 90 % of the Monte Carlo draws fall below "
+               "(P50 is the median).")
+
+
 def columns(currency: str, scope: str = "best") -> list[dict]:
     start = [ui.number_col("start_yr", "Start [plan year]")] if scope == "plan" else []
+    # a plan project's NPV at its own start (its plan year), not at the plan's start (the summary and the chart)
+    basis = ("at the project's own start (its plan year); the summary line and the histogram discount the plan "
+             "to its start" if scope == "plan" else "of each asset's best option, starting at once")
+    tip = {"headerTooltip": f"NPV {basis}. {PERCENTILES}"}
+    target = scenario.PAYBACK_TARGET_YR
     return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=200), *start,
-            ui.number_col("npv_p10", f"NPV P10 [{currency}]"), ui.number_col("npv_p50", f"NPV P50 [{currency}]"),
-            ui.number_col("npv_p90", f"NPV P90 [{currency}]"),
+            ui.number_col("npv_p10", f"NPV P10 [{currency}]", **tip), ui.number_col("npv_p50", f"NPV P50 [{currency}]", **tip),
+            ui.number_col("npv_p90", f"NPV P90 [{currency}]", **tip),
             percent_col("prob_npv_positive_frac", "P(NPV > 0) [%]"),
-            ui.number_col("payback_p50_yr", "Simple payback P50 [yr]", 1),
-            percent_col("prob_payback_within_target_frac", "P(payback <= 3 yr) [%]")]
+            ui.number_col("payback_p50_yr", "Simple payback P50 [yr]", 1,
+                          headerTooltip="The median over the draws of the simple payback (undiscounted, from the first "
+                                        "outlay, without the residual value); the other pages show the discounted one."),
+            percent_col("prob_payback_within_target_frac", f"P(payback <= {target:g} yr) [%]") | {
+                "headerTooltip": f"Share of the draws whose simple payback is {target:g} years or less: a target "
+                                 "industrial energy projects are often asked to meet (common practice)."}]
 
 
 def percent_col(field: str, header: str) -> dict:

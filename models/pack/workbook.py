@@ -911,6 +911,8 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
 
 
 def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
+    from models.scenario import PAYBACK_TARGET_YR
+
     _title(ws, "Sensitivity, Monte Carlo and the risks and assumptions register")
     # the exact plan's uncertainty (what the pack asks money for); a result without it: each asset's best option's
     unc = content.uncertainty(result, scope)
@@ -952,7 +954,7 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
                ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
                ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
                ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
-               ("prob_payback_within_target_frac", "P(payback within 3 yr)", f.frac)])
+               ("prob_payback_within_target_frac", f"P(payback within {PAYBACK_TARGET_YR:g} yr)", f.frac)])
     row = _table(ws, row + 2, projects, cols)
     put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD
     register = content.risk_register(case, result, scope)
