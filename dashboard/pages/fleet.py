@@ -42,7 +42,10 @@ def layout(**_query):
                     custom_spinner=html.Div(COMPUTING, className="computing", role="status"),
                     target_components={f"{HEADLINE}-headline-capital": "children"}),
         html.P("The cards are the budgeted plan for the whole fleet (plan year 0 is the first year of spending); "
-               "the filters below narrow the table only.", className="page-intro"),
+               "the filters below narrow the table only. In the table, the columns up to CO2 are each asset's best "
+               "option before the budget and add up to more than the cards; the plan's own columns (what it buys, "
+               "its year and capital) add up to the plan capital card, and the Capital plan page lists the plan's "
+               "NPVs.", className="page-intro"),
         html.Div([
             # the filters are made with their choices by a callback (filters), so the tab's choice is put back
             html.Div([html.Label("Site", htmlFor=SITE_FILTER),
@@ -82,7 +85,10 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
                ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application"),
                ui.rating_col("rating", f"Rating [{services.power_label(power_unit)}]"),
                ui.long_text_col("best_option", "Best option (before the budget)"),
-               ui.number_col("capital", f"Capital [{currency}]"), ui.number_col("npv", f"NPV [{currency}]"),
+               ui.number_col("capital", f"Capital [{currency}]"),
+               ui.number_col("npv", f"NPV [{currency}]", headerTooltip="NPV of the asset's best option priced alone, "
+                             "before the budget: the plan may buy another option or none (the Plan NPV card sums "
+                             "the plan's projects at the plan's start)"),
                # blank where nothing is spent; said in words where the option does not pay back within the horizon
                ui.payback_col(),
                ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
