@@ -903,7 +903,7 @@ def edit_assumptions(entry_key: str, base, current: dict | None, refused: tuple[
         problem = (f"{FORM_FIELDS[name]}: enter a number." if value is None or value == ""
                    else _form_field_problem(name, value)) if name in FORM_FIELDS else ""
         if problem:
-            problems.append(problem)
+            problems.append(problem + _in_force_text(name, base, edits))
             continue
         edits[name] = value
         applied += 1
@@ -915,6 +915,20 @@ def edit_assumptions(entry_key: str, base, current: dict | None, refused: tuple[
     if problems and applied:
         text += " The other values are applied."
     return (edits if applied else None), text
+
+
+def _in_force_text(name: str, base, edits: dict) -> str:
+    """What a refused form field leaves in force, in the form's units (" The rate in force stays 8 %.")."""
+    try:
+        form = assumption_form(assumptions_with_edits(base, {k: v for k, v in edits.items() if k != "case"}))
+    except (TypeError, ValueError):
+        return ""
+    value = form.get(name)
+    if value is None:
+        return ""
+    unit = {"discount_rate_pct": " %/yr", "escalation_energy_pct": " %/yr", "horizon_yr": " yr",
+            "energy_price_level_pct": " %", "capital_cost_level_pct": " %"}.get(name, "")
+    return f" It stays at {float(value):,.6g}{unit}."
 
 
 #: The assumptions form's fields and their labels as the page shows them.

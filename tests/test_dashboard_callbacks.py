@@ -171,9 +171,10 @@ def test_a_blank_assumption_field_is_refused_by_name(engine):
             form = DEMO_FORM[:k] + (blank,) + DEMO_FORM[k + 1:]
             stored, message, look = inputs.edit(*form, *DEMO_BUDGET, None, None)
             assert stored is no_update and look == "form-message refused"
-            assert message == f"Not applied: {name}: enter a number. The other values are applied."
+            assert message.startswith(f"Not applied: {name}: enter a number. It stays at ")
+            assert message.endswith(". The other values are applied.")
             # and the save says why it writes nothing, instead of "Nothing to save"
-            assert inputs.save(1, *form, *DEMO_BUDGET, None, None)[2] == f"Not saved: {name}: enter a number."
+            assert inputs.save(1, *form, *DEMO_BUDGET, None, None)[2].startswith(f"Not saved: {name}: enter a number.")
 
 
 def test_assumption_fields_read_numbers_as_typed(engine):
@@ -185,7 +186,8 @@ def test_assumption_fields_read_numbers_as_typed(engine):
     # text that is no number is refused as a blank is; a horizon takes no percent sign
     stored, message, _ = inputs.edit("six", "1", "15 %", "100", "100", *DEMO_BUDGET, None, None)
     assert stored is no_update
-    assert message == "Not applied: Discount rate: enter a number. Horizon: enter a number. The other values are applied."
+    assert message == ("Not applied: Discount rate: enter a number. It stays at 8 %/yr. Horizon: enter a number. "
+                       "It stays at 15 yr. The other values are applied.")  # (data/demo/finance.toml: 8 %, 15 yr)
     assert services.typed_number("8,5", percent=True) == "8,5"  # a decimal comma is not guessed at: refused
     assert inputs.number_text(1.5) == "1.5" and inputs.number_text(15) == "15" and inputs.number_text(None) is None
 
@@ -195,7 +197,7 @@ def test_a_caution_on_an_applied_value_stays_beside_a_refusal(engine):
     # caution on the negative rate in force
     stored, message, look = inputs.edit("-3", "1", "12.5", "100", "100", *DEMO_BUDGET, None, None)
     assert stored["discount_rate_pct"] == -3.0 and "horizon_yr" not in stored
-    assert message.startswith("Not applied: Horizon: must be a whole number of years from 1 to 100. "
+    assert message.startswith("Not applied: Horizon: must be a whole number of years from 1 to 100. It stays at 15 yr. "
                               "The other values are applied. A negative discount rate values future savings")
     assert "Applied." not in message and look == "form-message refused"
     # alone, the caution keeps its own words and the plain look
@@ -604,3 +606,13 @@ def test_asset_end_of_life_says_why_when_the_engine_has_none(engine, monkeypatch
     # no asset chosen yet: the policy grid is left saying it is computing, not "not available"
     fig, _, rules, columns, _ = asset.end_of_life(None, None, None)
     assert "Choose" in fig.layout.annotations[0].text and rules is no_update and columns is no_update
+
+
+def test_a_refused_field_says_the_value_that_stays_in_force(engine):
+    # User report: with -5 % applied, a refused 150 % left the field at 150 and the message did not say that
+    # -5 % was still the rate in use
+    base = services.view(None, None)
+    key = base.key
+    edits, message = services.edit_assumptions(key, base.assumptions, {"case": key, "discount_rate_pct": -5.0},
+                                               discount_rate_pct="150")
+    assert "Discount rate: must lie between -20 and 100 %/yr" in message and "It stays at -5 %/yr." in message

@@ -274,10 +274,12 @@ def test_a_blank_or_out_of_range_assumption_gets_a_message(tab):
     message = page.locator("#inputs-form-message")
     edit_field(page, "#inputs-discount-rate", "", "Enter", message.filter(has_text="Discount rate: enter a number."))
     edit_field(page, "#inputs-horizon", "", "Tab", message.filter(has_text="Horizon: enter a number."))
-    assert message.inner_text().startswith("Not applied: Discount rate: enter a number. Horizon: enter a number.")
+    # each refusal says what stays in force (data/demo/finance.toml: 8 %, 15 years)
+    assert message.inner_text().startswith("Not applied: Discount rate: enter a number. It stays at 8 %/yr. "
+                                           "Horizon: enter a number. It stays at 15 yr.")
     page.click("#inputs-save")  # refused by the form: nothing is written, and the status says why
     page.locator("#inputs-save-status").filter(
-        has_text="Not saved: Discount rate: enter a number. Horizon: enter a number.").wait_for()
+        has_text="Not saved: Discount rate: enter a number. It stays at 8 %/yr. Horizon: enter a number.").wait_for()
     edit_field(page, "#inputs-discount-rate", "8", "Enter", message.filter(has_text="Not applied: Horizon: enter a number."))
     edit_field(page, "#inputs-horizon", "0", "Enter", message.filter(has_text="whole number of years"))
     assert "enter a number" not in message.inner_text()
