@@ -23,6 +23,9 @@ LOCATION = "app-location"
 #: The tab's last refused upload: {"message": str, "problems": [rows]}, or None once an upload is accepted.
 #: Session storage, so the refusal is shown again when the tab comes back to the Case & assumptions page.
 UPLOAD_STORE = "app-upload"
+#: The asset the tab last showed on the Asset page: the page opens on it when the address names none (the
+#: navigation link). Session storage.
+LAST_ASSET_STORE = "app-last-asset"
 
 #: Cautions shown in the footer of every page.
 CAUTIONS: tuple[str, ...] = (

@@ -32,12 +32,23 @@ def engine(three_motors, monkeypatch):
 
 def test_the_address_follows_the_chosen_asset():
     # from the Fleet page the address is /asset?id=KGQ-F01; picking HRW-D01 must give ?id=HRW-D01
-    assert asset.address("HRW-D01") == "?id=HRW-D01"
-    assert asset.address("A B/1") == "?id=A%20B%2F1"  # quoted as the Fleet page's link quotes it
-    assert asset.address(None) is no_update  # nothing chosen yet: the address stays
+    assert asset.address("HRW-D01") == ("?id=HRW-D01", "HRW-D01")  # (and the tab's last asset)
+    assert asset.address("A B/1") == ("?id=A%20B%2F1", "A B/1")  # quoted as the Fleet page's link quotes it
+    assert asset.address(None) == (no_update, no_update)  # nothing chosen yet: the address stays
     # the address is never an input of the pick (no loop): the dropdown follows the request only
     options, value = asset.choose("KGQ-F01", None)
     assert value == "KGQ-F01"
+
+
+def test_the_asset_link_opens_the_asset_the_tab_showed_last():
+    # User report: the navigation's "Asset" link always opened the first asset, not the one under discussion.
+    # With no asset in the address the page opens on the tab's last asset (if the case has it), else the first.
+    options, value = asset.choose(None, None, "KGQ-F01")
+    ids = [o["value"] for o in options]
+    assert value == "KGQ-F01"
+    assert asset.choose(None, None, "NO-SUCH")[1] == ids[0]
+    assert asset.choose(None, None, None)[1] == ids[0]
+    assert asset.choose("HRW-D01", None, "KGQ-F01")[1] == "HRW-D01"  # an address that names one wins
 
 
 class TestCautions:

@@ -84,23 +84,30 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
 dash.register_page(__name__, path="/asset", name="Asset", title="Asset · drivecase", order=1, layout=layout)
 
 
-@callback(Output(PICK, "options"), Output(PICK, "value"), Input(REQUEST, "data"), Input(ui.SESSION_STORE, "data"))
-def choose(requested, session):
-    """List the case's assets; keep the requested one when it exists, else the first asset."""
+@callback(Output(PICK, "options"), Output(PICK, "value"), Input(REQUEST, "data"), Input(ui.SESSION_STORE, "data"),
+          State(ui.LAST_ASSET_STORE, "data"))
+def choose(requested, session, last=None):
+    """List the case's assets; keep the requested one when it exists, else the one the tab showed last (the
+    navigation link names none), else the first asset."""
     view = services.view(session, None)
     choices = services.asset_choices(view)
     ids = [c["value"] for c in choices]
-    return choices, requested if requested in ids else (ids[0] if ids else None)
+    if requested in ids:
+        return choices, requested
+    return choices, last if (not requested and last in ids) else (ids[0] if ids else None)
 
 
-@callback(Output(ADDRESS, "data"), Input(PICK, "value"))
+@callback(Output(ADDRESS, "data"), Output(ui.LAST_ASSET_STORE, "data"), Input(PICK, "value"))
 def address(asset_id):
-    """The address's query for the asset on screen (``?id=KGQ-F01``): a reload or a bookmark shows that asset.
+    """The address's query for the asset on screen (``?id=KGQ-F01``): a reload or a bookmark shows that asset;
+    and the tab's last asset, which the page opens on when the address names none.
 
     The browser's address is rewritten in place (below), so a pick adds no history entry and the page is not
     rendered again; nothing here feeds back into the dropdown.
     """
-    return f"?id={quote(str(asset_id), safe='')}" if asset_id else dash.no_update
+    if not asset_id:
+        return dash.no_update, dash.no_update
+    return f"?id={quote(str(asset_id), safe='')}", str(asset_id)
 
 
 ui.address_follows(ADDRESS, "/asset")

@@ -65,3 +65,16 @@ def test_the_end_of_life_section_shows_the_strategies_and_the_policy(tab, artifa
     page.locator("#asset-end-of-life").scroll_into_view_if_needed()
     page.screenshot(path=artifacts / "asset_end_of_life.png", full_page=True)
     assert not tab.errors
+
+
+def test_the_navigation_link_comes_back_to_the_asset_shown_last(tab):
+    # opened from the Fleet page on KGQ-F01 (data/demo/assets.csv), then another page, then the "Asset" link
+    # (no asset in its address): the asset under discussion, not the register's first
+    page = tab.goto("/asset?id=KGQ-F01", "#asset-summary:has-text('KGQ-F01')")
+    page.wait_for_load_state("networkidle")
+    page.locator("a.nav-link", has_text="Fleet").click()
+    page.locator("#fleet-table .ag-row").first.wait_for()
+    page.locator("a.nav-link", has_text="Asset").click()
+    page.locator("#asset-summary").filter(has_text="KGQ-F01").wait_for()
+    page.wait_for_function("window.location.search === '?id=KGQ-F01'")
+    assert tab.errors == [], f"console errors: {tab.errors}"
