@@ -615,7 +615,7 @@ def test_end_of_life_advice_shows_the_outage_cost_it_rests_on(demo_run_physics):
     # to a rewound one (models.end_of_life.OUTAGE_CLASSES, common practice)
     assert "for 24 h to a new motor or 72 h to a rewound one" in said
     if str(basis).startswith("default"):
-        assert "The outage cost is a placeholder, not a figure of this case" in said
+        assert "The outage cost is a placeholder that can decide this: give the motor's own." in said
     ws = Workbook().active
     _end_of_life(ws, result, scope, _Formats("EUR"))
     heads = [c.value for c in ws[3]]
@@ -690,7 +690,7 @@ def test_a_record_that_keeps_the_motor_says_replacing_it_now_is_a_separate_reque
     assert both, "the demo has a motor kept with an add-on whose end of life says replace now"
     said = " ".join(str(v) for v in record_context(case, result, scope, both[0]).values())
     assert "A separate decision, for the motor itself" in said
-    assert "replacing it now is not in this request and would need its own capital" in said
+    assert "Replacing it now is not in this request and would need its own capital" in said
     new_capital = result.results.set_index(["asset_id", "option_id"]).loc[(both[0], eol.loc[both[0], "new_option_id"]), "capital"]
     assert content.money(float(new_capital), case.settings.currency) in said
 

@@ -14,7 +14,6 @@ import pandas as pd
 from markupsafe import Markup
 
 from models.case import power_label, rating_in_unit
-from models.io import column_title
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.options import technology_name
 from models.pack import content, templates
@@ -23,6 +22,19 @@ from models.plan import option_labels
 from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of_life_left_out
 
 
+
+
+def _field_words(column: str) -> str:
+    """A register column in short words ("rewind_loss_pct_points" -> "rewind loss"), for a record's one line.
+
+    Examples
+    --------
+    >>> [_field_words(c) for c in ("machine_type", "rewind_loss_pct_points", "rated_efficiency_pct", "operating_h_per_yr")]
+    ['machine type', 'rewind loss', 'rated efficiency', 'operating hours']
+    """
+    words = re.sub(r"_(pct_points|pct|frac|kw|rpm|v|hz)$", "", str(column))
+    words = re.sub(r"_h_per_yr$", "_hours", words)
+    return words.replace("_", " ")
 
 def record_file_name(asset_id: str, taken: set[str] | None = None) -> str:
     """Return a safe file name for an asset's record: letters, digits, '-', '_' and '.', never hidden or a path.
@@ -80,7 +92,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Criticality", "criticality", _value(x["criticality"])),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
         ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %")
-         + (f" (defaulted: {'; '.join(dict.fromkeys(column_title('assets', c) for c in defaulted['column']))})"
+         + (f" (defaulted: {', '.join(dict.fromkeys(_field_words(c) for c in defaulted['column']))})"
             if len(defaulted) else "")),
     ]
     nameplate = [(label, value, column in filled) for label, column, value in plate]
@@ -152,17 +164,14 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                 hours = (f" for {float(eol_row['new_lead_time_h']):.0f} h to a new motor or "
                          f"{float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one")
             outage = f"; a failure's outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h{hours}, {basis}"
-        text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): the cheapest "
-                f"end-of-life strategy is to {STRATEGY_NAMES[best_strategy]} (by "
-                f"{content.money(float(eol_row['advantage_over_next']), cur)} over the next{outage}).")
+        text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
+                f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
         if best_strategy == "replace_now" and rec["technology"] not in REPLACING_TECHNOLOGIES:
             new_capital = res.loc[res["option_id"] == new_id, "capital"]
-            text += (" The recommended option keeps today's motor: replacing it now is not in this request and would "
-                     "need its own capital" + (f" ({content.money(float(new_capital.iloc[0]), cur)} for the new motor)."
-                                               if len(new_capital) else "."))
+            text += (" Replacing it now is not in this request and would need its own capital"
+                     + (f" ({content.money(float(new_capital.iloc[0]), cur)})." if len(new_capital) else "."))
         if placeholder:
-            text += (" The outage cost is a placeholder, not a figure of this case, and can decide this answer: give the "
-                     "motor's downtime cost per hour in the asset register before acting on it.")
+            text += " The outage cost is a placeholder that can decide this: give the motor's own."
         reasons.append(text)
     if float(rec["must_spend_capital"]) > 0 and not is_keep:
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
