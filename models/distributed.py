@@ -152,7 +152,11 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         k, site_id = launched.pop(future)
         try:
             op, part, books = future.result()
-        except (KilledWorker, CancelledError):
+        except (KilledWorker, CancelledError, RuntimeError) as exc:
+            # (a future whose worker died can also fail to give its result with the client's own "bound to a
+            # different event loop" error: its state was reset from another thread; the site is sent again)
+            if isinstance(exc, RuntimeError) and "event loop" not in str(exc):
+                raise
             if attempts[site_id] >= SITE_ATTEMPTS:
                 raise _site_lost(case, site_id, counted(SITE_ATTEMPTS, "time")) from None
             waiting.appendleft((k, site_id))

@@ -263,3 +263,31 @@ def test_a_site_whose_worker_keeps_dying_is_named_with_the_likely_cause(fleet, m
         with pytest.raises(engine.SiteLost, match=r"lost with its worker (1 time|as its data was being sent): "
                                                   r".*run out of memory"):
             run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False)
+
+
+def test_a_result_lost_to_the_clients_event_loop_error_is_fetched_again(fleet, fleet_local, cluster, monkeypatch):
+    """A future whose worker died can fail to give its result with the client's own RuntimeError "... is bound
+    to a different event loop" (seen once in CI under load): the site is sent again, and the result files are
+    still those of the local engine."""
+    failed: list[str] = []
+    original = distributed.Future.result
+
+    def once(self, *args, **kwargs):
+        if not failed:
+            failed.append(str(self.key))
+            raise RuntimeError("<asyncio.locks.Event object at 0x0 [unset]> is bound to a different event loop")
+        return original(self, *args, **kwargs)
+
+    monkeypatch.setattr(distributed.Future, "result", once)
+    remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+    assert failed and failed[0].startswith("drivecase-site-physics")
+    _assert_same_files(fleet_local, remote)
+
+
+def test_another_runtime_error_of_a_site_is_not_swallowed(fleet, cluster, monkeypatch):
+    def broken(self, *args, **kwargs):
+        raise RuntimeError("a site's own failure")
+
+    monkeypatch.setattr(distributed.Future, "result", broken)
+    with pytest.raises(RuntimeError, match="a site's own failure"):
+        run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
