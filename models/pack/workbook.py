@@ -392,6 +392,9 @@ def _engine_irr(value: float, status: str) -> Any:
 
 def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_unit: str = "kW") -> None:
     _title(ws, "Options compared, per asset in scope (one row per asset x option; money per year at base-year prices)")
+    put_text(ws, 2, 1, "Each option priced alone against today's bill. The Plan sheet counts a reactive project of the "
+                       "plan at the share of its bill saving it adds beside the plan's other projects, and at its plan "
+                       "year: its plan NPV can be lower than the NPV here.")
     res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))].copy()
     order = {a: i for i, a in enumerate(scope.asset_ids)}
     res = res.assign(_o=res["asset_id"].map(order)).sort_values("_o", kind="stable").drop(columns="_o")
