@@ -90,13 +90,20 @@ OUTAGE_CLASSES: tuple[tuple[float, float, float], ...] = (
 )
 
 
-def outage_hours(rated_p_kw: Any) -> tuple[np.ndarray, np.ndarray]:
+#: Hours to fit a spare kept on the shelf [h] (common practice, from memory): the outage of either at-failure
+#: strategy when the asset register says a spare is on hand.
+SPARE_SWAP_H = 8.0
+
+
+def outage_hours(rated_p_kw: Any, spare_on_hand: Any = False) -> tuple[np.ndarray, np.ndarray]:
     """Hours stopped after a failure until a new motor runs, and until a rewound one does, by size [h].
 
     Parameters
     ----------
     rated_p_kw : array_like
         Rated power [kW].
+    spare_on_hand : array_like of bool
+        A spare is on the shelf: the outage is the spare's fitting, :data:`SPARE_SWAP_H`, for both.
 
     Returns
     -------
@@ -110,6 +117,8 @@ def outage_hours(rated_p_kw: Any) -> tuple[np.ndarray, np.ndarray]:
     >>> new, rewind = outage_hours([7.5, 37.0, 90.0, 315.0])
     >>> new.tolist(), rewind.tolist()
     ([24.0, 24.0, 72.0, 672.0], [72.0, 72.0, 168.0, 336.0])
+    >>> [h.tolist() for h in outage_hours([315.0, 315.0], [True, False])]
+    [[8.0, 672.0], [8.0, 336.0]]
     """
     p = np.asarray(rated_p_kw, dtype=float)
     tops = np.array([c[0] for c in OUTAGE_CLASSES])
@@ -117,7 +126,8 @@ def outage_hours(rated_p_kw: Any) -> tuple[np.ndarray, np.ndarray]:
     k = np.minimum(k, len(OUTAGE_CLASSES) - 1)
     new = np.array([c[1] for c in OUTAGE_CLASSES])[k]
     rewind = np.array([c[2] for c in OUTAGE_CLASSES])[k]
-    return new, rewind
+    spare = np.broadcast_to(np.asarray(spare_on_hand, dtype=bool), p.shape)
+    return np.where(spare, SPARE_SWAP_H, new), np.where(spare, SPARE_SWAP_H, rewind)
 
 
 #: Share of the failure law's scale a motor keeps per past rewind [frac]: each rewind shortens the expected life

@@ -967,7 +967,9 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
                      "finance assumptions" if from_finance
                      else np.array([f"default for a {c}-criticality motor" for c in criticality], dtype=object))
     downtime = np.where(given, downtime, assumptions.downtime_cost_per_h if from_finance else default_dt)
-    new_lead_h, rewind_lead_h = end_of_life.outage_hours(a["rated_p_kw"].to_numpy(dtype=float))
+    spare = (a["spare_on_hand"].map(lambda v: v is True or v == 1).to_numpy(dtype=bool) if "spare_on_hand" in a
+             else np.zeros(n_a, dtype=bool))
+    new_lead_h, rewind_lead_h = end_of_life.outage_hours(a["rated_p_kw"].to_numpy(dtype=float), spare)
     frame = end_of_life.strategy_costs(
         age, shape, scale, capex_total[rows, new_o], capex_total[rows, r], running_old,
         running_old - sav.total[rows, new_o], running_old - sav.total[rows, r],

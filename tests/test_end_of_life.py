@@ -260,3 +260,27 @@ def test_a_motor_that_never_runs_is_left_out_of_the_end_of_life_comparison(tmp_p
     said = " ".join(str(v) for v in record_context(case, result, content.select_scope(case, result, assets=["F1"],
                                                                                        plan=False), "F1").values())
     assert "Not compared: it does not run in the analysis year" in said
+
+
+def test_a_spare_on_hand_shortens_the_outage_to_its_fitting(tmp_path):
+    # the asset register's spare_on_hand (data/schema/assets.csv): a failure stops the motor only while the spare
+    # is fitted, SPARE_SWAP_H = 8 h (common practice), for both at-failure strategies, whatever the size; a motor
+    # without one keeps its size class's hours (OUTAGE_CLASSES: up to 37 kW, 24 h new and 72 h rewound)
+    import tests.casebuilder as cb
+    from models import scenario
+    from models.case import load_case
+    from tests.test_pack_workbook import FLAT_TARIFF
+
+    header = cb.ASSET_HEADER + ["spare_on_hand"]
+    assets = [list(row) + [flag] for row, flag in zip(cb.ASSETS, ["yes", "", "no"])]
+    folder = cb.write_case(tmp_path / "case", assets=assets, asset_header=header)
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    eol = scenario.run(case, case.finance, with_risk=False).end_of_life.set_index("asset_id")
+    assert (eol.loc["P1", "new_lead_time_h"], eol.loc["P1", "rewind_lead_time_h"]) == (8.0, 8.0)  # 15 kW, a spare
+    assert (eol.loc["F1", "new_lead_time_h"], eol.loc["F1", "rewind_lead_time_h"]) == (24.0, 72.0)  # 7.5 kW, blank
+    assert (eol.loc["C1", "new_lead_time_h"], eol.loc["C1", "rewind_lead_time_h"]) == (72.0, 168.0)  # 75 kW, no
