@@ -1908,7 +1908,8 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     if math.isfinite(outage):
         basis = str(row["downtime_cost_basis"]) if "downtime_cost_basis" in row.index else ""
         hours = (f" ({float(row['new_lead_time_h']):.0f} h to a new motor, {float(row['rewind_lead_time_h']):.0f} h "
-                 "to a rewound one, by its size)" if "new_lead_time_h" in row.index else "")
+                 "to a rewound one: by its size, or a spare's fitting where the register says one is on hand)"
+                 if "new_lead_time_h" in row.index else "")
         second += (" " if second else "") + f"A failure's outage{hours} is priced at {money_text(outage, currency)}/h"
         if basis.startswith("default"):
             second += (f": the {basis}, a placeholder that can decide the answer; give the asset's downtime cost per "

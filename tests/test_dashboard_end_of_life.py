@@ -73,7 +73,7 @@ class TestSummary:
                                    new_lead_time_h=[72.0, 24.0], rewind_lead_time_h=[168.0, 72.0])
         p1 = services.end_of_life_summary(frame, "P1", "EUR", 15).text
         assert "priced at EUR 2,000/h: the default for a high-criticality motor, a placeholder" in p1
-        assert "(72 h to a new motor, 168 h to a rewound one, by its size)" in p1  # the frame's own hours
+        assert "(72 h to a new motor, 168 h to a rewound one: by its size, or a spare's fitting" in p1  # the frame's hours
         f2 = services.end_of_life_summary(frame, "F2", "EUR", 15).text
         assert "priced at EUR 150/h (asset register)." in f2 and "placeholder" not in f2
 
