@@ -788,13 +788,35 @@ def capital_in_budget_years(plan_frame: pd.DataFrame, results: pd.DataFrame, cap
     >>> capital_in_budget_years(plan, res, np.array([[5.0, 0, 0], [2.0, 3.0, 4.0]]), 2)
     (2.0, 7.0)
     """
+    by_year, after = plan_spend_by_year(plan_frame, results, capital_spend_by_year, n_years)
+    return float(by_year.sum()), after
+
+
+def plan_spend_by_year(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_spend_by_year: np.ndarray,
+                       n_years: int) -> tuple[np.ndarray, float]:
+    """A plan's gross capital in each of its first ``n_years`` plan years, and after them [currency].
+
+    A project started in plan year s spends its k-th project year's capital in plan year s + k, as
+    :func:`plan_exact` counts it against the budgets. Parameters as :func:`capital_in_budget_years`.
+
+    Examples
+    --------
+    >>> res = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "x"]})
+    >>> plan = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "x"], "start_yr": [0, 1]})
+    >>> by_year, after = plan_spend_by_year(plan, res, np.array([[5.0, 1.0, 0], [2.0, 3.0, 4.0]]), 2)
+    >>> by_year.tolist(), after
+    ([5.0, 3.0], 7.0)
+    """
     if plan_frame.empty:
-        return 0.0, 0.0
+        return np.zeros(int(n_years)), 0.0
     rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
+    if (rows < 0).any():
+        raise ValueError("the plan holds a project the results do not")
     spend = np.asarray(capital_spend_by_year, dtype=float)[rows]
     year = plan_frame["start_yr"].to_numpy(dtype=int)[:, None] + np.arange(spend.shape[1])[None, :]
-    inside = float(spend[year < n_years].sum())
-    return inside, float(spend.sum()) - inside
+    inside = (year >= 0) & (year < n_years)
+    by_year = np.bincount(year[inside], weights=spend[inside], minlength=int(n_years))[:int(n_years)]
+    return by_year, float(spend.sum() - by_year.sum())
 
 
 def option_labels(frame: pd.DataFrame) -> dict[str, str]:

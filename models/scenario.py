@@ -680,7 +680,7 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
         plan_frames = _plan_with_interactions(case, op, results, previous.capital_spend_by_year, project_ids,
                                               assumptions, float(assumptions.discount_rate_frac), settings,
                                               previous.bill_saving_pv)
-        plan_frames = _kept_if_better(previous, plan_frames, assumptions, settings, project_ids)
+        plan_frames = _kept_if_better(previous, plan_frames, assumptions, settings)
         step("bills")
         base = previous.bills[previous.bills["scenario"] == "baseline"].drop(columns="scenario")
         bills = _bills(case, op, plan_frames[0], base, float(assumptions.energy_price_factor))
@@ -698,30 +698,23 @@ KEPT_PLAN_TEXT = ("the plan before this edit, still within every budget, is bett
                   "solve's time, so it is kept; prove the plan for the best under the new budgets")
 
 
-def _fits_budgets(plan_frame: pd.DataFrame, capital_spend: np.ndarray, project_ids: np.ndarray,
-                  budget_per_yr) -> bool:
-    """Whether a plan (its projects and start years) spends within every plan year's budget.
-
-    A project started in plan year s spends its k-th year's capital (``capital_spend[i, k]``) in plan year
-    s + k, as :func:`models.plan.plan_exact` counts it; a start outside the plan years does not fit."""
+def _fits_budgets(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_spend: np.ndarray, budget_per_yr) -> bool:
+    """Whether a plan (its projects and start years) spends within every plan year's budget
+    (:func:`models.plan.plan_spend_by_year`); a start outside the plan years does not fit."""
     budgets = np.asarray(list(budget_per_yr), dtype=float)
-    if not budgets.size:
+    if not budgets.size or not len(plan_frame):
         return True
-    if not len(plan_frame):
-        return True
-    rows = pd.Index(project_ids).get_indexer(project_labels(plan_frame))
     starts = plan_frame["start_yr"].to_numpy(dtype=int)
-    if (rows < 0).any() or (starts >= budgets.size).any() or (starts < 0).any():
+    if (starts >= budgets.size).any() or (starts < 0).any():
         return False
-    spend = np.zeros(budgets.size)
-    for i, start in zip(rows, starts):
-        width = min(budgets.size - start, capital_spend.shape[1])
-        spend[start:start + width] += capital_spend[i, :width]
+    try:
+        spend, _ = plan.plan_spend_by_year(plan_frame, results, capital_spend, budgets.size)
+    except ValueError:  # a project the results no longer hold
+        return False
     return bool((spend <= budgets * (1 + 1e-12) + 1e-6).all())
 
 
-def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, settings: PlanSettings,
-                    project_ids: np.ndarray) -> tuple:
+def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, settings: PlanSettings) -> tuple:
     """The plan before a budget edit instead of a bounded solve's plan, when it still fits every budget and
     its NPV is higher: a live solve stopped by its time limit can end below a plan that a larger budget
     still allows, and a budget raised must never show a worse plan. A solve to the precise setting is kept
@@ -732,7 +725,7 @@ def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, s
     now = float(plan_frames[2].get("npv_exact", np.nan))
     if not (np.isfinite(before) and np.isfinite(now) and before > now + 1e-6 * max(1.0, abs(now))):
         return plan_frames
-    if not _fits_budgets(previous.plan, previous.capital_spend_by_year, project_ids, assumptions.budget_per_yr):
+    if not _fits_budgets(previous.plan, previous.results, previous.capital_spend_by_year, assumptions.budget_per_yr):
         return plan_frames
     comparison = plan_frames[2].copy()  # (as models.plan.compare_plans gives it, with the kept plan as the exact one)
     comparison["npv_exact"] = before
@@ -1000,16 +993,22 @@ END_OF_LIFE_LEFT_OUT = {
 }
 
 
+def _asset_row(result, asset_id: str) -> tuple[OperatingResult | None, int | None]:
+    """A result's machine results and an asset's row in them (None where either is missing)."""
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    if op is None:
+        return None, None
+    where = np.flatnonzero(np.asarray(op.asset_ids, dtype=object).astype(str) == str(asset_id))
+    return op, (int(where[0]) if len(where) else None)
+
+
 def options_left_out(result, asset_id: str) -> list[tuple[str, int]]:
     """Why the catalogue's options (today's motor aside) do not apply to an asset: each reason with the
     number of options it leaves out, commonest first; empty when some option applies or the asset is unknown."""
-    op = getattr(getattr(result, "physics", None), "operation", None)
-    if op is None:
+    op, i = _asset_row(result, asset_id)
+    if i is None or op.applies[i, 1:].any():
         return []
-    where = np.flatnonzero(np.asarray(op.asset_ids, dtype=object).astype(str) == str(asset_id))
-    if not len(where) or op.applies[int(where[0]), 1:].any():
-        return []
-    reasons = pd.Series(np.asarray(op.reason, dtype=object)[int(where[0]), 1:]).replace("", "not applicable")
+    reasons = pd.Series(np.asarray(op.reason, dtype=object)[i, 1:]).replace("", "not applicable")
     counts = reasons.value_counts(sort=True)
     return [(str(r), int(n)) for r, n in counts.items()]
 
@@ -1020,13 +1019,9 @@ def end_of_life_left_out(result, asset_id: str) -> str:
     eol = getattr(result, "end_of_life", None)
     if eol is not None and len(eol) and (eol["asset_id"].astype(str) == str(asset_id)).any():
         return ""
-    op = getattr(getattr(result, "physics", None), "operation", None)
-    if op is None:
+    op, i = _asset_row(result, asset_id)
+    if i is None:
         return ""
-    where = np.flatnonzero(np.asarray(op.asset_ids, dtype=object).astype(str) == str(asset_id))
-    if not len(where):
-        return ""
-    i = int(where[0])
     tech = np.asarray(op.technologies, dtype=object)
     if not ((tech == "rewind").any() and (tech == "induction").any()):
         return "no_catalogue"

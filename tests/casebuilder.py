@@ -53,6 +53,28 @@ def write_case(folder: Path, assets=None, sites=None, capacitors=None, duty=None
     return folder
 
 
+FLAT_TARIFF = '''[tariff]
+name = "flat test tariff (invented)"
+currency = "EUR"
+time_zone = "Europe/Berlin"
+
+[[periods]]
+code = "all"
+
+[energy]
+price_per_kwh = { all = 0.10 }
+'''
+
+
+def with_flat_tariff(folder: Path) -> Path:
+    """Give a case written by :func:`write_case` (one site) the flat 0.10/kWh tariff, so it can be priced."""
+    (folder / "tariffs").mkdir(exist_ok=True)
+    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    return folder
+
+
 def write_workbook(path: Path) -> Path:
     """Write the same valid small case as one workbook (numbers as numbers, as a spreadsheet holds them)."""
     from openpyxl import Workbook

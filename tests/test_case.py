@@ -827,7 +827,6 @@ def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
 
 def test_budget_years_past_the_horizon_are_warned(tmp_path):
     # models.plan.plan_beyond_horizon_text: 3 budget years over a 2-year horizon start projects after the study
-    import tests.casebuilder as cb
     from models.case import load_case
 
     folder = cb.write_case(tmp_path / "case")

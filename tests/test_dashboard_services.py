@@ -804,19 +804,14 @@ def test_a_motor_no_option_fits_is_explained_on_its_page_and_in_the_fleet_table(
     # column now say no option applies, and why.
     import types
 
-    import tests.casebuilder as cb
+    import casebuilder as cb
     from models import scenario
     from models.case import load_case
-    from tests.test_pack_workbook import FLAT_TARIFF
 
     assets = [list(row) for row in cb.ASSETS]
     assets[1][4] = "0.37"  # F1: 0.37 kW
     assets[1][9] = "70"  # (a rated efficiency of its size)
-    folder = cb.write_case(tmp_path / "case", assets=assets)
-    (folder / "tariffs").mkdir()
-    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
-    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
-    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", assets=assets))
     case, problems = load_case(folder)
     assert case is not None, problems
     result = scenario.run(case, case.finance, with_risk=False)

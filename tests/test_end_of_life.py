@@ -225,21 +225,14 @@ def test_a_motor_that_never_runs_is_left_out_of_the_end_of_life_comparison(tmp_p
     # User report: a spare motor (operating_h_per_yr = 0) was advised "replace now" because its failure was
     # priced as an outage. A motor that does not run in the analysis year stops nothing when it fails: it is
     # left out, and the asset page and the decision record say why.
-    import tests.casebuilder as cb
+    import casebuilder as cb
     from dashboard import services
     from models import scenario
     from models.case import load_case
 
     assets = [list(row) for row in cb.ASSETS]
     assets[1][16] = "0"  # F1, the 7.5 kW exhaust fan: a spare, 0 h/yr
-    folder = cb.write_case(tmp_path / "case", assets=assets)
-    # a flat tariff for the one site (as tests/test_pack_workbook.py builds it)
-    from tests.test_pack_workbook import FLAT_TARIFF
-
-    (folder / "tariffs").mkdir()
-    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
-    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
-    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", assets=assets))
     case, problems = load_case(folder)
     assert case is not None, problems
     result = scenario.run(case, case.finance, with_risk=False)
@@ -266,18 +259,13 @@ def test_a_spare_on_hand_shortens_the_outage_to_its_fitting(tmp_path):
     # the asset register's spare_on_hand (data/schema/assets.csv): a failure stops the motor only while the spare
     # is fitted, SPARE_SWAP_H = 8 h (common practice), for both at-failure strategies, whatever the size; a motor
     # without one keeps its size class's hours (OUTAGE_CLASSES: up to 37 kW, 24 h new and 72 h rewound)
-    import tests.casebuilder as cb
+    import casebuilder as cb
     from models import scenario
     from models.case import load_case
-    from tests.test_pack_workbook import FLAT_TARIFF
 
     header = cb.ASSET_HEADER + ["spare_on_hand"]
     assets = [list(row) + [flag] for row, flag in zip(cb.ASSETS, ["yes", "", "no"])]
-    folder = cb.write_case(tmp_path / "case", assets=assets, asset_header=header)
-    (folder / "tariffs").mkdir()
-    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
-    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
-    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
     case, problems = load_case(folder)
     assert case is not None, problems
     eol = scenario.run(case, case.finance, with_risk=False).end_of_life.set_index("asset_id")

@@ -29,17 +29,6 @@ from models.pack.workbook import put, put_formula, write_project_block
 
 formulas = pytest.importorskip("formulas")
 
-FLAT_TARIFF = '''[tariff]
-name = "flat test tariff (invented)"
-currency = "EUR"
-time_zone = "Europe/Berlin"
-
-[[periods]]
-code = "all"
-
-[energy]
-price_per_kwh = { all = 0.10 }
-'''
 # two plan years: the drive (about 3,700) fills year 0's 4,000; the new IE3 motor of C1 (about 10,900, the only
 # other project worth its capital on a flat energy tariff) waits for year 1's 11,000
 FINANCE = ('discount_rate_frac = 0.08\nhorizon_yr = 15\nrate_basis = "real"\nbudget_per_yr = [4000, 11000]\n'
@@ -64,11 +53,7 @@ def build_case(folder: Path, descriptions: dict[str, str] | None = None, ids: di
             row[0] = ids[row[0]]
     # a region without minimum-efficiency rules: C1's new IE3 motor stays on offer (in the EU a 75 kW 2-pole
     # motor must be IE4)
-    cb.write_case(folder, assets=assets, case_toml=cb.CASE_TOML + 'region = "OTHER"\n')
-    (folder / "tariffs").mkdir(exist_ok=True)
-    (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
-    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
-    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",flat.toml\n", encoding="utf-8")
+    cb.with_flat_tariff(cb.write_case(folder, assets=assets, case_toml=cb.CASE_TOML + 'region = "OTHER"\n'))
     (folder / "finance.toml").write_text(FINANCE, encoding="utf-8")
     case, problems = load_case(folder)
     assert case is not None, problems
@@ -98,6 +83,17 @@ def plan_pack(small, tmp_path_factory):
     out = tmp_path_factory.mktemp("pack_plan")
     write_pack(case, result, out)
     return out / WORKBOOK_NAME
+
+
+def with_discount_rate(path: Path, rate_frac: float, out: Path):
+    """Save a copy of a pack's workbook at ``out`` with the Assumptions sheet's discount rate set to ``rate_frac``;
+    return the edited workbook (openpyxl, formulas as written)."""
+    book = load_workbook(path)
+    ws = book["Assumptions"]
+    row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "discount_rate_frac")
+    ws.cell(row, 2).value = rate_frac
+    book.save(out)
+    return book
 
 
 def evaluate(path: Path) -> dict[tuple[str, str], object]:
@@ -262,12 +258,8 @@ class TestLiveFormulas:
     def test_discount_rate_cell_drives_every_npv(self, plan_pack, small, tmp_path):
         """Change the rate on 'Assumptions': the sheet's NPV follows numpy_financial.npv of the engine's flows."""
         _, result = small
-        book = load_workbook(plan_pack)
-        ws = book["Assumptions"]
-        row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "discount_rate_frac")
-        ws.cell(row, 2).value = 0.12
         edited = tmp_path / "edited.xlsx"
-        book.save(edited)
+        with_discount_rate(plan_pack, 0.12, edited)
         values = evaluate(edited)
         blocks = block_rows(edited)
         cf = result.cashflows
@@ -628,11 +620,8 @@ def test_the_plan_sheet_npv_of_a_project_in_the_pack_follows_the_discount_rate(d
     assert str(plan_ws.cell(row, 6).value).startswith("='Cash flows'!")
     outside = next(r for r in range(row + 1, plan_ws.max_row + 1) if plan_ws.cell(r, 9).value == "no")
     assert isinstance(plan_ws.cell(outside, 6).value, float)  # no block in this pack: the engine's figure
-    ws = book["Assumptions"]
-    rate_row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "discount_rate_frac")
-    ws.cell(rate_row, 2).value = 0.12
     edited = tmp_path / "edited.xlsx"
-    book.save(edited)
+    with_discount_rate(path, 0.12, edited)
     values = evaluate(edited)
     cf = result.cashflows
     mine = cf[(cf["asset_id"] == "KGQ-AC01") & (cf["option_id"] == "capacitor")]

@@ -142,8 +142,7 @@ def test_a_plan_that_no_longer_fits_a_lowered_budget_is_not_kept(demo_run_physic
     budgets = list(case.finance.budget_per_yr)
     budgets[0] = budgets[0] / 10
     cut = replace(case.finance, budget_per_yr=tuple(budgets))
-    assert not scenario._fits_budgets(base.plan, base.capital_spend_by_year, scenario.project_labels(base.results).to_numpy(),
-                                      cut.budget_per_yr)
+    assert not scenario._fits_budgets(base.plan, base.results, base.capital_spend_by_year, cut.budget_per_yr)
     live = scenario.economics(case, phys, cut, with_risk=False, previous=base,
                               plan_settings=replace(scenario.LIVE_PLAN, start=()))
     assert live.plan_status["status"] != "kept"
@@ -161,8 +160,10 @@ def test_fits_budgets_counts_each_years_capital_from_the_projects_start():
 
     plan_frame = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "y"], "start_yr": [0, 1]})
     spend = np.array([[100.0, 50.0], [30.0, 0.0]])
-    ids = np.array(["A/x", "B/y"], dtype=object)
-    assert scenario._fits_budgets(plan_frame, spend, ids, (100.0, 80.0))
-    assert not scenario._fits_budgets(plan_frame, spend, ids, (100.0, 79.0))
-    assert not scenario._fits_budgets(plan_frame, spend, ids, (200.0,))
-    assert scenario._fits_budgets(plan_frame, spend, ids, ())
+    results = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "y"]})
+    assert scenario._fits_budgets(plan_frame, results, spend, (100.0, 80.0))
+    assert not scenario._fits_budgets(plan_frame, results, spend, (100.0, 79.0))
+    assert not scenario._fits_budgets(plan_frame, results, spend, (200.0,))
+    assert scenario._fits_budgets(plan_frame, results, spend, ())
+    other = pd.DataFrame({"asset_id": ["A", "C"], "option_id": ["x", "y"]})  # B/y no longer among the results
+    assert not scenario._fits_budgets(plan_frame, other, spend, (100.0, 80.0))

@@ -21,17 +21,7 @@ from models.finance import FinanceAssumptions
 from models import scenario
 
 REPO = Path(__file__).resolve().parents[1]
-FLAT_TARIFF = '''[tariff]
-name = "flat test tariff (invented)"
-currency = "EUR"
-time_zone = "Europe/Berlin"
-
-[[periods]]
-code = "all"
-
-[energy]
-price_per_kwh = { all = 0.10 }
-'''
+FLAT_TARIFF = cb.FLAT_TARIFF  # (0.10 per kWh, all hours)
 OPTIONS = ("option_id,technology,efficiency_class,speed_remedy,equipment_cost_coef,equipment_cost_exp,life_yr,"
            "maintenance_cost_per_kw_yr\n"
            "keep,existing,,none,0,1,20,0\n"
