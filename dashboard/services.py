@@ -1812,6 +1812,20 @@ class EndOfLifeSummary:
     message: str = ""
 
 
+#: How each source of an outage's hours (``lead_time_basis`` of the end-of-life frame) is said on screen.
+_HOURS_BASIS_WORDS = {"asset register": "as the asset register gives them", "size class": "by its size",
+                      "spare on hand": "a spare's fitting, the register saying one is on hand"}
+
+
+def _hours_basis_words(basis: str) -> str:
+    """The end-of-life frame's ``lead_time_basis`` in words ("size class" -> "by its size"; a mixed basis such
+    as "asset register (new), size class (rewound)" word by word)."""
+    out = basis
+    for key, words in _HOURS_BASIS_WORDS.items():
+        out = out.replace(key, words)
+    return out
+
+
 def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str, horizon_yr: int,
                         labels: dict | None = None, age_known: bool = True,
                         rewind_count: float = 0.0, power_unit: str = "kW") -> EndOfLifeSummary:
@@ -1907,9 +1921,9 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     outage = float(row["downtime_cost_per_h"]) if "downtime_cost_per_h" in row.index else float("nan")
     if math.isfinite(outage):
         basis = str(row["downtime_cost_basis"]) if "downtime_cost_basis" in row.index else ""
+        hours_from = str(row["lead_time_basis"]) if "lead_time_basis" in row.index else "size class"
         hours = (f" ({float(row['new_lead_time_h']):.0f} h to a new motor, {float(row['rewind_lead_time_h']):.0f} h "
-                 "to a rewound one: by its size, or a spare's fitting where the register says one is on hand)"
-                 if "new_lead_time_h" in row.index else "")
+                 f"to a rewound one: {_hours_basis_words(hours_from)})" if "new_lead_time_h" in row.index else "")
         second += (" " if second else "") + f"A failure's outage{hours} is priced at {money_text(outage, currency)}/h"
         if basis.startswith("default"):
             second += (f": the {basis}, a placeholder that can decide the answer; give the asset's downtime cost per "

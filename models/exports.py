@@ -187,7 +187,7 @@ EMPTY_COLUMNS = {
     "end_of_life.csv": ["asset_id", "age_yr", "new_option_id", "failure_probability_in_horizon_frac",
                         "mean_residual_life_yr", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure",
                         "best_strategy", "advantage_over_next", "downtime_cost_per_h", "downtime_cost_basis",
-                        "new_lead_time_h", "rewind_lead_time_h"],
+                        "new_lead_time_h", "rewind_lead_time_h", "lead_time_basis"],
     "abatement.csv": ["option_id", "asset_id", "abatement_cost_per_t", "co2_avoided_t_per_yr", "bar_start_t_per_yr",
                       "cumulative_co2_avoided_t_per_yr", "npv"],
     "fleet_rules.csv": ["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr", "decision", "rule"],

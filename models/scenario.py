@@ -963,6 +963,15 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     spare = (a["spare_on_hand"].map(lambda v: v is True or v == 1).to_numpy(dtype=bool) if "spare_on_hand" in a
              else np.zeros(n_a, dtype=bool))
     new_lead_h, rewind_lead_h = end_of_life.outage_hours(a["rated_p_kw"].to_numpy(dtype=float), spare)
+    # the register's own hours, where given, over the size class's (or the spare's fitting)
+    bases = []
+    for column, hours in (("new_lead_time_h", new_lead_h), ("rewind_lead_time_h", rewind_lead_h)):
+        own = a[column].to_numpy(dtype=float) if column in a else np.full(n_a, np.nan)
+        given_h = ~np.isnan(own)
+        hours[given_h] = own[given_h]
+        bases.append(np.where(given_h, "asset register", np.where(spare, "spare on hand", "size class")))
+    hours_basis = np.where(bases[0] == bases[1], bases[0],
+                           np.char.add(np.char.add(bases[0], " (new), "), np.char.add(bases[1], " (rewound)")))
     frame = end_of_life.strategy_costs(
         age, shape, scale, capex_total[rows, new_o], capex_total[rows, r], running_old,
         running_old - sav.total[rows, new_o], running_old - sav.total[rows, r],
@@ -977,6 +986,7 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
     frame["downtime_cost_basis"] = pd.array(np.asarray(basis, dtype=object).astype(str), dtype="str")
     frame["new_lead_time_h"] = new_lead_h
     frame["rewind_lead_time_h"] = rewind_lead_h
+    frame["lead_time_basis"] = pd.array(hours_basis.astype(str), dtype="str")
     frame.index.name = "asset_id"
     # a motor for which no new induction motor is offered has no replacement to compare (none is named); one
     # that never runs in the analysis year (a spare, a stand-by) stops nothing when it fails

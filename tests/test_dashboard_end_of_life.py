@@ -73,9 +73,21 @@ class TestSummary:
                                    new_lead_time_h=[72.0, 24.0], rewind_lead_time_h=[168.0, 72.0])
         p1 = services.end_of_life_summary(frame, "P1", "EUR", 15).text
         assert "priced at EUR 2,000/h: the default for a high-criticality motor, a placeholder" in p1
-        assert "(72 h to a new motor, 168 h to a rewound one: by its size, or a spare's fitting" in p1  # the frame's hours
+        assert "(72 h to a new motor, 168 h to a rewound one: by its size)" in p1  # the frame's hours, no basis: size
         f2 = services.end_of_life_summary(frame, "F2", "EUR", 15).text
         assert "priced at EUR 150/h (asset register)." in f2 and "placeholder" not in f2
+
+    def test_the_outage_hours_say_where_they_come_from(self):
+        # the frame's lead_time_basis (docs/outputs.md): the register's own hours, the size class's, a spare's
+        # fitting, or a mix of two when the register gives one of the two hours
+        frame = eol_frame().assign(downtime_cost_per_h=[150.0, 150.0], downtime_cost_basis="asset register",
+                                   new_lead_time_h=[500.0, 8.0], rewind_lead_time_h=[168.0, 8.0],
+                                   lead_time_basis=["asset register (new), size class (rewound)", "spare on hand"])
+        p1 = services.end_of_life_summary(frame, "P1", "EUR", 15).text
+        assert ("(500 h to a new motor, 168 h to a rewound one: as the asset register gives them (new), "
+                "by its size (rewound))") in p1
+        f2 = services.end_of_life_summary(frame, "F2", "EUR", 15).text
+        assert "(8 h to a new motor, 8 h to a rewound one: a spare's fitting, the register saying one is on hand)" in f2
 
     def test_an_assumed_age_is_said(self):
         s = services.end_of_life_summary(eol_frame(), "P1", "EUR", 15, age_known=False)

@@ -272,3 +272,41 @@ def test_a_spare_on_hand_shortens_the_outage_to_its_fitting(tmp_path):
     assert (eol.loc["P1", "new_lead_time_h"], eol.loc["P1", "rewind_lead_time_h"]) == (8.0, 8.0)  # 15 kW, a spare
     assert (eol.loc["F1", "new_lead_time_h"], eol.loc["F1", "rewind_lead_time_h"]) == (24.0, 72.0)  # 7.5 kW, blank
     assert (eol.loc["C1", "new_lead_time_h"], eol.loc["C1", "rewind_lead_time_h"]) == (72.0, 168.0)  # 75 kW, no
+
+
+def test_the_register_s_outage_hours_override_the_size_class_and_the_spare(tmp_path):
+    # the asset register's new_lead_time_h and rewind_lead_time_h (data/schema/assets.csv): where given they are the
+    # outage's hours, over the size class (OUTAGE_CLASSES, common practice from memory) and a spare's fitting
+    # (SPARE_SWAP_H = 8 h); a blank keeps those. Each hour says where it comes from (lead_time_basis).
+    import casebuilder as cb
+    from models import scenario
+    from models.case import load_case
+
+    header = cb.ASSET_HEADER + ["spare_on_hand", "new_lead_time_h", "rewind_lead_time_h"]
+    extra = {"P1": ["yes", "", "30"], "F1": ["", "500", ""], "C1": ["no", "", ""]}
+    assets = [list(row) + extra[row[0]] for row in cb.ASSETS]
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    eol = scenario.run(case, case.finance, with_risk=False).end_of_life.set_index("asset_id")
+    # P1, 15 kW with a spare: the spare's 8 h for a new motor, the register's 30 h for the rewind
+    assert (eol.loc["P1", "new_lead_time_h"], eol.loc["P1", "rewind_lead_time_h"]) == (8.0, 30.0)
+    assert eol.loc["P1", "lead_time_basis"] == "spare on hand (new), asset register (rewound)"
+    # F1, 7.5 kW: the register's 500 h to a new motor, the class's 72 h to a rewound one
+    assert (eol.loc["F1", "new_lead_time_h"], eol.loc["F1", "rewind_lead_time_h"]) == (500.0, 72.0)
+    assert eol.loc["F1", "lead_time_basis"] == "asset register (new), size class (rewound)"
+    # C1, 75 kW, nothing given: the class's 72 h and 168 h
+    assert (eol.loc["C1", "new_lead_time_h"], eol.loc["C1", "rewind_lead_time_h"]) == (72.0, 168.0)
+    assert eol.loc["C1", "lead_time_basis"] == "size class"
+
+
+def test_outage_hours_outside_a_year_are_refused(tmp_path):
+    # data/schema/assets.csv: new_lead_time_h between 0 and 8,760 h (a year); the problem names the column and value
+    import casebuilder as cb
+    from models.case import load_case
+
+    header = cb.ASSET_HEADER + ["new_lead_time_h"]
+    assets = [list(row) + [value] for row, value in zip(cb.ASSETS, ["-5", "", "9000"])]
+    case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
+    said = " ".join(str(p) for p in problems)
+    assert "new_lead_time_h" in said and ("-5" in said or "9000" in said)

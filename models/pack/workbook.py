@@ -892,9 +892,11 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         if "downtime_cost_per_h" in frame:  # what an outage is priced at, and where that figure comes from
             cols += [("downtime_cost_per_h", f"Outage cost [{f.currency}/h]", f.money),
                      ("downtime_cost_basis", "Outage cost from", None)]
-        if "new_lead_time_h" in frame:  # the outage's hours, by the motor's size
+        if "new_lead_time_h" in frame:  # the outage's hours: the register's, the size class's or a spare's fitting
             cols += [("new_lead_time_h", "Outage to a new motor [h]", "0"),
                      ("rewind_lead_time_h", "Outage to a rewound motor [h]", "0")]
+            if "lead_time_basis" in frame:
+                cols += [("lead_time_basis", "Outage hours from", None)]
         row = _table(ws, row, frame, cols)
         put_text(ws, row, 1, failure_law_caution(power_unit=case_power_unit))
         row += 2
