@@ -230,15 +230,18 @@ WRAPPED_NUMBER = {"wrapText": True, "autoHeight": True,
 #: The discounted payback as every grid writes it: one decimal; "not within the horizon" where the row spends
 #: capital and is not paid back within the horizon (no finite payback); blank where nothing is spent.
 #: A row with a positive NPV and no payback: its NPV rests on the residual value at the horizon's end, which
-#: the paybacks leave out (docs/finance.md), and the cell says so.
+#: the paybacks leave out (docs/finance.md), and the cell says so. A payback whose cumulative flow falls below
+#: zero again by the horizon's end (a later outlay) says that too (``payback_lost_again``).
 PAYBACK_TEXT = {"function": "(params.value == null || !isFinite(params.value)) ? "
                             "((params.data && params.data.capital > 0) ? ((params.data.npv > 0) ? "
                             "'not within the horizon (its NPV counts the residual value)' : 'not within the horizon') "
-                            ": '') : d3.format(',.1f')(params.value)"}
+                            ": '') : d3.format(',.1f')(params.value) + ((params.data && params.data.payback_lost_again) ? "
+                            "' (then lost again by the horizon\\'s end)' : '')"}
 #: What the payback column counts, as its header's tooltip says it.
 PAYBACK_TOOLTIP = ("From the first outlay to the year the discounted cumulative flow is back to zero, without the "
                    "residual value at the horizon's end (a book value, not cash). NPV and IRR count that value, so a "
-                   "project can show a positive NPV and no payback within the horizon.")
+                   "project can show a positive NPV and no payback within the horizon. A later outlay can take the "
+                   "cumulative flow below zero again: the cell then says the payback is lost again.")
 
 
 def payback_col(field: str = "discounted_payback_yr", header: str = "Disc. payback [yr]", **extra) -> dict:

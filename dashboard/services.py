@@ -1076,6 +1076,8 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "npv": best["npv"].to_numpy(dtype=float),
         "discounted_payback_yr": np.where(best["payback_within_horizon"].to_numpy(dtype=bool),
                                           best["discounted_payback_yr"].to_numpy(dtype=float), np.nan),
+        "payback_lost_again": (best["discounted_payback_lost_again"].to_numpy(dtype=bool)
+                               if "discounted_payback_lost_again" in best else np.zeros(len(best), dtype=bool)),
         "saving_per_yr": (best["bill_saving_per_yr"] + best["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "co2_avoided_t_per_yr": best["co2_avoided_t_per_yr"].to_numpy(dtype=float),
         "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
@@ -1130,6 +1132,8 @@ def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
         "irr_pct": res["irr_frac"].to_numpy(dtype=float) * 100.0,
         "discounted_payback_yr": np.where(res["payback_within_horizon"].to_numpy(dtype=bool),
                                           res["discounted_payback_yr"].to_numpy(dtype=float), np.nan),
+        "payback_lost_again": (res["discounted_payback_lost_again"].to_numpy(dtype=bool)
+                               if "discounted_payback_lost_again" in res else np.zeros(len(res), dtype=bool)),
         "energy_kwh_per_yr": res["energy_kwh_per_yr"].to_numpy(dtype=float),
         "mean_speed_rpm": res["mean_speed_rpm"].to_numpy(dtype=float),
         "life_cycle_cost": res["life_cycle_cost"].to_numpy(dtype=float),

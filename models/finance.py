@@ -801,10 +801,15 @@ class PaybackResult:
         cumulative flow is never below zero and some money comes in.
     within_horizon : bool, numpy.ndarray or pandas.Series
         True where the payback falls within the horizon.
+    lost_again : bool, numpy.ndarray or pandas.Series
+        True where the payback falls within the horizon but the cumulative flow ends the horizon below zero
+        again (a later outlay, such as a repeat purchase, takes back more than came in): the payback stated
+        is then the first crossing only.
     """
 
     payback_yr: Any
     within_horizon: Any
+    lost_again: Any = False
 
 
 def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: bool = False) -> PaybackResult:
@@ -818,9 +823,17 @@ def _payback(c: np.ndarray, wrap: Callable[[np.ndarray, str], Any], overwrite: b
     years = np.empty(rows.shape[0])
     within = np.empty(rows.shape[0], dtype=bool)
     _payback_rows(rows, years, within)
+    # the cumulative flow at the horizon's end is the row's sum; below the kernel's tolerance it is lost again
+    # (no temporary of the flows' size: Monte Carlo arrays can be large)
+    if rows.shape[1]:
+        scale = np.maximum(rows.max(axis=1), -rows.min(axis=1))
+        lost = within & (rows.sum(axis=1) < -1e-12 * scale)
+    else:
+        lost = np.zeros(rows.shape[0], dtype=bool)
     shape = c.shape[:-1] if c.ndim else ()
     return PaybackResult(payback_yr=wrap(years.reshape(shape), "payback_yr"),
-                         within_horizon=wrap(within.reshape(shape), "within_horizon"))
+                         within_horizon=wrap(within.reshape(shape), "within_horizon"),
+                         lost_again=wrap(lost.reshape(shape), "lost_again"))
 
 
 @numba.njit(nogil=True, cache=True)
@@ -887,7 +900,7 @@ def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:
     S_{t-1} < 0 <= S_t, the year's flow is taken to accrue evenly through year t, so the payback is
     (t - 1) + (-S_{t-1}) / CF_t - t0. Flows are otherwise booked at year end (see docs/conventions.md).
     A later outflow (a repeat purchase) that turns the cumulative flow negative again does not undo the
-    first crossing. A cumulative flow never below zero pays back at once (0) when some money comes in;
+    first crossing; where the cumulative flow still ends the horizon below zero, ``lost_again`` says so. A cumulative flow never below zero pays back at once (0) when some money comes in;
     with no flow at all there is nothing to pay back (inf, not within the horizon). A small tolerance
     (1e-12 of the largest flow) absorbs rounding at exact break-even.
 
@@ -902,6 +915,9 @@ def simple_payback(cash_flows: Any, overwrite: bool = False) -> PaybackResult:
     2.5
     >>> simple_payback([-1000, 100, 100]).payback_yr
     inf
+    >>> r = simple_payback([-1000, 600, 600, -500])
+    >>> round(float(r.payback_yr), 6), bool(r.lost_again)
+    (1.666667, True)
     """
     c, wrap = _flows(cash_flows)
     return _payback(c, wrap, overwrite=overwrite and c is cash_flows and c.flags.writeable)

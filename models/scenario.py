@@ -571,6 +571,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "simple_payback_yr": np.asarray(simple.payback_yr, dtype=float),
         "discounted_payback_yr": np.asarray(disc.payback_yr, dtype=float),
         "payback_within_horizon": np.asarray(disc.within_horizon, dtype=bool),
+        "simple_payback_lost_again": np.asarray(simple.lost_again, dtype=bool),
+        "discounted_payback_lost_again": np.asarray(disc.lost_again, dtype=bool),
         "life_cycle_cost": lcc_total, "equivalent_annual_cost": eac,
         "sir": sir, "airr_frac": airr,
         "profitability_index": np.where(capital_pv > 0, npv_v / np.where(capital_pv > 0, capital_pv, 1.0), np.nan),
@@ -586,7 +588,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     results.loc[is_keep, "irr_status"] = "none"
     # keeping today's motor invests nothing: no payback to state (blank), and none within the horizon
     results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
-    results.loc[is_keep, "payback_within_horizon"] = False
+    results.loc[is_keep, ["payback_within_horizon", "simple_payback_lost_again", "discounted_payback_lost_again"]] = False
     results["best_for_asset"] = _best_flags(results)
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)

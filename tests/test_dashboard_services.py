@@ -547,6 +547,9 @@ class TestPageData:
         r = v.result()
         options = services.asset_options(v, r, "HRW-V01")
         assert {"lspm", "lspm_trim"} <= set(options["option_id"])  # the PM pair with and without trim
+        # the options grid's payback cell says "then lost again" from the engine's discounted flag (PAYBACK_TEXT)
+        own = r.results[r.results["asset_id"] == "HRW-V01"].set_index("option_id")["discounted_payback_lost_again"]
+        assert options.set_index("option_id")["payback_lost_again"].to_dict() == own.reindex(options["option_id"]).to_dict()
         trim = options.set_index("option_id").loc["lspm_trim", "speed_remedy"]
         assert trim == "impeller trim or pulley"  # the remedy in words, not its code name
         assert "line-start PM motor" in set(options["technology"])

@@ -308,6 +308,17 @@ class TestPayback:
         # Hand calculation, finance-metrics.md section 1: 1 + 40/60.
         assert_allclose(fin.simple_payback([-100, 60, 60, -100, 60]).payback_yr, 1 + 40 / 60, rtol=1e-14)
 
+    def test_a_payback_lost_again_is_said(self):
+        # Hand calculation, finance-metrics.md section 1: the cumulative flow ends at -20 (lost again) for
+        # [-100, 60, 60, -100, 60] and at +10 (held) for [-100, 60, 60, -10]; the first crossing is the same.
+        lost = fin.simple_payback([-100, 60, 60, -100, 60])
+        held = fin.simple_payback([-100, 60, 60, -10])
+        assert lost.lost_again is True and held.lost_again is False
+        assert_allclose(held.payback_yr, 1 + 40 / 60, rtol=1e-14)
+        # never paid back: nothing to lose again; row-wise on a 2D array
+        both = fin.simple_payback(np.array([[-100, 10, 10, 0, 0], [-100, 60, 60, -100, 60]], dtype=float))
+        assert both.lost_again.tolist() == [False, True]
+
     def test_not_within_horizon_sentinel(self):
         # Documented sentinel: inf plus within_horizon False, never NaN.
         result = fin.simple_payback([-100, 10, 10])

@@ -697,3 +697,21 @@ def test_an_option_saves_nothing_over_a_base_case_that_has_bought_it_at_failure(
         failure = int(np.rint(r["existing_remaining_life_yr"].iloc[i]))
         assert np.all(savings[i, failure + 1:] == 0.0), r[["asset_id", "option_id"]].iloc[i].tolist()
         assert np.any(savings[i, 1:failure + 1] != 0.0)
+
+
+def test_a_payback_lost_again_is_flagged_from_the_project_s_own_flows(demo_run_physics):
+    # finance-metrics.md section 1: a payback is lost again where the cumulative flow, without the residual value
+    # (the paybacks leave it out), ends the horizon below zero. Checked against the result's own cash-flow table
+    # (an independent route: the flows' sum, not the payback kernel); the demo has at least one such project
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    cash = result.cashflows[result.cashflows["component"].astype(str) != "residual"]
+    ends = cash.groupby(["asset_id", "option_id"])["amount"].sum()
+    res = result.results.set_index(["asset_id", "option_id"])
+    finite = np.isfinite(res["simple_payback_yr"].to_numpy(dtype=float))
+    end = ends.reindex(res.index, fill_value=0.0).to_numpy(dtype=float)
+    expected = finite & (end < -1e-6)
+    assert expected.any()
+    assert res["simple_payback_lost_again"].to_numpy(dtype=bool).tolist() == expected.tolist()
+    # never flagged without a finite payback
+    assert not (res["discounted_payback_lost_again"] & ~np.isfinite(res["discounted_payback_yr"])).any()

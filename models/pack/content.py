@@ -831,20 +831,24 @@ def money(value: float, currency: str) -> str:
     return money_text(value, currency)
 
 
-def years_text(value: float, horizon_yr: int, within: bool = False) -> str:
+def years_text(value: float, horizon_yr: int, within: bool = False, lost_again: bool = False) -> str:
     """Format a payback [yr]; ``inf`` reads as not within the horizon. With ``within`` the text follows
-    "pays back": "in 2.5 yr" or "not within 15 yr".
+    "pays back": "in 2.5 yr" or "not within 15 yr". With ``lost_again`` (the cumulative flow ends the horizon
+    below zero again, :class:`models.finance.PaybackResult`) a finite payback says so.
 
     Examples
     --------
     >>> years_text(2.5, 15), years_text(float("inf"), 15), years_text(2.5, 15, within=True)
     ('2.5 yr', 'not within 15 yr', 'in 2.5 yr')
+    >>> years_text(2.5, 15, lost_again=True)
+    '2.5 yr, then lost again'
     """
     if value is None or np.isnan(value):
         return "-"
     if not np.isfinite(value):
         return f"not within {horizon_yr} yr"
-    return f"in {value:.1f} yr" if within else f"{value:.1f} yr"
+    text = f"in {value:.1f} yr" if within else f"{value:.1f} yr"
+    return text + (", then lost again" if lost_again else "")
 
 
 def rate_text(value: float, status: str = "unique") -> str:

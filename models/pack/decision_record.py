@@ -104,7 +104,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             cell(r.label), cell(technology_name(r.technology)),
             num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr), num(r.npv),
             cell("-" if is_keep else content.rate_text(r.irr_frac, r.irr_status), "num"),
-            cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon), "num"),
+            cell("-" if is_keep else content.years_text(r.simple_payback_yr, horizon,
+                                                        lost_again=bool(getattr(r, "simple_payback_lost_again", False))),
+                 "num"),
             num(r.co2_avoided_t_per_yr, "{:,.1f}")], pick=f"{r.asset_id}/{r.option_id}" == rec_key))
 
     labels = option_labels(result.results)
@@ -132,7 +134,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         own_npv, plan_npv = float(rec["npv"]), float(rec["plan_npv"])
         reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
                        f"{content.money(float(rec['capital']), cur)}, saving {content.money(float(rec['bill_saving_per_yr'] + rec['saving_maintenance_per_yr']), cur)}/yr, "
-                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon)}, each priced alone against "
+                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon, lost_again=bool(rec.get('simple_payback_lost_again', False)))}, each priced alone against "
                        "today's bill.")
         if abs(plan_npv - own_npv) > 0.5:
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "

@@ -60,8 +60,8 @@ def chart(fig, name: str) -> Markup:
                                       "modeBarButtonsToRemove": ["sendChartToCloud", "sendDataToCloud"]}, default_width="100%"))
 
 
-def _payback_cell(value: float, horizon: int) -> dict[str, str]:
-    text = content.years_text(value, horizon)
+def _payback_cell(value: float, horizon: int, lost_again: bool = False) -> dict[str, str]:
+    text = content.years_text(value, horizon, lost_again=bool(lost_again))
     return cell(text, "num" if math.isfinite(value) else "num na")
 
 
@@ -70,7 +70,8 @@ def _option_rows(frame: pd.DataFrame, cur: str, horizon: int, recommended: set[s
     for r in frame.itertuples(index=False):
         rows.append(row([cell(r.option_id), cell(r.label), num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr),
                          num(r.npv), cell(content.rate_text(r.irr_frac, r.irr_status), "num"),
-                         _payback_cell(r.simple_payback_yr, horizon), num(r.co2_avoided_t_per_yr, "{:,.1f}"),
+                         _payback_cell(r.simple_payback_yr, horizon, getattr(r, "simple_payback_lost_again", False)),
+                         num(r.co2_avoided_t_per_yr, "{:,.1f}"),
                          cell(r.flags or "", "small")],
                         pick=f"{r.asset_id}/{r.option_id}" in recommended))
     return rows
@@ -153,7 +154,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
             cell(int(r.plan_start_yr) if r.in_plan else "-", "num"),
             num(0.0 if is_keep else r.capital), num(0.0 if is_keep else r.bill_saving_per_yr + r.saving_maintenance_per_yr),
             num(0.0 if is_keep else npv_start),
-            cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon),
+            cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon,
+                                                              getattr(r, "simple_payback_lost_again", False)),
             num(0.0 if is_keep else r.co2_avoided_t_per_yr, "{:,.1f}"), cell(r.reason_short, "small")]))
 
     asset_rows = []
