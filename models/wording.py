@@ -45,3 +45,27 @@ def money_text(value: float | None, currency: str) -> str:
     if v != v or v in (float("inf"), float("-inf")):
         return "-"
     return f"{currency} {v:,.0f}"
+
+
+#: Each bill line item's category (the part before the colon of ``models.billing.bill``'s ``line_item``) in words.
+LINE_ITEM_CATEGORIES = {"fixed": "Fixed charge", "energy": "Energy", "demand": "Demand charge",
+                        "pf adjustment": "Power-factor adjustment of demand", "ratchet": "Demand ratchet",
+                        "lagging": "Reactive energy (lagging)", "leading": "Reactive energy (leading)", "tax": "Tax"}
+
+
+def line_item_text(line_item: str) -> str:
+    """Return a bill line item (``"<category>:<name>"``, as :func:`models.billing.bill` writes it) in words: the
+    category's name, then the tariff's own name of the clause; an unknown category is kept as it is.
+
+    Examples
+    --------
+    >>> line_item_text("tax:VAT"), line_item_text("demand:capacity"), line_item_text("lagging:excess kvarh")
+    ('Tax: VAT', 'Demand charge: capacity', 'Reactive energy (lagging): excess kvarh')
+    >>> line_item_text("other"), line_item_text("fixed:")
+    ('other', 'Fixed charge')
+    """
+    category, _, name = str(line_item).partition(":")
+    if category not in LINE_ITEM_CATEGORIES:
+        return str(line_item)
+    words = LINE_ITEM_CATEGORIES[category]
+    return f"{words}: {name}" if name else words

@@ -660,3 +660,16 @@ def test_the_workbook_speaks_the_readers_words(small, tmp_path):
         assert values == {"yes", "no"}, (name, values)
     decisions = {c.value for row in book["End of life"].iter_rows() for c in row if isinstance(c.value, str)}
     assert not decisions & set(DECISION_NAMES) - set(DECISION_NAMES.values())
+    # the payback lost again to a later outlay is said in words like the other yes/no columns
+    col = header.index("Payback lost again by the horizon's end") + 1
+    assert {results.cell(r, col).value for r in range(4, results.max_row + 1)} <= {"yes", "no"}
+    # the bill line items read in words (models.wording.LINE_ITEM_CATEGORIES), the tariff's code kept beside them
+    bills = book["Bills"]
+    top = next(r for r in range(1, bills.max_row + 1) if bills.cell(r, 1).value == "Bill line items") + 1
+    head = [c.value for c in bills[top]]
+    words_col, code_col = head.index("Line item") + 1, head.index("Tariff clause") + 1
+    pairs = {(bills.cell(r, code_col).value, bills.cell(r, words_col).value) for r in range(top + 1, bills.max_row + 1)}
+    assert pairs and all(":" in code for code, _ in pairs)
+    energy = [words for code, words in pairs if code.startswith("energy:")]
+    assert energy and all(w == "Energy: " + c.split(":", 1)[1] for c, w in pairs if c.startswith("energy:"))
+    assert not any(words.startswith(("energy:", "demand:", "tax:", "fixed:")) for _, words in pairs)

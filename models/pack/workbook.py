@@ -33,6 +33,7 @@ from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS
 from models.pack import content
 from models.plan import option_labels
+from models.wording import line_item_text
 
 #: Sheet names, in workbook order.
 SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills",
@@ -838,12 +839,16 @@ def _bills(ws: Worksheet, result, f: _Formats) -> None:
     row += 3
     put_text(ws, row, 1, "Bill line items").font = _BOLD
     cols = [("site_id", "Site", None), ("month", "Month", None), ("scenario", "Scenario", None),
-            ("line_item", "Line item", None), ("quantity", "Quantity", f.number), ("unit", "Unit", None),
-            ("rate", f"Rate [{f.currency} per unit]", "0.0000"), ("amount", f"Amount [{f.currency}]", f.money2)]
-    frame = bills.assign(scenario=bills["scenario"].map({"baseline": "before", "plan": "after"})) if not bills.empty else bills
+            ("line_item_text", "Line item", None), ("quantity", "Quantity", f.number), ("unit", "Unit", None),
+            ("rate", f"Rate [{f.currency} per unit]", "0.0000"), ("amount", f"Amount [{f.currency}]", f.money2),
+            ("line_item", "Tariff clause", None)]
+    # the line item in words, its tariff code (category:name) kept last to trace it to the tariff file
+    frame = (bills.assign(scenario=bills["scenario"].map({"baseline": "before", "plan": "after"}),
+                          line_item_text=[line_item_text(v) for v in bills["line_item"]])
+             if not bills.empty else bills.assign(line_item_text=pd.Series(dtype=object)))
     _table(ws, row + 1, frame, cols)
     ws.freeze_panes = "A5"
-    _widths(ws, {1: 12, 2: 12, 3: 16, 4: 28, 5: 16, 6: 10, 7: 10, 8: 16})
+    _widths(ws, {1: 12, 2: 12, 3: 16, 4: 40, 5: 16, 6: 10, 7: 10, 8: 16, 9: 24})
 
 
 def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
