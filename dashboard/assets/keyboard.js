@@ -6,6 +6,8 @@
  *    leave a grid: components.data_grid tells the grid not to move between cells on Tab.)
  * 2. Upload areas: the chosen file is let go once the upload has been read, so choosing the same file
  *    again (corrected, under the same name) is read again; browsers report no change otherwise.
+ * 3. Upload areas' file inputs are hidden and unnamed: each is given the name its area states in its
+ *    data-label attribute (or "Files to upload"), so a screen reader says what the button chooses.
  */
 (function () {
   "use strict";
@@ -42,4 +44,15 @@
     // after the upload area has taken the files (its own change handler runs first), let them go
     window.setTimeout(function () { input.value = ""; }, 0);
   }, false);
+
+  function nameUploads() {
+    var inputs = document.querySelectorAll(".upload input[type=file]:not([aria-label])");
+    for (var i = 0; i < inputs.length; i++) {
+      var area = inputs[i].closest("[data-label]");
+      inputs[i].setAttribute("aria-label", area ? area.getAttribute("data-label") : "Files to upload");
+    }
+  }
+  // pages are drawn after this script runs, and again on each visit: name the inputs as they appear
+  new MutationObserver(nameUploads).observe(document.documentElement, {childList: true, subtree: true});
+  nameUploads();
 })();

@@ -32,6 +32,10 @@ ABATEMENT_NOTE = ("One bar per asset: of its options that avoid CO2, the one wit
 TABLE_HEIGHT = "clamp(280px, calc(100vh - 400px), 460px)"
 
 
+#: How to reach and open the table's rows without a mouse (dashboard/assets/keyboard.js, components.data_grid).
+KEYBOARD_HINT = ("Keyboard: Tab to the table, the arrow keys move between cells and rows, Enter opens the row's "
+                 "asset, Tab leaves the table.")
+
 def layout(**_query):
     return html.Div([
         ui.page_header("Fleet overview",
@@ -62,6 +66,7 @@ def layout(**_query):
                      # the columns are shared out with the vertical scrollbar's room already kept, so they do not
                      # overflow by its width once the rows arrive
                      dashGridOptions={"alwaysShowVerticalScroll": True}),
+        html.P(KEYBOARD_HINT, className="keyboard-hint"),
         html.Div([ui.graph(ABATEMENT), html.P(ABATEMENT_NOTE, className="page-intro")], className="panel"),
     ])
 

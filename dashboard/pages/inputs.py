@@ -11,6 +11,8 @@ from dashboard import services
 
 READY = "inputs-ready"
 UPLOAD = "inputs-upload"
+#: What the upload's file input chooses, as a screen reader says it.
+UPLOAD_INPUT_NAME = "Case files to upload: one workbook, or the case's CSV and TOML files"
 KEEP_FILES = "inputs-keep-files"
 STATUS = "inputs-status"
 PROBLEMS = "inputs-problems"
@@ -57,8 +59,10 @@ def layout(**_query):
                 html.H3("Upload a case"),
                 # no accept filter: a file of another kind reaches the server, which says why it is refused
                 # (the browser would drop it silently)
-                dcc.Upload(id=UPLOAD, multiple=True,
-                           children=html.Div(["Drop files here or ", html.A("choose files")]), className="upload"),
+                # the area's hidden file input is named from data-label (dashboard/assets/keyboard.js)
+                html.Div(dcc.Upload(id=UPLOAD, multiple=True,
+                                    children=html.Div(["Drop files here or ", html.A("choose files")]), className="upload"),
+                         **{"data-label": UPLOAD_INPUT_NAME}),
                 html.P(f"One .xlsx workbook, or the case's files (assets.csv, sites.csv, capacitors.csv, duty.csv, "
                        f"profiles.csv or .parquet, options.csv, case.toml, finance.toml, tariff .toml files). Up to "
                        f"{limit_mb:.0f} MB per upload.", className="page-intro"),

@@ -57,6 +57,10 @@ def open_fleet(tab) -> object:
 
 def test_enter_at_a_persons_pace_opens_the_focused_rows_asset(tab):
     page = open_fleet(tab)
+    # the page says this path in words under the table (the hint a keyboard user reads first)
+    from dashboard.pages.fleet import KEYBOARD_HINT
+
+    assert page.locator(".keyboard-hint").inner_text() == KEYBOARD_HINT and page.locator(".keyboard-hint").is_visible()
     # the asset of the third row (row index 2), read from the pinned asset column
     asset_id = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='2'] .link-cell").inner_text()
     page.focus("#fleet-application-filter")

@@ -26,6 +26,10 @@ def test_a_refused_upload_stays_listed_after_a_visit_to_another_page(tab, artifa
     page = tab.goto("/inputs", PAGES[-1][1])
     page.wait_for_load_state("networkidle")
     status = page.locator("#inputs-status")
+    # the hidden file input carries the area's name (dashboard/assets/keyboard.js), for a screen reader
+    from dashboard.pages.inputs import UPLOAD_INPUT_NAME
+
+    expect(page.locator("#inputs-upload input[type=file]")).to_have_attribute("aria-label", UPLOAD_INPUT_NAME)
     refused_row = page.locator("#inputs-problems .ag-row").filter(has_text="rated_p_kw").first
 
     # the demo's assets.csv with spreadsheet row 3 rated -250 kW: refused, and said so in words and in looks
