@@ -291,6 +291,8 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str, colours: 
 
 #: Hatching of the speed chart's bars by speed remedy (the colour stays the option's own).
 REMEDY_PATTERNS = {"none": "", "trim_or_pulley": "/", "speed_control": "x"}
+#: Spacing of the hatch in the speed remedies' legend swatches [px] (plotly's default, 8, shows one line there).
+LEGEND_HATCH_PX = 4
 #: Below this speed change [rpm] every option is said to run at today's speed.
 SAME_SPEED_RPM = 0.05
 
@@ -347,9 +349,12 @@ def speed_energy(options: pd.DataFrame, colours: dict[str, str] | None = None) -
                          hovertemplate="%{y}<br>%{x:,.1f} MWh/yr<extra></extra>"), row=1, col=2)
     for code in dict.fromkeys(remedy):  # the key to the hatching (no data of its own)
         name = str(options.loc[remedy == code, "speed_remedy"].iloc[0])
+        # the legend's swatch is about 12 px: a hatch at the bars' 8 px spacing shows one faint line there, so the
+        # key's hatch is finer and in the ink colour
         fig.add_trace(go.Bar(x=[None], y=[None], orientation="h", name=name, legendgroup=str(code), hoverinfo="skip",
                              marker=dict(color="white", line=dict(color=MUTED, width=1),
-                                         pattern=dict(shape=REMEDY_PATTERNS.get(code, ""), fgcolor=MUTED))),
+                                         pattern=dict(shape=REMEDY_PATTERNS.get(code, ""), fgcolor=INK,
+                                                      size=LEGEND_HATCH_PX, solidity=0.25))),
                       row=1, col=1)
     fig.add_vline(x=0, line=dict(color=INK, width=1), row=1, col=1)
     if np.all(np.abs(change[np.isfinite(change)]) < SAME_SPEED_RPM):
