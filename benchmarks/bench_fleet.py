@@ -12,7 +12,9 @@ bills (run interleaved site by site; their times are measured apart, their memor
 finance (cash flows and metrics), plan, end of life, Monte Carlo (tornado and risk), bills. Peak memory
 is the largest resident set of the process and its children (Dask workers), sampled every 20 ms with
 psutil. Throughput is asset-option-steps per second. The bandwidth floor is one numpy pass over an array
-of the size of the load array (n_assets x n_steps float64), timed in the same process.
+of the size of the load array (n_assets x n_steps float64), timed in the same process; beside it, the
+seconds per GiB of the first write to fresh memory (:func:`fresh_memory_s_per_gib`), which every byte the
+run keeps pays once, so that runs on hosts in different states can be compared.
 A 1,000-draw Monte Carlo on the demo case is timed as well, and the peaks of the sizes run are set
 side by side ("Memory as the fleet grows": run two sizes, e.g. 5000 10000, to see the peak as the fleet
 doubles). The figures and the machine are written to the "Fleet benchmark" section of
@@ -104,6 +106,30 @@ def bandwidth_floor_s(n_assets: int, n_steps: int, repeats: int = 5) -> float:
     return best
 
 
+def fresh_memory_s_per_gib(size_bytes: int = 2**29) -> tuple[float, float]:
+    """Seconds per GiB to write one byte per 4 KiB page of fresh anonymous memory, the first time and again.
+
+    The first figure is what the run pays, page by page, for every byte it keeps (the kernel maps a page at
+    its first write; on a virtual machine the host may have to back it too); the second is the same pass on
+    pages already mapped. Their gap is a property of the host, not of the code: it says how much of a
+    stage that keeps memory (the machines' per-interval rows and curve books) is paging, in this run.
+    """
+    import mmap
+
+    region = mmap.mmap(-1, size_bytes)
+    pages = np.frombuffer(region, dtype=np.uint8)[::4096]
+    t0 = time.perf_counter()
+    pages[:] = 1
+    first = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    pages[:] = 2
+    again = time.perf_counter() - t0
+    del pages
+    region.close()
+    scale = 2**30 / size_bytes
+    return first * scale, again * scale
+
+
 def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None) -> dict:
     """Run one case in this process; return stage times [s], peaks [bytes] and sizes.
 
@@ -160,10 +186,12 @@ def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_se
     if engine == "dask":
         times["machines + site bills"] = times.pop("physics")
     floor = bandwidth_floor_s(n_assets, n_steps)
+    fresh_s_per_gib, mapped_s_per_gib = fresh_memory_s_per_gib()
     order = list(STAGE_ORDER) + ["machines + site bills", "end to end"]
     times = {k: times[k] for k in sorted(times, key=lambda k: order.index(k) if k in order else len(order))}
     return {"load_average_1min": os.getloadavg()[0],"engine": engine, "n_assets": n_assets, "n_options": n_options, "n_steps": n_steps, "times_s": times,
             "peak_bytes": peaks, "overall_peak_bytes": max(peaks.values()), "floor_s": floor,
+            "fresh_page_s_per_gib": fresh_s_per_gib, "mapped_page_s_per_gib": mapped_s_per_gib,
             "n_results": len(result.results), "plan_status": result.plan_status.get("message", ""), "plan_solves": result.plan_status.get("solves", 1),
             "plan_gap_pct": 100.0 * settings.gap_frac, "plan_seconds": settings.time_limit_s}
 
@@ -232,6 +260,8 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
         lines += ["", f"Load average at the end of the run: {r['load_average_1min']:.1f} (other work shared the 2 cores). "
                   f"Overall peak {mb(r['overall_peak_bytes'])} MiB. Bandwidth floor (one numpy pass over the "
                   f"{r['n_assets']:,} x {r['n_steps']:,} load array): {1000 * r['floor_s']:.1f} ms; machines stage / floor: {ratio}."
+                  + (f" Fresh memory on this host: {r['fresh_page_s_per_gib']:.2f} s per GiB at its first write, "
+                     f"{r['mapped_page_s_per_gib']:.3f} s per GiB once mapped." if "fresh_page_s_per_gib" in r else "")
                   + (f" Exact plan asked to {r['plan_gap_pct']:g} % or {r['plan_seconds']:g} s: {r['plan_status']}."
                      if r.get("plan_status") else ""), ""]
     lines += memory_growth(runs)
