@@ -458,6 +458,11 @@ def _ideal_bank_bills(tariff, index, meter: SiteMeter, sizes_q_kvar: np.ndarray,
     return pd.concat(frames, ignore_index=True)
 
 
+#: A claimed reactive saving this close to the ideal bank's largest saving (relative) is that saving: the
+#: two are sums of the same bill items in different orders, equal but for rounding.
+PLATEAU_RTOL = 1e-9
+
+
 def equivalent_capacitor_bank_q_kvar(
     tariff: Tariff,
     index: pd.DatetimeIndex,
@@ -498,7 +503,9 @@ def equivalent_capacitor_bank_q_kvar(
     power sets the charge (the demand-peak window for kVA or PF-adjusted demand, the heaviest
     intervals for a kVArh allowance). R is evaluated on a grid of ``n_grid`` + 1 sizes from 0 to
     max_t Q_t⁺ and interpolated linearly, so sizes are exact to within max_t Q_t⁺ / n_grid. A saving
-    above R(max) (possible only through kW-side cross terms) returns max_t Q_t⁺.
+    equal to the curve's plateau R(max) within rounding (a relative 1e-9: a saving that removes the whole
+    charge, summed in another order) is reached where the plateau starts; a saving above it by more
+    (possible only through kW-side cross terms) returns max_t Q_t⁺.
     Compensation needed between two power factors is Q_c = P (tan φ1 − tan φ2) (IEEE Std 1036-2010).
     """
     if n_grid < 2:
@@ -514,9 +521,12 @@ def equivalent_capacitor_bank_q_kvar(
     sizes = np.linspace(0.0, q_max, n_grid + 1)
     totals = _ideal_bank_bills(tariff, index, meter, sizes, interval_h, repeat_year)["total"].to_numpy()
     curve = np.maximum.accumulate(totals[0] - totals)
+    top = float(curve[-1])
     for i, t in enumerate(target):
         if t <= 0.0:
             continue
+        if top < t <= top + PLATEAU_RTOL * max(abs(top), abs(t)):
+            t = top  # the whole charge removed: the same saving as the plateau, summed in another order
         j = int(np.searchsorted(curve, t, side="left"))
         if j >= len(curve):
             out[i] = q_max

@@ -108,6 +108,18 @@ class TestOptionSavings:
         # grid step 0.1 kVAr and the point 10 kVAr lies on the grid
         assert_allclose(got, [0.0, 0.0, 10.0], atol=1e-9)
 
+    def test_equivalent_bank_of_a_saving_that_removes_the_whole_charge(self):
+        # hand calculation, A1: the excess charge is 0.20 EUR per kVAr up to 27 kVAr, 5.40 EUR in all; a saving of
+        # 5.40 summed in another order (a rounding above the bank curve's plateau) needs the 27 kVAr bank, not
+        # the 60 kVAr that takes the site to unity power factor (an audit found the latter; the grid may return
+        # up to one step, 60 / 256 kVAr, above 27). A saving clearly above the plateau still returns 60.
+        idx, p, q, _, _ = a1_inputs()
+        whole = 5.40 * (1.0 + 1e-13)
+        got = equivalent_capacitor_bank_q_kvar(load(A1), idx, p, q, [whole, 5.40, 6.0])
+        step = 60.0 / 256
+        assert 27.0 - 1e-9 <= got[0] <= 27.0 + step and 27.0 - 1e-9 <= got[1] <= 27.0 + step
+        assert_allclose(got[2], 60.0, rtol=1e-12)
+
     def test_existing_automatic_bank_takes_the_reactive_saving(self):
         # hand calculation: assets 400 kW, 300 kVAr; a 250 kVAr bank in 50 kVAr steps at target 0.95 puts in
         # 200 kVAr (billing-site-and-attribution.md, S2) → 100 kVAr, 0.25 kVArh/kWh < 0.33: no excess.
