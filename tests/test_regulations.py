@@ -27,6 +27,26 @@ def test_eu_rules_by_size_and_poles():
     assert minimum_class("EU", [110.0], [4], "2023-06-30").tolist() == ["IE3"]
 
 
+def test_a_past_purchase_date_is_judged_by_the_rules_of_its_day():
+    # Regulation (EC) 640/2009 Annex I (tier dates and scope from memory, as data/reference/minimum_efficiency_
+    # rules.csv says): nothing before 16 June 2011; IE2 from then; IE3 at 7.5-375 kW from 1 January 2015 and at
+    # 0.75-375 kW from 1 January 2017; 2/4/6 poles only, so an 8-pole motor waits for 2019/1781 (1 July 2021)
+    ratings, poles = [1.5, 15.0, 160.0, 300.0], [4, 4, 4, 8]
+    assert minimum_class("EU", ratings, poles, "2011-06-15").tolist() == ["none"] * 4
+    assert minimum_class("EU", ratings, poles, "2011-06-16").tolist() == ["IE2", "IE2", "IE2", "none"]
+    assert minimum_class("EU", ratings, poles, "2015-01-01").tolist() == ["IE2", "IE3", "IE3", "none"]
+    assert minimum_class("EU", ratings, poles, "2017-01-01").tolist() == ["IE3", "IE3", "IE3", "none"]
+    assert minimum_class("EU", ratings, poles, "2021-07-01").tolist() == ["IE3", "IE3", "IE3", "IE3"]
+    # US (dates from memory): EPAct 1992 levels (IE2) at 1-200 hp from 24 October 1997; EISA 2007 from 19 December
+    # 2010, premium (IE3) at 1-200 hp and EPAct levels at 201-500 hp; the 2016 levels widen premium to 500 hp.
+    # 160 kW is 214.6 hp, 300 kW is 402 hp (at 0.745699872 kW/hp)
+    ratings, poles = [1.5, 15.0, 160.0, 300.0], [4, 4, 4, 4]
+    assert minimum_class("US", ratings, poles, "1997-10-23").tolist() == ["none"] * 4
+    assert minimum_class("US", ratings, poles, "1997-10-24").tolist() == ["IE2", "IE2", "none", "none"]
+    assert minimum_class("US", ratings, poles, "2010-12-19").tolist() == ["IE3", "IE3", "IE2", "IE2"]
+    assert minimum_class("US", ratings, poles, "2016-06-01").tolist() == ["IE3", "IE3", "IE3", "IE3"]
+
+
 def test_us_rule_of_june_2027_applies_from_its_date():
     # 110 kW (147.5 hp) 4-pole: premium (IE3) until 31 May 2027, about IE4 from 1 June 2027; 400 kW (536 hp) is
     # outside the 2016 scope (1-500 hp) and inside the widened one (501-750 hp, premium) from 1 June 2027
