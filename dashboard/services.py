@@ -1495,7 +1495,12 @@ def plan_notice(result) -> str:
 
 
 def with_option_labels(frame: pd.DataFrame, result) -> pd.DataFrame:
-    """A frame of projects (asset_id, option_id) with the option's name as the tables show it (``label``)."""
+    """A frame of projects (asset_id, option_id) with the option's name as the tables show it (``label``).
+
+    A frame with ``project_id`` ("asset/option", as the abatement curve's) and ``asset_id`` but no ``option_id``
+    takes the option from the project id after its asset's id."""
+    if frame is not None and len(frame) and "option_id" not in frame and {"project_id", "asset_id"} <= set(frame):
+        frame = frame.assign(option_id=[str(p)[len(str(a)) + 1:] for p, a in zip(frame["project_id"], frame["asset_id"])])
     if frame is None or not len(frame) or "option_id" not in frame:
         return frame
     names = result.results.drop_duplicates("option_id").set_index("option_id")["label"]

@@ -830,3 +830,16 @@ def test_a_motor_no_option_fits_is_explained_on_its_page_and_in_the_fleet_table(
     why = dict(zip(best["asset_id"], services._plan_buys(result, best, bought)))
     assert why["F1"] == "nothing: no option of the catalogue applies (see the asset's page)"
     assert why["P1"] != why["F1"]
+
+
+def test_abatement_projects_are_named_by_their_option_s_label():
+    # the abatement curve's frame has project_id ("asset/option") and asset_id, no option_id: its hover named the
+    # raw ids (an audit); the option is read from the project id after the asset's id, so an asset id with a "/"
+    # keeps its option
+    from types import SimpleNamespace
+
+    result = SimpleNamespace(results=pd.DataFrame({"option_id": ["pm_drive", "lspm"],
+                                                   "label": ["PM motor on a drive", "Line-start PM motor"]}))
+    frame = pd.DataFrame({"project_id": ["HRW-M01/pm_drive", "A/B/lspm"], "asset_id": ["HRW-M01", "A/B"]})
+    got = services.with_option_labels(frame, result)
+    assert got["label"].tolist() == ["PM motor on a drive", "Line-start PM motor"]

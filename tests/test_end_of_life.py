@@ -298,6 +298,15 @@ def test_the_register_s_outage_hours_override_the_size_class_and_the_spare(tmp_p
     # C1, 75 kW, nothing given: the class's 72 h and 168 h
     assert (eol.loc["C1", "new_lead_time_h"], eol.loc["C1", "rewind_lead_time_h"]) == (72.0, 168.0)
     assert eol.loc["C1", "lead_time_basis"] == "size class"
+    # the decision record says where the hours come from apart from the cost per hour's source (an audit found the
+    # cost's "asset register" read as the hours' source)
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    result = scenario.run(case, case.finance, with_risk=False)
+    said = " ".join(str(v) for v in record_context(case, result, content.select_scope(case, result, assets=["P1"],
+                                                                                       plan=False), "P1").values())
+    assert "30 h to a rewound one (hours: spare on hand (new), asset register (rewound))" in said
 
 
 def test_outage_hours_outside_a_year_are_refused(tmp_path):

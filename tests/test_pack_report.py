@@ -803,3 +803,16 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
     for site_id in coarse:
         rows = register[register["item"] == f"Demand window at site {site_id}"]
         assert len(rows) == 1 and "understates the demand peak and its savings" in rows["detail"].iloc[0]
+        # the row names the site's motors in the pack's scope whose own profile is coarser than the window (an audit
+        # found every motor of the site listed, those without a profile too); the text's count is the site's. The
+        # list is whole or "... and N more", so its length is read from the text
+        window, _, n = coarse[site_id]
+        resolution = dict(zip(case.profile_info["profile_id"], case.profile_info["resolution_min"]))
+        at_site = case.assets[case.assets["site_id"] == site_id]
+        coarse_at_site = [a for a, pid in zip(at_site["asset_id"], at_site["profile_id"]) if resolution.get(pid, 0) > window]
+        expected = [a for a in coarse_at_site if a in set(scope.asset_ids)]
+        listed = rows["assets"].iloc[0]
+        more = re.search(r"and (\d+) more", listed)
+        named = [x.strip() for x in re.sub(r" and \d+ more$", "", listed).split(",")]
+        assert set(named) <= set(expected) and len(named) + (int(more.group(1)) if more else 0) == len(expected)
+        assert len(coarse_at_site) == n

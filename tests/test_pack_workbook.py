@@ -661,8 +661,9 @@ def test_the_workbook_speaks_the_readers_words(small, tmp_path):
     decisions = {c.value for row in book["End of life"].iter_rows() for c in row if isinstance(c.value, str)}
     assert not decisions & set(DECISION_NAMES) - set(DECISION_NAMES.values())
     # the payback lost again to a later outlay is said in words like the other yes/no columns
-    col = header.index("Payback lost again by the horizon's end") + 1
-    assert {results.cell(r, col).value for r in range(4, results.max_row + 1)} <= {"yes", "no"}
+    for basis in ("Simple", "Discounted"):
+        col = header.index(f"{basis} payback lost again by the horizon's end") + 1
+        assert {results.cell(r, col).value for r in range(4, results.max_row + 1)} <= {"yes", "no"}
     # the bill line items read in words (models.wording.LINE_ITEM_CATEGORIES), the tariff's code kept beside them
     bills = book["Bills"]
     top = next(r for r in range(1, bills.max_row + 1) if bills.cell(r, 1).value == "Bill line items") + 1

@@ -747,8 +747,16 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     add("assumption", "Replacement timing", a.replacement_mode.replace("_", " "), "all",
         "Replace-now projects assume an outage window in the plan year; book it with operations.")
     if a.downtime_cost_per_h == 0:
-        add("assumption", "Downtime cost", "no case-wide downtime cost set; placeholders by criticality are used "
-            "for the end-of-life comparison", "all", "Set downtime_cost_per_h per asset or case-wide.")
+        # only the in-scope assets without their own downtime cost take a placeholder
+        scoped = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
+        own_cost = (pd.to_numeric(scoped["downtime_cost_per_h"], errors="coerce") if "downtime_cost_per_h" in scoped
+                    else pd.Series(np.nan, index=scoped.index))
+        placeholder = list(scoped.loc[own_cost.isna().to_numpy(), "asset_id"])
+        if placeholder:
+            add("assumption", "Downtime cost", "no case-wide downtime cost set; placeholders by criticality are used "
+                "for the end-of-life comparison of motors without their own",
+                "all" if len(placeholder) == len(scoped) else asset_list_text(placeholder),
+                "Set the downtime cost per hour per asset (asset register) or case-wide (finance assumptions).")
     if "illustrative" in case.options.columns and case.options["illustrative"].fillna(False).astype(bool).any():
         add("assumption", "Capital costs", "the options catalogue prices are illustrative cost curves, not quotes",
             "all", "Replace them with supplier quotes before approval; contingency covers part of the spread.")
@@ -768,12 +776,19 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
 
     coarse = coarse_demand_profiles(case.sites, case.assets, getattr(case, "tariffs", {}) or {},
                                     getattr(case, "profile_info", None))
-    in_scope_sites = set(assets["site_id"].astype(str))
+    info = getattr(case, "profile_info", None)
+    resolution = (dict(zip(info["profile_id"], info["resolution_min"])) if isinstance(info, pd.DataFrame)
+                  and not info.empty else {})
     for site_id, (window, resolutions, n) in sorted(coarse.items()):
-        if site_id in in_scope_sites:
+        # the in-scope motors of the site whose own profile is coarser than the window (not every motor of it)
+        at_site = assets[assets["site_id"].astype(str) == site_id]
+        profile = at_site["profile_id"] if "profile_id" in at_site else pd.Series(index=at_site.index, dtype=object)
+        coarse_ids = [a_id for a_id, pid in zip(at_site["asset_id"], profile)
+                      if isinstance(pid, str) and float(resolution.get(pid, 0) or 0) > window]
+        if coarse_ids:
             add("data", f"Demand window at site {site_id}", demand_window_text(window, resolutions, n)[:1].upper()
                 + demand_window_text(window, resolutions, n)[1:],
-                asset_list_text(list(assets.loc[assets["site_id"].astype(str) == site_id, "asset_id"])),
+                asset_list_text(coarse_ids),
                 f"Give {window}-min profiles (or log the site's demand at {window} min) before relying on the "
                 "demand saving; the energy saving is not affected.")
     flags = scope_flags(result, scope.asset_ids)

@@ -163,9 +163,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             placeholder = basis.startswith("default") and float(eol_row["downtime_cost_per_h"]) > 0
             hours = ""
             if "new_lead_time_h" in eol_row.index:
+                hours_from = str(eol_row.get("lead_time_basis", "size class"))
                 hours = (f" for {float(eol_row['new_lead_time_h']):.0f} h to a new motor or "
-                         f"{float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one")
-            outage = f"; a failure's outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h{hours}, {basis}"
+                         f"{float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one (hours: {hours_from})")
+            outage = (f"; a failure's outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h"
+                      f" ({basis}){hours}")
         text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
                 f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
         if best_strategy == "replace_now" and rec["technology"] not in REPLACING_TECHNOLOGIES:

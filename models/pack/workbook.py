@@ -368,7 +368,8 @@ _RESULT_COLUMNS = [
     ("irr_text", "IRR", "frac"), ("irr_status", "IRR status", None), ("mirr_frac", "MIRR", "frac"),
     ("simple_payback_text", "Simple payback [yr]", "years"),
     ("discounted_payback_text", "Discounted payback [yr]", "years"),
-    ("payback_lost_again_text", "Payback lost again by the horizon's end", None),
+    ("simple_payback_lost_text", "Simple payback lost again by the horizon's end", None),
+    ("discounted_payback_lost_text", "Discounted payback lost again by the horizon's end", None),
     ("life_cycle_cost", "Life-cycle cost", "money"), ("profitability_index", "Profitability index [-]", "number"),
     ("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", "number"), ("abatement_cost_per_t", "Abatement cost [/t]", "money"),
     ("flags", "Flags", None),
@@ -409,12 +410,12 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_uni
     res["irr_text"] = [_engine_irr(v, s) for v, s in zip(res["irr_frac"], res["irr_status"])]
     res["simple_payback_text"] = [_engine_payback(v) for v in res["simple_payback_yr"]]
     res["discounted_payback_text"] = [_engine_payback(v) for v in res["discounted_payback_yr"]]
-    # a payback reached, then lost to a later outlay (the cumulative flow ends the horizon below zero): either basis
-    lost = np.zeros(len(res), dtype=bool)
-    for column in ("simple_payback_lost_again", "discounted_payback_lost_again"):
-        if column in res:
-            lost |= res[column].to_numpy(dtype=bool)
-    res["payback_lost_again_text"] = np.where(lost, "yes", "no")
+    # a payback reached, then lost to a later outlay (the cumulative flow ends the horizon below zero), per basis:
+    # the simple one as the report and the records state it, the discounted one as the dashboard does
+    for basis in ("simple", "discounted"):
+        column = f"{basis}_payback_lost_again"
+        lost = res[column].to_numpy(dtype=bool) if column in res else np.zeros(len(res), dtype=bool)
+        res[f"{basis}_payback_lost_text"] = np.where(lost, "yes", "no")
     res["rated_p_kw"] = rating_in_unit(res["rated_p_kw"].to_numpy(dtype=float), power_unit)  # shown in the case's unit
     fmt = {"money": f.money, "frac": f.frac, "years": f.years, "number": f.number, "whole": f.whole, None: None}
     cols = [(c, _with_currency(h, f.currency) if k == "money" else
