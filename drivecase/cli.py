@@ -404,10 +404,14 @@ def _print_run_summary(case, result) -> None:
     print(f"  {counted(len(case.assets), 'asset')} ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} "
           f"installed); best option differs from today's motor for {len(best)} of them")
     under = "under the budget" if len(result.assumptions.budget_per_yr) else "with no budget limit"
+    # the yearly saving as the plan counts it (a reactive project at its share beside the others), the pack's headline
+    from models.pack.content import plan_counted
+
+    in_plan = plan_counted(result, chosen.reset_index().assign(in_plan=True)) if len(plan) else chosen
+    bills_saved, maintenance_saved = in_plan["bill_saving_per_yr"].sum(), in_plan["saving_maintenance_per_yr"].sum()
     print(f"  Plan {under}: {counted(len(plan), 'project')}, capital {chosen['capital'].sum():,.0f} {currency}, "
-          f"yearly saving {chosen['bill_saving_per_yr'].sum() + chosen['saving_maintenance_per_yr'].sum():,.0f} "
-          f"{currency}/yr (bills {chosen['bill_saving_per_yr'].sum():,.0f}, maintenance "
-          f"{chosen['saving_maintenance_per_yr'].sum():,.0f}), "
+          f"yearly saving as the plan counts it {bills_saved + maintenance_saved:,.0f} "
+          f"{currency}/yr (bills {bills_saved:,.0f}, maintenance {maintenance_saved:,.0f}), "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
     budgets = result.assumptions.budget_per_yr
     if (len(budgets) and result.assumptions.replacement_mode == "replace_at_failure"
