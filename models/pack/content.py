@@ -746,16 +746,16 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         "State whether the factor is location- or market-based and average or marginal.")
     add("assumption", "Replacement timing", a.replacement_mode.replace("_", " "), "all",
         "Replace-now projects assume an outage window in the plan year; book it with operations.")
+    assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
     if a.downtime_cost_per_h == 0:
         # only the in-scope assets without their own downtime cost take a placeholder
-        scoped = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
-        own_cost = (pd.to_numeric(scoped["downtime_cost_per_h"], errors="coerce") if "downtime_cost_per_h" in scoped
-                    else pd.Series(np.nan, index=scoped.index))
-        placeholder = list(scoped.loc[own_cost.isna().to_numpy(), "asset_id"])
+        own_cost = (pd.to_numeric(assets["downtime_cost_per_h"], errors="coerce") if "downtime_cost_per_h" in assets
+                    else pd.Series(np.nan, index=assets.index))
+        placeholder = list(assets.loc[own_cost.isna().to_numpy(), "asset_id"])
         if placeholder:
             add("assumption", "Downtime cost", "no case-wide downtime cost set; placeholders by criticality are used "
                 "for the end-of-life comparison of motors without their own",
-                "all" if len(placeholder) == len(scoped) else asset_list_text(placeholder),
+                "all" if len(placeholder) == len(assets) else asset_list_text(placeholder),
                 "Set the downtime cost per hour per asset (asset register) or case-wide (finance assumptions).")
     if "illustrative" in case.options.columns and case.options["illustrative"].fillna(False).astype(bool).any():
         add("assumption", "Capital costs", "the options catalogue prices are illustrative cost curves, not quotes",
@@ -765,7 +765,6 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
             add("defaulted input", f"{column}", f"{basis} ({counted(len(grp), 'asset')})", asset_list_text(list(grp["asset_id"])),
                 DEFAULTED_INPUT_ACTIONS.get(str(column), "Read the nameplate or measure, then re-run."))
-    assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",
