@@ -36,6 +36,7 @@ TABLE_HEIGHT = "clamp(280px, calc(100vh - 400px), 460px)"
 KEYBOARD_HINT = ("Keyboard: Tab to the table, the arrow keys move between cells and rows, Enter opens the row's "
                  "asset, Tab leaves the table.")
 
+
 def layout(**_query):
     return html.Div([
         ui.page_header("Fleet overview",
