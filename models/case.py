@@ -901,6 +901,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         order_t = np.argsort(t_ok.asi8, kind="stable")
         t_sorted = t_ok[order_t]
         rows_sorted = rows[idx][ok][order_t]
+        cells_sorted = idx[ok][order_t]  # positions in the file's frame, for a timestamp as written
         dup = t_sorted.duplicated(keep="first")
         _listed(problems, np.flatnonzero(dup),
                 lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
@@ -950,8 +951,11 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         if len(gaps) and not len(off):
             n_missing = int(np.sum(np.round(step_on[gaps] / resolution) - 1))
             first = t_unique[on[gaps[0]]] + pd.Timedelta(minutes=resolution)
-            problems.append(warning(source, int(rows_unique[on[gaps[0] + 1]]), header("timestamp"), str(first),
-                                    f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}",
+            after = on[gaps[0] + 1]  # the row named is the first one after the gap, quoted as written
+            problems.append(warning(source, int(rows_unique[after]), header("timestamp"),
+                                    _stamp_as_written(stamp_cells.iloc[cells_sorted[~dup][after]]),
+                                    f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}; "
+                                    "this row is the first after the gap",
                                     "missing intervals are filled from the same weekday and time of day"))
         coverage_days = (t_unique[-1] - t_unique[0]).total_seconds() / 86400 + resolution / 1440
         if coverage_days < 364.5:

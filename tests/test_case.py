@@ -307,6 +307,17 @@ class TestProfileRules:
         assert case is not None
         assert "misses 3 interval" in _find(problems, file="profiles.csv", severity="warning", text="misses").rule
 
+    def test_missing_timestamps_warning_names_the_row_after_the_gap_as_written(self, tmp_path):
+        # hourly rows from 2 January 2025 00:00; rows of 10:00, 11:00 and 12:00 deleted, so the 11th data row
+        # (line 12 with the header) holds 13:00, the first interval after the gap, written "2025-01-02T13:00"
+        rows = cb.profile_rows()
+        del rows[10:13]
+        rows[10][1] = rows[10][1].replace(" ", "T")
+        _, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        p = _find(problems, file="profiles.csv", severity="warning", text="misses 3 interval")
+        assert (p.row, p.column, p.value) == (12, "timestamp", "2025-01-02T13:00")
+        assert "the first at 2025-01-02 10:00" in p.rule and "first after the gap" in p.rule
+
     def test_blank_values_warned_and_filled_like_missing_intervals(self, tmp_path):
         # three weeks of hourly rows from Thursday 2 January 2025; the value of Thursday 9 January 10:00
         # (data row 24 * 7 + 10 = 178, line 180 with the header) left blank
