@@ -171,6 +171,15 @@ class TestReportContents:
         assert "The last cumulative discounted value is the NPV of section 1" in html
         assert '"(several)": the flows change sign more than once' in html.replace("&#34;", '"').replace("&quot;", '"')
 
+    def test_appendix_names_options_by_label_not_by_id(self, asset_pack, small):
+        case, _ = small
+        html = text(asset_pack[0] / REPORT_NAME)
+        appendix = html[html.index('id="appendix"'):]
+        cells = set(re.findall(r"<td[^>]*>([^<]*)</td>", appendix))
+        ids = set(case.options["option_id"].astype(str))
+        assert not cells & ids, sorted(cells & ids)
+        assert cells & set(case.options["label"].astype(str))
+
     def test_user_text_escaped(self, asset_pack):
         html = text(asset_pack[0] / REPORT_NAME)
         assert INJECTION_HTML not in html and "<script>alert(1)" not in html
@@ -311,8 +320,12 @@ class TestDecisionRecords:
         case, result = small
         scope = content.select_scope(case, result, ["C1"], False)  # C1 gives no efficiency (tests/casebuilder.py)
         register = content.risk_register(case, result, scope)
-        rows = register[(register["category"] == "defaulted input") & (register["item"] == "rated_efficiency_pct")]
+        # the item in the reader's words (the schema's title), the column name in the detail to find it by
+        rows = register[(register["category"] == "defaulted input")
+                        & (register["item"] == "Nameplate full-load efficiency [%]")]
         assert len(rows) and "nominal efficiency" in rows["response"].iloc[0]
+        assert "asset register column rated_efficiency_pct" in rows["detail"].iloc[0]
+        assert not register["item"].str.fullmatch(r"[a-z_]+").any()  # no bare column key as an item
 
     def test_drive_caution_on_the_drive_record(self, asset_pack):
         html = text(asset_pack[0] / "decision-records" / "P1.html")

@@ -18,6 +18,7 @@ import pandas as pd
 from models import finance
 from models.bill_savings import REACTIVE_TECHNOLOGIES
 from models.cashflows import COMPONENTS
+from models.io import column_title
 from models.plan import LOW_DATA_QUALITY_PCT
 from models.risk import distribution_summary
 from models.wording import counted, money_text
@@ -763,7 +764,10 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     defaults = scope_defaults(case, scope.asset_ids)
     if not defaults.empty:
         for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
-            add("defaulted input", f"{column}", f"{basis} ({counted(len(grp), 'asset')})", asset_list_text(list(grp["asset_id"])),
+            # the reader's words for the field; the register's column name beside the basis, to find it in the file
+            add("defaulted input", column_title("assets", str(column)),
+                f"{basis} ({counted(len(grp), 'asset')}; asset register column {column})",
+                asset_list_text(list(grp["asset_id"])),
                 DEFAULTED_INPUT_ACTIONS.get(str(column), "Read the nameplate or measure, then re-run."))
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):

@@ -68,7 +68,7 @@ def _payback_cell(value: float, horizon: int, lost_again: bool = False) -> dict[
 def _option_rows(frame: pd.DataFrame, cur: str, horizon: int, recommended: set[str]) -> list[dict[str, Any]]:
     rows = []
     for r in frame.itertuples(index=False):
-        rows.append(row([cell(r.option_id), cell(r.label), num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr),
+        rows.append(row([cell(r.label), num(r.capital), num(r.bill_saving_per_yr + r.saving_maintenance_per_yr),
                          num(r.npv), cell(content.rate_text(r.irr_frac, r.irr_status), "num"),
                          _payback_cell(r.simple_payback_yr, horizon, getattr(r, "simple_payback_lost_again", False)),
                          num(r.co2_avoided_t_per_yr, "{:,.1f}"),
@@ -327,9 +327,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
         "cautions": list(content.CAUTIONS),
         "appendix": appendix,
-        "appendix_headers": ["Option", "Label", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
+        "appendix_headers": ["Option", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
                              "Simple payback [yr]", "CO2 [t/yr]", "Flags"],
-        "appendix_numeric": (2, 3, 4, 5, 6, 7),
+        "appendix_numeric": (1, 2, 3, 4, 5, 6),
         "files": files, "figures": figs,
     }
 
