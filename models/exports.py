@@ -191,11 +191,49 @@ EMPTY_COLUMNS = {
     "abatement.csv": ["option_id", "asset_id", "abatement_cost_per_t", "co2_avoided_t_per_yr", "bar_start_t_per_yr",
                       "cumulative_co2_avoided_t_per_yr", "npv"],
     "fleet_rules.csv": ["min_rated_p_kw", "max_rated_p_kw", "min_hours_to_replace_h_per_yr", "decision", "rule"],
-    "plan.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
+    "plan.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start", "saving_per_yr",
+                 "bill_saving_counted_frac", "saving_counted_per_yr"],
     "plan_rank_order.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
     "flags.csv": ["asset_id", "option_id", "flag"],
     "lcc.csv": ["asset_id", "option_id", "component", "pv"],
 }
+
+
+def plan_with_savings(plan: pd.DataFrame, results: pd.DataFrame, repriced: dict | None) -> pd.DataFrame:
+    """The exact plan's rows with each project's yearly saving, alone and as the plan counts it.
+
+    Parameters
+    ----------
+    plan : pandas.DataFrame
+        The plan's projects (``asset_id``, ``option_id`` and the plan's own columns).
+    results : pandas.DataFrame
+        Every asset and option (``bill_saving_per_yr`` and ``saving_maintenance_per_yr`` [currency/yr]).
+    repriced : dict or None
+        The share (0-1) of its own bill saving each reactive project of the plan is credited with beside the
+        rest of the plan, by ``"asset/option"`` label; projects not named count their whole saving.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``plan`` with ``saving_per_yr`` (bill plus maintenance saving of the project alone),
+        ``bill_saving_counted_frac`` (the share of its bill saving the plan counts, 1 for all but a reactive
+        project the rest of the plan leaves only part of its saving) and ``saving_counted_per_yr`` (share x bill
+        saving + maintenance saving): summed, the plan's yearly saving that its NPV and the pack's headline
+        rest on.
+    """
+    out = plan.copy()
+    if out.empty:
+        return out.reindex(columns=list(out.columns) + [c for c in EMPTY_COLUMNS["plan.csv"] if c not in out])
+    own = results.drop_duplicates(["asset_id", "option_id"]).set_index(["asset_id", "option_id"]).reindex(
+        pd.MultiIndex.from_frame(out[["asset_id", "option_id"]].astype(str)))
+    bill = own["bill_saving_per_yr"].to_numpy(dtype=float)
+    maintenance = own["saving_maintenance_per_yr"].to_numpy(dtype=float)
+    shares = repriced or {}
+    share = np.array([float(shares.get(f"{a}/{o}", 1.0)) for a, o in zip(out["asset_id"], out["option_id"])])
+    out["saving_per_yr"] = bill + maintenance
+    out["bill_saving_counted_frac"] = share
+    out["saving_counted_per_yr"] = share * bill + maintenance
+    return out
 
 
 def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
@@ -236,7 +274,8 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         abatement = abatement.drop(columns=["project_id"])
     flags = result.physics.operation.flags.copy()
     tables = {
-        "results.csv": results, "cashflows.csv": result.cashflows, "bills.csv": bills, "plan.csv": result.plan,
+        "results.csv": results, "cashflows.csv": result.cashflows, "bills.csv": bills,
+        "plan.csv": plan_with_savings(result.plan, result.results, (result.plan_status or {}).get("repriced")),
         "plan_rank_order.csv": result.plan_greedy, "risk.csv": risk_rows, "tornado.csv": result.tornado,
         "plan_risk.csv": plan_risk_rows, "plan_tornado.csv": result.plan_tornado, "npv_draws.csv": draws,
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,

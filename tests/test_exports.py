@@ -133,3 +133,21 @@ def test_empty_headers_are_those_of_a_full_run(tmp_path):
     for name, columns in EMPTY_COLUMNS.items():
         header = (tmp_path / "o" / name).read_text(encoding="utf-8").splitlines()[0].split(",")
         assert header == columns, name
+
+
+def test_plan_rows_carry_each_projects_saving_alone_and_as_the_plan_counts_it():
+    from models.exports import EMPTY_COLUMNS, plan_with_savings
+
+    plan = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["ie4", "cap"], "start_yr": [0, 1],
+                         "capital": [1000.0, 500.0], "npv": [3000.0, 200.0], "npv_at_plan_start": [3000.0, 180.0]})
+    results = pd.DataFrame({"asset_id": ["A", "A", "B"], "option_id": ["ie4", "pm", "cap"],
+                            "bill_saving_per_yr": [400.0, 600.0, 100.0], "saving_maintenance_per_yr": [20.0, 30.0, -5.0]})
+    out = plan_with_savings(plan, results, {"B/cap": 0.25})
+    # hand calculation: A/ie4 alone and counted 400 + 20 = 420 (share 1); B/cap alone 100 - 5 = 95, counted
+    # 0.25 x 100 - 5 = 20
+    assert out["saving_per_yr"].tolist() == [420.0, 95.0]
+    assert out["bill_saving_counted_frac"].tolist() == [1.0, 0.25]
+    assert out["saving_counted_per_yr"].tolist() == [420.0, 20.0]
+    assert list(plan.columns) == ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"]  # untouched
+    empty = plan_with_savings(plan.iloc[:0], results, None)
+    assert empty.empty and list(empty.columns) == EMPTY_COLUMNS["plan.csv"]
