@@ -1891,20 +1891,29 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
     if not np.isfinite(costs).all():
         return EndOfLifeSummary(empty, message=f"No end-of-life comparison for {asset_id}: its costs could not be "
                                                "computed.")
+    failed = bool(row["failed"]) if "failed" in row.index and pd.notna(row["failed"]) else False
+    # a motor that has failed is replaced or rewound now (replacing now and at failure are then one choice)
+    keys = ("replace_now", "rewind_at_failure") if failed else STRATEGIES
+    names = ({"replace_now": "replace it now", "rewind_at_failure": "rewind it now"} if failed else STRATEGY_NAMES)
+    costs = np.array([float(row[COST_COLUMNS[s]]) for s in keys])
     order = np.argsort(costs, kind="stable")
-    best, runner_up = STRATEGIES[order[0]], STRATEGIES[order[1]]
+    best, runner_up = keys[order[0]], keys[order[1]]
     margin = float(costs[order[1]] - costs[order[0]])
     strategies = pd.DataFrame({
-        "strategy": pd.Series(STRATEGIES, dtype="str"),
-        "label": pd.Series([STRATEGY_NAMES[s].capitalize() for s in STRATEGIES], dtype="str"),
-        "cost_pv": costs, "cheapest": [s == best for s in STRATEGIES]})
+        "strategy": pd.Series(keys, dtype="str"),
+        "label": pd.Series([names[s].capitalize() for s in keys], dtype="str"),
+        "cost_pv": costs, "cheapest": [s == best for s in keys]})
 
-    first = (f"For {asset_id} the cheapest end-of-life strategy is to {STRATEGY_NAMES[best]}: an expected present "
-             f"cost of {money_text(costs[order[0]], currency)}, ")
-    if round(margin) == 0:
-        first += f"level with the next cheapest ({STRATEGY_NAMES[runner_up]})."
+    if failed:
+        first = (f"{asset_id} has failed (asset register): the cheaper way back into service is to {names[best]}, a "
+                 f"present cost of {money_text(costs[order[0]], currency)} with the outage until it runs again, ")
     else:
-        first += f"{money_text(margin, currency)} less than the next cheapest ({STRATEGY_NAMES[runner_up]})"
+        first = (f"For {asset_id} the cheapest end-of-life strategy is to {names[best]}: an expected present "
+                 f"cost of {money_text(costs[order[0]], currency)}, ")
+    if round(margin) == 0:
+        first += f"level with the next cheapest ({names[runner_up]})."
+    else:
+        first += f"{money_text(margin, currency)} less than the next cheapest ({names[runner_up]})"
         # a gap inside the precision of the inputs is not a preference
         first += (": under 1 % apart, so treat the two as level." if margin < CLOSE_CALL_FRAC * costs[order[0]]
                   else ".")
@@ -1915,7 +1924,10 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
                                                                  " (assumed: the case gives no installation year)"))
     p = float(row["failure_probability_in_horizon_frac"]) if "failure_probability_in_horizon_frac" in row.index \
         else float("nan")
-    if math.isfinite(p):
+    if failed:
+        clause = "every option of this page is counted against the least that puts it back in service now"
+        facts.append(clause if facts else clause[:1].upper() + clause[1:])
+    elif math.isfinite(p):
         life = float(row["mean_residual_life_yr"]) if "mean_residual_life_yr" in row.index else float("nan")
         clause = f"the probability that it fails within the {int(horizon_yr)}-year horizon is {p * 100:.0f} %"
         clause += f" (mean residual life {life:.1f} yr)" if math.isfinite(life) else ""

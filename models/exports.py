@@ -184,7 +184,7 @@ EMPTY_COLUMNS = {
                       "payback_p90_yr", "prob_payback_within_target_frac"],
     "plan_tornado.csv": ["variable", "low_value", "high_value", "npv_at_low", "npv_at_high", "base_npv", "swing"],
     "npv_draws.csv": ["draw", "best_options_npv", "plan_npv"],
-    "end_of_life.csv": ["asset_id", "age_yr", "new_option_id", "failure_probability_in_horizon_frac",
+    "end_of_life.csv": ["asset_id", "age_yr", "new_option_id", "failed", "failure_probability_in_horizon_frac",
                         "mean_residual_life_yr", "cost_replace_now", "cost_replace_at_failure", "cost_rewind_at_failure",
                         "best_strategy", "advantage_over_next", "downtime_cost_per_h", "downtime_cost_basis",
                         "new_lead_time_h", "rewind_lead_time_h", "lead_time_basis"],

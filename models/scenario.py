@@ -421,8 +421,17 @@ def _maintenance_per_yr(options: pd.DataFrame, rated_p_kw: np.ndarray) -> np.nda
     return maint
 
 
+def failed_assets(assets: pd.DataFrame) -> np.ndarray:
+    """True where the asset register says the motor has failed and is out of service (its optional ``failed``
+    column; blank or absent = running), one per row of ``assets``."""
+    if "failed" not in assets:
+        return np.zeros(len(assets), dtype=bool)
+    return assets["failed"].map(lambda v: v is True or v == 1).to_numpy(dtype=bool)
+
+
 def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Age, Weibull parameters and mean residual life of today's motors."""
+    """Age, Weibull parameters and mean residual life of today's motors (0 for a motor that has failed: the
+    spend its failure forces falls now)."""
     a = case.assets
     rated = a["rated_p_kw"].to_numpy(dtype=float)
     shape, scale = end_of_life.life_class_parameters(rated)
@@ -432,7 +441,7 @@ def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
     # each rewind shortens the expected life (repaired motors fail sooner; common practice: 10 % per rewind)
     scale_eff = scale * (end_of_life.LIFE_KEPT_PER_REWIND_FRAC ** a["rewind_count"].to_numpy(dtype=float))
     residual = end_of_life.mean_residual_life_yr(age, shape, scale_eff)
-    return age, shape, scale_eff, residual
+    return age, shape, scale_eff, np.where(failed_assets(a), 0.0, residual)
 
 
 @retaining_memory
@@ -565,6 +574,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "bill_saving_per_yr": sav.total[rows, cols],
         "capital": np.where(is_keep, 0.0, capex.total[rows, cols]),
         "must_spend_capital": np.where(replaces, must_capex[rows], 0.0),
+        "must_spend_option_id": pd.array(np.where(replaces & (must_capex[rows] > 0), op.option_ids[must_pos[rows]],
+                                                  "").astype(str), dtype="str"),
         "existing_remaining_life_yr": residual_life[rows],
         "npv": npv_v, "irr_frac": np.asarray(irr_res.irr_frac, dtype=float), "irr_status": np.asarray(irr_res.status),
         "mirr_frac": mirr_v,
@@ -583,13 +594,14 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "equivalent_capacitor_cost": sav.equivalent_bank_cost[rows, cols],
         "capacitor_q_kvar": op.capacitor_q_kvar[rows, cols],
         "flags": flag_text,
+        "failed": failed_assets(a)[rows],
     })
     results.loc[is_keep, ["irr_frac", "mirr_frac", "sir", "airr_frac"]] = np.nan
     results.loc[is_keep, "irr_status"] = "none"
     # keeping today's motor invests nothing: no payback to state (blank), and none within the horizon
     results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
     results.loc[is_keep, ["payback_within_horizon", "simple_payback_lost_again", "discounted_payback_lost_again"]] = False
-    results["best_for_asset"] = _best_flags(results)
+    results["best_for_asset"] = _best_flags(results, str(op.option_ids[0]))
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)
     # labels made once per project and gathered per row (a text array of every row costs ten times more)
@@ -802,9 +814,18 @@ def _options_in_order(case, op: OperatingResult) -> pd.DataFrame:
     return options
 
 
-def _best_flags(results: pd.DataFrame) -> np.ndarray:
-    """True on the option with the highest NPV of each asset (today's motor when nothing beats it)."""
-    best = results.groupby("asset_id", sort=False)["npv"].idxmax()
+def _best_flags(results: pd.DataFrame, keep_option_id: str = "keep") -> np.ndarray:
+    """True on the option with the highest NPV of each asset (today's motor when nothing beats it).
+
+    A motor that has failed (``failed``) cannot be kept as it is: its best option is the best of the others
+    (at least the least that puts it back in service, whose NPV is zero against it), today's motor only
+    where the catalogue offers it nothing else."""
+    npv = results["npv"].to_numpy(dtype=float)
+    if "failed" in results:
+        others = results.groupby("asset_id", sort=False)["option_id"].transform("size").to_numpy() > 1
+        barred = results["failed"].to_numpy(dtype=bool) & others & (results["option_id"].to_numpy() == keep_option_id)
+        npv = np.where(barred, -np.inf, npv)
+    best = pd.Series(npv, index=results.index).groupby(results["asset_id"].to_numpy(), sort=False).idxmax()
     flags = np.zeros(len(results), dtype=bool)
     flags[best.to_numpy()] = True
     return flags
@@ -981,6 +1002,26 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
         new_life_yr=options["life_yr"].to_numpy(dtype=float)[new_o], rewind_life_yr=float(options["life_yr"].iloc[r]),
         discount_rate_frac=d, horizon_yr=horizon, escalation_frac=assumptions.escalation_energy_frac,
         asset_id=op.asset_ids)
+    failed = failed_assets(a)
+    if failed.any():
+        # a motor that has failed is rewound or replaced now, the outage counted either way: the certain failure
+        # of the comparison above, at year 0 (replacing now and at failure are then the same)
+        f = np.flatnonzero(failed)
+        now = end_of_life.failed_motor_costs(
+            capex_total[f, new_o[f]], capex_total[f, r], running_old[f] - sav.total[f, new_o[f]],
+            running_old[f] - sav.total[f, r], downtime_cost_per_h=downtime[f], new_lead_time_h=new_lead_h[f],
+            rewind_lead_time_h=rewind_lead_h[f], new_life_yr=options["life_yr"].to_numpy(dtype=float)[new_o[f]],
+            rewind_life_yr=float(options["life_yr"].iloc[r]), discount_rate_frac=d, horizon_yr=horizon,
+            escalation_frac=assumptions.escalation_energy_frac)
+        replace_pv, rewind_pv = now["cost_replace"].to_numpy(), now["cost_rewind"].to_numpy()
+        columns = ["failure_probability_in_horizon_frac", "mean_residual_life_yr", "cost_replace_now",
+                   "cost_replace_at_failure", "cost_rewind_at_failure", "advantage_over_next"]
+        frame.iloc[f, [frame.columns.get_loc(c) for c in columns]] = np.column_stack(
+            [np.ones(len(f)), np.zeros(len(f)), replace_pv, replace_pv, rewind_pv, np.abs(replace_pv - rewind_pv)])
+        best = frame["best_strategy"].to_numpy(dtype=object).copy()
+        best[f] = np.where(now["best"].to_numpy() == "replace", "replace_now", "rewind_at_failure")
+        frame["best_strategy"] = pd.array(best.astype(str), dtype="str")
+    frame.insert(0, "failed", failed)
     frame.insert(0, "new_option_id", op.option_ids[new_o])
     frame.insert(0, "age_yr", age)
     # what each failure's outage is priced at, and where that figure comes from (a default can carry the answer)

@@ -50,6 +50,23 @@ class TestSummary:
         assert "mean residual life 5.1 yr" in s.text and "New IE3 induction motor" in s.text
         assert "not a forecast" in s.caution
 
+    def test_a_failed_motor_is_replaced_or_rewound_now(self):
+        # the engine's frame for a motor that has failed (asset register's `failed`): replacing now and at failure
+        # are one cost (the failure is now), so the page offers two ways back into service, not three
+        frame = eol_frame(failed=[True, False], cost_replace_now=[1200.0, 5000.0],
+                          cost_replace_at_failure=[1200.0, 4990.0], cost_rewind_at_failure=[1100.0, 6000.0],
+                          failure_probability_in_horizon_frac=[1.0, 0.25], mean_residual_life_yr=[0.0, 14.2])
+        s = services.end_of_life_summary(frame, "P1", "EUR", 15, LABELS)
+        assert s.strategies["label"].tolist() == ["Replace it now", "Rewind it now"]
+        assert s.strategies["cost_pv"].tolist() == [1200.0, 1100.0]
+        assert s.cheapest == "rewind_at_failure" and s.margin_pv == 100.0  # 1,200 - 1,100
+        assert s.text.startswith("P1 has failed (asset register): the cheaper way back into service is to rewind it "
+                                 "now, a present cost of EUR 1,100")
+        assert "EUR 100 less than the next cheapest (replace it now)" in s.text
+        assert "counted against the least that puts it back in service" in s.text and "probability" not in s.text
+        # the running motor beside it keeps its three strategies
+        assert len(services.end_of_life_summary(frame, "F2", "EUR", 15, LABELS).strategies) == 3
+
     def test_a_close_call_is_called_level(self):
         # F2: 4,990 (replace at failure) vs 5,000 (replace now): 10 apart, 0.2 % of 4,990 < 1 %
         s = services.end_of_life_summary(eol_frame(), "F2", "USD", 20, LABELS)

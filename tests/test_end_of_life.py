@@ -319,3 +319,83 @@ def test_outage_hours_outside_a_year_are_refused(tmp_path):
     case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
     said = " ".join(str(p) for p in problems)
     assert "new_lead_time_h" in said and ("-5" in said or "9000" in said)
+
+
+def _failed_case(tmp_path, flags):
+    import casebuilder as cb
+    from models.case import load_case
+
+    header = cb.ASSET_HEADER + ["failed"]
+    assets = [list(row) + [flag] for row, flag in zip(cb.ASSETS, flags)]
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
+    case, problems = load_case(folder)
+    assert case is not None, problems
+    return case
+
+
+def test_a_failed_motor_is_counted_against_the_least_that_puts_it_back_in_service(tmp_path):
+    # the asset register's `failed` (data/schema/assets.csv): the spend a failure forces (the cheaper of a rewind
+    # and the cheapest new motor the rules allow, the "must-spend" item) falls now, so the motor's expected
+    # remaining life is 0. Hand reasoning (docs/finance.md, section 4, "A motor that has failed"): the rewind,
+    # bought as the option and as the base case in year 0, has the same capital, life and running cost in both,
+    # so every flow cancels and its NPV is zero; today's motor cannot be kept, so it is not the best option.
+    from models import scenario
+
+    case = _failed_case(tmp_path, ["", "yes", "yes"])
+    result = scenario.run(case, case.finance, with_risk=False)
+    r = result.results.set_index(["asset_id", "option_id"])
+    for asset_id in ("F1", "C1"):
+        assert bool(r.loc[(asset_id, "keep"), "failed"]) and r.loc[(asset_id, "keep"), "existing_remaining_life_yr"] == 0
+        assert r.loc[(asset_id, "rewind"), "must_spend_option_id"] == "rewind"
+        assert abs(r.loc[(asset_id, "rewind"), "npv"]) < 1e-6 * r.loc[(asset_id, "rewind"), "capital"]
+        assert not r.loc[(asset_id, "keep"), "best_for_asset"]
+    assert not bool(r.loc[("P1", "keep"), "failed"]) and r.loc[("P1", "keep"), "existing_remaining_life_yr"] > 0
+    # the base case buys the least repair in year 0: its capital is credited to a replacing option then
+    cash = result.cashflows
+    credit = cash[(cash["asset_id"] == "F1") & (cash["option_id"] == "ie3") & (cash["component"] == "baseline_credit")]
+    assert credit.loc[credit["year"] == 0, "amount"].iloc[0] == pytest.approx(r.loc[("F1", "rewind"), "capital"])
+    # F1 (7.5 kW): every new option loses money against the rewind (as it does against today's running motor),
+    # so the least repair is its best option
+    assert r.loc[("F1", "rewind"), "best_for_asset"]
+
+    eol = result.end_of_life.set_index("asset_id")
+    assert not eol.loc["P1", "failed"] and eol.loc["P1", "failure_probability_in_horizon_frac"] < 1
+    for asset_id in ("F1", "C1"):
+        e = eol.loc[asset_id]
+        # the failure is now: certain, no residual life; replacing now and at failure are one cost
+        assert e["failed"] and e["failure_probability_in_horizon_frac"] == 1.0 and e["mean_residual_life_yr"] == 0.0
+        assert e["cost_replace_now"] == e["cost_replace_at_failure"]
+        cheaper = "replace_now" if e["cost_replace_now"] < e["cost_rewind_at_failure"] else "rewind_at_failure"
+        assert e["best_strategy"] == cheaper
+        assert e["advantage_over_next"] == pytest.approx(abs(e["cost_replace_now"] - e["cost_rewind_at_failure"]))
+
+
+def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(tmp_path):
+    from models import scenario
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case = _failed_case(tmp_path, ["", "yes", ""])
+    result = scenario.run(case, case.finance, with_risk=False)
+    scope = content.select_scope(case, result, assets=["F1"], plan=False)
+    rec = scope.recommended.set_index("asset_id").loc["F1"]
+    assert rec["option_id"] == "rewind" and rec["reason_short"] == "failed; least that puts it back in service"
+    ctx = record_context(case, result, scope, "F1")
+    assert ctx["recommended"] == "Rewind"
+    said = " ".join(ctx["reasons"])
+    assert "This motor has failed (asset register). The least that puts it back in service now is the option rewind" in said
+    assert "now that it has failed" in said and "A separate decision" not in said
+    assert "The motor has failed" in ctx["eol_note"] and "Probability" not in ctx["eol_note"]
+    assert ("State", "failed, out of service", False) in ctx["nameplate"]  # (label, value, defaulted)
+
+
+def test_a_failed_flag_that_is_not_yes_or_no_is_refused(tmp_path):
+    # data/schema/assets.csv: `failed` is true or false; the problem names the column and the value
+    import casebuilder as cb
+    from models.case import load_case
+
+    header = cb.ASSET_HEADER + ["failed"]
+    assets = [list(row) + [flag] for row, flag in zip(cb.ASSETS, ["maybe", "", "no"])]
+    case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
+    said = [str(p) for p in problems if p.severity == "error"]
+    assert case is None and any("'failed' must be true or false" in t and "maybe" in t for t in said), said

@@ -235,16 +235,26 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
             pick["in_plan"], pick["plan_start_yr"] = True, start
         else:
             pick = rows[rows["best_for_asset"]].iloc[0].copy()
+            failed = bool(pick.get("failed", False))
             if f"{asset_id}/{pick['option_id']}" in taken:
                 # its best option's value is taken by the rest of the plan: the best of the others is what it can
-                # still earn (today's motor when none has a positive NPV)
+                # still earn (today's motor when none has a positive NPV; for a motor that has failed, the
+                # least that puts it back in service, at NPV zero)
                 free = rows[~(asset_id + "/" + rows["option_id"]).isin(list(taken))]
-                free = free[(free["npv"] > 0) | (free["option_id"] == keep[asset_id])]
+                free = (free[free["option_id"] != keep[asset_id]] if failed
+                        else free[(free["npv"] > 0) | (free["option_id"] == keep[asset_id])])
                 if len(free):
                     pick = free.sort_values("npv", ascending=False, kind="stable").iloc[0].copy()
-            if pick["option_id"] == keep[asset_id]:
+            if pick["option_id"] == keep[asset_id] and failed:
+                reason = "it has failed, and the catalogue offers nothing that fits it"
+                short = "failed; no option fits"
+            elif pick["option_id"] == keep[asset_id]:
                 reason = "no option beats keeping today's motor on NPV"
                 short = "nothing beats today's motor"
+            elif failed and float(pick["npv"]) <= FAILED_NPV_TOL * max(1.0, float(pick["capital"])):
+                reason = ("it has failed: the least that puts it back in service now, against which every option is "
+                          "counted; none beats it on NPV")
+                short = "failed; least that puts it back in service"
             elif float(pick["npv"]) > 0 and not bool(pick["best_for_asset"]):
                 top = rows[rows["best_for_asset"]].iloc[0]
                 reason = (f"highest NPV of the options the rest of the plan leaves it (not in the fleet plan; its "
@@ -397,6 +407,11 @@ def plan_yearly_saving(result, frame: pd.DataFrame) -> pd.Series:
     of the plan credited the share r of its bill saving (:func:`plan_credit_share`) counts r x its bill saving,
     on the same basis as its plan NPV and the portfolio's flows; other rows their own saving."""
     return yearly_saving(plan_counted(result, frame))
+
+
+#: Relative tolerance [-] below which a failed motor's pick is its least repair (NPV zero against itself, to
+#: rounding): the capital times this.
+FAILED_NPV_TOL = 1e-9
 
 
 #: The saving columns that are bill savings (what a reactive project's plan share scales).

@@ -70,6 +70,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     res = result.results[result.results["asset_id"] == asset_id]
     keep_id = content.keep_option_ids(result)[asset_id]
     rec = scope.recommended.set_index("asset_id").loc[asset_id]
+    failed = bool(res["failed"].iloc[0]) if "failed" in res and len(res) else False
     year = int(result.physics.operation.index[len(result.physics.operation.index) // 2].year)
     installed = x["year_installed"]
     age = year - int(installed) if isinstance(installed, (int, float)) and not math.isnan(installed) else None
@@ -90,6 +91,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Application", "application", _value(x["application"])),
         ("Speed control", "speed_control", _value(x["speed_control"])),
         ("Criticality", "criticality", _value(x["criticality"])),
+        *([("State", "failed", "failed, out of service")] if failed else []),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
         ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %")
          + (f" (defaulted: {', '.join(dict.fromkeys(_field_words(c) for c in defaulted['column']))})"
@@ -118,10 +120,15 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         best_strategy = str(e["best_strategy"])
         for key, column in COST_COLUMNS.items():
             eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
-        eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
-                    f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
-                    f"{float(e['mean_residual_life_yr']):.1f} yr. "
-                    + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution(brief=True)) if t))
+        if failed:
+            eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. The motor has failed: "
+                        "replacing and rewinding are both priced now, each with the outage until the motor runs again "
+                        "(replacing now and at failure are then the same).")
+        else:
+            eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. Probability that today's motor fails within "
+                        f"{horizon} years: {float(e['failure_probability_in_horizon_frac']):.0%}; mean residual life "
+                        f"{float(e['mean_residual_life_yr']):.1f} yr. "
+                        + " ".join(t for t in (rewind_life_note(x["rewind_count"]), failure_law_caution(brief=True)) if t))
     else:
         why = end_of_life_left_out(result, asset_id) or "no_catalogue"
         reason = END_OF_LIFE_LEFT_OUT[why]
@@ -130,12 +137,31 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     is_keep = rec["option_id"] == keep_id
     reason = str(rec["reason"])
     reasons = [reason[:1].upper() + reason[1:] + "."]
+    least = ""
+    if failed:
+        must_id = str(rec.get("must_spend_option_id", "") or "")
+        must = res.loc[res["option_id"] == must_id]
+        name = str(labels.get(must_id, must_id))
+        name = name[:1].lower() + name[1:] if name[1:2].islower() else name  # "rewind", "new IE3 induction motor"
+        least = (f"the option {name} ({content.money(float(must['capital'].iloc[0]), cur)})" if len(must)
+                 else "a rewind or a new motor")
+        reasons.append(f"This motor has failed (asset register). The least that puts it back in service now is {least}: "
+                       "each option that replaces the motor is credited with that capital, and from year 1 its "
+                       "saving is counted over that machine's, not over today's motor; a drive or a capacitor added "
+                       "needs the motor repaired first, a cost of the base case too.")
     if not is_keep:
         own_npv, plan_npv = float(rec["npv"]), float(rec["plan_npv"])
-        reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
-                       f"{content.money(float(rec['capital']), cur)}, saving {content.money(float(rec['bill_saving_per_yr'] + rec['saving_maintenance_per_yr']), cur)}/yr, "
-                       f"payback {content.years_text(float(rec['simple_payback_yr']), horizon, lost_again=bool(rec.get('simple_payback_lost_again', False)))}, each priced alone against "
-                       "today's bill.")
+        saving = content.money(float(rec['bill_saving_per_yr'] + rec['saving_maintenance_per_yr']), cur)
+        payback = content.years_text(float(rec['simple_payback_yr']), horizon,
+                                     lost_again=bool(rec.get('simple_payback_lost_again', False)))
+        if failed:
+            reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%} and payback {payback}, "
+                           f"priced alone against the least that puts it back in service; capital "
+                           f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr against today's bill.")
+        else:
+            reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
+                           f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr, payback {payback}, each "
+                           "priced alone against today's bill.")
         if abs(plan_npv - own_npv) > 0.5:
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
                            f"{content.money(plan_npv, cur)} for it.")
@@ -168,8 +194,16 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                          f"{float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one (hours: {hours_from})")
             outage = (f"; a failure's outage priced at {content.money(float(eol_row['downtime_cost_per_h']), cur)}/h"
                       f" ({basis}){hours}")
-        text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
-                f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
+        if failed:
+            text = (f"For the motor itself, now that it has failed ({labels.get(new_id, new_id)} vs rewind, the outage "
+                    f"counted): cheaper to {'replace it now' if best_strategy == 'replace_now' else 'rewind it now'}, by "
+                    f"{content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
+            if best_strategy == "replace_now" and rec["technology"] == "rewind":
+                text += (" The options' NPVs above leave the outage out; with it counted, a new motor beats the "
+                         "rewind.")
+        else:
+            text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
+                    f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
         if best_strategy == "replace_now" and rec["technology"] not in REPLACING_TECHNOLOGIES:
             new_capital = res.loc[res["option_id"] == new_id, "capital"]
             text += (" Replacing it now is not in this request and would need its own capital"
@@ -177,7 +211,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         if placeholder:
             text += " The outage cost is a placeholder that can decide this: give the motor's own."
         reasons.append(text)
-    if float(rec["must_spend_capital"]) > 0 and not is_keep:
+    if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
     cautions, data_notes = [], []
@@ -197,7 +231,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                            "Simple payback [yr]", "CO2 [t/yr]"],
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
         "eol_headers": ["Strategy", f"Expected present cost [{cur}]"], "eol_rows": eol_rows, "eol_numeric": (1,),
-        "eol_note": eol_note, "recommended": "keep today's motor" if is_keep else str(rec["label"]),
+        "eol_note": eol_note,
+        "recommended": ("nothing fits; the motor has failed" if is_keep and failed else "keep today's motor" if is_keep
+                        else str(rec["label"])),
         "reasons": reasons, "cautions": list(dict.fromkeys(cautions)), "data_notes": list(dict.fromkeys(data_notes)),
     }
 

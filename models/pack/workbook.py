@@ -895,13 +895,16 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         labels = option_labels(result.results)
         frame = frame.assign(new_option_id=frame["new_option_id"].map(lambda o: labels.get(o, o)),
                              best_strategy=frame["best_strategy"].map(lambda b: STRATEGY_NAMES.get(b, b)))
-        cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None),
-                ("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
-                ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
-                ("cost_replace_now", f"Replace now [{f.currency}]", f.money),
-                ("cost_replace_at_failure", f"Replace at failure [{f.currency}]", f.money),
-                ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
-                ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
+        if "failed" in frame:  # a motor that has failed: its costs are of replacing or rewinding it now
+            frame = frame.assign(failed=frame["failed"].map(lambda v: "yes" if bool(v) else "no"))
+        cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None)]
+        cols += [("failed", "Has failed", None)] if "failed" in frame else []
+        cols += [("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
+                 ("mean_residual_life_yr", "Mean residual life [yr]", f.years),
+                 ("cost_replace_now", f"Replace now [{f.currency}]", f.money),
+                 ("cost_replace_at_failure", f"Replace at failure [{f.currency}]", f.money),
+                 ("cost_rewind_at_failure", f"Rewind at failure [{f.currency}]", f.money), ("best_strategy", "Cheapest", None),
+                 ("advantage_over_next", f"Advantage over the next [{f.currency}]", f.money)]
         if "downtime_cost_per_h" in frame:  # what an outage is priced at, and where that figure comes from
             cols += [("downtime_cost_per_h", f"Outage cost [{f.currency}/h]", f.money),
                      ("downtime_cost_basis", "Outage cost from", None)]
