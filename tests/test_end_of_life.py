@@ -387,6 +387,13 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     assert "now that it has failed" in said and "A separate decision" not in said
     assert "The motor has failed" in ctx["eol_note"] and "Probability" not in ctx["eol_note"]
     assert ("State", "failed, out of service", False) in ctx["nameplate"]  # (label, value, defaulted)
+    # the rewind earns nothing over itself, so the plan leaves it out: the record and the register say its
+    # capital is to be booked on its own
+    assert "F1" not in set(result.plan["asset_id"])
+    assert "Not in the fleet plan: the motor needs a way back into service at once" in said + " ".join(ctx["reasons"])
+    register = content.risk_register(case, result, scope)
+    row = register[register["item"] == "Motors that have failed"].iloc[0]
+    assert row["assets"] == "F1" and "not in the plan's capital" in row["detail"]
 
 
 def test_a_failed_flag_that_is_not_yes_or_no_is_refused(tmp_path):

@@ -784,6 +784,23 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 f"{basis} ({counted(len(grp), 'asset')}; asset register column {column})",
                 asset_list_text(list(grp["asset_id"])),
                 DEFAULTED_INPUT_ACTIONS.get(str(column), "Read the nameplate or measure, then re-run."))
+    # motors that have failed need a way back into service whatever the plan; one the plan does not take is
+    # money the request does not yet hold
+    res = result.results
+    if "failed" in res:
+        failed_ids = [a_id for a_id in assets["asset_id"]
+                      if res.loc[res["asset_id"] == a_id, "failed"].astype(bool).any()]
+        planned = set(result.plan["asset_id"]) if len(result.plan) else set()
+        outside = [a_id for a_id in failed_ids if a_id not in planned]
+        if failed_ids:
+            detail = (f"{counted(len(failed_ids), 'motor')} of the asset register have failed: each option is counted "
+                      "against the least that puts the motor back in service now")
+            if outside:
+                detail += (f"; {counted(len(outside), 'motor')} of them ({asset_list_text(outside)}) have no project in "
+                           "the plan, so their repair or replacement is not in the plan's capital")
+            add("assumption", "Motors that have failed", detail, asset_list_text(failed_ids),
+                "Book the repair or the replacement at once, and confirm the outage's hours with the repair shop or "
+                "the supplier.")
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",

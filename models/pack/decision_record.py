@@ -211,6 +211,10 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         if placeholder:
             text += " The outage cost is a placeholder that can decide this: give the motor's own."
         reasons.append(text)
+    if failed and not bool(rec.get("in_plan", False)):
+        reasons.append("Not in the fleet plan: the motor needs a way back into service at once whatever the plan, "
+                       f"so book {content.money(float(rec['capital']), cur) if not is_keep else 'its repair'} for it "
+                       "on its own.")
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
