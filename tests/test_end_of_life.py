@@ -387,6 +387,7 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     assert "now that it has failed" in said and "A separate decision" not in said
     assert "The motor has failed" in ctx["eol_note"] and "Probability" not in ctx["eol_note"]
     assert ("State", "failed, out of service", False) in ctx["nameplate"]  # (label, value, defaulted)
+    assert len(ctx["eol_rows"]) == 2 and ctx["options_basis"].startswith("increment over the least that puts")
     # the rewind earns nothing over itself, so the plan leaves it out: the record and the register say its
     # capital is to be booked on its own
     assert "F1" not in set(result.plan["asset_id"])

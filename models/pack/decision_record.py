@@ -118,8 +118,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not eol.empty and asset_id in set(eol["asset_id"]):
         e = eol.set_index("asset_id").loc[asset_id]
         best_strategy = str(e["best_strategy"])
+        # a motor that has failed is replaced or rewound now: two ways back into service, not three strategies
+        names = {"replace_now": "replace it now", "rewind_at_failure": "rewind it now"} if failed else STRATEGY_NAMES
         for key, column in COST_COLUMNS.items():
-            eol_rows.append(row([cell(STRATEGY_NAMES[key]), num(float(e[column]))], pick=key == best_strategy))
+            if key in names:
+                eol_rows.append(row([cell(names[key]), num(float(e[column]))], pick=key == best_strategy))
         if failed:
             eol_note = (f"New motor compared: {labels.get(e['new_option_id'], e['new_option_id'])}. The motor has failed: "
                         "replacing and rewinding are both priced now, each with the outage until the motor runs again "
@@ -236,6 +239,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         "option_rows": option_rows, "option_numeric": (2, 3, 4, 5, 6, 7),
         "eol_headers": ["Strategy", f"Expected present cost [{cur}]"], "eol_rows": eol_rows, "eol_numeric": (1,),
         "eol_note": eol_note,
+        "options_basis": ("increment over the least that puts the failed motor back in service now; keeping it as "
+                          "it is would leave it stopped" if failed else "increment over keeping today's motor"),
         "recommended": ("nothing fits; the motor has failed" if is_keep and failed else "keep today's motor" if is_keep
                         else str(rec["label"])),
         "reasons": reasons, "cautions": list(dict.fromkeys(cautions)), "data_notes": list(dict.fromkeys(data_notes)),

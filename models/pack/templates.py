@@ -230,7 +230,7 @@ DECISION = _MACROS + """<!DOCTYPE html>
 </div>
 <p class="muted">(default) = not given in the case; filled from class, size or application defaults (see the workbook's 'Data quality' sheet).</p>
 
-<h2>Options compared (increment over keeping today's motor)</h2>
+<h2>Options compared ({{ options_basis }})</h2>
 {{ table(option_headers, option_rows, option_numeric) }}
 
 <h2>End-of-life strategies (expected present cost over the horizon)</h2>
