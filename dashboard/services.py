@@ -1035,6 +1035,22 @@ def no_option_text(result, asset_id: str) -> str:
             "A catalogue of your own (options.csv) can offer what fits it.")
 
 
+def failed_text(result, asset_id: str, currency: str) -> str:
+    """What the Asset page says of a motor the asset register marks as failed ("" for a running one): the
+    options are counted against the least that puts it back in service now (docs/finance.md, section 4)."""
+    res = result.results
+    rows = res[res["asset_id"].astype(str) == str(asset_id)]
+    if "failed" not in rows or not rows["failed"].astype(bool).any():
+        return ""
+    must = rows["must_spend_option_id"].astype(str) if "must_spend_option_id" in rows else pd.Series(dtype=str)
+    must_id = next((m for m in must if m), "")
+    least = rows[rows["option_id"].astype(str) == must_id]
+    what = (f"{least['label'].iloc[0]} for {money_text(float(least['capital'].iloc[0]), currency)}" if len(least)
+            else "a rewind or a new motor")
+    return ("This motor has failed (asset register): every option is counted against the least that puts it back "
+            f"in service now ({what}); keeping it as it is would leave it stopped.")
+
+
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
     """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
     status = result.plan_status or {}

@@ -395,6 +395,14 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     register = content.risk_register(case, result, scope)
     row = register[register["item"] == "Motors that have failed"].iloc[0]
     assert row["assets"] == "F1" and "not in the plan's capital" in row["detail"]
+    # the Asset page says the same above the options
+    from dashboard import services
+
+    rewind = result.results.set_index(["asset_id", "option_id"]).loc[("F1", "rewind"), "capital"]
+    assert services.failed_text(result, "F1", "EUR") == (
+        "This motor has failed (asset register): every option is counted against the least that puts it back in "
+        f"service now (Rewind for EUR {rewind:,.0f}); keeping it as it is would leave it stopped.")
+    assert services.failed_text(result, "P1", "EUR") == ""
 
 
 def test_a_failed_flag_that_is_not_yes_or_no_is_refused(tmp_path):

@@ -175,6 +175,9 @@ def update(asset_id, session, edits, requested=None):
     no_option = services.no_option_text(result, asset_id)
     if no_option:  # only today's motor is offered: say why, rather than leave "Keep as is" unexplained
         summary.append(html.Div(no_option, className="small caution", id="asset-no-option"))
+    failed = services.failed_text(result, asset_id, view.currency)
+    if failed:
+        summary.append(html.Div(failed, className="small caution", id="asset-failed"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),
