@@ -1535,9 +1535,10 @@ def shortest_demand_window_min(tariffs: dict, tariff_file) -> int | None:
     return int(min(windows)) if windows else None
 
 
-def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int) -> str:
-    """The caution of :func:`coarse_demand_profiles`, in words (the case check's and the Site meter page's)."""
-    return (f"the tariff's demand charge takes {window_min}-min windows, but {n_motors} motor(s) of the site have "
+def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int, whose: str = "of the site") -> str:
+    """The caution of :func:`coarse_demand_profiles`, in words (the case check's and the Site meter page's);
+    ``whose`` says which motors ``n_motors`` counts (the pack's register: "of the site in this pack")."""
+    return (f"the tariff's demand charge takes {window_min}-min windows, but {n_motors} motor(s) {whose} have "
             f"{'/'.join(map(str, coarse_min))}-min profiles: each interval is read as one window, which "
             "understates the demand peak and its savings")
 

@@ -817,8 +817,9 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
         rows = register[register["item"] == f"Demand window at site {site_id}"]
         assert len(rows) == 1 and "understates the demand peak and its savings" in rows["detail"].iloc[0]
         # the row names the site's motors in the pack's scope whose own profile is coarser than the window (an audit
-        # found every motor of the site listed, those without a profile too); the text's count is the site's. The
-        # list is whole or "... and N more", so its length is read from the text
+        # found every motor of the site listed, those without a profile too); the text counts the motors listed,
+        # "of the site in this pack" when fewer than the site's. The list is whole or "... and N more", so its
+        # length is read from the text
         window, _, n = coarse[site_id]
         resolution = dict(zip(case.profile_info["profile_id"], case.profile_info["resolution_min"]))
         at_site = case.assets[case.assets["site_id"] == site_id]
@@ -829,3 +830,14 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
         named = [x.strip() for x in re.sub(r" and \d+ more$", "", listed).split(",")]
         assert set(named) <= set(expected) and len(named) + (int(more.group(1)) if more else 0) == len(expected)
         assert len(coarse_at_site) == n
+        whose = "of the site in this pack" if len(expected) < n else "of the site"
+        assert f"{len(expected)} motor(s) {whose} have" in rows["detail"].iloc[0]
+    # a pack of one such motor of a site with more counts that one, as the pack's
+    site_id = next(s for s, (_, _, n) in coarse.items() if n > 1)
+    window = coarse[site_id][0]
+    resolution = dict(zip(case.profile_info["profile_id"], case.profile_info["resolution_min"]))
+    one = next(a for a, s, pid in zip(case.assets["asset_id"], case.assets["site_id"], case.assets["profile_id"])
+               if s == site_id and resolution.get(pid, 0) > window)
+    small = content.risk_register(case, result, content.select_scope(case, result, assets=[one], plan=False))
+    row = small[small["item"] == f"Demand window at site {site_id}"].iloc[0]
+    assert row["assets"] == one and "1 motor(s) of the site in this pack have" in row["detail"]

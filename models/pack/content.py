@@ -821,8 +821,12 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         coarse_ids = [a_id for a_id, pid in zip(at_site["asset_id"], profile)
                       if isinstance(pid, str) and float(resolution.get(pid, 0) or 0) > window]
         if coarse_ids:
-            add("data", f"Demand window at site {site_id}", demand_window_text(window, resolutions, n)[:1].upper()
-                + demand_window_text(window, resolutions, n)[1:],
+            # counted and resolved as the motors listed: the pack's, not every motor of the site
+            own = sorted({int(resolution[pid]) for pid in profile
+                          if isinstance(pid, str) and float(resolution.get(pid, 0) or 0) > window})
+            words = demand_window_text(window, own, len(coarse_ids),
+                                       "of the site in this pack" if len(coarse_ids) < n else "of the site")
+            add("data", f"Demand window at site {site_id}", words[:1].upper() + words[1:],
                 asset_list_text(coarse_ids),
                 f"Give {window}-min profiles (or log the site's demand at {window} min) before relying on the "
                 "demand saving; the energy saving is not affected.")
