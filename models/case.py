@@ -44,6 +44,7 @@ def rating_in_unit(p_kw, power_unit: str):
     """
     return p_kw / HP_TO_KW if power_label(power_unit) == "hp" else p_kw
 
+
 def usual_supply_hz(f_hz) -> int:
     """The supply frequency most of a fleet's motors give [Hz]: 60 when more give 60 than 50, else 50.
 

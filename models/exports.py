@@ -254,6 +254,12 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     and :data:`DEFAULTS_FILE` (:func:`defaulted_fields`) are added.
     """
     results = result.results.copy()
+    if case is not None:
+        from models.case import power_label, rating_in_unit
+
+        if power_label(case.settings.power_unit) == "hp":  # a case declared in hp: its ratings in hp beside kW
+            results.insert(results.columns.get_loc("rated_p_kw") + 1, "rated_p_hp",
+                           rating_in_unit(results["rated_p_kw"].to_numpy(dtype=float), "hp"))
     for column in ("irr_frac", "mirr_frac", "airr_frac", "simple_payback_yr", "discounted_payback_yr",
                    "abatement_cost_per_t", "cost_of_saved_energy_per_mwh", "sir"):
         values = results[column].to_numpy(dtype=float)
@@ -344,7 +350,7 @@ def run_settings(result, settings) -> pd.DataFrame:
             ("region", settings.region, "whose minimum-efficiency rules decide which new motors may be bought"),
             ("purchase_date", settings.purchase_date, "the day those rules are read on (the day of the run when the case gives none)"),
             ("currency", settings.currency, "currency of every money column"),
-            ("power_unit", settings.power_unit, "power unit the case displays (result files are in kW)"),
+            ("power_unit", settings.power_unit, "power unit the case displays (result files are in kW; results.csv adds rated_p_hp for a case in hp)"),
             ("time_zone", settings.time_zone, "time zone of the load profiles and tariff periods")]
     assumptions = result.assumptions
     for f in fields(assumptions):

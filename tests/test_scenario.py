@@ -727,3 +727,20 @@ def test_a_payback_lost_again_is_flagged_from_the_project_s_own_flows(demo_run_p
     assert res["simple_payback_lost_again"].to_numpy(dtype=bool).tolist() == expected.tolist()
     # never flagged without a finite payback
     assert not (res["discounted_payback_lost_again"] & ~np.isfinite(res["discounted_payback_yr"])).any()
+
+
+def test_results_of_a_case_in_hp_give_ratings_in_hp_beside_kw(demo_run_physics):
+    # docs/outputs.md: results.csv is in kW; a case declared in hp adds rated_p_hp (1 hp = 0.745699872 kW, NIST
+    # SP 811 B.9): the demo's 1,600 kW motor is 1,600 / 0.745699872 = 2,145.6 hp (hand calculation)
+    from models.exports import run_tables
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    assert "rated_p_hp" not in run_tables(result, case)["results.csv"]
+    in_hp = replace(case, settings=replace(case.settings, power_unit="hp"))
+    results = run_tables(result, in_hp)["results.csv"]
+    columns = list(results.columns)
+    assert columns[columns.index("rated_p_kw") + 1] == "rated_p_hp"
+    big = results.loc[results["rated_p_kw"] == 1600.0, "rated_p_hp"].iloc[0]
+    assert big == pytest.approx(2145.6, abs=0.05)
+    assert "rated_p_hp" not in result.results  # the engine's own table stays in kW
