@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+from pathlib import Path
 
 import pandas as pd
 
@@ -232,6 +233,7 @@ def cmd_bill(args: argparse.Namespace) -> int:
               f"{balance['leading_kvarh'] / 1000:,.0f} MVArh, supplied by capacitor banks "
               f"{round(balance['capacitor_kvarh'] / 1000) + 0.0:,.0f} MVArh; average power factor "
               f"{balance['average_power_factor']:.3f}")  # (+ 0.0: no "-0" for a rounded zero)
+    _print_calibration(case, meters, bills, op, sites)
     factor = float(case.finance.energy_price_factor)
     if factor != 1.0:
         print(f"\nThe analysis (drivecase run, the dashboard, the pack) prices every charge at energy_price_factor = "
@@ -266,6 +268,55 @@ def cmd_bill(args: argparse.Namespace) -> int:
 LARGE_RUN_S = 60.0
 LARGE_RUN_BYTES = 4 * 1024**3
 STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
+
+
+def _print_calibration(case, meters, bills, op, sites) -> None:
+    """Today's fleet as modelled beside the bills the case gives (bill_history), site by site."""
+    from models import calibration
+
+    history = case.bill_history
+    if history is None or history.empty:
+        return
+    modelled = calibration.modelled_months(meters, bills, op.index, op.interval_h)
+    comparison = calibration.compare_with_bills(modelled, history)
+    summary = calibration.calibration_summary(comparison)
+    currency = case.settings.currency
+    print("\nToday's fleet as modelled against the bills the case gives (bill_history; a bill of another year is set "
+          "beside the same calendar month of the analysis year; amounts at the tariff as written)")
+    for site_id in sites:
+        mine = comparison[comparison["site_id"] == site_id]
+        if mine.empty:
+            print(f"  Site {site_id}: no bill of a month the model covers")
+            continue
+        print(f"  Site {site_id}:")
+        for row in summary[summary["site_id"] == site_id].to_dict("records"):
+            print(f"    {calibration.summary_text(row)}")
+        table = mine.pivot_table(index="month", columns="quantity", values=["modelled", "billed"], sort=True)
+        shown = pd.DataFrame(index=table.index)
+        for quantity, unit in calibration.QUANTITIES.items():
+            if ("billed", quantity) in table:
+                unit = currency if unit == "currency" else unit
+                shown[f"{quantity.split('_')[0]} billed [{unit}]"] = table[("billed", quantity)]
+                shown[f"modelled [{unit}]"] = table[("modelled", quantity)]
+        text = shown.to_string(float_format=lambda v: f"{v:,.0f}", na_rep="-")
+        print("\n".join("    " + line for line in text.splitlines()))
+    print("  A model well off the bills is a baseline to question before its savings are: check the base load "
+          "(sites.csv), the running hours and the loads of the largest motors.")
+
+
+def _print_calibration_summary(case, path: Path) -> None:
+    """The run's fit of today's fleet to the bills the case gives, one line per site and quantity."""
+    from models import calibration
+
+    if case.bill_history is None or case.bill_history.empty or not path.is_file():
+        return
+    summary = pd.read_csv(path)
+    if summary.empty:
+        print("\nThe bills the case gives (bill_history) are of no month the model covers: nothing to compare")
+        return
+    print("\nToday's fleet as modelled against the bills the case gives (calibration.csv, calibration_months.csv):")
+    for row in summary.to_dict("records"):
+        print(f"  Site {row['site_id']}, {calibration.summary_text(row)}")
 
 
 def cmd_run(args: argparse.Namespace) -> int:
@@ -372,6 +423,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     except OSError as exc:
         return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)
+    _print_calibration_summary(case, Path(args.out) / "calibration.csv")
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
         print("(with --no-risk, risk.csv, tornado.csv, plan_risk.csv, plan_tornado.csv and npv_draws.csv hold their "

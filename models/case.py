@@ -117,6 +117,9 @@ class Case:
         plus ``sync_speed_rpm`` [rpm] and ``data_quality_pct`` [%].
     sites, capacitors, duty : pandas.DataFrame
         Typed tables (possibly empty).
+    bill_history : pandas.DataFrame
+        The site's bills the case gives, to compare the model of today's fleet with (possibly empty):
+        site_id, month (``YYYY-MM``), energy_kwh and, where given, peak_kw, reactive_kvarh, amount.
     options : pandas.DataFrame
         The options catalogue (the case's own, or the default catalogue when the case has none).
     profiles : dict of str -> pandas.Series
@@ -148,6 +151,7 @@ class Case:
     extra: dict[str, object] = field(default_factory=dict)
     finance: object = None
     problems: tuple[Problem, ...] = ()
+    bill_history: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
     def errors(self) -> list[Problem]:
@@ -1612,6 +1616,40 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None
     c["target_power_factor"] = c["target_power_factor"].fillna(0.95)
 
 
+#: A billing month as the bill history writes it: ``YYYY-MM``.
+_MONTH_PATTERN = re.compile(r"^(\d{4})-(\d{2})$")
+
+
+def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> None:
+    """The bill history: known sites, months written YYYY-MM, one bill per site and month (a month may come
+    from several years; each is compared with the same calendar month of the analysis year)."""
+    b = checker.frame
+    site_given = b["site_id"].notna().to_numpy() & (site_ids is not None)
+    for i in np.flatnonzero(site_given & ~b["site_id"].isin(site_ids or set()).to_numpy()):
+        checker.err(i, "site_id", b["site_id"].iloc[i], "unknown site_id (not in sites)",
+                    _near_id_hint(b["site_id"].iloc[i], site_ids, ""))
+    months = []
+    for i, value in enumerate(b["month"]):
+        text = "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value).strip()
+        found = _MONTH_PATTERN.match(text[:7] if len(text) >= 10 and text[7:8] == "-" else text)
+        if text and (found is None or not 1 <= int(found.group(2)) <= 12):
+            checker.err(i, "month", value, "a billing month is written YYYY-MM", "e.g. 2024-03 for March 2024")
+            months.append(None)
+        else:
+            months.append(found.group(0) if found else None)
+    b["month"] = pd.array(months, dtype="str")
+    key = b["site_id"].astype(str) + "/" + b["month"].astype(str)
+    seen: dict[str, int] = {}
+    for i, (k, month) in enumerate(zip(key, months)):
+        if month is None:
+            continue
+        if k in seen:
+            checker.err(i, "month", month, f"a second bill for site {b['site_id'].iloc[i]} in {month} (first on row "
+                        f"{seen[k]})", "give each site one bill per month")
+        else:
+            seen[k] = int(checker.rows[i])
+
+
 def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]) -> dict:
     """Parse and check every tariff of the case; a tariff's currency must be the case's."""
     from models.tariff import tariff_from_dict
@@ -1920,6 +1958,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
                      unreadable=raw.unreadable_tariffs, rejected_profiles=rejected_profiles)
     if "capacitors" in checkers:
         _check_capacitors(checkers["capacitors"], site_ids)
+    if "bill_history" in checkers:
+        _check_bill_history(checkers["bill_history"], site_ids)
     options_frame = None
     if "options" in checkers:
         options_frame = options_module.check_options(checkers["options"])
@@ -1958,6 +1998,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         return None, ordered(problems + checker.problems[before:])
     empty_caps = _TableChecker(io.RawTable("capacitors", "capacitors.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_duty = _TableChecker(io.RawTable("duty", "duty.csv", pd.DataFrame(), np.array([], dtype=int))).run()
+    empty_bills = _TableChecker(io.RawTable("bill_history", "bill_history.csv", pd.DataFrame(),
+                                            np.array([], dtype=int))).run()
     case = Case(
         path=Path(path),
         settings=settings,
@@ -1965,6 +2007,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         sites=frames["sites"],
         capacitors=frames.get("capacitors", empty_caps),
         duty=frames.get("duty", empty_duty),
+        bill_history=frames.get("bill_history", empty_bills),
         options=options_frame,
         profiles=profiles,
         profile_info=profile_info,

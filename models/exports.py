@@ -20,7 +20,8 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 #: The files of a run, in the order they are written (documented in docs/outputs.md).
 RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank_order.csv", "risk.csv",
-             "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv")
+             "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv",
+             "calibration.csv", "calibration_months.csv")
 #: The file saying what a run was computed with (:func:`run_settings`), written beside :data:`RUN_FILES`.
 RUN_SETTINGS_FILE = "run_settings.csv"
 #: The nameplate fields the case left blank and the values taken for them (:func:`defaulted_fields`).
@@ -196,6 +197,9 @@ EMPTY_COLUMNS = {
     "plan_rank_order.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
     "flags.csv": ["asset_id", "option_id", "flag"],
     "lcc.csv": ["asset_id", "option_id", "component", "pv"],
+    "calibration.csv": ["site_id", "quantity", "unit", "n_months", "modelled_total", "billed_total", "nmbe_pct",
+                        "cv_rmse_pct", "within_criteria"],
+    "calibration_months.csv": ["site_id", "month", "quantity", "unit", "modelled", "billed", "difference_pct"],
 }
 
 
@@ -287,6 +291,13 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,
         "lcc.csv": result.lcc, "flags.csv": flags,
     }
+    # today's fleet as modelled against the bills the case gives (header only without them)
+    months, summary = pd.DataFrame(), pd.DataFrame()
+    if case is not None and len(getattr(case, "bill_history", ())):
+        from models.calibration import calibrate
+
+        months, summary = calibrate(case, result.physics.operation)
+    tables["calibration.csv"], tables["calibration_months.csv"] = summary, months
     for name, columns in EMPTY_COLUMNS.items():
         if tables[name].empty and not len(tables[name].columns):
             tables[name] = pd.DataFrame(columns=columns)

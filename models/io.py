@@ -46,7 +46,7 @@ REFERENCE_DIR = DATA_DIR / "reference"
 DEMO_DIR = DATA_DIR / "demo"
 
 #: Tables of the case format, in the order they are read and documented.
-CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty", "options")
+CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty", "options", "bill_history")
 #: Where the default options catalogue lives (used when a case has no options table).
 DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.

@@ -1,0 +1,142 @@
+"""Validation record for models.calibration: today's fleet as modelled against the site's own bills.
+
+Expected values are worked out by hand beside each test (the statistics' formulas are in docs/calibration.md).
+"""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+from types import SimpleNamespace
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from models import calibration
+
+REPO = Path(__file__).resolve().parents[1]
+
+
+class TestFitStatistics:
+    def test_a_year_of_bills_by_hand(self):
+        # 12 months billed 100 each; the model reads 95 in six months and 100 in the other six.
+        # errors (billed - modelled): six of 5, six of 0; n - p = 11 (p = 1)
+        # NMBE = 30 / (11 x 100) x 100 = 2.727 %; CV(RMSE) = sqrt(6 x 25 / 11) / 100 x 100 = 3.693 %
+        modelled = np.array([95.0] * 6 + [100.0] * 6)
+        nmbe, cv = calibration.fit_statistics(modelled, np.full(12, 100.0))
+        assert nmbe == pytest.approx(300.0 / 110.0, rel=1e-12)
+        assert cv == pytest.approx(np.sqrt(150.0 / 11.0), rel=1e-12)
+
+    def test_the_model_above_the_bills_gives_a_negative_bias(self):
+        # the guideline's sign: billed - modelled; the model 10 % above in both months: (-10 - 10) / (1 x 100)
+        nmbe, cv = calibration.fit_statistics([110.0, 110.0], [100.0, 100.0])
+        assert nmbe == pytest.approx(-20.0) and cv == pytest.approx(np.sqrt(200.0), rel=1e-12)
+
+    def test_one_month_is_too_few(self):
+        assert all(np.isnan(calibration.fit_statistics([1.0], [2.0])))
+
+
+class TestCompareAndSummarise:
+    def modelled(self):
+        # site S, January and February as modelled (hand-written)
+        return pd.DataFrame({"site_id": ["S", "S"], "month_of_year": [1, 2], "energy_kwh": [1100.0, 900.0],
+                             "peak_kw": [10.0, 12.0], "reactive_kvarh": [300.0, 200.0], "amount": [220.0, 180.0]})
+
+    def test_a_bill_of_another_year_meets_the_same_calendar_month(self):
+        history = pd.DataFrame({"site_id": ["S", "S", "S"], "month": ["2023-01", "2023-02", "2023-07"],
+                                "energy_kwh": [1000.0, 1000.0, 500.0], "peak_kw": [np.nan, 10.0, np.nan],
+                                "reactive_kvarh": [np.nan] * 3, "amount": [200.0, np.nan, np.nan]})
+        c = calibration.compare_with_bills(self.modelled(), history)
+        # July is not modelled (left out); blanks are not compared
+        assert c[["month", "quantity", "modelled", "billed"]].values.tolist() == [
+            ["2023-01", "energy_kwh", 1100.0, 1000.0], ["2023-01", "amount", 220.0, 200.0],
+            ["2023-02", "energy_kwh", 900.0, 1000.0], ["2023-02", "peak_kw", 12.0, 10.0]]
+        # (1100 - 1000) / 1000 = +10 %; (900 - 1000) / 1000 = -10 %; (12 - 10) / 10 = +20 %
+        assert c["difference_pct"].tolist() == pytest.approx([10.0, 10.0, -10.0, 20.0])
+        s = calibration.calibration_summary(c).set_index("quantity")
+        # energy: errors -100 and +100 -> NMBE 0; CV(RMSE) = sqrt(20,000 / 1) / 1,000 = 14.14 % (within 15 %)
+        assert s.loc["energy_kwh", "nmbe_pct"] == pytest.approx(0.0, abs=1e-12)
+        assert s.loc["energy_kwh", "cv_rmse_pct"] == pytest.approx(100.0 * np.sqrt(20000.0) / 1000.0)
+        assert bool(s.loc["energy_kwh", "within_criteria"]) and s.loc["energy_kwh", "n_months"] == 2
+        assert (s.loc["energy_kwh", "modelled_total"], s.loc["energy_kwh", "billed_total"]) == (2000.0, 2000.0)
+        # one month of amount and of peak: too few (n - p = 0), never within
+        assert np.isnan(s.loc["amount", "nmbe_pct"]) and not s.loc["amount", "within_criteria"]
+        assert list(s.index) == ["energy_kwh", "peak_kw", "amount"]  # in the order of QUANTITIES
+
+    def test_words_say_which_side_and_the_verdict(self):
+        row = {"quantity": "energy_kwh", "n_months": 12, "nmbe_pct": 6.0, "cv_rmse_pct": 9.0, "within_criteria": False}
+        text = calibration.summary_text(row)
+        assert text.startswith("energy: the model reads 6.0 % below the bills over 12 month(s)")
+        assert "outside the monthly criteria" in text and "meant for a year" not in text
+
+    def test_modelled_months_by_hand(self):
+        # a site of two months, hourly: January 2 h at 100 kW and 50 kVAr, February 1 h at 300 kW exporting
+        # 20 kVAr and 1 h at -10 kW: January 200 kWh, peak 100 kW, 100 kVArh; February 300 kWh (the export of
+        # 10 kW is not import), peak 300 kW, 0 kVArh lagging
+        idx = pd.DatetimeIndex(["2025-01-10 00:00", "2025-01-10 01:00", "2025-02-10 00:00", "2025-02-10 01:00"],
+                               tz="Europe/Berlin")
+        meter = SimpleNamespace(p_kw=np.array([100.0, 100.0, 300.0, -10.0]), q_kvar=np.array([50.0, 50.0, -20.0, 0.0]))
+        bills = pd.DataFrame({"site_id": ["S", "S", "S"], "month": ["2025-01", "2025-01", "2025-02"],
+                              "amount": [10.0, 5.0, 7.0]})
+        m = calibration.modelled_months({"S": meter}, bills, idx, 1.0)
+        assert m[["month_of_year", "energy_kwh", "peak_kw", "reactive_kvarh", "amount"]].values.tolist() == [
+            [1, 200.0, 100.0, 100.0, 15.0], [2, 300.0, 300.0, 0.0, 7.0]]
+
+
+def _demo_with_bills(tmp_path, text):
+    case = tmp_path / "demo"
+    shutil.copytree(REPO / "data" / "demo", case)
+    (case / "bill_history.csv").write_text(text, encoding="utf-8")
+    return case
+
+
+class TestCaseTable:
+    def test_bad_rows_are_named(self, tmp_path):
+        from models.case import load_case
+
+        case = _demo_with_bills(tmp_path, "site_id,month,energy_kwh\nHRW,2024-01,1000\nHRW,2024-1,5\nNOPE,2024-02,5\n"
+                                          "HRW,2024-01,7\nKGQ,2024-03,-4\n")
+        loaded, problems = load_case(case)
+        said = [str(p) for p in problems if p.severity == "error"]
+        assert loaded is None
+        assert any("bill_history.csv, row 3, column 'month'" in t and "YYYY-MM" in t for t in said), said
+        assert any("bill_history.csv, row 4, column 'site_id'" in t and "unknown site_id" in t for t in said), said
+        assert any("row 5, column 'month'" in t and "a second bill for site HRW in 2024-01 (first on row 2)" in t
+                   for t in said), said
+        assert any("row 6, column 'energy_kwh'" in t for t in said), said
+
+    def test_a_case_without_bills_has_an_empty_history(self):
+        from models.case import load_case
+
+        case, _ = load_case(REPO / "data" / "demo")
+        assert case.bill_history.empty
+
+
+def test_run_and_bill_commands_compare_the_model_with_the_bills(tmp_path, capsys):
+    from drivecase.cli import main
+
+    # three bills of site HRW (energy; two with a total) and one of KGQ, hand-written
+    case = _demo_with_bills(tmp_path, "site_id,month,energy_kwh,amount\nHRW,2024-01,1500000,250000\n"
+                                      "HRW,2024-02,1400000,240000\nHRW,2024-03,1450000,\nKGQ,2024-07,900000,\n")
+    assert main(["run", str(case), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
+    out = capsys.readouterr().out
+    summary = pd.read_csv(tmp_path / "o" / "calibration.csv")
+    months = pd.read_csv(tmp_path / "o" / "calibration_months.csv")
+    s = summary.set_index(["site_id", "quantity"])
+    # the bills' own sums: 1,500,000 + 1,400,000 + 1,450,000 = 4,350,000 kWh; 250,000 + 240,000 = 490,000
+    assert s.loc[("HRW", "energy_kwh"), "billed_total"] == 4350000.0 and s.loc[("HRW", "energy_kwh"), "n_months"] == 3
+    assert s.loc[("HRW", "amount"), "billed_total"] == 490000.0 and s.loc[("HRW", "amount"), "n_months"] == 2
+    assert s.loc[("KGQ", "energy_kwh"), "n_months"] == 1 and np.isnan(s.loc[("KGQ", "energy_kwh"), "nmbe_pct"])
+    assert len(months) == 6 and set(months["month"]) == {"2024-01", "2024-02", "2024-03", "2024-07"}
+    # the bias's sign follows the totals: the model below the bills gives a positive NMBE
+    e = s.loc[("HRW", "energy_kwh")]
+    assert np.sign(e["nmbe_pct"]) == np.sign(e["billed_total"] - e["modelled_total"])
+    assert "Site HRW, energy: the model reads" in out and "Site KGQ, energy: 1 month(s) billed, too few" in out
+    # the bill command sets the same months side by side
+    assert main(["bill", str(case), "--site", "HRW"]) == 0
+    out = capsys.readouterr().out
+    assert "against the bills the case gives" in out and "2024-03" in out and "energy billed [kWh]" in out
+    # a run without bills writes both files with their headers only
+    assert main(["run", str(REPO / "data" / "demo"), "--out", str(tmp_path / "p"), "--no-risk", "--quiet"]) == 0
+    assert pd.read_csv(tmp_path / "p" / "calibration.csv").empty
