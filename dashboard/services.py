@@ -1328,6 +1328,22 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
     return out
 
 
+def site_calibration_text(view_: View, site_id: str) -> list[str]:
+    """Today's fleet as modelled against the site's own bills (the case's bill history), one sentence per
+    quantity billed (:func:`models.calibration.summary_text`); empty when the case gives no bill of the site."""
+    from models import calibration
+
+    history = getattr(view_.case, "bill_history", None)
+    if history is None or history.empty or not (history["site_id"].astype(str) == str(site_id)).any():
+        return []
+    op = view_.physics().operation
+    _, summary = engine().derived(view_.key, "calibration", (), lambda: calibration.calibrate(view_.case, op))
+    mine = summary[summary["site_id"].astype(str) == str(site_id)]
+    if mine.empty:
+        return ["none of its bills is of a month the model covers"]
+    return [calibration.summary_text(row) for row in mine.to_dict("records")]
+
+
 def week_starts(view_: View) -> list[dict]:
     """Monday starts of the analysis year, as dropdown options (and its first day when that is not a Monday)."""
     index = view_.physics().operation.index

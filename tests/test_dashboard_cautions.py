@@ -67,3 +67,18 @@ def test_site_meter_says_when_the_plan_makes_the_site_lead_where_its_tariff_bans
     monkeypatch.setattr(services, "_ENGINE", eng)
     text = _text(site.update("S1", None, None, None)[4])
     assert "Caution: With the plan in place, site S1 is billed" in text and "where its tariff bans them" in text
+
+
+def test_site_meter_sets_the_model_beside_the_sites_bills(small_engine, monkeypatch):
+    # a bill history uploaded with the case (docs/calibration.md): the Site meter page's summary says the fit
+    from test_dashboard_services import data_url
+
+    monkeypatch.setattr(services, "_ENGINE", small_engine)
+    data = b"site_id,month,energy_kwh\nKGQ,2024-03,100000\nKGQ,2024-04,90000\nKGQ,2024-05,95000\n"
+    outcome = small_engine.accept_upload(None, small_engine.default_key, ["bill_history.csv"], [data_url(data)])
+    assert outcome.ok, outcome.problems
+    session = {"session": outcome.session, "case": outcome.key}
+    text = _text(site.update("KGQ", None, session, None)[4])
+    assert "Today's fleet as modelled against the site's bills (bill history): energy: the model reads" in text
+    assert "over 3 month(s)" in text
+    assert "against the site's bills" not in _text(site.update("HRW", None, session, None)[4])

@@ -843,3 +843,17 @@ def test_abatement_projects_are_named_by_their_option_s_label():
     frame = pd.DataFrame({"project_id": ["HRW-M01/pm_drive", "A/B/lspm"], "asset_id": ["HRW-M01", "A/B"]})
     got = services.with_option_labels(frame, result)
     assert got["label"].tolist() == ["PM motor on a drive", "Line-start PM motor"]
+
+
+def test_the_site_page_sets_the_model_beside_an_uploaded_bill_history(engine):
+    # a bill history uploaded with the case (docs/calibration.md): the Site meter page says each quantity's fit
+    # in words; a site without bills says nothing. Two hand-written bills of HRW, energy only.
+    data = b"site_id,month,energy_kwh\nHRW,2024-01,100000\nHRW,2024-02,90000\n"
+    outcome = engine.accept_upload(None, engine.default_key, ["bill_history.csv"], [data_url(data)])
+    assert outcome.ok, outcome.problems
+    view = services.view({"session": outcome.session, "case": outcome.key}, None)
+    assert len(view.case.bill_history) == 2
+    lines = services.site_calibration_text(view, "HRW")
+    assert len(lines) == 1 and lines[0].startswith("energy: the model reads ") and "over 2 month(s)" in lines[0]
+    assert services.site_calibration_text(view, "KGQ") == []
+    assert services.site_calibration_text(services.view(None, None), "HRW") == []  # the case without bills
