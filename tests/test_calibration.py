@@ -140,3 +140,29 @@ def test_run_and_bill_commands_compare_the_model_with_the_bills(tmp_path, capsys
     # a run without bills writes both files with their headers only
     assert main(["run", str(REPO / "data" / "demo"), "--out", str(tmp_path / "p"), "--no-risk", "--quiet"]) == 0
     assert pd.read_csv(tmp_path / "p" / "calibration.csv").empty
+
+
+def test_the_pack_states_the_fit_and_registers_a_model_off_the_bills(demo_run_physics):
+    # the demo with a hand-written bill history: site HRW's three energy bills set far below anything the demo's
+    # fleet draws (1 kWh a month), so its energy fit is outside the criteria; KGQ has one bill (too few)
+    import dataclasses
+
+    from models import scenario
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    history = pd.DataFrame({"site_id": ["HRW", "HRW", "HRW", "KGQ"], "month": ["2024-01", "2024-02", "2024-03", "2024-07"],
+                            "energy_kwh": [1.0, 1.0, 1.0, 900000.0], "peak_kw": [np.nan] * 4,
+                            "reactive_kvarh": [np.nan] * 4, "amount": [np.nan] * 4, "notes": [None] * 4})
+    with_bills = dataclasses.replace(case, bill_history=history)
+    result = scenario.economics(with_bills, phys, case.finance, with_risk=False)
+    basis = {item: (value, note) for item, value, note in content.basis_rows(with_bills, result)}
+    assert basis["Today's fleet against the bills of site HRW"][0] == "outside the monthly criteria"
+    assert basis["Today's fleet against the bills of site KGQ"][0] == "too few months to judge"
+    scope = content.select_scope(with_bills, result)
+    register = content.risk_register(with_bills, result, scope)
+    row = register[register["item"] == "Model off the bills at site HRW"].iloc[0]
+    assert row["category"] == "data" and "energy: the model reads" in row["detail"] and "above the bills" in row["detail"]
+    assert not (register["item"] == "Model off the bills at site KGQ").any()
+    # without bills: no such row
+    assert not content.risk_register(case, result, scope)["item"].str.startswith("Model off the bills").any()

@@ -553,7 +553,28 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
         rows.append((f"Tariff of site {site.site_id}" + (f" ({site_name})" if site_name else ""),
                      name or (str(file) if isinstance(file, str) else "none"),
                      f"file {file}" if isinstance(file, str) else "no tariff file named"))
+    for site_id, lines in bills_fit(case, result).items():
+        rows.append((f"Today's fleet against the bills of site {site_id}", lines[0][0],
+                     "; ".join(text for _, text in lines) + " (docs/calibration.md)"))
     return rows
+
+
+def bills_fit(case, result) -> dict[str, list[tuple[str, str]]]:
+    """Each site's fit of today's fleet as modelled to the bills the case gives (``bill_history``): per site,
+    (verdict, sentence) per quantity billed, energy first (:mod:`models.calibration`); empty without bills."""
+    from models import calibration
+
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    history = getattr(case, "bill_history", None)
+    if op is None or history is None or history.empty:
+        return {}
+    _, summary = calibration.calibrate(case, op)
+    out: dict[str, list[tuple[str, str]]] = {}
+    for row in summary.to_dict("records"):
+        verdict = ("within the monthly criteria" if row["within_criteria"] else
+                   "too few months to judge" if not np.isfinite(row["nmbe_pct"]) else "outside the monthly criteria")
+        out.setdefault(str(row["site_id"]), []).append((verdict, calibration.summary_text(row)))
+    return out
 
 
 def finance_rows(assumptions: finance.FinanceAssumptions, currency: str | None = None) -> list[dict[str, Any]]:
@@ -801,6 +822,14 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             add("assumption", "Motors that have failed", detail, asset_list_text(failed_ids),
                 "Book the repair or the replacement at once, and confirm the outage's hours with the repair shop or "
                 "the supplier.")
+    # a model of today's fleet off the site's own bills: a baseline to question before its savings are
+    for site_id, lines in sorted(bills_fit(case, result).items()):
+        off = [text for verdict, text in lines if verdict == "outside the monthly criteria"]
+        if off:
+            add("data", f"Model off the bills at site {site_id}", "; ".join(off),
+                asset_list_text(list(assets.loc[assets["site_id"].astype(str) == site_id, "asset_id"])) or "all",
+                "Check the site's base load, the running hours and the loads of the largest motors against the "
+                "bills before relying on the savings.")
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",
