@@ -1207,6 +1207,8 @@ TABLE_NOTES: dict[str, str] = {
     "profiles": "Interval load profiles (optional), long format: one row per profile and interval; 15, 30 or 60 min.",
     "duty": "Duty tables (optional): load points and hours per year.",
     "options": "Options catalogue (optional; without it the default catalogue is used): technologies and cost models.",
+    "bill_history": "Bill history (optional): one row per site and billing month, as the utility billed it, to set "
+                    "today's fleet as modelled beside it.",
 }
 
 

@@ -116,7 +116,7 @@ class FleetPlan:
 
 
 def _prepare(project_id: Any, asset_id: Any, npv_value: Any, capital_by_year: Any, budget_per_yr: Any,
-             discount_rate_frac: float) -> dict[str, Any]:
+             discount_rate_frac: float, latest_start_yr: Any = None) -> dict[str, Any]:
     """Check and align the plan inputs."""
     projects = np.atleast_1d(np.asarray(project_id, dtype=object)).astype(str)
     assets = np.atleast_1d(np.asarray(asset_id, dtype=object)).astype(str)
@@ -152,8 +152,17 @@ def _prepare(project_id: Any, asset_id: Any, npv_value: Any, capital_by_year: An
         width = min(years - s, capital.shape[1])
         spend[:, s, s:s + width] = capital[:, :width]
     delay = np.power(1.0 + discount_rate_frac, -np.arange(years, dtype=float))
+    # open[i, s]: project i may start in plan year s (a motor that has failed cannot wait: year 0 only)
+    if latest_start_yr is None:
+        open_ = np.ones((n, years), dtype=bool)
+    else:
+        latest = np.broadcast_to(np.asarray(latest_start_yr, dtype=float), (n,))
+        if np.any(np.isnan(latest)) or np.any(latest < 0):
+            raise ValueError("latest_start_yr must hold numbers >= 0")
+        open_ = np.arange(years)[None, :] <= latest[:, None]
     return dict(projects=projects, assets=assets, value=value, capital=capital, budget=budget,
-                unconstrained=unconstrained, spend=spend, delay=delay, n=n, years=years, rate=float(discount_rate_frac))
+                unconstrained=unconstrained, spend=spend, delay=delay, n=n, years=years, rate=float(discount_rate_frac),
+                open=open_)
 
 
 def _result(data: dict[str, Any], x: np.ndarray, method: str, status: str, message: str,
@@ -190,7 +199,7 @@ def _unconstrained(data: dict[str, Any], method: str) -> FleetPlan:
 
 def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, budget_per_yr: Any,
                discount_rate_frac: float, *, time_limit_s: float = 60.0, mip_rel_gap: float = 1e-4,
-               start: Mapping[str, int] | None = None) -> FleetPlan:
+               start: Mapping[str, int] | None = None, latest_start_yr: Any = None) -> FleetPlan:
     """Choose at most one option per asset and a start year to maximise total NPV under yearly budgets.
 
     Parameters
@@ -224,6 +233,9 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         profitability-index plan (:func:`plan_greedy`) and the linear relaxation's whole projects
         (filled the same way) is the solver's first plan. A start changes how fast the solver proves
         its answer, never the gap it proves.
+    latest_start_yr : array_like, optional
+        The latest plan year each project may start in, shape (n,), >= 0 (default: any plan year). A
+        project of a motor that has failed takes 0: it puts the motor back in service now, or not at all.
 
     Returns
     -------
@@ -243,7 +255,8 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         subject to sum_{i in a, s} x_{i,s} <= 1                       for each asset a,
                    sum_{i,s <= y} K_{i, y-s} x_{i,s} <= B_y             for each plan year y,
 
-    where K_{i,k} is the capital project i spends k years after its start. A delayed project is the same
+    and x_{i,s} = 0 for s beyond project i's latest start (``latest_start_yr``), where K_{i,k} is the
+    capital project i spends k years after its start. A delayed project is the same
     project shifted in time: its savings, lives and horizon move with it, so its NPV at plan start is
     its own NPV discounted by the delay (the fleet's horizon effectively extends by the delay). Capital
     spent after the last plan year is not budgeted. Projects with NPV <= 0 are never chosen. The
@@ -276,7 +289,7 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         raise ValueError(f"time_limit_s must be a positive number of seconds, got {time_limit_s!r}")
     if not (np.isfinite(mip_rel_gap) and mip_rel_gap >= 0):
         raise ValueError(f"mip_rel_gap must be >= 0, got {mip_rel_gap!r}")
-    data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac)
+    data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac, latest_start_yr)
     if data["unconstrained"] or data["n"] == 0:
         return _unconstrained(data, "exact")
     n, years = data["n"], data["years"]
@@ -308,7 +321,7 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
     model = highspy.HighsLp()
     model.num_col_, model.num_row_ = m * years, n_assets + finite.size
     model.col_cost_ = -worth.ravel()  # HiGHS minimises
-    model.col_lower_, model.col_upper_ = np.zeros(m * years), np.ones(m * years)
+    model.col_lower_, model.col_upper_ = np.zeros(m * years), data["open"][candidates].ravel().astype(float)
     model.row_lower_, model.row_upper_ = np.full(upper.size, -highspy.kHighsInf), upper
     model.a_matrix_.format_ = highspy.MatrixFormat.kColwise
     model.a_matrix_.start_, model.a_matrix_.index_, model.a_matrix_.value_ = matrix.indptr, matrix.indices, matrix.data
@@ -479,7 +492,7 @@ def _core_plan(model: "highspy.HighsLp", relaxed: _Relaxed, asset_row: np.ndarra
     sub.num_col_, sub.num_row_ = model.num_col_, model.num_row_
     sub.col_cost_ = model.col_cost_
     sub.col_lower_ = np.where(fixed, held, 0.0)
-    sub.col_upper_ = np.where(fixed, held, 1.0)
+    sub.col_upper_ = np.where(fixed, held, np.asarray(model.col_upper_, dtype=float))
     sub.row_lower_, sub.row_upper_ = model.row_lower_, model.row_upper_
     sub.a_matrix_ = model.a_matrix_
     sub.integrality_ = [highspy.HighsVarType.kInteger] * model.num_col_
@@ -505,7 +518,8 @@ def _selection_from(data: dict[str, Any], start: Mapping[str, int]) -> np.ndarra
             s = int(year)
         except (TypeError, ValueError):
             continue
-        if i is None or not 0 <= s < data["years"] or data["value"][i] <= 0 or data["assets"][i] in taken:
+        if (i is None or not 0 <= s < data["years"] or data["value"][i] <= 0 or data["assets"][i] in taken
+                or not data["open"][i, s]):
             continue
         x[i, s] = True
         taken.add(data["assets"][i])
@@ -549,19 +563,22 @@ def _greedy_selection(data: dict[str, Any], x: np.ndarray | None = None) -> np.n
     tolerance = 1e-9 * np.maximum(1.0, np.where(np.isfinite(data["budget"]), data["budget"], 0.0))
     _greedy_fill(order, np.asarray(value, dtype=float), asset_code.astype(np.intp),
                  np.ascontiguousarray(data["spend"], dtype=float), np.asarray(left, dtype=float).copy(),
-                 np.asarray(tolerance, dtype=float), x, taken)
+                 np.asarray(tolerance, dtype=float), x, taken, np.ascontiguousarray(data["open"]))
     return x
 
 
 @numba.njit(nogil=True, cache=True)
-def _greedy_fill(order, value, asset_code, spend, left, tolerance, x, taken):  # pragma: no cover - compiled
+def _greedy_fill(order, value, asset_code, spend, left, tolerance, x, taken, open_):  # pragma: no cover - compiled
     """In ``order``, start each project whose asset has none yet, with value > 0, in the earliest plan
-    year whose spend fits every year's budget left (``left`` and ``x``, ``taken`` updated in place)."""
+    year open to it (``open_``) whose spend fits every year's budget left (``left`` and ``x``, ``taken``
+    updated in place)."""
     years, n_y = spend.shape[1], spend.shape[2]
     for i in order:
         if value[i] <= 0 or taken[asset_code[i]]:
             continue
         for s in range(years):
+            if not open_[i, s]:
+                continue
             fits = True
             for y in range(n_y):
                 if not spend[i, s, y] <= left[y] + tolerance[y]:
@@ -576,12 +593,12 @@ def _greedy_fill(order, value, asset_code, spend, left, tolerance, x, taken):  #
 
 
 def plan_greedy(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, budget_per_yr: Any,
-                discount_rate_frac: float) -> FleetPlan:
+                discount_rate_frac: float, latest_start_yr: Any = None) -> FleetPlan:
     """Fund projects in order of profitability index while the yearly budgets allow.
 
     Parameters
     ----------
-    project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac
+    project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac, latest_start_yr
         As in :func:`plan_exact`.
 
     Returns
@@ -608,7 +625,7 @@ def plan_greedy(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, 
     >>> plan.chosen["project_id"].tolist()
     ['a/1', 'b/1']
     """
-    data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac)
+    data = _prepare(project_id, asset_id, npv, capital_by_year, budget_per_yr, discount_rate_frac, latest_start_yr)
     if data["unconstrained"] or data["n"] == 0:
         return _unconstrained(data, "greedy")
     x = _greedy_selection(data)

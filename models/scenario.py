@@ -497,6 +497,15 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     # only options that replace today's motor avoid the spend its failure would force; a drive or a
     # capacitor added to the running motor leaves that spend where it was (it cancels out)
     replaces = np.isin(op.technologies[cols], REPLACING_TECHNOLOGIES)
+    # a motor that has failed: an option that replaces it saves over the least that puts it back in service
+    # (the must-spend item), as its cash flows count from year 1; that item itself saves nothing over itself
+    failed_rows = failed_assets(a)[rows]
+    over_least = failed_rows & replaces & (must_capex[rows] > 0)
+    least_pos = must_pos[rows]
+    is_least = over_least & (cols == least_pos)
+    saving_rc = sav.saving[rows, cols, :] - np.where(over_least[:, None], sav.saving[rows, least_pos, :], 0.0)
+    maint_rc = maint_saving[rows, cols] - np.where(over_least, maint_saving[rows, least_pos], 0.0)
+    energy_rc = energy_saved[rows, cols] - np.where(over_least, energy_saved[rows, least_pos], 0.0)
     inputs = cf.ProjectInputs(
         project_id=project_ids,
         capex_equipment=(comp["equipment"] + comp["remedy"] + comp["capacitor"])[rows, cols],
@@ -509,7 +518,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         savings_reactive_per_yr=sav.saving[rows, cols, 2],
         savings_fixed_per_yr=sav.saving[rows, cols, 3],
         savings_maintenance_per_yr=maint_saving[rows, cols],
-        energy_saved_kwh_per_yr=energy_saved[rows, cols],
+        energy_saved_kwh_per_yr=energy_rc,
         option_life_yr=life[rows, cols],
         baseline_capex=np.where(replaces, must_capex[rows], 0.0),
         baseline_life_yr=must_life[rows],
@@ -527,9 +536,10 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
             0.0),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
-    # today's motor is the reference: its increment is zero by definition
+    # today's motor is the reference: its increment is zero by definition (as is the least that puts a failed
+    # motor back in service, over itself: its flows cancel to rounding)
     amounts = flows.amounts.copy()
-    amounts[is_keep] = 0.0
+    amounts[is_keep | is_least] = 0.0
     flows = replace(flows, amounts=amounts)
     net = flows.net()
 
@@ -550,14 +560,14 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     bill_pv = ((flows.sum_of(reactive_plan.BILL_SAVING_COMPONENTS) * finance.discount_factors(d, horizon)[None, :])
                .sum(axis=1) * (1.0 - float(assumptions.tax_rate_frac)))
     capital_pv = (capital_spend * finance.discount_factors(d, horizon)[None, :]).sum(axis=1)
-    co2_by_year = finance.co2_avoided_t(energy_saved[rows, cols], assumptions.grid_co2_kg_per_kwh,
+    co2_by_year = finance.co2_avoided_t(energy_rc, assumptions.grid_co2_kg_per_kwh,
                                         assumptions.grid_co2_decline_frac, horizon)
     co2_by_year = np.asarray(co2_by_year, dtype=float).reshape(len(rows), -1)
-    abatement = np.where(np.abs(energy_saved[rows, cols]) > 1e-9,
+    abatement = np.where(np.abs(energy_rc) > 1e-9,
                          finance.abatement_cost_per_t(npv_v, co2_by_year, d), np.nan)
-    cse = np.where(energy_saved[rows, cols] > 1e-9,
+    cse = np.where(energy_rc > 1e-9,
                    finance.cost_of_saved_energy_per_mwh(np.maximum(capital_pv, 0.0),
-                                                        np.maximum(energy_saved[rows, cols], 1e-9) / 1000.0, d, horizon),
+                                                        np.maximum(energy_rc, 1e-9) / 1000.0, d, horizon),
                    np.nan)
     lcc_frame, lcc_total = _life_cycle_costs(case, op, sav, flows, rows, cols, d, horizon, maint, project_ids, assumptions)
     eac = finance.equivalent_annual_cost(lcc_total, d, horizon)
@@ -566,12 +576,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "asset_id": op.asset_ids[rows], "site_id": op.site_ids[rows], "option_id": op.option_ids[cols],
         "technology": op.technologies[cols], "label": options["label"].to_numpy(dtype=object)[cols],
         "rated_p_kw": rated[rows], "running_h_per_yr": op.running_h[rows],
-        "energy_kwh_per_yr": op.energy_kwh[rows, cols], "energy_saved_kwh_per_yr": energy_saved[rows, cols],
+        "energy_kwh_per_yr": op.energy_kwh[rows, cols], "energy_saved_kwh_per_yr": energy_rc,
         "mean_speed_rpm": op.mean_speed_rpm[rows, cols],
-        "saving_energy_per_yr": sav.saving[rows, cols, 0], "saving_demand_per_yr": sav.saving[rows, cols, 1],
-        "saving_reactive_per_yr": sav.saving[rows, cols, 2], "saving_fixed_per_yr": sav.saving[rows, cols, 3],
-        "saving_maintenance_per_yr": maint_saving[rows, cols],
-        "bill_saving_per_yr": sav.total[rows, cols],
+        "saving_energy_per_yr": saving_rc[:, 0], "saving_demand_per_yr": saving_rc[:, 1],
+        "saving_reactive_per_yr": saving_rc[:, 2], "saving_fixed_per_yr": saving_rc[:, 3],
+        "saving_maintenance_per_yr": maint_rc,
+        "bill_saving_per_yr": np.where(over_least, saving_rc.sum(axis=1), sav.total[rows, cols]),
         "capital": np.where(is_keep, 0.0, capex.total[rows, cols]),
         "must_spend_capital": np.where(replaces, must_capex[rows], 0.0),
         "must_spend_option_id": pd.array(np.where(replaces & (must_capex[rows] > 0), op.option_ids[must_pos[rows]],
@@ -596,11 +606,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "flags": flag_text,
         "failed": failed_assets(a)[rows],
     })
-    results.loc[is_keep, ["irr_frac", "mirr_frac", "sir", "airr_frac"]] = np.nan
-    results.loc[is_keep, "irr_status"] = "none"
+    nothing = is_keep | is_least  # nothing invested over the reference
+    results.loc[nothing, ["irr_frac", "mirr_frac", "sir", "airr_frac", "profitability_index"]] = np.nan
+    results.loc[nothing, "irr_status"] = "none"
     # keeping today's motor invests nothing: no payback to state (blank), and none within the horizon
-    results.loc[is_keep, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
-    results.loc[is_keep, ["payback_within_horizon", "simple_payback_lost_again", "discounted_payback_lost_again"]] = False
+    results.loc[nothing, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
+    results.loc[nothing, ["payback_within_horizon", "simple_payback_lost_again", "discounted_payback_lost_again"]] = False
     results["best_for_asset"] = _best_flags(results, str(op.option_ids[0]))
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)
@@ -930,13 +941,25 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
         sel = np.flatnonzero(candidates)
         return project_ids[sel], results["asset_id"].to_numpy()[sel], values[sel], capital_by_year[sel]
 
+    # a motor that has failed cannot wait for a later plan year: its project starts in year 0 or not at all
+    failed = results["failed"].to_numpy(dtype=bool) if "failed" in results else np.zeros(len(results), dtype=bool)
+    latest_all = np.where(failed, 0.0, np.inf)
+
+    def latest(left_out, values):
+        values = results["npv"].to_numpy() if values is None else np.asarray(values, dtype=float)
+        candidates = not_today & (values > 0)
+        if len(left_out):
+            candidates &= ~labels.isin(list(left_out))
+        return latest_all[candidates] if failed.any() else None
+
     args = inputs(exclude, npv)
     if exact is None:
         exact = plan.plan_exact(*args, budgets, d, time_limit_s=settings.time_limit_s, mip_rel_gap=settings.gap_frac,
-                                start=dict(settings.start) or None)
+                                start=dict(settings.start) or None, latest_start_yr=latest(exclude, npv))
     if solved is not None:
         solved["exact"] = exact
-    greedy = plan.plan_greedy(*(args if greedy is None else inputs(*greedy)), budgets, d)
+    greedy_args = (exclude, npv) if greedy is None else greedy
+    greedy = plan.plan_greedy(*inputs(*greedy_args), budgets, d, latest_start_yr=latest(*greedy_args))
     comparison = plan.compare_plans(exact, greedy)
     # the abatement curve takes every option that avoids CO2, whatever its NPV (costly measures too)
     co2 = results["co2_avoided_t_per_yr"].to_numpy(dtype=float)

@@ -357,6 +357,20 @@ def test_a_failed_motor_is_counted_against_the_least_that_puts_it_back_in_servic
     # F1 (7.5 kW): every new option loses money against the rewind (as it does against today's running motor),
     # so the least repair is its best option
     assert r.loc[("F1", "rewind"), "best_for_asset"]
+    # the least repair invests nothing over itself: NPV exactly 0, no rate, no payback, no saving
+    least = r.loc[("F1", "rewind")]
+    assert least["npv"] == 0.0 and least["irr_status"] == "none" and np.isnan(least["mirr_frac"])
+    assert np.isnan(least["simple_payback_yr"]) and np.isnan(least["profitability_index"])
+    assert least["bill_saving_per_yr"] == 0.0 and least["saving_maintenance_per_yr"] == 0.0
+    # a replacing option's saving is over the least repair (the basis of its NPV): the same motor running
+    # (the case without `failed`) gives its saving over today's motor, less the rewind's over today's motor
+    running = scenario.run(_failed_case(tmp_path / "running", ["", "", ""]), case.finance,
+                           with_risk=False).results.set_index(["asset_id", "option_id"])
+    for column in ("bill_saving_per_yr", "saving_maintenance_per_yr", "energy_saved_kwh_per_yr"):
+        assert r.loc[("F1", "ie3"), column] == pytest.approx(
+            running.loc[("F1", "ie3"), column] - running.loc[("F1", "rewind"), column], rel=1e-9, abs=1e-9)
+        # an add-on keeps its saving over today's motor (its repair is the base case's too)
+        assert r.loc[("F1", "add_drive"), column] == running.loc[("F1", "add_drive"), column]
 
     eol = result.end_of_life.set_index("asset_id")
     assert not eol.loc["P1", "failed"] and eol.loc["P1", "failure_probability_in_horizon_frac"] < 1
@@ -368,6 +382,23 @@ def test_a_failed_motor_is_counted_against_the_least_that_puts_it_back_in_servic
         cheaper = "replace_now" if e["cost_replace_now"] < e["cost_rewind_at_failure"] else "rewind_at_failure"
         assert e["best_strategy"] == cheaper
         assert e["advantage_over_next"] == pytest.approx(abs(e["cost_replace_now"] - e["cost_rewind_at_failure"]))
+
+
+def test_a_failed_motor_s_project_starts_in_plan_year_0_or_not_at_all(tmp_path):
+    # with a first-year budget too small for P1's project, a running P1 waits for plan year 1; marked as failed
+    # it cannot wait (docs/finance.md, section 6): the plan takes it in year 0 or leaves it out
+    import dataclasses
+
+    from models import scenario
+
+    budgets = dict(budget_per_yr=(100.0, 1e9))
+    running = _failed_case(tmp_path / "running", ["", "", ""])
+    plan = scenario.run(running, dataclasses.replace(running.finance, **budgets), with_risk=False).plan
+    assert dict(zip(plan["asset_id"], plan["start_yr"])).get("P1") == 1
+    failed = _failed_case(tmp_path / "failed", ["yes", "", ""])
+    result = scenario.run(failed, dataclasses.replace(failed.finance, **budgets), with_risk=False)
+    for frame in (result.plan, result.plan_greedy):
+        assert "P1" not in set(frame.loc[frame["start_yr"] > 0, "asset_id"])
 
 
 def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(tmp_path):
@@ -415,3 +446,31 @@ def test_a_failed_flag_that_is_not_yes_or_no_is_refused(tmp_path):
     case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
     said = [str(p) for p in problems if p.severity == "error"]
     assert case is None and any("'failed' must be true or false" in t and "maybe" in t for t in said), said
+
+
+def test_a_failed_motor_is_marked_in_the_report_and_the_workbook(tmp_path):
+    # the report's option matrix and appendix mark the failed motor and say its NPVs' basis; the workbook's
+    # Results sheet says which rows are of a failed motor and its End of life sheet says "now"
+    import re
+
+    from openpyxl import load_workbook
+
+    from models import scenario
+    from models.pack import REPORT_NAME, WORKBOOK_NAME, write_pack
+
+    case = _failed_case(tmp_path, ["", "yes", ""])
+    result = scenario.run(case, case.finance, with_risk=False)
+    write_pack(case, result, tmp_path / "pack", assets=["F1", "P1"])
+    html = (tmp_path / "pack" / REPORT_NAME).read_text(encoding="utf-8")
+    assert re.search(r">F1 \(failed\)<", html) and not re.search(r">P1 \(failed\)<", html)
+    assert "each NPV is over the least that puts it back in service now" in html
+    book = load_workbook(tmp_path / "pack" / WORKBOOK_NAME)
+    ws = book["Results"]
+    header = [c.value for c in ws[3]]
+    col_asset, col_failed = header.index("Asset") + 1, header.index("Motor has failed") + 1
+    marks = {ws.cell(r, col_asset).value: ws.cell(r, col_failed).value for r in range(4, ws.max_row + 1)}
+    assert marks["F1"] == "yes" and marks["P1"] == "no"
+    eol = book["End of life"]
+    rows = [[c.value for c in r] for r in eol.iter_rows()]
+    f1 = next(r for r in rows if r and r[0] == "F1")
+    assert "yes" in f1 and any(v in ("replace it now", "rewind it now") for v in f1)

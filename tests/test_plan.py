@@ -471,3 +471,29 @@ def test_solves_print_no_banner_and_lose_no_line_of_other_threads(threads, solve
                          cwd=Path(__file__).resolve().parents[1], check=True).stdout
     assert "HiGHS" not in out  # the banner ("Running HiGHS ...") stays hidden
     assert out.splitlines() == [f"line {i}" for i in range(lines)] + ["done"]
+
+
+class TestLatestStart:
+    """A project that may start only by a given plan year (a motor that has failed: year 0 or not at all)."""
+
+    # hand calculation: budgets 100 and 100, discount 8 %; a (NPV 90, capital 100) and b (NPV 50, capital 100).
+    # Free to start either year: a in year 0 and b in year 1, 90 + 50 / 1.08 = 136.30. With b in year 0 only:
+    # a in year 0 alone is 90; b in year 0 and a in year 1 is 50 + 90 / 1.08 = 133.33, the best.
+    ARGS = (["a/1", "b/1"], ["a", "b"], [90.0, 50.0], [100.0, 100.0], [100.0, 100.0], 0.08)
+
+    def test_exact_plan_keeps_the_project_to_its_years(self):
+        free = plan.plan_exact(*self.ARGS, **EXACT)
+        assert dict(zip(free.chosen["project_id"], free.chosen["start_yr"])) == {"a/1": 0, "b/1": 1}
+        assert free.total_npv == pytest.approx(90.0 + 50.0 / 1.08)
+        held = plan.plan_exact(*self.ARGS, latest_start_yr=[np.inf, 0], **EXACT)
+        assert dict(zip(held.chosen["project_id"], held.chosen["start_yr"])) == {"b/1": 0, "a/1": 1}
+        assert held.total_npv == pytest.approx(50.0 + 90.0 / 1.08)
+
+    def test_rank_order_plan_skips_a_project_whose_years_are_spent(self):
+        # by profitability index a (0.9) goes first into year 0; b fits only year 1, closed to it: left out
+        held = plan.plan_greedy(*self.ARGS, latest_start_yr=[np.inf, 0])
+        assert held.chosen["project_id"].tolist() == ["a/1"] and held.total_npv == pytest.approx(90.0)
+
+    def test_a_negative_latest_start_is_refused(self):
+        with pytest.raises(ValueError, match="latest_start_yr"):
+            plan.plan_exact(*self.ARGS, latest_start_yr=[-1, 0])

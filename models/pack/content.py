@@ -252,8 +252,12 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
                 reason = "no option beats keeping today's motor on NPV"
                 short = "nothing beats today's motor"
             elif failed and float(pick["npv"]) <= FAILED_NPV_TOL * max(1.0, float(pick["capital"])):
+                better = rows[(rows["npv"] > FAILED_NPV_TOL * np.maximum(1.0, rows["capital"]))
+                              & (rows["option_id"] != pick["option_id"])]
                 reason = ("it has failed: the least that puts it back in service now, against which every option is "
-                          "counted; none beats it on NPV")
+                          "counted; " + ("none beats it on NPV" if better.empty else
+                                         "the options worth more priced alone add that value only beside the rest of "
+                                         "the plan at this site, which already takes it"))
                 short = "failed; least that puts it back in service"
             elif float(pick["npv"]) > 0 and not bool(pick["best_for_asset"]):
                 top = rows[rows["best_for_asset"]].iloc[0]
@@ -811,14 +815,25 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     if "failed" in res:
         failed_ids = [a_id for a_id in assets["asset_id"]
                       if res.loc[res["asset_id"] == a_id, "failed"].astype(bool).any()]
-        planned = set(result.plan["asset_id"]) if len(result.plan) else set()
-        outside = [a_id for a_id in failed_ids if a_id not in planned]
+        # a plan project that replaces the motor puts it back in service; an add-on (drive, capacitor) needs the
+        # repair besides, which the plan does not hold
+        from models.scenario import REPLACING_TECHNOLOGIES as REPLACING
+
+        replacing = set()
+        if len(result.plan):
+            tech = res.set_index(["asset_id", "option_id"])["technology"]
+            replacing = {a_id for a_id, o_id in zip(result.plan["asset_id"], result.plan["option_id"])
+                         if str(tech.get((a_id, o_id), "")) in REPLACING}
+        outside = [a_id for a_id in failed_ids if a_id not in replacing]
         if failed_ids:
-            detail = (f"{counted(len(failed_ids), 'motor')} of the asset register have failed: each option is counted "
-                      "against the least that puts the motor back in service now")
+            one = len(failed_ids) == 1
+            detail = (f"{counted(len(failed_ids), 'motor')} of the asset register {'has' if one else 'have'} failed: "
+                      "each option is counted against the least that puts the motor back in service now")
             if outside:
-                detail += (f"; {counted(len(outside), 'motor')} of them ({asset_list_text(outside)}) have no project in "
-                           "the plan, so their repair or replacement is not in the plan's capital")
+                single = len(outside) == 1
+                detail += (f"; {counted(len(outside), 'motor')} of them ({asset_list_text(outside)}) "
+                           f"{'has' if single else 'have'} no project in the plan that replaces the motor, so "
+                           f"{'its' if single else 'their'} repair or replacement is not in the plan's capital")
             add("assumption", "Motors that have failed", detail, asset_list_text(failed_ids),
                 "Book the repair or the replacement at once, and confirm the outage's hours with the repair shop or "
                 "the supplier.")

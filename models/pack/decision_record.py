@@ -142,7 +142,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     reasons = [reason[:1].upper() + reason[1:] + "."]
     least = ""
     if failed:
-        must_id = str(rec.get("must_spend_option_id", "") or "")
+        # the asset's least repair, named on each of its replacing options (an add-on recommended names none)
+        named = [str(m) for m in res.get("must_spend_option_id", pd.Series(dtype=str)) if isinstance(m, str) and m]
+        must_id = named[0] if named else ""
         must = res.loc[res["option_id"] == must_id]
         name = str(labels.get(must_id, must_id))
         name = name[:1].lower() + name[1:] if name[1:2].islower() else name  # "rewind", "new IE3 induction motor"
@@ -201,9 +203,20 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             text = (f"For the motor itself, now that it has failed ({labels.get(new_id, new_id)} vs rewind, the outage "
                     f"counted): cheaper to {'replace it now' if best_strategy == 'replace_now' else 'rewind it now'}, by "
                     f"{content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
+            text += (f" The options' NPVs above leave the outage out ({float(eol_row['new_lead_time_h']):.0f} h to "
+                     f"a new motor, {float(eol_row['rewind_lead_time_h']):.0f} h to a rewound one"
+                     + ("; a new machine of another kind may take longer" if rec["technology"] not in
+                        ("rewind", "induction") and rec["technology"] in REPLACING_TECHNOLOGIES else "") + ")")
             if best_strategy == "replace_now" and rec["technology"] == "rewind":
-                text += (" The options' NPVs above leave the outage out; with it counted, a new motor beats the "
-                         "rewind.")
+                text += ": with it counted, a new motor beats the rewind."
+            elif best_strategy == "rewind_at_failure" and rec["technology"] in REPLACING_TECHNOLOGIES \
+                    and rec["technology"] != "rewind":
+                sooner = float(eol_row["rewind_lead_time_h"]) < float(eol_row["new_lead_time_h"])
+                text += (": with it counted, the rewind costs less than a new motor"
+                         + ("; it is back in service sooner: weigh the recommended machine's longer outage before "
+                            "ordering it." if sooner else "."))
+            else:
+                text += "."
         else:
             text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
                     f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
@@ -218,6 +231,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         reasons.append("Not in the fleet plan: the motor needs a way back into service at once whatever the plan, "
                        f"so book {content.money(float(rec['capital']), cur) if not is_keep else 'its repair'} for it "
                        "on its own.")
+    elif failed and rec["technology"] not in REPLACING_TECHNOLOGIES and not is_keep:
+        reasons.append(f"The {rec['label'][:1].lower() + rec['label'][1:]} needs the motor repaired first: {least} is "
+                       "not in this request; book it on its own, at once.")
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")

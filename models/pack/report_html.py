@@ -172,9 +172,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     option_ids = [o for o in dict.fromkeys(res["option_id"]) if o not in set(keep_ids)]
     labels = option_labels(result.results)  # every option of the catalogue the run priced, as it names them
     npv = res.set_index(["asset_id", "option_id"])["npv"]
+    failed_ids = set(res.loc[res["failed"].astype(bool), "asset_id"]) if "failed" in res else set()
     matrix_rows = []
     for asset_id in scope.asset_ids:
-        cells = [cell(asset_id, "id")]
+        cells = [cell(f"{asset_id} (failed)" if asset_id in failed_ids else asset_id, "id")]
         for o in option_ids:
             if (asset_id, o) in npv.index:
                 c = num(float(npv[(asset_id, o)]))
@@ -188,7 +189,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     flows = content.portfolio_flows(result, chosen)
     credited = [content.plan_credit_share(result, r.asset_id, r.option_id) for r in chosen.itertuples(index=False)]
     credited = [x for x in credited if x is not None]
-    flow_note = (f"{counted(len(credited), 'reactive project')} credited {min(credited):.0%}-{max(credited):.0%} of "
+    share_text = (f"{min(credited):.0%}" if credited and f"{min(credited):.0%}" == f"{max(credited):.0%}"
+                  else f"{min(credited):.0%}-{max(credited):.0%}" if credited else "")
+    flow_note = (f"{counted(len(credited), 'reactive project')} credited {share_text} of "
                  f"{'its' if len(credited) == 1 else 'their'} own bill saving; the workbook's cash-flow blocks show "
                  "each project priced alone") if credited else ""
     flow_rows = [row([cell(int(r.year), "num"), num(r.net), num(r.cumulative), num(r.discounted), num(r.cumulative_discounted)])
@@ -275,7 +278,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     appendix = []
     for asset_id in scope.asset_ids:
         frame = res[(res["asset_id"] == asset_id) & (res["option_id"] != keep_ids[asset_id])]
-        appendix.append({"title": f"{asset_id}: {assets.loc[asset_id, 'description'] or ''}",
+        appendix.append({"title": f"{asset_id}: {assets.loc[asset_id, 'description'] or ''}"
+                                  + (" (failed: NPVs over the least that puts it back in service now)"
+                                     if asset_id in failed_ids else ""),
                          "rows": _option_rows(frame, cur, horizon, rec_keys)})
 
     figs = {
@@ -301,6 +306,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "asset_headers": ["Asset", "Description", "Site", "Application", power_label(s.power_unit), "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),
+        "failed_note": (" For a motor marked (failed), each NPV is over the least that puts it back in service now "
+                        "(a rewind or the cheapest new motor the rules allow), not over keeping it."
+                        if failed_ids else ""),
         "matrix_headers": ["Asset"] + [labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
         "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
         "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,

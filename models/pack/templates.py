@@ -115,7 +115,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 {{ table(asset_headers, asset_rows, asset_numeric) }}
 
 <h2 id="options">3. Options compared</h2>
-<p class="small">NPV of each option over keeping today's motor ({{ currency }}); the recommended option is shaded; a dash means the option does not apply. Full tables per asset are in the appendix and the workbook ('Results').</p>
+<p class="small">NPV of each option over keeping today's motor ({{ currency }}); the recommended option is shaded; a dash means the option does not apply. Full tables per asset are in the appendix and the workbook ('Results').{{ failed_note }}</p>
 {{ table(matrix_headers, matrix_rows, matrix_numeric, "matrix") }}
 
 <h2 id="savings">4. Savings by component</h2>

@@ -30,7 +30,7 @@ from openpyxl.worksheet.worksheet import Worksheet
 
 from models.case import default_value, power_label, rating_in_unit
 from models.end_of_life import STRATEGY_NAMES, failure_law_caution
-from models.exports import FORMULA_STARTS
+from models.exports import FORMULA_STARTS, plan_with_savings
 from models.pack import content
 from models.plan import option_labels
 from models.wording import line_item_text
@@ -372,7 +372,7 @@ _RESULT_COLUMNS = [
     ("discounted_payback_lost_text", "Discounted payback lost again by the horizon's end", None),
     ("life_cycle_cost", "Life-cycle cost", "money"), ("profitability_index", "Profitability index [-]", "number"),
     ("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", "number"), ("abatement_cost_per_t", "Abatement cost [/t]", "money"),
-    ("flags", "Flags", None),
+    ("failed_text", "Motor has failed", None), ("flags", "Flags", None),
 ]
 
 
@@ -395,7 +395,8 @@ def _engine_irr(value: float, status: str) -> Any:
 
 def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_unit: str = "kW") -> None:
     _title(ws, "Options compared, per asset in scope (one row per asset x option; money per year at base-year prices)")
-    put_text(ws, 2, 1, "Each option priced alone against today's bill. The Plan sheet counts a reactive project of the "
+    put_text(ws, 2, 1, "Each option priced alone against today's bill (for a motor that has failed, against the least "
+                       "that puts it back in service now). The Plan sheet counts a reactive project of the "
                        "plan at the share of its bill saving it adds beside the plan's other projects, and at its plan "
                        "year: its plan NPV can be lower than the NPV here.")
     res = result.results[result.results["asset_id"].isin(list(scope.asset_ids))].copy()
@@ -416,6 +417,9 @@ def _results(ws: Worksheet, result, scope: content.Scope, f: _Formats, power_uni
         column = f"{basis}_payback_lost_again"
         lost = res[column].to_numpy(dtype=bool) if column in res else np.zeros(len(res), dtype=bool)
         res[f"{basis}_payback_lost_text"] = np.where(lost, "yes", "no")
+    # a motor that has failed: its options' savings and NPVs are over the least that puts it back in service
+    failed = res["failed"].to_numpy(dtype=bool) if "failed" in res else np.zeros(len(res), dtype=bool)
+    res["failed_text"] = np.where(failed, "yes", "no")
     res["rated_p_kw"] = rating_in_unit(res["rated_p_kw"].to_numpy(dtype=float), power_unit)  # shown in the case's unit
     fmt = {"money": f.money, "frac": f.frac, "years": f.years, "number": f.number, "whole": f.whole, None: None}
     cols = [(c, _with_currency(h, f.currency) if k == "money" else
@@ -728,9 +732,15 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         put_text(ws, row, 1, name).font = _BOLD
         row += 1
         _header(ws, row, ["Plan year", "Asset", "Option", "Label", f"Capital [{cur}]", f"NPV at its own start [{cur}]",
-                          f"NPV at plan start (engine) [{cur}]", f"NPV at plan start (formula) [{cur}]", "In this pack"])
+                          f"NPV at plan start (engine) [{cur}]", f"NPV at plan start (formula) [{cur}]", "In this pack",
+                          f"Yearly saving as the plan counts it [{cur}/yr]"])
         first = row + 1
         labels = result.results.set_index(["asset_id", "option_id"])["label"]
+        # bill and maintenance saving per year, a reactive project of the exact plan at its credited share
+        # (plan.csv's saving_counted_per_yr; summed, the Read me's yearly saving)
+        shares = (result.plan_status or {}).get("repriced") if name == "Exact plan" else None
+        counted_saving = plan_with_savings(frame, result.results, shares).set_index(
+            ["asset_id", "option_id"])["saving_counted_per_yr"] if len(frame) else pd.Series(dtype=float)
         sums = by_year.setdefault(name, {})
         for r in frame.sort_values(["start_yr", "asset_id"], kind="stable").itertuples(index=False):
             row += 1
@@ -756,6 +766,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             year_sums[1] += 1
             year_sums[2] += at_start
             put_text(ws, row, 9, "yes" if f"{r.asset_id}/{r.option_id}" in in_scope else "no")
+            put(ws, row, 10, float(counted_saving.get((r.asset_id, r.option_id), np.nan)), f.money)
         last = max(row, first)
         ranges[name] = (first, last)
         row += 2
@@ -896,7 +907,10 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         frame = frame.assign(new_option_id=frame["new_option_id"].map(lambda o: labels.get(o, o)),
                              best_strategy=frame["best_strategy"].map(lambda b: STRATEGY_NAMES.get(b, b)))
         if "failed" in frame:  # a motor that has failed: its costs are of replacing or rewinding it now
-            frame = frame.assign(failed=frame["failed"].map(lambda v: "yes" if bool(v) else "no"))
+            now = {"replace now": "replace it now", "rewind at failure": "rewind it now"}
+            frame = frame.assign(best_strategy=[now.get(b, b) if bool(x) else b
+                                                for b, x in zip(frame["best_strategy"], frame["failed"])],
+                                 failed=frame["failed"].map(lambda v: "yes" if bool(v) else "no"))
         cols = [("asset_id", "Asset", None), ("age_yr", "Age [yr]", "0"), ("new_option_id", "New motor option", None)]
         cols += [("failed", "Has failed", None)] if "failed" in frame else []
         cols += [("failure_probability_in_horizon_frac", "Failure probability in horizon [%]", f.frac),
