@@ -1965,7 +1965,7 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
         clause += f" (mean residual life {life:.1f} yr)" if math.isfinite(life) else ""
         facts.append(clause if facts else clause[:1].upper() + clause[1:])
     second = "; ".join(facts) + "." if facts else ""
-    rewound = rewind_life_note(rewind_count)
+    rewound = "" if failed else rewind_life_note(rewind_count)  # (a failure law says nothing once it has failed)
     if rewound:
         second += (" " if second else "") + rewound
     new_id = row["new_option_id"] if "new_option_id" in row.index else None

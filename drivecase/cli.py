@@ -81,6 +81,15 @@ def cmd_check(args: argparse.Namespace) -> int:
     print(f"  {counted(len(case.assets), 'asset')}, {rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.1f} {unit} installed, "
           f"{counted(len(case.sites), 'site')}, {counted(len(case.profiles), 'interval profile')}; currency {s.currency}; zone {s.time_zone}; "
           f"rules of region {s.region} on the purchase date {s.purchase_date}")
+    from models.scenario import failed_assets
+
+    failed = list(case.assets.loc[failed_assets(case.assets), "asset_id"])
+    if failed:  # said here, so that a mark on the wrong row is seen before the results are read
+        print(f"  {counted(len(failed), 'motor')} marked as failed (asset register column failed): {', '.join(failed)}")
+    if len(case.bill_history):
+        print(f"  Bill history: {counted(len(case.bill_history), 'bill')} of "
+              f"{counted(case.bill_history['site_id'].nunique(), 'site')} (drivecase bill and run set the model "
+              "beside them)")
     summary = fleet_summary(case)
     for key in ("by_site", "by_application"):
         table = summary[key]
@@ -455,6 +464,10 @@ def _print_run_summary(case, result) -> None:
     print(f"\nCase: {case.settings.name}")
     print(f"  {counted(len(case.assets), 'asset')} ({rating_in_unit(case.assets['rated_p_kw'].sum(), unit):,.0f} {unit} "
           f"installed); best option differs from today's motor for {len(best)} of them")
+    failed = list(case.assets.loc[scenario.failed_assets(case.assets), "asset_id"])
+    if failed:
+        print(f"  {counted(len(failed), 'motor')} marked as failed, each option counted over the least that puts it "
+              f"back in service now: {', '.join(failed)}")
     under = "under the budget" if len(result.assumptions.budget_per_yr) else "with no budget limit"
     # the yearly saving as the plan counts it (a reactive project at its share beside the others), the pack's headline
     from models.pack.content import plan_counted

@@ -457,7 +457,7 @@ class _TableChecker:
                 elif text in ("false", "no", "0", "n", "0.0"):
                     flags.append(False)
                 else:
-                    self.err(i, name, value, f"'{name}' must be true or false")
+                    self.err(i, name, value, f"'{name}' must be true or false (yes or no, 1 or 0)")
                     flags.append(None)
             return pd.Series(flags, dtype=object)
         if dtype == "category":

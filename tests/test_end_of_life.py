@@ -474,3 +474,14 @@ def test_a_failed_motor_is_marked_in_the_report_and_the_workbook(tmp_path):
     rows = [[c.value for c in r] for r in eol.iter_rows()]
     f1 = next(r for r in rows if r and r[0] == "F1")
     assert "yes" in f1 and any(v in ("replace it now", "rewind it now") for v in f1)
+
+
+def test_check_and_run_name_the_motors_marked_as_failed(tmp_path, capsys):
+    from drivecase.cli import main
+
+    case = _failed_case(tmp_path, ["", "yes", "yes"])
+    assert main(["check", str(case.path)]) == 0
+    assert "2 motors marked as failed (asset register column failed): F1, C1" in capsys.readouterr().out
+    assert main(["run", str(case.path), "--out", str(tmp_path / "out"), "--no-risk", "--quiet"]) == 0
+    out = capsys.readouterr().out
+    assert "2 motors marked as failed, each option counted over the least that puts it back in service now: F1, C1" in out
