@@ -485,3 +485,19 @@ def test_check_and_run_name_the_motors_marked_as_failed(tmp_path, capsys):
     assert main(["run", str(case.path), "--out", str(tmp_path / "out"), "--no-risk", "--quiet"]) == 0
     out = capsys.readouterr().out
     assert "2 motors marked as failed, each option counted over the least that puts it back in service now: F1, C1" in out
+
+
+def test_a_failed_motor_s_measurement_plan_takes_the_least_repair_as_its_baseline(tmp_path):
+    # a motor that has failed cannot be logged before the change: the baseline is the modelled rewound motor
+    # (its must-spend), as results.csv gives it
+    from models import scenario
+    from models.pack import content
+
+    case = _failed_case(tmp_path, ["", "", "yes"])
+    result = scenario.run(case, case.finance, with_risk=False)
+    r = result.results.set_index(["asset_id", "option_id"])
+    project = result.results[(result.results["asset_id"] == "C1") & (result.results["option_id"] == "ie4")]
+    plan = content.mv_plan(result, project).iloc[0]
+    assert plan["measure"].startswith("after the change only (the motor has failed: the baseline is the modelled Rewind)")
+    assert plan["baseline_energy_kwh_per_yr"] == pytest.approx(r.loc[("C1", "rewind"), "energy_kwh_per_yr"])
+    assert plan["baseline_speed_rpm"] == pytest.approx(r.loc[("C1", "rewind"), "mean_speed_rpm"])

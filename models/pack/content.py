@@ -493,6 +493,11 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
         i = op.asset_position(r.asset_id)
         o = op.option_position(r.option_id)
         keep_o = 0
+        # a motor that has failed cannot be logged before the change: its baseline is the modelled least repair
+        row_ = res.loc[(r.asset_id, r.option_id)]
+        base_id = str(row_.get("must_spend_option_id", "") or "") if bool(row_.get("failed", False)) else ""
+        if base_id:
+            keep_o = op.option_position(base_id)
         hours = float(op.running_h[i])
         kwh = op.energy_kwh[i, [keep_o, o]]
         kvarh = op.lagging_kvarh[i, [keep_o, o]] - op.leading_kvarh[i, [keep_o, o]]
@@ -512,13 +517,17 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
                     "running hours"]
         if tech == "wound_field":
             what.append("field current and site power factor (over-excitation setpoint)")
+        measure = "; ".join(what)
+        if base_id:
+            measure = ("after the change only (the motor has failed: the baseline is the modelled "
+                       f"{res.loc[(r.asset_id, base_id), 'label']}): " + measure)
         rows.append({
             "asset_id": r.asset_id, "option_id": r.option_id, "ipmvp_option": option, "duration_weeks": weeks,
-            "measure": "; ".join(what),
+            "measure": measure,
             "running_h_per_yr": hours,
             "baseline_energy_kwh_per_yr": float(kwh[0]), "baseline_mean_p_kw": float(mean_kw[0]),
             "baseline_power_factor": float(pf[0]),
-            "baseline_speed_rpm": float(res.loc[(r.asset_id, keep[r.asset_id]), "mean_speed_rpm"]),
+            "baseline_speed_rpm": float(res.loc[(r.asset_id, base_id or keep[r.asset_id]), "mean_speed_rpm"]),
             "expected_energy_kwh_per_yr": float(kwh[1]), "expected_mean_p_kw": float(mean_kw[1]),
             "expected_power_factor": float(pf[1]), "expected_speed_rpm": float(r.mean_speed_rpm),
         })
