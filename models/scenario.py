@@ -946,11 +946,13 @@ def _plan(results, capital_spend, project_ids, assumptions, d, settings: PlanSet
     latest_all = np.where(failed, 0.0, np.inf)
 
     def latest(left_out, values):
+        if not failed.any():
+            return None
         values = results["npv"].to_numpy() if values is None else np.asarray(values, dtype=float)
         candidates = not_today & (values > 0)
         if len(left_out):
             candidates &= ~labels.isin(list(left_out))
-        return latest_all[candidates] if failed.any() else None
+        return latest_all[candidates]
 
     args = inputs(exclude, npv)
     if exact is None:
