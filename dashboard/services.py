@@ -1084,7 +1084,10 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "asset_id": best["asset_id"].to_numpy(dtype=object),
         "site_id": best["site_id"].to_numpy(dtype=object),
         "application": assets["application"].reindex(best["asset_id"]).to_numpy(dtype=object),
-        "description": assets["description"].reindex(best["asset_id"]).to_numpy(dtype=object),
+        # a motor that has failed says so where it is ranked (its options count over the least repair)
+        "description": [f"{d or ''} (failed)".strip() if bool(f) else d for d, f in zip(
+            assets["description"].reindex(best["asset_id"]).to_numpy(dtype=object),
+            best["failed"].to_numpy(dtype=bool) if "failed" in best else np.zeros(len(best), dtype=bool))],
         "rating": rating_in_unit(best["rated_p_kw"].to_numpy(dtype=float), view_.power_unit),
         "best_option": best["label"].to_numpy(dtype=object),
         "option_id": best["option_id"].to_numpy(dtype=object),

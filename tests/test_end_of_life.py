@@ -501,3 +501,17 @@ def test_a_failed_motor_s_measurement_plan_takes_the_least_repair_as_its_baselin
     assert plan["measure"].startswith("after the change only (the motor has failed: the baseline is the modelled Rewind)")
     assert plan["baseline_energy_kwh_per_yr"] == pytest.approx(r.loc[("C1", "rewind"), "energy_kwh_per_yr"])
     assert plan["baseline_speed_rpm"] == pytest.approx(r.loc[("C1", "rewind"), "mean_speed_rpm"])
+
+
+def test_the_fleet_ranking_marks_a_failed_motor(tmp_path):
+    from types import SimpleNamespace
+
+    from dashboard import services
+    from models import scenario
+
+    case = _failed_case(tmp_path, ["", "yes", ""])
+    result = scenario.run(case, case.finance, with_risk=False)
+    ranked = services.ranked_assets(SimpleNamespace(case=case, power_unit="kW"), result).set_index("asset_id")
+    descriptions = case.assets.set_index("asset_id")["description"]
+    assert ranked.loc["F1", "description"] == f"{descriptions['F1'] or ''} (failed)".strip()
+    assert ranked.loc["P1", "description"] == descriptions["P1"]
