@@ -44,7 +44,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
         ui.data_grid(OPTIONS, height="auto", getRowId="params.data.option_id",
                      dashGridOptions={"domLayout": "autoHeight"}),
         html.Div([html.Div(ui.graph(LCC), className="panel half"),
-                  html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor; the diamond "
+                  html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor (against the "
+                                                   "least repair, for a motor marked as failed); the diamond "
                                                    "marks its discounted payback, where the line crosses zero.",
                                                    className="page-intro")], className="panel half")],
                  className="row"),
@@ -62,7 +63,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
         html.H3("At end of life"),
         html.P("What today's motor costs if it is replaced now, replaced when it fails, or rewound when it fails: "
                "capital, running cost and expected downtime over the study period, each year weighted by the "
-               "chance that the motor fails in it.", className="page-intro"),
+               "chance that the motor fails in it. For a motor marked as failed: what rewinding or replacing it now "
+               "costs, the outage until it runs again included.", className="page-intro"),
         html.Div([html.Div(ui.graph(END_OF_LIFE), className="panel half"),
                   html.Div(dcc.Loading(html.Div("Computing the case…", id=END_OF_LIFE_TEXT), type="dot",
                                        delay_show=400), className="panel half")], className="row"),
