@@ -106,11 +106,18 @@ class TestCaseTable:
                    for t in said), said
         assert any("row 6, column 'energy_kwh'" in t for t in said), said
 
-    def test_a_case_without_bills_has_an_empty_history(self):
+    def test_a_case_without_bills_has_an_empty_history(self, tmp_path):
+        import casebuilder as cb
+        from models.case import load_case
+
+        case, _ = load_case(cb.write_case(tmp_path / "c"))
+        assert case.bill_history.empty
+
+    def test_the_demo_gives_a_year_of_invented_bills_per_site(self):
         from models.case import load_case
 
         case, _ = load_case(REPO / "data" / "demo")
-        assert case.bill_history.empty
+        assert case.bill_history.groupby("site_id").size().to_dict() == {"HRW": 12, "KGQ": 12}
 
 
 def test_run_and_bill_commands_compare_the_model_with_the_bills(tmp_path, capsys):
@@ -138,8 +145,10 @@ def test_run_and_bill_commands_compare_the_model_with_the_bills(tmp_path, capsys
     out = capsys.readouterr().out
     assert "against the bills the case gives" in out and "2024-03" in out and "energy billed [kWh]" in out
     # a run without bills writes both files with their headers only
-    assert main(["run", str(REPO / "data" / "demo"), "--out", str(tmp_path / "p"), "--no-risk", "--quiet"]) == 0
+    (case / "bill_history.csv").unlink()
+    assert main(["run", str(case), "--out", str(tmp_path / "p"), "--no-risk", "--quiet"]) == 0
     assert pd.read_csv(tmp_path / "p" / "calibration.csv").empty
+    assert pd.read_csv(tmp_path / "p" / "calibration_months.csv").empty
 
 
 def test_the_pack_states_the_fit_and_registers_a_model_off_the_bills(demo_run_physics):
@@ -165,4 +174,5 @@ def test_the_pack_states_the_fit_and_registers_a_model_off_the_bills(demo_run_ph
     assert row["category"] == "data" and "energy: the model reads" in row["detail"] and "above the bills" in row["detail"]
     assert not (register["item"] == "Model off the bills at site KGQ").any()
     # without bills: no such row
-    assert not content.risk_register(case, result, scope)["item"].str.startswith("Model off the bills").any()
+    without = dataclasses.replace(case, bill_history=history.iloc[0:0])
+    assert not content.risk_register(without, result, scope)["item"].str.startswith("Model off the bills").any()
