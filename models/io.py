@@ -819,22 +819,25 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
             case.problems.append(warning(f"{path.name}:{name}", None, None, None,
                                          f"two sheets are named '{name}' apart from case or spaces; only '{sheets[normalise_header(name)]}' was read",
                                          "delete or rename one of them"))
-    known = set(CASE_TABLES) | {"case", "finance", "instructions", "read me", "readme"}
+    # sheet names are looked up as headers are (normalise_header: case, spaces and underscores folded), so a
+    # table whose name holds an underscore ("bill_history") is found under its folded key
+    table_key = {table: normalise_header(table) for table in CASE_TABLES}
+    known = set(table_key.values()) | {"case", "finance", "instructions", "read me", "readme"}
     for key, name in sheets.items():
         if key not in known and not key.startswith("tariff"):
             case.problems.append(warning(f"{path.name}:{name}", None, None, None,
                                          "sheet not part of the case format; it was ignored",
                                          f"case sheets are: {', '.join(CASE_TABLES)}, case"))
     for table in CASE_TABLES:
-        if table not in sheets:
+        if table_key[table] not in sheets:
             continue
-        sheet = book[sheets[table]]
-        source = f"{path.name}:{sheets[table]}"
+        sheet = book[sheets[table_key[table]]]
+        source = f"{path.name}:{sheet.title}"
         if sheet.sheet_state != "visible":
             case.problems.append(warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
                                          "unhide it to check what it holds"))
         fill = _merged_fill(sheet, source, case.problems)
-        formulas = _formula_cells(formula_book[sheets[table]] if formula_book is not None else None, sheet)
+        formulas = _formula_cells(formula_book[sheet.title] if formula_book is not None else None, sheet)
         raw, problems = _sheet_table(sheet, table, source, fill, formulas, _hidden_rows(sheet))
         case.tables[table] = raw
         case.problems += problems

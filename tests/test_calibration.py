@@ -176,3 +176,31 @@ def test_the_pack_states_the_fit_and_registers_a_model_off_the_bills(demo_run_ph
     # without bills: no such row
     without = dataclasses.replace(case, bill_history=history.iloc[0:0])
     assert not content.risk_register(without, result, scope)["item"].str.startswith("Model off the bills").any()
+
+
+def test_a_workbook_case_reads_its_bill_history_sheet_date_cells_too(tmp_path):
+    # a workbook's bill_history sheet (the blank template has one): month cells as text or as real date cells
+    import datetime as dt
+
+    from openpyxl import load_workbook
+
+    from drivecase.cli import main
+    from models.case import load_case
+
+    assert main(["new", str(tmp_path / "wb"), "--workbook"]) == 0
+    path = next((tmp_path / "wb").glob("*.xlsx"))
+    book = load_workbook(path)
+    assert "bill_history" in book.sheetnames
+    _, problems = load_case(path)
+    assert not any("bill_history" in str(p) and "ignored" in str(p) for p in problems)
+    ws = book["bill_history"]
+    header_row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "site_id")
+    ws.cell(header_row + 1, 1, "S1"), ws.cell(header_row + 1, 2, dt.datetime(2024, 3, 1))
+    ws.cell(header_row + 1, 3, 1000)
+    ws.cell(header_row + 2, 1, "S1"), ws.cell(header_row + 2, 2, "2024-04"), ws.cell(header_row + 2, 3, 900)
+    from models import io as case_io
+
+    book.save(path)
+    table = case_io.read_case_files(path).tables["bill_history"].frame
+    months = [str(v)[:7] for v in table["month"]]
+    assert months == ["2024-03", "2024-04"]
