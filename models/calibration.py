@@ -200,12 +200,15 @@ def summary_text(row) -> str:
             "amount": "bill total"}[row["quantity"]]
     if not np.isfinite(row["nmbe_pct"]):
         return f"{what}: {int(row['n_months'])} month(s) billed, too few to judge the fit"
-    side = "below" if row["nmbe_pct"] > 0 else "above"
+    # the plain bias of the totals in words; the statistics (their (n - p) form) in brackets
+    billed, modelled = float(row["billed_total"]), float(row["modelled_total"])
+    bias_pct = 100.0 * (modelled - billed) / billed if billed > 0 else np.nan
+    side = "above" if bias_pct > 0 else "below"
     verdict = ("within" if row["within_criteria"] else "outside") + (
         f" the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)")
     few = " (the criteria are meant for a year of bills)" if int(row["n_months"]) < 12 else ""
-    return (f"{what}: the model reads {abs(row['nmbe_pct']):.1f} % {side} the bills over {int(row['n_months'])} "
-            f"month(s) (NMBE {row['nmbe_pct']:+.1f} %, CV(RMSE) {row['cv_rmse_pct']:.1f} %), {verdict}{few}")
+    return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over {int(row['n_months'])} "
+            f"month(s) (NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} %), {verdict}{few}")
 
 
 def calibrate(case, op) -> tuple[pd.DataFrame, pd.DataFrame]:

@@ -1631,8 +1631,14 @@ def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> No
     months = []
     for i, value in enumerate(b["month"]):
         text = "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value).strip()
+        day_ok = True
+        if len(text) >= 10 and text[7:8] == "-":  # a date (a workbook's date cell): its month, if a real day
+            try:
+                _dt.date.fromisoformat(text[:10])
+            except ValueError:
+                day_ok = False
         found = _MONTH_PATTERN.match(text[:7] if len(text) >= 10 and text[7:8] == "-" else text)
-        if text and (found is None or not 1 <= int(found.group(2)) <= 12):
+        if text and (found is None or not day_ok or not 1 <= int(found.group(2)) <= 12):
             checker.err(i, "month", value, "a billing month is written YYYY-MM", "e.g. 2024-03 for March 2024")
             months.append(None)
         else:
@@ -1648,6 +1654,10 @@ def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> No
                         f"{seen[k]})", "give each site one bill per month")
         else:
             seen[k] = int(checker.rows[i])
+    energy = pd.to_numeric(b["energy_kwh"], errors="coerce").to_numpy(dtype=float)
+    for i in np.flatnonzero(energy == 0):
+        checker.warn(i, "energy_kwh", 0, "a bill of 0 kWh: compared as it stands",
+                     "leave the row out where the month's reading is missing")
 
 
 def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]) -> dict:

@@ -65,9 +65,13 @@ class TestCompareAndSummarise:
         assert list(s.index) == ["energy_kwh", "peak_kw", "amount"]  # in the order of QUANTITIES
 
     def test_words_say_which_side_and_the_verdict(self):
-        row = {"quantity": "energy_kwh", "n_months": 12, "nmbe_pct": 6.0, "cv_rmse_pct": 9.0, "within_criteria": False}
+        # the words give the plain bias of the totals, (94 - 100) / 100 = -6 %: 6.0 % below; the statistics (their
+        # (n - 1) form) in brackets
+        row = {"quantity": "energy_kwh", "n_months": 12, "nmbe_pct": 6.5, "cv_rmse_pct": 9.0, "within_criteria": False,
+               "modelled_total": 94.0, "billed_total": 100.0}
         text = calibration.summary_text(row)
-        assert text.startswith("energy: the model reads 6.0 % below the bills over 12 month(s)")
+        assert text.startswith("energy: the model reads 6.0 % below the bills over 12 month(s) (NMBE +6.50 %, "
+                               "CV(RMSE) 9.00 %)")
         assert "outside the monthly criteria" in text and "meant for a year" not in text
 
     def test_modelled_months_by_hand(self):
@@ -105,6 +109,17 @@ class TestCaseTable:
         assert any("row 5, column 'month'" in t and "a second bill for site HRW in 2024-01 (first on row 2)" in t
                    for t in said), said
         assert any("row 6, column 'energy_kwh'" in t for t in said), said
+
+    def test_a_date_that_is_no_day_is_refused_and_a_zero_bill_warned(self, tmp_path):
+        from models.case import load_case
+
+        case = _demo_with_bills(tmp_path, "site_id,month,energy_kwh\nHRW,2024-03-99,1000\nHRW,2024-04-01,0\n")
+        loaded, problems = load_case(case)
+        assert loaded is None
+        assert any("row 2, column 'month'" in str(p) and p.severity == "error" for p in problems)
+        assert not any("row 3, column 'month'" in str(p) for p in problems)  # a real day: its month
+        assert any("row 3, column 'energy_kwh'" in str(p) and "0 kWh" in str(p) and p.severity == "warning"
+                   for p in problems)
 
     def test_a_case_without_bills_has_an_empty_history(self, tmp_path):
         import casebuilder as cb
@@ -166,8 +181,8 @@ def test_the_pack_states_the_fit_and_registers_a_model_off_the_bills(demo_run_ph
     with_bills = dataclasses.replace(case, bill_history=history)
     result = scenario.economics(with_bills, phys, case.finance, with_risk=False)
     basis = {item: (value, note) for item, value, note in content.basis_rows(with_bills, result)}
-    assert basis["Today's fleet against the bills of site HRW"][0] == "outside the monthly criteria"
-    assert basis["Today's fleet against the bills of site KGQ"][0] == "too few months to judge"
+    assert basis["Today's fleet against the bills of site HRW"][0] == "energy: outside the monthly criteria"
+    assert basis["Today's fleet against the bills of site KGQ"][0] == "energy: too few months to judge"
     scope = content.select_scope(with_bills, result)
     register = content.risk_register(with_bills, result, scope)
     row = register[register["item"] == "Model off the bills at site HRW"].iloc[0]

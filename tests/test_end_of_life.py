@@ -426,6 +426,12 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     register = content.risk_register(case, result, scope)
     row = register[register["item"] == "Motors that have failed"].iloc[0]
     assert row["assets"] == "F1" and "not in the plan's capital" in row["detail"]
+    # a pack of the plan speaks for the fleet: it names the failed motor the plan leaves out
+    plan_scope = content.select_scope(case, result)
+    assert "F1" not in plan_scope.asset_ids
+    fleet_row = content.risk_register(case, result, plan_scope)
+    fleet_row = fleet_row[fleet_row["item"] == "Motors that have failed"].iloc[0]
+    assert fleet_row["assets"] == "F1" and "(F1) has no project in the plan that replaces the motor" in fleet_row["detail"]
     # the Asset page says the same above the options
     from dashboard import services
 

@@ -493,9 +493,11 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
         i = op.asset_position(r.asset_id)
         o = op.option_position(r.option_id)
         keep_o = 0
-        # a motor that has failed cannot be logged before the change: its baseline is the modelled least repair
+        # a motor that has failed cannot be logged before the change: the baseline of an option that replaces it
+        # is the modelled least repair; an add-on's, the motor as modelled (repaired, as before it failed)
         row_ = res.loc[(r.asset_id, r.option_id)]
-        base_id = str(row_.get("must_spend_option_id", "") or "") if bool(row_.get("failed", False)) else ""
+        failed_now = bool(row_.get("failed", False))
+        base_id = str(row_.get("must_spend_option_id", "") or "") if failed_now else ""
         if base_id:
             keep_o = op.option_position(base_id)
         hours = float(op.running_h[i])
@@ -518,9 +520,10 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
         if tech == "wound_field":
             what.append("field current and site power factor (over-excitation setpoint)")
         measure = "; ".join(what)
-        if base_id:
-            measure = ("after the change only (the motor has failed: the baseline is the modelled "
-                       f"{res.loc[(r.asset_id, base_id), 'label']}): " + measure)
+        if failed_now:
+            baseline = (f"the modelled {res.loc[(r.asset_id, base_id), 'label']}" if base_id
+                        else "the motor as modelled, repaired")
+            measure = f"after the change only (the motor has failed: the baseline is {baseline}): " + measure
         rows.append({
             "asset_id": r.asset_id, "option_id": r.option_id, "ipmvp_option": option, "duration_weeks": weeks,
             "measure": measure,
@@ -567,7 +570,8 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
                      name or (str(file) if isinstance(file, str) else "none"),
                      f"file {file}" if isinstance(file, str) else "no tariff file named"))
     for site_id, lines in bills_fit(case, result).items():
-        rows.append((f"Today's fleet against the bills of site {site_id}", lines[0][0],
+        verdicts = [f"{text.split(':')[0]}: {verdict}" for verdict, text in lines]  # each quantity's own
+        rows.append((f"Today's fleet against the bills of site {site_id}", "; ".join(verdicts),
                      "; ".join(text for _, text in lines) + " (docs/calibration.md)"))
     return rows
 
@@ -822,8 +826,10 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     # money the request does not yet hold
     res = result.results
     if "failed" in res:
-        failed_ids = [a_id for a_id in assets["asset_id"]
-                      if res.loc[res["asset_id"] == a_id, "failed"].astype(bool).any()]
+        # a pack of the plan speaks for the fleet: every failed motor, those the plan leaves out above all
+        pool = assets if scope.mode == "assets" else case.assets
+        failed_now = set(res.loc[res["failed"].astype(bool), "asset_id"])
+        failed_ids = [a_id for a_id in pool["asset_id"] if a_id in failed_now]
         # a plan project that replaces the motor puts it back in service; an add-on (drive, capacitor) needs the
         # repair besides, which the plan does not hold
         from models.scenario import REPLACING_TECHNOLOGIES as REPLACING
@@ -847,9 +853,10 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "Book the repair or the replacement at once, and confirm the outage's hours with the repair shop or "
                 "the supplier.")
     # a model of today's fleet off the site's own bills: a baseline to question before its savings are
+    in_scope_sites = set(assets["site_id"].astype(str))
     for site_id, lines in sorted(bills_fit(case, result).items()):
         off = [text for verdict, text in lines if verdict == "outside the monthly criteria"]
-        if off:
+        if off and site_id in in_scope_sites:
             add("data", f"Model off the bills at site {site_id}", "; ".join(off),
                 asset_list_text(list(assets.loc[assets["site_id"].astype(str) == site_id, "asset_id"])) or "all",
                 "Check the site's base load, the running hours and the loads of the largest motors against the "

@@ -232,8 +232,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                        f"so book {content.money(float(rec['capital']), cur) if not is_keep else 'its repair'} for it "
                        "on its own.")
     elif failed and rec["technology"] not in REPLACING_TECHNOLOGIES and not is_keep:
-        reasons.append(f"The {rec['label'][:1].lower() + rec['label'][1:]} needs the motor repaired first: {least} is "
-                       "not in this request; book it on its own, at once.")
+        reasons.append(f"This option ({rec['label']}) needs the motor back in service first, which this request does "
+                       f"not hold: book that on its own, at once ({least} is the least repair; the comparison below "
+                       "says whether a new motor costs less once the outage is counted).")
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")

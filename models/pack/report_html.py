@@ -253,7 +253,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     mv_protocol_rows = []
     for (option, weeks, measure), grp in mv.groupby(["ipmvp_option", "duration_weeks", "measure"], sort=True):
         projects = [project_text(a_, o_) for a_, o_ in zip(grp["asset_id"], grp["option_id"])]
-        mv_protocol_rows.append(row([cell(f"Option {option}"), cell(f"{weeks} weeks before and {weeks} after"), cell(measure),
+        logging = (f"{weeks} weeks after" if measure.startswith("after the change only")
+                   else f"{weeks} weeks before and {weeks} after")
+        mv_protocol_rows.append(row([cell(f"Option {option}"), cell(logging), cell(measure),
                                      cell(content.asset_list_text(projects, 12), "small")]))
     mv_rows = [row([cell(project_text(r.asset_id, r.option_id), "id"), cell(f"{r.ipmvp_option}, {r.duration_weeks} wk"),
                     num(r.baseline_energy_kwh_per_yr), num(r.baseline_mean_p_kw, "{:,.1f}"),
@@ -264,7 +266,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                "production: IPMVP Option A (key parameter measured: kW and PF, hours logged) for a like-for-like swap at "
                "unchanged duty, two weeks each side; Option B (all parameters metered) for a change in speed control, a "
                "full duty cycle of about four weeks each side. Compare with the modelled baselines below; a measured "
-               "baseline more than about 10 % away from the model calls for a re-run before the purchase order.")
+               "baseline more than about 10 % away from the model calls for a re-run before the purchase order. A motor "
+               "that has failed is logged after the change only, against the modelled baseline.")
 
     em_rows = [row([cell(project_text(r.asset_id, r.option_id)), num(r.energy_saved_kwh_per_yr), num(r.co2_avoided_t_per_yr, "{:,.2f}"),
                     num(r.abatement_cost_per_t, "{:,.0f}", signed=False)]) for r in chosen.itertuples(index=False)]
