@@ -199,6 +199,8 @@ def summary_text(row) -> str:
     what = {"energy_kwh": "energy", "peak_kw": "peak demand", "reactive_kvarh": "lagging kVArh",
             "amount": "bill total"}[row["quantity"]]
     if not np.isfinite(row["nmbe_pct"]):
+        if int(row["n_months"]) > PARAMETERS_P and not float(row["billed_total"]) > 0:
+            return f"{what}: billed as 0 in each of {int(row['n_months'])} month(s), nothing to judge the fit by"
         return f"{what}: {int(row['n_months'])} month(s) billed, too few to judge the fit"
     # the plain bias of the totals in words; the statistics (their (n - p) form) in brackets
     billed, modelled = float(row["billed_total"]), float(row["modelled_total"])

@@ -403,7 +403,9 @@ class _TableChecker:
                                 else "write a plain number, without a % sign")
                     if note.startswith("ambiguous"):
                         written = str(value).strip()
-                        hint = (f"write {written.replace(',', '')} without the comma, or {written.replace(',', '.')} "
+                        hint = (f"write {written.replace(',', '')} without the commas ({hint})"
+                                if written.count(",") > 1 else  # commas between thousands only
+                                f"write {written.replace(',', '')} without the comma, or {written.replace(',', '.')} "
                                 f"if the comma is a decimal mark ({hint})")
                     if note.startswith("a date"):
                         hint = f"format the cell as a number in the spreadsheet ({hint})"

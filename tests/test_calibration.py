@@ -219,3 +219,26 @@ def test_a_workbook_case_reads_its_bill_history_sheet_date_cells_too(tmp_path):
     table = case_io.read_case_files(path).tables["bill_history"].frame
     months = [str(v)[:7] for v in table["month"]]
     assert months == ["2024-03", "2024-04"]
+
+
+def test_the_workbook_carries_each_sites_fit(demo_run_physics, tmp_path):
+    # the demo's own bill history (invented, data/demo/bill_history.csv): the workbook's Assumptions sheet gives a
+    # row per site beside the tariffs, as the report's basis does
+    from openpyxl import load_workbook
+
+    from models import scenario
+    from models.pack import WORKBOOK_NAME, write_pack
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    write_pack(case, result, tmp_path / "pack", assets=["HRW-P01"])
+    ws = load_workbook(tmp_path / "pack" / WORKBOOK_NAME)["Assumptions"]
+    labels = {str(ws.cell(r, 1).value): str(ws.cell(r, 2).value) for r in range(1, ws.max_row + 1)}
+    assert labels["today's fleet against the bills of site HRW"].startswith("energy: within the monthly criteria")
+    assert "today's fleet against the bills of site KGQ" in labels
+
+
+def test_zero_bills_say_why_there_is_no_fit():
+    row = {"quantity": "energy_kwh", "n_months": 2, "nmbe_pct": np.nan, "cv_rmse_pct": np.nan,
+           "within_criteria": False, "modelled_total": 10.0, "billed_total": 0.0}
+    assert calibration.summary_text(row) == "energy: billed as 0 in each of 2 month(s), nothing to judge the fit by"

@@ -740,6 +740,12 @@ class TestHintsForOtherConventions:
         # one error for the cell: the hours were given, so they are not also said to be missing
         assert [p.rule for p in problems if p.row == 3 and p.severity == "error"] == [found.rule]
 
+    def test_commas_between_thousands_only_are_said_as_such(self, tmp_path):
+        # "1,500,000": two commas can only separate thousands; the hint does not offer a decimal reading
+        problems = self._with(tmp_path, "operating_h_per_yr", "1,500,000", asset=1)
+        found = _find(problems, column="operating_h_per_yr", row=3)
+        assert found.hint.startswith("write 1500000 without the commas (")
+
     def test_an_implausible_current_on_a_rating_in_hp_does_not_speak_of_watts(self, tmp_path):
         # 500 hp = 372.85 kW at 4.16 V: about 51,700 A, so the voltage was given in kV
         header = [("rated_p_hp" if h == "rated_p_kw" else h) for h in cb.ASSET_HEADER]

@@ -431,7 +431,7 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     assert "F1" not in plan_scope.asset_ids
     fleet_row = content.risk_register(case, result, plan_scope)
     fleet_row = fleet_row[fleet_row["item"] == "Motors that have failed"].iloc[0]
-    assert fleet_row["assets"] == "F1" and "(F1) has no project in the plan that replaces the motor" in fleet_row["detail"]
+    assert fleet_row["assets"] == "F1" and "of which F1 has no project in the plan that replaces the motor" in fleet_row["detail"]
     # the Asset page says the same above the options
     from dashboard import services
 

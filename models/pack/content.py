@@ -846,9 +846,9 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                       "each option is counted against the least that puts the motor back in service now")
             if outside:
                 single = len(outside) == 1
-                detail += (f"; {counted(len(outside), 'motor')} of them ({asset_list_text(outside)}) "
-                           f"{'has' if single else 'have'} no project in the plan that replaces the motor, so "
-                           f"{'its' if single else 'their'} repair or replacement is not in the plan's capital")
+                detail += (f"; of which {asset_list_text(outside)} {'has' if single else 'have'} no project in the "
+                           f"plan that replaces the motor, so {'its' if single else 'their'} repair or replacement is "
+                           "not in the plan's capital")
             add("assumption", "Motors that have failed", detail, asset_list_text(failed_ids),
                 "Book the repair or the replacement at once, and confirm the outage's hours with the repair shop or "
                 "the supplier.")
