@@ -1344,7 +1344,7 @@ def site_calibration_text(view_: View, site_id: str) -> list[str]:
     mine = summary[summary["site_id"].astype(str) == str(site_id)]
     if mine.empty:
         return ["none of its bills is of a month the model covers"]
-    return [calibration.summary_text(row) for row in mine.to_dict("records")]
+    return [calibration.summary_text(row, brief=True) for row in mine.to_dict("records")]
 
 
 def week_starts(view_: View) -> list[dict]:

@@ -194,8 +194,9 @@ def calibration_summary(comparison: pd.DataFrame) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=columns)
 
 
-def summary_text(row) -> str:
-    """One site's fit of one quantity in words, for the command line and the dashboard."""
+def summary_text(row, brief: bool = False) -> str:
+    """One site's fit of one quantity in words: for the command line and the pack, or ``brief`` (the bias and
+    the verdict only) for a page's summary line."""
     what = {"energy_kwh": "energy", "peak_kw": "peak demand", "reactive_kvarh": "lagging kVArh",
             "amount": "bill total"}[row["quantity"]]
     if not np.isfinite(row["nmbe_pct"]):
@@ -209,6 +210,9 @@ def summary_text(row) -> str:
     verdict = ("within" if row["within_criteria"] else "outside") + (
         f" the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)")
     few = " (the criteria are meant for a year of bills)" if int(row["n_months"]) < 12 else ""
+    if brief:  # the statistics the criteria judge, beside them
+        return (f"{what} NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} % over "
+                f"{int(row['n_months'])} month(s), {'within' if row['within_criteria'] else 'outside'} the criteria")
     return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over {int(row['n_months'])} "
             f"month(s) (NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} %), {verdict}{few}")
 

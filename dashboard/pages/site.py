@@ -108,8 +108,10 @@ def update(site_id, week, session, edits):
         summary += [html.Br(), html.Span("Caution: " + demand_window_text(*coarse) + ".", className="small caution")]
     fit = services.site_calibration_text(view, site_id)
     if fit:  # the model of today's fleet beside the bills the case gives (docs/calibration.md)
-        summary += [html.Br(), html.Span("Today's fleet as modelled against the site's bills (bill history): "
-                                         + "; ".join(fit) + ".", className="small", id="site-calibration")]
+        summary += [html.Br(), html.Span("Today's fleet as modelled against the site's bills (bill history; monthly "
+                                         "criteria |NMBE| <= 5 %, CV(RMSE) <= 15 %; NMBE above 0: the model reads below the "
+                                         "bills): " + "; ".join(fit) + ".",
+                                         className="small", id="site-calibration")]
     for line in banned_quantities(result.bills[result.bills["site_id"] == site_id]).itertuples(index=False):
         summary += [html.Br(), html.Span("Caution: " + banned_caution(line) + ".", className="small caution")]
     return (figures.meter_week(services.week_slice(site, week)),
