@@ -286,9 +286,7 @@ def _print_calibration(case, meters, bills, op, sites) -> None:
     history = case.bill_history
     if history is None or history.empty:
         return
-    modelled = calibration.modelled_months(meters, bills, op.index, op.interval_h)
-    comparison = calibration.compare_with_bills(modelled, history)
-    summary = calibration.calibration_summary(comparison)
+    comparison, summary = calibration.fit_to_bills(meters, bills, op, history)
     currency = case.settings.currency
     print("\nToday's fleet as modelled against the bills the case gives (bill_history; a bill of another year is set "
           "beside the same calendar month of the analysis year; amounts at the tariff as written)")

@@ -195,24 +195,24 @@ def calibration_summary(comparison: pd.DataFrame) -> pd.DataFrame:
 
 
 def summary_text(row, brief: bool = False) -> str:
-    """One site's fit of one quantity in words: for the command line and the pack, or ``brief`` (the bias and
-    the verdict only) for a page's summary line."""
+    """One site's fit of one quantity in words: for the command line and the pack, or ``brief`` (the two
+    statistics and the verdict only) for a page's summary line."""
     what = {"energy_kwh": "energy", "peak_kw": "peak demand", "reactive_kvarh": "lagging kVArh",
             "amount": "bill total"}[row["quantity"]]
     if not np.isfinite(row["nmbe_pct"]):
         if int(row["n_months"]) > PARAMETERS_P and not float(row["billed_total"]) > 0:
             return f"{what}: billed as 0 in each of {int(row['n_months'])} month(s), nothing to judge the fit by"
         return f"{what}: {int(row['n_months'])} month(s) billed, too few to judge the fit"
+    within = "within" if row["within_criteria"] else "outside"
+    if brief:  # the statistics the criteria judge, beside them
+        return (f"{what} NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} % over "
+                f"{int(row['n_months'])} month(s), {within} the criteria")
     # the plain bias of the totals in words; the statistics (their (n - p) form) in brackets
     billed, modelled = float(row["billed_total"]), float(row["modelled_total"])
     bias_pct = 100.0 * (modelled - billed) / billed if billed > 0 else np.nan
     side = "above" if bias_pct > 0 else "below"
-    verdict = ("within" if row["within_criteria"] else "outside") + (
-        f" the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)")
+    verdict = f"{within} the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)"
     few = " (the criteria are meant for a year of bills)" if int(row["n_months"]) < 12 else ""
-    if brief:  # the statistics the criteria judge, beside them
-        return (f"{what} NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} % over "
-                f"{int(row['n_months'])} month(s), {'within' if row['within_criteria'] else 'outside'} the criteria")
     return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over {int(row['n_months'])} "
             f"month(s) (NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} %), {verdict}{few}")
 
@@ -235,5 +235,11 @@ def calibrate(case, op) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty = compare_with_bills(pd.DataFrame(), None)
         return empty, calibration_summary(empty)
     meters, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))
+    return fit_to_bills(meters, bills, op, history)
+
+
+def fit_to_bills(meters: Mapping[str, object], bills: pd.DataFrame, op, history: pd.DataFrame
+                 ) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """:func:`calibrate` from today's meters and bills already made (``op`` gives their index and interval)."""
     comparison = compare_with_bills(modelled_months(meters, bills, op.index, op.interval_h), history)
     return comparison, calibration_summary(comparison)
