@@ -160,9 +160,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         payback = content.years_text(float(rec['simple_payback_yr']), horizon,
                                      lost_again=bool(rec.get('simple_payback_lost_again', False)))
         if failed:
+            over = ("over it" if rec["technology"] in REPLACING_TECHNOLOGIES
+                    else "against today's bill, the motor repaired")
             reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%} and payback {payback}, "
                            f"priced alone against the least that puts it back in service; capital "
-                           f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr against today's bill.")
+                           f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr {over}.")
         else:
             reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
                            f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr, payback {payback}, each "
