@@ -242,3 +242,18 @@ def test_zero_bills_say_why_there_is_no_fit():
     row = {"quantity": "energy_kwh", "n_months": 2, "nmbe_pct": np.nan, "cv_rmse_pct": np.nan,
            "within_criteria": False, "modelled_total": 10.0, "billed_total": 0.0}
     assert calibration.summary_text(row) == "energy: billed as 0 in each of 2 month(s), nothing to judge the fit by"
+
+
+def test_a_peak_off_the_bills_at_a_site_of_coarse_profiles_says_why(demo_run_physics):
+    # the demo's HRW: hourly profiles against 15-min demand windows (the case check's warning), and invented bills
+    # whose peaks are a few % above the hourly model's: the register row gives that reason beside the figures
+    from models import scenario
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    register = content.risk_register(case, result, content.select_scope(case, result, assets=["HRW-P01"], plan=False))
+    row = register[register["item"] == "Model off the bills at site HRW"].iloc[0]
+    assert "peak demand: the model reads" in row["detail"]
+    assert "the site's profiles are coarser than its demand window" in row["detail"]
+    assert not (register["item"] == "Model off the bills at site KGQ").any()  # no KGQ asset in this pack

@@ -864,8 +864,18 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "the supplier.")
     # a model of today's fleet off the site's own bills: a baseline to question before its savings are
     in_scope_sites = set(assets["site_id"].astype(str))
-    for site_id, lines in sorted(bills_fit(case, result).items()):
+    fits = bills_fit(case, result)
+    if fits:
+        from models.case import coarse_demand_profiles as _coarse
+
+        coarse_sites = set(_coarse(case.sites, case.assets, getattr(case, "tariffs", {}) or {},
+                                   getattr(case, "profile_info", None)))
+    for site_id, lines in sorted(fits.items()):
         off = [text for verdict, text in lines if verdict == "outside the monthly criteria"]
+        if any(text.startswith("peak demand") for text in off) and site_id in coarse_sites:
+            # a model of hourly profiles reads a lower peak than a bill's shorter demand windows
+            off.append("the site's profiles are coarser than its demand window, which lowers the modelled peak "
+                       "(the demand-window row)")
         if off and site_id in in_scope_sites:
             add("data", f"Model off the bills at site {site_id}", "; ".join(off),
                 asset_list_text(list(assets.loc[assets["site_id"].astype(str) == site_id, "asset_id"])) or "all",
