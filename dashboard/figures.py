@@ -525,6 +525,30 @@ def monthly_bills(bills: pd.DataFrame, currency: str) -> go.Figure:
     return _style(fig, "Monthly bill by line item", height=420)
 
 
+def energy_against_bills(months: pd.DataFrame) -> go.Figure:
+    """Each billed month's energy beside today's fleet as modelled, for the site's own check of its baseline.
+
+    Parameters
+    ----------
+    months : pandas.DataFrame
+        The site's rows of ``models.calibration.compare_with_bills``: month (the bill's, ``YYYY-MM``),
+        quantity, modelled, billed; only ``energy_kwh`` rows are drawn [kWh, shown in MWh].
+    """
+    energy = months[months["quantity"] == "energy_kwh"].sort_values("month") if months is not None and len(months) \
+        else pd.DataFrame()
+    if energy.empty:
+        return message_figure("No bills in the case for this site (bill_history.csv).")
+    fig = go.Figure()
+    for column, colour, name in (("billed", INK, "billed"), ("modelled", BEFORE, "today's fleet as modelled")):
+        fig.add_trace(go.Bar(x=energy["month"].astype(str), y=energy[column].to_numpy(dtype=float) / 1000.0, name=name,
+                             marker_color=colour,
+                             hovertemplate="%{x}<br>%{y:,.1f} MWh<extra>" + name + "</extra>"))
+    fig.update_layout(barmode="group")
+    fig.update_xaxes(title_text="Billing month (set beside the same calendar month of the analysis year)")
+    fig.update_yaxes(title_text="Energy [MWh/month]")
+    return _style(fig, "Energy: the bills beside the model", height=360)
+
+
 def reactive_balance(balance: pd.DataFrame) -> go.Figure:
     """Mean reactive power of the site by source, today and with the plan (negative = leading).
 

@@ -1331,6 +1331,19 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
     return out
 
 
+def site_bill_months(view_: View, site_id: str) -> pd.DataFrame:
+    """The site's billed months beside today's fleet as modelled (:func:`models.calibration.calibrate`'s
+    comparison, the site's rows); empty when the case gives no bill of the site."""
+    from models import calibration
+
+    history = getattr(view_.case, "bill_history", None)
+    if history is None or history.empty or not (history["site_id"].astype(str) == str(site_id)).any():
+        return pd.DataFrame(columns=["site_id", "month", "quantity", "unit", "modelled", "billed", "difference_pct"])
+    op = view_.physics().operation
+    months, _ = engine().derived(view_.key, "calibration", (), lambda: calibration.calibrate(view_.case, op))
+    return months[months["site_id"].astype(str) == str(site_id)].reset_index(drop=True)
+
+
 def site_calibration_text(view_: View, site_id: str) -> list[str]:
     """Today's fleet as modelled against the site's own bills (the case's bill history), one sentence per
     quantity billed (:func:`models.calibration.summary_text`); empty when the case gives no bill of the site."""

@@ -31,8 +31,9 @@ def test_every_page_renders_on_the_case(engine):
                asset.end_of_life("HRW-V01", None, None), site.update("KGQ", None, None, None),
                plan.update(True, None, None), risk.update(True, None, None, "plan"), inputs.preview(True, None, None)]
     figures = [x for out in outputs for x in out if isinstance(x, go.Figure)]
-    # fleet, asset (and its end of life), site, plan, uncertainty (tornado, fleet NPV, ranges)
-    assert len(figures) == 1 + 4 + 1 + 4 + 2 + 3
+    # fleet, asset (and its end of life), site (with the energy beside its bills: the demo's copy gives them), plan,
+    # uncertainty (tornado, fleet NPV, ranges)
+    assert len(figures) == 1 + 4 + 1 + 5 + 2 + 3
     assert all(f.data for f in figures)
 
 

@@ -440,3 +440,16 @@ def test_the_lcc_figure_draws_every_component_the_engine_writes():
     from models.scenario import LCC_COMPONENTS
 
     assert tuple(figures.LCC_COLOURS) == LCC_COMPONENTS
+
+
+def test_energy_against_bills_draws_each_billed_month_in_mwh():
+    # two hand-written months: billed 1,200 and 1,000 MWh, modelled 1,100 and 1,050 MWh; only energy rows are drawn
+    months = pd.DataFrame({"site_id": ["S"] * 3, "month": ["2024-02", "2024-01", "2024-01"],
+                           "quantity": ["energy_kwh", "energy_kwh", "amount"], "unit": ["kWh", "kWh", "currency"],
+                           "modelled": [1.05e6, 1.1e6, 5.0], "billed": [1.0e6, 1.2e6, 6.0], "difference_pct": [5.0, -8.3, -16.7]})
+    fig = figures.energy_against_bills(months)
+    billed, modelled = fig.data
+    assert list(billed.x) == ["2024-01", "2024-02"] and list(billed.y) == [1200.0, 1000.0]
+    assert list(modelled.y) == [1100.0, 1050.0]
+    empty = figures.energy_against_bills(months.iloc[0:0])
+    assert not empty.data and "No bills in the case" in empty.layout.annotations[0].text

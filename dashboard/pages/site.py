@@ -23,6 +23,7 @@ DURATION = "site-pf-duration"
 BILLS = "site-bills"
 REACTIVE = "site-reactive"
 SUMMARY = "site-summary"
+BILL_FIT = "site-bill-fit"
 NOTICE = "site-notice"
 
 
@@ -44,6 +45,10 @@ def layout(site=None, **_query):
         html.Div([html.Div(ui.graph(DURATION), className="panel half"), html.Div(ui.graph(REACTIVE), className="panel half")],
                  className="row"),
         html.Div(ui.graph(BILLS), className="panel"),
+        html.Div([ui.graph(BILL_FIT),
+                  html.P("The site's own bills (bill_history.csv of the case) beside today's fleet as modelled: a "
+                         "baseline far off the bills is to be questioned before its savings are.",
+                         className="page-intro")], className="panel"),
     ])
 
 
@@ -72,7 +77,7 @@ ui.address_follows(ADDRESS, "/site")
 
 
 @callback(Output(WEEK_FIGURE, "figure"), Output(DURATION, "figure"), Output(REACTIVE, "figure"), Output(BILLS, "figure"),
-          Output(SUMMARY, "children"), Output(NOTICE, "children"),
+          Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(BILL_FIT, "figure"),
           Input(PICK, "value"), Input(WEEK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
 def update(site_id, week, session, edits):
     """Meter, duration curve, reactive balance and bills of the chosen site."""
@@ -81,7 +86,7 @@ def update(site_id, week, session, edits):
     meters = services.site_meters(view, result)
     if site_id not in meters:
         empty = figures.message_figure("Choose a site.")
-        return empty, empty, empty, empty, "", view.notice
+        return empty, empty, empty, empty, "", view.notice, empty
     site = meters[site_id]
     interval_h = float(view.physics().operation.interval_h)
     before, after = site["before"], site["after"]
@@ -117,4 +122,5 @@ def update(site_id, week, session, edits):
     return (figures.meter_week(services.week_slice(site, week)),
             figures.pf_duration(services.pf_duration(site, interval_h)),
             figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
-            figures.monthly_bills(bills, view.currency), summary, view.notice)
+            figures.monthly_bills(bills, view.currency), summary, view.notice,
+            figures.energy_against_bills(services.site_bill_months(view, site_id)))
