@@ -1042,10 +1042,8 @@ def failed_text(result, asset_id: str, currency: str) -> str:
     rows = res[res["asset_id"].astype(str) == str(asset_id)]
     if "failed" not in rows or not rows["failed"].astype(bool).any():
         return ""
-    must = rows["must_spend_option_id"].astype(str) if "must_spend_option_id" in rows else pd.Series(dtype=str)
-    must_id = next((m for m in must if m), "")
-    least = rows[rows["option_id"].astype(str) == must_id]
-    what = (f"{least['label'].iloc[0]} for {money_text(float(least['capital'].iloc[0]), currency)}" if len(least)
+    least = scenario.least_repair(res, asset_id)
+    what = (f"{least['label']} for {money_text(float(least['capital']), currency)}" if least is not None
             else "a rewind or a new motor")
     return ("This motor has failed (asset register): every option is counted against the least that puts it back "
             f"in service now ({what}); keeping it as it is would leave it stopped.")
@@ -1331,17 +1329,25 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
     return out
 
 
-def site_bill_months(view_: View, site_id: str) -> pd.DataFrame:
-    """The site's billed months beside today's fleet as modelled (:func:`models.calibration.calibrate`'s
-    comparison, the site's rows); empty when the case gives no bill of the site."""
+def _site_fit(view_: View, site_id: str) -> tuple[pd.DataFrame, pd.DataFrame] | None:
+    """The site's rows of :func:`models.calibration.calibrate` (months, summary), made once per case; None when
+    the case gives no bill of the site."""
     from models import calibration
 
     history = getattr(view_.case, "bill_history", None)
     if history is None or history.empty or not (history["site_id"].astype(str) == str(site_id)).any():
-        return pd.DataFrame(columns=["site_id", "month", "quantity", "unit", "modelled", "billed", "difference_pct"])
+        return None
     op = view_.physics().operation
-    months, _ = engine().derived(view_.key, "calibration", (), lambda: calibration.calibrate(view_.case, op))
-    return months[months["site_id"].astype(str) == str(site_id)].reset_index(drop=True)
+    both = engine().derived(view_.key, "calibration", (), lambda: calibration.calibrate(view_.case, op))
+    return tuple(f[f["site_id"].astype(str) == str(site_id)].reset_index(drop=True) for f in both)
+
+
+def site_bill_months(view_: View, site_id: str) -> pd.DataFrame:
+    """The site's billed months beside today's fleet as modelled (:func:`models.calibration.calibrate`'s
+    comparison, the site's rows); empty when the case gives no bill of the site."""
+    fit = _site_fit(view_, site_id)
+    return fit[0] if fit is not None else pd.DataFrame(
+        columns=["site_id", "month", "quantity", "unit", "modelled", "billed", "difference_pct"])
 
 
 def site_calibration_text(view_: View, site_id: str) -> list[str]:
@@ -1349,12 +1355,10 @@ def site_calibration_text(view_: View, site_id: str) -> list[str]:
     quantity billed (:func:`models.calibration.summary_text`); empty when the case gives no bill of the site."""
     from models import calibration
 
-    history = getattr(view_.case, "bill_history", None)
-    if history is None or history.empty or not (history["site_id"].astype(str) == str(site_id)).any():
+    fit = _site_fit(view_, site_id)
+    if fit is None:
         return []
-    op = view_.physics().operation
-    _, summary = engine().derived(view_.key, "calibration", (), lambda: calibration.calibrate(view_.case, op))
-    mine = summary[summary["site_id"].astype(str) == str(site_id)]
+    mine = fit[1]
     if mine.empty:
         return ["none of its bills is of a month the model covers"]
     return [calibration.summary_text(row, brief=True) for row in mine.to_dict("records")]

@@ -1633,13 +1633,14 @@ def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> No
     months = []
     for i, value in enumerate(b["month"]):
         text = "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value).strip()
+        dated = len(text) >= 10 and text[7:8] == "-"  # a date (a workbook's date cell): its month, if a real day
         day_ok = True
-        if len(text) >= 10 and text[7:8] == "-":  # a date (a workbook's date cell): its month, if a real day
+        if dated:
             try:
                 _dt.date.fromisoformat(text[:10])
             except ValueError:
                 day_ok = False
-        found = _MONTH_PATTERN.match(text[:7] if len(text) >= 10 and text[7:8] == "-" else text)
+        found = _MONTH_PATTERN.match(text[:7] if dated else text)
         if text and (found is None or not day_ok or not 1 <= int(found.group(2)) <= 12):
             checker.err(i, "month", value, "a billing month is written YYYY-MM", "e.g. 2024-03 for March 2024")
             months.append(None)

@@ -429,6 +429,15 @@ def failed_assets(assets: pd.DataFrame) -> np.ndarray:
     return assets["failed"].map(lambda v: v is True or v == 1).to_numpy(dtype=bool)
 
 
+def least_repair(results: pd.DataFrame, asset_id: str) -> pd.Series | None:
+    """The result row of the least that puts an asset's motor back in service (the must-spend option its
+    replacing options name in ``must_spend_option_id``), or None where none is named."""
+    rows = results[results["asset_id"].astype(str) == str(asset_id)]
+    named = [m for m in rows.get("must_spend_option_id", pd.Series(dtype=object)) if isinstance(m, str) and m]
+    hit = rows[rows["option_id"].astype(str) == named[0]] if named else rows.iloc[0:0]
+    return hit.iloc[0] if len(hit) else None
+
+
 def _remaining_life(case, year: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Age, Weibull parameters and mean residual life of today's motors (0 for a motor that has failed: the
     spend its failure forces falls now)."""

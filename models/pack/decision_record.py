@@ -19,7 +19,7 @@ from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 from models.plan import option_labels
-from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of_life_left_out
+from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of_life_left_out, least_repair
 
 
 
@@ -143,12 +143,10 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     least = ""
     if failed:
         # the asset's least repair, named on each of its replacing options (an add-on recommended names none)
-        named = [str(m) for m in res.get("must_spend_option_id", pd.Series(dtype=str)) if isinstance(m, str) and m]
-        must_id = named[0] if named else ""
-        must = res.loc[res["option_id"] == must_id]
-        name = str(labels.get(must_id, must_id))
+        must = least_repair(result.results, asset_id)
+        name = str(must["label"]) if must is not None else ""
         name = name[:1].lower() + name[1:] if name[1:2].islower() else name  # "rewind", "new IE3 induction motor"
-        least = (f"the option {name} ({content.money(float(must['capital'].iloc[0]), cur)})" if len(must)
+        least = (f"the option {name} ({content.money(float(must['capital']), cur)})" if must is not None
                  else "a rewind or a new motor")
         reasons.append(f"This motor has failed (asset register). The least that puts it back in service now is {least}: "
                        "each option that replaces the motor is credited with that capital, and from year 1 its "
