@@ -1049,6 +1049,22 @@ def failed_text(result, asset_id: str, currency: str) -> str:
             f"in service now ({what}); keeping it as it is would leave it stopped.")
 
 
+def ratchet_text(result, asset_id: str, currency: str) -> str:
+    """What the Asset page says where a demand ratchet holds back an option's first year ("" where none
+    does): the largest first-year shortfall among the asset's options (docs/finance.md, section 4)."""
+    res = result.results
+    rows = res[res["asset_id"].astype(str) == str(asset_id)]
+    if "first_year_ratchet_shortfall" not in rows or not len(rows):
+        return ""
+    short = rows["first_year_ratchet_shortfall"].to_numpy(dtype=float)
+    i = int(np.argmax(short))
+    if not short[i] > 0.5:
+        return ""
+    return (f"The site's demand ratchet still bills today's peaks for a while after a change: the first year in "
+            f"service of {rows['label'].iloc[i]} saves {money_text(float(short[i]), currency)} less than the yearly "
+            "saving shown (every NPV and payback counts it).")
+
+
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
     """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
     status = result.plan_status or {}

@@ -66,6 +66,12 @@ class BillSavings:
         (NaN for the other options).
     baseline_bills : pandas.DataFrame
         site_id, month, line_item, quantity, unit, rate, amount: today's bills.
+    first_year_shortfall : numpy.ndarray, shape (n_assets, n_options, n_components), optional
+        How much less the first year after the change saves than ``saving`` [currency], by component:
+        a demand ratchet still reads the months before the change (today's peaks) for up to its
+        look-back, so a peak the option removes is still billed at the ratchet's share that year.
+        Negative where the option raises the demand (the ratchet then reads today's lower peaks).
+        None (the default) = 0 everywhere.
     """
 
     components: tuple[str, ...]
@@ -74,6 +80,12 @@ class BillSavings:
     equivalent_bank_q_kvar: np.ndarray
     equivalent_bank_cost: np.ndarray
     baseline_bills: pd.DataFrame
+    first_year_shortfall: np.ndarray | None = None
+
+    @property
+    def shortfall(self) -> np.ndarray:
+        """:attr:`first_year_shortfall`, zeros where none was given, shape of :attr:`saving`."""
+        return np.zeros_like(self.saving) if self.first_year_shortfall is None else self.first_year_shortfall
 
     @property
     def total(self) -> np.ndarray:
@@ -337,6 +349,21 @@ class _SiteBiller:
 
         A quantity without a change stays one row for every scenario (priced once by the engine).
         """
+        p, q = self._meters(p_kw, q_kvar, dp_kw, dq_kvar)
+        return self._priced(p, q, check_p=True, check_q=True)
+
+    def history(self, p_kw: np.ndarray, q_kvar: np.ndarray) -> dict[str, np.ndarray]:
+        """What a ratchet reads of the meter of these motors (p_kw, q_kvar) in the year after it:
+        :func:`models.billing.ratchet_history` of the site meter, banks included ({} without a ratchet)."""
+        if not any(d.ratchet_frac is not None for d in self.tariff.demand):
+            return {}
+        p, q = self._meters(p_kw, q_kvar)
+        for bank in self.stepped:
+            add_stepped_bank_kvar(p, q, bank.rated_q_kvar, bank.step_kvar, bank.target_power_factor)
+        return billing.ratchet_history(self.tariff, self.calendar, p, q)
+
+    def _meters(self, p_kw, q_kvar, dp_kw=None, dq_kvar=None) -> tuple[np.ndarray, np.ndarray]:
+        """The site meters of the motors (p_kw + dp_kw, q_kvar + dq_kvar): base load and fixed banks added."""
         p = np.add(p_kw, dp_kw) if dp_kw is not None else np.array(p_kw, dtype=float)
         q = np.add(q_kvar, dq_kvar) if dq_kvar is not None else np.array(q_kvar, dtype=float)
         p, q = np.atleast_2d(p), np.atleast_2d(q)
@@ -346,7 +373,7 @@ class _SiteBiller:
         q += self.base_q
         if self.fixed_q is not None:
             q += self.fixed_q
-        return self._priced(p, q, check_p=True, check_q=True)
+        return p, q
 
     def scenario_totals(self, p0_kw: np.ndarray, q0_kvar: np.ndarray, p_block: np.ndarray, q_block: np.ndarray,
                         j: np.ndarray, o: np.ndarray, kw_changes: bool = True,
@@ -386,16 +413,25 @@ class _SiteBiller:
                                   np.empty(n_t))
         return p, q, q_copy if kvar_copy else None, finite
 
-    def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool) -> tuple[list[str], np.ndarray]:
-        """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`)."""
+    def _priced(self, p: np.ndarray, q: np.ndarray, check_p: bool, check_q: bool,
+                before: dict[str, np.ndarray] | None = None) -> tuple:
+        """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`).
+
+        With ``before`` (:meth:`history` of the meter before a change) a third value follows: the amounts
+        of the first year after the change (S, I) [currency]."""
         for bank in self.stepped:  # in place, one compiled pass (the values of q += bank.q_kvar(p, q))
             add_stepped_bank_kvar(p, q, bank.rated_q_kvar, bank.step_kvar, bank.target_power_factor)
         check_q = check_q or bool(self.stepped)
         for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
             if check and not billing._all_finite(x):
                 raise ValueError(f"{name} contains NaN or infinite values; fill or drop the gaps first")
-        names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, None)
-        return names, np.ascontiguousarray(np.broadcast_to(amounts, (max(p.shape[0], q.shape[0]), len(names))))
+        shape = (max(p.shape[0], q.shape[0]), None)
+        if before is None:
+            names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, None)
+            return names, np.ascontiguousarray(np.broadcast_to(amounts, (shape[0], len(names))))
+        names, amounts, _, first = billing._block_totals(self.tariff, self.calendar, p, q, None, before, with_first=True)
+        return (names, np.ascontiguousarray(np.broadcast_to(amounts, (shape[0], len(names)))),
+                np.ascontiguousarray(np.broadcast_to(first, (shape[0], len(names)))))
 
 
 @numba.njit(nogil=True, cache=True)
@@ -538,6 +574,9 @@ class SiteSavings:
         self.pairs: list[tuple[np.ndarray, np.ndarray]] = []
         self.biller = _SiteBiller(setup, index, interval_h)
         self.base_amounts = self.biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0]
+        # what a demand ratchet reads of today's meter in the first year after a change ({} without one)
+        self.before = self.biller.history(p0_kw[None, :], q0_kvar[None, :]) or None
+        self.shortfall = np.zeros_like(self.saving)
         self.q_matters = tariff_depends_on_kvar(setup.tariff)
         if self.q_matters:
             self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
@@ -562,8 +601,13 @@ class SiteSavings:
             # the meters once for both bills (the reactive-only bill's kVAr are the same scenarios')
             p, q, q_copy, finite = self.biller.scenario_meters(p0, q0, p_block, q_block, j, o, book=book,
                                                                kvar_copy=self.q_matters)
-            names, amounts = self.biller._priced(p, q, check_p=not finite[0], check_q=not finite[1])
-            self.saving[rows[j], o] = _category_savings(names, self.base_amounts, amounts, self.setup.tariff.taxes)
+            priced = self.biller._priced(p, q, check_p=not finite[0], check_q=not finite[1], before=self.before)
+            names, amounts = priced[0], priced[1]
+            saving = _category_savings(names, self.base_amounts, amounts, self.setup.tariff.taxes)
+            self.saving[rows[j], o] = saving
+            if self.before is not None:
+                self.shortfall[rows[j], o] = saving - _category_savings(names, self.base_amounts, priced[2],
+                                                                        self.setup.tariff.taxes)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario (scenario_totals with kw_changes False)
                 _, q_amounts = self.q_biller._priced(self.q_meter_p, q_copy, check_p=True, check_q=not finite[1])
@@ -587,7 +631,7 @@ class SiteSavings:
                 bank_q[j, o] = q_bank
                 bank_cost[j, o] = q_bank * capacitor_cost_per_kvar
         return dict(saving=self.saving, reactive_saving=self.reactive, equivalent_bank_q_kvar=bank_q,
-                    equivalent_bank_cost=bank_cost)
+                    equivalent_bank_cost=bank_cost, first_year_shortfall=self.shortfall)
 
 
 def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None,
@@ -610,6 +654,7 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
     setups = setups or site_setups(case, op.index)
     n_a, n_o = len(op.asset_ids), len(op.option_ids)
     saving = np.zeros((n_a, n_o, len(SAVING_COMPONENTS)))
+    shortfall = np.zeros_like(saving)
     reactive = np.zeros((n_a, n_o))
     bank_q = np.full((n_a, n_o), np.nan)
     bank_cost = np.full((n_a, n_o), np.nan)
@@ -620,11 +665,12 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
         part = site_savings(setup, op.index, op.interval_h, op.p_kw[:, members], op.q_kvar[:, members],
                             op.applies[members], op.technologies, capacitor_cost_per_kvar, block_scenarios)
         saving[members] = part["saving"]
+        shortfall[members] = part["first_year_shortfall"]
         reactive[members] = part["reactive_saving"]
         bank_q[members] = part["equivalent_bank_q_kvar"]
         bank_cost[members] = part["equivalent_bank_cost"]
     _, baseline_bills = meter_and_bills(case, op, np.zeros(n_a, dtype=int), setups)
-    return BillSavings(SAVING_COMPONENTS, saving, reactive, bank_q, bank_cost, baseline_bills)
+    return BillSavings(SAVING_COMPONENTS, saving, reactive, bank_q, bank_cost, baseline_bills, shortfall)
 
 
 def plan_bill_savings(case, op, choice: np.ndarray, capacitor_cost_per_kvar: float | None = None,

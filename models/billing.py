@@ -24,6 +24,7 @@ Metering conventions used throughout (see ``docs/tariffs.md``):
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numba
@@ -496,13 +497,45 @@ class _Item:
     quantity: np.ndarray  # (S, M)
     applies: np.ndarray  # (M,) bool: the clause is in force this month
     flag: np.ndarray  # (S, M) bool
+    # (S, M): the quantity in the first year after a change, where it differs from every later year's (a
+    # ratchet still reading the months before the change; the taxes on it); None = the same
+    first_quantity: np.ndarray | None = None
+    # (S, M): for a ratchet item, the demand after any power-factor adjustment that later months' ratchet reads
+    reads: np.ndarray | None = None
 
     @property
     def amount(self) -> np.ndarray:
         return self.quantity * self.rate
 
+    @property
+    def first_amount(self) -> np.ndarray:
+        return (self.quantity if self.first_quantity is None else self.first_quantity) * self.rate
 
-def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s) -> list[_Item]:
+
+def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before: np.ndarray | None = None) -> np.ndarray:
+    """Highest adjusted demand of the previous ``months`` billing months, (S, M).
+
+    With ``repeat_year`` the months before the series are the same year's last months (a typical year
+    repeated); with ``before`` (M,) they are those of another year instead: the year before a change,
+    whose demands the ratchet still reads in the first year after it. Without either, months before the
+    series count as none.
+    """
+    n_m = adjusted.shape[1]
+    floor = np.zeros_like(adjusted)
+    for lag in range(1, months + 1):
+        if lag < n_m:
+            floor[:, lag:] = np.maximum(floor[:, lag:], adjusted[:, :-lag])
+        if repeat_year:
+            previous = adjusted if before is None else np.broadcast_to(before, adjusted.shape)
+            # month m < lag reads month m - lag + 12k of the year before (12k: the first such month's year)
+            for m in range(min(lag, n_m)):
+                back = (m - lag) % n_m
+                floor[:, m] = np.maximum(floor[:, m], previous[:, back])
+    return floor
+
+
+def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s,
+                  before: Mapping[str, np.ndarray] | None = None) -> list[_Item]:
     win = cal.windows[d.window_min]
     n_m = cal.n_months
     a = d.power_factor_adjustment
@@ -531,15 +564,15 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
             adjusted = percent_adjusted_demand_kw(peak, pf, a.target_power_factor, a.percent_per_point, a.round_points_up)
         adjusted = np.where(applies, adjusted, 0.0)
 
-    billed = adjusted
+    billed = first = adjusted
     if d.ratchet_frac is not None and d.ratchet_months > 0:
-        floor = np.zeros_like(adjusted)
-        for lag in range(1, d.ratchet_months + 1):
-            if repeat_year:
-                floor = np.maximum(floor, np.roll(adjusted, lag, axis=1))
-            elif lag < n_m:
-                floor[:, lag:] = np.maximum(floor[:, lag:], adjusted[:, :-lag])
+        floor = _ratchet_floor(adjusted, d.ratchet_months, repeat_year)
         billed = np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0)
+        if before is not None and repeat_year and d.name in before:
+            floor = _ratchet_floor(adjusted, d.ratchet_months, True, np.asarray(before[d.name], dtype=float))
+            first = np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0)
+        else:
+            first = billed
 
     unit = d.basis
     rate = np.full(n_m, d.price_per_unit_month)
@@ -548,12 +581,17 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
     if a is not None:
         items.append(_Item(f"pf adjustment:{d.name}", "pf adjustment", unit, rate, adjusted - peak, applies, no_flag))
     if d.ratchet_frac is not None:
-        items.append(_Item(f"ratchet:{d.name}", "ratchet", unit, rate, billed - adjusted, applies, no_flag))
+        items.append(_Item(f"ratchet:{d.name}", "ratchet", unit, rate, billed - adjusted, applies, no_flag,
+                           None if first is billed else first - adjusted, adjusted))
     return items
 
 
-def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None) -> list[_Item]:
+def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None,
+                before: Mapping[str, np.ndarray] | None = None) -> list[_Item]:
     """Price (S, T) meter arrays; return the line items with (S, M) quantities.
+
+    ``before`` (demand charge name -> adjusted demand of each billing month, (M,)) is the year before a
+    change: the ratchet items then carry the first year's quantity too (:attr:`_Item.first_quantity`).
 
     ``p`` or ``q`` may have a single row that stands for every scenario (e.g. scenarios that change
     only the kVAr). The per-interval work is two kinds of compiled pass: the cell sums of every
@@ -617,7 +655,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
         kwh_month = cells[kwh_at].sum(axis=2)
         lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
         for d in tariff.demand:
-            items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s))
+            items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before))
 
     for kind, r, scope, months, at in clauses:
         if r.allowance_per == "interval":
@@ -637,10 +675,17 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     for t in tariff.taxes:
         cats = _TAX_BASE_CATEGORIES[t.base]
         base = np.zeros((n_s, n_m))
+        first = None
         for it in items:
             if it.category in cats:
                 base = base + np.where(it.applies, it.amount, 0.0)
-        items.append(_Item(f"tax:{t.name}", "tax", tariff.currency, np.full(n_m, t.rate_pct / 100.0), base, every_month, no_flag))
+        if any(it.first_quantity is not None for it in items if it.category in cats):
+            first = np.zeros((n_s, n_m))
+            for it in items:
+                if it.category in cats:
+                    first = first + np.where(it.applies, it.first_amount, 0.0)
+        items.append(_Item(f"tax:{t.name}", "tax", tariff.currency, np.full(n_m, t.rate_pct / 100.0), base, every_month,
+                           no_flag, first))
     return items
 
 
@@ -676,6 +721,8 @@ def bill(
     *,
     interval_h: float | None = None,
     repeat_year: bool | None = False,
+    before_p_kw=None,
+    before_q_kvar=None,
 ) -> pd.DataFrame:
     """Return the bill of one site meter series, by billing month and line item.
 
@@ -695,6 +742,11 @@ def bill(
         Treat the series as one typical year repeated, so a ratchet in its first months looks back
         at its last months. Needs exactly 12 billing months. None: repeat when the series has exactly
         12 billing months, else bill it as it stands (:func:`repeats_year`; the analysis's rule).
+    before_p_kw, before_q_kvar : array_like, shape (n_steps,), optional
+        The meter of the year before a change, on the same index [kW], [kVAr]. Given both (with a
+        typical year: ``repeat_year`` true or None with 12 months), the bill is that of the first year
+        after the change: a ratchet reads the year before in place of the series' own last months, so
+        a peak that has gone is still billed at its ratchet share until it leaves the look-back.
 
     Returns
     -------
@@ -741,12 +793,22 @@ def bill(
     if p.shape[0] != 1 or q.shape[0] != 1:
         raise ValueError("bill() prices one meter series; use bill_many() for several scenarios")
     _check_repeat(cal, repeat_year)
-    items = _bill_items(tariff, cal, p, q, repeat_year)
+    before = None
+    if (before_p_kw is None) != (before_q_kvar is None):
+        raise ValueError("the year before a change needs both before_p_kw and before_q_kvar")
+    if before_p_kw is not None:
+        bp = _as_2d(before_p_kw, cal.n_steps, "before_p_kw")
+        bq = _as_2d(before_q_kvar, cal.n_steps, "before_q_kvar")
+        if repeats_year(cal.n_months, repeat_year):
+            before = ratchet_history(tariff, cal, bp, bq)
+    items = _bill_items(tariff, cal, p, q, repeat_year, before)
     rows = []
     for m, label in enumerate(cal.month_labels):
         for it in items:
             if it.applies[m]:
-                rows.append((label, it.name, float(it.quantity[0, m]), it.unit, float(it.rate[m]), float(it.amount[0, m]), bool(it.flag[0, m])))
+                quantity = it.quantity if it.first_quantity is None else it.first_quantity
+                rows.append((label, it.name, float(quantity[0, m]), it.unit, float(it.rate[m]),
+                             float(quantity[0, m] * it.rate[m]), bool(it.flag[0, m])))
     return pd.DataFrame(rows, columns=["month", "line_item", "quantity", "unit", "rate", "amount", "flag"])
 
 
@@ -814,22 +876,56 @@ def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_yea
     return _priced(tariff, cal, _shared_row(p), _shared_row(q), repeat_year, n_rows=p.shape[0])
 
 
-def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None):
+def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None,
+                  before: Mapping[str, np.ndarray] | None = None, with_first: bool = False):
     """Line-item names, amounts summed over months (S, I) [currency] and flagged items (S, I) of one block.
 
     ``p`` and ``q`` are (S, T) or (1, T) standing for every row (at least one of them has S rows, or both
-    one row and S = 1).
+    one row and S = 1). With ``with_first`` a fourth value follows: the amounts of the first year after a
+    change from the meter of ``before`` (see :func:`_bill_items`), (S, I) [currency].
     """
     n = max(p.shape[0], q.shape[0])
-    items = _bill_items(tariff, cal, p, q, repeat_year)
+    items = _bill_items(tariff, cal, p, q, repeat_year, before)
     names = [it.name for it in items]
     if not items:
-        return names, np.zeros((n, 0)), np.zeros((n, 0), dtype=bool)
+        empty = np.zeros((n, 0))
+        return (names, empty, np.zeros((n, 0), dtype=bool)) + ((empty,) if with_first else ())
     # every item's quantity and flag is (S, M): one (S, I, M) stack, summed over the months of each row
     applies = np.stack([it.applies for it in items])  # (I, M)
     amounts = np.where(applies, np.stack([it.amount for it in items], axis=1), 0.0).sum(axis=2)
     flagged = (np.stack([it.flag for it in items], axis=1) & applies).any(axis=2)
-    return names, amounts, flagged
+    if not with_first:
+        return names, amounts, flagged
+    first = amounts.copy()
+    for i, it in enumerate(items):
+        if it.first_quantity is not None:
+            first[:, i] = np.where(it.applies, it.first_amount, 0.0).sum(axis=1)
+    return names, amounts, flagged, first
+
+
+def ratchet_history(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray) -> dict[str, np.ndarray]:
+    """The adjusted demand of each billing month of one meter, per demand charge with a ratchet.
+
+    Parameters
+    ----------
+    tariff : Tariff
+    cal : _Calendar
+        The billing calendar of the series (12 billing months: a typical year repeated).
+    p, q : numpy.ndarray, shape (1, n_steps)
+        The meter [kW], [kVAr].
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        Demand charge name -> (M,) demand after any power-factor adjustment [kW or kVA]: what a ratchet
+        reads of these months in the year after them. Empty when no demand charge has a ratchet, or when
+        the series is not a typical year (months before it are unknown).
+    """
+    ratcheted = [d.name for d in tariff.demand if d.ratchet_frac is not None and d.ratchet_months > 0]
+    if not ratcheted or not repeats_year(cal.n_months, None):
+        return {}
+    items = {it.name: it for it in _bill_items(tariff, cal, np.asarray(p, dtype=float), np.asarray(q, dtype=float), True)}
+    return {name: items[f"ratchet:{name}"].reads[0].copy() for name in ratcheted}
 
 
 def _priced(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None, n_rows: int | None = None,

@@ -261,7 +261,8 @@ class PhysicsMerger:
                            recompute=None if dense else _SiteRecompute(case, index, chunk_assets))
         self.arrays = {"saving": np.zeros((n_a, n_o, len(SAVING_COMPONENTS))), "reactive_saving": np.zeros((n_a, n_o)),
                        "equivalent_bank_q_kvar": np.full((n_a, n_o), np.nan),
-                       "equivalent_bank_cost": np.full((n_a, n_o), np.nan)}
+                       "equivalent_bank_cost": np.full((n_a, n_o), np.nan),
+                       "first_year_shortfall": np.zeros((n_a, n_o, len(SAVING_COMPONENTS)))}
         self.rows = dict(self.partition)
 
     def add(self, site_id: str, op: OperatingResult | None, part: dict) -> None:
@@ -277,7 +278,7 @@ class PhysicsMerger:
         _, baseline_bills = meter_and_bills(self.case, op, np.zeros(len(op.asset_ids), dtype=int))
         a = self.arrays
         savings = BillSavings(SAVING_COMPONENTS, a["saving"], a["reactive_saving"], a["equivalent_bank_q_kvar"],
-                              a["equivalent_bank_cost"], baseline_bills)
+                              a["equivalent_bank_cost"], baseline_bills, a["first_year_shortfall"])
         return Physics(op, savings, self.cost)
 
 
@@ -515,6 +516,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     saving_rc = sav.saving[rows, cols, :] - np.where(over_least[:, None], sav.saving[rows, least_pos, :], 0.0)
     maint_rc = maint_saving[rows, cols] - np.where(over_least, maint_saving[rows, least_pos], 0.0)
     energy_rc = energy_saved[rows, cols] - np.where(over_least, energy_saved[rows, least_pos], 0.0)
+    short = sav.shortfall
+    short_rc = short[rows, cols, :] - np.where(over_least[:, None], short[rows, least_pos, :], 0.0)
     inputs = cf.ProjectInputs(
         project_id=project_ids,
         capex_equipment=(comp["equipment"] + comp["remedy"] + comp["capacitor"])[rows, cols],
@@ -543,6 +546,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
             (replaces & (must_capex[rows] > 0))[:, None],
             np.column_stack([sav.saving[rows, must_pos[rows], k] for k in range(4)] + [maint_saving[rows, must_pos[rows]]]),
             0.0),
+        # a demand ratchet still bills today's peaks in the first year after a change (the option's, and the
+        # must-spend item's in the base case)
+        first_year_shortfall=np.column_stack([short[rows, cols], np.zeros(len(rows))]),
+        baseline_first_year_shortfall=np.where(
+            (replaces & (must_capex[rows] > 0))[:, None],
+            np.column_stack([short[rows, must_pos[rows]], np.zeros(len(rows))]), 0.0),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
     # today's motor is the reference: its increment is zero by definition (as is the least that puts a failed
@@ -591,6 +600,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "saving_reactive_per_yr": saving_rc[:, 2], "saving_fixed_per_yr": saving_rc[:, 3],
         "saving_maintenance_per_yr": maint_rc,
         "bill_saving_per_yr": np.where(over_least, saving_rc.sum(axis=1), sav.total[rows, cols]),
+        "first_year_ratchet_shortfall": np.where(over_least, short_rc.sum(axis=1), short[rows, cols].sum(axis=1)) + 0.0,
         "capital": np.where(is_keep, 0.0, capex.total[rows, cols]),
         "must_spend_capital": np.where(replaces, must_capex[rows], 0.0),
         "must_spend_option_id": pd.array(np.where(replaces & (must_capex[rows] > 0), op.option_ids[must_pos[rows]],
@@ -823,6 +833,7 @@ def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: floa
     if price_factor == 1.0 and capital_factor == 1.0:
         return sav
     return replace(sav, saving=sav.saving * price_factor, reactive_saving=sav.reactive_saving * price_factor,
+                   first_year_shortfall=sav.shortfall * price_factor,
                    equivalent_bank_cost=sav.equivalent_bank_cost * capital_factor,
                    baseline_bills=_bill_lines_at_price_level(sav.baseline_bills, price_factor, currency))
 

@@ -180,6 +180,9 @@ def update(asset_id, session, edits, requested=None):
     failed = services.failed_text(result, asset_id, view.currency)
     if failed:
         summary.append(html.Div(failed, className="small caution", id="asset-failed"))
+    ratchet = services.ratchet_text(result, asset_id, view.currency)
+    if ratchet:
+        summary.append(html.Div(ratchet, className="small", id="asset-ratchet"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),

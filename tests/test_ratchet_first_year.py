@@ -1,0 +1,324 @@
+"""Validation record for the first year after a change under a demand ratchet.
+
+A ratchet bills at least a share of the highest demand of the previous months. The analysis bills a
+typical year repeated, so every year after a project's first looks back at a year with the project in
+service; the first year still looks back at the months before the change (today's peaks). The bill
+saving of that first year falls short of the yearly one, and the cash flows carry the shortfall.
+
+Sources: hand calculations in docs/derivations/billing-demand.md, cases D7 (the yearly saving) and D8
+(the first year), and docs/derivations/finance-cashflows.md, example F (the cash flows).
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import replace
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+from models import cashflows as cf
+from models import scenario
+from models.bill_savings import SiteSetup, site_savings
+from models.billing import bill
+from models.finance import FinanceAssumptions
+from models.site import Site
+from models.tariff import tariff_from_dict
+
+EXACT = dict(rtol=0, atol=1e-9)  # sums of a few products of exact decimals: only float rounding
+
+RATCHET = '''
+[tariff]
+name = "flat demand with ratchet (invented)"
+currency = "EUR"
+time_zone = "UTC"
+[[periods]]
+code = "all"
+[[demand]]
+name = "d"
+price_per_kw_month = 10.0
+window_min = 60
+ratchet_frac = 0.8
+ratchet_months = 11
+'''
+TAX = '[[taxes]]\nname = "vat"\nrate_pct = 10.0\nbase = "all_charges"\n'
+
+
+def _tariff(text: str):
+    t, problems = tariff_from_dict(tomllib.loads(text), source="test.toml")
+    assert t is not None, [str(p) for p in problems]
+    return t
+
+
+@pytest.fixture(scope="module")
+def year():
+    return pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+
+
+def _july_peak(index) -> np.ndarray:
+    """100 kW throughout, 200 kW in every hour of July (case D7's motor today)."""
+    return np.where(index.month == 7, 200.0, 100.0)
+
+
+class TestFirstYearBill:
+    def test_the_first_year_still_bills_todays_july_peak(self, year):
+        # hand calculation, billing-demand.md case D8: January to June read the July before the change
+        t = _tariff(RATCHET)
+        flat = np.full(len(year), 100.0)
+        first = bill(t, year, flat, 0 * flat, repeat_year=None, before_p_kw=_july_peak(year), before_q_kvar=0 * flat)
+        billed = first.groupby("month")["quantity"].sum().to_numpy()
+        assert_allclose(billed, [160.0] * 6 + [100.0] * 6, **EXACT)
+        assert_allclose(first["amount"].sum(), 15_600.0, **EXACT)
+        # every later year: 1 200 kW-months (case D7)
+        later = bill(t, year, flat, 0 * flat, repeat_year=None)
+        assert_allclose(later["amount"].sum(), 12_000.0, **EXACT)
+
+    def test_the_year_before_needs_both_meters(self, year):
+        flat = np.full(len(year), 100.0)
+        with pytest.raises(ValueError, match="both before_p_kw and before_q_kvar"):
+            bill(_tariff(RATCHET), year, flat, 0 * flat, before_p_kw=flat)
+
+    def test_a_lone_year_has_no_months_before_it_to_read(self, year):
+        # billed as it stands (repeat_year False): the months before the series are unknown, so the year
+        # before the change is not read either (case D7, lone year: 1 200 kW-months for the option)
+        t = _tariff(RATCHET)
+        flat = np.full(len(year), 100.0)
+        first = bill(t, year, flat, 0 * flat, repeat_year=False, before_p_kw=_july_peak(year), before_q_kvar=0 * flat)
+        assert_allclose(first["amount"].sum(), 12_000.0, **EXACT)
+
+
+class TestSiteSavings:
+    @staticmethod
+    def _arrays(index, option_kw):
+        today = _july_peak(index)
+        p = np.stack([today, option_kw])[:, None, :]  # (options, assets, steps): one asset, today and one option
+        return p, np.zeros_like(p), np.ones((1, 2), dtype=bool), np.array(["keep", "ie4"])
+
+    @pytest.mark.parametrize("tax, factor", [("", 1.0), (TAX, 1.1)])
+    def test_an_option_that_removes_the_peak_saves_less_in_its_first_year(self, year, tax, factor):
+        # cases D7 and D8: yearly saving 7 600, first year 4 000 (19 600 - 15 600), so the shortfall is 3 600,
+        # all of it demand; a 10 % tax on every charge scales both (hand calculation: x 1.1)
+        p, q, applies, tech = self._arrays(year, np.full(len(year), 100.0))
+        out = site_savings(SiteSetup("S", _tariff(RATCHET + tax), Site(), None), year, 1.0, p, q, applies, tech, 35.0)
+        assert_allclose(out["saving"][0, 1].sum(), 7_600.0 * factor, rtol=1e-12)
+        assert_allclose(out["first_year_shortfall"][0, 1], [0.0, 3_600.0 * factor, 0.0, 0.0], rtol=1e-12, atol=1e-9)
+        assert np.all(out["first_year_shortfall"][0, 0] == 0.0)  # today's motor does not change
+
+    def test_an_option_that_adds_a_peak_costs_less_in_its_first_year(self, year):
+        # the reverse change (today flat, the option peaks in July): the first year reads today's flat months,
+        # so January to June bill 100 kW, not 160. Hand calculation (case D8, reversed): yearly saving
+        # 12 000 - 19 600 = -7 600; first year 12 000 - 16 000 = -4 000; shortfall -3 600 (a first-year gain)
+        t = _tariff(RATCHET)
+        flat = np.full(len(year), 100.0)
+        p = np.stack([flat, _july_peak(year)])[:, None, :]
+        out = site_savings(SiteSetup("S", t, Site(), None), year, 1.0, p, np.zeros_like(p),
+                           np.ones((1, 2), dtype=bool), np.array(["keep", "ie4"]), 35.0)
+        assert_allclose(out["saving"][0, 1].sum(), -7_600.0, rtol=1e-12)
+        assert_allclose(out["first_year_shortfall"][0, 1].sum(), -3_600.0, rtol=1e-12)
+
+    def test_without_a_ratchet_the_first_year_saves_the_same(self, year):
+        no_ratchet = RATCHET.replace("ratchet_frac = 0.8\nratchet_months = 11\n", "")
+        p, q, applies, tech = self._arrays(year, np.full(len(year), 100.0))
+        out = site_savings(SiteSetup("S", _tariff(no_ratchet), Site(), None), year, 1.0, p, q, applies, tech, 35.0)
+        assert out["saving"][0, 1].sum() == pytest.approx(1_000.0)  # July: 100 kW x 10 (hand calculation)
+        assert np.all(out["first_year_shortfall"] == 0.0)
+
+
+class TestCashFlows:
+    def test_the_first_year_in_service_carries_the_shortfall(self):
+        # docs/derivations/finance-cashflows.md example F: 1 000 now, 7 600 a year of demand saving, 3 600 short
+        # in year 1; no escalation, life 3 years over a 3-year horizon (no residual)
+        p = cf.ProjectInputs(project_id=["A/IE4"], capex_equipment=1000.0, savings_demand_per_yr=7600.0,
+                             option_life_yr=3.0, first_year_shortfall=[[0.0, 3600.0, 0.0, 0.0, 0.0]])
+        flows = cf.build_cash_flows(p, FinanceAssumptions(horizon_yr=3, escalation_demand_frac=0.0))
+        assert_allclose(flows.net()[0], [-1000.0, 4000.0, 7600.0, 7600.0], **EXACT)
+
+    def test_a_change_at_failure_carries_it_in_the_year_after_the_purchase(self):
+        # example F, at failure: bought in year 1 (remaining life 1), so year 2 is its first year in service;
+        # demand escalating 10 %/yr: 7 600 x 1.1^3 = 10 115.6 in year 3, (7 600 - 3 600) x 1.1^2 = 4 840 in year 2
+        p = cf.ProjectInputs(project_id=["A/IE4"], capex_equipment=1000.0, savings_demand_per_yr=7600.0,
+                             option_life_yr=3.0, existing_remaining_life_yr=1.0,
+                             first_year_shortfall=[[0.0, 3600.0, 0.0, 0.0, 0.0]])
+        a = FinanceAssumptions(horizon_yr=3, escalation_demand_frac=0.1, replacement_mode="replace_at_failure")
+        assert_allclose(cf.build_cash_flows(p, a).component("savings_demand")[0], [0.0, 0.0, 4840.0, 10115.6],
+                        rtol=1e-12)
+
+    def test_the_base_cases_own_first_year_is_given_back(self):
+        # example F, base case: the must-spend item bought at failure in year 1 saves 2 000 a year and 500 less in
+        # its first year (year 2); the option, bought now, saves 7 600 - 3 600 in year 1, then 7 600 - 2 000 + 500
+        # in year 2 and 7 600 - 2 000 in year 3
+        p = cf.ProjectInputs(project_id=["A/IE4"], capex_equipment=1000.0, savings_demand_per_yr=7600.0,
+                             option_life_yr=3.0, baseline_capex=400.0, baseline_life_yr=3.0,
+                             existing_remaining_life_yr=1.0,
+                             baseline_savings_per_yr=[[0.0, 2000.0, 0.0, 0.0, 0.0]],
+                             first_year_shortfall=[[0.0, 3600.0, 0.0, 0.0, 0.0]],
+                             baseline_first_year_shortfall=[[0.0, 500.0, 0.0, 0.0, 0.0]])
+        flows = cf.build_cash_flows(p, FinanceAssumptions(horizon_yr=3, escalation_demand_frac=0.0))
+        assert_allclose(flows.component("savings_demand")[0], [0.0, 4000.0, 6100.0, 5600.0], **EXACT)
+
+    def test_a_shortfall_must_be_finite(self):
+        p = cf.ProjectInputs(project_id=["A/IE4"], first_year_shortfall=[[0.0, np.nan, 0.0, 0.0, 0.0]])
+        with pytest.raises(ValueError, match="first_year_shortfall must be finite"):
+            cf.build_cash_flows(p, FinanceAssumptions(horizon_yr=3))
+
+
+def test_a_projects_npv_falls_by_its_discounted_shortfall(demo_run_physics):
+    # one demo project given a 1 000 demand shortfall: its NPV falls by 1 000 x (1 + e_demand) / (1 + d) x
+    # (1 - tax) (hand calculation: the shortfall sits in year 1 only, escalated and taxed like the demand
+    # saving it reduces), and results.csv names it
+    case, phys = demo_run_physics
+    a = case.finance
+    base = scenario.economics(case, phys, a, with_risk=False)
+    r = base.results
+    i = int(np.flatnonzero((r["option_id"] == "ie4").to_numpy() & (r["existing_remaining_life_yr"] > 2).to_numpy()
+                           & ~r["failed"].to_numpy(dtype=bool))[0])
+    asset, option = str(r["asset_id"].iloc[i]), str(r["option_id"].iloc[i])
+    ai = list(phys.operation.asset_ids).index(asset)
+    oi = list(phys.operation.option_ids).index(option)
+    short = np.zeros_like(phys.savings.saving)
+    short[ai, oi, 1] = 1000.0
+    bumped = scenario.economics(case, replace(phys, savings=replace(phys.savings, first_year_shortfall=short)), a,
+                                with_risk=False)
+    got = bumped.results.iloc[i]
+    assert got["first_year_ratchet_shortfall"] == pytest.approx(1000.0 * float(a.energy_price_factor))
+    expected = (1000.0 * float(a.energy_price_factor) * (1.0 + a.escalation_demand_frac)
+                / (1.0 + a.discount_rate_frac) * (1.0 - a.tax_rate_frac))
+    assert base.results["npv"].iloc[i] - got["npv"] == pytest.approx(expected, rel=1e-9)
+    # every other project's NPV is untouched
+    others = np.arange(len(r)) != i
+    assert np.array_equal(base.results["npv"].to_numpy()[others], bumped.results["npv"].to_numpy()[others])
+
+
+#: A steep demand charge (invented), so that an option pays for the pump and is the one recommended.
+DEMAND_PRICE = 200.0
+RATCHET_TARIFF_FILE = '''[tariff]
+name = "energy and steep demand with ratchet (invented)"
+currency = "EUR"
+time_zone = "UTC"
+[[periods]]
+code = "all"
+[energy]
+price_per_kwh = { all = 0.10 }
+[[demand]]
+name = "d"
+price_per_kw_month = 200.0
+window_min = 60
+ratchet_frac = 0.8
+ratchet_months = 11
+'''
+
+
+@pytest.fixture(scope="module")
+def july_pump_case(tmp_path_factory):
+    """One site on a ratchet tariff whose only motor, a 75 kW pump, runs at 90 % load in July alone: the
+    site's July peak sets the ratchet of every other month (invented)."""
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = tmp_path_factory.mktemp("july") / "case"
+    asset = ["P1", "S1", "Summer cooling pump", "pump", "75", "4", "50", "400", "IE2", "", "", "1475", "2012", "0",
+             "fixed", "LP1", "", "", "high"]
+    hours = pd.date_range("2025-01-01", "2026-01-01", freq="h", inclusive="left")
+    profiles = [["LP1", t.strftime("%Y-%m-%d %H:%M"), "90" if t.month == 7 else "0"] for t in hours]
+    cb.write_case(folder, assets=[asset], sites=[["S1", "Test works", "50", "0.9"]], capacitors=[], duty=[],
+                  profiles=profiles, case_toml='[case]\nname = "Ratchet case"\ncurrency = "EUR"\ntime_zone = "UTC"\n')
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "ratchet.toml").write_text(RATCHET_TARIFF_FILE, encoding="utf-8")
+    sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(sites[0] + ",tariff_file\n" + sites[1] + ",ratchet.toml\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems]
+    return case, scenario.run(case, case.finance, with_risk=False)
+
+
+def test_a_summer_peak_s_saving_waits_for_the_ratchet_in_a_whole_run(july_pump_case):
+    # Hand reasoning (billing-demand.md case D8, with the pump's own July input): July's site peak is
+    # 50 kW + the pump's input, every other month 50 kW, under a floor of 0.8 x July's peak. An option that draws
+    # dP kW less in July saves c x (dP + 11 x 0.8 dP) = 9.8 c dP a year on demand (c the price per kW-month), and
+    # its first year 6 x 0.8 x dP x c = 4.8 c dP less (January to June still read today's July). dP is read from
+    # the option's and today's July input.
+    case, result = july_pump_case
+    op = result.physics.operation
+    july = op.index.month == 7
+    r = result.results.set_index("option_id")
+    checked = 0
+    for o, option_id in enumerate(op.option_ids):
+        if option_id not in r.index or option_id == "keep" or not op.applies[0, o]:
+            continue
+        dp = float(op.p_kw[0, 0][july].max() - op.p_kw[o, 0][july].max())
+        if dp <= 0.01 or op.p_kw[o, 0][july].max() + 50.0 <= 0.0:
+            continue
+        checked += 1
+        assert r.loc[option_id, "saving_demand_per_yr"] == pytest.approx(9.8 * DEMAND_PRICE * dp, rel=1e-9), option_id
+        assert r.loc[option_id, "first_year_ratchet_shortfall"] == pytest.approx(4.8 * DEMAND_PRICE * dp, rel=1e-9), option_id
+    assert checked >= 2
+    # the cash flows carry it in year 1 (replace now): the demand saving of year 1 is the yearly one less it,
+    # before tax, escalated once
+    a = result.assumptions
+    best = r[r["first_year_ratchet_shortfall"] > 0].index[0]
+    cash = result.cashflows
+    demand = cash[(cash["option_id"] == best) & (cash["component"].astype(str) == "savings_demand")].set_index("year")["amount"]
+    grow = 1.0 + a.escalation_demand_frac
+    assert demand.loc[1] == pytest.approx((r.loc[best, "saving_demand_per_yr"] - r.loc[best, "first_year_ratchet_shortfall"])
+                                          * grow, rel=1e-9)
+    assert demand.loc[2] == pytest.approx(r.loc[best, "saving_demand_per_yr"] * grow ** 2, rel=1e-9)
+    # the life-cycle costs read the same flows: today's less the option's is still the option's NPV
+    # (docs/outputs.md, life_cycle_cost)
+    for option_id in r.index[r["first_year_ratchet_shortfall"] > 0]:
+        assert (r.loc["keep", "life_cycle_cost"] - r.loc[option_id, "life_cycle_cost"]
+                == pytest.approx(r.loc[option_id, "npv"], rel=1e-9, abs=1e-6)), option_id
+
+
+def test_the_asset_page_and_the_record_say_the_first_year_saves_less(july_pump_case):
+    from dashboard import services
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case, result = july_pump_case
+    r = result.results
+    i = int(np.argmax(r["first_year_ratchet_shortfall"].to_numpy(dtype=float)))
+    said = services.ratchet_text(result, "P1", "EUR")
+    assert said.startswith("The site's demand ratchet still bills today's peaks for a while after a change: the first "
+                           f"year in service of {r['label'].iloc[i]} saves EUR ")
+    scope = content.select_scope(case, result, assets=["P1"], plan=False)
+    rec = scope.recommended.set_index("asset_id").loc["P1"]
+    reasons = " ".join(record_context(case, result, scope, "P1")["reasons"])
+    assert rec["option_id"] != "keep"
+    short = float(r.set_index("option_id").loc[rec["option_id"], "first_year_ratchet_shortfall"])
+    assert short > 0.5
+    assert (f"Its first year in service saves {content.money(short, 'EUR')} less: the site's demand ratchet still "
+            "bills today's peaks") in reasons
+
+
+def test_without_a_ratchet_nothing_is_said(demo_run_physics):
+    from dashboard import services
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    kgq = result.results.loc[result.results["site_id"] == "KGQ", "asset_id"].iloc[0]  # a kVA tariff without ratchet
+    assert services.ratchet_text(result, kgq, "EUR") == ""
+    assert (result.results.loc[result.results["site_id"] == "KGQ", "first_year_ratchet_shortfall"] == 0.0).all()
+
+
+def test_the_risk_register_names_the_projects_the_ratchet_holds_back(july_pump_case):
+    from models.pack import content
+
+    case, result = july_pump_case
+    scope = content.select_scope(case, result, assets=["P1"], plan=False)
+    rec = scope.recommended.set_index("asset_id").loc["P1"]
+    short = float(result.results.set_index("option_id").loc[rec["option_id"], "first_year_ratchet_shortfall"])
+    register = content.risk_register(case, result, scope)
+    row = register[register["item"] == "Demand ratchet holds back the first year"].iloc[0]
+    assert row["assets"] == "P1"
+    assert row["detail"].startswith(f"the first year in service of 1 recommended project saves {content.money(short, 'EUR')} less")
+
+
+def test_the_register_says_nothing_of_a_ratchet_that_holds_nothing_back(demo_run_physics):
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    register = content.risk_register(case, result, content.select_scope(case, result))
+    assert "Demand ratchet holds back the first year" not in set(register["item"])
