@@ -32,8 +32,8 @@ OPTION_COLOURS = ("#5b6b7a", "#88ccee", "#cc6677", "#ddcc77", "#117733", "#33228
 LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a", "maintenance": "#6a8d4f",
                "tax": "#8a7aa8"}
 #: Colours of bill line-item categories.
-BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "pf adjustment": "#b35b52",
-                "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
+BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "excess": "#a65d1f",
+                "pf adjustment": "#b35b52", "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
 
 
 def _light_template() -> go.layout.Template:

@@ -24,7 +24,7 @@ from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, add_step
 #: Components the finance engine escalates separately, and the bill line-item categories each gathers.
 COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "energy": ("energy",),
-    "demand": ("demand", "ratchet"),
+    "demand": ("demand", "ratchet", "excess"),
     # a demand charge raised for a poor power factor is the price of the reactive power, as a kVArh charge is
     "reactive": ("reactive", "leading", "pf adjustment"),
     "fixed": ("fixed",),

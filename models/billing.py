@@ -50,17 +50,19 @@ LINE_ITEM_CATEGORIES: tuple[str, ...] = (
     "demand",
     "pf adjustment",
     "ratchet",
+    "excess",
     "reactive",
     "leading",
     "tax",
 )
 _TAX_BASE_CATEGORIES = {
-    "all_charges": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "reactive", "leading"),
+    "all_charges": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "reactive", "leading"),
     "energy_charges": ("energy",),
-    "demand_charges": ("demand", "pf adjustment", "ratchet"),
+    "demand_charges": ("demand", "pf adjustment", "ratchet", "excess"),
     "reactive_charges": ("reactive", "leading"),
     "fixed_charges": ("fixed",),
-    "all_charges_and_earlier_taxes": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "reactive", "leading", "tax"),
+    "all_charges_and_earlier_taxes": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "reactive",
+                                      "leading", "tax"),
 }
 # Scenario rows priced together in bill_many: bounds memory at about 8 arrays × 2**17 floats (14 rows
 # of an hourly year). Blocks this small stay in the processor's cache and their temporaries are reused
@@ -544,6 +546,14 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
     raw, p_at, q_at = _window_peaks_kernel(p, q, d.basis != "kW", want_q, win.starts, win.count, win.identity,
                                            win.month_bounds, in_scope, n_s)
     peak = np.where(applies, np.maximum(raw, 0.0), 0.0)
+    rate = np.full(n_m, d.price_per_unit_month)
+    no_flag = np.zeros((n_s, n_m), dtype=bool)
+    if d.contracted is not None:
+        # the contract's capacity every month the charge is in force, and the demand above it at its own price
+        booked = np.broadcast_to(np.where(applies, float(d.contracted), 0.0), (n_s, n_m))
+        return [_Item(f"demand:{d.name}", "demand", d.basis, rate, booked, applies, no_flag),
+                _Item(f"excess:{d.name}", "excess", d.basis, np.full(n_m, d.excess_price),
+                      np.maximum(peak - float(d.contracted), 0.0), applies, no_flag)]
 
     adjusted = peak
     if a is not None:
@@ -575,8 +585,6 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
             first = billed
 
     unit = d.basis
-    rate = np.full(n_m, d.price_per_unit_month)
-    no_flag = np.zeros((n_s, n_m), dtype=bool)
     items = [_Item(f"demand:{d.name}", "demand", unit, rate, peak, applies, no_flag)]
     if a is not None:
         items.append(_Item(f"pf adjustment:{d.name}", "pf adjustment", unit, rate, adjusted - peak, applies, no_flag))

@@ -223,6 +223,15 @@ class DemandCharge:
         Look-back of the ratchet [months], 1-36.
     power_factor_adjustment : PowerFactorAdjustment or None
         Adjustment of a kW demand for low power factor.
+    contracted : float or None
+        Capacity booked in the supply contract [kW or kVA, the charge's basis], > 0; None = none. With a
+        contract the charge bills the contracted capacity every month it is in force (line item
+        ``demand:<name>``, whatever the demand) and the month's demand above it at
+        ``excess_price_per_unit_month`` (``excess:<name>``). Not combined with a ratchet or a
+        power-factor adjustment.
+    excess_price_per_unit_month : float or None
+        Price of each kW (kVA) of the month's demand above the contract [currency per unit per month];
+        None = ``price_per_unit_month`` (the greater of the contract and the demand is billed).
     """
 
     name: str
@@ -234,6 +243,13 @@ class DemandCharge:
     ratchet_frac: float | None = None
     ratchet_months: int = 0
     power_factor_adjustment: PowerFactorAdjustment | None = None
+    contracted: float | None = None
+    excess_price_per_unit_month: float | None = None
+
+    @property
+    def excess_price(self) -> float:
+        """Price of the demand above the contract [currency per unit per month]."""
+        return self.price_per_unit_month if self.excess_price_per_unit_month is None else self.excess_price_per_unit_month
 
 
 @dataclass(frozen=True)
@@ -686,6 +702,23 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
                 err(f"{k}.ratchet_months", d.ratchet_months, f"ratchet look-back must be 1-{_MAX_RATCHET_MONTHS} months")
         elif d.ratchet_months:
             err(f"{k}.ratchet_frac", None, "ratchet_months needs ratchet_frac", "e.g. ratchet_frac = 0.8")
+        unit = d.basis.lower()
+        if d.contracted is not None:
+            if not (math.isfinite(d.contracted) and d.contracted > 0.0):
+                err(f"{k}.contracted_{unit}", d.contracted, "contracted capacity must be a number > 0",
+                    f"the {d.basis} booked in the supply contract")
+            if d.ratchet_frac is not None:
+                err(f"{k}.contracted_{unit}", d.contracted, "a contracted capacity and a ratchet in one demand charge",
+                    "give one of them: the contract bills its capacity every month, the ratchet past peaks")
+            if d.power_factor_adjustment is not None:
+                err(f"{k}.contracted_{unit}", d.contracted, "a contracted capacity with a power-factor adjustment is "
+                    "not modelled", "price the power factor with a [[reactive]] clause, or bill the demand in kVA")
+        if d.excess_price_per_unit_month is not None:
+            price(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month)
+            if d.contracted is None:
+                err(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month,
+                    f"an excess price needs the contracted capacity it is above (contracted_{unit})",
+                    f"e.g. contracted_{unit} = 500")
         a = d.power_factor_adjustment
         if a is not None:
             ka = f"{k}.power_factor_adjustment"
@@ -845,6 +878,10 @@ _DEMAND_KEYS = (
     "ratchet_frac",
     "ratchet_months",
     "power_factor_adjustment",
+    "contracted_kw",
+    "contracted_kva",
+    "excess_price_per_kw_month",
+    "excess_price_per_kva_month",
 )
 _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
 _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons")
@@ -897,7 +934,7 @@ def near_misses(key: str, allowed: tuple[str, ...]) -> list[str]:
     >>> near_misses("taxs", _TOP_KEYS), near_misses("Time-Zone", _TARIFF_KEYS), near_misses("window", _DEMAND_KEYS)
     (['taxes'], ['time_zone'], ['window_min'])
     >>> near_misses("notes_for_me", _TARIFF_KEYS), near_misses("price_per_kv_month", _DEMAND_KEYS)
-    ([], ['price_per_kva_month', 'price_per_kw_month'])
+    ([], ['price_per_kva_month', 'price_per_kw_month', 'excess_price_per_kva_month'])
     >>> near_misses("Taxs", _TOP_KEYS)
     ['taxes']
     """
@@ -1366,6 +1403,15 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             pf_from = r.get(at, "power_factor_from", pa, "str", default="month_average")
             if method is not None and target is not None:
                 pfa = PowerFactorAdjustment(method, target, 1.0 if pct is None else pct, round_up, pf_from)
+        contract = excess = None
+        for unit in ("kw", "kva"):
+            for key in (f"contracted_{unit}", f"excess_price_per_{unit}_month"):
+                if key in d and basis is not None and unit != basis.lower():
+                    r.err(f"{p}.{key}", d[key], f"the charge is on {basis}, so its contract is in {basis} too",
+                          f"write {key.replace(unit, basis.lower())}")
+        if basis is not None:
+            contract = r.get(d, f"contracted_{basis.lower()}", p, "number", default=None)
+            excess = r.get(d, f"excess_price_per_{basis.lower()}_month", p, "number", default=None)
         if basis is not None and dprice is not None and window is not None:
             demand.append(
                 DemandCharge(
@@ -1378,6 +1424,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
                     ratchet_frac=share,
                     ratchet_months=months if months is not None else 0,
                     power_factor_adjustment=pfa,
+                    contracted=contract,
+                    excess_price_per_unit_month=excess,
                 )
             )
             pos["demand"].append(i)

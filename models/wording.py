@@ -50,7 +50,8 @@ def money_text(value: float | None, currency: str) -> str:
 #: Each bill line item's category (the part before the colon of ``models.billing.bill``'s ``line_item``) in words.
 LINE_ITEM_CATEGORIES = {"fixed": "Fixed charge", "energy": "Energy", "demand": "Demand charge",
                         "pf adjustment": "Power-factor adjustment of demand", "ratchet": "Demand ratchet",
-                        "lagging": "Reactive energy (lagging)", "leading": "Reactive energy (leading)", "tax": "Tax"}
+                        "excess": "Demand above the contracted capacity",
+                        "reactive": "Reactive energy (lagging)", "leading": "Reactive energy (leading)", "tax": "Tax"}
 
 
 def line_item_text(line_item: str) -> str:
@@ -59,7 +60,7 @@ def line_item_text(line_item: str) -> str:
 
     Examples
     --------
-    >>> line_item_text("tax:VAT"), line_item_text("demand:capacity"), line_item_text("lagging:excess kvarh")
+    >>> line_item_text("tax:VAT"), line_item_text("demand:capacity"), line_item_text("reactive:excess kvarh")
     ('Tax: VAT', 'Demand charge: capacity', 'Reactive energy (lagging): excess kvarh')
     >>> line_item_text("other"), line_item_text("fixed:")
     ('other', 'Fixed charge')

@@ -183,3 +183,33 @@ def test_a_power_factor_adjustment_saving_is_reactive_and_keeps_its_demand_tax()
     option = np.array([900.0, 450.0, 80.0, 53.0])   # 10 % of 450 + 80
     saving = _category_savings(names, today, option[None, :], (Tax("demand levy", 10.0, "demand_charges"),))[0]
     assert_allclose(saving, [100.0, 55.0, 22.0, 0.0], atol=1e-9)
+
+
+def test_under_a_contract_only_the_demand_above_it_is_saved():
+    # hand calculation, docs/derivations/billing-demand.md case D9: a 500 kW contract, February's peak 650 kW at
+    # 20 per kW above it; lowering the peak to 550 kW saves 2 000, to 450 kW only the 150 kW above the contract
+    # (3 000); January's 400 kW peak is under the contract, so lowering it saves nothing
+    import pandas as pd
+
+    from models.bill_savings import SiteSetup, site_savings
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({"tariff": {"name": "contract (invented)", "currency": "EUR", "time_zone": "UTC"},
+                                    "periods": [{"code": "all"}],
+                                    "demand": [{"name": "d", "price_per_kw_month": 10.0, "window_min": 60,
+                                                "contracted_kw": 500.0, "excess_price_per_kw_month": 20.0}]})
+    assert t is not None, problems
+    idx = pd.date_range("2025-01-01", "2025-03-01", freq="h", tz="UTC", inclusive="left")
+    today = np.where(idx.month == 1, 300.0, 200.0)
+    jan, feb = idx.get_loc(pd.Timestamp("2025-01-20 09:00", tz="UTC")), idx.get_loc(pd.Timestamp("2025-02-11 14:00", tz="UTC"))
+    today[jan], today[feb] = 400.0, 650.0
+    options = [today.copy() for _ in range(4)]
+    options[1][feb] = 550.0
+    options[2][feb] = 450.0
+    options[3][jan] = 300.0
+    p = np.stack(options)[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 1.0, p, np.zeros_like(p), np.ones((1, 4), dtype=bool),
+                       np.array(["keep", "ie4", "ie4", "ie4"]), 35.0)
+    assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 2_000.0, 3_000.0, 0.0], atol=1e-9)
+    assert_allclose(out["saving"][0, :, 1], [0.0, 2_000.0, 3_000.0, 0.0], atol=1e-9)  # all of it demand

@@ -220,6 +220,33 @@ class TestDemand:
         assert_allclose(ratchet["amount"].to_numpy(), [0.0, 3000.0, 1000.0, 2600.0], **EXACT)
         assert list(ratchet.index) == ["2025-01", "2025-02", "2025-03", "2025-04"]
 
+    @pytest.mark.parametrize("clause, expected_excess, expected_total", [
+        # hand calculation, see docs/derivations/billing-demand.md, case D9: contract 500 kW at 10, peaks 400 and
+        # 650 kW; the excess at 20 (given) or at the demand price (left out)
+        ("contracted_kw = 500\nexcess_price_per_kw_month = 20.0", [0.0, 150.0], 13_000.0),
+        ("contracted_kw = 500", [0.0, 150.0], 11_500.0),
+    ])
+    def test_contracted_capacity_and_the_demand_above_it(self, clause, expected_excess, expected_total):
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\n' + clause)
+        idx = pd.date_range("2025-01-01", "2025-03-01", freq="h", tz="UTC", inclusive="left")
+        p = np.where(idx.month == 1, 300.0, 200.0)
+        p[idx.get_loc(pd.Timestamp("2025-01-20 09:00", tz="UTC"))] = 400.0
+        p[idx.get_loc(pd.Timestamp("2025-02-11 14:00", tz="UTC"))] = 650.0
+        b = bill(t, idx, p, np.zeros(len(idx)))
+        assert_allclose(b[b["line_item"] == "demand:d"]["quantity"].to_numpy(), [500.0, 500.0], **EXACT)
+        assert_allclose(b[b["line_item"] == "excess:d"]["quantity"].to_numpy(), expected_excess, **EXACT)
+        assert_allclose(bill_total(b), expected_total, **EXACT)
+        assert set(b["line_item"]) == {"demand:d", "excess:d"}
+
+    def test_a_contract_in_kva_bills_the_apparent_power_above_it(self):
+        # case D9, kVA: 400 kW at 300 kVAr is 500 kVA (3-4-5), 40 kVA above a 460 kVA contract, at 15
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kva_month = 10.0\nwindow_min = 60\n'
+                 'contracted_kva = 460\nexcess_price_per_kva_month = 15.0')
+        idx = pd.date_range("2025-01-06", periods=2, freq="h", tz="UTC")
+        b = bill(t, idx, [400.0, 100.0], [300.0, 0.0])
+        assert_allclose(quantity(b, "excess:d"), 40.0, atol=1e-9)
+        assert_allclose(bill_total(b), 4_600.0 + 600.0, atol=1e-9)
+
     @pytest.mark.parametrize("repeat_year, expected_jan_kw", [(False, 100.0), (True, 800.0)])
     def test_ratchet_of_a_repeated_year(self, repeat_year, expected_jan_kw):
         # hand calculation, see docs/derivations/billing-demand.md, case D6

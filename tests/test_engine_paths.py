@@ -47,7 +47,8 @@ from models.tariff import tariff_from_dict
 
 REPO = Path(__file__).resolve().parents[1]
 TARIFF_DIR = REPO / "data" / "tariffs"
-EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml"]
+EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml",
+            "example_contracted_capacity.toml"]
 # Bills of up to ~1e5 summed over months in another order than one scenario's bill: a few ulps.
 BILL_RTOL = 1e-12
 # A line item that is zero in one path and a sum of zeros in the other: float rounding only.

@@ -94,9 +94,9 @@ class TestExampleFiles:
         assert problems == []
         assert t is not None
 
-    def test_there_are_three_examples_marked_invented(self):
+    def test_there_are_four_examples_marked_invented(self):
         files = sorted(TARIFF_DIR.glob("*.toml"))
-        assert len(files) == 3
+        assert len(files) == 4
         for f in files:
             head = f.read_text(encoding="utf-8").splitlines()[0]
             assert head.startswith("#") and "INVENTED" in head.upper()
@@ -108,6 +108,8 @@ class TestExampleFiles:
 
         a = read("example_tou_kw_reactive_ratchet.toml")
         assert a.currency == "EUR" and a.demand[0].basis == "kW" and a.demand[0].ratchet_frac is not None
+        contract = read("example_contracted_capacity.toml")
+        assert contract.demand[0].contracted == 900.0 and contract.demand[0].excess_price == 12.30
         assert_allclose(a.reactive[0].free_kvarh_per_kwh, 0.33, rtol=0, atol=0)  # value as written in the file
         b = read("example_kva_demand.toml")
         assert b.demand[0].basis == "kVA"
@@ -369,6 +371,18 @@ class TestValidation:
             ('[[demand]]\nprice_per_kw_month = 5.0\nprice_per_kva_month = 5.0', "demand[1]", "not both"),
             ('[[demand]]\nprice_per_kw_month = 5.0\nratchet_months = 11', "demand[1].ratchet_frac", "needs ratchet_frac"),
             ('[[demand]]\nprice_per_kw_month = 5.0\nperiods = ["peak"]', "demand[1].periods", "unknown period"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\ncontracted_kva = 500', "demand[1].contracted_kva", "in kW too"),
+            ('[[demand]]\nprice_per_kva_month = 5.0\ncontracted_kva = 500\nexcess_price_per_kw_month = 9',
+             "demand[1].excess_price_per_kw_month", "in kVA too"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\ncontracted_kw = 0', "demand[1].contracted_kw", "must be a number > 0"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\ncontracted_kw = 500\nratchet_frac = 0.8\nratchet_months = 11',
+             "demand[1].contracted_kw", "a contracted capacity and a ratchet"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\ncontracted_kw = 500\n[demand.power_factor_adjustment]\n'
+             'method = "ratio"\ntarget_power_factor = 0.9', "demand[1].contracted_kw", "not modelled"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\nexcess_price_per_kw_month = 9', "demand[1].excess_price_per_kw_month",
+             "needs the contracted capacity"),
+            ('[[demand]]\nprice_per_kw_month = 5.0\ncontracted_kw = 500\nexcess_price_per_kw_month = -9',
+             "demand[1].excess_price_per_kw_month", "negative price"),
             ('[[reactive]]\nprice_per_kvarh = 0.01', "reactive[1]", "free_kvarh_per_kwh or free_power_factor"),
             ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 1.5', "reactive[1].free_power_factor", "(0, 1]"),
             ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\nallowance_per = "week"', "reactive[1].allowance_per", "unknown value"),
@@ -500,7 +514,8 @@ class TestMisspeltKeys:
             (BASE + '[[taxes]]\nname = "VAT"\nrate_pc = 20\n', "taxes[1].rate_pc", "'rate_pct'"),
             (BASE + '[[fixed]]\nname = "meter"\ncharge_per_mnth = 85.0\n', "fixed[1].charge_per_mnth", "'charge_per_month'"),
             (BASE + '[[demand]]\nprice_per_kw_month = 5\nwindow = 30\n', "demand[1].window", "'window_min'"),
-            (BASE + '[[demand]]\nprice_per_kw_mnth = 5\n', "demand[1].price_per_kw_mnth", "'price_per_kw_month' or 'price_per_kva_month'"),
+            (BASE + '[[demand]]\nprice_per_kw_mnth = 5\n', "demand[1].price_per_kw_mnth",
+             "'price_per_kw_month', 'price_per_kva_month' or 'excess_price_per_kw_month'"),  # closest first
             (BASE + '[[demand]]\nprice_per_kw_month = 5\n[demand.power_factor_adjustmnt]\nmethod = "ratio"\ntarget_power_factor = 0.9\n',
              "demand[1].power_factor_adjustmnt", "'power_factor_adjustment'"),
             (BASE + '[[demand]]\nprice_per_kw_month = 5\n[demand.power_factor_adjustment]\nmethod = "ratio"\ntarget_powerfactor = 0.9\n',
