@@ -33,6 +33,7 @@ LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a"
                "tax": "#8a7aa8"}
 #: Colours of bill line-item categories.
 BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "excess": "#a65d1f",
+                "coincident": "#7d4f2a",
                 "pf adjustment": "#b35b52", "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
 
 

@@ -24,7 +24,7 @@ from models.site import FixedCapacitorBank, Site, SteppedCapacitorBank, add_step
 #: Components the finance engine escalates separately, and the bill line-item categories each gathers.
 COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "energy": ("energy",),
-    "demand": ("demand", "ratchet", "excess"),
+    "demand": ("demand", "ratchet", "excess", "coincident"),
     # a demand charge raised for a poor power factor is the price of the reactive power, as a kVArh charge is
     "reactive": ("reactive", "leading", "pf adjustment"),
     "fixed": ("fixed",),
@@ -320,7 +320,7 @@ def kvar_clauses(tariff):
     """
     energy = tariff.energy if tariff.energy is not None and tariff.energy.basis != "kWh" else None
     demand = tuple(d for d in tariff.demand if d.basis != "kW" or d.power_factor_adjustment is not None)
-    return replace(tariff, fixed=(), energy=energy, demand=demand)
+    return replace(tariff, fixed=(), energy=energy, demand=demand, coincident=())
 
 
 class _SiteBiller:

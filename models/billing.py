@@ -51,18 +51,20 @@ LINE_ITEM_CATEGORIES: tuple[str, ...] = (
     "pf adjustment",
     "ratchet",
     "excess",
+    "coincident",
     "reactive",
     "leading",
     "tax",
 )
 _TAX_BASE_CATEGORIES = {
-    "all_charges": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "reactive", "leading"),
+    "all_charges": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "coincident", "reactive",
+                    "leading"),
     "energy_charges": ("energy",),
-    "demand_charges": ("demand", "pf adjustment", "ratchet", "excess"),
+    "demand_charges": ("demand", "pf adjustment", "ratchet", "excess", "coincident"),
     "reactive_charges": ("reactive", "leading"),
     "fixed_charges": ("fixed",),
-    "all_charges_and_earlier_taxes": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "reactive",
-                                      "leading", "tax"),
+    "all_charges_and_earlier_taxes": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess",
+                                      "coincident", "reactive", "leading", "tax"),
 }
 # Scenario rows priced together in bill_many: bounds memory at about 8 arrays × 2**17 floats (14 rows
 # of an hourly year). Blocks this small stay in the processor's cache and their temporaries are reused
@@ -244,6 +246,8 @@ class _Calendar:
     run_starts: np.ndarray  # first interval of each run of consecutive intervals in one cell, then T (R + 1,)
     run_cell: np.ndarray  # (month, period) cell of each run, month * K + period (R,)
     masks: dict = field(default_factory=dict)  # scope masks already built, by (periods, seasons, window)
+    # each coincident-peak clause's windows found in the series: (first step, step after), by clause name
+    peaks: dict = field(default_factory=dict)
 
     @property
     def n_months(self) -> int:
@@ -303,6 +307,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         )
     steps_in_cell = np.zeros(len(labels) * k, dtype=np.int64)
     np.add.at(steps_in_cell, month * k + period, 1)
+    peaks = {c.name: peak_windows(wall_ns, c.times, c.window_min) for c in getattr(tariff, "coincident", ())}
     return _Calendar(
         n_steps=len(index),
         interval_h=float(interval_h),
@@ -316,7 +321,59 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         windows=windows,
         run_starts=np.concatenate(([0], run_starts, [len(index)])).astype(np.int64),
         run_cell=cell[np.concatenate(([0], run_starts))].astype(np.int64),
+        peaks=peaks,
     )
+
+
+def peak_windows(wall_ns: np.ndarray, times, window_min: int) -> list[tuple[int, int]]:
+    """The steps of each listed peak time's window, in every year of the series.
+
+    Parameters
+    ----------
+    wall_ns : numpy.ndarray of int64, shape (n_steps,)
+        Interval starts as local wall-clock time [ns since 1970, naive], increasing.
+    times : sequence of (month, day, hour, minute)
+        Window starts on the local clock.
+    window_min : int
+        Window length [min].
+
+    Returns
+    -------
+    list of (int, int)
+        (first step, step after the last) of each window that holds at least one interval start; a time
+        whose day does not exist in a year (29 February) or whose window holds no interval is left out.
+    """
+    if not len(wall_ns):
+        return []
+    years = range(pd.Timestamp(int(wall_ns[0])).year, pd.Timestamp(int(wall_ns[-1])).year + 1)
+    out = []
+    for year in years:
+        for month, day, hour, minute in times:
+            try:
+                start = pd.Timestamp(year=year, month=month, day=day, hour=hour, minute=minute).value
+            except ValueError:
+                continue
+            a = int(np.searchsorted(wall_ns, start, side="left"))
+            b = int(np.searchsorted(wall_ns, start + window_min * _NS_PER_MIN, side="left"))
+            if b > a:
+                out.append((a, b))
+    return out
+
+
+def _coincident_items(cal: _Calendar, c, p: np.ndarray, n_s: int) -> _Item:
+    """A coincident-peak clause's line item: the mean of the site's import over its windows, every month."""
+    n_m = cal.n_months
+    windows = cal.peaks.get(c.name, [])
+    demand = np.zeros(p.shape[0])
+    for a, b in windows:
+        demand += np.maximum(p[:, a:b].mean(axis=1), 0.0)
+    if windows:
+        demand /= len(windows)
+    quantity = np.broadcast_to(demand[:, None], (p.shape[0], n_m))
+    if quantity.shape[0] != n_s:
+        quantity = np.broadcast_to(quantity, (n_s, n_m))
+    return _Item(f"coincident:{c.name}", "coincident", "kW", np.full(n_m, c.price_per_kw_month), quantity,
+                 np.ones(n_m, dtype=bool), np.zeros((n_s, n_m), dtype=bool))
 
 
 def _mask(cal: _Calendar, tariff: Tariff, periods, seasons, period_arr=None, season_arr=None) -> np.ndarray:
@@ -664,6 +721,9 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
         lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
         for d in tariff.demand:
             items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before))
+
+    for c in getattr(tariff, "coincident", ()):
+        items.append(_coincident_items(cal, c, p, n_s))
 
     for kind, r, scope, months, at in clauses:
         if r.allowance_per == "interval":

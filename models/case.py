@@ -1602,6 +1602,36 @@ def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSetting
                 f"list the holidays of {year} as well"))
 
 
+def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
+                              sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
+    """Warn of a coincident-peak clause none of whose times falls inside the analysis series: it bills nothing,
+    so no motor saves on it."""
+    from models.billing import peak_windows
+    from models.profiles import analysis_index
+    from models.tariff import _local_wall
+
+    listed = {name: t for name, t in tariffs.items() if getattr(t, "coincident", ())}
+    if not listed:
+        return
+    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    try:
+        index = analysis_index(profiles, settings.time_zone, used=used)
+    except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
+        return
+    for name, tariff in listed.items():
+        wall_ns = _local_wall(tariff, index).to_numpy().astype("datetime64[ns]").astype(np.int64)
+        for i, clause in enumerate(tariff.coincident, start=1):
+            if not peak_windows(wall_ns, clause.times, clause.window_min):
+                source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
+                problems.append(warning(
+                    source, None, f"coincident_peak[{i}].times", f"{len(clause.times)} time(s)",
+                    f"no peak time of the clause falls in the analysis period ({index[0]:%Y-%m-%d} to "
+                    f"{index[-1]:%Y-%m-%d}, the case's profiles): it bills nothing and no motor saves on it",
+                    "list the system's peak times of the profiles' year (the year itself is not used: month, day "
+                    "and time must fall inside the profiles)"))
+
+
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:
     c = checker.frame
     _duplicates(checker, "bank_id", "bank_id")
@@ -1990,6 +2020,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
         _check_holidays_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                 raw, problems)
+        _check_peak_times_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
+                                  raw, problems)
     if "assets" in checkers:
         _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
         _check_rules_ahead(settings, raw.settings_source, checkers["assets"].frame, problems)

@@ -324,6 +324,39 @@ class FixedCharge:
 
 
 @dataclass(frozen=True)
+class CoincidentPeak:
+    """A charge on the site's demand at the supply system's peak times, whatever the site's own peak.
+
+    Transmission and capacity charges are often set by the site's demand in the few intervals when the
+    whole system peaked (named by the utility after the season), not by the site's own monthly peak: a
+    motor saves on them only where it runs, and draws less, at those times.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``coincident:<name>``.
+    price_per_kw_month : float
+        Price [currency per kW per month], billed every month on the coincident demand.
+    times : tuple of (int, int, int, int)
+        The system's peak times as (month, day, hour, minute) of the local clock, each the start of a window
+        of ``window_min``. The year is not kept: the analysis bills a typical year, and each time is looked
+        for in every year the meter series covers.
+    window_min : int
+        Length of each peak window [min]: 15, 30 or 60.
+
+    Notes
+    -----
+    The coincident demand is the mean over the listed times that fall inside the series of the site's mean
+    import [kW] over each window, billed at the same quantity in every month of the series.
+    """
+
+    name: str
+    price_per_kw_month: float
+    times: tuple[tuple[int, int, int, int], ...]
+    window_min: int = 60
+
+
+@dataclass(frozen=True)
 class Tax:
     """A tax or levy as a percentage of a base.
 
@@ -360,7 +393,7 @@ class Tariff:
         Public holidays (day type ``holiday``).
     energy : EnergyCharge or None
         Energy charge.
-    demand, reactive, leading, fixed, taxes : tuples of the clause types
+    demand, reactive, leading, fixed, taxes, coincident : tuples of the clause types
         Clauses, in file order.
     time_zone : str or None
         IANA zone the tariff's clock times are in; None = the meter index's own zone.
@@ -382,6 +415,7 @@ class Tariff:
     fixed: tuple[FixedCharge, ...] = ()
     taxes: tuple[Tax, ...] = ()
     time_zone: str | None = None
+    coincident: tuple[CoincidentPeak, ...] = ()
     allow_negative_prices: bool = False
     notes: str = ""
 
@@ -683,6 +717,19 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             if code not in priced:
                 err(key, code, f"period '{code}' has no energy price", "give every period a price (0 if free)")
 
+    _check_unique([c.name for c in tariff.coincident], "coincident_peak", "name", err, at)
+    for i, c in enumerate(tariff.coincident, start=1):
+        k = at("coincident_peak", i)
+        price(f"{k}.price_per_kw_month", c.price_per_kw_month)
+        if c.window_min not in DEMAND_WINDOWS_MIN:
+            err(f"{k}.window_min", c.window_min, f"peak window must be one of {DEMAND_WINDOWS_MIN} minutes")
+        else:
+            off = [f"{h:02d}:{m:02d}" for _, _, h, m in c.times if (h * 60 + m) % c.window_min]
+            if off:
+                err(f"{k}.times", off[0], f"a peak time must start a {c.window_min}-min window of the clock",
+                    f"e.g. {off[0][:2]}:00")
+        if len(set(c.times)) < len(c.times):
+            warn(f"{k}.times", None, "a peak time is listed twice: it counts twice in the mean", "list each time once")
     _check_unique([d.name for d in tariff.demand], "demand", "name", err, at)
     for i, d in enumerate(tariff.demand, start=1):
         k = at("demand", i)
@@ -861,7 +908,8 @@ _MISSING = object()
 _HOURS_RE = re.compile(r"^\s*(\d{1,2}):(\d{2})\s*-\s*(\d{1,2}):(\d{2})\s*$")
 _CURRENCY_RE = re.compile(r"^[A-Z]{3}$")
 
-_TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "reactive", "leading", "taxes")
+_TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "coincident_peak", "reactive",
+             "leading", "taxes")
 _TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes")
 _CALENDAR_KEYS = ("holidays",)
 _SEASON_KEYS = ("name", "months")
@@ -887,6 +935,7 @@ _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points
 _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons")
 _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
 _TAX_KEYS = ("name", "rate_pct", "base")
+_COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
 
 
 #: Similarity (difflib ratio, 0-1) from which an unknown key counts as a misspelling of an allowed key:
@@ -1294,7 +1343,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     if len(set(holidays)) != len(holidays):
         r.warn("calendar.holidays", [str(d) for d in holidays], "a date is listed twice")
 
-    pos: dict[str, list[int]] = {t: [] for t in ("seasons", "periods", "fixed", "demand", "reactive", "leading", "taxes")}
+    pos: dict[str, list[int]] = {t: [] for t in ("seasons", "periods", "fixed", "demand", "reactive", "leading", "taxes",
+                                                 "coincident_peak")}
     seasons: list[Season] = []
     for i, s in enumerate(r.tables(data, "seasons"), start=1):
         p = f"seasons[{i}]"
@@ -1459,6 +1509,18 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             leading.append(LeadingCharge(lname, lprice, ratio, banned, scope, lperiods, lseasons))
             pos["leading"].append(i)
 
+    coincident = []
+    for i, e in enumerate(r.tables(data, "coincident_peak"), start=1):
+        p = f"coincident_peak[{i}]"
+        r.known(e, _COINCIDENT_KEYS, p)
+        cname = r.get(e, "name", p, "str", default=f"coincident peak {i}")
+        cprice = r.get(e, "price_per_kw_month", p, "number")
+        cwindow = r.get(e, "window_min", p, "int", default=60)
+        ctimes = _peak_times(r, e, p)
+        if cprice is not None and cwindow is not None and ctimes is not None:
+            coincident.append(CoincidentPeak(cname, cprice, ctimes, cwindow))
+            pos["coincident_peak"].append(i)
+
     taxes = []
     for i, e in enumerate(r.tables(data, "taxes"), start=1):
         p = f"taxes[{i}]"
@@ -1485,6 +1547,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         time_zone=time_zone,
         allow_negative_prices=allow_negative,
         notes=notes,
+        coincident=tuple(coincident),
     )
     # A near miss leaves out what the misspelt key holds: the checks across the tariff (coverage, references,
     # prices) would judge another tariff than the one written, so they wait until the key is named right.
@@ -1492,6 +1555,40 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     if any(pr.severity == "error" for pr in problems):
         return None, problems
     return tariff, problems
+
+
+def _peak_times(r: _Reader, e: dict, path: str) -> tuple[tuple[int, int, int, int], ...] | None:
+    """Read a coincident-peak clause's ``times``: TOML local date-times (``2025-07-15T17:00:00``) or text
+    (``"2025-07-15 17:00"``); return (month, day, hour, minute) of each, or None (reported)."""
+    key = f"{path}.times"
+    if "times" not in e:
+        if not r.reported(path, "times"):
+            r.err(key, None, "a coincident-peak charge needs the system's peak times",
+                  'e.g. times = [2025-07-15T17:00:00, 2025-08-02T16:00:00] (local clock, window starts)')
+        return None
+    raw = e["times"]
+    if not isinstance(raw, list) or not raw:
+        r.err(key, raw, "expected a non-empty list of date-times", 'e.g. times = [2025-07-15T17:00:00]')
+        return None
+    out = []
+    for value in raw:
+        stamp = None
+        if isinstance(value, dt.datetime):
+            stamp = value
+        elif isinstance(value, str):
+            try:
+                stamp = dt.datetime.fromisoformat(value.strip().replace(" ", "T", 1))
+            except ValueError:
+                stamp = None
+        if stamp is None or stamp.tzinfo is not None:
+            r.err(key, value, "expected a local date and time (no zone: the tariff's time_zone applies)",
+                  'write 2025-07-15T17:00:00 or "2025-07-15 17:00"')
+            return None
+        if stamp.second or stamp.microsecond:
+            r.err(key, value, "a peak time starts a window on a whole minute", 'e.g. 2025-07-15T17:00:00')
+            return None
+        out.append((stamp.month, stamp.day, stamp.hour, stamp.minute))
+    return tuple(out)
 
 
 def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | None:

@@ -51,6 +51,7 @@ def money_text(value: float | None, currency: str) -> str:
 LINE_ITEM_CATEGORIES = {"fixed": "Fixed charge", "energy": "Energy", "demand": "Demand charge",
                         "pf adjustment": "Power-factor adjustment of demand", "ratchet": "Demand ratchet",
                         "excess": "Demand above the contracted capacity",
+                        "coincident": "Demand at the system's peak times",
                         "reactive": "Reactive energy (lagging)", "leading": "Reactive energy (leading)", "tax": "Tax"}
 
 

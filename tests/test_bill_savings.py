@@ -213,3 +213,33 @@ def test_under_a_contract_only_the_demand_above_it_is_saved():
                        np.array(["keep", "ie4", "ie4", "ie4"]), 35.0)
     assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 2_000.0, 3_000.0, 0.0], atol=1e-9)
     assert_allclose(out["saving"][0, :, 1], [0.0, 2_000.0, 3_000.0, 0.0], atol=1e-9)  # all of it demand
+
+
+def test_a_coincident_peak_charge_is_saved_only_where_the_motor_runs_at_the_peak_times():
+    # hand calculation, docs/derivations/billing-demand.md case D10: two peak hours (15 July 17:00, 5 August
+    # 16:00) at 5 per kW-month, every month of the year. A motor drawing 20 kW less in both hours saves
+    # 20 x 5 x 12 = 1 200; one drawing 20 kW less in one of them saves half of that (the mean of the two), 600; one
+    # that draws less only in the mornings saves nothing
+    import pandas as pd
+
+    from models.bill_savings import SiteSetup, site_savings
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({"tariff": {"name": "cp (invented)", "currency": "EUR", "time_zone": "UTC"},
+                                    "periods": [{"code": "all"}],
+                                    "coincident_peak": [{"name": "tx", "price_per_kw_month": 5.0,
+                                                         "times": ["2025-07-15 17:00", "2025-08-05 16:00"]}]})
+    assert t is not None, problems
+    idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+    today = np.full(len(idx), 100.0)
+    jul, aug = idx.get_loc(pd.Timestamp("2025-07-15 17:00", tz="UTC")), idx.get_loc(pd.Timestamp("2025-08-05 16:00", tz="UTC"))
+    both, one, mornings = today.copy(), today.copy(), today.copy()
+    both[[jul, aug]] = 80.0
+    one[jul] = 80.0
+    mornings[idx.hour < 12] = 80.0
+    p = np.stack([today, both, one, mornings])[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 1.0, p, np.zeros_like(p), np.ones((1, 4), dtype=bool),
+                       np.array(["keep", "ie4", "ie4", "ie4"]), 35.0)
+    assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 1_200.0, 600.0, 0.0], atol=1e-9)
+    assert_allclose(out["saving"][0, :, 1], [0.0, 1_200.0, 600.0, 0.0], atol=1e-9)  # in the demand component

@@ -247,6 +247,33 @@ class TestDemand:
         assert_allclose(quantity(b, "excess:d"), 40.0, atol=1e-9)
         assert_allclose(bill_total(b), 4_600.0 + 600.0, atol=1e-9)
 
+    @pytest.mark.parametrize("freq, steps_per_h", [("h", 1), ("15min", 4)])
+    def test_coincident_peak_bills_the_demand_at_the_systems_peak_times(self, freq, steps_per_h):
+        # hand calculation, see docs/derivations/billing-demand.md, case D10: 300 kW all year but 500 kW in the
+        # hour from 15 July 17:00 and 400 kW from 5 August 16:00; the site's own peak (800 kW on 1 March) is not
+        # at a system peak. Coincident demand (500 + 400) / 2 = 450 kW x 5 x 12 months = 27 000
+        t = load(FLAT + '[[coincident_peak]]\nname = "transmission"\nprice_per_kw_month = 5.0\n'
+                 'times = [2025-07-15T17:00:00, "2025-08-05 16:00"]\n')
+        idx = pd.date_range("2025-01-01", "2026-01-01", freq=freq, tz="UTC", inclusive="left")
+        p = pd.Series(300.0, index=idx)
+        p[pd.Timestamp("2025-07-15 17:00", tz="UTC"):pd.Timestamp("2025-07-15 17:59", tz="UTC")] = 500.0
+        p[pd.Timestamp("2025-08-05 16:00", tz="UTC"):pd.Timestamp("2025-08-05 16:59", tz="UTC")] = 400.0
+        p[pd.Timestamp("2025-03-01 10:00", tz="UTC")] = 800.0
+        b = bill(t, idx, p.to_numpy(), np.zeros(len(idx)))
+        assert set(b["line_item"]) == {"coincident:transmission"}
+        assert_allclose(b["quantity"].to_numpy(), np.full(12, 450.0), **EXACT)
+        assert_allclose(bill_total(b), 27_000.0, **EXACT)
+        assert len(p[pd.Timestamp("2025-07-15 17:00", tz="UTC"):pd.Timestamp("2025-07-15 17:59", tz="UTC")]) == steps_per_h
+
+    def test_a_peak_time_outside_the_series_is_left_out(self):
+        # only July's time falls in a series of June to August; a 29 February time exists in no year of it
+        t = load(FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\n'
+                 'times = [2024-02-29T12:00:00, 2025-07-15T17:00:00, 2025-12-01T17:00:00]\n')
+        idx = pd.date_range("2025-06-01", "2025-09-01", freq="h", tz="UTC", inclusive="left")
+        p = np.where(idx == pd.Timestamp("2025-07-15 17:00", tz="UTC"), 250.0, 100.0)
+        b = bill(t, idx, p, np.zeros(len(idx)))
+        assert_allclose(b["quantity"].to_numpy(), [250.0, 250.0, 250.0], **EXACT)
+
     @pytest.mark.parametrize("repeat_year, expected_jan_kw", [(False, 100.0), (True, 800.0)])
     def test_ratchet_of_a_repeated_year(self, repeat_year, expected_jan_kw):
         # hand calculation, see docs/derivations/billing-demand.md, case D6

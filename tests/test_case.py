@@ -842,6 +842,24 @@ def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
     assert not [p for p in problems if p.column == "calendar.holidays"]
 
 
+def test_coincident_peak_times_outside_the_profiles_are_warned(tmp_path):
+    # the case's profiles (tests/casebuilder.py) are extended to the year 2025: a 29 February exists in none of it,
+    # so the clause bills nothing; 15 July (of any year: the year is not used) falls inside
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    head = ('[tariff]\nname = "cp (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n[[periods]]\ncode = "all"\n'
+            '[energy]\nprice_per_kwh = { all = 0.1 }\n[[coincident_peak]]\nname = "tx"\nprice_per_kw_month = 5.0\n')
+    (folder / "tariffs" / "t.toml").write_text(head + "times = [2024-02-29T17:00:00]\n", encoding="utf-8")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    case, problems = load_case(folder)
+    assert case is not None
+    found = _find(problems, file="tariffs/t.toml", column="coincident_peak[1].times", severity="warning")
+    assert "it bills nothing and no motor saves on it" in found.rule and "2025-01-01 to 2025-12-31" in found.rule
+    (folder / "tariffs" / "t.toml").write_text(head + "times = [2019-07-15T17:00:00]\n", encoding="utf-8")
+    _, problems = load_case(folder)
+    assert not [p for p in problems if p.column == "coincident_peak[1].times"]
+
+
 def test_budget_years_past_the_horizon_are_warned(tmp_path):
     # models.plan.plan_beyond_horizon_text: 3 budget years over a 2-year horizon start projects after the study
     from models.case import load_case
