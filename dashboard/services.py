@@ -1006,22 +1006,11 @@ def edits_change(view_: View, new_edits: dict) -> bool:
 # Presentation helpers: result -> small tables for the figure builders
 # ---------------------------------------------------------------------------------------------------
 def headline(result) -> dict:
-    """Plan capital, yearly saving (as the plan counts it), plan NPV and CO2 avoided of the exact plan."""
-    from models.pack.content import plan_yearly_saving
+    """Plan capital, yearly saving (as the plan counts it), plan NPV and CO2 avoided of the exact plan
+    (:func:`models.comparison.plan_headline`)."""
+    from models.comparison import plan_headline
 
-    res = result.results
-    plan = result.plan
-    chosen = res.set_index(scenario.project_labels(res)).reindex(scenario.project_labels(plan)) if len(plan) else res.iloc[0:0]
-    # as the plan counts it (the pack's headline too): a reactive project at the share of its bill saving it adds
-    # beside the plan's other projects, on the basis of the plan NPV beside it
-    saving = float(plan_yearly_saving(result, chosen.assign(in_plan=True)).sum()) if len(chosen) else 0.0
-    return {
-        "plan_capital": float(plan["capital"].sum()) if len(plan) else 0.0,
-        "yearly_saving_per_yr": float(saving),
-        "plan_npv": float(plan["npv_at_plan_start"].sum()) if len(plan) else 0.0,
-        "co2_avoided_t_per_yr": float(chosen["co2_avoided_t_per_yr"].sum()) if len(chosen) else 0.0,
-        "projects": int(len(plan)),
-    }
+    return plan_headline(result)
 
 
 def no_option_text(result, asset_id: str) -> str:

@@ -287,6 +287,24 @@ monte_carlo_draws = 1000
 monte_carlo_seed = 20261201
 '''
 
+SCENARIOS_TOML = '''# INVENTED DEMO CASE: named scenarios for illustration (see docs/case-format.md, "Scenarios").
+# Each starts from finance.toml and changes only the keys it names; `drivecase run` writes the plan under each
+# beside the case as written (scenarios.csv), and the pack and the dashboard show them side by side.
+
+[[scenarios]]
+name = "Cheaper money"
+discount_rate_frac = 0.06
+
+[[scenarios]]
+name = "Dearer electricity, larger budget"
+energy_price_factor = 1.2
+budget_per_yr = [400000, 300000, 200000]
+
+[[scenarios]]
+name = "Wait for failures"
+replacement_mode = "replace_at_failure"
+'''
+
 #: The sites' bills of 2024 (invented): a year before the profiles' 2025, set near today's fleet as the demo
 #: models it with a seeded scatter (water works: energy a few % above the model, peaks of 15-min windows above
 #: the hourly model's; quarry: energy about 1 % below, its kVA demand not given). Columns of BILL_COLUMNS.
@@ -317,6 +335,7 @@ motors, the profiles and the prices. Any likeness to a real company or plant is 
 - `profiles.parquet`: one year of hourly shaft-load profiles (and one measured base-load profile).
 - `duty.csv`: a duty table for cycling pumps.
 - `finance.toml`: discount rate, horizon, escalation, CO2 factor and capital budgets (illustrative).
+- `scenarios.toml`: three named scenarios, each changing some of those assumptions.
 - `tariffs/`: the two sites' tariffs (copies of invented example tariffs from `data/tariffs/`).
 - `bill_history.csv`: the two sites' monthly bills of 2024 (invented), to set today's fleet as modelled
   beside them.
@@ -341,6 +360,7 @@ def write_demo(target: Path = HERE) -> None:
     (target / "bill_history.csv").write_text(_csv(BILLS, BILL_COLUMNS), encoding="utf-8")
     (target / "case.toml").write_text(CASE_TOML, encoding="utf-8")
     (target / "finance.toml").write_text(FINANCE_TOML, encoding="utf-8")
+    (target / "scenarios.toml").write_text(SCENARIOS_TOML, encoding="utf-8")
     (target / "README.md").write_text(README, encoding="utf-8")
     (target / "tariffs").mkdir(exist_ok=True)
     for site in SITES:

@@ -430,6 +430,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     except OSError as exc:
         return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)
+    _print_scenarios(case, result)
     _print_calibration_summary(case, Path(args.out) / "calibration.csv")
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
@@ -441,6 +442,26 @@ def cmd_run(args: argparse.Namespace) -> int:
               "motor option in the catalogue, offered to at least one motor)")
     print(f"\n{CAUTION}")
     return 0
+
+
+def _print_scenarios(case, result) -> None:
+    """The case's named scenarios beside its own assumptions (scenarios.csv), one line each; nothing without any."""
+    if not getattr(case, "scenarios", ()):
+        return
+    from models.comparison import case_scenarios
+    from models.wording import money_text
+
+    table = case_scenarios(case, result)
+    cur = case.settings.currency
+    print("\nScenarios (scenarios.csv): the plan under each, and its change from the case as written")
+    for row in table.to_dict("records"):
+        line = (f"  {row['scenario']}: plan NPV {money_text(row['plan_npv'], cur)}, capital "
+                f"{money_text(row['plan_capital'], cur)}, saving {money_text(row['yearly_saving_per_yr'], cur)}/yr, "
+                f"{int(row['projects'])} projects")
+        if row["scenario"] != table["scenario"].iloc[0]:
+            line += (f" (NPV {'+' if row['plan_npv_change'] >= 0 else '-'}"
+                     f"{money_text(abs(row['plan_npv_change']), cur)})")
+        print(line)
 
 
 def _print_run_summary(case, result) -> None:

@@ -133,6 +133,9 @@ class Case:
         Checked tariffs by file name.
     finance : models.finance.FinanceAssumptions
         Finance assumptions from ``finance.toml`` (defaults where the case has none).
+    scenarios : tuple of (str, FinanceAssumptions)
+        Named scenarios: the case's own assumptions with the keys each ``[[scenarios]]`` table of
+        ``scenarios.toml`` (or row of a workbook's ``scenarios`` sheet) changes (:mod:`models.comparison`).
     problems : list of Problem
         Errors and warnings found.
     """
@@ -152,6 +155,7 @@ class Case:
     finance: object = None
     problems: tuple[Problem, ...] = ()
     bill_history: pd.DataFrame = field(default_factory=pd.DataFrame)
+    scenarios: tuple = ()
 
     @property
     def errors(self) -> list[Problem]:
@@ -1747,8 +1751,10 @@ def _valid_currency(code: str) -> bool:
     return bool(re.fullmatch(r"[A-Z]{3}", code))
 
 
-def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Problem]):
-    """Read the finance assumptions (defaults where absent); the currency must be the case's."""
+def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Problem], scenarios: list | None = None):
+    """Read the finance assumptions (defaults where absent); the currency must be the case's. The named
+    scenarios (``[[scenarios]]`` of scenarios.toml, a workbook's ``scenarios`` sheet) go into ``scenarios``."""
+    from models.comparison import read_scenarios
     from models.finance import FinanceAssumptions
 
     data, source, read_problems = io.read_finance_settings(raw)
@@ -1756,6 +1762,8 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     if has_errors(read_problems):
         return None
     flat = data if isinstance(data, dict) else {}
+    tables, scenario_source, scenario_problems = io.read_scenario_tables(raw)
+    problems.extend(scenario_problems)
     if not flat and raw.kind in ("folder", "workbook"):
         problems.append(warning(source, None, None, None,
                                 "no finance assumptions were found: the program's defaults are used (discount rate, "
@@ -1779,6 +1787,11 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
+    if tables is not None and assumptions is not None:
+        named, scenario_problems = read_scenarios(tables, flat, scenario_source)
+        problems.extend(scenario_problems)
+        if scenarios is not None:
+            scenarios.extend(named)
     if assumptions is not None and assumptions.budget_per_yr and not any(b > 0 for b in assumptions.budget_per_yr):
         problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr),
                                 "every plan year's capital budget is 0: the plan buys only projects that need no "
@@ -1995,7 +2008,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
             problems.append(error(checkers["duty"].raw.source, None, "profile_id", pid,
                                   "the same profile_id is used in profiles and in duty", "rename one of them"))
     tariffs = _check_tariffs(raw, settings, problems)
-    finance_assumptions = _check_finance(raw, settings, problems)
+    named_scenarios: list = []
+    finance_assumptions = _check_finance(raw, settings, problems, named_scenarios)
     if "sites" in checkers:
         _check_sites(checkers["sites"], raw.tariffs, profiles, tariffs_expected=True,
                      unreadable=raw.unreadable_tariffs, rejected_profiles=rejected_profiles)
@@ -2059,6 +2073,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         defaults=defaults,
         tariffs=tariffs,
         finance=finance_assumptions,
+        scenarios=tuple(named_scenarios),
         extra=dict(raw.extra),
         problems=tuple(problems),
     )

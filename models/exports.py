@@ -26,6 +26,9 @@ RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank
 RUN_SETTINGS_FILE = "run_settings.csv"
 #: The nameplate fields the case left blank and the values taken for them (:func:`defaulted_fields`).
 DEFAULTS_FILE = "defaults.csv"
+#: The plan's headline under the case's own assumptions and under each of its named scenarios
+#: (:func:`models.comparison.case_scenarios`).
+SCENARIOS_FILE = "scenarios.csv"
 
 
 def neutralise_text(value: object) -> object:
@@ -254,8 +257,9 @@ def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
 def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     """Return every table of a run, by file name (see :data:`RUN_FILES`).
 
-    With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`)
-    and :data:`DEFAULTS_FILE` (:func:`defaulted_fields`) are added.
+    With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`),
+    :data:`DEFAULTS_FILE` (:func:`defaulted_fields`) and :data:`SCENARIOS_FILE`
+    (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) are added.
     """
     results = result.results.copy()
     if case is not None:
@@ -302,8 +306,11 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         if tables[name].empty and not len(tables[name].columns):
             tables[name] = pd.DataFrame(columns=columns)
     if case is not None:
+        from models.comparison import case_scenarios
+
         tables[RUN_SETTINGS_FILE] = run_settings(result, case.settings)
         tables[DEFAULTS_FILE] = defaulted_fields(case)
+        tables[SCENARIOS_FILE] = case_scenarios(case, result)
     return tables
 
 

@@ -822,7 +822,7 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
     # sheet names are looked up as headers are (normalise_header: case, spaces and underscores folded), so a
     # table whose name holds an underscore ("bill_history") is found under its folded key
     table_key = {table: normalise_header(table) for table in CASE_TABLES}
-    known = set(table_key.values()) | {"case", "finance", "instructions", "read me", "readme"}
+    known = set(table_key.values()) | {"case", "finance", "scenarios", "instructions", "read me", "readme"}
     for key, name in sheets.items():
         if key not in known and not key.startswith("tariff"):
             case.problems.append(warning(f"{path.name}:{name}", None, None, None,
@@ -852,6 +852,8 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
                 except tomllib.TOMLDecodeError:
                     pass
         case.extra["finance"] = values
+    if "scenarios" in sheets:
+        case.extra["scenarios"] = _scenarios_sheet(book[sheets["scenarios"]])
     for key, name in sheets.items():
         if key.startswith("tariff"):
             text = "\n".join(str(r[0]) for r in book[name].iter_rows(values_only=True) if r and r[0] is not None)
@@ -963,6 +965,30 @@ def _percent_format(number_format: object) -> bool:
     return "%" in re.sub(r'"[^"]*"|\\.', "", number_format)
 
 
+def _scenarios_sheet(sheet) -> list[dict]:
+    """Read a ``scenarios`` sheet: a header row (``name`` and the finance keys), then one scenario per row;
+    a blank cell leaves that key as the case has it. Rows starting with # and empty rows are passed over."""
+    header: list[str] | None = None
+    out: list[dict] = []
+    for row in sheet.iter_rows(values_only=True):
+        if not row or all(v is None for v in row) or str(row[0] or "").lstrip().startswith("#"):
+            continue
+        if header is None:
+            header = [normalise_header(v).replace(" ", "_") if v is not None else "" for v in row]
+            continue
+        entry = {}
+        for key, value in zip(header, row):
+            if key and value is not None and not (isinstance(value, str) and not value.strip()):
+                if isinstance(value, str) and value.strip().startswith("["):
+                    try:
+                        value = tomllib.loads(f"v = {value}")["v"]
+                    except tomllib.TOMLDecodeError:
+                        pass
+                entry[key] = value
+        out.append(entry)
+    return out
+
+
 def _settings_sheet(sheet) -> dict:
     """Read a two-column key/value settings sheet into the ``[case]`` table of a settings dict."""
     values: dict[str, object] = {}
@@ -1070,6 +1096,9 @@ def read_folder(path: Path) -> RawCase:
     if "finance.toml" in files:
         used.add("finance.toml")
         case.extra["finance.toml"] = files["finance.toml"]
+    if "scenarios.toml" in files:
+        used.add("scenarios.toml")
+        case.extra["scenarios.toml"] = files["scenarios.toml"]
     expected = sorted(used | {f"{t}.csv" for t in CASE_TABLES})
     for key, file_path in files.items():
         if key in used or file_path.name.startswith((".", "~$")) or file_path.suffix.lower() not in _CASE_LIKE_SUFFIXES:
@@ -1080,9 +1109,39 @@ def read_folder(path: Path) -> RawCase:
         elif close:
             hint = f"did you mean {close[0]}?"
         else:
-            hint = f"case files are: {', '.join(f'{t}.csv' for t in CASE_TABLES)}, case.toml, finance.toml"
+            hint = (f"case files are: {', '.join(f'{t}.csv' for t in CASE_TABLES)}, case.toml, finance.toml, "
+                    "scenarios.toml")
         case.problems.append(warning(file_path.name, None, None, None, "file not part of the case format; it was ignored", hint))
     return case
+
+
+def read_scenario_tables(raw: "RawCase") -> tuple[list | None, str, list[Problem]]:
+    """Return a case's named scenarios as written: the ``[[scenarios]]`` tables of ``scenarios.toml``, or the
+    rows of a workbook's ``scenarios`` sheet (each a dict of ``name`` and finance keys); None without any.
+
+    Returns
+    -------
+    tables : list of dict or None
+    source : str
+        File or sheet name for problem messages.
+    problems : list of Problem
+    """
+    if raw.kind == "folder":
+        path = raw.extra.get("scenarios.toml")
+        if not isinstance(path, Path) or not path.is_file():
+            return None, "scenarios.toml", []
+        data, problems = read_toml_file(path, path.name)
+        if has_errors(problems):
+            return None, path.name, problems
+        others = sorted(k for k in data if k != "scenarios")
+        if others:
+            problems = problems + [warning(path.name, None, others[0], None,
+                                           "scenarios.toml holds [[scenarios]] tables only; this key was ignored",
+                                           "the case's own assumptions go in finance.toml")]
+        return data.get("scenarios", []), path.name, problems
+    if raw.kind == "workbook" and raw.extra.get("scenarios") is not None:
+        return list(raw.extra["scenarios"]), f"{raw.path.name}:scenarios", []
+    return None, "scenarios.toml", []
 
 
 def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:

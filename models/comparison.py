@@ -1,0 +1,268 @@
+"""Scenarios side by side: the fleet plan's headline under several sets of finance assumptions.
+
+A scenario is a name and the finance assumptions that differ from the case's own (a lower discount rate,
+dearer electricity, a larger budget). Each is run through the economics of the same physics (the machines
+and the bills do not change with the finance assumptions) and its plan summed into a headline: capital,
+yearly saving as the plan counts it, plan NPV, CO2 avoided and projects. :func:`compare` sets the
+headlines side by side with each one's difference from the first (the case as written).
+
+The scenarios a case carries are ``[[scenarios]]`` tables in its ``scenarios.toml`` (or rows of a workbook's
+``scenarios`` sheet): each a ``name`` and the finance keys it changes (docs/case-format.md, "Scenarios").
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import weakref
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import pandas as pd
+
+from models.problems import Problem, error
+
+#: The case's own assumptions, as the first row of every comparison is named.
+BASE_NAME = "Case as written"
+#: Longest scenario name [characters] (it heads a column of the report and a row of the tables).
+MAX_NAME_CHARS = 60
+#: The headline figures compared, with their words (each also compared as a difference from the first row).
+HEADLINE_COLUMNS: tuple[tuple[str, str], ...] = (
+    ("plan_capital", "Plan capital"),
+    ("yearly_saving_per_yr", "Plan yearly saving, as the plan counts it"),
+    ("plan_npv", "Plan NPV"),
+    ("co2_avoided_t_per_yr", "CO2 avoided [t/yr]"),
+    ("projects", "Projects in the plan"),
+)
+#: The assumptions shown beside each headline, with their words.
+ASSUMPTION_COLUMNS: tuple[tuple[str, str], ...] = (
+    ("discount_rate_pct", "Discount rate [%/yr]"),
+    ("escalation_energy_pct", "Energy price escalation [%/yr]"),
+    ("horizon_yr", "Horizon [yr]"),
+    ("energy_price_level_pct", "Electricity price level [%]"),
+    ("capital_cost_level_pct", "Capital cost level [%]"),
+    ("budget_total", "Capital budget, all plan years"),
+    ("replacement_mode", "Replacement timing"),
+)
+
+
+def plan_headline(result) -> dict[str, float]:
+    """The exact plan's headline: capital, yearly saving as the plan counts it, NPV, CO2 avoided, projects.
+
+    Parameters
+    ----------
+    result : models.scenario.ScenarioResult
+
+    Returns
+    -------
+    dict
+        ``plan_capital`` [currency], ``yearly_saving_per_yr`` [currency/yr] (a reactive project at the share of
+        its bill saving it adds beside the plan's other projects, as the plan NPV counts it),
+        ``plan_npv`` [currency, at plan start], ``co2_avoided_t_per_yr`` [t/yr], ``projects`` [-].
+    """
+    from models.pack.content import plan_yearly_saving
+    from models.plan import project_labels
+
+    res, plan = result.results, result.plan
+    chosen = res.set_index(project_labels(res)).reindex(project_labels(plan)) if len(plan) else res.iloc[0:0]
+    saving = float(plan_yearly_saving(result, chosen.assign(in_plan=True)).sum()) if len(chosen) else 0.0
+    return {
+        "plan_capital": float(plan["capital"].sum()) if len(plan) else 0.0,
+        "yearly_saving_per_yr": saving,
+        "plan_npv": float(plan["npv_at_plan_start"].sum()) if len(plan) else 0.0,
+        "co2_avoided_t_per_yr": float(chosen["co2_avoided_t_per_yr"].sum()) if len(chosen) else 0.0,
+        "projects": int(len(plan)),
+    }
+
+
+def assumption_summary(assumptions) -> dict[str, Any]:
+    """The assumptions a comparison shows beside each headline (percentages 0-100, the budget summed;
+    ``budget_total`` is NaN where there is no limit)."""
+    budget = tuple(assumptions.budget_per_yr or ())
+    return {
+        "discount_rate_pct": 100.0 * float(assumptions.discount_rate_frac),
+        "escalation_energy_pct": 100.0 * float(assumptions.escalation_energy_frac),
+        "horizon_yr": int(assumptions.horizon_yr),
+        "energy_price_level_pct": 100.0 * float(assumptions.energy_price_factor),
+        "capital_cost_level_pct": 100.0 * float(assumptions.capital_cost_factor),
+        "budget_total": float(sum(budget)) if budget else math.nan,
+        "replacement_mode": str(assumptions.replacement_mode).replace("_", " "),
+    }
+
+
+def compare(rows: Sequence[tuple[str, Any, dict[str, float]]]) -> pd.DataFrame:
+    """Set scenario headlines side by side, each with its difference from the first.
+
+    Parameters
+    ----------
+    rows : sequence of (name, assumptions, headline)
+        In order; the first is the reference (usually the case as written, :data:`BASE_NAME`). ``headline``
+        as :func:`plan_headline` returns it.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per scenario: ``scenario``, the :data:`ASSUMPTION_COLUMNS`, the :data:`HEADLINE_COLUMNS` and
+        for each headline figure ``<column>_change``, its value less the first row's (0 in the first row).
+
+    Examples
+    --------
+    >>> from models.finance import FinanceAssumptions
+    >>> a, b = FinanceAssumptions(), FinanceAssumptions(discount_rate_frac=0.06)
+    >>> h = {"plan_capital": 100.0, "yearly_saving_per_yr": 30.0, "plan_npv": 50.0, "co2_avoided_t_per_yr": 2.0,
+    ...      "projects": 3}
+    >>> t = compare([("Case as written", a, h), ("Cheaper money", b, {**h, "plan_npv": 65.0})])
+    >>> t[["scenario", "discount_rate_pct", "plan_npv", "plan_npv_change"]].values.tolist()
+    [['Case as written', 8.0, 50.0, 0.0], ['Cheaper money', 6.0, 65.0, 15.0]]
+    """
+    records = []
+    for name, assumptions, headline in rows:
+        records.append({"scenario": str(name), **assumption_summary(assumptions),
+                        **{key: headline[key] for key, _ in HEADLINE_COLUMNS}})
+    frame = pd.DataFrame.from_records(records, columns=["scenario"] + [k for k, _ in ASSUMPTION_COLUMNS]
+                                      + [k for k, _ in HEADLINE_COLUMNS])
+    for key, _ in HEADLINE_COLUMNS:
+        first = frame[key].iloc[0] if len(frame) else 0.0
+        frame[f"{key}_change"] = frame[key] - first
+    return frame
+
+
+def run_scenarios(named: Sequence[tuple[str, Any]], economics: Callable[[Any], Any]) -> pd.DataFrame:
+    """Run each named set of assumptions and compare their plans' headlines.
+
+    Parameters
+    ----------
+    named : sequence of (name, FinanceAssumptions)
+        The scenarios in order; the first is the reference.
+    economics : callable
+        ``economics(assumptions) -> ScenarioResult`` on one case and its physics (e.g.
+        :func:`models.scenario.economics` without the Monte Carlo).
+
+    Returns
+    -------
+    pandas.DataFrame
+        :func:`compare` of the scenarios.
+    """
+    return compare([(name, a, plan_headline(economics(a))) for name, a in named])
+
+
+#: The last result's comparison with its case's scenarios (computed once, whoever asks: files, report,
+#: workbook): (weak reference to the result, the case, the table).
+_LAST: dict[str, tuple] = {}
+
+
+def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
+    """The case as written (``result``) beside each of the case's named scenarios, run on its physics.
+
+    Parameters
+    ----------
+    case : models.case.Case
+        Its ``scenarios`` are run (none: the table holds the case's own row alone).
+    result : models.scenario.ScenarioResult
+        The run of the case's own assumptions; its physics serve every scenario.
+    plan_settings : models.scenario.PlanSettings, optional
+        How far each scenario's exact plan is proven (default :data:`models.scenario.PRECISE_PLAN`, as
+        the run's own).
+
+    Returns
+    -------
+    pandas.DataFrame
+        :func:`compare` of the rows, the case's own first (named :data:`BASE_NAME`).
+    """
+    from models import scenario
+
+    kept = _LAST.get("last")
+    if kept is not None and kept[0]() is result and kept[1] is case:
+        return kept[2].copy()
+    settings = plan_settings or scenario.PRECISE_PLAN
+    rows = [(BASE_NAME, result.assumptions, plan_headline(result))]
+    for name, assumptions in getattr(case, "scenarios", ()):
+        other = scenario.economics(case, result.physics, assumptions, with_risk=False, plan_settings=settings)
+        rows.append((name, assumptions, plan_headline(other)))
+    table = compare(rows)
+    _LAST["last"] = (weakref.ref(result), case, table)
+    return table.copy()
+
+
+def _finance_keys() -> tuple[str, ...]:
+    """The keys a finance file may hold (docs/finance.md)."""
+    from dataclasses import fields
+
+    from models.finance import FinanceAssumptions
+
+    return tuple(f.name for f in fields(FinanceAssumptions))
+
+
+def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenarios") -> tuple[list[tuple[str, Any]], list[Problem]]:
+    """Read a case's scenarios: each a ``name`` and the finance keys it changes from the case's own.
+
+    Parameters
+    ----------
+    tables : list of dict
+        The ``[[scenarios]]`` tables (or a workbook sheet's rows as dicts), in order.
+    base : dict
+        The case's own finance keys as read (each scenario starts from them).
+    source : str
+        The file the scenarios are in, as the user sees it.
+    prefix : str
+        How the problems name an entry: ``scenarios[n].<key>``, counted from 1.
+
+    Returns
+    -------
+    (list of (str, FinanceAssumptions), list of Problem)
+        The scenarios that are valid, in order, and every problem (an invalid scenario is an error naming
+        its entry and key; it is left out).
+    """
+    from models.finance import FinanceAssumptions
+
+    problems: list[Problem] = []
+    if not isinstance(tables, list) or not all(isinstance(t, dict) for t in tables):
+        return [], [error(source, None, prefix, None, "scenarios must be tables, one per scenario",
+                          '[[scenarios]]\nname = "Cheaper money"\ndiscount_rate_frac = 0.06')]
+    out: list[tuple[str, Any]] = []
+    seen: dict[str, int] = {}
+    for i, table in enumerate(tables, start=1):
+        at = f"{prefix}[{i}]"
+        name = table.get("name")
+        if not isinstance(name, str) or not name.strip():
+            problems.append(error(source, None, f"{at}.name", name, "a scenario needs a name",
+                                  'e.g. name = "Dearer electricity"'))
+            continue
+        name = name.strip()
+        if len(name) > MAX_NAME_CHARS:
+            problems.append(error(source, None, f"{at}.name", name, f"a scenario's name is at most {MAX_NAME_CHARS} "
+                                  "characters", "shorten it; a longer description goes in a # comment"))
+            continue
+        if name in seen or name == BASE_NAME:
+            problems.append(error(source, None, f"{at}.name", name,
+                                  f"duplicate scenario name (also {prefix}[{seen[name]}])" if name in seen
+                                  else f"'{BASE_NAME}' names the case's own assumptions",
+                                  "give each scenario a name of its own"))
+            continue
+        seen[name] = i
+        changes = {k: v for k, v in table.items() if k != "name"}
+        if not changes:
+            problems.append(error(source, None, at, name, "the scenario changes no assumption",
+                                  "add the finance keys it changes, e.g. discount_rate_frac = 0.06"))
+            continue
+        known = set(_finance_keys())
+        unknown = [k for k in changes if k not in known]
+        for k in unknown:
+            close = difflib.get_close_matches(str(k), sorted(known), n=1, cutoff=0.6)
+            problems.append(error(source, None, f"{at}.{k}", changes[k],
+                                  "unknown finance key: the scenario would not change what it means to",
+                                  f"did you mean '{close[0]}'?" if close else "the keys are listed in docs/finance.md"))
+        if unknown:
+            continue
+        assumptions, found = FinanceAssumptions.from_dict({**base, **changes}, source=source)
+        for p in found:
+            # a problem of a key the scenario sets is the scenario's; one of the case's own keys is reported there
+            if p.column in changes:
+                problems.append(Problem(p.severity, p.file, p.row, f"{at}.{p.column}", p.value, p.rule, p.hint))
+        if assumptions is None:
+            if not any(p.severity == "error" and p.column in changes for p in found):
+                problems.append(error(source, None, at, name, "the scenario's assumptions are not valid",
+                                      "see the case's finance problems"))
+            continue
+        out.append((name, assumptions))
+    return out, problems
