@@ -1039,19 +1039,20 @@ def failed_text(result, asset_id: str, currency: str) -> str:
 
 
 def ratchet_text(result, asset_id: str, currency: str) -> str:
-    """What the Asset page says where a demand ratchet holds back an option's first year ("" where none
-    does): the largest first-year shortfall among the asset's options (docs/finance.md, section 4)."""
+    """What the Asset page says where a demand ratchet holds back an option's first years ("" where none
+    does): the largest shortfall among the asset's options (docs/finance.md, section 4)."""
     res = result.results
     rows = res[res["asset_id"].astype(str) == str(asset_id)]
-    if "first_year_ratchet_shortfall" not in rows or not len(rows):
+    if "ratchet_shortfall" not in rows or not len(rows):
         return ""
-    short = rows["first_year_ratchet_shortfall"].to_numpy(dtype=float)
+    short = rows["ratchet_shortfall"].to_numpy(dtype=float)
     i = int(np.argmax(short))
     if not short[i] > 0.5:
         return ""
-    return (f"The site's demand ratchet still bills today's peaks for a while after a change: the first year in "
-            f"service of {rows['label'].iloc[i]} saves {money_text(float(short[i]), currency)} less than the yearly "
-            "saving shown (every NPV and payback counts it).")
+    return (f"The site's demand ratchet still bills today's peaks for a while after a change (the first year in "
+            f"service, longer for a look-back over 12 months): {rows['label'].iloc[i]} saves "
+            f"{money_text(float(short[i]), currency)} less in all than the yearly saving shown (the NPVs and paybacks "
+            "count it within the horizon).")
 
 
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:

@@ -30,6 +30,9 @@ COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "fixed": ("fixed",),
 }
 SAVING_COMPONENTS: tuple[str, ...] = tuple(COMPONENT_CATEGORIES)
+#: Years after a change in which a ratchet can still read the months before it: the longest look-back a tariff
+#: may give (36 months) in whole years.
+RATCHET_YEARS: int = billing.transition_years(36)
 #: Asset-option scenarios billed together, in scenario-steps: 14 scenarios of an hourly year (about
 #: 10 arrays of 1 MiB live per block). Small blocks stay in the processor's cache and their temporaries
 #: are reused by the allocator rather than mapped afresh for every block (benchmarks/bench_fleet.py).
@@ -66,11 +69,12 @@ class BillSavings:
         (NaN for the other options).
     baseline_bills : pandas.DataFrame
         site_id, month, line_item, quantity, unit, rate, amount: today's bills.
-    first_year_shortfall : numpy.ndarray, shape (n_assets, n_options, n_components), optional
-        How much less the first year after the change saves than ``saving`` [currency], by component:
-        a demand ratchet still reads the months before the change (today's peaks) for up to its
-        look-back, so a peak the option removes is still billed at the ratchet's share that year.
-        Negative where the option raises the demand (the ratchet then reads today's lower peaks).
+    ratchet_shortfall : numpy.ndarray, shape (n_assets, n_options, RATCHET_YEARS, n_components), optional
+        How much less each of the first years after the change saves than ``saving`` [currency], by year
+        (the first, the second, the third) and component: a demand ratchet still reads the months before
+        the change (today's peaks) for its look-back, so a peak the option removes is still billed at the
+        ratchet's share until it leaves the look-back (the first year alone for a look-back of up to 12
+        months). Negative where the option raises the demand (the ratchet then reads today's lower peaks).
         None (the default) = 0 everywhere.
     """
 
@@ -80,12 +84,15 @@ class BillSavings:
     equivalent_bank_q_kvar: np.ndarray
     equivalent_bank_cost: np.ndarray
     baseline_bills: pd.DataFrame
-    first_year_shortfall: np.ndarray | None = None
+    ratchet_shortfall: np.ndarray | None = None
 
     @property
     def shortfall(self) -> np.ndarray:
-        """:attr:`first_year_shortfall`, zeros where none was given, shape of :attr:`saving`."""
-        return np.zeros_like(self.saving) if self.first_year_shortfall is None else self.first_year_shortfall
+        """:attr:`ratchet_shortfall`, zeros where none was given: (n_assets, n_options, RATCHET_YEARS, n_components)."""
+        if self.ratchet_shortfall is not None:
+            return self.ratchet_shortfall
+        n_a, n_o, n_c = self.saving.shape
+        return np.zeros((n_a, n_o, RATCHET_YEARS, n_c))
 
     @property
     def total(self) -> np.ndarray:
@@ -418,20 +425,21 @@ class _SiteBiller:
         """The stepped banks on the meters (p, q), then the bill's line items (see :meth:`totals`).
 
         With ``before`` (:meth:`history` of the meter before a change) a third value follows: the amounts
-        of the first year after the change (S, I) [currency]."""
+        of each year after the change while a ratchet still reads the meter before it (K, S, I) [currency]."""
         for bank in self.stepped:  # in place, one compiled pass (the values of q += bank.q_kvar(p, q))
             add_stepped_bank_kvar(p, q, bank.rated_q_kvar, bank.step_kvar, bank.target_power_factor)
         check_q = check_q or bool(self.stepped)
         for name, x, check in (("p_kw_2d", p, check_p), ("q_kvar_2d", q, check_q)):
             if check and not billing._all_finite(x):
                 raise ValueError(f"{name} contains NaN or infinite values; fill or drop the gaps first")
-        shape = (max(p.shape[0], q.shape[0]), None)
+        n = max(p.shape[0], q.shape[0])
         if before is None:
             names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, None)
-            return names, np.ascontiguousarray(np.broadcast_to(amounts, (shape[0], len(names))))
-        names, amounts, _, first = billing._block_totals(self.tariff, self.calendar, p, q, None, before, with_first=True)
-        return (names, np.ascontiguousarray(np.broadcast_to(amounts, (shape[0], len(names)))),
-                np.ascontiguousarray(np.broadcast_to(first, (shape[0], len(names)))))
+            return names, np.ascontiguousarray(np.broadcast_to(amounts, (n, len(names))))
+        names, amounts, _, years = billing._block_totals(self.tariff, self.calendar, p, q, None, before,
+                                                         with_transition=True)
+        return (names, np.ascontiguousarray(np.broadcast_to(amounts, (n, len(names)))),
+                np.ascontiguousarray(np.broadcast_to(years, (len(years), n, len(names)))))
 
 
 @numba.njit(nogil=True, cache=True)
@@ -576,7 +584,7 @@ class SiteSavings:
         self.base_amounts = self.biller.totals(p0_kw[None, :], q0_kvar[None, :])[1][0]
         # what a demand ratchet reads of today's meter in the first year after a change ({} without one)
         self.before = self.biller.history(p0_kw[None, :], q0_kvar[None, :]) or None
-        self.shortfall = np.zeros_like(self.saving)
+        self.shortfall = np.zeros((n_assets, n_o, RATCHET_YEARS, len(SAVING_COMPONENTS)))
         self.q_matters = tariff_depends_on_kvar(setup.tariff)
         if self.q_matters:
             self.q_biller = _SiteBiller(setup, index, interval_h, kvar_clauses(setup.tariff))
@@ -606,8 +614,9 @@ class SiteSavings:
             saving = _category_savings(names, self.base_amounts, amounts, self.setup.tariff.taxes)
             self.saving[rows[j], o] = saving
             if self.before is not None:
-                self.shortfall[rows[j], o] = saving - _category_savings(names, self.base_amounts, priced[2],
-                                                                        self.setup.tariff.taxes)
+                for year, amounts_k in enumerate(priced[2][:RATCHET_YEARS]):
+                    self.shortfall[rows[j], o, year] = saving - _category_savings(names, self.base_amounts, amounts_k,
+                                                                                  self.setup.tariff.taxes)
             if self.q_matters:
                 # the kW stay today's: one row of p for every scenario (scenario_totals with kw_changes False)
                 _, q_amounts = self.q_biller._priced(self.q_meter_p, q_copy, check_p=True, check_q=not finite[1])
@@ -631,7 +640,7 @@ class SiteSavings:
                 bank_q[j, o] = q_bank
                 bank_cost[j, o] = q_bank * capacitor_cost_per_kvar
         return dict(saving=self.saving, reactive_saving=self.reactive, equivalent_bank_q_kvar=bank_q,
-                    equivalent_bank_cost=bank_cost, first_year_shortfall=self.shortfall)
+                    equivalent_bank_cost=bank_cost, ratchet_shortfall=self.shortfall)
 
 
 def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, SiteSetup] | None = None,
@@ -654,7 +663,7 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
     setups = setups or site_setups(case, op.index)
     n_a, n_o = len(op.asset_ids), len(op.option_ids)
     saving = np.zeros((n_a, n_o, len(SAVING_COMPONENTS)))
-    shortfall = np.zeros_like(saving)
+    shortfall = np.zeros((n_a, n_o, RATCHET_YEARS, len(SAVING_COMPONENTS)))
     reactive = np.zeros((n_a, n_o))
     bank_q = np.full((n_a, n_o), np.nan)
     bank_cost = np.full((n_a, n_o), np.nan)
@@ -665,7 +674,7 @@ def bill_savings(case, op, capacitor_cost_per_kvar: float, setups: dict[str, Sit
         part = site_savings(setup, op.index, op.interval_h, op.p_kw[:, members], op.q_kvar[:, members],
                             op.applies[members], op.technologies, capacitor_cost_per_kvar, block_scenarios)
         saving[members] = part["saving"]
-        shortfall[members] = part["first_year_shortfall"]
+        shortfall[members] = part["ratchet_shortfall"]
         reactive[members] = part["reactive_saving"]
         bank_q[members] = part["equivalent_bank_q_kvar"]
         bank_cost[members] = part["equivalent_bank_cost"]

@@ -556,9 +556,9 @@ class _Item:
     quantity: np.ndarray  # (S, M)
     applies: np.ndarray  # (M,) bool: the clause is in force this month
     flag: np.ndarray  # (S, M) bool
-    # (S, M): the quantity in the first year after a change, where it differs from every later year's (a
-    # ratchet still reading the months before the change; the taxes on it); None = the same
-    first_quantity: np.ndarray | None = None
+    # (S, M) each: the quantity in the 1st, 2nd... year after a change, where it differs from the steady year's
+    # (a ratchet still reading the months before the change, the taxes on it); None = the same in every year
+    transition: tuple[np.ndarray, ...] | None = None
     # (S, M): for a ratchet item, the demand after any power-factor adjustment that later months' ratchet reads
     reads: np.ndarray | None = None
 
@@ -566,31 +566,40 @@ class _Item:
     def amount(self) -> np.ndarray:
         return self.quantity * self.rate
 
-    @property
-    def first_amount(self) -> np.ndarray:
-        return (self.quantity if self.first_quantity is None else self.first_quantity) * self.rate
+    def year_amount(self, year: int) -> np.ndarray:
+        """The amount (S, M) in year ``year`` (1, 2...) after a change: the steady amount once the transition ends."""
+        if self.transition is None or year > len(self.transition):
+            return self.amount
+        return self.transition[year - 1] * self.rate
 
 
-def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before: np.ndarray | None = None) -> np.ndarray:
+def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before: np.ndarray | None = None,
+                   year: int = 1) -> np.ndarray:
     """Highest adjusted demand of the previous ``months`` billing months, (S, M).
 
-    With ``repeat_year`` the months before the series are the same year's last months (a typical year
-    repeated); with ``before`` (M,) they are those of another year instead: the year before a change,
-    whose demands the ratchet still reads in the first year after it. Without either, months before the
-    series count as none.
+    With ``repeat_year`` the months before the series are the same typical year's (a year repeated); with
+    ``before`` (M,) they are those of another year instead: the year before a change, whose demands the
+    ratchet still reads in year ``year`` (1, 2, ...) after it, in the months its look-back reaches back
+    past the change. Without either, months before the series count as none.
     """
     n_m = adjusted.shape[1]
     floor = np.zeros_like(adjusted)
+    prior = adjusted if before is None else np.broadcast_to(np.asarray(before, dtype=float), adjusted.shape)
+    month = np.arange(n_m)
     for lag in range(1, months + 1):
-        if lag < n_m:
-            floor[:, lag:] = np.maximum(floor[:, lag:], adjusted[:, :-lag])
-        if repeat_year:
-            previous = adjusted if before is None else np.broadcast_to(before, adjusted.shape)
-            # month m < lag reads month m - lag + 12k of the year before (12k: the first such month's year)
-            for m in range(min(lag, n_m)):
-                back = (m - lag) % n_m
-                floor[:, m] = np.maximum(floor[:, m], previous[:, back])
+        # month m of year k reads the month (k - 1) x 12 + m - lag counted from the change (the series' start)
+        pos = (year - 1) * n_m + month - lag
+        inside = pos >= 0
+        if inside.any():
+            floor[:, inside] = np.maximum(floor[:, inside], adjusted[:, pos[inside] % n_m])
+        if repeat_year and not inside.all():
+            floor[:, ~inside] = np.maximum(floor[:, ~inside], prior[:, pos[~inside] % n_m])
     return floor
+
+
+def transition_years(months: int, n_months: int = 12) -> int:
+    """Years after a change in which a ratchet of ``months`` look-back still reads months before it (>= 1)."""
+    return max(1, -(-int(months) // int(n_months)))
 
 
 def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s,
@@ -631,15 +640,17 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
             adjusted = percent_adjusted_demand_kw(peak, pf, a.target_power_factor, a.percent_per_point, a.round_points_up)
         adjusted = np.where(applies, adjusted, 0.0)
 
-    billed = first = adjusted
+    billed = adjusted
+    transition = None
     if d.ratchet_frac is not None and d.ratchet_months > 0:
         floor = _ratchet_floor(adjusted, d.ratchet_months, repeat_year)
         billed = np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0)
         if before is not None and repeat_year and d.name in before:
-            floor = _ratchet_floor(adjusted, d.ratchet_months, True, np.asarray(before[d.name], dtype=float))
-            first = np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0)
-        else:
-            first = billed
+            years = []
+            for year in range(1, transition_years(d.ratchet_months, n_m) + 1):
+                floor = _ratchet_floor(adjusted, d.ratchet_months, True, before[d.name], year)
+                years.append(np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0) - adjusted)
+            transition = tuple(years)
 
     unit = d.basis
     items = [_Item(f"demand:{d.name}", "demand", unit, rate, peak, applies, no_flag)]
@@ -647,7 +658,7 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
         items.append(_Item(f"pf adjustment:{d.name}", "pf adjustment", unit, rate, adjusted - peak, applies, no_flag))
     if d.ratchet_frac is not None:
         items.append(_Item(f"ratchet:{d.name}", "ratchet", unit, rate, billed - adjusted, applies, no_flag,
-                           None if first is billed else first - adjusted, adjusted))
+                           transition, adjusted))
     return items
 
 
@@ -656,7 +667,8 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     """Price (S, T) meter arrays; return the line items with (S, M) quantities.
 
     ``before`` (demand charge name -> adjusted demand of each billing month, (M,)) is the year before a
-    change: the ratchet items then carry the first year's quantity too (:attr:`_Item.first_quantity`).
+    change: the ratchet items then carry the quantities of the years after it whose look-back still reaches
+    it (:attr:`_Item.transition`), and the taxes on them too.
 
     ``p`` or ``q`` may have a single row that stands for every scenario (e.g. scenarios that change
     only the kVAr). The per-interval work is two kinds of compiled pass: the cell sums of every
@@ -743,17 +755,22 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     for t in tariff.taxes:
         cats = _TAX_BASE_CATEGORIES[t.base]
         base = np.zeros((n_s, n_m))
-        first = None
         for it in items:
             if it.category in cats:
                 base = base + np.where(it.applies, it.amount, 0.0)
-        if any(it.first_quantity is not None for it in items if it.category in cats):
-            first = np.zeros((n_s, n_m))
-            for it in items:
-                if it.category in cats:
-                    first = first + np.where(it.applies, it.first_amount, 0.0)
+        years = max((len(it.transition) for it in items if it.category in cats and it.transition is not None), default=0)
+        transition = None
+        if years:
+            transition = []
+            for year in range(1, years + 1):
+                base_k = np.zeros((n_s, n_m))
+                for it in items:
+                    if it.category in cats:
+                        base_k = base_k + np.where(it.applies, it.year_amount(year), 0.0)
+                transition.append(base_k)
+            transition = tuple(transition)
         items.append(_Item(f"tax:{t.name}", "tax", tariff.currency, np.full(n_m, t.rate_pct / 100.0), base, every_month,
-                           no_flag, first))
+                           no_flag, transition))
     return items
 
 
@@ -791,6 +808,7 @@ def bill(
     repeat_year: bool | None = False,
     before_p_kw=None,
     before_q_kvar=None,
+    year_after: int = 1,
 ) -> pd.DataFrame:
     """Return the bill of one site meter series, by billing month and line item.
 
@@ -815,6 +833,9 @@ def bill(
         typical year: ``repeat_year`` true or None with 12 months), the bill is that of the first year
         after the change: a ratchet reads the year before in place of the series' own last months, so
         a peak that has gone is still billed at its ratchet share until it leaves the look-back.
+    year_after : int
+        With the year before a change: which year after it to bill (1 = the first; a look-back of more than
+        12 months reads the year before in the second and third years too). Default 1.
 
     Returns
     -------
@@ -861,6 +882,8 @@ def bill(
     if p.shape[0] != 1 or q.shape[0] != 1:
         raise ValueError("bill() prices one meter series; use bill_many() for several scenarios")
     _check_repeat(cal, repeat_year)
+    if not (isinstance(year_after, int) and year_after >= 1):
+        raise ValueError("year_after counts the years after the change from 1")
     before = None
     if (before_p_kw is None) != (before_q_kvar is None):
         raise ValueError("the year before a change needs both before_p_kw and before_q_kvar")
@@ -874,7 +897,8 @@ def bill(
     for m, label in enumerate(cal.month_labels):
         for it in items:
             if it.applies[m]:
-                quantity = it.quantity if it.first_quantity is None else it.first_quantity
+                quantity = (it.quantity if it.transition is None or year_after > len(it.transition)
+                            else it.transition[year_after - 1])
                 rows.append((label, it.name, float(quantity[0, m]), it.unit, float(it.rate[m]),
                              float(quantity[0, m] * it.rate[m]), bool(it.flag[0, m])))
     return pd.DataFrame(rows, columns=["month", "line_item", "quantity", "unit", "rate", "amount", "flag"])
@@ -945,30 +969,33 @@ def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_yea
 
 
 def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None,
-                  before: Mapping[str, np.ndarray] | None = None, with_first: bool = False):
+                  before: Mapping[str, np.ndarray] | None = None, with_transition: bool = False):
     """Line-item names, amounts summed over months (S, I) [currency] and flagged items (S, I) of one block.
 
     ``p`` and ``q`` are (S, T) or (1, T) standing for every row (at least one of them has S rows, or both
-    one row and S = 1). With ``with_first`` a fourth value follows: the amounts of the first year after a
-    change from the meter of ``before`` (see :func:`_bill_items`), (S, I) [currency].
+    one row and S = 1). With ``with_transition`` a fourth value follows: the amounts of each year after a change
+    from the meter of ``before`` (see :func:`_bill_items`) while a ratchet still reads it, (K, S, I)
+    [currency], K >= 1 (the steady amounts where no item differs).
     """
     n = max(p.shape[0], q.shape[0])
     items = _bill_items(tariff, cal, p, q, repeat_year, before)
     names = [it.name for it in items]
     if not items:
         empty = np.zeros((n, 0))
-        return (names, empty, np.zeros((n, 0), dtype=bool)) + ((empty,) if with_first else ())
+        return (names, empty, np.zeros((n, 0), dtype=bool)) + ((empty[None],) if with_transition else ())
     # every item's quantity and flag is (S, M): one (S, I, M) stack, summed over the months of each row
     applies = np.stack([it.applies for it in items])  # (I, M)
     amounts = np.where(applies, np.stack([it.amount for it in items], axis=1), 0.0).sum(axis=2)
     flagged = (np.stack([it.flag for it in items], axis=1) & applies).any(axis=2)
-    if not with_first:
+    if not with_transition:
         return names, amounts, flagged
-    first = amounts.copy()
+    years = max((len(it.transition) for it in items if it.transition is not None), default=1)
+    out = np.repeat(amounts[None], years, axis=0)
     for i, it in enumerate(items):
-        if it.first_quantity is not None:
-            first[:, i] = np.where(it.applies, it.first_amount, 0.0).sum(axis=1)
-    return names, amounts, flagged, first
+        if it.transition is not None:
+            for year in range(1, len(it.transition) + 1):
+                out[year - 1, :, i] = np.where(it.applies, it.year_amount(year), 0.0).sum(axis=1)
+    return names, amounts, flagged, out
 
 
 def ratchet_history(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray) -> dict[str, np.ndarray]:

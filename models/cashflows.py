@@ -120,13 +120,14 @@ class ProjectInputs:
         (n_projects, 5) in :data:`SAVINGS_COMPONENTS` order (a new motor bought at failure saves too):
         from the failure year on, the base case runs it, so the option's savings over the base case are
         its own less these. None (the default) = 0.
-    first_year_shortfall : array_like or None
-        How much less than its yearly savings the option saves in its first year in service, per
-        component [currency], shape (n_projects, 5) in :data:`SAVINGS_COMPONENTS` order, at base-year
-        prices: a demand ratchet still billing the peaks of before the change. None (the default) = 0.
-    baseline_first_year_shortfall : array_like or None
-        The same of the must-spend item in the base case's first year with it (its savings are
-        ``baseline_savings_per_yr``), shape (n_projects, 5). None (the default) = 0.
+    ratchet_shortfall : array_like or None
+        How much less than its yearly savings the option saves in each of its first years in service, per
+        component [currency], shape (n_projects, K, 5) (years 1..K in service, :data:`SAVINGS_COMPONENTS`
+        order) or (n_projects, 5) for the first year alone, at base-year prices: a demand ratchet still
+        billing the peaks of before the change. None (the default) = 0.
+    baseline_ratchet_shortfall : array_like or None
+        The same of the must-spend item in the base case's first years with it (its savings are
+        ``baseline_savings_per_yr``). None (the default) = 0.
     """
 
     project_id: Any
@@ -150,8 +151,8 @@ class ProjectInputs:
     incentive: Any = 0.0
     replace_at_failure: Any = None
     baseline_savings_per_yr: Any = None
-    first_year_shortfall: Any = None
-    baseline_first_year_shortfall: Any = None
+    ratchet_shortfall: Any = None
+    baseline_ratchet_shortfall: Any = None
 
     @property
     def n_projects(self) -> int:
@@ -347,9 +348,9 @@ def build_cash_flows(projects: ProjectInputs, assumptions: FinanceAssumptions) -
     * Savings of bill component c in year t (s < t <= H) are S_c (1 + e_c)^t, base-year prices
       escalated from year 0 (the convention of the NIST UPV* factor [1]); from the failure year on
       (t > f) the base case runs the must-spend item, so its own savings B_c (1 + e_c)^t are taken off.
-      In the first year in service (t = s + 1) the option saves D_c (1 + e_c)^t less (a demand ratchet
-      still billing the peaks of before), and in the base case's first year with its must-spend item
-      (t = f + 1) that item saves D'_c (1 + e_c)^t less, which the option's increment gains.
+      In its k-th year in service (t = s + k, k = 1..K) the option saves D_{c,k} (1 + e_c)^t less (a demand
+      ratchet still billing the peaks of before), and in the base case's k-th year with its must-spend
+      item (t = f + k) that item saves D'_{c,k} (1 + e_c)^t less, which the option's increment gains.
     * The mid-life item falls m years after each purchase (if m < L and within the horizon), priced
       like capital.
     * Residual value at H: straight line on the remaining life of the last purchase, for the option
@@ -452,22 +453,26 @@ def build_cash_flows(projects: ProjectInputs, assumptions: FinanceAssumptions) -
     if not np.all(np.isfinite(baseline_savings)):
         raise ValueError("baseline_savings_per_yr must be finite")
     replaced = active & (t[None, :] > failure[:, None])  # the base case runs the must-spend item from then on
-    shortfalls = []
-    for value, name in ((projects.first_year_shortfall, "first_year_shortfall"),
-                        (projects.baseline_first_year_shortfall, "baseline_first_year_shortfall")):
-        value = (np.zeros((n, len(SAVINGS_COMPONENTS))) if value is None
-                 else np.broadcast_to(np.asarray(value, dtype=float), (n, len(SAVINGS_COMPONENTS))))
+    # each year's shortfall in the project's years: (n, H + 1, 5), the option's less the base case's
+    by_year = np.zeros((n, H + 1, len(SAVINGS_COMPONENTS)))
+    for value, name, when, sign in ((projects.ratchet_shortfall, "ratchet_shortfall", start, -1.0),
+                                    (projects.baseline_ratchet_shortfall, "baseline_ratchet_shortfall", failure, 1.0)):
+        if value is None:
+            continue
+        value = np.asarray(value, dtype=float)
+        value = value[:, None, :] if value.ndim == 2 else value
+        value = np.broadcast_to(value, (n, value.shape[1], len(SAVINGS_COMPONENTS)))
         if not np.all(np.isfinite(value)):
             raise ValueError(f"{name} must be finite")
-        shortfalls.append(value)
-    first_in_service = active & (t[None, :] == start[:, None] + 1)
-    base_first = replaced & (t[None, :] == failure[:, None] + 1)
+        for k in range(value.shape[1]):  # year k + 1 in service: t = when + k + 1, inside the horizon
+            year = when + k + 1
+            inside = np.flatnonzero(year <= H)
+            by_year[inside, year[inside].astype(int), :] += sign * value[inside, k, :]
     for k, name in enumerate(SAVINGS_COMPONENTS):
         growth = np.power(1.0 + assumptions.escalation_frac(_ESCALATION_OF[name]), t.astype(float))
         out[:, :, col[name]] = (savings[name][:, None] * active
                                 - baseline_savings[:, k][:, None] * replaced
-                                - shortfalls[0][:, k][:, None] * first_in_service
-                                + shortfalls[1][:, k][:, None] * base_first) * growth[None, :]
+                                + by_year[:, :, k]) * growth[None, :]
 
     residual = (capex_total * _residual_fraction(start, life, H)
                 - baseline_capex * _residual_fraction(failure, baseline_life, H)) * price_index[H]

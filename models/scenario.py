@@ -19,7 +19,8 @@ import pandas as pd
 
 from models import cashflows as cf
 from models import end_of_life, finance, induction, plan, reactive_plan, risk
-from models.bill_savings import SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills, site_setups
+from models.bill_savings import (RATCHET_YEARS, SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills,
+                                 site_setups)
 from models.case import usual_supply_hz
 from models.memory import retaining_memory
 from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
@@ -262,7 +263,7 @@ class PhysicsMerger:
         self.arrays = {"saving": np.zeros((n_a, n_o, len(SAVING_COMPONENTS))), "reactive_saving": np.zeros((n_a, n_o)),
                        "equivalent_bank_q_kvar": np.full((n_a, n_o), np.nan),
                        "equivalent_bank_cost": np.full((n_a, n_o), np.nan),
-                       "first_year_shortfall": np.zeros((n_a, n_o, len(SAVING_COMPONENTS)))}
+                       "ratchet_shortfall": np.zeros((n_a, n_o, RATCHET_YEARS, len(SAVING_COMPONENTS)))}
         self.rows = dict(self.partition)
 
     def add(self, site_id: str, op: OperatingResult | None, part: dict) -> None:
@@ -278,7 +279,7 @@ class PhysicsMerger:
         _, baseline_bills = meter_and_bills(self.case, op, np.zeros(len(op.asset_ids), dtype=int))
         a = self.arrays
         savings = BillSavings(SAVING_COMPONENTS, a["saving"], a["reactive_saving"], a["equivalent_bank_q_kvar"],
-                              a["equivalent_bank_cost"], baseline_bills, a["first_year_shortfall"])
+                              a["equivalent_bank_cost"], baseline_bills, a["ratchet_shortfall"])
         return Physics(op, savings, self.cost)
 
 
@@ -516,8 +517,9 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     saving_rc = sav.saving[rows, cols, :] - np.where(over_least[:, None], sav.saving[rows, least_pos, :], 0.0)
     maint_rc = maint_saving[rows, cols] - np.where(over_least, maint_saving[rows, least_pos], 0.0)
     energy_rc = energy_saved[rows, cols] - np.where(over_least, energy_saved[rows, least_pos], 0.0)
-    short = sav.shortfall
-    short_rc = short[rows, cols, :] - np.where(over_least[:, None], short[rows, least_pos, :], 0.0)
+    short = sav.shortfall  # (asset, option, year in service, component)
+    short_rc = short[rows, cols] - np.where(over_least[:, None, None], short[rows, least_pos], 0.0)
+    no_maintenance = np.zeros(short.shape[2:3] + (1,))  # (the ratchet moves bills only)
     inputs = cf.ProjectInputs(
         project_id=project_ids,
         capex_equipment=(comp["equipment"] + comp["remedy"] + comp["capacitor"])[rows, cols],
@@ -548,10 +550,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
             0.0),
         # a demand ratchet still bills today's peaks in the first year after a change (the option's, and the
         # must-spend item's in the base case)
-        first_year_shortfall=np.column_stack([short[rows, cols], np.zeros(len(rows))]),
-        baseline_first_year_shortfall=np.where(
-            (replaces & (must_capex[rows] > 0))[:, None],
-            np.column_stack([short[rows, must_pos[rows]], np.zeros(len(rows))]), 0.0),
+        ratchet_shortfall=np.concatenate([short[rows, cols], np.broadcast_to(no_maintenance, (len(rows),) + no_maintenance.shape)],
+                                         axis=2),
+        baseline_ratchet_shortfall=np.where(
+            (replaces & (must_capex[rows] > 0))[:, None, None],
+            np.concatenate([short[rows, must_pos[rows]],
+                            np.broadcast_to(no_maintenance, (len(rows),) + no_maintenance.shape)], axis=2), 0.0),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
     # today's motor is the reference: its increment is zero by definition (as is the least that puts a failed
@@ -600,7 +604,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         "saving_reactive_per_yr": saving_rc[:, 2], "saving_fixed_per_yr": saving_rc[:, 3],
         "saving_maintenance_per_yr": maint_rc,
         "bill_saving_per_yr": np.where(over_least, saving_rc.sum(axis=1), sav.total[rows, cols]),
-        "first_year_ratchet_shortfall": np.where(over_least, short_rc.sum(axis=1), short[rows, cols].sum(axis=1)) + 0.0,
+        "ratchet_shortfall": np.where(over_least, short_rc.sum(axis=(1, 2)), short[rows, cols].sum(axis=(1, 2))) + 0.0,
         "capital": np.where(is_keep, 0.0, capex.total[rows, cols]),
         "must_spend_capital": np.where(replaces, must_capex[rows], 0.0),
         "must_spend_option_id": pd.array(np.where(replaces & (must_capex[rows] > 0), op.option_ids[must_pos[rows]],
@@ -833,7 +837,7 @@ def _at_price_levels(sav: BillSavings, price_factor: float, capital_factor: floa
     if price_factor == 1.0 and capital_factor == 1.0:
         return sav
     return replace(sav, saving=sav.saving * price_factor, reactive_saving=sav.reactive_saving * price_factor,
-                   first_year_shortfall=sav.shortfall * price_factor,
+                   ratchet_shortfall=sav.shortfall * price_factor,
                    equivalent_bank_cost=sav.equivalent_bank_cost * capital_factor,
                    baseline_bills=_bill_lines_at_price_level(sav.baseline_bills, price_factor, currency))
 

@@ -883,19 +883,19 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "bills before relying on the savings.")
     # a demand ratchet that still bills today's peaks in a recommended project's first year in service
     rec = scope.recommended
-    if "first_year_ratchet_shortfall" in result.results and len(rec):
-        short = (result.results.set_index(["asset_id", "option_id"])["first_year_ratchet_shortfall"]
+    if "ratchet_shortfall" in result.results and len(rec):
+        short = (result.results.set_index(["asset_id", "option_id"])["ratchet_shortfall"]
                  .reindex(pd.MultiIndex.from_arrays([rec["asset_id"], rec["option_id"]])).fillna(0.0))
         held = short[short.to_numpy(dtype=float) > 0.5]
         if len(held):
             ids = [str(a_id) for a_id, _ in held.index]
-            add("assumption", "Demand ratchet holds back the first year",
-                f"the first year in service of {counted(len(held), 'recommended project')} saves "
-                f"{money(float(held.sum()), case.settings.currency)} less in all than the yearly savings shown: the "
-                "site's ratchet still bills today's peaks until they leave its look-back (counted in the NPVs and "
-                "paybacks)", asset_list_text(ids),
-                "Tell the approvers that the demand saving shows in full on the bills from the second year; confirm "
-                "the ratchet's terms with the utility.")
+            add("assumption", "Demand ratchet holds back the first savings",
+                f"while the site's ratchet still bills today's peaks (the first year in service, longer for a "
+                f"look-back over 12 months), {counted(len(held), 'recommended project')} {'saves' if len(held) == 1 else 'save'} "
+                f"{money(float(held.sum()), case.settings.currency)} less than the yearly savings shown (each priced "
+                "alone; counted in the NPVs and paybacks within the horizon)", asset_list_text(ids),
+                "Tell the approvers that the demand saving shows in full on the bills only once today's peaks leave "
+                "the ratchet's look-back; confirm the ratchet's terms with the utility.")
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",

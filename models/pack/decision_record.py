@@ -167,10 +167,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
                            f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr, payback {payback}, each "
                            "priced alone against today's bill.")
-        short = float(rec.get("first_year_ratchet_shortfall", 0.0))
+        short = float(rec.get("ratchet_shortfall", 0.0))
         if short > 0.5:
-            reasons.append(f"Its first year in service saves {content.money(short, cur)} less: the site's demand "
-                           "ratchet still bills today's peaks until they leave its look-back (counted in the NPV).")
+            reasons.append(f"While the site's demand ratchet still bills today's peaks (the first year in service, "
+                           f"longer for a look-back over 12 months) it saves {content.money(short, cur)} less in all "
+                           "than the yearly saving shows; the NPV counts it where it falls within the horizon.")
         if abs(plan_npv - own_npv) > 0.5:
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
                            f"{content.money(plan_npv, cur)} for it.")

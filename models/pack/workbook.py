@@ -364,7 +364,7 @@ _RESULT_COLUMNS = [
     ("saving_reactive_per_yr", "Saving: reactive [/yr]", "money"), ("saving_fixed_per_yr", "Saving: fixed [/yr]", "money"),
     ("saving_maintenance_per_yr", "Saving: maintenance [/yr]", "money"),
     ("bill_saving_per_yr", "Bill saving [/yr]", "money"),
-    ("first_year_ratchet_shortfall", "First year in service saves less (demand ratchet)", "money"),
+    ("ratchet_shortfall", "Saved less while the demand ratchet bills today's peaks", "money"),
     ("capital", "Capital", "money"),
     ("must_spend_capital", "Must-spend capital avoided", "money"), ("npv", "NPV", "money"),
     ("irr_text", "IRR", "frac"), ("irr_status", "IRR status", None), ("mirr_frac", "MIRR", "frac"),
