@@ -42,6 +42,7 @@ def layout() -> html.Div:
         dcc.Store(id=components.EDITS_STORE, storage_type="session"),
         dcc.Store(id=components.UPLOAD_STORE, storage_type="session"),
         dcc.Store(id=components.LAST_ASSET_STORE, storage_type="session"),
+        dcc.Store(id=components.SCENARIOS_STORE, storage_type="session"),
         html.Header([
             html.Div([html.Span("drivecase", className="brand"),
                       html.Span("motor fleet: keep, rewind or replace", className="brand-sub")], className="brand-box"),

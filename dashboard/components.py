@@ -26,6 +26,9 @@ UPLOAD_STORE = "app-upload"
 #: The asset the tab last showed on the Asset page: the page opens on it when the address names none (the
 #: navigation link). Session storage.
 LAST_ASSET_STORE = "app-last-asset"
+#: The scenarios kept in this tab: [{"name": str, "edits": the EDITS_STORE dict they were kept from}]. Session
+#: storage; compared beside the case's own scenarios on the Case & assumptions page.
+SCENARIOS_STORE = "app-scenarios"
 
 #: Cautions shown in the footer of every page.
 CAUTIONS: tuple[str, ...] = (
@@ -286,6 +289,22 @@ def data_grid(component_id: str, height: int | str = 420, empty_text: str = "Not
                                      "wrapHeaderText": True, "autoHeaderHeight": True},
                       columnSize="responsiveSizeToFit", dashGridOptions=options,
                       style={"height": css_height, "width": "100%"}, className="grid", **extra)
+
+
+def scenario_columns(currency: str) -> list[dict]:
+    """Columns of the scenario comparison grid (rows of :func:`models.comparison.compare`)."""
+    return [long_text_col("scenario", "Scenario", minWidth=180, flex=2),
+            number_col("discount_rate_pct", "Discount rate [%]", 1, maxWidth=120),
+            number_col("energy_price_level_pct", "Electricity price level [%]", 0, maxWidth=130),
+            number_col("capital_cost_level_pct", "Capital cost level [%]", 0, maxWidth=120),
+            number_col("budget_total", f"Budget, all plan years [{currency}]", 0, valueFormatter={
+                "function": "(params.value == null || !isFinite(params.value)) ? 'no limit' : d3.format(',.0f')(params.value)"}),
+            long_text_col("replacement_mode", "Replacement timing", minWidth=130),
+            number_col("plan_capital", f"Plan capital [{currency}]", 0),
+            number_col("yearly_saving_per_yr", f"Plan saving [{currency}/yr]", 0),
+            number_col("plan_npv", f"Plan NPV [{currency}]", 0),
+            number_col("plan_npv_change", f"NPV change from the case [{currency}]", 0),
+            number_col("projects", "Projects", 0, maxWidth=100)]
 
 
 def problem_columns() -> list[dict]:

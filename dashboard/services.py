@@ -761,6 +761,56 @@ def view(session: dict | None, edits: dict | None) -> View:
     return View(entry, base, notice)
 
 
+#: What a scenario kept in the tab is called beside the case's own (its name, then this).
+KEPT_MARK = " (kept in this tab)"
+
+
+def kept_scenarios(view_: View, kept) -> list[tuple[str, object]]:
+    """The tab's kept scenarios of this case (others are left out), as (name, assumptions), in the order kept."""
+    out = []
+    for item in kept if isinstance(kept, list) else []:
+        edits = item.get("edits") if isinstance(item, dict) else None
+        if not isinstance(edits, dict) or edits.get("case") != view_.key:
+            continue
+        try:
+            out.append((str(item.get("name", "")) + KEPT_MARK, assumptions_with_edits(view_.entry.case.finance, edits)))
+        except ValueError:
+            continue
+    return out
+
+
+def scenario_rows(view_: View, kept) -> pd.DataFrame:
+    """The case as written, the case's own scenarios (scenarios.toml) and the tab's kept ones, side by side
+    (:func:`models.comparison.compare`); each plan proven as the pack's and the command line's (so the rows of
+    the case's scenarios are those of scenarios.csv)."""
+    from models.comparison import BASE_NAME, compare
+
+    entry, eng = view_.entry, engine()
+    named = [(BASE_NAME, entry.case.finance)] + list(getattr(entry.case, "scenarios", ())) + kept_scenarios(view_, kept)
+    return compare([(name, a, headline(eng.result(entry.key, a, precise=True))) for name, a in named])
+
+
+def keep_scenario(view_: View, kept, name, edits) -> tuple[list | None, str]:
+    """Add the tab's assumptions in force (``view_``, made with ``edits``) as a named scenario: (the new kept
+    list, or None when refused; the message)."""
+    from models.comparison import BASE_NAME, MAX_NAME_CHARS
+
+    text = str(name or "").strip()
+    kept = [k for k in kept if isinstance(k, dict)] if isinstance(kept, list) else []
+    taken = {n for n, _ in getattr(view_.entry.case, "scenarios", ())} | {BASE_NAME}
+    taken |= {str(k.get("name", "")) for k in kept if isinstance(k.get("edits"), dict)
+              and k["edits"].get("case") == view_.key}
+    if not text:
+        return None, "Not kept: give these assumptions a name."
+    if len(text) > MAX_NAME_CHARS:
+        return None, f"Not kept: a name is at most {MAX_NAME_CHARS} characters."
+    if text in taken:
+        return None, f"Not kept: '{text}' already names a scenario of this case."
+    if not isinstance(edits, dict) or edits.get("case") != view_.key or view_.assumptions == view_.entry.case.finance:
+        return None, "Not kept: these are the case's own assumptions (its first row). Change a field above first."
+    return kept + [{"name": text, "edits": dict(edits)}], f"Kept '{text}' for this tab: it is compared below."
+
+
 #: Price levels edited on screen in percent of the prices as written -> finance assumption factor.
 PRICE_LEVEL_FIELDS = {"energy_price_level_pct": "energy_price_factor", "capital_cost_level_pct": "capital_cost_factor"}
 

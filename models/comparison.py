@@ -161,8 +161,8 @@ def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
     result : models.scenario.ScenarioResult
         The run of the case's own assumptions; its physics serve every scenario.
     plan_settings : models.scenario.PlanSettings, optional
-        How far each scenario's exact plan is proven (default :data:`models.scenario.PRECISE_PLAN`, as
-        the run's own).
+        How far each scenario's exact plan is proven (default: as the run's own plan was,
+        :data:`models.scenario.PRECISE_PLAN` where it does not say).
 
     Returns
     -------
@@ -174,7 +174,7 @@ def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
     kept = _LAST.get("last")
     if kept is not None and kept[0]() is result and kept[1] is case:
         return kept[2].copy()
-    settings = plan_settings or scenario.PRECISE_PLAN
+    settings = plan_settings or (result.plan_status or {}).get("settings") or scenario.PRECISE_PLAN
     rows = [(BASE_NAME, result.assumptions, plan_headline(result))]
     for name, assumptions in getattr(case, "scenarios", ()):
         other = scenario.economics(case, result.physics, assumptions, with_risk=False, plan_settings=settings)

@@ -203,3 +203,39 @@ def test_the_dashboard_headline_is_the_comparisons(demo_run_physics):
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, replace(case.finance, discount_rate_frac=0.07), with_risk=False)
     assert services.headline(result) == comparison.plan_headline(result)
+
+
+def test_the_pack_carries_the_scenarios(demo_run_physics):
+    # the report's plan section and the workbook's Scenarios sheet: the same rows as scenarios.csv
+    from openpyxl import load_workbook
+    import io
+
+    from models.pack import content
+    from models.pack.report_html import render_report
+    from models.pack.workbook import build_workbook
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    table = comparison.case_scenarios(case, result)
+    scope = content.select_scope(case, result)
+    html = render_report(case, result, scope)
+    assert "The plan under the case's scenarios" in html
+    for name in table["scenario"]:
+        assert f"<td>{name}</td>" in html
+    sheet = load_workbook(io.BytesIO(build_workbook(case, result, scope)))["Scenarios"]
+    cells = [[c.value for c in r] for r in sheet.iter_rows()]
+    header = next(r for r in cells if r and r[0] == "Scenario")
+    body = cells[cells.index(header) + 1: cells.index(header) + 1 + len(table)]
+    assert [r[0] for r in body] == table["scenario"].tolist()
+    npv_col = header.index("Plan NPV [EUR]")
+    assert [r[npv_col] for r in body] == pytest.approx(table["plan_npv"].tolist())
+
+
+def test_a_report_of_a_case_without_scenarios_has_no_such_section(tmp_path):
+    from models.pack import content
+    from models.pack.report_html import render_report
+
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case"))
+    case, _ = load_case(folder)
+    result = scenario.run(case, case.finance, with_risk=False)
+    assert "The plan under the case's scenarios" not in render_report(case, result, content.select_scope(case, result))

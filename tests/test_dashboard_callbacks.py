@@ -617,3 +617,48 @@ def test_a_refused_field_says_the_value_that_stays_in_force(engine):
     edits, message = services.edit_assumptions(key, base.assumptions, {"case": key, "discount_rate_pct": -5.0},
                                                discount_rate_pct="150")
     assert "Discount rate: must lie between -20 and 100 %/yr" in message and "It stays at -5 %/yr." in message
+
+
+def test_scenarios_side_by_side_keep_and_clear(engine):
+    # the case's own scenarios (the demo's scenarios.toml, copied with the small case) beside the case as written,
+    # then the tab's assumptions kept under a name, compared, and cleared
+    from models.comparison import BASE_NAME
+
+    rows, columns = inputs.scenarios(True, None, None)
+    assert [r["scenario"] for r in rows] == [BASE_NAME, "Cheaper money", "Dearer electricity, larger budget",
+                                             "Wait for failures"]
+    assert rows[0]["plan_npv_change"] == 0.0 and rows[1]["plan_npv_change"] > 0  # (6 % against 8 %)
+    assert any(c["field"] == "plan_npv_change" for c in columns)
+    # the case's own assumptions cannot be kept: nothing is changed yet
+    kept, message, _ = inputs.keep_scenario(1, "Same", None, None, None)
+    assert kept is no_update and message.startswith("Not kept: these are the case's own assumptions")
+    edits = {"case": engine.default_key, "discount_rate_pct": 10.0}
+    for name, refusal in (("", "give these assumptions a name"), ("Cheaper money", "already names a scenario"),
+                          (BASE_NAME, "already names a scenario")):
+        kept, message, _ = inputs.keep_scenario(1, name, None, edits, None)
+        assert kept is no_update and refusal in message
+    kept, message, _ = inputs.keep_scenario(1, " Dearer money ", None, edits, None)
+    assert kept == [{"name": "Dearer money", "edits": edits}] and message.startswith("Kept 'Dearer money'")
+    rows, _ = inputs.scenarios(True, None, kept)
+    mine = rows[-1]
+    assert mine["scenario"] == "Dearer money (kept in this tab)" and mine["discount_rate_pct"] == pytest.approx(10.0)
+    assert mine["plan_npv_change"] < 0  # a dearer discount rate lowers the value of the same savings
+    # a name kept once is not taken twice; a kept scenario of another case is left out
+    again, message, _ = inputs.keep_scenario(1, "Dearer money", kept, edits, None)
+    assert again is no_update and "already names a scenario" in message
+    other = kept + [{"name": "Elsewhere", "edits": {"case": "another-case", "discount_rate_pct": 4.0}}]
+    assert [r["scenario"] for r in inputs.scenarios(True, None, other)[0]][-1] == "Dearer money (kept in this tab)"
+    cleared, message, _ = inputs.clear_scenarios(1)
+    assert cleared == [] and "cleared" in message
+
+
+def test_the_case_s_scenarios_read_as_in_the_scenarios_file(engine):
+    # the dashboard's rows of the case's own scenarios are those drivecase run writes (the plan proven alike)
+    from models.comparison import case_scenarios
+
+    view = services.view(None, None)
+    result = scenario.economics(view.case, engine.physics(view.key), view.case.finance, with_risk=False)
+    expected = case_scenarios(view.case, result)
+    rows = pd.DataFrame(inputs.scenarios(True, None, None)[0])
+    assert rows["scenario"].tolist() == expected["scenario"].tolist()
+    assert rows["plan_npv"].to_numpy() == pytest.approx(expected["plan_npv"].to_numpy(), rel=1e-9)

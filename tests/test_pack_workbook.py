@@ -40,7 +40,7 @@ INJECTION_HTML = '<script>alert(1)</script> & "pump"'
 #: Relative tolerance of the formula check: 0.01 % (the brief's audit tolerance; both sides are doubles,
 #: the evaluator's IRR is a polynomial root and the engine's a Newton root, both far tighter than this).
 RTOL = 1e-4
-SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills", "Data quality",
+SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills", "Data quality",
           "End of life", "Risk"]
 
 

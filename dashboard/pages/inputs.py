@@ -35,6 +35,11 @@ HEADLINE = "inputs"
 SAVE_BUTTON = "inputs-save"
 SAVE_STATUS = "inputs-save-status"
 SAVE_DOWNLOAD = "inputs-save-download"
+SCENARIO_NAME = "inputs-scenario-name"
+SCENARIO_KEEP = "inputs-scenario-keep"
+SCENARIO_CLEAR = "inputs-scenario-clear"
+SCENARIO_MESSAGE = "inputs-scenario-message"
+SCENARIO_GRID = "inputs-scenarios"
 
 
 def _number_field(component_id: str) -> dcc.Input:
@@ -97,6 +102,22 @@ def layout(**_query):
                 ui.headline_cards(HEADLINE),
             ], className="panel half form"),
         ], className="row"),
+        html.Div([
+            html.H3("Scenarios side by side"),
+            html.P("The fleet plan under the case as written, under each scenario the case names (scenarios.toml) and "
+                   "under the assumptions you keep here. Only the finance assumptions differ: the machines and the "
+                   "bills are the same. Each plan is proven as the capital-request pack's. Kept scenarios stay with "
+                   "this tab; write them into scenarios.toml to keep them with the case.", className="page-intro"),
+            html.Div([
+                html.Div([html.Label("Name of the assumptions above", htmlFor=SCENARIO_NAME),
+                          dcc.Input(id=SCENARIO_NAME, type="text", maxLength=60, debounce=False)], className="field"),
+                html.Button("Keep as a scenario", id=SCENARIO_KEEP, className="button"),
+                html.Button("Clear the kept scenarios", id=SCENARIO_CLEAR, className="button secondary"),
+            ], className="fields"),
+            html.Div(id=SCENARIO_MESSAGE, className="form-message", role="status"),
+            dcc.Loading(ui.data_grid(SCENARIO_GRID, height="auto", rowData=None, empty_text="No scenario to compare",
+                                     dashGridOptions={"domLayout": "autoHeight"}), type="dot"),
+        ], className="panel"),
         html.H3("Validation messages"),
         ui.data_grid(PROBLEMS, height=320, empty_text="No problems: the case was read as written", columnDefs=ui.problem_columns(),
                      rowClassRules={"problem-error": "params.data.severity == 'error'",
@@ -265,3 +286,32 @@ def save(clicks, *form):
                 else no_update)
     return (outcome.session if outcome.session is not None else no_update, None if outcome.ok else no_update,
             outcome.message, download, ui.message_class(outcome.ok))
+
+
+@callback(Output(ui.SCENARIOS_STORE, "data"), Output(SCENARIO_MESSAGE, "children"), Output(SCENARIO_MESSAGE, "className"),
+          Input(SCENARIO_KEEP, "n_clicks"), State(SCENARIO_NAME, "value"), State(ui.SCENARIOS_STORE, "data"),
+          State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data"), prevent_initial_call=True)
+def keep_scenario(clicks, name, kept, edits, session):
+    """Keep the assumptions in force as a named scenario of this tab."""
+    if not clicks:
+        return no_update, no_update, no_update
+    new, message = services.keep_scenario(services.view(session, edits), kept, name, edits)
+    return (new if new is not None else no_update), message, ui.message_class(new is not None)
+
+
+@callback(Output(ui.SCENARIOS_STORE, "data", allow_duplicate=True), Output(SCENARIO_MESSAGE, "children", allow_duplicate=True),
+          Output(SCENARIO_MESSAGE, "className", allow_duplicate=True),
+          Input(SCENARIO_CLEAR, "n_clicks"), prevent_initial_call=True)
+def clear_scenarios(clicks):
+    """Forget the tab's kept scenarios (the case's own stay)."""
+    if not clicks:
+        return no_update, no_update, no_update
+    return [], "The kept scenarios are cleared; the case's own remain.", "form-message"
+
+
+@callback(Output(SCENARIO_GRID, "rowData"), Output(SCENARIO_GRID, "columnDefs"),
+          Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.SCENARIOS_STORE, "data"))
+def scenarios(_ready, session, kept):
+    """The scenarios side by side: the case as written first, each with its plan's change from it."""
+    view = services.view(session, None)
+    return services.scenario_rows(view, kept).to_dict("records"), ui.scenario_columns(view.currency)

@@ -323,6 +323,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "plan_headers": ["Plan year", "Budget", "Exact: capital", "projects", "NPV at plan start", "Rank-order: capital",
                          "projects", "NPV at plan start"],
         "plan_rows": plan_rows, "plan_numeric": tuple(range(8)), "plan_note": plan_note,
+        **_scenario_context(case, result, cur),
         "register_headers": ["Category", "Item", "Detail", "Assets", "Response"], "register_rows": register_rows,
         "finance_headers": ["Assumption", "Value", "Unit", "Meaning", "Source"], "finance_rows": finance_rows,
         "basis_headers": ["Basis", "Value", "Note"],
@@ -343,6 +344,30 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "appendix_numeric": (1, 2, 3, 4, 5, 6),
         "files": files, "figures": figs,
     }
+
+
+def _scenario_context(case, result, cur: str) -> dict[str, Any]:
+    """The fleet plan under each named scenario of the case beside the case as written (none: no rows)."""
+    if not getattr(case, "scenarios", ()):
+        return {"scenario_rows": [], "scenario_headers": [], "scenario_numeric": ()}
+    from models.comparison import case_scenarios
+
+    table = case_scenarios(case, result)
+    rows = []
+    for r in table.to_dict("records"):
+        budget = r["budget_total"]
+        rows.append(row([cell(r["scenario"]), num(r["discount_rate_pct"], "{:.1f}", signed=False),
+                         num(r["energy_price_level_pct"], "{:.0f}", signed=False),
+                         num(r["capital_cost_level_pct"], "{:.0f}", signed=False),
+                         cell("no limit") if budget != budget else num(budget, signed=False),
+                         cell(r["replacement_mode"]), num(r["plan_capital"], signed=False),
+                         num(r["yearly_saving_per_yr"]), num(r["plan_npv"]), num(r["plan_npv_change"]),
+                         num(r["projects"], "{:.0f}", signed=False)]))
+    return {"scenario_rows": rows, "scenario_numeric": (1, 2, 3, 4, 6, 7, 8, 9, 10),
+            "scenario_headers": ["Scenario", "Discount rate [%]", "Electricity price level [%]", "Capital cost level [%]",
+                                 f"Budget, all plan years [{cur}]", "Replacement timing", f"Plan capital [{cur}]",
+                                 f"Plan saving [{cur}/yr]", f"Plan NPV [{cur}]", f"NPV change from the case [{cur}]",
+                                 "Projects"]}
 
 
 def render_report(case, result, scope: content.Scope, files: list[str] | None = None) -> str:

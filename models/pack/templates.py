@@ -140,7 +140,10 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <div class="figure">{{ figures.plan }}</div>
 {{ table(plan_headers, plan_rows, plan_numeric) }}
 <p class="small">{{ plan_note }}</p>
-<h3>Monthly bills before and after</h3>
+{% if scenario_rows %}<h3>The plan under the case's scenarios</h3>
+<p class="small">Each scenario changes only the finance assumptions it names (the case's scenarios.toml); the machines and the bills are the same. Each row is the whole fleet's exact plan under it.</p>
+{{ table(scenario_headers, scenario_rows, scenario_numeric) }}
+{% endif %}<h3>Monthly bills before and after</h3>
 <div class="figure">{{ figures.bills }}</div>
 
 <h2 id="register">8. Risks and assumptions register</h2>

@@ -36,7 +36,7 @@ from models.plan import option_labels
 from models.wording import line_item_text
 
 #: Sheet names, in workbook order.
-SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Bills",
+SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills",
                            "Data quality", "End of life", "Risk")
 #: Longest text a spreadsheet cell holds [characters].
 MAX_CELL_TEXT = 32_767
@@ -1000,6 +1000,34 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
     _widths(ws, {1: 24, 2: 28, 3: 50, 4: 30, 5: 50, 6: 16, 7: 16, 8: 16, 9: 18, 10: 18, 11: 18})
 
 
+def _scenarios(ws: Worksheet, case, result, f: _Formats) -> None:
+    """The fleet plan under each named scenario of the case (scenarios.toml) beside the case as written."""
+    from models.comparison import ASSUMPTION_COLUMNS, HEADLINE_COLUMNS, case_scenarios
+
+    _title(ws, "Scenarios: the fleet plan under each set of finance assumptions")
+    table = case_scenarios(case, result)
+    row = 3
+    put_text(ws, row, 1, "Each scenario changes only the finance assumptions it names (the case's scenarios.toml); the "
+             "machines and the bills are the same. The plan is the whole fleet's exact plan, whatever the pack's scope.")
+    row += 2
+    money = {"plan_capital", "yearly_saving_per_yr", "plan_npv", "budget_total"}
+    fmt = {**{k: (f.money if k in money else "0.0") for k, _ in HEADLINE_COLUMNS + ASSUMPTION_COLUMNS},
+           "horizon_yr": "0", "projects": "0", "replacement_mode": None}
+    unit = {k: f" [{f.currency}]" if k in money else "" for k, _ in HEADLINE_COLUMNS + ASSUMPTION_COLUMNS}
+    unit["yearly_saving_per_yr"] = f" [{f.currency}/yr]"
+    cols = [("scenario", "Scenario", None)]
+    cols += [(k, label + unit[k], fmt[k]) for k, label in ASSUMPTION_COLUMNS]
+    cols += [(k, label + unit[k], fmt[k]) for k, label in HEADLINE_COLUMNS]
+    cols += [(f"{k}_change", f"Change: {label[:1].lower() + label[1:]}{unit[k]}", fmt[k]) for k, label in HEADLINE_COLUMNS]
+    row = _table(ws, row, table, cols)
+    if len(table) == 1:
+        put_text(ws, row, 1, "The case names no scenario: write them in scenarios.toml (docs/case-format.md, "
+                 "\"Scenarios\") or a workbook's scenarios sheet.")
+        row += 1
+    put_text(ws, row, 1, "A blank capital budget is no limit. Changes are the scenario's figure less the case's.")
+    _widths(ws, {1: 34, **{k: 16 for k in range(2, len(cols) + 1)}})
+
+
 def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
     s = case.settings
     h = content.headline(result, scope)
@@ -1028,6 +1056,7 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
         "Cash flows": "per project: yearly flows by component and live formulas for NPV, IRR and paybacks",
         "Checks": "each formula's value beside the engine's, with an OK/CHECK status",
         "Plan": "exact and rank-order fleet plans, capital per plan year against the budget",
+        "Scenarios": "the fleet plan under each named scenario of the case beside the case as written",
         "Bills": "monthly bills before and after the plan, with line items",
         "Data quality": "defaulted inputs, model flags and input problems",
         "End of life": "replace now vs at failure vs rewind, and the repair-or-replace policy",
@@ -1081,6 +1110,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
     _plan(sheets["Plan"], result, scope, refs, f, blocks)
+    _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)
     _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit)

@@ -284,3 +284,21 @@ def test_a_blank_or_out_of_range_assumption_gets_a_message(tab):
     edit_field(page, "#inputs-horizon", "0", "Enter", message.filter(has_text="whole number of years"))
     assert "enter a number" not in message.inner_text()
     assert tab.errors == []
+
+
+def test_scenarios_side_by_side_and_a_kept_one(tab, artifacts):
+    # the Case & assumptions page lists the case as written and the demo's three scenarios (scenarios.toml); a
+    # new discount rate kept under a name joins them as the tab's own row
+    page = tab.goto("/inputs", PAGES[-1][1])
+    grid = "#inputs-scenarios .ag-center-cols-container"
+    page.locator(grid).filter(has_text="Wait for failures").wait_for()
+    assert set(grid_column(page, "inputs-scenarios", "scenario")) == {
+        "Case as written", "Cheaper money", "Dearer electricity, larger budget", "Wait for failures"}
+    page.wait_for_function("document.querySelector('#inputs-discount-rate')?.value === '8'")
+    edit_field(page, "#inputs-discount-rate", "9.5", "Enter", page.locator("#app-case-label").filter(has_text="discount 9.5 %"))
+    page.fill("#inputs-scenario-name", "Dearer money")
+    page.click("#inputs-scenario-keep")
+    page.locator("#inputs-scenario-message").filter(has_text="Kept 'Dearer money'").wait_for()
+    page.locator(grid).filter(has_text="Dearer money (kept in this tab)").wait_for()
+    page.screenshot(path=artifacts / "inputs_scenarios.png", full_page=True)
+    assert tab.errors == []
