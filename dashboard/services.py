@@ -1105,6 +1105,23 @@ def ratchet_text(result, asset_id: str, currency: str) -> str:
             "count it within the horizon).")
 
 
+def measure_text(view_: View, result, asset_id: str) -> str:
+    """What the Asset page says of the value of measuring this motor before deciding ("" where it is under one
+    unit of currency): :func:`models.information.measure_first`, computed once per result."""
+    from models.information import measure_first
+
+    table = engine().derived(view_.key, "measure_first", (id(result), result.assumptions),
+                             lambda: measure_first(view_.case, result))
+    rows = table[table["asset_id"].astype(str) == str(asset_id)]
+    if rows.empty or not rows["value_of_measuring"].iloc[0] > 1.0:
+        return ""
+    r = rows.iloc[0]
+    return (f"Worth measuring before deciding: up to {money_text(float(r['value_of_measuring']), view_.currency)} "
+            f"(rank {int(r['rank'])} of {len(table)} motors), as {r['label']}'s NPV of "
+            f"{money_text(float(r['npv']), view_.currency)} rests on {r['uncertain_inputs']}. Logging kW, power factor "
+            "and hours for 1-4 weeks costing less than that is worth doing first.")
+
+
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
     """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
     status = result.plan_status or {}

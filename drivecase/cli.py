@@ -431,6 +431,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         return _write_failed("run", args.out, exc)
     _print_run_summary(case, result)
     _print_scenarios(case, result)
+    _print_measure_first(case, result)
     _print_calibration_summary(case, Path(args.out) / "calibration.csv")
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
@@ -442,6 +443,23 @@ def cmd_run(args: argparse.Namespace) -> int:
               "motor option in the catalogue, offered to at least one motor)")
     print(f"\n{CAUTION}")
     return 0
+
+
+def _print_measure_first(case, result, shown: int = 5) -> None:
+    """The assets most worth measuring before deciding (measure_first.csv), the first few; nothing where no
+    decision stands to gain more than a unit of currency."""
+    from models.information import measure_first
+    from models.wording import money_text
+
+    table = measure_first(case, result)
+    worth = table[table["value_of_measuring"] > 1.0].head(shown)
+    if worth.empty:
+        return
+    cur = case.settings.currency
+    print("\nMeasure first (measure_first.csv): what knowing each motor's inputs before deciding could be worth")
+    for row in worth.to_dict("records"):
+        print(f"  {row['asset_id']}: up to {money_text(row['value_of_measuring'], cur)} "
+              f"({row['label']}, NPV {money_text(row['npv'], cur)} as modelled; {row['uncertain_inputs']})")
 
 
 def _print_scenarios(case, result) -> None:

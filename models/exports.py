@@ -29,6 +29,8 @@ DEFAULTS_FILE = "defaults.csv"
 #: The plan's headline under the case's own assumptions and under each of its named scenarios
 #: (:func:`models.comparison.case_scenarios`).
 SCENARIOS_FILE = "scenarios.csv"
+#: The assets ranked by the value of measuring them before deciding (:func:`models.information.measure_first`).
+MEASURE_FIRST_FILE = "measure_first.csv"
 
 
 def neutralise_text(value: object) -> object:
@@ -258,8 +260,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     """Return every table of a run, by file name (see :data:`RUN_FILES`).
 
     With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`),
-    :data:`DEFAULTS_FILE` (:func:`defaulted_fields`) and :data:`SCENARIOS_FILE`
-    (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) are added.
+    :data:`DEFAULTS_FILE` (:func:`defaulted_fields`), :data:`SCENARIOS_FILE`
+    (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) and
+    :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`) are added.
     """
     results = result.results.copy()
     if case is not None:
@@ -311,6 +314,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         tables[RUN_SETTINGS_FILE] = run_settings(result, case.settings)
         tables[DEFAULTS_FILE] = defaulted_fields(case)
         tables[SCENARIOS_FILE] = case_scenarios(case, result)
+        from models.information import measure_first
+
+        tables[MEASURE_FIRST_FILE] = measure_first(case, result)
     return tables
 
 

@@ -183,6 +183,9 @@ def update(asset_id, session, edits, requested=None):
     ratchet = services.ratchet_text(result, asset_id, view.currency)
     if ratchet:
         summary.append(html.Div(ratchet, className="small", id="asset-ratchet"))
+    measure = services.measure_text(view, result, asset_id)
+    if measure:
+        summary.append(html.Div(measure, className="small", id="asset-measure"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),

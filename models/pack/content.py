@@ -896,6 +896,19 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "alone; counted in the NPVs and paybacks within the horizon)", asset_list_text(ids),
                 "Tell the approvers that the demand saving shows in full on the bills only once today's peaks leave "
                 "the ratchet's look-back; confirm the ratchet's terms with the utility.")
+    # the assets whose decision stands to gain most from measuring them first (value of information)
+    from models.information import measure_first
+
+    worth = measure_first(case, result)
+    worth = worth[worth["asset_id"].isin(list(assets["asset_id"])) & (worth["value_of_measuring"] > 1.0)].head(5)
+    if len(worth):
+        cur = case.settings.currency
+        add("data quality", "Worth measuring before deciding",
+            "; ".join(f"{a} up to {money(float(v), cur)}" for a, v in zip(worth["asset_id"], worth["value_of_measuring"]))
+            + ": the expected value of knowing their loads and nameplates before deciding (docs/finance.md, section 8), "
+            "an upper bound on what logging each is worth", asset_list_text(list(worth["asset_id"])),
+            "Log kW, power factor and hours for 1-4 weeks where that costs less than the value shown; the others' "
+            "decisions are clear enough as modelled.")
     low = assets[assets["data_quality_pct"] < LOW_DATA_QUALITY_PCT]
     if len(low):
         add("data quality", "Low data-quality score", f"{counted(len(low), 'asset')} below {LOW_DATA_QUALITY_PCT:.0f} % of nameplate fields known",

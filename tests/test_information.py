@@ -1,0 +1,106 @@
+"""What to measure first: the value of knowing an asset's inputs before deciding (models.information).
+
+Expected numbers: hand calculations in docs/derivations/finance-metrics.md, section 9 (standard normal
+tables); the spreads are the rules of thumb of models.information.SPREAD_FRAC (common practice, from memory).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from models import scenario
+from models.information import SPREAD_FRAC, evpi, measure_first, spread_frac, spread_sources
+
+
+@pytest.mark.parametrize("npv, sigma, expected", [
+    (0.0, 1000.0, 398.94),      # 1 000 / sqrt(2 pi)
+    (1000.0, 1000.0, 83.32),    # 1 000 x 0.841345 + 1 000 x 0.241971 - 1 000
+    (-1000.0, 1000.0, 83.32),   # -1 000 x 0.158655 + 1 000 x 0.241971
+    (500.0, 2179.45, 642.26),   # section 9's asset
+    (500.0, 0.0, 0.0),          # nothing to learn
+])
+def test_evpi_of_a_normal_npv(npv, sigma, expected):
+    assert float(evpi(npv, sigma)) == pytest.approx(expected, abs=0.01)
+
+
+def test_spreads_add_in_quadrature():
+    # section 9: a duty table, efficiency and power factor from defaults: sqrt(0.15^2 + 0.15^2 + 0.05^2)
+    assert spread_frac(["load: duty table", "rated_efficiency_pct", "rated_power_factor"]) == pytest.approx(0.2179449)
+    assert SPREAD_FRAC["load: interval profile"] < SPREAD_FRAC["load: duty table"] < SPREAD_FRAC["load: mean load and hours"]
+
+
+def test_the_demo_s_sources_follow_its_register(demo_case):
+    sources = spread_sources(demo_case)
+    a = demo_case.assets.set_index("asset_id")
+    for asset_id, found in sources.items():
+        pid = a.loc[asset_id, "profile_id"]
+        load = found[0]
+        if isinstance(pid, str) and pid in demo_case.profiles:
+            assert load == "load: interval profile", asset_id
+        elif isinstance(pid, str) and pid in set(demo_case.duty["profile_id"]):
+            assert load == "load: duty table", asset_id
+        else:
+            assert load == "load: mean load and hours", asset_id
+        if "static_head_frac" in found:
+            assert a.loc[asset_id, "application"] in ("pump", "fan")
+    defaulted = set(zip(demo_case.defaults["asset_id"], demo_case.defaults["column"]))
+    assert all(("rated_efficiency_pct" in found) == ((asset_id, "rated_efficiency_pct") in defaulted)
+               for asset_id, found in sources.items())
+
+
+def test_the_ranking_is_the_evpi_of_each_asset_s_best_option(demo_run_physics):
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    table = measure_first(case, result)
+    assert table["rank"].tolist() == list(range(1, len(table) + 1))
+    assert (np.diff(table["value_of_measuring"].to_numpy()) <= 0).all()
+    r = result.results
+    for row in table.head(5).to_dict("records"):
+        own = r[(r["asset_id"] == row["asset_id"]) & (r["technology"] != "existing") & (r["capital"] > 0)]
+        assert row["npv"] == pytest.approx(float(own["npv"].max()))  # the highest-NPV option of the asset
+        assert row["npv_sigma"] == pytest.approx(row["spread_frac"] * abs(row["savings_pv"]))
+        # EVPI by the formula of section 9, written out with scipy's normal (not the module's function)
+        from scipy.stats import norm
+        z = row["npv"] / row["npv_sigma"]
+        expected = row["npv"] * norm.cdf(z) + row["npv_sigma"] * norm.pdf(z) - max(row["npv"], 0.0)
+        assert row["value_of_measuring"] == pytest.approx(expected, rel=1e-9)
+    # a clear decision is worth little to measure: the top one's NPV lies within a few spreads of zero
+    top = table.iloc[0]
+    assert abs(top["npv"]) < 3 * top["npv_sigma"]
+
+
+def test_run_writes_it_and_says_the_first_ones(tmp_path, capsys):
+    from pathlib import Path
+
+    from drivecase.cli import main
+
+    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+    out = tmp_path / "out"
+    assert main(["run", str(demo), "--out", str(out), "--no-risk", "--quiet"]) == 0
+    table = pd.read_csv(out / "measure_first.csv")
+    assert table.columns.tolist()[:3] == ["rank", "asset_id", "site_id"] and len(table) > 10
+    said = capsys.readouterr().out
+    first = table.iloc[0]
+    assert "Measure first (measure_first.csv)" in said and f"  {first['asset_id']}: up to EUR " in said
+
+
+def test_the_asset_page_and_the_register_say_it(demo_run_physics):
+    import types
+
+    from dashboard import services
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    table = measure_first(case, result)
+    top = table.iloc[0]
+    view = types.SimpleNamespace(case=case, key="demo-test", currency="EUR")
+    said = services.measure_text(view, result, top["asset_id"])
+    assert said.startswith("Worth measuring before deciding: up to EUR ") and f"(rank 1 of {len(table)} motors)" in said
+    clear = table[table["value_of_measuring"] <= 1.0]
+    assert services.measure_text(view, result, clear["asset_id"].iloc[0]) == ""
+    register = content.risk_register(case, result, content.select_scope(case, result, assets=[top["asset_id"]], plan=False))
+    row = register[register["item"] == "Worth measuring before deciding"].iloc[0]
+    assert row["assets"] == top["asset_id"] and row["detail"].startswith(f"{top['asset_id']} up to EUR ")
