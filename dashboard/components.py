@@ -295,6 +295,8 @@ def scenario_columns(currency: str) -> list[dict]:
     """Columns of the scenario comparison grid (rows of :func:`models.comparison.compare`)."""
     return [long_text_col("scenario", "Scenario", minWidth=180, flex=2),
             number_col("discount_rate_pct", "Discount rate [%]", 1, maxWidth=120),
+            number_col("escalation_energy_pct", "Energy price escalation [%/yr]", 1, maxWidth=130),
+            number_col("horizon_yr", "Horizon [yr]", 0, maxWidth=100),
             number_col("energy_price_level_pct", "Electricity price level [%]", 0, maxWidth=130),
             number_col("capital_cost_level_pct", "Capital cost level [%]", 0, maxWidth=120),
             number_col("budget_total", f"Budget, all plan years [{currency}]", 0, valueFormatter={

@@ -67,7 +67,7 @@ PROBLEM_COLUMNS: tuple[str, ...] = ("severity", "file", "row", "column", "value"
 #: Plan years shown as budget inputs.
 BUDGET_YEARS = 6
 #: Settings files that sit at the top of a case folder; any other TOML file is a tariff.
-ROOT_TOML = ("case.toml", "finance.toml")
+ROOT_TOML = ("case.toml", "finance.toml", "scenarios.toml")
 
 _SESSION_ID = re.compile(r"^[0-9a-f]{32}$")
 #: Digits grouped by thousands with commas ("1,000" or "1,000.5"), as a form's number fields take them.
@@ -305,7 +305,7 @@ def place_in_case(name: str) -> tuple[str | None, Problem | None]:
         return f"{stem}{suffix}", None
     return None, error(name, None, None, None, "not a case table name",
                        "name table files after their table: " + ", ".join(f"{t}.csv" for t in case_io.CASE_TABLES)
-                       + "; tariffs as <name>.toml; settings as case.toml and finance.toml")
+                       + "; tariffs as <name>.toml; settings as case.toml, finance.toml and scenarios.toml")
 
 
 def decode_upload(contents: object) -> tuple[bytes | None, str | None]:
@@ -774,7 +774,7 @@ def kept_scenarios(view_: View, kept) -> list[tuple[str, object]]:
             continue
         try:
             out.append((str(item.get("name", "")) + KEPT_MARK, assumptions_with_edits(view_.entry.case.finance, edits)))
-        except ValueError:
+        except (TypeError, ValueError):  # (a store entry the form never wrote)
             continue
     return out
 
@@ -809,6 +809,18 @@ def keep_scenario(view_: View, kept, name, edits) -> tuple[list | None, str]:
     if not isinstance(edits, dict) or edits.get("case") != view_.key or view_.assumptions == view_.entry.case.finance:
         return None, "Not kept: these are the case's own assumptions (its first row). Change a field above first."
     return kept + [{"name": text, "edits": dict(edits)}], f"Kept '{text}' for this tab: it is compared below."
+
+
+def rekey_kept(kept, old_key: str | None, new_key: str | None) -> list:
+    """The tab's kept scenarios after the case was saved under a new key: those of the old case follow it
+    (their edits were made against its assumptions, now the saved ones; each keeps the values it was kept with)."""
+    out = []
+    for item in kept if isinstance(kept, list) else []:
+        edits = item.get("edits") if isinstance(item, dict) else None
+        if isinstance(edits, dict) and old_key and new_key and edits.get("case") == old_key:
+            item = {**item, "edits": {**edits, "case": new_key}}
+        out.append(item)
+    return out
 
 
 #: Price levels edited on screen in percent of the prices as written -> finance assumption factor.

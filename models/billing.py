@@ -307,7 +307,8 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         )
     steps_in_cell = np.zeros(len(labels) * k, dtype=np.int64)
     np.add.at(steps_in_cell, month * k + period, 1)
-    peaks = {c.name: peak_windows(wall_ns, c.times, c.window_min) for c in getattr(tariff, "coincident", ())}
+    peaks = {c.name: peak_windows(wall_ns, c.times, c.window_min, int(round(float(interval_h) * 3_600e9)))
+             for c in getattr(tariff, "coincident", ())}
     return _Calendar(
         n_steps=len(index),
         interval_h=float(interval_h),
@@ -325,7 +326,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     )
 
 
-def peak_windows(wall_ns: np.ndarray, times, window_min: int) -> list[tuple[int, int]]:
+def peak_windows(wall_ns: np.ndarray, times, window_min: int, interval_ns: int | None = None) -> list[tuple[int, int]]:
     """The steps of each listed peak time's window, in every year of the series.
 
     Parameters
@@ -336,27 +337,45 @@ def peak_windows(wall_ns: np.ndarray, times, window_min: int) -> list[tuple[int,
         Window starts on the local clock.
     window_min : int
         Window length [min].
+    interval_ns : int, optional
+        Length of an interval [ns]; default the step between the first two starts (one hour for one step).
 
     Returns
     -------
     list of (int, int)
-        (first step, step after the last) of each window that holds at least one interval start; a time
-        whose day does not exist in a year (29 February) or whose window holds no interval is left out.
+        (first step, step after the last) of the intervals that overlap each window [t, t + window): the
+        interval holding its start (data coarser than the window: the hour that holds a 15-min peak window),
+        then every interval starting before its end; each time once, in the first year of the series that
+        holds it (a series crossing a year end does not count a date twice). A time whose day does not exist
+        in a year (29 February) or whose window no interval of the series overlaps is left out.
+
+    Notes
+    -----
+    The wall clock is assumed increasing: on the day the clocks go back, a window in the repeated hour takes
+    its first occurrence and those after it up to the window's end on the wall clock (both hours for a
+    60-min window at 01:00); a time in the hour skipped when they go forward holds no interval of its own
+    and takes the interval before it.
     """
     if not len(wall_ns):
         return []
+    step = int(interval_ns) if interval_ns else (int(wall_ns[1] - wall_ns[0]) if len(wall_ns) > 1 else 3_600_000_000_000)
     years = range(pd.Timestamp(int(wall_ns[0])).year, pd.Timestamp(int(wall_ns[-1])).year + 1)
     out = []
-    for year in years:
-        for month, day, hour, minute in times:
+    for month, day, hour, minute in times:
+        for year in years:  # each time once: in the first year of the series that holds it
             try:
                 start = pd.Timestamp(year=year, month=month, day=day, hour=hour, minute=minute).value
             except ValueError:
                 continue
-            a = int(np.searchsorted(wall_ns, start, side="left"))
-            b = int(np.searchsorted(wall_ns, start + window_min * _NS_PER_MIN, side="left"))
+            end = start + window_min * _NS_PER_MIN
+            # the interval that holds the start (it began at or before it and ends after it), else the first after
+            a = int(np.searchsorted(wall_ns, start, side="right")) - 1
+            if a < 0 or wall_ns[a] + step <= start:
+                a += 1
+            b = int(np.searchsorted(wall_ns, end, side="left"))
             if b > a:
                 out.append((a, b))
+                break
     return out
 
 

@@ -1626,14 +1626,16 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
     for name, tariff in listed.items():
         wall_ns = _local_wall(tariff, index).to_numpy().astype("datetime64[ns]").astype(np.int64)
         for i, clause in enumerate(tariff.coincident, start=1):
-            if not peak_windows(wall_ns, clause.times, clause.window_min):
+            step = int(index[1].value - index[0].value) if len(index) > 1 else None
+            if not peak_windows(wall_ns, clause.times, clause.window_min, step):
                 source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
                 problems.append(warning(
                     source, None, f"coincident_peak[{i}].times", f"{len(clause.times)} time(s)",
                     f"no peak time of the clause falls in the analysis period ({index[0]:%Y-%m-%d} to "
-                    f"{index[-1]:%Y-%m-%d}, the case's profiles): it bills nothing and no motor saves on it",
-                    "list the system's peak times of the profiles' year (the year itself is not used: month, day "
-                    "and time must fall inside the profiles)"))
+                    f"{index[-1]:%Y-%m-%d}, the case's profiles; a day that year does not have, such as 29 February, "
+                    "counts as none): it bills nothing and no motor saves on it",
+                    "list the system's peak times by month, day and time inside the profiles' period (the year "
+                    "itself is not used)"))
 
 
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:
@@ -1792,19 +1794,10 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         problems.extend(scenario_problems)
         if scenarios is not None:
             scenarios.extend(named)
-    if assumptions is not None and assumptions.budget_per_yr and not any(b > 0 for b in assumptions.budget_per_yr):
-        problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr),
-                                "every plan year's capital budget is 0: the plan buys only projects that need no "
-                                "capital",
-                                "give the budget of each plan year, or leave budget_per_yr out for no limit"))
-    if assumptions is not None and assumptions.budget_per_yr:
-        from models.plan import plan_beyond_horizon_text
+    if assumptions is not None:
+        from models.comparison import finance_checks
 
-        beyond = plan_beyond_horizon_text(len(assumptions.budget_per_yr), assumptions.horizon_yr)
-        if beyond:
-            problems.append(warning(source, None, "budget_per_yr", list(assumptions.budget_per_yr), beyond,
-                                    f"horizon_yr = {len(assumptions.budget_per_yr)} or more, or "
-                                    f"{int(assumptions.horizon_yr)} budget year(s)"))
+        problems.extend(finance_checks(assumptions, source))
     if assumptions is not None and assumptions.currency != settings.currency and _valid_currency(settings.currency):
         problems.append(error(source, None, "currency", assumptions.currency,
                               f"the finance currency differs from the case currency {settings.currency}",

@@ -16,6 +16,7 @@ import difflib
 import math
 import weakref
 from collections.abc import Callable, Sequence
+from dataclasses import replace
 from typing import Any
 
 import pandas as pd
@@ -24,6 +25,8 @@ from models.problems import Problem, error
 
 #: The case's own assumptions, as the first row of every comparison is named.
 BASE_NAME = "Case as written"
+#: A run made under other assumptions than the case's own (a pack from edited assumptions), as its row is named.
+RUN_NAME = "Assumptions of this run"
 #: Longest scenario name [characters] (it heads a column of the report and a row of the tables).
 MAX_NAME_CHARS = 60
 #: The headline figures compared, with their words (each also compared as a difference from the first row).
@@ -167,21 +170,49 @@ def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
     Returns
     -------
     pandas.DataFrame
-        :func:`compare` of the rows, the case's own first (named :data:`BASE_NAME`).
+        :func:`compare` of the rows, the case's own first (named :data:`BASE_NAME`); where ``result`` was run
+        under other assumptions than the case's own (a seed or a number of draws aside), its row follows,
+        named :data:`RUN_NAME`, and every change is from the case's own.
     """
     from models import scenario
 
-    kept = _LAST.get("last")
-    if kept is not None and kept[0]() is result and kept[1] is case:
-        return kept[2].copy()
     settings = plan_settings or (result.plan_status or {}).get("settings") or scenario.PRECISE_PLAN
-    rows = [(BASE_NAME, result.assumptions, plan_headline(result))]
+    kept = _LAST.get("last")
+    if kept is not None and kept[0]() is result and kept[1]() is case and kept[2] == settings:
+        return kept[3].copy()
+    own = case.finance
+    # a run under its own seed or number of draws is still the case as written (the plan does not draw)
+    if replace(result.assumptions, monte_carlo_seed=own.monte_carlo_seed, monte_carlo_draws=own.monte_carlo_draws) == own:
+        rows = [(BASE_NAME, result.assumptions, plan_headline(result))]
+    else:  # a run under edited assumptions: the case's own first, then this run's, then the scenarios
+        base = scenario.economics(case, result.physics, own, with_risk=False, plan_settings=settings)
+        rows = [(BASE_NAME, own, plan_headline(base)), (RUN_NAME, result.assumptions, plan_headline(result))]
     for name, assumptions in getattr(case, "scenarios", ()):
         other = scenario.economics(case, result.physics, assumptions, with_risk=False, plan_settings=settings)
         rows.append((name, assumptions, plan_headline(other)))
     table = compare(rows)
-    _LAST["last"] = (weakref.ref(result), case, table)
+    _LAST["last"] = (weakref.ref(result), weakref.ref(case), settings, table)
     return table.copy()
+
+
+def finance_checks(assumptions, source: str) -> list[Problem]:
+    """The checks of a set of finance assumptions beyond each key's own range: capital budgets of 0 in every
+    plan year, and budget years past the horizon (warnings)."""
+    from models.plan import plan_beyond_horizon_text
+    from models.problems import warning
+
+    out: list[Problem] = []
+    budget = list(assumptions.budget_per_yr or ())
+    if budget and not any(b > 0 for b in budget):
+        out.append(warning(source, None, "budget_per_yr", budget,
+                           "every plan year's capital budget is 0: the plan buys only projects that need no capital",
+                           "give the budget of each plan year, or leave budget_per_yr out for no limit"))
+    if budget:
+        beyond = plan_beyond_horizon_text(len(budget), assumptions.horizon_yr)
+        if beyond:
+            out.append(warning(source, None, "budget_per_yr", budget, beyond,
+                               f"horizon_yr = {len(budget)} or more, or {int(assumptions.horizon_yr)} budget year(s)"))
+    return out
 
 
 def _finance_keys() -> tuple[str, ...]:
@@ -221,6 +252,9 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
                           '[[scenarios]]\nname = "Cheaper money"\ndiscount_rate_frac = 0.06')]
     out: list[tuple[str, Any]] = []
     seen: dict[str, int] = {}
+    base_assumptions, base_found = FinanceAssumptions.from_dict(dict(base), source=source)
+    base_found = base_found + (finance_checks(base_assumptions, source) if base_assumptions is not None else [])
+    base_problems = {(p.column, p.rule) for p in base_found}
     for i, table in enumerate(tables, start=1):
         at = f"{prefix}[{i}]"
         name = table.get("name")
@@ -233,10 +267,10 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
             problems.append(error(source, None, f"{at}.name", name, f"a scenario's name is at most {MAX_NAME_CHARS} "
                                   "characters", "shorten it; a longer description goes in a # comment"))
             continue
-        if name in seen or name == BASE_NAME:
+        if name in seen or name in (BASE_NAME, RUN_NAME):
             problems.append(error(source, None, f"{at}.name", name,
                                   f"duplicate scenario name (also {prefix}[{seen[name]}])" if name in seen
-                                  else f"'{BASE_NAME}' names the case's own assumptions",
+                                  else f"'{name}' names a row of every comparison",
                                   "give each scenario a name of its own"))
             continue
         seen[name] = i
@@ -252,17 +286,22 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
             problems.append(error(source, None, f"{at}.{k}", changes[k],
                                   "unknown finance key: the scenario would not change what it means to",
                                   f"did you mean '{close[0]}'?" if close else "the keys are listed in docs/finance.md"))
+        if "currency" in changes:
+            problems.append(error(source, None, f"{at}.currency", changes["currency"],
+                                  "a scenario cannot change the currency: one case prices everything in one",
+                                  "leave currency out of the scenario"))
+            continue
         if unknown:
             continue
         assumptions, found = FinanceAssumptions.from_dict({**base, **changes}, source=source)
+        found = found + (finance_checks(assumptions, source) if assumptions is not None else [])
         for p in found:
-            # a problem of a key the scenario sets is the scenario's; one of the case's own keys is reported there
-            if p.column in changes:
-                problems.append(Problem(p.severity, p.file, p.row, f"{at}.{p.column}", p.value, p.rule, p.hint))
+            # the scenario's own problems: of a key it sets, or one the case's own keys alone do not raise (a
+            # rate set against the case's inflation); the case's own are reported with the case
+            if p.column in changes or (p.column, p.rule) not in base_problems:
+                column = f"{at}.{p.column}" if p.column else at
+                problems.append(Problem(p.severity, p.file, p.row, column, p.value, p.rule, p.hint))
         if assumptions is None:
-            if not any(p.severity == "error" and p.column in changes for p in found):
-                problems.append(error(source, None, at, name, "the scenario's assumptions are not valid",
-                                      "see the case's finance problems"))
             continue
         out.append((name, assumptions))
     return out, problems

@@ -265,6 +265,55 @@ class TestDemand:
         assert_allclose(bill_total(b), 27_000.0, **EXACT)
         assert len(p[pd.Timestamp("2025-07-15 17:00", tz="UTC"):pd.Timestamp("2025-07-15 17:59", tz="UTC")]) == steps_per_h
 
+    def test_a_peak_window_takes_the_mean_of_its_intervals_and_the_hour_that_holds_it(self):
+        # hand calculation (billing-demand.md, case D10, more windows): 15-min data 400, 600, 500, 500 kW in the
+        # hour from 15 July 17:00 -> its mean 500 kW; on hourly data, a 15-min window at 17:15 lies inside the
+        # 17:00 hour (its 400 kW); a window in which the site exports (-100 kW) counts 0, so (500 + 0) / 2 = 250
+        text = FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\n'
+        quarter = pd.date_range("2025-07-01", "2025-08-01", freq="15min", tz="UTC", inclusive="left")
+        p = pd.Series(100.0, index=quarter)
+        p[pd.Timestamp("2025-07-15 17:00", tz="UTC"):pd.Timestamp("2025-07-15 17:59", tz="UTC")] = [400.0, 600.0, 500.0, 500.0]
+        p[pd.Timestamp("2025-07-20 12:00", tz="UTC"):pd.Timestamp("2025-07-20 12:59", tz="UTC")] = -100.0
+        one = load(text + 'times = [2025-07-15T17:00:00]\n')
+        assert_allclose(quantity(bill(one, quarter, p.to_numpy(), np.zeros(len(quarter))), "coincident:c"), 500.0, **EXACT)
+        two = load(text + 'times = [2025-07-15T17:00:00, 2025-07-20T12:00:00]\n')
+        assert_allclose(quantity(bill(two, quarter, p.to_numpy(), np.zeros(len(quarter))), "coincident:c"), 250.0, **EXACT)
+        hourly = pd.date_range("2025-07-01", "2025-08-01", freq="h", tz="UTC", inclusive="left")
+        h = np.where(hourly == pd.Timestamp("2025-07-15 17:00", tz="UTC"), 400.0, 100.0)
+        off_grid = load(text + 'window_min = 15\ntimes = [2025-07-15T17:15:00]\n')
+        assert_allclose(quantity(bill(off_grid, hourly, h, np.zeros(len(hourly))), "coincident:c"), 400.0, **EXACT)
+
+    def test_a_date_is_counted_once_in_a_series_that_crosses_a_year_end(self):
+        # December 2024 to December 2025 holds 10 December twice: the first (1 000 kW) counts, once
+        text = FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\ntimes = [2025-12-10T12:00:00]\n'
+        idx = pd.date_range("2024-12-01", "2025-12-31", freq="h", tz="UTC", inclusive="left")
+        p = np.full(len(idx), 100.0)
+        p[idx.get_loc(pd.Timestamp("2024-12-10 12:00", tz="UTC"))] = 1000.0
+        assert_allclose(bill(load(text), idx, p, np.zeros(len(idx)))["quantity"].iloc[0], 1000.0, **EXACT)
+
+    @pytest.mark.parametrize("clause, item", [
+        ('[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\ncontracted_kw = 500\n'
+         'excess_price_per_kw_month = 20.0\nseasons = ["s"]\n', "excess:d"),
+        ('[[coincident_peak]]\nname = "d"\nprice_per_kw_month = 10.0\ntimes = [2025-06-11T14:00:00]\n', "coincident:d"),
+    ])
+    def test_demand_charge_taxes_and_seasons_hold_the_new_items(self, clause, item):
+        # hand calculation (billing-demand.md, case D9 in a summer season of June): May bills no contract (out of
+        # season); June 500 x 10 + (700 - 500) x 20 = 9 000, and a 10 % tax on demand charges 900. The coincident
+        # charge: 700 kW at the June time x 10 in both months = 14 000, tax 1 400
+        head = HEAD + '[[seasons]]\nname = "w"\nmonths = [1,2,3,4,5,10,11,12]\n[[seasons]]\nname = "s"\nmonths = [6,7,8,9]\n'
+        t = load(head + '[[periods]]\ncode = "all"\n' + clause + '[[taxes]]\nname = "t"\nrate_pct = 10\nbase = "demand_charges"\n')
+        idx = pd.date_range("2025-05-01", "2025-07-01", freq="h", tz="UTC", inclusive="left")
+        p = np.full(len(idx), 300.0)
+        p[idx.get_loc(pd.Timestamp("2025-06-11 14:00", tz="UTC"))] = 700.0
+        b = bill(t, idx, p, np.zeros(len(idx)))
+        if item == "excess:d":
+            assert set(b.loc[b["month"] == "2025-05", "line_item"]) <= {"tax:t"}
+            assert_allclose(b.loc[b["month"] == "2025-05", "amount"].sum(), 0.0, **EXACT)
+            assert_allclose(quantity(b, "excess:d", "2025-06"), 200.0, **EXACT)
+            assert_allclose(quantity(b, "tax:t"), 9_000.0, **EXACT)
+        else:
+            assert_allclose(quantity(b, "tax:t"), 14_000.0, **EXACT)
+
     def test_a_peak_time_outside_the_series_is_left_out(self):
         # only July's time falls in a series of June to August; a 29 February time exists in no year of it
         t = load(FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\n'

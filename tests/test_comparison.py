@@ -59,7 +59,9 @@ class TestReading:
         ([{"discount_rate_frac": 0.06}], "scenarios[1].name", "needs a name"),
         ([{"name": "A", "discount_rate_frac": 0.06}, {"name": "A", "horizon_yr": 20}], "scenarios[2].name",
          "duplicate scenario name (also scenarios[1])"),
-        ([{"name": "Case as written", "horizon_yr": 20}], "scenarios[1].name", "names the case's own assumptions"),
+        ([{"name": "Case as written", "horizon_yr": 20}], "scenarios[1].name", "names a row of every comparison"),
+        ([{"name": "Assumptions of this run", "horizon_yr": 20}], "scenarios[1].name", "names a row of every comparison"),
+        ([{"name": "Dollars", "currency": "USD"}], "scenarios[1].currency", "cannot change the currency"),
         ([{"name": "Same"}], "scenarios[1]", "changes no assumption"),
         ([{"name": "Bad rate", "discount_rate_frac": 5.0}], "scenarios[1].discount_rate_frac", ""),
         ([{"name": "Bad mode", "replacement_mode": "sometimes"}], "scenarios[1].replacement_mode", ""),
@@ -70,6 +72,23 @@ class TestReading:
         found = [p for p in problems if p.column == key and p.severity == "error" and rule in p.rule]
         assert found, [str(p) for p in problems]
         assert found[0].file == "finance.toml"
+
+    def test_a_scenario_gets_the_budget_warnings_of_the_case_s_own_file(self):
+        # models.case: a budget of 0 in every year, and budget years past the horizon, are warned for a scenario
+        # as for finance.toml, under the scenario's entry
+        named, problems = comparison.read_scenarios(
+            [{"name": "No money", "budget_per_yr": [0, 0]}, {"name": "Short", "horizon_yr": 1, "budget_per_yr": [1, 2, 3]}],
+            self.BASE, "finance.toml")
+        assert [n for n, _ in named] == ["No money", "Short"]
+        found = {(p.column, p.severity, p.rule.split(":")[0]) for p in problems}
+        assert ("scenarios[1].budget_per_yr", "warning", "every plan year's capital budget is 0") in found
+        assert any(c == "scenarios[2].budget_per_yr" and sev == "warning" for c, sev, _ in found)
+
+    def test_the_case_s_own_problems_are_not_repeated_for_each_scenario(self):
+        base = {**self.BASE, "budget_per_yr": [0, 0]}  # the case's own warning, reported once with the case
+        named, problems = comparison.read_scenarios([{"name": "Cheaper money", "discount_rate_frac": 0.06}], base,
+                                                    "finance.toml")
+        assert named and problems == []
 
     def test_an_unknown_key_of_a_scenario_is_an_error_with_the_key_meant(self):
         # a misspelt key would leave the scenario the same as the case without a word: refused, not ignored
@@ -239,3 +258,25 @@ def test_a_report_of_a_case_without_scenarios_has_no_such_section(tmp_path):
     case, _ = load_case(folder)
     result = scenario.run(case, case.finance, with_risk=False)
     assert "The plan under the case's scenarios" not in render_report(case, result, content.select_scope(case, result))
+
+
+def test_a_run_under_edited_assumptions_is_a_row_of_its_own(demo_run_physics):
+    # a pack made from the dashboard's edited assumptions (discount 12 %): the case as written stays the first row,
+    # the run's own follows it, and every change is from the case as written (independent economics runs)
+    case, phys = demo_run_physics
+    edited = replace(case.finance, discount_rate_frac=0.12)
+    result = scenario.economics(case, phys, edited, with_risk=False)
+    table = comparison.case_scenarios(case, result).set_index("scenario")
+    assert list(table.index[:2]) == [comparison.BASE_NAME, comparison.RUN_NAME]
+    own = scenario.economics(case, phys, case.finance, with_risk=False)
+    assert table.loc[comparison.BASE_NAME, "plan_npv"] == pytest.approx(float(own.plan["npv_at_plan_start"].sum()), rel=1e-9)
+    assert table.loc[comparison.BASE_NAME, "discount_rate_pct"] == pytest.approx(8.0)
+    assert table.loc[comparison.RUN_NAME, "discount_rate_pct"] == pytest.approx(12.0)
+    assert table.loc[comparison.RUN_NAME, "plan_npv_change"] < 0
+    wait = scenario.economics(case, phys, dict(case.scenarios)["Wait for failures"], with_risk=False)
+    assert table.loc["Wait for failures", "plan_npv_change"] == pytest.approx(
+        float(wait.plan["npv_at_plan_start"].sum()) - float(own.plan["npv_at_plan_start"].sum()), rel=1e-9)
+    # a run under another seed alone is still the case as written
+    seeded = scenario.economics(case, phys, replace(case.finance, monte_carlo_seed=7), with_risk=False)
+    assert comparison.case_scenarios(case, seeded)["scenario"].iloc[1] == "Cheaper money"
+

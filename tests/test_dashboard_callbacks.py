@@ -175,7 +175,8 @@ def test_a_blank_assumption_field_is_refused_by_name(engine):
             assert message.startswith(f"Not applied: {name}: enter a number. It stays at ")
             assert message.endswith(". The other values are applied.")
             # and the save says why it writes nothing, instead of "Nothing to save"
-            assert inputs.save(1, *form, *DEMO_BUDGET, None, None)[2].startswith(f"Not saved: {name}: enter a number.")
+            assert inputs.save(1, *form, *DEMO_BUDGET, None, None, None)[2].startswith(
+                f"Not saved: {name}: enter a number.")
 
 
 def test_assumption_fields_read_numbers_as_typed(engine):
@@ -504,7 +505,7 @@ def test_budget_fields_name_the_currency_and_refuse_absurd_amounts(engine):
     assert stored["discount_rate_pct"] == 6.0 and "budget_per_yr" not in stored
     assert f"Year 0 budget [{currency}]: 1e99 is above" in message and look == "form-message refused"
     # and nothing of it is saved
-    out = inputs.save(1, 8.0, 1.0, 15, 100.0, 100.0, "inf", None, None, None, None, None, None, None)
+    out = inputs.save(1, 8.0, 1.0, 15, 100.0, 100.0, "inf", None, None, None, None, None, None, None, None)
     assert out[2].startswith(f"Not saved: Year 0 budget [{currency}]: 'inf' is not an amount")
 
 

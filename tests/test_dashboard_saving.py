@@ -229,16 +229,17 @@ class TestUploadedCase:
 # The page callback, called directly
 # ---------------------------------------------------------------------------------------------------
 def form(discount=8.0, escalation=1.0, horizon=15, price=100.0, capital=100.0,
-         budget=(250000.0, 250000.0, 150000.0), edits=None, session=None) -> tuple:
-    """The save callback's form states in order (the demo's finance.toml values by default)."""
+         budget=(250000.0, 250000.0, 150000.0), edits=None, session=None, kept=None) -> tuple:
+    """The save callback's form states in order (the demo's finance.toml values by default), then the tab's
+    kept scenarios."""
     years = list(budget) + [None] * (len(inputs.BUDGET_IDS) - len(budget))
-    return (discount, escalation, horizon, price, capital, *years, edits, session)
+    return (discount, escalation, horizon, price, capital, *years, edits, session, kept)
 
 
 class TestSaveCallback:
     def test_a_typed_value_not_yet_applied_is_saved(self, engine, case_dir):
-        assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 5  # the page mounting is no click
-        session_out, edits_out, status, download, _ = inputs.save(1, *form(discount=6.0))
+        assert inputs.save(None, *form(discount=6.0)) == (no_update,) * 6  # the page mounting is no click
+        session_out, edits_out, status, download, _, _ = inputs.save(1, *form(discount=6.0))
         assert status.startswith("Saved 1 value into finance.toml (discount_rate_frac 0.08 -> 0.06)")
         assert "previous version is kept as .versions/finance-" in status
         assert finance_line(case_dir / "finance.toml", "discount_rate_frac") == "discount_rate_frac = 0.06"
@@ -264,7 +265,11 @@ class TestSaveCallback:
         header, rows = demo_rows(SMALL_IDS[:2])
         up = engine.accept_upload(None, None, ["assets.csv"], [data_url(csv_bytes(header, rows))])
         session = {"session": up.session, "case": up.key}
-        session_out, edits_out, status, download, _ = inputs.save(1, *form(horizon=9, session=session))
+        kept = [{"name": "Long view", "edits": {"case": up.key, "horizon_yr": 20}},
+                {"name": "Other case", "edits": {"case": "f" * 32, "horizon_yr": 5}}]
+        session_out, edits_out, status, download, _, kept_out = inputs.save(1, *form(horizon=9, session=session, kept=kept))
         assert session_out["case"] != up.key and engine.entry(session_out["case"]) is not None
+        # the tab's kept scenarios of the saved case follow it to its new key (another case's are left as they were)
+        assert kept_out == [{"name": "Long view", "edits": {"case": session_out["case"], "horizon_yr": 20}}, kept[1]]
         assert edits_out is None and "keep the download" in status
         assert download["filename"].endswith(".zip") and download["base64"]

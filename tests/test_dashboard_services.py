@@ -860,3 +860,17 @@ def test_the_site_page_sets_the_model_beside_an_uploaded_bill_history(engine):
     assert services.site_calibration_text(view, "KGQ") == []
     # the default case (a copy of the demo, whose bill history gives energy, peak, kVArh and totals for HRW)
     assert len(services.site_calibration_text(services.view(None, None), "HRW")) == 4
+
+
+def test_a_scenarios_file_uploads_beside_the_case_and_is_kept_with_other_uploads(tmp_path_factory):
+    # scenarios.toml is a settings file of the case (not a tariff): an upload of it replaces the case's, and a table
+    # uploaded later keeps it (keep the case's other files)
+    eng = small_case_engine(tmp_path_factory, "scen")
+    text = b'[[scenarios]]\nname = "Long view"\nhorizon_yr = 25\n'
+    up = eng.accept_upload(None, eng.default_key, ["scenarios.toml"], [data_url(text, "text/plain")], keep_other_files=True)
+    assert up.ok, up.message
+    assert [n for n, _ in eng.entry(up.key).case.scenarios] == ["Long view"]
+    header, rows = demo_rows(SMALL_IDS[:3])
+    again = eng.accept_upload(up.session, up.key, ["assets.csv"], [data_url(csv_bytes(header, rows))], keep_other_files=True)
+    assert again.ok, again.message
+    assert [n for n, _ in eng.entry(again.key).case.scenarios] == ["Long view"]

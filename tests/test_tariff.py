@@ -719,3 +719,13 @@ def test_rounding_the_points_up_is_warned_as_ignored_by_the_ratio_method():
         assert tariff is not None and bool(found) == warned, method
         if warned:
             assert found[0].severity == "warning" and "ignored with method 'ratio'" in found[0].rule
+
+
+def test_a_peak_time_listed_twice_is_warned():
+    t, problems = tariff_from_dict({"tariff": {"name": "cp", "currency": "EUR"}, "periods": [{"code": "all"}],
+                                    "coincident_peak": [{"name": "c", "price_per_kw_month": 1.0,
+                                                         "times": ["2025-07-15 17:00", "2025-07-15 17:00"]}]},
+                                   source="t.toml")
+    assert t is not None
+    found = [p for p in problems if p.column == "coincident_peak[1].times" and p.severity == "warning"]
+    assert found and "listed twice" in found[0].rule

@@ -69,7 +69,7 @@ def layout(**_query):
                                     children=html.Div(["Drop files here or ", html.A("choose files")]), className="upload"),
                          **{"data-label": UPLOAD_INPUT_NAME}),
                 html.P(f"One .xlsx workbook, or the case's files (assets.csv, sites.csv, capacitors.csv, duty.csv, "
-                       f"profiles.csv or .parquet, options.csv, case.toml, finance.toml, tariff .toml files). Up to "
+                       f"profiles.csv or .parquet, options.csv, case.toml, finance.toml, scenarios.toml, tariff .toml files). Up to "
                        f"{limit_mb:.0f} MB per upload.", className="page-intro"),
                 dcc.Checklist(id=KEEP_FILES, value=["keep"], options=[
                     {"label": " Keep the current case's other files (replace only the files uploaded)", "value": "keep"}]),
@@ -271,21 +271,27 @@ SAVE_FORM = [State(DISCOUNT, "value"), State(ESCALATION, "value"), State(HORIZON
 
 @callback(Output(ui.SESSION_STORE, "data", allow_duplicate=True), Output(ui.EDITS_STORE, "data", allow_duplicate=True),
           Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"), Output(SAVE_STATUS, "className"),
-          Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, prevent_initial_call=True)
-def save(clicks, *form):
-    """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept."""
+          Output(ui.SCENARIOS_STORE, "data", allow_duplicate=True),
+          Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, State(ui.SCENARIOS_STORE, "data"), prevent_initial_call=True)
+def save(clicks, *form_and_kept):
+    """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept.
+    The tab's kept scenarios follow the case to its new contents."""
+    form, kept = form_and_kept[:-1], form_and_kept[-1]
     if not clicks:  # the page opening is not a click (the renderer can fire this once as the page mounts)
-        return (no_update,) * 5
+        return (no_update,) * 6
     edits, changed, problem = _parse_form(*form)
     if problem:
         # nothing is saved while a field is refused (the save writes the whole form)
         refused = problem.removeprefix("Not applied: ").removesuffix(" The other values are applied.")
-        return no_update, no_update, "Not saved: " + refused, no_update, ui.message_class(False)
+        return no_update, no_update, "Not saved: " + refused, no_update, ui.message_class(False), no_update
     outcome = services.save_tab_assumptions(form[-1], edits if changed else form[-2])
     download = (dcc.send_bytes(outcome.download, outcome.download_name) if outcome.download is not None
                 else no_update)
+    old_key = (form[-1] or {}).get("case") if isinstance(form[-1], dict) else None
+    new_key = (outcome.session or {}).get("case") if isinstance(outcome.session, dict) else None
+    moved = services.rekey_kept(kept, old_key, new_key) if outcome.ok and new_key else no_update
     return (outcome.session if outcome.session is not None else no_update, None if outcome.ok else no_update,
-            outcome.message, download, ui.message_class(outcome.ok))
+            outcome.message, download, ui.message_class(outcome.ok), moved)
 
 
 @callback(Output(ui.SCENARIOS_STORE, "data"), Output(SCENARIO_MESSAGE, "children"), Output(SCENARIO_MESSAGE, "className"),
