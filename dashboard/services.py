@@ -782,12 +782,18 @@ def kept_scenarios(view_: View, kept) -> list[tuple[str, object]]:
 def scenario_rows(view_: View, kept) -> pd.DataFrame:
     """The case as written, the case's own scenarios (scenarios.toml) and the tab's kept ones, side by side
     (:func:`models.comparison.compare`); each plan proven as the pack's and the command line's (so the rows of
-    the case's scenarios are those of scenarios.csv)."""
+    the case's scenarios are those of scenarios.csv) for a fleet of up to :data:`PROVEN_SCENARIO_ASSETS` motors,
+    a larger one's bounded as a live edit's (each proof can take up to a minute there)."""
     from models.comparison import BASE_NAME, compare
 
     entry, eng = view_.entry, engine()
+    precise = len(entry.case.assets) <= PROVEN_SCENARIO_ASSETS
     named = [(BASE_NAME, entry.case.finance)] + list(getattr(entry.case, "scenarios", ())) + kept_scenarios(view_, kept)
-    return compare([(name, a, headline(eng.result(entry.key, a, precise=True))) for name, a in named])
+    return compare([(name, a, headline(eng.result(entry.key, a, precise=precise))) for name, a in named])
+
+
+#: Largest fleet [motors] whose scenario plans the Case & assumptions page proves as the pack does.
+PROVEN_SCENARIO_ASSETS = 2000
 
 
 def keep_scenario(view_: View, kept, name, edits) -> tuple[list | None, str]:

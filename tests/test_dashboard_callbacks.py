@@ -663,3 +663,17 @@ def test_the_case_s_scenarios_read_as_in_the_scenarios_file(engine):
     rows = pd.DataFrame(inputs.scenarios(True, None, None)[0])
     assert rows["scenario"].tolist() == expected["scenario"].tolist()
     assert rows["plan_npv"].to_numpy() == pytest.approx(expected["plan_npv"].to_numpy(), rel=1e-9)
+
+
+def test_a_large_fleet_s_scenarios_are_bounded_as_live_edits(engine, monkeypatch):
+    # services.PROVEN_SCENARIO_ASSETS: above it the page asks each scenario's plan as a live edit (a proof can take
+    # up to a minute per plan there); at or below it, proven as the pack's
+    asks = []
+    real = engine.result
+    monkeypatch.setattr(engine, "result", lambda key, a, **kw: asks.append(kw.get("precise")) or real(key, a, **kw))
+    inputs.scenarios(True, None, None)
+    assert asks and all(asks)
+    asks.clear()
+    monkeypatch.setattr(services, "PROVEN_SCENARIO_ASSETS", 1)
+    inputs.scenarios(True, None, None)
+    assert asks and not any(asks)

@@ -106,8 +106,10 @@ def layout(**_query):
             html.H3("Scenarios side by side"),
             html.P("The fleet plan under the case as written, under each scenario the case names (scenarios.toml) and "
                    "under the assumptions you keep here. Only the finance assumptions differ: the machines and the "
-                   "bills are the same. Each plan is proven as the capital-request pack's. Kept scenarios stay with "
-                   "this tab; write them into scenarios.toml to keep them with the case.", className="page-intro"),
+                   "bills are the same. Each plan is proven as the capital-request pack's (for a fleet of up to "
+                   f"{services.PROVEN_SCENARIO_ASSETS:,} motors; a larger one's are bounded as a live edit's). Kept "
+                   "scenarios stay with this tab; write them into scenarios.toml to keep them with the case.",
+                   className="page-intro"),
             html.Div([
                 html.Div([html.Label("Name of the assumptions above", htmlFor=SCENARIO_NAME),
                           dcc.Input(id=SCENARIO_NAME, type="text", maxLength=60, debounce=False)], className="field"),
