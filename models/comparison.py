@@ -257,6 +257,7 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
     base_problems = {(p.column, p.rule) for p in base_found}
     for i, table in enumerate(tables, start=1):
         at = f"{prefix}[{i}]"
+        table = {k: v for k, v in table.items() if k != "_sheet_row"}  # (a workbook row: named below)
         name = table.get("name")
         if not isinstance(name, str) or not name.strip():
             problems.append(error(source, None, f"{at}.name", name, "a scenario needs a name",
@@ -304,4 +305,15 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
         if assumptions is None:
             continue
         out.append((name, assumptions))
+    if any(table.get("_sheet_row") is not None for table in tables):
+        # a workbook sheet's scenarios: each problem names its scenario's row (models.io.SHEET_ROW_KEY)
+        rows = {f"{prefix}[{i}]": t.get("_sheet_row") for i, t in enumerate(tables, start=1)}
+        problems = [replace(p, row=rows.get(_entry(p.column, prefix), p.row)) if p.row is None else p for p in problems]
     return out, problems
+
+
+def _entry(column: str | None, prefix: str) -> str | None:
+    """The entry (``scenarios[3]``) a problem's column names, or None."""
+    if not column or not column.startswith(prefix + "["):
+        return None
+    return column[:column.index("]") + 1]

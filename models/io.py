@@ -965,18 +965,23 @@ def _percent_format(number_format: object) -> bool:
     return "%" in re.sub(r'"[^"]*"|\\.', "", number_format)
 
 
+#: Key under which a scenario read from a workbook sheet carries its row number (problems name the row).
+SHEET_ROW_KEY = "_sheet_row"
+
+
 def _scenarios_sheet(sheet) -> list[dict]:
     """Read a ``scenarios`` sheet: a header row (``name`` and the finance keys), then one scenario per row;
-    a blank cell leaves that key as the case has it. Rows starting with # and empty rows are passed over."""
+    a blank cell leaves that key as the case has it. Rows starting with # and empty rows are passed over.
+    Each scenario carries its sheet row under :data:`SHEET_ROW_KEY`."""
     header: list[str] | None = None
     out: list[dict] = []
-    for row in sheet.iter_rows(values_only=True):
+    for number, row in enumerate(sheet.iter_rows(values_only=True), start=1):
         if not row or all(v is None for v in row) or str(row[0] or "").lstrip().startswith("#"):
             continue
         if header is None:
             header = [normalise_header(v).replace(" ", "_") if v is not None else "" for v in row]
             continue
-        entry = {}
+        entry = {SHEET_ROW_KEY: number}
         for key, value in zip(header, row):
             if key and value is not None and not (isinstance(value, str) and not value.strip()):
                 if isinstance(value, str) and value.strip().startswith("["):

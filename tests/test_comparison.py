@@ -143,7 +143,7 @@ def test_a_workbook_scenario_with_a_bad_value_names_its_sheet_and_row_entry(tmp_
     case, problems = load_case(book)
     assert case is None
     found = [p for p in problems if p.column == "scenarios[1].discount_rate_frac"]
-    assert found and found[0].file == "case.xlsx:scenarios"
+    assert found and found[0].file == "case.xlsx:scenarios" and found[0].row == 2  # the header is row 1
 
 
 def test_each_scenario_row_is_the_economics_of_its_own_assumptions(demo_run_physics):
