@@ -15,7 +15,7 @@ from __future__ import annotations
 import difflib
 import math
 import weakref
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from dataclasses import replace
 from typing import Any
 
@@ -128,25 +128,6 @@ def compare(rows: Sequence[tuple[str, Any, dict[str, float]]]) -> pd.DataFrame:
         first = frame[key].iloc[0] if len(frame) else 0.0
         frame[f"{key}_change"] = frame[key] - first
     return frame
-
-
-def run_scenarios(named: Sequence[tuple[str, Any]], economics: Callable[[Any], Any]) -> pd.DataFrame:
-    """Run each named set of assumptions and compare their plans' headlines.
-
-    Parameters
-    ----------
-    named : sequence of (name, FinanceAssumptions)
-        The scenarios in order; the first is the reference.
-    economics : callable
-        ``economics(assumptions) -> ScenarioResult`` on one case and its physics (e.g.
-        :func:`models.scenario.economics` without the Monte Carlo).
-
-    Returns
-    -------
-    pandas.DataFrame
-        :func:`compare` of the scenarios.
-    """
-    return compare([(name, a, plan_headline(economics(a))) for name, a in named])
 
 
 #: The last result's comparison with its case's scenarios (computed once, whoever asks: files, report,

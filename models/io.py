@@ -1138,11 +1138,10 @@ def read_scenario_tables(raw: "RawCase") -> tuple[list | None, str, list[Problem
         data, problems = read_toml_file(path, path.name)
         if has_errors(problems):
             return None, path.name, problems
-        others = sorted(k for k in data if k != "scenarios")
-        if others:
-            problems = problems + [warning(path.name, None, others[0], None,
-                                           "scenarios.toml holds [[scenarios]] tables only; this key was ignored",
-                                           "the case's own assumptions go in finance.toml")]
+        problems = problems + [warning(path.name, None, key, None,
+                                       "scenarios.toml holds [[scenarios]] tables only; this key was ignored",
+                                       "the case's own assumptions go in finance.toml")
+                               for key in sorted(k for k in data if k != "scenarios")]
         return data.get("scenarios", []), path.name, problems
     if raw.kind == "workbook" and raw.extra.get("scenarios") is not None:
         return list(raw.extra["scenarios"]), f"{raw.path.name}:scenarios", []
