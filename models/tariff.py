@@ -762,6 +762,10 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
                     "not modelled", "price the power factor with a [[reactive]] clause, or bill the demand in kVA")
         if d.excess_price_per_unit_month is not None:
             price(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month)
+            if d.contracted is not None and 0.0 <= d.excess_price_per_unit_month < d.price_per_unit_month:
+                warn(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month,
+                     "the demand above the contract is priced below the contract itself: were the two prices swapped?",
+                     f"the excess price is usually the higher; check it against price_per_{unit}_month")
             if d.contracted is None:
                 err(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month,
                     f"an excess price needs the contracted capacity it is above (contracted_{unit})",
@@ -1457,8 +1461,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         for unit in ("kw", "kva"):
             for key in (f"contracted_{unit}", f"excess_price_per_{unit}_month"):
                 if key in d and basis is not None and unit != basis.lower():
+                    meant = key.replace(unit, basis.lower())
                     r.err(f"{p}.{key}", d[key], f"the charge is on {basis}, so its contract is in {basis} too",
-                          f"write {key.replace(unit, basis.lower())}")
+                          f"remove it: {meant} is given" if meant in d else f"write {meant}")
         if basis is not None:
             contract = r.get(d, f"contracted_{basis.lower()}", p, "number", default=None)
             excess = r.get(d, f"excess_price_per_{basis.lower()}_month", p, "number", default=None)

@@ -729,3 +729,18 @@ def test_a_peak_time_listed_twice_is_warned():
     assert t is not None
     found = [p for p in problems if p.column == "coincident_peak[1].times" and p.severity == "warning"]
     assert found and "listed twice" in found[0].rule
+
+
+def test_an_excess_price_below_the_contract_price_is_warned_and_a_duplicate_unit_is_named():
+    base = {"tariff": {"name": "c", "currency": "EUR"}, "periods": [{"code": "all"}]}
+    t, problems = tariff_from_dict({**base, "demand": [{"name": "d", "price_per_kw_month": 10.0, "contracted_kw": 500.0,
+                                                        "excess_price_per_kw_month": 4.0}]}, source="t.toml")
+    assert t is not None
+    assert any(p.column == "demand[1].excess_price_per_kw_month" and p.severity == "warning" and "swapped" in p.rule
+               for p in problems)
+    t, problems = tariff_from_dict({**base, "demand": [{"name": "d", "price_per_kw_month": 10.0, "contracted_kw": 500.0,
+                                                        "contracted_kva": 520.0}]}, source="t.toml")
+    assert t is None
+    found = [p for p in problems if p.column == "demand[1].contracted_kva"]
+    assert found and found[0].hint == "remove it: contracted_kw is given"
+
