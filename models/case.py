@@ -1554,6 +1554,31 @@ def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int, wh
             "understates the demand peak and its savings")
 
 
+def _check_peak_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
+    """Warn where a site's coincident-peak charge takes shorter windows than its motors' profiles resolve: each
+    peak window then reads the whole interval that holds it, which cannot show the demand within it."""
+    s = sites.frame
+    if not isinstance(profile_info, pd.DataFrame) or profile_info.empty or "profile_id" not in assets:
+        return
+    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
+    for i in range(len(s)):
+        tariff_file = s["tariff_file"].iloc[i]
+        tariff = tariffs.get(tariff_file) if isinstance(tariff_file, str) else None
+        windows = [c.window_min for c in getattr(tariff, "coincident", ())]
+        if not windows:
+            continue
+        window = int(min(windows))
+        own = [p for p in assets.loc[assets["site_id"] == s["site_id"].iloc[i], "profile_id"].dropna()
+               if p in resolution and resolution[p] > window]
+        if own:
+            coarse = "/".join(str(int(r)) for r in sorted({resolution[p] for p in own}))
+            sites.warn(i, "tariff_file", tariff_file,
+                       f"the tariff's coincident-peak charge takes {window}-min windows, but {len(own)} motor(s) of "
+                       f"the site have {coarse}-min profiles: each peak window reads the interval that holds it, "
+                       "which cannot show the demand within it",
+                       f"log the motors that run at the system's peak times at {window}-min resolution")
+
+
 def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
     """Warn where a site's demand charge takes shorter windows than its motors' profiles resolve
     (:func:`coarse_demand_profiles`)."""
@@ -2025,6 +2050,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
                                   "add one row per motor"))
     if "sites" in checkers and "assets" in checkers:
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
+        _check_peak_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
         _check_holidays_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                 raw, problems)
         _check_peak_times_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,

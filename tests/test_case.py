@@ -860,6 +860,24 @@ def test_coincident_peak_times_outside_the_profiles_are_warned(tmp_path):
     assert not [p for p in problems if p.column == "coincident_peak[1].times"]
 
 
+def test_profiles_coarser_than_a_coincident_peak_window_are_warned(tmp_path):
+    # the small case's profile LP1 is hourly (tests/casebuilder.py); a 15-min coincident-peak window cannot see
+    # within an hour, a 60-min one can
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    head = ('[tariff]\nname = "cp (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n[[periods]]\ncode = "all"\n'
+            '[energy]\nprice_per_kwh = { all = 0.1 }\n[[coincident_peak]]\nname = "tx"\nprice_per_kw_month = 5.0\n'
+            'times = [2025-01-02T10:00:00]\n')
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    (folder / "tariffs" / "t.toml").write_text(head + "window_min = 15\n", encoding="utf-8")
+    _, problems = load_case(folder)
+    found = _find(problems, file="sites.csv", column="tariff_file", severity="warning")
+    assert "coincident-peak charge takes 15-min windows, but 1 motor(s) of the site have 60-min profiles" in found.rule
+    (folder / "tariffs" / "t.toml").write_text(head + "window_min = 60\n", encoding="utf-8")
+    _, problems = load_case(folder)
+    assert not [p for p in problems if "coincident-peak charge takes" in p.rule]
+
+
 def test_budget_years_past_the_horizon_are_warned(tmp_path):
     # models.plan.plan_beyond_horizon_text: 3 budget years over a 2-year horizon start projects after the study
     from models.case import load_case
