@@ -104,3 +104,20 @@ def test_the_asset_page_and_the_register_say_it(demo_run_physics):
     register = content.risk_register(case, result, content.select_scope(case, result, assets=[top["asset_id"]], plan=False))
     row = register[register["item"] == "Worth measuring before deciding"].iloc[0]
     assert row["assets"] == top["asset_id"] and row["detail"].startswith(f"{top['asset_id']} up to EUR ")
+
+
+def test_the_decision_record_names_the_value_of_measuring_first(demo_run_physics):
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    table = measure_first(case, result)
+    top, clear = table.iloc[0], table[table["value_of_measuring"] <= 1.0].iloc[0]
+    notes = record_context(case, result, content.select_scope(case, result, assets=[top["asset_id"]], plan=False),
+                           top["asset_id"])["data_notes"]
+    assert any(n.startswith(f"Measuring it first is worth up to EUR {top['value_of_measuring']:,.0f}: the NPV of "
+                            f"{top['label']}") for n in notes)
+    notes = record_context(case, result, content.select_scope(case, result, assets=[clear["asset_id"]], plan=False),
+                           clear["asset_id"])["data_notes"]
+    assert not any(n.startswith("Measuring it first") for n in notes)

@@ -897,9 +897,9 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "Tell the approvers that the demand saving shows in full on the bills only once today's peaks leave "
                 "the ratchet's look-back; confirm the ratchet's terms with the utility.")
     # the assets whose decision stands to gain most from measuring them first (value of information)
-    from models.information import measure_first
+    from models.information import measure_first_of
 
-    worth = measure_first(case, result)
+    worth = measure_first_of(case, result)
     worth = worth[worth["asset_id"].isin(list(assets["asset_id"])) & (worth["value_of_measuring"] > 1.0)].head(5)
     if len(worth):
         cur = case.settings.currency

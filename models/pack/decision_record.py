@@ -15,6 +15,7 @@ from markupsafe import Markup
 
 from models.case import power_label, rating_in_unit
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
+from models.information import measure_first_of
 from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
@@ -248,6 +249,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not flags.empty:  # notes on the asset's data (no option) apart from the cautions of the option chosen
         data_notes += list(flags.loc[flags["option_id"] == "", "flag"])
         cautions += list(flags.loc[flags["option_id"] == rec["option_id"], "flag"])
+    worth = measure_first_of(case, result)
+    worth = worth[worth["asset_id"].astype(str) == str(asset_id)]
+    if len(worth) and float(worth["value_of_measuring"].iloc[0]) > 1.0:
+        w = worth.iloc[0]
+        data_notes.append(f"Measuring it first is worth up to {content.money(float(w['value_of_measuring']), cur)}: "
+                          f"the NPV of {w['label']} ({content.money(float(w['npv']), cur)}) rests on "
+                          f"{w['uncertain_inputs']}. Log kW, power factor and hours for 1-4 weeks where that costs less.")
     if not is_keep:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
