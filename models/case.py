@@ -1495,8 +1495,9 @@ def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dic
 
 
 def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: dict,
-                           profile_info) -> dict[str, tuple[int, list[int], int]]:
-    """Sites whose demand charge takes shorter windows than their motors' profiles resolve.
+                           profile_info, clause: str = "demand") -> dict[str, tuple[int, list[int], int]]:
+    """Sites whose demand charge (or with ``clause="coincident"``, coincident-peak charge) takes shorter
+    windows than their motors' profiles resolve.
 
     Parameters
     ----------
@@ -1529,7 +1530,7 @@ def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: d
         return found
     resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
     for site_id, tariff_file in zip(sites["site_id"], sites["tariff_file"]):
-        window = shortest_demand_window_min(tariffs, tariff_file)
+        window = shortest_demand_window_min(tariffs, tariff_file, clause)
         if window is None:
             continue
         own = [p for p in assets.loc[assets["site_id"] == site_id, "profile_id"].dropna()
@@ -1539,10 +1540,11 @@ def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: d
     return found
 
 
-def shortest_demand_window_min(tariffs: dict, tariff_file) -> int | None:
-    """The shortest demand window of a site's tariff [min], None where it has no demand charge (or none is named)."""
+def shortest_demand_window_min(tariffs: dict, tariff_file, clause: str = "demand") -> int | None:
+    """The shortest demand window of a site's tariff [min], None where it has no demand charge (or none is named);
+    ``clause="coincident"``: of its coincident-peak charges."""
     tariff = tariffs.get(tariff_file) if isinstance(tariff_file, str) else None
-    windows = [d.window_min for d in getattr(tariff, "demand", ())]
+    windows = [d.window_min for d in getattr(tariff, clause, ())]
     return int(min(windows)) if windows else None
 
 
@@ -1558,24 +1560,14 @@ def _check_peak_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dic
     """Warn where a site's coincident-peak charge takes shorter windows than its motors' profiles resolve: each
     peak window then reads the whole interval that holds it, which cannot show the demand within it."""
     s = sites.frame
-    if not isinstance(profile_info, pd.DataFrame) or profile_info.empty or "profile_id" not in assets:
-        return
-    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
+    found = coarse_demand_profiles(s, assets, tariffs, profile_info, clause="coincident")
     for i in range(len(s)):
-        tariff_file = s["tariff_file"].iloc[i]
-        tariff = tariffs.get(tariff_file) if isinstance(tariff_file, str) else None
-        windows = [c.window_min for c in getattr(tariff, "coincident", ())]
-        if not windows:
-            continue
-        window = int(min(windows))
-        own = [p for p in assets.loc[assets["site_id"] == s["site_id"].iloc[i], "profile_id"].dropna()
-               if p in resolution and resolution[p] > window]
-        if own:
-            coarse = "/".join(str(int(r)) for r in sorted({resolution[p] for p in own}))
-            sites.warn(i, "tariff_file", tariff_file,
-                       f"the tariff's coincident-peak charge takes {window}-min windows, but {len(own)} motor(s) of "
-                       f"the site have {coarse}-min profiles: each peak window reads the interval that holds it, "
-                       "which cannot show the demand within it",
+        if str(s["site_id"].iloc[i]) in found:
+            window, coarse, n = found[str(s["site_id"].iloc[i])]
+            sites.warn(i, "tariff_file", s["tariff_file"].iloc[i],
+                       f"the tariff's coincident-peak charge takes {window}-min windows, but {n} motor(s) of the site "
+                       f"have {'/'.join(map(str, coarse))}-min profiles: each peak window reads the interval that "
+                       "holds it, which cannot show the demand within it",
                        f"log the motors that run at the system's peak times at {window}-min resolution")
 
 
