@@ -21,6 +21,7 @@ from typing import Any
 
 import pandas as pd
 
+from models.io import BLANK_HEADER_KEY, SHEET_ROW_KEY
 from models.problems import Problem, error
 
 #: The case's own assumptions, as the first row of every comparison is named.
@@ -238,7 +239,12 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
     base_problems = {(p.column, p.rule) for p in base_found}
     for i, table in enumerate(tables, start=1):
         at = f"{prefix}[{i}]"
-        table = {k: v for k, v in table.items() if k != "_sheet_row"}  # (a workbook row: named below)
+        for letter, value in table.get(BLANK_HEADER_KEY, []):
+            problems.append(error(source, None, f"{at} (column {letter})", value,
+                                  "a value under a blank header cell: no finance key says what it changes",
+                                  "write the finance key it changes in the header row, or clear the cell"))
+        # (a workbook row's number: named below; its blank-header cells: just reported)
+        table = {k: v for k, v in table.items() if k not in (SHEET_ROW_KEY, BLANK_HEADER_KEY)}
         name = table.get("name")
         if not isinstance(name, str) or not name.strip():
             problems.append(error(source, None, f"{at}.name", name, "a scenario needs a name",
@@ -286,9 +292,9 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
         if assumptions is None:
             continue
         out.append((name, assumptions))
-    if any(table.get("_sheet_row") is not None for table in tables):
-        # a workbook sheet's scenarios: each problem names its scenario's row (models.io.SHEET_ROW_KEY)
-        rows = {f"{prefix}[{i}]": t.get("_sheet_row") for i, t in enumerate(tables, start=1)}
+    if any(table.get(SHEET_ROW_KEY) is not None for table in tables):
+        # a workbook sheet's scenarios: each problem names its scenario's row
+        rows = {f"{prefix}[{i}]": t.get(SHEET_ROW_KEY) for i, t in enumerate(tables, start=1)}
         problems = [replace(p, row=rows.get(_entry(p.column, prefix), p.row)) if p.row is None else p for p in problems]
     return out, problems
 

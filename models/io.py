@@ -966,13 +966,20 @@ def _percent_format(number_format: object) -> bool:
 
 
 #: Key under which a scenario read from a workbook sheet carries its row number (problems name the row).
-SHEET_ROW_KEY = "_sheet_row"
+#: Not a string, so no key of a TOML table or a sheet's header can be mistaken for it.
+SHEET_ROW_KEY = ("sheet", "row")
+#: Key under which a sheet's scenario carries the cells it filled under a blank header cell, as
+#: (column letter, value) pairs: an error, as the value would change nothing.
+BLANK_HEADER_KEY = ("sheet", "blank header")
 
 
 def _scenarios_sheet(sheet) -> list[dict]:
     """Read a ``scenarios`` sheet: a header row (``name`` and the finance keys), then one scenario per row;
     a blank cell leaves that key as the case has it. Rows starting with # and empty rows are passed over.
-    Each scenario carries its sheet row under :data:`SHEET_ROW_KEY`."""
+    Each scenario carries its sheet row under :data:`SHEET_ROW_KEY`, and any value written under a blank
+    header cell under :data:`BLANK_HEADER_KEY`."""
+    from openpyxl.utils import get_column_letter
+
     header: list[str] | None = None
     out: list[dict] = []
     for number, row in enumerate(sheet.iter_rows(values_only=True), start=1):
@@ -981,15 +988,20 @@ def _scenarios_sheet(sheet) -> list[dict]:
         if header is None:
             header = [normalise_header(v).replace(" ", "_") if v is not None else "" for v in row]
             continue
-        entry = {SHEET_ROW_KEY: number}
-        for key, value in zip(header, row):
-            if key and value is not None and not (isinstance(value, str) and not value.strip()):
-                if isinstance(value, str) and value.strip().startswith("["):
-                    try:
-                        value = tomllib.loads(f"v = {value}")["v"]
-                    except tomllib.TOMLDecodeError:
-                        pass
-                entry[key] = value
+        entry: dict = {SHEET_ROW_KEY: number}
+        for column, value in enumerate(row, start=1):
+            key = header[column - 1] if column <= len(header) else ""
+            if value is None or (isinstance(value, str) and not value.strip()):
+                continue
+            if not key:
+                entry.setdefault(BLANK_HEADER_KEY, []).append((get_column_letter(column), value))
+                continue
+            if isinstance(value, str) and value.strip().startswith("["):
+                try:
+                    value = tomllib.loads(f"v = {value}")["v"]
+                except tomllib.TOMLDecodeError:
+                    pass
+            entry[key] = value
         out.append(entry)
     return out
 

@@ -146,6 +146,34 @@ def test_a_workbook_scenario_with_a_bad_value_names_its_sheet_and_row_entry(tmp_
     assert found and found[0].file == "case.xlsx:scenarios" and found[0].row == 2  # the header is row 1
 
 
+def test_a_value_under_a_blank_header_cell_is_an_error_naming_its_row_and_column(tmp_path):
+    # a value the header does not name would change nothing: it is reported, not dropped
+    from openpyxl import load_workbook
+
+    book = cb.write_workbook(tmp_path / "case.xlsx")
+    wb = load_workbook(book)
+    sheet = wb.create_sheet("scenarios")
+    sheet.append(["name", "discount_rate_frac", None])
+    sheet.append(["Cheaper money", 0.06, 0.05])
+    wb.save(book)
+    case, problems = load_case(book)
+    assert case is None
+    found = [p for p in problems if p.column == "scenarios[1] (column C)"]
+    assert found and found[0].severity == "error" and found[0].row == 2 and found[0].value == 0.05
+    assert "blank header" in found[0].rule
+
+
+def test_a_toml_scenario_key_is_never_taken_for_the_sheet_s_row_number(tmp_path):
+    # the sheet's row number is kept under a key no TOML table can hold: a key of that spelling is unknown
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMO, folder)
+    (folder / "scenarios.toml").write_text('[[scenarios]]\nname = "A"\ndiscount_rate_frac = 0.06\n_sheet_row = 4\n',
+                                           encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    assert [p.column for p in problems if p.severity == "error"] == ["scenarios[1]._sheet_row"]
+
+
 def test_each_scenario_row_is_the_economics_of_its_own_assumptions(demo_run_physics):
     # the comparison reproduces, for each scenario, the plan the economics give under its assumptions alone
     case, phys = demo_run_physics
