@@ -1106,9 +1106,18 @@ def failed_text(result, asset_id: str, currency: str) -> str:
             f"in service now ({what}); keeping it as it is would leave it stopped.")
 
 
-def ratchet_text(result, asset_id: str, currency: str) -> str:
+def in_service(view_: View, result) -> str:
+    """The month the case's changes are taken to come into service, in words
+    (:func:`models.pack.content.in_service_words`)."""
+    from models.pack.content import in_service_words
+
+    return in_service_words(view_.case, result)
+
+
+def ratchet_text(result, asset_id: str, currency: str, in_service: str = "the profiles' first month") -> str:
     """What the Asset page says where a demand ratchet holds back an option's first years ("" where none
-    does): the largest shortfall among the asset's options (docs/finance.md, section 4)."""
+    does): the largest shortfall among the asset's options, the change in service from the start of the month
+    ``in_service`` names (:func:`models.pack.content.in_service_words`; docs/finance.md, section 4)."""
     res = result.results
     rows = res[res["asset_id"].astype(str) == str(asset_id)]
     if "ratchet_shortfall" not in rows or not len(rows):
@@ -1120,7 +1129,8 @@ def ratchet_text(result, asset_id: str, currency: str) -> str:
     return (f"The site's demand ratchet still bills today's peaks for a while after a change (the first year in "
             f"service, longer for a look-back over 12 months): {rows['label'].iloc[i]} saves "
             f"{money_text(float(short[i]), currency)} less in all than the yearly saving shown (the NPVs and paybacks "
-            "count it within the horizon).")
+            f"count it within the horizon), in service from the start of {in_service}. The month moves it: a change "
+            "made just before the month of today's peak holds back least (in_service_month in case.toml).")
 
 
 def measure_text(view_: View, result, asset_id: str) -> str:

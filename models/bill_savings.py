@@ -49,6 +49,8 @@ class SiteSetup:
     tariff: object
     site: Site
     base_p_kw_profile: np.ndarray | None
+    #: Calendar month (1-12) at whose start a change comes into service (None: the series' first month).
+    in_service_month: int | None = None
 
 
 @dataclass(frozen=True)
@@ -123,7 +125,8 @@ def site_setups(case, index: pd.DatetimeIndex) -> dict[str, SiteSetup]:
             profile = conform(case.profiles[row.base_profile_id], index)[0]
         site = Site(base_p_kw=float(row.base_p_kw) if profile is None else 0.0,
                     base_power_factor=float(row.base_power_factor), fixed_banks=fixed, stepped_banks=stepped)
-        setups[row.site_id] = SiteSetup(row.site_id, case.tariffs[row.tariff_file], site, profile)
+        setups[row.site_id] = SiteSetup(row.site_id, case.tariffs[row.tariff_file], site, profile,
+                                        getattr(case.settings, "in_service_month", None))
     return setups
 
 
@@ -349,6 +352,10 @@ class _SiteBiller:
         sizes = np.asarray([b.rated_q_kvar for b in site.fixed_banks], dtype=float)
         self.fixed_q = 0.0 - np.tensordot(sizes, np.ones((sizes.size, len(index))), axes=(0, 0)) if sizes.size else None
         self.stepped = site.stepped_banks
+        # the billing month a change comes into service in (read only where a ratchet reads the months before
+        # it, which needs a typical year of 12 billing months)
+        self.start = (billing.service_start(self.calendar, setup.in_service_month)
+                      if self.calendar.n_months == 12 else 0)
 
     def totals(self, p_kw: np.ndarray, q_kvar: np.ndarray, dp_kw: np.ndarray | None = None,
                dq_kvar: np.ndarray | None = None) -> tuple[list[str], np.ndarray]:
@@ -437,7 +444,7 @@ class _SiteBiller:
             names, amounts, _ = billing._block_totals(self.tariff, self.calendar, p, q, None)
             return names, np.ascontiguousarray(np.broadcast_to(amounts, (n, len(names))))
         names, amounts, _, years = billing._block_totals(self.tariff, self.calendar, p, q, None, before,
-                                                         with_transition=True)
+                                                         with_transition=True, start=self.start)
         return (names, np.ascontiguousarray(np.broadcast_to(amounts, (n, len(names)))),
                 np.ascontiguousarray(np.broadcast_to(years, (len(years), n, len(names)))))
 

@@ -593,27 +593,42 @@ class _Item:
 
 
 def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before: np.ndarray | None = None,
-                   year: int = 1) -> np.ndarray:
+                   year: int = 1, start: int = 0) -> np.ndarray:
     """Highest adjusted demand of the previous ``months`` billing months, (S, M).
 
     With ``repeat_year`` the months before the series are the same typical year's (a year repeated); with
     ``before`` (M,) they are those of another year instead: the year before a change, whose demands the
     ratchet still reads in year ``year`` (1, 2, ...) after it, in the months its look-back reaches back
-    past the change. Without either, months before the series count as none.
+    past the change. The change comes into service at the start of billing month ``start`` (0 = the
+    series' first), so year ``year`` runs from that month to the one before it, twelve months on. Without
+    ``before`` or ``repeat_year``, months before the series count as none.
     """
     n_m = adjusted.shape[1]
     floor = np.zeros_like(adjusted)
     prior = adjusted if before is None else np.broadcast_to(np.asarray(before, dtype=float), adjusted.shape)
     month = np.arange(n_m)
+    since = (month - start) % n_m if before is not None else month  # months since the change within its year
     for lag in range(1, months + 1):
-        # month m of year k reads the month (k - 1) x 12 + m - lag counted from the change (the series' start)
-        pos = (year - 1) * n_m + month - lag
+        # month m of year k reads the month (k - 1) x 12 + (m - start) - lag counted from the change
+        pos = (year - 1) * n_m + since - lag
         inside = pos >= 0
+        at = (pos + (start if before is not None else 0)) % n_m  # that month's billing month in the series
         if inside.any():
-            floor[:, inside] = np.maximum(floor[:, inside], adjusted[:, pos[inside] % n_m])
+            floor[:, inside] = np.maximum(floor[:, inside], adjusted[:, at[inside]])
         if repeat_year and not inside.all():
-            floor[:, ~inside] = np.maximum(floor[:, ~inside], prior[:, pos[~inside] % n_m])
+            floor[:, ~inside] = np.maximum(floor[:, ~inside], prior[:, at[~inside]])
     return floor
+
+
+def service_start(cal: "_Calendar", in_service_month: int | None) -> int:
+    """The billing month (0 = the series' first) in which a change coming into service in calendar month
+    ``in_service_month`` (1-12; None: the series' first month) begins."""
+    if in_service_month is None:
+        return 0
+    for m, label in enumerate(cal.month_labels):
+        if int(label[5:7]) == int(in_service_month):
+            return m
+    raise ValueError(f"no billing month of the series is month {in_service_month}")
 
 
 def transition_years(months: int, n_months: int = 12) -> int:
@@ -622,7 +637,7 @@ def transition_years(months: int, n_months: int = 12) -> int:
 
 
 def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s,
-                  before: Mapping[str, np.ndarray] | None = None) -> list[_Item]:
+                  before: Mapping[str, np.ndarray] | None = None, start: int = 0) -> list[_Item]:
     win = cal.windows[d.window_min]
     n_m = cal.n_months
     a = d.power_factor_adjustment
@@ -667,7 +682,7 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
         if before is not None and repeat_year and d.name in before:
             years = []
             for year in range(1, transition_years(d.ratchet_months, n_m) + 1):
-                floor = _ratchet_floor(adjusted, d.ratchet_months, True, before[d.name], year)
+                floor = _ratchet_floor(adjusted, d.ratchet_months, True, before[d.name], year, start)
                 years.append(np.where(applies, np.maximum(adjusted, d.ratchet_frac * floor), 0.0) - adjusted)
             transition = tuple(years)
 
@@ -682,12 +697,13 @@ def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month
 
 
 def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None,
-                before: Mapping[str, np.ndarray] | None = None) -> list[_Item]:
+                before: Mapping[str, np.ndarray] | None = None, start: int = 0) -> list[_Item]:
     """Price (S, T) meter arrays; return the line items with (S, M) quantities.
 
     ``before`` (demand charge name -> adjusted demand of each billing month, (M,)) is the year before a
-    change: the ratchet items then carry the quantities of the years after it whose look-back still reaches
-    it (:attr:`_Item.transition`), and the taxes on them too.
+    change that comes into service at the start of billing month ``start``: the ratchet items then carry
+    the quantities of the years after it whose look-back still reaches it (:attr:`_Item.transition`, each
+    year's months in the series' order), and the taxes on them too.
 
     ``p`` or ``q`` may have a single row that stands for every scenario (e.g. scenarios that change
     only the kVAr). The per-interval work is two kinds of compiled pass: the cell sums of every
@@ -751,7 +767,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
         kwh_month = cells[kwh_at].sum(axis=2)
         lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
         for d in tariff.demand:
-            items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before))
+            items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before, start))
 
     for c in getattr(tariff, "coincident", ()):
         items.append(_coincident_items(cal, c, p, n_s))
@@ -828,6 +844,7 @@ def bill(
     before_p_kw=None,
     before_q_kvar=None,
     year_after: int = 1,
+    in_service_month: int | None = None,
 ) -> pd.DataFrame:
     """Return the bill of one site meter series, by billing month and line item.
 
@@ -855,6 +872,10 @@ def bill(
     year_after : int
         With the year before a change: which year after it to bill (1 = the first; a look-back of more than
         12 months reads the year before in the second and third years too). Default 1.
+    in_service_month : int, optional
+        With the year before a change: the calendar month (1-12) at whose start it comes into service; each
+        year after it runs from that month for twelve months (shown in the series' month order). Default:
+        the series' first month.
 
     Returns
     -------
@@ -911,7 +932,7 @@ def bill(
         bq = _as_2d(before_q_kvar, cal.n_steps, "before_q_kvar")
         if repeats_year(cal.n_months, repeat_year):
             before = ratchet_history(tariff, cal, bp, bq)
-    items = _bill_items(tariff, cal, p, q, repeat_year, before)
+    items = _bill_items(tariff, cal, p, q, repeat_year, before, service_start(cal, in_service_month))
     rows = []
     for m, label in enumerate(cal.month_labels):
         for it in items:
@@ -988,16 +1009,17 @@ def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_yea
 
 
 def _block_totals(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, repeat_year: bool | None,
-                  before: Mapping[str, np.ndarray] | None = None, with_transition: bool = False):
+                  before: Mapping[str, np.ndarray] | None = None, with_transition: bool = False, start: int = 0):
     """Line-item names, amounts summed over months (S, I) [currency] and flagged items (S, I) of one block.
 
     ``p`` and ``q`` are (S, T) or (1, T) standing for every row (at least one of them has S rows, or both
     one row and S = 1). With ``with_transition`` a fourth value follows: the amounts of each year after a change
     from the meter of ``before`` (see :func:`_bill_items`) while a ratchet still reads it, (K, S, I)
-    [currency], K >= 1 (the steady amounts where no item differs).
+    [currency], K >= 1 (the steady amounts where no item differs), the change coming into service at the
+    start of billing month ``start`` (:func:`service_start`).
     """
     n = max(p.shape[0], q.shape[0])
-    items = _bill_items(tariff, cal, p, q, repeat_year, before)
+    items = _bill_items(tariff, cal, p, q, repeat_year, before, start)
     names = [it.name for it in items]
     if not items:
         empty = np.zeros((n, 0))

@@ -95,6 +95,9 @@ class CaseSettings:
     purchase_date: str = ""
     #: False when the case gave no purchase date and the day of the run was taken.
     purchase_date_declared: bool = True
+    #: Calendar month (1-12) at whose start the changes come into service: where a demand ratchet still
+    #: reads the months before a change, its first years depend on it (None: the profiles' first month).
+    in_service_month: int | None = None
 
     @property
     def mark_invented(self) -> bool:
@@ -592,7 +595,8 @@ def _known_zones() -> frozenset[str]:
 
 
 #: The settings a case declares (docs/case-format.md, "case.toml").
-SETTING_KEYS = ("name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date")
+SETTING_KEYS = ("name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date",
+                "in_service_month")
 
 
 def _settings_table(raw: io.RawCase) -> tuple[dict, list[str]]:
@@ -694,7 +698,19 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
                                   "purchase_date must be a date written YYYY-MM-DD",
                                   "the day the new motors are bought, e.g. 2027-09-01; leave it out for the day of the run"))
             purchase = ""
+    in_service = data.get("in_service_month")
+    if in_service is not None:
+        number = in_service if isinstance(in_service, int) and not isinstance(in_service, bool) else None
+        if isinstance(in_service, float) and in_service.is_integer():
+            number = int(in_service)  # (a workbook cell holds numbers as floats)
+        if number is None or not 1 <= number <= 12:
+            problems.append(error(source, None, "in_service_month", in_service,
+                                  "in_service_month must be a whole month number from 1 (January) to 12 (December)",
+                                  "the month the changes come into service, e.g. 4 for April; leave it out for the "
+                                  "profiles' first month"))
+        in_service = number if number is not None and 1 <= number <= 12 else None
     return CaseSettings(
+        in_service_month=in_service,
         region=region,
         region_declared="region" in data,
         purchase_date=purchase,

@@ -373,6 +373,9 @@ def run_settings(result, settings) -> pd.DataFrame:
             ("invented", settings.invented, "true when the case is an invented scenario"),
             ("region", settings.region, "whose minimum-efficiency rules decide which new motors may be bought"),
             ("purchase_date", settings.purchase_date, "the day those rules are read on (the day of the run when the case gives none)"),
+            ("in_service_month", "" if getattr(settings, "in_service_month", None) is None else settings.in_service_month,
+             "calendar month at whose start the changes come into service, for a demand ratchet's first years "
+             "(blank: the profiles' first month)"),
             ("currency", settings.currency, "currency of every money column"),
             ("power_unit", settings.power_unit, "power unit the case displays (result files are in kW; results.csv adds rated_p_hp for a case in hp)"),
             ("time_zone", settings.time_zone, "time zone of the load profiles and tariff periods")]

@@ -71,3 +71,29 @@ def line_item_text(line_item: str) -> str:
         return str(line_item)
     words = LINE_ITEM_CATEGORIES[category]
     return f"{words}: {name}" if name else words
+
+
+MONTH_NAMES = ("January", "February", "March", "April", "May", "June", "July", "August", "September", "October",
+               "November", "December")
+
+
+def in_service_text(in_service_month: int | None, first_month: int | None = None) -> str:
+    """Return the month a case's changes are taken to come into service, for a sentence.
+
+    Parameters
+    ----------
+    in_service_month : int or None
+        The case's ``in_service_month`` (1-12), or None when it gives none.
+    first_month : int, optional
+        The month (1-12) the load profiles start in: the month taken when the case gives none.
+
+    Examples
+    --------
+    >>> in_service_text(8), in_service_text(None, 1), in_service_text(None)
+    ('August', "January (the profiles' first month)", "the profiles' first month")
+    """
+    if in_service_month is not None:
+        return MONTH_NAMES[int(in_service_month) - 1]
+    if first_month is None:
+        return "the profiles' first month"
+    return f"{MONTH_NAMES[int(first_month) - 1]} (the profiles' first month)"

@@ -292,6 +292,12 @@ def test_the_asset_page_and_the_record_say_the_first_year_saves_less(july_pump_c
     assert short > 0.5
     assert ("While the site's demand ratchet still bills today's peaks (the first year in service, longer for a "
             f"look-back over 12 months) it saves {content.money(short, 'EUR')} less in all") in reasons
+    # the month it is taken to come into service: the case gives none, so the profiles' first (January 2025)
+    assert content.in_service_words(case, result) == "January (the profiles' first month)"
+    assert "in service from the start of January (the profiles' first month)" in reasons
+    moved = replace(case, settings=replace(case.settings, in_service_month=8))
+    assert content.in_service_words(moved, result) == "August"
+    assert "in service from the start of August. The month moves it" in services.ratchet_text(result, "P1", "EUR", "August")
 
 
 def test_without_a_ratchet_nothing_is_said(demo_run_physics):
@@ -461,3 +467,97 @@ def test_the_history_meter_is_the_site_s_with_its_banks(year):
     assert out["saving"][0, 1].sum() == pytest.approx(today_bill - steady, rel=1e-12)
     assert out["ratchet_shortfall"][0, 1, 0].sum() == pytest.approx(first - steady, rel=1e-12)
     assert first - steady > 100.0  # the bank does not hide the July peak's ratchet
+
+
+class TestMonthOfTheChange:
+    """The change comes into service at the start of a calendar month; the first years run twelve months from
+    it (billing-demand.md case D8, "The month of the change"). Today's peak is in July (200 kW against 100 kW),
+    the option flat at 100 kW; every month billed 160 kW instead of 100 costs 600."""
+
+    def test_a_change_in_august_bills_last_july_in_eleven_months(self, year):
+        # hand calculation: August to June read the July just before the change (at most 11 months back); only
+        # July reads August to June, all with the option: 11 x 160 + 100 = 1 860 kW-months, 18 600 (series order
+        # January to December: 160 x 6, 100, 160 x 5)
+        t = _tariff(RATCHET)
+        flat = np.full(len(year), 100.0)
+        first = bill(t, year, flat, 0 * flat, repeat_year=None, before_p_kw=_july_peak(year), before_q_kvar=0 * flat,
+                     in_service_month=8)
+        assert_allclose(first.groupby("month")["quantity"].sum().to_numpy(), [160.0] * 6 + [100.0] + [160.0] * 5, **EXACT)
+        assert_allclose(first["amount"].sum(), 18_600.0, **EXACT)
+
+    def test_a_change_in_july_dodges_the_peak_it_replaces(self, year):
+        # hand calculation: the July before the change is 12 months back, beyond an 11-month look-back: 12 000,
+        # the steady bill
+        t = _tariff(RATCHET)
+        flat = np.full(len(year), 100.0)
+        first = bill(t, year, flat, 0 * flat, repeat_year=None, before_p_kw=_july_peak(year), before_q_kvar=0 * flat,
+                     in_service_month=7)
+        assert_allclose(first["amount"].sum(), 12_000.0, **EXACT)
+
+    @pytest.mark.parametrize("month, look_back, expected", [
+        (1, 11, [3_600.0, 0.0, 0.0]), (7, 11, [0.0, 0.0, 0.0]), (8, 11, [6_600.0, 0.0, 0.0]),
+        (12, 11, [4_200.0, 0.0, 0.0]), (1, 24, [7_200.0, 4_200.0, 0.0]), (7, 24, [7_200.0, 600.0, 0.0]),
+        (8, 24, [7_200.0, 7_200.0, 0.0]), (12, 24, [7_200.0, 4_800.0, 0.0])])
+    def test_each_year_s_shortfall_by_the_month_of_the_change(self, year, month, look_back, expected):
+        # hand calculations (billing-demand.md case D8, "The month of the change"): the July before the change is
+        # d = 6, 12, 1 and 5 months before a change in January, July, August and December; month i (0 = the first
+        # in service) of year k reads it when (k - 1) x 12 + i + d <= look-back: min(12, max(0, look-back - d
+        # - 12 (k - 1) + 1)) months of year k billed 160 kW, 600 each
+        t = _tariff(RATCHET.replace("ratchet_months = 11", f"ratchet_months = {look_back}"))
+        p, q, applies, tech = TestSiteSavings._arrays(year, np.full(len(year), 100.0))
+        out = site_savings(SiteSetup("S", t, Site(), None, in_service_month=month), year, 1.0, p, q, applies, tech, 35.0)
+        assert_allclose(out["ratchet_shortfall"][0, 1].sum(axis=-1), expected, rtol=1e-12, atol=1e-9)
+        # the steady saving does not depend on the month (case D7: 7 600)
+        assert_allclose(out["saving"][0, 1].sum(), 7_600.0, rtol=1e-12)
+
+    def test_a_whole_run_reads_the_month_from_the_case(self, july_pump_case):
+        # the pump of the whole-run case, its option's July saving dP: in service from July the first year
+        # dodges today's July (no shortfall); from August 11 of its 12 months still read it: 11 x 0.8 x dP x c,
+        # against 6 x 0.8 x dP x c from January (hand reasoning as in case D8)
+        case, result = july_pump_case
+        january = result.results.set_index("option_id")["ratchet_shortfall"]
+        for month, months_read in ((7, 0), (8, 11)):
+            moved = replace(case, settings=replace(case.settings, in_service_month=month))
+            shortfall = scenario.run(moved, moved.finance, with_risk=False).results.set_index("option_id")["ratchet_shortfall"]
+            for option_id in january.index[january > 0.5]:
+                assert shortfall[option_id] == pytest.approx(january[option_id] * months_read / 6, rel=1e-9, abs=1e-6)
+
+
+@pytest.mark.parametrize("written, expected", [("in_service_month = 8", 8), ("", None)])
+def test_the_case_names_the_month_its_changes_come_into_service(tmp_path, written, expected):
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case", case_toml=f'[case]\nname = "m"\ntime_zone = "UTC"\n{written}\n')
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems]
+    assert case.settings.in_service_month == expected
+
+
+@pytest.mark.parametrize("written", ["13", "0", "7.5", '"August"', "true"])
+def test_a_month_that_is_not_one_to_twelve_is_an_error_naming_the_key(tmp_path, written):
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case", case_toml=f'[case]\nname = "m"\ntime_zone = "UTC"\nin_service_month = {written}\n')
+    case, problems = load_case(folder)
+    assert case is None
+    found = [p for p in problems if p.column == "in_service_month"]
+    assert found and found[0].severity == "error" and found[0].file == "case.toml" and "1 (January) to 12" in found[0].rule
+
+
+def test_the_pack_says_when_the_changes_come_into_service_where_a_ratchet_reads_it(july_pump_case):
+    from io import BytesIO
+
+    from openpyxl import load_workbook
+
+    from models.pack import content
+    from models.pack.workbook import build_workbook
+
+    case, result = july_pump_case
+    moved = replace(case, settings=replace(case.settings, in_service_month=4))
+    rows = {item: (value, note) for item, value, note in content.basis_rows(moved, result)}
+    assert rows["Changes in service from"][0] == "the start of April"
+    scope = content.select_scope(moved, result, assets=["P1"], plan=False)
+    cells = [[c.value for c in r] for r in load_workbook(BytesIO(build_workbook(moved, result, scope)))["Assumptions"].iter_rows()]
+    assert any(r[0] == "changes in service from" and str(r[1]).startswith("the start of April (") for r in cells)

@@ -180,7 +180,7 @@ def update(asset_id, session, edits, requested=None):
     failed = services.failed_text(result, asset_id, view.currency)
     if failed:
         summary.append(html.Div(failed, className="small caution", id="asset-failed"))
-    ratchet = services.ratchet_text(result, asset_id, view.currency)
+    ratchet = services.ratchet_text(result, asset_id, view.currency, services.in_service(view, result))
     if ratchet:
         summary.append(html.Div(ratchet, className="small", id="asset-ratchet"))
     measure = services.measure_text(view, result, asset_id)

@@ -22,7 +22,7 @@ from models.cashflows import COMPONENTS
 from models.io import column_title
 from models.plan import LOW_DATA_QUALITY_PCT
 from models.risk import distribution_summary
-from models.wording import counted, money_text
+from models.wording import counted, in_service_text, money_text
 
 #: The cautions every file of the pack shows, in plain words.
 #: What to do about a defaulted input, where reading the nameplate is not the answer (risk register).
@@ -545,6 +545,15 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 # Assumptions, data quality and the risk register
 # ---------------------------------------------------------------------------------------------------
+def in_service_words(case, result) -> str:
+    """The month the case's changes are taken to come into service, in words (its ``in_service_month``, else the
+    load profiles' first month): where a demand ratchet still reads the months before a change, the month
+    moves the first years' savings (docs/finance.md, section 4)."""
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    first = int(op.index[0].month) if op is not None and len(op.index) else None
+    return in_service_text(getattr(case.settings, "in_service_month", None), first)
+
+
 def basis_rows(case, result) -> list[tuple[str, str, str]]:
     """What the pack's figures rest on besides the finance assumptions: (item, value, note) rows for the
     region and purchase date the efficiency rules are read on, the analysis year of the load data and bills,
@@ -556,6 +565,10 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
             ("Purchase date (rules read on)", str(s.purchase_date),
              "as the case gives it" if getattr(s, "purchase_date_declared", True) else
              "the day of the run (the case gives none): a run on another day can read other rules")]
+    if any(d.ratchet_frac is not None for t in (getattr(case, "tariffs", {}) or {}).values() for d in t.demand):
+        rows.append(("Changes in service from", f"the start of {in_service_words(case, result)}",
+                     "a demand ratchet still reads the months before a change: the first years' savings depend on "
+                     "the month (case setting in_service_month)"))
     op = getattr(getattr(result, "physics", None), "operation", None)
     if op is not None and len(op.index):
         year = int(op.index[len(op.index) // 2].year)
@@ -893,9 +906,12 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 f"while the site's ratchet still bills today's peaks (the first year in service, longer for a "
                 f"look-back over 12 months), {counted(len(held), 'recommended project')} {'saves' if len(held) == 1 else 'save'} "
                 f"{money(float(held.sum()), case.settings.currency)} less than the yearly savings shown (each priced "
-                "alone; counted in the NPVs and paybacks within the horizon)", asset_list_text(ids),
+                f"alone, in service from the start of {in_service_words(case, result)}; counted in the NPVs and "
+                "paybacks within the horizon)", asset_list_text(ids),
                 "Tell the approvers that the demand saving shows in full on the bills only once today's peaks leave "
-                "the ratchet's look-back; confirm the ratchet's terms with the utility.")
+                "the ratchet's look-back; the month the change comes into service moves it (in_service_month in "
+                "case.toml: a change made just before the month of today's peak holds back least); confirm the "
+                "ratchet's terms with the utility.")
     # the assets whose decision stands to gain most from measuring them first (value of information)
     from models.information import measure_first_of
 

@@ -172,7 +172,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         if short > 0.5:
             reasons.append(f"While the site's demand ratchet still bills today's peaks (the first year in service, "
                            f"longer for a look-back over 12 months) it saves {content.money(short, cur)} less in all "
-                           "than the yearly saving shows; the NPV counts it where it falls within the horizon.")
+                           "than the yearly saving shows, in service from the start of "
+                           f"{content.in_service_words(case, result)}; the NPV counts it where it falls within the "
+                           "horizon.")
         if abs(plan_npv - own_npv) > 0.5:
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
                            f"{content.money(plan_npv, cur)} for it.")

@@ -288,7 +288,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
                 ("analysis year", int(op.index[len(op.index) // 2].year)), ("interval [h]", float(op.interval_h)),
                 ("assets in the case", len(case.assets)), ("options in the catalogue", len(case.options))]
     settings += [(item[:1].lower() + item[1:], f"{value} ({note})") for item, value, note in content.basis_rows(case, result)
-                 if item.startswith(("Tariff of site", "Today's fleet against the bills"))]
+                 if item.startswith(("Tariff of site", "Today's fleet against the bills", "Changes in service from"))]
     for k, (label, value) in enumerate(settings):
         put_text(ws, row + 1 + k, 1, label)
         put(ws, row + 1 + k, 2, value)
