@@ -1271,6 +1271,9 @@ power_unit = "kW"
 time_zone = "Europe/Berlin"
 # Whose minimum-efficiency rules apply to new motors: "EU", "US", "CN" or "OTHER".
 region = "EU"
+# Month (1-12) at whose start the changes come into service; under a demand ratchet the first years'
+# savings depend on it. Left out: the load profiles' first month.
+# in_service_month = 4
 """
 
 #: The example tariff a new case folder starts with (an invented one from data/tariffs, to replace).
