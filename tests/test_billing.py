@@ -266,9 +266,10 @@ class TestDemand:
         assert len(p[pd.Timestamp("2025-07-15 17:00", tz="UTC"):pd.Timestamp("2025-07-15 17:59", tz="UTC")]) == steps_per_h
 
     def test_a_peak_window_takes_the_mean_of_its_intervals_and_the_hour_that_holds_it(self):
-        # hand calculation (billing-demand.md, case D10, more windows): 15-min data 400, 600, 500, 500 kW in the
-        # hour from 15 July 17:00 -> its mean 500 kW; on hourly data, a 15-min window at 17:15 lies inside the
-        # 17:00 hour (its 400 kW); a window in which the site exports (-100 kW) counts 0, so (500 + 0) / 2 = 250
+        # hand calculation, see docs/derivations/billing-demand.md, case D10, "More windows": 15-min data 400, 600,
+        # 500, 500 kW in the hour from 15 July 17:00 -> (400 + 600 + 500 + 500) / 4 = 500 kW; a window in which the
+        # site exports (-100 kW) counts 0, so (500 + 0) / 2 = 250; on hourly data, a 15-min window at 17:15 takes
+        # the 17:00 hour that holds it (its 400 kW)
         text = FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\n'
         quarter = pd.date_range("2025-07-01", "2025-08-01", freq="15min", tz="UTC", inclusive="left")
         p = pd.Series(100.0, index=quarter)
@@ -284,22 +285,28 @@ class TestDemand:
         assert_allclose(quantity(bill(off_grid, hourly, h, np.zeros(len(hourly))), "coincident:c"), 400.0, **EXACT)
 
     def test_a_date_is_counted_once_in_a_series_that_crosses_a_year_end(self):
-        # December 2024 to December 2025 holds 10 December twice: the first (1 000 kW) counts, once
+        # hand calculation, see docs/derivations/billing-demand.md, case D10, "A series across a year end":
+        # December 2024 to December 2025 holds 10 December 12:00 twice; the first (1 000 kW) counts, once, and is
+        # billed in each of the 13 months (counted twice it would be (1 000 + 100) / 2 = 550)
         text = FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\ntimes = [2025-12-10T12:00:00]\n'
         idx = pd.date_range("2024-12-01", "2025-12-31", freq="h", tz="UTC", inclusive="left")
         p = np.full(len(idx), 100.0)
         p[idx.get_loc(pd.Timestamp("2024-12-10 12:00", tz="UTC"))] = 1000.0
-        assert_allclose(bill(load(text), idx, p, np.zeros(len(idx)))["quantity"].iloc[0], 1000.0, **EXACT)
+        b = bill(load(text), idx, p, np.zeros(len(idx)))
+        assert list(b["month"]) == ["2024-12"] + [f"2025-{m:02d}" for m in range(1, 13)]
+        assert_allclose(b["quantity"].to_numpy(), np.full(13, 1000.0), **EXACT)
 
     @pytest.mark.parametrize("clause, item", [
+        # hand calculation, see docs/derivations/billing-demand.md, case D9, "In a season, with a tax": May bills no
+        # contract (out of season); June 500 x 10 + (700 - 500) x 20 = 9 000, and a 10 % tax on it 900
         ('[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\ncontracted_kw = 500\n'
          'excess_price_per_kw_month = 20.0\nseasons = ["s"]\n', "excess:d"),
+        # hand calculation, see docs/derivations/billing-demand.md, case D10, "With a tax": the clause has no
+        # seasons; 700 kW at the June time x 10 in both months = 14 000, and a 10 % tax on it 1 400
         ('[[coincident_peak]]\nname = "d"\nprice_per_kw_month = 10.0\ntimes = [2025-06-11T14:00:00]\n', "coincident:d"),
     ])
-    def test_demand_charge_taxes_and_seasons_hold_the_new_items(self, clause, item):
-        # hand calculation (billing-demand.md, case D9 in a summer season of June): May bills no contract (out of
-        # season); June 500 x 10 + (700 - 500) x 20 = 9 000, and a 10 % tax on demand charges 900. The coincident
-        # charge: 700 kW at the June time x 10 in both months = 14 000, tax 1 400
+    def test_a_tax_on_demand_charges_holds_the_excess_in_its_season_and_the_coincident_charge(self, clause, item):
+        # the tax line's quantity is its base; amount = quantity x rate (docs/tariffs.md, "How the bill is computed")
         head = HEAD + '[[seasons]]\nname = "w"\nmonths = [1,2,3,4,5,10,11,12]\n[[seasons]]\nname = "s"\nmonths = [6,7,8,9]\n'
         t = load(head + '[[periods]]\ncode = "all"\n' + clause + '[[taxes]]\nname = "t"\nrate_pct = 10\nbase = "demand_charges"\n')
         idx = pd.date_range("2025-05-01", "2025-07-01", freq="h", tz="UTC", inclusive="left")
@@ -311,8 +318,11 @@ class TestDemand:
             assert_allclose(b.loc[b["month"] == "2025-05", "amount"].sum(), 0.0, **EXACT)
             assert_allclose(quantity(b, "excess:d", "2025-06"), 200.0, **EXACT)
             assert_allclose(quantity(b, "tax:t"), 9_000.0, **EXACT)
+            assert_allclose(amounts(b)["tax:t"], 900.0, **EXACT)
         else:
+            assert_allclose(b.loc[b["line_item"] == "coincident:d", "quantity"].to_numpy(), [700.0, 700.0], **EXACT)
             assert_allclose(quantity(b, "tax:t"), 14_000.0, **EXACT)
+            assert_allclose(amounts(b)["tax:t"], 1_400.0, **EXACT)
 
     def test_a_peak_time_outside_the_series_is_left_out(self):
         # only July's time falls in a series of June to August; a 29 February time exists in no year of it

@@ -74,6 +74,20 @@ class TestCompareAndSummarise:
                                "CV(RMSE) 9.00 %)")
         assert "outside the monthly criteria" in text and "meant for a year" not in text
 
+    @pytest.mark.parametrize("reads, nmbe, cv, within", [(110.0, -10.91, 10.44, False), (90.0, 10.91, 10.44, False),
+                                                          (95.5, 4.91, 4.70, True)])
+    def test_the_bias_limit_holds_on_either_side(self, reads, nmbe, cv, within):
+        # hand calculations, docs/calibration.md: twelve months billed 100, the model reading the same in all;
+        # |NMBE| <= 5 % and CV(RMSE) <= 15 % (ASHRAE Guideline 14-2014, the limits from memory)
+        months = [f"2024-{m:02d}" for m in range(1, 13)]
+        modelled = pd.DataFrame({"site_id": "S", "month_of_year": range(1, 13), "energy_kwh": reads, "peak_kw": np.nan,
+                                 "reactive_kvarh": np.nan, "amount": np.nan})
+        history = pd.DataFrame({"site_id": "S", "month": months, "energy_kwh": 100.0, "peak_kw": np.nan,
+                                "reactive_kvarh": np.nan, "amount": np.nan})
+        row = calibration.calibration_summary(calibration.compare_with_bills(modelled, history)).set_index("quantity").loc["energy_kwh"]
+        assert row["nmbe_pct"] == pytest.approx(nmbe, abs=0.005) and row["cv_rmse_pct"] == pytest.approx(cv, abs=0.005)
+        assert bool(row["within_criteria"]) is within
+
     def test_modelled_months_by_hand(self):
         # a site of two months, hourly: January 2 h at 100 kW and 50 kVAr, February 1 h at 300 kW exporting
         # 20 kVAr and 1 h at -10 kW: January 200 kWh, peak 100 kW, 100 kVArh; February 300 kWh (the export of

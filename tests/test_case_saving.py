@@ -22,7 +22,6 @@ from hypothesis import strategies as st
 
 from models import io as case_io
 from models.case import load_case
-from models.finance import FinanceAssumptions
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "data" / "demo"
@@ -131,9 +130,6 @@ class TestFolderCase:
         assert "it was created" in out.summary()
 
     def test_new_price_and_cost_factors_are_written(self, demo_copy):
-        names = FinanceAssumptions.__dataclass_fields__
-        if "energy_price_factor" not in names or "capital_cost_factor" not in names:
-            pytest.skip("FinanceAssumptions has no energy_price_factor/capital_cost_factor yet")
         before = lines(demo_copy / "finance.toml")
         case_io.save_finance_settings(demo_copy, {"energy_price_factor": 1.2, "capital_cost_factor": 0.9}, now=NOW)
         assert lines(demo_copy / "finance.toml") == before + ["energy_price_factor = 1.2", "capital_cost_factor = 0.9"]

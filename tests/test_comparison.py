@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from numpy.testing import assert_allclose
 
 import casebuilder as cb
 from models import comparison, scenario
@@ -63,8 +64,8 @@ class TestReading:
         ([{"name": "Assumptions of this run", "horizon_yr": 20}], "scenarios[1].name", "names a row of every comparison"),
         ([{"name": "Dollars", "currency": "USD"}], "scenarios[1].currency", "cannot change the currency"),
         ([{"name": "Same"}], "scenarios[1]", "changes no assumption"),
-        ([{"name": "Bad rate", "discount_rate_frac": 5.0}], "scenarios[1].discount_rate_frac", ""),
-        ([{"name": "Bad mode", "replacement_mode": "sometimes"}], "scenarios[1].replacement_mode", ""),
+        ([{"name": "Bad rate", "discount_rate_frac": 5.0}], "scenarios[1].discount_rate_frac", "between -1 and 1"),
+        ([{"name": "Bad mode", "replacement_mode": "sometimes"}], "scenarios[1].replacement_mode", "'replace_now' or 'replace_at_failure'"),
         ([{"name": "x" * 61, "horizon_yr": 20}], "scenarios[1].name", "at most 60 characters"),
     ])
     def test_a_bad_scenario_is_an_error_naming_its_entry_and_key(self, tables, key, rule):
@@ -186,6 +187,20 @@ def test_each_scenario_row_is_the_economics_of_its_own_assumptions(demo_run_phys
         assert table.loc[name, "plan_npv"] == pytest.approx(float(plan["npv_at_plan_start"].sum()), rel=1e-9), name
         assert table.loc[name, "plan_capital"] == pytest.approx(float(plan["capital"].sum()), rel=1e-9), name
         assert table.loc[name, "projects"] == len(plan), name
+        # its yearly saving as its plan counts it and its CO2, summed by hand from its own results
+        res = own.results.set_index(["asset_id", "option_id"])
+        shares = own.plan_status.get("repriced") or {}
+        pairs = list(zip(plan["asset_id"], plan["option_id"]))
+        saving = sum(shares.get(f"{a}/{o}", 1.0) * res.loc[(a, o), "bill_saving_per_yr"]
+                     + res.loc[(a, o), "saving_maintenance_per_yr"] for a, o in pairs)
+        assert table.loc[name, "yearly_saving_per_yr"] == pytest.approx(saving, rel=1e-9), name
+        assert table.loc[name, "co2_avoided_t_per_yr"] == pytest.approx(
+            sum(res.loc[p, "co2_avoided_t_per_yr"] for p in pairs), rel=1e-9), name
+    # each change is the row's figure less the case's own
+    base = table.loc[comparison.BASE_NAME]
+    for column in ("plan_npv", "plan_capital", "yearly_saving_per_yr"):
+        assert_allclose(table[f"{column}_change"].to_numpy(dtype=float), (table[column] - base[column]).to_numpy(dtype=float),
+                        rtol=1e-12, atol=1e-9, err_msg=column)
     # a lower discount rate raises the value of the same savings (docs/finance.md, section 2)
     assert table.loc["Cheaper money", "plan_npv_change"] > 0
     assert table.loc["Dearer electricity, larger budget", "budget_total"] == 900000.0
@@ -249,7 +264,19 @@ def test_the_dashboard_headline_is_the_comparisons(demo_run_physics):
 
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, replace(case.finance, discount_rate_frac=0.07), with_risk=False)
-    assert services.headline(result) == comparison.plan_headline(result)
+    h = services.headline(result)
+    # the cards' figures from the plan's rows (hand sums): its capital and NPV at plan start, its projects, its CO2,
+    # and each project's yearly saving as the plan counts it (share of the bill saving + maintenance saving)
+    plan, res = result.plan, result.results.set_index(["asset_id", "option_id"])
+    shares = result.plan_status.get("repriced") or {}
+    saving = sum(shares.get(f"{a}/{o}", 1.0) * res.loc[(a, o), "bill_saving_per_yr"] + res.loc[(a, o), "saving_maintenance_per_yr"]
+                 for a, o in zip(plan["asset_id"], plan["option_id"]))
+    co2 = sum(res.loc[(a, o), "co2_avoided_t_per_yr"] for a, o in zip(plan["asset_id"], plan["option_id"]))
+    assert h["projects"] == len(plan) > 0
+    assert h["plan_capital"] == pytest.approx(float(plan["capital"].sum()), rel=1e-12)
+    assert h["plan_npv"] == pytest.approx(float(plan["npv_at_plan_start"].sum()), rel=1e-12)
+    assert h["yearly_saving_per_yr"] == pytest.approx(saving, rel=1e-9)
+    assert h["co2_avoided_t_per_yr"] == pytest.approx(co2, rel=1e-9)
 
 
 def test_the_pack_carries_the_scenarios(demo_run_physics):

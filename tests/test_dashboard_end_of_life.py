@@ -117,7 +117,10 @@ class TestSummary:
         assert "Rewound" not in services.end_of_life_summary(eol_frame(), "P1", "EUR", 15).text
 
     def test_the_caution_gives_the_size_classes_in_the_cases_unit(self):
-        # 7.5 and 75 kW are 10.1 and 100.6 hp (1 hp = 0.745699872 kW, NIST SP 811 B.9)
+        # 7.5 and 75 kW are 10.1 and 100.6 hp (1 hp = 0.745699872 kW, NIST SP 811 B.9). The lives are the mean
+        # lives of models.end_of_life.DEFAULT_LIFE_CLASSES (common practice, not data): Weibull shape 2.5 and
+        # characteristic lives 14, 20 and 28 yr; mean eta x Gamma(1 + 1/2.5), Gamma(1.4) = 0.887264 (Abramowitz &
+        # Stegun table 6.1): 14 x 0.887264 = 12.42, 20 x 0.887264 = 17.75, 28 x 0.887264 = 24.84 yr
         s = services.end_of_life_summary(eol_frame(), "P1", "USD", 15, power_unit="hp")
         assert "up to 10.1 hp 12.4 yr, 10.1-100.6 hp 17.7 yr, above 100.6 hp 24.8 yr" in s.caution
         assert " kW" not in s.caution

@@ -310,15 +310,24 @@ def test_the_register_s_outage_hours_override_the_size_class_and_the_spare(tmp_p
 
 
 def test_outage_hours_outside_a_year_are_refused(tmp_path):
-    # data/schema/assets.csv: new_lead_time_h between 0 and 8,760 h (a year); the problem names the column and value
+    # data/schema/assets.csv, new_lead_time_h: min 0, max 8760 h (a year); -5 h (P1, file row 2) and 9000 h (C1,
+    # file row 4) lie outside it, F1's blank takes its size class. Each is an error naming its row, the column and
+    # the rule, and the case is refused
     import casebuilder as cb
     from models.case import load_case
 
     header = cb.ASSET_HEADER + ["new_lead_time_h"]
     assets = [list(row) + [value] for row, value in zip(cb.ASSETS, ["-5", "", "9000"])]
     case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets, asset_header=header))
-    said = " ".join(str(p) for p in problems)
-    assert "new_lead_time_h" in said and ("-5" in said or "9000" in said)
+    assert case is None
+    column = [p for p in problems if p.column == "new_lead_time_h"]
+    for row, value in ((2, "-5"), (4, "9000")):
+        found = [p for p in column if p.row == row]
+        assert len(found) == 1, [str(p) for p in column]
+        p = found[0]
+        assert p.severity == "error" and p.file == "assets.csv" and p.value == value
+        assert p.rule == "'new_lead_time_h' must lie between 0 and 8760 h"
+    assert {p.row for p in column} == {2, 4}
 
 
 def _failed_case(tmp_path, flags):
@@ -399,6 +408,11 @@ def test_a_failed_motor_s_project_starts_in_plan_year_0_or_not_at_all(tmp_path):
     result = scenario.run(failed, dataclasses.replace(failed.finance, **budgets), with_risk=False)
     for frame in (result.plan, result.plan_greedy):
         assert "P1" not in set(frame.loc[frame["start_yr"] > 0, "asset_id"])
+    # year 0: with a budget of 1e9 in each year nothing waits, and the failed P1's project is in the plan at start
+    # year 0 (in both the optimised and the greedy plan)
+    ample = scenario.run(failed, dataclasses.replace(failed.finance, budget_per_yr=(1e9, 1e9)), with_risk=False)
+    for frame in (ample.plan, ample.plan_greedy):
+        assert list(frame.loc[frame["asset_id"] == "P1", "start_yr"]) == [0]
 
 
 def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(tmp_path):

@@ -71,6 +71,44 @@ def test_the_ranking_is_the_evpi_of_each_asset_s_best_option(demo_run_physics):
     assert abs(top["npv"]) < 3 * top["npv_sigma"]
 
 
+def test_the_one_motor_case_s_value_by_hand(tmp_path):
+    # hand calculation, finance-metrics.md section 9 (the one-motor case of scenario-one-asset.md): spread 0.25,
+    # savings PV 457.682 x 8.530203 = 3 904.12, sigma 976.03, NPV 2 962.19, EVPI 0.33
+    from test_scenario import _one_asset_case
+
+    case = _one_asset_case(tmp_path / "one")
+    result = scenario.run(case, case.finance, with_risk=False)
+    row = measure_first(case, result).iloc[0]
+    assert row["spread_frac"] == pytest.approx(0.25)
+    assert row["savings_pv"] == pytest.approx(3_904.12, rel=1e-5)
+    assert row["npv_sigma"] == pytest.approx(976.03, rel=1e-5)
+    assert row["npv"] == pytest.approx(2_962.19, rel=1e-5)
+    assert row["value_of_measuring"] == pytest.approx(0.33, abs=0.005)
+
+
+def test_a_demo_motor_s_spread_by_hand(demo_run_physics):
+    # hand calculation, finance-metrics.md section 9: HRW-P01, sqrt(0.0325) = 0.180278
+    case, phys = demo_run_physics
+    table = measure_first(case, scenario.economics(case, phys, case.finance, with_risk=False))
+    assert table.set_index("asset_id").loc["HRW-P01", "spread_frac"] == pytest.approx(0.180278, abs=1e-6)
+
+
+def test_the_ranking_kept_for_the_pack_follows_the_result(demo_run_physics):
+    # the pack's ranking is kept for the last result asked for: a result under other assumptions gets its own
+    from dataclasses import replace
+
+    from models.information import measure_first_of
+
+    case, phys = demo_run_physics
+    r8 = scenario.economics(case, phys, case.finance, with_risk=False)
+    r12 = scenario.economics(case, phys, replace(case.finance, discount_rate_frac=0.12), with_risk=False)
+    t8, t12 = measure_first_of(case, r8), measure_first_of(case, r12)
+    npv8, npv12 = t8.set_index("asset_id")["npv"], t12.set_index("asset_id")["npv"]
+    assert not np.allclose(npv8.to_numpy(), npv12.reindex(npv8.index).to_numpy())
+    pd.testing.assert_frame_equal(t12, measure_first(case, r12))
+    pd.testing.assert_frame_equal(measure_first_of(case, r8), measure_first(case, r8))
+
+
 def test_run_writes_it_and_says_the_first_ones(tmp_path, capsys):
     from pathlib import Path
 
@@ -81,6 +119,13 @@ def test_run_writes_it_and_says_the_first_ones(tmp_path, capsys):
     assert main(["run", str(demo), "--out", str(out), "--no-risk", "--quiet"]) == 0
     table = pd.read_csv(out / "measure_first.csv")
     assert table.columns.tolist()[:3] == ["rank", "asset_id", "site_id"] and len(table) > 10
+    from models.case import load_case
+
+    case, _ = load_case(demo)
+    own = measure_first(case, scenario.run(case, case.finance, with_risk=False))
+    assert table["asset_id"].tolist() == own["asset_id"].astype(str).tolist()
+    assert np.allclose(table["value_of_measuring"].to_numpy(dtype=float), own["value_of_measuring"].to_numpy(dtype=float),
+                       rtol=1e-6)
     said = capsys.readouterr().out
     first = table.iloc[0]
     assert "Measure first (measure_first.csv)" in said and f"  {first['asset_id']}: up to EUR " in said
