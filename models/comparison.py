@@ -22,7 +22,7 @@ from typing import Any
 import pandas as pd
 
 from models.io import BLANK_HEADER_KEY, SHEET_ROW_KEY
-from models.problems import Problem, error
+from models.problems import Problem, error, warning
 
 #: The case's own assumptions, as the first row of every comparison is named.
 BASE_NAME = "Case as written"
@@ -246,6 +246,10 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
         # (a workbook row's number: named below; its blank-header cells: just reported)
         table = {k: v for k, v in table.items() if k not in (SHEET_ROW_KEY, BLANK_HEADER_KEY)}
         name = table.get("name")
+        if name is not None and not isinstance(name, str):
+            problems.append(error(source, None, f"{at}.name", name, "a scenario's name must be text",
+                                  f'write it in quotes, e.g. name = "{name}"'))
+            continue
         if not isinstance(name, str) or not name.strip():
             problems.append(error(source, None, f"{at}.name", name, "a scenario needs a name",
                                   'e.g. name = "Dearer electricity"'))
@@ -255,12 +259,24 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
             problems.append(error(source, None, f"{at}.name", name, f"a scenario's name is at most {MAX_NAME_CHARS} "
                                   "characters", "shorten it; a longer description goes in a # comment"))
             continue
-        if name in seen or name in (BASE_NAME, RUN_NAME):
+        if any(ord(ch) < 32 or ord(ch) == 127 for ch in name):
+            problems.append(error(source, None, f"{at}.name", name, "a scenario's name is one line of text: it holds a "
+                                  "line break, tab or other control character", "write it on one line"))
+            continue
+        folded = " ".join(name.casefold().split())
+        reserved = {" ".join(n.casefold().split()): n for n in (BASE_NAME, RUN_NAME)}
+        if name in seen or folded in reserved:
             problems.append(error(source, None, f"{at}.name", name,
                                   f"duplicate scenario name (also {prefix}[{seen[name]}])" if name in seen
-                                  else f"'{name}' names a row of every comparison",
+                                  else f"'{reserved[folded]}' names a row of every comparison",
                                   "give each scenario a name of its own"))
             continue
+        alike = next((other for other in seen if " ".join(other.casefold().split()) == folded), None)
+        if alike is not None:
+            problems.append(warning(source, None, f"{at}.name", name,
+                                    f"the name differs from {prefix}[{seen[alike]}]'s ('{alike}') only in capitals or "
+                                    "spaces: the two rows will be hard to tell apart",
+                                    "give each scenario a name of its own"))
         seen[name] = i
         changes = {k: v for k, v in table.items() if k != "name"}
         if not changes:

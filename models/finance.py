@@ -1596,6 +1596,11 @@ def _number(raw: Any) -> float | None:
     return None
 
 
+#: The price and capital-cost levels accepted (1 = as written): a hundredth to a hundredfold; outside 0.2-5 a
+#: level is warned as unusual.
+PRICE_LEVEL_BOUNDS = (0.01, 100.0)
+
+
 def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list[Problem]:
     """Check ranges and choices of typed values; return errors and warnings."""
     out: list[Problem] = []
@@ -1635,6 +1640,9 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
     for key in ("energy_price_factor", "capital_cost_factor"):
         if not (math.isfinite(values[key]) and values[key] > 0.0):
             bad(key, "must be a number > 0 (1 = prices as written)", "e.g. 1.2 for prices 20 % higher")
+        elif not PRICE_LEVEL_BOUNDS[0] <= values[key] <= PRICE_LEVEL_BOUNDS[1]:
+            bad(key, f"must lie between {PRICE_LEVEL_BOUNDS[0]:g} and {PRICE_LEVEL_BOUNDS[1]:g} (1 = prices as "
+                "written): a level beyond them is no price anyone pays", "e.g. 1.2 for prices 20 % higher")
         elif not 0.2 <= values[key] <= 5.0:
             odd(key, "a price level outside 0.2-5 is unusual", "1 = prices as written; 1.2 = 20 % higher")
     if not (values["incentive_max"] >= 0.0):

@@ -177,6 +177,11 @@ def read_reference(name: str) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 # Header matching
 # ---------------------------------------------------------------------------------------------------
+def _kind_of_text(source: str) -> str:
+    """What a text file is saved as, for a hint: "text" for a TOML file, else "CSV"."""
+    return "text" if str(source).lower().endswith(".toml") else "CSV"
+
+
 def normalise_header(text: object) -> str:
     """Return a header reduced for matching: lower case, no accents, single spaces, ``_`` as space.
 
@@ -387,10 +392,10 @@ def _decode(data: bytes, source: str) -> tuple[str | None, list[Problem], str]:
             except UnicodeDecodeError as exc:
                 return None, [error(source, None, None, None,
                                     f"the file starts with a {label} byte-order mark but is not valid {label} (byte {exc.start})",
-                                    "save it again as UTF-8 CSV")], ""
+                                    f"save it again as UTF-8 {_kind_of_text(source)}")], ""
             if label != "UTF-8":
                 problems.append(warning(source, None, None, None, f"the file is {label} text; it was decoded as such",
-                                        "UTF-8 is the expected encoding; save it as UTF-8 CSV to be sure"))
+                                        f"UTF-8 is the expected encoding; save it as UTF-8 {_kind_of_text(source)} to be sure"))
             break
     if text is None:
         try:
@@ -412,7 +417,7 @@ def _decode(data: bytes, source: str) -> tuple[str | None, list[Problem], str]:
             text = decoded
             problems.append(warning(source, None, None, None,
                                     f"the file is not UTF-8 (byte {exc.start}); it was read as {label}",
-                                    "save it as UTF-8 CSV to be sure accented text is read as intended"))
+                                    f"save it as UTF-8 {_kind_of_text(source)} to be sure accented text is read as intended"))
     sample = text[:65536]
     controls = len(_CONTROL.findall(sample))
     if "\x00" in text or controls > max(2, 0.001 * len(sample)):
@@ -823,11 +828,21 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
     # table whose name holds an underscore ("bill_history") is found under its folded key
     table_key = {table: normalise_header(table) for table in CASE_TABLES}
     known = set(table_key.values()) | {"case", "finance", "scenarios", "instructions", "read me", "readme"}
+    listed = f"case sheets are: {', '.join(CASE_TABLES)}, case, finance, scenarios and 'tariff <file name>'"
     for key, name in sheets.items():
         if key not in known and not key.startswith("tariff"):
-            case.problems.append(warning(f"{path.name}:{name}", None, None, None,
-                                         "sheet not part of the case format; it was ignored",
-                                         f"case sheets are: {', '.join(CASE_TABLES)}, case"))
+            # a near miss of a sheet the workbook lacks would drop what it holds: an error, as a misspelt
+            # table of a tariff is
+            missing = sorted(k for k in known - set(sheets) if k not in ("instructions", "read me", "readme"))
+            close = difflib.get_close_matches(key, missing, n=1, cutoff=0.8)
+            if close:
+                case.problems.append(error(f"{path.name}:{name}", None, None, None,
+                                           f"sheet name not part of the case format: did you mean '{close[0]}'? "
+                                           "As written, nothing on it would be read",
+                                           f"rename the sheet '{close[0]}'; {listed}"))
+            else:
+                case.problems.append(warning(f"{path.name}:{name}", None, None, None,
+                                             "sheet not part of the case format; it was ignored", listed))
     for table in CASE_TABLES:
         if table_key[table] not in sheets:
             continue
@@ -853,7 +868,10 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
                     pass
         case.extra["finance"] = values
     if "scenarios" in sheets:
-        case.extra["scenarios"] = _scenarios_sheet(book[sheets["scenarios"]])
+        name = sheets["scenarios"]
+        case.extra["scenarios"], found = _scenarios_sheet(book[name], formula_book[name] if formula_book is not None else None,
+                                                          f"{path.name}:{name}")
+        case.problems += found
     for key, name in sheets.items():
         if key.startswith("tariff"):
             text = "\n".join(str(r[0]) for r in book[name].iter_rows(values_only=True) if r and r[0] is not None)
@@ -973,24 +991,68 @@ SHEET_ROW_KEY = ("sheet", "row")
 BLANK_HEADER_KEY = ("sheet", "blank header")
 
 
-def _scenarios_sheet(sheet) -> list[dict]:
+def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], list[Problem]]:
     """Read a ``scenarios`` sheet: a header row (``name`` and the finance keys), then one scenario per row;
-    a blank cell leaves that key as the case has it. Rows starting with # and empty rows are passed over.
-    Each scenario carries its sheet row under :data:`SHEET_ROW_KEY`, and any value written under a blank
-    header cell under :data:`BLANK_HEADER_KEY`."""
+    a blank cell leaves that key as the case has it. Rows whose first cell starts with # and empty rows are
+    passed over. Each scenario carries its sheet row under :data:`SHEET_ROW_KEY`, and any value written
+    under a blank header cell under :data:`BLANK_HEADER_KEY`.
+
+    Returns the scenarios and the sheet's own problems: a key in two columns, a formula with no saved result
+    (an error: the blank it reads as would keep the case's value), formulas read as their saved results, a
+    comment row that holds values in other cells, hidden rows or sheet and merged cells (each block's value
+    spread over its cells, as in the other sheets), and a sheet with no scenario."""
     from openpyxl.utils import get_column_letter
 
+    problems: list[Problem] = []
+    if sheet.sheet_state != "visible":
+        problems.append(warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
+                                "unhide it to check what it holds"))
+    fill = _merged_fill(sheet, source, problems)
+    formulas = _formula_cells(formula_sheet, sheet)
+    hidden = _hidden_rows(sheet)
     header: list[str] | None = None
     out: list[dict] = []
     for number, row in enumerate(sheet.iter_rows(values_only=True), start=1):
-        if not row or all(v is None for v in row) or str(row[0] or "").lstrip().startswith("#"):
+        row = tuple(fill.get((number, c), v) if v is None else v for c, v in enumerate(row, start=1))
+        if not row or all(v is None for v in row):
+            continue
+        if str(row[0] or "").lstrip().startswith("#"):
+            rest = [get_column_letter(c) for c, v in enumerate(row[1:], start=2)
+                    if v is not None and not (isinstance(v, str) and not v.strip())]
+            if rest:
+                problems.append(warning(source, number, None, row[0],
+                                        f"the row starts with # and was passed over as a comment, with the values in "
+                                        f"column{'s' if len(rest) > 1 else ''} {', '.join(rest)}",
+                                        "a scenario's name cannot start with #: rename it to read the row"))
             continue
         if header is None:
             header = [normalise_header(v).replace(" ", "_") if v is not None else "" for v in row]
+            seen: dict[str, int] = {}
+            for c, key in enumerate(header, start=1):
+                if key and key in seen:
+                    problems.append(error(source, number, key, row[c - 1],
+                                          f"the key heads two columns ({get_column_letter(seen[key])} and "
+                                          f"{get_column_letter(c)}): which value a scenario takes is unclear",
+                                          "keep one column per key"))
+                seen.setdefault(key, c)
             continue
+        if number in hidden:
+            problems.append(warning(source, number, None, row[0], "the row is hidden in the workbook; it was read",
+                                    "unhide it to check what it holds"))
         entry: dict = {SHEET_ROW_KEY: number}
         for column, value in enumerate(row, start=1):
             key = header[column - 1] if column <= len(header) else ""
+            if (number, column) in formulas:
+                if not formulas[(number, column)]:
+                    problems.append(error(source, number, key or get_column_letter(column), None,
+                                          "the cell holds a formula with no saved result: read as blank, it would "
+                                          "leave the key as the case has it",
+                                          "drivecase never recalculates formulas: open and save the workbook in a "
+                                          "spreadsheet program, or paste the values"))
+                else:
+                    problems.append(warning(source, number, key or get_column_letter(column), value,
+                                            "the cell holds a formula; its last saved result was used",
+                                            "drivecase never recalculates formulas: save the workbook after editing"))
             if value is None or (isinstance(value, str) and not value.strip()):
                 continue
             if not key:
@@ -1003,7 +1065,11 @@ def _scenarios_sheet(sheet) -> list[dict]:
                     pass
             entry[key] = value
         out.append(entry)
-    return out
+    if not out:
+        problems.append(warning(source, None, None, None, "the sheet holds no scenario: the run compares none",
+                                "write a header row (name and the finance keys), then one scenario per row; or "
+                                "delete the sheet"))
+    return out, problems
 
 
 def _settings_sheet(sheet) -> dict:
@@ -1150,10 +1216,24 @@ def read_scenario_tables(raw: "RawCase") -> tuple[list | None, str, list[Problem
         data, problems = read_toml_file(path, path.name)
         if has_errors(problems):
             return None, path.name, problems
-        problems = problems + [warning(path.name, None, key, None,
-                                       "scenarios.toml holds [[scenarios]] tables only; this key was ignored",
-                                       "the case's own assumptions go in finance.toml")
-                               for key in sorted(k for k in data if k != "scenarios")]
+        from models.finance import FinanceAssumptions
+
+        finance_keys = {f for f in FinanceAssumptions.__dataclass_fields__}
+        for key in sorted(k for k in data if k != "scenarios"):
+            if normalise_header(key).replace(" ", "") in ("scenarios", "scenario"):
+                # a misspelt table name would drop every scenario in it
+                problems.append(error(path.name, None, key, None,
+                                      "scenarios.toml holds [[scenarios]] tables: did you mean 'scenarios'? As "
+                                      "written, none of its scenarios would be read",
+                                      "write each scenario under a [[scenarios]] line"))
+            else:
+                problems.append(warning(path.name, None, key, None,
+                                        "scenarios.toml holds [[scenarios]] tables only; this key was ignored",
+                                        "the case's own assumptions go in finance.toml" if key in finance_keys
+                                        else "write each scenario under a [[scenarios]] line"))
+        if not data:
+            problems.append(warning(path.name, None, None, None, "the file holds no scenario: the run compares none",
+                                    '[[scenarios]]\nname = "Cheaper money"\ndiscount_rate_frac = 0.06'))
         return data.get("scenarios", []), path.name, problems
     if raw.kind == "workbook" and raw.extra.get("scenarios") is not None:
         return list(raw.extra["scenarios"]), f"{raw.path.name}:scenarios", []

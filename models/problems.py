@@ -119,15 +119,23 @@ def unknown_ids_hint(unknown: Iterable[str], known: Iterable[str]) -> str:
 
 
 def shown_value(value: object) -> str:
-    """A value as a message shows it: text quoted, whole numbers without '.0', lists in brackets.
+    """A value as a message shows it: text quoted, whole numbers without '.0', lists in brackets, dates and
+    times in ISO 8601 (as a TOML file or a spreadsheet cell writes them).
 
     Examples
     --------
     >>> shown_value(5.0), shown_value(2031.0), shown_value(0.08), shown_value("-250"), shown_value((-5.0,))
     ('5', '2031', '0.08', "'-250'", '[-5]')
+    >>> import datetime as dt
+    >>> shown_value(dt.date(2025, 7, 15)), shown_value(dt.datetime(2025, 1, 6)), shown_value(dt.time(17, 15))
+    ('2025-07-15', '2025-01-06T00:00:00', '17:15:00')
     """
+    import datetime as _dt
+
     if isinstance(value, bool):
         return repr(value)
+    if isinstance(value, (_dt.date, _dt.time)):  # (datetime is a date)
+        return value.isoformat()
     if isinstance(value, float):
         return str(int(value)) if value.is_integer() and abs(value) < 1e15 else f"{value:g}"
     if isinstance(value, (list, tuple)):
