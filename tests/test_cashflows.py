@@ -189,7 +189,8 @@ class TestInvalidInput:
 
 
 def test_savings_over_a_base_case_that_buys_a_new_motor_at_failure():
-    # Hand calculation (8 %, 10 years, replace now): an IE4 motor for 1,100 saving 489.36 a year, where today's
+    # Hand calculation, finance-cashflows.md example G (8 %, 10 years, replace now): an IE4 motor for 1,100
+    # saving 489.36 a year, where today's
     # motor would fail in year 7 and be replaced by the same IE4 motor (the must-spend, life 20). From year 8 the
     # base case runs that motor, so the increment saves nothing more:
     # NPV = -1,100 + 489.36 x (1 - 1.08^-7) / 0.08 + 1,100 / 1.08^7 - (0.85 - 0.5) x 1,100 / 1.08^10

@@ -476,7 +476,8 @@ def test_solves_print_no_banner_and_lose_no_line_of_other_threads(threads, solve
 class TestLatestStart:
     """A project that may start only by a given plan year (a motor that has failed: year 0 or not at all)."""
 
-    # hand calculation: budgets 100 and 100, discount 8 %; a (NPV 90, capital 100) and b (NPV 50, capital 100).
+    # hand calculation, finance-plan.md section 7: budgets 100 and 100, discount 8 %; a (NPV 90, capital 100)
+    # and b (NPV 50, capital 100).
     # Free to start either year: a in year 0 and b in year 1, 90 + 50 / 1.08 = 136.30. With b in year 0 only:
     # a in year 0 alone is 90; b in year 0 and a in year 1 is 50 + 90 / 1.08 = 133.33, the best.
     ARGS = (["a/1", "b/1"], ["a", "b"], [90.0, 50.0], [100.0, 100.0], [100.0, 100.0], 0.08)
@@ -490,7 +491,8 @@ class TestLatestStart:
         assert held.total_npv == pytest.approx(50.0 + 90.0 / 1.08)
 
     def test_rank_order_plan_skips_a_project_whose_years_are_spent(self):
-        # by profitability index a (0.9) goes first into year 0; b fits only year 1, closed to it: left out
+        # finance-plan.md section 7: by profitability index a (0.9) goes first into year 0; b fits only year 1,
+        # closed to it: left out
         held = plan.plan_greedy(*self.ARGS, latest_start_yr=[np.inf, 0])
         assert held.chosen["project_id"].tolist() == ["a/1"] and held.total_npv == pytest.approx(90.0)
 

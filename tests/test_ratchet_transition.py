@@ -168,8 +168,8 @@ class TestCashFlows:
 
 def test_a_projects_npv_falls_by_its_discounted_shortfall(demo_run_physics):
     # one demo project given a 1 000 demand shortfall: its NPV falls by 1 000 x (1 + e_demand) / (1 + d) x
-    # (1 - tax) (hand calculation: the shortfall sits in year 1 only, escalated and taxed like the demand
-    # saving it reduces), and results.csv names it
+    # (1 - tax) (finance-cashflows.md example F, "Its NPV": the shortfall sits in year 1 only, escalated and
+    # taxed like the demand saving it reduces), and results.csv names it
     case, phys = demo_run_physics
     a = case.finance
     base = scenario.economics(case, phys, a, with_risk=False)
@@ -236,8 +236,8 @@ def july_pump_case(tmp_path_factory):
 
 
 def test_a_summer_peak_s_saving_waits_for_the_ratchet_in_a_whole_run(july_pump_case):
-    # Hand reasoning (billing-demand.md case D8, with the pump's own July input): July's site peak is
-    # 50 kW + the pump's input, every other month 50 kW, under a floor of 0.8 x July's peak. An option that draws
+    # Hand reasoning (billing-demand.md case D8, "In symbols", with the pump's own July input): July's site peak
+    # is 50 kW + the pump's input, every other month 50 kW, under a floor of 0.8 x July's peak. An option that draws
     # dP kW less in July saves c x (dP + 11 x 0.8 dP) = 9.8 c dP a year on demand (c the price per kW-month), and
     # its first year 6 x 0.8 x dP x c = 4.8 c dP less (January to June still read today's July). dP is read from
     # the option's and today's July input.
@@ -329,7 +329,12 @@ def test_the_register_says_nothing_of_a_ratchet_that_holds_nothing_back(demo_run
 
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, case.finance, with_risk=False)
-    register = content.risk_register(case, result, content.select_scope(case, result))
+    scope = content.select_scope(case, result)
+    # the precondition: none of the demo's recommended projects is held back (its ratchet site's peaks stay)
+    short = result.results.set_index(["asset_id", "option_id"])["ratchet_shortfall"]
+    rec = pd.MultiIndex.from_arrays([scope.recommended["asset_id"], scope.recommended["option_id"]])
+    assert len(rec) and (short.reindex(rec).fillna(0.0) <= 0.5).all()
+    register = content.risk_register(case, result, scope)
     assert "Demand ratchet holds back the first savings" not in set(register["item"])
 
 
@@ -513,7 +518,7 @@ class TestMonthOfTheChange:
     def test_a_whole_run_reads_the_month_from_the_case(self, july_pump_case):
         # the pump of the whole-run case, its option's July saving dP: in service from July the first year
         # dodges today's July (no shortfall); from August 11 of its 12 months still read it: 11 x 0.8 x dP x c,
-        # against 6 x 0.8 x dP x c from January (hand reasoning as in case D8)
+        # against 6 x 0.8 x dP x c from January (billing-demand.md case D8, "In symbols")
         case, result = july_pump_case
         january = result.results.set_index("option_id")["ratchet_shortfall"]
         for month, months_read in ((7, 0), (8, 11)):
@@ -559,5 +564,6 @@ def test_the_pack_says_when_the_changes_come_into_service_where_a_ratchet_reads_
     rows = {item: (value, note) for item, value, note in content.basis_rows(moved, result)}
     assert rows["Changes in service from"][0] == "the start of April"
     scope = content.select_scope(moved, result, assets=["P1"], plan=False)
-    cells = [[c.value for c in r] for r in load_workbook(BytesIO(build_workbook(moved, result, scope)))["Assumptions"].iter_rows()]
+    sheet = load_workbook(BytesIO(build_workbook(moved, result, scope)))["Assumptions"]
+    cells = [[c.value for c in r] for r in sheet.iter_rows()]
     assert any(r[0] == "changes in service from" and str(r[1]).startswith("the start of April (") for r in cells)

@@ -154,9 +154,14 @@ class TestDemoRun:
         finite = positive & np.isfinite(r["sir"].to_numpy(dtype=float))
         assert_allclose(r.loc[finite, "airr_frac"], (1 + d) * r.loc[finite, "sir"] ** (1 / n) - 1, rtol=1e-12)
 
-    def test_keep_has_zero_npv_and_others_are_increments(self, result):
+    def test_keep_is_the_baseline_of_every_increment(self, result):
+        # every NPV is an increment over keeping today's motor (docs/finance.md, section 4): keep's own is 0, and
+        # keep's capital, savings and payback are nothing
         keep = result.results[result.results["option_id"] == "keep"]
+        assert len(keep) == result.results["asset_id"].nunique()
         assert_allclose(keep["npv"], 0.0, atol=1e-9)
+        assert_allclose(keep["capital"].to_numpy(dtype=float), 0.0, atol=1e-12)
+        assert_allclose(keep["bill_saving_per_yr"].to_numpy(dtype=float), 0.0, atol=1e-9)
 
     def test_lcc_difference_is_the_npv_of_every_option(self, result):
         # NIST Handbook 135's comparison of alternatives: LCC(base) - LCC(alternative) = the alternative's NPV, for
