@@ -347,14 +347,16 @@ def peak_windows(wall_ns: np.ndarray, times, window_min: int, interval_ns: int |
         interval holding its start (data coarser than the window: the hour that holds a 15-min peak window),
         then every interval starting before its end; each time once, in the first year of the series that
         holds it (a series crossing a year end does not count a date twice). A time whose day does not exist
-        in a year (29 February) or whose window no interval of the series overlaps is left out.
+        in a year (29 February) or whose window no interval of the series overlaps is left out
+        (``models.case`` warns of each such time, with the reason).
 
     Notes
     -----
     The wall clock is assumed increasing: on the day the clocks go back, a window in the repeated hour takes
     its first occurrence and those after it up to the window's end on the wall clock (both hours for a
-    60-min window at 01:00); a time in the hour skipped when they go forward holds no interval of its own
-    and takes the interval before it.
+    60-min window at 01:00). A time in the hour skipped when they go forward (02:00 on 30 March 2025 in
+    Europe/Berlin) has no interval: the one before it ends as the gap begins and the next starts after it,
+    so the time is left out in that year.
     """
     if not len(wall_ns):
         return []

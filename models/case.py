@@ -1639,10 +1639,46 @@ def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSetting
                 f"list the holidays of {year} as well"))
 
 
+def _peak_time_miss(time: tuple[int, int, int, int], years: range, zone) -> tuple[str, str]:
+    """Why a coincident-peak time has no window in the analysis series, as (reason, hint): its day does not
+    exist in the series' years (29 February), it falls in the hour the clocks skip in spring, or else its day
+    lies outside the series."""
+    from models.wording import MONTH_NAMES
+
+    month, day, hour, minute = time
+    no_day, skipped = [], []
+    for year in years:
+        try:
+            wall = pd.Timestamp(year=year, month=month, day=day, hour=hour, minute=minute)
+        except ValueError:
+            no_day.append(str(year))
+            continue
+        if pd.isna(wall.tz_localize(zone, nonexistent="NaT", ambiguous=True)):
+            after = wall.tz_localize(zone, nonexistent="shift_forward", ambiguous=True)
+            before = wall.tz_localize(zone, nonexistent="shift_backward", ambiguous=True)
+            start = after.tz_localize(None) - (after.utcoffset() - before.utcoffset())
+            skipped.append((f"{day} {MONTH_NAMES[month - 1]} {year}", f"{start:%H:%M}", f"{after:%H:%M}"))
+    reasons, hints = [], []
+    if no_day:
+        reasons.append(f"no {day} {MONTH_NAMES[month - 1]} in {' or '.join(no_day)}")
+        hints.append("the year is not used: give the system's peak time as a day the analysis year has, or leave it out")
+    for date, start, end in skipped:
+        reasons.append(f"falls in the hour the clocks skip on {date}")
+        hints.append(f"on {date} the clocks go from {start} straight to {end}, so no interval starts at "
+                     f"{hour:02d}:{minute:02d}; check the time against the utility's notice")
+    if not reasons:
+        reasons.append("its day lies outside the analysis period")
+        hints.append("list the system's peak times by month, day and time inside the profiles' period (the year "
+                     "itself is not used)")
+    return "; ".join(reasons), " ".join(hints)
+
+
 def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
                               sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
-    """Warn of a coincident-peak clause none of whose times falls inside the analysis series: it bills nothing,
-    so no motor saves on it."""
+    """Warn of each coincident-peak time that cannot be placed in the analysis series (a 29 February in a year
+    without one, a time in the hour the clocks skip in spring, a day outside the series), naming the time as
+    written and the reason: it is left out of the clause's mean. When no time of a clause can be placed, one
+    warning says so with each time's reason: the clause bills nothing, so no motor saves on it."""
     from models.billing import peak_windows
     from models.profiles import analysis_index
     from models.tariff import _local_wall
@@ -1656,19 +1692,40 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
         index = analysis_index(profiles, settings.time_zone, used=used)
     except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
         return
+    period = f"{index[0]:%Y-%m-%d} to {index[-1]:%Y-%m-%d}"
+    step = int(index[1].value - index[0].value) if len(index) > 1 else None
     for name, tariff in listed.items():
-        wall_ns = _local_wall(tariff, index).to_numpy().astype("datetime64[ns]").astype(np.int64)
+        source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
+        wall = _local_wall(tariff, index)
+        wall_ns = wall.to_numpy().astype("datetime64[ns]").astype(np.int64)
+        years = range(int(wall[0].year), int(wall[-1].year) + 1)  # (as peak_windows looks for each time)
+        zone = tariff.time_zone or index.tz
         for i, clause in enumerate(tariff.coincident, start=1):
-            step = int(index[1].value - index[0].value) if len(index) > 1 else None
-            if not peak_windows(wall_ns, clause.times, clause.window_min, step):
-                source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
-                problems.append(warning(
-                    source, None, f"coincident_peak[{i}].times", f"{len(clause.times)} time(s)",
-                    f"no peak time of the clause falls in the analysis period ({index[0]:%Y-%m-%d} to "
-                    f"{index[-1]:%Y-%m-%d}, the case's profiles; a day that year does not have, such as 29 February, "
-                    "counts as none): it bills nothing and no motor saves on it",
-                    "list the system's peak times by month, day and time inside the profiles' period (the year "
-                    "itself is not used)"))
+            missed: dict[tuple[int, int, int, int], int] = {}  # each time once, at its first listing
+            for j, time in enumerate(clause.times):
+                if time not in missed and not peak_windows(wall_ns, (time,), clause.window_min, step):
+                    missed[time] = j
+            if not missed:
+                continue
+            key = f"coincident_peak[{i}].times"
+            why = {time: _peak_time_miss(time, years, zone) for time in missed}
+            if len(missed) < len(set(clause.times)):
+                kept = len(set(clause.times)) - len(missed)
+                for time, j in missed.items():
+                    reason, hint = why[time]
+                    problems.append(warning(
+                        source, None, key, clause.time_text(j),
+                        f"time {j + 1} of {len(clause.times)} cannot be placed in the analysis period ({period}, the "
+                        f"case's profiles): {reason}; it is left out of the mean, which takes the clause's "
+                        f"{counted(kept, 'other peak time')}", hint))
+                continue
+            texts = [clause.time_text(j) for j in missed.values()]
+            hints = list(dict.fromkeys(why[time][1] for time in missed))
+            problems.append(warning(
+                source, None, key, texts[0] if len(texts) == 1 else texts,
+                f"no peak time of the clause falls in the analysis period ({period}, the case's profiles): it bills "
+                "nothing and no motor saves on it ("
+                + "; ".join(f"{text}: {why[time][0]}" for text, time in zip(texts, missed)) + ")", "; ".join(hints)))
 
 
 def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None:

@@ -20,14 +20,15 @@ import difflib
 import functools
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
 import pandas as pd
 
-from models.problems import Problem, error, fixed_offset_hint, warning
+from models.problems import Problem, error, fixed_offset_hint, shown_value, warning
 from models.site import tan_phi_from_power_factor
+from models.wording import MONTH_NAMES
 
 __all__ = [
     "DAY_TYPES",
@@ -343,6 +344,10 @@ class CoincidentPeak:
         for in every year the meter series covers.
     window_min : int
         Length of each peak window [min]: 15, 30 or 60.
+    written : tuple of str
+        The times as the tariff file writes them (a TOML date-time in ISO form, a text as given), in the order
+        of ``times``, for messages; empty for a clause built in code. Not part of the clause's identity: two
+        clauses that differ only in how (or with which year) a time is written are equal.
 
     Notes
     -----
@@ -354,6 +359,26 @@ class CoincidentPeak:
     price_per_kw_month: float
     times: tuple[tuple[int, int, int, int], ...]
     window_min: int = 60
+    written: tuple[str, ...] = field(default=(), compare=False)
+
+    def time_text(self, j: int) -> str:
+        """The ``j``-th time (from 0) as written in the file, else as ``15 July 17:00``."""
+        if j < len(self.written):
+            return self.written[j]
+        return peak_time_text(self.times[j])
+
+
+def peak_time_text(time: tuple[int, int, int, int]) -> str:
+    """A peak time (month, day, hour, minute) in words, without a year.
+
+    Examples
+    --------
+    >>> peak_time_text((7, 15, 17, 0))
+    '15 July 17:00'
+    """
+    month, day, hour, minute = time
+    name = MONTH_NAMES[month - 1] if isinstance(month, int) and 1 <= month <= 12 else f"month {month}"
+    return f"{day} {name} {hour:02d}:{minute:02d}"
 
 
 @dataclass(frozen=True)
@@ -633,10 +658,10 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
         return f"{table}[{n}]"
 
     def err(key: str, value: object, rule: str, hint: str = "") -> None:
-        out.append(error(src, None, key, value, rule, hint))
+        out.append(error(src, None, key, _as_written(value), rule, hint))
 
     def warn(key: str, value: object, rule: str, hint: str = "") -> None:
-        out.append(warning(src, None, key, value, rule, hint))
+        out.append(warning(src, None, key, _as_written(value), rule, hint))
 
     # Seasons: each month in exactly one season.
     owner: dict[int, int] = {}
@@ -685,6 +710,12 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
         elif value < 0.0 and not neg_ok:
             err(key, value, "negative price", "set tariff.allow_negative_prices = true if this is intended")
 
+    def peak_price(key: str, value: float, what: str) -> None:
+        """A charge on a peak priced below 0 (let through by allow_negative_prices) rewards a higher peak."""
+        if neg_ok and math.isfinite(value) and value < 0.0:
+            warn(key, value, f"a negative price on {what}: a higher peak would lower the bill (allow_negative_prices "
+                 "lets the value through)", "check the sign: a charge on a peak is a cost")
+
     def refs(key: str, items: tuple[str, ...] | None, known, kind: str) -> None:
         if items is not None and not len(items):  # an empty list is "none", not "all": the clause bills nothing
             warn(key, [], f"the clause lists no {kind}: it applies in none and bills nothing",
@@ -721,19 +752,21 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
     for i, c in enumerate(tariff.coincident, start=1):
         k = at("coincident_peak", i)
         price(f"{k}.price_per_kw_month", c.price_per_kw_month)
+        peak_price(f"{k}.price_per_kw_month", c.price_per_kw_month, "the demand at the system's peak times")
         if c.window_min not in DEMAND_WINDOWS_MIN:
             err(f"{k}.window_min", c.window_min, f"peak window must be one of {DEMAND_WINDOWS_MIN} minutes")
         else:
-            off = [f"{h:02d}:{m:02d}" for _, _, h, m in c.times if (h * 60 + m) % c.window_min]
-            if off:
-                err(f"{k}.times", off[0], f"a peak time must start a {c.window_min}-min window of the clock",
-                    f"e.g. {off[0][:2]}:00")
-        if len(set(c.times)) < len(c.times):
-            warn(f"{k}.times", None, "a peak time is listed twice: it counts twice in the mean", "list each time once")
+            for j, (_, _, h, m) in enumerate(c.times):
+                if (h * 60 + m) % c.window_min:
+                    err(f"{k}.times", c.time_text(j), _off_grid_rule(c.window_min, j, len(c.times)), f"e.g. {h:02d}:00")
+        for rule, value in _repeated_peak_times(c):
+            warn(f"{k}.times", value, rule, "list each time once")
     _check_unique([d.name for d in tariff.demand], "demand", "name", err, at)
     for i, d in enumerate(tariff.demand, start=1):
         k = at("demand", i)
         price(f"{k}.price_per_{d.basis.lower()}_month", d.price_per_unit_month)
+        if d.contracted is None:  # (a contract's price bills the capacity booked, not the peak)
+            peak_price(f"{k}.price_per_{d.basis.lower()}_month", d.price_per_unit_month, "the month's peak demand")
         if d.window_min not in DEMAND_WINDOWS_MIN:
             err(f"{k}.window_min", d.window_min, f"demand window must be one of {DEMAND_WINDOWS_MIN} minutes")
         refs(f"{k}.periods", d.periods, codes, "period")
@@ -759,9 +792,16 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
                     "give one of them: the contract bills its capacity every month, the ratchet past peaks")
             if d.power_factor_adjustment is not None:
                 err(f"{k}.contracted_{unit}", d.contracted, "a contracted capacity with a power-factor adjustment is "
-                    "not modelled", "price the power factor with a [[reactive]] clause, or bill the demand in kVA")
+                    "not modelled",
+                    "price the power factor with a [[reactive]] clause, or bill the demand in kVA" if d.basis == "kW"
+                    else "leave the power-factor adjustment out: a kVA demand already carries the power factor")
         if d.excess_price_per_unit_month is not None:
             price(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month)
+            if d.contracted is not None and neg_ok and d.excess_price_per_unit_month < 0.0:
+                warn(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month,
+                     f"a negative excess price: each {d.basis} of the month's demand above the contract would lower the "
+                     "bill, so a higher peak would lower it (allow_negative_prices lets the value through)",
+                     "check the sign: the demand above a contract is usually priced higher than the contract itself")
             if d.contracted is not None and 0.0 <= d.excess_price_per_unit_month < d.price_per_unit_month:
                 warn(f"{k}.excess_price_per_{unit}_month", d.excess_price_per_unit_month,
                      "the demand above the contract is priced below the contract itself: were the two prices swapped?",
@@ -826,6 +866,35 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             warn(at("taxes", i) + ".rate_pct", t.rate_pct, "rate below 1 %: is this a fraction written in place of a percentage?", "write 20 % as 20")
         if t.base not in TAX_BASES:
             err(at("taxes", i) + ".base", t.base, "unknown tax base", f"use one of {', '.join(TAX_BASES)}")
+    return out
+
+
+def _off_grid_rule(window_min: int, j: int, n: int) -> str:
+    """The rule broken by the ``j``-th (from 0) of ``n`` peak times that does not start a window of the clock."""
+    return f"time {j + 1} of {n}: a peak time must start a {window_min}-min window of the clock"
+
+
+def _repeated_peak_times(c: CoincidentPeak) -> list[tuple[str, object]]:
+    """(rule, value) of each peak time a clause lists more than once: it counts once per listing in the mean.
+    The year is not used, so times written with different years but the same month, day and clock time are
+    the same peak time."""
+    at: dict[tuple[int, int, int, int], list[int]] = {}
+    for j, t in enumerate(c.times):
+        at.setdefault(t, []).append(j)
+    out = []
+    n = len(c.times)
+    for t, js in at.items():
+        if len(js) < 2:
+            continue
+        texts = [c.time_text(j) for j in js]
+        places = ", ".join(str(j + 1) for j in js[:-1]) + f" and {js[-1] + 1}"
+        times = "twice" if len(js) == 2 else f"{len(js)} times"
+        if len(set(texts)) == 1:
+            out.append((f"a peak time is listed {times} (times {places} of {n}): it counts {times} in the mean", texts[0]))
+        else:
+            out.append((f"a peak time is listed {times} (times {places} of {n}): the year is not used, so "
+                        f"{' and '.join(texts)} name the same time, {peak_time_text(t)}, and it counts {times} in the mean",
+                        texts))
     return out
 
 
@@ -1041,9 +1110,40 @@ def _brief(value: object) -> object:
         keys = dict.fromkeys(k for v in value for k in v)
         n = len(value)
         return _Brief(f"{n} {'table' if n == 1 else 'tables'}" + (f" with {_key_list(keys)}" if keys else ""))
-    if isinstance(value, list) and any(isinstance(v, dt.date) for v in value):  # TOML dates, shown as written
-        return _Brief("[" + ", ".join(v.isoformat() if isinstance(v, dt.date) else repr(v) for v in value) + "]")
-    return value
+    return _as_written(value)
+
+
+def _holds_date(value: object) -> bool:
+    """True when the value is, or a list or table holds, a TOML date, time or date-time."""
+    if isinstance(value, (dt.date, dt.time)):
+        return True
+    if isinstance(value, (list, tuple)):
+        return any(_holds_date(v) for v in value)
+    if isinstance(value, dict):
+        return any(_holds_date(v) for v in value.values())
+    return False
+
+
+def _as_written(value: object) -> object:
+    """A value as a message shows it: a TOML date, time or date-time in ISO form, as the file writes it, also
+    inside a list or an inline table (not Python's ``datetime.date(2025, 7, 15)``); any other value unchanged.
+
+    Examples
+    --------
+    >>> print(_as_written(dt.datetime(2025, 7, 15, 17, 0, tzinfo=dt.timezone(dt.timedelta(hours=2)))))
+    2025-07-15T17:00:00+02:00
+    >>> print(_as_written([dt.date(2025, 7, 15), "x", 17.0, dt.time(17, 20)]))
+    [2025-07-15, 'x', 17, 17:20:00]
+    >>> _as_written(0.2)
+    0.2
+    """
+    if not _holds_date(value):
+        return value
+    if isinstance(value, (dt.date, dt.time)):  # (a datetime is a date)
+        return _Brief(value.isoformat())
+    if isinstance(value, dict):
+        return _Brief("{" + ", ".join(f"{k} = {shown_value(_as_written(v))}" for k, v in value.items()) + "}")
+    return _Brief("[" + ", ".join(shown_value(_as_written(v)) for v in value) + "]")
 
 
 def _key_list(keys) -> str:
@@ -1062,10 +1162,10 @@ class _Reader:
         self.meant: set[str] = set()
 
     def err(self, key: str, value: object, rule: str, hint: str = "") -> None:
-        self.problems.append(error(self.source, None, key, value, rule, hint))
+        self.problems.append(error(self.source, None, key, _as_written(value), rule, hint))
 
     def warn(self, key: str, value: object, rule: str, hint: str = "") -> None:
-        self.problems.append(warning(self.source, None, key, value, rule, hint))
+        self.problems.append(warning(self.source, None, key, _as_written(value), rule, hint))
 
     def known(self, table: dict, allowed: tuple[str, ...], path: str) -> None:
         """Report each key of ``table`` not in ``allowed``: an error when it is a near miss, else a warning."""
@@ -1521,9 +1621,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         cname = r.get(e, "name", p, "str", default=f"coincident peak {i}")
         cprice = r.get(e, "price_per_kw_month", p, "number")
         cwindow = r.get(e, "window_min", p, "int", default=60)
-        ctimes = _peak_times(r, e, p)
-        if cprice is not None and cwindow is not None and ctimes is not None:
-            coincident.append(CoincidentPeak(cname, cprice, ctimes, cwindow))
+        read = _peak_times(r, e, p, cwindow)
+        if cprice is not None and cwindow is not None and read is not None:
+            coincident.append(CoincidentPeak(cname, cprice, read[0], cwindow, written=read[1]))
             pos["coincident_peak"].append(i)
 
     taxes = []
@@ -1562,9 +1662,11 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     return tariff, problems
 
 
-def _peak_times(r: _Reader, e: dict, path: str) -> tuple[tuple[int, int, int, int], ...] | None:
+def _peak_times(r: _Reader, e: dict, path: str, window_min: object) -> tuple[tuple, tuple] | None:
     """Read a coincident-peak clause's ``times``: TOML local date-times (``2025-07-15T17:00:00``) or text
-    (``"2025-07-15 17:00"``); return (month, day, hour, minute) of each, or None (reported)."""
+    (``"2025-07-15 17:00"``). Return (month, day, hour, minute) of each and each as written, or None when any
+    is wrong: every wrong time is reported, each with its place in the list. A time off the clock grid of the
+    window is reported here when ``window_min`` is a valid window (else the window's own error is)."""
     key = f"{path}.times"
     if "times" not in e:
         if not r.reported(path, "times"):
@@ -1575,8 +1677,9 @@ def _peak_times(r: _Reader, e: dict, path: str) -> tuple[tuple[int, int, int, in
     if not isinstance(raw, list) or not raw:
         r.err(key, raw, "expected a non-empty list of date-times", 'e.g. times = [2025-07-15T17:00:00]')
         return None
-    out = []
-    for value in raw:
+    out, written, bad = [], [], False
+    n = len(raw)
+    for j, value in enumerate(raw):
         stamp = None
         if isinstance(value, dt.datetime):
             stamp = value
@@ -1586,14 +1689,22 @@ def _peak_times(r: _Reader, e: dict, path: str) -> tuple[tuple[int, int, int, in
             except ValueError:
                 stamp = None
         if stamp is None or stamp.tzinfo is not None:
-            r.err(key, value, "expected a local date and time (no zone: the tariff's time_zone applies)",
-                  'write 2025-07-15T17:00:00 or "2025-07-15 17:00"')
-            return None
+            r.err(key, value, f"time {j + 1} of {n}: expected a local date and time (no zone: the tariff's time_zone "
+                  "applies)", 'write 2025-07-15T17:00:00 or "2025-07-15 17:00"')
+            bad = True
+            continue
         if stamp.second or stamp.microsecond:
-            r.err(key, value, "a peak time starts a window on a whole minute", 'e.g. 2025-07-15T17:00:00')
-            return None
+            r.err(key, value, f"time {j + 1} of {n}: a peak time starts a window on a whole minute",
+                  'e.g. 2025-07-15T17:00:00')
+            bad = True
+            continue
+        if window_min in DEMAND_WINDOWS_MIN and (stamp.hour * 60 + stamp.minute) % window_min:
+            r.err(key, value, _off_grid_rule(window_min, j, n), f"e.g. {stamp.hour:02d}:00")
+            bad = True
+            continue
         out.append((stamp.month, stamp.day, stamp.hour, stamp.minute))
-    return tuple(out)
+        written.append(_as_written(value) if isinstance(value, dt.datetime) else value.strip())
+    return None if bad else (tuple(out), tuple(written))
 
 
 def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | None:

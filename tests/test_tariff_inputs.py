@@ -1,0 +1,188 @@
+"""Bad input in a tariff file: each message names the key, the value as written and the rule broken.
+
+The rules are those of docs/tariffs.md ("[[coincident_peak]]", "Validation"); the calendar facts used (no
+29 February in 2025; in Europe/Berlin the clocks go from 02:00 to 03:00 on 30 March 2025, the last Sunday of
+March, EU Directive 2000/84/EC) are checked against Python's zoneinfo in the tests themselves.
+"""
+
+from __future__ import annotations
+
+import calendar
+import datetime as dt
+import tomllib
+import zoneinfo
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import casebuilder as cb
+from models.billing import bill
+from models.case import load_case
+from models.tariff import tariff_from_dict
+
+HEAD = ('[tariff]\nname = "cp (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n[[periods]]\ncode = "all"\n'
+        '[energy]\nprice_per_kwh = { all = 0.1 }\n')
+PEAK = '[[coincident_peak]]\nname = "tx"\nprice_per_kw_month = 5.0\n'
+
+
+def load(text: str):
+    return tariff_from_dict(tomllib.loads(text), source="t.toml")
+
+
+def at(problems, column: str, severity: str):
+    return [p for p in problems if p.column == column and p.severity == severity]
+
+
+def case_with(tmp_path: Path, times: str):
+    """The small case of tests/casebuilder.py (profiles of 2025: the analysis year 2025) with one coincident-peak
+    clause of these times."""
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "t.toml").write_text(HEAD + PEAK + f"times = {times}\n", encoding="utf-8")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    return at(problems, "coincident_peak[1].times", "warning")
+
+
+def test_the_calendar_facts_the_tests_rely_on():
+    assert not calendar.isleap(2025)
+    berlin = zoneinfo.ZoneInfo("Europe/Berlin")
+    gap = dt.datetime(2025, 3, 30, 2, 0, tzinfo=berlin)
+    assert gap.astimezone(dt.timezone.utc).astimezone(berlin).replace(tzinfo=None) != gap.replace(tzinfo=None)
+
+
+class TestPeakTimesThatCannotBePlaced:
+    """Rule: a peak time that cannot be placed in the analysis year is left out of the mean, never silently."""
+
+    def test_each_left_out_time_is_warned_with_its_reason(self, tmp_path):
+        found = case_with(tmp_path, "[2024-02-29T17:00:00, 2025-03-30T02:00:00, 2025-07-15T17:00:00]")
+        assert len(found) == 2, [str(p) for p in found]
+        leap, gap = found
+        assert str(leap.value) == "2024-02-29T17:00:00" and "time 1 of 3" in leap.rule
+        assert "no 29 February in 2025" in leap.rule and "left out of the mean" in leap.rule
+        assert str(gap.value) == "2025-03-30T02:00:00" and "time 2 of 3" in gap.rule
+        assert "falls in the hour the clocks skip on 30 March 2025" in gap.rule
+        assert "from 02:00 straight to 03:00" in gap.hint
+        assert all(p.row is not None for p in found)  # the line of 'times' in the file
+
+    def test_a_time_written_as_text_is_named_as_written(self, tmp_path):
+        found = case_with(tmp_path, '["2024-02-29 17:00", "2025-07-15 17:00"]')
+        assert [p.value for p in found] == ["2024-02-29 17:00"]
+
+    def test_a_clause_whose_only_time_is_in_the_spring_gap_gets_that_reason(self, tmp_path):
+        found = case_with(tmp_path, "[2025-03-30T02:00:00]")
+        assert len(found) == 1
+        assert "it bills nothing and no motor saves on it" in found[0].rule
+        assert "falls in the hour the clocks skip on 30 March 2025" in found[0].rule
+        assert str(found[0].value) == "2025-03-30T02:00:00"
+
+    def test_times_that_can_be_placed_are_not_warned(self, tmp_path):
+        # 26 October 2025 02:30 is in the hour the clocks repeat: it exists (twice) and is billed
+        assert case_with(tmp_path, "[2025-07-15T17:00:00, 2025-10-26T02:00:00, 2019-01-02T10:00:00]") == []
+
+    def test_the_left_out_times_do_not_change_the_bill(self):
+        # docs/tariffs.md: the charge is the mean over the times that fall inside the series; the left-out ones
+        # count for nothing, so the bill equals that of the clause with the 15 July time alone
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="15min", tz="Europe/Berlin", inclusive="left")
+        p = 400.0 + 100.0 * np.sin(np.arange(len(index)) / 97.0)
+        q = 0.3 * p
+        bills = []
+        for times in ("[2024-02-29T17:00:00, 2025-03-30T02:00:00, 2025-07-15T17:00:00]", "[2025-07-15T17:00:00]"):
+            tariff, problems = load(HEAD + PEAK + f"times = {times}\n")
+            assert tariff is not None and problems == []
+            bills.append(bill(tariff, index, p, q))
+        pd.testing.assert_frame_equal(bills[0], bills[1])
+
+
+class TestPeakTimeListedTwice:
+    """Rule: each peak time counts once per listing in the mean, so one listed twice is warned, by name."""
+
+    def test_the_time_listed_twice_is_named(self):
+        _, problems = load(HEAD + PEAK + 'times = [2025-07-15T17:00:00, 2025-08-05T16:00:00, 2025-07-15T17:00:00]\n')
+        found = at(problems, "coincident_peak[1].times", "warning")
+        assert len(found) == 1 and str(found[0].value) == "2025-07-15T17:00:00"
+        assert "listed twice (times 1 and 3 of 3)" in found[0].rule
+
+    def test_two_years_of_one_day_and_time_are_the_same_peak_time(self):
+        tariff, problems = load(HEAD + PEAK + "times = [2024-07-15T17:00:00, 2025-07-15T17:00:00]\n")
+        assert tariff is not None
+        found = at(problems, "coincident_peak[1].times", "warning")
+        assert len(found) == 1
+        assert "the year is not used" in found[0].rule
+        assert "2024-07-15T17:00:00 and 2025-07-15T17:00:00 name the same time, 15 July 17:00" in found[0].rule
+        assert [str(v) for v in found[0].value] == ["2024-07-15T17:00:00", "2025-07-15T17:00:00"]
+
+
+def test_every_bad_peak_time_is_reported_with_its_place():
+    # Rule: every wrong time is reported, not only the first ("x", a clock time without a date, "y", and a time
+    # off the 60-min clock grid)
+    tariff, problems = load(HEAD + PEAK + 'times = ["x", 17:20:00, "y", "2025-07-15 17:20", 2025-07-16T17:00:00]\n')
+    assert tariff is None
+    found = at(problems, "coincident_peak[1].times", "error")
+    assert [str(p.value) for p in found] == ["x", "17:20:00", "y", "2025-07-15 17:20"]
+    assert [p.rule.split(":")[0] for p in found] == ["time 1 of 5", "time 2 of 5", "time 3 of 5", "time 4 of 5"]
+    assert "expected a local date and time" in found[0].rule and "must start a 60-min window" in found[3].rule
+
+
+class TestDemandContract:
+    BASE = {"tariff": {"name": "c", "currency": "EUR"}, "periods": [{"code": "all"}]}
+
+    def test_a_negative_excess_price_is_warned_that_a_higher_peak_lowers_the_bill(self):
+        # Rule: allow_negative_prices lets a negative price through, but a negative excess price rewards a higher peak
+        tariff, problems = tariff_from_dict(
+            {**self.BASE, "tariff": {**self.BASE["tariff"], "allow_negative_prices": True},
+             "demand": [{"name": "d", "price_per_kva_month": 10.0, "contracted_kva": 500.0,
+                         "excess_price_per_kva_month": -50.0}]}, source="t.toml")
+        assert tariff is not None
+        found = at(problems, "demand[1].excess_price_per_kva_month", "warning")
+        assert len(found) == 1 and found[0].value == -50.0 and "a higher peak would lower it" in found[0].rule
+        _, problems = tariff_from_dict(
+            {**self.BASE, "demand": [{"name": "d", "price_per_kva_month": 10.0, "contracted_kva": 500.0,
+                                      "excess_price_per_kva_month": 50.0}]}, source="t.toml")
+        assert not at(problems, "demand[1].excess_price_per_kva_month", "warning")
+
+    @pytest.mark.parametrize("clause, key", [
+        ({"demand": [{"name": "d", "price_per_kw_month": -10.0}]}, "demand[1].price_per_kw_month"),
+        ({"coincident_peak": [{"name": "cp", "price_per_kw_month": -10.0, "times": ["2025-07-15T17:00:00"]}]},
+         "coincident_peak[1].price_per_kw_month"),
+    ])
+    def test_a_negative_price_on_a_peak_is_warned_that_a_higher_peak_lowers_the_bill(self, clause, key):
+        # Rule: allow_negative_prices lets a negative price through; on a peak it rewards a higher peak
+        tariff, problems = tariff_from_dict({**self.BASE, "tariff": {**self.BASE["tariff"], "allow_negative_prices": True},
+                                             **clause}, source="t.toml")
+        assert tariff is not None
+        found = at(problems, key, "warning")
+        assert len(found) == 1 and found[0].value == -10.0 and "a higher peak would lower the bill" in found[0].rule
+
+    @pytest.mark.parametrize("unit, hint_part, not_in_hint", [
+        ("kw", "or bill the demand in kVA", "already carries"),
+        ("kva", "a kVA demand already carries the power factor", "bill the demand in kVA"),
+    ])
+    def test_a_contract_with_a_pf_adjustment_gets_a_hint_that_fits_the_charge(self, unit, hint_part, not_in_hint):
+        # Rule: a contracted capacity with a power-factor adjustment is not modelled
+        _, problems = tariff_from_dict(
+            {**self.BASE, "demand": [{"name": "d", f"price_per_{unit}_month": 10.0, f"contracted_{unit}": 500.0,
+                                      "power_factor_adjustment": {"method": "ratio", "target_power_factor": 0.9}}]},
+            source="t.toml")
+        found = [p for p in at(problems, f"demand[1].contracted_{unit}", "error") if "not modelled" in p.rule]
+        assert len(found) == 1 and hint_part in found[0].hint and not_in_hint not in found[0].hint
+
+
+def test_dates_and_times_in_messages_are_shown_in_iso_form():
+    # Rule: a value is shown as the user wrote it: TOML dates and date-times in ISO form, not as Python objects
+    text = (HEAD.replace("[[periods]]", '[calendar]\nholidays = [2025-07-15, 2025-07-15T01:00:00]\n[[periods]]')
+            + PEAK + "times = [2025-07-15T17:00:00+02:00]\n")
+    text = text.replace("price_per_kwh = { all = 0.1 }", "price_per_kwh = { all = 2025-01-01 }")
+    _, problems = load(text)
+    shown = {p.column: str(p) for p in problems}
+    assert "(value: 2025-07-15T17:00:00+02:00)" in shown["coincident_peak[1].times"]
+    assert "(value: [2025-07-15, 2025-07-15T01:00:00])" in shown["calendar.holidays"]
+    assert "(value: {all = 2025-01-01})" in shown["energy.price_per_kwh"]
+    assert not any("datetime." in s for s in shown.values())
+    # the value the problem carries (a table or an export shows it as it stands) is the text as written too
+    values = {p.column: p.value for p in problems}
+    assert str(values["coincident_peak[1].times"]) == "2025-07-15T17:00:00+02:00"
+    assert [p.as_dict()["value"] for p in problems if p.column == "coincident_peak[1].times"] == ["2025-07-15T17:00:00+02:00"]
