@@ -2170,19 +2170,22 @@ _TOML_TABLE_OF_FILE = {"case.toml": "case", "finance.toml": "finance"}
 
 
 def _with_toml_lines(raw: io.RawCase, problems: list[Problem]) -> list[Problem]:
-    """Problems on a key of a case folder's TOML file (case.toml, finance.toml, tariffs/*.toml) with the line
-    where the file writes the key (or, for a key left out, its entry or table): the row of the message."""
+    """Problems on a key of a case folder's TOML file (case.toml, finance.toml, tariffs/*.toml), or of a
+    workbook's tariff sheet, with the line where the file writes the key (or, for a key left out, its entry or
+    table): the row of the message (in a sheet, a line is a row)."""
     from models.tariff import key_line
 
-    if raw.kind != "folder":
+    if raw.kind not in ("folder", "workbook"):
         return problems
-    texts: dict[str, str | None] = {}
+    # a workbook's tariff sheets: their texts as read, a line a row (models.io.SHEET_TEXTS_KEY)
+    texts: dict[str, str | None] = dict(raw.extra.get(io.SHEET_TEXTS_KEY, {})) if raw.kind == "workbook" else {}
     out = []
     for p in problems:
         if p.row is None and p.column and p.file.lower().endswith(".toml"):
             if p.file not in texts:
                 try:
-                    texts[p.file] = (Path(raw.path) / p.file).read_text(encoding="utf-8-sig")
+                    texts[p.file] = ((Path(raw.path) / p.file).read_text(encoding="utf-8-sig") if raw.kind == "folder"
+                                     else None)
                 except (OSError, UnicodeDecodeError):
                     texts[p.file] = None
             text = texts[p.file]

@@ -874,8 +874,10 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
         case.problems += found
     for key, name in sheets.items():
         if key.startswith("tariff"):
-            text = "\n".join(str(r[0]) for r in book[name].iter_rows(values_only=True) if r and r[0] is not None)
+            # one line per sheet row (a blank cell an empty line), so that a line of the text is a row of the sheet
+            text = "\n".join("" if not r or r[0] is None else str(r[0]) for r in book[name].iter_rows(values_only=True))
             file_name = name.split(" ", 1)[1].strip() if " " in name else f"{name}.toml"
+            case.extra.setdefault(SHEET_TEXTS_KEY, {})[f"{path.name}:{name}"] = text
             data, problems = parse_toml_text(text, f"{path.name}:{name}", hint="each row of column A holds one line of the tariff file")
             case.problems += problems
             if has_errors(problems):
@@ -983,6 +985,9 @@ def _percent_format(number_format: object) -> bool:
     return "%" in re.sub(r'"[^"]*"|\\.', "", number_format)
 
 
+#: Key of :attr:`RawCase.extra` under which a workbook keeps the TOML text of each tariff sheet, by the name its
+#: problems give (``book.xlsx:tariff flat.toml``): line n of a text is row n of its sheet.
+SHEET_TEXTS_KEY = "sheet toml texts"
 #: Key under which a scenario read from a workbook sheet carries its row number (problems name the row).
 #: Not a string, so no key of a TOML table or a sheet's header can be mistaken for it.
 SHEET_ROW_KEY = ("sheet", "row")

@@ -186,3 +186,26 @@ def test_dates_and_times_in_messages_are_shown_in_iso_form():
     values = {p.column: p.value for p in problems}
     assert str(values["coincident_peak[1].times"]) == "2025-07-15T17:00:00+02:00"
     assert [p.as_dict()["value"] for p in problems if p.column == "coincident_peak[1].times"] == ["2025-07-15T17:00:00+02:00"]
+
+
+def test_a_workbook_tariff_sheet_s_problem_names_its_row(tmp_path):
+    # a tariff sheet's column A holds one line of the file per row: a problem on a key names the row it is on,
+    # blank rows counted (as the folder form names the line)
+    from openpyxl import load_workbook
+
+    import casebuilder as cb
+    from models.case import load_case
+
+    book = cb.write_workbook(tmp_path / "case.xlsx")
+    wb = load_workbook(book)
+    sheet = wb.create_sheet("tariff flat.toml")
+    lines = cb.FLAT_TARIFF.splitlines() + ["", "[[coincident_peak]]", 'name = "cp"', "price_per_kw_month = -5",
+                                           "times = [2025-07-15T17:00:00]"]
+    for k, line in enumerate(lines, start=1):
+        sheet.cell(k, 1, line or None)
+    tariff_sheet = "tariff flat.toml"
+    rows = lines[:-4]
+    wb.save(book)
+    case, problems = load_case(book)
+    found = [p for p in problems if p.column == "coincident_peak[1].price_per_kw_month" and p.severity == "error"]
+    assert found and found[0].file == f"case.xlsx:{tariff_sheet}" and found[0].row == len(rows) + 3  # price line
