@@ -1879,10 +1879,14 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
-    if tables is not None and assumptions is not None:
-        named, scenario_problems = read_scenarios(tables, flat, scenario_source)
+    if tables is not None:
+        # with the case's own assumptions in error the scenarios are still checked (against the defaults), so that
+        # every problem shows in one pass; none of them is kept (the case does not load)
+        base = flat if assumptions is not None else ({"currency": settings.currency} if _valid_currency(settings.currency)
+                                                     else {})
+        named, scenario_problems = read_scenarios(tables, base, scenario_source)
         problems.extend(scenario_problems)
-        if scenarios is not None:
+        if scenarios is not None and assumptions is not None:
             scenarios.extend(named)
     if assumptions is not None:
         from models.comparison import finance_checks

@@ -140,3 +140,13 @@ def test_a_scenarios_file_not_in_utf8_is_told_to_be_saved_as_utf8_text(tmp_path)
     assert case is not None
     found = [p for p in problems if p.file == "scenarios.toml" and "not UTF-8" in p.rule]
     assert found and found[0].hint == "save it as UTF-8 text to be sure accented text is read as intended"
+
+
+def test_a_scenario_s_problem_shows_beside_an_error_of_the_case_s_own_assumptions(tmp_path):
+    # every problem in one pass: the case's discount rate and the scenario's unknown key together
+    folder = _folder_with(tmp_path, '[[scenarios]]\nname = "A"\nfoo = 1\n')
+    (folder / "finance.toml").write_text("discount_rate_frac = 5\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    errors = {(p.file, p.column) for p in problems if p.severity == "error"}
+    assert ("finance.toml", "discount_rate_frac") in errors and ("scenarios.toml", "scenarios[1].foo") in errors
