@@ -14,6 +14,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from models import scenario
@@ -292,3 +293,14 @@ def test_another_runtime_error_of_a_site_is_not_swallowed(fleet, cluster, monkey
     monkeypatch.setattr(distributed.Future, "result", broken)
     with pytest.raises(RuntimeError, match="a site's own failure"):
         run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+
+
+def test_the_month_changes_come_into_service_reaches_the_workers(fleet, fleet_local, cluster):
+    # the synthetic fleet's ratchet tariffs read the months before a change: with the changes in service from
+    # August the Dask engine prices the same first years as the local one
+    moved = replace(fleet, settings=replace(fleet.settings, in_service_month=8))
+    local = scenario.run(moved, moved.finance, with_risk=False)
+    assert (local.results["ratchet_shortfall"].abs() > 0.5).any()  # (the fleet has ratchet sites)
+    assert not np.allclose(local.results["ratchet_shortfall"], fleet_local.results["ratchet_shortfall"])  # (the month told)
+    remote = run_distributed(moved, moved.finance, scheduler=cluster.scheduler_address, with_risk=False)
+    _assert_same_files(local, remote)
