@@ -1010,7 +1010,9 @@ FORM_FIELDS = {"discount_rate_pct": "Discount rate", "escalation_energy_pct": "E
 #: must stay above -100 %; a price level of a million per cent only prints meaningless figures). A design
 #: choice of this tool; finance.toml itself takes the wider ranges of FinanceAssumptions.
 FORM_RANGES = {"discount_rate_pct": (-20.0, 100.0), "escalation_energy_pct": (-50.0, 50.0), "horizon_yr": (1.0, 100.0),
-               "energy_price_level_pct": (1.0, 10_000.0), "capital_cost_level_pct": (1.0, 10_000.0)}
+               # the price levels' bounds in % (models.finance.PRICE_LEVEL_BOUNDS, as fractions)
+               "energy_price_level_pct": tuple(100.0 * b for b in finance.PRICE_LEVEL_BOUNDS),
+               "capital_cost_level_pct": tuple(100.0 * b for b in finance.PRICE_LEVEL_BOUNDS)}
 
 
 def _form_field_problem(name: str, value) -> str:
@@ -1114,7 +1116,7 @@ def in_service(view_: View, result) -> str:
     return in_service_words(view_.case, result)
 
 
-def ratchet_text(result, asset_id: str, currency: str, in_service: str = "the profiles' first month") -> str:
+def ratchet_text(result, asset_id: str, currency: str, in_service: str = "the analysis year's first month") -> str:
     """What the Asset page says where a demand ratchet holds back an option's first years ("" where none
     does): the largest shortfall among the asset's options, the change in service from the start of the month
     ``in_service`` names (:func:`models.pack.content.in_service_words`; docs/finance.md, section 4)."""
@@ -1130,7 +1132,7 @@ def ratchet_text(result, asset_id: str, currency: str, in_service: str = "the pr
             f"service, longer for a look-back over 12 months): {rows['label'].iloc[i]} saves "
             f"{money_text(float(short[i]), currency)} less in all than the yearly saving shown (the NPVs and paybacks "
             f"count it within the horizon), in service from the start of {in_service}. The month moves it: a change "
-            "made just before the month of today's peak holds back least (in_service_month in case.toml).")
+            "made just before the month of today's peak holds back least (the case setting in_service_month).")
 
 
 def measure_text(view_: View, result, asset_id: str) -> str:

@@ -627,6 +627,8 @@ def service_start(cal: "_Calendar", in_service_month: int | None) -> int:
     ``in_service_month`` (1-12; None: the series' first month) begins."""
     if in_service_month is None:
         return 0
+    if isinstance(in_service_month, bool) or not float(in_service_month).is_integer() or not 1 <= in_service_month <= 12:
+        raise ValueError(f"in_service_month must be a whole month number from 1 to 12, not {in_service_month!r}")
     for m, label in enumerate(cal.month_labels):
         if int(label[5:7]) == int(in_service_month):
             return m
@@ -926,6 +928,9 @@ def bill(
     _check_repeat(cal, repeat_year)
     if not (isinstance(year_after, int) and year_after >= 1):
         raise ValueError("year_after counts the years after the change from 1")
+    if in_service_month is not None and (isinstance(in_service_month, bool) or not isinstance(in_service_month, (int, np.integer))
+                                         or not 1 <= in_service_month <= 12):
+        raise ValueError(f"in_service_month must be a whole month number from 1 to 12, not {in_service_month!r}")
     before = None
     if (before_p_kw is None) != (before_q_kvar is None):
         raise ValueError("the year before a change needs both before_p_kw and before_q_kvar")
@@ -934,7 +939,8 @@ def bill(
         bq = _as_2d(before_q_kvar, cal.n_steps, "before_q_kvar")
         if repeats_year(cal.n_months, repeat_year):
             before = ratchet_history(tariff, cal, bp, bq)
-    items = _bill_items(tariff, cal, p, q, repeat_year, before, service_start(cal, in_service_month))
+    start = service_start(cal, in_service_month) if before is not None else 0  # (read only with the year before)
+    items = _bill_items(tariff, cal, p, q, repeat_year, before, start)
     rows = []
     for m, label in enumerate(cal.month_labels):
         for it in items:

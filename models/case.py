@@ -96,7 +96,7 @@ class CaseSettings:
     #: False when the case gave no purchase date and the day of the run was taken.
     purchase_date_declared: bool = True
     #: Calendar month (1-12) at whose start the changes come into service: where a demand ratchet still
-    #: reads the months before a change, its first years depend on it (None: the profiles' first month).
+    #: reads the months before a change, its first years depend on it (None: the analysis year's first month).
     in_service_month: int | None = None
 
     @property
@@ -703,11 +703,13 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
         number = in_service if isinstance(in_service, int) and not isinstance(in_service, bool) else None
         if isinstance(in_service, float) and in_service.is_integer():
             number = int(in_service)  # (a workbook cell holds numbers as floats)
+        if isinstance(in_service, str) and in_service.strip().isdigit():
+            number = int(in_service.strip())  # (a number written as text, as the finance settings accept)
         if number is None or not 1 <= number <= 12:
             problems.append(error(source, None, "in_service_month", in_service,
                                   "in_service_month must be a whole month number from 1 (January) to 12 (December)",
-                                  "the month the changes come into service, e.g. 4 for April; leave it out for the "
-                                  "profiles' first month"))
+                                  "the month the changes come into service, e.g. 4 for April; leave it out for "
+                                  "January, the analysis year's first month"))
         in_service = number if number is not None and 1 <= number <= 12 else None
     return CaseSettings(
         in_service_month=in_service,
@@ -1673,6 +1675,19 @@ def _peak_time_miss(time: tuple[int, int, int, int], years: range, zone) -> tupl
     return "; ".join(reasons), " ".join(hints)
 
 
+def _check_in_service_month_read(tariffs: dict, settings: CaseSettings, sites: pd.DataFrame, raw: io.RawCase,
+                                 problems: list[Problem]) -> None:
+    """Warn of an ``in_service_month`` that nothing reads: only a demand ratchet of a site's tariff does."""
+    if settings.in_service_month is None or "tariff_file" not in sites:
+        return
+    used = set(sites["tariff_file"].dropna().astype(str))
+    if not any(getattr(d, "ratchet_frac", None) is not None for name, t in tariffs.items() if name in used
+               for d in getattr(t, "demand", ())):
+        problems.append(warning(raw.settings_source, None, "in_service_month", settings.in_service_month,
+                                "no site's tariff has a demand ratchet, the one charge the month of the change moves: "
+                                "the setting changes nothing", "leave it out, or check the sites' tariffs"))
+
+
 def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
                               sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
     """Warn of each coincident-peak time that cannot be placed in the analysis series (a 29 February in a year
@@ -1880,10 +1895,10 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
     if tables is not None:
-        # with the case's own assumptions in error the scenarios are still checked (against the defaults), so that
-        # every problem shows in one pass; none of them is kept (the case does not load)
-        base = flat if assumptions is not None else ({"currency": settings.currency} if _valid_currency(settings.currency)
-                                                     else {})
+        # with the case's own assumptions in error the scenarios are still checked, against the case's keys less
+        # those in error, so that every problem shows in one pass; none of them is kept (the case does not load)
+        wrong = {p.column for p in finance_problems if p.severity == "error"}
+        base = flat if assumptions is not None else {k: v for k, v in flat.items() if k not in wrong}
         named, scenario_problems = read_scenarios(tables, base, scenario_source)
         problems.extend(scenario_problems)
         if scenarios is not None and assumptions is not None:
@@ -2124,6 +2139,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
                                 raw, problems)
         _check_peak_times_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                   raw, problems)
+        _check_in_service_month_read(tariffs, settings, checkers["sites"].frame, raw, problems)
     if "assets" in checkers:
         _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
         _check_rules_ahead(settings, raw.settings_source, checkers["assets"].frame, problems)
@@ -2181,10 +2197,17 @@ def _with_toml_lines(raw: io.RawCase, problems: list[Problem]) -> list[Problem]:
 
     if raw.kind not in ("folder", "workbook"):
         return problems
-    # a workbook's tariff sheets: their texts as read, a line a row (models.io.SHEET_TEXTS_KEY)
-    texts: dict[str, str | None] = dict(raw.extra.get(io.SHEET_TEXTS_KEY, {})) if raw.kind == "workbook" else {}
+    # a workbook's tariff sheets: their texts as read, with each line's row (models.io.SHEET_TEXTS_KEY)
+    sheets: dict = dict(raw.extra.get(io.SHEET_TEXTS_KEY, {})) if raw.kind == "workbook" else {}
+    texts: dict[str, str | None] = {}
     out = []
     for p in problems:
+        if p.file in sheets:  # a line of the sheet's text (as written or found by its key) to its sheet row
+            named, text, rows_of_line = sheets[p.file]
+            line = p.row if p.row is not None else (key_line(text, p.column) if p.column else None)
+            row = rows_of_line[line - 1] if line is not None and 1 <= line <= len(rows_of_line) else None
+            out.append(replace(p, file=named, row=row))
+            continue
         if p.row is None and p.column and p.file.lower().endswith(".toml"):
             if p.file not in texts:
                 try:

@@ -248,7 +248,8 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
         name = table.get("name")
         if name is not None and not isinstance(name, str):
             problems.append(error(source, None, f"{at}.name", name, "a scenario's name must be text",
-                                  f'write it in quotes, e.g. name = "{name}"'))
+                                  f'write it as text: in quotes in a TOML file (name = "{name}"), or a cell formatted '
+                                  "as text on a sheet"))
             continue
         if not isinstance(name, str) or not name.strip():
             problems.append(error(source, None, f"{at}.name", name, "a scenario needs a name",

@@ -375,7 +375,7 @@ def run_settings(result, settings) -> pd.DataFrame:
             ("purchase_date", settings.purchase_date, "the day those rules are read on (the day of the run when the case gives none)"),
             ("in_service_month", "" if getattr(settings, "in_service_month", None) is None else settings.in_service_month,
              "calendar month at whose start the changes come into service, for a demand ratchet's first years "
-             "(blank: the profiles' first month)"),
+             "(blank: the analysis year's first month)"),
             ("currency", settings.currency, "currency of every money column"),
             ("power_unit", settings.power_unit, "power unit the case displays (result files are in kW; results.csv adds rated_p_hp for a case in hp)"),
             ("time_zone", settings.time_zone, "time zone of the load profiles and tariff periods")]

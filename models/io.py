@@ -36,7 +36,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from models.problems import MISSING_TABLE_RULE, Problem, error, has_errors, warning
+from models.problems import MISSING_TABLE_RULE, Problem, error, has_errors, misspelt_name, warning
 from models.wording import counted
 
 PACKAGE_DIR = Path(__file__).resolve().parent
@@ -834,15 +834,18 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
             # a near miss of a sheet the workbook lacks would drop what it holds: an error, as a misspelt
             # table of a tariff is
             missing = sorted(k for k in known - set(sheets) if k not in ("instructions", "read me", "readme"))
-            close = difflib.get_close_matches(key, missing, n=1, cutoff=0.8)
-            if close:
+            meant = misspelt_name(key, missing)
+            if meant is not None:
                 case.problems.append(error(f"{path.name}:{name}", None, None, None,
-                                           f"sheet name not part of the case format: did you mean '{close[0]}'? "
+                                           f"sheet name not part of the case format: did you mean '{meant}'? "
                                            "As written, nothing on it would be read",
-                                           f"rename the sheet '{close[0]}'; {listed}"))
+                                           f"rename the sheet '{meant}'; {listed}"))
             else:
+                close = difflib.get_close_matches(key, missing, n=1, cutoff=0.8)
                 case.problems.append(warning(f"{path.name}:{name}", None, None, None,
-                                             "sheet not part of the case format; it was ignored", listed))
+                                             "sheet not part of the case format; it was ignored",
+                                             (f"if it holds the {close[0]} sheet, name it '{close[0]}'; " if close else "")
+                                             + listed))
     for table in CASE_TABLES:
         if table_key[table] not in sheets:
             continue
@@ -874,10 +877,19 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
         case.problems += found
     for key, name in sheets.items():
         if key.startswith("tariff"):
-            # one line per sheet row (a blank cell an empty line), so that a line of the text is a row of the sheet
-            text = "\n".join("" if not r or r[0] is None else str(r[0]) for r in book[name].iter_rows(values_only=True))
+            # each row of column A its line(s) of the text (a blank cell an empty line), and each line's row kept
+            lines: list[str] = []
+            rows_of_line: list[int] = []
+            for number, r in enumerate(book[name].iter_rows(values_only=True), start=1):
+                cell_lines = ("" if not r or r[0] is None else str(r[0])).split("\n")
+                lines += cell_lines
+                rows_of_line += [number] * len(cell_lines)
+            text = "\n".join(lines)
             file_name = name.split(" ", 1)[1].strip() if " " in name else f"{name}.toml"
-            case.extra.setdefault(SHEET_TEXTS_KEY, {})[f"{path.name}:{name}"] = text
+            sheet_text = (f"{path.name}:{name}", text, tuple(rows_of_line))
+            texts = case.extra.setdefault(SHEET_TEXTS_KEY, {})
+            texts[f"{path.name}:{name}"] = sheet_text  # as the problems of reading it name it
+            texts[f"{path.name}:tariff {file_name}"] = sheet_text  # as the tariff's checks name it
             data, problems = parse_toml_text(text, f"{path.name}:{name}", hint="each row of column A holds one line of the tariff file")
             case.problems += problems
             if has_errors(problems):
@@ -985,8 +997,9 @@ def _percent_format(number_format: object) -> bool:
     return "%" in re.sub(r'"[^"]*"|\\.', "", number_format)
 
 
-#: Key of :attr:`RawCase.extra` under which a workbook keeps the TOML text of each tariff sheet, by the name its
-#: problems give (``book.xlsx:tariff flat.toml``): line n of a text is row n of its sheet.
+#: Key of :attr:`RawCase.extra` under which a workbook keeps each tariff sheet's TOML text, by the names its
+#: problems give (``book.xlsx:Tariff flat.toml`` as the sheet is named, ``book.xlsx:tariff flat.toml`` as the
+#: tariff's checks name it): (the sheet as named, the text, the sheet row of each line of the text).
 SHEET_TEXTS_KEY = "sheet toml texts"
 #: Key under which a scenario read from a workbook sheet carries its row number (problems name the row).
 #: Not a string, so no key of a TOML table or a sheet's header can be mistaken for it.
@@ -1225,7 +1238,7 @@ def read_scenario_tables(raw: "RawCase") -> tuple[list | None, str, list[Problem
 
         finance_keys = {f for f in FinanceAssumptions.__dataclass_fields__}
         for key in sorted(k for k in data if k != "scenarios"):
-            if normalise_header(key).replace(" ", "") in ("scenarios", "scenario"):
+            if misspelt_name(key, ["scenarios"]) is not None:
                 # a misspelt table name would drop every scenario in it
                 problems.append(error(path.name, None, key, None,
                                       "scenarios.toml holds [[scenarios]] tables: did you mean 'scenarios'? As "
@@ -1357,7 +1370,7 @@ time_zone = "Europe/Berlin"
 # Whose minimum-efficiency rules apply to new motors: "EU", "US", "CN" or "OTHER".
 region = "EU"
 # Month (1-12) at whose start the changes come into service; under a demand ratchet the first years'
-# savings depend on it. Left out: the load profiles' first month.
+# savings depend on it. Left out: the analysis year's first month, January.
 # in_service_month = 4
 """
 

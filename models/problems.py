@@ -240,3 +240,38 @@ def fixed_offset_hint(zone: str) -> str | None:
         return "if the site keeps summer time, name its place instead, e.g. America/Chicago or Europe/Berlin"
     return None
 
+
+def misspelt_name(word: object, choices: Iterable[str]) -> str | None:
+    """The one of ``choices`` that ``word`` is a misspelling of, or None: equal once capitals, spaces,
+    underscores, hyphens and a plural s are set aside, or one letter added, dropped or changed. A name that
+    differs by more, or by a digit ("scenarios 2"), is taken as a name of its own.
+
+    Examples
+    --------
+    >>> misspelt_name("Scenario", ["scenarios"]), misspelt_name("senarios", ["scenarios"])
+    ('scenarios', 'scenarios')
+    >>> misspelt_name("Scenarios 2", ["scenarios"]), misspelt_name("Bill history notes", ["bill history"])
+    (None, None)
+    """
+    def fold(text: object) -> str:
+        folded = re.sub(r"[\s_\-]+", "", str(text).casefold())
+        return folded[:-1] if folded.endswith("s") else folded
+
+    def one_letter_apart(a: str, b: str) -> bool:
+        if abs(len(a) - len(b)) > 1 or a == b:
+            return a == b
+        i = 0
+        while i < min(len(a), len(b)) and a[i] == b[i]:
+            i += 1
+        rest_a, rest_b = a[i:], b[i:]
+        if len(a) == len(b):
+            changed = (rest_a[0], rest_b[0])
+            return rest_a[1:] == rest_b[1:] and all(ch.isalpha() for ch in changed)
+        longer, shorter = (rest_a, rest_b) if len(a) > len(b) else (rest_b, rest_a)
+        return longer[1:] == shorter and longer[0].isalpha()
+
+    target = fold(word)
+    for choice in choices:
+        if one_letter_apart(target, fold(choice)):
+            return choice
+    return None

@@ -90,10 +90,10 @@ def in_service_text(in_service_month: int | None, first_month: int | None = None
     Examples
     --------
     >>> in_service_text(8), in_service_text(None, 1), in_service_text(None)
-    ('August', "January (the profiles' first month)", "the profiles' first month")
+    ('August', "January (the analysis year's first month)", "the analysis year's first month")
     """
     if in_service_month is not None:
         return MONTH_NAMES[int(in_service_month) - 1]
     if first_month is None:
-        return "the profiles' first month"
-    return f"{MONTH_NAMES[int(first_month) - 1]} (the profiles' first month)"
+        return "the analysis year's first month"
+    return f"{MONTH_NAMES[int(first_month) - 1]} (the analysis year's first month)"

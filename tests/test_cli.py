@@ -213,7 +213,7 @@ def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
     settings = pd.read_csv(tmp_path / "a" / "run_settings.csv", dtype=str, keep_default_na=False).set_index("setting")
     assert settings.loc["purchase_date", "value"] == "2027-06-01"
     assert settings.loc["region", "value"] == "EU"
-    assert settings.loc["in_service_month", "value"] == ""  # the demo gives none: the profiles' first month
+    assert settings.loc["in_service_month", "value"] == ""  # the demo gives none: the analysis year's first month
     assert settings.loc["invented", "value"] == "true"
     assert settings.loc["finance.discount_rate_frac", "value"] == "0.08"
     assert settings.loc["finance.monte_carlo_seed", "value"] == "7"

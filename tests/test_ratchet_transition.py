@@ -293,8 +293,8 @@ def test_the_asset_page_and_the_record_say_the_first_year_saves_less(july_pump_c
     assert ("While the site's demand ratchet still bills today's peaks (the first year in service, longer for a "
             f"look-back over 12 months) it saves {content.money(short, 'EUR')} less in all") in reasons
     # the month it is taken to come into service: the case gives none, so the profiles' first (January 2025)
-    assert content.in_service_words(case, result) == "January (the profiles' first month)"
-    assert "in service from the start of January (the profiles' first month)" in reasons
+    assert content.in_service_words(case, result) == "January (the analysis year's first month)"
+    assert "in service from the start of January (the analysis year's first month)" in reasons
     moved = replace(case, settings=replace(case.settings, in_service_month=8))
     assert content.in_service_words(moved, result) == "August"
     assert "in service from the start of August. The month moves it" in services.ratchet_text(result, "P1", "EUR", "August")
@@ -521,6 +521,7 @@ class TestMonthOfTheChange:
         # against 6 x 0.8 x dP x c from January (billing-demand.md case D8, "In symbols")
         case, result = july_pump_case
         january = result.results.set_index("option_id")["ratchet_shortfall"]
+        assert (january > 0.5).any()  # (some option is held back from January)
         for month, months_read in ((7, 0), (8, 11)):
             moved = replace(case, settings=replace(case.settings, in_service_month=month))
             shortfall = scenario.run(moved, moved.finance, with_risk=False).results.set_index("option_id")["ratchet_shortfall"]
@@ -567,3 +568,39 @@ def test_the_pack_says_when_the_changes_come_into_service_where_a_ratchet_reads_
     sheet = load_workbook(BytesIO(build_workbook(moved, result, scope)))["Assumptions"]
     cells = [[c.value for c in r] for r in sheet.iter_rows()]
     assert any(r[0] == "changes in service from" and str(r[1]).startswith("the start of April (") for r in cells)
+
+
+def test_a_month_nothing_reads_is_warned(tmp_path):
+    # the small case's sites have no tariff with a ratchet: the setting would change nothing
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.with_flat_tariff(cb.write_case(tmp_path / "case", case_toml='[case]\nname = "m"\ntime_zone = "Europe/Berlin"\n'
+                                                                            "in_service_month = 8\n"))
+    case, problems = load_case(folder)
+    assert case is not None
+    found = [p for p in problems if p.column == "in_service_month"]
+    assert found and found[0].severity == "warning" and "changes nothing" in found[0].rule
+
+
+def test_a_series_from_april_places_the_month_of_the_change_by_its_name():
+    # billing-demand.md case D8, "The month of the change", on a typical year written from April to March: the
+    # months are the same, shown in the series' order. August, 11-month look-back: April to June and August to
+    # March read the July before the change (160 kW), July reads the months with the option (100 kW): 18 600.
+    index = pd.date_range("2025-04-01", "2026-04-01", freq="h", tz="UTC", inclusive="left")
+    t = _tariff(RATCHET)
+    flat = np.full(len(index), 100.0)
+    before = np.where(index.month == 7, 200.0, 100.0)
+    first = bill(t, index, flat, 0 * flat, repeat_year=None, before_p_kw=before, before_q_kvar=0 * flat,
+                 in_service_month=8)
+    assert first["month"].iloc[0] == "2025-04"
+    assert_allclose(first.groupby("month", sort=False)["quantity"].sum().to_numpy(), [160.0] * 3 + [100.0] + [160.0] * 8,
+                    **EXACT)
+    assert_allclose(first["amount"].sum(), 18_600.0, **EXACT)
+
+
+@pytest.mark.parametrize("month", [0, 13, 8.5, True])
+def test_bill_refuses_a_month_that_is_none(year, month):
+    flat = np.full(len(year), 100.0)
+    with pytest.raises(ValueError, match="in_service_month"):
+        bill(_tariff(RATCHET), year, flat, 0 * flat, in_service_month=month)

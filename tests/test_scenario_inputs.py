@@ -150,3 +150,29 @@ def test_a_scenario_s_problem_shows_beside_an_error_of_the_case_s_own_assumption
     assert case is None
     errors = {(p.file, p.column) for p in problems if p.severity == "error"}
     assert ("finance.toml", "discount_rate_frac") in errors and ("scenarios.toml", "scenarios[1].foo") in errors
+
+
+def test_the_scenarios_beside_an_error_are_checked_against_the_case_s_other_keys(tmp_path):
+    # the case's horizon of 30 years stands although another of its keys is in error: a scenario's 25 budget years
+    # fit within it (no warning against the default horizon)
+    budgets = ", ".join(["1000"] * 25)
+    folder = _folder_with(tmp_path, f'[[scenarios]]\nname = "A"\nbudget_per_yr = [{budgets}]\n')
+    (folder / "finance.toml").write_text("horizon_yr = 30\ngrid_co2_kg_per_kwh = 5\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    assert [p for p in problems if p.column == "grid_co2_kg_per_kwh" and p.severity == "error"]
+    assert not [p for p in problems if p.file == "scenarios.toml" and "horizon" in p.rule]
+
+
+def test_a_table_one_letter_off_is_an_error_too(tmp_path):
+    case, problems = load_case(_folder_with(tmp_path, '[[senarios]]\nname = "A"\ndiscount_rate_frac = 0.06\n'))
+    assert case is None and _found(problems, "error", "did you mean 'scenarios'?")
+
+
+@pytest.mark.parametrize("title", ["Scenarios 2", "Bill history notes", "old scenarios"])
+def test_a_sheet_of_a_name_of_its_own_is_warned_not_refused(tmp_path, title):
+    book = _book_with_sheet(tmp_path, [["name", "discount_rate_frac"], ["A", 0.06]], title=title)
+    case, problems = load_case(book)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    found = [p for p in problems if p.file == f"case.xlsx:{title}"]
+    assert found and found[0].severity == "warning" and "ignored" in found[0].rule

@@ -80,7 +80,7 @@ class TestPeakTimesThatCannotBePlaced:
         assert str(found[0].value) == "2025-03-30T02:00:00"
 
     def test_times_that_can_be_placed_are_not_warned(self, tmp_path):
-        # 26 October 2025 02:30 is in the hour the clocks repeat: it exists (twice) and is billed
+        # 26 October 2025 02:00 is in the hour the clocks repeat: it exists (twice) and is billed
         assert case_with(tmp_path, "[2025-07-15T17:00:00, 2025-10-26T02:00:00, 2019-01-02T10:00:00]") == []
 
     def test_the_left_out_times_do_not_change_the_bill(self):
@@ -209,3 +209,24 @@ def test_a_workbook_tariff_sheet_s_problem_names_its_row(tmp_path):
     case, problems = load_case(book)
     found = [p for p in problems if p.column == "coincident_peak[1].price_per_kw_month" and p.severity == "error"]
     assert found and found[0].file == f"case.xlsx:{tariff_sheet}" and found[0].row == len(rows) + 3  # price line
+
+
+def test_a_tariff_sheet_named_in_capitals_with_a_cell_of_two_lines_names_the_sheet_and_row(tmp_path):
+    # sheets are matched in any capitals; a cell holding two lines of the file shifts no later row
+    from openpyxl import load_workbook
+
+    import casebuilder as cb
+    from models.case import load_case
+
+    book = cb.write_workbook(tmp_path / "case.xlsx")
+    wb = load_workbook(book)
+    sheet = wb.create_sheet("Tariff flat.toml")
+    lines = cb.FLAT_TARIFF.splitlines()
+    lines[1:3] = [lines[1] + "\n" + lines[2]]  # two lines of the file in one cell
+    lines += ["[[coincident_peak]]", 'name = "cp"', "price_per_kw_month = -5", "times = [2025-07-15T17:00:00]"]
+    for k, line in enumerate(lines, start=1):
+        sheet.cell(k, 1, line or None)
+    wb.save(book)
+    case, problems = load_case(book)
+    found = [p for p in problems if p.column == "coincident_peak[1].price_per_kw_month" and p.severity == "error"]
+    assert found and found[0].file == "case.xlsx:Tariff flat.toml" and found[0].row == len(lines) - 1  # the price row

@@ -547,7 +547,7 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 def in_service_words(case, result) -> str:
     """The month the case's changes are taken to come into service, in words (its ``in_service_month``, else the
-    load profiles' first month): where a demand ratchet still reads the months before a change, the month
+    analysis year's first month, January): where a demand ratchet still reads the months before a change, the month
     moves the first years' savings (docs/finance.md, section 4)."""
     op = getattr(getattr(result, "physics", None), "operation", None)
     first = int(op.index[0].month) if op is not None and len(op.index) else None
@@ -565,7 +565,9 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
             ("Purchase date (rules read on)", str(s.purchase_date),
              "as the case gives it" if getattr(s, "purchase_date_declared", True) else
              "the day of the run (the case gives none): a run on another day can read other rules")]
-    if any(d.ratchet_frac is not None for t in (getattr(case, "tariffs", {}) or {}).values() for d in t.demand):
+    tariffs = getattr(case, "tariffs", {}) or {}
+    used = set(case.sites["tariff_file"].dropna().astype(str)) if "tariff_file" in case.sites else set(tariffs)
+    if any(d.ratchet_frac is not None for name, t in tariffs.items() if name in used for d in t.demand):
         rows.append(("Changes in service from", f"the start of {in_service_words(case, result)}",
                      "a demand ratchet still reads the months before a change: the first years' savings depend on "
                      "the month (case setting in_service_month)"))
@@ -909,8 +911,8 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 f"alone, in service from the start of {in_service_words(case, result)}; counted in the NPVs and "
                 "paybacks within the horizon)", asset_list_text(ids),
                 "Tell the approvers that the demand saving shows in full on the bills only once today's peaks leave "
-                "the ratchet's look-back; the month the change comes into service moves it (in_service_month in "
-                "case.toml: a change made just before the month of today's peak holds back least); confirm the "
+                "the ratchet's look-back; the month the change comes into service moves it (the case setting "
+                "in_service_month: a change made just before the month of today's peak holds back least); confirm the "
                 "ratchet's terms with the utility.")
     # the assets whose decision stands to gain most from measuring them first (value of information)
     from models.information import measure_first_of
