@@ -111,8 +111,8 @@ class TestOptionSavings:
     def test_equivalent_bank_of_a_saving_that_removes_the_whole_charge(self):
         # hand calculation, A1: the excess charge is 0.20 EUR per kVAr up to 27 kVAr, 5.40 EUR in all; a saving of
         # 5.40 summed in another order (a rounding above the bank curve's plateau) needs the 27 kVAr bank, not
-        # the 60 kVAr that takes the site to unity power factor (an audit found the latter; the grid may return
-        # up to one step, 60 / 256 kVAr, above 27). A saving clearly above the plateau still returns 60.
+        # the 60 kVAr that takes the site to unity power factor (the search must stop at the plateau; the grid may
+        # return up to one step, 60 / 256 kVAr, above 27). A saving clearly above the plateau still returns 60.
         idx, p, q, _, _ = a1_inputs()
         whole = 5.40 * (1.0 + 1e-13)
         got = equivalent_capacitor_bank_q_kvar(load(A1), idx, p, q, [whole, 5.40, 6.0])

@@ -212,7 +212,7 @@ class TestAssetRules:
     def test_rating_header_in_watts_is_one_message_with_the_conversion(self, tmp_path):
         # docs/case-format.md, "Reading rules", Headers: "A header in W (`Rated power (W)`) is one error, whose
         # hint is the conversion ... no hint suggests renaming such a header alone, which would read watts as
-        # kilowatts". Audit reproduction /tmp/bad/watts: a hint "head it 'rated_p_kw'" beside the conversion.
+        # kilowatts". So no second hint "head it 'rated_p_kw'" appears beside the conversion.
         header = ["Rated power (W)" if h == "rated_p_kw" else h for h in cb.ASSET_HEADER]
         rows = [r[:4] + [str(float(r[4]) * 1000)] + r[5:] for r in cb.ASSETS]  # 15 kW written 15000.0 W
         case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))

@@ -182,10 +182,10 @@ class TestAsset:
         assert list(fig.data[0].marker.pattern.shape) == ["", "", "/", "x"]
         assert len(set(fig.data[0].marker.color)) == 4
         # one background colour for the hatching (left unset, plotly.js reads the bars' colour list there and
-        # warns "Invalid color specifier" in the browser's console for each bar: seen in a browser audit)
+        # warns "Invalid color specifier" in the browser's console for each bar)
         assert all(isinstance(t.marker.pattern.bgcolor, str) for t in fig.data[:2])
-        # the legend's keys hatch finer than the bars (a browser audit saw 12 px swatches with one faint line, or
-        # none: "empty boxes"), each with its remedy's shape
+        # the legend's keys hatch finer than the bars (at the bars' spacing a 12 px swatch shows one faint line, or
+        # none, and reads as an empty box), each with its remedy's shape
         keys = {t.name: t.marker.pattern for t in fig.data if t.showlegend is not False}
         assert {p.shape for p in keys.values()} == {"", "/", "x"}
         assert all(p.size == figures.LEGEND_HATCH_PX < 8 for p in keys.values())

@@ -834,9 +834,9 @@ def test_a_motor_no_option_fits_is_explained_on_its_page_and_in_the_fleet_table(
 
 
 def test_abatement_projects_are_named_by_their_option_s_label():
-    # the abatement curve's frame has project_id ("asset/option") and asset_id, no option_id: its hover named the
-    # raw ids (an audit); the option is read from the project id after the asset's id, so an asset id with a "/"
-    # keeps its option
+    # the abatement curve's frame has project_id ("asset/option") and asset_id, no option_id: its hover names the
+    # option's label, not the raw ids; the option is read from the project id after the asset's id, so an asset id
+    # with a "/" keeps its option
     from types import SimpleNamespace
 
     result = SimpleNamespace(results=pd.DataFrame({"option_id": ["pm_drive", "lspm"],

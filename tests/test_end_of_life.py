@@ -298,8 +298,8 @@ def test_the_register_s_outage_hours_override_the_size_class_and_the_spare(tmp_p
     # C1, 75 kW, nothing given: the class's 72 h and 168 h
     assert (eol.loc["C1", "new_lead_time_h"], eol.loc["C1", "rewind_lead_time_h"]) == (72.0, 168.0)
     assert eol.loc["C1", "lead_time_basis"] == "size class"
-    # the decision record says where the hours come from apart from the cost per hour's source (an audit found the
-    # cost's "asset register" read as the hours' source)
+    # the decision record says where the hours come from apart from the cost per hour's source (so the cost's
+    # "asset register" is not read as the hours' source)
     from models.pack import content
     from models.pack.decision_record import record_context
 

@@ -69,7 +69,7 @@ class TestSettingsWithoutCaseLine:
         _none(problems, "no time zone declared")
 
     def test_a_tariff_in_the_declared_zone_is_accepted(self, tmp_path):
-        # the audit's case: the flat file's time_zone was lost, so its Berlin tariff was refused against UTC
+        # a flat case file's time_zone is kept: lost, its Berlin tariff would be refused against UTC
         folder = cb.write_case(tmp_path / "c", case_toml=FLAT_CASE_TOML.replace("GBP", "EUR"))
         cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [["S1", "Test works", "50", "0.9", "t.toml"]])
         (folder / "tariffs").mkdir()

@@ -109,7 +109,8 @@ def test_parquet_profiles_equal_csv_profiles(tmp_path):
 def test_decimal_commas_of_a_semicolon_file_are_one_warning_per_column(tmp_path):
     # docs/case-format.md, "Reading rules", Numbers: "A column with several such repairs gets one warning, not
     # one per cell: it says how many cells were repaired and shows the first few rows with their values".
-    # Audit reproduction /tmp/bad/excel (Excel's European CSV): 72 warnings, one per cell, for 82 motors.
+    # The case: a CSV saved by a European spreadsheet program (semicolons, decimal commas), one warning per column,
+    # not one per cell.
     folder = cb.write_case(tmp_path / "c")
     header = cb.ASSET_HEADER
     pf, kw = header.index("rated_power_factor"), header.index("rated_p_kw")
@@ -131,8 +132,8 @@ def test_decimal_commas_of_a_semicolon_file_are_one_warning_per_column(tmp_path)
 
 def test_an_empty_parquet_profile_file_says_it_is_empty(tmp_path):
     # docs/case-format.md, "Interval profiles": "An empty `profiles.parquet` (0 bytes) is an error saying so";
-    # references to the unread profiles are not reported again. Audit reproduction /tmp/bad/empty_profiles_parquet
-    # said "the file cannot be read as Parquet (ArrowInvalid)".
+    # references to the unread profiles are not reported again. The message says the file is empty, not "the file
+    # cannot be read as Parquet (ArrowInvalid)".
     folder = cb.write_case(tmp_path / "c")
     (folder / "profiles.csv").unlink()
     (folder / "profiles.parquet").write_bytes(b"")
@@ -148,7 +149,7 @@ def test_a_bad_parquet_value_names_its_profile_and_timestamp(tmp_path):
     # docs/case-format.md, "Interval profiles": "A problem in a row names the profile and the row's timestamp as
     # written, besides the row number". Parquet rows are numbered as a spreadsheet would show them (first data
     # row 2), so casebuilder.profile_rows' 4th row (LP1, 2025-01-02 03:00 in Europe/Berlin, UTC+1 in January) is
-    # row 5. Audit reproduction /tmp/bad/profneg named only "row 1002".
+    # row 5. A row number alone ("row 1002") would not say which profile or time is wrong.
     import pandas as pd
 
     folder = cb.write_case(tmp_path / "c")

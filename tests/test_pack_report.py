@@ -816,8 +816,8 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
     for site_id in coarse:
         rows = register[register["item"] == f"Demand window at site {site_id}"]
         assert len(rows) == 1 and "understates the demand peak and its savings" in rows["detail"].iloc[0]
-        # the row names the site's motors in the pack's scope whose own profile is coarser than the window (an audit
-        # found every motor of the site listed, those without a profile too); the text counts the motors listed,
+        # the row names the site's motors in the pack's scope whose own profile is coarser than the window (not every
+        # motor of the site, nor those without a profile); the text counts the motors listed,
         # "of the site in this pack" when fewer than the site's. The list is whole or "... and N more", so its
         # length is read from the text
         window, _, n = coarse[site_id]

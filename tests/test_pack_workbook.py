@@ -37,7 +37,7 @@ FINANCE = ('discount_rate_frac = 0.08\nhorizon_yr = 15\nrate_basis = "real"\nbud
 INJECTION_HYPERLINK = '=HYPERLINK("http://x","y")'
 INJECTION_AT = "@SUM(A1)"
 INJECTION_HTML = '<script>alert(1)</script> & "pump"'
-#: Relative tolerance of the formula check: 0.01 % (the brief's audit tolerance; both sides are doubles,
+#: Relative tolerance of the formula check: 0.01 % (the "Checks" sheet's, docs/pack.md; both sides are doubles,
 #: the evaluator's IRR is a polynomial root and the engine's a Newton root, both far tighter than this).
 RTOL = 1e-4
 SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills", "Data quality",

@@ -199,7 +199,7 @@ def test_run_command_writes_identical_files(tmp_path, capsys):
     total, bills, maintenance = (float(m.replace(",", "")) for m in re.search(
         r"yearly saving as the plan counts it ([-\d,]+) EUR/yr \(bills ([-\d,]+), maintenance ([-\d,]+)\)", line).groups())
     assert abs(total - (bills + maintenance)) <= 1.0  # each printed to the whole euro
-    # the same figure as the pack's headline (an audit found the console 1,009,910 against the pack's 1,001,307)
+    # the same figure as the pack's headline (the console and the pack never print two yearly savings for one plan)
     from models.pack import content
 
     case, _ = load_case(demo)

@@ -440,7 +440,8 @@ class TestMisspeltKeys:
     """An unknown key that is a near miss of an allowed key is an error; any other unknown key is a warning.
 
     Every expectation is the rule of this project's case format, docs/tariffs.md ("Validation", "Misspelt
-    keys"), found by a user audit: [[taxs]] for [[taxes]] dropped the demo's VAT and levy with a warning only.
+    keys"): a warning alone is not enough for a near miss, since [[taxs]] for [[taxes]] would drop the demo's VAT
+    and levy from the bills.
     """
 
     def test_misspelt_taxes_table_is_one_error_with_did_you_mean(self):
