@@ -1236,7 +1236,7 @@ def read_scenario_tables(raw: "RawCase") -> tuple[list | None, str, list[Problem
             return None, path.name, problems
         from models.finance import FinanceAssumptions
 
-        finance_keys = {f for f in FinanceAssumptions.__dataclass_fields__}
+        finance_keys = set(FinanceAssumptions.__dataclass_fields__)
         for key in sorted(k for k in data if k != "scenarios"):
             if misspelt_name(key, ["scenarios"]) is not None:
                 # a misspelt table name would drop every scenario in it
