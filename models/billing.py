@@ -608,13 +608,13 @@ def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before:
     n_m = adjusted.shape[1]
     floor = np.zeros_like(adjusted)
     prior = adjusted if before is None else np.broadcast_to(np.asarray(before, dtype=float), adjusted.shape)
-    month = np.arange(n_m)
-    since = (month - start) % n_m if before is not None else month  # months since the change within its year
+    start = start if before is not None else 0  # (the steady year has no change to count from)
+    since = (np.arange(n_m) - start) % n_m  # months since the change within its year
     for lag in range(1, months + 1):
         # month m of year k reads the month (k - 1) x 12 + (m - start) - lag counted from the change
         pos = (year - 1) * n_m + since - lag
         inside = pos >= 0
-        at = (pos + (start if before is not None else 0)) % n_m  # that month's billing month in the series
+        at = (pos + start) % n_m  # that month's billing month in the series
         if inside.any():
             floor[:, inside] = np.maximum(floor[:, inside], adjusted[:, at[inside]])
         if repeat_year and not inside.all():
@@ -622,13 +622,18 @@ def _ratchet_floor(adjusted: np.ndarray, months: int, repeat_year: bool, before:
     return floor
 
 
+def _check_month(month) -> None:
+    """Raise ValueError unless ``month`` is a whole month number from 1 to 12."""
+    if isinstance(month, bool) or not isinstance(month, (int, np.integer)) or not 1 <= month <= 12:
+        raise ValueError(f"in_service_month must be a whole month number from 1 to 12, not {month!r}")
+
+
 def service_start(cal: "_Calendar", in_service_month: int | None) -> int:
     """The billing month (0 = the series' first) in which a change coming into service in calendar month
     ``in_service_month`` (1-12; None: the series' first month) begins."""
     if in_service_month is None:
         return 0
-    if isinstance(in_service_month, bool) or not float(in_service_month).is_integer() or not 1 <= in_service_month <= 12:
-        raise ValueError(f"in_service_month must be a whole month number from 1 to 12, not {in_service_month!r}")
+    _check_month(in_service_month)
     for m, label in enumerate(cal.month_labels):
         if int(label[5:7]) == int(in_service_month):
             return m
@@ -928,9 +933,8 @@ def bill(
     _check_repeat(cal, repeat_year)
     if not (isinstance(year_after, int) and year_after >= 1):
         raise ValueError("year_after counts the years after the change from 1")
-    if in_service_month is not None and (isinstance(in_service_month, bool) or not isinstance(in_service_month, (int, np.integer))
-                                         or not 1 <= in_service_month <= 12):
-        raise ValueError(f"in_service_month must be a whole month number from 1 to 12, not {in_service_month!r}")
+    if in_service_month is not None:
+        _check_month(in_service_month)
     before = None
     if (before_p_kw is None) != (before_q_kvar is None):
         raise ValueError("the year before a change needs both before_p_kw and before_q_kvar")

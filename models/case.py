@@ -1675,14 +1675,20 @@ def _peak_time_miss(time: tuple[int, int, int, int], years: range, zone) -> tupl
     return "; ".join(reasons), " ".join(hints)
 
 
+def sites_have_ratchet(tariffs: dict, sites: pd.DataFrame) -> bool:
+    """Whether the tariff of some site (``sites.tariff_file``) has a demand ratchet: the one charge whose first
+    years after a change depend on the month it comes into service."""
+    if "tariff_file" not in sites:
+        return False
+    used = set(sites["tariff_file"].dropna().astype(str))
+    return any(getattr(d, "ratchet_frac", None) is not None for name, t in tariffs.items() if name in used
+               for d in getattr(t, "demand", ()))
+
+
 def _check_in_service_month_read(tariffs: dict, settings: CaseSettings, sites: pd.DataFrame, raw: io.RawCase,
                                  problems: list[Problem]) -> None:
-    """Warn of an ``in_service_month`` that nothing reads: only a demand ratchet of a site's tariff does."""
-    if settings.in_service_month is None or "tariff_file" not in sites:
-        return
-    used = set(sites["tariff_file"].dropna().astype(str))
-    if not any(getattr(d, "ratchet_frac", None) is not None for name, t in tariffs.items() if name in used
-               for d in getattr(t, "demand", ())):
+    """Warn of an ``in_service_month`` that nothing reads (:func:`sites_have_ratchet`)."""
+    if settings.in_service_month is not None and "tariff_file" in sites and not sites_have_ratchet(tariffs, sites):
         problems.append(warning(raw.settings_source, None, "in_service_month", settings.in_service_month,
                                 "no site's tariff has a demand ratchet, the one charge the month of the change moves: "
                                 "the setting changes nothing", "leave it out, or check the sites' tariffs"))

@@ -264,15 +264,15 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
             problems.append(error(source, None, f"{at}.name", name, "a scenario's name is one line of text: it holds a "
                                   "line break, tab or other control character", "write it on one line"))
             continue
-        folded = " ".join(name.casefold().split())
-        reserved = {" ".join(n.casefold().split()): n for n in (BASE_NAME, RUN_NAME)}
+        folded = _folded(name)
+        reserved = {_folded(n): n for n in (BASE_NAME, RUN_NAME)}
         if name in seen or folded in reserved:
             problems.append(error(source, None, f"{at}.name", name,
                                   f"duplicate scenario name (also {prefix}[{seen[name]}])" if name in seen
                                   else f"'{reserved[folded]}' names a row of every comparison",
                                   "give each scenario a name of its own"))
             continue
-        alike = next((other for other in seen if " ".join(other.casefold().split()) == folded), None)
+        alike = next((other for other in seen if _folded(other) == folded), None)
         if alike is not None:
             problems.append(warning(source, None, f"{at}.name", name,
                                     f"the name differs from {prefix}[{seen[alike]}]'s ('{alike}') only in capitals or "
@@ -314,6 +314,11 @@ def read_scenarios(tables: Any, base: dict, source: str, prefix: str = "scenario
         rows = {f"{prefix}[{i}]": t.get(SHEET_ROW_KEY) for i, t in enumerate(tables, start=1)}
         problems = [replace(p, row=rows.get(_entry(p.column, prefix), p.row)) if p.row is None else p for p in problems]
     return out, problems
+
+
+def _folded(name: str) -> str:
+    """A scenario's name as compared for look-alikes: no capitals, single spaces."""
+    return " ".join(name.casefold().split())
 
 
 def _entry(column: str | None, prefix: str) -> str | None:

@@ -1139,11 +1139,11 @@ def _as_written(value: object) -> object:
     """
     if not _holds_date(value):
         return value
-    if isinstance(value, (dt.date, dt.time)):  # (a datetime is a date)
-        return _Brief(value.isoformat())
-    if isinstance(value, dict):
+    if isinstance(value, dict):  # (shown_value writes dates and times as written, not tables holding them)
         return _Brief("{" + ", ".join(f"{k} = {shown_value(_as_written(v))}" for k, v in value.items()) + "}")
-    return _Brief("[" + ", ".join(shown_value(_as_written(v)) for v in value) + "]")
+    if isinstance(value, (list, tuple)):
+        return _Brief("[" + ", ".join(shown_value(_as_written(v)) for v in value) + "]")
+    return _Brief(shown_value(value))
 
 
 def _key_list(keys) -> str:

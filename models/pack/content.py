@@ -565,9 +565,9 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
             ("Purchase date (rules read on)", str(s.purchase_date),
              "as the case gives it" if getattr(s, "purchase_date_declared", True) else
              "the day of the run (the case gives none): a run on another day can read other rules")]
-    tariffs = getattr(case, "tariffs", {}) or {}
-    used = set(case.sites["tariff_file"].dropna().astype(str)) if "tariff_file" in case.sites else set(tariffs)
-    if any(d.ratchet_frac is not None for name, t in tariffs.items() if name in used for d in t.demand):
+    from models.case import sites_have_ratchet
+
+    if sites_have_ratchet(getattr(case, "tariffs", {}) or {}, case.sites):
         rows.append(("Changes in service from", f"the start of {in_service_words(case, result)}",
                      "a demand ratchet still reads the months before a change: the first years' savings depend on "
                      "the month (case setting in_service_month)"))
