@@ -771,6 +771,28 @@ def _formula_cells(formula_sheet, value_sheet) -> dict[tuple[int, int], bool]:
     return out
 
 
+def _hidden_sheet(sheet, source: str) -> list[Problem]:
+    """The warning of a sheet hidden in its workbook (read like the others), or none."""
+    if sheet.sheet_state == "visible":
+        return []
+    return [warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
+                    "unhide it to check what it holds")]
+
+
+def _formulas_read(source: str, cached: int) -> Problem:
+    """The one warning of a sheet whose ``cached`` formula cells were read as their last saved results."""
+    return warning(source, None, None, cached, f"{cached} cell(s) hold formulas; their last saved results were used",
+                   "drivecase never recalculates formulas: save the workbook after editing")
+
+
+def _hidden_rows_read(source: str, rows: list[int]) -> Problem:
+    """The one warning of a sheet whose hidden ``rows`` (sorted) were read like the others."""
+    shown_rows = ", ".join(str(r) for r in rows[:10]) + (" ..." if len(rows) > 10 else "")
+    return warning(source, rows[0], None, shown_rows,
+                   f"{len(rows)} hidden row(s) were read like the others (rows {shown_rows})",
+                   "delete rows that should not count; hiding or filtering does not remove them")
+
+
 def _hidden_rows(sheet) -> set[int]:
     return {int(r) for r, dim in sheet.row_dimensions.items() if getattr(dim, "hidden", False)}
 
@@ -851,9 +873,7 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
             continue
         sheet = book[sheets[table_key[table]]]
         source = f"{path.name}:{sheet.title}"
-        if sheet.sheet_state != "visible":
-            case.problems.append(warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
-                                         "unhide it to check what it holds"))
+        case.problems += _hidden_sheet(sheet, source)
         fill = _merged_fill(sheet, source, case.problems)
         formulas = _formula_cells(formula_book[sheet.title] if formula_book is not None else None, sheet)
         raw, problems = _sheet_table(sheet, table, source, fill, formulas, _hidden_rows(sheet))
@@ -970,15 +990,10 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
                                 "blank, the first of them in this row"))
     cached = sum(1 for (r, c), has in formulas.items() if has and (r in data_rows or r == header_row) and c in header_text)
     if cached:
-        problems.append(warning(source, None, None, cached,
-                                f"{cached} cell(s) hold formulas; their last saved results were used",
-                                "drivecase never recalculates formulas: save the workbook after editing"))
+        problems.append(_formulas_read(source, cached))
     hidden_data = sorted(data_rows & hidden)
     if hidden_data:
-        shown_rows = ", ".join(str(r) for r in hidden_data[:10]) + (" ..." if len(hidden_data) > 10 else "")
-        problems.append(warning(source, hidden_data[0], None, shown_rows,
-                                f"{len(hidden_data)} hidden row(s) were read like the others (rows {shown_rows})",
-                                "delete rows that should not count; hiding or filtering does not remove them"))
+        problems.append(_hidden_rows_read(source, hidden_data))
     return RawTable(table, source, frame, np.asarray(rows, dtype=np.int64), shown), problems
 
 
@@ -1021,15 +1036,14 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
     spread over its cells, as in the other sheets), and a sheet with no scenario."""
     from openpyxl.utils import get_column_letter
 
-    problems: list[Problem] = []
-    if sheet.sheet_state != "visible":
-        problems.append(warning(source, None, None, None, "the sheet is hidden in the workbook; it was read",
-                                "unhide it to check what it holds"))
+    problems: list[Problem] = _hidden_sheet(sheet, source)
     fill = _merged_fill(sheet, source, problems)
     formulas = _formula_cells(formula_sheet, sheet)
     hidden = _hidden_rows(sheet)
     header: list[str] | None = None
     out: list[dict] = []
+    hidden_read: list[int] = []  # hidden rows read as scenarios
+    cached = 0  # formula cells read as their saved results
     for number, row in enumerate(sheet.iter_rows(values_only=True), start=1):
         row = tuple(fill.get((number, c), v) if v is None else v for c, v in enumerate(row, start=1))
         if not row or all(v is None for v in row):
@@ -1055,8 +1069,7 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
                 seen.setdefault(key, c)
             continue
         if number in hidden:
-            problems.append(warning(source, number, None, row[0], "the row is hidden in the workbook; it was read",
-                                    "unhide it to check what it holds"))
+            hidden_read.append(number)
         entry: dict = {SHEET_ROW_KEY: number}
         for column, value in enumerate(row, start=1):
             key = header[column - 1] if column <= len(header) else ""
@@ -1068,9 +1081,7 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
                                           "drivecase never recalculates formulas: open and save the workbook in a "
                                           "spreadsheet program, or paste the values"))
                 else:
-                    problems.append(warning(source, number, key or get_column_letter(column), value,
-                                            "the cell holds a formula; its last saved result was used",
-                                            "drivecase never recalculates formulas: save the workbook after editing"))
+                    cached += 1
             if value is None or (isinstance(value, str) and not value.strip()):
                 continue
             if not key:
@@ -1083,6 +1094,10 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
                     pass
             entry[key] = value
         out.append(entry)
+    if cached:
+        problems.append(_formulas_read(source, cached))
+    if hidden_read:
+        problems.append(_hidden_rows_read(source, hidden_read))
     if not out:
         problems.append(warning(source, None, None, None, "the sheet holds no scenario: the run compares none",
                                 "write a header row (name and the finance keys), then one scenario per row; or "
