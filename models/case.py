@@ -1885,17 +1885,27 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                                 "lists the keys"))
     if "finance" in flat:
         nested = flat["finance"]
+        others = sorted(k for k in flat if k != "finance")
         if not isinstance(nested, dict):
             problems.append(error(source, None, "finance", nested, "'finance' must be a table of key = value",
                                   "write the keys at the top of the file, or under a [finance] line"))
-            return None
-        others = sorted(k for k in flat if k != "finance")
-        if others:
+        elif others:
             problems.append(error(source, None, "finance", None,
                                   f"keys at the top ({', '.join(others[:5])}) and a [finance] table are both given",
                                   "write every key at the top of the file, or every key under [finance]"))
+        else:
+            flat = nested
+        if flat is not nested:
+            # the case's assumptions cannot be read; its scenarios are still checked, against the keys that
+            # were written, so that every problem shows in one pass
+            base = {**{k: flat[k] for k in others}, **(nested if isinstance(nested, dict) else {})}
+            if tables is not None:
+                if "currency" not in base and _valid_currency(settings.currency):
+                    base["currency"] = settings.currency
+                wrong = {p.column for p in FinanceAssumptions.from_dict(base, source=source)[1] if p.severity == "error"}
+                base = {k: v for k, v in base.items() if k not in wrong}
+                problems.extend(read_scenarios(tables, base, scenario_source)[1])
             return None
-        flat = nested
     if "currency" not in flat and _valid_currency(settings.currency):
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)

@@ -164,6 +164,23 @@ def test_the_scenarios_beside_an_error_are_checked_against_the_case_s_other_keys
     assert not [p for p in problems if p.file == "scenarios.toml" and "horizon" in p.rule]
 
 
+@pytest.mark.parametrize("finance", ["finance = 5\nhorizon_yr = 30\n",
+                                     "horizon_yr = 30\n[finance]\ndiscount_rate_frac = 0.06\n",
+                                     "discount_rate_frac = 0.06\n[finance]\nhorizon_yr = 30\n"])
+def test_the_scenarios_beside_a_finance_file_of_the_wrong_layout_are_still_checked(tmp_path, finance):
+    # a [finance] that is not a table, or keys both at the top and under [finance]: the case's assumptions cannot
+    # be read, and the scenario's unknown key is reported in the same pass, its budget years checked against the
+    # 30-year horizon that was written (25 years fit: no warning against the default horizon)
+    budgets = ", ".join(["1000"] * 25)
+    folder = _folder_with(tmp_path, f'[[scenarios]]\nname = "A"\nfoo = 1\nbudget_per_yr = [{budgets}]\n')
+    (folder / "finance.toml").write_text(finance, encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    errors = {(p.file, p.column) for p in problems if p.severity == "error"}
+    assert ("finance.toml", "finance") in errors and ("scenarios.toml", "scenarios[1].foo") in errors
+    assert not [p for p in problems if p.file == "scenarios.toml" and "horizon" in p.rule]
+
+
 def test_a_table_one_letter_off_is_an_error_too(tmp_path):
     case, problems = load_case(_folder_with(tmp_path, '[[senarios]]\nname = "A"\ndiscount_rate_frac = 0.06\n'))
     assert case is None and _found(problems, "error", "did you mean 'scenarios'?")
