@@ -1050,7 +1050,9 @@ def resolution_changes(step_min: np.ndarray, stretch: int = RESOLUTION_STRETCH_I
     return changes
 
 
-_OFFSET = r"(?:[+-]\d{2}:?\d{2}|Z)$"
+#: A UTC offset at the end of a timestamp, after its time of day: Z, +hh:mm, +hhmm or +hh (the last as database
+#: exports write it; a date alone, 2025-01-31, is not read as ending in an offset of -31)
+_OFFSET = r"\d:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[+-]\d{2}(?::?\d{2})?|Z)$"
 _SERIAL_TEXT = re.compile(r"^\d{5}(\.\d+)?$")
 
 
@@ -1126,8 +1128,16 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
             utc[has_offset] = pd.DatetimeIndex(parsed).as_unit("us").asi8
         plain = ~has_offset & ~blank & ~serial
         if plain.any():
-            parsed = pd.to_datetime(text[plain], errors="coerce", format="ISO8601")
-            naive[plain] = pd.DatetimeIndex(parsed).as_unit("us").asi8
+            try:
+                parsed = pd.DatetimeIndex(pd.to_datetime(text[plain], errors="coerce", format="ISO8601"))
+            except ValueError:  # offsets of another form, several of them: read as instants
+                parsed = pd.DatetimeIndex(pd.to_datetime(text[plain], utc=True, errors="coerce", format="ISO8601"))
+            if parsed.tz is not None:
+                # an offset of a form the pattern does not know: the instant it names, never its UTC clock as local
+                utc[plain] = parsed.tz_convert("UTC").as_unit("us").asi8
+                has_offset = has_offset | plain
+            else:
+                naive[plain] = parsed.as_unit("us").asi8
         unreadable = np.flatnonzero(~blank & ~serial & (np.where(has_offset, utc, naive) == _NAT))
 
         def bad(i: int) -> Problem:

@@ -300,6 +300,25 @@ class TestProfileRules:
         assert case is not None, [str(p) for p in _errors(problems)]
         assert case.profile_info.loc[0, "resolution_min"] == 60
 
+    def test_two_digit_offsets_are_instants_not_local_clock(self, tmp_path):
+        # "+01"/"+02" (hours only, as database exports write offsets) on 30 March 2025 in Europe/Berlin: 00:00+01,
+        # 01:00+01, 03:00+02, 04:00+02 are four consecutive hours across the spring change (Directive 2000/84/EC),
+        # read as the local hours 0, 1, 3, 4 (hand calculation: each stamp is already local time)
+        stamps = ["2025-03-30 00:00:00+01", "2025-03-30 01:00:00+01", "2025-03-30 03:00:00+02", "2025-03-30 04:00:00+02"]
+        rows = [["LP1", s, "50"] for s in stamps]
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is not None, [str(p) for p in _errors(problems)]
+        index = case.profiles["LP1"].index
+        assert list(index.hour) == [0, 1, 3, 4] and case.profile_info.loc[0, "resolution_min"] == 60
+
+    def test_a_fixed_two_digit_offset_is_not_read_as_local_time(self, tmp_path):
+        # 08:00-05 is 13:00 UTC, 14:00 in Europe/Berlin in January (UTC+1): hand calculation. Read as a naive local
+        # time its UTC clock (13:00) would be localised again
+        rows = [["LP1", f"2025-01-02 {h:02d}:00:00-05", "50"] for h in range(8, 12)]
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is not None, [str(p) for p in _errors(problems)]
+        assert list(case.profiles["LP1"].index.hour) == [14, 15, 16, 17]
+
     def test_missing_timestamps_warned(self, tmp_path):
         rows = cb.profile_rows()
         del rows[10:13]
