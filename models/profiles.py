@@ -5,7 +5,8 @@ zone at the finest resolution the case's profiles use (15, 30 or 60 min). An int
 resampled to that resolution (finer data averaged, coarser data held over the interval) and placed on
 the year; intervals it does not cover (gaps, or a profile shorter than a year) take the profile's own
 mean for the same weekday and time of day. A profile from another year is moved by whole weeks so
-weekdays line up. Assets without interval data are described by load states with hours per year (a duty
+weekdays line up, and a year of data that crosses the new year has its part in the other calendar year
+moved onto the analysis year by 52 weeks, so every measured interval is used. Assets without interval data are described by load states with hours per year (a duty
 table, or annual hours at a mean load) and reach the meter as their expected power in every interval,
 which keeps their energy exact but assumes their demand is spread evenly (flagged).
 """
@@ -101,7 +102,9 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     -----
     Finer data are averaged into each analysis interval; coarser data are held over their interval
     (a mean power is constant over it). A profile centred on another year is moved by whole weeks
-    (52-week steps, 364 days) to the analysis year so that weekdays line up. The profile's own step is the
+    (52-week steps, 364 days) to the analysis year so that weekdays line up, and its intervals still
+    outside that calendar year (a year of data from July to June) are moved onto it by 52-week steps too,
+    never over an interval measured in it. The profile's own step is the
     median of its steps: a profile keeps one resolution, and :func:`models.case.resolution_changes` is
     how reading a case refuses one that changes part way (hourly, then 15-min), which would be read here
     at its majority step with the rest taken for missing intervals.
@@ -137,6 +140,7 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     elif own_step > step_min + 1e-9:
         fine = pd.date_range(s.index[0], s.index[-1] + pd.Timedelta(minutes=own_step - step_min), freq=f"{int(step_min)}min")
         s = s.reindex(fine, method="ffill", limit=int(round(own_step / step_min)) - 1)
+    s = _wrapped_onto(s, index)
     values = s.reindex(index).to_numpy(dtype=float).copy()
     missing = np.isnan(values)
     if missing.any():
@@ -148,6 +152,41 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
         fill = np.where(np.isnan(fill), float(own.mean()) if len(own) else 0.0, fill)
         values[missing] = fill
     return values, float(missing.mean())
+
+
+#: The step by which intervals outside the analysis year are moved onto it: 52 weeks, so weekdays line up.
+_YEAR_STEP = pd.Timedelta(days=364)
+
+
+def _wrapped_onto(s: pd.Series, index: pd.DatetimeIndex) -> pd.Series:
+    """Move the intervals of ``s`` outside the calendar year of ``index`` onto it by whole 52-week steps.
+
+    A year of data that crosses the new year (July to June, a utility's last twelve months) keeps every
+    measured interval: its part in the other calendar year lands on the same weekday and time of day of
+    the analysis year. An interval measured inside the year is never replaced by a moved one, and of two
+    moved onto one interval the earlier measured is kept; the day or so of the year neither covers is
+    left missing (filled from the typical week by :func:`conform`).
+    """
+    if not len(index) or not len(s):
+        return s
+    start = index[0]
+    end = index[-1] + (index[-1] - index[-2] if len(index) > 1 else pd.Timedelta(hours=1))
+    t = s.index
+    before, after = t < start, t >= end
+    if not (before.any() or after.any()):
+        return s
+    step_ns = _YEAR_STEP.value
+    offset_ns = t.asi8 * (1_000_000_000 // int(round(_unit_per_minute(t) / 60)))  # instants in ns
+    k = np.zeros(len(t), dtype=np.int64)
+    k[before] = -((offset_ns[before] - start.value) // step_ns)  # steps forward, the least that reaches the year
+    k[after] = -((offset_ns[after] - end.value) // step_ns + 1)  # steps back
+    moved_index = t + pd.to_timedelta(k * step_ns, unit="ns")
+    inside = (moved_index >= start) & (moved_index < end)
+    kept = pd.Series(s.to_numpy()[~(before | after)], index=t[~(before | after)])
+    moved = pd.Series(s.to_numpy()[(before | after) & inside], index=moved_index[(before | after) & inside])
+    moved = moved[~moved.index.duplicated(keep="first")]
+    moved = moved[~moved.index.isin(kept.index)]
+    return pd.concat([kept, moved]).sort_index()
 
 
 def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, np.ndarray, LoadStates, pd.DataFrame]:

@@ -48,3 +48,35 @@ class TestConform:
         values, filled = conform(series, INDEX)
         assert values[168 + 5] == 5.0
         assert filled == 1 / 336
+
+    def test_a_year_from_july_to_june_keeps_every_measured_month(self):
+        # hourly, Europe/Berlin, 1 Jul 2025 to 30 Jun 2026: 100 kW in 2025, 200 kW in 2026; the analysis year is
+        # 2025 (4,417 of the 8,760 stamps fall in it, 4,343 in 2026). Hand calculation of the placing:
+        # - each 2026 stamp moves back 52 weeks (364 days): Thu 1 Jan 2026 -> Thu 2 Jan 2025, so 2 Jan to
+        #   30 Jun 2025 hold 200 kW: 180 days x 24 h - 1 h (30 Mar 2025, clocks forward) = 4,319 h;
+        # - 30 Jun 2026 moves onto 1 Jul 2025, measured in 2025 already: the measured 100 kW stays;
+        # - 1 Jul to 31 Dec 2025 hold 100 kW: 184 days x 24 h + 1 h (26 Oct 2025, clocks back) = 4,417 h;
+        # - 1 Jan 2025 (24 h) is measured in neither: filled from the typical week, 24 / 8,760 of the year
+        from models.profiles import analysis_index
+
+        stamps = pd.date_range("2025-07-01", "2026-07-01", freq="h", tz="Europe/Berlin", inclusive="left")
+        series = pd.Series(np.where(stamps.year == 2025, 100.0, 200.0), index=stamps)
+        index = analysis_index({"p": series}, "Europe/Berlin")
+        assert index[0] == pd.Timestamp("2025-01-01", tz="Europe/Berlin") and len(index) == 8760
+        values, filled = conform(series, index)
+        on = pd.Series(values, index=index)
+        assert (on["2025-01-02":"2025-06-30"] == 200.0).all() and int((values == 200.0).sum()) == 4319
+        assert (on["2025-07-01":"2025-12-31"] == 100.0).all() and int((values == 100.0).sum()) == 4417
+        assert filled == 24 / 8760
+        assert ((on["2025-01-01"] > 100.0) & (on["2025-01-01"] < 200.0)).all()  # a mean of both halves' Wednesdays
+
+    def test_an_interval_measured_in_the_year_is_never_replaced_by_a_moved_one(self):
+        # two weeks of 2025 at 50 kW (so the profile is centred on 2025) and the first of them again in 2026 (52
+        # weeks later, same weekdays) at 70 kW: the analysis index of that 2025 week keeps 50 kW; the 2026 values
+        # land on the same instants and are not used
+        week = pd.date_range("2025-03-03", periods=168, freq="h", tz="Europe/Berlin")
+        two_weeks = pd.date_range("2025-03-03", periods=336, freq="h", tz="Europe/Berlin")
+        later = week + pd.Timedelta(days=364)
+        series = pd.concat([pd.Series(50.0, index=two_weeks), pd.Series(70.0, index=later)])
+        values, filled = conform(series, week)
+        assert (values == 50.0).all() and filled == 0.0
