@@ -24,6 +24,7 @@ Metering conventions used throughout (see ``docs/tariffs.md``):
 
 from __future__ import annotations
 
+import datetime as _dt
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -307,7 +308,9 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         )
     steps_in_cell = np.zeros(len(labels) * k, dtype=np.int64)
     np.add.at(steps_in_cell, month * k + period, 1)
-    peaks = {c.name: peak_windows(wall_ns, c.times, c.window_min, int(round(float(interval_h) * 3_600e9)))
+    year = pd.Timestamp(int(wall_ns[len(wall_ns) // 2])).year if len(wall_ns) else None
+    peaks = {c.name: peak_windows(wall_ns, placed_peak_times(c, year), c.window_min,
+                                  int(round(float(interval_h) * 3_600e9)))
              for c in getattr(tariff, "coincident", ())}
     return _Calendar(
         n_steps=len(index),
@@ -326,13 +329,54 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     )
 
 
+#: The step by which a peak time of another year is moved onto the analysis year: 52 weeks, so that it keeps
+#: its weekday and clock time (as profiles of another year are moved, :func:`models.profiles.conform`).
+PEAK_YEAR_STEP_DAYS = 364
+
+
+def placed_peak_times(clause, year: int | None) -> tuple[tuple[int, int, int, int], ...]:
+    """A coincident-peak clause's times as (month, day, hour, minute) of the analysis ``year``.
+
+    A time written with a year (``clause.years``) moves by whole 52-week steps, the number nearest the
+    years between, so it falls on the same weekday and clock time near the same date: 19 July 2024 17:00, a
+    Friday, is read on Friday 18 July 2025. The system peaks on working-day afternoons; the same date of
+    another year may be a weekend, when the site's load says nothing of its load at a system peak. A day
+    that the nearest number of steps leaves in the year before or after (1 January 2024, a Monday, lands
+    on 30 December 2024) takes one step more, onto the analysis year (Monday 29 December 2025). A clause
+    built without years, or no ``year``, keeps its calendar dates.
+
+    Examples
+    --------
+    >>> from models.tariff import CoincidentPeak
+    >>> c = CoincidentPeak("c", 1.0, ((7, 19, 17, 0), (2, 29, 12, 0)), years=(2024, 2024))
+    >>> placed_peak_times(c, 2025)
+    ((7, 18, 17, 0), (2, 27, 12, 0))
+    >>> placed_peak_times(CoincidentPeak("c", 1.0, ((1, 1, 9, 0),), years=(2024,)), 2025)  # a Monday
+    ((12, 29, 9, 0),)
+    """
+    if year is None or not getattr(clause, "years", ()):
+        return tuple(clause.times)
+    out = []
+    for (month, day, hour, minute), written_year in zip(clause.times, clause.years):
+        written = _dt.date(written_year, month, day)
+        # the same day of the analysis year (28 February for a 29th the year lacks), for the number of steps
+        same = _dt.date(year, month, min(day, 28) if month == 2 else day)
+        steps = round((same - written).days / PEAK_YEAR_STEP_DAYS)
+        placed = written + _dt.timedelta(days=PEAK_YEAR_STEP_DAYS * steps)
+        if placed.year != year:  # a day near the year's end or start: one step more, onto the analysis year
+            placed += _dt.timedelta(days=PEAK_YEAR_STEP_DAYS * (1 if placed.year < year else -1))
+        out.append((placed.month, placed.day, hour, minute))
+    return tuple(out)
+
+
 def peak_windows(wall_ns: np.ndarray, times, window_min: int, interval_ns: int | None = None) -> list[tuple[int, int]]:
     """The steps of each listed peak time's window, in every year of the series.
 
     Parameters
     ----------
     wall_ns : numpy.ndarray of int64, shape (n_steps,)
-        Interval starts as local wall-clock time [ns since 1970, naive], increasing.
+        Interval starts as local wall-clock time [ns since 1970, naive], in time order (the clock repeats an
+        hour on the day it goes back).
     times : sequence of (month, day, hour, minute)
         Window starts on the local clock.
     window_min : int
@@ -343,25 +387,28 @@ def peak_windows(wall_ns: np.ndarray, times, window_min: int, interval_ns: int |
     Returns
     -------
     list of (int, int)
-        (first step, step after the last) of the intervals that overlap each window [t, t + window): the
-        interval holding its start (data coarser than the window: the hour that holds a 15-min peak window),
-        then every interval starting before its end; each time once, in the first year of the series that
-        holds it (a series crossing a year end does not count a date twice). A time whose day does not exist
-        in a year (29 February) or whose window no interval of the series overlaps is left out
+        (first step, step after the last) of the intervals that overlap each window [t, t + window) on the
+        local clock: the interval holding its start (data coarser than the window: the hour that holds a
+        15-min peak window), then every interval starting before its end; each time once, in the first year of
+        the series that holds it (a series crossing a year end does not count a date twice). A time whose day
+        does not exist in a year (29 February) or whose window no interval of the series overlaps is left out
         (``models.case`` warns of each such time, with the reason).
 
     Notes
     -----
-    The wall clock is assumed increasing: on the day the clocks go back, a window in the repeated hour takes
-    its first occurrence and those after it up to the window's end on the wall clock (both hours for a
-    60-min window at 01:00). A time in the hour skipped when they go forward (02:00 on 30 March 2025 in
-    Europe/Berlin) has no interval: the one before it ends as the gap begins and the next starts after it,
-    so the time is left out in that year.
+    On the day the clocks go back, a window in the repeated hour takes its first occurrence only (summer
+    time, the hour the clock shows first), on 15-min and hourly data alike: a bill charges one interval of
+    real time, and ``models.case`` warns that the time is ambiguous. A time in the hour skipped when they go
+    forward (02:00 on 30 March 2025 in Europe/Berlin) has no interval: the one before it ends as the gap
+    begins and the next starts after it, so the time is left out in that year.
     """
     if not len(wall_ns):
         return []
+    wall_ns = np.asarray(wall_ns, dtype=np.int64)
     step = int(interval_ns) if interval_ns else (int(wall_ns[1] - wall_ns[0]) if len(wall_ns) > 1 else 3_600_000_000_000)
     years = range(pd.Timestamp(int(wall_ns[0])).year, pd.Timestamp(int(wall_ns[-1])).year + 1)
+    # where the clock goes back: a run of increasing wall-clock starts ends before each such step
+    back = np.flatnonzero(np.diff(wall_ns) <= 0) + 1
     out = []
     for month, day, hour, minute in times:
         for year in years:  # each time once: in the first year of the series that holds it
@@ -370,14 +417,18 @@ def peak_windows(wall_ns: np.ndarray, times, window_min: int, interval_ns: int |
             except ValueError:
                 continue
             end = start + window_min * _NS_PER_MIN
-            # the interval that holds the start (it began at or before it and ends after it), else the first after
-            a = int(np.searchsorted(wall_ns, start, side="right")) - 1
-            if a < 0 or wall_ns[a] + step <= start:
-                a += 1
-            b = int(np.searchsorted(wall_ns, end, side="left"))
-            if b > a:
-                out.append((a, b))
-                break
+            overlaps = np.flatnonzero((wall_ns < end) & (wall_ns + step > start))
+            if not len(overlaps):
+                continue
+            a = int(overlaps[0])
+            # the first occurrence: up to the window's end or the clock's step back, whichever comes first
+            stop = back[back > a]
+            limit = int(stop[0]) if len(stop) else len(wall_ns)
+            b = a + 1
+            while b < limit and wall_ns[b] < end:
+                b += 1
+            out.append((a, b))
+            break
     return out
 
 

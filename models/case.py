@@ -1674,16 +1674,35 @@ def _peak_time_miss(time: tuple[int, int, int, int], years: range, zone) -> tupl
     reasons, hints = [], []
     if no_day:
         reasons.append(f"no {day} {MONTH_NAMES[month - 1]} in {' or '.join(no_day)}")
-        hints.append("the year is not used: give the system's peak time as a day the analysis year has, or leave it out")
+        hints.append("give the system's peak time as a day the analysis year has, or leave it out")
     for date, start, end in skipped:
         reasons.append(f"falls in the hour the clocks skip on {date}")
         hints.append(f"on {date} the clocks go from {start} straight to {end}, so no interval starts at "
                      f"{hour:02d}:{minute:02d}; check the time against the utility's notice")
     if not reasons:
         reasons.append("its day lies outside the analysis period")
-        hints.append("list the system's peak times by month, day and time inside the profiles' period (the year "
-                     "itself is not used)")
+        hints.append("list the system's peak times inside the profiles' period; a time of another year is read "
+                     "52 weeks per year later or earlier, on the same weekday and clock time")
     return "; ".join(reasons), " ".join(hints)
+
+
+def _repeated_hour_times(times, window_min: int, years: range, zone) -> list[tuple[int, str]]:
+    """(position, date in words) of each peak time whose window reaches into the hour the clocks repeat when
+    they go back, in the first year of ``years`` that has its day (as the bill reads it)."""
+    from models.wording import MONTH_NAMES
+
+    out = []
+    for j, (month, day, hour, minute) in enumerate(times):
+        for year in years:
+            try:
+                start = pd.Timestamp(year=year, month=month, day=day, hour=hour, minute=minute)
+            except ValueError:
+                continue
+            ends = (start, start + pd.Timedelta(minutes=window_min - 1))
+            if any(pd.isna(t.tz_localize(zone, ambiguous="NaT", nonexistent="shift_forward")) for t in ends):
+                out.append((j, f"{day} {MONTH_NAMES[month - 1]} {year}"))
+            break
+    return out
 
 
 def sites_have_ratchet(tariffs: dict, sites: pd.DataFrame) -> bool:
@@ -1711,7 +1730,7 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
     without one, a time in the hour the clocks skip in spring, a day outside the series), naming the time as
     written and the reason: it is left out of the clause's mean. When no time of a clause can be placed, one
     warning says so with each time's reason: the clause bills nothing, so no motor saves on it."""
-    from models.billing import peak_windows
+    from models.billing import peak_windows, placed_peak_times
     from models.profiles import analysis_index
     from models.tariff import _local_wall
 
@@ -1733,16 +1752,24 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
         years = range(int(wall[0].year), int(wall[-1].year) + 1)  # (as peak_windows looks for each time)
         zone = tariff.time_zone or index.tz
         for i, clause in enumerate(tariff.coincident, start=1):
+            key = f"coincident_peak[{i}].times"
+            placed = placed_peak_times(clause, int(wall[len(wall) // 2].year))
             missed: dict[tuple[int, int, int, int], int] = {}  # each time once, at its first listing
-            for j, time in enumerate(clause.times):
+            for j, time in enumerate(placed):
                 if time not in missed and not peak_windows(wall_ns, (time,), clause.window_min, step):
                     missed[time] = j
+            for j, date in _repeated_hour_times(placed, clause.window_min, years, zone):
+                problems.append(warning(
+                    source, None, key, clause.time_text(j),
+                    f"time {j + 1} of {len(placed)} falls in the hour repeated when the clocks go back on {date}: the "
+                    "first time the clock shows it (summer time) is billed",
+                    "check the utility's notice: a time meant in the second occurrence (standard time) is an hour "
+                    "later in summer time; it cannot be written otherwise"))
             if not missed:
                 continue
-            key = f"coincident_peak[{i}].times"
             why = {time: _peak_time_miss(time, years, zone) for time in missed}
-            if len(missed) < len(set(clause.times)):
-                kept = len(set(clause.times)) - len(missed)
+            if len(missed) < len(set(placed)):
+                kept = len(set(placed)) - len(missed)
                 for time, j in missed.items():
                     reason, hint = why[time]
                     problems.append(warning(

@@ -340,14 +340,19 @@ class CoincidentPeak:
         Price [currency per kW per month], billed every month on the coincident demand.
     times : tuple of (int, int, int, int)
         The system's peak times as (month, day, hour, minute) of the local clock, each the start of a window
-        of ``window_min``. The year is not kept: the analysis bills a typical year, and each time is looked
-        for in every year the meter series covers.
+        of ``window_min``.
     window_min : int
         Length of each peak window [min]: 15, 30 or 60.
     written : tuple of str
         The times as the tariff file writes them (a TOML date-time in ISO form, a text as given), in the order
         of ``times``, for messages; empty for a clause built in code. Not part of the clause's identity: two
-        clauses that differ only in how (or with which year) a time is written are equal.
+        clauses that differ only in how a time is written are equal.
+    years : tuple of int
+        The year each time is written with, in the order of ``times`` (empty for a clause built in code without
+        them). The analysis bills one year: a time of another year is read 52 weeks (364 days) per year
+        earlier or later, on the same weekday and clock time, as a profile of another year is moved
+        (:func:`models.billing.placed_peak_times`); a clause without years is read on the same calendar
+        date in every year the meter series covers.
 
     Notes
     -----
@@ -360,6 +365,7 @@ class CoincidentPeak:
     times: tuple[tuple[int, int, int, int], ...]
     window_min: int = 60
     written: tuple[str, ...] = field(default=(), compare=False)
+    years: tuple[int, ...] = ()
 
     def time_text(self, j: int) -> str:
         """The ``j``-th time (from 0) as written in the file, else as ``15 July 17:00``."""
@@ -876,14 +882,14 @@ def _off_grid_rule(window_min: int, j: int, n: int) -> str:
 
 def _repeated_peak_times(c: CoincidentPeak) -> list[tuple[str, object]]:
     """(rule, value) of each peak time a clause lists more than once: it counts once per listing in the mean.
-    The year is not used, so times written with different years but the same month, day and clock time are
-    the same peak time."""
-    at: dict[tuple[int, int, int, int], list[int]] = {}
+    Times are the same when their year, month, day and clock time are (the same day and time of two years
+    are read on two days of the analysis year, 52 weeks apart per year: on the same weekday of each)."""
+    at: dict[tuple, list[int]] = {}
     for j, t in enumerate(c.times):
-        at.setdefault(t, []).append(j)
+        at.setdefault((c.years[j] if j < len(c.years) else None, *t), []).append(j)
     out = []
     n = len(c.times)
-    for t, js in at.items():
+    for (_, *t), js in at.items():
         if len(js) < 2:
             continue
         texts = [c.time_text(j) for j in js]
@@ -892,9 +898,8 @@ def _repeated_peak_times(c: CoincidentPeak) -> list[tuple[str, object]]:
         if len(set(texts)) == 1:
             out.append((f"a peak time is listed {times} (times {places} of {n}): it counts {times} in the mean", texts[0]))
         else:
-            out.append((f"a peak time is listed {times} (times {places} of {n}): the year is not used, so "
-                        f"{' and '.join(texts)} name the same time, {peak_time_text(t)}, and it counts {times} in the mean",
-                        texts))
+            out.append((f"a peak time is listed {times} (times {places} of {n}): {' and '.join(texts)} name the same "
+                        f"time, {peak_time_text(tuple(t))}, and it counts {times} in the mean", texts))
     return out
 
 
@@ -1623,7 +1628,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         cwindow = r.get(e, "window_min", p, "int", default=60)
         read = _peak_times(r, e, p, cwindow)
         if cprice is not None and cwindow is not None and read is not None:
-            coincident.append(CoincidentPeak(cname, cprice, read[0], cwindow, written=read[1]))
+            coincident.append(CoincidentPeak(cname, cprice, read[0], cwindow, written=read[1], years=read[2]))
             pos["coincident_peak"].append(i)
 
     taxes = []
@@ -1677,7 +1682,7 @@ def _peak_times(r: _Reader, e: dict, path: str, window_min: object) -> tuple[tup
     if not isinstance(raw, list) or not raw:
         r.err(key, raw, "expected a non-empty list of date-times", 'e.g. times = [2025-07-15T17:00:00]')
         return None
-    out, written, bad = [], [], False
+    out, written, years, bad = [], [], [], False
     n = len(raw)
     for j, value in enumerate(raw):
         stamp = None
@@ -1703,8 +1708,9 @@ def _peak_times(r: _Reader, e: dict, path: str, window_min: object) -> tuple[tup
             bad = True
             continue
         out.append((stamp.month, stamp.day, stamp.hour, stamp.minute))
+        years.append(stamp.year)
         written.append(_as_written(value) if isinstance(value, dt.datetime) else value.strip())
-    return None if bad else (tuple(out), tuple(written))
+    return None if bad else (tuple(out), tuple(written), tuple(years))
 
 
 def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | None:

@@ -862,13 +862,14 @@ def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
 
 
 def test_coincident_peak_times_outside_the_profiles_are_warned(tmp_path):
-    # the case's profiles (tests/casebuilder.py) are extended to the year 2025: a 29 February exists in none of it,
-    # so the clause bills nothing; 15 July (of any year: the year is not used) falls inside
+    # the case's profiles (tests/casebuilder.py) are extended to the year 2025: 02:00 on 30 March 2025 falls in the
+    # hour the clocks skip in Europe/Berlin, so the clause bills nothing; 15 July 2019 is read 6 x 52 weeks later,
+    # on Monday 7 July 2025, inside
     folder = cb.write_case(tmp_path / "c")
     (folder / "tariffs").mkdir()
     head = ('[tariff]\nname = "cp (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n[[periods]]\ncode = "all"\n'
             '[energy]\nprice_per_kwh = { all = 0.1 }\n[[coincident_peak]]\nname = "tx"\nprice_per_kw_month = 5.0\n')
-    (folder / "tariffs" / "t.toml").write_text(head + "times = [2024-02-29T17:00:00]\n", encoding="utf-8")
+    (folder / "tariffs" / "t.toml").write_text(head + "times = [2025-03-30T02:00:00]\n", encoding="utf-8")
     cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
     case, problems = load_case(folder)
     assert case is not None

@@ -59,18 +59,16 @@ class TestPeakTimesThatCannotBePlaced:
 
     def test_each_left_out_time_is_warned_with_its_reason(self, tmp_path):
         found = case_with(tmp_path, "[2024-02-29T17:00:00, 2025-03-30T02:00:00, 2025-07-15T17:00:00]")
-        assert len(found) == 2, [str(p) for p in found]
-        leap, gap = found
-        assert str(leap.value) == "2024-02-29T17:00:00" and "time 1 of 3" in leap.rule
-        assert "no 29 February in 2025" in leap.rule and "left out of the mean" in leap.rule
+        assert len(found) == 1, [str(p) for p in found]  # 29 February 2024 is read 52 weeks later: see below
+        gap = found[0]
         assert str(gap.value) == "2025-03-30T02:00:00" and "time 2 of 3" in gap.rule
-        assert "falls in the hour the clocks skip on 30 March 2025" in gap.rule
+        assert "falls in the hour the clocks skip on 30 March 2025" in gap.rule and "left out of the mean" in gap.rule
         assert "from 02:00 straight to 03:00" in gap.hint
-        assert all(p.row is not None for p in found)  # the line of 'times' in the file
+        assert gap.row is not None  # the line of 'times' in the file
 
     def test_a_time_written_as_text_is_named_as_written(self, tmp_path):
-        found = case_with(tmp_path, '["2024-02-29 17:00", "2025-07-15 17:00"]')
-        assert [p.value for p in found] == ["2024-02-29 17:00"]
+        found = case_with(tmp_path, '["2025-03-30 02:00", "2025-07-15 17:00"]')
+        assert [p.value for p in found] == ["2025-03-30 02:00"]
 
     def test_a_clause_whose_only_time_is_in_the_spring_gap_gets_that_reason(self, tmp_path):
         found = case_with(tmp_path, "[2025-03-30T02:00:00]")
@@ -80,8 +78,8 @@ class TestPeakTimesThatCannotBePlaced:
         assert str(found[0].value) == "2025-03-30T02:00:00"
 
     def test_times_that_can_be_placed_are_not_warned(self, tmp_path):
-        # 26 October 2025 02:00 is in the hour the clocks repeat: it exists (twice) and is billed
-        assert case_with(tmp_path, "[2025-07-15T17:00:00, 2025-10-26T02:00:00, 2019-01-02T10:00:00]") == []
+        # 29 February 2024 and 2 January 2019 are read 52 weeks per year later, inside 2025
+        assert case_with(tmp_path, "[2025-07-15T17:00:00, 2024-02-29T17:00:00, 2019-01-02T10:00:00]") == []
 
     def test_the_left_out_times_do_not_change_the_bill(self):
         # docs/tariffs.md: the charge is the mean over the times that fall inside the series; the left-out ones
@@ -90,11 +88,91 @@ class TestPeakTimesThatCannotBePlaced:
         p = 400.0 + 100.0 * np.sin(np.arange(len(index)) / 97.0)
         q = 0.3 * p
         bills = []
-        for times in ("[2024-02-29T17:00:00, 2025-03-30T02:00:00, 2025-07-15T17:00:00]", "[2025-07-15T17:00:00]"):
+        for times in ("[2025-03-30T02:00:00, 2025-07-15T17:00:00]", "[2025-07-15T17:00:00]"):
             tariff, problems = load(HEAD + PEAK + f"times = {times}\n")
             assert tariff is not None and problems == []
             bills.append(bill(tariff, index, p, q))
         pd.testing.assert_frame_equal(bills[0], bills[1])
+
+
+class TestPeakTimesOfAnotherYear:
+    """Rule (docs/tariffs.md, "[[coincident_peak]]"): a time of another year is read 52 weeks (364 days) per year
+    later or earlier, on the same weekday and clock time, as a profile of another year is moved."""
+
+    @staticmethod
+    def _weekday_site(index):
+        # 300 kW on weekdays 06:00-22:00, 20 kW otherwise (at the site meter, power factor 1)
+        local = index.tz_convert("Europe/Berlin")
+        working = (local.day_of_week < 5) & (local.hour >= 6) & (local.hour < 22)
+        return np.where(working, 300.0, 20.0)
+
+    def test_last_year_s_friday_peaks_are_read_on_this_year_s_fridays(self):
+        # the notice of 2024: Friday 19 July 17:00 and Friday 2 August 16:00 (calendar facts checked below). On the
+        # same dates of 2025 (Saturdays) the site draws 20 kW; 52 weeks later, Friday 18 July and Friday 1 August
+        # 2025, it draws 300 kW. Hand calculation: 300 kW x 5/kW-month = 1,500 a month
+        assert dt.date(2024, 7, 19).weekday() == dt.date(2024, 8, 2).weekday() == 4  # Fridays
+        assert dt.date(2025, 7, 19).weekday() == dt.date(2025, 8, 2).weekday() == 5  # Saturdays
+        assert dt.date(2024, 7, 19) + dt.timedelta(days=364) == dt.date(2025, 7, 18)
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="Europe/Berlin", inclusive="left")
+        p = self._weekday_site(index)
+        tariff, problems = load(HEAD + PEAK + "times = [2024-07-19T17:00:00, 2024-08-02T16:00:00]\n")
+        assert tariff is not None and problems == []
+        b = bill(tariff, index, p, np.zeros(len(index)))
+        cp = b[b["line_item"] == "coincident:tx"]
+        assert len(cp) == 12
+        np.testing.assert_allclose(cp["quantity"].to_numpy(), 300.0, rtol=0, atol=1e-9)
+        np.testing.assert_allclose(cp["amount"].to_numpy(), 1_500.0, rtol=0, atol=1e-9)
+
+    def test_one_day_of_two_years_is_two_peak_times(self):
+        # 15 July 2024 (a Monday) is read on Monday 14 July 2025, 15 July 2025 on itself: two times, none repeated
+        tariff, problems = load(HEAD + PEAK + "times = [2024-07-15T17:00:00, 2025-07-15T17:00:00]\n")
+        assert tariff is not None and problems == []
+        from models.billing import placed_peak_times
+
+        assert placed_peak_times(tariff.coincident[0], 2025) == ((7, 14, 17, 0), (7, 15, 17, 0))
+
+
+class TestPeakTimeInTheRepeatedHour:
+    """Rule (docs/tariffs.md): a peak time in the hour the clocks repeat (26 October 2025 02:00-03:00 in
+    Europe/Berlin, EU Directive 2000/84/EC) is billed on its first occurrence (summer time), warned."""
+
+    # the site draws 100 kW in the first 02:00 hour (CEST, 00:00 UTC), 300 kW in the second (CET, 01:00 UTC),
+    # 50 kW otherwise. Hand calculation: the first occurrence bills 100 kW x 5/kW-month = 500 a month
+    @pytest.mark.parametrize("freq, window", [("h", 60), ("15min", 60), ("15min", 15), ("15min", 30)])
+    def test_the_first_occurrence_is_billed_on_hourly_and_15_min_data(self, freq, window):
+        index = pd.date_range("2025-01-01", "2026-01-01", freq=freq, tz="Europe/Berlin", inclusive="left")
+        utc = index.tz_convert("UTC")
+        p = np.full(len(index), 50.0)
+        p[(utc >= pd.Timestamp("2025-10-26 00:00", tz="UTC")) & (utc < pd.Timestamp("2025-10-26 01:00", tz="UTC"))] = 100.0
+        p[(utc >= pd.Timestamp("2025-10-26 01:00", tz="UTC")) & (utc < pd.Timestamp("2025-10-26 02:00", tz="UTC"))] = 300.0
+        tariff, problems = load(HEAD + PEAK + f"window_min = {window}\ntimes = [2025-10-26T02:00:00]\n")
+        assert tariff is not None and problems == []
+        b = bill(tariff, index, p, np.zeros(len(index)))
+        cp = b[b["line_item"] == "coincident:tx"]
+        np.testing.assert_allclose(cp["quantity"].to_numpy(), 100.0, rtol=0, atol=1e-9)
+
+    @pytest.mark.parametrize("year", [2024, 2026, 2027])
+    def test_the_same_in_other_years(self, year):
+        # the last Sunday of October: 27 October 2024, 25 October 2026, 31 October 2027 (checked by zoneinfo)
+        day = max(d for d in range(25, 32) if dt.date(year, 10, d).weekday() == 6)
+        berlin = zoneinfo.ZoneInfo("Europe/Berlin")
+        assert dt.datetime(year, 10, day, 2, 30, tzinfo=berlin).utcoffset() != dt.datetime(
+            year, 10, day, 2, 30, fold=1, tzinfo=berlin).utcoffset()
+        index = pd.date_range(f"{year}-01-01", f"{year + 1}-01-01", freq="15min", tz="Europe/Berlin", inclusive="left")
+        utc = index.tz_convert("UTC")
+        first = pd.Timestamp(f"{year}-10-{day} 00:00", tz="UTC")
+        p = np.full(len(index), 50.0)
+        p[(utc >= first) & (utc < first + pd.Timedelta(hours=1))] = 100.0
+        p[(utc >= first + pd.Timedelta(hours=1)) & (utc < first + pd.Timedelta(hours=2))] = 300.0
+        tariff, _ = load(HEAD + PEAK + f"times = [{year}-10-{day}T02:00:00]\n")
+        b = bill(tariff, index, p, np.zeros(len(index)))
+        np.testing.assert_allclose(b.loc[b["line_item"] == "coincident:tx", "quantity"].to_numpy(), 100.0, rtol=0)
+
+    def test_the_case_check_warns_that_the_time_is_ambiguous(self, tmp_path):
+        found = case_with(tmp_path, "[2025-07-15T17:00:00, 2025-10-26T02:00:00]")
+        assert len(found) == 1 and str(found[0].value) == "2025-10-26T02:00:00"
+        assert "hour repeated when the clocks go back on 26 October 2025" in found[0].rule
+        assert "first time the clock shows it (summer time) is billed" in found[0].rule
 
 
 class TestPeakTimeListedTwice:
@@ -106,14 +184,6 @@ class TestPeakTimeListedTwice:
         assert len(found) == 1 and str(found[0].value) == "2025-07-15T17:00:00"
         assert "listed twice (times 1 and 3 of 3)" in found[0].rule
 
-    def test_two_years_of_one_day_and_time_are_the_same_peak_time(self):
-        tariff, problems = load(HEAD + PEAK + "times = [2024-07-15T17:00:00, 2025-07-15T17:00:00]\n")
-        assert tariff is not None
-        found = at(problems, "coincident_peak[1].times", "warning")
-        assert len(found) == 1
-        assert "the year is not used" in found[0].rule
-        assert "2024-07-15T17:00:00 and 2025-07-15T17:00:00 name the same time, 15 July 17:00" in found[0].rule
-        assert [str(v) for v in found[0].value] == ["2024-07-15T17:00:00", "2025-07-15T17:00:00"]
 
 
 def test_every_bad_peak_time_is_reported_with_its_place():
