@@ -1598,6 +1598,62 @@ def _check_peak_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dic
                        f"have {'/'.join(map(str, coarse))}-min profiles: each peak window reads the interval that "
                        "holds it, which cannot show the demand within it",
                        f"log the motors that run at the system's peak times at {window}-min resolution")
+    # the site's own base load, read the same way
+    if "base_profile_id" not in s or not isinstance(profile_info, pd.DataFrame) or profile_info.empty:
+        return
+    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
+    for i in range(len(s)):
+        base = s["base_profile_id"].iloc[i]
+        window = shortest_demand_window_min(tariffs, s["tariff_file"].iloc[i], "coincident")
+        if isinstance(base, str) and window is not None and resolution.get(base, 0) > window:
+            sites.warn(i, "base_profile_id", base,
+                       f"the tariff's coincident-peak charge takes {window}-min windows, but the site's base-load "
+                       f"profile has {int(resolution[base])}-min intervals: each peak window reads the interval "
+                       "that holds it, which cannot show the demand within it",
+                       f"give the base load at {window}-min resolution (the meter's own interval data)")
+
+
+def _check_period_grid(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
+                       sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
+    """Warn of a used tariff whose time-of-use period begins or ends between the starts of the analysis
+    intervals (17:30 on hourly data): each interval is priced in the period in force at its start, so the
+    part of it after the boundary is priced in the period before."""
+    from models.profiles import analysis_index
+
+    if "tariff_file" not in sites:
+        return
+    used_tariffs = set(sites["tariff_file"].dropna().astype(str))
+    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    try:
+        index = analysis_index(profiles, settings.time_zone, used=used)
+    except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
+        return
+    step_min = int(round((index[1] - index[0]).total_seconds() / 60)) if len(index) > 1 else 60
+    for name, tariff in tariffs.items():
+        if name not in used_tariffs:
+            continue
+        source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
+        codes = {rule.code for rule in tariff.periods}
+        if len(codes) < 2:
+            continue
+        for n, rule in enumerate(tariff.periods, start=1):
+            off = sorted({m for w in rule.windows for m in (w.start_min, w.end_min % 1440) if m % step_min})
+            if not off:
+                continue
+            times = ", ".join(f"{m // 60:02d}:{m % 60:02d}" for m in off)
+            problems.append(warning(
+                source, None, f"periods[{n}].hours", times,
+                f"period '{rule.code}' begins or ends at {times}, between the starts of the case's {step_min}-min "
+                "intervals: each interval is priced in the period in force at its start, so the part of it after "
+                "the boundary is priced in the period before",
+                f"give the profiles at a resolution the boundary falls on (e.g. {_grid_for(off)}-min), or read the "
+                "tariff's boundary as the interval's start"))
+
+
+def _grid_for(minutes: list[int]) -> int:
+    """The coarsest profile resolution (60, 30 or 15 min) on which every one of ``minutes`` falls."""
+    return next(step for step in (60, 30, 15) if all(m % step == 0 for m in minutes))
 
 
 def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:
@@ -2191,6 +2247,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         _check_peak_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
         _check_holidays_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                 raw, problems)
+        _check_period_grid(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame, raw, problems)
         _check_peak_times_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                   raw, problems)
         _check_in_service_month_read(tariffs, settings, checkers["sites"].frame, raw, problems)

@@ -842,6 +842,53 @@ def test_an_hourly_base_load_under_a_quarter_hour_demand_charge_is_warned(tmp_pa
     assert "15-min windows" in found.rule and "60-min intervals" in found.rule
 
 
+def test_an_hourly_base_load_under_a_quarter_hour_coincident_peak_window_is_warned(tmp_path):
+    # as a demand charge's (above): a 15-min peak window on an hourly base load reads the hour that holds it
+    folder = cb.write_case(tmp_path / "c")
+    rows = [r.split(",") for r in (folder / "profiles.csv").read_text(encoding="utf-8").splitlines()[1:]]
+    base = [["BASE", ts, "", "100"] for _, ts, _ in rows]
+    cb.write_csv(folder / "profiles.csv", ["profile_id", "timestamp", "shaft_load_pct", "input_kw"],
+                 [r + [""] for r in rows] + base)
+    (folder / "tariffs").mkdir()
+    head = ('[tariff]\nname = "cp (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n[[periods]]\ncode = "all"\n'
+            '[energy]\nprice_per_kwh = { all = 0.1 }\n[[coincident_peak]]\nname = "tx"\nprice_per_kw_month = 5.0\n'
+            'times = [2025-01-02T10:00:00]\n')
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file", "base_profile_id"],
+                 [cb.SITES[0] + ["t.toml", "BASE"]])
+    for window, warned in ((15, True), (60, False)):
+        (folder / "tariffs" / "t.toml").write_text(head + f"window_min = {window}\n", encoding="utf-8")
+        case, problems = load_case(folder)
+        assert case is not None, [str(p) for p in problems if p.severity == "error"]
+        found = [p for p in problems if p.column == "base_profile_id" and "coincident-peak charge takes" in p.rule]
+        assert bool(found) == warned
+        if warned:
+            assert "15-min windows" in found[0].rule and "60-min intervals" in found[0].rule
+
+
+@pytest.mark.parametrize("peak_hours, off_hours, warned", [('"17:30-20:30"', '"20:30-17:30"', "17:30, 20:30"),
+                                                      ('"17:00-20:00"', '"20:00-17:00"', None)])
+def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, peak_hours, off_hours, warned):
+    # the small case's profile is hourly (tests/casebuilder.py): a period from 17:30 prices the 17:00 hour wholly in
+    # the period before (each interval takes the period in force at its start: docs/tariffs.md)
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    text = ('[tariff]\nname = "tou (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n'
+            f'[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = [{peak_hours}]\n'
+            f'[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = [{off_hours}]\n'
+            '[[periods]]\ncode = "off"\ndays = ["saturday", "sunday"]\nhours = ["00:00-24:00"]\n'
+            '[energy]\nprice_per_kwh = { peak = 0.3, off = 0.1 }\n')
+    (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    found = [p for p in problems if p.file == "tariffs/t.toml" and "between the starts of the case's 60-min" in p.rule]
+    if warned is None:
+        assert not found
+    else:
+        assert [p.value for p in found] == [warned, warned]  # the peak rule and the off-peak rule it borders
+        assert found[0].column == "periods[1].hours" and "30-min" in found[0].hint
+
+
 def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):
     # the case's profiles are of January 2025 (tests/casebuilder.py); a tariff listing only 2026's holidays bills
     # 2025's as ordinary days
