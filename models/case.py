@@ -1000,6 +1000,15 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                     "the analysis year is the one most of the case's intervals fall in, and a profile is "
                                     "moved by whole weeks onto it; give the one year that is most typical, or each "
                                     "year as its own case"))
+        first, last = t_unique[0], t_unique[-1]
+        if (first.month == 1 and first.day == 1 and first.hour * 60 + first.minute == int(round(resolution))
+                and last.month == 1 and last.day == 1 and last.hour == 0 and last.minute == 0):
+            problems.append(warning(source, None, header("profile_id"), profile_id,
+                                    f"profile '{profile_id}' runs from {first:%Y-%m-%d %H:%M} to {last:%Y-%m-%d %H:%M}: "
+                                    "its timestamps look like the ends of the intervals, read as their starts "
+                                    "(each interval an interval late, moved into the next period at a boundary)",
+                                    "timestamps mark the start of each interval: shift the data back one interval "
+                                    "(\"hour ending\" 01:00 is the hour from 00:00)"))
         series = pd.Series(v_unique, index=t_unique, name=quantity)
         profiles[profile_id] = series
         info.append({"profile_id": profile_id, "quantity": quantity, "resolution_min": int(round(resolution)),

@@ -319,6 +319,19 @@ class TestProfileRules:
         assert case is not None, [str(p) for p in _errors(problems)]
         assert list(case.profiles["LP1"].index.hour) == [14, 15, 16, 17]
 
+    @pytest.mark.parametrize("start, warned", [("2025-01-01 01:00", True), ("2025-01-01 00:00", False)])
+    def test_a_year_stamped_at_the_interval_ends_is_warned(self, tmp_path, start, warned):
+        # 8,760 hourly stamps from 01:00 on 1 January 2025 end at 00:00 on 1 January 2026: the ends of the hours of
+        # 2025 ("hour ending"), read as starts an hour late; the same count from 00:00 are the starts
+        stamps = pd.date_range(start, periods=8760, freq="h", tz="Europe/Berlin")
+        rows = [["LP1", t.isoformat(), "50"] for t in stamps]
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is not None, [str(p) for p in _errors(problems)]
+        found = [p for p in problems if "look like the ends of the intervals" in p.rule]
+        assert bool(found) == warned
+        if warned:
+            assert found[0].value == "LP1" and "2025-01-01 01:00 to 2026-01-01 00:00" in found[0].rule
+
     def test_missing_timestamps_warned(self, tmp_path):
         rows = cb.profile_rows()
         del rows[10:13]
