@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import logging
 import os
+import time
+import uuid
 from typing import Callable
 
 from models import finance
@@ -107,12 +109,13 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     from collections import deque
     from concurrent.futures import CancelledError
 
-    from distributed import as_completed
     from distributed.scheduler import KilledWorker
 
     waiting = deque(enumerate(site_id for site_id, _ in partition))
     attempts: dict[str, int] = {}
     launched: dict = {}
+    # task keys of this run alone: two runs sharing a scheduler must never take each other's results
+    run_token = uuid.uuid4().hex
     if waiting and not client.nthreads():
         _wait_for_a_worker(client)
 
@@ -124,7 +127,7 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     def launch(k: int, site_id: str):
         attempts[site_id] = attempts.get(site_id, 0) + 1
         sub_case = site_case(case, site_id)
-        key = f"drivecase-site-physics-{k}-{attempts[site_id]}"
+        key = f"drivecase-site-physics-{run_token}-{k}-{attempts[site_id]}"
         args = (index, cost, chunk_assets, today_only, books_wanted(site_id, len(sub_case.assets)))
         future = None
         for tries_left in range(SITE_ATTEMPTS - 1, -1, -1):
@@ -146,9 +149,10 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         launched[future] = (k, site_id)
         return future
 
-    running = as_completed([launch(*waiting.popleft()) for _ in range(min(window(), len(waiting)))])
+    for _ in range(min(window(), len(waiting))):
+        launch(*waiting.popleft())
     done = 0
-    for future in running:
+    for future in _each_as_done(client, launched):
         k, site_id = launched.pop(future)
         try:
             op, part, books = future.result()
@@ -167,7 +171,44 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         finally:
             future.release()
         while waiting and len(launched) < window():
-            running.add(launch(*waiting.popleft()))
+            launch(*waiting.popleft())
+
+
+#: Seconds between looks at the cluster while a run waits for its sites (whether any worker is left).
+WORKER_CHECK_S = 2.0
+
+
+def _each_as_done(client, launched: dict):
+    """Yield the futures of ``launched`` as they finish, while the caller may add to it; raise
+    :class:`TimeoutError`, in words, when the cluster has had no worker for :data:`FIRST_WORKER_WAIT_S`
+    (every worker left during the run and none joined: the scheduler would hold the sites for ever)."""
+    from concurrent.futures import CancelledError
+
+    from distributed import wait
+
+    alone_since = None
+    while launched:
+        try:
+            finished = wait(list(launched), timeout=WORKER_CHECK_S, return_when="FIRST_COMPLETED").done
+        except CancelledError:  # a task the scheduler forgot with its worker: the caller sends it again
+            finished = [f for f in launched if f.cancelled()]
+        except TimeoutError:
+            if client.nthreads():
+                alone_since = None
+                continue
+            alone_since = alone_since if alone_since is not None else time.monotonic()
+            if time.monotonic() - alone_since >= FIRST_WORKER_WAIT_S:
+                address = getattr(client.scheduler, "address", None) or "ADDRESS"
+                raise TimeoutError(
+                    f"every worker left the scheduler during the run and none joined within {FIRST_WORKER_WAIT_S:g} s; "
+                    f"start one on each machine with `dask worker {address}` and run again (a worker that dies "
+                    "while it works has most often run out of memory: see the estimate printed before a large "
+                    "run)") from None
+            continue
+        alone_since = None
+        for future in finished:
+            if future in launched:
+                yield future
 
 
 def _wait_for_a_worker(client) -> None:

@@ -304,3 +304,66 @@ def test_the_month_changes_come_into_service_reaches_the_workers(fleet, fleet_lo
     assert not np.allclose(local.results["ratchet_shortfall"], fleet_local.results["ratchet_shortfall"])  # (the month told)
     remote = run_distributed(moved, moved.finance, scheduler=cluster.scheduler_address, with_risk=False)
     _assert_same_files(local, remote)
+
+
+def test_two_runs_on_one_scheduler_keep_their_own_results(fleet, fleet_local, cluster):
+    """Two runs sharing a scheduler at the same time (two analysts on one cluster, two scenarios side by side):
+    each gets the result files of its own case from the local engine, never the other's (each run's tasks have
+    keys of their own)."""
+    import threading
+
+    lighter = replace(fleet, profiles={k: v * 0.9 for k, v in fleet.profiles.items()})
+    lighter_local = scenario.run(lighter, lighter.finance, with_risk=False)
+    results: dict[str, object] = {}
+    errors: list[BaseException] = []
+
+    def one(name, case):
+        try:
+            results[name] = run_distributed(case, case.finance, scheduler=cluster.scheduler_address, with_risk=False)
+        except BaseException as exc:  # reported below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=one, args=("fleet", fleet)), threading.Thread(target=one, args=("lighter", lighter))]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert not errors, errors
+    _assert_same_files(fleet_local, results["fleet"])
+    _assert_same_files(lighter_local, results["lighter"])
+    assert not fleet_local.results["npv"].equals(lighter_local.results["npv"])  # the two cases differ
+
+
+def test_the_task_keys_of_two_runs_differ(fleet, cluster, monkeypatch):
+    keys: list[str] = []
+    submit = distributed.Client.submit
+
+    def recording(self, func, *args, key=None, **kwargs):
+        keys.append(key)
+        return submit(self, func, *args, key=key, **kwargs)
+
+    monkeypatch.setattr(distributed.Client, "submit", recording)
+    run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+    first = set(keys)
+    keys.clear()
+    run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False)
+    assert first and keys and not first & set(keys)
+
+
+def test_every_worker_gone_during_the_run_is_named_not_waited_on_for_ever(fleet, monkeypatch):
+    """The last worker leaves after the first site comes back: the run stops with a message once the cluster
+    has been without a worker for FIRST_WORKER_WAIT_S, as at the start."""
+    from models import distributed as engine
+
+    monkeypatch.setattr(engine, "FIRST_WORKER_WAIT_S", 1.0)
+    monkeypatch.setattr(engine, "WORKER_CHECK_S", 0.2)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=":0",
+                                  silence_logs=logging.CRITICAL) as local:
+        def retire(site, n, total):
+            if n == 1:
+                local.scale(0)
+
+        with pytest.raises(TimeoutError, match=r"every worker left the scheduler during the run and none joined within "
+                                               r"1 s; start one .*" + re.escape(f"`dask worker {local.scheduler_address}`")):
+            run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False,
+                            site_progress=retire)
