@@ -591,6 +591,9 @@ def cmd_report(args: argparse.Namespace) -> int:
     if problem:
         print(problem, file=sys.stderr)
         return 2
+    if not (args.plan_gap >= 0 and args.plan_seconds > 0):
+        print("drivecase report: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
+        return 2
     case = _load_or_report(args.case)
     if case is None:
         return 1
@@ -607,15 +610,34 @@ def cmd_report(args: argparse.Namespace) -> int:
             print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}"
                   + unknown_ids_hint(unknown, case.assets["asset_id"]), file=sys.stderr)
             return 1
+    from tqdm import tqdm
+
+    from models.estimate import estimate_run
+
+    estimate = estimate_run(case, workers=1)
+    if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
+        print(f"Large run ahead: {estimate.note}; then the pack is written", file=sys.stderr)
+    steps = STAGES + ("pack",)
+    bar = tqdm(total=len(steps), desc="drivecase report", unit="stage", file=sys.stderr, disable=args.quiet)
+
+    def progress(stage: str) -> None:
+        if stage in steps and stage != steps[0]:  # (a note such as the plan finishing moves no stage on)
+            bar.update(1)
+        bar.set_postfix_str(stage)
+
+    plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     try:
-        result = scenario.run(case, case.finance)
+        result = scenario.run(case, case.finance, progress=progress, plan_settings=plan_settings)
     except ValueError as exc:
+        _close_bars(bar)
         print(f"drivecase report: {exc}", file=sys.stderr)
         return 1
     import warnings
 
     from models.pack import PackWarning
 
+    bar.update(len(STAGES) - 1 - bar.n)
+    progress("pack")
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:  # the pack's notes as plain lines, not Python warnings
         warnings.simplefilter("always", PackWarning)
@@ -623,7 +645,10 @@ def cmd_report(args: argparse.Namespace) -> int:
             written = write_pack(case, result, args.out, assets=assets, plan=args.plan or not assets, pdf=args.pdf,
                                  messages=notes)
         except OSError as exc:
+            _close_bars(bar)
             return _write_failed("report", args.out, exc)
+    bar.update(bar.total - bar.n)
+    bar.close()
     skipped = set()
     for note in caught:
         if issubclass(note.category, PackWarning):
@@ -697,6 +722,12 @@ def build_parser() -> argparse.ArgumentParser:
     group.add_argument("--assets", help="comma-separated asset ids to report on")
     group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
     p_report.add_argument("--pdf", action="store_true", help="also print the report to PDF with headless Chromium")
+    p_report.add_argument("--quiet", action="store_true", help="no progress bar")
+    p_report.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
+                          help="stop the exact plan once it is proven within this %% of the best possible NPV "
+                               f"(default {100.0 * gap_frac:g}), as for run")
+    p_report.add_argument("--plan-seconds", type=float, default=time_s, metavar="S",
+                          help=f"stop the exact plan after this many seconds (default {time_s:g}), as for run")
     p_report.set_defaults(func=cmd_report)
     return parser
 

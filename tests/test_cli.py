@@ -376,6 +376,21 @@ def test_report_says_a_skipped_pdf_in_a_plain_line(tmp_path, capsys, monkeypatch
     assert "write_pack(" not in captured.err and "PDF skipped" not in captured.out  # said once, on the error stream
 
 
+def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, capsys):
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack")]) == 0
+    captured = capsys.readouterr()
+    assert "drivecase report: 100%" in captured.err and "9/9" in captured.err and "pack" in captured.err
+    assert "100%" not in captured.out and "9/9" not in captured.out
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack2"), "--quiet", "--plan-seconds", "5"]) == 0
+    assert "drivecase report: 100%" not in capsys.readouterr().err
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack3"), "--plan-seconds", "0"]) == 2
+    assert "--plan-seconds > 0" in capsys.readouterr().err
+
+
 def test_report_again_into_its_folder_says_what_it_removed(tmp_path, capsys):
     # the demo's records of two assets, then of one: the other's record of the earlier pack goes, and is named
     out = tmp_path / "pack"

@@ -302,6 +302,25 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
 # ---------------------------------------------------------------------------------------------------
 # Cash flows
 # ---------------------------------------------------------------------------------------------------
+#: The cash-flow frame last indexed by project, and its index (:func:`_flows_by_project`): a pack reads one
+#: project after another, and scanning the whole frame for each took time of order projects x rows.
+_FLOW_INDEX: dict = {}
+
+
+def _flows_by_project(cf: pd.DataFrame) -> tuple[dict, np.ndarray, np.ndarray, np.ndarray]:
+    """The row positions of each (asset_id, option_id) in a cash-flow frame, with its component, year and
+    amount columns as arrays; built once per frame (while it lives) and reused."""
+    kept = _FLOW_INDEX.get("last")
+    if kept is not None and kept[0]() is cf:
+        return kept[1]
+    rows = {(str(a), str(o)): idx for (a, o), idx in
+            cf.groupby(["asset_id", "option_id"], sort=False, observed=True).indices.items()} if len(cf) else {}
+    index = (rows, cf["component"].to_numpy().astype(str), cf["year"].to_numpy().astype(int),
+             cf["amount"].to_numpy(dtype=float))
+    _FLOW_INDEX["last"] = (weakref.ref(cf), index)
+    return index
+
+
 def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
     """Return one project's flows as a component x year table (zero-filled) [currency].
 
@@ -309,11 +328,11 @@ def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
     0..horizon. The column sums are the engine's net flows (zero components add nothing).
     """
     horizon = int(result.assumptions.horizon_yr)
-    cf = result.cashflows
-    pick = ((cf["asset_id"].to_numpy() == asset_id) & (cf["option_id"].to_numpy() == option_id))
-    components = cf["component"].to_numpy()[pick].astype(str)
-    years = cf["year"].to_numpy()[pick].astype(int)
-    amounts = cf["amount"].to_numpy(dtype=float)[pick]
+    rows, components_all, years_all, amounts_all = _flows_by_project(result.cashflows)
+    pick = rows.get((str(asset_id), str(option_id)), np.zeros(0, dtype=np.intp))
+    components = components_all[pick]
+    years = years_all[pick]
+    amounts = amounts_all[pick]
     names = [c for c in COMPONENTS if c in set(components)]
     position = {c: k for k, c in enumerate(names)}
     grid = np.zeros((len(names), horizon + 1))
