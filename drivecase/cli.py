@@ -196,7 +196,9 @@ def cmd_bill(args: argparse.Namespace) -> int:
     from models.attribution import reactive_balance
     from models.bill_savings import (banned_caution, banned_quantities, meter_and_bills, monthly_bill_table,
                                      reactive_value_curve, site_setups)
-    from models.operation import operate
+    from dataclasses import replace
+
+    from models.operation import case_index, operate, options_with_baseline, site_case
 
     case = _load_or_report(args.case)
     if case is None:
@@ -217,7 +219,16 @@ def cmd_bill(args: argparse.Namespace) -> int:
         return 2
     capacitor_cost = (float(case.finance.capacitor_cost_per_kvar) if args.capacitor_cost is None
                       else float(args.capacitor_cost))
-    op = operate(case)
+    # today's motors only, on the sites asked for (the sweep alone reads the other options), on the whole
+    # case's analysis index, so the figures are those of the full analysis
+    index = case_index(case)
+    sweep_site = (case.assets.loc[case.assets["asset_id"] == args.reactive_sweep, "site_id"].iloc[0]
+                  if args.reactive_sweep else None)
+    if args.site and sweep_site in (None, args.site):
+        case = site_case(case, args.site)
+    if not args.reactive_sweep:
+        case = replace(case, options=options_with_baseline(case.options).iloc[:1].reset_index(drop=True))
+    op = operate(case, index=index)
     try:
         setups = site_setups(case, op.index)
     except ValueError as exc:

@@ -376,6 +376,24 @@ def test_report_says_a_skipped_pdf_in_a_plain_line(tmp_path, capsys, monkeypatch
     assert "write_pack(" not in captured.err and "PDF skipped" not in captured.out  # said once, on the error stream
 
 
+def test_bill_models_today_s_motors_of_the_site_asked_for_and_prints_the_full_analysis_figures(capsys, monkeypatch):
+    # drivecase bill reads today's bills only: it models today's motors (not the catalogue) of the site asked for,
+    # on the whole case's analysis index; its table is the one the full analysis's baseline gives
+    import models.operation as operation
+
+    asked = []
+    real = operation.operate
+    monkeypatch.setattr(operation, "operate", lambda case, **kw: asked.append(case) or real(case, **kw))
+    assert main(["bill", str(DEMO), "--site", "KGQ"]) == 0
+    narrow = capsys.readouterr().out
+    assert len(asked) == 1 and len(asked[0].options) == 1 and set(asked[0].assets["site_id"]) == {"KGQ"}
+    monkeypatch.setattr(operation, "operate", real)
+    assert main(["bill", str(DEMO)]) == 0
+    whole = capsys.readouterr().out
+    kgq = narrow[narrow.index("Site KGQ"):narrow.index("Reactive balance")]
+    assert kgq in whole
+
+
 def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, capsys):
     from test_scenario import _one_asset_case
 
