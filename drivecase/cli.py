@@ -382,7 +382,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     workers = 1
     if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
         workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
-    estimate = estimate_run(case, workers=workers)
+    estimate = estimate_run(case, workers=workers, workers_here=not args.scheduler)
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}", file=sys.stderr)
     bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)

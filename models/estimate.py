@@ -12,9 +12,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from models.operation import (CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES, KEPT_BOOKS_BUDGET_BYTES,
-                              KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS, TODAY_IN_MEMORY_BUDGET_BYTES, case_index,
-                              interval_bytes, options_with_baseline, site_partition)
+from models.operation import (CHUNK_ELEMENTS, CURVE_CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES,
+                              KEPT_BOOKS_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS,
+                              TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
+                              site_partition)
 
 #: Machines stage per asset-option-step [s], one thread: 12.0 s of wall time for 10,000 assets x 11
 #: options x 8,760 steps with two site threads (bench_fleet, local engine, late on 2026-12-02, 50.3 s end to
@@ -50,6 +51,17 @@ BASE_BYTES = 250 * 2**20
 #: Temporaries of the machine models per asset-step of one block [bytes]: about 40 float64 arrays of the
 #: block's size live at once (common to the physics peak of both benchmark sizes, docs/scale.md).
 BLOCK_TEMP_BYTES_PER_ELEMENT = 40 * 8
+#: A block of a run above the dense budget, per asset-step [bytes]: it keeps its options as curve tables
+#: (:data:`models.operation.CURVE_CHUNK_ELEMENTS` asset-steps a block) and holds today's power, the reference
+#: load, the grid's cells and positions and the models' temporaries, about 60 bytes per asset-step
+#: (models.operation); 70 here, as the peaks of 2,000-asset fleets on 15-minute profiles (4.77 GiB for 3.81
+#: estimated before the curve blocks were counted, measured with the process and its children's resident
+#: memory summed) came out above the 60.
+CURVE_BLOCK_BYTES_PER_ELEMENT = 70
+#: Resident memory of a Dask worker process before its first site [bytes]: the interpreter with numpy,
+#: pandas, numba and this package's models loaded, about 0.3 GiB idle after a task (measured on a local
+#: cluster of 2 workers, 500-2,000-asset fleets).
+WORKER_BASE_BYTES = 300 * 2**20
 #: Economics per asset-option [bytes]: cash flows by component and year, metrics, LCC and plan tables,
 #: and the plan's bills (fitted to the economics peaks of the benchmark, docs/scale.md; a run keeps freed
 #: memory for reuse, models.memory, so the peak is the high-water mark of its largest stage; refitted to the
@@ -94,7 +106,7 @@ class Estimate:
     note: str
 
 
-def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate:
+def estimate_run(case, workers: int = 1, threads: int | None = None, workers_here: bool = True) -> Estimate:
     """Estimate the wall time and peak memory of a run from the size of the case.
 
     Parameters
@@ -107,6 +119,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     threads : int, optional
         Sites worked at once by the local engine (default :data:`models.operation.PHYSICS_THREADS`;
         ignored with Dask workers); each holds one site's blocks.
+    workers_here : bool
+        The Dask workers run on this machine (a local cluster): their memory counts in the peak. With a
+        scheduler elsewhere (False) the peak is this machine's, and the note gives each worker's need.
 
     Returns
     -------
@@ -123,8 +138,12 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
     a run keeps above the dense budget (:data:`BOOK_BYTES_PER_ASSET_STEP`, at most
     :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`) + the larger of
-    the physics (per thread: the largest site's today's power, one block's per-option arrays and
-    temporaries) and the economics (one site's meter arrays and the per-asset-option tables).
+    the physics (per thread: the largest site's today's power and loads, one block's per-option arrays and
+    temporaries, or above the dense budget one curve block, :data:`CURVE_BLOCK_BYTES_PER_ELEMENT`) and the
+    economics (one site's meter arrays and the per-asset-option tables). On Dask the physics runs in the
+    workers: each holds :data:`WORKER_BASE_BYTES` and one site's physics (and, on a dense run, the site's
+    every-option power it sends back), and only the former while the economics runs; counted in the peak
+    when the workers are on this machine.
     """
     if workers < 1:
         raise ValueError("workers must be >= 1")
@@ -147,9 +166,18 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     spilled = not dense and today > TODAY_IN_MEMORY_BUDGET_BYTES
     # above its budget today's power lives in a mapped file the system may write out: counted at the budget
     store = interval_bytes(n_a, n_o, n_t) if dense else min(today, TODAY_IN_MEMORY_BUDGET_BYTES)
-    block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-    physics_peak = at_once * (interval_bytes(largest, 1, n_t) + interval_bytes(block_assets, n_o, n_t)
-                              + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t)
+    site_bytes = interval_bytes(largest, 1, n_t) + 8 * largest * n_t  # the site's today's power and its loads
+    if dense:
+        block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
+        block = interval_bytes(block_assets, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
+    else:
+        block_assets = min(largest, max(1, CURVE_CHUNK_ELEMENTS // max(n_t, 1)))
+        block = CURVE_BLOCK_BYTES_PER_ELEMENT * block_assets * n_t
+    per_site = site_bytes + block
+    physics_peak = at_once * per_site if workers == 1 else 0
+    worker_bytes = 0
+    if workers > 1:  # each worker: its interpreter and one site's physics, and on a dense run the site's options
+        worker_bytes = WORKER_BASE_BYTES + per_site + (interval_bytes(largest, n_o, n_t) if dense else 0)
     # above the dense budget the run keeps the sites' curve books (the plan reads its rows through them; the
     # Dask workers send theirs back) as far as their budget allows; rows of the sites beyond it are recomputed
     # and kept while the plan's reactive check and its bills read them (at most one row per asset, within
@@ -159,6 +187,11 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
     unbooked = 1.0 - (books / want_books if want_books else 0.0)
     kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
+    n_workers = min(int(workers), max(len(sites), 1)) if workers > 1 else 0
+    if n_workers and workers_here:
+        # the workers hold their sites' physics while it runs, and only their interpreters while the economics runs
+        physics_peak = n_workers * worker_bytes
+        economics_peak += n_workers * WORKER_BASE_BYTES
     peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "
@@ -167,8 +200,13 @@ def estimate_run(case, workers: int = 1, threads: int | None = None) -> Estimate
             "needs it)")
     if spilled:
         kept += f", in a temporary file of {today / 2**30:.1f} GiB"
-    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s): about {_duration(seconds)} and "
-            f"{peak / 2**30:.1f} GiB peak; keeps {kept}.")
+    engine = (f" with {n_workers} Dask worker(s){' on this machine' if workers_here else ''}" if n_workers else "")
+    peak_text = f"{peak / 2**30:.1f} GiB peak" + ("" if workers_here or not n_workers else " on this machine")
+    if n_workers:
+        peak_text += f" (each worker about {worker_bytes / 2**30:.1f} GiB"
+        peak_text += ", counted)" if workers_here else ")"
+    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s){engine}: about "
+            f"{_duration(seconds)} and {peak_text}; keeps {kept}.")
     return Estimate(float(seconds), int(peak), note)
 
 

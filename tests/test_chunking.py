@@ -20,7 +20,7 @@ from models.bill_savings import site_savings, site_setups
 from models.case import load_case
 from models.exports import csv_bytes, run_tables
 from models.operation import (CHUNK_ELEMENTS, SiteIntervalStore, asset_blocks, case_index, interval_bytes, operate,
-                              operate_site, site_case, site_partition)
+                              operate_site, options_with_baseline, site_case, site_partition)
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
 from synthetic_fleet import write_fleet  # noqa: E402
@@ -222,6 +222,41 @@ class TestEstimate:
         n_a, n_t = len(fleet.assets), len(case_index(fleet))
         assert in_memory.peak_bytes - spilled.peak_bytes == interval_bytes(n_a, 1, n_t) - 1024
         assert "temporary file" in spilled.note and "temporary file" not in in_memory.note
+
+    def test_dask_workers_on_this_machine_count_in_the_peak(self, fleet):
+        # each worker of a local cluster holds its interpreter (WORKER_BASE_BYTES) and one site's physics, which
+        # on this dense run includes the site's every-option power it sends back; a scheduler elsewhere keeps the
+        # workers' memory off this machine's peak, and the note says each worker's need
+        from models import estimate
+
+        n_o, n_t = len(options_with_baseline(fleet.options)), len(case_index(fleet))
+        largest = int(fleet.assets["site_id"].value_counts().max())
+        here = estimate.estimate_run(fleet, workers=2)
+        away = estimate.estimate_run(fleet, workers=2, workers_here=False)
+        local = estimate.estimate_run(fleet, threads=1)
+        least_per_worker = estimate.WORKER_BASE_BYTES + interval_bytes(largest, n_o, n_t)
+        n_a = len(fleet.assets)
+        assert here.peak_bytes >= estimate.BASE_BYTES + interval_bytes(n_a, n_o, n_t) + 2 * least_per_worker
+        assert away.peak_bytes < estimate.BASE_BYTES + interval_bytes(n_a, n_o, n_t) + least_per_worker
+        assert here.peak_bytes > local.peak_bytes > away.peak_bytes
+        assert "2 Dask worker(s) on this machine" in here.note and "each worker about" in here.note
+        assert "peak on this machine (each worker about" in away.note
+
+    def test_a_curve_block_is_counted_above_the_dense_budget(self, fleet, monkeypatch):
+        # the physics of a run above the dense budget holds one curve block per thread: CURVE_BLOCK_BYTES_PER_ELEMENT
+        # per asset-step of it; doubling that constant raises the physics' share of the peak by the block's bytes
+        from models import estimate
+
+        monkeypatch.setattr(estimate, "DENSE_INTERVAL_BUDGET_BYTES", 0)
+        monkeypatch.setattr(estimate, "ECONOMICS_BYTES_PER_PAIR", 0)  # (so that the physics is the larger part)
+        n_t = len(case_index(fleet))
+        largest = int(fleet.assets["site_id"].value_counts().max())
+        block = min(largest, max(1, estimate.CURVE_CHUNK_ELEMENTS // n_t)) * n_t
+        one = estimate.estimate_run(fleet, threads=1)
+        per_element = estimate.CURVE_BLOCK_BYTES_PER_ELEMENT
+        monkeypatch.setattr(estimate, "CURVE_BLOCK_BYTES_PER_ELEMENT", 2 * per_element)
+        two = estimate.estimate_run(fleet, threads=1)
+        assert two.peak_bytes - one.peak_bytes == per_element * block
 
     def test_estimate_refuses_no_workers(self, fleet):
         from models.estimate import estimate_run
