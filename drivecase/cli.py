@@ -383,6 +383,9 @@ def cmd_run(args: argparse.Namespace) -> int:
     if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
         workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
     estimate = estimate_run(case, workers=workers, workers_here=not args.scheduler)
+    if args.estimate:
+        print(f"Estimate: {estimate.note}")
+        return 0
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}", file=sys.stderr)
     bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)
@@ -408,6 +411,9 @@ def cmd_run(args: argparse.Namespace) -> int:
         else:
             result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk,
                                   plan_settings=plan_settings)
+    except KeyboardInterrupt:
+        _close_bars(bar, site_bar)  # (so that "interrupted" is the last line)
+        raise
     except ValueError as exc:
         _close_bars(bar, site_bar)
         print(f"drivecase run: {exc}", file=sys.stderr)
@@ -626,6 +632,9 @@ def cmd_report(args: argparse.Namespace) -> int:
     from models.estimate import estimate_run
 
     estimate = estimate_run(case, workers=1)
+    if args.estimate:
+        print(f"Estimate: {estimate.note} Then the pack is written.")
+        return 0
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}; then the pack is written", file=sys.stderr)
     steps = STAGES + ("pack",)
@@ -639,6 +648,9 @@ def cmd_report(args: argparse.Namespace) -> int:
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     try:
         result = scenario.run(case, case.finance, progress=progress, plan_settings=plan_settings)
+    except KeyboardInterrupt:
+        _close_bars(bar)
+        raise
     except ValueError as exc:
         _close_bars(bar)
         print(f"drivecase report: {exc}", file=sys.stderr)
@@ -706,6 +718,8 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: finance.toml's)")
     p_run.add_argument("--no-risk", action="store_true", help="skip the tornado and Monte Carlo")
     p_run.add_argument("--quiet", action="store_true", help="no progress bar")
+    p_run.add_argument("--estimate", action="store_true",
+                       help="print the estimate of time and memory of the run and stop (nothing is written)")
     p_run.add_argument("--engine", choices=("local", "dask"), default="local",
                        help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
     p_run.add_argument("--scheduler", metavar="ADDRESS",
@@ -734,6 +748,8 @@ def build_parser() -> argparse.ArgumentParser:
     group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
     p_report.add_argument("--pdf", action="store_true", help="also print the report to PDF with headless Chromium")
     p_report.add_argument("--quiet", action="store_true", help="no progress bar")
+    p_report.add_argument("--estimate", action="store_true",
+                          help="print the estimate of time and memory of the run and stop (nothing is written)")
     p_report.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
                           help="stop the exact plan once it is proven within this %% of the best possible NPV "
                                f"(default {100.0 * gap_frac:g}), as for run")
@@ -762,6 +778,9 @@ def main(argv: list[str] | None = None) -> int:
         return int(args.func(args))
     except KeyboardInterrupt:  # Ctrl+C: one line, no traceback; nothing half-written is left (atomic writes)
         print(f"\n{' '.join(filter(None, ('drivecase', getattr(args, 'command', None))))}: interrupted", file=sys.stderr)
+        # the exact plan's solver runs in a thread of its own that cannot be stopped: the command's process
+        # leaves without waiting for it (:func:`entry`); a Dask run closes its cluster first, as it does
+        _INTERRUPTED["leave_at_once"] = getattr(args, "engine", "local") != "dask"
         return 130
     except BrokenPipeError:  # the reader of the output (e.g. `| head`) stopped reading: not an error of ours
         devnull = os.open(os.devnull, os.O_WRONLY)
@@ -769,5 +788,21 @@ def main(argv: list[str] | None = None) -> int:
         return 0
 
 
+#: Set by :func:`main` when a command was interrupted and its process may leave at once.
+_INTERRUPTED: dict[str, bool] = {}
+
+
+def entry() -> int:
+    """The ``drivecase`` command: :func:`main`, and after Ctrl+C an exit that does not wait for the exact plan's
+    solver thread to finish its search (up to ``--plan-seconds``); its result would be thrown away."""
+    _INTERRUPTED.clear()
+    code = main()
+    if code == 130 and _INTERRUPTED.get("leave_at_once"):
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(code)
+    return code
+
+
 if __name__ == "__main__":
-    raise SystemExit(main())
+    raise SystemExit(entry())

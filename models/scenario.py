@@ -667,7 +667,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     # the plan's check of its reactive projects and the plan's bills read the same rows: recomputed once
     with kept_rows(op):
         if with_risk:  # the plan beside the end of life and the risk, which do not read it
-            with ThreadPoolExecutor(max_workers=1, thread_name_prefix="drivecase-plan") as pool:
+            pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="drivecase-plan")
+            try:
                 planned = pool.submit(plan_now)
                 step("end of life")
                 eol, rules = timed("end of life", eol_now)
@@ -675,6 +676,12 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
                 step(PLAN_FINISHING)  # what a long run is waiting for once the risk is done
                 plan_frames = planned.result()
+            except BaseException:
+                # (Ctrl+C, or an error beside the plan: the caller is not kept waiting for the solver's search,
+                # which cannot be stopped and whose result would be thrown away)
+                pool.shutdown(wait=False, cancel_futures=True)
+                raise
+            pool.shutdown(wait=True)
             plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv)
             del drawn  # the best projects' draws: read by the plan's Monte Carlo only
         else:

@@ -394,6 +394,16 @@ def test_bill_models_today_s_motors_of_the_site_asked_for_and_prints_the_full_an
     assert kgq in whole
 
 
+@pytest.mark.parametrize("command", ["run", "report"])
+def test_estimate_alone_prints_the_estimate_and_writes_nothing(tmp_path, capsys, command):
+    # the demo: 82 assets, 11 options (the catalogue with today's motor), an hourly year of 8,760 steps, 2 sites
+    out = tmp_path / "o"
+    assert main([command, str(DEMO), "--out", str(out), "--estimate"]) == 0
+    printed = capsys.readouterr().out
+    assert printed.startswith("Estimate: 82 assets x 11 options x 8,760 steps on 2 site(s): about ")
+    assert "GiB peak" in printed and not out.exists()
+
+
 def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, capsys):
     from test_scenario import _one_asset_case
 
@@ -653,6 +663,48 @@ def test_ctrl_c_ends_a_command_with_one_line(monkeypatch, capsys):
     assert main(["check", str(DEMO)]) == 130
     err = capsys.readouterr().err
     assert err.strip() == "drivecase check: interrupted"
+
+
+def test_the_command_leaves_at_once_after_ctrl_c_without_waiting_for_the_plan_s_solver(monkeypatch):
+    # the exact plan's solver thread cannot be stopped: after Ctrl+C the command's process exits without joining
+    # it (os._exit), but only where no Dask cluster is to be closed
+    from drivecase import cli
+
+    left = []
+    monkeypatch.setattr(cli.os, "_exit", left.append)
+    for engine, leaves in (("local", True), ("dask", False)):
+        left.clear()
+
+        def interrupted(argv=None, engine=engine):
+            cli._INTERRUPTED["leave_at_once"] = engine != "dask"
+            return 130
+
+        monkeypatch.setattr(cli, "main", interrupted)
+        assert cli.entry() == 130
+        assert left == ([130] if leaves else [])
+
+
+def test_ctrl_c_beside_the_plan_does_not_wait_for_the_plan(tmp_path, monkeypatch):
+    # Ctrl+C while the risk runs beside a plan still searching: the run stops at once, not when the search ends
+    import time
+
+    from models import scenario
+    from models.case import load_case
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    case, _ = load_case(folder)
+    monkeypatch.setattr(scenario, "_plan_with_interactions", lambda *a, **k: time.sleep(6))
+
+    def pressed(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(scenario, "_risk", pressed)
+    t0 = time.perf_counter()
+    with pytest.raises(KeyboardInterrupt):
+        scenario.run(case, case.finance)
+    assert time.perf_counter() - t0 < 4.0
 
 
 def _with_check(parser, func):
