@@ -9,6 +9,8 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import threading
+import time
 from pathlib import Path
 
 import pandas as pd
@@ -150,6 +152,66 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
         return (f"drivecase {command}: cannot write into {writable} (permission denied); give a folder you can "
                 "write to")
     return None
+
+
+class _Progress:
+    """A command's progress on the error stream.
+
+    On a terminal, a bar that redraws its elapsed time every second, so that a long stage (the exact plan's
+    search) does not look hung; it shows no time left, as the stages take very different times. Written to a
+    file or a pipe, one plain line per stage (and for counted items such as sites, one per tenth), never the
+    bar's carriage returns and cursor moves. Nothing with ``quiet``.
+    """
+
+    #: Seconds between redraws of a bar on a terminal.
+    REFRESH_S = 1.0
+
+    def __init__(self, total: int, desc: str, unit: str, quiet: bool, lines_of_stages: bool = True):
+        self.total, self.n, self.desc, self.unit = int(total), 0, desc, unit
+        self.lines_of_stages = lines_of_stages
+        self.bar = None
+        self.lines = False
+        self._closed = threading.Event()
+        self._t0 = time.monotonic()
+        self._said = 0  # tenths of the items said
+        if quiet:
+            return
+        if sys.stderr.isatty():
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=self.total, desc=desc, unit=unit, file=sys.stderr,
+                            bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} [{elapsed}{postfix}]")
+            threading.Thread(target=self._tick, name="drivecase-progress", daemon=True).start()
+        else:
+            self.lines = True
+
+    def _tick(self) -> None:
+        while not self._closed.wait(self.REFRESH_S):
+            bar = self.bar
+            if bar is not None:
+                bar.refresh()
+
+    def update(self, k: int = 1) -> None:
+        self.n += int(k)
+        if self.bar is not None:
+            self.bar.update(k)
+        elif self.lines and not self.lines_of_stages:
+            tenth = (10 * self.n) // max(self.total, 1)
+            if tenth > self._said:
+                self._said = tenth
+                print(f"{self.desc}: {self.n}/{self.total} {self.unit}s ({time.monotonic() - self._t0:.0f} s)",
+                      file=sys.stderr, flush=True)
+
+    def set_postfix_str(self, text: str) -> None:
+        if self.bar is not None:
+            self.bar.set_postfix_str(text)
+        elif self.lines and self.lines_of_stages:
+            print(f"{self.desc}: {text} ({time.monotonic() - self._t0:.0f} s)", file=sys.stderr, flush=True)
+
+    def close(self) -> None:
+        self._closed.set()
+        if self.bar is not None:
+            self.bar.close()
 
 
 def _close_bars(*bars) -> None:
@@ -340,8 +402,6 @@ def _print_calibration_summary(case, path: Path) -> None:
 def cmd_run(args: argparse.Namespace) -> int:
     from dataclasses import replace
 
-    from tqdm import tqdm
-
     from models import scenario
     from models.exports import write_run
 
@@ -388,7 +448,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         return 0
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}", file=sys.stderr)
-    bar = tqdm(total=len(STAGES), desc="drivecase run", unit="stage", file=sys.stderr, disable=args.quiet)
+    bar = _Progress(len(STAGES), "drivecase run", "stage", args.quiet)
     site_bar = None
 
     def progress(stage: str) -> None:
@@ -398,7 +458,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     try:
         if args.engine == "dask":
-            site_bar = tqdm(total=len(case.sites), desc="sites", unit="site", file=sys.stderr, disable=args.quiet)
+            site_bar = _Progress(len(case.sites), "sites", "site", args.quiet, lines_of_stages=False)
 
             def site_progress(_site_id: str, done: int, total: int) -> None:
                 site_bar.update(done - site_bar.n)
@@ -627,8 +687,6 @@ def cmd_report(args: argparse.Namespace) -> int:
             print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}"
                   + unknown_ids_hint(unknown, case.assets["asset_id"]), file=sys.stderr)
             return 1
-    from tqdm import tqdm
-
     from models.estimate import estimate_run
 
     estimate = estimate_run(case, workers=1)
@@ -638,7 +696,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}; then the pack is written", file=sys.stderr)
     steps = STAGES + ("pack",)
-    bar = tqdm(total=len(steps), desc="drivecase report", unit="stage", file=sys.stderr, disable=args.quiet)
+    bar = _Progress(len(steps), "drivecase report", "stage", args.quiet)
 
     def progress(stage: str) -> None:
         if stage in steps and stage != steps[0]:  # (a note such as the plan finishing moves no stage on)

@@ -394,6 +394,41 @@ def test_bill_models_today_s_motors_of_the_site_asked_for_and_prints_the_full_an
     assert kgq in whole
 
 
+def test_progress_on_a_terminal_is_a_bar_that_keeps_its_clock_running(monkeypatch):
+    import io
+    import time
+
+    from drivecase import cli
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    screen = Terminal()
+    monkeypatch.setattr(cli.sys, "stderr", screen)
+    monkeypatch.setattr(cli._Progress, "REFRESH_S", 0.05)
+    bar = cli._Progress(8, "drivecase run", "stage", quiet=False)
+    bar.update(1)
+    bar.set_postfix_str("fleet plan")
+    drawn = screen.getvalue().count("\r")
+    time.sleep(0.5)  # a long stage: the bar is redrawn with its elapsed time, unasked
+    assert screen.getvalue().count("\r") >= drawn + 3
+    bar.close()
+    text = screen.getvalue()
+    assert "drivecase run:" in text and "1/8" in text and "fleet plan" in text and "<" not in text  # no time left
+
+
+def test_progress_into_a_file_counts_items_by_tenths(monkeypatch, capsys):
+    from drivecase import cli
+
+    bar = cli._Progress(20, "sites", "site", quiet=False, lines_of_stages=False)
+    for _ in range(20):
+        bar.update(1)
+    bar.close()
+    lines = capsys.readouterr().err.splitlines()
+    assert [line.split(" (")[0] for line in lines] == [f"sites: {k}/20 sites" for k in range(2, 21, 2)]
+
+
 @pytest.mark.parametrize("command", ["run", "report"])
 def test_estimate_alone_prints_the_estimate_and_writes_nothing(tmp_path, capsys, command):
     # the demo: 82 assets, 11 options (the catalogue with today's motor), an hourly year of 8,760 steps, 2 sites
@@ -411,10 +446,13 @@ def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, caps
     _one_asset_case(folder)
     assert main(["report", str(folder), "--out", str(tmp_path / "pack")]) == 0
     captured = capsys.readouterr()
-    assert "drivecase report: 100%" in captured.err and "9/9" in captured.err and "pack" in captured.err
-    assert "100%" not in captured.out and "9/9" not in captured.out
+    # (the error stream here is no terminal: one plain line per stage, no bar)
+    stages = [line.split(": ", 1)[1].rsplit(" (", 1)[0] for line in captured.err.splitlines()
+              if line.startswith("drivecase report: ") and line.endswith(" s)")]
+    assert stages[0] == "machines" and stages[-1] == "pack" and "fleet plan" in stages and "\r" not in captured.err
+    assert "drivecase report: machines" not in captured.out
     assert main(["report", str(folder), "--out", str(tmp_path / "pack2"), "--quiet", "--plan-seconds", "5"]) == 0
-    assert "drivecase report: 100%" not in capsys.readouterr().err
+    assert "drivecase report: machines" not in capsys.readouterr().err
     assert main(["report", str(folder), "--out", str(tmp_path / "pack3"), "--plan-seconds", "0"]) == 2
     assert "--plan-seconds > 0" in capsys.readouterr().err
 
@@ -734,13 +772,16 @@ def test_a_worker_without_drivecase_gives_a_message(tmp_path, capsys, monkeypatc
 
 
 def test_run_progress_counts_stages_and_says_when_it_waits_for_the_plan(tmp_path, capsys):
-    # eight stages (drivecase.cli.STAGES); the plan's "finishing" note, shown while the plan solved beside the
-    # risk is awaited, moves the count on by none
+    # eight stages (drivecase.cli.STAGES), each said once in order (the error stream here is no terminal: one
+    # line per stage); the plan's "finishing" note, shown while the plan solved beside the risk is awaited, is a
+    # line of its own between them
+    from drivecase.cli import STAGES
+
     assert main(["run", str(DEMO), "--out", str(tmp_path / "o")]) == 0
-    frames = capsys.readouterr().err.replace("\r", "\n").splitlines()
-    counts = [line.split("|")[2].split()[0] for line in frames if line.startswith("drivecase run:") and "|" in line]
-    assert counts[-1] == "8/8" and all(int(c.split("/")[0]) <= 8 for c in counts)
-    assert any("fleet plan (finishing)" in line for line in frames)
+    said = [line.split(": ", 1)[1].rsplit(" (", 1)[0] for line in capsys.readouterr().err.splitlines()
+            if line.startswith("drivecase run: ") and line.endswith(" s)")]
+    assert [s for s in said if s in STAGES] == list(STAGES)
+    assert "fleet plan (finishing)" in said
 
 
 def test_bill_says_when_the_analysis_prices_at_another_level(tmp_path, capsys):
