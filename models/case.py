@@ -784,7 +784,9 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
         numeric = pd.to_numeric(series.where(~flags, "true/false"), errors="coerce").astype(float).to_numpy(copy=True)
     else:
         numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
-    given = series.notna().to_numpy()
+    # a blank text cell (Parquet's empty string, spaces) is blank, as an empty CSV cell is
+    blank_text = series.astype(object).map(lambda v: isinstance(v, str) and not v.strip()).to_numpy(dtype=bool)
+    given = series.notna().to_numpy() & ~blank_text
     bad = np.flatnonzero(np.isnan(numeric) & given)
     if len(bad):
         cells = series.iloc[bad].map(lambda v: str(v).strip())
@@ -840,8 +842,17 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
     source = raw.source
     frame = raw.frame
     if frame.empty:  # a header-only template: no profiles
+        if str(source).lower().endswith(".parquet"):  # (a template is CSV: an empty export is not)
+            problems.append(warning(source, None, None, None, "the file holds no rows: no profile is read from it",
+                                    "export the profiles again, or delete the file when the case has no profiles"))
         return {}, empty_info
     rows = np.asarray(raw.rows, dtype=int)
+    known = ("profile_id", "timestamp", "shaft_load_pct", "input_kw")
+    for column in frame.columns:
+        if column not in known:
+            problems.append(warning(source, None, raw.headers.get(column, column), None,
+                                    f"unknown column '{raw.headers.get(column, column)}' was ignored",
+                                    f"known columns: {', '.join(known)}"))
     for column in ("profile_id", "timestamp"):
         if column not in frame.columns:
             problems.append(error(source, None, column, None, f"required column '{column}' is missing",

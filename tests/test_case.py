@@ -332,6 +332,33 @@ class TestProfileRules:
         if warned:
             assert found[0].value == "LP1" and "2025-01-01 01:00 to 2026-01-01 00:00" in found[0].rule
 
+    def test_an_unknown_profile_column_is_warned(self, tmp_path):
+        rows = [r + ["note"] for r in cb.profile_rows()]
+        folder = cb.write_case(tmp_path / "c")
+        cb.write_csv(folder / "profiles.csv", ["profile_id", "timestamp", "shaft_load_pct", "comment"], rows)
+        case, problems = load_case(folder)
+        assert case is not None
+        assert _find(problems, file="profiles.csv", column="comment", severity="warning", text="unknown column")
+
+    def test_parquet_empty_text_cells_are_blank_as_empty_csv_cells(self, tmp_path):
+        # a value column written as text, "" where the row gives its other quantity: blank, not "not a number"
+        folder = cb.write_case(tmp_path / "c")
+        rows = cb.profile_rows()
+        frame = pd.DataFrame({"profile_id": [r[0] for r in rows], "timestamp": [r[1] for r in rows],
+                              "shaft_load_pct": [str(r[2]) for r in rows], "input_kw": [""] * len(rows)})
+        (folder / "profiles.csv").unlink()
+        frame.to_parquet(folder / "profiles.parquet", index=False)
+        case, problems = load_case(folder)
+        assert case is not None, [str(p) for p in _errors(problems)]
+
+    def test_a_parquet_file_of_no_rows_is_named(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "profiles.csv").unlink()
+        pd.DataFrame({"profile_id": pd.Series(dtype=str), "timestamp": pd.Series(dtype=str),
+                      "shaft_load_pct": pd.Series(dtype=float)}).to_parquet(folder / "profiles.parquet", index=False)
+        _, problems = load_case(folder)
+        assert _find(problems, file="profiles.parquet", severity="warning", text="holds no rows")
+
     def test_missing_timestamps_warned(self, tmp_path):
         rows = cb.profile_rows()
         del rows[10:13]
