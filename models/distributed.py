@@ -297,8 +297,19 @@ def _client(scheduler: str | None, n_workers: int, processes: bool):
     if scheduler:
         check_scheduler_address(scheduler)
         return Client(scheduler), None
-    cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes, dashboard_address=":0",
-                           silence_logs=logging.ERROR)
+    import signal
+    import threading
+
+    # the workers' processes start with Ctrl+C ignored (an ignored signal stays ignored in a child): a Ctrl+C at
+    # the terminal reaches the whole process group, and the run, not each worker, is to stop and close them
+    quiet = processes and threading.current_thread() is threading.main_thread()
+    before = signal.signal(signal.SIGINT, signal.SIG_IGN) if quiet else None
+    try:
+        cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
+                               dashboard_address=":0", silence_logs=logging.CRITICAL)
+    finally:
+        if quiet:
+            signal.signal(signal.SIGINT, before)
     return Client(cluster), cluster
 
 
