@@ -1,5 +1,5 @@
 """Run the drivecase command line as ``python -m drivecase``."""
 
-from drivecase.cli import main
+from drivecase.cli import entry
 
-raise SystemExit(main())
+raise SystemExit(entry())

@@ -286,8 +286,8 @@ def cmd_bill(args: argparse.Namespace) -> int:
     index = case_index(case)
     sweep_site = (case.assets.loc[case.assets["asset_id"] == args.reactive_sweep, "site_id"].iloc[0]
                   if args.reactive_sweep else None)
-    if args.site and sweep_site in (None, args.site):
-        case = site_case(case, args.site)
+    if args.site and sweep_site in (None, args.site) and (case.assets["site_id"] == args.site).any():
+        case = site_case(case, args.site)  # (a site of base load alone is billed within the whole case)
     if not args.reactive_sweep:
         case = replace(case, options=options_with_baseline(case.options).iloc[:1].reset_index(drop=True))
     op = operate(case, index=index)
@@ -442,7 +442,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     workers = 1
     if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
         workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
-    estimate = estimate_run(case, workers=workers, workers_here=not args.scheduler)
+    estimate = estimate_run(case, workers=workers, workers_here=not args.scheduler, dask=args.engine == "dask")
     if args.estimate:
         print(f"Estimate: {estimate.note}")
         return 0
@@ -728,6 +728,9 @@ def cmd_report(args: argparse.Namespace) -> int:
         except OSError as exc:
             _close_bars(bar)
             return _write_failed("report", args.out, exc)
+        except BaseException:
+            _close_bars(bar)  # (so that the message is the last line)
+            raise
     bar.update(bar.total - bar.n)
     bar.close()
     skipped = set()
@@ -837,8 +840,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:  # Ctrl+C: one line, no traceback; nothing half-written is left (atomic writes)
         print(f"\n{' '.join(filter(None, ('drivecase', getattr(args, 'command', None))))}: interrupted", file=sys.stderr)
         # the exact plan's solver runs in a thread of its own that cannot be stopped: the command's process
-        # leaves without waiting for it (:func:`entry`); a Dask run closes its cluster first, as it does
-        _INTERRUPTED["leave_at_once"] = getattr(args, "engine", "local") != "dask"
+        # leaves without waiting for it (:func:`entry`); a Dask run's cluster is closed by then (its engine
+        # closes it on the way out, before the economics)
+        _INTERRUPTED["leave_at_once"] = True
         return 130
     except BrokenPipeError:  # the reader of the output (e.g. `| head`) stopped reading: not an error of ours
         devnull = os.open(os.devnull, os.O_WRONLY)

@@ -337,6 +337,18 @@ PEAK_YEAR_STEP_DAYS = 364
 def placed_peak_times(clause, year: int | None) -> tuple[tuple[int, int, int, int], ...]:
     """A coincident-peak clause's times as (month, day, hour, minute) of the analysis ``year``.
 
+    Parameters
+    ----------
+    clause : models.tariff.CoincidentPeak
+        The clause; its ``years`` (one per time, or none) are the years the times are written in.
+    year : int or None
+        The analysis year (the year of the middle of the meter series); None keeps the calendar dates.
+
+    Returns
+    -------
+    tuple of (int, int, int, int)
+        (month, day, hour, minute) of each time, in the clause's order.
+
     A time written with a year (``clause.years``) moves by whole 52-week steps, the number nearest the
     years between, so it falls on the same weekday and clock time near the same date: 19 July 2024 17:00, a
     Friday, is read on Friday 18 July 2025. The system peaks on working-day afternoons; the same date of
@@ -356,6 +368,9 @@ def placed_peak_times(clause, year: int | None) -> tuple[tuple[int, int, int, in
     """
     if year is None or not getattr(clause, "years", ()):
         return tuple(clause.times)
+    if len(clause.years) != len(clause.times):
+        raise ValueError(f"coincident-peak clause '{clause.name}': {len(clause.times)} times but "
+                         f"{len(clause.years)} years")
     out = []
     for (month, day, hour, minute), written_year in zip(clause.times, clause.years):
         written = _dt.date(written_year, month, day)

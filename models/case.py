@@ -785,8 +785,10 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
     else:
         numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
     # a blank text cell (Parquet's empty string, spaces) is blank, as an empty CSV cell is
-    blank_text = series.astype(object).map(lambda v: isinstance(v, str) and not v.strip()).to_numpy(dtype=bool)
-    given = series.notna().to_numpy() & ~blank_text
+    given = series.notna().to_numpy(copy=True)
+    if series.dtype == object or pd.api.types.is_string_dtype(series.dtype):  # (numbers hold no text)
+        text = series[given].astype(str)
+        given[np.flatnonzero(given)[text.str.strip().eq("").to_numpy(dtype=bool)]] = False
     bad = np.flatnonzero(np.isnan(numeric) & given)
     if len(bad):
         cells = series.iloc[bad].map(lambda v: str(v).strip())
@@ -1143,7 +1145,7 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
             serial = np.zeros(n, dtype=bool)
             text = column.str.strip()
         blank = text.isna().to_numpy() & ~serial
-        has_offset = text.str.contains(_OFFSET, regex=True, na=False).to_numpy(dtype=bool)
+        has_offset = text.str.contains(_OFFSET, regex=True, na=False).to_numpy(dtype=bool, copy=True)
         if has_offset.any():
             parsed = pd.to_datetime(text[has_offset], utc=True, errors="coerce", format="ISO8601")
             utc[has_offset] = pd.DatetimeIndex(parsed).as_unit("us").asi8
@@ -1151,13 +1153,23 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
         if plain.any():
             try:
                 parsed = pd.DatetimeIndex(pd.to_datetime(text[plain], errors="coerce", format="ISO8601"))
-            except ValueError:  # offsets of another form, several of them: read as instants
-                parsed = pd.DatetimeIndex(pd.to_datetime(text[plain], utc=True, errors="coerce", format="ISO8601"))
-            if parsed.tz is not None:
+            except ValueError:  # offsets of other forms, several of them or beside local times: cell by cell
+                parsed = None
+                where = np.flatnonzero(plain)
+                for i, cell in zip(where, text[plain]):
+                    stamp = pd.to_datetime(cell, errors="coerce", format="ISO8601")
+                    if pd.isna(stamp):
+                        continue
+                    if stamp.tzinfo is not None:
+                        utc[i] = stamp.value // 1000  # (ns since 1970 UTC, to microseconds)
+                        has_offset[i] = True
+                    else:
+                        naive[i] = stamp.value // 1000
+            if parsed is not None and parsed.tz is not None:
                 # an offset of a form the pattern does not know: the instant it names, never its UTC clock as local
                 utc[plain] = parsed.tz_convert("UTC").as_unit("us").asi8
                 has_offset = has_offset | plain
-            else:
+            elif parsed is not None:
                 naive[plain] = parsed.as_unit("us").asi8
         unreadable = np.flatnonzero(~blank & ~serial & (np.where(has_offset, utc, naive) == _NAT))
 
@@ -1654,21 +1666,26 @@ def _check_period_grid(tariffs: dict, profiles: dict, settings: CaseSettings, as
         if name not in used_tariffs:
             continue
         source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
-        codes = {rule.code for rule in tariff.periods}
-        if len(codes) < 2:
+        # the period in force at each minute of each season and day type; a boundary is a minute where it changes
+        # (two rules of one period that meet are no boundary)
+        grids: dict[tuple[str, str], np.ndarray] = {}
+        for rule in tariff.periods:
+            for season in rule.seasons:
+                for day_type in rule.day_types:
+                    grid = grids.setdefault((season, day_type), np.full(1440, "", dtype=object))
+                    grid[rule.minute_mask()] = rule.code
+        off = sorted({int(m) for grid in grids.values() for m in np.flatnonzero(grid[1:] != grid[:-1]) + 1
+                      if m % step_min})
+        if not off:
             continue
-        for n, rule in enumerate(tariff.periods, start=1):
-            off = sorted({m for w in rule.windows for m in (w.start_min, w.end_min % 1440) if m % step_min})
-            if not off:
-                continue
-            times = ", ".join(f"{m // 60:02d}:{m % 60:02d}" for m in off)
-            problems.append(warning(
-                source, None, f"periods[{n}].hours", times,
-                f"period '{rule.code}' begins or ends at {times}, between the starts of the case's {step_min}-min "
-                "intervals: each interval is priced in the period in force at its start, so the part of it after "
-                "the boundary is priced in the period before",
-                f"give the profiles at a resolution the boundary falls on (e.g. {_grid_for(off)}-min), or read the "
-                "tariff's boundary as the interval's start"))
+        times = ", ".join(f"{m // 60:02d}:{m % 60:02d}" for m in off)
+        problems.append(warning(
+            source, None, "periods", times,
+            f"the time-of-use period changes at {times}, between the starts of the case's {step_min}-min "
+            "intervals: each interval is priced in the period in force at its start, so the part of it after "
+            "the change is priced in the period before",
+            f"give the profiles at a resolution the change falls on (e.g. {_grid_for(off)}-min), or read the "
+            "tariff's change as the interval's start"))
 
 
 def _grid_for(minutes: list[int]) -> int:
@@ -1802,13 +1819,16 @@ def _check_in_service_month_read(tariffs: dict, settings: CaseSettings, sites: p
 
 def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
                               sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
-    """Warn of each coincident-peak time that cannot be placed in the analysis series (a 29 February in a year
-    without one, a time in the hour the clocks skip in spring, a day outside the series), naming the time as
-    written and the reason: it is left out of the clause's mean. When no time of a clause can be placed, one
-    warning says so with each time's reason: the clause bills nothing, so no motor saves on it."""
+    """Warn of each coincident-peak time that cannot be placed in the analysis series (a time in the hour the
+    clocks skip in spring; for a clause built without years, also a 29 February in a year without one or a
+    day outside the series), naming the time as written and the reason: it is left out of the clause's mean.
+    When no time of a clause can be placed, one warning says so with each time's reason: the clause bills
+    nothing, so no motor saves on it. Also warned: a time in the hour the clocks repeat in autumn (its first
+    occurrence is billed), and two times of different years read on the same day and time of the analysis
+    year (:func:`models.billing.placed_peak_times`)."""
     from models.billing import peak_windows, placed_peak_times
     from models.profiles import analysis_index
-    from models.tariff import _local_wall
+    from models.tariff import _local_wall, peak_time_text
 
     listed = {name: t for name, t in tariffs.items() if getattr(t, "coincident", ())}
     if not listed:
@@ -1834,6 +1854,18 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
             for j, time in enumerate(placed):
                 if time not in missed and not peak_windows(wall_ns, (time,), clause.window_min, step):
                     missed[time] = j
+            first_at: dict[tuple[int, int, int, int], int] = {}
+            for j, time in enumerate(placed):
+                k = first_at.setdefault(time, j)
+                written_k = (clause.years[k] if k < len(clause.years) else None, *clause.times[k])
+                written_j = (clause.years[j] if j < len(clause.years) else None, *clause.times[j])
+                if k != j and written_k != written_j:  # (the same time written twice is warned with the tariff)
+                    problems.append(warning(
+                        source, None, key, [clause.time_text(k), clause.time_text(j)],
+                        f"times {k + 1} and {j + 1} of {len(placed)} are read on the same day and time of the "
+                        f"analysis year, {peak_time_text(time)} (52 weeks per year from the year each is written "
+                        "in): that window counts twice in the mean",
+                        "list each system peak once, in the year the utility's notice gives"))
             for j, date in _repeated_hour_times(placed, clause.window_min, years, zone):
                 problems.append(warning(
                     source, None, key, clause.time_text(j),

@@ -181,34 +181,46 @@ WORKER_CHECK_S = 2.0
 def _each_as_done(client, launched: dict):
     """Yield the futures of ``launched`` as they finish, while the caller may add to it; raise
     :class:`TimeoutError`, in words, when the cluster has had no worker for :data:`FIRST_WORKER_WAIT_S`
-    (every worker left during the run and none joined: the scheduler would hold the sites for ever)."""
-    from concurrent.futures import CancelledError
+    (every worker left during the run and none joined: the scheduler would hold the sites for ever).
 
-    from distributed import wait
+    The futures are watched through their own client (several runs, each with its client, may share one
+    process and one scheduler)."""
+    from distributed import as_completed
 
+    watched = as_completed(loop=client.loop)
+    seen: set = set()
     alone_since = None
+    last_look = time.monotonic()
     while launched:
-        try:
-            finished = wait(list(launched), timeout=WORKER_CHECK_S, return_when="FIRST_COMPLETED").done
-        except CancelledError:  # a task the scheduler forgot with its worker: the caller sends it again
-            finished = [f for f in launched if f.cancelled()]
-        except TimeoutError:
-            if client.nthreads():
-                alone_since = None
-                continue
-            alone_since = alone_since if alone_since is not None else time.monotonic()
-            if time.monotonic() - alone_since >= FIRST_WORKER_WAIT_S:
-                address = getattr(client.scheduler, "address", None) or "ADDRESS"
-                raise TimeoutError(
-                    f"every worker left the scheduler during the run and none joined within {FIRST_WORKER_WAIT_S:g} s; "
-                    f"start one on each machine with `dask worker {address}` and run again (a worker that dies "
-                    "while it works has most often run out of memory: see the estimate printed before a large "
-                    "run)") from None
+        for future in list(launched):
+            if future not in seen:
+                seen.add(future)
+                watched.add(future)
+        if watched.has_ready():
+            alone_since = None
+            for future in watched.next_batch(block=False):
+                if future in launched:
+                    yield future
             continue
-        alone_since = None
-        for future in finished:
-            if future in launched:
-                yield future
+        time.sleep(POLL_S)
+        if time.monotonic() - last_look < WORKER_CHECK_S:
+            continue
+        last_look = time.monotonic()
+        if client.nthreads():
+            alone_since = None
+            continue
+        alone_since = alone_since if alone_since is not None else last_look
+        if last_look - alone_since >= FIRST_WORKER_WAIT_S:
+            address = getattr(client.scheduler, "address", None) or "ADDRESS"
+            raise TimeoutError(
+                f"every worker left the scheduler during the run and none joined within {FIRST_WORKER_WAIT_S:g} s; "
+                f"start one on each machine with `dask worker {address}` and run again (a worker that dies "
+                "while it works has most often run out of memory: see the estimate printed before a large "
+                "run)")
+
+
+#: Seconds between looks for finished sites while a run waits for them.
+POLL_S = 0.02
 
 
 def _wait_for_a_worker(client) -> None:

@@ -106,7 +106,8 @@ class Estimate:
     note: str
 
 
-def estimate_run(case, workers: int = 1, threads: int | None = None, workers_here: bool = True) -> Estimate:
+def estimate_run(case, workers: int = 1, threads: int | None = None, workers_here: bool = True,
+                 dask: bool | None = None) -> Estimate:
     """Estimate the wall time and peak memory of a run from the size of the case.
 
     Parameters
@@ -122,6 +123,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     workers_here : bool
         The Dask workers run on this machine (a local cluster): their memory counts in the peak. With a
         scheduler elsewhere (False) the peak is this machine's, and the note gives each worker's need.
+    dask : bool, optional
+        The Dask engine (default: when ``workers`` > 1); a Dask run of one worker is not the local engine.
 
     Returns
     -------
@@ -142,8 +145,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     temporaries, or above the dense budget one curve block, :data:`CURVE_BLOCK_BYTES_PER_ELEMENT`) and the
     economics (one site's meter arrays and the per-asset-option tables). On Dask the physics runs in the
     workers: each holds :data:`WORKER_BASE_BYTES` and one site's physics (and, on a dense run, the site's
-    every-option power it sends back), and only the former while the economics runs; counted in the peak
-    when the workers are on this machine.
+    every-option power it sends back), counted in the peak when the workers are on this machine (a local
+    cluster is closed before the economics).
     """
     if workers < 1:
         raise ValueError("workers must be >= 1")
@@ -153,7 +156,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     sites = site_partition(case)
     largest = max((len(rows) for _, rows in sites), default=0)
     elements = n_a * n_o * n_t
-    if workers > 1:
+    dask = workers > 1 if dask is None else bool(dask)
+    if dask:
         parallel, at_once = float(min(int(workers), max(len(sites), 1))) / DASK_WORKER_COST, 1
     else:
         at_once = max(1, min(int(threads or PHYSICS_THREADS), max(len(sites), 1)))
@@ -174,9 +178,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
         block_assets = min(largest, max(1, CURVE_CHUNK_ELEMENTS // max(n_t, 1)))
         block = CURVE_BLOCK_BYTES_PER_ELEMENT * block_assets * n_t
     per_site = site_bytes + block
-    physics_peak = at_once * per_site if workers == 1 else 0
+    physics_peak = 0 if dask else at_once * per_site
     worker_bytes = 0
-    if workers > 1:  # each worker: its interpreter and one site's physics, and on a dense run the site's options
+    if dask:  # each worker: its interpreter and one site's physics, and on a dense run the site's options
         worker_bytes = WORKER_BASE_BYTES + per_site + (interval_bytes(largest, n_o, n_t) if dense else 0)
     # above the dense budget the run keeps the sites' curve books (the plan reads its rows through them; the
     # Dask workers send theirs back) as far as their budget allows; rows of the sites beyond it are recomputed
@@ -187,11 +191,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     unbooked = 1.0 - (books / want_books if want_books else 0.0)
     kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
-    n_workers = min(int(workers), max(len(sites), 1)) if workers > 1 else 0
-    if n_workers and workers_here:
-        # the workers hold their sites' physics while it runs, and only their interpreters while the economics runs
+    n_workers = min(int(workers), max(len(sites), 1)) if dask else 0
+    if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes
-        economics_peak += n_workers * WORKER_BASE_BYTES
     peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "

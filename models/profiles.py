@@ -164,11 +164,29 @@ def _wrapped_onto(s: pd.Series, index: pd.DatetimeIndex) -> pd.Series:
     A year of data that crosses the new year (July to June, a utility's last twelve months) keeps every
     measured interval: its part in the other calendar year lands on the same weekday and time of day of
     the analysis year. An interval measured inside the year is never replaced by a moved one, and of two
-    moved onto one interval the earlier measured is kept; the day or so of the year neither covers is
-    left missing (filled from the typical week by :func:`conform`).
+    moved onto one interval the earlier measured is kept; the day or two of the year neither covers (two
+    in a leap year) are left missing (filled from the typical week by :func:`conform`). A profile longer
+    than a year (366.5 days and an interval) is not moved: of it the analysis year alone is used.
+
+    Parameters
+    ----------
+    s : pandas.Series
+        A profile on the analysis step (tz-aware index of interval starts, increasing); blank values are
+        dropped.
+    index : pandas.DatetimeIndex
+        The analysis index (one calendar year, regular).
+
+    Returns
+    -------
+    pandas.Series
+        The profile's intervals inside the year of ``index``, sorted, unique.
     """
+    s = s.dropna()  # (a gap in the year is a gap, whichever resolution the profile was brought to)
     if not len(index) or not len(s):
         return s
+    step = np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index) if len(s) > 1 else 60.0
+    if (s.index[-1] - s.index[0]) > pd.Timedelta(days=366.5) + pd.Timedelta(minutes=float(step)):
+        return s  # a profile longer than a year: the analysis year alone is used, its gaps filled as gaps are
     start = index[0]
     end = index[-1] + (index[-1] - index[-2] if len(index) > 1 else pd.Timedelta(hours=1))
     t = s.index

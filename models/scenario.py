@@ -676,10 +676,13 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
                 step(PLAN_FINISHING)  # what a long run is waiting for once the risk is done
                 plan_frames = planned.result()
-            except BaseException:
-                # (Ctrl+C, or an error beside the plan: the caller is not kept waiting for the solver's search,
-                # which cannot be stopped and whose result would be thrown away)
+            except KeyboardInterrupt:
+                # (Ctrl+C: the user is not kept waiting for the solver's search, which cannot be stopped and whose
+                # result would be thrown away; the command's process leaves without it)
                 pool.shutdown(wait=False, cancel_futures=True)
+                raise
+            except BaseException:
+                pool.shutdown(wait=True)  # (an error beside the plan waits for it, so nothing reads the rows after)
                 raise
             pool.shutdown(wait=True)
             plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv)

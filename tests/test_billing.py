@@ -325,7 +325,8 @@ class TestDemand:
             assert_allclose(amounts(b)["tax:t"], 1_400.0, **EXACT)
 
     def test_a_peak_time_outside_the_series_is_left_out(self):
-        # only July's time falls in a series of June to August; a 29 February time exists in no year of it
+        # only July's time falls in a series of June to August 2025; 29 February 2024 is read 52 weeks later, on
+        # 27 February 2025, outside it, as 1 December is (docs/derivations/billing-demand.md, case D10)
         t = load(FLAT + '[[coincident_peak]]\nname = "c"\nprice_per_kw_month = 1.0\n'
                  'times = [2024-02-29T12:00:00, 2025-07-15T17:00:00, 2025-12-01T17:00:00]\n')
         idx = pd.date_range("2025-06-01", "2025-09-01", freq="h", tz="UTC", inclusive="left")

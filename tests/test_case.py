@@ -359,6 +359,14 @@ class TestProfileRules:
         _, problems = load_case(folder)
         assert _find(problems, file="profiles.parquet", severity="warning", text="holds no rows")
 
+    def test_local_times_beside_an_offset_of_a_rare_form_stay_local(self, tmp_path):
+        # 14:15 local, 15:15+0200 written in the basic ISO form (20250701T151500+0200) and 16:15 local, Europe/Berlin in
+        # July (UTC+2): three consecutive local hours (hand calculation); the local ones are not read as UTC
+        rows = [["LP1", "2025-07-01 14:15", "50"], ["LP1", "20250701T151500+0200", "50"], ["LP1", "2025-07-01 16:15", "50"]]
+        case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
+        assert case is not None, [str(p) for p in _errors(problems)]
+        assert list(case.profiles["LP1"].index.hour) == [14, 15, 16]
+
     def test_missing_timestamps_warned(self, tmp_path):
         rows = cb.profile_rows()
         del rows[10:13]
@@ -925,8 +933,25 @@ def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, 
     if warned is None:
         assert not found
     else:
-        assert [p.value for p in found] == [warned, warned]  # the peak rule and the off-peak rule it borders
-        assert found[0].column == "periods[1].hours" and "30-min" in found[0].hint
+        assert [p.value for p in found] == [warned]  # one warning for the tariff, each change listed once
+        assert found[0].column == "periods" and "30-min" in found[0].hint
+
+
+def test_two_rules_of_one_period_that_meet_off_the_grid_are_no_change(tmp_path):
+    # "off" from 00:00 to 06:30 and again from 06:30 to 08:00: the period does not change at 06:30
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    text = ('[tariff]\nname = "tou (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n'
+            '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["00:00-06:30"]\n'
+            '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["06:30-08:00", "20:00-24:00"]\n'
+            '[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = ["08:00-20:00"]\n'
+            '[[periods]]\ncode = "off"\ndays = ["saturday", "sunday"]\nhours = ["00:00-24:00"]\n'
+            '[energy]\nprice_per_kwh = { peak = 0.3, off = 0.1 }\n')
+    (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
+    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    assert not [p for p in problems if "time-of-use period changes" in p.rule]
 
 
 def test_tariff_holidays_outside_the_analysis_year_are_warned(tmp_path):

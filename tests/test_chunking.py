@@ -249,9 +249,12 @@ class TestEstimate:
 
         monkeypatch.setattr(estimate, "DENSE_INTERVAL_BUDGET_BYTES", 0)
         monkeypatch.setattr(estimate, "ECONOMICS_BYTES_PER_PAIR", 0)  # (so that the physics is the larger part)
+        # the fleet's largest site has fewer assets than a curve block holds on an hourly year (2**23 asset-steps
+        # / 8,760 steps = 957 assets), so one block is the whole site: its assets x 8,760 steps
         n_t = len(case_index(fleet))
         largest = int(fleet.assets["site_id"].value_counts().max())
-        block = min(largest, max(1, estimate.CURVE_CHUNK_ELEMENTS // n_t)) * n_t
+        assert n_t == 8760 and largest < 957
+        block = largest * 8760
         one = estimate.estimate_run(fleet, threads=1)
         per_element = estimate.CURVE_BLOCK_BYTES_PER_ELEMENT
         monkeypatch.setattr(estimate, "CURVE_BLOCK_BYTES_PER_ELEMENT", 2 * per_element)

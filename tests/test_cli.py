@@ -411,8 +411,10 @@ def test_progress_on_a_terminal_is_a_bar_that_keeps_its_clock_running(monkeypatc
     bar.update(1)
     bar.set_postfix_str("fleet plan")
     drawn = screen.getvalue().count("\r")
-    time.sleep(0.5)  # a long stage: the bar is redrawn with its elapsed time, unasked
-    assert screen.getvalue().count("\r") >= drawn + 3
+    deadline = time.monotonic() + 5.0  # a long stage: the bar is redrawn with its elapsed time, unasked
+    while screen.getvalue().count("\r") < drawn + 2 and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert screen.getvalue().count("\r") >= drawn + 2
     bar.close()
     text = screen.getvalue()
     assert "drivecase run:" in text and "1/8" in text and "fleet plan" in text and "<" not in text  # no time left
@@ -705,21 +707,25 @@ def test_ctrl_c_ends_a_command_with_one_line(monkeypatch, capsys):
 
 def test_the_command_leaves_at_once_after_ctrl_c_without_waiting_for_the_plan_s_solver(monkeypatch):
     # the exact plan's solver thread cannot be stopped: after Ctrl+C the command's process exits without joining
-    # it (os._exit), but only where no Dask cluster is to be closed
+    # it (os._exit); after any other ending it exits as usual
     from drivecase import cli
 
     left = []
     monkeypatch.setattr(cli.os, "_exit", left.append)
-    for engine, leaves in (("local", True), ("dask", False)):
-        left.clear()
+    main_itself = cli.main
 
-        def interrupted(argv=None, engine=engine):
-            cli._INTERRUPTED["leave_at_once"] = engine != "dask"
-            return 130
+    def interrupted_check(args):
+        raise KeyboardInterrupt
 
-        monkeypatch.setattr(cli, "main", interrupted)
-        assert cli.entry() == 130
-        assert left == ([130] if leaves else [])
+    parser_default = cli.build_parser
+    monkeypatch.setattr(cli, "build_parser", lambda: _with_check(parser_default(), interrupted_check))
+    monkeypatch.setattr(cli, "main", lambda argv=None: main_itself(["check", str(DEMO)]))
+    assert cli.entry() == 130 and left == [130]
+    left.clear()
+    monkeypatch.setattr(cli, "main", lambda argv=None: main_itself(["check", str(DEMO), "--help-never"]))  # exit 2
+    with pytest.raises(SystemExit):
+        cli.entry()
+    assert left == []
 
 
 def test_ctrl_c_beside_the_plan_does_not_wait_for_the_plan(tmp_path, monkeypatch):
@@ -743,6 +749,30 @@ def test_ctrl_c_beside_the_plan_does_not_wait_for_the_plan(tmp_path, monkeypatch
     with pytest.raises(KeyboardInterrupt):
         scenario.run(case, case.finance)
     assert time.perf_counter() - t0 < 4.0
+
+
+def test_an_error_beside_the_plan_waits_for_the_plan(tmp_path, monkeypatch):
+    # an error (not Ctrl+C) while the plan is searched beside the risk: the run waits for the plan's thread before
+    # it raises, so nothing reads the run's rows after it ends
+    import time
+
+    from models import scenario
+    from models.case import load_case
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    case, _ = load_case(folder)
+    finished = []
+    monkeypatch.setattr(scenario, "_plan_with_interactions", lambda *a, **k: time.sleep(1.5) or finished.append(1))
+
+    def broken(*args, **kwargs):
+        raise ValueError("risk failed")
+
+    monkeypatch.setattr(scenario, "_risk", broken)
+    with pytest.raises(ValueError, match="risk failed"):
+        scenario.run(case, case.finance)
+    assert finished == [1]
 
 
 def _with_check(parser, func):
@@ -811,6 +841,20 @@ def _leading_banned_case(folder: Path) -> Path:
     (folder / "tariffs").mkdir()
     shutil.copy(REPO / "data" / "tariffs" / "example_pf_adjusted_demand.toml", folder / "tariffs")
     return folder
+
+
+def test_bill_of_a_site_with_base_load_alone(tmp_path, capsys):
+    # a second site S2 of 30 kW base load and no motor: asked alone it is billed as within the whole case
+    case = _leading_banned_case(tmp_path / "case")
+    (case / "sites.csv").write_text("site_id,tariff_file,base_p_kw,base_power_factor\n"
+                                    "S1,example_pf_adjusted_demand.toml,20,0.9\n"
+                                    "S2,example_pf_adjusted_demand.toml,30,0.9\n", encoding="utf-8")
+    assert main(["bill", str(case)]) == 0
+    whole = capsys.readouterr().out
+    assert main(["bill", str(case), "--site", "S2"]) == 0
+    alone = capsys.readouterr().out
+    s2 = alone[alone.index("Site S2"):alone.index("Reactive balance")]
+    assert s2 in whole and "yearly 263 MWh" in s2  # 30 kW x 8,760 h = 262.8 MWh (hand calculation)
 
 
 def test_a_plan_that_makes_a_site_lead_where_its_tariff_bans_it_is_cautioned(tmp_path, capsys):

@@ -363,7 +363,21 @@ def test_every_worker_gone_during_the_run_is_named_not_waited_on_for_ever(fleet,
             if n == 1:
                 local.scale(0)
 
-        with pytest.raises(TimeoutError, match=r"every worker left the scheduler during the run and none joined within "
-                                               r"1 s; start one .*" + re.escape(f"`dask worker {local.scheduler_address}`")):
-            run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False,
-                            site_progress=retire)
+        import threading
+
+        raised: list[BaseException] = []
+
+        def run():
+            try:
+                run_distributed(fleet, fleet.finance, scheduler=local.scheduler_address, with_risk=False,
+                                site_progress=retire)
+            except BaseException as exc:  # asserted below
+                raised.append(exc)
+
+        worker = threading.Thread(target=run, daemon=True)  # (a run that waits for ever fails here, not hangs)
+        worker.start()
+        worker.join(timeout=60)
+        assert not worker.is_alive(), "the run still waits for a worker"
+        assert len(raised) == 1 and isinstance(raised[0], TimeoutError)
+        assert re.search(r"every worker left the scheduler during the run and none joined within 1 s; start one .*"
+                         + re.escape(f"`dask worker {local.scheduler_address}`"), str(raised[0]))

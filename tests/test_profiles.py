@@ -80,3 +80,23 @@ class TestConform:
         series = pd.concat([pd.Series(50.0, index=two_weeks), pd.Series(70.0, index=later)])
         values, filled = conform(series, week)
         assert (values == 50.0).all() and filled == 0.0
+
+    def test_a_profile_longer_than_a_year_fills_its_gaps_from_the_typical_week_at_any_step(self):
+        # July 2024 to December 2025: 999 kW in 2024, 100 kW in 2025, with a week missing in September 2025. Of a
+        # profile longer than a year the analysis year (2025) alone is used: the gap takes the typical week of the
+        # profile's own data (a mean over both years' same weekday and hour, not 2024's September), and so it
+        # does when the analysis runs at 15 minutes
+        from models.profiles import analysis_index
+
+        stamps = pd.date_range("2024-07-01", "2026-01-01", freq="h", tz="Europe/Berlin", inclusive="left")
+        series = pd.Series(np.where(stamps.year == 2024, 999.0, 100.0), index=stamps)
+        gap = (stamps >= pd.Timestamp("2025-09-08", tz="Europe/Berlin")) & (stamps < pd.Timestamp("2025-09-15", tz="Europe/Berlin"))
+        series = series[~gap]
+        hourly = analysis_index({"p": series}, "Europe/Berlin")
+        assert hourly[0].year == 2025
+        quarter = pd.date_range("2025-01-01", "2026-01-01", freq="15min", tz="Europe/Berlin", inclusive="left")
+        for index, n_gap in ((hourly, 7 * 24), (quarter, 7 * 96)):
+            values, filled = conform(series, index)
+            on = pd.Series(values, index=index)["2025-09-08":"2025-09-14"]
+            assert len(on) == n_gap and (on < 999.0).all() and (on > 100.0).all()
+            assert filled == n_gap / len(index)

@@ -132,6 +132,15 @@ class TestPeakTimesOfAnotherYear:
         assert placed_peak_times(tariff.coincident[0], 2025) == ((7, 14, 17, 0), (7, 15, 17, 0))
 
 
+def test_two_years_read_on_one_day_are_warned(tmp_path):
+    # Friday 19 July 2024 17:00 is read 52 weeks later, on Friday 18 July 2025 17:00 (2024-07-19 + 364 days): the
+    # same window as the time written for 2025, which would count twice in the mean
+    found = case_with(tmp_path, "[2024-07-19T17:00:00, 2025-07-18T17:00:00]")
+    assert len(found) == 1 and "times 1 and 2 of 2 are read on the same day and time" in found[0].rule
+    assert "18 July 17:00" in found[0].rule
+    assert [str(v) for v in found[0].value] == ["2024-07-19T17:00:00", "2025-07-18T17:00:00"]
+
+
 class TestPeakTimeInTheRepeatedHour:
     """Rule (docs/tariffs.md): a peak time in the hour the clocks repeat (26 October 2025 02:00-03:00 in
     Europe/Berlin, EU Directive 2000/84/EC) is billed on its first occurrence (summer time), warned."""

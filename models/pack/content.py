@@ -308,17 +308,27 @@ _FLOW_INDEX: dict = {}
 
 
 def _flows_by_project(cf: pd.DataFrame) -> tuple[dict, np.ndarray, np.ndarray, np.ndarray]:
-    """The row positions of each (asset_id, option_id) in a cash-flow frame, with its component, year and
-    amount columns as arrays; built once per frame (while it lives) and reused."""
+    """The row positions of each (asset_id, option_id) in a cash-flow frame, with its component names (one per
+    row, each name one shared object), years and amounts as arrays; built once per frame and reused while the
+    frame lives (the index goes with it)."""
     kept = _FLOW_INDEX.get("last")
     if kept is not None and kept[0]() is cf:
         return kept[1]
     rows = {(str(a), str(o)): idx for (a, o), idx in
             cf.groupby(["asset_id", "option_id"], sort=False, observed=True).indices.items()} if len(cf) else {}
-    index = (rows, cf["component"].to_numpy().astype(str), cf["year"].to_numpy().astype(int),
-             cf["amount"].to_numpy(dtype=float))
-    _FLOW_INDEX["last"] = (weakref.ref(cf), index)
+    codes, names = pd.factorize(cf["component"])
+    components = np.asarray([str(n) for n in names], dtype=object)[codes] if len(cf) else np.zeros(0, dtype=object)
+    index = (rows, components, cf["year"].to_numpy().astype(int), cf["amount"].to_numpy(dtype=float))
+    ref = weakref.ref(cf)
+    _FLOW_INDEX["last"] = (ref, index)
+    weakref.finalize(cf, _forget_flows, ref)
     return index
+
+
+def _forget_flows(ref) -> None:
+    """Let go of the index of a cash-flow frame that is gone (not of one indexed after it)."""
+    if _FLOW_INDEX.get("last", (None,))[0] is ref:
+        del _FLOW_INDEX["last"]
 
 
 def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
