@@ -778,19 +778,11 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.add_argument("--out", required=True, help="folder for the result files (created if needed)")
     p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: finance.toml's)")
     p_run.add_argument("--no-risk", action="store_true", help="skip the tornado and Monte Carlo")
-    p_run.add_argument("--quiet", action="store_true", help="no progress bar")
-    p_run.add_argument("--estimate", action="store_true",
-                       help="print the estimate of time and memory of the run and stop (nothing is written)")
     p_run.add_argument("--engine", choices=("local", "dask"), default="local",
                        help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
     p_run.add_argument("--scheduler", metavar="ADDRESS",
                        help="address of a running Dask scheduler, with --engine dask (default: start a local cluster)")
-    p_run.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
-                       help="stop the exact plan once it is proven within this %% of the best possible NPV "
-                            f"(default {100.0 * gap_frac:g})")
-    p_run.add_argument("--plan-seconds", type=float, default=time_s, metavar="S",
-                       help=f"time limit of the exact plan's solver (default {time_s:g}); the best plan "
-                            "found and its proven gap are reported when it is reached")
+    _add_run_options(p_run, gap_frac, time_s)
     p_run.set_defaults(func=cmd_run)
     p_serve = sub.add_parser("serve", help="open the dashboard on a case (the demo case by default)")
     p_serve.add_argument("case", nargs="?", default=None, help="case folder or .xlsx workbook (default: the demo case)")
@@ -808,16 +800,22 @@ def build_parser() -> argparse.ArgumentParser:
     group.add_argument("--assets", help="comma-separated asset ids to report on")
     group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
     p_report.add_argument("--pdf", action="store_true", help="also print the report to PDF with headless Chromium")
-    p_report.add_argument("--quiet", action="store_true", help="no progress bar")
-    p_report.add_argument("--estimate", action="store_true",
-                          help="print the estimate of time and memory of the run and stop (nothing is written)")
-    p_report.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
-                          help="stop the exact plan once it is proven within this %% of the best possible NPV "
-                               f"(default {100.0 * gap_frac:g}), as for run")
-    p_report.add_argument("--plan-seconds", type=float, default=time_s, metavar="S",
-                          help=f"stop the exact plan after this many seconds (default {time_s:g}), as for run")
+    _add_run_options(p_report, gap_frac, time_s)
     p_report.set_defaults(func=cmd_report)
     return parser
+
+
+def _add_run_options(parser: argparse.ArgumentParser, gap_frac: float, time_s: float) -> None:
+    """The options of a command that runs the analysis (run, report): progress, estimate, the exact plan's bounds."""
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    parser.add_argument("--estimate", action="store_true",
+                        help="print the estimate of time and memory of the run and stop (nothing is written)")
+    parser.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
+                        help="stop the exact plan once it is proven within this %% of the best possible NPV "
+                             f"(default {100.0 * gap_frac:g})")
+    parser.add_argument("--plan-seconds", type=float, default=time_s, metavar="S",
+                        help=f"time limit of the exact plan's solver (default {time_s:g}); the best plan "
+                             "found and its proven gap are reported when it is reached")
 
 
 def _version() -> str:

@@ -1631,17 +1631,24 @@ def _check_peak_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dic
                        "holds it, which cannot show the demand within it",
                        f"log the motors that run at the system's peak times at {window}-min resolution")
     # the site's own base load, read the same way
+    _coarse_base_loads(sites, tariffs, profile_info, "coincident",
+                       lambda window, own: f"the tariff's coincident-peak charge takes {window}-min windows, but the "
+                       f"site's base-load profile has {own}-min intervals: each peak window reads the interval that "
+                       "holds it, which cannot show the demand within it")
+
+
+def _coarse_base_loads(sites: _TableChecker, tariffs: dict, profile_info, clause: str, rule) -> None:
+    """Warn of each site whose base-load profile is coarser than the shortest window of its tariff's ``clause``
+    ("demand" or "coincident"); ``rule(window_min, profile_min)`` words it."""
+    s = sites.frame
     if "base_profile_id" not in s or not isinstance(profile_info, pd.DataFrame) or profile_info.empty:
         return
     resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
     for i in range(len(s)):
         base = s["base_profile_id"].iloc[i]
-        window = shortest_demand_window_min(tariffs, s["tariff_file"].iloc[i], "coincident")
+        window = shortest_demand_window_min(tariffs, s["tariff_file"].iloc[i], clause)
         if isinstance(base, str) and window is not None and resolution.get(base, 0) > window:
-            sites.warn(i, "base_profile_id", base,
-                       f"the tariff's coincident-peak charge takes {window}-min windows, but the site's base-load "
-                       f"profile has {int(resolution[base])}-min intervals: each peak window reads the interval "
-                       "that holds it, which cannot show the demand within it",
+            sites.warn(i, "base_profile_id", base, rule(window, int(resolution[base])),
                        f"give the base load at {window}-min resolution (the meter's own interval data)")
 
 
@@ -1705,18 +1712,10 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
             sites.warn(i, "tariff_file", s["tariff_file"].iloc[i], demand_window_text(window, coarse, n),
                        f"log the largest motors at {window}-min resolution where the demand charge matters")
     # the site's own base load, read the same way
-    if "base_profile_id" not in s or not isinstance(profile_info, pd.DataFrame) or profile_info.empty:
-        return
-    resolution = dict(zip(profile_info["profile_id"], profile_info["resolution_min"]))
-    for i in range(len(s)):
-        base = s["base_profile_id"].iloc[i]
-        window = shortest_demand_window_min(tariffs, s["tariff_file"].iloc[i])
-        if isinstance(base, str) and window is not None and resolution.get(base, 0) > window:
-            sites.warn(i, "base_profile_id", base,
-                       f"the tariff's demand charge takes {window}-min windows, but the site's base-load profile "
-                       f"has {int(resolution[base])}-min intervals: each is read as one window, which understates "
-                       "the demand peak, the bill and the demand savings",
-                       f"give the base load at {window}-min resolution (the meter's own interval data)")
+    _coarse_base_loads(sites, tariffs, profile_info, "demand",
+                       lambda window, own: f"the tariff's demand charge takes {window}-min windows, but the site's "
+                       f"base-load profile has {own}-min intervals: each is read as one window, which understates "
+                       "the demand peak, the bill and the demand savings")
 
 
 def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
