@@ -1652,21 +1652,29 @@ def _coarse_base_loads(sites: _TableChecker, tariffs: dict, profile_info, clause
                        f"give the base load at {window}-min resolution (the meter's own interval data)")
 
 
+def _checked_index(profiles: dict, settings: CaseSettings, assets: pd.DataFrame, sites: pd.DataFrame):
+    """The analysis index of the profiles the case's assets and sites use, or None where they cannot give one
+    (profiles with errors of their own, reported where they are read)."""
+    from models.profiles import analysis_index
+
+    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
+    try:
+        return analysis_index(profiles, settings.time_zone, used=used)
+    except (ValueError, KeyError, IndexError):
+        return None
+
+
 def _check_period_grid(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
                        sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
     """Warn of a used tariff whose time-of-use period begins or ends between the starts of the analysis
     intervals (17:30 on hourly data): each interval is priced in the period in force at its start, so the
     part of it after the boundary is priced in the period before."""
-    from models.profiles import analysis_index
-
     if "tariff_file" not in sites:
         return
     used_tariffs = set(sites["tariff_file"].dropna().astype(str))
-    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
-    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
-    try:
-        index = analysis_index(profiles, settings.time_zone, used=used)
-    except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
+    index = _checked_index(profiles, settings, assets, sites)
+    if index is None:
         return
     step_min = int(round((index[1] - index[0]).total_seconds() / 60)) if len(index) > 1 else 60
     for name, tariff in tariffs.items():
@@ -1826,17 +1834,13 @@ def _check_peak_times_in_year(tariffs: dict, profiles: dict, settings: CaseSetti
     occurrence is billed), and two times of different years read on the same day and time of the analysis
     year (:func:`models.billing.placed_peak_times`)."""
     from models.billing import peak_windows, placed_peak_times
-    from models.profiles import analysis_index
     from models.tariff import _local_wall, peak_time_text
 
     listed = {name: t for name, t in tariffs.items() if getattr(t, "coincident", ())}
     if not listed:
         return
-    used = set(assets.get("profile_id", pd.Series(dtype=object)).dropna().astype(str))
-    used |= set(sites.get("base_profile_id", pd.Series(dtype=object)).dropna().astype(str))
-    try:
-        index = analysis_index(profiles, settings.time_zone, used=used)
-    except (ValueError, KeyError, IndexError):  # (profiles with their own errors are reported there)
+    index = _checked_index(profiles, settings, assets, sites)
+    if index is None:
         return
     period = f"{index[0]:%Y-%m-%d} to {index[-1]:%Y-%m-%d}"
     step = int(index[1].value - index[0].value) if len(index) > 1 else None

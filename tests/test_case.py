@@ -913,22 +913,27 @@ def test_an_hourly_base_load_under_a_quarter_hour_coincident_peak_window_is_warn
             assert "15-min windows" in found[0].rule and "60-min intervals" in found[0].rule
 
 
-@pytest.mark.parametrize("peak_hours, off_hours, warned", [('"17:30-20:30"', '"20:30-17:30"', "17:30, 20:30"),
-                                                      ('"17:00-20:00"', '"20:00-17:00"', None)])
-def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, peak_hours, off_hours, warned):
-    # the small case's profile is hourly (tests/casebuilder.py): a period from 17:30 prices the 17:00 hour wholly in
-    # the period before (each interval takes the period in force at its start: docs/tariffs.md)
+def _problems_with_periods(tmp_path, weekday_rules: str) -> list:
+    """The small case's problems with a two-period tariff whose weekday rules are given (weekends off-peak)."""
     folder = cb.write_case(tmp_path / "c")
     (folder / "tariffs").mkdir()
-    text = ('[tariff]\nname = "tou (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n'
-            f'[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = [{peak_hours}]\n'
-            f'[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = [{off_hours}]\n'
-            '[[periods]]\ncode = "off"\ndays = ["saturday", "sunday"]\nhours = ["00:00-24:00"]\n'
+    text = ('[tariff]\nname = "tou (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n' + weekday_rules
+            + '[[periods]]\ncode = "off"\ndays = ["saturday", "sunday"]\nhours = ["00:00-24:00"]\n'
             '[energy]\nprice_per_kwh = { peak = 0.3, off = 0.1 }\n')
     (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
     cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
     case, problems = load_case(folder)
     assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    return problems
+
+
+@pytest.mark.parametrize("peak_hours, off_hours, warned", [('"17:30-20:30"', '"20:30-17:30"', "17:30, 20:30"),
+                                                      ('"17:00-20:00"', '"20:00-17:00"', None)])
+def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, peak_hours, off_hours, warned):
+    # the small case's profile is hourly (tests/casebuilder.py): a period from 17:30 prices the 17:00 hour wholly in
+    # the period before (each interval takes the period in force at its start: docs/tariffs.md)
+    problems = _problems_with_periods(tmp_path, f'[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = [{peak_hours}]\n'
+                                                f'[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = [{off_hours}]\n')
     found = [p for p in problems if p.file == "tariffs/t.toml" and "between the starts of the case's 60-min" in p.rule]
     if warned is None:
         assert not found
@@ -939,18 +944,9 @@ def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, 
 
 def test_two_rules_of_one_period_that_meet_off_the_grid_are_no_change(tmp_path):
     # "off" from 00:00 to 06:30 and again from 06:30 to 08:00: the period does not change at 06:30
-    folder = cb.write_case(tmp_path / "c")
-    (folder / "tariffs").mkdir()
-    text = ('[tariff]\nname = "tou (invented)"\ncurrency = "EUR"\ntime_zone = "Europe/Berlin"\n'
-            '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["00:00-06:30"]\n'
-            '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["06:30-08:00", "20:00-24:00"]\n'
-            '[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = ["08:00-20:00"]\n'
-            '[[periods]]\ncode = "off"\ndays = ["saturday", "sunday"]\nhours = ["00:00-24:00"]\n'
-            '[energy]\nprice_per_kwh = { peak = 0.3, off = 0.1 }\n')
-    (folder / "tariffs" / "t.toml").write_text(text, encoding="utf-8")
-    cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
-    case, problems = load_case(folder)
-    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    problems = _problems_with_periods(tmp_path, '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["00:00-06:30"]\n'
+                                                '[[periods]]\ncode = "off"\ndays = ["weekday"]\nhours = ["06:30-08:00", "20:00-24:00"]\n'
+                                                '[[periods]]\ncode = "peak"\ndays = ["weekday"]\nhours = ["08:00-20:00"]\n')
     assert not [p for p in problems if "time-of-use period changes" in p.rule]
 
 
