@@ -179,7 +179,8 @@ def _wrapped_onto(s: pd.Series, index: pd.DatetimeIndex) -> pd.Series:
     Returns
     -------
     pandas.Series
-        The profile's intervals inside the year of ``index``, sorted, unique.
+        The profile's intervals inside the year of ``index``, sorted, unique, with those moved onto it (a
+        profile longer than a year: as given, its blank values dropped).
     """
     s = s.dropna()  # (a gap in the year is a gap, whichever resolution the profile was brought to)
     if not len(index) or not len(s):
