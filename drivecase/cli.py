@@ -208,10 +208,29 @@ class _Progress:
         elif self.lines and self.lines_of_stages:
             print(f"{self.desc}: {text} ({time.monotonic() - self._t0:.0f} s)", file=sys.stderr, flush=True)
 
+    def stage(self, name: str, stages: tuple[str, ...]) -> None:
+        """Show the stage ``name``: one of ``stages`` after the first moves the count on; a note (the plan
+        finishing) is shown without moving it."""
+        if name in stages and name != stages[0]:
+            self.update(1)
+        self.set_postfix_str(name)  # (after the count, so that the bar shows the stage with its own count)
+
     def close(self) -> None:
         self._closed.set()
         if self.bar is not None:
             self.bar.close()
+
+
+def _said_estimate(estimate, alone: bool, then: str | None = None) -> bool:
+    """Print the run's estimate: alone on the output with ``--estimate`` (returns True: the command stops
+    there), else on the error stream before a large run. ``then`` says what follows the run."""
+    after = f" Then {then}." if then else ""
+    if alone:
+        print(f"Estimate: {estimate.note}{after}")
+        return True
+    if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
+        print(f"Large run ahead: {estimate.note}{after}", file=sys.stderr)
+    return False
 
 
 def _close_bars(*bars) -> None:
@@ -253,13 +272,13 @@ def _writes_into_case(case_path: str, out: str) -> str | None:
 
 
 def cmd_bill(args: argparse.Namespace) -> int:
+    from dataclasses import replace
+
     import numpy as np
 
     from models.attribution import reactive_balance
     from models.bill_savings import (banned_caution, banned_quantities, meter_and_bills, monthly_bill_table,
                                      reactive_value_curve, site_setups)
-    from dataclasses import replace
-
     from models.operation import case_index, operate, options_with_baseline, site_case
 
     case = _load_or_report(args.case)
@@ -347,6 +366,8 @@ def cmd_bill(args: argparse.Namespace) -> int:
 
 
 #: Runs estimated above these are announced before they start (time [s], peak memory [bytes]).
+#: Exit code of a command stopped by Ctrl+C (128 + SIGINT, as shells report it); :func:`main` returns it only then.
+INTERRUPTED = 130
 LARGE_RUN_S = 60.0
 LARGE_RUN_BYTES = 4 * 1024**3
 STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
@@ -442,19 +463,14 @@ def cmd_run(args: argparse.Namespace) -> int:
     workers = 1
     if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
         workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
-    estimate = estimate_run(case, workers=workers, workers_here=not args.scheduler, dask=args.engine == "dask")
-    if args.estimate:
-        print(f"Estimate: {estimate.note}")
+    if _said_estimate(estimate_run(case, workers=workers, workers_here=not args.scheduler,
+                                   dask=args.engine == "dask"), args.estimate):
         return 0
-    if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
-        print(f"Large run ahead: {estimate.note}", file=sys.stderr)
     bar = _Progress(len(STAGES), "drivecase run", "stage", args.quiet)
     site_bar = None
 
     def progress(stage: str) -> None:
-        if stage in STAGES and stage != STAGES[0]:  # (a note such as the plan finishing moves no stage on)
-            bar.update(1)
-        bar.set_postfix_str(stage)  # (after the count, so that the bar shows the stage with its own count)
+        bar.stage(stage, STAGES)
 
     try:
         if args.engine == "dask":
@@ -689,19 +705,13 @@ def cmd_report(args: argparse.Namespace) -> int:
             return 1
     from models.estimate import estimate_run
 
-    estimate = estimate_run(case, workers=1)
-    if args.estimate:
-        print(f"Estimate: {estimate.note} Then the pack is written.")
+    if _said_estimate(estimate_run(case, workers=1), args.estimate, then="the pack is written"):
         return 0
-    if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
-        print(f"Large run ahead: {estimate.note}; then the pack is written", file=sys.stderr)
     steps = STAGES + ("pack",)
     bar = _Progress(len(steps), "drivecase report", "stage", args.quiet)
 
     def progress(stage: str) -> None:
-        if stage in steps and stage != steps[0]:  # (a note such as the plan finishing moves no stage on)
-            bar.update(1)
-        bar.set_postfix_str(stage)
+        bar.stage(stage, steps)
 
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     try:
@@ -837,27 +847,19 @@ def main(argv: list[str] | None = None) -> int:
         return int(args.func(args))
     except KeyboardInterrupt:  # Ctrl+C: one line, no traceback; nothing half-written is left (atomic writes)
         print(f"\n{' '.join(filter(None, ('drivecase', getattr(args, 'command', None))))}: interrupted", file=sys.stderr)
-        # the exact plan's solver runs in a thread of its own that cannot be stopped: the command's process
-        # leaves without waiting for it (:func:`entry`); a Dask run's cluster is closed by then (its engine
-        # closes it on the way out, before the economics)
-        _INTERRUPTED["leave_at_once"] = True
-        return 130
+        return INTERRUPTED
     except BrokenPipeError:  # the reader of the output (e.g. `| head`) stopped reading: not an error of ours
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())  # no second error when Python flushes stdout at exit
         return 0
 
 
-#: Set by :func:`main` when a command was interrupted and its process may leave at once.
-_INTERRUPTED: dict[str, bool] = {}
-
-
 def entry() -> int:
     """The ``drivecase`` command: :func:`main`, and after Ctrl+C an exit that does not wait for the exact plan's
-    solver thread to finish its search (up to ``--plan-seconds``); its result would be thrown away."""
-    _INTERRUPTED.clear()
+    solver thread to finish its search (up to ``--plan-seconds``): it cannot be stopped, and its result would be
+    thrown away (a Dask run's cluster is closed by then, on the way out of its engine)."""
     code = main()
-    if code == 130 and _INTERRUPTED.get("leave_at_once"):
+    if code == INTERRUPTED:
         sys.stdout.flush()
         sys.stderr.flush()
         os._exit(code)

@@ -2032,33 +2032,27 @@ def _check_finance(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                                 "horizon, escalation, grid emission factor; no capital budget)",
                                 "write your own in finance.toml (or the workbook's finance sheet); docs/finance.md "
                                 "lists the keys"))
+    layout_error = False
     if "finance" in flat:
         nested = flat["finance"]
-        others = sorted(k for k in flat if k != "finance")
+        others = {k: v for k, v in flat.items() if k != "finance"}
         if not isinstance(nested, dict):
             problems.append(error(source, None, "finance", nested, "'finance' must be a table of key = value",
                                   "write the keys at the top of the file, or under a [finance] line"))
         elif others:
             problems.append(error(source, None, "finance", None,
-                                  f"keys at the top ({', '.join(others[:5])}) and a [finance] table are both given",
-                                  "write every key at the top of the file, or every key under [finance]"))
-        else:
-            flat = nested
-        if flat is not nested:
-            # the case's assumptions cannot be read; its scenarios are still checked, against the keys that
-            # were written, so that every problem shows in one pass
-            base = {**{k: flat[k] for k in others}, **(nested if isinstance(nested, dict) else {})}
-            if tables is not None:
-                if "currency" not in base and _valid_currency(settings.currency):
-                    base["currency"] = settings.currency
-                wrong = {p.column for p in FinanceAssumptions.from_dict(base, source=source)[1] if p.severity == "error"}
-                base = {k: v for k, v in base.items() if k not in wrong}
-                problems.extend(read_scenarios(tables, base, scenario_source)[1])
-            return None
+                                  f"keys at the top ({', '.join(sorted(others)[:5])}) and a [finance] table are both "
+                                  "given", "write every key at the top of the file, or every key under [finance]"))
+        # the keys written, at the top and under [finance]: with a layout error the case's assumptions cannot be
+        # read, but their values and the scenarios are still checked below, so that every problem shows in one pass
+        layout_error = not isinstance(nested, dict) or bool(others)
+        flat = {**others, **(nested if isinstance(nested, dict) else {})}
     if "currency" not in flat and _valid_currency(settings.currency):
         flat = {**flat, "currency": settings.currency}
     assumptions, finance_problems = FinanceAssumptions.from_dict(flat, source=source)
     problems.extend(finance_problems)
+    if layout_error:
+        assumptions = None
     if tables is not None:
         # with the case's own assumptions in error the scenarios are still checked, against the case's keys less
         # those in error, so that every problem shows in one pass; none of them is kept (the case does not load)
