@@ -130,11 +130,13 @@ def fresh_memory_s_per_gib(size_bytes: int = 2**29) -> tuple[float, float]:
     return first * scale, again * scale
 
 
-def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None) -> dict:
+def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None,
+          max_memory_gib: float | None = None) -> dict:
     """Run one case in this process; return stage times [s], peaks [bytes] and sizes.
 
     ``plan_gap_pct`` and ``plan_seconds`` bound the exact plan as ``drivecase run --plan-gap --plan-seconds``
-    do (default: the full run's settings)."""
+    do (default: the full run's settings); ``max_memory_gib`` fits the run's budgets to that peak as
+    ``drivecase run --max-memory`` does (its estimate is reported beside the measured peak)."""
     sampler = PeakSampler(children=engine == "dask").start()
     times: dict[str, float] = {}
     sampler.mark("load")
@@ -162,15 +164,27 @@ def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_se
         settings = scenario.PlanSettings(time_limit_s=settings.time_limit_s, gap_frac=plan_gap_pct / 100.0)
     if plan_seconds is not None:
         settings = scenario.PlanSettings(time_limit_s=plan_seconds, gap_frac=settings.gap_frac)
+    budgets, fitted = None, {}
+    if max_memory_gib is not None:
+        from models.distributed import local_workers
+        from models.estimate import budgets_within
+
+        workers = local_workers(len(case.sites)) if engine == "dask" else 1
+        plan = budgets_within(case, int(max_memory_gib * 2**30), workers=workers, dask=engine == "dask")
+        budgets = plan.budgets
+        fitted = {"max_memory_gib": max_memory_gib, "estimated_peak_bytes": plan.estimate.peak_bytes,
+                  "fits": plan.fits, "given_up": list(plan.given_up)}
     t_run = time.perf_counter()
     own: dict[str, float] = {}  # each economics stage's own time (the plan runs beside end of life and risk)
     if engine == "dask":
         from models.distributed import run_distributed
 
-        result = run_distributed(case, case.finance, progress=progress, plan_settings=settings, timer=own)
+        result = run_distributed(case, case.finance, progress=progress, plan_settings=settings, timer=own,
+                                 budgets=budgets)
     else:
         timer: dict[str, float] = {}
-        phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar), progress, timer=timer)
+        phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar), progress, timer=timer,
+                                budgets=budgets)
         result = scenario.economics(case, phys, case.finance, progress, plan_settings=settings, timer=own)
         times.pop("physics", None)
         times["machines"], times["site bills"] = timer["machines"], timer["site bills"]
@@ -193,7 +207,7 @@ def child(case_dir: str, engine: str, plan_gap_pct: float | None = None, plan_se
             "peak_bytes": peaks, "overall_peak_bytes": max(peaks.values()), "floor_s": floor,
             "fresh_page_s_per_gib": fresh_s_per_gib, "mapped_page_s_per_gib": mapped_s_per_gib,
             "n_results": len(result.results), "plan_status": result.plan_status.get("message", ""), "plan_solves": result.plan_status.get("solves", 1),
-            "plan_gap_pct": 100.0 * settings.gap_frac, "plan_seconds": settings.time_limit_s}
+            "plan_gap_pct": 100.0 * settings.gap_frac, "plan_seconds": settings.time_limit_s, **fitted}
 
 
 def monte_carlo_demo() -> dict:
@@ -224,9 +238,11 @@ def machine() -> dict:
             "numpy": np.__version__, "pandas": pandas.__version__}
 
 
-def run_child(case_dir: Path, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None) -> dict:
+def run_child(case_dir: Path, engine: str, plan_gap_pct: float | None = None, plan_seconds: float | None = None,
+              max_memory_gib: float | None = None) -> dict:
     extra = ([] if plan_gap_pct is None else ["--plan-gap", str(plan_gap_pct)]) + \
-            ([] if plan_seconds is None else ["--plan-seconds", str(plan_seconds)])
+            ([] if plan_seconds is None else ["--plan-seconds", str(plan_seconds)]) + \
+            ([] if max_memory_gib is None else ["--max-memory", str(max_memory_gib)])
     out = subprocess.run([sys.executable, __file__, "--child", str(case_dir), "--engine", engine, *extra], check=True,
                          capture_output=True, text=True)
     return json.loads(out.stdout.strip().splitlines()[-1])
@@ -263,7 +279,10 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
                   + (f" Fresh memory on this host: {r['fresh_page_s_per_gib']:.2f} s per GiB at its first write, "
                      f"{r['mapped_page_s_per_gib']:.3f} s per GiB once mapped." if "fresh_page_s_per_gib" in r else "")
                   + (f" Exact plan asked to {r['plan_gap_pct']:g} % or {r['plan_seconds']:g} s: {r['plan_status']}."
-                     if r.get("plan_status") else ""), ""]
+                     if r.get("plan_status") else "")
+                  + (f" Budgets fitted to {r['max_memory_gib']:g} GiB (estimated peak "
+                     f"{mb(r['estimated_peak_bytes'])} MiB{'' if r['fits'] else ', above the limit'}; kept less: "
+                     f"{'; '.join(r['given_up']) or 'nothing'})." if "max_memory_gib" in r else ""), ""]
     lines += memory_growth(runs)
     if mc:
         lines += [f"Monte Carlo on the demo case ({mc['draws']:,} draws): {mc['risk_s']:.2f} s.", ""]
@@ -324,6 +343,8 @@ def main(argv: list[str] | None = None) -> None:
                         help="prove the exact plan within this %% only (as drivecase run --plan-gap; default 0.01)")
     parser.add_argument("--plan-seconds", type=float, metavar="S",
                         help="time limit of the exact plan (as drivecase run --plan-seconds; default 60)")
+    parser.add_argument("--max-memory", type=float, metavar="GIB",
+                        help="fit the run's memory budgets to this peak (as drivecase run --max-memory)")
     parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
                         help="capital budgets of the synthetic fleets: the demo's per motor (default) or the demo's own")
     parser.add_argument("--child", help=argparse.SUPPRESS)
@@ -331,7 +352,7 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--mc-child", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
-        print(json.dumps(child(args.child, args.engine, args.plan_gap, args.plan_seconds)))
+        print(json.dumps(child(args.child, args.engine, args.plan_gap, args.plan_seconds, args.max_memory)))
         return
     if args.mc_child:
         print(json.dumps(monte_carlo_demo()))
@@ -343,7 +364,7 @@ def main(argv: list[str] | None = None) -> None:
         for n in args.assets:
             folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites, budgets=args.budgets)
             for engine in args.engines:
-                r = run_child(folder, engine, args.plan_gap, args.plan_seconds)
+                r = run_child(folder, engine, args.plan_gap, args.plan_seconds, args.max_memory)
                 r["budgets"] = args.budgets
                 print(json.dumps(r), flush=True)
                 runs.append(r)

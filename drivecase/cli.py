@@ -215,22 +215,50 @@ class _Progress:
             self.update(1)
         self.set_postfix_str(name)  # (after the count, so that the bar shows the stage with its own count)
 
+    def say(self, line: str) -> None:
+        """A line on the error stream above the bar (or among the progress lines)."""
+        if self.bar is not None:
+            self.bar.write(line, file=sys.stderr)
+        else:
+            print(line, file=sys.stderr, flush=True)
+
     def close(self) -> None:
         self._closed.set()
         if self.bar is not None:
             self.bar.close()
 
 
-def _said_estimate(estimate, alone: bool, then: str | None = None) -> bool:
-    """Print the run's estimate: alone on the output with ``--estimate`` (returns True: the command stops
-    there), else on the error stream before a large run. ``then`` says what follows the run."""
-    after = f" Then {then}." if then else ""
+def _said_estimate(memory, alone: bool, then: str | None = None) -> bool:
+    """Print the run's estimate (of a :class:`models.estimate.MemoryPlan`) and, when it keeps less than the
+    defaults, its memory note: alone on the output with ``--estimate`` (returns True: the command stops
+    there), else on the error stream (the estimate before a large run only). ``then`` says what follows
+    the run."""
+    estimate, after = memory.estimate, f" Then {then}." if then else ""
     if alone:
         print(f"Estimate: {estimate.note}{after}")
+        if memory.note:
+            print(memory.note)
         return True
     if estimate.seconds > LARGE_RUN_S or estimate.peak_bytes > LARGE_RUN_BYTES:
         print(f"Large run ahead: {estimate.note}{after}", file=sys.stderr)
+    if memory.note:
+        print(memory.note, file=sys.stderr)
     return False
+
+
+def _memory_plan(command: str, case, args, workers: int = 1, workers_here: bool = True, dask: bool = False):
+    """The run's memory plan (:func:`models.estimate.memory_plan`, ``--max-memory`` given in GiB), or None
+    after saying why the run cannot keep within the memory asked for."""
+    from models.estimate import memory_plan
+
+    asked = None if args.max_memory is None else int(float(args.max_memory) * 2**30)
+    memory = memory_plan(case, asked, workers=workers, workers_here=workers_here, dask=dask)
+    if asked is not None and not memory.fits:
+        print(f"{command}: the run cannot keep within {args.max_memory:g} GiB: the least it can keep is estimated at "
+              f"{memory.estimate.peak_bytes / 2**30:.2f} GiB (the interpreter, one site's machines per thread and the "
+              "per-asset results); give a larger --max-memory, or split the case by site", file=sys.stderr)
+        return None
+    return memory
 
 
 def _close_bars(*bars) -> None:
@@ -458,14 +486,15 @@ def cmd_run(args: argparse.Namespace) -> int:
                   file=sys.stderr)
             return 1
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
-    from models.estimate import estimate_run
-
     workers = 1
     if args.engine == "dask":  # a cluster of one's own: its workers are not known before it is reached
         workers = LOCAL_WORKERS if args.scheduler else local_workers(len(case.sites))
-    if _said_estimate(estimate_run(case, workers=workers, workers_here=not args.scheduler,
-                                   dask=args.engine == "dask"), args.estimate):
+    memory = _memory_plan("drivecase run", case, args, workers, not args.scheduler, args.engine == "dask")
+    if memory is None:
+        return 1
+    if _said_estimate(memory, args.estimate):
         return 0
+    budgets = memory.budgets if memory.given_up else None
     bar = _Progress(len(STAGES), "drivecase run", "stage", args.quiet)
     site_bar = None
 
@@ -483,10 +512,11 @@ def cmd_run(args: argparse.Namespace) -> int:
 
             result = run_distributed(case, assumptions, scheduler=args.scheduler, progress=progress,
                                      with_risk=not args.no_risk, site_progress=site_progress,
-                                     plan_settings=plan_settings)
+                                     plan_settings=plan_settings, budgets=budgets,
+                                     notice=lambda line: site_bar.say(f"drivecase run: {line}"))
         else:
             result = scenario.run(case, assumptions, progress=progress, with_risk=not args.no_risk,
-                                  plan_settings=plan_settings)
+                                  plan_settings=plan_settings, budgets=budgets)
     except KeyboardInterrupt:
         _close_bars(bar, site_bar)  # (so that "interrupted" is the last line)
         raise
@@ -703,9 +733,10 @@ def cmd_report(args: argparse.Namespace) -> int:
             print(f"drivecase report: unknown {'asset' if len(unknown) == 1 else 'assets'}: {', '.join(unknown)}"
                   + unknown_ids_hint(unknown, case.assets["asset_id"]), file=sys.stderr)
             return 1
-    from models.estimate import estimate_run
-
-    if _said_estimate(estimate_run(case, workers=1), args.estimate, then="the pack is written"):
+    memory = _memory_plan("drivecase report", case, args)
+    if memory is None:
+        return 1
+    if _said_estimate(memory, args.estimate, then="the pack is written"):
         return 0
     steps = STAGES + ("pack",)
     bar = _Progress(len(steps), "drivecase report", "stage", args.quiet)
@@ -715,7 +746,8 @@ def cmd_report(args: argparse.Namespace) -> int:
 
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     try:
-        result = scenario.run(case, case.finance, progress=progress, plan_settings=plan_settings)
+        result = scenario.run(case, case.finance, progress=progress, plan_settings=plan_settings,
+                              budgets=memory.budgets if memory.given_up else None)
     except KeyboardInterrupt:
         _close_bars(bar)
         raise
@@ -815,11 +847,26 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _positive_gib(text: str) -> float:
+    """A memory size in GiB given on the command line: a number above 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a memory size: give a number of GiB above 0, e.g. 4")
+    return value
+
+
 def _add_run_options(parser: argparse.ArgumentParser, gap_frac: float, time_s: float) -> None:
     """The options of a command that runs the analysis (run, report): progress, estimate, the exact plan's bounds."""
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
     parser.add_argument("--estimate", action="store_true",
                         help="print the estimate of time and memory of the run and stop (nothing is written)")
+    parser.add_argument("--max-memory", type=_positive_gib, metavar="GIB",
+                        help="keep the run's peak memory within this many GiB: it keeps less and recomputes more "
+                             "(default: fitted to most of the memory the machine has free, when the run would need "
+                             "more)")
     parser.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",
                         help="stop the exact plan once it is proven within this %% of the best possible NPV "
                              f"(default {100.0 * gap_frac:g})")

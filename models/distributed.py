@@ -25,7 +25,7 @@ from typing import Callable
 from models import finance
 from models.estimate import BOOK_BYTES_PER_ASSET_STEP
 from models.memory import retained_memory
-from models.operation import case_index, site_case
+from models.operation import MemoryBudgets, case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
 from models.wording import counted
 
@@ -46,12 +46,14 @@ def local_workers(n_sites: int | None = None) -> int:
     return max(1, min(n, n_sites)) if n_sites is not None else n
 
 
-def _site_task(sub_case, index, cost: float, chunk_assets, today_only: bool, with_books: bool):
+def _site_task(sub_case, index, cost: float, chunk_assets, today_only: bool, with_books: bool,
+               curve_elements: int | None = None):
     """One site's physics on a worker (:func:`models.scenario.site_physics`), its freed memory kept for reuse
     while it runs (:func:`models.memory.retained_memory`): (op, part, its blocks' curve books or None)."""
     books = [] if with_books else None
     with retained_memory():
-        op, part = site_physics(sub_case, index, cost, chunk_assets, None, today_only, books=books)
+        op, part = site_physics(sub_case, index, cost, chunk_assets, None, today_only, books=books,
+                                curve_elements=curve_elements)
     return op, part, books
 
 
@@ -90,11 +92,14 @@ def _least_busy_worker(client) -> str | None:
 
 
 def _site_results(client, case, partition, index, cost: float, chunk_assets, today_only: bool,
-                  books_wanted: Callable[[str, int], bool] = lambda _site, _n: False):
+                  books_wanted: Callable[[str, int], bool] = lambda _site, _n: False,
+                  curve_elements: int | None = None, notice: Callable[[str], None] | None = None):
     """Run each site's task and yield (site_id, op, part, books, number done) as the sites come back.
 
     ``books_wanted(site_id, n_assets)`` says, as a site is sent, whether its curve books are to come back
-    with it (else its books are None).
+    with it (else its books are None); ``curve_elements`` is the block size of its curve tables
+    (:attr:`models.operation.MemoryBudgets.curve_chunk_elements`, default the workers' own); ``notice`` is
+    told, in words, of each site sent again after its worker was lost.
 
     Each site's sub-case goes straight from the caller to the worker that will run it
     (``Client.scatter(direct=True)``), not through the scheduler inside the task: a site's profiles are
@@ -128,7 +133,7 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
         attempts[site_id] = attempts.get(site_id, 0) + 1
         sub_case = site_case(case, site_id)
         key = f"drivecase-site-physics-{run_token}-{k}-{attempts[site_id]}"
-        args = (index, cost, chunk_assets, today_only, books_wanted(site_id, len(sub_case.assets)))
+        args = (index, cost, chunk_assets, today_only, books_wanted(site_id, len(sub_case.assets)), curve_elements)
         future = None
         for tries_left in range(SITE_ATTEMPTS - 1, -1, -1):
             worker = _least_busy_worker(client)
@@ -163,6 +168,9 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
                 raise
             if attempts[site_id] >= SITE_ATTEMPTS:
                 raise _site_lost(case, site_id, counted(SITE_ATTEMPTS, "time")) from None
+            if notice is not None:
+                notice(f"site {site_id}: its worker was lost; the site is sent again (attempt "
+                       f"{attempts[site_id] + 1} of {SITE_ATTEMPTS})")
             waiting.appendleft((k, site_id))
         else:
             done += 1
@@ -330,7 +338,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
                     site_progress: Callable[[str, int, int], None] | None = None, n_workers: int | None = None,
                     processes: bool = True, chunk_assets: int | None = None,
                     dense: bool | None = None, plan_settings: PlanSettings = PRECISE_PLAN,
-                    timer: dict | None = None) -> ScenarioResult:
+                    timer: dict | None = None, budgets: MemoryBudgets | None = None,
+                    notice: Callable[[str], None] | None = None) -> ScenarioResult:
     """Run the whole analysis with the physics of each site as one Dask task.
 
     Parameters
@@ -354,10 +363,12 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         core, at most one per site).
     processes : bool
         Local cluster of processes (True) or threads (False).
-    chunk_assets, dense
-        As in :func:`models.scenario.physics`.
+    chunk_assets, dense, budgets
+        As in :func:`models.scenario.physics` (the budgets' block size of curve tables is the workers').
     plan_settings, timer
         As in :func:`models.scenario.economics`.
+    notice : callable, optional
+        Called with one line in words for each site sent again after its worker was lost.
 
     Returns
     -------
@@ -373,7 +384,7 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
     step("machines")
     cost = float(assumptions.capacitor_cost_per_kvar)
     index = case_index(case)
-    merger = PhysicsMerger(case, index, cost, chunk_assets, dense)
+    merger = PhysicsMerger(case, index, cost, chunk_assets, dense, budgets)
     today_only = not merger.ops.dense
     recompute = merger.ops.recompute
     n_steps = len(index)
@@ -393,7 +404,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         n_workers = local_workers(len(merger.partition))
     client, cluster = _client(scheduler, n_workers, processes)
     try:
-        results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted)
+        results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted,
+                                merger.budgets.curve_chunk_elements, notice)
         for site_id, op, part, books, done in results:
             if done == 1:
                 step("site bills")

@@ -10,12 +10,12 @@ budgets (a longer plan search) move it.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from models.operation import (CHUNK_ELEMENTS, CURVE_CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES,
                               KEPT_BOOKS_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS,
-                              TODAY_IN_MEMORY_BUDGET_BYTES, case_index, interval_bytes, options_with_baseline,
-                              site_partition)
+                              TODAY_IN_MEMORY_BUDGET_BYTES, MemoryBudgets, case_index, interval_bytes,
+                              options_with_baseline, site_partition)
 
 #: Machines stage per asset-option-step [s], one thread: 12.0 s of wall time for 10,000 assets x 11
 #: options x 8,760 steps with two site threads (bench_fleet, local engine, late on 2026-12-02, 50.3 s end to
@@ -73,6 +73,16 @@ ECONOMICS_BYTES_PER_PAIR = 20 * 1024
 #: (docs/scale.md, memory model), held from each site's physics to the end of the run within
 #: :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`.
 BOOK_BYTES_PER_ASSET_STEP = 2.06 * 2**30 / (10_000 * 8760)
+#: Time a run spends recomputing the plan's rows of sites whose curve books it does not keep, per asset-step
+#: of those sites [s]: 5.5 s more in the plan and its bills for the 10,000-asset fleet run with no books kept
+#: (benchmarks/bench_fleet.py, docs/performance.md "2026-12-04, night": plan +4.5 s, bills +1.0 s).
+UNBOOKED_S_PER_ASSET_STEP = 5.5 / (10_000 * 8760)
+#: Time a run spends recomputing again the plan's rows it does not keep, per asset-step not kept [s]: the
+#: 10,000-asset fleet with no curve books and no rows kept took 43.6 s in the plan and 3.3 s in its bills,
+#: against 24.6 and 1.8 s with no books and 1 GiB of rows kept (benchmarks/bench_fleet.py --max-memory 3,
+#: docs/performance.md "2026-12-04: a run within a memory limit"): 20.5 s for the 1 GiB of rows (kW and
+#: kVAr, 16 bytes per asset-step) no longer kept.
+UNKEPT_S_PER_ASSET_STEP = (43.6 + 3.3 - 24.6 - 1.8) / (2**30 / 16)
 #: Speed-up of the physics per extra site thread [-]: two threads ran the 10,000-asset fleet's physics
 #: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
 #: each other thousands of times per site, docs/performance.md).
@@ -107,7 +117,7 @@ class Estimate:
 
 
 def estimate_run(case, workers: int = 1, threads: int | None = None, workers_here: bool = True,
-                 dask: bool | None = None) -> Estimate:
+                 dask: bool | None = None, budgets: MemoryBudgets | None = None) -> Estimate:
     """Estimate the wall time and peak memory of a run from the size of the case.
 
     Parameters
@@ -125,6 +135,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
         scheduler elsewhere (False) the peak is this machine's, and the note gives each worker's need.
     dask : bool, optional
         The Dask engine (default: when ``workers`` > 1); a Dask run of one worker is not the local engine.
+    budgets : models.operation.MemoryBudgets, optional
+        What the run keeps in memory (default: this module's view of :mod:`models.operation`'s budgets).
 
     Returns
     -------
@@ -143,39 +155,68 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     :data:`models.operation.KEPT_BOOKS_BUDGET_BYTES`) + the larger of
     the physics (per thread: the largest site's today's power and loads, one block's per-option arrays and
     temporaries, or above the dense budget one curve block, :data:`CURVE_BLOCK_BYTES_PER_ELEMENT`) and the
-    economics (one site's meter arrays and the per-asset-option tables). On Dask the physics runs in the
+    economics (one site's meter arrays, the per-asset-option tables, the rows kept and, where a site's books
+    are not kept, one block of every option recomputed with its temporaries per thread of the plan's bills:
+    0.5 GiB with two threads on an hourly year, for 0.33 and 0.48 GiB measured above the rest at 10,000
+    assets without books, docs/performance.md "2026-12-04: a run within a memory limit"). On Dask the physics runs in the
     workers: each holds :data:`WORKER_BASE_BYTES` and one site's physics (and, on a dense run, the site's
     every-option power it sends back), counted in the peak when the workers are on this machine (a local
     cluster is closed before the economics).
     """
+    return _estimate(_RunSize.of(case), workers, threads, workers_here, dask, budgets)
+
+
+@dataclass(frozen=True)
+class _RunSize:
+    """The sizes an estimate is made of: assets, options (today's included), steps, sites, the largest site."""
+
+    n_a: int
+    n_o: int
+    n_t: int
+    n_sites: int
+    largest: int
+
+    @classmethod
+    def of(cls, case) -> "_RunSize":
+        sites = site_partition(case)
+        return cls(len(case.assets), len(options_with_baseline(case.options)), len(case_index(case)), len(sites),
+                   max((len(rows) for _, rows in sites), default=0))
+
+
+def _module_budgets() -> MemoryBudgets:
+    """The budgets as this module reads them (the names it imported from :mod:`models.operation`)."""
+    return MemoryBudgets(DENSE_INTERVAL_BUDGET_BYTES, TODAY_IN_MEMORY_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES,
+                         KEPT_BOOKS_BUDGET_BYTES, CURVE_CHUNK_ELEMENTS)
+
+
+def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: bool, dask: bool | None,
+              budgets: MemoryBudgets | None) -> Estimate:
+    """:func:`estimate_run` of a case of ``size``."""
     if workers < 1:
         raise ValueError("workers must be >= 1")
-    n_a = len(case.assets)
-    n_o = len(options_with_baseline(case.options))
-    n_t = len(case_index(case))
-    sites = site_partition(case)
-    largest = max((len(rows) for _, rows in sites), default=0)
+    b = _module_budgets() if budgets is None else budgets
+    n_a, n_o, n_t, largest = size.n_a, size.n_o, size.n_t, size.largest
     elements = n_a * n_o * n_t
     dask = workers > 1 if dask is None else bool(dask)
     if dask:
-        parallel, at_once = float(min(int(workers), max(len(sites), 1))) / DASK_WORKER_COST, 1
+        parallel, at_once = float(min(int(workers), max(size.n_sites, 1))) / DASK_WORKER_COST, 1
     else:
-        at_once = max(1, min(int(threads or PHYSICS_THREADS), max(len(sites), 1)))
+        at_once = max(1, min(int(threads or PHYSICS_THREADS), max(size.n_sites, 1)))
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
                + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET)
                + min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S))
-    dense = interval_bytes(n_a, n_o, n_t) <= DENSE_INTERVAL_BUDGET_BYTES
+    dense = interval_bytes(n_a, n_o, n_t) <= b.dense_bytes
     today = interval_bytes(n_a, 1, n_t)
-    spilled = not dense and today > TODAY_IN_MEMORY_BUDGET_BYTES
+    spilled = not dense and today > b.today_in_memory_bytes
     # above its budget today's power lives in a mapped file the system may write out: counted at the budget
-    store = interval_bytes(n_a, n_o, n_t) if dense else min(today, TODAY_IN_MEMORY_BUDGET_BYTES)
+    store = interval_bytes(n_a, n_o, n_t) if dense else min(today, b.today_in_memory_bytes)
     site_bytes = interval_bytes(largest, 1, n_t) + 8 * largest * n_t  # the site's today's power and its loads
     if dense:
         block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
         block = interval_bytes(block_assets, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
     else:
-        block_assets = min(largest, max(1, CURVE_CHUNK_ELEMENTS // max(n_t, 1)))
+        block_assets = min(largest, max(1, b.curve_chunk_elements // max(n_t, 1)))
         block = CURVE_BLOCK_BYTES_PER_ELEMENT * block_assets * n_t
     per_site = site_bytes + block
     physics_peak = 0 if dask else at_once * per_site
@@ -187,11 +228,22 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     # and kept while the plan's reactive check and its bills read them (at most one row per asset, within
     # KEPT_ROWS_BUDGET_BYTES)
     want_books = 0 if dense else BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
-    books = min(want_books, KEPT_BOOKS_BUDGET_BYTES)
+    books = min(want_books, b.kept_books_bytes)
     unbooked = 1.0 - (books / want_books if want_books else 0.0)
-    kept_rows = 0 if dense else min(KEPT_ROWS_BUDGET_BYTES, unbooked * today)
+    kept_rows = 0 if dense else min(b.kept_rows_bytes, unbooked * today)
+    if not dense:  # the rows of sites without books are recomputed where the plan and its bills read them, and
+        # again on each reading when they are not kept
+        seconds += UNBOOKED_S_PER_ASSET_STEP * unbooked * n_a * n_t
+        unkept = unbooked * today - kept_rows
+        seconds += UNKEPT_S_PER_ASSET_STEP * max(unkept, 0.0) / interval_bytes(1, 1, 1)
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
-    n_workers = min(int(workers), max(len(sites), 1)) if dask else 0
+    if not dense and unbooked > 0:  # a block of every option recomputed, per thread of the plan's bills, where they
+        # read a site without books
+        recompute_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
+        bill_threads = max(1, min(int(threads or PHYSICS_THREADS), max(size.n_sites, 1)))
+        economics_peak += bill_threads * (interval_bytes(recompute_assets, n_o, n_t)
+                                          + BLOCK_TEMP_BYTES_PER_ELEMENT * recompute_assets * n_t)
+    n_workers = min(int(workers), max(size.n_sites, 1)) if dask else 0
     if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes
     peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
@@ -207,7 +259,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     if n_workers:
         peak_text += f" (each worker about {worker_bytes / 2**30:.1f} GiB"
         peak_text += ", counted)" if workers_here else ")"
-    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {len(sites)} site(s){engine}: about "
+    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {size.n_sites} site(s){engine}: about "
             f"{_duration(seconds)} and {peak_text}; keeps {kept}.")
     return Estimate(float(seconds), int(peak), note)
 
@@ -218,3 +270,166 @@ def _duration(seconds: float) -> str:
     if seconds < 5400:
         return f"{seconds / 60:.0f} min"
     return f"{seconds / 3600:.1f} h"
+
+
+#: Smallest block of curve tables a run is given to fit its memory [asset-steps] (119 assets on an hourly
+#: year): smaller blocks hold less at once but run the models on smaller batches.
+MIN_CURVE_CHUNK_ELEMENTS = 2**20
+#: Share of the memory the machine has available that a run plans to use when not told otherwise [-]
+#: (the rest left to the system and the programs open beside it; common practice, not measured).
+AVAILABLE_SHARE = 0.8
+
+
+@dataclass(frozen=True)
+class MemoryPlan:
+    """The budgets a run is given, and why.
+
+    Attributes
+    ----------
+    budgets : models.operation.MemoryBudgets
+    estimate : Estimate
+        The run's estimate with these budgets.
+    limit_bytes : int or None
+        The peak the budgets were fitted to [bytes] (None: the defaults, unlimited).
+    fits : bool
+        The estimated peak is within ``limit_bytes`` (always True without a limit).
+    given_up : tuple of str
+        What the run keeps less of than with the defaults, in words (empty: nothing).
+    why : str
+        Where the limit comes from, in words ("" without a limit).
+    """
+
+    budgets: MemoryBudgets
+    estimate: Estimate
+    limit_bytes: int | None
+    fits: bool
+    given_up: tuple[str, ...]
+    why: str = ""
+
+    @property
+    def note(self) -> str:
+        """One line for the user when the run keeps less than the defaults or may not fit ("" otherwise)."""
+        if self.limit_bytes is None or (self.fits and not self.given_up):
+            return ""
+        head = f"Memory: within {_gib(self.limit_bytes)}" + (f" ({self.why})" if self.why else "")
+        if not self.fits:
+            return (f"{head}, the run needs at least about {_gib(self.estimate.peak_bytes)} (the interpreter, one "
+                    "site's machines per thread and the per-asset results); it keeps the least it can, and the system "
+                    "may slow down or stop it.")
+        exact = any(g.startswith("every option") for g in self.given_up)
+        return (f"{head}, the run keeps less in memory and recomputes more: " + "; ".join(self.given_up) + ". "
+                + ("The options are then read through their curve tables (within 1e-5 of each motor's rated input)."
+                   if exact else "The numbers are the same; the run is slower."))
+
+
+def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None = None, workers_here: bool = True,
+                   dask: bool | None = None) -> MemoryPlan:
+    """The largest budgets whose estimated peak stays within ``limit_bytes``.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    limit_bytes : int
+        The peak memory the run may reach [bytes], > 0.
+    workers, threads, workers_here, dask
+        As in :func:`estimate_run`.
+
+    Returns
+    -------
+    MemoryPlan
+        ``fits`` False when even the least the run can keep is estimated above the limit (the budgets are
+        then that least).
+
+    Notes
+    -----
+    The defaults are kept when they fit. Else the run gives up, in this order and each only as far as
+    needed: every option's per-interval power (read through curve tables instead: within 1e-5 of each
+    asset's rated input, the one step that changes numbers); the sites' curve books (their rows are
+    recomputed where the plan reads them: slower, the same numbers); the size of the blocks of curve tables
+    (down to :data:`MIN_CURVE_CHUNK_ELEMENTS`); and, dearest in time, the plan's rows kept while it is
+    checked. Today's per-interval power, the interpreter, one site's physics per thread and the economics'
+    tables are not budgets: they set the least a run needs (today's power goes to a mapped file only above
+    :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, and its pages count in the resident memory while
+    they are read). Each budget is found by bisection on the estimate, whose peak grows with every budget.
+    """
+    if limit_bytes <= 0:
+        raise ValueError("the memory limit must be > 0 bytes")
+    return _budgets_within(_RunSize.of(case), limit_bytes, workers, threads, workers_here, dask)
+
+
+def _budgets_within(size: _RunSize, limit_bytes: int, workers: int, threads: int | None, workers_here: bool,
+                    dask: bool | None) -> MemoryPlan:
+    """:func:`budgets_within` for a run of ``size``."""
+
+    def peak(b: MemoryBudgets) -> int:
+        return _estimate(size, workers, threads, workers_here, dask, b).peak_bytes
+
+    start = b = _module_budgets()
+    given_up: list[str] = []
+    if peak(b) > limit_bytes and interval_bytes(size.n_a, size.n_o, size.n_t) <= b.dense_bytes:
+        b = replace(b, dense_bytes=0)
+        given_up.append("every option's per-interval power")
+    for name, least, words in (("kept_books_bytes", 0, "curve books"),
+                               ("curve_chunk_elements", MIN_CURVE_CHUNK_ELEMENTS, "curve-table blocks"),
+                               ("kept_rows_bytes", 0, "plan rows kept")):
+        if peak(b) <= limit_bytes:
+            break
+        before = getattr(b, name)
+        at_least = peak(replace(b, **{name: least}))
+        if before <= least or at_least >= peak(b):  # (a budget that does not set the peak is left alone)
+            continue
+        low, high = least, before  # peak(low) may still exceed the limit; high does
+        if at_least <= limit_bytes:
+            while high - low > 1:
+                mid = (low + high) // 2
+                low, high = (mid, high) if peak(replace(b, **{name: mid})) <= limit_bytes else (low, mid)
+        if name == "curve_chunk_elements":  # blocks in powers of two
+            low = max(least, 1 << max(int(low).bit_length() - 1, 0))
+        b = replace(b, **{name: int(low)})
+        given_up.append(f"{words} ({_gib(before)} -> {_gib(low)})" if name != "curve_chunk_elements"
+                        else f"{words} ({before // max(size.n_t, 1):,} -> {int(low) // max(size.n_t, 1):,} assets)")
+    est = _estimate(size, workers, threads, workers_here, dask, b)
+    return MemoryPlan(b, est, int(limit_bytes), est.peak_bytes <= limit_bytes, tuple(given_up) if b != start else ())
+
+
+def available_bytes() -> int:
+    """Memory the machine has available now for a new program [bytes] (``psutil.virtual_memory().available``)."""
+    import psutil
+
+    return int(psutil.virtual_memory().available)
+
+
+def memory_plan(case, max_bytes: int | None = None, available: int | None = None, workers: int = 1,
+                threads: int | None = None, workers_here: bool = True, dask: bool | None = None) -> MemoryPlan:
+    """The budgets of a run: within ``max_bytes`` when asked, else the defaults unless they would not fit the
+    machine.
+
+    Parameters
+    ----------
+    case : models.case.Case
+    max_bytes : int, optional
+        The peak the user allows [bytes].
+    available : int, optional
+        Memory available on the machine [bytes]; default :func:`available_bytes`. Without ``max_bytes``, a
+        run whose default estimate is above :data:`AVAILABLE_SHARE` of it is fitted to that share.
+    workers, threads, workers_here, dask
+        As in :func:`estimate_run`.
+
+    Returns
+    -------
+    MemoryPlan
+    """
+    if max_bytes is not None:
+        return replace(budgets_within(case, int(max_bytes), workers, threads, workers_here, dask), why="as asked")
+    est = estimate_run(case, workers, threads, workers_here, dask)
+    free = available_bytes() if available is None else int(available)
+    room = int(AVAILABLE_SHARE * free)
+    if est.peak_bytes <= room:
+        return MemoryPlan(_module_budgets(), est, None, True, ())
+    return replace(budgets_within(case, room, workers, threads, workers_here, dask),
+                   why=f"{AVAILABLE_SHARE:.0%} of the {_gib(free)} this machine has free")
+
+
+def _gib(n_bytes: float) -> str:
+    gib = n_bytes / 2**30
+    return f"{gib:.2f} GiB" if gib < 1 else f"{gib:.1f} GiB"

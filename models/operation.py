@@ -835,6 +835,45 @@ KEPT_BOOKS_BUDGET_BYTES = 5 * 2**29
 PHYSICS_THREADS = max(1, min(2, os.cpu_count() or 1))
 
 
+@dataclass(frozen=True)
+class MemoryBudgets:
+    """What a run keeps in memory, and how large its tabulated blocks are.
+
+    The defaults (:func:`default_budgets`) are sized for a machine of 24 GiB; a run on a smaller one is
+    given budgets that fit the memory it may use (:func:`models.estimate.budgets_within`). Smaller budgets
+    keep less and recompute more: the numbers are the same, except that a fleet kept per interval in full
+    (within ``dense_bytes``) reads its options exactly and one above it through their curve tables (within
+    1e-5 of the asset's rated input, docs/models.md).
+
+    Attributes
+    ----------
+    dense_bytes : int
+        Every option's per-interval power is kept while it fits in this many bytes
+        (:data:`DENSE_INTERVAL_BUDGET_BYTES`).
+    today_in_memory_bytes : int
+        Today's per-interval power above it lives in a mapped temporary file
+        (:data:`TODAY_IN_MEMORY_BUDGET_BYTES`).
+    kept_rows_bytes : int
+        Rows recomputed for the plan are kept up to this many bytes (:data:`KEPT_ROWS_BUDGET_BYTES`).
+    kept_books_bytes : int
+        The sites' curve books are kept up to this many bytes (:data:`KEPT_BOOKS_BUDGET_BYTES`).
+    curve_chunk_elements : int
+        Asset-steps of a block that keeps its options as curve tables (:data:`CURVE_CHUNK_ELEMENTS`).
+    """
+
+    dense_bytes: int
+    today_in_memory_bytes: int
+    kept_rows_bytes: int
+    kept_books_bytes: int
+    curve_chunk_elements: int
+
+
+def default_budgets() -> MemoryBudgets:
+    """The module's budgets as they are now (:data:`DENSE_INTERVAL_BUDGET_BYTES` and the rest)."""
+    return MemoryBudgets(int(DENSE_INTERVAL_BUDGET_BYTES), int(TODAY_IN_MEMORY_BUDGET_BYTES),
+                         int(KEPT_ROWS_BUDGET_BYTES), int(KEPT_BOOKS_BUDGET_BYTES), int(CURVE_CHUNK_ELEMENTS))
+
+
 #: Tabulated machine models (:mod:`models.tabulation`): grid nodes per asset. Each option's curve is
 #: evaluated at 2 x this - 1 loads per asset instead of once per interval.
 TABLE_NODES = 129
@@ -1554,7 +1593,7 @@ class _BlockBuffers:
 
 def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
                 today_out: tuple[np.ndarray, np.ndarray] | None = None, curves: bool = False,
-                buffers: "_BlockBuffers | None" = None):
+                buffers: "_BlockBuffers | None" = None, curve_elements: int | None = None):
     """Yield (positions, OperatingResult, (p_kw, q_kvar) site totals of today's motors) block by block.
 
     The blocks of a one-site case (:func:`asset_blocks`), each with every option; the site totals
@@ -1564,7 +1603,8 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     :meth:`_Merger.today_rows`), today's motors are written there, every row (else into arrays of the
     site's own). With ``curves`` each block's tabulated options are kept in its ``curves`` book instead
     of its per-interval arrays (see :func:`_operate_block`), and the blocks are by default of
-    :data:`CURVE_CHUNK_ELEMENTS` asset-steps. ``buffers`` is the block memory to reuse (default fresh).
+    :data:`CURVE_CHUNK_ELEMENTS` asset-steps (``curve_elements`` if given, e.g.
+    :attr:`MemoryBudgets.curve_chunk_elements`). ``buffers`` is the block memory to reuse (default fresh).
 
     Warnings
     --------
@@ -1573,7 +1613,8 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
     """
     n = len(case.assets)
     if curves and chunk_assets is None:
-        chunk_assets = max(1, CURVE_CHUNK_ELEMENTS // max(len(index), 1))
+        elements = CURVE_CHUNK_ELEMENTS if curve_elements is None else int(curve_elements)
+        chunk_assets = max(1, elements // max(len(index), 1))
     blocks = asset_blocks(n, len(index), chunk_assets)
     buffers = buffers if buffers is not None else _BlockBuffers()
     if len(blocks) <= 1:
@@ -1607,9 +1648,12 @@ def site_blocks(case, index: pd.DatetimeIndex, chunk_assets: int | None = None,
 class _Merger:
     """Gathers OperatingResult parts (disjoint sets of asset positions) into one, part by part."""
 
-    def __init__(self, n_assets: int, n_steps: int, dense: bool = True, recompute=None):
+    def __init__(self, n_assets: int, n_steps: int, dense: bool = True, recompute=None,
+                 today_in_memory_bytes: int | None = None):
         self.n_a, self.n_t = n_assets, n_steps
         self.dense = dense
+        self.today_in_memory_bytes = (TODAY_IN_MEMORY_BUDGET_BYTES if today_in_memory_bytes is None
+                                      else int(today_in_memory_bytes))
         self.recompute = recompute
         self.first: OperatingResult | None = None
         self.fields: dict[str, np.ndarray] = {}
@@ -1622,7 +1666,7 @@ class _Merger:
         """The fleet's per-interval arrays, uninitialised: every row is written by the part holding it, or
         in place through :meth:`today_rows` (see result())."""
         shape = (n_options, self.n_a, self.n_t) if self.dense else (self.n_a, self.n_t)
-        spill = not self.dense and interval_bytes(self.n_a, 1, self.n_t) > TODAY_IN_MEMORY_BUDGET_BYTES
+        spill = not self.dense and interval_bytes(self.n_a, 1, self.n_t) > self.today_in_memory_bytes
         self.fields["p_kw"] = _file_backed(shape) if spill else np.empty(shape)
         self.fields["q_kvar"] = _file_backed(shape) if spill else np.empty(shape)
         self.prewritten = np.zeros(self.n_a, dtype=bool)
@@ -1767,6 +1811,7 @@ class _SiteRecompute:
         self._books_bytes = 0
         self._books_refused: set[int] = set()  # sites a block of which did not fit
         self.books_budget = KEPT_BOOKS_BUDGET_BYTES
+        self.rows_budget = KEPT_ROWS_BUDGET_BYTES  # what kept_rows keeps by default
 
     def keep_book(self, site_id: str, rows: np.ndarray, book: "tabulation.CurveBook") -> bool:
         """Keep a block's curve book (site-local ``rows``, the block's assets in its order) while the books
@@ -2080,7 +2125,7 @@ def kept_rows(op: OperatingResult, budget_bytes: int | None = None):
 
     A fleet above the dense budget recomputes other options' rows each time they are read
     (:class:`SiteIntervalStore`). Inside ``with kept_rows(op):`` each row recomputed is kept, up to
-    ``budget_bytes`` (default :data:`KEPT_ROWS_BUDGET_BYTES`), and read again from memory: the same
+    ``budget_bytes`` (default the run's, :data:`KEPT_ROWS_BUDGET_BYTES` unless its budgets set another), and read again from memory: the same
     values, since a row does not depend on the rows recomputed with it. Everything kept is let go on
     leaving the block. Nothing changes for a result that keeps every option in memory.
     """
@@ -2088,7 +2133,7 @@ def kept_rows(op: OperatingResult, budget_bytes: int | None = None):
     if store is None:
         yield
         return
-    with store._recompute.keeping(KEPT_ROWS_BUDGET_BYTES if budget_bytes is None else budget_bytes):
+    with store._recompute.keeping(store._recompute.rows_budget if budget_bytes is None else budget_bytes):
         yield
 
 

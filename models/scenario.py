@@ -23,8 +23,8 @@ from models.bill_savings import (RATCHET_YEARS, SAVING_COMPONENTS, BillSavings, 
                                  site_setups)
 from models.case import usual_supply_hz
 from models.memory import retaining_memory
-from models.operation import (DENSE_INTERVAL_BUDGET_BYTES, PHYSICS_THREADS, OperatingResult, _BlockBuffers, _Merger,
-                              _SiteRecompute, kept_rows,
+from models.operation import (PHYSICS_THREADS, MemoryBudgets, OperatingResult, _BlockBuffers, _Merger,
+                              _SiteRecompute, default_budgets, kept_rows,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
 from models.plan import plan_choice, project_labels
@@ -179,7 +179,8 @@ class ScenarioResult:
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
                  timer: dict | None = None, today_only: bool = False,
-                 into: tuple | None = None, buffers=None, books: list | None = None) -> tuple[OperatingResult | None, dict]:
+                 into: tuple | None = None, buffers=None, books: list | None = None,
+                 curve_elements: int | None = None) -> tuple[OperatingResult | None, dict]:
     """Machines and bill savings of a one-site case (:func:`models.operation.site_case`).
 
     Parameters
@@ -205,6 +206,9 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     books : list, optional
         Each block's curve book is appended to it as (site-local rows, ``CurveBook.arrays()``), for a
         caller that keeps them elsewhere (:meth:`models.operation._SiteRecompute.keep_arrays`).
+    curve_elements : int, optional
+        Asset-steps of a block that keeps its options as curve tables (default
+        :data:`models.operation.CURVE_CHUNK_ELEMENTS`; :attr:`models.operation.MemoryBudgets.curve_chunk_elements`).
 
     Returns
     -------
@@ -220,7 +224,7 @@ def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, 
     today_out = merger.today_rows(positions, len(options_with_baseline(case.options))) if positions is not None else None
     acc = None
     for rows, block, totals in site_blocks(case, index, chunk_assets, today_out=today_out, curves=True,
-                                           buffers=buffers):
+                                           buffers=buffers, curve_elements=curve_elements):
         t1 = time.perf_counter()
         t_machines += t1 - t0
         if acc is None:
@@ -247,19 +251,25 @@ class PhysicsMerger:
     """Gathers the per-site physics (any order) into one :class:`Physics` in the asset register's order.
 
     Memory: one site's dense arrays at a time, plus the fleet's per-interval arrays when they fit
-    :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES` (else today's motors only, the other options
-    being recomputed by site when indexed; see :class:`models.operation.SiteIntervalStore`).
+    the dense budget (else today's motors only, the other options being recomputed by site when indexed;
+    see :class:`models.operation.SiteIntervalStore`), within ``budgets`` (default
+    :func:`models.operation.default_budgets`).
     """
 
     def __init__(self, case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
-                 dense: bool | None = None):
+                 dense: bool | None = None, budgets: MemoryBudgets | None = None):
         self.case, self.index, self.cost = case, index, float(capacitor_cost_per_kvar)
+        self.budgets = budgets = default_budgets() if budgets is None else budgets
         self.partition = site_partition(case)
         n_a, n_o = len(case.assets), len(options_with_baseline(case.options))
         if dense is None:
-            dense = interval_bytes(n_a, n_o, len(index)) <= DENSE_INTERVAL_BUDGET_BYTES
-        self.ops = _Merger(n_a, len(index), dense=dense,
-                           recompute=None if dense else _SiteRecompute(case, index, chunk_assets))
+            dense = interval_bytes(n_a, n_o, len(index)) <= budgets.dense_bytes
+        recompute = None
+        if not dense:
+            recompute = _SiteRecompute(case, index, chunk_assets)
+            recompute.books_budget, recompute.rows_budget = budgets.kept_books_bytes, budgets.kept_rows_bytes
+        self.ops = _Merger(n_a, len(index), dense=dense, recompute=recompute,
+                           today_in_memory_bytes=budgets.today_in_memory_bytes)
         self.arrays = {"saving": np.zeros((n_a, n_o, len(SAVING_COMPONENTS))), "reactive_saving": np.zeros((n_a, n_o)),
                        "equivalent_bank_q_kvar": np.full((n_a, n_o), np.nan),
                        "equivalent_bank_cost": np.full((n_a, n_o), np.nan),
@@ -286,7 +296,7 @@ class PhysicsMerger:
 @retaining_memory
 def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None] | None = None, *,
             chunk_assets: int | None = None, dense: bool | None = None, timer: dict | None = None,
-            threads: int | None = None) -> Physics:
+            threads: int | None = None, budgets: MemoryBudgets | None = None) -> Physics:
     """Run the machines on every option and price each asset-option on its site's bill.
 
     Parameters
@@ -307,6 +317,8 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
     threads : int, optional
         Sites worked at once in this process (default :data:`PHYSICS_THREADS`, at most the number of
         sites); the array work releases the interpreter lock, so two threads use two cores.
+    budgets : models.operation.MemoryBudgets, optional
+        What the run keeps in memory (default :func:`models.operation.default_budgets`).
 
     Notes
     -----
@@ -318,7 +330,7 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
     step = progress or (lambda _msg: None)
     step("machines")
     index = case_index(case)
-    merger = PhysicsMerger(case, index, capacitor_cost_per_kvar, chunk_assets, dense)
+    merger = PhysicsMerger(case, index, capacitor_cost_per_kvar, chunk_assets, dense, budgets)
     n_threads = max(1, min(int(threads or PHYSICS_THREADS), len(merger.partition)))
     gather = _LockedGather(merger.ops)
     t0 = time.perf_counter()
@@ -332,7 +344,7 @@ def physics(case, capacitor_cost_per_kvar: float, progress: Callable[[str], None
             per_thread.buffers = _BlockBuffers()
         _, part = site_physics(site_case(case, site_id), index, capacitor_cost_per_kvar, chunk_assets, site_timer,
                                not merger.ops.dense, into=(gather, np.asarray(merger.rows[site_id])),
-                               buffers=per_thread.buffers)
+                               buffers=per_thread.buffers, curve_elements=merger.budgets.curve_chunk_elements)
         stage_times.append(site_timer)
         return part
 
@@ -797,7 +809,8 @@ def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, s
 
 
 def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str], None] | None = None,
-        with_risk: bool = True, plan_settings: PlanSettings = PRECISE_PLAN) -> ScenarioResult:
+        with_risk: bool = True, plan_settings: PlanSettings = PRECISE_PLAN,
+        budgets: MemoryBudgets | None = None) -> ScenarioResult:
     """Run the whole analysis of a case.
 
     Parameters
@@ -812,12 +825,15 @@ def run(case, assumptions: finance.FinanceAssumptions, progress: Callable[[str],
         Include the tornado and Monte Carlo.
     plan_settings : PlanSettings
         How hard the exact fleet plan is solved (default :data:`PRECISE_PLAN`).
+    budgets : models.operation.MemoryBudgets, optional
+        What the run keeps in memory (default :func:`models.operation.default_budgets`; a smaller machine's
+        from :func:`models.estimate.budgets_within`).
 
     Returns
     -------
     ScenarioResult
     """
-    phys = physics(case, float(assumptions.capacitor_cost_per_kvar), progress)
+    phys = physics(case, float(assumptions.capacitor_cost_per_kvar), progress, budgets=budgets)
     return economics(case, phys, assumptions, progress, with_risk, plan_settings)
 
 

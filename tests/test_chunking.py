@@ -207,8 +207,14 @@ class TestEstimate:
         monkeypatch.setattr(estimate, "KEPT_BOOKS_BUDGET_BYTES", 0)
         none = estimate.estimate_run(fleet, threads=1)
         assert "compact table per motor" not in none.note
-        # without books the plan's rows are kept instead (at most today's power, one row per asset)
-        assert books - interval_bytes(n_a, 1, n_t) - 2 <= local.peak_bytes - none.peak_bytes <= books + 2
+        # without books the plan's rows are kept instead (at most today's power, one row per asset) and a block of
+        # every option is recomputed where the plan reads a site (the largest site's assets here, fewer than a
+        # block of CHUNK_ELEMENTS asset-steps holds: 59 on an hourly year), with its temporaries, in each of the
+        # plan's bills' threads (one here)
+        largest = int(fleet.assets["site_id"].value_counts().max())
+        block = interval_bytes(largest, 11, n_t) + estimate.BLOCK_TEMP_BYTES_PER_ELEMENT * largest * n_t
+        assert largest < 59 and len(options_with_baseline(fleet.options)) == 11
+        assert books - interval_bytes(n_a, 1, n_t) - block - 2 <= local.peak_bytes - none.peak_bytes <= books + 2
 
     def test_todays_power_beyond_its_budget_is_counted_at_the_budget(self, fleet, monkeypatch):
         # above the dense budget the peak holds today's power; beyond TODAY_IN_MEMORY_BUDGET_BYTES it goes
@@ -261,8 +267,110 @@ class TestEstimate:
         two = estimate.estimate_run(fleet, threads=1)
         assert two.peak_bytes - one.peak_bytes == per_element * block
 
+    def test_books_and_rows_not_kept_cost_their_measured_time(self, fleet, monkeypatch):
+        # above the dense budget, a site whose curve books are not kept is recomputed where the plan reads it:
+        # 5.5 s per 10,000 assets x 8,760 steps (measured: docs/performance.md, "2026-12-04, night"); rows not
+        # kept either are recomputed at each reading: 20.5 s per GiB of rows (measured: "2026-12-04: a run within
+        # a memory limit")
+        from models import estimate
+
+        monkeypatch.setattr(estimate, "DENSE_INTERVAL_BUDGET_BYTES", 0)
+        n_a, n_t = len(fleet.assets), len(case_index(fleet))
+        booked = estimate.estimate_run(fleet)
+        monkeypatch.setattr(estimate, "KEPT_BOOKS_BUDGET_BYTES", 0)
+        unbooked = estimate.estimate_run(fleet)
+        assert unbooked.seconds - booked.seconds == pytest.approx(5.5 * n_a * n_t / (10_000 * 8760), rel=1e-9)
+        monkeypatch.setattr(estimate, "KEPT_ROWS_BUDGET_BYTES", 0)
+        unkept = estimate.estimate_run(fleet)
+        # the rows not kept: today's power of every asset, 16 bytes per asset-step
+        assert unkept.seconds - unbooked.seconds == pytest.approx(20.5 * 16 * n_a * n_t / 2**30, rel=1e-9)
+
     def test_estimate_refuses_no_workers(self, fleet):
         from models.estimate import estimate_run
 
         with pytest.raises(ValueError, match="workers"):
             estimate_run(fleet, workers=0)
+
+
+class TestMemoryPlan:
+    """Budgets fitted to a memory limit (models.estimate.budgets_within, memory_plan)."""
+
+    def test_the_defaults_are_kept_when_they_fit(self, fleet):
+        from models.estimate import budgets_within, estimate_run
+
+        est = estimate_run(fleet)
+        plan = budgets_within(fleet, est.peak_bytes)
+        assert plan.fits and plan.given_up == () and plan.note == ""
+        assert plan.budgets == operation.default_budgets() and plan.estimate == est
+
+    def test_a_fleet_kept_in_full_first_gives_up_every_options_power(self, fleet):
+        # this small fleet's every-option power fits the dense budget: one byte less than its peak gives it up
+        # (its options are then read through their curve tables, the one step that changes numbers)
+        from models.estimate import budgets_within, estimate_run
+
+        limit = estimate_run(fleet).peak_bytes - 1
+        plan = budgets_within(fleet, limit)
+        assert plan.fits and plan.estimate.peak_bytes <= limit
+        assert plan.budgets.dense_bytes == 0 and plan.given_up[0] == "every option's per-interval power"
+        assert "curve tables" in plan.note
+
+    def test_books_are_given_up_before_the_plans_rows_and_only_as_far_as_needed(self):
+        # the benchmark's fleet (10,000 assets x 11 options x 8,760 steps on 20 sites, the largest of 600 assets),
+        # estimated at 5.8 GiB with the defaults: within 5 GiB its books go (their sites are recomputed where the
+        # plan reads them) and the plan's rows kept in their place are cut to what fits
+        from dataclasses import replace
+
+        from models import estimate
+
+        size = estimate._RunSize(n_a=10_000, n_o=11, n_t=8760, n_sites=20, largest=600)
+        limit = 5 * 2**30
+        plan = estimate._budgets_within(size, limit, 1, None, True, None)
+        b = plan.budgets
+        assert plan.fits and plan.estimate.peak_bytes <= limit
+        assert b.dense_bytes == operation.DENSE_INTERVAL_BUDGET_BYTES  # (this fleet is not kept in full anyway)
+        assert b.kept_books_bytes == 0 and 0 < b.kept_rows_bytes < operation.KEPT_ROWS_BUDGET_BYTES
+        assert b.curve_chunk_elements == operation.CURVE_CHUNK_ELEMENTS  # one site's physics does not set the peak
+        assert [g.split(" (")[0] for g in plan.given_up] == ["curve books", "plan rows kept"]
+        # the largest that fits: 1 MiB more of rows would not
+        more = replace(b, kept_rows_bytes=b.kept_rows_bytes + 2**20)
+        assert estimate._estimate(size, 1, None, True, None, more).peak_bytes > limit
+        assert "The numbers are the same" in plan.note
+        # with room for all but a little of the books, the rows are left alone
+        full = estimate._estimate(size, 1, None, True, None, operation.default_budgets()).peak_bytes
+        assert full > limit
+        assert estimate._budgets_within(size, full, 1, None, True, None).given_up == ()
+
+    def test_a_limit_below_the_least_run_keeps_the_least_and_says_so(self, fleet):
+        from models.estimate import MIN_CURVE_CHUNK_ELEMENTS, budgets_within
+
+        from dataclasses import replace
+
+        from models import estimate
+
+        plan = budgets_within(fleet, 1)
+        b = plan.budgets
+        assert not plan.fits and plan.estimate.peak_bytes > 1
+        assert b.dense_bytes == 0
+        # each budget is brought to its least, or left alone where giving it up would not lower the peak (on this
+        # small fleet one site's physics per thread sets it, and the books cost less than the block of every
+        # option recomputed without them)
+        size = estimate._RunSize.of(fleet)
+        for name, least in (("kept_books_bytes", 0), ("kept_rows_bytes", 0),
+                            ("curve_chunk_elements", MIN_CURVE_CHUNK_ELEMENTS)):
+            at_least = estimate._estimate(size, 1, None, True, None, replace(b, **{name: least}))
+            assert getattr(b, name) == least or at_least.peak_bytes >= plan.estimate.peak_bytes, name
+        assert "needs at least about" in plan.note
+        with pytest.raises(ValueError, match="limit"):
+            budgets_within(fleet, 0)
+
+    def test_the_machines_free_memory_sets_the_limit_only_when_the_run_would_not_fit(self, fleet):
+        from models.estimate import AVAILABLE_SHARE, estimate_run, memory_plan
+
+        peak = estimate_run(fleet).peak_bytes
+        roomy = memory_plan(fleet, available=10 * peak)
+        assert roomy.limit_bytes is None and roomy.given_up == () and roomy.note == ""
+        tight = memory_plan(fleet, available=peak)  # 80 % of it is below the peak (AVAILABLE_SHARE, common practice)
+        assert tight.limit_bytes == int(AVAILABLE_SHARE * peak) and tight.given_up
+        assert "this machine has free" in tight.note
+        asked = memory_plan(fleet, max_bytes=peak - 1, available=10 * peak)
+        assert asked.limit_bytes == peak - 1 and "(as asked)" in asked.note

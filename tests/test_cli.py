@@ -193,6 +193,24 @@ def test_run_says_in_one_line_that_a_worker_kept_dying(tmp_path, capsys, monkeyp
     assert "drivecase run: the task of site S1 (1 motor) was lost" in err and "Traceback" not in err
 
 
+def test_run_says_each_site_sent_again_after_its_worker_was_lost(tmp_path, capsys, monkeypatch):
+    pytest.importorskip("distributed")
+    from models import distributed as engine
+    from test_scenario import _one_asset_case
+
+    real = engine.run_distributed
+
+    def one_lost(*args, notice=None, **kwargs):
+        notice("site S1: its worker was lost; the site is sent again (attempt 2 of 3)")
+        return real(*args, notice=notice, **kwargs)
+
+    _one_asset_case(tmp_path / "case")
+    monkeypatch.setattr(engine, "run_distributed", one_lost)
+    assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "o"), "--no-risk", "--engine", "dask"]) == 0
+    err = capsys.readouterr().err
+    assert "drivecase run: site S1: its worker was lost; the site is sent again (attempt 2 of 3)\n" in err
+
+
 def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
     demo = shutil.copytree(DEMO, tmp_path / "demo")
     toml = demo / "case.toml"
@@ -439,6 +457,51 @@ def test_estimate_alone_prints_the_estimate_and_writes_nothing(tmp_path, capsys,
     printed = capsys.readouterr().out
     assert printed.startswith("Estimate: 82 assets x 11 options x 8,760 steps on 2 site(s): about ")
     assert "GiB peak" in printed and not out.exists()
+
+
+def test_max_memory_fits_the_run_and_says_what_it_keeps_less_of(tmp_path, capsys):
+    # the demo, kept in full, is estimated at about 0.7 GiB; within 0.6 GiB its options are read through their
+    # curve tables instead
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--estimate", "--max-memory", "0.6"]) == 0
+    out = capsys.readouterr().out
+    assert "Memory: within 0.60 GiB (as asked)" in out and "every option's per-interval power" in out
+    assert "curve tables" in out and not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("command", ["run", "report"])
+def test_max_memory_below_the_least_run_stops_with_a_message(tmp_path, capsys, command):
+    assert main([command, str(DEMO), "--out", str(tmp_path / "o"), "--max-memory", "0.01"]) == 1
+    err = capsys.readouterr().err
+    assert f"drivecase {command}: the run cannot keep within 0.01 GiB" in err and "give a larger --max-memory" in err
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("text", ["0", "-2", "abc", "inf", "nan"])
+def test_max_memory_must_be_a_memory_size(tmp_path, capsys, text):
+    with pytest.raises(SystemExit) as info:
+        main(["run", str(DEMO), "--out", str(tmp_path / "o"), f"--max-memory={text}"])
+    assert info.value.code == 2
+    assert "is not a memory size: give a number of GiB above 0" in capsys.readouterr().err
+
+
+def test_a_run_fits_itself_to_the_machines_free_memory(tmp_path, capsys, monkeypatch):
+    # 0.5 GiB free: 80 % of it (0.4 GiB) is below the demo's 0.7 GiB kept in full, so the run keeps less and says so
+    from models import estimate, scenario
+
+    monkeypatch.setattr(estimate, "available_bytes", lambda: 2**29)
+    given = []
+    real = scenario.run
+
+    def spy(*args, budgets=None, **kwargs):
+        given.append(budgets)
+        return real(*args, budgets=budgets, **kwargs)
+
+    monkeypatch.setattr(scenario, "run", spy)
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
+    err = capsys.readouterr().err
+    assert "Memory: within 0.40 GiB (80% of the 0.50 GiB this machine has free)" in err
+    assert len(given) == 1 and given[0] is not None and given[0].dense_bytes == 0
+    assert (tmp_path / "o" / "results.csv").exists()
 
 
 def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, capsys):

@@ -922,6 +922,53 @@ class TestCompactStore:
             assert isinstance(dense.operation.p_kw, np.ndarray)
 
 
+@pytest.fixture(scope="module")
+def least(case, index):
+    """The physics with the least budgets (nothing kept, today's power in a file, curve blocks of 3 assets'
+    steps), and the sizes of the blocks it ran."""
+    budgets = operation.MemoryBudgets(dense_bytes=0, today_in_memory_bytes=0, kept_rows_bytes=0,
+                                      kept_books_bytes=0, curve_chunk_elements=3 * len(index))
+    seen = []
+    real = scenario.site_blocks
+
+    def spy(*args, **kwargs):
+        for rows, block, totals in real(*args, **kwargs):
+            seen.append(len(rows))
+            yield rows, block, totals
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(scenario, "site_blocks", spy)
+        phys = scenario.physics(case, 35.0, budgets=budgets)
+    return phys, seen
+
+
+class TestMemoryBudgetsOfARun:
+    """A run's budgets given as an argument (models.operation.MemoryBudgets) govern what it keeps: the numbers
+    are the compact store's own (the same bits), whatever it keeps."""
+
+    def test_the_run_keeps_what_its_budgets_allow(self, least):
+        phys, seen = least
+        op = phys.operation
+        assert isinstance(op.p_kw, operation.SiteIntervalStore)  # a dense budget of 0: today's motors only
+        assert isinstance(op.p_kw._today, np.memmap)  # today's power above its budget of 0: a mapped file
+        recompute = op.p_kw._recompute
+        assert recompute.books_bytes == 0 and recompute.books_budget == 0 and recompute.rows_budget == 0
+        assert max(seen) == 3  # curve blocks of 3 assets' worth of steps
+        with operation.kept_rows(op):  # the run's own budget of rows: none kept
+            assert recompute._kept_budget == 0
+
+    def test_the_numbers_are_those_of_the_default_budgets(self, case, least, compact):
+        phys, _ = least
+        a, b = phys.operation, compact.operation
+        for name in ("energy_kwh", "losses_kwh", "lagging_kvarh", "mean_speed_rpm"):
+            assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
+        assert_array_equal(phys.savings.saving, compact.savings.saving)
+        choice = _plan_choice(b)
+        _, bills_least = meter_and_bills(case, a, choice, threads=2)
+        _, bills_default = meter_and_bills(case, b, choice)
+        pd.testing.assert_frame_equal(bills_least, bills_default, check_exact=True)
+
+
 # --------------------------------------------------------------------------------------------------
 # 4. Stepped-bank controller evaluated in place
 # --------------------------------------------------------------------------------------------------
