@@ -1726,6 +1726,51 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
                        "the demand peak, the bill and the demand savings")
 
 
+#: A contracted capacity above this multiple of the most a site's motors and base load can draw is warned [-]
+#: (a rule of our own on a generous bound, so that only a unit slip or a site missing most of its loads is
+#: flagged).
+CONTRACT_WARN_FACTOR = 2.0
+#: The bound's least efficiency and power factor of a motor at its rated output [-] (generous: lower than any
+#: motor's at full load in the efficiency classes of IEC 60034-30-1, and than usual full-load power factors).
+_BOUND_EFFICIENCY_FRAC = 0.7
+_BOUND_POWER_FACTOR = 0.6
+
+
+def _check_contracts_against_sites(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict,
+                                   profiles: dict[str, pd.Series]) -> None:
+    """Warn where a demand charge's contracted capacity is more than :data:`CONTRACT_WARN_FACTOR` times the
+    most the site can draw: every motor at its rated output at 70 % efficiency (and a power factor of 0.6
+    for a kVA contract), plus the base load's largest value. The demand then stays below the contract,
+    which is billed whatever the demand, so no option lowers that charge: usually a unit slip, or a site
+    whose other loads are missing from its base load."""
+    s = sites.frame
+    if "rated_p_kw" not in assets or "site_id" not in assets:
+        return
+    rated = pd.to_numeric(assets["rated_p_kw"], errors="coerce").groupby(assets["site_id"].astype(str)).sum()
+    for i in range(len(s)):
+        tariff = tariffs.get(s["tariff_file"].iloc[i]) if isinstance(s["tariff_file"].iloc[i], str) else None
+        contracts = [d for d in getattr(tariff, "demand", ()) if d.contracted is not None]
+        if not contracts:
+            continue
+        site_id = str(s["site_id"].iloc[i])
+        base_kw = float(s["base_p_kw"].iloc[i]) if "base_p_kw" in s else 0.0
+        pid = s["base_profile_id"].iloc[i] if "base_profile_id" in s else None
+        profile = profiles.get(str(pid)) if isinstance(pid, str) else None
+        if profile is not None and len(profile):
+            base_kw = max(base_kw, float(np.nanmax(profile.to_numpy(dtype=float))))
+        most_kw = float(rated.get(site_id, 0.0)) / _BOUND_EFFICIENCY_FRAC + max(base_kw, 0.0)
+        for d in contracts:
+            most = most_kw if d.basis == "kW" else most_kw / _BOUND_POWER_FACTOR
+            if d.contracted > CONTRACT_WARN_FACTOR * most:
+                sites.warn(i, "tariff_file", s["tariff_file"].iloc[i],
+                           f"the demand charge '{d.name}' books a contract of {d.contracted:,.0f} {d.basis}, more than "
+                           f"{CONTRACT_WARN_FACTOR:g} times the most the site's motors and base load can draw (about "
+                           f"{most:,.0f} {d.basis}): the demand stays below the contract, which is billed whatever the "
+                           "demand, so no option lowers this charge",
+                           "check the contract's unit, and that the site's other loads are in its base load "
+                           "(base_p_kw or base_profile_id)")
+
+
 def _check_holidays_in_year(tariffs: dict, profiles: dict, settings: CaseSettings, assets: pd.DataFrame,
                             sites: pd.DataFrame, raw: io.RawCase, problems: list[Problem]) -> None:
     """Warn of a tariff whose listed holidays all fall outside the analysis year (the year of the profiles the
@@ -2300,6 +2345,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         _check_peak_times_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,
                                   raw, problems)
         _check_in_service_month_read(tariffs, settings, checkers["sites"].frame, raw, problems)
+        _check_contracts_against_sites(checkers["sites"], checkers["assets"].frame, tariffs, profiles)
     if "assets" in checkers:
         _check_region_against_frequency(settings, raw.settings_source, checkers["assets"].frame, problems)
         _check_rules_ahead(settings, raw.settings_source, checkers["assets"].frame, problems)

@@ -1015,3 +1015,26 @@ def test_budget_years_past_the_horizon_are_warned(tmp_path):
     _, problems = load_case(folder)
     found = [p for p in problems if p.column == "budget_per_yr" and "study horizon is 2 years" in p.rule]
     assert found and found[0].severity == "warning" and "horizon_yr = 3 or more" in found[0].hint
+
+
+@pytest.mark.parametrize("contracted_kw, warned", [(20_000, True), (14_000, False)])
+def test_a_contract_far_above_what_the_site_can_draw_is_warned(tmp_path, contracted_kw, warned):
+    # the demo's quarry (KGQ): motors of 4,940.05 kW rated output in all (data/demo/assets.csv) and a base load of
+    # 180 kW (data/demo/sites.csv). Hand calculation of the bound: 4,940.05 / 0.7 + 180 = 7,237 kW; twice that is
+    # 14,474 kW, so a contract of 20,000 kW is warned and one of 14,000 kW is not
+    demo = shutil.copytree(Path(__file__).resolve().parents[1] / "data" / "demo", tmp_path / "demo")
+    text = (Path(__file__).resolve().parents[1] / "data" / "tariffs" / "example_contracted_capacity.toml").read_text(
+        encoding="utf-8")
+    assert "contracted_kw = 900\n" in text
+    (demo / "tariffs" / "contract.toml").write_text(text.replace("contracted_kw = 900\n",
+                                                                 f"contracted_kw = {contracted_kw}\n"), encoding="utf-8")
+    sites = pd.read_csv(demo / "sites.csv", dtype=str, keep_default_na=False)
+    sites.loc[sites["site_id"] == "KGQ", "tariff_file"] = "contract.toml"
+    sites.to_csv(demo / "sites.csv", index=False)
+    case, problems = load_case(demo)
+    assert case is not None, [str(p) for p in _errors(problems)]
+    found = [p for p in problems if p.severity == "warning" and "books a contract" in p.rule]
+    assert bool(found) == warned
+    if warned:
+        assert found[0].file == "sites.csv" and found[0].column == "tariff_file" and found[0].row == 3
+        assert "20,000 kW" in found[0].rule and "about 7,237 kW" in found[0].rule and "base load" in found[0].hint
