@@ -337,13 +337,20 @@ def cmd_bill(args: argparse.Namespace) -> int:
         case = site_case(case, args.site)  # (a site of base load alone is billed within the whole case)
     if not args.reactive_sweep:
         case = replace(case, options=options_with_baseline(case.options).iloc[:1].reset_index(drop=True))
-    op = operate(case, index=index)
+    # a bar over the sites whose motors are modelled (the bills that follow take a fraction of their time)
+    bar = _Progress(int(case.assets["site_id"].nunique()), "drivecase bill", "site", args.quiet,
+                    lines_of_stages=False)
     try:
-        setups = site_setups(case, op.index)
-    except ValueError as exc:
-        print(f"drivecase bill: {exc}", file=sys.stderr)
-        return 1
-    meters, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int), setups)
+        op = operate(case, index=index, on_site=lambda _site: bar.update(1))
+        try:
+            setups = site_setups(case, op.index)
+        except ValueError as exc:
+            _close_bars(bar)
+            print(f"drivecase bill: {exc}", file=sys.stderr)
+            return 1
+        meters, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int), setups)
+    finally:
+        _close_bars(bar)
     currency = case.settings.currency
     for site_id in sites:
         table = monthly_bill_table(bills, site_id)
@@ -814,6 +821,7 @@ def build_parser() -> argparse.ArgumentParser:
     p_bill.add_argument("--capacitor-cost", type=float, default=None, metavar="PER_KVAR",
                         help="installed capacitor bank cost for the comparison [currency/kVAr] (default: the case's "
                              "capacitor_cost_per_kvar in finance.toml)")
+    p_bill.add_argument("--quiet", action="store_true", help="no progress bar")
     p_bill.set_defaults(func=cmd_bill)
     p_run = sub.add_parser("run", help="run the whole analysis and write the result files")
     p_run.add_argument("case", help="case folder or .xlsx workbook")

@@ -17,7 +17,7 @@ import functools
 import os
 import tempfile
 import threading
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 
 import numba
@@ -2138,7 +2138,7 @@ def kept_rows(op: OperatingResult, budget_bytes: int | None = None):
 
 
 def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | None = None,
-            dense: bool | None = None) -> OperatingResult:
+            dense: bool | None = None, on_site: Callable[[str], None] | None = None) -> OperatingResult:
     """Run every applicable option of the case's catalogue on every asset.
 
     Parameters
@@ -2153,6 +2153,8 @@ def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | Non
         Keep every option's per-interval power in memory (True) or only today's, recomputing the others
         site by site when indexed (False, :class:`SiteIntervalStore`); default True while p_kw and q_kvar
         fit in :data:`DENSE_INTERVAL_BUDGET_BYTES`.
+    on_site : callable, optional
+        Called with each site's id once its machines are done (a progress bar's count).
 
     Returns
     -------
@@ -2176,6 +2178,8 @@ def operate(case, index: pd.DatetimeIndex | None = None, chunk_assets: int | Non
                      recompute=None if dense else _SiteRecompute(case, index, chunk_assets))
     for site_id, rows in partition:
         merger.add(rows, operate_site(site_case(case, site_id), index, chunk_assets))
+        if on_site is not None:
+            on_site(site_id)
     return merger.result()
 
 

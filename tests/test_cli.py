@@ -412,6 +412,17 @@ def test_bill_models_today_s_motors_of_the_site_asked_for_and_prints_the_full_an
     assert kgq in whole
 
 
+def test_bill_shows_its_sites_progress_on_the_error_stream_unless_quiet(capsys):
+    # the demo's two sites, modelled one after the other: one line each when the error stream is not a terminal
+    assert main(["bill", str(DEMO)]) == 0
+    captured = capsys.readouterr()
+    lines = [line for line in captured.err.splitlines() if line.startswith("drivecase bill:")]
+    assert [line.split(" (")[0] for line in lines] == ["drivecase bill: 1/2 sites", "drivecase bill: 2/2 sites"]
+    assert "drivecase bill" not in captured.out and "Site HRW" in captured.out
+    assert main(["bill", str(DEMO), "--quiet"]) == 0
+    assert "drivecase bill:" not in capsys.readouterr().err
+
+
 def test_progress_on_a_terminal_is_a_bar_that_keeps_its_clock_running(monkeypatch):
     import io
     import time
