@@ -14,6 +14,7 @@ import os
 import socket
 import sys
 import threading
+import time
 import webbrowser
 from pathlib import Path
 
@@ -98,6 +99,34 @@ def _print_problems(problems) -> None:
         print(f"  {p}")
 
 
+#: A case whose analysis is estimated above this many seconds is announced when the dashboard starts, and its
+#: end said (the pages wait for it).
+WARM_NOTICE_S = 20.0
+
+
+def warm_case(engine, entry, notice_s: float = WARM_NOTICE_S) -> None:
+    """Run the case's analysis ahead of its first page: the physics, then the case's own result (assumptions as
+    given, plan proven, risk included: what the first page asks for). A case estimated above ``notice_s``
+    seconds is announced on the output with its estimate, and its end said; a failure is said on the error
+    stream (and shown again on the first page that needs it)."""
+    from models.estimate import estimate_run
+
+    t0 = time.monotonic()
+    estimate = estimate_run(entry.case)
+    said = estimate.seconds > notice_s
+    if said:
+        print(f"Analysing the case in the background ({estimate.note}); its pages fill in when it is done.",
+              flush=True)
+    try:
+        engine.physics(entry.key)
+        engine.result(entry.key, entry.case.finance, with_risk=True, precise=True)
+    except Exception as exc:
+        print(f"drivecase serve: the analysis of the case failed: {exc}", file=sys.stderr)
+        return
+    if said:
+        print(f"Analysis done in {time.monotonic() - t0:.0f} s.", flush=True)
+
+
 def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: int = 8050, debug: bool = False,
           open_browser: bool = True) -> int:
     """Serve the dashboard on a case until interrupted.
@@ -151,20 +180,12 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
         print("WARNING: debug mode is on: the web framework's debugger can run code sent from the browser. "
               "Use it only while developing, on 127.0.0.1.")
 
-    def warm() -> None:
-        try:
-            engine.physics(entry.key)
-            # the case's own assumptions, plan proven and risk included: what the first page asks for
-            engine.result(entry.key, entry.case.finance, with_risk=True, precise=True)
-        except Exception as exc:  # shown again on the first page that needs it
-            print(f"drivecase serve: the analysis of the case failed: {exc}", file=sys.stderr)
-
     url = url_for(host, port)
     print(f"Dashboard on {url} (case '{entry.name}'; press Ctrl+C to stop)")
     print("Planning estimates only, not a design. Electrical work must be done by qualified persons under local "
           "codes and the utility's rules; confirm ratings with the manufacturers.")
     sys.stdout.flush()  # the address and the cautions now, also when the output goes to a file or a pipe
-    threading.Thread(target=warm, name="drivecase-physics", daemon=True).start()
+    threading.Thread(target=warm_case, args=(engine, entry), name="drivecase-physics", daemon=True).start()
     from dashboard.app import app
     if open_browser and can_open_browser():
         _open_browser_later(url if host.strip() not in ("0.0.0.0", "::") else url_for("127.0.0.1", port))

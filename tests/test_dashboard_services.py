@@ -695,6 +695,46 @@ class TestServer:
         assert server.port_in_use("127.0.0.1", port) is None  # free again once its holder closed it
 
 
+@pytest.fixture(scope="module")
+def demo_entry():
+    """The demo case as the engine holds it: its key and case."""
+    from models.case import load_case
+
+    case, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
+    return types.SimpleNamespace(key="demo", case=case)
+
+
+class TestWarmCase:
+    """The analysis run ahead of the first page (dashboard.server.warm_case)."""
+
+    def test_a_large_case_is_announced_with_its_estimate_and_its_end_said(self, demo_entry, capsys):
+        demo = demo_entry
+        asked = []
+        fake = types.SimpleNamespace(physics=lambda key: asked.append(("physics", key)),
+                                     result=lambda key, finance, **kw: asked.append(("result", key, kw)))
+        server.warm_case(fake, demo, notice_s=0.0)  # every case counts as large
+        out = capsys.readouterr().out.splitlines()
+        assert out[0].startswith("Analysing the case in the background (82 assets x 11 options x 8,760 steps")
+        assert out[0].endswith("its pages fill in when it is done.")
+        assert re.fullmatch(r"Analysis done in \d+ s\.", out[1])
+        # the physics, then the case's own result as the first page asks for it
+        assert asked == [("physics", "demo"), ("result", "demo", {"with_risk": True, "precise": True})]
+
+    def test_a_small_case_says_nothing_and_a_failure_is_said_once(self, demo_entry, capsys):
+        demo = demo_entry
+        fake = types.SimpleNamespace(physics=lambda key: None, result=lambda *a, **k: None)
+        server.warm_case(fake, demo)  # the demo is estimated at a few seconds, below WARM_NOTICE_S
+        assert capsys.readouterr().out == ""
+
+        def broken(key):
+            raise ValueError("no tariff")
+
+        server.warm_case(types.SimpleNamespace(physics=broken, result=None), demo, notice_s=0.0)
+        captured = capsys.readouterr()
+        assert "drivecase serve: the analysis of the case failed: no tariff" in captured.err
+        assert "Analysis done" not in captured.out
+
+
 def test_pack_download_holds_the_workbook_report_and_records(engine):
     """The plan page's download: one zip with the workbook, the report and a decision record per project."""
     import zipfile
