@@ -254,9 +254,11 @@ def _memory_plan(command: str, case, args, workers: int = 1, workers_here: bool 
     asked = None if args.max_memory is None else int(float(args.max_memory) * 2**30)
     memory = memory_plan(case, asked, workers=workers, workers_here=workers_here, dask=dask)
     if asked is not None and not memory.fits:
+        least = memory.least_limit_bytes / 2**30
         print(f"{command}: the run cannot keep within {args.max_memory:g} GiB: the least it can keep is estimated at "
               f"{memory.estimate.peak_bytes / 2**30:.2f} GiB (the interpreter, one site's machines per thread and the "
-              "per-asset results); give a larger --max-memory, or split the case by site", file=sys.stderr)
+              f"per-asset results), {least:.2f} GiB with the estimate's margin; give --max-memory {least:.2f} or more, "
+              "or split the case by site", file=sys.stderr)
         return None
     return memory
 

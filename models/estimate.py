@@ -10,6 +10,7 @@ budgets (a longer plan search) move it.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 
 from models.operation import (CHUNK_ELEMENTS, CURVE_CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES,
@@ -272,9 +273,10 @@ def _duration(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
-#: Smallest block of curve tables a run is given to fit its memory [asset-steps] (119 assets on an hourly
-#: year): smaller blocks hold less at once but run the models on smaller batches.
-MIN_CURVE_CHUNK_ELEMENTS = 2**20
+#: Margin a memory limit keeps above the estimated peak [-]: the resident peak of fleets of 1,000-10,000 assets
+#: was measured from 7 % below to 8 % above the estimate (docs/performance.md, "2026-12-04: a run within a
+#: memory limit"), so budgets are fitted to the limit divided by this.
+ESTIMATE_MARGIN = 1.15
 #: Share of the memory the machine has available that a run plans to use when not told otherwise [-]
 #: (the rest left to the system and the programs open beside it; common practice, not measured).
 AVAILABLE_SHARE = 0.8
@@ -292,7 +294,8 @@ class MemoryPlan:
     limit_bytes : int or None
         The peak the budgets were fitted to [bytes] (None: the defaults, unlimited).
     fits : bool
-        The estimated peak is within ``limit_bytes`` (always True without a limit).
+        The estimated peak, with :data:`ESTIMATE_MARGIN`, is within ``limit_bytes`` (always True without a
+        limit).
     given_up : tuple of str
         What the run keeps less of than with the defaults, in words (empty: nothing).
     why : str
@@ -307,13 +310,18 @@ class MemoryPlan:
     why: str = ""
 
     @property
+    def least_limit_bytes(self) -> int:
+        """The least limit these budgets fit [bytes]: the estimated peak with :data:`ESTIMATE_MARGIN`."""
+        return int(math.ceil(self.estimate.peak_bytes * ESTIMATE_MARGIN))
+
+    @property
     def note(self) -> str:
         """One line for the user when the run keeps less than the defaults or may not fit ("" otherwise)."""
         if self.limit_bytes is None or (self.fits and not self.given_up):
             return ""
         head = f"Memory: within {_gib(self.limit_bytes)}" + (f" ({self.why})" if self.why else "")
         if not self.fits:
-            return (f"{head}, the run needs at least about {_gib(self.estimate.peak_bytes)} (the interpreter, one "
+            return (f"{head}, the run needs at least about {_gib(self.least_limit_bytes)} (the interpreter, one "
                     "site's machines per thread and the per-asset results); it keeps the least it can, and the system "
                     "may slow down or stop it.")
         exact = any(g.startswith("every option") for g in self.given_up)
@@ -324,7 +332,7 @@ class MemoryPlan:
 
 def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None = None, workers_here: bool = True,
                    dask: bool | None = None) -> MemoryPlan:
-    """The largest budgets whose estimated peak stays within ``limit_bytes``.
+    """The largest budgets whose estimated peak, with :data:`ESTIMATE_MARGIN`, stays within ``limit_bytes``.
 
     Parameters
     ----------
@@ -345,10 +353,11 @@ def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None
     The defaults are kept when they fit. Else the run gives up, in this order and each only as far as
     needed: every option's per-interval power (read through curve tables instead: within 1e-5 of each
     asset's rated input, the one step that changes numbers); the sites' curve books (their rows are
-    recomputed where the plan reads them: slower, the same numbers); the size of the blocks of curve tables
-    (down to :data:`MIN_CURVE_CHUNK_ELEMENTS`); and, dearest in time, the plan's rows kept while it is
-    checked. Today's per-interval power, the interpreter, one site's physics per thread and the economics'
-    tables are not budgets: they set the least a run needs (today's power goes to a mapped file only above
+    recomputed where the plan reads them: slower, the same numbers); and, dearest in time, the plan's rows
+    kept while it is checked. Today's per-interval power, the interpreter, one site's physics per thread (its
+    curve-table blocks: smaller ones lowered the estimate but not the measured peak, which the economics
+    sets once the run keeps its freed memory for reuse) and the economics' tables are not budgets: they set
+    the least a run needs (today's power goes to a mapped file only above
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, and its pages count in the resident memory while
     they are read). Each budget is found by bisection on the estimate, whose peak grows with every budget.
     """
@@ -360,36 +369,32 @@ def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None
 def _budgets_within(size: _RunSize, limit_bytes: int, workers: int, threads: int | None, workers_here: bool,
                     dask: bool | None) -> MemoryPlan:
     """:func:`budgets_within` for a run of ``size``."""
+    target = int(limit_bytes / ESTIMATE_MARGIN)  # (the estimate's own error kept in hand)
 
     def peak(b: MemoryBudgets) -> int:
         return _estimate(size, workers, threads, workers_here, dask, b).peak_bytes
 
     start = b = _module_budgets()
     given_up: list[str] = []
-    if peak(b) > limit_bytes and interval_bytes(size.n_a, size.n_o, size.n_t) <= b.dense_bytes:
+    if peak(b) > target and interval_bytes(size.n_a, size.n_o, size.n_t) <= b.dense_bytes:
         b = replace(b, dense_bytes=0)
         given_up.append("every option's per-interval power")
-    for name, least, words in (("kept_books_bytes", 0, "curve books"),
-                               ("curve_chunk_elements", MIN_CURVE_CHUNK_ELEMENTS, "curve-table blocks"),
-                               ("kept_rows_bytes", 0, "plan rows kept")):
-        if peak(b) <= limit_bytes:
+    for name, least, words in (("kept_books_bytes", 0, "curve books"), ("kept_rows_bytes", 0, "plan rows kept")):
+        if peak(b) <= target:
             break
         before = getattr(b, name)
         at_least = peak(replace(b, **{name: least}))
         if before <= least or at_least >= peak(b):  # (a budget that does not set the peak is left alone)
             continue
         low, high = least, before  # peak(low) may still exceed the limit; high does
-        if at_least <= limit_bytes:
+        if at_least <= target:
             while high - low > 1:
                 mid = (low + high) // 2
-                low, high = (mid, high) if peak(replace(b, **{name: mid})) <= limit_bytes else (low, mid)
-        if name == "curve_chunk_elements":  # blocks in powers of two
-            low = max(least, 1 << max(int(low).bit_length() - 1, 0))
+                low, high = (mid, high) if peak(replace(b, **{name: mid})) <= target else (low, mid)
         b = replace(b, **{name: int(low)})
-        given_up.append(f"{words} ({_gib(before)} -> {_gib(low)})" if name != "curve_chunk_elements"
-                        else f"{words} ({before // max(size.n_t, 1):,} -> {int(low) // max(size.n_t, 1):,} assets)")
+        given_up.append(f"{words} ({_gib(before)} -> {_gib(low)})")
     est = _estimate(size, workers, threads, workers_here, dask, b)
-    return MemoryPlan(b, est, int(limit_bytes), est.peak_bytes <= limit_bytes, tuple(given_up) if b != start else ())
+    return MemoryPlan(b, est, int(limit_bytes), est.peak_bytes <= target, tuple(given_up) if b != start else ())
 
 
 def available_bytes() -> int:
@@ -431,5 +436,5 @@ def memory_plan(case, max_bytes: int | None = None, available: int | None = None
 
 
 def _gib(n_bytes: float) -> str:
-    gib = n_bytes / 2**30
-    return f"{gib:.2f} GiB" if gib < 1 else f"{gib:.1f} GiB"
+    """A size in GiB to two decimals at most (0.6, 1.45, 12 GiB)."""
+    return f"{round(n_bytes / 2**30, 2):g} GiB"

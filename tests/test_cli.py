@@ -475,7 +475,7 @@ def test_max_memory_fits_the_run_and_says_what_it_keeps_less_of(tmp_path, capsys
     # curve tables instead
     assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--estimate", "--max-memory", "0.6"]) == 0
     out = capsys.readouterr().out
-    assert "Memory: within 0.60 GiB (as asked)" in out and "every option's per-interval power" in out
+    assert "Memory: within 0.6 GiB (as asked)" in out and "every option's per-interval power" in out
     assert "curve tables" in out and not (tmp_path / "o").exists()
 
 
@@ -483,7 +483,9 @@ def test_max_memory_fits_the_run_and_says_what_it_keeps_less_of(tmp_path, capsys
 def test_max_memory_below_the_least_run_stops_with_a_message(tmp_path, capsys, command):
     assert main([command, str(DEMO), "--out", str(tmp_path / "o"), "--max-memory", "0.01"]) == 1
     err = capsys.readouterr().err
-    assert f"drivecase {command}: the run cannot keep within 0.01 GiB" in err and "give a larger --max-memory" in err
+    assert f"drivecase {command}: the run cannot keep within 0.01 GiB" in err and "with the estimate's margin" in err
+    least = float(err.split("give --max-memory ")[1].split(" ")[0])
+    assert 0.01 < least < 1.0
     assert not (tmp_path / "o").exists()
 
 
@@ -510,7 +512,7 @@ def test_a_run_fits_itself_to_the_machines_free_memory(tmp_path, capsys, monkeyp
     monkeypatch.setattr(scenario, "run", spy)
     assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--no-risk", "--quiet"]) == 0
     err = capsys.readouterr().err
-    assert "Memory: within 0.40 GiB (80% of the 0.50 GiB this machine has free)" in err
+    assert "Memory: within 0.4 GiB (80% of the 0.5 GiB this machine has free)" in err
     assert len(given) == 1 and given[0] is not None and given[0].dense_bytes == 0
     assert (tmp_path / "o" / "results.csv").exists()
 
