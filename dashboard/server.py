@@ -105,19 +105,33 @@ WARM_NOTICE_S = 20.0
 
 
 def warm_case(engine, entry, notice_s: float = WARM_NOTICE_S) -> None:
-    """Run the case's analysis ahead of its first page: the physics, then the case's own result (assumptions as
-    given, plan proven, risk included: what the first page asks for). A case estimated above ``notice_s``
-    seconds is announced on the output with its estimate, and its end said; a failure is said on the error
-    stream (and shown again on the first page that needs it)."""
+    """Run the case's analysis ahead of its first page.
+
+    Parameters
+    ----------
+    engine : dashboard.services.Engine
+        The server's engine: its physics, then the case's own result (assumptions as given, plan proven,
+        risk included: what the first page asks for).
+    entry : dashboard.services.CaseEntry
+        The case served (its ``key`` and ``case``).
+    notice_s : float
+        A case estimated above this many seconds is announced on the output with its estimate, and its end
+        said [s].
+
+    Notes
+    -----
+    A failure is said on the error stream (and shown again on the first page that needs it).
+    """
     from models.estimate import estimate_run
 
     t0 = time.monotonic()
-    estimate = estimate_run(entry.case)
-    said = estimate.seconds > notice_s
-    if said:
-        print(f"Analysing the case in the background ({estimate.note}); its pages fill in when it is done.",
-              flush=True)
+    said = False
     try:
+        estimate = estimate_run(entry.case)
+        said = estimate.seconds > notice_s
+        if said:
+            print(f"Analysing the case in the background ({estimate.note.rstrip('.')}); its pages fill in when it "
+                  "is done.", flush=True)
         engine.physics(entry.key)
         engine.result(entry.key, entry.case.finance, with_risk=True, precise=True)
     except Exception as exc:

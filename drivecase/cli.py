@@ -249,16 +249,19 @@ def _said_estimate(memory, alone: bool, then: str | None = None) -> bool:
 def _memory_plan(command: str, case, args, workers: int = 1, workers_here: bool = True, dask: bool = False):
     """The run's memory plan (:func:`models.estimate.memory_plan`, ``--max-memory`` given in GiB), or None
     after saying why the run cannot keep within the memory asked for."""
+    import math
+
     from models.estimate import memory_plan
 
-    asked = None if args.max_memory is None else int(float(args.max_memory) * 2**30)
+    asked = None if args.max_memory is None else max(1, int(args.max_memory * 2**30))
     memory = memory_plan(case, asked, workers=workers, workers_here=workers_here, dask=dask)
     if asked is not None and not memory.fits:
-        least = memory.least_limit_bytes / 2**30
+        least = math.ceil(memory.least_limit_bytes / 2**30 * 100) / 100  # (rounded up: the value given is accepted)
+        held = ("the interpreter, the Dask workers on this machine and the per-asset results" if dask and workers_here
+                else "the interpreter, one site's machines per thread and the per-asset results")
         print(f"{command}: the run cannot keep within {args.max_memory:g} GiB: the least it can keep is estimated at "
-              f"{memory.estimate.peak_bytes / 2**30:.2f} GiB (the interpreter, one site's machines per thread and the "
-              f"per-asset results), {least:.2f} GiB with the estimate's margin; give --max-memory {least:.2f} or more, "
-              "or split the case by site", file=sys.stderr)
+              f"{memory.estimate.peak_bytes / 2**30:.2f} GiB ({held}), {least:.2f} GiB with the estimate's margin; give "
+              f"--max-memory {least:.2f} or more, or run a smaller case (fewer sites or assets)", file=sys.stderr)
         return None
     return memory
 
@@ -874,7 +877,8 @@ def _add_run_options(parser: argparse.ArgumentParser, gap_frac: float, time_s: f
     parser.add_argument("--estimate", action="store_true",
                         help="print the estimate of time and memory of the run and stop (nothing is written)")
     parser.add_argument("--max-memory", type=_positive_gib, metavar="GIB",
-                        help="keep the run's peak memory within this many GiB: it keeps less and recomputes more "
+                        help="keep the run's estimated peak memory on this machine, with a margin for the estimate's "
+                             "error, within this many GiB: it keeps less and recomputes more, with the same numbers "
                              "(default: fitted to most of the memory the machine has free, when the run would need "
                              "more)")
     parser.add_argument("--plan-gap", type=float, default=100.0 * gap_frac, metavar="PCT",

@@ -1727,7 +1727,7 @@ def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: d
 
 
 #: A contracted capacity above this multiple of the most a site's motors and base load can draw is warned [-]
-#: (a rule of our own on a generous bound, so that only a unit slip or a site missing most of its loads is
+#: (a rule of thumb on a generous bound, so that only a unit slip or a site missing most of its loads is
 #: flagged).
 CONTRACT_WARN_FACTOR = 2.0
 #: The bound's least efficiency and power factor of a motor at its rated output [-] (generous: lower than any

@@ -99,7 +99,7 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
     ``books_wanted(site_id, n_assets)`` says, as a site is sent, whether its curve books are to come back
     with it (else its books are None); ``curve_elements`` is the block size of its curve tables
     (:attr:`models.operation.MemoryBudgets.curve_chunk_elements`, default the workers' own); ``notice`` is
-    told, in words, of each site sent again after its worker was lost.
+    told, in words, of each site sent again after its result was lost.
 
     Each site's sub-case goes straight from the caller to the worker that will run it
     (``Client.scatter(direct=True)``), not through the scheduler inside the task: a site's profiles are
@@ -169,8 +169,8 @@ def _site_results(client, case, partition, index, cost: float, chunk_assets, tod
             if attempts[site_id] >= SITE_ATTEMPTS:
                 raise _site_lost(case, site_id, counted(SITE_ATTEMPTS, "time")) from None
             if notice is not None:
-                notice(f"site {site_id}: its worker was lost; the site is sent again (attempt "
-                       f"{attempts[site_id] + 1} of {SITE_ATTEMPTS})")
+                notice(f"site {site_id}: its result was lost (its worker left or failed); the site is sent again "
+                       f"(attempt {attempts[site_id] + 1} of {SITE_ATTEMPTS})")
             waiting.appendleft((k, site_id))
         else:
             done += 1
@@ -368,7 +368,7 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
     plan_settings, timer
         As in :func:`models.scenario.economics`.
     notice : callable, optional
-        Called with one line in words for each site sent again after its worker was lost.
+        Called with one line in words for each site sent again after its result was lost with its worker.
 
     Returns
     -------

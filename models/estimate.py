@@ -13,10 +13,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
-from models.operation import (CHUNK_ELEMENTS, CURVE_CHUNK_ELEMENTS, DENSE_INTERVAL_BUDGET_BYTES,
-                              KEPT_BOOKS_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES, PHYSICS_THREADS,
-                              TODAY_IN_MEMORY_BUDGET_BYTES, MemoryBudgets, case_index, interval_bytes,
-                              options_with_baseline, site_partition)
+from models.operation import (CHUNK_ELEMENTS, PHYSICS_THREADS, MemoryBudgets, case_index, default_budgets,
+                              interval_bytes, options_with_baseline, site_partition)
 
 #: Machines stage per asset-option-step [s], one thread: 12.0 s of wall time for 10,000 assets x 11
 #: options x 8,760 steps with two site threads (bench_fleet, local engine, late on 2026-12-02, 50.3 s end to
@@ -78,12 +76,17 @@ BOOK_BYTES_PER_ASSET_STEP = 2.06 * 2**30 / (10_000 * 8760)
 #: of those sites [s]: 5.5 s more in the plan and its bills for the 10,000-asset fleet run with no books kept
 #: (benchmarks/bench_fleet.py, docs/performance.md "2026-12-04, night": plan +4.5 s, bills +1.0 s).
 UNBOOKED_S_PER_ASSET_STEP = 5.5 / (10_000 * 8760)
-#: Time a run spends recomputing again the plan's rows it does not keep, per asset-step not kept [s]: the
-#: 10,000-asset fleet with no curve books and no rows kept took 43.6 s in the plan and 3.3 s in its bills,
-#: against 24.6 and 1.8 s with no books and 1 GiB of rows kept (benchmarks/bench_fleet.py --max-memory 3,
-#: docs/performance.md "2026-12-04: a run within a memory limit"): 20.5 s for the 1 GiB of rows (kW and
-#: kVAr, 16 bytes per asset-step) no longer kept.
-UNKEPT_S_PER_ASSET_STEP = (43.6 + 3.3 - 24.6 - 1.8) / (2**30 / 16)
+#: Share of today's per-interval rows the plan's check and bills read, the rows kept for them [-]: the exact
+#: plan of the 10,000-asset benchmark fleet chose about 6,000 of its 10,000 assets (docs/scale.md, memory
+#: model: 0.8 GiB of rows), so a budget of 1 GiB keeps every row read.
+PLAN_ROWS_SHARE = 0.6
+#: Time a run spends recomputing again, at each reading, the plan's rows it does not keep [s per GiB of kW and
+#: kVAr rows not kept]: the 10,000-asset fleet with no curve books and no rows kept took 43.6 s in the plan and
+#: 3.3 s in its bills, against 24.6 and 1.8 s with no books and 1 GiB of rows kept, which kept every row read
+#: (benchmarks/bench_fleet.py, docs/performance.md "2026-12-04: a run within a memory limit"): 20.5 s for the
+#: 0.78 GiB of rows read (0.6 x 1.31 GiB) no longer kept. That run also had smaller curve-table blocks and
+#: today's power in a mapped file, which the plan reads too: a planning figure.
+UNKEPT_S_PER_GIB = (43.6 + 3.3 - 24.6 - 1.8) / (PLAN_ROWS_SHARE * 10_000 * 8760 * 16 / 2**30)
 #: Speed-up of the physics per extra site thread [-]: two threads ran the 10,000-asset fleet's physics
 #: 1.45x as fast as one (12.4 s against 18.0 s, same machine; the threads hand the interpreter lock to
 #: each other thousands of times per site, docs/performance.md).
@@ -184,10 +187,9 @@ class _RunSize:
                    max((len(rows) for _, rows in sites), default=0))
 
 
-def _module_budgets() -> MemoryBudgets:
-    """The budgets as this module reads them (the names it imported from :mod:`models.operation`)."""
-    return MemoryBudgets(DENSE_INTERVAL_BUDGET_BYTES, TODAY_IN_MEMORY_BUDGET_BYTES, KEPT_ROWS_BUDGET_BYTES,
-                         KEPT_BOOKS_BUDGET_BYTES, CURVE_CHUNK_ELEMENTS)
+def _dense_block_bytes(n_assets: int, n_o: int, n_t: int) -> int:
+    """A block of every option per interval with the models' temporaries [bytes]."""
+    return interval_bytes(n_assets, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * n_assets * n_t
 
 
 def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: bool, dask: bool | None,
@@ -195,14 +197,15 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     """:func:`estimate_run` of a case of ``size``."""
     if workers < 1:
         raise ValueError("workers must be >= 1")
-    b = _module_budgets() if budgets is None else budgets
+    b = default_budgets() if budgets is None else budgets
     n_a, n_o, n_t, largest = size.n_a, size.n_o, size.n_t, size.largest
     elements = n_a * n_o * n_t
     dask = workers > 1 if dask is None else bool(dask)
+    local_threads = max(1, min(int(threads or PHYSICS_THREADS), max(size.n_sites, 1)))  # (the economics' too)
     if dask:
         parallel, at_once = float(min(int(workers), max(size.n_sites, 1))) / DASK_WORKER_COST, 1
     else:
-        at_once = max(1, min(int(threads or PHYSICS_THREADS), max(size.n_sites, 1)))
+        at_once = local_threads
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
                + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET)
@@ -214,8 +217,7 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     store = interval_bytes(n_a, n_o, n_t) if dense else min(today, b.today_in_memory_bytes)
     site_bytes = interval_bytes(largest, 1, n_t) + 8 * largest * n_t  # the site's today's power and its loads
     if dense:
-        block_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-        block = interval_bytes(block_assets, n_o, n_t) + BLOCK_TEMP_BYTES_PER_ELEMENT * block_assets * n_t
+        block = _dense_block_bytes(min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1))), n_o, n_t)
     else:
         block_assets = min(largest, max(1, b.curve_chunk_elements // max(n_t, 1)))
         block = CURVE_BLOCK_BYTES_PER_ELEMENT * block_assets * n_t
@@ -226,24 +228,22 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
         worker_bytes = WORKER_BASE_BYTES + per_site + (interval_bytes(largest, n_o, n_t) if dense else 0)
     # above the dense budget the run keeps the sites' curve books (the plan reads its rows through them; the
     # Dask workers send theirs back) as far as their budget allows; rows of the sites beyond it are recomputed
-    # and kept while the plan's reactive check and its bills read them (at most one row per asset, within
-    # KEPT_ROWS_BUDGET_BYTES)
+    # and kept while the plan's reactive check and its bills read them (at most one row per asset, within the
+    # rows' budget)
     want_books = 0 if dense else BOOK_BYTES_PER_ASSET_STEP * n_a * n_t
     books = min(want_books, b.kept_books_bytes)
     unbooked = 1.0 - (books / want_books if want_books else 0.0)
     kept_rows = 0 if dense else min(b.kept_rows_bytes, unbooked * today)
     if not dense:  # the rows of sites without books are recomputed where the plan and its bills read them, and
-        # again on each reading when they are not kept
+        # the plan's chosen rows beyond those kept again on each reading
         seconds += UNBOOKED_S_PER_ASSET_STEP * unbooked * n_a * n_t
-        unkept = unbooked * today - kept_rows
-        seconds += UNKEPT_S_PER_ASSET_STEP * max(unkept, 0.0) / interval_bytes(1, 1, 1)
+        unkept = max(PLAN_ROWS_SHARE * unbooked * today - b.kept_rows_bytes, 0.0)
+        seconds += UNKEPT_S_PER_GIB * unkept / 2**30
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
     if not dense and unbooked > 0:  # a block of every option recomputed, per thread of the plan's bills, where they
         # read a site without books
-        recompute_assets = min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1)))
-        bill_threads = max(1, min(int(threads or PHYSICS_THREADS), max(size.n_sites, 1)))
-        economics_peak += bill_threads * (interval_bytes(recompute_assets, n_o, n_t)
-                                          + BLOCK_TEMP_BYTES_PER_ELEMENT * recompute_assets * n_t)
+        economics_peak += local_threads * _dense_block_bytes(min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1))),
+                                                             n_o, n_t)
     n_workers = min(int(workers), max(size.n_sites, 1)) if dask else 0
     if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes
@@ -289,6 +289,7 @@ class MemoryPlan:
     Attributes
     ----------
     budgets : models.operation.MemoryBudgets
+        What the run keeps (the defaults, or less to fit the limit).
     estimate : Estimate
         The run's estimate with these budgets.
     limit_bytes : int or None
@@ -324,10 +325,8 @@ class MemoryPlan:
             return (f"{head}, the run needs at least about {_gib(self.least_limit_bytes)} (the interpreter, one "
                     "site's machines per thread and the per-asset results); it keeps the least it can, and the system "
                     "may slow down or stop it.")
-        exact = any(g.startswith("every option") for g in self.given_up)
         return (f"{head}, the run keeps less in memory and recomputes more: " + "; ".join(self.given_up) + ". "
-                + ("The options are then read through their curve tables (within 1e-5 of each motor's rated input)."
-                   if exact else "The numbers are the same; the run is slower."))
+                "The numbers are the same; the run is slower.")
 
 
 def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None = None, workers_here: bool = True,
@@ -338,7 +337,8 @@ def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None
     ----------
     case : models.case.Case
     limit_bytes : int
-        The peak memory the run may reach [bytes], > 0.
+        The peak memory the run may reach on this machine [bytes], > 0 (Dask workers elsewhere are not
+        counted).
     workers, threads, workers_here, dask
         As in :func:`estimate_run`.
 
@@ -350,16 +350,19 @@ def budgets_within(case, limit_bytes: int, workers: int = 1, threads: int | None
 
     Notes
     -----
-    The defaults are kept when they fit. Else the run gives up, in this order and each only as far as
-    needed: every option's per-interval power (read through curve tables instead: within 1e-5 of each
-    asset's rated input, the one step that changes numbers); the sites' curve books (their rows are
-    recomputed where the plan reads them: slower, the same numbers); and, dearest in time, the plan's rows
-    kept while it is checked. Today's per-interval power, the interpreter, one site's physics per thread (its
-    curve-table blocks: smaller ones lowered the estimate but not the measured peak, which the economics
-    sets once the run keeps its freed memory for reuse) and the economics' tables are not budgets: they set
-    the least a run needs (today's power goes to a mapped file only above
-    :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, and its pages count in the resident memory while
-    they are read). Each budget is found by bisection on the estimate, whose peak grows with every budget.
+    The defaults are kept when they fit. Else the run gives up, in this order: every option's per-interval
+    power (recomputed site by site where it is read, from the same curve tables: the same numbers); the
+    sites' curve books, all of them (a site is read through its books only when all
+    of them are kept, so a share of the budget keeps whole sites only, which the estimate does not follow:
+    their rows are recomputed where the plan reads them, slower, the same numbers); and, dearest in time, the
+    plan's rows kept while it is checked, as far as needed (found by bisection: the peak grows with that
+    budget). A step that would not lower the peak is not taken (without books, a block of every option is
+    recomputed per thread, which on a small fleet outweighs its books). Today's per-interval power, the
+    interpreter, one site's physics per thread (its curve-table blocks: smaller ones lowered the estimate
+    but not the measured peak, which the economics set once the run keeps its freed memory for reuse) and
+    the economics' tables are not budgets: they set the least a run needs (today's power goes to a mapped
+    file only above :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, and its pages count in the
+    resident memory while they are read).
     """
     if limit_bytes <= 0:
         raise ValueError("the memory limit must be > 0 bytes")
@@ -374,27 +377,24 @@ def _budgets_within(size: _RunSize, limit_bytes: int, workers: int, threads: int
     def peak(b: MemoryBudgets) -> int:
         return _estimate(size, workers, threads, workers_here, dask, b).peak_bytes
 
-    start = b = _module_budgets()
+    b = default_budgets()
     given_up: list[str] = []
-    if peak(b) > target and interval_bytes(size.n_a, size.n_o, size.n_t) <= b.dense_bytes:
-        b = replace(b, dense_bytes=0)
-        given_up.append("every option's per-interval power")
-    for name, least, words in (("kept_books_bytes", 0, "curve books"), ("kept_rows_bytes", 0, "plan rows kept")):
-        if peak(b) <= target:
-            break
-        before = getattr(b, name)
-        at_least = peak(replace(b, **{name: least}))
-        if before <= least or at_least >= peak(b):  # (a budget that does not set the peak is left alone)
-            continue
-        low, high = least, before  # peak(low) may still exceed the limit; high does
-        if at_least <= target:
+    for name, words in (("dense_bytes", "every option's per-interval power"),
+                        ("kept_books_bytes", "the sites' curve books")):
+        fewer = replace(b, **{name: 0})
+        if peak(b) > target and getattr(b, name) > 0 and peak(fewer) < peak(b):
+            b = fewer
+            given_up.append(words)
+    if peak(b) > target and b.kept_rows_bytes > 0 and peak(replace(b, kept_rows_bytes=0)) < peak(b):
+        low, high = 0, b.kept_rows_bytes  # peak(high) exceeds the target; peak(low) may too
+        if peak(replace(b, kept_rows_bytes=0)) <= target:
             while high - low > 1:
                 mid = (low + high) // 2
-                low, high = (mid, high) if peak(replace(b, **{name: mid})) <= target else (low, mid)
-        b = replace(b, **{name: int(low)})
-        given_up.append(f"{words} ({_gib(before)} -> {_gib(low)})")
+                low, high = (mid, high) if peak(replace(b, kept_rows_bytes=mid)) <= target else (low, mid)
+        given_up.append(f"plan rows kept ({_gib(b.kept_rows_bytes)} -> {_gib(low)})")
+        b = replace(b, kept_rows_bytes=int(low))
     est = _estimate(size, workers, threads, workers_here, dask, b)
-    return MemoryPlan(b, est, int(limit_bytes), est.peak_bytes <= target, tuple(given_up) if b != start else ())
+    return MemoryPlan(b, est, int(limit_bytes), est.peak_bytes <= target, tuple(given_up))
 
 
 def available_bytes() -> int:
@@ -404,37 +404,36 @@ def available_bytes() -> int:
     return int(psutil.virtual_memory().available)
 
 
-def memory_plan(case, max_bytes: int | None = None, available: int | None = None, workers: int = 1,
+def memory_plan(case, max_bytes: int | None = None, free_bytes: int | None = None, workers: int = 1,
                 threads: int | None = None, workers_here: bool = True, dask: bool | None = None) -> MemoryPlan:
-    """The budgets of a run: within ``max_bytes`` when asked, else the defaults unless they would not fit the
-    machine.
+    """The budgets of a run: within ``max_bytes`` when asked, else within :data:`AVAILABLE_SHARE` of the
+    machine's free memory (the defaults when they fit it).
 
     Parameters
     ----------
     case : models.case.Case
     max_bytes : int, optional
-        The peak the user allows [bytes].
-    available : int, optional
-        Memory available on the machine [bytes]; default :func:`available_bytes`. Without ``max_bytes``, a
-        run whose default estimate is above :data:`AVAILABLE_SHARE` of it is fitted to that share.
+        The peak the user allows on this machine [bytes], >= 1.
+    free_bytes : int, optional
+        Memory available on the machine [bytes]; default :func:`available_bytes`.
     workers, threads, workers_here, dask
         As in :func:`estimate_run`.
 
     Returns
     -------
     MemoryPlan
+        With ``limit_bytes`` None when the run keeps the defaults because they fit the free memory.
     """
     if max_bytes is not None:
         return replace(budgets_within(case, int(max_bytes), workers, threads, workers_here, dask), why="as asked")
-    est = estimate_run(case, workers, threads, workers_here, dask)
-    free = available_bytes() if available is None else int(available)
-    room = int(AVAILABLE_SHARE * free)
-    if est.peak_bytes <= room:
-        return MemoryPlan(_module_budgets(), est, None, True, ())
-    return replace(budgets_within(case, room, workers, threads, workers_here, dask),
-                   why=f"{AVAILABLE_SHARE:.0%} of the {_gib(free)} this machine has free")
+    free = available_bytes() if free_bytes is None else int(free_bytes)
+    room = max(1, int(AVAILABLE_SHARE * free))
+    plan = budgets_within(case, room, workers, threads, workers_here, dask)
+    if plan.fits and not plan.given_up:
+        return replace(plan, limit_bytes=None)
+    return replace(plan, why=f"{AVAILABLE_SHARE:.0%} of the {_gib(free)} this machine has free")
 
 
 def _gib(n_bytes: float) -> str:
-    """A size in GiB to two decimals at most (0.6, 1.45, 12 GiB)."""
-    return f"{round(n_bytes / 2**30, 2):g} GiB"
+    """A size in GiB to three significant digits (0.6, 1.45, 12.3, 0.00488 GiB)."""
+    return f"{n_bytes / 2**30:.3g} GiB"

@@ -841,9 +841,7 @@ class MemoryBudgets:
 
     The defaults (:func:`default_budgets`) are sized for a machine of 24 GiB; a run on a smaller one is
     given budgets that fit the memory it may use (:func:`models.estimate.budgets_within`). Smaller budgets
-    keep less and recompute more: the numbers are the same, except that a fleet kept per interval in full
-    (within ``dense_bytes``) reads its options exactly and one above it through their curve tables (within
-    1e-5 of the asset's rated input, docs/models.md).
+    keep less and recompute more, with the same numbers: a row recomputed is the first pass's, bit for bit.
 
     Attributes
     ----------
@@ -858,7 +856,8 @@ class MemoryBudgets:
     kept_books_bytes : int
         The sites' curve books are kept up to this many bytes (:data:`KEPT_BOOKS_BUDGET_BYTES`).
     curve_chunk_elements : int
-        Asset-steps of a block that keeps its options as curve tables (:data:`CURVE_CHUNK_ELEMENTS`).
+        Asset-steps of a block that keeps its options as curve tables (:data:`CURVE_CHUNK_ELEMENTS`; not
+        fitted to a memory limit: smaller blocks did not lower the measured peak).
     """
 
     dense_bytes: int
@@ -1791,7 +1790,8 @@ class _SiteRecompute:
     the rows whose kW were just asked for (a site meter takes both) runs no block again.
     """
 
-    def __init__(self, case, index: pd.DatetimeIndex, chunk_assets: int | None):
+    def __init__(self, case, index: pd.DatetimeIndex, chunk_assets: int | None, books_budget: int | None = None,
+                 rows_budget: int | None = None):
         self.case, self.index, self.chunk_assets = case, index, chunk_assets
         self.partition = site_partition(case)
         self.site_of = np.zeros(len(case.assets), dtype=int)
@@ -1810,8 +1810,9 @@ class _SiteRecompute:
         self._books: dict[int, list] = {}  # site -> [(site-local rows of a block, its book's arrays)]
         self._books_bytes = 0
         self._books_refused: set[int] = set()  # sites a block of which did not fit
-        self.books_budget = KEPT_BOOKS_BUDGET_BYTES
-        self.rows_budget = KEPT_ROWS_BUDGET_BYTES  # what kept_rows keeps by default
+        # the curve books kept, and the rows kept_rows keeps by default [bytes] (the module's budgets unless given)
+        self.books_budget = KEPT_BOOKS_BUDGET_BYTES if books_budget is None else int(books_budget)
+        self.rows_budget = KEPT_ROWS_BUDGET_BYTES if rows_budget is None else int(rows_budget)
 
     def keep_book(self, site_id: str, rows: np.ndarray, book: "tabulation.CurveBook") -> bool:
         """Keep a block's curve book (site-local ``rows``, the block's assets in its order) while the books

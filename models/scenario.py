@@ -264,10 +264,8 @@ class PhysicsMerger:
         n_a, n_o = len(case.assets), len(options_with_baseline(case.options))
         if dense is None:
             dense = interval_bytes(n_a, n_o, len(index)) <= budgets.dense_bytes
-        recompute = None
-        if not dense:
-            recompute = _SiteRecompute(case, index, chunk_assets)
-            recompute.books_budget, recompute.rows_budget = budgets.kept_books_bytes, budgets.kept_rows_bytes
+        recompute = None if dense else _SiteRecompute(case, index, chunk_assets, budgets.kept_books_bytes,
+                                                      budgets.kept_rows_bytes)
         self.ops = _Merger(n_a, len(index), dense=dense, recompute=recompute,
                            today_in_memory_bytes=budgets.today_in_memory_bytes)
         self.arrays = {"saving": np.zeros((n_a, n_o, len(SAVING_COMPONENTS))), "reactive_saving": np.zeros((n_a, n_o)),

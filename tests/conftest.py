@@ -21,6 +21,15 @@ REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "data" / "demo"
 
 
+@pytest.fixture(autouse=True)
+def _ample_free_memory(monkeypatch):
+    """Every test sees a machine with 64 GiB free, so that no run fits itself to the test machine's free memory
+    (models.estimate.memory_plan); a test of that fit sets its own."""
+    from models import estimate
+
+    monkeypatch.setattr(estimate, "available_bytes", lambda: 64 * 2**30)
+
+
 @pytest.fixture(scope="session")
 def demo_case():
     """The demo case, loaded once per session (strict: it must be valid)."""

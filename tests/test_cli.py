@@ -193,7 +193,7 @@ def test_run_says_in_one_line_that_a_worker_kept_dying(tmp_path, capsys, monkeyp
     assert "drivecase run: the task of site S1 (1 motor) was lost" in err and "Traceback" not in err
 
 
-def test_run_says_each_site_sent_again_after_its_worker_was_lost(tmp_path, capsys, monkeypatch):
+def test_run_says_each_site_sent_again_after_its_result_was_lost(tmp_path, capsys, monkeypatch):
     pytest.importorskip("distributed")
     from models import distributed as engine
     from test_scenario import _one_asset_case
@@ -201,14 +201,15 @@ def test_run_says_each_site_sent_again_after_its_worker_was_lost(tmp_path, capsy
     real = engine.run_distributed
 
     def one_lost(*args, notice=None, **kwargs):
-        notice("site S1: its worker was lost; the site is sent again (attempt 2 of 3)")
+        notice("site S1: its result was lost (its worker left or failed); the site is sent again (attempt 2 of 3)")
         return real(*args, notice=notice, **kwargs)
 
     _one_asset_case(tmp_path / "case")
     monkeypatch.setattr(engine, "run_distributed", one_lost)
     assert main(["run", str(tmp_path / "case"), "--out", str(tmp_path / "o"), "--no-risk", "--engine", "dask"]) == 0
     err = capsys.readouterr().err
-    assert "drivecase run: site S1: its worker was lost; the site is sent again (attempt 2 of 3)\n" in err
+    assert ("drivecase run: site S1: its result was lost (its worker left or failed); the site is sent again "
+            "(attempt 2 of 3)\n") in err
 
 
 def test_run_plan_limits_and_the_settings_it_records(tmp_path, capsys):
@@ -471,21 +472,25 @@ def test_estimate_alone_prints_the_estimate_and_writes_nothing(tmp_path, capsys,
 
 
 def test_max_memory_fits_the_run_and_says_what_it_keeps_less_of(tmp_path, capsys):
-    # the demo, kept in full, is estimated at about 0.7 GiB; within 0.6 GiB its options are read through their
-    # curve tables instead
+    # the demo, kept in full, is estimated at about 0.7 GiB; within 0.6 GiB every option's per-interval power is
+    # given up (recomputed where read: the same numbers)
     assert main(["run", str(DEMO), "--out", str(tmp_path / "o"), "--estimate", "--max-memory", "0.6"]) == 0
     out = capsys.readouterr().out
     assert "Memory: within 0.6 GiB (as asked)" in out and "every option's per-interval power" in out
-    assert "curve tables" in out and not (tmp_path / "o").exists()
+    assert "The numbers are the same" in out and not (tmp_path / "o").exists()
 
 
-@pytest.mark.parametrize("command", ["run", "report"])
-def test_max_memory_below_the_least_run_stops_with_a_message(tmp_path, capsys, command):
-    assert main([command, str(DEMO), "--out", str(tmp_path / "o"), "--max-memory", "0.01"]) == 1
+@pytest.mark.parametrize("command, limit", [("run", "0.01"), ("report", "0.01"), ("run", "1e-10")])
+def test_max_memory_below_the_least_run_stops_with_a_message(tmp_path, capsys, command, limit):
+    assert main([command, str(DEMO), "--out", str(tmp_path / "o"), "--max-memory", limit]) == 1
     err = capsys.readouterr().err
-    assert f"drivecase {command}: the run cannot keep within 0.01 GiB" in err and "with the estimate's margin" in err
-    least = float(err.split("give --max-memory ")[1].split(" ")[0])
-    assert 0.01 < least < 1.0
+    assert f"drivecase {command}: the run cannot keep within {float(limit):g} GiB" in err
+    assert "with the estimate's margin" in err and "Traceback" not in err and not (tmp_path / "o").exists()
+    least = err.split("give --max-memory ")[1].split(" ")[0]
+    assert 0.01 < float(least) < 1.0
+    # the least limit said is accepted (rounded up, not to the nearest)
+    assert main([command, str(DEMO), "--out", str(tmp_path / "o"), "--max-memory", least, "--estimate"]) == 0
+    assert "cannot keep" not in capsys.readouterr().err
     assert not (tmp_path / "o").exists()
 
 

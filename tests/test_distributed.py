@@ -158,35 +158,31 @@ def test_workers_send_their_curve_books_back_within_the_budget(fleet, fleet_loca
 
 
 def test_the_runs_memory_budgets_reach_the_cluster(fleet, fleet_local, cluster, monkeypatch):
-    """A run given budgets (``drivecase run --max-memory``) keeps what they allow on the caller's side and
-    sends the block size of the curve tables to the workers' site tasks: the files are the local engine's."""
+    """A run given budgets (``drivecase run --max-memory``) keeps what they allow on the caller's side and sends
+    the block size of the curve tables with each site's task: the files are the local engine's."""
     from models import distributed as engine
     from models import operation
-    from models.operation import case_index, site_case
+    from models.operation import case_index
 
     n_t = len(case_index(fleet))
     least = operation.MemoryBudgets(dense_bytes=0, today_in_memory_bytes=0, kept_rows_bytes=0, kept_books_bytes=0,
                                     curve_chunk_elements=2 * n_t)
+    sent = []
+    real = distributed.Client.submit
+
+    def spy(self, func, *args, **kwargs):
+        if func is engine._site_task:
+            sent.append(args[-1])  # (_site_task's last argument: the curve-table block size)
+        return real(self, func, *args, **kwargs)
+
+    monkeypatch.setattr(distributed.Client, "submit", spy)
     remote = run_distributed(fleet, fleet.finance, scheduler=cluster.scheduler_address, with_risk=False,
                              budgets=least)
+    assert len(sent) == len(site_partition(fleet)) and set(sent) == {2 * n_t}
     recompute = remote.physics.operation.p_kw._recompute
     assert recompute.books_bytes == 0 and recompute.rows_budget == 0
     assert isinstance(remote.physics.operation.p_kw._today, np.memmap)
     _assert_same_files(fleet_local, remote)
-    # a site's task works its curve tables in blocks of the size it is given (2 assets' steps here)
-    seen = []
-    real = scenario.site_blocks
-
-    def spy(*args, **kwargs):
-        for rows, block, totals in real(*args, **kwargs):
-            seen.append(len(rows))
-            yield rows, block, totals
-
-    monkeypatch.setattr(scenario, "site_blocks", spy)
-    site_id, rows = max(site_partition(fleet), key=lambda item: len(item[1]))
-    assert len(rows) > 2
-    engine._site_task(site_case(fleet, site_id), case_index(fleet), 35.0, None, True, False, 2 * n_t)
-    assert max(seen) == 2
 
 
 def test_a_worker_gone_while_a_site_is_sent_to_it_is_passed_over(fleet, fleet_local, cluster, monkeypatch):
@@ -319,8 +315,8 @@ def test_a_result_lost_to_the_clients_event_loop_error_is_fetched_again(fleet, f
     assert failed and failed[0].startswith("drivecase-site-physics")
     _assert_same_files(fleet_local, remote)
     # the site sent again is said in one line (the command prints it on the error stream)
-    assert len(said) == 1 and re.fullmatch(r"site \S+: its worker was lost; the site is sent again "
-                                           r"\(attempt 2 of 3\)", said[0]), said
+    assert len(said) == 1 and re.fullmatch(r"site \S+: its result was lost \(its worker left or failed\); the site is "
+                                           r"sent again \(attempt 2 of 3\)", said[0]), said
 
 
 def test_another_runtime_error_of_a_site_is_not_swallowed(fleet, cluster, monkeypatch):
