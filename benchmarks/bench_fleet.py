@@ -343,6 +343,8 @@ def main(argv: list[str] | None = None) -> None:
                         help="prove the exact plan within this %% only (as drivecase run --plan-gap; default 0.01)")
     parser.add_argument("--plan-seconds", type=float, metavar="S",
                         help="time limit of the exact plan (as drivecase run --plan-seconds; default 60)")
+    parser.add_argument("--assets-per-profile", type=int, default=25, metavar="N",
+                        help="motors sharing one load profile in the synthetic fleets (default 25; 1: one each)")
     parser.add_argument("--max-memory", type=float, metavar="GIB",
                         help="fit the run's memory budgets to this peak (as drivecase run --max-memory)")
     parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
@@ -362,7 +364,8 @@ def main(argv: list[str] | None = None) -> None:
     runs = []
     with tempfile.TemporaryDirectory(prefix="drivecase-bench-") as tmp:
         for n in args.assets:
-            folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites, budgets=args.budgets)
+            folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites, budgets=args.budgets,
+                                 assets_per_profile=args.assets_per_profile)
             for engine in args.engines:
                 r = run_child(folder, engine, args.plan_gap, args.plan_seconds, args.max_memory)
                 r["budgets"] = args.budgets

@@ -14,7 +14,8 @@ Everything written here is made up: sites, motors, profiles. The generator is se
 - ``assets.csv``: a seeded mix of applications, sizes 0.75 kW to 2 MW (log-uniform), control modes,
   classes and ages; about 5 % of assets use annual hours and a mean load instead of a profile;
 - ``profiles.parquet``: hourly shaft-load profiles for one year, shared in groups (about one profile per
-  25 assets, each with its own daily and seasonal shape), so the machines see varied loads;
+  25 assets by default, ``assets_per_profile``; 1 gives each motor its own, as metered fleets have), each
+  with its own daily and seasonal shape, so the machines see varied loads;
 - no ``options.csv``: the default catalogue applies, every option of it.
 
 Run ``python benchmarks/synthetic_fleet.py OUT --assets 1000`` to write one case folder.
@@ -118,7 +119,7 @@ def _finance_toml(n_assets: int, budgets: str) -> str:
 
 
 def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int = 20260601,
-                budgets: str = "per_asset") -> Path:
+                budgets: str = "per_asset", assets_per_profile: int = ASSETS_PER_PROFILE) -> Path:
     """Write a synthetic case folder with ``n_assets`` motors on ``n_sites`` sites; return its path.
 
     Parameters
@@ -140,7 +141,9 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
     rng = np.random.default_rng(seed)
     out = Path(target)
     (out / "tariffs").mkdir(parents=True, exist_ok=True)
-    n_profiles = max(1, n_assets // ASSETS_PER_PROFILE)
+    if assets_per_profile < 1:
+        raise ValueError("need assets_per_profile >= 1")
+    n_profiles = max(1, n_assets // int(assets_per_profile))
     sites, caps = [], []
     for s in range(n_sites):
         tariff = TARIFFS[s % len(TARIFFS)]
@@ -194,8 +197,10 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--seed", type=int, default=20260601)
     parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
                         help="capital budgets: the demo's per motor (default) or the demo's own")
+    parser.add_argument("--assets-per-profile", type=int, default=ASSETS_PER_PROFILE,
+                        help=f"motors sharing one profile (default {ASSETS_PER_PROFILE}; 1: a profile of its own each)")
     args = parser.parse_args(argv)
-    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets))
+    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets, args.assets_per_profile))
 
 
 if __name__ == "__main__":

@@ -761,6 +761,16 @@ def _listed(problems: list[Problem], items, make, summary) -> None:
 
 def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Return (codes, ids): an integer code per row (-1 when blank) and the ids in order of appearance."""
+    if isinstance(column.dtype, pd.CategoricalDtype) and pd.api.types.is_string_dtype(column.cat.categories.dtype):
+        # text ids read as categories (a long Parquet table): the codes of their text, in order of appearance
+        category = column.cat.codes.to_numpy()
+        codes, seen = pd.factorize(category)  # (a blank is category -1: taken out below)
+        blank = np.flatnonzero(seen < 0)
+        if len(blank):
+            k = int(blank[0])
+            codes = np.where(codes == k, -1, np.where(codes > k, codes - 1, codes))
+            seen = np.delete(seen, k)
+        return np.asarray(codes), np.asarray(column.cat.categories[seen], dtype=object)
     if not pd.api.types.is_string_dtype(column.dtype) or column.dtype == object:
         # numbers (a Parquet id column of floats, a workbook cell) are ids as written: 7.0 is "7"
         column = column.astype(object).map(lambda v: None if _blank(v) else
@@ -782,14 +792,19 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
         series = series.astype(object)
         flags = series.map(lambda v: isinstance(v, (bool, np.bool_))).to_numpy(dtype=bool)
         numeric = pd.to_numeric(series.where(~flags, "true/false"), errors="coerce").astype(float).to_numpy(copy=True)
+    elif pd.api.types.is_float_dtype(series.dtype) and isinstance(series.dtype, np.dtype):
+        numeric = series.to_numpy(dtype=float)  # (read as it is: nothing below writes into a float column's values)
     else:
         numeric = pd.to_numeric(series, errors="coerce").astype(float).to_numpy(copy=True)
-    # a blank text cell (Parquet's empty string, spaces) is blank, as an empty CSV cell is
-    given = series.notna().to_numpy(copy=True)
-    if series.dtype == object or pd.api.types.is_string_dtype(series.dtype):  # (numbers hold no text)
-        text = series[given].astype(str)
-        given[np.flatnonzero(given)[text.str.strip().eq("").to_numpy(dtype=bool)]] = False
-    bad = np.flatnonzero(np.isnan(numeric) & given)
+    if pd.api.types.is_float_dtype(series.dtype):  # (a float cell is a number or blank: nothing is bad)
+        bad = np.zeros(0, dtype=np.intp)
+    else:
+        # a blank text cell (Parquet's empty string, spaces) is blank, as an empty CSV cell is
+        given = series.notna().to_numpy(copy=True)
+        if series.dtype == object or pd.api.types.is_string_dtype(series.dtype):  # (numbers hold no text)
+            text = series[given].astype(str)
+            given[np.flatnonzero(given)[text.str.strip().eq("").to_numpy(dtype=bool)]] = False
+        bad = np.flatnonzero(np.isnan(numeric) & given)
     if len(bad):
         cells = series.iloc[bad].map(lambda v: str(v).strip())
         signed = cells.str.endswith("%").to_numpy(dtype=bool)
@@ -831,7 +846,9 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
     _listed(problems, infinite,
             lambda i: error(source, int(rows[i]), header, series.iloc[i], f"'{column}' must be a finite number{where(i)}"),
             lambda n: error(source, None, header, None, f"{n} more cells of '{column}' are not finite"))
-    numeric[infinite] = np.nan
+    if len(infinite):
+        numeric = np.array(numeric)  # (a float column is read in place: its own values are left as they are)
+        numeric[infinite] = np.nan
     return numeric
 
 
@@ -884,7 +901,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         return profile + (f" at {stamp}" if stamp else " (blank timestamp)")
 
     values = {c: _profile_values(frame[c], c, source, rows, header(c), problems, where) for c in value_columns}
-    order = np.argsort(codes, kind="stable")
+    # rows by profile, each profile's in file order (a table written profile by profile is in that order already)
+    order = np.arange(len(codes)) if bool((np.diff(codes) >= 0).all()) else np.argsort(codes, kind="stable")
     bounds = np.searchsorted(codes[order], np.arange(len(uniques) + 1))
     groups = [order[bounds[k]:bounds[k + 1]] for k in range(len(uniques))]
     stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
@@ -938,19 +956,26 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         ok = ~t.isna()
         if not ok.any():
             continue
-        t_ok = t[ok]
-        v_ok = v[ok]
-        order_t = np.argsort(t_ok.asi8, kind="stable")
-        t_sorted = t_ok[order_t]
-        rows_sorted = rows[idx][ok][order_t]
-        cells_sorted = idx[ok][order_t]  # positions in the file's frame, for a timestamp as written
-        dup = t_sorted.duplicated(keep="first")
+        every = bool(ok.all())  # (the usual profile: every stamp readable, in order, none repeated; no copies then)
+        t_ok = t if every else t[ok]
+        v_ok = v if every else v[ok]
+        ascending = every and bool((np.diff(t_ok.asi8) > 0).all())
+        if ascending:
+            t_sorted, rows_sorted, cells_sorted = t_ok, rows[idx], idx
+            dup = np.zeros(len(t_sorted), dtype=bool)
+        else:
+            order_t = np.argsort(t_ok.asi8, kind="stable")
+            t_sorted = t_ok[order_t]
+            rows_sorted = rows[idx][ok][order_t]
+            cells_sorted = idx[ok][order_t]  # positions in the file's frame, for a timestamp as written
+            dup = t_sorted.duplicated(keep="first")
+            v_ok = v_ok[order_t]
         _listed(problems, np.flatnonzero(dup),
                 lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
                                 f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"),
                 lambda n: error(source, None, header("timestamp"), None, f"{n} more repeated timestamps in '{profile_id}'"))
-        t_unique = t_sorted[~dup]
-        v_unique = v_ok[order_t][~dup]
+        t_unique = t_sorted if ascending else t_sorted[~dup]
+        v_unique = v_ok if ascending else v_ok[~dup]
         if len(t_unique) < 2:
             problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id,
                                   "a profile needs at least two intervals"))
@@ -974,12 +999,16 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                   f"profile '{profile_id}' has an interval of {resolution:g} min; allowed are 15, 30 or 60 min",
                                   "resample the data to 15-min, 30-min or hourly means"))
             continue
-        rows_unique = rows_sorted[~dup]
+        rows_unique = rows_sorted if ascending else rows_sorted[~dup]
         # every timestamp on the profile's grid: the resolution's phase that most stamps share
         res_us = int(round(resolution * 60e6))
-        phase = np.mod(t_unique.as_unit("us").asi8, res_us)
-        values_, counts_ = np.unique(phase, return_counts=True)
-        off = np.flatnonzero(phase != values_[np.argmax(counts_)])
+        stamps_us = t_unique.as_unit("us").asi8
+        phase = np.mod(stamps_us, res_us)
+        if (phase == phase[0]).all():  # (one phase: every stamp on it)
+            off = np.zeros(0, dtype=np.intp)
+        else:
+            values_, counts_ = np.unique(phase, return_counts=True)
+            off = np.flatnonzero(phase != values_[np.argmax(counts_)])
         _listed(problems, off,
                 lambda j: error(source, int(rows_unique[j]), header("timestamp"), str(t_unique[j]),
                                 f"timestamp off the {resolution:g}-min grid of profile '{profile_id}'",
@@ -987,8 +1016,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                 "hour)"),
                 lambda n: error(source, None, header("timestamp"), None,
                                 f"{n} more timestamps off the grid of '{profile_id}'"))
-        on = np.setdiff1d(np.arange(len(t_unique)), off)
-        step_on = np.diff(t_unique.as_unit("us").asi8[on]) / 60e6
+        on = np.setdiff1d(np.arange(len(t_unique)), off) if len(off) else np.arange(len(t_unique))
+        step_on = np.diff(stamps_us[on]) / 60e6
         gaps = np.flatnonzero(step_on > resolution + 1e-6)
         if len(gaps) and not len(off):
             n_missing = int(np.sum(np.round(step_on[gaps] / resolution) - 1))
@@ -1118,18 +1147,25 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
         One tz-aware timestamp per row (microsecond unit), NaT where unusable.
     """
     n = len(column)
-    utc = np.full(n, _NAT, dtype=np.int64)
-    naive = np.full(n, _NAT, dtype=np.int64)
+    if isinstance(column.dtype, pd.DatetimeTZDtype):
+        # instants (a typed Parquet column): the usual long table needs no cell-wise work and no copy
+        parsed = pd.DatetimeIndex(column).as_unit("us")
+        instants = parsed.asi8
+        if len(instants) and not parsed.hasnans and instants.min() >= _FIRST_US and instants.max() < _END_US:
+            return parsed.tz_convert(zone)
     if not (pd.api.types.is_datetime64_any_dtype(column.dtype) or pd.api.types.is_string_dtype(column.dtype)):
         column = column.astype(object)  # numbers or mixed cells (Parquet, workbooks)
     if pd.api.types.is_datetime64_any_dtype(column.dtype):
+        # (a typed column: one array of instants or of local times, the other kind absent; no cell-wise work)
         parsed = pd.DatetimeIndex(column).as_unit("us")
         if parsed.tz is not None:
-            utc[:] = parsed.tz_convert("UTC").asi8
+            utc, naive = np.array(parsed.asi8), None  # (instants since 1970 UTC, a copy to mark NaT in)
         else:
-            naive[:] = parsed.asi8
+            utc, naive = np.full(n, _NAT, dtype=np.int64), np.array(parsed.asi8)
         blank = np.asarray(parsed.isna())
     else:
+        utc = np.full(n, _NAT, dtype=np.int64)
+        naive = np.full(n, _NAT, dtype=np.int64)
         if column.dtype == object:
             serial = column.map(_is_serial).to_numpy(dtype=bool)
             if serial.any():
@@ -1183,7 +1219,7 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
         _listed(problems, unreadable, bad,
                 lambda k: error(source, None, header, None, f"{k} more unreadable timestamps"))
     # one window for UTC (offset cells) and local (naive cells) times alike
-    for stamps in (utc, naive):
+    for stamps in (utc, naive) if naive is not None else (utc,):
         outside = np.flatnonzero((stamps != _NAT) & ((stamps < _FIRST_US) | (stamps >= _END_US)))
         _listed(problems, outside,
                 lambda i: error(source, int(rows[i]), header, _plain(column.iloc[i]),
@@ -1195,10 +1231,11 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
     _listed(problems, np.flatnonzero(blank),
             lambda i: error(source, int(rows[i]), header, None, "timestamp is blank"),
             lambda k: error(source, None, header, None, f"{k} more blank timestamps"))
-    for idx in groups:
-        local = idx[naive[idx] != _NAT]
-        if len(local):
-            utc[local] = _localise(naive[local], zone, source, rows[local], header, problems)
+    if naive is not None and (naive != _NAT).any():
+        for idx in groups:
+            local = idx[naive[idx] != _NAT]
+            if len(local):
+                utc[local] = _localise(naive[local], zone, source, rows[local], header, problems)
     return pd.DatetimeIndex(utc.view("datetime64[us]")).tz_localize("UTC").tz_convert(zone)
 
 

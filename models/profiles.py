@@ -66,14 +66,27 @@ def analysis_index(profiles: dict[str, pd.Series], time_zone: str, used: set[str
     if chosen:
         steps = [int(round(np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index))) for s in chosen]
         resolution = min(steps)
-        years = np.concatenate([s.index.tz_convert(time_zone).year.to_numpy() for s in chosen])
-        values, counts = np.unique(years, return_counts=True)
-        year = int(values[np.argmax(counts)])
+        counts: dict[int, int] = {}
+        for s in chosen:  # each profile's intervals per calendar year of the case zone, from the years' starts
+            for y, n in _intervals_per_year(s.index, time_zone).items():
+                counts[y] = counts.get(y, 0) + n
+        year = max(sorted(counts), key=lambda y: counts[y])  # (the earliest of equal counts, as numpy.unique's order)
     else:
         resolution, year = 60, DEFAULT_YEAR
     start = pd.Timestamp(year=year, month=1, day=1, tz=time_zone)
     end = pd.Timestamp(year=year + 1, month=1, day=1, tz=time_zone)
     return pd.date_range(start, end, freq=f"{resolution}min", inclusive="left")
+
+
+def _intervals_per_year(index: pd.DatetimeIndex, time_zone: str) -> dict[int, int]:
+    """Stamps of a sorted tz-aware index in each calendar year of ``time_zone`` (the years it spans), counted
+    between the years' starts: two look-ups per year instead of a year per stamp."""
+    if not len(index):
+        return {}
+    first, last = index[0].tz_convert(time_zone).year, index[-1].tz_convert(time_zone).year
+    starts = pd.DatetimeIndex([pd.Timestamp(year=y, month=1, day=1, tz=time_zone) for y in range(first, last + 2)])
+    cuts = np.searchsorted(index.asi8, starts.as_unit(index.unit).asi8)
+    return {y: int(n) for y, n in zip(range(first, last + 1), np.diff(cuts)) if n}
 
 
 def _unit_per_minute(index: pd.DatetimeIndex) -> float:
