@@ -878,6 +878,10 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                   "profiles are long tables: profile_id, timestamp, shaft_load_pct or input_kw"))
             return {}, empty_info
     value_columns = [c for c in ("shaft_load_pct", "input_kw") if c in frame.columns]
+    if len(value_columns) == 2:  # a column of no value at all beside one with values (a template's other column)
+        unused = [c for c in value_columns if not frame[c].notna().any()]  # gives nothing to any profile: not read
+        if len(unused) == 1:
+            value_columns.remove(unused[0])
     if not value_columns:
         problems.append(error(source, None, None, None, "no value column: give shaft_load_pct or input_kw",
                               "add a column headed shaft_load_pct (% of rated) or input_kw (measured)"))
