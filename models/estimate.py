@@ -39,8 +39,15 @@ PLAN_MAX_S = 130.0
 #: that size is solved without a core programme, its proof takes longer per asset), the least a larger
 #: fleet is given too.
 PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
-#: Reading and validating a case per asset [s]: 6.1 s per 10,000 assets (Parquet profiles), same run.
-LOAD_S_PER_ASSET = 6.1 / 10_000
+#: Reading and validating a case [s per asset] and [s per interval of its profiles]: the benchmark's 10,000-asset
+#: fleet took 3.5 s with 400 shared hourly profiles (3.5 million intervals) and 29.4 s with a profile per motor
+#: (87.6 million intervals) on 2026-12-04 (benchmarks/bench_fleet.py --assets-per-profile 1, Parquet profiles,
+#: docs/performance.md "2026-12-04: a profile per motor"): (29.4 - 3.5) s over the 84.1 million intervals more,
+#: and the rest per asset.
+LOAD_S_PER_PROFILE_INTERVAL = (29.4 - 3.5) / (87.6e6 - 3.504e6)
+LOAD_S_PER_ASSET = (3.5 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
+#: A loaded profile's memory per interval [bytes]: its value and its timestamp, 8 bytes each.
+PROFILE_BYTES_PER_INTERVAL = 16
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
 FIXED_S = 1.5
@@ -152,7 +159,9 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) / d on Dask (d =
     :data:`DASK_WORKER_COST`) and 1 + g (k - 1) for k local site threads (g = :data:`THREAD_GAIN`), and
     the constants of this module (measured by
-    ``benchmarks/bench_fleet.py`` with one thread). Peak = base + per-interval store (every option when
+    ``benchmarks/bench_fleet.py`` with one thread), with the case's profiles read at
+    :data:`LOAD_S_PER_PROFILE_INTERVAL`. Peak = base + the profiles (:data:`PROFILE_BYTES_PER_INTERVAL`) +
+    per-interval store (every option when
     it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
     a run keeps above the dense budget (:data:`BOOK_BYTES_PER_ASSET_STEP`, at most
@@ -172,19 +181,22 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
 
 @dataclass(frozen=True)
 class _RunSize:
-    """The sizes an estimate is made of: assets, options (today's included), steps, sites, the largest site."""
+    """The sizes an estimate is made of: assets, options (today's included), steps, sites, the largest site, and
+    the intervals of the case's profiles."""
 
     n_a: int
     n_o: int
     n_t: int
     n_sites: int
     largest: int
+    profile_intervals: int = 0
 
     @classmethod
     def of(cls, case) -> "_RunSize":
         sites = site_partition(case)
         return cls(len(case.assets), len(options_with_baseline(case.options)), len(case_index(case)), len(sites),
-                   max((len(rows) for _, rows in sites), default=0))
+                   max((len(rows) for _, rows in sites), default=0),
+                   sum(len(series) for series in getattr(case, "profiles", {}).values()))
 
 
 def _dense_block_bytes(n_assets: int, n_o: int, n_t: int) -> int:
@@ -208,7 +220,7 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
         at_once = local_threads
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
-               + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET)
+               + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + size.profile_intervals * LOAD_S_PER_PROFILE_INTERVAL
                + min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S))
     dense = interval_bytes(n_a, n_o, n_t) <= b.dense_bytes
     today = interval_bytes(n_a, 1, n_t)
@@ -247,7 +259,8 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     n_workers = min(int(workers), max(size.n_sites, 1)) if dask else 0
     if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes
-    peak = BASE_BYTES + store + books + max(physics_peak, economics_peak)
+    profiles = PROFILE_BYTES_PER_INTERVAL * size.profile_intervals  # (a profile per motor: 1.3 GiB at 10,000 hourly)
+    peak = BASE_BYTES + profiles + store + books + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "
             "(the rest is recomputed site by site where a plan needs it)" if books else
