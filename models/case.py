@@ -22,6 +22,7 @@ import pandas as pd
 from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
+from models import profiles as profiles_module
 from models.problems import (CaseError, Problem, did_you_mean, error, fixed_offset_hint, has_errors, ordered,
                              shown_value, warning)
 from models.wording import counted
@@ -906,132 +907,146 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
 
     values = {c: _profile_values(frame[c], c, source, rows, header(c), problems, where) for c in value_columns}
     # rows by profile, each profile's in file order (a table written profile by profile is in that order already)
-    order = np.arange(len(codes)) if bool((np.diff(codes) >= 0).all()) else np.argsort(codes, kind="stable")
-    bounds = np.searchsorted(codes[order], np.arange(len(uniques) + 1))
+    grouped = bool((codes[1:] >= codes[:-1]).all())
+    order = np.arange(len(codes)) if grouped else np.argsort(codes, kind="stable")
+    bounds = np.searchsorted(codes if grouped else codes[order], np.arange(len(uniques) + 1))
     groups = [order[bounds[k]:bounds[k + 1]] for k in range(len(uniques))]
     stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
     profiles: dict[str, pd.Series] = {}
     info: list[dict] = []
-    for profile_id, idx in zip(uniques, groups):
+    # the usual profile, written in order on its grid with every value readable and within bounds, is read
+    # from one pass over the table (models.profiles.segment_stats); any other takes the checks row by row below
+    quick = _quick_profiles(value_columns, values, stamps, order, bounds, len(uniques))
+    for k, (profile_id, idx) in enumerate(zip(uniques, groups)):
         profile_id = str(profile_id)
-        has = {c: np.isfinite(values[c][idx]) for c in value_columns}
-        present = [c for c in value_columns if has[c].any()]
-        if not present and any(frame[c].iloc[idx].notna().any() for c in value_columns):
-            continue  # values given, none readable: each unreadable cell is an error of its own already
-        if len(present) != 1:
-            rule = ("profile has values in both shaft_load_pct and input_kw" if len(present) > 1
-                    else "profile has no values")
-            problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id, rule,
-                                  "each profile gives one quantity: shaft_load_pct or input_kw"))
-            continue
-        quantity = present[0]
-        qh = header(quantity)
-        v = values[quantity][idx]
-        blank = np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy())
-        if len(blank):  # an interval without a value is a missing interval: filled the same way, with a warning
-            first_stamp = _stamp_as_written(stamp_cells.iloc[idx[blank[0]]])
-            problems.append(warning(source, int(rows[idx[blank[0]]]), qh, None,
-                                    f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row"
-                                    + (f" (at {first_stamp})" if first_stamp else ""),
-                                    "blank intervals are filled from the same weekday and time of day, as missing "
-                                    "intervals are; enter the readings where they exist"))
-        _listed(problems, np.flatnonzero(v < 0),
-                lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"values must not be negative{where(idx[j])}"),
-                lambda n: error(source, None, qh, None, f"{n} more negative values in '{profile_id}'"))
-        if quantity == "shaft_load_pct":
-            _listed(problems, np.flatnonzero(v > MAX_LOAD_PCT),
-                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]),
-                                    f"shaft load above {MAX_LOAD_PCT:.0f} % of rating{where(idx[j])}",
-                                    "check the unit (percent of rated power) or the rated power of the motor"),
-                    lambda n: error(source, None, qh, None,
-                                    f"{n} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
-            peak = np.nanmax(v) if np.isfinite(v).any() else np.nan
-            if 0 < peak <= 1.0:
+        if quick[k] is not None:
+            quantity, resolution, peak = quick[k]
+            qh = header(quantity)
+            if quantity == "shaft_load_pct" and 0 < peak <= 1.0:
                 problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
                                         f"profile '{profile_id}' never exceeds {peak:g} % load",
                                         "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
+            t_unique = stamps[bounds[k]:bounds[k + 1]]
+            v_unique = values[quantity][bounds[k]:bounds[k + 1]]
         else:
-            limit = float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])
-            _listed(problems, np.flatnonzero(v > limit),
-                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"input above {limit:g} kW{where(idx[j])}",
-                                    "is this in W rather than kW? divide by 1000"),
-                    lambda n: error(source, None, qh, None, f"{n} more intervals of '{profile_id}' above {limit:g} kW"))
-        t = stamps[idx]
-        ok = ~t.isna()
-        if not ok.any():
-            continue
-        every = bool(ok.all())  # (the usual profile: every stamp readable, in order, none repeated; no copies then)
-        t_ok = t if every else t[ok]
-        v_ok = v if every else v[ok]
-        ascending = every and bool((np.diff(t_ok.asi8) > 0).all())
-        if ascending:
-            t_sorted, rows_sorted, cells_sorted = t_ok, rows[idx], idx
-            dup = np.zeros(len(t_sorted), dtype=bool)
-        else:
-            order_t = np.argsort(t_ok.asi8, kind="stable")
-            t_sorted = t_ok[order_t]
-            rows_sorted = rows[idx][ok][order_t]
-            cells_sorted = idx[ok][order_t]  # positions in the file's frame, for a timestamp as written
-            dup = t_sorted.duplicated(keep="first")
-            v_ok = v_ok[order_t]
-        _listed(problems, np.flatnonzero(dup),
-                lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
-                                f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"),
-                lambda n: error(source, None, header("timestamp"), None, f"{n} more repeated timestamps in '{profile_id}'"))
-        t_unique = t_sorted if ascending else t_sorted[~dup]
-        v_unique = v_ok if ascending else v_ok[~dup]
-        if len(t_unique) < 2:
-            problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id,
-                                  "a profile needs at least two intervals"))
-            continue
-        step = np.diff(t_unique.asi8) / (60.0 * 1e6)  # microseconds to minutes
-        changes = resolution_changes(step)
-        if changes:
-            rows_changed = rows_sorted[~dup]
-            _listed(problems, changes,
-                    lambda c: error(source, int(rows_changed[c[0]]), header("timestamp"), str(t_unique[c[0]]),
-                                    f"profile '{profile_id}' changes resolution at {t_unique[c[0]]}: every {c[1]:g} min "
-                                    f"before, every {c[2]:g} min from there on",
-                                    "keep one resolution per profile: average the finer part to "
-                                    f"{max(c[1], c[2]):g}-min means (docs/case-format.md, interval profiles)"),
+            has = {c: np.isfinite(values[c][idx]) for c in value_columns}
+            present = [c for c in value_columns if has[c].any()]
+            if not present and any(frame[c].iloc[idx].notna().any() for c in value_columns):
+                continue  # values given, none readable: each unreadable cell is an error of its own already
+            if len(present) != 1:
+                rule = ("profile has values in both shaft_load_pct and input_kw" if len(present) > 1
+                        else "profile has no values")
+                problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id, rule,
+                                      "each profile gives one quantity: shaft_load_pct or input_kw"))
+                continue
+            quantity = present[0]
+            qh = header(quantity)
+            v = values[quantity][idx]
+            blank = np.flatnonzero(~np.isfinite(v) & ~frame[quantity].iloc[idx].notna().to_numpy())
+            if len(blank):  # an interval without a value is a missing interval: filled the same way, with a warning
+                first_stamp = _stamp_as_written(stamp_cells.iloc[idx[blank[0]]])
+                problems.append(warning(source, int(rows[idx[blank[0]]]), qh, None,
+                                        f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row"
+                                        + (f" (at {first_stamp})" if first_stamp else ""),
+                                        "blank intervals are filled from the same weekday and time of day, as missing "
+                                        "intervals are; enter the readings where they exist"))
+            _listed(problems, np.flatnonzero(v < 0),
+                    lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"values must not be negative{where(idx[j])}"),
+                    lambda n: error(source, None, qh, None, f"{n} more negative values in '{profile_id}'"))
+            if quantity == "shaft_load_pct":
+                _listed(problems, np.flatnonzero(v > MAX_LOAD_PCT),
+                        lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]),
+                                        f"shaft load above {MAX_LOAD_PCT:.0f} % of rating{where(idx[j])}",
+                                        "check the unit (percent of rated power) or the rated power of the motor"),
+                        lambda n: error(source, None, qh, None,
+                                        f"{n} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
+                peak = np.nanmax(v) if np.isfinite(v).any() else np.nan
+                if 0 < peak <= 1.0:
+                    problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
+                                            f"profile '{profile_id}' never exceeds {peak:g} % load",
+                                            "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
+            else:
+                limit = float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])
+                _listed(problems, np.flatnonzero(v > limit),
+                        lambda j: error(source, int(rows[idx[j]]), qh, float(v[j]), f"input above {limit:g} kW{where(idx[j])}",
+                                        "is this in W rather than kW? divide by 1000"),
+                        lambda n: error(source, None, qh, None, f"{n} more intervals of '{profile_id}' above {limit:g} kW"))
+            t = stamps[idx]
+            ok = ~t.isna()
+            if not ok.any():
+                continue
+            every = bool(ok.all())  # (the usual profile: every stamp readable, in order, none repeated; no copies then)
+            t_ok = t if every else t[ok]
+            v_ok = v if every else v[ok]
+            ascending = every and bool((np.diff(t_ok.asi8) > 0).all())
+            if ascending:
+                t_sorted, rows_sorted, cells_sorted = t_ok, rows[idx], idx
+                dup = np.zeros(len(t_sorted), dtype=bool)
+            else:
+                order_t = np.argsort(t_ok.asi8, kind="stable")
+                t_sorted = t_ok[order_t]
+                rows_sorted = rows[idx][ok][order_t]
+                cells_sorted = idx[ok][order_t]  # positions in the file's frame, for a timestamp as written
+                dup = t_sorted.duplicated(keep="first")
+                v_ok = v_ok[order_t]
+            _listed(problems, np.flatnonzero(dup),
+                    lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
+                                    f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"),
+                    lambda n: error(source, None, header("timestamp"), None, f"{n} more repeated timestamps in '{profile_id}'"))
+            t_unique = t_sorted if ascending else t_sorted[~dup]
+            v_unique = v_ok if ascending else v_ok[~dup]
+            if len(t_unique) < 2:
+                problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id,
+                                      "a profile needs at least two intervals"))
+                continue
+            step = np.diff(t_unique.asi8) / (60.0 * 1e6)  # microseconds to minutes
+            changes = resolution_changes(step)
+            if changes:
+                rows_changed = rows_sorted[~dup]
+                _listed(problems, changes,
+                        lambda c: error(source, int(rows_changed[c[0]]), header("timestamp"), str(t_unique[c[0]]),
+                                        f"profile '{profile_id}' changes resolution at {t_unique[c[0]]}: every {c[1]:g} min "
+                                        f"before, every {c[2]:g} min from there on",
+                                        "keep one resolution per profile: average the finer part to "
+                                        f"{max(c[1], c[2]):g}-min means (docs/case-format.md, interval profiles)"),
+                        lambda n: error(source, None, header("timestamp"), None,
+                                        f"{n} more changes of resolution in '{profile_id}'"))
+                continue
+            resolution = float(np.median(step))
+            if not any(abs(resolution - r) < 1e-6 for r in ALLOWED_RESOLUTIONS_MIN):
+                problems.append(error(source, int(rows[idx[0]]), header("timestamp"), f"{resolution:g} min",
+                                      f"profile '{profile_id}' has an interval of {resolution:g} min; allowed are 15, 30 or 60 min",
+                                      "resample the data to 15-min, 30-min or hourly means"))
+                continue
+            rows_unique = rows_sorted if ascending else rows_sorted[~dup]
+            # every timestamp on the profile's grid: the resolution's phase that most stamps share
+            res_us = int(round(resolution * 60e6))
+            stamps_us = t_unique.as_unit("us").asi8
+            phase = np.mod(stamps_us, res_us)
+            if (phase == phase[0]).all():  # (one phase: every stamp on it)
+                off = np.zeros(0, dtype=np.intp)
+            else:
+                values_, counts_ = np.unique(phase, return_counts=True)
+                off = np.flatnonzero(phase != values_[np.argmax(counts_)])
+            _listed(problems, off,
+                    lambda j: error(source, int(rows_unique[j]), header("timestamp"), str(t_unique[j]),
+                                    f"timestamp off the {resolution:g}-min grid of profile '{profile_id}'",
+                                    "keep one resolution per profile, each interval starting on it (e.g. hourly on the "
+                                    "hour)"),
                     lambda n: error(source, None, header("timestamp"), None,
-                                    f"{n} more changes of resolution in '{profile_id}'"))
-            continue
-        resolution = float(np.median(step))
-        if not any(abs(resolution - r) < 1e-6 for r in ALLOWED_RESOLUTIONS_MIN):
-            problems.append(error(source, int(rows[idx[0]]), header("timestamp"), f"{resolution:g} min",
-                                  f"profile '{profile_id}' has an interval of {resolution:g} min; allowed are 15, 30 or 60 min",
-                                  "resample the data to 15-min, 30-min or hourly means"))
-            continue
-        rows_unique = rows_sorted if ascending else rows_sorted[~dup]
-        # every timestamp on the profile's grid: the resolution's phase that most stamps share
-        res_us = int(round(resolution * 60e6))
-        stamps_us = t_unique.as_unit("us").asi8
-        phase = np.mod(stamps_us, res_us)
-        if (phase == phase[0]).all():  # (one phase: every stamp on it)
-            off = np.zeros(0, dtype=np.intp)
-        else:
-            values_, counts_ = np.unique(phase, return_counts=True)
-            off = np.flatnonzero(phase != values_[np.argmax(counts_)])
-        _listed(problems, off,
-                lambda j: error(source, int(rows_unique[j]), header("timestamp"), str(t_unique[j]),
-                                f"timestamp off the {resolution:g}-min grid of profile '{profile_id}'",
-                                "keep one resolution per profile, each interval starting on it (e.g. hourly on the "
-                                "hour)"),
-                lambda n: error(source, None, header("timestamp"), None,
-                                f"{n} more timestamps off the grid of '{profile_id}'"))
-        on = np.setdiff1d(np.arange(len(t_unique)), off) if len(off) else np.arange(len(t_unique))
-        step_on = np.diff(stamps_us[on]) / 60e6
-        gaps = np.flatnonzero(step_on > resolution + 1e-6)
-        if len(gaps) and not len(off):
-            n_missing = int(np.sum(np.round(step_on[gaps] / resolution) - 1))
-            first = t_unique[on[gaps[0]]] + pd.Timedelta(minutes=resolution)
-            after = on[gaps[0] + 1]  # the row named is the first one after the gap, quoted as written
-            problems.append(warning(source, int(rows_unique[after]), header("timestamp"),
-                                    _stamp_as_written(stamp_cells.iloc[cells_sorted[~dup][after]]),
-                                    f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}; "
-                                    "this row is the first after the gap",
-                                    "missing intervals are filled from the same weekday and time of day"))
+                                    f"{n} more timestamps off the grid of '{profile_id}'"))
+            on = np.setdiff1d(np.arange(len(t_unique)), off) if len(off) else np.arange(len(t_unique))
+            step_on = np.diff(stamps_us[on]) / 60e6
+            gaps = np.flatnonzero(step_on > resolution + 1e-6)
+            if len(gaps) and not len(off):
+                n_missing = int(np.sum(np.round(step_on[gaps] / resolution) - 1))
+                first = t_unique[on[gaps[0]]] + pd.Timedelta(minutes=resolution)
+                after = on[gaps[0] + 1]  # the row named is the first one after the gap, quoted as written
+                problems.append(warning(source, int(rows_unique[after]), header("timestamp"),
+                                        _stamp_as_written(stamp_cells.iloc[cells_sorted[~dup][after]]),
+                                        f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}; "
+                                        "this row is the first after the gap",
+                                        "missing intervals are filled from the same weekday and time of day"))
         coverage_days = (t_unique[-1] - t_unique[0]).total_seconds() / 86400 + resolution / 1440
         if coverage_days < 364.5:
             problems.append(warning(source, None, header("profile_id"), profile_id,
@@ -1061,6 +1076,37 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                      "n_intervals": len(series), "start": t_unique[0], "end": t_unique[-1],
                      "coverage_days": round(coverage_days, 3)})
     return profiles, pd.DataFrame(info, columns=info_columns)
+
+
+def _quick_profiles(value_columns: list[str], values: dict[str, np.ndarray],
+                    stamps: pd.DatetimeIndex, order: np.ndarray, bounds: np.ndarray, n_profiles: int) -> list:
+    """Profiles that need no row-by-row check: (quantity, resolution [min], greatest value) for each, else None.
+
+    Such a profile's rows are together in the table and in time order at one allowed step (so no repeat,
+    gap or stamp off its grid), every value of its one quantity is readable and within that quantity's
+    bounds, and it has at least two intervals: the checks below would find nothing but its coverage, which
+    is checked for it as for the others.
+    """
+    quick: list = [None] * n_profiles
+    if not n_profiles or not (len(order) and order[0] == 0 and order[-1] == len(order) - 1
+                              and bool((np.diff(order) == 1).all())):
+        return quick
+    n = np.diff(bounds)
+    instants = np.asarray(stamps.asi8)
+    stats = {c: profiles_module.segment_stats(bounds, instants, values[c]) for c in value_columns}
+    allowed_us = np.array([int(r * 60e6) for r in ALLOWED_RESOLUTIONS_MIN], dtype=np.int64)
+    caps = {"shaft_load_pct": MAX_LOAD_PCT,
+            "input_kw": float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])}
+    for c in value_columns:
+        s = stats[c]
+        fine = ((s["finite"] == n) & (n >= 2) & s["all_stamped"] & (s["step_low"] == s["step_high"])
+                & np.isin(s["step_low"], allowed_us) & (s["low"] >= 0) & (s["high"] <= caps[c]))
+        for other in value_columns:
+            if other != c:
+                fine &= stats[other]["finite"] == 0
+        for k in np.flatnonzero(fine):
+            quick[k] = (c, float(s["step_low"][k]) / (60.0 * 1e6), float(s["high"][k]))
+    return quick
 
 
 #: Consecutive intervals at one step that make a stretch of a profile at that resolution (6 hours at

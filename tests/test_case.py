@@ -1038,3 +1038,70 @@ def test_a_contract_far_above_what_the_site_can_draw_is_warned(tmp_path, contrac
     if warned:
         assert found[0].file == "sites.csv" and found[0].column == "tariff_file" and found[0].row == 3
         assert "20,000 kW" in found[0].rule and "about 7,237 kW" in found[0].rule and "base load" in found[0].hint
+
+
+def _profile_table(frame: pd.DataFrame):
+    """A long profile table as read from a Parquet file (typed cells), rows numbered from 2."""
+    from models import io as case_io
+
+    return case_io.RawTable("profiles", "profiles.parquet", frame, np.arange(2, len(frame) + 2), {})
+
+
+def _profiles_both_ways(raw, monkeypatch):
+    """_check_profiles with its one-pass reading of the usual profile, and with every profile checked row by row."""
+    import models.case as case_module
+
+    quick_problems, slow_problems = [], []
+    quick = case_module._check_profiles(raw, "Europe/Berlin", quick_problems)
+    with monkeypatch.context() as mp:
+        mp.setattr(case_module, "_quick_profiles", lambda *args: [None] * args[-1])
+        slow = case_module._check_profiles(raw, "Europe/Berlin", slow_problems)
+    return quick, quick_problems, slow, slow_problems
+
+
+def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_give(monkeypatch):
+    # profiles of every kind side by side: usual ones (hourly and 15-min, in load and in kW, one of fractions, one
+    # short, one stamped at interval ends) and ones the row-by-row checks must take (a gap, a repeat, rows out of
+    # order, a negative value, a blank value); the profiles, their summary and the problems are the same both ways
+    year = pd.date_range("2025-01-01", "2026-01-01", freq="h", inclusive="left", tz="Europe/Berlin")
+    quarter = pd.date_range("2025-03-01", "2025-03-08", freq="15min", inclusive="left", tz="Europe/Berlin")
+    rng = np.random.default_rng(5)
+    parts = []
+
+    def add(pid, stamps, pct=None, kw=None):
+        n = len(stamps)
+        parts.append(pd.DataFrame({"profile_id": pid, "timestamp": stamps,
+                                   "shaft_load_pct": np.full(n, np.nan) if pct is None else pct,
+                                   "input_kw": np.full(n, np.nan) if kw is None else kw}))
+
+    add("YEAR", year, pct=rng.uniform(20, 90, len(year)))
+    add("QUARTER", quarter, pct=rng.uniform(20, 90, len(quarter)))
+    add("KW", year, kw=rng.uniform(5, 50, len(year)))
+    add("FRACTIONS", year, pct=rng.uniform(0.1, 0.9, len(year)))
+    add("ENDS", year + pd.Timedelta(hours=1), pct=rng.uniform(20, 90, len(year)))
+    add("GAP", year.delete(slice(100, 110)), pct=rng.uniform(20, 90, len(year) - 10))
+    add("REPEAT", year.insert(50, year[50]), pct=rng.uniform(20, 90, len(year) + 1))
+    add("NEGATIVE", year, pct=np.r_[-5.0, rng.uniform(20, 90, len(year) - 1)])
+    add("BLANK", year, pct=np.r_[np.nan, rng.uniform(20, 90, len(year) - 1)])
+    shuffled = year[rng.permutation(len(year))]
+    add("SHUFFLED", shuffled, pct=rng.uniform(20, 90, len(year)))
+    frame = pd.concat(parts, ignore_index=True)
+    quick, quick_problems, slow, slow_problems = _profiles_both_ways(_profile_table(frame), monkeypatch)
+    assert [str(p) for p in quick_problems] == [str(p) for p in slow_problems]
+    assert any("never exceeds" in p.rule for p in quick_problems)  # (the fractions are warned)
+    assert any("ends of the intervals" in p.rule for p in quick_problems)
+    assert any("less than a year" in p.rule for p in quick_problems)
+    assert list(quick[0]) == list(slow[0])
+    for pid, series in slow[0].items():
+        pd.testing.assert_series_equal(quick[0][pid], series, check_exact=True)
+    pd.testing.assert_frame_equal(quick[1], slow[1])
+    # the usual ones were read in one pass, the others row by row
+    import models.case as case_module
+
+    codes, uniques = case_module._profile_ids(frame["profile_id"])
+    read_quick = [u for u, q in zip(uniques, case_module._quick_profiles(
+        ["shaft_load_pct", "input_kw"],
+        {c: frame[c].to_numpy(dtype=float) for c in ("shaft_load_pct", "input_kw")},
+        pd.DatetimeIndex(frame["timestamp"]).as_unit("us"), np.arange(len(frame)),
+        np.searchsorted(codes, np.arange(len(uniques) + 1)), len(uniques))) if q is not None]
+    assert read_quick == ["YEAR", "QUARTER", "KW", "FRACTIONS", "ENDS"]
