@@ -1047,7 +1047,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                         f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}; "
                                         "this row is the first after the gap",
                                         "missing intervals are filled from the same weekday and time of day"))
-        coverage_days = (t_unique[-1] - t_unique[0]).total_seconds() / 86400 + resolution / 1440
+        first, last = t_unique[0], t_unique[-1]
+        coverage_days = (last - first).total_seconds() / 86400 + resolution / 1440
         if coverage_days < 364.5:
             problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, less than a year",
@@ -1056,12 +1057,11 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         elif coverage_days > 366.5 + resolution / 1440:
             problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, more than a year "
-                                    f"({t_unique[0]:%Y-%m-%d} to {t_unique[-1]:%Y-%m-%d}): one year is analysed, the "
+                                    f"({first:%Y-%m-%d} to {last:%Y-%m-%d}): one year is analysed, the "
                                     "rest of the profile is not used",
                                     "the analysis year is the one most of the case's intervals fall in, and a profile is "
                                     "moved by whole weeks onto it; give the one year that is most typical, or each "
                                     "year as its own case"))
-        first, last = t_unique[0], t_unique[-1]
         if (first.month == 1 and first.day == 1 and first.hour * 60 + first.minute == int(round(resolution))
                 and last.month == 1 and last.day == 1 and last.hour == 0 and last.minute == 0):
             problems.append(warning(source, None, header("profile_id"), profile_id,
@@ -1070,10 +1070,11 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                     "(each interval an interval late, moved into the next period at a boundary)",
                                     "timestamps mark the start of each interval: shift the data back one interval "
                                     "(\"hour ending\" 01:00 is the hour from 00:00)"))
-        series = pd.Series(v_unique, index=t_unique, name=quantity)
+        # (the values as they are: a view of the table's column for a profile read in one pass, else its own)
+        series = pd.Series(v_unique, index=t_unique, name=quantity, copy=False)
         profiles[profile_id] = series
         info.append({"profile_id": profile_id, "quantity": quantity, "resolution_min": int(round(resolution)),
-                     "n_intervals": len(series), "start": t_unique[0], "end": t_unique[-1],
+                     "n_intervals": len(series), "start": first, "end": last,
                      "coverage_days": round(coverage_days, 3)})
     return profiles, pd.DataFrame(info, columns=info_columns)
 

@@ -620,6 +620,14 @@ def _parquet_frame(data: bytes, table: str) -> pd.DataFrame:
            if mapping.get(normalise_header(name)) == "profile_id" and (pa.types.is_string(kind)
                                                                          or pa.types.is_large_string(kind))]
     arrow = pq.read_table(io.BytesIO(data), read_dictionary=ids or None)
+    # a value column of no value at all beside one with values (a template's other quantity) gives nothing to any
+    # profile (models.case reads past it): not turned into a column of blanks the size of the table
+    quantities = [name for name in arrow.column_names if mapping.get(normalise_header(name)) in ("shaft_load_pct",
+                                                                                                   "input_kw")]
+    if len(quantities) == 2 and arrow.num_rows:
+        empty = [name for name in quantities if arrow.column(name).null_count == arrow.num_rows]
+        if len(empty) == 1:
+            arrow = arrow.drop_columns(empty)
 
     def text(kind):  # (pandas' own text type for text columns, as pandas.read_parquet gives them)
         return pd.StringDtype(na_value=np.nan) if pa.types.is_string(kind) or pa.types.is_large_string(kind) else None

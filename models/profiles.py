@@ -65,7 +65,7 @@ def analysis_index(profiles: dict[str, pd.Series], time_zone: str, used: set[str
     """
     chosen = [s for k, s in profiles.items() if used is None or k in used]
     if chosen:
-        steps = [int(round(np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index))) for s in chosen]
+        steps = [int(round(_typical_step(s.index.asi8) / _unit_per_minute(s.index))) for s in chosen]
         resolution = min(steps)
         counts: dict[int, int] = {}
         for s in chosen:  # each profile's intervals per calendar year of the case zone, from the years' starts
@@ -77,6 +77,14 @@ def analysis_index(profiles: dict[str, pd.Series], time_zone: str, used: set[str
     start = pd.Timestamp(year=year, month=1, day=1, tz=time_zone)
     end = pd.Timestamp(year=year + 1, month=1, day=1, tz=time_zone)
     return pd.date_range(start, end, freq=f"{resolution}min", inclusive="left")
+
+
+def _typical_step(stamps: np.ndarray) -> float:
+    """The median step between sorted stamps [their unit]; the step itself when all are equal (no sort)."""
+    steps = np.diff(stamps)
+    if len(steps) and steps.min() == steps.max():
+        return float(steps[0])
+    return float(np.median(steps))
 
 
 def _intervals_per_year(index: pd.DatetimeIndex, time_zone: str) -> dict[int, int]:
