@@ -40,12 +40,12 @@ PLAN_MAX_S = 130.0
 #: fleet is given too.
 PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
 #: Reading and validating a case [s per asset] and [s per interval of its profiles]: the benchmark's 10,000-asset
-#: fleet took 3.5 s with 400 shared hourly profiles (3.5 million intervals) and 29.4 s with a profile per motor
+#: fleet took 2.4 s with 400 shared hourly profiles (3.5 million intervals) and 16.1 s with a profile per motor
 #: (87.6 million intervals) on 2026-12-04 (benchmarks/bench_fleet.py --assets-per-profile 1, Parquet profiles,
-#: docs/performance.md "2026-12-04: a profile per motor"): (29.4 - 3.5) s over the 84.1 million intervals more,
+#: docs/performance.md "2026-12-04: a profile per motor"): (16.1 - 2.4) s over the 84.1 million intervals more,
 #: and the rest per asset.
-LOAD_S_PER_PROFILE_INTERVAL = (29.4 - 3.5) / (87.6e6 - 3.504e6)
-LOAD_S_PER_ASSET = (3.5 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
+LOAD_S_PER_PROFILE_INTERVAL = (16.1 - 2.4) / (87.6e6 - 3.504e6)
+LOAD_S_PER_ASSET = (2.4 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
 #: A loaded profile's memory per interval [bytes]: its value and its timestamp, 8 bytes each.
 PROFILE_BYTES_PER_INTERVAL = 16
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same

@@ -288,8 +288,8 @@ class TestEstimate:
         assert unkept - unbooked == pytest.approx(43.6 + 3.3 - 24.6 - 1.8, rel=1e-9)
 
     def test_a_profile_per_motor_is_counted_in_the_load_time_and_the_peak(self):
-        # the benchmark's fleet with 400 shared hourly profiles loaded in 3.5 s, with a profile per motor (87.6
-        # million intervals) in 29.4 s (docs/performance.md, "2026-12-04: a profile per motor"); each interval
+        # the benchmark's fleet with 400 shared hourly profiles loaded in 2.4 s, with a profile per motor (87.6
+        # million intervals) in 16.1 s (docs/performance.md, "2026-12-04: a profile per motor"); each interval
         # held takes its value and its timestamp, 8 bytes each
         from dataclasses import replace
 
@@ -299,7 +299,7 @@ class TestEstimate:
         own = replace(shared, profile_intervals=10_000 * 8760)
         a = estimate._estimate(shared, 1, None, True, None, None)
         b = estimate._estimate(own, 1, None, True, None, None)
-        assert b.seconds - a.seconds == pytest.approx(29.4 - 3.5, rel=1e-9)
+        assert b.seconds - a.seconds == pytest.approx(16.1 - 2.4, rel=1e-9)
         assert b.peak_bytes - a.peak_bytes == 16 * (87.6e6 - 3.504e6)
         # the demo's 19 hourly profiles of one year (data/demo/profiles.parquet)
         demo, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
