@@ -760,22 +760,32 @@ def _listed(problems: list[Problem], items, make, summary) -> None:
         problems.append(line)
 
 
+def _profile_id_text(value: object) -> str | None:
+    """A profile id cell as an id: None when blank; a number as written (7.0 is "7"); text stripped."""
+    if _blank(value):
+        return None
+    return str(int(value)) if isinstance(value, float) and value.is_integer() else str(value).strip()
+
+
 def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Return (codes, ids): an integer code per row (-1 when blank) and the ids in order of appearance."""
-    if isinstance(column.dtype, pd.CategoricalDtype) and pd.api.types.is_string_dtype(column.cat.categories.dtype):
-        # text ids read as categories (a long Parquet table): the codes of their text, in order of appearance
+    if isinstance(column.dtype, pd.CategoricalDtype):
+        # ids read as categories (a long Parquet table): each category written as an id once, as a cell would be
+        # (stripped, blank when empty), then the rows' codes of those ids, in order of appearance
+        written = pd.Series(np.asarray(column.cat.categories, dtype=object), dtype=object).map(_profile_id_text)
+        id_of_category, ids = pd.factorize(written, use_na_sentinel=True)
         category = column.cat.codes.to_numpy()
-        codes, seen = pd.factorize(category)  # (a blank is category -1: taken out below)
+        id_of_row = np.where(category >= 0, id_of_category[np.maximum(category, 0)], -1)
+        codes, seen = pd.factorize(id_of_row)  # (a blank is id -1: taken out below)
         blank = np.flatnonzero(seen < 0)
         if len(blank):
             k = int(blank[0])
             codes = np.where(codes == k, -1, np.where(codes > k, codes - 1, codes))
             seen = np.delete(seen, k)
-        return np.asarray(codes), np.asarray(column.cat.categories[seen], dtype=object)
+        return np.asarray(codes), np.asarray(np.asarray(ids, dtype=object)[seen], dtype=object)
     if not pd.api.types.is_string_dtype(column.dtype) or column.dtype == object:
         # numbers (a Parquet id column of floats, a workbook cell) are ids as written: 7.0 is "7"
-        column = column.astype(object).map(lambda v: None if _blank(v) else
-                                           (str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()))
+        column = column.astype(object).map(_profile_id_text)
     codes, uniques = pd.factorize(column, use_na_sentinel=True)
     return np.asarray(codes), np.asarray(uniques, dtype=object)
 
@@ -928,6 +938,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                         "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
             t_unique = stamps[bounds[k]:bounds[k + 1]]
             v_unique = values[quantity][bounds[k]:bounds[k + 1]]
+            if len(value_columns) > 1:  # (a view would hold both quantities' whole columns: its own values)
+                v_unique = np.array(v_unique)
         else:
             has = {c: np.isfinite(values[c][idx]) for c in value_columns}
             present = [c for c in value_columns if has[c].any()]
@@ -1070,7 +1082,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
                                     "(each interval an interval late, moved into the next period at a boundary)",
                                     "timestamps mark the start of each interval: shift the data back one interval "
                                     "(\"hour ending\" 01:00 is the hour from 00:00)"))
-        # (the values as they are: a view of the table's column for a profile read in one pass, else its own)
+        # (the values as they are: a read-only view of the table's one value column for a profile read in one
+        # pass, else its own)
         series = pd.Series(v_unique, index=t_unique, name=quantity, copy=False)
         profiles[profile_id] = series
         info.append({"profile_id": profile_id, "quantity": quantity, "resolution_min": int(round(resolution)),
@@ -1200,7 +1213,7 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
     n = len(column)
     if isinstance(column.dtype, pd.DatetimeTZDtype):
         # instants (a typed Parquet column): the usual long table needs no cell-wise work and no copy
-        parsed = pd.DatetimeIndex(column).as_unit("us")
+        parsed = pd.DatetimeIndex(column).as_unit("us").rename(None)
         instants = parsed.asi8
         if len(instants) and not parsed.hasnans and instants.min() >= _FIRST_US and instants.max() < _END_US:
             return parsed.tz_convert(zone)

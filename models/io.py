@@ -607,35 +607,49 @@ def read_csv_table(path: Path, table: str, source: str | None = None) -> tuple[R
 
 
 def _parquet_frame(data: bytes, table: str) -> pd.DataFrame:
-    """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except that a text id column (``profile_id``
-    of a long profile table) comes as categories: one code per row instead of one string, a fraction of the
-    memory on a fleet of metered motors (tens of millions of rows). The columns are converted one by one,
-    each freed from the Parquet library's memory as it goes, which is then handed back."""
+    """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except in a long profile table: its text id
+    column (``profile_id``) comes as categories, one code per row instead of one string (a fraction of the
+    memory on a fleet of metered motors: tens of millions of rows), and a value column with no value at all
+    beside the other quantity's (a template's other column) is left out, as the profile check reads past it.
+    The columns are converted one by one, each freed from the Parquet library's memory as it goes, which is
+    then handed back."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     mapping = header_map(table)
     schema = pq.read_schema(io.BytesIO(data))
-    ids = [name for name, kind in zip(schema.names, schema.types)
-           if mapping.get(normalise_header(name)) == "profile_id" and (pa.types.is_string(kind)
-                                                                         or pa.types.is_large_string(kind))]
+    named: dict[str, list[str]] = {}  # our column -> the file's columns that map to it
+    for name in schema.names:
+        named.setdefault(mapping.get(normalise_header(name), ""), []).append(name)
+    profiles = table == "profiles"
+    ids = [name for name in named.get("profile_id", ()) if profiles and len(named["profile_id"]) == 1
+           and (pa.types.is_string(schema.field(name).type) or pa.types.is_large_string(schema.field(name).type))]
     arrow = pq.read_table(io.BytesIO(data), read_dictionary=ids or None)
-    # a value column of no value at all beside one with values (a template's other quantity) gives nothing to any
-    # profile (models.case reads past it): not turned into a column of blanks the size of the table
-    quantities = [name for name in arrow.column_names if mapping.get(normalise_header(name)) in ("shaft_load_pct",
-                                                                                                   "input_kw")]
-    if len(quantities) == 2 and arrow.num_rows:
-        empty = [name for name in quantities if arrow.column(name).null_count == arrow.num_rows]
+    quantities = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
+    if profiles and arrow.num_rows and all(len(q) == 1 for q in quantities):  # (one column for each quantity)
+        empty = [q[0] for q in quantities if arrow.column(q[0]).null_count == arrow.num_rows]
         if len(empty) == 1:
             arrow = arrow.drop_columns(empty)
-
-    def text(kind):  # (pandas' own text type for text columns, as pandas.read_parquet gives them)
-        return pd.StringDtype(na_value=np.nan) if pa.types.is_string(kind) or pa.types.is_large_string(kind) else None
-
-    frame = arrow.to_pandas(types_mapper=text, self_destruct=True, split_blocks=True)
+    frame = arrow.to_pandas(types_mapper=_pandas_text_type, self_destruct=True, split_blocks=True)
     del arrow
     pa.default_memory_pool().release_unused()
     return frame
+
+
+def _pandas_text_type(kind):
+    """pandas' own type for an Arrow text column, as ``pandas.read_parquet`` gives it: its ``str`` type where pandas
+    infers one (pandas 3, or 2.x with ``future.infer_string``), else None (the Arrow default, Python strings)."""
+    import pyarrow as pa
+
+    if not (pa.types.is_string(kind) or pa.types.is_large_string(kind)):
+        return None
+    if int(pd.__version__.split(".")[0]) < 3:
+        try:
+            if not pd.get_option("future.infer_string"):
+                return None
+        except (KeyError, pd.errors.OptionError):
+            return None
+    return pd.StringDtype(na_value=np.nan)
 
 
 def read_parquet_table(path: Path, table: str, source: str | None = None) -> tuple[RawTable, list[Problem]]:

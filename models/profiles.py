@@ -92,6 +92,9 @@ def _intervals_per_year(index: pd.DatetimeIndex, time_zone: str) -> dict[int, in
     between the years' starts: two look-ups per year instead of a year per stamp."""
     if not len(index):
         return {}
+    if not index.is_monotonic_increasing:  # (a profile built by hand, out of order: a year per stamp)
+        years, counts = np.unique(index.tz_convert(time_zone).year.to_numpy(), return_counts=True)
+        return {int(y): int(n) for y, n in zip(years, counts)}
     first, last = index[0].tz_convert(time_zone).year, index[-1].tz_convert(time_zone).year
     starts = pd.DatetimeIndex([pd.Timestamp(year=y, month=1, day=1, tz=time_zone) for y in range(first, last + 2)])
     cuts = np.searchsorted(index.asi8, starts.as_unit(index.unit).asi8)

@@ -1059,7 +1059,47 @@ def _profiles_both_ways(raw, monkeypatch):
     return quick, quick_problems, slow, slow_problems
 
 
-def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_give(monkeypatch):
+def _parquet_profiles(tmp_path, frame: pd.DataFrame):
+    """A long profile table written to Parquet and read back as a case reads it."""
+    from models import io as case_io
+
+    path = tmp_path / "profiles.parquet"
+    frame.to_parquet(path, index=False)
+    raw, problems = case_io.read_parquet_table(path, "profiles")
+    assert not problems, [str(p) for p in problems]
+    return raw
+
+
+def test_profile_ids_of_a_parquet_table_are_read_as_cells_are(tmp_path):
+    # ids written as categories (a pandas category column) or as text: stripped, an empty id blank (an error), the
+    # profiles' stamps unnamed, as from a CSV file
+    import models.case as case_module
+
+    stamps = pd.date_range("2025-01-01", periods=48, freq="h", tz="Europe/Berlin")
+    for ids in (pd.Categorical([" A "] * 24 + [""] * 2 + ["B"] * 22), [" A "] * 24 + [""] * 2 + ["B"] * 22):
+        frame = pd.DataFrame({"profile_id": ids, "timestamp": stamps, "shaft_load_pct": 50.0})
+        problems = []
+        profiles, _ = case_module._check_profiles(_parquet_profiles(tmp_path, frame), "Europe/Berlin", problems)
+        assert list(profiles) == ["A", "B"]
+        assert [p.row for p in problems if "'profile_id' is required" in p.rule] == [26, 27]
+        assert profiles["A"].index.name is None and profiles["A"].name == "shaft_load_pct"
+
+
+def test_an_all_blank_value_column_is_left_out_only_beside_the_other_quantity(tmp_path):
+    from models import io as case_io
+
+    stamps = pd.date_range("2025-01-01", periods=48, freq="h", tz="Europe/Berlin")
+    both = pd.DataFrame({"profile_id": "A", "timestamp": stamps, "shaft_load_pct": 50.0, "input_kw": np.nan})
+    assert list(_parquet_profiles(tmp_path, both).frame.columns) == ["profile_id", "timestamp", "shaft_load_pct"]
+    # two headers for one quantity (the column and its alias): both kept, for the check to name the duplicate
+    alias = pd.DataFrame({"profile_id": "A", "timestamp": stamps, "shaft_load_pct": np.nan, "load": 50.0})
+    path = tmp_path / "alias.parquet"
+    alias.to_parquet(path, index=False)
+    raw, problems = case_io.read_parquet_table(path, "profiles")
+    assert len(raw.frame.columns) == 4 and any("appears twice" in p.rule for p in problems)
+
+
+def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_give(monkeypatch, tmp_path):
     # profiles of every kind side by side: usual ones (hourly and 15-min, in load and in kW, one of fractions, one
     # short, one stamped at interval ends) and ones the row-by-row checks must take (a gap, a repeat, rows out of
     # order, a negative value, a blank value); the profiles, their summary and the problems are the same both ways
@@ -1087,6 +1127,12 @@ def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_giv
     add("SHUFFLED", shuffled, pct=rng.uniform(20, 90, len(year)))
     frame = pd.concat(parts, ignore_index=True)
     quick, quick_problems, slow, slow_problems = _profiles_both_ways(_profile_table(frame), monkeypatch)
+    # the same through a Parquet file, as a case reads it (ids as categories, typed stamps)
+    parquet = _profiles_both_ways(_parquet_profiles(tmp_path, frame), monkeypatch)
+    assert [str(p) for p in parquet[1]] == [str(p) for p in parquet[3]] == [str(p) for p in slow_problems]
+    for pid, series in slow[0].items():
+        pd.testing.assert_series_equal(parquet[0][0][pid], series, check_exact=True)
+        pd.testing.assert_series_equal(parquet[2][0][pid], series, check_exact=True)
     assert [str(p) for p in quick_problems] == [str(p) for p in slow_problems]
     assert any("never exceeds" in p.rule for p in quick_problems)  # (the fractions are warned)
     assert any("ends of the intervals" in p.rule for p in quick_problems)
