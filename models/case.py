@@ -774,15 +774,15 @@ def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
         # (stripped, blank when empty), then the rows' codes of those ids, in order of appearance
         written = pd.Series(np.asarray(column.cat.categories, dtype=object), dtype=object).map(_profile_id_text)
         id_of_category, ids = pd.factorize(written, use_na_sentinel=True)
-        category = column.cat.codes.to_numpy()
-        id_of_row = np.where(category >= 0, id_of_category[np.maximum(category, 0)], -1)
-        codes, seen = pd.factorize(id_of_row)  # (a blank is id -1: taken out below)
+        appearance, categories_seen = pd.factorize(column.cat.codes.to_numpy())  # (category -1: a blank cell)
+        id_seen = np.where(categories_seen >= 0, id_of_category[np.maximum(categories_seen, 0)], -1)
+        code_of_seen, seen = pd.factorize(id_seen)  # the ids in order of appearance (id -1, blank: taken out below)
         blank = np.flatnonzero(seen < 0)
         if len(blank):
             k = int(blank[0])
-            codes = np.where(codes == k, -1, np.where(codes > k, codes - 1, codes))
+            code_of_seen = np.where(code_of_seen == k, -1, np.where(code_of_seen > k, code_of_seen - 1, code_of_seen))
             seen = np.delete(seen, k)
-        return np.asarray(codes), np.asarray(np.asarray(ids, dtype=object)[seen], dtype=object)
+        return code_of_seen[appearance], np.asarray(np.asarray(ids, dtype=object)[seen], dtype=object)
     if not pd.api.types.is_string_dtype(column.dtype) or column.dtype == object:
         # numbers (a Parquet id column of floats, a workbook cell) are ids as written: 7.0 is "7"
         column = column.astype(object).map(_profile_id_text)
