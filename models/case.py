@@ -863,8 +863,10 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
     return numeric
 
 
-def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem]) -> tuple[dict[str, pd.Series], pd.DataFrame]:
-    """Type and check long-format interval profiles; return series by id and a summary table."""
+def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
+                    seen: dict | None = None) -> tuple[dict[str, pd.Series], pd.DataFrame]:
+    """Type and check long-format interval profiles; return series by id and a summary table. ``seen["ids"]``
+    is set to every id the table names (accepted or not) once they are read."""
     info_columns = ["profile_id", "quantity", "resolution_min", "n_intervals", "start", "end", "coverage_days"]
     empty_info = pd.DataFrame(columns=info_columns)
     if raw is None or not raw.readable:
@@ -902,6 +904,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
         return raw.headers.get(column, column)
 
     codes, uniques = _profile_ids(frame["profile_id"])
+    if seen is not None:
+        seen["ids"] = uniques
     _listed(problems, np.flatnonzero(codes < 0),
             lambda i: error(source, int(rows[i]), header("profile_id"), None, "'profile_id' is required"),
             lambda n: error(source, None, header("profile_id"), None, f"{n} more rows have no profile_id"))
@@ -926,7 +930,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
     info: list[dict] = []
     # the usual profile, written in order on its grid with every value readable and within bounds, is read
     # from one pass over the table (models.profiles.segment_stats); any other takes the checks row by row below
-    quick = _quick_profiles(value_columns, values, stamps, order, bounds, len(uniques))
+    quick = _quick_profiles(value_columns, values, stamps, grouped, bounds, len(uniques))
     for k, (profile_id, idx) in enumerate(zip(uniques, groups)):
         profile_id = str(profile_id)
         if quick[k] is not None:
@@ -1093,7 +1097,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem])
 
 
 def _quick_profiles(value_columns: list[str], values: dict[str, np.ndarray],
-                    stamps: pd.DatetimeIndex, order: np.ndarray, bounds: np.ndarray, n_profiles: int) -> list:
+                    stamps: pd.DatetimeIndex, grouped: bool, bounds: np.ndarray, n_profiles: int) -> list:
     """Profiles that need no row-by-row check: (quantity, resolution [min], greatest value) for each, else None.
 
     Such a profile's rows are together in the table and in time order at one allowed step (so no repeat,
@@ -1102,8 +1106,7 @@ def _quick_profiles(value_columns: list[str], values: dict[str, np.ndarray],
     is checked for it as for the others.
     """
     quick: list = [None] * n_profiles
-    if not n_profiles or not (len(order) and order[0] == 0 and order[-1] == len(order) - 1
-                              and bool((np.diff(order) == 1).all())):
+    if not n_profiles or not grouped:  # (rows of a profile apart: the row-by-row checks)
         return quick
     n = np.diff(bounds)
     instants = np.asarray(stamps.asi8)
@@ -2396,12 +2399,14 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
     for name, checker in checkers.items():
         if name != "options":  # check_options runs its own checker
             frames[name] = checker.run()
-    profiles, profile_info = _check_profiles(raw.tables.get("profiles"), settings.time_zone, problems)
+    seen_profiles: dict = {}
+    profiles, profile_info = _check_profiles(raw.tables.get("profiles"), settings.time_zone, problems, seen_profiles)
     profile_table = raw.tables.get("profiles")
     if profile_table is not None and not profile_table.readable:
         rejected_profiles = None
     elif profile_table is not None and "profile_id" in profile_table.frame.columns:
-        rejected_profiles = set(_profile_ids(profile_table.frame["profile_id"])[1].astype(str)) - set(profiles)
+        ids = seen_profiles["ids"] if "ids" in seen_profiles else _profile_ids(profile_table.frame["profile_id"])[1]
+        rejected_profiles = set(ids.astype(str)) - set(profiles)
     else:
         rejected_profiles = set()
     site_ids = set(frames.get("sites", pd.DataFrame({"site_id": []}))["site_id"].dropna())

@@ -147,7 +147,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     dask : bool, optional
         The Dask engine (default: when ``workers`` > 1); a Dask run of one worker is not the local engine.
     budgets : models.operation.MemoryBudgets, optional
-        What the run keeps in memory (default: this module's view of :mod:`models.operation`'s budgets).
+        What the run keeps in memory (default :func:`models.operation.default_budgets`).
 
     Returns
     -------
@@ -228,8 +228,9 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     # above its budget today's power lives in a mapped file the system may write out: counted at the budget
     store = interval_bytes(n_a, n_o, n_t) if dense else min(today, b.today_in_memory_bytes)
     site_bytes = interval_bytes(largest, 1, n_t) + 8 * largest * n_t  # the site's today's power and its loads
+    dense_block = _dense_block_bytes(min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1))), n_o, n_t)
     if dense:
-        block = _dense_block_bytes(min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1))), n_o, n_t)
+        block = dense_block
     else:
         block_assets = min(largest, max(1, b.curve_chunk_elements // max(n_t, 1)))
         block = CURVE_BLOCK_BYTES_PER_ELEMENT * block_assets * n_t
@@ -254,8 +255,7 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     economics_peak = interval_bytes(largest, 1, n_t) + ECONOMICS_BYTES_PER_PAIR * n_a * n_o + kept_rows
     if not dense and unbooked > 0:  # a block of every option recomputed, per thread of the plan's bills, where they
         # read a site without books
-        economics_peak += local_threads * _dense_block_bytes(min(largest, max(1, CHUNK_ELEMENTS // max(n_t, 1))),
-                                                             n_o, n_t)
+        economics_peak += local_threads * dense_block
     n_workers = min(int(workers), max(size.n_sites, 1)) if dask else 0
     if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes

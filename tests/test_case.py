@@ -1148,6 +1148,6 @@ def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_giv
     read_quick = [u for u, q in zip(uniques, case_module._quick_profiles(
         ["shaft_load_pct", "input_kw"],
         {c: frame[c].to_numpy(dtype=float) for c in ("shaft_load_pct", "input_kw")},
-        pd.DatetimeIndex(frame["timestamp"]).as_unit("us"), np.arange(len(frame)),
+        pd.DatetimeIndex(frame["timestamp"]).as_unit("us"), True,
         np.searchsorted(codes, np.arange(len(uniques) + 1)), len(uniques))) if q is not None]
     assert read_quick == ["YEAR", "QUARTER", "KW", "FRACTIONS", "ENDS"]
