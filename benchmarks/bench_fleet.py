@@ -345,6 +345,8 @@ def main(argv: list[str] | None = None) -> None:
                         help="time limit of the exact plan (as drivecase run --plan-seconds; default 60)")
     parser.add_argument("--assets-per-profile", type=int, default=25, metavar="N",
                         help="motors sharing one load profile in the synthetic fleets (default 25; 1: one each)")
+    parser.add_argument("--step-minutes", type=int, choices=(60, 30, 15), default=60,
+                        help="the synthetic profiles' step in minutes (default 60: 8,760 a year; 15: 35,040)")
     parser.add_argument("--max-memory", type=float, metavar="GIB",
                         help="fit the run's memory budgets to this peak (as drivecase run --max-memory)")
     parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
@@ -365,7 +367,7 @@ def main(argv: list[str] | None = None) -> None:
     with tempfile.TemporaryDirectory(prefix="drivecase-bench-") as tmp:
         for n in args.assets:
             folder = write_fleet(Path(tmp) / f"fleet{n}", n, args.sites, budgets=args.budgets,
-                                 assets_per_profile=args.assets_per_profile)
+                                 assets_per_profile=args.assets_per_profile, step_minutes=args.step_minutes)
             for engine in args.engines:
                 r = run_child(folder, engine, args.plan_gap, args.plan_seconds, args.max_memory)
                 r["budgets"] = args.budgets

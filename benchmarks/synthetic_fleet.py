@@ -13,7 +13,7 @@ Everything written here is made up: sites, motors, profiles. The generator is se
 - ``capacitors.csv``: a fixed bank on every third site, a stepped bank on every third site;
 - ``assets.csv``: a seeded mix of applications, sizes 0.75 kW to 2 MW (log-uniform), control modes,
   classes and ages; about 5 % of assets use annual hours and a mean load instead of a profile;
-- ``profiles.parquet``: hourly shaft-load profiles for one year, shared in groups (about one profile per
+- ``profiles.parquet``: shaft-load profiles for one year (hourly, or at ``step_minutes``), shared in groups (about one profile per
   25 assets by default, ``assets_per_profile``; 1 gives each motor its own, as metered fleets have), each
   with its own daily and seasonal shape, so the machines see varied loads;
 - no ``options.csv``: the default catalogue applies, every option of it.
@@ -51,6 +51,8 @@ ASSET_COLUMNS = ["asset_id", "site_id", "description", "application", "load_type
                  "rated_v_v", "efficiency_class", "year_installed", "rewind_count", "speed_control", "profile_id",
                  "operating_h_per_yr", "mean_load_pct", "criticality"]
 ASSETS_PER_PROFILE = 25
+#: Profile steps the generator writes, minutes.
+STEPS_MIN = (60, 30, 15)
 
 CASE_TOML = '''# INVENTED SYNTHETIC FLEET for benchmarks: every name and number is made up.
 [case]
@@ -71,9 +73,10 @@ def _csv(rows: list[list], columns: list[str]) -> str:
     return buffer.getvalue()
 
 
-def _profiles(rng: np.random.Generator, n_profiles: int) -> pd.DataFrame:
-    index = pd.date_range(f"{YEAR}-01-01", f"{YEAR + 1}-01-01", freq="h", inclusive="left", tz=ZONE)
-    hour = index.hour.to_numpy()
+def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60) -> pd.DataFrame:
+    index = pd.date_range(f"{YEAR}-01-01", f"{YEAR + 1}-01-01", freq=f"{int(step_minutes)}min", inclusive="left",
+                          tz=ZONE)
+    hour = index.hour.to_numpy() + index.minute.to_numpy() / 60.0
     weekday = index.day_of_week.to_numpy()
     season = np.cos(2 * np.pi * (index.day_of_year.to_numpy() - 200) / 365.0)
     frames = []
@@ -119,7 +122,7 @@ def _finance_toml(n_assets: int, budgets: str) -> str:
 
 
 def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int = 20260601,
-                budgets: str = "per_asset", assets_per_profile: int = ASSETS_PER_PROFILE) -> Path:
+                budgets: str = "per_asset", assets_per_profile: int = ASSETS_PER_PROFILE, step_minutes: int = 60) -> Path:
     """Write a synthetic case folder with ``n_assets`` motors on ``n_sites`` sites; return its path.
 
     Parameters
@@ -135,6 +138,10 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
     budgets : {"per_asset", "demo"}
         Capital budgets: the demo's budgets times n_assets / (the demo's number of assets), or the demo's
         own (a very tight budget for a large fleet).
+    assets_per_profile : int
+        Motors sharing one profile, >= 1.
+    step_minutes : int
+        The profiles' step in minutes, one of :data:`STEPS_MIN` (60: 8,760 intervals a year; 15: 35,040).
     """
     if n_assets < 1 or not 1 <= n_sites <= n_assets:
         raise ValueError("need n_assets >= 1 and 1 <= n_sites <= n_assets")
@@ -143,6 +150,8 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
     (out / "tariffs").mkdir(parents=True, exist_ok=True)
     if assets_per_profile < 1:
         raise ValueError("need assets_per_profile >= 1")
+    if step_minutes not in STEPS_MIN:
+        raise ValueError(f"step_minutes must be one of {STEPS_MIN}, got {step_minutes!r}")
     n_profiles = max(1, n_assets // int(assets_per_profile))
     sites, caps = [], []
     for s in range(n_sites):
@@ -185,7 +194,7 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
     (out / "duty.csv").write_text("profile_id,shaft_load_pct,duration_h_per_yr\n", encoding="utf-8")
     (out / "case.toml").write_text(CASE_TOML.format(n=n_assets, s=n_sites), encoding="utf-8")
     (out / "finance.toml").write_text(_finance_toml(n_assets, budgets), encoding="utf-8")
-    _profiles(rng, n_profiles).to_parquet(out / "profiles.parquet", index=False)
+    _profiles(rng, n_profiles, step_minutes).to_parquet(out / "profiles.parquet", index=False)
     return out
 
 
@@ -199,8 +208,11 @@ def main(argv: list[str] | None = None) -> None:
                         help="capital budgets: the demo's per motor (default) or the demo's own")
     parser.add_argument("--assets-per-profile", type=int, default=ASSETS_PER_PROFILE,
                         help=f"motors sharing one profile (default {ASSETS_PER_PROFILE}; 1: a profile of its own each)")
+    parser.add_argument("--step-minutes", type=int, choices=STEPS_MIN, default=60,
+                        help="the profiles' step in minutes (default 60: 8,760 a year; 15: 35,040)")
     args = parser.parse_args(argv)
-    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets, args.assets_per_profile))
+    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets, args.assets_per_profile,
+                      args.step_minutes))
 
 
 if __name__ == "__main__":

@@ -24,7 +24,7 @@ from typing import Callable
 
 from models import finance
 from models.estimate import BOOK_BYTES_PER_ASSET_STEP
-from models.memory import retained_memory
+from models.memory import retained_memory, worker_environment
 from models.operation import MemoryBudgets, case_index, site_case
 from models.scenario import PRECISE_PLAN, PhysicsMerger, PlanSettings, ScenarioResult, economics, site_physics
 from models.wording import counted
@@ -312,6 +312,7 @@ def check_scheduler_address(address: str, connect_s: float = PROBE_CONNECT_S,
 def _client(scheduler: str | None, n_workers: int, processes: bool):
     """Return (client, cluster or None): a client of the given scheduler (checked first,
     :func:`check_scheduler_address`), or of a new local cluster."""
+    import dask
     from distributed import Client, LocalCluster
 
     if scheduler:
@@ -324,10 +325,21 @@ def _client(scheduler: str | None, n_workers: int, processes: bool):
     # the terminal reaches the whole process group, and the run, not each worker, is to stop and close them
     quiet = processes and threading.current_thread() is threading.main_thread()
     before = signal.signal(signal.SIGINT, signal.SIG_IGN) if quiet else None
+    # the workers' processes start with one heap for their threads (models.memory.one_heap), as the command has
+    # (the nannies put it in this process's environment to pass it on: it is taken back out once they started)
+    environ = dict(dask.config.get("distributed.nanny.pre-spawn-environ", {}) or {})
+    heap = worker_environment({k: str(v) for k, v in {**os.environ, **environ}.items()})
+    given = {name: os.environ.get(name) for name in heap}
     try:
-        cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
-                               dashboard_address=":0", silence_logs=logging.CRITICAL)
+        with dask.config.set({"distributed.nanny.pre-spawn-environ": {**environ, **heap}}):
+            cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
+                                   dashboard_address=":0", silence_logs=logging.CRITICAL)
     finally:
+        for name, value in given.items():
+            if value is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = value
         if quiet:
             signal.signal(signal.SIGINT, before)
     return Client(cluster), cluster

@@ -414,3 +414,22 @@ def test_every_worker_gone_during_the_run_is_named_not_waited_on_for_ever(fleet,
         assert len(raised) == 1 and isinstance(raised[0], TimeoutError)
         assert re.search(r"every worker left the scheduler during the run and none joined within 1 s; start one .*"
                          + re.escape(f"`dask worker {local.scheduler_address}`"), str(raised[0]))
+
+
+def test_the_local_clusters_workers_start_with_one_heap(monkeypatch):
+    """A worker process of the cluster a run starts allocates from one heap (models.memory.one_heap), set by the
+    glibc tunable in its environment at its start; one set by the user is kept."""
+    import os
+
+    from models import distributed as engine
+    from models.memory import worker_environment
+
+    monkeypatch.delenv("GLIBC_TUNABLES", raising=False)
+    client, local = engine._client(None, 1, True)
+    try:
+        seen = client.run(lambda: os.environ.get("GLIBC_TUNABLES"))
+    finally:
+        client.close()
+        local.close()
+    assert list(seen.values()) == [worker_environment({}).get("GLIBC_TUNABLES")]
+    assert "GLIBC_TUNABLES" not in os.environ  # this process's environment is left as it was

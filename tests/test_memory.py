@@ -114,3 +114,87 @@ def test_a_run_gives_the_same_bits_with_and_without_it(demo_case, monkeypatch):
             assert_array_equal(a, getattr(without.savings, f.name))
             compared += 1
     assert compared >= 3
+
+
+#: A worker thread allocates, frees and allocates again an array above glibc's 64 MiB thread heaps, within
+#: retained_memory, and prints the minor page faults of each allocation's first write (its own thread's count).
+_PROBE = """
+import sys
+if sys.argv[1] == "one_heap":
+    from models.memory import one_heap
+    assert one_heap()
+elif sys.argv[1] == "command":
+    import drivecase.cli  # the command sets one heap on import, before pandas
+import resource, threading
+import numpy as np
+from models.memory import retained_memory
+
+def faults(n):
+    before = resource.getrusage(resource.RUSAGE_THREAD).ru_minflt
+    a = np.empty(n)
+    a.fill(1.0)
+    del a
+    return resource.getrusage(resource.RUSAGE_THREAD).ru_minflt - before
+
+out = []
+def work():
+    with retained_memory():
+        n = 100 * 2**20 // 8  # 100 MiB
+        out.extend([faults(n), faults(n), faults(n)])
+t = threading.Thread(target=work)
+t.start()
+t.join()
+print(*out)
+"""
+
+
+@pytest.mark.skipif(memory._glibc() is None, reason="the heap settings are glibc's (Linux)")
+class TestOneHeap:
+    """Without one heap, every 100 MiB array of a worker thread is a fresh mapping: each first write faults
+    its 25,600 pages (100 MiB / 4 KiB). With it, the second and third arrays reuse the first's memory."""
+
+    def _faults(self, mode: str) -> list[int]:
+        import subprocess
+        import sys
+        from pathlib import Path
+
+        root = Path(__file__).resolve().parents[1]
+        done = subprocess.run([sys.executable, "-c", _PROBE, mode], cwd=root, capture_output=True, text=True,
+                              check=True, timeout=120)
+        return [int(v) for v in done.stdout.split()]
+
+    def test_a_worker_thread_maps_large_arrays_afresh_by_default(self):
+        first, second, third = self._faults("default")
+        pages = 100 * 2**20 // 4096  # 25,600 (hand calculation: 100 MiB in 4 KiB pages)
+        assert first >= 0.9 * pages
+        assert second >= 0.9 * pages and third >= 0.9 * pages
+
+    def test_one_heap_reuses_them(self):
+        first, second, third = self._faults("one_heap")
+        pages = 100 * 2**20 // 4096
+        assert first >= 0.9 * pages  # the heap grows once
+        assert second < 0.05 * pages and third < 0.05 * pages
+
+    def test_the_command_sets_it_before_anything_else(self):
+        first, second, third = self._faults("command")
+        pages = 100 * 2**20 // 4096
+        assert second < 0.05 * pages and third < 0.05 * pages
+
+
+class TestWorkerEnvironment:
+    def test_adds_one_heap_to_the_tunables_given(self, monkeypatch):
+        monkeypatch.setattr(memory.platform, "system", lambda: "Linux")
+        monkeypatch.setattr(memory.platform, "libc_ver", lambda: ("glibc", "2.36"))
+        assert memory.worker_environment({}) == {"GLIBC_TUNABLES": "glibc.malloc.arena_max=1"}
+        assert memory.worker_environment({"GLIBC_TUNABLES": "glibc.malloc.tcache_count=0"}) == {
+            "GLIBC_TUNABLES": "glibc.malloc.tcache_count=0:glibc.malloc.arena_max=1"}
+
+    def test_keeps_a_number_of_arenas_set_by_the_user(self, monkeypatch):
+        monkeypatch.setattr(memory.platform, "system", lambda: "Linux")
+        monkeypatch.setattr(memory.platform, "libc_ver", lambda: ("glibc", "2.36"))
+        given = {"GLIBC_TUNABLES": "glibc.malloc.arena_max=4"}
+        assert memory.worker_environment(given) == given
+
+    def test_nothing_elsewhere_than_glibc(self, monkeypatch):
+        monkeypatch.setattr(memory.platform, "system", lambda: "Darwin")
+        assert memory.worker_environment({}) == {}
