@@ -51,6 +51,9 @@ ASSET_COLUMNS = ["asset_id", "site_id", "description", "application", "load_type
                  "rated_v_v", "efficiency_class", "year_installed", "rewind_count", "speed_control", "profile_id",
                  "operating_h_per_yr", "mean_load_pct", "criticality"]
 ASSETS_PER_PROFILE = 25
+#: Rows of the profiles' table held and written at once (a fleet of metered 15-minute profiles has hundreds of
+#: millions of rows).
+ROWS_PER_WRITE = 2**23
 #: Profile steps the generator writes, minutes.
 STEPS_MIN = (60, 30, 15)
 
@@ -73,13 +76,15 @@ def _csv(rows: list[list], columns: list[str]) -> str:
     return buffer.getvalue()
 
 
-def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60) -> pd.DataFrame:
+def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60):
+    """The profiles' rows, profile after profile, as frames of about :data:`ROWS_PER_WRITE` rows each."""
     index = pd.date_range(f"{YEAR}-01-01", f"{YEAR + 1}-01-01", freq=f"{int(step_minutes)}min", inclusive="left",
                           tz=ZONE)
     hour = index.hour.to_numpy() + index.minute.to_numpy() / 60.0
     weekday = index.day_of_week.to_numpy()
     season = np.cos(2 * np.pi * (index.day_of_year.to_numpy() - 200) / 365.0)
-    frames = []
+    per_write = max(1, ROWS_PER_WRITE // len(index))
+    ids, loads = [], []
     for k in range(n_profiles):
         kind = k % 4
         level = rng.uniform(0.45, 0.85)
@@ -92,9 +97,31 @@ def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60)
         elif kind == 2:  # cycling on and off
             load = np.where(rng.random(len(index)) < 0.6, load, 0.0)
         values = np.where(load > 0, np.clip(load, 0.15, 1.05), 0.0)
-        frames.append(pd.DataFrame({"profile_id": f"P{k:04d}", "timestamp": index,
-                                    "shaft_load_pct": np.round(100 * values, 2), "input_kw": np.nan}))
-    return pd.concat(frames, ignore_index=True)
+        ids.append(f"P{k:04d}")
+        loads.append(np.round(100 * values, 2))
+        if len(ids) == per_write or k == n_profiles - 1:
+            n = len(ids)
+            yield pd.DataFrame({"profile_id": np.repeat(np.array(ids, dtype=object), len(index)),
+                                "timestamp": np.tile(index, n) if n > 1 else index,
+                                "shaft_load_pct": np.concatenate(loads), "input_kw": np.full(n * len(index), np.nan)})
+            ids, loads = [], []
+
+
+def _write_profiles(path: Path, frames) -> None:
+    """Write the profiles' frames to one Parquet file, a row group or more each (memory stays one frame's)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    writer = None
+    try:
+        for frame in frames:
+            table = pa.Table.from_pandas(frame, preserve_index=False)
+            if writer is None:
+                writer = pq.ParquetWriter(path, table.schema)
+            writer.write_table(table)
+    finally:
+        if writer is not None:
+            writer.close()
 
 
 def _tariff_text(name: str) -> str:
@@ -194,7 +221,7 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
     (out / "duty.csv").write_text("profile_id,shaft_load_pct,duration_h_per_yr\n", encoding="utf-8")
     (out / "case.toml").write_text(CASE_TOML.format(n=n_assets, s=n_sites), encoding="utf-8")
     (out / "finance.toml").write_text(_finance_toml(n_assets, budgets), encoding="utf-8")
-    _profiles(rng, n_profiles, step_minutes).to_parquet(out / "profiles.parquet", index=False)
+    _write_profiles(out / "profiles.parquet", _profiles(rng, n_profiles, step_minutes))
     return out
 
 

@@ -931,6 +931,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
     # the usual profile, written in order on its grid with every value readable and within bounds, is read
     # from one pass over the table (models.profiles.segment_stats); any other takes the checks row by row below
     quick = _quick_profiles(value_columns, values, stamps, grouped, bounds, len(uniques))
+    on_grid: dict[tuple, pd.DatetimeIndex] = {}  # (first stamp, resolution, intervals) -> the profiles' index
     for k, (profile_id, idx) in enumerate(zip(uniques, groups)):
         profile_id = str(profile_id)
         if quick[k] is not None:
@@ -940,7 +941,12 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
                 problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
                                         f"profile '{profile_id}' never exceeds {peak:g} % load",
                                         "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
-            t_unique = stamps[bounds[k]:bounds[k + 1]]
+            # (one index for every profile on the same grid: its start, step and length; a copy, so that the
+            # table's timestamp column is let go once read: half a metered fleet's profile memory)
+            grid = (int(stamps.asi8[bounds[k]]), resolution, int(bounds[k + 1] - bounds[k]))
+            t_unique = on_grid.get(grid)
+            if t_unique is None:
+                t_unique = on_grid[grid] = stamps[bounds[k]:bounds[k + 1]].copy(deep=True)
             v_unique = values[quantity][bounds[k]:bounds[k + 1]]
             if len(value_columns) > 1:  # (a view would hold both quantities' whole columns: its own values)
                 v_unique = np.array(v_unique)

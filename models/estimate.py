@@ -46,7 +46,9 @@ PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
 #: and the rest per asset.
 LOAD_S_PER_PROFILE_INTERVAL = (16.1 - 2.4) / (87.6e6 - 3.504e6)
 LOAD_S_PER_ASSET = (2.4 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
-#: A loaded profile's memory per interval [bytes]: its value and its timestamp, 8 bytes each.
+#: A loaded profile's memory per interval [bytes] when the case's own is not known: its value and its
+#: timestamp, 8 bytes each (profiles on one grid share their timestamps, models.case: a case's profiles are
+#: counted as they are held, :attr:`_RunSize.profile_bytes`).
 PROFILE_BYTES_PER_INTERVAL = 16
 #: Imports and per-run set-up [s]: the demo case's ``drivecase run`` took 3.3 s end to end on the same
 #: machine, 1.5 s more than the per-element costs above give for it.
@@ -160,7 +162,7 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     :data:`DASK_WORKER_COST`) and 1 + g (k - 1) for k local site threads (g = :data:`THREAD_GAIN`), and
     the constants of this module (measured by
     ``benchmarks/bench_fleet.py`` with one thread), with the case's profiles read at
-    :data:`LOAD_S_PER_PROFILE_INTERVAL`. Peak = base + the profiles (:data:`PROFILE_BYTES_PER_INTERVAL`) +
+    :data:`LOAD_S_PER_PROFILE_INTERVAL`. Peak = base + the profiles (as held) +
     per-interval store (every option when
     it fits :data:`models.operation.DENSE_INTERVAL_BUDGET_BYTES`, else today's motors, at most
     :data:`models.operation.TODAY_IN_MEMORY_BUDGET_BYTES`, the rest in a temporary file) + the curve books
@@ -190,13 +192,19 @@ class _RunSize:
     n_sites: int
     largest: int
     profile_intervals: int = 0
+    #: memory the profiles hold [bytes] (None: :data:`PROFILE_BYTES_PER_INTERVAL` per interval)
+    profile_bytes: int | None = None
 
     @classmethod
     def of(cls, case) -> "_RunSize":
         sites = site_partition(case)
+        profiles = getattr(case, "profiles", {})
+        indexes = {id(series.index): series.index for series in profiles.values()}  # (shared by profiles on a grid)
+        held = sum(series.to_numpy().nbytes for series in profiles.values()) + sum(
+            index.nbytes for index in indexes.values())
         return cls(len(case.assets), len(options_with_baseline(case.options)), len(case_index(case)), len(sites),
                    max((len(rows) for _, rows in sites), default=0),
-                   sum(len(series) for series in getattr(case, "profiles", {}).values()))
+                   sum(len(series) for series in profiles.values()), int(held))
 
 
 def _dense_block_bytes(n_assets: int, n_o: int, n_t: int) -> int:
@@ -259,7 +267,8 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     n_workers = min(int(workers), max(size.n_sites, 1)) if dask else 0
     if n_workers and workers_here:  # the workers hold their sites' physics; they are closed before the economics
         physics_peak = n_workers * worker_bytes
-    profiles = PROFILE_BYTES_PER_INTERVAL * size.profile_intervals  # (a profile per motor: 1.3 GiB at 10,000 hourly)
+    profiles = (PROFILE_BYTES_PER_INTERVAL * size.profile_intervals if size.profile_bytes is None
+                else size.profile_bytes)  # (a profile per motor: 0.65 GiB at 10,000 hourly, on one grid)
     peak = BASE_BYTES + profiles + store + books + max(physics_peak, economics_peak)
     kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "

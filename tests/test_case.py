@@ -1151,3 +1151,29 @@ def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_giv
         pd.DatetimeIndex(frame["timestamp"]).as_unit("us"), True,
         np.searchsorted(codes, np.arange(len(uniques) + 1)), len(uniques))) if q is not None]
     assert read_quick == ["YEAR", "QUARTER", "KW", "FRACTIONS", "ENDS"]
+
+
+def test_profiles_on_one_grid_share_one_copy_of_their_timestamps(monkeypatch, tmp_path):
+    # three usual profiles on the same hourly year share one index, its own memory (not a view of the table's
+    # timestamp column, which is then let go); a fourth on another grid (15-min) has its own; the values stay
+    import gc
+    import weakref
+
+    import models.case as case_module
+
+    year = pd.date_range("2025-01-01", "2026-01-01", freq="h", inclusive="left", tz="Europe/Berlin")
+    quarter = pd.date_range("2025-03-01", "2025-03-08", freq="15min", inclusive="left", tz="Europe/Berlin")
+    parts = [pd.DataFrame({"profile_id": pid, "timestamp": year, "shaft_load_pct": 10.0 + k})
+             for k, pid in enumerate(("A", "B", "C"))]
+    parts.append(pd.DataFrame({"profile_id": "Q", "timestamp": quarter, "shaft_load_pct": 50.0}))
+    raw = _parquet_profiles(tmp_path, pd.concat(parts, ignore_index=True))
+    column = weakref.ref(raw.frame["timestamp"].array._ndarray.base if raw.frame["timestamp"].array._ndarray.base
+                         is not None else raw.frame["timestamp"].array._ndarray)
+    profiles, _ = case_module._check_profiles(raw, "Europe/Berlin", [])
+    assert profiles["A"].index is profiles["B"].index is profiles["C"].index
+    assert profiles["Q"].index is not profiles["A"].index and len(profiles["Q"]) == 7 * 96
+    assert profiles["A"].index.equals(year) and profiles["Q"].index.equals(quarter)
+    assert [float(profiles[p].iloc[0]) for p in "ABCQ"] == [10.0, 11.0, 12.0, 50.0]
+    del raw
+    gc.collect()
+    assert column() is None  # the table's timestamps are not held by the profiles

@@ -304,6 +304,9 @@ class TestEstimate:
         # the demo's 19 hourly profiles of one year (data/demo/profiles.parquet)
         demo, _ = load_case(Path(__file__).resolve().parents[1] / "data" / "demo")
         assert estimate._RunSize.of(demo).profile_intervals == 19 * 8760
+        # held: 19 x 8,760 values of 8 bytes, and one timestamp index of 8,760 x 8 bytes that the 19 profiles on
+        # one hourly grid share (hand calculation)
+        assert estimate._RunSize.of(demo).profile_bytes == 19 * 8760 * 8 + 8760 * 8
 
     def test_estimate_refuses_no_workers(self, fleet):
         from models.estimate import estimate_run
