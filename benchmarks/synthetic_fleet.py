@@ -101,8 +101,8 @@ def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60)
         loads.append(np.round(100 * values, 2))
         if len(ids) == per_write or k == n_profiles - 1:
             n = len(ids)
-            yield pd.DataFrame({"profile_id": np.repeat(np.array(ids, dtype=object), len(index)),
-                                "timestamp": np.tile(index, n) if n > 1 else index,
+            yield pd.DataFrame({"profile_id": pd.Categorical.from_codes(np.repeat(np.arange(n), len(index)), ids),
+                                "timestamp": pd.to_datetime(np.tile(index.as_unit("ns").asi8, n), unit="ns", utc=True).tz_convert(ZONE).as_unit("us"),
                                 "shaft_load_pct": np.concatenate(loads), "input_kw": np.full(n * len(index), np.nan)})
             ids, loads = [], []
 
@@ -116,6 +116,9 @@ def _write_profiles(path: Path, frames) -> None:
     try:
         for frame in frames:
             table = pa.Table.from_pandas(frame, preserve_index=False)
+            # ids as plain text, as a table exported from a database or a logger's software has them
+            table = table.set_column(0, pa.field("profile_id", pa.string()), table.column(0).cast(pa.string()))
+            table = table.replace_schema_metadata(None)
             if writer is None:
                 writer = pq.ParquetWriter(path, table.schema)
             writer.write_table(table)

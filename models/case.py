@@ -12,6 +12,7 @@ import datetime as _dt
 import difflib
 import re
 import zoneinfo
+from collections.abc import Sequence
 from functools import lru_cache
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -767,6 +768,24 @@ def _profile_id_text(value: object) -> str | None:
     return str(int(value)) if isinstance(value, float) and value.is_integer() else str(value).strip()
 
 
+class _ProfileRows(Sequence):
+    """The table rows of each profile (``rows[k]``: an integer array, in file order) from the profiles' bounds
+    in the rows sorted by profile, and that order (None: the table's own, its rows made when asked for)."""
+
+    def __init__(self, bounds: np.ndarray, order: np.ndarray | None):
+        self.bounds, self.order = bounds, order
+
+    def __len__(self) -> int:
+        return len(self.bounds) - 1
+
+    def __getitem__(self, k):
+        if isinstance(k, slice):
+            return [self[j] for j in range(*k.indices(len(self)))]
+        k = range(len(self))[k]
+        a, b = int(self.bounds[k]), int(self.bounds[k + 1])
+        return np.arange(a, b) if self.order is None else self.order[a:b]
+
+
 def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Return (codes, ids): an integer code per row (-1 when blank) and the ids in order of appearance."""
     if isinstance(column.dtype, pd.CategoricalDtype):
@@ -774,7 +793,14 @@ def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
         # (stripped, blank when empty), then the rows' codes of those ids, in order of appearance
         written = pd.Series(np.asarray(column.cat.categories, dtype=object), dtype=object).map(_profile_id_text)
         id_of_category, ids = pd.factorize(written, use_na_sentinel=True)
-        appearance, categories_seen = pd.factorize(column.cat.codes.to_numpy())  # (category -1: a blank cell)
+        codes = np.asarray(column.array.codes)  # (a read-only view of the column's codes)
+        if (len(codes) and len(ids) == len(written) and (id_of_category == np.arange(len(written))).all()
+                and codes[0] == 0 and codes[-1] == len(written) - 1 and bool((np.diff(codes) <= 1).all())
+                and bool((codes[1:] >= codes[:-1]).all())):
+            # the usual table: its rows grouped by id, the ids in order and each written once (no blank, none equal
+            # to another once stripped), so the codes are already the ids' in order of appearance: no copy
+            return codes, np.asarray(ids, dtype=object)
+        appearance, categories_seen = pd.factorize(codes)  # (category -1: a blank cell)
         id_seen = np.where(categories_seen >= 0, id_of_category[np.maximum(categories_seen, 0)], -1)
         code_of_seen, seen = pd.factorize(id_seen)  # the ids in order of appearance (id -1, blank: taken out below)
         blank = np.flatnonzero(seen < 0)
@@ -878,7 +904,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
             problems.append(warning(source, None, None, None, "the file holds no rows: no profile is read from it",
                                     "export the profiles again, or delete the file when the case has no profiles"))
         return {}, empty_info
-    rows = np.asarray(raw.rows, dtype=int)
+    rows = np.asarray(raw.rows)  # (integers: 4 bytes each in a long Parquet table)
     known = ("profile_id", "timestamp", "shaft_load_pct", "input_kw")
     for column in frame.columns:
         if column not in known:
@@ -920,11 +946,12 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
         return profile + (f" at {stamp}" if stamp else " (blank timestamp)")
 
     values = {c: _profile_values(frame[c], c, source, rows, header(c), problems, where) for c in value_columns}
-    # rows by profile, each profile's in file order (a table written profile by profile is in that order already)
+    # rows by profile, each profile's in file order (a table written profile by profile is in that order already:
+    # each profile's rows are then made when asked for, not held for the whole table)
     grouped = bool((codes[1:] >= codes[:-1]).all())
-    order = np.arange(len(codes)) if grouped else np.argsort(codes, kind="stable")
+    order = None if grouped else np.argsort(codes, kind="stable")
     bounds = np.searchsorted(codes if grouped else codes[order], np.arange(len(uniques) + 1))
-    groups = [order[bounds[k]:bounds[k + 1]] for k in range(len(uniques))]
+    groups = _ProfileRows(bounds, order)
     stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
     profiles: dict[str, pd.Series] = {}
     info: list[dict] = []
@@ -1206,7 +1233,7 @@ def _is_serial(value: object) -> bool:
 
 
 def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarray, header: str,
-                      problems: list[Problem], groups: list[np.ndarray]) -> pd.DatetimeIndex:
+                      problems: list[Problem], groups: Sequence[np.ndarray]) -> pd.DatetimeIndex:
     """Parse interval-start timestamps into the case zone, NaT where unusable (each reported).
 
     Cells with a UTC offset are converted to the zone; naive cells are local times in the zone,
@@ -1221,11 +1248,13 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
     """
     n = len(column)
     if isinstance(column.dtype, pd.DatetimeTZDtype):
-        # instants (a typed Parquet column): the usual long table needs no cell-wise work and no copy
-        parsed = pd.DatetimeIndex(column).as_unit("us").rename(None)
+        # instants (a typed Parquet column): the usual long table needs no cell-wise work and no copy (an index made
+        # from the column's array, in the zone: the same instants; a unit other than microseconds is converted)
+        stamps = column.array if column.dtype.unit == "us" else column.array.as_unit("us")
+        parsed = pd.DatetimeIndex(stamps.tz_convert(zone), copy=False, name=None)
         instants = parsed.asi8
         if len(instants) and not parsed.hasnans and instants.min() >= _FIRST_US and instants.max() < _END_US:
-            return parsed.tz_convert(zone)
+            return parsed
     if not (pd.api.types.is_datetime64_any_dtype(column.dtype) or pd.api.types.is_string_dtype(column.dtype)):
         column = column.astype(object)  # numbers or mixed cells (Parquet, workbooks)
     if pd.api.types.is_datetime64_any_dtype(column.dtype):

@@ -51,8 +51,16 @@ CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "du
 DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.
 REQUIRED_TABLES: tuple[str, ...] = ("assets", "sites")
-#: Largest file drivecase reads (Parquet profiles), to keep a stray file from exhausting memory [bytes].
-MAX_FILE_BYTES = 512 * 1024 * 1024
+#: Largest Parquet file drivecase reads (long profiles) [bytes]: a year of 15-minute readings of 10,000 metered
+#: motors is about 1 GB; what bounds a larger one is the memory its rows take once read (:data:`PARQUET_ROW_BYTES`).
+MAX_FILE_BYTES = 16 * 2**30
+#: Memory a long profile table's row takes while it is read and checked [bytes]: a resident peak of 13.67 GiB,
+#: 0.25 GiB of it before, for the 350.4 million rows (id, timestamp, load, an empty kW column) of 10,000 metered
+#: 15-minute profiles (benchmarks/synthetic_fleet.py --assets 10000 --step-minutes 15 --assets-per-profile 1,
+#: docs/performance.md): (13.67 - 0.25) GiB / 350.4e6 = 41.1 bytes, and 42 here.
+PARQUET_ROW_BYTES = 42
+#: Share of the machine's free memory a profile table may take once read [-] (as a run's, models.estimate).
+PARQUET_MEMORY_SHARE = 0.8
 #: Largest text file (CSV, TOML) [bytes]: parsed text takes several times its size in memory, so longer
 #: profiles belong in Parquet.
 MAX_TEXT_BYTES = 128 * 1024 * 1024
@@ -294,23 +302,6 @@ def _drop_blank_header_columns(frame: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 # Plain files
 # ---------------------------------------------------------------------------------------------------
-def read_bytes(path: Path, limit: int = MAX_FILE_BYTES) -> bytes:
-    """Read a whole file in one pass (read-only) after checking its size.
-
-    Raises
-    ------
-    ValueError
-        When the file is larger than ``limit`` [bytes].
-    OSError
-        When the file cannot be opened.
-    """
-    size = path.stat().st_size
-    if size > limit:
-        raise ValueError(f"{path.name} is {size / 1e6:.0f} MB, above the {limit / 1e6:.0f} MB limit")
-    with open(path, "rb") as handle:
-        return handle.read()
-
-
 def read_file(path: Path, source: str, limit: int = MAX_FILE_BYTES,
               hint: str = "split the file, or save long profiles as profiles.parquet") -> tuple[bytes | None, list[Problem]]:
     """Read a whole file read-only; a file too large or unreadable becomes a problem instead of an error.
@@ -606,7 +597,39 @@ def read_csv_table(path: Path, table: str, source: str | None = None) -> tuple[R
     return raw, problems + more
 
 
-def _parquet_frame(data: bytes, table: str) -> pd.DataFrame:
+def _parquet_rows(path: Path) -> int:
+    """The number of rows of a Parquet file, from its footer (nothing else is read)."""
+    import pyarrow.parquet as pq
+
+    return int(pq.ParquetFile(path, memory_map=True).metadata.num_rows)
+
+
+def _parquet_all_null(path: Path, column: str) -> bool:
+    """Whether a Parquet file's footer shows a column without any value (False when a row group of it has no
+    null count: it is not known unread)."""
+    import pyarrow.parquet as pq
+
+    meta = pq.ParquetFile(path, memory_map=True).metadata
+    if not meta.num_rows:
+        return False
+    for g in range(meta.num_row_groups):
+        group = meta.row_group(g)
+        chunk = next((group.column(i) for i in range(group.num_columns) if group.column(i).path_in_schema == column),
+                     None)
+        stats = None if chunk is None else chunk.statistics
+        if stats is None or not stats.has_null_count or stats.null_count != group.num_rows:
+            return False
+    return True
+
+
+def available_bytes() -> int:
+    """Memory the machine has available now for a new program [bytes] (``psutil.virtual_memory().available``)."""
+    import psutil
+
+    return int(psutil.virtual_memory().available)
+
+
+def _parquet_frame(path: Path, table: str) -> pd.DataFrame:
     """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except in a long profile table: its text id
     column (``profile_id``) comes as categories, one code per row instead of one string (a fraction of the
     memory on a fleet of metered motors: tens of millions of rows), and a value column with no value at all
@@ -617,16 +640,22 @@ def _parquet_frame(data: bytes, table: str) -> pd.DataFrame:
     import pyarrow.parquet as pq
 
     mapping = header_map(table)
-    schema = pq.read_schema(io.BytesIO(data))
+    schema = pq.read_schema(path, memory_map=True)
     named: dict[str, list[str]] = {}  # our column -> the file's columns that map to it
     for name in schema.names:
         named.setdefault(mapping.get(normalise_header(name), ""), []).append(name)
     profiles = table == "profiles"
     ids = [name for name in named.get("profile_id", ()) if profiles and len(named["profile_id"]) == 1
            and (pa.types.is_string(schema.field(name).type) or pa.types.is_large_string(schema.field(name).type))]
-    arrow = pq.read_table(io.BytesIO(data), read_dictionary=ids or None)
     quantities = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
-    if profiles and arrow.num_rows and all(len(q) == 1 for q in quantities):  # (one column for each quantity)
+    both = profiles and all(len(q) == 1 for q in quantities)  # (one column for each quantity)
+    columns = None
+    if both:  # a column the footer's statistics show empty is not read at all (turning nulls into NaN is dear)
+        empty = [q[0] for q in quantities if _parquet_all_null(path, q[0])]
+        if len(empty) == 1:
+            columns = [name for name in schema.names if name != empty[0]]
+    arrow = pq.read_table(path, columns=columns, read_dictionary=ids or None, memory_map=True)
+    if both and columns is None and arrow.num_rows:  # (no statistics: the column is read, then seen empty)
         empty = [q[0] for q in quantities if arrow.column(q[0]).null_count == arrow.num_rows]
         if len(empty) == 1:
             arrow = arrow.drop_columns(empty)
@@ -655,24 +684,46 @@ def _pandas_text_type(kind):
 def read_parquet_table(path: Path, table: str, source: str | None = None) -> tuple[RawTable, list[Problem]]:
     """Read one Parquet table (long profiles) of a case folder; a damaged file is a problem."""
     source = source or path.name
-    data, problems = read_file(path, source, MAX_FILE_BYTES, "split the profiles over fewer years or assets")
-    if data is None:
-        return _empty_table(table, source), problems
-    if not data:  # nothing to read: say so, rather than what the Parquet library makes of no bytes
-        return _empty_table(table, source), problems + [
+    try:  # (read where it lies, mapped, not copied into memory first: such a file may be gigabytes)
+        size = path.stat().st_size
+        with open(path, "rb"):
+            pass
+    except OSError as exc:
+        return _empty_table(table, source), [
+            error(source, None, None, None, f"the file cannot be read ({exc.strerror or exc.__class__.__name__})",
+                  "check that the file exists and that you may read it")]
+    if size > MAX_FILE_BYTES:
+        return _empty_table(table, source), [
+            error(source, None, None, f"{size / 1e6:,.0f} MB",
+                  f"the file is larger than the {MAX_FILE_BYTES / 1e6:,.0f} MB drivecase reads",
+                  "give motors of one duty a shared profile, or hourly means, or split the fleet into cases")]
+    if not size:  # nothing to read: say so, rather than what the Parquet library makes of no bytes
+        return _empty_table(table, source), [
             error(source, None, None, None, "the file is empty (0 bytes)",
                   "export the profiles again (Parquet, or CSV as profiles.csv); without profiles, delete the file")]
     try:
-        frame = _parquet_frame(data, table)
+        rows = _parquet_rows(path)
+        needed, free = rows * PARQUET_ROW_BYTES, available_bytes()
+        if needed > PARQUET_MEMORY_SHARE * free:
+            return _empty_table(table, source), [
+                error(source, None, None, f"{rows:,} rows",
+                      f"the profiles take about {needed / 2**30:.1f} GiB while they are read, more than "
+                      f"{PARQUET_MEMORY_SHARE:.0%} of the {free / 2**30:.1f} GiB this machine has free",
+                      "close other programs or use a machine with more memory; or give motors of one duty a shared "
+                      "profile, or hourly means, or split the fleet into cases")]
+        frame = _parquet_frame(path, table)
     except Exception as exc:  # pyarrow raises several unrelated types for a damaged file
         return (_empty_table(table, source),
-                problems + [error(source, None, None, None, f"the file cannot be read as Parquet ({exc.__class__.__name__})",
-                                  "export it again, or save it as CSV")])
+                [error(source, None, None, None, f"the file cannot be read as Parquet ({exc.__class__.__name__})",
+                       "export it again, or save it as CSV")])
+    problems: list[Problem] = []
     if not isinstance(frame.index, pd.RangeIndex) or any(n is not None for n in frame.index.names):
         frame = frame.reset_index()  # a timestamp or id saved as the index is a column to us
     names, shown, more = _rename(table, source, list(frame.columns))
     frame.columns = names
-    rows = np.arange(2, len(frame) + 2, dtype=np.int64)
+    # each row's number as a spreadsheet shows it (header row 1); 4 bytes each where they fit (a metered fleet's
+    # table has hundreds of millions of rows)
+    rows = np.arange(2, len(frame) + 2, dtype=np.int32 if len(frame) < 2**31 - 2 else np.int64)
     return RawTable(table, source, frame.reset_index(drop=True), rows, shown), problems + more
 
 

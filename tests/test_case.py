@@ -1177,3 +1177,34 @@ def test_profiles_on_one_grid_share_one_copy_of_their_timestamps(monkeypatch, tm
     del raw
     gc.collect()
     assert column() is None  # the table's timestamps are not held by the profiles
+
+
+def test_each_profiles_rows_from_its_bounds():
+    import models.case as case_module
+
+    bounds = np.array([0, 3, 3, 7])  # three profiles: rows 0-2, none, 3-6
+    in_order = case_module._ProfileRows(bounds, None)
+    assert len(in_order) == 3
+    assert [list(r) for r in in_order] == [[0, 1, 2], [], [3, 4, 5, 6]]
+    assert list(in_order[-1]) == [3, 4, 5, 6] and [list(r) for r in in_order[1:]] == [[], [3, 4, 5, 6]]
+    order = np.array([6, 0, 2, 1, 3, 4, 5])  # the rows sorted by profile
+    assert [list(r) for r in case_module._ProfileRows(bounds, order)] == [[6, 0, 2], [], [1, 3, 4, 5]]
+    with pytest.raises(IndexError):
+        in_order[3]
+
+
+def test_ids_read_as_categories_in_order_are_taken_as_they_are():
+    # a grouped table whose ids are written once each, in order: its codes are the ids' own (no copy); any other
+    # (an id out of order, one stripped to equal another, a blank) goes through the general path, as before
+    import models.case as case_module
+
+    column = pd.Series(pd.Categorical(["A"] * 3 + ["B"] * 2 + ["C"] * 4))
+    codes, ids = case_module._profile_ids(column)
+    assert np.shares_memory(codes, column.array.codes) and list(ids) == ["A", "B", "C"]
+    assert list(codes) == [0, 0, 0, 1, 1, 2, 2, 2, 2]
+    for cells, want_codes, want_ids in (
+            (["B"] * 2 + ["A"] * 3, [0, 0, 1, 1, 1], ["B", "A"]),
+            (["A", "A", " A", "B"], [0, 0, 0, 1], ["A", "B"]),
+            (["A", "A", "", "B"], [0, 0, -1, 1], ["A", "B"])):
+        codes, ids = case_module._profile_ids(pd.Series(pd.Categorical(cells)))
+        assert list(codes) == want_codes and list(ids) == want_ids

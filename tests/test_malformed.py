@@ -522,3 +522,40 @@ class TestFormulaInjection:
         for path in (tmp_path / "out").glob("*.csv"):
             for line in path.read_text(encoding="utf-8").splitlines():
                 assert not line.startswith(("=", "+", "@")) and ",=" not in line and ',"=' not in line, (path.name, line)
+
+    def test_a_parquet_file_over_the_limit_is_refused_unread(self, tmp_path, monkeypatch):
+        from models import io as case_io
+
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "profiles.csv").unlink()
+        with open(folder / "profiles.parquet", "wb") as handle:  # sparse, as above
+            handle.seek(4096)
+            handle.write(b"\n")
+        monkeypatch.setattr(case_io, "MAX_FILE_BYTES", 4096)
+        _check(folder, False, (E("profiles.parquet", None, None, "larger than", "shared profile"),))
+
+    def test_profiles_that_would_not_fit_in_memory_are_refused_before_they_are_read(self, tmp_path, monkeypatch):
+        # the rows from the file's footer, times the memory a row takes while read, against 80 % of the free
+        # memory: 48 rows x 52 bytes = 2,496 bytes against 0.8 x 2,000 = 1,600 bytes free (hand calculation)
+        import pandas as pd
+
+        from models import io as case_io
+
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "profiles.csv").unlink()
+        stamps = pd.date_range("2025-01-01", periods=48, freq="h", tz="UTC")
+        pd.DataFrame({"profile_id": "P1", "timestamp": stamps, "shaft_load_pct": 50.0}).to_parquet(
+            folder / "profiles.parquet", index=False)
+        before = (folder / "profiles.parquet").read_bytes()
+        monkeypatch.setattr(case_io, "available_bytes", lambda: 2_000)
+        read, real = [], case_io._parquet_frame
+        monkeypatch.setattr(case_io, "_parquet_frame", lambda *a: read.append(a) or real(*a))
+        raw, problems = case_io.read_parquet_table(folder / "profiles.parquet", "profiles")
+        assert not read and not raw.readable
+        (p,) = problems
+        assert p.severity == "error" and p.value == "48 rows"
+        assert "more than 80% of the 0.0 GiB this machine has free" in p.rule and "shared profile" in p.hint
+        assert (folder / "profiles.parquet").read_bytes() == before
+        monkeypatch.setattr(case_io, "available_bytes", lambda: 4_000)  # 2,496 <= 3,200: read
+        raw, problems = case_io.read_parquet_table(folder / "profiles.parquet", "profiles")
+        assert read and not problems
