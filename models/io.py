@@ -302,7 +302,7 @@ def _drop_blank_header_columns(frame: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------------------------------------
 # Plain files
 # ---------------------------------------------------------------------------------------------------
-def read_file(path: Path, source: str, limit: int = MAX_FILE_BYTES,
+def read_file(path: Path, source: str, limit: int = MAX_TEXT_BYTES,
               hint: str = "split the file, or save long profiles as profiles.parquet") -> tuple[bytes | None, list[Problem]]:
     """Read a whole file read-only; a file too large or unreadable becomes a problem instead of an error.
 
