@@ -258,7 +258,11 @@ def render(runs: list[dict], mc: dict | None, info: dict) -> str:
              f"Measured by `benchmarks/bench_fleet.py` on {time.strftime('%Y-%m-%d')}: {info['cpu']}, {info['cores']} cores, "
              f"{info['ram_gib']} GiB RAM, Python {info['python']}, numpy {info['numpy']}, pandas {info['pandas']}. "
              "Synthetic fleets of 20 sites (a tariff per site from `data/tariffs/`), every option of the default "
-             "catalogue, one hourly year, capital budgets "
+             "catalogue, one year of "
+             + ", ".join(sorted({"hourly steps" if r["n_steps"] <= 8784 else f"{r['n_steps']:,} steps" for r in runs}))
+             + (", a profile per motor" if any(r.get("assets_per_profile") == 1 for r in runs) else
+                ", profiles shared by about 25 motors")
+             + ", capital budgets "
              + ("the demo's per motor (the demo's budgets x fleet size / the demo's 82 motors)"
                 if all(r.get("budgets", "per_asset") == "per_asset" for r in runs) else "the demo's own")
              + ". Peak memory is the resident set of the process and its Dask workers; machines "
@@ -375,6 +379,7 @@ def main(argv: list[str] | None = None) -> None:
             for engine in args.engines:
                 r = run_child(folder, engine, args.plan_gap, args.plan_seconds, args.max_memory)
                 r["budgets"] = args.budgets
+                r["assets_per_profile"] = args.assets_per_profile
                 print(json.dumps(r), flush=True)
                 runs.append(r)
     out = subprocess.run([sys.executable, __file__, "--mc-child"], check=True, capture_output=True, text=True)

@@ -102,7 +102,8 @@ def _profiles(rng: np.random.Generator, n_profiles: int, step_minutes: int = 60)
         if len(ids) == per_write or k == n_profiles - 1:
             n = len(ids)
             yield pd.DataFrame({"profile_id": pd.Categorical.from_codes(np.repeat(np.arange(n), len(index)), ids),
-                                "timestamp": pd.to_datetime(np.tile(index.as_unit("ns").asi8, n), unit="ns", utc=True).tz_convert(ZONE).as_unit("us"),
+                                "timestamp": pd.to_datetime(np.tile(index.as_unit("ns").asi8, n), unit="ns", utc=True)
+                                .tz_convert(ZONE).as_unit("us"),
                                 "shaft_load_pct": np.concatenate(loads), "input_kw": np.full(n * len(index), np.nan)})
             ids, loads = [], []
 

@@ -23,6 +23,7 @@ import base64
 import binascii
 import hashlib
 import math
+import os
 import re
 import shutil
 import tempfile
@@ -140,9 +141,12 @@ def content_key(path: Path) -> str:
     digest = hashlib.sha256()
     base = path if path.is_dir() else path.parent
     for file in case_files(path):
-        data = file.read_bytes()
         name = file.name if path.is_file() else file.relative_to(base).as_posix()
-        digest.update(name.encode("utf-8") + b"\0" + str(len(data)).encode() + b"\0" + data)
+        with open(file, "rb") as handle:  # (in blocks: a metered fleet's profiles are gigabytes)
+            size = os.fstat(handle.fileno()).st_size
+            digest.update(name.encode("utf-8") + b"\0" + str(size).encode() + b"\0")
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
     return digest.hexdigest()[:32]
 
 

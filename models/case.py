@@ -905,8 +905,8 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
                                     "export the profiles again, or delete the file when the case has no profiles"))
         return {}, empty_info
     rows = np.asarray(raw.rows)  # (integers: 4 bytes each in a long Parquet table)
-    known = ("profile_id", "timestamp", "shaft_load_pct", "input_kw")
-    for column in frame.columns:
+    known = io.PROFILE_COLUMNS
+    for column in list(frame.columns) + [c for c in raw.unread if c not in frame.columns]:
         if column not in known:
             problems.append(warning(source, None, raw.headers.get(column, column), None,
                                     f"unknown column '{raw.headers.get(column, column)}' was ignored",
@@ -950,7 +950,9 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
     # each profile's rows are then made when asked for, not held for the whole table)
     grouped = bool((codes[1:] >= codes[:-1]).all())
     order = None if grouped else np.argsort(codes, kind="stable")
-    bounds = np.searchsorted(codes if grouped else codes[order], np.arange(len(uniques) + 1))
+    # (the profiles' numbers in the codes' own type: numpy would otherwise widen the whole column to compare)
+    numbers = np.arange(len(uniques) + 1, dtype=np.promote_types(codes.dtype, np.min_scalar_type(len(uniques) + 1)))
+    bounds = np.searchsorted(codes if grouped else codes[order], numbers)
     groups = _ProfileRows(bounds, order)
     stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
     profiles: dict[str, pd.Series] = {}

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import logging
 import os
+import threading
 import time
 import uuid
 from typing import Callable
@@ -312,37 +313,52 @@ def check_scheduler_address(address: str, connect_s: float = PROBE_CONNECT_S,
 def _client(scheduler: str | None, n_workers: int, processes: bool):
     """Return (client, cluster or None): a client of the given scheduler (checked first,
     :func:`check_scheduler_address`), or of a new local cluster."""
-    import dask
-    from distributed import Client, LocalCluster
+    from distributed import Client
 
     if scheduler:
         check_scheduler_address(scheduler)
         return Client(scheduler), None
     import signal
-    import threading
 
     # the workers' processes start with Ctrl+C ignored (an ignored signal stays ignored in a child): a Ctrl+C at
     # the terminal reaches the whole process group, and the run, not each worker, is to stop and close them
     quiet = processes and threading.current_thread() is threading.main_thread()
     before = signal.signal(signal.SIGINT, signal.SIG_IGN) if quiet else None
-    # the workers' processes start with one heap for their threads (models.memory.one_heap), as the command has
-    # (the nannies put it in this process's environment to pass it on: it is taken back out once they started)
+    try:
+        with _CLUSTER_START:
+            cluster = _local_cluster(n_workers, processes)
+    finally:
+        if quiet:
+            signal.signal(signal.SIGINT, before)
+    return Client(cluster), cluster
+
+
+#: One local cluster starts at a time: its workers' environment passes through this process's (below).
+_CLUSTER_START = threading.Lock()
+
+
+def _local_cluster(n_workers: int, processes: bool):
+    """A local cluster whose worker processes start with one heap for their threads (models.memory.one_heap), as the
+    command has: a ``GLIBC_TUNABLES`` set by the user is kept, with one heap added. Dask's nannies pass
+    ``distributed.nanny.pre-spawn-environ`` on through this process's environment, whose value wins over the
+    setting's: both are set while the workers start, and this process's environment is put back after."""
+    import dask
+    from distributed import LocalCluster
+
     environ = dict(dask.config.get("distributed.nanny.pre-spawn-environ", {}) or {})
-    heap = worker_environment({k: str(v) for k, v in {**os.environ, **environ}.items()})
+    heap = worker_environment({k: str(v) for k, v in {**environ, **os.environ}.items()})
     given = {name: os.environ.get(name) for name in heap}
     try:
+        os.environ.update(heap)
         with dask.config.set({"distributed.nanny.pre-spawn-environ": {**environ, **heap}}):
-            cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
-                                   dashboard_address=":0", silence_logs=logging.CRITICAL)
+            return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
+                                dashboard_address=":0", silence_logs=logging.CRITICAL)
     finally:
         for name, value in given.items():
             if value is None:
                 os.environ.pop(name, None)
             else:
                 os.environ[name] = value
-        if quiet:
-            signal.signal(signal.SIGINT, before)
-    return Client(cluster), cluster
 
 
 def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: str | None = None,

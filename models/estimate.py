@@ -13,7 +13,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
-from models.io import PARQUET_ROW_BYTES
 from models.io import available_bytes  # noqa: F401 (the machine's free memory, read here as models.estimate's)
 from models.operation import (CHUNK_ELEMENTS, PHYSICS_THREADS, MemoryBudgets, case_index, default_budgets,
                               interval_bytes, options_with_baseline, site_partition)
@@ -178,8 +177,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     assets without books, docs/performance.md "2026-12-04: a run within a memory limit"). On Dask the physics runs in the
     workers: each holds :data:`WORKER_BASE_BYTES` and one site's physics (and, on a dense run, the site's
     every-option power it sends back), counted in the peak when the workers are on this machine (a local
-    cluster is closed before the economics). The peak is at least that of reading the profiles, base +
-    :data:`models.io.PARQUET_ROW_BYTES` per interval (a fleet of metered 15-minute profiles).
+    cluster is closed before the economics). Reading the case, over before the estimate is made, is not
+    counted: a profile table is checked against the free memory before it is read (:mod:`models.io`).
     """
     return _estimate(_RunSize.of(case), workers, threads, workers_here, dask, budgets)
 
@@ -273,9 +272,6 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     profiles = (PROFILE_BYTES_PER_INTERVAL * size.profile_intervals if size.profile_bytes is None
                 else size.profile_bytes)  # (a profile per motor: 0.65 GiB at 10,000 hourly, on one grid)
     peak = BASE_BYTES + profiles + store + books + max(physics_peak, economics_peak)
-    # reading a long profile table takes more than its profiles keep (models.io.PARQUET_ROW_BYTES a row): with a
-    # profile per motor on 15-minute data, more than the run itself
-    peak = max(peak, BASE_BYTES + PARQUET_ROW_BYTES * size.profile_intervals)
     kept = ("every option's per-interval power in memory" if dense else
             "today's motors' per-interval power in memory, and each option's power as a compact table per motor "
             "(the rest is recomputed site by site where a plan needs it)" if books else

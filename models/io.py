@@ -52,13 +52,17 @@ DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.
 REQUIRED_TABLES: tuple[str, ...] = ("assets", "sites")
 #: Largest Parquet file drivecase reads (long profiles) [bytes]: a year of 15-minute readings of 10,000 metered
-#: motors is about 1 GB; what bounds a larger one is the memory its rows take once read (:data:`PARQUET_ROW_BYTES`).
+#: motors is about 1.1 GB; what bounds a smaller one is the memory its rows take once read
+#: (:data:`PARQUET_ROW_BYTES`, :data:`PARQUET_TEXT_CELL_BYTES`).
 MAX_FILE_BYTES = 16 * 2**30
 #: Memory a long profile table's row takes while it is read and checked [bytes]: a resident peak of 13.67 GiB,
 #: 0.25 GiB of it before, for the 350.4 million rows (id, timestamp, load, an empty kW column) of 10,000 metered
 #: 15-minute profiles (benchmarks/synthetic_fleet.py --assets 10000 --step-minutes 15 --assets-per-profile 1,
 #: docs/performance.md): (13.67 - 0.25) GiB / 350.4e6 = 41.1 bytes, and 42 here.
 PARQUET_ROW_BYTES = 42
+#: Memory a text cell of a long profile table takes once read, besides its characters [bytes]: timestamps
+#: written as ISO text took 204 bytes a row against 48 typed (1 million rows, read and checked), so 160 here.
+PARQUET_TEXT_CELL_BYTES = 160
 #: Share of the machine's free memory a profile table may take once read [-] (as a run's, models.estimate).
 PARQUET_MEMORY_SHARE = 0.8
 #: Largest text file (CSV, TOML) [bytes]: parsed text takes several times its size in memory, so longer
@@ -126,6 +130,8 @@ class RawTable:
     rows: object
     headers: dict[str, str] = field(default_factory=dict)
     readable: bool = True
+    #: columns of the file left unread (not known to the table), under their headers
+    unread: tuple[str, ...] = ()
 
 
 @dataclass
@@ -597,29 +603,87 @@ def read_csv_table(path: Path, table: str, source: str | None = None) -> tuple[R
     return raw, problems + more
 
 
-def _parquet_rows(path: Path) -> int:
-    """The number of rows of a Parquet file, from its footer (nothing else is read)."""
+@dataclass(frozen=True)
+class _ParquetPlan:
+    """What reading a Parquet table takes, from its footer: the columns to read (None: all), the ids read as
+    categories, every column of the file under our names in file order, and the memory reading needs [bytes]."""
+
+    rows: int
+    columns: list[str] | None
+    ids: list[str]
+    file_columns: tuple[str, ...]
+    needed_bytes: int
+
+
+#: Columns of a long profile table that are read; any other is named in a warning and left unread.
+PROFILE_COLUMNS = ("profile_id", "timestamp", "shaft_load_pct", "input_kw")
+
+
+def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
+    """Plan the reading of a Parquet table from its footer alone (nothing else of the file is read).
+
+    In a long profile table only the known columns are read (a column a pandas index was saved in too), and a
+    value column whose footer statistics show no value at all beside the other quantity's (a template's other
+    column) is not read either. The memory reading needs is :data:`PARQUET_ROW_BYTES` a row, and for every text
+    column read (other than the ids, read as categories) its uncompressed bytes and :data:`PARQUET_TEXT_CELL_BYTES`
+    a cell.
+    """
+    import pyarrow as pa
     import pyarrow.parquet as pq
 
-    return int(pq.ParquetFile(path, memory_map=True).metadata.num_rows)
+    with open(path, "rb") as handle:  # (the footer read through a file object: closed at once, nothing mapped)
+        meta = pq.ParquetFile(handle).metadata
+    schema = meta.schema.to_arrow_schema()
+    mapping = header_map(table)
+    named: dict[str, list[str]] = {}  # our column -> the file's columns that map to it
+    for name in schema.names:
+        named.setdefault(mapping.get(normalise_header(name), ""), []).append(name)
+    profiles = table == "profiles"
+    ids = [name for name in named.get("profile_id", ()) if profiles and len(named["profile_id"]) == 1
+           and (pa.types.is_string(schema.field(name).type) or pa.types.is_large_string(schema.field(name).type))]
+    ours, _shown, _ = _rename(table, "", list(schema.names))
+    read = list(schema.names)
+    if profiles:
+        read = [name for name, our in zip(schema.names, ours)
+                if our in PROFILE_COLUMNS or " (duplicate " in our or name.startswith("__index_level_")
+                or watt_header_target(table, str(name)) is not None]  # (a column in W: read, to be named an error)
+        quantities = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
+        if all(len(q) == 1 for q in quantities):  # (one column for each quantity)
+            empty = [q[0] for q in quantities if _all_null(meta, q[0])]
+            if len(empty) == 1:
+                read.remove(empty[0])
+    needed = meta.num_rows * PARQUET_ROW_BYTES
+    for name in read:
+        kind = schema.field(name).type
+        if name not in ids and (pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_binary(kind)):
+            needed += _uncompressed_bytes(meta, name) + meta.num_rows * PARQUET_TEXT_CELL_BYTES
+    return _ParquetPlan(int(meta.num_rows), None if read == list(schema.names) else read, ids, tuple(ours),
+                        int(needed))
 
 
-def _parquet_all_null(path: Path, column: str) -> bool:
-    """Whether a Parquet file's footer shows a column without any value (False when a row group of it has no
-    null count: it is not known unread)."""
-    import pyarrow.parquet as pq
-
-    meta = pq.ParquetFile(path, memory_map=True).metadata
-    if not meta.num_rows:
-        return False
+def _column_chunks(meta, column: str):
+    """The chunks of a column in each row group of a Parquet footer (None where a group lacks it)."""
     for g in range(meta.num_row_groups):
         group = meta.row_group(g)
-        chunk = next((group.column(i) for i in range(group.num_columns) if group.column(i).path_in_schema == column),
-                     None)
+        yield group, next((group.column(i) for i in range(group.num_columns)
+                           if group.column(i).path_in_schema == column), None)
+
+
+def _all_null(meta, column: str) -> bool:
+    """Whether a Parquet footer shows a column without any value (False when a row group of it has no null count:
+    it is not known unread)."""
+    if not meta.num_rows:
+        return False
+    for group, chunk in _column_chunks(meta, column):
         stats = None if chunk is None else chunk.statistics
         if stats is None or not stats.has_null_count or stats.null_count != group.num_rows:
             return False
     return True
+
+
+def _uncompressed_bytes(meta, column: str) -> int:
+    """A column's bytes once decompressed, from a Parquet footer."""
+    return sum(int(chunk.total_uncompressed_size) for _, chunk in _column_chunks(meta, column) if chunk is not None)
 
 
 def available_bytes() -> int:
@@ -629,36 +693,28 @@ def available_bytes() -> int:
     return int(psutil.virtual_memory().available)
 
 
-def _parquet_frame(path: Path, table: str) -> pd.DataFrame:
-    """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except in a long profile table: its text id
-    column (``profile_id``) comes as categories, one code per row instead of one string (a fraction of the
-    memory on a fleet of metered motors: tens of millions of rows), and a value column with no value at all
-    beside the other quantity's (a template's other column) is left out, as the profile check reads past it.
-    The columns are converted one by one, each freed from the Parquet library's memory as it goes, which is
-    then handed back."""
+def _parquet_frame(path: Path, table: str, plan: _ParquetPlan | None = None) -> pd.DataFrame:
+    """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except in a long profile table: only the columns
+    of :func:`_parquet_plan` are read; its text id column (``profile_id``) comes as categories, one code per row
+    instead of one string (a fraction of the memory on a fleet of metered motors: hundreds of millions of rows);
+    and a value column with no value at all beside the other quantity's (a template's other column) is left out
+    (read and dropped where the footer has no statistics), as the profile check reads past it. The columns are
+    converted one by one, each freed from the Parquet library's memory as it goes, which is then handed back.
+    The file is read through a file object, not mapped (a file rewritten while mapped would stop the process)."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    mapping = header_map(table)
-    schema = pq.read_schema(path, memory_map=True)
-    named: dict[str, list[str]] = {}  # our column -> the file's columns that map to it
-    for name in schema.names:
-        named.setdefault(mapping.get(normalise_header(name), ""), []).append(name)
-    profiles = table == "profiles"
-    ids = [name for name in named.get("profile_id", ()) if profiles and len(named["profile_id"]) == 1
-           and (pa.types.is_string(schema.field(name).type) or pa.types.is_large_string(schema.field(name).type))]
-    quantities = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
-    both = profiles and all(len(q) == 1 for q in quantities)  # (one column for each quantity)
-    columns = None
-    if both:  # a column the footer's statistics show empty is not read at all (turning nulls into NaN is dear)
-        empty = [q[0] for q in quantities if _parquet_all_null(path, q[0])]
-        if len(empty) == 1:
-            columns = [name for name in schema.names if name != empty[0]]
-    arrow = pq.read_table(path, columns=columns, read_dictionary=ids or None, memory_map=True)
-    if both and columns is None and arrow.num_rows:  # (no statistics: the column is read, then seen empty)
-        empty = [q[0] for q in quantities if arrow.column(q[0]).null_count == arrow.num_rows]
-        if len(empty) == 1:
-            arrow = arrow.drop_columns(empty)
+    plan = plan or _parquet_plan(path, table)
+    with open(path, "rb") as handle:
+        arrow = pq.read_table(handle, columns=plan.columns, read_dictionary=plan.ids or None)
+    if table == "profiles" and arrow.num_rows:  # (no statistics: the empty column is read, then seen empty)
+        mapping = header_map(table)
+        quantities = [[n for n in arrow.column_names if mapping.get(normalise_header(n), "") == c]
+                      for c in ("shaft_load_pct", "input_kw")]
+        if all(len(q) == 1 for q in quantities):
+            empty = [q[0] for q in quantities if arrow.column(q[0]).null_count == arrow.num_rows]
+            if len(empty) == 1:
+                arrow = arrow.drop_columns(empty)
     frame = arrow.to_pandas(types_mapper=_pandas_text_type, self_destruct=True, split_blocks=True)
     del arrow
     pa.default_memory_pool().release_unused()
@@ -684,7 +740,7 @@ def _pandas_text_type(kind):
 def read_parquet_table(path: Path, table: str, source: str | None = None) -> tuple[RawTable, list[Problem]]:
     """Read one Parquet table (long profiles) of a case folder; a damaged file is a problem."""
     source = source or path.name
-    try:  # (read where it lies, mapped, not copied into memory first: such a file may be gigabytes)
+    try:  # (read where it lies, in the Parquet library's own reads: not copied into memory as a whole first)
         size = path.stat().st_size
         with open(path, "rb"):
             pass
@@ -694,24 +750,24 @@ def read_parquet_table(path: Path, table: str, source: str | None = None) -> tup
                   "check that the file exists and that you may read it")]
     if size > MAX_FILE_BYTES:
         return _empty_table(table, source), [
-            error(source, None, None, f"{size / 1e6:,.0f} MB",
-                  f"the file is larger than the {MAX_FILE_BYTES / 1e6:,.0f} MB drivecase reads",
+            error(source, None, None, f"{size / 2**30:,.1f} GiB",
+                  f"the file is larger than the {MAX_FILE_BYTES / 2**30:,.0f} GiB drivecase reads",
                   "give motors of one duty a shared profile, or hourly means, or split the fleet into cases")]
     if not size:  # nothing to read: say so, rather than what the Parquet library makes of no bytes
         return _empty_table(table, source), [
             error(source, None, None, None, "the file is empty (0 bytes)",
                   "export the profiles again (Parquet, or CSV as profiles.csv); without profiles, delete the file")]
     try:
-        rows = _parquet_rows(path)
-        needed, free = rows * PARQUET_ROW_BYTES, available_bytes()
-        if needed > PARQUET_MEMORY_SHARE * free:
+        plan = _parquet_plan(path, table)
+        free = available_bytes()
+        if plan.needed_bytes > PARQUET_MEMORY_SHARE * free:
             return _empty_table(table, source), [
-                error(source, None, None, f"{rows:,} rows",
-                      f"the profiles take about {needed / 2**30:.1f} GiB while they are read, more than "
+                error(source, None, None, f"{plan.rows:,} rows",
+                      f"the profiles take about {plan.needed_bytes / 2**30:.1f} GiB while they are read, more than "
                       f"{PARQUET_MEMORY_SHARE:.0%} of the {free / 2**30:.1f} GiB this machine has free",
                       "close other programs or use a machine with more memory; or give motors of one duty a shared "
                       "profile, or hourly means, or split the fleet into cases")]
-        frame = _parquet_frame(path, table)
+        frame = _parquet_frame(path, table, plan)
     except Exception as exc:  # pyarrow raises several unrelated types for a damaged file
         return (_empty_table(table, source),
                 [error(source, None, None, None, f"the file cannot be read as Parquet ({exc.__class__.__name__})",
@@ -724,7 +780,9 @@ def read_parquet_table(path: Path, table: str, source: str | None = None) -> tup
     # each row's number as a spreadsheet shows it (header row 1); 4 bytes each where they fit (a metered fleet's
     # table has hundreds of millions of rows)
     rows = np.arange(2, len(frame) + 2, dtype=np.int32 if len(frame) < 2**31 - 2 else np.int64)
-    return RawTable(table, source, frame.reset_index(drop=True), rows, shown), problems + more
+    unread = (tuple(c for c in plan.file_columns if c not in names and c not in PROFILE_COLUMNS)
+              if plan.columns is not None else ())
+    return RawTable(table, source, frame.reset_index(drop=True), rows, shown, unread=unread), problems + more
 
 
 def read_toml_file(path: Path, source: str | None = None) -> tuple[dict, list[Problem]]:

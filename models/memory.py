@@ -20,7 +20,7 @@ above it (500 assets x 35,040 steps x 8 bytes = 140 MB), and the plan's check of
 faulted 32 million pages (69 s of system time, docs/performance.md). :func:`one_heap` makes every thread
 allocate from the main heap (``mallopt(M_ARENA_MAX, 1)`` [1]), where the settings above hold. It cannot be
 undone and binds only threads that have not allocated yet, so the front ends (the ``drivecase`` command,
-the Dask workers a run starts, :data:`WORKER_ENVIRONMENT`) set it for their whole process before anything
+the Dask workers a run starts, :func:`worker_environment`) set it for their whole process before anything
 else runs.
 
 References
@@ -82,10 +82,8 @@ def one_heap() -> bool:
     thread that has allocated already keeps its own arena. It cannot be undone. Elsewhere than Linux with
     glibc it does nothing and returns False. See the module's notes for why a run needs it.
 
-    Examples
-    --------
-    >>> isinstance(one_heap(), bool)
-    True
+    The ``drivecase`` command calls it on import of :mod:`drivecase.cli`, before pandas; a script of its own
+    would start ``import models.memory; models.memory.one_heap()`` before its other imports.
     """
     lib = _glibc()
     return lib is not None and bool(lib.mallopt(_M_ARENA_MAX, 1))

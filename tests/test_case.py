@@ -1208,3 +1208,45 @@ def test_ids_read_as_categories_in_order_are_taken_as_they_are():
             (["A", "A", "", "B"], [0, 0, -1, 1], ["A", "B"])):
         codes, ids = case_module._profile_ids(pd.Series(pd.Categorical(cells)))
         assert list(codes) == want_codes and list(ids) == want_ids
+
+
+def test_a_parquet_tables_unknown_and_empty_columns_are_not_read(tmp_path, monkeypatch):
+    # a metered export with a meter serial and a unit beside its values, and the other quantity's column empty:
+    # only the known columns are read, the unknown ones are named in a warning as before, and the empty one is
+    # left out from the footer's statistics; written without statistics, it is read and then dropped: the same
+    import pyarrow.parquet as pq
+
+    import models.case as case_module
+    from models import io as case_io
+
+    stamps = pd.date_range("2025-01-01", periods=48, freq="h", tz="Europe/Berlin")
+    frame = pd.DataFrame({"profile_id": "P1", "meter": "M-001", "timestamp": stamps, "shaft_load_pct": 50.0,
+                          "input_kw": np.nan, "unit": "%"})
+    read = []
+    real = pq.read_table
+    monkeypatch.setattr(pq, "read_table", lambda *a, **k: read.append(k.get("columns")) or real(*a, **k))
+    frames = []
+    for statistics in (True, False):
+        path = tmp_path / f"profiles_{statistics}.parquet"
+        frame.to_parquet(path, index=False, write_statistics=statistics)
+        raw, problems = case_io.read_parquet_table(path, "profiles")
+        assert not problems
+        assert list(raw.frame.columns) == ["profile_id", "timestamp", "shaft_load_pct"]
+        assert raw.unread == ("meter", "unit")
+        warned = []
+        profiles, _ = case_module._check_profiles(raw, "Europe/Berlin", warned)
+        assert [p.rule for p in warned][:2] == ["unknown column 'meter' was ignored", "unknown column 'unit' was ignored"]
+        assert list(profiles) == ["P1"]
+        frames.append(raw.frame)
+    assert read == [["profile_id", "timestamp", "shaft_load_pct"], ["profile_id", "timestamp", "shaft_load_pct", "input_kw"]]
+    pd.testing.assert_frame_equal(frames[0], frames[1])
+
+
+def test_a_parquet_column_in_watts_is_still_named(tmp_path):
+    from models import io as case_io
+
+    stamps = pd.date_range("2025-01-01", periods=48, freq="h", tz="Europe/Berlin")
+    path = tmp_path / "profiles.parquet"
+    pd.DataFrame({"profile_id": "P1", "timestamp": stamps, "input_w": 5000.0}).to_parquet(path, index=False)
+    _raw, problems = case_io.read_parquet_table(path, "profiles")
+    assert any("is in W" in p.rule for p in problems)

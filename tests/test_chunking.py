@@ -308,19 +308,6 @@ class TestEstimate:
         # one hourly grid share (hand calculation)
         assert estimate._RunSize.of(demo).profile_bytes == 19 * 8760 * 8 + 8760 * 8
 
-    def test_the_peak_is_at_least_that_of_reading_the_profiles(self):
-        # 10,000 metered 15-minute profiles, 350.4 million rows, peaked at 13.67 GiB while read (0.25 GiB before;
-        # docs/performance.md), 42 bytes a row as models.io counts it: the estimate's peak is not below it
-        from dataclasses import replace
-
-        from models import estimate
-
-        size = estimate._RunSize(n_a=10_000, n_o=11, n_t=35_040, n_sites=20, largest=534,
-                                 profile_intervals=350_400_000, profile_bytes=350_400_000 * 8)
-        assert estimate._estimate(size, 1, None, True, None, None).peak_bytes >= 13.42 * 2**30
-        shared = replace(size, profile_intervals=400 * 35_040, profile_bytes=400 * 35_040 * 8 + 35_040 * 8)
-        assert estimate._estimate(shared, 1, None, True, None, None).peak_bytes < 13.42 * 2**30
-
     def test_estimate_refuses_no_workers(self, fleet):
         from models.estimate import estimate_run
 

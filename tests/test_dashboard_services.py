@@ -921,3 +921,23 @@ def test_a_scenarios_file_uploads_beside_the_case_and_is_kept_with_other_uploads
     again = eng.accept_upload(up.session, up.key, ["assets.csv"], [data_url(csv_bytes(header, rows))], keep_other_files=True)
     assert again.ok, again.message
     assert [n for n, _ in eng.entry(again.key).case.scenarios] == ["Long view"]
+
+
+def test_the_content_key_hashes_each_file_as_its_name_size_and_bytes(tmp_path):
+    # read in blocks, the key is the one of the whole bytes: sha256 over name, NUL, size, NUL, bytes per file
+    # (hashlib as reference), here for a file longer than one block
+    import hashlib
+
+    from dashboard import services
+
+    folder = tmp_path / "case"
+    folder.mkdir()
+    data = bytes(range(256)) * 8192 + b"tail"  # 2 MiB and 4 bytes
+    (folder / "profiles.parquet").write_bytes(data)
+    (folder / "assets.csv").write_text("asset_id\nA1\n", encoding="utf-8")
+    assert sorted(p.name for p in services.case_files(folder)) == ["assets.csv", "profiles.parquet"]
+    digest = hashlib.sha256()
+    for name in [p.name for p in services.case_files(folder)]:
+        body = (folder / name).read_bytes()
+        digest.update(name.encode() + b"\0" + str(len(body)).encode() + b"\0" + body)
+    assert services.content_key(folder) == digest.hexdigest()[:32]

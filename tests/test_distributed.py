@@ -416,20 +416,49 @@ def test_every_worker_gone_during_the_run_is_named_not_waited_on_for_ever(fleet,
                          + re.escape(f"`dask worker {local.scheduler_address}`"), str(raised[0]))
 
 
-def test_the_local_clusters_workers_start_with_one_heap(monkeypatch):
-    """A worker process of the cluster a run starts allocates from one heap (models.memory.one_heap), set by the
-    glibc tunable in its environment at its start; one set by the user is kept."""
+def _heaps_after_threads_allocate() -> int:
+    """The C library's heaps (arenas) of this process once four new threads have allocated (glibc's malloc_info)."""
+    import ctypes
+    import re
+    import tempfile
+    import threading
+
+    def work():
+        [np.ones(100) for _ in range(100)]
+
+    threads = [threading.Thread(target=work) for _ in range(4)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    libc = ctypes.CDLL("libc.so.6")
+    libc.fopen.restype = ctypes.c_void_p
+    with tempfile.NamedTemporaryFile("r", suffix=".xml") as out:
+        handle = libc.fopen(out.name.encode(), b"w")
+        libc.malloc_info(0, ctypes.c_void_p(handle))
+        libc.fclose(ctypes.c_void_p(handle))
+        return len(re.findall(r"<heap nr=", open(out.name).read()))
+
+
+@pytest.mark.skipif(not __import__("models.memory", fromlist=["_glibc"])._glibc(), reason="glibc's heaps (Linux)")
+@pytest.mark.parametrize("given", [None, "glibc.malloc.tcache_count=0"])
+def test_the_local_clusters_workers_start_with_one_heap(monkeypatch, given):
+    """A worker process of the cluster a run starts allocates from one heap (models.memory.one_heap) in all its
+    threads, set by the glibc tunable at its start, a GLIBC_TUNABLES the user set kept beside it (glibc's own
+    malloc_info counts the heaps); this process's environment is left as it was."""
     import os
 
     from models import distributed as engine
-    from models.memory import worker_environment
 
-    monkeypatch.delenv("GLIBC_TUNABLES", raising=False)
+    if given is None:
+        monkeypatch.delenv("GLIBC_TUNABLES", raising=False)
+    else:
+        monkeypatch.setenv("GLIBC_TUNABLES", given)
     client, local = engine._client(None, 1, True)
     try:
-        seen = client.run(lambda: os.environ.get("GLIBC_TUNABLES"))
+        heaps = client.run(_heaps_after_threads_allocate)
     finally:
         client.close()
         local.close()
-    assert list(seen.values()) == [worker_environment({}).get("GLIBC_TUNABLES")]
-    assert "GLIBC_TUNABLES" not in os.environ  # this process's environment is left as it was
+    assert list(heaps.values()) == [1]
+    assert os.environ.get("GLIBC_TUNABLES") == given

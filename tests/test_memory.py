@@ -158,9 +158,12 @@ class TestOneHeap:
         import sys
         from pathlib import Path
 
+        import os
+
         root = Path(__file__).resolve().parents[1]
+        env = {k: v for k, v in os.environ.items() if k not in ("GLIBC_TUNABLES", "MALLOC_ARENA_MAX")}  # (glibc's own)
         done = subprocess.run([sys.executable, "-c", _PROBE, mode], cwd=root, capture_output=True, text=True,
-                              check=True, timeout=120)
+                              check=True, timeout=120, env=env)
         return [int(v) for v in done.stdout.split()]
 
     def test_a_worker_thread_maps_large_arrays_afresh_by_default(self):
