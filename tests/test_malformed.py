@@ -533,6 +533,7 @@ class TestFormulaInjection:
             handle.write(b"\n")
         monkeypatch.setattr(case_io, "MAX_FILE_BYTES", 4096)
         _check(folder, False, (E("profiles.parquet", None, None, "larger than", "shared profile"),))
+        assert (folder / "profiles.parquet").stat().st_size == 4097  # (left as it was)
 
     def test_profiles_that_would_not_fit_in_memory_are_refused_before_they_are_read(self, tmp_path, monkeypatch):
         # the rows from the file's footer, times the memory a row takes while read, against 80 % of the free
