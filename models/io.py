@@ -58,8 +58,9 @@ MAX_FILE_BYTES = 16 * 2**30
 #: Memory a long profile table's row takes while it is read and checked [bytes]: a resident peak of 13.67 GiB,
 #: 0.25 GiB of it before, for the 350.4 million rows (id, timestamp, load, an empty kW column) of 10,000 metered
 #: 15-minute profiles (benchmarks/synthetic_fleet.py --assets 10000 --step-minutes 15 --assets-per-profile 1,
-#: docs/performance.md): (13.67 - 0.25) GiB / 350.4e6 = 41.1 bytes, and 42 here.
-PARQUET_ROW_BYTES = 42
+#: docs/performance.md): (13.67 - 0.25) GiB / 350.4e6 = 41.1 bytes with the profiles on one grid; 8 bytes more
+#: where each profile starts or ends apart (its timestamps copied while the table's are held): 50 here.
+PARQUET_ROW_BYTES = 50
 #: Memory a text cell of a long profile table takes once read, besides its characters [bytes]: timestamps
 #: written as ISO text took 204 bytes a row against 48 typed (1 million rows, read and checked), so 160 here.
 PARQUET_TEXT_CELL_BYTES = 160

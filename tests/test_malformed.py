@@ -537,7 +537,7 @@ class TestFormulaInjection:
 
     def test_profiles_that_would_not_fit_in_memory_are_refused_before_they_are_read(self, tmp_path, monkeypatch):
         # the rows from the file's footer, times the memory a row takes while read, against 80 % of the free
-        # memory: 48 rows x 42 bytes = 2,016 bytes against 0.8 x 2,000 = 1,600 bytes free (hand calculation; the ids
+        # memory: 48 rows x 50 bytes = 2,400 bytes against 0.8 x 2,000 = 1,600 bytes free (hand calculation; the ids
         # are read as categories and the timestamps are typed, so no text is counted)
         import pandas as pd
 
@@ -558,7 +558,7 @@ class TestFormulaInjection:
         assert p.severity == "error" and p.value == "48 rows"
         assert "more than 80% of the 0.0 GiB this machine has free" in p.rule and "shared profile" in p.hint
         assert (folder / "profiles.parquet").read_bytes() == before
-        monkeypatch.setattr(case_io, "available_bytes", lambda: 4_000)  # 2,016 <= 3,200: read
+        monkeypatch.setattr(case_io, "available_bytes", lambda: 4_000)  # 2,400 <= 3,200: read
         raw, problems = case_io.read_parquet_table(folder / "profiles.parquet", "profiles")
         assert read and not problems
 
@@ -576,4 +576,4 @@ class TestFormulaInjection:
         meta = pq.ParquetFile(path).metadata
         text = sum(meta.row_group(g).column(1).total_uncompressed_size for g in range(meta.num_row_groups))
         plan = case_io._parquet_plan(path, "profiles")
-        assert plan.needed_bytes == 48 * 42 + text + 48 * 160
+        assert plan.needed_bytes == 48 * 50 + text + 48 * 160
