@@ -607,13 +607,17 @@ def read_csv_table(path: Path, table: str, source: str | None = None) -> tuple[R
 @dataclass(frozen=True)
 class _ParquetPlan:
     """What reading a Parquet table takes, from its footer: the columns to read (None: all), the ids read as
-    categories, every column of the file under our names in file order, and the memory reading needs [bytes]."""
+    categories, every column of the file under our names in file order, the memory reading needs [bytes], and the
+    value columns of which one may be empty."""
 
     rows: int
     columns: list[str] | None
     ids: list[str]
     file_columns: tuple[str, ...]
     needed_bytes: int
+    #: the file's two value columns, one per quantity (empty when a quantity has none or several): the one of no
+    #: value is left out
+    quantities: tuple[str, ...] = ()
 
 
 #: Columns of a long profile table that are read; any other is named in a warning and left unread.
@@ -641,25 +645,34 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
         named.setdefault(mapping.get(normalise_header(name), ""), []).append(name)
     profiles = table == "profiles"
     ids = [name for name in named.get("profile_id", ()) if profiles and len(named["profile_id"]) == 1
-           and (pa.types.is_string(schema.field(name).type) or pa.types.is_large_string(schema.field(name).type))]
+           and _is_text(schema.field(name).type)]
     ours, _shown, _ = _rename(table, "", list(schema.names))
     read = list(schema.names)
+    quantities: tuple[str, ...] = ()
     if profiles:
         read = [name for name, our in zip(schema.names, ours)
                 if our in PROFILE_COLUMNS or " (duplicate " in our or name.startswith("__index_level_")
                 or watt_header_target(table, str(name)) is not None]  # (a column in W: read, to be named an error)
-        quantities = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
-        if all(len(q) == 1 for q in quantities):  # (one column for each quantity)
-            empty = [q[0] for q in quantities if _all_null(meta, q[0])]
+        by_quantity = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
+        if all(len(q) == 1 for q in by_quantity):  # (one column for each quantity)
+            quantities = tuple(q[0] for q in by_quantity)
+            empty = [name for name in quantities if _all_null(meta, name)]
             if len(empty) == 1:
                 read.remove(empty[0])
     needed = meta.num_rows * PARQUET_ROW_BYTES
     for name in read:
         kind = schema.field(name).type
-        if name not in ids and (pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_binary(kind)):
+        if name not in ids and (_is_text(kind) or pa.types.is_binary(kind)):
             needed += _uncompressed_bytes(meta, name) + meta.num_rows * PARQUET_TEXT_CELL_BYTES
     return _ParquetPlan(int(meta.num_rows), None if read == list(schema.names) else read, ids, tuple(ours),
-                        int(needed))
+                        int(needed), quantities)
+
+
+def _is_text(kind) -> bool:
+    """Whether an Arrow type is text (``string`` or ``large_string``)."""
+    import pyarrow as pa
+
+    return pa.types.is_string(kind) or pa.types.is_large_string(kind)
 
 
 def _column_chunks(meta, column: str):
@@ -700,22 +713,20 @@ def _parquet_frame(path: Path, table: str, plan: _ParquetPlan | None = None) -> 
     instead of one string (a fraction of the memory on a fleet of metered motors: hundreds of millions of rows);
     and a value column with no value at all beside the other quantity's (a template's other column) is left out
     (read and dropped where the footer has no statistics), as the profile check reads past it. The columns are
-    converted one by one, each freed from the Parquet library's memory as it goes, which is then handed back.
-    The file is read through a file object, not mapped (a file rewritten while mapped would stop the process)."""
+    converted with the Arrow table given up as it goes (``self_destruct``) and the library's memory handed back
+    after; the peak still holds much of both (docs/performance.md). The file is read through a file object, not
+    mapped (a file rewritten while mapped would stop the process)."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     plan = plan or _parquet_plan(path, table)
     with open(path, "rb") as handle:
         arrow = pq.read_table(handle, columns=plan.columns, read_dictionary=plan.ids or None)
-    if table == "profiles" and arrow.num_rows:  # (no statistics: the empty column is read, then seen empty)
-        mapping = header_map(table)
-        quantities = [[n for n in arrow.column_names if mapping.get(normalise_header(n), "") == c]
-                      for c in ("shaft_load_pct", "input_kw")]
-        if all(len(q) == 1 for q in quantities):
-            empty = [q[0] for q in quantities if arrow.column(q[0]).null_count == arrow.num_rows]
-            if len(empty) == 1:
-                arrow = arrow.drop_columns(empty)
+    if len(plan.quantities) == 2 and all(q in arrow.column_names for q in plan.quantities) and arrow.num_rows:
+        # (no statistics: both value columns were read; the one of no value is dropped now)
+        empty = [q for q in plan.quantities if arrow.column(q).null_count == arrow.num_rows]
+        if len(empty) == 1:
+            arrow = arrow.drop_columns(empty)
     frame = arrow.to_pandas(types_mapper=_pandas_text_type, self_destruct=True, split_blocks=True)
     del arrow
     pa.default_memory_pool().release_unused()
@@ -725,9 +736,7 @@ def _parquet_frame(path: Path, table: str, plan: _ParquetPlan | None = None) -> 
 def _pandas_text_type(kind):
     """pandas' own type for an Arrow text column, as ``pandas.read_parquet`` gives it: its ``str`` type where pandas
     infers one (pandas 3, or 2.x with ``future.infer_string``), else None (the Arrow default, Python strings)."""
-    import pyarrow as pa
-
-    if not (pa.types.is_string(kind) or pa.types.is_large_string(kind)):
+    if not _is_text(kind):
         return None
     if int(pd.__version__.split(".")[0]) < 3:
         try:

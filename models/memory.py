@@ -103,7 +103,7 @@ def worker_environment(environ: dict | None = None) -> dict[str, str]:
     dict of str to str
         ``{"GLIBC_TUNABLES": ...}``, or empty where the allocator is not glibc's.
     """
-    if platform.system() != "Linux" or platform.libc_ver()[0] != "glibc":
+    if _glibc() is None:
         return {}
     given = (os.environ if environ is None else environ).get("GLIBC_TUNABLES", "")
     if "glibc.malloc.arena_max=" in given:
