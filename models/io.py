@@ -55,12 +55,17 @@ REQUIRED_TABLES: tuple[str, ...] = ("assets", "sites")
 #: motors is about 1.1 GB; what bounds a smaller one is the memory its rows take once read
 #: (:data:`PARQUET_ROW_BYTES`, :data:`PARQUET_TEXT_CELL_BYTES`).
 MAX_FILE_BYTES = 16 * 2**30
-#: Memory a long profile table's row takes while it is read and checked [bytes]: a resident peak of 13.67 GiB,
-#: 0.25 GiB of it before, for the 350.4 million rows (id, timestamp, load, an empty kW column) of 10,000 metered
-#: 15-minute profiles (benchmarks/synthetic_fleet.py --assets 10000 --step-minutes 15 --assets-per-profile 1,
-#: docs/performance.md): (13.67 - 0.25) GiB / 350.4e6 = 41.1 bytes with the profiles on one grid; 8 bytes more
-#: where each profile starts or ends apart (its timestamps copied while the table's are held): 50 here.
-PARQUET_ROW_BYTES = 50
+#: Memory a long profile table's row takes while it is read and checked [bytes], the table read batch by batch
+#: into its columns (numbers, timestamps and ids, :func:`_parquet_stream`): a resident peak of 7.42 GiB, 0.25 GiB
+#: of it before, for the 350.4 million rows (id, timestamp, load, an empty kW column) of 10,000 metered 15-minute
+#: profiles (benchmarks/synthetic_fleet.py --assets 10000 --step-minutes 15 --assets-per-profile 1,
+#: docs/performance.md): (7.42 - 0.25) GiB / 350.4e6 = 22.0 bytes with the profiles on one grid; 8 bytes more
+#: where each profile starts or ends apart (its timestamps copied while the table's are held): 30 here.
+PARQUET_ROW_BYTES = 30
+#: The same for a table read whole and converted (text read as text, a saved pandas index): its peak holds much
+#: of the Arrow table and the frame at once, 13.67 GiB for the same table read so (41.1 bytes a row; 8 more, as
+#: above): 50 here.
+PARQUET_WHOLE_ROW_BYTES = 50
 #: Memory a text cell of a long profile table takes once read, besides its characters [bytes]: timestamps
 #: written as ISO text took 204 bytes a row against 48 typed (1 million rows, read and checked), so 160 here.
 PARQUET_TEXT_CELL_BYTES = 160
@@ -103,6 +108,44 @@ _CONTROL = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f-\x9f]")
 _TOML_LINE = re.compile(r"at line (\d+)")
 
 
+class RowNumbers:
+    """The row numbers of a table read in one piece, ``first`` to ``first + n - 1``, made when asked for.
+
+    Indexed as the integer array ``numpy.arange(first, first + n)`` would be (an integer, a slice, an array of
+    positions or a boolean mask), without holding it: a long profile table has hundreds of millions of rows.
+    """
+
+    __slots__ = ("first", "n")
+
+    def __init__(self, first: int, n: int):
+        self.first, self.n = int(first), int(n)
+
+    def __len__(self) -> int:
+        return self.n
+
+    def __getitem__(self, k):
+        if isinstance(k, slice):
+            return np.arange(self.first, self.first + self.n)[k]
+        if np.ndim(k) == 0 and not isinstance(k, (bool, np.bool_)):
+            i = range(self.n)[int(k)]  # (negative positions from the end, out of range an IndexError)
+            return self.first + i
+        k = np.asarray(k)
+        if k.dtype == bool:
+            if k.shape != (self.n,):
+                raise IndexError(f"a mask of {k.shape} for {self.n} rows")
+            return np.flatnonzero(k) + self.first
+        positions = k.astype(np.int64)
+        if len(positions) and (positions.min() < -self.n or positions.max() >= self.n):
+            raise IndexError(f"a row position out of 0..{self.n - 1}")
+        return np.where(positions < 0, positions + self.n, positions) + self.first
+
+    def __array__(self, dtype=None, copy=None):
+        return np.arange(self.first, self.first + self.n, dtype=dtype or np.int64)
+
+    def __repr__(self) -> str:
+        return f"RowNumbers({self.first}, {self.n})"
+
+
 @dataclass(frozen=True)
 class RawTable:
     """One table as read: text cells under our column names, with the user's row numbers.
@@ -116,8 +159,9 @@ class RawTable:
     frame : pandas.DataFrame
         Cells as read (strings, numbers or timestamps; blank cells are missing), columns renamed to our
         names. Unknown columns are kept under their original header.
-    rows : numpy.ndarray
-        Row number of each frame row as the user sees it (header row = 1 for a plain file).
+    rows : numpy.ndarray or RowNumbers
+        Row number of each frame row as the user sees it (header row = 1 for a plain file); a Parquet table's
+        are a :class:`RowNumbers`, indexed alike.
     headers : dict
         Our column name -> the header as written in the user's file.
     readable : bool
@@ -618,6 +662,8 @@ class _ParquetPlan:
     #: the file's two value columns, one per quantity (empty when a quantity has none or several): the one of no
     #: value is left out
     quantities: tuple[str, ...] = ()
+    #: read batch by batch into its columns (:func:`_parquet_stream`), not whole
+    streamed: bool = False
 
 
 #: Columns of a long profile table that are read; any other is named in a warning and left unread.
@@ -629,9 +675,9 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
 
     In a long profile table only the known columns are read (a column a pandas index was saved in too), and a
     value column whose footer statistics show no value at all beside the other quantity's (a template's other
-    column) is not read either. The memory reading needs is :data:`PARQUET_ROW_BYTES` a row, and for every text
-    column read (other than the ids, read as categories) its uncompressed bytes and :data:`PARQUET_TEXT_CELL_BYTES`
-    a cell.
+    column) is not read either. The memory reading needs is :data:`PARQUET_ROW_BYTES` a row where the table is read
+    batch by batch (:func:`_streamable`), else :data:`PARQUET_WHOLE_ROW_BYTES`, and for every text column read (other
+    than the ids, read as categories) its uncompressed bytes and :data:`PARQUET_TEXT_CELL_BYTES` a cell.
     """
     import pyarrow as pa
     import pyarrow.parquet as pq
@@ -659,13 +705,14 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
             empty = [name for name in quantities if _all_null(meta, name)]
             if len(empty) == 1:
                 read.remove(empty[0])
-    needed = meta.num_rows * PARQUET_ROW_BYTES
+    streamed = _streamable(meta, schema, read, ids)
+    needed = meta.num_rows * (PARQUET_ROW_BYTES if streamed else PARQUET_WHOLE_ROW_BYTES)
     for name in read:
         kind = schema.field(name).type
         if name not in ids and (_is_text(kind) or pa.types.is_binary(kind)):
             needed += _uncompressed_bytes(meta, name) + meta.num_rows * PARQUET_TEXT_CELL_BYTES
     return _ParquetPlan(int(meta.num_rows), None if read == list(schema.names) else read, ids, tuple(ours),
-                        int(needed), quantities)
+                        int(needed), quantities, streamed)
 
 
 def _is_text(kind) -> bool:
@@ -707,30 +754,160 @@ def available_bytes() -> int:
     return int(psutil.virtual_memory().available)
 
 
+#: Rows of a Parquet table decoded at a time where it is read into its columns as they will be held
+#: (:func:`_parquet_stream`): about 24 MB of decoded values per batch of a long profile table.
+PARQUET_BATCH_ROWS = 1 << 20
+
+
 def _parquet_frame(path: Path, table: str, plan: _ParquetPlan | None = None) -> pd.DataFrame:
     """A Parquet file's frame, as ``pandas.read_parquet`` gives it, except in a long profile table: only the columns
     of :func:`_parquet_plan` are read; its text id column (``profile_id``) comes as categories, one code per row
     instead of one string (a fraction of the memory on a fleet of metered motors: hundreds of millions of rows);
     and a value column with no value at all beside the other quantity's (a template's other column) is left out
-    (read and dropped where the footer has no statistics), as the profile check reads past it. The columns are
-    converted with the Arrow table given up as it goes (``self_destruct``) and the library's memory handed back
-    after; the peak still holds much of both (docs/performance.md). The file is read through a file object, not
-    mapped (a file rewritten while mapped would stop the process)."""
+    (read and dropped where the footer has no statistics), as the profile check reads past it.
+
+    A table of numbers, timestamps and those ids is read batch by batch into its columns as they will be held
+    (:func:`_parquet_stream`): the peak is the columns and one batch. Any other (text read as text, a saved pandas
+    index, a type pandas gives another shape) is read whole and converted with the Arrow table given up as it goes
+    (``self_destruct``); its peak holds much of both (docs/performance.md). The file is read through a file object,
+    not mapped (a file rewritten while mapped would stop the process)."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     plan = plan or _parquet_plan(path, table)
-    with open(path, "rb") as handle:
-        arrow = pq.read_table(handle, columns=plan.columns, read_dictionary=plan.ids or None)
-    if len(plan.quantities) == 2 and all(q in arrow.column_names for q in plan.quantities) and arrow.num_rows:
-        # (no statistics: both value columns were read; the one of no value is dropped now)
-        empty = [q for q in plan.quantities if arrow.column(q).null_count == arrow.num_rows]
-        if len(empty) == 1:
-            arrow = arrow.drop_columns(empty)
-    frame = arrow.to_pandas(types_mapper=_pandas_text_type, self_destruct=True, split_blocks=True)
-    del arrow
+    if plan.streamed:
+        frame = _parquet_stream(path, plan)
+    else:
+        with open(path, "rb") as handle:
+            arrow = pq.read_table(handle, columns=plan.columns, read_dictionary=plan.ids or None)
+        if len(plan.quantities) == 2 and all(q in arrow.column_names for q in plan.quantities) and arrow.num_rows:
+            # (no statistics: both value columns were read; the one of no value is dropped now)
+            empty = [q for q in plan.quantities if arrow.column(q).null_count == arrow.num_rows]
+            if len(empty) == 1:
+                arrow = arrow.drop_columns(empty)
+        frame = arrow.to_pandas(types_mapper=_pandas_text_type, self_destruct=True, split_blocks=True)
+        del arrow
     pa.default_memory_pool().release_unused()
     return frame
+
+
+def _streamable(meta, schema, names: list[str], ids: list[str]) -> bool:
+    """Whether :func:`_parquet_stream` gives a table's frame as ``to_pandas`` of the whole table would: unique
+    columns of floating point numbers (not half precision), timestamps, integers the footer shows without a blank
+    cell, and the text ids read as categories; no pandas index saved, and no column pandas would give another type
+    (its metadata naming an extension type, a nullable integer say)."""
+    import pyarrow as pa
+
+    if len(set(names)) != len(names) or any(schema.get_field_index(name) < 0 for name in names):
+        return False
+    pandas_meta = schema.pandas_metadata or {}
+    if any(not (isinstance(index, dict) and index.get("kind") == "range" and index.get("name") is None)
+           for index in pandas_meta.get("index_columns", ())):
+        return False
+    saved_types = {str(c.get("field_name", c.get("name"))): c.get("numpy_type") for c in pandas_meta.get("columns", ())}
+    for name in names:
+        if name in ids:
+            continue
+        kind = schema.field(name).type
+        if saved_types.get(name) is not None:
+            try:
+                np.dtype(saved_types[name])
+            except TypeError:
+                return False
+        if pa.types.is_floating(kind) and not pa.types.is_float16(kind) or pa.types.is_timestamp(kind):
+            continue
+        if pa.types.is_integer(kind) and meta.num_rows and all(
+                chunk is not None and chunk.statistics is not None and chunk.statistics.has_null_count
+                and chunk.statistics.null_count == 0 for _, chunk in _column_chunks(meta, name)):
+            continue
+        return False
+    return True
+
+
+def _parquet_stream(path: Path, plan: _ParquetPlan) -> pd.DataFrame:
+    """Read a Parquet table batch by batch into its columns as they will be held: the frame ``to_pandas`` of the
+    whole table gives, without holding the Arrow table and the frame at once (for a table :func:`_streamable`
+    finds so read).
+
+    Each batch of :data:`PARQUET_BATCH_ROWS` rows is decoded and copied into columns made for the whole table
+    first: numbers into an array of their type, timestamps into their time zone's array (their instants, as
+    stored), and ids read as dictionaries into one code per row, the categories in the order the batches'
+    dictionaries bring them (as Arrow unifies them).
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    import pyarrow.parquet as pq
+
+    with open(path, "rb") as handle:
+        source = pq.ParquetFile(handle, read_dictionary=plan.ids or None)
+        meta, schema = source.metadata, source.schema_arrow
+        names = list(plan.columns) if plan.columns is not None else list(schema.names)
+        n = int(meta.num_rows)
+        columns: dict[str, object] = {}
+        writable: dict[str, np.ndarray] = {}
+        for name in names:
+            kind = schema.field(name).type
+            if name in plan.ids:
+                writable[name] = np.empty(n, dtype=_codes_type(0))
+            elif pa.types.is_timestamp(kind):
+                naive = np.zeros(n, dtype=f"M8[{kind.unit}]")  # (untouched pages until written: nothing resident)
+                if kind.tz is None:
+                    columns[name] = writable[name] = naive
+                else:  # the zone's own array, written through its instants (a copy of pages not yet written)
+                    held = pd.DatetimeIndex(naive, dtype=pd.DatetimeTZDtype(kind.unit, "UTC")).tz_convert(kind.tz).array
+                    del naive
+                    columns[name], writable[name] = held, held.asi8
+            else:
+                columns[name] = writable[name] = np.empty(n, dtype=kind.to_pandas_dtype())
+        categories: dict[str, dict[str, int]] = {name: {} for name in plan.ids}
+        nulls = dict.fromkeys(names, 0)
+        at = 0
+        for batch in source.iter_batches(batch_size=PARQUET_BATCH_ROWS, columns=names, use_threads=True):
+            end = at + batch.num_rows
+            for i, name in enumerate(names):
+                values = batch.column(i)
+                nulls[name] += values.null_count
+                if name in categories:
+                    seen = categories[name]
+                    lookup = np.array([seen.setdefault(v, len(seen)) for v in values.dictionary.to_pylist()] + [-1],
+                                      dtype=np.int64)
+                    if writable[name].dtype != _codes_type(len(seen)):  # (more ids than its codes hold: widened)
+                        wider = np.empty(n, dtype=_codes_type(len(seen)))
+                        wider[:at] = writable[name][:at]
+                        writable[name] = wider
+                    codes = pc.fill_null(values.indices, len(lookup) - 1).to_numpy(zero_copy_only=False)
+                    writable[name][at:end] = lookup[codes]
+                elif pa.types.is_timestamp(values.type):  # (their instants as stored; a blank one NaT)
+                    writable[name][at:end] = pc.fill_null(values.view(pa.int64()), np.iinfo(np.int64).min).to_numpy()
+                else:
+                    writable[name][at:end] = values.to_numpy(zero_copy_only=False)
+            at = end
+    if at != n:
+        raise ValueError(f"the file holds {at:,} rows, its footer {n:,}")
+    for name, seen in categories.items():
+        columns[name] = pd.Categorical.from_codes(writable[name], categories=pd.Index(list(seen), dtype=_id_text_type()),
+                                                  validate=False)
+    if len(plan.quantities) == 2 and all(q in columns for q in plan.quantities) and n:
+        # (no statistics: both value columns were read; the one of no value is dropped now)
+        empty = [q for q in plan.quantities if nulls[q] == n]
+        if len(empty) == 1:
+            del columns[empty[0]]
+    return pd.DataFrame({name: columns[name] for name in names if name in columns}, copy=False)
+
+
+def _codes_type(n_categories: int) -> type:
+    """The integer type pandas keeps the codes of so many categories in (``Categorical.from_codes`` makes them so)."""
+    for kind in (np.int8, np.int16, np.int32):
+        if n_categories < np.iinfo(kind).max:
+            return kind
+    return np.int64
+
+
+def _id_text_type():
+    """The type of the ids' categories as ``to_pandas`` gives them (pandas' ``str`` where it infers one)."""
+    import pyarrow as pa
+
+    return _pandas_text_type(pa.string()) or object
 
 
 def _pandas_text_type(kind):
@@ -787,9 +964,9 @@ def read_parquet_table(path: Path, table: str, source: str | None = None) -> tup
         frame = frame.reset_index()  # a timestamp or id saved as the index is a column to us
     names, shown, more = _rename(table, source, list(frame.columns))
     frame.columns = names
-    # each row's number as a spreadsheet shows it (header row 1); 4 bytes each where they fit (a metered fleet's
-    # table has hundreds of millions of rows)
-    rows = np.arange(2, len(frame) + 2, dtype=np.int32 if len(frame) < 2**31 - 2 else np.int64)
+    # each row's number as a spreadsheet shows it (header row 1), made when asked for (a metered fleet's table has
+    # hundreds of millions of rows)
+    rows = RowNumbers(2, len(frame))
     unread = (tuple(c for c in plan.file_columns if c not in names and c not in PROFILE_COLUMNS)
               if plan.columns is not None else ())
     return RawTable(table, source, frame.reset_index(drop=True), rows, shown, unread=unread), problems + more
@@ -2289,6 +2466,9 @@ def _same_apart_from_finance(a: RawCase, b: RawCase) -> bool:
         u = b.tables[name]
         if (t.source, t.headers, t.readable) != (u.source, u.headers, u.readable):
             return False
-        if not np.array_equal(np.asarray(t.rows), np.asarray(u.rows)) or not t.frame.equals(u.frame):
+        same_rows = ((t.rows.first, t.rows.n) == (u.rows.first, u.rows.n)
+                     if isinstance(t.rows, RowNumbers) and isinstance(u.rows, RowNumbers)
+                     else np.array_equal(np.asarray(t.rows), np.asarray(u.rows)))
+        if not same_rows or not t.frame.equals(u.frame):
             return False
     return True

@@ -1223,8 +1223,8 @@ def test_a_parquet_tables_unknown_and_empty_columns_are_not_read(tmp_path, monke
     frame = pd.DataFrame({"profile_id": "P1", "meter": "M-001", "timestamp": stamps, "shaft_load_pct": 50.0,
                           "input_kw": np.nan, "unit": "%"})
     read = []
-    real = pq.read_table
-    monkeypatch.setattr(pq, "read_table", lambda *a, **k: read.append(k.get("columns")) or real(*a, **k))
+    real = pq.ParquetFile.iter_batches  # (the table is read batch by batch: models.io._parquet_stream)
+    monkeypatch.setattr(pq.ParquetFile, "iter_batches", lambda self, *a, **k: read.append(k.get("columns")) or real(self, *a, **k))
     frames = []
     for statistics in (True, False):
         path = tmp_path / f"profiles_{statistics}.parquet"
@@ -1250,3 +1250,163 @@ def test_a_parquet_column_in_watts_is_still_named(tmp_path):
     pd.DataFrame({"profile_id": "P1", "timestamp": stamps, "input_w": 5000.0}).to_parquet(path, index=False)
     _raw, problems = case_io.read_parquet_table(path, "profiles")
     assert any("is in W" in p.rule for p in problems)
+
+
+def _whole_table_frame(path, plan):
+    """A Parquet table's frame as pyarrow converts the whole table (the reference the batch-by-batch reading must
+    give: pyarrow's own ``Table.to_pandas``)."""
+    import pyarrow.parquet as pq
+
+    from models import io as case_io
+
+    with open(path, "rb") as handle:
+        arrow = pq.read_table(handle, columns=plan.columns, read_dictionary=plan.ids or None)
+    frame = arrow.to_pandas(types_mapper=case_io._pandas_text_type)
+    if len(plan.quantities) == 2 and all(q in frame.columns for q in plan.quantities) and len(frame):
+        empty = [q for q in plan.quantities if frame[q].isna().all()]
+        if len(empty) == 1:
+            frame = frame.drop(columns=empty)
+    return frame
+
+
+def _metered(n_profiles: int, n_steps: int, seed: int = 0) -> pd.DataFrame:
+    """A long profile table of ``n_profiles`` profiles, written profile by profile (invented values)."""
+    rng = np.random.default_rng(seed)
+    stamps = pd.date_range("2025-03-29", periods=n_steps, freq="15min", tz="Europe/Berlin")  # (across a DST change)
+    return pd.DataFrame({"profile_id": np.repeat([f"M{k:05d}" for k in range(n_profiles)], n_steps),
+                         "timestamp": np.tile(stamps, n_profiles),
+                         "shaft_load_pct": rng.uniform(0.0, 100.0, n_profiles * n_steps), "input_kw": np.nan})
+
+
+class TestParquetReadByBatches:
+    """A long profile table of numbers, timestamps and ids is read batch by batch into its columns; the frame must
+    be the one pyarrow's conversion of the whole table gives, whatever the batches and row groups."""
+
+    @pytest.mark.parametrize("case", ["usual", "shuffled ids", "blank ids", "naive ms", "ns float32", "integers",
+                                      "blank values", "blank stamps", "many ids", "both quantities", "range index"])
+    def test_the_frame_is_the_whole_tables(self, tmp_path, monkeypatch, case):
+        import pyarrow.parquet as pq
+
+        from models import io as case_io
+
+        frame = _metered(5, 40)
+        options = {"index": False, "row_group_size": 64}
+        if case == "shuffled ids":  # (each row group's dictionary brings the ids in another order)
+            frame = frame.sample(frac=1.0, random_state=3).reset_index(drop=True)
+        elif case == "blank ids":
+            frame.loc[[3, 77, 150], "profile_id"] = None
+            frame.loc[[4], "profile_id"] = ""
+        elif case == "naive ms":
+            frame["timestamp"] = frame["timestamp"].dt.tz_localize(None).astype("datetime64[ms]")
+        elif case == "ns float32":
+            frame["timestamp"] = frame["timestamp"].astype("datetime64[ns, Europe/Berlin]")
+            frame["shaft_load_pct"] = frame["shaft_load_pct"].astype(np.float32)
+        elif case == "integers":
+            frame["shaft_load_pct"] = frame["shaft_load_pct"].round().astype(np.int16)
+        elif case == "blank values":
+            frame.loc[[0, 99, 199], "shaft_load_pct"] = np.nan
+        elif case == "blank stamps":
+            frame.loc[[5, 123], "timestamp"] = pd.NaT
+        elif case == "many ids":  # (more than 127 and 32,767 ids: the codes widen from 1 to 2 to 4 bytes as they come)
+            frame = _metered(33_000, 1)
+            options["row_group_size"] = 10_000
+        elif case == "both quantities":
+            frame["input_kw"] = frame["shaft_load_pct"] / 10.0
+        elif case == "range index":
+            options["index"] = None  # (pandas keeps a range index in its metadata only)
+        path = tmp_path / "profiles.parquet"
+        frame.to_parquet(path, **options)
+        monkeypatch.setattr(case_io, "PARQUET_BATCH_ROWS", 50)  # (batches across row groups)
+        plan = case_io._parquet_plan(path, "profiles")
+        assert plan.streamed
+        got = case_io._parquet_stream(path, plan)
+        want = _whole_table_frame(path, plan)
+        pd.testing.assert_frame_equal(got, want)
+        assert list(got.dtypes) == list(want.dtypes)
+        codes = got["profile_id"].array.codes
+        assert codes.dtype == want["profile_id"].array.codes.dtype
+        assert pq.ParquetFile(path).metadata.num_row_groups > 1
+        if case == "many ids":
+            assert codes.dtype == np.int32 and len(got["profile_id"].cat.categories) == 33_000
+
+    def test_the_codes_and_values_are_not_copied_into_the_frame(self, tmp_path):
+        # the columns made for the whole table are the frame's own (no second copy of hundreds of millions of rows)
+        from models import io as case_io
+
+        path = tmp_path / "profiles.parquet"
+        _metered(3, 100).to_parquet(path, index=False, row_group_size=64)
+        made = {}
+        real_from_codes = pd.Categorical.from_codes
+
+        def from_codes(codes, *a, **k):
+            made["codes"] = codes
+            return real_from_codes(codes, *a, **k)
+
+        import unittest.mock
+
+        with unittest.mock.patch.object(pd.Categorical, "from_codes", from_codes):
+            got = case_io._parquet_stream(path, case_io._parquet_plan(path, "profiles"))
+        assert np.shares_memory(got["profile_id"].array.codes, made["codes"])
+
+    @pytest.mark.parametrize("case", ["saved index", "text stamps", "nullable integers", "half floats"])
+    def test_other_tables_are_read_whole(self, tmp_path, case):
+        from models import io as case_io
+
+        frame = _metered(2, 30).drop(columns="input_kw")
+        options = {"index": False}
+        if case == "saved index":
+            frame = frame.set_index("timestamp")
+            options["index"] = True
+        elif case == "text stamps":
+            frame["timestamp"] = frame["timestamp"].dt.strftime("%Y-%m-%d %H:%M")
+        elif case == "nullable integers":
+            frame["shaft_load_pct"] = pd.array([50, None] * 30, dtype="Int64")
+        elif case == "half floats":
+            frame["shaft_load_pct"] = frame["shaft_load_pct"].astype(np.float16)
+        path = tmp_path / "profiles.parquet"
+        frame.to_parquet(path, **options)
+        plan = case_io._parquet_plan(path, "profiles")
+        assert not plan.streamed
+        assert plan.needed_bytes >= len(frame) * case_io.PARQUET_WHOLE_ROW_BYTES
+        raw, problems = case_io.read_parquet_table(path, "profiles")
+        assert raw.readable and "timestamp" in raw.frame.columns and len(raw.frame) == len(frame)
+
+    def test_a_file_shorter_than_its_footer_is_damaged(self, tmp_path, monkeypatch):
+        # the footer promises more rows than the batches bring: the file cannot be read, as any damaged one
+        import pyarrow.parquet as pq
+
+        from models import io as case_io
+
+        path = tmp_path / "profiles.parquet"
+        _metered(2, 30).to_parquet(path, index=False)
+        real = pq.ParquetFile.iter_batches
+        monkeypatch.setattr(pq.ParquetFile, "iter_batches", lambda self, *a, **k: iter(list(real(self, *a, **k))[:-1]))
+        monkeypatch.setattr(case_io, "PARQUET_BATCH_ROWS", 16)
+        raw, problems = case_io.read_parquet_table(path, "profiles")
+        assert not raw.readable and "cannot be read as Parquet" in problems[0].rule
+
+
+class TestRowNumbers:
+    """A Parquet table's row numbers, made when asked for, index as numpy.arange(2, n + 2) does (numpy as
+    reference)."""
+
+    @pytest.mark.parametrize("key", [0, 9, -1, -10, np.int32(4), slice(2, 7), slice(None, None, -3),
+                                     [0, 3, 3, -2], np.array([], dtype=np.int64), np.arange(10) % 3 == 0])
+    def test_indexing_as_an_array(self, key):
+        from models.io import RowNumbers
+
+        rows, want = RowNumbers(2, 10), np.arange(2, 12)
+        got = rows[key]
+        if np.ndim(want[key]) == 0:
+            assert isinstance(got, int) and got == want[key]
+        else:
+            np.testing.assert_array_equal(got, want[key])
+        assert len(rows) == 10
+        np.testing.assert_array_equal(np.asarray(rows), want)
+
+    @pytest.mark.parametrize("key", [10, -11, [0, 10], np.ones(9, dtype=bool)])
+    def test_out_of_range_is_an_index_error(self, key):
+        from models.io import RowNumbers
+
+        with pytest.raises(IndexError):
+            RowNumbers(2, 10)[key]

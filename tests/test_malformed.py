@@ -537,8 +537,9 @@ class TestFormulaInjection:
 
     def test_profiles_that_would_not_fit_in_memory_are_refused_before_they_are_read(self, tmp_path, monkeypatch):
         # the rows from the file's footer, times the memory a row takes while read, against 80 % of the free
-        # memory: 48 rows x 50 bytes = 2,400 bytes against 0.8 x 2,000 = 1,600 bytes free (hand calculation; the ids
-        # are read as categories and the timestamps are typed, so no text is counted)
+        # memory: 48 rows x 30 bytes = 1,440 bytes against 0.8 x 1,500 = 1,200 bytes free (hand calculation; the ids
+        # are read as categories and the timestamps are typed, so no text is counted and the table is read batch
+        # by batch, PARQUET_ROW_BYTES)
         import pandas as pd
 
         from models import io as case_io
@@ -549,7 +550,7 @@ class TestFormulaInjection:
         pd.DataFrame({"profile_id": "P1", "timestamp": stamps, "shaft_load_pct": 50.0}).to_parquet(
             folder / "profiles.parquet", index=False)
         before = (folder / "profiles.parquet").read_bytes()
-        monkeypatch.setattr(case_io, "available_bytes", lambda: 2_000)
+        monkeypatch.setattr(case_io, "available_bytes", lambda: 1_500)
         read, real = [], case_io._parquet_frame
         monkeypatch.setattr(case_io, "_parquet_frame", lambda *a: read.append(a) or real(*a))
         raw, problems = case_io.read_parquet_table(folder / "profiles.parquet", "profiles")
@@ -558,7 +559,7 @@ class TestFormulaInjection:
         assert p.severity == "error" and p.value == "48 rows"
         assert "more than 80% of the 0.0 GiB this machine has free" in p.rule and "shared profile" in p.hint
         assert (folder / "profiles.parquet").read_bytes() == before
-        monkeypatch.setattr(case_io, "available_bytes", lambda: 4_000)  # 2,400 <= 3,200: read
+        monkeypatch.setattr(case_io, "available_bytes", lambda: 2_000)  # 1,440 <= 1,600: read
         raw, problems = case_io.read_parquet_table(folder / "profiles.parquet", "profiles")
         assert read and not problems
 
@@ -576,4 +577,5 @@ class TestFormulaInjection:
         meta = pq.ParquetFile(path).metadata
         text = sum(meta.row_group(g).column(1).total_uncompressed_size for g in range(meta.num_row_groups))
         plan = case_io._parquet_plan(path, "profiles")
+        assert not plan.streamed  # (text is read whole: PARQUET_WHOLE_ROW_BYTES, 50 bytes a row)
         assert plan.needed_bytes == 48 * 50 + text + 48 * 160
