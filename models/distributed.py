@@ -341,24 +341,42 @@ def _local_cluster(n_workers: int, processes: bool):
     """A local cluster whose worker processes start with one heap for their threads (models.memory.one_heap), as the
     command has: a ``GLIBC_TUNABLES`` set by the user is kept, with one heap added. Dask's nannies pass
     ``distributed.nanny.pre-spawn-environ`` on through this process's environment, whose value wins over the
-    setting's: both are set while the workers start, and this process's environment is put back after."""
+    setting's: both are set while the workers start, and this process's environment is put back as it was after
+    (every variable of the setting, which the nannies set in it too: :func:`spawn_environment`,
+    :func:`restore_environment`)."""
     import dask
     from distributed import LocalCluster
 
     environ = dict(dask.config.get("distributed.nanny.pre-spawn-environ", {}) or {})
     heap = worker_environment({k: str(v) for k, v in {**environ, **os.environ}.items()})
-    given = {name: os.environ.get(name) for name in heap}
+    given = spawn_environment(heap)
     try:
         os.environ.update(heap)
         with dask.config.set({"distributed.nanny.pre-spawn-environ": {**environ, **heap}}):
             return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=processes,
                                 dashboard_address=":0", silence_logs=logging.CRITICAL)
     finally:
-        for name, value in given.items():
-            if value is None:
-                os.environ.pop(name, None)
-            else:
-                os.environ[name] = value
+        restore_environment(given)
+
+
+def spawn_environment(extra=()) -> dict[str, str | None]:
+    """This process's values (None: unset) of the variables a Dask nanny sets in it as it starts a worker (the names
+    of ``distributed.nanny.pre-spawn-environ``, and ``PYTHONHASHSEED``, which it adds) and of ``extra``'s names: what
+    :func:`restore_environment` puts back."""
+    import dask
+
+    names = set(dask.config.get("distributed.nanny.pre-spawn-environ", {}) or {}) | {"PYTHONHASHSEED"} | set(extra)
+    return {name: os.environ.get(name) for name in sorted(names)}
+
+
+def restore_environment(given: dict[str, str | None]) -> None:
+    """Put the variables of ``given`` back in this process's environment (None: unset) after a local cluster's
+    workers started, or were started again by their nannies."""
+    for name, value in given.items():
+        if value is None:
+            os.environ.pop(name, None)
+        elif os.environ.get(name) != value:
+            os.environ[name] = value
 
 
 def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: str | None = None,
@@ -430,6 +448,7 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
 
     if n_workers is None:
         n_workers = local_workers(len(merger.partition))
+    given = spawn_environment(worker_environment(dict(os.environ)))
     client, cluster = _client(scheduler, n_workers, processes)
     try:
         results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted,
@@ -448,4 +467,5 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         client.close()
         if cluster is not None:
             cluster.close()
+            restore_environment(given)  # (as a nanny that started its worker again left it)
     return economics(case, merger.result(), assumptions, progress, with_risk, plan_settings, timer=timer)

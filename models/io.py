@@ -2075,7 +2075,9 @@ def save_finance_settings(case_path: str | Path, assumptions: object, *,
        over the old file (:func:`models.exports.atomic_write_bytes`): a rename within one file system
        replaces the file in one step [1]_.
     5. Reload the case (:func:`models.case.load_case`): unless it loads, reads back the saved values and
-       reads every other table and setting as before, the previous content is written back the same
+       leaves every other table and setting as before (a workbook's other sheets and settings read as before;
+       a folder's other files with the sizes and modification times they had, as the save writes none of them
+       and a long profile table is not read again for it), the previous content is written back the same
        way and the outcome is ``failed``. An exception at any step, even an interrupt, puts the
        previous content back before it propagates.
 
@@ -2112,10 +2114,12 @@ def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
             error(str(path), None, None, None, "the case has errors, so nothing was saved into it",
                   "fix the errors listed (drivecase check shows them) and save again"),
             *[p for p in found if p.severity == "error"]))
-    new = _assumptions_to_save(before.finance, assumptions, place.source)
-    changes = tuple((name, getattr(before.finance, name), getattr(new, name))
+    current = before.finance
+    del before  # (only its finance is compared: a large case is not held while it is read again below)
+    new = _assumptions_to_save(current, assumptions, place.source)
+    changes = tuple((name, getattr(current, name), getattr(new, name))
                     for name in FinanceAssumptions.__dataclass_fields__
-                    if not _same_value(getattr(before.finance, name), getattr(new, name)))
+                    if not _same_value(getattr(current, name), getattr(new, name)))
     if not changes:
         return SavedCase("unchanged", path, place.target)
     try:
@@ -2136,7 +2140,9 @@ def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
         return SavedCase("refused", path, place.target, problems=(
             error(place.source, None, None, None, f"the file cannot be edited ({exc.__class__.__name__}: {exc})",
                   "change the values in a text editor or spreadsheet program"),))
-    raw_before = read_case_files(path)
+    # what the save must leave as it was: a workbook's other sheets and settings, read; a folder's other files, by
+    # their sizes and times (the save writes none of them: a large profile table is not read twice more for this)
+    raw_before = read_case_files(path) if place.kind == "workbook" else _other_files(path, place.target)
     previous = None
     if original is not None:
         try:
@@ -2152,7 +2158,8 @@ def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
             os.chmod(place.target, mode)
         _fsync_dir(place.target.parent)
         after, found_after = load_case(path)
-        trouble = _saved_case_trouble(raw_before, read_case_files(path), after, found_after, new, place.source)
+        raw_after = read_case_files(path) if place.kind == "workbook" else _other_files(path, place.target)
+        trouble = _saved_case_trouble(raw_before, raw_after, after, found_after, new, place.source)
     except Exception as exc:
         after, trouble = None, [error(place.source, None, None, None,
                                       f"saving failed ({exc.__class__.__name__}: {exc})",
@@ -2436,7 +2443,7 @@ def _drop(path: Path | None) -> None:
             pass
 
 
-def _saved_case_trouble(raw_before: RawCase, raw_after: RawCase, after, found_after: list[Problem], new,
+def _saved_case_trouble(raw_before: RawCase | dict, raw_after: RawCase | dict, after, found_after: list[Problem], new,
                         source: str) -> list[Problem]:
     """Why a saved case must be put back: it no longer loads, reads other values, or reads other tables."""
     if after is None or after.finance is None:
@@ -2456,8 +2463,31 @@ def _saved_case_trouble(raw_before: RawCase, raw_after: RawCase, after, found_af
     return trouble
 
 
-def _same_apart_from_finance(a: RawCase, b: RawCase) -> bool:
-    """True when two reads of a case agree on every table, setting and tariff."""
+def _other_files(folder: Path, target: Path) -> dict[str, tuple[int, int]]:
+    """The size and modification time [ns] of every file of a case folder and its ``tariffs/`` but ``target`` (the
+    finance file a save writes) and hidden ones (a save's temporary file), by path within the folder."""
+    state = {}
+    for where in (folder, folder / "tariffs"):
+        try:
+            entries = sorted(where.iterdir()) if where.is_dir() else []
+        except OSError:
+            entries = []
+        for entry in entries:
+            try:
+                if entry.name.startswith(".") or not entry.is_file() or entry.resolve() == target.resolve():
+                    continue
+                info = entry.stat()
+            except OSError:
+                continue
+            state[str(entry.relative_to(folder))] = (int(info.st_size), int(info.st_mtime_ns))
+    return state
+
+
+def _same_apart_from_finance(a: RawCase | dict, b: RawCase | dict) -> bool:
+    """True when two reads of a case agree on every table, setting and tariff (a folder's: its other files have the
+    same sizes and times, :func:`_other_files`)."""
+    if isinstance(a, dict) or isinstance(b, dict):
+        return a == b
     if (a.kind, a.settings, a.tariffs, a.unreadable_tariffs) != (b.kind, b.settings, b.tariffs, b.unreadable_tariffs):
         return False
     if a.tables.keys() != b.tables.keys():

@@ -342,6 +342,35 @@ class TestAtomicity:
         assert book.read_bytes() == original
 
 
+    def test_a_folder_save_while_another_file_changes_is_rolled_back(self, small_copy, monkeypatch):
+        # a folder's save writes its finance file only: another file of the case that changes meanwhile (another
+        # program editing the register) is not taken for the save's, and the save is put back
+        import models.exports as exports
+
+        original = (small_copy / "finance.toml").read_bytes()
+        real = exports.atomic_write_bytes
+
+        def and_the_register_changes(path, data):
+            real(path, data)
+            with open(small_copy / "assets.csv", "a", encoding="utf-8") as handle:
+                handle.write("\n")
+
+        monkeypatch.setattr(exports, "atomic_write_bytes", and_the_register_changes)
+        out = case_io.save_finance_settings(small_copy, {"horizon_yr": 12}, now=NOW)
+        assert out.outcome == "failed"
+        assert "changed more than the finance values" in out.problems[0].rule
+        assert (small_copy / "finance.toml").read_bytes() == original
+
+    def test_a_folder_case_is_read_twice_by_a_save(self, small_copy, monkeypatch):
+        # once to compare the values, once to check the saved case loads: its tables (a long profile table of
+        # millions of rows) are not read again to see that the save left them alone (their files are not written)
+        reads = []
+        real = case_io.read_case_files
+        monkeypatch.setattr(case_io, "read_case_files", lambda *a, **k: reads.append(a) or real(*a, **k))
+        out = case_io.save_finance_settings(small_copy, {"horizon_yr": 12}, now=NOW)
+        assert out.outcome == "saved" and len(reads) == 2
+
+
 # ---------------------------------------------------------------------------------------------------
 # Refusals: a message naming the file and the rule, nothing written
 # ---------------------------------------------------------------------------------------------------

@@ -454,11 +454,34 @@ def test_the_local_clusters_workers_start_with_one_heap(monkeypatch, given):
         monkeypatch.delenv("GLIBC_TUNABLES", raising=False)
     else:
         monkeypatch.setenv("GLIBC_TUNABLES", given)
+    before = dict(os.environ)
     client, local = engine._client(None, 1, True)
     try:
+        started = dict(os.environ)  # (the nanny sets its pre-spawn variables in this process as it starts a worker)
         heaps = client.run(_heaps_after_threads_allocate)
     finally:
         client.close()
         local.close()
     assert list(heaps.values()) == [1]
     assert os.environ.get("GLIBC_TUNABLES") == given
+    # (Dask marks this process as its workers' parent for their process titles, __DASK_PARENT_PID: its own, left)
+    ours = lambda environ: {k: v for k, v in environ.items() if k != "__DASK_PARENT_PID"}  # noqa: E731
+    assert ours(started) == ours(before)
+
+
+def test_the_environment_a_nanny_changed_is_put_back(monkeypatch):
+    # a nanny that starts its worker again sets its pre-spawn variables in this process anew: the run puts them back
+    import os
+
+    from models import distributed as engine
+
+    monkeypatch.setenv("OMP_NUM_THREADS", "7")
+    monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)
+    given = engine.spawn_environment({"GLIBC_TUNABLES": "x"})
+    assert given["OMP_NUM_THREADS"] == "7" and given["MALLOC_TRIM_THRESHOLD_"] is None and "PYTHONHASHSEED" in given
+    monkeypatch.setenv("OMP_NUM_THREADS", "1")
+    monkeypatch.setenv("MALLOC_TRIM_THRESHOLD_", "65536")
+    monkeypatch.setenv("SOMETHING_ELSE", "kept")
+    engine.restore_environment(given)
+    assert os.environ["OMP_NUM_THREADS"] == "7" and "MALLOC_TRIM_THRESHOLD_" not in os.environ
+    assert os.environ["SOMETHING_ELSE"] == "kept"
