@@ -41,12 +41,13 @@ PLAN_MAX_S = 130.0
 #: fleet is given too.
 PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
 #: Reading and validating a case [s per asset] and [s per interval of its profiles]: the benchmark's 10,000-asset
-#: fleet took 2.4 s with 400 shared hourly profiles (3.5 million intervals) and 16.1 s with a profile per motor
-#: (87.6 million intervals) on 2026-12-04 (benchmarks/bench_fleet.py --assets-per-profile 1, Parquet profiles,
-#: docs/performance.md "2026-12-04: a profile per motor"): (16.1 - 2.4) s over the 84.1 million intervals more,
-#: and the rest per asset.
-LOAD_S_PER_PROFILE_INTERVAL = (16.1 - 2.4) / (87.6e6 - 3.504e6)
-LOAD_S_PER_ASSET = (2.4 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
+#: fleet took 1.9 s with 400 shared hourly profiles (3.5 million intervals; docs/performance.md "2026-12-04, last")
+#: and 24.4 s with a profile per motor at 15-minute steps (350.4 million intervals, the Parquet table read batch
+#: by batch; benchmarks/bench_fleet.py --step-minutes 15 --assets-per-profile 1, docs/performance.md "2026-12-04,
+#: after the last"): (24.4 - 1.9) s over the 346.9 million intervals more, and the rest per asset. The hourly
+#: fleet with a profile per motor (87.6 million intervals) took 7.3 s in the same round, 7.4 s by these figures.
+LOAD_S_PER_PROFILE_INTERVAL = (24.4 - 1.9) / (350.4e6 - 3.504e6)
+LOAD_S_PER_ASSET = (1.9 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
 #: A loaded profile's memory per interval [bytes] when the case's own is not known: its value and its
 #: timestamp, 8 bytes each (profiles on one grid share their timestamps, models.case: a case's profiles are
 #: counted as they are held, :attr:`_RunSize.profile_bytes`).
