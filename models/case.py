@@ -816,7 +816,7 @@ def _profile_ids(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     return np.asarray(codes), np.asarray(uniques, dtype=object)
 
 
-def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarray, header: str,
+def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarray | io.RowNumbers, header: str,
                     problems: list[Problem], where=lambda i: "") -> np.ndarray:
     """Parse a value column to finite floats (NaN where blank or bad); decimal commas are repaired.
 
@@ -1234,7 +1234,7 @@ def _is_serial(value: object) -> bool:
             and SERIAL_DAYS_RANGE[0] <= float(value) <= SERIAL_DAYS_RANGE[1])
 
 
-def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarray, header: str,
+def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarray | io.RowNumbers, header: str,
                       problems: list[Problem], groups: Sequence[np.ndarray]) -> pd.DatetimeIndex:
     """Parse interval-start timestamps into the case zone, NaT where unusable (each reported).
 

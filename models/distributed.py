@@ -448,7 +448,8 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
 
     if n_workers is None:
         n_workers = local_workers(len(merger.partition))
-    given = spawn_environment(worker_environment(dict(os.environ)))
+    with _CLUSTER_START:  # (no other local cluster is starting: its passing values are not taken for this one's)
+        given = spawn_environment(worker_environment(dict(os.environ)))
     client, cluster = _client(scheduler, n_workers, processes)
     try:
         results = _site_results(client, case, merger.partition, index, cost, chunk_assets, today_only, books_wanted,
@@ -467,5 +468,6 @@ def run_distributed(case, assumptions: finance.FinanceAssumptions, scheduler: st
         client.close()
         if cluster is not None:
             cluster.close()
-            restore_environment(given)  # (as a nanny that started its worker again left it)
+            with _CLUSTER_START:
+                restore_environment(given)  # (as a nanny that started its worker again left it)
     return economics(case, merger.result(), assumptions, progress, with_risk, plan_settings, timer=timer)

@@ -66,6 +66,11 @@ PARQUET_ROW_BYTES = 30
 #: of the Arrow table and the frame at once, 13.67 GiB for the same table read so (41.1 bytes a row; 8 more, as
 #: above): 50 here.
 PARQUET_WHOLE_ROW_BYTES = 50
+#: Memory a typed timestamp without a time zone (local times) takes more while it is read and checked [bytes a row]:
+#: its local times are copied and placed in the case's zone (models.case._localise); 20.5 and 22.5 bytes a row more
+#: than the same table with zoned timestamps, measured at 8.1 and 4.0 million rows (resident peaks, fresh processes):
+#: 24 here.
+PARQUET_NAIVE_STAMP_BYTES = 24
 #: Memory a text cell of a long profile table takes once read, besides its characters [bytes]: timestamps
 #: written as ISO text took 204 bytes a row against 48 typed (1 million rows, read and checked), so 160 here.
 PARQUET_TEXT_CELL_BYTES = 160
@@ -134,6 +139,8 @@ class RowNumbers:
             if k.shape != (self.n,):
                 raise IndexError(f"a mask of {k.shape} for {self.n} rows")
             return np.flatnonzero(k) + self.first
+        if k.dtype.kind not in "iu" and k.size:
+            raise IndexError(f"row positions must be integers, not {k.dtype}")
         positions = k.astype(np.int64)
         if len(positions) and (positions.min() < -self.n or positions.max() >= self.n):
             raise IndexError(f"a row position out of 0..{self.n - 1}")
@@ -677,7 +684,8 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
     value column whose footer statistics show no value at all beside the other quantity's (a template's other
     column) is not read either. The memory reading needs is :data:`PARQUET_ROW_BYTES` a row where the table is read
     batch by batch (:func:`_streamable`), else :data:`PARQUET_WHOLE_ROW_BYTES`, and for every text column read (other
-    than the ids, read as categories) its uncompressed bytes and :data:`PARQUET_TEXT_CELL_BYTES` a cell.
+    than the ids, read as categories) its uncompressed bytes and :data:`PARQUET_TEXT_CELL_BYTES` a cell, and for a
+    typed timestamp column without a time zone :data:`PARQUET_NAIVE_STAMP_BYTES` a row.
     """
     import pyarrow as pa
     import pyarrow.parquet as pq
@@ -711,6 +719,8 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
         kind = schema.field(name).type
         if name not in ids and (_is_text(kind) or pa.types.is_binary(kind)):
             needed += _uncompressed_bytes(meta, name) + meta.num_rows * PARQUET_TEXT_CELL_BYTES
+        elif pa.types.is_timestamp(kind) and kind.tz is None:
+            needed += meta.num_rows * PARQUET_NAIVE_STAMP_BYTES
     return _ParquetPlan(int(meta.num_rows), None if read == list(schema.names) else read, ids, tuple(ours),
                         int(needed), quantities, streamed)
 
@@ -794,8 +804,10 @@ def _parquet_frame(path: Path, table: str, plan: _ParquetPlan | None = None) -> 
 def _streamable(meta, schema, names: list[str], ids: list[str]) -> bool:
     """Whether :func:`_parquet_stream` gives a table's frame as ``to_pandas`` of the whole table would: unique
     columns of floating point numbers (not half precision), timestamps, integers the footer shows without a blank
-    cell, and the text ids read as categories; no pandas index saved, and no column pandas would give another type
-    (its metadata naming an extension type, a nullable integer say)."""
+    cell, and the text ids read as categories; no pandas index saved, no column whose pandas metadata names a type
+    other than a plain number or time (an extension type: a nullable integer, pandas' text), and no timestamp
+    whose metadata names another time zone than its own (a table written with timestamps stored without their
+    zone, as some writers do, which ``to_pandas`` puts back)."""
     import pyarrow as pa
 
     if len(set(names)) != len(names) or any(schema.get_field_index(name) < 0 for name in names):
@@ -804,17 +816,30 @@ def _streamable(meta, schema, names: list[str], ids: list[str]) -> bool:
     if any(not (isinstance(index, dict) and index.get("kind") == "range" and index.get("name") is None)
            for index in pandas_meta.get("index_columns", ())):
         return False
-    saved_types = {str(c.get("field_name", c.get("name"))): c.get("numpy_type") for c in pandas_meta.get("columns", ())}
+    saved = {str(c.get("field_name", c.get("name"))): c for c in pandas_meta.get("columns", ()) if isinstance(c, dict)}
     for name in names:
         if name in ids:
             continue
         kind = schema.field(name).type
-        if saved_types.get(name) is not None:
+        entry = saved.get(name, {})
+        if entry.get("numpy_type") is not None:
             try:
-                np.dtype(saved_types[name])
+                dtype = pd.api.types.pandas_dtype(entry["numpy_type"])
             except TypeError:
                 return False
-        if pa.types.is_floating(kind) and not pa.types.is_float16(kind) or pa.types.is_timestamp(kind):
+            if not isinstance(dtype, np.dtype) or dtype.kind not in "fiuM":
+                return False
+        if pa.types.is_timestamp(kind):
+            zone = (entry.get("metadata") or {}).get("timezone") if isinstance(entry.get("metadata"), dict) else None
+            if (zone is not None or entry.get("pandas_type") == "datetimetz") and zone != kind.tz:
+                return False
+            if kind.tz is not None:
+                try:
+                    kind.to_pandas_dtype()
+                except Exception:  # (a zone pandas does not know: the whole table's conversion says so)
+                    return False
+            continue
+        if pa.types.is_floating(kind) and not pa.types.is_float16(kind):
             continue
         if pa.types.is_integer(kind) and meta.num_rows and all(
                 chunk is not None and chunk.statistics is not None and chunk.statistics.has_null_count
@@ -854,7 +879,8 @@ def _parquet_stream(path: Path, plan: _ParquetPlan) -> pd.DataFrame:
                 if kind.tz is None:
                     columns[name] = writable[name] = naive
                 else:  # the zone's own array, written through its instants (a copy of pages not yet written)
-                    held = pd.DatetimeIndex(naive, dtype=pd.DatetimeTZDtype(kind.unit, "UTC")).tz_convert(kind.tz).array
+                    zone = kind.to_pandas_dtype().tz  # (the zone object to_pandas gives)
+                    held = pd.DatetimeIndex(naive, dtype=pd.DatetimeTZDtype(kind.unit, "UTC")).tz_convert(zone).array
                     del naive
                     columns[name], writable[name] = held, held.asi8
             else:
@@ -885,8 +911,8 @@ def _parquet_stream(path: Path, plan: _ParquetPlan) -> pd.DataFrame:
     if at != n:
         raise ValueError(f"the file holds {at:,} rows, its footer {n:,}")
     for name, seen in categories.items():
-        columns[name] = pd.Categorical.from_codes(writable[name], categories=pd.Index(list(seen), dtype=_id_text_type()),
-                                                  validate=False)
+        categories = pd.Index(list(seen), dtype=_id_text_type() if seen else object)  # (none: as to_pandas gives)
+        columns[name] = pd.Categorical.from_codes(writable[name], categories=categories, validate=False)
     if len(plan.quantities) == 2 and all(q in columns for q in plan.quantities) and n:
         # (no statistics: both value columns were read; the one of no value is dropped now)
         empty = [q for q in plan.quantities if nulls[q] == n]
@@ -2076,9 +2102,9 @@ def save_finance_settings(case_path: str | Path, assumptions: object, *,
        replaces the file in one step [1]_.
     5. Reload the case (:func:`models.case.load_case`): unless it loads, reads back the saved values and
        leaves every other table and setting as before (a workbook's other sheets and settings read as before;
-       a folder's other files with the sizes and modification times they had, as the save writes none of them
-       and a long profile table is not read again for it), the previous content is written back the same
-       way and the outcome is ``failed``. An exception at any step, even an interrupt, puts the
+       the other files a folder's case reads with the content, sizes and modification times they had, as the
+       save writes none of them, a long profile table by size and time, not read again for it), the previous
+       content is written back the same way and the outcome is ``failed``. An exception at any step, even an interrupt, puts the
        previous content back before it propagates.
 
     Warnings
@@ -2456,38 +2482,54 @@ def _saved_case_trouble(raw_before: RawCase | dict, raw_after: RawCase | dict, a
     if differ:
         trouble.append(error(source, None, ", ".join(differ), None, "the saved file reads back other values than were saved",
                              "please report this with the case files"))
-    if not _same_apart_from_finance(raw_before, raw_after):
+    if isinstance(raw_before, dict) and raw_before != raw_after:
+        changed = sorted(k for k in raw_before.keys() | raw_after.keys() if raw_before.get(k) != raw_after.get(k))
+        trouble.append(error(source, None, None, None,
+                             f"another file of the case changed while the finance values were saved "
+                             f"({', '.join(changed[:5])})",
+                             "save again once no other program is editing the case"))
+    elif not isinstance(raw_before, dict) and not _same_apart_from_finance(raw_before, raw_after):
         trouble.append(error(source, None, None, None,
                              "saving changed more than the finance values (another table or setting reads differently)",
                              "change the finance values in a text editor or spreadsheet program"))
     return trouble
 
 
-def _other_files(folder: Path, target: Path) -> dict[str, tuple[int, int]]:
-    """The size and modification time [ns] of every file of a case folder and its ``tariffs/`` but ``target`` (the
-    finance file a save writes) and hidden ones (a save's temporary file), by path within the folder."""
-    state = {}
-    for where in (folder, folder / "tariffs"):
+#: Files of a case folder a save compares by their content, not only by size and time, up to this size [bytes] (a
+#: file system may keep times to 2 s only).
+SAVE_DIGEST_MAX_BYTES = 64 * 2**20
+
+
+def _other_files(folder: Path, target: Path) -> dict[str, tuple]:
+    """The files of a case folder that reading the case reads (:func:`read_folder`: ``case.toml``, the tables,
+    ``scenarios.toml``, every ``tariffs/*.toml``) but ``target`` (the finance file a save writes), by path within the
+    folder: each its size and modification time [ns], and the digest of its bytes up to
+    :data:`SAVE_DIGEST_MAX_BYTES` (a large profile table by size and time alone)."""
+    import hashlib
+
+    files, _ = _folder_files(folder)
+    read = {"case.toml", "scenarios.toml"} | {f"{t}.{suffix}" for t in CASE_TABLES for suffix in ("csv", "parquet")}
+    chosen = [entry for key, entry in files.items() if key in read]
+    if (folder / "tariffs").is_dir():
+        tariffs, _ = _folder_files(folder / "tariffs")
+        chosen += [entry for entry in tariffs.values() if entry.suffix.lower() == ".toml"]
+    state: dict[str, tuple] = {}
+    for entry in chosen:
         try:
-            entries = sorted(where.iterdir()) if where.is_dir() else []
-        except OSError:
-            entries = []
-        for entry in entries:
-            try:
-                if entry.name.startswith(".") or not entry.is_file() or entry.resolve() == target.resolve():
-                    continue
-                info = entry.stat()
-            except OSError:
+            if entry.resolve() == target.resolve():
                 continue
-            state[str(entry.relative_to(folder))] = (int(info.st_size), int(info.st_mtime_ns))
+            info = entry.stat()
+            digest = (hashlib.sha256(entry.read_bytes()).hexdigest() if info.st_size <= SAVE_DIGEST_MAX_BYTES
+                      else None)
+        except OSError:
+            digest, info = "unreadable", None
+        state[entry.relative_to(folder).as_posix()] = (
+            (int(info.st_size), int(info.st_mtime_ns), digest) if info is not None else digest)
     return state
 
 
-def _same_apart_from_finance(a: RawCase | dict, b: RawCase | dict) -> bool:
-    """True when two reads of a case agree on every table, setting and tariff (a folder's: its other files have the
-    same sizes and times, :func:`_other_files`)."""
-    if isinstance(a, dict) or isinstance(b, dict):
-        return a == b
+def _same_apart_from_finance(a: RawCase, b: RawCase) -> bool:
+    """True when two reads of a case agree on every table, setting and tariff."""
     if (a.kind, a.settings, a.tariffs, a.unreadable_tariffs) != (b.kind, b.settings, b.tariffs, b.unreadable_tariffs):
         return False
     if a.tables.keys() != b.tables.keys():
@@ -2496,9 +2538,6 @@ def _same_apart_from_finance(a: RawCase | dict, b: RawCase | dict) -> bool:
         u = b.tables[name]
         if (t.source, t.headers, t.readable) != (u.source, u.headers, u.readable):
             return False
-        same_rows = ((t.rows.first, t.rows.n) == (u.rows.first, u.rows.n)
-                     if isinstance(t.rows, RowNumbers) and isinstance(u.rows, RowNumbers)
-                     else np.array_equal(np.asarray(t.rows), np.asarray(u.rows)))
-        if not same_rows or not t.frame.equals(u.frame):
+        if not np.array_equal(np.asarray(t.rows), np.asarray(u.rows)) or not t.frame.equals(u.frame):
             return False
     return True

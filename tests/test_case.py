@@ -1283,7 +1283,8 @@ class TestParquetReadByBatches:
     be the one pyarrow's conversion of the whole table gives, whatever the batches and row groups."""
 
     @pytest.mark.parametrize("case", ["usual", "shuffled ids", "blank ids", "naive ms", "ns float32", "integers",
-                                      "blank values", "blank stamps", "many ids", "both quantities", "range index"])
+                                      "blank values", "blank stamps", "many ids", "both quantities", "range index",
+                                      "no rows", "UTC"])
     def test_the_frame_is_the_whole_tables(self, tmp_path, monkeypatch, case):
         import pyarrow.parquet as pq
 
@@ -1314,6 +1315,10 @@ class TestParquetReadByBatches:
             frame["input_kw"] = frame["shaft_load_pct"] / 10.0
         elif case == "range index":
             options["index"] = None  # (pandas keeps a range index in its metadata only)
+        elif case == "no rows":
+            frame = frame.iloc[:0]
+        elif case == "UTC":
+            frame["timestamp"] = frame["timestamp"].dt.tz_convert("UTC")
         path = tmp_path / "profiles.parquet"
         frame.to_parquet(path, **options)
         monkeypatch.setattr(case_io, "PARQUET_BATCH_ROWS", 50)  # (batches across row groups)
@@ -1325,7 +1330,9 @@ class TestParquetReadByBatches:
         assert list(got.dtypes) == list(want.dtypes)
         codes = got["profile_id"].array.codes
         assert codes.dtype == want["profile_id"].array.codes.dtype
-        assert pq.ParquetFile(path).metadata.num_row_groups > 1
+        assert got["profile_id"].cat.categories.dtype == want["profile_id"].cat.categories.dtype
+        assert got["timestamp"].dtype == want["timestamp"].dtype and str(got["timestamp"].dt.tz) == str(want["timestamp"].dt.tz)
+        assert pq.ParquetFile(path).metadata.num_row_groups > 1 or case == "no rows"
         if case == "many ids":
             assert codes.dtype == np.int32 and len(got["profile_id"].cat.categories) == 33_000
 
@@ -1348,12 +1355,17 @@ class TestParquetReadByBatches:
             got = case_io._parquet_stream(path, case_io._parquet_plan(path, "profiles"))
         assert np.shares_memory(got["profile_id"].array.codes, made["codes"])
 
-    @pytest.mark.parametrize("case", ["saved index", "text stamps", "nullable integers", "half floats"])
+    @pytest.mark.parametrize("case", ["saved index", "text stamps", "nullable integers", "half floats",
+                                      "zone in the metadata only", "zone in the metadata only (int96)"])
     def test_other_tables_are_read_whole(self, tmp_path, case):
         from models import io as case_io
 
         frame = _metered(2, 30).drop(columns="input_kw")
         options = {"index": False}
+        if case == "zone in the metadata only":  # (stored as UTC wall clocks, the zone named in pandas' metadata)
+            options["flavor"] = "spark"
+        elif case == "zone in the metadata only (int96)":
+            options["use_deprecated_int96_timestamps"] = True
         if case == "saved index":
             frame = frame.set_index("timestamp")
             options["index"] = True
@@ -1370,6 +1382,20 @@ class TestParquetReadByBatches:
         assert plan.needed_bytes >= len(frame) * case_io.PARQUET_WHOLE_ROW_BYTES
         raw, problems = case_io.read_parquet_table(path, "profiles")
         assert raw.readable and "timestamp" in raw.frame.columns and len(raw.frame) == len(frame)
+        if case.startswith("zone"):  # (the instants and zone as written, not the stored wall clocks)
+            assert str(raw.frame["timestamp"].dt.tz) == "Europe/Berlin"
+            assert (raw.frame["timestamp"].to_numpy() == frame["timestamp"].to_numpy()).all()
+
+    def test_timestamps_without_a_zone_are_counted_more(self, tmp_path):
+        # local times are copied and placed in the case's zone while checked: 24 bytes a row more than zoned ones
+        # (PARQUET_NAIVE_STAMP_BYTES; hand calculation: 48 rows x (30 + 24) bytes)
+        from models import io as case_io
+
+        stamps = pd.date_range("2025-01-01", periods=48, freq="h")
+        path = tmp_path / "profiles.parquet"
+        pd.DataFrame({"profile_id": "P1", "timestamp": stamps, "shaft_load_pct": 50.0}).to_parquet(path, index=False)
+        plan = case_io._parquet_plan(path, "profiles")
+        assert plan.streamed and plan.needed_bytes == 48 * (30 + 24)
 
     def test_a_file_shorter_than_its_footer_is_damaged(self, tmp_path, monkeypatch):
         # the footer promises more rows than the batches bring: the file cannot be read, as any damaged one
@@ -1404,7 +1430,7 @@ class TestRowNumbers:
         assert len(rows) == 10
         np.testing.assert_array_equal(np.asarray(rows), want)
 
-    @pytest.mark.parametrize("key", [10, -11, [0, 10], np.ones(9, dtype=bool)])
+    @pytest.mark.parametrize("key", [10, -11, [0, 10], np.ones(9, dtype=bool), np.array([1.0, 2.0])])
     def test_out_of_range_is_an_index_error(self, key):
         from models.io import RowNumbers
 

@@ -358,8 +358,31 @@ class TestAtomicity:
         monkeypatch.setattr(exports, "atomic_write_bytes", and_the_register_changes)
         out = case_io.save_finance_settings(small_copy, {"horizon_yr": 12}, now=NOW)
         assert out.outcome == "failed"
-        assert "changed more than the finance values" in out.problems[0].rule
+        assert "another file of the case changed while the finance values were saved (assets.csv)" in out.problems[0].rule
         assert (small_copy / "finance.toml").read_bytes() == original
+
+    @pytest.mark.parametrize("name, changes", [("notes.txt", False), ("~$assets.csv", False),
+                                               ("tariffs/.flat.toml", True), ("tariffs/readme.txt", False)])
+    def test_a_folder_save_compares_the_files_the_case_reads(self, demo_copy, monkeypatch, name, changes):
+        # a file the case does not read (notes, a spreadsheet's lock file) may come and go during a save; a tariff the
+        # case reads (a hidden .toml one too) may not, even at the same size and time
+        import models.exports as exports
+
+        tariff = sorted((demo_copy / "tariffs").glob("*.toml"))[0].read_text(encoding="utf-8")
+        (demo_copy / "tariffs" / ".flat.toml").write_text(tariff + "# a\n", encoding="utf-8")
+        real = exports.atomic_write_bytes
+
+        def and_another_file_changes(path, data):
+            real(path, data)
+            target = demo_copy / name
+            before = target.stat() if target.exists() else None
+            target.write_text(tariff + "# b\n", encoding="utf-8")  # (as long as before)
+            if before is not None:  # (its time as it was: only the content tells)
+                os.utime(target, ns=(before.st_atime_ns, before.st_mtime_ns))
+
+        monkeypatch.setattr(exports, "atomic_write_bytes", and_another_file_changes)
+        out = case_io.save_finance_settings(demo_copy, {"horizon_yr": 12}, now=NOW)
+        assert out.outcome == ("failed" if changes else "saved"), [str(p) for p in out.problems]
 
     def test_a_folder_case_is_read_twice_by_a_save(self, small_copy, monkeypatch):
         # once to compare the values, once to check the saved case loads: its tables (a long profile table of
