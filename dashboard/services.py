@@ -336,6 +336,15 @@ def encoded_size_bytes(contents: object) -> int:
 # ---------------------------------------------------------------------------------------------------
 # The engine: bounded, thread-safe caches around models.scenario
 # ---------------------------------------------------------------------------------------------------
+def physics_within_free_memory(case, capacitor_cost_per_kvar: float):
+    """The physics of a case (:func:`models.scenario.physics`) within the machine's free memory, as ``drivecase run``
+    runs it: the budgets of :func:`models.estimate.memory_plan` where the defaults would not fit, else the defaults."""
+    from models.estimate import memory_plan
+
+    memory = memory_plan(case)
+    return scenario.physics(case, capacitor_cost_per_kvar, budgets=memory.budgets if memory.given_up else None)
+
+
 class Engine:
     """Process-level holder of cases, physics and economics, with bounded caches.
 
@@ -355,7 +364,7 @@ class Engine:
     def __init__(self, physics_fn: Callable | None = None, economics_fn: Callable | None = None,
                  max_uploaded_cases: int = MAX_UPLOADED_CASES, max_results: int = MAX_RESULTS,
                  upload_root: Path | None = None):
-        self._physics_fn = physics_fn or scenario.physics
+        self._physics_fn = physics_fn or physics_within_free_memory
         self._economics_fn = economics_fn or scenario.economics
         self.max_uploaded_cases = int(max_uploaded_cases)
         self.max_results = int(max_results)

@@ -941,3 +941,20 @@ def test_the_content_key_hashes_each_file_as_its_name_size_and_bytes(tmp_path):
         body = (folder / name).read_bytes()
         digest.update(name.encode() + b"\0" + str(len(body)).encode() + b"\0" + body)
     assert services.content_key(folder) == digest.hexdigest()[:32]
+
+
+def test_the_dashboards_physics_keeps_within_the_free_memory(monkeypatch):
+    # as drivecase run: the budgets of models.estimate.memory_plan where the defaults would not fit the machine's free
+    # memory (the demo's defaults keep every option's per-interval power: about 0.74 GiB estimated, more than 80 % of
+    # 1 GiB), the defaults where they fit (8 GiB free)
+    from models import estimate
+    from models.case import load_case
+
+    case, _ = load_case(DEMO)
+    given = []
+    monkeypatch.setattr(scenario, "physics", lambda case, cost, budgets=None: given.append(budgets) or "physics")
+    for free_gib in (1, 8):
+        monkeypatch.setattr(estimate, "available_bytes", lambda: free_gib * 2**30)
+        assert services.physics_within_free_memory(case, 40.0) == "physics"
+    assert given[0] is not None and given[0] != estimate.default_budgets() and given[1] is None
+    assert services.Engine()._physics_fn is services.physics_within_free_memory
