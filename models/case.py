@@ -904,7 +904,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
             problems.append(warning(source, None, None, None, "the file holds no rows: no profile is read from it",
                                     "export the profiles again, or delete the file when the case has no profiles"))
         return {}, empty_info
-    rows = raw.rows if isinstance(raw.rows, io.RowNumbers) else np.asarray(raw.rows)  # (a Parquet table's: made when asked for)
+    rows = raw.rows if isinstance(raw.rows, io.RowNumbers) else np.asarray(raw.rows)  # (Parquet's: made when asked)
     known = io.PROFILE_COLUMNS
     for column in list(frame.columns) + [c for c in raw.unread if c not in frame.columns]:
         if column not in known:

@@ -911,8 +911,8 @@ def _parquet_stream(path: Path, plan: _ParquetPlan) -> pd.DataFrame:
     if at != n:
         raise ValueError(f"the file holds {at:,} rows, its footer {n:,}")
     for name, seen in categories.items():
-        categories = pd.Index(list(seen), dtype=_id_text_type() if seen else object)  # (none: as to_pandas gives)
-        columns[name] = pd.Categorical.from_codes(writable[name], categories=categories, validate=False)
+        ids = pd.Index(list(seen), dtype=_id_text_type() if seen else object)  # (none: as to_pandas gives them)
+        columns[name] = pd.Categorical.from_codes(writable[name], categories=ids, validate=False)
     if len(plan.quantities) == 2 and all(q in columns for q in plan.quantities) and n:
         # (no statistics: both value columns were read; the one of no value is dropped now)
         empty = [q for q in plan.quantities if nulls[q] == n]
@@ -2104,8 +2104,8 @@ def save_finance_settings(case_path: str | Path, assumptions: object, *,
        leaves every other table and setting as before (a workbook's other sheets and settings read as before;
        the other files a folder's case reads with the content, sizes and modification times they had, as the
        save writes none of them, a long profile table by size and time, not read again for it), the previous
-       content is written back the same way and the outcome is ``failed``. An exception at any step, even an interrupt, puts the
-       previous content back before it propagates.
+       content is written back the same way and the outcome is ``failed``. An exception at any step, even an
+       interrupt, puts the previous content back before it propagates.
 
     Warnings
     --------
@@ -2166,8 +2166,8 @@ def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
         return SavedCase("refused", path, place.target, problems=(
             error(place.source, None, None, None, f"the file cannot be edited ({exc.__class__.__name__}: {exc})",
                   "change the values in a text editor or spreadsheet program"),))
-    # what the save must leave as it was: a workbook's other sheets and settings, read; a folder's other files, by
-    # their sizes and times (the save writes none of them: a large profile table is not read twice more for this)
+    # what the save must leave as it was: a workbook's other sheets and settings, read; the other files a folder's
+    # case reads, by content, size and time (the save writes none of them: a large profile table is not read again)
     raw_before = read_case_files(path) if place.kind == "workbook" else _other_files(path, place.target)
     previous = None
     if original is not None:
