@@ -710,7 +710,8 @@ def _parquet_plan(path: Path, table: str) -> _ParquetPlan:
         by_quantity = [named.get(c, []) for c in ("shaft_load_pct", "input_kw")]
         if all(len(q) == 1 for q in by_quantity):  # (one column for each quantity)
             quantities = tuple(q[0] for q in by_quantity)
-            empty = [name for name in quantities if _all_null(meta, name)]
+            empty = [name for name in quantities  # (a column of Arrow's null type holds no value by its type)
+                     if pa.types.is_null(schema.field(name).type) or _all_null(meta, name)]
             if len(empty) == 1:
                 read.remove(empty[0])
     streamed = _streamable(meta, schema, read, ids)

@@ -1386,6 +1386,20 @@ class TestParquetReadByBatches:
             assert str(raw.frame["timestamp"].dt.tz) == "Europe/Berlin"
             assert (raw.frame["timestamp"].to_numpy() == frame["timestamp"].to_numpy()).all()
 
+    def test_an_other_quantity_column_of_no_type_is_left_unread(self, tmp_path):
+        # a column of None only (pyarrow's null type, written without statistics) is the other quantity's empty
+        # column as a float column of blanks is: not read, and the table is read batch by batch
+        from models import io as case_io
+
+        frame = _metered(2, 30)
+        frame["input_kw"] = None
+        path = tmp_path / "profiles.parquet"
+        frame.to_parquet(path, index=False)
+        plan = case_io._parquet_plan(path, "profiles")
+        assert plan.streamed and plan.columns == ["profile_id", "timestamp", "shaft_load_pct"]
+        raw, problems = case_io.read_parquet_table(path, "profiles")
+        assert not problems and list(raw.frame.columns) == ["profile_id", "timestamp", "shaft_load_pct"]
+
     def test_timestamps_without_a_zone_are_counted_more(self, tmp_path):
         # local times are copied and placed in the case's zone while checked: 24 bytes a row more than zoned ones
         # (PARQUET_NAIVE_STAMP_BYTES; hand calculation: 48 rows x (30 + 24) bytes)
