@@ -17,13 +17,15 @@ from models.io import available_bytes  # noqa: F401 (the machine's free memory, 
 from models.operation import (CHUNK_ELEMENTS, PHYSICS_THREADS, MemoryBudgets, case_index, default_budgets,
                               interval_bytes, options_with_baseline, site_partition)
 
-#: Machines stage per asset-option-step [s], one thread: 12.0 s of wall time for 10,000 assets x 11
-#: options x 8,760 steps with two site threads (bench_fleet, local engine, late on 2026-12-02, 50.3 s end to
-#: end, load average 1.7 on the 2-core reference machine, its numpy pass 114 ms), times the two threads'
-#: gain 1.45.
-MACHINES_S_PER_ELEMENT = 12.0 * 1.45 / (10_000 * 11 * 8760)
-#: Site-bill attribution per asset-option-step [s], one thread: 12.4 s of wall time, same run, times 1.45.
-SITE_BILLS_S_PER_ELEMENT = 12.4 * 1.45 / (10_000 * 11 * 8760)
+#: Machines stage per asset-option-step [s], one thread: 8.9 s of wall time for 10,000 assets x 11 options x
+#: 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-04 night, 44.8 s end to end, load average
+#: 1.2 on the 2-core reference machine, its numpy pass 96.6 ms: a slow state of the host; the machines stage has
+#: not changed since, docs/performance.md), times the two threads' gain 1.45. On a fast state of the host (numpy
+#: pass 37-41 ms) the stage took 5.2-5.5 s: the estimate is then high by that much.
+MACHINES_S_PER_ELEMENT = 8.9 * 1.45 / (10_000 * 11 * 8760)
+#: Site-bill attribution per asset-option-step [s], one thread: 6.3 s of wall time, same run, times 1.45 (4.4-4.6 s
+#: on the fast state).
+SITE_BILLS_S_PER_ELEMENT = 6.3 * 1.45 / (10_000 * 11 * 8760)
 #: Finance and the plan's monthly bills per asset [s]: 4.3 s per 10,000 assets (3.2 s finance and 1.1 s
 #: bills in the 50.3 s run above; budgets per motor as the demo's: the plan's bills read the chosen options'
 #: rows through the sites' kept curve books). The end of life and the Monte Carlo (4.2 s) run beside the
