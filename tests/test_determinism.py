@@ -10,6 +10,7 @@ its source is on the machine (``LOCPATH``); otherwise that environment is skippe
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import os
 import shutil
@@ -28,6 +29,8 @@ from models.case import load_case
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "data" / "demo"
 DEMO_TARIFF = DEMO / "tariffs" / "example_tou_kw_reactive_ratchet.toml"  # invented, EUR, Europe/Berlin
+#: The date loads are made on (an input: the default purchase date), the same for both loads compared.
+TODAY = dt.date(2026, 12, 1)
 
 
 def _case_tables(case) -> dict[str, object]:
@@ -63,17 +66,19 @@ def _small_case(folder: Path) -> Path:
 class TestSameInputSameCase:
     def test_folder_loaded_twice(self, tmp_path):
         folder = _small_case(tmp_path / "c")
-        first, _ = load_case(folder, mode="strict")
-        second, _ = load_case(folder, mode="strict")
+        first, _ = load_case(folder, mode="strict", today=TODAY)
+        second, _ = load_case(folder, mode="strict", today=TODAY)
         _assert_same_case(first, second)
 
     def test_workbook_loaded_twice(self, tmp_path):
         book = cb.write_workbook(tmp_path / "case.xlsx")
-        _assert_same_case(load_case(book, mode="strict")[0], load_case(book, mode="strict")[0])
+        _assert_same_case(load_case(book, mode="strict", today=TODAY)[0], load_case(book, mode="strict", today=TODAY)[0])
 
-    def test_demo_loaded_twice(self, demo_case):
-        again, _ = load_case(DEMO, mode="strict")
-        _assert_same_case(demo_case, again)
+    def test_demo_loaded_twice(self):
+        # (the date is an input too: given, so that loads either side of midnight in the case's zone compare)
+        first, _ = load_case(DEMO, mode="strict", today=TODAY)
+        again, _ = load_case(DEMO, mode="strict", today=TODAY)
+        _assert_same_case(first, again)
 
 
 def _per_asset(case) -> dict[str, pd.DataFrame]:
