@@ -103,7 +103,7 @@ class TestRowOrder:
             frame.iloc[rng.permutation(len(frame))].to_csv(folder / name, index=False)
         profiles = pd.read_parquet(folder / "profiles.parquet")
         profiles.iloc[::-1].reset_index(drop=True).to_parquet(folder / "profiles.parquet", index=False)
-        shuffled, _ = load_case(folder, mode="strict")
+        shuffled, _ = load_case(folder, mode="strict", today=dt.date.fromisoformat(demo_case.settings.purchase_date))
         assert list(shuffled.assets["asset_id"]) != list(demo_case.assets["asset_id"])  # the order did change
         got, expected = _per_asset(shuffled), _per_asset(demo_case)
         for key in expected:

@@ -392,7 +392,10 @@ def test_a_catalogue_without_keep_row_runs_as_with_the_shipped_one(tmp_path, dem
     without = Path(shutil.copytree(REPO / "data" / "demo", tmp_path / "demo"))
     lines = DEFAULT_OPTIONS_PATH.read_text(encoding="utf-8").splitlines()
     (without / "options.csv").write_text("\n".join(l for l in lines if not l.startswith("keep,")) + "\n", encoding="utf-8")
-    case_b, problems = load_case(without)
+    # (on the date the shared demo was loaded: its default purchase date, should midnight pass in between)
+    import datetime as dt
+
+    case_b, problems = load_case(without, today=dt.date.fromisoformat(demo_case.settings.purchase_date))
     assert case_b is not None and any("no 'existing'" in p.rule for p in problems)
     a = scenario.run(demo_case, demo_case.finance, with_risk=False).results
     b = scenario.run(case_b, case_b.finance, with_risk=False).results
