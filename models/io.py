@@ -831,7 +831,8 @@ def _streamable(meta, schema, names: list[str], ids: list[str]) -> bool:
             if not isinstance(dtype, np.dtype) or dtype.kind not in "fiuM":
                 return False
         if pa.types.is_timestamp(kind):
-            zone = (entry.get("metadata") or {}).get("timezone") if isinstance(entry.get("metadata"), dict) else None
+            extra = entry.get("metadata")
+            zone = extra.get("timezone") if isinstance(extra, dict) else None
             if (zone is not None or entry.get("pandas_type") == "datetimetz") and zone != kind.tz:
                 return False
             if kind.tz is not None:
