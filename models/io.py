@@ -1519,6 +1519,24 @@ def _folder_files(path: Path) -> tuple[dict[str, Path], list[Problem]]:
     return files, []
 
 
+def folder_names() -> tuple[str, ...]:
+    """The lower-case names of the files of a case folder that :func:`read_folder` reads, besides
+    ``tariffs/*.toml``: ``case.toml``, each table as CSV or Parquet, ``finance.toml`` and ``scenarios.toml``."""
+    return ("case.toml", *(f"{t}.{suffix}" for t in CASE_TABLES for suffix in ("csv", "parquet")), "finance.toml",
+            "scenarios.toml")
+
+
+def folder_case_files(path: Path) -> list[Path]:
+    """The files of a case folder that :func:`read_folder` reads (:func:`folder_names`, then every
+    ``tariffs/*.toml``), those present only."""
+    files, _ = _folder_files(path)
+    chosen = [files[name] for name in folder_names() if name in files]
+    if (path / "tariffs").is_dir():
+        tariffs, _ = _folder_files(path / "tariffs")
+        chosen += [tariffs[key] for key in sorted(tariffs) if tariffs[key].suffix.lower() == ".toml"]
+    return chosen
+
+
 def read_folder(path: Path) -> RawCase:
     """Read a case folder: ``case.toml``, one CSV per table (Parquet allowed), ``tariffs/``, ``finance.toml``.
 
@@ -1529,9 +1547,8 @@ def read_folder(path: Path) -> RawCase:
     case = RawCase(path=path, kind="folder")
     files, problems = _folder_files(path)
     case.problems += problems
-    used: set[str] = set()
+    used = set(folder_names())  # (what folder_case_files lists: keep the two in step)
     if "case.toml" in files:
-        used.add("case.toml")
         name = files["case.toml"].name
         text, case.settings, problems = _read_toml(files["case.toml"], name)
         if text is not None and not has_errors(problems) and not case.settings:
@@ -1543,7 +1560,6 @@ def read_folder(path: Path) -> RawCase:
         case.problems += problems
     for table in CASE_TABLES:
         csv_path, parquet_path = files.get(f"{table}.csv"), files.get(f"{table}.parquet")
-        used |= {f"{table}.csv", f"{table}.parquet"}
         if csv_path is not None and parquet_path is not None:
             case.problems.append(error(csv_path.name, None, None, None,
                                        f"both {csv_path.name} and {parquet_path.name} are present",
@@ -1580,12 +1596,10 @@ def read_folder(path: Path) -> RawCase:
         case.problems.append(warning("tariffs", None, None, None, "'tariffs' is not a folder; it was ignored",
                                      "put tariff files in a folder named tariffs"))
     if "finance.toml" in files:
-        used.add("finance.toml")
         case.extra["finance.toml"] = files["finance.toml"]
     if "scenarios.toml" in files:
-        used.add("scenarios.toml")
         case.extra["scenarios.toml"] = files["scenarios.toml"]
-    expected = sorted(used | {f"{t}.csv" for t in CASE_TABLES})
+    expected = sorted(used)
     for key, file_path in files.items():
         if key in used or file_path.name.startswith((".", "~$")) or file_path.suffix.lower() not in _CASE_LIKE_SUFFIXES:
             continue
@@ -2503,20 +2517,13 @@ SAVE_DIGEST_MAX_BYTES = 64 * 2**20
 
 
 def _other_files(folder: Path, target: Path) -> dict[str, tuple]:
-    """The files of a case folder that reading the case reads (:func:`read_folder`: ``case.toml``, the tables,
-    ``scenarios.toml``, every ``tariffs/*.toml``) but ``target`` (the finance file a save writes), by path within the
-    folder: each its size and modification time [ns], and the digest of its bytes up to
+    """The files of a case folder that reading the case reads (:func:`folder_case_files`) but ``target`` (the
+    finance file a save writes), by path within the folder: each its size and modification time [ns], and the digest of its bytes up to
     :data:`SAVE_DIGEST_MAX_BYTES` (a large profile table by size and time alone)."""
     import hashlib
 
-    files, _ = _folder_files(folder)
-    read = {"case.toml", "scenarios.toml"} | {f"{t}.{suffix}" for t in CASE_TABLES for suffix in ("csv", "parquet")}
-    chosen = [entry for key, entry in files.items() if key in read]
-    if (folder / "tariffs").is_dir():
-        tariffs, _ = _folder_files(folder / "tariffs")
-        chosen += [entry for entry in tariffs.values() if entry.suffix.lower() == ".toml"]
     state: dict[str, tuple] = {}
-    for entry in chosen:
+    for entry in folder_case_files(folder):
         try:
             if entry.resolve() == target.resolve():
                 continue

@@ -182,3 +182,29 @@ def test_blank_case_says_when_a_site_needs_a_tariff(tmp_path):
     book = load_workbook(write_blank_case(tmp_path / "new.xlsx")[0], read_only=True)
     rows = [r for r in book["instructions"].iter_rows(values_only=True) if r[:2] == ("sites", "tariff_file")]
     assert rows and rows[0][3] == "yes, when the case has tariffs"
+
+
+def test_the_files_a_folder_case_reads_are_listed_in_one_place(tmp_path):
+    # read_folder warns of every file it does not read; folder_case_files lists the ones it does (the finance
+    # save compares those): in a folder holding every name of the format and a stray file, the two lists are
+    # complementary
+    from models.io import CASE_TABLES, folder_case_files, read_folder
+
+    (tmp_path / "tariffs").mkdir()
+    names = ["case.toml", "finance.toml", "scenarios.toml", "notes.csv"] + [f"{t}.csv" for t in CASE_TABLES]
+    for name in names:
+        (tmp_path / name).write_text("", encoding="utf-8")
+    (tmp_path / "tariffs" / "flat.toml").write_text("", encoding="utf-8")
+    (tmp_path / "tariffs" / "readme.txt").write_text("", encoding="utf-8")
+    listed = {p.relative_to(tmp_path).as_posix() for p in folder_case_files(tmp_path)}
+    assert listed == (set(names) - {"notes.csv"}) | {"tariffs/flat.toml"}
+    ignored = {p.file for p in read_folder(tmp_path).problems if "ignored" in p.rule}
+    assert ignored == {"notes.csv", "tariffs/readme.txt"}
+
+
+def test_a_misspelt_finance_file_is_named_when_the_case_has_none(tmp_path):
+    from models.io import read_folder
+
+    (tmp_path / "finanse.toml").write_text("", encoding="utf-8")
+    hit = _find(read_folder(tmp_path).problems, "not part of the case format")
+    assert hit.hint == "did you mean finance.toml?"
