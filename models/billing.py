@@ -223,7 +223,7 @@ class _Windows:
     month: np.ndarray  # month position of each window (W,)
     period: np.ndarray  # period position of each window's first interval (W,)
     season: np.ndarray  # season position (W,)
-    month_starts: np.ndarray  # first window of each month (M,)
+    month_starts: np.ndarray  # first window of each month (M,): of the next one where a month has none
     identity: bool  # one interval per window (data as coarse as the window or coarser): means are the values
 
     @property
@@ -290,27 +290,36 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     windows = {}
     utc = _utc_ns(index)
     wall_ns = wall.to_numpy().astype("datetime64[ns]").astype(np.int64)
-    for minutes in sorted({d.window_min for d in tariff.demand}):
+    interval_ns = int(round(float(interval_h) * 3_600e9))
+    for minutes, rolling in sorted({window_key(d) for d in tariff.demand}):
         w = minutes * _NS_PER_MIN
-        offset = wall_ns - utc
-        key = (wall_ns // w) * w - offset  # window start in UTC, aligned to the local clock
-        starts = np.concatenate(([0], np.nonzero(np.diff(key))[0] + 1))
-        count = np.diff(np.concatenate((starts, [len(index)])))
-        wmonth = month[starts]
-        windows[minutes] = _Windows(
+        n_in = w // interval_ns if interval_ns > 0 else 1
+        if rolling and n_in > 1:
+            # a window ending at every interval that has a whole window before it, counted in the month and
+            # period of its last interval (the meter's demand at the window's end)
+            ends = np.arange(n_in - 1, len(index), dtype=np.int64)
+            starts, count, at = ends - (n_in - 1), np.full(len(ends), n_in, dtype=np.int64), ends
+        else:
+            # block windows: aligned to the local clock (a rolling window no longer than an interval is one)
+            offset = wall_ns - utc
+            key = (wall_ns // w) * w - offset  # window start in UTC, aligned to the local clock
+            starts = np.concatenate(([0], np.nonzero(np.diff(key))[0] + 1))
+            count = np.diff(np.concatenate((starts, [len(index)])))
+            at = starts
+        wmonth = month[at]
+        windows[(minutes, rolling)] = _Windows(
             starts=starts,
             count=count,
             month=wmonth,
-            period=period[starts],
-            season=season[starts],
-            month_starts=np.concatenate(([0], np.nonzero(np.diff(wmonth))[0] + 1)),
-            identity=len(starts) == len(index),
+            period=period[at],
+            season=season[at],
+            month_starts=np.searchsorted(wmonth, np.arange(len(labels))),  # (a month without a window: none)
+            identity=len(starts) == len(index) and bool(np.all(count == 1)),
         )
     steps_in_cell = np.zeros(len(labels) * k, dtype=np.int64)
     np.add.at(steps_in_cell, month * k + period, 1)
     year = pd.Timestamp(int(wall_ns[len(wall_ns) // 2])).year if len(wall_ns) else None
-    peaks = {c.name: peak_windows(wall_ns, placed_peak_times(c, year), c.window_min,
-                                  int(round(float(interval_h) * 3_600e9)))
+    peaks = {c.name: peak_windows(wall_ns, placed_peak_times(c, year), c.window_min, interval_ns)
              for c in getattr(tariff, "coincident", ())}
     return _Calendar(
         n_steps=len(index),
@@ -475,26 +484,33 @@ def _mask(cal: _Calendar, tariff: Tariff, periods, seasons, period_arr=None, sea
     return m
 
 
-def _scope(cal: _Calendar, tariff: Tariff, periods, seasons, window_min: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+def window_key(charge: DemandCharge) -> tuple[int, bool]:
+    """The demand windows a charge reads: (length [min], rolling)."""
+    return int(charge.window_min), bool(charge.rolling)
+
+
+def _scope(cal: _Calendar, tariff: Tariff, periods, seasons,
+           window: tuple[int, bool] | None = None) -> tuple[np.ndarray, np.ndarray]:
     """A clause's scope and the months it is in force, built once per calendar.
 
-    Without ``window_min``: the (month, period) cells inside the listed periods and seasons, (M * K,)
+    Without ``window``: the (month, period) cells inside the listed periods and seasons, (M * K,)
     bool (a cell is one period of one month, so it is wholly inside or wholly outside: a season is a
-    set of months), and the months (M,) with some interval inside. With ``window_min``: the demand
-    windows of that length inside, (W,), and the months with some window inside.
+    set of months), and the months (M,) with some interval inside. With ``window`` (:func:`window_key`):
+    the demand windows of that kind inside, (W,), and the months with some window inside.
     """
-    key = (None if periods is None else tuple(periods), None if seasons is None else tuple(seasons), window_min)
+    key = (None if periods is None else tuple(periods), None if seasons is None else tuple(seasons), window)
     got = cal.masks.get(key)
     if got is None:
         n_m, k = cal.n_months, cal.n_periods
-        if window_min is None:
+        if window is None:
             season_of_month = cal.season[cal.month_starts]
             inside = _mask(cal, tariff, periods, seasons, np.tile(np.arange(k), n_m), np.repeat(season_of_month, k))
             months = (cal.steps_in_cell * inside.reshape(n_m, k)).sum(axis=1) > 0
         else:
-            win = cal.windows[window_min]
+            win = cal.windows[window]
             inside = _mask(cal, tariff, periods, seasons, win.period, win.season)
-            months = np.maximum.reduceat(inside.astype(np.int8), win.month_starts) > 0
+            months = np.zeros(n_m, dtype=bool)
+            months[np.unique(win.month[inside])] = True
         got = cal.masks[key] = (inside, months)
     return got
 
@@ -713,10 +729,10 @@ def transition_years(months: int, n_months: int = 12) -> int:
 
 def _demand_items(tariff, cal, d: DemandCharge, p, q, kwh_month, lag_kvarh_month, repeat_year, n_s,
                   before: Mapping[str, np.ndarray] | None = None, start: int = 0) -> list[_Item]:
-    win = cal.windows[d.window_min]
+    win = cal.windows[window_key(d)]
     n_m = cal.n_months
     a = d.power_factor_adjustment
-    in_scope, applies = _scope(cal, tariff, d.periods, d.seasons, d.window_min)
+    in_scope, applies = _scope(cal, tariff, d.periods, d.seasons, window_key(d))
     want_q = d.basis != "kW" or (a is not None and a.power_factor_from != "month_average")
     raw, p_at, q_at = _window_peaks_kernel(p, q, d.basis != "kW", want_q, win.starts, win.count, win.identity,
                                            win.month_bounds, in_scope, n_s)

@@ -214,7 +214,7 @@ class DemandCharge:
     window_min : int
         Demand window [min]: 15, 30 or 60. Finer interval data are averaged to the window.
     periods : tuple of str or None
-        Only windows starting in these periods count; None = all.
+        Only windows starting in these periods count (a rolling window: ending in them); None = all.
     seasons : tuple of str or None
         Only windows in these seasons count (the charge is zero in other months); None = all.
     ratchet_frac : float or None
@@ -233,6 +233,11 @@ class DemandCharge:
     excess_price_per_unit_month : float or None
         Price of each kW (kVA) of the month's demand above the contract [currency per unit per month];
         None = ``price_per_unit_month`` (the greater of the contract and the demand is billed).
+    rolling : bool
+        False: block demand, windows aligned to the local clock (a 15-minute window starts on the quarter
+        hour). True: rolling (sliding) demand, a window ending at every interval of data finer than the
+        window, counted in the month, period and season of its last interval; on data as coarse as the
+        window or coarser the two are the same.
     """
 
     name: str
@@ -246,6 +251,7 @@ class DemandCharge:
     power_factor_adjustment: PowerFactorAdjustment | None = None
     contracted: float | None = None
     excess_price_per_unit_month: float | None = None
+    rolling: bool = False
 
     @property
     def excess_price(self) -> float:
@@ -1008,6 +1014,7 @@ _DEMAND_KEYS = (
     "contracted_kva",
     "excess_price_per_kw_month",
     "excess_price_per_kva_month",
+    "rolling",
 )
 _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
 _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons")
@@ -1539,6 +1546,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             basis = "kW" if has_kw else "kVA"
             dprice = r.get(d, "price_per_kw_month" if has_kw else "price_per_kva_month", p, "number")
         window = r.get(d, "window_min", p, "int", default=15)
+        rolling = r.get(d, "rolling", p, "bool", default=False)
         dperiods = r.get(d, "periods", p, "str_list", default=None)
         dseasons = r.get(d, "seasons", p, "str_list", default=None)
         share = r.get(d, "ratchet_frac", p, "number", default=None)
@@ -1586,6 +1594,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
                     power_factor_adjustment=pfa,
                     contracted=contract,
                     excess_price_per_unit_month=excess,
+                    rolling=bool(rolling),
                 )
             )
             pos["demand"].append(i)

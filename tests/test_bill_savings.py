@@ -243,3 +243,32 @@ def test_a_coincident_peak_charge_is_saved_only_where_the_motor_runs_at_the_peak
                        np.array(["keep", "ie4", "ie4", "ie4"]), 35.0)
     assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 1_200.0, 600.0, 0.0], atol=1e-9)
     assert_allclose(out["saving"][0, :, 1], [0.0, 1_200.0, 600.0, 0.0], atol=1e-9)  # in the demand component
+
+
+@pytest.mark.parametrize("rolling, expected", [(True, 1_000.0), (False, 0.0)])
+def test_a_rolling_demand_saving_counts_the_peak_between_two_clock_windows(rolling, expected):
+    # hand calculation: a motor drawing 200 kW every 15 minutes of February but 400 kW at 10:15 and 10:30 on the
+    # 11th. A 30-minute rolling window ending at 10:30 reads 400 kW, the month's peak; block windows read (200 + 400)
+    # / 2 = 300 at 10:00 and 10:30. The option draws 200 kW at 10:30: the rolling peak falls to 300 (the windows
+    # ending 10:15 and 10:30), a saving of 100 kW x 10 = 1 000; the block peak stays 300 (the window at 10:00)
+    import pandas as pd
+
+    from models.bill_savings import SiteSetup, site_savings
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({"tariff": {"name": "rolling (invented)", "currency": "EUR", "time_zone": "UTC"},
+                                    "periods": [{"code": "all"}],
+                                    "demand": [{"name": "d", "price_per_kw_month": 10.0, "window_min": 30,
+                                                "rolling": rolling}]})
+    assert t is not None, problems
+    idx = pd.date_range("2025-02-01", "2025-03-01", freq="15min", tz="UTC", inclusive="left")
+    today = np.full(len(idx), 200.0)
+    at = idx.get_loc(pd.Timestamp("2025-02-11 10:15", tz="UTC"))
+    today[at:at + 2] = 400.0
+    option = today.copy()
+    option[at + 1] = 200.0
+    p = np.stack([today, option])[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 0.25, p, np.zeros_like(p), np.ones((1, 2), dtype=bool),
+                       np.array(["keep", "ie4"]), 35.0)
+    assert_allclose(out["saving"][0].sum(axis=-1), [0.0, expected], atol=1e-9)

@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 
 from models.billing import (
     bill,
@@ -157,6 +157,41 @@ class TestDemand:
         b = bill(t, d1_index(), D1_P, D1_Q)
         assert_allclose(quantity(b, "demand:d"), expected_qty, **EXACT)
         assert_allclose(bill_total(b), expected_amount, **EXACT)
+
+    @pytest.mark.parametrize(
+        "clause, expected_qty",
+        [
+            # hand calculation, see docs/derivations/billing-demand.md, case D1r (rolling windows on D1's data)
+            ("window_min = 30", 310.0),
+            ("window_min = 30\nperiods = [\"peak\"]", 280.0),
+            ("window_min = 60", 295.0),
+            ("window_min = 15", 400.0),  # a window no longer than an interval: as block demand
+        ],
+    )
+    def test_rolling_windows(self, clause, expected_qty):
+        t = load(D1_PERIODS + '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nrolling = true\n' + clause)
+        b = bill(t, d1_index(), D1_P, D1_Q)
+        assert_allclose(quantity(b, "demand:d"), expected_qty, **EXACT)
+        assert_allclose(bill_total(b), 10.0 * expected_qty, **EXACT)
+
+    def test_rolling_kva_demand(self):
+        # hand calculation, docs/derivations/billing-demand.md, case D1r: the window ending 09:15 (as D1's block)
+        t = load(D1_PERIODS + '[[demand]]\nname = "d"\nprice_per_kva_month = 8.0\nwindow_min = 30\nrolling = true')
+        assert_allclose(quantity(bill(t, d1_index(), D1_P, D1_Q), "demand:d"), 390.5125, atol=1e-4)
+
+    def test_rolling_windows_count_in_the_month_of_their_end(self):
+        # hand calculation: 15-minute data 31 Jan 23:15 to 1 Feb 00:00 (UTC) of 100, 100, 500, 100 kW; 30-minute
+        # rolling windows end at 23:30 (mean 100), 23:45 ((100 + 500) / 2 = 300) and 00:00 ((500 + 100) / 2 = 300),
+        # the last in February: January's peak 300, February's 300
+        t = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nwindow_min = 30\nrolling = true')
+        idx = pd.date_range("2025-01-31 23:15", periods=4, freq="15min", tz="UTC")
+        b = bill(t, idx, [100.0, 100.0, 500.0, 100.0], [0.0] * 4)
+        assert_allclose(quantity(b, "demand:d", "2025-01"), 300.0, **EXACT)
+        assert_allclose(quantity(b, "demand:d", "2025-02"), 300.0, **EXACT)
+        # block windows (23:00, 23:30 and 00:00) read 100, 300 and 100
+        block = load(FLAT + '[[demand]]\nname = "d"\nprice_per_kw_month = 1.0\nwindow_min = 30')
+        b = bill(block, idx, [100.0, 100.0, 500.0, 100.0], [0.0] * 4)
+        assert_allclose(quantity(b, "demand:d", "2025-02"), 100.0, **EXACT)
 
     def test_kva_demand(self):
         # hand calculation, see docs/derivations/billing-demand.md, case D1: sqrt(152 500) = 390.5125 kVA;
@@ -657,23 +692,31 @@ class TestCompiledPasses:
         expected = self.numpy_cells(cal, np.hypot(np.maximum(p[:1], 0.0), q) * cal.interval_h)
         assert_allclose(got, expected, **self.CLOSE)
 
-    @pytest.mark.parametrize("window_min", [15, 60])
+    @pytest.mark.parametrize("window_min, rolling", [(15, False), (60, False), (15, True), (60, True)])
     @pytest.mark.parametrize("kva", [False, True])
-    def test_window_peaks(self, meters, window_min, kva):
+    def test_window_peaks(self, meters, window_min, rolling, kva):
         from dataclasses import replace
+
+        from numpy.lib.stride_tricks import sliding_window_view
 
         from models.billing import _calendar, _mask, _window_peaks_kernel
 
         t, _, p, q = meters
         index = pd.date_range("2025-05-20", periods=p.shape[1], freq="15min", tz=t.time_zone)
-        t = replace(t, demand=(replace(t.demand[0], window_min=window_min),))
+        t = replace(t, demand=(replace(t.demand[0], window_min=window_min, rolling=rolling),))
         cal = _calendar(t, index, 0.25)
-        win = cal.windows[window_min]
+        win = cal.windows[(window_min, rolling)]
         assert win.identity == (window_min == 15)
         scope = _mask(cal, t, ("on-peak", "mid-peak"), None, win.period, win.season)
         # the rule in numpy: window means, masked, the month's maximum and its first window
-        p_w = np.add.reduceat(p, win.starts, axis=1) / win.count
-        q_w = np.add.reduceat(q, win.starts, axis=1) / win.count
+        if rolling:  # a window of n intervals ending at every interval from the n-th on
+            n = window_min // 15
+            assert_array_equal(win.starts, np.arange(p.shape[1] - n + 1))
+            p_w = sliding_window_view(p, n, axis=1).mean(axis=-1)
+            q_w = sliding_window_view(q, n, axis=1).mean(axis=-1)
+        else:
+            p_w = np.add.reduceat(p, win.starts, axis=1) / win.count
+            q_w = np.add.reduceat(q, win.starts, axis=1) / win.count
         demand = np.hypot(p_w, q_w) if kva else p_w
         masked = np.where(scope, demand, -np.inf)
         peak, p_at, q_at = _window_peaks_kernel(p, q, kva, True, win.starts, win.count, win.identity,
@@ -691,7 +734,7 @@ class TestCompiledPasses:
         from models.billing import _window_peaks_kernel
 
         t, cal, p, q = meters
-        win = cal.windows[t.demand[0].window_min]
+        win = cal.windows[(t.demand[0].window_min, False)]
         scope = np.zeros(len(win.starts), dtype=bool)
         peak, _, _ = _window_peaks_kernel(p, q, False, False, win.starts, win.count, win.identity, win.month_bounds,
                                           scope, p.shape[0])

@@ -745,3 +745,15 @@ def test_an_excess_price_below_the_contract_price_is_warned_and_a_duplicate_unit
     found = [p for p in problems if p.column == "demand[1].contracted_kva"]
     assert found and found[0].hint == "remove it: contracted_kw is given"
 
+
+
+@pytest.mark.parametrize("written, read, error", [("", False, None), ("rolling = true", True, None),
+                                                   ("rolling = false", False, None), ('rolling = "yes"', None, "true or false")])
+def test_a_demand_charge_is_block_or_rolling(written, read, error):
+    # docs/tariffs.md, [[demand]] key rolling: a bool, false (block demand) when left out
+    t, problems = load('[tariff]\nname = "t"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
+                       f'[[demand]]\nprice_per_kw_month = 1.0\nwindow_min = 30\n{written}\n')
+    if error is None:
+        assert problems == [] and t.demand[0].rolling is read
+    else:
+        assert t is None and columns(problems) == ["demand[1].rolling"] and error in problems[0].rule
