@@ -158,7 +158,10 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     mid = s.index[len(s) // 2]
     year_shift = target_year - mid.year
     if year_shift:
-        s.index = s.index + pd.Timedelta(days=364 * year_shift)
+        moved = _moved_by_weeks(s.index, np.full(len(s), 52 * year_shift, dtype=np.int64))
+        s = pd.Series(s.to_numpy(), index=moved, name=s.name)
+        s = s[~s.index.isna()]
+        s = s[~s.index.duplicated(keep="first")]
     own_step = np.median(np.diff(s.index.asi8)) / _unit_per_minute(s.index)
     if own_step < step_min - 1e-9:
         s = s.resample(f"{int(step_min)}min").mean()
@@ -181,6 +184,35 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
 
 #: The step by which intervals outside the analysis year are moved onto it: 52 weeks, so weekdays line up.
 _YEAR_STEP = pd.Timedelta(days=364)
+
+
+def _moved_by_weeks(times: pd.DatetimeIndex, weeks: np.ndarray) -> pd.DatetimeIndex:
+    """Each of ``times`` moved by ``weeks[i]`` whole weeks of its zone's clock: the same weekday and clock time.
+
+    A move by absolute time would land an hour off in the week between two years' clock changes (the last
+    Sunday of March 2023 and of 2024 are a week apart). A clock time that does not exist on the day it lands
+    on (the hour skipped when the clocks go forward) is NaT; one that occurs twice (the hour repeated when they
+    go back) is its first occurrence, the second being left for the caller to treat as missing.
+
+    Examples
+    --------
+    >>> t = pd.DatetimeIndex(["2023-03-27 08:00"]).tz_localize("Europe/Berlin")
+    >>> str(_moved_by_weeks(t, np.array([52]))[0])
+    '2024-03-25 08:00:00+01:00'
+    """
+    shift = pd.to_timedelta(np.asarray(weeks, dtype=np.int64) * 7, unit="D")
+    moved = times + shift  # by absolute time: by the clock too, but where the two years' clock changes differ
+    if times.tz is None:
+        return moved
+    wall = times.tz_localize(None) + shift
+    off = np.asarray(moved.tz_localize(None) != wall)
+    if not off.any():
+        return moved
+    # only the times an hour off are placed again by the clock (placing all of them is twice as slow)
+    fixed = wall[off].tz_localize(times.tz, ambiguous=np.ones(int(off.sum()), dtype=bool), nonexistent="NaT")
+    instants = moved.asi8.copy()
+    instants[off] = fixed.as_unit(moved.unit).asi8  # (NaT is the smallest int64, as numpy's NaT)
+    return pd.DatetimeIndex(instants.view(f"M8[{moved.unit}]")).tz_localize("UTC").tz_convert(times.tz)
 
 
 def _wrapped_onto(s: pd.Series, index: pd.DatetimeIndex) -> pd.Series:
@@ -224,8 +256,8 @@ def _wrapped_onto(s: pd.Series, index: pd.DatetimeIndex) -> pd.Series:
     k = np.zeros(len(t), dtype=np.int64)
     k[before] = -((offset_ns[before] - start.value) // step_ns)  # steps forward, the least that reaches the year
     k[after] = -((offset_ns[after] - end.value) // step_ns + 1)  # steps back
-    moved_index = t + pd.to_timedelta(k * step_ns, unit="ns")
-    inside = (moved_index >= start) & (moved_index < end)
+    moved_index = _moved_by_weeks(t, 52 * k)  # (k steps of 52 weeks, by the clock)
+    inside = ~moved_index.isna() & (moved_index >= start) & (moved_index < end)
     kept = pd.Series(s.to_numpy()[~(before | after)], index=t[~(before | after)])
     moved = pd.Series(s.to_numpy()[(before | after) & inside], index=moved_index[(before | after) & inside])
     moved = moved[~moved.index.duplicated(keep="first")]

@@ -70,6 +70,21 @@ class TestConform:
         assert filled == 24 / 8760
         assert ((on["2025-01-01"] > 100.0) & (on["2025-01-01"] < 200.0)).all()  # a mean of both halves' Wednesdays
 
+    def test_a_profile_of_another_year_keeps_its_clock_times_in_the_weeks_between_two_clock_changes(self):
+        # hand calculation: a 2023 profile of Europe/Berlin whose value is the local hour of day, placed on 2024. The
+        # clocks went forward on 26 Mar 2023 and 31 Mar 2024, so Mon 27 Mar 2023 08:00 (summer time) moved 52 weeks
+        # lands on Mon 25 Mar 2024 08:00 (winter time): by the clock, 8; an hour earlier (7) had it moved by
+        # absolute time. Likewise the week between 29 Oct 2023 and 27 Oct 2024 the other way. Every interval of 2024
+        # therefore reads its own hour of day (those no 2023 stamp reaches are filled from the typical week, whose
+        # slot means are the hours themselves)
+        stamps = pd.date_range("2023-01-01", "2024-01-01", freq="h", tz="Europe/Berlin", inclusive="left")
+        series = pd.Series(stamps.hour.to_numpy(dtype=float), index=stamps)
+        index = pd.date_range("2024-01-01", "2025-01-01", freq="h", tz="Europe/Berlin", inclusive="left")
+        values, _ = conform(series, index)
+        on = pd.Series(values, index=index)
+        assert on[pd.Timestamp("2024-03-25 08:00", tz="Europe/Berlin")] == 8.0
+        assert_array_equal(values, index.hour.to_numpy(dtype=float))
+
     def test_an_interval_measured_in_the_year_is_never_replaced_by_a_moved_one(self):
         # two weeks of 2025 at 50 kW (so the profile is centred on 2025) and the first of them again in 2026 (52
         # weeks later, same weekdays) at 70 kW: the analysis index of that 2025 week keeps 50 kW; the 2026 values
