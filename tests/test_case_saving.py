@@ -221,8 +221,12 @@ class TestLoaderIgnoresVersions:
         raw = case_io.read_case_files(demo_copy)
         assert raw.extra["finance.toml"].parent == demo_copy
 
-    def test_drivecase_check_prints_the_same_with_and_without_the_versions_folder(self, demo_copy, capsys):
+    def test_drivecase_check_prints_the_same_with_and_without_the_versions_folder(self, demo_copy, capsys, monkeypatch):
+        import models.case
         from drivecase.cli import main
+
+        today = models.case._today_in("Europe/Berlin")  # (the check prints the default purchase date: one for both)
+        monkeypatch.setattr(models.case, "_today_in", lambda zone: today)
 
         case_io.save_finance_settings(demo_copy, {"horizon_yr": 12}, now=NOW)
         assert main(["check", str(demo_copy)]) == 0

@@ -56,7 +56,8 @@ def _small_case(folder: Path) -> Path:
     """The small test case with a tariff, so that 'drivecase run' prices it (a second or two to run)."""
     rows = [list(r) for r in cb.ASSETS]
     rows[0][cb.ASSET_HEADER.index("description")] = "Kühlwasserpumpe"  # non-ASCII text through every locale
-    cb.write_case(folder, assets=rows)
+    # (a purchase date given: runs compared across midnight in the case's zone would otherwise differ by it)
+    cb.write_case(folder, assets=rows, case_toml=cb.CASE_TOML + f'purchase_date = "{TODAY.isoformat()}"\n')
     cb.write_csv(folder / "sites.csv", cb.SITES_HEADER + ["tariff_file"], [cb.SITES[0] + ["t.toml"]])
     (folder / "tariffs").mkdir()
     shutil.copyfile(DEMO_TARIFF, folder / "tariffs" / "t.toml")
@@ -221,9 +222,9 @@ class TestReaderPaths:
 
         folder = _small_case(tmp_path / "c") if entry is None else _build(entry, tmp_path)
         monkeypatch.setattr(case_io, "FAST_CSV_BYTES", 10**12)
-        slow_case, slow_problems = load_case(folder)
+        slow_case, slow_problems = load_case(folder, today=TODAY)
         monkeypatch.setattr(case_io, "FAST_CSV_BYTES", 0)
-        fast_case, fast_problems = load_case(folder)
+        fast_case, fast_problems = load_case(folder, today=TODAY)
         assert [str(p) for p in fast_problems] == [str(p) for p in slow_problems]
         assert (fast_case is None) == (slow_case is None)
         if slow_case is not None:

@@ -188,8 +188,13 @@ class TestDemoRun:
         assert (np.diff(swing) <= 1e-9).all()
 
 
-def test_run_command_writes_identical_files(tmp_path, capsys):
+def test_run_command_writes_identical_files(tmp_path, capsys, monkeypatch):
     demo = REPO / "data" / "demo"
+    # both runs on one default purchase date (written to run_settings.csv), should midnight pass in the case's zone
+    import models.case
+
+    today = models.case._today_in("Europe/Berlin")
+    monkeypatch.setattr(models.case, "_today_in", lambda zone: today)
     assert main(["run", str(demo), "--out", str(tmp_path / "a"), "--quiet"]) == 0
     assert main(["run", str(demo), "--out", str(tmp_path / "b"), "--quiet"]) == 0
     out = capsys.readouterr().out
@@ -656,7 +661,8 @@ def test_sixty_hertz_motors_of_eight_and_twelve_poles_run(tmp_path):
     for row, poles in zip(rows[:2], ("8", "12")):
         row[5], row[6], row[11], row[8] = poles, "60", "", ""  # poles, 60 Hz, no speed, no class
     folder = tmp_path / "c"
-    cb.write_case(folder, assets=rows, case_toml=cb.CASE_TOML + 'region = "US"\n')
+    # (a purchase date given: the US rules in force change with it)
+    cb.write_case(folder, assets=rows, case_toml=cb.CASE_TOML + 'region = "US"\npurchase_date = "2026-12-01"\n')
     (folder / "tariffs").mkdir()
     (folder / "tariffs" / "flat.toml").write_text(FLAT_TARIFF, encoding="utf-8")
     sites = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
