@@ -372,6 +372,10 @@ def cmd_bill(args: argparse.Namespace) -> int:
         energy = float(np.sum(meter.p_kw) * op.interval_h)
         print(f"\nSite {site_id}: today's fleet, monthly bill by line item [{currency}], at the tariff as written")
         print(f"  yearly {energy / 1000:,.0f} MWh, peak {np.max(meter.p_kw):,.0f} kW")
+        day = int(getattr(setups[site_id].tariff, "billing_day", 1))
+        if day != 1:
+            print(f"  billing months start on day {day} of each month (named by the month they start in; the year's "
+                  f"days before day {day} of January belong to the one that starts in December)")
         print("\n".join("  " + line for line in table.to_string(float_format=lambda v: f"{v:,.0f}").splitlines()))
         for line in banned_quantities(bills[bills["site_id"] == site_id]).itertuples(index=False):
             print(f"  CAUTION: {banned_caution(line)}")

@@ -237,10 +237,11 @@ class _Calendar:
     n_steps: int
     interval_h: float
     month_labels: tuple[str, ...]
-    month: np.ndarray  # (T,)
-    month_starts: np.ndarray  # (M,)
+    month: np.ndarray  # billing month position of each interval (T,)
+    month_starts: np.ndarray  # first interval of each billing month in series order (M,)
     period: np.ndarray  # (T,)
-    season: np.ndarray  # (T,)
+    season: np.ndarray  # season of each interval's calendar month (T,)
+    month_season: np.ndarray  # season of each billing month (M,)
     n_periods: int
     steps_in_cell: np.ndarray  # intervals per (month, period) cell (M, K)
     windows: dict[int, _Windows]
@@ -253,6 +254,50 @@ class _Calendar:
     @property
     def n_months(self) -> int:
         return len(self.month_labels)
+
+
+def billing_months(wall: pd.DatetimeIndex, billing_day: int, interval_h: float) -> tuple[np.ndarray, bool]:
+    """Each interval's billing month, as year * 12 + month - 1 of the month it starts in, and whether the series
+    is a whole year that wraps round.
+
+    Parameters
+    ----------
+    wall : pandas.DatetimeIndex
+        Interval starts as naive local clock time of the tariff.
+    billing_day : int
+        Day of the month billing months start on (1-28; 1 = calendar months).
+    interval_h : float
+        Hours per interval [h].
+
+    Returns
+    -------
+    (numpy.ndarray of int64, bool)
+        With ``billing_day`` 1, the calendar months. Otherwise an interval before the read day belongs to the
+        billing month that started in the month before. A series of twelve whole calendar months (from the 1st
+        at 00:00 to the 1st twelve months on, the analysis year) stands for a year repeated: its days before the
+        first read day belong to its last billing month (15 December to 14 January of the year repeated), so it
+        holds twelve billing months, each whole; the second value is then True and the months are not in time
+        order. Any other series takes the billing months it meets, the first and the last partial.
+
+    Examples
+    --------
+    >>> wall = pd.date_range("2025-01-01", "2026-01-01", freq="D", inclusive="left")
+    >>> ym, wrapped = billing_months(wall, 15, 24.0)
+    >>> wrapped, sorted({int(m) % 12 + 1 for m in ym}) == list(range(1, 13)), int(ym[0] - ym[14])
+    (True, True, 11)
+    """
+    calendar = np.asarray(wall.year, dtype=np.int64) * 12 + np.asarray(wall.month, dtype=np.int64) - 1
+    if int(billing_day) <= 1 or not len(wall):
+        return calendar, False
+    shifted = wall - pd.Timedelta(days=int(billing_day) - 1)
+    ym = np.asarray(shifted.year, dtype=np.int64) * 12 + np.asarray(shifted.month, dtype=np.int64) - 1
+    first, after = wall[0], wall[-1] + pd.Timedelta(hours=float(interval_h))
+    midnight = _dt.time(0, 0)
+    whole_year = (first.day == 1 and first.time() == midnight and after.day == 1 and after.time() == midnight
+                  and (after.year * 12 + after.month) - (first.year * 12 + first.month) == 12)
+    if whole_year:
+        ym = np.where(ym < calendar[0], ym + 12, ym)
+    return ym, bool(whole_year)
 
 
 def _utc_ns(index: pd.DatetimeIndex) -> np.ndarray:
@@ -271,19 +316,23 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     elif len(index) > 1 and np.any(np.diff(_utc_ns(index)) <= 0):
         raise ValueError("index must be strictly increasing")
     wall = _local_wall(tariff, index)
-    ym = np.asarray(wall.year) * 12 + np.asarray(wall.month) - 1
-    month = (ym - ym[0]).astype(np.int64)
-    month_starts = np.concatenate(([0], np.nonzero(np.diff(month))[0] + 1))
-    if np.any(np.diff(month) < 0):
+    ym, wrapped = billing_months(wall, getattr(tariff, "billing_day", 1), float(interval_h))
+    if not wrapped and np.any(np.diff(ym) < 0):
         raise ValueError("index must be in time order")
     # Months without data in the middle of the series cannot occur in a regular index; renumber anyway.
-    uniq, month = np.unique(month, return_inverse=True)
-    labels = tuple(f"{(ym[0] + u) // 12:04d}-{(ym[0] + u) % 12 + 1:02d}" for u in uniq)
+    base = int(ym.min())
+    uniq, month = np.unique(ym - base, return_inverse=True)
+    month = month.astype(np.int64).reshape(-1)
+    month_starts = np.unique(month, return_index=True)[1].astype(np.int64)  # (in series order)
+    labels = tuple(f"{(base + u) // 12:04d}-{(base + u) % 12 + 1:02d}" for u in uniq)
     period = period_index(tariff, index).astype(np.int64)
     if np.any(period < 0):
         first = index[np.argmax(period < 0)]
         raise ValueError(f"time {first} falls in no time-of-use period of tariff {tariff.name!r}")
-    season = _season_of_month(tariff)[np.asarray(wall.month) - 1].astype(np.int64)
+    by_month = _season_of_month(tariff)
+    season = by_month[np.asarray(wall.month) - 1].astype(np.int64)
+    # a billing month's season is its first calendar month's (a calendar month's own with billing_day 1)
+    month_season = by_month[(base + uniq) % 12].astype(np.int64)
     k = len(tariff.period_codes)
     cell = month * k + period
     run_starts = np.nonzero(np.diff(cell))[0] + 1
@@ -306,13 +355,16 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
             starts = np.concatenate(([0], np.nonzero(np.diff(key))[0] + 1))
             count = np.diff(np.concatenate((starts, [len(index)])))
             at = starts
+        if wrapped:  # each billing month's windows together (the one that wraps round the year has two runs)
+            order = np.argsort(month[at], kind="stable")
+            starts, count, at = starts[order], count[order], at[order]
         wmonth = month[at]
         windows[(minutes, rolling)] = _Windows(
             starts=starts,
             count=count,
             month=wmonth,
             period=period[at],
-            season=season[at],
+            season=month_season[wmonth],
             month_starts=np.searchsorted(wmonth, np.arange(len(labels))),  # (a month without a window: none)
             identity=len(starts) == len(index) and bool(np.all(count == 1)),
         )
@@ -329,6 +381,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
         month_starts=month_starts,
         period=period,
         season=season,
+        month_season=month_season,
         n_periods=k,
         steps_in_cell=steps_in_cell.reshape(len(labels), k),
         windows=windows,
@@ -503,8 +556,7 @@ def _scope(cal: _Calendar, tariff: Tariff, periods, seasons,
     if got is None:
         n_m, k = cal.n_months, cal.n_periods
         if window is None:
-            season_of_month = cal.season[cal.month_starts]
-            inside = _mask(cal, tariff, periods, seasons, np.tile(np.arange(k), n_m), np.repeat(season_of_month, k))
+            inside = _mask(cal, tariff, periods, seasons, np.tile(np.arange(k), n_m), np.repeat(cal.month_season, k))
             months = (cal.steps_in_cell * inside.reshape(n_m, k)).sum(axis=1) > 0
         else:
             win = cal.windows[window]
@@ -621,9 +673,9 @@ def _window_peaks_kernel(p, q, kva, want_q, starts, count, identity, month_start
             for w in range(month_starts[m], month_starts[m + 1]):
                 if not in_scope[w]:
                     continue
-                if identity:
-                    pw = p[rp, w]
-                    qw = q[rq, w] if want_q else 0.0
+                if identity:  # (windows in billing-month order: the interval of window w is starts[w])
+                    pw = p[rp, starts[w]]
+                    qw = q[rq, starts[w]] if want_q else 0.0
                 else:
                     a, n = starts[w], count[w]
                     acc = 0.0

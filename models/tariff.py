@@ -438,6 +438,11 @@ class Tariff:
         Accept negative prices (otherwise they are errors).
     notes : str
         Free text (source, effective date).
+    billing_day : int
+        Day of the month each billing month starts on, at midnight of the tariff's clock, 1-28 (1: calendar
+        months; 15: the 15th of one month to the 14th of the next, a meter read on the 15th). A billing month
+        takes the season of the calendar month it starts in, for its clauses' seasons (the time-of-use
+        periods keep each interval's own).
     """
 
     name: str
@@ -455,6 +460,7 @@ class Tariff:
     coincident: tuple[CoincidentPeak, ...] = ()
     allow_negative_prices: bool = False
     notes: str = ""
+    billing_day: int = 1
 
     @property
     def period_codes(self) -> tuple[str, ...]:
@@ -994,7 +1000,7 @@ _CURRENCY_RE = re.compile(r"^[A-Z]{3}$")
 
 _TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "coincident_peak", "reactive",
              "leading", "taxes")
-_TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes")
+_TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes", "billing_day")
 _CALENDAR_KEYS = ("holidays",)
 _SEASON_KEYS = ("name", "months")
 _PERIOD_KEYS = ("code", "seasons", "days", "hours")
@@ -1452,6 +1458,11 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
                    "summer time: the periods are read on that clock", fixed)
     allow_negative = r.get(head, "allow_negative_prices", "tariff", "bool", default=False)
     notes = r.get(head, "notes", "tariff", "str", default="")
+    billing_day = r.get(head, "billing_day", "tariff", "int", default=1)
+    if billing_day is not None and not 1 <= billing_day <= 28:
+        r.err("tariff.billing_day", billing_day, "the day billing months start on must be 1-28 (every month has it)",
+              "the meter's read day, e.g. 15; 1 for calendar months")
+        billing_day = None
 
     cal = r.table(data, "calendar", "") or {}
     r.known(cal, _CALENDAR_KEYS, "calendar")
@@ -1667,6 +1678,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         allow_negative_prices=allow_negative,
         notes=notes,
         coincident=tuple(coincident),
+        billing_day=1 if billing_day is None else int(billing_day),
     )
     # A near miss leaves out what the misspelt key holds: the checks across the tariff (coverage, references,
     # prices) would judge another tariff than the one written, so they wait until the key is named right.

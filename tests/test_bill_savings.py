@@ -272,3 +272,49 @@ def test_a_rolling_demand_saving_counts_the_peak_between_two_clock_windows(rolli
     out = site_savings(SiteSetup("S", t, Site(), None), idx, 0.25, p, np.zeros_like(p), np.ones((1, 2), dtype=bool),
                        np.array(["keep", "ie4"]), 35.0)
     assert_allclose(out["saving"][0].sum(axis=-1), [0.0, expected], atol=1e-9)
+
+
+@pytest.mark.parametrize("billing_day, expected", [(1, 1_000.0), (15, 4_000.0)])
+def test_a_demand_saving_follows_the_billing_months_of_the_read_day(billing_day, expected):
+    # hand calculation (docs/derivations/billing-demand.md case D11's peaks): 100 kW all 2025, 500 kW at 10 Jan 12:00
+    # and 400 kW at 20 Jan 12:00, 10 EUR per kW-month. An option drawing 100 kW at 10 Jan 12:00: in calendar months
+    # January's peak falls to 400, (500 - 400) x 10 = 1 000; with billing months from the 15th the 10 January peak is
+    # alone in the billing month from 15 December, which falls to 100: (500 - 100) x 10 = 4 000
+    import pandas as pd
+
+    from models.bill_savings import SiteSetup, site_savings
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({"tariff": {"name": "read day (invented)", "currency": "EUR", "time_zone": "UTC",
+                                               "billing_day": billing_day},
+                                    "periods": [{"code": "all"}],
+                                    "demand": [{"name": "d", "price_per_kw_month": 10.0, "window_min": 60}]})
+    assert t is not None, problems
+    idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+    today = np.full(len(idx), 100.0)
+    first, second = idx.get_loc(pd.Timestamp("2025-01-10 12:00", tz="UTC")), idx.get_loc(pd.Timestamp("2025-01-20 12:00", tz="UTC"))
+    today[first], today[second] = 500.0, 400.0
+    option = today.copy()
+    option[first] = 100.0
+    p = np.stack([today, option])[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 1.0, p, np.zeros_like(p), np.ones((1, 2), dtype=bool),
+                       np.array(["keep", "ie4"]), 35.0)
+    assert_allclose(out["saving"][0].sum(axis=-1), [0.0, expected], atol=1e-9)
+
+
+def test_bill_command_says_when_billing_months_start_on_a_read_day(tmp_path, capsys):
+    # a tariff with billing_day = 15 (docs/tariffs.md): the monthly bill names its months by the month they start in
+    # and says so
+    demo = Path(__file__).resolve().parents[1] / "data" / "demo"
+    copy = tmp_path / "demo"
+    shutil.copytree(demo, copy)
+    tariff = copy / "tariffs" / "example_kva_demand.toml"
+    tariff.write_text(tariff.read_text(encoding="utf-8").replace('time_zone = "Europe/Berlin"\n',
+                                                                  'time_zone = "Europe/Berlin"\nbilling_day = 15\n', 1),
+                      encoding="utf-8")
+    assert main(["bill", str(copy), "--site", "KGQ"]) == 0
+    out = capsys.readouterr().out
+    assert "billing months start on day 15 of each month" in out and "2025-12" in out
+    assert main(["bill", str(demo), "--site", "KGQ"]) == 0
+    assert "billing months start" not in capsys.readouterr().out

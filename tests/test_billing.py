@@ -739,3 +739,46 @@ class TestCompiledPasses:
         peak, _, _ = _window_peaks_kernel(p, q, False, False, win.starts, win.count, win.identity, win.month_bounds,
                                           scope, p.shape[0])
         assert np.all(peak == -np.inf)
+
+
+class TestBillingDay:
+    """Billing months from a read day: hand calculations, docs/derivations/billing-demand.md case D11."""
+
+    DEMAND = FLAT.replace('currency = "EUR"\n', 'currency = "EUR"\ntime_zone = "UTC"\n{day}') + (
+        '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\n')
+
+    @staticmethod
+    def year(peaks: dict[str, float]) -> tuple[pd.DatetimeIndex, np.ndarray]:
+        idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        p = np.full(len(idx), 100.0)
+        for when, kw in peaks.items():
+            p[idx.get_loc(pd.Timestamp(when, tz="UTC"))] = kw
+        return idx, p
+
+    @pytest.mark.parametrize("day, expected", [("", 16_000.0), ("billing_day = 1\n", 16_000.0),
+                                               ("billing_day = 15\n", 19_000.0)])
+    def test_peaks_either_side_of_the_read_day(self, day, expected):
+        t = load(self.DEMAND.format(day=day))
+        idx, p = self.year({"2025-01-10 12:00": 500.0, "2025-01-20 12:00": 400.0})
+        b = bill(t, idx, p, np.zeros_like(p))
+        assert b["month"].nunique() == 12
+        assert_allclose(bill_total(b), expected, **EXACT)
+        if day == "billing_day = 15\n":
+            assert_allclose([quantity(b, "demand:d", "2025-12"), quantity(b, "demand:d", "2025-01")], [500.0, 400.0],
+                            **EXACT)
+
+    def test_a_series_that_is_not_a_whole_year_meets_partial_billing_months(self):
+        t = load(FLAT.replace('currency = "EUR"\n', 'currency = "EUR"\ntime_zone = "UTC"\nbilling_day = 15\n')
+                 + '[[fixed]]\nname = "meter"\ncharge_per_month = 30.0\n')
+        idx = pd.date_range("2025-01-01", "2025-03-01", freq="h", tz="UTC", inclusive="left")
+        b = bill(t, idx, np.full(len(idx), 50.0), np.zeros(len(idx)))
+        assert sorted(b["month"].unique()) == ["2024-12", "2025-01", "2025-02"]
+        assert_allclose(bill_total(b), 90.0, **EXACT)
+
+    @pytest.mark.parametrize("day, expected", [("", 6_000.0), ("billing_day = 15\n", 5_500.0)])
+    def test_a_billing_month_takes_the_season_of_the_month_it_starts_in(self, day, expected):
+        text = (HEAD + 'time_zone = "UTC"\n' + day + '[[seasons]]\nname = "summer"\nmonths = [6, 7, 8, 9]\n'
+                '[[seasons]]\nname = "winter"\nmonths = [1, 2, 3, 4, 5, 10, 11, 12]\n[[periods]]\ncode = "all"\n'
+                '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\nseasons = ["summer"]\n')
+        idx, p = self.year({"2025-06-10 12:00": 300.0, "2025-10-10 12:00": 250.0})
+        assert_allclose(bill_total(bill(load(text), idx, p, np.zeros_like(p))), expected, **EXACT)

@@ -757,3 +757,15 @@ def test_a_demand_charge_is_block_or_rolling(written, read, error):
         assert problems == [] and t.demand[0].rolling is read
     else:
         assert t is None and columns(problems) == ["demand[1].rolling"] and error in problems[0].rule
+
+
+@pytest.mark.parametrize("written, read, error", [("", 1, None), ("billing_day = 15", 15, None), ("billing_day = 28", 28, None),
+                                                   ("billing_day = 29", None, "1-28"), ("billing_day = 0", None, "1-28"),
+                                                   ('billing_day = "15"', None, "whole number")])
+def test_billing_months_start_on_a_day_of_1_to_28(written, read, error):
+    # docs/tariffs.md, [tariff] key billing_day: 1-28 (a day every month has), 1 when left out
+    t, problems = load(f'[tariff]\nname = "t"\ncurrency = "EUR"\n{written}\n[[periods]]\ncode = "all"\n')
+    if error is None:
+        assert problems == [] and t.billing_day == read
+    else:
+        assert t is None and columns(problems) == ["tariff.billing_day"] and error in problems[0].rule, problems
