@@ -157,6 +157,16 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
     if writable is not None and not os.access(writable, os.W_OK | os.X_OK):
         return (f"drivecase {command}: cannot write into {writable} (permission denied); give a folder you can "
                 "write to")
+    if writable is not None:
+        # what the access bits do not tell (a read-only file system, a system folder such as /proc): a folder
+        # made and removed at once, before the analysis rather than after it
+        import tempfile
+
+        try:
+            os.rmdir(tempfile.mkdtemp(prefix=".drivecase-probe-", dir=writable))
+        except OSError as exc:
+            return (f"drivecase {command}: cannot write into {writable} ({exc.strerror or exc.__class__.__name__}); "
+                    "give a folder you can write to")
     return None
 
 

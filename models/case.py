@@ -954,7 +954,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
     numbers = np.arange(len(uniques) + 1, dtype=np.promote_types(codes.dtype, np.min_scalar_type(len(uniques) + 1)))
     bounds = np.searchsorted(codes if grouped else codes[order], numbers)
     groups = _ProfileRows(bounds, order)
-    stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups)
+    stamps = _parse_timestamps(frame["timestamp"], zone, source, rows, header("timestamp"), problems, groups, where)
     profiles: dict[str, pd.Series] = {}
     info: list[dict] = []
     # the usual profile, written in order on its grid with every value readable and within bounds, is read
@@ -1041,8 +1041,10 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
                 dup = t_sorted.duplicated(keep="first")
                 v_ok = v_ok[order_t]
             _listed(problems, np.flatnonzero(dup),
-                    lambda j: error(source, int(rows_sorted[j]), header("timestamp"), str(t_sorted[j]),
-                                    f"timestamp repeated in profile '{profile_id}'", "delete the duplicate row"),
+                    lambda j: error(source, int(rows_sorted[j]), header("timestamp"),
+                                    _stamp_as_written(stamp_cells.iloc[cells_sorted[j]]) or str(t_sorted[j]),
+                                    f"timestamp repeated in profile '{profile_id}' (as {t_sorted[j]})",
+                                    "delete the duplicate row"),
                     lambda n: error(source, None, header("timestamp"), None, f"{n} more repeated timestamps in '{profile_id}'"))
             t_unique = t_sorted if ascending else t_sorted[~dup]
             v_unique = v_ok if ascending else v_ok[~dup]
@@ -1235,13 +1237,14 @@ def _is_serial(value: object) -> bool:
 
 
 def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarray | io.RowNumbers, header: str,
-                      problems: list[Problem], groups: Sequence[np.ndarray]) -> pd.DatetimeIndex:
+                      problems: list[Problem], groups: Sequence[np.ndarray], where=None) -> pd.DatetimeIndex:
     """Parse interval-start timestamps into the case zone, NaT where unusable (each reported).
 
     Cells with a UTC offset are converted to the zone; naive cells are local times in the zone,
     localised profile by profile in file order (so a repeated autumn hour is told apart by its
     order); a local time in a daylight-saving gap, an unreadable cell and a blank are errors. Workbook
-    cells holding a spreadsheet date serial are read as dates (a flagged repair).
+    cells holding a spreadsheet date serial are read as dates (a flagged repair). ``where(i)`` (optional)
+    words which profile and timestamp row ``i`` is, for the messages of local times.
 
     Returns
     -------
@@ -1339,18 +1342,20 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
         for idx in groups:
             local = idx[naive[idx] != _NAT]
             if len(local):
-                utc[local] = _localise(naive[local], zone, source, rows[local], header, problems)
+                utc[local] = _localise(naive[local], zone, source, rows[local], header, problems,
+                                       None if where is None else (lambda i, at=local: where(int(at[i]))))
     return pd.DatetimeIndex(utc.view("datetime64[us]")).tz_localize("UTC").tz_convert(zone)
 
 
 def _localise(naive_us: np.ndarray, zone: str, source: str, rows: np.ndarray, header: str,
-              problems: list[Problem]) -> np.ndarray:
+              problems: list[Problem], where=None) -> np.ndarray:
     """Attach the case zone to naive local times of one profile (in file order); return UTC microseconds.
 
     Times inside a daylight-saving gap, and repeated autumn times whose order does not tell them apart,
-    are errors (NaT).
+    are errors (NaT), named by ``where(i)`` (the profile and the timestamp as written) where given.
     """
     local = pd.DatetimeIndex(naive_us.view("datetime64[us]"))
+    said = (lambda i: "") if where is None else where
     ambiguous = np.zeros(len(local), dtype=bool)
     try:
         aware = local.tz_localize(zone, ambiguous="infer", nonexistent="NaT")
@@ -1359,13 +1364,14 @@ def _localise(naive_us: np.ndarray, zone: str, source: str, rows: np.ndarray, he
         ambiguous = np.asarray(aware.isna()) & ~np.asarray(local.tz_localize(zone, ambiguous=False, nonexistent="NaT").isna())
         _listed(problems, np.flatnonzero(ambiguous),
                 lambda i: error(source, int(rows[i]), header, str(local[i]),
-                                f"local time occurs twice when clocks go back in {zone}; its order cannot be inferred",
+                                f"local time occurs twice when clocks go back in {zone}; its order cannot be inferred"
+                                f"{said(i)}",
                                 "give timestamps with a UTC offset, or both repeated hours in order"),
                 lambda k: error(source, None, header, None, f"{k} more local times that occur twice"))
     gap = np.asarray(aware.isna()) & ~ambiguous
     _listed(problems, np.flatnonzero(gap),
             lambda i: error(source, int(rows[i]), header, str(local[i]),
-                            f"local time does not exist in {zone} (clocks go forward)",
+                            f"local time does not exist in {zone} (clocks go forward){said(i)}",
                             "daylight-saving gap: give timestamps with a UTC offset or drop this row"),
             lambda k: error(source, None, header, None, f"{k} more local times in a daylight-saving gap"))
     return aware.tz_convert("UTC").as_unit("us").asi8
@@ -2266,7 +2272,16 @@ def _check_duty(checker: _TableChecker) -> None:
         if total > MAX_HOURS_PER_YR + 1e-9:
             i = int(np.flatnonzero((d["profile_id"] == profile_id).to_numpy())[0])
             checker.err(i, "duration_h_per_yr", round(float(total), 2),
-                        f"duty table '{profile_id}' adds up to more than {MAX_HOURS_PER_YR:g} hours a year")
+                        f"duty table '{profile_id}' adds up to more than {MAX_HOURS_PER_YR:g} hours a year",
+                        "durations are hours a year of each load state; their sum is at most the year's hours")
+    # loads that never pass 1 % of rating: fractions (0-1) entered for percentages, as profiles are warned
+    if "shaft_load_pct" in d:
+        peaks = d.groupby("profile_id")["shaft_load_pct"].max()
+        for profile_id, peak in peaks.items():
+            if np.isfinite(peak) and 0.0 < peak <= 1.0:
+                i = int(np.flatnonzero((d["profile_id"] == profile_id).to_numpy())[0])
+                checker.warn(i, "shaft_load_pct", float(peak), f"duty table '{profile_id}' never exceeds {peak:g} % load",
+                             "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?")
 
 
 # ---------------------------------------------------------------------------------------------------

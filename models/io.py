@@ -1587,6 +1587,9 @@ def read_folder(path: Path) -> RawCase:
                                                  "tariff files are TOML text ending in .toml (see docs/tariffs.md)"))
                 continue
             data, problems = read_toml_file(tariff_path, source)
+            if not data and not has_errors(problems) and _blank_file(tariff_path):
+                problems.append(error(source, None, None, None, "the file is empty: it holds no tariff",
+                                      "write the tariff (docs/tariffs.md and the examples in data/tariffs), or remove the file"))
             case.problems += problems
             if has_errors(problems):
                 case.unreadable_tariffs.add(tariff_path.name)
@@ -1673,10 +1676,23 @@ def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:
         if not isinstance(path, Path) or not path.is_file():
             return {}, "finance.toml", []
         data, problems = read_toml_file(path, path.name)
+        if not data and not has_errors(problems) and _blank_file(path):
+            # (emptied by a failed save or a sync: the defaults would replace the organisation's rate and budget)
+            problems.append(error(path.name, None, None, None, "the file is empty: it holds no finance assumptions",
+                                  "write the case's assumptions (docs/finance.md lists the keys), or delete the file to "
+                                  "run on the program's defaults"))
         return data, path.name, problems
     if raw.kind == "workbook":
         return dict(raw.extra.get("finance", {})), f"{raw.path.name}:finance", []
     return {}, "finance.toml", []
+
+
+def _blank_file(path: Path) -> bool:
+    """Whether a text file holds nothing but white space (an unreadable one: False, its reading says why)."""
+    try:
+        return not path.read_bytes().strip()
+    except OSError:
+        return False
 
 
 def read_default_options() -> tuple[RawTable, list[Problem]]:

@@ -277,6 +277,7 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         return fresh, others, npv, repriced
 
     npv = g_npv = None
+    g_shares: dict[str, float] = {}  # the rank-order plan's repriced shares, as ``repriced`` is the exact plan's
     set_aside: set[str] = set()
     g_set_aside: set[str] = set()
     exact_solves = 1
@@ -295,6 +296,7 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
             npv = kept_npv if npv is None else npv
             g_npv = kept_g_npv if g_npv is None else g_npv
             repriced = repriced or frames[4].get("repriced", {})
+            g_repriced = g_repriced or g_shares
         withdrawn |= fresh
         greedy_withdrawn |= g_fresh
         set_aside |= others
@@ -314,6 +316,9 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         # the repriced projects that the new plan holds (a project repriced may leave it at its lower NPV)
         in_plan = set(project_labels(frames[0]).astype(str))
         frames[4]["repriced"] = {label: share for label, share in repriced.items() if label in in_plan}
+        g_shares = g_repriced
+        in_greedy = set(project_labels(frames[1]).astype(str))
+        frames[4]["repriced_greedy"] = {label: share for label, share in g_repriced.items() if label in in_greedy}
         frames[4]["withdrawn"] = tuple(sorted(withdrawn))
         frames[4]["set_aside"] = tuple(sorted(set_aside - withdrawn))
         exact_solves += exact_again

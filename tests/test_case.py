@@ -474,7 +474,21 @@ class TestOtherTables:
 
     def test_duty_hours_over_a_year(self, tmp_path):
         _, problems = load_case(cb.write_case(tmp_path / "c", duty=[["D1", "80", "6000"], ["D1", "40", "3000"]]))
-        assert _find(problems, file="duty.csv", row=2, column="duration_h_per_yr", text="more than 8784")
+        hit = _find(problems, file="duty.csv", row=2, column="duration_h_per_yr", text="more than 8784")
+        assert "hours a year of each load state" in hit.hint
+
+    @pytest.mark.parametrize("loads, warned", [(("0.85", "0.6"), True), (("85", "60"), False), (("1", "0"), True),
+                                               (("1.5", "0.5"), False)])
+    def test_duty_loads_that_never_pass_one_percent_are_warned_as_fractions(self, tmp_path, loads, warned):
+        # docs/case-format.md: shaft_load_pct is 0-100 % of rating; a table of 0.85 and 0.6 is 85 % and 60 % entered as
+        # fractions (the motor would be modelled at about 1 % load), as profiles and mean_load_pct are warned
+        duty = [["D1", loads[0], "1800"], ["D1", loads[1], "1400"]]
+        case, problems = load_case(cb.write_case(tmp_path / "c", duty=duty))
+        hits = [p for p in problems if p.file == "duty.csv" and "never exceeds" in p.rule]
+        assert bool(hits) == warned
+        if warned:
+            assert hits[0].severity == "warning" and hits[0].column == "shaft_load_pct" and hits[0].row == 2
+            assert "fractions (0-1)" in hits[0].hint
 
     def test_bad_settings(self, tmp_path):
         toml = '[case]\nname = "x"\ncurrency = "euro"\ntime_zone = "Mars/Olympus"\n'
@@ -698,6 +712,20 @@ class TestFinanceWarnings:
         _, problems = load_case(folder)
         hit = _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
         assert "no capital budget" in hit.rule
+
+    @pytest.mark.parametrize("text, error", [(b"", True), (b"  \n\n", True), (b"# only a comment\n", False)])
+    def test_an_empty_finance_file_is_an_error(self, tmp_path, text, error):
+        # an empty finance.toml (a failed save, a sync) is an error, as an empty case.toml is: its defaults would
+        # replace the organisation's rate and budget unseen; a file of comments only is the defaults, warned
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "finance.toml").write_bytes(text)
+        case, problems = load_case(folder)
+        assert (case is None) == error
+        if error:
+            hit = _find(problems, file="finance.toml", severity="error", text="the file is empty")
+            assert "delete the file" in hit.hint
+        else:
+            assert _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
 
     def test_a_misspelt_key_is_named_with_a_guess_and_the_value_used(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")

@@ -996,3 +996,15 @@ def test_run_says_how_much_of_the_plans_capital_the_budgets_cover_when_replaceme
     assert main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--no-risk", "--plan-gap", "5"]) == 0
     out = capsys.readouterr().out
     assert "Of the plan's capital over the horizon" in out and "falls in the 3 budgeted plan years" in out
+
+
+def test_out_that_cannot_be_made_is_refused_before_any_work(capsys):
+    # a folder the access bits allow but the system does not (/proc takes no new folder, even for root): refused at
+    # once, not after the whole analysis
+    import sys as _sys
+
+    if not _sys.platform.startswith("linux"):
+        pytest.skip("/proc is Linux's")
+    assert main(["run", str(DEMO), "--out", "/proc/drivecase-results", "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "cannot write into /proc" in err and "give a folder you can write to" in err

@@ -579,3 +579,20 @@ class TestFormulaInjection:
         plan = case_io._parquet_plan(path, "profiles")
         assert not plan.streamed  # (text is read whole: PARQUET_WHOLE_ROW_BYTES, 50 bytes a row)
         assert plan.needed_bytes == 48 * 50 + text + 48 * 160
+
+
+def test_a_local_time_in_a_clock_change_names_its_profile_and_the_time_as_written(tmp_path):
+    # docs/case-format.md: a problem in a profile row names the profile and the row's timestamp as written
+    folder = _build("dst_spring_gap", tmp_path)
+    _, problems = load_case(folder)
+    hit = next(p for p in problems if "does not exist" in p.rule)
+    assert "in profile '" in hit.rule and " at " in hit.rule, hit.rule
+
+
+def test_an_empty_tariff_file_is_one_error(tmp_path):
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "tariffs").mkdir()
+    (folder / "tariffs" / "t.toml").write_bytes(b"")
+    _, problems = load_case(folder)
+    errors = [p for p in problems if p.severity == "error" and p.file == "tariffs/t.toml"]
+    assert len(errors) == 1 and "the file is empty" in errors[0].rule, [str(p) for p in errors]

@@ -679,3 +679,39 @@ def test_the_workbook_speaks_the_readers_words(small, tmp_path):
     energy = [words for code, words in pairs if code.startswith("energy:")]
     assert energy and all(w == "Energy: " + c.split(":", 1)[1] for c, w in pairs if c.startswith("energy:"))
     assert not any(words.startswith(("energy:", "demand:", "tax:", "fixed:")) for _, words in pairs)
+
+
+def test_the_rank_order_plan_counts_a_reactive_project_at_its_own_share(demo_run_physics, tmp_path):
+    # the rank-order plan keeps the demo's KGQ-AC01 capacitor at the share r_g of its bill saving that it adds beside
+    # the rest of that plan (plan_status "repriced_greedy", as "repriced" is the exact plan's): the Plan sheet's
+    # "Yearly saving as the plan counts it" of its rank-order row is r_g x bill saving + maintenance saving (hand
+    # calculation from results.csv), on the basis of the NPV beside it; before, the full saving stood beside the
+    # share-counted NPV
+    from models import scenario
+    from models.pack import write_pack
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    share = result.plan_status["repriced_greedy"]["KGQ-AC01/capacitor"]
+    assert 0 < share < 1
+    own = result.results.set_index(["asset_id", "option_id"]).loc[("KGQ-AC01", "capacitor")]
+    paths = write_pack(case, result, tmp_path / "pack", assets=["KGQ-AC01"], plan=False)
+    path = next(p for p in paths if str(p).endswith(".xlsx"))
+    compared, missing, wrong = _stored_against_evaluated(path, evaluate(path))
+    assert wrong == [] and missing == []
+    ws = load_workbook(path)["Plan"]
+    start = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "Rank-order plan")
+    row = next(r for r in range(start, ws.max_row + 1)
+               if ws.cell(r, 2).value == "KGQ-AC01" and ws.cell(r, 3).value == "capacitor")
+    assert ws.cell(start + 1, 10).value.startswith("Yearly saving as the plan counts it")
+    expected = share * own["bill_saving_per_yr"] + own["saving_maintenance_per_yr"]
+    assert_allclose(float(ws.cell(row, 10).value), expected, rtol=1e-12)
+
+
+def test_scenario_change_headers_keep_an_abbreviation_in_capitals(plan_pack):
+    # "Change: plan NPV", "Change: CO2 avoided [t/yr]" (not "cO2"): a label's first letter is lowered after
+    # "Change:" unless it begins an abbreviation
+    ws = load_workbook(plan_pack)["Scenarios"]
+    heads = {str(c.value) for row in ws.iter_rows() for c in row if str(c.value or "").startswith("Change: ")}
+    assert "Change: CO2 avoided [t/yr]" in heads and any(h.startswith("Change: plan NPV") for h in heads), heads
+    assert not any(h.startswith("Change: cO2") for h in heads)

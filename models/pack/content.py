@@ -455,7 +455,8 @@ BILL_SAVING_COLUMNS = ("saving_energy_per_yr", "saving_demand_per_yr", "saving_r
 
 def plan_counted(result, frame: pd.DataFrame) -> pd.DataFrame:
     """``frame`` with each reactive project of the plan's bill savings as the plan counts them: the share r
-    (:func:`plan_credit_share`) of each bill component; other rows, and the maintenance saving, unchanged.
+    (:func:`plan_credit_share`) of each bill component, and its paybacks on those flows; other rows, and the
+    maintenance saving, unchanged.
 
     Its rows then add up to :func:`plan_yearly_saving` and to the headline's yearly saving, component by
     component."""
@@ -467,6 +468,18 @@ def plan_counted(result, frame: pd.DataFrame) -> pd.DataFrame:
     for column in BILL_SAVING_COLUMNS:
         if column in out:
             out[column] = out[column].to_numpy(dtype=float) * factor
+    # the paybacks of a project counted at a share: of the flows the plan counts (:func:`plan_flows`), the
+    # residual value left out as the engine's paybacks leave it
+    d = float(result.assumptions.discount_rate_frac)
+    for i in np.flatnonzero([x is not None for x in share]):
+        a, o = str(frame["asset_id"].iloc[i]), str(frame["option_id"].iloc[i])
+        table = project_flow_table(result, a, o)
+        paying = plan_flows(result, a, o) - (table.loc["residual"].to_numpy(dtype=float) if "residual" in table.index else 0.0)
+        for basis, pay in (("simple", finance.simple_payback(paying)), ("discounted", finance.discounted_payback(paying, d))):
+            if f"{basis}_payback_yr" in out:
+                out.iloc[i, out.columns.get_loc(f"{basis}_payback_yr")] = float(pay.payback_yr)
+            if f"{basis}_payback_lost_again" in out:
+                out.iloc[i, out.columns.get_loc(f"{basis}_payback_lost_again")] = bool(pay.lost_again)
     return out
 
 

@@ -385,6 +385,12 @@ def _with_currency(header: str, currency: str) -> str:
     return f"{header} [{currency}]"
 
 
+def _lower_first(label: str) -> str:
+    """A label set after other words: its first letter lower case, but not an abbreviation's (CO2, NPV, IRR)."""
+    first = label.split(" ", 1)[0]
+    return label if len(first) > 1 and first[:2].isupper() or any(c.isdigit() for c in first) else label[:1].lower() + label[1:]
+
+
 def _engine_payback(value: float) -> Any:
     if math.isnan(value):  # nothing invested (keep today's motor): no payback to state
         return "-"
@@ -740,7 +746,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         labels = result.results.set_index(["asset_id", "option_id"])["label"]
         # bill and maintenance saving per year, a reactive project of the exact plan at its credited share
         # (plan.csv's saving_counted_per_yr; summed, the Read me's yearly saving)
-        shares = (result.plan_status or {}).get("repriced") if name == "Exact plan" else None
+        shares = (result.plan_status or {}).get("repriced" if name == "Exact plan" else "repriced_greedy")
         counted_saving = plan_with_savings(frame, result.results, shares).set_index(
             ["asset_id", "option_id"])["saving_counted_per_yr"] if len(frame) else pd.Series(dtype=float)
         sums = by_year.setdefault(name, {})
@@ -754,7 +760,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             block = block_of.get((r.asset_id, r.option_id))
             # the exact plan's reactive projects at the engine's share; a rank-order project where the plan counts
             # it at its own NPV (the block's); otherwise the engine's figure
-            share = content.plan_credit_share(result, r.asset_id, r.option_id) if name == "Exact plan" else None
+            share = (shares or {}).get(f"{r.asset_id}/{r.option_id}")
+            share = None if share is None else float(share)
             alone = block is not None and abs(float(r.npv) - float(block["npv_engine_value"])) <= 1e-6 * max(1.0, abs(float(r.npv)))
             if block is not None and (share is not None or alone):
                 put_formula(ws, row, 6, _plan_npv_formula(block, share), f.money, float(r.npv))
@@ -1018,7 +1025,7 @@ def _scenarios(ws: Worksheet, case, result, f: _Formats) -> None:
     cols = [("scenario", "Scenario", None)]
     cols += [(k, label + unit[k], fmt[k]) for k, label in ASSUMPTION_COLUMNS]
     cols += [(k, label + unit[k], fmt[k]) for k, label in HEADLINE_COLUMNS]
-    cols += [(f"{k}_change", f"Change: {label[:1].lower() + label[1:]}{unit[k]}", fmt[k]) for k, label in HEADLINE_COLUMNS]
+    cols += [(f"{k}_change", f"Change: {_lower_first(label)}{unit[k]}", fmt[k]) for k, label in HEADLINE_COLUMNS]
     row = _table(ws, row, table, cols)
     if len(table) == 1:
         put_text(ws, row, 1, "The case names no scenario: write them in scenarios.toml (docs/case-format.md, "
