@@ -782,3 +782,21 @@ class TestBillingDay:
                 '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\nseasons = ["summer"]\n')
         idx, p = self.year({"2025-06-10 12:00": 300.0, "2025-10-10 12:00": 250.0})
         assert_allclose(bill_total(bill(load(text), idx, p, np.zeros_like(p))), expected, **EXACT)
+
+
+@pytest.mark.parametrize("rolling, expected", [(True, 16_500.0), (False, 15_000.0)])
+def test_rolling_windows_and_billing_months_from_a_read_day(rolling, expected):
+    # hand calculation: 15-minute data for 2025 (UTC) at 100 kW but 400 kW at 14 Jan 23:45 and 15 Jan 00:00; 30-minute
+    # windows, 10 EUR/kW-month, billing months from the 15th (docs/derivations/billing-demand.md D1r and D11).
+    # Rolling: the window ending 15 Jan 00:00 reads 400 kW in the January billing month, the one ending 14 Jan 23:45
+    # reads (100 + 400) / 2 = 250 in the December one (which wraps round the year): 400 + 250 + 10 x 100 = 1 650
+    # kW-months. Block: 23:30-24:00 reads 250 (December's), 00:00-00:30 reads 250 (January's): 1 500
+    t = load(HEAD + 'time_zone = "UTC"\nbilling_day = 15\n[[periods]]\ncode = "all"\n[[demand]]\nname = "d"\n'
+             f'price_per_kw_month = 10.0\nwindow_min = 30\nrolling = {"true" if rolling else "false"}\n')
+    idx = pd.date_range("2025-01-01", "2026-01-01", freq="15min", tz="UTC", inclusive="left")
+    p = np.full(len(idx), 100.0)
+    at = idx.get_loc(pd.Timestamp("2025-01-14 23:45", tz="UTC"))
+    p[at:at + 2] = 400.0
+    b = bill(t, idx, p, np.zeros_like(p))
+    assert b["month"].nunique() == 12
+    assert_allclose(bill_total(b), expected, **EXACT)

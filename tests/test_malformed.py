@@ -140,7 +140,7 @@ CORPUS: dict[str, tuple[bool, tuple[Expect, ...]]] = {
     "tariff_wrong_types": (False, (E("tariffs/t.toml", 15, "energy.price_per_kwh", "table of numbers"),)),
     "tariff_syntax_error": (False, (E("tariffs/t.toml", 11, None, "TOML syntax error"),
                                     E("sites.csv", 2, "tariff_file", "could not be read"))),
-    "tariff_empty_file": (False, (E("tariffs/t.toml", None, "tariff", "missing [tariff] table"),)),
+    "tariff_empty_file": (False, (E("tariffs/t.toml", None, None, "the file is empty: it holds no tariff"),)),
     "tariff_not_named": (False, (E("sites.csv", 2, "tariff_file", "not found"),)),
     # options
     "options_negative_cost": (False, (E("options.csv", 3, "equipment_cost_coef", "must lie between"),)),

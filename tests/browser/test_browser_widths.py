@@ -8,6 +8,7 @@ layout at the window's width, so these need the browser.
 from __future__ import annotations
 
 import pytest
+from playwright.sync_api import TimeoutError as PlaywrightTimeout
 
 from browser.conftest import Tab
 from browser.test_browser_asset import CUT_OFF
@@ -44,9 +45,14 @@ def test_plan_tables_show_every_column_with_its_text_whole(window):
     for grid in ("plan-chosen", "plan-differences"):
         assert page.locator(f"#{grid} .ag-row [col-id]").evaluate_all(CUT_OFF) == [], grid
         assert page.locator(f"#{grid} .ag-header-cell-text").evaluate_all(HEADER_CUT_OFF) == [], grid
-        # every column fits the panel: nothing is hidden to the right of the grid
-        fits = page.locator(f"#{grid} .ag-center-cols-viewport").evaluate("v => v.scrollWidth <= v.clientWidth + 1")
-        assert fits, grid
+        # every column fits the panel: nothing is hidden to the right of the grid, once the grid has sized its columns
+        # to the panel (it does so after its rows arrive: read at once, a busy machine may catch it before)
+        fits = f"""() => {{ const v = document.querySelector('#{grid} .ag-center-cols-viewport');
+            return v !== null && v.scrollWidth <= v.clientWidth + 1; }}"""
+        try:
+            page.wait_for_function(fits, timeout=10_000)
+        except PlaywrightTimeout:
+            raise AssertionError(f"{grid}: columns hidden to the right of the grid") from None
     assert window.errors == []
 
 
