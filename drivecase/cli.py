@@ -440,7 +440,7 @@ def _print_calibration(case, meters, bills, op, sites) -> None:
     history = case.bill_history
     if history is None or history.empty:
         return
-    comparison, summary = calibration.fit_to_bills(meters, bills, op, history)
+    comparison, summary = calibration.fit_to_bills(meters, bills, op, history, calibration.billing_days_of(case))
     currency = case.settings.currency
     print("\nToday's fleet as modelled against the bills the case gives (bill_history; a bill of another year is set "
           "beside the same calendar month of the analysis year; amounts at the tariff as written)")

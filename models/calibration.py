@@ -30,7 +30,7 @@ PARAMETERS_P = 1
 
 
 def modelled_months(meters: Mapping[str, object], bills: pd.DataFrame, index: pd.DatetimeIndex,
-                    interval_h: float) -> pd.DataFrame:
+                    interval_h: float, billing_days: Mapping[str, int] | None = None) -> pd.DataFrame:
     """Each site's month as modelled for today's fleet.
 
     Parameters
@@ -43,6 +43,10 @@ def modelled_months(meters: Mapping[str, object], bills: pd.DataFrame, index: pd
         The interval starts of the meters (tz-aware, one analysis year).
     interval_h : float
         Interval length [h].
+    billing_days : mapping of str to int, optional
+        Each site's tariff's ``billing_day`` (default 1 for every site): the months are its billing months
+        (:func:`models.billing.billing_months`), as its bills and the bill table are, each named by the month
+        it starts in.
 
     Returns
     -------
@@ -61,11 +65,15 @@ def modelled_months(meters: Mapping[str, object], bills: pd.DataFrame, index: pd
     ...                                                  "amount"]].values.tolist()
     [[1.0, 30.0, 20.0, 5.0, 3.0], [2.0, 30.0, 30.0, 10.0, 4.0]]
     """
-    month = np.asarray(index.month, dtype=int)
+    from models.billing import billing_months
+
+    calendar_month = np.asarray(index.month, dtype=int)
     frames = []
     totals = (bills.assign(month_of_year=bills["month"].astype(str).str[5:7].astype(int))
               .groupby(["site_id", "month_of_year"])["amount"].sum()) if len(bills) else pd.Series(dtype=float)
     for site_id, meter in meters.items():
+        day = int((billing_days or {}).get(site_id, 1))
+        month = calendar_month if day <= 1 else billing_months(index.tz_localize(None), day, interval_h)[0] % 12 + 1
         p = np.asarray(meter.p_kw, dtype=float)
         q = np.asarray(meter.q_kvar, dtype=float)
         frame = pd.DataFrame({"m": month, "e": np.maximum(p, 0.0) * interval_h, "p": p,
@@ -235,11 +243,19 @@ def calibrate(case, op) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty = compare_with_bills(pd.DataFrame(), None)
         return empty, calibration_summary(empty)
     meters, bills = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))
-    return fit_to_bills(meters, bills, op, history)
+    return fit_to_bills(meters, bills, op, history, billing_days_of(case))
 
 
-def fit_to_bills(meters: Mapping[str, object], bills: pd.DataFrame, op, history: pd.DataFrame
-                 ) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """:func:`calibrate` from today's meters and bills already made (``op`` gives their index and interval)."""
-    comparison = compare_with_bills(modelled_months(meters, bills, op.index, op.interval_h), history)
+def billing_days_of(case) -> dict[str, int]:
+    """Each site's ``billing_day`` (its tariff's; 1 where the tariff is not at hand)."""
+    tariffs = getattr(case, "tariffs", {}) or {}
+    return {str(site_id): int(getattr(tariffs.get(tariff_file), "billing_day", 1) or 1)
+            for site_id, tariff_file in zip(case.sites["site_id"], case.sites["tariff_file"])}
+
+
+def fit_to_bills(meters: Mapping[str, object], bills: pd.DataFrame, op, history: pd.DataFrame,
+                 billing_days: Mapping[str, int] | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """:func:`calibrate` from today's meters and bills already made (``op`` gives their index and interval;
+    ``billing_days`` each site's tariff's, :func:`billing_days_of`)."""
+    comparison = compare_with_bills(modelled_months(meters, bills, op.index, op.interval_h, billing_days), history)
     return comparison, calibration_summary(comparison)

@@ -271,3 +271,29 @@ def test_a_peak_off_the_bills_at_a_site_of_coarse_profiles_says_why(demo_run_phy
     assert "peak demand: the model reads" in row["detail"]
     assert "the site's profiles are coarser than its demand window" in row["detail"]
     assert not (register["item"] == "Model off the bills at site KGQ").any()  # no KGQ asset in this pack
+
+
+def test_months_are_the_tariffs_billing_months(tmp_path):
+    # hand calculation: a UTC site drawing 100 kW in January and 200 kW the rest of 2025, billed at 0.10 EUR/kWh
+    # in billing months from the 15th (docs/tariffs.md, billing_day). Its bill for month 1 (15 January to 14
+    # February) is of 17 d x 24 h x 100 kW + 14 d x 24 h x 200 kW = 40 800 + 67 200 = 108 000 kWh, 10 800 EUR; the
+    # model's energy of month 1 must be of the same days (the calendar January would give 74 400 kWh)
+    import tomllib
+
+    from models.billing import bill
+    from models.tariff import tariff_from_dict
+
+    text = ('[tariff]\nname = "t"\ncurrency = "EUR"\ntime_zone = "UTC"\nbilling_day = 15\n[[periods]]\ncode = "all"\n'
+            '[energy]\nprice_per_kwh = { all = 0.10 }\n')
+    tariff, problems = tariff_from_dict(tomllib.loads(text))
+    assert tariff is not None, problems
+    idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+    p = np.where(idx.month == 1, 100.0, 200.0)
+    bills = bill(tariff, idx, p, np.zeros_like(p)).assign(site_id="S")
+    meter = SimpleNamespace(p_kw=p, q_kvar=np.zeros_like(p))
+    months = calibration.modelled_months({"S": meter}, bills, idx, 1.0, {"S": 15}).set_index("month_of_year")
+    assert months.loc[1, "energy_kwh"] == pytest.approx(108_000.0, abs=1e-6)
+    assert months.loc[1, "amount"] == pytest.approx(10_800.0, abs=1e-6)
+    assert months["energy_kwh"].sum() == pytest.approx(float(p.sum()), abs=1e-6)
+    calendar = calibration.modelled_months({"S": meter}, bills, idx, 1.0).set_index("month_of_year")
+    assert calendar.loc[1, "energy_kwh"] == pytest.approx(31 * 24 * 100.0, abs=1e-6)
