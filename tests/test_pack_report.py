@@ -866,3 +866,26 @@ def test_a_reactive_project_counted_at_a_share_states_the_payback_of_what_the_pl
     horizon = int(result.assumptions.horizon_yr)
     assert row["cells"][col]["text"] == years_text(counted["simple_payback_yr"], horizon)
     assert row["cells"][col]["text"] != years_text(alone["simple_payback_yr"], horizon)
+
+
+def test_a_repriced_projects_plan_flows_discount_to_its_plan_npv_under_an_income_tax(demo_run_physics):
+    # with a 25 % tax rate on savings the engine takes off (1 - r) x the present value of a reactive project's bill
+    # saving after tax (numpy_financial.npv as reference of the flows' present value): the plan's flows of each
+    # repriced project discount to its plan NPV, as they do without tax
+    from dataclasses import replace
+
+    import numpy_financial as npf
+
+    from models import scenario
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    finance = replace(case.finance, tax_rate_frac=0.25)
+    result = scenario.economics(case, phys, finance, with_risk=False)
+    shares = result.plan_status.get("repriced") or {}
+    assert shares
+    plan = result.plan.set_index(["asset_id", "option_id"])
+    for label in shares:
+        asset_id, option_id = label.split("/")
+        own = npf.npv(finance.discount_rate_frac, content.plan_flows(result, asset_id, option_id))
+        assert own == pytest.approx(float(plan.loc[(asset_id, option_id), "npv"]), abs=1.0), label

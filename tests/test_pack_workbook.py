@@ -715,3 +715,23 @@ def test_scenario_change_headers_keep_an_abbreviation_in_capitals(plan_pack):
     heads = {str(c.value) for row in ws.iter_rows() for c in row if str(c.value or "").startswith("Change: ")}
     assert "Change: CO2 avoided [t/yr]" in heads and any(h.startswith("Change: plan NPV") for h in heads), heads
     assert not any(h.startswith("Change: cO2") for h in heads)
+
+
+def test_the_plan_sheet_npv_formulas_give_the_engines_figures_under_an_income_tax(demo_run_physics, tmp_path):
+    # a reactive project's plan NPV formula takes off (1 - r) x (1 - tax rate) x its bill rows' present value, as the
+    # engine does: at a 25 % tax rate the formulas, evaluated, give the engine's figures stored beside them
+    from dataclasses import replace
+
+    from models import scenario
+    from models.pack import write_pack
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, replace(case.finance, tax_rate_frac=0.25), with_risk=False)
+    assert "KGQ-AC01/capacitor" in (result.plan_status.get("repriced") or {})
+    paths = write_pack(case, result, tmp_path / "pack", assets=["KGQ-AC01"], plan=False)
+    path = next(p for p in paths if str(p).endswith(".xlsx"))
+    compared, missing, wrong = _stored_against_evaluated(path, evaluate(path))
+    assert compared and wrong == [] and missing == []
+    ws = load_workbook(path)["Plan"]
+    row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 2).value == "KGQ-AC01" and ws.cell(r, 3).value == "capacitor")
+    assert "*(1-0.25)*" in str(ws.cell(row, 6).value)

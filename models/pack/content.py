@@ -366,8 +366,9 @@ def plan_credit_share(result, asset_id: str, option_id: str) -> float | None:
 
 def plan_flows(result, asset_id: str, option_id: str) -> np.ndarray:
     """One project's net flow per year 0..horizon as the plan counts it [currency]: its own flows, less
-    (1 - r) x its bill-saving flows for a reactive project credited the share r (:func:`plan_credit_share`),
-    so that its discounted sum is the project's plan NPV."""
+    (1 - r) x its bill-saving flows after tax, (1 - r) (1 - tax rate) x bill saving, for a reactive project credited
+    the share r (:func:`plan_credit_share`), so that its discounted sum is the project's plan NPV (the engine
+    takes off (1 - r) x the present value of its bill saving after tax)."""
     from models.reactive_plan import BILL_SAVING_COMPONENTS
 
     flows = net_flows(result, asset_id, option_id)
@@ -376,7 +377,7 @@ def plan_flows(result, asset_id: str, option_id: str) -> np.ndarray:
         return flows
     table = project_flow_table(result, asset_id, option_id)
     bill = table.loc[[c for c in table.index if c in BILL_SAVING_COMPONENTS]].sum(axis=0).to_numpy(dtype=float)
-    return flows - (1.0 - share) * bill
+    return flows - (1.0 - share) * (1.0 - float(result.assumptions.tax_rate_frac)) * bill
 
 
 def portfolio_flows(result, projects: pd.DataFrame) -> pd.DataFrame:

@@ -707,10 +707,11 @@ def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
     _widths(ws, {1: 12, 2: 12, 3: 34} | {c: 15 for c in range(4, 14)})
 
 
-def _plan_npv_formula(block: dict, share: float | None) -> str:
+def _plan_npv_formula(block: dict, share: float | None, tax_rate_frac: float = 0.0) -> str:
     """The formula of a plan project's NPV at its own start from its block on 'Cash flows': the block's NPV,
-    less (1 - r) x the present value of its bill-saving rows for a reactive project credited the share r of
-    its bill saving (what it adds beside the plan's other projects; r is the engine's, from the plan)."""
+    less (1 - r) x the present value of its bill-saving rows after tax (x (1 - the tax rate), the tax of the
+    block's own tax row on them) for a reactive project credited the share r of its bill saving (what it adds
+    beside the plan's other projects; r is the engine's, from the plan)."""
     from models.reactive_plan import BILL_SAVING_COMPONENTS
 
     expr = f"={block['npv']}"
@@ -719,7 +720,8 @@ def _plan_npv_formula(block: dict, share: float | None) -> str:
     first, last, factor = get_column_letter(block["first_col"]), get_column_letter(block["last_col"]), block["factor_row"]
     present = [f"SUMPRODUCT('Cash flows'!{first}{r}:{last}{r},'Cash flows'!{first}{factor}:{last}{factor})"
                for c, r in block["component_rows"].items() if c in BILL_SAVING_COMPONENTS]
-    return expr + (f"-(1-{share!r})*({'+'.join(present)})" if present else "")
+    kept = f"(1-{share!r})" if not tax_rate_frac else f"(1-{share!r})*(1-{float(tax_rate_frac)!r})"
+    return expr + (f"-{kept}*({'+'.join(present)})" if present else "")
 
 
 def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats,
@@ -764,7 +766,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             share = None if share is None else float(share)
             alone = block is not None and abs(float(r.npv) - float(block["npv_engine_value"])) <= 1e-6 * max(1.0, abs(float(r.npv)))
             if block is not None and (share is not None or alone):
-                put_formula(ws, row, 6, _plan_npv_formula(block, share), f.money, float(r.npv))
+                put_formula(ws, row, 6, _plan_npv_formula(block, share, float(result.assumptions.tax_rate_frac)),
+                            f.money, float(r.npv))
             else:
                 put(ws, row, 6, float(r.npv), f.money)
             put(ws, row, 7, float(r.npv_at_plan_start), f.money)
