@@ -139,6 +139,7 @@ def _load_or_report(path: str):
 
 def _out_problem(command: str, case_path: str, out: str) -> str | None:
     """Why ``--out`` cannot take the results (a message for the user), or None when it can."""
+    import os
     from pathlib import Path
 
     where = _writes_into_case(case_path, out)
@@ -146,12 +147,13 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
         return (f"drivecase {command}: --out {out} is {where}; give a folder outside it (a case's files are "
                 "never written to, and files written among them would be read as part of the case)")
     target = Path(out)
+    if target.is_symlink() and not target.exists():
+        return f"drivecase {command}: --out {out} is a link to {os.readlink(target)}, which does not exist; give a folder"
     if target.exists() and not target.is_dir():
         return f"drivecase {command}: --out {out} is a file, not a folder; give a folder to write the results into"
     parent = next((p for p in target.absolute().parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         return f"drivecase {command}: --out {out} lies under {parent}, which is a file; give a folder"
-    import os
 
     writable = target if target.is_dir() else parent
     if writable is not None and not os.access(writable, os.W_OK | os.X_OK):
@@ -163,10 +165,14 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
         import tempfile
 
         try:
-            os.rmdir(tempfile.mkdtemp(prefix=".drivecase-probe-", dir=writable))
+            probe = tempfile.mkdtemp(prefix=".drivecase-probe-", dir=writable)
         except OSError as exc:
             return (f"drivecase {command}: cannot write into {writable} ({exc.strerror or exc.__class__.__name__}); "
                     "give a folder you can write to")
+        try:
+            os.rmdir(probe)
+        except OSError:
+            pass  # (made, so writable: an empty folder a virus scanner holds a moment is left, not a reason to stop)
     return None
 
 

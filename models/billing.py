@@ -18,8 +18,9 @@ Metering conventions used throughout (see ``docs/tariffs.md``):
 * lagging kVArh = max(Q, 0) × h and leading kVArh = max(−Q, 0) × h, registered separately as
   four-quadrant meters do, so leading kVArh never nets against lagging kVArh;
 * kVAh per interval = sqrt(kWh² + kVArh²) with the interval's net kVArh (lagging or leading);
-* billing months are calendar months of local time in the tariff's zone; fixed and demand charges are
-  charged in full for every month that has data, even a partial one.
+* billing months are calendar months of local time in the tariff's zone, or months from the tariff's read
+  day (``billing_day``); fixed and demand charges are charged in full for every month that has data, even a
+  partial one.
 """
 
 from __future__ import annotations
@@ -238,13 +239,13 @@ class _Calendar:
     interval_h: float
     month_labels: tuple[str, ...]
     month: np.ndarray  # billing month position of each interval (T,)
-    month_starts: np.ndarray  # first interval of each billing month in series order (M,)
+    month_starts: np.ndarray  # first interval (in series order) of each billing month, by month position (M,)
     period: np.ndarray  # (T,)
     season: np.ndarray  # season of each interval's calendar month (T,)
     month_season: np.ndarray  # season of each billing month (M,)
     n_periods: int
     steps_in_cell: np.ndarray  # intervals per (month, period) cell (M, K)
-    windows: dict[int, _Windows]
+    windows: dict[tuple[int, bool], _Windows]  # by (length [min], rolling): :func:`window_key`
     run_starts: np.ndarray  # first interval of each run of consecutive intervals in one cell, then T (R + 1,)
     run_cell: np.ndarray  # (month, period) cell of each run, month * K + period (R,)
     masks: dict = field(default_factory=dict)  # scope masks already built, by (periods, seasons, window)
@@ -256,7 +257,8 @@ class _Calendar:
         return len(self.month_labels)
 
 
-def billing_months(wall: pd.DatetimeIndex, billing_day: int, interval_h: float) -> tuple[np.ndarray, bool]:
+def billing_months(wall: pd.DatetimeIndex, billing_day: int, interval_h: float,
+                   wrap: bool = True) -> tuple[np.ndarray, bool]:
     """Each interval's billing month, as year * 12 + month - 1 of the month it starts in, and whether the series
     is a whole year that wraps round.
 
@@ -268,6 +270,9 @@ def billing_months(wall: pd.DatetimeIndex, billing_day: int, interval_h: float) 
         Day of the month billing months start on (1-28; 1 = calendar months).
     interval_h : float
         Hours per interval [h].
+    wrap : bool
+        Whether a whole year stands for a year repeated (below); False: every series takes the billing months
+        it meets.
 
     Returns
     -------
@@ -295,16 +300,19 @@ def billing_months(wall: pd.DatetimeIndex, billing_day: int, interval_h: float) 
     midnight = _dt.time(0, 0)
     whole_year = (first.day == 1 and first.time() == midnight and after.day == 1 and after.time() == midnight
                   and (after.year * 12 + after.month) - (first.year * 12 + first.month) == 12)
-    if whole_year:
+    if whole_year and wrap:
         ym = np.where(ym < calendar[0], ym + 12, ym)
-    return ym, bool(whole_year)
+        return ym, True
+    return ym, False
 
 
 def _utc_ns(index: pd.DatetimeIndex) -> np.ndarray:
     return index.tz_convert("UTC").tz_localize(None).to_numpy().astype("datetime64[ns]").astype(np.int64)
 
 
-def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None) -> _Calendar:
+def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None, wrap: bool = True) -> _Calendar:
+    """Everything about a tariff's billing of an index that does not depend on the power values. With ``wrap``
+    False a whole year billed as it stands keeps its own first billing month (:func:`billing_months`)."""
     if not isinstance(index, pd.DatetimeIndex) or index.tz is None:
         raise ValueError("index must be a tz-aware pandas DatetimeIndex")
     if len(index) == 0:
@@ -316,7 +324,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None)
     elif len(index) > 1 and np.any(np.diff(_utc_ns(index)) <= 0):
         raise ValueError("index must be strictly increasing")
     wall = _local_wall(tariff, index)
-    ym, wrapped = billing_months(wall, getattr(tariff, "billing_day", 1), float(interval_h))
+    ym, wrapped = billing_months(wall, getattr(tariff, "billing_day", 1), float(interval_h), wrap)
     if not wrapped and np.any(np.diff(ym) < 0):
         raise ValueError("index must be in time order")
     # Months without data in the middle of the series cannot occur in a regular index; renumber anyway.
@@ -1006,7 +1014,10 @@ def bill(
     repeat_year : bool or None
         Treat the series as one typical year repeated, so a ratchet in its first months looks back
         at its last months. Needs exactly 12 billing months. None: repeat when the series has exactly
-        12 billing months, else bill it as it stands (:func:`repeats_year`; the analysis's rule).
+        12 billing months, else bill it as it stands (:func:`repeats_year`; the analysis's rule). Under a tariff
+        whose billing months start on a read day (``billing_day``), a whole year's first days belong to the
+        billing month that starts in its December unless ``repeat_year`` is False (then they are a billing month
+        of their own, and the year holds 13).
     before_p_kw, before_q_kvar : array_like, shape (n_steps,), optional
         The meter of the year before a change, on the same index [kW], [kVAr]. Given both (with a
         typical year: ``repeat_year`` true or None with 12 months), the bill is that of the first year
@@ -1038,7 +1049,8 @@ def bill(
     -----
     Per interval t of length h: kWh_t = max(P_t, 0)·h, kVArh_lag,t = max(Q_t, 0)·h,
     kVArh_lead,t = max(−Q_t, 0)·h, kVAh_t = sqrt(max(P_t, 0)² + Q_t²)·h. Demand: window means of P (and
-    Q for kVA, S_w = sqrt(P_w² + Q_w²)) over clock-aligned windows; the month's demand is the highest
+    Q for kVA, S_w = sqrt(P_w² + Q_w²)) over clock-aligned windows (rolling ones ending at every interval,
+    where the clause says so); the month's demand is the highest
     window in scope. PF adjustment, ratchet and allowances follow ``docs/tariffs.md``; worked bills
     are in ``docs/derivations/billing-*.md``.
 
@@ -1059,7 +1071,7 @@ def bill(
     >>> list(zip(b["line_item"], b["quantity"], b["amount"]))
     [('fixed:standing', 1.0, 20.0), ('energy:all', 300.0, 30.0)]
     """
-    cal = _calendar(tariff, index, interval_h)
+    cal = _calendar(tariff, index, interval_h, wrap=repeat_year is not False)
     p = _as_2d(p_kw, cal.n_steps, "p_kw")
     q = _as_2d(q_kvar, cal.n_steps, "q_kvar")
     if p.shape[0] != 1 or q.shape[0] != 1:
@@ -1141,7 +1153,8 @@ def bill_many(
     The same engine as :func:`bill`, evaluated on scenario blocks of bounded size; the calendar (months,
     periods, windows) is built once.
     """
-    return _bill_many_on(_calendar(tariff, index, interval_h), tariff, p_kw_2d, q_kvar_2d, repeat_year)
+    return _bill_many_on(_calendar(tariff, index, interval_h, wrap=repeat_year is not False), tariff, p_kw_2d,
+                         q_kvar_2d, repeat_year)
 
 
 def _bill_many_on(cal: _Calendar, tariff: Tariff, p_kw_2d, q_kvar_2d, repeat_year: bool | None) -> pd.DataFrame:

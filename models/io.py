@@ -1690,7 +1690,7 @@ def read_finance_settings(raw: "RawCase") -> tuple[dict, str, list[Problem]]:
 def _blank_file(path: Path) -> bool:
     """Whether a text file holds nothing but white space (an unreadable one: False, its reading says why)."""
     try:
-        return not path.read_bytes().strip()
+        return not path.read_bytes().removeprefix(b"\xef\xbb\xbf").strip()  # (a byte-order mark alone is blank too)
     except OSError:
         return False
 

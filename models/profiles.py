@@ -192,7 +192,7 @@ def _moved_by_weeks(times: pd.DatetimeIndex, weeks: np.ndarray) -> pd.DatetimeIn
     A move by absolute time would land an hour off in the week between two years' clock changes (the last
     Sunday of March 2023 and of 2024 are a week apart). A clock time that does not exist on the day it lands
     on (the hour skipped when the clocks go forward) is NaT; one that occurs twice (the hour repeated when they
-    go back) is its first occurrence, the second being left for the caller to treat as missing.
+    go back) lands on one of its two occurrences, the other being left for the caller to treat as missing.
 
     Examples
     --------

@@ -802,7 +802,9 @@ def _kept_if_better(previous: ScenarioResult, plan_frames: tuple, assumptions, s
     comparison["projects_exact"] = float(len(previous.plan))
     # (how far the kept plan is from the best under the new budgets is not known: no gap)
     status = {**(previous.plan_status or {}), "status": "kept", "message": KEPT_PLAN_TEXT, "settings": settings,
-              "gap_frac": float("nan")}
+              "gap_frac": float("nan"),
+              # (the rank-order plan is the new one: its shares are the new check's)
+              "repriced_greedy": (plan_frames[4] or {}).get("repriced_greedy", {})}
     return (previous.plan, plan_frames[1], comparison, plan_frames[3], status) + tuple(plan_frames[5:])
 
 

@@ -760,7 +760,7 @@ class TestBillingDay:
     def test_peaks_either_side_of_the_read_day(self, day, expected):
         t = load(self.DEMAND.format(day=day))
         idx, p = self.year({"2025-01-10 12:00": 500.0, "2025-01-20 12:00": 400.0})
-        b = bill(t, idx, p, np.zeros_like(p))
+        b = bill(t, idx, p, np.zeros_like(p), repeat_year=None)  # (the analysis's rule: a whole year repeated)
         assert b["month"].nunique() == 12
         assert_allclose(bill_total(b), expected, **EXACT)
         if day == "billing_day = 15\n":
@@ -781,7 +781,16 @@ class TestBillingDay:
                 '[[seasons]]\nname = "winter"\nmonths = [1, 2, 3, 4, 5, 10, 11, 12]\n[[periods]]\ncode = "all"\n'
                 '[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\nwindow_min = 60\nseasons = ["summer"]\n')
         idx, p = self.year({"2025-06-10 12:00": 300.0, "2025-10-10 12:00": 250.0})
-        assert_allclose(bill_total(bill(load(text), idx, p, np.zeros_like(p))), expected, **EXACT)
+        assert_allclose(bill_total(bill(load(text), idx, p, np.zeros_like(p), repeat_year=None)), expected, **EXACT)
+
+    def test_a_year_billed_as_it_stands_keeps_its_first_days_as_a_billing_month_of_their_own(self):
+        # repeat_year=False (bill()'s default): 1-14 January is the billing month "2024-12", 15-31 December "2025-12":
+        # 13 billing months, each charged its demand: 500 (1-14 Jan) + 400 + 11 x 100 = 2 000 kW-months
+        t = load(self.DEMAND.format(day="billing_day = 15\n"))
+        idx, p = self.year({"2025-01-10 12:00": 500.0, "2025-01-20 12:00": 400.0})
+        b = bill(t, idx, p, np.zeros_like(p))
+        assert b["month"].nunique() == 13 and b["month"].min() == "2024-12"
+        assert_allclose(bill_total(b), 20_000.0, **EXACT)
 
 
 @pytest.mark.parametrize("rolling, expected", [(True, 16_500.0), (False, 15_000.0)])
@@ -797,6 +806,6 @@ def test_rolling_windows_and_billing_months_from_a_read_day(rolling, expected):
     p = np.full(len(idx), 100.0)
     at = idx.get_loc(pd.Timestamp("2025-01-14 23:45", tz="UTC"))
     p[at:at + 2] = 400.0
-    b = bill(t, idx, p, np.zeros_like(p))
+    b = bill(t, idx, p, np.zeros_like(p), repeat_year=None)
     assert b["month"].nunique() == 12
     assert_allclose(bill_total(b), expected, **EXACT)

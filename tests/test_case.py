@@ -713,7 +713,8 @@ class TestFinanceWarnings:
         hit = _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
         assert "no capital budget" in hit.rule
 
-    @pytest.mark.parametrize("text, error", [(b"", True), (b"  \n\n", True), (b"# only a comment\n", False)])
+    @pytest.mark.parametrize("text, error", [(b"", True), (b"  \n\n", True), (b"\xef\xbb\xbf\n", True),
+                                             (b"# only a comment\n", False)])
     def test_an_empty_finance_file_is_an_error(self, tmp_path, text, error):
         # an empty finance.toml (a failed save, a sync) is an error, as an empty case.toml is: its defaults would
         # replace the organisation's rate and budget unseen; a file of comments only is the defaults, warned

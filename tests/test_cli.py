@@ -1008,3 +1008,12 @@ def test_out_that_cannot_be_made_is_refused_before_any_work(capsys):
     assert main(["run", str(DEMO), "--out", "/proc/drivecase-results", "--quiet"]) == 2
     err = capsys.readouterr().err
     assert "cannot write into /proc" in err and "give a folder you can write to" in err
+
+
+def test_out_that_is_a_broken_link_is_refused_before_any_work(tmp_path, capsys):
+    link = tmp_path / "results"
+    link.symlink_to(tmp_path / "gone")
+    assert main(["run", str(DEMO), "--out", str(link), "--quiet"]) == 2
+    assert "which does not exist" in capsys.readouterr().err
+    assert link.is_symlink() and not (tmp_path / "gone").exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["results"]  # no probe folder left behind

@@ -769,3 +769,27 @@ def test_billing_months_start_on_a_day_of_1_to_28(written, read, error):
         assert problems == [] and t.billing_day == read
     else:
         assert t is None and columns(problems) == ["tariff.billing_day"] and error in problems[0].rule, problems
+
+
+def test_a_clause_billing_in_months_that_start_in_its_season_is_not_warned_under_a_read_day():
+    # periods "sp" in summer (June-September) only; a demand clause on "sp" in the winter season: with calendar
+    # months it bills nothing (warned); with billing months from the 15th (docs/tariffs.md, billing_day) the winter
+    # billing month that starts on 15 May holds 1-14 June's "sp" hours, so it bills (not warned)
+    text = ('[tariff]\nname = "t"\ncurrency = "EUR"\n{day}[[seasons]]\nname = "summer"\nmonths = [6, 7, 8, 9]\n'
+            '[[seasons]]\nname = "winter"\nmonths = [1, 2, 3, 4, 5, 10, 11, 12]\n'
+            '[[periods]]\ncode = "sp"\nseasons = ["summer"]\n[[periods]]\ncode = "wp"\nseasons = ["winter"]\n'
+            '[[demand]]\nprice_per_kw_month = 10.0\nperiods = ["sp"]\nseasons = ["winter"]\n')
+    for day, warned in (("", True), ("billing_day = 15\n", False)):
+        t, problems = load(text.format(day=day))
+        assert t is not None
+        assert any("never occur in its seasons" in p.rule for p in problems) == warned, (day, problems)
+
+
+def test_a_tariff_built_in_code_is_checked_for_its_billing_day():
+    from dataclasses import replace
+
+    from models.tariff import check_tariff
+
+    for day, ok in ((1, True), (28, True), (29, False), (0, False)):
+        problems = check_tariff(replace(tariff_e(), billing_day=day), "t.toml")
+        assert (not any(p.column == "tariff.billing_day" for p in problems)) == ok, day

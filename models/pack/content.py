@@ -441,7 +441,7 @@ def plan_yearly_saving(result, frame: pd.DataFrame) -> pd.Series:
     """Bill plus maintenance saving per year of each row as the plan counts it [currency/yr]: a reactive project
     of the plan credited the share r of its bill saving (:func:`plan_credit_share`) counts r x its bill saving,
     on the same basis as its plan NPV and the portfolio's flows; other rows their own saving."""
-    return yearly_saving(plan_counted(result, frame))
+    return yearly_saving(plan_counted(result, frame, paybacks=False))
 
 
 #: Relative tolerance [-] below which a failed motor's pick is its least repair (NPV zero against itself, to
@@ -454,10 +454,10 @@ BILL_SAVING_COLUMNS = ("saving_energy_per_yr", "saving_demand_per_yr", "saving_r
                        "bill_saving_per_yr")
 
 
-def plan_counted(result, frame: pd.DataFrame) -> pd.DataFrame:
+def plan_counted(result, frame: pd.DataFrame, paybacks: bool = True) -> pd.DataFrame:
     """``frame`` with each reactive project of the plan's bill savings as the plan counts them: the share r
-    (:func:`plan_credit_share`) of each bill component, and its paybacks on those flows; other rows, and the
-    maintenance saving, unchanged.
+    (:func:`plan_credit_share`) of each bill component, and (with ``paybacks``) its paybacks on those flows; other
+    rows, and the maintenance saving, unchanged.
 
     Its rows then add up to :func:`plan_yearly_saving` and to the headline's yearly saving, component by
     component."""
@@ -472,7 +472,7 @@ def plan_counted(result, frame: pd.DataFrame) -> pd.DataFrame:
     # the paybacks of a project counted at a share: of the flows the plan counts (:func:`plan_flows`), the
     # residual value left out as the engine's paybacks leave it
     d = float(result.assumptions.discount_rate_frac)
-    for i in np.flatnonzero([x is not None for x in share]):
+    for i in np.flatnonzero([x is not None and paybacks for x in share]):
         a, o = str(frame["asset_id"].iloc[i]), str(frame["option_id"].iloc[i])
         table = project_flow_table(result, a, o)
         paying = plan_flows(result, a, o) - (table.loc["residual"].to_numpy(dtype=float) if "residual" in table.index else 0.0)

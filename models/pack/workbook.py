@@ -760,8 +760,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             put_text(ws, row, 4, str(labels.get((r.asset_id, r.option_id), "")))
             put(ws, row, 5, float(r.capital), f.money)
             block = block_of.get((r.asset_id, r.option_id))
-            # the exact plan's reactive projects at the engine's share; a rank-order project where the plan counts
-            # it at its own NPV (the block's); otherwise the engine's figure
+            # a reactive project at the share its plan credits it with (the engine's); a project the plan counts at
+            # its own NPV (the block's); otherwise the engine's figure
             share = (shares or {}).get(f"{r.asset_id}/{r.option_id}")
             share = None if share is None else float(share)
             alone = block is not None and abs(float(r.npv) - float(block["npv_engine_value"])) <= 1e-6 * max(1.0, abs(float(r.npv)))
