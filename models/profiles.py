@@ -3,8 +3,8 @@
 The machines, the site meter and the bill all work on one time axis: a calendar year in the case's time
 zone at the finest resolution the case's profiles use (15, 30 or 60 min). An interval profile is
 resampled to that resolution (finer data averaged, coarser data held over the interval) and placed on
-the year; intervals it does not cover (gaps, or a profile shorter than a year) take the profile's own
-mean for the same weekday and time of day. A profile from another year is moved by whole weeks so
+the year; a profile shorter than a year is repeated, its measured weeks in turn, and intervals it does not
+cover otherwise (gaps) take the profile's own mean for the same weekday and time of day. A profile from another year is moved by whole weeks so
 weekdays line up, and a year of data that crosses the new year has its part in the other calendar year
 moved onto the analysis year by 52 weeks, so every measured interval is used. Assets without interval data are described by load states with hours per year (a duty
 table, or annual hours at a mean load) and reach the meter as their expected power in every interval,
@@ -121,7 +121,8 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     values : numpy.ndarray
         Values on ``index``.
     filled_frac : float
-        Share of the analysis intervals filled from the typical week [-].
+        Share of the analysis intervals filled [-]: by the profile's measured weeks in turn where it is shorter
+        than a year, else (a gap) by the mean of the same weekday and time of day.
 
     Notes
     -----
@@ -172,14 +173,76 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     values = s.reindex(index).to_numpy(dtype=float).copy()
     missing = np.isnan(values)
     if missing.any():
-        slot = (index.day_of_week.to_numpy() * 1440 + index.hour.to_numpy() * 60 + index.minute.to_numpy())
         own = s.dropna()
-        own_slot = own.index.day_of_week.to_numpy() * 1440 + own.index.hour.to_numpy() * 60 + own.index.minute.to_numpy()
-        table = pd.Series(own.to_numpy(dtype=float)).groupby(own_slot).mean()
-        fill = table.reindex(slot[missing]).to_numpy()
-        fill = np.where(np.isnan(fill), float(own.mean()) if len(own) else 0.0, fill)
+        # a profile shorter than a year: its measured weeks in turn; what they do not give (a gap inside them, a
+        # profile of less than a week): the mean of the same weekday and time of day
+        fill = np.array(_repeated_weeks(own, index[missing]), dtype=float)  # (a writable array of its own)
+        left = np.isnan(fill)
+        if left.any():
+            at = index[missing][left]
+            slot = at.day_of_week.to_numpy() * 1440 + at.hour.to_numpy() * 60 + at.minute.to_numpy()
+            own_slot = own.index.day_of_week.to_numpy() * 1440 + own.index.hour.to_numpy() * 60 + own.index.minute.to_numpy()
+            table = pd.Series(own.to_numpy(dtype=float)).groupby(own_slot).mean()
+            by_slot = table.reindex(slot).to_numpy()
+            fill[left] = np.where(np.isnan(by_slot), float(own.mean()) if len(own) else 0.0, by_slot)
         values[missing] = fill
     return values, float(missing.mean())
+
+
+#: A profile measured over this many whole weeks or more is a year: its gaps are filled by weekday and time of day,
+#: not by repeating its weeks.
+YEAR_WEEKS = 52
+
+
+def _repeated_weeks(own: pd.Series, times: pd.DatetimeIndex) -> np.ndarray:
+    """The values at ``times`` of a profile shorter than a year repeated: its whole measured weeks in turn.
+
+    Parameters
+    ----------
+    own : pandas.Series
+        The profile's measured values on the analysis step (tz-aware index in the analysis zone, increasing).
+    times : pandas.DatetimeIndex
+        Intervals to fill (the analysis year's, outside or inside the measured span).
+
+    Returns
+    -------
+    numpy.ndarray
+        At each time the value measured k whole periods of n weeks away by the local clock, where n is the
+        number of whole weeks from the profile's first interval to its last (so every time lands on the same
+        weekday and clock time, within the first n weeks measured); NaN where that interval was not measured,
+        where the profile spans less than a week, or a year (:data:`YEAR_WEEKS` weeks) or more.
+
+    Notes
+    -----
+    A short logging campaign extended so keeps its measured peaks in every month filled: a month holds the
+    weeks measured, as a month of the real year holds weeks like them. The mean of each weekday and time of day
+    over the weeks measured (the fill of a gap) would flatten those peaks and understate the demand charges a
+    motor sets, and their savings; energy is the same either way over whole repeats.
+
+    Examples
+    --------
+    >>> idx = pd.date_range("2025-03-03", periods=14 * 24, freq="h", tz="UTC")  # two weeks from a Monday
+    >>> own = pd.Series(np.where(np.arange(len(idx)) < 168, 1.0, 2.0), index=idx)
+    >>> at = pd.DatetimeIndex(["2025-03-17 05:00", "2025-03-24 05:00", "2025-02-24 05:00"]).tz_localize("UTC")
+    >>> _repeated_weeks(own, at).tolist()  # two weeks on: the first week; three: the second; one before: the second
+    [1.0, 2.0, 2.0]
+    """
+    out = np.full(len(times), np.nan)
+    if len(own) < 2 or not len(times):
+        return out
+    def wall_ns(t: pd.DatetimeIndex) -> np.ndarray:
+        return (t.tz_localize(None) if t.tz is not None else t).as_unit("ns").asi8
+    measured = wall_ns(own.index)
+    step_ns = int(np.median(np.diff(measured)))
+    week_ns = 7 * 86_400 * 10**9
+    weeks = int((measured[-1] - measured[0] + step_ns) // week_ns)
+    if weeks < 1 or weeks >= YEAR_WEEKS:
+        return out
+    period_ns = weeks * week_ns
+    source = measured[0] + np.mod(wall_ns(times) - measured[0], period_ns)
+    values = pd.Series(own.to_numpy(dtype=float), index=measured)
+    values = values[~values.index.duplicated(keep="first")]  # (a repeated autumn hour: its first reading)
+    return values.reindex(source).to_numpy(dtype=float, copy=True)
 
 
 #: The step by which intervals outside the analysis year are moved onto it: 52 weeks, so weekdays line up.
@@ -309,7 +372,7 @@ def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, 
             np.divide(v, 100.0, out=values[k])
         if filled > 0.001:
             notes.append({"asset_id": a["asset_id"].iloc[row],
-                          "note": f"{100 * filled:.1f} % of the year filled from the profile's typical week"})
+                          "note": f"{100 * filled:.1f} % of the year filled from the profile's measured weeks"})
     # load states for the others
     duty = case.duty
     n_states = max([1] + [int((duty["profile_id"] == p).sum()) for p in set(duty["profile_id"].dropna())])

@@ -4,6 +4,7 @@ Expected values are the inputs themselves or hand calculations written beside th
 """
 
 import numpy as np
+import pytest
 import pandas as pd
 from numpy.testing import assert_array_equal
 
@@ -84,6 +85,41 @@ class TestConform:
         on = pd.Series(values, index=index)
         assert on[pd.Timestamp("2024-03-25 08:00", tz="Europe/Berlin")] == 8.0
         assert_array_equal(values, index.hour.to_numpy(dtype=float))
+
+    def test_a_short_campaign_is_repeated_week_by_week_keeping_its_peaks(self):
+        # hand calculation: two weeks logged from Monday 3 March 2025 (UTC, hourly), 100 kW in the first and 200 kW in
+        # the second, with a 400 kW hour on Wednesday 12 March 10:00 (the second week). Placed on 2025, the year
+        # repeats the two weeks in turn from 3 March, backwards and forwards: 17 March starts the first again, 24
+        # March the second; 24 February (one week before) is a second week, 17 February a first; day d of the year
+        # (1 January = 0, 3 March = 61) is of a second week where (d - 61) mod 14 >= 7: 1 January (9) and 31 December
+        # (303 mod 14 = 9) both are. So the 400 kW hour recurs every two weeks, on Wednesday 10:00 of each second week:
+        # days 0, 14, ..., 364 (both Wednesdays), 27 of them. The mean of each weekday and hour (150, with 250 at
+        # Wednesday 10:00) would have flattened the peak to 250 kW
+        start = pd.Timestamp("2025-03-03", tz="UTC")
+        stamps = pd.date_range(start, periods=14 * 24, freq="h")
+        values = np.where(np.arange(len(stamps)) < 168, 100.0, 200.0)
+        values[stamps.get_loc(pd.Timestamp("2025-03-12 10:00", tz="UTC"))] = 400.0
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        placed, filled = conform(pd.Series(values, index=stamps), index)
+        on = pd.Series(placed, index=index)
+        assert filled == (8760 - 14 * 24) / 8760
+        for day, kw in (("2025-03-17", 100.0), ("2025-03-24", 200.0), ("2025-02-24", 200.0), ("2025-02-17", 100.0),
+                        ("2025-01-01", 200.0), ("2025-12-31", 200.0)):
+            assert on[pd.Timestamp(f"{day} 05:00", tz="UTC")] == kw, day
+        peaks = on[on == 400.0].index
+        assert len(peaks) == 27 and set(peaks.day_of_week) == {2} and set(peaks.hour) == {10}
+        assert on.max() == 400.0
+
+    def test_a_profile_shorter_than_a_week_is_extended_by_its_means(self):
+        # five days (Mon-Fri) at 80 kW with a 100 kW hour on Tuesday 09:00: less than a week to repeat, so each weekday
+        # and hour takes its mean, and the weekend (never measured) the profile's mean
+        stamps = pd.date_range("2025-03-03", periods=5 * 24, freq="h", tz="UTC")
+        values = np.full(len(stamps), 80.0)
+        values[33] = 100.0  # Tuesday 09:00
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        on = pd.Series(conform(pd.Series(values, index=stamps), index)[0], index=index)
+        assert on[pd.Timestamp("2025-03-11 09:00", tz="UTC")] == 100.0
+        assert on[pd.Timestamp("2025-03-15 09:00", tz="UTC")] == pytest.approx(values.mean())
 
     def test_an_interval_measured_in_the_year_is_never_replaced_by_a_moved_one(self):
         # two weeks of 2025 at 50 kW (so the profile is centred on 2025) and the first of them again in 2026 (52
