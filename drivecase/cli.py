@@ -147,8 +147,10 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
         return (f"drivecase {command}: --out {out} is {where}; give a folder outside it (a case's files are "
                 "never written to, and files written among them would be read as part of the case)")
     target = Path(out)
-    if target.is_symlink() and not target.exists():
-        return f"drivecase {command}: --out {out} is a link to {os.readlink(target)}, which does not exist; give a folder"
+    broken = next((p for p in (target, *target.parents) if p.is_symlink() and not p.exists()), None)
+    if broken is not None:  # (a link to nowhere, or to itself: the folder could not be made)
+        return (f"drivecase {command}: --out {out} goes through {broken}, a link to {os.readlink(broken)}, which does not "
+                "lead to a folder; give a folder")
     if target.exists() and not target.is_dir():
         return f"drivecase {command}: --out {out} is a file, not a folder; give a folder to write the results into"
     parent = next((p for p in target.absolute().parents if p.exists()), None)
@@ -317,7 +319,7 @@ def _writes_into_case(case_path: str, out: str) -> str | None:
         case_dir = case_dir.parent
     try:
         target, root = Path(out).resolve(), case_dir.resolve()
-    except OSError:
+    except (OSError, RuntimeError):  # (a link loop: Python 3.11 raises RuntimeError; _out_problem names it)
         return None
     if target == root:
         return "the folder of the case workbook" if workbook else "the case's own folder"

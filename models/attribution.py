@@ -99,7 +99,7 @@ def _bill_scenarios(tariff, index, site, p0, q0, dp, dq, *, base_p_kw_profile, i
     cal = calendar  # else built once, at the first block (after its meter, as bill_many would)
     for start in range(0, n, chunk):
         meter = site.meter_from_totals(p0 + dp[start : start + chunk], q0 + dq[start : start + chunk], base_p_kw_profile=base_p_kw_profile)
-        cal = cal if cal is not None else billing._calendar(tariff, index, interval_h)
+        cal = cal if cal is not None else billing._calendar(tariff, index, interval_h, wrap=repeat_year is not False)
         f = billing._bill_many_on(cal, tariff, meter.p_kw, meter.q_kvar, repeat_year)
         flags.extend(f.attrs["flags"])
         q = np.asarray(meter.q_kvar, dtype=float)
@@ -124,10 +124,11 @@ def _scenario_inputs(assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar):
     return p0, q0, dp, dq
 
 
-def bill_calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None = None):
+def bill_calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None = None,
+                  repeat_year: bool | None = None):
     """The tariff's calendar over the index (periods, months, demand windows) as :func:`scenario_bills`
-    builds it, to hand back to it when the same site is priced many times."""
-    return billing._calendar(tariff, index, interval_h)
+    builds it for ``repeat_year``, to hand back to it when the same site is priced many times."""
+    return billing._calendar(tariff, index, interval_h, wrap=repeat_year is not False)
 
 
 def scenario_bills(tariff: Tariff, index: pd.DatetimeIndex, assets_p_kw, assets_q_kvar, delta_p_kw, delta_q_kvar, *,
@@ -445,7 +446,7 @@ def _ideal_bank_bills(tariff, index, meter: SiteMeter, sizes_q_kvar: np.ndarray,
     p = np.asarray(meter.p_kw, dtype=float)
     q = np.asarray(meter.q_kvar, dtype=float)
     sizes = np.asarray(sizes_q_kvar, dtype=float)
-    cal = billing._calendar(tariff, index, interval_h)
+    cal = billing._calendar(tariff, index, interval_h, wrap=repeat_year is not False)
     p_row = billing._as_2d(p, cal.n_steps, "p_kw_2d")
     q_row = billing._as_2d(q, cal.n_steps, "q_kvar_2d")
     billing._check_repeat(cal, repeat_year)

@@ -1105,9 +1105,10 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
         if coverage_days < 364.5:
             problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, less than a year",
-                                    "it is extended to a year by repeating its measured weeks in turn, so every month filled holds "
-                                    "the weeks measured, their peaks included, but no season or holiday of its own; log a full "
-                                    "year where it matters"))
+                                    "it is extended to a year by repeating its measured weeks in turn (a profile of less than a "
+                                    "week: by its mean of each weekday and time of day), so every month filled holds the weeks "
+                                    "measured, their peaks included, but no season or holiday of its own; log a full year where "
+                                    "it matters"))
         elif coverage_days > 366.5 + resolution / 1440:
             problems.append(warning(source, None, header("profile_id"), profile_id,
                                     f"profile '{profile_id}' covers {coverage_days:.1f} days, more than a year "

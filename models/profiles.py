@@ -169,17 +169,19 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
     elif own_step > step_min + 1e-9:
         fine = pd.date_range(s.index[0], s.index[-1] + pd.Timedelta(minutes=own_step - step_min), freq=f"{int(step_min)}min")
         s = s.reindex(fine, method="ffill", limit=int(round(own_step / step_min)) - 1)
+    measured = s.dropna()  # (as measured, before a part in another calendar year is moved onto this one)
     s = _wrapped_onto(s, index)
     values = s.reindex(index).to_numpy(dtype=float).copy()
     missing = np.isnan(values)
     if missing.any():
         own = s.dropna()
-        # a profile shorter than a year: its measured weeks in turn; what they do not give (a gap inside them, a
-        # profile of less than a week): the mean of the same weekday and time of day
-        fill = np.array(_repeated_weeks(own, index[missing]), dtype=float)  # (a writable array of its own)
+        at_missing = index[missing]
+        # a profile shorter than a year: its measured weeks in turn outside the span measured; what they do not give
+        # (a gap inside the span, a profile of less than a week): the mean of the same weekday and time of day
+        fill = np.array(_repeated_weeks(measured, at_missing), dtype=float)  # (a writable array of its own)
         left = np.isnan(fill)
         if left.any():
-            at = index[missing][left]
+            at = at_missing[left]
             slot = at.day_of_week.to_numpy() * 1440 + at.hour.to_numpy() * 60 + at.minute.to_numpy()
             own_slot = own.index.day_of_week.to_numpy() * 1440 + own.index.hour.to_numpy() * 60 + own.index.minute.to_numpy()
             table = pd.Series(own.to_numpy(dtype=float)).groupby(own_slot).mean()
@@ -207,10 +209,12 @@ def _repeated_weeks(own: pd.Series, times: pd.DatetimeIndex) -> np.ndarray:
     Returns
     -------
     numpy.ndarray
-        At each time the value measured k whole periods of n weeks away by the local clock, where n is the
-        number of whole weeks from the profile's first interval to its last (so every time lands on the same
-        weekday and clock time, within the first n weeks measured); NaN where that interval was not measured,
-        where the profile spans less than a week, or a year (:data:`YEAR_WEEKS` weeks) or more.
+        At each time outside the span measured (its first interval to its last), the value measured k whole
+        periods of n weeks away by the local clock, where n is the number of whole weeks the profile spans, a day
+        short counting as a week (a blank first or last reading does not drop a week; so every time lands on the
+        same weekday and clock time, within the first n weeks measured); NaN inside the span (a gap there is a
+        gap), where that interval was not measured, and where the profile spans less than a week or a year
+        (:data:`YEAR_WEEKS` weeks) or more.
 
     Notes
     -----
@@ -234,15 +238,19 @@ def _repeated_weeks(own: pd.Series, times: pd.DatetimeIndex) -> np.ndarray:
         return (t.tz_localize(None) if t.tz is not None else t).as_unit("ns").asi8
     measured = wall_ns(own.index)
     step_ns = int(np.median(np.diff(measured)))
-    week_ns = 7 * 86_400 * 10**9
-    weeks = int((measured[-1] - measured[0] + step_ns) // week_ns)
+    day_ns = 86_400 * 10**9
+    week_ns = 7 * day_ns
+    weeks = int((measured[-1] - measured[0] + step_ns + day_ns) // week_ns)
     if weeks < 1 or weeks >= YEAR_WEEKS:
         return out
     period_ns = weeks * week_ns
-    source = measured[0] + np.mod(wall_ns(times) - measured[0], period_ns)
+    at = wall_ns(times)
+    outside = (at < measured[0]) | (at > measured[-1])
+    source = measured[0] + np.mod(at[outside] - measured[0], period_ns)
     values = pd.Series(own.to_numpy(dtype=float), index=measured)
     values = values[~values.index.duplicated(keep="first")]  # (a repeated autumn hour: its first reading)
-    return values.reindex(source).to_numpy(dtype=float, copy=True)
+    out[outside] = values.reindex(source).to_numpy(dtype=float)
+    return out
 
 
 #: The step by which intervals outside the analysis year are moved onto it: 52 weeks, so weekdays line up.
@@ -372,7 +380,8 @@ def asset_loads(case, index: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, 
             np.divide(v, 100.0, out=values[k])
         if filled > 0.001:
             notes.append({"asset_id": a["asset_id"].iloc[row],
-                          "note": f"{100 * filled:.1f} % of the year filled from the profile's measured weeks"})
+                          "note": f"{100 * filled:.1f} % of the year filled (by the profile's measured weeks repeated, "
+                                  "or by its mean of the same weekday and time of day)"})
     # load states for the others
     duty = case.duty
     n_states = max([1] + [int((duty["profile_id"] == p).sum()) for p in set(duty["profile_id"].dropna())])

@@ -720,7 +720,8 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
         out.extend(_coverage_problems(tariff, src, at, report_gaps=report_gaps))
 
     day = tariff.billing_day
-    if isinstance(day, bool) or not isinstance(day, (int, np.integer)) or not 1 <= int(day) <= 28:
+    day_ok = not isinstance(day, bool) and isinstance(day, (int, np.integer)) and 1 <= int(day) <= 28
+    if not day_ok:
         err("tariff.billing_day", day, "the day billing months start on must be 1-28 (every month has it)",
             "the meter's read day, e.g. 15; 1 for calendar months")
 
@@ -753,7 +754,7 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             return  # (no limit on one of them, or an unknown name, reported above)
         season_of_month = _season_of_month(tariff)
         months = np.isin(season_of_month, [tariff.season_names.index(x) for x in seasons])
-        if tariff.billing_day > 1:  # a billing month takes its first month's season and runs into the next month
+        if day_ok and int(day) > 1:  # a billing month takes its first month's season and runs into the next month
             months = months | np.roll(months, 1)
         days = np.array([True, True, True, bool(tariff.holidays)])
         for rule in tariff.periods:

@@ -329,3 +329,27 @@ class TestRatchetOfATypicalYear:
         # January to June at 100 kW with or without the option: 6 x 100 kW x 10 = 6,000, nothing saved
         assert_allclose(r["baseline_bill"].iloc[0], 6_000.0, **EXACT)
         assert_allclose(r["saving"].iloc[0], 0.0, **EXACT)
+
+
+@pytest.mark.parametrize("repeat_year, expected", [(False, 13 * 20.0 + 13 * 1000.0), (None, 12 * 20.0 + 12 * 1000.0)])
+def test_scenario_bills_take_the_billing_months_bill_takes(repeat_year, expected):
+    # hand calculation: 100 kW flat through 2025 (UTC), a 20 EUR standing charge and 10 EUR/kW-month demand, billing
+    # months from the 15th. Billed as it stands (repeat_year False) the year meets 13 billing months (1-14 January its
+    # own): 13 x (20 + 1 000); as a year repeated (None, the analysis's rule), 12
+    import tomllib
+
+    from models.attribution import scenario_bills
+    from models.billing import bill
+    from models.tariff import tariff_from_dict
+
+    text = ('[tariff]\nname = "t"\ncurrency = "EUR"\ntime_zone = "UTC"\nbilling_day = 15\n[[periods]]\ncode = "all"\n'
+            '[[fixed]]\nname = "standing"\ncharge_per_month = 20.0\n[[demand]]\nname = "d"\nprice_per_kw_month = 10.0\n'
+            'window_min = 60\n')
+    t, problems = tariff_from_dict(tomllib.loads(text))
+    assert t is not None, problems
+    idx = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+    p = np.full(len(idx), 100.0)
+    assert bill(t, idx, p, np.zeros_like(p), repeat_year=repeat_year)["amount"].sum() == pytest.approx(expected)
+    scenarios = scenario_bills(t, idx, p, np.zeros_like(p), np.zeros((1, len(p))), np.zeros((1, len(p))),
+                               repeat_year=repeat_year)
+    assert np.asarray(scenarios, dtype=float).ravel()[0] == pytest.approx(expected)

@@ -1011,9 +1011,14 @@ def test_out_that_cannot_be_made_is_refused_before_any_work(capsys):
 
 
 def test_out_that_is_a_broken_link_is_refused_before_any_work(tmp_path, capsys):
+    # a link to nowhere, a folder under one, a link to itself: each refused at once, nothing made
     link = tmp_path / "results"
     link.symlink_to(tmp_path / "gone")
-    assert main(["run", str(DEMO), "--out", str(link), "--quiet"]) == 2
-    assert "which does not exist" in capsys.readouterr().err
+    loop = tmp_path / "loop"
+    loop.symlink_to(loop)
+    for out, through in ((link, link), (link / "sub", link), (loop, loop)):
+        assert main(["run", str(DEMO), "--out", str(out), "--quiet"]) == 2
+        err = capsys.readouterr().err
+        assert f"goes through {through}" in err and "does not lead to a folder" in err, err
     assert link.is_symlink() and not (tmp_path / "gone").exists()
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["results"]  # no probe folder left behind
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["loop", "results"]  # no probe folder left behind

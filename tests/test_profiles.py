@@ -110,6 +110,56 @@ class TestConform:
         assert len(peaks) == 27 and set(peaks.day_of_week) == {2} and set(peaks.hour) == {10}
         assert on.max() == 400.0
 
+    def test_a_winter_campaign_across_the_new_year_is_repeated_too(self):
+        # hand calculation: 8 weeks logged from Monday 2 December 2024 (UTC, hourly) at 100 kW, with a 400 kW hour on
+        # Tuesday 17 December 10:00. The profile is centred on 2024, so it is moved 52 weeks onto the analysis year 2025
+        # (2 December 2024 -> 1 December 2025, the peak -> Tuesday 16 December 2025), its January part back onto
+        # January 2025. The rest of 2025 repeats the 8 weeks from 1 December 2025 backwards: the peak every 56 days,
+        # 21 October, 26 August, 1 July, 6 May, 11 March (14 January 2025 is measured, 100 kW: the campaign's own 14
+        # January). Six 400 kW hours; the means of each weekday and hour would have given none but the measured one
+        stamps = pd.date_range("2024-12-02", periods=8 * 168, freq="h", tz="UTC")
+        values = np.full(len(stamps), 100.0)
+        values[stamps.get_loc(pd.Timestamp("2024-12-17 10:00", tz="UTC"))] = 400.0
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        on = pd.Series(conform(pd.Series(values, index=stamps), index)[0], index=index)
+        peaks = [str(t.date()) for t in on[on == 400.0].index]
+        assert peaks == ["2025-03-11", "2025-05-06", "2025-07-01", "2025-08-26", "2025-10-21", "2025-12-16"]
+        assert set(on[on == 400.0].index.hour) == {10}
+
+    def test_a_blank_first_reading_does_not_shorten_the_weeks_repeated(self):
+        # four weeks from Monday 3 March 2025 (UTC, hourly), each week its own level (100, 200, 300, 400 kW): with the
+        # first reading blank the span is a reading short of four weeks, still four weeks repeated (a day short counts)
+        stamps = pd.date_range("2025-03-03", periods=4 * 168, freq="h", tz="UTC")
+        values = np.repeat([100.0, 200.0, 300.0, 400.0], 168)
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        whole = conform(pd.Series(values, index=stamps), index)[0]
+        blank = values.copy()
+        blank[0] = np.nan
+        short = conform(pd.Series(blank, index=stamps), index)[0]
+        later = index >= pd.Timestamp("2025-03-31", tz="UTC")  # past the span: repeated weeks
+        # the repeats of the blank reading (Monday 00:00 of every first week) take the mean of Monday 00:00 over the
+        # weeks that measured it, (200 + 300 + 400) / 3 = 300; every other interval is as without the blank
+        of_blank = np.asarray((index - stamps[0]) % pd.Timedelta(weeks=4) == pd.Timedelta(0))
+        assert_array_equal(short[later & ~of_blank], whole[later & ~of_blank])
+        assert (short[later & of_blank] == 300.0).all() and (later & of_blank).sum() == 10
+        on = pd.Series(whole, index=index)
+        assert on[pd.Timestamp("2025-04-14 05:00", tz="UTC")] == 300.0  # six weeks on: the third week
+
+    def test_a_gap_inside_a_short_campaign_keeps_the_mean(self):
+        # two weeks from Monday 3 March 2025 at 100 then 200 kW, one blank hour in the second week (Tuesday 11 March
+        # 05:00): it is a gap, filled by the mean of its weekday and hour over the weeks measured, the first week's
+        # 100 kW alone (150 would need the blank hour)
+        stamps = pd.date_range("2025-03-03", periods=2 * 168, freq="h", tz="UTC")
+        values = np.repeat([100.0, 200.0], 168)
+        gap = stamps.get_loc(pd.Timestamp("2025-03-11 05:00", tz="UTC"))
+        values[gap] = np.nan
+        index = pd.date_range("2025-01-01", "2026-01-01", freq="h", tz="UTC", inclusive="left")
+        on = pd.Series(conform(pd.Series(values, index=stamps), index)[0], index=index)
+        assert on[pd.Timestamp("2025-03-11 05:00", tz="UTC")] == 100.0
+        assert on[pd.Timestamp("2025-03-26 05:00", tz="UTC")] == 200.0  # two weeks on, outside the span: week 2's
+        # Wednesday; its Tuesday 05:00 repeats the blank hour, so the repeat gives nothing there and the mean, 100, stands
+        assert on[pd.Timestamp("2025-03-25 05:00", tz="UTC")] == 100.0
+
     def test_a_profile_shorter_than_a_week_is_extended_by_its_means(self):
         # five days (Mon-Fri) at 80 kW with a 100 kW hour on Tuesday 09:00: less than a week to repeat, so each weekday
         # and hour takes its mean, and the weekend (never measured) the profile's mean

@@ -793,3 +793,18 @@ def test_a_tariff_built_in_code_is_checked_for_its_billing_day():
     for day, ok in ((1, True), (28, True), (29, False), (0, False)):
         problems = check_tariff(replace(tariff_e(), billing_day=day), "t.toml")
         assert (not any(p.column == "tariff.billing_day" for p in problems)) == ok, day
+
+
+def test_a_tariff_built_in_code_with_a_billing_day_of_the_wrong_type_is_reported_not_raised():
+    from dataclasses import replace
+
+    from models.tariff import check_tariff
+
+    t, problems = load('[tariff]\nname = "t"\ncurrency = "EUR"\n[[seasons]]\nname = "summer"\nmonths = [6, 7, 8, 9]\n'
+                       '[[seasons]]\nname = "winter"\nmonths = [1, 2, 3, 4, 5, 10, 11, 12]\n[[periods]]\ncode = "sp"\n'
+                       'seasons = ["summer"]\n[[periods]]\ncode = "wp"\nseasons = ["winter"]\n[[demand]]\n'
+                       'price_per_kw_month = 10.0\nperiods = ["sp"]\nseasons = ["summer"]\n')
+    assert t is not None, problems
+    for day in ("15", None, 2.5):
+        found = check_tariff(replace(t, billing_day=day), "t.toml")
+        assert [p.column for p in found if p.severity == "error"] == ["tariff.billing_day"], (day, found)
