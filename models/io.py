@@ -2534,8 +2534,8 @@ SAVE_DIGEST_MAX_BYTES = 64 * 2**20
 
 def _other_files(folder: Path, target: Path) -> dict[str, tuple]:
     """The files of a case folder that reading the case reads (:func:`folder_case_files`) but ``target`` (the
-    finance file a save writes), by path within the folder: each its size and modification time [ns], and the digest of its bytes up to
-    :data:`SAVE_DIGEST_MAX_BYTES` (a large profile table by size and time alone)."""
+    finance file a save writes), by path within the folder: each its size and modification time [ns], and the
+    digest of its bytes up to :data:`SAVE_DIGEST_MAX_BYTES` (a large profile table by size and time alone)."""
     import hashlib
 
     state: dict[str, tuple] = {}

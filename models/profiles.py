@@ -4,8 +4,8 @@ The machines, the site meter and the bill all work on one time axis: a calendar 
 zone at the finest resolution the case's profiles use (15, 30 or 60 min). An interval profile is
 resampled to that resolution (finer data averaged, coarser data held over the interval) and placed on
 the year; a profile shorter than a year is repeated, its measured weeks in turn, and intervals it does not
-cover otherwise (gaps) take the profile's own mean for the same weekday and time of day. A profile from another year is moved by whole weeks so
-weekdays line up, and a year of data that crosses the new year has its part in the other calendar year
+cover otherwise (gaps) take the profile's own mean for the same weekday and time of day. A profile from
+another year is moved by whole weeks so weekdays line up, and a year of data that crosses the new year has its part in the other calendar year
 moved onto the analysis year by 52 weeks, so every measured interval is used. Assets without interval data are described by load states with hours per year (a duty
 table, or annual hours at a mean load) and reach the meter as their expected power in every interval,
 which keeps their energy exact but assumes their demand is spread evenly (flagged).
@@ -178,7 +178,7 @@ def conform(series: pd.Series, index: pd.DatetimeIndex) -> tuple[np.ndarray, flo
         at_missing = index[missing]
         # a profile shorter than a year: its measured weeks in turn outside the span measured; what they do not give
         # (a gap inside the span, a profile of less than a week): the mean of the same weekday and time of day
-        fill = np.array(_repeated_weeks(measured, at_missing), dtype=float)  # (a writable array of its own)
+        fill = _repeated_weeks(measured, at_missing)
         left = np.isnan(fill)
         if left.any():
             at = at_missing[left]
@@ -234,8 +234,10 @@ def _repeated_weeks(own: pd.Series, times: pd.DatetimeIndex) -> np.ndarray:
     out = np.full(len(times), np.nan)
     if len(own) < 2 or not len(times):
         return out
+
     def wall_ns(t: pd.DatetimeIndex) -> np.ndarray:
         return (t.tz_localize(None) if t.tz is not None else t).as_unit("ns").asi8
+
     measured = wall_ns(own.index)
     step_ns = int(np.median(np.diff(measured)))
     day_ns = 86_400 * 10**9

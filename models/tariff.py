@@ -720,10 +720,9 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
         out.extend(_coverage_problems(tariff, src, at, report_gaps=report_gaps))
 
     day = tariff.billing_day
-    day_ok = not isinstance(day, bool) and isinstance(day, (int, np.integer)) and 1 <= int(day) <= 28
+    day_ok = _billing_day_ok(day)
     if not day_ok:
-        err("tariff.billing_day", day, "the day billing months start on must be 1-28 (every month has it)",
-            "the meter's read day, e.g. 15; 1 for calendar months")
+        err("tariff.billing_day", day, *_BILLING_DAY_RULE)
 
     # Clauses.
     neg_ok = tariff.allow_negative_prices
@@ -1009,6 +1008,14 @@ _CURRENCY_RE = re.compile(r"^[A-Z]{3}$")
 _TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "coincident_peak", "reactive",
              "leading", "taxes")
 _TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes", "billing_day")
+#: The rule and hint of a billing day out of range (the reader's and :func:`check_tariff`'s).
+_BILLING_DAY_RULE = ("the day billing months start on must be 1-28 (every month has it)",
+                     "the meter's read day, e.g. 15; 1 for calendar months")
+
+
+def _billing_day_ok(day: object) -> bool:
+    """Whether ``day`` is a whole number of 1-28: a day every month has."""
+    return not isinstance(day, bool) and isinstance(day, (int, np.integer)) and 1 <= int(day) <= 28
 _CALENDAR_KEYS = ("holidays",)
 _SEASON_KEYS = ("name", "months")
 _PERIOD_KEYS = ("code", "seasons", "days", "hours")
@@ -1467,9 +1474,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
     allow_negative = r.get(head, "allow_negative_prices", "tariff", "bool", default=False)
     notes = r.get(head, "notes", "tariff", "str", default="")
     billing_day = r.get(head, "billing_day", "tariff", "int", default=1)
-    if billing_day is not None and not 1 <= billing_day <= 28:
-        r.err("tariff.billing_day", billing_day, "the day billing months start on must be 1-28 (every month has it)",
-              "the meter's read day, e.g. 15; 1 for calendar months")
+    if billing_day is not None and not _billing_day_ok(billing_day):
+        r.err("tariff.billing_day", billing_day, *_BILLING_DAY_RULE)
         billing_day = None
 
     cal = r.table(data, "calendar", "") or {}
