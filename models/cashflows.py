@@ -159,6 +159,29 @@ class ProjectInputs:
         """Number of projects."""
         return len(np.atleast_1d(np.asarray(self.project_id, dtype=object)))
 
+    def take(self, rows: Any) -> "ProjectInputs":
+        """Return the inputs of the projects ``rows`` (positions), in that order.
+
+        Every per-project array is taken along its first axis; a value given once for all projects (a
+        scalar, or None) stays as it is.
+
+        Examples
+        --------
+        >>> p = ProjectInputs(project_id=["A", "B", "C"], savings_energy_per_yr=[1.0, 2.0, 3.0], option_life_yr=15.0)
+        >>> q = p.take([2, 0])
+        >>> q.project_id.tolist(), q.savings_energy_per_yr.tolist(), q.option_life_yr
+        (['C', 'A'], [3.0, 1.0], 15.0)
+        """
+        n = self.n_projects
+        rows = np.asarray(rows, dtype=np.intp)
+        values = {}
+        for name in self.__dataclass_fields__:
+            value = getattr(self, name)
+            if value is not None and np.ndim(value) >= 1 and len(value) == n:
+                value = np.asarray(value)[rows]
+            values[name] = value
+        return ProjectInputs(**values)
+
 
 @dataclass(frozen=True)
 class CashFlows:

@@ -221,3 +221,46 @@ def class_table(poles: int = 4, f_hz: int = 50) -> pd.DataFrame:
     ratings = np.array([0.75, 1.1, 1.5, 2.2, 3, 4, 5.5, 7.5, 11, 15, 18.5, 22, 30, 37, 45, 55, 75, 90, 110, 132, 160, 200])
     data = {name: min_efficiency_pct(ratings, poles, f_hz, name) for name in CLASSES}
     return pd.DataFrame(data, index=pd.Index(ratings, name="rated_p_kw"))
+
+
+#: IEC 60034-1 tolerance on a machine's declared efficiency, as the share of its losses by which a machine
+#: may fall short: 15 % up to this rating, 10 % above it (the break was at 50 kW in older editions; the
+#: 150 kW break is from memory) [kW].
+TOLERANCE_BREAK_KW = 150.0
+#: The two tolerance bands [frac of losses]: at or below :data:`TOLERANCE_BREAK_KW`, and above it.
+TOLERANCE_LOSSES_FRAC = (0.15, 0.10)
+
+
+def efficiency_tolerance_losses_frac(rated_p_kw) -> np.ndarray:
+    """Return the IEC 60034-1 tolerance on declared efficiency as a share of the machine's losses.
+
+    Parameters
+    ----------
+    rated_p_kw : array_like
+        Rated output [kW], > 0.
+
+    Returns
+    -------
+    numpy.ndarray
+        The share of the declared losses by which a machine's measured losses may exceed them and the
+        machine still meet its declared efficiency [frac]: 0.15 up to 150 kW, 0.10 above.
+
+    Notes
+    -----
+    The tolerance is written on efficiency as -x (1 - eta): a machine declared at eta may measure down to
+    eta - x (1 - eta), i.e. with losses up to (1 + x) times the declared losses (input taken as fixed by
+    the output: (1 - eta') P_in ~= (1 + x)(1 - eta) P_in).
+
+    References
+    ----------
+    .. [1] IEC 60034-1, *Rotating electrical machines - Part 1: Rating and performance*, table of
+       tolerances (efficiency). Geneva: IEC (values from memory; older editions break at 50 kW, as in
+       K. C. Agrawal, *Industrial Power Engineering and Applications Handbook*, Newnes, 2001, Table 11.9).
+
+    Examples
+    --------
+    >>> efficiency_tolerance_losses_frac([11.0, 150.0, 160.0]).tolist()
+    [0.15, 0.15, 0.1]
+    """
+    p = np.asarray(rated_p_kw, dtype=float)
+    return np.where(p <= TOLERANCE_BREAK_KW, TOLERANCE_LOSSES_FRAC[0], TOLERANCE_LOSSES_FRAC[1])

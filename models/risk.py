@@ -2,18 +2,18 @@
 
 Nothing here knows the physics. The tornado and break-even functions take any callable that maps a dict
 of input values to an array of NPVs. The Monte Carlo draws a set of fleet-wide factors (energy price,
-escalation, running hours, load, discount rate, capital cost, efficiency tolerance) from documented
-distributions with numpy's PCG64 generator, then re-prices the per-component cash flows of
-:mod:`models.cashflows` for every draw: each component is multiplied by its factors (savings by price,
-hours and load; capital by the capital multiplier), escalating components are re-escalated, the tax on
-savings is recomputed, and the yearly net flow is re-discounted at the drawn rate. Work is vectorised over
+escalation, running hours, load, discount rate, capital cost, new machines' losses within their efficiency
+tolerance) from documented distributions with numpy's PCG64 generator, then re-prices the per-component
+cash flows of :mod:`models.cashflows` for every draw: each component is multiplied by its factors (savings
+by price, hours and load; capital by the capital multiplier), escalating components are re-escalated, the
+tax on savings is recomputed, and the yearly net flow is re-discounted at the drawn rate. Work is vectorised over
 (draws, projects, years) in chunks of draws that bound memory. The summary gives P10/P50/P90 of NPV and
 payback and the probability that the NPV is positive, per project.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Literal, Mapping
 
 import numpy as np
@@ -38,6 +38,7 @@ TORNADO_LABELS = {
     "capital_mult": "Capital cost (x{low:g} to x{high:g})",
     "discount_rate_delta_frac": "Discount rate ({low_pct:+g} to {high_pct:+g} points)",
     "escalation_delta_frac": "Price escalation ({low_pct:+g} to {high_pct:+g} points/yr)",
+    "loss_band_delta_frac": "New machines' losses ({low_pct:+g} to {high_pct:+g} % of the IEC tolerance band)",
 }
 
 
@@ -216,9 +217,17 @@ class Distribution:
         return 0.5 * (self.a + self.b)
 
 
-#: Default factor distributions, drawn in this order. All are common practice (editable), except the
-#: efficiency tolerance band, which follows the IEC 60034-1 tolerance on efficiency (-15 % of (1 - eta)
-#: up to 150 kW, i.e. losses up to 15 % above the declared value; value from memory).
+#: The factor that places each new machine's losses within the IEC 60034-1 tolerance on its declared
+#: efficiency: -1 = the declared losses less the band, 0 = as declared, +1 = the band above (the most a
+#: machine may lose and still meet its declared efficiency) [frac of the band].
+LOSS_BAND_FACTOR = "loss_band_delta_frac"
+#: The flow the Monte Carlo adds to the cash flows for it: the energy savings the new machine would lose if
+#: its losses were the whole band above its declared losses (negative when the option installs a new
+#: machine), so that the draw's flows are the savings plus ``loss_band_delta_frac`` times it.
+LOSS_BAND_COMPONENT = "loss_band"
+
+#: Default factor distributions, drawn in this order. All are common practice (editable), except the new
+#: machines' losses, drawn across the IEC 60034-1 tolerance on efficiency (:data:`LOSS_BAND_FACTOR`).
 DEFAULT_FACTORS: dict[str, Distribution] = {
     "energy_price_mult": Distribution("lognormal", 1.0, 0.15, source="common practice: price level +/-15 % (1 sigma)"),
     "escalation_delta_frac": Distribution("normal", 0.0, 0.01, source="common practice: +/-1 %/yr on escalation"),
@@ -226,8 +235,10 @@ DEFAULT_FACTORS: dict[str, Distribution] = {
     "load_mult": Distribution("triangular", 0.85, 1.0, 1.15, source="common practice: +/-15 % on estimated load"),
     "discount_rate_delta_frac": Distribution("triangular", -0.02, 0.0, 0.02, source="common practice: +/-2 points"),
     "capital_mult": Distribution("triangular", 0.9, 1.0, 1.3, source="common practice: quotes -10 %, overruns +30 %"),
-    "loss_tolerance_frac": Distribution("uniform", 0.0, 0.15,
-                                        source="IEC 60034-1 efficiency tolerance, <= 150 kW (from memory)"),
+    "loss_band_delta_frac": Distribution(
+        "triangular", -1.0, 0.0, 1.0,
+        source="assumption: a new machine's losses fall either side of its declared value, by at most the "
+               "IEC 60034-1 tolerance (15 % of losses up to 150 kW, 10 % above; from memory)"),
 }
 
 
@@ -273,41 +284,6 @@ def draw_factors(n_draws: int, seed: int, distributions: Mapping[str, Distributi
     return {name: dist.draw(rng, int(n_draws)) for name, dist in distributions.items()}
 
 
-def savings_multiplier_from_loss_tolerance(loss_tolerance_frac: Any, new_losses_kw: Any, saved_losses_kw: Any
-                                           ) -> np.ndarray:
-    """Return the multiplier on energy savings when the new machine's losses exceed the declared value.
-
-    Parameters
-    ----------
-    loss_tolerance_frac : array_like
-        Drawn excess of the new machine's losses over the declared value [frac], shape (n_draws,).
-    new_losses_kw : array_like
-        Declared losses of the new machine at the operating point [kW], shape (n_projects,).
-    saved_losses_kw : array_like
-        Declared loss reduction (old minus new losses) [kW], shape (n_projects,).
-
-    Returns
-    -------
-    numpy.ndarray
-        Multiplier [-], shape (n_draws, n_projects); 1 where no loss is saved.
-
-    Notes
-    -----
-    Savings scale with the loss reduction: (L_old - L_new (1 + x)) / (L_old - L_new) =
-    1 - x L_new / Delta L.
-
-    Examples
-    --------
-    >>> savings_multiplier_from_loss_tolerance([0.1], [1.0], [0.5]).tolist()
-    [[0.8]]
-    """
-    x = np.asarray(loss_tolerance_frac, dtype=float)[:, None]
-    new = np.asarray(new_losses_kw, dtype=float)[None, :]
-    saved = np.asarray(saved_losses_kw, dtype=float)[None, :]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(saved > 0, 1.0 - x * new / np.where(saved > 0, saved, 1.0), 1.0)
-
-
 # ---------------------------------------------------------------------------------------------------
 # Monte Carlo re-pricing of component cash flows
 # ---------------------------------------------------------------------------------------------------
@@ -349,8 +325,9 @@ def default_response(assumptions: FinanceAssumptions) -> dict[str, ComponentResp
         shield) scale with ``capital_mult``; energy savings with price, hours and load; demand savings
         with price and load; reactive savings with price and hours; energy, demand and reactive savings
         follow ``escalation_delta_frac``; fixed-charge and maintenance savings and incentives do not
-        change. Add an ``efficiency_savings_mult`` (see :func:`savings_multiplier_from_loss_tolerance`)
-        to the energy savings' multipliers to include the efficiency tolerance.
+        change. :data:`LOSS_BAND_COMPONENT` (the energy the new machines' losses would cost at the top of
+        their tolerance band, a flow the Monte Carlo adds to the cash flows) responds as the energy savings
+        do, times ``loss_band_delta_frac``.
     """
     taxable = set(TAXABLE_COMPONENTS)
     out = {name: ComponentResponse(("capital_mult",), taxable=name in taxable) for name in CAPITAL_COMPONENTS}
@@ -364,6 +341,8 @@ def default_response(assumptions: FinanceAssumptions) -> dict[str, ComponentResp
     for name, (component, factors) in bill.items():
         out[name] = ComponentResponse(factors, "escalation_delta_frac", assumptions.escalation_frac(component),
                                       taxable=True)
+    energy = out["savings_energy"]
+    out[LOSS_BAND_COMPONENT] = replace(energy, multipliers=(LOSS_BAND_FACTOR,) + energy.multipliers)
     out["savings_fixed"] = ComponentResponse(taxable=True)
     out["savings_maintenance"] = ComponentResponse(taxable=True)
     out["tax_savings"] = ComponentResponse()

@@ -18,12 +18,12 @@ import numpy as np
 import pandas as pd
 
 from models import cashflows as cf
-from models import end_of_life, finance, induction, plan, reactive_plan, risk
+from models import efficiency_classes, end_of_life, finance, induction, plan, reactive_plan, risk
 from models.bill_savings import (RATCHET_YEARS, SAVING_COMPONENTS, BillSavings, SiteSavings, meter_and_bills,
                                  site_setups)
 from models.case import usual_supply_hz
 from models.memory import retaining_memory
-from models.operation import (PHYSICS_THREADS, MemoryBudgets, OperatingResult, _BlockBuffers, _Merger,
+from models.operation import (LOSS_KINDS, PHYSICS_THREADS, MemoryBudgets, OperatingResult, _BlockBuffers, _Merger,
                               _SiteRecompute, default_budgets, kept_rows,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
 from models.options import capital_cost
@@ -34,6 +34,10 @@ from models.regulations import class_rank, minimum_class
 REPLACING_TECHNOLOGIES = ("rewind", "induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
 #: Life-cycle cost components (``lcc.csv``), in stacking order.
 LCC_COMPONENTS = ("capital", "residual", "running", "maintenance", "tax")
+#: Technologies that put a new machine in service, whose declared efficiency the IEC 60034-1 tolerance bounds
+#: (the Monte Carlo's ``loss_band_delta_frac``); a rewound motor and today's motor with a drive or a capacitor
+#: added have no declared efficiency of a new machine.
+LOSS_BAND_TECHNOLOGIES = ("induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
 #: Technologies added to today's motor, which stays in service (and keeps its own maintenance).
 ADD_ON_TECHNOLOGIES = ("add_drive", "capacitor")
 #: Planning horizon of the fleet plan when the budget list is empty [yr].
@@ -48,6 +52,8 @@ PAYBACK_TARGET_YR = 3.0
 TORNADO_RANGES = {
     "energy_price_mult": (0.8, 1.2), "hours_mult": (0.8, 1.1), "load_mult": (0.85, 1.15),
     "capital_mult": (0.9, 1.3), "discount_rate_delta_frac": (-0.02, 0.02), "escalation_delta_frac": (-0.01, 0.01),
+    # the new machines' losses from the declared less the tolerance band to the declared plus it
+    risk.LOSS_BAND_FACTOR: (-1.0, 1.0),
 }
 
 
@@ -151,6 +157,12 @@ class ScenarioResult:
         Present value of each row's bill savings (energy, demand, reactive and fixed charges, after tax on
         them) [currency], shape (n_rows,): what the plan takes off a reactive project's NPV for the share
         of its saving the rest of the plan already takes (:mod:`models.reactive_plan`).
+    cash_flows : models.cashflows.CashFlows or None
+        The rows' cash flows by component, what the Monte Carlo re-prices.
+    loss_band : models.cashflows.ProjectInputs or None
+        Per row, the energy savings its new machine would lose a year at the top of its efficiency's
+        tolerance band (and the base case's must-spend machine likewise), with the row's timing: the
+        Monte Carlo's flow for ``loss_band_delta_frac`` (:func:`_loss_band_cost_per_yr`).
     """
 
     physics: Physics
@@ -175,6 +187,7 @@ class ScenarioResult:
     plan_risk: pd.DataFrame = field(default_factory=pd.DataFrame, repr=False)
     plan_npv_draws: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
     cash_flows: cf.CashFlows | None = field(default=None, repr=False)
+    loss_band: cf.ProjectInputs | None = field(default=None, repr=False)
 
 
 def site_physics(case, index: pd.DatetimeIndex, capacitor_cost_per_kvar: float, chunk_assets: int | None = None,
@@ -568,6 +581,18 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                             np.broadcast_to(no_maintenance, (len(rows),) + no_maintenance.shape)], axis=2), 0.0),
     )
     flows = cf.build_cash_flows(inputs, assumptions)
+    band_cost = _loss_band_cost_per_yr(op, sav, rated, energy_saved)
+    loss_band = replace(
+        cf.ProjectInputs(project_id=project_ids), option_life_yr=inputs.option_life_yr,
+        baseline_life_yr=inputs.baseline_life_yr, existing_remaining_life_yr=inputs.existing_remaining_life_yr,
+        replace_at_failure=inputs.replace_at_failure,
+        # the option's machine at the top of its band, over the least repair of a failed motor (likewise)
+        savings_energy_per_yr=np.where(is_keep | is_least, 0.0, -(band_cost[rows, cols] - np.where(
+            over_least, band_cost[rows, least_pos], 0.0))),
+        # from the failure on, the base case's must-spend item, a new machine too, at the top of its own band
+        baseline_savings_per_yr=np.column_stack(
+            [np.where(replaces & (must_capex[rows] > 0) & ~(is_keep | is_least), -band_cost[rows, must_pos[rows]], 0.0)]
+            + [np.zeros(len(rows))] * (len(cf.SAVINGS_COMPONENTS) - 1)))
     # today's motor is the reference: its increment is zero by definition (as is the least that puts a failed
     # motor back in service, over itself: its flows cancel to rounding)
     amounts = flows.amounts.copy()
@@ -683,7 +708,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 step("end of life")
                 eol, rules = timed("end of life", eol_now)
                 step("risk")
-                tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d)
+                tornado_rows, risk_rows, fleet_draws, drawn = timed("risk", _risk, flows, assumptions, results, d,
+                                                                    loss_band)
                 step(PLAN_FINISHING)  # what a long run is waiting for once the risk is done
                 plan_frames = planned.result()
             except KeyboardInterrupt:
@@ -695,7 +721,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                 pool.shutdown(wait=True)  # (an error beside the plan waits for it, so nothing reads the rows after)
                 raise
             pool.shutdown(wait=True)
-            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv)
+            plan_risk = timed("risk", _plan_risk, flows, assumptions, results, plan_frames[0], d, drawn, bill_pv,
+                              loss_band)
             del drawn  # the best projects' draws: read by the plan's Monte Carlo only
         else:
             plan_frames = plan_now()
@@ -708,7 +735,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
                       float(assumptions.energy_price_factor))
     return ScenarioResult(phys, assumptions, results, cash, lcc_frame, plan_frames[0], plan_frames[1], plan_frames[2],
                           plan_frames[3], eol, rules, tornado_rows, risk_rows, bills, plan_frames[4], fleet_draws,
-                          capital_spend, bill_pv, *plan_risk, cash_flows=flows)
+                          capital_spend, bill_pv, *plan_risk, cash_flows=flows, loss_band=loss_band)
 
 
 def with_risk(result: ScenarioResult) -> ScenarioResult:
@@ -721,9 +748,10 @@ def with_risk(result: ScenarioResult) -> ScenarioResult:
     if result.cash_flows is None:
         raise ValueError("the result keeps no cash flows to re-price: run economics again with risk")
     d = float(result.assumptions.discount_rate_frac)
-    tornado_rows, risk_rows, draws, drawn = _risk(result.cash_flows, result.assumptions, result.results, d)
+    tornado_rows, risk_rows, draws, drawn = _risk(result.cash_flows, result.assumptions, result.results, d,
+                                                  result.loss_band)
     plan_tornado, plan_risk, plan_draws = _plan_risk(result.cash_flows, result.assumptions, result.results,
-                                                     result.plan, d, drawn, result.bill_saving_pv)
+                                                     result.plan, d, drawn, result.bill_saving_pv, result.loss_band)
     return replace(result, tornado=tornado_rows, risk=risk_rows, fleet_npv_draws=draws, plan_tornado=plan_tornado,
                    plan_risk=plan_risk, plan_npv_draws=plan_draws)
 
@@ -755,7 +783,8 @@ def _replan(case, previous: ScenarioResult, assumptions, settings: PlanSettings,
         plan_risk = (pd.DataFrame(), pd.DataFrame(), np.zeros(0))
         if previous.fleet_npv_draws.size or not previous.risk.empty:  # the previous result was run with risk
             plan_risk = _plan_risk(previous.cash_flows, assumptions, results, plan_frames[0],
-                                   float(assumptions.discount_rate_frac), bill_saving_pv=previous.bill_saving_pv)
+                                   float(assumptions.discount_rate_frac), bill_saving_pv=previous.bill_saving_pv,
+                                   loss_band=previous.loss_band)
     return replace(previous, assumptions=assumptions, plan=plan_frames[0], plan_greedy=plan_frames[1],
                    plan_comparison=plan_frames[2], abatement=plan_frames[3], bills=bills, plan_status=plan_frames[4],
                    plan_tornado=plan_risk[0], plan_risk=plan_risk[1], plan_npv_draws=plan_risk[2])
@@ -1218,17 +1247,45 @@ def _fleet_rules(case, options, assumptions, d, horizon, sav, op):
                                    power_unit=unit)
 
 
-def _risk(flows, assumptions, results, d):
+def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np.ndarray,
+                           energy_saved_kwh: np.ndarray) -> np.ndarray:
+    """Per asset and option, the energy savings lost in a year if the option's new machine had the most losses
+    its efficiency's tolerance allows [currency/yr], shape (n_assets, n_options): 0 where the option puts no
+    new machine in service (:data:`LOSS_BAND_TECHNOLOGIES`).
+
+    The machine's declared losses in the year (its own and, for a wound-field machine, its excitation's; a
+    drive's losses have a standard of their own and are left out) times the IEC 60034-1 band
+    (:func:`models.efficiency_classes.efficiency_tolerance_losses_frac`), priced at the site's mean price of
+    the energy the run saves: the energy savings over the kWh saved of the site's options that save both
+    (the energy charges with their taxes, at the times of use the motors run). A site with no such option
+    takes the fleet's mean; a fleet with none prices the band at 0.
+    """
+    kinds = list(LOSS_KINDS)
+    declared = op.losses_kwh[:, :, kinds.index("motor")] + op.losses_kwh[:, :, kinds.index("excitation")]
+    new = np.isin(op.technologies.astype(str), LOSS_BAND_TECHNOLOGIES)[None, :] & op.applies
+    saving = sav.saving[:, :, 0]
+    both = op.applies & (saving > 0) & (energy_saved_kwh > 0)
+    both[:, 0] = False
+    codes, sites = pd.factorize(pd.Series(op.site_ids).astype(str))
+    money = np.bincount(codes, weights=np.where(both, saving, 0.0).sum(axis=1), minlength=len(sites))
+    kwh = np.bincount(codes, weights=np.where(both, energy_saved_kwh, 0.0).sum(axis=1), minlength=len(sites))
+    fleet = money.sum() / kwh.sum() if kwh.sum() > 0 else 0.0
+    price = np.where(kwh > 0, money / np.where(kwh > 0, kwh, 1.0), fleet)[codes]
+    band = efficiency_classes.efficiency_tolerance_losses_frac(rated_p_kw)
+    return np.where(new, band[:, None] * np.where(new, declared, 0.0) * price[:, None], 0.0)
+
+
+def _risk(flows, assumptions, results, d, loss_band=None):
     """Tornado of the fleet NPV of each asset's best option, a seeded Monte Carlo per best project, and
     the fleet NPV of each draw (the projects' NPVs of one draw share that draw's factors, so they add); the
     fourth value is the Monte Carlo's draws of those rows ((rows, MonteCarloResult), or None), which the
     plan's Monte Carlo reads for the projects it shares with them."""
     best = np.flatnonzero(results["best_for_asset"].to_numpy() & (results["capital"].to_numpy() > 0))
-    return _risk_of_rows(flows, assumptions, best, d)
+    return _risk_of_rows(flows, assumptions, best, d, loss_band=loss_band)
 
 
 def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None, offset=None, known=None,
-                  bill_share=None):
+                  bill_share=None, loss_band=None):
     """Tornado, Monte Carlo summary per project and portfolio NPV per draw of the projects ``rows`` (rows
     of ``flows``), each started ``start_yr`` years into the portfolio with ``offset`` added to its NPV
     (:func:`models.risk.portfolio_npv`; default: all at once, nothing added), and (rows, the Monte Carlo's
@@ -1241,6 +1298,11 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     ``bill_share``: per project, the share of its bill savings (:data:`models.reactive_plan.BILL_SAVING_COMPONENTS`)
     it keeps (default 1 for all): a project kept below 1 is drawn with those savings scaled, so the part the
     rest of a plan takes moves with each draw's prices, rates and tax like the savings themselves.
+
+    ``loss_band``: :attr:`ScenarioResult.loss_band` of the rows of ``flows``; its flows (the energy savings
+    lost at the top of each new machine's tolerance band) join the re-priced components as
+    :data:`models.risk.LOSS_BAND_COMPONENT`, scaled by the draw's ``loss_band_delta_frac``. None leaves
+    the tolerance out.
     """
     if not len(rows):
         return pd.DataFrame(), pd.DataFrame(), np.zeros(0), None
@@ -1252,10 +1314,15 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
 
     amounts = flows.amounts[rows]
+    if loss_band is not None:
+        band = cf.build_cash_flows(loss_band.take(rows), assumptions).component("savings_energy")
+        amounts = np.concatenate([amounts, band[:, :, None]], axis=2)
+        names = tuple(names) + (risk.LOSS_BAND_COMPONENT,)
     shared = np.ones(len(rows)) if bill_share is None else np.asarray(bill_share, dtype=float)
     scaled = np.flatnonzero(shared != 1.0)
     if len(scaled):
-        bill_columns = [names.index(name) for name in reactive_plan.BILL_SAVING_COMPONENTS if name in names]
+        bill_columns = [names.index(name) for name in reactive_plan.BILL_SAVING_COMPONENTS + (risk.LOSS_BAND_COMPONENT,)
+                        if name in names]
         amounts = amounts.copy()
         amounts[np.ix_(scaled, np.arange(amounts.shape[1]), bill_columns)] *= shared[scaled, None, None]
 
@@ -1294,7 +1361,8 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     return tornado_rows, summary, np.asarray(draws, dtype=float), (rows, mc)
 
 
-def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, known=None, bill_saving_pv=None):
+def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, known=None, bill_saving_pv=None,
+               loss_band=None):
     """Tornado, Monte Carlo summary per project and plan NPV per draw (at the plan's start) of the exact plan.
 
     Each project keeps the value the plan gave it: its NPV less the share of its bill saving the rest of
@@ -1322,7 +1390,8 @@ def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, 
         share[by_share] = 1.0 + offset[by_share] / pv[by_share]  # offset = -(1 - r) x PV
         offset = np.where(by_share, 0.0, offset)
     start = plan_frame["start_yr"].to_numpy(dtype=float)
-    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset, known, share)
+    tornado_rows, summary, draws, _ = _risk_of_rows(flows, assumptions, rows, d, start, offset, known, share,
+                                                    loss_band)
     if not summary.empty:
         summary.insert(1, "start_yr", plan_frame["start_yr"].to_numpy(dtype=int))
     return tornado_rows, summary, draws

@@ -7,7 +7,8 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
-from models.efficiency_classes import class_of_efficiency, efficiency_basis, min_efficiency_pct
+from models.efficiency_classes import (class_of_efficiency, efficiency_basis, efficiency_tolerance_losses_frac,
+                                       min_efficiency_pct)
 
 TABLE_50HZ = Path(__file__).parent / "data" / "iec_60034_30_1_table_50hz.csv"
 
@@ -170,3 +171,14 @@ def test_a_medium_voltage_motor_is_outside_the_rules_and_its_new_options_are_cau
     flags = operate(small).flags
     cautioned = set(flags.loc[flags["flag"] == MEDIUM_VOLTAGE_TEXT, "asset_id"])
     assert cautioned == {"C1"}
+
+
+def test_the_tolerance_on_declared_efficiency_is_a_share_of_the_losses():
+    # IEC 60034-1 tolerance on efficiency: -15 % of (1 - eta) up to 150 kW, -10 % above (the 150 kW break of
+    # newer editions is from memory; older editions break at 50 kW: K. C. Agrawal, Industrial Power
+    # Engineering and Applications Handbook, Table 11.9).
+    assert_allclose(efficiency_tolerance_losses_frac([0.75, 50.0, 150.0, 150.5, 1000.0, 5000.0]),
+                    [0.15, 0.15, 0.15, 0.10, 0.10, 0.10], rtol=0, atol=0)
+    # Hand calculation: a 93.0 % motor at the 15 % band measures down to 93.0 - 0.15 x 7.0 = 91.95 %.
+    eta = 0.930
+    assert_allclose(eta - efficiency_tolerance_losses_frac(11.0) * (1 - eta), 0.9195, rtol=1e-12)

@@ -90,10 +90,23 @@ class TestDraws:
         with pytest.raises(ValueError, match="n_draws"):
             risk.draw_factors(0, seed=1)
 
-    def test_loss_tolerance_multiplier(self):
-        # Hand: 1 - 0.1 x 1.0 / 0.5 = 0.8; no saving -> 1.
-        out = risk.savings_multiplier_from_loss_tolerance([0.1], [1.0, 1.0], [0.5, 0.0])
-        assert_allclose(out, [[0.8, 1.0]], rtol=1e-14)
+    def test_the_loss_band_is_drawn_either_side_of_the_declared_losses(self):
+        # Our assumption (docs/finance.md): a new machine's losses fall either side of the declared value, by
+        # at most the IEC 60034-1 band: triangular -1 / 0 / +1 of the band, mean 0 (the run's NPV at P50).
+        band = risk.DEFAULT_FACTORS[risk.LOSS_BAND_FACTOR]
+        assert (band.kind, band.a, band.b, band.c) == ("triangular", -1.0, 0.0, 1.0)
+        draws = risk.draw_factors(20000, seed=3)[risk.LOSS_BAND_FACTOR]
+        assert draws.min() >= -1.0 and draws.max() <= 1.0
+        # the mean of 20,000 draws of a triangular(-1, 0, 1) (sd 1/sqrt(6) = 0.408): within 4 standard errors
+        assert abs(draws.mean()) < 4 * 0.408 / np.sqrt(20000)
+
+    def test_the_loss_band_flow_responds_as_the_energy_savings_times_the_band(self):
+        a = FinanceAssumptions(escalation_energy_frac=0.03)
+        response = risk.default_response(a)
+        energy, band = response["savings_energy"], response[risk.LOSS_BAND_COMPONENT]
+        assert band.multipliers == (risk.LOSS_BAND_FACTOR,) + energy.multipliers
+        assert (band.escalation_delta, band.base_escalation_frac, band.taxable) == (
+            energy.escalation_delta, 0.03, True)
 
 
 class TestMonteCarlo:
@@ -277,3 +290,61 @@ class TestPortfolio:
     def test_an_empty_set_of_draws_is_refused(self):
         with pytest.raises(ValueError, match="no draws"):
             risk.distribution_summary([])
+
+
+class TestNewMachinesLossBand:
+    """The new machines' losses within the IEC 60034-1 tolerance on their declared efficiency, drawn in the
+    Monte Carlo (hand calculations in docs/derivations/finance-risk.md, section 7)."""
+
+    def test_the_yearly_cost_at_the_top_of_the_band(self):
+        from types import SimpleNamespace
+
+        from models import scenario
+
+        techs = np.array(["existing", "induction", "wound_field", "add_drive"], dtype=object)
+        saving = np.zeros((3, 4, 4))
+        saving[:, :, 0] = [[0, 1000, -200, 3000], [0, 2400, 500, 0], [0, -50, 0, 0]]
+        energy_saved = np.array([[0, 5000, -1000, 15000], [0, 10000, 0, 0], [0, -100, 0, 0]], dtype=float)
+        losses = np.zeros((3, 4, 3))  # (asset, option, motor / drive / excitation)
+        losses[0, 1] = [8000, 0, 0]
+        losses[0, 2] = [6000, 0, 1000]
+        losses[0, 3] = [9000, 2000, 0]
+        losses[1, 1] = [12000, 0, 0]
+        losses[1, 2] = [10000, 0, 3000]
+        losses[2, 1] = [3000, 0, 0]
+        losses[:, 0] = [[20000, 0, 0], [30000, 0, 0], [4000, 0, 0]]
+        applies = np.ones((3, 4), dtype=bool)
+        applies[2, 2] = False
+        op = SimpleNamespace(losses_kwh=losses, technologies=techs, applies=applies,
+                             site_ids=np.array(["S1", "S1", "S2"], dtype=object))
+        cost = scenario._loss_band_cost_per_yr(op, SimpleNamespace(saving=saving), np.array([100.0, 200.0, 50.0]),
+                                               energy_saved)
+        # Hand calculation (docs/derivations/finance-risk.md, section 7): price 6,400 / 30,000 EUR/kWh
+        assert_allclose(cost, [[0, 256.0, 224.0, 0], [0, 256.0, 277.333333, 0], [0, 96.0, 0, 0]], rtol=1e-6, atol=1e-12)
+
+    @pytest.mark.parametrize("tax_rate_frac, expected_difference", [(0.0, 371.149512), (0.25, 278.362134)])
+    def test_a_projects_draws_move_by_the_bands_present_value(self, monkeypatch, tax_rate_frac, expected_difference):
+        from models import scenario
+        from models.cashflows import build_cash_flows as build
+
+        a = FinanceAssumptions(horizon_yr=3, discount_rate_frac=0.10, tax_rate_frac=tax_rate_frac, monte_carlo_draws=3)
+        project = ProjectInputs(project_id=["M1/ie4"], capex_equipment=500.0, savings_energy_per_yr=1000.0,
+                                option_life_yr=20.0, existing_remaining_life_yr=1.0)
+        band = ProjectInputs(project_id=["M1/ie4"], savings_energy_per_yr=-100.0, option_life_yr=20.0,
+                             existing_remaining_life_yr=1.0, baseline_savings_per_yr=[[-40.0, 0, 0, 0, 0]])
+
+        def draws(n_draws, seed, distributions=risk.DEFAULT_FACTORS):
+            out = {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else 1.0) for name in distributions}
+            out[risk.LOSS_BAND_FACTOR] = np.array([1.0, -1.0, 0.0])
+            return out
+
+        monkeypatch.setattr(risk, "draw_factors", draws)
+        flows = build(project, a)
+        tornado, _, _, (_, mc) = scenario._risk_of_rows(flows, a, np.array([0]), 0.10, loss_band=band)
+        # Hand calculation (section 7): the draws at -1 and +1 of the band differ by twice its present value
+        assert_allclose(mc.npv[1, 0] - mc.npv[0, 0], expected_difference, rtol=1e-8)
+        # the draw at the declared losses is the project's own NPV (the band's flow is not in its cash flows)
+        without = scenario._risk_of_rows(flows, a, np.array([0]), 0.10)[3][1]
+        assert_allclose(mc.npv[2, 0], without.npv[2, 0], rtol=1e-12)
+        row = tornado.set_index("variable").loc[risk.LOSS_BAND_FACTOR]
+        assert_allclose(row["npv_at_low"] - row["npv_at_high"], expected_difference, rtol=1e-8)

@@ -441,14 +441,12 @@ def test_draws_at_every_factors_base_value_give_the_plans_own_total(result, demo
     from models import risk as risk_module
 
     def base_draws(n_draws, seed, distributions=risk_module.DEFAULT_FACTORS):
-        return {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else (0.0 if name == "loss_tolerance_frac"
-                                                                                else 1.0))
-                for name in distributions}
+        return {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else 1.0) for name in distributions}
 
     monkeypatch.setattr(risk_module, "draw_factors", base_draws)
     d = float(result.assumptions.discount_rate_frac)
     _, summary, draws = scenario._plan_risk(result.cash_flows, result.assumptions, result.results, result.plan, d,
-                                            bill_saving_pv=result.bill_saving_pv)
+                                            bill_saving_pv=result.bill_saving_pv, loss_band=result.loss_band)
     assert_allclose(draws, result.plan["npv_at_plan_start"].sum(), rtol=1e-9)
     assert_allclose(summary["npv_p50"], result.plan["npv"], rtol=1e-9)  # each project at its own start
 
@@ -461,8 +459,7 @@ def test_a_reactive_projects_plan_correction_moves_with_the_draws(result, monkey
     from models import risk as risk_module
 
     def priced_up(n_draws, seed, distributions=risk_module.DEFAULT_FACTORS):
-        out = {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else (0.0 if name == "loss_tolerance_frac"
-                                                                               else 1.0)) for name in distributions}
+        out = {name: np.full(n_draws, 0.0 if name.endswith("_delta_frac") else 1.0) for name in distributions}
         out["energy_price_mult"] = np.full(n_draws, 1.2)
         return out
 

@@ -24,8 +24,9 @@ SCOPE = "risk-scope"
 def layout(**_query):
     return html.Div([
         dcc.Store(id=READY, data=True),
-        ui.page_header("Uncertainty", "How far the answer moves when prices, hours, loads, capital and rates move: one "
-                                      "input at a time (tornado), then all together in a seeded Monte Carlo."),
+        ui.page_header("Uncertainty", "How far the answer moves when prices, hours, loads, capital, rates and the new "
+                                      "machines' losses (within their efficiency tolerance) move: one input at a time "
+                                      "(tornado), then all together in a seeded Monte Carlo."),
         ui.notice(NOTICE),
         html.Div([html.Label("Analyse", htmlFor=SCOPE),
                   dcc.RadioItems(id=SCOPE, options=[{"label": text, "value": key}

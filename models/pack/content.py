@@ -717,7 +717,9 @@ def asset_list_text(ids: list[str], limit: int = 8) -> str:
 
 
 #: The factors the Monte Carlo draws, in words (docs/finance.md, section 7).
-DRAWN_FACTORS_TEXT = "hours, load, prices and their escalation, the discount rate and capital"
+DRAWN_FACTORS_TEXT = (
+    "hours, load, prices and their escalation, the discount rate, capital and the new machines' losses within their "
+    "efficiency tolerance")
 
 
 @dataclass(frozen=True)
