@@ -30,6 +30,8 @@ DEFAULT_CLASS: dict[str, str] = {
 }
 #: Technologies that put a drive between the supply and the motor.
 DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
+#: New machines that run on the line (no drive of their own).
+LINE_FED_NEW_TECHNOLOGIES = ("induction", "line_start_pm", "wound_field")
 #: Technologies that replace the machine (and so change its speed, losses and power factor).
 NEW_MACHINE_TECHNOLOGIES = ("induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
 #: Plain names of the option technologies and speed remedies, for the reader of a page or a report.
@@ -94,6 +96,13 @@ def check_options(checker) -> pd.DataFrame:
                         f"use {', '.join(sorted(known_apps))} separated by |")
     for i in np.flatnonzero((tech == "induction") & ~frame["efficiency_class"].isin(["IE2", "IE3", "IE4", "IE5"]).to_numpy()):
         checker.err(i, "efficiency_class", frame["efficiency_class"].iloc[i], "a new induction motor needs an efficiency class")
+    line_fed = np.isin(tech, LINE_FED_NEW_TECHNOLOGIES) & (frame["speed_remedy"] == "speed_control").to_numpy()
+    for i in np.flatnonzero(line_fed):
+        checker.err(i, "speed_remedy", "speed_control",
+                    f"a {technology_name(tech[i])} runs on the line: it has no drive to set its speed",
+                    "use trim_or_pulley (the driven machine is matched to the new speed) or none (the load follows "
+                    "the speed); for speed control choose a drive technology (pm_drive, reluctance_drive, add_drive). "
+                    "A motor whose drive is already fitted keeps it, whatever the remedy")
     for i in np.flatnonzero(np.isin(tech, DRIVE_TECHNOLOGIES) & (frame["drive_cost_coef"].to_numpy() <= 0)):
         checker.warn(i, "drive_cost_coef", frame["drive_cost_coef"].iloc[i], "a drive option with no drive cost")
     for i in np.flatnonzero((tech == "capacitor") & (frame["capacitor_cost_per_kvar"].to_numpy() <= 0)):
@@ -239,6 +248,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     exclude((tech == "add_drive") & (load_type == "constant_torque") & (control == "fixed"),
             "a drive on a fixed-speed constant-torque load only adds losses")
     exclude((tech == "line_start_pm") & (control == "drive"), "speed is drive-controlled: a PM motor on the drive fits better")
+    exclude((tech == "wound_field") & (control == "drive"),
+            "speed is drive-controlled: a wound-field machine on the line would lose the speed control")
     exclude(np.isin(tech, ["rewind", "capacitor"]) & (machine != "induction"), "applies to induction motors only")
     exclude((tech == "capacitor") & (control == "drive"), "never fit capacitors on a drive output")
     if region is not None and n_a and (tech == "induction").any():

@@ -26,7 +26,7 @@ from models.memory import retaining_memory
 from models.operation import (LOSS_KINDS, PHYSICS_THREADS, MemoryBudgets, OperatingResult, _BlockBuffers, _Merger,
                               _SiteRecompute, default_budgets, kept_rows,
                               options_with_baseline, case_index, interval_bytes, site_blocks, site_case, site_partition)
-from models.options import capital_cost
+from models.options import NEW_MACHINE_TECHNOLOGIES, capital_cost
 from models.plan import plan_choice, project_labels
 from models.regulations import class_rank, minimum_class
 
@@ -34,10 +34,6 @@ from models.regulations import class_rank, minimum_class
 REPLACING_TECHNOLOGIES = ("rewind", "induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
 #: Life-cycle cost components (``lcc.csv``), in stacking order.
 LCC_COMPONENTS = ("capital", "residual", "running", "maintenance", "tax")
-#: Technologies that put a new machine in service, whose declared efficiency the IEC 60034-1 tolerance bounds
-#: (the Monte Carlo's ``loss_band_delta_frac``); a rewound motor and today's motor with a drive or a capacitor
-#: added have no declared efficiency of a new machine.
-LOSS_BAND_TECHNOLOGIES = ("induction", "line_start_pm", "pm_drive", "reluctance_drive", "wound_field")
 #: Technologies added to today's motor, which stays in service (and keeps its own maintenance).
 ADD_ON_TECHNOLOGIES = ("add_drive", "capacitor")
 #: Planning horizon of the fleet plan when the budget list is empty [yr].
@@ -1251,7 +1247,8 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
                            energy_saved_kwh: np.ndarray) -> np.ndarray:
     """Per asset and option, the energy savings lost in a year if the option's new machine had the most losses
     its efficiency's tolerance allows [currency/yr], shape (n_assets, n_options): 0 where the option puts no
-    new machine in service (:data:`LOSS_BAND_TECHNOLOGIES`).
+    new machine in service (:data:`models.options.NEW_MACHINE_TECHNOLOGIES`: a rewound motor and today's
+    motor with a drive or a capacitor added have no declared efficiency of a new machine).
 
     The machine's declared losses in the year (its own and, for a wound-field machine, its excitation's; a
     drive's losses have a standard of their own and are left out) times the IEC 60034-1 band
@@ -1262,7 +1259,7 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     """
     kinds = list(LOSS_KINDS)
     declared = op.losses_kwh[:, :, kinds.index("motor")] + op.losses_kwh[:, :, kinds.index("excitation")]
-    new = np.isin(op.technologies.astype(str), LOSS_BAND_TECHNOLOGIES)[None, :] & op.applies
+    new = np.isin(op.technologies.astype(str), NEW_MACHINE_TECHNOLOGIES)[None, :] & op.applies
     saving = sav.saving[:, :, 0]
     both = op.applies & (saving > 0) & (energy_saved_kwh > 0)
     both[:, 0] = False

@@ -1483,3 +1483,46 @@ class TestRowNumbers:
 
         with pytest.raises(IndexError):
             RowNumbers(2, 10)[key]
+
+
+class TestSpeedControlNeedsADrive:
+    """The speed remedy "speed_control" holds the speed with a drive: only the drive technologies have one. A
+    line-fed new machine given it would be a drive with no cost, no losses and no power factor of its own."""
+
+    def test_a_line_fed_option_with_speed_control_is_refused(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        shipped = (ROOT / "data" / "defaults" / "options.csv").read_text(encoding="utf-8").splitlines()
+        rows = [line if not line.startswith("lspm_trim,") else line.replace(",trim_or_pulley,", ",speed_control,", 1)
+                for line in shipped]
+        assert rows != shipped  # the shipped catalogue has a line-start PM row with an impeller trim
+        (folder / "options.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+        case, problems = load_case(folder)
+        assert case is None
+        found = _find(problems, file="options.csv", column="speed_remedy", text="runs on the line")
+        assert "line-start PM motor" in found.rule and "pm_drive" in found.hint
+
+    def test_the_shipped_catalogue_gives_speed_control_to_drives_only(self):
+        shipped = pd.read_csv(ROOT / "data" / "defaults" / "options.csv", comment="#")
+        with_control = set(shipped.loc[shipped["speed_remedy"] == "speed_control", "technology"])
+        assert with_control and with_control <= {"pm_drive", "reluctance_drive", "add_drive"}
+
+
+def test_no_line_fed_synchronous_machine_where_a_drive_sets_the_speed():
+    # Pumps on a drive: a line-start PM (55 kW, within its catalogue range) or a wound-field machine (630 kW)
+    # on the line would lose the speed control; the same pumps throttled are offered both.
+    from models.options import applicability
+
+    case, _ = load_case(ROOT / "data" / "demo")
+    sizes, control = [55.0, 55.0, 630.0, 630.0], ["drive", "throttle"] * 2
+    assets = pd.DataFrame({"rated_p_kw": sizes, "poles": [4] * 4, "application": ["pump"] * 4,
+                           "load_type": ["centrifugal"] * 4, "speed_control": control,
+                           "machine_type": ["induction"] * 4, "rated_v_v": [400.0, 400.0, 690.0, 690.0]})
+    applies, reason = applicability(case.options, assets, "EU")
+    tech = case.options["technology"].to_numpy(dtype=object)
+    for t, (on_drive, throttled) in (("line_start_pm", (0, 1)), ("wound_field", (2, 3))):
+        cols = np.flatnonzero(tech == t)
+        assert len(cols) and applies[throttled, cols].any(), t
+        assert not applies[on_drive, cols].any(), t
+        assert all(r.startswith("speed is drive-controlled") for r in reason[on_drive, cols]), reason[on_drive, cols]
+    pm_drive = np.flatnonzero(tech == "pm_drive")
+    assert applies[0, pm_drive].all()  # the synchronous choice on a drive
