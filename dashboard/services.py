@@ -46,7 +46,7 @@ from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
 from models.case import default_value, load_case, power_label, rating_in_unit
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
-from models.plan import low_data_quality, option_labels
+from models.plan import low_data_quality, option_labels, plan_capital_spent
 from models.problems import Problem, error, has_errors, missing_table, ordered
 from models.profiles import asset_loads
 from models.wording import counted, money_text
@@ -1688,12 +1688,16 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     budgets = list(result.assumptions.budget_per_yr)
     years = max([len(budgets)] + [int(f["start_yr"].max()) + 1 for f in out.values() if len(f)] + [1])
     rows = []
+    later = {}
     for name, f in out.items():
-        by_year = f.groupby("start_yr")["capital"].sum() if len(f) else pd.Series(dtype=float)
+        # capital in the plan year it is spent, as the budgets count it (a motor replaced at failure the year
+        # it is expected to fail); what falls after the plan years is kept apart
+        by_year, later[name] = plan_capital_spent(f, result.results, result.capital_spend_by_year, years)
         for y in range(years):
-            rows.append({"plan": name, "start_yr": y, "capital": float(by_year.get(y, 0.0)),
+            rows.append({"plan": name, "start_yr": y, "capital": float(by_year[y]),
                          "budget": budgets[y] if y < len(budgets) else np.nan})
     out["by_year"] = pd.DataFrame(rows)
+    out["capital_later"] = later
     exact_keys, greedy_keys = set(scenario.project_labels(out["exact"])), set(scenario.project_labels(out["rank_order"]))
     diff = []
     for name, f, other in (("exact only", out["exact"], greedy_keys), ("rank order only", out["rank_order"], exact_keys)):

@@ -836,6 +836,38 @@ def plan_spend_by_year(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_
     return by_year, float(spend.sum() - by_year.sum())
 
 
+def plan_capital_spent(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_spend_by_year: np.ndarray | None,
+                       n_years: int) -> tuple[np.ndarray, float]:
+    """A plan's gross capital spent in each of its first ``n_years`` plan years, and after them [currency].
+
+    As :func:`plan_spend_by_year` (the year the budgets count it: a motor replaced when it fails is bought
+    in the plan year it is expected to fail, not the year its project enters the plan; repeat purchases
+    within the horizon fall after the plan years). Without the capital by project year
+    (``capital_spend_by_year`` None) each project's ``capital`` counts in its start year.
+
+    Examples
+    --------
+    >>> res = pd.DataFrame({"asset_id": ["A"], "option_id": ["x"]})
+    >>> plan = pd.DataFrame({"asset_id": ["A"], "option_id": ["x"], "start_yr": [0], "capital": [5.0]})
+    >>> by_year, later = plan_capital_spent(plan, res, np.array([[0.0, 0.0, 5.0]]), 2)
+    >>> by_year.tolist(), later
+    ([0.0, 0.0], 5.0)
+    >>> by_year, later = plan_capital_spent(plan, res, None, 2)
+    >>> by_year.tolist(), later
+    ([5.0, 0.0], 0.0)
+    """
+    n_years = int(n_years)
+    if plan_frame is None or plan_frame.empty:
+        return np.zeros(n_years), 0.0
+    if capital_spend_by_year is not None:
+        return plan_spend_by_year(plan_frame, results, capital_spend_by_year, n_years)
+    start = plan_frame["start_yr"].to_numpy(dtype=int)
+    capital = plan_frame["capital"].to_numpy(dtype=float)
+    inside = (start >= 0) & (start < n_years)
+    return (np.bincount(start[inside], weights=capital[inside], minlength=n_years)[:n_years],
+            float(capital[~inside].sum()))
+
+
 def option_labels(frame: pd.DataFrame) -> dict[str, str]:
     """Option id -> the option's label in the options catalogue, from a table of projects with ``option_id``
     and ``label`` (e.g. the per-project results)."""

@@ -281,13 +281,51 @@ class TestLiveFormulas:
         assert sorted(plan["start_yr"]) == [0, 1]  # the budget splits the two projects over two years
         values = evaluate(plan_pack)
         ws = load_workbook(plan_pack)["Plan"]
-        header = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "By plan year") + 1
+        title = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "By plan year")
+        header = next(r for r in range(title, ws.max_row + 1) if ws.cell(r, 1).value == "Plan year")
         for r in range(header + 1, header + 3):
             year = ws.cell(r, 1).value
             expected = plan.loc[plan["start_yr"] == year, "capital"].sum()
             assert_allclose(as_float(values[("PLAN", f"C{r}")]), expected, rtol=1e-12)
             expected_npv = plan.loc[plan["start_yr"] == year, "npv_at_plan_start"].sum()
             assert_allclose(as_float(values[("PLAN", f"E{r}")]), expected_npv, rtol=RTOL)
+
+
+def test_a_plan_replaced_at_failure_counts_capital_in_the_year_it_is_spent(tmp_path):
+    """A motor replaced when it fails is bought in the plan year it is expected to fail: the Plan sheet's and the
+    report's capital by plan year stay within each year's budget (the plan solver's own rule), with what falls
+    after the budgeted years on a row of its own. Before, the whole capital showed in the project's start year."""
+    from models.pack.report_html import report_context
+
+    case = build_case(tmp_path / "case")
+    result = scenario.run(case, dataclasses.replace(case.finance, replacement_mode="replace_at_failure"),
+                          with_risk=False)
+    budgets = list(result.assumptions.budget_per_yr)
+    # independent path: the plan's capital rows of the long cash-flow table, project year t in plan year start + t
+    cf = result.cashflows
+    capital = cf[cf["component"].astype(str).str.startswith("capital_")].merge(
+        result.plan[["asset_id", "option_id", "start_yr"]], on=["asset_id", "option_id"])
+    plan_year = capital["start_yr"] + capital["year"]
+    expected = [-capital.loc[plan_year == y, "amount"].sum() for y in range(len(budgets))]
+    later = -capital.loc[plan_year >= len(budgets), "amount"].sum()
+    assert later > 0 and (result.plan["start_yr"] < len(budgets)).all()  # the small case has one such motor
+    assert sum(expected) < budgets[0] < result.plan.loc[result.plan["start_yr"] == 0, "capital"].sum()
+
+    out = tmp_path / "pack"
+    write_pack(case, result, out)
+    ws = load_workbook(out / WORKBOOK_NAME)["Plan"]
+    title = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "By plan year")
+    header = next(r for r in range(title, ws.max_row + 1) if ws.cell(r, 1).value == "Plan year")
+    got = [ws.cell(header + 1 + y, 3).value for y in range(len(budgets))]
+    assert_allclose(got, expected, rtol=1e-12, atol=1e-9)
+    assert all(g <= b + 1e-6 for g, b in zip(got, budgets))
+    assert ws.cell(header + 1 + len(budgets), 1).value == "later"
+    assert_allclose(ws.cell(header + 1 + len(budgets), 3).value, later, rtol=1e-12)
+
+    ctx = report_context(case, result, select_scope(case, result), [])
+    rows = [[c["text"] for c in r["cells"]] for r in ctx["plan_rows"]]
+    assert [r[0] for r in rows] == [str(y) for y in range(len(budgets))] + ["later"]
+    assert [float(r[2].replace(",", "")) for r in rows] == [round(v) for v in expected] + [round(later)]
 
 
 class TestInjectionGuard:

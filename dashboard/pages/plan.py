@@ -135,6 +135,9 @@ def update(_ready, session, edits, _proved=None):
     spend = " · ".join(f"year {int(r.start_yr)}: {ui.fmt_money(r.capital, c)}"
                        + (f" of {ui.fmt_money(r.budget, c)}" if r.budget == r.budget else "")
                        for r in exact.itertuples(index=False))
+    later = tables["capital_later"]["exact"]
+    if later > 0.005:  # motors replaced when they fail after the plan years, repeat purchases in the horizon
+        spend += f" · later: {ui.fmt_money(later, c)} (after the budgeted years)"
     name = services.plan_name(result)
     summary = [html.Span(f"{name[:1].upper() + name[1:]}: {len(tables['exact'])} projects, NPV {ui.fmt_money(comparison.get('npv_exact'), c)}; "
                          f"rank order: {len(tables['rank_order'])} projects, NPV {ui.fmt_money(comparison.get('npv_greedy'), c)} "

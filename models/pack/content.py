@@ -1082,3 +1082,9 @@ def rate_text(value: float, status: str = "unique") -> str:
         return "none"
     text = f"{value * 100:.1f} %"
     return text + " (several)" if status == "multiple" else text
+
+
+#: How the pack counts a plan's capital by plan year, in words.
+PLAN_SPEND_TEXT = ("Capital is counted in the plan year it is spent, as the budgets count it: a motor replaced when "
+                   "it fails is bought in the year it is expected to fail; \"later\" is what is spent after the "
+                   "budgeted years (replacements at failure, repeat purchases within the horizon).")

@@ -161,13 +161,15 @@ def monte_carlo(rows: pd.DataFrame, currency: str, limit: int = 25) -> go.Figure
     return _layout(fig, title, height=max(300, 80 + 24 * len(frame)))
 
 
-def plan_by_year(exact: pd.DataFrame, rank: pd.DataFrame, budgets: tuple[float, ...], currency: str) -> go.Figure:
-    """Capital per plan year of the exact and rank-order plans, with the budget."""
-    years = sorted(set(exact["start_yr"].astype(int)) | set(rank["start_yr"].astype(int)) | set(range(len(budgets))))
+def plan_by_year(exact: np.ndarray, rank: np.ndarray, budgets: tuple[float, ...], currency: str) -> go.Figure:
+    """Capital spent per plan year of the exact and rank-order plans (one value per plan year from 0, the
+    year it is spent: :func:`models.plan.plan_capital_spent`), with the budget."""
+    years = list(range(max(len(exact), len(rank), len(budgets))))
     fig = go.Figure()
-    for frame, name, colour in ((exact, "exact plan", COLOURS["exact"]), (rank, "rank-order plan", COLOURS["rank"])):
-        by_year = frame.groupby(frame["start_yr"].astype(int))["capital"].sum().reindex(years, fill_value=0.0)
-        fig.add_trace(go.Bar(x=[str(y) for y in years], y=by_year.to_numpy(), name=name, marker_color=colour))
+    for spent, name, colour in ((exact, "exact plan", COLOURS["exact"]), (rank, "rank-order plan", COLOURS["rank"])):
+        by_year = np.zeros(len(years))
+        by_year[:len(spent)] = spent
+        fig.add_trace(go.Bar(x=[str(y) for y in years], y=by_year, name=name, marker_color=colour))
     if budgets:
         fig.add_trace(go.Scatter(x=[str(y) for y in range(len(budgets))], y=list(budgets), mode="markers", name="budget",
                                  marker={"symbol": "line-ew-open", "size": 40, "line": {"width": 3},
@@ -175,7 +177,7 @@ def plan_by_year(exact: pd.DataFrame, rank: pd.DataFrame, budgets: tuple[float, 
     fig.update_layout(barmode="group")
     fig.update_xaxes(title_text="plan year", type="category")
     fig.update_yaxes(title_text=f"capital [{esc(currency)}]")
-    return _layout(fig, "Fleet plan: capital per plan year")
+    return _layout(fig, "Fleet plan: capital spent per plan year")
 
 
 def bills_before_after(bills: pd.DataFrame, currency: str) -> go.Figure:

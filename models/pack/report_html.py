@@ -18,7 +18,7 @@ from plotly.offline import get_plotlyjs
 
 from models.case import power_label, rating_in_unit
 from models.pack import content, figures, templates
-from models.plan import option_labels
+from models.plan import option_labels, plan_capital_spent
 from models.reactive_plan import withdrawn_text
 from models.scenario import plan_bill_saving_per_yr
 from models.wording import counted
@@ -217,17 +217,25 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     budgets = tuple(a.budget_per_yr)
     plan_rows = []
     years = sorted(set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int)) | set(range(len(budgets))))
+    n_plan_years = (max(years) + 1) if years else 0
+    spent = {name: plan_capital_spent(frame, result.results, result.capital_spend_by_year, n_plan_years)
+             for name, frame in (("exact", result.plan), ("greedy", result.plan_greedy))}
     for year in years:
         e = result.plan[result.plan["start_yr"].astype(int) == year]
         g = result.plan_greedy[result.plan_greedy["start_yr"].astype(int) == year]
         plan_rows.append(row([cell(year, "num"), num(budgets[year]) if year < len(budgets) else cell("no limit", "num na"),
-                              num(float(e["capital"].sum())), cell(len(e), "num"), num(float(e["npv_at_plan_start"].sum())),
-                              num(float(g["capital"].sum())), cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))
+                              num(float(spent["exact"][0][year])), cell(len(e), "num"),
+                              num(float(e["npv_at_plan_start"].sum())), num(float(spent["greedy"][0][year])),
+                              cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))
+    if spent["exact"][1] > 0.005 or spent["greedy"][1] > 0.005:  # replacements at failure, repeat purchases
+        plan_rows.append(row([cell("later", "num"), cell("not budgeted", "num na"), num(spent["exact"][1]), cell(""),
+                              cell(""), num(spent["greedy"][1]), cell(""), cell("")]))
     comp = result.plan_comparison
     withdrawn = withdrawn_text(result.plan_status, labels=labels)
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
-                 f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. The fleet plan covers the whole case; "
+                 f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. {content.PLAN_SPEND_TEXT} "
+                 f"The fleet plan covers the whole case; "
                  f"this pack covers {len(scope.asset_ids)} asset(s)."
                  + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else "")
                  + (" " + withdrawn if withdrawn else ""))
@@ -293,7 +301,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "tornado": chart(figures.tornado(unc.tornado, cur, plan=unc.of_plan), "tornado"),
         "monte_carlo": chart(figures.plan_npv_draws(result.plan_npv_draws, unc.plan_npv, cur) if unc.plan_npv is not None
                              else figures.monte_carlo(mc, cur), "monte-carlo"),
-        "plan": chart(figures.plan_by_year(result.plan, result.plan_greedy, budgets, cur), "plan"),
+        "plan": chart(figures.plan_by_year(spent["exact"][0], spent["greedy"][0], budgets, cur), "plan"),
         "bills": chart(figures.bills_before_after(result.bills, cur), "bills"),
     }
     scope_text = {"plan": f"the exact fleet plan ({len(scope.projects)} project(s) on {len(scope.asset_ids)} asset(s))",
@@ -320,8 +328,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "tornado_note": content.tornado_text(unc), "plan_npv_note": content.plan_npv_text(unc, cur),
         "mc_headers": mc_headers, "mc_rows": mc_rows, "mc_note": content.monte_carlo_text(unc),
         "mc_numeric": tuple(range(1, len(mc_headers))),
-        "plan_headers": ["Plan year", "Budget", "Exact: capital", "projects", "NPV at plan start", "Rank-order: capital",
-                         "projects", "NPV at plan start"],
+        "plan_headers": ["Plan year", f"Budget [{cur}]", f"Exact: capital spent [{cur}]", "projects started",
+                         f"NPV at plan start [{cur}]", f"Rank-order: capital spent [{cur}]", "projects started",
+                         f"NPV at plan start [{cur}]"],
         "plan_rows": plan_rows, "plan_numeric": tuple(range(8)), "plan_note": plan_note,
         **_scenario_context(case, result, cur),
         "register_headers": ["Category", "Item", "Detail", "Assets", "Response"], "register_rows": register_rows,

@@ -32,7 +32,7 @@ from models.case import default_value, power_label, rating_in_unit
 from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS, plan_with_savings
 from models.pack import content
-from models.plan import option_labels
+from models.plan import option_labels, plan_capital_spent
 from models.wording import line_item_text
 
 #: Sheet names, in workbook order.
@@ -786,11 +786,17 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
                    | set(range(len(result.assumptions.budget_per_yr))))
     put_text(ws, row, 1, "By plan year").font = _BOLD
     row += 1
-    _header(ws, row, ["Plan year", f"Budget [{cur}]", f"Exact: capital [{cur}]", "Exact: projects",
-                      f"Exact: NPV at plan start [{cur}]", f"Rank-order: capital [{cur}]", "Rank-order: projects",
-                      f"Rank-order: NPV at plan start [{cur}]", f"Exact: budget left [{cur}]"])
+    put_text(ws, row, 2, content.PLAN_SPEND_TEXT)
+    row += 1
+    _header(ws, row, ["Plan year", f"Budget [{cur}]", f"Exact: capital spent (engine) [{cur}]", "Exact: projects started",
+                      f"Exact: NPV at plan start [{cur}]", f"Rank-order: capital spent (engine) [{cur}]",
+                      "Rank-order: projects started", f"Rank-order: NPV at plan start [{cur}]",
+                      f"Exact: budget left [{cur}]"])
     top = row + 1
     budgets = list(result.assumptions.budget_per_yr)
+    n_plan_years = (max(years) + 1) if years else 0
+    spent = {name: plan_capital_spent(frame, result.results, result.capital_spend_by_year, n_plan_years)
+             for name, frame in (("Exact plan", result.plan), ("Rank-order plan", result.plan_greedy))}
     totals = np.zeros(9)
     for year in years:
         row += 1
@@ -803,14 +809,22 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         for k, name in enumerate(("Exact plan", "Rank-order plan")):
             a, b = ranges[name]
             base = 3 + 3 * k
-            capital, count, at_start = by_year[name].get(int(year), [0.0, 0, 0.0])
-            put_formula(ws, row, base, f"=SUMIF($A${a}:$A${b},A{row},$E${a}:$E${b})", f.money, capital)
+            _, count, at_start = by_year[name].get(int(year), [0.0, 0, 0.0])
+            capital = float(spent[name][0][int(year)])
+            put(ws, row, base, capital, f.money)
             put_formula(ws, row, base + 1, f"=COUNTIF($A${a}:$A${b},A{row})", value=count)
             put_formula(ws, row, base + 2, f"=SUMIF($A${a}:$A${b},A{row},$H${a}:$H${b})", f.money, at_start)
             totals[base:base + 3] += (capital, count, at_start)
-        left = (budgets[year] - by_year["Exact plan"].get(int(year), [0.0])[0]
+        left = (budgets[year] - float(spent["Exact plan"][0][int(year)])
                 if budget and year < len(budgets) else "" if not budget else None)
         put_formula(ws, row, 9, f'=IF(ISNUMBER(B{row}),B{row}-C{row},"")', f.money, left)
+    if spent["Exact plan"][1] > 0.005 or spent["Rank-order plan"][1] > 0.005:
+        row += 1
+        put_text(ws, row, 1, "later")
+        put_text(ws, row, 2, "not budgeted")
+        for k, name in enumerate(("Exact plan", "Rank-order plan")):
+            put(ws, row, 3 + 3 * k, float(spent[name][1]), f.money)
+            totals[3 + 3 * k] += float(spent[name][1])
     if years:
         row += 1
         put_text(ws, row, 1, "Total").font = _BOLD
