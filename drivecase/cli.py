@@ -21,7 +21,7 @@ one_heap()
 
 import pandas as pd  # noqa: E402
 
-from models.wording import counted  # noqa: E402
+from models.wording import PAYBACK_TEXT, counted  # noqa: E402
 
 CAUTION = ("Planning estimates only, not a design. Electrical work must be done by qualified persons under "
            "local codes and the utility's rules; confirm ratings with the manufacturers.")
@@ -735,9 +735,7 @@ def _print_run_summary(case, result) -> None:
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
                         "option or none)")
     if len(table):
-        print("  Simple payback: years from the outlay until the project's own cash flow is back at zero, after tax, "
-              "with the spend a failure of today's motor would force credited (docs/finance.md); not capital / "
-              "yearly saving")
+        print("  " + PAYBACK_TEXT.rstrip("."))
 
 
 def cmd_serve(args: argparse.Namespace) -> int:

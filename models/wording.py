@@ -97,3 +97,9 @@ def in_service_text(in_service_month: int | None, first_month: int | None = None
     if first_month is None:
         return "the analysis year's first month"
     return f"{MONTH_NAMES[int(first_month) - 1]} (the analysis year's first month)"
+
+
+#: What the simple payback of a project is, in words (the command line's tables and the pack say the same).
+PAYBACK_TEXT = ("Simple payback: years from the outlay until the project's own cash flow is back at zero, after tax, "
+                "with the spend a failure of today's motor would force credited (docs/finance.md); not capital / "
+                "yearly saving.")

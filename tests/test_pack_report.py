@@ -889,3 +889,22 @@ def test_a_repriced_projects_plan_flows_discount_to_its_plan_npv_under_an_income
         asset_id, option_id = label.split("/")
         own = npf.npv(finance.discount_rate_frac, content.plan_flows(result, asset_id, option_id))
         assert own == pytest.approx(float(plan.loc[(asset_id, option_id), "npv"]), abs=1.0), label
+
+
+def test_the_report_says_what_payback_is_and_which_figures_are_after_tax(small):
+    # A reader dividing capital by the yearly saving gets another number than the payback shown: the report
+    # says what the payback is, and, with a tax rate, that NPV, IRR and payback are after it and the savings
+    # before it.
+    from dataclasses import replace
+
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, result = small
+    scope = content.select_scope(case, result, None, True)
+    untaxed = report_context(case, result, scope, [])["measures_text"]
+    assert "not capital / yearly saving" in untaxed and "No tax rate is set: every figure is before tax" in untaxed
+    taxed = report_context(case, replace(result, assumptions=replace(result.assumptions, tax_rate_frac=0.25)), scope,
+                           [])["measures_text"]
+    assert "after the tax rate of the assumptions (25.0 % on the savings" in taxed
+    assert "the yearly savings are before tax" in taxed

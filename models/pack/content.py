@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from models import finance
+from models import finance, wording
 from models.bill_savings import REACTIVE_TECHNOLOGIES
 from models.cashflows import COMPONENTS
 from models.io import column_title
@@ -1088,3 +1088,13 @@ def rate_text(value: float, status: str = "unique") -> str:
 PLAN_SPEND_TEXT = ("Capital is counted in the plan year it is spent, as the budgets count it: a motor replaced when "
                    "it fails is bought in the year it is expected to fail; \"later\" is what is spent after the "
                    "budgeted years (replacements at failure, repeat purchases within the horizon).")
+
+
+def measures_text(assumptions) -> str:
+    """What the pack's money figures are: the payback's definition and, with a tax rate, which figures are after
+    tax (NPV, IRR and paybacks) and which before it (the yearly savings)."""
+    tax = float(getattr(assumptions, "tax_rate_frac", 0.0) or 0.0)
+    if tax > 0:
+        return (f"{wording.PAYBACK_TEXT} NPV, IRR and paybacks are after the tax rate of the assumptions ({100 * tax:.1f} % on the "
+                "savings, with the depreciation shield); the yearly savings are before tax.")
+    return f"{wording.PAYBACK_TEXT} No tax rate is set: every figure is before tax."

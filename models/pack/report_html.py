@@ -314,6 +314,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "decision_headers": ["Asset", "Description", "Recommended", "Plan year", f"Capital [{cur}]",
                              f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Simple payback [yr]", "CO2 [t/yr]", "Why"],
         "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
+        "measures_text": content.measures_text(a),
         "asset_headers": ["Asset", "Description", "Site", "Application", power_label(s.power_unit), "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),

@@ -110,6 +110,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <p>{{ summary_text }}</p>
 <h3>Decision per asset</h3>
 {{ table(decision_headers, decision_rows, decision_numeric) }}
+<p class="small">{{ measures_text }}</p>
 
 <h2 id="scope">2. Scope and assets</h2>
 {{ table(asset_headers, asset_rows, asset_numeric) }}
@@ -168,7 +169,7 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <ul class="cautions">{% for c in cautions %}<li>{{ c }}</li>{% endfor %}</ul>
 
 <h2 id="appendix">12. Appendix: options per asset, decision records and files</h2>
-<p class="small">IRR is the discount rate at which an option's NPV over keeping today's motor is zero. "none": no such rate exists (the savings never repay the capital, or there is no capital); "(several)": the flows change sign more than once and several rates solve it (the one closest to zero is shown); a negative IRR means the savings do not even repay the capital undiscounted.</p>
+<p class="small">IRR is the discount rate at which an option's NPV over keeping today's motor is zero. "none": no such rate exists (the savings never repay the capital, or there is no capital); "(several)": the flows change sign more than once and several rates solve it (the one closest to zero is shown); a negative IRR means the savings do not even repay the capital undiscounted. {{ measures_text }}</p>
 {% for a in appendix %}
 <h3>{{ a.title }}</h3>
 {{ table(appendix_headers, a.rows, appendix_numeric) }}
