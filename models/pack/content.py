@@ -1095,6 +1095,6 @@ def measures_text(assumptions) -> str:
     tax (NPV, IRR and paybacks) and which before it (the yearly savings)."""
     tax = float(getattr(assumptions, "tax_rate_frac", 0.0) or 0.0)
     if tax > 0:
-        return (f"{wording.PAYBACK_TEXT} NPV, IRR and paybacks are after the tax rate of the assumptions ({100 * tax:.1f} % on the "
-                "savings, with the depreciation shield); the yearly savings are before tax.")
+        return (f"{wording.PAYBACK_TEXT} NPV, IRR and paybacks are after the tax rate of the assumptions "
+                f"({100 * tax:.1f} % on the savings, with the depreciation shield); the yearly savings are before tax.")
     return f"{wording.PAYBACK_TEXT} No tax rate is set: every figure is before tax."
