@@ -1121,6 +1121,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     else:
         interval_rows, values, is_input, states, notes = asset_loads(block, index)
     groups = _load_groups(arr_all, existing_all, interval_rows, values, is_input, states, n_t, interval_h)
+    idle = _measured_below_no_load(groups, values, is_input, interval_h)
     del values
     # interval assets with long profiles: each option's curve on a grid of loads, interpolated per interval
     grids = {}
@@ -1158,6 +1159,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     running_h = np.zeros(n_a)
     cap_q = np.zeros((n_a, n_o))
     flags: list[dict] = [{"asset_id": r.asset_id, "option_id": "", "flag": r.note} for r in notes.itertuples(index=False)]
+    flags += [{"asset_id": a["asset_id"].iloc[i], "option_id": "", "flag": text} for i, text in idle]
     site_base: dict = {}  # the site's meter without its motors, once a wound-field machine asks for it
     asset_ids = a["asset_id"].to_numpy(dtype=object)
     site_ids = a["site_id"].to_numpy(dtype=object)
@@ -2249,6 +2251,33 @@ def _load_groups(arr_all, existing_all, interval_rows: np.ndarray, values, is_in
                                    states.duration_h_per_yr[rows_])
         groups.append((kind, rows_, arr, existing, load))
     return groups
+
+
+def _measured_below_no_load(groups: list[tuple], values: np.ndarray, is_input, interval_h: float
+                            ) -> list[tuple[int, str]]:
+    """Cautions for the assets whose measured input (a profile of kW at the motor) is above zero but not above
+    today's motor's no-load input in some intervals: the model reads no shaft load there, so the intervals count
+    as stopped and their measured energy is left out of every option. (block row, caution text) per asset."""
+    is_input = np.asarray(is_input, dtype=bool)
+    out = []
+    for kind, rows_, _arr, _existing, load in groups:
+        if kind != "interval" or not is_input.any():
+            continue
+        inputs = np.flatnonzero(is_input)
+        measured = values[inputs]
+        lost = (measured > 0.0) & ~load.running[inputs]
+        count = lost.sum(axis=1)
+        if not count.any():
+            continue
+        lost_kwh = np.where(lost, measured, 0.0).sum(axis=1) * interval_h
+        total_kwh = np.maximum(measured, 0.0).sum(axis=1) * interval_h
+        for k in np.flatnonzero(count):
+            n, kwh, total, i = int(count[k]), float(lost_kwh[k]), float(total_kwh[k]), inputs[k]
+            out.append((int(rows_[i]), f"measured input at or below today's motor's no-load input in {n:,} intervals "
+                                       f"({kwh:,.0f} kWh, {100 * kwh / total:.2g} % of the measured energy): counted as "
+                                       "stopped, so that energy is in no option (an idling motor reads as stopped); "
+                                       "check the logger's scaling and the nameplate"))
+    return out
 
 
 def _design_shaft_kw(case, assets: pd.DataFrame, arr, existing: induction.InductionParams) -> np.ndarray:

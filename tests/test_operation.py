@@ -269,3 +269,29 @@ def test_a_wound_field_machine_today_draws_no_kvar_and_options_save_none_against
     others = [o for o in range(len(r.option_ids)) if r.applies[i, o] and o != keep]
     assert others and all(r.lagging_kvarh[i, o] >= r.lagging_kvarh[i, keep] for o in others)
     assert not r.applies[i, r.option_position("capacitor")] and not r.applies[i, r.option_position("rewind")]
+
+
+def test_measured_input_below_the_no_load_input_is_named_not_dropped_silently(tmp_path):
+    # A logger reading 0.1 kW on a 15 kW motor (no-load input about 2-3 % of rating, common practice) cannot
+    # be turned into a shaft load: those intervals count as stopped. The asset is told how many and how much
+    # measured energy that leaves out. Hand count: the two measured days (Thursday 2 and Friday 3 January
+    # 2025) stand for their weekdays over the year; 2025 has 52 Thursdays, each with 5 hours at 0.1 kW:
+    # 260 intervals, 26 kWh.
+    from models.case import load_case
+    from models.operation import operate
+
+    folder = cb.write_case(tmp_path / "c")
+    rows = ["profile_id,timestamp,input_kw"]
+    for k in range(48):
+        day, hour = divmod(k, 24)
+        value = "0.1" if k < 5 else ("0" if k < 8 else "12")
+        rows.append(f"LP1,2025-01-{2 + day:02d} {hour:02d}:00,{value}")
+    (folder / "profiles.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    flags = operate(case).flags
+    hit = flags[(flags["asset_id"] == "P1") & flags["flag"].str.startswith("measured input at or below")]
+    assert len(hit) == 1 and hit["option_id"].iloc[0] == ""
+    text = hit["flag"].iloc[0]
+    assert "in 260 intervals (26 kWh, " in text and " % of the measured energy): counted as stopped" in text, text
+    assert not flags["flag"].str.startswith("measured input at or below").loc[flags["asset_id"] != "P1"].any()
