@@ -643,6 +643,69 @@ def _input_reactive_speed(params: InductionParams, shaft_p_kw: np.ndarray) -> tu
     return p_in.reshape(shape), q.reshape(shape), speed.reshape(shape)
 
 
+#: On a drive at constant flux: iron loss follows the stator frequency to this power (between hysteresis, to the
+#: first, and eddy-current loss, to the second; common practice, as for the synchronous machines on a drive).
+DRIVE_IRON_LOSS_FREQUENCY_EXPONENT = 1.5
+#: Lowest rotor speed share the drive-fed model divides by [-] (a motor that runs is never held slower).
+DRIVE_MIN_SPEED_FRAC = 0.05
+
+
+def input_on_drive_kw(params: InductionParams, shaft_p_kw, speed_frac):
+    """Input power of induction motors fed by a drive at constant flux, at a shaft power and rotor speed.
+
+    Parameters
+    ----------
+    params : InductionParams
+        Calibrated motors (:func:`calibrate_induction`), one per row.
+    shaft_p_kw : array_like
+        Shaft power [kW], >= 0, shape (n,) or (n, t).
+    speed_frac : array_like
+        Rotor speed as a share of the synchronous speed on the line [-], broadcastable to ``shaft_p_kw``
+        (at least :data:`DRIVE_MIN_SPEED_FRAC` is used).
+
+    Returns
+    -------
+    numpy.ndarray
+        Electrical input at the motor terminals, fundamental frequency [kW]: what the motor takes from the
+        drive's output.
+
+    Notes
+    -----
+    With the flux held (V/f constant), the electromagnetic torque per unit of the rated air-gap torque is
+    y = (P + P_fw phi) / (P_ag,r phi), where phi is the rotor speed share, and the slip speed is s_r y (of the
+    line's synchronous speed), so the stator frequency share is f = phi + s_r y. The losses of the line model
+    (docs/models-induction.md) then follow their causes instead of the shaft power:
+
+        P_in = P + P_fw phi + (A - P_fw) f^1.5 + B y^k + s_r P_ag,r y^2
+
+    friction with speed, iron loss with frequency to the power 1.5, stator copper and stray loss with the
+    torque as on the line, and rotor copper loss s' P_ag = (s_r y / f)(y P_ag,r f). At the line's own
+    frequency (f = 1) this is the line model but for the friction counted at the rotor's speed (a difference
+    of P_fw s, a few watts per kW of friction).
+
+    References
+    ----------
+    .. [1] A. E. Fitzgerald, C. Kingsley and S. D. Umans, *Electric Machinery*, 6th ed. New York:
+       McGraw-Hill, 2003: the induction machine's power flow, and its speed control by variable frequency
+       at constant flux (chapters from memory).
+
+    Examples
+    --------
+    A 1.0 kW loss split of a motor on its drive at half speed: hand calculation in
+    docs/derivations/induction-power-flow.md, "On a drive".
+    """
+    p = np.asarray(shaft_p_kw, dtype=float)
+    get = _aligned(params, "array", p.ndim)
+    _forbid(p < 0, "shaft_p_kw must not be negative")
+    phi = np.maximum(np.asarray(speed_frac, dtype=float), DRIVE_MIN_SPEED_FRAC)
+    p_fw, p_ag_r, s_r = get("friction_windage_kw"), get("rated_airgap_p_kw"), get("rated_slip_frac")
+    friction = p_fw * phi
+    y = (p + friction) / (p_ag_r * phi)
+    f = phi + s_r * y
+    iron = (get("loss_constant_kw") - p_fw) * f ** DRIVE_IRON_LOSS_FREQUENCY_EXPONENT
+    return p + friction + iron + get("loss_load_kw") * y ** get("loss_exponent") + s_r * p_ag_r * y * y
+
+
 def induction_speed_rpm(params: InductionParams, shaft_p_kw):
     """Shaft speed at a shaft load (the speed part of :func:`induction_operating_point`, cheaper).
 

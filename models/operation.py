@@ -472,8 +472,9 @@ def _induction_on_line(params, shaft_kw, running) -> _Point:
 
 
 def _induction_on_drive(arr, params, shaft_kw, speed_frac, running) -> _Point:
-    """An induction motor fed by a drive (today's drive, or one added)."""
-    p_in, _, _ = induction._input_reactive_speed(params, shaft_kw)
+    """An induction motor fed by a drive (today's drive, or one added): its losses at the drive's speed and
+    the shaft's torque (:func:`models.induction.input_on_drive_kw`), not at the line's frequency."""
+    p_in = np.asarray(induction.input_on_drive_kw(params, np.where(running, shaft_kw, 0.0), speed_frac), dtype=float)
     safe_speed = np.where(speed_frac > 0.05, speed_frac, 0.05)
     torque_frac = np.where(running, shaft_kw / arr["rated_p_kw"][:, None] / safe_speed, 0.0)
     s_kva = drives.drive_rated_s_kva_for_motor(arr["rated_p_kw"], arr["eff_frac"], arr["pf"])

@@ -629,3 +629,34 @@ class TestCoupledLoadCompiled:
                                        np.array([1500.0]))
         with pytest.raises(ValueError, match="did not converge"):
             im.coupled_load_kw(motor, np.array([[30.0]]), 1475.0, 3.0, max_iterations=1)
+
+
+class TestOnADrive:
+    """An induction motor on a drive at constant flux: losses at the drive's speed and the shaft's torque
+    (hand calculations in docs/derivations/induction-power-flow.md, "On a drive")."""
+
+    @staticmethod
+    def motor():
+        from models.induction import InductionParams
+
+        return InductionParams(rated_p_kw=[48.7], rated_efficiency_frac=[0.938], rated_power_factor=[0.85],
+                               sync_speed_rpm=[1500.0], rated_slip_frac=[0.02], rated_airgap_p_kw=[50.0],
+                               friction_windage_kw=[0.3], loss_constant_kw=[1.0], loss_load_kw=[1.2],
+                               loss_exponent=[2.0], q_constant_kvar=[10.0], q_load_kvar=[5.0], q_exponent=[2.0])
+
+    def test_half_speed(self):
+        from models.induction import input_on_drive_kw
+
+        got = input_on_drive_kw(self.motor(), np.array([[6.0]]), np.array([[0.5]]))
+        assert_allclose(got, [[6.534284]], rtol=2e-7)  # hand calculation
+        line = self.motor().operating_point(np.array([[6.0]])).p_in_kw
+        assert_allclose(line, [[7.035104]], rtol=2e-7)  # the line model at the same load (hand calculation)
+
+    def test_at_the_lines_frequency_it_is_the_line_model(self):
+        from models.induction import input_on_drive_kw
+
+        got = input_on_drive_kw(self.motor(), np.array([48.7]), np.array([0.98]))
+        assert_allclose(got, [51.893459], rtol=2e-7)  # hand calculation
+        line = self.motor().operating_point(np.array([48.7])).p_in_kw
+        assert_allclose(line, [51.9], rtol=1e-6)  # hand calculation: rated point
+        assert abs(got[0] - line[0]) < 0.0066  # the friction counted at the rotor's speed
