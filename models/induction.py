@@ -702,8 +702,11 @@ def input_on_drive_kw(params: InductionParams, shaft_p_kw, speed_frac):
     friction = p_fw * phi
     y = (p + friction) / (p_ag_r * phi)
     f = phi + s_r * y
-    iron = (get("loss_constant_kw") - p_fw) * f ** DRIVE_IRON_LOSS_FREQUENCY_EXPONENT
-    return p + friction + iron + get("loss_load_kw") * y ** get("loss_exponent") + s_r * p_ag_r * y * y
+    # (f^1.5 as f sqrt(f) and y^k through _power: element by element the same bits however the rows are
+    # blocked, which a vectorised power does not promise)
+    grown = f * np.sqrt(f) if DRIVE_IRON_LOSS_FREQUENCY_EXPONENT == 1.5 else f ** DRIVE_IRON_LOSS_FREQUENCY_EXPONENT
+    iron = (get("loss_constant_kw") - p_fw) * grown
+    return p + friction + iron + get("loss_load_kw") * _power(y, get("loss_exponent")) + s_r * p_ag_r * y * y
 
 
 def induction_speed_rpm(params: InductionParams, shaft_p_kw):

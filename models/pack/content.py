@@ -249,6 +249,14 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
             if pick["option_id"] == keep[asset_id] and failed:
                 reason = "it has failed, and the catalogue offers nothing that fits it"
                 short = "failed; no option fits"
+            elif pick["option_id"] == keep[asset_id] and not bool(pick["best_for_asset"]):
+                # the options worth more than today's motor priced alone are all reactive projects whose value the
+                # rest of the plan takes: keeping today's motor is what is left, not what is best alone
+                top = rows[rows["best_for_asset"]].iloc[0]
+                reason = (f"keep today's motor (not in the fleet plan: its highest-NPV option priced alone, "
+                          f"{top['label']}, is a reactive project whose value the rest of the plan at this site "
+                          "already takes, as is every other option worth more than today's motor)")
+                short = "today's motor: the plan's other projects take its options' reactive value"
             elif pick["option_id"] == keep[asset_id]:
                 reason = "no option beats keeping today's motor on NPV"
                 short = "nothing beats today's motor"
