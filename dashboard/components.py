@@ -293,15 +293,17 @@ def data_grid(component_id: str, height: int | str = 420, empty_text: str = "Not
 
 def scenario_columns(currency: str) -> list[dict]:
     """Columns of the scenario comparison grid (rows of :func:`models.comparison.compare`)."""
-    return [long_text_col("scenario", "Scenario", minWidth=180, flex=2),
+    # the scenario's name stays in view while the grid scrolls sideways (13 columns outgrow a projector's width);
+    # headers wrap between words, so each column is at least as wide as its longest word
+    return [long_text_col("scenario", "Scenario", minWidth=180, flex=2, pinned="left"),
             number_col("discount_rate_pct", "Discount rate [%]", 1, maxWidth=120),
-            number_col("escalation_energy_pct", "Energy price escalation [%/yr]", 1, maxWidth=130),
+            number_col("escalation_energy_pct", "Energy price escalation [%/yr]", 1, minWidth=130, maxWidth=150),
             number_col("horizon_yr", "Horizon [yr]", 0, maxWidth=100),
             number_col("energy_price_level_pct", "Electricity price level [%]", 0, maxWidth=130),
             number_col("capital_cost_level_pct", "Capital cost level [%]", 0, maxWidth=120),
             number_col("budget_total", f"Budget, all plan years [{currency}]", 0, valueFormatter={
                 "function": "(params.value == null || !isFinite(params.value)) ? 'no limit' : d3.format(',.0f')(params.value)"}),
-            long_text_col("replacement_mode", "Replacement timing", minWidth=130),
+            long_text_col("replacement_mode", "Replacement timing", minWidth=150),
             number_col("plan_capital", f"Plan capital [{currency}]", 0),
             number_col("yearly_saving_per_yr", f"Plan saving [{currency}/yr]", 0),
             number_col("plan_npv", f"Plan NPV [{currency}]", 0),

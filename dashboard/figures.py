@@ -379,10 +379,16 @@ def money_short(value: float, currency: str) -> str:
     --------
     >>> money_short(8424191.0, "EUR"), money_short(-48213.0, "EUR"), money_short(950.4, "EUR")
     ('EUR 8.42 M', 'EUR -48.2 k', 'EUR 950')
+    >>> money_short(81.59e9, "EUR"), money_short(7.1e16, "EUR")
+    ('EUR 81.59 bn', 'EUR 7.1e+16')
     """
     v = float(value)
     if not np.isfinite(v):
         return "-"
+    if abs(v) >= 1e12:  # beyond any fleet's money: a sign of an extreme assumption, kept short
+        return f"{currency} {v:.2g}"
+    if abs(v) >= 1e9:
+        return f"{currency} {v / 1e9:,.2f} bn"
     if abs(v) >= 1e6:
         return f"{currency} {v / 1e6:,.2f} M"
     if abs(v) >= 1e4:
@@ -614,6 +620,9 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
     names = [exact_name, "rank by profitability index"]
     values = [float(comparison.get("npv_exact", np.nan)), float(comparison.get("npv_greedy", np.nan))]
     counts = [comparison.get("projects_exact", np.nan), comparison.get("projects_greedy", np.nan)]
+    if all(np.isfinite(float(c)) and float(c) == 0 for c in counts):  # both plans known to be empty
+        return message_figure("Neither plan holds a project: no option with capital adds value under these "
+                              "assumptions and budgets.")
     fig = go.Figure(go.Bar(x=names, y=values, marker_color=[AFTER, BEFORE],
                            text=[f"{currency} {v:,.0f}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
                            textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))

@@ -812,19 +812,21 @@ PROVEN_SCENARIO_ASSETS = 2000
 def keep_scenario(view_: View, kept, name, edits) -> tuple[list | None, str]:
     """Add the tab's assumptions in force (``view_``, made with ``edits``) as a named scenario: (the new kept
     list, or None when refused; the message)."""
-    from models.comparison import BASE_NAME, MAX_NAME_CHARS
+    from models.comparison import BASE_NAME, MAX_NAME_CHARS, RUN_NAME, _folded
 
     text = str(name or "").strip()
     kept = [k for k in kept if isinstance(k, dict)] if isinstance(kept, list) else []
-    taken = {n for n, _ in getattr(view_.entry.case, "scenarios", ())} | {BASE_NAME}
+    taken = {n for n, _ in getattr(view_.entry.case, "scenarios", ())} | {BASE_NAME, RUN_NAME}
     taken |= {str(k.get("name", "")) for k in kept if isinstance(k.get("edits"), dict)
               and k["edits"].get("case") == view_.key}
     if not text:
         return None, "Not kept: give these assumptions a name."
     if len(text) > MAX_NAME_CHARS:
         return None, f"Not kept: a name is at most {MAX_NAME_CHARS} characters."
-    if text in taken:
-        return None, f"Not kept: '{text}' already names a scenario of this case."
+    alike = next((n for n in sorted(taken) if _folded(n) == _folded(text)), None)  # capitals and spaces aside
+    if alike is not None:
+        return None, (f"Not kept: '{text}' already names a scenario of this case." if alike == text else
+                      f"Not kept: '{text}' reads as '{alike}', a scenario of this case; give it a name of its own.")
     if not isinstance(edits, dict) or edits.get("case") != view_.key or view_.assumptions == view_.entry.case.finance:
         return None, "Not kept: these are the case's own assumptions (its first row). Change a field above first."
     return kept + [{"name": text, "edits": dict(edits)}], f"Kept '{text}' for this tab: it is compared below."
@@ -1035,6 +1037,8 @@ def _form_field_problem(name: str, value) -> str:
     try:
         number = float(value)
     except (TypeError, ValueError):
+        if isinstance(value, str) and re.fullmatch(r"[-+]?\d+,\d+\s*%?", value.strip()):
+            return f"{label}: enter a number with a decimal point ({value.strip().replace(',', '.')})."
         return f"{label}: enter a number."
     if not math.isfinite(number):
         return f"{label}: enter a finite number."
@@ -1053,9 +1057,22 @@ def assumption_notes(edits: dict | None) -> str:
     if not isinstance(edits, dict):
         return ""
     rate = edits.get("discount_rate_pct")
-    if rate is not None and float(rate) < 0.0:
-        return ("Applied. A negative discount rate values future savings above money today: check it is meant "
+    if rate is None:
+        return ""
+    rate = float(rate)
+    if rate < 0.0:
+        text = ("Applied. A negative discount rate values future savings above money today: check it is meant "
                 "(real rates below zero do occur when inflation exceeds interest).")
+        horizon = edits.get("horizon_yr")
+        if horizon is not None and rate > -100.0:
+            growth = (1.0 + rate / 100.0) ** -float(horizon)
+            if growth > 1e3:  # the last year's flows count a thousand times or more: figures without bound
+                text += (f" Over {float(horizon):g} years it counts the last year's flows {growth:,.3g} times: the "
+                         "figures grow without bound.")
+        return text
+    if 0.0 < rate < 1.0:  # a rate typed as a fraction ("0.08" for 8 %)
+        return (f"Applied as {rate:g} % a year. If you meant {rate * 100:g} %, type {rate * 100:g} (the field is "
+                "in percent).")
     return ""
 
 
@@ -1180,6 +1197,34 @@ def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
                    np.where(pays, "nothing: outside the budget",
                             np.where(none_fits, "nothing: no option of the catalogue applies (see the asset's page)", "")))
     return np.where(bought != "", bought, why).astype(object)
+
+
+def asset_choice_text(result, asset_id: str, currency: str) -> str:
+    """One line for an asset's page: its best option priced alone and what the budgeted plan buys for it
+    (the plan may buy another option, or nothing: then why), as the fleet table says it ("" when the
+    results hold no row for it)."""
+    res = result.results
+    rows = res[res["asset_id"].astype(str) == str(asset_id)]
+    best = rows[rows["best_for_asset"].to_numpy(dtype=bool)]
+    if best.empty:
+        return ""
+    top = best.iloc[0]
+    if str(top["technology"]) == "existing":
+        alone = "Priced alone, no option beats keeping today's motor."
+    else:
+        alone = f"Best option priced alone: {top['label']} (NPV {money_text(float(top['npv']), currency)})."
+    plan_rows = result.plan[result.plan["asset_id"].astype(str) == str(asset_id)] if len(result.plan) else result.plan
+    if len(plan_rows):
+        p = plan_rows.iloc[0]
+        label = rows.loc[rows["option_id"] == p["option_id"], "label"]
+        name = str(label.iloc[0]) if len(label) else str(p["option_id"])
+        bought = (f"The budgeted plan buys: {name}, in plan year {int(p['start_yr'])} "
+                  f"(capital {money_text(float(p['capital']), currency)}).")
+    else:
+        why = str(_plan_buys(result, best.iloc[:1], np.array([""], dtype=object))[0])
+        bought = ("The budgeted plan buys " + why.replace("nothing: ", "nothing for it: ", 1) + "."
+                  if why else "The budgeted plan buys nothing for it.")
+    return f"{alone} {bought}"
 
 
 def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:

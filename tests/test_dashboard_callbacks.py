@@ -635,7 +635,10 @@ def test_scenarios_side_by_side_keep_and_clear(engine):
     assert kept is no_update and message.startswith("Not kept: these are the case's own assumptions")
     edits = {"case": engine.default_key, "discount_rate_pct": 10.0}
     for name, refusal in (("", "give these assumptions a name"), ("Cheaper money", "already names a scenario"),
-                          (BASE_NAME, "already names a scenario")):
+                          (BASE_NAME, "already names a scenario"),
+                          # capitals and spaces aside, as the case reader compares names
+                          ("cheaper  MONEY", "reads as 'Cheaper money', a scenario of this case"),
+                          (BASE_NAME.lower(), f"reads as '{BASE_NAME}'")):
         kept, message, _ = inputs.keep_scenario(1, name, None, edits, None)
         assert kept is no_update and refusal in message
     kept, message, _ = inputs.keep_scenario(1, " Dearer money ", None, edits, None)
@@ -677,3 +680,10 @@ def test_a_large_fleet_s_scenarios_are_bounded_as_live_edits(engine, monkeypatch
     monkeypatch.setattr(services, "PROVEN_SCENARIO_ASSETS", 1)
     inputs.scenarios(True, None, None)
     assert asks and not any(asks)
+
+
+def test_an_address_naming_an_unknown_site_is_told_so(engine):
+    # the asset page already names an unknown asset in the address; the site page did not, and showed another
+    # site without a word
+    assert "The case has no site 'NOPE'; showing KGQ." in site.update("KGQ", None, None, None, "NOPE")[5]
+    assert "no site" not in (site.update("KGQ", None, None, None, "KGQ")[5] or "")

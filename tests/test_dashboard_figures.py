@@ -292,6 +292,11 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(fig.data[0].y, [1000.0, 950.0])
         assert "4 projects" in fig.data[0].text[1] and titles(fig)["yaxis"] == "NPV at plan start [EUR]"
 
+    def test_plan_comparison_of_two_empty_plans_says_so(self):
+        fig = figures.plan_comparison(pd.Series({"npv_exact": 0.0, "npv_greedy": 0.0, "projects_exact": 0,
+                                                 "projects_greedy": 0}), "EUR")
+        assert not fig.data and "Neither plan holds a project" in fig.layout.annotations[0].text
+
     def test_tornado_bars_start_at_the_base(self):
         rows = pd.DataFrame({"label": ["Capital", "Energy price"], "npv_at_low": [110.0, 60.0],
                              "npv_at_high": [90.0, 140.0], "base_npv": [100.0, 100.0], "swing": [20.0, 80.0]})

@@ -430,6 +430,19 @@ class TestEdits:
         assert "negative discount rate" in services.assumption_notes(edits)
         assert services.assumption_notes({"discount_rate_pct": 5}) == ""
 
+    def test_a_rate_that_looks_typed_as_a_fraction_or_that_runs_away_is_named(self, engine):
+        # "0.08" is 0.08 % in a percent field: applied, with the reading said and the likely meaning offered
+        note = services.assumption_notes({"discount_rate_pct": 0.08})
+        assert "Applied as 0.08 % a year. If you meant 8 %, type 8" in note
+        # -20 %/yr over 100 years counts the last year's flows 0.8^-100 = 1.25^100 = 4.91e9 times (hand calculation)
+        note = services.assumption_notes({"discount_rate_pct": -20, "horizon_yr": 100})
+        assert "counts the last year's flows 4.91e+09 times" in note
+        assert "grow without bound" not in services.assumption_notes({"discount_rate_pct": -1, "horizon_yr": 20})
+        # a decimal comma is answered with the number it most likely is
+        edits, message = services.edit_assumptions(engine.default_key, engine.default_entry().case.finance, None,
+                                                   discount_rate_pct=services.typed_number("8,5", True))
+        assert edits is None and "enter a number with a decimal point (8.5)" in message
+
     def test_view_reports_a_bad_stored_edit_and_keeps_the_case_values(self, engine):
         v = services.view(None, {"case": engine.default_key, "horizon_yr": -3})
         assert v.assumptions == engine.default_entry().case.finance and "not applied" in v.notice
@@ -958,3 +971,23 @@ def test_the_dashboards_physics_keeps_within_the_free_memory(monkeypatch):
         assert services.physics_within_free_memory(case, 40.0) == "physics"
     assert given[0] is not None and given[0] != estimate.default_budgets() and given[1] is None
     assert services.Engine()._physics_fn is services.physics_within_free_memory
+
+
+def test_the_asset_page_says_the_best_option_alone_and_what_the_plan_buys(engine):
+    # the owner of one motor reads the answer on its page, as the fleet table gives it
+    v = services.view(None, None)
+    r = v.result()
+    best = r.results[r.results["best_for_asset"]].set_index("asset_id")
+    planned = r.plan.set_index("asset_id")
+    inside = next(a for a in best.index if a in planned.index)
+    text = services.asset_choice_text(r, inside, v.currency)
+    p = planned.loc[inside]
+    label = r.results.set_index(["asset_id", "option_id"]).loc[(inside, p["option_id"]), "label"]
+    assert f"The budgeted plan buys: {label}, in plan year {int(p['start_yr'])}" in text
+    top = best.loc[inside]
+    if top["technology"] != "existing":
+        assert f"Best option priced alone: {top['label']} (NPV {v.currency} {top['npv']:,.0f})" in text
+    outside = [a for a in best.index if a not in planned.index]
+    for a in outside:
+        assert "The budgeted plan buys nothing for it" in services.asset_choice_text(r, a, v.currency)
+    assert services.asset_choice_text(r, "NO-SUCH-ASSET", v.currency) == ""

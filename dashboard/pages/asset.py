@@ -42,7 +42,8 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
         html.H3("Options"),
         # as tall as its rows (an asset has a handful of options, each row as tall as its wrapped texts)
         ui.data_grid(OPTIONS, height="auto", getRowId="params.data.option_id",
-                     dashGridOptions={"domLayout": "autoHeight"}),
+                     dashGridOptions={"domLayout": "autoHeight"},
+                     rowClassRules={"best-option": "params.data.best"}),
         html.Div([html.Div(ui.graph(LCC), className="panel half"),
                   html.Div([ui.graph(CASH), html.P("Each line is an option against keeping today's motor (against the "
                                                    "least repair, for a motor marked as failed); the diamond "
@@ -174,6 +175,9 @@ def update(asset_id, session, edits, requested=None):
                html.Span(f" · site {asset['site_id']} · {asset['application']} · "
                          f"{ui.fmt_rating(rating, services.power_label(view.power_unit))} · "
                          f"{asset['speed_control']} speed control · data quality {score:.0f} %")]
+    choice = services.asset_choice_text(result, asset_id, view.currency)
+    if choice:  # the answer the owner of this motor came for, as the fleet table gives it
+        summary.append(html.Div(choice, id="asset-choice"))
     no_option = services.no_option_text(result, asset_id)
     if no_option:  # only today's motor is offered: say why, rather than leave "Keep as is" unexplained
         summary.append(html.Div(no_option, className="small caution", id="asset-no-option"))

@@ -78,15 +78,19 @@ ui.address_follows(ADDRESS, "/site")
 
 @callback(Output(WEEK_FIGURE, "figure"), Output(DURATION, "figure"), Output(REACTIVE, "figure"), Output(BILLS, "figure"),
           Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(BILL_FIT, "figure"),
-          Input(PICK, "value"), Input(WEEK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"))
-def update(site_id, week, session, edits):
+          Input(PICK, "value"), Input(WEEK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
+          State(REQUEST, "data"))
+def update(site_id, week, session, edits, requested=None):
     """Meter, duration curve, reactive balance and bills of the chosen site."""
     view = services.view(session, edits)
     result = view.result()
     meters = services.site_meters(view, result)
+    notice = view.notice
+    if requested and str(requested) not in meters:  # an address naming a site the case does not have
+        notice = " ".join(x for x in (notice, f"The case has no site '{requested}'; showing {site_id or 'none'}.") if x)
     if site_id not in meters:
         empty = figures.message_figure("Choose a site.")
-        return empty, empty, empty, empty, "", view.notice, empty
+        return empty, empty, empty, empty, "", notice, empty
     site = meters[site_id]
     interval_h = float(view.physics().operation.interval_h)
     before, after = site["before"], site["after"]
@@ -122,5 +126,5 @@ def update(site_id, week, session, edits):
     return (figures.meter_week(services.week_slice(site, week)),
             figures.pf_duration(services.pf_duration(site, interval_h)),
             figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
-            figures.monthly_bills(bills, view.currency), summary, view.notice,
+            figures.monthly_bills(bills, view.currency), summary, notice,
             figures.energy_against_bills(services.site_bill_months(view, site_id)))
