@@ -290,7 +290,7 @@ def test_scenarios_side_by_side_and_a_kept_one(tab, artifacts):
     # the Case & assumptions page lists the case as written and the demo's three scenarios (scenarios.toml); a
     # new discount rate kept under a name joins them as the tab's own row
     page = tab.goto("/inputs", PAGES[-1][1])
-    grid = "#inputs-scenarios .ag-center-cols-container"
+    grid = "#inputs-scenarios .ag-pinned-left-cols-container"  # the scenario names, pinned while the grid scrolls
     page.locator(grid).filter(has_text="Wait for failures").wait_for()
     assert set(grid_column(page, "inputs-scenarios", "scenario")) == {
         "Case as written", "Cheaper money", "Dearer electricity, larger budget", "Wait for failures"}
