@@ -908,3 +908,29 @@ def test_the_report_says_what_payback_is_and_which_figures_are_after_tax(small):
                            [])["measures_text"]
     assert "after the tax rate of the assumptions (25.0 % on the savings" in taxed
     assert "the yearly savings are before tax" in taxed
+
+
+def test_the_register_names_the_saving_the_plans_projects_share(demo_run_physics):
+    # The headline's yearly saving adds the plan's projects priced one by one; the sites' bills with the whole
+    # plan in place fall by less (shared demand peaks, ratchets, allowances). The register gives the gap:
+    # cross-check of two paths, the bills table (baseline less plan) against the counted savings of the plan.
+    from models import scenario
+    from models.pack import content
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    bills = result.bills.groupby("scenario")["amount"].sum()
+    together = float(bills["baseline"] - bills["plan"])
+    from models.exports import plan_with_savings
+
+    rows = plan_with_savings(result.plan, result.results, result.plan_status.get("repriced"))  # plan.csv's columns
+    maintenance = result.results.set_index(["asset_id", "option_id"])["saving_maintenance_per_yr"].reindex(
+        list(zip(rows["asset_id"], rows["option_id"])))
+    apart = float(rows["saving_counted_per_yr"].sum() - maintenance.sum())
+    assert apart - together > 0.005 * apart  # the demo's plan shares peaks and allowances
+    register = content.risk_register(case, result, content.select_scope(case, result, None, True))
+    row = register[register["item"] == "Projects priced one by one"]
+    assert len(row) == 1
+    detail = row["detail"].iloc[0]
+    assert content.money(apart, "EUR") in detail and content.money(together, "EUR") in detail
+    assert content.money(apart - together, "EUR") in detail
