@@ -727,9 +727,10 @@ def _plan_npv_formula(block: dict, share: float | None, tax_rate_frac: float = 0
 def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats,
           blocks: list[dict] | None = None) -> None:
     _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
-    put_text(ws, 2, 1, "NPV at its own start: a formula on the project's block of 'Cash flows' where this pack holds "
-                       "one (it follows the discount rate on 'Assumptions'); the engine's figure at the run's rate "
-                       "for a project outside the pack.")
+    put_text(ws, 2, 1, "NPV at its own start and at the plan's start: formulas on the project's block of 'Cash flows' "
+                       "where this pack holds one (they follow the discount rate on 'Assumptions'); the engine's "
+                       "figures at the run's rate for a project outside the pack, so a plan's total after a rate "
+                       "change mixes the two unless the pack holds the whole plan.")
     block_of = {(b["asset_id"], b["option_id"]): b for b in blocks or ()}
     rate = refs["discount_rate_frac"]
     rate_v = float(result.assumptions.discount_rate_frac)
@@ -765,14 +766,17 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             share = (shares or {}).get(f"{r.asset_id}/{r.option_id}")
             share = None if share is None else float(share)
             alone = block is not None and abs(float(r.npv) - float(block["npv_engine_value"])) <= 1e-6 * max(1.0, abs(float(r.npv)))
+            at_start = float(r.npv) / (1.0 + rate_v) ** int(r.start_yr)
             if block is not None and (share is not None or alone):
                 put_formula(ws, row, 6, _plan_npv_formula(block, share, float(result.assumptions.tax_rate_frac)),
                             f.money, float(r.npv))
+                put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money, at_start)
             else:
+                # the engine's figure at the run's rate, discounted to the plan's start at that rate too (a rate
+                # changed on 'Assumptions' would otherwise discount a figure computed at another)
                 put(ws, row, 6, float(r.npv), f.money)
+                put(ws, row, 8, at_start, f.money)
             put(ws, row, 7, float(r.npv_at_plan_start), f.money)
-            at_start = float(r.npv) / (1.0 + rate_v) ** int(r.start_yr)
-            put_formula(ws, row, 8, f"=F{row}/(1+{rate})^A{row}", f.money, at_start)
             year_sums = sums.setdefault(int(r.start_yr), [0.0, 0, 0.0])
             year_sums[0] += float(r.capital)
             year_sums[1] += 1
