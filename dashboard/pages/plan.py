@@ -111,7 +111,7 @@ def edit(*args):
 
 def project_columns(currency: str) -> list[dict]:
     return [ui.text_col("asset_id", "Asset"), ui.long_text_col("label", "Option", minWidth=220),
-            ui.number_col("start_yr", "Start year", maxWidth=120), ui.number_col("capital", f"Capital [{currency}]"),
+            ui.number_col("start_yr", "Plan year", maxWidth=120), ui.number_col("capital", f"Capital [{currency}]"),
             ui.number_col("npv", f"NPV at its start [{currency}]", headerTooltip=PLAN_NPV_NOTE),
             ui.number_col("npv_at_plan_start", f"NPV at plan start [{currency}]"),
             ui.number_col("data_quality_pct", "Data quality [%]", maxWidth=130,

@@ -54,7 +54,7 @@ PERCENTILES = ("P10, P50 and P90: the values that 10 %, 50 % and 90 % of the Mon
 
 
 def columns(currency: str, scope: str = "best") -> list[dict]:
-    start = [ui.number_col("start_yr", "Start [plan year]")] if scope == "plan" else []
+    start = [ui.number_col("start_yr", "Plan year")] if scope == "plan" else []
     # a plan project's NPV at its own start (its plan year), not at the plan's start (the summary and the chart)
     basis = ("at the project's own start (its plan year); the summary line and the histogram discount the plan "
              "to its start" if scope == "plan" else "of each asset's best option, starting at once")
