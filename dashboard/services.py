@@ -1216,10 +1216,18 @@ def asset_choice_text(result, asset_id: str, currency: str) -> str:
     plan_rows = result.plan[result.plan["asset_id"].astype(str) == str(asset_id)] if len(result.plan) else result.plan
     if len(plan_rows):
         p = plan_rows.iloc[0]
-        label = rows.loc[rows["option_id"] == p["option_id"], "label"]
-        name = str(label.iloc[0]) if len(label) else str(p["option_id"])
-        bought = (f"The budgeted plan buys: {name}, in plan year {int(p['start_yr'])} "
+        chosen = rows[rows["option_id"] == p["option_id"]]
+        name = str(chosen["label"].iloc[0]) if len(chosen) else str(p["option_id"])
+        start = int(p["start_yr"])
+        bought = (f"The budgeted plan buys: {name}, in plan year {start} "
                   f"(capital {money_text(float(p['capital']), currency)}).")
+        spend = result.capital_spend_by_year
+        if spend is not None and len(chosen):
+            paid = np.flatnonzero(np.asarray(spend, dtype=float)[res.index.get_loc(chosen.index[0])] > 0.005)
+            if len(paid) and paid[0] > 0:  # bought when today's motor fails, not when the project enters the plan
+                bought = (f"The budgeted plan buys: {name}, entered in plan year {start} and bought when today's "
+                          f"motor fails, expected in plan year {start + int(paid[0])} (capital "
+                          f"{money_text(float(p['capital']), currency)}).")
     else:
         why = str(_plan_buys(result, best.iloc[:1], np.array([""], dtype=object))[0])
         bought = ("The budgeted plan buys " + why.replace("nothing: ", "nothing for it: ", 1) + "."

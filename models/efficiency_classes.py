@@ -223,33 +223,38 @@ def class_table(poles: int = 4, f_hz: int = 50) -> pd.DataFrame:
     return pd.DataFrame(data, index=pd.Index(ratings, name="rated_p_kw"))
 
 
-#: IEC 60034-1 tolerance on a machine's declared efficiency, as the share of its losses by which a machine
-#: may fall short: 15 % up to this rating, 10 % above it (the break was at 50 kW in older editions; the
-#: 150 kW break is from memory) [kW].
+#: IEC 60034-1 tolerance on a machine's declared efficiency, as the share of its complement (1 - eta) by which
+#: a machine may fall short: 15 % up to this rating, 10 % above it (the break was at 50 kW in older editions;
+#: the 150 kW break is from memory) [kW].
 TOLERANCE_BREAK_KW = 150.0
-#: The two tolerance bands [frac of losses]: at or below :data:`TOLERANCE_BREAK_KW`, and above it.
+#: The two tolerance bands [frac of (1 - eta)]: at or below :data:`TOLERANCE_BREAK_KW`, and above it.
 TOLERANCE_LOSSES_FRAC = (0.15, 0.10)
 
 
-def efficiency_tolerance_losses_frac(rated_p_kw) -> np.ndarray:
-    """Return the IEC 60034-1 tolerance on declared efficiency as a share of the machine's losses.
+def efficiency_tolerance_losses_frac(rated_p_kw, efficiency_frac=None) -> np.ndarray:
+    """Return the IEC 60034-1 tolerance on declared efficiency, as a share of the efficiency's complement or, with
+    the efficiency, as the share of the losses by which a machine's losses may exceed the declared ones.
 
     Parameters
     ----------
     rated_p_kw : array_like
         Rated output [kW], > 0.
+    efficiency_frac : array_like, optional
+        The declared efficiency eta [-], in (0, 1), broadcastable to ``rated_p_kw``.
 
     Returns
     -------
     numpy.ndarray
-        The share of the declared losses by which a machine's measured losses may exceed them and the
-        machine still meet its declared efficiency [frac]: 0.15 up to 150 kW, 0.10 above.
+        Without ``efficiency_frac``: x, the share of (1 - eta) by which the measured efficiency may fall short
+        of the declared one, 0.15 up to 150 kW and 0.10 above. With it: the most the machine's losses may
+        exceed the declared losses at the same output, as a share of them, x / eta' [frac].
 
     Notes
     -----
-    The tolerance is written on efficiency as -x (1 - eta): a machine declared at eta may measure down to
-    eta - x (1 - eta), i.e. with losses up to (1 + x) times the declared losses (input taken as fixed by
-    the output: (1 - eta') P_in ~= (1 + x)(1 - eta) P_in).
+    The tolerance is written on efficiency: a machine declared at eta may measure down to
+    eta' = eta - x (1 - eta) = eta (1 + x) - x. The driven load fixes the output P, so the losses go from
+    L = P (1 - eta) / eta to L' = P (1 - eta') / eta', and L' / L - 1 = (1 + x) eta / eta' - 1 = x / eta'
+    (16.3 % of the losses for x = 0.15 at eta = 0.93).
 
     References
     ----------
@@ -261,6 +266,12 @@ def efficiency_tolerance_losses_frac(rated_p_kw) -> np.ndarray:
     --------
     >>> efficiency_tolerance_losses_frac([11.0, 150.0, 160.0]).tolist()
     [0.15, 0.15, 0.1]
+    >>> round(float(efficiency_tolerance_losses_frac(11.0, 0.93)), 6)  # 0.15 / (0.93 x 1.15 - 0.15)
+    0.163132
     """
     p = np.asarray(rated_p_kw, dtype=float)
-    return np.where(p <= TOLERANCE_BREAK_KW, TOLERANCE_LOSSES_FRAC[0], TOLERANCE_LOSSES_FRAC[1])
+    x = np.where(p <= TOLERANCE_BREAK_KW, TOLERANCE_LOSSES_FRAC[0], TOLERANCE_LOSSES_FRAC[1])
+    if efficiency_frac is None:
+        return x
+    eta = np.asarray(efficiency_frac, dtype=float)
+    return x / (eta * (1.0 + x) - x)

@@ -671,17 +671,17 @@ def input_on_drive_kw(params: InductionParams, shaft_p_kw, speed_frac):
 
     Notes
     -----
-    With the flux held (V/f constant), the electromagnetic torque per unit of the rated air-gap torque is
-    y = (P + P_fw phi) / (P_ag,r phi), where phi is the rotor speed share, and the slip speed is s_r y (of the
-    line's synchronous speed), so the stator frequency share is f = phi + s_r y. The losses of the line model
-    (docs/models-induction.md) then follow their causes instead of the shaft power:
+    With the flux held (V/f constant), friction and windage follow the rotor's speed from their value at
+    the rated speed, F = P_fw phi / (1 - s_r), where phi is the rotor speed share; the electromagnetic
+    torque per unit of the rated air-gap torque is y = (P + F) / (P_ag,r phi), and the slip speed is s_r y
+    (of the line's synchronous speed), so the stator frequency share is f = phi + s_r y. The losses of the
+    line model (docs/models-induction.md) then follow their causes instead of the shaft power:
 
-        P_in = P + P_fw phi + (A - P_fw) f^1.5 + B y^k + s_r P_ag,r y^2
+        P_in = P + F + (A - P_fw) f^1.5 + B y^k + s_r P_ag,r y^2
 
-    friction with speed, iron loss with frequency to the power 1.5, stator copper and stray loss with the
-    torque as on the line, and rotor copper loss s' P_ag = (s_r y / f)(y P_ag,r f). At the line's own
-    frequency (f = 1) this is the line model but for the friction counted at the rotor's speed (a difference
-    of P_fw s, a few watts per kW of friction).
+    iron loss with frequency to the power 1.5, stator copper and stray loss with the torque as on the
+    line, and rotor copper loss s' P_ag = (s_r y / f)(y P_ag,r f). At the rated speed and load (phi = 1 - s_r,
+    y = 1, f = 1) this is the line model's rated input exactly.
 
     References
     ----------
@@ -699,7 +699,7 @@ def input_on_drive_kw(params: InductionParams, shaft_p_kw, speed_frac):
     _forbid(p < 0, "shaft_p_kw must not be negative")
     phi = np.maximum(np.asarray(speed_frac, dtype=float), DRIVE_MIN_SPEED_FRAC)
     p_fw, p_ag_r, s_r = get("friction_windage_kw"), get("rated_airgap_p_kw"), get("rated_slip_frac")
-    friction = p_fw * phi
+    friction = p_fw * phi / (1.0 - s_r)
     y = (p + friction) / (p_ag_r * phi)
     f = phi + s_r * y
     # (f^1.5 as f sqrt(f) and y^k through _power: element by element the same bits however the rows are

@@ -2275,6 +2275,7 @@ def _measured_below_no_load(groups: list[tuple], values: np.ndarray, is_input, i
         for k in np.flatnonzero(count):
             n, kwh, total, i = int(count[k]), float(lost_kwh[k]), float(total_kwh[k]), inputs[k]
             out.append((int(rows_[i]), f"measured input at or below today's motor's no-load input in {n:,} intervals "
+                                       "of the analysis year "
                                        f"({kwh:,.0f} kWh, {100 * kwh / total:.2g} % of the measured energy): counted as "
                                        "stopped, so that energy is in no option (an idling motor reads as stopped); "
                                        "check the logger's scaling and the nameplate"))

@@ -582,10 +582,10 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
         cf.ProjectInputs(project_id=project_ids), option_life_yr=inputs.option_life_yr,
         baseline_life_yr=inputs.baseline_life_yr, existing_remaining_life_yr=inputs.existing_remaining_life_yr,
         replace_at_failure=inputs.replace_at_failure,
-        # the option's machine at the top of its band, over the least repair of a failed motor (likewise)
-        savings_energy_per_yr=np.where(is_keep | is_least, 0.0, -(band_cost[rows, cols] - np.where(
-            over_least, band_cost[rows, least_pos], 0.0))),
-        # from the failure on, the base case's must-spend item, a new machine too, at the top of its own band
+        # the option's machine at the top of its band (as the savings: the option's own against today's motor)
+        savings_energy_per_yr=np.where(is_keep | is_least, 0.0, -band_cost[rows, cols]),
+        # from the failure on (at once for a motor that has failed), the base case's must-spend item, a new
+        # machine too, at the top of its own band
         baseline_savings_per_yr=np.column_stack(
             [np.where(replaces & (must_capex[rows] > 0) & ~(is_keep | is_least), -band_cost[rows, must_pos[rows]], 0.0)]
             + [np.zeros(len(rows))] * (len(cf.SAVINGS_COMPONENTS) - 1)))
@@ -1251,8 +1251,10 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     motor with a drive or a capacitor added have no declared efficiency of a new machine).
 
     The machine's declared losses in the year (its own and, for a wound-field machine, its excitation's; a
-    drive's losses have a standard of their own and are left out) times the IEC 60034-1 band
-    (:func:`models.efficiency_classes.efficiency_tolerance_losses_frac`), priced at the site's mean price of
+    drive's losses have a standard of their own and are left out) times the share of them the IEC 60034-1
+    tolerance allows above them at the same output, x / eta' at the machine's yearly efficiency eta (shaft
+    energy over shaft energy plus those losses; :func:`models.efficiency_classes.efficiency_tolerance_losses_frac`),
+    priced at the site's mean price of
     the energy the run saves: the energy savings over the kWh saved of the site's options that save both
     (the energy charges with their taxes, at the times of use the motors run). A site with no such option
     takes the fleet's mean; a fleet with none prices the band at 0.
@@ -1268,8 +1270,12 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     kwh = np.bincount(codes, weights=np.where(both, energy_saved_kwh, 0.0).sum(axis=1), minlength=len(sites))
     fleet = money.sum() / kwh.sum() if kwh.sum() > 0 else 0.0
     price = np.where(kwh > 0, money / np.where(kwh > 0, kwh, 1.0), fleet)[codes]
-    band = efficiency_classes.efficiency_tolerance_losses_frac(rated_p_kw)
-    return np.where(new, band[:, None] * np.where(new, declared, 0.0) * price[:, None], 0.0)
+    declared = np.where(new, declared, 0.0)
+    shaft = np.where(new, op.shaft_energy_kwh, 0.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        eta = np.where(shaft + declared > 0, shaft / np.where(shaft + declared > 0, shaft + declared, 1.0), 1.0)
+    band = efficiency_classes.efficiency_tolerance_losses_frac(np.asarray(rated_p_kw, dtype=float)[:, None], eta)
+    return np.where(new & (declared > 0), band * declared * price[:, None], 0.0)
 
 
 def _risk(flows, assumptions, results, d, loss_band=None):
@@ -1318,8 +1324,8 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     shared = np.ones(len(rows)) if bill_share is None else np.asarray(bill_share, dtype=float)
     scaled = np.flatnonzero(shared != 1.0)
     if len(scaled):
-        bill_columns = [names.index(name) for name in reactive_plan.BILL_SAVING_COMPONENTS + (risk.LOSS_BAND_COMPONENT,)
-                        if name in names]
+        # (the loss band is the project's own machine's: the rest of the plan takes none of it)
+        bill_columns = [names.index(name) for name in reactive_plan.BILL_SAVING_COMPONENTS if name in names]
         amounts = amounts.copy()
         amounts[np.ix_(scaled, np.arange(amounts.shape[1]), bill_columns)] *= shared[scaled, None, None]
 

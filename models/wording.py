@@ -100,6 +100,6 @@ def in_service_text(in_service_month: int | None, first_month: int | None = None
 
 
 #: What the simple payback of a project is, in words (the command line's tables and the pack say the same).
-PAYBACK_TEXT = ("Simple payback: years from the outlay until the project's own cash flow is back at zero, after tax, "
-                "with the spend a failure of today's motor would force credited (docs/finance.md); not capital / "
-                "yearly saving.")
+PAYBACK_TEXT = ("Simple payback: years from the outlay until the project's own cash flow (after the tax rate of the "
+                "assumptions, where one is set) is back at zero, with the spend a failure of today's motor would force "
+                "credited (docs/finance.md); not capital / yearly saving.")

@@ -179,6 +179,7 @@ def test_the_tolerance_on_declared_efficiency_is_a_share_of_the_losses():
     # Engineering and Applications Handbook, Table 11.9).
     assert_allclose(efficiency_tolerance_losses_frac([0.75, 50.0, 150.0, 150.5, 1000.0, 5000.0]),
                     [0.15, 0.15, 0.15, 0.10, 0.10, 0.10], rtol=0, atol=0)
-    # Hand calculation: a 93.0 % motor at the 15 % band measures down to 93.0 - 0.15 x 7.0 = 91.95 %.
-    eta = 0.930
-    assert_allclose(eta - efficiency_tolerance_losses_frac(11.0) * (1 - eta), 0.9195, rtol=1e-12)
+    # Hand calculation: a 93.0 % motor at the 15 % band measures down to 93.0 - 0.15 x 7.0 = 91.95 %; at the same
+    # output its losses rise from P x 0.07 / 0.93 = 0.0752688 P to P x 0.0805 / 0.9195 = 0.0875476 P, by 16.31321 %
+    # (= 0.15 / 0.9195); a 200 kW one at 96.0 % by 0.10 / (0.96 x 1.1 - 0.1) = 0.10 / 0.956 = 10.46025 %.
+    assert_allclose(efficiency_tolerance_losses_frac([11.0, 200.0], [0.93, 0.96]), [0.1631321, 0.1046025], rtol=1e-6)

@@ -293,5 +293,5 @@ def test_measured_input_below_the_no_load_input_is_named_not_dropped_silently(tm
     hit = flags[(flags["asset_id"] == "P1") & flags["flag"].str.startswith("measured input at or below")]
     assert len(hit) == 1 and hit["option_id"].iloc[0] == ""
     text = hit["flag"].iloc[0]
-    assert "in 260 intervals (26 kWh, " in text and " % of the measured energy): counted as stopped" in text, text
+    assert "in 260 intervals of the analysis year (26 kWh, " in text and " % of the measured energy): counted as stopped" in text, text
     assert not flags["flag"].str.startswith("measured input at or below").loc[flags["asset_id"] != "P1"].any()

@@ -313,14 +313,17 @@ class TestNewMachinesLossBand:
         losses[1, 2] = [10000, 0, 3000]
         losses[2, 1] = [3000, 0, 0]
         losses[:, 0] = [[20000, 0, 0], [30000, 0, 0], [4000, 0, 0]]
+        shaft = np.array([[180000, 72000, 133000, 100000], [270000, 228000, 247000, 0], [36000, 27000, 0, 0]],
+                         dtype=float)
         applies = np.ones((3, 4), dtype=bool)
         applies[2, 2] = False
-        op = SimpleNamespace(losses_kwh=losses, technologies=techs, applies=applies,
+        op = SimpleNamespace(losses_kwh=losses, technologies=techs, applies=applies, shaft_energy_kwh=shaft,
                              site_ids=np.array(["S1", "S1", "S2"], dtype=object))
         cost = scenario._loss_band_cost_per_yr(op, SimpleNamespace(saving=saving), np.array([100.0, 200.0, 50.0]),
                                                energy_saved)
-        # Hand calculation (docs/derivations/finance-risk.md, section 7): price 6,400 / 30,000 EUR/kWh
-        assert_allclose(cost, [[0, 256.0, 224.0, 0], [0, 256.0, 277.333333, 0], [0, 96.0, 0, 0]], rtol=1e-6, atol=1e-12)
+        # Hand calculation (docs/derivations/finance-risk.md, section 7): price 6,400 / 30,000 EUR/kWh, band x / eta'
+        assert_allclose(cost, [[0, 289.2655, 237.6658, 0], [0, 270.8995, 293.4744, 0], [0, 108.4746, 0, 0]],
+                        rtol=5e-7, atol=1e-12)  # the hand values are rounded to 4 decimals
 
     @pytest.mark.parametrize("tax_rate_frac, expected_difference", [(0.0, 371.149512), (0.25, 278.362134)])
     def test_a_projects_draws_move_by_the_bands_present_value(self, monkeypatch, tax_rate_frac, expected_difference):
@@ -348,3 +351,46 @@ class TestNewMachinesLossBand:
         assert_allclose(mc.npv[2, 0], without.npv[2, 0], rtol=1e-12)
         row = tornado.set_index("variable").loc[risk.LOSS_BAND_FACTOR]
         assert_allclose(row["npv_at_low"] - row["npv_at_high"], expected_difference, rtol=1e-8)
+
+    def test_a_failed_motor_whose_least_repair_is_a_new_machine(self, tmp_path):
+        # A failed motor is counted against the least that puts it back in service (here a new IE3 motor: the
+        # rewind is priced out). The IE4 option's band flow is then its own machine's band less the IE3 motor's,
+        # every year from year 1 (the base case runs the IE3 motor from the failure, at once); the IE3 option's
+        # own row nets to nothing. Each band priced alone is :func:`_loss_band_cost_per_yr`'s (hand-checked above).
+        import casebuilder as cb
+        from models import cashflows as cf
+        from models import scenario
+        from models.case import load_case
+        from models.options import NEW_MACHINE_TECHNOLOGIES
+
+        assets = [["M1", "S1", "Conveyor", "other", "15", "4", "50", "400", "IE1", "88.7", "0.82", "1460", "2005", "0",
+                   "fixed", "", "6000", "100", "medium", "1"]]
+        folder = cb.write_case(tmp_path / "c", assets=assets, sites=[["S1", "Works", "0", "0.9"]], capacitors=[],
+                               duty=[], profiles=[], asset_header=cb.ASSET_HEADER + ["failed"])
+        (folder / "profiles.csv").unlink()
+        cb.with_flat_tariff(folder)
+        from pathlib import Path
+
+        shipped = (Path(__file__).resolve().parents[1] / "data" / "defaults" / "options.csv").read_text(encoding="utf-8")
+        priced_out = shipped.replace("rewind,rewind,Rewind,,none,,0.75,100000,95,", "rewind,rewind,Rewind,,none,,0.75,100000,950,")
+        assert priced_out != shipped
+        (folder / "options.csv").write_text(priced_out, encoding="utf-8")
+        (folder / "finance.toml").write_text('discount_rate_frac = 0.0\nhorizon_yr = 5\nrate_basis = "real"\n'
+                                             'monte_carlo_draws = 20\n', encoding="utf-8")
+        case, problems = load_case(folder)
+        assert case is not None, [str(p) for p in problems if p.severity == "error"]
+        result = scenario.run(case, case.finance, with_risk=False)
+        res = result.results.set_index("option_id")
+        assert res.loc["ie4", "must_spend_option_id"] == "ie3"  # the least repair is the new IE3 motor
+        op = result.physics.operation
+        energy_saved = op.energy_kwh[:, [0]] - op.energy_kwh
+        band = scenario._loss_band_cost_per_yr(op, result.physics.savings, case.assets["rated_p_kw"].to_numpy(float),
+                                               energy_saved)[0]
+        ids = list(op.option_ids)
+        assert band[ids.index("ie4")] > 0 and band[ids.index("ie3")] > 0
+        assert set(op.technologies[np.flatnonzero(band > 0)]) <= set(NEW_MACHINE_TECHNOLOGIES)
+        flows = cf.build_cash_flows(result.loss_band, result.assumptions).component("savings_energy")
+        row = {p.split("/")[1]: k for k, p in enumerate(result.loss_band.project_id)}
+        expected = -(band[ids.index("ie4")] - band[ids.index("ie3")])
+        assert_allclose(flows[row["ie4"], 1:], expected, rtol=1e-12)
+        assert_allclose(flows[row["ie3"]], 0.0, atol=1e-12)

@@ -831,7 +831,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
             totals[3 + 3 * k] += float(spent[name][1])
     if years:
         row += 1
-        put_text(ws, row, 1, "Total").font = _BOLD
+        later_row = spent["Exact plan"][1] > 0.005 or spent["Rank-order plan"][1] > 0.005
+        put_text(ws, row, 1, "Total, later included" if later_row else "Total").font = _BOLD
         for c in (3, 4, 5, 6, 7, 8):
             col = get_column_letter(c)
             put_formula(ws, row, c, f"=SUM({col}{top}:{col}{row - 1})", f.whole if c in (4, 7) else f.money,
