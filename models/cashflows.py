@@ -78,6 +78,11 @@ def _column(values: Any, n: int, name: str, *, default: float | None = None, min
     return array
 
 
+#: Fields of :class:`ProjectInputs` whose last axis is the savings components (one row per project, or one
+#: row for all).
+_PER_COMPONENT_FIELDS = ("baseline_savings_per_yr", "ratchet_shortfall", "baseline_ratchet_shortfall")
+
+
 @dataclass(frozen=True)
 class ProjectInputs:
     """Per-project inputs of the cash-flow builder: one entry per project (asset x option).
@@ -177,7 +182,9 @@ class ProjectInputs:
         values = {}
         for name in self.__dataclass_fields__:
             value = getattr(self, name)
-            if value is not None and np.ndim(value) >= 1 and len(value) == n:
+            # a per-component field given once for all projects is 1-D (its components): per project it is 2-D
+            least = 2 if name in _PER_COMPONENT_FIELDS else 1
+            if value is not None and np.ndim(value) >= least and len(value) == n:
                 value = np.asarray(value)[rows]
             values[name] = value
         return ProjectInputs(**values)

@@ -1257,7 +1257,8 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     priced at the site's mean price of
     the energy the run saves: the energy savings over the kWh saved of the site's options that save both
     (the energy charges with their taxes, at the times of use the motors run). A site with no such option
-    takes the fleet's mean; a fleet with none prices the band at 0.
+    takes the fleet's mean; a fleet with none, the mean price per kWh of the energy lines of today's bills
+    (their taxes left out).
     """
     kinds = list(LOSS_KINDS)
     declared = op.losses_kwh[:, :, kinds.index("motor")] + op.losses_kwh[:, :, kinds.index("excitation")]
@@ -1268,7 +1269,7 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     codes, sites = pd.factorize(pd.Series(op.site_ids).astype(str))
     money = np.bincount(codes, weights=np.where(both, saving, 0.0).sum(axis=1), minlength=len(sites))
     kwh = np.bincount(codes, weights=np.where(both, energy_saved_kwh, 0.0).sum(axis=1), minlength=len(sites))
-    fleet = money.sum() / kwh.sum() if kwh.sum() > 0 else 0.0
+    fleet = money.sum() / kwh.sum() if kwh.sum() > 0 else _mean_energy_price_of_bills(sav.baseline_bills)
     price = np.where(kwh > 0, money / np.where(kwh > 0, kwh, 1.0), fleet)[codes]
     declared = np.where(new, declared, 0.0)
     shaft = np.where(new, op.shaft_energy_kwh, 0.0)
@@ -1276,6 +1277,16 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
         eta = np.where(shaft + declared > 0, shaft / np.where(shaft + declared > 0, shaft + declared, 1.0), 1.0)
     band = efficiency_classes.efficiency_tolerance_losses_frac(np.asarray(rated_p_kw, dtype=float)[:, None], eta)
     return np.where(new & (declared > 0), band * declared * price[:, None], 0.0)
+
+
+def _mean_energy_price_of_bills(bills: pd.DataFrame | None) -> float:
+    """The mean price per kWh of the energy lines ("energy:...", in kWh) of a bill table [currency/kWh]; 0
+    without any."""
+    if bills is None or not len(bills) or not {"line_item", "unit", "quantity", "amount"} <= set(bills.columns):
+        return 0.0
+    energy = bills["line_item"].astype(str).str.startswith("energy:") & (bills["unit"].astype(str) == "kWh")
+    kwh = float(bills.loc[energy, "quantity"].sum())
+    return float(bills.loc[energy, "amount"].sum()) / kwh if kwh > 0 else 0.0
 
 
 def _risk(flows, assumptions, results, d, loss_band=None):

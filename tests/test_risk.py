@@ -4,6 +4,7 @@ Hand calculations are in docs/derivations/finance-risk.md.
 """
 
 import numpy as np
+import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
@@ -394,3 +395,23 @@ class TestNewMachinesLossBand:
         expected = -(band[ids.index("ie4")] - band[ids.index("ie3")])
         assert_allclose(flows[row["ie4"], 1:], expected, rtol=1e-12)
         assert_allclose(flows[row["ie3"]], 0.0, atol=1e-12)
+
+    def test_a_fleet_that_saves_no_energy_prices_the_band_from_its_bills(self):
+        # No option saves both money and kWh: the band is priced at the mean price of today's energy lines.
+        # Hand calculation: (1,000 + 500) EUR / (10,000 + 2,500) kWh = 0.12 EUR/kWh; an IE3 motor of 11 kW at
+        # eta = 0.9 (shaft 9,000 kWh, losses 1,000 kWh): band 0.15 / 0.885 = 0.1694915, x 1,000 x 0.12 = 20.33898.
+        from types import SimpleNamespace
+
+        from models import scenario
+
+        bills = pd.DataFrame({"line_item": ["energy:peak", "energy:off-peak", "fixed:standing", "tax:VAT"],
+                              "unit": ["kWh", "kWh", "month", "EUR"], "quantity": [10000.0, 2500.0, 1.0, 1.0],
+                              "amount": [1000.0, 500.0, 40.0, 300.0]})
+        losses = np.zeros((1, 2, 3))
+        losses[0, 1, 0] = 1000.0
+        op = SimpleNamespace(losses_kwh=losses, technologies=np.array(["existing", "induction"], dtype=object),
+                             applies=np.ones((1, 2), dtype=bool), shaft_energy_kwh=np.array([[9500.0, 9000.0]]),
+                             site_ids=np.array(["S1"], dtype=object))
+        sav = SimpleNamespace(saving=np.zeros((1, 2, 4)), baseline_bills=bills)
+        cost = scenario._loss_band_cost_per_yr(op, sav, np.array([11.0]), np.zeros((1, 2)))
+        assert_allclose(cost, [[0.0, 20.33898]], rtol=1e-6)
