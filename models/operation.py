@@ -38,6 +38,12 @@ START_DUTY_SCREEN: dict[str, tuple[float, float]] = {"light": (2.0, 0.2), "norma
 #: Starts per hour and supply dip assumed for the line-start screen (common practice).
 SCREEN_STARTS_PER_HOUR = 2.0
 SCREEN_VOLTAGE_DIP_FRAC = 0.10
+#: Exponent k of an interval's mean shaft power against a replacement's speed, P_new = P_ref (n_new/n_ref)^k, for a
+#: constant-torque load (conveyors, positive-displacement machines): turned faster, such a load does the same work
+#: in less running time (its loaded kW rises with the speed, its energy per unit of product does not), so the
+#: mean power of an interval, which the meter and the bills read, is kept. Common practice for a process whose
+#: throughput is set upstream; a machine that runs fixed hours whatever it delivers would take 1.
+CONSTANT_TORQUE_RISE_EXPONENT = 0.0
 #: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
 #: (rotor copper loss = slip x air-gap power; common practice).
 SLIP_SCALING_BOUNDS = (0.6, 1.0)
@@ -166,6 +172,10 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "rewind_loss": (a["rewind_loss_pct_points"].to_numpy(dtype=float) if "rewind_loss_pct_points" in a
                         else np.full(len(a), induction.DEFAULT_REWIND_LOSS_PCT_POINTS)),
         "exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0, 1.0),
+        # what a speed rise does to the mean power of an interval: the cube for a centrifugal load; nothing for
+        # a constant-torque one, which does the same work in less running time
+        "rise_exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0,
+                                  CONSTANT_TORQUE_RISE_EXPONENT),
         "throttled": speed_control == "throttled",
         "has_drive": speed_control == "drive",
         "static_head": a["static_head_frac"].to_numpy(dtype=float),
@@ -385,7 +395,7 @@ def _coupled(arr, load: _Load, speed_of_new, remedy: str, fixed_speed_rpm=None,
     if remedy in ("trim_or_pulley", "speed_control"):
         speed = fixed_speed_rpm if fixed_speed_rpm is not None else speed_of_new(load.p_ref_kw)
         return load.p_ref_kw, np.broadcast_to(speed, load.p_ref_kw.shape) * load.running
-    exponent = arr["exponent"][:, None]
+    exponent = arr["rise_exponent"][:, None]
     if fixed_speed_rpm is not None:
         p_new = loads.shaft_power_at_speed_kw(load.p_ref_kw, np.where(load.running, load.n_ref_rpm, 1.0),
                                               np.broadcast_to(fixed_speed_rpm, load.p_ref_kw.shape), exponent)

@@ -295,3 +295,23 @@ def test_measured_input_below_the_no_load_input_is_named_not_dropped_silently(tm
     text = hit["flag"].iloc[0]
     assert "in 260 intervals of the analysis year (26 kWh, " in text and " % of the measured energy): counted as stopped" in text, text
     assert not flags["flag"].str.startswith("measured input at or below").loc[flags["asset_id"] != "P1"].any()
+
+
+def test_a_constant_torque_load_turned_faster_does_the_same_work(tmp_path):
+    # A 30 kW compressor (constant torque) at 1,470 rpm: a line-start PM motor turns it at 1,500 rpm and a new IE4
+    # induction motor a little faster than today. Turned faster, a constant-torque load does the same work in
+    # less running time (energy per unit of product unchanged, common practice): the interval's mean shaft power,
+    # hence the yearly shaft energy, is today's (hand reasoning: P_new = P_ref (n_new/n_ref)^0).
+    header = cb.ASSET_HEADER + ["load_type"]
+    row = ["S1", "Compressor", "compressor", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
+           "fixed", "", "6000", "80", "medium", "constant_torque"]
+    cb.write_case(tmp_path, assets=[["K1"] + row], asset_header=header, capacitors=[], duty=[], profiles=[])
+    (tmp_path / "profiles.csv").unlink()
+    case, problems = load_case(tmp_path, mode="strict")
+    assert case is not None, [p.message for p in problems]
+    r = operate(case)
+    keep, lspm, ie4 = (r.option_position(o) for o in ("keep", "lspm", "ie4"))
+    assert r.applies[0, lspm] and r.applies[0, ie4]
+    assert_allclose(r.mean_speed_rpm[0, lspm], 1500.0, rtol=1e-9)
+    assert r.mean_speed_rpm[0, ie4] > r.mean_speed_rpm[0, keep]
+    assert_allclose(r.shaft_energy_kwh[0, [lspm, ie4]], r.shaft_energy_kwh[0, keep], rtol=1e-12)

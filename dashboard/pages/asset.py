@@ -58,7 +58,9 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                             html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
                                    "more power. An impeller trim or a pulley change takes the extra flow and power "
                                    "back (the motor itself still turns faster, as shown). A drive sets the speed: it holds today's "
-                                   "speed, or, where it replaces a throttle or a damper, lowers it to what the duty needs.",
+                                   "speed, or, where it replaces a throttle or a damper, lowers it to what the duty needs. "
+                                   "A constant-torque load (a conveyor, a positive-displacement machine) turned faster "
+                                   "does the same work in less time: its energy is kept, its kW while running rises.",
                                    className="page-intro"),
                             ui.graph(SPEED)], className="panel half")], className="row"),
         html.H3("At end of life"),
