@@ -1253,8 +1253,8 @@ def _loss_band_cost_per_yr(op: OperatingResult, sav: BillSavings, rated_p_kw: np
     The machine's declared losses in the year (its own and, for a wound-field machine, its excitation's; a
     drive's losses have a standard of their own and are left out) times the share of them the IEC 60034-1
     tolerance allows above them at the same output, x / eta' at the machine's yearly efficiency eta (shaft
-    energy over shaft energy plus those losses; :func:`models.efficiency_classes.efficiency_tolerance_losses_frac`),
-    priced at the site's mean price of
+    energy over shaft energy plus those losses;
+    :func:`models.efficiency_classes.efficiency_tolerance_losses_frac`), priced at the site's mean price of
     the energy the run saves: the energy savings over the kWh saved of the site's options that save both
     (the energy charges with their taxes, at the times of use the motors run). A site with no such option
     takes the fleet's mean; a fleet with none, the mean price per kWh of the energy lines of today's bills

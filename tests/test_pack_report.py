@@ -579,8 +579,10 @@ def test_without_a_budget_the_plans_other_choice_is_not_put_down_to_the_budget(d
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, replaced(case.finance, budget_per_yr=()), with_risk=False)
     reasons = select_scope(case, result, plan=True).recommended
-    shared = reasons[reasons["reason_short"].str.contains("shares its saving with the rest of the plan")]
-    assert len(shared) > 0  # the demo has such assets (four at the time of writing)
+    # (the option priced alone either adds less beside the rest of the plan, or its whole value is taken by it)
+    shared = reasons[reasons["reason_short"].str.contains("shares its saving with the rest of the plan|taken by the rest "
+                                                          "of the plan")]
+    assert len(shared) > 0  # the demo has such assets (eleven at the time of writing)
     assert not reasons["reason_short"].str.contains("budget").any()
     assert not reasons["reason"].str.contains("budget").any()
 
