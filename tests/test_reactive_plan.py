@@ -67,7 +67,12 @@ def test_a_plan_started_from_another_holds_no_reactive_project_its_check_withdra
     worthless = value["run_saving_in_plan_per_yr"].to_numpy(dtype=float) < (
         reactive_plan.PLAN_REACTIVE_MIN_SHARE * np.maximum(alone, 0.0))
     assert not worthless.any(), value.loc[worthless, "project_id"].tolist()
-    assert live.plan["npv_at_plan_start"].sum() <= exact.plan["npv_at_plan_start"].sum() * (1 + 1e-9)
+    # The exact plan is proven within 0.01 % of the best plan of its last round of the reactive check; a plan
+    # found from another start can end in a round that withdraws other reactive projects and be worth a little
+    # more (near-tied plans: 0.02 % on the demo at the time of writing). Beyond the live plan's own gap (0.1 %)
+    # the exact plan would be wrong.
+    live_npv, exact_npv = live.plan["npv_at_plan_start"].sum(), exact.plan["npv_at_plan_start"].sum()
+    assert live_npv <= exact_npv * (1 + scenario.LIVE_PLAN.gap_frac)
 
 
 def test_a_round_that_withdraws_from_the_rank_order_plan_only_keeps_the_exact_plan(monkeypatch):
