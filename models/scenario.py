@@ -578,8 +578,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     )
     flows = cf.build_cash_flows(inputs, assumptions)
     band_cost = _loss_band_cost_per_yr(op, sav, rated, energy_saved)
-    loss_band = replace(
-        cf.ProjectInputs(project_id=project_ids), option_life_yr=inputs.option_life_yr,
+    loss_band = cf.ProjectInputs(
+        project_id=project_ids, option_life_yr=inputs.option_life_yr,
         baseline_life_yr=inputs.baseline_life_yr, existing_remaining_life_yr=inputs.existing_remaining_life_yr,
         replace_at_failure=inputs.replace_at_failure,
         # the option's machine at the top of its band (as the savings: the option's own against today's motor)
@@ -1284,9 +1284,9 @@ def _mean_energy_price_of_bills(bills: pd.DataFrame | None) -> float:
     without any."""
     if bills is None or not len(bills) or not {"line_item", "unit", "quantity", "amount"} <= set(bills.columns):
         return 0.0
-    energy = bills["line_item"].astype(str).str.startswith("energy:") & (bills["unit"].astype(str) == "kWh")
-    kwh = float(bills.loc[energy, "quantity"].sum())
-    return float(bills.loc[energy, "amount"].sum()) / kwh if kwh > 0 else 0.0
+    energy = _energy_lines(bills)
+    kwh = float(energy["quantity"].sum())
+    return float(energy["amount"].sum()) / kwh if kwh > 0 else 0.0
 
 
 def _risk(flows, assumptions, results, d, loss_band=None):
@@ -1411,6 +1411,11 @@ def _plan_risk(flows, assumptions, results, plan_frame: pd.DataFrame, d: float, 
     return tornado_rows, summary, draws
 
 
+def _energy_lines(bills: pd.DataFrame) -> pd.DataFrame:
+    """The energy lines of a bill table billed per kWh ("energy:...", not a kVAh-billed energy)."""
+    return bills[bills["line_item"].astype(str).str.startswith("energy:") & (bills["unit"].astype(str) == "kWh")]
+
+
 def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
     """Each asset's site bill per kWh of the site meter [currency/kWh] (the running-cost share rule: a motor
     bears the bill in proportion to its kWh, beside the site's other loads).
@@ -1419,8 +1424,7 @@ def _mean_bill_per_kwh(op, baseline_bills: pd.DataFrame) -> np.ndarray:
     today's motors' kWh. A site with no kWh at all gives 0 (nothing runs, nothing to share)."""
     site_total = baseline_bills.groupby("site_id")["amount"].sum()
     motors_kwh = pd.Series(op.energy_kwh[:, 0]).groupby(op.site_ids).sum().reindex(site_total.index).fillna(0.0)
-    energy_lines = baseline_bills[baseline_bills["line_item"].astype(str).str.startswith("energy:")
-                                  & (baseline_bills["unit"].astype(str) == "kWh")]  # (not a kVAh-billed energy)
+    energy_lines = _energy_lines(baseline_bills)
     meter_kwh = energy_lines.groupby("site_id")["quantity"].sum().reindex(site_total.index).fillna(0.0)
     kwh = meter_kwh.where(meter_kwh > 0, motors_kwh)
     price = (site_total / kwh.where(kwh > 0)).fillna(0.0)

@@ -938,9 +938,9 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         together = plan_bill_saving_per_yr(result.bills)
         own = result.results.set_index(["asset_id", "option_id"])["bill_saving_per_yr"].reindex(
             list(zip(result.plan["asset_id"], result.plan["option_id"]))).to_numpy(dtype=float)
-        shares = (result.plan_status or {}).get("repriced") or {}
-        credited = np.array([float(shares.get(f"{a_id}/{o_id}", 1.0))
-                             for a_id, o_id in zip(result.plan["asset_id"], result.plan["option_id"])])
+        credited = np.array([1.0 if share is None else share
+                             for share in (plan_credit_share(result, a_id, o_id)
+                                           for a_id, o_id in zip(result.plan["asset_id"], result.plan["option_id"]))])
         apart = float(np.nansum(own * credited))
         gap = apart - together if together is not None else 0.0
         if gap > 0.005 * max(abs(apart), 1.0):
