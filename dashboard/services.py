@@ -46,7 +46,7 @@ from models.bill_savings import meter_and_bills, monthly_bill_table, site_setups
 from models.case import default_value, load_case, power_label, rating_in_unit
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
-from models.plan import low_data_quality, option_labels, plan_capital_spent
+from models.plan import low_data_quality, option_labels, plan_capital_spent, plan_purchase_yr
 from models.problems import Problem, error, has_errors, missing_table, ordered
 from models.profiles import asset_loads
 from models.wording import counted, money_text
@@ -1221,13 +1221,11 @@ def asset_choice_text(result, asset_id: str, currency: str) -> str:
         start = int(p["start_yr"])
         bought = (f"The budgeted plan buys: {name}, in plan year {start} "
                   f"(capital {money_text(float(p['capital']), currency)}).")
-        spend = result.capital_spend_by_year
-        if spend is not None and len(chosen):
-            paid = np.flatnonzero(np.asarray(spend, dtype=float)[res.index.get_loc(chosen.index[0])] > 0.005)
-            if len(paid) and paid[0] > 0:  # bought when today's motor fails, not when the project enters the plan
-                bought = (f"The budgeted plan buys: {name}, entered in plan year {start} and bought when today's "
-                          f"motor fails, expected in plan year {start + int(paid[0])} (capital "
-                          f"{money_text(float(p['capital']), currency)}).")
+        purchase = int(plan_purchase_yr(plan_rows.iloc[:1], res, result.capital_spend_by_year)[0])
+        if purchase > start:  # bought when today's motor fails, not when the project enters the plan
+            bought = (f"The budgeted plan buys: {name}, entered in plan year {start} and bought when today's "
+                      f"motor fails, expected in plan year {purchase} (capital "
+                      f"{money_text(float(p['capital']), currency)}).")
     else:
         why = str(_plan_buys(result, best.iloc[:1], np.array([""], dtype=object))[0])
         bought = ("The budgeted plan buys " + why.replace("nothing: ", "nothing for it: ", 1) + "."
@@ -1245,6 +1243,9 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
     planned = result.plan.set_index("asset_id") if len(result.plan) else pd.DataFrame(
         columns=["option_id", "start_yr", "capital"], index=pd.Index([], name="asset_id"))
     plan_year = planned["start_yr"]
+    # the plan year its capital is spent: later than its plan year for a motor replaced when it fails
+    bought_yr = pd.Series(plan_purchase_yr(result.plan, res, result.capital_spend_by_year) if len(result.plan)
+                          else np.zeros(0), index=planned.index, dtype=float)
     labels = res.drop_duplicates("option_id").set_index("option_id")["label"]
     plan_option = planned["option_id"].map(labels)
     out = pd.DataFrame({
@@ -1269,6 +1270,7 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
         "plan_option": _plan_buys(result, best, plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object)),
         "plan_year": plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
+        "plan_bought_yr": bought_yr.reindex(best["asset_id"]).to_numpy(dtype=float),
         "plan_capital": planned["capital"].reindex(best["asset_id"]).to_numpy(dtype=float),
     })
     if sites:

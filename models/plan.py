@@ -836,6 +836,33 @@ def plan_spend_by_year(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_
     return by_year, float(spend.sum() - by_year.sum())
 
 
+def plan_purchase_yr(plan_frame: pd.DataFrame, results: pd.DataFrame,
+                     capital_spend_by_year: np.ndarray | None) -> np.ndarray:
+    """The plan year each plan project's capital is first spent (its purchase), shape (len(plan_frame),).
+
+    A project started in plan year s whose first capital falls in its project year k is bought in plan
+    year s + k: a motor replaced when it fails is bought the year it is expected to fail, not the year its
+    project enters the plan. A project without capital, or without the capital by project year
+    (``capital_spend_by_year`` None), counts its start year.
+
+    Examples
+    --------
+    >>> res = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "x"]})
+    >>> plan = pd.DataFrame({"asset_id": ["A", "B"], "option_id": ["x", "x"], "start_yr": [1, 2]})
+    >>> plan_purchase_yr(plan, res, np.array([[0.0, 0.0, 5.0], [2.0, 0.0, 0.0]])).tolist()
+    [3, 2]
+    """
+    start = plan_frame["start_yr"].to_numpy(dtype=int) if len(plan_frame) else np.zeros(0, dtype=int)
+    if capital_spend_by_year is None or not len(plan_frame):
+        return start
+    rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
+    if (rows < 0).any():
+        raise ValueError("the plan holds a project the results do not")
+    paid = np.asarray(capital_spend_by_year, dtype=float)[rows] > 0.005  # (half a cent: a rounding residue is no outlay)
+    first = np.where(paid.any(axis=1), paid.argmax(axis=1), 0)
+    return start + first
+
+
 def plan_capital_spent(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_spend_by_year: np.ndarray | None,
                        n_years: int) -> tuple[np.ndarray, float]:
     """A plan's gross capital spent in each of its first ``n_years`` plan years, and after them [currency].

@@ -1345,7 +1345,11 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
         out = risk.monte_carlo(amounts, names, factors, response, d, tax_rate_frac=assumptions.tax_rate_frac)
         return float(risk.portfolio_npv(out.npv, out.discount_rate_frac, start, add)[0])
 
-    tornado_rows = risk.tornado(portfolio, base, TORNADO_RANGES)
+    ranges = TORNADO_RANGES
+    if risk.LOSS_BAND_COMPONENT not in names or not np.any(amounts[:, :, names.index(risk.LOSS_BAND_COMPONENT)]):
+        # no project puts a new machine in service: the band moves nothing, and a bar of nil is not shown
+        ranges = {k: v for k, v in TORNADO_RANGES.items() if k != risk.LOSS_BAND_FACTOR}
+    tornado_rows = risk.tornado(portfolio, base, ranges)
     factors = risk.draw_factors(int(assumptions.monte_carlo_draws), int(assumptions.monte_carlo_seed))
     held = np.full(len(rows), -1)
     if known is not None:

@@ -1012,3 +1012,15 @@ def test_the_asset_page_says_when_a_motor_replaced_at_failure_is_bought(demo_run
     text = services.asset_choice_text(r, asset_id, "EUR")
     assert (f"entered in plan year {start} and bought when today's motor fails, expected in plan year "
             f"{start + wait}") in text
+    # the Fleet table says the same: the plan year and the plan year it is bought, each project's first outlay
+    # (read above from the capital by project year), and shows that column only when some purchase is later
+    from dashboard import app as _shell  # noqa: F401 - the app first: pages register on it
+    from dashboard.pages import fleet
+
+    table = services.ranked_assets(types.SimpleNamespace(case=case, power_unit="kW"), r).set_index("asset_id")
+    for a, s_, w in later:
+        assert table.loc[a, "plan_year"] == s_ and table.loc[a, "plan_bought_yr"] == s_ + w
+    on_time = [a for a, s_ in zip(r.plan["asset_id"], r.plan["start_yr"]) if a not in {x[0] for x in later}]
+    assert all(table.loc[a, "plan_bought_yr"] == table.loc[a, "plan_year"] for a in on_time)
+    assert "plan_bought_yr" in {c["field"] for c in fleet.table_columns("EUR", "kW", True)}
+    assert "plan_bought_yr" not in {c["field"] for c in fleet.table_columns("EUR", "kW")}

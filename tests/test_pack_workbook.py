@@ -207,6 +207,25 @@ class TestFormulasReproduceTheEngine:
             got = [as_float(values[("CASH FLOWS", f"{chr(ord('B') + t)}{net_row}")]) for t in range(16)]
             assert_allclose(got, expected, rtol=1e-12, atol=1e-9)  # same doubles summed: rounding only
 
+    def test_differences_of_rounding_read_zero_not_minus_zero(self, values, blocks, asset_pack):
+        # The "Difference" column (workbook formula less engine) is rounded to a millionth: two sums of the
+        # same doubles in another order differ by about 1e-10, which a money format would show as "-0.00".
+        # (A spreadsheet has no negative zero; the value stored beside the formula, which readers that do not
+        # recalculate show, must not carry one either.)
+        ws = load_workbook(asset_pack)["Cash flows"]
+        stored = load_workbook(asset_pack, data_only=True)["Cash flows"]
+        seen = 0
+        for rows in blocks.values():
+            mr = rows["NPV at the discount rate"]
+            got, kept = values[("CASH FLOWS", f"D{mr}")], stored.cell(mr, 4).value
+            assert ws.cell(mr, 4).value.startswith("=IF(") and "ROUND(" in ws.cell(mr, 4).value
+            if isinstance(got, float):
+                assert abs(got) < 0.01, got
+                assert isinstance(kept, (int, float)) and abs(kept) < 0.01, kept
+                assert kept != 0.0 or math.copysign(1.0, kept) > 0, kept
+                seen += 1
+        assert seen > 0
+
     def test_npv_of_every_project(self, values, blocks, small):
         _, result = small
         for r in result.results[result.results["option_id"] != "keep"].itertuples():
@@ -326,6 +345,15 @@ def test_a_plan_replaced_at_failure_counts_capital_in_the_year_it_is_spent(tmp_p
     rows = [[c["text"] for c in r["cells"]] for r in ctx["plan_rows"]]
     assert [r[0] for r in rows] == [str(y) for y in range(len(budgets))] + ["later"]
     assert [float(r[2].replace(",", "")) for r in rows] == [round(v) for v in expected] + [round(later)]
+    # the decision table names the year the motor is bought beside its plan year (the first capital row above)
+    first = capital[capital["amount"] < 0].assign(plan_year=plan_year).groupby("asset_id")["plan_year"].min()
+    start = result.plan.set_index("asset_id")["start_yr"]
+    waiting = [a for a in first.index if first[a] > start[a]]
+    assert waiting
+    decision = {r["cells"][0]["text"]: r["cells"][3]["text"] for r in ctx["decision_rows"]}
+    for a in waiting:
+        assert decision[a] == f"{int(start[a])}, bought {int(first[a])}", decision[a]
+    assert 'read "n, bought m"' in ctx["measures_text"]
 
 
 class TestInjectionGuard:
@@ -444,6 +472,13 @@ def test_plan_and_risk_sheets_speak_in_words(plan_pack):
     # the end-of-life costs come with the failure law's caution
     sheet = " ".join(str(c.value) for r in book["End of life"].iter_rows() for c in r if c.value is not None)
     assert "not a forecast of when this motor will fail" in sheet and "each past rewind shortens" in sheet
+
+
+def test_the_checks_sheet_says_yes_or_no_as_the_other_sheets_do(plan_pack):
+    ws = load_workbook(plan_pack)["Checks"]
+    assert ws.cell(4, 4).value == "Recommended"
+    column = [ws.cell(r, 4).value for r in range(5, ws.max_row + 1) if ws.cell(r, 1).value is not None]
+    assert column and set(column) <= {"yes", "no"} and "yes" in column, column
 
 
 def risk_tables(book) -> dict[str, list[dict[str, object]]]:

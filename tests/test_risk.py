@@ -353,6 +353,22 @@ class TestNewMachinesLossBand:
         row = tornado.set_index("variable").loc[risk.LOSS_BAND_FACTOR]
         assert_allclose(row["npv_at_low"] - row["npv_at_high"], expected_difference, rtol=1e-8)
 
+    def test_a_case_without_a_new_machine_shows_no_tolerance_bar(self):
+        # A capacitor bank alone (no new machine: its band is nil) or no band given: the tolerance moves
+        # nothing, so the tornado has no bar for it; the other inputs keep theirs.
+        from models import scenario
+        from models.cashflows import build_cash_flows as build
+
+        a = FinanceAssumptions(horizon_yr=3, discount_rate_frac=0.10, monte_carlo_draws=3)
+        project = ProjectInputs(project_id=["M1/cap"], capex_equipment=500.0, savings_energy_per_yr=1000.0,
+                                option_life_yr=20.0, existing_remaining_life_yr=1.0)
+        nil = ProjectInputs(project_id=["M1/cap"], option_life_yr=20.0, existing_remaining_life_yr=1.0)
+        flows = build(project, a)
+        for band in (None, nil):
+            tornado = scenario._risk_of_rows(flows, a, np.array([0]), 0.10, loss_band=band)[0]
+            assert risk.LOSS_BAND_FACTOR not in set(tornado["variable"])
+            assert set(tornado["variable"]) == set(scenario.TORNADO_RANGES) - {risk.LOSS_BAND_FACTOR}
+
     def test_a_failed_motor_whose_least_repair_is_a_new_machine(self, tmp_path):
         # A failed motor is counted against the least that puts it back in service (here a new IE3 motor: the
         # rewind is priced out). The IE4 option's band flow is then its own machine's band less the IE3 motor's,

@@ -18,7 +18,7 @@ from plotly.offline import get_plotlyjs
 
 from models.case import power_label, rating_in_unit
 from models.pack import content, figures, templates
-from models.plan import option_labels, plan_capital_spent
+from models.plan import option_labels, plan_capital_spent, plan_purchase_yr
 from models.reactive_plan import withdrawn_text
 from models.scenario import plan_bill_saving_per_yr
 from models.wording import counted
@@ -145,13 +145,18 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
+    # a motor replaced when it fails is bought after its project enters the plan: the year it is bought beside
+    bought = dict(zip(result.plan["asset_id"], plan_purchase_yr(result.plan, result.results,
+                                                                  result.capital_spend_by_year))) if len(result.plan) else {}
     decision_rows = []
     for r in rec.itertuples(index=False):
         is_keep = r.option_id == r.keep_option_id
         npv_start = float(r.plan_npv_at_start)
+        year = int(r.plan_start_yr)
+        later = int(bought.get(r.asset_id, year))
         decision_rows.append(row([
             cell(r.asset_id, "id"), cell(assets.loc[r.asset_id, "description"] or ""), cell(r.label),
-            cell(int(r.plan_start_yr) if r.in_plan else "-", "num"),
+            cell((f"{year}, bought {later}" if later > year else year) if r.in_plan else "-", "num"),
             num(0.0 if is_keep else r.capital), num(0.0 if is_keep else r.bill_saving_per_yr + r.saving_maintenance_per_yr),
             num(0.0 if is_keep else npv_start),
             cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon,
@@ -314,7 +319,11 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "decision_headers": ["Asset", "Description", "Recommended", "Plan year", f"Capital [{cur}]",
                              f"Saving [{cur}/yr]", f"NPV at plan start [{cur}]", "Simple payback [yr]", "CO2 [t/yr]", "Why"],
         "decision_rows": decision_rows, "decision_numeric": (3, 4, 5, 6, 7, 8),
-        "measures_text": content.measures_text(a),
+        "measures_text": content.measures_text(a) + (
+            " A plan year read \"n, bought m\": the project enters the plan in year n and today's motor, replaced when it "
+            "fails, is bought in plan year m, the year its capital is spent (as section 7 counts it)."
+            if any(bought.get(a_id, 0) > int(y) for a_id, y in zip(result.plan["asset_id"], result.plan["start_yr"]))
+            else ""),
         "asset_headers": ["Asset", "Description", "Site", "Application", power_label(s.power_unit), "Poles", "Class", "Installed", "Rewinds",
                           "Control", "Criticality", "Data quality"],
         "asset_rows": asset_rows, "asset_numeric": (4, 5, 7, 8, 11),

@@ -603,9 +603,10 @@ def write_project_block(ws: Worksheet, row: int, title: str, table: pd.DataFrame
         put_formula(ws, mr, 2, expr, fmt, computed[name])
         put(ws, mr, 3, engine.get(name), fmt)
         workbook_v, engine_v = computed[name], engine.get(name)
-        difference = (workbook_v - engine_v if _is_number(workbook_v) and _is_number(engine_v)
+        # rounded to a millionth: a difference of rounding (1e-10) reads 0, not "-0.00"
+        difference = (round(workbook_v - engine_v, 6) + 0.0 if _is_number(workbook_v) and _is_number(engine_v)
                       else "" if workbook_v is not None else None)
-        put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),B{mr}-C{mr},"")', fmt, difference)
+        put_formula(ws, mr, 4, f'=IF(AND(ISNUMBER(B{mr}),ISNUMBER(C{mr})),ROUND(B{mr}-C{mr},6),"")', fmt, difference)
         rows[name] = mr
     rows["values"] = computed
     put_text(ws, guess, 1, "IRR search start (year-1 flow / investment)")
@@ -689,7 +690,7 @@ def _checks(ws: Worksheet, blocks: list[dict], f: _Formats) -> None:
         put_text(ws, row, 1, b["asset_id"])
         put_text(ws, row, 2, b["option_id"])
         put_text(ws, row, 3, str(b["label"]))
-        put(ws, row, 4, b["recommended"])
+        put_text(ws, row, 4, "yes" if b["recommended"] else "no")  # (as the other sheets write it, not TRUE/FALSE)
         pairs, matches = [], []
         for k, (name, fmt) in enumerate((("npv", f.money2), ("irr", f.frac), ("payback", f.years),
                                          ("discounted_payback", f.years))):
