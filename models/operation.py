@@ -1132,7 +1132,7 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     else:
         interval_rows, values, is_input, states, notes = asset_loads(block, index)
     groups = _load_groups(arr_all, existing_all, interval_rows, values, is_input, states, n_t, interval_h)
-    idle = _measured_below_no_load(groups, values, is_input, interval_h)
+    idle = _measured_below_no_load(groups, values, is_input, interval_h) + _throttled_below_zero_flow(groups)
     del values
     # interval assets with long profiles: each option's curve on a grid of loads, interpolated per interval
     grids = {}
@@ -2289,6 +2289,33 @@ def _measured_below_no_load(groups: list[tuple], values: np.ndarray, is_input, i
                                        f"({kwh:,.0f} kWh, {100 * kwh / total:.2g} % of the measured energy): counted as "
                                        "stopped, so that energy is in no option (an idling motor reads as stopped); "
                                        "check the logger's scaling and the nameplate"))
+    return out
+
+
+def _throttled_below_zero_flow(groups: list[tuple]) -> list[tuple[int, str]]:
+    """Cautions for the throttled pumps and fans whose shaft load falls below their zero-flow power
+    (:data:`models.loads.DEFAULT_THROTTLED_ZERO_FLOW_POWER_FRAC` of the design power) in some of their running
+    hours: the flow read from the throttled power is nil there, so the speed-control options are taken at zero
+    flow whatever the load was. (block row, caution text) per asset."""
+    out = []
+    zero_flow = loads.DEFAULT_THROTTLED_ZERO_FLOW_POWER_FRAC
+    for kind, rows_, arr, _existing, load in groups:
+        throttled = np.flatnonzero(np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0))
+        if not len(throttled):
+            continue
+        below = (load.p_ref_kw[throttled] < zero_flow * load.p_design_kw[throttled]) & load.running[throttled]
+        if not below.any():
+            continue
+        weight = np.broadcast_to(load.weight_h, load.running.shape)[throttled]
+        below_h = np.where(below, weight, 0.0).sum(axis=1)
+        running_h = np.where(load.running[throttled], weight, 0.0).sum(axis=1)
+        for k in np.flatnonzero(below_h > 0):
+            share = 100 * below_h[k] / running_h[k]
+            out.append((int(rows_[throttled[k]]),
+                        f"throttled load below the zero-flow power ({100 * zero_flow:.0f} % of design power) in "
+                        f"{share:.2g} % of running hours ({below_h[k]:,.0f} h): the flow read from it is nil there, "
+                        "so the speed-control options are taken at zero flow in those hours; check the design "
+                        "power and the throttling"))
     return out
 
 

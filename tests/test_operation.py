@@ -297,6 +297,31 @@ def test_measured_input_below_the_no_load_input_is_named_not_dropped_silently(tm
     assert not flags["flag"].str.startswith("measured input at or below").loc[flags["asset_id"] != "P1"].any()
 
 
+def test_a_throttled_load_below_its_zero_flow_power_is_named(tmp_path):
+    # P1 is a throttled 15 kW pump; its design shaft power is the larger of its peak load and 90 % of its rating,
+    # 13.5 kW (hand: 0.9 x 15; the peak, 80 % of 15 = 12 kW, is lower). Its zero-flow power is 40 % of that
+    # (common practice, from memory): 5.4 kW, so a load of 30 % of rating (4.5 kW) reads as no flow. Hand count:
+    # the two measured days (Thursday 2 and Friday 3 January 2025) stand for their weekdays; 2025 has 52
+    # Thursdays, each with 6 hours at 30 %: 312 h.
+    folder = cb.write_case(tmp_path / "c")
+    rows = ["profile_id,timestamp,shaft_load_pct"]
+    for k in range(48):
+        day, hour = divmod(k, 24)
+        rows.append(f"LP1,2025-01-{2 + day:02d} {hour:02d}:00,{30 if k < 6 else 80}")
+    (folder / "profiles.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    flags = operate(case).flags
+    hit = flags[flags["flag"].str.startswith("throttled load below the zero-flow power")]
+    assert list(hit["asset_id"]) == ["P1"] and hit["option_id"].iloc[0] == ""
+    assert "(40 % of design power)" in hit["flag"].iloc[0] and "(312 h)" in hit["flag"].iloc[0], hit["flag"].iloc[0]
+    # the same pump never below 40 % of its design power: nothing said
+    rows = [r.replace(",30", ",50") for r in rows]
+    (folder / "profiles.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, _ = load_case(folder)
+    assert not operate(case).flags["flag"].str.startswith("throttled load below").any()
+
+
 def test_a_constant_torque_load_turned_faster_does_the_same_work(tmp_path):
     # A 30 kW compressor (constant torque) at 1,470 rpm: a line-start PM motor turns it at 1,500 rpm and a new IE4
     # induction motor a little faster than today. Turned faster, a constant-torque load does the same work in
