@@ -235,6 +235,12 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     if spent["exact"][1] > 0.005 or spent["greedy"][1] > 0.005:  # replacements at failure, repeat purchases
         plan_rows.append(row([cell("later", "num"), cell("not budgeted", "num na"), num(spent["exact"][1]), cell(""),
                               cell(""), num(spent["greedy"][1]), cell(""), cell("")]))
+    if len(plan_rows) > 1:  # the plans' totals, later spend included (as the workbook's Plan sheet)
+        plan_rows.append(row([cell("Total", "num"), num(float(sum(budgets))) if budgets else cell("no limit", "num na"),
+                              num(float(spent["exact"][0].sum() + spent["exact"][1])), cell(len(result.plan), "num"),
+                              num(float(result.plan["npv_at_plan_start"].sum())),
+                              num(float(spent["greedy"][0].sum() + spent["greedy"][1])), cell(len(result.plan_greedy), "num"),
+                              num(float(result.plan_greedy["npv_at_plan_start"].sum()))]))
     comp = result.plan_comparison
     withdrawn = withdrawn_text(result.plan_status, labels=labels)
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
@@ -332,7 +338,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                         if failed_ids else ""),
         "matrix_headers": ["Asset"] + [labels.get(o, o) for o in option_ids], "matrix_rows": matrix_rows,
         "matrix_numeric": tuple(range(1, len(option_ids) + 1)),
-        "flow_headers": ["Plan year", "Net", "Cumulative", "Discounted", "Cumulative discounted"], "flow_rows": flow_rows,
+        "flow_headers": ["Plan year", f"Net [{cur}]", f"Cumulative [{cur}]", f"Discounted [{cur}]",
+                         f"Cumulative discounted [{cur}]"], "flow_rows": flow_rows,
         "flow_note": flow_note,
         "flow_numeric": (0, 1, 2, 3, 4),
         "tornado_note": content.tornado_text(unc), "plan_npv_note": content.plan_npv_text(unc, cur),
