@@ -17,6 +17,8 @@ MAX_REQUEST_BYTES = services.MAX_UPLOAD_BYTES * 3
 
 CASE_LABEL = "app-case-label"
 NAV_LINK = "app-nav"
+#: A space no line break may fall on.
+NO_BREAK = "\u00a0"
 
 app = Dash(__name__, use_pages=True, pages_folder="", title="drivecase", update_title=None,
            suppress_callback_exceptions=True)
@@ -73,7 +75,9 @@ def show_case(session, edits):
     v = services.view(session, edits)
     a = v.assumptions
     budget = ("no budget limit" if not a.budget_per_yr else
-              f"budget {len(a.budget_per_yr)} yr, {components.fmt_money(sum(a.budget_per_yr), v.currency)} in all")
+              # (no line break inside an amount: "EUR 650.0 k" stays on one line when the bar wraps)
+              f"budget {len(a.budget_per_yr)} yr, "
+              f"{components.fmt_money(sum(a.budget_per_yr), v.currency).replace(' ', NO_BREAK)} in all")
     terms = [v.currency, f"ratings in {v.power_unit}", f"discount {a.discount_rate_frac * 100:g} %", f"{a.horizon_yr} yr",
              budget, *services.assumption_differences(v)]
     parts = [html.Strong(v.entry.name), html.Span(" (invented)" if v.case.settings.mark_invented else ""),

@@ -33,7 +33,8 @@ SCENARIOS_STORE = "app-scenarios"
 #: Cautions shown in the footer of every page.
 CAUTIONS: tuple[str, ...] = (
     "Planning estimates only, not a design: confirm ratings, prices and savings with suppliers before committing money.",
-    "Electrical work must be done by qualified persons under local codes and the utility's rules.",
+    "Electrical work must be done by qualified persons under lockout/tagout and arc-flash rules, local codes and "
+    "the utility's rules.",
     "A permanent-magnet motor generates voltage whenever its shaft turns, even when disconnected.",
     "Capacitors hold their charge after disconnection and never belong on a drive's output.",
     "A faster machine can overload a pump or fan: check the driven load before a replacement.",

@@ -101,7 +101,9 @@ def option_colour_map(keys) -> dict[str, str]:
 #: Bars of the abatement curve narrower than this share of the tonnes avoided do not set its axis.
 ABATEMENT_VISIBLE_SHARE = 0.002
 #: The abatement curve's title: which option of each asset its bar is (see :func:`abatement_curve`).
-ABATEMENT_TITLE = "Abatement cost curve of each asset's highest-NPV option that avoids CO2 (below zero: saves money)"
+ABATEMENT_TITLE = "Abatement cost curve (below zero: saves money)"
+#: What the bars are, under the title (a line of its own: the whole sentence is cut in a narrow window).
+ABATEMENT_SUBTITLE = "each asset's highest-NPV option that avoids CO2"
 
 
 def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
@@ -119,7 +121,7 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     -----
     One bar per asset: of its options that avoid CO2, the one with the highest NPV
     (``models.plan.abatement_curve``). That is not always the asset's best option, which may avoid none;
-    the title says which option it is (:data:`ABATEMENT_TITLE`).
+    the subtitle says which option it is (:data:`ABATEMENT_SUBTITLE`).
     """
     if abatement is None or abatement.empty:
         return message_figure("No option avoids CO2 in this case.")
@@ -150,7 +152,10 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
                            showarrow=False, font=dict(size=11, color=INK))
     fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
     fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
-    return _style(fig, ABATEMENT_TITLE)
+    _style(fig, ABATEMENT_TITLE)
+    fig.update_layout(title_subtitle=dict(text=ABATEMENT_SUBTITLE, font=dict(size=12, color=MUTED)),
+                      margin_t=64)
+    return fig
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -469,9 +474,10 @@ def meter_week(week: dict[str, pd.DataFrame]) -> go.Figure:
     fig.add_hline(y=0, line=dict(color=INK, width=0.8), row=2, col=1)
     fig.update_yaxes(title_text="Active [kW]", row=1, col=1)
     fig.update_yaxes(title_text="Reactive [kVAr]", row=2, col=1)
-    fig.update_yaxes(title_text="Power factor [-]<br>leading where kVAr < 0", row=3, col=1)
+    # (the power factor's sense in the title: a second line on the short third axis is cut in a narrow window)
+    fig.update_yaxes(title_text="Power factor [-]", row=3, col=1)
     fig.update_xaxes(title_text="Local time", row=3, col=1)
-    return _style(fig, "Site meter over one week", height=600)
+    return _style(fig, "Site meter over one week (power factor leading where kVAr < 0)", height=600)
 
 
 def pf_duration(curve: pd.DataFrame) -> go.Figure:

@@ -175,7 +175,8 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     unpriced = [str(r.site_id) for r in entry.case.sites.itertuples(index=False)
                 if r.tariff_file is None or r.tariff_file not in entry.case.tariffs]
     if unpriced:  # every page prices the sites' bills: a case that cannot be priced would show empty pages
-        print(f"drivecase serve: the case {path} cannot be priced: no tariff for site(s) {', '.join(unpriced)} "
+        print(f"drivecase serve: the case {path} cannot be priced: no tariff for "
+              f"{'site' if len(unpriced) == 1 else 'sites'} {', '.join(unpriced)} "
               "(sites.csv, column tariff_file; docs/tariffs.md).", file=sys.stderr)
         _print_problems(problems)
         return 1

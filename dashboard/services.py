@@ -1052,10 +1052,27 @@ def _form_field_problem(name: str, value) -> str:
     return ""
 
 
-def assumption_notes(edits: dict | None) -> str:
-    """A caution about edits that are accepted but unusual ("" when there is none)."""
+def assumption_notes(edits: dict | None, own=None) -> str:
+    """A caution about edits that are accepted but unusual ("" when there is none).
+
+    ``own`` (the case's own :class:`models.finance.FinanceAssumptions`) stands for what the edits leave as the
+    case has it: a budget of more plan years than the horizon is told whichever of the two was edited."""
     if not isinstance(edits, dict):
         return ""
+    notes = [note for note in (_rate_note(edits), _budget_years_note(edits, own)) if note]
+    return " ".join(notes)
+
+
+def _budget_years_note(edits: dict, own) -> str:
+    horizon = edits.get("horizon_yr", getattr(own, "horizon_yr", None))
+    budget = edits.get("budget_per_yr", getattr(own, "budget_per_yr", None)) or ()
+    if horizon is None or len(budget) <= int(horizon):
+        return ""
+    return (f"The budget has {counted(len(budget), 'plan year')}, more than the {counted(int(horizon), 'year')} of "
+            "the horizon: a project started in a later year has no year left to save in.")
+
+
+def _rate_note(edits: dict) -> str:
     rate = edits.get("discount_rate_pct")
     if rate is None:
         return ""
@@ -1182,8 +1199,11 @@ def measure_text(view_: View, result, asset_id: str) -> str:
             "and hours for 1-4 weeks costing less than that is worth doing first.")
 
 
-def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
-    """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays."""
+def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray, plan_yr: np.ndarray | None = None,
+               purchase_yr: np.ndarray | None = None) -> np.ndarray:
+    """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays;
+    with the plan years and the plan years each is bought (:func:`models.plan.plan_purchase_yr`), a motor
+    bought after its plan year (replaced when today's motor fails) says when."""
     status = result.plan_status or {}
     taken = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
     label = (best["asset_id"].astype(str) + "/" + best["option_id"].astype(str)).to_numpy(dtype=object)
@@ -1196,6 +1216,12 @@ def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray) -> np.ndarray:
     why = np.where(np.isin(label, list(taken)), "nothing: its value is taken by the plan's other projects",
                    np.where(pays, "nothing: outside the budget",
                             np.where(none_fits, "nothing: no option of the catalogue applies (see the asset's page)", "")))
+    bought = np.asarray(bought, dtype=object)
+    if plan_yr is not None and purchase_yr is not None:
+        later = np.flatnonzero((bought != "") & (np.nan_to_num(purchase_yr, nan=-1) > np.nan_to_num(plan_yr, nan=-1)))
+        bought = bought.copy()
+        for i in later:
+            bought[i] = f"{bought[i]}, bought when today's motor fails (plan year {int(purchase_yr[i])})"
     return np.where(bought != "", bought, why).astype(object)
 
 
@@ -1268,7 +1294,9 @@ def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.Data
         "saving_per_yr": (best["bill_saving_per_yr"] + best["saving_maintenance_per_yr"]).to_numpy(dtype=float),
         "co2_avoided_t_per_yr": best["co2_avoided_t_per_yr"].to_numpy(dtype=float),
         "data_quality_pct": assets["data_quality_pct"].reindex(best["asset_id"]).to_numpy(dtype=float),
-        "plan_option": _plan_buys(result, best, plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object)),
+        "plan_option": _plan_buys(result, best, plan_option.reindex(best["asset_id"]).fillna("").to_numpy(dtype=object),
+                                  plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
+                                  bought_yr.reindex(best["asset_id"]).to_numpy(dtype=float)),
         "plan_year": plan_year.reindex(best["asset_id"]).to_numpy(dtype=float),
         "plan_bought_yr": bought_yr.reindex(best["asset_id"]).to_numpy(dtype=float),
         "plan_capital": planned["capital"].reindex(best["asset_id"]).to_numpy(dtype=float),
@@ -1303,6 +1331,25 @@ def asset_choices(view_: View) -> list[dict]:
             for r in a.itertuples(index=False)]
 
 
+#: How close to the best plan a live edit's plan is proven [%] (:data:`models.scenario.LIVE_PLAN`).
+LIVE_PLAN_GAP_PCT = 100.0 * scenario.LIVE_PLAN.gap_frac
+
+
+def performance_note(view_: View, result, asset_id: str) -> str:
+    """The note under an asset's efficiency and power-factor chart: against what load the curves are drawn, and,
+    for a throttled pump or fan one of whose options puts it on a drive, that the drive runs a lower load."""
+    from models.options import DRIVE_TECHNOLOGIES
+
+    note = "Against today's shaft load."
+    assets = view_.case.assets.set_index("asset_id")
+    res = result.results[result.results["asset_id"] == asset_id]
+    if (asset_id in assets.index and str(assets.loc[asset_id, "speed_control"]) == "throttled"
+            and res["technology"].isin(DRIVE_TECHNOLOGIES).any()):
+        note += (" A drive that replaces the throttle runs the flow's own, lower load (flat below the zero-flow "
+                 "load).")
+    return note
+
+
 def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
     """Every applicable option of one asset, side by side."""
     res = result.results[result.results["asset_id"] == asset_id]
@@ -1323,6 +1370,8 @@ def asset_options(view_: View, result, asset_id: str) -> pd.DataFrame:
         "payback_lost_again": (res["discounted_payback_lost_again"].to_numpy(dtype=bool)
                                if "discounted_payback_lost_again" in res else np.zeros(len(res), dtype=bool)),
         "energy_kwh_per_yr": res["energy_kwh_per_yr"].to_numpy(dtype=float),
+        # (in MWh as the speed and energy chart beside the table shows it)
+        "energy_mwh_per_yr": res["energy_kwh_per_yr"].to_numpy(dtype=float) / 1000.0,
         "mean_speed_rpm": res["mean_speed_rpm"].to_numpy(dtype=float),
         "life_cycle_cost": res["life_cycle_cost"].to_numpy(dtype=float),
         "best": res["best_for_asset"].to_numpy(dtype=bool),
@@ -2222,7 +2271,7 @@ def fleet_rules_scope_text(result, rated_p_kw, currency: str, power_unit: str = 
     above = int(np.sum(rated > high_kw * (1.0 + 1e-9)))
     low, high = (round(float(rating_in_unit(v, power_unit)), 2) for v in (low_kw, high_kw))
     downtime = float(result.assumptions.downtime_cost_per_h)
-    text = (f"It covers standard ratings from {low:g} to {high:g} {power_label(power_unit)}"
+    text = (f"It covers standard ratings from {low:,.10g} to {high:,.10g} {power_label(power_unit)}"  # (1,000 as the grid)
             + (f"; {above} motor{'s' if above != 1 else ''} of the case {'are' if above != 1 else 'is'} larger and "
                f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above"
                if above else "")

@@ -17,6 +17,8 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from models.wording import counted
+
 #: Quantities compared, with the unit each is in (the bill history's columns).
 QUANTITIES: dict[str, str] = {"energy_kwh": "kWh", "peak_kw": "kW", "reactive_kvarh": "kVArh", "amount": "currency"}
 #: Monthly calibration criteria [%]: |NMBE| at most 5 % and CV(RMSE) at most 15 % (ASHRAE Guideline 14-2014,
@@ -209,20 +211,21 @@ def summary_text(row, brief: bool = False) -> str:
             "amount": "bill total"}[row["quantity"]]
     if not np.isfinite(row["nmbe_pct"]):
         if int(row["n_months"]) > PARAMETERS_P and not float(row["billed_total"]) > 0:
-            return f"{what}: billed as 0 in each of {int(row['n_months'])} month(s), nothing to judge the fit by"
-        return f"{what}: {int(row['n_months'])} month(s) billed, too few to judge the fit"
+            return f"{what}: billed as 0 in each of {counted(row['n_months'], 'month')}, nothing to judge the fit by"
+        return f"{what}: {counted(row['n_months'], 'month')} billed, too few to judge the fit"
     within = "within" if row["within_criteria"] else "outside"
     if brief:  # the statistics the criteria judge, beside them
         return (f"{what} NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} % over "
-                f"{int(row['n_months'])} month(s), {within} the criteria")
+                f"{counted(row['n_months'], 'month')}, {within} the criteria")
     # the plain bias of the totals in words; the statistics (their (n - p) form) in brackets
     billed, modelled = float(row["billed_total"]), float(row["modelled_total"])
     bias_pct = 100.0 * (modelled - billed) / billed if billed > 0 else np.nan
     side = "above" if bias_pct > 0 else "below"
     verdict = f"{within} the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)"
     few = " (the criteria are meant for a year of bills)" if int(row["n_months"]) < 12 else ""
-    return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over {int(row['n_months'])} "
-            f"month(s) (NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} %), {verdict}{few}")
+    return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over "
+            f"{counted(row['n_months'], 'month')} (NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} %), "
+            f"{verdict}{few}")
 
 
 def calibrate(case, op) -> tuple[pd.DataFrame, pd.DataFrame]:

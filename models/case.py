@@ -856,14 +856,14 @@ def _profile_values(series: pd.Series, column: str, source: str, rows: np.ndarra
             numeric[bad[comma]] = pd.to_numeric(text[comma].str.replace(",", ".", regex=False)).to_numpy(dtype=float)
             repaired = bad[comma]
             problems.append(warning(source, int(rows[repaired[0]]), header, None,
-                                    f"decimal commas were read as decimal points ({int(comma.sum())} cell(s): "
+                                    f"decimal commas were read as decimal points ({counted(comma.sum(), 'cell')}: "
                                     f"{_rows_shown(rows[repaired].tolist(), list(cells[comma].iloc[:5]))})",
                                     "use a point as decimal mark"))
         dropped = signed & (comma | ~np.isnan(plain)) if in_percent else np.zeros(len(bad), dtype=bool)
         if dropped.any():
             first = int(np.flatnonzero(dropped)[0])
             problems.append(warning(source, int(rows[bad[first]]), header, None,
-                                    f"% signs were dropped in {int(dropped.sum())} cell(s) of '{column}', which is in "
+                                    f"% signs were dropped in {counted(dropped.sum(), 'cell')} of '{column}', which is in "
                                     f"percent ({_rows_shown(rows[bad[dropped]].tolist(), list(cells[dropped].iloc[:5]))})",
                                     f"write plain numbers in '{column}' (0-100 % of rated power): "
                                     f"{numeric[bad[first]]:g} for {cells.iloc[first]}"))
@@ -997,7 +997,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
             if len(blank):  # an interval without a value is a missing interval: filled the same way, with a warning
                 first_stamp = _stamp_as_written(stamp_cells.iloc[idx[blank[0]]])
                 problems.append(warning(source, int(rows[idx[blank[0]]]), qh, None,
-                                        f"profile '{profile_id}' has {len(blank)} blank value(s), the first in this row"
+                                        f"profile '{profile_id}' has {counted(len(blank), 'blank value')}, the first in this row"
                                         + (f" (at {first_stamp})" if first_stamp else ""),
                                         "blank intervals are filled from the same weekday and time of day, as missing "
                                         "intervals are; enter the readings where they exist"))
@@ -1097,7 +1097,7 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
                 after = on[gaps[0] + 1]  # the row named is the first one after the gap, quoted as written
                 problems.append(warning(source, int(rows_unique[after]), header("timestamp"),
                                         _stamp_as_written(stamp_cells.iloc[cells_sorted[~dup][after]]),
-                                        f"profile '{profile_id}' misses {n_missing} interval(s), the first at {first}; "
+                                        f"profile '{profile_id}' misses {counted(n_missing, 'interval')}, the first at {first}; "
                                         "this row is the first after the gap",
                                         "missing intervals are filled from the same weekday and time of day"))
         first, last = t_unique[0], t_unique[-1]
@@ -1283,7 +1283,9 @@ def _parse_timestamps(column: pd.Series, zone: str, source: str, rows: np.ndarra
                 naive[serial] = stamps.astype("datetime64[us]").astype(np.int64)
                 first = int(np.flatnonzero(serial)[0])
                 problems.append(warning(source, int(rows[first]), header, column.iloc[first],
-                                        f"{int(serial.sum())} timestamp(s) were spreadsheet date numbers; they were read as dates and times",
+                                        f"{counted(serial.sum(), 'timestamp')} "
+                                        + ("was a spreadsheet date number; it was read as a date and time" if int(serial.sum()) == 1
+                                           else "were spreadsheet date numbers; they were read as dates and times"),
                                         "format the timestamp column as date and time in the spreadsheet"))
             text = column.map(_cell_text).where(~serial, None)
         else:
@@ -1761,7 +1763,8 @@ def shortest_demand_window_min(tariffs: dict, tariff_file, clause: str = "demand
 def demand_window_text(window_min: int, coarse_min: list[int], n_motors: int, whose: str = "of the site") -> str:
     """The caution of :func:`coarse_demand_profiles`, in words (the case check's and the Site meter page's);
     ``whose`` says which motors ``n_motors`` counts (the pack's register: "of the site in this pack")."""
-    return (f"the tariff's demand charge takes {window_min}-min windows, but {n_motors} motor(s) {whose} have "
+    return (f"the tariff's demand charge takes {window_min}-min windows, but {counted(n_motors, 'motor')} {whose} "
+            f"{'has' if n_motors == 1 else 'have'} "
             f"{'/'.join(map(str, coarse_min))}-min profiles: each interval is read as one window, which "
             "understates the demand peak and its savings")
 
@@ -1775,9 +1778,9 @@ def _check_peak_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dic
         if str(s["site_id"].iloc[i]) in found:
             window, coarse, n = found[str(s["site_id"].iloc[i])]
             sites.warn(i, "tariff_file", s["tariff_file"].iloc[i],
-                       f"the tariff's coincident-peak charge takes {window}-min windows, but {n} motor(s) of the site "
-                       f"have {'/'.join(map(str, coarse))}-min profiles: each peak window reads the interval that "
-                       "holds it, which cannot show the demand within it",
+                       f"the tariff's coincident-peak charge takes {window}-min windows, but {counted(n, 'motor')} of "
+                       f"the site {'has' if n == 1 else 'have'} {'/'.join(map(str, coarse))}-min profiles: each peak "
+                       "window reads the interval that holds it, which cannot show the demand within it",
                        f"log the motors that run at the system's peak times at {window}-min resolution")
     # the site's own base load, read the same way
     _coarse_base_loads(sites, tariffs, profile_info, "coincident",

@@ -23,6 +23,7 @@ import pandas as pd
 
 from models.io import BLANK_HEADER_KEY, SHEET_ROW_KEY
 from models.problems import Problem, error, warning
+from models.wording import counted
 
 #: The case's own assumptions, as the first row of every comparison is named.
 BASE_NAME = "Case as written"
@@ -193,7 +194,7 @@ def finance_checks(assumptions, source: str) -> list[Problem]:
         beyond = plan_beyond_horizon_text(len(budget), assumptions.horizon_yr)
         if beyond:
             out.append(warning(source, None, "budget_per_yr", budget, beyond,
-                               f"horizon_yr = {len(budget)} or more, or {int(assumptions.horizon_yr)} budget year(s)"))
+                               f"horizon_yr = {len(budget)} or more, or {counted(assumptions.horizon_yr, 'budget year')}"))
     return out
 
 

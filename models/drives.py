@@ -23,6 +23,8 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from models.wording import counted
+
 DriveClass = Literal["IE0", "IE1", "IE2"]
 
 #: The eight CDM operating points of IEC 61800-9-2 as (relative motor-stator frequency %, relative
@@ -176,7 +178,7 @@ def _check_range(name: str, a: object, lo: float, hi: float, *, lo_open: bool = 
         right = ")" if hi_open else "]"
         raise ValueError(
             f"{name} must lie in {left}{lo}, {hi}{right}{(' ' + unit) if unit else ''}; "
-            f"{int(np.count_nonzero(bad))} value(s) outside, e.g. {first!r}"
+            f"{counted(np.count_nonzero(bad), 'value')} outside, e.g. {first!r}"
         )
 
 

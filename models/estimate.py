@@ -16,6 +16,7 @@ from dataclasses import dataclass, replace
 from models.io import available_bytes  # noqa: F401 (the machine's free memory, read here as models.estimate's)
 from models.operation import (CHUNK_ELEMENTS, PHYSICS_THREADS, MemoryBudgets, case_index, default_budgets,
                               interval_bytes, options_with_baseline, site_partition)
+from models.wording import counted
 
 #: Machines stage per asset-option-step [s], one thread: 8.9 s of wall time for 10,000 assets x 11 options x
 #: 8,760 steps with two site threads (bench_fleet, local engine, 2026-12-04 night, 44.8 s end to end, load average
@@ -282,12 +283,12 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
             "needs it)")
     if spilled:
         kept += f", in a temporary file of {today / 2**30:.1f} GiB"
-    engine = (f" with {n_workers} Dask worker(s){' on this machine' if workers_here else ''}" if n_workers else "")
+    engine = (f" with {counted(n_workers, 'Dask worker')}{' on this machine' if workers_here else ''}" if n_workers else "")
     peak_text = f"{peak / 2**30:.1f} GiB peak" + ("" if workers_here or not n_workers else " on this machine")
     if n_workers:
         peak_text += f" (each worker about {worker_bytes / 2**30:.1f} GiB"
         peak_text += ", counted)" if workers_here else ")"
-    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {size.n_sites} site(s){engine}: about "
+    note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {counted(size.n_sites, 'site')}{engine}: about "
             f"{_duration(seconds)} and {peak_text}; keeps {kept}.")
     return Estimate(float(seconds), int(peak), note)
 

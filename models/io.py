@@ -1151,7 +1151,9 @@ def _hidden_sheet(sheet, source: str) -> list[Problem]:
 
 def _formulas_read(source: str, cached: int) -> Problem:
     """The one warning of a sheet whose ``cached`` formula cells were read as their last saved results."""
-    return warning(source, None, None, cached, f"{cached} cell(s) hold formulas; their last saved results were used",
+    text = ("1 cell holds a formula; its last saved result was used" if cached == 1 else
+            f"{counted(cached, 'cell')} hold formulas; their last saved results were used")
+    return warning(source, None, None, cached, text,
                    "drivecase never recalculates formulas: save the workbook after editing")
 
 
@@ -1159,7 +1161,8 @@ def _hidden_rows_read(source: str, rows: list[int]) -> Problem:
     """The one warning of a sheet whose hidden ``rows`` (sorted) were read like the others."""
     shown_rows = ", ".join(str(r) for r in rows[:10]) + (" ..." if len(rows) > 10 else "")
     return warning(source, rows[0], None, shown_rows,
-                   f"{len(rows)} hidden row(s) were read like the others (rows {shown_rows})",
+                   (f"1 hidden row was read like the others (row {shown_rows})" if len(rows) == 1 else
+                    f"{counted(len(rows), 'hidden row')} were read like the others (rows {shown_rows})"),
                    "delete rows that should not count; hiding or filtering does not remove them")
 
 
@@ -2314,7 +2317,8 @@ def _assumptions_to_save(current, assumptions: object, source: str):
     names = FinanceAssumptions.__dataclass_fields__
     unknown = sorted(str(k) for k in assumptions if k not in names)
     if unknown:
-        raise ValueError(f"unknown finance key(s) {', '.join(unknown)}; the keys are listed in docs/finance.md")
+        raise ValueError(f"unknown finance {'key' if len(unknown) == 1 else 'keys'} {', '.join(unknown)}; the keys are "
+                         "listed in docs/finance.md")
     data = {name: getattr(current, name) for name in names}
     data.update(assumptions)
     new, problems = FinanceAssumptions.from_dict(data, source=source)

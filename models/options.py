@@ -92,7 +92,8 @@ def check_options(checker) -> pd.DataFrame:
     for i, apps in enumerate(frame["applications"]):
         unknown = [a for a in str(apps).split("|") if a and a not in known_apps]
         if unknown:
-            checker.err(i, "applications", apps, f"unknown application(s): {', '.join(unknown)}",
+            checker.err(i, "applications", apps,
+                        f"unknown {'application' if len(unknown) == 1 else 'applications'}: {', '.join(unknown)}",
                         f"use {', '.join(sorted(known_apps))} separated by |")
     for i in np.flatnonzero((tech == "induction") & ~frame["efficiency_class"].isin(["IE2", "IE3", "IE4", "IE5"]).to_numpy()):
         checker.err(i, "efficiency_class", frame["efficiency_class"].iloc[i], "a new induction motor needs an efficiency class")

@@ -42,6 +42,7 @@ from models.drives import (
     true_power_factor,
     drive_rated_s_kva_for_motor,
 )
+from models.wording import counted
 
 SQRT3 = float(np.sqrt(3.0))
 
@@ -376,7 +377,7 @@ def lspm_operating_point(p_shaft_kw, rated_p_kw, rated_efficiency_frac, poles, f
     over = r.pop("beyond_pull_out")
     if np.any(over):
         raise ValueError(
-            f"p_shaft_kw exceeds the LSPM pull-out power in {int(np.count_nonzero(over))} value(s): the motor "
+            f"p_shaft_kw exceeds the LSPM pull-out power in {counted(np.count_nonzero(over), 'value')}: the motor "
             "would lose synchronism; check the load or the rated data"
         )
     o = kind.out

@@ -70,7 +70,7 @@ class TestCompareAndSummarise:
         row = {"quantity": "energy_kwh", "n_months": 12, "nmbe_pct": 6.5, "cv_rmse_pct": 9.0, "within_criteria": False,
                "modelled_total": 94.0, "billed_total": 100.0}
         text = calibration.summary_text(row)
-        assert text.startswith("energy: the model reads 6.0 % below the bills over 12 month(s) (NMBE +6.50 %, "
+        assert text.startswith("energy: the model reads 6.0 % below the bills over 12 months (NMBE +6.50 %, "
                                "CV(RMSE) 9.00 %)")
         assert "outside the monthly criteria" in text and "meant for a year" not in text
 
@@ -168,7 +168,7 @@ def test_run_and_bill_commands_compare_the_model_with_the_bills(tmp_path, capsys
     # the bias's sign follows the totals: the model below the bills gives a positive NMBE
     e = s.loc[("HRW", "energy_kwh")]
     assert np.sign(e["nmbe_pct"]) == np.sign(e["billed_total"] - e["modelled_total"])
-    assert "Site HRW, energy: the model reads" in out and "Site KGQ, energy: 1 month(s) billed, too few" in out
+    assert "Site HRW, energy: the model reads" in out and "Site KGQ, energy: 1 month billed, too few" in out
     # the bill command sets the same months side by side
     assert main(["bill", str(case), "--site", "HRW"]) == 0
     out = capsys.readouterr().out
@@ -255,7 +255,7 @@ def test_the_workbook_carries_each_sites_fit(demo_run_physics, tmp_path):
 def test_zero_bills_say_why_there_is_no_fit():
     row = {"quantity": "energy_kwh", "n_months": 2, "nmbe_pct": np.nan, "cv_rmse_pct": np.nan,
            "within_criteria": False, "modelled_total": 10.0, "billed_total": 0.0}
-    assert calibration.summary_text(row) == "energy: billed as 0 in each of 2 month(s), nothing to judge the fit by"
+    assert calibration.summary_text(row) == "energy: billed as 0 in each of 2 months, nothing to judge the fit by"
 
 
 def test_a_peak_off_the_bills_at_a_site_of_coarse_profiles_says_why(demo_run_physics):

@@ -1033,7 +1033,7 @@ def test_profiles_coarser_than_a_coincident_peak_window_are_warned(tmp_path):
     (folder / "tariffs" / "t.toml").write_text(head + "window_min = 15\n", encoding="utf-8")
     _, problems = load_case(folder)
     found = _find(problems, file="sites.csv", column="tariff_file", severity="warning")
-    assert "coincident-peak charge takes 15-min windows, but 1 motor(s) of the site have 60-min profiles" in found.rule
+    assert "coincident-peak charge takes 15-min windows, but 1 motor of the site has 60-min profiles" in found.rule
     (folder / "tariffs" / "t.toml").write_text(head + "window_min = 60\n", encoding="utf-8")
     _, problems = load_case(folder)
     assert not [p for p in problems if "coincident-peak charge takes" in p.rule]

@@ -247,7 +247,7 @@ class TestEstimate:
         assert here.peak_bytes >= estimate.BASE_BYTES + interval_bytes(n_a, n_o, n_t) + 2 * least_per_worker
         assert away.peak_bytes < estimate.BASE_BYTES + interval_bytes(n_a, n_o, n_t) + least_per_worker
         assert here.peak_bytes > local.peak_bytes > away.peak_bytes
-        assert "2 Dask worker(s) on this machine" in here.note and "each worker about" in here.note
+        assert "2 Dask workers on this machine" in here.note and "each worker about" in here.note
         assert "peak on this machine (each worker about" in away.note
 
     def test_a_curve_block_is_counted_above_the_dense_budget(self, fleet, monkeypatch):

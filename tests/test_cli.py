@@ -467,7 +467,7 @@ def test_estimate_alone_prints_the_estimate_and_writes_nothing(tmp_path, capsys,
     out = tmp_path / "o"
     assert main([command, str(DEMO), "--out", str(out), "--estimate"]) == 0
     printed = capsys.readouterr().out
-    assert printed.startswith("Estimate: 82 assets x 11 options x 8,760 steps on 2 site(s): about ")
+    assert printed.startswith("Estimate: 82 assets x 11 options x 8,760 steps on 2 sites: about ")
     assert "GiB peak" in printed and not out.exists()
 
 

@@ -164,3 +164,13 @@ class TestGridColumns:
             c = cols[field]
             assert c["tooltipField"] == field and c["wrapText"] and c["autoHeight"]
             assert c["cellStyle"]["lineHeight"] == "1.4"
+
+
+def test_the_performance_note_speaks_of_a_throttle_only_where_a_drive_would_replace_one():
+    # KGQ-F01 is damper controlled (throttled) and a drive is among its options: the note says the drive runs a
+    # lower load; HRW-D01 is already on a drive (no throttle to replace): the note says only what the curves are
+    # drawn against (data/demo/assets.csv, speed_control)
+    throttled = asset.update("KGQ-F01", None, None)[12]
+    on_drive = asset.update("HRW-D01", None, None)[12]
+    assert throttled.startswith("Against today's shaft load.") and "replaces the throttle" in throttled
+    assert on_drive == "Against today's shaft load."

@@ -188,3 +188,7 @@ def test_the_policys_scope_names_its_sizes_the_larger_motors_and_its_outage_pric
         downtime_cost_per_h=500.0)), [45.0, 400.0], "EUR")
     assert "1 motor of the case is larger and is left to its own comparison" in one and "(EUR 500 per hour)" in one
     assert services.fleet_rules_scope_text(SimpleNamespace(fleet_rules=pd.DataFrame()), [1.0], "EUR") == ""
+    # a size of four digits is written as the policy's grid writes it, with its thousands separator
+    wide = rules.assign(max_rated_p_kw=[7.5, 1000.0])
+    assert services.fleet_rules_scope_text(SimpleNamespace(fleet_rules=wide, assumptions=SimpleNamespace(
+        downtime_cost_per_h=0.0)), [45.0], "EUR").startswith("It covers standard ratings from 0.75 to 1,000 kW.")

@@ -57,9 +57,10 @@ class TestAbatement:
     def test_the_title_says_which_option_of_each_asset_is_drawn(self):
         # the bars are, per asset, the highest-NPV option among those that avoid CO2 (models.plan.abatement_curve),
         # not the asset's best option, which may avoid none
-        title = figures.abatement_curve(self.frame, "EUR").layout.title.text
-        assert title == "Abatement cost curve of each asset's highest-NPV option that avoids CO2 (below zero: saves money)"
-        assert "best option" not in title
+        title = figures.abatement_curve(self.frame, "EUR").layout.title
+        assert title.text == "Abatement cost curve (below zero: saves money)"
+        assert title.subtitle.text == "each asset's highest-NPV option that avoids CO2"
+        assert "best option" not in title.text + title.subtitle.text
 
     def test_a_sliver_of_a_bar_does_not_set_the_axis(self):
         # hand: bars of 2, 5 and 1 t/yr set the axis (-120 to 45, padded 8 % of 165 = 13.2); a 0.001 t/yr
@@ -233,7 +234,8 @@ class TestSite:
         # local wall-clock time on the axis: 00:00 in Berlin, not 23:00 UTC the day before
         assert pd.Timestamp(fig.data[0].x[0]) == pd.Timestamp("2025-03-03 00:00")
         t = titles(fig)
-        assert t["yaxis"] == "Active [kW]" and t["yaxis2"] == "Reactive [kVAr]" and t["yaxis3"].startswith("Power factor [-]")
+        assert t["yaxis"] == "Active [kW]" and t["yaxis2"] == "Reactive [kVAr]" and t["yaxis3"] == "Power factor [-]"
+        assert fig.layout.title.text.endswith("(power factor leading where kVAr < 0)")
         # the power factor's sense follows the kVAr's sign (after: 10, -5, 0, 5 kVAr)
         assert list(fig.data[5].customdata) == ["lagging", "leading", "lagging", "lagging"]
         assert "%{customdata}" in fig.data[5].hovertemplate
@@ -366,7 +368,7 @@ def test_uncertainty_table_shows_probabilities_in_per_cent():
 
     cols = {c["field"]: c for c in risk.columns("EUR")}
     for field, header in (("prob_npv_positive_frac", "P(NPV > 0) [%]"),
-                          ("prob_payback_within_target_frac", "P(payback <= 3 yr) [%]")):
+                          ("prob_payback_within_target_frac", "P(simple payback <= 3 yr) [%]")):
         assert cols[field]["headerName"] == header
         assert "d3.format(',.0f')(100 * params.value)" in cols[field]["valueFormatter"]["function"]
 

@@ -168,7 +168,7 @@ class TestPercentSigns:
         hits = [p for p in problems if p.file == "profiles.csv" and p.column == "shaft_load_pct"]
         assert len(hits) == 1, [str(p) for p in hits]
         assert hits[0].severity == "warning" and hits[0].row == 2 and hits[0].column == "shaft_load_pct"
-        assert "% signs were dropped in 48 cell(s) of 'shaft_load_pct'" in hits[0].rule
+        assert "% signs were dropped in 48 cells of 'shaft_load_pct'" in hits[0].rule
         _none(problems, "profile has no values")
 
     def test_profile_percent_sign_in_input_kw_is_an_error(self, tmp_path):
@@ -220,7 +220,7 @@ class TestResolutionChange:
         del rows[30:54]  # a day missing from an hourly profile
         case, problems = load_case(cb.write_case(tmp_path / "c", profiles=rows))
         assert case is not None, [str(p) for p in problems]
-        _find(problems, file="profiles.csv", column="timestamp", severity="warning", text="misses 24 interval(s)")
+        _find(problems, file="profiles.csv", column="timestamp", severity="warning", text="misses 24 intervals")
         _none(problems, "changes resolution")
 
     def test_resolution_changes(self):

@@ -368,7 +368,7 @@ class TestWorkbooks:
         book["assets"]["E3"] = "=15/2"
         book.save(path)
         _with_cached_result(path, "15/2", "7.5")
-        case, _ = _check(path, True, (W("case.xlsx:assets", None, None, "last saved results were used"),))
+        case, _ = _check(path, True, (W("case.xlsx:assets", None, None, "1 cell holds a formula; its last saved result was used"),))
         assert_allclose(case.assets["rated_p_kw"], [15, 7.5, 75], rtol=0)
 
     def test_dates_typed_as_dates(self, tmp_path):

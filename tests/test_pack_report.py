@@ -19,6 +19,7 @@ from plotly.offline import get_plotlyjs
 from models import scenario
 from models.pack import REPORT_NAME, WORKBOOK_NAME, PackWarning, write_pack
 from models.pack.decision_record import record_file_name
+from models.wording import counted
 from test_pack_workbook import INJECTION_AT, INJECTION_HTML, INJECTION_HYPERLINK, build_case
 
 ESCAPED_HTML = "&lt;script&gt;alert(1)&lt;/script&gt; &amp; &#34;pump&#34;"
@@ -833,7 +834,7 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
         assert set(named) <= set(expected) and len(named) + (int(more.group(1)) if more else 0) == len(expected)
         assert len(coarse_at_site) == n
         whose = "of the site in this pack" if len(expected) < n else "of the site"
-        assert f"{len(expected)} motor(s) {whose} have" in rows["detail"].iloc[0]
+        assert f"{counted(len(expected), 'motor')} {whose} {'has' if len(expected) == 1 else 'have'}" in rows["detail"].iloc[0]
     # a pack of one such motor of a site with more counts that one, as the pack's
     site_id = next(s for s, (_, _, n) in coarse.items() if n > 1)
     window = coarse[site_id][0]
@@ -842,7 +843,7 @@ def test_the_report_states_its_basis_and_the_demand_window_caveat(demo_run_physi
                if s == site_id and resolution.get(pid, 0) > window)
     small = content.risk_register(case, result, content.select_scope(case, result, assets=[one], plan=False))
     row = small[small["item"] == f"Demand window at site {site_id}"].iloc[0]
-    assert row["assets"] == one and "1 motor(s) of the site in this pack have" in row["detail"]
+    assert row["assets"] == one and "1 motor of the site in this pack has" in row["detail"]
 
 
 def test_a_reactive_project_counted_at_a_share_states_the_payback_of_what_the_plan_counts(demo_run_physics):

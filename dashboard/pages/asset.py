@@ -20,6 +20,7 @@ OPTIONS = "asset-options"
 LCC = "asset-lcc"
 CASH = "asset-cash"
 PERFORMANCE = "asset-performance"
+PERFORMANCE_NOTE = "asset-performance-note"
 SPEED = "asset-speed"
 DEFAULTS = "asset-defaults"
 FLAGS = "asset-flags"
@@ -51,8 +52,7 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                                                    className="page-intro")], className="panel half")],
                  className="row"),
         html.Div([html.Div([ui.graph(PERFORMANCE),
-                            html.P("Against today's shaft load: a drive that replaces a throttle runs the flow's own, "
-                                   "lower load (flat below the zero-flow load).", className="page-intro")],
+                            html.P(id=PERFORMANCE_NOTE, className="page-intro")],
                            className="panel half"),
                   html.Div([html.H3("Speed change and its remedies"),
                             html.P("A lower-slip or synchronous machine turns a centrifugal load faster and so draws "
@@ -125,7 +125,7 @@ CAUTION_COUNT = {"function": "params.value > 0 ? params.value + (params.value ==
 #: windows share out the rest in proportion); below that it scrolls sideways inside itself, the option's
 #: name pinned left and its cautions pinned right. Headers wrap, long texts wrap.
 OPTION_WIDTHS_PX = {"label": 170, "technology": 116, "speed_remedy": 126, "capital": 92, "saving_per_yr": 92,
-                    "npv": 100, "irr_pct": 72, "discounted_payback_yr": 90, "energy_kwh_per_yr": 100,
+                    "npv": 100, "irr_pct": 72, "discounted_payback_yr": 90, "energy_mwh_per_yr": 100,
                     "mean_speed_rpm": 80, "life_cycle_cost": 104, "cautions_count": 96}
 
 
@@ -141,7 +141,7 @@ def option_columns(currency: str) -> list[dict]:
                ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
                ui.number_col("npv", f"NPV [{currency}]"),
                ui.number_col("irr_pct", "IRR [%]", 1), ui.payback_col(),
-               ui.number_col("energy_kwh_per_yr", "Energy [kWh/yr]"), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
+               ui.number_col("energy_mwh_per_yr", "Energy [MWh/yr]", 1), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
                ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
                ui.number_col("cautions_count", "Cautions", pinned="right", maxWidth=130, filter=False,
                              tooltipField="flags", valueFormatter=CAUTION_COUNT)]
@@ -155,7 +155,7 @@ def option_columns(currency: str) -> list[dict]:
     Output(SUMMARY, "children"), Output(OPTIONS, "rowData"), Output(OPTIONS, "columnDefs"), Output(LCC, "figure"),
     Output(CASH, "figure"), Output(PERFORMANCE, "figure"), Output(SPEED, "figure"), Output(DEFAULTS, "rowData"),
     Output(DEFAULTS, "columnDefs"), Output(FLAGS, "rowData"), Output(FLAGS, "columnDefs"), Output(NOTICE, "children"),
-    Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), State(REQUEST, "data"),
+    Output(PERFORMANCE_NOTE, "children"), Input(PICK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"), State(REQUEST, "data"),
 )
 def update(asset_id, session, edits, requested=None):
     """Everything about the chosen asset under the tab's assumptions."""
@@ -166,7 +166,7 @@ def update(asset_id, session, edits, requested=None):
         notice = " ".join(x for x in (notice, f"The case has no asset '{requested}'; showing {asset_id or 'none'}.") if x)
     if asset_id not in ids:
         empty = figures.message_figure("Choose an asset.")
-        return ("", [], [], empty, empty, empty, empty, [], [], [], [], notice)
+        return ("", [], [], empty, empty, empty, empty, [], [], [], [], notice, "")
     result = view.result()
     asset = view.case.assets.set_index("asset_id").loc[asset_id]
     options = services.asset_options(view, result, asset_id)
@@ -206,7 +206,7 @@ def update(asset_id, session, edits, requested=None):
              ui.long_text_col("basis", "Basis", flex=2)],
             flags.to_dict("records"),
             [ui.long_text_col("option", "Option"), ui.long_text_col("flag", "Caution", flex=3)],
-            notice)
+            notice, services.performance_note(view, result, asset_id))
 
 
 def fleet_rule_columns(power_unit: str = "kW") -> list[dict]:

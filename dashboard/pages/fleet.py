@@ -79,14 +79,13 @@ dash.register_page(__name__, path="/", name="Fleet", title="Fleet overview · dr
 #: the rest); below that it scrolls sideways inside its own panel. Headers wrap, long texts wrap.
 WIDTHS_PX = {"rank": 48, "asset_id": 96, "site_id": 64, "application": 106, "rating": 74, "best_option": 110,
              "capital": 84, "npv": 84, "discounted_payback_yr": 90, "saving_per_yr": 92, "co2_avoided_t_per_yr": 86,
-             "plan_option": 110, "plan_year": 62, "plan_bought_yr": 70, "plan_capital": 84, "data_quality_pct": 84}
+             "plan_option": 110, "plan_year": 62, "plan_capital": 84, "data_quality_pct": 84}
 #: Width the two option texts start from [px] (they get the larger share of a wide window).
 WIDE_TEXT_PX = 200
 
 
-def table_columns(currency: str, power_unit: str, bought: bool = False) -> list[dict]:
-    """Columns of the ranked asset table; with ``bought`` (some project is bought after its plan year: a motor
-    replaced when it fails) the plan year its capital is spent beside its plan year."""
+def table_columns(currency: str, power_unit: str) -> list[dict]:
+    """Columns of the ranked asset table."""
     columns = [ui.number_col("rank", "#", maxWidth=64, pinned="left"),
                ui.text_col("asset_id", "Asset", pinned="left", cellClass="link-cell"),
                ui.text_col("site_id", "Site", maxWidth=100), ui.text_col("application", "Application"),
@@ -102,10 +101,6 @@ def table_columns(currency: str, power_unit: str, bought: bool = False) -> list[
                ui.number_col("co2_avoided_t_per_yr", "CO2 avoided [t/yr]", 1),
                ui.long_text_col("plan_option", "The plan buys"),
                ui.number_col("plan_year", "Plan year", maxWidth=100),
-               *([ui.number_col("plan_bought_yr", "Bought in plan year", maxWidth=110,
-                                headerTooltip="The plan year its capital is spent: a motor replaced when it fails "
-                                "is bought the year it is expected to fail, after the project enters the plan")]
-                 if bought else []),
                ui.number_col("plan_capital", f"Plan capital [{currency}]"),
                ui.number_col("data_quality_pct", "Data quality [%]")]
     for column in columns:
@@ -136,8 +131,7 @@ def update(session, edits, sites, applications, site_choices=()):
     cards = ui.headline_values(services.headline(result), view.currency)
     table = services.ranked_assets(view, result, sites, applications)
     count = f"{len(table)} of {len(view.case.assets)} assets"
-    later = bool((table["plan_bought_yr"] > table["plan_year"]).any())
-    return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit, later), count,
+    return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit), count,
             figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
             " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
 

@@ -7,6 +7,7 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import services
+from models.wording import counted
 
 
 READY = "inputs-ready"
@@ -107,7 +108,9 @@ def layout(**_query):
             html.P("The fleet plan under the case as written, under each scenario the case names (scenarios.toml) and "
                    "under the assumptions you keep here. Only the finance assumptions differ: the machines and the "
                    "bills are the same. Each plan is proven as the capital-request pack's (for a fleet of up to "
-                   f"{services.PROVEN_SCENARIO_ASSETS:,} motors; a larger one's are bounded as a live edit's). Kept "
+                   f"{services.PROVEN_SCENARIO_ASSETS:,} motors; a larger one's are bounded as a live edit's), so a "
+                   "row kept from the assumptions above may show a plan NPV a little above the cards, whose plan is "
+                   f"the live one (within {services.LIVE_PLAN_GAP_PCT:g} % of the best). Kept "
                    "scenarios stay with this tab; write them into scenarios.toml to keep them with the case.",
                    className="page-intro"),
             html.Div([
@@ -234,7 +237,8 @@ def edit(*form):
     new, changed, problem = _parse_form(*form)
     # the valid values apply even when another field is refused; the message names each refused one (set
     # apart as a refusal); a caution on an unusual value keeps the plain look when nothing is refused
-    return (new if changed else no_update), form_message(problem, services.assumption_notes(new)), (
+    own = services.view(form[-1], None).entry.case.finance
+    return (new if changed else no_update), form_message(problem, services.assumption_notes(new, own)), (
         ui.message_class(False) if problem else "form-message")
 
 
@@ -257,9 +261,10 @@ def preview(_ready, session, edits):
     view = services.view(session, edits)
     s = services.case_summary(view)
     case_line = [html.Strong(s["name"]), html.Span(" (invented demo data)" if s["mark_invented"] else ""),
-                 html.Span(f" · {s['assets']} assets · {s['sites']} site(s) · {s['currency']} · ratings in {s['power_unit']}"
+                 html.Span(f" · {counted(s['assets'], 'asset')} · {counted(s['sites'], 'site')} · {s['currency']} · "
+                           f"ratings in {s['power_unit']}"
                            f" · {'your upload' if s['origin'] == 'upload' else 'the case the server started with'}"
-                           + (f" · {s['warnings']} warning(s) when read" if s["warnings"] else ""))]
+                           + (f" · {counted(s['warnings'], 'warning')} when read" if s["warnings"] else ""))]
     cards = ui.headline_values(services.headline(view.result()), view.currency)
     return (*cards, case_line, view.notice)
 

@@ -67,7 +67,7 @@ def columns(currency: str, scope: str = "best") -> list[dict]:
             ui.number_col("payback_p50_yr", "Simple payback P50 [yr]", 1,
                           headerTooltip="The median over the draws of the simple payback (undiscounted, from the first "
                                         "outlay, without the residual value); the other pages show the discounted one."),
-            percent_col("prob_payback_within_target_frac", f"P(payback <= {target:g} yr) [%]") | {
+            percent_col("prob_payback_within_target_frac", f"P(simple payback <= {target:g} yr) [%]") | {
                 "headerTooltip": f"Share of the draws whose simple payback is {target:g} years or less: a target "
                                  "industrial energy projects are often asked to meet (common practice)."}]
 

@@ -179,7 +179,7 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
         if unknown:
             from models.problems import unknown_ids_hint
 
-            raise ValueError(f"unknown asset(s): {', '.join(map(str, unknown))}" + unknown_ids_hint(unknown, known))
+            raise ValueError(f"unknown asset{'s' if len(unknown) != 1 else ''}: {', '.join(map(str, unknown))}" + unknown_ids_hint(unknown, known))
         wanted = list(dict.fromkeys(str(a) for a in assets))
     if not wanted and not plan:
         raise ValueError("nothing to report: give asset ids or ask for the plan")
@@ -840,7 +840,8 @@ def monte_carlo_text(u: Uncertainty) -> str:
     if not u.of_plan and u.plan_empty:
         return "No project to simulate: the plan holds none under this budget."
     if not u.of_plan:
-        return (f"{len(u.projects)} of the {u.n_asked} recommended project(s) were simulated: the Monte Carlo draws hours, "
+        return (f"{len(u.projects)} of the {counted(u.n_asked, 'recommended project')} "
+                f"{'was' if len(u.projects) == 1 else 'were'} simulated: the Monte Carlo draws hours, "
                 "load, prices and capital for each asset's highest-NPV option; plan choices that trade NPV for budget "
                 "are not simulated.")
     text = ("Each project of the plan in this pack: its NPV at its own start (its plan year, as in the plan), at the "
@@ -848,7 +849,7 @@ def monte_carlo_text(u: Uncertainty) -> str:
             "leaves it), under the same draws.")
     outside = u.n_asked - u.n_plan_in_scope
     if outside:
-        text += (f" {outside} of the {u.n_asked} recommended project(s) {'is' if outside == 1 else 'are'} outside the "
+        text += (f" {outside} of the {counted(u.n_asked, 'recommended project')} {'is' if outside == 1 else 'are'} outside the "
                  "fleet plan and not simulated.")
     return text
 

@@ -247,7 +247,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                  f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. {content.PLAN_SPEND_TEXT} "
                  f"The fleet plan covers the whole case; "
-                 f"this pack covers {len(scope.asset_ids)} asset(s)."
+                 f"this pack covers {counted(len(scope.asset_ids), 'asset')}."
                  + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else "")
                  + (" " + withdrawn if withdrawn else ""))
 
@@ -315,9 +315,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "plan": chart(figures.plan_by_year(spent["exact"][0], spent["greedy"][0], budgets, cur), "plan"),
         "bills": chart(figures.bills_before_after(result.bills, cur), "bills"),
     }
-    scope_text = {"plan": f"the exact fleet plan ({len(scope.projects)} project(s) on {len(scope.asset_ids)} asset(s))",
-                  "assets": f"{len(scope.asset_ids)} requested asset(s), every option compared",
-                  "plan and assets": f"the exact fleet plan and {len(scope.asset_ids)} asset(s)"}[scope.mode]
+    assets_text = counted(len(scope.asset_ids), "asset")
+    scope_text = {"plan": f"the exact fleet plan ({counted(len(scope.projects), 'project')} on {assets_text})",
+                  "assets": f"{counted(len(scope.asset_ids), 'requested asset')}, every option compared",
+                  "plan and assets": f"the exact fleet plan and {assets_text}"}[scope.mode]
     return {
         "case_name": s.name, "description": getattr(s, "description", "") or "", "invented": bool(s.invented),
         "currency": cur, "scope_text": scope_text, "discount_text": f"{a.discount_rate_frac:.1%} ({a.rate_basis})",

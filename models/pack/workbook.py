@@ -33,7 +33,7 @@ from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS, plan_with_savings
 from models.pack import content
 from models.plan import option_labels, plan_capital_spent
-from models.wording import line_item_text
+from models.wording import counted, line_item_text
 
 #: Sheet names, in workbook order.
 SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills",
@@ -1021,7 +1021,7 @@ def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> Non
                ("npv_p90", "NPV P90", f.money), ("prob_npv_positive_frac", "P(NPV > 0)", f.frac),
                ("payback_p10_yr", "Simple payback P10 [yr]", f.years), ("payback_p50_yr", "Simple payback P50 [yr]", f.years),
                ("payback_p90_yr", "Simple payback P90 [yr]", f.years),
-               ("prob_payback_within_target_frac", f"P(payback within {PAYBACK_TARGET_YR:g} yr)", f.frac)])
+               ("prob_payback_within_target_frac", f"P(simple payback within {PAYBACK_TARGET_YR:g} yr)", f.frac)])
     row = _table(ws, row + 2, projects, cols)
     put_text(ws, row, 1, "Risks and assumptions register").font = _BOLD
     register = content.risk_register(case, result, scope)
@@ -1064,7 +1064,8 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
     cur = s.currency
     _title(ws, f"Capital request workbook: {s.name}")
     lines = [
-        f"Scope: {scope.mode}; {len(scope.asset_ids)} asset(s), {len(scope.projects)} project(s) with workbook formulas, "
+        f"Scope: {scope.mode}; {counted(len(scope.asset_ids), 'asset')}, {counted(len(scope.projects), 'project')} with "
+        "workbook formulas, "
         f"{h.n_projects} recommended.",
         f"Recommended projects: capital {content.money(h.capital, cur)}, yearly saving {content.money(h.yearly_saving, cur)}, "
         f"NPV at plan start {content.money(h.npv, cur)}, payback {content.years_text(h.payback_yr, result.assumptions.horizon_yr)}, "

@@ -107,12 +107,12 @@ def test_the_top_bar_names_what_differs_from_the_case(tab, artifacts):
     page.wait_for_function("document.querySelector('#inputs-price-level')?.value !== ''")
     bar = page.locator("#app-case-label")
     # data/demo/finance.toml: 8 %, 15 years, budgets 250000 + 250000 + 150000
-    expect(bar).to_have_text(re.compile(r"discount 8 % · 15 yr · budget 3 yr, EUR 650\.0 k in all$"))
+    expect(bar).to_have_text(re.compile(r"discount 8 % · 15 yr · budget 3 yr, EUR\s650\.0\sk in all$"))
     page.fill("#inputs-price-level", "120")
     page.press("#inputs-price-level", "Tab")
     page.fill("#inputs-escalation", "2")
     page.press("#inputs-escalation", "Enter")
-    expect(bar).to_have_text(re.compile(r"budget 3 yr, EUR 650\.0 k in all · electricity price 120 % · escalation 2 %/yr$"),
+    expect(bar).to_have_text(re.compile(r"budget 3 yr, EUR\s650\.0\sk in all · electricity price 120 % · escalation 2 %/yr$"),
                              timeout=60_000)
     # one line at this width
     height, line = bar.evaluate("e => [e.getBoundingClientRect().height, parseFloat(getComputedStyle(e).lineHeight) "
