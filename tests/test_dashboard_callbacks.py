@@ -688,3 +688,21 @@ def test_an_address_naming_an_unknown_site_is_told_so(engine):
     # site without a word
     assert "The case has no site 'NOPE'; showing KGQ." in site.update("KGQ", None, None, None, "NOPE")[5]
     assert "no site" not in (site.update("KGQ", None, None, None, "KGQ")[5] or "")
+
+
+def test_the_fleet_table_keeps_its_sort_for_the_tab(engine):
+    # the grid reports its column state on every sort; the columns sorted are kept, and put back on the columns
+    # when the table is drawn again (after Back from an asset); an unknown column is passed over
+    state = [{"colId": "rating", "sort": "asc", "sortIndex": 0, "width": 74}, {"colId": "npv", "sort": None},
+             {"colId": "capital", "sort": "desc", "sortIndex": 1}]
+    kept = fleet.keep_sort(state)
+    assert kept == [{"colId": "rating", "sort": "asc", "sortIndex": 0}, {"colId": "capital", "sort": "desc", "sortIndex": 1}]
+    assert fleet.keep_sort(None) is no_update
+    columns = fleet.sorted_columns(fleet.table_columns("EUR", "kW"), kept + [{"colId": "gone", "sort": "asc"}])
+    by_field = {c["field"]: c for c in columns}
+    assert (by_field["rating"]["sort"], by_field["rating"]["sortIndex"]) == ("asc", 0)
+    assert (by_field["capital"]["sort"], by_field["capital"]["sortIndex"]) == ("desc", 1)
+    assert "sort" not in by_field["npv"]
+    assert fleet.sorted_columns(fleet.table_columns("EUR", "kW"), None) == fleet.table_columns("EUR", "kW")
+    # the page's callback takes the kept sort
+    assert {c["field"]: c.get("sort") for c in fleet.update(None, None, None, None, (), kept)[5]}["rating"] == "asc"

@@ -21,6 +21,8 @@ TABLE = "fleet-table"
 ABATEMENT = "fleet-abatement"
 NOTICE = "fleet-notice"
 COUNT = "fleet-count"
+#: The table's sort, kept for the tab's session (an asset opened and the Back button bring the same order back).
+SORT = "fleet-sort"
 HEADLINE = "fleet"
 #: What the page says while the tab's results are not there yet (a new case's models run for 4-20 s).
 COMPUTING = "Computing the case…"
@@ -62,6 +64,7 @@ def layout(**_query):
             # rowData None = results not there yet (the count and the grid say so), [] = no asset matches
             html.Div(COMPUTING, id=COUNT, className="filter-count", role="status"),
         ], className="filters"),
+        dcc.Store(id=SORT, storage_type="session"),
         ui.data_grid(TABLE, height=TABLE_HEIGHT, empty_text="No asset matches the filters", loading_text=COMPUTING,
                      rowData=None, getRowId="params.data.asset_id",
                      # the columns are shared out with the vertical scrollbar's room already kept, so they do not
@@ -117,8 +120,9 @@ def table_columns(currency: str, power_unit: str) -> list[dict]:
     Output(NOTICE, "children"),
     Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
     Input(SITE_FILTER, "value"), Input(APPLICATION_FILTER, "value"), State(SITE_FILTER, "options"),
+    State(SORT, "data"),
 )
-def update(session, edits, sites, applications, site_choices=()):
+def update(session, edits, sites, applications, site_choices=(), sort=None):
     """Headline, table and curve for the tab's case and assumptions.
 
     Nothing until :func:`filters` has made the filters (the stand-ins in the layout have no choices): they may
@@ -131,9 +135,25 @@ def update(session, edits, sites, applications, site_choices=()):
     cards = ui.headline_values(services.headline(result), view.currency)
     table = services.ranked_assets(view, result, sites, applications)
     count = f"{len(table)} of {len(view.case.assets)} assets"
-    return (*cards, table.to_dict("records"), table_columns(view.currency, view.power_unit), count,
+    return (*cards, table.to_dict("records"), sorted_columns(table_columns(view.currency, view.power_unit), sort), count,
             figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
             " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
+
+
+def sorted_columns(columns: list[dict], sort) -> list[dict]:
+    """The table's columns with the tab's kept sort (:func:`keep_sort`) on them; unknown columns are passed over."""
+    kept = {str(s.get("colId")): s for s in sort or () if isinstance(s, dict) and s.get("sort") in ("asc", "desc")}
+    return [column | {"sort": kept[column["field"]]["sort"], "sortIndex": kept[column["field"]].get("sortIndex")}
+            if column["field"] in kept else column for column in columns]
+
+
+@callback(Output(SORT, "data"), Input(TABLE, "columnState"), prevent_initial_call=True)
+def keep_sort(state):
+    """Keep the columns the table is sorted by (the grid reports its column state on every sort)."""
+    if not isinstance(state, list):
+        return no_update
+    return [{"colId": s.get("colId"), "sort": s.get("sort"), "sortIndex": s.get("sortIndex")}
+            for s in state if isinstance(s, dict) and s.get("sort") in ("asc", "desc")]
 
 
 @callback(Output(SITE_BOX, "children"), Output(APPLICATION_BOX, "children"), Input(ui.SESSION_STORE, "data"))

@@ -53,3 +53,30 @@ def test_filters_hold_when_the_user_opens_an_asset_and_comes_back(tab, artifacts
     sites = page.locator("#fleet-table .ag-center-cols-container [col-id='site_id']").all_inner_texts()
     assert sites and set(sites) == {"KGQ"}
     assert tab.errors == [], f"console errors: {tab.errors}"
+
+
+def test_the_sort_holds_when_the_user_opens_an_asset_and_comes_back(tab, artifacts):
+    # the table opens ranked by NPV, largest first; the user sorts by rating, smallest first, opens the first
+    # asset and comes back: the order is the one they chose (data/demo/assets.csv: the smallest motors are
+    # 0.75 kW dosing pumps)
+    page = tab.goto("/", PAGES[0][1])
+    page.wait_for_load_state("networkidle")
+    page.locator("#fleet-count").filter(has_text="82 of 82 assets").wait_for()
+    header = page.locator("#fleet-table .ag-header-cell[col-id='rating'] .ag-header-cell-label")
+    header.click()
+    rating = page.locator("#fleet-table .ag-center-cols-container .ag-row[row-index='0'] [col-id='rating']")
+    expect(rating).to_have_text("0.75")
+    first = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='0'] .link-cell")
+    asset_id = first.inner_text()
+    first.click()
+    page.wait_for_url(f"**/asset?id={asset_id}")
+    page.locator("#asset-summary").filter(has_text=asset_id).wait_for()
+
+    page.go_back()
+    page.wait_for_url(tab.url + "/")
+    page.locator("#fleet-count").filter(has_text="82 of 82 assets").wait_for()
+    page.wait_for_load_state("networkidle")
+    page.screenshot(path=artifacts / "fleet_sort_after_back.png")
+    expect(rating).to_have_text("0.75", timeout=10_000)
+    expect(first).to_have_text(asset_id)
+    assert tab.errors == [], f"console errors: {tab.errors}"
