@@ -103,6 +103,11 @@ def layout(**_query):
                 ui.headline_cards(HEADLINE),
             ], className="panel half form"),
         ], className="row"),
+        # right under the upload and the form: a refused upload's rows are read next to its status line
+        html.H3("Validation messages", id="validation-messages"),
+        ui.data_grid(PROBLEMS, height=320, empty_text="No problems: the case was read as written", columnDefs=ui.problem_columns(),
+                     rowClassRules={"problem-error": "params.data.severity == 'error'",
+                                    "problem-warning": "params.data.severity == 'warning'"}),
         html.Div([
             html.H3("Scenarios side by side"),
             html.P("The fleet plan under the case as written, under each scenario the case names (scenarios.toml) and "
@@ -123,10 +128,6 @@ def layout(**_query):
             dcc.Loading(ui.data_grid(SCENARIO_GRID, height="auto", rowData=None, empty_text="No scenario to compare",
                                      dashGridOptions={"domLayout": "autoHeight"}), type="dot"),
         ], className="panel"),
-        html.H3("Validation messages"),
-        ui.data_grid(PROBLEMS, height=320, empty_text="No problems: the case was read as written", columnDefs=ui.problem_columns(),
-                     rowClassRules={"problem-error": "params.data.severity == 'error'",
-                                    "problem-warning": "params.data.severity == 'warning'"}),
     ])
 
 
