@@ -32,7 +32,7 @@ DistributionKind = Literal["normal", "lognormal", "triangular", "uniform", "fixe
 # ---------------------------------------------------------------------------------------------------
 #: How a tornado variable and its low and high values read on a page or in a report.
 TORNADO_LABELS = {
-    "energy_price_mult": "Energy price (x{low:g} to x{high:g})",
+    "energy_price_mult": "Electricity price (x{low:g} to x{high:g})",
     "hours_mult": "Running hours (x{low:g} to x{high:g})",
     "load_mult": "Shaft load (x{low:g} to x{high:g})",
     "capital_mult": "Capital cost (x{low:g} to x{high:g})",

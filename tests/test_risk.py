@@ -252,7 +252,7 @@ def test_tornado_labels_read_as_the_pages_show_them():
 
     # hand: a +/-0.02 discount-rate shift is 2 percentage points; multipliers are shown as factors
     assert tornado_label("discount_rate_delta_frac", -0.02, 0.02) == "Discount rate (-2 to +2 points)"
-    assert tornado_label("energy_price_mult", 0.8, 1.2) == "Energy price (x0.8 to x1.2)"
+    assert tornado_label("energy_price_mult", 0.8, 1.2) == "Electricity price (x0.8 to x1.2)"
     assert tornado_label("something_new", 1, 2) == "something_new (1 to 2)"
 
 
