@@ -438,7 +438,8 @@ def cmd_bill(args: argparse.Namespace) -> int:
 INTERRUPTED = 130
 LARGE_RUN_S = 60.0
 LARGE_RUN_BYTES = 4 * 1024**3
-STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
+STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills", "scenarios",
+          "files")
 
 
 def _print_calibration(case, meters, bills, op, sites) -> None:
@@ -584,14 +585,24 @@ def cmd_run(args: argparse.Namespace) -> int:
         where = args.scheduler or "the local cluster"
         print(f"drivecase run: could not work with the Dask scheduler at {where}: {exc}", file=sys.stderr)
         return 1
-    bar.update(bar.total - bar.n)
-    bar.close()
     if site_bar is not None:
         site_bar.close()
     try:
+        if getattr(case, "scenarios", ()):  # each named scenario's plan (solved once: the files read it again)
+            from models.comparison import case_scenarios
+
+            progress("scenarios")
+            case_scenarios(case, result, progress=bar.set_postfix_str)
+        progress("files")
         written = write_run(result, args.out, case)
     except OSError as exc:
+        _close_bars(bar)
         return _write_failed("run", args.out, exc)
+    except BaseException:  # (an interruption: "interrupted" is the last line)
+        _close_bars(bar)
+        raise
+    bar.update(bar.total - bar.n)
+    bar.close()
     _print_run_summary(case, result)
     _print_scenarios(case, result)
     _print_measure_first(case, result)

@@ -137,7 +137,7 @@ def compare(rows: Sequence[tuple[str, Any, dict[str, float]]]) -> pd.DataFrame:
 _LAST: dict[str, tuple] = {}
 
 
-def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
+def case_scenarios(case, result, plan_settings=None, progress=None) -> pd.DataFrame:
     """The case as written (``result``) beside each of the case's named scenarios, run on its physics.
 
     Parameters
@@ -149,6 +149,9 @@ def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
     plan_settings : models.scenario.PlanSettings, optional
         How far each scenario's exact plan is proven (default: as the run's own plan was,
         :data:`models.scenario.PRECISE_PLAN` where it does not say).
+    progress : callable, optional
+        Called with a short text ("scenario 2 of 3: Cheaper money") before each plan is solved (each may take
+        up to the plan's time limit).
 
     Returns
     -------
@@ -168,9 +171,14 @@ def case_scenarios(case, result, plan_settings=None) -> pd.DataFrame:
     if replace(result.assumptions, monte_carlo_seed=own.monte_carlo_seed, monte_carlo_draws=own.monte_carlo_draws) == own:
         rows = [(BASE_NAME, result.assumptions, plan_headline(result))]
     else:  # a run under edited assumptions: the case's own first, then this run's, then the scenarios
+        if progress is not None:
+            progress(f"the case as written ({BASE_NAME})")
         base = scenario.economics(case, result.physics, own, with_risk=False, plan_settings=settings)
         rows = [(BASE_NAME, own, plan_headline(base)), (RUN_NAME, result.assumptions, plan_headline(result))]
-    for name, assumptions in getattr(case, "scenarios", ()):
+    named = list(getattr(case, "scenarios", ()))
+    for k, (name, assumptions) in enumerate(named):
+        if progress is not None:
+            progress(f"scenario {k + 1} of {len(named)}: {name}")
         other = scenario.economics(case, result.physics, assumptions, with_risk=False, plan_settings=settings)
         rows.append((name, assumptions, plan_headline(other)))
     table = compare(rows)

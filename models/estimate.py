@@ -163,7 +163,8 @@ def estimate_run(case, workers: int = 1, threads: int | None = None, workers_her
     Notes
     -----
     t = t_fixed + n_a n_o n_t (c_machines + c_bills) / s + n_a (c_load + c_economics)
-    + min(n_a c_plan, t_plan,max), with s = min(workers, n_sites) / d on Dask (d =
+    + (1 + n_scen) t_plan + n_scen n_a c_economics, t_plan = min(n_a c_plan, t_plan,max), for the case's
+    n_scen named scenarios (each runs the economics and its own plan), with s = min(workers, n_sites) / d on Dask (d =
     :data:`DASK_WORKER_COST`) and 1 + g (k - 1) for k local site threads (g = :data:`THREAD_GAIN`), and
     the constants of this module (measured by
     ``benchmarks/bench_fleet.py`` with one thread), with the case's profiles read at
@@ -200,6 +201,8 @@ class _RunSize:
     profile_intervals: int = 0
     #: memory the profiles hold [bytes] (None: :data:`PROFILE_BYTES_PER_INTERVAL` per interval)
     profile_bytes: int | None = None
+    #: the case's named scenarios (scenarios.toml): each runs the economics and solves a plan of its own
+    n_scenarios: int = 0
 
     @classmethod
     def of(cls, case) -> "_RunSize":
@@ -210,7 +213,8 @@ class _RunSize:
             index.nbytes for index in indexes.values())
         return cls(len(case.assets), len(options_with_baseline(case.options)), len(case_index(case)), len(sites),
                    max((len(rows) for _, rows in sites), default=0),
-                   sum(len(series) for series in profiles.values()), int(held))
+                   sum(len(series) for series in profiles.values()), int(held),
+                   len(getattr(case, "scenarios", ()) or ()))
 
 
 def _dense_block_bytes(n_assets: int, n_o: int, n_t: int) -> int:
@@ -233,9 +237,12 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     else:
         at_once = local_threads
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
+    plan_s = min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S)
+    # each named scenario: the economics and a plan of its own (the run's plan's time, not its risk)
+    scenarios_s = size.n_scenarios * (n_a * ECONOMICS_S_PER_ASSET + plan_s)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel
                + n_a * (LOAD_S_PER_ASSET + ECONOMICS_S_PER_ASSET) + size.profile_intervals * LOAD_S_PER_PROFILE_INTERVAL
-               + min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S))
+               + plan_s + scenarios_s)
     dense = interval_bytes(n_a, n_o, n_t) <= b.dense_bytes
     today = interval_bytes(n_a, 1, n_t)
     spilled = not dense and today > b.today_in_memory_bytes
@@ -288,8 +295,10 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     if n_workers:
         peak_text += f" (each worker about {worker_bytes / 2**30:.1f} GiB"
         peak_text += ", counted)" if workers_here else ")"
+    scenarios = (f" (the plans of its {counted(size.n_scenarios, 'named scenario')} included)" if size.n_scenarios
+                 else "")
     note = (f"{n_a:,} assets x {n_o} options x {n_t:,} steps on {counted(size.n_sites, 'site')}{engine}: about "
-            f"{_duration(seconds)} and {peak_text}; keeps {kept}.")
+            f"{_duration(seconds)}{scenarios} and {peak_text}; keeps {kept}.")
     return Estimate(float(seconds), int(peak), note)
 
 

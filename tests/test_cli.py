@@ -883,7 +883,7 @@ def test_a_worker_without_drivecase_gives_a_message(tmp_path, capsys, monkeypatc
 
 
 def test_run_progress_counts_stages_and_says_when_it_waits_for_the_plan(tmp_path, capsys):
-    # eight stages (drivecase.cli.STAGES), each said once in order (the error stream here is no terminal: one
+    # ten stages (drivecase.cli.STAGES), each said once in order (the error stream here is no terminal: one
     # line per stage); the plan's "finishing" note, shown while the plan solved beside the risk is awaited, is a
     # line of its own between them
     from drivecase.cli import STAGES
@@ -893,6 +893,10 @@ def test_run_progress_counts_stages_and_says_when_it_waits_for_the_plan(tmp_path
             if line.startswith("drivecase run: ") and line.endswith(" s)")]
     assert [s for s in said if s in STAGES] == list(STAGES)
     assert "fleet plan (finishing)" in said
+    # the named scenarios' plans (data/demo/scenarios.toml: three) are said one by one before the files are
+    # written, so the run does not fall silent after the bills
+    notes = said[said.index("scenarios") + 1:said.index("files")]
+    assert [n.split(":")[0] for n in notes] == ["scenario 1 of 3", "scenario 2 of 3", "scenario 3 of 3"]
 
 
 def test_bill_says_when_the_analysis_prices_at_another_level(tmp_path, capsys):
