@@ -379,7 +379,10 @@ def plan_exact(project_id: Any, asset_id: Any, npv: Any, capital_by_year: Any, b
         status, message = _proven(x, gap, mip_rel_gap)
     else:
         status = "time_limit"
-        message = (f"best plan found before the solver stopped ({solver.modelStatusToString(status_code)}); "
+        why = ("its time limit was reached" if status_code == highspy.HighsModelStatus.kTimeLimit
+               else "it was interrupted" if status_code == highspy.HighsModelStatus.kInterrupt
+               else "it stopped before a proof")
+        message = (f"best plan found before the search stopped ({why}); "
                    f"within {gap * 100:.3g} % of the best possible NPV")
     return _result(data, x, "exact", status, message, max(gap, 0.0) if np.isfinite(gap) else gap)
 

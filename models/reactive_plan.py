@@ -323,4 +323,9 @@ def plan_without_idle_reactive(solve, case, op, results: pd.DataFrame, project_i
         frames[4]["set_aside"] = tuple(sorted(set_aside - withdrawn))
         exact_solves += exact_again
         frames[4]["solves"] = exact_solves  # of the exact plan
+    left = withdrawn | set_aside
+    if left and str(frames[4].get("message", "")).endswith("of the best possible NPV"):
+        # the proof is over the projects the last solve was given: those the check left out are not in it
+        frames[4]["message"] += (f" among the projects the reactive check left in the search "
+                                 f"({counted(len(left), 'project')} withdrawn or set aside)")
     return frames

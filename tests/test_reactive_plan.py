@@ -172,3 +172,17 @@ def test_fits_budgets_counts_each_years_capital_from_the_projects_start():
     assert scenario._fits_budgets(plan_frame, results, spend, ())
     other = pd.DataFrame({"asset_id": ["A", "C"], "option_id": ["x", "y"]})  # B/y no longer among the results
     assert not scenario._fits_budgets(plan_frame, other, spend, (100.0, 80.0))
+
+
+def test_the_plans_bound_says_it_is_over_the_projects_the_check_left(demo_run_physics):
+    # The exact plan's proof covers the projects its last solve was given: where the reactive check withdrew or set
+    # aside some, the status says so (a plan that kept them is outside the proof). The demo's plan withdraws some.
+    from models import scenario
+
+    case, phys = demo_run_physics
+    status = scenario.economics(case, phys, case.finance, with_risk=False).plan_status
+    left = set(status.get("withdrawn", ())) | set(status.get("set_aside", ()))
+    assert left  # the demo's premise
+    assert status["message"].startswith("plan proven within ")
+    assert status["message"].endswith(f"of the best possible NPV among the projects the reactive check left in the "
+                                      f"search ({len(left)} project{'s' if len(left) != 1 else ''} withdrawn or set aside)")
