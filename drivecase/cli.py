@@ -653,6 +653,11 @@ def _print_scenarios(case, result) -> None:
         if row["scenario"] != table["scenario"].iloc[0]:
             line += (f" (NPV {'+' if row['plan_npv_change'] >= 0 else '-'}"
                      f"{money_text(abs(row['plan_npv_change']), cur)})")
+        if (row["replacement_mode"] == "replace at failure" and row["budget_total"] > 0
+                and row["plan_capital"] > row["budget_total"] + 0.5):
+            # the budgets count each motor in the year it is bought, at its expected failure: most fall later
+            line += ("; the capital is over the horizon, bought as each motor fails, most of it after the "
+                     f"budgeted years ({money_text(row['budget_total'], cur)} of budget)")
         print(line)
 
 
@@ -679,6 +684,13 @@ def _print_run_summary(case, result) -> None:
     if failed:
         print(f"  {counted(len(failed), 'motor')} marked as failed, each option counted over the least that puts it "
               f"back in service now: {', '.join(failed)}")
+        from models.pack.content import failed_motor_texts
+
+        texts = failed_motor_texts(result, currency)
+        for asset_id, text in texts[:10]:
+            print(f"    {asset_id}: {text[:1].upper() + text[1:]}")
+        if len(texts) > 10:
+            print(f"    ... and {len(texts) - 10} more (end_of_life.csv, plan.csv)")
     under = "under the budget" if len(result.assumptions.budget_per_yr) else "with no budget limit"
     # the yearly saving as the plan counts it (a reactive project at its share beside the others), the pack's headline
     from models.pack.content import plan_counted

@@ -1026,3 +1026,26 @@ def test_out_that_is_a_broken_link_is_refused_before_any_work(tmp_path, capsys):
         assert f"goes through {through}" in err and "does not lead to a folder" in err, err
     assert link.is_symlink() and not (tmp_path / "gone").exists()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["loop", "results"]  # no probe folder left behind
+
+
+def test_a_scenario_that_waits_for_failures_says_why_its_capital_exceeds_its_budget(monkeypatch, capsys):
+    # a scenario replacing motors at failure buys each one the year it is expected to fail: its plan's capital over
+    # the horizon can be many times its budget, most of it after the budgeted years; the line says so (hand-made
+    # table of the shape models.comparison.case_scenarios returns)
+    from types import SimpleNamespace
+
+    import pandas as pd
+
+    from drivecase import cli
+    from models import comparison
+
+    table = pd.DataFrame({"scenario": ["Case as written", "Wait for failures", "No budget"],
+                          "replacement_mode": ["replace now", "replace at failure", "replace at failure"],
+                          "budget_total": [650_000.0, 650_000.0, 0.0], "plan_capital": [649_950.0, 1_165_664.0, 2e6],
+                          "plan_npv": [8e6, 9e6, 9e6], "yearly_saving_per_yr": [1e6, 1e6, 1e6], "projects": [71, 80, 90],
+                          "plan_npv_change": [0.0, 1e6, 1e6]})
+    monkeypatch.setattr(comparison, "case_scenarios", lambda case, result: table)
+    cli._print_scenarios(SimpleNamespace(scenarios=[("x", None)], settings=SimpleNamespace(currency="EUR")), None)
+    lines = [line for line in capsys.readouterr().out.splitlines() if line.startswith("  ")]
+    assert "bought as each motor fails, most of it after the budgeted years (EUR 650,000 of budget)" in lines[1]
+    assert "budgeted years" not in lines[0] and "budgeted years" not in lines[2]  # within budget; no budget at all

@@ -505,6 +505,22 @@ def test_check_and_run_name_the_motors_marked_as_failed(tmp_path, capsys):
     assert main(["run", str(case.path), "--out", str(tmp_path / "out"), "--no-risk", "--quiet"]) == 0
     out = capsys.readouterr().out
     assert "2 motors marked as failed, each option counted over the least that puts it back in service now: F1, C1" in out
+    # and what to do with each: what the plan buys (or that the repair is outside its capital), the least repair and
+    # the cheaper of a rewind and a new motor now, read against the run's files
+    import pandas as pd
+
+    plan = pd.read_csv(tmp_path / "out" / "plan.csv").set_index("asset_id")
+    eol = pd.read_csv(tmp_path / "out" / "end_of_life.csv").set_index("asset_id")
+    for asset_id in ("F1", "C1"):
+        line = next(x for x in out.splitlines() if x.startswith(f"    {asset_id}: "))
+        if asset_id in plan.index:
+            assert f"in plan year {int(plan.loc[asset_id, 'start_yr'])}" in line
+        else:
+            assert "The plan buys nothing for it; its repair or replacement is not in the plan's capital" in line
+        if asset_id in eol.index:
+            now = {"replace_now": "a new motor now", "rewind_at_failure": "a rewind now"}[eol.loc[asset_id, "best_strategy"]]
+            assert f"over the study period {now} costs least" in line
+        assert "the cheapest outlay that puts it back in service is " in line
 
 
 def test_a_failed_motor_s_measurement_plan_takes_the_least_repair_as_its_baseline(tmp_path):

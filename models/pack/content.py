@@ -462,6 +462,50 @@ BILL_SAVING_COLUMNS = ("saving_energy_per_yr", "saving_demand_per_yr", "saving_r
                        "bill_saving_per_yr")
 
 
+def failed_motor_texts(result, currency: str) -> list[tuple[str, str]]:
+    """For each motor the asset register marks as failed: (asset id, what to do with it in one sentence):
+    what the plan buys for it, or that its repair or replacement is not in the plan's capital; the least that
+    puts it back in service; and which of a rewind now or a new motor now costs least over the study period
+    (the end-of-life comparison)."""
+    from models.end_of_life import STRATEGY_NAMES
+    from models.scenario import REPLACING_TECHNOLOGIES, least_repair
+
+    res = result.results
+    if "failed" not in res:
+        return []
+    failed = list(dict.fromkeys(res.loc[res["failed"].astype(bool), "asset_id"].astype(str)))
+    plan = result.plan.set_index(result.plan["asset_id"].astype(str)) if len(result.plan) else None
+    eol = result.end_of_life
+    eol = eol.set_index(eol["asset_id"].astype(str)) if eol is not None and len(eol) else None
+    labels = res.drop_duplicates("option_id").set_index("option_id")["label"]
+    tech = res.set_index(["asset_id", "option_id"])["technology"]
+    out = []
+    for asset_id in failed:
+        parts = []
+        if plan is not None and asset_id in plan.index:
+            p = plan.loc[asset_id]
+            parts.append(f"the plan buys {labels.get(p['option_id'], p['option_id'])} in plan year {int(p['start_yr'])} "
+                         f"({money_text(float(p['capital']), currency)})")
+            replaced = str(tech.get((asset_id, p["option_id"]), "")) in REPLACING_TECHNOLOGIES
+        else:
+            parts.append("the plan buys nothing for it")
+            replaced = False
+        if not replaced:
+            parts.append("its repair or replacement is not in the plan's capital: book it at once")
+        least = least_repair(res, asset_id)
+        if least is not None:
+            parts.append(f"the cheapest outlay that puts it back in service is {least['label']} "
+                         f"({money_text(float(least['capital']), currency)})")
+        if eol is not None and asset_id in eol.index:
+            e = eol.loc[asset_id]
+            now = {"replace_now": "a new motor now", "rewind_at_failure": "a rewind now"}.get(
+                str(e["best_strategy"]), STRATEGY_NAMES.get(str(e["best_strategy"]), str(e["best_strategy"])))
+            parts.append(f"over the study period {now} costs least, by {money_text(float(e['advantage_over_next']), currency)} "
+                         "in present cost (end_of_life.csv)")
+        out.append((asset_id, "; ".join(parts) + "."))
+    return out
+
+
 def plan_counted(result, frame: pd.DataFrame, paybacks: bool = True) -> pd.DataFrame:
     """``frame`` with each reactive project of the plan's bill savings as the plan counts them: the share r
     (:func:`plan_credit_share`) of each bill component, and (with ``paybacks``) its paybacks on those flows; other
