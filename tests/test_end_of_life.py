@@ -428,7 +428,7 @@ def test_a_failed_motor_s_record_says_so_and_recommends_a_way_back_into_service(
     ctx = record_context(case, result, scope, "F1")
     assert ctx["recommended"] == "Rewind"
     said = " ".join(ctx["reasons"])
-    assert "This motor has failed (asset register). The least that puts it back in service now is the option rewind" in said
+    assert "This motor has failed (asset register). The least that puts it back in service now is rewind (" in said
     assert "now that it has failed" in said and "A separate decision" not in said
     assert "The motor has failed" in ctx["eol_note"] and "Probability" not in ctx["eol_note"]
     assert ("State", "failed, out of service", False) in ctx["nameplate"]  # (label, value, defaulted)

@@ -937,3 +937,24 @@ def test_the_register_names_the_saving_the_plans_projects_share(demo_run_physics
     detail = row["detail"].iloc[0]
     assert content.money(apart, "EUR") in detail and content.money(together, "EUR") in detail
     assert content.money(apart - together, "EUR") in detail
+
+
+def test_a_record_says_at_which_start_it_counts_the_plans_npv(demo_run_physics):
+    # A reactive project credited a share of its saving and started after plan year 0: its record's "the plan counts
+    # an NPV of X" is at the project's own start, while the report's decision table gives it at the plan's start;
+    # the record names both (the second is the first discounted over the plan years before it).
+    from models.pack.content import select_scope
+    from models.pack.decision_record import record_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    plan = result.plan.set_index("asset_id")
+    own = result.results.set_index(["asset_id", "option_id"])["npv"]
+    later = [a for a, r in plan.iterrows() if r["start_yr"] > 0 and abs(r["npv"] - own[(a, r["option_id"])]) > 0.5]
+    assert later  # the demo's premise: a repriced project after plan year 0
+    asset_id = later[0]
+    scope = select_scope(case, result, assets=[asset_id], plan=False)
+    said = " ".join(record_context(case, result, scope, asset_id)["reasons"])
+    start = int(plan.loc[asset_id, "start_yr"])
+    at_start = plan.loc[asset_id, "npv"] / (1 + case.finance.discount_rate_frac) ** start  # hand: discounted k years
+    assert f"at its own start (plan year {start}; EUR {at_start:,.0f} at the plan's start" in said, said

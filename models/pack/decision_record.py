@@ -147,7 +147,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         must = least_repair(result.results, asset_id)
         name = str(must["label"]) if must is not None else ""
         name = name[:1].lower() + name[1:] if name[1:2].islower() else name  # "rewind", "new IE3 induction motor"
-        least = (f"the option {name} ({content.money(float(must['capital']), cur)})" if must is not None
+        least = (f"{name} ({content.money(float(must['capital']), cur)})" if must is not None
                  else "a rewind or a new motor")
         reasons.append(f"This motor has failed (asset register). The least that puts it back in service now is {least}: "
                        "each option that replaces the motor is credited with that capital, and from year 1 its "
@@ -176,8 +176,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                            f"{content.in_service_words(case, result)}; the NPV counts it where it falls within the "
                            "horizon.")
         if abs(plan_npv - own_npv) > 0.5:
+            start = int(rec.get("plan_start_yr", 0) or 0)
+            at_start = float(rec.get("plan_npv_at_start", plan_npv))
+            # (the report's decision table gives it at the plan's start: discounted the plan years before its own)
+            basis = (f" at its own start (plan year {start}; {content.money(at_start, cur)} at the plan's start, as "
+                     "the report's decision table gives it)" if start > 0 and abs(at_start - plan_npv) > 0.5 else "")
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
-                           f"{content.money(plan_npv, cur)} for it.")
+                           f"{content.money(plan_npv, cur)}{basis} for it.")
         others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
         if len(others):
             o = others.iloc[0]
@@ -241,8 +246,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                        "on its own.")
     elif failed and rec["technology"] not in REPLACING_TECHNOLOGIES and not is_keep:
         reasons.append(f"This option ({rec['label']}) needs the motor back in service first, which this request does "
-                       f"not hold: book that on its own, at once ({least} is the least repair; the comparison below "
-                       "says whether a new motor costs less once the outage is counted).")
+                       f"not hold: book that on its own, at once ({least} is the least repair"
+                       + ("; the comparison above says whether a new motor costs less once the outage is counted)."
+                          if best_strategy else ")."))
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
