@@ -99,10 +99,13 @@ def cmd_check(args: argparse.Namespace) -> int:
               f"{counted(case.bill_history['site_id'].nunique(), 'site')} (drivecase bill and run set the model "
               "beside them)")
     summary = fleet_summary(case)
+    # headings in words, as the other tables (the engine's column names are the files')
+    headings = {"site_id": "site", "assets": "motors", "installed_kw": f"installed [{unit}]",
+                "column": "field (asset register column)", "data_quality_pct": "mean data quality [%]"}
     for key in ("by_site", "by_application"):
         table = summary[key]
-        summary[key] = table.assign(installed_kw=rating_in_unit(table["installed_kw"], unit)).rename(
-            columns={"installed_kw": f"installed_{unit.lower()}"})
+        summary[key] = table.assign(installed_kw=rating_in_unit(table["installed_kw"], unit))
+    summary = {key: table.rename(columns=headings) for key, table in summary.items()}
     _print_table(summary["by_site"], f"Installed power by site [{unit}]")
     _print_table(summary["by_application"], f"Installed power by application [{unit}]")
     _print_table(summary["defaulted"], "Defaulted fields (filled from class, size or application defaults)")
@@ -753,7 +756,7 @@ def _print_run_summary(case, result) -> None:
     for column in ("capital", "bill_saving_per_yr", "npv"):  # whole currency units
         top[column] = [f"{v:,.0f}" for v in top[column]]
     table = top[["asset_id", "option", "capital", "bill_saving_per_yr", "npv", "simple_payback_yr", "in_plan"]].rename(
-        columns={"capital": f"capital [{currency}]", "bill_saving_per_yr": f"bill saving [{currency}/yr]",
+        columns={"asset_id": "asset", "capital": f"capital [{currency}]", "bill_saving_per_yr": f"bill saving [{currency}/yr]",
                  "npv": f"NPV [{currency}]", "simple_payback_yr": "simple payback [yr]", "in_plan": "the plan takes"})
     _print_table(table, "Ten best options by NPV (each asset's best, before the budget: the plan may choose another "
                         "option or none)")
@@ -860,14 +863,14 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="drivecase", description="Keep, rewind or replace: motor-fleet economics.")
     parser.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
     sub = parser.add_subparsers(dest="command")
-    p_new = sub.add_parser("new", help="write a blank case (CSV templates, or a workbook with --workbook)")
+    p_new = _command(sub, "new", "write a blank case (CSV templates, or a workbook with --workbook)")
     p_new.add_argument("dir", help="new folder (or .xlsx file) to create")
     p_new.add_argument("--workbook", action="store_true", help="write one .xlsx workbook instead of CSV files")
     p_new.set_defaults(func=cmd_new)
-    p_check = sub.add_parser("check", help="validate a case and print a fleet summary")
+    p_check = _command(sub, "check", "validate a case and print a fleet summary")
     p_check.add_argument("case", help="case folder or .xlsx workbook")
     p_check.set_defaults(func=cmd_check)
-    p_bill = sub.add_parser("bill", help="print each site's monthly bill by line item for today's fleet")
+    p_bill = _command(sub, "bill", "print each site's monthly bill by line item for today's fleet")
     p_bill.add_argument("case", help="case folder or .xlsx workbook")
     p_bill.add_argument("--site", help="only this site")
     p_bill.add_argument("--reactive-sweep", metavar="ASSET",
@@ -877,10 +880,10 @@ def build_parser() -> argparse.ArgumentParser:
                              "capacitor_cost_per_kvar in finance.toml)")
     p_bill.add_argument("--quiet", action="store_true", help="no progress bar")
     p_bill.set_defaults(func=cmd_bill)
-    p_run = sub.add_parser("run", help="run the whole analysis and write the result files")
+    p_run = _command(sub, "run", "run the whole analysis and write the result files")
     p_run.add_argument("case", help="case folder or .xlsx workbook")
     p_run.add_argument("--out", required=True, help="folder for the result files (created if needed)")
-    p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: finance.toml's)")
+    p_run.add_argument("--seed", type=int, help="Monte Carlo seed (default: monte_carlo_seed of finance.toml)")
     p_run.add_argument("--no-risk", action="store_true", help="skip the tornado and Monte Carlo")
     p_run.add_argument("--engine", choices=("local", "dask"), default="local",
                        help="local (default) or dask: the same analysis partitioned by site on a Dask cluster")
@@ -888,25 +891,33 @@ def build_parser() -> argparse.ArgumentParser:
                        help="address of a running Dask scheduler, with --engine dask (default: start a local cluster)")
     _add_run_options(p_run, gap_frac, time_s)
     p_run.set_defaults(func=cmd_run)
-    p_serve = sub.add_parser("serve", help="open the dashboard on a case (the demo case by default)")
+    p_serve = _command(sub, "serve", "open the dashboard on a case (the demo case by default)")
     p_serve.add_argument("case", nargs="?", default=None, help="case folder or .xlsx workbook (default: the demo case)")
     p_serve.add_argument("--port", type=int, default=8050, help="port (default 8050)")
     p_serve.add_argument("--host", default="127.0.0.1",
                          help="address to bind (default 127.0.0.1, this computer only); another address shares the "
                               "dashboard on the network and prints a warning")
-    p_serve.add_argument("--debug", action="store_true", help="Dash debug mode (development only)")
+    p_serve.add_argument("--debug", action="store_true", help="the dashboard's debug mode (development only)")
     p_serve.add_argument("--no-browser", action="store_true", help="do not open a browser window")
     p_serve.set_defaults(func=cmd_serve)
-    p_report = sub.add_parser("report", help="write the capital-request pack (workbook, HTML report, decision records)")
+    p_report = _command(sub, "report", "write the capital-request pack (workbook, HTML report, decision records)")
     p_report.add_argument("case", help="case folder or .xlsx workbook")
     p_report.add_argument("--out", required=True, help="folder for the pack (created if needed)")
     group = p_report.add_mutually_exclusive_group()
     group.add_argument("--assets", help="comma-separated asset ids to report on")
     group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
-    p_report.add_argument("--pdf", action="store_true", help="also print the report to PDF with headless Chromium")
+    p_report.add_argument("--pdf", action="store_true",
+                          help="also print the report to PDF with headless Chromium (needs Playwright and a Chromium; "
+                               "skipped with a message without them)")
     _add_run_options(p_report, gap_frac, time_s)
     p_report.set_defaults(func=cmd_report)
     return parser
+
+
+def _command(sub, name: str, summary: str) -> argparse.ArgumentParser:
+    """A command whose own help (``drivecase NAME --help``) opens with what it does, as the list of commands
+    says it."""
+    return sub.add_parser(name, help=summary, description=summary[:1].upper() + summary[1:] + ".")
 
 
 def _positive_gib(text: str) -> float:
@@ -922,7 +933,7 @@ def _positive_gib(text: str) -> float:
 
 def _add_run_options(parser: argparse.ArgumentParser, gap_frac: float, time_s: float) -> None:
     """The options of a command that runs the analysis (run, report): progress, estimate, the exact plan's bounds."""
-    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar and no line per stage")
     parser.add_argument("--estimate", action="store_true",
                         help="print the estimate of time and memory of the run and stop (nothing is written)")
     parser.add_argument("--max-memory", type=_positive_gib, metavar="GIB",

@@ -1640,9 +1640,13 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
     record("start_duty", a["start_duty"].isna().to_numpy(),
            np.vectorize(nameplate_defaults.START_DUTY_BY_APPLICATION.get, otypes=[object])(app),
            "application default (common practice)")
-    record("static_head_frac", np.isnan(a["static_head_frac"].to_numpy()),
-           np.vectorize(nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION.get, otypes=[float])(app),
-           "application default (common practice)")
+    # logged where a model reads it: a throttled centrifugal load whose drive options follow its system curve
+    head_blank = np.isnan(a["static_head_frac"].to_numpy(dtype=float))
+    head_default = np.vectorize(nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION.get, otypes=[float])(app)
+    read = ((a["speed_control"].to_numpy(dtype=object) == "throttled")
+            & (a["load_type"].to_numpy(dtype=object) == "variable_torque"))
+    record("static_head_frac", head_blank & read, head_default, "application default (common practice)")
+    a["static_head_frac"] = np.where(head_blank, head_default, a["static_head_frac"].to_numpy(dtype=float))
     p_kw = a["rated_p_kw"].to_numpy(dtype=float)
     poles = a["poles"].to_numpy(dtype=float)
     f_hz = a["supply_f_hz"].to_numpy(dtype=float)

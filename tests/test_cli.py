@@ -1049,3 +1049,14 @@ def test_a_scenario_that_waits_for_failures_says_why_its_capital_exceeds_its_bud
     lines = [line for line in capsys.readouterr().out.splitlines() if line.startswith("  ")]
     assert "bought as each motor fails, most of it after the budgeted years (EUR 650,000 of budget)" in lines[1]
     assert "budgeted years" not in lines[0] and "budgeted years" not in lines[2]  # within budget; no budget at all
+
+
+@pytest.mark.parametrize("command", ["new", "check", "bill", "run", "serve", "report"])
+def test_each_commands_own_help_says_what_it_does(command, capsys):
+    # `drivecase COMMAND --help` opens with the command's summary (the list of commands gives the same words)
+    with pytest.raises(SystemExit):
+        main([command, "--help"])
+    text = capsys.readouterr().out
+    usage, summary = text.split("\n\n")[:2]
+    assert usage.startswith(f"usage: drivecase {command}")
+    assert summary.endswith(".") and len(summary) > 20 and summary[0].isupper(), summary

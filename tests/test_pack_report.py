@@ -958,3 +958,15 @@ def test_a_record_says_at_which_start_it_counts_the_plans_npv(demo_run_physics):
     start = int(plan.loc[asset_id, "start_yr"])
     at_start = plan.loc[asset_id, "npv"] / (1 + case.finance.discount_rate_frac) ** start  # hand: discounted k years
     assert f"at its own start (plan year {start}; EUR {at_start:,.0f} at the plan's start" in said, said
+
+
+def test_a_rating_reads_as_its_nameplate(demo_run_physics):
+    # HRW-D01 is a 0.75 kW dosing pump (data/demo/assets.csv): the scope table says 0.75, not 0.8
+    from models.pack.content import select_scope
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    ctx = report_context(case, result, select_scope(case, result, assets=["HRW-D01", "HRW-P01"], plan=False), [])
+    ratings = {r["cells"][0]["text"]: r["cells"][4]["text"] for r in ctx["asset_rows"]}
+    assert ratings == {"HRW-D01": "0.75", "HRW-P01": "250"}

@@ -34,6 +34,14 @@ DEFAULTED_INPUT_ACTIONS = {
     "static_head_frac": "Take the static share of the head from the system's design (pumps and fans on a drive), "
                         "then re-run.",
     "load_type": "Say whether the load is centrifugal (variable torque) or constant torque, then re-run.",
+    "rewind_count": "Take the number of past rewinds from the maintenance records or the repair shop, then re-run.",
+    "rewind_loss_pct_points": "Ask the repair shop for its core-loss test before and after the rewind (or its "
+                              "practice), then re-run.",
+    "start_duty": "Give the starts per hour and the driven load's inertia from the process or the maintenance "
+                  "records, then re-run.",
+    "criticality": "Say how much of the process stops when the motor stops (operations), then re-run.",
+    "machine_type": "Read the nameplate (induction or synchronous), then re-run.",
+    "speed_control": "Say how the flow or speed is controlled today (fixed, throttle or damper, drive), then re-run.",
 }
 CAUTIONS: tuple[str, ...] = (
     "Planning estimates only, not a design: confirm ratings, frame sizes and prices with the manufacturers "

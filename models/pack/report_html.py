@@ -38,6 +38,16 @@ def cell(text: Any, cls: str = "") -> dict[str, str]:
     return {"text": "" if text is None else str(text), "cls": cls}
 
 
+def rating_text(value: float) -> str:
+    """A motor rating as a nameplate gives it, without trailing zeros: two decimals below 10 (0.75, 7.5), one above
+    (100.6 hp for 75 kW, as the decision records write it; 250).
+
+    >>> rating_text(0.75), rating_text(7.5), rating_text(100.58), rating_text(1250.0)
+    ('0.75', '7.5', '100.6', '1,250')
+    """
+    return f"{value:,.{2 if abs(value) < 10 else 1}f}".rstrip("0").rstrip(".")
+
+
 def num(value: float, fmt: str = "{:,.0f}", suffix: str = "", signed: bool = True) -> dict[str, str]:
     """A right-aligned numeric cell; missing values show a dash, negatives in red unless ``signed`` is False."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
@@ -168,7 +178,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         x = assets.loc[asset_id]
         asset_rows.append(row([
             cell(asset_id, "id"), cell(x["description"] or ""), cell(x["site_id"]), cell(x["application"] or ""),
-            num(float(rating_in_unit(float(x["rated_p_kw"]), s.power_unit)), "{:,.1f}"), num(float(x["poles"]), "{:.0f}"), cell(x["efficiency_class"] or ""),
+            cell(rating_text(float(rating_in_unit(float(x["rated_p_kw"]), s.power_unit))), "num"),
+            num(float(x["poles"]), "{:.0f}"), cell(x["efficiency_class"] or ""),
             num(float(x["year_installed"]), "{:.0f}"), num(float(x["rewind_count"]), "{:.0f}"),
             cell(x["speed_control"] or ""), cell(x["criticality"] or ""), num(float(x["data_quality_pct"]), "{:.0f}", " %")]))
 
