@@ -27,6 +27,7 @@ import argparse
 import csv
 import io
 import re
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -231,10 +232,11 @@ def write_fleet(target: str | Path, n_assets: int, n_sites: int = 20, seed: int 
 
 def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("out", help="folder to write")
-    parser.add_argument("--assets", type=int, default=1000)
-    parser.add_argument("--sites", type=int, default=20)
-    parser.add_argument("--seed", type=int, default=20260601)
+    parser.add_argument("out", help="folder to write (new or empty: a case's files left in it would mix with the fleet's)")
+    parser.add_argument("--assets", type=int, default=1000, help="motors in the fleet (default 1000)")
+    parser.add_argument("--sites", type=int, default=20,
+                        help="sites, each with a tariff of its own (default 20, or the number of motors if fewer)")
+    parser.add_argument("--seed", type=int, default=20260601, help="random seed (default 20260601): same seed, same fleet")
     parser.add_argument("--budgets", choices=("per_asset", "demo"), default="per_asset",
                         help="capital budgets: the demo's per motor (default) or the demo's own")
     parser.add_argument("--assets-per-profile", type=int, default=ASSETS_PER_PROFILE,
@@ -242,8 +244,18 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--step-minutes", type=int, choices=STEPS_MIN, default=60,
                         help="the profiles' step in minutes (default 60: 8,760 a year; 15: 35,040)")
     args = parser.parse_args(argv)
-    print(write_fleet(args.out, args.assets, args.sites, args.seed, args.budgets, args.assets_per_profile,
-                      args.step_minutes))
+    out = Path(args.out)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        parser.exit(2, f"synthetic_fleet: {out} is not an empty folder; give a new or empty one (the files of another "
+                       "case left in it would be read with the fleet's)\n")
+    if args.assets < 1:
+        parser.exit(2, "synthetic_fleet: --assets must be 1 or more\n")
+    sites = args.sites if "--sites" in (argv if argv is not None else sys.argv) else min(args.sites, args.assets)
+    if not 1 <= sites <= args.assets:
+        parser.exit(2, f"synthetic_fleet: --sites must be between 1 and the number of motors ({args.assets})\n")
+    written = write_fleet(out, args.assets, sites, args.seed, args.budgets, args.assets_per_profile, args.step_minutes)
+    print(f"{written}: {args.assets:,} motors on {sites} site{'s' if sites != 1 else ''}, {args.step_minutes}-min "
+          f"profiles, one per {args.assets_per_profile} motors (an invented fleet for benchmarks)")
 
 
 if __name__ == "__main__":
