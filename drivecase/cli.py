@@ -441,8 +441,10 @@ def cmd_bill(args: argparse.Namespace) -> int:
 INTERRUPTED = 130
 LARGE_RUN_S = 60.0
 LARGE_RUN_BYTES = 4 * 1024**3
-STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills", "scenarios",
-          "files")
+#: The engine's stages (models.scenario.run says them), and those of ``drivecase run``: the named scenarios'
+#: plans and the files after them.
+ENGINE_STAGES = ("machines", "site bills", "cash flows", "metrics", "fleet plan", "end of life", "risk", "bills")
+STAGES = ENGINE_STAGES + ("scenarios", "files")
 
 
 def _print_calibration(case, meters, bills, op, sites) -> None:
@@ -802,7 +804,7 @@ def cmd_report(args: argparse.Namespace) -> int:
         return 1
     if _said_estimate(memory, args.estimate, then="the pack is written"):
         return 0
-    steps = STAGES + ("pack",)
+    steps = ENGINE_STAGES + ("pack",)
     bar = _Progress(len(steps), "drivecase report", "stage", args.quiet)
 
     def progress(stage: str) -> None:
@@ -823,7 +825,7 @@ def cmd_report(args: argparse.Namespace) -> int:
 
     from models.pack import PackWarning
 
-    bar.update(len(STAGES) - 1 - bar.n)
+    bar.update(len(ENGINE_STAGES) - 1 - bar.n)
     progress("pack")
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:  # the pack's notes as plain lines, not Python warnings
@@ -846,6 +848,7 @@ def cmd_report(args: argparse.Namespace) -> int:
             skipped.add(str(note.message))
         else:
             warnings.showwarning(note.message, note.category, note.filename, note.lineno)
+    _print_pack_headline(case, result)
     print(f"Capital-request pack written to {args.out}:")
     for path in written:
         print(f"  {path}")
@@ -854,6 +857,21 @@ def cmd_report(args: argparse.Namespace) -> int:
             print(f"  {note}")
     print(f"\n{CAUTION}")
     return 0
+
+
+def _print_pack_headline(case, result) -> None:
+    """The fleet plan the pack carries, in one line, and how far its exact plan is proven."""
+    from models.wording import money_text
+
+    cur = case.settings.currency
+    plan = result.plan
+    capital = float(plan["capital"].sum()) if len(plan) else 0.0
+    npv = float(plan["npv_at_plan_start"].sum()) if len(plan) else 0.0
+    print(f"Fleet plan: {counted(len(plan), 'project')}, capital {money_text(capital, cur)}, NPV "
+          f"{money_text(npv, cur)} at the plan's start (the report's headline and decision table)")
+    message = (result.plan_status or {}).get("message")
+    if message:
+        print(f"Exact plan: {message}")
 
 
 def build_parser() -> argparse.ArgumentParser:

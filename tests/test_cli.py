@@ -534,6 +534,10 @@ def test_report_shows_its_stages_on_the_error_stream_unless_quiet(tmp_path, caps
               if line.startswith("drivecase report: ") and line.endswith(" s)")]
     assert stages[0] == "machines" and stages[-1] == "pack" and "fleet plan" in stages and "\r" not in captured.err
     assert "drivecase report: machines" not in captured.out
+    # the plan the pack carries is said on the terminal, as the report's headline gives it
+    headline = next(line for line in captured.out.splitlines() if line.startswith("Fleet plan: "))
+    assert "at the plan's start" in headline and "capital EUR " in headline
+    assert any(line.startswith("Exact plan: ") for line in captured.out.splitlines())
     assert main(["report", str(folder), "--out", str(tmp_path / "pack2"), "--quiet", "--plan-seconds", "5"]) == 0
     assert "drivecase report: machines" not in capsys.readouterr().err
     assert main(["report", str(folder), "--out", str(tmp_path / "pack3"), "--plan-seconds", "0"]) == 2
