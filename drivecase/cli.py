@@ -707,13 +707,16 @@ def _print_run_summary(case, result) -> None:
           f"{currency}/yr (bills {bills_saved:,.0f}, maintenance {maintenance_saved:,.0f}), "
           f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
     budgets = result.assumptions.budget_per_yr
-    if (len(budgets) and result.assumptions.replacement_mode == "replace_at_failure"
-            and result.capital_spend_by_year is not None):
+    if len(budgets) and result.capital_spend_by_year is not None:
+        # (as the pack's plan-by-year table: its "later" row)
         inside, after = capital_in_budget_years(plan, r, result.capital_spend_by_year, len(budgets))
         if after > 0.01 * max(inside + after, 1e-9):
+            why = ("replacements bought at each motor's expected failure, repeat purchases"
+                   if result.assumptions.replacement_mode == "replace_at_failure"
+                   else "repeat purchases of equipment whose life ends within the horizon")
             print(f"  Of the plan's capital over the horizon, {inside:,.0f} {currency} falls in the "
-                  f"{counted(len(budgets), 'budgeted plan year')} and {after:,.0f} {currency} later (replacements "
-                  "bought at each motor's expected failure, repeat purchases), which the budgets do not cover")
+                  f"{counted(len(budgets), 'budgeted plan year')} and {after:,.0f} {currency} later ({why}), "
+                  "which the budgets do not cover")
     low_n, low_share = low_data_quality(plan, dict(zip(case.assets["asset_id"], case.assets["data_quality_pct"])))
     if low_n:
         print(f"  Data quality: {counted(low_n, 'project')} of the plan, {100 * low_share:.0f} % of its NPV, rest on "
