@@ -914,7 +914,7 @@ def build_parser() -> argparse.ArgumentParser:
     p_run.set_defaults(func=cmd_run)
     p_serve = _command(sub, "serve", "open the dashboard on a case (the demo case by default)")
     p_serve.add_argument("case", nargs="?", default=None, help="case folder or .xlsx workbook (default: the demo case)")
-    p_serve.add_argument("--port", type=int, default=8050, help="port (default 8050)")
+    p_serve.add_argument("--port", type=_port, default=8050, help="port, 1 to 65535 (default 8050)")
     p_serve.add_argument("--host", default="127.0.0.1",
                          help="address to bind (default 127.0.0.1, this computer only); another address shares the "
                               "dashboard on the network and prints a warning")
@@ -939,6 +939,17 @@ def _command(sub, name: str, summary: str) -> argparse.ArgumentParser:
     """A command whose own help (``drivecase NAME --help``) opens with what it does, as the list of commands
     says it."""
     return sub.add_parser(name, help=summary, description=summary[:1].upper() + summary[1:] + ".")
+
+
+def _port(text: str) -> int:
+    """A network port given on the command line: a whole number from 1 to 65535."""
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if not 1 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a port: give a whole number from 1 to 65535, e.g. 8050")
+    return value
 
 
 def _positive_gib(text: str) -> float:

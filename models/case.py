@@ -597,6 +597,8 @@ def _known_zones() -> frozenset[str]:
 
 
 #: The settings a case declares (docs/case-format.md, "case.toml").
+#: The years a purchase date may fall in: the efficiency rules' history to a planning horizon ahead.
+PURCHASE_YEARS = (1990, 2100)
 SETTING_KEYS = ("name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date",
                 "in_service_month")
 
@@ -700,6 +702,14 @@ def _settings(raw: io.RawCase, problems: list[Problem]) -> CaseSettings:
                                   "purchase_date must be a date written YYYY-MM-DD",
                                   "the day the new motors are bought, e.g. 2027-09-01; leave it out for the day of the run"))
             purchase = ""
+        else:
+            if not PURCHASE_YEARS[0] <= int(purchase[:4]) <= PURCHASE_YEARS[1]:
+                # (the rules are read by date; a date far from today is a slip of the keyboard)
+                problems.append(error(source, None, "purchase_date", data.get("purchase_date"),
+                                      f"purchase_date must fall between {PURCHASE_YEARS[0]} and {PURCHASE_YEARS[1]}",
+                                      "the day the new motors are bought, e.g. 2027-09-01; leave it out for the day "
+                                      "of the run"))
+                purchase = ""
     in_service = data.get("in_service_month")
     if in_service is not None:
         number = in_service if isinstance(in_service, int) and not isinstance(in_service, bool) else None
@@ -1860,8 +1870,12 @@ def _check_period_grid(tariffs: dict, profiles: dict, settings: CaseSettings, as
 
 
 def _grid_for(minutes: list[int]) -> int:
-    """The coarsest profile resolution (60, 30 or 15 min) on which every one of ``minutes`` falls."""
-    return next(step for step in (60, 30, 15) if all(m % step == 0 for m in minutes))
+    """The coarsest profile resolution (60, 30, 15, 5 or 1 min) on which every one of ``minutes`` falls.
+
+    >>> _grid_for([420]), _grid_for([440]), _grid_for([427])
+    (60, 5, 1)
+    """
+    return next(step for step in (60, 30, 15, 5, 1) if all(m % step == 0 for m in minutes))
 
 
 def _check_demand_windows(sites: _TableChecker, assets: pd.DataFrame, tariffs: dict, profile_info) -> None:

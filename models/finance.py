@@ -1436,6 +1436,13 @@ class FinanceAssumptions:
         problems: list[Problem] = []
         values = _as_dict(cls())
         for key, raw in data.items():
+            if key not in values and isinstance(raw, dict):
+                # a table of its own ([financ]): every key in it would be ignored and the defaults used silently
+                problems.append(error(source, None, prefix + key, f"[{key}]",
+                                      "unknown table: the keys under it would all be ignored",
+                                      "write the keys at the top of the file, or under [finance]"
+                                      + (" (is it a misspelling of [finance]?)" if key.lower().startswith("fin") else "")))
+                continue
             if key not in values:
                 import difflib
 
@@ -1463,6 +1470,12 @@ class FinanceAssumptions:
 def _as_dict(assumptions: FinanceAssumptions) -> dict[str, Any]:
     return {name: getattr(assumptions, name) for name in FinanceAssumptions.__dataclass_fields__}
 
+
+#: How far either side of the case's discount rate the uncertainty draws it [frac/yr] (the widest of
+#: models.risk's discount-rate distribution).
+DISCOUNT_RATE_DRAW_SPREAD_FRAC = 0.02
+#: The longest study period a case may ask for [yr] (and so the most plan years a budget may have).
+MAX_HORIZON_YR = 100
 
 _INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed")
 #: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
@@ -1623,13 +1636,17 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
         v = values[key]
         if not math.isfinite(v) or v <= -1.0 or v > 1.0:
             bad(key, "must be a fraction between -1 and 1", "rates are fractions: 8 % is 0.08")
+        elif key == "discount_rate_frac" and v - DISCOUNT_RATE_DRAW_SPREAD_FRAC <= -1.0:
+            bad(key, f"must be above {DISCOUNT_RATE_DRAW_SPREAD_FRAC - 1.0:g}: the uncertainty draws the rate "
+                f"{DISCOUNT_RATE_DRAW_SPREAD_FRAC * 100:g} points either side, and a rate of -100 % or below has no "
+                "present value", "rates are fractions: 8 % is 0.08")
         elif key == "discount_rate_frac" and not (0.0 <= v <= 0.5):
             odd(key, "discount rate outside 0-0.5 is unusual", "check the value; 8 % is 0.08")
         elif key != "discount_rate_frac" and abs(v) > 0.2:
             odd(key, "more than 20 % a year is unusual", "check the value; 2 % is 0.02")
     h = values["horizon_yr"]
-    if not 1 <= h <= 100:
-        bad("horizon_yr", "must be between 1 and 100 years", "15-20 years suits most motor projects")
+    if not 1 <= h <= MAX_HORIZON_YR:
+        bad("horizon_yr", f"must be between 1 and {MAX_HORIZON_YR} years", "15-20 years suits most motor projects")
     if not (math.isfinite(values["grid_co2_kg_per_kwh"]) and 0.0 <= values["grid_co2_kg_per_kwh"] <= 2.0):
         bad("grid_co2_kg_per_kwh", "must be between 0 and 2 kg/kWh", "grid averages lie between about 0.02 and 1")
     if not (math.isfinite(values["grid_co2_decline_frac"]) and -0.5 <= values["grid_co2_decline_frac"] < 1.0):
@@ -1655,6 +1672,9 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
     budget = values["budget_per_yr"]
     if any(not math.isfinite(b) and b != math.inf for b in budget) or any(b < 0 for b in budget):
         bad("budget_per_yr", "budgets must be numbers >= 0", "use a large number for an unconstrained year")
+    if len(budget) > MAX_HORIZON_YR:  # (a plan year past every horizon buys nothing; the plan's arrays grow with its square)
+        bad("budget_per_yr", f"has {len(budget):,} plan years: at most {MAX_HORIZON_YR}, the longest horizon",
+            "give one budget per plan year within the horizon")
     if not 1 <= values["monte_carlo_draws"] <= 1_000_000:
         bad("monte_carlo_draws", "must be between 1 and 1,000,000", "1,000 draws is usually enough")
     if values["monte_carlo_seed"] < 0:

@@ -22,7 +22,7 @@ from numpy.random import PCG64, Generator
 from scipy.optimize import brentq
 
 from models.cashflows import CAPITAL_COMPONENTS, TAXABLE_COMPONENTS
-from models.finance import FinanceAssumptions, PaybackResult, simple_payback
+from models.finance import DISCOUNT_RATE_DRAW_SPREAD_FRAC, FinanceAssumptions, PaybackResult, simple_payback
 
 DistributionKind = Literal["normal", "lognormal", "triangular", "uniform", "fixed"]
 
@@ -233,7 +233,8 @@ DEFAULT_FACTORS: dict[str, Distribution] = {
     "escalation_delta_frac": Distribution("normal", 0.0, 0.01, source="common practice: +/-1 %/yr on escalation"),
     "hours_mult": Distribution("triangular", 0.8, 1.0, 1.1, source="common practice: logged hours often below estimates"),
     "load_mult": Distribution("triangular", 0.85, 1.0, 1.15, source="common practice: +/-15 % on estimated load"),
-    "discount_rate_delta_frac": Distribution("triangular", -0.02, 0.0, 0.02, source="common practice: +/-2 points"),
+    "discount_rate_delta_frac": Distribution("triangular", -DISCOUNT_RATE_DRAW_SPREAD_FRAC, 0.0,
+                                             DISCOUNT_RATE_DRAW_SPREAD_FRAC, source="common practice: +/-2 points"),
     "capital_mult": Distribution("triangular", 0.9, 1.0, 1.3, source="common practice: quotes -10 %, overruns +30 %"),
     "loss_band_delta_frac": Distribution(
         "triangular", -1.0, 0.0, 1.0,
@@ -503,7 +504,9 @@ def monte_carlo(
         raise ValueError(f"rate factor {rate_delta!r} is not among the factors")
     rate = discount_rate_frac + (np.asarray(factors[rate_delta], dtype=float) if rate_delta else np.zeros(n_draws))
     if np.any(rate <= -1):
-        raise ValueError("a drawn discount rate is <= -1; narrow the discount-rate distribution")
+        raise ValueError(f"the discount rate {discount_rate_frac:g} drawn {float(np.min(rate - discount_rate_frac)):+g} "
+                         "reaches -100 % or below, which has no present value: give a discount rate further above -1 "
+                         "(finance assumptions, discount_rate_frac), or run without the uncertainty")
     npv_out = np.empty((n_draws, n))
     payback_out = np.empty((n_draws, n))
     active = [c for c in range(len(component_names)) if np.any(amounts[:, :, c])

@@ -961,6 +961,7 @@ def _problems_with_periods(tmp_path, weekday_rules: str) -> list:
 
 
 @pytest.mark.parametrize("peak_hours, off_hours, warned", [('"17:30-20:30"', '"20:30-17:30"', "17:30, 20:30"),
+                                                      ('"07:20-23:00"', '"23:00-07:20"', "07:20"),
                                                       ('"17:00-20:00"', '"20:00-17:00"', None)])
 def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, peak_hours, off_hours, warned):
     # the small case's profile is hourly (tests/casebuilder.py): a period from 17:30 prices the 17:00 hour wholly in
@@ -972,7 +973,8 @@ def test_a_time_of_use_boundary_between_the_interval_starts_is_warned(tmp_path, 
         assert not found
     else:
         assert [p.value for p in found] == [warned]  # one warning for the tariff, each change listed once
-        assert found[0].column == "periods" and "30-min" in found[0].hint
+        # the resolution the change falls on (07:20 is on no 15-min grid: an internal error before, not a warning)
+        assert found[0].column == "periods" and ("30-min" if warned.endswith(":30") else "5-min") in found[0].hint
 
 
 def test_two_rules_of_one_period_that_meet_off_the_grid_are_no_change(tmp_path):
@@ -1526,3 +1528,45 @@ def test_no_line_fed_synchronous_machine_where_a_drive_sets_the_speed():
         assert all(r.startswith("speed is drive-controlled") for r in reason[on_drive, cols]), reason[on_drive, cols]
     pm_drive = np.flatnonzero(tech == "pm_drive")
     assert applies[0, pm_drive].all()  # the synchronous choice on a drive
+
+
+def test_a_misspelt_finance_table_is_refused_not_ignored(tmp_path):
+    # [financ] holding the case's keys would leave every assumption at its default (no budget limit among them):
+    # refused, naming the table
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    (folder / "finance.toml").write_text("[financ]\ndiscount_rate_frac = 0.06\nbudget_per_yr = [1000]\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    found = [p for p in problems if p.severity == "error" and p.column == "financ"]
+    assert case is None and found and "unknown table" in found[0].rule and "[finance]" in found[0].hint
+
+
+@pytest.mark.parametrize("text, rule", [
+    ("budget_per_yr = [" + ", ".join(["1000"] * 101) + "]\n", "has 101 plan years: at most 100"),
+    ("discount_rate_frac = -0.99\n", "must be above -0.98"),
+])
+def test_finance_values_no_run_can_use_are_refused_when_read(tmp_path, text, rule):
+    # a budget of more plan years than the longest horizon (100), and a discount rate whose uncertainty draws
+    # (2 points either side) reach -100 %: refused by the case check, not found out by the run
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    (folder / "finance.toml").write_text(text, encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None and any(p.severity == "error" and rule in p.rule for p in problems), [str(p) for p in problems]
+
+
+@pytest.mark.parametrize("date", ["9999-12-31", "1900-01-01"])
+def test_a_purchase_date_far_from_any_rule_is_refused(tmp_path, date):
+    # the efficiency rules are read by the purchase date; a date in the year 9999 overflowed the calendar
+    # (an internal error before), one in 1900 is a slip of the keyboard: both refused with the key named
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    toml = folder / "case.toml"
+    toml.write_text(toml.read_text(encoding="utf-8") + f'purchase_date = "{date}"\n', encoding="utf-8")
+    case, problems = load_case(folder)
+    found = [p for p in problems if p.column == "purchase_date" and p.severity == "error"]
+    assert case is None and found and "between 1990 and 2100" in found[0].rule
+    assert not any("internal error" in p.rule for p in problems)
