@@ -1884,7 +1884,7 @@ def risk_rows(result, scope: str = "best") -> pd.DataFrame:
         return pd.DataFrame(columns=["project_id", "asset_id", "label", "start_yr", "npv_p10", "npv_p50", "npv_p90",
                                      "prob_npv_positive_frac"])
     r = r.copy()
-    split = r["project_id"].astype(str).str.split("/", n=1, expand=True)
+    split = r["project_id"].astype(str).str.rsplit("/", n=1, expand=True)
     r["asset_id"], r["option_id"] = split[0], split[1]
     labels = result.results.set_index(scenario.project_labels(result.results))["label"]
     r["label"] = labels.reindex(r["project_id"].astype(str)).to_numpy(dtype=object)

@@ -581,8 +581,12 @@ def _range_hint(name: str, value: float) -> str:
     if name.endswith("_pct") and value < 0:
         return "percent columns take 0-100"
     if name.endswith("power_factor") and 1 < value <= 100:
-        return f"a power factor is a fraction (0-1): {value:g} % is {value / 100:g}"
-    if name.startswith("rated_p") and value <= 0:
+        # (1.2 is no percent written for a fraction: 1.2 % is no power factor of a motor either)
+        return (f"a power factor is a fraction (0-1): {value:g} % is {value / 100:g}" if value >= 10
+                else "a power factor lies between 0 and 1 (a motor's full-load one between about 0.7 and 0.95)")
+    if name.endswith("power_factor") and value <= 0:
+        return "a power factor lies between 0 and 1 (a motor's full-load one between about 0.7 and 0.95)"
+    if name in ("rated_p_kw", "rated_p_hp") and value <= 0:
         return "rated power must be positive"
     return "check the value and its unit"
 

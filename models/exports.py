@@ -249,7 +249,7 @@ def _by_asset_and_option(rows: pd.DataFrame) -> pd.DataFrame:
     """A Monte Carlo summary with its "asset/option" project label split into asset_id and option_id."""
     rows = rows.copy()
     if not rows.empty and "project_id" in rows:
-        split = rows["project_id"].str.split("/", n=1, expand=True)
+        split = rows["project_id"].str.rsplit("/", n=1, expand=True)  # (an asset id may hold "/"; an option id not)
         rows.insert(0, "option_id", split[1])
         rows.insert(0, "asset_id", split[0])
         rows = rows.drop(columns=["project_id"])
@@ -287,7 +287,7 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
                               "best_options_npv": result.fleet_npv_draws, "plan_npv": plan_draws})
     abatement = result.abatement.copy()
     if not abatement.empty:
-        abatement.insert(1, "option_id", abatement["project_id"].str.split("/", n=1, expand=True)[1])
+        abatement.insert(1, "option_id", abatement["project_id"].str.rsplit("/", n=1, expand=True)[1])
         abatement = abatement.drop(columns=["project_id"])
     flags = result.physics.operation.flags.copy()
     tables = {

@@ -1643,7 +1643,7 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
         elif key == "discount_rate_frac" and not (0.0 <= v <= 0.5):
             odd(key, "discount rate outside 0-0.5 is unusual", "check the value; 8 % is 0.08")
         elif key != "discount_rate_frac" and abs(v) > 0.2:
-            odd(key, "more than 20 % a year is unusual", "check the value; 2 % is 0.02")
+            odd(key, "a change of more than 20 % a year, up or down, is unusual", "check the value; 2 % is 0.02")
     h = values["horizon_yr"]
     if not 1 <= h <= MAX_HORIZON_YR:
         bad("horizon_yr", f"must be between 1 and {MAX_HORIZON_YR} years", "15-20 years suits most motor projects")

@@ -1510,6 +1510,7 @@ def _folder_files(path: Path) -> tuple[dict[str, Path], list[Problem]]:
         return {}, [error(str(path), None, None, None, f"the case folder cannot be listed ({exc.strerror or exc.__class__.__name__})",
                           "check that you may read the folder")]
     files: dict[str, Path] = {}
+    same: dict[str, list[str]] = {}
     for entry in entries:
         try:
             if not entry.is_file():
@@ -1517,9 +1518,16 @@ def _folder_files(path: Path) -> tuple[dict[str, Path], list[Problem]]:
         except OSError:
             continue
         key = entry.name.lower()
+        same.setdefault(key, []).append(entry.name)
         if key not in files or entry.name == key:
             files[key] = entry
-    return files, []
+    problems = []
+    for key, names in same.items():
+        if len(names) > 1 and (key in folder_names() or key.endswith(".toml")):  # (a file the case reads)
+            problems.append(error(str(path.name), None, None, ", ".join(names),
+                                  f"{len(names)} files whose names differ only in capitals: which one is meant is not "
+                                  "known", "keep one of them (on another computer either could be the one read)"))
+    return files, problems
 
 
 def folder_names() -> tuple[str, ...]:

@@ -121,6 +121,9 @@ def _duplicate_ids(checker, frame: pd.DataFrame) -> None:
     for i, value in enumerate(frame["option_id"]):
         if value is None:
             continue
+        if "/" in str(value):  # a project is named "asset/option": the option's part must hold no "/"
+            checker.err(i, "option_id", value, "an option_id must not contain '/'",
+                        "the results name a project 'asset_id/option_id'; use '-' or '_' instead")
         if value in seen:
             checker.err(i, "option_id", value, f"duplicate option_id (first seen on row {seen[value]})")
         else:

@@ -1020,6 +1020,13 @@ _CALENDAR_KEYS = ("holidays",)
 _SEASON_KEYS = ("name", "months")
 _PERIOD_KEYS = ("code", "seasons", "days", "hours")
 _ENERGY_KEYS = ("price_per_kwh", "price_per_kvah")
+#: An energy price above this [currency/kWh] is warned in the currencies of :data:`UNIT_PRICED_CURRENCIES`: far
+#: above any utility's there (a few tenths of a unit at most; common practice, from memory), and the size of a
+#: price per MWh written per kWh.
+ENERGY_PRICE_WARN_PER_KWH = 5.0
+#: Currencies whose unit buys several kWh (ISO 4217 codes), where :data:`ENERGY_PRICE_WARN_PER_KWH` applies.
+UNIT_PRICED_CURRENCIES = frozenset({"EUR", "USD", "GBP", "CHF", "CAD", "AUD", "NZD", "SGD", "BRL", "PLN", "DKK", "NOK",
+                                    "SEK", "CNY", "MYR", "AED", "SAR", "ILS"})
 _FIXED_KEYS = ("name", "charge_per_month")
 _DEMAND_KEYS = (
     "name",
@@ -1544,6 +1551,13 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             prices = r.get(et, key, "energy", "number_table")
             if prices is not None:
                 energy = EnergyCharge("kWh" if has_kwh else "kVAh", prices)
+                for code, price in prices:
+                    # (a price per MWh written where one per kWh is asked; told in currencies whose unit buys
+                    # a few kWh, where no utility asks more than a few units)
+                    if str(currency or "").upper() in UNIT_PRICED_CURRENCIES and price > ENERGY_PRICE_WARN_PER_KWH:
+                        r.warn(f"energy.{key}.{code}", price,
+                               f"{price:g} per {'kWh' if has_kwh else 'kVAh'} is far above any utility's energy price",
+                               f"is it a price per MWh? {price:g} per MWh is {price / 1000:g} per kWh")
 
     fixed = []
     for i, f in enumerate(r.tables(data, "fixed"), start=1):

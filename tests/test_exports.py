@@ -151,3 +151,27 @@ def test_plan_rows_carry_each_projects_saving_alone_and_as_the_plan_counts_it():
     assert list(plan.columns) == ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"]  # untouched
     empty = plan_with_savings(plan.iloc[:0], results, None)
     assert empty.empty and list(empty.columns) == EMPTY_COLUMNS["plan.csv"]
+
+
+def test_an_asset_id_holding_a_slash_keeps_its_projects_apart():
+    # a project is labelled "asset/option"; an asset id may hold "/" (KGQ/F01), an option id may not, so the label
+    # is split at its last "/" (hand: "KGQ/F01/pm_drive" is asset KGQ/F01, option pm_drive)
+    from models.exports import _by_asset_and_option
+
+    rows = pd.DataFrame({"project_id": ["KGQ/F01/pm_drive", "P1/ie4"], "npv_p50": [1.0, 2.0]})
+    out = _by_asset_and_option(rows)
+    assert out["asset_id"].tolist() == ["KGQ/F01", "P1"] and out["option_id"].tolist() == ["pm_drive", "ie4"]
+
+
+def test_an_option_id_holding_a_slash_is_refused(tmp_path):
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    options = (tmp_path / "case" / "options.csv")
+    src = (__import__("pathlib").Path(__file__).resolve().parents[1] / "data" / "defaults" / "options.csv")
+    text = src.read_text(encoding="utf-8").replace("\nie4,", "\nie/4,", 1)
+    assert "\nie/4," in text  # (the catalogue's IE4 row, renamed)
+    options.write_text(text, encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None and any(p.column == "option_id" and "must not contain '/'" in p.rule for p in problems)

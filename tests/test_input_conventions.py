@@ -420,3 +420,15 @@ def test_an_enclosure_code_in_the_class_column_is_named_so(tmp_path):
     _, problems = load_case(cb.write_case(tmp_path / "c", assets=_assets_with((1, "efficiency_class", "TEFC"))))
     found = _find(problems, row=3, column="efficiency_class")
     assert "names the enclosure, not the efficiency" in found.hint
+
+
+def test_two_files_whose_names_differ_only_in_capitals_are_refused(tmp_path):
+    # assets.csv beside Assets.csv (another register): only one would be read, and which depends on the computer
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    (folder / "Assets.csv").write_text((folder / "assets.csv").read_text(encoding="utf-8"), encoding="utf-8")
+    case, problems = load_case(folder)
+    found = [p for p in problems if p.severity == "error" and "differ only in capitals" in p.rule]
+    assert case is None and found and "Assets.csv" in str(found[0].value) and "assets.csv" in str(found[0].value)

@@ -309,3 +309,17 @@ def test_a_tariff_sheet_named_in_capitals_with_a_cell_of_two_lines_names_the_she
     case, problems = load_case(book)
     found = [p for p in problems if p.column == "coincident_peak[1].price_per_kw_month" and p.severity == "error"]
     assert found and found[0].file == "case.xlsx:Tariff flat.toml" and found[0].row == len(lines) - 1  # the price row
+
+
+@pytest.mark.parametrize("currency, price, warned", [("EUR", 178.0, True), ("EUR", 0.35, False), ("JPY", 31.0, False)])
+def test_an_energy_price_the_size_of_one_per_mwh_is_warned(currency, price, warned):
+    # 178 EUR per kWh is a wholesale price per MWh written per kWh (hand: 178 per MWh is 0.178 per kWh); in yen a
+    # price of 31 per kWh is ordinary and is not warned
+    text = HEAD.replace('currency = "EUR"', f'currency = "{currency}"').replace(
+        "price_per_kwh = { all = 0.1 }", f"price_per_kwh = {{ all = {price} }}")
+    assert f"price_per_kwh = {{ all = {price} }}" in text
+    _, problems = load(text)
+    found = [p for p in problems if p.column == "energy.price_per_kwh.all" and p.severity == "warning"]
+    assert bool(found) == warned
+    if warned:
+        assert "is it a price per MWh? 178 per MWh is 0.178 per kWh" in found[0].hint

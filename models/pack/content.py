@@ -1103,7 +1103,7 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             detail = (f"{counted(len(weak), 'project')} of the plan with P(NPV > 0) below 90 % in the plan's Monte Carlo "
                       "(at its plan year, at the value the plan gives it)" if u.of_plan else
                       f"{counted(len(weak), 'recommended project')} with P(NPV > 0) below 90 % in the Monte Carlo")
-            add("uncertainty", "NPV may be negative", detail, asset_list_text([p.split("/")[0] for p in weak["project_id"]]),
+            add("uncertainty", "NPV may be negative", detail, asset_list_text([p.rsplit("/", 1)[0] for p in weak["project_id"]]),
                 "Measure the load and hours before committing; consider replace-at-failure.")
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
 

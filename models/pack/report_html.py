@@ -221,7 +221,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     def project_text(asset_id: str, option_id: str) -> str:
         return f"{asset_id}: {labels.get(option_id, option_id)}"
 
-    mc_rows = [row([cell(project_text(*str(r.project_id).split("/", 1)) if "/" in str(r.project_id) else r.project_id, "id")]
+    mc_rows = [row([cell(project_text(*str(r.project_id).rsplit("/", 1)) if "/" in str(r.project_id) else r.project_id, "id")]
                    + ([cell(int(r.start_yr), "num")] if unc.of_plan else [])
                    + [num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
                       num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
