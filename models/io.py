@@ -1128,12 +1128,28 @@ def _merged_fill(sheet, source: str, problems: list[Problem], max_cells: int = 1
     return fill
 
 
+def _filled(sheet) -> dict[str, int]:
+    """Bounds for ``sheet.iter_rows`` that hold every cell with a value (``max_row``, ``max_col``).
+
+    A sheet's declared size counts cells that are only formatted: one coloured cell at row 1,048,000 would make
+    the reader visit, and create, every cell up to it (gigabytes for a file of a few MB). Read from the cells the
+    workbook stores; a sheet object without them keeps its declared size.
+    """
+    cells = getattr(sheet, "_cells", None)
+    if not isinstance(cells, dict):
+        return {}
+    held = [key for key, cell in cells.items() if cell.value is not None]
+    if not held:
+        return {"max_row": 1, "max_col": 1}
+    return {"max_row": max(r for r, _ in held), "max_col": max(c for _, c in held)}
+
+
 def _formula_cells(formula_sheet, value_sheet) -> dict[tuple[int, int], bool]:
     """Return (row, col) -> whether a saved result exists, for every formula cell of a sheet."""
     out: dict[tuple[int, int], bool] = {}
     if formula_sheet is None:
         return out
-    for row in formula_sheet.iter_rows():
+    for row in formula_sheet.iter_rows(**_filled(formula_sheet)):
         for cell in row:
             if cell.data_type == "f" or (isinstance(cell.value, str) and cell.value.startswith("=")):
                 cached = value_sheet.cell(cell.row, cell.column).value
@@ -1273,7 +1289,7 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
             # each row of column A its line(s) of the text (a blank cell an empty line), and each line's row kept
             lines: list[str] = []
             rows_of_line: list[int] = []
-            for number, r in enumerate(book[name].iter_rows(values_only=True), start=1):
+            for number, r in enumerate(book[name].iter_rows(values_only=True, **_filled(book[name])), start=1):
                 cell_lines = ("" if not r or r[0] is None else str(r[0])).split("\n")
                 lines += cell_lines
                 rows_of_line += [number] * len(cell_lines)
@@ -1304,7 +1320,7 @@ def _sheet_table(sheet, table: str, source: str, fill: dict | None = None, formu
     rows: list[int] = []
     percent_columns: list[int] = []  # positions of the columns in percent (0-100)
     percent_cells: dict[int, list[tuple[int, float, float]]] = {}  # position -> (row, as stored, as shown)
-    for row_no, row_cells in enumerate(sheet.iter_rows(), start=1):
+    for row_no, row_cells in enumerate(sheet.iter_rows(**_filled(sheet)), start=1):
         values = tuple(cell.value for cell in row_cells)
         if header is not None and row_no in fill_by_row:  # a merged header spans columns: not spread
             values = list(values)
@@ -1417,7 +1433,7 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
     out: list[dict] = []
     hidden_read: list[int] = []  # hidden rows read as scenarios
     cached = 0  # formula cells read as their saved results
-    for number, row in enumerate(sheet.iter_rows(values_only=True), start=1):
+    for number, row in enumerate(sheet.iter_rows(values_only=True, **_filled(sheet)), start=1):
         row = tuple(fill.get((number, c), v) if v is None else v for c, v in enumerate(row, start=1))
         if not row or all(v is None for v in row):
             continue
@@ -1481,7 +1497,7 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
 def _settings_sheet(sheet) -> dict:
     """Read a two-column key/value settings sheet into the ``[case]`` table of a settings dict."""
     values: dict[str, object] = {}
-    for row in sheet.iter_rows(values_only=True):
+    for row in sheet.iter_rows(values_only=True, **_filled(sheet)):
         if not row or row[0] is None or str(row[0]).lstrip().startswith("#"):
             continue
         key = normalise_header(row[0]).replace(" ", "_")

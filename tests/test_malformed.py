@@ -596,3 +596,24 @@ def test_an_empty_tariff_file_is_one_error(tmp_path):
     _, problems = load_case(folder)
     errors = [p for p in problems if p.severity == "error" and p.file == "tariffs/t.toml"]
     assert len(errors) == 1 and "the file is empty" in errors[0].rule, [str(p) for p in errors]
+
+
+def test_a_cell_formatted_far_down_a_sheet_is_not_read_cell_by_cell(tmp_path):
+    # A cell coloured at row 1,048,000, column 200 (nothing in it) declares a sheet of 200 million cells: the reader
+    # reads the cells that hold values only, so the case reads as it would without it (before, memory grew past
+    # 17 GB). The check is on the cells the reader creates, not on time.
+    import casebuilder as cb
+    from openpyxl import load_workbook
+    from openpyxl.styles import PatternFill
+
+    from models.case import load_case
+
+    path = cb.write_workbook(tmp_path / "case.xlsx")
+    book = load_workbook(path)
+    sheet = book["assets"]
+    sheet.cell(1_048_000, 200).fill = PatternFill("solid", fgColor="FFFF00")
+    book.save(path)
+    assert load_workbook(path)["assets"].max_row == 1_048_000  # the declared size the reader must not walk
+    case, problems = load_case(path)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    assert len(case.assets) == len(cb.ASSETS)
