@@ -156,6 +156,14 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
                 "lead to a folder; give a folder")
     if target.exists() and not target.is_dir():
         return f"drivecase {command}: --out {out} is a file, not a folder; give a folder to write the results into"
+    if command == "run":
+        from models.exports import foreign_run_files
+
+        foreign = foreign_run_files(target)
+        if foreign:  # (files of the same names no run wrote there: a user's own, or an older run's without its list)
+            shown = ", ".join(foreign[:4]) + (f" and {len(foreign) - 4} more" if len(foreign) > 4 else "")
+            return (f"drivecase run: --out {out} holds {shown}, which no drivecase run wrote there; a run would "
+                    "write over them: give another folder, or move them away")
     parent = next((p for p in target.absolute().parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         return f"drivecase {command}: --out {out} lies under {parent}, which is a file; give a folder"

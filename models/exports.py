@@ -31,6 +31,29 @@ DEFAULTS_FILE = "defaults.csv"
 SCENARIOS_FILE = "scenarios.csv"
 #: The assets ranked by the value of measuring them before deciding (:func:`models.information.measure_first`).
 MEASURE_FIRST_FILE = "measure_first.csv"
+#: Every file a run may write into its folder.
+ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE)
+#: The list of the files a run wrote, kept in its folder: a later run writes over those, never over a file of the
+#: same name it did not write.
+RUN_MANIFEST_NAME = ".drivecase-run"
+
+
+def foreign_run_files(out_dir: str | Path) -> list[str]:
+    """The files of ``out_dir`` a run would write over that no earlier run wrote there (by its list), sorted.
+
+    Examples
+    --------
+    >>> foreign_run_files("/no/such/folder")
+    []
+    """
+    out = Path(out_dir)
+    if not out.is_dir():
+        return []
+    try:
+        earlier = {line.strip() for line in (out / RUN_MANIFEST_NAME).read_text(encoding="utf-8").splitlines()}
+    except (OSError, UnicodeDecodeError):
+        earlier = set()
+    return sorted(name for name in ALL_RUN_FILES if (out / name).exists() and name not in earlier)
 
 
 def neutralise_text(value: object) -> object:
@@ -401,6 +424,9 @@ def run_settings(result, settings) -> pd.DataFrame:
 def write_run(result, out_dir: str | Path, case=None) -> list[Path]:
     """Write every result table of a run into ``out_dir`` (created if needed); return the paths.
 
+    The folder keeps the list of the files written (:data:`RUN_MANIFEST_NAME`), so that a later run writes over
+    them and never over a file of the same name it did not write (:func:`foreign_run_files`).
+
     With the ``case`` run, :data:`RUN_SETTINGS_FILE` and :data:`DEFAULTS_FILE` are written too
     (:func:`run_tables`).
     """
@@ -408,4 +434,5 @@ def write_run(result, out_dir: str | Path, case=None) -> list[Path]:
     written = []
     for name, frame in run_tables(result, case).items():
         written.append(write_csv(out / name, frame))
+    atomic_write_bytes(out / RUN_MANIFEST_NAME, ("\n".join(sorted(p.name for p in written)) + "\n").encode("utf-8"))
     return written

@@ -1081,3 +1081,26 @@ def test_run_names_the_plans_repeat_purchases_after_the_budgeted_years(tmp_path,
     capital = cf[cf["component"].astype(str).str.startswith("capital_")].merge(plan, on=["asset_id", "option_id"])
     later = -capital.loc[capital["start_yr"] + capital["year"] >= 3, "amount"].sum()
     assert f"and {later:,.0f} EUR later" in line
+
+
+def test_run_never_writes_over_a_file_it_did_not_write(tmp_path, capsys):
+    # a user's own plan.csv in the folder given as --out: refused before any work, the file left as it was; a folder
+    # a run wrote is written again (its list of files says so), other files in it left alone
+    from test_scenario import _one_asset_case
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    out = tmp_path / "o"
+    out.mkdir()
+    (out / "plan.csv").write_text("my plan, not drivecase's\n", encoding="utf-8")
+    (out / "notes.txt").write_text("mine\n", encoding="utf-8")
+    assert main(["run", str(folder), "--out", str(out), "--quiet", "--no-risk"]) == 2
+    assert "holds plan.csv, which no drivecase run wrote there" in capsys.readouterr().err
+    assert (out / "plan.csv").read_text(encoding="utf-8") == "my plan, not drivecase's\n"
+
+    (out / "plan.csv").unlink()
+    assert main(["run", str(folder), "--out", str(out), "--quiet", "--no-risk"]) == 0
+    assert (out / "notes.txt").read_text(encoding="utf-8") == "mine\n"  # not a run's file: left alone
+    capsys.readouterr()
+    assert main(["run", str(folder), "--out", str(out), "--quiet", "--no-risk"]) == 0  # its own folder: written again
+    assert (out / "plan.csv").read_text(encoding="utf-8") != "my plan, not drivecase's\n"
