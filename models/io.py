@@ -523,6 +523,20 @@ def _csv_error_problem(source: str, line: int | None, exc: Exception) -> Problem
                  "check quotes and delimiters on this line")
 
 
+def _title_above_header(first: list, second: list, table: str) -> bool:
+    """Whether ``first`` (a table's first line) names none of the table's columns and ``second`` names two or more:
+    a title line above the header."""
+    try:
+        known = set(header_map(table))
+    except (KeyError, OSError, ValueError):  # (a table without a schema)
+        return False
+
+    def named(cells) -> int:
+        return sum(normalise_header(c) in known for c in cells if str(c).strip())
+
+    return named(first) == 0 and named(second) >= 2
+
+
 def parse_csv_text(text: str, table: str, source: str) -> tuple[RawTable, list[Problem]]:
     """Parse CSV text into a :class:`RawTable` keeping the user's line numbers.
 
@@ -535,6 +549,7 @@ def parse_csv_text(text: str, table: str, source: str) -> tuple[RawTable, list[P
     delimiter = _sniff_delimiter(_header_line(text))
     reader = csv.reader(io.StringIO(text, newline=None), delimiter=delimiter)
     header: list[str] | None = None
+    header_line = 0
     records: list[list[str]] = []
     rows: list[int] = []
     spans: list[tuple[int, int, bool]] = []
@@ -551,7 +566,15 @@ def parse_csv_text(text: str, table: str, source: str) -> tuple[RawTable, list[P
                 rowlike = any(cell.count(delimiter) >= width for c in record if "\n" in c for cell in c.split("\n"))
                 spans.append((start, last_line, rowlike))
             if header is None:
-                header = record
+                header, header_line = record, start
+                continue
+            if not records and header_line and _title_above_header(header, record, table):
+                # a title line above the header (a spreadsheet's caption saved with the table): one error, and the
+                # rows read under their own header rather than a cascade of "missing column" errors
+                problems.append(error(source, header_line, None, " ".join(c.strip() for c in header if c.strip()),
+                                      f"line {header_line} is a title, not the table's header: the header is line {start}",
+                                      "delete the lines above the header, or start them with # (a comment)"))
+                header, header_line = record, 0
                 continue
             if len(record) > len(header):
                 extra = [c for c in record[len(header):] if c.strip()]

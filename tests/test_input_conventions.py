@@ -432,3 +432,18 @@ def test_two_files_whose_names_differ_only_in_capitals_are_refused(tmp_path):
     case, problems = load_case(folder)
     found = [p for p in problems if p.severity == "error" and "differ only in capitals" in p.rule]
     assert case is None and found and "Assets.csv" in str(found[0].value) and "assets.csv" in str(found[0].value)
+
+
+def test_a_title_line_above_the_header_is_one_error_not_a_cascade(tmp_path):
+    # "Motor register, plant 3" on line 1 and the header on line 2: one error naming both lines (before: about 90
+    # errors, every column "missing" and every row "longer than the header")
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    path = folder / "assets.csv"
+    path.write_text("Motor register plant 3\n" + path.read_text(encoding="utf-8"), encoding="utf-8")
+    case, problems = load_case(folder)
+    errors = [p for p in problems if p.severity == "error"]
+    assert case is None and len(errors) == 1, [str(p) for p in errors]
+    assert errors[0].row == 1 and "line 1 is a title, not the table's header: the header is line 2" in errors[0].rule
