@@ -187,6 +187,10 @@ def serve(case_path: str | Path | None = None, host: str = "127.0.0.1", port: in
     if warning:
         print(warning)
     busy = port_in_use(host, port)
+    if busy and busy.startswith("the address "):  # (no port to blame: the host itself is not this machine's)
+        print(f"drivecase serve: cannot listen on {url_for(host, port)}: {busy}; give --host an address of this "
+              "computer (127.0.0.1 for this computer only)", file=sys.stderr)
+        return 1
     if busy:
         print(f"drivecase serve: cannot listen on {url_for(host, port)}: {busy}. Another program (perhaps another "
               f"drivecase serve) uses the port; stop it or choose another with --port.", file=sys.stderr)

@@ -720,6 +720,15 @@ class TestServer:
         assert server.port_in_use("127.0.0.1", port) is None  # free again once its holder closed it
 
 
+    def test_an_address_that_is_not_this_computers_is_not_blamed_on_the_port(self, small_case_dir, capsys, monkeypatch):
+        # 999.1.1.1 is no address at all: the message names the address, not another program on the port
+        monkeypatch.setattr(services, "_ENGINE", None)
+        assert server.serve(small_case_dir, host="999.1.1.1", port=8765, open_browser=False) == 1
+        err = capsys.readouterr().err
+        assert "the address '999.1.1.1' cannot be resolved" in err and "give --host an address of this computer" in err
+        assert "Another program" not in err
+
+
 @pytest.fixture(scope="module")
 def demo_entry():
     """The demo case as the engine holds it: its key and case."""
