@@ -2512,13 +2512,17 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
     if "options" in checkers:
         options_frame = options_module.check_options(checkers["options"])
         _check_price_currency(options_frame, checkers["options"].raw.source, settings.currency, problems)
-    if "sites" in checkers and frames["sites"].empty:
+    def unread(table: str) -> bool:  # (a file whose reading failed has said why: "no rows" would only repeat it)
+        source = checkers[table].raw.source
+        return any(p.severity == "error" and p.file == source for p in raw.problems)
+
+    if "sites" in checkers and frames["sites"].empty and not unread("sites"):
         problems.append(error(checkers["sites"].raw.source, None, None, None, "the sites table has no rows",
                               "add one row per site (utility meter)"))
     if "assets" in checkers:
         _check_assets(checkers["assets"], site_ids, set(profiles), duty_ids, profiles, this_year, rejected_profiles,
                       duty_readable="duty" not in raw.tables or raw.tables["duty"].readable)
-        if frames["assets"].empty:
+        if frames["assets"].empty and not unread("assets"):
             problems.append(error(checkers["assets"].raw.source, None, None, None, "the asset register has no rows",
                                   "add one row per motor"))
     if "sites" in checkers and "assets" in checkers:

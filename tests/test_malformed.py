@@ -617,3 +617,19 @@ def test_a_cell_formatted_far_down_a_sheet_is_not_read_cell_by_cell(tmp_path):
     case, problems = load_case(path)
     assert case is not None, [str(p) for p in problems if p.severity == "error"]
     assert len(case.assets) == len(cb.ASSETS)
+
+
+def test_a_cell_too_long_to_read_is_one_error_not_also_an_empty_register(tmp_path):
+    # a description of 200,000 characters: the reader stops at it and says so; the register's "no rows" would only
+    # repeat the cause
+    import casebuilder as cb
+
+    from models.case import load_case
+
+    assets = [list(row) for row in cb.ASSETS]
+    assets[0][2] = "x" * 200_000
+    folder = cb.write_case(tmp_path / "case", assets=assets)
+    case, problems = load_case(folder)
+    rules = [p.rule for p in problems if p.severity == "error" and p.file == "assets.csv"]
+    assert case is None and any("longer than" in r for r in rules), rules
+    assert not any("has no rows" in r for r in rules), rules
