@@ -1594,6 +1594,15 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
             checker.err(i, missing, None, "give a profile_id, or both operating_h_per_yr and mean_load_pct")
     for i in np.flatnonzero(has_profile & has_hours):
         checker.warn(i, "profile_id", prof.iloc[i], "both a profile and hours + mean load are given; the profile is used")
+    for i in np.flatnonzero(has_profile & (np.isnan(hours) != np.isnan(load))):  # one of the two beside a profile
+        given = "operating_h_per_yr" if not np.isnan(hours[i]) else "mean_load_pct"
+        checker.warn(i, given, hours[i] if given == "operating_h_per_yr" else load[i],
+                     f"{given} is not used: the profile {prof.iloc[i]} sets the load and the hours",
+                     "leave it blank, or leave the profile_id blank to use hours and mean load")
+    for i in np.flatnonzero(~has_profile & has_hours & ((hours == 0) | (load == 0))):
+        column = "operating_h_per_yr" if hours[i] == 0 else "mean_load_pct"
+        checker.warn(i, column, 0, "the motor never runs (0): no option saves anything on it",
+                     "give its running hours and mean load, or leave a spare or stand-by motor out of the register")
     # input-kW profiles against rating
     for i in np.flatnonzero(has_profile):
         series = profiles.get(str(prof.iloc[i]))

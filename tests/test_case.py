@@ -1570,3 +1570,18 @@ def test_a_purchase_date_far_from_any_rule_is_refused(tmp_path, date):
     found = [p for p in problems if p.column == "purchase_date" and p.severity == "error"]
     assert case is None and found and "between 1990 and 2100" in found[0].rule
     assert not any("internal error" in p.rule for p in problems)
+
+
+def test_load_data_that_cannot_count_is_named(tmp_path):
+    # P1 has a profile and hours beside it (the hours are not used); F1 runs 0 hours a year (nothing to save):
+    # each is warned with the column named (tests/casebuilder.py: P1 on profile LP1, F1 on 6,000 h at 60 %)
+    from models.case import load_case
+
+    assets = [list(row) for row in cb.ASSETS]
+    assets[0][16] = "4000"  # P1: operating_h_per_yr beside its profile
+    assets[1][16] = "0"  # F1: never runs
+    case, problems = load_case(cb.write_case(tmp_path / "case", assets=assets))
+    assert case is not None
+    warned = {(p.row, p.column): p.rule for p in problems if p.severity == "warning" and p.file == "assets.csv"}
+    assert "is not used: the profile LP1 sets the load and the hours" in warned[(2, "operating_h_per_yr")]
+    assert "the motor never runs (0)" in warned[(3, "operating_h_per_yr")]
