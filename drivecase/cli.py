@@ -393,9 +393,12 @@ def cmd_bill(args: argparse.Namespace) -> int:
         _close_bars(bar)
     currency = case.settings.currency
     for site_id in sites:
+        from models.wording import line_item_text
+
         table = monthly_bill_table(bills, site_id)
-        table.index = pd.Index([str(m)[:7] for m in table.index], name="month")
-        table.columns.name = None
+        table.index = pd.Index([str(m)[:7] for m in table.index])
+        # the line items in words (the tariff's own names of its clauses), as the pack's Bills sheet writes them
+        table.columns = [("Total" if c == "total" else line_item_text(c)) for c in table.columns]
         table.loc["year"] = table.sum(axis=0)
         meter = meters[site_id]
         energy = float(np.sum(meter.p_kw) * op.interval_h)

@@ -1104,3 +1104,13 @@ def test_run_never_writes_over_a_file_it_did_not_write(tmp_path, capsys):
     capsys.readouterr()
     assert main(["run", str(folder), "--out", str(out), "--quiet", "--no-risk"]) == 0  # its own folder: written again
     assert (out / "plan.csv").read_text(encoding="utf-8") != "my plan, not drivecase's\n"
+
+
+def test_bill_names_its_line_items_in_words(capsys):
+    # the demo's quarry (KGQ) is billed a standing charge, day and night energy, a kVA demand charge and VAT
+    # (data/demo/tariffs/example_kva_demand.toml): the table's headings are in words, not the tariff's keys
+    assert main(["bill", str(DEMO), "--site", "KGQ", "--quiet"]) == 0
+    out = capsys.readouterr().out
+    heading = next(line for line in out.splitlines() if "Total" in line)
+    assert "Energy: day" in heading and "Tax: VAT" in heading and "energy:" not in heading and "tax:" not in heading
+    assert "\n  month" not in out  # (no row of its own for the months' name)
