@@ -797,6 +797,9 @@ def cmd_report(args: argparse.Namespace) -> int:
     if not (args.plan_gap >= 0 and args.plan_seconds > 0):
         print("drivecase report: --plan-gap must be >= 0 and --plan-seconds > 0", file=sys.stderr)
         return 2
+    if args.seed is not None and args.seed < 0:
+        print("drivecase report: --seed must be a whole number >= 0", file=sys.stderr)
+        return 2
     case = _load_or_report(args.case)
     if case is None:
         return 1
@@ -826,7 +829,12 @@ def cmd_report(args: argparse.Namespace) -> int:
 
     plan_settings = scenario.PlanSettings(time_limit_s=float(args.plan_seconds), gap_frac=float(args.plan_gap) / 100.0)
     try:
-        result = scenario.run(case, case.finance, progress=progress, plan_settings=plan_settings,
+        assumptions = case.finance
+        if args.seed is not None:
+            from dataclasses import replace
+
+            assumptions = replace(assumptions, monte_carlo_seed=int(args.seed))
+        result = scenario.run(case, assumptions, progress=progress, plan_settings=plan_settings,
                               budgets=memory.budgets if memory.given_up else None)
     except KeyboardInterrupt:
         _close_bars(bar)
@@ -938,6 +946,9 @@ def build_parser() -> argparse.ArgumentParser:
     group = p_report.add_mutually_exclusive_group()
     group.add_argument("--assets", help="comma-separated asset ids to report on")
     group.add_argument("--plan", action="store_true", help="report on the fleet plan (default)")
+    p_report.add_argument("--seed", type=int,
+                          help="Monte Carlo seed (default: monte_carlo_seed of finance.toml); the same seed as a run's "
+                               "gives that run's uncertainty figures")
     p_report.add_argument("--pdf", action="store_true",
                           help="also print the report to PDF with headless Chromium (needs Playwright and a Chromium; "
                                "skipped with a message without them)")

@@ -243,6 +243,8 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
     (95.2, 'a % sign was dropped (the column is in percent)')
     >>> _to_number("15%")
     (nan, 'a % sign, in a column that is not in percent')
+    >>> _to_number("2_50")
+    (nan, 'not a number')
     """
     if _blank(value):
         return np.nan, None
@@ -272,7 +274,8 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
         done = PERCENT_SIGN_DROPPED if ratio == "pct" else PERCENT_READ_AS_FRACTION
         return number, done if note is None else f"{done}; also {note}"
     try:
-        number = float(text)
+        # (Python reads "2_50" as 250: no spreadsheet or logger writes that, so an underscore is no number)
+        number = float(text) if "_" not in text else None
     except ValueError:
         number = None
     if number is not None:

@@ -1114,3 +1114,21 @@ def test_bill_names_its_line_items_in_words(capsys):
     heading = next(line for line in out.splitlines() if "Total" in line)
     assert "Energy: day" in heading and "Tax: VAT" in heading and "energy:" not in heading and "tax:" not in heading
     assert "\n  month" not in out  # (no row of its own for the months' name)
+
+
+def test_report_takes_the_seed_a_run_took(tmp_path, capsys, monkeypatch):
+    # a pack made with --seed N carries the uncertainty of `run --seed N`: the seed reaches the analysis
+    from test_scenario import _one_asset_case
+
+    from models import scenario
+
+    folder = tmp_path / "case"
+    _one_asset_case(folder)
+    seen = []
+    real = scenario.run
+    monkeypatch.setattr(scenario, "run", lambda case, assumptions, **kw: seen.append(assumptions.monte_carlo_seed)
+                        or real(case, assumptions, **kw))
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack"), "--quiet", "--seed", "7"]) == 0
+    assert seen == [7]
+    assert main(["report", str(folder), "--out", str(tmp_path / "pack2"), "--seed", "-1"]) == 2
+    assert "--seed must be a whole number >= 0" in capsys.readouterr().err
