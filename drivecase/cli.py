@@ -682,6 +682,7 @@ def _print_run_summary(case, result) -> None:
     from models.bill_savings import banned_caution, banned_quantities
     from models.plan import option_labels
     from models.reactive_plan import withdrawn_text
+    from models.wording import money_text
 
     currency = case.settings.currency
     r = result.results
@@ -713,10 +714,12 @@ def _print_run_summary(case, result) -> None:
 
     in_plan = plan_counted(result, chosen.reset_index().assign(in_plan=True)) if len(plan) else chosen
     bills_saved, maintenance_saved = in_plan["bill_saving_per_yr"].sum(), in_plan["saving_maintenance_per_yr"].sum()
-    print(f"  Plan {under}: {counted(len(plan), 'project')}, capital {chosen['capital'].sum():,.0f} {currency}, "
-          f"yearly saving as the plan counts it {bills_saved + maintenance_saved:,.0f} "
-          f"{currency}/yr (bills {bills_saved:,.0f}, maintenance {maintenance_saved:,.0f}), "
-          f"NPV {plan['npv_at_plan_start'].sum():,.0f} {currency}, CO2 avoided {chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
+    # (money written as on every other line: the currency first, "EUR 649,950")
+    print(f"  Plan {under}: {counted(len(plan), 'project')}, capital {money_text(chosen['capital'].sum(), currency)}, "
+          f"yearly saving as the plan counts it {money_text(bills_saved + maintenance_saved, currency)}/yr "
+          f"(bills {bills_saved:,.0f}, maintenance {maintenance_saved:,.0f}), "
+          f"NPV {money_text(plan['npv_at_plan_start'].sum(), currency)}, CO2 avoided "
+          f"{chosen['co2_avoided_t_per_yr'].sum():,.0f} t/yr")
     budgets = result.assumptions.budget_per_yr
     if len(budgets) and result.capital_spend_by_year is not None:
         # (as the pack's plan-by-year table: its "later" row)
@@ -725,8 +728,8 @@ def _print_run_summary(case, result) -> None:
             why = ("replacements bought at each motor's expected failure, repeat purchases"
                    if result.assumptions.replacement_mode == "replace_at_failure"
                    else "repeat purchases of equipment whose life ends within the horizon")
-            print(f"  Of the plan's capital over the horizon, {inside:,.0f} {currency} falls in the "
-                  f"{counted(len(budgets), 'budgeted plan year')} and {after:,.0f} {currency} later ({why}), "
+            print(f"  Of the plan's capital over the horizon, {money_text(inside, currency)} falls in the "
+                  f"{counted(len(budgets), 'budgeted plan year')} and {money_text(after, currency)} later ({why}), "
                   "which the budgets do not cover")
     low_n, low_share = low_data_quality(plan, dict(zip(case.assets["asset_id"], case.assets["data_quality_pct"])))
     if low_n:
@@ -739,7 +742,7 @@ def _print_run_summary(case, result) -> None:
     together = scenario.plan_bill_saving_per_yr(result.bills)
     if together is not None and len(plan):
         print(f"  The bill saving adds up each project priced alone; with the whole plan in place the sites' "
-              f"bills fall by {together:,.0f} {currency}/yr (projects share demand peaks, ratchets and reactive "
+              f"bills fall by {money_text(together, currency)}/yr (projects share demand peaks, ratchets and reactive "
               f"allowances; bills.csv)")
     for line in banned_quantities(result.bills).itertuples(index=False):
         print(f"  CAUTION: {banned_caution(line)} (bills.csv, column banned)")
@@ -754,15 +757,16 @@ def _print_run_summary(case, result) -> None:
 
         s = distribution_summary(result.plan_npv_draws)
         print(f"  Plan NPV under uncertainty ({len(result.plan_npv_draws):,} draws, seed "
-              f"{result.assumptions.monte_carlo_seed}): P10 {s['npv_p10']:,.0f}, P50 {s['npv_p50']:,.0f}, "
-              f"P90 {s['npv_p90']:,.0f} {currency}; P(plan NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % "
+              f"{result.assumptions.monte_carlo_seed}): P10 {money_text(s['npv_p10'], currency)}, P50 "
+              f"{money_text(s['npv_p50'], currency)}, P90 {money_text(s['npv_p90'], currency)}; P(plan NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % "
               f"(plan_risk.csv, plan_tornado.csv, npv_draws.csv)")
     elif len(result.fleet_npv_draws) and plan.empty:
         print("  Plan NPV under uncertainty: none to show, the plan holds no project under this budget "
               "(risk.csv and tornado.csv give every asset's best option)")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
-        print(f"  Rank-by-profitability-index plan falls short of the exact plan by {comparison['shortfall']:,.0f} {currency} NPV")
+        print(f"  Rank-by-profitability-index plan falls short of the exact plan by "
+              f"{money_text(comparison['shortfall'], currency)} NPV")
     top = best.sort_values("npv", ascending=False).head(10).copy()
     takes = dict(zip(plan["asset_id"], plan["option_id"]))
     labels = option_labels(r)

@@ -1080,7 +1080,7 @@ def test_run_names_the_plans_repeat_purchases_after_the_budgeted_years(tmp_path,
     plan = pd.read_csv(tmp_path / "o" / "plan.csv")[["asset_id", "option_id", "start_yr"]]
     capital = cf[cf["component"].astype(str).str.startswith("capital_")].merge(plan, on=["asset_id", "option_id"])
     later = -capital.loc[capital["start_yr"] + capital["year"] >= 3, "amount"].sum()
-    assert f"and {later:,.0f} EUR later" in line
+    assert f"and EUR {later:,.0f} later" in line
 
 
 def test_run_never_writes_over_a_file_it_did_not_write(tmp_path, capsys):
