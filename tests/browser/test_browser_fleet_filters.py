@@ -27,6 +27,21 @@ def pick(page, dropdown: str, option: str) -> None:
     page.keyboard.press("Escape")
 
 
+def open_and_come_back(tab, first) -> str:
+    """Open the asset of the table's row ``first`` (a locator of its link cell), then go Back to the Fleet page;
+    return the asset's id."""
+    asset_id = first.inner_text()
+    first.click()
+    page = tab.page
+    page.wait_for_url(f"**/asset?id={asset_id}")
+    page.locator("#asset-summary").filter(has_text=asset_id).wait_for()
+    page.go_back()
+    page.wait_for_url(tab.url + "/")
+    page.locator(PAGES[0][1]).first.wait_for()
+    page.wait_for_load_state("networkidle")
+    return asset_id
+
+
 def test_filters_hold_when_the_user_opens_an_asset_and_comes_back(tab, artifacts):
     page = tab.goto("/", PAGES[0][1])
     page.wait_for_load_state("networkidle")
@@ -36,15 +51,7 @@ def test_filters_hold_when_the_user_opens_an_asset_and_comes_back(tab, artifacts
     page.locator("#fleet-count").filter(has_text=NARROWED).wait_for()
     first = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='0'] .link-cell")
     expect(first).to_have_text(re.compile(r"^KGQ-"))  # the grid shows the narrowed rows
-    asset_id = first.inner_text()
-    first.click()
-    page.wait_for_url(f"**/asset?id={asset_id}")
-    page.locator("#asset-summary").filter(has_text=asset_id).wait_for()
-
-    page.go_back()
-    page.wait_for_url(tab.url + "/")
-    page.locator(PAGES[0][1]).first.wait_for()
-    page.wait_for_load_state("networkidle")
+    open_and_come_back(tab, first)
     page.screenshot(path=artifacts / "fleet_filters_after_back.png")
     # the filters show what was picked, and the table and its count are narrowed by them
     assert "KGQ" in page.locator("#fleet-site-filter").inner_text()
@@ -67,15 +74,8 @@ def test_the_sort_holds_when_the_user_opens_an_asset_and_comes_back(tab, artifac
     rating = page.locator("#fleet-table .ag-center-cols-container .ag-row[row-index='0'] [col-id='rating']")
     expect(rating).to_have_text("0.75")
     first = page.locator("#fleet-table .ag-pinned-left-cols-container .ag-row[row-index='0'] .link-cell")
-    asset_id = first.inner_text()
-    first.click()
-    page.wait_for_url(f"**/asset?id={asset_id}")
-    page.locator("#asset-summary").filter(has_text=asset_id).wait_for()
-
-    page.go_back()
-    page.wait_for_url(tab.url + "/")
+    asset_id = open_and_come_back(tab, first)
     page.locator("#fleet-count").filter(has_text="82 of 82 assets").wait_for()
-    page.wait_for_load_state("networkidle")
     page.screenshot(path=artifacts / "fleet_sort_after_back.png")
     expect(rating).to_have_text("0.75", timeout=10_000)
     expect(first).to_have_text(asset_id)
