@@ -603,9 +603,9 @@ def _known_zones() -> frozenset[str]:
     return frozenset(zoneinfo.available_timezones()) - {"localtime", "Factory"}
 
 
-#: The settings a case declares (docs/case-format.md, "case.toml").
 #: The years a purchase date may fall in: the efficiency rules' history to a planning horizon ahead.
 PURCHASE_YEARS = (1990, 2100)
+#: The settings a case declares (docs/case-format.md, "case.toml").
 SETTING_KEYS = ("name", "description", "currency", "power_unit", "time_zone", "invented", "region", "purchase_date",
                 "in_service_month")
 
