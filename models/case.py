@@ -2538,6 +2538,11 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
             problems.append(error(checkers["assets"].raw.source, None, None, None, "the asset register has no rows",
                                   "add one row per motor"))
     if "sites" in checkers and "assets" in checkers:
+        s_frame, with_motors = checkers["sites"].frame, set(checkers["assets"].frame["site_id"].dropna().astype(str))
+        for i in np.flatnonzero(~s_frame["site_id"].astype(str).isin(with_motors).to_numpy() & s_frame["site_id"].notna().to_numpy()):
+            checkers["sites"].warn(i, "site_id", s_frame["site_id"].iloc[i],
+                                   "no motor of the asset register is at this site: nothing is compared there",
+                                   "check the asset register's site_id column, or leave the site out")
         _check_demand_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
         _check_peak_windows(checkers["sites"], checkers["assets"].frame, tariffs, profile_info)
         _check_holidays_in_year(tariffs, profiles, settings, checkers["assets"].frame, checkers["sites"].frame,

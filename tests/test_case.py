@@ -1585,3 +1585,13 @@ def test_load_data_that_cannot_count_is_named(tmp_path):
     warned = {(p.row, p.column): p.rule for p in problems if p.severity == "warning" and p.file == "assets.csv"}
     assert "is not used: the profile LP1 sets the load and the hours" in warned[(2, "operating_h_per_yr")]
     assert "the motor never runs (0)" in warned[(3, "operating_h_per_yr")]
+
+
+def test_a_site_without_motors_is_named(tmp_path):
+    # a second site in sites.csv that no motor of the register names (tests/casebuilder.py: every motor at S1)
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case", sites=cb.SITES + [["S2", "Empty works", "20", "0.9"]])
+    case, problems = load_case(folder)
+    found = [p for p in problems if p.file == "sites.csv" and p.column == "site_id" and p.severity == "warning"]
+    assert case is not None and len(found) == 1 and found[0].value == "S2" and "nothing is compared" in found[0].rule
