@@ -118,6 +118,7 @@ def check_options(checker) -> pd.DataFrame:
 
 def _duplicate_ids(checker, frame: pd.DataFrame) -> None:
     seen: dict[object, int] = {}
+    folded: dict[str, tuple[object, int]] = {}  # (ids differing only in capitals are told apart, as asset ids are)
     for i, value in enumerate(frame["option_id"]):
         if value is None:
             continue
@@ -128,6 +129,10 @@ def _duplicate_ids(checker, frame: pd.DataFrame) -> None:
             checker.err(i, "option_id", value, f"duplicate option_id (first seen on row {seen[value]})")
         else:
             seen[value] = int(checker.rows[i])
+            other = folded.setdefault(str(value).lower(), (value, int(checker.rows[i])))
+            if other[0] != value:
+                checker.warn(i, "option_id", value, f"differs only in capitals from '{other[0]}' (row {other[1]})",
+                             "give option ids that differ in more than capitals: a reader takes them for one")
 
 
 @dataclass(frozen=True)

@@ -1263,8 +1263,17 @@ class _Reader:
         if not ok:
             self.err(full, v, f"expected {_KIND_WORDS[kind]}")
             return None if default is _MISSING else default
+        numbers = [value] if kind == "number" else [x for _, x in value] if kind == "number_table" else []
+        if any(not abs(x) <= MAX_TARIFF_NUMBER for x in numbers):  # (1e300 prices overflowed every sum after them)
+            self.err(full, v, f"a number of a tariff is at most {MAX_TARIFF_NUMBER:g} in size (no price or quantity "
+                              "of a bill is larger)", "check the value and its unit")
+            return None if default is _MISSING else default
         return value
 
+
+#: The largest number a tariff may give (a price, a quantity, a contract) in size: above it no bill's figures stay
+#: finite once summed over a year of intervals.
+MAX_TARIFF_NUMBER = 1e9
 
 _KIND_WORDS = {
     "str": "a text string",

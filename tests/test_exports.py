@@ -175,3 +175,17 @@ def test_an_option_id_holding_a_slash_is_refused(tmp_path):
     options.write_text(text, encoding="utf-8")
     case, problems = load_case(folder)
     assert case is None and any(p.column == "option_id" and "must not contain '/'" in p.rule for p in problems)
+
+
+def test_option_ids_differing_only_in_capitals_are_warned(tmp_path):
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "case")
+    src = (__import__("pathlib").Path(__file__).resolve().parents[1] / "data" / "defaults" / "options.csv")
+    text = src.read_text(encoding="utf-8").replace("\nie4,", "\nIE3,", 1)  # beside the catalogue's own ie3
+    assert "\nIE3," in text and "\nie3," in text
+    (folder / "options.csv").write_text(text, encoding="utf-8")
+    case, problems = load_case(folder)
+    found = [p for p in problems if p.column == "option_id" and p.severity == "warning"]
+    assert found and "differs only in capitals from 'ie3'" in found[0].rule, [str(p) for p in problems]

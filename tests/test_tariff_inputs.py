@@ -323,3 +323,11 @@ def test_an_energy_price_the_size_of_one_per_mwh_is_warned(currency, price, warn
     assert bool(found) == warned
     if warned:
         assert "is it a price per MWh? 178 per MWh is 0.178 per kWh" in found[0].hint
+
+
+def test_a_price_too_large_for_any_bill_is_refused():
+    # 1e300 per kWh overflowed every sum after it (figures of 300 digits and the solver stopping without a plan)
+    text = HEAD.replace("price_per_kwh = { all = 0.1 }", "price_per_kwh = { all = 1e300 }")
+    tariff, problems = load(text)
+    found = [p for p in problems if p.column == "energy.price_per_kwh" and p.severity == "error"]
+    assert tariff is None and found and "at most 1e+09 in size" in found[0].rule
