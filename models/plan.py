@@ -829,14 +829,19 @@ def plan_spend_by_year(plan_frame: pd.DataFrame, results: pd.DataFrame, capital_
     """
     if plan_frame.empty:
         return np.zeros(int(n_years)), 0.0
-    rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
-    if (rows < 0).any():
-        raise ValueError("the plan holds a project the results do not")
-    spend = np.asarray(capital_spend_by_year, dtype=float)[rows]
+    spend = np.asarray(capital_spend_by_year, dtype=float)[_result_rows(plan_frame, results)]
     year = plan_frame["start_yr"].to_numpy(dtype=int)[:, None] + np.arange(spend.shape[1])[None, :]
     inside = (year >= 0) & (year < n_years)
     by_year = np.bincount(year[inside], weights=spend[inside], minlength=int(n_years))[:int(n_years)]
     return by_year, float(spend.sum() - by_year.sum())
+
+
+def _result_rows(plan_frame: pd.DataFrame, results: pd.DataFrame) -> np.ndarray:
+    """The row of ``results`` of each project of ``plan_frame`` (by its "asset/option" label)."""
+    rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
+    if (rows < 0).any():
+        raise ValueError("the plan holds a project the results do not")
+    return rows
 
 
 def plan_purchase_yr(plan_frame: pd.DataFrame, results: pd.DataFrame,
@@ -858,10 +863,7 @@ def plan_purchase_yr(plan_frame: pd.DataFrame, results: pd.DataFrame,
     start = plan_frame["start_yr"].to_numpy(dtype=int) if len(plan_frame) else np.zeros(0, dtype=int)
     if capital_spend_by_year is None or not len(plan_frame):
         return start
-    rows = pd.Index(project_labels(results)).get_indexer(project_labels(plan_frame))
-    if (rows < 0).any():
-        raise ValueError("the plan holds a project the results do not")
-    paid = np.asarray(capital_spend_by_year, dtype=float)[rows] > 0.005  # (half a cent: a rounding residue is no outlay)
+    paid = np.asarray(capital_spend_by_year, dtype=float)[_result_rows(plan_frame, results)] > 0.005  # (half a cent: a rounding residue is no outlay)
     first = np.where(paid.any(axis=1), paid.argmax(axis=1), 0)
     return start + first
 

@@ -476,6 +476,7 @@ def failed_motor_texts(result, currency: str) -> list[tuple[str, str]]:
     puts it back in service; and which of a rewind now or a new motor now costs least over the study period
     (the end-of-life comparison)."""
     from models.end_of_life import STRATEGY_NAMES
+    from models.plan import option_labels
     from models.scenario import REPLACING_TECHNOLOGIES, least_repair
 
     res = result.results
@@ -485,7 +486,7 @@ def failed_motor_texts(result, currency: str) -> list[tuple[str, str]]:
     plan = result.plan.set_index(result.plan["asset_id"].astype(str)) if len(result.plan) else None
     eol = result.end_of_life
     eol = eol.set_index(eol["asset_id"].astype(str)) if eol is not None and len(eol) else None
-    labels = res.drop_duplicates("option_id").set_index("option_id")["label"]
+    labels = option_labels(res)
     tech = res.set_index(["asset_id", "option_id"])["technology"]
     out = []
     for asset_id in failed:
