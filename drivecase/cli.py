@@ -7,6 +7,7 @@ the input has errors (the problem list is printed), 2 means the command line its
 from __future__ import annotations
 
 import argparse
+import errno
 import os
 import sys
 import threading
@@ -312,8 +313,12 @@ def _write_failed(command: str, out: str, exc: OSError) -> int:
     """Say that writing the results failed, in one line, and return the exit code."""
     where = getattr(exc, "filename", None) or out
     reason = exc.strerror or exc.__class__.__name__
-    print(f"drivecase {command}: could not write into {out} ({reason}: {where}); give a folder you can write to "
-          "and run again. The case's files were not changed.", file=sys.stderr)
+    fix = ("free some space on that disk or give a folder on another" if exc.errno == errno.ENOSPC
+           else "give a folder you can write to")
+    kept = ("" if command == "new" else ", and files an earlier run wrote there are as they were (the new files "
+            "are written all or none)")
+    print(f"drivecase {command}: could not write into {out} ({reason}: {where}); {fix} and run again. The case's "
+          f"files were not changed{kept}.", file=sys.stderr)
     return 1
 
 

@@ -92,10 +92,9 @@ def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def atomic_write_bytes(path: Path, data: bytes) -> None:
-    """Write bytes to ``path`` through a temporary file in the same folder and an atomic rename."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+def _write_temp(path: Path, data: bytes) -> str:
+    """Write ``data`` to a new temporary file beside ``path`` (flushed to disk, the user's usual permissions);
+    return its name. Nothing is left behind when the writing fails."""
     handle, temp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     try:
         with os.fdopen(handle, "wb") as out:
@@ -105,11 +104,50 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(temp, 0o666 & ~umask)  # mkstemp creates 0600; give the file the user's usual permissions
+    except BaseException:
+        if os.path.exists(temp):
+            os.unlink(temp)
+        raise
+    return temp
+
+
+def atomic_write_bytes(path: Path, data: bytes) -> None:
+    """Write bytes to ``path`` through a temporary file in the same folder and an atomic rename."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    temp = _write_temp(path, data)
+    try:
         os.replace(temp, path)
     except BaseException:
         if os.path.exists(temp):
             os.unlink(temp)
         raise
+
+
+def write_file_set(out_dir: str | Path, contents) -> list[Path]:
+    """Write a set of files into ``out_dir`` (created if needed) all or none; return their paths.
+
+    ``contents`` yields (file name, bytes) pairs, a name relative to ``out_dir``. Each file is first written whole to a temporary file beside
+    its place; only once every one is on disk are they renamed into place, one rename each (which needs no
+    space). A failure while writing (a full disk, a removed folder) or an interruption leaves the folder's
+    earlier files as they were and no temporary file behind, so a folder never holds a mix of two runs' files.
+    """
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    staged: list[tuple[Path, str]] = []
+    try:
+        for name, data in contents:
+            path = out / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            staged.append((path, _write_temp(path, data)))
+        for path, temp in staged:
+            os.replace(temp, path)
+    except BaseException:
+        for _, temp in staged:
+            if os.path.exists(temp):
+                os.unlink(temp)
+        raise
+    return [path for path, _ in staged]
 
 
 def csv_bytes(frame: pd.DataFrame) -> bytes:
@@ -425,14 +463,20 @@ def write_run(result, out_dir: str | Path, case=None) -> list[Path]:
     """Write every result table of a run into ``out_dir`` (created if needed); return the paths.
 
     The folder keeps the list of the files written (:data:`RUN_MANIFEST_NAME`), so that a later run writes over
-    them and never over a file of the same name it did not write (:func:`foreign_run_files`).
+    them and never over a file of the same name it did not write (:func:`foreign_run_files`). The files are
+    written all or none (:func:`write_file_set`): a run that cannot write them all leaves an earlier run's as
+    they were.
 
     With the ``case`` run, :data:`RUN_SETTINGS_FILE` and :data:`DEFAULTS_FILE` are written too
     (:func:`run_tables`).
     """
-    out = Path(out_dir)
-    written = []
-    for name, frame in run_tables(result, case).items():
-        written.append(write_csv(out / name, frame))
-    atomic_write_bytes(out / RUN_MANIFEST_NAME, ("\n".join(sorted(p.name for p in written)) + "\n").encode("utf-8"))
-    return written
+    tables = run_tables(result, case)
+    names = list(tables)
+    manifest = ("\n".join(sorted(names)) + "\n").encode("utf-8")
+
+    def contents():  # one table's text at a time (the fleet's cash flows can be large)
+        for name in names:
+            yield name, csv_bytes(tables[name])
+        yield RUN_MANIFEST_NAME, manifest
+
+    return write_file_set(out_dir, contents())[:-1]

@@ -719,6 +719,34 @@ def test_an_output_folder_that_cannot_be_written_gives_one_line(tmp_path, capsys
     assert {p.name: p.read_bytes() for p in case.iterdir() if p.is_file()} == before
 
 
+def test_a_full_disk_leaves_the_earlier_runs_files_whole(tmp_path, monkeypatch, capsys):
+    # the disk fills while the fifth file of a second run is written: the folder keeps the first run's files,
+    # byte for byte, and the user is told what to do
+    import errno
+
+    from models import exports
+
+    out = tmp_path / "out"
+    args = ["run", str(DEMO), "--out", str(out), "--quiet", "--no-risk", "--plan-gap", "5"]
+    assert main(args) == 0
+    first = {p.name: p.read_bytes() for p in out.iterdir()}
+    real, calls = exports._write_temp, []
+
+    def full_at_the_fifth(path, data):
+        calls.append(path.name)
+        if len(calls) == 5:
+            raise OSError(errno.ENOSPC, "No space left on device", str(path))
+        return real(path, data)
+
+    monkeypatch.setattr(exports, "_write_temp", full_at_the_fifth)
+    capsys.readouterr()
+    assert main(args + ["--seed", "7"]) == 1
+    err = capsys.readouterr().err
+    assert "No space left on device" in err and "free some space" in err and "as they were" in err
+    assert "Traceback" not in err
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == first
+
+
 @pytest.mark.skipif(not hasattr(os, "geteuid") or os.geteuid() == 0, reason="root may write into any folder")
 def test_a_read_only_output_folder_is_refused_before_the_run(tmp_path, capsys):
     import casebuilder as cb

@@ -189,3 +189,35 @@ def test_option_ids_differing_only_in_capitals_are_warned(tmp_path):
     case, problems = load_case(folder)
     found = [p for p in problems if p.column == "option_id" and p.severity == "warning"]
     assert found and "differs only in capitals from 'ie3'" in found[0].rule, [str(p) for p in problems]
+
+
+def test_a_file_set_is_written_all_or_none(tmp_path, monkeypatch):
+    # a full disk at the third file: the folder keeps the earlier set whole and no temporary file behind
+    import errno
+
+    from models import exports
+
+    out = tmp_path / "o"
+    exports.write_file_set(out, [("a.csv", b"old a\n"), ("b.csv", b"old b\n"), ("sub/c.html", b"old c\n")])
+    real, calls = exports._write_temp, []
+
+    def full_at_the_third(path, data):
+        calls.append(path.name)
+        if len(calls) == 3:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real(path, data)
+
+    monkeypatch.setattr(exports, "_write_temp", full_at_the_third)
+    try:
+        exports.write_file_set(out, [("a.csv", b"new a\n"), ("b.csv", b"new b\n"), ("sub/c.html", b"new c\n")])
+    except OSError as exc:
+        assert exc.errno == errno.ENOSPC
+    else:
+        raise AssertionError("the full disk was not reported")
+    assert calls == ["a.csv", "b.csv", "c.html"]
+    assert {p.relative_to(out).as_posix(): p.read_bytes() for p in out.rglob("*") if p.is_file()} == {
+        "a.csv": b"old a\n", "b.csv": b"old b\n", "sub/c.html": b"old c\n"}
+    monkeypatch.setattr(exports, "_write_temp", real)
+    written = exports.write_file_set(out, [("a.csv", b"new a\n"), ("sub/c.html", b"new c\n")])
+    assert [p.name for p in written] == ["a.csv", "c.html"]
+    assert (out / "a.csv").read_bytes() == b"new a\n" and (out / "b.csv").read_bytes() == b"old b\n"

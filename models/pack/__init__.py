@@ -21,7 +21,7 @@ from __future__ import annotations
 import warnings
 from pathlib import Path
 
-from models.exports import atomic_write_bytes
+from models.exports import atomic_write_bytes, write_file_set
 from models.pack.content import Scope, select_scope
 from models.pack.decision_record import record_file_name, render_decision_record
 from models.pack.report_html import render_report
@@ -143,8 +143,6 @@ def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: boo
     scope = select_scope(case, result, assets, plan if assets else True)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    written: list[Path] = []
-
     taken: set[str] = set()
     record_names = {}
     for asset_id in scope.asset_ids:
@@ -153,29 +151,28 @@ def write_pack(case, result, out_dir, assets: list[str] | None = None, plan: boo
         record_names[asset_id] = name
     listed = [WORKBOOK_NAME, REPORT_NAME] + ([PDF_NAME] if pdf else []) + [f"{RECORDS_DIR}/{n}" for n in record_names.values()]
 
-    path = _inside(out, out / WORKBOOK_NAME)
-    atomic_write_bytes(path, build_workbook(case, result, scope))
-    written.append(path)
-
-    report = _inside(out, out / REPORT_NAME)
-    atomic_write_bytes(report, render_report(case, result, scope, listed).encode("utf-8"))
-    written.append(report)
-
-    for asset_id, name in record_names.items():
-        path = _inside(out, out / RECORDS_DIR / name)
-        atomic_write_bytes(path, render_decision_record(case, result, scope, asset_id).encode("utf-8"))
-        written.append(path)
-
+    workbook = build_workbook(case, result, scope)
+    report = render_report(case, result, scope, listed).encode("utf-8")
+    records = {f"{RECORDS_DIR}/{name}": render_decision_record(case, result, scope, asset_id).encode("utf-8")
+               for asset_id, name in record_names.items()}
+    printed = None
     if pdf:
+        import tempfile
+
         from models.pack.pdf import pdf_bytes
 
-        data, message = pdf_bytes(report, footer=pdf_footer(case.settings))
+        with tempfile.TemporaryDirectory(prefix="drivecase-pack-") as folder:  # printed before any file is replaced
+            staged_report = Path(folder) / REPORT_NAME
+            staged_report.write_bytes(report)
+            printed, message = pdf_bytes(staged_report, footer=pdf_footer(case.settings))
         notes.append(message)
-        if data is not None:
-            path = _inside(out, out / PDF_NAME)
-            atomic_write_bytes(path, data)
-            written.insert(2, path)
-        else:
+        if printed is None:
             warnings.warn(message, PackWarning, stacklevel=2)
+    files = [(WORKBOOK_NAME, workbook), (REPORT_NAME, report)] + ([(PDF_NAME, printed)] if printed is not None else [])
+    files += list(records.items())
+    for name, _ in files:
+        _inside(out, out / name)
+    # all or none: an earlier pack in the folder stays whole if any file cannot be written
+    written = write_file_set(out, files)
     _tidy(out, written, notes)
     return written
