@@ -1027,6 +1027,22 @@ ENERGY_PRICE_WARN_PER_KWH = 5.0
 #: Currencies whose unit buys several kWh (ISO 4217 codes), where :data:`ENERGY_PRICE_WARN_PER_KWH` applies.
 UNIT_PRICED_CURRENCIES = frozenset({"EUR", "USD", "GBP", "CHF", "CAD", "AUD", "NZD", "SGD", "BRL", "PLN", "DKK", "NOK",
                                     "SEK", "CNY", "MYR", "AED", "SAR", "ILS"})
+#: A demand price above this [currency/kW-month or kVA-month] is warned in the currencies of
+#: :data:`UNIT_PRICED_CURRENCIES`: utilities there ask a few units to a few tens per kW-month (common practice,
+#: from memory), and a price per MW-month or per kW-year written per kW-month is tens to thousands of times that.
+DEMAND_PRICE_WARN_PER_KW_MONTH = 100.0
+
+
+def _demand_price_hint(price: float, unit: str) -> str:
+    """What a demand price far above any utility's may have been meant as (the per-MW and per-year readings).
+
+    Examples
+    --------
+    >>> _demand_price_hint(9200.0, "kVA")
+    'is it a price per MVA-month (9.2 per kVA-month) or per kVA-year (766.667 per kVA-month)?'
+    """
+    return (f"is it a price per M{unit[1:]}-month ({price / 1000:g} per {unit}-month) or per {unit}-year "
+            f"({price / 12:g} per {unit}-month)?")
 _FIXED_KEYS = ("name", "charge_per_month")
 _DEMAND_KEYS = (
     "name",
@@ -1592,7 +1608,12 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
                 r.err(p, dname, "a demand charge needs price_per_kw_month or price_per_kva_month")
         else:
             basis = "kW" if has_kw else "kVA"
-            dprice = r.get(d, "price_per_kw_month" if has_kw else "price_per_kva_month", p, "number")
+            key = "price_per_kw_month" if has_kw else "price_per_kva_month"
+            dprice = r.get(d, key, p, "number")
+            if (dprice is not None and str(currency or "").upper() in UNIT_PRICED_CURRENCIES
+                    and dprice > DEMAND_PRICE_WARN_PER_KW_MONTH):
+                r.warn(f"{p}.{key}", dprice, f"{dprice:g} per {basis}-month is far above any utility's demand price",
+                       _demand_price_hint(dprice, basis))
         window = r.get(d, "window_min", p, "int", default=15)
         rolling = r.get(d, "rolling", p, "bool", default=False)
         dperiods = r.get(d, "periods", p, "str_list", default=None)
@@ -1682,6 +1703,10 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         r.known(e, _COINCIDENT_KEYS, p)
         cname = r.get(e, "name", p, "str", default=f"coincident peak {i}")
         cprice = r.get(e, "price_per_kw_month", p, "number")
+        if (cprice is not None and str(currency or "").upper() in UNIT_PRICED_CURRENCIES
+                and cprice > DEMAND_PRICE_WARN_PER_KW_MONTH):
+            r.warn(f"{p}.price_per_kw_month", cprice, f"{cprice:g} per kW-month is far above any utility's demand price",
+                   _demand_price_hint(cprice, "kW"))
         cwindow = r.get(e, "window_min", p, "int", default=60)
         read = _peak_times(r, e, p, cwindow)
         if cprice is not None and cwindow is not None and read is not None:

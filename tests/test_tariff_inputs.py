@@ -331,3 +331,16 @@ def test_a_price_too_large_for_any_bill_is_refused():
     tariff, problems = load(text)
     found = [p for p in problems if p.column == "energy.price_per_kwh" and p.severity == "error"]
     assert tariff is None and found and "at most 1e+09 in size" in found[0].rule
+
+
+@pytest.mark.parametrize("currency, price, warned", [("EUR", 9200.0, True), ("EUR", 14.5, False), ("JPY", 1800.0, False)])
+def test_a_demand_price_the_size_of_one_per_mva_or_per_year_is_warned(currency, price, warned):
+    # 9,200 EUR per kVA-month is a price per MVA-month or per kVA-year written per kVA-month (hand: 9200 / 1000 =
+    # 9.2 per kVA-month; 9200 / 12 = 766.667 per kVA-month); in yen 1,800 per kW-month is ordinary
+    text = HEAD.replace('currency = "EUR"', f'currency = "{currency}"') + (
+        f'\n[[demand]]\nname = "d"\nprice_per_kva_month = {price}\n')
+    _, problems = load(text)
+    found = [p for p in problems if p.column == "demand[1].price_per_kva_month" and p.severity == "warning"]
+    assert bool(found) == warned, problems
+    if warned:
+        assert "per MVA-month (9.2 per kVA-month) or per kVA-year (766.667 per kVA-month)" in found[0].hint
