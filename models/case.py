@@ -2173,6 +2173,9 @@ def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> No
             months.append(None)
         else:
             months.append(found.group(0) if found else None)
+            if dated and found is not None and text[8:10] != "01":  # a day within the month: which month is meant?
+                checker.warn(i, "month", value, f"a date, not a month: read as the billing month {found.group(0)}",
+                             "write the month the bill covers (YYYY-MM); a bill is often dated after its month ends")
     b["month"] = pd.array(months, dtype="str")
     key = b["site_id"].astype(str) + "/" + b["month"].astype(str)
     seen: dict[str, int] = {}

@@ -135,6 +135,17 @@ class TestCaseTable:
         assert any("row 3, column 'energy_kwh'" in str(p) and "0 kWh" in str(p) and p.severity == "warning"
                    for p in problems)
 
+    def test_a_date_within_a_month_is_warned_and_read_as_its_month(self, tmp_path):
+        # 2024-01-15 may be the day a December bill was issued: it reads as 2024-01 and says so
+        from models.case import load_case
+
+        case = _demo_with_bills(tmp_path, "site_id,month,energy_kwh\nHRW,2024-01-15,1000\nHRW,2024-02-01,900\n")
+        loaded, problems = load_case(case)
+        assert loaded is not None and loaded.bill_history["month"].tolist() == ["2024-01", "2024-02"]
+        said = [p for p in problems if p.column == "month"]
+        assert len(said) == 1 and said[0].severity == "warning" and "row 2" in str(said[0])
+        assert "read as the billing month 2024-01" in said[0].rule and "the month the bill covers" in said[0].hint
+
     def test_a_case_without_bills_has_an_empty_history(self, tmp_path):
         import casebuilder as cb
         from models.case import load_case
