@@ -182,7 +182,14 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "start_duty": a["start_duty"].to_numpy(dtype=object),
         "wound_field_today": (a["machine_type"].to_numpy(dtype=object) == "wound_field_synchronous"
                               if "machine_type" in a else np.zeros(len(a), dtype=bool)),
+        # a synchronous machine today (wound-field or permanent-magnet): no slip of its own to scale
+        "synchronous_today": (np.isin(a["machine_type"].to_numpy(dtype=object), SYNCHRONOUS_MACHINE_TYPES)
+                              if "machine_type" in a else np.zeros(len(a), dtype=bool)),
     }
+
+
+#: Kinds of machine in the register that run at synchronous speed today.
+SYNCHRONOUS_MACHINE_TYPES = ("wound_field_synchronous", "pm_synchronous")
 
 
 def _covers(rows: np.ndarray, n: int) -> bool:
@@ -531,7 +538,11 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     eff = class_efficiency_frac(arr, option["efficiency_class"])
     old_loss = 1.0 - arr["eff_frac"]
     scale = np.clip((1.0 - eff) / np.where(old_loss > 0, old_loss, 1.0), *SLIP_SCALING_BOUNDS)
-    slip = existing.rated_slip_frac * scale
+    # today's slip, scaled with the losses; a synchronous machine today has none, so an induction motor in its
+    # place takes the typical slip of its size (it turns slower than the machine it replaces)
+    synchronous = np.asarray(arr.get("synchronous_today", np.zeros(len(eff), dtype=bool)), dtype=bool)
+    base_slip = np.where(synchronous, induction.default_rated_slip_frac(arr["rated_p_kw"]), existing.rated_slip_frac)
+    slip = base_slip * scale
     pf = np.clip(default_power_factor(arr["rated_p_kw"], arr["poles"])
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])

@@ -271,6 +271,28 @@ def test_a_wound_field_machine_today_draws_no_kvar_and_options_save_none_against
     assert not r.applies[i, r.option_position("capacitor")] and not r.applies[i, r.option_position("rewind")]
 
 
+def test_an_induction_motor_replacing_a_synchronous_machine_slips(tmp_path):
+    # A 15 kW 4-pole pump whose machine today is a permanent-magnet motor at 1,500 rpm (no slip). A new induction
+    # motor in its place turns at its own slip, not at today's (nil) slip scaled. Hand bounds: the typical full-load
+    # slip of 15 kW (20.1 hp) is 2.5 - 0.8 log10(20.1/15) / log10(50/15) = 2.31 % (Engineering ToolBox table, 15 hp
+    # 2.5 %, 50 hp 1.7 %, on log10 hp); the new motor's slip is that times its losses' ratio, at least 0.6
+    # (SLIP_SCALING_BOUNDS), and the pump runs at 60-80 % load (slip about in proportion), so its mean speed lies
+    # between 1500 (1 - 0.0231) = 1465.4 rpm and 1500 (1 - 0.6 x 0.0231 x 0.5) = 1489.6 rpm; a speed of 1,499 rpm
+    # (today's 0.1 % scaled) would give the pump the synchronous machine's flow.
+    header = cb.ASSET_HEADER + ["machine_type"]
+    assets = [list(row) + [kind] for row, kind in zip(cb.ASSETS, ["pm_synchronous", "", ""])]
+    assets[0][11], assets[0][14] = "1500", "fixed"
+    case, _ = load_case(cb.write_case(tmp_path / "c", assets=assets, asset_header=header), mode="strict")
+    r = operate(case)
+    i = r.asset_position("P1")
+    for option in ("ie3", "ie4"):
+        o = r.option_position(option)
+        if r.applies[i, o]:
+            assert 1465.4 < r.mean_speed_rpm[i, o] < 1489.6, (option, r.mean_speed_rpm[i, o])
+            assert r.shaft_energy_kwh[i, o] < r.shaft_energy_kwh[i, r.option_position("keep")]  # slower: less flow
+    assert r.applies[i, r.option_position("ie4")]
+
+
 def test_measured_input_below_the_no_load_input_is_named_not_dropped_silently(tmp_path):
     # A logger reading 0.1 kW on a 15 kW motor (no-load input about 2-3 % of rating, common practice) cannot
     # be turned into a shaft load: those intervals count as stopped. The asset is told how many and how much
