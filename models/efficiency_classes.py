@@ -54,6 +54,12 @@ def _formula_50hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: s
     return out
 
 
+#: Smallest rating of the federal 60 Hz tables [kW]: 1 hp, listed as 0.75 kW.
+SMALLEST_60HZ_TABLE_KW = 0.75
+#: 1 hp [kW]: a motor rated below it is below the federal tables' first row.
+ONE_HP_KW = 0.745699872
+
+
 def _table_60hz(rated_p_kw: np.ndarray, poles: np.ndarray, efficiency_class: str) -> np.ndarray:
     """Look up the federal 60 Hz table with its midpoint rule (NaN where the table has no column)."""
     table = io.read_reference("us_10cfr431_min_efficiency_60hz")
@@ -106,7 +112,9 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
     Derived levels: IE5 = 100 - 0.8 (100 - eta_IE4) (from memory); IE1 and IE4 at 60 Hz and IE1 8-pole
     at 50 Hz scale the neighbouring class's losses by the 50 Hz loss ratio at the same rating and poles
     (IE1 below 0.75 kW by the ratio at 0.75 kW); IE2 and IE3 8-pole at 60 Hz, which the federal table does
-    not list, scale the 50 Hz 8-pole losses by the 6-pole ratio of 60 Hz to 50 Hz losses at the same rating.
+    not list, scale the 50 Hz 8-pole losses by the 6-pole ratio of 60 Hz to 50 Hz losses at the same rating;
+    IE2 and IE3 at 60 Hz below 1 hp, where the federal table starts, scale the 50 Hz losses at the rating by
+    the ratio of 60 Hz to 50 Hz losses at 0.75 kW, the same poles.
 
     References
     ----------
@@ -146,12 +154,21 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
                 value = np.where(np.isnan(value), derived, value)
         else:
             if name in ("IE2", "IE3"):
-                value = _table_60hz(np.clip(p, 0.75, None), n_poles, name)
+                value = _table_60hz(np.clip(p, SMALLEST_60HZ_TABLE_KW, None), n_poles, name)
                 # 8-pole motors, which the federal table does not list: the 50 Hz 8-pole level with its losses
                 # scaled by the 6-pole ratio of 60 Hz to 50 Hz losses at the same rating (derived)
                 six = np.full(p.shape, 6.0)
-                ratio = (100 - _table_60hz(np.clip(p, 0.75, None), six, name)) / (100 - _formula_50hz(p, six, name))
+                q = np.clip(p, SMALLEST_60HZ_TABLE_KW, None)
+                ratio = (100 - _table_60hz(q, six, name)) / (100 - _formula_50hz(q, six, name))
                 value = np.where(np.isnan(value) & (n_poles == 8), _from_loss_ratio(level(50.0, name), ratio), value)
+                # below 0.75 kW, where the federal table starts: the 50 Hz level at the rating with its losses
+                # scaled by the ratio of 60 Hz to 50 Hz losses at 0.75 kW, the same poles (derived; 8-pole rows
+                # are scaled at their own rating above)
+                small = (p < ONE_HP_KW - 1e-9) & (n_poles != 8)
+                if small.any():
+                    at_smallest = _formula_50hz(np.full(p.shape, SMALLEST_60HZ_TABLE_KW), n_poles, name)
+                    ratio = (100 - value) / (100 - at_smallest)
+                    value = np.where(small, _from_loss_ratio(level(50.0, name), ratio), value)
             elif name == "IE1":
                 ratio = (100 - level(50.0, "IE1")) / (100 - level(50.0, "IE2"))
                 value = _from_loss_ratio(level(60.0, "IE2"), ratio)
@@ -192,7 +209,7 @@ def efficiency_basis(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
     published = (
         ((f == 50) & np.isin(cls, ["IE2", "IE3", "IE4"]))
         | ((f == 50) & (cls == "IE1") & (n_poles != 8))
-        | ((f == 60) & np.isin(cls, ["IE2", "IE3"]) & (n_poles != 8))
+        | ((f == 60) & np.isin(cls, ["IE2", "IE3"]) & (n_poles != 8) & (p >= ONE_HP_KW - 1e-9))
     )
     return np.where(np.isnan(value), "out of scope", np.where(published, "published", "derived"))
 

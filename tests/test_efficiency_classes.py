@@ -84,6 +84,18 @@ class TestMinEfficiency60Hz:
         assert_allclose(min_efficiency_pct(15, 8, 60, "IE3"), 90.2, atol=0.05)
         assert np.isfinite(min_efficiency_pct([0.75, 110, 375], 8, 60, "IE2")).all()
 
+    def test_below_one_horsepower_the_losses_scale_from_50_hz(self):
+        # Hand calculation, docs/derivations/case-defaults.md "Below 1 hp at 60 Hz": the federal table starts at
+        # 1 hp (0.75 kW); a 0.12 kW 4-pole IE3 motor takes the 50 Hz level at 0.12 kW (64.8, EU 2019/1781 Table
+        # 27 coefficients) with its losses scaled by the 60 Hz to 50 Hz loss ratio at 0.75 kW (85.5, 10 CFR 431.25
+        # Table 1, 1 hp; 82.5, IEC 60034-30-1 Table 2): 100 - 35.2 x 14.5 / 17.5 = 70.83. Before, every rating
+        # below 1 hp took the 1 hp row (85.5), its losses about 2.4 times too small.
+        assert_allclose(min_efficiency_pct(0.12, 4, 60, "IE3"), 70.8, atol=0.05)
+        got = min_efficiency_pct([0.12, 0.25, 0.37, 0.55, 0.75], 4, 60, "IE3")
+        assert np.all(np.diff(got) > 0)  # rising with the rating up to the table's first row
+        assert list(efficiency_basis([0.55, 0.7457, 0.75], 4, 60, "IE3")) == ["derived", "published", "published"]
+        assert min_efficiency_pct(0.7457, 4, 60, "IE3") == min_efficiency_pct(0.75, 4, 60, "IE3")  # 1 hp is the row
+
     def test_one_horsepower_ie1(self):
         # Hand calculation, docs/derivations/case-defaults.md: 1 hp = 0.7457 kW is below the 0.75 kW of the IE1
         # coefficients; the IE1/IE2 loss ratio at 0.75 kW 4-pole (72.1 and 79.6 %, IEC 60034-30-1 Table 2)
