@@ -622,6 +622,12 @@ MEDIUM_VOLTAGE_CAUTIONED = ("induction", "line_start_pm", "pm_drive", "reluctanc
 MEDIUM_VOLTAGE_TEXT = ("a medium-voltage motor (rated above 1,000 V): this option's efficiency class levels and "
                        "capital curve are those of low-voltage motors, and the minimum-efficiency rules do not cover "
                        "it; take its efficiency and price from a maker's quote")
+#: Equipment added to today's motor whose cost curves are those of low-voltage equipment.
+MEDIUM_VOLTAGE_PRICED = ("capacitor", "add_drive")
+#: Their caution on a motor rated above :data:`models.regulations.MAX_RULED_V_V`.
+MEDIUM_VOLTAGE_EQUIPMENT_TEXT = ("a medium-voltage motor (rated above 1,000 V): this option's capital curve is that of "
+                                 "low-voltage equipment; a medium-voltage capacitor bank or drive, with its switchgear "
+                                 "and protection, costs more: take its price from a supplier's quote")
 
 
 def _held_beyond_cap(shaft: np.ndarray, shaft_eval: np.ndarray) -> np.ndarray | None:
@@ -1475,10 +1481,12 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     # are those of low-voltage motors (load-independent)
     medium = a["rated_v_v"].to_numpy(dtype=float) > MAX_RULED_V_V if "rated_v_v" in a else np.zeros(len(a), bool)
     for o in range(1, 1 if only_today else n_o):
-        if (option_rows[o]["technology"] not in MEDIUM_VOLTAGE_CAUTIONED or needed is not None
+        technology = option_rows[o]["technology"]
+        if (technology not in MEDIUM_VOLTAGE_CAUTIONED + MEDIUM_VOLTAGE_PRICED or needed is not None
                 or (wanted is not None and o not in wanted)):
             continue
-        flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": MEDIUM_VOLTAGE_TEXT}
+        text = MEDIUM_VOLTAGE_TEXT if technology in MEDIUM_VOLTAGE_CAUTIONED else MEDIUM_VOLTAGE_EQUIPMENT_TEXT
+        flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": text}
                      for i in np.flatnonzero(applies[:, o] & medium))
     # options that do not apply repeat today's values
     for o in range(1, 1 if only_today else n_o):

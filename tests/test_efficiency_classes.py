@@ -183,6 +183,11 @@ def test_a_medium_voltage_motor_is_outside_the_rules_and_its_new_options_are_cau
     flags = operate(small).flags
     cautioned = set(flags.loc[flags["flag"] == MEDIUM_VOLTAGE_TEXT, "asset_id"])
     assert cautioned == {"C1"}
+    # a capacitor bank or a drive added to it is priced on low-voltage equipment's curves: cautioned too
+    from models.operation import MEDIUM_VOLTAGE_EQUIPMENT_TEXT
+
+    priced = flags.loc[flags["flag"] == MEDIUM_VOLTAGE_EQUIPMENT_TEXT]
+    assert set(priced["asset_id"]) == {"C1"} and {"capacitor", "add_drive"} & set(priced["option_id"])
 
 
 def test_the_tolerance_on_declared_efficiency_is_a_share_of_the_losses():

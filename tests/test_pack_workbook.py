@@ -343,11 +343,12 @@ def test_a_plan_replaced_at_failure_counts_capital_in_the_year_it_is_spent(tmp_p
 
     ctx = report_context(case, result, select_scope(case, result), [])
     rows = [[c["text"] for c in r["cells"]] for r in ctx["plan_rows"]]
-    assert [r[0] for r in rows] == [str(y) for y in range(len(budgets))] + ["later", "Total"]
+    assert [r[0] for r in rows] == [str(y) for y in range(len(budgets))] + ["later", "Total, later included"]
     assert [float(r[2].replace(",", "")) for r in rows] == [round(v) for v in expected] + [round(later),
                                                                                           round(sum(expected) + later)]
-    # the total of the budgets, and of the plan's projects and NPVs at plan start (the plan's own rows)
-    assert float(rows[-1][1].replace(",", "")) == round(sum(budgets))
+    # no budget beside a total with later spend in it (the two do not compare), as the workbook's Plan sheet; the
+    # plan's projects and NPVs at plan start (the plan's own rows)
+    assert rows[-1][1] == ""
     assert rows[-1][3] == str(len(result.plan))
     assert float(rows[-1][4].replace(",", "")) == round(result.plan["npv_at_plan_start"].sum())
     # the decision table names the year the motor is bought beside its plan year (the first capital row above)

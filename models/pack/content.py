@@ -907,6 +907,66 @@ def monte_carlo_text(u: Uncertainty) -> str:
     return text
 
 
+
+def plan_bill_savings_apart_and_together(result) -> tuple[float, float | None]:
+    """The plan's yearly bill saving counted project by project, and with the whole plan on the sites' bills.
+
+    Project by project, each at its own saving priced alone (a reactive project at the share of its saving the
+    plan credits it), as the headline saving adds them; together, the sites' bills with every project of the plan
+    in place (None where the run did not price them). Both [currency/yr]; (0, None) without a plan.
+    """
+    from models.scenario import plan_bill_saving_per_yr
+
+    if not len(result.plan):
+        return 0.0, None
+    pairs = list(zip(result.plan["asset_id"], result.plan["option_id"]))
+    own = result.results.set_index(["asset_id", "option_id"])["bill_saving_per_yr"].reindex(pairs).to_numpy(dtype=float)
+    credited = np.array([1.0 if share is None else share for share in (plan_credit_share(result, a_id, o_id)
+                                                                       for a_id, o_id in pairs)])
+    return float(np.nansum(own * credited)), plan_bill_saving_per_yr(result.bills)
+
+
+def plan_tax_savings_per_yr(result) -> dict[str, float]:
+    """Each tax line's fall on the sites' bills with the whole plan in place [currency/yr], by tax name (the
+    tariffs' ``tax:<name>`` lines), largest first; empty without the plan's bills or any tax line.
+
+    The savings are those of the bills as the tariffs write them, taxes included: a business that reclaims a tax
+    (VAT, for most) saves that much less.
+    """
+    bills = result.bills
+    if bills is None or not len(bills) or "scenario" not in bills:
+        return {}
+    taxes = bills[bills["line_item"].astype(str).str.startswith("tax:")]
+    if taxes.empty:
+        return {}
+    by = taxes.groupby([taxes["line_item"].astype(str).str[4:], "scenario"])["amount"].sum().unstack("scenario")
+    if "baseline" not in by or "plan" not in by:
+        return {}
+    fall = (by["baseline"].fillna(0.0) - by["plan"].fillna(0.0)).sort_values(ascending=False)
+    return {str(name): float(value) for name, value in fall.items() if abs(value) > 0.005}
+
+
+def taxes_text(result, currency: str) -> str:
+    """A sentence saying which taxes the bill savings hold and how much ("" without any).
+
+    Examples
+    --------
+    >>> class R:
+    ...     bills = pd.DataFrame({"line_item": ["tax:VAT", "tax:VAT", "energy:all", "energy:all"],
+    ...                           "scenario": ["baseline", "plan", "baseline", "plan"], "amount": [19.0, 9.5, 100.0, 50.0]})
+    >>> taxes_text(R(), "EUR")
+    "The bill savings include the tariffs' taxes: of the bills' yearly fall with the plan, EUR 10 is VAT. A business that reclaims a tax (VAT, for most) saves that much less: leave it out of the tariff to see the savings and NPVs without it."
+    """
+    fall = plan_tax_savings_per_yr(result)
+    if not fall:
+        return ""
+    parts = [f"{money(value, currency)}{' is' if k == 0 else ''} {name}" for k, (name, value) in enumerate(fall.items())]
+    listed = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
+    return (f"The bill savings include the tariffs' taxes: of the bills' yearly fall with the plan, {listed}. "
+            "A business that reclaims a tax (VAT, for most) saves that much less: leave it out of the tariff to see "
+            "the savings and NPVs without it.")
+
+
 def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     """Return the risks and assumptions register: category, item, detail, assets, response.
 
@@ -930,6 +990,13 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     add("assumption", "Grid emission factor",
         f"{a.grid_co2_kg_per_kwh:g} kg CO2/kWh in the base year, declining {a.grid_co2_decline_frac:.1%}/yr", "all",
         "State whether the factor is location- or market-based and average or marginal.")
+    fall = plan_tax_savings_per_yr(result) if scope.mode != "assets" else {}
+    if fall:
+        add("assumption", "Taxes in the savings",
+            "; ".join(f"{name}: {money(value, case.settings.currency)} a year of the plan's bill saving"
+                      for name, value in fall.items()), "all",
+            "A business that reclaims a tax (VAT, for most) saves that much less: take it out of the tariff's taxes "
+            "and run again before approval.")
     add("assumption", "Replacement timing", a.replacement_mode.replace("_", " "), "all",
         "Replace-now projects assume an outage window in the plan year; book it with operations.")
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]
@@ -987,15 +1054,7 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     # the headline's yearly saving adds the plan's projects priced one by one (a reactive one at the share the
     # plan credits it): where they save less together on the sites' bills, the register says by how much
     if scope.mode != "assets" and len(result.plan):
-        from models.scenario import plan_bill_saving_per_yr
-
-        together = plan_bill_saving_per_yr(result.bills)
-        own = result.results.set_index(["asset_id", "option_id"])["bill_saving_per_yr"].reindex(
-            list(zip(result.plan["asset_id"], result.plan["option_id"]))).to_numpy(dtype=float)
-        credited = np.array([1.0 if share is None else share
-                             for share in (plan_credit_share(result, a_id, o_id)
-                                           for a_id, o_id in zip(result.plan["asset_id"], result.plan["option_id"]))])
-        apart = float(np.nansum(own * credited))
+        apart, together = plan_bill_savings_apart_and_together(result)
         gap = apart - together if together is not None else 0.0
         if gap > 0.005 * max(abs(apart), 1.0):
             currency = case.settings.currency

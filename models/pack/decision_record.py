@@ -14,6 +14,7 @@ import pandas as pd
 from markupsafe import Markup
 
 from models.case import power_label, rating_in_unit
+from models.defaults import QUALITY_PENALTY_PCT
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.information import measure_first_of
 from models.options import technology_name
@@ -24,6 +25,26 @@ from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of
 
 
 
+
+
+def _defaulted_words(columns) -> str:
+    """The defaulted fields beside the data-quality score: those it counts, then those it does not ("" without any).
+
+    Examples
+    --------
+    >>> _defaulted_words(["rated_power_factor", "machine_type"])
+    ' (defaulted: rated power factor; also defaulted, not counted in the score: machine type)'
+    >>> _defaulted_words(["machine_type"])
+    ' (not counted in the score, defaulted: machine type)'
+    """
+    names = list(dict.fromkeys(str(c) for c in columns))
+    counted_ = [_field_words(c) for c in names if QUALITY_PENALTY_PCT.get(c, 0.0) > 0]
+    minor = [_field_words(c) for c in names if QUALITY_PENALTY_PCT.get(c, 0.0) <= 0]
+    if counted_ and minor:
+        return f" (defaulted: {', '.join(counted_)}; also defaulted, not counted in the score: {', '.join(minor)})"
+    if counted_:
+        return f" (defaulted: {', '.join(counted_)})"
+    return f" (not counted in the score, defaulted: {', '.join(minor)})" if minor else ""
 
 def _field_words(column: str) -> str:
     """A register column in short words ("rewind_loss_pct_points" -> "rewind loss"), for a record's one line.
@@ -94,9 +115,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Criticality", "criticality", _value(x["criticality"])),
         *([("State", "failed", "failed, out of service")] if failed else []),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
-        ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %")
-         + (f" (defaulted: {', '.join(dict.fromkeys(_field_words(c) for c in defaulted['column']))})"
-            if len(defaulted) else "")),
+        ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %") + _defaulted_words(defaulted["column"])),
     ]
     nameplate = [(label, value, column in filled) for label, column, value in plate]
     rec_key = f"{asset_id}/{rec['option_id']}"

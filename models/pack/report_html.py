@@ -20,7 +20,6 @@ from models.case import power_label, rating_in_unit
 from models.pack import content, figures, templates
 from models.plan import option_labels, plan_capital_spent, plan_purchase_yr
 from models.reactive_plan import withdrawn_text
-from models.scenario import plan_bill_saving_per_yr
 from models.wording import counted
 
 #: Sections of the report: (anchor, title).
@@ -142,16 +141,27 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
             summary += (f" Of that capital, {content.money(float(outside['capital'].sum()), cur)} "
                         f"({counted(len(outside), 'project')}) lies outside the budgeted plan: it needs money beyond "
                         "the plan's budgets (the decision table's plan year reads '-').")
+    if h.n_projects and scope.mode != "assets" and len(result.plan):
+        by_year, later_capital = plan_capital_spent(result.plan, result.results, result.capital_spend_by_year,
+                                                    len(a.budget_per_yr))
+        # what the plan spends over the study period beyond its projects' first purchases: items bought again
+        again = float(by_year.sum()) + float(later_capital) - float(result.plan["capital"].sum())
+        if again > 0.005:
+            summary += (f" Over the study period the plan also spends {content.money(again, cur)} on buying items again "
+                        "at the end of their lives (in the plan-by-year table's 'later' row, after the budgeted years).")
     if keep_count:
         summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
-    together = plan_bill_saving_per_yr(result.bills)
-    alone = float(result.results.set_index(["asset_id", "option_id"])["bill_saving_per_yr"]
-                  .reindex(list(zip(result.plan["asset_id"], result.plan["option_id"]))).sum()) if len(result.plan) else 0.0
+    alone, together = content.plan_bill_savings_apart_and_together(result)
     if scope.mode != "assets" and together is not None and len(result.plan) and alone - together > 0.005 * max(abs(alone), 1.0):
         summary += (f" With the whole plan in place the sites' bills fall by {content.money(together, cur)} a year, less "
-                    f"than the {content.money(alone, cur)} its projects save on the bills priced one by one: they share "
-                    "demand peaks, ratchets and reactive allowances (the Bills sheet of the workbook); the NPV counts "
-                    "each reactive project at the share it adds, the other projects at their own saving.")
+                    f"than the {content.money(alone, cur)} its projects save on the bills counted one by one (a "
+                    "reactive project at the share of its saving the plan credits it), as the headline saving and the "
+                    "NPV count them: they share demand peaks, ratchets and reactive allowances (the Bills sheet of the "
+                    f"workbook). The {content.money(alone - together, cur)} a year between the two would lower the NPV by "
+                    "about its present value (the register of assumptions).")
+    taxes = content.taxes_text(result, cur) if scope.mode != "assets" and len(result.plan) else ""
+    if taxes:
+        summary += " " + taxes
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
@@ -247,7 +257,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         plan_rows.append(row([cell("later", "num"), cell("not budgeted", "num na"), num(spent["exact"][1]), cell(""),
                               cell(""), num(spent["greedy"][1]), cell(""), cell("")]))
     if len(plan_rows) > 1:  # the plans' totals, later spend included (as the workbook's Plan sheet)
-        plan_rows.append(row([cell("Total", "num"), num(float(sum(budgets))) if budgets else cell("no limit", "num na"),
+        later = spent["exact"][1] > 0.005 or spent["greedy"][1] > 0.005
+        # (with later spend the total is not comparable with the budgets' sum: its budget cell is left blank)
+        plan_rows.append(row([cell("Total, later included" if later else "Total", "num"),
+                              cell("") if later else num(float(sum(budgets))) if budgets else cell("no limit", "num na"),
                               num(float(spent["exact"][0].sum() + spent["exact"][1])), cell(len(result.plan), "num"),
                               num(float(result.plan["npv_at_plan_start"].sum())),
                               num(float(spent["greedy"][0].sum() + spent["greedy"][1])), cell(len(result.plan_greedy), "num"),
