@@ -230,9 +230,13 @@ class TestReportContents:
         scope = content.select_scope(case, result, None, True)
         ctx = report_context(case, result, scope, [])
         col = ctx["decision_headers"].index("NPV at plan start [EUR]")
-        values = [r["cells"][col]["text"] for r in ctx["decision_rows"]]
+        rows = ctx["decision_rows"]
+        assert rows[-1]["cells"][0]["text"] == "Total"  # the table's own total row, then the projects' rows
+        values = [r["cells"][col]["text"] for r in rows[:-1]]
         total = sum(float(str(v).replace(",", "").replace(" EUR", "")) for v in values if str(v).strip() not in ("", "-"))
         assert total == pytest.approx(result.plan["npv_at_plan_start"].sum(), abs=0.5 * len(values) + 1e-9)
+        shown = float(rows[-1]["cells"][col]["text"].replace(",", ""))
+        assert shown == round(result.plan["npv_at_plan_start"].sum())
 
     def test_mv_baseline_figures(self, asset_pack, small):
         _, result = small
@@ -681,8 +685,11 @@ def test_the_decision_table_and_the_saving_charts_add_up_to_the_headline_saving(
     assert abs(h.yearly_saving - by_hand) <= 1e-6 * abs(by_hand)
     context = report_context(case, result, scope, [])
     column = context["decision_headers"].index(f"Saving [{case.settings.currency}/yr]")
-    table = sum(float(r["cells"][column]["text"].replace(",", "")) for r in context["decision_rows"])
-    assert abs(table - h.yearly_saving) <= 0.5 * len(context["decision_rows"])  # (each cell rounded to 1)
+    rows = context["decision_rows"][:-1]  # (the last row is the table's total)
+    table = sum(float(r["cells"][column]["text"].replace(",", "")) for r in rows)
+    assert abs(table - h.yearly_saving) <= 0.5 * len(rows)  # (each cell rounded to 1)
+    total = context["decision_rows"][-1]["cells"]
+    assert total[0]["text"] == "Total" and float(total[column]["text"].replace(",", "")) == round(h.yearly_saving)
     waterfall = figures.savings_waterfall(plan_counted(result, scope.chosen), case.settings.currency)
     assert abs(float(waterfall.data[0].y[-1]) - h.yearly_saving) <= 1e-6 * abs(h.yearly_saving)
     assert f'"{h.yearly_saving:,.0f}"' in str(context["figures"]["waterfall"])  # the report's chart, its total's label
@@ -970,3 +977,65 @@ def test_a_rating_reads_as_its_nameplate(demo_run_physics):
     ctx = report_context(case, result, select_scope(case, result, assets=["HRW-D01", "HRW-P01"], plan=False), [])
     ratings = {r["cells"][0]["text"]: r["cells"][4]["text"] for r in ctx["asset_rows"]}
     assert ratings == {"HRW-D01": "0.75", "HRW-P01": "250"}
+
+
+def test_the_summary_tells_an_approver_the_taxes_the_repeat_purchases_and_the_follow_on_capital(demo_run_physics):
+    # what an approver needs beside the headline, each figure from the run's own tables (hand sums below)
+    from models import scenario
+    from models.pack.content import plan_bill_savings_apart_and_together, select_scope
+    from models.pack.report_html import report_context
+    from models.scenario import REPLACING_TECHNOLOGIES
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    text = report_context(case, result, select_scope(case, result), [])["summary_text"]
+    # taxes: the plan's fall of each tax line of the bills (baseline less plan), summed over sites and months
+    bills = result.bills
+    vat = bills[bills["line_item"] == "tax:VAT"].groupby("scenario")["amount"].sum()
+    assert f"EUR {vat['baseline'] - vat['plan']:,.0f} is VAT" in text and "reclaims a tax" in text
+    # the bills' gap is stated against the saving the register states (one basis)
+    apart, together = plan_bill_savings_apart_and_together(result)
+    assert f"less than the EUR {apart:,.0f} its projects save" in text and f"EUR {apart - together:,.0f} a year" in text
+    # repeat purchases: what the plan spends over the study period beyond its projects' first capital
+    spend = result.capital_spend_by_year
+    rows = result.results.reset_index(drop=True)
+    at = [int(rows.index[(rows["asset_id"] == a) & (rows["option_id"] == o)][0])
+          for a, o in zip(result.plan["asset_id"], result.plan["option_id"])]
+    again = float(spend[at].sum()) - float(result.plan["capital"].sum())
+    assert again > 1.0 and f"also spends EUR {again:,.0f} on buying items again" in text
+    # the motors the end-of-life comparison would replace now beside a plan project that keeps them
+    eol = result.end_of_life.set_index("asset_id")
+    res = result.results.set_index(["asset_id", "option_id"])
+    kept = [a for a, o in zip(result.plan["asset_id"], result.plan["option_id"])
+            if res.loc[(a, o), "technology"] not in REPLACING_TECHNOLOGIES and a in eol.index
+            and eol.loc[a, "best_strategy"] == "replace_now" and not eol.loc[a, "failed"]]
+    capital = sum(float(res.loc[(a, eol.loc[a, "new_option_id"]), "capital"]) for a in kept)
+    assert kept and f"For {len(kept)} assets whose plan project keeps today's motor" in text
+    assert f"would need EUR {capital:,.0f} of capital this request does not hold" in text
+
+
+def test_a_record_of_a_later_plan_year_gives_the_reports_npv_and_says_the_outage_basis(demo_run_physics):
+    # HRW-P11 starts in a later plan year: its record gives the NPV at the plan's start beside its own (its own NPV
+    # discounted the plan years before it, as the report's decision table gives it); its end-of-life comparison
+    # prices an outage the options' NPVs do not
+    import re
+
+    from models import scenario
+    from models.pack.content import select_scope
+    from models.pack.decision_record import render_decision_record
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    plan = result.plan.set_index("asset_id")
+    later = [a for a in plan.index if int(plan.loc[a, "start_yr"]) > 0
+             and abs(float(plan.loc[a, "npv_at_plan_start"]) - float(plan.loc[a, "npv"])) > 0.5]
+    asset = later[0]
+    html = render_decision_record(case, result, select_scope(case, result), asset)
+    text = re.sub(r"\s+", " ", re.sub("<[^>]+>", " ", html)).replace("&#39;", "'")
+    at_start = float(plan.loc[asset, "npv_at_plan_start"])
+    assert f"EUR {at_start:,.0f} at the plan's start (plan year {int(plan.loc[asset, 'start_yr'])} discounted)" in text
+    # the demo's finance assumptions price no downtime; HRW-P01's end-of-life comparison prices 2,000 EUR/h
+    assert float(case.finance.downtime_cost_per_h) == 0.0
+    html = render_decision_record(case, result, select_scope(case, result), "HRW-P01")
+    text = re.sub(r"\s+", " ", re.sub("<[^>]+>", " ", html)).replace("&#39;", "'")
+    assert "outage priced at EUR 2,000/h" in text and "(The NPVs above count no outage.)" in text

@@ -926,6 +926,24 @@ def plan_bill_savings_apart_and_together(result) -> tuple[float, float | None]:
     return float(np.nansum(own * credited)), plan_bill_saving_per_yr(result.bills)
 
 
+def replace_now_beside_plan(result) -> pd.DataFrame:
+    """The plan's assets whose project keeps today's motor while the end-of-life comparison finds replacing the
+    motor now cheaper: asset_id, new_option_id and the new motor's capital [currency] (empty without any)."""
+    from models.scenario import REPLACING_TECHNOLOGIES
+
+    eol, plan = result.end_of_life, result.plan
+    columns = ["asset_id", "new_option_id", "capital"]
+    if eol is None or eol.empty or not len(plan) or "best_strategy" not in eol:
+        return pd.DataFrame(columns=columns)
+    res = result.results.set_index(["asset_id", "option_id"])
+    kept = [a for a, o in zip(plan["asset_id"], plan["option_id"])
+            if str(res.loc[(a, o), "technology"]) not in REPLACING_TECHNOLOGIES]
+    now = eol[(eol["best_strategy"] == "replace_now") & eol["asset_id"].isin(kept) & ~eol["failed"].astype(bool)]
+    capital = [float(res["capital"].get((a, o), np.nan)) for a, o in zip(now["asset_id"], now["new_option_id"])]
+    return pd.DataFrame({"asset_id": now["asset_id"].to_numpy(), "new_option_id": now["new_option_id"].to_numpy(),
+                         "capital": capital}, columns=columns)
+
+
 def plan_tax_savings_per_yr(result) -> dict[str, float]:
     """Each tax line's fall on the sites' bills with the whole plan in place [currency/yr], by tax name (the
     tariffs' ``tax:<name>`` lines), largest first; empty without the plan's bills or any tax line.

@@ -28,23 +28,22 @@ from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of
 
 
 def _defaulted_words(columns) -> str:
-    """The defaulted fields beside the data-quality score: those it counts, then those it does not ("" without any).
+    """The defaulted fields beside the data-quality score ("" without any); where the score counts none of them
+    (a score of 100 % beside defaulted fields) it says so.
 
     Examples
     --------
     >>> _defaulted_words(["rated_power_factor", "machine_type"])
-    ' (defaulted: rated power factor; also defaulted, not counted in the score: machine type)'
+    ' (defaulted: rated power factor, machine type)'
     >>> _defaulted_words(["machine_type"])
-    ' (not counted in the score, defaulted: machine type)'
+    ' (defaulted, not scored: machine type)'
     """
     names = list(dict.fromkeys(str(c) for c in columns))
-    counted_ = [_field_words(c) for c in names if QUALITY_PENALTY_PCT.get(c, 0.0) > 0]
-    minor = [_field_words(c) for c in names if QUALITY_PENALTY_PCT.get(c, 0.0) <= 0]
-    if counted_ and minor:
-        return f" (defaulted: {', '.join(counted_)}; also defaulted, not counted in the score: {', '.join(minor)})"
-    if counted_:
-        return f" (defaulted: {', '.join(counted_)})"
-    return f" (not counted in the score, defaulted: {', '.join(minor)})" if minor else ""
+    if not names:
+        return ""
+    scored = any(QUALITY_PENALTY_PCT.get(c, 0.0) > 0 for c in names)
+    return f" (defaulted{'' if scored else ', not scored'}: {', '.join(_field_words(c) for c in names)})"
+
 
 def _field_words(column: str) -> str:
     """A register column in short words ("rewind_loss_pct_points" -> "rewind loss"), for a record's one line.
@@ -187,6 +186,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
             reasons.append(f"NPV {content.money(own_npv, cur)} at {a.discount_rate_frac:.1%}, capital "
                            f"{content.money(float(rec['capital']), cur)}, saving {saving}/yr, payback {payback}, each "
                            "priced alone against today's bill.")
+        npv_said = len(reasons) - 1  # (the sentence the plan's own figure may be added to)
         short = float(rec.get("ratchet_shortfall", 0.0))
         if short > 0.5:
             reasons.append(f"While the site's demand ratchet still bills today's peaks (the first year in service, "
@@ -202,6 +202,14 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                      "the report's decision table gives it)" if start > 0 and abs(at_start - plan_npv) > 0.5 else "")
             reasons.append(f"Beside the rest of the plan it adds only part of that saving: the plan counts an NPV of "
                            f"{content.money(plan_npv, cur)}{basis} for it.")
+        elif rec.get("in_plan", False) and int(rec.get("plan_start_yr", 0) or 0) > 0:
+            # the report's decision table gives the NPV at the plan's start (discounted the plan years before its own)
+            start = int(rec.get("plan_start_yr", 0) or 0)
+            at_start = float(rec.get("plan_npv_at_start", own_npv))
+            if abs(at_start - own_npv) > 0.5:
+                reasons[npv_said] = reasons[npv_said][:-1] + (f"; {content.money(at_start, cur)} at the plan's start "
+                                                              f"(plan year {start} discounted), as the report's table "
+                                                              "gives it.")
         others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
         if len(others):
             o = others.iloc[0]
@@ -252,6 +260,9 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         else:
             text = (f"A separate decision, for the motor itself ({labels.get(new_id, new_id)} vs rewind): cheapest to "
                     f"{STRATEGY_NAMES[best_strategy]}, by {content.money(float(eol_row['advantage_over_next']), cur)}{outage}.")
+            if outage and float(a.downtime_cost_per_h) == 0 and float(eol_row["downtime_cost_per_h"]) > 0:
+                # two bases on one page: say which counts an outage
+                text += " (The NPVs above count no outage.)"
         if best_strategy == "replace_now" and rec["technology"] not in REPLACING_TECHNOLOGIES:
             new_capital = res.loc[res["option_id"] == new_id, "capital"]
             text += (" Replacing it now is not in this request and would need its own capital"

@@ -103,7 +103,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     cards = [
         {"label": "Capital", "value": content.money(h.capital, cur), "note": counted(h.n_projects, "project")},
         {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices, as the plan counts them"},
-        {"label": "NPV", "value": content.money(h.npv, cur), "note": f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start"},
+        {"label": "NPV", "value": content.money(h.npv, cur),
+         "note": (f"at {a.discount_rate_frac:.1%}, each project over {horizon} yr from its own start, at the plan start"
+                  if len(result.plan) and int(result.plan["start_yr"].max()) > 0 and scope.mode != "assets"
+                  else f"at {a.discount_rate_frac:.1%} over {horizon} yr, plan start")},
         {"label": "Payback", "value": content.years_text(h.payback_yr, horizon) if h.n_projects else "-",
          "note": "simple, combined cash flow" if h.n_projects else "no project"},
         {"label": "CO2 avoided", "value": f"{h.co2_t_per_yr:,.1f} t/yr", "note": f"first year, at {a.grid_co2_kg_per_kwh * (1 - a.grid_co2_decline_frac):.4g} kg/kWh "
@@ -128,11 +131,18 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                        "keeping today's motor.")
     else:
         one = h.n_projects == 1
+        # the headline payback is the combined cash flow's: the projects of later plan years can take much longer
+        slowest = float(pd.to_numeric(chosen["simple_payback_yr"], errors="coerce").replace(np.inf, np.nan).max()) \
+            if not one and "simple_payback_yr" in chosen else float("nan")
+        slowest_text = (f" on their combined cash flow (the slowest project alone in "
+                        f"{content.years_text(slowest, horizon)}: the decision table)"
+                        if np.isfinite(slowest) and np.isfinite(h.payback_yr) and slowest > h.payback_yr + 1.0 else "")
         summary = (f"{counted(h.n_projects, 'project')} on {counted(len(scope.asset_ids), 'asset')} "
                    f"{'is' if one else 'are'} recommended for "
                    f"{content.money(h.capital, cur)} of capital. {'It saves' if one else 'They save'} about "
                    f"{content.money(h.yearly_saving, cur)} a year ({h.energy_saved_kwh_per_yr / 1000:,.0f} MWh/yr), "
-                   f"{'pays' if one else 'pay'} back {content.years_text(h.payback_yr, horizon, within=True)} and "
+                   f"{'pays' if one else 'pay'} back {content.years_text(h.payback_yr, horizon, within=True)}"
+                   f"{slowest_text} and "
                    f"{'adds' if one else 'add'} {content.money(h.npv, cur)} of value at a discount rate of "
                    f"{a.discount_rate_frac:.1%}.")
     if h.n_projects and content.has_budget(result) and "in_plan" in chosen:
@@ -159,6 +169,19 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                     "NPV count them: they share demand peaks, ratchets and reactive allowances (the Bills sheet of the "
                     f"workbook). The {content.money(alone - together, cur)} a year between the two would lower the NPV by "
                     "about its present value (the register of assumptions).")
+    drawn = content.uncertainty(result, scope) if h.n_projects and scope.mode != "assets" else None
+    if drawn is not None and drawn.plan_npv is not None:
+        d = drawn.plan_npv
+        summary += (f" The NPV of {content.money(h.npv, cur)} is the base case's: the Monte Carlo of the plan's uncertain inputs ({drawn.n_draws:,} "
+                    f"draws) gives a median of {content.money(d['npv_p50'], cur)}, with 80 % of the draws between "
+                    f"{content.money(d['npv_p10'], cur)} and {content.money(d['npv_p90'], cur)} (section 6).")
+    follow_on = content.replace_now_beside_plan(result)
+    if scope.mode != "assets" and len(follow_on):
+        summary += (f" For {counted(len(follow_on), 'asset')} whose plan project keeps today's motor (a drive or a "
+                    "capacitor added), the end-of-life comparison, which prices a failure's outage, finds replacing "
+                    f"the motor now cheaper: that would need {content.money(float(follow_on['capital'].sum()), cur)} "
+                    "of capital this request does not hold (each decision record says so; the outage costs are "
+                    "placeholders where the case gives none).")
     taxes = content.taxes_text(result, cur) if scope.mode != "assets" and len(result.plan) else ""
     if taxes:
         summary += " " + taxes
@@ -182,6 +205,14 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
             cell("-", "num na") if is_keep else _payback_cell(r.simple_payback_yr, horizon,
                                                               getattr(r, "simple_payback_lost_again", False)),
             num(0.0 if is_keep else r.co2_avoided_t_per_yr, "{:,.1f}"), cell(r.reason_short, "small")]))
+    if len(decision_rows) > 1:  # the capital, saving and NPV the summary gives, as the columns' sums
+        taken = rec[rec["option_id"] != rec["keep_option_id"]]
+        decision_rows.append(row([
+            cell("Total", "id"), cell(""), cell(counted(len(taken), "project")), cell(""),
+            num(float(taken["capital"].sum())),
+            num(float((taken["bill_saving_per_yr"] + taken["saving_maintenance_per_yr"]).sum())),
+            num(float(taken["plan_npv_at_start"].sum())), cell(""),
+            num(float(taken["co2_avoided_t_per_yr"].sum()), "{:,.1f}"), cell("")], pick=True))
 
     asset_rows = []
     for asset_id in scope.asset_ids:
