@@ -1149,7 +1149,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
     else:
         interval_rows, values, is_input, states, notes = asset_loads(block, index)
     groups = _load_groups(arr_all, existing_all, interval_rows, values, is_input, states, n_t, interval_h)
-    idle = _measured_below_no_load(groups, values, is_input, interval_h) + _throttled_below_zero_flow(groups)
+    idle = (_measured_below_no_load(groups, values, is_input, interval_h) + _throttled_below_zero_flow(groups)
+            + _throttled_design_assumed(groups))
     del values
     # interval assets with long profiles: each option's curve on a grid of loads, interpolated per interval
     grids = {}
@@ -2335,6 +2336,34 @@ def _throttled_below_zero_flow(groups: list[tuple]) -> list[tuple[int, str]]:
                         f"{share:.2g} % of running hours ({below_h[k]:,.0f} h): the flow read from it is nil there, "
                         "so the speed-control options are taken at zero flow in those hours; check the design "
                         "power and the throttling"))
+    return out
+
+
+#: A throttled load whose highest running load is below this share of its rating is told that its design power
+#: is assumed: the assumed design power is then more than a fifth above any load seen (our threshold).
+DESIGN_ASSUMED_TOLD_FRAC = 0.75
+
+
+def _throttled_design_assumed(groups: list[tuple]) -> list[tuple[int, str]]:
+    """Cautions for the throttled pumps and fans whose highest running load is below :data:`DESIGN_ASSUMED_TOLD_FRAC`
+    of their rating. Their design (valve-open) power is then :data:`DESIGN_SHAFT_LOAD_FRAC` of the rating, an
+    assumption: the flow read from the throttled power, and with it a drive's saving, rest on it (a steady light
+    load reads as a deeply throttled one, where an oversized pump is as likely). (block row, caution text) per
+    asset."""
+    out = []
+    for kind, rows_, arr, _existing, load in groups:
+        throttled = np.flatnonzero(np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0))
+        if not len(throttled):
+            continue
+        rated = np.asarray(arr["rated_p_kw"], dtype=float)[throttled]
+        weight = np.broadcast_to(load.weight_h, load.running.shape)[throttled]
+        seen = np.where(load.running[throttled] & (weight > 0), load.p_ref_kw[throttled], 0.0).max(axis=1)
+        for k in np.flatnonzero((seen > 0) & (seen < DESIGN_ASSUMED_TOLD_FRAC * rated)):
+            out.append((int(rows_[throttled[k]]),
+                        f"throttled, highest load {100 * seen[k] / rated[k]:.0f} % of rating: its design (valve-open) "
+                        f"power is taken as {100 * DESIGN_SHAFT_LOAD_FRAC:.0f} % of rating, and the flow read from "
+                        "its power and a drive's saving rest on that; confirm the design point (a steady light load "
+                        "may be an oversized pump rather than a throttled one)"))
     return out
 
 

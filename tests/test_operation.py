@@ -344,6 +344,27 @@ def test_a_throttled_load_below_its_zero_flow_power_is_named(tmp_path):
     assert not operate(case).flags["flag"].str.startswith("throttled load below").any()
 
 
+def test_a_throttled_load_whose_design_power_is_assumed_is_told(tmp_path):
+    # P1 is a throttled 15 kW pump. With a steady 40 % load its design (valve-open) power is taken as 90 % of its
+    # rating (13.5 kW), a third above any load seen, and the flow read from its power is low (hand, affinity
+    # with the valve's zero-flow power at 40 % of design: q = (6 / 13.5 - 0.4) / 0.6 = 0.074): the drive's
+    # saving rests on that assumption, so the asset is told. At a highest load of 80 % (above 75 % of rating,
+    # DESIGN_ASSUMED_TOLD_FRAC) nothing is said.
+    folder = cb.write_case(tmp_path / "c")
+    rows = ["profile_id,timestamp,shaft_load_pct"] + [f"LP1,2025-01-{2 + k // 24:02d} {k % 24:02d}:00,40" for k in range(48)]
+    (folder / "profiles.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    flags = operate(case).flags
+    hit = flags[flags["flag"].str.startswith("throttled, highest load")]
+    assert list(hit["asset_id"]) == ["P1"] and hit["option_id"].iloc[0] == ""
+    assert "highest load 40 % of rating" in hit["flag"].iloc[0] and "taken as 90 % of rating" in hit["flag"].iloc[0]
+    rows = [r.replace(",40", ",80") for r in rows]
+    (folder / "profiles.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, _ = load_case(folder)
+    assert not operate(case).flags["flag"].str.startswith("throttled, highest load").any()
+
+
 def test_a_constant_torque_load_turned_faster_does_the_same_work(tmp_path):
     # A 30 kW compressor (constant torque) at 1,470 rpm: a line-start PM motor turns it at 1,500 rpm and a new IE4
     # induction motor a little faster than today. Turned faster, a constant-torque load does the same work in
