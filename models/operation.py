@@ -690,6 +690,12 @@ def _added_drive(arr, existing, load: _Load) -> _Point:
     return _induction_on_drive(arr, existing, shaft, speed_frac, load.running)
 
 
+#: Caution on a wound-field machine run at a setpoint of its own (power factor or kVAr) rather than following the site.
+WFSM_SETPOINT_TEXT = ("runs at a reactive setpoint of its own, whatever the site needs: where the site needs less, "
+                      "its meter runs leading (export of kVAr); check the utility's rules on leading power factor "
+                      "(a tariff without a leading clause prices none of it), or set it to follow the site")
+
+
 def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
     """A wound-field synchronous motor replacing today's machine; site_other = (p_kw, q_kvar) without it."""
     rated = arr["rated_p_kw"]
@@ -721,6 +727,9 @@ def _wound_field(arr, load: _Load, option: Mapping, site_other=None) -> _Point:
     if mode == "follow_site" and site_other is None:
         for i in range(len(rated)):
             flags.append((i, "no interval data: runs at its power-factor setpoint instead of following the site"))
+    if mode != "follow_site":  # a setpoint of its own: the site may be driven leading
+        for i in range(len(rated)):
+            flags.append((i, WFSM_SETPOINT_TEXT))
     for i in np.flatnonzero((shaft > OVERLOAD_FLAG_FRAC * rated[:, None] + 1e-9).any(axis=1)):
         flags.append((int(i), _OVERLOAD_TEXT))
     loss_exc = np.add(pt.field_copper_loss_kw, pt.exciter_loss_kw)

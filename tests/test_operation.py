@@ -141,7 +141,7 @@ class TestDemoFleet:
         assert not result.applies[on_drive, o].any()
 
 
-def _wfsm_case(folder, base_kw: str, base_pf: str):
+def _wfsm_case(folder, base_kw: str, base_pf: str, mode: str = "follow_site"):
     assets = [["CR1", "S1", "Crusher", "crusher", "1600", "6", "50", "6600", "unknown", "95.6", "0.84", "990", "1994", "1",
                "fixed", "LP1", "", "", "high"]]
     folder = cb.write_case(folder, assets=assets, sites=[["S1", "Quarry", base_kw, base_pf]], capacitors=[], duty=[],
@@ -149,9 +149,22 @@ def _wfsm_case(folder, base_kw: str, base_pf: str):
     header = ("option_id,technology,efficiency_class,speed_remedy,min_rated_p_kw,equipment_cost_coef,wfsm_mode,"
               "wfsm_power_factor,site_target_power_factor,life_yr\n")
     (folder / "options.csv").write_text(header + "keep,existing,,none,0,0,,,,15\n"
-                                        "wfsm,wound_field,,trim_or_pulley,500,400,follow_site,0.9,0.95,30\n", encoding="utf-8")
+                                        f"wfsm,wound_field,,trim_or_pulley,500,400,{mode},0.9,0.95,30\n", encoding="utf-8")
     case, _ = load_case(folder, mode="strict")
     return case
+
+
+def test_a_wound_field_machine_at_a_setpoint_of_its_own_is_told_it_may_drive_the_site_leading(tmp_path):
+    # at a fixed 0.9 leading power factor a 1,600 kW machine supplies kVAr whatever the site needs: on a site whose
+    # other loads run at unity power factor its meter runs leading, which only a leading clause of the tariff prices
+    from models.operation import WFSM_SETPOINT_TEXT
+
+    r = operate(_wfsm_case(tmp_path / "c", "800", "1.0", mode="power_factor"))
+    o, flags = r.option_position("wfsm"), r.flags
+    assert r.leading_kvarh[0, o] > 0  # it exports kVAr in every running interval
+    assert ((flags["option_id"] == "wfsm") & (flags["flag"] == WFSM_SETPOINT_TEXT)).sum() == 1
+    r = operate(_wfsm_case(tmp_path / "d", "800", "1.0"))  # following the site: nothing to tell
+    assert not (r.flags["flag"] == WFSM_SETPOINT_TEXT).any()
 
 
 class TestFollowSite:
