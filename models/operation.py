@@ -543,7 +543,12 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     synchronous = np.asarray(arr.get("synchronous_today", np.zeros(len(eff), dtype=bool)), dtype=bool)
     base_slip = np.where(synchronous, induction.default_rated_slip_frac(arr["rated_p_kw"]), existing.rated_slip_frac)
     slip = base_slip * scale
-    pf = np.clip(default_power_factor(arr["rated_p_kw"], arr["poles"])
+    # a new motor's power factor: the typical one of its size, or today's where that is higher (a new motor is
+    # taken as no worse than the one it replaces: a like-for-like change moves no kVAr it did not earn)
+    typical = default_power_factor(arr["rated_p_kw"], arr["poles"])
+    today = np.where(arr["synchronous_today"], typical, np.nan_to_num(arr["pf"], nan=0.0)) \
+        if "synchronous_today" in arr else np.nan_to_num(arr["pf"], nan=0.0)
+    pf = np.clip(np.maximum(typical, today)
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])
     # the coupling keeps the load >= 0 (checked once on entry), so the speed needs no sign test per pass
