@@ -169,6 +169,14 @@ class TestWorkbookOpens:
         assert "Bill saving [EUR/yr]" in headers and "NPV [EUR]" in headers and "Abatement cost [EUR/t]" in headers
 
 
+def test_plan_sheet_says_how_far_the_exact_plan_is_proven(plan_pack, small):
+    # the workbook carries the plan's proof as the report and the terminal say it (the run's own status message)
+    _, result = small
+    ws = load_workbook(plan_pack)["Plan"]
+    cells = {ws.cell(r, 1).value: ws.cell(r, 2).value for r in range(1, ws.max_row + 1)}
+    assert cells["Exact plan's proof"].startswith(result.plan_status["message"] + ".")
+
+
 def test_plan_sheet_money_headers_name_the_currency(plan_pack):
     ws = load_workbook(plan_pack)["Plan"]
     headers = [r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "Plan year"]

@@ -885,7 +885,8 @@ def plan_npv_text(u: Uncertainty, currency: str) -> str:
     s = u.plan_npv
     whose = "the plan's NPV at its start" if u.whole_plan else "the whole fleet plan's NPV at its start"
     return (f"Over {u.n_draws:,} Monte Carlo draws ({DRAWN_FACTORS_TEXT}), {whose} has P10 {money(s['npv_p10'], currency)}, P50 {money(s['npv_p50'], currency)} and "
-            f"P90 {money(s['npv_p90'], currency)}; P(plan NPV > 0) = {100 * s['prob_npv_positive_frac']:.0f} %.")
+            f"P90 {money(s['npv_p90'], currency)}; P(plan NPV > 0) = {chance_text(s['prob_npv_positive_frac'])}. "
+            "(P10 is the value 10 % of the draws fall below, P50 the median, P90 the value 90 % fall below.)")
 
 
 def monte_carlo_text(u: Uncertainty) -> str:
@@ -1215,6 +1216,23 @@ def money(value: float, currency: str) -> str:
     """Format an amount as every amount of the pack and the dashboard: ``EUR 6,081,596``
     (:func:`models.wording.money_text`)."""
     return money_text(value, currency)
+
+
+def chance_text(frac: float) -> str:
+    """A probability in whole per cent that never rounds a near-certainty to certainty (or a slim chance to nil).
+
+    Examples
+    --------
+    >>> chance_text(0.996), chance_text(1.0), chance_text(0.004), chance_text(0.0), chance_text(0.874)
+    ('> 99 %', '100 %', '< 1 %', '0 %', '87 %')
+    """
+    if not np.isfinite(frac):
+        return "-"
+    if 0.99 < frac < 1.0:
+        return "> 99 %"
+    if 0.0 < frac < 0.01:
+        return "< 1 %"
+    return f"{100 * frac:.0f} %"
 
 
 def years_text(value: float, horizon_yr: int, within: bool = False, lost_again: bool = False) -> str:

@@ -137,7 +137,7 @@ def plan_npv_draws(draws: np.ndarray, summary: dict[str, float], currency: str) 
     fig.update_xaxes(title_text=f"plan NPV at its start [{esc(currency)}]", range=[lo - pad, hi + pad])
     fig.update_yaxes(title_text="draws")
     title = (f"Monte Carlo: the plan's NPV over {draws.size:,} draws, "
-             f"P(NPV > 0) = {100 * summary['prob_npv_positive_frac']:.0f} %")
+             f"P(NPV > 0) = {content.chance_text(summary['prob_npv_positive_frac'])}")
     return _layout(fig, title, height=340)
 
 

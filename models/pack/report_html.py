@@ -265,7 +265,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     mc_rows = [row([cell(project_text(*str(r.project_id).rsplit("/", 1)) if "/" in str(r.project_id) else r.project_id, "id")]
                    + ([cell(int(r.start_yr), "num")] if unc.of_plan else [])
                    + [num(r.npv_p10), num(r.npv_p50), num(r.npv_p90),
-                      num(100 * r.prob_npv_positive_frac, "{:.0f}", " %"), num(r.payback_p10_yr, "{:.1f}"),
+                      cell(content.chance_text(float(r.prob_npv_positive_frac)), "num"), num(r.payback_p10_yr, "{:.1f}"),
                       num(r.payback_p50_yr, "{:.1f}"), num(r.payback_p90_yr, "{:.1f}")]) for r in mc.itertuples(index=False)]
     mc_headers = (["Project"] + (["Plan year"] if unc.of_plan else [])
                   + [f"NPV P10 [{cur}]", f"NPV P50 [{cur}]", f"NPV P90 [{cur}]", "P(NPV > 0)", "Payback P10 [yr]",
@@ -299,11 +299,15 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     comp = result.plan_comparison
     withdrawn = withdrawn_text(result.plan_status, labels=labels)
     plan_note = (f"Exact plan NPV {content.money(float(comp.get('npv_exact', np.nan)), cur)} vs rank-order "
-                 f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking by profitability index leaves "
+                 f"{content.money(float(comp.get('npv_greedy', np.nan)), cur)}: ranking the projects by NPV per unit of "
+                 "capital (profitability index) leaves "
                  f"{content.money(float(comp.get('shortfall', np.nan)), cur)} on the table. {content.PLAN_SPEND_TEXT} "
                  f"The fleet plan covers the whole case; "
                  f"this pack covers {counted(len(scope.asset_ids), 'asset')}."
                  + (f" Exact plan: {result.plan_status['message']}." if (result.plan_status or {}).get("message") else "")
+                 + (" (The reactive check withdraws from the search the reactive projects that add almost nothing "
+                    "beside the rest of the plan: a capacitor where another project already corrects the site.)"
+                    if "reactive check" in str((result.plan_status or {}).get("message", "")) else "")
                  + (" " + withdrawn if withdrawn else ""))
 
     register = content.risk_register(case, result, scope)

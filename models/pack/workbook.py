@@ -33,6 +33,7 @@ from models.end_of_life import STRATEGY_NAMES, failure_law_caution
 from models.exports import FORMULA_STARTS, plan_with_savings
 from models.pack import content
 from models.plan import option_labels, plan_capital_spent
+from models.reactive_plan import withdrawn_text
 from models.wording import counted, line_item_text
 
 #: Sheet names, in workbook order.
@@ -850,6 +851,12 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         label, number_format = labels.get(str(key), (str(key), f.money))
         put_text(ws, row + 1 + k, 1, label)
         put(ws, row + 1 + k, 2, float(value), number_format)
+    status = result.plan_status or {}
+    if status.get("message"):  # how far the exact plan is proven, as the report and the terminal say it
+        row += 2 + len(result.plan_comparison)
+        put_text(ws, row, 1, "Exact plan's proof").font = _BOLD
+        withdrawn = withdrawn_text(status, labels=option_labels(result.results))
+        put_text(ws, row, 2, f"{status['message']}." + (f" {withdrawn}" if withdrawn else ""))
     ws.freeze_panes = "A5"  # (the title, the note, the plan's name and its header row)
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
 
