@@ -163,7 +163,8 @@ class TestReportContents:
         html = text(asset_pack[0] / REPORT_NAME)
         for phrase in ("Planning estimates only", "qualified persons", "local electrical codes", "the utility",
                        "generate voltage at their terminals whenever the shaft turns", "Capacitors store charge",
-                       "never connect capacitors on a drive output".capitalize()):
+                       "never connect capacitors on a drive output".capitalize(), "torsional pulsation", "NPSH margin",
+                       "detuning reactors", "hazardous (Ex) area"):
             assert phrase in html, phrase
 
     def test_savings_say_taxes_are_included_and_the_cash_flow_matches_the_headline(self, asset_pack):

@@ -59,6 +59,19 @@ CAUTIONS: tuple[str, ...] = (
     "inverter-duty motors and bearing-current mitigation.",
 )
 
+#: Cautions of the whole request, in the report's cautions beside :data:`CAUTIONS` (the decision records name
+#: those of their own option).
+REQUEST_CAUTIONS: tuple[str, ...] = (
+    "A wound-field synchronous motor's start (its damper winding's heating, the torsional pulsation through the "
+    "coupling) needs the maker's study; a line-start PM motor's magnets can be weakened by a fault or a start "
+    "under a deep voltage dip: confirm their withstand with the supplier.",
+    "A pump turned faster needs its NPSH margin at the new speed; a fan, its pressure and structural limits.",
+    "Drives and capacitor banks on one network can resonate at a harmonic: a harmonic study decides whether the "
+    "banks need detuning reactors.",
+    "A motor in a hazardous (Ex) area must be replaced by one certified for that area, its drive and protection "
+    "as well.",
+)
+
 #: Friendly names of the cash-flow components (docs/finance.md explains each one).
 COMPONENT_LABELS: dict[str, str] = {
     "capital_equipment": "Capital: equipment, remedy and capacitors",

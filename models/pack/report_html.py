@@ -423,7 +423,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "emission_headers": ["Project", "Energy saved kWh/yr", "CO2 avoided t/yr (first year)",
                              f"Abatement cost {cur}/t (-NPV per discounted t over the horizon)"],
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
-        "cautions": list(content.CAUTIONS),
+        "cautions": list(content.CAUTIONS) + list(content.REQUEST_CAUTIONS),
         "appendix": appendix,
         "appendix_headers": ["Option", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
                              "Simple payback [yr]", "CO2 [t/yr]", "Flags"],
