@@ -1054,6 +1054,10 @@ def parse_toml_text(text: str, source: str, problems: list[Problem] | None = Non
     problems = list(problems or [])
     try:
         return tomllib.loads(text), problems
+    except RecursionError:  # (arrays or tables nested thousands deep: the parser's own recursion gives up)
+        return {}, problems + [error(source, None, None, None, "TOML nested too deeply to read (arrays or tables "
+                                     "inside each other hundreds of levels deep)", "no setting of a case nests more "
+                                     "than two levels: remove the extra brackets")]
     except tomllib.TOMLDecodeError as exc:
         message = getattr(exc, "msg", None) or str(exc)
         line = getattr(exc, "lineno", None)
@@ -1299,7 +1303,7 @@ def _read_sheets(book, formula_book, path: Path, case: RawCase) -> None:
             if isinstance(value, str) and value.strip().startswith("["):
                 try:
                     values[key] = tomllib.loads(f"v = {value}")["v"]
-                except tomllib.TOMLDecodeError:
+                except (tomllib.TOMLDecodeError, RecursionError):
                     pass
         case.extra["finance"] = values
     if "scenarios" in sheets:
@@ -1502,7 +1506,7 @@ def _scenarios_sheet(sheet, formula_sheet, source: str) -> tuple[list[dict], lis
             if isinstance(value, str) and value.strip().startswith("["):
                 try:
                     value = tomllib.loads(f"v = {value}")["v"]
-                except tomllib.TOMLDecodeError:
+                except (tomllib.TOMLDecodeError, RecursionError):
                     pass
             entry[key] = value
         out.append(entry)

@@ -633,3 +633,16 @@ def test_a_cell_too_long_to_read_is_one_error_not_also_an_empty_register(tmp_pat
     rules = [p.rule for p in problems if p.severity == "error" and p.file == "assets.csv"]
     assert case is None and any("longer than" in r for r in rules), rules
     assert not any("has no rows" in r for r in rules), rules
+
+
+def test_toml_nested_thousands_deep_is_a_problem_not_a_crash(tmp_path):
+    # 5,000 arrays inside each other exhaust the TOML parser's recursion: one error naming the file, no traceback
+    import casebuilder as cb
+    from models.case import load_case
+
+    folder = cb.write_case(tmp_path / "c")
+    (folder / "finance.toml").write_text("[finance]\ndiscount_rate_frac = " + "[" * 5000 + "]" * 5000 + "\n",
+                                         encoding="utf-8")
+    case, problems = load_case(folder)
+    said = [p for p in problems if p.severity == "error" and "nested too deeply" in p.rule]
+    assert case is None and len(said) == 1 and said[0].file == "finance.toml", [str(p) for p in problems]
