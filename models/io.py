@@ -1942,6 +1942,9 @@ def write_blank_case(target: str | Path, workbook: bool = False) -> list[Path]:
         When the target exists and is not an empty folder (nothing is overwritten).
     """
     target = Path(target)
+    if target.is_symlink() and not target.exists():  # a link to nothing: a folder cannot be made there
+        raise ValueError(f"{target} is a link to {os.readlink(target)}, which does not exist; give a new folder, "
+                         "or the folder the link should point to")
     if workbook or target.suffix.lower() == ".xlsx":
         book_path = target if target.suffix.lower() == ".xlsx" else target / "case.xlsx"
         if book_path.exists():

@@ -1160,3 +1160,13 @@ def test_report_takes_the_seed_a_run_took(tmp_path, capsys, monkeypatch):
     assert seen == [7]
     assert main(["report", str(folder), "--out", str(tmp_path / "pack2"), "--seed", "-1"]) == 2
     assert "--seed must be a whole number >= 0" in capsys.readouterr().err
+
+
+def test_new_on_a_link_to_nothing_says_so(tmp_path, capsys):
+    # a link whose target is gone: not "File exists" (the system's word for it) but what the link points to
+    link = tmp_path / "case"
+    link.symlink_to(tmp_path / "gone")
+    assert main(["new", str(link)]) == 1
+    err = capsys.readouterr().err
+    assert f"is a link to {tmp_path / 'gone'}, which does not exist" in err and "File exists" not in err
+    assert link.is_symlink() and not (tmp_path / "gone").exists()  # nothing made, the link left as it was
