@@ -171,8 +171,12 @@ def _out_problem(command: str, case_path: str, out: str) -> str | None:
 
     writable = target if target.is_dir() else parent
     if writable is not None and not os.access(writable, os.W_OK | os.X_OK):
-        return (f"drivecase {command}: cannot write into {writable} (permission denied); give a folder you can "
-                "write to")
+        try:  # access() says no on a read-only file system too: name that, it is not the folder's permissions
+            read_only = bool(os.statvfs(writable).f_flag & os.ST_RDONLY)
+        except (OSError, AttributeError):
+            read_only = False
+        reason = "a read-only file system" if read_only else "permission denied"
+        return (f"drivecase {command}: cannot write into {writable} ({reason}); give a folder you can write to")
     if writable is not None:
         # what the access bits do not tell (a read-only file system, a system folder such as /proc): a folder
         # made and removed at once, before the analysis rather than after it

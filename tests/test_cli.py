@@ -1170,3 +1170,17 @@ def test_new_on_a_link_to_nothing_says_so(tmp_path, capsys):
     err = capsys.readouterr().err
     assert f"is a link to {tmp_path / 'gone'}, which does not exist" in err and "File exists" not in err
     assert link.is_symlink() and not (tmp_path / "gone").exists()  # nothing made, the link left as it was
+
+
+def test_an_output_folder_on_a_read_only_file_system_is_named_so(tmp_path, capsys, monkeypatch):
+    # access() refuses writing on a read-only mount as it does for a folder's permissions: the message names the
+    # mount (a read-only medium is mended otherwise than a permission), before any work
+    import types
+
+    from drivecase import cli
+
+    monkeypatch.setattr(cli.os, "access", lambda path, mode: False)
+    monkeypatch.setattr(cli.os, "statvfs", lambda path: types.SimpleNamespace(f_flag=os.ST_RDONLY))
+    assert main(["run", str(DEMO), "--out", str(tmp_path / "out"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "(a read-only file system)" in err and "permission denied" not in err
