@@ -2326,6 +2326,15 @@ def _measured_below_no_load(groups: list[tuple], values: np.ndarray, is_input, i
     return out
 
 
+def _throttled_groups(groups: list[tuple]):
+    """Each group's throttled centrifugal loads: (block rows, their positions in the group, the group's per-asset
+    arrays and load, their hours per column (n, m))."""
+    for _kind, rows_, arr, _existing, load in groups:
+        throttled = np.flatnonzero(np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0))
+        if len(throttled):
+            yield rows_, throttled, arr, load, np.broadcast_to(load.weight_h, load.running.shape)[throttled]
+
+
 def _throttled_below_zero_flow(groups: list[tuple]) -> list[tuple[int, str]]:
     """Cautions for the throttled pumps and fans whose shaft load falls below their zero-flow power
     (:data:`models.loads.DEFAULT_THROTTLED_ZERO_FLOW_POWER_FRAC` of the design power) in some of their running
@@ -2333,14 +2342,10 @@ def _throttled_below_zero_flow(groups: list[tuple]) -> list[tuple[int, str]]:
     flow whatever the load was. (block row, caution text) per asset."""
     out = []
     zero_flow = loads.DEFAULT_THROTTLED_ZERO_FLOW_POWER_FRAC
-    for kind, rows_, arr, _existing, load in groups:
-        throttled = np.flatnonzero(np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0))
-        if not len(throttled):
-            continue
+    for rows_, throttled, _arr, load, weight in _throttled_groups(groups):
         below = (load.p_ref_kw[throttled] < zero_flow * load.p_design_kw[throttled]) & load.running[throttled]
         if not below.any():
             continue
-        weight = np.broadcast_to(load.weight_h, load.running.shape)[throttled]
         below_h = np.where(below, weight, 0.0).sum(axis=1)
         running_h = np.where(load.running[throttled], weight, 0.0).sum(axis=1)
         for k in np.flatnonzero(below_h > 0):
@@ -2365,12 +2370,8 @@ def _throttled_design_assumed(groups: list[tuple]) -> list[tuple[int, str]]:
     load reads as a deeply throttled one, where an oversized pump is as likely). (block row, caution text) per
     asset."""
     out = []
-    for kind, rows_, arr, _existing, load in groups:
-        throttled = np.flatnonzero(np.asarray(arr["throttled"], dtype=bool) & (np.asarray(arr["exponent"]) == 3.0))
-        if not len(throttled):
-            continue
+    for rows_, throttled, arr, load, weight in _throttled_groups(groups):
         rated = np.asarray(arr["rated_p_kw"], dtype=float)[throttled]
-        weight = np.broadcast_to(load.weight_h, load.running.shape)[throttled]
         seen = np.where(load.running[throttled] & (weight > 0), load.p_ref_kw[throttled], 0.0).max(axis=1)
         for k in np.flatnonzero((seen > 0) & (seen < DESIGN_ASSUMED_TOLD_FRAC * rated)):
             out.append((int(rows_[throttled[k]]),
