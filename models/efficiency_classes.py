@@ -161,7 +161,7 @@ def min_efficiency_pct(rated_p_kw, poles, f_hz, efficiency_class) -> np.ndarray:
                 q = np.clip(p, SMALLEST_60HZ_TABLE_KW, None)
                 ratio = (100 - _table_60hz(q, six, name)) / (100 - _formula_50hz(q, six, name))
                 value = np.where(np.isnan(value) & (n_poles == 8), _from_loss_ratio(level(50.0, name), ratio), value)
-                # below 0.75 kW, where the federal table starts: the 50 Hz level at the rating with its losses
+                # below 1 hp (0.75 kW), where the federal table starts: the 50 Hz level at the rating with its losses
                 # scaled by the ratio of 60 Hz to 50 Hz losses at 0.75 kW, the same poles (derived; 8-pole rows
                 # are scaled at their own rating above)
                 small = (p < ONE_HP_KW - 1e-9) & (n_poles != 8)

@@ -114,23 +114,17 @@ def _write_temp(path: Path, data: bytes) -> str:
 def atomic_write_bytes(path: Path, data: bytes) -> None:
     """Write bytes to ``path`` through a temporary file in the same folder and an atomic rename."""
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    temp = _write_temp(path, data)
-    try:
-        os.replace(temp, path)
-    except BaseException:
-        if os.path.exists(temp):
-            os.unlink(temp)
-        raise
+    write_file_set(path.parent, [(path.name, data)])
 
 
 def write_file_set(out_dir: str | Path, contents) -> list[Path]:
     """Write a set of files into ``out_dir`` (created if needed) all or none; return their paths.
 
-    ``contents`` yields (file name, bytes) pairs, a name relative to ``out_dir``. Each file is first written whole to a temporary file beside
-    its place; only once every one is on disk are they renamed into place, one rename each (which needs no
-    space). A failure while writing (a full disk, a removed folder) or an interruption leaves the folder's
-    earlier files as they were and no temporary file behind, so a folder never holds a mix of two runs' files.
+    ``contents`` yields (file name, bytes) pairs, a name relative to ``out_dir``. Each file is first written
+    whole to a temporary file beside its place; only once every one is on disk are they renamed into place, one
+    rename each (which needs no space). A failure while writing (a full disk, a removed folder) or an
+    interruption leaves the folder's earlier files as they were and no temporary file behind, so a folder never
+    holds a mix of two runs' files.
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -231,12 +225,6 @@ def _csv_bytes_by_columns(frame: pd.DataFrame) -> bytes | None:
                           pa.scalar("\n", type=pa.large_string()))
     header = (",".join(frame.columns) + "\n").encode("utf-8")
     return header + body[0].as_buffer().to_pybytes() + b"\n"
-
-
-def write_csv(path: Path, frame: pd.DataFrame) -> Path:
-    """Write one table atomically as CSV."""
-    atomic_write_bytes(Path(path), csv_bytes(frame))
-    return Path(path)
 
 
 #: Columns of the files whose table can be empty (no risk asked for, no rewind option, nothing to plan): an

@@ -546,8 +546,7 @@ def _new_induction(arr, existing, load: _Load, option: Mapping) -> _Point:
     # a new motor's power factor: the typical one of its size, or today's where that is higher (a new motor is
     # taken as no worse than the one it replaces: a like-for-like change moves no kVAr it did not earn)
     typical = default_power_factor(arr["rated_p_kw"], arr["poles"])
-    today = np.where(arr["synchronous_today"], typical, np.nan_to_num(arr["pf"], nan=0.0)) \
-        if "synchronous_today" in arr else np.nan_to_num(arr["pf"], nan=0.0)
+    today = np.where(synchronous, typical, np.nan_to_num(arr["pf"], nan=0.0))
     pf = np.clip(np.maximum(typical, today)
                  + (IE4_POWER_FACTOR_GAIN if option["efficiency_class"] in ("IE4", "IE5") else 0.0), 0.5, 0.97)
     new = induction.calibrate_induction(arr["rated_p_kw"], eff, pf, arr["sync_rpm"] * (1 - slip), arr["sync_rpm"])

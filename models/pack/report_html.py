@@ -157,8 +157,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         # what the plan spends over the study period beyond its projects' first purchases: items bought again
         again = float(by_year.sum()) + float(later_capital) - float(result.plan["capital"].sum())
         if again > 0.005:
-            summary += (f" Over the study period the plan also spends {content.money(again, cur)} on buying items again "
-                        "at the end of their lives (in the plan-by-year table's 'later' row, after the budgeted years).")
+            summary += (f" Over the study period the plan also spends {content.money(again, cur)} on buying items "
+                        "again at the end of their lives (in the plan-by-year table's 'later' row, after the budgeted "
+                        "years).")
     if keep_count:
         summary += f" For {counted(keep_count, 'asset')} no option beats keeping today's motor."
     alone, together = content.plan_bill_savings_apart_and_together(result)
@@ -167,13 +168,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                     f"than the {content.money(alone, cur)} its projects save on the bills counted one by one (a "
                     "reactive project at the share of its saving the plan credits it), as the headline saving and the "
                     "NPV count them: they share demand peaks, ratchets and reactive allowances (the Bills sheet of the "
-                    f"workbook). The {content.money(alone - together, cur)} a year between the two would lower the NPV by "
-                    "about its present value (the register of assumptions).")
+                    f"workbook). The {content.money(alone - together, cur)} a year between the two would lower the "
+                    "NPV by about its present value (the register of assumptions).")
     drawn = content.uncertainty(result, scope) if h.n_projects and scope.mode != "assets" else None
     if drawn is not None and drawn.plan_npv is not None:
         d = drawn.plan_npv
-        summary += (f" The NPV of {content.money(h.npv, cur)} is the base case's: the Monte Carlo of the plan's uncertain inputs ({drawn.n_draws:,} "
-                    f"draws) gives a median of {content.money(d['npv_p50'], cur)}, with 80 % of the draws between "
+        summary += (f" The NPV of {content.money(h.npv, cur)} is the base case's: the Monte Carlo of the plan's "
+                    f"uncertain inputs ({drawn.n_draws:,} draws) gives a median of {content.money(d['npv_p50'], cur)}, with 80 % of the draws between "
                     f"{content.money(d['npv_p10'], cur)} and {content.money(d['npv_p90'], cur)} (section 6).")
     follow_on = content.replace_now_beside_plan(result)
     if scope.mode != "assets" and len(follow_on):
