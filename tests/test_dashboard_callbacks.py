@@ -691,13 +691,9 @@ def test_an_address_naming_an_unknown_site_is_told_so(engine):
 
 
 def test_the_fleet_table_keeps_its_sort_for_the_tab(engine):
-    # the grid reports its column state on every sort; the columns sorted are kept, and put back on the columns
-    # when the table is drawn again (after Back from an asset); an unknown column is passed over
-    state = [{"colId": "rating", "sort": "asc", "sortIndex": 0, "width": 74}, {"colId": "npv", "sort": None},
-             {"colId": "capital", "sort": "desc", "sortIndex": 1}]
-    kept = fleet.keep_sort(state)
-    assert kept == [{"colId": "rating", "sort": "asc", "sortIndex": 0}, {"colId": "capital", "sort": "desc", "sortIndex": 1}]
-    assert fleet.keep_sort(None) is no_update
+    # the browser keeps the columns sorted (fleet.KEEP_SORT_JS, tested in the browser suite); they are put back on
+    # the columns when the table is drawn again (after Back from an asset); an unknown column is passed over
+    kept = [{"colId": "rating", "sort": "asc", "sortIndex": 0}, {"colId": "capital", "sort": "desc", "sortIndex": 1}]
     columns = fleet.sorted_columns(fleet.table_columns("EUR", "kW"), kept + [{"colId": "gone", "sort": "asc"}])
     by_field = {c["field"]: c for c in columns}
     assert (by_field["rating"]["sort"], by_field["rating"]["sortIndex"]) == ("asc", 0)

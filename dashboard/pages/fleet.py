@@ -6,7 +6,7 @@ from __future__ import annotations
 from urllib.parse import quote
 
 import dash
-from dash import Input, Output, State, callback, dcc, html, no_update
+from dash import Input, Output, State, callback, clientside_callback, dcc, html, no_update
 from dash.exceptions import PreventUpdate
 
 from dashboard import components as ui
@@ -141,19 +141,26 @@ def update(session, edits, sites, applications, site_choices=(), sort=None):
 
 
 def sorted_columns(columns: list[dict], sort) -> list[dict]:
-    """The table's columns with the tab's kept sort (:func:`keep_sort`) on them; unknown columns are passed over."""
+    """The table's columns with the tab's kept sort (:data:`KEEP_SORT_JS`) on them; unknown columns are passed over."""
     kept = {str(s.get("colId")): s for s in sort or () if isinstance(s, dict) and s.get("sort") in ("asc", "desc")}
     return [column | {"sort": kept[column["field"]]["sort"], "sortIndex": kept[column["field"]].get("sortIndex")}
             if column["field"] in kept else column for column in columns]
 
 
-@callback(Output(SORT, "data"), Input(TABLE, "columnState"), prevent_initial_call=True)
-def keep_sort(state):
-    """Keep the columns the table is sorted by (the grid reports its column state on every sort)."""
-    if not isinstance(state, list):
-        return no_update
-    return [{"colId": s.get("colId"), "sort": s.get("sort"), "sortIndex": s.get("sortIndex")}
-            for s in state if isinstance(s, dict) and s.get("sort") in ("asc", "desc")]
+#: Keeps the columns the table is sorted by, in the browser (the grid reports its column state on every sort). In
+#: the browser, not on the server: a user who sorts and at once opens an asset would otherwise leave the page
+#: before the server's answer is stored, and Back would show the table unsorted. A grid without its rows yet
+#: (the page just drawn again) reports its bare columns, not a sort of the user's: passed over, so the kept
+#: sort is put back on the columns when the rows come (:func:`update`).
+KEEP_SORT_JS = """function (state, rows) {
+    if (!Array.isArray(state) || rows === null || rows === undefined) {
+        return window.dash_clientside.no_update;
+    }
+    return state.filter(function (s) { return s && (s.sort === "asc" || s.sort === "desc"); })
+                .map(function (s) { return {colId: s.colId, sort: s.sort, sortIndex: s.sortIndex}; });
+}"""
+clientside_callback(KEEP_SORT_JS, Output(SORT, "data"), Input(TABLE, "columnState"), State(TABLE, "rowData"),
+                    prevent_initial_call=True)
 
 
 @callback(Output(SITE_BOX, "children"), Output(APPLICATION_BOX, "children"), Input(ui.SESSION_STORE, "data"))

@@ -6,6 +6,7 @@ Back button: the filters are as they left them, and so is the table they narrow.
 
 from __future__ import annotations
 
+import json
 import re
 
 import pytest
@@ -69,6 +70,21 @@ def test_the_sort_holds_when_the_user_opens_an_asset_and_comes_back(tab, artifac
     page = tab.goto("/", PAGES[0][1])
     page.wait_for_load_state("networkidle")
     page.locator("#fleet-count").filter(has_text="82 of 82 assets").wait_for()
+    # a server's answer that would store the sort never arrives (as when the user opens an asset before it does):
+    # the sort must be kept in the browser itself
+    sent = []
+
+    def no_server_sort(route):
+        body = route.request.post_data or ""
+        output = json.loads(body).get("output", "") if body.startswith("{") else ""
+        if "fleet-sort" in output:
+            sent.append(output)
+            route.abort()
+        else:
+            route.continue_()
+
+    callbacks = re.compile(r"/_dash-update-component(\?|$)")  # (the address carries a query)
+    page.route(callbacks, no_server_sort)
     header = page.locator("#fleet-table .ag-header-cell[col-id='rating'] .ag-header-cell-label")
     header.click()
     rating = page.locator("#fleet-table .ag-center-cols-container .ag-row[row-index='0'] [col-id='rating']")
@@ -79,4 +95,6 @@ def test_the_sort_holds_when_the_user_opens_an_asset_and_comes_back(tab, artifac
     page.screenshot(path=artifacts / "fleet_sort_after_back.png")
     expect(rating).to_have_text("0.75", timeout=10_000)
     expect(first).to_have_text(asset_id)
+    assert sent == []  # (the browser kept it: nothing asked of the server)
+    page.unroute(callbacks)
     assert tab.errors == [], f"console errors: {tab.errors}"
