@@ -991,7 +991,11 @@ def test_the_summary_tells_an_approver_the_taxes_the_repeat_purchases_and_the_fo
 
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, case.finance, with_risk=False)
-    text = report_context(case, result, select_scope(case, result), [])["summary_text"]
+    context = report_context(case, result, select_scope(case, result), [])
+    text = context["summary_text"]
+    # the year whose prices the yearly saving is at: the demo's load data and bills are of 2025
+    saving = next(c for c in context["cards"] if c["label"] == "Yearly saving")
+    assert "2025 prices (the analysis year's)" in saving["note"]
     # taxes: the plan's fall of each tax line of the bills (baseline less plan), summed over sites and months
     bills = result.bills
     vat = bills[bills["line_item"] == "tax:VAT"].groupby("scenario")["amount"].sum()

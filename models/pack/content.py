@@ -688,9 +688,8 @@ def basis_rows(case, result) -> list[tuple[str, str, str]]:
         rows.append(("Changes in service from", f"the start of {in_service_words(case, result)}",
                      "a demand ratchet still reads the months before a change: the first years' savings depend on "
                      "the month (case setting in_service_month)"))
-    op = getattr(getattr(result, "physics", None), "operation", None)
-    if op is not None and len(op.index):
-        year = int(op.index[len(op.index) // 2].year)
+    year = analysis_year(result)
+    if year is not None:
         rows.append(("Analysis year", str(year), "the year of the load data and of the bills priced; plan year 0 "
                                                  "starts at the purchase date"))
     tariffs = getattr(case, "tariffs", {}) or {}
@@ -1231,6 +1230,19 @@ def money(value: float, currency: str) -> str:
     """Format an amount as every amount of the pack and the dashboard: ``EUR 6,081,596``
     (:func:`models.wording.money_text`)."""
     return money_text(value, currency)
+
+
+def analysis_year(result) -> int | None:
+    """The analysis year: the year of the load data and of the bills priced (None where the run holds no machines)."""
+    op = getattr(getattr(result, "physics", None), "operation", None)
+    return int(op.index[len(op.index) // 2].year) if op is not None and len(op.index) else None
+
+
+def prices_year_words(result) -> str:
+    """The prices the yearly savings are at, in words: those of the analysis year ("base-year prices" where the
+    run holds no machines)."""
+    year = analysis_year(result)
+    return "base-year prices" if year is None else f"{year} prices (the analysis year's)"
 
 
 def chance_text(frac: float) -> str:

@@ -102,7 +102,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
 
     cards = [
         {"label": "Capital", "value": content.money(h.capital, cur), "note": counted(h.n_projects, "project")},
-        {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur), "note": "bill and maintenance, base-year prices, as the plan counts them"},
+        {"label": "Yearly saving", "value": content.money(h.yearly_saving, cur),
+         "note": f"bill and maintenance, {content.prices_year_words(result)}, as the plan counts them"},
         {"label": "NPV", "value": content.money(h.npv, cur),
          "note": (f"at {a.discount_rate_frac:.1%}, each project over {horizon} yr from its own start, at the plan start"
                   if len(result.plan) and int(result.plan["start_yr"].max()) > 0 and scope.mode != "assets"
