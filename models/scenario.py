@@ -407,7 +407,8 @@ def _add_stage_times(timer: dict, stage_times: list[dict], wall_s: float, n_thre
 # ---------------------------------------------------------------------------------------------------
 # Projects
 # ---------------------------------------------------------------------------------------------------
-def _analysis_year(op: OperatingResult) -> int:
+def analysis_year(op: OperatingResult) -> int:
+    """The analysis year of a run's machines: the year of its load data and of the bills priced."""
     return int(op.index[len(op.index) // 2].year)
 
 
@@ -501,7 +502,7 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     n_a, n_o = len(op.asset_ids), len(op.option_ids)
     d = float(assumptions.discount_rate_frac)
     horizon = int(assumptions.horizon_yr)
-    year = _analysis_year(op)
+    year = analysis_year(op)
     rated = a["rated_p_kw"].to_numpy(dtype=float)
 
     sav = _at_price_levels(sav, float(assumptions.energy_price_factor), float(assumptions.capital_cost_factor),

@@ -1234,8 +1234,10 @@ def money(value: float, currency: str) -> str:
 
 def analysis_year(result) -> int | None:
     """The analysis year: the year of the load data and of the bills priced (None where the run holds no machines)."""
+    from models.scenario import analysis_year as year_of
+
     op = getattr(getattr(result, "physics", None), "operation", None)
-    return int(op.index[len(op.index) // 2].year) if op is not None and len(op.index) else None
+    return year_of(op) if op is not None and len(op.index) else None
 
 
 def prices_year_words(result) -> str:

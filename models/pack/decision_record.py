@@ -92,9 +92,10 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     keep_id = content.keep_option_ids(result)[asset_id]
     rec = scope.recommended.set_index("asset_id").loc[asset_id]
     failed = bool(res["failed"].iloc[0]) if "failed" in res and len(res) else False
-    year = int(result.physics.operation.index[len(result.physics.operation.index) // 2].year)
+    year = content.analysis_year(result)
     installed = x["year_installed"]
-    age = year - int(installed) if isinstance(installed, (int, float)) and not math.isnan(installed) else None
+    age = (year - int(installed) if year is not None and isinstance(installed, (int, float))
+           and not math.isnan(installed) else None)
     defaulted = content.scope_defaults(case, (asset_id,))
     filled = set(defaulted["column"])
     plate = [

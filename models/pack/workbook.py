@@ -286,7 +286,7 @@ def _assumptions(ws: Worksheet, case, result, f: _Formats) -> dict[str, str]:
                 ("purchase date (rules read on)", (getattr(s, "purchase_date", "") or "")
                  + ("" if getattr(s, "purchase_date_declared", True) else " (the day of the run: the case gives none)")),
                 ("invented demo data", "yes" if s.invented else "no"),
-                ("analysis year", int(op.index[len(op.index) // 2].year)), ("interval [h]", float(op.interval_h)),
+                ("analysis year", content.analysis_year(result)), ("interval [h]", float(op.interval_h)),
                 ("assets in the case", len(case.assets)), ("options in the catalogue", len(case.options))]
     settings += [(item[:1].lower() + item[1:], f"{value} ({note})") for item, value, note in content.basis_rows(case, result)
                  if item.startswith(("Tariff of site", "Today's fleet against the bills", "Changes in service from"))]
