@@ -34,7 +34,8 @@ LCC_COLOURS = {"capital": "#4e6a86", "residual": "#a9bfcf", "running": "#c27a3a"
 #: Colours of bill line-item categories.
 BILL_COLOURS = {"energy": "#4e6a86", "demand": "#c27a3a", "ratchet": "#e0a96d", "excess": "#a65d1f",
                 "coincident": "#7d4f2a",
-                "pf adjustment": "#b35b52", "reactive": "#8b6aa6", "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
+                "pf adjustment": "#b35b52", "pf energy": "#d9928a", "reactive demand": "#5e4a7a", "reactive": "#8b6aa6",
+                "leading": "#c5a3d9", "fixed": "#9aa4ae", "tax": "#6a8d4f"}
 
 
 def _light_template() -> go.layout.Template:

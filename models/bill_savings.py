@@ -26,7 +26,7 @@ COMPONENT_CATEGORIES: dict[str, tuple[str, ...]] = {
     "energy": ("energy",),
     "demand": ("demand", "ratchet", "excess", "coincident"),
     # a demand charge raised for a poor power factor is the price of the reactive power, as a kVArh charge is
-    "reactive": ("reactive", "leading", "pf adjustment"),
+    "reactive": ("reactive", "leading", "pf adjustment", "reactive demand", "pf energy"),
     "fixed": ("fixed",),
 }
 SAVING_COMPONENTS: tuple[str, ...] = tuple(COMPONENT_CATEGORIES)
@@ -309,10 +309,13 @@ def _changed_kernel(p, q, applies, book, row_p, row_q):  # pragma: no cover - co
 def tariff_depends_on_kvar(tariff) -> bool:
     """True when a tariff's bill can change with reactive power alone.
 
-    A bill depends on kVAr through kVArh clauses (lagging or leading), kVAh energy, kVA demand or a
-    power-factor adjustment of demand; without any of them (and only then) a kVAr change saves exactly 0.
+    A bill depends on kVAr through kVArh clauses (lagging or leading), kVAr demand, kVAh energy, kVA demand,
+    a power-factor adjustment of demand or a power-factor percentage of the energy charges; without any of
+    them (and only then) a kVAr change saves exactly 0.
     """
-    if tariff.reactive or tariff.leading:
+    if tariff.reactive or tariff.leading or tariff.reactive_demand:
+        return True
+    if tariff.energy is not None and tariff.energy_power_factor:
         return True
     if tariff.energy is not None and tariff.energy.basis != "kWh":
         return True
@@ -322,13 +325,14 @@ def tariff_depends_on_kvar(tariff) -> bool:
 def kvar_clauses(tariff):
     """Return the tariff reduced to its clauses that can depend on kVAr, with every tax.
 
-    Kept: kVArh clauses, kVAh energy, kVA demand and demand with a power-factor adjustment (with their
-    ratchets), and the taxes (their bases then hold only these charges). Dropped: fixed charges, kWh
-    energy and kW demand without adjustment. Between two meter series with the same kW the dropped
-    clauses are equal, and a tax is linear in its base, so the bill difference is the reduced tariff's
-    bill difference (a kVAr change's saving costs about half a full bill to price).
+    Kept: kVArh clauses, kVAr demand, kVAh energy, kWh energy under a power-factor percentage (the
+    percentage is of it), kVA demand and demand with a power-factor adjustment (with their ratchets), and
+    the taxes (their bases then hold only these charges). Dropped: fixed charges, other kWh energy and kW
+    demand without adjustment. Between two meter series with the same kW the dropped clauses are equal, and
+    a tax is linear in its base, so the bill difference is the reduced tariff's bill difference (a kVAr
+    change's saving costs about half a full bill to price).
     """
-    energy = tariff.energy if tariff.energy is not None and tariff.energy.basis != "kWh" else None
+    energy = tariff.energy if tariff.energy is not None and (tariff.energy.basis != "kWh" or tariff.energy_power_factor) else None
     demand = tuple(d for d in tariff.demand if d.basis != "kW" or d.power_factor_adjustment is not None)
     return replace(tariff, fixed=(), energy=energy, demand=demand, coincident=())
 

@@ -44,29 +44,34 @@ __all__ = [
     "interval_hours",
     "pf_adjusted_demand_kw",
     "percent_adjusted_demand_kw",
+    "energy_power_factor_pct",
+    "reactive_demand_kvar",
 ]
 
 LINE_ITEM_CATEGORIES: tuple[str, ...] = (
     "fixed",
     "energy",
+    "pf energy",
     "demand",
     "pf adjustment",
     "ratchet",
     "excess",
     "coincident",
+    "reactive demand",
     "reactive",
     "leading",
     "tax",
 )
 _TAX_BASE_CATEGORIES = {
-    "all_charges": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess", "coincident", "reactive",
-                    "leading"),
-    "energy_charges": ("energy",),
-    "demand_charges": ("demand", "pf adjustment", "ratchet", "excess", "coincident"),
+    "all_charges": ("fixed", "energy", "pf energy", "demand", "pf adjustment", "ratchet", "excess", "coincident",
+                    "reactive demand", "reactive", "leading"),
+    # a power-factor percentage of the energy charges is part of them, as a demand's adjustment is of the demand's
+    "energy_charges": ("energy", "pf energy"),
+    "demand_charges": ("demand", "pf adjustment", "ratchet", "excess", "coincident", "reactive demand"),
     "reactive_charges": ("reactive", "leading"),
     "fixed_charges": ("fixed",),
-    "all_charges_and_earlier_taxes": ("fixed", "energy", "demand", "pf adjustment", "ratchet", "excess",
-                                      "coincident", "reactive", "leading", "tax"),
+    "all_charges_and_earlier_taxes": ("fixed", "energy", "pf energy", "demand", "pf adjustment", "ratchet", "excess",
+                                      "coincident", "reactive demand", "reactive", "leading", "tax"),
 }
 # Scenario rows priced together in bill_many: bounds memory at about 8 arrays × 2**17 floats (14 rows
 # of an hourly year). Blocks this small stay in the processor's cache and their temporaries are reused
@@ -188,6 +193,106 @@ def excess_kvarh(kvarh, kwh, free_kvarh_per_kwh: float):
     170.0
     """
     out = np.maximum(np.asarray(kvarh, dtype=float) - free_kvarh_per_kwh * np.asarray(kwh, dtype=float), 0.0)
+    return out if out.ndim else float(out)
+
+
+def energy_power_factor_pct(power_factor, penalties=(), rebates=(), round_points: str = "none"):
+    """Return the percentage added to a month's energy charges for its power factor (a rebate negative).
+
+    Parameters
+    ----------
+    power_factor : float or array_like
+        The month's average power factor [-], in [0, 1].
+    penalties : sequence of PowerFactorBand
+        Surcharge bands, each ``percent_per_point`` [%] per 0.01 of power factor below its edge
+        ``power_factor``, down to the next lower edge (the lowest band down to 0).
+    rebates : sequence of PowerFactorBand
+        Rebate bands, each per 0.01 above its edge, up to the next higher edge (the highest band up to 1).
+    round_points : {"none", "down", "up"}
+        The points between the power factor and the edge it is beyond (the highest penalty edge, or the
+        lowest rebate edge) are counted as they are, as whole points only, or with a part of a point as a
+        whole one; the bands are then applied to the power factor so rounded.
+
+    Returns
+    -------
+    float or ndarray
+        Penalty percent minus rebate percent [%].
+
+    Notes
+    -----
+    With edges e_1 > e_2 > ... > e_n of rates r_i and e_(n+1) = 0, a power factor x below e_1 pays
+    sum_i r_i · max(0, e_i − max(x, e_(i+1))) / 0.01 percent; rebates mirror it upwards. Clauses of this
+    shape (about 0.5-1 % per 0.01, stepped by band, the rebate sometimes only above a higher edge) are
+    common in Indian state tariffs (common practice). Hand calculation in
+    ``docs/derivations/billing-reactive.md``, case R7.
+
+    Examples
+    --------
+    0.5 % per point below 0.95 and 1 % below 0.90; 0.5 % rebate per point above 0.95. A month at 0.87:
+    5 points x 0.5 % + 3 points x 1 % = 5.5 %; at 0.98: 3 points x 0.5 % rebate.
+
+    >>> from models.tariff import PowerFactorBand as B
+    >>> pen, reb = (B(0.95, 0.5), B(0.90, 1.0)), (B(0.95, 0.5),)
+    >>> [round(float(x), 6) for x in energy_power_factor_pct([0.87, 0.93, 0.95, 0.98], pen, reb)]
+    [5.5, 1.0, 0.0, -1.5]
+    >>> round(float(energy_power_factor_pct(0.935, pen, reb, "down")), 6), round(float(energy_power_factor_pct(0.935, pen, reb, "up")), 6)
+    (0.5, 1.0)
+    """
+    x = np.clip(np.asarray(power_factor, dtype=float), 0.0, 1.0)
+    out = np.zeros(x.shape)
+    for bands, sign in ((sorted(penalties, key=lambda b: -b.power_factor), 1.0),
+                        (sorted(rebates, key=lambda b: b.power_factor), -1.0)):
+        if not bands:
+            continue
+        first = bands[0].power_factor
+        points = np.maximum(sign * (first - x) / 0.01, 0.0)
+        if round_points == "down":
+            points = np.floor(points + _POINT_TOLERANCE)
+        elif round_points == "up":
+            points = np.ceil(points - _POINT_TOLERANCE)
+        at = first - sign * points * 0.01  # the power factor the bands read, rounded as asked
+        for i, band in enumerate(bands):
+            end = (bands[i + 1].power_factor if i + 1 < len(bands) else (0.0 if sign > 0 else 1.0))
+            if sign > 0:
+                inside = np.maximum(band.power_factor - np.maximum(at, end), 0.0)
+            else:
+                inside = np.maximum(np.minimum(at, end) - band.power_factor, 0.0)
+            out = out + sign * band.percent_per_point * inside / 0.01
+    return out if out.ndim else float(out)
+
+
+def reactive_demand_kvar(kvar_demand, kw_demand, free_kvar_per_kw: float):
+    """Return the billed reactive demand: the kVAr demand above an allowance proportional to the kW demand.
+
+    Parameters
+    ----------
+    kvar_demand : float or array_like
+        The month's highest window mean of the lagging kVAr [kVAr] (0 when every window leads).
+    kw_demand : float or array_like
+        The month's highest window mean of the kW [kW].
+    free_kvar_per_kw : float
+        Allowance [-] (= tan φ threshold; 0.62 ⇔ PF 0.85, 0.2917 ⇔ PF 0.96).
+
+    Returns
+    -------
+    float or ndarray
+        max(kVAr − ratio × kW, 0) [kVAr].
+
+    Notes
+    -----
+    The clause form "each kVAr of the maximum reactive demand in excess of a percentage of the maximum kW
+    demand" appears in North American rate schedules (common practice; 62 % ⇔ PF 0.85). Hand calculation
+    in ``docs/derivations/billing-reactive.md``, case R6.
+
+    Examples
+    --------
+    A month of 1,000 kW and 700 kVAr of demand with 0.62 kVAr free per kW bills 80 kVAr.
+
+    >>> round(float(reactive_demand_kvar(700.0, 1000.0, 0.62)), 6)
+    80.0
+    """
+    q = np.maximum(np.asarray(kvar_demand, dtype=float), 0.0)
+    out = np.maximum(q - free_kvar_per_kw * np.maximum(np.asarray(kw_demand, dtype=float), 0.0), 0.0)
     return out if out.ndim else float(out)
 
 
@@ -348,7 +453,7 @@ def _calendar(tariff: Tariff, index: pd.DatetimeIndex, interval_h: float | None,
     utc = _utc_ns(index)
     wall_ns = wall.to_numpy().astype("datetime64[ns]").astype(np.int64)
     interval_ns = int(round(float(interval_h) * 3_600e9))
-    for minutes, rolling in sorted({window_key(d) for d in tariff.demand}):
+    for minutes, rolling in sorted({window_key(d) for d in (*tariff.demand, *getattr(tariff, "reactive_demand", ()))}):
         w = minutes * _NS_PER_MIN
         n_in = w // interval_ns if interval_ns > 0 else 1
         if rolling and n_in > 1:
@@ -545,7 +650,7 @@ def _mask(cal: _Calendar, tariff: Tariff, periods, seasons, period_arr=None, sea
     return m
 
 
-def window_key(charge: DemandCharge) -> tuple[int, bool]:
+def window_key(charge) -> tuple[int, bool]:
     """The demand windows a charge reads: (length [min], rolling)."""
     return int(charge.window_min), bool(charge.rolling)
 
@@ -887,11 +992,14 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     energy_at = None
     if tariff.energy is not None:
         energy_at = summed(_KWH if tariff.energy.basis == "kWh" else _KVAH)
-    kwh_at = lag_at = None
-    if tariff.demand:
+    energy_pf = getattr(tariff, "energy_power_factor", ()) if tariff.energy is not None else ()
+    kwh_at = lag_at = lead_at = None
+    if tariff.demand or energy_pf:
         kwh_at = summed(_KWH)
-        if any(d.power_factor_adjustment is not None for d in tariff.demand):
+        if energy_pf or any(d.power_factor_adjustment is not None for d in tariff.demand):
             lag_at = summed(_LAG_KVARH)
+        if any(c.count_leading for c in energy_pf):
+            lead_at = summed(_LEAD_KVARH)
     clauses = []
     for kind, clause_list, plain_code, excess_code in (("reactive", tariff.reactive, _LAG_KVARH, _LAG_EXCESS_KVARH),
                                                        ("leading", tariff.leading, _LEAD_KVARH, _LEAD_EXCESS_KVARH)):
@@ -914,11 +1022,35 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
             items.append(_Item(f"energy:{code}", "energy", tariff.energy.basis, np.full(n_m, tariff.energy.price(code)),
                                energy[:, :, kk], cal.steps_in_cell[:, kk] > 0, no_flag))
 
-    if tariff.demand:
-        kwh_month = cells[kwh_at].sum(axis=2)
-        lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
-        for d in tariff.demand:
-            items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before, start))
+    kwh_month = cells[kwh_at].sum(axis=2) if kwh_at is not None else None
+    lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
+    if energy_pf:
+        energy_charges = sum(np.where(it.applies, it.amount, 0.0) for it in items if it.category == "energy")
+        for c in energy_pf:
+            kvarh = lag_month + (cells[lead_at].sum(axis=2) if c.count_leading else 0.0)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                apparent = np.hypot(kwh_month, kvarh)
+                pf = np.where(apparent > 0.0, kwh_month / np.where(apparent > 0.0, apparent, 1.0), 1.0)
+            pct = energy_power_factor_pct(pf, c.penalties, c.rebates, c.round_points)
+            items.append(_Item(f"pf energy:{c.name}", "pf energy", tariff.currency, np.ones(n_m),
+                               pct / 100.0 * energy_charges, every_month, no_flag))
+
+    for d in tariff.demand:
+        items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before, start))
+
+    for c in getattr(tariff, "reactive_demand", ()):
+        win = cal.windows[window_key(c)]
+        in_scope, applies = _scope(cal, tariff, c.periods, c.seasons, window_key(c))
+        # the kVAr's highest window mean: the kW pass run on the kVAr (its arguments swapped)
+        kvar_peak = _window_peaks_kernel(q, p, False, False, win.starts, win.count, win.identity, win.month_bounds,
+                                         in_scope, n_s)[0]
+        kw_peak = 0.0
+        if c.free_kvar_per_kw > 0.0:
+            kw_peak = _window_peaks_kernel(p, q, False, False, win.starts, win.count, win.identity, win.month_bounds,
+                                           in_scope, n_s)[0]
+        billed = np.where(applies, reactive_demand_kvar(kvar_peak, kw_peak, c.free_kvar_per_kw), 0.0)
+        items.append(_Item(f"reactive demand:{c.name}", "reactive demand", "kVAr", np.full(n_m, c.price_per_kvar_month),
+                           billed, applies, no_flag))
 
     for c in getattr(tariff, "coincident", ()):
         items.append(_coincident_items(cal, c, p, n_s))

@@ -1784,9 +1784,13 @@ def coarse_demand_profiles(sites: pd.DataFrame, assets: pd.DataFrame, tariffs: d
 
 def shortest_demand_window_min(tariffs: dict, tariff_file, clause: str = "demand") -> int | None:
     """The shortest demand window of a site's tariff [min], None where it has no demand charge (or none is named);
-    ``clause="coincident"``: of its coincident-peak charges."""
+    its kW or kVA demand charges' and its kVAr demand charges' alike; ``clause="coincident"``: of its
+    coincident-peak charges."""
     tariff = tariffs.get(tariff_file) if isinstance(tariff_file, str) else None
-    windows = [d.window_min for d in getattr(tariff, clause, ())]
+    clauses = list(getattr(tariff, clause, ()))
+    if clause == "demand":
+        clauses += list(getattr(tariff, "reactive_demand", ()))
+    windows = [d.window_min for d in clauses]
     return int(min(windows)) if windows else None
 
 

@@ -5,8 +5,9 @@ tariff file (reading the file is the job of ``models.io``). It covers fixed mont
 charges per kWh or per kVAh by time-of-use period (seasons of months × day types × clock windows,
 including windows across midnight and public holidays); demand charges on kW or kVA over 15/30/60-minute
 windows, optionally limited to some periods, with a ratchet and a power-factor adjustment; charges for
-lagging kVArh above a free allowance; charges or bans on leading kVArh; and taxes as percentages of a
-documented base. The file format, every key, its unit and default are documented in
+lagging kVArh above a free allowance; charges or bans on leading kVArh; kVAr demand above a share of the kW
+demand; a percentage of the energy charges by bands of the month's power factor; and taxes as percentages of
+a documented base. The file format, every key, its unit and default are documented in
 ``docs/tariffs.md``. :func:`tariff_from_dict` never stops at the first problem: it returns every
 :class:`~models.problems.Problem` found, each naming the file and the key path (``periods[2].hours``,
 entries counted from 1). :func:`assign_periods` maps a tz-aware time index to period codes. The bill
@@ -34,13 +35,16 @@ __all__ = [
     "DAY_TYPES",
     "DemandCharge",
     "EnergyCharge",
+    "EnergyPowerFactorClause",
     "FixedCharge",
     "HourWindow",
     "LeadingCharge",
     "NEAR_MISS_CUTOFF",
     "PeriodRule",
     "PowerFactorAdjustment",
+    "PowerFactorBand",
     "ReactiveCharge",
+    "ReactiveDemandCharge",
     "Season",
     "Tariff",
     "Tax",
@@ -315,6 +319,87 @@ class LeadingCharge:
 
 
 @dataclass(frozen=True)
+class ReactiveDemandCharge:
+    """A charge on the month's highest lagging kVAr demand above an allowance proportional to its kW demand.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``reactive demand:<name>``.
+    price_per_kvar_month : float
+        Price of each kVAr of billed reactive demand [currency per kVAr per month].
+    free_kvar_per_kw : float
+        Free kVAr of reactive demand per kW of the month's kW demand [-] (= tan φ threshold), >= 0.
+    window_min : int
+        Demand window [min]: 15, 30 or 60, as a demand charge's.
+    rolling : bool
+        Rolling (sliding) windows, as a demand charge's.
+    periods, seasons : tuple of str or None
+        Only windows in these periods / seasons count, for the kVAr and the kW demand alike; None = all.
+
+    Notes
+    -----
+    The month's kVAr demand is its highest window mean of the kVAr (lagging positive), 0 when every window
+    leads; its kW demand the highest window mean of the kW, in the same windows. Billed kVAr = max(kVAr
+    demand − ``free_kvar_per_kw`` × kW demand, 0). The two maxima may fall in different windows, as the
+    utilities' meters record them.
+    """
+
+    name: str
+    price_per_kvar_month: float
+    free_kvar_per_kw: float = 0.0
+    window_min: int = 15
+    rolling: bool = False
+    periods: tuple[str, ...] | None = None
+    seasons: tuple[str, ...] | None = None
+
+
+@dataclass(frozen=True)
+class PowerFactorBand:
+    """One band of an energy charge's power-factor clause.
+
+    Parameters
+    ----------
+    power_factor : float
+        The band's edge [-], in (0, 1]: a penalty band counts the points below it, a rebate band those above it.
+    percent_per_point : float
+        Percent of the month's energy charges per 0.01 of power factor inside the band [%], in (0, 100].
+    """
+
+    power_factor: float
+    percent_per_point: float
+
+
+@dataclass(frozen=True)
+class EnergyPowerFactorClause:
+    """A percentage added to (or taken off) the month's energy charges for its average power factor.
+
+    Parameters
+    ----------
+    name : str
+        Label; the line item is ``pf energy:<name>``.
+    penalties : tuple of PowerFactorBand
+        Bands of surcharge below their edges. A band counts the points from its edge down to the next lower
+        edge (the lowest band down to 0), so 0.5 % per point below 0.95 and 1 % per point below 0.90 bill a
+        month at 0.87 PF 5 x 0.5 % + 3 x 1 % = 5.5 %.
+    rebates : tuple of PowerFactorBand
+        Bands of rebate above their edges, counted likewise upwards (the highest band up to 1).
+    round_points : {"none", "down", "up"}
+        How the points away from the nearest edge are counted: as they are, whole points only ("for every
+        full 0.01"), or a part of a point as a whole one ("or part thereof").
+    count_leading : bool
+        False: the month's PF is kWh / sqrt(kWh² + lagging kVArh²) (leading kVArh does not count). True:
+        lagging and leading kVArh are added, as where a leading power factor is penalised as a lagging one.
+    """
+
+    name: str
+    penalties: tuple[PowerFactorBand, ...] = ()
+    rebates: tuple[PowerFactorBand, ...] = ()
+    round_points: Literal["none", "down", "up"] = "none"
+    count_leading: bool = False
+
+
+@dataclass(frozen=True)
 class FixedCharge:
     """A fixed charge per billing month.
 
@@ -430,7 +515,7 @@ class Tariff:
         Public holidays (day type ``holiday``).
     energy : EnergyCharge or None
         Energy charge.
-    demand, reactive, leading, fixed, taxes, coincident : tuples of the clause types
+    demand, reactive, leading, fixed, taxes, coincident, reactive_demand, energy_power_factor : tuples of the clause types
         Clauses, in file order.
     time_zone : str or None
         IANA zone the tariff's clock times are in; None = the meter index's own zone.
@@ -458,6 +543,8 @@ class Tariff:
     taxes: tuple[Tax, ...] = ()
     time_zone: str | None = None
     coincident: tuple[CoincidentPeak, ...] = ()
+    reactive_demand: tuple[ReactiveDemandCharge, ...] = ()
+    energy_power_factor: tuple[EnergyPowerFactorClause, ...] = ()
     allow_negative_prices: bool = False
     notes: str = ""
     billing_day: int = 1
@@ -877,6 +964,46 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
         refs(f"{k}.seasons", r.seasons, season_names, "season")
         occurs(f"{k}.periods", r.periods, r.seasons)
 
+    _check_unique([c.name for c in tariff.reactive_demand], "reactive_demand", "name", err, at)
+    for i, c in enumerate(tariff.reactive_demand, start=1):
+        k = at("reactive_demand", i)
+        price(f"{k}.price_per_kvar_month", c.price_per_kvar_month)
+        peak_price(f"{k}.price_per_kvar_month", c.price_per_kvar_month, "the month's peak reactive demand")
+        if not c.free_kvar_per_kw >= 0.0:
+            err(f"{k}.free_kvar_per_kw", c.free_kvar_per_kw, "free kVAr per kW must be >= 0")
+        elif c.free_kvar_per_kw > 5.0:
+            warn(f"{k}.free_kvar_per_kw", c.free_kvar_per_kw, "allowance above 5 kVAr per kW (PF < 0.2) is unusual",
+                 "check the value: 0.62 kVAr per kW is a PF of 0.85")
+        if c.window_min not in DEMAND_WINDOWS_MIN:
+            err(f"{k}.window_min", c.window_min, f"demand window must be one of {DEMAND_WINDOWS_MIN} minutes")
+        refs(f"{k}.periods", c.periods, codes, "period")
+        refs(f"{k}.seasons", c.seasons, season_names, "season")
+        occurs(f"{k}.periods", c.periods, c.seasons)
+
+    _check_unique([c.name for c in tariff.energy_power_factor], "energy_power_factor", "name", err, at)
+    for i, c in enumerate(tariff.energy_power_factor, start=1):
+        k = at("energy_power_factor", i)
+        for key, bands, edge in (("penalty", c.penalties, "below"), ("rebate", c.rebates, "above")):
+            edges = [b.power_factor for b in bands]
+            for j, b in enumerate(bands, start=1):
+                if not 0.0 < b.power_factor <= 1.0:
+                    err(f"{k}.{key}[{j}].{edge}", b.power_factor, "power factor must lie in (0, 1]")
+                if not 0.0 < b.percent_per_point <= 100.0:
+                    err(f"{k}.{key}[{j}].percent_per_point", b.percent_per_point,
+                        "percent per 0.01 PF must lie in (0, 100]", "write 0.5 % per point as 0.5")
+            for j, x in enumerate(edges, start=1):
+                if x in edges[:j - 1]:
+                    err(f"{k}.{key}[{j}].{edge}", x, f"two {key} bands share the edge {x:g}", "give each band its own edge")
+        if c.penalties and c.rebates and min(b.power_factor for b in c.rebates) < max(b.power_factor for b in c.penalties):
+            err(f"{k}.rebate", min(b.power_factor for b in c.rebates),
+                f"a rebate from a power factor below the highest penalty edge ({max(b.power_factor for b in c.penalties):g}): "
+                "a month's power factor would be both penalised and rebated", "start the rebate at or above the penalty's edge")
+        if c.round_points not in ROUND_POINTS:
+            err(f"{k}.round_points", c.round_points, "unknown value", f"use one of {', '.join(ROUND_POINTS)}")
+        if tariff.energy is None:
+            warn(k, c.name, "a percentage of the energy charges, but the tariff has no [energy] charge: it bills nothing",
+                 "add the [energy] prices, or leave the clause out")
+
     _check_unique([f.name for f in tariff.fixed], "fixed", "name", err, at)
     for i, f in enumerate(tariff.fixed, start=1):
         price(at("fixed", i) + ".charge_per_month", f.charge_per_month)
@@ -1006,7 +1133,7 @@ _HOURS_RE = re.compile(r"^\s*(\d{1,2}):(\d{2})\s*-\s*(\d{1,2}):(\d{2})\s*$")
 _CURRENCY_RE = re.compile(r"^[A-Z]{3}$")
 
 _TOP_KEYS = ("tariff", "calendar", "seasons", "periods", "energy", "fixed", "demand", "coincident_peak", "reactive",
-             "leading", "taxes")
+             "leading", "reactive_demand", "energy_power_factor", "taxes")
 _TARIFF_KEYS = ("name", "currency", "time_zone", "allow_negative_prices", "notes", "billing_day")
 #: The rule and hint of a billing day out of range (the reader's and :func:`check_tariff`'s).
 _BILLING_DAY_RULE = ("the day billing months start on must be 1-28 (every month has it)",
@@ -1065,6 +1192,12 @@ _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_f
 _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
 _TAX_KEYS = ("name", "rate_pct", "base")
 _COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
+_REACTIVE_DEMAND_KEYS = ("name", "price_per_kvar_month", "free_kvar_per_kw", "free_power_factor", "window_min", "rolling",
+                         "periods", "seasons")
+_ENERGY_PF_KEYS = ("name", "penalty", "rebate", "round_points", "count_leading")
+_PENALTY_BAND_KEYS = ("below", "percent_per_point")
+_REBATE_BAND_KEYS = ("above", "percent_per_point")
+ROUND_POINTS: tuple[str, ...] = ("none", "down", "up")
 
 
 #: Similarity (difflib ratio, 0-1) from which an unknown key counts as a misspelling of an allowed key:
@@ -1517,7 +1650,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         r.warn("calendar.holidays", [str(d) for d in holidays], "a date is listed twice")
 
     pos: dict[str, list[int]] = {t: [] for t in ("seasons", "periods", "fixed", "demand", "reactive", "leading", "taxes",
-                                                 "coincident_peak")}
+                                                 "coincident_peak", "reactive_demand", "energy_power_factor")}
     seasons: list[Season] = []
     for i, s in enumerate(r.tables(data, "seasons"), start=1):
         p = f"seasons[{i}]"
@@ -1697,6 +1830,37 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
             leading.append(LeadingCharge(lname, lprice, ratio, banned, scope, lperiods, lseasons))
             pos["leading"].append(i)
 
+    reactive_demand = []
+    for i, e in enumerate(r.tables(data, "reactive_demand"), start=1):
+        p = f"reactive_demand[{i}]"
+        r.known(e, _REACTIVE_DEMAND_KEYS, p)
+        qname = r.get(e, "name", p, "str", default=f"reactive demand {i}")
+        qprice = r.get(e, "price_per_kvar_month", p, "number")
+        ratio = _allowance(r, e, p, required=False, ratio_key="free_kvar_per_kw")
+        qwindow = r.get(e, "window_min", p, "int", default=15)
+        qrolling = r.get(e, "rolling", p, "bool", default=False)
+        qperiods = r.get(e, "periods", p, "str_list", default=None)
+        qseasons = r.get(e, "seasons", p, "str_list", default=None)
+        if qprice is not None and ratio is not None and qwindow is not None:
+            reactive_demand.append(ReactiveDemandCharge(qname, qprice, ratio, qwindow, bool(qrolling), qperiods, qseasons))
+            pos["reactive_demand"].append(i)
+
+    energy_pf = []
+    for i, e in enumerate(r.tables(data, "energy_power_factor"), start=1):
+        p = f"energy_power_factor[{i}]"
+        r.known(e, _ENERGY_PF_KEYS, p)
+        ename = r.get(e, "name", p, "str", default=f"power factor {i}")
+        penalties = _power_factor_bands(r, e, p, "penalty", "below")
+        rebates = _power_factor_bands(r, e, p, "rebate", "above")
+        rounding = r.get(e, "round_points", p, "str", default="none")
+        leading_too = r.get(e, "count_leading", p, "bool", default=False)
+        if not (e.get("penalty") or e.get("rebate")) and not r.reported(p, "penalty", "rebate"):
+            r.err(p, ename, "a power-factor clause on the energy charges needs a penalty or a rebate band",
+                  "e.g. penalty = [{ below = 0.9, percent_per_point = 1.0 }]")
+        elif penalties is not None and rebates is not None:
+            energy_pf.append(EnergyPowerFactorClause(ename, penalties, rebates, rounding, bool(leading_too)))
+            pos["energy_power_factor"].append(i)
+
     coincident = []
     for i, e in enumerate(r.tables(data, "coincident_peak"), start=1):
         p = f"coincident_peak[{i}]"
@@ -1740,6 +1904,8 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         allow_negative_prices=allow_negative,
         notes=notes,
         coincident=tuple(coincident),
+        reactive_demand=tuple(reactive_demand),
+        energy_power_factor=tuple(energy_pf),
         billing_day=1 if billing_day is None else int(billing_day),
     )
     # A near miss leaves out what the misspelt key holds: the checks across the tariff (coverage, references,
@@ -1796,11 +1962,12 @@ def _peak_times(r: _Reader, e: dict, path: str, window_min: object) -> tuple[tup
     return None if bad else (tuple(out), tuple(written), tuple(years))
 
 
-def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | None:
-    """Read a free allowance given as kVArh per kWh or as a power factor; return kVArh per kWh."""
-    has_ratio, has_pf = "free_kvarh_per_kwh" in e, "free_power_factor" in e
+def _allowance(r: _Reader, e: dict, path: str, *, required: bool, ratio_key: str = "free_kvarh_per_kwh") -> float | None:
+    """Read a free allowance given as a ratio (``ratio_key``: kVArh per kWh, or kVAr per kW) or as a power
+    factor; return the ratio."""
+    has_ratio, has_pf = ratio_key in e, "free_power_factor" in e
     if has_ratio and has_pf:
-        r.err(path, None, "give free_kvarh_per_kwh or free_power_factor, not both")
+        r.err(path, None, f"give {ratio_key} or free_power_factor, not both")
         return None
     if has_pf:
         pf = r.get(e, "free_power_factor", path, "number")
@@ -1811,9 +1978,30 @@ def _allowance(r: _Reader, e: dict, path: str, *, required: bool) -> float | Non
             return None
         return float(tan_phi_from_power_factor(pf))
     if has_ratio:
-        return r.get(e, "free_kvarh_per_kwh", path, "number")
+        return r.get(e, ratio_key, path, "number")
     if required:
-        if not r.reported(path, "free_kvarh_per_kwh", "free_power_factor"):
-            r.err(path, None, "needs free_kvarh_per_kwh or free_power_factor", "use free_kvarh_per_kwh = 0 to charge every kVArh")
+        if not r.reported(path, ratio_key, "free_power_factor"):
+            r.err(path, None, f"needs {ratio_key} or free_power_factor", f"use {ratio_key} = 0 to charge every kVArh")
         return None
     return 0.0
+
+
+def _power_factor_bands(r: _Reader, e: dict, path: str, key: str, edge: str) -> tuple[PowerFactorBand, ...] | None:
+    """Read a power-factor clause's ``penalty`` or ``rebate`` list (``edge``: ``below`` or ``above``): every
+    wrong band is reported with its place in the list; None when any is wrong."""
+    full = f"{path}.{key}"
+    raw = e.get(key, [])
+    if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
+        r.err(full, raw, "expected a list of bands", f"e.g. {key} = [{{ {edge} = 0.95, percent_per_point = 0.5 }}]")
+        return None
+    bands, bad = [], False
+    for j, band in enumerate(raw, start=1):
+        at = f"{full}[{j}]"
+        r.known(band, (edge, "percent_per_point"), at)
+        pf = r.get(band, edge, at, "number")
+        pct = r.get(band, "percent_per_point", at, "number")
+        if pf is None or pct is None:
+            bad = True
+        else:
+            bands.append(PowerFactorBand(pf, pct))
+    return None if bad else tuple(bands)

@@ -48,10 +48,12 @@ def money_text(value: float | None, currency: str) -> str:
 
 
 #: Each bill line item's category (the part before the colon of ``models.billing.bill``'s ``line_item``) in words.
-LINE_ITEM_CATEGORIES = {"fixed": "Fixed charge", "energy": "Energy", "demand": "Demand charge",
+LINE_ITEM_CATEGORIES = {"fixed": "Fixed charge", "energy": "Energy",
+                        "pf energy": "Power-factor adjustment of energy", "demand": "Demand charge",
                         "pf adjustment": "Power-factor adjustment of demand", "ratchet": "Demand ratchet",
                         "excess": "Demand above the contracted capacity",
                         "coincident": "Demand at the system's peak times",
+                        "reactive demand": "Reactive demand (kVAr)",
                         "reactive": "Reactive energy (lagging)", "leading": "Reactive energy (leading)", "tax": "Tax"}
 
 

@@ -318,3 +318,39 @@ def test_bill_command_says_when_billing_months_start_on_a_read_day(tmp_path, cap
     assert "billing months start on day 15 of each month" in out and "2025-12" in out
     assert main(["bill", str(demo), "--site", "KGQ"]) == 0
     assert "billing months start" not in capsys.readouterr().out
+
+
+def test_kvar_demand_and_a_power_factor_percentage_are_reactive_savings_priced_alike_on_the_reduced_tariff():
+    # hand calculation, docs/derivations/billing-reactive.md cases R6 and R7: January, 1,000 kW and 700 kVAr
+    # (hour 6: 900 kVAr). A 300 kVAr bank (400 kVAr, hour 6 600 kVAr) removes the 280 kVAr of kVAr demand
+    # (140.00 USD) and takes the month's PF from 0.819128 to 744,000 / sqrt(744,000² + 297,800²) = 0.928391:
+    # 1.08047 % of 74,400 = 803.87 in place of 7,876.84. Saving 140.00 + 7,072.97 = 7,212.97, all of it reactive,
+    # and the kVAr-only pricing (a tariff cut to its kVAr clauses, the energy charge kept under the percentage)
+    # finds the same
+    import pandas as pd
+
+    from models.bill_savings import SAVING_COMPONENTS, SiteSetup, kvar_clauses, site_savings, tariff_depends_on_kvar
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({
+        "tariff": {"name": "pf clauses (invented)", "currency": "USD", "time_zone": "UTC"},
+        "periods": [{"code": "all"}], "energy": {"price_per_kwh": {"all": 0.10}},
+        "reactive_demand": [{"name": "kvar", "price_per_kvar_month": 0.50, "free_kvar_per_kw": 0.62, "window_min": 60}],
+        "energy_power_factor": [{"name": "pf", "penalty": [{"below": 0.95, "percent_per_point": 0.5},
+                                                            {"below": 0.90, "percent_per_point": 1.0}],
+                                 "rebate": [{"above": 0.95, "percent_per_point": 0.5}]}]}, "t.toml")
+    assert t is not None, problems
+    assert tariff_depends_on_kvar(t)
+    assert kvar_clauses(t).energy is not None and kvar_clauses(t).reactive_demand == t.reactive_demand
+    idx = pd.date_range("2025-01-01", periods=744, freq="h", tz="UTC")
+    p_today = np.full(744, 1000.0)
+    q_today = np.full(744, 700.0)
+    q_today[5] = 900.0
+    p = np.stack([p_today, p_today])[:, None, :]
+    q = np.stack([q_today, q_today - 300.0])[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 1.0, p, q, np.ones((1, 2), dtype=bool),
+                       np.array(["keep", "capacitor"]), 35.0)
+    assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 7_212.97], atol=0.005)
+    assert_allclose(out["saving"][0, 1, SAVING_COMPONENTS.index("reactive")], 7_212.97, atol=0.005)
+    assert_allclose(out["reactive_saving"][0], [0.0, 7_212.97], atol=0.005)

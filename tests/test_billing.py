@@ -23,12 +23,14 @@ from models.billing import (
     bill,
     bill_many,
     bill_total,
+    energy_power_factor_pct,
     excess_kvarh,
     interval_hours,
     pf_adjusted_demand_kw,
     percent_adjusted_demand_kw,
+    reactive_demand_kvar,
 )
-from models.tariff import tariff_from_dict
+from models.tariff import PowerFactorBand, tariff_from_dict
 
 from test_tariff import TARIFF_E
 
@@ -487,6 +489,113 @@ class TestReactive:
         assert bool(row["flag"])
 
 
+class TestReactiveDemandAndEnergyPowerFactor:
+    """kVAr demand above a share of the kW demand, and a percentage of the energy charges by power-factor bands.
+
+    Source: hand calculations in docs/derivations/billing-reactive.md, cases R6 and R7."""
+
+    USD = '[tariff]\nname = "t"\ncurrency = "USD"\ntime_zone = "UTC"\n[[periods]]\ncode = "all"\n[energy]\nprice_per_kwh = { all = 0.10 }\n'
+    KVAR = '[[reactive_demand]]\nname = "kvar"\nprice_per_kvar_month = 0.50\nfree_kvar_per_kw = 0.62\nwindow_min = 60\n'
+    PF = ('[[energy_power_factor]]\nname = "pf"\n'
+          'penalty = [{ below = 0.95, percent_per_point = 0.5 }, { below = 0.90, percent_per_point = 1.0 }]\n'
+          'rebate = [{ above = 0.95, percent_per_point = 0.5 }]\n')
+
+    @staticmethod
+    def month():
+        """January 2025, hourly: 1,000 kW and 700 kVAr, the sixth hour 900 kVAr (cases R6, R7)."""
+        idx = pd.date_range("2025-01-01", periods=744, freq="h", tz="UTC")
+        q = np.full(744, 700.0)
+        q[5] = 900.0
+        return idx, np.full(744, 1000.0), q
+
+    def test_kvar_demand_above_the_kw_share(self):
+        idx, p, q = self.month()
+        b = bill(load(self.USD + self.KVAR), idx, p, q)
+        row = b[b["line_item"] == "reactive demand:kvar"].iloc[0]
+        # hand calculation, billing-reactive.md, case R6: max(900 − 0.62 × 1,000, 0) = 280 kVAr × 0.50 = 140.00
+        assert_allclose([row["quantity"], row["amount"]], [280.0, 140.0], **EXACT)
+        assert row["unit"] == "kVAr"
+
+    def test_kvar_demand_maxima_are_each_the_months_own(self):
+        idx, p, q = self.month()
+        p = p.copy()
+        p[99] = 1200.0  # the kW peak in hour 100, the kVAr peak in hour 6
+        b = bill(load(self.USD + self.KVAR), idx, p, q)
+        # hand calculation (case R6's rule): 900 − 0.62 × 1,200 = 156 kVAr
+        assert_allclose(quantity(b, "reactive demand:kvar"), 156.0, **EXACT)
+
+    def test_kvar_demand_of_leading_windows_and_a_bank(self):
+        idx, p, _ = self.month()
+        t = load(self.USD + self.KVAR)
+        # case R6: every hour leading bills nothing; a 300 kVAr bank (600 kVAr at most) bills max(600 − 620, 0) = 0
+        assert_allclose(quantity(bill(t, idx, p, np.full(744, -200.0)), "reactive demand:kvar"), 0.0, atol=0)
+        _, _, q = self.month()
+        assert_allclose(quantity(bill(t, idx, p, q - 300.0), "reactive demand:kvar"), 0.0, atol=0)
+
+    def test_kvar_demand_of_a_power_factor_allowance_and_on_15_minute_windows(self):
+        idx = pd.date_range("2025-01-01", periods=8, freq="15min", tz="UTC")
+        p = np.full(8, 100.0)
+        q = np.array([10.0, 90.0, 30.0, 30.0, 40.0, 40.0, 40.0, 40.0])
+        t60 = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nfree_power_factor = 0.96\nwindow_min = 60\n')
+        t15 = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nwindow_min = 15\n')
+        # hand calculation: hourly means 40 and 40 kVAr; free tan(acos 0.96) × 100 = 29.1667 kVAr → 10.8333
+        assert_allclose(quantity(bill(t60, idx, p, q), "reactive demand:q"), 40.0 - 100.0 * 0.28 / 0.96, rtol=1e-12)
+        # no allowance, 15-min windows: the highest interval, 90 kVAr
+        assert_allclose(quantity(bill(t15, idx, p, q), "reactive demand:q"), 90.0, **EXACT)
+
+    @pytest.mark.parametrize("pf, expected_pct", [(0.87, 5.5), (0.93, 1.0), (0.95, 0.0), (0.98, -1.5), (0.90, 2.5),
+                                                  (1.0, -2.5), (0.0, 92.5)])
+    def test_power_factor_bands(self, pf, expected_pct):
+        # hand calculation, billing-reactive.md, case R7 (0.90: 5 points x 0.5 %; 1.0: 5 points of rebate x 0.5 %;
+        # 0.0: 2.5 % + 90 points x 1 %)
+        pen, reb = (PowerFactorBand(0.95, 0.5), PowerFactorBand(0.90, 1.0)), (PowerFactorBand(0.95, 0.5),)
+        assert_allclose(energy_power_factor_pct(pf, pen, reb), expected_pct, atol=1e-9)
+
+    @pytest.mark.parametrize("rounding, expected_pct", [("none", 0.75), ("down", 0.5), ("up", 1.0)])
+    def test_power_factor_points_rounded(self, rounding, expected_pct):
+        # hand calculation, case R7: 0.935 is 1.5 points below 0.95 at 0.5 % each
+        pen = (PowerFactorBand(0.95, 0.5), PowerFactorBand(0.90, 1.0))
+        assert_allclose(energy_power_factor_pct(0.935, pen, (), rounding), expected_pct, atol=1e-9)
+        # a whole number of points is not rounded away by the floating point of 0.95 − 0.93
+        assert_allclose(energy_power_factor_pct(0.93, pen, (), rounding), 1.0, atol=1e-9)
+
+    def test_percentage_of_the_months_energy_charges(self):
+        idx, p, q = self.month()
+        b = bill(load(self.USD + self.PF), idx, p, q)
+        row = b[b["line_item"] == "pf energy:pf"].iloc[0]
+        # hand calculation, billing-reactive.md, case R7: PF 0.819128, 10.5872 % of 74,400.00 = 7,876.84
+        assert_allclose(row["amount"], 7876.84, atol=0.005)
+        assert_allclose(quantity(b, "energy:all"), 744000.0, **EXACT)
+
+    def test_rebate_and_leading_kvarh_counted_when_asked(self):
+        idx = pd.date_range("2025-01-01", periods=2, freq="h", tz="UTC")
+        p, q = np.array([100.0, 100.0]), np.array([-20.0, 0.0])
+        reb = '[[energy_power_factor]]\nname = "pf"\nrebate = [{ above = 0.95, percent_per_point = 1.0 }]\n'
+        # hand calculation: kWh 200, energy 20.00 USD. Leading not counted: PF 1.0, 5 points of rebate = −1.00.
+        b = bill(load(self.USD + reb), idx, p, q)
+        assert_allclose(amounts(b)["pf energy:pf"], -1.0, atol=1e-12)
+        # counted: kVArh 20, PF = 200 / sqrt(200² + 20²) = 200 / 200.99751 = 0.9950372, 4.50372 points x 1 %
+        # of 20.00 → −0.900744
+        b = bill(load(self.USD + reb + "count_leading = true\n"), idx, p, q)
+        assert_allclose(amounts(b)["pf energy:pf"], -0.900744, atol=1e-6)
+
+    def test_taxes_take_the_new_lines_in_their_bases(self):
+        idx, p, q = self.month()
+        taxes = ('[[taxes]]\nname = "on energy"\nrate_pct = 10\nbase = "energy_charges"\n'
+                 '[[taxes]]\nname = "on demand"\nrate_pct = 10\nbase = "demand_charges"\n')
+        b = bill(load(self.USD + self.KVAR + self.PF + taxes), idx, p, q)
+        a = amounts(b)
+        # documented bases (docs/tariffs.md): pf energy with the energy charges, reactive demand with the demand's
+        assert_allclose(a["tax:on energy"], 0.1 * (a["energy:all"] + a["pf energy:pf"]), rtol=1e-12)
+        assert_allclose(a["tax:on demand"], 0.1 * 140.0, rtol=1e-12)
+
+    def test_equations_on_their_own(self):
+        # case R6's figures; a negative kVAr demand counts as none
+        assert reactive_demand_kvar(900.0, 1000.0, 0.62) == pytest.approx(280.0, abs=1e-9)
+        assert reactive_demand_kvar(-50.0, 1000.0, 0.0) == 0.0
+        assert_allclose(reactive_demand_kvar([700.0, 500.0], [1000.0, 1000.0], 0.62), [80.0, 0.0], atol=1e-9)
+
+
 # --------------------------------------------------------------------------------------------------
 # Fixed charges and taxes
 # --------------------------------------------------------------------------------------------------
@@ -809,3 +918,19 @@ def test_rolling_windows_and_billing_months_from_a_read_day(rolling, expected):
     b = bill(t, idx, p, np.zeros_like(p), repeat_year=None)
     assert b["month"].nunique() == 12
     assert_allclose(bill_total(b), expected, **EXACT)
+
+
+def test_every_line_item_category_has_words_a_colour_a_saving_component_and_a_tax_base():
+    from dashboard.figures import BILL_COLOURS
+    from models.bill_savings import COMPONENT_CATEGORIES
+    from models.billing import _TAX_BASE_CATEGORIES, LINE_ITEM_CATEGORIES
+    from models.wording import LINE_ITEM_CATEGORIES as WORDS
+
+    assert set(WORDS) == set(LINE_ITEM_CATEGORIES)
+    assert set(BILL_COLOURS) == set(LINE_ITEM_CATEGORIES)
+    charges = set(LINE_ITEM_CATEGORIES) - {"tax"}
+    assert {c for group in COMPONENT_CATEGORIES.values() for c in group} == charges
+    assert set(_TAX_BASE_CATEGORIES["all_charges"]) == charges
+    # every charge is in exactly one of the narrower bases (docs/tariffs.md, the table of tax bases)
+    narrow = ("energy_charges", "demand_charges", "reactive_charges", "fixed_charges")
+    assert sorted(c for b in narrow for c in _TAX_BASE_CATEGORIES[b]) == sorted(charges)

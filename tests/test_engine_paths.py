@@ -48,7 +48,7 @@ from models.tariff import tariff_from_dict
 REPO = Path(__file__).resolve().parents[1]
 TARIFF_DIR = REPO / "data" / "tariffs"
 EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml",
-            "example_contracted_capacity.toml"]
+            "example_contracted_capacity.toml", "example_reactive_demand_pf_energy.toml"]
 # Bills of up to ~1e5 summed over months in another order than one scenario's bill: a few ulps.
 BILL_RTOL = 1e-12
 # A line item that is zero in one path and a sum of zeros in the other: float rounding only.
@@ -73,7 +73,8 @@ def _example(name: str):
 
 # A tariff with every clause kind the engine has a special path for: TOU kWh energy, a kW demand with a
 # peak-window PF adjustment and a ratchet in one period, a kVA demand, an interval-netted reactive
-# allowance, a banned leading charge, a fixed charge and a tax on everything (invented).
+# allowance, a banned leading charge, a kVAr demand above a share of the kW demand, a power-factor percentage
+# of the energy charges, a fixed charge and a tax on everything (invented).
 ALL_CLAUSES = '''
 [tariff]
 name = "all clauses (invented)"
@@ -116,6 +117,17 @@ name = "night leading"
 price_per_kvarh = 0.02
 banned = true
 periods = ["night"]
+[[reactive_demand]]
+name = "kvar"
+price_per_kvar_month = 0.4
+free_power_factor = 0.9
+window_min = 30
+periods = ["day"]
+[[energy_power_factor]]
+name = "pf"
+penalty = [{ below = 0.95, percent_per_point = 0.5 }, { below = 0.85, percent_per_point = 1.0 }]
+rebate = [{ above = 0.97, percent_per_point = 0.25 }]
+round_points = "up"
 [[taxes]]
 name = "VAT"
 rate_pct = 20.0

@@ -94,9 +94,9 @@ class TestExampleFiles:
         assert problems == []
         assert t is not None
 
-    def test_there_are_four_examples_marked_invented(self):
+    def test_there_are_five_examples_marked_invented(self):
         files = sorted(TARIFF_DIR.glob("*.toml"))
-        assert len(files) == 4
+        assert len(files) == 5
         for f in files:
             head = f.read_text(encoding="utf-8").splitlines()[0]
             assert head.startswith("#") and "INVENTED" in head.upper()
@@ -116,6 +116,12 @@ class TestExampleFiles:
         c = read("example_pf_adjusted_demand.toml")
         assert c.currency == "USD" and c.demand[0].power_factor_adjustment.target_power_factor == 0.90
         assert c.leading[0].banned and c.leading[0].periods == ("night",)
+        e = read("example_reactive_demand_pf_energy.toml")
+        assert e.reactive_demand[0].free_kvar_per_kw == 0.62 and e.reactive_demand[0].price_per_kvar_month == 0.85
+        pf = e.energy_power_factor[0]
+        assert [(b.power_factor, b.percent_per_point) for b in pf.penalties] == [(0.95, 0.5), (0.90, 1.0)]
+        assert [(b.power_factor, b.percent_per_point) for b in pf.rebates] == [(0.97, 0.25)]
+        assert pf.round_points == "down" and not pf.count_leading
 
 
 class TestAssignPeriods:
@@ -399,6 +405,34 @@ class TestValidation:
             ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_power_factor = 1.5', "reactive[1].free_power_factor", "(0, 1]"),
             ('[[reactive]]\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\nallowance_per = "week"', "reactive[1].allowance_per", "unknown value"),
             ('[[taxes]]\nname = "VAT"\nrate_pct = 20\nbase = "everything"', "taxes[1].base", "unknown tax base"),
+            ('[[reactive_demand]]\nfree_kvar_per_kw = 0.62', "reactive_demand[1].price_per_kvar_month", "required key"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_per_kw = -0.1',
+             "reactive_demand[1].free_kvar_per_kw", "must be >= 0"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_per_kw = 0.6\nfree_power_factor = 0.85',
+             "reactive_demand[1]", "free_kvar_per_kw or free_power_factor, not both"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nwindow_min = 20', "reactive_demand[1].window_min",
+             "demand window must be one of"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nperiods = ["peak"]', "reactive_demand[1].periods",
+             "unknown period"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\nname = "pf"', "energy_power_factor[1]",
+             "needs a penalty or a rebate band"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\npenalty = [{ below = 1.2, percent_per_point = 1 }]',
+             "energy_power_factor[1].penalty[1].below", "(0, 1]"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\npenalty = [{ below = 0.9, percent_per_point = 0 }]',
+             "energy_power_factor[1].penalty[1].percent_per_point", "(0, 100]"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\npenalty = [{ below = 0.9 }]',
+             "energy_power_factor[1].penalty[1].percent_per_point", "required key"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\n'
+             'penalty = [{ below = 0.9, percent_per_point = 1 }, { below = 0.9, percent_per_point = 2 }]',
+             "energy_power_factor[1].penalty[2].below", "share the edge"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\n'
+             'penalty = [{ below = 0.95, percent_per_point = 1 }]\nrebate = [{ above = 0.9, percent_per_point = 1 }]',
+             "energy_power_factor[1].rebate", "both penalised and rebated"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\n'
+             'penalty = [{ below = 0.9, percent_per_point = 1 }]\nround_points = "nearest"',
+             "energy_power_factor[1].round_points", "unknown value"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\npenalty = { below = 0.9 }',
+             "energy_power_factor[1].penalty", "expected a list of bands"),
             ('[[fixed]]\nname = "a"\ncharge_per_month = 1.0\n[[fixed]]\nname = "a"\ncharge_per_month = 2.0', "fixed[2].name", "duplicate name"),
             ('[energy]\nprice_per_kwh = { all = "cheap" }', "energy.price_per_kwh", "expected a table of numbers"),
         ],
@@ -409,6 +443,22 @@ class TestValidation:
         assert t is None
         match = [p for p in problems if p.column == key and rule_part in p.rule and p.severity == "error"]
         assert match, [str(p) for p in problems]
+
+    def test_energy_power_factor_without_energy_prices_is_warned(self):
+        text = ('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n'
+                '[[energy_power_factor]]\npenalty = [{ below = 0.9, percent_per_point = 1 }]')
+        t, problems = load(text)
+        assert t is not None
+        assert [p.column for p in problems if p.severity == "warning" and "no [energy] charge" in p.rule] == [
+            "energy_power_factor[1]"]
+
+    def test_misspelt_band_key_is_an_error_with_its_path(self):
+        text = ('[tariff]\nname = "x"\ncurrency = "EUR"\n[[periods]]\ncode = "all"\n[energy]\nprice_per_kwh = { all = 0.1 }\n'
+                '[[energy_power_factor]]\npenalty = [{ bellow = 0.9, percent_per_point = 1 }]')
+        t, problems = load(text)
+        assert t is None
+        assert any(p.column == "energy_power_factor[1].penalty[1].bellow" and "did you mean 'below'" in p.hint
+                   for p in problems), [str(p) for p in problems]
 
     def test_missing_tariff_table_and_currency(self):
         _, problems = load('[[periods]]\ncode = "all"')
