@@ -133,6 +133,52 @@ def measure_first_of(case, result) -> pd.DataFrame:
     return table
 
 
+def _savings_pv(result) -> np.ndarray | None:
+    """Present value of each result row's savings after tax [currency], at the result's discount rate."""
+    flows = result.cash_flows
+    if flows is None or result.results.empty:
+        return None
+    savings, _ = flows.savings_and_investment()
+    d = float(result.assumptions.discount_rate_frac)
+    return savings @ np.power(1.0 + d, -np.arange(savings.shape[1], dtype=float))
+
+
+def _decisions(case, chosen: pd.DataFrame) -> pd.DataFrame:
+    """The value of measuring each asset of ``chosen`` (rows of the result with ``savings_pv``, one per asset)
+    before deciding on its row's option against keeping the motor; in ``chosen``'s order, without ranks."""
+    sources = spread_sources(case)
+    spread = np.array([spread_frac(sources.get(str(a), ["load: mean load and hours"])) for a in chosen["asset_id"]])
+    sigma = spread * np.abs(chosen["savings_pv"].to_numpy(dtype=float))
+    value = evpi(chosen["npv"].to_numpy(dtype=float), sigma)
+    quality = case.assets.set_index(case.assets["asset_id"].astype(str)).get("data_quality_pct")
+    return pd.DataFrame({
+        "asset_id": chosen["asset_id"].to_numpy(dtype=object), "site_id": chosen["site_id"].to_numpy(dtype=object),
+        "option_id": chosen["option_id"].to_numpy(dtype=object), "label": chosen["label"].to_numpy(dtype=object),
+        "npv": chosen["npv"].to_numpy(dtype=float), "savings_pv": chosen["savings_pv"].to_numpy(dtype=float),
+        "spread_frac": spread, "npv_sigma": sigma, "value_of_measuring": value,
+        "uncertain_inputs": ["; ".join(SPREAD_WORDS[s] for s in sources.get(str(a), [])) for a in chosen["asset_id"]],
+        "data_quality_pct": (quality.reindex(chosen["asset_id"].astype(str)).to_numpy(dtype=float)
+                             if quality is not None else np.nan),
+    })
+
+
+def value_of_measuring_option(case, result, asset_id: str, option_id: str) -> pd.Series | None:
+    """The value of measuring one asset before deciding on a given option of it (the one a plan recommends,
+    which need not be its highest-NPV option priced alone) against keeping the motor: a row as
+    :func:`measure_first`'s (without ``rank``), or None where that option is today's motor or costs nothing.
+
+    The same spreads and EVPI as :func:`measure_first`, on that option's own NPV and savings.
+    """
+    r = result.results
+    rows = np.flatnonzero((r["asset_id"].astype(str) == str(asset_id)).to_numpy()
+                          & (r["option_id"].astype(str) == str(option_id)).to_numpy()
+                          & (r["technology"] != "existing").to_numpy() & (r["capital"] > 0).to_numpy())
+    pv = _savings_pv(result) if len(rows) else None
+    if pv is None:
+        return None
+    return _decisions(case, r.iloc[rows[:1]].assign(savings_pv=pv[rows[:1]])).iloc[0]
+
+
 def measure_first(case, result) -> pd.DataFrame:
     """Rank the assets by the value of measuring them before deciding.
 
@@ -155,33 +201,16 @@ def measure_first(case, result) -> pd.DataFrame:
     r = result.results
     columns = ["rank", "asset_id", "site_id", "option_id", "label", "npv", "savings_pv", "spread_frac", "npv_sigma",
                "value_of_measuring", "uncertain_inputs", "data_quality_pct"]
-    flows = result.cash_flows
-    if flows is None or r.empty:
+    savings_pv = _savings_pv(result)
+    if savings_pv is None:
         return pd.DataFrame(columns=columns)
-    savings, _ = flows.savings_and_investment()
-    d = float(result.assumptions.discount_rate_frac)
-    discount = np.power(1.0 + d, -np.arange(savings.shape[1], dtype=float))
-    savings_pv = savings @ discount
     candidates = np.flatnonzero((r["technology"] != "existing").to_numpy() & (r["capital"] > 0).to_numpy())
     if not len(candidates):
         return pd.DataFrame(columns=columns)
     frame = r.iloc[candidates].assign(savings_pv=savings_pv[candidates])
     best = frame.sort_values(["asset_id", "npv"], ascending=[True, False], kind="mergesort").groupby(
         "asset_id", sort=False).head(1)
-    sources = spread_sources(case)
-    spread = np.array([spread_frac(sources.get(str(a), ["load: mean load and hours"])) for a in best["asset_id"]])
-    sigma = spread * np.abs(best["savings_pv"].to_numpy(dtype=float))
-    value = evpi(best["npv"].to_numpy(dtype=float), sigma)
-    quality = case.assets.set_index(case.assets["asset_id"].astype(str)).get("data_quality_pct")
-    out = pd.DataFrame({
-        "asset_id": best["asset_id"].to_numpy(dtype=object), "site_id": best["site_id"].to_numpy(dtype=object),
-        "option_id": best["option_id"].to_numpy(dtype=object), "label": best["label"].to_numpy(dtype=object),
-        "npv": best["npv"].to_numpy(dtype=float), "savings_pv": best["savings_pv"].to_numpy(dtype=float),
-        "spread_frac": spread, "npv_sigma": sigma, "value_of_measuring": value,
-        "uncertain_inputs": ["; ".join(SPREAD_WORDS[s] for s in sources.get(str(a), [])) for a in best["asset_id"]],
-        "data_quality_pct": (quality.reindex(best["asset_id"].astype(str)).to_numpy(dtype=float)
-                             if quality is not None else np.nan),
-    })
+    out = _decisions(case, best)
     out = out.sort_values(["value_of_measuring", "asset_id"], ascending=[False, True], kind="mergesort").reset_index(drop=True)
     out.insert(0, "rank", np.arange(1, len(out) + 1))
     return out[columns]

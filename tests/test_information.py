@@ -158,7 +158,9 @@ def test_the_decision_record_names_the_value_of_measuring_first(demo_run_physics
     case, phys = demo_run_physics
     result = scenario.economics(case, phys, case.finance, with_risk=False)
     table = measure_first(case, result)
-    top, clear = table.iloc[0], table[table["value_of_measuring"] <= 1.0].iloc[0]
+    recommended = content.select_scope(case, result, assets=list(table["asset_id"]), plan=False).recommended
+    same = table[table["option_id"].to_numpy() == recommended.set_index("asset_id").loc[table["asset_id"], "option_id"].to_numpy()]
+    top, clear = same.iloc[0], same[same["value_of_measuring"] <= 1.0].iloc[0]
     notes = record_context(case, result, content.select_scope(case, result, assets=[top["asset_id"]], plan=False),
                            top["asset_id"])["data_notes"]
     assert any(n.startswith(f"Measuring it first is worth up to EUR {top['value_of_measuring']:,.0f}: the NPV of "
@@ -166,3 +168,36 @@ def test_the_decision_record_names_the_value_of_measuring_first(demo_run_physics
     notes = record_context(case, result, content.select_scope(case, result, assets=[clear["asset_id"]], plan=False),
                            clear["asset_id"])["data_notes"]
     assert not any(n.startswith("Measuring it first") for n in notes)
+
+
+def test_a_record_s_value_of_measuring_is_of_the_option_it_recommends(demo_run_physics):
+    # HRW-M12's highest NPV priced alone is its motor-terminal capacitor, whose value the rest of the plan already
+    # takes; its record recommends the PM motor on a drive. The record's note spoke of the capacitor (worth EUR 1
+    # to measure); it now weighs the option it recommends, with that option's own NPV
+    from models.information import value_of_measuring_option
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    best = measure_first(case, result).set_index("asset_id").loc["HRW-M12"]
+    scope = content.select_scope(case, result, assets=["HRW-M12"], plan=False)
+    rec = scope.recommended.set_index("asset_id").loc["HRW-M12"]
+    assert best["option_id"] == "capacitor" and rec["option_id"] == "pm_drive"
+    own = value_of_measuring_option(case, result, "HRW-M12", "pm_drive")
+    r = result.results
+    row = r[(r["asset_id"] == "HRW-M12") & (r["option_id"] == "pm_drive")].iloc[0]
+    assert own["npv"] == pytest.approx(float(row["npv"])) and own["label"] == row["label"]
+    # EVPI by the formula of section 9, written out with scipy's normal (not the module's function)
+    from scipy.stats import norm
+    z = own["npv"] / own["npv_sigma"]
+    assert own["value_of_measuring"] == pytest.approx(
+        own["npv"] * norm.cdf(z) + own["npv_sigma"] * norm.pdf(z) - max(own["npv"], 0.0), rel=1e-9, abs=1e-9)
+    notes = [n for n in record_context(case, result, scope, "HRW-M12")["data_notes"] if n.startswith("Measuring it first")]
+    assert all(str(best["label"]) not in n for n in notes)
+    if own["value_of_measuring"] > 1.0:
+        assert notes and f"the NPV of {row['label']}" in notes[0]
+    else:
+        assert not notes
+    # today's motor kept, or an option costing nothing, has no decision of its own to weigh
+    assert value_of_measuring_option(case, result, "HRW-M12", "keep") is None

@@ -16,7 +16,7 @@ from markupsafe import Markup
 from models.case import power_label, rating_in_unit
 from models.defaults import QUALITY_PENALTY_PCT
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
-from models.information import measure_first_of
+from models.information import measure_first_of, value_of_measuring_option
 from models.options import technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
@@ -290,8 +290,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         cautions += list(flags.loc[flags["option_id"] == rec["option_id"], "flag"])
     worth = measure_first_of(case, result)
     worth = worth[worth["asset_id"].astype(str) == str(asset_id)]
-    if len(worth) and float(worth["value_of_measuring"].iloc[0]) > 1.0:
-        w = worth.iloc[0]
+    w = worth.iloc[0] if len(worth) else None
+    if not is_keep and w is not None and str(w["option_id"]) != str(rec["option_id"]):
+        # the note speaks of the option this record recommends, not of the highest NPV priced alone
+        w = value_of_measuring_option(case, result, asset_id, str(rec["option_id"]))
+    if w is not None and float(w["value_of_measuring"]) > 1.0:
         data_notes.append(f"Measuring it first is worth up to {content.money(float(w['value_of_measuring']), cur)}: "
                           f"the NPV of {w['label']} ({content.money(float(w['npv']), cur)}) rests on "
                           f"{w['uncertain_inputs']}. Log kW, power factor and hours for 1-4 weeks where that costs less.")
