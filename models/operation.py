@@ -44,6 +44,12 @@ SCREEN_VOLTAGE_DIP_FRAC = 0.10
 #: mean power of an interval, which the meter and the bills read, is kept. Common practice for a process whose
 #: throughput is set upstream; a machine that runs fixed hours whatever it delivers would take 1.
 CONSTANT_TORQUE_RISE_EXPONENT = 0.0
+#: The same exponent for a centrifugal load started and stopped to move a set volume (a sump or tank pump on
+#: a level switch, ``speed_control`` ``on_off``): turned faster it draws the cube of the speed while it runs
+#: but moves the volume in less running time (flow with the speed), so the mean power of an interval rises
+#: with the square (energy per volume with the square of the speed; common practice, the affinity laws with a
+#: fixed pumped volume, friction head only). Continuously running centrifugal loads keep the cube.
+ON_OFF_RISE_EXPONENT = 2.0
 #: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
 #: (rotor copper loss = slip x air-gap power; common practice).
 SLIP_SCALING_BOUNDS = (0.6, 1.0)
@@ -172,9 +178,11 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "rewind_loss": (a["rewind_loss_pct_points"].to_numpy(dtype=float) if "rewind_loss_pct_points" in a
                         else np.full(len(a), induction.DEFAULT_REWIND_LOSS_PCT_POINTS)),
         "exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0, 1.0),
-        # what a speed rise does to the mean power of an interval: the cube for a centrifugal load; nothing for
-        # a constant-torque one, which does the same work in less running time
-        "rise_exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0,
+        # what a speed rise does to the mean power of an interval: the cube for a centrifugal load, the square
+        # for one switched on and off to move a set volume; nothing for a constant-torque one, which does the
+        # same work in less running time
+        "rise_exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque",
+                                  np.where(speed_control == "on_off", ON_OFF_RISE_EXPONENT, 3.0),
                                   CONSTANT_TORQUE_RISE_EXPONENT),
         "throttled": speed_control == "throttled",
         "has_drive": speed_control == "drive",

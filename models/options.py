@@ -254,7 +254,7 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     app_ok = np.array([[not allowed or a in allowed for allowed in apps] for a in app[:, 0]], dtype=bool).reshape(n_a, n_o)
     exclude(~app_ok, "not offered for this application")
     exclude((tech == "add_drive") & (control == "drive"), "a drive is already fitted")
-    exclude((tech == "add_drive") & (load_type == "constant_torque") & (control == "fixed"),
+    exclude((tech == "add_drive") & (load_type == "constant_torque") & np.isin(control, ["fixed", "on_off"]),
             "a drive on a fixed-speed constant-torque load only adds losses")
     exclude((tech == "line_start_pm") & (control == "drive"), "speed is drive-controlled: a PM motor on the drive fits better")
     exclude((tech == "wound_field") & (control == "drive"),

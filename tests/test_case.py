@@ -1530,6 +1530,24 @@ def test_no_line_fed_synchronous_machine_where_a_drive_sets_the_speed():
     assert applies[0, pm_drive].all()  # the synchronous choice on a drive
 
 
+def test_no_drive_on_a_constant_torque_load_switched_on_and_off():
+    # a drive on a constant-torque load that runs at fixed speed, continuously or on and off, only adds losses; a
+    # pump switched on and off is offered one
+    from models.options import applicability
+
+    case, _ = load_case(ROOT / "data" / "demo")
+    assets = pd.DataFrame({"rated_p_kw": [30.0] * 3, "poles": [4] * 3, "application": ["conveyor", "conveyor", "pump"],
+                           "load_type": ["constant_torque", "constant_torque", "variable_torque"],
+                           "speed_control": ["fixed", "on_off", "on_off"], "machine_type": ["induction"] * 3,
+                           "rated_v_v": [400.0] * 3})
+    options = case.options.copy()
+    options.loc[options["technology"] == "add_drive", "applications"] = ""  # offered for every application
+    applies, reason = applicability(options, assets, "EU")
+    cols = np.flatnonzero(options["technology"].to_numpy(dtype=object) == "add_drive")
+    assert len(cols) and not applies[:2, cols].any() and applies[2, cols].all()
+    assert all(r == "a drive on a fixed-speed constant-torque load only adds losses" for r in reason[:2, cols].ravel())
+
+
 def test_a_misspelt_finance_table_is_refused_not_ignored(tmp_path):
     # [financ] holding the case's keys would leave every assumption at its default (no budget limit among them):
     # refused, naming the table

@@ -416,3 +416,27 @@ def test_a_constant_torque_load_turned_faster_does_the_same_work(tmp_path):
     assert_allclose(r.mean_speed_rpm[0, lspm], 1500.0, rtol=1e-9)
     assert r.mean_speed_rpm[0, ie4] > r.mean_speed_rpm[0, keep]
     assert_allclose(r.shaft_energy_kwh[0, [lspm, ie4]], r.shaft_energy_kwh[0, keep], rtol=1e-12)
+
+
+@pytest.mark.parametrize("control, exponent", [("fixed", 3.0), ("on/off", 2.0), ("level control", 2.0)])
+def test_a_pump_switched_on_and_off_moves_its_volume_in_less_time(tmp_path, control, exponent):
+    # A 30 kW pump (1,470 rpm rated, at 80 % load today): a line-start PM motor turns it at 1,500 rpm. Running
+    # continuously it draws the cube of the speed; emptying a sump on a level switch it draws that while it runs
+    # but moves the volume in n_today/1,500 of the time, so the interval's mean shaft power rises with the square
+    # (hand calculation, docs/derivations/loads-speed-coupling.md, "A pump switched on and off"), n_today being
+    # today's motor's speed at its load. "on/off" and "level control" are read as on_off (docs/case-format.md).
+    header = cb.ASSET_HEADER + ["load_type"]
+    row = ["S1", "Sump pump", "pump", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
+           control, "", "6000", "80", "medium", "variable_torque"]
+    cb.write_case(tmp_path, assets=[["P9"] + row], asset_header=header, capacitors=[], duty=[], profiles=[])
+    (tmp_path / "profiles.csv").unlink()
+    case, problems = load_case(tmp_path, mode="strict")
+    assert case is not None, [p.message for p in problems]
+    assert case.assets["speed_control"].iloc[0] == ("fixed" if control == "fixed" else "on_off")
+    r = operate(case)
+    keep, lspm = r.option_position("keep"), r.option_position("lspm")
+    assert_allclose(r.mean_speed_rpm[0, lspm], 1500.0, rtol=1e-9)
+    n_today = float(r.mean_speed_rpm[0, keep])
+    assert 1470.0 < n_today < 1480.0  # less slip at 80 % load than at rated
+    assert_allclose(r.shaft_energy_kwh[0, lspm] / r.shaft_energy_kwh[0, keep], (1500.0 / n_today) ** exponent,
+                    rtol=1e-9)
