@@ -1685,6 +1685,17 @@ def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.Dat
     return pd.DataFrame(rows)
 
 
+def plan_financing_text(result) -> str:
+    """The plan's financing in words (finance.toml's ``financing``: the owner's NPV and the most it is out of
+    pocket, financed and in cash), or "" for a plan paid in cash or one that buys nothing."""
+    from models.financing import financing_summary, financing_text, plan_financing
+
+    if not len(result.plan) or str(getattr(result.assumptions, "financing", "cash")) == "cash":
+        return ""
+    summary = financing_summary(plan_financing(result), float(result.assumptions.discount_rate_frac))
+    return financing_text(result.assumptions, summary, result.assumptions.currency)
+
+
 def plan_solve_text(result) -> str:
     """Say in plain words how far the exact plan is proven (a live edit bounds the solver's time), and
     which reactive projects were left out as worthless beside the rest of the plan (by asset and option

@@ -15,11 +15,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from models.financing import FINANCED_COLUMNS, plan_financing
+
 #: Characters that make a spreadsheet read a cell as a formula.
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 #: The files of a run, in the order they are written (documented in docs/outputs.md).
-RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank_order.csv", "risk.csv",
+RUN_FILES = ("results.csv", "cashflows.csv", "bills.csv", "plan.csv", "plan_rank_order.csv", "financing.csv", "risk.csv",
              "tornado.csv", "plan_risk.csv", "plan_tornado.csv", "npv_draws.csv", "abatement.csv", "end_of_life.csv", "fleet_rules.csv", "lcc.csv", "flags.csv",
              "calibration.csv", "calibration_months.csv")
 #: The file saying what a run was computed with (:func:`run_settings`), written beside :data:`RUN_FILES`.
@@ -251,6 +253,7 @@ EMPTY_COLUMNS = {
     "plan_rank_order.csv": ["asset_id", "option_id", "start_yr", "capital", "npv", "npv_at_plan_start"],
     "flags.csv": ["asset_id", "option_id", "flag"],
     "lcc.csv": ["asset_id", "option_id", "component", "pv"],
+    "financing.csv": list(FINANCED_COLUMNS),
     "calibration.csv": ["site_id", "quantity", "unit", "n_months", "modelled_total", "billed_total", "nmbe_pct",
                         "cv_rmse_pct", "within_criteria"],
     "calibration_months.csv": ["site_id", "month", "quantity", "unit", "modelled", "billed", "difference_pct"],
@@ -345,7 +348,7 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         "plan_rank_order.csv": result.plan_greedy, "risk.csv": risk_rows, "tornado.csv": result.tornado,
         "plan_risk.csv": plan_risk_rows, "plan_tornado.csv": result.plan_tornado, "npv_draws.csv": draws,
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,
-        "lcc.csv": result.lcc, "flags.csv": flags,
+        "lcc.csv": result.lcc, "flags.csv": flags, "financing.csv": plan_financing(result),
     }
     # today's fleet as modelled against the bills the case gives (header only without them)
     months, summary = pd.DataFrame(), pd.DataFrame()

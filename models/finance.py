@@ -1334,6 +1334,20 @@ class FinanceAssumptions:
     capital_cost_factor : float
         Price level of the options' capital [-], > 0: every capital component (equipment, drive,
         installation, engineering, contingency, capacitor banks, rewinds) is multiplied by it.
+    financing : {"cash", "loan", "shared_savings"}
+        How the owner pays for the plan, for the financed view of its cash flows (:mod:`models.financing`);
+        every decision metric and the plan itself stay on the cash basis.
+    loan_share_frac : float
+        Share of each year's capital borrowed [frac], 0-1 (``loan``).
+    loan_rate_frac : float
+        The loan's nominal interest rate [frac/yr] (``loan``), as lenders quote it.
+    loan_term_yr : int
+        Years of equal (annuity) repayments after each draw [yr] (``loan``).
+    shared_savings_share_frac : float
+        Share of the operating savings after tax paid to the energy-service company during its contract
+        [frac], 0-1 (``shared_savings``).
+    shared_savings_term_yr : int
+        The contract's length after the company's purchase [yr] (``shared_savings``).
     budget_per_yr : tuple of float
         Capital budget of plan years 0, 1, ... [currency]; empty = no capital limit.
     monte_carlo_draws : int
@@ -1364,6 +1378,12 @@ class FinanceAssumptions:
     capacitor_cost_per_kvar: float = 30.0
     energy_price_factor: float = 1.0
     capital_cost_factor: float = 1.0
+    financing: str = "cash"
+    loan_share_frac: float = 1.0
+    loan_rate_frac: float = 0.06
+    loan_term_yr: int = 5
+    shared_savings_share_frac: float = 0.5
+    shared_savings_term_yr: int = 7
     budget_per_yr: tuple[float, ...] = ()
     monte_carlo_draws: int = 1000
     monte_carlo_seed: int = 12345
@@ -1477,7 +1497,11 @@ DISCOUNT_RATE_DRAW_SPREAD_FRAC = 0.02
 #: The longest study period a case may ask for [yr] (and so the most plan years a budget may have).
 MAX_HORIZON_YR = 100
 
-_INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed")
+_INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed", "loan_term_yr",
+                 "shared_savings_term_yr")
+#: How the owner may pay for the plan (:mod:`models.financing`): in cash, with a loan, or through an
+#: energy-service company paid from the savings.
+FINANCING_KINDS: tuple[str, ...] = ("cash", "loan", "shared_savings")
 #: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
 FIELD_NOTES: dict[str, tuple[str, str]] = {
     "currency": ("ISO 4217", "currency of every amount"),
@@ -1503,13 +1527,20 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
                                 "machine's kVAr (the capacitor option's own price is its row of the options catalogue)"),
     "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
     "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
+    "financing": ("-", "cash, loan or shared_savings: the owner's financed view of the plan (the plan and its "
+                  "metrics stay on the cash basis)"),
+    "loan_share_frac": ("frac", "share of each year's capital borrowed (loan)"),
+    "loan_rate_frac": ("frac/yr", "the loan's nominal interest rate (loan)"),
+    "loan_term_yr": ("yr", "years of equal repayments after each draw (loan)"),
+    "shared_savings_share_frac": ("frac", "share of the savings paid to the energy-service company (shared_savings)"),
+    "shared_savings_term_yr": ("yr", "the energy-service contract's length (shared_savings)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
     "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
     "monte_carlo_seed": ("-", "seed of the random draws"),
 }
 
 
-_TEXT_KEYS = ("currency", "rate_basis", "replacement_mode")
+_TEXT_KEYS = ("currency", "rate_basis", "replacement_mode", "financing")
 
 
 def _shown(value: Any) -> str:
@@ -1667,6 +1698,20 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
     for key in ("incentive_capital_share_frac", "tax_rate_frac"):
         if not (math.isfinite(values[key]) and 0.0 <= values[key] < 1.0):
             bad(key, "must be a fraction from 0 up to (not including) 1", "e.g. 0.25 for 25 %")
+    if values["financing"] not in FINANCING_KINDS:
+        bad("financing", "must be 'cash', 'loan' or 'shared_savings'",
+            "cash: the owner pays; loan: a share borrowed and repaid in equal yearly payments; shared_savings: an "
+            "energy-service company pays and takes a share of the savings for its contract's years")
+    for key in ("loan_share_frac", "shared_savings_share_frac"):
+        if not (math.isfinite(values[key]) and 0.0 <= values[key] <= 1.0):
+            bad(key, "must be a fraction from 0 to 1", "e.g. 0.8 for 80 %")
+    if not (math.isfinite(values["loan_rate_frac"]) and -0.5 < values["loan_rate_frac"] <= 1.0):
+        bad("loan_rate_frac", "must be a fraction above -0.5 and at most 1", "rates are fractions: 6 % is 0.06")
+    elif not 0.0 <= values["loan_rate_frac"] <= 0.3:
+        odd("loan_rate_frac", "a loan rate outside 0-0.3 is unusual", "check the value; 6 % is 0.06")
+    for key in ("loan_term_yr", "shared_savings_term_yr"):
+        if not 1 <= values[key] <= MAX_HORIZON_YR:
+            bad(key, f"must be between 1 and {MAX_HORIZON_YR} years", "loans and energy-service contracts run 3-15 years")
     if not 1 <= values["depreciation_yr"] <= 100:
         bad("depreciation_yr", "must be between 1 and 100 years", "straight-line tax life, often 5-20 years")
     budget = values["budget_per_yr"]

@@ -89,3 +89,27 @@ def test_site_meter_sets_the_model_beside_the_sites_bills(small_engine, monkeypa
     assert len(said) == 1 and said[0].startswith("energy NMBE ") and " over 3 months, " in said[0]
     assert said[0] in text
     assert "against the site's bills" not in _text(site.update("HRW", None, session, None)[4])
+
+
+def test_plan_page_says_the_plan_s_financing(tmp_path_factory, monkeypatch):
+    """A case whose finance.toml finances the plan with a loan: the Capital plan page says the owner's NPV and
+    the most it is out of pocket, financed and in cash, in the words of models.financing.financing_text (the
+    figures are models.financing's, tested in tests/test_financing.py); a case paid in cash says nothing."""
+    from dashboard.pages import plan
+    from test_dashboard_services import write_small_case
+
+    folder = write_small_case(tmp_path_factory.mktemp("cases") / "loan")
+    finance = folder / "finance.toml"
+    finance.write_text(finance.read_text(encoding="utf-8") + 'financing = "loan"\nloan_share_frac = 0.8\n'
+                       'loan_rate_frac = 0.05\nloan_term_yr = 6\n', encoding="utf-8")
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(folder)
+    assert entry is not None, problems
+    monkeypatch.setattr(services, "_ENGINE", eng)
+    text = _text(plan.update(True, None, None)[6])
+    assert "With 80 % of the capital borrowed at 5 % a year (nominal) and repaid over 6 years, the owner's NPV" in text
+    assert "(paid in cash: EUR " in text and "on the cash basis" in text
+    cash = services.Engine(upload_root=tmp_path_factory.mktemp("uploads2"))
+    entry, problems = cash.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "cash"))
+    monkeypatch.setattr(services, "_ENGINE", cash)
+    assert "borrowed" not in _text(plan.update(True, None, None)[6])

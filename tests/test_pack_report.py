@@ -1046,3 +1046,28 @@ def test_a_record_of_a_later_plan_year_gives_the_reports_npv_and_says_the_outage
     html = render_decision_record(case, result, select_scope(case, result), "HRW-P01")
     text = re.sub(r"\s+", " ", re.sub("<[^>]+>", " ", html)).replace("&#39;", "'")
     assert "outage priced at EUR 2,000/h" in text and "(The NPVs above count no outage.)" in text
+
+
+def test_a_financed_plan_is_said_in_the_summary_and_tabled_in_the_cash_flow_section(demo_run_physics):
+    # finance.toml's financing (a loan here): the summary gives the owner's NPV financed and in cash in the words
+    # of models.financing.financing_text, and section 5 tables the plan's yearly flows to the owner, whose
+    # columns add up to the financed net (the figures themselves: tests/test_financing.py)
+    from dataclasses import replace
+
+    from models.financing import financing_summary, financing_text, plan_financing
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    a = replace(case.finance, financing="loan", loan_share_frac=0.8, loan_rate_frac=0.05, loan_term_yr=6)
+    result = scenario.economics(case, phys, a, with_risk=False)
+    ctx = report_context(case, result, content.select_scope(case, result, None, True), [])
+    table = plan_financing(result)
+    said = financing_text(a, financing_summary(table, a.discount_rate_frac), case.settings.currency)
+    assert said and said in ctx["summary_text"]
+    assert ctx["financed_headers"][:2] == ["Plan year", "Cash net [EUR]"] and len(ctx["financed_rows"]) == len(table)
+    first = [c["text"] for c in ctx["financed_rows"][0]["cells"]]
+    assert first[1] == f"{table['cash_net'].iloc[0]:,.0f}" and first[-2] == f"{table['financed_net'].iloc[0]:,.0f}"
+    cash = report_context(case, scenario.economics(case, phys, case.finance, with_risk=False),
+                          content.select_scope(case, result, None, True), [])
+    assert cash["financed_rows"] == [] and "borrowed" not in cash["summary_text"]

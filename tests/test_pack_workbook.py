@@ -822,3 +822,32 @@ def test_the_plan_sheet_npv_formulas_give_the_engines_figures_under_an_income_ta
     ws = load_workbook(path)["Plan"]
     row = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 2).value == "KGQ-AC01" and ws.cell(r, 3).value == "capacitor")
     assert "*(1-0.25)*" in str(ws.cell(row, 6).value)
+
+
+def test_the_financing_sheet_holds_the_plan_s_flows_to_the_owner(small, tmp_path):
+    # a shared-savings contract on the small case: the Financing sheet gives each plan year's cash net and the
+    # company's parts as values and the financed net and its running sum as formulas; evaluated independently
+    # they are models.financing.plan_financing's (its figures: tests/test_financing.py)
+    from models.financing import plan_financing
+
+    case, result = small
+    a = dataclasses.replace(result.assumptions, financing="shared_savings", shared_savings_share_frac=0.6,
+                            shared_savings_term_yr=3)
+    financed = scenario.economics(case, result.physics, a, with_risk=False)
+    assert len(financed.plan)
+    out = tmp_path / "pack"
+    write_pack(case, financed, out)
+    path = out / WORKBOOK_NAME
+    ws = load_workbook(path)["Financing"]
+    assert "energy-service company" in str(ws.cell(2, 1).value)
+    header = [ws.cell(5, c).value for c in range(1, ws.max_column + 1)]
+    net_col, cum_col = header.index("Financed net [EUR]") + 1, header.index("Cumulative financed [EUR]") + 1
+    table = plan_financing(financed)
+    values = evaluate(path)
+    for k, r in enumerate(table.to_dict("records")):
+        row = 6 + k
+        assert ws.cell(row, 1).value == r["year"]
+        assert str(ws.cell(row, net_col).value).startswith("=SUM(")
+        net = values[("FINANCING", f"{ws.cell(row, net_col).column_letter}{row}")]
+        cum = values[("FINANCING", f"{ws.cell(row, cum_col).column_letter}{row}")]
+        assert_allclose([float(net), float(cum)], [r["financed_net"], r["cumulative_financed"]], rtol=1e-9, atol=1e-6)

@@ -149,6 +149,9 @@ def update(_ready, session, edits, _proved=None):
             f"Caution: {counted(n_low, 'project')} of the plan ({share_low:.0%} of its NPV) rest on assets whose data "
             f"quality is below {LOW_DATA_QUALITY_PCT:.0f} %: read their nameplates and log their loads before the "
             "money is approved.", className="small caution", id="plan-low-quality")]
+    financing = services.plan_financing_text(result)
+    if financing:  # the owner's view under the case's loan or energy-service contract
+        summary += [html.Br(), html.Span(financing, className="small", id="plan-financing")]
     diff_columns = [ui.text_col("plan", "Only in")] + project_columns(c)[:4] + [project_columns(c)[5]]
     return (figures.plan_by_year(by_year, c, name), figures.plan_comparison(comparison, c, name),
             tables["exact"].to_dict("records"), project_columns(c),

@@ -86,6 +86,28 @@ def _option_rows(frame: pd.DataFrame, cur: str, horizon: int, recommended: set[s
     return rows
 
 
+def _financed_context(result, financed, cur: str) -> dict[str, Any]:
+    """The report's table of the plan's flows to the owner under its financing (empty for cash)."""
+    if financed is None:
+        return {"financed_headers": [], "financed_rows": [], "financed_numeric": (), "financed_note": ""}
+    loan = str(result.assumptions.financing) == "loan"
+    parts = (("loan_proceeds", "Borrowed"), ("loan_repayment", "Repaid"), ("interest_tax_shield", "Interest tax shield")) if loan \
+        else (("company_capital", "Capital paid by the company"),
+              ("company_incentive_and_depreciation", "Incentive, depreciation and residual kept by it"),
+              ("company_savings_share", "Savings share paid to it"))
+    headers = ["Plan year", f"Cash net [{cur}]"] + [f"{t} [{cur}]" for _, t in parts] + [
+        f"Financed net [{cur}]", f"Cumulative financed [{cur}]"]
+    rows = [row([cell(int(r["year"]), "num"), num(r["cash_net"])] + [num(r[k]) for k, _ in parts]
+                + [num(r["financed_net"]), num(r["cumulative_financed"])])
+            for r in financed.to_dict("records")]
+    note = ("Repayments are the loan's equal yearly payments, in base-year money where the analysis is real; a "
+            "balance still owed at the end is repaid in the last year." if loan else
+            "The company buys each project's first purchase and keeps its incentive and depreciation; later "
+            "purchases are the owner's, and so is the equipment once the contract ends.")
+    return {"financed_headers": headers, "financed_rows": rows, "financed_numeric": tuple(range(len(headers))),
+            "financed_note": note}
+
+
 def report_context(case, result, scope: content.Scope, files: list[str]) -> dict[str, Any]:
     """Return everything the report template shows (plain values; the template escapes them)."""
     s = case.settings
@@ -187,6 +209,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     taxes = content.taxes_text(result, cur) if scope.mode != "assets" and len(result.plan) else ""
     if taxes:
         summary += " " + taxes
+    financed = None
+    if scope.mode != "assets" and len(result.plan) and str(getattr(result.assumptions, "financing", "cash")) != "cash":
+        from models.financing import financing_summary, financing_text, plan_financing
+
+        financed = plan_financing(result)
+        summary += " " + financing_text(result.assumptions, financing_summary(
+            financed, float(result.assumptions.discount_rate_frac)), cur) + " (section 5)."
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)
@@ -404,6 +433,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                          f"Cumulative discounted [{cur}]"], "flow_rows": flow_rows,
         "flow_note": flow_note,
         "flow_numeric": (0, 1, 2, 3, 4),
+        **_financed_context(result, financed, cur),
         "tornado_note": content.tornado_text(unc), "plan_npv_note": content.plan_npv_text(unc, cur),
         "mc_headers": mc_headers, "mc_rows": mc_rows, "mc_note": content.monte_carlo_text(unc),
         "mc_numeric": tuple(range(1, len(mc_headers))),

@@ -128,6 +128,8 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <div class="figure">{{ figures.cumulative }}</div>
 <p class="small">Net flows of the recommended projects by plan year ({{ currency }}), each project from its own plan year, as the plan counts them: a reactive project (capacitor, wound-field machine) at the share of its bill saving it adds beside the plan's other projects{% if flow_note %} ({{ flow_note }}){% endif %}. The last cumulative discounted value is the NPV of section 1.</p>
 {{ table(flow_headers, flow_rows, flow_numeric) }}
+{% if financed_rows %}<p class="small">The same plan's flows to the owner under its financing ({{ currency }}). {{ financed_note }} The plan, its ranking and every other figure of this report are on the cash basis.</p>
+{{ table(financed_headers, financed_rows, financed_numeric) }}{% endif %}
 
 <h2 id="risk">6. Sensitivity and Monte Carlo</h2>
 <p class="small">{{ tornado_note }}</p>

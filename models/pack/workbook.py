@@ -37,8 +37,8 @@ from models.reactive_plan import withdrawn_text
 from models.wording import counted, line_item_text
 
 #: Sheet names, in workbook order.
-SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills",
-                           "Data quality", "End of life", "Risk")
+SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Financing", "Scenarios",
+                           "Bills", "Data quality", "End of life", "Risk")
 #: Longest text a spreadsheet cell holds [characters].
 MAX_CELL_TEXT = 32_767
 #: Relative tolerance of the "Checks" sheet: workbook formula vs engine (0.01 %).
@@ -861,6 +861,42 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
 
 
+def _financing(ws: Worksheet, result, f: _Formats) -> None:
+    """The exact plan's yearly flows to the owner, in cash and under the case's financing
+    (:func:`models.financing.plan_financing`); the financed net and its running sum are formulas of the row."""
+    from models.financing import financing_summary, financing_text, plan_financing
+
+    a = result.assumptions
+    _title(ws, "The exact plan's cash flows to the owner, in cash and under the case's financing")
+    table = plan_financing(result)
+    text = financing_text(a, financing_summary(table, float(a.discount_rate_frac)), f.currency)
+    put_text(ws, 2, 1, text or "Financing: cash (finance.toml's financing key): the owner pays every project's capital, "
+             "so the financed columns are zero and the financed net is the cash net.")
+    put_text(ws, 3, 1, "Each project from its plan year, as the plan counts it (the cash net's discounted sum is the plan's "
+             "NPV). The plan, its ranking and every metric are on the cash basis.")
+    cols = [("cash_net", "Cash net"), ("loan_proceeds", "Loan borrowed"), ("loan_repayment", "Loan repaid"),
+            ("interest_tax_shield", "Interest tax shield"), ("company_capital", "Capital paid by the company"),
+            ("company_incentive_and_depreciation", "Incentive, depreciation and residual kept by the company"),
+            ("company_savings_share", "Savings share paid to the company")]
+    row = 5
+    _header(ws, row, ["Plan year"] + [f"{h} [{f.currency}]" for _, h in cols]
+            + [f"Financed net [{f.currency}]", f"Cumulative financed [{f.currency}]"])
+    last = get_column_letter(1 + len(cols))
+    net_col, cum_col = 2 + len(cols), 3 + len(cols)
+    total = 0.0
+    for r in table.to_dict("records"):
+        row += 1
+        put(ws, row, 1, int(r["year"]), "0")
+        for k, (name, _) in enumerate(cols):
+            put(ws, row, 2 + k, float(r[name]), f.money)
+        total += float(r["financed_net"])
+        put_formula(ws, row, net_col, f"=SUM(B{row}:{last}{row})", f.money, float(r["financed_net"]))
+        net = get_column_letter(net_col)
+        put_formula(ws, row, cum_col, f"=SUM({net}$6:{net}{row})", f.money, total)
+    ws.freeze_panes = "B6"
+    _widths(ws, {1: 10, **{c: 16 for c in range(2, cum_col + 1)}})
+
+
 def _bills(ws: Worksheet, result, f: _Formats) -> None:
     _title(ws, "Monthly bills before (today's fleet) and after (the exact fleet plan in place)")
     put_text(ws, 2, 1, "'After' prices the whole exact plan, whatever the scope of this pack.")
@@ -1094,6 +1130,8 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
         "Cash flows": "per project: yearly flows by component and live formulas for NPV, IRR and paybacks",
         "Checks": "each formula's value beside the engine's, with an OK/CHECK status",
         "Plan": "exact and rank-order fleet plans, capital per plan year against the budget",
+        "Financing": "the exact plan's yearly flows to the owner in cash and under the case's financing (loan or "
+                     "energy-service company)",
         "Scenarios": "the fleet plan under each named scenario of the case beside the case as written",
         "Bills": "monthly bills before and after the plan, with line items",
         "Data quality": "defaulted inputs, model flags and input problems",
@@ -1148,6 +1186,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
     _plan(sheets["Plan"], result, scope, refs, f, blocks)
+    _financing(sheets["Financing"], result, f)
     _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)

@@ -1,0 +1,168 @@
+"""The plan financed: a loan's schedule and an energy-service company's share, against hand calculations.
+
+Sources: docs/derivations/finance-financing.md (cases F1-F4), numpy_financial's ``pmt`` and ``ipmt`` as the
+reference of the annuity. Tolerances: 0.005 on amounts written to the cent, 1e-9 relative on identities.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import numpy_financial as npf
+import pytest
+from numpy.testing import assert_allclose
+
+from models import scenario
+from models.finance import FinanceAssumptions
+from models.financing import financing_summary, financing_text, loan_schedule, plan_financing
+
+from test_scenario import _one_asset_case
+
+
+class TestLoanSchedule:
+    def test_annuity_and_its_interest_are_numpy_financial_s(self):
+        # case F1: 100,000 at 6 % over 5 years
+        proceeds, repaid, interest = loan_schedule(np.array([100_000.0, 0, 0, 0, 0, 0]), 1.0, 0.06, 5)
+        payment = npf.pmt(0.06, 5, -100_000.0)  # reference
+        assert_allclose(proceeds, [100_000.0, 0, 0, 0, 0, 0], atol=1e-9)
+        assert_allclose(-repaid[1:], np.full(5, payment), rtol=1e-12)
+        assert_allclose(interest[1:], [npf.ipmt(0.06, k, 5, -100_000.0) for k in range(1, 6)], rtol=1e-12)
+        # hand calculation, case F1: 23,739.64 a year, first interest 6,000.00, last 1,343.75; 118,698.20 in all
+        assert_allclose([-repaid[1], interest[1], interest[5], -repaid.sum()], [23_739.64, 6_000.0, 1_343.75, 118_698.20],
+                        atol=0.005)
+
+    def test_a_share_borrowed_and_draws_of_several_years(self):
+        # a loan is linear in its draws: 80 % of 100,000 in year 0 and 80 % of 50,000 in year 1
+        _, repaid, _ = loan_schedule(np.array([[100_000.0, 50_000.0, 0, 0, 0, 0, 0]]), 0.8, 0.06, 5)
+        one = npf.pmt(0.06, 5, -80_000.0)
+        two = npf.pmt(0.06, 5, -40_000.0)
+        assert_allclose(-repaid[0], [0.0, one, one + two, one + two, one + two, one + two, two], rtol=1e-12)
+
+    def test_a_real_analysis_borrows_money_of_the_year_and_deflates_the_payments(self):
+        # case F2: 50,000 (base-year money) in year 2, inflation 2 %: 11,637.08 in year 3 ... 10,750.86 in year 7
+        index = 1.02 ** np.arange(8)
+        proceeds, repaid, _ = loan_schedule(np.array([0, 0, 50_000.0, 0, 0, 0, 0, 0]), 1.0, 0.06, 5, index)
+        assert_allclose(proceeds[2], 50_000.0, rtol=1e-12)
+        assert_allclose(-repaid[3:], [11_637.08, 11_408.90, 11_185.20, 10_965.88, 10_750.86], atol=0.005)
+
+    def test_a_balance_still_owed_is_repaid_in_the_last_year(self):
+        # case F3: drawn in year 3 of flows to year 5: 23,739.64 in year 4, 23,739.64 + 63,456.34 in year 5
+        _, repaid, _ = loan_schedule(np.array([0, 0, 0, 100_000.0, 0, 0]), 1.0, 0.06, 5)
+        assert_allclose(-repaid[4:], [23_739.64, 87_195.98], atol=0.005)
+        assert_allclose(-repaid.sum(), 23_739.64 + 87_195.98, atol=0.01)
+
+    def test_a_loan_at_no_interest_repays_equal_shares(self):
+        _, repaid, interest = loan_schedule(np.array([1_000.0, 0, 0, 0, 0]), 1.0, 0.0, 4)
+        assert_allclose(-repaid, [0.0, 250.0, 250.0, 250.0, 250.0], atol=1e-9)
+        assert_allclose(interest, 0.0, atol=0)
+
+
+@pytest.fixture(scope="module")
+def one(tmp_path_factory):
+    case = _one_asset_case(tmp_path_factory.mktemp("fin"))
+    phys = scenario.physics(case, float(case.finance.capacitor_cost_per_kvar))
+    return case, phys
+
+
+def _run(one, **changes):
+    case, phys = one
+    return scenario.economics(case, phys, replace(case.finance, **changes), with_risk=False)
+
+
+def test_cash_is_the_plan_s_own_flows(one):
+    result = _run(one)
+    table = plan_financing(result)
+    assert len(result.plan) == 1
+    assert_allclose(table["financed_net"], table["cash_net"], rtol=0, atol=0)
+    summary = financing_summary(table, float(result.assumptions.discount_rate_frac))
+    # the cash net's discounted sum is the plan's NPV (each project at the plan's start)
+    assert_allclose(summary["npv_cash"], float(result.plan["npv_at_plan_start"].sum()), rtol=1e-9)
+    assert summary["npv_financed"] == summary["npv_cash"]
+    assert financing_text(result.assumptions, summary, "EUR") == ""
+
+
+def test_a_loan_on_the_one_motor_case(one):
+    # the one-motor case is real at 3 %, inflation 2 % (the default): the capital C of year 0 is borrowed whole at
+    # 6 % nominal over 5 years and each payment pmt(0.06, 5, -C) is deflated by 1.02^k (case F2's rule); profit tax
+    # 25 %: the interest's shield is 0.25 x ipmt / 1.02^k
+    result = _run(one, financing="loan", loan_share_frac=1.0, loan_rate_frac=0.06, loan_term_yr=5, tax_rate_frac=0.25)
+    table = plan_financing(result)
+    capital = float(result.plan["capital"].iloc[0])
+    assert capital > 0
+    k = np.arange(1, 6)
+    assert_allclose(table["loan_proceeds"].iloc[0], capital, rtol=1e-12)
+    assert_allclose(-table["loan_repayment"].iloc[1:6], npf.pmt(0.06, 5, -capital) / 1.02 ** k, rtol=1e-10)
+    assert_allclose(table["interest_tax_shield"].iloc[1:6], 0.25 * npf.ipmt(0.06, k, 5, -capital) / 1.02 ** k, rtol=1e-10)
+    assert_allclose(table["loan_repayment"].iloc[6:], 0.0, atol=0)
+    # the owner pays nothing in year 0 and the financed net is the cash net plus the loan's flows
+    assert_allclose(table["financed_net"].iloc[0], 0.0, atol=1e-6)
+    parts = table["loan_proceeds"] + table["loan_repayment"] + table["interest_tax_shield"]
+    assert_allclose(table["financed_net"], table["cash_net"] + parts, rtol=1e-12)
+    summary = financing_summary(table, 0.03)
+    assert summary["lowest_financed"] == 0.0 and summary["lowest_cash"] < 0.0
+    text = financing_text(result.assumptions, summary, "EUR")
+    assert text.startswith("With 100 % of the capital borrowed at 6 % a year (nominal) and repaid over 5 years")
+    assert "never out of pocket" in text and "cash basis" in text
+
+
+def test_an_energy_service_company_on_the_one_motor_case(one):
+    # case F4's rule: the company buys (year 0 nets to 0) and takes half of the savings after tax for 4 years; with
+    # no profit tax and nothing else in those years the owner keeps half of each year's cash flow, then all of it
+    result = _run(one, financing="shared_savings", shared_savings_share_frac=0.5, shared_savings_term_yr=4)
+    table = plan_financing(result)
+    cash, financed = table["cash_net"].to_numpy(), table["financed_net"].to_numpy()
+    assert cash[0] < 0.0 and abs(financed[0]) < 1e-6
+    assert_allclose(financed[1:5], 0.5 * cash[1:5], rtol=1e-12)
+    assert_allclose(financed[5:], cash[5:], rtol=1e-12)
+    assert_allclose(table["company_capital"].iloc[0], -cash[0], rtol=1e-12)
+
+
+def test_the_company_takes_the_depreciation_of_its_purchase(one):
+    # with a profit tax the depreciation tax shield of the company's purchase is the company's: in the contract's
+    # years the owner keeps (1 - share) x the savings after tax and no shield (case F4, last paragraph)
+    from models.pack import content
+
+    result = _run(one, financing="shared_savings", shared_savings_share_frac=0.5, shared_savings_term_yr=4,
+                  tax_rate_frac=0.25, depreciation_yr=5)
+    table = plan_financing(result)
+    r = result.plan.iloc[0]
+    flows = content.project_flow_table(result, r["asset_id"], r["option_id"])
+    assert "tax_depreciation" in flows.index and flows.loc["tax_depreciation"].iloc[1] > 0
+    savings = flows.loc[[c for c in flows.index if c.startswith("savings_") or c == "tax_savings"]].sum(axis=0)
+    assert_allclose(table["financed_net"].iloc[1:5], 0.5 * savings.iloc[1:5].to_numpy(), rtol=1e-9)
+
+
+def test_finance_keys_are_checked():
+    ok, problems = FinanceAssumptions.from_dict({"financing": "loan", "loan_share_frac": 0.8, "loan_rate_frac": 0.055,
+                                                 "loan_term_yr": 7}, "finance.toml")
+    assert ok is not None and not problems and ok.loan_term_yr == 7 and ok.financing == "loan"
+    for data, key, rule in (({"financing": "lease"}, "financing", "must be 'cash', 'loan' or 'shared_savings'"),
+                            ({"loan_share_frac": 1.2}, "loan_share_frac", "fraction from 0 to 1"),
+                            ({"shared_savings_share_frac": -0.1}, "shared_savings_share_frac", "fraction from 0 to 1"),
+                            ({"loan_term_yr": 0}, "loan_term_yr", "between 1 and"),
+                            ({"loan_term_yr": 2.5}, "loan_term_yr", "whole number"),
+                            ({"loan_rate_frac": 6}, "loan_rate_frac", "above -0.5 and at most 1")):
+        got, problems = FinanceAssumptions.from_dict(data, "finance.toml")
+        assert got is None and any(p.column == key and rule in p.rule for p in problems), (data, [str(p) for p in problems])
+    got, problems = FinanceAssumptions.from_dict({"loan_rate_frac": 0.45}, "finance.toml")
+    assert got is not None and [p.column for p in problems if p.severity == "warning"] == ["loan_rate_frac"]
+
+
+def test_run_writes_the_table_and_says_the_financing(tmp_path, capsys):
+    import pandas as pd
+
+    from drivecase.cli import main
+
+    case = _one_asset_case(tmp_path / "case")
+    finance = tmp_path / "case" / "finance.toml"
+    finance.write_text(finance.read_text(encoding="utf-8") + 'financing = "loan"\nloan_rate_frac = 0.05\n'
+                       "loan_term_yr = 4\n", encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["run", str(tmp_path / "case"), "--out", str(out), "--no-risk", "--quiet"]) == 0
+    said = capsys.readouterr().out
+    assert "Financing: With 100 % of the capital borrowed at 5 % a year (nominal) and repaid over 4 years" in said
+    table = pd.read_csv(out / "financing.csv")
+    assert list(table.columns)[:3] == ["year", "cash_net", "loan_proceeds"]
+    assert (table["loan_repayment"].iloc[1:5] < 0).all() and (table["loan_repayment"].iloc[5:] == 0).all()
+    assert case is not None
