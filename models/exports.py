@@ -345,10 +345,11 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     tables = {
         "results.csv": results, "cashflows.csv": result.cashflows, "bills.csv": bills,
         "plan.csv": plan_with_savings(result.plan, result.results, (result.plan_status or {}).get("repriced")),
-        "plan_rank_order.csv": result.plan_greedy, "risk.csv": risk_rows, "tornado.csv": result.tornado,
+        "plan_rank_order.csv": result.plan_greedy, "financing.csv": plan_financing(result), "risk.csv": risk_rows,
+        "tornado.csv": result.tornado,
         "plan_risk.csv": plan_risk_rows, "plan_tornado.csv": result.plan_tornado, "npv_draws.csv": draws,
         "abatement.csv": abatement, "end_of_life.csv": result.end_of_life, "fleet_rules.csv": result.fleet_rules,
-        "lcc.csv": result.lcc, "flags.csv": flags, "financing.csv": plan_financing(result),
+        "lcc.csv": result.lcc, "flags.csv": flags,
     }
     # today's fleet as modelled against the bills the case gives (header only without them)
     months, summary = pd.DataFrame(), pd.DataFrame()

@@ -40,8 +40,8 @@ INJECTION_HTML = '<script>alert(1)</script> & "pump"'
 #: Relative tolerance of the formula check: 0.01 % (the "Checks" sheet's, docs/pack.md; both sides are doubles,
 #: the evaluator's IRR is a polynomial root and the engine's a Newton root, both far tighter than this).
 RTOL = 1e-4
-SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Scenarios", "Bills", "Data quality",
-          "End of life", "Risk"]
+SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Financing", "Scenarios", "Bills",
+          "Data quality", "End of life", "Risk"]
 
 
 def build_case(folder: Path, descriptions: dict[str, str] | None = None, ids: dict[str, str] | None = None):

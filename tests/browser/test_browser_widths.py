@@ -105,7 +105,10 @@ def test_the_asset_options_show_every_column_and_every_row(size, sys_browser, da
         assert grid.locator(".ag-header-cell-text").evaluate_all(HEADER_CUT_OFF) == []
         # every row is in the grid's own height, none below it
         assert grid.locator(".ag-center-cols-container .ag-row").count() == 8
-        assert grid.locator(".ag-body-viewport").evaluate("v => v.scrollHeight <= v.clientHeight + 1")
+        # (the grid sets its height once the wrapped rows are measured: on a busy machine that can come after the
+        # rows are drawn, so the test waits up to 5 s for it; a grid that never grows to its rows still fails)
+        page.wait_for_function("() => { const v = document.querySelector('#asset-options .ag-body-viewport'); "
+                               "return v !== null && v.scrollHeight <= v.clientHeight + 1; }", timeout=5000)
         # the payback written as the Fleet table writes it: rewinding spends capital and never pays back
         rewind = grid.locator(".ag-center-cols-container [row-id='rewind'] [col-id='discounted_payback_yr']")
         assert rewind.inner_text().split() == ["not", "within", "the", "horizon"]
