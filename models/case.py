@@ -77,6 +77,12 @@ CATEGORY_SYNONYMS: dict[str, dict[str, str]] = {
     "machine_type": {"im": "induction", "asynchronous": "induction", "wfsm": "wound_field_synchronous",
                      "synchronous": "wound_field_synchronous", "pm": "pm_synchronous"},
     "efficiency_class": {"": "unknown", "none": "unknown", "n/a": "unknown", "na": "unknown", "?": "unknown"},
+    "hazardous_area": {"no": "none", "safe": "none", "safe_area": "none", "non_hazardous": "none", "unclassified": "none",
+                       "n/a": "none", "zone0": "zone_0", "zone1": "zone_1", "zone2": "zone_2", "zone20": "zone_20",
+                       "zone21": "zone_21", "zone22": "zone_22", "div_1": "division_1", "div1": "division_1",
+                       "class_i_division_1": "division_1", "class_i_div_1": "division_1", "c1d1": "division_1",
+                       "div_2": "division_2", "div2": "division_2", "class_i_division_2": "division_2",
+                       "class_i_div_2": "division_2", "c1d2": "division_2"},
     "capacitors.control": {"automatic": "stepped", "auto": "stepped", "switched": "stepped", "apfc": "stepped"},
 }
 
@@ -1623,6 +1629,14 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     year = a["year_installed"].to_numpy()
     for i in np.flatnonzero(~np.isnan(year) & (year > this_year)):
         checker.err(i, "year_installed", year[i], f"year_installed is after the current year ({this_year})")
+    if "hazardous_area" in a:  # an explosive atmosphere present continuously: no motor belongs there
+        area = a["hazardous_area"].to_numpy(dtype=object)
+        for i in np.flatnonzero(np.isin(area, ["zone_0", "zone_20"])):
+            checker.warn(i, "hazardous_area", area[i],
+                         f"{area[i].replace('_', ' ')} is where an explosive atmosphere is present continuously or "
+                         "for long periods: motors are not installed there",
+                         "check the area classification with the site's hazardous-area drawings (zone 1 or 2 for gas, "
+                         "21 or 22 for dust)")
 
 
 def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -1653,6 +1667,8 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
     record("machine_type", a["machine_type"].isna().to_numpy(), "induction", "assumed induction motor")
     record("speed_control", a["speed_control"].isna().to_numpy(), "fixed", "assumed fixed speed, no throttle")
     record("criticality", a["criticality"].isna().to_numpy(), "medium", "assumed medium criticality")
+    if "hazardous_area" in a:  # (a blank is an unclassified area, not a defaulted nameplate field)
+        a["hazardous_area"] = a["hazardous_area"].fillna("none")
     record("rewind_count", a["rewind_count"].isna().to_numpy(), 0.0, "assumed never rewound")
     if "rewind_loss_pct_points" in a:
         from models.induction import DEFAULT_REWIND_LOSS_PCT_POINTS

@@ -642,6 +642,43 @@ MEDIUM_VOLTAGE_EQUIPMENT_TEXT = ("a medium-voltage motor (rated above 1,000 V): 
                                  "and protection, costs more: take its price from a supplier's quote")
 
 
+def hazardous_area_caution(area: str, technology: str) -> str:
+    """The caution of an option for a motor in a hazardous area (its ``hazardous_area`` class), "" in none.
+
+    Notes
+    -----
+    Equipment in an explosive atmosphere must be certified for its zone (IEC 60079-0 and -14: ATEX or IECEx;
+    NEC articles 500/505 in North America); a motor fed by a drive must be certified for converter supply
+    with that drive, and an Ex motor keeps its certification only if repaired to IEC 60079-19 [1]_ [2]_.
+
+    References
+    ----------
+    .. [1] IEC 60079-14:2013, *Explosive atmospheres - Part 14: Electrical installations design, selection and
+       erection* (cited from memory).
+    .. [2] IEC 60079-19:2019, *Explosive atmospheres - Part 19: Equipment repair, overhaul and reclamation*
+       (cited from memory).
+
+    Examples
+    --------
+    >>> hazardous_area_caution("zone_2", "rewind")
+    'hazardous area (zone 2): only a repairer working to IEC 60079-19 may rewind an Ex motor, or it loses its certification'
+    >>> hazardous_area_caution("none", "induction")
+    ''
+    """
+    if not isinstance(area, str) or area in ("", "none"):
+        return ""
+    head = f"hazardous area ({area.replace('_', ' ')}): "
+    if technology == "rewind":
+        return head + "only a repairer working to IEC 60079-19 may rewind an Ex motor, or it loses its certification"
+    if technology == "capacitor":
+        return head + "the capacitor bank must be certified for it or stand outside it"
+    if technology == "add_drive":
+        return head + ("today's motor must be certified for converter supply with this drive (IEC 60079-14), or the "
+                       "drive cannot be added; the drive itself stands outside the area")
+    return head + ("the new motor (and its drive) must be certified for it (ATEX/IECEx, or NEC 500/505) and for "
+                   "converter supply where a drive feeds it; the catalogue's price is for standard equipment")
+
+
 def _held_beyond_cap(shaft: np.ndarray, shaft_eval: np.ndarray) -> np.ndarray | None:
     """Input scale beyond a model's load cap: shaft / cap where the load exceeds the cap, else 1 (None
     when it never does).
@@ -1499,6 +1536,16 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         texts = drive_on_existing_motor_caution(a["year_installed"].to_numpy(dtype=float)[on],
                                                 a["rewind_count"].to_numpy(dtype=float)[on])
         flags.extend({"asset_id": asset_ids[i], "option_id": option_ids[o], "flag": text} for i, text in zip(on, texts))
+    # a motor in a hazardous area: every option's equipment must be certified for it (load-independent)
+    area = a["hazardous_area"].fillna("none").to_numpy(dtype=object) if "hazardous_area" in a else None
+    if area is not None and (area != "none").any():
+        for o in range(1, 1 if only_today else n_o):
+            if (option_rows[o]["technology"] == "existing" or needed is not None
+                    or (wanted is not None and o not in wanted)):
+                continue
+            for i in np.flatnonzero(applies[:, o] & (area != "none")):
+                flags.append({"asset_id": asset_ids[i], "option_id": option_ids[o],
+                              "flag": hazardous_area_caution(str(area[i]), option_rows[o]["technology"])})
     # a new machine of the catalogue offered for a medium-voltage motor: its class levels, rules and cost curves
     # are those of low-voltage motors (load-independent)
     medium = a["rated_v_v"].to_numpy(dtype=float) > MAX_RULED_V_V if "rated_v_v" in a else np.zeros(len(a), bool)

@@ -30,6 +30,10 @@ DEFAULT_CLASS: dict[str, str] = {
 }
 #: Technologies that put a drive between the supply and the motor.
 DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
+#: Classes of the asset register's ``hazardous_area`` (IEC 60079-10 gas and dust zones, North American divisions),
+#: and "none"; a catalogue row's ``hazardous_areas`` lists those its equipment is certified for.
+HAZARDOUS_AREAS: tuple[str, ...] = ("none", "zone_0", "zone_1", "zone_2", "zone_20", "zone_21", "zone_22", "division_1",
+                                    "division_2")
 #: New machines that run on the line (no drive of their own).
 LINE_FED_NEW_TECHNOLOGIES = ("induction", "line_start_pm", "wound_field")
 #: Technologies that replace the machine (and so change its speed, losses and power factor).
@@ -84,6 +88,14 @@ def check_options(checker) -> pd.DataFrame:
     frame["speed_remedy"] = frame["speed_remedy"].fillna("none")
     frame["wfsm_mode"] = frame["wfsm_mode"].fillna("power_factor")
     frame["applications"] = frame["applications"].fillna("")
+    if "hazardous_areas" in frame:
+        frame["hazardous_areas"] = frame["hazardous_areas"].fillna("")
+        known_areas = set(HAZARDOUS_AREAS)
+        for i, areas in enumerate(frame["hazardous_areas"]):
+            unknown = [x for x in str(areas).split("|") if x and x not in known_areas]
+            if unknown:
+                checker.err(i, "hazardous_areas", areas, f"unknown hazardous-area {'class' if len(unknown) == 1 else 'classes'}: "
+                            f"{', '.join(unknown)}", f"use {', '.join(HAZARDOUS_AREAS)} separated by |")
     frame["illustrative"] = frame["illustrative"].fillna(False)
     lo, hi = frame["min_rated_p_kw"].to_numpy(), frame["max_rated_p_kw"].to_numpy()
     for i in np.flatnonzero(lo > hi):
@@ -227,7 +239,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
 
     Notes
     -----
-    Rules: rating within the option's range; application in its list; a drive cannot be added where one
+    Rules: rating within the option's range; a catalogue row that lists ``hazardous_areas`` only for a motor in
+    one of them (or in none); application in its list; a drive cannot be added where one
     is already fitted, nor to a constant-torque load at fixed speed (it would add losses); a line-start PM
     motor is not offered where a drive already controls the speed; rewinds and terminal capacitors apply
     to induction motors only, and capacitors never to a motor fed by a drive (capacitors on a drive output
@@ -250,6 +263,14 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     exclude(p < options["min_rated_p_kw"].to_numpy(dtype=float)[None, :] * (1.0 - RATING_MARGIN_FRAC) - 1e-9,
             "rating below the option's range")
     exclude(p > options["max_rated_p_kw"].to_numpy(dtype=float)[None, :] + 1e-9, "rating above the option's range")
+    if "hazardous_area" in assets and "hazardous_areas" in options:  # a catalogue row certified for some areas only
+        area = assets["hazardous_area"].fillna("none").to_numpy(dtype=object)
+        listed = [set(filter(None, str(x).split("|"))) for x in options["hazardous_areas"].fillna("")]
+        outside = np.array([[bool(allowed) and a_ != "none" and a_ not in allowed for allowed in listed] for a_ in area],
+                           dtype=bool).reshape(n_a, n_o)
+        for i, j in zip(*np.nonzero(outside)):
+            if reason[i, j] == "":
+                reason[i, j] = f"not certified for its hazardous area ({area[i].replace('_', ' ')})"
     apps = [set(filter(None, str(a).split("|"))) for a in options["applications"]]
     app_ok = np.array([[not allowed or a in allowed for allowed in apps] for a in app[:, 0]], dtype=bool).reshape(n_a, n_o)
     exclude(~app_ok, "not offered for this application")

@@ -1613,3 +1613,18 @@ def test_a_site_without_motors_is_named(tmp_path):
     case, problems = load_case(folder)
     found = [p for p in problems if p.file == "sites.csv" and p.column == "site_id" and p.severity == "warning"]
     assert case is not None and len(found) == 1 and found[0].value == "S2" and "nothing is compared" in found[0].rule
+
+
+def test_a_catalogue_row_s_unknown_hazardous_area_is_refused(tmp_path):
+    # a column added to the shipped catalogue: a known class is read, an unknown one names the row and the classes
+    folder = cb.write_case(tmp_path / "c")
+    lines = (ROOT / "data" / "defaults" / "options.csv").read_text(encoding="utf-8").splitlines()
+    head = next(k for k, line in enumerate(lines) if line.startswith("option_id,"))
+    rows = lines[:head] + [lines[head] + ",hazardous_areas"] + [
+        line + (",zone_1|zone_9" if line.startswith("ie4,") else ",zone_2" if line.startswith("ie3,") else ",")
+        for line in lines[head + 1:] if line.strip()]
+    (folder / "options.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    found = _find(problems, file="options.csv", column="hazardous_areas", text="unknown hazardous-area class")
+    assert "zone_9" in found.rule and "zone_2" in found.hint

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -13,6 +15,7 @@ from models.operation import operate, performance_curves
 from models.site import power_factor as site_power_factor
 
 PUMP_HEADER = cb.ASSET_HEADER + ["load_type", "static_head_frac"]
+ROOT = Path(__file__).resolve().parents[1]
 
 
 def _constant_profile(pid: str, load_pct: float, hours: int = 24 * 14) -> list[list[str]]:
@@ -440,3 +443,46 @@ def test_a_pump_switched_on_and_off_moves_its_volume_in_less_time(tmp_path, cont
     assert 1470.0 < n_today < 1480.0  # less slip at 80 % load than at rated
     assert_allclose(r.shaft_energy_kwh[0, lspm] / r.shaft_energy_kwh[0, keep], (1500.0 / n_today) ** exponent,
                     rtol=1e-9)
+
+
+def test_a_motor_in_a_hazardous_area_has_every_option_cautioned(tmp_path):
+    # a pump in zone 2 ("Zone 2" read as zone_2): each option names the certification its equipment needs (a rewind
+    # to IEC 60079-19, a drive added to today's motor certified for converter supply, a new motor certified for
+    # the zone); a pump in no classified area gets none of these; zone 0 is warned (no motor belongs there)
+    header = cb.ASSET_HEADER + ["hazardous_area"]
+    base = ["S1", "Fuel pump", "pump", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
+            "throttled", "", "6000", "80", "medium"]
+    cb.write_case(tmp_path, assets=[["P1"] + base + ["Zone 2"], ["P2"] + base + [""], ["P3"] + base + ["zone 0"]],
+                  asset_header=header, capacitors=[], duty=[], profiles=[])
+    (tmp_path / "profiles.csv").unlink()
+    case, problems = load_case(tmp_path)
+    assert case is not None, [p.message for p in problems]
+    assert list(case.assets["hazardous_area"]) == ["zone_2", "none", "zone_0"]
+    assert [(p.column, p.value) for p in problems if p.severity == "warning" and "hazardous_area" == p.column] == [
+        ("hazardous_area", "zone_0")]
+    flags = operate(case).flags
+    hazard = flags[flags["flag"].str.startswith("hazardous area")]
+    assert set(hazard["asset_id"]) == {"P1", "P3"}
+    p1 = hazard[hazard["asset_id"] == "P1"].set_index("option_id")["flag"]
+    assert "IEC 60079-19" in p1["rewind"] and "converter supply" in p1["add_drive"]
+    assert p1["ie4"].startswith("hazardous area (zone 2): the new motor (and its drive) must be certified for it")
+    assert "keep" not in p1.index
+
+
+def test_a_catalogue_row_certified_for_some_areas_is_offered_there_only():
+    from models.options import applicability
+
+    case, _ = load_case(ROOT / "data" / "demo")
+    options = case.options.copy()
+    options["hazardous_areas"] = ""
+    options.loc[options["option_id"] == "ie4", "hazardous_areas"] = "zone_1|zone_2"
+    assets = pd.DataFrame({"rated_p_kw": [30.0] * 3, "poles": [4] * 3, "application": ["pump"] * 3,
+                           "load_type": ["variable_torque"] * 3, "speed_control": ["throttled"] * 3,
+                           "machine_type": ["induction"] * 3, "rated_v_v": [400.0] * 3,
+                           "hazardous_area": ["zone_2", "division_1", "none"]})
+    applies, reason = applicability(options, assets, "EU")
+    j = int(np.flatnonzero(options["option_id"].to_numpy() == "ie4")[0])
+    assert list(applies[:, j]) == [True, False, True]
+    assert reason[1, j] == "not certified for its hazardous area (division 1)"
+    others = [k for k in range(len(options)) if k != j]
+    assert (applies[1, others] == applies[2, others]).all()  # an unrestricted row is offered in any area
