@@ -1053,8 +1053,17 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
                 "all" if len(placeholder) == len(assets) else asset_list_text(placeholder),
                 "Set the downtime cost per hour per asset (asset register) or case-wide (finance assumptions).")
     if "illustrative" in case.options.columns and case.options["illustrative"].fillna(False).astype(bool).any():
-        add("assumption", "Capital costs", "the options catalogue prices are illustrative cost curves, not quotes",
+        from models.options import ILLUSTRATIVE_PRICES_CURRENCY, ILLUSTRATIVE_PRICES_YEAR
+
+        add("assumption", "Capital costs", "the options catalogue prices are illustrative cost curves, not quotes "
+            f"(the shipped catalogue's: {ILLUSTRATIVE_PRICES_CURRENCY} at {ILLUSTRATIVE_PRICES_YEAR} prices)",
             "all", "Replace them with supplier quotes before approval; contingency covers part of the spread.")
+    level = float(getattr(a, "capital_cost_factor", 1.0))
+    add("assumption", "Price year", f"savings at {prices_year_words(result)}; capital at the options catalogue's "
+        "prices, taken to be of the same year" + (f", times the capital cost level {level:g}" if level != 1.0 else ""),
+        "all", "Quotes of another year: bring them to the analysis year's prices before the run ("
+        + ("a real analysis keeps every later year's flow in the analysis year's money)" if a.rate_basis == "real"
+           else "a nominal analysis inflates later years' flows from there)"))
     defaults = scope_defaults(case, scope.asset_ids)
     if not defaults.empty:
         for (column, basis), grp in defaults.groupby(["column", "basis"], sort=True):
