@@ -776,7 +776,7 @@ def _print_run_summary(case, result) -> None:
         from models.financing import financing_summary, financing_text, plan_financing
 
         financed = financing_summary(plan_financing(result), float(result.assumptions.discount_rate_frac))
-        print(f"  Financing: {financing_text(result.assumptions, financed, currency)} (financing.csv)")
+        print(f"  Financing: {financing_text(result.assumptions, financed, currency)} Year by year: financing.csv")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by "

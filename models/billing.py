@@ -992,13 +992,13 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
     energy_at = None
     if tariff.energy is not None:
         energy_at = summed(_KWH if tariff.energy.basis == "kWh" else _KVAH)
-    energy_pf = getattr(tariff, "energy_power_factor", ()) if tariff.energy is not None else ()
+    energy_pf = getattr(tariff, "energy_power_factor", ())
     kwh_at = lag_at = lead_at = None
     if tariff.demand or energy_pf:
         kwh_at = summed(_KWH)
         if energy_pf or any(d.power_factor_adjustment is not None for d in tariff.demand):
             lag_at = summed(_LAG_KVARH)
-        if any(c.count_leading for c in energy_pf):
+        if energy_pf:
             lead_at = summed(_LEAD_KVARH)
     clauses = []
     for kind, clause_list, plain_code, excess_code in (("reactive", tariff.reactive, _LAG_KVARH, _LAG_EXCESS_KVARH),
@@ -1024,26 +1024,19 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
 
     kwh_month = cells[kwh_at].sum(axis=2) if kwh_at is not None else None
     lag_month = cells[lag_at].sum(axis=2) if lag_at is not None else None
-    if energy_pf:
-        energy_charges = sum(np.where(it.applies, it.amount, 0.0) for it in items if it.category == "energy")
-        for c in energy_pf:
-            kvarh = lag_month + (cells[lead_at].sum(axis=2) if c.count_leading else 0.0)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                apparent = np.hypot(kwh_month, kvarh)
-                pf = np.where(apparent > 0.0, kwh_month / np.where(apparent > 0.0, apparent, 1.0), 1.0)
-            pct = energy_power_factor_pct(pf, c.penalties, c.rebates, c.round_points)
-            items.append(_Item(f"pf energy:{c.name}", "pf energy", tariff.currency, np.ones(n_m),
-                               pct / 100.0 * energy_charges, every_month, no_flag))
+    lead_month = cells[lead_at].sum(axis=2) if lead_at is not None else None
 
     for d in tariff.demand:
         items.extend(_demand_items(tariff, cal, d, p, q, kwh_month, lag_month, repeat_year, n_s, before, start))
 
+    lagging = np.maximum(q, 0.0) if getattr(tariff, "reactive_demand", ()) else None
     for c in getattr(tariff, "reactive_demand", ()):
         win = cal.windows[window_key(c)]
         in_scope, applies = _scope(cal, tariff, c.periods, c.seasons, window_key(c))
-        # the kVAr's highest window mean: the kW pass run on the kVAr (its arguments swapped)
-        kvar_peak = _window_peaks_kernel(q, p, False, False, win.starts, win.count, win.identity, win.month_bounds,
-                                         in_scope, n_s)[0]
+        # the highest window mean of the lagging kVAr (a lagging register: a leading interval adds nothing), by the
+        # kW pass run on it (its arguments swapped)
+        kvar_peak = _window_peaks_kernel(lagging, p, False, False, win.starts, win.count, win.identity,
+                                         win.month_bounds, in_scope, n_s)[0]
         kw_peak = 0.0
         if c.free_kvar_per_kw > 0.0:
             kw_peak = _window_peaks_kernel(p, q, False, False, win.starts, win.count, win.identity, win.month_bounds,
@@ -1069,6 +1062,21 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
                 qty = np.maximum(kv.sum(axis=2) - ratio * kw.sum(axis=2), 0.0)
         flag = (qty > 0.0) if kind == "leading" and r.banned else no_flag
         items.append(_Item(f"{kind}:{r.name}", kind, "kVArh", np.full(n_m, r.price_per_kvarh), qty, months, flag))
+
+    if energy_pf:  # a percentage of the month's charges before taxes: priced once every other charge is
+        charges = {base: sum(np.where(it.applies, it.amount, 0.0) for it in items if it.category in cats)
+                   for base, cats in (("energy_charges", ("energy",)),
+                                      ("all_charges", _TAX_BASE_CATEGORIES["all_charges"]))}
+        for c in energy_pf:
+            kvarh = lag_month + (lead_month if c.count_leading else 0.0)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                apparent = np.hypot(kwh_month, kvarh)
+                pf = np.where(apparent > 0.0, kwh_month / np.where(apparent > 0.0, apparent, 1.0), 1.0)
+            pct = energy_power_factor_pct(pf, c.penalties, c.rebates, c.round_points)
+            if not c.rebate_when_leading:  # no rebate in a month whose leading kVArh exceed its lagging kVArh
+                pct = np.where(lead_month > lag_month, np.maximum(pct, 0.0), pct)
+            items.append(_Item(f"pf energy:{c.name}", "pf energy", tariff.currency, np.ones(n_m),
+                               pct / 100.0 * charges[c.base], every_month, no_flag))
 
     for t in tariff.taxes:
         cats = _TAX_BASE_CATEGORIES[t.base]

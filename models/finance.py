@@ -1482,6 +1482,12 @@ class FinanceAssumptions:
         if any(p.severity == "error" for p in problems):
             return None, problems
         problems += _check_assumptions(values, source, prefix)
+        for key in [k for k in data if k in _FINANCING_KEYS and not k.startswith(f"{values['financing']}_")]:
+            if values["financing"] in FINANCING_KINDS:  # a loan's terms under shared savings or cash: not read
+                problems.append(warning(source, None, prefix + key, data[key],
+                                        f"not read: financing is '{values['financing']}'",
+                                        f"set financing = \"{key.split('_')[0] if key.startswith('loan') else 'shared_savings'}\" "
+                                        "to use it, or leave the key out"))
         if any(p.severity == "error" for p in problems):
             return None, problems
         return cls(**values), problems
@@ -1499,6 +1505,9 @@ MAX_HORIZON_YR = 100
 
 _INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed", "loan_term_yr",
                  "shared_savings_term_yr")
+#: The terms of a loan and of an energy-service contract (read only under their own ``financing``).
+_FINANCING_KEYS = ("loan_share_frac", "loan_rate_frac", "loan_term_yr", "shared_savings_share_frac",
+                   "shared_savings_term_yr")
 #: How the owner may pay for the plan (:mod:`models.financing`): in cash, with a loan, or through an
 #: energy-service company paid from the savings.
 FINANCING_KINDS: tuple[str, ...] = ("cash", "loan", "shared_savings")
@@ -1712,6 +1721,10 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
     for key in ("loan_term_yr", "shared_savings_term_yr"):
         if not 1 <= values[key] <= MAX_HORIZON_YR:
             bad(key, f"must be between 1 and {MAX_HORIZON_YR} years", "loans and energy-service contracts run 3-15 years")
+        elif values["financing"] == key.rsplit("_term_yr", 1)[0] and values[key] > values["horizon_yr"]:
+            odd(key, f"longer than the study period ({values['horizon_yr']} years): "
+                + ("a balance still owed at its end is counted as repaid then" if key.startswith("loan") else
+                   "the share is paid to the study period's end only"), "check the term against horizon_yr")
     if not 1 <= values["depreciation_yr"] <= 100:
         bad("depreciation_yr", "must be between 1 and 100 years", "straight-line tax life, often 5-20 years")
     budget = values["budget_per_yr"]

@@ -14,10 +14,11 @@ project from its plan year) into the owner's flows under the finance assumptions
     into money of their year and the fixed payments back into base-year money with the inflation rate.
 ``shared_savings``
     An energy-service company buys each project's first purchase (its capital that year, less the
-    incentive, which the company receives) and takes its tax depreciation; for the contract's years after
-    that purchase it is paid a share of the project's operating savings after tax (as the plan counts
-    them). The owner keeps the rest of the savings, later purchases and, once the contract has ended, the
-    equipment (its residual value). A contract that outlasts the study period keeps the residual value.
+    incentive, which the company receives) and takes its tax depreciation (the owner, given the equipment
+    at no cost when the contract ends, has none to depreciate); for the contract's years after that
+    purchase it is paid a share of the project's operating savings after tax (as the plan counts them).
+    The owner keeps the rest of the savings and pays mid-life work and later purchases; the equipment passes
+    to it at the contract's end, so the residual value at the end of the study period is the owner's.
 ``cash``
     The owner pays: the financed flows are the cash flows.
 
@@ -37,7 +38,7 @@ import pandas as pd
 from models.cashflows import CAPITAL_COMPONENTS, SAVINGS_COMPONENTS, _depreciation
 from models.finance import capital_recovery_factor
 
-__all__ = ["FINANCED_COLUMNS", "loan_schedule", "plan_financing", "financing_summary", "financing_text"]
+__all__ = ["FINANCED_COLUMNS", "loan_schedule", "plan_financing", "financing_summary", "financing_text", "percent_text"]
 
 #: Columns of :func:`plan_financing`, each [currency] but ``year``.
 FINANCED_COLUMNS: tuple[str, ...] = (
@@ -112,15 +113,16 @@ def loan_schedule(draws, share_frac: float, rate_frac: float, term_yr: int, inde
 
 def _table(result, asset_id: str, option_id: str) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """A project's flow table, its net flows as the plan counts them, and its operating savings after tax as the
-    plan counts them (the plan's credit taken off the savings)."""
+    plan counts them (the plan's credit taken off the savings; the tax on mid-life work left out)."""
     from models.pack import content
 
     table = content.project_flow_table(result, asset_id, option_id)
     counted = content.plan_flows(result, asset_id, option_id)
     own = table.sum(axis=0).to_numpy(dtype=float) if len(table) else np.zeros_like(counted)
-    savings_rows = [c for c in table.index if c in SAVINGS_COMPONENTS + ("tax_savings",)]
+    savings_rows = [c for c in table.index if c in SAVINGS_COMPONENTS]
     savings = table.loc[savings_rows].sum(axis=0).to_numpy(dtype=float) if savings_rows else np.zeros_like(counted)
-    return table, counted, savings - (own - counted)
+    after_tax = (1.0 - float(result.assumptions.tax_rate_frac)) * savings
+    return table, counted, after_tax - (own - counted)
 
 
 def _row(table: pd.DataFrame, names, width: int) -> np.ndarray:
@@ -131,7 +133,7 @@ def _row(table: pd.DataFrame, names, width: int) -> np.ndarray:
 def _company(table: pd.DataFrame, savings: np.ndarray, share_frac: float, term_yr: int, tax_rate_frac: float,
              depreciation_yr: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """One project's flows under a shared-savings contract, the owner's change: (capital the company pays,
-    the incentive, depreciation shield and residual value it keeps, the savings share it is paid)."""
+    the incentive and depreciation shield it keeps, the savings share it is paid)."""
     width = len(savings)
     capital = _row(table, CAPITAL_COMPONENTS, width)  # negative: money out
     spent = np.flatnonzero(capital < 0.0)
@@ -148,8 +150,6 @@ def _company(table: pd.DataFrame, savings: np.ndarray, share_frac: float, term_y
         purchase[t0] = -capital[t0]
         kept -= tax_rate_frac * _depreciation(purchase[None, :], int(depreciation_yr))[0]
     end = t0 + int(term_yr)
-    if end >= width - 1:  # the contract outlasts the study period: the equipment is still the company's
-        kept -= _row(table, ("residual",), width)
     years = np.arange(width)
     share = np.where((years > t0) & (years <= end), share_frac, 0.0)
     return paid, kept, -share * savings
@@ -231,15 +231,26 @@ def financing_summary(table: pd.DataFrame, discount_rate_frac: float) -> dict[st
     }
 
 
+def percent_text(frac: float) -> str:
+    """A share or a rate of a financing as the texts and the register write it (four significant digits).
+
+    Examples
+    --------
+    >>> percent_text(0.875), percent_text(0.06125), percent_text(0.995), percent_text(1.0)
+    ('87.5 %', '6.125 %', '99.5 %', '100 %')
+    """
+    return f"{100.0 * float(frac):.4g} %"
+
+
 def financing_text(assumptions, summary: dict[str, float], currency: str) -> str:
-    """The financing of the plan in words, for the report's summary and the dashboard ("" for cash)."""
+    """The financing of the plan in words, for the report's summary, the run, the workbook and the dashboard
+    ("" for cash); the sentences end with a full stop."""
     from models.wording import money_text
 
     kind = str(getattr(assumptions, "financing", "cash"))
     if kind == "cash":
         return ""
-    def pct(frac: float) -> str:
-        return f"{100.0 * float(frac):.3g} %"
+    pct = percent_text
 
     if kind == "loan":
         how = (f"With {pct(assumptions.loan_share_frac)} of the capital borrowed at {pct(assumptions.loan_rate_frac)} "
@@ -250,11 +261,12 @@ def financing_text(assumptions, summary: dict[str, float], currency: str) -> str
                f"{int(assumptions.shared_savings_term_yr)} years")
     negative = int(summary["years_negative_financed"])
     lowest = -summary["lowest_financed"]
-    pocket = (f"the most it is out of pocket {money_text(lowest, currency)}" if lowest >= 0.5 else
-              "it is never out of pocket")
+    low = (f"its running total of net flows falls to {money_text(-lowest, currency)} at its lowest" if lowest >= 0.5
+           else "its running total of net flows never falls below zero")
+    owed = " The repayments are owed whatever the savings turn out to be." if kind == "loan" else ""
     return (f"{how}, the owner's NPV of the plan is {money_text(summary['npv_financed'], currency)} "
-            f"(paid in cash: {money_text(summary['npv_cash'], currency)}), {pocket} "
-            f"(in cash: {money_text(-summary['lowest_cash'], currency)}), "
-            + ("and its net flow is never negative." if negative == 0 else
-               f"and its net flow is negative in {negative} year{'s' if negative != 1 else ''}.")
-            + " The plan, its ranking and every other figure are on the cash basis.")
+            f"(paid in cash: {money_text(summary['npv_cash'], currency)}) and, on the expected savings, {low} "
+            f"(paid in cash: {money_text(min(0.0, summary['lowest_cash']), currency)}); "
+            + ("its net flow is never negative in a year." if negative == 0 else
+               f"its net flow is negative in {negative} year{'s' if negative != 1 else ''}.")
+            + owed + " The plan, its ranking and every other figure are on the cash basis.")

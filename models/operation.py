@@ -642,8 +642,9 @@ MEDIUM_VOLTAGE_EQUIPMENT_TEXT = ("a medium-voltage motor (rated above 1,000 V): 
                                  "and protection, costs more: take its price from a supplier's quote")
 
 
-def hazardous_area_caution(area: str, technology: str) -> str:
-    """The caution of an option for a motor in a hazardous area (its ``hazardous_area`` class), "" in none.
+def hazardous_area_caution(area: str, technology: str, certified: bool = False) -> str:
+    """The caution of an option for a motor in a hazardous area (its ``hazardous_area`` class), "" in none;
+    ``certified``: the catalogue's row lists the areas it is certified for (its price is then that equipment's).
 
     Notes
     -----
@@ -674,9 +675,10 @@ def hazardous_area_caution(area: str, technology: str) -> str:
         return head + "the capacitor bank must be certified for it or stand outside it"
     if technology == "add_drive":
         return head + ("today's motor must be certified for converter supply with this drive (IEC 60079-14), or the "
-                       "drive cannot be added; the drive itself stands outside the area")
+                       "drive cannot be added, and the drive itself stands outside the area")
     return head + ("the new motor (and its drive) must be certified for it (ATEX/IECEx, or NEC 500/505) and for "
-                   "converter supply where a drive feeds it; the catalogue's price is for standard equipment")
+                   "converter supply where a drive feeds it" + ("" if certified else
+                                                               ", and the catalogue's price is for standard equipment"))
 
 
 def _held_beyond_cap(shaft: np.ndarray, shaft_eval: np.ndarray) -> np.ndarray | None:
@@ -1543,9 +1545,11 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if (option_rows[o]["technology"] == "existing" or needed is not None
                     or (wanted is not None and o not in wanted)):
                 continue
+            listed = option_rows[o].get("hazardous_areas")
+            certified = isinstance(listed, str) and bool(listed.strip())
             for i in np.flatnonzero(applies[:, o] & (area != "none")):
                 flags.append({"asset_id": asset_ids[i], "option_id": option_ids[o],
-                              "flag": hazardous_area_caution(str(area[i]), option_rows[o]["technology"])})
+                              "flag": hazardous_area_caution(str(area[i]), option_rows[o]["technology"], certified)})
     # a new machine of the catalogue offered for a medium-voltage motor: its class levels, rules and cost curves
     # are those of low-voltage motors (load-independent)
     medium = a["rated_v_v"].to_numpy(dtype=float) > MAX_RULED_V_V if "rated_v_v" in a else np.zeros(len(a), bool)

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import re
+
 import numpy as np
 import pandas as pd
 
@@ -34,6 +36,49 @@ DRIVE_TECHNOLOGIES = ("pm_drive", "reluctance_drive", "add_drive")
 #: and "none"; a catalogue row's ``hazardous_areas`` lists those its equipment is certified for.
 HAZARDOUS_AREAS: tuple[str, ...] = ("none", "zone_0", "zone_1", "zone_2", "zone_20", "zone_21", "zone_22", "division_1",
                                     "division_2")
+#: The classes equipment certified for a class may also serve: a zone 1 certificate covers zone 2, zone 21 covers
+#: 22, division 1 covers 2 (IEC 60079-14, NEC 500/505; cited from memory).
+HAZARDOUS_AREA_COVERS: dict[str, tuple[str, ...]] = {
+    "zone_0": ("zone_0", "zone_1", "zone_2"), "zone_1": ("zone_1", "zone_2"), "zone_2": ("zone_2",),
+    "zone_20": ("zone_20", "zone_21", "zone_22"), "zone_21": ("zone_21", "zone_22"), "zone_22": ("zone_22",),
+    "division_1": ("division_1", "division_2"), "division_2": ("division_2",), "none": ("none",),
+}
+
+
+def _area_synonyms() -> dict[str, str]:
+    """How registers write the classes (normalised: small letters, spaces, hyphens and slashes as ``_``)."""
+    out = {"no": "none", "safe": "none", "safe_area": "none", "non_hazardous": "none", "unclassified": "none",
+           "n/a": "none", "not_classified": "none"}
+    for z in ("0", "1", "2", "20", "21", "22"):
+        for form in (f"zone{z}", f"atex_zone_{z}", f"ex_zone_{z}", f"class_i_zone_{z}", f"class_i,_zone_{z}",
+                     f"class_1_zone_{z}", f"iec_zone_{z}"):
+            out[form] = f"zone_{z}"
+    for d in ("1", "2"):
+        for cls in ("class_i", "class_1", "class_ii", "class_2", "class_iii", "class_3"):
+            for sep in ("_", ",_"):
+                for div in ("division_", "div_", "div"):
+                    out[f"{cls}{sep}{div}{d}"] = f"division_{d}"
+        for form in (f"div_{d}", f"div{d}", f"c1d{d}", f"c2d{d}", f"cid{d}"):
+            out[form] = f"division_{d}"
+    return out
+
+
+#: Register spellings of the hazardous-area classes (the asset register's ``hazardous_area`` and the catalogue's
+#: ``hazardous_areas`` read the same words).
+HAZARDOUS_AREA_SYNONYMS: dict[str, str] = _area_synonyms()
+
+
+def hazardous_area_class(text: object) -> str | None:
+    """A written hazardous-area class as one of :data:`HAZARDOUS_AREAS`, or None when it is none of them.
+
+    Examples
+    --------
+    >>> [hazardous_area_class(x) for x in ("Zone 1", "zone2", "Class I, Division 2", "C1D2", "safe", "zone 9")]
+    ['zone_1', 'zone_2', 'division_2', 'division_2', 'none', None]
+    """
+    words = re.sub(r"[\s\-/]+", "_", str(text).strip().lower())
+    words = HAZARDOUS_AREA_SYNONYMS.get(words, words)
+    return words if words in HAZARDOUS_AREAS else None
 #: New machines that run on the line (no drive of their own).
 LINE_FED_NEW_TECHNOLOGIES = ("induction", "line_start_pm", "wound_field")
 #: Technologies that replace the machine (and so change its speed, losses and power factor).
@@ -88,14 +133,18 @@ def check_options(checker) -> pd.DataFrame:
     frame["speed_remedy"] = frame["speed_remedy"].fillna("none")
     frame["wfsm_mode"] = frame["wfsm_mode"].fillna("power_factor")
     frame["applications"] = frame["applications"].fillna("")
-    if "hazardous_areas" in frame:
+    if "hazardous_areas" in frame:  # written as the register writes them ("Zone 1 | Zone 2"), kept as classes
         frame["hazardous_areas"] = frame["hazardous_areas"].fillna("")
-        known_areas = set(HAZARDOUS_AREAS)
+        read = []
         for i, areas in enumerate(frame["hazardous_areas"]):
-            unknown = [x for x in str(areas).split("|") if x and x not in known_areas]
+            parts = [x.strip() for x in str(areas).split("|") if x.strip()]
+            classes = [hazardous_area_class(x) for x in parts]
+            unknown = [x for x, c in zip(parts, classes) if c is None]
             if unknown:
                 checker.err(i, "hazardous_areas", areas, f"unknown hazardous-area {'class' if len(unknown) == 1 else 'classes'}: "
                             f"{', '.join(unknown)}", f"use {', '.join(HAZARDOUS_AREAS)} separated by |")
+            read.append("|".join(c for c in classes if c is not None))
+        frame["hazardous_areas"] = read
     frame["illustrative"] = frame["illustrative"].fillna(False)
     lo, hi = frame["min_rated_p_kw"].to_numpy(), frame["max_rated_p_kw"].to_numpy()
     for i in np.flatnonzero(lo > hi):
@@ -265,7 +314,8 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     exclude(p > options["max_rated_p_kw"].to_numpy(dtype=float)[None, :] + 1e-9, "rating above the option's range")
     if "hazardous_area" in assets and "hazardous_areas" in options:  # a catalogue row certified for some areas only
         area = assets["hazardous_area"].fillna("none").to_numpy(dtype=object)
-        listed = [set(filter(None, str(x).split("|"))) for x in options["hazardous_areas"].fillna("")]
+        listed = [{served for c in filter(None, str(x).split("|")) for served in HAZARDOUS_AREA_COVERS.get(c, (c,))}
+                  for x in options["hazardous_areas"].fillna("")]  # a zone 1 certificate serves zone 2 too
         outside = np.array([[bool(allowed) and a_ != "none" and a_ not in allowed for allowed in listed] for a_ in area],
                            dtype=bool).reshape(n_a, n_o)
         for i, j in zip(*np.nonzero(outside)):

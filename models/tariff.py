@@ -390,6 +390,12 @@ class EnergyPowerFactorClause:
     count_leading : bool
         False: the month's PF is kWh / sqrt(kWh² + lagging kVArh²) (leading kVArh does not count). True:
         lagging and leading kVArh are added, as where a leading power factor is penalised as a lagging one.
+    rebate_when_leading : bool
+        False: a month whose leading kVArh exceed its lagging kVArh (a leading month) earns no rebate, as
+        where no incentive is given for a leading power factor.
+    base : {"energy_charges", "all_charges"}
+        What the percentage is of: the month's energy charges, or all its charges before taxes (fixed,
+        energy, demand, reactive).
     """
 
     name: str
@@ -397,6 +403,8 @@ class EnergyPowerFactorClause:
     rebates: tuple[PowerFactorBand, ...] = ()
     round_points: Literal["none", "down", "up"] = "none"
     count_leading: bool = False
+    rebate_when_leading: bool = True
+    base: Literal["energy_charges", "all_charges"] = "energy_charges"
 
 
 @dataclass(frozen=True)
@@ -994,12 +1002,16 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             for j, x in enumerate(edges, start=1):
                 if x in edges[:j - 1]:
                     err(f"{k}.{key}[{j}].{edge}", x, f"two {key} bands share the edge {x:g}", "give each band its own edge")
-        if c.penalties and c.rebates and min(b.power_factor for b in c.rebates) < max(b.power_factor for b in c.penalties):
+        edges_ok = all(0.0 < b.power_factor <= 1.0 for b in c.penalties + c.rebates)
+        if (edges_ok and c.penalties and c.rebates
+                and min(b.power_factor for b in c.rebates) < max(b.power_factor for b in c.penalties)):
             err(f"{k}.rebate", min(b.power_factor for b in c.rebates),
                 f"a rebate from a power factor below the highest penalty edge ({max(b.power_factor for b in c.penalties):g}): "
                 "a month's power factor would be both penalised and rebated", "start the rebate at or above the penalty's edge")
         if c.round_points not in ROUND_POINTS:
             err(f"{k}.round_points", c.round_points, "unknown value", f"use one of {', '.join(ROUND_POINTS)}")
+        if c.base not in ENERGY_PF_BASES:
+            err(f"{k}.base", c.base, "unknown value", f"use one of {', '.join(ENERGY_PF_BASES)}")
         if tariff.energy is None:
             warn(k, c.name, "a percentage of the energy charges, but the tariff has no [energy] charge: it bills nothing",
                  "add the [energy] prices, or leave the clause out")
@@ -1194,7 +1206,9 @@ _TAX_KEYS = ("name", "rate_pct", "base")
 _COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
 _REACTIVE_DEMAND_KEYS = ("name", "price_per_kvar_month", "free_kvar_per_kw", "free_power_factor", "window_min", "rolling",
                          "periods", "seasons")
-_ENERGY_PF_KEYS = ("name", "penalty", "rebate", "round_points", "count_leading")
+_ENERGY_PF_KEYS = ("name", "penalty", "rebate", "round_points", "count_leading", "rebate_when_leading", "base")
+#: What an energy power-factor clause's percentage may be of.
+ENERGY_PF_BASES: tuple[str, ...] = ("energy_charges", "all_charges")
 _PENALTY_BAND_KEYS = ("below", "percent_per_point")
 _REBATE_BAND_KEYS = ("above", "percent_per_point")
 ROUND_POINTS: tuple[str, ...] = ("none", "down", "up")
@@ -1223,7 +1237,7 @@ def near_misses(key: str, allowed: tuple[str, ...]) -> list[str]:
     Returns
     -------
     list of str
-        The allowed keys written the same but for letter case, ``_``/``-``/space, a plural ``s``/``es`` or a
+        The allowed keys written the same but for letter case, ``_``/``-``/space, a plural ``s``/``es``/``ies`` or a
         unit suffix left off (``_min``, ``_pct``, ``_frac``, ``_months``); failing those, the allowed keys
         within a difflib similarity ratio of :data:`NEAR_MISS_CUTOFF` of the key in small letters, closest
         first.
@@ -1246,8 +1260,8 @@ def near_misses(key: str, allowed: tuple[str, ...]) -> list[str]:
     (['taxes'], ['time_zone'], ['window_min'])
     >>> near_misses("notes_for_me", _TARIFF_KEYS), near_misses("price_per_kv_month", _DEMAND_KEYS)
     ([], ['price_per_kva_month', 'price_per_kw_month', 'excess_price_per_kva_month'])
-    >>> near_misses("Taxs", _TOP_KEYS)
-    ['taxes']
+    >>> near_misses("Taxs", _TOP_KEYS), near_misses("penalties", _ENERGY_PF_KEYS)
+    (['taxes'], ['penalty'])
     """
 
     def squash(text: str) -> str:
@@ -1258,7 +1272,10 @@ def near_misses(key: str, allowed: tuple[str, ...]) -> list[str]:
     for a in allowed:
         full = squash(a)
         stem, _, suffix = a.rpartition("_")
+        plural = full[:-1] + "ies" if full.endswith("y") else None  # penalty -> penalties
+        single = written[:-3] + "y" if written.endswith("ies") else None
         if (written == full or full in (written + "s", written + "es") or written in (full + "s", full + "es")
+                or written == plural or full == single
                 or (stem and suffix in _UNIT_SUFFIXES and written == squash(stem))):
             variants.append(a)
     if variants:
@@ -1508,6 +1525,18 @@ def _dotted(name: str) -> list[str]:
     return [part.strip().strip("\"'") for part in name.split(".")]
 
 
+def _encloses(path: list, target: list) -> bool:
+    """Whether a written path (tables and a key, as :func:`key_line` reads them) leads to ``target``: each part the
+    same, or the last a key holding the inline array whose entry the target names (``penalty`` for
+    ``penalty[2]``)."""
+    if len(path) > len(target):
+        return False
+    for k, (written, wanted) in enumerate(zip(path, target)):
+        if written != wanted and not (k == len(path) - 1 and written[1] is None and written[0] == wanted[0]):
+            return False
+    return True
+
+
 def key_line(text: str, key_path: str) -> int | None:
     r"""The line of a tariff file where a key path of its problem messages is written, or None.
 
@@ -1533,6 +1562,9 @@ def key_line(text: str, key_path: str) -> int | None:
     (7, 3, None)
     >>> key_line(text, "demand")  # a whole array of tables: its first entry
     3
+    >>> key_line('[[energy_power_factor]]\npenalty = [\n  { below = 1.2, percent_per_point = 1 },\n]\n',
+    ...          "energy_power_factor[1].penalty[1].below")  # an inline array's entry: the key holding it
+    2
     """
     target = []
     for part in key_path.split("."):
@@ -1573,7 +1605,7 @@ def key_line(text: str, key_path: str) -> int | None:
                 path = table + [(name, None) for name in _dotted(key.group(1))]
         if path == target:
             return number
-        if len(path) > best_depth and path == target[:len(path)]:
+        if len(path) > best_depth and _encloses(path, target):
             best, best_depth = number, len(path)
     if best_depth < len(target) and target[-1][1] is None and not key_path.rstrip().endswith("]"):
         # a whole array of tables named without an entry (e.g. a misspelt ``[[taxs]]``): its first entry's line
@@ -1836,7 +1868,7 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         r.known(e, _REACTIVE_DEMAND_KEYS, p)
         qname = r.get(e, "name", p, "str", default=f"reactive demand {i}")
         qprice = r.get(e, "price_per_kvar_month", p, "number")
-        ratio = _allowance(r, e, p, required=False, ratio_key="free_kvar_per_kw")
+        ratio = _allowance(r, e, p, required=True, ratio_key="free_kvar_per_kw")
         qwindow = r.get(e, "window_min", p, "int", default=15)
         qrolling = r.get(e, "rolling", p, "bool", default=False)
         qperiods = r.get(e, "periods", p, "str_list", default=None)
@@ -1854,11 +1886,14 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         rebates = _power_factor_bands(r, e, p, "rebate", "above")
         rounding = r.get(e, "round_points", p, "str", default="none")
         leading_too = r.get(e, "count_leading", p, "bool", default=False)
+        rebate_leading = r.get(e, "rebate_when_leading", p, "bool", default=True)
+        pf_base = r.get(e, "base", p, "str", default="energy_charges")
         if not (e.get("penalty") or e.get("rebate")) and not r.reported(p, "penalty", "rebate"):
             r.err(p, ename, "a power-factor clause on the energy charges needs a penalty or a rebate band",
                   "e.g. penalty = [{ below = 0.9, percent_per_point = 1.0 }]")
         elif penalties is not None and rebates is not None:
-            energy_pf.append(EnergyPowerFactorClause(ename, penalties, rebates, rounding, bool(leading_too)))
+            energy_pf.append(EnergyPowerFactorClause(ename, penalties, rebates, rounding, bool(leading_too),
+                                                     bool(rebate_leading), pf_base))
             pos["energy_power_factor"].append(i)
 
     coincident = []
@@ -1981,7 +2016,8 @@ def _allowance(r: _Reader, e: dict, path: str, *, required: bool, ratio_key: str
         return r.get(e, ratio_key, path, "number")
     if required:
         if not r.reported(path, ratio_key, "free_power_factor"):
-            r.err(path, None, f"needs {ratio_key} or free_power_factor", f"use {ratio_key} = 0 to charge every kVArh")
+            r.err(path, None, f"needs {ratio_key} or free_power_factor",
+                  f"use {ratio_key} = 0 to charge every {'kVAr' if ratio_key.endswith('per_kw') else 'kVArh'}")
         return None
     return 0.0
 

@@ -537,7 +537,8 @@ class TestReactiveDemandAndEnergyPowerFactor:
         p = np.full(8, 100.0)
         q = np.array([10.0, 90.0, 30.0, 30.0, 40.0, 40.0, 40.0, 40.0])
         t60 = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nfree_power_factor = 0.96\nwindow_min = 60\n')
-        t15 = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nwindow_min = 15\n')
+        t15 = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nfree_kvar_per_kw = 0\n'
+                              'window_min = 15\n')
         # hand calculation: hourly means 40 and 40 kVAr; free tan(acos 0.96) × 100 = 29.1667 kVAr → 10.8333
         assert_allclose(quantity(bill(t60, idx, p, q), "reactive demand:q"), 40.0 - 100.0 * 0.28 / 0.96, rtol=1e-12)
         # no allowance, 15-min windows: the highest interval, 90 kVAr
@@ -588,6 +589,41 @@ class TestReactiveDemandAndEnergyPowerFactor:
         # documented bases (docs/tariffs.md): pf energy with the energy charges, reactive demand with the demand's
         assert_allclose(a["tax:on energy"], 0.1 * (a["energy:all"] + a["pf energy:pf"]), rtol=1e-12)
         assert_allclose(a["tax:on demand"], 0.1 * 140.0, rtol=1e-12)
+
+    def test_kvar_demand_reads_lagging_kvar_only(self):
+        # a lagging kVAr register: quarter-hours of +400 and -400 kVAr in one 60-min window read (400 + 0 + 400 + 0)
+        # / 4 = 200 kVAr (hand calculation), not the net 0
+        idx = pd.date_range("2025-01-01", periods=4, freq="15min", tz="UTC")
+        t = load(self.USD + '[[reactive_demand]]\nname = "q"\nprice_per_kvar_month = 1\nfree_kvar_per_kw = 0\n'
+                            'window_min = 60\n')
+        b = bill(t, idx, np.full(4, 1000.0), np.array([400.0, -400.0, 400.0, -400.0]))
+        assert_allclose(quantity(b, "reactive demand:q"), 200.0, **EXACT)
+
+    def test_no_rebate_for_a_leading_month_when_the_clause_says_so(self):
+        # DOMAIN's clause with no incentive for a leading power factor: a month leading by 100 kVAr at 200 kW
+        # (lagging kVArh 0) reads PF 1.0 from its lagging kVArh, 5 points above 0.95; with the rebate 0.5 % a point
+        # that is -2.5 % of 20.00 = -0.50, and nothing once a leading month earns no rebate (hand calculation)
+        idx = pd.date_range("2025-01-01", periods=2, freq="h", tz="UTC")
+        p, q = np.array([100.0, 100.0]), np.array([-100.0, -100.0])
+        clause = self.PF
+        assert_allclose(amounts(bill(load(self.USD + clause), idx, p, q))["pf energy:pf"], -0.5, atol=1e-12)
+        b = bill(load(self.USD + clause + "rebate_when_leading = false\n"), idx, p, q)
+        assert_allclose(amounts(b)["pf energy:pf"], 0.0, atol=0)
+        # leading counted as lagging (a penalty on lead as well as lag) and no rebate: PF 200 / sqrt(200² + 200²)
+        # = 0.707107, penalty 5 x 0.5 + 19.2893 x 1 = 21.7893 % of 20.00 = 4.357864
+        b = bill(load(self.USD + clause + "rebate_when_leading = false\ncount_leading = true\n"), idx, p, q)
+        assert_allclose(amounts(b)["pf energy:pf"], 4.357864, atol=1e-6)
+
+    def test_a_percentage_of_every_charge_before_taxes(self):
+        # base = "all_charges": the month's energy (74,400.00), kVAr demand (140.00) and a fixed charge (60.00) before
+        # taxes, 74,600.00 x 10.58715 % = 7,898.02 (case R7's percentage to one more digit: 2.5 + (0.90 - 0.8191285) /
+        # 0.01, hand calculation); the tax on all charges takes the adjustment in its base
+        idx, p, q = self.month()
+        text = (self.USD + '[[fixed]]\nname = "meter"\ncharge_per_month = 60\n' + self.KVAR + self.PF
+                + 'base = "all_charges"\n[[taxes]]\nname = "vat"\nrate_pct = 10\n')
+        a = amounts(bill(load(text), idx, p, q))
+        assert_allclose(a["pf energy:pf"], 7_898.02, atol=0.01)
+        assert_allclose(a["tax:vat"], 0.1 * (74_400.0 + 140.0 + 60.0 + a["pf energy:pf"]), rtol=1e-12)
 
     def test_equations_on_their_own(self):
         # case R6's figures; a negative kVAr demand counts as none

@@ -1621,10 +1621,13 @@ def test_a_catalogue_row_s_unknown_hazardous_area_is_refused(tmp_path):
     lines = (ROOT / "data" / "defaults" / "options.csv").read_text(encoding="utf-8").splitlines()
     head = next(k for k, line in enumerate(lines) if line.startswith("option_id,"))
     rows = lines[:head] + [lines[head] + ",hazardous_areas"] + [
-        line + (",zone_1|zone_9" if line.startswith("ie4,") else ",zone_2" if line.startswith("ie3,") else ",")
+        line + (",zone_1|zone_9" if line.startswith("ie4,") else ",Zone 1 | Class I Div 2" if line.startswith("ie3,")
+                else ",")
         for line in lines[head + 1:] if line.strip()]
     (folder / "options.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     case, problems = load_case(folder)
     assert case is None
     found = _find(problems, file="options.csv", column="hazardous_areas", text="unknown hazardous-area class")
     assert "zone_9" in found.rule and "zone_2" in found.hint
+    # the register's own spellings are read ("Zone 1 | Class I Div 2"): only the ie4 row is refused
+    assert [p.value for p in problems if p.column == "hazardous_areas" and p.severity == "error"] == ["zone_1|zone_9"]

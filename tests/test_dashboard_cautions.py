@@ -93,7 +93,7 @@ def test_site_meter_sets_the_model_beside_the_sites_bills(small_engine, monkeypa
 
 def test_plan_page_says_the_plan_s_financing(tmp_path_factory, monkeypatch):
     """A case whose finance.toml finances the plan with a loan: the Capital plan page says the owner's NPV and
-    the most it is out of pocket, financed and in cash, in the words of models.financing.financing_text (the
+    the lowest point of its running total, financed and in cash, in the words of models.financing.financing_text (the
     figures are models.financing's, tested in tests/test_financing.py); a case paid in cash says nothing."""
     from dashboard.pages import plan
     from test_dashboard_services import write_small_case

@@ -103,7 +103,8 @@ def test_a_loan_on_the_one_motor_case(one):
     assert summary["lowest_financed"] == 0.0 and summary["lowest_cash"] < 0.0
     text = financing_text(result.assumptions, summary, "EUR")
     assert text.startswith("With 100 % of the capital borrowed at 6 % a year (nominal) and repaid over 5 years")
-    assert "never out of pocket" in text and "cash basis" in text
+    assert "its running total of net flows never falls below zero" in text and "cash basis" in text
+    assert "The repayments are owed whatever the savings turn out to be." in text
 
 
 def test_an_energy_service_company_on_the_one_motor_case(one):
@@ -145,7 +146,7 @@ def test_finance_keys_are_checked():
                             ({"loan_rate_frac": 6}, "loan_rate_frac", "above -0.5 and at most 1")):
         got, problems = FinanceAssumptions.from_dict(data, "finance.toml")
         assert got is None and any(p.column == key and rule in p.rule for p in problems), (data, [str(p) for p in problems])
-    got, problems = FinanceAssumptions.from_dict({"loan_rate_frac": 0.45}, "finance.toml")
+    got, problems = FinanceAssumptions.from_dict({"financing": "loan", "loan_rate_frac": 0.45}, "finance.toml")
     assert got is not None and [p.column for p in problems if p.severity == "warning"] == ["loan_rate_frac"]
 
 
@@ -166,3 +167,30 @@ def test_run_writes_the_table_and_says_the_financing(tmp_path, capsys):
     assert list(table.columns)[:3] == ["year", "cash_net", "loan_proceeds"]
     assert (table["loan_repayment"].iloc[1:5] < 0).all() and (table["loan_repayment"].iloc[5:] == 0).all()
     assert case is not None
+
+
+def test_the_company_takes_no_residual_and_no_share_of_the_mid_life_tax(one):
+    # the one-motor case under a contract as long as the study period (10 years): the residual value at its end is
+    # the owner's (the equipment passes to it, docs/finance.md section 9), and the share is of the operating
+    # savings after tax only: with a 25 % tax and no mid-life work, 0.6 x 0.75 x the savings of each contract year
+    from models.pack import content
+
+    result = _run(one, financing="shared_savings", shared_savings_share_frac=0.6, shared_savings_term_yr=10,
+                  tax_rate_frac=0.25, depreciation_yr=5)
+    table = plan_financing(result)
+    r = result.plan.iloc[0]
+    flows = content.project_flow_table(result, r["asset_id"], r["option_id"])
+    savings = flows.loc[[c for c in flows.index if c.startswith("savings_")]].sum(axis=0).to_numpy()
+    assert_allclose(-table["company_savings_share"].iloc[1:11].to_numpy(), 0.6 * 0.75 * savings[1:11], rtol=1e-12)
+    assert_allclose(table["company_incentive_and_depreciation"].iloc[10], 0.0, atol=1e-9)  # (the shield ended in year 5)
+
+
+def test_a_term_longer_than_the_study_period_and_terms_of_another_financing_are_warned():
+    got, problems = FinanceAssumptions.from_dict({"financing": "loan", "horizon_yr": 10, "loan_term_yr": 15,
+                                                  "shared_savings_term_yr": 4}, "finance.toml")
+    assert got is not None
+    warned = {p.column: p.rule for p in problems if p.severity == "warning"}
+    assert "longer than the study period (10 years)" in warned["loan_term_yr"]
+    assert warned["shared_savings_term_yr"] == "not read: financing is 'loan'"
+    _, problems = FinanceAssumptions.from_dict({"loan_rate_frac": 0.05}, "finance.toml")
+    assert [p.rule for p in problems] == ["not read: financing is 'cash'"]

@@ -467,6 +467,9 @@ def test_a_motor_in_a_hazardous_area_has_every_option_cautioned(tmp_path):
     assert "IEC 60079-19" in p1["rewind"] and "converter supply" in p1["add_drive"]
     assert p1["ie4"].startswith("hazardous area (zone 2): the new motor (and its drive) must be certified for it")
     assert "keep" not in p1.index
+    # one caution each: the dashboard splits a project's cautions at "; " outside brackets
+    from dashboard.services import split_cautions
+    assert all(len(split_cautions(text)) == 1 for text in hazard["flag"])
 
 
 def test_a_catalogue_row_certified_for_some_areas_is_offered_there_only():
@@ -475,14 +478,15 @@ def test_a_catalogue_row_certified_for_some_areas_is_offered_there_only():
     case, _ = load_case(ROOT / "data" / "demo")
     options = case.options.copy()
     options["hazardous_areas"] = ""
-    options.loc[options["option_id"] == "ie4", "hazardous_areas"] = "zone_1|zone_2"
-    assets = pd.DataFrame({"rated_p_kw": [30.0] * 3, "poles": [4] * 3, "application": ["pump"] * 3,
-                           "load_type": ["variable_torque"] * 3, "speed_control": ["throttled"] * 3,
-                           "machine_type": ["induction"] * 3, "rated_v_v": [400.0] * 3,
-                           "hazardous_area": ["zone_2", "division_1", "none"]})
+    options.loc[options["option_id"] == "ie4", "hazardous_areas"] = "zone_1|division_2"
+    # a zone 1 certificate serves zone 2 (IEC 60079-14), a division 2 one not division 1
+    assets = pd.DataFrame({"rated_p_kw": [30.0] * 4, "poles": [4] * 4, "application": ["pump"] * 4,
+                           "load_type": ["variable_torque"] * 4, "speed_control": ["throttled"] * 4,
+                           "machine_type": ["induction"] * 4, "rated_v_v": [400.0] * 4,
+                           "hazardous_area": ["zone_2", "division_1", "none", "zone_21"]})
     applies, reason = applicability(options, assets, "EU")
     j = int(np.flatnonzero(options["option_id"].to_numpy() == "ie4")[0])
-    assert list(applies[:, j]) == [True, False, True]
+    assert list(applies[:, j]) == [True, False, True, False]
     assert reason[1, j] == "not certified for its hazardous area (division 1)"
     others = [k for k in range(len(options)) if k != j]
     assert (applies[1, others] == applies[2, others]).all()  # an unrestricted row is offered in any area

@@ -410,10 +410,20 @@ class TestValidation:
              "reactive_demand[1].free_kvar_per_kw", "must be >= 0"),
             ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_per_kw = 0.6\nfree_power_factor = 0.85',
              "reactive_demand[1]", "free_kvar_per_kw or free_power_factor, not both"),
-            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nwindow_min = 20', "reactive_demand[1].window_min",
-             "demand window must be one of"),
-            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nperiods = ["peak"]', "reactive_demand[1].periods",
-             "unknown period"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_per_kw = 0.62\nwindow_min = 20',
+             "reactive_demand[1].window_min", "demand window must be one of"),
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_per_kw = 0.62\nperiods = ["peak"]',
+             "reactive_demand[1].periods", "unknown period"),
+            # a mistyped allowance key is not a free-for-all: the allowance is required (0 bills every kVAr)
+            ('[[reactive_demand]]\nprice_per_kvar_month = 0.5\nfree_kvar_pct = 62', "reactive_demand[1]",
+             "needs free_kvar_per_kw or free_power_factor"),
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\n'
+             'penalty = [{ below = 0.9, percent_per_point = 1 }]\nbase = "bill"', "energy_power_factor[1].base",
+             "unknown value"),
+            # "penalties" for "penalty" would drop the penalty bands: a near miss, so an error
+            ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\n'
+             'penalties = [{ below = 0.9, percent_per_point = 1 }]\nrebate = [{ above = 0.97, percent_per_point = 1 }]',
+             "energy_power_factor[1].penalties", "misspelling of 'penalty'"),
             ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\nname = "pf"', "energy_power_factor[1]",
              "needs a penalty or a rebate band"),
             ('[energy]\nprice_per_kwh = { all = 0.1 }\n[[energy_power_factor]]\npenalty = [{ below = 1.2, percent_per_point = 1 }]',

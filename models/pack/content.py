@@ -1032,13 +1032,15 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             "and run again before approval.")
     add("assumption", "Replacement timing", a.replacement_mode.replace("_", " "), "all",
         "Replace-now projects assume an outage window in the plan year; book it with operations.")
+    from models.financing import percent_text
+
     if str(getattr(a, "financing", "cash")) == "loan":
-        add("assumption", "Financing", f"loan: {a.loan_share_frac:.0%} of the capital at {100 * a.loan_rate_frac:g} % a "
-            f"year (nominal) over {int(a.loan_term_yr)} years", "all",
+        add("assumption", "Financing", f"loan: {percent_text(a.loan_share_frac)} of the capital at "
+            f"{percent_text(a.loan_rate_frac)} a year (nominal) over {int(a.loan_term_yr)} years", "all",
             "The lender's terms decide the owner's view (section 5); the plan and its metrics are on the cash basis.")
     elif str(getattr(a, "financing", "cash")) == "shared_savings":
-        add("assumption", "Financing", f"energy-service company: {a.shared_savings_share_frac:.0%} of the savings for "
-            f"{int(a.shared_savings_term_yr)} years", "all",
+        add("assumption", "Financing", f"energy-service company: {percent_text(a.shared_savings_share_frac)} of the "
+            f"savings for {int(a.shared_savings_term_yr)} years", "all",
             "The contract's terms (who keeps the depreciation, the equipment at its end, a guarantee of savings) "
             "decide the owner's view (section 5); the plan and its metrics are on the cash basis.")
     assets = case.assets[case.assets["asset_id"].isin(list(scope.asset_ids))]

@@ -93,8 +93,8 @@ def _financed_context(result, financed, cur: str) -> dict[str, Any]:
     loan = str(result.assumptions.financing) == "loan"
     parts = (("loan_proceeds", "Borrowed"), ("loan_repayment", "Repaid"), ("interest_tax_shield", "Interest tax shield")) if loan \
         else (("company_capital", "Capital paid by the company"),
-              ("company_incentive_and_depreciation", "Incentive, depreciation and residual kept by it"),
-              ("company_savings_share", "Savings share paid to it"))
+              ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by it"),
+              ("company_savings_share", "Savings share paid to it, after tax"))
     headers = ["Plan year", f"Cash net [{cur}]"] + [f"{t} [{cur}]" for _, t in parts] + [
         f"Financed net [{cur}]", f"Cumulative financed [{cur}]"]
     rows = [row([cell(int(r["year"]), "num"), num(r["cash_net"])] + [num(r[k]) for k, _ in parts]
@@ -102,8 +102,9 @@ def _financed_context(result, financed, cur: str) -> dict[str, Any]:
             for r in financed.to_dict("records")]
     note = ("Repayments are the loan's equal yearly payments, in base-year money where the analysis is real; a "
             "balance still owed at the end is repaid in the last year." if loan else
-            "The company buys each project's first purchase and keeps its incentive and depreciation; later "
-            "purchases are the owner's, and so is the equipment once the contract ends.")
+            "The company buys each project's first purchase and keeps its incentive and depreciation shield; the "
+            "owner pays mid-life work and later purchases, and the equipment is the owner's once the contract ends.")
+    note += " Positive: money to the owner; negative: money out."
     return {"financed_headers": headers, "financed_rows": rows, "financed_numeric": tuple(range(len(headers))),
             "financed_note": note}
 
@@ -215,7 +216,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
 
         financed = plan_financing(result)
         summary += " " + financing_text(result.assumptions, financing_summary(
-            financed, float(result.assumptions.discount_rate_frac)), cur) + " (section 5)."
+            financed, float(result.assumptions.discount_rate_frac)), cur) + " Section 5 tables it year by year."
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)

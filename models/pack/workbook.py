@@ -873,11 +873,12 @@ def _financing(ws: Worksheet, result, f: _Formats) -> None:
     put_text(ws, 2, 1, text or "Financing: cash (finance.toml's financing key): the owner pays every project's capital, "
              "so the financed columns are zero and the financed net is the cash net.")
     put_text(ws, 3, 1, "Each project from its plan year, as the plan counts it (the cash net's discounted sum is the plan's "
-             "NPV). The plan, its ranking and every metric are on the cash basis.")
+             "NPV). The plan, its ranking and every metric are on the cash basis. Positive: money to the owner; "
+             "negative: money out.")
     cols = [("cash_net", "Cash net"), ("loan_proceeds", "Loan borrowed"), ("loan_repayment", "Loan repaid"),
             ("interest_tax_shield", "Interest tax shield"), ("company_capital", "Capital paid by the company"),
-            ("company_incentive_and_depreciation", "Incentive, depreciation and residual kept by the company"),
-            ("company_savings_share", "Savings share paid to the company")]
+            ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by the company"),
+            ("company_savings_share", "Savings share paid to the company, after tax")]
     row = 5
     _header(ws, row, ["Plan year"] + [f"{h} [{f.currency}]" for _, h in cols]
             + [f"Financed net [{f.currency}]", f"Cumulative financed [{f.currency}]"])
