@@ -1482,8 +1482,11 @@ class FinanceAssumptions:
         if any(p.severity == "error" for p in problems):
             return None, problems
         problems += _check_assumptions(values, source, prefix)
+        defaults = _as_dict(cls())
         for key in [k for k in data if k in _FINANCING_KEYS and not k.startswith(f"{values['financing']}_")]:
-            if values["financing"] in FINANCING_KINDS:  # a loan's terms under shared savings or cash: not read
+            # a loan's terms set under shared savings or cash are not read (the defaults, as a new case's file
+            # writes them, say nothing)
+            if values["financing"] in FINANCING_KINDS and values[key] != defaults[key]:
                 problems.append(warning(source, None, prefix + key, data[key],
                                         f"not read: financing is '{values['financing']}'",
                                         f"set financing = \"{key.split('_')[0] if key.startswith('loan') else 'shared_savings'}\" "

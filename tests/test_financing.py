@@ -194,3 +194,6 @@ def test_a_term_longer_than_the_study_period_and_terms_of_another_financing_are_
     assert warned["shared_savings_term_yr"] == "not read: financing is 'loan'"
     _, problems = FinanceAssumptions.from_dict({"loan_rate_frac": 0.05}, "finance.toml")
     assert [p.rule for p in problems] == ["not read: financing is 'cash'"]
+    # the defaults, as a new case's finance.toml writes them, say nothing
+    _, problems = FinanceAssumptions.from_dict({"loan_rate_frac": 0.06, "shared_savings_term_yr": 7}, "finance.toml")
+    assert problems == []
