@@ -119,16 +119,21 @@ def test_an_energy_service_company_on_the_one_motor_case(one):
     assert_allclose(table["company_capital"].iloc[0], -cash[0], rtol=1e-12)
 
 
+def _contract(one, share_frac: float, term_yr: int):
+    """The one-motor plan under an energy-service contract, 25 % profit tax, 5-year depreciation: the financed
+    table and the plan project's flow table (component x year)."""
+    from models.pack import content
+
+    result = _run(one, financing="shared_savings", shared_savings_share_frac=share_frac,
+                  shared_savings_term_yr=term_yr, tax_rate_frac=0.25, depreciation_yr=5)
+    r = result.plan.iloc[0]
+    return plan_financing(result), content.project_flow_table(result, r["asset_id"], r["option_id"])
+
+
 def test_the_company_takes_the_depreciation_of_its_purchase(one):
     # with a profit tax the depreciation tax shield of the company's purchase is the company's: in the contract's
     # years the owner keeps (1 - share) x the savings after tax and no shield (case F4, last paragraph)
-    from models.pack import content
-
-    result = _run(one, financing="shared_savings", shared_savings_share_frac=0.5, shared_savings_term_yr=4,
-                  tax_rate_frac=0.25, depreciation_yr=5)
-    table = plan_financing(result)
-    r = result.plan.iloc[0]
-    flows = content.project_flow_table(result, r["asset_id"], r["option_id"])
+    table, flows = _contract(one, 0.5, 4)
     assert "tax_depreciation" in flows.index and flows.loc["tax_depreciation"].iloc[1] > 0
     savings = flows.loc[[c for c in flows.index if c.startswith("savings_") or c == "tax_savings"]].sum(axis=0)
     assert_allclose(table["financed_net"].iloc[1:5], 0.5 * savings.iloc[1:5].to_numpy(), rtol=1e-9)
@@ -173,13 +178,7 @@ def test_the_company_takes_no_residual_and_no_share_of_the_mid_life_tax(one):
     # the one-motor case under a contract as long as the study period (10 years): the residual value at its end is
     # the owner's (the equipment passes to it, docs/finance.md section 9), and the share is of the operating
     # savings after tax only: with a 25 % tax and no mid-life work, 0.6 x 0.75 x the savings of each contract year
-    from models.pack import content
-
-    result = _run(one, financing="shared_savings", shared_savings_share_frac=0.6, shared_savings_term_yr=10,
-                  tax_rate_frac=0.25, depreciation_yr=5)
-    table = plan_financing(result)
-    r = result.plan.iloc[0]
-    flows = content.project_flow_table(result, r["asset_id"], r["option_id"])
+    table, flows = _contract(one, 0.6, 10)
     savings = flows.loc[[c for c in flows.index if c.startswith("savings_")]].sum(axis=0).to_numpy()
     assert_allclose(-table["company_savings_share"].iloc[1:11].to_numpy(), 0.6 * 0.75 * savings[1:11], rtol=1e-12)
     assert_allclose(table["company_incentive_and_depreciation"].iloc[10], 0.0, atol=1e-9)  # (the shield ended in year 5)
