@@ -330,8 +330,11 @@ def kvar_clauses(tariff):
     the taxes (their bases then hold only these charges). Dropped: fixed charges, other kWh energy and kW
     demand without adjustment. Between two meter series with the same kW the dropped clauses are equal, and
     a tax is linear in its base, so the bill difference is the reduced tariff's bill difference (a kVAr
-    change's saving costs about half a full bill to price).
+    change's saving costs about half a full bill to price). A power-factor percentage of all charges keeps them
+    all (the whole tariff): its change is the percentage's change times every charge.
     """
+    if any(c.base == "all_charges" for c in tariff.energy_power_factor):
+        return tariff
     energy = tariff.energy if tariff.energy is not None and (tariff.energy.basis != "kWh" or tariff.energy_power_factor) else None
     demand = tuple(d for d in tariff.demand if d.basis != "kW" or d.power_factor_adjustment is not None)
     return replace(tariff, fixed=(), energy=energy, demand=demand, coincident=())

@@ -354,3 +354,37 @@ def test_kvar_demand_and_a_power_factor_percentage_are_reactive_savings_priced_a
     assert_allclose(out["saving"][0].sum(axis=-1), [0.0, 7_212.97], atol=0.005)
     assert_allclose(out["saving"][0, 1, SAVING_COMPONENTS.index("reactive")], 7_212.97, atol=0.005)
     assert_allclose(out["reactive_saving"][0], [0.0, 7_212.97], atol=0.005)
+
+
+def test_a_power_factor_percentage_of_all_charges_keeps_the_whole_tariff_for_kvar_only_savings():
+    # with base = "all_charges" the percentage's change multiplies every charge (fixed and kW demand too): the
+    # kVAr-only pricing must keep them, or its saving would be the percentage's change times the energy alone.
+    # Checked against the direct difference of two full bills (models.billing.bill, priced on its own)
+    import pandas as pd
+
+    from models.bill_savings import SiteSetup, kvar_clauses, site_savings
+    from models.billing import bill, bill_total
+    from models.site import Site
+    from models.tariff import tariff_from_dict
+
+    t, problems = tariff_from_dict({
+        "tariff": {"name": "pf of the bill (invented)", "currency": "USD", "time_zone": "UTC"},
+        "periods": [{"code": "all"}], "energy": {"price_per_kwh": {"all": 0.10}},
+        "fixed": [{"name": "meter", "charge_per_month": 500.0}],
+        "demand": [{"name": "kw", "price_per_kw_month": 12.0, "window_min": 60}],
+        "energy_power_factor": [{"name": "pf", "base": "all_charges",
+                                 "penalty": [{"below": 0.95, "percent_per_point": 1.0}]}]}, "t.toml")
+    assert t is not None, problems
+    assert kvar_clauses(t) is t
+    idx = pd.date_range("2025-01-01", periods=744, freq="h", tz="UTC")
+    p_today = np.full(744, 1000.0)
+    q_today = np.full(744, 700.0)
+    q_new = q_today - 300.0
+    direct = bill_total(bill(t, idx, p_today, q_today)) - bill_total(bill(t, idx, p_today, q_new))
+    p = np.stack([p_today, p_today])[:, None, :]
+    q = np.stack([q_today, q_new])[:, None, :]
+    out = site_savings(SiteSetup("S", t, Site(), None), idx, 1.0, p, q, np.ones((1, 2), dtype=bool),
+                       np.array(["keep", "capacitor"]), 35.0)
+    assert direct > 0
+    assert_allclose(out["saving"][0, 1].sum(), direct, rtol=1e-9)
+    assert_allclose(out["reactive_saving"][0, 1], direct, rtol=1e-9)
