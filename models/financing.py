@@ -168,8 +168,8 @@ def plan_financing(result) -> pd.DataFrame:
         One row per plan year 0 .. horizon + the last plan start (:data:`FINANCED_COLUMNS`) [currency]:
         the plan's net flows as it counts them (``cash_net``, whose discounted sum is the plan's NPV), the
         loan's proceeds, repayments and interest tax shield, the energy-service company's capital, the
-        incentive, depreciation shield and residual value it keeps (negative), the savings share it is paid
-        (negative), the owner's net flows, both cumulative, and the owner's flows discounted at the
+        incentive and depreciation shield it keeps (negative), the savings share it is paid after the owner's
+        tax (negative), the owner's net flows, both cumulative, and the owner's flows discounted at the
         discount rate.
     """
     a = result.assumptions

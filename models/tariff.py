@@ -339,8 +339,9 @@ class ReactiveDemandCharge:
 
     Notes
     -----
-    The month's kVAr demand is its highest window mean of the kVAr (lagging positive), 0 when every window
-    leads; its kW demand the highest window mean of the kW, in the same windows. Billed kVAr = max(kVAr
+    The month's kVAr demand is its highest window mean of the lagging kVAr (an interval's leading kVAr counted
+    as zero, as a lagging register reads it), 0 when every window leads; its kW demand the highest window mean
+    of the kW, in the same windows. Billed kVAr = max(kVAr
     demand − ``free_kvar_per_kw`` × kW demand, 0). The two maxima may fall in different windows, as the
     utilities' meters record them.
     """
@@ -363,7 +364,8 @@ class PowerFactorBand:
     power_factor : float
         The band's edge [-], in (0, 1]: a penalty band counts the points below it, a rebate band those above it.
     percent_per_point : float
-        Percent of the month's energy charges per 0.01 of power factor inside the band [%], in (0, 100].
+        Percent of the clause's base (the month's energy charges, or all its charges) per 0.01 of power factor
+        inside the band [%], in (0, 100].
     """
 
     power_factor: float
@@ -372,7 +374,8 @@ class PowerFactorBand:
 
 @dataclass(frozen=True)
 class EnergyPowerFactorClause:
-    """A percentage added to (or taken off) the month's energy charges for its average power factor.
+    """A percentage added to (or taken off) the month's energy charges (or all its charges) for its average
+    power factor.
 
     Parameters
     ----------
