@@ -1686,14 +1686,10 @@ def reactive_balance(view_: View, result, site_id: str, meters: dict[str, pd.Dat
 
 
 def plan_financing_text(result) -> str:
-    """The plan's financing in words (finance.toml's ``financing``: the owner's NPV and the most it is out of
-    pocket, financed and in cash), or "" for a plan paid in cash or one that buys nothing."""
-    from models.financing import financing_summary, financing_text, plan_financing
+    """The plan's financing in words (:func:`models.financing.plan_financing_words`), "" for cash."""
+    from models.financing import plan_financing_words
 
-    if not len(result.plan) or str(getattr(result.assumptions, "financing", "cash")) == "cash":
-        return ""
-    summary = financing_summary(plan_financing(result), float(result.assumptions.discount_rate_frac))
-    return financing_text(result.assumptions, summary, result.assumptions.currency)
+    return plan_financing_words(result)
 
 
 def plan_solve_text(result) -> str:

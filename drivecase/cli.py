@@ -772,11 +772,11 @@ def _print_run_summary(case, result) -> None:
     elif len(result.fleet_npv_draws) and plan.empty:
         print("  Plan NPV under uncertainty: none to show, the plan holds no project under this budget "
               "(risk.csv and tornado.csv give every asset's best option)")
-    if len(plan) and str(getattr(result.assumptions, "financing", "cash")) != "cash":
-        from models.financing import financing_summary, financing_text, plan_financing
+    from models.financing import plan_financing_words
 
-        financed = financing_summary(plan_financing(result), float(result.assumptions.discount_rate_frac))
-        print(f"  Financing: {financing_text(result.assumptions, financed, currency)} Year by year: financing.csv")
+    financing = plan_financing_words(result)
+    if financing:
+        print(f"  Financing: {financing} Year by year: financing.csv")
     comparison = result.plan_comparison
     if "shortfall" in comparison:
         print(f"  Rank-by-profitability-index plan falls short of the exact plan by "

@@ -38,7 +38,8 @@ import pandas as pd
 from models.cashflows import CAPITAL_COMPONENTS, SAVINGS_COMPONENTS, _depreciation
 from models.finance import capital_recovery_factor
 
-__all__ = ["FINANCED_COLUMNS", "loan_schedule", "plan_financing", "financing_summary", "financing_text", "percent_text"]
+__all__ = ["FINANCED_COLUMNS", "loan_schedule", "plan_financing", "financing_summary", "financing_text", "percent_text",
+           "plan_financing_words"]
 
 #: Columns of :func:`plan_financing`, each [currency] but ``year``.
 FINANCED_COLUMNS: tuple[str, ...] = (
@@ -229,6 +230,17 @@ def financing_summary(table: pd.DataFrame, discount_rate_frac: float) -> dict[st
         "years_negative_financed": int((financed < -0.5).sum()),
         "first_year_financed": float(financed[1]) if len(financed) > 1 else 0.0,
     }
+
+
+def plan_financing_words(result, table: pd.DataFrame | None = None) -> str:
+    """The plan's financing in words (:func:`financing_text` of :func:`plan_financing`'s table, or of ``table``
+    where the caller holds it), or "" for a plan paid in cash or one that buys nothing: what the run, the
+    report, the workbook and the dashboard say."""
+    a = result.assumptions
+    if not len(result.plan) or str(getattr(a, "financing", "cash")) == "cash":
+        return ""
+    table = plan_financing(result) if table is None else table
+    return financing_text(a, financing_summary(table, float(a.discount_rate_frac)), str(a.currency))
 
 
 def percent_text(frac: float) -> str:

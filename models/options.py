@@ -10,8 +10,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import re
-
 import numpy as np
 import pandas as pd
 
@@ -76,7 +74,9 @@ def hazardous_area_class(text: object) -> str | None:
     >>> [hazardous_area_class(x) for x in ("Zone 1", "zone2", "Class I, Division 2", "C1D2", "safe", "zone 9")]
     ['zone_1', 'zone_2', 'division_2', 'division_2', 'none', None]
     """
-    words = re.sub(r"[\s\-/]+", "_", str(text).strip().lower())
+    from models.case import _normalise_category  # (the register's reading of a category; case imports this module)
+
+    words = _normalise_category(text)
     words = HAZARDOUS_AREA_SYNONYMS.get(words, words)
     return words if words in HAZARDOUS_AREAS else None
 #: New machines that run on the line (no drive of their own).

@@ -212,11 +212,10 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         summary += " " + taxes
     financed = None
     if scope.mode != "assets" and len(result.plan) and str(getattr(result.assumptions, "financing", "cash")) != "cash":
-        from models.financing import financing_summary, financing_text, plan_financing
+        from models.financing import plan_financing, plan_financing_words
 
         financed = plan_financing(result)
-        summary += " " + financing_text(result.assumptions, financing_summary(
-            financed, float(result.assumptions.discount_rate_frac)), cur) + " Section 5 tables it year by year."
+        summary += " " + plan_financing_words(result, financed) + " Section 5 tables it year by year."
 
     # the plan's NPV at the plan's start (a project started in plan year k is discounted k more years): the
     # column then adds up to the headline NPV; a project outside the plan would start at once (its own NPV)

@@ -864,14 +864,17 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
 def _financing(ws: Worksheet, result, f: _Formats) -> None:
     """The exact plan's yearly flows to the owner, in cash and under the case's financing
     (:func:`models.financing.plan_financing`); the financed net and its running sum are formulas of the row."""
-    from models.financing import financing_summary, financing_text, plan_financing
+    from models.financing import plan_financing, plan_financing_words
 
-    a = result.assumptions
     _title(ws, "The exact plan's cash flows to the owner, in cash and under the case's financing")
     table = plan_financing(result)
-    text = financing_text(a, financing_summary(table, float(a.discount_rate_frac)), f.currency)
-    put_text(ws, 2, 1, text or "Financing: cash (finance.toml's financing key): the owner pays every project's capital, "
-             "so the financed columns are zero and the financed net is the cash net.")
+    text = plan_financing_words(result, table)
+    if not text:
+        text = ("Financing: cash (finance.toml's financing key): the owner pays every project's capital, so the "
+                "financed columns are zero and the financed net is the cash net."
+                if str(getattr(result.assumptions, "financing", "cash")) == "cash" else
+                "The plan buys nothing under these budgets: there is nothing to finance.")
+    put_text(ws, 2, 1, text)
     put_text(ws, 3, 1, "Each project from its plan year, as the plan counts it (the cash net's discounted sum is the plan's "
              "NPV). The plan, its ranking and every metric are on the cash basis. Positive: money to the owner; "
              "negative: money out.")
