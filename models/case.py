@@ -1609,6 +1609,17 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
         column = "operating_h_per_yr" if hours[i] == 0 else "mean_load_pct"
         checker.warn(i, column, 0, "the motor never runs (0): no option saves anything on it",
                      "give its running hours and mean load, or leave a spare or stand-by motor out of the register")
+    # the load while an on/off motor runs reads its interval profile: elsewhere it is not used
+    if "running_load_pct" in a:
+        running_load = a["running_load_pct"].to_numpy(dtype=float)
+        cycled = a["speed_control"].to_numpy(dtype=object) == "on_off"
+        interval = np.array([str(x) in profiles for x in prof.to_numpy(dtype=object)], dtype=bool) & has_profile
+        for i in np.flatnonzero(~np.isnan(running_load) & ~(cycled & interval)):
+            why = ("the motor is not switched on and off (speed_control is not on_off)" if not cycled[i] else
+                   "its load is given as load states or hours and mean load, which are loads while it runs already")
+            checker.warn(i, "running_load_pct", running_load[i], f"running_load_pct is not used: {why}",
+                         "leave it blank, or set speed_control to on_off for a motor started and stopped by a level "
+                         "or pressure switch with an interval profile")
     # input-kW profiles against rating
     for i in np.flatnonzero(has_profile):
         series = profiles.get(str(prof.iloc[i]))

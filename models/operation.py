@@ -44,12 +44,14 @@ SCREEN_VOLTAGE_DIP_FRAC = 0.10
 #: mean power of an interval, which the meter and the bills read, is kept. Common practice for a process whose
 #: throughput is set upstream; a machine that runs fixed hours whatever it delivers would take 1.
 CONSTANT_TORQUE_RISE_EXPONENT = 0.0
-#: The same exponent for a centrifugal load started and stopped to move a set volume (a sump or tank pump on
-#: a level switch, ``speed_control`` ``on_off``): turned faster it draws the cube of the speed while it runs
-#: but moves the volume in less running time (flow with the speed), so the mean power of an interval rises
-#: with the square (energy per volume with the square of the speed; common practice, the affinity laws with a
-#: fixed pumped volume, friction head only). Continuously running centrifugal loads keep the cube.
-ON_OFF_RISE_EXPONENT = 2.0
+#: Exponent of the shaft power against the speed *while it runs* of a load started and stopped to move a set
+#: amount (``speed_control`` ``on_off``: a sump or tank pump on a level switch, a compressor on a pressure
+#: switch): the cube for a centrifugal load (the affinity laws), the speed itself for a constant-torque one.
+#: Turned faster it also moves the amount in less running time (flow with the speed), which :func:`_on_off`
+#: applies, so an interval's mean power rises with the square of the speed for a centrifugal load and stays
+#: for a constant-torque one (energy per volume with the square of the speed; common practice, the affinity
+#: laws with a fixed pumped volume, friction head only).
+ON_OFF_RUNNING_EXPONENTS = {"variable_torque": 3.0, "constant_torque": 1.0}
 #: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
 #: (rotor copper loss = slip x air-gap power; common practice).
 SLIP_SCALING_BOUNDS = (0.6, 1.0)
@@ -161,6 +163,7 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
     """Return the per-asset numbers the machine models need, as arrays of shape (n_assets,)."""
     a = assets
     speed_control = a["speed_control"].to_numpy(dtype=object)
+    variable = a["load_type"].to_numpy(dtype=object) == "variable_torque"
     return {
         "rated_p_kw": a["rated_p_kw"].to_numpy(dtype=float),
         "poles": a["poles"].to_numpy(dtype=float),
@@ -178,12 +181,17 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
         "rewind_loss": (a["rewind_loss_pct_points"].to_numpy(dtype=float) if "rewind_loss_pct_points" in a
                         else np.full(len(a), induction.DEFAULT_REWIND_LOSS_PCT_POINTS)),
         "exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque", 3.0, 1.0),
-        # what a speed rise does to the mean power of an interval: the cube for a centrifugal load, the square
-        # for one switched on and off to move a set volume; nothing for a constant-torque one, which does the
-        # same work in less running time
-        "rise_exponent": np.where(a["load_type"].to_numpy(dtype=object) == "variable_torque",
-                                  np.where(speed_control == "on_off", ON_OFF_RISE_EXPONENT, 3.0),
-                                  CONSTANT_TORQUE_RISE_EXPONENT),
+        # what a speed rise does to the mean power of an interval: the cube for a centrifugal load, nothing for a
+        # constant-torque one, which does the same work in less running time; for one switched on and off, its
+        # law while it runs (its shorter running time is applied by _on_off)
+        "rise_exponent": np.where(speed_control == "on_off",
+                                  np.where(variable, ON_OFF_RUNNING_EXPONENTS["variable_torque"],
+                                           ON_OFF_RUNNING_EXPONENTS["constant_torque"]),
+                                  np.where(variable, 3.0, CONSTANT_TORQUE_RISE_EXPONENT)),
+        "on_off": speed_control == "on_off",
+        # the shaft load while an on/off motor runs, where the register gives it [kW] (NaN: from its profile)
+        "running_load_kw": (a["running_load_pct"].to_numpy(dtype=float) / 100.0 * a["rated_p_kw"].to_numpy(dtype=float)
+                            if "running_load_pct" in a else np.full(len(a), np.nan)),
         "throttled": speed_control == "throttled",
         "has_drive": speed_control == "drive",
         "static_head": a["static_head_frac"].to_numpy(dtype=float),
@@ -295,6 +303,9 @@ class _Load:
     controlled: tuple[np.ndarray, np.ndarray] | None = None  # _speed_controlled's result, once computed
     running_weight: tuple[np.ndarray, np.ndarray] | None = None  # (weight where running, its row sums), once computed
     existing: induction.InductionParams | None = None  # today's motors, for a speed not yet computed
+    #: shaft power while an on/off asset runs [kW], (n, 1): NaN for the others; None where every column is a
+    #: running state of its own (load states, a grid's loads evaluated as such)
+    on_kw: np.ndarray | None = None
 
     @property
     def n_ref_rpm(self) -> np.ndarray:
@@ -316,7 +327,7 @@ class _Load:
         n_ref = None if self.n_ref_known is None else self.n_ref_known[sub]
         existing = None if n_ref is not None else _take_params(self.existing, sub)
         return _Load(self.p_ref_kw[sub], n_ref, self.running[sub], weight, self.p_design_kw[sub], controlled,
-                     running_weight, existing)
+                     running_weight, existing, None if self.on_kw is None else self.on_kw[sub])
 
     def weight_running(self) -> tuple[np.ndarray, np.ndarray]:
         """Hours each column stands for where the asset runs (0 elsewhere) (n, m), and their sums (n,) [h]."""
@@ -327,9 +338,12 @@ class _Load:
 
 
 def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray, is_input_kw: np.ndarray,
-                    weight_h: np.ndarray) -> _Load:
+                    weight_h: np.ndarray, intervals: bool = True) -> _Load:
     """Today's shaft load of a group from its profile values (shaft-load fractions, or measured input kW
     where ``is_input_kw``), where it runs, and each asset's design shaft power.
+
+    With ``intervals`` (each column an interval's mean, not a load state of its own) an on/off asset's
+    intervals are read as its running load run for part of the interval (``on_kw``, see :func:`_on_off`).
 
     The shaft loads, where the asset runs and each row's peak are one compiled pass (:func:`_reference_rows`);
     measured-input rows are first turned into shaft power by today's motor on those rows alone (the
@@ -340,15 +354,45 @@ def _reference_load(arr, existing: induction.InductionParams, values: np.ndarray
     n, m = values.shape
     p_ref = np.empty((n, m))
     is_input_kw = np.asarray(is_input_kw, dtype=bool)
+    on_off = np.asarray(arr.get("on_off", np.zeros(n, dtype=bool)), dtype=bool) & intervals
     if is_input_kw.any():
-        inputs = np.flatnonzero(is_input_kw)
-        p_ref[inputs] = induction.shaft_from_input_kw(_take_params(existing, inputs), values[inputs])
+        inputs = np.flatnonzero(is_input_kw & ~on_off)
+        if len(inputs):
+            p_ref[inputs] = induction.shaft_from_input_kw(_take_params(existing, inputs), values[inputs])
+        cycled = np.flatnonzero(is_input_kw & on_off)
+        if len(cycled):
+            p_ref[cycled] = _on_off_shaft_from_input(arr, existing, values, cycled)
     weight = np.broadcast_to(weight_h, (n, m))
     running = np.empty((n, m), dtype=bool)
     peak = np.empty(n)
     _reference_rows(values, rated, ~is_input_kw, weight, p_ref, running, peak)
     p_design = np.maximum(peak[:, None], DESIGN_SHAFT_LOAD_FRAC * rated[:, None])
-    return _Load(p_ref, None, running, weight, p_design, existing=existing)  # speed on first use
+    on_kw = None
+    if on_off.any():  # the load while it runs: the register's, else the highest interval mean of the year
+        given = np.asarray(arr["running_load_kw"], dtype=float)
+        on_kw = np.where(on_off, np.where(np.isfinite(given), given, peak), np.nan)[:, None]
+    return _Load(p_ref, None, running, weight, p_design, existing=existing, on_kw=on_kw)  # speed on first use
+
+
+def _on_off_shaft_from_input(arr, existing: induction.InductionParams, values: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """Mean shaft load [kW] of on/off assets (rows ``rows`` of a group) from their measured mean input [kW].
+
+    Such a motor runs at its running load P_on, drawing P_in(P_on) from the supply, for the share d of the
+    interval it runs, so the interval's mean input is d P_in(P_on) and its mean shaft load d P_on: the mean
+    shaft load is the mean input times P_on / P_in(P_on), linear in the input (turning the mean input itself
+    into shaft power through the motor's part-load efficiency would read the light load the motor never
+    runs at). P_on is the register's ``running_load_pct`` where given (its input from today's motor), else
+    the shaft load of the highest mean input of the year (taken as an interval run throughout).
+    """
+    motors = _take_params(existing, rows)
+    v = values[rows]
+    peak_in = np.max(np.where(v > 0.0, v, 0.0), axis=1)
+    given = np.asarray(arr["running_load_kw"], dtype=float)[rows]
+    has = np.isfinite(given) & (given > 0.0)
+    p_on = np.where(has, given, np.asarray(induction.shaft_from_input_kw(motors, peak_in[:, None]), dtype=float)[:, 0])
+    p_in_on = np.where(has, induction._input_reactive_speed(motors, np.where(has, given, 0.0)[:, None])[0][:, 0], peak_in)
+    ratio = np.where(p_in_on > 0.0, p_on / np.where(p_in_on > 0.0, p_in_on, 1.0), 0.0)
+    return np.where(v > 0.0, v * ratio[:, None], 0.0)
 
 
 @numba.njit(nogil=True, cache=True)
@@ -857,6 +901,70 @@ def capacitor_rows_kvar(p0_kw: np.ndarray, q0_kvar: np.ndarray, q_cap_kvar) -> n
 
 
 def _evaluate(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
+    """An option's operating point on a group's load: :func:`_on_off` where some assets are switched on and
+    off, else :func:`_evaluate_running` (every column's load run throughout its hours)."""
+    on_off = arr.get("on_off")
+    if on_off is not None and np.asarray(on_off, dtype=bool).any():
+        return _on_off(option, arr, existing, load, site_other)
+    return _evaluate_running(option, arr, existing, load, site_other)
+
+
+def _on_off(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
+    """An option on a group whose on/off assets run at their running load for part of each column's hours.
+
+    An on/off asset (``arr["on_off"]``) with a running load ``load.on_kw`` runs at P_on for the share
+    d = P / P_on of an interval whose mean shaft load is P (P > P_on: the interval is taken as running
+    throughout at its mean, d = 1); a load state (no ``on_kw``) runs at its own load, d = 1. The option is
+    evaluated at the load it runs at; turned faster by the option, the asset draws its running law's power,
+    P_on r^k (``rise_exponent`` k: 3 for a centrifugal load, 1 for a constant-torque one), and moves its amount
+    in 1/r of the time. The interval's means are the running values times d / r, with r = (P_shaft / P_on)^(1/k)
+    from the option's running shaft power: its kW, kVAr, shaft power and losses; its speed is the running
+    speed. Other assets of the group are evaluated as they are (d = r = 1).
+
+    So the kVAr of a motor running a quarter of an hour at 80 % load is a quarter of its kVAr at 80 %, not its
+    kVAr at 20 % (most of a motor's kVAr is its magnetising current, drawn at any load while it runs), and a
+    terminal capacitor switched with it corrects a quarter of its kVAr.
+
+    References
+    ----------
+    docs/derivations/loads-speed-coupling.md, "A pump switched on and off" and "An on/off motor's interval".
+    """
+    on = np.asarray(arr["on_off"], dtype=bool)[:, None]
+    p = load.p_ref_kw
+    running_at = p
+    if load.on_kw is not None:
+        running_at = np.where(on & (load.on_kw > p) & load.running, load.on_kw, p)
+    run_load = _Load(running_at, None, load.running, load.weight_h, load.p_design_kw,
+                     existing=existing if load.existing is None else load.existing)
+    if load.on_kw is None and load.n_ref_known is not None:
+        run_load.n_ref_known = load.n_ref_known  # the same loads: today's speed already known
+    pt = _evaluate_running(option, arr, existing, run_load, site_other)
+    share = np.where(running_at > 0.0, p / np.where(running_at > 0.0, running_at, 1.0), 1.0)
+    exponent = np.asarray(arr["rise_exponent"], dtype=float)[:, None]
+
+    def scaled(part: _Point, rows) -> None:
+        shaft = part.shaft_kw
+        on_rows, at, k = on[rows], running_at[rows], exponent[rows]
+        # the running time of the option against today's: 1/r, r^k = P_shaft / P_on
+        ok = on_rows & (shaft > 0.0) & (at > 0.0) & (k > 0.0)
+        time_frac = np.where(ok, np.power(np.where(ok, at / np.where(ok, shaft, 1.0), 1.0),
+                                          1.0 / np.where(k > 0.0, k, 1.0)), 1.0)
+        factor = np.where(on_rows, share[rows] * time_frac, 1.0)
+        for name in ("p_kw", "q_kvar", "shaft_kw", "loss_motor_kw", "loss_drive_kw", "loss_excitation_kw"):
+            value = getattr(part, name)
+            if value is not None:
+                setattr(part, name, value * factor)  # (not in place: a value may be the load's own array)
+
+    if isinstance(pt, _Parts):
+        for rows, part in pt.parts:
+            scaled(part, rows)
+    else:
+        scaled(pt, slice(None))
+    return pt
+
+
+def _evaluate_running(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:
+    """An option's operating point with every column's load run throughout its hours."""
     tech = option["technology"]
     if tech == "existing":
         return _today(arr, existing, load)
@@ -1097,7 +1205,7 @@ def _grid_load(existing: induction.InductionParams, load: _Load, grid: tabulatio
     """The reference load of a group of assets at their grid's loads (every column a running state)."""
     p = grid.p_grid_kw
     n_ref = np.asarray(induction.induction_speed_rpm(existing, p), dtype=float)
-    return _Load(p, n_ref, p > 0.0, np.ones(p.shape), load.p_design_kw)
+    return _Load(p, n_ref, p > 0.0, np.ones(p.shape), load.p_design_kw, on_kw=load.on_kw)
 
 
 def _point_flags(pt) -> list[tuple[int, str]]:
@@ -1456,7 +1564,8 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
                                            if np.ndim(getattr(existing_s, f.name))})
             n_ref = None if load_s.n_ref_known is None else load_s.n_ref_known[r_k, t_k][:, None]
             load_k = _Load(load_s.p_ref_kw[r_k, t_k][:, None], n_ref, np.ones((len(r_k), 1), dtype=bool),
-                           np.full((len(r_k), 1), interval_h), load_s.p_design_kw[r_k], existing=motors)
+                           np.full((len(r_k), 1), interval_h), load_s.p_design_kw[r_k], existing=motors,
+                           on_kw=None if load_s.on_kw is None else load_s.on_kw[r_k])
             pt_k = _whole(_evaluate(option, one, motors, load_k))
             for name in _POINT_ARRAYS:
                 if values[name] is not None:
@@ -1502,6 +1611,10 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         if today is None:
             run(0, option_rows[0], kind, rows_, np.arange(len(rows_)), arr, existing, load)
             running_h[rows_] = grids[kind][0].hours_h.sum(axis=1) if kind in grids else load.weight_running()[1]
+            if load.on_kw is not None and not power_only:
+                # an on/off asset runs a share of each interval: its hours are its shaft energy at its running load
+                cyc = np.flatnonzero(np.isfinite(load.on_kw[:, 0]) & (load.on_kw[:, 0] > 0.0))
+                running_h[rows_[cyc]] = np.minimum(shaft_energy[rows_[cyc], 0] / load.on_kw[cyc, 0], running_h[rows_[cyc]])
     if today is not None:  # the same block's first pass: the same numbers
         p_kw[0], q_kvar[0] = today.p_kw, today.q_kvar
         energy[:, 0], shaft_energy[:, 0], losses[:, 0] = today.energy_kwh, today.shaft_energy_kwh, today.losses_kwh
@@ -1526,8 +1639,15 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             if option["technology"] == "capacitor":
                 cap_q[rows_[sub], o] = capacitor_size_kvar(existing_s, option["target_power_factor"])
                 if kind == "interval":  # per interval: today's rows, the bank's kVAr taken off
-                    with_capacitor(o, rows_[sub], cap_q[rows_[sub], o])
-                    continue
+                    cycled = np.asarray(arr_s.get("on_off", np.zeros(len(sub), dtype=bool)), dtype=bool)
+                    if not cycled.all():
+                        with_capacitor(o, rows_[sub[~cycled]], cap_q[rows_[sub[~cycled]], o])
+                    if not cycled.any():
+                        continue
+                    # an on/off motor's bank corrects its kVAr only for the share of the interval it runs:
+                    # evaluated as an option (_on_off), not shifted from today's rows
+                    keep = np.flatnonzero(cycled)
+                    sub, arr_s, existing_s = sub[keep], _take(arr_s, keep), _take_params(existing_s, keep)
             run(o, option, kind, rows_, sub, arr_s, existing_s, load,
                 follows_site=option["technology"] == "wound_field" and kind == "interval")
     # a drive added to an existing motor: the motor's insulation and bearings must suit it (load-independent)
@@ -1851,7 +1971,10 @@ class _Merger:
             n_o = len(first.option_ids)
             self.recompute.today_p, self.recompute.today_q = p, q
             # terminal capacitors on interval data: today's rows shifted, never recomputed
-            derived = (first.technologies == "capacitor")[None, :] & f["applies"] & f["interval_data"][:, None]
+            # (an on/off motor's bank is evaluated as an option: not derived, recomputed)
+            cycled = self.recompute.case.assets["speed_control"].to_numpy(dtype=object) == "on_off"
+            derived = ((first.technologies == "capacitor")[None, :] & f["applies"]
+                       & (f["interval_data"] & ~cycled)[:, None])
             shift = np.where(derived, f["capacitor_q_kvar"], np.nan)
             p = SiteIntervalStore(p, n_o, self.recompute, "p_kw", shift)
             q = SiteIntervalStore(q, n_o, self.recompute, "q_kvar", shift)
@@ -2351,7 +2474,7 @@ def _load_groups(arr_all, existing_all, interval_rows: np.ndarray, values, is_in
             load = _reference_load(arr, existing, values, is_input, np.full((1, n_t), interval_h))
         else:
             load = _reference_load(arr, existing, states.shaft_load_frac[rows_], np.zeros(len(rows_), dtype=bool),
-                                   states.duration_h_per_yr[rows_])
+                                   states.duration_h_per_yr[rows_], intervals=False)
         groups.append((kind, rows_, arr, existing, load))
     return groups
 

@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 
 import casebuilder as cb
 from models.case import load_case
@@ -490,3 +490,142 @@ def test_a_catalogue_row_certified_for_some_areas_is_offered_there_only():
     assert reason[1, j] == "not certified for its hazardous area (division 1)"
     others = [k for k in range(len(options)) if k != j]
     assert (applies[1, others] == applies[2, others]).all()  # an unrestricted row is offered in any area
+
+
+def _sump_case(folder: Path, control: str, pattern_pct, running_load_pct: str = "", input_kw: bool = False) -> Path:
+    """A 30 kW 4-pole sump pump (IE2, 1,470 rpm) with a year of hourly loads repeating ``pattern_pct`` (UTC, so
+    every hour of the year is there once)."""
+    header = cb.ASSET_HEADER + ["load_type", "running_load_pct"]
+    row = ["P9", "S1", "Sump pump", "pump", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
+           control, "LP1", "", "", "medium", "variable_torque", running_load_pct]
+    t0 = pd.Timestamp("2025-01-01 00:00")
+    rows = [["LP1", (t0 + pd.Timedelta(hours=k)).strftime("%Y-%m-%d %H:%M"), f"{pattern_pct[k % len(pattern_pct)]}"]
+            for k in range(8760)]
+    cb.write_case(folder, assets=[row], asset_header=header, capacitors=[], duty=[], profiles=rows,
+                  case_toml=cb.CASE_TOML.replace("Europe/Berlin", "UTC"))
+    if input_kw:
+        text = (folder / "profiles.csv").read_text(encoding="utf-8").replace("shaft_load_pct", "input_kw", 1)
+        (folder / "profiles.csv").write_text(text, encoding="utf-8")
+    return folder
+
+
+@pytest.mark.parametrize("tabulate", [True, False])
+def test_an_on_off_motor_runs_its_running_load_for_part_of_each_interval(tmp_path, monkeypatch, tabulate):
+    # A sump pump on a level switch whose hourly means repeat 80, 40, 20 % of rating runs at 80 % (the highest
+    # interval mean, its running load) for all, half and a quarter of each hour in turn: its kW, kVAr and losses
+    # are those shares of the motor's at 80 %, so over the year 1.75/3 of a motor running throughout at 80 %
+    # (hand calculation, docs/derivations/loads-speed-coupling.md, "An on/off motor's interval"), and a terminal
+    # capacitor switched with it corrects 1.75/3 of the kVAr it corrects on that motor. The tolerance is the
+    # tables' (1e-5 of the rated input; the grid of loads is uniform in the cube root of the load).
+    # Evaluated at the interval means instead, the same motor would draw far more kVAr: a motor's kVAr is
+    # mostly its magnetising current, drawn at any load while it runs.
+    from models import operation
+
+    monkeypatch.setattr(operation, "TABULATE", tabulate)
+    steady = operate(load_case(_sump_case(tmp_path / "steady", "fixed", [80]))[0])
+    cycled = operate(load_case(_sump_case(tmp_path / "cycled", "on_off", [80, 40, 20]))[0])
+    averaged = operate(load_case(_sump_case(tmp_path / "averaged", "fixed", [80, 40, 20]))[0])
+    share = 1.75 / 3
+    keep = steady.option_position("keep")
+    for option in ("keep", "ie4", "capacitor"):
+        o = steady.option_position(option)
+        # an IE4 motor slips less: it turns the pump r times faster (r^3 its shaft power while it runs, from the
+        # motor running throughout) and empties the sump in 1/r of the time
+        r = (steady.shaft_energy_kwh[0, o] / steady.shaft_energy_kwh[0, keep]) ** (1 / 3)
+        assert (r > 1.003) == (option == "ie4")
+        assert_allclose(cycled.energy_kwh[0, o], share / r * steady.energy_kwh[0, o], rtol=1e-5)
+        assert_allclose(cycled.lagging_kvarh[0, o], share / r * steady.lagging_kvarh[0, o], rtol=1e-5)
+        assert_allclose(cycled.losses_kwh[0, o], share / r * steady.losses_kwh[0, o], rtol=1e-5)
+    assert_allclose(cycled.running_h[0], share * 8760.0, rtol=1e-5)
+    assert averaged.lagging_kvarh[0, keep] > 1.3 * cycled.lagging_kvarh[0, keep]
+    # the same motor's shaft energy, whichever way its hour is read: the profile's
+    assert_allclose(cycled.shaft_energy_kwh[0, keep], 30 * 0.01 * (80 + 40 + 20) / 3 * 8760, rtol=1e-5)
+    assert_allclose(averaged.shaft_energy_kwh[0, keep], cycled.shaft_energy_kwh[0, keep], rtol=1e-5)
+
+
+def test_an_on_off_motor_turned_faster_moves_its_volume_in_less_running_time(tmp_path):
+    # The same sump pump: a line-start PM motor turns it at 1,500 rpm against today's n at its running load (80 %).
+    # While it runs it draws (1500/n)^3 of today's shaft power, for n/1500 of the time: the year's shaft energy
+    # rises by (1500/n)^2 (hand calculation, docs/derivations/loads-speed-coupling.md, "A pump switched on and
+    # off"), where a continuously running pump's rises by the cube.
+    steady = operate(load_case(_sump_case(tmp_path / "steady", "fixed", [80]))[0])
+    cycled = operate(load_case(_sump_case(tmp_path / "cycled", "on_off", [80, 40, 20]))[0])
+    keep, lspm = steady.option_position("keep"), steady.option_position("lspm")
+    n_today = float(steady.mean_speed_rpm[0, keep])
+    assert 1470.0 < n_today < 1480.0
+    assert_allclose(steady.shaft_energy_kwh[0, lspm] / steady.shaft_energy_kwh[0, keep], (1500.0 / n_today) ** 3,
+                    rtol=1e-9)
+    assert_allclose(cycled.shaft_energy_kwh[0, lspm] / cycled.shaft_energy_kwh[0, keep], (1500.0 / n_today) ** 2,
+                    rtol=1e-5)
+    assert_allclose(cycled.mean_speed_rpm[0, lspm], 1500.0, rtol=1e-9)
+
+
+def test_an_on_off_motor_given_its_running_load(tmp_path):
+    # Hourly means of 40, 20, 10 % with a running load of 80 % in the register: the motor runs at 80 % for
+    # half, a quarter and an eighth of each hour, half the shares of the test above (hand calculation).
+    steady = operate(load_case(_sump_case(tmp_path / "steady", "fixed", [80]))[0])
+    cycled = operate(load_case(_sump_case(tmp_path / "cycled", "on_off", [40, 20, 10], running_load_pct="80"))[0])
+    keep = steady.option_position("keep")
+    assert_allclose(cycled.energy_kwh[0, keep], 0.5 * 1.75 / 3 * steady.energy_kwh[0, keep], rtol=1e-5)
+    assert_allclose(cycled.lagging_kvarh[0, keep], 0.5 * 1.75 / 3 * steady.lagging_kvarh[0, keep], rtol=1e-5)
+
+
+def test_an_on_off_motor_metered_by_its_input_reads_its_shaft_load_linearly(tmp_path):
+    # Measured mean input of a sump pump in turn P_in(80 %), half and a quarter of it (P_in(80 %) taken from the
+    # motor running throughout at 80 %): it runs at 80 % for those shares of each hour, so its shaft energy is
+    # 1.75/3 of 24 kW x 8,760 h (hand calculation: the mean shaft load is the mean input times P_on / P_in(P_on),
+    # docs/derivations/loads-speed-coupling.md). Read through the motor's part-load efficiency instead, the
+    # quarter-hour's input would give a lighter shaft load than a quarter of 24 kW.
+    steady = operate(load_case(_sump_case(tmp_path / "steady", "fixed", [80]))[0])
+    keep = steady.option_position("keep")
+    p_in = steady.energy_kwh[0, keep] / 8760.0
+    cycled = operate(load_case(_sump_case(tmp_path / "cycled", "on_off", [f"{p_in:.12f}", f"{p_in / 2:.12f}",
+                                                                         f"{p_in / 4:.12f}"], input_kw=True))[0])
+    assert_allclose(cycled.shaft_energy_kwh[0, keep], 1.75 / 3 * 24.0 * 8760.0, rtol=1e-5)
+    assert_allclose(cycled.energy_kwh[0, keep], 1.75 / 3 * p_in * 8760.0, rtol=1e-5)
+
+
+def test_a_running_load_is_warned_where_it_is_not_read(tmp_path):
+    # running_load_pct is read for on/off motors with an interval profile only (docs/case-format.md)
+    _, problems = load_case(_sump_case(tmp_path / "c", "fixed", [80], running_load_pct="80"))
+    hits = [p for p in problems if p.column == "running_load_pct"]
+    assert len(hits) == 1 and hits[0].severity == "warning" and "not switched on and off" in str(hits[0])
+
+
+def test_on_off_motors_read_the_same_through_every_engine_path(tmp_path):
+    # Two on/off sump pumps (one with its running load given) beside a continuously running one, each with a
+    # terminal-capacitor option: the rows of every option are the same bits whether the run keeps them all
+    # (dense), recomputes them site by site (compact store) or reads them through the sites' curve books, in
+    # blocks of one or more assets (an invariant of our own design: the engine paths compute the same numbers).
+    from models import operation, scenario
+
+    folder = _sump_case(tmp_path / "c", "on_off", [80, 40, 20])
+    lines = (folder / "assets.csv").read_text(encoding="utf-8").splitlines()
+    second = lines[1].replace("P9,", "P8,", 1).replace(",variable_torque,", ",variable_torque,90", 1)
+    third = lines[1].replace("P9,", "P7,", 1).replace(",on_off,", ",fixed,", 1)
+    (folder / "assets.csv").write_text("\n".join(lines + [second, third]) + "\n", encoding="utf-8")
+    cb.with_flat_tariff(folder)
+    tariff = folder / "tariffs" / "flat.toml"
+    tariff.write_text(tariff.read_text(encoding="utf-8").replace("Europe/Berlin", "UTC"), encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems]
+    assert list(case.assets["speed_control"]) == ["on_off", "on_off", "fixed"]
+    assert case.assets["running_load_pct"].iloc[1] == 90.0
+    dense = scenario.physics(case, 35.0, chunk_assets=2, dense=True).operation
+    booked = scenario.physics(case, 35.0, chunk_assets=1, dense=False).operation
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(operation, "KEPT_BOOKS_BUDGET_BYTES", 0)
+        compact = scenario.physics(case, 35.0, chunk_assets=2, dense=False).operation
+    cap = dense.option_position("capacitor")
+    assert dense.applies[:, cap].all()
+    for o in range(len(dense.option_ids)):
+        for other in (booked, compact):
+            assert_array_equal(other.p_kw[o], dense.p_kw[o], err_msg=dense.option_ids[o])
+            assert_array_equal(other.q_kvar[o], dense.q_kvar[o], err_msg=dense.option_ids[o])
+    for name in ("energy_kwh", "lagging_kvarh", "running_h"):
+        assert_array_equal(getattr(booked, name), getattr(dense, name), err_msg=name)
+    # the banks of the on/off pumps correct their kVAr only while they run: less than the same bank on the pump
+    # running throughout, whose correction is today's kVAr less the bank's in every running interval
+    saved = (dense.lagging_kvarh[:, 0] - dense.lagging_kvarh[:, cap]) / dense.capacitor_q_kvar[:, cap]
+    assert_allclose(saved[2], 8760.0, rtol=1e-9)
+    assert saved[0] < 0.6 * 8760.0 and saved[1] < 0.6 * 8760.0
