@@ -35,8 +35,13 @@ LOSS_KINDS: tuple[str, ...] = ("motor", "drive", "excitation")
 #: (common practice: centrifugal pumps start light with little inertia; fans carry inertia; crushers,
 #: loaded conveyors and mixers start heavy).
 START_DUTY_SCREEN: dict[str, tuple[float, float]] = {"light": (2.0, 0.2), "normal": (8.0, 0.5), "heavy": (30.0, 1.0)}
-#: Starts per hour and supply dip assumed for the line-start screen (common practice).
+#: Starts per hour and supply dip assumed for the line-start screen (common practice), where the register
+#: gives no ``starts_per_hour``.
 SCREEN_STARTS_PER_HOUR = 2.0
+#: Starts per hour assumed for a motor switched on and off by a level or pressure switch (``speed_control``
+#: ``on_off``) without ``starts_per_hour``: sumps and receivers are commonly sized for up to about 10 starts an
+#: hour at the inflow that cycles the pump most (common practice, from memory; fewer for large motors).
+ON_OFF_SCREEN_STARTS_PER_HOUR = 10.0
 SCREEN_VOLTAGE_DIP_FRAC = 0.10
 #: Exponent k of an interval's mean shaft power against a replacement's speed, P_new = P_ref (n_new/n_ref)^k, for a
 #: constant-torque load (conveyors, positive-displacement machines): turned faster, such a load does the same work
@@ -189,6 +194,8 @@ def asset_arrays(assets: pd.DataFrame) -> dict[str, np.ndarray]:
                                            ON_OFF_RUNNING_EXPONENTS["constant_torque"]),
                                   np.where(variable, 3.0, CONSTANT_TORQUE_RISE_EXPONENT)),
         "on_off": speed_control == "on_off",
+        "starts_per_hour": (a["starts_per_hour"].to_numpy(dtype=float) if "starts_per_hour" in a
+                            else np.full(len(a), np.nan)),
         # the shaft load while an on/off motor runs, where the register gives it [kW] (NaN: from its profile)
         "running_load_kw": (a["running_load_pct"].to_numpy(dtype=float) / 100.0 * a["rated_p_kw"].to_numpy(dtype=float)
                             if "running_load_pct" in a else np.full(len(a), np.nan)),
@@ -756,12 +763,26 @@ def _line_start_pm(arr, load: _Load, option: Mapping) -> _Point:
     p = np.where(run, p_in, 0.0)
     inertia, start_torque = (np.array([START_DUTY_SCREEN.get(d, START_DUTY_SCREEN["normal"])[k] for d in arr["start_duty"]])
                              for k in (0, 1))
-    screen = synchronous.lspm_starting_screen(inertia, start_torque, SCREEN_STARTS_PER_HOUR, SCREEN_VOLTAGE_DIP_FRAC)
+    screen = synchronous.lspm_starting_screen(inertia, start_torque, screen_starts_per_hour(arr), SCREEN_VOLTAGE_DIP_FRAC)
     for i in np.flatnonzero(np.asarray(screen.status) != "ok"):
         flags.append((int(i), f"line-start screen: {screen.status[i]} ({screen.reasons[i]})"))
     loss = pt.p_in_kw - shaft_eval if scale is None else p_in - shaft
     return _Point(p, np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
                   np.where(run, loss, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
+
+
+def screen_starts_per_hour(arr) -> np.ndarray:
+    """Starts per hour of each asset for the line-start screen [1/h]: the register's ``starts_per_hour``, else
+    :data:`ON_OFF_SCREEN_STARTS_PER_HOUR` for an on/off motor and :data:`SCREEN_STARTS_PER_HOUR` for the others.
+
+    >>> screen_starts_per_hour({"rated_p_kw": np.ones(3), "starts_per_hour": np.array([np.nan, np.nan, 1.0]),
+    ...                         "on_off": np.array([False, True, True])}).tolist()
+    [2.0, 10.0, 1.0]
+    """
+    n = len(arr["rated_p_kw"])
+    given = np.asarray(arr.get("starts_per_hour", np.full(n, np.nan)), dtype=float)
+    on_off = np.asarray(arr.get("on_off", np.zeros(n, dtype=bool)), dtype=bool)
+    return np.where(np.isfinite(given), given, np.where(on_off, ON_OFF_SCREEN_STARTS_PER_HOUR, SCREEN_STARTS_PER_HOUR))
 
 
 def _synchronous_on_drive(arr, load: _Load, option: Mapping, kind: str) -> _Point:

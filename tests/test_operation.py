@@ -629,3 +629,22 @@ def test_on_off_motors_read_the_same_through_every_engine_path(tmp_path):
     saved = (dense.lagging_kvarh[:, 0] - dense.lagging_kvarh[:, cap]) / dense.capacitor_q_kvar[:, cap]
     assert_allclose(saved[2], 8760.0, rtol=1e-9)
     assert saved[0] < 0.6 * 8760.0 and saved[1] < 0.6 * 8760.0
+
+
+@pytest.mark.parametrize("control, starts, frequent", [("fixed", "", False), ("on_off", "", True), ("on_off", "4", False),
+                                                        ("fixed", "12", True)])
+def test_the_line_start_screen_counts_an_on_off_motors_starts(tmp_path, control, starts, frequent):
+    # A line-start PM motor must pull into step at every start: above 6 evenly spread starts an hour the screen
+    # asks to confirm with the supplier (models.synchronous.LSPM_MAX_STARTS_PER_HOUR, common practice). A pump on
+    # a level switch is taken at 10 starts an hour when the register gives none, another motor at 2
+    # (docs/case-format.md, starts_per_hour).
+    header = cb.ASSET_HEADER + ["load_type", "starts_per_hour"]
+    row = ["P9", "S1", "Sump pump", "pump", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
+           control, "", "6000", "80", "medium", "variable_torque", starts]
+    cb.write_case(tmp_path, assets=[row], asset_header=header, capacitors=[], duty=[], profiles=[])
+    (tmp_path / "profiles.csv").unlink()
+    case, problems = load_case(tmp_path, mode="strict")
+    assert case is not None, [str(p) for p in problems]
+    flags = operate(case).flags
+    screen = flags[(flags["option_id"] == "lspm") & flags["flag"].str.startswith("line-start screen")]
+    assert screen["flag"].str.contains("more than 6 starts per hour").any() == frequent
