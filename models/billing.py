@@ -170,6 +170,47 @@ def percent_adjusted_demand_kw(
     return out if out.ndim else float(out)
 
 
+def reactive_price_tier(kwh, kvarh, below_power_factor) -> np.ndarray:
+    """Which price of a reactive clause's bands each netting unit takes: 0 for the clause's own price, j for its
+    j-th band (1-based, in the order given), the band of the lowest edge its power factor is below.
+
+    Parameters
+    ----------
+    kwh, kvarh : array_like
+        The unit's kWh and lagging kVArh (a period of a month, or a month), broadcast together.
+    below_power_factor : sequence of float
+        The bands' edges, each in (0, 1].
+
+    Returns
+    -------
+    numpy.ndarray of int
+        The tier of each unit. The power factor is kWh / sqrt(kWh² + kVArh²), 1 for a unit with neither: a power
+        factor equal to an edge is not below it.
+
+    Examples
+    --------
+    Hand calculation (docs/derivations/billing-reactive.md, case R8): 200 kWh with 120 kVArh is a power factor of
+    0.8575, below 0.95 only; 200 kWh with 180 kVArh is 0.7433, below 0.80 as well; 400 kWh with 300 kVArh is 0.8.
+
+    >>> reactive_price_tier([200.0, 200.0, 400.0, 0.0], [120.0, 180.0, 300.0, 0.0], [0.95, 0.80]).tolist()
+    [1, 2, 1, 0]
+
+    References
+    ----------
+    docs/tariffs.md, ``[[reactive]]``, ``price_by_power_factor``.
+    """
+    kwh, kvarh = np.broadcast_arrays(np.asarray(kwh, dtype=float), np.asarray(kvarh, dtype=float))
+    apparent = np.hypot(kwh, kvarh)
+    pf = np.where(apparent > 0.0, kwh / np.where(apparent > 0.0, apparent, 1.0), 1.0)
+    tier = np.zeros(pf.shape, dtype=int)
+    lowest = np.full(pf.shape, np.inf)
+    for j, edge in enumerate(below_power_factor, start=1):
+        hit = (pf < edge) & (edge < lowest)
+        tier = np.where(hit, j, tier)
+        lowest = np.where(hit, edge, lowest)
+    return tier
+
+
 def excess_kvarh(kvarh, kwh, free_kvarh_per_kwh: float):
     """Return the kVArh above a free allowance proportional to kWh.
 
@@ -1049,19 +1090,29 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
         items.append(_coincident_items(cal, c, p, n_s))
 
     for kind, r, scope, months, at in clauses:
+        bands = getattr(r, "price_bands", ())
         if r.allowance_per == "interval":
             qty = cells[at[0]].sum(axis=2)
         else:
             inside = scope.reshape(n_m, k)
             kv = np.where(inside, cells[at[0]], 0.0)
             kw = np.where(inside, cells[at[1]], 0.0)
-            ratio = r.free_kvarh_per_kwh
-            if r.allowance_per == "period":
-                qty = np.maximum(kv - ratio * kw, 0.0).sum(axis=2)
-            else:
-                qty = np.maximum(kv.sum(axis=2) - ratio * kw.sum(axis=2), 0.0)
+            if r.allowance_per != "period":  # the month is the netting unit: one cell of its own
+                kv, kw = kv.sum(axis=2, keepdims=True), kw.sum(axis=2, keepdims=True)
+            excess = np.maximum(kv - r.free_kvarh_per_kwh * kw, 0.0)
+            banded = []
+            if bands:  # each unit's whole excess at the price of its power factor's band, a line item per band
+                tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands])
+                for j, b in sorted(enumerate(bands, start=1), key=lambda jb: -jb[1].below_power_factor):
+                    banded.append(_Item(f"{kind}:{r.name} (power factor below {b.below_power_factor:g})", kind, "kVArh",
+                                        np.full(n_m, b.price_per_kvarh), np.where(tier == j, excess, 0.0).sum(axis=2),
+                                        months, no_flag))
+                excess = np.where(tier == 0, excess, 0.0)
+            qty = excess.sum(axis=2)
         flag = (qty > 0.0) if kind == "leading" and r.banned else no_flag
         items.append(_Item(f"{kind}:{r.name}", kind, "kVArh", np.full(n_m, r.price_per_kvarh), qty, months, flag))
+        if r.allowance_per != "interval":
+            items.extend(banded)
 
     if energy_pf:  # a percentage of the month's charges before taxes: priced once every other charge is
         charges = {base: sum(np.where(it.applies, it.amount, 0.0) for it in items if it.category in cats)

@@ -264,6 +264,23 @@ class DemandCharge:
 
 
 @dataclass(frozen=True)
+class ReactivePriceBand:
+    """A price of excess kVArh for a power factor below an edge.
+
+    Parameters
+    ----------
+    below_power_factor : float
+        The band's edge [-], in (0, 1]: the band prices the excess of a month (or of a period of a month) whose
+        power factor is below it.
+    price_per_kvarh : float
+        Price of each excess kVArh of such a month or period [currency/kVArh], >= 0.
+    """
+
+    below_power_factor: float
+    price_per_kvarh: float
+
+
+@dataclass(frozen=True)
 class ReactiveCharge:
     """A charge on lagging kVArh above a free allowance proportional to kWh.
 
@@ -279,6 +296,12 @@ class ReactiveCharge:
         Where the allowance is netted: in each interval, per period per month, or over the month.
     periods, seasons : tuple of str or None
         Limit the charge to these periods / seasons; None = all.
+    price_bands : tuple of ReactivePriceBand
+        Prices by power factor (``allowance_per`` ``period`` or ``month``): the whole excess of a netting unit
+        (a period of a month, or a month) whose power factor kWh / sqrt(kWh² + kVArh²) is below a band's edge
+        is priced at that band's price, the band of the lowest such edge; a unit below no edge takes
+        ``price_per_kvarh``. Each band's excess is a line item of its own, ``reactive:<name> (power factor
+        below <edge>)``. Empty (default): one price.
     """
 
     name: str
@@ -287,6 +310,7 @@ class ReactiveCharge:
     allowance_per: Literal["interval", "period", "month"] = "month"
     periods: tuple[str, ...] | None = None
     seasons: tuple[str, ...] | None = None
+    price_bands: tuple[ReactivePriceBand, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -957,6 +981,19 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             warn(f"{k}.free_kvarh_per_kwh", r.free_kvarh_per_kwh, "allowance above 5 kVArh/kWh (PF < 0.2) is unusual", "check the value")
         if r.allowance_per not in ALLOWANCE_SCOPES:
             err(f"{k}.allowance_per", r.allowance_per, "unknown value", f"use one of {', '.join(ALLOWANCE_SCOPES)}")
+        bands = getattr(r, "price_bands", ())
+        if bands and r.allowance_per == "interval":
+            err(f"{k}.price_by_power_factor", len(bands),
+                "a price by power factor reads the power factor of a period of a month or of the month",
+                "set allowance_per to 'period' or 'month'")
+        edges = [b.below_power_factor for b in bands]
+        for j, b in enumerate(bands, start=1):
+            if not 0.0 < b.below_power_factor <= 1.0:
+                err(f"{k}.price_by_power_factor[{j}].below", b.below_power_factor, "power factor must lie in (0, 1]")
+            price(f"{k}.price_by_power_factor[{j}].price_per_kvarh", b.price_per_kvarh)
+            if b.below_power_factor in edges[:j - 1]:
+                err(f"{k}.price_by_power_factor[{j}].below", b.below_power_factor,
+                    f"two bands share the edge {b.below_power_factor:g}", "give each band its own edge")
         refs(f"{k}.periods", r.periods, codes, "period")
         refs(f"{k}.seasons", r.seasons, season_names, "season")
         occurs(f"{k}.periods", r.periods, r.seasons)
@@ -1203,7 +1240,9 @@ _DEMAND_KEYS = (
     "rolling",
 )
 _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
-_REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons")
+_REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons",
+                  "price_by_power_factor")
+_REACTIVE_BAND_KEYS = ("below", "price_per_kvarh")
 _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
 _TAX_KEYS = ("name", "rate_pct", "base")
 _COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
@@ -1846,8 +1885,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         scope = r.get(e, "allowance_per", p, "str", default="month")
         rperiods = r.get(e, "periods", p, "str_list", default=None)
         rseasons = r.get(e, "seasons", p, "str_list", default=None)
-        if rprice is not None and ratio is not None:
-            reactive.append(ReactiveCharge(rname, rprice, ratio, scope, rperiods, rseasons))
+        rbands = _reactive_price_bands(r, e, p)
+        if rprice is not None and ratio is not None and rbands is not None:
+            reactive.append(ReactiveCharge(rname, rprice, ratio, scope, rperiods, rseasons, rbands))
             pos["reactive"].append(i)
 
     leading = []
@@ -2023,6 +2063,28 @@ def _allowance(r: _Reader, e: dict, path: str, *, required: bool, ratio_key: str
                   f"use {ratio_key} = 0 to charge every {'kVAr' if ratio_key.endswith('per_kw') else 'kVArh'}")
         return None
     return 0.0
+
+
+def _reactive_price_bands(r: _Reader, e: dict, path: str) -> tuple[ReactivePriceBand, ...] | None:
+    """Read a reactive clause's ``price_by_power_factor`` list: every wrong band is reported with its place in
+    the list; None when any is wrong, () when there is none."""
+    key = "price_by_power_factor"
+    full = f"{path}.{key}"
+    raw = e.get(key, [])
+    if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
+        r.err(full, raw, "expected a list of bands", f"e.g. {key} = [{{ below = 0.8, price_per_kvarh = 0.06 }}]")
+        return None
+    bands, bad = [], False
+    for j, band in enumerate(raw, start=1):
+        at = f"{full}[{j}]"
+        r.known(band, _REACTIVE_BAND_KEYS, at)
+        pf = r.get(band, "below", at, "number")
+        price = r.get(band, "price_per_kvarh", at, "number")
+        if pf is None or price is None:
+            bad = True
+        else:
+            bands.append(ReactivePriceBand(pf, price))
+    return None if bad else tuple(bands)
 
 
 def _power_factor_bands(r: _Reader, e: dict, path: str, key: str, edge: str) -> tuple[PowerFactorBand, ...] | None:

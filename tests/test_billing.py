@@ -970,3 +970,57 @@ def test_every_line_item_category_has_words_a_colour_a_saving_component_and_a_ta
     # every charge is in exactly one of the narrower bases (docs/tariffs.md, the table of tax bases)
     narrow = ("energy_charges", "demand_charges", "reactive_charges", "fixed_charges")
     assert sorted(c for b in narrow for c in _TAX_BASE_CATEGORIES[b]) == sorted(charges)
+
+
+class TestReactivePriceByPowerFactor:
+    # Hand calculation, docs/derivations/billing-reactive.md, case R8. Four hours of 100 kWh each, two in period A
+    # (10:00, 11:00) and two in B (12:00, 13:00); excess above 0.33 kVArh per kWh; 0.041554 per kVArh while the
+    # unit's power factor is not below 0.80, 0.062332 below it (a price band of the kind some rate schedules set
+    # by the period's power factor).
+    CLAUSE = ('[[reactive]]\nname = "r"\nprice_per_kvarh = 0.041554\nfree_kvarh_per_kwh = 0.33\n'
+              'allowance_per = "{scope}"\nprice_by_power_factor = [{{ below = 0.80, price_per_kvarh = 0.062332 }}]\n')
+
+    def test_each_period_priced_by_its_power_factor(self):
+        # A: 200 kWh, 120 kVArh, PF 0.8575: 54 kVArh at 0.041554 = 2.243916; B: 200 kWh, 180 kVArh, PF 0.7433:
+        # 114 kVArh at 0.062332 = 7.105848
+        t = load(AB_PERIODS + self.CLAUSE.format(scope="period"))
+        b = bill(t, r_index(), np.full(4, 100.0), [60.0, 60.0, 100.0, 80.0])
+        assert_allclose(quantity(b, "reactive:r"), 54.0, atol=1e-9)
+        assert_allclose(quantity(b, "reactive:r (power factor below 0.8)"), 114.0, atol=1e-9)
+        assert_allclose(bill_total(b), 2.243916 + 7.105848, atol=1e-9)
+
+    @pytest.mark.parametrize("q_last, band, kvarh", [(80.0, False, 168.0), (100.0, True, 188.0)])
+    def test_the_month_priced_by_its_power_factor(self, q_last, band, kvarh):
+        # the month: 400 kWh with 300 kVArh is a power factor of exactly 0.8, not below the edge: 168 kVArh at
+        # 0.041554 = 6.981072; with 320 kVArh it is 0.7809: 188 kVArh at 0.062332 = 11.718416
+        t = load(AB_PERIODS + self.CLAUSE.format(scope="month"))
+        b = bill(t, r_index(), np.full(4, 100.0), [60.0, 60.0, 100.0, q_last])
+        assert_allclose(quantity(b, "reactive:r (power factor below 0.8)"), kvarh if band else 0.0, atol=1e-9)
+        assert_allclose(quantity(b, "reactive:r"), 0.0 if band else kvarh, atol=1e-9)
+        assert_allclose(bill_total(b), 11.718416 if band else 6.981072, atol=1e-9)
+
+    def test_the_lowest_edge_below_which_the_power_factor_falls_sets_the_price(self):
+        # two bands given highest edge last: period B's 0.7433 is below 0.95 and 0.80, and takes 0.80's price;
+        # period A's 0.8575 is below 0.95 only
+        clause = ('[[reactive]]\nname = "r"\nprice_per_kvarh = 0.01\nfree_kvarh_per_kwh = 0.33\nallowance_per = "period"\n'
+                  'price_by_power_factor = [{ below = 0.80, price_per_kvarh = 0.062332 }, '
+                  '{ below = 0.95, price_per_kvarh = 0.041554 }]\n')
+        b = bill(load(AB_PERIODS + clause), r_index(), np.full(4, 100.0), [60.0, 60.0, 100.0, 80.0])
+        assert_allclose(quantity(b, "reactive:r (power factor below 0.95)"), 54.0, atol=1e-9)
+        assert_allclose(quantity(b, "reactive:r (power factor below 0.8)"), 114.0, atol=1e-9)
+        assert_allclose(quantity(b, "reactive:r"), 0.0, atol=1e-9)
+        assert_allclose(bill_total(b), 2.243916 + 7.105848, atol=1e-9)
+
+    def test_bands_need_a_period_or_month_allowance(self):
+        problems = tariff_from_dict(tomllib.loads(AB_PERIODS + self.CLAUSE.format(scope="interval")), source="t.toml")[1]
+        assert any(p.severity == "error" and "price_by_power_factor" in str(p) for p in problems)
+
+    @pytest.mark.parametrize("band, key", [("{ below = 1.2, price_per_kvarh = 0.06 }", "below"),
+                                           ("{ below = 0.8, price_per_kvarh = -1 }", "price_per_kvarh"),
+                                           ("{ below = 0.8 }", "price_per_kvarh"),
+                                           ("{ below = 0.8, price = 0.06 }", "price")])
+    def test_a_wrong_band_names_its_place(self, band, key):
+        text = (AB_PERIODS + '[[reactive]]\nname = "r"\nprice_per_kvarh = 0.04\nfree_kvarh_per_kwh = 0.33\n'
+                f'allowance_per = "period"\nprice_by_power_factor = [{band}]\n')
+        problems = tariff_from_dict(tomllib.loads(text), source="t.toml")[1]
+        assert any(f"price_by_power_factor[1]" in str(p) and key in str(p) for p in problems), [str(p) for p in problems]

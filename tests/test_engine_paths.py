@@ -48,7 +48,8 @@ from models.tariff import tariff_from_dict
 REPO = Path(__file__).resolve().parents[1]
 TARIFF_DIR = REPO / "data" / "tariffs"
 EXAMPLES = ["example_tou_kw_reactive_ratchet.toml", "example_kva_demand.toml", "example_pf_adjusted_demand.toml",
-            "example_contracted_capacity.toml", "example_reactive_demand_pf_energy.toml"]
+            "example_contracted_capacity.toml", "example_reactive_demand_pf_energy.toml",
+            "example_reactive_pf_price_bands.toml"]
 # Bills of up to ~1e5 summed over months in another order than one scenario's bill: a few ulps.
 BILL_RTOL = 1e-12
 # A line item that is zero in one path and a sum of zeros in the other: float rounding only.
@@ -73,8 +74,8 @@ def _example(name: str):
 
 # A tariff with every clause kind the engine has a special path for: TOU kWh energy, a kW demand with a
 # peak-window PF adjustment and a ratchet in one period, a kVA demand, an interval-netted reactive
-# allowance, a banned leading charge, a kVAr demand above a share of the kW demand, a power-factor percentage
-# of the energy charges, a fixed charge and a tax on everything (invented).
+# allowance, a per-period allowance priced by the power factor's band, a banned leading charge, a kVAr demand
+# above a share of the kW demand, a power-factor percentage of the energy charges, a fixed charge and a tax on everything (invented).
 ALL_CLAUSES = '''
 [tariff]
 name = "all clauses (invented)"
@@ -112,6 +113,12 @@ price_per_kvarh = 0.015
 free_kvarh_per_kwh = 0.3
 allowance_per = "interval"
 periods = ["day"]
+[[reactive]]
+name = "banded"
+price_per_kvarh = 0.01
+free_kvarh_per_kwh = 0.2
+allowance_per = "period"
+price_by_power_factor = [{ below = 0.95, price_per_kvarh = 0.03 }, { below = 0.90, price_per_kvarh = 0.05 }]
 [[leading]]
 name = "night leading"
 price_per_kvarh = 0.02

@@ -94,9 +94,9 @@ class TestExampleFiles:
         assert problems == []
         assert t is not None
 
-    def test_there_are_five_examples_marked_invented(self):
+    def test_there_are_six_examples_marked_invented(self):
         files = sorted(TARIFF_DIR.glob("*.toml"))
-        assert len(files) == 5
+        assert len(files) == 6
         for f in files:
             head = f.read_text(encoding="utf-8").splitlines()[0]
             assert head.startswith("#") and "INVENTED" in head.upper()
@@ -122,6 +122,9 @@ class TestExampleFiles:
         assert [(b.power_factor, b.percent_per_point) for b in pf.penalties] == [(0.95, 0.5), (0.90, 1.0)]
         assert [(b.power_factor, b.percent_per_point) for b in pf.rebates] == [(0.97, 0.25)]
         assert pf.round_points == "down" and not pf.count_leading
+        f = read("example_reactive_pf_price_bands.toml")
+        assert f.reactive[0].allowance_per == "period" and f.reactive[0].periods == ("peak", "flat")
+        assert [(b.below_power_factor, b.price_per_kvarh) for b in f.reactive[0].price_bands] == [(0.80, 0.063)]
 
 
 class TestAssignPeriods:
