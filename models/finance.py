@@ -1334,7 +1334,7 @@ class FinanceAssumptions:
     capital_cost_factor : float
         Price level of the options' capital [-], > 0: every capital component (equipment, drive,
         installation, engineering, contingency, capacitor banks, rewinds) is multiplied by it.
-    financing : {"cash", "loan", "shared_savings"}
+    financing : {"cash", "loan", "lease", "shared_savings"}
         How the owner pays for the plan, for the financed view of its cash flows (:mod:`models.financing`);
         every decision metric and the plan itself stay on the cash basis.
     loan_share_frac : float
@@ -1348,6 +1348,14 @@ class FinanceAssumptions:
         [frac], 0-1 (``shared_savings``).
     shared_savings_term_yr : int
         The contract's length after the company's purchase [yr] (``shared_savings``).
+    lease_rate_frac : float
+        The lease's implicit nominal interest rate [frac/yr] (``lease``): the rate at which the lessor recovers
+        its purchase from the payments and the buyout.
+    lease_term_yr : int
+        Years of equal lease payments after the lessor's purchase [yr] (``lease``).
+    lease_buyout_frac : float
+        Price at which the owner buys the equipment at the lease's end, a share of the lessor's purchase
+        [frac], 0-1 (``lease``; 0 for a nominal price).
     budget_per_yr : tuple of float
         Capital budget of plan years 0, 1, ... [currency]; empty = no capital limit.
     monte_carlo_draws : int
@@ -1384,6 +1392,9 @@ class FinanceAssumptions:
     loan_term_yr: int = 5
     shared_savings_share_frac: float = 0.5
     shared_savings_term_yr: int = 7
+    lease_rate_frac: float = 0.07
+    lease_term_yr: int = 5
+    lease_buyout_frac: float = 0.0
     budget_per_yr: tuple[float, ...] = ()
     monte_carlo_draws: int = 1000
     monte_carlo_seed: int = 12345
@@ -1489,11 +1500,20 @@ class FinanceAssumptions:
             if values["financing"] in FINANCING_KINDS and values[key] != defaults[key]:
                 problems.append(warning(source, None, prefix + key, data[key],
                                         f"not read: financing is '{values['financing']}'",
-                                        f"set financing = \"{key.split('_')[0] if key.startswith('loan') else 'shared_savings'}\" "
+                                        f"set financing = \"{_financing_of(key)}\" "
                                         "to use it, or leave the key out"))
         if any(p.severity == "error" for p in problems):
             return None, problems
         return cls(**values), problems
+
+
+def _financing_of(key: str) -> str:
+    """The financing whose term a key of :data:`_FINANCING_KEYS` is.
+
+    >>> _financing_of("loan_rate_frac"), _financing_of("lease_buyout_frac"), _financing_of("shared_savings_term_yr")
+    ('loan', 'lease', 'shared_savings')
+    """
+    return next(kind for kind in FINANCING_KINDS if key.startswith(f"{kind}_"))
 
 
 def _as_dict(assumptions: FinanceAssumptions) -> dict[str, Any]:
@@ -1507,13 +1527,13 @@ DISCOUNT_RATE_DRAW_SPREAD_FRAC = 0.02
 MAX_HORIZON_YR = 100
 
 _INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed", "loan_term_yr",
-                 "shared_savings_term_yr")
+                 "shared_savings_term_yr", "lease_term_yr")
 #: The terms of a loan and of an energy-service contract (read only under their own ``financing``).
 _FINANCING_KEYS = ("loan_share_frac", "loan_rate_frac", "loan_term_yr", "shared_savings_share_frac",
-                   "shared_savings_term_yr")
+                   "shared_savings_term_yr", "lease_rate_frac", "lease_term_yr", "lease_buyout_frac")
 #: How the owner may pay for the plan (:mod:`models.financing`): in cash, with a loan, or through an
 #: energy-service company paid from the savings.
-FINANCING_KINDS: tuple[str, ...] = ("cash", "loan", "shared_savings")
+FINANCING_KINDS: tuple[str, ...] = ("cash", "loan", "lease", "shared_savings")
 #: Unit and meaning of every finance assumption (docs/finance.md is the full reference).
 FIELD_NOTES: dict[str, tuple[str, str]] = {
     "currency": ("ISO 4217", "currency of every amount"),
@@ -1539,13 +1559,16 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
                                 "machine's kVAr (the capacitor option's own price is its row of the options catalogue)"),
     "energy_price_factor": ("-", "price level of the tariffs (every charge multiplied; 1 = as written)"),
     "capital_cost_factor": ("-", "price level of the options' capital (every component multiplied; 1 = as written)"),
-    "financing": ("-", "cash, loan or shared_savings: the owner's financed view of the plan (the plan and its "
+    "financing": ("-", "cash, loan, lease or shared_savings: the owner's financed view of the plan (the plan and its "
                   "metrics stay on the cash basis)"),
     "loan_share_frac": ("frac", "share of each year's capital borrowed (loan)"),
     "loan_rate_frac": ("frac/yr", "the loan's nominal interest rate (loan)"),
     "loan_term_yr": ("yr", "years of equal repayments after each draw (loan)"),
     "shared_savings_share_frac": ("frac", "share of the savings paid to the energy-service company (shared_savings)"),
     "shared_savings_term_yr": ("yr", "the energy-service contract's length (shared_savings)"),
+    "lease_rate_frac": ("frac/yr", "the lease's implicit nominal interest rate (lease)"),
+    "lease_term_yr": ("yr", "years of equal lease payments after the lessor's purchase (lease)"),
+    "lease_buyout_frac": ("frac", "the owner's buyout price at the lease's end, a share of the purchase (lease)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
     "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
     "monte_carlo_seed": ("-", "seed of the random draws"),
@@ -1711,23 +1734,28 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
         if not (math.isfinite(values[key]) and 0.0 <= values[key] < 1.0):
             bad(key, "must be a fraction from 0 up to (not including) 1", "e.g. 0.25 for 25 %")
     if values["financing"] not in FINANCING_KINDS:
-        bad("financing", "must be 'cash', 'loan' or 'shared_savings'",
-            "cash: the owner pays; loan: a share borrowed and repaid in equal yearly payments; shared_savings: an "
+        bad("financing", "must be 'cash', 'loan', 'lease' or 'shared_savings'",
+            "cash: the owner pays; loan: a share borrowed and repaid in equal yearly payments; lease: a lessor buys and "
+            "the owner pays equal yearly payments, then buys the equipment out; shared_savings: an "
             "energy-service company pays and takes a share of the savings for its contract's years")
-    for key in ("loan_share_frac", "shared_savings_share_frac"):
+    for key in ("loan_share_frac", "shared_savings_share_frac", "lease_buyout_frac"):
         if not (math.isfinite(values[key]) and 0.0 <= values[key] <= 1.0):
             bad(key, "must be a fraction from 0 to 1", "e.g. 0.8 for 80 %")
-    if not (math.isfinite(values["loan_rate_frac"]) and -0.5 < values["loan_rate_frac"] <= 1.0):
-        bad("loan_rate_frac", "must be a fraction above -0.5 and at most 1", "rates are fractions: 6 % is 0.06")
-    elif not 0.0 <= values["loan_rate_frac"] <= 0.3:
-        odd("loan_rate_frac", "a loan rate outside 0-0.3 is unusual", "check the value; 6 % is 0.06")
-    for key in ("loan_term_yr", "shared_savings_term_yr"):
+    for key, what in (("loan_rate_frac", "loan"), ("lease_rate_frac", "lease")):
+        if not (math.isfinite(values[key]) and -0.5 < values[key] <= 1.0):
+            bad(key, "must be a fraction above -0.5 and at most 1", "rates are fractions: 6 % is 0.06")
+        elif not 0.0 <= values[key] <= 0.3:
+            odd(key, f"a {what} rate outside 0-0.3 is unusual", "check the value; 6 % is 0.06")
+    for key in ("loan_term_yr", "shared_savings_term_yr", "lease_term_yr"):
         if not 1 <= values[key] <= MAX_HORIZON_YR:
-            bad(key, f"must be between 1 and {MAX_HORIZON_YR} years", "loans and energy-service contracts run 3-15 years")
+            bad(key, f"must be between 1 and {MAX_HORIZON_YR} years",
+                "loans, leases and energy-service contracts run 3-15 years")
         elif values["financing"] == key.rsplit("_term_yr", 1)[0] and values[key] > values["horizon_yr"]:
             odd(key, f"longer than the study period ({values['horizon_yr']} years): "
-                + ("a balance still owed at its end is counted as repaid then" if key.startswith("loan") else
-                   "the share is paid to the study period's end only"), "check the term against horizon_yr")
+                + {"loan": "a balance still owed at its end is counted as repaid then",
+                   "lease": "the payments still owed and the buyout are counted as settled then",
+                   "shared_savings": "the share is paid to the study period's end only"}[key.rsplit("_term_yr", 1)[0]],
+                "check the term against horizon_yr")
     if not 1 <= values["depreciation_yr"] <= 100:
         bad("depreciation_yr", "must be between 1 and 100 years", "straight-line tax life, often 5-20 years")
     budget = values["budget_per_yr"]

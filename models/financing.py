@@ -1,4 +1,4 @@
-"""Financing the plan: the owner's yearly cash flows when the capital is borrowed, or paid by an
+"""Financing the plan: the owner's yearly cash flows when the capital is borrowed, leased, or paid by an
 energy-service company against a share of the savings.
 
 Every decision metric of drivecase (NPV, IRR, payback, the plan and its budgets) is on the cash basis: the
@@ -12,6 +12,16 @@ project from its plan year) into the owner's flows under the finance assumptions
     profit at the profit tax rate. A loan still owed at the end of the study period is repaid then (as a
     residual value is counted then). With a real analysis (``rate_basis = "real"``) the draws are turned
     into money of their year and the fixed payments back into base-year money with the inflation rate.
+``lease``
+    A lessor buys each project's first purchase (its capital that year, less the incentive, which the lessor
+    receives) and takes its tax depreciation, as the owner of the equipment during the lease. The owner pays
+    equal yearly payments over the term, the first a year after the purchase, that with the buyout price at
+    the end return the lessor's purchase at the lease's implicit rate [1]; the payments are an operating
+    expense, deducted from profit at the profit tax rate; at the end the owner buys the equipment at the
+    buyout price (its residual value at the end of the study period is then the owner's). Payments still owed
+    and the buyout of a lease running past the study period are settled in its last year, discounted at the
+    lease's rate. With a real analysis the purchase is in money of its year and the fixed payments are brought
+    back to base-year money, as a loan's.
 ``shared_savings``
     An energy-service company buys each project's first purchase (its capital that year, less the
     incentive, which the company receives) and takes its tax depreciation (the owner, given the equipment
@@ -26,8 +36,8 @@ References
 ----------
 .. [1] W. G. Sullivan, E. M. Wicks and C. P. Koelling, *Engineering Economy*, 17th ed. Pearson, 2019,
    ch. 4 (capital recovery factor; loan repayment schedules, the interest and principal of each payment).
-.. [2] numpy-financial, ``pmt`` and ``ipmt`` (the payment and its interest of an annuity), the reference of
-   the tests.
+.. [2] numpy-financial, ``pmt`` and ``ipmt`` (the payment and its interest of an annuity, ``pmt`` with a future
+   value for a lease's payment before its buyout), the reference of the tests.
 """
 
 from __future__ import annotations
@@ -38,13 +48,14 @@ import pandas as pd
 from models.cashflows import CAPITAL_COMPONENTS, SAVINGS_COMPONENTS, _depreciation
 from models.finance import capital_recovery_factor
 
-__all__ = ["FINANCED_COLUMNS", "loan_schedule", "plan_financing", "financing_summary", "financing_text", "percent_text",
+__all__ = ["FINANCED_COLUMNS", "loan_schedule", "lease_schedule", "plan_financing", "financing_summary", "financing_text", "percent_text",
            "plan_financing_words"]
 
 #: Columns of :func:`plan_financing`, each [currency] but ``year``.
 FINANCED_COLUMNS: tuple[str, ...] = (
     "year", "cash_net", "loan_proceeds", "loan_repayment", "interest_tax_shield", "company_capital",
-    "company_incentive_and_depreciation", "company_savings_share", "financed_net", "cumulative_cash",
+    "company_incentive_and_depreciation", "company_savings_share", "lease_payment", "lease_tax_shield", "lease_buyout",
+    "financed_net", "cumulative_cash",
     "cumulative_financed", "discounted_financed",
 )
 
@@ -112,6 +123,68 @@ def loan_schedule(draws, share_frac: float, rate_frac: float, term_yr: int, inde
     return proceeds, -payment / g, interest / g
 
 
+def lease_schedule(purchases, rate_frac: float, term_yr: int, buyout_frac: float, index=None):
+    """Equal yearly lease payments and the buyout of each year's purchase by a lessor.
+
+    Parameters
+    ----------
+    purchases : array_like, shape (n_years,)
+        The lessor's purchase in each year [currency of the analysis basis], >= 0.
+    rate_frac : float
+        The lease's implicit nominal interest rate [frac/yr].
+    term_yr : int
+        Equal payments after each purchase [yr], >= 1: in years t + 1 .. t + term of a purchase in year t.
+    buyout_frac : float
+        The owner's price for the equipment at the lease's end, a share of the purchase [frac], 0-1, paid in
+        year t + term.
+    index : array_like, shape (n_years,), optional
+        Price index of each year, as :func:`loan_schedule`'s. Default all ones (a nominal analysis).
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        ``(payments, buyout)``, each shaped (n_years,) [currency of the analysis basis], negative (money out):
+        the lease payments and the buyout. Payments and a buyout falling after the last year are settled in
+        it at their present value at the lease's rate (the payments' part in ``payments``).
+
+    Notes
+    -----
+    The lessor's purchase C is returned by the payments A and the buyout B = b C at the rate r:
+    C = A (1 - (1 + r)^-n) / r + B (1 + r)^-n, so A = (C - B (1 + r)^-n) CRF(r, n) [1] (``numpy_financial.pmt``
+    with ``fv = B``).
+
+    Examples
+    --------
+    100,000 leased at 7 % over 5 years with a 10 % buyout: 22,650.16 a year, then 10,000.00.
+
+    >>> a, b = lease_schedule([100_000.0, 0, 0, 0, 0, 0], 0.07, 5, 0.10)
+    >>> round(float(-a[1]), 2), round(float(-a.sum()), 2), round(float(-b[5]), 2)
+    (22650.16, 113250.81, 10000.0)
+    """
+    c = np.asarray(purchases, dtype=float)
+    n = len(c)
+    g = np.ones(n) if index is None else np.asarray(index, dtype=float)
+    leased = c * g  # money of each purchase's year
+    payments = np.zeros(n)
+    buyout = np.zeros(n)
+    v = (1.0 + rate_frac) ** -term_yr
+    crf = float(capital_recovery_factor(rate_frac, term_yr)) if rate_frac != 0.0 else 1.0 / term_yr
+    for t in np.flatnonzero(leased):
+        b = buyout_frac * leased[t]
+        a = (leased[t] - b * v) * crf
+        for k in range(1, term_yr + 1):
+            year = t + k
+            if year >= n:  # the payments still owed and the buyout, settled in the last year at their value then
+                ahead = np.arange(k, term_yr + 1) - (n - 1 - t)
+                payments[n - 1] += a * float(np.sum((1.0 + rate_frac) ** -ahead.astype(float)))
+                buyout[n - 1] += b * (1.0 + rate_frac) ** -float(t + term_yr - (n - 1))
+                break
+            payments[year] += a
+            if k == term_yr:
+                buyout[year] += b
+    return -payments / g, -buyout / g
+
+
 def _table(result, asset_id: str, option_id: str) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """A project's flow table, its net flows as the plan counts them, and its operating savings after tax as the
     plan counts them (the plan's credit taken off the savings; the tax on mid-life work left out)."""
@@ -168,9 +241,10 @@ def plan_financing(result) -> pd.DataFrame:
     pandas.DataFrame
         One row per plan year 0 .. horizon + the last plan start (:data:`FINANCED_COLUMNS`) [currency]:
         the plan's net flows as it counts them (``cash_net``, whose discounted sum is the plan's NPV), the
-        loan's proceeds, repayments and interest tax shield, the energy-service company's capital, the
-        incentive and depreciation shield it keeps (negative), the savings share it is paid after the owner's
-        tax (negative), the owner's net flows, both cumulative, and the owner's flows discounted at the
+        loan's proceeds, repayments and interest tax shield, the energy-service company's (or lessor's)
+        capital, the incentive and depreciation shield it keeps (negative), the savings share it is paid after
+        the owner's tax (negative), the lease's payments (negative), their tax shield and its buyout
+        (negative), the owner's net flows, both cumulative, and the owner's flows discounted at the
         discount rate.
     """
     a = result.assumptions
@@ -187,25 +261,31 @@ def plan_financing(result) -> pd.DataFrame:
         table, counted, savings = _table(result, asset_id, option_id)
         cash[start:start + horizon + 1] += counted
         capital[start:start + horizon + 1] += -_row(table, CAPITAL_COMPONENTS, horizon + 1)
-        if kind == "shared_savings":
-            parts = _company(table, savings, float(a.shared_savings_share_frac), int(a.shared_savings_term_yr),
+        if kind in ("shared_savings", "lease"):  # the company (or lessor) buys the first purchase
+            share = float(a.shared_savings_share_frac) if kind == "shared_savings" else 0.0
+            parts = _company(table, savings, share, int(a.shared_savings_term_yr),
                              float(a.tax_rate_frac), int(a.depreciation_yr))
             for k in range(3):
                 company[k, start:start + horizon + 1] += parts[k]
     years = np.arange(width)
     zero = np.zeros(width)
-    proceeds = repayment = shield = zero
+    proceeds = repayment = shield = payment = payment_shield = buyout = zero
+    index = (1.0 + float(a.inflation_frac)) ** years if a.rate_basis == "real" else None
     if kind == "loan":
-        index = (1.0 + float(a.inflation_frac)) ** years if a.rate_basis == "real" else None
         proceeds, repayment, interest = loan_schedule(np.maximum(capital, 0.0), float(a.loan_share_frac),
                                                       float(a.loan_rate_frac), int(a.loan_term_yr), index)
         shield = float(a.tax_rate_frac) * interest
-    financed = cash + proceeds + repayment + shield + company.sum(axis=0)
+    elif kind == "lease":
+        payment, buyout = lease_schedule(company[0], float(a.lease_rate_frac), int(a.lease_term_yr),
+                                         float(a.lease_buyout_frac), index)
+        payment_shield = -float(a.tax_rate_frac) * payment
+    financed = cash + proceeds + repayment + shield + company.sum(axis=0) + payment + payment_shield + buyout
     d = float(a.discount_rate_frac)
     return pd.DataFrame({
         "year": years, "cash_net": cash, "loan_proceeds": proceeds, "loan_repayment": repayment,
         "interest_tax_shield": shield, "company_capital": company[0], "company_incentive_and_depreciation": company[1],
-        "company_savings_share": company[2], "financed_net": financed, "cumulative_cash": np.cumsum(cash),
+        "company_savings_share": company[2], "lease_payment": payment, "lease_tax_shield": payment_shield,
+        "lease_buyout": buyout, "financed_net": financed, "cumulative_cash": np.cumsum(cash),
         "cumulative_financed": np.cumsum(financed), "discounted_financed": financed / (1.0 + d) ** years,
     }, columns=list(FINANCED_COLUMNS))
 
@@ -267,6 +347,10 @@ def financing_text(assumptions, summary: dict[str, float], currency: str) -> str
     if kind == "loan":
         how = (f"With {pct(assumptions.loan_share_frac)} of the capital borrowed at {pct(assumptions.loan_rate_frac)} "
                f"a year (nominal) and repaid over {int(assumptions.loan_term_yr)} years")
+    elif kind == "lease":
+        how = (f"With each project's first purchase leased over {int(assumptions.lease_term_yr)} years at "
+               f"{pct(assumptions.lease_rate_frac)} a year (nominal) and bought out at "
+               f"{pct(assumptions.lease_buyout_frac)} of its price")
     else:
         how = (f"With an energy-service company paying each project's first purchase against "
                f"{pct(assumptions.shared_savings_share_frac)} of its savings for "
@@ -275,7 +359,8 @@ def financing_text(assumptions, summary: dict[str, float], currency: str) -> str
     lowest = -summary["lowest_financed"]
     low = (f"its running total of net flows falls to {money_text(-lowest, currency)} at its lowest" if lowest >= 0.5
            else "its running total of net flows never falls below zero")
-    owed = " The repayments are owed whatever the savings turn out to be." if kind == "loan" else ""
+    owed = {"loan": " The repayments are owed whatever the savings turn out to be.",
+            "lease": " The lease payments are owed whatever the savings turn out to be."}.get(kind, "")
     return (f"{how}, the owner's NPV of the plan is {money_text(summary['npv_financed'], currency)} "
             f"(paid in cash: {money_text(summary['npv_cash'], currency)}) and, on the expected savings, {low} "
             f"(paid in cash: {money_text(min(0.0, summary['lowest_cash']), currency)}); "

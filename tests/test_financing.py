@@ -1,6 +1,6 @@
-"""The plan financed: a loan's schedule and an energy-service company's share, against hand calculations.
+"""The plan financed: a loan's schedule, a lease and an energy-service company's share, against hand calculations.
 
-Sources: docs/derivations/finance-financing.md (cases F1-F4), numpy_financial's ``pmt`` and ``ipmt`` as the
+Sources: docs/derivations/finance-financing.md (cases F1-F5), numpy_financial's ``pmt`` and ``ipmt`` as the
 reference of the annuity. Tolerances: 0.005 on amounts written to the cent, 1e-9 relative on identities.
 """
 
@@ -15,7 +15,7 @@ from numpy.testing import assert_allclose
 
 from models import scenario
 from models.finance import FinanceAssumptions
-from models.financing import financing_summary, financing_text, loan_schedule, plan_financing
+from models.financing import financing_summary, financing_text, lease_schedule, loan_schedule, plan_financing
 
 from test_scenario import _one_asset_case
 
@@ -56,6 +56,33 @@ class TestLoanSchedule:
         _, repaid, interest = loan_schedule(np.array([1_000.0, 0, 0, 0, 0]), 1.0, 0.0, 4)
         assert_allclose(-repaid, [0.0, 250.0, 250.0, 250.0, 250.0], atol=1e-9)
         assert_allclose(interest, 0.0, atol=0)
+
+
+class TestLeaseSchedule:
+    def test_payments_and_buyout_are_numpy_financial_s(self):
+        # case F5: 100,000 leased at 7 % over 5 years, bought out at 10 %: pmt(0.07, 5, -100,000, fv=10,000)
+        payments, buyout = lease_schedule(np.array([100_000.0, 0, 0, 0, 0, 0, 0]), 0.07, 5, 0.10)
+        payment = npf.pmt(0.07, 5, -100_000.0, 10_000.0)  # reference
+        assert_allclose(-payments[1:6], np.full(5, payment), rtol=1e-12)
+        assert_allclose(payments[[0, 6]], 0.0, atol=0)
+        assert_allclose(-buyout, [0, 0, 0, 0, 0, 10_000.0, 0], atol=1e-9)
+        # hand calculation, case F5: 22,650.16 a year
+        assert_allclose(-payments[1], 22_650.16, atol=0.005)
+
+    def test_a_lease_past_the_study_period_is_settled_in_its_last_year(self):
+        # case F5: the same lease in flows to year 3: 22,650.16 in years 1 and 2; in year 3 that payment and the two
+        # still owed, discounted at 7 % (63,602.07), and the buyout two years early (8,734.39)
+        payments, buyout = lease_schedule(np.array([100_000.0, 0, 0, 0]), 0.07, 5, 0.10)
+        assert_allclose(-payments, [0.0, 22_650.16, 22_650.16, 63_602.07], atol=0.005)
+        assert_allclose(-buyout, [0.0, 0.0, 0.0, 8_734.39], atol=0.005)
+
+    def test_a_real_analysis_leases_money_of_the_year_and_deflates_the_payments(self):
+        # the lease is fixed in money of the purchase's year (2 % inflation, bought in year 1): its payments in base-year
+        # money are pmt x 1.02 / 1.02^k
+        index = 1.02 ** np.arange(7)
+        payments, _ = lease_schedule(np.array([0, 50_000.0, 0, 0, 0, 0, 0]), 0.07, 5, 0.0, index)
+        k = np.arange(2, 7)
+        assert_allclose(-payments[2:], npf.pmt(0.07, 5, -50_000.0 * 1.02) / 1.02 ** k, rtol=1e-12)
 
 
 @pytest.fixture(scope="module")
@@ -119,6 +146,31 @@ def test_an_energy_service_company_on_the_one_motor_case(one):
     assert_allclose(table["company_capital"].iloc[0], -cash[0], rtol=1e-12)
 
 
+def test_a_lease_on_the_one_motor_case(one):
+    # the lessor buys (year 0 nets to 0) and keeps the depreciation shield; the owner pays pmt(0.07, 4, -C, fv=0.1 C)
+    # in money of year 0, deflated by 1.02^k (a real analysis), deducts it at 25 %, and buys out at 10 % of C in year
+    # 4; it keeps all the savings (case F5's rule)
+    result = _run(one, financing="lease", lease_rate_frac=0.07, lease_term_yr=4, lease_buyout_frac=0.1,
+                  tax_rate_frac=0.25, depreciation_yr=5)
+    table = plan_financing(result)
+    capital = float(table["company_capital"].iloc[0])
+    assert capital > 0
+    assert abs(table["financed_net"].iloc[0]) < 1e-6
+    k = np.arange(1, 5)
+    payment = npf.pmt(0.07, 4, -capital, 0.1 * capital) / 1.02 ** k  # reference
+    assert_allclose(-table["lease_payment"].iloc[1:5], payment, rtol=1e-12)
+    assert_allclose(table["lease_tax_shield"].iloc[1:5], 0.25 * payment, rtol=1e-12)
+    assert_allclose(-table["lease_buyout"].iloc[4], 0.1 * capital / 1.02 ** 4, rtol=1e-12)
+    assert_allclose(table[["lease_payment", "lease_buyout", "company_savings_share"]].iloc[5:], 0.0, atol=0)
+    parts = table[["company_capital", "company_incentive_and_depreciation", "lease_payment", "lease_tax_shield",
+                   "lease_buyout"]].sum(axis=1)
+    assert_allclose(table["financed_net"], table["cash_net"] + parts, rtol=1e-12)
+    text = financing_text(result.assumptions, financing_summary(table, 0.03), "EUR")
+    assert text.startswith("With each project's first purchase leased over 4 years at 7 % a year (nominal) and bought "
+                           "out at 10 % of its price")
+    assert "The lease payments are owed whatever the savings turn out to be." in text
+
+
 def _contract(one, share_frac: float, term_yr: int):
     """The one-motor plan under an energy-service contract, 25 % profit tax, 5-year depreciation: the financed
     table and the plan project's flow table (component x year)."""
@@ -143,7 +195,10 @@ def test_finance_keys_are_checked():
     ok, problems = FinanceAssumptions.from_dict({"financing": "loan", "loan_share_frac": 0.8, "loan_rate_frac": 0.055,
                                                  "loan_term_yr": 7}, "finance.toml")
     assert ok is not None and not problems and ok.loan_term_yr == 7 and ok.financing == "loan"
-    for data, key, rule in (({"financing": "lease"}, "financing", "must be 'cash', 'loan' or 'shared_savings'"),
+    for data, key, rule in (({"financing": "leasing"}, "financing", "must be 'cash', 'loan', 'lease' or 'shared_savings'"),
+                            ({"lease_buyout_frac": 1.5}, "lease_buyout_frac", "fraction from 0 to 1"),
+                            ({"lease_term_yr": 0}, "lease_term_yr", "between 1 and"),
+                            ({"lease_rate_frac": 7}, "lease_rate_frac", "above -0.5 and at most 1"),
                             ({"loan_share_frac": 1.2}, "loan_share_frac", "fraction from 0 to 1"),
                             ({"shared_savings_share_frac": -0.1}, "shared_savings_share_frac", "fraction from 0 to 1"),
                             ({"loan_term_yr": 0}, "loan_term_yr", "between 1 and"),

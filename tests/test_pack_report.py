@@ -1071,3 +1071,11 @@ def test_a_financed_plan_is_said_in_the_summary_and_tabled_in_the_cash_flow_sect
     cash = report_context(case, scenario.economics(case, phys, case.finance, with_risk=False),
                           content.select_scope(case, result, None, True), [])
     assert cash["financed_rows"] == [] and "borrowed" not in cash["summary_text"]
+    # a lease: the lessor's purchase, the payments, their shield and the buyout are the table's parts
+    leased = scenario.economics(case, phys, replace(case.finance, financing="lease", lease_buyout_frac=0.05),
+                                with_risk=False)
+    ctx = report_context(case, leased, content.select_scope(case, leased, None, True), [])
+    assert ctx["financed_headers"][2:7] == ["Capital paid by the lessor [EUR]",
+                                           "Incentive and depreciation shield kept by it [EUR]", "Lease payments [EUR]",
+                                           "Their tax shield [EUR]", "Buyout [EUR]"]
+    assert "leased over 5 years at 7 % a year (nominal) and bought out at 5 % of its price" in ctx["summary_text"]

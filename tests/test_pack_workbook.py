@@ -824,22 +824,26 @@ def test_the_plan_sheet_npv_formulas_give_the_engines_figures_under_an_income_ta
     assert "*(1-0.25)*" in str(ws.cell(row, 6).value)
 
 
-def test_the_financing_sheet_holds_the_plan_s_flows_to_the_owner(small, tmp_path):
-    # a shared-savings contract on the small case: the Financing sheet gives each plan year's cash net and the
-    # company's parts as values and the financed net and its running sum as formulas; evaluated independently
-    # they are models.financing.plan_financing's (its figures: tests/test_financing.py)
+@pytest.mark.parametrize("terms, said", [
+    ({"financing": "shared_savings", "shared_savings_share_frac": 0.6, "shared_savings_term_yr": 3}, "energy-service company"),
+    ({"financing": "lease", "lease_rate_frac": 0.07, "lease_term_yr": 4, "lease_buyout_frac": 0.05, "tax_rate_frac": 0.2},
+     "leased over 4 years")])
+def test_the_financing_sheet_holds_the_plan_s_flows_to_the_owner(small, tmp_path, terms, said):
+    # a shared-savings contract, then a lease, on the small case: the Financing sheet gives each plan year's cash
+    # net and the company's (or lessor's and lease's) parts as values and the financed net and its running sum as
+    # formulas; evaluated independently they are models.financing.plan_financing's (its figures:
+    # tests/test_financing.py)
     from models.financing import plan_financing
 
     case, result = small
-    a = dataclasses.replace(result.assumptions, financing="shared_savings", shared_savings_share_frac=0.6,
-                            shared_savings_term_yr=3)
+    a = dataclasses.replace(result.assumptions, **terms)
     financed = scenario.economics(case, result.physics, a, with_risk=False)
     assert len(financed.plan)
     out = tmp_path / "pack"
     write_pack(case, financed, out)
     path = out / WORKBOOK_NAME
     ws = load_workbook(path)["Financing"]
-    assert "energy-service company" in str(ws.cell(2, 1).value)
+    assert said in str(ws.cell(2, 1).value)
     header = [ws.cell(5, c).value for c in range(1, ws.max_column + 1)]
     net_col, cum_col = header.index("Financed net [EUR]") + 1, header.index("Cumulative financed [EUR]") + 1
     table = plan_financing(financed)

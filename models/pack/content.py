@@ -1038,6 +1038,13 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
         add("assumption", "Financing", f"loan: {percent_text(a.loan_share_frac)} of the capital at "
             f"{percent_text(a.loan_rate_frac)} a year (nominal) over {int(a.loan_term_yr)} years", "all",
             "The lender's terms decide the owner's view (section 5); the plan and its metrics are on the cash basis.")
+    elif str(getattr(a, "financing", "cash")) == "lease":
+        add("assumption", "Financing", f"lease: each first purchase over {int(a.lease_term_yr)} years at "
+            f"{percent_text(a.lease_rate_frac)} a year (nominal), bought out at {percent_text(a.lease_buyout_frac)} of "
+            "its price", "all",
+            "The lessor's terms (the rate, the buyout, who claims the incentive and the depreciation, the lease's "
+            "treatment in the accounts) decide the owner's view (section 5); the plan and its metrics are on the "
+            "cash basis.")
     elif str(getattr(a, "financing", "cash")) == "shared_savings":
         add("assumption", "Financing", f"energy-service company: {percent_text(a.shared_savings_share_frac)} of the "
             f"savings for {int(a.shared_savings_term_yr)} years", "all",

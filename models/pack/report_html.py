@@ -90,11 +90,17 @@ def _financed_context(result, financed, cur: str) -> dict[str, Any]:
     """The report's table of the plan's flows to the owner under its financing (empty for cash)."""
     if financed is None:
         return {"financed_headers": [], "financed_rows": [], "financed_numeric": (), "financed_note": ""}
-    loan = str(result.assumptions.financing) == "loan"
-    parts = (("loan_proceeds", "Borrowed"), ("loan_repayment", "Repaid"), ("interest_tax_shield", "Interest tax shield")) if loan \
-        else (("company_capital", "Capital paid by the company"),
-              ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by it"),
-              ("company_savings_share", "Savings share paid to it, after tax"))
+    kind = str(result.assumptions.financing)
+    loan = kind == "loan"
+    parts = {"loan": (("loan_proceeds", "Borrowed"), ("loan_repayment", "Repaid"),
+                      ("interest_tax_shield", "Interest tax shield")),
+             "lease": (("company_capital", "Capital paid by the lessor"),
+                       ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by it"),
+                       ("lease_payment", "Lease payments"), ("lease_tax_shield", "Their tax shield"),
+                       ("lease_buyout", "Buyout"))}.get(
+        kind, (("company_capital", "Capital paid by the company"),
+               ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by it"),
+               ("company_savings_share", "Savings share paid to it, after tax")))
     headers = ["Plan year", f"Cash net [{cur}]"] + [f"{t} [{cur}]" for _, t in parts] + [
         f"Financed net [{cur}]", f"Cumulative financed [{cur}]"]
     rows = [row([cell(int(r["year"]), "num"), num(r["cash_net"])] + [num(r[k]) for k, _ in parts]
@@ -102,6 +108,10 @@ def _financed_context(result, financed, cur: str) -> dict[str, Any]:
             for r in financed.to_dict("records")]
     note = ("Repayments are the loan's equal yearly payments, in base-year money where the analysis is real; a "
             "balance still owed at the end is repaid in the last year." if loan else
+            "The lessor buys each project's first purchase and keeps its incentive and depreciation shield; the owner "
+            "pays the lease's equal yearly payments (deducted from profit), in base-year money where the analysis is "
+            "real, then buys the equipment out at the buyout price; payments still owed and a buyout after the study "
+            "period are settled in its last year; the owner pays mid-life work and later purchases." if kind == "lease" else
             "The company buys each project's first purchase and keeps its incentive and depreciation shield; the "
             "owner pays mid-life work and later purchases, and the equipment is the owner's once the contract ends.")
     note += " Positive: money to the owner; negative: money out."

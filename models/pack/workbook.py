@@ -879,9 +879,11 @@ def _financing(ws: Worksheet, result, f: _Formats) -> None:
              "NPV). The plan, its ranking and every metric are on the cash basis. Positive: money to the owner; "
              "negative: money out.")
     cols = [("cash_net", "Cash net"), ("loan_proceeds", "Loan borrowed"), ("loan_repayment", "Loan repaid"),
-            ("interest_tax_shield", "Interest tax shield"), ("company_capital", "Capital paid by the company"),
-            ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by the company"),
-            ("company_savings_share", "Savings share paid to the company, after tax")]
+            ("interest_tax_shield", "Interest tax shield"), ("company_capital", "Capital paid by the company or lessor"),
+            ("company_incentive_and_depreciation", "Incentive and depreciation shield kept by the company or lessor"),
+            ("company_savings_share", "Savings share paid to the company, after tax"),
+            ("lease_payment", "Lease payments"), ("lease_tax_shield", "Lease payments' tax shield"),
+            ("lease_buyout", "Lease buyout")]
     row = 5
     _header(ws, row, ["Plan year"] + [f"{h} [{f.currency}]" for _, h in cols]
             + [f"Financed net [{f.currency}]", f"Cumulative financed [{f.currency}]"])
