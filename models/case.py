@@ -1526,6 +1526,19 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
                      "falls as the static share of the head rises",
                      "give the static share of the design head (lift, or the diffusers' submergence of an aeration "
                      "blower, often most of its pressure) where a drive is considered")
+    # a drive on a pump or fan switched on and off saves by running it at the inflow, which the static head decides
+    cycled = ((a["speed_control"].to_numpy(dtype=object) == "on_off")
+              & np.isin(a["application"].to_numpy(dtype=object), ["pump", "fan"]) & np.isnan(static))
+    if cycled.any():
+        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[cycled])
+        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        checker.warn(None, "static_head_frac", None,
+                     f"static_head_frac is blank for {counted(len(ids), 'pump or fan switched on and off', 'pumps and fans switched on and off')} "
+                     f"({named}): the application default is used, and what a drive saves by running such a "
+                     "load at its inflow falls as the static share of the head rises (a sump's lift is often most "
+                     "of it)",
+                     "give the static share of the design head (the lift from the sump's level to the discharge) "
+                     "where a drive is considered")
     mean_load = a["mean_load_pct"].to_numpy()
     for i in np.flatnonzero((mean_load > 0) & (mean_load <= 1.0)):
         checker.warn(i, "mean_load_pct", mean_load[i], f"a mean load of {mean_load[i]:g} % of rating is implausibly low",

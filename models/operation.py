@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from models import drives, induction, loads, synchronous, tabulation
+from models.options import DRIVE_TECHNOLOGIES
 from models.defaults import catalogue_efficiency_pct, class_floor_pct, default_power_factor
 from models.profiles import LoadStates, analysis_index, asset_loads
 from models.regulations import MAX_RULED_V_V
@@ -57,6 +58,14 @@ CONSTANT_TORQUE_RISE_EXPONENT = 0.0
 #: for a constant-torque one (energy per volume with the square of the speed; common practice, the affinity
 #: laws with a fixed pumped volume, friction head only).
 ON_OFF_RUNNING_EXPONENTS = {"variable_torque": 3.0, "constant_torque": 1.0}
+#: Lowest speed a drive runs a centrifugal pump or fan at continuously [frac of its speed today] (common practice,
+#: from memory: 25-40 % for motor cooling, the pump's minimum flow and the velocity that keeps solids moving);
+#: below the flow it gives, a drive on a load switched on and off cycles at that speed (:func:`_on_off_on_a_drive`).
+MIN_DRIVE_SPEED_FRAC = 0.3
+#: The caution of a drive option that runs a pump switched on and off continuously at the inflow.
+ON_OFF_DRIVE_TEXT = ("a level or pressure controller in place of the switches: the drive runs the pump at the inflow "
+                     "(cycling below its minimum speed); check the velocity that keeps solids moving in the sump and "
+                     "the rising main, and the pump's minimum continuous flow")
 #: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
 #: (rotor copper loss = slip x air-gap power; common practice).
 SLIP_SCALING_BOUNDS = (0.6, 1.0)
@@ -959,15 +968,23 @@ def _on_off(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Po
                      existing=existing if load.existing is None else load.existing)
     if load.on_kw is None and load.n_ref_known is not None:
         run_load.n_ref_known = load.n_ref_known  # the same loads: today's speed already known
-    pt = _evaluate_running(option, arr, existing, run_load, site_other)
     share = np.where(running_at > 0.0, p / np.where(running_at > 0.0, running_at, 1.0), 1.0)
+    driven = None
+    if option["technology"] in DRIVE_TECHNOLOGIES:  # a drive may run the load at the inflow instead
+        driven = _on_off_on_a_drive(arr, run_load, on, share)
+        if driven is not None:
+            share = driven[1]
+            driven = driven[0]
+    pt = _evaluate_running(option, arr, existing, run_load, site_other)
     exponent = np.asarray(arr["rise_exponent"], dtype=float)[:, None]
 
     def scaled(part: _Point, rows) -> None:
         shaft = part.shaft_kw
         on_rows, at, k = on[rows], running_at[rows], exponent[rows]
-        # the running time of the option against today's: 1/r, r^k = P_shaft / P_on
+        # the running time of the option against today's: 1/r, r^k = P_shaft / P_on (not where a drive sets the flow)
         ok = on_rows & (shaft > 0.0) & (at > 0.0) & (k > 0.0)
+        if driven is not None:
+            ok = ok & ~driven[rows]
         time_frac = np.where(ok, np.power(np.where(ok, at / np.where(ok, shaft, 1.0), 1.0),
                                           1.0 / np.where(k > 0.0, k, 1.0)), 1.0)
         factor = np.where(on_rows, share[rows] * time_frac, 1.0)
@@ -981,7 +998,48 @@ def _on_off(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Po
             scaled(part, rows)
     else:
         scaled(pt, slice(None))
+    if driven is not None:
+        pt.flags.extend((int(i), ON_OFF_DRIVE_TEXT) for i in np.flatnonzero(driven.any(axis=1)))
     return pt
+
+
+def _on_off_on_a_drive(arr, run_load: _Load, on: np.ndarray, share: np.ndarray):
+    """A drive on centrifugal loads switched on and off: where it takes less shaft energy, the drive runs the load
+    at the interval's mean flow instead of cycling it at full speed.
+
+    An interval whose mean flow is the share d of the flow while the load runs today (its running load taken as
+    its design point on the system curve) can be met continuously at flow d, at the speed and shaft power of a
+    speed-controlled pump on the system curve with the asset's static head (:func:`models.loads.speed_frac_for_flow`,
+    :func:`models.loads.speed_controlled_shaft_frac`, which take the pump's efficiency off its best point into
+    account). Below the flow q_min at :data:`MIN_DRIVE_SPEED_FRAC` the drive cycles the load at q_min for d / q_min
+    of the interval. The drive does so where that shaft energy, (d / q) f(q) with q = max(d, q_min), is below
+    the d of cycling at full speed (a static-head system may gain nothing). Sets ``run_load.controlled`` (the shaft
+    power while running and the speed fraction) and returns (where the drive sets the flow (n, m), the share of each
+    interval it runs), or None where it never does.
+
+    References
+    ----------
+    I. J. Karassik et al., *Pump Handbook*, 4th ed. McGraw-Hill, 2008, sec. 2.1 and ch. 13 (system curves,
+    speed control); docs/derivations/loads-speed-coupling.md, "A drive on a pump switched on and off".
+    """
+    rows = on[:, 0] & (np.asarray(arr["exponent"]) == 3.0) & ~np.asarray(arr["has_drive"], dtype=bool)
+    rows &= ~np.asarray(arr["throttled"], dtype=bool)
+    if not rows.any():
+        return None
+    h_s = np.clip(np.nan_to_num(np.asarray(arr["static_head"], dtype=float)), 0.0, 1.0)[:, None]
+    h0 = loads.DEFAULT_SHUTOFF_HEAD_PU
+    q_min = np.sqrt(np.maximum(MIN_DRIVE_SPEED_FRAC ** 2 * h0 - h_s, 0.0) / (h0 - h_s))
+    d = np.clip(share, 0.0, 1.0)
+    q = np.maximum(d, q_min)
+    frac = np.asarray(loads.speed_controlled_shaft_frac(q, h_s, h0), dtype=float)
+    speed = np.asarray(loads.speed_frac_for_flow(q, h_s, h0), dtype=float)
+    run_share = np.where(q > 0.0, d / np.where(q > 0.0, q, 1.0), 0.0)
+    driven = rows[:, None] & run_load.running & (run_share * frac < d)
+    if not driven.any():
+        return None
+    shaft, speed_frac = _speed_controlled(arr, run_load)  # cycling at today's speed
+    run_load.controlled = (np.where(driven, run_load.p_ref_kw * frac, shaft), np.where(driven, speed_frac * speed, speed_frac))
+    return driven, np.where(driven, run_share, share)
 
 
 def _evaluate_running(option: Mapping, arr, existing, load: _Load, site_other=None) -> _Point:

@@ -492,12 +492,13 @@ def test_a_catalogue_row_certified_for_some_areas_is_offered_there_only():
     assert (applies[1, others] == applies[2, others]).all()  # an unrestricted row is offered in any area
 
 
-def _sump_case(folder: Path, control: str, pattern_pct, running_load_pct: str = "", input_kw: bool = False) -> Path:
+def _sump_case(folder: Path, control: str, pattern_pct, running_load_pct: str = "", input_kw: bool = False,
+               static_head: str = "") -> Path:
     """A 30 kW 4-pole sump pump (IE2, 1,470 rpm) with a year of hourly loads repeating ``pattern_pct`` (UTC, so
     every hour of the year is there once)."""
-    header = cb.ASSET_HEADER + ["load_type", "running_load_pct"]
+    header = cb.ASSET_HEADER + ["load_type", "running_load_pct", "static_head_frac"]
     row = ["P9", "S1", "Sump pump", "pump", "30", "4", "50", "400", "IE2", "91.4", "0.84", "1470", "2010", "0",
-           control, "LP1", "", "", "medium", "variable_torque", running_load_pct]
+           control, "LP1", "", "", "medium", "variable_torque", running_load_pct, static_head]
     t0 = pd.Timestamp("2025-01-01 00:00")
     rows = [["LP1", (t0 + pd.Timedelta(hours=k)).strftime("%Y-%m-%d %H:%M"), f"{pattern_pct[k % len(pattern_pct)]}"]
             for k in range(8760)]
@@ -601,7 +602,7 @@ def test_on_off_motors_read_the_same_through_every_engine_path(tmp_path):
 
     folder = _sump_case(tmp_path / "c", "on_off", [80, 40, 20])
     lines = (folder / "assets.csv").read_text(encoding="utf-8").splitlines()
-    second = lines[1].replace("P9,", "P8,", 1).replace(",variable_torque,", ",variable_torque,90", 1)
+    second = lines[1].replace("P9,", "P8,", 1).replace(",variable_torque,,", ",variable_torque,90,", 1)
     third = lines[1].replace("P9,", "P7,", 1).replace(",on_off,", ",fixed,", 1)
     (folder / "assets.csv").write_text("\n".join(lines + [second, third]) + "\n", encoding="utf-8")
     cb.with_flat_tariff(folder)
@@ -648,3 +649,40 @@ def test_the_line_start_screen_counts_an_on_off_motors_starts(tmp_path, control,
     flags = operate(case).flags
     screen = flags[(flags["option_id"] == "lspm") & flags["flag"].str.startswith("line-start screen")]
     assert screen["flag"].str.contains("more than 6 starts per hour").any() == frequent
+
+
+def test_a_drive_runs_an_on_off_pump_at_the_inflow_where_that_takes_less(tmp_path):
+    # The sump pump of the tests above (running load 24 kW, hourly means 80, 40, 20 %) on a friction-only system
+    # (static_head_frac 0): with a drive it can meet an hour's mean flow d continuously, at d^3 of its running shaft
+    # power (the affinity laws on a friction-only system curve, the pump at its best efficiency all along:
+    # models.loads.speed_controlled_shaft_frac), where it draws less than the d of cycling at full speed; below 30 %
+    # speed (models.operation.MIN_DRIVE_SPEED_FRAC), here 30 % flow, it cycles at 30 % flow instead. Hand calculation
+    # (docs/derivations/loads-speed-coupling.md, "A drive on a pump switched on and off"), per three hours:
+    # 24 (a full hour: the same either way) + 24 x 0.5^3 = 3 + 24 x 0.3^3 x 0.25/0.3 = 0.54 kWh of shaft energy,
+    # 27.54 kWh against 42 kWh; 2,920 times a year.
+    cycled = operate(load_case(_sump_case(tmp_path / "friction", "on_off", [80, 40, 20], static_head="0"))[0])
+    add = cycled.option_position("add_drive")
+    keep = cycled.option_position("keep")
+    assert cycled.applies[0, add]
+    assert_allclose(cycled.shaft_energy_kwh[0, keep], 2920 * 42.0, rtol=1e-5)
+    assert_allclose(cycled.shaft_energy_kwh[0, add], 2920 * 27.54, rtol=1e-5)
+    assert cycled.energy_kwh[0, add] < 0.7 * cycled.energy_kwh[0, keep]
+    flags = cycled.flags
+    said = flags[(flags["option_id"] == "add_drive") & flags["flag"].str.startswith("a level or pressure controller")]
+    assert len(said) == 1
+    # on a system of static head alone the pump must keep its full head at any flow: running it slower takes more
+    # energy per volume than cycling it (0.638 of its power at half flow against 0.5, hand calculation in the same
+    # document), so the drive leaves it cycling: the shaft energy is today's, and no caution is said
+    lifted = operate(load_case(_sump_case(tmp_path / "static", "on_off", [80, 40, 20], static_head="1"))[0])
+    assert_allclose(lifted.shaft_energy_kwh[0, add], lifted.shaft_energy_kwh[0, keep], rtol=1e-5)  # (the tables)
+    flags = lifted.flags
+    assert not (flags["flag"].str.startswith("a level or pressure controller")).any()
+
+
+def test_a_blank_static_head_is_warned_for_a_pump_switched_on_and_off(tmp_path):
+    # what a drive saves on such a pump depends most on its static head (docs/case-format.md, static_head_frac)
+    _, problems = load_case(_sump_case(tmp_path / "c", "on_off", [80, 40, 20]))
+    said = [str(p) for p in problems if p.column == "static_head_frac" and p.severity == "warning"]
+    assert len(said) == 1 and "blank for 1 pump or fan switched on and off (P9)" in said[0]
+    _, problems = load_case(_sump_case(tmp_path / "d", "on_off", [80, 40, 20], static_head="0.8"))
+    assert not [p for p in problems if p.column == "static_head_frac"]
