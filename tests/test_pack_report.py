@@ -1079,3 +1079,28 @@ def test_a_financed_plan_is_said_in_the_summary_and_tabled_in_the_cash_flow_sect
                                            "Incentive and depreciation shield kept by it [EUR]", "Lease payments [EUR]",
                                            "Their tax shield [EUR]", "Buyout [EUR]"]
     assert "leased over 5 years at 7 % a year (nominal) and bought out at 5 % of its price" in ctx["summary_text"]
+
+
+def test_a_record_names_the_hazardous_area_and_cautions_a_motor_kept_there(small):
+    # the nameplate shows the area; a record that keeps today's motor says its Ex care goes on (IEC 60079-17
+    # inspections, IEC 60079-19 repairs); one with no classified area says neither
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case, result = small
+    assets = case.assets.copy()
+    assets["hazardous_area"] = "zone_2"
+    zoned = dataclasses.replace(case, assets=assets)
+    kept_any = False
+    for asset_id in ("P1", "F1", "C1"):
+        scope = content.select_scope(case, result, assets=[asset_id], plan=False)
+        plain = record_context(case, result, scope, asset_id)
+        ctx = record_context(zoned, result, scope, asset_id)
+        assert ("Hazardous area", "zone 2", False) in ctx["nameplate"]
+        assert not any(label == "Hazardous area" for label, _, _ in plain["nameplate"])
+        kept = "keep today's motor" in str(ctx["recommended"])
+        said = [c for c in ctx["cautions"] if c.startswith("hazardous area (zone 2): a motor kept in service")]
+        assert len(said) == (1 if kept else 0), (asset_id, ctx["recommended"])
+        assert not any("IEC 60079-17" in c for c in plain["cautions"])
+        kept_any = kept_any or kept
+    assert kept_any  # (F1's record keeps today's motor)

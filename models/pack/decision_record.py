@@ -113,6 +113,8 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Application", "application", _value(x["application"])),
         ("Speed control", "speed_control", _value(x["speed_control"])),
         ("Criticality", "criticality", _value(x["criticality"])),
+        *([("Hazardous area", "hazardous_area", str(x["hazardous_area"]).replace("_", " "))]
+          if str(x.get("hazardous_area", "none") or "none") not in ("none", "nan") else []),
         *([("State", "failed", "failed, out of service")] if failed else []),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
         ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %") + _defaulted_words(defaulted["column"])),
@@ -301,6 +303,11 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not is_keep:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
+    area = str(x.get("hazardous_area", "none") or "none")
+    if is_keep and area not in ("none", "nan"):  # kept as it is, the motor stays in its area: its Ex care goes on
+        cautions.append(f"hazardous area ({area.replace('_', ' ')}): a motor kept in service there keeps its "
+                        "inspections under IEC 60079-17 by a competent person, and any repair is done to "
+                        "IEC 60079-19")
     cautions += [content.CAUTIONS[0], content.CAUTIONS[1]]
     return {
         "asset_id": asset_id, "description": _value(x["description"], missing=""), "site": x["site_id"],
