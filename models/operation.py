@@ -898,6 +898,27 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
     return np.minimum(need, CAPACITOR_MAX_NO_LOAD_SHARE * existing.q_constant_kvar)
 
 
+@numba.njit(nogil=True, cache=True)
+def _capacitor_sums(p0, q0, rows, q_cap, lag, lead):  # pragma: no cover - compiled
+    """Sums over the steps of :func:`capacitor_rows_kvar`'s rows ``rows`` (banks ``q_cap``), lagging into ``lag`` and
+    leading into ``lead`` [kVAr x steps]: as numpy's ``np.maximum(q, 0).sum(axis=1)`` and ``np.maximum(-q, 0)``'s,
+    summed in step order."""
+    for k in range(len(rows)):
+        i = rows[k]
+        c = q_cap[k]
+        a = 0.0
+        b = 0.0
+        for t in range(p0.shape[1]):
+            if p0[i, t] != 0.0:
+                q = q0[i, t] - c
+                if q > 0.0:
+                    a += q
+                elif q < 0.0:
+                    b -= q
+        lag[k] = a
+        lead[k] = b
+
+
 def capacitor_rows_kvar(p0_kw: np.ndarray, q0_kvar: np.ndarray, q_cap_kvar) -> np.ndarray:
     """Per-interval kVAr of a motor with a terminal capacitor, from today's rows of the same motor.
 
@@ -1657,24 +1678,20 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
         (:func:`capacitor_rows_kvar`): kW, energy, losses and speed are today's; kVAr and its sums its own."""
         if book is not None:
             book.shift(o, idx, q_cap_kvar)
-        step = max(1, CHUNK_ELEMENTS // max(n_t, 1))
-        for start in range(0, len(idx), step):  # bounded temporaries whatever the block's size
-            part, q_part = idx[start:start + step], q_cap_kvar[start:start + step]
-            if book is not None and power_only:
-                break
-            q = capacitor_rows_kvar(p_kw[0, part], q_kvar[0, part], q_part)
-            if book is None:
+        if book is None:  # the option's own rows
+            step = max(1, CHUNK_ELEMENTS // max(n_t, 1))
+            for start in range(0, len(idx), step):  # bounded temporaries whatever the block's size
+                part, q_part = idx[start:start + step], q_cap_kvar[start:start + step]
                 p_kw[o, part] = p_kw[0, part]
-                q_kvar[o, part] = q
-            if power_only:
-                continue
-            pos = np.maximum(q, 0.0)
-            lag[part, o] = pos.sum(axis=1) * interval_h
-            np.negative(q, out=pos)
-            np.maximum(pos, 0.0, out=pos)
-            lead[part, o] = pos.sum(axis=1) * interval_h
+                q_kvar[o, part] = capacitor_rows_kvar(p_kw[0, part], q_kvar[0, part], q_part)
         if power_only:
             return
+        # the yearly kVArh from today's rows in one pass (no per-interval array: the book reads the rows)
+        lag_kvarh, lead_kvarh = np.empty(len(idx)), np.empty(len(idx))
+        _capacitor_sums(p_kw[0], q_kvar[0], np.asarray(idx, dtype=np.intp), np.asarray(q_cap_kvar, dtype=float),
+                        lag_kvarh, lead_kvarh)
+        lag[idx, o] = lag_kvarh * interval_h
+        lead[idx, o] = lead_kvarh * interval_h
         for target in (energy, shaft_energy, speed):
             target[idx, o] = target[idx, 0]
         losses[idx, o] = losses[idx, 0]
