@@ -592,18 +592,24 @@ def plan_by_year(by_year: pd.DataFrame, currency: str, exact_name: str = "exact 
     Parameters
     ----------
     by_year : pandas.DataFrame
-        plan ("exact"/"rank_order"), start_yr, capital [currency], budget [currency] (NaN = no limit).
+        plan ("exact"/"rank_order"), start_yr, capital [currency], budget [currency] (NaN = no limit), and
+        optionally budget_year (the name of the budget year each plan year falls in, "" for none).
     exact_name : str
         What the integer-programme plan is called (e.g. "best plan found" before it is proven).
     """
     fig = go.Figure()
+
+    def year_names(part: pd.DataFrame) -> list[str]:  # "Year 0", or "Year 0 (FY2028)" with the budget year's name
+        named = part["budget_year"] if "budget_year" in part else pd.Series([""] * len(part), index=part.index)
+        return [f"Year {y}" + (f" ({b})" if b else "") for y, b in zip(part["start_yr"], named)]
+
     for plan_name, colour, name in (("exact", AFTER, exact_name), ("rank_order", BEFORE, "rank by profitability index")):
         part = by_year[by_year["plan"] == plan_name]
-        fig.add_trace(go.Bar(x=[f"Year {y}" for y in part["start_yr"]], y=part["capital"], name=name, marker_color=colour,
+        fig.add_trace(go.Bar(x=year_names(part), y=part["capital"], name=name, marker_color=colour,
                              hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra>" + name + "</extra>"))
     budget = by_year[by_year["plan"] == "exact"]
     if budget["budget"].notna().any():
-        fig.add_trace(go.Scatter(x=[f"Year {y}" for y in budget["start_yr"]], y=budget["budget"], mode="markers",
+        fig.add_trace(go.Scatter(x=year_names(budget), y=budget["budget"], mode="markers",
                                  name="budget",
                                  marker=dict(symbol="line-ew-open", size=28, color=BUDGET, line=dict(width=3)),
                                  hovertemplate="%{x} budget: %{y:,.0f} " + currency + "<extra></extra>"))

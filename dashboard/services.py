@@ -1800,13 +1800,17 @@ def plan_tables(view_: View, result) -> dict[str, pd.DataFrame]:
     years = max([len(budgets)] + [int(f["start_yr"].max()) + 1 for f in out.values() if len(f)] + [1])
     rows = []
     later = {}
+    from models.pack.content import plan_year_names
+
+    names = plan_year_names(view_.case, result, years)  # the budget (fiscal) year of each plan year, if named
     for name, f in out.items():
         # capital in the plan year it is spent, as the budgets count it (a motor replaced at failure the year
         # it is expected to fail); what falls after the plan years is kept apart
         by_year, later[name] = plan_capital_spent(f, result.results, result.capital_spend_by_year, years)
         for y in range(years):
             rows.append({"plan": name, "start_yr": y, "capital": float(by_year[y]),
-                         "budget": budgets[y] if y < len(budgets) else np.nan})
+                         "budget": budgets[y] if y < len(budgets) else np.nan,
+                         "budget_year": names[y] if y < len(names) else ""})
     out["by_year"] = pd.DataFrame(rows)
     out["capital_later"] = later
     exact_keys, greedy_keys = set(scenario.project_labels(out["exact"])), set(scenario.project_labels(out["rank_order"]))

@@ -1358,6 +1358,10 @@ class FinanceAssumptions:
         [frac], 0-1 (``lease``; 0 for a nominal price).
     budget_per_yr : tuple of float
         Capital budget of plan years 0, 1, ... [currency]; empty = no capital limit.
+    fiscal_year_start_month : int
+        The month (1-12) the owner's budget (fiscal) year starts in, to name each plan year by the budget year
+        it falls in (:func:`budget_year_names`: plan year 0 is the one holding the case's purchase date); 0 (the
+        default) names none.
     monte_carlo_draws : int
         Number of Monte Carlo draws.
     monte_carlo_seed : int
@@ -1396,6 +1400,7 @@ class FinanceAssumptions:
     lease_term_yr: int = 5
     lease_buyout_frac: float = 0.0
     budget_per_yr: tuple[float, ...] = ()
+    fiscal_year_start_month: int = 0
     monte_carlo_draws: int = 1000
     monte_carlo_seed: int = 12345
 
@@ -1507,6 +1512,42 @@ class FinanceAssumptions:
         return cls(**values), problems
 
 
+def budget_year_names(purchase_date: str, start_month: int, n_years: int) -> list[str]:
+    """Name plan years 0 .. n_years - 1 by the budget (fiscal) year each falls in.
+
+    Parameters
+    ----------
+    purchase_date : str
+        The day the motors are bought, ``YYYY-MM-DD``: plan year 0 is the budget year holding it.
+    start_month : int
+        The month the budget year starts in, 1-12; 0 names none.
+    n_years : int
+        Plan years to name.
+
+    Returns
+    -------
+    list of str
+        Calendar years (``start_month`` 1) as the year itself, ``"2027"``; other budget years as ``"FY"`` and the
+        calendar year they end in (common practice: the year from April 2027 to March 2028 is FY2028); [] when
+        ``start_month`` is 0.
+
+    Examples
+    --------
+    >>> budget_year_names("2027-06-15", 4, 3), budget_year_names("2027-02-01", 4, 1)
+    (['FY2028', 'FY2029', 'FY2030'], ['FY2027'])
+    >>> budget_year_names("2027-06-15", 1, 2), budget_year_names("2027-06-15", 0, 2)
+    (['2027', '2028'], [])
+    """
+    month = int(start_month)
+    if month == 0 or n_years <= 0:
+        return []
+    year, bought_in = int(str(purchase_date)[:4]), int(str(purchase_date)[5:7])
+    if month == 1:
+        return [str(year + k) for k in range(int(n_years))]
+    ends = year + 1 if bought_in >= month else year  # the budget year holding the purchase ends in this year
+    return [f"FY{ends + k}" for k in range(int(n_years))]
+
+
 def _financing_of(key: str) -> str:
     """The financing whose term a key of :data:`_FINANCING_KEYS` is.
 
@@ -1527,7 +1568,7 @@ DISCOUNT_RATE_DRAW_SPREAD_FRAC = 0.02
 MAX_HORIZON_YR = 100
 
 _INTEGER_KEYS = ("horizon_yr", "depreciation_yr", "monte_carlo_draws", "monte_carlo_seed", "loan_term_yr",
-                 "shared_savings_term_yr", "lease_term_yr")
+                 "shared_savings_term_yr", "lease_term_yr", "fiscal_year_start_month")
 #: The terms of a loan and of an energy-service contract (read only under their own ``financing``).
 _FINANCING_KEYS = ("loan_share_frac", "loan_rate_frac", "loan_term_yr", "shared_savings_share_frac",
                    "shared_savings_term_yr", "lease_rate_frac", "lease_term_yr", "lease_buyout_frac")
@@ -1570,6 +1611,7 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
     "lease_term_yr": ("yr", "years of equal lease payments after the lessor's purchase (lease)"),
     "lease_buyout_frac": ("frac", "the owner's buyout price at the lease's end, a share of the purchase (lease)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
+    "fiscal_year_start_month": ("-", "month the budget (fiscal) year starts in, to name the plan years by it (0 = none)"),
     "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
     "monte_carlo_seed": ("-", "seed of the random draws"),
 }
@@ -1756,6 +1798,9 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
                    "lease": "the payments still owed and the buyout are counted as settled then",
                    "shared_savings": "the share is paid to the study period's end only"}[key.rsplit("_term_yr", 1)[0]],
                 "check the term against horizon_yr")
+    if not 0 <= values["fiscal_year_start_month"] <= 12:
+        bad("fiscal_year_start_month", "must be a month from 1 to 12, or 0 for none",
+            "e.g. 4 for a budget year from April to March, 1 for calendar years")
     if not 1 <= values["depreciation_yr"] <= 100:
         bad("depreciation_yr", "must be between 1 and 100 years", "straight-line tax life, often 5-20 years")
     budget = values["budget_per_yr"]

@@ -284,6 +284,13 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(fig.data[2].y, [100.0, 50.0])
         assert titles(fig) == {"xaxis": "Plan year", "yaxis": "Capital [EUR]"}
 
+    def test_plan_years_named_by_their_budget_year(self):
+        # with the budget (fiscal) year of each plan year, the bars and the budget marks name it beside the plan year
+        named = self.by_year.assign(budget_year=["FY2028", "FY2029", "FY2028", "FY2029"])
+        fig = figures.plan_by_year(named, "EUR")
+        assert [list(t.x) for t in fig.data] == [["Year 0 (FY2028)", "Year 1 (FY2029)"]] * 3
+        assert list(figures.plan_by_year(self.by_year, "EUR").data[0].x) == ["Year 0", "Year 1"]
+
     def test_plan_by_year_without_budget_draws_no_budget_line(self):
         fig = figures.plan_by_year(self.by_year.assign(budget=np.nan), "EUR")
         assert "budget" not in [t.name for t in fig.data]

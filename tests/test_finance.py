@@ -565,3 +565,23 @@ def test_one_number_for_the_budgets_is_read_as_one_plan_year_and_said_so():
     assert found and found[0].severity == "warning" and "[5000, 5000, 5000]" in found[0].hint
     _, problems = fin.FinanceAssumptions.from_dict({"budget_per_yr": [5000, 5000]})
     assert not [p for p in problems if p.column == "budget_per_yr"]
+
+
+
+def test_plan_years_are_named_by_the_budget_year_they_fall_in():
+    # hand calculation (docs/finance.md, fiscal_year_start_month): a budget year from April, named by the calendar
+    # year it ends in (common practice); plan year 0 holds the purchase date. Bought on 15 June 2027: the year from
+    # April 2027 to March 2028, FY2028; bought on 1 February 2027: April 2026 to March 2027, FY2027; bought on
+    # 1 April 2027, the budget year's first day: FY2028. Calendar years are named as they are.
+    from models.finance import budget_year_names
+
+    assert budget_year_names("2027-06-15", 4, 3) == ["FY2028", "FY2029", "FY2030"]
+    assert budget_year_names("2027-02-01", 4, 2) == ["FY2027", "FY2028"]
+    assert budget_year_names("2027-04-01", 4, 1) == ["FY2028"]
+    assert budget_year_names("2027-09-30", 10, 1) == ["FY2027"] and budget_year_names("2027-10-01", 10, 1) == ["FY2028"]
+    assert budget_year_names("2027-06-15", 1, 2) == ["2027", "2028"]
+    assert budget_year_names("2027-06-15", 0, 2) == []
+    ok, problems = FinanceAssumptions.from_dict({"fiscal_year_start_month": 4}, "finance.toml")
+    assert ok is not None and ok.fiscal_year_start_month == 4 and not problems
+    got, problems = FinanceAssumptions.from_dict({"fiscal_year_start_month": 13}, "finance.toml")
+    assert got is None and any(p.column == "fiscal_year_start_month" for p in problems)

@@ -1104,3 +1104,30 @@ def test_a_record_names_the_hazardous_area_and_cautions_a_motor_kept_there(small
         assert not any("IEC 60079-17" in c for c in plain["cautions"])
         kept_any = kept_any or kept
     assert kept_any  # (F1's record keeps today's motor)
+
+
+def test_the_plan_table_names_each_plan_year_by_its_budget_year(small, tmp_path):
+    # fiscal_year_start_month = 4 with the motors bought on 15 June 2027: plan year 0 is the budget year from April
+    # 2027 to March 2028, FY2028 (models.finance.budget_year_names); the report's table by plan year and the
+    # workbook's Plan sheet name it, and without the key neither does
+    from openpyxl import load_workbook
+
+    from models.pack import content
+    from models.pack.report_html import report_context
+
+    case, result = small
+    dated = dataclasses.replace(case, settings=dataclasses.replace(case.settings, purchase_date="2027-06-15"))
+    named = scenario.economics(dated, result.physics, dataclasses.replace(result.assumptions, fiscal_year_start_month=4,
+                                                                          budget_per_yr=(1e6, 1e6)), with_risk=False)
+    ctx = report_context(dated, named, content.select_scope(dated, named, None, True), [])
+    first = [[c["text"] for c in r["cells"]][0] for r in ctx["plan_rows"]]
+    assert first[:2] == ["0 (FY2028)", "1 (FY2029)"]
+    plain = report_context(case, result, content.select_scope(case, result, None, True), [])
+    assert [[c["text"] for c in r["cells"]][0] for r in plain["plan_rows"]][0] == "0"
+    write_pack(dated, named, tmp_path / "pack")
+    ws = load_workbook(tmp_path / "pack" / WORKBOOK_NAME)["Plan"]
+    header = next(r for r in range(1, ws.max_row + 1)
+                  if ws.cell(r, 1).value == "Plan year" and str(ws.cell(r, 2).value).startswith("Budget ["))
+    assert ws.cell(header, 10).value == "Budget year"
+    assert [ws.cell(header + k, 10).value for k in (1, 2)] == ["FY2028", "FY2029"]
+    assert [ws.cell(header + k, 1).value for k in (1, 2)] == [0, 1]  # (the plan years the sheet's formulas count by)

@@ -1320,6 +1320,25 @@ def rate_text(value: float, status: str = "unique") -> str:
 
 
 #: How the pack counts a plan's capital by plan year, in words.
+def plan_year_names(case, result, n_years: int) -> list[str]:
+    """The budget (fiscal) year of each of plan years 0 .. n_years - 1 (:func:`models.finance.budget_year_names` on
+    the case's purchase date and the assumptions' ``fiscal_year_start_month``), [] when the case names none."""
+    from models.finance import budget_year_names
+
+    return budget_year_names(case.settings.purchase_date, int(getattr(result.assumptions, "fiscal_year_start_month", 0)),
+                             n_years)
+
+
+def plan_year_text(year, names: list[str]) -> str:
+    """A plan year as the pack's tables write it: ``"0"``, or ``"0 (FY2028)"`` with its budget year's name.
+
+    >>> plan_year_text(1, ["FY2028", "FY2029"]), plan_year_text(1, []), plan_year_text(3, ["FY2028"])
+    ('1 (FY2029)', '1', '3')
+    """
+    y = int(year)
+    return f"{y} ({names[y]})" if 0 <= y < len(names) else str(y)
+
+
 PLAN_SPEND_TEXT = ("Capital is counted in the plan year it is spent, as the budgets count it: a motor replaced when "
                    "it fails is bought in the year it is expected to fail; \"later\" is what is spent after the "
                    "budgeted years (replacements at failure, repeat purchases within the horizon).")

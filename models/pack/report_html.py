@@ -318,10 +318,11 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     n_plan_years = (max(years) + 1) if years else 0
     spent = {name: plan_capital_spent(frame, result.results, result.capital_spend_by_year, n_plan_years)
              for name, frame in (("exact", result.plan), ("greedy", result.plan_greedy))}
+    names = content.plan_year_names(case, result, n_plan_years)
     for year in years:
         e = result.plan[result.plan["start_yr"].astype(int) == year]
         g = result.plan_greedy[result.plan_greedy["start_yr"].astype(int) == year]
-        plan_rows.append(row([cell(year, "num"), num(budgets[year]) if year < len(budgets) else cell("no limit", "num na"),
+        plan_rows.append(row([cell(content.plan_year_text(year, names), "num"), num(budgets[year]) if year < len(budgets) else cell("no limit", "num na"),
                               num(float(spent["exact"][0][year])), cell(len(e), "num"),
                               num(float(e["npv_at_plan_start"].sum())), num(float(spent["greedy"][0][year])),
                               cell(len(g), "num"), num(float(g["npv_at_plan_start"].sum()))]))

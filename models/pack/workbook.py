@@ -726,8 +726,16 @@ def _plan_npv_formula(block: dict, share: float | None, tax_rate_frac: float = 0
     return expr + (f"-{kept}*({'+'.join(present)})" if present else "")
 
 
+def _plan_years(result) -> int:
+    """Plan years the Plan sheet's table by year covers (to the last start of either plan or the last budget)."""
+    years = (set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int))
+             | set(range(len(result.assumptions.budget_per_yr))))
+    return (max(years) + 1) if years else 0
+
+
 def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats,
-          blocks: list[dict] | None = None) -> None:
+          blocks: list[dict] | None = None, names: list[str] | None = None) -> None:
+    """The Plan sheet; ``names`` the budget year of each plan year (a column of its own beside the table by year)."""
     _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
     put_text(ws, 2, 1, "NPV at its own start and at the plan's start: formulas on the project's block of 'Cash flows' "
                        "where this pack holds one (they follow the discount rate on 'Assumptions'); the engine's "
@@ -797,7 +805,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
     _header(ws, row, ["Plan year", f"Budget [{cur}]", f"Exact: capital spent (engine) [{cur}]", "Exact: projects started",
                       f"Exact: NPV at plan start [{cur}]", f"Rank-order: capital spent (engine) [{cur}]",
                       "Rank-order: projects started", f"Rank-order: NPV at plan start [{cur}]",
-                      f"Exact: budget left [{cur}]"])
+                      f"Exact: budget left [{cur}]"] + (["Budget year"] if names else []))
     top = row + 1
     budgets = list(result.assumptions.budget_per_yr)
     n_plan_years = (max(years) + 1) if years else 0
@@ -824,6 +832,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         left = (budgets[year] - float(spent["Exact plan"][0][int(year)])
                 if budget and year < len(budgets) else "" if not budget else None)
         put_formula(ws, row, 9, f'=IF(ISNUMBER(B{row}),B{row}-C{row},"")', f.money, left)
+        if names and int(year) < len(names):
+            put_text(ws, row, 10, names[int(year)])
     if spent["Exact plan"][1] > 0.005 or spent["Rank-order plan"][1] > 0.005:
         row += 1
         put_text(ws, row, 1, "later")
@@ -858,7 +868,7 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         withdrawn = withdrawn_text(status, labels=option_labels(result.results))
         put_text(ws, row, 2, f"{status['message']}." + (f" {withdrawn}" if withdrawn else ""))
     ws.freeze_panes = "A5"  # (the title, the note, the plan's name and its header row)
-    _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16})
+    _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16, 10: 12})
 
 
 def _financing(ws: Worksheet, result, f: _Formats) -> None:
@@ -1191,7 +1201,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _results(sheets["Results"], result, scope, f, case.settings.power_unit)
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
-    _plan(sheets["Plan"], result, scope, refs, f, blocks)
+    _plan(sheets["Plan"], result, scope, refs, f, blocks, names=content.plan_year_names(case, result, _plan_years(result)))
     _financing(sheets["Financing"], result, f)
     _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
