@@ -1526,17 +1526,23 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
                      "falls as the static share of the head rises",
                      "give the static share of the design head (lift, or the diffusers' submergence of an aeration "
                      "blower, often most of its pressure) where a drive is considered")
-    # a drive on a pump or fan switched on and off saves by running it at the inflow, which the static head decides
-    cycled = ((a["speed_control"].to_numpy(dtype=object) == "on_off")
-              & np.isin(a["application"].to_numpy(dtype=object), ["pump", "fan"]) & np.isnan(static))
+    # a drive on a centrifugal load switched on and off (with an interval profile) saves by running it at its
+    # demand, which the static head decides
+    load_type = a["load_type"].to_numpy(dtype=object)
+    centrifugal = np.where(pd.isna(a["load_type"]).to_numpy(), np.isin(a["application"].to_numpy(dtype=object),
+                                                                        ["pump", "fan"]), load_type == "variable_torque")
+    given = a["profile_id"].notna().to_numpy() & ~a["profile_id"].isin(list(duty_ids)).to_numpy()
+    cycled = (a["speed_control"].to_numpy(dtype=object) == "on_off") & centrifugal & given & np.isnan(static)
     if cycled.any():
         ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[cycled])
         named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
         checker.warn(None, "static_head_frac", None,
-                     f"static_head_frac is blank for {counted(len(ids), 'pump or fan switched on and off', 'pumps and fans switched on and off')} "
-                     f"({named}): the application default is used, and what a drive saves by running such a "
-                     "load at its inflow falls as the static share of the head rises (a sump's lift is often most "
-                     "of it)",
+                     f"static_head_frac is blank for {counted(len(ids), 'centrifugal load switched on and off', 'centrifugal loads switched on and off')} "
+                     f"({named}): the application default is used "
+                     f"({nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['pump']:g} for pumps, "
+                     f"{nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION['fan']:g} otherwise), and what a drive "
+                     "saves by running such a load at its demand falls as the static share of the head rises (a "
+                     "sump's lift is often most of it)",
                      "give the static share of the design head (the lift from the sump's level to the discharge) "
                      "where a drive is considered")
     mean_load = a["mean_load_pct"].to_numpy()
@@ -1626,7 +1632,8 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     if "running_load_pct" in a:
         running_load = a["running_load_pct"].to_numpy(dtype=float)
         cycled = a["speed_control"].to_numpy(dtype=object) == "on_off"
-        interval = np.array([str(x) in profiles for x in prof.to_numpy(dtype=object)], dtype=bool) & has_profile
+        # (a profile that is not a duty table is an interval profile, read or not)
+        interval = has_profile & ~prof.isin(list(duty_ids)).to_numpy()
         for i in np.flatnonzero(~np.isnan(running_load) & ~(cycled & interval)):
             why = ("the motor is not switched on and off (speed_control is not on_off)" if not cycled[i] else
                    "its load is given as load states or hours and mean load, which are loads while it runs already")
@@ -1706,7 +1713,10 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
     # logged where a model reads it: a throttled centrifugal load whose drive options follow its system curve
     head_blank = np.isnan(a["static_head_frac"].to_numpy(dtype=float))
     head_default = np.vectorize(nameplate_defaults.STATIC_HEAD_FRAC_BY_APPLICATION.get, otypes=[float])(app)
-    read = ((a["speed_control"].to_numpy(dtype=object) == "throttled")
+    # (and a centrifugal load switched on and off with an interval profile, which a drive may run at its demand)
+    control = a["speed_control"].to_numpy(dtype=object)
+    interval_profile = a["profile_id"].notna().to_numpy() & ~a["profile_id"].isin(list(duty_ids)).to_numpy()
+    read = (((control == "throttled") | ((control == "on_off") & interval_profile))
             & (a["load_type"].to_numpy(dtype=object) == "variable_torque"))
     record("static_head_frac", head_blank & read, head_default, "application default (common practice)")
     a["static_head_frac"] = np.where(head_blank, head_default, a["static_head_frac"].to_numpy(dtype=float))

@@ -1355,7 +1355,8 @@ class FinanceAssumptions:
         Years of equal lease payments after the lessor's purchase [yr] (``lease``).
     lease_buyout_frac : float
         Price at which the owner buys the equipment at the lease's end, a share of the lessor's purchase
-        [frac], 0-1 (``lease``; 0 for a nominal price).
+        [frac], 0-1 (``lease``); below 5 % with a profit tax it is warned: a lease with a nominal buyout is
+        usually taxed as a purchase on credit, which ``loan`` models.
     budget_per_yr : tuple of float
         Capital budget of plan years 0, 1, ... [currency]; empty = no capital limit.
     fiscal_year_start_month : int
@@ -1398,7 +1399,7 @@ class FinanceAssumptions:
     shared_savings_term_yr: int = 7
     lease_rate_frac: float = 0.07
     lease_term_yr: int = 5
-    lease_buyout_frac: float = 0.0
+    lease_buyout_frac: float = 0.1
     budget_per_yr: tuple[float, ...] = ()
     fiscal_year_start_month: int = 0
     monte_carlo_draws: int = 1000
@@ -1528,8 +1529,10 @@ def budget_year_names(purchase_date: str, start_month: int, n_years: int) -> lis
     -------
     list of str
         Calendar years (``start_month`` 1) as the year itself, ``"2027"``; other budget years as ``"FY"`` and the
-        calendar year they end in (common practice: the year from April 2027 to March 2028 is FY2028); [] when
-        ``start_month`` is 0.
+        calendar year they end in (common practice in many countries: the year from April 2027 to March 2028 is
+        FY2028; some name a year by the one it starts in); [] when ``start_month`` is 0 or there is no date. A plan
+        year runs from one anniversary of the purchase to the next and takes the name of the budget year it
+        starts in, the one its capital is spent in.
 
     Examples
     --------
@@ -1539,7 +1542,7 @@ def budget_year_names(purchase_date: str, start_month: int, n_years: int) -> lis
     (['2027', '2028'], [])
     """
     month = int(start_month)
-    if month == 0 or n_years <= 0:
+    if month == 0 or n_years <= 0 or len(str(purchase_date)) < 7:  # (no date: no name)
         return []
     year, bought_in = int(str(purchase_date)[:4]), int(str(purchase_date)[5:7])
     if month == 1:
@@ -1609,7 +1612,7 @@ FIELD_NOTES: dict[str, tuple[str, str]] = {
     "shared_savings_term_yr": ("yr", "the energy-service contract's length (shared_savings)"),
     "lease_rate_frac": ("frac/yr", "the lease's implicit nominal interest rate (lease)"),
     "lease_term_yr": ("yr", "years of equal lease payments after the lessor's purchase (lease)"),
-    "lease_buyout_frac": ("frac", "the owner's buyout price at the lease's end, a share of the purchase (lease)"),
+    "lease_buyout_frac": ("frac", "the owner's buyout price at the lease's end, a share of the amount leased (lease)"),
     "budget_per_yr": ("currency", "capital budget of each plan year (empty = no limit)"),
     "fiscal_year_start_month": ("-", "month the budget (fiscal) year starts in, to name the plan years by it (0 = none)"),
     "monte_carlo_draws": ("-", "number of Monte Carlo draws"),
@@ -1798,6 +1801,11 @@ def _check_assumptions(values: dict[str, Any], source: str, prefix: str) -> list
                    "lease": "the payments still owed and the buyout are counted as settled then",
                    "shared_savings": "the share is paid to the study period's end only"}[key.rsplit("_term_yr", 1)[0]],
                 "check the term against horizon_yr")
+    if (values["financing"] == "lease" and values["tax_rate_frac"] > 0.0
+            and math.isfinite(values["lease_buyout_frac"]) and values["lease_buyout_frac"] < 0.05):
+        odd("lease_buyout_frac", "a lease with a buyout below 5 % of the price is usually taxed as a purchase on "
+            "credit (the owner depreciating the equipment and deducting the interest only), not as the true lease "
+            "modelled here", "check the lease's tax treatment; financing = \"loan\" models a purchase on credit")
     if not 0 <= values["fiscal_year_start_month"] <= 12:
         bad("fiscal_year_start_month", "must be a month from 1 to 12, or 0 for none",
             "e.g. 4 for a budget year from April to March, 1 for calendar years")

@@ -13,12 +13,13 @@ project from its plan year) into the owner's flows under the finance assumptions
     residual value is counted then). With a real analysis (``rate_basis = "real"``) the draws are turned
     into money of their year and the fixed payments back into base-year money with the inflation rate.
 ``lease``
-    A lessor buys each project's first purchase (its capital that year, less the incentive, which the lessor
-    receives) and takes its tax depreciation, as the owner of the equipment during the lease. The owner pays
-    equal yearly payments over the term, the first a year after the purchase, that with the buyout price at
-    the end return the lessor's purchase at the lease's implicit rate [1]; the payments are an operating
-    expense, deducted from profit at the profit tax rate; at the end the owner buys the equipment at the
-    buyout price (its residual value at the end of the study period is then the owner's). Payments still owed
+    A lessor buys each project's first purchase (its capital that year) and receives its incentive and takes its
+    tax depreciation, as the owner of the equipment during the lease (a true lease for tax). The owner pays equal
+    yearly payments over the term, in arrears (the first a year after the purchase), that with the buyout price
+    at the end return the lessor's purchase less the incentive at the lease's implicit rate [1]; the payments
+    are an operating expense, deducted from profit at the profit tax rate; at the end the owner buys the
+    equipment at the buyout price, a share of that net amount (its residual value at the end of the study
+    period is then the owner's). Payments still owed
     and the buyout of a lease running past the study period are settled in its last year, discounted at the
     lease's rate. With a real analysis the purchase is in money of its year and the fixed payments are brought
     back to base-year money, as a loan's.
@@ -205,20 +206,22 @@ def _row(table: pd.DataFrame, names, width: int) -> np.ndarray:
 
 
 def _company(table: pd.DataFrame, savings: np.ndarray, share_frac: float, term_yr: int, tax_rate_frac: float,
-             depreciation_yr: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """One project's flows under a shared-savings contract, the owner's change: (capital the company pays,
-    the incentive and depreciation shield it keeps, the savings share it is paid)."""
+             depreciation_yr: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """One project's flows under a shared-savings contract (or a lease), the owner's change: (capital the company
+    pays, the incentive and depreciation shield it keeps, the savings share it is paid, the incentive it
+    receives)."""
     width = len(savings)
     capital = _row(table, CAPITAL_COMPONENTS, width)  # negative: money out
     spent = np.flatnonzero(capital < 0.0)
     zero = np.zeros(width)
     if not len(spent):
-        return zero, zero, zero
+        return zero, zero, zero, zero
     t0 = int(spent[0])
     paid = zero.copy()
     paid[t0] = -capital[t0]  # the company's purchase: money the owner no longer spends
-    kept = zero.copy()
-    kept[t0] -= _row(table, ("incentive",), width)[t0]
+    incentive = zero.copy()
+    incentive[t0] = _row(table, ("incentive",), width)[t0]
+    kept = -incentive.copy()
     if tax_rate_frac > 0.0:  # the depreciation of the company's purchase is the company's
         purchase = zero.copy()
         purchase[t0] = -capital[t0]
@@ -226,7 +229,7 @@ def _company(table: pd.DataFrame, savings: np.ndarray, share_frac: float, term_y
     end = t0 + int(term_yr)
     years = np.arange(width)
     share = np.where((years > t0) & (years <= end), share_frac, 0.0)
-    return paid, kept, -share * savings
+    return paid, kept, -share * savings, incentive
 
 
 def plan_financing(result) -> pd.DataFrame:
@@ -256,6 +259,7 @@ def plan_financing(result) -> pd.DataFrame:
     cash = np.zeros(width)
     capital = np.zeros(width)
     company = np.zeros((3, width))
+    incentive = np.zeros(width)
     kind = str(getattr(a, "financing", "cash"))
     for asset_id, option_id, start in zip(plan["asset_id"].astype(str), plan["option_id"].astype(str), starts):
         table, counted, savings = _table(result, asset_id, option_id)
@@ -267,6 +271,7 @@ def plan_financing(result) -> pd.DataFrame:
                              float(a.tax_rate_frac), int(a.depreciation_yr))
             for k in range(3):
                 company[k, start:start + horizon + 1] += parts[k]
+            incentive[start:start + horizon + 1] += parts[3]
     years = np.arange(width)
     zero = np.zeros(width)
     proceeds = repayment = shield = payment = payment_shield = buyout = zero
@@ -276,8 +281,9 @@ def plan_financing(result) -> pd.DataFrame:
                                                       float(a.loan_rate_frac), int(a.loan_term_yr), index)
         shield = float(a.tax_rate_frac) * interest
     elif kind == "lease":
-        payment, buyout = lease_schedule(company[0], float(a.lease_rate_frac), int(a.lease_term_yr),
-                                         float(a.lease_buyout_frac), index)
+        # the lessor finances its purchase less the incentive it receives
+        payment, buyout = lease_schedule(np.maximum(company[0] - incentive, 0.0), float(a.lease_rate_frac),
+                                         int(a.lease_term_yr), float(a.lease_buyout_frac), index)
         payment_shield = -float(a.tax_rate_frac) * payment
     financed = cash + proceeds + repayment + shield + company.sum(axis=0) + payment + payment_shield + buyout
     d = float(a.discount_rate_frac)
@@ -348,9 +354,10 @@ def financing_text(assumptions, summary: dict[str, float], currency: str) -> str
         how = (f"With {pct(assumptions.loan_share_frac)} of the capital borrowed at {pct(assumptions.loan_rate_frac)} "
                f"a year (nominal) and repaid over {int(assumptions.loan_term_yr)} years")
     elif kind == "lease":
+        buyout = float(assumptions.lease_buyout_frac)
         how = (f"With each project's first purchase leased over {int(assumptions.lease_term_yr)} years at "
-               f"{pct(assumptions.lease_rate_frac)} a year (nominal) and bought out at "
-               f"{pct(assumptions.lease_buyout_frac)} of its price")
+               f"{pct(assumptions.lease_rate_frac)} a year (nominal) and bought out "
+               + (f"at {pct(buyout)} of its price" if buyout > 0.0 else "for a nominal price"))
     else:
         how = (f"With an energy-service company paying each project's first purchase against "
                f"{pct(assumptions.shared_savings_share_frac)} of its savings for "

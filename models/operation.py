@@ -63,9 +63,9 @@ ON_OFF_RUNNING_EXPONENTS = {"variable_torque": 3.0, "constant_torque": 1.0}
 #: below the flow it gives, a drive on a load switched on and off cycles at that speed (:func:`_on_off_on_a_drive`).
 MIN_DRIVE_SPEED_FRAC = 0.3
 #: The caution of a drive option that runs a pump switched on and off continuously at the inflow.
-ON_OFF_DRIVE_TEXT = ("a level or pressure controller in place of the switches: the drive runs the pump at the inflow "
-                     "(cycling below its minimum speed); check the velocity that keeps solids moving in the sump and "
-                     "the rising main, and the pump's minimum continuous flow")
+ON_OFF_DRIVE_TEXT = ("a level or pressure controller in place of the switches: the drive runs the pump or fan at the "
+                     "demand (cycling below its minimum speed); check the velocity that keeps solids moving in a sump "
+                     "and its rising main, and the pump's minimum continuous flow")
 #: A new premium motor's rated slip relative to the old one scales with its losses, within these bounds
 #: (rotor copper loss = slip x air-gap power; common practice).
 SLIP_SCALING_BOUNDS = (0.6, 1.0)
@@ -773,8 +773,11 @@ def _line_start_pm(arr, load: _Load, option: Mapping) -> _Point:
     inertia, start_torque = (np.array([START_DUTY_SCREEN.get(d, START_DUTY_SCREEN["normal"])[k] for d in arr["start_duty"]])
                              for k in (0, 1))
     screen = synchronous.lspm_starting_screen(inertia, start_torque, screen_starts_per_hour(arr), SCREEN_VOLTAGE_DIP_FRAC)
+    given = np.isfinite(np.asarray(arr.get("starts_per_hour", np.full(len(rated), np.nan)), dtype=float))
     for i in np.flatnonzero(np.asarray(screen.status) != "ok"):
-        flags.append((int(i), f"line-start screen: {screen.status[i]} ({screen.reasons[i]})"))
+        assumed = ("; the starts are assumed (give starts_per_hour)" if np.asarray(screen.frequent_starts)[i] and not given[i]
+                   else "")
+        flags.append((int(i), f"line-start screen: {screen.status[i]} ({screen.reasons[i]}{assumed})"))
     loss = pt.p_in_kw - shaft_eval if scale is None else p_in - shaft
     return _Point(p, np.where(run, pt.q_kvar, 0.0), shaft, np.where(run, speed, 0.0),
                   np.where(run, loss, 0.0), _zeros(p.shape), _zeros(p.shape), flags)
@@ -901,8 +904,9 @@ def capacitor_size_kvar(existing: induction.InductionParams, target_power_factor
 @numba.njit(nogil=True, cache=True)
 def _capacitor_sums(p0, q0, rows, q_cap, lag, lead):  # pragma: no cover - compiled
     """Sums over the steps of :func:`capacitor_rows_kvar`'s rows ``rows`` (banks ``q_cap``), lagging into ``lag`` and
-    leading into ``lead`` [kVAr x steps]: as numpy's ``np.maximum(q, 0).sum(axis=1)`` and ``np.maximum(-q, 0)``'s,
-    summed in step order."""
+    leading into ``lead`` [kVAr x steps]: the values of numpy's ``np.maximum(q, 0).sum(axis=1)`` and
+    ``np.maximum(-q, 0)``'s, summed in step order (so not always the same last bits as numpy's pairwise sums);
+    today's rows hold no NaN (a NaN step would be left out here, not carried)."""
     for k in range(len(rows)):
         i = rows[k]
         c = q_cap[k]
@@ -1708,9 +1712,12 @@ def _operate_block(case, index: pd.DatetimeIndex, rows: np.ndarray, site_totals=
             run(0, option_rows[0], kind, rows_, np.arange(len(rows_)), arr, existing, load)
             running_h[rows_] = grids[kind][0].hours_h.sum(axis=1) if kind in grids else load.weight_running()[1]
             if load.on_kw is not None and not power_only:
-                # an on/off asset runs a share of each interval: its hours are its shaft energy at its running load
+                # an on/off asset runs the share min(P / P_on, 1) of each interval it runs in
                 cyc = np.flatnonzero(np.isfinite(load.on_kw[:, 0]) & (load.on_kw[:, 0] > 0.0))
-                running_h[rows_[cyc]] = np.minimum(shaft_energy[rows_[cyc], 0] / load.on_kw[cyc, 0], running_h[rows_[cyc]])
+                if len(cyc):
+                    on_kw = load.on_kw[cyc]
+                    shares = np.minimum(load.p_ref_kw[cyc] / on_kw, 1.0)
+                    running_h[rows_[cyc]] = np.where(load.running[cyc], shares, 0.0).sum(axis=1) * interval_h
     if today is not None:  # the same block's first pass: the same numbers
         p_kw[0], q_kvar[0] = today.p_kw, today.q_kvar
         energy[:, 0], shaft_energy[:, 0], losses[:, 0] = today.energy_kwh, today.shaft_energy_kwh, today.losses_kwh
@@ -2702,7 +2709,9 @@ def performance_curves(case, asset_id: str, load_frac=None) -> pd.DataFrame:
     ok[:, 0] = True
     arr = _take(asset_arrays(a), pos)
     existing = existing_motor(arr)
-    load = _reference_load(arr, existing, load_frac[None, :], np.zeros(1, dtype=bool), np.ones((1, len(load_frac))))
+    # (each point a load the motor runs at, not an interval's mean: an on/off motor's curve is its running one)
+    load = _reference_load(arr, existing, load_frac[None, :], np.zeros(1, dtype=bool), np.ones((1, len(load_frac))),
+                           intervals=False)
     # the design (valve-open) power is the asset's own, from its profile or duty, as in the yearly run; the
     # loads asked for here are only where the curves are drawn (they must not move the design point)
     load.p_design_kw = _design_shaft_kw(case, a.iloc[pos].reset_index(drop=True), arr, existing)

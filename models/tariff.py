@@ -43,6 +43,7 @@ __all__ = [
     "PeriodRule",
     "PowerFactorAdjustment",
     "PowerFactorBand",
+    "ReactivePriceBand",
     "ReactiveCharge",
     "ReactiveDemandCharge",
     "Season",

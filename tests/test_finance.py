@@ -567,7 +567,6 @@ def test_one_number_for_the_budgets_is_read_as_one_plan_year_and_said_so():
     assert not [p for p in problems if p.column == "budget_per_yr"]
 
 
-
 def test_plan_years_are_named_by_the_budget_year_they_fall_in():
     # hand calculation (docs/finance.md, fiscal_year_start_month): a budget year from April, named by the calendar
     # year it ends in (common practice); plan year 0 holds the purchase date. Bought on 15 June 2027: the year from
@@ -580,7 +579,7 @@ def test_plan_years_are_named_by_the_budget_year_they_fall_in():
     assert budget_year_names("2027-04-01", 4, 1) == ["FY2028"]
     assert budget_year_names("2027-09-30", 10, 1) == ["FY2027"] and budget_year_names("2027-10-01", 10, 1) == ["FY2028"]
     assert budget_year_names("2027-06-15", 1, 2) == ["2027", "2028"]
-    assert budget_year_names("2027-06-15", 0, 2) == []
+    assert budget_year_names("2027-06-15", 0, 2) == [] and budget_year_names("", 4, 2) == []
     ok, problems = FinanceAssumptions.from_dict({"fiscal_year_start_month": 4}, "finance.toml")
     assert ok is not None and ok.fiscal_year_start_month == 4 and not problems
     got, problems = FinanceAssumptions.from_dict({"fiscal_year_start_month": 13}, "finance.toml")

@@ -171,6 +171,29 @@ def test_a_lease_on_the_one_motor_case(one):
     assert "The lease payments are owed whatever the savings turn out to be." in text
 
 
+def test_a_lease_finances_the_purchase_less_the_incentive_the_lessor_receives(one):
+    # 20 % of the first purchase's capital as an incentive, received by the lessor: the lease's payments return
+    # C - I at its rate, with the buyout a share of C - I (case F5's rule); a nominal analysis here (nothing deflated)
+    result = _run(one, financing="lease", lease_rate_frac=0.07, lease_term_yr=4, lease_buyout_frac=0.1,
+                  incentive_capital_share_frac=0.2, rate_basis="nominal", inflation_frac=0.0)
+    table = plan_financing(result)
+    capital = float(table["company_capital"].iloc[0])
+    kept = -float(table["company_incentive_and_depreciation"].iloc[0])
+    assert_allclose(kept, 0.2 * capital, rtol=1e-9)
+    net = capital - kept
+    assert_allclose(-table["lease_payment"].iloc[1:5], npf.pmt(0.07, 4, -net, 0.1 * net), rtol=1e-12)  # reference
+    assert_allclose(-table["lease_buyout"].iloc[4], 0.1 * net, rtol=1e-12)
+
+
+def test_a_nominal_buyout_under_a_profit_tax_is_warned():
+    # a lease bought out for (almost) nothing is usually taxed as a purchase on credit, which a loan models
+    got, problems = FinanceAssumptions.from_dict({"financing": "lease", "lease_buyout_frac": 0.0, "tax_rate_frac": 0.25},
+                                                 "finance.toml")
+    assert got is not None and [p.column for p in problems if p.severity == "warning"] == ["lease_buyout_frac"]
+    _, problems = FinanceAssumptions.from_dict({"financing": "lease", "lease_buyout_frac": 0.0}, "finance.toml")
+    assert problems == []
+
+
 def _contract(one, share_frac: float, term_yr: int):
     """The one-motor plan under an energy-service contract, 25 % profit tax, 5-year depreciation: the financed
     table and the plan project's flow table (component x year)."""

@@ -649,6 +649,9 @@ def test_the_line_start_screen_counts_an_on_off_motors_starts(tmp_path, control,
     flags = operate(case).flags
     screen = flags[(flags["option_id"] == "lspm") & flags["flag"].str.startswith("line-start screen")]
     assert screen["flag"].str.contains("more than 6 starts per hour").any() == frequent
+    # an assumed number of starts is said to be one
+    assert screen["flag"].str.contains("the starts are assumed (give starts_per_hour)", regex=False).any() == (
+        frequent and not starts)
 
 
 def test_a_drive_runs_an_on_off_pump_at_the_inflow_where_that_takes_less(tmp_path):
@@ -683,6 +686,57 @@ def test_a_blank_static_head_is_warned_for_a_pump_switched_on_and_off(tmp_path):
     # what a drive saves on such a pump depends most on its static head (docs/case-format.md, static_head_frac)
     _, problems = load_case(_sump_case(tmp_path / "c", "on_off", [80, 40, 20]))
     said = [str(p) for p in problems if p.column == "static_head_frac" and p.severity == "warning"]
-    assert len(said) == 1 and "blank for 1 pump or fan switched on and off (P9)" in said[0]
+    assert len(said) == 1 and "blank for 1 centrifugal load switched on and off (P9)" in said[0]
     _, problems = load_case(_sump_case(tmp_path / "d", "on_off", [80, 40, 20], static_head="0.8"))
     assert not [p for p in problems if p.column == "static_head_frac"]
+
+
+def test_an_on_off_motor_s_curves_are_its_running_ones(tmp_path):
+    # the efficiency and power-factor curves of a motor switched on and off are those of the same motor running at
+    # each load (each point a load it runs at, not an interval's mean); an option that turns it faster draws the
+    # same per cent more while it runs, for less time, so its curve's kW (an hour's mean) differ, its efficiency
+    # and power factor do not
+    cycled = performance_curves(load_case(_sump_case(tmp_path / "a", "on_off", [80, 40, 20]))[0], "P9")
+    steady = performance_curves(load_case(_sump_case(tmp_path / "b", "fixed", [80, 40, 20]))[0], "P9")
+    assert list(cycled["option_id"]) == list(steady["option_id"]) and len(steady) > 50
+    keep = steady["option_id"] == "keep"
+    numeric = ["load_frac", "shaft_p_kw", "p_in_kw", "q_kvar", "efficiency_frac", "power_factor"]
+    assert_allclose(cycled.loc[keep, numeric].to_numpy(dtype=float), steady.loc[keep, numeric].to_numpy(dtype=float),
+                    rtol=1e-12)
+    assert_allclose(cycled[["efficiency_frac", "power_factor"]].to_numpy(dtype=float),
+                    steady[["efficiency_frac", "power_factor"]].to_numpy(dtype=float), rtol=1e-9)
+
+
+def test_an_on_off_motor_s_running_hours_with_a_running_load_below_some_means(tmp_path):
+    # running load 60 %, hourly means 80, 40, 20 %: the first hour is run throughout (its mean above the running
+    # load), the others 40/60 and 20/60 of the hour: 2 h in 3, 5,840 h a year (hand calculation)
+    r = operate(load_case(_sump_case(tmp_path / "c", "on_off", [80, 40, 20], running_load_pct="60"))[0])
+    assert_allclose(r.running_h[0], 8760.0 * 2.0 / 3.0, rtol=1e-9)
+
+
+def test_a_blank_static_head_of_an_on_off_pump_is_a_defaulted_field(tmp_path):
+    # read by a drive option on it, so logged with the other defaults (data quality, the decision record)
+    case, _ = load_case(_sump_case(tmp_path / "c", "on_off", [80, 40, 20]))
+    logged = case.defaults
+    assert ((logged["asset_id"] == "P9") & (logged["column"] == "static_head_frac")).any()
+    case, _ = load_case(_sump_case(tmp_path / "d", "fixed", [80, 40, 20]))
+    assert not ((case.defaults["asset_id"] == "P9") & (case.defaults["column"] == "static_head_frac")).any()
+
+
+
+def test_a_capacitor_s_kvarh_sums_are_numpy_s():
+    # the compiled sums of a terminal capacitor's rows (lagging and leading, a sign change within the rows, stopped
+    # steps) against numpy's own sums of capacitor_rows_kvar's rows (the reference)
+    from models import operation
+
+    rng = np.random.default_rng(3)
+    p0 = np.where(rng.random((5, 200)) < 0.2, 0.0, rng.uniform(5.0, 50.0, (5, 200)))
+    q0 = rng.uniform(-5.0, 40.0, (5, 200))
+    rows = np.array([4, 0, 2])
+    q_cap = np.array([10.0, 25.0, 0.0])
+    lag, lead = np.empty(3), np.empty(3)
+    operation._capacitor_sums(p0, q0, rows, q_cap, lag, lead)
+    q = operation.capacitor_rows_kvar(p0[rows], q0[rows], q_cap)
+    assert_allclose(lag, np.maximum(q, 0.0).sum(axis=1), rtol=1e-12)
+    assert_allclose(lead, np.maximum(-q, 0.0).sum(axis=1), rtol=1e-12)
+    assert (lead > 0).all() and (lag > 0).all()

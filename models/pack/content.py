@@ -1040,8 +1040,9 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
             "The lender's terms decide the owner's view (section 5); the plan and its metrics are on the cash basis.")
     elif str(getattr(a, "financing", "cash")) == "lease":
         add("assumption", "Financing", f"lease: each first purchase over {int(a.lease_term_yr)} years at "
-            f"{percent_text(a.lease_rate_frac)} a year (nominal), bought out at {percent_text(a.lease_buyout_frac)} of "
-            "its price", "all",
+            f"{percent_text(a.lease_rate_frac)} a year (nominal), bought out "
+            + (f"at {percent_text(a.lease_buyout_frac)} of its price" if a.lease_buyout_frac > 0 else "for a nominal price"),
+            "all",
             "The lessor's terms (the rate, the buyout, who claims the incentive and the depreciation, the lease's "
             "treatment in the accounts) decide the owner's view (section 5); the plan and its metrics are on the "
             "cash basis.")
@@ -1319,7 +1320,6 @@ def rate_text(value: float, status: str = "unique") -> str:
     return text + " (several)" if status == "multiple" else text
 
 
-#: How the pack counts a plan's capital by plan year, in words.
 def plan_year_names(case, result, n_years: int) -> list[str]:
     """The budget (fiscal) year of each of plan years 0 .. n_years - 1 (:func:`models.finance.budget_year_names` on
     the case's purchase date and the assumptions' ``fiscal_year_start_month``), [] when the case names none."""
@@ -1339,6 +1339,7 @@ def plan_year_text(year, names: list[str]) -> str:
     return f"{y} ({names[y]})" if 0 <= y < len(names) else str(y)
 
 
+#: How the pack counts a plan's capital by plan year, in words.
 PLAN_SPEND_TEXT = ("Capital is counted in the plan year it is spent, as the budgets count it: a motor replaced when "
                    "it fails is bought in the year it is expected to fail; \"later\" is what is spent after the "
                    "budgeted years (replacements at failure, repeat purchases within the horizon).")
