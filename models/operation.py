@@ -1038,7 +1038,9 @@ def _on_off_on_a_drive(arr, run_load: _Load, on: np.ndarray, share: np.ndarray):
     :func:`models.loads.speed_controlled_shaft_frac`, which take the pump's efficiency off its best point into
     account). Below the flow q_min at :data:`MIN_DRIVE_SPEED_FRAC` the drive cycles the load at q_min for d / q_min
     of the interval. The drive does so where that shaft energy, (d / q) f(q) with q = max(d, q_min), is below
-    the d of cycling at full speed (a static-head system may gain nothing). Sets ``run_load.controlled`` (the shaft
+    the d of cycling at full speed (a static-head system may gain nothing): the choice weighs shaft energy only (the
+    drive is in circuit either way; the motor's and the drive's part-speed losses, a few per cent, may tip a case
+    near the break-even the other way). Sets ``run_load.controlled`` (the shaft
     power while running and the speed fraction) and returns (where the drive sets the flow (n, m), the share of each
     interval it runs), or None where it never does.
 

@@ -485,3 +485,25 @@ def test_the_environment_a_nanny_changed_is_put_back(monkeypatch):
     engine.restore_environment(given)
     assert os.environ["OMP_NUM_THREADS"] == "7" and "MALLOC_TRIM_THRESHOLD_" not in os.environ
     assert os.environ["SOMETHING_ELSE"] == "kept"
+
+
+def test_on_off_motors_give_the_same_files(fleet, cluster):
+    # pumps and fans switched on and off (read at their running load, their banks evaluated as options, a drive
+    # running them at their demand) give the local engine's files on the cluster, with every option's rows kept
+    # or recomputed where asked for
+    assets = fleet.assets.copy()
+    centrifugal = np.flatnonzero(assets["load_type"].to_numpy(dtype=object) == "variable_torque")
+    assert len(centrifugal) >= 3
+    control = assets["speed_control"].to_numpy(dtype=object).copy()
+    control[centrifugal] = "on_off"
+    assets["speed_control"] = control
+    running = np.full(len(assets), np.nan)
+    running[centrifugal[0]] = 95.0
+    assets["running_load_pct"] = running
+    cycled = replace(fleet, assets=assets)
+    local = scenario.run(cycled, cycled.finance, with_risk=False)
+    assert (local.results["technology"] == "add_drive").any()
+    for dense in (True, False):
+        remote = run_distributed(cycled, cycled.finance, scheduler=cluster.scheduler_address, with_risk=False,
+                                 dense=dense)
+        _assert_same_files(local, remote)
