@@ -1448,6 +1448,16 @@ def _near_id_hint(value: object, known: set[str] | None, otherwise: str) -> str:
     return otherwise
 
 
+def _few_ids(asset_ids) -> tuple[list[str], str]:
+    """Asset ids in order, and the first five of them in words for a warning of the whole file.
+
+    >>> _few_ids(["P3", "P1"])[1], _few_ids([f"M{k}" for k in range(7)])[1]
+    ('P1, P3', 'M0, M1, M2, M3, M4 and 2 more')
+    """
+    ids = sorted(str(x) for x in asset_ids)
+    return ids, ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+
+
 def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids: set[str], duty_ids: set[str],
                   profiles: dict[str, pd.Series], this_year: int, rejected_profiles: set[str] | None = frozenset(),
                   duty_readable: bool = True) -> None:
@@ -1516,8 +1526,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     throttled = ((a["speed_control"].to_numpy(dtype=object) == "throttled")
                  & np.isin(a["application"].to_numpy(dtype=object), ["pump", "fan"]) & np.isnan(static))
     if throttled.any():
-        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[throttled])  # whatever the row order
-        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        ids, named = _few_ids(a["asset_id"].to_numpy(dtype=object)[throttled])  # whatever the row order
         checker.warn(None, "static_head_frac", None,
                      f"static_head_frac is blank for {counted(len(ids), 'throttled pump or fan', 'throttled pumps and fans')} "
                      f"({named}): the application "
@@ -1534,8 +1543,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     given = a["profile_id"].notna().to_numpy() & ~a["profile_id"].isin(list(duty_ids)).to_numpy()
     cycled = (a["speed_control"].to_numpy(dtype=object) == "on_off") & centrifugal & given & np.isnan(static)
     if cycled.any():
-        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[cycled])
-        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        ids, named = _few_ids(a["asset_id"].to_numpy(dtype=object)[cycled])
         checker.warn(None, "static_head_frac", None,
                      f"static_head_frac is blank for {counted(len(ids), 'centrifugal load switched on and off', 'centrifugal loads switched on and off')} "
                      f"({named}): the application default is used "
@@ -1562,8 +1570,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
     synchronous_today = np.isin(machine, ["wound_field_synchronous", "pm_synchronous"])
     if synchronous_today.any():
         # today's machine is modelled by the induction-motor model whatever its type: say what that gets wrong
-        ids = sorted(str(x) for x in a["asset_id"].to_numpy(dtype=object)[synchronous_today])
-        named = ", ".join(ids[:5]) + (f" and {len(ids) - 5} more" if len(ids) > 5 else "")
+        ids, named = _few_ids(a["asset_id"].to_numpy(dtype=object)[synchronous_today])
         verb = "is a synchronous machine" if len(ids) == 1 else "are synchronous machines"
         checker.warn(None, "machine_type", None,
                      f"{counted(len(ids), 'motor')} of today's fleet {verb} ({named}), modelled with an induction "

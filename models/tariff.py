@@ -1243,7 +1243,6 @@ _DEMAND_KEYS = (
 _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
 _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons",
                   "price_by_power_factor")
-_REACTIVE_BAND_KEYS = ("below", "price_per_kvarh")
 _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
 _TAX_KEYS = ("name", "rate_pct", "base")
 _COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
@@ -2067,43 +2066,33 @@ def _allowance(r: _Reader, e: dict, path: str, *, required: bool, ratio_key: str
 
 
 def _reactive_price_bands(r: _Reader, e: dict, path: str) -> tuple[ReactivePriceBand, ...] | None:
-    """Read a reactive clause's ``price_by_power_factor`` list: every wrong band is reported with its place in
-    the list; None when any is wrong, () when there is none."""
-    key = "price_by_power_factor"
-    full = f"{path}.{key}"
-    raw = e.get(key, [])
-    if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
-        r.err(full, raw, "expected a list of bands", f"e.g. {key} = [{{ below = 0.8, price_per_kvarh = 0.06 }}]")
-        return None
-    bands, bad = [], False
-    for j, band in enumerate(raw, start=1):
-        at = f"{full}[{j}]"
-        r.known(band, _REACTIVE_BAND_KEYS, at)
-        pf = r.get(band, "below", at, "number")
-        price = r.get(band, "price_per_kvarh", at, "number")
-        if pf is None or price is None:
-            bad = True
-        else:
-            bands.append(ReactivePriceBand(pf, price))
-    return None if bad else tuple(bands)
+    """Read a reactive clause's ``price_by_power_factor`` list (:func:`_band_list`); () when there is none."""
+    return _band_list(r, e, path, "price_by_power_factor", "below", "price_per_kvarh", ReactivePriceBand, (0.8, 0.06))
 
 
 def _power_factor_bands(r: _Reader, e: dict, path: str, key: str, edge: str) -> tuple[PowerFactorBand, ...] | None:
-    """Read a power-factor clause's ``penalty`` or ``rebate`` list (``edge``: ``below`` or ``above``): every
-    wrong band is reported with its place in the list; None when any is wrong."""
+    """Read a power-factor clause's ``penalty`` or ``rebate`` list (``edge``: ``below`` or ``above``,
+    :func:`_band_list`)."""
+    return _band_list(r, e, path, key, edge, "percent_per_point", PowerFactorBand, (0.95, 0.5))
+
+
+def _band_list(r: _Reader, e: dict, path: str, key: str, edge: str, value_key: str, make, example: tuple[float, float]):
+    """Read a list of bands ``{ <edge> = PF, <value_key> = number }`` under ``key``, each made by ``make(PF, number)``:
+    every wrong band is reported with its place in the list; None when any is wrong, () when there is none."""
     full = f"{path}.{key}"
     raw = e.get(key, [])
     if not isinstance(raw, list) or not all(isinstance(x, dict) for x in raw):
-        r.err(full, raw, "expected a list of bands", f"e.g. {key} = [{{ {edge} = 0.95, percent_per_point = 0.5 }}]")
+        r.err(full, raw, "expected a list of bands",
+              f"e.g. {key} = [{{ {edge} = {example[0]:g}, {value_key} = {example[1]:g} }}]")
         return None
     bands, bad = [], False
     for j, band in enumerate(raw, start=1):
         at = f"{full}[{j}]"
-        r.known(band, (edge, "percent_per_point"), at)
+        r.known(band, (edge, value_key), at)
         pf = r.get(band, edge, at, "number")
-        pct = r.get(band, "percent_per_point", at, "number")
-        if pf is None or pct is None:
+        value = r.get(band, value_key, at, "number")
+        if pf is None or value is None:
             bad = True
         else:
-            bands.append(PowerFactorBand(pf, pct))
+            bands.append(make(pf, value))
     return None if bad else tuple(bands)
