@@ -1131,3 +1131,13 @@ def test_the_plan_table_names_each_plan_year_by_its_budget_year(small, tmp_path)
     assert ws.cell(header, 10).value == "Budget year"
     assert [ws.cell(header + k, 10).value for k in (1, 2)] == ["FY2028", "FY2029"]
     assert [ws.cell(header + k, 1).value for k in (1, 2)] == [0, 1]  # (the plan years the sheet's formulas count by)
+    # the financing tables too (a loan here)
+    loan = scenario.economics(dated, result.physics, dataclasses.replace(named.assumptions, financing="loan"),
+                              with_risk=False)
+    ctx = report_context(dated, loan, content.select_scope(dated, loan, None, True), [])
+    assert [[c["text"] for c in r["cells"]][0] for r in ctx["financed_rows"]][:2] == ["0 (FY2028)", "1 (FY2029)"]
+    write_pack(dated, loan, tmp_path / "loan")
+    ws = load_workbook(tmp_path / "loan" / WORKBOOK_NAME)["Financing"]
+    last = ws.max_column
+    assert ws.cell(5, last).value == "Budget year" and [ws.cell(6 + k, last).value for k in (0, 1)] == ["FY2028", "FY2029"]
+    assert [ws.cell(6 + k, 1).value for k in (0, 1)] == [0, 1]

@@ -86,8 +86,9 @@ def _option_rows(frame: pd.DataFrame, cur: str, horizon: int, recommended: set[s
     return rows
 
 
-def _financed_context(result, financed, cur: str) -> dict[str, Any]:
-    """The report's table of the plan's flows to the owner under its financing (empty for cash)."""
+def _financed_context(result, financed, cur: str, names: list[str] | None = None) -> dict[str, Any]:
+    """The report's table of the plan's flows to the owner under its financing (empty for cash); ``names`` the
+    budget year of each plan year, where the case names them."""
     if financed is None:
         return {"financed_headers": [], "financed_rows": [], "financed_numeric": (), "financed_note": ""}
     kind = str(result.assumptions.financing)
@@ -103,7 +104,7 @@ def _financed_context(result, financed, cur: str) -> dict[str, Any]:
                ("company_savings_share", "Savings share paid to it, after tax")))
     headers = ["Plan year", f"Cash net [{cur}]"] + [f"{t} [{cur}]" for _, t in parts] + [
         f"Financed net [{cur}]", f"Cumulative financed [{cur}]"]
-    rows = [row([cell(int(r["year"]), "num"), num(r["cash_net"])] + [num(r[k]) for k, _ in parts]
+    rows = [row([cell(content.plan_year_text(r["year"], names or []), "num"), num(r["cash_net"])] + [num(r[k]) for k, _ in parts]
                 + [num(r["financed_net"]), num(r["cumulative_financed"])])
             for r in financed.to_dict("records")]
     note = ("Repayments are the loan's equal yearly payments, in base-year money where the analysis is real; a "
@@ -444,7 +445,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                          f"Cumulative discounted [{cur}]"], "flow_rows": flow_rows,
         "flow_note": flow_note,
         "flow_numeric": (0, 1, 2, 3, 4),
-        **_financed_context(result, financed, cur),
+        **_financed_context(result, financed, cur,
+                            content.plan_year_names(case, result, len(financed)) if financed is not None else None),
         "tornado_note": content.tornado_text(unc), "plan_npv_note": content.plan_npv_text(unc, cur),
         "mc_headers": mc_headers, "mc_rows": mc_rows, "mc_note": content.monte_carlo_text(unc),
         "mc_numeric": tuple(range(1, len(mc_headers))),

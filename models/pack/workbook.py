@@ -871,9 +871,16 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16, 10: 12})
 
 
-def _financing(ws: Worksheet, result, f: _Formats) -> None:
+def _financing_years(result) -> int:
+    """Rows of the Financing sheet (plan years 0 .. the horizon after the last plan start)."""
+    starts = result.plan["start_yr"].astype(int) if len(result.plan) else [0]
+    return int(result.assumptions.horizon_yr) + int(max(starts)) + 1
+
+
+def _financing(ws: Worksheet, result, f: _Formats, names: list[str] | None = None) -> None:
     """The exact plan's yearly flows to the owner, in cash and under the case's financing
-    (:func:`models.financing.plan_financing`); the financed net and its running sum are formulas of the row."""
+    (:func:`models.financing.plan_financing`); the financed net and its running sum are formulas of the row;
+    ``names`` the budget year of each plan year, in a column of their own where the case names them."""
     from models.financing import plan_financing, plan_financing_words
 
     _title(ws, "The exact plan's cash flows to the owner, in cash and under the case's financing")
@@ -896,7 +903,7 @@ def _financing(ws: Worksheet, result, f: _Formats) -> None:
             ("lease_buyout", "Lease buyout")]
     row = 5
     _header(ws, row, ["Plan year"] + [f"{h} [{f.currency}]" for _, h in cols]
-            + [f"Financed net [{f.currency}]", f"Cumulative financed [{f.currency}]"])
+            + [f"Financed net [{f.currency}]", f"Cumulative financed [{f.currency}]"] + (["Budget year"] if names else []))
     last = get_column_letter(1 + len(cols))
     net_col, cum_col = 2 + len(cols), 3 + len(cols)
     total = 0.0
@@ -909,6 +916,8 @@ def _financing(ws: Worksheet, result, f: _Formats) -> None:
         put_formula(ws, row, net_col, f"=SUM(B{row}:{last}{row})", f.money, float(r["financed_net"]))
         net = get_column_letter(net_col)
         put_formula(ws, row, cum_col, f"=SUM({net}$6:{net}{row})", f.money, total)
+        if names and int(r["year"]) < len(names):
+            put_text(ws, row, cum_col + 1, names[int(r["year"])])
     ws.freeze_panes = "B6"
     _widths(ws, {1: 10, **{c: 16 for c in range(2, cum_col + 1)}})
 
@@ -1202,7 +1211,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
     _plan(sheets["Plan"], result, scope, refs, f, blocks, names=content.plan_year_names(case, result, _plan_years(result)))
-    _financing(sheets["Financing"], result, f)
+    _financing(sheets["Financing"], result, f, names=content.plan_year_names(case, result, _financing_years(result)))
     _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)
