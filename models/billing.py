@@ -1091,6 +1091,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
 
     for kind, r, scope, months, at in clauses:
         bands = getattr(r, "price_bands", ())
+        banded = []  # a line item per price band (netted per period or month only)
         if r.allowance_per == "interval":
             qty = cells[at[0]].sum(axis=2)
         else:
@@ -1100,7 +1101,6 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
             if r.allowance_per != "period":  # the month is the netting unit: one cell of its own
                 kv, kw = kv.sum(axis=2, keepdims=True), kw.sum(axis=2, keepdims=True)
             excess = np.maximum(kv - r.free_kvarh_per_kwh * kw, 0.0)
-            banded = []
             if bands:  # each unit's whole excess at the price of its power factor's band, a line item per band
                 tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands])
                 for j, b in sorted(enumerate(bands, start=1), key=lambda jb: -jb[1].below_power_factor):
@@ -1111,8 +1111,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
             qty = excess.sum(axis=2)
         flag = (qty > 0.0) if kind == "leading" and r.banned else no_flag
         items.append(_Item(f"{kind}:{r.name}", kind, "kVArh", np.full(n_m, r.price_per_kvarh), qty, months, flag))
-        if r.allowance_per != "interval":
-            items.extend(banded)
+        items.extend(banded)
 
     if energy_pf:  # a percentage of the month's charges before taxes: priced once every other charge is
         charges = {base: sum(np.where(it.applies, it.amount, 0.0) for it in items if it.category in cats)

@@ -98,6 +98,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
            and not math.isnan(installed) else None)
     defaulted = content.scope_defaults(case, (asset_id,))
     filled = set(defaulted["column"])
+    area = str(x.get("hazardous_area", "none") or "none")  # (a classified area only: none, or blank, says nothing)
     plate = [
         ("Rated power", "rated_p_kw", _value(float(x["rated_p_kw"]), "{:,.1f} kW") if power_label(s.power_unit) == "kW"
          else _value(float(rating_in_unit(float(x["rated_p_kw"]), "hp")), "{:,.1f} hp") + f" ({float(x['rated_p_kw']):,.1f} kW)"),
@@ -113,8 +114,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         ("Application", "application", _value(x["application"])),
         ("Speed control", "speed_control", _value(x["speed_control"])),
         ("Criticality", "criticality", _value(x["criticality"])),
-        *([("Hazardous area", "hazardous_area", str(x["hazardous_area"]).replace("_", " "))]
-          if str(x.get("hazardous_area", "none") or "none") not in ("none", "nan") else []),
+        *([("Hazardous area", "hazardous_area", area.replace("_", " "))] if area not in ("none", "nan") else []),
         *([("State", "failed", "failed, out of service")] if failed else []),
         ("Running hours", "operating_h_per_yr", _value(float(res["running_h_per_yr"].iloc[0]), "{:,.0f} h/yr")),
         ("Data quality", "", _value(x["data_quality_pct"], "{:.0f} %") + _defaulted_words(defaulted["column"])),
@@ -303,7 +303,6 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not is_keep:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
-    area = str(x.get("hazardous_area", "none") or "none")
     if is_keep and area not in ("none", "nan"):  # kept as it is, the motor stays in its area: its Ex care goes on
         cautions.append(f"hazardous area ({area.replace('_', ' ')}): a motor kept in service there keeps its "
                         "inspections under IEC 60079-17 by a competent person, and any repair is done to "

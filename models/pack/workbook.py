@@ -726,16 +726,10 @@ def _plan_npv_formula(block: dict, share: float | None, tax_rate_frac: float = 0
     return expr + (f"-{kept}*({'+'.join(present)})" if present else "")
 
 
-def _plan_years(result) -> int:
-    """Plan years the Plan sheet's table by year covers (to the last start of either plan or the last budget)."""
-    years = (set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int))
-             | set(range(len(result.assumptions.budget_per_yr))))
-    return (max(years) + 1) if years else 0
-
-
 def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: _Formats,
-          blocks: list[dict] | None = None, names: list[str] | None = None) -> None:
-    """The Plan sheet; ``names`` the budget year of each plan year (a column of its own beside the table by year)."""
+          blocks: list[dict] | None = None, case=None) -> None:
+    """The Plan sheet; with ``case``, the budget year of each plan year where it names them
+    (:func:`models.pack.content.plan_year_names`, a column of its own beside the table by year)."""
     _title(ws, "Fleet plan by year: exact (integer programme) and rank-order (by profitability index)")
     put_text(ws, 2, 1, "NPV at its own start and at the plan's start: formulas on the project's block of 'Cash flows' "
                        "where this pack holds one (they follow the discount rate on 'Assumptions'); the engine's "
@@ -798,6 +792,8 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
         row += 2
     years = sorted(set(result.plan["start_yr"].astype(int)) | set(result.plan_greedy["start_yr"].astype(int))
                    | set(range(len(result.assumptions.budget_per_yr))))
+    n_plan_years = (max(years) + 1) if years else 0
+    names = content.plan_year_names(case, result, n_plan_years) if case is not None else []
     put_text(ws, row, 1, "By plan year").font = _BOLD
     row += 1
     put_text(ws, row, 2, content.PLAN_SPEND_TEXT)
@@ -808,7 +804,6 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
                       f"Exact: budget left [{cur}]"] + (["Budget year"] if names else []))
     top = row + 1
     budgets = list(result.assumptions.budget_per_yr)
-    n_plan_years = (max(years) + 1) if years else 0
     spent = {name: plan_capital_spent(frame, result.results, result.capital_spend_by_year, n_plan_years)
              for name, frame in (("Exact plan", result.plan), ("Rank-order plan", result.plan_greedy))}
     totals = np.zeros(9)
@@ -871,20 +866,15 @@ def _plan(ws: Worksheet, result, scope: content.Scope, refs: dict[str, str], f: 
     _widths(ws, {1: 12, 2: 14, 3: 14, 4: 34, 5: 16, 6: 18, 7: 20, 8: 20, 9: 16, 10: 12})
 
 
-def _financing_years(result) -> int:
-    """Rows of the Financing sheet (plan years 0 .. the horizon after the last plan start)."""
-    starts = result.plan["start_yr"].astype(int) if len(result.plan) else [0]
-    return int(result.assumptions.horizon_yr) + int(max(starts)) + 1
-
-
-def _financing(ws: Worksheet, result, f: _Formats, names: list[str] | None = None) -> None:
+def _financing(ws: Worksheet, result, f: _Formats, case=None) -> None:
     """The exact plan's yearly flows to the owner, in cash and under the case's financing
     (:func:`models.financing.plan_financing`); the financed net and its running sum are formulas of the row;
-    ``names`` the budget year of each plan year, in a column of their own where the case names them."""
+    with ``case``, the budget year of each plan year in a column of its own where the case names them."""
     from models.financing import plan_financing, plan_financing_words
 
     _title(ws, "The exact plan's cash flows to the owner, in cash and under the case's financing")
     table = plan_financing(result)
+    names = content.plan_year_names(case, result, len(table)) if case is not None else []
     text = plan_financing_words(result, table)
     if not text:
         text = ("Financing: cash (finance.toml's financing key): the owner pays every project's capital, so the "
@@ -1210,8 +1200,8 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _results(sheets["Results"], result, scope, f, case.settings.power_unit)
     blocks = _cash_flow_blocks(sheets["Cash flows"], result, scope, refs, case.settings.currency)
     _checks(sheets["Checks"], blocks, f)
-    _plan(sheets["Plan"], result, scope, refs, f, blocks, names=content.plan_year_names(case, result, _plan_years(result)))
-    _financing(sheets["Financing"], result, f, names=content.plan_year_names(case, result, _financing_years(result)))
+    _plan(sheets["Plan"], result, scope, refs, f, blocks, case=case)
+    _financing(sheets["Financing"], result, f, case=case)
     _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
     _data_quality(sheets["Data quality"], case, result, scope)
