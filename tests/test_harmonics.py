@@ -1,0 +1,159 @@
+"""The harmonic screen of a site: voltage distortion, current distortion and capacitor resonance.
+
+Sources: hand calculations in docs/derivations/harmonic-screen.md (cases H1-H4); limits from IEEE 519-2014
+Tables 1 and 2; transformer impedances from IEC 60076-5 Table 1 (from memory).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from models import harmonics
+from models.case import load_case
+from tests.casebuilder import ASSET_HEADER, ASSETS, with_flat_tariff, write_case
+
+
+def test_voltage_distortion_of_a_drive_load():
+    # hand calculation H1: 100 kVA of drives on 2,000 kVA of short-circuit power
+    orders, v_h, thd = harmonics.voltage_harmonics_pct([100.0], [2000.0])
+    assert orders.tolist() == [5, 7, 11, 13, 17, 19, 23, 25]
+    assert v_h[0, 0] == pytest.approx(9.081, abs=5e-4)
+    assert thd[0] == pytest.approx(12.962, abs=5e-4)
+    assert int(np.argmax(v_h[0])) == 0  # the 5th is the worst
+
+
+def test_distortion_scales_with_the_drive_share():
+    # V_h is proportional to S_drive / S_sc (hand calculation H1's formula): double the drives, double the THD
+    _, _, one = harmonics.voltage_harmonics_pct([50.0, 100.0], [2000.0, 2000.0])
+    assert one[1] == pytest.approx(2.0 * one[0], rel=1e-12)
+    _, _, none = harmonics.voltage_harmonics_pct([0.0], [2000.0])
+    assert none[0] == 0.0
+
+
+def test_short_circuit_power_of_transformer_and_source():
+    # hand calculation H2
+    got = harmonics.short_circuit_kva([1000.0, 1000.0, np.nan, np.nan], [5.0, 5.0, 5.0, np.nan],
+                                      [np.nan, 100_000.0, 50_000.0, np.nan])
+    assert got[0] == pytest.approx(20_000.0)
+    assert got[1] == pytest.approx(16_666.667, abs=1e-3)
+    assert got[2] == pytest.approx(50_000.0)
+    assert np.isnan(got[3])
+
+
+def test_transformer_impedance_defaults_follow_iec_60076_5():
+    # IEC 60076-5 Table 1 (from memory): 4 % to 630 kVA, 5 % to 1250, 6 % to 2500, 7 % to 6300, 8 % to 25000
+    got = harmonics.transformer_impedance_pct([100.0, 630.0, 631.0, 1250.0, 2500.0, 6300.0, 20_000.0, np.nan])
+    assert got[:7].tolist() == [4.0, 4.0, 5.0, 5.0, 6.0, 7.0, 8.0]
+    assert np.isnan(got[7])
+
+
+def test_voltage_and_current_limits_of_ieee_519():
+    # IEEE 519-2014 Table 1: <= 1 kV 5 % / 8 %, 1-69 kV 3 % / 5 %, 69-161 kV 1.5 % / 2.5 %, above 1 % / 1.5 %
+    individual, total = harmonics.voltage_limits_pct([400.0, 690.0, 11_000.0, 110_000.0, 400_000.0])
+    assert individual.tolist() == [5.0, 5.0, 3.0, 1.5, 1.0]
+    assert total.tolist() == [8.0, 8.0, 5.0, 2.5, 1.5]
+    # Table 2 (120 V-69 kV): < 20: 5 %, 20-50: 8 %, 50-100: 12 %, 100-1000: 15 %, > 1000: 20 %
+    assert harmonics.tdd_limit_pct([5.0, 19.9, 20.0, 49.0, 50.0, 99.0, 100.0, 999.0, 1000.0, 5000.0]).tolist() == [
+        5.0, 5.0, 8.0, 8.0, 12.0, 12.0, 15.0, 15.0, 20.0, 20.0]
+
+
+def test_resonance_order_and_the_harmonic_it_meets():
+    # hand calculation H3
+    assert harmonics.resonance_order([20_000.0], [800.0])[0] == pytest.approx(5.0)
+    assert np.isinf(harmonics.resonance_order([20_000.0], [0.0])[0])
+    assert harmonics.resonant_harmonic([4.6, 5.8, 3.0], [4.7, 6.2, 3.2]).tolist() == [5, 0, 0]
+
+
+def test_monthly_peak_mean_is_the_mean_of_each_months_highest_kva():
+    # hand calculation: January's one interval 3-4-5 x 10 = 50 kVA; February's highest 6-8-10 x 10 = 100 kVA
+    idx = pd.date_range("2025-01-31 23:00", periods=3, freq="h", tz="UTC")
+    got = harmonics.monthly_peak_mean_kva(idx, np.array([30.0, 60.0, 6.0]), np.array([40.0, 80.0, 8.0]))
+    assert got == pytest.approx(75.0)
+
+
+@pytest.fixture(scope="module")
+def small_site(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("harmonic_case")
+    assets = [list(r) for r in ASSETS]
+    assets[1][ASSET_HEADER.index("speed_control")] = "drive"  # F1, the exhaust fan, is on a drive today
+    write_case(folder, assets=assets)
+    with_flat_tariff(folder)
+    lines = (folder / "sites.csv").read_text(encoding="utf-8").splitlines()
+    (folder / "sites.csv").write_text(lines[0] + ",transformer_kva,supply_v_v\n" + lines[1] + ",500,400\n",
+                                      encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [p.message for p in problems if p.severity == "error"]
+    from models.scenario import physics
+
+    return case, physics(case, 40.0).operation
+
+
+def test_site_screen_today_and_with_a_plan(small_site):
+    # hand calculation H4
+    case, op = small_site
+    plan = pd.DataFrame({"asset_id": ["P1"], "option_id": ["pm_drive"]})
+    screen = harmonics.site_screen(case, op, plan).set_index("scenario")
+    assert list(harmonics.SCREEN_COLUMNS) == ["site_id", "scenario"] + list(screen.columns)[1:]
+    today, planned = screen.loc["today"], screen.loc["plan"]
+    assert today["transformer_impedance_pct"] == 4.0 and "assumed" in today["impedance_basis"]
+    assert today["short_circuit_kva"] == pytest.approx(12_500.0)
+    assert today["pcc_short_circuit_kva"] == pytest.approx(12_500.0)
+    assert today["drive_kva"] == pytest.approx(8.6391, abs=1e-4)
+    assert today["voltage_thd_pct"] == pytest.approx(0.17916, abs=1e-5)
+    assert today["worst_harmonic"] == 5 and today["worst_harmonic_pct"] == pytest.approx(0.12552, abs=1e-5)
+    assert (today["voltage_thd_limit_pct"], today["harmonic_limit_pct"]) == (8.0, 5.0)
+    assert planned["drive_kva"] == pytest.approx(25.2866, abs=1e-4)
+    assert planned["voltage_thd_pct"] == pytest.approx(0.52441, abs=1e-5)
+    for row in (today, planned):
+        assert (row["capacitor_kvar_min"], row["capacitor_kvar_max"]) == (0.0, 60.0)
+        assert row["resonance_order_low"] == pytest.approx(14.434, abs=1e-3)
+        assert row["resonance_order_high"] == pytest.approx(35.355, abs=1e-3)
+        assert row["resonant_harmonic"] == 17
+        assert "17th harmonic" in row["finding"]
+        # TDD = 0.40 S_drive / S_L (hand calculation H4's formula, S_L read from the screen)
+        assert row["current_tdd_pct"] == pytest.approx(40.0 * row["drive_kva"] / row["max_demand_kva"], rel=1e-12)
+        assert row["max_demand_kva"] > 0
+
+
+def test_site_screen_without_transformer_data_says_what_to_give(small_site):
+    case, op = small_site
+    from dataclasses import replace
+
+    bare = replace(case, sites=case.sites.drop(columns=["transformer_kva"]))
+    screen = harmonics.site_screen(bare, op, None)
+    assert screen["scenario"].tolist() == ["today"]
+    assert screen["finding"].iloc[0].startswith("not screened: give the site's transformer_kva")
+    assert np.isnan(screen["voltage_thd_pct"].iloc[0])
+
+
+def test_current_limits_at_the_supply_need_its_fault_level(small_site):
+    # a site supplied at 20 kV through its own transformer: the current limits apply at the primary, whose
+    # short-circuit power is the source's; without supply_fault_kva the current is not screened
+    case, op = small_site
+    from dataclasses import replace
+
+    sites = case.sites.assign(supply_v_v=20_000.0)
+    screen = harmonics.site_screen(replace(case, sites=sites), op, None).iloc[0]
+    assert np.isnan(screen["current_tdd_pct"]) and "current distortion not screened" in screen["finding"]
+    given = harmonics.site_screen(replace(case, sites=sites.assign(supply_fault_kva=250_000.0)), op, None).iloc[0]
+    assert given["pcc_short_circuit_kva"] == pytest.approx(250_000.0)
+    # hand calculation H2's series rule at the bus: 1 / (1/250000 + 0.04/500) = 1 / 0.000084 = 11,904.76 kVA
+    assert given["short_circuit_kva"] == pytest.approx(11_904.76, abs=1e-2)
+    # Table 2's row for I_sc / I_L = 250000 / S_L
+    ratio = 250_000.0 / given["max_demand_kva"]
+    assert given["current_tdd_limit_pct"] == (20.0 if ratio > 1000 else 15.0 if ratio >= 100 else 12.0)
+
+
+def test_a_plan_past_the_limits_is_found(small_site):
+    # 400 kVA of drives on a 500 kVA, 4 % transformer: THD_V = 100 x 400 / 12500 x 2.592308 = 8.30 % > 8 %
+    case, op = small_site
+    from dataclasses import replace
+
+    big = replace(case, assets=case.assets.assign(rated_p_kw=np.where(case.assets["asset_id"] == "F1", 400.0 * 0.895 * 0.97,
+                                                                    case.assets["rated_p_kw"])))
+    row = harmonics.site_screen(big, op, None).iloc[0]
+    assert row["drive_kva"] == pytest.approx(400.0)
+    assert row["voltage_thd_pct"] == pytest.approx(8.2954, abs=1e-4)
+    assert "voltage distortion about 8.3 %" in row["finding"] and "harmonic study" in row["finding"]
