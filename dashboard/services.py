@@ -1549,6 +1549,19 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
     return out
 
 
+def harmonic_screen(view_: View, result, site_id: str) -> list[dict]:
+    """The site's harmonic screen today and with the exact plan (:func:`models.harmonics.site_screen`), as grid
+    rows (infinite resonance orders blank), made once per case and plan."""
+    from models.harmonics import site_screen
+
+    op = view_.physics().operation
+    choice = plan_choice(view_, result)
+    table = engine().derived(view_.key, "harmonics", (choice.tobytes(),),
+                             lambda: site_screen(view_.case, op, result.plan))
+    mine = table[table["site_id"].astype(str) == str(site_id)].replace([np.inf, -np.inf], np.nan)
+    return mine.astype(object).where(mine.notna(), None).to_dict("records")
+
+
 def _site_fit(view_: View, site_id: str) -> tuple[pd.DataFrame, pd.DataFrame] | None:
     """The site's rows of :func:`models.calibration.calibrate` (months, summary), made once per case; None when
     the case gives no bill of the site."""

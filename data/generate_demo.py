@@ -26,10 +26,15 @@ HOLIDAYS = ["2025-01-01", "2025-04-18", "2025-04-21", "2025-05-01", "2025-05-29"
             "2025-10-03", "2025-12-25", "2025-12-26"]
 
 SITES = [
-    # site_id, site_name, meter_id, tariff_file, base_p_kw, base_power_factor, base_profile_id, supply_v_v
-    ("HRW", "Haldane Ridge Water Treatment Works", "M-HRW-01", "example_tou_kw_reactive_ratchet.toml", "", 0.88, "BASE-HRW", 20000),
-    ("KGQ", "Kestrel Gorge Quarry and Crushing Plant", "M-KGQ-01", "example_kva_demand.toml", 180, 0.82, "", 20000),
+    # site_id, site_name, meter_id, tariff_file, base_p_kw, base_power_factor, base_profile_id, supply_v_v,
+    # transformer_kva, transformer_impedance_pct, supply_fault_kva (the harmonic screen's supply)
+    ("HRW", "Haldane Ridge Water Treatment Works", "M-HRW-01", "example_tou_kw_reactive_ratchet.toml", "", 0.88, "BASE-HRW", 20000,
+     4000, 6, 250000),
+    ("KGQ", "Kestrel Gorge Quarry and Crushing Plant", "M-KGQ-01", "example_kva_demand.toml", 180, 0.82, "", 20000,
+     6300, "", 300000),
 ]
+SITE_COLUMNS = ["site_id", "site_name", "meter_id", "tariff_file", "base_p_kw", "base_power_factor", "base_profile_id",
+                "supply_v_v", "transformer_kva", "transformer_impedance_pct", "supply_fault_kva"]
 
 CAPACITORS = [
     # site_id, bank_id, rated_q_kvar, control, step_q_kvar, target_power_factor
@@ -331,7 +336,8 @@ motors, the profiles and the prices. Any likeness to a real company or plant is 
 
 - `case.toml`: case settings (currency, time zone).
 - `assets.csv`: the asset register (motors of two sites, 0.75 kW to 1.6 MW).
-- `sites.csv`, `capacitors.csv`: meters, non-motor load and existing capacitor banks.
+- `sites.csv`, `capacitors.csv`: meters, non-motor load, the supply (for the harmonic screen) and existing
+  capacitor banks.
 - `profiles.parquet`: one year of hourly shaft-load profiles (and one measured base-load profile).
 - `duty.csv`: a duty table for cycling pumps.
 - `finance.toml`: discount rate, horizon, escalation, CO2 factor and capital budgets (illustrative).
@@ -352,8 +358,7 @@ def write_demo(target: Path = HERE) -> None:
     for row in assets:
         row.setdefault("supply_f_hz", 50)
     (target / "assets.csv").write_text(_csv(assets, ASSET_COLUMNS), encoding="utf-8")
-    (target / "sites.csv").write_text(_csv(SITES, ["site_id", "site_name", "meter_id", "tariff_file", "base_p_kw",
-                                                   "base_power_factor", "base_profile_id", "supply_v_v"]), encoding="utf-8")
+    (target / "sites.csv").write_text(_csv(SITES, SITE_COLUMNS), encoding="utf-8")
     (target / "capacitors.csv").write_text(_csv(CAPACITORS, ["site_id", "bank_id", "rated_q_kvar", "control", "step_q_kvar",
                                                              "target_power_factor"]), encoding="utf-8")
     (target / "duty.csv").write_text(_csv(DUTY, ["profile_id", "shaft_load_pct", "duration_h_per_yr"]), encoding="utf-8")

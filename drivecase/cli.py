@@ -631,6 +631,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     _print_run_summary(case, result)
     _print_scenarios(case, result)
     _print_measure_first(case, result)
+    _print_harmonic_screen(Path(args.out) / "harmonic_screen.csv")
     _print_calibration_summary(case, Path(args.out) / "calibration.csv")
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
@@ -659,6 +660,27 @@ def _print_measure_first(case, result, shown: int = 5) -> None:
     for row in worth.to_dict("records"):
         print(f"  {row['asset_id']}: up to {money_text(row['value_of_measuring'], cur)} "
               f"({row['label']}, NPV {money_text(row['npv'], cur)} as modelled; {row['uncertain_inputs']})")
+
+
+def _print_harmonic_screen(path: Path) -> None:
+    """The sites whose drives or capacitors the harmonic screen finds past IEEE 519's limits or near a resonance
+    with the plan (harmonic_screen.csv), and how many sites it could not screen; nothing else."""
+    import pandas as pd
+
+    try:
+        table = pd.read_csv(path, keep_default_na=False)
+    except (OSError, pd.errors.EmptyDataError):
+        return
+    plan = table[table["scenario"] == "plan"] if "plan" in set(table["scenario"]) else table
+    found = plan[plan["finding"].str.contains("harmonic study|resonate", regex=True)]
+    unscreened = int(plan["finding"].str.startswith("not screened").sum())
+    if found.empty and not unscreened:
+        return
+    print("\nHarmonic screen (harmonic_screen.csv), with the plan: a first screen to IEEE 519, not a study")
+    for row in found.to_dict("records"):
+        print(f"  {row['site_id']}: {row['finding']}")
+    if unscreened:
+        print(f"  {unscreened} site{'s' if unscreened != 1 else ''} not screened: give transformer_kva in sites.csv")
 
 
 def _print_scenarios(case, result) -> None:

@@ -33,8 +33,10 @@ DEFAULTS_FILE = "defaults.csv"
 SCENARIOS_FILE = "scenarios.csv"
 #: The assets ranked by the value of measuring them before deciding (:func:`models.information.measure_first`).
 MEASURE_FIRST_FILE = "measure_first.csv"
+#: The sites' harmonic screen, today and with the plan (:func:`models.harmonics.site_screen`; with the case only).
+HARMONIC_SCREEN_FILE = "harmonic_screen.csv"
 #: Every file a run may write into its folder.
-ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE)
+ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE, HARMONIC_SCREEN_FILE)
 #: The list of the files a run wrote, kept in its folder: a later run writes over those, never over a file of the
 #: same name it did not write.
 RUN_MANIFEST_NAME = ".drivecase-run"
@@ -314,7 +316,8 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`),
     :data:`DEFAULTS_FILE` (:func:`defaulted_fields`), :data:`SCENARIOS_FILE`
     (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) and
-    :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`) are added.
+    :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`) and :data:`HARMONIC_SCREEN_FILE`
+    (:func:`models.harmonics.site_screen`) are added.
     """
     results = result.results.copy()
     if case is not None:
@@ -370,6 +373,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         from models.information import measure_first
 
         tables[MEASURE_FIRST_FILE] = measure_first(case, result)
+        from models.harmonics import site_screen
+
+        tables[HARMONIC_SCREEN_FILE] = site_screen(case, result.physics.operation, result.plan)
     return tables
 
 

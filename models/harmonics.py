@@ -267,11 +267,6 @@ def _finding(row: dict) -> str:
     if row["drive_kva"] <= 0:
         return "no drives"
     parts = []
-    note = ""
-    if row["resonant_harmonic"]:
-        parts.append(f"the capacitors resonate near the {row['resonant_harmonic']}th harmonic (order "
-                     f"{row['resonance_order_low']:.1f}-{row['resonance_order_high']:.1f}): detune the bank or study it "
-                     "before drives are added")
     if row["voltage_thd_pct"] > row["voltage_thd_limit_pct"] or row["worst_harmonic_pct"] > row["harmonic_limit_pct"]:
         parts.append(f"voltage distortion about {row['voltage_thd_pct']:.1f} % (the {row['worst_harmonic']}th "
                      f"{row['worst_harmonic_pct']:.1f} %) against limits of {row['voltage_thd_limit_pct']:g} % and "
@@ -279,11 +274,16 @@ def _finding(row: dict) -> str:
     if np.isfinite(row["current_tdd_pct"]) and row["current_tdd_pct"] > row["current_tdd_limit_pct"]:
         parts.append(f"current distortion about {row['current_tdd_pct']:.1f} % of the maximum demand against "
                      f"{row['current_tdd_limit_pct']:g} %")
-    elif not np.isfinite(row["current_tdd_pct"]):
-        note = "; current distortion not screened (give supply_fault_kva, the utility's fault level at the supply)"
+    if row["resonant_harmonic"]:
+        lo, hi = row["resonance_order_low"], row["resonance_order_high"]
+        span = f"{lo:.1f}" if f"{lo:.1f}" == f"{hi:.1f}" else f"{lo:.1f}-{hi:.1f}"
+        parts.append(f"the capacitors resonate near the {row['resonant_harmonic']}th harmonic (order {span}): a "
+                     "detuned bank")
+    note = ("" if np.isfinite(row["current_tdd_pct"])
+            else "; current distortion not screened (give supply_fault_kva, the utility's fault level at the supply)")
     if not parts:
         return "within the IEEE 519 limits on this screen" + note
-    return "; ".join(parts) + ": mitigation and a harmonic study" + note
+    return "; ".join(parts) + "; a harmonic study and mitigation before the drives are installed" + note
 
 
 def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
@@ -314,7 +314,8 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     Drive-fed today: assets whose ``speed_control`` is ``drive``; with the plan also those whose project is a drive
     option (models.options.DRIVE_TECHNOLOGIES). Capacitors: the fixed banks always, a stepped bank from none to
     all its kVAr, and the plan's motor-terminal capacitors (all in service). The bus voltage is the highest rated
-    voltage of the site's drive-fed motors (of all its motors when none). The current limits apply at the point of
+    voltage of the site's drive-fed motors (of all its motors when none): a site is one bus, and its finding says
+    so where its motors run at several voltages. The current limits apply at the point of
     common coupling: the transformer's primary, with the source's fault level, where the site's ``supply_v_v``
     is above :data:`PCC_ABOVE_BUS_RATIO` times the bus voltage (not screened without ``supply_fault_kva``), else
     the bus itself.
@@ -401,5 +402,8 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                              "resonance_order_low", "resonance_order_high"):
                     row[name] = float("nan")
             row["finding"] = _finding(row)
+            if len(np.unique(v_v[members])) > 1 and np.isfinite(s_sc[k]) and drive_kva > 0:
+                row["finding"] += (f"; motors at {len(np.unique(v_v[members]))} voltages screened as one bus at "
+                                   f"{bus_v:g} V (a transformer between them changes the figures)")
             rows.append(row)
     return pd.DataFrame(rows, columns=list(SCREEN_COLUMNS))

@@ -113,3 +113,22 @@ def test_plan_page_says_the_plan_s_financing(tmp_path_factory, monkeypatch):
     entry, problems = cash.set_default_case(write_small_case(tmp_path_factory.mktemp("cases") / "cash"))
     monkeypatch.setattr(services, "_ENGINE", cash)
     assert "borrowed" not in _text(plan.update(True, None, None)[6])
+
+
+def test_site_meter_shows_the_harmonic_screen_with_its_caution(small_engine, monkeypatch):
+    """The Site meter page carries the site's harmonic screen (models.harmonics.site_screen, the same rows as
+    harmonic_screen.csv), today and with the plan, beside the caution that it is a screen and not a study."""
+    from models.harmonics import SCREEN_CAUTION, site_screen
+
+    monkeypatch.setattr(services, "_ENGINE", small_engine)
+    rows = site.update("HRW", None, None, None)[7]
+    assert [r["scenario"] for r in rows] == ["today", "plan"]
+    view = services.view(None, None)
+    result = view.result()
+    expected = site_screen(view.case, view.physics().operation, result.plan)
+    expected = expected[expected["site_id"] == "HRW"].reset_index(drop=True)
+    for got, want in zip(rows, expected.to_dict("records")):
+        assert got["finding"] == want["finding"]
+        assert got["drive_kva"] == pytest.approx(want["drive_kva"], rel=1e-12)
+    layout = str(site.layout())
+    assert "Harmonic screen" in layout and SCREEN_CAUTION[:60] in layout

@@ -1141,3 +1141,24 @@ def test_the_plan_table_names_each_plan_year_by_its_budget_year(small, tmp_path)
     last = ws.max_column
     assert ws.cell(5, last).value == "Budget year" and [ws.cell(6 + k, last).value for k in (0, 1)] == ["FY2028", "FY2029"]
     assert [ws.cell(6 + k, 1).value for k in (0, 1)] == [0, 1]
+
+
+def test_the_cautions_carry_each_sites_harmonic_screen(demo_run_physics):
+    # section 11 shows models.harmonics.site_screen's rows for the sites in scope (the demo's sites give their
+    # transformers and fault levels), with the caution that the screen is not a study
+    from models.harmonics import SCREEN_CAUTION, site_screen
+    from models.pack import content
+    from models.pack.report_html import render_report, report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    scope = content.select_scope(case, result, None, True)
+    context = report_context(case, result, scope, [])
+    expected = site_screen(case, phys.operation, result.plan)
+    assert len(context["harmonic_rows"]) == len(expected) == 4  # two sites, today and with the plan
+    shown = [[c["text"] for c in r["cells"]] for r in context["harmonic_rows"]]
+    assert [s[:2] for s in shown] == expected[["site_id", "scenario"]].values.tolist()
+    assert [s[-1] for s in shown] == expected["finding"].tolist()
+    html = render_report(case, result, scope)
+    assert "Harmonic screen by site" in html and "IEEE 519-2014" in html
+    assert "A first screen, not a harmonic study" in html and SCREEN_CAUTION.split(":")[0] in html

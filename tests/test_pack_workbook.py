@@ -41,7 +41,7 @@ INJECTION_HTML = '<script>alert(1)</script> & "pump"'
 #: the evaluator's IRR is a polynomial root and the engine's a Newton root, both far tighter than this).
 RTOL = 1e-4
 SHEETS = ["Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Financing", "Scenarios", "Bills",
-          "Data quality", "End of life", "Risk"]
+          "Harmonics", "Data quality", "End of life", "Risk"]
 
 
 def build_case(folder: Path, descriptions: dict[str, str] | None = None, ids: dict[str, str] | None = None):
@@ -855,3 +855,19 @@ def test_the_financing_sheet_holds_the_plan_s_flows_to_the_owner(small, tmp_path
         net = values[("FINANCING", f"{ws.cell(row, net_col).column_letter}{row}")]
         cum = values[("FINANCING", f"{ws.cell(row, cum_col).column_letter}{row}")]
         assert_allclose([float(net), float(cum)], [r["financed_net"], r["cumulative_financed"]], rtol=1e-9, atol=1e-6)
+
+
+def test_harmonics_sheet_lists_each_sites_screen(plan_pack, small):
+    """The Harmonics sheet holds models.harmonics.site_screen's rows (the small case gives no transformer: its site
+    is listed as not screened, with the column to give), under the screen's caution."""
+    from models.harmonics import SCREEN_CAUTION, site_screen
+
+    case, result = small
+    ws = load_workbook(plan_pack)["Harmonics"]
+    assert SCREEN_CAUTION in ws.cell(3, 1).value
+    assert ws.cell(5, 1).value == "Site" and ws.cell(5, 2).value == "Scenario"
+    expected = site_screen(case, result.physics.operation, result.plan)
+    finding_col = next(c for c in range(1, ws.max_column + 1) if ws.cell(5, c).value == "Finding")
+    got = [[ws.cell(r, 1).value, ws.cell(r, 2).value, ws.cell(r, finding_col).value] for r in range(6, 6 + len(expected))]
+    assert got == expected[["site_id", "scenario", "finding"]].values.tolist()
+    assert got[0][2].startswith("not screened: give the site's transformer_kva")

@@ -1,4 +1,5 @@
-"""Site meter: kW, kVAr and power factor before and with the plan, bills by line item, the reactive balance."""
+"""Site meter: kW, kVAr and power factor before and with the plan, bills by line item, the reactive balance, the
+harmonic screen."""
 
 from __future__ import annotations
 
@@ -11,6 +12,7 @@ from dashboard import components as ui
 from dashboard import figures, services
 from models.bill_savings import banned_caution, banned_quantities
 from models.case import coarse_demand_profiles, demand_window_text
+from models.harmonics import SCREEN_CAUTION
 
 
 PICK = "site-pick"
@@ -25,6 +27,19 @@ REACTIVE = "site-reactive"
 SUMMARY = "site-summary"
 BILL_FIT = "site-bill-fit"
 NOTICE = "site-notice"
+HARMONICS = "site-harmonics"
+
+#: Columns of the harmonic screen's grid (rows of models.harmonics.site_screen).
+HARMONIC_COLUMNS = [
+    ui.text_col("scenario", "Scenario", maxWidth=110), ui.number_col("drive_kva", "Drives [kVA]"),
+    ui.number_col("short_circuit_kva", "Short-circuit power [kVA]"),
+    ui.number_col("voltage_thd_pct", "Voltage THD [%]", 1), ui.number_col("voltage_thd_limit_pct", "Limit [%]", 0),
+    ui.number_col("worst_harmonic", "Worst harmonic"), ui.number_col("worst_harmonic_pct", "Its voltage [%]", 1),
+    ui.number_col("harmonic_limit_pct", "Limit [%]", 0), ui.number_col("current_tdd_pct", "Current TDD [%]", 1),
+    ui.number_col("current_tdd_limit_pct", "Limit [%]", 0), ui.number_col("capacitor_kvar_max", "Capacitors, most [kVAr]"),
+    ui.number_col("resonance_order_low", "Resonance order, lowest", 1),
+    ui.long_text_col("finding", "Finding", minWidth=320, flex=3),
+]
 
 
 def layout(site=None, **_query):
@@ -49,6 +64,12 @@ def layout(site=None, **_query):
                   html.P("The site's own bills (bill_history.csv of the case) beside today's fleet as modelled: a "
                          "baseline far off the bills is to be questioned before its savings are.",
                          className="page-intro")], className="panel"),
+        html.Div([html.H4("Harmonic screen: today and with the plan"),
+                  ui.data_grid(HARMONICS, height="auto", rowData=None, columnDefs=HARMONIC_COLUMNS,
+                               empty_text="No harmonic screen for this site", dashGridOptions={"domLayout": "autoHeight"}),
+                  html.P("Drives at their motors' rated input against IEEE 519-2014's limits, from the transformer and "
+                         "supply in sites.csv (transformer_kva, transformer_impedance_pct, supply_fault_kva). "
+                         + SCREEN_CAUTION, className="small caution")], className="panel"),
     ])
 
 
@@ -77,7 +98,7 @@ ui.address_follows(ADDRESS, "/site")
 
 
 @callback(Output(WEEK_FIGURE, "figure"), Output(DURATION, "figure"), Output(REACTIVE, "figure"), Output(BILLS, "figure"),
-          Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(BILL_FIT, "figure"),
+          Output(SUMMARY, "children"), Output(NOTICE, "children"), Output(BILL_FIT, "figure"), Output(HARMONICS, "rowData"),
           Input(PICK, "value"), Input(WEEK, "value"), Input(ui.SESSION_STORE, "data"), Input(ui.EDITS_STORE, "data"),
           State(REQUEST, "data"))
 def update(site_id, week, session, edits, requested=None):
@@ -90,7 +111,7 @@ def update(site_id, week, session, edits, requested=None):
         notice = " ".join(x for x in (notice, f"The case has no site '{requested}'; showing {site_id or 'none'}.") if x)
     if site_id not in meters:
         empty = figures.message_figure("Choose a site.")
-        return empty, empty, empty, empty, "", notice, empty
+        return empty, empty, empty, empty, "", notice, empty, []
     site = meters[site_id]
     interval_h = float(view.physics().operation.interval_h)
     before, after = site["before"], site["after"]
@@ -127,4 +148,5 @@ def update(site_id, week, session, edits, requested=None):
             figures.pf_duration(services.pf_duration(site, interval_h)),
             figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
             figures.monthly_bills(bills, view.currency), summary, notice,
-            figures.energy_against_bills(services.site_bill_months(view, site_id)))
+            figures.energy_against_bills(services.site_bill_months(view, site_id)),
+            services.harmonic_screen(view, result, site_id))

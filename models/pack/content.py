@@ -1229,6 +1229,21 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
 
 
+def harmonic_screen(case, result, scope: Scope | None = None) -> pd.DataFrame:
+    """The harmonic screen (:func:`models.harmonics.site_screen`) of the sites of the assets in scope, today and
+    with the fleet plan, the scope's recommended projects in place of the plan's on their assets."""
+    from models.harmonics import site_screen
+
+    projects = result.plan[["asset_id", "option_id"]]
+    sites = None
+    if scope is not None:
+        chosen = scope.chosen[["asset_id", "option_id"]]
+        projects = pd.concat([projects[~projects["asset_id"].isin(chosen["asset_id"])], chosen], ignore_index=True)
+        sites = set(case.assets.loc[case.assets["asset_id"].isin(list(scope.asset_ids)), "site_id"].astype(str))
+    table = site_screen(case, result.physics.operation, projects)
+    return table if sites is None else table[table["site_id"].isin(sites)].reset_index(drop=True)
+
+
 def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:
     """Return the cautions that apply to one option's technology and speed change."""
     out = []

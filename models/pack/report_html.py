@@ -469,12 +469,45 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                              f"Abatement cost {cur}/t (-NPV per discounted t over the horizon)"],
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
         "cautions": list(content.CAUTIONS) + list(content.REQUEST_CAUTIONS),
+        **_harmonic_context(case, result, scope),
         "appendix": appendix,
         "appendix_headers": ["Option", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
                              "Simple payback [yr]", "CO2 [t/yr]", "Flags"],
         "appendix_numeric": (1, 2, 3, 4, 5, 6),
         "files": files, "figures": figs,
     }
+
+
+def _order_span(low: float, high: float) -> str:
+    """A resonance's range of orders to one decimal ("18.7", or "7.2-9.7")."""
+    lo, hi = f"{low:.1f}", f"{high:.1f}"
+    return lo if lo == hi else f"{lo}-{hi}"
+
+
+def _harmonic_context(case, result, scope: content.Scope) -> dict[str, Any]:
+    """The harmonic screen of the sites in scope, today and with the plan (section 11)."""
+    from models.harmonics import SCREEN_CAUTION
+
+    table = content.harmonic_screen(case, result, scope)
+    rows = []
+    for r in table.to_dict("records"):
+        screened = r["short_circuit_kva"] == r["short_circuit_kva"]
+        rows.append(row([cell(r["site_id"]), cell(r["scenario"]), num(r["drive_kva"], signed=False),
+                         num(r["short_circuit_kva"], signed=False) if screened else cell("not given"),
+                         cell(f"{r['voltage_thd_pct']:.1f} / {r['voltage_thd_limit_pct']:g}" if screened else ""),
+                         cell(f"{r['worst_harmonic']}th: {r['worst_harmonic_pct']:.1f} / {r['harmonic_limit_pct']:g}"
+                              if screened else ""),
+                         cell(f"{r['current_tdd_pct']:.1f} / {r['current_tdd_limit_pct']:g}"
+                              if r["current_tdd_pct"] == r["current_tdd_pct"] else ""),
+                         cell(f"{r['capacitor_kvar_min']:,.0f}-{r['capacitor_kvar_max']:,.0f}"
+                              if r["capacitor_kvar_max"] != r["capacitor_kvar_min"] else f"{r['capacitor_kvar_max']:,.0f}"),
+                         cell(_order_span(r["resonance_order_low"], r["resonance_order_high"])
+                              if screened and r["capacitor_kvar_max"] > 0 else ""),
+                         cell(r["finding"], "small")]))
+    return {"harmonic_rows": rows, "harmonic_note": SCREEN_CAUTION, "harmonic_numeric": (2, 3, 4, 5, 6, 7, 8),
+            "harmonic_headers": ["Site", "Scenario", "Drives [kVA]", "Short-circuit power [kVA]",
+                                 "Voltage THD / limit [%]", "Worst harmonic / limit [%]", "Current TDD / limit [%]",
+                                 "Capacitors [kVAr]", "Resonance order", "Finding"]}
 
 
 def _scenario_context(case, result, cur: str) -> dict[str, Any]:

@@ -169,6 +169,9 @@ REPORT = _MACROS + """<!DOCTYPE html>
 
 <h2 id="cautions">11. Cautions</h2>
 <ul class="cautions">{% for c in cautions %}<li>{{ c }}</li>{% endfor %}</ul>
+<h3>Harmonic screen by site</h3>
+<p class="small">Each site's drives (rated input) and capacitors today and with the plan, against IEEE 519-2014's limits. {{ harmonic_note }}</p>
+{{ table(harmonic_headers, harmonic_rows, harmonic_numeric) }}
 
 <h2 id="appendix">12. Appendix: options per asset, decision records and files</h2>
 <p class="small">IRR is the discount rate at which an option's NPV over keeping today's motor is zero. "none": no such rate exists (the savings never repay the capital, or there is no capital); "(several)": the flows change sign more than once and several rates solve it (the one closest to zero is shown); a negative IRR means the savings do not even repay the capital undiscounted. {{ measures_text }}</p>

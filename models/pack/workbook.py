@@ -38,7 +38,7 @@ from models.wording import counted, line_item_text
 
 #: Sheet names, in workbook order.
 SHEETS: tuple[str, ...] = ("Read me", "Assumptions", "Results", "Cash flows", "Checks", "Plan", "Financing", "Scenarios",
-                           "Bills", "Data quality", "End of life", "Risk")
+                           "Bills", "Harmonics", "Data quality", "End of life", "Risk")
 #: Longest text a spreadsheet cell holds [characters].
 MAX_CELL_TEXT = 32_767
 #: Relative tolerance of the "Checks" sheet: workbook formula vs engine (0.01 %).
@@ -1116,6 +1116,33 @@ def _scenarios(ws: Worksheet, case, result, f: _Formats) -> None:
     _widths(ws, {1: 34, **{k: 16 for k in range(2, len(cols) + 1)}})
 
 
+def _harmonics(ws: Worksheet, case, result, scope: content.Scope) -> None:
+    """The harmonic screen of the sites in scope, today and with the plan (models.harmonics.site_screen)."""
+    from models.harmonics import SCREEN_CAUTION
+
+    _title(ws, "Harmonics: a first screen of each site's distortion and capacitor resonance")
+    put_text(ws, 3, 1, "Drives at their motors' rated input; the limits are IEEE 519-2014's (Table 1 for the voltage at "
+             "the motors' bus, Table 2 for the current at the point of common coupling). " + SCREEN_CAUTION)
+    table = content.harmonic_screen(case, result, scope)
+    cols = [("site_id", "Site", None), ("scenario", "Scenario", None), ("drive_kva", "Drives [kVA]", "#,##0"),
+            ("transformer_kva", "Transformer [kVA]", "#,##0"), ("transformer_impedance_pct", "Impedance [%]", "0.0"),
+            ("impedance_basis", "Impedance from", None), ("short_circuit_kva", "Short-circuit power at the bus [kVA]", "#,##0"),
+            ("pcc_short_circuit_kva", "Short-circuit power where the current limits apply [kVA]", "#,##0"),
+            ("max_demand_kva", "Maximum demand [kVA]", "#,##0"), ("bus_v_v", "Bus [V]", "#,##0"),
+            ("voltage_thd_pct", "Voltage THD [%]", "0.00"), ("voltage_thd_limit_pct", "Limit [%]", "0.0"),
+            ("worst_harmonic", "Worst harmonic", "0"), ("worst_harmonic_pct", "Its voltage [%]", "0.00"),
+            ("harmonic_limit_pct", "Limit [%]", "0.0"), ("current_tdd_pct", "Current TDD [%]", "0.00"),
+            ("current_tdd_limit_pct", "Limit [%]", "0.0"), ("capacitor_kvar_min", "Capacitors, least [kVAr]", "#,##0"),
+            ("capacitor_kvar_max", "Capacitors, most [kVAr]", "#,##0"),
+            ("resonance_order_low", "Resonance order, lowest", "0.0"),
+            ("resonance_order_high", "Resonance order, highest", "0.0"),
+            ("resonant_harmonic", "Tuned to harmonic (0 none)", "0"), ("finding", "Finding", None)]
+    clean = table.replace([np.inf, -np.inf], np.nan)
+    clean = clean.astype(object).where(clean.notna(), None)
+    _table(ws, 5, clean, cols)
+    _widths(ws, {1: 10, 2: 10, **{k: 13 for k in range(3, len(cols))}, len(cols): 90})
+
+
 def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
     s = case.settings
     h = content.headline(result, scope)
@@ -1145,10 +1172,12 @@ def _read_me(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> 
         "Cash flows": "per project: yearly flows by component and live formulas for NPV, IRR and paybacks",
         "Checks": "each formula's value beside the engine's, with an OK/CHECK status",
         "Plan": "exact and rank-order fleet plans, capital per plan year against the budget",
-        "Financing": "the exact plan's yearly flows to the owner in cash and under the case's financing (loan or "
+        "Financing": "the exact plan's yearly flows to the owner in cash and under the case's financing (loan, lease or "
                      "energy-service company)",
         "Scenarios": "the fleet plan under each named scenario of the case beside the case as written",
         "Bills": "monthly bills before and after the plan, with line items",
+        "Harmonics": "each site's harmonic distortion and capacitor resonance today and with the plan (a first screen "
+                     "to IEEE 519, not a study)",
         "Data quality": "defaulted inputs, model flags and input problems",
         "End of life": "replace now vs at failure vs rewind, and the repair-or-replace policy",
         "Risk": "the plan's tornado and Monte Carlo, and the risks and assumptions register",
@@ -1204,6 +1233,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _financing(sheets["Financing"], result, f, case=case)
     _scenarios(sheets["Scenarios"], case, result, f)
     _bills(sheets["Bills"], result, f)
+    _harmonics(sheets["Harmonics"], case, result, scope)
     _data_quality(sheets["Data quality"], case, result, scope)
     _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit)
     _risk(sheets["Risk"], case, result, scope, f)
