@@ -68,6 +68,17 @@ FRONT_END_DEFAULTS: dict[str, tuple[float, float]] = {
     "twelve_pulse": (0.97, 0.12),
     "active_front_end": (1.00, 0.04),
 }
+#: The front end a drive has where nothing says otherwise (a drive fitted today, a catalogue row without one).
+DEFAULT_FRONT_END = "six_pulse_with_choke"
+#: Drive losses by front end relative to a six-pulse drive with a choke (common practice, from memory: a
+#: twelve-pulse drive adds its phase-shifting transformer's losses, an active front end its switching rectifier's,
+#: about 1-1.5 % of the drive's rating at full load against 2-3 % for the drive itself).
+FRONT_END_LOSS_RATIO: dict[str, float] = {
+    "six_pulse_with_choke": 1.0,
+    "six_pulse_no_choke": 0.97,
+    "twelve_pulse": 1.35,
+    "active_front_end": 1.5,
+}
 
 
 @dataclass(frozen=True)

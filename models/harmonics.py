@@ -39,17 +39,25 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from models.drives import FRONT_END_DEFAULTS
+from models.drives import DEFAULT_FRONT_END, FRONT_END_DEFAULTS
 
-#: Harmonic current of a six-pulse drive with a DC-link or line choke, per unit of its fundamental, by order
-#: (common practice, from memory: typical measured spectra; total about 39 %). Scaled to the front end's
-#: current THD by :func:`drive_spectrum`.
-SIX_PULSE_SPECTRUM: dict[int, float] = {5: 0.35, 7: 0.12, 11: 0.075, 13: 0.05, 17: 0.04, 19: 0.03, 23: 0.025,
-                                        25: 0.02}
-#: Current THD of the drives the options add (their front end: six-pulse with a choke, as the drive models).
-DRIVE_THD_I_FRAC = FRONT_END_DEFAULTS["six_pulse_with_choke"][1]
-#: Input displacement power factor of those drives (the drive models' value).
-DRIVE_DISPLACEMENT_PF = FRONT_END_DEFAULTS["six_pulse_with_choke"][0]
+#: Harmonic current of a drive per unit of its fundamental, by front end and order, before scaling to the front
+#: end's current THD (models.drives.FRONT_END_DEFAULTS) by :func:`drive_spectrum` (common practice, from memory:
+#: typical measured spectra). Six-pulse (with or without a choke): the characteristic 6k +/- 1 orders, the 5th
+#: largest (total of the shape about 39 %); twelve-pulse: the 12k +/- 1 orders (the 5th and 7th cancelled by its
+#: phase-shifting transformer, their residue from imbalance left out); active front end: a little of every order.
+SPECTRUM_SHAPES: dict[str, dict[int, float]] = {
+    "six_pulse_with_choke": {5: 0.35, 7: 0.12, 11: 0.075, 13: 0.05, 17: 0.04, 19: 0.03, 23: 0.025, 25: 0.02},
+    "six_pulse_no_choke": {5: 0.35, 7: 0.12, 11: 0.075, 13: 0.05, 17: 0.04, 19: 0.03, 23: 0.025, 25: 0.02},
+    "twelve_pulse": {11: 0.09, 13: 0.06, 23: 0.025, 25: 0.02},
+    "active_front_end": {5: 0.02, 7: 0.015, 11: 0.01, 13: 0.01, 17: 0.005, 19: 0.005, 23: 0.005, 25: 0.005},
+}
+#: The harmonic orders the screen sums (every order of :data:`SPECTRUM_SHAPES`).
+ORDERS: tuple[int, ...] = (5, 7, 11, 13, 17, 19, 23, 25)
+#: The six-pulse shape (a drive fitted today and the catalogue's drives where they name no front end).
+SIX_PULSE_SPECTRUM: dict[int, float] = SPECTRUM_SHAPES[DEFAULT_FRONT_END]
+#: Current THD of a six-pulse drive with a choke, the drive models' default front end.
+DRIVE_THD_I_FRAC = FRONT_END_DEFAULTS[DEFAULT_FRONT_END][1]
 #: IEEE 519-2014 Table 1: (highest bus voltage [V], individual harmonic limit [%], THD limit [%]).
 VOLTAGE_LIMITS_PCT: tuple[tuple[float, float, float], ...] = (
     (1_000.0, 5.0, 8.0), (69_000.0, 3.0, 5.0), (161_000.0, 1.5, 2.5), (np.inf, 1.0, 1.5))
@@ -84,23 +92,46 @@ SCREEN_COLUMNS: tuple[str, ...] = (
     "short_circuit_kva", "pcc_short_circuit_kva", "max_demand_kva", "bus_v_v", "voltage_thd_pct", "voltage_thd_limit_pct",
     "worst_harmonic", "worst_harmonic_pct", "harmonic_limit_pct", "current_tdd_pct", "current_tdd_limit_pct",
     "capacitor_kvar_min", "capacitor_kvar_max", "resonance_order_low", "resonance_order_high",
-    "resonant_harmonic", "finding")
+    "resonant_harmonic", "front_ends", "finding")
 
 
-def drive_spectrum(thd_i_frac: float = DRIVE_THD_I_FRAC) -> tuple[np.ndarray, np.ndarray]:
-    """The harmonic orders of a six-pulse drive and their currents per unit of the fundamental.
+def drive_spectrum(thd_i_frac: float | None = None, front_end: str = DEFAULT_FRONT_END) -> tuple[np.ndarray, np.ndarray]:
+    """The harmonic orders :data:`ORDERS` and a drive's current at each per unit of its fundamental.
 
-    :data:`SIX_PULSE_SPECTRUM` scaled so that the root sum of squares is ``thd_i_frac``.
+    The front end's shape (:data:`SPECTRUM_SHAPES`) scaled so that the root sum of squares is ``thd_i_frac``
+    (default the front end's current THD, models.drives.FRONT_END_DEFAULTS); orders the shape lacks are zero.
 
     Examples
     --------
     >>> h, i = drive_spectrum(0.40)
     >>> h.tolist()[:4], round(float(np.sqrt((i ** 2).sum())), 12)
     ([5, 7, 11, 13], 0.4)
+    >>> h, i = drive_spectrum(front_end="twelve_pulse")
+    >>> i[:2].tolist(), round(float(np.sqrt((i ** 2).sum())), 12)
+    ([0.0, 0.0], 0.12)
     """
-    orders = np.array(sorted(SIX_PULSE_SPECTRUM), dtype=int)
-    shape = np.array([SIX_PULSE_SPECTRUM[h] for h in orders])
-    return orders, shape * (float(thd_i_frac) / np.sqrt((shape ** 2).sum()))
+    shape_of = SPECTRUM_SHAPES[front_end]
+    thd = FRONT_END_DEFAULTS[front_end][1] if thd_i_frac is None else float(thd_i_frac)
+    orders = np.array(ORDERS, dtype=int)
+    shape = np.array([shape_of.get(int(h), 0.0) for h in orders])
+    return orders, shape * (thd / np.sqrt((shape ** 2).sum()))
+
+
+def harmonic_currents_kva(drive_kva_by_front_end: dict[str, float]) -> np.ndarray:
+    """The harmonic currents of a group of drives at each order of :data:`ORDERS`, in kVA at the bus voltage.
+
+    Each front end's drives draw their spectrum (:func:`drive_spectrum`) times their fundamental input; the
+    currents of one order add arithmetically (in phase: the worst case, common practice for rectifiers on one bus).
+
+    Examples
+    --------
+    >>> harmonic_currents_kva({"six_pulse_with_choke": 100.0})[:2].round(4).tolist()
+    [36.3238, 12.4539]
+    """
+    total = np.zeros(len(ORDERS))
+    for front_end, kva in drive_kva_by_front_end.items():
+        total += float(kva) * drive_spectrum(front_end=front_end)[1]
+    return total
 
 
 def transformer_impedance_pct(rated_kva) -> np.ndarray:
@@ -139,11 +170,12 @@ def short_circuit_kva(transformer_kva, impedance_pct, supply_fault_kva=np.inf) -
         return np.where(total > 0, 1.0 / total, np.nan)
 
 
-def voltage_harmonics_pct(drive_kva, short_circuit_kva_, thd_i_frac: float = DRIVE_THD_I_FRAC
-                          ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def voltage_harmonics_pct(drive_kva, short_circuit_kva_, thd_i_frac: float = DRIVE_THD_I_FRAC,
+                          currents_kva: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Each harmonic's voltage at the bus and the total distortion [% of the fundamental voltage].
 
-    V_h = h I_h S_drive / S_sc per unit: the drives' harmonic current I_h S_drive (per unit of S_sc's base)
+    V_h = h I_h / S_sc per unit: the drives' harmonic current I_h (kVA at the bus voltage; six-pulse drives of
+    ``drive_kva`` at ``thd_i_frac``, or ``currents_kva`` of :func:`harmonic_currents_kva`, shape (n_sites, n_orders))
     through the supply's reactance at order h, h / S_sc.
 
     Returns
@@ -162,8 +194,10 @@ def voltage_harmonics_pct(drive_kva, short_circuit_kva_, thd_i_frac: float = DRI
     (9.081, 12.962)
     """
     orders, current = drive_spectrum(thd_i_frac)
-    ratio = np.asarray(drive_kva, dtype=float) / np.asarray(short_circuit_kva_, dtype=float)
-    v_h = 100.0 * ratio[:, None] * (orders * current)[None, :]
+    s_sc = np.asarray(short_circuit_kva_, dtype=float)
+    if currents_kva is None:
+        currents_kva = np.asarray(drive_kva, dtype=float)[:, None] * current[None, :]
+    v_h = 100.0 * np.asarray(currents_kva, dtype=float) * orders[None, :] / s_sc[:, None]
     return orders, v_h, np.sqrt((v_h ** 2).sum(axis=1))
 
 
@@ -227,13 +261,13 @@ def resonant_harmonic(order_low, order_high, orders=None, band_frac: float = RES
     """
     lo = np.asarray(order_low, dtype=float)
     hi = np.asarray(order_high, dtype=float)
-    h = np.asarray(sorted(SIX_PULSE_SPECTRUM) if orders is None else orders, dtype=float)
+    h = np.asarray(ORDERS if orders is None else orders, dtype=float)
     near = (lo[:, None] <= h[None, :] * (1.0 + band_frac)) & (hi[:, None] >= h[None, :] * (1.0 - band_frac))
     first = np.argmax(near, axis=1)
     return np.where(near.any(axis=1), h[first], 0.0).astype(int)
 
 
-def drive_input_kva(rated_p_kw, efficiency_frac) -> np.ndarray:
+def drive_input_kva(rated_p_kw, efficiency_frac, displacement_pf=FRONT_END_DEFAULTS[DEFAULT_FRONT_END][0]) -> np.ndarray:
     """A drive's fundamental input at its motor's rating [kVA]: P_rated / (efficiency x displacement power factor).
 
     Examples
@@ -241,7 +275,8 @@ def drive_input_kva(rated_p_kw, efficiency_frac) -> np.ndarray:
     >>> round(float(drive_input_kva(90.0, 0.95)[()]), 3)
     97.667
     """
-    return np.asarray(rated_p_kw, dtype=float) / (np.asarray(efficiency_frac, dtype=float) * DRIVE_DISPLACEMENT_PF)
+    return np.asarray(rated_p_kw, dtype=float) / (np.asarray(efficiency_frac, dtype=float)
+                                                  * np.asarray(displacement_pf, dtype=float))
 
 
 def monthly_peak_mean_kva(index: pd.DatetimeIndex, p_kw: np.ndarray, q_kvar: np.ndarray) -> float:
@@ -258,6 +293,16 @@ def monthly_peak_mean_kva(index: pd.DatetimeIndex, p_kw: np.ndarray, q_kvar: np.
         return float("nan")
     month = np.asarray(index.year * 12 + index.month)
     return float(pd.Series(s).groupby(month).max().mean())
+
+
+def _option_front_ends(case, option_ids) -> np.ndarray:
+    """The front end of each option's drive, in the operating result's option order (the default where the
+    catalogue gives none or the option has no drive)."""
+    options = case.options
+    given = (dict(zip(options["option_id"].astype(str), options["drive_front_end"]))
+             if options is not None and "drive_front_end" in options else {})
+    return np.array([given.get(str(o)) if given.get(str(o)) in FRONT_END_DEFAULTS else DEFAULT_FRONT_END
+                     for o in option_ids], dtype=object)
 
 
 def _finding(row: dict) -> str:
@@ -311,8 +356,9 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
 
     Notes
     -----
-    Drive-fed today: assets whose ``speed_control`` is ``drive``; with the plan also those whose project is a drive
-    option (models.options.DRIVE_TECHNOLOGIES). Capacitors: the fixed banks always, a stepped bank from none to
+    Drive-fed today: assets whose ``speed_control`` is ``drive`` (six-pulse with a choke); with the plan also those
+    whose project is a drive option (models.options.DRIVE_TECHNOLOGIES), with the option's ``drive_front_end``;
+    ``front_ends`` lists the drives' kVA by front end. A resonance is tuned only to an order the drives draw. Capacitors: the fixed banks always, a stepped bank from none to
     all its kVAr, and the plan's motor-terminal capacitors (all in service). The bus voltage is the highest rated
     voltage of the site's drive-fed motors (of all its motors when none): a site is one bus, and its finding says
     so where its motors run at several voltages. The current limits apply at the point of
@@ -335,10 +381,15 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                 chosen[asset_pos[a]] = option_pos[o]
     tech = np.asarray(op.technologies, dtype=object)[chosen]
     on_drive_plan = on_drive_today | np.isin(tech, DRIVE_TECHNOLOGIES)
+    # each drive's front end: today's drives the default; a drive option's its own (a motor on a drive today keeps
+    # that drive unless its project brings one)
+    option_front_end = _option_front_ends(case, op.option_ids)
+    front_today = np.full(len(chosen), DEFAULT_FRONT_END, dtype=object)
+    front_plan = np.where(np.isin(tech, DRIVE_TECHNOLOGIES), option_front_end[chosen], front_today)
     terminal_kvar = np.where(tech == "capacitor", op.capacitor_q_kvar[np.arange(len(chosen)), chosen], 0.0)
     terminal_kvar = np.nan_to_num(terminal_kvar)
-    kva = drive_input_kva(assets["rated_p_kw"].to_numpy(dtype=float),
-                          assets["rated_efficiency_pct"].to_numpy(dtype=float) / 100.0)
+    rated = assets["rated_p_kw"].to_numpy(dtype=float)
+    eff = assets["rated_efficiency_pct"].to_numpy(dtype=float) / 100.0
     v_v = assets["rated_v_v"].to_numpy(dtype=float)
     site_of = assets["site_id"].to_numpy(dtype=object)
 
@@ -367,20 +418,26 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
         banks = caps[caps["site_id"].astype(str) == site_id]
         fixed_kvar = float(banks.loc[banks["control"] == "fixed", "rated_q_kvar"].sum())
         stepped_kvar = float(banks.loc[banks["control"] != "fixed", "rated_q_kvar"].sum())
-        for scenario, on_drive, extra_kvar in (("today", on_drive_today, 0.0),
-                                               ("plan", on_drive_plan, float(terminal_kvar[members].sum()))):
+        for scenario, on_drive, front, extra_kvar in (("today", on_drive_today, front_today, 0.0),
+                                                      ("plan", on_drive_plan, front_plan, float(terminal_kvar[members].sum()))):
             if scenario == "plan" and plan is None:
                 continue
             drives = members[on_drive[members]]
-            drive_kva = float(kva[drives].sum())
+            by_front_end: dict[str, float] = {}
+            for fe in np.unique(front[drives]).tolist():
+                mine = drives[front[drives] == fe]
+                by_front_end[fe] = float(drive_input_kva(rated[mine], eff[mine], FRONT_END_DEFAULTS[fe][0]).sum())
+            drive_kva = float(sum(by_front_end.values()))
+            currents = harmonic_currents_kva(by_front_end)
             bus_v = float(np.max(v_v[drives])) if len(drives) else (float(np.max(v_v[members])) if len(members) else 400.0)
-            orders, v_h, thd = voltage_harmonics_pct([drive_kva], [s_sc[k]])
+            orders, v_h, thd = voltage_harmonics_pct([drive_kva], [s_sc[k]], currents_kva=currents[None, :])
             worst = int(np.argmax(v_h[0]))
             limit_h, limit_thd = voltage_limits_pct([bus_v])
             # the point of common coupling: the transformer's primary where the site takes a higher voltage than
             # its motors' bus (its short-circuit power the source's, unknown when not given), else the bus
             pcc_kva = fault[k] if supply_v[k] > PCC_ABOVE_BUS_RATIO * bus_v else s_sc[k]
-            tdd = DRIVE_THD_I_FRAC * drive_kva / demand * 100.0 if demand > 0 and np.isfinite(pcc_kva) else float("nan")
+            tdd = (100.0 * float(np.sqrt((currents ** 2).sum())) / demand if demand > 0 and np.isfinite(pcc_kva)
+                   else float("nan"))
             q_lo, q_hi = fixed_kvar + extra_kvar, fixed_kvar + extra_kvar + stepped_kvar
             q_lo_on = q_lo if q_lo > 0 else (min(stepped_kvar, float(banks.get("step_q_kvar", pd.Series(dtype=float))
                                                                      .fillna(banks["rated_q_kvar"] / 6.0).min()))
@@ -396,7 +453,9 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                                              else float("nan")),
                    "capacitor_kvar_min": q_lo, "capacitor_kvar_max": q_hi,
                    "resonance_order_low": h_lo, "resonance_order_high": h_hi,
-                   "resonant_harmonic": int(resonant_harmonic([h_lo], [h_hi])[0]) if q_hi > 0 and drive_kva > 0 else 0}
+                   "resonant_harmonic": (int(resonant_harmonic([h_lo], [h_hi], orders[currents > 0])[0])
+                                         if q_hi > 0 and drive_kva > 0 else 0),
+                   "front_ends": ", ".join(f"{fe} {kva_:,.0f} kVA" for fe, kva_ in sorted(by_front_end.items()))}
             if not np.isfinite(s_sc[k]):
                 for name in ("voltage_thd_pct", "worst_harmonic_pct", "current_tdd_pct", "current_tdd_limit_pct",
                              "resonance_order_low", "resonance_order_high"):

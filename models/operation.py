@@ -556,20 +556,43 @@ def _induction_on_line(params, shaft_kw, running) -> _Point:
     return _Point(p, q, shaft_kw, _zero_where_stopped(speed, stopped), loss, _zeros(p.shape), _zeros(p.shape))
 
 
-def _induction_on_drive(arr, params, shaft_kw, speed_frac, running) -> _Point:
+def _front_end(option: Mapping | None) -> str:
+    """The front end of an option's drive (:data:`models.drives.DEFAULT_FRONT_END` where it gives none)."""
+    value = None if option is None else option.get("drive_front_end")
+    return value if isinstance(value, str) and value in drives.FRONT_END_DEFAULTS else drives.DEFAULT_FRONT_END
+
+
+def _with_front_end_losses(p_kw: np.ndarray, q_kvar: np.ndarray, loss_drive_kw: np.ndarray, front_end: str):
+    """Input, reactive power and drive loss with the front end's losses (:data:`models.drives.FRONT_END_LOSS_RATIO`
+    times a six-pulse drive's): the extra loss is drawn at the front end's displacement power factor."""
+    ratio = drives.FRONT_END_LOSS_RATIO[front_end]
+    if ratio == 1.0:
+        return p_kw, q_kvar, loss_drive_kw
+    extra = (ratio - 1.0) * loss_drive_kw
+    dpf = drives.FRONT_END_DEFAULTS[front_end][0]
+    tan_phi = np.sqrt(max(1.0 - dpf * dpf, 0.0)) / dpf
+    return p_kw + extra, q_kvar + extra * tan_phi, loss_drive_kw + extra
+
+
+def _induction_on_drive(arr, params, shaft_kw, speed_frac, running, front_end: str = drives.DEFAULT_FRONT_END) -> _Point:
     """An induction motor fed by a drive (today's drive, or one added): its losses at the drive's speed and
-    the shaft's torque (:func:`models.induction.input_on_drive_kw`), not at the line's frequency."""
+    the shaft's torque (:func:`models.induction.input_on_drive_kw`), not at the line's frequency; the drive's
+    displacement power factor, harmonic current and losses those of its front end."""
     p_in = np.asarray(induction.input_on_drive_kw(params, np.where(running, shaft_kw, 0.0), speed_frac), dtype=float)
     safe_speed = np.where(speed_frac > 0.05, speed_frac, 0.05)
     torque_frac = np.where(running, shaft_kw / arr["rated_p_kw"][:, None] / safe_speed, 0.0)
     s_kva = drives.drive_rated_s_kva_for_motor(arr["rated_p_kw"], arr["eff_frac"], arr["pf"])
     motor_loss = p_in - shaft_kw
+    dpf, thd_i = drives.FRONT_END_DEFAULTS[front_end]
     fed = drives.induction_motor_with_added_drive(np.where(running, p_in, 0.0), np.clip(speed_frac, 0.0, 1.5),
                                                   np.clip(torque_frac, 0.0, 2.0), s_kva[:, None],
-                                                  motor_losses_kw=np.where(running, motor_loss, 0.0))
-    p = np.where(running, fed.p_kw, 0.0)
-    q = np.where(running, fed.q_kvar, 0.0)
-    loss_drive = np.where(running, fed.drive_loss_kw, 0.0)
+                                                  motor_losses_kw=np.where(running, motor_loss, 0.0), dpf=dpf,
+                                                  thd_i_frac=thd_i)
+    p_fed, q_fed, loss_fed = _with_front_end_losses(np.asarray(fed.p_kw, dtype=float), np.asarray(fed.q_kvar, dtype=float),
+                                                    np.asarray(fed.drive_loss_kw, dtype=float), front_end)
+    p = np.where(running, p_fed, 0.0)
+    q = np.where(running, q_fed, 0.0)
+    loss_drive = np.where(running, loss_fed, 0.0)
     loss_motor = np.where(running, motor_loss + fed.pwm_extra_loss_kw, 0.0)
     speed = np.where(running, speed_frac * arr["sync_rpm"][:, None], 0.0)
     return _Point(p, q, shaft_kw, speed, loss_motor, loss_drive, _zeros(p.shape))
@@ -802,20 +825,24 @@ def _synchronous_on_drive(arr, load: _Load, option: Mapping, kind: str) -> _Poin
     shaft, speed_frac = _speed_controlled(arr, load)
     safe = np.where(speed_frac > 0.05, speed_frac, 0.05)
     torque = np.where(load.running, shaft / arr["rated_p_kw"][:, None] / safe, 0.0)
+    front_end = _front_end(option)
+    dpf, thd_i = drives.FRONT_END_DEFAULTS[front_end]
     pt = synchronous.drive_fed_synchronous_operating_point(np.clip(speed_frac, 0.0, 1.0), np.clip(torque, 0.0, 1.5),
-                                                           arr["rated_p_kw"], eff, kind)
+                                                           arr["rated_p_kw"], eff, kind, dpf=dpf, thd_i_frac=thd_i)
     run = load.running
     shaft_out = np.where(run, np.asarray(pt.p_shaft_kw, dtype=float), 0.0)
     motor_loss = (np.asarray(pt.motor_copper_loss_kw) + np.asarray(pt.motor_iron_loss_kw)
                   + np.asarray(pt.motor_friction_loss_kw) + np.asarray(pt.motor_stray_loss_kw))
-    return _Point(np.where(run, pt.p_in_kw, 0.0), np.where(run, pt.q_kvar, 0.0), shaft_out,
+    p_in, q, loss_drive = _with_front_end_losses(np.asarray(pt.p_in_kw, dtype=float), np.asarray(pt.q_kvar, dtype=float),
+                                                 np.asarray(pt.drive_loss_kw, dtype=float), front_end)
+    return _Point(np.where(run, p_in, 0.0), np.where(run, q, 0.0), shaft_out,
                   np.where(run, speed_frac * arr["sync_rpm"][:, None], 0.0), np.where(run, motor_loss, 0.0),
-                  np.where(run, pt.drive_loss_kw, 0.0), _zeros(shaft.shape))
+                  np.where(run, loss_drive, 0.0), _zeros(shaft.shape))
 
 
-def _added_drive(arr, existing, load: _Load) -> _Point:
+def _added_drive(arr, existing, load: _Load, option: Mapping | None = None) -> _Point:
     shaft, speed_frac = _speed_controlled(arr, load)
-    return _induction_on_drive(arr, existing, shaft, speed_frac, load.running)
+    return _induction_on_drive(arr, existing, shaft, speed_frac, load.running, _front_end(option))
 
 
 #: Caution on a wound-field machine run at a setpoint of its own (power factor or kVAr) rather than following the site.
@@ -1083,7 +1110,7 @@ def _evaluate_running(option: Mapping, arr, existing, load: _Load, site_other=No
     if tech in ("pm_drive", "reluctance_drive"):
         return _synchronous_on_drive(arr, load, option, "pm" if tech == "pm_drive" else "synrm")
     if tech == "add_drive":
-        return _added_drive(arr, existing, load)
+        return _added_drive(arr, existing, load, option)
     if tech == "wound_field":
         return _wound_field(arr, load, option, site_other)
     if tech == "capacitor":

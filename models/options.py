@@ -13,6 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from models.drives import DEFAULT_FRONT_END
+
 #: Currency and year of the shipped catalogue's illustrative prices (data/defaults/options.csv, its first line).
 ILLUSTRATIVE_PRICES_CURRENCY = "EUR"
 ILLUSTRATIVE_PRICES_YEAR = 2025
@@ -132,6 +134,15 @@ def check_options(checker) -> pd.DataFrame:
     frame["efficiency_class"] = frame["efficiency_class"].where(frame["efficiency_class"].notna(), default_class)
     frame["speed_remedy"] = frame["speed_remedy"].fillna("none")
     frame["wfsm_mode"] = frame["wfsm_mode"].fillna("power_factor")
+    if "drive_front_end" in frame:
+        given = frame["drive_front_end"].notna().to_numpy()
+        for i in np.flatnonzero(given & ~np.isin(frame["technology"].to_numpy(dtype=object), DRIVE_TECHNOLOGIES)):
+            checker.warn(i, "drive_front_end", frame["drive_front_end"].iloc[i],
+                         f"a {technology_name(frame['technology'].iloc[i])} has no drive of its own: the front end is not read",
+                         "give a front end on pm_drive, reluctance_drive and add_drive rows only")
+        frame["drive_front_end"] = frame["drive_front_end"].fillna(DEFAULT_FRONT_END)
+    else:
+        frame["drive_front_end"] = DEFAULT_FRONT_END
     frame["applications"] = frame["applications"].fillna("")
     if "hazardous_areas" in frame:  # written as the register writes them ("Zone 1 | Zone 2"), kept as classes
         frame["hazardous_areas"] = frame["hazardous_areas"].fillna("")

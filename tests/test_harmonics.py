@@ -157,3 +157,42 @@ def test_a_plan_past_the_limits_is_found(small_site):
     assert row["drive_kva"] == pytest.approx(400.0)
     assert row["voltage_thd_pct"] == pytest.approx(8.2954, abs=1e-4)
     assert "voltage distortion about 8.3 %" in row["finding"] and "harmonic study" in row["finding"]
+
+
+def test_front_ends_have_their_own_spectra():
+    # hand calculation H5: twelve-pulse and active-front-end drives of 100 kVA on 2,000 kVA
+    orders, i12 = harmonics.drive_spectrum(front_end="twelve_pulse")
+    assert i12[list(orders).index(5)] == 0.0 and i12[list(orders).index(7)] == 0.0
+    for front_end, expected in (("twelve_pulse", 7.834), ("active_front_end", 2.028)):
+        currents = harmonics.harmonic_currents_kva({front_end: 100.0})
+        _, _, thd = harmonics.voltage_harmonics_pct([100.0], [2000.0], currents_kva=currents[None, :])
+        assert thd[0] == pytest.approx(expected, abs=5e-4)
+
+
+def test_drives_of_two_front_ends_add_their_currents_order_by_order():
+    # hand calculation H5: 100 kVA six-pulse + 100 kVA active front end on 2,000 kVA
+    currents = harmonics.harmonic_currents_kva({"six_pulse_with_choke": 100.0, "active_front_end": 100.0})
+    assert currents[0] == pytest.approx(38.954, abs=5e-4)
+    _, v_h, thd = harmonics.voltage_harmonics_pct([200.0], [2000.0], currents_kva=currents[None, :])
+    assert v_h[0, 0] == pytest.approx(9.739, abs=5e-4)
+    assert thd[0] == pytest.approx(14.780, abs=5e-4)
+    assert float(np.sqrt((currents ** 2).sum())) == pytest.approx(43.658, abs=5e-4)
+
+
+def test_the_screen_takes_each_plan_drives_front_end(small_site, tmp_path):
+    # a plan whose drive option has an active front end: its drive's input at a displacement power factor of 1.00
+    # and the active front end's spectrum (hand calculation H5's factors), beside today's six-pulse drive (H4)
+    case, op = small_site
+    from dataclasses import replace
+
+    options = case.options.copy()
+    options.loc[options["option_id"] == "pm_drive", "drive_front_end"] = "active_front_end"
+    screen = harmonics.site_screen(replace(case, options=options), op,
+                                   pd.DataFrame({"asset_id": ["P1"], "option_id": ["pm_drive"]})).set_index("scenario")
+    afe_kva = 15.0 / 0.9289  # P1's rated input at a displacement power factor of 1.00 (H4's efficiency)
+    planned = screen.loc["plan"]
+    assert planned["drive_kva"] == pytest.approx(8.6391 + afe_kva, abs=1e-4)
+    assert planned["front_ends"] == f"active_front_end {afe_kva:,.0f} kVA, six_pulse_with_choke 9 kVA"
+    # the currents of the two drives added order by order (H5's factors 1.037824 and 1.315192 on H4's 8.6391 kVA and
+    # 15 / 0.9289 = 16.1481 kVA): root sum of squares 4.0503 kVA (hand calculation H6)
+    assert planned["current_tdd_pct"] == pytest.approx(100.0 * 4.0503 / planned["max_demand_kva"], rel=2e-5)

@@ -740,3 +740,51 @@ def test_a_capacitor_s_kvarh_sums_are_numpy_s():
     assert_allclose(lag, np.maximum(q, 0.0).sum(axis=1), rtol=1e-12)
     assert_allclose(lead, np.maximum(-q, 0.0).sum(axis=1), rtol=1e-12)
     assert (lead > 0).all() and (lag > 0).all()
+
+
+def test_a_drives_front_end_sets_its_reactive_power_and_losses(tmp_path):
+    """The same drive option with each front end (models.drives.FRONT_END_DEFAULTS and FRONT_END_LOSS_RATIO, common
+    practice from memory): an active front end draws no fundamental kVAr (displacement power factor 1.00) and loses
+    1.5 times a six-pulse drive; a twelve-pulse one has the six-pulse's 0.97 and loses 1.35 times as much, its extra
+    loss drawn at that power factor: tan(acos 0.97) = sqrt(1 - 0.9409) / 0.97 = 0.243105 / 0.97 = 0.250624 (hand
+    calculation)."""
+    assets = [["P1", "S1", "Cooling water pump", "pump", "15", "4", "50", "400", "IE3", "", "", "1465", "2015", "0",
+               "fixed", "LP1", "", "", "high"]]
+    folder = cb.write_case(tmp_path / "c", assets=assets, capacitors=[], duty=[],
+                           profiles=_constant_profile("LP1", 70.0, 48))
+    header = "option_id,technology,efficiency_class,speed_remedy,equipment_cost_coef,drive_cost_coef,drive_front_end,life_yr\n"
+    rows = ["keep,existing,,none,0,0,,15"]
+    for tech in ("pm_drive", "add_drive"):
+        for fe in ("six_pulse_with_choke", "twelve_pulse", "active_front_end"):
+            rows.append(f"{tech}_{fe},{tech},{'IE5' if tech == 'pm_drive' else ''},none,100,100,{fe},20")
+    (folder / "options.csv").write_text(header + "\n".join(rows) + "\n", encoding="utf-8")
+    case, problems = load_case(folder, mode="strict")
+    assert case is not None, [p.message for p in problems]
+    r = operate(case)
+    drive = 1  # models.operation.LOSS_KINDS: motor, drive, excitation
+    for tech in ("pm_drive", "add_drive"):
+        six, twelve, afe = (r.option_position(f"{tech}_{fe}") for fe in ("six_pulse_with_choke", "twelve_pulse",
+                                                                         "active_front_end"))
+        loss = r.losses_kwh[0, six, drive]
+        assert loss > 0
+        assert r.losses_kwh[0, afe, drive] == pytest.approx(1.5 * loss, rel=1e-12)
+        assert r.energy_kwh[0, afe] - r.energy_kwh[0, six] == pytest.approx(0.5 * loss, rel=1e-9)
+        assert r.lagging_kvarh[0, afe] == pytest.approx(0.0, abs=1e-9)
+        assert r.lagging_kvarh[0, six] > 0
+        assert r.energy_kwh[0, twelve] - r.energy_kwh[0, six] == pytest.approx(0.35 * loss, rel=1e-9)
+        assert r.lagging_kvarh[0, twelve] - r.lagging_kvarh[0, six] == pytest.approx(0.35 * loss * 0.250624, rel=1e-5)
+
+
+def test_a_front_end_on_an_option_without_a_drive_is_warned_and_a_blank_one_is_six_pulse(tmp_path):
+    folder = cb.write_case(tmp_path / "c", capacitors=[])
+    header = "option_id,technology,efficiency_class,speed_remedy,equipment_cost_coef,drive_cost_coef,drive_front_end,life_yr\n"
+    (folder / "options.csv").write_text(header + "keep,existing,,none,0,0,,15\nie3,induction,IE3,none,100,0,twelve_pulse,20\n"
+                                        "pm_drive,pm_drive,IE5,none,100,100,,20\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    said = [p for p in problems if p.column == "drive_front_end"]
+    assert len(said) == 1 and said[0].severity == "warning" and "has no drive of its own" in said[0].rule
+    assert case.options.set_index("option_id").loc["pm_drive", "drive_front_end"] == "six_pulse_with_choke"
+    (folder / "options.csv").write_text(header + "keep,existing,,none,0,0,,15\npm_drive,pm_drive,IE5,none,100,100,"
+                                        "eighteen_pulse,20\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None and any(p.column == "drive_front_end" and p.severity == "error" for p in problems)
