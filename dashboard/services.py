@@ -1199,6 +1199,27 @@ def measure_text(view_: View, result, asset_id: str) -> str:
             "and hours for 1-4 weeks costing less than that is worth doing first.")
 
 
+def verified_text(view_: View, result, asset_id: str) -> str:
+    """What the Asset page says of the savings measured after this motor's project ("" where the case's
+    verification table has none): :func:`models.verification.verify_savings`, computed once per result."""
+    from models.verification import verify_savings
+
+    table = engine().derived(view_.key, "verified", (id(result), result.assumptions),
+                             lambda: verify_savings(view_.case, result))
+    rows = table[table["asset_id"].astype(str) == str(asset_id)]
+    if rows.empty:
+        return ""
+    r = rows.iloc[0]
+    label = option_labels(result.results).get(str(r["option_id"]), str(r["option_id"]))
+    if not np.isfinite(float(r["avoided_kwh"])):
+        return f"Measured for {label}: {r['finding']}."
+    value = float(r["verified_value"])
+    return (f"Measured after {label}: {float(r['avoided_kwh']):,.0f} kWh avoided over {float(r['reporting_days']):.0f} "
+            f"days (the baseline adjusted by {r['basis']})"
+            + (f", worth {money_text(value, view_.currency)}" if np.isfinite(value) else "")
+            + f"; {r['finding']}.")
+
+
 def _plan_buys(result, best: pd.DataFrame, bought: np.ndarray, plan_yr: np.ndarray | None = None,
                purchase_yr: np.ndarray | None = None) -> np.ndarray:
     """What the plan buys for each asset, and why nothing where it buys nothing though the best option pays;

@@ -95,6 +95,10 @@ def cmd_check(args: argparse.Namespace) -> int:
     failed = list(case.assets.loc[failed_assets(case.assets), "asset_id"])
     if failed:  # said here, so that a mark on the wrong row is seen before the results are read
         print(f"  {counted(len(failed), 'motor')} marked as failed (asset register column failed): {', '.join(failed)}")
+    if len(case.verification):
+        print(f"  Savings verification: {counted(len(case.verification), 'measurement')} of "
+              f"{counted(case.verification['asset_id'].nunique(), 'asset')} (drivecase run sets them beside the "
+              "savings predicted)")
     if len(case.bill_history):
         print(f"  Bill history: {counted(len(case.bill_history), 'bill')} of "
               f"{counted(case.bill_history['site_id'].nunique(), 'site')} (drivecase bill and run set the model "
@@ -632,6 +636,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     _print_scenarios(case, result)
     _print_measure_first(case, result)
     _print_harmonic_screen(Path(args.out) / "harmonic_screen.csv")
+    _print_verified(case, Path(args.out) / "savings_verified.csv")
     _print_calibration_summary(case, Path(args.out) / "calibration.csv")
     print(f"\nFiles written to {args.out}: {', '.join(p.name for p in written)}")
     if args.no_risk:
@@ -681,6 +686,25 @@ def _print_harmonic_screen(path: Path) -> None:
         print(f"  {row['site_id']}: {row['finding']}")
     if unscreened:
         print(f"  {unscreened} site{'s' if unscreened != 1 else ''} not screened: give transformer_kva in sites.csv")
+
+
+def _print_verified(case, path: Path) -> None:
+    """The savings measured after the projects against their predictions (savings_verified.csv), one line per
+    asset; nothing where the case gives no measurements."""
+    if not len(case.verification):
+        return
+    import pandas as pd
+
+    from models.wording import money_text
+
+    table = pd.read_csv(path, keep_default_na=False, na_values=[""])
+    print("\nSavings verified (savings_verified.csv): measured after each project, beside its prediction")
+    for row in table.to_dict("records"):
+        measured = ("" if row["avoided_kwh"] != row["avoided_kwh"] else
+                    f"{row['avoided_kwh']:,.0f} kWh avoided ({row['basis']}), "
+                    + ("" if row["verified_value"] != row["verified_value"]
+                       else f"{money_text(row['verified_value'], case.settings.currency)}, "))
+        print(f"  {row['asset_id']} ({row['option_id']}): {measured}{row['finding']}")
 
 
 def _print_scenarios(case, result) -> None:

@@ -128,6 +128,10 @@ class Case:
     bill_history : pandas.DataFrame
         The site's bills the case gives, to compare the model of today's fleet with (possibly empty):
         site_id, month (``YYYY-MM``), energy_kwh and, where given, peak_kw, reactive_kvarh, amount.
+    verification : pandas.DataFrame
+        Energy measured on motors before and after their projects (possibly empty): asset_id, option_id,
+        period (baseline or reporting), start_date and end_date (``YYYY-MM-DD``, read as dates), energy_kwh and,
+        where given, running_h and production (:mod:`models.verification`).
     options : pandas.DataFrame
         The options catalogue (the case's own, or the default catalogue when the case has none).
     profiles : dict of str -> pandas.Series
@@ -163,6 +167,7 @@ class Case:
     finance: object = None
     problems: tuple[Problem, ...] = ()
     bill_history: pd.DataFrame = field(default_factory=pd.DataFrame)
+    verification: pd.DataFrame = field(default_factory=pd.DataFrame)
     scenarios: tuple = ()
 
     @property
@@ -2207,6 +2212,63 @@ def _check_capacitors(checker: _TableChecker, site_ids: set[str] | None) -> None
 _MONTH_PATTERN = re.compile(r"^(\d{4})-(\d{2})$")
 
 
+def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, option_techs: dict | None) -> None:
+    """The savings verification table: known assets and options (not today's motor), dates written YYYY-MM-DD with
+    the last day on or after the first, no more running hours than the period has, one option per asset; an asset
+    with a baseline and no reporting period yet (or the other way round) is said."""
+    v = checker.frame
+    for i in np.flatnonzero(v["asset_id"].notna().to_numpy() & (asset_ids is not None)
+                            & ~v["asset_id"].astype(str).isin(asset_ids or set()).to_numpy()):
+        checker.err(i, "asset_id", v["asset_id"].iloc[i], "unknown asset_id (not in the asset register)",
+                    _near_id_hint(v["asset_id"].iloc[i], asset_ids, ""))
+    if option_techs is not None:
+        for i, option in enumerate(v["option_id"]):
+            if option is None or (isinstance(option, float) and np.isnan(option)):
+                continue
+            if str(option) not in option_techs:
+                checker.err(i, "option_id", option, "unknown option_id (not in the options catalogue)",
+                            _near_id_hint(option, set(option_techs), ""))
+            elif option_techs[str(option)] == "existing":
+                checker.err(i, "option_id", option, "the option installed cannot be today's motor kept as it is",
+                            "name the project installed (a rewind, a new motor, a drive, a capacitor...)")
+    days = []
+    for i, (start, end) in enumerate(zip(v["start_date"], v["end_date"])):
+        dates = []
+        for column, value in (("start_date", start), ("end_date", end)):
+            text = "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value).strip()[:10]
+            try:
+                dates.append(_dt.date.fromisoformat(text) if text else None)
+            except ValueError:
+                checker.err(i, column, value, "a date is written YYYY-MM-DD", "e.g. 2026-03-01")
+                dates.append(None)
+        if dates[0] is not None and dates[1] is not None and dates[1] < dates[0]:
+            checker.err(i, "end_date", end, "the last day is before the first", "end_date >= start_date")
+            dates[1] = None
+        days.append((dates[1] - dates[0]).days + 1 if None not in dates else np.nan)
+        if None not in dates:
+            v.loc[v.index[i], "start_date"], v.loc[v.index[i], "end_date"] = dates[0].isoformat(), dates[1].isoformat()
+    days = np.asarray(days, dtype=float)
+    hours = v["running_h"].to_numpy(dtype=float)
+    for i in np.flatnonzero(hours > 24.0 * days):
+        checker.err(i, "running_h", hours[i], f"more running hours than the period's {int(days[i])} days hold",
+                    "running_h <= 24 x (end_date - start_date + 1)")
+    assets = v["asset_id"].astype(str).to_numpy()
+    for asset in sorted(set(assets[v["asset_id"].notna().to_numpy()])):
+        rows = np.flatnonzero(assets == asset)
+        options = {str(o) for o in v["option_id"].iloc[rows] if o is not None and o == o}
+        if len(options) > 1:
+            checker.err(int(rows[-1]), "option_id", v["option_id"].iloc[rows[-1]],
+                        f"asset {asset} names more than one option installed ({', '.join(sorted(options))})",
+                        "one project per asset: give every row of the asset the option installed")
+        periods = set(v["period"].iloc[rows].dropna().astype(str))
+        if periods == {"baseline"}:
+            checker.warn(int(rows[0]), "period", "baseline", f"asset {asset} has a baseline and no reporting period yet: "
+                         "nothing to verify", "add the measurements after the project as period reporting")
+        elif periods == {"reporting"}:
+            checker.warn(int(rows[0]), "period", "reporting", f"asset {asset} has no baseline: its savings cannot be "
+                         "verified", "add the measurements of today's motor before the project as period baseline")
+
+
 def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> None:
     """The bill history: known sites, months written YYYY-MM, one bill per site and month (a month may come
     from several years; each is compared with the same calendar month of the analysis year)."""
@@ -2585,6 +2647,12 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
     if "options" in checkers:
         options_frame = options_module.check_options(checkers["options"])
         _check_price_currency(options_frame, checkers["options"].raw.source, settings.currency, problems)
+    if "verification" in checkers:
+        asset_ids = (set(frames["assets"]["asset_id"].dropna().astype(str)) if "assets" in frames
+                     and raw.tables["assets"].readable else None)
+        option_techs = (dict(zip(options_frame["option_id"].astype(str), options_frame["technology"]))
+                        if options_frame is not None else None)
+        _check_verification(checkers["verification"], asset_ids, option_techs)
     def unread(table: str) -> bool:  # (a file whose reading failed has said why: "no rows" would only repeat it)
         source = checkers[table].raw.source
         return any(p.severity == "error" and p.file == source for p in raw.problems)
@@ -2636,6 +2704,8 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
     empty_duty = _TableChecker(io.RawTable("duty", "duty.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_bills = _TableChecker(io.RawTable("bill_history", "bill_history.csv", pd.DataFrame(),
                                             np.array([], dtype=int))).run()
+    empty_verification = _TableChecker(io.RawTable("verification", "verification.csv", pd.DataFrame(),
+                                                   np.array([], dtype=int))).run()
     case = Case(
         path=Path(path),
         settings=settings,
@@ -2644,6 +2714,7 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
         capacitors=frames.get("capacitors", empty_caps),
         duty=frames.get("duty", empty_duty),
         bill_history=frames.get("bill_history", empty_bills),
+        verification=frames.get("verification", empty_verification),
         options=options_frame,
         profiles=profiles,
         profile_info=profile_info,

@@ -35,8 +35,12 @@ SCENARIOS_FILE = "scenarios.csv"
 MEASURE_FIRST_FILE = "measure_first.csv"
 #: The sites' harmonic screen, today and with the plan (:func:`models.harmonics.site_screen`; with the case only).
 HARMONIC_SCREEN_FILE = "harmonic_screen.csv"
+#: The savings measured after each project against its prediction (:func:`models.verification.verify_savings`; with
+#: the case only: the case's verification table).
+VERIFIED_FILE = "savings_verified.csv"
 #: Every file a run may write into its folder.
-ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE, HARMONIC_SCREEN_FILE)
+ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE, HARMONIC_SCREEN_FILE,
+                             VERIFIED_FILE)
 #: The list of the files a run wrote, kept in its folder: a later run writes over those, never over a file of the
 #: same name it did not write.
 RUN_MANIFEST_NAME = ".drivecase-run"
@@ -316,8 +320,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     With the ``case`` (:class:`models.case.Case`) run, :data:`RUN_SETTINGS_FILE` (:func:`run_settings`),
     :data:`DEFAULTS_FILE` (:func:`defaulted_fields`), :data:`SCENARIOS_FILE`
     (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) and
-    :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`) and :data:`HARMONIC_SCREEN_FILE`
-    (:func:`models.harmonics.site_screen`) are added.
+    :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`), :data:`HARMONIC_SCREEN_FILE`
+    (:func:`models.harmonics.site_screen`) and :data:`VERIFIED_FILE` (:func:`models.verification.verify_savings`)
+    are added.
     """
     results = result.results.copy()
     if case is not None:
@@ -376,6 +381,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         from models.harmonics import site_screen
 
         tables[HARMONIC_SCREEN_FILE] = site_screen(case, result.physics.operation, result.plan)
+        from models.verification import verify_savings
+
+        tables[VERIFIED_FILE] = verify_savings(case, result)
     return tables
 
 

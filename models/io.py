@@ -46,7 +46,8 @@ REFERENCE_DIR = DATA_DIR / "reference"
 DEMO_DIR = DATA_DIR / "demo"
 
 #: Tables of the case format, in the order they are read and documented.
-CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty", "options", "bill_history")
+CASE_TABLES: tuple[str, ...] = ("assets", "sites", "capacitors", "profiles", "duty", "options", "bill_history",
+                                 "verification")
 #: Where the default options catalogue lives (used when a case has no options table).
 DEFAULT_OPTIONS_PATH = DATA_DIR / "defaults" / "options.csv"
 #: Tables a case must have.
@@ -1857,6 +1858,8 @@ TABLE_NOTES: dict[str, str] = {
     "options": "Options catalogue (optional; without it the default catalogue is used): technologies and cost models.",
     "bill_history": "Bill history (optional): one row per site and billing month, as the utility billed it, to set "
                     "today's fleet as modelled beside it.",
+    "verification": "Savings verification (optional): energy measured on a motor before its project (baseline) and "
+                    "after it (reporting), to set the savings achieved beside the savings predicted.",
 }
 
 

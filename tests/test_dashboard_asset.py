@@ -174,3 +174,26 @@ def test_the_performance_note_speaks_of_a_throttle_only_where_a_drive_would_repl
     on_drive = asset.update("HRW-D01", None, None)[12]
     assert throttled.startswith("Against today's shaft load.") and "replaces the throttle" in throttled
     assert on_drive == "Against today's shaft load."
+
+
+def test_the_asset_page_says_what_was_measured_after_the_project(tmp_path_factory, monkeypatch):
+    """A case with a verification table: the Asset page's summary carries the asset's row of
+    models.verification.verify_savings (hand calculation V1 of docs/derivations/savings-verification.md: 900 kWh
+    avoided over 14 days, the baseline adjusted by production)."""
+    from test_dashboard_services import write_small_case
+
+    folder = write_small_case(tmp_path_factory.mktemp("cases") / "verified", IDS)
+    (folder / "verification.csv").write_text(
+        "asset_id,option_id,period,start_date,end_date,energy_kwh,running_h,production\n"
+        "HRW-P01,ie4,baseline,2026-01-05,2026-01-18,12000,,40000\n"
+        "HRW-P01,ie4,reporting,2026-03-02,2026-03-15,12600,,45000\n", encoding="utf-8")
+    eng = services.Engine(upload_root=tmp_path_factory.mktemp("uploads"))
+    entry, problems = eng.set_default_case(folder)
+    assert entry is not None, problems
+    monkeypatch.setattr(services, "_ENGINE", eng)
+    summary = asset.update("HRW-P01", None, None)[0]
+    said = [c for c in summary if getattr(c, "id", None) == "asset-verified"]
+    assert len(said) == 1
+    assert said[0].children.startswith("Measured after New IE4 induction motor: 900 kWh avoided over 14 days "
+                                       "(the baseline adjusted by production)")
+    assert not [c for c in asset.update("KGQ-F01", None, None)[0] if getattr(c, "id", None) == "asset-verified"]

@@ -192,6 +192,9 @@ def update(asset_id, session, edits, requested=None):
     measure = services.measure_text(view, result, asset_id)
     if measure:
         summary.append(html.Div(measure, className="small", id="asset-measure"))
+    verified = services.verified_text(view, result, asset_id)
+    if verified:  # the savings measured after its project (the case's verification table)
+        summary.append(html.Div(verified, className="small", id="asset-verified"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),

@@ -470,12 +470,33 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         "emission_rows": em_rows, "emission_numeric": (1, 2, 3),
         "cautions": list(content.CAUTIONS) + list(content.REQUEST_CAUTIONS),
         **_harmonic_context(case, result, scope),
+        **_verified_context(case, result, scope, cur),
         "appendix": appendix,
         "appendix_headers": ["Option", f"Capital [{cur}]", f"Saving [{cur}/yr]", f"NPV [{cur}]", "IRR",
                              "Simple payback [yr]", "CO2 [t/yr]", "Flags"],
         "appendix_numeric": (1, 2, 3, 4, 5, 6),
         "files": files, "figures": figs,
     }
+
+
+def _verified_context(case, result, scope: content.Scope, cur: str) -> dict[str, Any]:
+    """The savings measured after the projects of the assets in scope, beside their predictions (section 9)."""
+    from models.verification import verify_savings
+
+    table = verify_savings(case, result)
+    table = table[table["asset_id"].isin(list(scope.asset_ids))]
+    labels = option_labels(result.results)
+    rows = []
+    for r in table.to_dict("records"):
+        rows.append(row([cell(f"{r['asset_id']}: {labels.get(r['option_id'], r['option_id'])}"), cell(r["basis"]),
+                         num(r["adjusted_baseline_kwh"], signed=False), num(r["reporting_kwh"], signed=False),
+                         num(r["avoided_kwh"]), num(r["predicted_avoided_kwh"]),
+                         num(r["realisation_pct"], "{:.0f}", signed=False), num(r["verified_value"]),
+                         cell(r["finding"], "small")]))
+    return {"verified_rows": rows, "verified_numeric": (2, 3, 4, 5, 6, 7),
+            "verified_headers": ["Project", "Baseline adjusted by", "Adjusted baseline [kWh]", "Measured after [kWh]",
+                                 "Avoided [kWh]", "Predicted [kWh]", "Of the prediction [%]", f"Value [{cur}]",
+                                 "Finding"]}
 
 
 def _order_span(low: float, high: float) -> str:

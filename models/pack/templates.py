@@ -162,6 +162,11 @@ REPORT = _MACROS + """<!DOCTYPE html>
 <h3>Modelled baselines to compare with the measurements</h3>
 <p class="small">Mean kW over running hours; power factor energy-weighted (kWh over kVAh) at the motor terminals; speed is the running-hour mean.</p>
 {{ table(mv_headers, mv_rows, mv_numeric) }}
+{% if verified_rows %}
+<h3>Savings measured so far</h3>
+<p class="small">The energy measured on each motor before its project and after it (the case's verification table), the baseline set to the reporting period's production, running hours or days (IPMVP's avoided energy), beside the model's prediction for the same conditions. A ratio adjustment through zero: a full IPMVP report fits a regression over several baseline intervals and states its uncertainty.</p>
+{{ table(verified_headers, verified_rows, verified_numeric) }}
+{% endif %}
 
 <h2 id="emissions">10. Emissions</h2>
 <p>{{ emissions_text }}</p>
