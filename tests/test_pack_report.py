@@ -1162,3 +1162,27 @@ def test_the_cautions_carry_each_sites_harmonic_screen(demo_run_physics):
     html = render_report(case, result, scope)
     assert "Harmonic screen by site" in html and "IEEE 519-2014" in html
     assert "A first screen, not a harmonic study" in html and SCREEN_CAUTION.split(":")[0] in html
+
+
+def test_a_drive_projects_record_carries_its_sites_harmonic_finding(demo_run_physics):
+    # the demo plan puts drives on site HRW, whose screen with the plan finds distortion past IEEE 519's limits
+    # (harmonic_screen.csv): the decision record of each of its drive projects says so, the fleet plan's finding
+    from models.options import DRIVE_TECHNOLOGIES
+    from models.pack import content
+    from models.pack.decision_record import record_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    scope = content.select_scope(case, result, None, True)
+    screen = content.plan_harmonic_screen(case, result).set_index(["site_id", "scenario"])
+    finding = screen.loc[("HRW", "plan"), "finding"]
+    assert "harmonic study" in finding
+    rec = scope.recommended
+    drives = rec[rec["technology"].isin(DRIVE_TECHNOLOGIES) & (rec["site_id"] == "HRW")]
+    assert len(drives)
+    cautions = record_context(case, result, scope, str(drives["asset_id"].iloc[0]))["cautions"]
+    assert any(c.startswith("harmonic screen of site HRW with the fleet plan: " + finding) for c in cautions)
+    lines = rec[~rec["technology"].isin(DRIVE_TECHNOLOGIES + ("capacitor",)) & (rec["option_id"] != rec["keep_option_id"])]
+    if len(lines):
+        other = record_context(case, result, scope, str(lines["asset_id"].iloc[0]))["cautions"]
+        assert not any(c.startswith("harmonic screen") for c in other)

@@ -1229,19 +1229,43 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["category", "item", "detail", "assets", "response"])
 
 
+#: The fleet plan's harmonic screen of the last plan asked for (each decision record reads its site's row).
+_SCREEN: dict = {}
+
+
+def plan_harmonic_screen(case, result) -> pd.DataFrame:
+    """:func:`models.harmonics.site_screen` of the fleet plan, made once per plan frame and case while they live."""
+    from models.harmonics import site_screen
+
+    kept = _SCREEN.get("last")
+    if kept is not None and kept[0]() is result.plan and kept[1] is case:
+        return kept[2]
+    table = site_screen(case, result.physics.operation, result.plan[["asset_id", "option_id"]])
+    ref = weakref.ref(result.plan)
+    _SCREEN["last"] = (ref, case, table)
+    weakref.finalize(result.plan, _forget_screen, ref)
+    return table
+
+
+def _forget_screen(ref) -> None:
+    """Let go of the screen of a plan that is gone (not of one screened after it)."""
+    if _SCREEN.get("last", (None,))[0] is ref:
+        del _SCREEN["last"]
+
+
 def harmonic_screen(case, result, scope: Scope | None = None) -> pd.DataFrame:
     """The harmonic screen (:func:`models.harmonics.site_screen`) of the sites of the assets in scope, today and
     with the fleet plan, the scope's recommended projects in place of the plan's on their assets."""
     from models.harmonics import site_screen
 
+    if scope is None:
+        return plan_harmonic_screen(case, result)
     projects = result.plan[["asset_id", "option_id"]]
-    sites = None
-    if scope is not None:
-        chosen = scope.chosen[["asset_id", "option_id"]]
-        projects = pd.concat([projects[~projects["asset_id"].isin(chosen["asset_id"])], chosen], ignore_index=True)
-        sites = set(case.assets.loc[case.assets["asset_id"].isin(list(scope.asset_ids)), "site_id"].astype(str))
+    chosen = scope.chosen[["asset_id", "option_id"]]
+    projects = pd.concat([projects[~projects["asset_id"].isin(chosen["asset_id"])], chosen], ignore_index=True)
+    sites = set(case.assets.loc[case.assets["asset_id"].isin(list(scope.asset_ids)), "site_id"].astype(str))
     table = site_screen(case, result.physics.operation, projects)
-    return table if sites is None else table[table["site_id"].isin(sites)].reset_index(drop=True)
+    return table[table["site_id"].isin(sites)].reset_index(drop=True)
 
 
 def technology_cautions(technology: str, speed_change_rpm: float) -> list[str]:

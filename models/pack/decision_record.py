@@ -17,7 +17,7 @@ from models.case import power_label, rating_in_unit
 from models.defaults import QUALITY_PENALTY_PCT
 from models.end_of_life import COST_COLUMNS, STRATEGY_NAMES, failure_law_caution, rewind_life_note
 from models.information import measure_first_of, value_of_measuring_option
-from models.options import technology_name
+from models.options import DRIVE_TECHNOLOGIES, technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 from models.plan import option_labels
@@ -303,6 +303,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
     if not is_keep:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
+    if not is_keep and (str(rec["technology"]) in DRIVE_TECHNOLOGIES or str(rec["technology"]) == "capacitor"):
+        # a drive or a capacitor changes the site's harmonics: the fleet plan's screen of its site
+        screen = content.plan_harmonic_screen(case, result)
+        mine = screen[(screen["site_id"] == str(x["site_id"])) & (screen["scenario"] == "plan")]
+        if len(mine) and not str(mine["finding"].iloc[0]).startswith(("within", "no drives")):
+            cautions.append(f"harmonic screen of site {x['site_id']} with the fleet plan: {mine['finding'].iloc[0]} "
+                            "(harmonic_screen.csv; a first screen to IEEE 519, not a study)")
     if is_keep and area not in ("none", "nan"):  # kept as it is, the motor stays in its area: its Ex care goes on
         cautions.append(f"hazardous area ({area.replace('_', ' ')}): a motor kept in service there keeps its "
                         "inspections under IEC 60079-17 by a competent person, and any repair is done to "
