@@ -388,7 +388,9 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                "unchanged duty, two weeks each side; Option B (all parameters metered) for a change in speed control, a "
                "full duty cycle of about four weeks each side. Compare with the modelled baselines below; a measured "
                "baseline more than about 10 % away from the model calls for a re-run before the purchase order. A motor "
-               "that has failed is logged after the change only, against the modelled baseline.")
+               "that has failed is logged after the change only, against the modelled baseline. Once installed, give "
+               "each project's measurements in the case's verification table: the run then sets the energy it avoided "
+               "beside the prediction (savings_verified.csv).")
 
     em_rows = [row([cell(project_text(r.asset_id, r.option_id)), num(r.energy_saved_kwh_per_yr), num(r.co2_avoided_t_per_yr, "{:,.2f}"),
                     num(r.abatement_cost_per_t, "{:,.0f}", signed=False)]) for r in chosen.itertuples(index=False)]
