@@ -2276,6 +2276,33 @@ def end_of_life_summary(frame: pd.DataFrame | None, asset_id: str, currency: str
                             failure_law_caution(power_unit=power_unit))
 
 
+def spares_text(view_: View, result, asset_id: str) -> str:
+    """What the Asset page says of the spares of this motor's group of interchangeable motors ("" where it has no
+    end-of-life comparison): :func:`models.spares.spares_table`, computed once per result."""
+    from models.spares import SPARE_UPKEEP_FRAC, TARGET_FILL_FRAC, spares_table
+
+    table = engine().derived(view_.key, "spares", (id(result), result.assumptions),
+                             lambda: spares_table(view_.case, result))
+    mine = table[[str(asset_id) in ids.split(" ") for ids in table["asset_ids"]]]
+    if mine.empty:
+        return ""
+    r = mine.iloc[0]
+    others = int(r["motors"]) - 1
+    failures = f"{float(r['failures_per_yr']):.2f} times a year"
+    group = (f"It and {others} other motor{'s' if others != 1 else ''} of the case ({r['group']}) fail about "
+             f"{failures} together" if others
+             else f"It is the case's only motor of its kind ({r['group']}) and fails about {failures}")
+    economic = int(r["economic_spares"])
+    keep = (f"keeping {economic} spare{'s' if economic != 1 else ''} on the shelf costs least: "
+            f"{money_text(float(r['saving_at_economic_per_yr']), view_.currency)} a year of downtime saved, net of "
+            f"holding {'them' if economic != 1 else 'it'} (price x (discount rate + {SPARE_UPKEEP_FRAC:.0%}))"
+            if economic else "no spare on the shelf pays for its holding cost at this price and cost of downtime")
+    return (f"Spares. {group}; "
+            f"{int(r['spares_for_target'])} spare{'s' if int(r['spares_for_target']) != 1 else ''} would cover "
+            f"{TARGET_FILL_FRAC:.0%} of failures (rewound and put back on the shelf, a rotating pool), and {keep}. "
+            "Confirm that they share frame, mounting and shaft.")
+
+
 def asset_end_of_life(view_: View, result, asset_id: str) -> EndOfLifeSummary:
     """The end-of-life comparison of one asset under the view's assumptions (:func:`end_of_life_summary`)."""
     labels = option_labels(result.results)

@@ -38,9 +38,11 @@ HARMONIC_SCREEN_FILE = "harmonic_screen.csv"
 #: The savings measured after each project against its prediction (:func:`models.verification.verify_savings`; with
 #: the case only: the case's verification table).
 VERIFIED_FILE = "savings_verified.csv"
+#: The spares of each group of interchangeable motors (:func:`models.spares.spares_table`; with the case only).
+SPARES_FILE = "spares.csv"
 #: Every file a run may write into its folder.
 ALL_RUN_FILES = RUN_FILES + (RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE, HARMONIC_SCREEN_FILE,
-                             VERIFIED_FILE)
+                             VERIFIED_FILE, SPARES_FILE)
 #: The list of the files a run wrote, kept in its folder: a later run writes over those, never over a file of the
 #: same name it did not write.
 RUN_MANIFEST_NAME = ".drivecase-run"
@@ -321,8 +323,8 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
     :data:`DEFAULTS_FILE` (:func:`defaulted_fields`), :data:`SCENARIOS_FILE`
     (:func:`models.comparison.case_scenarios`: the case's named scenarios run on the same physics) and
     :data:`MEASURE_FIRST_FILE` (:func:`models.information.measure_first`), :data:`HARMONIC_SCREEN_FILE`
-    (:func:`models.harmonics.site_screen`) and :data:`VERIFIED_FILE` (:func:`models.verification.verify_savings`)
-    are added.
+    (:func:`models.harmonics.site_screen`), :data:`VERIFIED_FILE` (:func:`models.verification.verify_savings`) and
+    :data:`SPARES_FILE` (:func:`models.spares.spares_table`) are added.
     """
     results = result.results.copy()
     if case is not None:
@@ -384,6 +386,9 @@ def run_tables(result, case=None) -> dict[str, pd.DataFrame]:
         from models.verification import verify_savings
 
         tables[VERIFIED_FILE] = verify_savings(case, result)
+        from models.spares import spares_table
+
+        tables[SPARES_FILE] = spares_table(case, result)
     return tables
 
 

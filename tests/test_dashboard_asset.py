@@ -197,3 +197,18 @@ def test_the_asset_page_says_what_was_measured_after_the_project(tmp_path_factor
     assert said[0].children.startswith("Measured after New IE4 induction motor: 900 kWh avoided over 14 days "
                                        "(the baseline adjusted by production)")
     assert not [c for c in asset.update("KGQ-F01", None, None)[0] if getattr(c, "id", None) == "asset-verified"]
+
+
+def test_the_end_of_life_says_what_spares_its_group_needs():
+    """The end-of-life text names the motor's group of interchangeable motors and its spares, from
+    models.spares.spares_table (the same row as spares.csv)."""
+    from models.spares import spares_table
+
+    children = asset.end_of_life("HRW-P01", None, None)[1]
+    said = [c for c in children if getattr(c, "id", None) == "asset-spares"]
+    assert len(said) == 1
+    view = services.view(None, None)
+    table = spares_table(view.case, view.result())
+    row = table[table["asset_ids"].str.split(" ").map(lambda ids: "HRW-P01" in ids)].iloc[0]
+    assert f"({row['group']})" in said[0].children and f"about {row['failures_per_yr']:.2f} times a year" in said[0].children
+    assert f"{int(row['spares_for_target'])} spare" in said[0].children

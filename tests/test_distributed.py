@@ -21,7 +21,7 @@ from models import scenario
 from models.case import load_case
 from models.distributed import run_distributed
 from models.exports import (DEFAULTS_FILE, HARMONIC_SCREEN_FILE, MEASURE_FIRST_FILE, RUN_FILES, RUN_SETTINGS_FILE,
-                            SCENARIOS_FILE, VERIFIED_FILE, csv_bytes, run_tables)
+                            SCENARIOS_FILE, SPARES_FILE, VERIFIED_FILE, csv_bytes, run_tables)
 from models.operation import site_partition
 
 distributed = pytest.importorskip("distributed")
@@ -53,7 +53,7 @@ def fleet_local(fleet):
 def _assert_same_files(local, remote, case=None) -> None:
     a, b = run_tables(local, case), run_tables(remote, case)
     names = list(RUN_FILES) + ([RUN_SETTINGS_FILE, DEFAULTS_FILE, SCENARIOS_FILE, MEASURE_FIRST_FILE, HARMONIC_SCREEN_FILE,
-                                VERIFIED_FILE] if case is not None else [])
+                                VERIFIED_FILE, SPARES_FILE] if case is not None else [])
     assert list(a) == names == list(b)
     for name in names:
         assert csv_bytes(a[name]) == csv_bytes(b[name]), f"{name} differs between the engines"

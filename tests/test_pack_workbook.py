@@ -871,3 +871,21 @@ def test_harmonics_sheet_lists_each_sites_screen(plan_pack, small):
     got = [[ws.cell(r, 1).value, ws.cell(r, 2).value, ws.cell(r, finding_col).value] for r in range(6, 6 + len(expected))]
     assert got == expected[["site_id", "scenario", "finding"]].values.tolist()
     assert got[0][2].startswith("not screened: give the site's transformer_kva")
+
+
+def test_end_of_life_sheet_lists_the_spares_of_the_groups_in_scope(plan_pack, small):
+    """The End of life sheet ends with models.spares.spares_table's rows for the groups of the assets in scope."""
+    from models.spares import spares_table
+
+    case, result = small
+    ws = load_workbook(plan_pack)["End of life"]
+    title = next(r for r in range(1, ws.max_row + 1) if ws.cell(r, 1).value == "Spares for groups of interchangeable motors")
+    assert ws.cell(title + 3, 1).value == "Group"
+    from models.pack import content
+
+    scope = set(content.select_scope(case, result, None, True).asset_ids)
+    expected = spares_table(case, result)
+    expected = expected[[bool(scope & set(ids.split(" "))) for ids in expected["asset_ids"]]]
+    assert len(expected)
+    got = [ws.cell(r, 1).value for r in range(title + 4, title + 5 + len(expected))]
+    assert got == expected["group"].tolist() + [None]

@@ -243,6 +243,9 @@ def end_of_life(asset_id, session, edits):
         text = [html.P(eol.message)]
     else:
         text = [html.P(eol.text), html.P(eol.caution, className="page-intro")]
+    spare = services.spares_text(view, result, asset_id)
+    if spare:  # the spares of its group of interchangeable motors (a rotating pool)
+        text.append(html.P(spare, id="asset-spares"))
     return (figures.end_of_life_costs(eol.strategies, view.currency, eol.message), text,
             services.fleet_rule_rows(result, view.power_unit).to_dict("records"), fleet_rule_columns(view.power_unit),
             services.fleet_rules_scope_text(result, view.case.assets["rated_p_kw"], view.currency, view.power_unit))

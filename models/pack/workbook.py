@@ -984,7 +984,8 @@ def _data_quality(ws: Worksheet, case, result, scope: content.Scope) -> None:
     _widths(ws, {1: 14, 2: 34, 3: 24, 4: 60, 5: 16, 6: 50, 7: 40})
 
 
-def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_power_unit: str = "kW") -> None:
+def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_power_unit: str = "kW",
+                 case=None) -> None:
     _title(ws, "End of life: expected present cost of replace now, replace at failure and rewind at failure")
     eol = result.end_of_life
     row = 3
@@ -1031,8 +1032,32 @@ def _end_of_life(ws: Worksheet, result, scope: content.Scope, f: _Formats, case_
         rules = rules.assign(decision=rules["decision"].map(lambda d: DECISION_NAMES.get(d, d)))
     headers = {"min_rated_p_kw": f"From rating [{unit}]", "max_rated_p_kw": f"To rating [{unit}]",
                "min_hours_to_replace_h_per_yr": "Replace rather than rewind from [h/yr]", "decision": "Decision", "rule": "Rule"}
-    _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
+    row = _table(ws, row + 1, rules, [(c, headers.get(c, c), None) for c in rules.columns])
+    if case is not None:
+        _spares(ws, row, case, result, scope, f)
     _widths(ws, {1: 14, 2: 10, 3: 16, 4: 18, 5: 18, 6: 16, 7: 18, 8: 18, 9: 20, 10: 18, 11: 14, 12: 30})
+
+
+def _spares(ws: Worksheet, row: int, case, result, scope: content.Scope, f: _Formats) -> None:
+    """The spares of the groups of interchangeable motors the scope's assets belong to (models.spares)."""
+    from models.spares import SPARE_UPKEEP_FRAC, TARGET_FILL_FRAC, spares_table
+
+    put_text(ws, row, 1, "Spares for groups of interchangeable motors").font = _BOLD
+    table = spares_table(case, result)
+    mine = set(scope.asset_ids)
+    table = table[[bool(mine & set(ids.split(" "))) for ids in table["asset_ids"]]]
+    put_text(ws, row + 1, 1, f"A rotating pool: a failed motor is swapped for a spare and rewound to become the next. "
+             f"Spares for {TARGET_FILL_FRAC:.0%} of failures to find one, and the number that costs least with the "
+             f"downtime it avoids against holding the spares (their price x (discount rate + {SPARE_UPKEEP_FRAC:.0%} "
+             "upkeep) a year). Motors of one group must also share frame, mounting and shaft: confirm on site.")
+    cols = [("group", "Group", None), ("motors", "Motors", "0"), ("asset_ids", "Assets", None),
+            ("failures_per_yr", "Failures a year", "0.000"), ("rewind_turnaround_h", "Rewind turnaround [h]", "0"),
+            ("outage_without_spare_h", "Outage without a spare [h]", "0"),
+            ("spares_for_target", f"Spares for {TARGET_FILL_FRAC:.0%}", "0"), ("economic_spares", "Economic spares", "0"),
+            ("fill_at_economic_frac", "Their fill rate", f.frac), ("spare_price", f"Spare price [{f.currency}]", f.money),
+            ("downtime_cost_without_per_yr", f"Downtime without spares [{f.currency}/yr]", f.money),
+            ("saving_at_economic_per_yr", f"Saving with the economic spares [{f.currency}/yr]", f.money)]
+    _table(ws, row + 3, table, cols)
 
 
 def _risk(ws: Worksheet, case, result, scope: content.Scope, f: _Formats) -> None:
@@ -1235,7 +1260,7 @@ def build_workbook(case, result, scope: content.Scope) -> bytes:
     _bills(sheets["Bills"], result, f)
     _harmonics(sheets["Harmonics"], case, result, scope)
     _data_quality(sheets["Data quality"], case, result, scope)
-    _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit)
+    _end_of_life(sheets["End of life"], result, scope, f, case.settings.power_unit, case=case)
     _risk(sheets["Risk"], case, result, scope, f)
     _read_me(sheets["Read me"], case, result, scope, f)
     _mark_every_sheet(book, case.settings)
