@@ -47,6 +47,7 @@ from models.case import default_value, load_case, power_label, rating_in_unit
 from models.operation import performance_curves
 from models.options import speed_remedy_name, technology_name
 from models.plan import low_data_quality, option_labels, plan_capital_spent, plan_purchase_yr
+from models.risk import break_even_words
 from models.problems import Problem, error, has_errors, missing_table, ordered
 from models.profiles import asset_loads
 from models.wording import counted, money_text
@@ -1277,7 +1278,10 @@ def asset_choice_text(result, asset_id: str, currency: str) -> str:
         why = str(_plan_buys(result, best.iloc[:1], np.array([""], dtype=object))[0])
         bought = ("The budgeted plan buys " + why.replace("nothing: ", "nothing for it: ", 1) + "."
                   if why else "The budgeted plan buys nothing for it.")
-    return f"{alone} {bought}"
+    even = "" if str(top["technology"]) == "existing" else break_even_words(
+        float(top["npv"]), float(top["break_even_price_mult"]), float(top["break_even_running_h_per_yr"]),
+        float(top["running_h_per_yr"]), float(top["break_even_load_mult"]), float(top["break_even_capital_mult"]))
+    return f"{alone} {bought}" + (f" {top['label']}: {even[0].lower()}{even[1:]}" if even else "")
 
 
 def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:

@@ -561,6 +561,112 @@ def monte_carlo(
     return MonteCarloResult(project_id=ids, npv=npv_out, payback_yr=payback_out, discount_rate_frac=rate)
 
 
+#: The factors each project's break-even is found for (:func:`break_even_multipliers`): the multiplier on the
+#: electricity prices, the running hours, the shaft load and the capital at which its NPV is zero.
+BREAK_EVEN_FACTORS: tuple[str, ...] = ("energy_price_mult", "hours_mult", "load_mult", "capital_mult")
+
+
+def break_even_multipliers(amounts: np.ndarray, component_names: tuple[str, ...],
+                           response: Mapping[str, ComponentResponse], discount_rate_frac: float, *,
+                           tax_rate_frac: float = 0.0, base: Mapping[str, float] | None = None,
+                           factors: tuple[str, ...] = BREAK_EVEN_FACTORS) -> dict[str, np.ndarray]:
+    """Each project's break-even multiplier of each factor: the value at which its NPV is zero, the others at base.
+
+    The re-pricing of :func:`monte_carlo` is linear in a multiplier factor, NPV(m) = NPV(0) + m (NPV(1) - NPV(0)),
+    so the break-even is m* = NPV(0) / (NPV(0) - NPV(1)), from two prices of the flows (the factor at 0 and at
+    its base of 1). One call prices them all: a draw at base, then one per factor at 0.
+
+    Parameters
+    ----------
+    amounts, component_names, response, discount_rate_frac, tax_rate_frac
+        As :func:`monte_carlo`.
+    base : mapping of str to float, optional
+        Every factor's base value (default 1 for a multiplier, 0 for a ``*_delta_frac``, for the factors the
+        responses name and the discount rate's).
+    factors : tuple of str
+        The multiplier factors to find break-evens of.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        Per factor, shape (n_projects,): m* >= 0, or NaN where the NPV does not cross zero at a multiplier of 0
+        or more (the factor does not move it, or it stays on one side).
+
+    Examples
+    --------
+    A project of capital 1,000 in year 0 and energy savings of 150 a year for 10 years at 5 %: NPV(price x m) =
+    -1000 + 150 m a(10, 5 %), a = 7.721735; zero at m = 1000 / (150 x 7.721735) = 0.863364; the capital may rise
+    to 150 x 7.721735 / 1000 = 1.15826 times itself (hand calculation).
+
+    >>> amounts = np.zeros((1, 11, 2)); amounts[0, 0, 0] = -1000.0; amounts[0, 1:, 1] = 150.0
+    >>> names = ("capital", "savings_energy")
+    >>> resp = {"capital": ComponentResponse(("capital_mult",)),
+    ...         "savings_energy": ComponentResponse(("energy_price_mult", "hours_mult"))}
+    >>> m = break_even_multipliers(amounts, names, resp, 0.05)
+    >>> round(float(m["energy_price_mult"][0]), 6), round(float(m["capital_mult"][0]), 6), bool(np.isnan(m["load_mult"][0]))
+    (0.863364, 1.15826, True)
+    """
+    amounts = np.asarray(amounts, dtype=float)
+    names = set()
+    for rule in response.values():
+        names.update(rule.multipliers)
+        if rule.escalation_delta is not None:
+            names.add(rule.escalation_delta)
+    names.add("discount_rate_delta_frac")
+    start = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in names}
+    start.update(base or {})
+    draws = {name: np.full(1 + len(factors), float(value)) for name, value in start.items()}
+    for k, factor in enumerate(factors):
+        if factor in draws:
+            draws[factor][1 + k] = 0.0
+    npv = monte_carlo(amounts, component_names, draws, response, discount_rate_frac, tax_rate_frac=tax_rate_frac).npv
+    out = {}
+    scale = np.maximum(np.abs(amounts).sum(axis=(1, 2)), 1.0)
+    for k, factor in enumerate(factors):
+        at_one, at_zero = npv[0], npv[1 + k]
+        slope = at_one - at_zero
+        moves = (np.abs(slope) > 1e-9 * scale) & (factor in draws)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            m = np.where(moves, -at_zero / np.where(moves, slope, 1.0), np.nan)
+        out[factor] = np.where(m >= 0.0, m, np.nan)
+    return out
+
+
+def break_even_words(npv: float, price_mult: float, running_h: float, today_running_h: float, load_mult: float,
+                     capital_mult: float, year_h: float = 8760.0) -> str:
+    """A project's break-evens in a sentence ("" where none is within reach).
+
+    Examples
+    --------
+    >>> break_even_words(5000.0, 0.83, 7076.0, 8760.0, 0.83, 1.2)
+    'Its NPV stays positive down to 0.83 times the electricity prices, 7,076 running hours a year (8,760 today) and 0.83 times the shaft load, and up to 1.20 times its capital.'
+    >>> break_even_words(-800.0, 1.3, float("nan"), 4000.0, float("nan"), 0.7)
+    'Its NPV turns positive at 1.30 times the electricity prices, or at 0.70 times its capital.'
+    """
+    finite = lambda v: v == v and abs(v) != float("inf")  # noqa: E731
+    parts = []
+    if finite(price_mult):
+        parts.append(f"{price_mult:.2f} times the electricity prices")
+    if finite(running_h) and running_h <= year_h:
+        parts.append(f"{running_h:,.0f} running hours a year ({today_running_h:,.0f} today)")
+    if finite(load_mult):
+        parts.append(f"{load_mult:.2f} times the shaft load")
+    capital = f"{capital_mult:.2f} times its capital" if finite(capital_mult) else ""
+    if not parts and not capital:
+        return ""
+    joiner = " and " if npv >= 0 else " or "  # each bound holds with the others at today's; below zero each alone lifts it
+    listed = ", ".join(parts[:-1]) + (joiner if len(parts) > 1 else "") + parts[-1] if parts else ""
+    if npv >= 0:
+        text = "Its NPV stays positive " + (f"down to {listed}" if listed else "")
+        if capital:
+            text += (", and up to " if listed else "up to ") + capital
+    else:
+        text = "Its NPV turns positive " + (f"at {listed}" if listed else "")
+        if capital:
+            text += (", or at " if listed else "at ") + capital
+    return text + "."
+
+
 # ---------------------------------------------------------------------------------------------------
 # A portfolio of projects started in different years
 # ---------------------------------------------------------------------------------------------------

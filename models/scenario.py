@@ -53,6 +53,11 @@ TORNADO_RANGES = {
 }
 
 
+#: The results' break-even columns (:func:`models.risk.break_even_multipliers`): the electricity price multiplier,
+#: the running hours a year, the shaft load multiplier and the capital multiplier at which the project's NPV is zero.
+BREAK_EVEN_COLUMNS: tuple[str, ...] = ("break_even_price_mult", "break_even_running_h_per_yr", "break_even_load_mult",
+                                       "break_even_capital_mult")
+
 #: Progress note of a run with risk once the risk is done and the fleet plan, solved beside it, is not
 #: yet: a note on the stage "risk", not a stage of its own.
 PLAN_FINISHING = "fleet plan (finishing)"
@@ -667,6 +672,14 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     # keeping today's motor invests nothing: no payback to state (blank), and none within the horizon
     results.loc[nothing, ["simple_payback_yr", "discounted_payback_yr"]] = np.nan
     results.loc[nothing, ["payback_within_horizon", "simple_payback_lost_again", "discounted_payback_lost_again"]] = False
+    # where each project's NPV crosses zero, each factor alone (the re-pricing the tornado and the Monte Carlo use)
+    even = risk.break_even_multipliers(flows.amounts, flows.component_names, risk.default_response(assumptions), d,
+                                       tax_rate_frac=assumptions.tax_rate_frac)
+    results["break_even_price_mult"] = even["energy_price_mult"]
+    results["break_even_running_h_per_yr"] = even["hours_mult"] * op.running_h[rows]
+    results["break_even_load_mult"] = even["load_mult"]
+    results["break_even_capital_mult"] = even["capital_mult"]
+    results.loc[nothing, list(BREAK_EVEN_COLUMNS)] = np.nan
     results["best_for_asset"] = _best_flags(results, str(op.option_ids[0]))
     cash = flows.to_frame(drop_zero=True)
     code = cash["project"].cat.codes.to_numpy()  # the project's row in rows/cols (no text splitting)

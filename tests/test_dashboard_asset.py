@@ -212,3 +212,20 @@ def test_the_end_of_life_says_what_spares_its_group_needs():
     row = table[table["asset_ids"].str.split(" ").map(lambda ids: "HRW-P01" in ids)].iloc[0]
     assert f"({row['group']})" in said[0].children and f"about {row['failures_per_yr']:.2f} times a year" in said[0].children
     assert f"{int(row['spares_for_target'])} spare" in said[0].children
+
+
+def test_the_asset_choice_says_where_the_best_option_breaks_even():
+    """The choice line names the best option's break-evens (results' break_even_* columns, in the words of
+    models.risk.break_even_words)."""
+    from models.risk import break_even_words
+
+    view = services.view(None, None)
+    res = view.result().results
+    top = res[(res["asset_id"] == "HRW-P01") & res["best_for_asset"]].iloc[0]
+    words = break_even_words(float(top["npv"]), float(top["break_even_price_mult"]),
+                             float(top["break_even_running_h_per_yr"]), float(top["running_h_per_yr"]),
+                             float(top["break_even_load_mult"]), float(top["break_even_capital_mult"]))
+    assert words
+    summary = asset.update("HRW-P01", None, None)[0]
+    choice = [c for c in summary if getattr(c, "id", None) == "asset-choice"][0].children
+    assert choice.endswith(f"{top['label']}: {words[0].lower()}{words[1:]}")

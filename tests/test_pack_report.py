@@ -1186,3 +1186,21 @@ def test_a_drive_projects_record_carries_its_sites_harmonic_finding(demo_run_phy
     if len(lines):
         other = record_context(case, result, scope, str(lines["asset_id"].iloc[0]))["cautions"]
         assert not any(c.startswith("harmonic screen") for c in other)
+
+
+def test_a_records_reasons_say_where_its_project_breaks_even(demo_run_physics):
+    from models.pack import content
+    from models.pack.decision_record import record_context
+    from models.risk import break_even_words
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    scope = content.select_scope(case, result, None, True)
+    rec = scope.recommended
+    rec = rec[rec["option_id"] != rec["keep_option_id"]].iloc[0]
+    words = break_even_words(float(rec["npv"]), float(rec["break_even_price_mult"]),
+                             float(rec["break_even_running_h_per_yr"]), float(rec["running_h_per_yr"]),
+                             float(rec["break_even_load_mult"]), float(rec["break_even_capital_mult"]))
+    assert words and float(rec["break_even_capital_mult"]) > 1.0 > float(rec["break_even_price_mult"])
+    reasons = record_context(case, result, scope, str(rec["asset_id"]))["reasons"]
+    assert words + " Each bound holds with the other inputs as modelled." in reasons

@@ -431,3 +431,49 @@ class TestNewMachinesLossBand:
         sav = SimpleNamespace(saving=np.zeros((1, 2, 4)), baseline_bills=bills)
         cost = scenario._loss_band_cost_per_yr(op, sav, np.array([11.0]), np.zeros((1, 2)))
         assert_allclose(cost, [[0.0, 20.33898]], rtol=1e-6)
+
+
+def test_break_even_multipliers_against_numpy_financial():
+    # a project: capital 10,000 in year 0, energy savings 1,800 a year and demand savings 400 a year for 8 years,
+    # residual 1,000 at the end; at 7 %. numpy_financial's npv as reference for each part:
+    # NPV(price x m) = -10000 + 1000/1.07^8 + m (2200 a(8)), zero at m = (10000 - 1000/1.07^8) / (2200 a(8));
+    # NPV(hours x m) moves the energy savings only (demand at the peak stays): m = (10000 - 1000/1.07^8 - 400 a(8))
+    # / (1800 a(8)); NPV(capital x m) moves the capital and the residual: m = 2200 a(8) / (10000 - 1000/1.07^8).
+    import numpy_financial as npf
+
+    from models.risk import ComponentResponse, break_even_multipliers
+
+    names = ("capital", "residual", "savings_energy", "savings_demand")
+    amounts = np.zeros((1, 9, 4))
+    amounts[0, 0, 0] = -10_000.0
+    amounts[0, 8, 1] = 1_000.0
+    amounts[0, 1:, 2] = 1_800.0
+    amounts[0, 1:, 3] = 400.0
+    response = {"capital": ComponentResponse(("capital_mult",)), "residual": ComponentResponse(("capital_mult",)),
+                "savings_energy": ComponentResponse(("energy_price_mult", "hours_mult", "load_mult")),
+                "savings_demand": ComponentResponse(("energy_price_mult", "load_mult"))}
+    got = break_even_multipliers(amounts, names, response, 0.07)
+    annuity = npf.npv(0.07, [0.0] + [1.0] * 8)
+    residual = npf.npv(0.07, [0.0] * 8 + [1_000.0])
+    assert got["energy_price_mult"][0] == pytest.approx((10_000.0 - residual) / (2_200.0 * annuity), rel=1e-12)
+    assert got["load_mult"][0] == pytest.approx((10_000.0 - residual) / (2_200.0 * annuity), rel=1e-12)
+    assert got["hours_mult"][0] == pytest.approx((10_000.0 - residual - 400.0 * annuity) / (1_800.0 * annuity), rel=1e-12)
+    assert got["capital_mult"][0] == pytest.approx(2_200.0 * annuity / (10_000.0 - residual), rel=1e-12)
+
+
+def test_a_factor_that_cannot_bring_the_npv_to_zero_has_no_break_even():
+    # savings that never repay the capital whatever their hours... at m >= 0 the NPV only rises with the hours:
+    # a project already positive at zero hours (its demand saving alone repays it) has no break-even in hours
+    from models.risk import ComponentResponse, break_even_multipliers
+
+    names = ("capital", "savings_energy", "savings_demand")
+    amounts = np.zeros((2, 6, 3))
+    amounts[:, 0, 0] = -1_000.0
+    amounts[:, 1:, 1] = 100.0
+    amounts[0, 1:, 2] = 500.0  # demand alone repays it
+    response = {"capital": ComponentResponse(("capital_mult",)),
+                "savings_energy": ComponentResponse(("energy_price_mult", "hours_mult")),
+                "savings_demand": ComponentResponse(("energy_price_mult",))}
+    got = break_even_multipliers(amounts, names, response, 0.05)
+    assert np.isnan(got["hours_mult"][0]) and np.isfinite(got["hours_mult"][1])
+    assert np.isnan(got["load_mult"]).all()  # nothing responds to the load

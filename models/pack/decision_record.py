@@ -21,6 +21,7 @@ from models.options import DRIVE_TECHNOLOGIES, technology_name
 from models.pack import content, templates
 from models.pack.report_html import cell, num, row
 from models.plan import option_labels
+from models.risk import break_even_words
 from models.scenario import END_OF_LIFE_LEFT_OUT, REPLACING_TECHNOLOGIES, end_of_life_left_out, least_repair
 
 
@@ -282,6 +283,12 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                        f"not hold: book that on its own, at once ({least} is the least repair"
                        + ("; the comparison above says whether a new motor costs less once the outage is counted)."
                           if best_strategy else ")."))
+    if not is_keep:  # how far the inputs may move before the recommendation stops paying
+        even = break_even_words(float(rec["npv"]), float(rec["break_even_price_mult"]),
+                                float(rec["break_even_running_h_per_yr"]), float(rec["running_h_per_yr"]),
+                                float(rec["break_even_load_mult"]), float(rec["break_even_capital_mult"]))
+        if even:
+            reasons.append(even + " Each bound holds with the other inputs as modelled.")
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
