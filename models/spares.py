@@ -139,8 +139,9 @@ def spares_table(case, result) -> pd.DataFrame:
     new_h = np.where(np.isnan(own_new), new_h, own_new)  # ... or the register's own
     rewind_h = np.where(np.isnan(own_rewind), rewind_h, own_rewind)
     fail = next_year_failure_frac(law.loc[ids, "age"], law.loc[ids, "shape"], law.loc[ids, "scale"])
-    capital = result.results.set_index(["asset_id", "option_id"])["capital"]
-    price = np.array([float(capital.get((i, o), np.nan)) for i, o in zip(ids, e["new_option_id"])])
+    res = result.results
+    capital = dict(zip(zip(res["asset_id"].astype(str), res["option_id"].astype(str)), res["capital"].astype(float)))
+    price = np.array([capital.get((str(i), str(o)), np.nan) for i, o in zip(ids, e["new_option_id"])], dtype=float)
     on_hand = (a.loc[ids, "spare_on_hand"].map(lambda v: v is True or v == 1).to_numpy(dtype=bool)
                if "spare_on_hand" in a else np.zeros(len(ids), dtype=bool))
     frame = pd.DataFrame({
