@@ -1281,7 +1281,7 @@ def asset_choice_text(result, asset_id: str, currency: str) -> str:
     even = "" if str(top["technology"]) == "existing" else break_even_words(
         float(top["npv"]), float(top["break_even_price_mult"]), float(top["break_even_running_h_per_yr"]),
         float(top["running_h_per_yr"]), float(top["break_even_load_mult"]), float(top["break_even_capital_mult"]))
-    return f"{alone} {bought}" + (f" {top['label']}: {even[0].lower()}{even[1:]}" if even else "")
+    return f"{alone} {bought}" + (f" {top['label']}: {even}" if even else "")
 
 
 def ranked_assets(view_: View, result, sites=None, applications=None) -> pd.DataFrame:

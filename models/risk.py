@@ -633,38 +633,34 @@ def break_even_multipliers(amounts: np.ndarray, component_names: tuple[str, ...]
 
 
 def break_even_words(npv: float, price_mult: float, running_h: float, today_running_h: float, load_mult: float,
-                     capital_mult: float, year_h: float = 8760.0) -> str:
-    """A project's break-evens in a sentence ("" where none is within reach).
+                     capital_mult: float, year_h: float = 8760.0, brief: bool = False) -> str:
+    """A project's break-evens in a short sentence ("" where none is within reach): where its NPV crosses zero.
+
+    Each bound holds with the other inputs as modelled. ``brief`` leaves out the load and today's hours, in fewer
+    words (a one-page decision record).
 
     Examples
     --------
     >>> break_even_words(5000.0, 0.83, 7076.0, 8760.0, 0.83, 1.2)
-    'Its NPV stays positive down to 0.83 times the electricity prices, 7,076 running hours a year (8,760 today) and 0.83 times the shaft load, and up to 1.20 times its capital.'
+    'Break-even, each alone: x0.83 the prices, 7,076 h/yr (8,760 today), x0.83 the load, x1.20 the capital.'
     >>> break_even_words(-800.0, 1.3, float("nan"), 4000.0, float("nan"), 0.7)
-    'Its NPV turns positive at 1.30 times the electricity prices, or at 0.70 times its capital.'
+    'Break-even, each alone: x1.30 the prices, x0.70 the capital.'
+    >>> break_even_words(5000.0, 0.83, 7076.0, 8760.0, 0.83, 1.2, brief=True)
+    'Break-even: prices x0.83, 7,076 h/yr, capital x1.20.'
     """
     finite = lambda v: v == v and abs(v) != float("inf")  # noqa: E731
     parts = []
     if finite(price_mult):
-        parts.append(f"{price_mult:.2f} times the electricity prices")
+        parts.append(f"prices x{price_mult:.2f}" if brief else f"x{price_mult:.2f} the prices")
     if finite(running_h) and running_h <= year_h:
-        parts.append(f"{running_h:,.0f} running hours a year ({today_running_h:,.0f} today)")
-    if finite(load_mult):
-        parts.append(f"{load_mult:.2f} times the shaft load")
-    capital = f"{capital_mult:.2f} times its capital" if finite(capital_mult) else ""
-    if not parts and not capital:
+        parts.append(f"{running_h:,.0f} h/yr" + ("" if brief else f" ({today_running_h:,.0f} today)"))
+    if finite(load_mult) and not brief:
+        parts.append(f"x{load_mult:.2f} the load")
+    if finite(capital_mult):
+        parts.append(f"capital x{capital_mult:.2f}" if brief else f"x{capital_mult:.2f} the capital")
+    if not parts:
         return ""
-    joiner = " and " if npv >= 0 else " or "  # each bound holds with the others at today's; below zero each alone lifts it
-    listed = ", ".join(parts[:-1]) + (joiner if len(parts) > 1 else "") + parts[-1] if parts else ""
-    if npv >= 0:
-        text = "Its NPV stays positive " + (f"down to {listed}" if listed else "")
-        if capital:
-            text += (", and up to " if listed else "up to ") + capital
-    else:
-        text = "Its NPV turns positive " + (f"at {listed}" if listed else "")
-        if capital:
-            text += (", or at " if listed else "at ") + capital
-    return text + "."
+    return ("Break-even: " if brief else "Break-even, each alone: ") + ", ".join(parts) + "."
 
 
 # ---------------------------------------------------------------------------------------------------

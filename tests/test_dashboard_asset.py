@@ -228,4 +228,4 @@ def test_the_asset_choice_says_where_the_best_option_breaks_even():
     assert words
     summary = asset.update("HRW-P01", None, None)[0]
     choice = [c for c in summary if getattr(c, "id", None) == "asset-choice"][0].children
-    assert choice.endswith(f"{top['label']}: {words[0].lower()}{words[1:]}")
+    assert choice.endswith(f"{top['label']}: {words}")

@@ -214,6 +214,12 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                 reasons[npv_said] = reasons[npv_said][:-1] + (f"; {content.money(at_start, cur)} at the plan's start "
                                                               f"(plan year {start} discounted), as the report's table "
                                                               "gives it.")
+        # how far the inputs may move before it stops paying, after the NPV's sentence (a record is one page)
+        even = break_even_words(own_npv, float(rec["break_even_price_mult"]), float(rec["break_even_running_h_per_yr"]),
+                                float(rec["running_h_per_yr"]), float(rec["break_even_load_mult"]),
+                                float(rec["break_even_capital_mult"]), brief=True)
+        if even:
+            reasons[npv_said] += " " + even
         others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
         if len(others):
             o = others.iloc[0]
@@ -283,12 +289,6 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                        f"not hold: book that on its own, at once ({least} is the least repair"
                        + ("; the comparison above says whether a new motor costs less once the outage is counted)."
                           if best_strategy else ")."))
-    if not is_keep:  # how far the inputs may move before the recommendation stops paying
-        even = break_even_words(float(rec["npv"]), float(rec["break_even_price_mult"]),
-                                float(rec["break_even_running_h_per_yr"]), float(rec["running_h_per_yr"]),
-                                float(rec["break_even_load_mult"]), float(rec["break_even_capital_mult"]))
-        if even:
-            reasons.append(even + " Each bound holds with the other inputs as modelled.")
     if float(rec["must_spend_capital"]) > 0 and not is_keep and not failed:  # a failed motor's is said above
         reasons.append(f"Credited: the {content.money(float(rec['must_spend_capital']), cur)} a failure would force anyway "
                        f"(the cheaper of a rewind and the cheapest new motor the regional efficiency rules allow).")
@@ -311,12 +311,18 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         keep_speed = float(res.loc[res["option_id"] == keep_id, "mean_speed_rpm"].iloc[0])
         cautions += content.technology_cautions(str(rec["technology"]), float(rec["mean_speed_rpm"]) - keep_speed)
     if not is_keep and (str(rec["technology"]) in DRIVE_TECHNOLOGIES or str(rec["technology"]) == "capacitor"):
-        # a drive or a capacitor changes the site's harmonics: the fleet plan's screen of its site
+        # a drive or a capacitor changes the site's harmonics: the fleet plan's screen of its site, in place of the
+        # drive caution's general words on distortion (a record is one page)
         screen = content.plan_harmonic_screen(case, result)
         mine = screen[(screen["site_id"] == str(x["site_id"])) & (screen["scenario"] == "plan")]
-        if len(mine) and not str(mine["finding"].iloc[0]).startswith(("within", "no drives")):
-            cautions.append(f"harmonic screen of site {x['site_id']} with the fleet plan: {mine['finding'].iloc[0]} "
-                            "(harmonic_screen.csv; a first screen to IEEE 519, not a study)")
+        if len(mine) and not str(mine["finding"].iloc[0]).startswith(("within", "no drives", "not screened")):
+            said = (f"site {x['site_id']} fails IEEE 519 or resonates with the plan on a first screen "
+                    "(harmonic_screen.csv): study and mitigate first")
+            general = [k for k, c in enumerate(cautions) if "check voltage distortion limits" in c]
+            for k in general:
+                cautions[k] = cautions[k].replace("check voltage distortion limits", said)
+            if not general:
+                cautions.append("Harmonics: " + said + ".")
     if is_keep and area not in ("none", "nan"):  # kept as it is, the motor stays in its area: its Ex care goes on
         cautions.append(f"hazardous area ({area.replace('_', ' ')}): a motor kept in service there keeps its "
                         "inspections under IEC 60079-17 by a competent person, and any repair is done to "

@@ -221,7 +221,7 @@ li { margin: 1px 0; }
 @page { size: A4; margin: 10mm; }
 @media print {
   main { padding: 0; max-width: none; } body { font-size: 10px; line-height: 1.3; } table { font-size: 9px; }
-  h2 { margin: 7px 0 3px; } .sign > div { height: 20mm; } th, td { padding: 1px 4px; }
+  h2 { margin: 6px 0 3px; } .sign > div { height: 17mm; } th, td { padding: 1px 4px; }
 }
 """
 
