@@ -1278,9 +1278,7 @@ def asset_choice_text(result, asset_id: str, currency: str) -> str:
         why = str(_plan_buys(result, best.iloc[:1], np.array([""], dtype=object))[0])
         bought = ("The budgeted plan buys " + why.replace("nothing: ", "nothing for it: ", 1) + "."
                   if why else "The budgeted plan buys nothing for it.")
-    even = "" if str(top["technology"]) == "existing" else break_even_words(
-        float(top["npv"]), float(top["break_even_price_mult"]), float(top["break_even_running_h_per_yr"]),
-        float(top["running_h_per_yr"]), float(top["break_even_load_mult"]), float(top["break_even_capital_mult"]))
+    even = "" if str(top["technology"]) == "existing" else break_even_words(top)
     return f"{alone} {bought}" + (f" {top['label']}: {even}" if even else "")
 
 
@@ -2296,14 +2294,19 @@ def spares_text(view_: View, result, asset_id: str) -> str:
     group = (f"It and {others} other motor{'s' if others != 1 else ''} of the case ({r['group']}) fail about "
              f"{failures} together" if others
              else f"It is the case's only motor of its kind ({r['group']}) and fails about {failures}")
-    economic = int(r["economic_spares"])
-    keep = (f"keeping {economic} spare{'s' if economic != 1 else ''} on the shelf costs least: "
-            f"{money_text(float(r['saving_at_economic_per_yr']), view_.currency)} a year of downtime saved, net of "
-            f"holding {'them' if economic != 1 else 'it'} (price x (discount rate + {SPARE_UPKEEP_FRAC:.0%}))"
-            if economic else "no spare on the shelf pays for its holding cost at this price and cost of downtime")
+    economic = float(r["economic_spares"])
+    if not np.isfinite(economic):
+        keep = "no new motor of its kind is priced in the catalogue, so the number that costs least is not known"
+    elif economic:
+        n = int(economic)
+        keep = (f"keeping {n} spare{'s' if n != 1 else ''} on the shelf costs least: "
+                f"{money_text(float(r['saving_at_economic_per_yr']), view_.currency)} a year of downtime saved, net of "
+                f"holding {'them' if n != 1 else 'it'} (price x (discount rate + {100 * SPARE_UPKEEP_FRAC:g} %))")
+    else:
+        keep = "no spare on the shelf pays for its holding cost at this price and cost of downtime"
     return (f"Spares. {group}; "
             f"{int(r['spares_for_target'])} spare{'s' if int(r['spares_for_target']) != 1 else ''} would cover "
-            f"{TARGET_FILL_FRAC:.0%} of failures (rewound and put back on the shelf, a rotating pool), and {keep}. "
+            f"{100 * TARGET_FILL_FRAC:g} % of failures (rewound and put back on the shelf, a rotating pool), and {keep}. "
             "Confirm that they share frame, mounting and shaft.")
 
 

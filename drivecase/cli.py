@@ -685,7 +685,8 @@ def _print_harmonic_screen(path: Path) -> None:
     for row in found.to_dict("records"):
         print(f"  {row['site_id']}: {row['finding']}")
     if unscreened:
-        print(f"  {unscreened} site{'s' if unscreened != 1 else ''} not screened: give transformer_kva in sites.csv")
+        print(f"  {unscreened} site{'s' if unscreened != 1 else ''} not screened: give transformer_kva (or "
+              "supply_fault_kva) in sites.csv")
 
 
 def _print_verified(case, path: Path) -> None:

@@ -36,10 +36,12 @@ References
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 import pandas as pd
 
-from models.drives import DEFAULT_FRONT_END, FRONT_END_DEFAULTS
+from models.drives import DEFAULT_FRONT_END, FRONT_END_DEFAULTS, drive_rated_s_kva_for_motor
 
 #: Harmonic current of a drive per unit of its fundamental, by front end and order, before scaling to the front
 #: end's current THD (models.drives.FRONT_END_DEFAULTS) by :func:`drive_spectrum` (common practice, from memory:
@@ -54,8 +56,6 @@ SPECTRUM_SHAPES: dict[str, dict[int, float]] = {
 }
 #: The harmonic orders the screen sums (every order of :data:`SPECTRUM_SHAPES`).
 ORDERS: tuple[int, ...] = (5, 7, 11, 13, 17, 19, 23, 25)
-#: The six-pulse shape (a drive fitted today and the catalogue's drives where they name no front end).
-SIX_PULSE_SPECTRUM: dict[int, float] = SPECTRUM_SHAPES[DEFAULT_FRONT_END]
 #: Current THD of a six-pulse drive with a choke, the drive models' default front end.
 DRIVE_THD_I_FRAC = FRONT_END_DEFAULTS[DEFAULT_FRONT_END][1]
 #: IEEE 519-2014 Table 1: (highest bus voltage [V], individual harmonic limit [%], THD limit [%]).
@@ -68,6 +68,10 @@ TDD_LIMITS_PCT: tuple[tuple[float, float], ...] = ((0.0, 5.0), (20.0, 8.0), (50.
 TRANSFORMER_IMPEDANCE_PCT: tuple[tuple[float, float], ...] = (
     (630.0, 4.0), (1250.0, 5.0), (2500.0, 6.0), (6300.0, 7.0), (25_000.0, 8.0), (40_000.0, 10.0),
     (63_000.0, 11.0), (100_000.0, 12.5), (np.inf, 12.5))
+#: How much a parallel resonance amplifies the harmonic voltage it is tuned to (common practice, from memory: the
+#: quality factor of an industrial bus at its resonance, 5-20; 10 taken). A resonance is a finding where the
+#: harmonic's voltage so amplified would pass its individual limit.
+RESONANCE_AMPLIFICATION = 10.0
 #: A resonance within this share of a harmonic's order is taken as tuned to it (common practice, from memory:
 #: detuned banks are set 10-15 % below the 5th for that reason).
 RESONANCE_BAND_FRAC = 0.10
@@ -251,32 +255,37 @@ def resonance_order(short_circuit_kva_, capacitor_kvar) -> np.ndarray:
         return np.where(q > 0, np.sqrt(s / np.where(q > 0, q, 1.0)), np.inf)
 
 
-def resonant_harmonic(order_low, order_high, orders=None, band_frac: float = RESONANCE_BAND_FRAC) -> np.ndarray:
-    """The lowest drive harmonic the resonance range [low, high] comes within ``band_frac`` of (0: none).
+def near_harmonics(resonance_orders, harmonic_orders=ORDERS, band_frac: float = RESONANCE_BAND_FRAC) -> np.ndarray:
+    """Which harmonic orders some resonance comes within ``band_frac`` of (bool, one per harmonic order).
 
     Examples
     --------
-    >>> resonant_harmonic([4.6, 5.8, 3.0, np.inf], [4.7, 6.2, 3.2, np.inf]).tolist()
-    [5, 0, 0, 0]
+    >>> near_harmonics([4.6]).tolist()[:3], bool(near_harmonics([5.8, 6.2]).any()), bool(near_harmonics([]).any())
+    ([True, False, False], False, False)
     """
-    lo = np.asarray(order_low, dtype=float)
-    hi = np.asarray(order_high, dtype=float)
-    h = np.asarray(ORDERS if orders is None else orders, dtype=float)
-    near = (lo[:, None] <= h[None, :] * (1.0 + band_frac)) & (hi[:, None] >= h[None, :] * (1.0 - band_frac))
-    first = np.argmax(near, axis=1)
-    return np.where(near.any(axis=1), h[first], 0.0).astype(int)
+    r = np.asarray(resonance_orders, dtype=float).reshape(-1)
+    h = np.asarray(harmonic_orders, dtype=float)
+    r = r[np.isfinite(r)]
+    return (np.abs(r[None, :] / h[:, None] - 1.0) <= band_frac).any(axis=1) if len(r) else np.zeros(len(h), bool)
 
 
-def drive_input_kva(rated_p_kw, efficiency_frac, displacement_pf=FRONT_END_DEFAULTS[DEFAULT_FRONT_END][0]) -> np.ndarray:
-    """A drive's fundamental input at its motor's rating [kVA]: P_rated / (efficiency x displacement power factor).
+def capacitor_states_kvar(fixed_kvar: float, stepped: list[tuple[float, float]], max_states: int = 1000) -> np.ndarray:
+    """Every kVAr the site's capacitors can have in service: the fixed ones always, each stepped bank at any number
+    of its steps (bank, step); sorted, the all-off state of a site without fixed kVAr left out.
 
     Examples
     --------
-    >>> round(float(drive_input_kva(90.0, 0.95)[()]), 3)
-    97.667
+    >>> capacitor_states_kvar(0.0, [(60.0, 10.0)]).tolist()
+    [10.0, 20.0, 30.0, 40.0, 50.0, 60.0]
+    >>> capacitor_states_kvar(150.0, []).tolist(), capacitor_states_kvar(0.0, []).tolist()
+    ([150.0], [])
     """
-    return np.asarray(rated_p_kw, dtype=float) / (np.asarray(efficiency_frac, dtype=float)
-                                                  * np.asarray(displacement_pf, dtype=float))
+    states = np.array([float(fixed_kvar)])
+    for rated, step in stepped:
+        n = int(np.floor(rated / step + 1e-9)) if step > 0 else 0
+        levels = np.minimum(np.arange(n + 1) * step, rated) if n else np.array([0.0, rated])
+        states = np.unique((states[:, None] + levels[None, :]).ravel())[:max_states]
+    return states[states > 0]
 
 
 def monthly_peak_mean_kva(index: pd.DatetimeIndex, p_kw: np.ndarray, q_kvar: np.ndarray) -> float:
@@ -305,30 +314,79 @@ def _option_front_ends(case, option_ids) -> np.ndarray:
                      for o in option_ids], dtype=object)
 
 
-def _finding(row: dict) -> str:
-    """The screen's verdict for one site and scenario, in words."""
+#: The sites' maximum demand of the last operating result asked for (the result files, the report, the workbook and
+#: the decision records each screen the same sites).
+_DEMANDS: dict = {}
+
+
+def _maximum_demands(case, op) -> dict[str, float]:
+    """Each site's maximum demand today (:func:`monthly_peak_mean_kva` of its meter with today's motors) [kVA], made
+    once per case and operating result while they live."""
+    from models.bill_savings import _chosen_total, site_setups
+
+    kept = _DEMANDS.get("last")
+    if kept is not None and kept[0]() is op and kept[1] is case:
+        return kept[2]
+    setups = site_setups(case, op.index)
+    site_of = np.asarray(op.site_ids, dtype=object)
+    out = {}
+    for site_id, setup in setups.items():
+        members = np.flatnonzero(site_of == site_id)
+        if not len(members):
+            continue
+        zeros = np.zeros(len(members), dtype=int)
+        p, q = _chosen_total(op.p_kw, zeros, members), _chosen_total(op.q_kvar, zeros, members)
+        meter = setup.site.meter_from_totals(p, q, base_p_kw_profile=setup.base_p_kw_profile)
+        out[str(site_id)] = monthly_peak_mean_kva(op.index, meter.p_kw, meter.q_kvar)
+    ref = weakref.ref(op)
+    _DEMANDS["last"] = (ref, case, out)
+    weakref.finalize(op, _forget_demands, ref)
+    return out
+
+
+def _forget_demands(ref) -> None:
+    """Let go of the demands of an operating result that is gone (not of one asked for after it)."""
+    if _DEMANDS.get("last", (None,))[0] is ref:
+        del _DEMANDS["last"]
+
+
+def ordinal(n: int) -> str:
+    """An order in words' form: 5th, 11th, 23rd.
+
+    Examples
+    --------
+    >>> [ordinal(n) for n in (1, 2, 3, 5, 11, 12, 13, 21, 23, 25)]
+    ['1st', '2nd', '3rd', '5th', '11th', '12th', '13th', '21st', '23rd', '25th']
+    """
+    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suffix}"
+
+
+def _finding(row: dict, near_order: float = np.nan) -> str:
+    """The screen's verdict for one site and scenario, in words (``near_order``: the capacitors' resonance order
+    nearest the harmonic they are tuned to)."""
     if not np.isfinite(row["short_circuit_kva"]):
         return "not screened: give the site's transformer_kva (or supply_fault_kva)"
     if row["drive_kva"] <= 0:
         return "no drives"
     parts = []
     if row["voltage_thd_pct"] > row["voltage_thd_limit_pct"] or row["worst_harmonic_pct"] > row["harmonic_limit_pct"]:
-        parts.append(f"voltage distortion about {row['voltage_thd_pct']:.1f} % (the {row['worst_harmonic']}th "
+        parts.append(f"voltage distortion about {row['voltage_thd_pct']:.1f} % (the {ordinal(row['worst_harmonic'])} "
                      f"{row['worst_harmonic_pct']:.1f} %) against limits of {row['voltage_thd_limit_pct']:g} % and "
                      f"{row['harmonic_limit_pct']:g} %")
     if np.isfinite(row["current_tdd_pct"]) and row["current_tdd_pct"] > row["current_tdd_limit_pct"]:
         parts.append(f"current distortion about {row['current_tdd_pct']:.1f} % of the maximum demand against "
                      f"{row['current_tdd_limit_pct']:g} %")
     if row["resonant_harmonic"]:
-        lo, hi = row["resonance_order_low"], row["resonance_order_high"]
-        span = f"{lo:.1f}" if f"{lo:.1f}" == f"{hi:.1f}" else f"{lo:.1f}-{hi:.1f}"
-        parts.append(f"the capacitors resonate near the {row['resonant_harmonic']}th harmonic (order {span}): a "
-                     "detuned bank")
+        parts.append(f"the capacitors resonate near the {ordinal(row['resonant_harmonic'])} harmonic (order "
+                     f"{near_order:.1f}), which would lift its voltage past {row['harmonic_limit_pct']:g} %: a detuned bank")
     note = ("" if np.isfinite(row["current_tdd_pct"])
             else "; current distortion not screened (give supply_fault_kva, the utility's fault level at the supply)")
     if not parts:
         return "within the IEEE 519 limits on this screen" + note
-    return "; ".join(parts) + "; a harmonic study and mitigation before the drives are installed" + note
+    action = ("a harmonic study and mitigation" if row["scenario"] == "today"
+              else "a harmonic study and mitigation before the plan's drives and capacitors are installed")
+    return "; ".join(parts) + "; " + action + note
 
 
 def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
@@ -358,27 +416,24 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     -----
     Drive-fed today: assets whose ``speed_control`` is ``drive`` (six-pulse with a choke); with the plan also those
     whose project is a drive option (models.options.DRIVE_TECHNOLOGIES), with the option's ``drive_front_end``;
-    ``front_ends`` lists the drives' kVA by front end. A resonance is tuned only to an order the drives draw. Capacitors: the fixed banks always, a stepped bank from none to
-    all its kVAr, and the plan's motor-terminal capacitors (all in service). The bus voltage is the highest rated
+    ``front_ends`` lists the drives' kVA by front end. Capacitors: the fixed banks always, a stepped bank at any
+    number of its steps (:func:`capacitor_states_kvar`), and the plan's motor-terminal capacitors (all in service);
+    the resonance orders span those states, and ``resonant_harmonic`` is the lowest harmonic the drives draw that
+    some state comes within :data:`RESONANCE_BAND_FRAC` of and whose voltage, amplified
+    :data:`RESONANCE_AMPLIFICATION` times, would pass its individual limit (0: none). The bus voltage is the highest rated
     voltage of the site's drive-fed motors (of all its motors when none): a site is one bus, and its finding says
     so where its motors run at several voltages. The current limits apply at the point of
     common coupling: the transformer's primary, with the source's fault level, where the site's ``supply_v_v``
     is above :data:`PCC_ABOVE_BUS_RATIO` times the bus voltage (not screened without ``supply_fault_kva``), else
     the bus itself.
     """
-    from models.bill_savings import _chosen_total, site_setups
     from models.options import DRIVE_TECHNOLOGIES
+    from models.plan import plan_choice
 
     sites = case.sites.reset_index(drop=True)
     assets = case.assets
-    asset_pos = {a: i for i, a in enumerate(op.asset_ids)}
-    option_pos = {o: j for j, o in enumerate(op.option_ids)}
     on_drive_today = assets["speed_control"].to_numpy(dtype=object) == "drive"
-    chosen = np.zeros(len(op.asset_ids), dtype=int)
-    if plan is not None and len(plan):
-        for a, o in zip(plan["asset_id"], plan["option_id"]):
-            if a in asset_pos and o in option_pos:
-                chosen[asset_pos[a]] = option_pos[o]
+    chosen = plan_choice(op, plan) if plan is not None else np.zeros(len(op.asset_ids), dtype=int)
     tech = np.asarray(op.technologies, dtype=object)[chosen]
     on_drive_plan = on_drive_today | np.isin(tech, DRIVE_TECHNOLOGIES)
     # each drive's front end: today's drives the default; a drive option's its own (a motor on a drive today keeps
@@ -404,20 +459,15 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     s_sc = short_circuit_kva(s_tx, z, fault)
     supply_v = column("supply_v_v")
     caps = case.capacitors if case.capacitors is not None else pd.DataFrame(columns=["site_id", "rated_q_kvar", "control"])
-    setups = site_setups(case, op.index)
+    demands = _maximum_demands(case, op)
     rows = []
     for k, site_id in enumerate(sites["site_id"].astype(str)):
         members = np.flatnonzero(site_of == site_id)
-        if len(members) and site_id in setups:
-            p = _chosen_total(op.p_kw, np.zeros(len(members), dtype=int), members)
-            q = _chosen_total(op.q_kvar, np.zeros(len(members), dtype=int), members)
-            meter = setups[site_id].site.meter_from_totals(p, q, base_p_kw_profile=setups[site_id].base_p_kw_profile)
-            demand = monthly_peak_mean_kva(op.index, meter.p_kw, meter.q_kvar)
-        else:
-            demand = float("nan")
+        demand = demands.get(site_id, float("nan"))
         banks = caps[caps["site_id"].astype(str) == site_id]
         fixed_kvar = float(banks.loc[banks["control"] == "fixed", "rated_q_kvar"].sum())
-        stepped_kvar = float(banks.loc[banks["control"] != "fixed", "rated_q_kvar"].sum())
+        steps = banks[banks["control"] != "fixed"]
+        stepped = list(zip(steps["rated_q_kvar"].astype(float), steps["step_q_kvar"].astype(float)))
         for scenario, on_drive, front, extra_kvar in (("today", on_drive_today, front_today, 0.0),
                                                       ("plan", on_drive_plan, front_plan, float(terminal_kvar[members].sum()))):
             if scenario == "plan" and plan is None:
@@ -426,7 +476,9 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
             by_front_end: dict[str, float] = {}
             for fe in np.unique(front[drives]).tolist():
                 mine = drives[front[drives] == fe]
-                by_front_end[fe] = float(drive_input_kva(rated[mine], eff[mine], FRONT_END_DEFAULTS[fe][0]).sum())
+                # the drive's fundamental input at its motor's rating: P / (efficiency x its displacement power factor)
+                by_front_end[fe] = float(np.sum(drive_rated_s_kva_for_motor(rated[mine], eff[mine],
+                                                                            FRONT_END_DEFAULTS[fe][0])))
             drive_kva = float(sum(by_front_end.values()))
             currents = harmonic_currents_kva(by_front_end)
             bus_v = float(np.max(v_v[drives])) if len(drives) else (float(np.max(v_v[members])) if len(members) else 400.0)
@@ -438,11 +490,11 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
             pcc_kva = fault[k] if supply_v[k] > PCC_ABOVE_BUS_RATIO * bus_v else s_sc[k]
             tdd = (100.0 * float(np.sqrt((currents ** 2).sum())) / demand if demand > 0 and np.isfinite(pcc_kva)
                    else float("nan"))
-            q_lo, q_hi = fixed_kvar + extra_kvar, fixed_kvar + extra_kvar + stepped_kvar
-            q_lo_on = q_lo if q_lo > 0 else (min(stepped_kvar, float(banks.get("step_q_kvar", pd.Series(dtype=float))
-                                                                     .fillna(banks["rated_q_kvar"] / 6.0).min()))
-                                             if stepped_kvar > 0 else 0.0)
-            h_hi, h_lo = resonance_order([s_sc[k]], [q_lo_on])[0], resonance_order([s_sc[k]], [q_hi])[0]
+            # every kVAr the capacitors can have in service, and the order each resonates at; a resonance is a
+            # finding at a harmonic the drives draw whose voltage, amplified by it, would pass its limit
+            states = capacitor_states_kvar(fixed_kvar + extra_kvar, stepped)
+            resonances = resonance_order(np.full(len(states), s_sc[k]), states)
+            tuned = near_harmonics(resonances) & (RESONANCE_AMPLIFICATION * v_h[0] > limit_h[0]) & (currents > 0)
             row = {"site_id": site_id, "scenario": scenario, "drive_kva": drive_kva, "transformer_kva": s_tx[k],
                    "transformer_impedance_pct": z[k], "impedance_basis": basis[k], "short_circuit_kva": s_sc[k],
                    "pcc_short_circuit_kva": pcc_kva, "max_demand_kva": demand, "bus_v_v": bus_v,
@@ -451,16 +503,19 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                    "harmonic_limit_pct": float(limit_h[0]), "current_tdd_pct": tdd,
                    "current_tdd_limit_pct": (float(tdd_limit_pct([pcc_kva / demand], [supply_v[k]])[0]) if demand > 0
                                              else float("nan")),
-                   "capacitor_kvar_min": q_lo, "capacitor_kvar_max": q_hi,
-                   "resonance_order_low": h_lo, "resonance_order_high": h_hi,
-                   "resonant_harmonic": (int(resonant_harmonic([h_lo], [h_hi], orders[currents > 0])[0])
-                                         if q_hi > 0 and drive_kva > 0 else 0),
+                   "capacitor_kvar_min": float(states.min()) if len(states) else 0.0,
+                   "capacitor_kvar_max": float(states.max()) if len(states) else 0.0,
+                   "resonance_order_low": float(resonances.min()) if len(states) else np.inf,
+                   "resonance_order_high": float(resonances.max()) if len(states) else np.inf,
+                   "resonant_harmonic": int(orders[tuned][0]) if tuned.any() else 0,
                    "front_ends": ", ".join(f"{fe} {kva_:,.0f} kVA" for fe, kva_ in sorted(by_front_end.items()))}
             if not np.isfinite(s_sc[k]):
                 for name in ("voltage_thd_pct", "worst_harmonic_pct", "current_tdd_pct", "current_tdd_limit_pct",
                              "resonance_order_low", "resonance_order_high"):
                     row[name] = float("nan")
-            row["finding"] = _finding(row)
+            near = (float(resonances[np.argmin(np.abs(resonances - row["resonant_harmonic"]))])
+                    if row["resonant_harmonic"] else np.nan)
+            row["finding"] = _finding(row, near)
             if len(np.unique(v_v[members])) > 1 and np.isfinite(s_sc[k]) and drive_kva > 0:
                 row["finding"] += (f"; motors at {len(np.unique(v_v[members]))} voltages screened as one bus at "
                                    f"{bus_v:g} V (a transformer between them changes the figures)")

@@ -632,35 +632,42 @@ def break_even_multipliers(amounts: np.ndarray, component_names: tuple[str, ...]
     return out
 
 
-def break_even_words(npv: float, price_mult: float, running_h: float, today_running_h: float, load_mult: float,
-                     capital_mult: float, year_h: float = 8760.0, brief: bool = False) -> str:
+def break_even_words(row: Mapping[str, Any], year_h: float = 8760.0, brief: bool = False) -> str:
     """A project's break-evens in a short sentence ("" where none is within reach): where its NPV crosses zero.
 
-    Each bound holds with the other inputs as modelled. ``brief`` leaves out the load and today's hours, in fewer
-    words (a one-page decision record).
+    ``row`` is a results row (``break_even_price_mult``, ``break_even_running_h_per_yr``, ``break_even_load_mult``,
+    ``break_even_capital_mult`` and ``running_h_per_yr``). Each bound holds with the other inputs as modelled.
+    ``brief`` leaves out the load and today's hours, in fewer words (a one-page decision record).
 
     Examples
     --------
-    >>> break_even_words(5000.0, 0.83, 7076.0, 8760.0, 0.83, 1.2)
+    >>> row = {"break_even_price_mult": 0.83, "break_even_running_h_per_yr": 7076.0, "running_h_per_yr": 8760.0,
+    ...        "break_even_load_mult": 0.83, "break_even_capital_mult": 1.2}
+    >>> break_even_words(row)
     'Break-even, each alone: x0.83 the prices, 7,076 h/yr (8,760 today), x0.83 the load, x1.20 the capital.'
-    >>> break_even_words(-800.0, 1.3, float("nan"), 4000.0, float("nan"), 0.7)
-    'Break-even, each alone: x1.30 the prices, x0.70 the capital.'
-    >>> break_even_words(5000.0, 0.83, 7076.0, 8760.0, 0.83, 1.2, brief=True)
-    'Break-even: prices x0.83, 7,076 h/yr, capital x1.20.'
+    >>> break_even_words(row, brief=True)
+    'Break-even (each alone): prices x0.83, 7,076 h/yr, capital x1.20.'
+    >>> break_even_words({**row, "break_even_running_h_per_yr": float("nan"), "break_even_load_mult": float("nan")})
+    'Break-even, each alone: x0.83 the prices, x1.20 the capital.'
     """
-    finite = lambda v: v == v and abs(v) != float("inf")  # noqa: E731
+    def value(name: str) -> float:
+        v = float(row.get(name, float("nan")))
+        return v if np.isfinite(v) else float("nan")
+
+    price, hours, load, capital = (value(f"break_even_{n}") for n in ("price_mult", "running_h_per_yr", "load_mult",
+                                                                       "capital_mult"))
     parts = []
-    if finite(price_mult):
-        parts.append(f"prices x{price_mult:.2f}" if brief else f"x{price_mult:.2f} the prices")
-    if finite(running_h) and running_h <= year_h:
-        parts.append(f"{running_h:,.0f} h/yr" + ("" if brief else f" ({today_running_h:,.0f} today)"))
-    if finite(load_mult) and not brief:
-        parts.append(f"x{load_mult:.2f} the load")
-    if finite(capital_mult):
-        parts.append(f"capital x{capital_mult:.2f}" if brief else f"x{capital_mult:.2f} the capital")
+    if price == price:
+        parts.append(f"prices x{price:.2f}" if brief else f"x{price:.2f} the prices")
+    if hours == hours and hours <= year_h:
+        parts.append(f"{hours:,.0f} h/yr" + ("" if brief else f" ({value('running_h_per_yr'):,.0f} today)"))
+    if load == load and not brief:
+        parts.append(f"x{load:.2f} the load")
+    if capital == capital:
+        parts.append(f"capital x{capital:.2f}" if brief else f"x{capital:.2f} the capital")
     if not parts:
         return ""
-    return ("Break-even: " if brief else "Break-even, each alone: ") + ", ".join(parts) + "."
+    return ("Break-even (each alone): " if brief else "Break-even, each alone: ") + ", ".join(parts) + "."
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -676,7 +676,8 @@ def economics(case, phys: Physics, assumptions: finance.FinanceAssumptions,
     even = risk.break_even_multipliers(flows.amounts, flows.component_names, risk.default_response(assumptions), d,
                                        tax_rate_frac=assumptions.tax_rate_frac)
     results["break_even_price_mult"] = even["energy_price_mult"]
-    results["break_even_running_h_per_yr"] = even["hours_mult"] * op.running_h[rows]
+    hours = even["hours_mult"] * op.running_h[rows]  # (more hours than the analysis year holds: none within reach)
+    results["break_even_running_h_per_yr"] = np.where(hours <= len(op.index) * op.interval_h, hours, np.nan)
     results["break_even_load_mult"] = even["load_mult"]
     results["break_even_capital_mult"] = even["capital_mult"]
     results.loc[nothing, list(BREAK_EVEN_COLUMNS)] = np.nan

@@ -42,25 +42,6 @@ SPARES_COLUMNS: tuple[str, ...] = (
     "downtime_cost_at_economic_per_yr", "holding_cost_at_economic_per_yr", "saving_at_economic_per_yr")
 
 
-def next_year_failure_frac(age_yr, shape, scale_yr) -> np.ndarray:
-    """Chance that a motor of this age fails within the next year, given that it runs now (Weibull law).
-
-    1 - exp(-[((a + 1) / eta)^beta - (a / eta)^beta]).
-
-    Examples
-    --------
-    A 20-year-old motor of shape 2.5 and scale 20 years: 1 - exp(-(1.05^2.5 - 1)) = 1 - exp(-0.129726) = 0.121664
-    (hand calculation S1 in docs/derivations/spares.md).
-
-    >>> round(float(next_year_failure_frac(20.0, 2.5, 20.0)), 6)
-    0.121664
-    """
-    a = np.asarray(age_yr, dtype=float)
-    beta = np.asarray(shape, dtype=float)
-    eta = np.asarray(scale_yr, dtype=float)
-    return -np.expm1(-(((a + 1.0) / eta) ** beta - (a / eta) ** beta))
-
-
 def fill_rate_frac(spares, mean_away) -> np.ndarray:
     """Share of failures that find a spare on the shelf, P(N <= s - 1) with N Poisson of mean ``mean_away``.
 
@@ -108,8 +89,8 @@ def spares_table(case, result) -> pd.DataFrame:
         One row per group (:data:`SPARES_COLUMNS`), largest rating first: its motors and the ids, how many of them the
         register marks ``spare_on_hand`` (a spare may be shared: not a count of spares), the failures per year, the
         rewind's turnaround and the outage of a failure without a spare [h], the mean number away being rewound, the
-        spares for :data:`TARGET_FILL_FRAC` and the economic number with their fill rates, a spare's price (the
-        group's cheapest new motor's capital), and per year the downtime cost without spares and at the economic
+        spares for :data:`TARGET_FILL_FRAC` and the economic number with their fill rates (blank where no new motor
+        of the kind is priced), a spare's price (the group's cheapest new motor's capital), and per year the downtime cost without spares and at the economic
         number, the holding cost of those spares and the saving [currency/yr]. Empty without an end-of-life
         comparison (it needs a rewind and a new induction option in the catalogue).
 
@@ -138,7 +119,9 @@ def spares_table(case, result) -> pd.DataFrame:
                   else np.full(len(ids), np.nan))
     new_h = np.where(np.isnan(own_new), new_h, own_new)  # ... or the register's own
     rewind_h = np.where(np.isnan(own_rewind), rewind_h, own_rewind)
-    fail = next_year_failure_frac(law.loc[ids, "age"], law.loc[ids, "shape"], law.loc[ids, "scale"])
+    fail = end_of_life.conditional_failure_probability(law.loc[ids, "age"].to_numpy(dtype=float), 1.0,
+                                                       law.loc[ids, "shape"].to_numpy(dtype=float),
+                                                       law.loc[ids, "scale"].to_numpy(dtype=float))
     res = result.results
     capital = dict(zip(zip(res["asset_id"].astype(str), res["option_id"].astype(str)), res["capital"].astype(float)))
     price = np.array([capital.get((str(i), str(o)), np.nan) for i, o in zip(ids, e["new_option_id"])], dtype=float)
@@ -165,18 +148,20 @@ def spares_table(case, result) -> pd.DataFrame:
         fill = fill_rate_frac(s, m)
         downtime_cost = failures * (fill * swap + (1.0 - fill) * outage) * cost_h
         holding = s * spare_price * carrying
-        total = downtime_cost + np.nan_to_num(holding, nan=np.inf)
-        best = int(np.argmin(total))
+        priced = np.isfinite(spare_price)  # (no new motor of the kind priced: the policy's number only)
+        best = int(np.argmin(downtime_cost + holding)) if priced else 0
         target = spares_for_fill(m)
         rows.append({"group": _group_name(*key), "rated_p_kw": key[0], "poles": key[1], "rated_v_v": key[2],
                      "supply_f_hz": key[3], "motors": len(g), "asset_ids": " ".join(g["asset_id"].astype(str)),
                      "motors_with_spare_on_hand": int(g["on_hand"].sum()), "failures_per_yr": failures,
                      "rewind_turnaround_h": turnaround, "outage_without_spare_h": outage, "mean_away": m,
                      "spares_for_target": target, "fill_at_target_frac": float(fill[target]),
-                     "economic_spares": best, "fill_at_economic_frac": float(fill[best]), "spare_price": spare_price,
+                     "economic_spares": best if priced else np.nan,
+                     "fill_at_economic_frac": float(fill[best]) if priced else np.nan, "spare_price": spare_price,
                      "downtime_cost_without_per_yr": float(downtime_cost[0]),
-                     "downtime_cost_at_economic_per_yr": float(downtime_cost[best]),
-                     "holding_cost_at_economic_per_yr": float(holding[best]),
-                     "saving_at_economic_per_yr": float(downtime_cost[0] - downtime_cost[best] - holding[best])})
+                     "downtime_cost_at_economic_per_yr": float(downtime_cost[best]) if priced else np.nan,
+                     "holding_cost_at_economic_per_yr": float(holding[best]) if priced else np.nan,
+                     "saving_at_economic_per_yr": (float(downtime_cost[0] - downtime_cost[best] - holding[best])
+                                                   if priced else np.nan)})
     out = pd.DataFrame(rows, columns=list(SPARES_COLUMNS))
     return out.sort_values(["rated_p_kw", "group"], ascending=[False, True], kind="stable").reset_index(drop=True)

@@ -222,9 +222,7 @@ def test_the_asset_choice_says_where_the_best_option_breaks_even():
     view = services.view(None, None)
     res = view.result().results
     top = res[(res["asset_id"] == "HRW-P01") & res["best_for_asset"]].iloc[0]
-    words = break_even_words(float(top["npv"]), float(top["break_even_price_mult"]),
-                             float(top["break_even_running_h_per_yr"]), float(top["running_h_per_yr"]),
-                             float(top["break_even_load_mult"]), float(top["break_even_capital_mult"]))
+    words = break_even_words(top)
     assert words
     summary = asset.update("HRW-P01", None, None)[0]
     choice = [c for c in summary if getattr(c, "id", None) == "asset-choice"][0].children

@@ -63,7 +63,16 @@ def test_resonance_order_and_the_harmonic_it_meets():
     # hand calculation H3
     assert harmonics.resonance_order([20_000.0], [800.0])[0] == pytest.approx(5.0)
     assert np.isinf(harmonics.resonance_order([20_000.0], [0.0])[0])
-    assert harmonics.resonant_harmonic([4.6, 5.8, 3.0], [4.7, 6.2, 3.2]).tolist() == [5, 0, 0]
+    near = harmonics.near_harmonics([4.6, 4.7])
+    assert near.tolist() == [True] + [False] * 7  # the 5th only (4.5-5.5)
+    assert not harmonics.near_harmonics([5.8, 6.2]).any()  # between 5.5 and 6.3, the 7th's band
+    assert not harmonics.near_harmonics([3.0, 3.2]).any()  # below every drive harmonic
+
+
+def test_capacitor_states_of_fixed_and_stepped_banks():
+    # hand calculation H3: a 150 kVAr fixed bank and a 60 kVAr bank of 10 kVAr steps: 150, 160, ..., 210 kVAr
+    assert harmonics.capacitor_states_kvar(150.0, [(60.0, 10.0)]).tolist() == [150.0 + 10.0 * k for k in range(7)]
+    assert harmonics.capacitor_states_kvar(0.0, [(60.0, 10.0)]).tolist() == [10.0, 20.0, 30.0, 40.0, 50.0, 60.0]
 
 
 def test_monthly_peak_mean_is_the_mean_of_each_months_highest_kva():
@@ -97,6 +106,11 @@ def test_site_screen_today_and_with_a_plan(small_site):
     screen = harmonics.site_screen(case, op, plan).set_index("scenario")
     assert list(harmonics.SCREEN_COLUMNS) == ["site_id", "scenario"] + list(screen.columns)[1:]
     today, planned = screen.loc["today"], screen.loc["plan"]
+    from models.bill_savings import meter_and_bills
+
+    meter = meter_and_bills(case, op, np.zeros(len(op.asset_ids), dtype=int))[0]["S1"]
+    kva = pd.Series(np.hypot(np.asarray(meter.p_kw, dtype=float), np.asarray(meter.q_kvar, dtype=float)), index=op.index)
+    demand = float(kva.groupby([op.index.year, op.index.month]).max().mean())
     assert today["transformer_impedance_pct"] == 4.0 and "assumed" in today["impedance_basis"]
     assert today["short_circuit_kva"] == pytest.approx(12_500.0)
     assert today["pcc_short_circuit_kva"] == pytest.approx(12_500.0)
@@ -107,14 +121,16 @@ def test_site_screen_today_and_with_a_plan(small_site):
     assert planned["drive_kva"] == pytest.approx(25.2866, abs=1e-4)
     assert planned["voltage_thd_pct"] == pytest.approx(0.52441, abs=1e-5)
     for row in (today, planned):
-        assert (row["capacitor_kvar_min"], row["capacitor_kvar_max"]) == (0.0, 60.0)
+        assert (row["capacitor_kvar_min"], row["capacitor_kvar_max"]) == (10.0, 60.0)
         assert row["resonance_order_low"] == pytest.approx(14.434, abs=1e-3)
         assert row["resonance_order_high"] == pytest.approx(35.355, abs=1e-3)
-        assert row["resonant_harmonic"] == 17
-        assert "17th harmonic" in row["finding"]
-        # TDD = 0.40 S_drive / S_L (hand calculation H4's formula, S_L read from the screen)
-        assert row["current_tdd_pct"] == pytest.approx(40.0 * row["drive_kva"] / row["max_demand_kva"], rel=1e-12)
-        assert row["max_demand_kva"] > 0
+        # a step resonates near the 17th, but its voltage amplified ten times stays far below 5 % (H4)
+        assert row["resonant_harmonic"] == 0
+        assert row["finding"].startswith("within the IEEE 519 limits on this screen")
+        # TDD = 0.40 S_drive / S_L (hand calculation H4's formula), S_L the mean of the months' highest interval kVA
+        # of the site's meter as the bills read it (models.bill_savings.meter_and_bills, today's motors)
+        assert row["current_tdd_pct"] == pytest.approx(40.0 * row["drive_kva"] / demand, rel=1e-12)
+        assert row["max_demand_kva"] == pytest.approx(demand, rel=1e-12)
 
 
 def test_site_screen_without_transformer_data_says_what_to_give(small_site):
@@ -157,6 +173,10 @@ def test_a_plan_past_the_limits_is_found(small_site):
     assert row["drive_kva"] == pytest.approx(400.0)
     assert row["voltage_thd_pct"] == pytest.approx(8.2954, abs=1e-4)
     assert "voltage distortion about 8.3 %" in row["finding"] and "harmonic study" in row["finding"]
+    # the 17th at 100 x 17 x 0.041513 x 400 / 12500 = 2.258 %, amplified ten times 22.6 % > 5 %, and the bank's
+    # 40 kVAr step resonates at sqrt(12500 / 40) = 17.68, within 10 % of it (H4): a resonance
+    assert row["resonant_harmonic"] == 17
+    assert "resonate near the 17th harmonic (order 17.7)" in row["finding"]
 
 
 def test_front_ends_have_their_own_spectra():

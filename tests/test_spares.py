@@ -7,7 +7,6 @@ models.end_of_life's (common practice); a spare's price, the motors' new option'
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
 import casebuilder as cb
@@ -16,9 +15,11 @@ from models.case import load_case
 
 
 def test_chance_of_failing_next_year():
-    # hand calculation S1
-    assert spares.next_year_failure_frac(20.0, 2.5, 20.0) == pytest.approx(0.121664, abs=5e-7)
-    assert spares.next_year_failure_frac(10.0, 2.5, 20.0) == pytest.approx(0.046450, abs=5e-7)
+    # hand calculation S1 (models.end_of_life's conditional failure probability over one year, which spares reads)
+    from models.end_of_life import conditional_failure_probability
+
+    assert conditional_failure_probability(20.0, 1.0, 2.5, 20.0) == pytest.approx(0.121664, abs=5e-7)
+    assert conditional_failure_probability(10.0, 1.0, 2.5, 20.0) == pytest.approx(0.046450, abs=5e-7)
 
 
 def test_fill_rates_and_the_fewest_spares_for_a_target():
@@ -60,13 +61,22 @@ def test_a_group_of_two_motors(pair):
     res = result.results.set_index(["asset_id", "option_id"])["capital"]
     new = result.end_of_life.set_index("asset_id")["new_option_id"]
     assert price == pytest.approx(min(res[("A1", new["A1"])], res[("A2", new["A2"])]))  # (an input: the run's capital)
-    holding = price * (result.assumptions.discount_rate_frac + spares.SPARE_UPKEEP_FRAC)
-    if holding < 1343.06:  # one spare pays for itself: the economic number, with S3's downtime of 674.31 a year
-        assert row["economic_spares"] == 1
-        assert row["downtime_cost_at_economic_per_yr"] == pytest.approx(674.31, abs=0.01)
-        assert row["saving_at_economic_per_yr"] == pytest.approx(1343.06 - holding, abs=0.01)
-    else:
-        assert row["economic_spares"] == 0 and row["saving_at_economic_per_yr"] == 0.0
+
+
+def test_a_spare_priced_below_the_downtime_it_avoids_is_kept(pair):
+    # hand calculation S3 with every capital set to 2,000: holding one spare costs 2000 x (d + 0.05) a year, below
+    # the 1,343.06 of downtime it avoids; with it the downtime costs 674.31 a year
+    case, result, _ = pair
+    from dataclasses import replace
+
+    priced = replace(result, results=result.results.assign(capital=2_000.0))
+    row = spares.spares_table(case, priced).iloc[0]
+    holding = 2_000.0 * (result.assumptions.discount_rate_frac + spares.SPARE_UPKEEP_FRAC)
+    assert holding < 1343.06
+    assert row["economic_spares"] == 1 and row["spare_price"] == 2_000.0
+    assert row["downtime_cost_at_economic_per_yr"] == pytest.approx(674.31, abs=0.01)
+    assert row["holding_cost_at_economic_per_yr"] == pytest.approx(holding, rel=1e-12)
+    assert row["saving_at_economic_per_yr"] == pytest.approx(1343.06 - holding, abs=0.01)
 
 
 def test_a_dearer_spare_is_not_worth_holding(pair):
@@ -88,4 +98,3 @@ def test_no_end_of_life_comparison_gives_an_empty_table(pair):
 
     table = spares.spares_table(case, replace(result, end_of_life=pd.DataFrame()))
     assert table.empty and list(table.columns) == list(spares.SPARES_COLUMNS)
-    assert np.isfinite(spares.next_year_failure_frac(0.0, 2.5, 20.0))

@@ -75,7 +75,8 @@ def test_days_only_and_a_short_period_are_said(verified):
     assert row["adjusted_baseline_kwh"] == pytest.approx(1000.0)
     assert row["avoided_kwh"] == pytest.approx(50.0)
     assert row["avoided_kwh_per_yr"] == pytest.approx(1825.0)
-    assert "adjusted by days only" in row["finding"] and "shorter than a duty cycle" in row["finding"]
+    # C1's option is a new induction motor at unchanged duty: two weeks asked (the M&V plan's rule)
+    assert "adjusted by days only" in row["finding"] and "a reporting period of 10 days, shorter than the 14 days asked" in row["finding"]
 
 
 def test_the_value_is_the_projects_bill_saving_per_kwh_saved(verified):

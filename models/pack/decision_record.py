@@ -215,9 +215,7 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
                                                               f"(plan year {start} discounted), as the report's table "
                                                               "gives it.")
         # how far the inputs may move before it stops paying, after the NPV's sentence (a record is one page)
-        even = break_even_words(own_npv, float(rec["break_even_price_mult"]), float(rec["break_even_running_h_per_yr"]),
-                                float(rec["running_h_per_yr"]), float(rec["break_even_load_mult"]),
-                                float(rec["break_even_capital_mult"]), brief=True)
+        even = break_even_words(rec, brief=True)
         if even:
             reasons[npv_said] += " " + even
         others = res[(res["option_id"] != rec["option_id"]) & (res["option_id"] != keep_id)].sort_values("npv", ascending=False)
@@ -314,10 +312,12 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         # a drive or a capacitor changes the site's harmonics: the fleet plan's screen of its site, in place of the
         # drive caution's general words on distortion (a record is one page)
         screen = content.plan_harmonic_screen(case, result)
-        mine = screen[(screen["site_id"] == str(x["site_id"])) & (screen["scenario"] == "plan")]
-        if len(mine) and not str(mine["finding"].iloc[0]).startswith(("within", "no drives", "not screened")):
-            said = (f"site {x['site_id']} fails IEEE 519 or resonates with the plan on a first screen "
-                    "(harmonic_screen.csv): study and mitigate first")
+        mine = screen[screen["site_id"] == str(x["site_id"])].set_index("scenario")["finding"].astype(str)
+        found = {k: not v.startswith(("within", "no drives", "not screened")) for k, v in mine.items()}
+        if found.get("plan", False):
+            when = "today and with the plan" if found.get("today", False) else "with the plan"
+            said = (f"site {x['site_id']}'s harmonic screen finds distortion past IEEE 519 or a resonance {when} "
+                    "(harmonic_screen.csv), to study and mitigate first")
             general = [k for k, c in enumerate(cautions) if "check voltage distortion limits" in c]
             for k in general:
                 cautions[k] = cautions[k].replace("check voltage distortion limits", said)

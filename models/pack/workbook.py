@@ -1047,13 +1047,13 @@ def _spares(ws: Worksheet, row: int, case, result, scope: content.Scope, f: _For
     mine = set(scope.asset_ids)
     table = table[[bool(mine & set(ids.split(" "))) for ids in table["asset_ids"]]]
     put_text(ws, row + 1, 1, f"A rotating pool: a failed motor is swapped for a spare and rewound to become the next. "
-             f"Spares for {TARGET_FILL_FRAC:.0%} of failures to find one, and the number that costs least with the "
-             f"downtime it avoids against holding the spares (their price x (discount rate + {SPARE_UPKEEP_FRAC:.0%} "
+             f"Spares for {100 * TARGET_FILL_FRAC:g} % of failures to find one, and the number that costs least with the "
+             f"downtime it avoids against holding the spares (their price x (discount rate + {100 * SPARE_UPKEEP_FRAC:g} % "
              "upkeep) a year). Motors of one group must also share frame, mounting and shaft: confirm on site.")
     cols = [("group", "Group", None), ("motors", "Motors", "0"), ("asset_ids", "Assets", None),
             ("failures_per_yr", "Failures a year", "0.000"), ("rewind_turnaround_h", "Rewind turnaround [h]", "0"),
             ("outage_without_spare_h", "Outage without a spare [h]", "0"),
-            ("spares_for_target", f"Spares for {TARGET_FILL_FRAC:.0%}", "0"), ("economic_spares", "Economic spares", "0"),
+            ("spares_for_target", f"Spares for {100 * TARGET_FILL_FRAC:g} %", "0"), ("economic_spares", "Economic spares", "0"),
             ("fill_at_economic_frac", "Their fill rate", f.frac), ("spare_price", f"Spare price [{f.currency}]", f.money),
             ("downtime_cost_without_per_yr", f"Downtime without spares [{f.currency}/yr]", f.money),
             ("saving_at_economic_per_yr", f"Saving with the economic spares [{f.currency}/yr]", f.money)]
