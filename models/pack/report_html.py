@@ -521,7 +521,9 @@ def _harmonic_context(case, result, scope: content.Scope) -> dict[str, Any]:
                          cell(f"{r['worst_harmonic']}th: {r['worst_harmonic_pct']:.1f} / {r['harmonic_limit_pct']:g}"
                               if screened else ""),
                          cell(f"{r['current_tdd_pct']:.1f} / {r['current_tdd_limit_pct']:g}"
-                              if r["current_tdd_pct"] == r["current_tdd_pct"] else ""),
+                              if np.isfinite(r["current_tdd_pct"]) and np.isfinite(r["current_tdd_limit_pct"])
+                              else f"{r['current_tdd_pct']:.1f} / none (above 161 kV)" if np.isfinite(r["current_tdd_pct"])
+                              else ""),
                          cell(f"{r['capacitor_kvar_min']:,.0f}-{r['capacitor_kvar_max']:,.0f}"
                               if r["capacitor_kvar_max"] != r["capacitor_kvar_min"] else f"{r['capacitor_kvar_max']:,.0f}"),
                          cell(_order_span(r["resonance_order_low"], r["resonance_order_high"])
