@@ -379,7 +379,8 @@ def _finding(row: dict, near_order: float = np.nan) -> str:
                      f"{row['current_tdd_limit_pct']:g} %")
     if row["resonant_harmonic"]:
         parts.append(f"the capacitors resonate near the {ordinal(row['resonant_harmonic'])} harmonic (order "
-                     f"{near_order:.1f}), which would lift its voltage past {row['harmonic_limit_pct']:g} %: a detuned bank")
+                     f"{near_order:.1f}), which would lift its voltage past {row['harmonic_limit_pct']:g} %: fit a detuned "
+                     "bank")
     note = ("" if np.isfinite(row["current_tdd_pct"])
             else "; current distortion not screened (give supply_fault_kva, the utility's fault level at the supply)")
     if not parts:

@@ -644,11 +644,11 @@ def break_even_words(row: Mapping[str, Any], year_h: float = 8760.0, brief: bool
     >>> row = {"break_even_price_mult": 0.83, "break_even_running_h_per_yr": 7076.0, "running_h_per_yr": 8760.0,
     ...        "break_even_load_mult": 0.83, "break_even_capital_mult": 1.2}
     >>> break_even_words(row)
-    'Break-even, each alone: x0.83 the prices, 7,076 h/yr (8,760 today), x0.83 the load, x1.20 the capital.'
+    'Break-even, each alone: electricity prices x0.83, 7,076 h/yr (8,760 today), shaft load x0.83, capital x1.20.'
     >>> break_even_words(row, brief=True)
     'Break-even (each alone): prices x0.83, 7,076 h/yr, capital x1.20.'
     >>> break_even_words({**row, "break_even_running_h_per_yr": float("nan"), "break_even_load_mult": float("nan")})
-    'Break-even, each alone: x0.83 the prices, x1.20 the capital.'
+    'Break-even, each alone: electricity prices x0.83, capital x1.20.'
     """
     def value(name: str) -> float:
         v = float(row.get(name, float("nan")))
@@ -658,13 +658,13 @@ def break_even_words(row: Mapping[str, Any], year_h: float = 8760.0, brief: bool
                                                                        "capital_mult"))
     parts = []
     if price == price:
-        parts.append(f"prices x{price:.2f}" if brief else f"x{price:.2f} the prices")
+        parts.append(f"prices x{price:.2f}" if brief else f"electricity prices x{price:.2f}")
     if hours == hours and hours <= year_h:
         parts.append(f"{hours:,.0f} h/yr" + ("" if brief else f" ({value('running_h_per_yr'):,.0f} today)"))
     if load == load and not brief:
-        parts.append(f"x{load:.2f} the load")
+        parts.append(f"shaft load x{load:.2f}")
     if capital == capital:
-        parts.append(f"capital x{capital:.2f}" if brief else f"x{capital:.2f} the capital")
+        parts.append(f"capital x{capital:.2f}")
     if not parts:
         return ""
     return ("Break-even (each alone): " if brief else "Break-even, each alone: ") + ", ".join(parts) + "."
