@@ -316,7 +316,13 @@ def record_context(case, result, scope: content.Scope, asset_id: str) -> dict:
         found = {k: not v.startswith(("within", "no drives", "not screened")) for k, v in mine.items()}
         if found.get("plan", False):
             when = "today and with the plan" if found.get("today", False) else "with the plan"
-            said = (f"site {x['site_id']}'s harmonic screen finds distortion past IEEE 519 or a resonance {when} "
+            finding = mine.get("plan", "")
+            what = [name for name, word in (("voltage distortion", "voltage distortion"),
+                                            ("current distortion", "current distortion"), ("a resonance", "resonate"))
+                    if word in finding]
+            what_text = (", ".join(what[:-1]) + " and " + what[-1] if len(what) > 1 else what[0] if what
+                         else "distortion past IEEE 519 or a resonance")
+            said = (f"site {x['site_id']}'s harmonic screen finds {what_text} {when} "
                     "(harmonic_screen.csv), to study and mitigate first")
             general = [k for k, c in enumerate(cautions) if "check voltage distortion limits" in c]
             for k in general:

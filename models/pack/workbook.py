@@ -1161,7 +1161,8 @@ def _harmonics(ws: Worksheet, case, result, scope: content.Scope) -> None:
             ("capacitor_kvar_max", "Capacitors, most [kVAr]", "#,##0"),
             ("resonance_order_low", "Resonance order, lowest", "0.0"),
             ("resonance_order_high", "Resonance order, highest", "0.0"),
-            ("resonant_harmonic", "Tuned to harmonic (0 none)", "0"), ("finding", "Finding", None)]
+            ("resonant_harmonic", "Tuned to harmonic (0 none)", "0"), ("front_ends", "Drives by front end", None),
+            ("finding", "Finding", None)]
     _table(ws, 5, table, cols)  # (missing and infinite values are written blank)
     _widths(ws, {1: 10, 2: 10, **{k: 13 for k in range(3, len(cols))}, len(cols): 90})
 
