@@ -459,7 +459,7 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     fault = column("supply_fault_kva")
     s_sc = short_circuit_kva(s_tx, z, fault)
     supply_v = column("supply_v_v")
-    caps = case.capacitors if case.capacitors is not None else pd.DataFrame(columns=["site_id", "rated_q_kvar", "control"])
+    caps = case.capacitors  # (always a table: empty, with its columns, where the case gives none)
     demands = _maximum_demands(case, op)
     rows = []
     for k, site_id in enumerate(sites["site_id"].astype(str)):

@@ -434,6 +434,7 @@ def monte_carlo(
     tax_component: str = "tax_savings",
     max_chunk_elements: int = 4_000_000,
     payback_leaves_out: tuple[str, ...] = ("residual",),
+    paybacks: bool = True,
 ) -> MonteCarloResult:
     """Re-price per-component cash flows under every draw and return NPV and payback per project.
 
@@ -465,6 +466,8 @@ def monte_carlo(
     payback_leaves_out : tuple of str
         Components the payback does not count (the residual value at the horizon's end: a book value,
         not cash), as the deterministic paybacks of :func:`models.scenario.economics`.
+    paybacks : bool
+        Compute the paybacks (False: NPVs only, the paybacks NaN).
 
     Returns
     -------
@@ -508,7 +511,7 @@ def monte_carlo(
                          "reaches -100 % or below, which has no present value: give a discount rate further above -1 "
                          "(finance assumptions, discount_rate_frac), or run without the uncertainty")
     npv_out = np.empty((n_draws, n))
-    payback_out = np.empty((n_draws, n))
+    payback_out = np.empty((n_draws, n)) if paybacks else np.full((n_draws, n), np.nan)
     active = [c for c in range(len(component_names)) if np.any(amounts[:, :, c])
               and not (tax_rate_frac > 0 and component_names[c] == tax_component)]
     # components that respond alike (same factors, escalation and tax weight) are summed once: the
@@ -550,6 +553,8 @@ def monte_carlo(
             flows += weight[:, :, None] * bases[g][None, :, :] * coef[g][:, None, :]
         discount = np.power(1.0 + rate[draws, None], -t[None, :])
         npv_out[draws] = np.einsum("dnt,dt->dn", flows, discount)
+        if not paybacks:
+            continue
         weights = dict(per_project)
         for g, key in enumerate(keys):  # the components the payback leaves out, taken off the flows
             if key[4]:
@@ -559,6 +564,17 @@ def monte_carlo(
         payback_out[draws] = payback.payback_yr
     ids = np.arange(n).astype(str) if project_id is None else np.asarray(project_id, dtype=object).astype(str)
     return MonteCarloResult(project_id=ids, npv=npv_out, payback_yr=payback_out, discount_rate_frac=rate)
+
+
+def base_factors(names) -> dict[str, float]:
+    """Each factor at its base: 0 for an additive ``*_delta_frac``, 1 for a multiplier.
+
+    Examples
+    --------
+    >>> base_factors(["hours_mult", "discount_rate_delta_frac"])
+    {'hours_mult': 1.0, 'discount_rate_delta_frac': 0.0}
+    """
+    return {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in names}
 
 
 #: The factors each project's break-even is found for (:func:`break_even_multipliers`): the multiplier on the
@@ -613,13 +629,14 @@ def break_even_multipliers(amounts: np.ndarray, component_names: tuple[str, ...]
         if rule.escalation_delta is not None:
             names.add(rule.escalation_delta)
     names.add("discount_rate_delta_frac")
-    start = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in names}
+    start = base_factors(names)
     start.update(base or {})
     draws = {name: np.full(1 + len(factors), float(value)) for name, value in start.items()}
     for k, factor in enumerate(factors):
         if factor in draws:
             draws[factor][1 + k] = 0.0
-    npv = monte_carlo(amounts, component_names, draws, response, discount_rate_frac, tax_rate_frac=tax_rate_frac).npv
+    npv = monte_carlo(amounts, component_names, draws, response, discount_rate_frac, tax_rate_frac=tax_rate_frac,
+                      paybacks=False).npv
     out = {}
     scale = np.maximum(np.abs(amounts).sum(axis=(1, 2)), 1.0)
     for k, factor in enumerate(factors):

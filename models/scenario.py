@@ -1340,7 +1340,7 @@ def _risk_of_rows(flows, assumptions, rows: np.ndarray, d: float, start_yr=None,
     add = np.zeros(len(rows)) if offset is None else np.asarray(offset, dtype=float)
     names = flows.component_names
     response = risk.default_response(assumptions)
-    base = {name: (0.0 if name.endswith("_delta_frac") else 1.0) for name in TORNADO_RANGES}
+    base = risk.base_factors(TORNADO_RANGES)
 
     amounts = flows.amounts[rows]
     if loss_band is not None:
