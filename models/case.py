@@ -2214,8 +2214,9 @@ _MONTH_PATTERN = re.compile(r"^(\d{4})-(\d{2})$")
 
 def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, option_techs: dict | None) -> None:
     """The savings verification table: known assets and options (not today's motor), dates written YYYY-MM-DD with
-    the last day on or after the first, no more running hours than the period has, one option per asset; an asset
-    with a baseline and no reporting period yet (or the other way round) is said."""
+    the last day on or after the first, no more running hours than the period has, one option per asset, an asset's
+    reporting period after its baseline; an asset with a baseline and no reporting period yet (or the other way
+    round) is said."""
     v = checker.frame
     for i in np.flatnonzero(v["asset_id"].notna().to_numpy() & (asset_ids is not None)
                             & ~v["asset_id"].astype(str).isin(asset_ids or set()).to_numpy()):
@@ -2231,7 +2232,7 @@ def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, opti
             elif option_techs[str(option)] == "existing":
                 checker.err(i, "option_id", option, "the option installed cannot be today's motor kept as it is",
                             "name the project installed (a rewind, a new motor, a drive, a capacitor...)")
-    days = []
+    days, spans = [], []
     for i, (start, end) in enumerate(zip(v["start_date"], v["end_date"])):
         dates = []
         for column, value in (("start_date", start), ("end_date", end)):
@@ -2245,6 +2246,7 @@ def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, opti
             checker.err(i, "end_date", end, "the last day is before the first", "end_date >= start_date")
             dates[1] = None
         days.append((dates[1] - dates[0]).days + 1 if None not in dates else np.nan)
+        spans.append(tuple(dates) if None not in dates else None)
         if None not in dates:
             v.loc[v.index[i], "start_date"], v.loc[v.index[i], "end_date"] = dates[0].isoformat(), dates[1].isoformat()
     days = np.asarray(days, dtype=float)
@@ -2261,12 +2263,37 @@ def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, opti
                         f"asset {asset} names more than one option installed ({', '.join(sorted(options))})",
                         "one project per asset: give every row of the asset the option installed")
         periods = set(v["period"].iloc[rows].dropna().astype(str))
+        _check_periods_apart(checker, asset, rows, v["period"].astype(str).to_numpy(), spans)
         if periods == {"baseline"}:
             checker.warn(int(rows[0]), "period", "baseline", f"asset {asset} has a baseline and no reporting period yet: "
                          "nothing to verify", "add the measurements after the project as period reporting")
         elif periods == {"reporting"}:
             checker.warn(int(rows[0]), "period", "reporting", f"asset {asset} has no baseline: its savings cannot be "
                          "verified", "add the measurements of today's motor before the project as period baseline")
+
+
+def _check_periods_apart(checker: _TableChecker, asset: str, rows: np.ndarray, periods: np.ndarray,
+                         spans: list) -> None:
+    """An asset's reporting rows must start after its baseline ends: a reporting row that starts on or before the
+    baseline's last day, or ends before it starts, is an error (the baseline is today's motor before the project, the
+    reporting period the project's after it)."""
+    base = [spans[i] for i in rows if periods[i] == "baseline" and spans[i] is not None]
+    if not base:
+        return
+    first, last = min(s[0] for s in base), max(s[1] for s in base)
+    for i in rows:
+        if periods[i] != "reporting" or spans[i] is None:
+            continue
+        start, end = spans[i]
+        if end < first:
+            checker.err(int(i), "start_date", start.isoformat(),
+                        f"asset {asset}'s reporting period ends before its baseline starts ({first.isoformat()})",
+                        "the baseline is measured before the project, the reporting period after it")
+        elif start <= last:
+            checker.err(int(i), "start_date", start.isoformat(),
+                        f"asset {asset}'s reporting period starts on or before the last day of its baseline "
+                        f"({last.isoformat()})", "start the reporting period after the project is installed, "
+                        "once the baseline has ended")
 
 
 def _check_bill_history(checker: _TableChecker, site_ids: set[str] | None) -> None:

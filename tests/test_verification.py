@@ -124,6 +124,25 @@ def test_bad_rows_are_told_by_file_row_and_column(tmp_path):
     assert "YYYY-MM-DD" in said[(6, "end_date")]
 
 
+def test_a_reporting_period_must_come_after_the_baseline(tmp_path):
+    # F1: the reporting period starts on the baseline's last day; P1: between two baseline rows; C1: before
+    # the baseline (each an error on its reporting row's start_date; rows counted from 2, under the header)
+    rows = ("F1,ie3,baseline,2026-01-05,2026-01-18,12000,,\n"
+            "F1,ie3,reporting,2026-01-18,2026-01-31,11000,,\n"
+            "P1,ie4,baseline,2026-01-01,2026-01-10,1500,,\n"
+            "P1,ie4,baseline,2026-02-01,2026-02-10,1500,,\n"
+            "P1,ie4,reporting,2026-01-12,2026-01-20,1400,,\n"
+            "C1,ie3,baseline,2026-03-01,2026-03-07,700,,\n"
+            "C1,ie3,reporting,2026-02-01,2026-02-10,950,,\n")
+    case, problems = _case(tmp_path / "order", rows)
+    assert case is None
+    said = {(p.row, p.column): p.rule for p in problems if p.severity == "error" and p.file == "verification.csv"}
+    assert "starts on or before the last day of its baseline (2026-01-18)" in said[(3, "start_date")]
+    assert "starts on or before the last day of its baseline (2026-02-10)" in said[(6, "start_date")]
+    assert "ends before its baseline starts (2026-03-01)" in said[(8, "start_date")]
+    assert len(said) == 3
+
+
 def test_a_baseline_without_a_reporting_period_is_a_warning_and_a_row_that_waits(tmp_path):
     case, problems = _case(tmp_path / "wait", "F1,ie3,baseline,2026-01-05,2026-01-18,12000,,\n")
     assert case is not None
