@@ -1752,6 +1752,46 @@ def _fill_defaults(assets: pd.DataFrame, duty_ids: set[str]) -> tuple[pd.DataFra
     return a, defaults
 
 
+#: The register's column each calibration rule of today's motors points at, and the rule's words for
+#: the model's own names (:func:`models.operation.today_calibration_failures`).
+_CALIBRATION_COLUMNS = {"rated_p_kw": "rated_p_kw", "rated_efficiency": "rated_efficiency_pct",
+                        "rated_power_factor": "rated_power_factor", "sync_speed": "poles",
+                        "rated_speed": "rated_speed_rpm", "efficiency_75_frac": "efficiency_75_pct",
+                        "efficiency_50_frac": "efficiency_50_pct", "power_factor_75": "power_factor_75",
+                        "power_factor_50": "power_factor_50", "rewind_count": "rewind_count",
+                        "rewind_loss": "rewind_loss_pct_points"}
+_CALIBRATION_WORDS = (("rated_efficiency_frac", "rated_efficiency_pct"), ("efficiency_75_frac", "efficiency_75_pct"),
+                      ("efficiency_50_frac", "efficiency_50_pct"), ("sync_speed_rpm", "the synchronous speed"))
+
+
+def _check_calibration(checker: _TableChecker, assets: pd.DataFrame, defaults: pd.DataFrame) -> list[Problem]:
+    """Today's motors the machine model cannot calibrate from their nameplates (defaults filled in), one
+    error per motor on the column its first failed rule points at, said with the cell's value and, where
+    that value is a default, its basis; returns the new problems (none: every motor calibrates)."""
+    from models.operation import asset_arrays, today_calibration_failures
+
+    quantity, message = today_calibration_failures(asset_arrays(assets))
+    before = len(checker.problems)
+    filled = {(str(r.asset_id), str(r.column)): str(r.basis) for r in defaults.itertuples(index=False)}
+    for i in np.flatnonzero(quantity != ""):
+        column = _CALIBRATION_COLUMNS.get(str(quantity[i]), "rated_efficiency_pct")
+        text = str(message[i])
+        for model_name, register_name in _CALIBRATION_WORDS:
+            text = text.replace(model_name, register_name)
+        basis = filled.get((str(assets["asset_id"].iloc[i]), column))
+        value = assets[column].iloc[i] if column in assets else None
+        read = assets.iloc[i]
+        sync = float(read["sync_speed_rpm"])
+        hint = (f"the machine model cannot be calibrated from the nameplate as read ({read['rated_p_kw']:g} kW, "
+                f"{read['rated_efficiency_pct']:.4g} %, power factor {read['rated_power_factor']:.3g}, "
+                f"{read['rated_speed_rpm']:.5g} rpm: a slip of {100 * (sync - read['rated_speed_rpm']) / sync:.2g} %): "
+                "check them against the nameplate or datasheet")
+        if basis:
+            hint = f"this value is a default ({basis}): give the nameplate's; " + hint
+        checker.err(i, column, value, text, hint)
+    return checker.problems[before:]
+
+
 def _check_sites(checker: _TableChecker, tariffs: dict[str, dict], profiles: dict[str, pd.Series],
                  tariffs_expected: bool, unreadable: set[str] = frozenset(),
                  rejected_profiles: set[str] | None = frozenset()) -> None:
@@ -2727,6 +2767,9 @@ def _load(path: str | Path, today: _dt.date | None) -> tuple[Case | None, list[P
                         "motor's rating, poles and supply frequency",
                         "give the nameplate efficiency in percent")
         return None, ordered(problems + checker.problems[before:])
+    uncalibrated = _check_calibration(checkers["assets"], assets, defaults)
+    if uncalibrated:
+        return None, ordered(problems + uncalibrated)
     empty_caps = _TableChecker(io.RawTable("capacitors", "capacitors.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_duty = _TableChecker(io.RawTable("duty", "duty.csv", pd.DataFrame(), np.array([], dtype=int))).run()
     empty_bills = _TableChecker(io.RawTable("bill_history", "bill_history.csv", pd.DataFrame(),

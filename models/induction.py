@@ -109,6 +109,11 @@ def _require(ok: np.ndarray | bool, message: str) -> None:
         raise ValueError(f"{message} ({_bad_index_text(~ok_arr)}).")
 
 
+def _require_in(ok: np.ndarray | bool, message: str, quantity: str) -> None:
+    """:func:`_require`, given also the input a calibration rule points at (``quantity``, not read here)."""
+    _require(ok, message)
+
+
 # --------------------------------------------------------------------------------------------------
 # Speed, slip and power-flow relations
 # --------------------------------------------------------------------------------------------------
@@ -1034,6 +1039,8 @@ def calibrate_induction(
     rewind_loss_pct_points=DEFAULT_REWIND_LOSS_PCT_POINTS,
     peak_efficiency_load_frac=DEFAULT_PEAK_EFFICIENCY_LOAD_FRAC,
     magnetising_kvar_share_frac=DEFAULT_MAGNETISING_KVAR_SHARE_FRAC,
+    *,
+    fail=None,
 ) -> InductionParams:
     """Calibrate induction-motor loss and reactive coefficients from nameplate and catalogue data.
 
@@ -1066,6 +1073,10 @@ def calibrate_induction(
         Load of peak efficiency used when no part-load efficiency is given [-], in (0.3, 1].
     magnetising_kvar_share_frac : array_like, optional
         No-load kVAr as a share of full-load kVAr used when no part-load PF is given [-], in [0, 1].
+    fail : callable, optional
+        ``fail(ok, message, quantity)``, called with each rule's mask (True where a motor passes it), its
+        message and the input it points at; default: raise ValueError where a motor fails
+        (:func:`calibration_failures` collects instead).
 
     Returns
     -------
@@ -1111,6 +1122,7 @@ def calibrate_induction(
     >>> np.round(op.efficiency_frac, 4).tolist()
     [0.9182, 0.925]
     """
+    fail = _require_in if fail is None else fail
     arrays = np.broadcast_arrays(
         *[
             np.asarray(v, dtype=float)
@@ -1134,27 +1146,27 @@ def calibrate_induction(
     p_r, eta, pf, n_r, n_s, e75, e50, pf75, pf50, rewinds, per_rewind, x_pk, q_share = (a.copy() for a in arrays)
 
     # ---- input validation ----
-    _require(np.isfinite(p_r) & (p_r > 0), "rated_p_kw must be positive")
-    _require((eta > 0) & (eta < 1), "rated_efficiency_frac must lie in (0, 1)")
-    _require((pf > 0) & (pf <= 1), "rated_power_factor must lie in (0, 1]")
-    _require(np.isfinite(n_s) & (n_s > 0), "sync_speed_rpm must be positive")
+    fail(np.isfinite(p_r) & (p_r > 0), "rated_p_kw must be positive", "rated_p_kw")
+    fail((eta > 0) & (eta < 1), "rated_efficiency_frac must lie in (0, 1)", "rated_efficiency")
+    fail((pf > 0) & (pf <= 1), "rated_power_factor must lie in (0, 1]", "rated_power_factor")
+    fail(np.isfinite(n_s) & (n_s > 0), "sync_speed_rpm must be positive", "sync_speed")
     given_speed = ~np.isnan(n_r)
     with np.errstate(invalid="ignore"):
-        _require(~given_speed | (n_r < n_s), "rated_speed_rpm must be below sync_speed_rpm for an induction motor")
-        _require(~given_speed | (n_r > 0), "rated_speed_rpm must be positive")
+        fail(~given_speed | (n_r < n_s), "rated_speed_rpm must be below sync_speed_rpm for an induction motor", "rated_speed")
+        fail(~given_speed | (n_r > 0), "rated_speed_rpm must be positive", "rated_speed")
         for name, v in (("efficiency_75_frac", e75), ("efficiency_50_frac", e50)):
-            _require(np.isnan(v) | ((v > 0) & (v < 1)), f"{name} must lie in (0, 1) or be NaN")
+            fail(np.isnan(v) | ((v > 0) & (v < 1)), f"{name} must lie in (0, 1) or be NaN", name)
         for name, v in (("power_factor_75", pf75), ("power_factor_50", pf50)):
-            _require(np.isnan(v) | ((v > 0) & (v <= 1)), f"{name} must lie in (0, 1] or be NaN")
-    _require(np.isfinite(rewinds) & (rewinds >= 0), "rewind_count must be >= 0")
-    _require(np.isfinite(per_rewind) & (per_rewind >= 0), "rewind_loss_pct_points must be >= 0")
-    _require((x_pk > 0.3) & (x_pk <= 1.0), "peak_efficiency_load_frac must lie in (0.3, 1]")
-    _require((q_share >= 0) & (q_share <= 1), "magnetising_kvar_share_frac must lie in [0, 1]")
+            fail(np.isnan(v) | ((v > 0) & (v <= 1)), f"{name} must lie in (0, 1] or be NaN", name)
+    fail(np.isfinite(rewinds) & (rewinds >= 0), "rewind_count must be >= 0", "rewind_count")
+    fail(np.isfinite(per_rewind) & (per_rewind >= 0), "rewind_loss_pct_points must be >= 0", "rewind_loss")
+    fail((x_pk > 0.3) & (x_pk <= 1.0), "peak_efficiency_load_frac must lie in (0.3, 1]", "peak_efficiency_load")
+    fail((q_share >= 0) & (q_share <= 1), "magnetising_kvar_share_frac must lie in [0, 1]", "magnetising_kvar_share")
     eta_rewound = eta - rewinds * per_rewind / 100.0
-    _require(eta_rewound > 0.05, "rewind losses leave no credible efficiency; check rewind_count and rewind_loss_pct_points")
+    fail(eta_rewound > 0.05, "rewind losses leave no credible efficiency; check rewind_count and rewind_loss_pct_points", "rewind_count")
 
     s_r = np.where(given_speed, (n_s - np.where(given_speed, n_r, 0.0)) / n_s, default_rated_slip_frac(p_r))
-    _require(s_r <= MAX_RATED_SLIP_FRAC, f"rated slip above {MAX_RATED_SLIP_FRAC:.0%} is outside the model; check rated and sync speed")
+    fail(s_r <= MAX_RATED_SLIP_FRAC, f"rated slip above {MAX_RATED_SLIP_FRAC:.0%} is outside the model; check rated and sync speed", "rated_speed")
 
     has75, has50 = ~np.isnan(e75), ~np.isnan(e50)
     e75 = np.where(has75, e75, 1.0)
@@ -1182,23 +1194,26 @@ def calibrate_induction(
         )
     # p_fw, p_ag_r and r_cu are those of the last pass, so the fit is exact for them; friction and
     # windage is then the set share of the previous pass's A (converged to ~1e-9 relative).
-    _require(
+    fail(
         rest > 0.05 * loss_r,
         "rated slip implies a rotor copper loss (slip x air-gap power) above 95 % of the full-load losses; "
         "check rated speed against rated efficiency",
+        "rated_speed",
     )
-    _require(
+    fail(
         fit_ok,
         "efficiency_75_frac and efficiency_50_frac are not consistent with losses rising with load "
         f"as y^k, {MIN_LOAD_EXPONENT:g} <= k <= {MAX_LOAD_EXPONENT:g}",
+        "efficiency_75_frac",
     )
-    _require(
+    fail(
         b_load >= 0,
         "rated slip, efficiency and part-load points leave a negative stator copper loss; "
         "check rated speed, rated efficiency and the part-load efficiencies",
+        "rated_efficiency",
     )
     core0 = a_const - p_fw
-    _require(core0 > 0, "part-load efficiencies imply a negative core loss; check efficiency_75_frac and efficiency_50_frac")
+    fail(core0 > 0, "part-load efficiencies imply a negative core loss; check efficiency_75_frac and efficiency_50_frac", "efficiency_50_frac")
 
     # ---- reactive power, fitted on the original (pre-rewind) input power ----
     has_pf75, has_pf50 = ~np.isnan(pf75), ~np.isnan(pf50)
@@ -1216,9 +1231,10 @@ def calibrate_induction(
     q0, q_load, k_q, q_ok = _fit_profile(
         q_r, y75, p_in_75 * tan_phi(pf75), has_pf75, y50, p_in_50 * tan_phi(pf50), has_pf50, q_share
     )
-    _require(
+    fail(
         q_ok & (q0 >= 0) & (q_load >= 0),
         "power_factor_75 and power_factor_50 imply kVAr that is negative or falls with load; check them",
+        "power_factor_75",
     )
 
     # ---- rewinds: raise core and stator-side losses so full-load efficiency drops by the set points ----
@@ -1239,3 +1255,43 @@ def calibrate_induction(
         q_load_kvar=q_load,
         q_exponent=k_q,
     )
+
+
+def calibration_failures(*args, **kwargs) -> tuple[np.ndarray, np.ndarray]:
+    """The first rule of :func:`calibrate_induction` each motor fails, without raising.
+
+    Takes :func:`calibrate_induction`'s arguments. A motor failing one rule is not judged by the later ones
+    (their values rest on the first).
+
+    Returns
+    -------
+    quantity, message : numpy.ndarray of object, shape of the broadcast inputs
+        The input the first failed rule points at (``"rated_speed"``, ``"rated_efficiency"``,
+        ``"efficiency_75_frac"``...) and the rule's message; "" for a motor that passes every rule.
+
+    Examples
+    --------
+    A 0.75 kW motor at 97 % and 1,380 rpm: its slip's rotor loss is more than all its losses.
+
+    >>> q, m = calibration_failures([15.0, 0.75], [0.921, 0.97], [0.84, 0.75], [1465.0, 1380.0], 1500.0)
+    >>> q.tolist()
+    ['', 'rated_speed']
+    >>> m[1].startswith("rated slip implies a rotor copper loss")
+    True
+    """
+    found: list[tuple[np.ndarray, str, str]] = []
+
+    def collect(ok, message: str, quantity: str) -> None:
+        found.append((~np.asarray(ok, dtype=bool), message, quantity))
+
+    with np.errstate(all="ignore"):
+        calibrate_induction(*args, fail=collect, **kwargs)
+    shape = np.broadcast_shapes(*(np.shape(bad) for bad, _, _ in found)) if found else ()
+    quantity = np.full(shape, "", dtype=object)
+    message = np.full(shape, "", dtype=object)
+    for bad, text, name in found:
+        new = np.broadcast_to(bad, shape) & (quantity == "")
+        quantity[new] = name
+        message[new] = text
+    return quantity, message
+

@@ -277,12 +277,21 @@ def existing_motor(arr: dict[str, np.ndarray], extra_rewinds: int = 0) -> induct
                    rated_power_factor=np.where(wound, 1.0, params.rated_power_factor))
 
 
-def _calibrated_today(arr: dict[str, np.ndarray], speed: np.ndarray, extra_rewinds: int) -> induction.InductionParams:
-    return induction.calibrate_induction(
+def _calibrated_today(arr: dict[str, np.ndarray], speed: np.ndarray, extra_rewinds: int,
+                      calibrate=induction.calibrate_induction):
+    return calibrate(
         arr["rated_p_kw"], arr["eff_frac"], arr["pf"], speed, arr["sync_rpm"],
         efficiency_75_frac=arr["eff75_frac"], efficiency_50_frac=arr["eff50_frac"],
         power_factor_75=arr["pf75"], power_factor_50=arr["pf50"], rewind_count=arr["rewinds"] + extra_rewinds,
         rewind_loss_pct_points=arr.get("rewind_loss", induction.DEFAULT_REWIND_LOSS_PCT_POINTS))
+
+
+def today_calibration_failures(arr: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Where today's motors cannot be calibrated as :func:`existing_motor` calibrates them: per asset, the
+    input the first failed rule points at and its message ("" where the motor calibrates), from
+    :func:`models.induction.calibration_failures`; for the case check, before any run."""
+    speed = np.minimum(arr["speed_rpm"], arr["sync_rpm"] * (1 - 1e-3))
+    return _calibrated_today(arr, speed, 0, calibrate=induction.calibration_failures)
 
 
 def class_efficiency_frac(arr: dict[str, np.ndarray], efficiency_class: str) -> np.ndarray:

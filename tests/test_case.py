@@ -896,6 +896,33 @@ def test_a_motor_whose_efficiency_cannot_be_defaulted_is_refused_by_row(tmp_path
 
 
 
+def test_a_motor_the_model_cannot_calibrate_is_refused_by_check_on_its_row(tmp_path):
+    # F1 (7.5 kW) at 97 % and 1380 rpm. Hand calculation: slip s = (1500 - 1380) / 1500 = 0.08, air-gap power
+    # >= 7.5 / (1 - 0.08) = 8.152 kW, rotor copper loss s x P_ag >= 0.652 kW; full-load losses
+    # 7.5 x (1 / 0.97 - 1) = 0.232 kW, so the rotor alone would take more than all of them (the model asks at
+    # most 95 %): an error on the file's row 3 (F1), said with the nameplate as read, before any run
+    rows = _assets_with(1, "rated_efficiency_pct", "97")
+    rows[1][cb.ASSET_HEADER.index("rated_speed_rpm")] = "1380"
+    case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows))
+    assert case is None
+    found = _find(problems, file="assets.csv", row=3, column="rated_speed_rpm", text="rotor copper loss")
+    assert "7.5 kW, 97 %" in found.hint and "1380 rpm: a slip of 8 %" in found.hint
+    assert len(_errors(problems)) == 1
+
+
+def test_a_part_load_efficiency_the_model_cannot_fit_is_named_in_the_registers_words(tmp_path):
+    # F1 at 89.5 % full load, 60 % at 75 % load and 40 % at half load: losses that fall with load, which no
+    # loss law a + b y^k with k in the model's range fits; said on the register's column, not the model's name
+    header = cb.ASSET_HEADER + ["efficiency_75_pct", "efficiency_50_pct"]
+    rows = [r + ["", ""] for r in _assets_with(1, "rated_efficiency_pct", "89.5")]
+    rows[1][-2:] = ["60", "40"]
+    case, problems = load_case(cb.write_case(tmp_path / "c", assets=rows, asset_header=header))
+    assert case is None
+    said = [p for p in _errors(problems) if p.file == "assets.csv" and p.row == 3]
+    assert len(said) == 1 and said[0].column == "efficiency_75_pct" and said[0].value == 60
+    assert said[0].rule.startswith("efficiency_75_pct and efficiency_50_pct are not consistent with losses rising")
+
+
 def test_a_case_time_zone_without_summer_time_is_warned(tmp_path):
     case, problems = load_case(cb.write_case(tmp_path / "c", case_toml=cb.CASE_TOML.replace('"Europe/Berlin"', '"EST"')))
     assert case is not None
