@@ -24,7 +24,7 @@ from models import defaults as nameplate_defaults
 from models import io
 from models import options as options_module
 from models import profiles as profiles_module
-from models.problems import (CaseError, Problem, did_you_mean, error, fixed_offset_hint, has_errors, ordered,
+from models.problems import (CaseError, Problem, did_you_mean, error, fixed_offset_hint, folded, has_errors, ordered,
                              shown_value, warning)
 from models.wording import counted
 
@@ -343,6 +343,13 @@ class _TableChecker:
             spellings = {text: ours for text, ours in io.header_map(self.raw.name).items() if ours in missing}
             close = difflib.get_close_matches(io.normalise_header(column), list(spellings), n=1, cutoff=0.75)
             guess = spellings[close[0]] if close else None
+            if guess is not None and self.schema.loc[guess, "required"] != "yes":
+                # a misspelt optional column would drop what it holds unsaid (a required one is an error of its own)
+                self.err(None, column, None, f"unknown column '{column}': it looks like '{guess}', which the file "
+                         "does not give (read so, its values would be ignored and defaults used)",
+                         f"did you mean '{guess}'? Head the column so, or rename a column of your own that is not "
+                         "meant to be read")
+                continue
             self.warn(None, column, None, f"unknown column '{column}' was ignored",
                       (f"did you mean '{guess}'? " if guess else "") + f"known columns: {', '.join(self.schema.index)}")
         for name, spec in self.schema.iterrows():
@@ -2865,7 +2872,11 @@ def _without_shifted_cells(problems: list[Problem]) -> list[Problem]:
 
 
 def _finish(case: Case | None, problems: list[Problem], mode: str) -> tuple[Case | None, list[Problem]]:
-    problems = ordered(_without_shifted_cells(problems))  # every path: errors first, then file and row
+    # every path: a problem repeated row after row listed for its first rows and counted, errors first, then
+    # file and row
+    problems = ordered(folded(_without_shifted_cells(problems)))
+    if case is not None and case.problems != tuple(problems):
+        case = replace(case, problems=tuple(problems))
     if mode == "strict" and has_errors(problems):
         raise CaseError(problems)
     return case, problems

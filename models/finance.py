@@ -1462,7 +1462,8 @@ class FinanceAssumptions:
         -------
         tuple
             ``(FinanceAssumptions or None, problems)``; None when any problem is an error. Missing keys
-            take their defaults; unknown keys give a warning.
+            take their defaults; an unknown key gives a warning, an error where it looks like a key the table
+            does not give (:data:`NEAR_MISS_CUTOFF`).
         """
         prefix = ""
         if isinstance(data, dict) and isinstance(data.get("finance"), dict) and len(data) == 1:
@@ -1483,7 +1484,15 @@ class FinanceAssumptions:
             if key not in values:
                 import difflib
 
-                close = difflib.get_close_matches(str(key), [k for k in values if k not in data], n=1, cutoff=0.6)
+                absent = [k for k in values if k not in data]
+                near = difflib.get_close_matches(str(key), absent, n=1, cutoff=NEAR_MISS_CUTOFF)
+                if near:  # a misspelt key would drop what it holds: the run would use the default unsaid
+                    problems.append(error(source, None, prefix + key, raw,
+                                          f"unknown finance key: it looks like '{near[0]}', which the file does not "
+                                          f"give (read so, the default {near[0]} = {_shown(values[near[0]])} would "
+                                          "be used)", f"did you mean '{near[0]}'? Name it so (docs/finance.md)"))
+                    continue
+                close = difflib.get_close_matches(str(key), absent, n=1, cutoff=0.6)
                 if close:
                     hint = (f"did you mean '{close[0]}'? Until it is named so, the default "
                             f"{close[0]} = {_shown(values[close[0]])} is used")
@@ -1567,6 +1576,9 @@ def _as_dict(assumptions: FinanceAssumptions) -> dict[str, Any]:
 #: How far either side of the case's discount rate the uncertainty draws it [frac/yr] (the widest of
 #: models.risk's discount-rate distribution).
 DISCOUNT_RATE_DRAW_SPREAD_FRAC = 0.02
+#: How alike an unknown key and a key the table does not give must be (difflib's ratio) for the key to be
+#: taken as misspelt, an error rather than a warning: 'discount_rate' for 'discount_rate_frac' is 0.84.
+NEAR_MISS_CUTOFF = 0.75
 #: The longest study period a case may ask for [yr] (and so the most plan years a budget may have).
 MAX_HORIZON_YR = 100
 

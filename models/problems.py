@@ -7,7 +7,7 @@ on the first one, so a user sees the whole list at once. Errors stop a run; warn
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Iterable, Literal
 
 Severity = Literal["error", "warning"]
@@ -207,6 +207,40 @@ def ordered(problems: Iterable[Problem]) -> list[Problem]:
         return (0, cause, p.file, -1 if p.row is None else p.row)
 
     return sorted(problems, key=key)
+
+
+#: Most rows listed of one problem repeated row after row (same file, column, rule and hint); one line
+#: counts the rest.
+MAX_ALIKE_ROWS = 20
+
+
+def folded(problems: Iterable[Problem], limit: int = MAX_ALIKE_ROWS) -> list[Problem]:
+    """Return ``problems`` with each problem repeated over more than ``limit`` rows (the same severity, file,
+    column, rule and hint) listed for its first ``limit`` rows and counted in one line for the rest.
+
+    The counting line stands on the row of the first one it counts, with its value, so :func:`ordered` shows
+    it after the rows listed; the order of the rest is kept.
+
+    Examples
+    --------
+    >>> rows = [error("a.csv", r, "x", None, "give x") for r in range(2, 6)]
+    >>> [(p.row, p.rule) for p in folded(rows + [warning("a.csv", 9, "y", 1, "w")], limit=2)]
+    [(2, 'give x'), (3, 'give x'), (4, '2 more rows alike, the first of them in this row: give x'), (9, 'w')]
+    """
+    problems = list(problems)
+    groups: dict[tuple, list[int]] = {}
+    for k, p in enumerate(problems):
+        if p.row is not None:
+            groups.setdefault((p.severity, p.file, p.column, p.rule, p.hint), []).append(k)
+    dropped: set[int] = set()
+    counted_at: dict[int, Problem] = {}
+    for members in groups.values():
+        if len(members) > limit:
+            first = problems[members[limit]]
+            counted_at[members[limit]] = replace(
+                first, rule=f"{len(members) - limit} more rows alike, the first of them in this row: {first.rule}")
+            dropped.update(members[limit + 1:])
+    return [counted_at.get(k, p) for k, p in enumerate(problems) if k not in dropped]
 
 
 def has_errors(problems: Iterable[Problem]) -> bool:

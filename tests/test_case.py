@@ -728,14 +728,23 @@ class TestFinanceWarnings:
         else:
             assert _find(problems, file="finance.toml", severity="warning", text="no finance assumptions were found")
 
-    def test_a_misspelt_key_is_named_with_a_guess_and_the_value_used(self, tmp_path):
+    def test_a_misspelt_key_is_an_error_named_with_a_guess(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")
         (folder / "finance.toml").write_text('currency = "EUR"\ndiscount_rate = 0.05\n', encoding="utf-8")
         case, problems = load_case(folder)
-        hit = _find(problems, file="finance.toml", column="discount_rate", severity="warning", text="unknown finance key")
-        # the program's default discount rate (models.finance.FinanceAssumptions, docs/finance.md): 0.08
-        assert "did you mean 'discount_rate_frac'?" in hit.hint and "discount_rate_frac = 0.08 is used" in hit.hint
-        assert case.finance.discount_rate_frac == 0.08
+        # an error: read as unknown, the rate would be dropped and the program's default (0.08,
+        # models.finance.FinanceAssumptions, docs/finance.md) used unsaid
+        assert case is None
+        hit = _find(problems, file="finance.toml", column="discount_rate", text="unknown finance key")
+        assert "looks like 'discount_rate_frac'" in hit.rule and "discount_rate_frac = 0.08 would be used" in hit.rule
+        assert "did you mean 'discount_rate_frac'?" in hit.hint
+
+    def test_a_key_like_none_of_the_finance_keys_is_a_warning(self, tmp_path):
+        folder = cb.write_case(tmp_path / "c")
+        (folder / "finance.toml").write_text('currency = "EUR"\nprepared_by = "energy team"\n', encoding="utf-8")
+        case, problems = load_case(folder)
+        assert case is not None
+        assert _find(problems, file="finance.toml", column="prepared_by", severity="warning", text="unknown finance key")
 
     def test_a_budget_of_zero_every_year_is_warned(self, tmp_path):
         folder = cb.write_case(tmp_path / "c")

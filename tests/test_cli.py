@@ -580,12 +580,32 @@ def test_misspelt_heading_is_named_first_with_a_guess(tmp_path, capsys):
     (case / "assets.csv").write_text(text.replace("rated_p_kw", "rated_pkw", 1), encoding="utf-8")
     assert main(["check", str(case)]) == 1
     lines = [l for l in capsys.readouterr().out.splitlines() if l.startswith("  ")]
-    # one error for the file (not one per unrated row), carrying the guess, and the unknown heading's warning;
-    # data/demo/assets.csv: 82 motors, 2 of them rated in hp (rated_p_hp) and so still rated
-    assert lines[0].startswith("  ERROR assets.csv, column 'rated_p_kw': no rated_p_kw column: 80 motors")
-    assert "if it is rated_p_kw, head it 'rated_p_kw'" in lines[0]
-    assert "unknown column 'rated_pkw'" in lines[1] and "did you mean 'rated_p_kw'?" in lines[1]
-    assert sum("rated_p_kw" in l and "ERROR" in l for l in lines) == 1
+    # the cause first (the heading that looks like rated_p_kw), then one error for the file (not one per unrated
+    # row), carrying the guess; data/demo/assets.csv: 82 motors, 2 of them rated in hp (rated_p_hp) and so still rated
+    assert lines[0].startswith("  ERROR assets.csv, column 'rated_pkw': unknown column 'rated_pkw': it looks like "
+                               "'rated_p_kw'") and "did you mean 'rated_p_kw'?" in lines[0]
+    assert lines[1].startswith("  ERROR assets.csv, column 'rated_p_kw': no rated_p_kw column: 80 motors")
+    assert "if it is rated_p_kw, head it 'rated_p_kw'" in lines[1]
+    assert sum("rated_p_kw" in l and "ERROR" in l for l in lines) == 2
+
+
+def test_a_misspelt_optional_heading_is_the_first_error_and_its_rows_are_folded(tmp_path, capsys):
+    import csv
+
+    case = tmp_path / "demo"
+    shutil.copytree(DEMO, case)
+    with open(case / "assets.csv", encoding="utf-8", newline="") as f:
+        profiled = sum(1 for row in csv.DictReader(f) if row["profile_id"].strip())  # the demo's motors with a profile
+    text = (case / "assets.csv").read_text(encoding="utf-8")
+    (case / "assets.csv").write_text(text.replace(",profile_id,", ",profil_id,", 1), encoding="utf-8")
+    assert main(["check", str(case)]) == 1
+    lines = [l for l in capsys.readouterr().out.splitlines() if l.startswith("  ERROR")]
+    assert lines[0].startswith("  ERROR assets.csv, column 'profil_id': unknown column 'profil_id': it looks like "
+                               "'profile_id'")
+    # each motor with a profile now gives neither a profile nor hours and load: 20 rows listed, one line counts the rest
+    rows = [l for l in lines[1:] if "give a profile_id, or both operating_h_per_yr and mean_load_pct" in l]
+    assert len(rows) == 21 and len(lines) == 22
+    assert f"{profiled - 20} more rows alike, the first of them in this row" in rows[-1]
 
 
 def test_whole_file_without_ratings_is_one_message(tmp_path, capsys):
