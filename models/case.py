@@ -187,13 +187,19 @@ class Case:
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
 _THOUSANDS = re.compile(r"^[-+]?\d{1,3}(,\d{3})+(\.\d+)?$")
 _DOT_THOUSANDS_DECIMAL_COMMA = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+,\d+$")
+_DOT_THOUSANDS = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+$")
+#: Note of :func:`_to_number` for "4.200" in a table that writes its decimals with a comma.
+DOT_AMBIGUOUS = "ambiguous: the table writes its decimals with a comma, so this point may separate thousands"
 #: Notes of :func:`_to_number` for a % sign: dropped in a column in percent, or the number divided by 100 in a
 #: column that holds a fraction (docs/conventions.md: ``_pct`` is 0-100, ``_frac`` 0-1).
 PERCENT_SIGN_DROPPED = "a % sign was dropped (the column is in percent)"
 PERCENT_READ_AS_FRACTION = "a percentage was read as a fraction (divided by 100)"
 #: Notes of :func:`_to_number` that describe a repair (a warning) rather than a failure (an error). A cell
 #: repaired twice (``95,2%``) has both notes, joined by ``"; also "``.
-REPAIR_NOTES = ("decimal comma read as a decimal point",
+#: Note of :func:`_to_number` for digits grouped with spaces (``1 200``, as French and other locales write).
+SPACE_THOUSANDS = "a space read as a thousands separator"
+_SPACED_DIGITS = re.compile(r"\d[ \u00a0\u202f]+\d")
+REPAIR_NOTES = (SPACE_THOUSANDS, "decimal comma read as a decimal point",
                 "decimal comma read as a decimal point and '.' as a thousands separator",
                 "a date was given; its year was used",
                 PERCENT_SIGN_DROPPED, PERCENT_READ_AS_FRACTION)
@@ -221,7 +227,8 @@ def _is_repair(note: str | None) -> bool:
     return note is not None and all(part in REPAIR_NOTES for part in note.split("; also "))
 
 
-def _to_number(value: object, year: bool = False, ratio: str | None = None) -> tuple[float, str | None]:
+def _to_number(value: object, year: bool = False, ratio: str | None = None,
+               comma_decimals: bool = False) -> tuple[float, str | None]:
     """Parse one cell as a finite number; return (value, note) where note explains a repair or failure.
 
     Parameters
@@ -234,6 +241,9 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
         What a trailing % sign means in the column (:func:`models.io.ratio_kind`): in a column in percent
         (``pct``, 0-100) the sign is dropped; in a fraction column (``frac``, 0-1) the number is divided by
         100 (``89%`` is 0.89); both are flagged repairs. In any other column a % sign is an error.
+    comma_decimals : bool
+        The table writes decimals with a comma elsewhere (a spreadsheet of a locale that does): a number
+        written with points between groups of three digits (``4.200``) may then be 4200, and is not read.
 
     Returns
     -------
@@ -253,6 +263,10 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
     (nan, 'a % sign, in a column that is not in percent')
     >>> _to_number("2_50")
     (nan, 'not a number')
+    >>> _to_number("4.200"), _to_number("4.200", comma_decimals=True)[0]
+    ((4.2, None), nan)
+    >>> _to_number("1 200")
+    (1200.0, 'a space read as a thousands separator')
     """
     if _blank(value):
         return np.nan, None
@@ -268,19 +282,26 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
         except OverflowError:
             return np.nan, "not a finite number"
         return (number, None) if np.isfinite(number) else (np.nan, "not a finite number")
+    if isinstance(value, str) and _SPACED_DIGITS.search(value.strip()):  # read without its spaces, and said
+        number, note = _to_number(re.sub(r"[ \u00a0\u202f]", "", value), year, ratio, comma_decimals)
+        if np.isnan(number):
+            return number, note
+        return number, SPACE_THOUSANDS if note is None else f"{SPACE_THOUSANDS}; also {note}"
     text = str(value).strip().replace("\u00a0", "").replace("\u202f", "").replace(" ", "")
     if text.upper() in io.SPREADSHEET_ERRORS:
         return np.nan, f"the spreadsheet formula gave the error {text.upper()}"
     if text.endswith("%") and text[:-1]:
         if ratio not in ("pct", "frac"):
             return np.nan, PERCENT_SIGN_OUT_OF_PLACE
-        number, note = _to_number(text[:-1], year=year)
+        number, note = _to_number(text[:-1], year=year, comma_decimals=comma_decimals)
         if np.isnan(number):
             return number, note
         if ratio == "frac":  # 15 significant digits: 0.1 / 100 is 0.001, not 1.0000000000000002e-03
             number = float(f"{number / 100.0:.15g}")
         done = PERCENT_SIGN_DROPPED if ratio == "pct" else PERCENT_READ_AS_FRACTION
         return number, done if note is None else f"{done}; also {note}"
+    if comma_decimals and _DOT_THOUSANDS.match(text):
+        return np.nan, DOT_AMBIGUOUS
     try:
         # (Python reads "2_50" as 250: no spreadsheet or logger writes that, so an underscore is no number)
         number = float(text) if "_" not in text else None
@@ -296,6 +317,17 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None) -> t
         return (float(text.replace(".", "").replace(",", ".")),
                 "decimal comma read as a decimal point and '.' as a thousands separator")
     return np.nan, "not a number"
+
+
+def _writes_comma_decimals(frame: pd.DataFrame, columns: list[str]) -> bool:
+    """Whether any text cell of the numeric ``columns`` writes a decimal with a comma (``95,6``, ``1.200,5``)."""
+    for column in columns:
+        for value in frame[column].tolist():
+            if isinstance(value, str) and "," in value:
+                text = value.strip().replace("\u00a0", "").replace("\u202f", "").replace(" ", "").rstrip("%")
+                if _DECIMAL_COMMA.match(text) or _DOT_THOUSANDS_DECIMAL_COMMA.match(text):
+                    return True
+    return False
 
 
 def _plain(value: object) -> object:
@@ -315,6 +347,7 @@ class _TableChecker:
         self.raw = raw
         self.schema = io.read_schema(raw.name).set_index("name")
         self.problems: list[Problem] = []
+        self.comma_decimals = False  # (set by run: the table writes decimals with a comma)
         self.frame = pd.DataFrame(index=pd.RangeIndex(len(raw.frame)))
         self.rows = np.asarray(raw.rows, dtype=int)
 
@@ -334,6 +367,8 @@ class _TableChecker:
     def run(self) -> pd.DataFrame:
         source = self.raw.frame
         known = set(self.schema.index)
+        self.comma_decimals = _writes_comma_decimals(source, [c for c in source.columns if c in known
+                                                              and self.schema.loc[c, "dtype"] in ("float", "int")])
         unknown = [c for c in source.columns if c not in known]
         for column in unknown:
             if io.watt_header_target(self.raw.name, column) is not None:
@@ -419,7 +454,7 @@ class _TableChecker:
             ratio = io.ratio_kind(self.raw.name, name)
             repaired: dict[str, list[int]] = {}
             for i, value in enumerate(values):
-                number, note = _to_number(value, year=is_year, ratio=ratio)
+                number, note = _to_number(value, year=is_year, ratio=ratio, comma_decimals=self.comma_decimals)
                 numbers[i] = number
                 if _is_repair(note):
                     repaired.setdefault(note, []).append(i)
@@ -428,7 +463,11 @@ class _TableChecker:
                     if note == PERCENT_SIGN_OUT_OF_PLACE:
                         hint = (f"write the value in {spec['unit']}, without a % sign" if spec["unit"] != "-"
                                 else "write a plain number, without a % sign")
-                    if note.startswith("ambiguous"):
+                    if note == DOT_AMBIGUOUS:
+                        written = str(value).strip()
+                        hint = (f"write {written.replace('.', '')} if the point separates thousands, or "
+                                f"{written.replace('.', ',')} if it is a decimal mark ({hint})")
+                    elif note.startswith("ambiguous"):
                         written = str(value).strip()
                         hint = (f"write {written.replace(',', '')} without the commas ({hint})"
                                 if written.count(",") > 1 else  # commas between thousands only
@@ -449,6 +488,7 @@ class _TableChecker:
                     self._warn_percent(name, note, cells, values, numbers)
                     continue
                 hint = ("format the cells as numbers" if note.startswith("a date")
+                        else "write numbers without spaces (1200, not 1 200) to avoid this repair" if note == SPACE_THOUSANDS
                         else "use a point as decimal mark to avoid this repair")
                 if PERCENT_SIGN_DROPPED in note or PERCENT_READ_AS_FRACTION in note:
                     hint = (f"write plain numbers with a point as decimal mark: '{name}' is "

@@ -130,6 +130,42 @@ def test_decimal_commas_of_a_semicolon_file_are_one_warning_per_column(tmp_path)
     assert repairs[1].rule == "decimal comma read as a decimal point" and repairs[1].value == "7,5"
 
 
+def test_a_point_between_thousands_in_a_table_of_decimal_commas_is_not_read_as_a_decimal(tmp_path):
+    # a European spreadsheet's export: power factors written 0,85, and F1's hours 6.000, which that locale reads as
+    # six thousand; read as 6.0 h/yr the motor would all but vanish from the bills, so the cell is an error naming
+    # both readings (a plain 6000 and a point in a table of points are read as written)
+    folder = cb.write_case(tmp_path / "c")
+    header = cb.ASSET_HEADER
+    pf, hours = header.index("rated_power_factor"), header.index("operating_h_per_yr")
+    rows = [list(r) for r in cb.ASSETS]
+    rows[1][pf], rows[1][hours] = "0,82", "6.000"
+    lines = [";".join(header)] + [";".join(r) for r in rows]
+    (folder / "assets.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is None
+    found = [p for p in problems if p.severity == "error"]
+    assert [(p.row, p.column, p.value) for p in found] == [(3, "operating_h_per_yr", "6.000")]
+    assert "the table writes its decimals with a comma" in found[0].rule
+    assert "write 6000 if the point separates thousands, or 6,000 if it is a decimal mark" in found[0].hint
+    rows[1][pf] = "0.82"  # no decimal comma anywhere: 6.000 is six
+    (folder / "assets.csv").write_text("\n".join([";".join(header)] + [";".join(r) for r in rows]) + "\n",
+                                       encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None and case.assets.set_index("asset_id").loc["F1", "operating_h_per_yr"] == 6.0
+
+
+def test_digits_grouped_with_spaces_are_read_and_said(tmp_path):
+    # "1 200" (a space, or the no-break space French spreadsheets write) is 1200 in every locale that groups so
+    folder = cb.write_case(tmp_path / "c")
+    rows = [list(r) for r in cb.ASSETS]
+    rows[1][cb.ASSET_HEADER.index("operating_h_per_yr")] = "6\u00a0000"
+    cb.write_csv(folder / "assets.csv", cb.ASSET_HEADER, rows)
+    case, problems = load_case(folder)
+    assert case is not None and case.assets.set_index("asset_id").loc["F1", "operating_h_per_yr"] == 6000.0
+    said = [p for p in problems if p.column == "operating_h_per_yr"]
+    assert [(p.severity, p.row, p.rule) for p in said] == [("warning", 3, "a space read as a thousands separator")]
+
+
 def test_an_empty_parquet_profile_file_says_it_is_empty(tmp_path):
     # docs/case-format.md, "Interval profiles": "An empty `profiles.parquet` (0 bytes) is an error saying so";
     # references to the unread profiles are not reported again. The message says the file is empty, not "the file
