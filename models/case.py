@@ -1039,9 +1039,9 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
             quantity, resolution, peak = quick[k]
             qh = header(quantity)
             if quantity == "shaft_load_pct" and 0 < peak <= 1.0:
-                problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
-                                        f"profile '{profile_id}' never exceeds {peak:g} % load",
-                                        "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
+                problems.append(error(source, int(rows[idx[0]]), qh, profile_id,
+                                      f"profile '{profile_id}' never exceeds {peak:g} % load",
+                                      "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
             # (one index for every profile on the same grid: its start, step and length; a copy, so that the
             # table's timestamp column is let go once read: half a metered fleet's profile memory)
             grid = (int(stamps.asi8[bounds[k]]), resolution, int(bounds[k + 1] - bounds[k]))
@@ -1085,9 +1085,9 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
                                         f"{n} more intervals of '{profile_id}' above {MAX_LOAD_PCT:.0f} %"))
                 peak = np.nanmax(v) if np.isfinite(v).any() else np.nan
                 if 0 < peak <= 1.0:
-                    problems.append(warning(source, int(rows[idx[0]]), qh, profile_id,
-                                            f"profile '{profile_id}' never exceeds {peak:g} % load",
-                                            "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
+                    problems.append(error(source, int(rows[idx[0]]), qh, profile_id,
+                                          f"profile '{profile_id}' never exceeds {peak:g} % load",
+                                          "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?"))
             else:
                 limit = float(io.read_schema("profiles").set_index("name").loc["input_kw", "max"])
                 _listed(problems, np.flatnonzero(v > limit),
@@ -1607,7 +1607,7 @@ def _check_assets(checker: _TableChecker, site_ids: set[str] | None, profile_ids
                      "where a drive is considered")
     mean_load = a["mean_load_pct"].to_numpy()
     for i in np.flatnonzero((mean_load > 0) & (mean_load <= 1.0)):
-        checker.warn(i, "mean_load_pct", mean_load[i], f"a mean load of {mean_load[i]:g} % of rating is implausibly low",
+        checker.err(i, "mean_load_pct", mean_load[i], f"a mean load of {mean_load[i]:g} % of rating is implausibly low",
                      "mean_load_pct takes 0-100 % of rated power: was a fraction (0-1) entered?")
     poles = a["poles"].to_numpy()
     for i in np.flatnonzero(~np.isnan(poles) & (poles % 2 != 0)):
@@ -2550,13 +2550,13 @@ def _check_duty(checker: _TableChecker) -> None:
             checker.err(i, "duration_h_per_yr", round(float(total), 2),
                         f"duty table '{profile_id}' adds up to more than {MAX_HOURS_PER_YR:g} hours a year",
                         "durations are hours a year of each load state; their sum is at most the year's hours")
-    # loads that never pass 1 % of rating: fractions (0-1) entered for percentages, as profiles are warned
+    # loads that never pass 1 % of rating: fractions (0-1) entered for percentages, as profiles are refused
     if "shaft_load_pct" in d:
         peaks = d.groupby("profile_id")["shaft_load_pct"].max()
         for profile_id, peak in peaks.items():
             if np.isfinite(peak) and 0.0 < peak <= 1.0:
                 i = int(np.flatnonzero((d["profile_id"] == profile_id).to_numpy())[0])
-                checker.warn(i, "shaft_load_pct", float(peak), f"duty table '{profile_id}' never exceeds {peak:g} % load",
+                checker.err(i, "shaft_load_pct", float(peak), f"duty table '{profile_id}' never exceeds {peak:g} % load",
                              "shaft_load_pct takes 0-100 % of rated power: were fractions (0-1) entered?")
 
 

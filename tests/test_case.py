@@ -479,15 +479,16 @@ class TestOtherTables:
 
     @pytest.mark.parametrize("loads, warned", [(("0.85", "0.6"), True), (("85", "60"), False), (("1", "0"), True),
                                                (("1.5", "0.5"), False)])
-    def test_duty_loads_that_never_pass_one_percent_are_warned_as_fractions(self, tmp_path, loads, warned):
+    def test_duty_loads_that_never_pass_one_percent_are_refused_as_fractions(self, tmp_path, loads, warned):
         # docs/case-format.md: shaft_load_pct is 0-100 % of rating; a table of 0.85 and 0.6 is 85 % and 60 % entered as
-        # fractions (the motor would be modelled at about 1 % load), as profiles and mean_load_pct are warned
+        # fractions (the motor would be modelled at about 1 % load): an error, as for profiles and mean_load_pct
         duty = [["D1", loads[0], "1800"], ["D1", loads[1], "1400"]]
         case, problems = load_case(cb.write_case(tmp_path / "c", duty=duty))
         hits = [p for p in problems if p.file == "duty.csv" and "never exceeds" in p.rule]
         assert bool(hits) == warned
         if warned:
-            assert hits[0].severity == "warning" and hits[0].column == "shaft_load_pct" and hits[0].row == 2
+            assert case is None
+            assert hits[0].severity == "error" and hits[0].column == "shaft_load_pct" and hits[0].row == 2
             assert "fractions (0-1)" in hits[0].hint
 
     def test_bad_settings(self, tmp_path):
@@ -1205,7 +1206,7 @@ def test_the_usual_profile_read_in_one_pass_gives_what_the_row_by_row_checks_giv
         pd.testing.assert_series_equal(parquet[0][0][pid], series, check_exact=True)
         pd.testing.assert_series_equal(parquet[2][0][pid], series, check_exact=True)
     assert [str(p) for p in quick_problems] == [str(p) for p in slow_problems]
-    assert any("never exceeds" in p.rule for p in quick_problems)  # (the fractions are warned)
+    assert any("never exceeds" in p.rule for p in quick_problems)  # (the fractions are refused)
     assert any("ends of the intervals" in p.rule for p in quick_problems)
     assert any("less than a year" in p.rule for p in quick_problems)
     assert list(quick[0]) == list(slow[0])

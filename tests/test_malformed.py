@@ -84,8 +84,8 @@ CORPUS: dict[str, tuple[bool, tuple[Expect, ...]]] = {
     "rating_header_in_watts": (False, (E("assets.csv", 1, "Rated power (W)", "is in W", "divide the values by 1000"),)),
     "voltage_in_kilovolts": (False, (E("assets.csv", 2, "rated_v_v", "must lie between", "kV rather than V"),)),
     "input_profile_in_watts": (False, (E("assets.csv", 2, "profile_id", "above 125 %", "W instead of kW"),)),
-    "load_as_fraction": (True, (W("assets.csv", 3, "mean_load_pct", "implausibly low", "fraction"),
-                                W("profiles.csv", 2, "shaft_load_pct", "never exceeds", "fractions"))),
+    "load_as_fraction": (False, (E("assets.csv", 3, "mean_load_pct", "implausibly low", "fraction"),
+                                 E("profiles.csv", 2, "shaft_load_pct", "never exceeds", "fractions"))),
     # number formats and separators
     "semicolons_decimal_commas": (True, (W("assets.csv", None, None, "non-comma delimiter"),
                                          W("assets.csv", 3, "rated_p_kw", "decimal comma"),
