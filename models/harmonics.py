@@ -422,8 +422,8 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     the resonance orders span those states, and ``resonant_harmonic`` is the lowest harmonic the drives draw that
     some state comes within :data:`RESONANCE_BAND_FRAC` of and whose voltage, amplified
     :data:`RESONANCE_AMPLIFICATION` times, would pass its individual limit (0: none). The bus voltage is the highest rated
-    voltage of the site's drive-fed motors (of all its motors when none): a site is one bus, and its finding says
-    so where its motors run at several voltages. The current limits apply at the point of
+    voltage of the site's drive-fed motors, today or with the plan, the same in both rows (of all its motors when
+    none is on a drive): a site is one bus, and its finding says so where its motors run at several voltages. The current limits apply at the point of
     common coupling: the transformer's primary, with the source's fault level, where the site's ``supply_v_v``
     is above :data:`PCC_ABOVE_BUS_RATIO` times the bus voltage (not screened without ``supply_fault_kva``), else
     the bus itself.
@@ -461,6 +461,15 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     supply_v = column("supply_v_v")
     caps = case.capacitors  # (always a table: empty, with its columns, where the case gives none)
     demands = _maximum_demands(case, op)
+    # one bus a site, on the same basis today and with the plan: the highest voltage of the motors on a drive in
+    # either (of all the site's motors when none is)
+    fed = on_drive_today | (on_drive_plan if plan is not None else on_drive_today)
+    site_bus_v = []
+    for site_id in sites["site_id"].astype(str):
+        members = np.flatnonzero(site_of == site_id)
+        drives = members[fed[members]]
+        site_bus_v.append(float(np.max(v_v[drives])) if len(drives)
+                          else (float(np.max(v_v[members])) if len(members) else 400.0))
     rows = []
     for k, site_id in enumerate(sites["site_id"].astype(str)):
         members = np.flatnonzero(site_of == site_id)
@@ -482,7 +491,7 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                                                                             FRONT_END_DEFAULTS[fe][0])))
             drive_kva = float(sum(by_front_end.values()))
             currents = harmonic_currents_kva(by_front_end)
-            bus_v = float(np.max(v_v[drives])) if len(drives) else (float(np.max(v_v[members])) if len(members) else 400.0)
+            bus_v = site_bus_v[k]
             orders, v_h, thd = voltage_harmonics_pct([drive_kva], [s_sc[k]], currents_kva=currents[None, :])
             worst = int(np.argmax(v_h[0]))
             limit_h, limit_thd = voltage_limits_pct([bus_v])

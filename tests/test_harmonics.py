@@ -133,6 +133,25 @@ def test_site_screen_today_and_with_a_plan(small_site):
         assert row["max_demand_kva"] == pytest.approx(demand, rel=1e-12)
 
 
+def test_today_and_the_plan_are_screened_on_one_bus(tmp_path):
+    # no drive today and a 6,600 V compressor beside 400 V motors; the plan puts the 400 V pump on a drive: both rows
+    # are at the drives' bus, 400 V (the rule in models.harmonics.site_screen), not 6,600 V today and 400 V after
+    assets = [list(r) for r in ASSETS]
+    assets[2][ASSET_HEADER.index("rated_v_v")] = "6600"
+    folder = tmp_path / "mv"
+    write_case(folder, assets=assets)
+    with_flat_tariff(folder)
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    from models.scenario import physics
+
+    op = physics(case, 40.0).operation
+    plan = pd.DataFrame({"asset_id": ["P1"], "option_id": ["pm_drive"]})
+    screen = harmonics.site_screen(case, op, plan).set_index("scenario")
+    assert screen.loc["today", "bus_v_v"] == screen.loc["plan", "bus_v_v"] == 400.0
+    assert screen.loc["today", "drive_kva"] == 0.0 and screen.loc["plan", "drive_kva"] > 0.0
+
+
 def test_site_screen_without_transformer_data_says_what_to_give(small_site):
     case, op = small_site
     from dataclasses import replace
