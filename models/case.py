@@ -2448,7 +2448,10 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                               f"declare the case currency in {raw.settings_source}: "
                               + _setting_line(raw, "currency", tariff.currency))
             problems.append(error(source, None, "tariff.currency", tariff.currency, rule, hint))
-        if tariff.time_zone and tariff.time_zone != settings.time_zone:
+        declared_zone = str(_settings_table(raw)[0].get("time_zone", "")).strip() if _declared(raw, "time_zone") else ""
+        if declared_zone and declared_zone != settings.time_zone:
+            pass  # the case's own zone is not one (an error of its own): the tariff's is not set against its stand-in
+        elif tariff.time_zone and tariff.time_zone != settings.time_zone:
             if _declared(raw, "time_zone"):
                 rule, hint = (f"the tariff's time zone differs from the case time zone {settings.time_zone}",
                               "periods and billing months are read on the site's clock: use the case zone")

@@ -180,12 +180,17 @@ def missing_table(problem: Problem) -> str | None:
     return found.group(1) if found else None
 
 
+def _is_settings_file(file: str) -> bool:
+    """Whether a problem's file is a TOML file (settings, finance, a tariff) or a workbook's tariff sheet."""
+    return str(file).lower().endswith(".toml") or ":tariff " in str(file)
+
+
 def ordered(problems: Iterable[Problem]) -> list[Problem]:
     """Return problems in the order they are shown and returned: the causes before what follows from them.
 
     Errors come before warnings. Among errors, a missing required table comes first (the rows that refer to
-    it fail too), then the other errors of a whole file or column, by file, then the errors of rows, by file
-    and row. Warnings follow by file, a whole file or column before its rows, then by row.
+    it fail too), then the other errors of a whole file or column and the errors of TOML files (settings,
+    finance, tariffs: the tables' rows refer to them), by file, then the errors of rows, by file and row. Warnings follow by file, a whole file or column before its rows, then by row.
 
     The sort is stable: problems with the same key keep the order they were found in. A summary line
     that counts the rest of a long list ("20 more unreadable timestamps") carries the row of the first
@@ -203,7 +208,8 @@ def ordered(problems: Iterable[Problem]) -> list[Problem]:
     def key(p: Problem) -> tuple:
         if p.severity != "error":
             return (1, 0, p.file, -1 if p.row is None else p.row)
-        cause = 0 if missing_table(p) else (1 if p.row is None else 2)
+        # (a settings or tariff file's errors, by line, are of the files the tables' rows refer to: causes too)
+        cause = 0 if missing_table(p) else (1 if p.row is None or _is_settings_file(p.file) else 2)
         return (0, cause, p.file, -1 if p.row is None else p.row)
 
     return sorted(problems, key=key)

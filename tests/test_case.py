@@ -933,6 +933,15 @@ def test_a_part_load_efficiency_the_model_cannot_fit_is_named_in_the_registers_w
     assert said[0].rule.startswith("efficiency_75_pct and efficiency_50_pct are not consistent with losses rising")
 
 
+def test_a_misspelt_case_time_zone_is_one_error_not_one_per_tariff(tmp_path):
+    # the case's zone is not a zone: its stand-in (UTC) is not set against the tariffs' own zones
+    folder = cb.write_case(tmp_path / "c", case_toml=cb.CASE_TOML.replace('"Europe/Berlin"', '"Europe/Berln"'))
+    cb.with_flat_tariff(folder)
+    case, problems = load_case(folder)
+    assert case is None
+    assert [(p.file, p.column) for p in _errors(problems)] == [("case.toml", "time_zone")]
+
+
 def test_a_case_time_zone_without_summer_time_is_warned(tmp_path):
     case, problems = load_case(cb.write_case(tmp_path / "c", case_toml=cb.CASE_TOML.replace('"Europe/Berlin"', '"EST"')))
     assert case is not None

@@ -57,6 +57,17 @@ def test_causes_come_before_the_rows_that_follow_from_them_across_files():
     ]
 
 
+def test_a_tariff_files_line_errors_come_before_the_rows_that_name_the_file():
+    # a TOML syntax error on line 72 of a tariff is why a site's row cannot read it: the cause is listed first,
+    # though "sites.csv" sorts before "tariffs/..." and both carry a line or row
+    found = [error("sites.csv", 2, "tariff_file", "t.toml", "the tariff file named here could not be read"),
+             error("tariffs/t.toml", 72, None, None, "TOML syntax error"),
+             error("book.xlsx:assets", 3, "poles", 5, "poles must be an even number"),
+             error("book.xlsx:tariff t.toml", 4, "ratchet_frac", "x", "must be a number")]
+    assert [p.file for p in ordered(found)] == ["book.xlsx:tariff t.toml", "tariffs/t.toml", "book.xlsx:assets",
+                                               "sites.csv"]
+
+
 def test_a_problems_table_row_writes_whole_numbers_as_the_messages_do():
     # User report: the dashboard's validation grid showed "3.0" and "2975.0" where the command line printed 3 and
     # 2975; a table row now writes a value as the message does, text without quotes
