@@ -1056,10 +1056,21 @@ def _check_profiles(raw: io.RawTable | None, zone: str, problems: list[Problem],
             present = [c for c in value_columns if has[c].any()]
             if not present and any(frame[c].iloc[idx].notna().any() for c in value_columns):
                 continue  # values given, none readable: each unreadable cell is an error of its own already
-            if len(present) != 1:
-                rule = ("profile has values in both shaft_load_pct and input_kw" if len(present) > 1
-                        else "profile has no values")
-                problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id, rule,
+            if len(present) > 1:
+                # said on the first row of the quantity fewer rows give (the odd one out), where both are given if
+                # a row gives both
+                counts = {c: int(has[c].sum()) for c in present}
+                odd = min(present, key=lambda c: counts[c])
+                both = np.flatnonzero(np.logical_and.reduce([has[c] for c in present]))
+                j = int(both[0]) if len(both) else int(np.flatnonzero(has[odd])[0])
+                problems.append(error(source, int(rows[idx[j]]), header(odd), float(values[odd][idx[j]]),
+                                      f"profile '{profile_id}' has values in both shaft_load_pct and input_kw "
+                                      f"({counts[present[0]]:,} and {counts[present[1]]:,} rows){where(idx[j])}",
+                                      "each profile gives one quantity: shaft_load_pct or input_kw"))
+                continue
+            if not present:
+                problems.append(error(source, int(rows[idx[0]]), header("profile_id"), profile_id,
+                                      "profile has no values",
                                       "each profile gives one quantity: shaft_load_pct or input_kw"))
                 continue
             quantity = present[0]

@@ -933,6 +933,19 @@ def test_a_part_load_efficiency_the_model_cannot_fit_is_named_in_the_registers_w
     assert said[0].rule.startswith("efficiency_75_pct and efficiency_50_pct are not consistent with losses rising")
 
 
+def test_a_profile_giving_both_quantities_is_said_on_the_odd_row(tmp_path):
+    # LP1 gives shaft_load_pct on all 48 rows and, on its fourth (the file's row 5), input_kw 150 too: the error
+    # names that row, its column and value, with the profile and timestamp
+    folder = cb.write_case(tmp_path / "c")
+    rows = [r + [""] for r in cb.profile_rows()]
+    rows[3][-1] = "150"
+    cb.write_csv(folder / "profiles.csv", cb.PROFILE_HEADER + ["input_kw"], rows)
+    case, problems = load_case(folder)
+    assert case is None
+    found = _find(problems, file="profiles.csv", row=5, column="input_kw", text="values in both")
+    assert found.value == 150.0 and "(48 and 1 rows)" in found.rule and "at 2025-01-02 03:00" in found.rule
+
+
 def test_a_misspelt_case_time_zone_is_one_error_not_one_per_tariff(tmp_path):
     # the case's zone is not a zone: its stand-in (UTC) is not set against the tariffs' own zones
     folder = cb.write_case(tmp_path / "c", case_toml=cb.CASE_TOML.replace('"Europe/Berlin"', '"Europe/Berln"'))
