@@ -96,12 +96,18 @@ def did_you_mean(word: object, choices: Iterable[str], cutoff: float = 0.7) -> s
     "did you mean 'HRW-P01'? "
     >>> did_you_mean("colour", ["currency", "region"])
     ''
+    >>> did_you_mean("example_tou.toml", ["example_kva_demand.toml", "example_tou_kw_reactive_ratchet.toml"])
+    "did you mean 'example_tou_kw_reactive_ratchet.toml'? "
     """
     import difflib
 
     choices = [str(c) for c in choices]
     same = [c for c in choices if c.casefold() == str(word).casefold()]
-    close = same or difflib.get_close_matches(str(word), choices, n=1, cutoff=cutoff)
+    # a name cut short (its stem the start of exactly one choice, a file's extension aside) is that choice
+    stem = str(word).casefold().rsplit(".", 1)[0] if "." in str(word) else str(word).casefold()
+    longer = [c for c in choices if len(stem) >= 3 and c.casefold().startswith(stem) and c.casefold() != stem]
+    close = same or (longer if len(longer) == 1 else []) or difflib.get_close_matches(str(word), choices, n=1,
+                                                                                        cutoff=cutoff)
     return f"did you mean '{close[0]}'? " if close else ""
 
 
