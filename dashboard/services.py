@@ -1575,14 +1575,44 @@ def site_meters(view_: View, result) -> dict[str, dict[str, pd.DataFrame]]:
 def harmonic_screen(view_: View, result, site_id: str) -> list[dict]:
     """The site's harmonic screen today and with the exact plan (:func:`models.harmonics.site_screen`), as grid
     rows (infinite resonance orders blank), made once per case and plan."""
+    table = _screen_table(view_, result)
+    mine = table[table["site_id"].astype(str) == str(site_id)].replace([np.inf, -np.inf], np.nan)
+    return mine.astype(object).where(mine.notna(), None).to_dict("records")
+
+
+def _screen_table(view_: View, result) -> pd.DataFrame:
+    """Every site's harmonic screen today and with the exact plan, made once per case and plan."""
     from models.harmonics import site_screen
 
     op = view_.physics().operation
     choice = plan_choice(view_, result)
-    table = engine().derived(view_.key, "harmonics", (choice.tobytes(),),
-                             lambda: site_screen(view_.case, op, result.plan))
-    mine = table[table["site_id"].astype(str) == str(site_id)].replace([np.inf, -np.inf], np.nan)
-    return mine.astype(object).where(mine.notna(), None).to_dict("records")
+    return engine().derived(view_.key, "harmonics", (choice.tobytes(),), lambda: site_screen(view_.case, op, result.plan))
+
+
+def asset_harmonic_text(view_: View, result, asset_id: str) -> str:
+    """For an asset offered a drive or a capacitor at a site that the exact plan takes past a harmonic limit:
+    :func:`plan_harmonic_text` of its site, said for its drive and capacitor options; "" elsewhere."""
+    from models.options import DRIVE_TECHNOLOGIES
+
+    op = view_.physics().operation
+    i = op.asset_position(asset_id)
+    kinds = np.asarray(op.technologies, dtype=object)[np.asarray(op.applies[i], dtype=bool)]
+    if not np.isin(kinds, list(DRIVE_TECHNOLOGIES) + ["capacitor"]).any():
+        return ""
+    site = str(view_.case.assets.set_index("asset_id").loc[asset_id, "site_id"])
+    text = plan_harmonic_text(view_, result, [site])
+    return ("Drive and capacitor options here: " + text[:1].lower() + text[1:]) if text else ""
+
+
+def plan_harmonic_text(view_: View, result, site_ids=None) -> str:
+    """The exact plan's harmonic screen in words where a site (of ``site_ids``, default every site) passes a limit
+    with it (:func:`models.harmonics.plan_screen_text`), "" elsewhere: what the Fleet and Capital plan pages and
+    a drive or capacitor option of the Asset page say beside the plan."""
+    from models.harmonics import plan_screen_text
+
+    if result is None or not len(result.plan):
+        return ""
+    return plan_screen_text(_screen_table(view_, result), site_ids)
 
 
 def _site_fit(view_: View, site_id: str) -> tuple[pd.DataFrame, pd.DataFrame] | None:

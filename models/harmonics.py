@@ -390,6 +390,59 @@ def _finding(row: dict, near_order: float = np.nan) -> str:
     return "; ".join(parts) + "; " + action + note
 
 
+def screen_flags(screen: pd.DataFrame) -> pd.DataFrame:
+    """Which limits each row of :func:`site_screen`'s table passes: boolean columns ``voltage`` (the voltage THD or
+    the worst harmonic above its limit), ``current`` (the current TDD above its limit, where screened) and
+    ``resonance`` (a resonance finding), and ``any`` of them; indexed as ``screen``."""
+    with np.errstate(invalid="ignore"):
+        voltage = ((screen["voltage_thd_pct"] > screen["voltage_thd_limit_pct"])
+                   | (screen["worst_harmonic_pct"] > screen["harmonic_limit_pct"])).fillna(False)
+        current = (screen["current_tdd_pct"] > screen["current_tdd_limit_pct"]).fillna(False)
+    resonance = pd.to_numeric(screen["resonant_harmonic"], errors="coerce").fillna(0) > 0
+    flags = pd.DataFrame({"voltage": voltage.astype(bool), "current": current.astype(bool),
+                          "resonance": resonance.astype(bool)}, index=screen.index)
+    flags["any"] = flags.any(axis=1)
+    return flags
+
+
+def plan_screen_text(screen: pd.DataFrame, site_ids=None) -> str:
+    """The plan's harmonic screen in one or two sentences for the pages that carry the plan: the sites (of
+    ``site_ids``, default all) whose plan row passes a limit, with the figures against the limits, and that the
+    study and the mitigation it asks for are not in the plan's capital or NPV; "" where none does.
+
+    Examples
+    --------
+    >>> row = {"site_id": "S1", "scenario": "plan", "voltage_thd_pct": 14.8, "voltage_thd_limit_pct": 8.0,
+    ...        "worst_harmonic_pct": 10.4, "harmonic_limit_pct": 5.0, "current_tdd_pct": 42.6,
+    ...        "current_tdd_limit_pct": 12.0, "resonant_harmonic": 0}
+    >>> plan_screen_text(pd.DataFrame([row])).split(". ")[0]
+    'With the plan, site S1 (voltage THD 14.8 % against 8 %; current TDD 42.6 % against 12 %) fails the harmonic screen'
+    """
+    rows = screen[screen["scenario"].astype(str) == "plan"]
+    if site_ids is not None:
+        rows = rows[rows["site_id"].astype(str).isin({str(s) for s in site_ids})]
+    if rows.empty:
+        return ""
+    flags = screen_flags(rows)
+    said = []
+    for k, r in rows[flags["any"]].iterrows():
+        parts = []
+        if flags.at[k, "voltage"]:
+            parts.append(f"voltage THD {r['voltage_thd_pct']:.1f} % against {r['voltage_thd_limit_pct']:g} %")
+        if flags.at[k, "current"]:
+            parts.append(f"current TDD {r['current_tdd_pct']:.1f} % against {r['current_tdd_limit_pct']:g} %")
+        if flags.at[k, "resonance"]:
+            parts.append(f"a capacitor resonance near the {ordinal(int(r['resonant_harmonic']))} harmonic")
+        said.append(f"site {r['site_id']} ({'; '.join(parts)})")
+    if not said:
+        return ""
+    fails = "fails" if len(said) == 1 else "fail"
+    return (f"With the plan, {' and '.join([', '.join(said[:-1]), said[-1]] if len(said) > 1 else said)} {fails} the "
+            "harmonic screen. A harmonic study, and the mitigation it asks for (line reactors, detuned banks, filters, "
+            "multi-pulse or active-front-end drives), come before the plan's drives and capacitors are installed; "
+            "their cost is not in the plan's capital or NPV.")
+
+
 def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
     """The harmonic screen of every site, today and (with ``plan``) after it: one row per site and scenario.
 

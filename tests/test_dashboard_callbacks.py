@@ -702,3 +702,30 @@ def test_the_fleet_table_keeps_its_sort_for_the_tab(engine):
     assert fleet.sorted_columns(fleet.table_columns("EUR", "kW"), None) == fleet.table_columns("EUR", "kW")
     # the page's callback takes the kept sort
     assert {c["field"]: c.get("sort") for c in fleet.update(None, None, None, None, (), kept)[5]}["rating"] == "asc"
+
+
+def test_a_plan_past_the_harmonic_limits_is_said_on_the_fleet_plan_and_asset_pages(engine):
+    # an invariant of our design: the sites whose plan row of the harmonic screen passes a limit (the screen's numbers:
+    # hand cases H1-H6) are named on the pages where the plan is decided, and only where they are
+    from models.harmonics import screen_flags
+
+    view = services.view(None, None)
+    result = view.result()
+    screen = services._screen_table(view, result)
+    plan_rows = screen[screen["scenario"] == "plan"]
+    flagged = set(plan_rows.loc[screen_flags(plan_rows)["any"], "site_id"].astype(str))
+    assert flagged, "the demo's copy was expected to have a site past a harmonic limit with the plan"
+    text = services.plan_harmonic_text(view, result)
+    assert all(f"site {s} (" in text for s in flagged)
+    summary = plan.update(True, None, None)[6]
+    said = [x for x in summary if getattr(x, "id", None) == "plan-harmonics"]
+    assert len(said) == 1 and text in said[0].children
+    assert text in fleet.update(None, None, None, None)[-1]
+    assets = view.case.assets
+    at_flagged = assets.loc[assets["site_id"].astype(str).isin(flagged), "asset_id"]
+    elsewhere = assets.loc[~assets["site_id"].astype(str).isin(flagged), "asset_id"]
+    with_drive = [a for a in at_flagged if services.asset_harmonic_text(view, result, a)]
+    assert with_drive
+    ids = [getattr(x, "id", None) for x in asset.update(with_drive[0], None, None)[0]]
+    assert "asset-harmonics" in ids
+    assert all(not services.asset_harmonic_text(view, result, a) for a in elsewhere)

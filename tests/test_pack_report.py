@@ -1048,6 +1048,31 @@ def test_a_record_of_a_later_plan_year_gives_the_reports_npv_and_says_the_outage
     assert "outage priced at EUR 2,000/h" in text and "(The NPVs above count no outage.)" in text
 
 
+def test_a_plan_past_the_harmonic_limits_is_said_in_the_summary(demo_run_physics):
+    # an invariant of our design: every site whose plan row of the screen passes a limit is named in the executive
+    # summary with its figures as the screen tables them (the screen's numbers: hand cases H1-H6), and that the
+    # mitigation is not in the plan's capital
+    from models import scenario
+    from models.harmonics import screen_flags
+    from models.pack.content import plan_harmonic_screen, select_scope
+    from models.pack.report_html import report_context
+
+    case, phys = demo_run_physics
+    result = scenario.economics(case, phys, case.finance, with_risk=False)
+    text = report_context(case, result, select_scope(case, result), [])["summary_text"]
+    screen = plan_harmonic_screen(case, result)
+    plan_rows = screen[screen["scenario"] == "plan"]
+    flagged = plan_rows[screen_flags(plan_rows)["any"]]
+    assert len(flagged), "the demo's plan was expected to pass a harmonic limit at a site"
+    for r in flagged.itertuples(index=False):
+        assert f"site {r.site_id} (" in text
+        if r.voltage_thd_pct > r.voltage_thd_limit_pct:
+            assert f"voltage THD {r.voltage_thd_pct:.1f} % against {r.voltage_thd_limit_pct:g} %" in text
+    for r in plan_rows[~screen_flags(plan_rows)["any"]].itertuples(index=False):
+        assert f"site {r.site_id} (" not in text
+    assert "their cost is not in the plan's capital or NPV" in text and "Section 11 tables the screen." in text
+
+
 def test_a_financed_plan_is_said_in_the_summary_and_tabled_in_the_cash_flow_section(demo_run_physics):
     # finance.toml's financing (a loan here): the summary gives the owner's NPV financed and in cash in the words
     # of models.financing.financing_text, and section 5 tables the plan's yearly flows to the owner, whose

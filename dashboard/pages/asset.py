@@ -195,6 +195,9 @@ def update(asset_id, session, edits, requested=None):
     verified = services.verified_text(view, result, asset_id)
     if verified:  # the savings measured after its project (the case's verification table)
         summary.append(html.Div(verified, className="small", id="asset-verified"))
+    harmonics = services.asset_harmonic_text(view, result, asset_id)
+    if harmonics:  # its site with the plan's drives and capacitors passes a harmonic limit
+        summary.append(html.Div(harmonics, className="small caution", id="asset-harmonics"))
     hours, basis = services.asset_load_hours(view, asset_id)
     return (summary, options.to_dict("records"), option_columns(view.currency),
             figures.lcc_stack(services.asset_lcc(result, asset_id), view.currency),

@@ -137,7 +137,8 @@ def update(session, edits, sites, applications, site_choices=(), sort=None):
     count = f"{len(table)} of {len(view.case.assets)} assets"
     return (*cards, table.to_dict("records"), sorted_columns(table_columns(view.currency, view.power_unit), sort), count,
             figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
-            " ".join(text for text in (view.notice, services.plan_notice(result)) if text))
+            " ".join(text for text in (view.notice, services.plan_notice(result),
+                                       services.plan_harmonic_text(view, result)) if text))
 
 
 def sorted_columns(columns: list[dict], sort) -> list[dict]:

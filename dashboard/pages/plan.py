@@ -149,6 +149,10 @@ def update(_ready, session, edits, _proved=None):
             f"Caution: {counted(n_low, 'project')} of the plan ({share_low:.0%} of its NPV) rest on assets whose data "
             f"quality is below {LOW_DATA_QUALITY_PCT:.0f} %: read their nameplates and log their loads before the "
             "money is approved.", className="small caution", id="plan-low-quality")]
+    harmonics = services.plan_harmonic_text(view, result)
+    if harmonics:  # a plan past the harmonic limits: its mitigation is not in the figures above
+        summary += [html.Br(), html.Span("Caution: " + harmonics + " The Site meter page has the screen.",
+                                         className="small caution", id="plan-harmonics")]
     financing = services.plan_financing_text(result)
     if financing:  # the owner's view under the case's loan or energy-service contract
         summary += [html.Br(), html.Span(financing, className="small", id="plan-financing")]

@@ -221,6 +221,13 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
     taxes = content.taxes_text(result, cur) if scope.mode != "assets" and len(result.plan) else ""
     if taxes:
         summary += " " + taxes
+    if scope.mode != "assets" and len(result.plan):  # a plan past the harmonic limits says so where it is decided
+        from models.harmonics import plan_screen_text
+
+        in_scope = set(case.assets.loc[case.assets["asset_id"].isin(list(scope.asset_ids)), "site_id"].astype(str))
+        screened = plan_screen_text(content.plan_harmonic_screen(case, result), in_scope)
+        if screened:
+            summary += " " + screened + " Section 11 tables the screen."
     financed = None
     if scope.mode != "assets" and len(result.plan) and str(getattr(result.assumptions, "financing", "cash")) != "cash":
         from models.financing import plan_financing, plan_financing_words
