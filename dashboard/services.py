@@ -2378,12 +2378,24 @@ def fleet_rules_scope_text(result, rated_p_kw, currency: str, power_unit: str = 
     low_kw, high_kw = float(rules["min_rated_p_kw"].min()), float(rules["max_rated_p_kw"].max())
     rated = np.asarray(rated_p_kw, dtype=float)
     above = int(np.sum(rated > high_kw * (1.0 + 1e-9)))
+    # of the larger motors, those the asset comparison leaves out too (no new motor of the catalogue fits them)
+    asset_ids = getattr(getattr(getattr(result, "physics", None), "operation", None), "asset_ids", None)
+    compared = set(result.end_of_life["asset_id"].astype(str)) if getattr(result, "end_of_life", None) is not None else set()
+    uncompared = (int(sum(1 for a, r in zip(asset_ids, rated) if r > high_kw * (1.0 + 1e-9) and str(a) not in compared))
+                  if asset_ids is not None and len(asset_ids) == len(rated) else 0)
     low, high = (round(float(rating_in_unit(v, power_unit)), 2) for v in (low_kw, high_kw))
     downtime = float(result.assumptions.downtime_cost_per_h)
+    larger = ""
+    if above:
+        larger = (f"; {above} motor{'s' if above != 1 else ''} of the case {'are' if above != 1 else 'is'} larger and "
+                  f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above")
+        if uncompared:
+            larger += (f" ({'all of them' if uncompared == above else str(uncompared)} without one: no new motor of the "
+                       "catalogue fits, so a replacement and a rewind need quotes of their own)") if above != 1 else (
+                " (none is made: no new motor of the catalogue fits it, so a replacement and a rewind need quotes of "
+                "their own)")
     text = (f"It covers standard ratings from {low:,.10g} to {high:,.10g} {power_label(power_unit)}"  # (1,000 as the grid)
-            + (f"; {above} motor{'s' if above != 1 else ''} of the case {'are' if above != 1 else 'is'} larger and "
-               f"{'are' if above != 1 else 'is'} left to {'their' if above != 1 else 'its'} own comparison above"
-               if above else "")
+            + larger
             + ". It prices an outage at the finance assumptions' downtime cost "
             + (f"({money_text(downtime, currency)} per hour)" if downtime > 0 else "(none set, so outages count nothing)")
             + ", not at each motor's own, so an asset's own comparison above can differ from it.")

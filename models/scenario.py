@@ -1156,7 +1156,9 @@ def _end_of_life(case, op, sav, options, capex_total, age, shape, scale, assumpt
 END_OF_LIFE_LEFT_OUT = {
     "idle": ("it does not run in the analysis year (a spare or a stand-by motor): its failure stops nothing, so "
              "replacing it now is not compared with replacing or rewinding it at failure"),
-    "no_new_motor": "no new induction motor of the catalogue fits it, so there is no replacement to compare",
+    "no_new_motor": ("no new induction motor of the catalogue fits it, so there is no replacement to compare: add one of "
+                     "its size to the options catalogue, priced from a maker's quote, and a repairer's rewind price, to "
+                     "compare them"),
     "no_catalogue": "the comparison needs a rewind option and a new induction motor option in the catalogue",
 }
 

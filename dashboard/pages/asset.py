@@ -77,11 +77,16 @@ def layout(id=None, **_query):  # noqa: A002 - the URL parameter is called id
                "case's mean price per kWh; the hours are steps of a grid (1,000 to 8,000 h/yr), not exact "
                "break-evens.", className="page-intro"),
         html.P(id=FLEET_RULES_SCOPE, className="page-intro"),
-        ui.data_grid(FLEET_RULES, height=260, rowData=None, empty_text=services.END_OF_LIFE_UNAVAILABLE,
-                     loading_text="Computing the case…"),
+        # (grids of a few rows of long wrapped text: as tall as their rows, so no row is cut)
+        ui.data_grid(FLEET_RULES, height="auto", rowData=None, empty_text=services.END_OF_LIFE_UNAVAILABLE,
+                     loading_text="Computing the case…", dashGridOptions={"domLayout": "autoHeight"}),
         html.H3("Data quality"),
-        html.Div([html.Div([html.H4("Fields filled with defaults"), ui.data_grid(DEFAULTS, height=240, empty_text="No field of this asset was filled with a default")], className="half"),
-                  html.Div([html.H4("Cautions raised by the models"), ui.data_grid(FLAGS, height=240, empty_text="No cautions for this asset")], className="half")],
+        html.Div([html.Div([html.H4("Fields filled with defaults"),
+                            ui.data_grid(DEFAULTS, height="auto", empty_text="No field of this asset was filled with a default",
+                                         dashGridOptions={"domLayout": "autoHeight"})], className="half"),
+                  html.Div([html.H4("Cautions raised by the models"),
+                            ui.data_grid(FLAGS, height="auto", empty_text="No cautions for this asset",
+                                         dashGridOptions={"domLayout": "autoHeight"})], className="half")],
                  className="row"),
     ])
 
