@@ -1504,13 +1504,19 @@ def asset_load_hours(view_: View, asset_id: str, bin_pct: float = 10.0) -> tuple
 
 def asset_quality(view_: View, result, asset_id: str) -> tuple[float, pd.DataFrame, pd.DataFrame]:
     """Data-quality score [%], the defaulted fields (``field`` in words, from the asset register's column
-    descriptions, beside the ``column`` heading of the template) and the cautions raised for one asset."""
+    descriptions, beside the ``column`` heading of the template, and ``score_effect``: the points each takes off
+    the score, or "not scored") and the cautions raised for one asset."""
     a = view_.case.assets
     score = float(a.loc[a["asset_id"] == asset_id, "data_quality_pct"].iloc[0])
     defaults = view_.case.defaults
     defaults = defaults[defaults["asset_id"] == asset_id][["column", "value", "basis"]].reset_index(drop=True)
     defaults = defaults.assign(value=[default_text(c, v) for c, v in zip(defaults["column"], defaults["value"])]).astype(str)
     defaults.insert(0, "field", [case_io.column_title("assets", c) for c in defaults["column"]])
+    # what each default takes off the score (models.defaults.QUALITY_PENALTY_PCT): some fields are not scored
+    from models.defaults import QUALITY_PENALTY_PCT
+
+    defaults["score_effect"] = [f"-{QUALITY_PENALTY_PCT[c]:g} points" if c in QUALITY_PENALTY_PCT else "not scored"
+                                for c in defaults["column"]]
     res = result.results[result.results["asset_id"] == asset_id]
     rows = [{"option": r.label, "flag": text} for r in res.itertuples(index=False) for text in split_cautions(r.flags)]
     return score, defaults, pd.DataFrame(rows, columns=["option", "flag"])

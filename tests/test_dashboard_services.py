@@ -586,7 +586,15 @@ class TestPageData:
         assert hours["hours_per_yr"].sum() == pytest.approx(3200.0, rel=1e-9)
         assert "duty" in basis
         score, defaults, flags = services.asset_quality(v, r, "HRW-P01")
-        assert 0 <= score <= 100 and set(defaults.columns) == {"field", "column", "value", "basis"}
+        assert 0 <= score <= 100 and set(defaults.columns) == {"field", "column", "value", "basis", "score_effect"}
+        # each default's effect as models.defaults.QUALITY_PENALTY_PCT scores it (rated efficiency 25 points, the
+        # kind of machine installed not scored), so a score of 100 % beside defaults is read rightly
+        effect = dict(zip(defaults["column"], defaults["score_effect"]))
+        assert all(e == "not scored" or e.endswith(" points") for e in effect.values())
+        if "rated_efficiency_pct" in effect:
+            assert effect["rated_efficiency_pct"] == "-25 points"
+        if "machine_type" in effect:
+            assert effect["machine_type"] == "not scored"
         numbers = [v for v in defaults["value"] if v.replace(".", "", 1).replace("-", "", 1).isdigit()]
         assert numbers and all(len(v.replace("-", "").replace(".", "")) <= 6 for v in numbers)  # 6 significant digits
 

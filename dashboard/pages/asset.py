@@ -214,7 +214,10 @@ def update(asset_id, session, edits, requested=None):
             [ui.long_text_col("field", "Field", tooltipField="column",
                               headerTooltip="Hover a field for its column heading in the asset register"),
              ui.text_col("value", "Value used"),
-             ui.long_text_col("basis", "Basis", flex=2)],
+             ui.long_text_col("basis", "Basis", flex=2),
+             ui.text_col("score_effect", "Data quality", maxWidth=120,
+                         headerTooltip="points the default takes off the asset's data-quality score (some fields "
+                                       "are not scored: the model's result depends little on them)")],
             flags.to_dict("records"),
             [ui.long_text_col("option", "Option"), ui.long_text_col("flag", "Caution", flex=3)],
             notice, services.performance_note(view, result, asset_id))
