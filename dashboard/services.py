@@ -1942,8 +1942,11 @@ def risk_summary_text(result, scope: str, currency: str) -> str:
                                                               f"their delay)" if later else "")
     else:
         who = f"{len(rows)} projects (the best option of each asset that needs capital)"
-    return (f"{who} · {what}: P10 {money_text(s['npv_p10'], currency)}, P50 {money_text(s['npv_p50'], currency)}, "
-            f"P90 {money_text(s['npv_p90'], currency)}; "
+    def drawn(value: float) -> str:  # a percentile of draws to three significant figures, as its chart labels it
+        return money_text(float(f"{value:.3g}") if np.isfinite(value) else value, currency)
+
+    return (f"{who} · {what}: P10 {drawn(s['npv_p10'])}, P50 {drawn(s['npv_p50'])}, "
+            f"P90 {drawn(s['npv_p90'])}; "
             f"P(NPV > 0) {100 * s['prob_npv_positive_frac']:.0f} % · {runs}.")
 
 

@@ -146,7 +146,7 @@ def option_columns(currency: str) -> list[dict]:
                ui.number_col("saving_per_yr", f"Saving [{currency}/yr]", headerTooltip=ui.SAVING_NOTE),
                ui.number_col("npv", f"NPV [{currency}]"),
                ui.number_col("irr_pct", "IRR [%]", 1), ui.payback_col(),
-               ui.number_col("energy_mwh_per_yr", "Energy [MWh/yr]", 1), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 1),
+               ui.number_col("energy_mwh_per_yr", "Energy [MWh/yr]", 1), ui.number_col("mean_speed_rpm", "Mean speed [rpm]", 0),
                ui.number_col("life_cycle_cost", f"Life-cycle cost [{currency}]"),
                ui.number_col("cautions_count", "Cautions", pinned="right", maxWidth=130, filter=False,
                              tooltipField="flags", valueFormatter=CAUTION_COUNT)]
