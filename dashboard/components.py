@@ -118,9 +118,9 @@ def message_class(ok: bool) -> str:
     return "form-message accepted" if ok else "form-message refused"
 
 
-def card(label: str, value_id: str, note_id: str | None = None) -> html.Div:
-    """One headline card: label, value (filled by a callback) and an optional note."""
-    children = [html.Div(label, className="card-label"), html.Div("-", id=value_id, className="card-value")]
+def card(label: str, value_id: str, note_id: str | None = None, placeholder: str = "-") -> html.Div:
+    """One headline card: label, value (filled by a callback; ``placeholder`` until then) and an optional note."""
+    children = [html.Div(label, className="card-label"), html.Div(placeholder, id=value_id, className="card-value")]
     if note_id:
         children.append(html.Div("", id=note_id, className="card-note"))
     return html.Div(children, className="card")
@@ -130,9 +130,11 @@ HEADLINE_FIELDS = (("capital", "Plan capital"), ("saving", "Plan yearly saving, 
                    ("co2", "Plan CO2 avoided"))
 
 
-def headline_cards(prefix: str) -> html.Div:
-    """The four headline cards with ids ``<prefix>-headline-capital|saving|npv|co2``."""
-    return html.Div([card(label, f"{prefix}-headline-{key}") for key, label in HEADLINE_FIELDS], className="cards")
+def headline_cards(prefix: str, placeholder: str = "-") -> html.Div:
+    """The four headline cards with ids ``<prefix>-headline-capital|saving|npv|co2``, each saying ``placeholder``
+    until its callback fills it."""
+    return html.Div([card(label, f"{prefix}-headline-{key}", placeholder=placeholder) for key, label in HEADLINE_FIELDS],
+                    className="cards")
 
 
 def headline_values(numbers: dict, currency: str) -> list[str]:

@@ -729,3 +729,17 @@ def test_a_plan_past_the_harmonic_limits_is_said_on_the_fleet_plan_and_asset_pag
     ids = [getattr(x, "id", None) for x in asset.update(with_drive[0], None, None)[0]]
     assert "asset-harmonics" in ids
     assert all(not services.asset_harmonic_text(view, result, a) for a in elsewhere)
+
+
+def test_the_fleet_cards_say_the_case_is_computing_until_filled():
+    # docs/dashboard.md, Fleet: until the tab's results are there the cards say "Computing the case…"
+    def texts(component):
+        children = getattr(component, "children", None)
+        if isinstance(children, str):
+            yield getattr(component, "id", None), children
+        for child in children if isinstance(children, list) else ([children] if children is not None else []):
+            if not isinstance(child, str):
+                yield from texts(child)
+
+    said = dict((i, t) for i, t in texts(fleet.layout()) if i)
+    assert all(said[f"{fleet.HEADLINE}-headline-{k}"] == "Computing the case…" for k in ("capital", "saving", "npv", "co2"))

@@ -45,7 +45,7 @@ def layout(**_query):
                        "The best option for every motor and what the budgeted plan buys. Click a row to open the asset."),
         ui.notice(NOTICE),
         # the cards say "-" until the results arrive: say why over them while the case is computed
-        dcc.Loading(ui.headline_cards(HEADLINE), delay_show=400, overlay_style={"visibility": "visible", "opacity": 0.35},
+        dcc.Loading(ui.headline_cards(HEADLINE, placeholder=COMPUTING), delay_show=400, overlay_style={"visibility": "visible", "opacity": 0.35},
                     custom_spinner=html.Div(COMPUTING, className="computing", role="status"),
                     target_components={f"{HEADLINE}-headline-capital": "children"}),
         html.P("The cards are the budgeted plan for the whole fleet (plan year 0 is the first year of spending); "
