@@ -653,7 +653,8 @@ def break_even_words(row: Mapping[str, Any], year_h: float = 8760.0, brief: bool
     """A project's break-evens in a short sentence ("" where none is within reach): where its NPV crosses zero.
 
     ``row`` is a results row (``break_even_price_mult``, ``break_even_running_h_per_yr``, ``break_even_load_mult``,
-    ``break_even_capital_mult`` and ``running_h_per_yr``). Each bound holds with the other inputs as modelled.
+    ``break_even_capital_mult`` and ``running_h_per_yr``). Each bound holds with the other inputs as modelled. A
+    multiplier is said as a share of today's value (83 %), or as so many times it from 10 times up.
     ``brief`` leaves out the load and today's hours, in fewer words (a one-page decision record).
 
     Examples
@@ -661,30 +662,35 @@ def break_even_words(row: Mapping[str, Any], year_h: float = 8760.0, brief: bool
     >>> row = {"break_even_price_mult": 0.83, "break_even_running_h_per_yr": 7076.0, "running_h_per_yr": 8760.0,
     ...        "break_even_load_mult": 0.83, "break_even_capital_mult": 1.2}
     >>> break_even_words(row)
-    'Break-even, each alone: electricity prices x0.83, 7,076 h/yr (8,760 today), shaft load x0.83, capital x1.20.'
+    'Its NPV falls to zero, each input alone, at 83 % of the electricity prices, 7,076 h/yr (8,760 today), 83 % of the shaft load or 120 % of the capital.'
     >>> break_even_words(row, brief=True)
-    'Break-even (each alone): prices x0.83, 7,076 h/yr, capital x1.20.'
-    >>> break_even_words({**row, "break_even_running_h_per_yr": float("nan"), "break_even_load_mult": float("nan")})
-    'Break-even, each alone: electricity prices x0.83, capital x1.20.'
+    'NPV zero (each alone) at 83 % of prices, 7,076 h/yr or 120 % of capital.'
+    >>> break_even_words({**row, "break_even_running_h_per_yr": float("nan"), "break_even_load_mult": float("nan"),
+    ...                   "break_even_capital_mult": 19.1})
+    'Its NPV falls to zero, each input alone, at 83 % of the electricity prices or 19.1 times the capital.'
     """
     def value(name: str) -> float:
         v = float(row.get(name, float("nan")))
         return v if np.isfinite(v) else float("nan")
 
+    def of(mult: float, what: str) -> str:
+        return f"{mult:.3g} times {what}" if mult >= 10.0 else f"{100.0 * mult:.0f} % of {what}"
+
     price, hours, load, capital = (value(f"break_even_{n}") for n in ("price_mult", "running_h_per_yr", "load_mult",
                                                                        "capital_mult"))
     parts = []
     if price == price:
-        parts.append(f"prices x{price:.2f}" if brief else f"electricity prices x{price:.2f}")
+        parts.append(of(price, "prices" if brief else "the electricity prices"))
     if hours == hours and hours <= year_h:
         parts.append(f"{hours:,.0f} h/yr" + ("" if brief else f" ({value('running_h_per_yr'):,.0f} today)"))
     if load == load and not brief:
-        parts.append(f"shaft load x{load:.2f}")
+        parts.append(of(load, "the shaft load"))
     if capital == capital:
-        parts.append(f"capital x{capital:.2f}")
+        parts.append(of(capital, "capital" if brief else "the capital"))
     if not parts:
         return ""
-    return ("Break-even (each alone): " if brief else "Break-even, each alone: ") + ", ".join(parts) + "."
+    listed = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " or " + parts[-1]
+    return ("NPV zero (each alone) at " if brief else "Its NPV falls to zero, each input alone, at ") + listed + "."
 
 
 # ---------------------------------------------------------------------------------------------------
