@@ -214,13 +214,14 @@ def summary_text(row, brief: bool = False) -> str:
             return f"{what}: billed as 0 in each of {counted(row['n_months'], 'month')}, nothing to judge the fit by"
         return f"{what}: {counted(row['n_months'], 'month')} billed, too few to judge the fit"
     within = "within" if row["within_criteria"] else "outside"
-    if brief:  # the statistics the criteria judge, beside them
-        return (f"{what} NMBE {row['nmbe_pct']:+.2f} %, CV(RMSE) {row['cv_rmse_pct']:.2f} % over "
-                f"{counted(row['n_months'], 'month')}, {within} the criteria")
     # the plain bias of the totals in words; the statistics (their (n - p) form) in brackets
     billed, modelled = float(row["billed_total"]), float(row["modelled_total"])
     bias_pct = 100.0 * (modelled - billed) / billed if billed > 0 else np.nan
     side = "above" if bias_pct > 0 else "below"
+    if brief:  # the bias in words, the verdict, and the statistics the criteria judge named for what they measure
+        return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over {counted(row['n_months'], 'month')}, "
+                f"{within} the criteria (mean error NMBE {row['nmbe_pct']:+.2f} %, month-to-month scatter CV(RMSE) "
+                f"{row['cv_rmse_pct']:.2f} %)")
     verdict = f"{within} the monthly criteria (|NMBE| <= {NMBE_LIMIT_PCT:g} %, CV(RMSE) <= {CV_RMSE_LIMIT_PCT:g} %)"
     few = " (the criteria are meant for a year of bills)" if int(row["n_months"]) < 12 else ""
     return (f"{what}: the model reads {abs(bias_pct):.1f} % {side} the bills over "
