@@ -788,3 +788,37 @@ def test_a_front_end_on_an_option_without_a_drive_is_warned_and_a_blank_one_is_s
                                         "eighteen_pulse,20\n", encoding="utf-8")
     case, problems = load_case(folder)
     assert case is None and any(p.column == "drive_front_end" and p.severity == "error" for p in problems)
+
+
+def test_the_mv_plan_of_an_on_off_motor_compares_energy_not_mean_kw(tmp_path):
+    # A sump pump on a level switch runs its amount in a time a project changes (a drive may run it at its demand,
+    # a faster motor moves it sooner): its M&V plan gives no expected mean kW while running (today's hours would
+    # be the wrong divisor) and says to compare energy over the same production; a terminal capacitor changes no
+    # running time, and the same pump running throughout keeps its expected mean kW (its kWh over its hours).
+    from models import scenario
+    from models.pack import content
+
+    folder = _sump_case(tmp_path / "c", "on_off", [80, 40, 20])
+    lines = (folder / "assets.csv").read_text(encoding="utf-8").splitlines()
+    fixed = lines[1].replace("P9,", "P7,", 1).replace(",on_off,", ",fixed,", 1)
+    (folder / "assets.csv").write_text("\n".join(lines + [fixed]) + "\n", encoding="utf-8")
+    cb.with_flat_tariff(folder)
+    tariff = folder / "tariffs" / "flat.toml"
+    tariff.write_text(tariff.read_text(encoding="utf-8").replace("Europe/Berlin", "UTC"), encoding="utf-8")
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems]
+    result = scenario.run(case, case.finance, with_risk=False)
+    res = result.results.set_index(["asset_id", "option_id"])
+    picks = [("P9", "ie3"), ("P9", "capacitor"), ("P7", "ie3")]
+    projects = res.loc[picks].reset_index()
+    plan = content.mv_plan(result, projects, case).set_index(["asset_id", "option_id"])
+    assert np.isnan(plan.loc[("P9", "ie3"), "expected_mean_p_kw"])
+    assert "compare energy over the same production" in plan.loc[("P9", "ie3"), "measure"]
+    for pick in (("P9", "capacitor"), ("P7", "ie3")):
+        assert np.isfinite(plan.loc[pick, "expected_mean_p_kw"])
+        assert "compare energy over the same production" not in plan.loc[pick, "measure"]
+    # P7 runs throughout: its expected mean kW is its yearly kWh over its running hours (hand: the ratio of two
+    # columns of the results row)
+    row = res.loc[("P7", "ie3")]
+    assert plan.loc[("P7", "ie3"), "expected_mean_p_kw"] == pytest.approx(
+        float(plan.loc[("P7", "ie3"), "expected_energy_kwh_per_yr"]) / float(row["running_h_per_yr"]), rel=1e-12)

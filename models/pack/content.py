@@ -580,8 +580,12 @@ def _power_factor(p_kwh: np.ndarray, q_kvarh: np.ndarray) -> np.ndarray:
         return np.where(p_kwh > 0, p_kwh / np.hypot(p_kwh, q_kvarh), np.nan)
 
 
-def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
+def mv_plan(result, projects: pd.DataFrame, case=None) -> pd.DataFrame:
     """Return the measurement-and-verification plan of each project: what to log, for how long, baselines.
+
+    With ``case``, a motor switched on and off (``speed_control`` ``on_off``) gets no expected mean kW after a
+    project that changes how long it runs (any but a terminal capacitor: a drive may run it at its demand, a
+    faster motor moves the amount in less time), and its measure says to compare energy over the same production.
 
     Returns
     -------
@@ -606,6 +610,9 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
     op = result.physics.operation
     res = result.results.set_index(["asset_id", "option_id"])
     keep = keep_option_ids(result)
+    cycled = set()
+    if case is not None and "speed_control" in case.assets:
+        cycled = set(case.assets.loc[case.assets["speed_control"].astype(str) == "on_off", "asset_id"].astype(str))
     rows = []
     for r in projects.itertuples(index=False):
         i = op.asset_position(r.asset_id)
@@ -638,6 +645,11 @@ def mv_plan(result, projects: pd.DataFrame) -> pd.DataFrame:
         if tech == "wound_field":
             what.append("field current and site power factor (over-excitation setpoint)")
         measure = "; ".join(what)
+        running_changes = str(r.asset_id) in cycled and tech != "capacitor"
+        if running_changes:  # its running hours change with the project: the mean kW while running is not comparable
+            mean_kw = np.array([mean_kw[0], np.nan])
+            measure += ("; switched on and off: compare energy over the same production (m3, t), not mean kW, "
+                        "since the project changes how long it runs")
         if failed_now:
             baseline = (f"the modelled {res.loc[(r.asset_id, base_id), 'label']}" if base_id
                         else "the motor as modelled, repaired")

@@ -377,7 +377,7 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
                                  cell("same as the program default" if item["program_default"] else "differs from the program default",
                                       "small")]))
 
-    mv = content.mv_plan(result, chosen)
+    mv = content.mv_plan(result, chosen, case)
     mv_protocol_rows = []
     for (option, weeks, measure), grp in mv.groupby(["ipmvp_option", "duration_weeks", "measure"], sort=True):
         projects = [project_text(a_, o_) for a_, o_ in zip(grp["asset_id"], grp["option_id"])]
