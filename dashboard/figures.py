@@ -73,14 +73,40 @@ def _style(fig: go.Figure, title: str = "", height: int = 380, legend_below: boo
     return fig
 
 
+#: Longest line of a message figure's text [characters]: about 420 px at its 14 px font, so a message stays whole
+#: in a half-width panel of a 1024 px window (one long line was cut at both ends).
+MESSAGE_LINE_CHARS = 60
+#: Height of one line of a message figure's text [px] (14 px font).
+MESSAGE_LINE_PX = 20
+
+
 def message_figure(text: str, height: int = 260) -> go.Figure:
-    """An empty figure that says why there is nothing to draw."""
+    """An empty figure that says why there is nothing to draw.
+
+    Parameters
+    ----------
+    text : str
+        The message; broken at spaces into lines of at most :data:`MESSAGE_LINE_CHARS` characters (``<br>``
+        between them, a ``<br>`` of its own kept), so no part of it runs past the panel's edges.
+    height : int
+        Height of the figure [px]; raised when the lines need more.
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        No traces, one centred annotation, and no axis, grid line or zero line drawn.
+    """
+    lines = wrap_label(str(text), MESSAGE_LINE_CHARS)
     fig = go.Figure()
-    fig.add_annotation(text=text, x=0.5, y=0.5, xref="paper", yref="paper", showarrow=False,
+    fig.add_annotation(text=lines, x=0.5, y=0.5, xref="paper", yref="paper", showarrow=False, align="center",
                        font=dict(size=14, color=MUTED))
-    fig.update_xaxes(visible=False)
-    fig.update_yaxes(visible=False)
-    return _style(fig, height=height)
+    hidden = dict(visible=False, showgrid=False, zeroline=False, showline=False, showticklabels=False)
+    fig.update_xaxes(**hidden)
+    fig.update_yaxes(**hidden)
+    _style(fig, height=max(int(height), 48 + MESSAGE_LINE_PX * (lines.count("<br>") + 2)))
+    # no axes to make room for: the text is centred on the whole panel, with room to either side
+    fig.update_layout(margin=dict(l=24, r=24, t=24, b=24))
+    return fig
 
 
 def option_colour_map(keys) -> dict[str, str]:
@@ -99,12 +125,15 @@ def option_colour_map(keys) -> dict[str, str]:
 # ---------------------------------------------------------------------------------------------------
 # Fleet
 # ---------------------------------------------------------------------------------------------------
-#: Bars of the abatement curve narrower than this share of the tonnes avoided do not set its axis.
+#: Bars of the abatement curve narrower than this share of the tonnes avoided do not set its axis on a side (above
+#: or below zero) where wider bars are (see :func:`abatement_curve`).
 ABATEMENT_VISIBLE_SHARE = 0.002
 #: The abatement curve's title: which option of each asset its bar is (see :func:`abatement_curve`).
 ABATEMENT_TITLE = "Abatement cost curve (below zero: saves money)"
 #: What the bars are, under the title (a line of its own: the whole sentence is cut in a narrow window).
 ABATEMENT_SUBTITLE = "each asset's highest-NPV option that avoids CO2"
+#: The legend's names of the two shades of the abatement bars.
+ABATEMENT_SHADES = {GAIN: "below zero: saves money", COST: "above zero: costs money"}
 
 
 def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
@@ -123,6 +152,13 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     One bar per asset: of its options that avoid CO2, the one with the highest NPV
     (``models.plan.abatement_curve``). That is not always the asset's best option, which may avoid none;
     the subtitle says which option it is (:data:`ABATEMENT_SUBTITLE`).
+
+    The vertical axis spans both signs the bars take. On each side of zero it reaches the bars that hold the
+    tonnes (at least :data:`ABATEMENT_VISIBLE_SHARE` of them); a narrower bar beyond them runs off the axis and
+    a note under the chart says so. A side with narrow bars only is spanned whole: the costly projects that
+    avoid little CO2 are still drawn (they were a sliver over zero when the axis followed the wide bars only),
+    each as a stem with a dot at its height: the bar itself is a fraction of a pixel wide. The two shades
+    (saves money, costs money) are keyed in the legend.
     """
     if abatement is None or abatement.empty:
         return message_figure("No option avoids CO2 in this case.")
@@ -134,28 +170,59 @@ def abatement_curve(abatement: pd.DataFrame, currency: str) -> go.Figure:
     names = (abatement["asset_id"].astype(str) + ": " + abatement["label"].astype(str) if "label" in abatement
              else abatement["project_id"].astype(str))
     text = [f"{p}<br>{c:,.0f} {currency}/t<br>{w:,.1f} t/yr" for p, c, w in zip(names, cost, width)]
-    fig = go.Figure(go.Bar(x=start + width / 2.0, y=cost, width=width, marker=dict(color=colours, line=dict(width=0.5, color="white")),
-                           hovertext=text, hoverinfo="text", name="projects"))
+    finite = np.isfinite(cost)
+    seen = finite & (width >= ABATEMENT_VISIBLE_SHARE * max(float(width[finite].sum()), 1e-12))
+    # a white edge between the wide bars; none on a narrow bar, which it turned a paler shade of its colour (a
+    # third and fourth shade that the legend did not explain)
+    fig = go.Figure(go.Bar(x=start + width / 2.0, y=cost, width=width,
+                           marker=dict(color=colours, line=dict(width=np.where(seen, 0.5, 0.0), color="white")),
+                           hovertext=text, hoverinfo="text", name="projects", showlegend=False))
+    for shade, name in ABATEMENT_SHADES.items():  # the key to the two shades (no data of its own)
+        if (colours == shade).any():
+            fig.add_trace(go.Scatter(x=[None], y=[None], mode="markers", name=name, hoverinfo="skip",
+                                     marker=dict(symbol="square", size=12, color=shade)))
     fig.add_hline(y=0, line=dict(color=INK, width=1))
-    fig.update_layout(showlegend=False, bargap=0)
-    # a project that avoids almost no CO2 can cost thousands per tonne: its bar is too narrow to see but
-    # would set the axis; the axis covers the bars that hold the tonnes, the others run off it (noted)
-    seen = width >= ABATEMENT_VISIBLE_SHARE * max(float(width.sum()), 1e-12)
-    beyond = ~seen & ((cost > max(cost[seen].max(initial=0.0), 0.0)) | (cost < min(cost[seen].min(initial=0.0), 0.0)))
-    if seen.any() and beyond.any():
-        lo, hi = min(float(cost[seen].min()), 0.0), max(float(cost[seen].max()), 0.0)
-        pad = 0.08 * (hi - lo or 1.0)
-        fig.update_yaxes(range=[lo - pad, hi + pad])
-        fig.add_annotation(text=f"{int(beyond.sum())} narrow {'bar runs' if int(beyond.sum()) == 1 else 'bars run'} off the axis (to "
-                                f"{float(cost[beyond].max() if (cost[beyond] > 0).any() else cost[beyond].min()):,.0f} "
-                                f"{currency}/t): projects that avoid almost no CO2",
-                           xref="paper", yref="paper", x=1.0, y=1.02, xanchor="right", yanchor="bottom",
+    fig.update_layout(showlegend=True, bargap=0)
+    # a project that avoids almost no CO2 can cost thousands per tonne: its bar is too narrow to see but would set
+    # the axis; on a side of zero with wider bars the axis covers those, the others run off it (noted). A side of
+    # narrow bars only is covered whole, so that its bars are drawn (not cut to the padding over zero)
+    above, below = finite & (cost > 0), finite & (cost < 0)
+    hi = float(cost[(seen & above) if (seen & above).any() else above].max(initial=0.0))
+    lo = float(cost[(seen & below) if (seen & below).any() else below].min(initial=0.0))
+    pad = 0.08 * (hi - lo or 1.0)
+    fig.update_yaxes(range=[lo - pad, hi + pad])
+    beyond = finite & ((cost > hi + pad) | (cost < lo - pad))
+    # a narrow bar past the wide ones of its side is a fraction of a pixel wide, too thin to be drawn: a stem
+    # from zero with a dot at its height shows it (its hover the bar's own)
+    wide_hi, wide_lo = float(cost[seen & above].max(initial=0.0)), float(cost[seen & below].min(initial=0.0))
+    stems = finite & ~seen & ~beyond & ((cost > wide_hi) | (cost < wide_lo))
+    for shade, side in ((GAIN, below), (COST, above)):
+        pick = stems & side
+        if pick.any():
+            n = int(pick.sum())
+            gap = np.full(n, np.nan)
+            centre = (start + width / 2.0)[pick]
+            fig.add_trace(go.Scatter(x=np.column_stack([centre, centre, gap]).ravel(),
+                                     y=np.column_stack([np.zeros(n), cost[pick], gap]).ravel(),
+                                     mode="lines+markers", line=dict(color=shade, width=1.5),
+                                     marker=dict(color=shade, size=np.tile([0, 6, 0], n)),
+                                     hovertext=np.repeat(np.asarray(text, dtype=object)[pick], 3), hoverinfo="text",
+                                     name="narrow bars", showlegend=False, cliponaxis=False))
+    if stems.any():  # the tonnes set the horizontal axis, not the stems' dots (which would pad it)
+        first, last = float(np.nanmin(start)), float(np.nanmax(start + width))
+        fig.update_xaxes(range=[first, last + 0.005 * (last - first or 1.0)])
+    if beyond.any():
+        far = float(cost[beyond].max() if (cost[beyond] > 0).any() else cost[beyond].min())
+        count = int(beyond.sum())
+        fig.add_annotation(text=f"{count} narrow {'bar runs' if count == 1 else 'bars run'} off the axis (to "
+                                f"{far:,.0f} {currency}/t): projects that avoid almost no CO2",
+                           xref="paper", yref="paper", x=1.0, y=0.0, yshift=-52, xanchor="right", yanchor="top",
                            showarrow=False, font=dict(size=11, color=INK))
     fig.update_xaxes(title_text="CO2 avoided, cumulative [t/yr]")
     fig.update_yaxes(title_text=f"Cost of abatement [{currency}/t CO2]")
     _style(fig, ABATEMENT_TITLE)
     fig.update_layout(title_subtitle=dict(text=ABATEMENT_SUBTITLE, font=dict(size=12, color=MUTED)),
-                      margin_t=64)
+                      margin_t=64, margin_b=84 if beyond.any() else 56)
     return fig
 
 
@@ -179,9 +246,10 @@ def lcc_stack(lcc: pd.DataFrame, currency: str) -> go.Figure:
         if not (lcc["component"] == component).any():
             continue
         part = lcc[lcc["component"] == component].set_index("label")["pv"].reindex(order)
-        fig.add_trace(go.Bar(x=order, y=part.to_numpy(dtype=float), name=component,
-                             marker_color=LCC_COLOURS[component],
-                             hovertemplate="%{x}<br>" + component + ": %{y:,.0f} " + currency + "<extra></extra>"))
+        values = part.to_numpy(dtype=float)
+        fig.add_trace(go.Bar(x=order, y=values, name=component, marker_color=LCC_COLOURS[component],
+                             customdata=money_texts(values, currency),
+                             hovertemplate="%{x}<br>" + component + ": %{customdata}<extra></extra>"))
     fig.update_layout(barmode="relative")
     fig.update_xaxes(title_text="Option", tickangle=-20)
     fig.update_yaxes(title_text=f"Present value [{currency}]")
@@ -217,7 +285,8 @@ def cumulative_cash(curves: pd.DataFrame, currency: str, colours: dict[str, str]
     for (k, label), part in curves.groupby([key, "label"], sort=False):
         fig.add_trace(go.Scatter(x=part["year"], y=part["cumulative_pv"], mode="lines", name=label,
                                  line=dict(color=colour(k), width=2),
-                                 hovertemplate="year %{x}<br>%{y:,.0f} " + currency + "<extra>" + label + "</extra>"))
+                                 customdata=money_texts(part["cumulative_pv"], currency),
+                                 hovertemplate="year %{x}<br>%{customdata}<extra>" + label + "</extra>"))
     paid = curves.drop_duplicates("label").dropna(subset=["payback_yr"])
     if len(paid):
         fig.add_trace(go.Scatter(x=paid["payback_yr"], y=np.zeros(len(paid)), mode="markers", name="discounted payback",
@@ -255,14 +324,23 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str, colours: 
     -----
     The power factor's size says nothing of its sense, so lagging is drawn dotted and leading dashed; the
     legend keys the two styles (grey entries), the hover says the sense.
+
+    Where an option delivers nothing at the shaft (shaft_p_kw, when given, or the efficiency not above zero:
+    a fan that a drive slows below the speed at which it moves any air against its system's pressure), its
+    efficiency means nothing and is not drawn (a gap, not a zero that reads as a broken model); a note in
+    the efficiency panel says below which load no flow is delivered (:func:`no_output_loads`).
     """
     fig = make_subplots(rows=3, cols=1, shared_xaxes=True, vertical_spacing=0.05, row_heights=[0.38, 0.32, 0.30])
     senses = set()
     if curves is not None and len(curves):
         colour = _colour_of(curves, colours)
         key = "option_id" if "option_id" in curves else "label"
+        curves = curves.reset_index(drop=True)  # (a unique index: the points with no output are looked up on it)
+        idle = no_output_loads(curves)
         for (k, label), part in curves.groupby([key, "label"], sort=False):
-            fig.add_trace(go.Scatter(x=part["load_pct"], y=part["efficiency_frac"] * 100.0, mode="lines", name=label,
+            # no output, no efficiency: a gap in the line
+            efficiency_pct = (part["efficiency_frac"] * 100.0).where(~idle.loc[part.index])
+            fig.add_trace(go.Scatter(x=part["load_pct"], y=efficiency_pct, mode="lines", name=label,
                                      legendgroup=str(k), line=dict(color=colour(k), width=2),
                                      hovertemplate="%{x:.0f} %<br>efficiency %{y:.1f} %<extra>" + label + "</extra>"),
                           row=1, col=1)
@@ -276,6 +354,12 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str, colours: 
                                          line=dict(color=colour(k), width=2, dash=PF_DASH[sense][0]),
                                          hovertemplate="%{x:.0f} %<br>PF %{y:.3f} " + sense + "<extra>" + label + "</extra>"),
                               row=2, col=1)
+        note = no_output_note(curves, idle)
+        if note:  # in the panel's empty lower left, where the lines would have lain along zero
+            fig.add_annotation(text=note, xref="x domain", yref="y domain", x=0.01, y=0.3, xanchor="left",
+                               yanchor="middle", align="left", showarrow=False, font=dict(size=11, color=MUTED),
+                               hovertext="nothing delivered at the shaft there, so no efficiency drawn:<br>"
+                               + wrap_label(", ".join(dict.fromkeys(curves.loc[idle, "label"].astype(str))), 60))
     for sense in ("lagging", "leading"):  # the key to the line styles, in the legend (no data of its own)
         if sense in senses:
             dash, style = PF_DASH[sense]
@@ -294,6 +378,75 @@ def performance(curves: pd.DataFrame, hours: pd.DataFrame, basis: str, colours: 
     fig = _style(fig, "Efficiency and power factor against load, and where the asset runs", height=680, legend_below=True)
     fig.update_layout(legend=dict(y=-0.1))
     return fig
+
+
+def no_output_loads(curves: pd.DataFrame) -> pd.Series:
+    """Which points of the performance curves deliver nothing at the shaft (True there).
+
+    Parameters
+    ----------
+    curves : pandas.DataFrame
+        efficiency_frac [-] and, optionally, shaft_p_kw [kW] (``models.operation.performance_curves``).
+
+    Returns
+    -------
+    pandas.Series of bool
+        On the index of ``curves``: the shaft power (when given) is not above zero, or the efficiency is not
+        above zero (no output for the input drawn). A missing efficiency is not marked (it draws no point
+        anyway).
+
+    Examples
+    --------
+    >>> no_output_loads(pd.DataFrame({"efficiency_frac": [0.0, 0.02, 0.9], "shaft_p_kw": [0.0, 0.1, 50.0]})).tolist()
+    [True, False, False]
+    """
+    efficiency = pd.to_numeric(curves["efficiency_frac"], errors="coerce")
+    idle = efficiency.notna() & ~(efficiency > 0)
+    if "shaft_p_kw" in curves:
+        shaft = pd.to_numeric(curves["shaft_p_kw"], errors="coerce")
+        idle |= shaft.notna() & ~(shaft > 0)
+    return idle
+
+
+def no_output_note(curves: pd.DataFrame, idle: pd.Series) -> str:
+    """The efficiency panel's note on the loads where options deliver no flow ("" when every point delivers).
+
+    Parameters
+    ----------
+    curves : pandas.DataFrame
+        option_id or label, load_pct [% of rating], as for :func:`performance`.
+    idle : pandas.Series of bool
+        :func:`no_output_loads` of ``curves``.
+
+    Returns
+    -------
+    str
+        "no flow delivered<br>below 38 % load": the lowest load at which each such option delivers (the
+        lowest to the highest of them when they differ), in whole per cent.
+
+    Examples
+    --------
+    >>> c = pd.DataFrame({"label": ["Drive"] * 3, "load_pct": [25.0, 37.5, 50.0], "efficiency_frac": [0.0, 0.1, 0.8]})
+    >>> no_output_note(c, no_output_loads(c))
+    'no flow delivered<br>below 38 % load'
+    """
+    idle = np.asarray(idle, dtype=bool)
+    if not idle.any():
+        return ""
+    keys = curves["option_id" if "option_id" in curves else "label"].to_numpy(dtype=object)
+    load = curves["load_pct"].to_numpy(dtype=float)
+    first = []  # the lowest load each option with idle points delivers at (NaN: at none drawn)
+    for k in dict.fromkeys(keys):
+        own = keys == k
+        if idle[own].any():
+            delivering = load[own & ~idle]
+            first.append(float(delivering.min()) if len(delivering) else np.nan)
+    shown = [x for x in first if np.isfinite(x)]
+    if not shown:
+        return "no flow delivered<br>at any load drawn"
+    low, high = round(min(shown), 6), round(max(shown), 6)  # (37.499999... from load fractions is written 38)
+    span = f"{low:.0f} %" if f"{low:.0f}" == f"{high:.0f}" else f"{low:.0f}-{high:.0f} %"
+    return f"no flow delivered<br>below {span} load"
 
 
 #: Hatching of the speed chart's bars by speed remedy (the colour stays the option's own).
@@ -402,8 +555,22 @@ def money_short(value: float, currency: str) -> str:
     return f"{currency} {v:,.0f}"
 
 
+def money_texts(values, currency: str) -> list[str]:
+    """:func:`money_short` of each value, for a trace's hover or its labels (``customdata``, ``text``).
+
+    Examples
+    --------
+    >>> money_texts([8312224.0, 250000.0, float("nan")], "EUR")
+    ['EUR 8.31 M', 'EUR 250.0 k', '-']
+    """
+    return [money_short(v, currency) for v in np.asarray(values, dtype=float).ravel()]
+
+
 def wrap_label(text: str, width: int = 24) -> str:
     """A label broken into lines of at most about ``width`` characters at spaces (``<br>`` between them).
+
+    A ``<br>`` already in ``text`` stays a line break; a single word longer than ``width`` keeps a line of its
+    own. Putting a space back for each added ``<br>`` gives ``text`` again (for text with single spaces).
 
     Examples
     --------
@@ -411,14 +578,20 @@ def wrap_label(text: str, width: int = 24) -> str:
     'Line-start PM motor +<br>impeller trim or pulley'
     >>> wrap_label("IE4")
     'IE4'
+    >>> wrap_label("Plan NPV<br>centre: the plan under the budget", 20)
+    'Plan NPV<br>centre: the plan<br>under the budget'
     """
     lines: list[str] = []
-    for word in text.split():
-        if lines and len(lines[-1]) + 1 + len(word) <= width:
-            lines[-1] += " " + word
-        else:
-            lines.append(word)
-    return "<br>".join(lines) if lines else text
+    for part in str(text).split("<br>"):
+        start = len(lines)
+        for word in part.split():
+            if len(lines) > start and len(lines[-1]) + 1 + len(word) <= width:
+                lines[-1] += " " + word
+            else:
+                lines.append(word)
+        if len(lines) == start:  # an empty part: the break is kept
+            lines.append("")
+    return "<br>".join(lines) if any(lines) else text
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -532,7 +705,8 @@ def monthly_bills(bills: pd.DataFrame, currency: str) -> go.Figure:
             for s in ("before", "after"):
                 values.append(float(part.loc[(part["month"].astype(str) == m) & (part["scenario"] == s), "amount"].sum()))
         fig.add_trace(go.Bar(x=x, y=values, name=category, marker_color=BILL_COLOURS.get(category, MUTED),
-                             hovertemplate="%{x}<br>" + category + ": %{y:,.0f} " + currency + "<extra></extra>"))
+                             customdata=money_texts(values, currency),
+                             hovertemplate="%{x}<br>" + category + ": %{customdata}<extra></extra>"))
     fig.update_layout(barmode="relative")
     fig.update_xaxes(title_text="Month, today and with the plan")
     fig.update_yaxes(title_text=f"Bill [{currency}/month]")
@@ -606,13 +780,15 @@ def plan_by_year(by_year: pd.DataFrame, currency: str, exact_name: str = "exact 
     for plan_name, colour, name in (("exact", AFTER, exact_name), ("rank_order", BEFORE, "rank by profitability index")):
         part = by_year[by_year["plan"] == plan_name]
         fig.add_trace(go.Bar(x=year_names(part), y=part["capital"], name=name, marker_color=colour,
-                             hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra>" + name + "</extra>"))
+                             customdata=money_texts(part["capital"], currency),
+                             hovertemplate="%{x}: %{customdata}<extra>" + name + "</extra>"))
     budget = by_year[by_year["plan"] == "exact"]
     if budget["budget"].notna().any():
         fig.add_trace(go.Scatter(x=year_names(budget), y=budget["budget"], mode="markers",
                                  name="budget",
                                  marker=dict(symbol="line-ew-open", size=28, color=BUDGET, line=dict(width=3)),
-                                 hovertemplate="%{x} budget: %{y:,.0f} " + currency + "<extra></extra>"))
+                                 customdata=money_texts(budget["budget"], currency),
+                                 hovertemplate="%{x} budget: %{customdata}<extra></extra>"))
     fig.update_layout(barmode="group")
     fig.update_xaxes(title_text="Plan year")
     # capital is never negative: the axis starts at zero (a plan buying nothing would otherwise run from -1 to 1)
@@ -636,9 +812,12 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
     if all(np.isfinite(float(c)) and float(c) == 0 for c in counts):  # both plans known to be empty
         return message_figure("Neither plan holds a project: no option with capital adds value under these "
                               "assumptions and budgets.")
+    # each bar labelled in the cards' short form ("EUR 8.31 M", not "EUR 8,312,224")
     fig = go.Figure(go.Bar(x=names, y=values, marker_color=[AFTER, BEFORE],
-                           text=[f"{currency} {v:,.0f}<br>{int(c) if np.isfinite(c) else '-'} projects" for v, c in zip(values, counts)],
-                           textposition="auto", hovertemplate="%{x}: %{y:,.0f} " + currency + "<extra></extra>"))
+                           text=[f"{money_short(v, currency)}<br>{int(c) if np.isfinite(float(c)) else '-'} projects"
+                                 for v, c in zip(values, counts)],
+                           customdata=money_texts(values, currency),
+                           textposition="auto", hovertemplate="%{x}: %{customdata}<extra></extra>"))
     fig.update_xaxes(title_text="Plan")
     fig.update_yaxes(title_text=f"NPV at plan start [{currency}]", rangemode="tozero")
     return _style(fig, f"Plan NPV: the {exact_name} against rank order")
@@ -647,6 +826,13 @@ def plan_comparison(comparison: pd.Series, currency: str, exact_name: str = "exa
 # ---------------------------------------------------------------------------------------------------
 # Risk
 # ---------------------------------------------------------------------------------------------------
+#: Longest line of a tornado bar's label [characters]: a long one ("New machines' losses (-100 to +100 % of the
+#: IEC tolerance band)") on one line took half a half-width panel's width from the bars and the axis title.
+TORNADO_LABEL_CHARS = 36
+#: Bottom margin of the tornado [px]: its tick labels and the three lines of its axis title.
+TORNADO_BOTTOM_PX = 112
+
+
 def tornado(rows: pd.DataFrame, currency: str, scope: str = "best") -> go.Figure:
     """One-at-a-time sensitivity of the plan's NPV (``scope`` "plan") or of the fleet NPV of the best options.
 
@@ -657,29 +843,35 @@ def tornado(rows: pd.DataFrame, currency: str, scope: str = "best") -> go.Figure
     currency : str
     scope : {"best", "plan"}
         What the NPV adds up: each asset's best option with no budget, or the budgeted plan at its start.
+
+    Notes
+    -----
+    The axis title names the centre line on three short lines, its value (:func:`money_short`) on a line of
+    its own: on two lines the second ran past a half-width panel at 1440 px ("... the budget, EUR 8"). The
+    labels are wrapped (:data:`TORNADO_LABEL_CHARS`) so that they leave the bars and the title room.
     """
     if rows is None or rows.empty:
         return message_figure("No project with capital to test.")
     base = float(rows["base_npv"].iloc[0])
+    names = [wrap_label(str(label), TORNADO_LABEL_CHARS) for label in rows["label"]]
     fig = go.Figure()
-    fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_low"] - base, base=base, orientation="h", name="low value",
-                         marker_color=COST, customdata=rows["npv_at_low"],
-                         hovertemplate="%{y}<br>low: %{customdata:,.0f} " + currency + "<extra></extra>"))
-    fig.add_trace(go.Bar(y=rows["label"], x=rows["npv_at_high"] - base, base=base, orientation="h", name="high value",
-                         marker_color=GAIN, customdata=rows["npv_at_high"],
-                         hovertemplate="%{y}<br>high: %{customdata:,.0f} " + currency + "<extra></extra>"))
+    for column, name, colour in (("npv_at_low", "low value", COST), ("npv_at_high", "high value", GAIN)):
+        values = rows[column].to_numpy(dtype=float)
+        fig.add_trace(go.Bar(y=names, x=values - base, base=base, orientation="h", name=name, marker_color=colour,
+                             customdata=[money_short(v, currency) for v in values],
+                             hovertemplate="%{y}<br>" + name.split()[0] + ": %{customdata}<extra></extra>"))
     fig.add_vline(x=base, line=dict(color=INK, width=1))  # the centre line, named in the axis title (no label over the legend)
     fig.update_layout(barmode="overlay")
-    # two lines: one would run past a half-width panel
+    # three short lines, the value on its own: a longer line runs past a half-width panel
     if scope == "plan":
-        fig.update_xaxes(title_text=f"Plan NPV at the plan's start [{currency}]<br>centre: the plan under the budget, "
-                                    f"{money_short(base, currency)}")
+        what, centre = f"Plan NPV at the plan's start [{currency}]", "centre: the plan under the budget,"
     else:
-        fig.update_xaxes(title_text=f"Fleet NPV of the best options [{currency}]<br>centre: best options, no budget, "
-                                    f"{money_short(base, currency)}")
+        what, centre = f"Fleet NPV of the best options [{currency}]", "centre: best options, no budget,"
+    fig.update_xaxes(title_text=f"{what}<br>{centre}<br>NPV {money_short(base, currency)}", automargin=True)
     fig.update_yaxes(title_text="Varied input", automargin=True)
-    fig = _style(fig, "Sensitivity (tornado)", height=420)
-    fig.update_layout(margin=dict(b=76))
+    lines = sum(name.count("<br>") + 1 for name in names)
+    fig = _style(fig, "Sensitivity (tornado)", height=max(420, 170 + 18 * lines))
+    fig.update_layout(margin=dict(b=TORNADO_BOTTOM_PX))
     return fig
 
 
@@ -705,12 +897,13 @@ def risk_ranges(rows: pd.DataFrame, currency: str, top: int = 25, scope: str = "
     fig = go.Figure()
     fig.add_trace(go.Bar(y=names, x=part["npv_p90"] - part["npv_p10"], base=part["npv_p10"], orientation="h",
                          name="P10 to P90", marker_color="#b9d3d8",
-                         customdata=np.column_stack([part["npv_p10"], part["npv_p90"]]),
-                         hovertemplate="%{y}<br>P10 %{customdata[0]:,.0f} to P90 %{customdata[1]:,.0f} " + currency
-                                       + "<extra></extra>"))
+                         customdata=np.column_stack([money_texts(part["npv_p10"], currency),
+                                                     money_texts(part["npv_p90"], currency)]),
+                         hovertemplate="%{y}<br>P10 %{customdata[0]} to P90 %{customdata[1]}<extra></extra>"))
     fig.add_trace(go.Scatter(y=names, x=part["npv_p50"], mode="markers", name="P50",
                              marker=dict(color=AFTER, size=8, symbol="diamond"),
-                             hovertemplate="%{y}<br>P50 %{x:,.0f} " + currency + "<extra></extra>"))
+                             customdata=money_texts(part["npv_p50"], currency),
+                             hovertemplate="%{y}<br>P50 %{customdata}<extra></extra>"))
     fig.add_vline(x=0, line=dict(color=INK, width=1))
     fig.update_xaxes(title_text=f"NPV at each project's own start (its plan year) [{currency}]" if scope == "plan"
                      else f"NPV [{currency}]")
@@ -749,7 +942,7 @@ def fleet_npv_histogram(draws: np.ndarray, currency: str, scope: str = "best") -
     fig.update_yaxes(title_text="Draws")
     # the title on two lines (one would run past a half-width panel), the second smaller
     fig = _style(fig, f"{what} over {draws.size:,} draws<br><span style='font-size:12px'>{detail} · "
-                      f"P(NPV > 0) = {share:.0%}</span>")
+                      f"P(NPV > 0) = {share * 100:.0f} %</span>")
     fig.update_layout(margin=dict(t=64))
     return fig
 
@@ -784,8 +977,8 @@ def end_of_life_costs(strategies: pd.DataFrame, currency: str, message: str = ""
     fig = go.Figure(go.Bar(
         y=strategies["label"].astype(str).tolist(), x=costs, orientation="h",
         marker_color=[AFTER if c else BEFORE for c in cheapest], text=labels, textposition="auto",
-        insidetextanchor="end", cliponaxis=False,
-        hovertemplate="%{y}<br>expected present cost %{x:,.0f} " + currency + "<extra></extra>"))
+        insidetextanchor="end", cliponaxis=False, customdata=money_texts(costs, currency),
+        hovertemplate="%{y}<br>expected present cost %{customdata}<extra></extra>"))
     fig.update_xaxes(title_text=f"Expected present cost [{currency}]", rangemode="tozero")
     fig.update_yaxes(autorange="reversed", automargin=True)
     return _style(fig, "Expected present cost of each strategy", height=240)

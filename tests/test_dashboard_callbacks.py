@@ -604,7 +604,7 @@ def test_asset_end_of_life_says_why_when_the_engine_has_none(engine, monkeypatch
     empty = replace(result, end_of_life=pd.DataFrame(), fleet_rules=pd.DataFrame())
     monkeypatch.setattr(services.View, "result", lambda self, *a, **k: empty)
     fig, text, rules, _, scope = asset.end_of_life("HRW-P01", None, None)
-    assert not fig.data and fig.layout.annotations[0].text == services.END_OF_LIFE_UNAVAILABLE
+    assert not fig.data and fig.layout.annotations[0].text.replace("<br>", " ") == services.END_OF_LIFE_UNAVAILABLE
     assert [p.children for p in text] == [services.END_OF_LIFE_UNAVAILABLE] and rules == [] and scope == ""
     # no asset chosen yet: the policy grid is left saying it is computing, not "not available"
     fig, _, rules, columns, _ = asset.end_of_life(None, None, None)

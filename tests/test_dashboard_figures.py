@@ -71,7 +71,49 @@ class TestAbatement:
         fig = figures.abatement_curve(frame, "EUR")
         np.testing.assert_allclose(fig.layout.yaxis.range, [-133.2, 58.2])
         assert "1 narrow bar runs off the axis (to 9,500 EUR/t)" in fig.layout.annotations[-1].text
-        assert figures.abatement_curve(self.frame, "EUR").layout.yaxis.range is None  # no sliver: automatic
+        # no sliver: the same span, every bar on it and no note
+        plain = figures.abatement_curve(self.frame, "EUR")
+        np.testing.assert_allclose(plain.layout.yaxis.range, [-133.2, 58.2])
+        assert not plain.layout.annotations
+
+    def test_a_side_of_narrow_bars_only_is_drawn_not_cut_to_a_sliver(self):
+        # the demo's shape (user report at 1440 px: the axis stopped just above 0, the costly bars up to about
+        # 8,700 EUR/t were a sliver): wide bars all save money, the few that cost avoid almost no CO2. Hand: the
+        # tonnes sum to 1,000 + 700 + 2 + 0.15 + 0.06 = 1,702.21 t/yr; 0.2 % of it is 3.4 t/yr, so only the -3,100
+        # and -700 bars are wide; the axis spans -3,100 to 8,700 padded 8 % of 11,800 = 944: [-4,044, 9,644]
+        frame = pd.DataFrame({"project_id": list("ABCDE"), "asset_id": list("ABCDE"),
+                              "abatement_cost_per_t": [-3100.0, -700.0, 120.0, 6800.0, 8700.0],
+                              "co2_avoided_t_per_yr": [1000.0, 700.0, 2.0, 0.15, 0.06],
+                              "bar_start_t_per_yr": [0.0, 1000.0, 1700.0, 1702.0, 1702.15]})
+        fig = figures.abatement_curve(frame, "EUR")
+        lo, hi = fig.layout.yaxis.range
+        assert hi >= 8700.0 and lo <= -3100.0
+        np.testing.assert_allclose([lo, hi], [-4044.0, 9644.0])
+        assert not fig.layout.annotations  # no bar runs off the axis
+        # the three narrow costly bars (a fraction of a pixel wide) are drawn as stems from zero to their cost,
+        # at their bars' centres (1,700 + 2 / 2 = 1,701; 1,702.075; 1,702.18), each with its bar's hover
+        (stems,) = [t for t in fig.data if t.name == "narrow bars"]
+        assert stems.line.color == figures.COST and stems.showlegend is False
+        np.testing.assert_allclose(np.asarray(stems.x, dtype=float).reshape(3, 3)[:, :2],
+                                   [[1701.0, 1701.0], [1702.075, 1702.075], [1702.18, 1702.18]])
+        np.testing.assert_allclose(np.asarray(stems.y, dtype=float).reshape(3, 3)[:, :2],
+                                   [[0.0, 120.0], [0.0, 6800.0], [0.0, 8700.0]])
+        assert stems.hovertext[1].startswith("C<br>120 EUR/t")
+        # the horizontal axis stays on the tonnes (0 to 1,702.21, padded 0.5 %), not padded for the stems' dots
+        np.testing.assert_allclose(fig.layout.xaxis.range, [0.0, 1702.21 * 1.005])
+        # no white edge on a narrow bar (it turned the bar a paler shade, one the legend did not explain)
+        np.testing.assert_allclose(fig.data[0].marker.line.width, [0.5, 0.5, 0.0, 0.0, 0.0])
+
+    def test_the_two_shades_are_keyed_in_the_legend(self):
+        fig = figures.abatement_curve(self.frame, "EUR")
+        assert fig.layout.showlegend is True and fig.data[0].showlegend is False
+        shown = [t for t in fig.data if t.showlegend is not False]
+        assert {t.name: t.marker.color for t in shown} == {"below zero: saves money": figures.GAIN,
+                                                             "above zero: costs money": figures.COST}
+        assert all(t.hoverinfo == "skip" and list(t.x) == [None] for t in shown)  # no data of their own
+        # only the shades drawn are keyed
+        saving = figures.abatement_curve(self.frame.iloc[:2], "EUR")
+        assert [t.name for t in saving.data if t.showlegend is not False] == ["below zero: saves money"]
 
     def test_empty_says_so(self):
         fig = figures.abatement_curve(self.frame.iloc[0:0], "EUR")
@@ -314,12 +356,12 @@ class TestPlanAndRisk:
         np.testing.assert_allclose(low.base, [100.0, 100.0])
         np.testing.assert_allclose(np.asarray(low.x) + 100.0, [110.0, 60.0])
         np.testing.assert_allclose(np.asarray(high.x) + 100.0, [90.0, 140.0])
-        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre: best options, no budget, "
-                                        "EUR 100")
+        assert titles(fig)["xaxis"] == ("Fleet NPV of the best options [EUR]<br>centre: best options, no budget,<br>"
+                                        "NPV EUR 100")
         # a fleet-sized centre value in the cards' short form, so the line still fits a half-width panel at
         # 1366 px (user report: "... 8,424,191" cut off); 8,424,191 / 1e6 = 8.42 by hand
         big = figures.tornado(rows.assign(base_npv=8424191.0), "EUR")
-        assert titles(big)["xaxis"].endswith("no budget, EUR 8.42 M")
+        assert titles(big)["xaxis"].endswith("no budget,<br>NPV EUR 8.42 M")
         for f in (fig, big):
             assert max(len(line) for line in titles(f)["xaxis"].split("<br>")) <= 60  # fits a half-width panel
         assert not fig.layout.annotations  # nothing written over the legend
@@ -346,14 +388,14 @@ class TestPlanAndRisk:
         assert [a.text for a in fig.layout.annotations] == ["P10 EUR 11", "P50 EUR 50", "P90 EUR 90"]
         fleet = figures.fleet_npv_histogram(draws * 1e5, "EUR")  # P10 = 1.09e6, P50 = 5.05e6, P90 = 9.01e6 by hand
         assert [a.text for a in fleet.layout.annotations] == ["P10 EUR 1.09 M", "P50 EUR 5.05 M", "P90 EUR 9.01 M"]
-        assert "P(NPV > 0) = 100%" in fig.layout.title.text and titles(fig)["xaxis"] == "Fleet NPV [EUR]"
+        assert "P(NPV > 0) = 100 %" in fig.layout.title.text and titles(fig)["xaxis"] == "Fleet NPV [EUR]"
 
     def test_plan_npv_histogram_and_tornado_name_the_plan(self):
         draws = np.linspace(-1.0, 9.0, 101)
         fig = figures.fleet_npv_histogram(draws, "EUR", scope="plan")
         assert fig.layout.title.text.startswith("Plan NPV over 101 draws") and "under the budget" in fig.layout.title.text
         rows = pd.DataFrame({"label": ["a"], "npv_at_low": [1.0], "npv_at_high": [3.0], "base_npv": [2.0], "swing": [2.0]})
-        assert "centre: the plan under the budget, EUR 2" in figures.tornado(rows, "EUR", scope="plan").layout.xaxis.title.text
+        assert "centre: the plan under the budget,<br>NPV EUR 2" in figures.tornado(rows, "EUR", scope="plan").layout.xaxis.title.text
         assert "centre: best options, no budget" in figures.tornado(rows, "EUR").layout.xaxis.title.text
         ranges = pd.DataFrame({"project_id": ["A/x"], "npv_p10": [1.0], "npv_p50": [2.0], "npv_p90": [3.0]})
         assert "own start" in figures.risk_ranges(ranges, "EUR", scope="plan").layout.xaxis.title.text
@@ -467,3 +509,228 @@ def test_energy_against_bills_draws_each_billed_month_in_mwh():
     assert list(modelled.y) == [1100.0, 1050.0]
     empty = figures.energy_against_bills(months.iloc[0:0])
     assert not empty.data and "No bills in the case" in empty.layout.annotations[0].text
+
+
+# ---------------------------------------------------------------------------------------------------
+# Audit at 1440 x 900 and 1024 x 768 (demo case): clipped text, hidden data, number formats
+# ---------------------------------------------------------------------------------------------------
+#: The end-of-life message of the demo's KGQ-CR01 (1,600 kW), the one the audit found cut at both ends.
+LONG_MESSAGE = ("No end-of-life comparison for KGQ-CR01: no new induction motor of the catalogue fits it, so there "
+                "is no replacement to compare.")
+
+
+def annotation_lines(fig: go.Figure) -> list[str]:
+    """Every line of every annotation of a figure."""
+    return [line for a in fig.layout.annotations for line in (a.text or "").split("<br>")]
+
+
+class TestMessageFigure:
+    def test_a_long_message_is_wrapped_whole(self):
+        fig = figures.message_figure(LONG_MESSAGE)
+        (note,) = fig.layout.annotations
+        lines = note.text.split("<br>")
+        assert len(lines) >= 2 and max(map(len, lines)) <= figures.MESSAGE_LINE_CHARS == 60
+        assert note.text.replace("<br>", " ") == LONG_MESSAGE  # nothing lost: breaks at spaces only
+        assert figures.message_figure("Choose an asset.").layout.annotations[0].text == "Choose an asset."
+
+    def test_no_axis_grid_or_zero_line_is_drawn(self):
+        fig = figures.message_figure(LONG_MESSAGE)
+        assert not fig.data
+        for axis in (fig.layout.xaxis, fig.layout.yaxis):
+            assert axis.visible is False and axis.showgrid is False and axis.zeroline is False
+            assert axis.showline is False and axis.showticklabels is False
+        # no axes to make room for: the text is centred on the whole panel
+        assert fig.layout.margin.l == fig.layout.margin.r
+
+    def test_many_lines_raise_the_height(self):
+        # 6 lines of 20 px each and 48 px of margins: 168 px, under the 220 asked; 16 lines need 368
+        assert figures.message_figure("word " * 60, height=220).layout.height == 220
+        tall = figures.message_figure(" ".join(["a" * 55] * 16), height=220)
+        assert tall.layout.annotations[0].text.count("<br>") == 15 and tall.layout.height == 48 + 20 * 17
+
+    @pytest.mark.parametrize("build", [
+        lambda: figures.end_of_life_costs(None, "EUR", LONG_MESSAGE),
+        lambda: figures.plan_comparison(pd.Series({"npv_exact": 0.0, "npv_greedy": 0.0, "projects_exact": 0,
+                                                   "projects_greedy": 0}), "EUR"),
+        lambda: figures.abatement_curve(pd.DataFrame(), "EUR"),
+        lambda: figures.lcc_stack(pd.DataFrame(), "EUR"),
+        lambda: figures.cumulative_cash(pd.DataFrame(), "EUR"),
+        lambda: figures.speed_energy(pd.DataFrame()),
+        lambda: figures.monthly_bills(pd.DataFrame(), "EUR"),
+        lambda: figures.energy_against_bills(pd.DataFrame()),
+        lambda: figures.tornado(pd.DataFrame(), "EUR"),
+        lambda: figures.risk_ranges(pd.DataFrame(), "EUR"),
+        lambda: figures.fleet_npv_histogram(np.zeros(0), "EUR"),
+    ], ids=["end_of_life", "plan_comparison", "abatement", "lcc", "cash", "speed", "bills", "energy_bills", "tornado",
+            "risk_ranges", "histogram"])
+    def test_every_empty_chart_says_why_in_lines_that_fit(self, build):
+        fig = build()
+        assert not fig.data and fig.layout.annotations
+        assert max(map(len, annotation_lines(fig))) <= figures.MESSAGE_LINE_CHARS
+        assert fig.layout.xaxis.visible is False and fig.layout.yaxis.visible is False
+
+
+def test_end_of_life_without_a_comparison_is_not_cut():
+    """KGQ-CR01: "comparison for KGQ-CR01: ... there is no repla" was all a 1,600 kW asset's panel showed."""
+    fig = figures.end_of_life_costs(pd.DataFrame(columns=["label", "cost_pv", "cheapest"]), "EUR", LONG_MESSAGE)
+    lines = annotation_lines(fig)
+    assert lines[0].startswith("No end-of-life comparison for KGQ-CR01") and lines[-1].endswith("to compare.")
+    assert max(map(len, lines)) <= 60
+
+
+class TestTornadoTitleFits:
+    # the demo's labels (models.risk.TORNADO_LABELS), the longest 63 characters
+    rows = pd.DataFrame({"label": ["Capital cost (x0.8 to x1.2)",
+                                   "New machines' losses (-100 to +100 % of the IEC tolerance band)",
+                                   "Electricity price (x0.8 to x1.2)"],
+                         "npv_at_low": [9.1e6, 8.0e6, 6.2e6], "npv_at_high": [7.5e6, 8.6e6, 10.4e6],
+                         "base_npv": [8312224.0] * 3, "swing": [1.6e6, 0.6e6, 4.2e6]})
+
+    @pytest.mark.parametrize("scope, centre", [("plan", "centre: the plan under the budget,"),
+                                               ("best", "centre: best options, no budget,")])
+    def test_the_centre_value_has_a_line_of_its_own(self, scope, centre):
+        # user report at 1440 px: "centre: the plan under the budget, EUR 8" (the end cut off); 8,312,224 / 1e6 =
+        # 8.31 M by hand
+        fig = figures.tornado(self.rows, "EUR", scope)
+        lines = titles(fig)["xaxis"].split("<br>")
+        assert lines[1:] == [centre, "NPV EUR 8.31 M"]
+        assert max(map(len, lines)) <= 36  # about 230 px at 12 px: inside the narrowest half-width plot area
+        assert fig.layout.margin.b >= 100  # room for the ticks and three title lines
+
+    def test_long_labels_are_wrapped_to_leave_the_bars_room(self):
+        fig = figures.tornado(self.rows, "EUR")
+        labels = list(fig.data[0].y)
+        assert labels[1] == "New machines' losses (-100 to +100 %<br>of the IEC tolerance band)"
+        assert max(len(line) for label in labels for line in label.split("<br>")) <= figures.TORNADO_LABEL_CHARS
+        assert labels[0] == "Capital cost (x0.8 to x1.2)"
+
+
+class TestEfficiencyWithoutOutput:
+    """A fan throttled by a damper today (the demo's KGQ-F01): a drive slows it instead, and below about 38 % of
+    today's shaft load the slowed fan moves no air against its system's pressure (shaft_p_kw 0, the drive's own
+    losses still drawn). The engine's efficiency there is 0: drawn as a line along zero it read as a broken model."""
+
+    load = np.array([25.0, 35.0, 37.5, 50.0, 100.0])
+    curves = pd.concat([
+        pd.DataFrame({"option_id": "keep", "label": "Keep as is", "load_pct": load,
+                      "shaft_p_kw": [33.0, 46.2, 49.5, 66.0, 132.0], "p_in_kw": [36.4, 49.9, 53.3, 70.3, 140.0],
+                      "efficiency_frac": [0.906, 0.925, 0.929, 0.938, 0.943], "power_factor": [0.6, 0.7, 0.72, 0.8, 0.86]}),
+        pd.DataFrame({"option_id": "pm_drive", "label": "PM motor on a drive", "load_pct": load,
+                      "shaft_p_kw": [0.0, 0.0, 0.0009, 1.84, 60.0], "p_in_kw": [0.52, 0.52, 0.524, 2.65, 63.0],
+                      "efficiency_frac": [0.0, 0.0, 0.0017, 0.694, 0.952], "power_factor": [0.9, 0.9, 0.9, 0.93, 0.96]}),
+    ])  # (index 0-4 twice, as pandas.concat leaves it)
+
+    def efficiency(self, fig: go.Figure) -> dict[str, np.ndarray]:
+        return {t.name: np.asarray(t.y, dtype=float) for t in fig.data if t.yaxis == "y" and t.showlegend is not False}
+
+    def test_no_efficiency_is_drawn_where_no_flow_is_delivered(self):
+        eff = self.efficiency(figures.performance(self.curves, None, "shaft load"))
+        drive = eff["PM motor on a drive"]
+        assert np.isnan(drive[:2]).all()  # 25 and 35 %: no output, a gap
+        np.testing.assert_allclose(drive[2:], [0.17, 69.4, 95.2])  # 0.0017, 0.694, 0.952 in per cent
+        assert not (drive == 0.0).any()
+        np.testing.assert_allclose(eff["Keep as is"], [90.6, 92.5, 92.9, 93.8, 94.3])  # delivers at every load
+
+    def test_a_note_says_below_which_load_no_flow_is_delivered(self):
+        fig = figures.performance(self.curves, None, "shaft load")
+        (note,) = fig.layout.annotations
+        assert note.text == "no flow delivered<br>below 38 % load"  # the first load it delivers at: 37.5 %
+        assert (note.xref, note.yref) == ("x domain", "y domain")  # in the efficiency panel
+        assert "PM motor on a drive" in note.hovertext
+
+    def test_without_the_shaft_power_a_zero_efficiency_is_no_output(self):
+        eff = self.efficiency(figures.performance(self.curves.drop(columns="shaft_p_kw"), None, "shaft load"))
+        assert np.isnan(eff["PM motor on a drive"][:2]).all()
+
+    def test_every_load_delivering_draws_no_note(self):
+        keep = self.curves[self.curves["option_id"] == "keep"]
+        fig = figures.performance(keep, None, "shaft load")
+        assert not fig.layout.annotations and not np.isnan(self.efficiency(fig)["Keep as is"]).any()
+
+    def test_options_that_start_at_different_loads_give_the_span(self):
+        other = self.curves[self.curves["option_id"] == "pm_drive"].assign(
+            option_id="add_drive", label="Add a drive", shaft_p_kw=[0.0, 0.0, 0.0, 1.5, 58.0],
+            efficiency_frac=[0.0, 0.0, 0.0, 0.5, 0.93])
+        fig = figures.performance(pd.concat([self.curves, other]), None, "shaft load")
+        assert fig.layout.annotations[0].text == "no flow delivered<br>below 38-50 % load"
+
+
+class TestNumberFormats:
+    """Money on bars and markers in the cards' short form ("EUR 8.31 M"), never full digits ("EUR 8,312,224"),
+    and a space before the per cent sign ("88 %"), as the project writes them."""
+
+    #: Full-digit money, either side of the currency: "EUR 8,312,224" or "8,312,224 EUR".
+    FULL_DIGITS = r"([A-Z]{3} -?\d{1,3}(,\d{3})+)|(\d{1,3}(,\d{3})+ [A-Z]{3})"
+
+    @staticmethod
+    def strings(fig: go.Figure) -> list[str]:
+        """The text a reader can see on a figure or in its hovers."""
+        out = []
+
+        def walk(value):
+            if isinstance(value, str):
+                out.append(value)
+            elif isinstance(value, dict):
+                for v in value.values():
+                    walk(v)
+            elif isinstance(value, (list, tuple, np.ndarray)):
+                for v in value:
+                    walk(v)
+
+        data = fig.to_plotly_json()
+        walk(data["data"])
+        walk({k: v for k, v in data["layout"].items() if k != "template"})
+        return out
+
+    def figures_with_money(self) -> list[go.Figure]:
+        big = 8312224.0
+        return [
+            figures.plan_comparison(pd.Series({"npv_exact": big, "npv_greedy": 7.9e6, "projects_exact": 12,
+                                               "projects_greedy": 11}), "EUR"),
+            figures.plan_by_year(pd.DataFrame({"plan": ["exact", "rank_order"], "start_yr": [0, 0],
+                                               "capital": [big, 2.5e5], "budget": [9e6, 9e6]}), "EUR"),
+            figures.tornado(TestTornadoTitleFits.rows, "EUR"),
+            figures.risk_ranges(pd.DataFrame({"project_id": ["A/x"], "npv_p10": [1.2e6], "npv_p50": [big],
+                                              "npv_p90": [9.9e6]}), "EUR"),
+            figures.lcc_stack(pd.DataFrame({"label": ["Keep"], "component": ["running"], "pv": [big]}), "EUR"),
+            figures.cumulative_cash(pd.DataFrame({"label": ["New"] * 2, "year": [0, 1], "cumulative_pv": [-big, 2.5e5],
+                                                  "payback_yr": [np.nan] * 2}), "EUR"),
+            figures.monthly_bills(pd.DataFrame({"month": ["2025-01"], "category": ["energy"], "amount": [312224.0],
+                                                "scenario": ["before"]}), "EUR"),
+            figures.end_of_life_costs(pd.DataFrame({"label": ["Replace now"], "cost_pv": [big], "cheapest": [True]}), "EUR"),
+        ]
+
+    def test_plan_bars_are_labelled_in_the_short_form(self):
+        # user report: "EUR 8,312,224" on the plan bar; 8,312,224 / 1e6 = 8.31 M, 7,900,000 / 1e6 = 7.90 M by hand
+        fig = figures.plan_comparison(pd.Series({"npv_exact": 8312224.0, "npv_greedy": 7.9e6, "projects_exact": 12,
+                                                 "projects_greedy": 11}), "EUR")
+        assert list(fig.data[0].text) == ["EUR 8.31 M<br>12 projects", "EUR 7.90 M<br>11 projects"]
+        assert list(fig.data[0].customdata) == ["EUR 8.31 M", "EUR 7.90 M"]
+
+    def test_no_money_in_full_digits(self):
+        import re
+
+        for fig in self.figures_with_money():
+            found = [s for s in self.strings(fig) if re.search(self.FULL_DIGITS, s)]
+            assert not found, (fig.layout.title.text, found)
+
+    def test_hovers_of_bars_and_markers_say_the_short_form(self):
+        # 250,000 / 1e3 = 250.0 k; 1,200,000 / 1e6 = 1.20 M by hand
+        plan = figures.plan_by_year(pd.DataFrame({"plan": ["exact"], "start_yr": [0], "capital": [2.5e5],
+                                                  "budget": [1.2e6]}), "EUR")
+        assert list(plan.data[0].customdata) == ["EUR 250.0 k"] and "%{customdata}" in plan.data[0].hovertemplate
+        assert list(plan.data[-1].customdata) == ["EUR 1.20 M"]
+        ranges = figures.risk_ranges(pd.DataFrame({"project_id": ["A/x"], "npv_p10": [1.2e6], "npv_p50": [2.5e5],
+                                                   "npv_p90": [8312224.0]}), "EUR")
+        assert [list(r) for r in ranges.data[0].customdata] == [["EUR 1.20 M", "EUR 8.31 M"]]
+        assert list(ranges.data[1].customdata) == ["EUR 250.0 k"]
+
+    def test_per_cent_is_written_with_a_space(self):
+        import re
+
+        histogram = figures.fleet_npv_histogram(np.linspace(-1.0, 9.0, 101), "EUR")
+        # 90 of the 101 draws are above 0 (0.1 to 9.0): 90 / 101 = 89.1 % by hand
+        assert "P(NPV > 0) = 89 %" in histogram.layout.title.text
+        curves = TestEfficiencyWithoutOutput.curves
+        for fig in (histogram, figures.performance(curves, None, "shaft load"), *self.figures_with_money()):
+            assert not [s for s in self.strings(fig) if re.search(r"\d%", s)]
