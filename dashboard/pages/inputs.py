@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import dash
 from dash import Input, Output, State, callback, dcc, html, no_update
 
@@ -36,11 +38,16 @@ HEADLINE = "inputs"
 SAVE_BUTTON = "inputs-save"
 SAVE_STATUS = "inputs-save-status"
 SAVE_DOWNLOAD = "inputs-save-download"
+#: The question the save asks before it writes the case's file (the browser's own OK / Cancel dialog).
+SAVE_CONFIRM = "inputs-save-confirm"
 SCENARIO_NAME = "inputs-scenario-name"
 SCENARIO_KEEP = "inputs-scenario-keep"
 SCENARIO_CLEAR = "inputs-scenario-clear"
 SCENARIO_MESSAGE = "inputs-scenario-message"
 SCENARIO_GRID = "inputs-scenarios"
+#: Validation messages per page of their grid: the grid grows to its rows (each message read whole, wrapped),
+#: and a long list goes on over pages rather than past the screen.
+PROBLEMS_PER_PAGE = 10
 
 
 def _number_field(component_id: str) -> dcc.Input:
@@ -97,6 +104,7 @@ def layout(**_query):
                 html.Button("Back to the case's own assumptions", id=RESET, className="button secondary"),
                 html.Div(id=FORM_MESSAGE, className="form-message", role="alert"),
                 html.Button("Save these assumptions into the case", id=SAVE_BUTTON, className="button"),
+                dcc.ConfirmDialog(id=SAVE_CONFIRM),
                 dcc.Loading(html.Div(id=SAVE_STATUS, className="form-message", role="status"), type="dot"),
                 dcc.Download(id=SAVE_DOWNLOAD),
                 html.H4("With these assumptions"),
@@ -105,9 +113,14 @@ def layout(**_query):
         ], className="row"),
         # right under the upload and the form: a refused upload's rows are read next to its status line
         html.H3("Validation messages", id="validation-messages"),
-        ui.data_grid(PROBLEMS, height=320, empty_text="No problems: the case was read as written", columnDefs=ui.problem_columns(),
+        # as tall as its rows, whose messages wrap to several lines; a long list goes on over pages
+        ui.data_grid(PROBLEMS, height="auto", empty_text="No problems: the case was read as written",
+                     columnDefs=ui.problem_columns(),
                      rowClassRules={"problem-error": "params.data.severity == 'error'",
-                                    "problem-warning": "params.data.severity == 'warning'"}),
+                                    "problem-warning": "params.data.severity == 'warning'"},
+                     dashGridOptions={"domLayout": "autoHeight", "pagination": True,
+                                      "paginationPageSize": PROBLEMS_PER_PAGE,
+                                      "paginationPageSizeSelector": [PROBLEMS_PER_PAGE, 25, 50, 100]}),
         html.Div([
             html.H3("Scenarios side by side"),
             html.P("The fleet plan under the case as written, under each scenario the case names (scenarios.toml) and "
@@ -271,21 +284,81 @@ def preview(_ready, session, edits):
 
 
 #: The form as the edit callback reads it (same fields, same order): the save parses the fields as they
-#: are at the click, so a value typed and not yet applied with Enter is saved too.
+#: are when it is confirmed, so a value typed and not yet applied with Enter is saved too.
 SAVE_FORM = [State(DISCOUNT, "value"), State(ESCALATION, "value"), State(HORIZON, "value"), State(PRICE_LEVEL, "value"),
              State(CAPITAL_LEVEL, "value"), *[State(i, "value") for i in BUDGET_IDS],
              State(ui.EDITS_STORE, "data"), State(ui.SESSION_STORE, "data")]
 
 
+def save_question(files, uploaded: bool) -> str:
+    """What the save asks before it writes: the file it changes and where the file as it is now is kept.
+
+    Parameters
+    ----------
+    files : str or pathlib.Path
+        The tab's case: a folder (its ``finance.toml`` is written) or an ``.xlsx`` workbook (its ``finance``
+        sheet), as :func:`models.io.save_finance_settings` writes them.
+    uploaded : bool
+        True for a tab's upload: the server's copy is written (named without the server's folder) and offered
+        as a download.
+
+    Returns
+    -------
+    str
+        The question of the confirmation dialog (OK saves, Cancel writes nothing).
+    """
+    files = Path(files)
+    book = files.suffix.lower() == ".xlsx"
+    # an upload's folder on the server means nothing to its user: named by its file alone
+    where = files if not uploaded else Path(files.name) if book else Path()
+    if book:
+        written, kept = f"the finance sheet of {where}", f"{where}.versions/{files.stem}-<UTC time>.xlsx"
+    else:
+        written, kept = str(where / "finance.toml"), str(where / ".versions" / "finance-<UTC time>.toml")
+    if uploaded:
+        written += " (the server's copy of your upload, offered as a download once saved)"
+    return (f"Save the assumptions in the form into {written}? Only the values that differ from the case's are "
+            f"rewritten, and the file as it is now is kept as {kept}. OK saves; Cancel writes nothing.")
+
+
+@callback(Output(SAVE_CONFIRM, "displayed"), Output(SAVE_CONFIRM, "message"), Output(SAVE_CONFIRM, "submit_n_clicks"),
+          Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, State(SAVE_CONFIRM, "submit_n_clicks"), prevent_initial_call=True)
+def ask_to_save(clicks, *form_and_confirmed):
+    """Ask before the save writes the case's file, naming the file and where its previous version is kept.
+
+    A save that would write nothing (a field of the form refused, or the tab's uploaded case no longer held)
+    is not asked about: it goes straight to :func:`save`, which says why nothing is saved.
+    """
+    form, confirmed = form_and_confirmed[:-1], form_and_confirmed[-1]
+    if not clicks:  # the page opening is not a click
+        return no_update, no_update, no_update
+    _edits, _changed, problem = _parse_form(*form)
+    entry, dropped = services.session_entry(form[-1])
+    if problem or dropped:
+        return False, no_update, (confirmed or 0) + 1
+    return True, save_question(entry.files, entry.origin == "upload"), no_update
+
+
+@callback(Output(SAVE_STATUS, "children", allow_duplicate=True), Output(SAVE_STATUS, "className", allow_duplicate=True),
+          Input(SAVE_CONFIRM, "cancel_n_clicks"), prevent_initial_call=True)
+def save_cancelled(clicks):
+    """Say that a save cancelled in its confirmation dialog wrote nothing."""
+    if not clicks:
+        return no_update, no_update
+    return "Not saved: the save was cancelled; nothing was written.", "form-message"
+
+
 @callback(Output(ui.SESSION_STORE, "data", allow_duplicate=True), Output(ui.EDITS_STORE, "data", allow_duplicate=True),
           Output(SAVE_STATUS, "children"), Output(SAVE_DOWNLOAD, "data"), Output(SAVE_STATUS, "className"),
           Output(ui.SCENARIOS_STORE, "data", allow_duplicate=True),
-          Input(SAVE_BUTTON, "n_clicks"), *SAVE_FORM, State(ui.SCENARIOS_STORE, "data"), prevent_initial_call=True)
+          Input(SAVE_CONFIRM, "submit_n_clicks"), *SAVE_FORM, State(ui.SCENARIOS_STORE, "data"),
+          prevent_initial_call=True)
 def save(clicks, *form_and_kept):
-    """Write the assumptions in the form into the tab's case; say what was written and where the old file is kept.
-    The tab's kept scenarios follow the case to its new contents."""
+    """Write the assumptions in the form into the tab's case once the save is confirmed (:func:`ask_to_save`);
+    say what was written and where the old file is kept. The tab's kept scenarios follow the case to its new
+    contents."""
     form, kept = form_and_kept[:-1], form_and_kept[-1]
-    if not clicks:  # the page opening is not a click (the renderer can fire this once as the page mounts)
+    if not clicks:  # the page opening is not a confirmed click (the renderer can fire this once as the page mounts)
         return (no_update,) * 6
     edits, changed, problem = _parse_form(*form)
     if problem:
@@ -323,9 +396,35 @@ def clear_scenarios(clicks):
     return [], "The kept scenarios are cleared; the case's own remain.", "form-message"
 
 
+#: What the scenarios panel is for, pinned left after the scenario's name (in view however narrow the window,
+#: the assumptions scrolling beside them): each column's short header, its tooltip and its narrowest and
+#: widest width [px] (each header's longest word and each number whole on its line).
+SCENARIO_OUTCOMES = {
+    "plan_npv_change": ("NPV change [{currency}]", "The plan's NPV less the plan's NPV under the case as written "
+                                                  "[{currency}]", 115, 150),
+    "projects": ("Projects", "Projects in the plan", 110, 120)}
+
+
+def scenario_columns(currency: str) -> list[dict]:
+    """Columns of the scenarios grid (:func:`dashboard.components.scenario_columns`) with the plan's NPV change
+    and project count pinned left after the scenario's name, under the short headers of
+    :data:`SCENARIO_OUTCOMES` (the full wording in each header's tooltip)."""
+    columns = ui.scenario_columns(currency)
+    name = [c for c in columns if c["field"] == "scenario"]
+    outcomes = []
+    for field, (header, tooltip, min_px, max_px) in SCENARIO_OUTCOMES.items():
+        outcomes += [c | {"headerName": header.format(currency=currency),
+                          "headerTooltip": tooltip.format(currency=currency),
+                          "pinned": "left", "minWidth": min_px, "maxWidth": max_px}
+                     for c in columns if c["field"] == field]
+    rest = [c for c in columns if c["field"] != "scenario" and c["field"] not in SCENARIO_OUTCOMES]
+    return [c | {"pinned": "left"} for c in name] + outcomes + rest
+
+
 @callback(Output(SCENARIO_GRID, "rowData"), Output(SCENARIO_GRID, "columnDefs"),
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.SCENARIOS_STORE, "data"))
 def scenarios(_ready, session, kept):
     """The scenarios side by side: the case as written first, each with its plan's change from it."""
     view = services.view(session, None)
-    return services.scenario_rows(view, kept).to_dict("records"), ui.scenario_columns(view.currency)
+    return services.scenario_rows(view, kept).to_dict("records"), scenario_columns(view.currency)
+

@@ -29,17 +29,95 @@ BILL_FIT = "site-bill-fit"
 NOTICE = "site-notice"
 HARMONICS = "site-harmonics"
 
-#: Columns of the harmonic screen's grid (rows of models.harmonics.site_screen).
-HARMONIC_COLUMNS = [
-    ui.text_col("scenario", "Scenario", maxWidth=110), ui.number_col("drive_kva", "Drives [kVA]"),
-    ui.number_col("short_circuit_kva", "Short-circuit power [kVA]"),
-    ui.number_col("voltage_thd_pct", "Voltage THD [%]", 1), ui.number_col("voltage_thd_limit_pct", "Limit [%]", 0),
-    ui.number_col("worst_harmonic", "Worst harmonic"), ui.number_col("worst_harmonic_pct", "Its voltage [%]", 1),
-    ui.number_col("harmonic_limit_pct", "Limit [%]", 0), ui.number_col("current_tdd_pct", "Current TDD [%]", 1),
-    ui.number_col("current_tdd_limit_pct", "Limit [%]", 0), ui.number_col("capacitor_kvar_max", "Capacitors, most [kVAr]"),
-    ui.number_col("resonance_order_low", "Resonance order, lowest", 1),
-    ui.long_text_col("finding", "Finding", minWidth=320, flex=3),
-]
+#: What a cell of the harmonic screen says where the screen has no value to give: no drive, no worst harmonic.
+NO_VALUE = "\u2013"
+#: Cell and header padding of the harmonic screen's grid, each side [px] (the grid's own is 16 px), as the
+#: Fleet table's: its ten columns fit a 1440 px window.
+PADDING_PX = 8
+#: Narrowest width of each column of the harmonic screen's grid [px]: each header's longest word fits on its
+#: line (headers wrap between words, never inside one) and each cell's text whole; the whole grid fits a
+#: 1440 px window (wider windows share out the rest in proportion, the finding taking the most); below that
+#: it scrolls sideways inside its panel, the scenario pinned left and the finding next to it, in view.
+HARMONIC_WIDTHS_PX = {"scenario": 100, "finding": 300, "drive_kva": 90, "short_circuit_kva": 125,
+                      "voltage_thd_pct": 115, "worst_harmonic": 100, "worst_harmonic_pct": 115, "current_tdd_pct": 115,
+                      "capacitor_kvar_max": 120, "resonance_order_low": 115}
+#: Width the finding starts from [px]: it takes the larger share of a wide window.
+FINDING_WIDTH_PX = 400
+
+
+def _against_limit(limit_field: str, decimals: int = 1, blank: str = "") -> dict:
+    """A cell formatter writing the row's value with its limit (``limit_field`` of the same row) beside it:
+    ``1.3 (limit 5)``; ``blank`` where the value is missing.
+
+    The grid evaluates the text with the names ``params`` and ``d3`` only (no ``isFinite``: an unknown name
+    makes the whole formatter fail, and the cell shows the raw number); the rows carry None, never NaN or an
+    infinity (:func:`dashboard.services.harmonic_screen`).
+    """
+    limit = f"params.data.{limit_field}"
+    return {"function": f"params.value == null ? '{blank}' : d3.format(',.{decimals}f')(params.value) + "
+                        f"((params.data && {limit} != null) ? ' (limit ' + d3.format(',.1~f')({limit}) + ')' : '')"}
+
+
+def harmonic_columns() -> list[dict]:
+    """Columns of the harmonic screen's grid (rows of :func:`screen_rows`).
+
+    The finding, the screen's verdict, comes right after the scenario and wraps to as many lines as it needs;
+    each limit is written in its value's cell (``26.1 (limit 15)``, wrapped rather than cut where the column is
+    narrow) rather than in a column of its own. Each column starts from its width in :data:`HARMONIC_WIDTHS_PX`,
+    never narrower.
+    """
+    at_bus = "against IEEE 519-2014's limit for the bus voltage"
+    columns = [ui.text_col("scenario", "Scenario", pinned="left", maxWidth=120),
+               ui.long_text_col("finding", "Finding"),
+               ui.number_col("drive_kva", "Drives [kVA]"),
+               ui.number_col("short_circuit_kva", "Short-circuit power [kVA]"),
+               ui.number_col("voltage_thd_pct", "Voltage THD [%]",
+                             valueFormatter=_against_limit("voltage_thd_limit_pct"), **ui.WRAPPED_NUMBER,
+                             headerTooltip=f"The voltage's total harmonic distortion at the bus, {at_bus}."),
+               ui.number_col("worst_harmonic", "Worst harmonic", valueFormatter={
+                   "function": f"params.value == null ? '{NO_VALUE}' : d3.format(',.0f')(params.value)"},
+                             headerTooltip=f"The harmonic order with the highest voltage at the bus ({NO_VALUE}: "
+                                           "no drives)."),
+               ui.number_col("worst_harmonic_pct", "Its voltage [%]",
+                             valueFormatter=_against_limit("harmonic_limit_pct", blank=NO_VALUE), **ui.WRAPPED_NUMBER,
+                             headerTooltip=f"The worst harmonic's voltage at the bus, {at_bus}."),
+               ui.number_col("current_tdd_pct", "Current TDD [%]",
+                             valueFormatter=_against_limit("current_tdd_limit_pct"), **ui.WRAPPED_NUMBER,
+                             headerTooltip="The drives' harmonic current as a share of the maximum demand current, "
+                                           "against IEEE 519-2014's limit for the supply's short-circuit ratio."),
+               ui.number_col("capacitor_kvar_max", "Capacitors, most [kVAr]"),
+               ui.number_col("resonance_order_low", "Resonance order, lowest", 1)]
+    padding = {"paddingLeft": f"{PADDING_PX}px", "paddingRight": f"{PADDING_PX}px"}
+    for column in columns:
+        # the grid shares the window out in proportion to these widths, never below the narrowest
+        column["minWidth"] = HARMONIC_WIDTHS_PX[column["field"]]
+        column["width"] = FINDING_WIDTH_PX if column["field"] == "finding" else column["minWidth"]
+        column["cellStyle"] = column.get("cellStyle", {}) | padding
+        column["headerStyle"] = padding
+        column |= {"wrapHeaderText": True, "autoHeaderHeight": True}  # between words: each fits its column
+    return columns
+
+
+#: Columns of the harmonic screen's grid (rows of :func:`screen_rows`).
+HARMONIC_COLUMNS = harmonic_columns()
+
+
+def screen_rows(rows: list[dict]) -> list[dict]:
+    """The harmonic screen's rows (:func:`dashboard.services.harmonic_screen`) as its grid shows them.
+
+    Parameters
+    ----------
+    rows : list of dict
+        One row per scenario, with ``drive_kva``, ``worst_harmonic`` and ``worst_harmonic_pct``.
+
+    Returns
+    -------
+    list of dict
+        The same rows; where a row has no drives (``drive_kva`` 0 or missing) it has no worst harmonic, so its
+        order and voltage are blank (the grid writes :data:`NO_VALUE`) rather than the screen's placeholder order.
+    """
+    return [row if (row.get("drive_kva") or 0) > 0 else row | {"worst_harmonic": None, "worst_harmonic_pct": None}
+            for row in rows]
 
 
 def layout(site=None, **_query):
@@ -149,4 +227,4 @@ def update(site_id, week, session, edits, requested=None):
             figures.reactive_balance(services.reactive_balance(view, result, site_id, site)),
             figures.monthly_bills(bills, view.currency), summary, notice,
             figures.energy_against_bills(services.site_bill_months(view, site_id)),
-            services.harmonic_screen(view, result, site_id))
+            screen_rows(services.harmonic_screen(view, result, site_id)))

@@ -58,12 +58,16 @@ def served_dashboard(case_dir, upload_root):
     engine.physics(entry.key)  # the slow part, once per server
     logging.getLogger("werkzeug").setLevel(logging.ERROR)
     server = make_server("127.0.0.1", 0, app.server, threaded=True)
+    # requests in threads the server waits for when closed: a callback still solving a plan when the tests end
+    # would otherwise be cut at the interpreter's exit inside the solver's native code, which aborts the process
+    server.daemon_threads = False
     thread = threading.Thread(target=server.serve_forever, daemon=True)
     thread.start()
     try:
         yield f"http://127.0.0.1:{server.server_port}"
     finally:
         server.shutdown()
+        server.server_close()  # (joins the requests still running)
         thread.join(5)
         services.use_engine(previous)
 

@@ -40,10 +40,18 @@ def test_save_a_typed_discount_rate_into_the_case(sys_browser, saving_server, ar
         page.wait_for_function("document.querySelector('#inputs-discount-rate')?.value === '8'")
         page.wait_for_load_state("networkidle")
         page.fill("#inputs-discount-rate", "6.5")  # typed, not applied with Enter: the click must save it
+        asked = []  # the save asks first, naming the file it writes; accepted here
+
+        def accept(dialog):
+            asked.append(dialog.message)
+            dialog.accept()
+
+        page.once("dialog", accept)
         page.click("#inputs-save")
         status = page.locator("#inputs-save-status")
         status.filter(has_text="Saved 1 value into finance.toml").wait_for()
         text = status.inner_text()
+        assert len(asked) == 1 and "finance.toml" in asked[0]
         assert "discount_rate_frac 0.08 -> 0.065" in text
         assert "The previous version is kept as .versions/finance-" in text
         page.screenshot(path=artifacts / "saving_status.png", full_page=True)
