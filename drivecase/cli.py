@@ -844,10 +844,17 @@ def _print_run_summary(case, result) -> None:
         print("  " + PAYBACK_TEXT.rstrip("."))
 
 
+#: Set once the dashboard has stopped: the command then leaves without waiting for its request threads (see
+#: :func:`entry`).
+_LEAVE_AT_ONCE = {"serve": False}
+
+
 def cmd_serve(args: argparse.Namespace) -> int:
     from dashboard.server import serve
 
-    return int(serve(args.case, host=args.host, port=args.port, debug=args.debug, open_browser=not args.no_browser))
+    code = int(serve(args.case, host=args.host, port=args.port, debug=args.debug, open_browser=not args.no_browser))
+    _LEAVE_AT_ONCE["serve"] = True
+    return code
 
 
 def cmd_report(args: argparse.Namespace) -> int:
@@ -1096,9 +1103,16 @@ def main(argv: list[str] | None = None) -> int:
 def entry() -> int:
     """The ``drivecase`` command: :func:`main`, and after Ctrl+C an exit that does not wait for the exact plan's
     solver thread to finish its search (up to ``--plan-seconds``): it cannot be stopped, and its result would be
-    thrown away (a Dask run's cluster is closed by then, on the way out of its engine)."""
+    thrown away (a Dask run's cluster is closed by then, on the way out of its engine). So too once the dashboard
+    has stopped: a request still solving a plan in its thread would otherwise be cut inside the solver's native
+    code as the interpreter ends, which aborts the process with a message of its own (the case's files are
+    written atomically, so none is left half-written)."""
     code = main()
-    if code == INTERRUPTED:
+    if code == INTERRUPTED or _LEAVE_AT_ONCE["serve"]:
+        if _LEAVE_AT_ONCE["serve"]:  # the exit handlers still run: the dashboard's uploads folder is removed
+            import atexit
+
+            atexit._run_exitfuncs()
         sys.stdout.flush()
         sys.stderr.flush()
         os._exit(code)

@@ -861,6 +861,25 @@ def test_the_command_leaves_at_once_after_ctrl_c_without_waiting_for_the_plan_s_
     assert left == []
 
 
+def test_the_dashboard_command_leaves_at_once_once_stopped(monkeypatch):
+    # a request of the dashboard may still be solving a plan in its thread when Ctrl+C stops the server: the
+    # command exits without finalising the interpreter around it (os._exit), with the server's own code
+    from drivecase import cli
+    from dashboard import server
+
+    left = []
+    monkeypatch.setattr(cli.os, "_exit", left.append)
+    monkeypatch.setattr(server, "serve", lambda *a, **k: 0)
+    monkeypatch.setitem(cli._LEAVE_AT_ONCE, "serve", False)
+    monkeypatch.setattr(cli, "main", lambda argv=None, main_itself=cli.main: main_itself(["serve", "--no-browser"]))
+    ran = []  # the exit handlers still run first (the dashboard's uploads folder is removed by one); not this
+    # process's own here, which the rest of the tests need
+    import atexit
+
+    monkeypatch.setattr(atexit, "_run_exitfuncs", lambda: ran.append("handlers"))
+    assert cli.entry() == 0 and left == [0] and ran == ["handlers"]
+
+
 def test_ctrl_c_beside_the_plan_does_not_wait_for_the_plan(tmp_path, monkeypatch):
     # Ctrl+C while the risk runs beside a plan still searching: the run stops at once, not when the search ends
     import time
