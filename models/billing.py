@@ -170,7 +170,7 @@ def percent_adjusted_demand_kw(
     return out if out.ndim else float(out)
 
 
-def reactive_price_tier(kwh, kvarh, below_power_factor) -> np.ndarray:
+def reactive_price_tier(kwh, kvarh, below_power_factor, decimals: int | None = None) -> np.ndarray:
     """Which price of a reactive clause's bands each netting unit takes: 0 for the clause's own price, j for its
     j-th band (1-based, in the order given), the band of the lowest edge its power factor is below.
 
@@ -180,6 +180,9 @@ def reactive_price_tier(kwh, kvarh, below_power_factor) -> np.ndarray:
         The unit's kWh and lagging kVArh (a period of a month, or a month), broadcast together.
     below_power_factor : sequence of float
         The bands' edges, each in (0, 1].
+    decimals : int, optional
+        Round each power factor half up to this many decimals before it is set against the edges (as a bill
+        that prints it so reads it); default: as computed.
 
     Returns
     -------
@@ -195,6 +198,12 @@ def reactive_price_tier(kwh, kvarh, below_power_factor) -> np.ndarray:
     >>> reactive_price_tier([200.0, 200.0, 400.0, 0.0], [120.0, 180.0, 300.0, 0.0], [0.95, 0.80]).tolist()
     [1, 2, 1, 0]
 
+    Case R9: 1,000 kWh with 485 kVArh is a power factor of 0.89976, below 0.90 as computed, 0.90 (not below) when
+    the bill rounds it to two decimals.
+
+    >>> reactive_price_tier([1000.0], [485.0], [0.90]).tolist(), reactive_price_tier([1000.0], [485.0], [0.90], 2).tolist()
+    ([1], [0])
+
     References
     ----------
     docs/tariffs.md, ``[[reactive]]``, ``price_by_power_factor``.
@@ -202,6 +211,9 @@ def reactive_price_tier(kwh, kvarh, below_power_factor) -> np.ndarray:
     kwh, kvarh = np.broadcast_arrays(np.asarray(kwh, dtype=float), np.asarray(kvarh, dtype=float))
     apparent = np.hypot(kwh, kvarh)
     pf = np.where(apparent > 0.0, kwh / np.where(apparent > 0.0, apparent, 1.0), 1.0)
+    if decimals is not None:  # half up; the small allowance keeps 0.895 (0.89499999... in binary) at 0.90
+        scale = 10.0 ** int(decimals)
+        pf = np.floor(pf * scale + 0.5 + 1e-9) / scale
     tier = np.zeros(pf.shape, dtype=int)
     lowest = np.full(pf.shape, np.inf)
     for j, edge in enumerate(below_power_factor, start=1):
@@ -1102,7 +1114,8 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
                 kv, kw = kv.sum(axis=2, keepdims=True), kw.sum(axis=2, keepdims=True)
             excess = np.maximum(kv - r.free_kvarh_per_kwh * kw, 0.0)
             if bands:  # each unit's whole excess at the price of its power factor's band, a line item per band
-                tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands])
+                tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands],
+                                           getattr(r, "power_factor_decimals", None))
                 for j, b in sorted(enumerate(bands, start=1), key=lambda jb: -jb[1].below_power_factor):
                     banded.append(_Item(f"{kind}:{r.name} (power factor below {b.below_power_factor:g})", kind, "kVArh",
                                         np.full(n_m, b.price_per_kvarh), np.where(tier == j, excess, 0.0).sum(axis=2),

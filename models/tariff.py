@@ -303,6 +303,9 @@ class ReactiveCharge:
         is priced at that band's price, the band of the lowest such edge; a unit below no edge takes
         ``price_per_kvarh``. Each band's excess is a line item of its own, ``reactive:<name> (power factor
         below <edge>)``. Empty (default): one price.
+    power_factor_decimals : int or None
+        The decimals the bill rounds a unit's power factor to before it is set against the bands' edges (half
+        up: 0.8996 is 0.90 at 2 decimals, so not below 0.90); None (default): compared as computed.
     """
 
     name: str
@@ -312,6 +315,7 @@ class ReactiveCharge:
     periods: tuple[str, ...] | None = None
     seasons: tuple[str, ...] | None = None
     price_bands: tuple[ReactivePriceBand, ...] = ()
+    power_factor_decimals: int | None = None
 
 
 @dataclass(frozen=True)
@@ -987,6 +991,14 @@ def _check(tariff: Tariff, src: str, positions: dict[str, list[int]] | None, *, 
             err(f"{k}.price_by_power_factor", len(bands),
                 "a price by power factor reads the power factor of a period of a month or of the month",
                 "set allowance_per to 'period' or 'month'")
+        decimals = getattr(r, "power_factor_decimals", None)
+        if decimals is not None:
+            if not bands:
+                warn(f"{k}.power_factor_decimals", decimals, "read only with price_by_power_factor: no band here",
+                     "leave it out, or give the clause its bands")
+            if not 0 <= decimals <= 4:
+                err(f"{k}.power_factor_decimals", decimals, "the decimals a power factor is rounded to lie in 0-4",
+                    "bills round it to 2 decimals (0.90) or 3 (0.905)")
         edges = [b.below_power_factor for b in bands]
         for j, b in enumerate(bands, start=1):
             if not 0.0 < b.below_power_factor <= 1.0:
@@ -1242,7 +1254,7 @@ _DEMAND_KEYS = (
 )
 _PFA_KEYS = ("method", "target_power_factor", "percent_per_point", "round_points_up", "power_factor_from")
 _REACTIVE_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "allowance_per", "periods", "seasons",
-                  "price_by_power_factor")
+                  "price_by_power_factor", "power_factor_decimals")
 _LEADING_KEYS = ("name", "price_per_kvarh", "free_kvarh_per_kwh", "free_power_factor", "banned", "allowance_per", "periods", "seasons")
 _TAX_KEYS = ("name", "rate_pct", "base")
 _COINCIDENT_KEYS = ("name", "price_per_kw_month", "times", "window_min")
@@ -1886,8 +1898,9 @@ def tariff_from_dict(data: dict, source: str = "tariff.toml") -> tuple[Tariff | 
         rperiods = r.get(e, "periods", p, "str_list", default=None)
         rseasons = r.get(e, "seasons", p, "str_list", default=None)
         rbands = _reactive_price_bands(r, e, p)
+        decimals = r.get(e, "power_factor_decimals", p, "int", default=None)
         if rprice is not None and ratio is not None and rbands is not None:
-            reactive.append(ReactiveCharge(rname, rprice, ratio, scope, rperiods, rseasons, rbands))
+            reactive.append(ReactiveCharge(rname, rprice, ratio, scope, rperiods, rseasons, rbands, decimals))
             pos["reactive"].append(i)
 
     leading = []

@@ -1011,6 +1011,28 @@ class TestReactivePriceByPowerFactor:
         assert_allclose(quantity(b, "reactive:r"), 0.0, atol=1e-9)
         assert_allclose(bill_total(b), 2.243916 + 7.105848, atol=1e-9)
 
+    @pytest.mark.parametrize("decimals, band", [(None, True), (2, False), (3, False), (4, True)])
+    def test_a_power_factor_rounded_as_the_bill_prints_it(self, decimals, band):
+        # case R9: the month's 400 kWh with 300.4 kVArh is a power factor of 0.799616: below 0.80 as computed and
+        # at 4 decimals (0.7996), not below at 2 or 3 (0.80, 0.800); excess 300.4 - 132 = 168.4 kVArh at
+        # 0.062332 = 10.4967088 below the edge, at 0.041554 = 6.9976936 not
+        clause = self.CLAUSE.format(scope="month")
+        if decimals is not None:
+            clause += f"power_factor_decimals = {decimals}\n"
+        b = bill(load(AB_PERIODS + clause), r_index(), np.full(4, 100.0), [60.0, 60.0, 100.0, 80.4])
+        below = "reactive:r (power factor below 0.8)"
+        assert_allclose(quantity(b, below) + quantity(b, "reactive:r"), 168.4, atol=1e-9)
+        assert_allclose(bill_total(b), 10.4967088 if band else 6.9976936, atol=1e-9)
+
+    def test_rounding_decimals_out_of_range_or_without_bands_are_said(self):
+        text = AB_PERIODS + self.CLAUSE.format(scope="month") + "power_factor_decimals = 7\n"
+        problems = tariff_from_dict(tomllib.loads(text), source="t.toml")[1]
+        assert any(p.severity == "error" and "power_factor_decimals" in str(p) for p in problems)
+        plain = (AB_PERIODS + '[[reactive]]\nname = "r"\nprice_per_kvarh = 0.04\nfree_kvarh_per_kwh = 0.33\n'
+                 'power_factor_decimals = 2\n')
+        problems = tariff_from_dict(tomllib.loads(plain), source="t.toml")[1]
+        assert any(p.severity == "warning" and "power_factor_decimals" in str(p) for p in problems)
+
     def test_bands_need_a_period_or_month_allowance(self):
         problems = tariff_from_dict(tomllib.loads(AB_PERIODS + self.CLAUSE.format(scope="interval")), source="t.toml")[1]
         assert any(p.severity == "error" and "price_by_power_factor" in str(p) for p in problems)
