@@ -36,12 +36,11 @@ References
 
 from __future__ import annotations
 
-import weakref
-
 import numpy as np
 import pandas as pd
 
 from models.drives import DEFAULT_FRONT_END, FRONT_END_DEFAULTS, drive_rated_s_kva_for_motor
+from models.kept import KeptForLast
 
 #: Harmonic current of a drive per unit of its fundamental, by front end and order, before scaling to the front
 #: end's current THD (models.drives.FRONT_END_DEFAULTS) by :func:`drive_spectrum` (common practice, from memory:
@@ -316,7 +315,7 @@ def _option_front_ends(case, option_ids) -> np.ndarray:
 
 #: The sites' maximum demand of the last operating result asked for (the result files, the report, the workbook and
 #: the decision records each screen the same sites).
-_DEMANDS: dict = {}
+_DEMANDS = KeptForLast()
 
 
 def _maximum_demands(case, op) -> dict[str, float]:
@@ -324,30 +323,21 @@ def _maximum_demands(case, op) -> dict[str, float]:
     once per case and operating result while they live."""
     from models.bill_savings import _chosen_total, site_setups
 
-    kept = _DEMANDS.get("last")
-    if kept is not None and kept[0]() is op and kept[1] is case:
-        return kept[2]
-    setups = site_setups(case, op.index)
-    site_of = np.asarray(op.site_ids, dtype=object)
-    out = {}
-    for site_id, setup in setups.items():
-        members = np.flatnonzero(site_of == site_id)
-        if not len(members):
-            continue
-        zeros = np.zeros(len(members), dtype=int)
-        p, q = _chosen_total(op.p_kw, zeros, members), _chosen_total(op.q_kvar, zeros, members)
-        meter = setup.site.meter_from_totals(p, q, base_p_kw_profile=setup.base_p_kw_profile)
-        out[str(site_id)] = monthly_peak_mean_kva(op.index, meter.p_kw, meter.q_kvar)
-    ref = weakref.ref(op)
-    _DEMANDS["last"] = (ref, case, out)
-    weakref.finalize(op, _forget_demands, ref)
-    return out
+    def demands() -> dict[str, float]:
+        setups = site_setups(case, op.index)
+        site_of = np.asarray(op.site_ids, dtype=object)
+        out = {}
+        for site_id, setup in setups.items():
+            members = np.flatnonzero(site_of == site_id)
+            if not len(members):
+                continue
+            zeros = np.zeros(len(members), dtype=int)
+            p, q = _chosen_total(op.p_kw, zeros, members), _chosen_total(op.q_kvar, zeros, members)
+            meter = setup.site.meter_from_totals(p, q, base_p_kw_profile=setup.base_p_kw_profile)
+            out[str(site_id)] = monthly_peak_mean_kva(op.index, meter.p_kw, meter.q_kvar)
+        return out
 
-
-def _forget_demands(ref) -> None:
-    """Let go of the demands of an operating result that is gone (not of one asked for after it)."""
-    if _DEMANDS.get("last", (None,))[0] is ref:
-        del _DEMANDS["last"]
+    return _DEMANDS.get(op, demands, beside=case)
 
 
 def ordinal(n: int) -> str:

@@ -20,6 +20,7 @@ from models import finance, wording
 from models.bill_savings import REACTIVE_TECHNOLOGIES
 from models.cashflows import COMPONENTS
 from models.io import column_title
+from models.kept import KeptForLast
 from models.plan import LOW_DATA_QUALITY_PCT
 from models.risk import distribution_summary
 from models.wording import counted, in_service_text, money_text
@@ -333,31 +334,21 @@ def select_scope(case, result, assets: list[str] | None = None, plan: bool = Tru
 # ---------------------------------------------------------------------------------------------------
 #: The cash-flow frame last indexed by project, and its index (:func:`_flows_by_project`): a pack reads one
 #: project after another, and scanning the whole frame for each took time of order projects x rows.
-_FLOW_INDEX: dict = {}
+_FLOW_INDEX = KeptForLast()
 
 
 def _flows_by_project(cf: pd.DataFrame) -> tuple[dict, np.ndarray, np.ndarray, np.ndarray]:
     """The row positions of each (asset_id, option_id) in a cash-flow frame, with its component names (one per
     row, each name one shared object), years and amounts as arrays; built once per frame and reused while the
     frame lives (the index goes with it)."""
-    kept = _FLOW_INDEX.get("last")
-    if kept is not None and kept[0]() is cf:
-        return kept[1]
-    rows = {(str(a), str(o)): idx for (a, o), idx in
-            cf.groupby(["asset_id", "option_id"], sort=False, observed=True).indices.items()} if len(cf) else {}
-    codes, names = pd.factorize(cf["component"])
-    components = np.asarray([str(n) for n in names], dtype=object)[codes] if len(cf) else np.zeros(0, dtype=object)
-    index = (rows, components, cf["year"].to_numpy().astype(int), cf["amount"].to_numpy(dtype=float))
-    ref = weakref.ref(cf)
-    _FLOW_INDEX["last"] = (ref, index)
-    weakref.finalize(cf, _forget_flows, ref)
-    return index
+    def index() -> tuple[dict, np.ndarray, np.ndarray, np.ndarray]:
+        rows = {(str(a), str(o)): idx for (a, o), idx in
+                cf.groupby(["asset_id", "option_id"], sort=False, observed=True).indices.items()} if len(cf) else {}
+        codes, names = pd.factorize(cf["component"])
+        components = np.asarray([str(n) for n in names], dtype=object)[codes] if len(cf) else np.zeros(0, dtype=object)
+        return rows, components, cf["year"].to_numpy().astype(int), cf["amount"].to_numpy(dtype=float)
 
-
-def _forget_flows(ref) -> None:
-    """Let go of the index of a cash-flow frame that is gone (not of one indexed after it)."""
-    if _FLOW_INDEX.get("last", (None,))[0] is ref:
-        del _FLOW_INDEX["last"]
+    return _FLOW_INDEX.get(cf, index)
 
 
 def project_flow_table(result, asset_id: str, option_id: str) -> pd.DataFrame:
@@ -1242,27 +1233,15 @@ def risk_register(case, result, scope: Scope) -> pd.DataFrame:
 
 
 #: The fleet plan's harmonic screen of the last plan asked for (each decision record reads its site's row).
-_SCREEN: dict = {}
+_SCREEN = KeptForLast()
 
 
 def plan_harmonic_screen(case, result) -> pd.DataFrame:
     """:func:`models.harmonics.site_screen` of the fleet plan, made once per plan frame and case while they live."""
     from models.harmonics import site_screen
 
-    kept = _SCREEN.get("last")
-    if kept is not None and kept[0]() is result.plan and kept[1] is case:
-        return kept[2]
-    table = site_screen(case, result.physics.operation, result.plan[["asset_id", "option_id"]])
-    ref = weakref.ref(result.plan)
-    _SCREEN["last"] = (ref, case, table)
-    weakref.finalize(result.plan, _forget_screen, ref)
-    return table
-
-
-def _forget_screen(ref) -> None:
-    """Let go of the screen of a plan that is gone (not of one screened after it)."""
-    if _SCREEN.get("last", (None,))[0] is ref:
-        del _SCREEN["last"]
+    return _SCREEN.get(result.plan, lambda: site_screen(case, result.physics.operation,
+                                                         result.plan[["asset_id", "option_id"]]), beside=case)
 
 
 def harmonic_screen(case, result, scope: Scope | None = None) -> pd.DataFrame:
