@@ -108,15 +108,20 @@ def test_realisation_bands(rate, words):
     assert verification._finding(row).startswith(words)
 
 
+def _refused(folder, rows: str) -> dict:
+    """The errors of verification.csv of a case refused for them, by (row, column)."""
+    case, problems = _case(folder, rows)
+    assert case is None
+    return {(p.row, p.column): p.rule for p in problems if p.severity == "error" and p.file == "verification.csv"}
+
+
 def test_bad_rows_are_told_by_file_row_and_column(tmp_path):
     rows = ("NOPE,ie3,baseline,2026-01-05,2026-01-18,100,,\n"
             "F1,keep,baseline,2026-01-05,2026-01-18,100,,\n"
             "P1,ie3,baseline,2026-01-18,2026-01-05,100,,\n"
             "P1,ie3,reporting,2026-02-01,2026-02-02,100,49,\n"
             "C1,ie3,baseline,2026-01-05,5 Jan,100,,\n")
-    case, problems = _case(tmp_path / "bad", rows)
-    assert case is None
-    said = {(p.row, p.column): p.rule for p in problems if p.severity == "error" and p.file == "verification.csv"}
+    said = _refused(tmp_path / "bad", rows)
     assert "unknown asset_id" in said[(2, "asset_id")]
     assert "cannot be today's motor" in said[(3, "option_id")]
     assert "the last day is before the first" in said[(4, "end_date")]
@@ -134,9 +139,7 @@ def test_a_reporting_period_must_come_after_the_baseline(tmp_path):
             "P1,ie4,reporting,2026-01-12,2026-01-20,1400,,\n"
             "C1,ie3,baseline,2026-03-01,2026-03-07,700,,\n"
             "C1,ie3,reporting,2026-02-01,2026-02-10,950,,\n")
-    case, problems = _case(tmp_path / "order", rows)
-    assert case is None
-    said = {(p.row, p.column): p.rule for p in problems if p.severity == "error" and p.file == "verification.csv"}
+    said = _refused(tmp_path / "order", rows)
     assert "starts on or before the last day of its baseline (2026-01-18)" in said[(3, "start_date")]
     assert "starts on or before the last day of its baseline (2026-02-10)" in said[(6, "start_date")]
     assert "ends before its baseline starts (2026-03-01)" in said[(8, "start_date")]
