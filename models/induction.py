@@ -27,6 +27,9 @@ KW_PER_HP = 0.745699872
 #: Typical-shop and poor-practice figures are :data:`REWIND_LOSS_TYPICAL_PCT_POINTS` and
 #: :data:`REWIND_LOSS_POOR_PCT_POINTS`.
 DEFAULT_REWIND_LOSS_PCT_POINTS = 0.1
+#: Lowest full-load efficiency a rewound motor is calibrated at [-]: below it the rewinds' losses leave no credible
+#: motor (:func:`calibrate_induction` refuses it; a rewind that would take a motor there is not offered).
+MIN_REWOUND_EFFICIENCY_FRAC = 0.05
 #: Efficiency drop per rewind in a typical shop [percentage points]; common practice ("about one
 #: point per rewind" is the often-quoted figure from older utility studies), not a measured value.
 REWIND_LOSS_TYPICAL_PCT_POINTS = 1.0
@@ -1163,9 +1166,12 @@ def calibrate_induction(
     fail((x_pk > 0.3) & (x_pk <= 1.0), "peak_efficiency_load_frac must lie in (0.3, 1]", "peak_efficiency_load")
     fail((q_share >= 0) & (q_share <= 1), "magnetising_kvar_share_frac must lie in [0, 1]", "magnetising_kvar_share")
     eta_rewound = eta - rewinds * per_rewind / 100.0
-    fail(eta_rewound > 0.05, "rewind losses leave no credible efficiency; check rewind_count and rewind_loss_pct_points", "rewind_count")
+    fail(eta_rewound > MIN_REWOUND_EFFICIENCY_FRAC, "rewind losses leave no credible efficiency; check rewind_count and "
+         "rewind_loss_pct_points", "rewind_count")
 
-    s_r = np.where(given_speed, (n_s - np.where(given_speed, n_r, 0.0)) / n_s, default_rated_slip_frac(p_r))
+    # (the typical slip read at a rating that is one: a rating that is none was said above, by ``fail``)
+    s_r = np.where(given_speed, (n_s - np.where(given_speed, n_r, 0.0)) / n_s,
+                   default_rated_slip_frac(np.where(np.isfinite(p_r) & (p_r > 0), p_r, 1.0)))
     fail(s_r <= MAX_RATED_SLIP_FRAC, f"rated slip above {MAX_RATED_SLIP_FRAC:.0%} is outside the model; check rated and sync speed", "rated_speed")
 
     has75, has50 = ~np.isnan(e75), ~np.isnan(e50)

@@ -303,7 +303,7 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     one of them (or in none); application in its list; a drive cannot be added where one
     is already fitted, nor to a constant-torque load at fixed speed (it would add losses); a line-start PM
     motor is not offered where a drive already controls the speed; rewinds and terminal capacitors apply
-    to induction motors only, and capacitors never to a motor fed by a drive (capacitors on a drive output
+    to induction motors only, and a rewind not where one more would leave no credible efficiency, and capacitors never to a motor fed by a drive (capacitors on a drive output
     are forbidden); with a region, a new induction motor of a class below the region's minimum for the
     motor's size and poles is not offered.
     """
@@ -342,6 +342,17 @@ def applicability(options: pd.DataFrame, assets: pd.DataFrame,
     exclude((tech == "wound_field") & (control == "drive"),
             "speed is drive-controlled: a wound-field machine on the line would lose the speed control")
     exclude(np.isin(tech, ["rewind", "capacitor"]) & (machine != "induction"), "applies to induction motors only")
+    if "rated_efficiency_pct" in assets and "rewind_count" in assets:  # one more rewind must leave a credible motor
+        from models.induction import DEFAULT_REWIND_LOSS_PCT_POINTS, MIN_REWOUND_EFFICIENCY_FRAC
+
+        per_rewind = (assets["rewind_loss_pct_points"].to_numpy(dtype=float) if "rewind_loss_pct_points" in assets
+                      else np.full(n_a, DEFAULT_REWIND_LOSS_PCT_POINTS))
+        after = (assets["rated_efficiency_pct"].to_numpy(dtype=float)
+                 - (assets["rewind_count"].to_numpy(dtype=float) + 1.0) * per_rewind) / 100.0
+        with np.errstate(invalid="ignore"):
+            worn = ~(after > MIN_REWOUND_EFFICIENCY_FRAC)
+        exclude((tech == "rewind") & (worn & np.isfinite(after))[:, None],
+                "another rewind would leave no credible efficiency: replace the motor")
     exclude((tech == "capacitor") & (control == "drive"), "never fit capacitors on a drive output")
     if region is not None and n_a and (tech == "induction").any():
         from models.regulations import class_rank, minimum_class

@@ -822,3 +822,27 @@ def test_the_mv_plan_of_an_on_off_motor_compares_energy_not_mean_kw(tmp_path):
     row = res.loc[("P7", "ie3")]
     assert plan.loc[("P7", "ie3"), "expected_mean_p_kw"] == pytest.approx(
         float(plan.loc[("P7", "ie3"), "expected_energy_kwh_per_yr"]) / float(row["running_h_per_yr"]), rel=1e-12)
+
+
+def test_a_rewind_that_would_leave_no_credible_motor_is_not_offered(tmp_path):
+    # F1 at 50 % after 8 rewinds of 5 points each: today 50 - 8 x 5 = 10 % (calibrated: above the model's 5 %), one
+    # more rewind 5 %, no credible motor (models.induction.MIN_REWOUND_EFFICIENCY_FRAC): the rewind is not offered,
+    # with its reason, and the run goes on (it raised for the whole group before)
+    from models import scenario
+
+    header = cb.ASSET_HEADER + ["rewind_loss_pct_points"]
+    rows = [list(r) + ["0.1"] for r in cb.ASSETS]
+    rows[1][header.index("rated_efficiency_pct")] = "50"
+    rows[1][header.index("rewind_count")] = "8"
+    rows[1][-1] = "5"
+    folder = cb.write_case(tmp_path / "c", assets=rows, asset_header=header)
+    cb.with_flat_tariff(folder)
+    case, problems = load_case(folder)
+    assert case is not None, [str(p) for p in problems if p.severity == "error"]
+    result = scenario.run(case, case.finance, with_risk=False)
+    op = result.physics.operation
+    o = [k for k, t in enumerate(op.technologies) if t == "rewind"][0]
+    f1, p1 = op.asset_position("F1"), op.asset_position("P1")
+    assert not op.applies[f1, o] and "another rewind would leave no credible efficiency" in str(op.reason[f1, o])
+    assert op.applies[p1, o]
+    assert not ((result.results["asset_id"] == "F1") & (result.results["option_id"] == op.option_ids[o])).any()
