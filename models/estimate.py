@@ -39,12 +39,15 @@ ECONOMICS_S_PER_ASSET = 4.3 / 10_000
 #: so the estimate is capped at two limits and the check.
 PLAN_S_PER_ASSET = 14.7 / 10_000
 PLAN_MAX_S = 130.0
-#: Exact fleet plan of up to 1,000 assets [s per asset]: the demo's four plans (its own and its three named
-#: scenarios', each with its reactive check) took about 9 s for 82 assets on the 2-core reference machine
-#: (2026-12-05, Xeon host; the solver's proof to 0.01 % took 0.3-7 s a plan); 16.8 s for 1,000 assets in the
-#: session of the figures above (a fleet of that size is solved without a core programme, its proof takes longer
-#: per asset). The higher, the demo's, is taken, and is the least a larger fleet is given too.
-PLAN_SMALL_S_PER_ASSET = 9.0 / (4 * 82)
+#: Exact fleet plan of up to 1,000 assets [s per asset]: 16.8 s for 1,000 assets (same session; a fleet of
+#: that size is solved without a core programme, its proof takes longer per asset), the least a larger
+#: fleet is given too.
+PLAN_SMALL_S_PER_ASSET = 16.8 / 1_000
+#: Each exact plan's own set-up and proof beyond its assets [s]: the demo's four plans (its own and its three named
+#: scenarios', each with its reactive check) took about 9 s for 82 assets (2026-12-05, the Intel host of
+#: docs/performance.md, "2026-12-05, night"; 0.3-7 s a plan), 2.25 s a plan, of which its 82 assets at
+#: :data:`PLAN_SMALL_S_PER_ASSET` account for 1.38 s.
+PLAN_FIXED_S = 9.0 / 4 - 82 * PLAN_SMALL_S_PER_ASSET
 #: Reading and validating a case [s per asset] and [s per interval of its profiles]: the benchmark's 10,000-asset
 #: fleet took 1.9 s with 400 shared hourly profiles (3.5 million intervals; docs/performance.md "2026-12-04, last")
 #: and 24.4 s with a profile per motor at 15-minute steps (350.4 million intervals, the Parquet table read batch
@@ -57,9 +60,10 @@ LOAD_S_PER_ASSET = (1.9 - LOAD_S_PER_PROFILE_INTERVAL * 3.504e6) / 10_000
 #: timestamp, 8 bytes each (profiles on one grid share their timestamps, models.case: a case's profiles are
 #: counted as they are held, :attr:`_RunSize.profile_bytes`).
 PROFILE_BYTES_PER_INTERVAL = 16
-#: Imports, reading the case and writing the result files [s]: ``drivecase check`` of the demo took 1.35 s and the
-#: writing of its result files about 0.8 s on the reference machine (2026-12-05, Xeon host).
-FIXED_S = 2.2
+#: Imports and writing the result files [s]: ``drivecase check`` of the demo took 1.35 s (imports, and reading the
+#: case, which :data:`LOAD_S_PER_ASSET` counts apart: about 0.1 s) and the writing of its result files about 0.8 s
+#: (2026-12-05, the Intel host of docs/performance.md, "2026-12-05, night").
+FIXED_S = 2.0
 #: Resident memory of the interpreter, libraries and a loaded case before the analysis [bytes] (the
 #: remainder of the 1,000-asset peak of 1,930 MiB once the arrays below are counted).
 BASE_BYTES = 250 * 2**20
@@ -239,7 +243,7 @@ def _estimate(size: _RunSize, workers: int, threads: int | None, workers_here: b
     else:
         at_once = local_threads
         parallel = 1.0 + THREAD_GAIN * (at_once - 1)
-    plan_s = min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET), PLAN_MAX_S)
+    plan_s = min(max(n_a * PLAN_S_PER_ASSET, min(n_a, 1_000) * PLAN_SMALL_S_PER_ASSET) + PLAN_FIXED_S, PLAN_MAX_S)
     # each named scenario: the economics and a plan of its own (the run's plan's time, not its risk)
     scenarios_s = size.n_scenarios * (n_a * ECONOMICS_S_PER_ASSET + plan_s)
     seconds = (FIXED_S + elements * (MACHINES_S_PER_ELEMENT + SITE_BILLS_S_PER_ELEMENT) / parallel

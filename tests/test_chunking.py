@@ -289,10 +289,10 @@ class TestEstimate:
 
     def test_each_named_scenario_adds_the_economics_and_a_plan(self):
         # a named scenario runs the economics (4.3 s per 10,000 assets) and solves its own plan (the larger of
-        # 14.7 s per 10,000 assets and, for the first 1,000, the demo's 9.0 s over its four plans of 82 assets,
-        # docs/performance.md and models.estimate; at most 130 s): three scenarios of a 10,000-asset fleet add
-        # 3 x (4.3 + 1000 x 9.0 / 328) = 3 x (4.3 + 27.4390244) = 95.2170732 s (hand calculation), and the note
-        # says they are counted
+        # 14.7 s per 10,000 assets and 16.8 s per 1,000 of the first 1,000, docs/performance.md, plus each plan's own
+        # 9.0 / 4 - 82 x 0.0168 = 0.8724 s from the demo's four plans; at most 130 s): three scenarios of a
+        # 10,000-asset fleet add 3 x (4.3 + 16.8 + 0.8724) = 65.9172 s (hand calculation), and the note says they
+        # are counted
         from dataclasses import replace
 
         from models import estimate
@@ -300,7 +300,7 @@ class TestEstimate:
         size = estimate._RunSize(n_a=10_000, n_o=11, n_t=8760, n_sites=20, largest=534)
         alone = estimate._estimate(size, 1, 2, True, None, None)
         three = estimate._estimate(replace(size, n_scenarios=3), 1, 2, True, None, None)
-        assert three.seconds - alone.seconds == pytest.approx(95.2170732, rel=1e-9)
+        assert three.seconds - alone.seconds == pytest.approx(65.9172, rel=1e-9)
         assert "(the plans of its 3 named scenarios included)" in three.note and "scenario" not in alone.note
 
     def test_the_physics_time_is_the_benchmarks(self):
