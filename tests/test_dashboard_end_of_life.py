@@ -188,16 +188,20 @@ def test_the_policys_scope_names_its_sizes_the_larger_motors_and_its_outage_pric
         downtime_cost_per_h=500.0)), [45.0, 400.0], "EUR")
     assert "1 motor of the case is larger and is left to its own comparison" in one and "(EUR 500 per hour)" in one
     assert services.fleet_rules_scope_text(SimpleNamespace(fleet_rules=pd.DataFrame()), [1.0], "EUR") == ""
-    # a larger motor the asset comparison leaves out too (no new motor of the catalogue fits it) is said so, not
-    # sent to a comparison that is not there
-    ops = SimpleNamespace(operation=SimpleNamespace(asset_ids=np.array(["A", "B", "C"], dtype=object)))
-    partly = services.fleet_rules_scope_text(SimpleNamespace(
-        fleet_rules=rules, physics=ops, end_of_life=pd.DataFrame({"asset_id": ["A", "B"]}),
-        assumptions=SimpleNamespace(downtime_cost_per_h=0.0)), [45.0, 355.0, 710.0], "EUR")
-    assert "2 motors of the case are larger and are left to their own comparison above (1 without one: no new motor" in partly
-    alone = services.fleet_rules_scope_text(SimpleNamespace(
-        fleet_rules=rules, physics=ops, end_of_life=pd.DataFrame({"asset_id": ["A"]}),
-        assumptions=SimpleNamespace(downtime_cost_per_h=0.0)), [45.0, 46.0, 710.0], "EUR")
+    # a larger motor the asset comparison leaves out too because no new motor of the catalogue fits it is said so,
+    # not sent to a comparison that is not there (the reason as models.scenario.end_of_life_left_out gives it; an
+    # idle motor, left out for another reason, is not counted)
+    ops = SimpleNamespace(operation=SimpleNamespace(asset_ids=np.array(["A", "B", "C", "D"], dtype=object)))
+    why = {"A": "", "B": "", "C": "no_new_motor", "D": "idle"}
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(services.scenario, "end_of_life_left_out", lambda result, asset_id: why[asset_id])
+        partly = services.fleet_rules_scope_text(SimpleNamespace(
+            fleet_rules=rules, physics=ops, assumptions=SimpleNamespace(downtime_cost_per_h=0.0)),
+            [45.0, 355.0, 710.0, 800.0], "EUR")
+        alone = services.fleet_rules_scope_text(SimpleNamespace(
+            fleet_rules=rules, physics=ops, assumptions=SimpleNamespace(downtime_cost_per_h=0.0)),
+            [45.0, 46.0, 710.0, 47.0], "EUR")
+    assert "3 motors of the case are larger and are left to their own comparison above (1 without one: no new motor" in partly
     assert "1 motor of the case is larger and is left to its own comparison above (none is made: no new motor" in alone
     # a size of four digits is written as the policy's grid writes it, with its thousands separator
     wide = rules.assign(max_rated_p_kw=[7.5, 1000.0])
