@@ -187,7 +187,7 @@ class Case:
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
 _THOUSANDS = re.compile(r"^[-+]?\d{1,3}(,\d{3})+(\.\d+)?$")
 _DOT_THOUSANDS_DECIMAL_COMMA = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+,\d+$")
-_DOT_THOUSANDS = re.compile(r"^[-+]?\d{1,3}(\.\d{3})+$")
+_DOT_THOUSANDS = re.compile(r"^[-+]?[1-9]\d{0,2}(\.\d{3})+$")
 #: Note of :func:`_to_number` for "4.200" in a table that writes its decimals with a comma.
 DOT_AMBIGUOUS = "ambiguous: the table writes its decimals with a comma, so this point may separate thousands"
 #: Notes of :func:`_to_number` for a % sign: dropped in a column in percent, or the number divided by 100 in a
@@ -199,6 +199,8 @@ PERCENT_READ_AS_FRACTION = "a percentage was read as a fraction (divided by 100)
 #: Note of :func:`_to_number` for digits grouped with spaces (``1 200``, as French and other locales write).
 SPACE_THOUSANDS = "a space read as a thousands separator"
 _SPACED_DIGITS = re.compile(r"\d[ \u00a0\u202f]+\d")
+#: Digits grouped by threes with spaces, a decimal part after a point or a comma allowed (``1 200``, ``12 500,5``).
+_SPACE_GROUPS = re.compile(r"^[-+]?\d{1,3}([ \u00a0\u202f]\d{3})+([.,]\d+)?%?$")
 REPAIR_NOTES = (SPACE_THOUSANDS, "decimal comma read as a decimal point",
                 "decimal comma read as a decimal point and '.' as a thousands separator",
                 "a date was given; its year was used",
@@ -265,8 +267,8 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None,
     (nan, 'not a number')
     >>> _to_number("4.200"), _to_number("4.200", comma_decimals=True)[0]
     ((4.2, None), nan)
-    >>> _to_number("1 200")
-    (1200.0, 'a space read as a thousands separator')
+    >>> _to_number("1 200"), _to_number("0.850", comma_decimals=True), _to_number("7 5")[0]
+    ((1200.0, 'a space read as a thousands separator'), (0.85, None), nan)
     """
     if _blank(value):
         return np.nan, None
@@ -283,6 +285,8 @@ def _to_number(value: object, year: bool = False, ratio: str | None = None,
             return np.nan, "not a finite number"
         return (number, None) if np.isfinite(number) else (np.nan, "not a finite number")
     if isinstance(value, str) and _SPACED_DIGITS.search(value.strip()):  # read without its spaces, and said
+        if not _SPACE_GROUPS.match(value.strip()):  # "7 5" is no way of writing a number
+            return np.nan, "digits apart that are not groups of three (a space is a thousands separator only so)"
         number, note = _to_number(re.sub(r"[ \u00a0\u202f]", "", value), year, ratio, comma_decimals)
         if np.isnan(number):
             return number, note
@@ -2353,15 +2357,17 @@ def _check_verification(checker: _TableChecker, asset_ids: set[str] | None, opti
         checker.err(i, "running_h", hours[i], f"more running hours than the period's {int(days[i])} days hold",
                     "running_h <= 24 x (end_date - start_date + 1)")
     assets = v["asset_id"].astype(str).to_numpy()
-    for asset in sorted(set(assets[v["asset_id"].notna().to_numpy()])):
-        rows = np.flatnonzero(assets == asset)
+    period_of = v["period"].astype(str).to_numpy()
+    given = v["asset_id"].notna().to_numpy()
+    for asset, rows in sorted(pd.Series(np.arange(len(v)))[given].groupby(assets[given]).indices.items()):
+        rows = np.flatnonzero(given)[rows]
         options = {str(o) for o in v["option_id"].iloc[rows] if o is not None and o == o}
         if len(options) > 1:
             checker.err(int(rows[-1]), "option_id", v["option_id"].iloc[rows[-1]],
                         f"asset {asset} names more than one option installed ({', '.join(sorted(options))})",
                         "one project per asset: give every row of the asset the option installed")
         periods = set(v["period"].iloc[rows].dropna().astype(str))
-        _check_periods_apart(checker, asset, rows, v["period"].astype(str).to_numpy(), spans)
+        _check_periods_apart(checker, asset, rows, period_of, spans)
         if periods == {"baseline"}:
             checker.warn(int(rows[0]), "period", "baseline", f"asset {asset} has a baseline and no reporting period yet: "
                          "nothing to verify", "add the measurements after the project as period reporting")
@@ -2384,7 +2390,7 @@ def _check_periods_apart(checker: _TableChecker, asset: str, rows: np.ndarray, p
             continue
         start, end = spans[i]
         if end < first:
-            checker.err(int(i), "start_date", start.isoformat(),
+            checker.err(int(i), "end_date", end.isoformat(),
                         f"asset {asset}'s reporting period ends before its baseline starts ({first.isoformat()})",
                         "the baseline is measured before the project, the reporting period after it")
         elif start <= last:

@@ -142,7 +142,7 @@ def test_a_reporting_period_must_come_after_the_baseline(tmp_path):
     said = _refused(tmp_path / "order", rows)
     assert "starts on or before the last day of its baseline (2026-01-18)" in said[(3, "start_date")]
     assert "starts on or before the last day of its baseline (2026-02-10)" in said[(6, "start_date")]
-    assert "ends before its baseline starts (2026-03-01)" in said[(8, "start_date")]
+    assert "ends before its baseline starts (2026-03-01)" in said[(8, "end_date")]
     assert len(said) == 3
 
 
