@@ -381,9 +381,20 @@ def _finding(row: dict, near_order: float = np.nan) -> str:
 
 
 def screen_flags(screen: pd.DataFrame) -> pd.DataFrame:
-    """Which limits each row of :func:`site_screen`'s table passes: boolean columns ``voltage`` (the voltage THD or
-    the worst harmonic above its limit), ``current`` (the current TDD above its limit, where screened) and
-    ``resonance`` (a resonance finding), and ``any`` of them; indexed as ``screen``."""
+    """Which limits each row of :func:`site_screen`'s table exceeds.
+
+    Parameters
+    ----------
+    screen : pandas.DataFrame
+        Rows of :func:`site_screen`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed as ``screen``, boolean columns ``voltage`` (the voltage THD or the worst harmonic above its limit),
+        ``current`` (the current TDD above its limit, where screened), ``resonance`` (a resonance finding) and
+        ``any`` of them.
+    """
     with np.errstate(invalid="ignore"):
         voltage = ((screen["voltage_thd_pct"] > screen["voltage_thd_limit_pct"])
                    | (screen["worst_harmonic_pct"] > screen["harmonic_limit_pct"])).fillna(False)
@@ -552,7 +563,8 @@ def site_screen(case, op, plan: pd.DataFrame | None = None) -> pd.DataFrame:
                    "transformer_impedance_pct": z[k], "impedance_basis": basis[k], "short_circuit_kva": s_sc[k],
                    "pcc_short_circuit_kva": pcc_kva, "max_demand_kva": demand, "bus_v_v": bus_v,
                    "voltage_thd_pct": float(thd[0]), "voltage_thd_limit_pct": float(limit_thd[0]),
-                   "worst_harmonic": int(orders[worst]), "worst_harmonic_pct": float(v_h[0, worst]),
+                   # (no drive, no harmonic: 0, as resonant_harmonic says none)
+                   "worst_harmonic": int(orders[worst]) if drive_kva > 0 else 0, "worst_harmonic_pct": float(v_h[0, worst]),
                    "harmonic_limit_pct": float(limit_h[0]), "current_tdd_pct": tdd,
                    "current_tdd_limit_pct": (float(tdd_limit_pct([pcc_kva / demand], [supply_v[k]])[0]) if demand > 0
                                              else float("nan")),

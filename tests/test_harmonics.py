@@ -150,6 +150,9 @@ def test_today_and_the_plan_are_screened_on_one_bus(tmp_path):
     screen = harmonics.site_screen(case, op, plan).set_index("scenario")
     assert screen.loc["today", "bus_v_v"] == screen.loc["plan", "bus_v_v"] == 400.0
     assert screen.loc["today", "drive_kva"] == 0.0 and screen.loc["plan", "drive_kva"] > 0.0
+    # no drive today, so no worst harmonic (0, as no resonance is 0); the plan's drives name theirs, the 5th of a
+    # six-pulse drive (models.harmonics.SPECTRUM_SHAPES)
+    assert screen.loc["today", "worst_harmonic"] == 0 and screen.loc["plan", "worst_harmonic"] == 5
 
 
 def test_site_screen_without_transformer_data_says_what_to_give(small_site):

@@ -516,7 +516,7 @@ def _order_span(low: float, high: float) -> str:
 
 def _harmonic_context(case, result, scope: content.Scope) -> dict[str, Any]:
     """The harmonic screen of the sites in scope, today and with the plan (section 11)."""
-    from models.harmonics import SCREEN_CAUTION
+    from models.harmonics import SCREEN_CAUTION, ordinal
 
     table = content.harmonic_screen(case, result, scope)
     rows = []
@@ -525,8 +525,9 @@ def _harmonic_context(case, result, scope: content.Scope) -> dict[str, Any]:
         rows.append(row([cell(r["site_id"]), cell(r["scenario"]), num(r["drive_kva"], signed=False),
                          num(r["short_circuit_kva"], signed=False) if screened else cell("not given"),
                          cell(f"{r['voltage_thd_pct']:.1f} / {r['voltage_thd_limit_pct']:g}" if screened else ""),
-                         cell(f"{r['worst_harmonic']}th: {r['worst_harmonic_pct']:.1f} / {r['harmonic_limit_pct']:g}"
-                              if screened else ""),
+                         cell(f"{ordinal(int(r['worst_harmonic']))}: {r['worst_harmonic_pct']:.1f} / "
+                              f"{r['harmonic_limit_pct']:g}" if screened and r["worst_harmonic"] else
+                              "no drives" if screened else ""),
                          cell(f"{r['current_tdd_pct']:.1f} / {r['current_tdd_limit_pct']:g}"
                               if np.isfinite(r["current_tdd_pct"]) and np.isfinite(r["current_tdd_limit_pct"])
                               else f"{r['current_tdd_pct']:.1f} / none (above 161 kV)" if np.isfinite(r["current_tdd_pct"])
