@@ -2297,6 +2297,25 @@ def _save_finance(path: Path, assumptions: object, stamp: str) -> SavedCase:
     return SavedCase("failed", path, place.target, previous, changes, tuple(trouble))
 
 
+def save_target(case_path: str | Path) -> tuple[Path, Path, str] | None:
+    """Where :func:`save_finance_settings` would write a case's assumptions, for a front to ask before it saves.
+
+    Parameters
+    ----------
+    case_path : str or pathlib.Path
+        A case folder or ``.xlsx`` workbook.
+
+    Returns
+    -------
+    tuple or None
+        The file written (a folder's ``finance.toml``, a link to it followed, or the workbook), the folder its
+        present version is kept in, and its kind (``"folder"`` or ``"workbook"``); None where nothing could be
+        saved (the save then says why).
+    """
+    place, _ = _save_place(Path(case_path))
+    return None if place is None else (place.target, place.versions, place.kind)
+
+
 def _save_place(path: Path) -> tuple[_Place | None, list[Problem]]:
     """Find the file a save writes and the versions folder; refuse links out of the case and read-only places."""
     def refuse(file: str, rule: str, hint: str) -> tuple[None, list[Problem]]:

@@ -124,3 +124,18 @@ def test_an_upload_s_question_names_no_server_folder(engine):
     assert "the finance sheet of plant.xlsx (the server's copy" in book and "/srv" not in book
     assert "kept as plant.xlsx.versions/plant-<UTC time>.xlsx" in book
     assert "finance sheet of /cases/plant.xlsx?" in inputs.save_question("/cases/plant.xlsx", uploaded=False)
+
+
+def test_the_question_names_the_file_the_save_writes(tmp_path):
+    # a case whose finance file is headed Finance.toml: the save writes that file (models.io.save_target, names
+    # matched without regard to case), and the question names it, not a finance.toml beside it
+    import shutil
+
+    from models.io import DEMO_DIR
+
+    case = tmp_path / "plant"
+    shutil.copytree(DEMO_DIR, case)
+    (case / "finance.toml").rename(case / "Finance.toml")
+    question = inputs.save_question(case, uploaded=False)
+    assert f"into {case.resolve() / 'Finance.toml'}?" in question
+    assert f"kept as {case.resolve() / '.versions' / 'Finance-<UTC time>.toml'}" in question

@@ -9,6 +9,7 @@ from dash import Input, Output, State, callback, dcc, html, no_update
 
 from dashboard import components as ui
 from dashboard import services
+from models import io as case_io
 from models.wording import counted
 
 
@@ -296,8 +297,8 @@ def save_question(files, uploaded: bool) -> str:
     Parameters
     ----------
     files : str or pathlib.Path
-        The tab's case: a folder (its ``finance.toml`` is written) or an ``.xlsx`` workbook (its ``finance``
-        sheet), as :func:`models.io.save_finance_settings` writes them.
+        The tab's case: a folder or an ``.xlsx`` workbook; the file written and the versions folder are those
+        :func:`models.io.save_target` finds (a folder's ``finance.toml``, or the workbook's finance sheet).
     uploaded : bool
         True for a tab's upload: the server's copy is written (named without the server's folder) and offered
         as a download.
@@ -308,13 +309,18 @@ def save_question(files, uploaded: bool) -> str:
         The question of the confirmation dialog (OK saves, Cancel writes nothing).
     """
     files = Path(files)
-    book = files.suffix.lower() == ".xlsx"
-    # an upload's folder on the server means nothing to its user: named by its file alone
-    where = files if not uploaded else Path(files.name) if book else Path()
-    if book:
-        written, kept = f"the finance sheet of {where}", f"{where}.versions/{files.stem}-<UTC time>.xlsx"
-    else:
-        written, kept = str(where / "finance.toml"), str(where / ".versions" / "finance-<UTC time>.toml")
+    found = case_io.save_target(files)
+    target, versions, kind = found if found is not None else (
+        (files, files.parent / f"{files.name}{case_io.WORKBOOK_VERSIONS_SUFFIX}", "workbook")
+        if files.suffix.lower() == ".xlsx" else (files / "finance.toml", files / case_io.VERSIONS_DIR, "folder"))
+    # an upload's folder on the server means nothing to its user: named from the case's own folder down
+    base = (files.parent if kind == "workbook" else files) if uploaded else Path()
+
+    def shown(path: Path) -> str:
+        return str(path.relative_to(base)) if uploaded and path.is_relative_to(base) else str(path)
+
+    kept = shown(versions / f"{target.stem}-<UTC time>{target.suffix}")
+    written = f"the finance sheet of {shown(target)}" if kind == "workbook" else shown(target)
     if uploaded:
         written += " (the server's copy of your upload, offered as a download once saved)"
     return (f"Save the assumptions in the form into {written}? Only the values that differ from the case's are "
