@@ -238,3 +238,23 @@ def test_the_screen_takes_each_plan_drives_front_end(small_site, tmp_path):
     # the currents of the two drives added order by order (H5's factors 1.037824 and 1.315192 on H4's 8.6391 kVA and
     # 15 / 0.9289 = 16.1481 kVA): root sum of squares 4.0503 kVA (hand calculation H6)
     assert planned["current_tdd_pct"] == pytest.approx(100.0 * 4.0503 / planned["max_demand_kva"], rel=2e-5)
+
+
+def test_the_plans_screen_in_words_from_hand_made_rows():
+    # hand-made screen rows (not the screen's own): S1's plan passes the THD limit with its current not screened and
+    # a resonance at the 11th; S2's plan is within every limit; S3 fails today only. Only S1 is named, with its
+    # figures against the limits, and what is not in the plan's figures
+    def row(site, scenario, thd, tdd, resonant):
+        return {"site_id": site, "scenario": scenario, "voltage_thd_pct": thd, "voltage_thd_limit_pct": 8.0,
+                "worst_harmonic_pct": 3.0, "harmonic_limit_pct": 5.0, "current_tdd_pct": tdd,
+                "current_tdd_limit_pct": 8.0, "resonant_harmonic": resonant}
+
+    screen = pd.DataFrame([row("S1", "today", 2.0, np.nan, 0), row("S1", "plan", 9.25, np.nan, 11),
+                           row("S2", "plan", 4.0, 5.0, 0), row("S3", "today", 12.0, 20.0, 0),
+                           row("S3", "plan", 4.0, 5.0, 0)])
+    assert harmonics.plan_screen_text(screen) == (
+        "With the plan, site S1 (voltage THD 9.2 % against 8 %; a capacitor resonance near the 11th harmonic) fails "
+        "the harmonic screen. A harmonic study, and the mitigation it asks for (line reactors, detuned banks, filters, "
+        "multi-pulse or active-front-end drives), come before the plan's drives and capacitors are installed; their "
+        "cost is not in the plan's capital or NPV.")
+    assert harmonics.plan_screen_text(screen, ["S2", "S3"]) == ""

@@ -817,8 +817,9 @@ def test_the_mv_plan_of_an_on_off_motor_compares_energy_not_mean_kw(tmp_path):
     for pick in (("P9", "capacitor"), ("P7", "ie3")):
         assert np.isfinite(plan.loc[pick, "expected_mean_p_kw"])
         assert "compare energy over the same production" not in plan.loc[pick, "measure"]
-    # P7 runs throughout: its expected mean kW is its yearly kWh over its running hours (hand: the ratio of two
-    # columns of the results row)
+    # P7 runs throughout: its expected mean kW is, by the M&V plan's definition (models.pack.content.mv_plan, Notes:
+    # kWh / running hours), its yearly kWh over the hours it runs, which a project that does not switch it on and
+    # off leaves as they are (the results row's running_h_per_yr)
     row = res.loc[("P7", "ie3")]
     assert plan.loc[("P7", "ie3"), "expected_mean_p_kw"] == pytest.approx(
         float(plan.loc[("P7", "ie3"), "expected_energy_kwh_per_yr"]) / float(row["running_h_per_yr"]), rel=1e-12)
