@@ -1596,8 +1596,20 @@ def _screen_table(view_: View, result) -> pd.DataFrame:
 
 
 def asset_harmonic_text(view_: View, result, asset_id: str) -> str:
-    """For an asset offered a drive or a capacitor at a site that the exact plan takes past a harmonic limit:
-    :func:`plan_harmonic_text` of its site, said for its drive and capacitor options; "" elsewhere."""
+    """The plan's harmonic caution for one asset's drive and capacitor options.
+
+    Parameters
+    ----------
+    view_ : View
+    result : models.scenario.ScenarioResult
+    asset_id : str
+
+    Returns
+    -------
+    str
+        :func:`plan_harmonic_text` of the asset's site, said for its drive and capacitor options, where it is
+        offered one and the exact plan takes its site past a harmonic limit; "" elsewhere.
+    """
     from models.options import DRIVE_TECHNOLOGIES
 
     op = view_.physics().operation
@@ -1611,9 +1623,21 @@ def asset_harmonic_text(view_: View, result, asset_id: str) -> str:
 
 
 def plan_harmonic_text(view_: View, result, site_ids=None) -> str:
-    """The exact plan's harmonic screen in words where a site (of ``site_ids``, default every site) passes a limit
-    with it (:func:`models.harmonics.plan_screen_text`), "" elsewhere: what the Fleet and Capital plan pages and
-    a drive or capacitor option of the Asset page say beside the plan."""
+    """The exact plan's harmonic screen in words, as the Fleet, Capital plan and Asset pages say it beside the plan.
+
+    Parameters
+    ----------
+    view_ : View
+    result : models.scenario.ScenarioResult
+    site_ids : iterable of str, optional
+        The sites to say it for (default every site).
+
+    Returns
+    -------
+    str
+        :func:`models.harmonics.plan_screen_text` where a site passes a limit with the plan; "" elsewhere (and
+        for a plan that buys nothing).
+    """
     from models.harmonics import plan_screen_text
 
     if result is None or not len(result.plan):

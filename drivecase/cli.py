@@ -852,9 +852,10 @@ _LEAVE_AT_ONCE = {"serve": False}
 def cmd_serve(args: argparse.Namespace) -> int:
     from dashboard.server import serve
 
-    code = int(serve(args.case, host=args.host, port=args.port, debug=args.debug, open_browser=not args.no_browser))
-    _LEAVE_AT_ONCE["serve"] = True
-    return code
+    try:
+        return int(serve(args.case, host=args.host, port=args.port, debug=args.debug, open_browser=not args.no_browser))
+    finally:
+        _LEAVE_AT_ONCE["serve"] = True
 
 
 def cmd_report(args: argparse.Namespace) -> int:

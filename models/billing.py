@@ -1114,8 +1114,7 @@ def _bill_items(tariff: Tariff, cal: _Calendar, p: np.ndarray, q: np.ndarray, re
                 kv, kw = kv.sum(axis=2, keepdims=True), kw.sum(axis=2, keepdims=True)
             excess = np.maximum(kv - r.free_kvarh_per_kwh * kw, 0.0)
             if bands:  # each unit's whole excess at the price of its power factor's band, a line item per band
-                tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands],
-                                           getattr(r, "power_factor_decimals", None))
+                tier = reactive_price_tier(kw, kv, [b.below_power_factor for b in bands], r.power_factor_decimals)
                 for j, b in sorted(enumerate(bands, start=1), key=lambda jb: -jb[1].below_power_factor):
                     banded.append(_Item(f"{kind}:{r.name} (power factor below {b.below_power_factor:g})", kind, "kVArh",
                                         np.full(n_m, b.price_per_kvarh), np.where(tier == j, excess, 0.0).sum(axis=2),

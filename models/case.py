@@ -2449,6 +2449,10 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
     from models.tariff import tariff_from_dict
 
     parsed = {}
+    # a case zone that is not one (an error of its own) is not set against the tariffs' zones: its stand-in is not
+    # the user's
+    declared_zone = str(_settings_table(raw)[0].get("time_zone", "")).strip() if _declared(raw, "time_zone") else ""
+    zone_stands = not declared_zone or declared_zone == settings.time_zone
     for name, data in raw.tariffs.items():
         source = f"tariffs/{name}" if raw.kind == "folder" else f"{raw.path.name}:tariff {name}"
         tariff, tariff_problems = tariff_from_dict(data, source=source)
@@ -2465,10 +2469,7 @@ def _check_tariffs(raw: io.RawCase, settings: CaseSettings, problems: list[Probl
                               f"declare the case currency in {raw.settings_source}: "
                               + _setting_line(raw, "currency", tariff.currency))
             problems.append(error(source, None, "tariff.currency", tariff.currency, rule, hint))
-        declared_zone = str(_settings_table(raw)[0].get("time_zone", "")).strip() if _declared(raw, "time_zone") else ""
-        if declared_zone and declared_zone != settings.time_zone:
-            pass  # the case's own zone is not one (an error of its own): the tariff's is not set against its stand-in
-        elif tariff.time_zone and tariff.time_zone != settings.time_zone:
+        if tariff.time_zone and tariff.time_zone != settings.time_zone and zone_stands:
             if _declared(raw, "time_zone"):
                 rule, hint = (f"the tariff's time zone differs from the case time zone {settings.time_zone}",
                               "periods and billing months are read on the site's clock: use the case zone")

@@ -39,7 +39,22 @@ class KeptForLast:
         self._lock = threading.Lock()
 
     def get(self, owner: Any, make: Callable[[], Any], beside: Any = None) -> Any:
-        """The value made for ``owner`` and ``beside`` (the same objects, by identity), else ``make()``'s, kept."""
+        """The value kept for ``owner`` and ``beside``, or ``make()``'s, then kept for them.
+
+        Parameters
+        ----------
+        owner : object
+            What the value is made from (weakly referenced: the value goes when it is collected).
+        make : callable
+            Makes the value, with no argument, when none is kept for these objects.
+        beside : object, optional
+            A second object the value depends on, compared by identity (held while the value is kept).
+
+        Returns
+        -------
+        object
+            The value.
+        """
         last = self._last
         if last is not None and last[0]() is owner and last[1] is beside:
             return last[2]

@@ -287,9 +287,19 @@ def _calibrated_today(arr: dict[str, np.ndarray], speed: np.ndarray, extra_rewin
 
 
 def today_calibration_failures(arr: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
-    """Where today's motors cannot be calibrated as :func:`existing_motor` calibrates them: per asset, the
-    input the first failed rule points at and its message ("" where the motor calibrates), from
-    :func:`models.induction.calibration_failures`; for the case check, before any run."""
+    """Where today's motors cannot be calibrated as :func:`existing_motor` calibrates them, for the case check.
+
+    Parameters
+    ----------
+    arr : dict of numpy.ndarray
+        :func:`asset_arrays` of the register, defaults filled in.
+
+    Returns
+    -------
+    quantity, message : numpy.ndarray of object, shape (n_assets,)
+        The input the first failed rule points at and its message, "" where the motor calibrates
+        (:func:`models.induction.calibration_failures`).
+    """
     speed = np.minimum(arr["speed_rpm"], arr["sync_rpm"] * (1 - 1e-3))
     return _calibrated_today(arr, speed, 0, calibrate=induction.calibration_failures)
 

@@ -227,7 +227,8 @@ def report_context(case, result, scope: content.Scope, files: list[str]) -> dict
         in_scope = set(case.assets.loc[case.assets["asset_id"].isin(list(scope.asset_ids)), "site_id"].astype(str))
         screened = plan_screen_text(content.plan_harmonic_screen(case, result), in_scope)
         if screened:
-            summary += " " + screened + " Section 11 tables the screen."
+            number = 1 + [anchor for anchor, _ in SECTIONS].index("cautions")  # the screen's table, under the cautions
+            summary += f" {screened} Section {number} tables the screen."
     financed = None
     if scope.mode != "assets" and len(result.plan) and str(getattr(result.assumptions, "financing", "cash")) != "cash":
         from models.financing import plan_financing, plan_financing_words
