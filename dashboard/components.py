@@ -296,9 +296,14 @@ def data_grid(component_id: str, height: int | str = 420, empty_text: str = "Not
 
 def scenario_columns(currency: str) -> list[dict]:
     """Columns of the scenario comparison grid (rows of :func:`models.comparison.compare`)."""
-    # the scenario's name stays in view while the grid scrolls sideways (13 columns outgrow a projector's width);
-    # headers wrap between words, so each column is at least as wide as its longest word
+    # the scenario's name, the plan's NPV change and its projects (what the grid is for) stay in view while the
+    # rest scrolls sideways (13 columns outgrow a projector's width); headers wrap between words, so each column
+    # is at least as wide as its longest word
     return [long_text_col("scenario", "Scenario", minWidth=180, flex=2, pinned="left"),
+            number_col("plan_npv_change", f"NPV change [{currency}]", 0, pinned="left", minWidth=115, maxWidth=150,
+                       headerTooltip=f"The plan's NPV less the plan's NPV under the case as written [{currency}]"),
+            number_col("projects", "Projects", 0, pinned="left", minWidth=110, maxWidth=120,
+                       headerTooltip="Projects in the plan"),
             number_col("discount_rate_pct", "Discount rate [%]", 1, maxWidth=120),
             number_col("escalation_energy_pct", "Energy price escalation [%/yr]", 1, minWidth=130, maxWidth=150),
             number_col("horizon_yr", "Horizon [yr]", 0, maxWidth=100),
@@ -309,9 +314,7 @@ def scenario_columns(currency: str) -> list[dict]:
             long_text_col("replacement_mode", "Replacement timing", minWidth=150),
             number_col("plan_capital", f"Plan capital [{currency}]", 0),
             number_col("yearly_saving_per_yr", f"Plan saving [{currency}/yr]", 0),
-            number_col("plan_npv", f"Plan NPV [{currency}]", 0),
-            number_col("plan_npv_change", f"NPV change from the case [{currency}]", 0),
-            number_col("projects", "Projects", 0, maxWidth=100)]
+            number_col("plan_npv", f"Plan NPV [{currency}]", 0)]
 
 
 def problem_columns() -> list[dict]:

@@ -402,35 +402,10 @@ def clear_scenarios(clicks):
     return [], "The kept scenarios are cleared; the case's own remain.", "form-message"
 
 
-#: What the scenarios panel is for, pinned left after the scenario's name (in view however narrow the window,
-#: the assumptions scrolling beside them): each column's short header, its tooltip and its narrowest and
-#: widest width [px] (each header's longest word and each number whole on its line).
-SCENARIO_OUTCOMES = {
-    "plan_npv_change": ("NPV change [{currency}]", "The plan's NPV less the plan's NPV under the case as written "
-                                                  "[{currency}]", 115, 150),
-    "projects": ("Projects", "Projects in the plan", 110, 120)}
-
-
-def scenario_columns(currency: str) -> list[dict]:
-    """Columns of the scenarios grid (:func:`dashboard.components.scenario_columns`) with the plan's NPV change
-    and project count pinned left after the scenario's name, under the short headers of
-    :data:`SCENARIO_OUTCOMES` (the full wording in each header's tooltip)."""
-    columns = ui.scenario_columns(currency)
-    name = [c for c in columns if c["field"] == "scenario"]
-    outcomes = []
-    for field, (header, tooltip, min_px, max_px) in SCENARIO_OUTCOMES.items():
-        outcomes += [c | {"headerName": header.format(currency=currency),
-                          "headerTooltip": tooltip.format(currency=currency),
-                          "pinned": "left", "minWidth": min_px, "maxWidth": max_px}
-                     for c in columns if c["field"] == field]
-    rest = [c for c in columns if c["field"] != "scenario" and c["field"] not in SCENARIO_OUTCOMES]
-    return [c | {"pinned": "left"} for c in name] + outcomes + rest
-
-
 @callback(Output(SCENARIO_GRID, "rowData"), Output(SCENARIO_GRID, "columnDefs"),
           Input(READY, "data"), Input(ui.SESSION_STORE, "data"), Input(ui.SCENARIOS_STORE, "data"))
 def scenarios(_ready, session, kept):
     """The scenarios side by side: the case as written first, each with its plan's change from it."""
     view = services.view(session, None)
-    return services.scenario_rows(view, kept).to_dict("records"), scenario_columns(view.currency)
+    return services.scenario_rows(view, kept).to_dict("records"), ui.scenario_columns(view.currency)
 
