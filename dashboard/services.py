@@ -1622,7 +1622,7 @@ def asset_harmonic_text(view_: View, result, asset_id: str) -> str:
     return ("Drive and capacitor options here: " + text[:1].lower() + text[1:]) if text else ""
 
 
-def plan_harmonic_text(view_: View, result, site_ids=None) -> str:
+def plan_harmonic_text(view_: View, result, site_ids=None, brief: bool = False) -> str:
     """The exact plan's harmonic screen in words, as the Fleet, Capital plan and Asset pages say it beside the plan.
 
     Parameters
@@ -1631,6 +1631,8 @@ def plan_harmonic_text(view_: View, result, site_ids=None) -> str:
     result : models.scenario.ScenarioResult
     site_ids : iterable of str, optional
         The sites to say it for (default every site).
+    brief : bool
+        The sites only, in one sentence (the Fleet page's notice line).
 
     Returns
     -------
@@ -1642,7 +1644,7 @@ def plan_harmonic_text(view_: View, result, site_ids=None) -> str:
 
     if result is None or not len(result.plan):
         return ""
-    return plan_screen_text(_screen_table(view_, result), site_ids)
+    return plan_screen_text(_screen_table(view_, result), site_ids, brief)
 
 
 def _site_fit(view_: View, site_id: str) -> tuple[pd.DataFrame, pd.DataFrame] | None:

@@ -406,10 +406,11 @@ def screen_flags(screen: pd.DataFrame) -> pd.DataFrame:
     return flags
 
 
-def plan_screen_text(screen: pd.DataFrame, site_ids=None) -> str:
+def plan_screen_text(screen: pd.DataFrame, site_ids=None, brief: bool = False) -> str:
     """The plan's harmonic screen in one or two sentences for the pages that carry the plan: the sites (of
     ``site_ids``, default all) whose plan row passes a limit, with the figures against the limits, and that the
-    study and the mitigation it asks for are not in the plan's capital or NPV; "" where none does.
+    study and the mitigation it asks for are not in the plan's capital or NPV; "" where none does. ``brief``: the
+    sites only, in one sentence (a page's notice line).
 
     Examples
     --------
@@ -418,6 +419,8 @@ def plan_screen_text(screen: pd.DataFrame, site_ids=None) -> str:
     ...        "current_tdd_limit_pct": 12.0, "resonant_harmonic": 0}
     >>> plan_screen_text(pd.DataFrame([row])).split(". ")[0]
     'With the plan, site S1 (voltage THD 14.8 % against 8 %; current TDD 42.6 % against 12 %) fails the harmonic screen'
+    >>> plan_screen_text(pd.DataFrame([row]), brief=True)
+    "With the plan, site S1 fails the harmonic screen; its mitigation is not in the plan's figures."
     """
     rows = screen[screen["scenario"].astype(str) == "plan"]
     if site_ids is not None:
@@ -438,6 +441,10 @@ def plan_screen_text(screen: pd.DataFrame, site_ids=None) -> str:
     if not said:
         return ""
     fails = "fails" if len(said) == 1 else "fail"
+    if brief:
+        names = [str(r["site_id"]) for _, r in rows[flags["any"]].iterrows()]
+        return (f"With the plan, site{'s' if len(names) > 1 else ''} {' and '.join(names)} {fails} the harmonic screen; "
+                "its mitigation is not in the plan's figures.")
     return (f"With the plan, {' and '.join([', '.join(said[:-1]), said[-1]] if len(said) > 1 else said)} {fails} the "
             "harmonic screen. A harmonic study, and the mitigation it asks for (line reactors, detuned banks, filters, "
             "multi-pulse or active-front-end drives), come before the plan's drives and capacitors are installed; "

@@ -86,7 +86,7 @@ def test_site_meter_sets_the_model_beside_the_sites_bills(small_engine, monkeypa
     # tests/test_dashboard_services.py and tests/test_calibration.py)
     view = services.view(session, None)
     said = services.site_calibration_text(view, "KGQ")
-    assert len(said) == 1 and said[0].startswith("energy NMBE ") and " over 3 months, " in said[0]
+    assert len(said) == 1 and said[0].startswith("energy: the model reads ") and " over 3 months, " in said[0]
     assert said[0] in text
     assert "against the site's bills" not in _text(site.update("HRW", None, session, None)[4])
 

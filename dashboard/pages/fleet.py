@@ -30,8 +30,9 @@ COMPUTING = "Computing the case…"
 ABATEMENT_NOTE = ("One bar per asset: of its options that avoid CO2, the one with the highest NPV. It can differ from "
                   "the asset's best option in the table above, which need not avoid any CO2.")
 #: The table's height: at most 460 px, less on a short window, so its own horizontal scrollbar (when the
-#: columns do not fit) shows within the first screen.
-TABLE_HEIGHT = "clamp(280px, calc(100vh - 400px), 460px)"
+#: columns do not fit) shows within the first screen, a line of notice above the cards included (the plan's
+#: harmonic screen, a case's note).
+TABLE_HEIGHT = "clamp(280px, calc(100vh - 450px), 460px)"
 
 
 #: How to reach and open the table's rows without a mouse (dashboard/assets/keyboard.js, components.data_grid).
@@ -138,7 +139,7 @@ def update(session, edits, sites, applications, site_choices=(), sort=None):
     return (*cards, table.to_dict("records"), sorted_columns(table_columns(view.currency, view.power_unit), sort), count,
             figures.abatement_curve(services.with_option_labels(result.abatement, result), view.currency),
             " ".join(text for text in (view.notice, services.plan_notice(result),
-                                       services.plan_harmonic_text(view, result)) if text))
+                                       services.plan_harmonic_text(view, result, brief=True)) if text))
 
 
 def sorted_columns(columns: list[dict], sort) -> list[dict]:
