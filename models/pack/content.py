@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import re
-import weakref
 from dataclasses import dataclass, fields
 from typing import Any
 
@@ -721,21 +720,20 @@ def bills_fit(case, result) -> dict[str, list[tuple[str, str]]]:
     if op is None or history is None or history.empty:
         return {}
     # one pack asks several times (basis, register, workbook): the sites' meters are made once per result
-    kept = _BILLS_FIT.get("last")
-    if kept is not None and kept[0]() is result and kept[1] is case:
-        return kept[2]
-    _, summary = calibration.calibrate(case, op)
-    out: dict[str, list[tuple[str, str]]] = {}
-    for row in summary.to_dict("records"):
-        verdict = ("within the monthly criteria" if row["within_criteria"] else
-                   "too few months to judge" if not np.isfinite(row["nmbe_pct"]) else "outside the monthly criteria")
-        out.setdefault(str(row["site_id"]), []).append((verdict, calibration.summary_text(row)))
-    _BILLS_FIT["last"] = (weakref.ref(result), case, out)
-    return out
+    def fit() -> dict[str, list[tuple[str, str]]]:
+        _, summary = calibration.calibrate(case, op)
+        out: dict[str, list[tuple[str, str]]] = {}
+        for row in summary.to_dict("records"):
+            verdict = ("within the monthly criteria" if row["within_criteria"] else
+                       "too few months to judge" if not np.isfinite(row["nmbe_pct"]) else "outside the monthly criteria")
+            out.setdefault(str(row["site_id"]), []).append((verdict, calibration.summary_text(row)))
+        return out
+
+    return _BILLS_FIT.get(result, fit, beside=case)
 
 
-#: The last :func:`bills_fit` (a weak reference to its result, its case, its answer).
-_BILLS_FIT: dict[str, tuple] = {}
+#: The last :func:`bills_fit`, kept while its result lives (its case held beside it until then).
+_BILLS_FIT = KeptForLast()
 
 
 def finance_rows(assumptions: finance.FinanceAssumptions, currency: str | None = None) -> list[dict[str, Any]]:
